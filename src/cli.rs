@@ -1,0 +1,63 @@
+//! Command-line arguments (clap derive). Parsing only: [`crate::run`] acts on them.
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand};
+
+/// Audit processed throughput under failures: route every demand, process it once at a
+/// site on its walk, and find the worst failure scenarios and what closes their gaps.
+#[derive(Debug, Parser)]
+#[command(name = "redoubt", version, about, long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Validate a network file and print a summary.
+    Check {
+        /// The network file (JSON).
+        network: PathBuf,
+    },
+    /// Fail the network every way up to --depth, solve each scenario exactly, rank the worst.
+    Audit(AuditArgs),
+}
+
+/// Which scenarios to evaluate and how.
+#[derive(Debug, Args, Clone)]
+pub struct ScenarioArgs {
+    /// The network file (JSON).
+    pub network: PathBuf,
+    /// Largest number of elements failed together.
+    #[arg(long, default_value_t = 1)]
+    pub depth: usize,
+    /// Kinds of element to fail: any of links, sites, groups (comma-separated).
+    #[arg(long, default_value = "links,sites,groups")]
+    pub kinds: String,
+    /// Worker threads (default: one per core). Results do not depend on it.
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// No progress bar.
+    #[arg(long, short)]
+    pub quiet: bool,
+}
+
+#[derive(Debug, Args)]
+pub struct AuditArgs {
+    #[command(flatten)]
+    pub scenarios: ScenarioArgs,
+    /// Evaluate one named scenario instead, e.g. `link:X,site:Y,group:Z`.
+    #[arg(long, value_name = "ELEMENTS")]
+    pub fail: Option<String>,
+    /// How many scenarios (and elements) the tables show.
+    #[arg(long, default_value_t = 15)]
+    pub top: usize,
+    /// Write every scenario to this JSON file.
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<PathBuf>,
+    /// Gate: exit 1 when any scenario's shortfall exceeds this many units.
+    #[arg(long, value_name = "X")]
+    pub max_shortfall: Option<f64>,
+}
+

@@ -1,0 +1,40 @@
+//! The one error type of the crate and its mapping to exit statuses.
+
+use std::path::PathBuf;
+
+/// Everything that can stop a command. `main` maps each kind to an exit status with
+/// [`Error::exit_code`]; a gate that fails is not an error (see [`crate::Outcome`]).
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    /// The network file is malformed or inconsistent. The message names the element,
+    /// the field and the offending value.
+    #[error("invalid network: {0}")]
+    Input(String),
+    /// The command line asks for something impossible (unknown element in `--fail`, ...).
+    #[error("usage: {0}")]
+    Usage(String),
+    /// A file could not be read or written.
+    #[error("{}: {source}", path.display())]
+    Io {
+        path: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    /// The LP backend did not return an optimal solution. This is a defect or a numerical
+    /// limit, never a property of the network: every model the tool builds is feasible
+    /// (all-zero flow) and bounded (flows are capped by demand).
+    #[error("solver failed: {0}")]
+    Solver(String),
+}
+
+impl Error {
+    /// Exit status: 2 for bad input or usage (and unreadable files), 3 for a solver failure.
+    pub fn exit_code(&self) -> i32 {
+        match self {
+            Error::Input(_) | Error::Usage(_) | Error::Io { .. } => 2,
+            Error::Solver(_) => 3,
+        }
+    }
+}
+
+pub type Result<T> = std::result::Result<T, Error>;

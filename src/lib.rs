@@ -1,0 +1,168 @@
+//! `redoubt`: audit a network's processed throughput under failures.
+//!
+//! Data flows through the modules in order: [`model`] (file → validated network) →
+//! [`scenario`] (what fails) → [`solve`] (the exact route-and-process LP of one outage) →
+//! [`audit`] (all scenarios, in parallel) → [`rank`] (worst first, criticality) →
+//! [`report`] (tables and JSON). [`run`] wires one command line through them.
+
+pub mod audit;
+pub mod cli;
+pub mod error;
+pub mod model;
+pub mod rank;
+pub mod report;
+pub mod scenario;
+pub mod solve;
+
+use std::path::Path;
+
+use cli::{AuditArgs, Cli, Command, ScenarioArgs};
+use error::{Error, Result};
+use model::Network;
+use scenario::{Element, Kinds, Scenario};
+
+/// What a successful command ends with.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Outcome {
+    /// Everything asked for was done and no gate failed.
+    Ok,
+    /// A gate (`--max-shortfall`) failed.
+    GateFailed,
+}
+
+impl Outcome {
+    pub fn exit_code(self) -> u8 {
+        match self {
+            Outcome::Ok => 0,
+            Outcome::GateFailed => 1,
+        }
+    }
+}
+
+/// Reads and validates a network file.
+pub fn load(path: &Path) -> Result<Network> {
+    let text = std::fs::read_to_string(path).map_err(|source| Error::Io {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    Network::from_json(&text).map_err(|e| match e {
+        Error::Input(m) => Error::Input(format!("{}: {m}", path.display())),
+        other => other,
+    })
+}
+
+fn write_file(path: &Path, text: &str) -> Result<()> {
+    std::fs::write(path, text).map_err(|source| Error::Io {
+        path: path.to_path_buf(),
+        source,
+    })
+}
+
+/// Largest scenario count a run accepts; beyond it the user is asked to narrow the run.
+pub const MAX_SCENARIOS: u128 = 2_000_000;
+
+/// The scenarios a command line asks for: one named scenario (`--fail`) or the baseline
+/// plus every set of 1..=depth elements of the chosen kinds.
+pub fn scenarios_for(
+    net: &Network,
+    args: &ScenarioArgs,
+    fail: Option<&str>,
+) -> Result<Vec<Scenario>> {
+    if let Some(list) = fail {
+        let mut elements = Vec::new();
+        for part in list.split(',').map(str::trim).filter(|p| !p.is_empty()) {
+            elements.push(Element::parse(part, net)?);
+        }
+        if elements.is_empty() {
+            return Err(Error::Usage("--fail: name at least one element".into()));
+        }
+        return Ok(vec![Scenario::new(net, &elements)]);
+    }
+    let kinds = Kinds::parse(&args.kinds)?;
+    let pool = scenario::elements(net, kinds).len();
+    let count = scenario::count(pool, args.depth);
+    if count > MAX_SCENARIOS {
+        return Err(Error::Usage(format!(
+            "--depth {} over {pool} elements gives {count} scenarios (limit {MAX_SCENARIOS}); \
+             lower --depth or narrow --kinds",
+            args.depth
+        )));
+    }
+    Ok(scenario::enumerate(net, kinds, args.depth))
+}
+
+fn run_options(args: &ScenarioArgs) -> Result<audit::RunOptions> {
+    if args.threads == Some(0) {
+        return Err(Error::Usage("--threads must be at least 1".into()));
+    }
+    Ok(audit::RunOptions {
+        threads: args.threads,
+        progress: !args.quiet,
+    })
+}
+
+/// Runs the audit and returns it with the baseline's evaluation (solved separately when
+/// the scenario list does not hold the baseline).
+pub fn audit_network(
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: audit::RunOptions,
+) -> Result<(audit::Audit, solve::Evaluation)> {
+    let audit = audit::run(net, scenarios, opts)?;
+    let baseline = match audit.baseline() {
+        Some(b) => b.clone(),
+        None => solve::evaluate(net, &scenario::Outage::default())?,
+    };
+    Ok((audit, baseline))
+}
+
+fn run_audit(args: &AuditArgs) -> Result<Outcome> {
+    if let Some(x) = args.max_shortfall
+        && !(x.is_finite() && x >= 0.0)
+    {
+        return Err(Error::Usage(format!(
+            "--max-shortfall must be a finite number >= 0, got {x}"
+        )));
+    }
+    let net = load(&args.scenarios.network)?;
+    let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
+    let opts = run_options(&args.scenarios)?;
+    let (audit, baseline) = audit_network(&net, scenarios, opts)?;
+    print!(
+        "{}",
+        report::text::audit_report(&net, &audit, &baseline, args.top)
+    );
+    if let Some(path) = &args.json {
+        let doc = report::json::audit_json(&net, &audit, &baseline, None);
+        write_file(path, &report::json::to_string(&doc))?;
+    }
+    if let Some(limit) = args.max_shortfall {
+        let worst = audit
+            .evaluations
+            .iter()
+            .map(|e| e.shortfall)
+            .fold(0.0, f64::max);
+        if worst > limit {
+            eprintln!(
+                "redoubt: gate failed: worst shortfall {} {} exceeds --max-shortfall {}",
+                report::num(worst),
+                net.unit,
+                report::num(limit)
+            );
+            return Ok(Outcome::GateFailed);
+        }
+    }
+    Ok(Outcome::Ok)
+}
+
+/// Runs one command line.
+pub fn run(cli: Cli) -> Result<Outcome> {
+    match cli.command {
+        Command::Check { network } => {
+            let net = load(&network)?;
+            print!("{}", report::text::check_summary(&net));
+            Ok(Outcome::Ok)
+        }
+        Command::Audit(args) => run_audit(&args),
+    }
+}

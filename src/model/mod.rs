@@ -1,0 +1,6 @@
+//! The network: the file types ([`file`]) and the validated model ([`network`]).
+
+pub mod file;
+pub mod network;
+
+pub use network::{Arc, Demand, Expansion, Link, LinkIdx, Network, RiskGroup, Site, SiteIdx};

@@ -1,0 +1,423 @@
+//! The validated network: what the solver may trust.
+//!
+//! Invariants established by [`Network::from_file`] and relied on everywhere else:
+//! - site, link and demand endpoints are indices into `sites`, and `from != to`;
+//! - every number is finite and `>= 0`; `required <= volume`; `expand_step > 0` when set;
+//! - site ids and link ids are unique; risk groups are sorted by name, each with its
+//!   member links sorted and without repeats;
+//! - `arcs` lists every usable direction: `2 * links` minus one per one-way link, in link
+//!   order, forward direction first.
+
+use std::collections::{BTreeMap, HashMap};
+
+use super::file::{DemandFile, LinkFile, NetworkFile, SiteFile};
+use crate::error::{Error, Result};
+
+/// Index of a site in [`Network::sites`].
+pub type SiteIdx = usize;
+/// Index of a link in [`Network::links`].
+pub type LinkIdx = usize;
+
+/// How processing may be bought at a site.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Expansion {
+    /// Cost of one added unit.
+    pub cost: f64,
+    /// Most units that may be added (`f64::INFINITY` when unlimited).
+    pub max: f64,
+    /// Module size when processing is bought in whole modules.
+    pub step: Option<f64>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Site {
+    pub id: String,
+    /// Processing capacity in traffic units.
+    pub processing: f64,
+    /// `None`: this site cannot be expanded.
+    pub expansion: Option<Expansion>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Link {
+    pub id: String,
+    pub from: SiteIdx,
+    pub to: SiteIdx,
+    /// Capacity of each direction that exists.
+    pub capacity: f64,
+    pub one_way: bool,
+    /// Indices into [`Network::groups`].
+    pub groups: Vec<usize>,
+}
+
+/// One direction of a link: the unit the LP's capacity rows are written for.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Arc {
+    pub link: LinkIdx,
+    pub from: SiteIdx,
+    pub to: SiteIdx,
+    pub capacity: f64,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Demand {
+    /// The file's `id`, or `FROM→TO #N` (N = position in the file, from 1).
+    pub label: String,
+    pub from: SiteIdx,
+    pub to: SiteIdx,
+    pub volume: f64,
+    pub required: f64,
+}
+
+/// A shared-risk link group: failing it fails all its member links.
+#[derive(Debug, Clone, PartialEq)]
+pub struct RiskGroup {
+    pub name: String,
+    pub links: Vec<LinkIdx>,
+}
+
+/// A network whose every reference and number has been checked.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Network {
+    pub name: String,
+    pub unit: String,
+    pub sites: Vec<Site>,
+    pub links: Vec<Link>,
+    pub arcs: Vec<Arc>,
+    pub demands: Vec<Demand>,
+    pub groups: Vec<RiskGroup>,
+    site_index: HashMap<String, SiteIdx>,
+    link_index: HashMap<String, LinkIdx>,
+    group_index: HashMap<String, usize>,
+}
+
+/// Checks that `value` is a finite number `>= 0`, naming `element` and `field` otherwise.
+fn non_negative(element: &str, field: &str, value: f64) -> Result<f64> {
+    if value.is_finite() && value >= 0.0 {
+        Ok(value)
+    } else {
+        Err(Error::Input(format!(
+            "{element}: field `{field}` must be a finite number >= 0, got {value}"
+        )))
+    }
+}
+
+fn site_label(i: usize, s: &SiteFile) -> String {
+    format!("sites[{i}] (id {:?})", s.id)
+}
+
+fn link_label(i: usize, l: &LinkFile) -> String {
+    format!("links[{i}] (id {:?})", l.id)
+}
+
+fn demand_label(i: usize, d: &DemandFile) -> String {
+    match &d.id {
+        Some(id) => format!("demands[{i}] (id {id:?}, {}→{})", d.from, d.to),
+        None => format!("demands[{i}] ({}→{})", d.from, d.to),
+    }
+}
+
+impl Network {
+    /// Parses JSON text into a validated network. Every error names the element, the
+    /// field and the value; nothing here panics, whatever the text holds.
+    pub fn from_json(text: &str) -> Result<Network> {
+        let de = &mut serde_json::Deserializer::from_str(text);
+        let file: NetworkFile = match serde_path_to_error::deserialize(de) {
+            Ok(f) => f,
+            Err(e) => return Err(Error::Input(describe_parse_error(text, &e))),
+        };
+        Network::from_file(file)
+    }
+
+    /// Lowers the file types into a network, checking every invariant listed in the
+    /// module documentation. Linear in the size of the file (hash maps for ids).
+    pub fn from_file(file: NetworkFile) -> Result<Network> {
+        if file.sites.is_empty() {
+            return Err(Error::Input(
+                "field `sites` must list at least one site, got none".into(),
+            ));
+        }
+        let mut sites = Vec::with_capacity(file.sites.len());
+        let mut site_index = HashMap::new();
+        for (i, s) in file.sites.iter().enumerate() {
+            let el = site_label(i, s);
+            if s.id.is_empty() {
+                return Err(Error::Input(format!("{el}: field `id` must not be empty")));
+            }
+            if let Some(prev) = site_index.insert(s.id.clone(), i) {
+                return Err(Error::Input(format!(
+                    "{el}: field `id` value {:?} is already used by sites[{prev}]",
+                    s.id
+                )));
+            }
+            let processing = non_negative(&el, "processing", s.processing.unwrap_or(0.0))?;
+            let max = match s.expand_max {
+                Some(m) => Some(non_negative(&el, "expand_max", m)?),
+                None => None,
+            };
+            let step = match s.expand_step {
+                Some(st) => {
+                    let st = non_negative(&el, "expand_step", st)?;
+                    if st <= 0.0 {
+                        return Err(Error::Input(format!(
+                            "{el}: field `expand_step` must be > 0, got {st}"
+                        )));
+                    }
+                    Some(st)
+                }
+                None => None,
+            };
+            let expansion = match s.expand_cost {
+                Some(c) => Some(Expansion {
+                    cost: non_negative(&el, "expand_cost", c)?,
+                    max: max.unwrap_or(f64::INFINITY),
+                    step,
+                }),
+                None => None,
+            };
+            sites.push(Site {
+                id: s.id.clone(),
+                processing,
+                expansion,
+            });
+        }
+        let lookup = |el: &str, field: &str, id: &str| -> Result<SiteIdx> {
+            site_index.get(id).copied().ok_or_else(|| {
+                Error::Input(format!("{el}: field `{field}` names unknown site {id:?}"))
+            })
+        };
+
+        let mut links = Vec::with_capacity(file.links.len());
+        let mut link_index = HashMap::new();
+        let mut group_members: BTreeMap<String, Vec<LinkIdx>> = BTreeMap::new();
+        for (i, l) in file.links.iter().enumerate() {
+            let el = link_label(i, l);
+            if l.id.is_empty() {
+                return Err(Error::Input(format!("{el}: field `id` must not be empty")));
+            }
+            if let Some(prev) = link_index.insert(l.id.clone(), i) {
+                return Err(Error::Input(format!(
+                    "{el}: field `id` value {:?} is already used by links[{prev}]",
+                    l.id
+                )));
+            }
+            let from = lookup(&el, "from", &l.from)?;
+            let to = lookup(&el, "to", &l.to)?;
+            if from == to {
+                return Err(Error::Input(format!(
+                    "{el}: fields `from` and `to` are the same site {:?}",
+                    l.from
+                )));
+            }
+            let capacity = non_negative(&el, "capacity", l.capacity)?;
+            for g in l.risk_groups.iter().flatten() {
+                if g.is_empty() {
+                    return Err(Error::Input(format!(
+                        "{el}: field `risk_groups` holds an empty group name"
+                    )));
+                }
+                let members = group_members.entry(g.clone()).or_default();
+                if members.last() != Some(&i) {
+                    members.push(i);
+                }
+            }
+            links.push(Link {
+                id: l.id.clone(),
+                from,
+                to,
+                capacity,
+                one_way: l.one_way.unwrap_or(false),
+                groups: Vec::new(),
+            });
+        }
+        let mut groups = Vec::with_capacity(group_members.len());
+        let mut group_index = HashMap::new();
+        for (gi, (name, members)) in group_members.into_iter().enumerate() {
+            for &l in &members {
+                links[l].groups.push(gi);
+            }
+            group_index.insert(name.clone(), gi);
+            groups.push(RiskGroup {
+                name,
+                links: members,
+            });
+        }
+
+        let mut demands = Vec::with_capacity(file.demands.len());
+        for (i, d) in file.demands.iter().enumerate() {
+            let el = demand_label(i, d);
+            let from = lookup(&el, "from", &d.from)?;
+            let to = lookup(&el, "to", &d.to)?;
+            if from == to {
+                return Err(Error::Input(format!(
+                    "{el}: fields `from` and `to` are the same site {:?}",
+                    d.from
+                )));
+            }
+            let volume = non_negative(&el, "volume", d.volume)?;
+            let required = non_negative(&el, "required", d.required.unwrap_or(volume))?;
+            if required > volume {
+                return Err(Error::Input(format!(
+                    "{el}: field `required` value {required} exceeds `volume` {volume}"
+                )));
+            }
+            let label = match &d.id {
+                Some(id) => id.clone(),
+                None => format!("{}→{} #{}", d.from, d.to, i + 1),
+            };
+            demands.push(Demand {
+                label,
+                from,
+                to,
+                volume,
+                required,
+            });
+        }
+
+        let mut arcs = Vec::with_capacity(2 * links.len());
+        for (li, l) in links.iter().enumerate() {
+            arcs.push(Arc {
+                link: li,
+                from: l.from,
+                to: l.to,
+                capacity: l.capacity,
+            });
+            if !l.one_way {
+                arcs.push(Arc {
+                    link: li,
+                    from: l.to,
+                    to: l.from,
+                    capacity: l.capacity,
+                });
+            }
+        }
+
+        Ok(Network {
+            name: file.name.unwrap_or_else(|| "unnamed network".into()),
+            unit: file.unit.unwrap_or_else(|| "units".into()),
+            sites,
+            links,
+            arcs,
+            demands,
+            groups,
+            site_index,
+            link_index,
+            group_index,
+        })
+    }
+
+    pub fn site(&self, id: &str) -> Option<SiteIdx> {
+        self.site_index.get(id).copied()
+    }
+
+    pub fn link(&self, id: &str) -> Option<LinkIdx> {
+        self.link_index.get(id).copied()
+    }
+
+    pub fn group(&self, name: &str) -> Option<usize> {
+        self.group_index.get(name).copied()
+    }
+
+    /// Σ required over all demands.
+    pub fn total_required(&self) -> f64 {
+        self.demands.iter().map(|d| d.required).sum()
+    }
+
+    /// Σ volume over all demands.
+    pub fn total_volume(&self) -> f64 {
+        self.demands.iter().map(|d| d.volume).sum()
+    }
+
+    /// Σ processing over all sites.
+    pub fn total_processing(&self) -> f64 {
+        self.sites.iter().map(|s| s.processing).sum()
+    }
+
+    /// A copy with `add[v]` units of processing added at each site `v`.
+    pub fn with_added_processing(&self, add: &[f64]) -> Network {
+        let mut n = self.clone();
+        for (s, &a) in n.sites.iter_mut().zip(add) {
+            s.processing += a;
+        }
+        n
+    }
+}
+
+/// Turns a serde error into a message that names the element (by index and, where the
+/// file has one, its id), the field and the offending value.
+fn describe_parse_error(
+    text: &str,
+    e: &serde_path_to_error::Error<serde_json::Error>,
+) -> String {
+    let path = e.path().to_string();
+    let inner = e.inner();
+    if inner.is_syntax() || inner.is_eof() || path == "." || path.is_empty() {
+        return format!("not a valid network JSON object: {inner}");
+    }
+    // Name the element by its id when the document is at least well-formed JSON.
+    let mut element = String::new();
+    if let Ok(value) = serde_json::from_str::<serde_json::Value>(text) {
+        let mut segments = path.split('.');
+        if let Some(first) = segments.next()
+            && let Some((list, rest)) = first.split_once('[')
+            && let Ok(idx) = rest.trim_end_matches(']').parse::<usize>()
+            && let Some(id) = value
+                .get(list)
+                .and_then(|l| l.get(idx))
+                .and_then(|el| el.get("id"))
+                .and_then(|v| v.as_str())
+        {
+            element = format!(" (id {id:?})");
+        }
+    }
+    let msg = inner.to_string();
+    // serde_json appends " at line L column C"; keep it, it helps find the value.
+    format!("{path}{element}: {msg}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn err(text: &str) -> String {
+        match Network::from_json(text) {
+            Err(Error::Input(m)) => m,
+            other => panic!("expected an input error, got {other:?}"),
+        }
+    }
+
+    const OK: &str = r#"{"sites":[{"id":"a","processing":5},{"id":"b"}],
+        "links":[{"id":"ab","from":"a","to":"b","capacity":10,"risk_groups":["g"]}],
+        "demands":[{"from":"a","to":"b","volume":4,"required":3}]}"#;
+
+    #[test]
+    fn valid_file_lowers_with_defaults() {
+        let n = Network::from_json(OK).unwrap();
+        assert_eq!(n.sites[1].processing, 0.0);
+        assert_eq!(n.arcs.len(), 2);
+        assert_eq!(n.groups[0].links, vec![0]);
+        assert_eq!(n.demands[0].required, 3.0);
+        assert_eq!(n.unit, "units");
+    }
+
+    #[test]
+    fn errors_name_element_field_and_value() {
+        let m = err(&OK.replace("\"processing\":5", "\"processing\":-5"));
+        assert!(m.contains("sites[0]") && m.contains("processing") && m.contains("-5"), "{m}");
+        let m = err(&OK.replace("\"to\":\"b\",\"capacity\"", "\"to\":\"zz\",\"capacity\""));
+        assert!(m.contains("links[0]") && m.contains("`to`") && m.contains("zz"), "{m}");
+        let m = err(&OK.replace("\"required\":3", "\"required\":7"));
+        assert!(m.contains("demands[0]") && m.contains("required") && m.contains('7'), "{m}");
+        let m = err(&OK.replace("\"capacity\":10", "\"capacity\":\"ten\""));
+        assert!(m.contains("links[0]") && m.contains("capacity") && m.contains("ten"), "{m}");
+        assert!(m.contains("\"ab\""), "{m}");
+        let m = err(&OK.replace("{\"id\":\"b\"}", "{\"id\":\"a\"}"));
+        assert!(m.contains("sites[1]") && m.contains("already used"), "{m}");
+        let m = err(&OK.replace("\"to\":\"b\",\"volume\"", "\"to\":\"a\",\"volume\""));
+        assert!(m.contains("same site"), "{m}");
+        let m = err("[1,2]");
+        assert!(m.contains("invalid type"), "{m}");
+        let m = err("{\"sites\": [");
+        assert!(m.contains("not a valid"), "{m}");
+    }
+}

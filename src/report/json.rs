@@ -1,0 +1,209 @@
+//! The `--json` files. Field names of the contract (`scenarios[].failed`,
+//! `served_required`, `shortfall`, `stranded`, `throughput`) never change; everything else
+//! is added for users. Numbers are rounded with [`super::round9`].
+
+use std::collections::BTreeMap;
+
+use serde::Serialize;
+
+use super::{CAUTION, round9};
+use crate::audit::Audit;
+use crate::model::Network;
+use crate::rank;
+use crate::solve::{Evaluation, Resource};
+
+#[derive(Serialize)]
+pub struct AuditJson {
+    pub network: String,
+    pub unit: String,
+    pub caution: &'static str,
+    pub baseline: ScenarioJson,
+    pub scenarios: Vec<ScenarioJson>,
+    pub criticality: Vec<CriticalityJson>,
+}
+
+#[derive(Serialize)]
+pub struct ScenarioJson {
+    pub failed: Vec<String>,
+    pub served_required: f64,
+    pub shortfall: f64,
+    pub stranded: f64,
+    pub throughput: f64,
+    /// Σ required of the surviving demands.
+    pub required: f64,
+    pub stranded_volume: f64,
+    pub throughput_loss: f64,
+    /// Position in the worst-first ranking, from 1.
+    pub rank: usize,
+    /// Certified upper bound on served_required and the relative gap to it.
+    pub upper_bound: f64,
+    pub certified_gap: f64,
+    pub stranded_demands: Vec<String>,
+    /// Demands short in one optimal allocation (only those with shortfall > 0).
+    pub demand_shortfall: Vec<DemandShortJson>,
+    pub saturated_links: Vec<String>,
+    pub saturated_sites: Vec<String>,
+    pub bottlenecks: Vec<BottleneckJson>,
+    /// Shadow price of each site's processing row: served units per added unit.
+    pub site_prices: BTreeMap<String, f64>,
+    /// Issue-3 closing, present when requested (`null` when the scenario has no shortfall).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub closing: Option<serde_json::Value>,
+}
+
+#[derive(Serialize)]
+pub struct DemandShortJson {
+    pub demand: String,
+    pub from: String,
+    pub to: String,
+    pub required: f64,
+    pub served: f64,
+    pub shortfall: f64,
+}
+
+#[derive(Serialize)]
+pub struct BottleneckJson {
+    pub kind: &'static str,
+    pub id: String,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub from: Option<String>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub to: Option<String>,
+    pub price: f64,
+}
+
+#[derive(Serialize)]
+pub struct CriticalityJson {
+    pub element: String,
+    pub worst_shortfall: f64,
+    pub worst_stranded: f64,
+    pub scenarios_short: usize,
+    pub worst_scenario: Vec<String>,
+}
+
+/// One scenario's JSON object (without `closing`).
+pub fn scenario_json(
+    net: &Network,
+    failed: &[String],
+    e: &Evaluation,
+    baseline: &Evaluation,
+    rank: usize,
+) -> ScenarioJson {
+    ScenarioJson {
+        failed: failed.to_vec(),
+        served_required: round9(e.served_required),
+        shortfall: round9(e.shortfall),
+        stranded: round9(e.stranded),
+        throughput: round9(e.throughput),
+        required: round9(e.surviving_required),
+        stranded_volume: round9(e.stranded_volume),
+        throughput_loss: round9((baseline.throughput - e.throughput).max(0.0)),
+        rank,
+        upper_bound: round9(e.upper_bound),
+        certified_gap: e.certified_gap(),
+        stranded_demands: e
+            .stranded_demands
+            .iter()
+            .map(|&d| net.demands[d].label.clone())
+            .collect(),
+        demand_shortfall: net
+            .demands
+            .iter()
+            .enumerate()
+            .filter(|(d, _)| e.demand_shortfall[*d] > 0.0)
+            .map(|(d, dem)| DemandShortJson {
+                demand: dem.label.clone(),
+                from: net.sites[dem.from].id.clone(),
+                to: net.sites[dem.to].id.clone(),
+                required: round9(dem.required),
+                served: round9(e.demand_flow[d]),
+                shortfall: round9(e.demand_shortfall[d]),
+            })
+            .collect(),
+        saturated_links: e
+            .saturated_links(net)
+            .iter()
+            .map(|&l| net.links[l].id.clone())
+            .collect(),
+        saturated_sites: e
+            .saturated_sites()
+            .iter()
+            .map(|&s| net.sites[s].id.clone())
+            .collect(),
+        bottlenecks: e
+            .bottlenecks
+            .iter()
+            .map(|b| match b.resource {
+                Resource::Arc(a) => BottleneckJson {
+                    kind: "link",
+                    id: net.links[net.arcs[a].link].id.clone(),
+                    from: Some(net.sites[net.arcs[a].from].id.clone()),
+                    to: Some(net.sites[net.arcs[a].to].id.clone()),
+                    price: round9(b.price),
+                },
+                Resource::Site(v) => BottleneckJson {
+                    kind: "site",
+                    id: net.sites[v].id.clone(),
+                    from: None,
+                    to: None,
+                    price: round9(b.price),
+                },
+            })
+            .collect(),
+        site_prices: net
+            .sites
+            .iter()
+            .zip(&e.site_price)
+            .filter_map(|(s, p)| p.map(|p| (s.id.clone(), round9(p))))
+            .collect(),
+        closing: None,
+    }
+}
+
+/// The whole audit document; `closing[i]`, when given, is attached to scenario `i`.
+pub fn audit_json(
+    net: &Network,
+    audit: &Audit,
+    baseline: &Evaluation,
+    closing: Option<&[serde_json::Value]>,
+) -> AuditJson {
+    let order = rank::worst_first(audit);
+    let mut rank_of = vec![0; order.len()];
+    for (r, &i) in order.iter().enumerate() {
+        rank_of[i] = r + 1;
+    }
+    let scenarios = audit
+        .scenarios
+        .iter()
+        .enumerate()
+        .map(|(i, s)| {
+            let mut j = scenario_json(net, &s.failed, audit.eval(i), baseline, rank_of[i]);
+            j.closing = closing.map(|c| c[i].clone());
+            j
+        })
+        .collect();
+    AuditJson {
+        network: net.name.clone(),
+        unit: net.unit.clone(),
+        caution: CAUTION,
+        baseline: scenario_json(net, &[], baseline, baseline, 0),
+        scenarios,
+        criticality: rank::criticality(audit)
+            .into_iter()
+            .map(|c| CriticalityJson {
+                element: c.element.name(net),
+                worst_shortfall: round9(c.worst_shortfall),
+                worst_stranded: round9(c.worst_stranded),
+                scenarios_short: c.scenarios_short,
+                worst_scenario: audit.scenarios[c.worst_scenario].failed.clone(),
+            })
+            .collect(),
+    }
+}
+
+/// Serialises any report document as pretty JSON with a trailing newline.
+pub fn to_string<T: Serialize>(doc: &T) -> String {
+    let mut s = serde_json::to_string_pretty(doc).expect("report types always serialise");
+    s.push('\n');
+    s
+}

@@ -1,0 +1,307 @@
+//! Failure scenarios: which elements fail, what that takes out of the network, and the
+//! enumeration of every scenario up to a depth.
+//!
+//! A scenario is named by its failed elements (`link:ID`, `site:ID`, `group:NAME`). What
+//! the solver sees is its [`Outage`]: the failed sites and the failed links, where a
+//! failed site takes every incident link with it and a failed group every member link.
+//! Scenarios with equal outages share one computation ([`dedup`]) but stay listed under
+//! their own names.
+
+use std::collections::HashMap;
+use std::fmt;
+
+use itertools::Itertools;
+
+use crate::error::{Error, Result};
+use crate::model::{LinkIdx, Network, SiteIdx};
+
+/// One element that can fail.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub enum Element {
+    Link(LinkIdx),
+    Site(SiteIdx),
+    Group(usize),
+}
+
+impl Element {
+    /// The contract name: `link:ID`, `site:ID` or `group:NAME`.
+    pub fn name(&self, net: &Network) -> String {
+        match *self {
+            Element::Link(l) => format!("link:{}", net.links[l].id),
+            Element::Site(s) => format!("site:{}", net.sites[s].id),
+            Element::Group(g) => format!("group:{}", net.groups[g].name),
+        }
+    }
+
+    /// Parses `link:ID`, `site:ID` or `group:NAME` against the network.
+    pub fn parse(text: &str, net: &Network) -> Result<Element> {
+        let (kind, id) = text.split_once(':').ok_or_else(|| {
+            Error::Usage(format!(
+                "failed element {text:?} must be written kind:id with kind link, site or group"
+            ))
+        })?;
+        let found = match kind {
+            "link" => net.link(id).map(Element::Link),
+            "site" => net.site(id).map(Element::Site),
+            "group" => net.group(id).map(Element::Group),
+            _ => {
+                return Err(Error::Usage(format!(
+                    "failed element {text:?}: unknown kind {kind:?} (use link, site or group)"
+                )));
+            }
+        };
+        found.ok_or_else(|| Error::Usage(format!("failed element {text:?}: no {kind} {id:?}")))
+    }
+}
+
+/// Which kinds of element a run fails.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Kinds {
+    pub links: bool,
+    pub sites: bool,
+    pub groups: bool,
+}
+
+impl Kinds {
+    pub const ALL: Kinds = Kinds {
+        links: true,
+        sites: true,
+        groups: true,
+    };
+
+    /// Parses a comma-separated list such as `links,sites,groups`.
+    pub fn parse(text: &str) -> Result<Kinds> {
+        let mut k = Kinds {
+            links: false,
+            sites: false,
+            groups: false,
+        };
+        for part in text.split(',').map(str::trim).filter(|p| !p.is_empty()) {
+            match part {
+                "links" | "link" => k.links = true,
+                "sites" | "site" => k.sites = true,
+                "groups" | "group" => k.groups = true,
+                other => {
+                    return Err(Error::Usage(format!(
+                        "--kinds: unknown kind {other:?} (use links, sites, groups)"
+                    )));
+                }
+            }
+        }
+        if !(k.links || k.sites || k.groups) {
+            return Err(Error::Usage("--kinds: name at least one kind".into()));
+        }
+        Ok(k)
+    }
+}
+
+/// A named failure scenario: its elements sorted by their contract names.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Scenario {
+    pub elements: Vec<Element>,
+    /// Contract names of `elements`, sorted; empty for the baseline.
+    pub failed: Vec<String>,
+}
+
+impl Scenario {
+    /// Builds a scenario from distinct elements; names are sorted lexicographically.
+    pub fn new(net: &Network, elements: &[Element]) -> Scenario {
+        let mut pairs: Vec<(String, Element)> =
+            elements.iter().map(|e| (e.name(net), *e)).collect();
+        pairs.sort();
+        pairs.dedup();
+        Scenario {
+            failed: pairs.iter().map(|p| p.0.clone()).collect(),
+            elements: pairs.into_iter().map(|p| p.1).collect(),
+        }
+    }
+
+    pub fn baseline() -> Scenario {
+        Scenario {
+            elements: Vec::new(),
+            failed: Vec::new(),
+        }
+    }
+
+    pub fn is_baseline(&self) -> bool {
+        self.elements.is_empty()
+    }
+
+    /// What the scenario takes out of the network.
+    pub fn outage(&self, net: &Network) -> Outage {
+        let mut sites = Vec::new();
+        let mut links = Vec::new();
+        for e in &self.elements {
+            match *e {
+                Element::Link(l) => links.push(l),
+                Element::Site(s) => sites.push(s),
+                Element::Group(g) => links.extend(&net.groups[g].links),
+            }
+        }
+        sites.sort_unstable();
+        sites.dedup();
+        for (li, l) in net.links.iter().enumerate() {
+            if sites.binary_search(&l.from).is_ok() || sites.binary_search(&l.to).is_ok() {
+                links.push(li);
+            }
+        }
+        links.sort_unstable();
+        links.dedup();
+        Outage { sites, links }
+    }
+
+    /// `failed` joined for display; `baseline` for the empty scenario.
+    pub fn display_name(&self) -> String {
+        if self.failed.is_empty() {
+            "baseline".into()
+        } else {
+            self.failed.join(" + ")
+        }
+    }
+}
+
+impl fmt::Display for Scenario {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.display_name())
+    }
+}
+
+/// The failed sites and links of a scenario, both sorted and without repeats. A failed
+/// site's incident links are always in `links`: two outages are equal exactly when the
+/// network left standing is the same.
+#[derive(Debug, Clone, PartialEq, Eq, Hash, Default)]
+pub struct Outage {
+    pub sites: Vec<SiteIdx>,
+    pub links: Vec<LinkIdx>,
+}
+
+impl Outage {
+    /// Per-site `true` when the site survives.
+    pub fn site_alive(&self, net: &Network) -> Vec<bool> {
+        let mut alive = vec![true; net.sites.len()];
+        for &s in &self.sites {
+            alive[s] = false;
+        }
+        alive
+    }
+
+    /// Per-link `true` when the link survives.
+    pub fn link_alive(&self, net: &Network) -> Vec<bool> {
+        let mut alive = vec![true; net.links.len()];
+        for &l in &self.links {
+            alive[l] = false;
+        }
+        alive
+    }
+}
+
+/// The candidate elements of the chosen kinds, in file order: links, then sites, then
+/// risk groups.
+pub fn elements(net: &Network, kinds: Kinds) -> Vec<Element> {
+    let mut out = Vec::new();
+    if kinds.links {
+        out.extend((0..net.links.len()).map(Element::Link));
+    }
+    if kinds.sites {
+        out.extend((0..net.sites.len()).map(Element::Site));
+    }
+    if kinds.groups {
+        out.extend((0..net.groups.len()).map(Element::Group));
+    }
+    out
+}
+
+/// Number of scenarios [`enumerate`] yields: 1 + Σ_{k=1..depth} C(n, k).
+pub fn count(n: usize, depth: usize) -> u128 {
+    let mut total: u128 = 1;
+    let mut c: u128 = 1;
+    for k in 1..=depth.min(n) {
+        c = c * (n - k + 1) as u128 / k as u128;
+        total += c;
+    }
+    total
+}
+
+/// The baseline, then every set of 1..=depth distinct elements of the chosen kinds, by
+/// size and then in [`elements`] order. Deterministic; O(count · depth).
+pub fn enumerate(net: &Network, kinds: Kinds, depth: usize) -> Vec<Scenario> {
+    let pool = elements(net, kinds);
+    let mut out = vec![Scenario::baseline()];
+    for k in 1..=depth.min(pool.len()) {
+        for combo in pool.iter().copied().combinations(k) {
+            out.push(Scenario::new(net, &combo));
+        }
+    }
+    out
+}
+
+/// Groups scenarios by outage: returns the distinct outages (in first-seen order) and,
+/// for each scenario, the index of its outage. Linear in the total scenario size.
+pub fn dedup(net: &Network, scenarios: &[Scenario]) -> (Vec<Outage>, Vec<usize>) {
+    let mut index: HashMap<Outage, usize> = HashMap::new();
+    let mut outages = Vec::new();
+    let mut of = Vec::with_capacity(scenarios.len());
+    for s in scenarios {
+        let o = s.outage(net);
+        let next = outages.len();
+        let i = *index.entry(o.clone()).or_insert(next);
+        if i == next {
+            outages.push(o);
+        }
+        of.push(i);
+    }
+    (outages, of)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn net() -> Network {
+        Network::from_json(
+            r#"{"sites":[{"id":"a"},{"id":"b"},{"id":"c"}],
+            "links":[{"id":"ab","from":"a","to":"b","capacity":1,"risk_groups":["g"]},
+                     {"id":"bc","from":"b","to":"c","capacity":1,"risk_groups":["g"]}],
+            "demands":[]}"#,
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn count_matches_enumeration() {
+        let n = net();
+        for depth in 0..4 {
+            let all = enumerate(&n, Kinds::ALL, depth);
+            assert_eq!(all.len() as u128, count(6, depth));
+        }
+    }
+
+    #[test]
+    fn group_outage_equals_member_links() {
+        let n = net();
+        let g = Scenario::new(&n, &[Element::Group(0)]);
+        let l = Scenario::new(&n, &[Element::Link(1), Element::Link(0)]);
+        assert_eq!(g.outage(&n), l.outage(&n));
+        assert_eq!(l.failed, vec!["link:ab", "link:bc"]);
+        let (outages, of) = dedup(&n, &[g, l, Scenario::baseline()]);
+        assert_eq!(outages.len(), 2);
+        assert_eq!(of, vec![0, 0, 1]);
+    }
+
+    #[test]
+    fn site_takes_incident_links() {
+        let n = net();
+        let o = Scenario::new(&n, &[Element::Site(1)]).outage(&n);
+        assert_eq!(o.links, vec![0, 1]);
+        assert_eq!(o.sites, vec![1]);
+    }
+
+    #[test]
+    fn parse_names() {
+        let n = net();
+        assert_eq!(Element::parse("group:g", &n).unwrap(), Element::Group(0));
+        assert!(Element::parse("link:zz", &n).is_err());
+        assert!(Element::parse("ab", &n).is_err());
+        assert!(Kinds::parse("links,bogus").is_err());
+    }
+}
