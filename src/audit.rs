@@ -18,7 +18,7 @@ use crate::scenario::{self, Outage, Scenario};
 use crate::solve::{self, Evaluation};
 
 /// How to run a batch of scenarios.
-#[derive(Debug, Clone, Copy)]
+#[derive(Debug, Clone, Copy, Default)]
 pub struct RunOptions {
     /// Worker threads; `None` uses rayon's default (one per core).
     pub threads: Option<usize>,
@@ -26,14 +26,6 @@ pub struct RunOptions {
     pub progress: bool,
 }
 
-impl Default for RunOptions {
-    fn default() -> Self {
-        RunOptions {
-            threads: None,
-            progress: false,
-        }
-    }
-}
 
 /// The evaluated scenarios.
 #[derive(Debug, Clone)]
@@ -73,9 +65,11 @@ impl Progress {
     pub fn new(len: usize, enabled: bool, what: &str) -> Progress {
         let bar = ProgressBar::with_draw_target(Some(len as u64), ProgressDrawTarget::hidden());
         bar.set_style(
-            ProgressStyle::with_template("{msg} [{bar:30}] {pos}/{len}, {elapsed} elapsed, ETA {eta}")
-                .expect("static template")
-                .progress_chars("=> "),
+            ProgressStyle::with_template(
+                "{msg} [{bar:30}] {pos}/{len}, {elapsed} elapsed, ETA {eta}",
+            )
+            .expect("static template")
+            .progress_chars("=> "),
         );
         bar.set_message(what.to_string());
         Progress {

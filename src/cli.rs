@@ -2,7 +2,7 @@
 
 use std::path::PathBuf;
 
-use clap::{Args, Parser, Subcommand};
+use clap::{Args, Parser, Subcommand, ValueEnum};
 
 /// Audit processed throughput under failures: route every demand, process it once at a
 /// site on its walk, and find the worst failure scenarios and what closes their gaps.
@@ -15,6 +15,8 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 pub enum Command {
+    /// One least-cost processing expansion that closes every scenario's closable gap.
+    Plan(PlanArgs),
     /// Validate a network file and print a summary.
     Check {
         /// The network file (JSON).
@@ -59,5 +61,33 @@ pub struct AuditArgs {
     /// Gate: exit 1 when any scenario's shortfall exceeds this many units.
     #[arg(long, value_name = "X")]
     pub max_shortfall: Option<f64>,
+    /// For each scenario with a shortfall, the cheapest processing expansion that closes it.
+    #[arg(long)]
+    pub close: bool,
 }
 
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum Objective {
+    /// Maximise the worst scenario's served fraction of required demand.
+    Worst,
+    /// Minimise the total shortfall over the scenarios.
+    Total,
+}
+
+#[derive(Debug, Args)]
+pub struct PlanArgs {
+    #[command(flatten)]
+    pub scenarios: ScenarioArgs,
+    /// Write the plan and per-scenario results to this JSON file.
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<PathBuf>,
+    /// Spend at most this much instead of closing every gap.
+    #[arg(long, value_name = "B")]
+    pub budget: Option<f64>,
+    /// What a budgeted plan optimises.
+    #[arg(long, value_enum, default_value_t = Objective::Worst, requires = "budget")]
+    pub objective: Objective,
+    /// How many scenarios the tables show.
+    #[arg(long, default_value_t = 15)]
+    pub top: usize,
+}

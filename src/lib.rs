@@ -8,6 +8,7 @@
 pub mod audit;
 pub mod cli;
 pub mod error;
+pub mod expand;
 pub mod model;
 pub mod rank;
 pub mod report;
@@ -16,7 +17,7 @@ pub mod solve;
 
 use std::path::Path;
 
-use cli::{AuditArgs, Cli, Command, ScenarioArgs};
+use cli::{AuditArgs, Cli, Command, Objective, PlanArgs, ScenarioArgs};
 use error::{Error, Result};
 use model::Network;
 use scenario::{Element, Kinds, Scenario};
@@ -132,8 +133,34 @@ fn run_audit(args: &AuditArgs) -> Result<Outcome> {
         "{}",
         report::text::audit_report(&net, &audit, &baseline, args.top)
     );
+    print!("{}", report::text::relief_report(&net, &audit, args.top));
+    let closing_json = if args.close {
+        let cands = expand::Candidates::of(&net);
+        let closings = audit::par_map(
+            &(0..audit.outages.len()).collect::<Vec<_>>(),
+            opts,
+            "closing",
+            |&k| expand::close(&net, &audit.outages[k], &audit.evaluations[k], &cands),
+        )?;
+        print!(
+            "{}",
+            report::text::closing_report(&net, &audit, &closings, cands.default_costs, args.top)
+        );
+        Some(
+            audit
+                .outage_of
+                .iter()
+                .map(|&k| {
+                    report::json::closing_json(&net, closings[k].as_ref(), cands.default_costs)
+                })
+                .collect::<Vec<_>>(),
+        )
+    } else {
+        None
+    };
+    print!("{}", report::text::caution());
     if let Some(path) = &args.json {
-        let doc = report::json::audit_json(&net, &audit, &baseline, None);
+        let doc = report::json::audit_json(&net, &audit, &baseline, closing_json.as_deref());
         write_file(path, &report::json::to_string(&doc))?;
     }
     if let Some(limit) = args.max_shortfall {
@@ -155,6 +182,36 @@ fn run_audit(args: &AuditArgs) -> Result<Outcome> {
     Ok(Outcome::Ok)
 }
 
+fn run_plan(args: &PlanArgs) -> Result<Outcome> {
+    let goal = match args.budget {
+        None => expand::Goal::CloseAll,
+        Some(b) if !(b.is_finite() && b >= 0.0) => {
+            return Err(Error::Usage(format!(
+                "--budget must be a finite number >= 0, got {b}"
+            )));
+        }
+        Some(b) => match args.objective {
+            Objective::Worst => expand::Goal::WorstWithin(b),
+            Objective::Total => expand::Goal::TotalWithin(b),
+        },
+    };
+    let net = load(&args.scenarios.network)?;
+    let scenarios = scenarios_for(&net, &args.scenarios, None)?;
+    let opts = run_options(&args.scenarios)?;
+    let audit = audit::run(&net, scenarios, opts)?;
+    let plan = expand::plan(&net, &audit, goal, opts)?;
+    let default_costs = expand::Candidates::of(&net).default_costs;
+    print!(
+        "{}",
+        report::text::plan_report(&net, &audit, &plan, default_costs, args.top)
+    );
+    if let Some(path) = &args.json {
+        let doc = report::json::plan_json(&net, &audit, &plan, default_costs);
+        write_file(path, &report::json::to_string(&doc))?;
+    }
+    Ok(Outcome::Ok)
+}
+
 /// Runs one command line.
 pub fn run(cli: Cli) -> Result<Outcome> {
     match cli.command {
@@ -164,5 +221,6 @@ pub fn run(cli: Cli) -> Result<Outcome> {
             Ok(Outcome::Ok)
         }
         Command::Audit(args) => run_audit(&args),
+        Command::Plan(args) => run_plan(&args),
     }
 }

@@ -345,10 +345,7 @@ impl Network {
 
 /// Turns a serde error into a message that names the element (by index and, where the
 /// file has one, its id), the field and the offending value.
-fn describe_parse_error(
-    text: &str,
-    e: &serde_path_to_error::Error<serde_json::Error>,
-) -> String {
+fn describe_parse_error(text: &str, e: &serde_path_to_error::Error<serde_json::Error>) -> String {
     let path = e.path().to_string();
     let inner = e.inner();
     if inner.is_syntax() || inner.is_eof() || path == "." || path.is_empty() {
@@ -403,13 +400,25 @@ mod tests {
     #[test]
     fn errors_name_element_field_and_value() {
         let m = err(&OK.replace("\"processing\":5", "\"processing\":-5"));
-        assert!(m.contains("sites[0]") && m.contains("processing") && m.contains("-5"), "{m}");
+        assert!(
+            m.contains("sites[0]") && m.contains("processing") && m.contains("-5"),
+            "{m}"
+        );
         let m = err(&OK.replace("\"to\":\"b\",\"capacity\"", "\"to\":\"zz\",\"capacity\""));
-        assert!(m.contains("links[0]") && m.contains("`to`") && m.contains("zz"), "{m}");
+        assert!(
+            m.contains("links[0]") && m.contains("`to`") && m.contains("zz"),
+            "{m}"
+        );
         let m = err(&OK.replace("\"required\":3", "\"required\":7"));
-        assert!(m.contains("demands[0]") && m.contains("required") && m.contains('7'), "{m}");
+        assert!(
+            m.contains("demands[0]") && m.contains("required") && m.contains('7'),
+            "{m}"
+        );
         let m = err(&OK.replace("\"capacity\":10", "\"capacity\":\"ten\""));
-        assert!(m.contains("links[0]") && m.contains("capacity") && m.contains("ten"), "{m}");
+        assert!(
+            m.contains("links[0]") && m.contains("capacity") && m.contains("ten"),
+            "{m}"
+        );
         assert!(m.contains("\"ab\""), "{m}");
         let m = err(&OK.replace("{\"id\":\"b\"}", "{\"id\":\"a\"}"));
         assert!(m.contains("sites[1]") && m.contains("already used"), "{m}");

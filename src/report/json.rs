@@ -44,6 +44,8 @@ pub struct ScenarioJson {
     pub saturated_links: Vec<String>,
     pub saturated_sites: Vec<String>,
     pub bottlenecks: Vec<BottleneckJson>,
+    /// Surviving demands no walk through a processing site can serve.
+    pub cut_off_demands: Vec<String>,
     /// Shadow price of each site's processing row: served units per added unit.
     pub site_prices: BTreeMap<String, f64>,
     /// Issue-3 closing, present when requested (`null` when the scenario has no shortfall).
@@ -150,6 +152,11 @@ pub fn scenario_json(
                 },
             })
             .collect(),
+        cut_off_demands: e
+            .cut_off
+            .iter()
+            .map(|&d| net.demands[d].label.clone())
+            .collect(),
         site_prices: net
             .sites
             .iter()
@@ -206,4 +213,142 @@ pub fn to_string<T: Serialize>(doc: &T) -> String {
     let mut s = serde_json::to_string_pretty(doc).expect("report types always serialise");
     s.push('\n');
     s
+}
+
+/// The `closing` object of one scenario: `{"cost","add","not_closable"}` plus details.
+pub fn closing_json(
+    net: &Network,
+    c: Option<&crate::expand::Closing>,
+    default_costs: bool,
+) -> serde_json::Value {
+    match c {
+        None => serde_json::Value::Null,
+        Some(c) => serde_json::json!({
+            "cost": round9(c.cost),
+            "add": additions_map(net, &c.add),
+            "not_closable": round9(c.not_closable),
+            "best_served_required": round9(c.best),
+            "binding_links": c.binding_links.iter().map(|&l| net.links[l].id.clone()).collect::<Vec<_>>(),
+            "dual_bound": round9(c.dual_bound),
+            "default_costs": default_costs,
+        }),
+    }
+}
+
+fn additions_map(net: &Network, add: &[f64]) -> BTreeMap<String, f64> {
+    add.iter()
+        .enumerate()
+        .filter(|(_, a)| **a > 0.0)
+        .map(|(v, a)| (net.sites[v].id.clone(), round9(*a)))
+        .collect()
+}
+
+#[derive(Serialize)]
+pub struct PlanJson {
+    pub network: String,
+    pub unit: String,
+    pub caution: &'static str,
+    pub goal: String,
+    pub default_costs: bool,
+    pub plan: PlanBody,
+    pub rounds: Vec<RoundJson>,
+    pub worst_fraction_after: f64,
+    pub scenarios: Vec<PlanScenarioJson>,
+}
+
+#[derive(Serialize)]
+pub struct PlanBody {
+    pub cost: f64,
+    pub add: BTreeMap<String, f64>,
+    /// Per site: the scenarios whose processing there binds in the final master.
+    pub drivers: BTreeMap<String, Vec<Vec<String>>>,
+}
+
+#[derive(Serialize)]
+pub struct RoundJson {
+    pub active: usize,
+    pub objective: f64,
+    pub violated: usize,
+}
+
+#[derive(Serialize)]
+pub struct PlanScenarioJson {
+    pub failed: Vec<String>,
+    pub shortfall_before: f64,
+    pub shortfall_after: f64,
+    pub not_closable: f64,
+    pub served_required_after: f64,
+    pub best_served_required: f64,
+}
+
+/// The `plan --json` document.
+pub fn plan_json(
+    net: &Network,
+    audit: &Audit,
+    plan: &crate::expand::Plan,
+    default_costs: bool,
+) -> PlanJson {
+    use crate::expand::Goal;
+    let first_scenario = |k: usize| -> Vec<String> {
+        let i = audit
+            .outage_of
+            .iter()
+            .position(|&o| o == k)
+            .expect("every outage has a scenario");
+        audit.scenarios[i].failed.clone()
+    };
+    PlanJson {
+        network: net.name.clone(),
+        unit: net.unit.clone(),
+        caution: CAUTION,
+        goal: match plan.goal {
+            Goal::CloseAll => "close-all".into(),
+            Goal::WorstWithin(b) => format!("worst within budget {b}"),
+            Goal::TotalWithin(b) => format!("total within budget {b}"),
+        },
+        default_costs,
+        plan: PlanBody {
+            cost: round9(plan.cost),
+            add: additions_map(net, &plan.add),
+            drivers: plan
+                .drivers
+                .iter()
+                .enumerate()
+                .filter(|(v, d)| plan.add[*v] > 0.0 && !d.is_empty())
+                .map(|(v, d)| {
+                    (
+                        net.sites[v].id.clone(),
+                        d.iter().map(|(k, _)| first_scenario(*k)).collect(),
+                    )
+                })
+                .collect(),
+        },
+        rounds: plan
+            .rounds
+            .iter()
+            .map(|r| RoundJson {
+                active: r.active,
+                objective: round9(r.objective),
+                violated: r.violated,
+            })
+            .collect(),
+        worst_fraction_after: round9(plan.worst_fraction),
+        scenarios: audit
+            .scenarios
+            .iter()
+            .enumerate()
+            .map(|(i, s)| {
+                let k = audit.outage_of[i];
+                let before = &audit.evaluations[k];
+                PlanScenarioJson {
+                    failed: s.failed.clone(),
+                    shortfall_before: round9(before.shortfall),
+                    shortfall_after: round9(plan.after[k].shortfall),
+                    not_closable: round9((before.surviving_required - plan.best[k]).max(0.0)),
+                    served_required_after: round9(plan.after[k].served_required),
+                    best_served_required: round9(plan.best[k]),
+                }
+            })
+            .collect(),
+    }
 }

@@ -12,7 +12,11 @@ operator's own engineering review and change procedures.";
 /// A number for people: at most three decimals, trailing zeros trimmed, `-0` shown as `0`.
 pub fn num(x: f64) -> String {
     if !x.is_finite() {
-        return if x > 0.0 { "unlimited".into() } else { x.to_string() };
+        return if x > 0.0 {
+            "unlimited".into()
+        } else {
+            x.to_string()
+        };
     }
     let s = format!("{:.3}", x);
     let s = s.trim_end_matches('0').trim_end_matches('.');

@@ -14,7 +14,7 @@ fn table(header: &[&str]) -> Table {
     let mut t = Table::new();
     t.load_style(UTF8_FULL_CONDENSED)
         .set_content_arrangement(ContentArrangement::Dynamic)
-        .set_header(header.iter().map(|h| Cell::new(h)));
+        .set_header(header.iter().map(Cell::new));
     t
 }
 
@@ -114,9 +114,16 @@ pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
     if e.shortfall <= 0.0 {
         return "—".into();
     }
-    match e.bottlenecks.first() {
-        None => "no route".into(),
+    let cut: f64 = e.cut_off.iter().map(|&d| net.demands[d].required).sum();
+    match e.bottlenecks.iter().find(|b| b.price > 0.0) {
+        Some(b) if cut < e.shortfall / 2.0 => resource_name(net, b.resource),
+        _ if cut > 0.0 => format!(
+            "no path: {} demand{} cut off",
+            e.cut_off.len(),
+            if e.cut_off.len() == 1 { "" } else { "s" }
+        ),
         Some(b) => resource_name(net, b.resource),
+        None => "—".into(),
     }
 }
 
@@ -134,7 +141,8 @@ pub fn resource_name(net: &Network, r: Resource) -> String {
     }
 }
 
-/// The audit report: header, worst scenarios, element criticality and the caution.
+/// The audit report: header, worst scenarios, element criticality (the caller ends the
+/// report with [`caution`]).
 pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: usize) -> String {
     let u = &net.unit;
     let mut out = String::new();
@@ -230,6 +238,283 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         "\nEvery outage solved to optimality; largest certified gap between the allocation and \
          its dual bound: {worst_gap:.1e} (relative)."
     );
+    out
+}
+
+/// The caution line every report ends with.
+pub fn caution() -> String {
+    format!("{CAUTION}\n")
+}
+
+/// `site +units` for the largest additions of an expansion, at most `k` of them.
+pub fn additions(net: &Network, add: &[f64], k: usize) -> String {
+    let mut v: Vec<(usize, f64)> = add
+        .iter()
+        .enumerate()
+        .filter(|(_, a)| **a > 0.0)
+        .map(|(i, a)| (i, *a))
+        .collect();
+    v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    let mut parts: Vec<String> = v
+        .iter()
+        .take(k)
+        .map(|(i, a)| format!("{} +{}", net.sites[*i].id, num(*a)))
+        .collect();
+    if v.len() > k {
+        parts.push(format!("(+{} more)", v.len() - k));
+    }
+    if parts.is_empty() {
+        "—".into()
+    } else {
+        parts.join(", ")
+    }
+}
+
+fn link_list(net: &Network, links: &[usize], k: usize) -> String {
+    let mut parts: Vec<String> = links
+        .iter()
+        .take(k)
+        .map(|&l| net.links[l].id.clone())
+        .collect();
+    if links.len() > k {
+        parts.push(format!("(+{} more)", links.len() - k));
+    }
+    if parts.is_empty() {
+        "—".into()
+    } else {
+        parts.join(", ")
+    }
+}
+
+/// The `--close` section: per scenario with a shortfall, the cheapest expansion.
+pub fn closing_report(
+    net: &Network,
+    audit: &Audit,
+    closings: &[Option<crate::expand::Closing>],
+    default_costs: bool,
+    top: usize,
+) -> String {
+    let u = &net.unit;
+    let mut out = String::new();
+    let order: Vec<usize> = rank::worst_first(audit)
+        .into_iter()
+        .filter(|&i| closings[audit.outage_of[i]].is_some())
+        .collect();
+    let _ = writeln!(
+        out,
+        "\nClosing the gaps: cheapest added processing per scenario ({} with a shortfall){}",
+        order.len(),
+        if default_costs {
+            ". No site has expand_cost: every site is a candidate at cost 1 per unit."
+        } else {
+            "."
+        }
+    );
+    if order.is_empty() {
+        return out;
+    }
+    let mut t = table(&[
+        "failed",
+        &format!("shortfall ({u})"),
+        "cost",
+        "add at",
+        &format!("not closable ({u})"),
+        "what limits the rest",
+    ]);
+    for &i in order.iter().take(top) {
+        let c = closings[audit.outage_of[i]].as_ref().expect("filtered");
+        t.add_row(vec![
+            Cell::new(audit.scenarios[i].display_name()),
+            Cell::new(num(audit.eval(i).shortfall)),
+            Cell::new(num(c.cost)),
+            Cell::new(additions(net, &c.add, 3)),
+            Cell::new(num(c.not_closable)),
+            Cell::new(if c.not_closable <= 0.0 {
+                "—".into()
+            } else if c.binding_links.is_empty() {
+                match audit.eval(i).cut_off.len() {
+                    0 => "expansion limits (expand_max, candidate sites)".into(),
+                    1 => "no path for 1 demand".into(),
+                    n => format!("no path for {n} demands"),
+                }
+            } else {
+                link_list(net, &c.binding_links, 3)
+            }),
+        ]);
+    }
+    right(&mut t, &[1, 2, 4]);
+    let _ = writeln!(out, "{t}");
+    out
+}
+
+/// "Where one more unit helps": sites whose added unit relieves the most scenarios.
+pub fn relief_report(net: &Network, audit: &Audit, top: usize) -> String {
+    let rows = crate::expand::relief(audit, net.sites.len());
+    let mut out = String::new();
+    if rows.is_empty() {
+        return out;
+    }
+    let mut t = table(&[
+        "site",
+        "scenarios helped",
+        &format!("most served per added unit ({})", net.unit),
+    ]);
+    for (v, count, price) in rows.iter().take(top) {
+        t.add_row(vec![
+            Cell::new(&net.sites[*v].id),
+            Cell::new(count),
+            Cell::new(num(*price)),
+        ]);
+    }
+    right(&mut t, &[1, 2]);
+    let _ = writeln!(
+        out,
+        "\nWhere one more unit of processing helps (shadow prices of processing, over the \
+         outages with a shortfall):\n{t}"
+    );
+    out
+}
+
+/// The `plan` report: the purchase, the rounds, the drivers, and what remains.
+pub fn plan_report(
+    net: &Network,
+    audit: &Audit,
+    plan: &crate::expand::Plan,
+    default_costs: bool,
+    top: usize,
+) -> String {
+    use crate::expand::Goal;
+    let u = &net.unit;
+    let mut out = String::new();
+    let goal = match plan.goal {
+        Goal::CloseAll => "least cost with which every scenario reaches its best reachable \
+                           served demand"
+            .to_string(),
+        Goal::WorstWithin(b) => format!(
+            "within budget {}, the highest worst-case served fraction of required",
+            num(b)
+        ),
+        Goal::TotalWithin(b) => {
+            format!(
+                "within budget {}, the least total shortfall over the scenarios",
+                num(b)
+            )
+        }
+    };
+    let _ = writeln!(
+        out,
+        "{} — purchase plan over {} scenarios ({} distinct outages): {goal}.",
+        net.name,
+        audit.scenarios.len(),
+        audit.outages.len()
+    );
+    if default_costs {
+        let _ = writeln!(
+            out,
+            "No site has expand_cost: every site is a candidate at cost 1 per unit."
+        );
+    }
+    let mut t = table(&["site", &format!("add ({u})"), "cost", "driven by"]);
+    for (v, a) in plan.add.iter().enumerate() {
+        if *a <= 0.0 {
+            continue;
+        }
+        let cost = a * net.sites[v].expansion.as_ref().map_or(1.0, |e| e.cost);
+        let drivers: Vec<String> = plan.drivers[v]
+            .iter()
+            .take(3)
+            .map(|(k, _)| {
+                let i = audit
+                    .outage_of
+                    .iter()
+                    .position(|o| o == k)
+                    .expect("every outage has a scenario");
+                audit.scenarios[i].display_name()
+            })
+            .collect();
+        t.add_row(vec![
+            Cell::new(&net.sites[v].id),
+            Cell::new(num(*a)),
+            Cell::new(num(cost)),
+            Cell::new(if drivers.is_empty() {
+                "—".into()
+            } else {
+                drivers.join("; ")
+            }),
+        ]);
+    }
+    right(&mut t, &[1, 2]);
+    if plan.add.iter().all(|a| *a <= 0.0) {
+        let _ = writeln!(
+            out,
+            "\nNo purchase: added processing would not serve more in any scenario."
+        );
+    } else {
+        let _ = writeln!(out, "\nBuy (total cost {}):\n{t}", num(plan.cost));
+    }
+    let rounds: Vec<String> = plan
+        .rounds
+        .iter()
+        .map(|r| format!("{} in master → {} violated", r.active, r.violated))
+        .collect();
+    let _ = writeln!(
+        out,
+        "Constraint generation: {} round{} ({}); every scenario re-solved with the plan applied.",
+        plan.rounds.len(),
+        if plan.rounds.len() == 1 { "" } else { "s" },
+        rounds.join("; ")
+    );
+    let mut order: Vec<usize> = (0..audit.scenarios.len()).collect();
+    let after = |i: usize| plan.after[audit.outage_of[i]].shortfall;
+    order.sort_by(|&a, &b| {
+        after(b)
+            .total_cmp(&after(a))
+            .then(audit.eval(b).shortfall.total_cmp(&audit.eval(a).shortfall))
+            .then(audit.scenarios[a].failed.cmp(&audit.scenarios[b].failed))
+    });
+    let mut s = table(&[
+        "failed",
+        &format!("shortfall before ({u})"),
+        &format!("after ({u})"),
+        &format!("not closable ({u})"),
+    ]);
+    let mut shown = 0;
+    for &i in &order {
+        if shown == top || (audit.eval(i).shortfall <= 0.0 && after(i) <= 0.0) {
+            continue;
+        }
+        shown += 1;
+        let k = audit.outage_of[i];
+        s.add_row(vec![
+            Cell::new(audit.scenarios[i].display_name()),
+            Cell::new(num(audit.eval(i).shortfall)),
+            Cell::new(num(plan.after[k].shortfall)),
+            Cell::new(num((audit.evaluations[k].surviving_required
+                - plan.best[k])
+                .max(0.0))),
+        ]);
+    }
+    right(&mut s, &[1, 2, 3]);
+    if shown > 0 {
+        let _ = writeln!(
+            out,
+            "\nScenarios with a shortfall, before and after the plan (top {shown}):\n{s}"
+        );
+        let left: f64 = order.iter().map(|&i| after(i)).fold(0.0, f64::max);
+        let _ = writeln!(
+            out,
+            "Worst shortfall after the plan: {} {u}; what remains is limited by links or \
+             connectivity, not by processing{}.",
+            num(left),
+            if matches!(plan.goal, Goal::CloseAll) {
+                ""
+            } else {
+                " or by the budget"
+            }
+        );
+    } else {
+        let _ = writeln!(out, "\nNo scenario has a shortfall.");
+    }
     let _ = writeln!(out, "{CAUTION}");
     out
 }

@@ -43,6 +43,8 @@ pub struct Lp {
 pub struct LpSolution {
     pub x: Vec<f64>,
     pub duals: Vec<f64>,
+    /// Per variable: shadow price of its finite upper bound (0 when unbounded).
+    pub upper_duals: Vec<f64>,
     pub objective: f64,
 }
 
@@ -71,6 +73,26 @@ impl Lp {
 
     pub fn num_vars(&self) -> usize {
         self.lower.len()
+    }
+
+    /// The dual objective of a solution: Σ rhs · shadow price over rows and finite upper
+    /// bounds. For an optimal primal–dual pair it equals the primal objective (strong
+    /// duality); all lower bounds are assumed 0, as in every model of this crate.
+    pub fn dual_objective(&self, sol: &LpSolution) -> f64 {
+        let rows: f64 = self
+            .rows
+            .iter()
+            .zip(&sol.duals)
+            .map(|(r, y)| r.rhs * y)
+            .sum();
+        let bounds: f64 = self
+            .upper
+            .iter()
+            .zip(&sol.upper_duals)
+            .filter(|(u, _)| u.is_finite())
+            .map(|(u, y)| u * y)
+            .sum();
+        rows + bounds
     }
 
     /// The largest violation of any row or bound by `x`, each scaled by `max(1, |rhs|)`.
@@ -118,9 +140,6 @@ pub fn solve(lp: &Lp) -> Result<LpSolution> {
             if lp.lower[i].is_finite() {
                 def = def.min(lp.lower[i]);
             }
-            if lp.upper[i].is_finite() {
-                def = def.max(lp.upper[i]);
-            }
             pv.add(def)
         })
         .collect();
@@ -157,20 +176,38 @@ pub fn solve(lp: &Lp) -> Result<LpSolution> {
             model.add_constraint(c)
         })
         .collect();
+    // Finite upper bounds as explicit rows, so that their shadow prices are known.
+    let bound_refs: Vec<Option<ConstraintReference>> = (0..lp.num_vars())
+        .map(|i| {
+            lp.upper[i]
+                .is_finite()
+                .then(|| model.add_constraint(Expression::from(vars[i]).leq(lp.upper[i])))
+        })
+        .collect();
     let mut sol = model
         .solve()
         .map_err(|e| Error::Solver(format!("clarabel: {e}")))?;
     let x: Vec<f64> = vars.iter().map(|v| sol.value(*v)).collect();
-    let duals = {
+    let (duals, upper_duals) = {
         let d = sol.compute_dual();
-        refs.iter()
+        let rows = refs
+            .iter()
             .map(|r| good_lp::DualValues::dual(&d, r.clone()))
-            .collect()
+            .collect();
+        let bounds = bound_refs
+            .iter()
+            .map(|r| {
+                r.as_ref()
+                    .map_or(0.0, |r| good_lp::DualValues::dual(&d, r.clone()))
+            })
+            .collect();
+        (rows, bounds)
     };
     let objective = lp.objective.iter().zip(&x).map(|(c, v)| c * v).sum();
     Ok(LpSolution {
         x,
         duals,
+        upper_duals,
         objective,
     })
 }
@@ -179,15 +216,15 @@ pub fn solve(lp: &Lp) -> Result<LpSolution> {
 mod tests {
     use super::*;
 
-    /// max 3x + 2y, x + y <= 4, x + 3y <= 6, x <= 3: optimum x = 3, y = 1, value 11
-    /// (a textbook two-variable LP solved by hand: vertices (0,0), (3,0), (3,1), (0,2)).
+    /// max 3x + 2y, x + y <= 4, x + 3y <= 9, x <= 3: optimum x = 3, y = 1, value 11 (a
+    /// two-variable LP solved by hand: the vertices are (0,0), (3,0), (3,1), (1.5,2.5), (0,3)).
     #[test]
     fn small_lp_and_duals() {
         let mut lp = Lp::new(true);
         let x = lp.add_var(0.0, 3.0, 3.0);
         let y = lp.add_var(0.0, f64::INFINITY, 2.0);
         let r1 = lp.add_row(vec![(x, 1.0), (y, 1.0)], Sense::Le, 4.0);
-        let r2 = lp.add_row(vec![(x, 1.0), (y, 3.0)], Sense::Le, 6.0);
+        let r2 = lp.add_row(vec![(x, 1.0), (y, 3.0)], Sense::Le, 9.0);
         let s = solve(&lp).unwrap();
         assert!((s.objective - 11.0).abs() < 1e-6, "{}", s.objective);
         assert!((s.x[x] - 3.0).abs() < 1e-6 && (s.x[y] - 1.0).abs() < 1e-6);
@@ -195,6 +232,8 @@ mod tests {
         assert!((s.duals[r1] - 2.0).abs() < 1e-6, "{:?}", s.duals);
         assert!(s.duals[r2].abs() < 1e-6, "{:?}", s.duals);
         assert!(lp.max_violation(&s.x) < 1e-7);
+        // Strong duality: 4·2 + 9·0 + 3·1 (the bound x <= 3) = 11.
+        assert!((lp.dual_objective(&s) - 11.0).abs() < 1e-6);
     }
 
     #[test]

@@ -71,6 +71,9 @@ pub struct Evaluation {
     pub upper_bound: f64,
     /// Largest relative row violation of the returned allocation.
     pub max_violation: f64,
+    /// Surviving demands with required > 0 that no walk through a processing site can
+    /// serve at all (cut off by the outage).
+    pub cut_off: Vec<usize>,
 }
 
 impl Evaluation {
@@ -131,6 +134,7 @@ pub fn solve_flow(
         lp::LpSolution {
             x: Vec::new(),
             duals: vec![0.0; model.rows.len()],
+            upper_duals: Vec::new(),
             objective: 0.0,
         }
     } else {
@@ -213,8 +217,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         }
     }
     for (v, site) in net.sites.iter().enumerate() {
-        if index.site_row[v].is_some() && site_load[v] >= site.processing * (1.0 - 1e-6) - 1e-9
-        {
+        if index.site_row[v].is_some() && site_load[v] >= site.processing * (1.0 - 1e-6) - 1e-9 {
             bottlenecks.push(Bottleneck {
                 resource: Resource::Site(v),
                 price: site_price[v].unwrap_or(0.0),
@@ -248,13 +251,25 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
 
     let throughput = if needs_volume_lp {
         let (_, vindex, vsol) = solve_flow(net, outage, Cap::Volume)?;
-        let t = vindex.served(&vsol.x).clamp(served_required, surviving_volume);
+        let t = vindex
+            .served(&vsol.x)
+            .clamp(served_required, surviving_volume);
         snap(t, surviving_volume, surviving_volume.max(1.0))
     } else {
         served_required
     };
 
+    let cut_off: Vec<usize> = (0..net.demands.len())
+        .filter(|&d| {
+            let dem = &net.demands[d];
+            site_alive[dem.from]
+                && site_alive[dem.to]
+                && dem.required > 0.0
+                && index.demand_var[d].is_none()
+        })
+        .collect();
     Ok(Evaluation {
+        cut_off,
         served_required,
         shortfall,
         stranded,
@@ -298,7 +313,11 @@ mod tests {
             "demands":[{"from":"s","to":"t","volume":50}]}"#,
         );
         let e = evaluate(&n, &Outage::default()).unwrap();
-        assert!((e.served_required - 5.0).abs() < 1e-6, "{}", e.served_required);
+        assert!(
+            (e.served_required - 5.0).abs() < 1e-6,
+            "{}",
+            e.served_required
+        );
         // With processing at the origin, the arc is crossed once and carries all of it.
         let n2 = net(
             r#"{"sites":[{"id":"s","processing":100},{"id":"m"},{"id":"t"},{"id":"p"}],
@@ -315,11 +334,9 @@ mod tests {
 
     #[test]
     fn shadow_price_of_binding_processing() {
-        let n = net(
-            r#"{"sites":[{"id":"a","processing":3},{"id":"b"}],
+        let n = net(r#"{"sites":[{"id":"a","processing":3},{"id":"b"}],
             "links":[{"id":"ab","from":"a","to":"b","capacity":100}],
-            "demands":[{"from":"a","to":"b","volume":10,"required":8}]}"#,
-        );
+            "demands":[{"from":"a","to":"b","volume":10,"required":8}]}"#);
         let e = evaluate(&n, &Outage::default()).unwrap();
         assert!((e.served_required - 3.0).abs() < 1e-6);
         assert!((e.shortfall - 5.0).abs() < 1e-6);
