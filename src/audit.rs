@@ -26,7 +26,6 @@ pub struct RunOptions {
     pub progress: bool,
 }
 
-
 /// The evaluated scenarios.
 #[derive(Debug, Clone)]
 pub struct Audit {

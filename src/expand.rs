@@ -247,6 +247,20 @@ pub struct Plan {
     pub drivers: Vec<Vec<(usize, f64)>>,
     /// The worst served fraction of required after the plan.
     pub worst_fraction: f64,
+    /// When some site buys in modules (`expand_step`): the LP plan before rounding, its
+    /// cost (a lower bound on any module plan), and the gap of the module plan to it.
+    pub modules: Option<ModuleRounding>,
+}
+
+/// How a continuous plan became a plan in whole modules.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ModuleRounding {
+    pub lp_add: Vec<f64>,
+    pub lp_cost: f64,
+    /// Module plan cost − LP cost (≥ 0).
+    pub gap: f64,
+    /// Modules removed by the repair pass after rounding up.
+    pub repaired: usize,
 }
 
 /// Outages added to the master at most per round (the most violated first).
@@ -362,7 +376,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         }
         active.extend(violated.iter().take(ADD_PER_ROUND).map(|v| v.1));
     }
-    Ok(Plan {
+    let mut plan = Plan {
         goal,
         cost: cands.cost_of(&add_units),
         add: add_units,
@@ -371,7 +385,128 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         after,
         drivers,
         worst_fraction,
-    })
+        modules: None,
+    };
+    if net
+        .sites
+        .iter()
+        .any(|s| s.expansion.as_ref().is_some_and(|e| e.step.is_some()))
+    {
+        round_to_modules(net, audit, &cands, &mut plan, opts)?;
+    }
+    Ok(plan)
+}
+
+/// Whether `after` (the outages solved with a plan) meets the plan's goal as well as the
+/// continuous plan did: every outage at its best (close-all), or the worst fraction /
+/// total shortfall no worse than `target`.
+fn meets(goal: Goal, audit: &Audit, best: &[f64], after: &[Evaluation], target: f64) -> bool {
+    match goal {
+        Goal::CloseAll => after
+            .iter()
+            .zip(best)
+            .zip(&audit.evaluations)
+            .all(|((e, b), e0)| e.served_required >= b - 1e-6 * e0.surviving_required.max(1.0)),
+        Goal::WorstWithin(_) => after_worst(after) >= target - 1e-6,
+        Goal::TotalWithin(_) => after_total(audit, after) <= target + 1e-6,
+    }
+}
+
+fn after_worst(after: &[Evaluation]) -> f64 {
+    after
+        .iter()
+        .map(|e| {
+            if e.surviving_required > 0.0 {
+                e.served_required / e.surviving_required
+            } else {
+                1.0
+            }
+        })
+        .fold(1.0, f64::min)
+}
+
+fn after_total(audit: &Audit, after: &[Evaluation]) -> f64 {
+    audit.outage_of.iter().map(|&k| after[k].shortfall).sum()
+}
+
+/// Turns the continuous plan into whole modules at sites with `expand_step`: round each
+/// such addition up to a whole number of modules (never above `expand_max`; with a budget,
+/// round down instead so the budget holds), then a repair pass that drops one module at a
+/// time, costliest site first, while the goal is still met. Every candidate is verified by
+/// re-solving all outages. The LP plan's cost is a lower bound, so `gap` bounds how far the
+/// module plan can be from the best module plan.
+fn round_to_modules(
+    net: &Network,
+    audit: &Audit,
+    cands: &Candidates,
+    plan: &mut Plan,
+    opts: RunOptions,
+) -> Result<()> {
+    let budgeted = !matches!(plan.goal, Goal::CloseAll);
+    let target = match plan.goal {
+        Goal::CloseAll => 0.0,
+        Goal::WorstWithin(_) => after_worst(&plan.after),
+        Goal::TotalWithin(_) => after_total(audit, &plan.after),
+    };
+    let lp_add = plan.add.clone();
+    let lp_cost = plan.cost;
+    let mut add = lp_add.clone();
+    let mut stepped: Vec<(usize, f64)> = Vec::new();
+    for (v, site) in net.sites.iter().enumerate() {
+        let Some(step) = site.expansion.as_ref().and_then(|e| e.step) else {
+            continue;
+        };
+        let max_modules = (cands.max[v] / step + 1e-9).floor();
+        let modules = if budgeted {
+            (add[v] / step + 1e-9).floor()
+        } else {
+            (add[v] / step - 1e-9).ceil()
+        };
+        add[v] = modules.min(max_modules).max(0.0) * step;
+        if add[v] > 0.0 {
+            stepped.push((v, step));
+        }
+    }
+    let check = |add: &[f64]| -> Result<Vec<Evaluation>> {
+        let planned = net.with_added_processing(add);
+        audit::par_map(&audit.outages, opts, "verifying modules", |o| {
+            solve::evaluate(&planned, o)
+        })
+    };
+    let mut after = check(&add)?;
+    let mut repaired = 0;
+    if !budgeted && meets(plan.goal, audit, &plan.best, &after, target) {
+        stepped.sort_by(|a, b| {
+            let ca = cands.cost[a.0].unwrap_or(0.0) * a.1;
+            let cb = cands.cost[b.0].unwrap_or(0.0) * b.1;
+            cb.total_cmp(&ca).then(a.0.cmp(&b.0))
+        });
+        for &(v, step) in &stepped {
+            while add[v] >= step - 1e-9 {
+                let mut trial = add.clone();
+                trial[v] = (trial[v] - step).max(0.0);
+                let trial_after = check(&trial)?;
+                if meets(plan.goal, audit, &plan.best, &trial_after, target) {
+                    add = trial;
+                    after = trial_after;
+                    repaired += 1;
+                } else {
+                    break;
+                }
+            }
+        }
+    }
+    plan.cost = cands.cost_of(&add);
+    plan.add = add;
+    plan.worst_fraction = after_worst(&after);
+    plan.after = after;
+    plan.modules = Some(ModuleRounding {
+        gap: (plan.cost - lp_cost).max(0.0),
+        lp_add,
+        lp_cost,
+        repaired,
+    });
+    Ok(())
 }
 
 type MasterResult = (Vec<f64>, f64, Vec<Vec<(usize, f64)>>);
@@ -504,4 +639,155 @@ pub fn relief(audit: &Audit, n_sites: usize) -> Vec<(SiteIdx, usize, f64)> {
     out.retain(|r| r.1 > 0);
     out.sort_by(|a, b| b.1.cmp(&a.1).then(b.2.total_cmp(&a.2)).then(a.0.cmp(&b.0)));
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::scenario::{self, Kinds};
+
+    /// Path a–b–c, 10 per direction; processing 2 at a; candidates a (cost 3, ≤ 10),
+    /// b (cost 2, ≤ 10), c (cost 1, ≤ 3); one demand a→c of `volume`.
+    fn path(volume: f64) -> Network {
+        Network::from_json(&format!(
+            r#"{{"sites":[{{"id":"a","processing":2,"expand_cost":3,"expand_max":10}},
+                {{"id":"b","expand_cost":2,"expand_max":10}},
+                {{"id":"c","expand_cost":1,"expand_max":3}}],
+              "links":[{{"id":"ab","from":"a","to":"b","capacity":10}},
+                       {{"id":"bc","from":"b","to":"c","capacity":10}}],
+              "demands":[{{"from":"a","to":"c","volume":{volume}}}]}}"#
+        ))
+        .unwrap()
+    }
+
+    fn closing_of(net: &Network) -> Closing {
+        let o = Outage::default();
+        let e = solve::evaluate(net, &o).unwrap();
+        close(net, &o, &e, &Candidates::of(net)).unwrap().unwrap()
+    }
+
+    /// Closing cost equals a brute-force search over a grid of whole-unit additions (the
+    /// optimum is integral here: integral data, and the cheapest sites fill in cost order;
+    /// the grid itself is the outside check).
+    #[test]
+    fn closing_matches_brute_force_grid() {
+        let net = path(8.0);
+        let c = closing_of(&net);
+        let cands = Candidates::of(&net);
+        let mut best_cost = f64::INFINITY;
+        for a in 0..=6 {
+            for b in 0..=6 {
+                for cc in 0..=3 {
+                    let add = [a as f64, b as f64, cc as f64];
+                    let e = solve::evaluate(&net.with_added_processing(&add), &Outage::default())
+                        .unwrap();
+                    if e.served_required >= c.best - 1e-6 {
+                        best_cost = best_cost.min(cands.cost_of(&add));
+                    }
+                }
+            }
+        }
+        assert!(
+            (c.cost - best_cost).abs() < 1e-5,
+            "{} vs {}",
+            c.cost,
+            best_cost
+        );
+        assert!(
+            (c.cost - 9.0).abs() < 1e-5,
+            "c +3 (3) then b +3 (6): {}",
+            c.cost
+        );
+        assert!(c.not_closable.abs() < 1e-9);
+        // LP duality: the cost LP's dual objective equals its cost.
+        assert!(
+            (c.dual_bound - c.cost).abs() < 1e-5 * c.cost.max(1.0),
+            "{c:?}"
+        );
+    }
+
+    /// Links cap what processing can recover: 15 offered over a 10-unit path.
+    #[test]
+    fn link_limited_gap_is_not_closable() {
+        let net = path(15.0);
+        let c = closing_of(&net);
+        assert!((c.best - 10.0).abs() < 1e-6, "{c:?}");
+        assert!((c.not_closable - 5.0).abs() < 1e-6);
+        assert!(!c.binding_links.is_empty());
+    }
+
+    fn ring_audit() -> (Network, Audit) {
+        let net = Network::from_json(include_str!("../fixtures/small-ring.json")).unwrap();
+        let scenarios = scenario::enumerate(&net, Kinds::ALL, 1);
+        let audit = audit::run(&net, scenarios, RunOptions::default()).unwrap();
+        (net, audit)
+    }
+
+    /// The plan re-verified on every scenario leaves only not-closable shortfall, and costs
+    /// between the costliest single closing and the sum of all closings.
+    #[test]
+    fn plan_covers_every_scenario_within_closing_bounds() {
+        let (net, audit) = ring_audit();
+        let cands = Candidates::of(&net);
+        let plan = plan(&net, &audit, Goal::CloseAll, RunOptions::default()).unwrap();
+        let mut max_single: f64 = 0.0;
+        let mut sum = 0.0;
+        for (k, o) in audit.outages.iter().enumerate() {
+            let after = &plan.after[k];
+            let not_closable = audit.evaluations[k].surviving_required - plan.best[k];
+            assert!(
+                (after.shortfall - not_closable).abs() < 1e-5,
+                "outage {k}: after {} vs not closable {not_closable}",
+                after.shortfall
+            );
+            if let Some(c) = close(&net, o, &audit.evaluations[k], &cands).unwrap() {
+                assert!((c.best - plan.best[k]).abs() < 1e-6);
+                max_single = max_single.max(c.cost);
+                sum += c.cost;
+            }
+        }
+        assert!(max_single > 0.0, "the fixture must need some expansion");
+        assert!(
+            plan.cost >= max_single - 1e-5,
+            "{} < {max_single}",
+            plan.cost
+        );
+        assert!(plan.cost <= sum + 1e-5, "{} > {sum}", plan.cost);
+    }
+
+    /// More budget never gives a worse objective (worst fraction up, total shortfall down).
+    #[test]
+    fn more_budget_never_worse() {
+        let (net, audit) = ring_audit();
+        let mut last_worst = -1.0;
+        let mut last_total = f64::INFINITY;
+        for b in [0.0, 2.0, 5.0, 12.0, 40.0] {
+            let w = plan(&net, &audit, Goal::WorstWithin(b), RunOptions::default()).unwrap();
+            assert!(w.cost <= b + 1e-6);
+            assert!(w.worst_fraction >= last_worst - 1e-6, "budget {b}");
+            last_worst = w.worst_fraction;
+            let t = plan(&net, &audit, Goal::TotalWithin(b), RunOptions::default()).unwrap();
+            let total: f64 = audit.outage_of.iter().map(|&k| t.after[k].shortfall).sum();
+            assert!(total <= last_total + 1e-6, "budget {b}");
+            last_total = total;
+        }
+    }
+
+    /// A plan in whole modules never costs less than the continuous plan, and is whole.
+    #[test]
+    fn module_plan_not_cheaper_than_lp() {
+        let text = include_str!("../fixtures/small-ring.json").replace(
+            "\"expand_max\": 20",
+            "\"expand_max\": 20, \"expand_step\": 4",
+        );
+        let net = Network::from_json(&text).unwrap();
+        assert!(net.sites[0].expansion.as_ref().unwrap().step.is_some());
+        let scenarios = scenario::enumerate(&net, Kinds::ALL, 1);
+        let audit = audit::run(&net, scenarios, RunOptions::default()).unwrap();
+        let p = plan(&net, &audit, Goal::CloseAll, RunOptions::default()).unwrap();
+        let m = p.modules.as_ref().expect("module rounding ran");
+        assert!(p.cost >= m.lp_cost - 1e-6);
+        let modules = p.add[0] / 4.0;
+        assert!((modules - modules.round()).abs() < 1e-9, "{}", p.add[0]);
+    }
 }

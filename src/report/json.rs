@@ -253,6 +253,9 @@ pub struct PlanJson {
     pub plan: PlanBody,
     pub rounds: Vec<RoundJson>,
     pub worst_fraction_after: f64,
+    /// Present when some site buys in modules (`expand_step`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub modules: Option<serde_json::Value>,
     pub scenarios: Vec<PlanScenarioJson>,
 }
 
@@ -333,6 +336,14 @@ pub fn plan_json(
             })
             .collect(),
         worst_fraction_after: round9(plan.worst_fraction),
+        modules: plan.modules.as_ref().map(|m| {
+            serde_json::json!({
+                "lp_cost": round9(m.lp_cost),
+                "lp_add": additions_map(net, &m.lp_add),
+                "gap": round9(m.gap),
+                "repaired_modules": m.repaired,
+            })
+        }),
         scenarios: audit
             .scenarios
             .iter()

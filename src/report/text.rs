@@ -452,6 +452,18 @@ pub fn plan_report(
     } else {
         let _ = writeln!(out, "\nBuy (total cost {}):\n{t}", num(plan.cost));
     }
+    if let Some(m) = &plan.modules {
+        let _ = writeln!(
+            out,
+            "Modules: the continuous plan costs {} (a lower bound for any plan); rounded to whole \
+             modules and repaired ({} module{} removed) it costs {}, gap {} to that bound.",
+            num(m.lp_cost),
+            m.repaired,
+            if m.repaired == 1 { "" } else { "s" },
+            num(plan.cost),
+            num(m.gap)
+        );
+    }
     let rounds: Vec<String> = plan
         .rounds
         .iter()
