@@ -127,6 +127,29 @@ pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
     }
 }
 
+/// The `k` sites with the highest shadow price of processing in a scenario with a
+/// shortfall, as `site (+price)`: one more unit there serves up to `price` more.
+pub fn marginal_sites(net: &Network, e: &Evaluation, k: usize) -> String {
+    if e.shortfall <= 0.0 {
+        return "—".into();
+    }
+    let mut v: Vec<(usize, f64)> = e
+        .site_price
+        .iter()
+        .enumerate()
+        .filter_map(|(s, p)| p.filter(|p| *p > 1e-6).map(|p| (s, p)))
+        .collect();
+    v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    if v.is_empty() {
+        return "none (not processing-bound)".into();
+    }
+    v.iter()
+        .take(k)
+        .map(|(s, p)| format!("{} (+{})", net.sites[*s].id, num(*p)))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
 /// `link ID (A→B)` or `site ID processing`.
 pub fn resource_name(net: &Network, r: Resource) -> String {
     match r {
@@ -177,6 +200,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         &format!("stranded ({u})"),
         &format!("throughput loss ({u})"),
         "main bottleneck",
+        "one more unit helps at",
     ]);
     for (rank_no, &i) in order.iter().take(shown).enumerate() {
         let e = audit.eval(i);
@@ -188,6 +212,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             Cell::new(num(e.stranded)),
             Cell::new(num((baseline.throughput - e.throughput).max(0.0))),
             Cell::new(main_bottleneck(net, e)),
+            Cell::new(marginal_sites(net, e, 2)),
         ]);
     }
     right(&mut t, &[0, 2, 3, 4, 5]);
@@ -200,6 +225,13 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         order.len()
     );
     let _ = writeln!(out, "{t}");
+    if short > 0 {
+        let _ = writeln!(
+            out,
+            "\"one more unit helps at X (+Y)\": one more unit of processing at X serves up to Y \
+             more in that scenario (its shadow price)."
+        );
+    }
 
     let crit: Vec<Criticality> = rank::criticality(audit);
     if !crit.is_empty() {
