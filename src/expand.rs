@@ -337,9 +337,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
             solve_master(net, audit, &cands, &bests, &active, &multiplicity, goal)?;
         add_units = units;
         let planned = net.with_added_processing(&add_units);
-        after = audit::par_map(&audit.outages, opts, "verifying plan", |o| {
-            solve::evaluate(&planned, o)
-        })?;
+        after = verify(&planned, audit, &short, opts)?;
         let mut violated: Vec<(f64, usize)> = Vec::new();
         for &k in &short {
             if active.contains(&k) {
@@ -467,12 +465,10 @@ fn round_to_modules(
             stepped.push((v, step));
         }
     }
-    let check = |add: &[f64]| -> Result<Vec<Evaluation>> {
-        let planned = net.with_added_processing(add);
-        audit::par_map(&audit.outages, opts, "verifying modules", |o| {
-            solve::evaluate(&planned, o)
-        })
-    };
+    let short: Vec<usize> = (0..audit.outages.len())
+        .filter(|&k| audit.evaluations[k].shortfall > 0.0)
+        .collect();
+    let check = |add: &[f64]| verify(&net.with_added_processing(add), audit, &short, opts);
     let mut after = check(&add)?;
     let mut repaired = 0;
     if !budgeted && meets(plan.goal, audit, &plan.best, &after, target) {
@@ -507,6 +503,25 @@ fn round_to_modules(
         repaired,
     });
     Ok(())
+}
+
+/// Every outage solved with the plan applied. Outages without a shortfall are already at
+/// their required demand and adding processing never lowers served_required, so they keep
+/// their evaluation; only `short` outages are re-solved (in parallel).
+fn verify(
+    planned: &Network,
+    audit: &Audit,
+    short: &[usize],
+    opts: RunOptions,
+) -> Result<Vec<Evaluation>> {
+    let solved = audit::par_map(short, opts, "verifying plan", |&k| {
+        solve::evaluate(planned, &audit.outages[k])
+    })?;
+    let mut after = audit.evaluations.clone();
+    for (&k, e) in short.iter().zip(solved) {
+        after[k] = e;
+    }
+    Ok(after)
 }
 
 type MasterResult = (Vec<f64>, f64, Vec<Vec<(usize, f64)>>);
