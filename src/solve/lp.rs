@@ -133,6 +133,38 @@ fn expression(coeffs: &[(usize, f64)], vars: &[Variable]) -> Expression {
 /// Every model built by this crate is feasible and bounded; any other status is returned
 /// as [`Error::Solver`].
 pub fn solve(lp: &Lp) -> Result<LpSolution> {
+    // Uniform scaling: with x = S·x', the model min c·x, A·x ≤ b, l ≤ x ≤ u becomes
+    // A·x' ≤ b/S, l/S ≤ x' ≤ u/S with the same shadow prices and objective c·x' = c·x / S.
+    // Solving with S = the largest right-hand side or bound keeps the interior-point
+    // method's absolute tolerances meaningful whatever the traffic unit (bit/s or Tbit/s).
+    let scale = lp
+        .rows
+        .iter()
+        .map(|r| r.rhs.abs())
+        .chain(lp.upper.iter().filter(|u| u.is_finite()).map(|u| u.abs()))
+        .chain(lp.lower.iter().filter(|l| l.is_finite()).map(|l| l.abs()))
+        .fold(0.0, f64::max);
+    if scale > 0.0 && scale.is_finite() && (scale - 1.0).abs() > f64::EPSILON {
+        let mut scaled = lp.clone();
+        for r in &mut scaled.rows {
+            r.rhs /= scale;
+        }
+        for b in scaled.upper.iter_mut().chain(scaled.lower.iter_mut()) {
+            if b.is_finite() {
+                *b /= scale;
+            }
+        }
+        let mut sol = solve_unscaled(&scaled)?;
+        for x in &mut sol.x {
+            *x *= scale;
+        }
+        sol.objective *= scale;
+        return Ok(sol);
+    }
+    solve_unscaled(lp)
+}
+
+fn solve_unscaled(lp: &Lp) -> Result<LpSolution> {
     let mut pv = ProblemVariables::new();
     let vars: Vec<Variable> = (0..lp.num_vars())
         .map(|i| {

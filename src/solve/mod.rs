@@ -112,12 +112,16 @@ impl Evaluation {
     }
 }
 
-/// Snaps `x` to `target` when within [`TOL`] relative to `scale`.
+/// Snaps `x` to `target` when within [`TOL`] relative to `scale`; otherwise rounds it to
+/// a grid of 1e-9·scale, below the backend's accuracy, so solver noise does not show in
+/// large units (bit/s) and equal results print equal.
 fn snap(x: f64, target: f64, scale: f64) -> f64 {
-    if (x - target).abs() <= TOL * scale.max(1.0) {
+    let scale = scale.max(1.0);
+    if (x - target).abs() <= TOL * scale {
         target
     } else {
-        x
+        let grid = 1e-9 * scale;
+        (x / grid).round() * grid
     }
 }
 
