@@ -258,7 +258,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         let t = vindex
             .served(&vsol.x)
             .clamp(served_required, surviving_volume);
-        snap(t, surviving_volume, surviving_volume.max(1.0))
+        snap(t, surviving_volume, surviving_volume).max(served_required)
     } else {
         served_required
     };
