@@ -545,17 +545,24 @@ pub fn plan_report(
             "\nScenarios with a shortfall, before and after the plan (top {shown}):\n{s}"
         );
         let left: f64 = order.iter().map(|&i| after(i)).fold(0.0, f64::max);
-        let _ = writeln!(
-            out,
-            "Worst shortfall after the plan: {} {u}; what remains is limited by links or \
-             connectivity, not by processing{}.",
-            num(left),
-            if matches!(plan.goal, Goal::CloseAll) {
-                ""
-            } else {
-                " or by the budget"
-            }
-        );
+        if left > 0.0 {
+            let _ = writeln!(
+                out,
+                "Worst shortfall after the plan: {} {u}; what remains is limited by links or \
+                 connectivity, not by processing{}.",
+                num(left),
+                if matches!(plan.goal, Goal::CloseAll) {
+                    ""
+                } else {
+                    " or by the budget"
+                }
+            );
+        } else {
+            let _ = writeln!(
+                out,
+                "After the plan every scenario serves all its required demand."
+            );
+        }
     } else {
         let _ = writeln!(out, "\nNo scenario has a shortfall.");
     }
