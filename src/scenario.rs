@@ -211,13 +211,18 @@ pub fn elements(net: &Network, kinds: Kinds) -> Vec<Element> {
     out
 }
 
-/// Number of scenarios [`enumerate`] yields: 1 + Σ_{k=1..depth} C(n, k).
+/// Number of scenarios [`enumerate`] yields: 1 + Σ_{k=1..depth} C(n, k), saturating at
+/// `u128::MAX` (callers only compare it with a limit).
 pub fn count(n: usize, depth: usize) -> u128 {
     let mut total: u128 = 1;
     let mut c: u128 = 1;
     for k in 1..=depth.min(n) {
-        c = c * (n - k + 1) as u128 / k as u128;
-        total += c;
+        // C(n, k) = C(n, k-1) · (n-k+1) / k, exact in integers; saturate on overflow.
+        c = match c.checked_mul((n - k + 1) as u128) {
+            Some(p) => p / k as u128,
+            None => return u128::MAX,
+        };
+        total = total.saturating_add(c);
     }
     total
 }
@@ -274,6 +279,7 @@ mod tests {
             let all = enumerate(&n, Kinds::ALL, depth);
             assert_eq!(all.len() as u128, count(6, depth));
         }
+        assert_eq!(count(142, 100), u128::MAX);
     }
 
     #[test]

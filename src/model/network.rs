@@ -121,10 +121,15 @@ impl Network {
     /// Parses JSON text into a validated network. Every error names the element, the
     /// field and the value; nothing here panics, whatever the text holds.
     pub fn from_json(text: &str) -> Result<Network> {
-        let de = &mut serde_json::Deserializer::from_str(text);
-        let file: NetworkFile = match serde_path_to_error::deserialize(de) {
+        // First the document as plain JSON: syntax, trailing content, numbers out of range.
+        let value: serde_json::Value = match serde_json::from_str(text) {
+            Ok(v) => v,
+            Err(e) => return Err(Error::Input(describe_syntax_error(text, &e))),
+        };
+        check_shape(&value)?;
+        let file: NetworkFile = match serde_path_to_error::deserialize(&value) {
             Ok(f) => f,
-            Err(e) => return Err(Error::Input(describe_parse_error(text, &e))),
+            Err(e) => return Err(Error::Input(describe_parse_error(&value, &e))),
         };
         Network::from_file(file)
     }
@@ -343,33 +348,169 @@ impl Network {
     }
 }
 
-/// Turns a serde error into a message that names the element (by index and, where the
-/// file has one, its id), the field and the offending value.
-fn describe_parse_error(text: &str, e: &serde_path_to_error::Error<serde_json::Error>) -> String {
-    let path = e.path().to_string();
-    let inner = e.inner();
-    if inner.is_syntax() || inner.is_eof() || path == "." || path.is_empty() {
-        return format!("not a valid network JSON object: {inner}");
-    }
-    // Name the element by its id when the document is at least well-formed JSON.
-    let mut element = String::new();
-    if let Ok(value) = serde_json::from_str::<serde_json::Value>(text) {
-        let mut segments = path.split('.');
-        if let Some(first) = segments.next()
-            && let Some((list, rest)) = first.split_once('[')
-            && let Ok(idx) = rest.trim_end_matches(']').parse::<usize>()
-            && let Some(id) = value
-                .get(list)
-                .and_then(|l| l.get(idx))
-                .and_then(|el| el.get("id"))
-                .and_then(|v| v.as_str())
-        {
-            element = format!(" (id {id:?})");
+/// The contract's shape that serde alone does not enforce: the document is an object and
+/// every `sites`, `links` and `demands` entry is an object (serde would accept an array
+/// of the fields in declaration order).
+fn check_shape(value: &serde_json::Value) -> Result<()> {
+    let Some(obj) = value.as_object() else {
+        return Err(Error::Input(format!(
+            "the network must be one JSON object, got {}",
+            kind_of(value)
+        )));
+    };
+    for list in ["sites", "links", "demands"] {
+        match obj.get(list) {
+            None | Some(serde_json::Value::Null) => {}
+            Some(serde_json::Value::Array(items)) => {
+                for (i, item) in items.iter().enumerate() {
+                    if !item.is_object() {
+                        return Err(Error::Input(format!(
+                            "{list}[{i}]: must be an object with named fields, got {}: {}",
+                            kind_of(item),
+                            short(item)
+                        )));
+                    }
+                }
+            }
+            Some(other) => {
+                return Err(Error::Input(format!(
+                    "field `{list}` must be an array of objects, got {}: {}",
+                    kind_of(other),
+                    short(other)
+                )));
+            }
         }
     }
-    let msg = inner.to_string();
-    // serde_json appends " at line L column C"; keep it, it helps find the value.
-    format!("{path}{element}: {msg}")
+    Ok(())
+}
+
+fn kind_of(v: &serde_json::Value) -> &'static str {
+    match v {
+        serde_json::Value::Null => "null",
+        serde_json::Value::Bool(_) => "a boolean",
+        serde_json::Value::Number(_) => "a number",
+        serde_json::Value::String(_) => "a string",
+        serde_json::Value::Array(_) => "an array",
+        serde_json::Value::Object(_) => "an object",
+    }
+}
+
+fn short(v: &serde_json::Value) -> String {
+    let s = v.to_string();
+    if s.chars().count() > 60 {
+        format!("{}…", s.chars().take(60).collect::<String>())
+    } else {
+        s
+    }
+}
+
+/// `sites[2] (id "x")` for a path's first two segments, when the element has an id.
+fn element_name(value: &serde_json::Value, list: &str, idx: usize) -> String {
+    match value
+        .get(list)
+        .and_then(|l| l.get(idx))
+        .and_then(|el| el.get("id"))
+        .and_then(|v| v.as_str())
+    {
+        Some(id) => format!("{list}[{idx}] (id {id:?})"),
+        None => format!("{list}[{idx}]"),
+    }
+}
+
+/// Names the element and field of a plain-JSON error. A number too large for f64 is
+/// found by replacing its token with a marker string and locating the marker in the
+/// re-parsed document.
+fn describe_syntax_error(text: &str, e: &serde_json::Error) -> String {
+    const MARK: &str = "redoubt: out-of-range number marker";
+    if e.classify() == serde_json::error::Category::Data || e.to_string().contains("out of range") {
+        // Byte offset of the error position (line and column are 1-based).
+        let offset: usize = text
+            .split_inclusive('\n')
+            .take(e.line().saturating_sub(1))
+            .map(str::len)
+            .sum::<usize>()
+            + e.column().saturating_sub(1);
+        let bytes = text.as_bytes();
+        let is_num = |b: u8| b.is_ascii_digit() || matches!(b, b'e' | b'E' | b'+' | b'-' | b'.');
+        let mut start = offset.min(bytes.len());
+        while start > 0 && is_num(bytes[start - 1]) {
+            start -= 1;
+        }
+        let mut end = offset.min(bytes.len());
+        while end < bytes.len() && is_num(bytes[end]) {
+            end += 1;
+        }
+        if start < end && text.is_char_boundary(start) && text.is_char_boundary(end) {
+            let token = &text[start..end];
+            let patched = format!("{}\"{MARK}\"{}", &text[..start], &text[end..]);
+            if let Ok(v) = serde_json::from_str::<serde_json::Value>(&patched)
+                && let Some(path) = find_marker(&v, MARK)
+            {
+                let (element, field) = match path.as_slice() {
+                    [list, idx, field, ..] => match idx.parse::<usize>() {
+                        Ok(i) => (element_name(&v, list, i), field.clone()),
+                        Err(_) => (list.clone(), idx.clone()),
+                    },
+                    [field] => ("the network".to_string(), field.clone()),
+                    other => ("the network".to_string(), other.join(".")),
+                };
+                return format!(
+                    "{element}: field `{field}` must be a finite number >= 0, got {token} \
+                     (out of range; line {} column {})",
+                    e.line(),
+                    e.column()
+                );
+            }
+        }
+    }
+    format!("not a valid network JSON object: {e}")
+}
+
+/// The path (keys and indices) of the string `mark` in `v`, if present.
+fn find_marker(v: &serde_json::Value, mark: &str) -> Option<Vec<String>> {
+    match v {
+        serde_json::Value::String(s) if s == mark => Some(Vec::new()),
+        serde_json::Value::Array(items) => items.iter().enumerate().find_map(|(i, x)| {
+            find_marker(x, mark).map(|mut p| {
+                p.insert(0, i.to_string());
+                p
+            })
+        }),
+        serde_json::Value::Object(map) => map.iter().find_map(|(k, x)| {
+            find_marker(x, mark).map(|mut p| {
+                p.insert(0, k.clone());
+                p
+            })
+        }),
+        _ => None,
+    }
+}
+
+/// Turns a serde error into a message that names the element (by index and, where the
+/// file has one, its id), the field and the offending value.
+fn describe_parse_error(
+    value: &serde_json::Value,
+    e: &serde_path_to_error::Error<serde_json::Error>,
+) -> String {
+    let path = e.path().to_string();
+    let inner = e.inner();
+    let mut element = String::new();
+    let mut segments = path.split('.');
+    if let Some(first) = segments.next()
+        && let Some((list, rest)) = first.split_once('[')
+        && let Ok(idx) = rest.trim_end_matches(']').parse::<usize>()
+        && let Some(id) = value
+            .get(list)
+            .and_then(|l| l.get(idx))
+            .and_then(|el| el.get("id"))
+            .and_then(|v| v.as_str())
+    {
+        element = format!(" (id {id:?})");
+    }
+    if path == "." || path.is_empty() {
+        return format!("the network: {inner}");
+    }
+    format!("{path}{element}: {inner}")
 }
 
 #[cfg(test)]
@@ -425,8 +566,17 @@ mod tests {
         let m = err(&OK.replace("\"to\":\"b\",\"volume\"", "\"to\":\"a\",\"volume\""));
         assert!(m.contains("same site"), "{m}");
         let m = err("[1,2]");
-        assert!(m.contains("invalid type"), "{m}");
+        assert!(m.contains("one JSON object"), "{m}");
         let m = err("{\"sites\": [");
         assert!(m.contains("not a valid"), "{m}");
+        let m = err(&OK.replace("\"capacity\":10", "\"capacity\":1e999"));
+        assert!(
+            m.contains("links[0]") && m.contains("capacity") && m.contains("1e999"),
+            "{m}"
+        );
+        let m = err(&format!("{OK} {{}}"));
+        assert!(m.contains("not a valid"), "{m}");
+        let m = err(r#"{"sites":[["a", 5]]}"#);
+        assert!(m.contains("sites[0]") && m.contains("object"), "{m}");
     }
 }
