@@ -38,6 +38,8 @@ pub struct ScenarioJson {
     /// Certified upper bound on served_required and the relative gap to it.
     pub upper_bound: f64,
     pub certified_gap: f64,
+    /// Largest relative row violation of the allocation (primal feasibility check).
+    pub max_violation: f64,
     pub stranded_demands: Vec<String>,
     /// Demands short in one optimal allocation (only those with shortfall > 0).
     pub demand_shortfall: Vec<DemandShortJson>,
@@ -103,6 +105,7 @@ pub fn scenario_json(
         rank,
         upper_bound: round9(e.upper_bound),
         certified_gap: e.certified_gap(),
+        max_violation: e.max_violation,
         stranded_demands: e
             .stranded_demands
             .iter()
