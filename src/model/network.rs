@@ -279,6 +279,31 @@ impl Network {
             });
         }
 
+        // Every number is finite; their sums must be too, or no total can be reported.
+        let totals = [
+            (
+                "demands",
+                "volume",
+                demands.iter().map(|d| d.volume).sum::<f64>(),
+            ),
+            (
+                "sites",
+                "processing",
+                sites.iter().map(|s| s.processing).sum::<f64>(),
+            ),
+            (
+                "links",
+                "capacity",
+                links.iter().map(|l| l.capacity).sum::<f64>(),
+            ),
+        ];
+        for (list, field, total) in totals {
+            if !total.is_finite() {
+                return Err(Error::Input(format!(
+                    "{list}: the sum of field `{field}` overflows ({total}); use a larger unit"
+                )));
+            }
+        }
         let mut arcs = Vec::with_capacity(2 * links.len());
         for (li, l) in links.iter().enumerate() {
             arcs.push(Arc {

@@ -26,7 +26,8 @@ pub fn num(x: f64) -> String {
 /// A number for files: rounded to 9 decimals, so solver noise below 1e-9 does not show
 /// and equal results print equal.
 pub fn round9(x: f64) -> f64 {
-    if !x.is_finite() {
+    // Above 1e6 nine decimals are beyond f64 precision anyway; leave such values alone.
+    if !x.is_finite() || x.abs() >= 1e6 {
         return x;
     }
     let r = (x * 1e9).round() / 1e9;
@@ -52,6 +53,7 @@ mod tests {
         assert_eq!(num(12.3456), "12.346");
         assert_eq!(num(-0.0001), "0");
         assert_eq!(round9(1.0000000000004), 1.0);
+        assert_eq!(round9(1e300), 1e300);
         assert_eq!(percent(1.0, 3.0), "33.3%");
     }
 }

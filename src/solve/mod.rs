@@ -108,7 +108,11 @@ impl Evaluation {
 
     /// Relative gap between the certified upper bound and served_required.
     pub fn certified_gap(&self) -> f64 {
-        (self.upper_bound - self.served_required).max(0.0) / self.served_required.max(1.0)
+        let denom = self
+            .served_required
+            .max(1e-9 * self.surviving_required)
+            .max(f64::MIN_POSITIVE);
+        (self.upper_bound - self.served_required).max(0.0) / denom
     }
 }
 
@@ -116,12 +120,15 @@ impl Evaluation {
 /// a grid of 1e-9·scale, below the backend's accuracy, so solver noise does not show in
 /// large units (bit/s) and equal results print equal.
 fn snap(x: f64, target: f64, scale: f64) -> f64 {
-    let scale = scale.max(1.0);
+    if scale.is_nan() || scale <= 0.0 {
+        return if x.abs() < 1e-12 { target } else { x };
+    }
     if (x - target).abs() <= TOL * scale {
         target
     } else {
         let grid = 1e-9 * scale;
-        (x / grid).round() * grid
+        let q = (x / grid).round() * grid;
+        if q.is_finite() { q } else { x }
     }
 }
 
@@ -173,7 +180,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     }
 
     let (model, index, sol) = solve_flow(net, outage, Cap::Required)?;
-    let scale = surviving_required.max(1.0);
+    let scale = surviving_required;
     let mut served_required = index.served(&sol.x).clamp(0.0, surviving_required);
     served_required = snap(snap(served_required, surviving_required, scale), 0.0, scale);
     let shortfall = snap((surviving_required - served_required).max(0.0), 0.0, scale);
