@@ -178,7 +178,7 @@ pub fn close(
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
     let index = flow::build(&mut model, net, outage, Cap::Required, 0.0, Some(&add));
-    served_row(&mut model, &index, best - TOL * scale);
+    served_row(&mut model, &index, target(best, required));
     let sol = lp::solve(&model)?;
     let add_units = values(&add, &sol.x, scale);
     Ok(Some(Closing {
@@ -189,6 +189,18 @@ pub fn close(
         binding_links,
         dual_bound: model.dual_objective(&sol),
     }))
+}
+
+/// The served target of a cost-minimising model: the best reachable value itself when it
+/// is the whole required demand (exactly feasible), otherwise a hair below it (1e-8
+/// relative), since an interior-point `best` may overshoot the true optimum by its
+/// tolerance.
+fn target(best: f64, required: f64) -> f64 {
+    if best >= required {
+        required
+    } else {
+        best - 1e-8 * required.max(f64::MIN_POSITIVE)
+    }
 }
 
 /// Adds `Σ f_d >= target` over the flow variables of `index`; returns the row.
@@ -578,7 +590,7 @@ fn solve_master(
         match (goal, t) {
             (Goal::TotalWithin(_), _) => {}
             (_, None) => {
-                served_row(&mut model, &index, bests[k] - TOL * req.max(1.0));
+                served_row(&mut model, &index, target(bests[k], req));
             }
             (_, Some(t)) => {
                 let mut coeffs: Vec<(usize, f64)> = index

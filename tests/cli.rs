@@ -1046,3 +1046,104 @@ fn thread_count_does_not_change_the_json() {
         "small ring depth 2: --threads 1 and 2 differ"
     );
 }
+
+// ---------------------------------------------------------------------------------------
+// Closing the gaps and the purchase plan
+// ---------------------------------------------------------------------------------------
+
+/// Path a–b–c, 10 per direction, processing 2 at a; candidates a (cost 3, at most 10),
+/// b (cost 2, at most 10), c (cost 1, at most 3); one demand a→c of 8.
+const EXPAND_NET: &str = r#"{"name": "expand-path", "unit": "Gbit/s",
+  "sites": [{"id": "a", "processing": 2, "expand_cost": 3, "expand_max": 10},
+            {"id": "b", "expand_cost": 2, "expand_max": 10},
+            {"id": "c", "expand_cost": 1, "expand_max": 3}],
+  "links": [{"id": "ab", "from": "a", "to": "b", "capacity": 10},
+            {"id": "bc", "from": "b", "to": "c", "capacity": 10}],
+  "demands": [{"from": "a", "to": "c", "volume": 8}]}"#;
+
+/// Source: hand computation (common practice, no source). Baseline: 2 of 8 served; the 6
+/// missing units are cheapest at c (3 units at 1) and then b (3 units at 2): cost 9. A
+/// failed link cuts the demand off: 8 not closable by processing. A failed end site
+/// strands the demand: no shortfall, `closing` null (contract).
+#[test]
+fn close_json_contract_by_hand() {
+    let f = TempPath::with_text("expand", EXPAND_NET);
+    let (run, doc) = audit_json(f.path(), &["--close"]);
+    assert!(run.stdout.contains("Closing the gaps"), "{}", run.stdout);
+    let base = &scenario(&doc, &[])["closing"];
+    assert_near(num(base, "cost"), 9.0, "baseline closing cost");
+    assert_near(num(&base["add"], "b"), 3.0, "baseline add at b");
+    assert_near(num(&base["add"], "c"), 3.0, "baseline add at c");
+    assert!(base["add"].get("a").is_none(), "a is the dearest: {base}");
+    assert_near(num(base, "not_closable"), 0.0, "baseline not closable");
+    let cut = &scenario(&doc, &["link:ab"])["closing"];
+    assert_near(num(cut, "cost"), 0.0, "link:ab cost");
+    assert_near(num(cut, "not_closable"), 8.0, "link:ab not closable");
+    assert!(scenario(&doc, &["site:a"])["closing"].is_null());
+    assert!(scenario(&doc, &["site:c"])["closing"].is_null());
+}
+
+/// Source: hand computation as above. The plan for all depth-1 scenarios is the baseline's
+/// closing (cost 9); afterwards only the not-closable part remains in each scenario.
+#[test]
+fn plan_json_contract_by_hand() {
+    let f = TempPath::with_text("plan", EXPAND_NET);
+    let out = TempPath::new("plan-out", "json");
+    let run = redoubt(&["plan", f.path(), "--quiet", "--json", out.path()]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    assert!(run.stdout.contains("Buy (total cost 9)"), "{}", run.stdout);
+    let doc = out.read_json();
+    assert_near(num(&doc["plan"], "cost"), 9.0, "plan cost");
+    assert_near(num(&doc["plan"]["add"], "b"), 3.0, "plan add at b");
+    assert_near(num(&doc["plan"]["add"], "c"), 3.0, "plan add at c");
+    let rows = scenarios(&doc);
+    assert_eq!(rows.len(), 1 + 2 + 3, "baseline + 2 links + 3 sites");
+    for row in rows {
+        assert_near(
+            num(row, "shortfall_after"),
+            num(row, "not_closable"),
+            &format!("{:?}: only the not-closable part remains", failed_of(row)),
+        );
+    }
+    assert_near(
+        num(scenario(&doc, &["link:bc"]), "not_closable"),
+        8.0,
+        "link:bc",
+    );
+}
+
+/// Source: hand computation. Baseline only (`--depth 0`): budget 3 buys c +3 (5 of 8
+/// served); budget 5 adds b +1 (6 of 8). More budget never serves less.
+#[test]
+fn budgeted_plans_by_hand() {
+    let f = TempPath::with_text("budget", EXPAND_NET);
+    for (budget, objective, served) in [
+        ("3", "worst", 5.0),
+        ("5", "worst", 6.0),
+        ("5", "total", 6.0),
+    ] {
+        let out = TempPath::new("budget-out", "json");
+        let run = redoubt(&[
+            "plan",
+            f.path(),
+            "--depth",
+            "0",
+            "--budget",
+            budget,
+            "--objective",
+            objective,
+            "--quiet",
+            "--json",
+            out.path(),
+        ]);
+        assert_eq!(run.code, 0, "{}", run.stderr);
+        let doc = out.read_json();
+        assert!(num(&doc["plan"], "cost") <= budget.parse::<f64>().unwrap() + TOL);
+        let base = scenario(&doc, &[]);
+        assert_near(
+            num(base, "served_required_after"),
+            served,
+            &format!("budget {budget} ({objective})"),
+        );
+    }
+}
