@@ -278,6 +278,20 @@ pub fn caution() -> String {
     format!("{CAUTION}\n")
 }
 
+/// The first `k` items joined with commas, `(+N more)` for the rest, `—` when empty.
+fn first_k(items: impl ExactSizeIterator<Item = String>, k: usize) -> String {
+    let total = items.len();
+    let mut parts: Vec<String> = items.take(k).collect();
+    if total > k {
+        parts.push(format!("(+{} more)", total - k));
+    }
+    if parts.is_empty() {
+        "—".into()
+    } else {
+        parts.join(", ")
+    }
+}
+
 /// `site +units` for the largest additions of an expansion, at most `k` of them.
 pub fn additions(net: &Network, add: &[f64], k: usize) -> String {
     let mut v: Vec<(usize, f64)> = add
@@ -287,35 +301,15 @@ pub fn additions(net: &Network, add: &[f64], k: usize) -> String {
         .map(|(i, a)| (i, *a))
         .collect();
     v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
-    let mut parts: Vec<String> = v
-        .iter()
-        .take(k)
-        .map(|(i, a)| format!("{} +{}", net.sites[*i].id, num(*a)))
-        .collect();
-    if v.len() > k {
-        parts.push(format!("(+{} more)", v.len() - k));
-    }
-    if parts.is_empty() {
-        "—".into()
-    } else {
-        parts.join(", ")
-    }
+    first_k(
+        v.iter()
+            .map(|(i, a)| format!("{} +{}", net.sites[*i].id, num(*a))),
+        k,
+    )
 }
 
 fn link_list(net: &Network, links: &[usize], k: usize) -> String {
-    let mut parts: Vec<String> = links
-        .iter()
-        .take(k)
-        .map(|&l| net.links[l].id.clone())
-        .collect();
-    if links.len() > k {
-        parts.push(format!("(+{} more)", links.len() - k));
-    }
-    if parts.is_empty() {
-        "—".into()
-    } else {
-        parts.join(", ")
-    }
+    first_k(links.iter().map(|&l| net.links[l].id.clone()), k)
 }
 
 /// The `--close` section: per scenario with a shortfall, the cheapest expansion.
