@@ -334,8 +334,93 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
     for &k in &audit.outage_of {
         multiplicity[k] += 1;
     }
+    let g = generate(
+        net,
+        audit,
+        &cands,
+        &Generation {
+            bests: &bests,
+            short: &short,
+            order: &order,
+            multiplicity: &multiplicity,
+        },
+        goal,
+        opts,
+    )?;
+    let (add_units, rounds, after, drivers, worst_fraction) =
+        (g.add, g.rounds, g.after, g.drivers, g.worst_fraction);
+    let mut plan = Plan {
+        goal,
+        cost: cands.cost_of(&add_units),
+        add: add_units,
+        rounds,
+        best: bests,
+        after,
+        drivers,
+        worst_fraction,
+        modules: None,
+    };
+    if net
+        .sites
+        .iter()
+        .any(|s| s.expansion.as_ref().is_some_and(|e| e.step.is_some()))
+    {
+        let data = Generation {
+            bests: &plan.best.clone(),
+            short: &short,
+            order: &order,
+            multiplicity: &multiplicity,
+        };
+        round_to_modules(net, audit, &cands, &data, &mut plan, opts)?;
+    }
+    Ok(plan)
+}
+
+/// The outage data constraint generation works on.
+struct Generation<'a> {
+    bests: &'a [f64],
+    /// Outages that can gain (checked each round).
+    short: &'a [usize],
+    /// `short`, worst first: the master starts from its head.
+    order: &'a [usize],
+    /// Scenarios per outage.
+    multiplicity: &'a [usize],
+}
+
+/// What constraint generation returns.
+struct Generated {
+    add: Vec<f64>,
+    rounds: Vec<Round>,
+    after: Vec<Evaluation>,
+    drivers: Vec<Vec<(usize, f64)>>,
+    worst_fraction: f64,
+}
+
+/// The constraint-generation loop of [`plan`] over `net` (which may already carry fixed
+/// additions) with candidates `cands`.
+fn generate(
+    net: &Network,
+    audit: &Audit,
+    cands: &Candidates,
+    data: &Generation<'_>,
+    goal: Goal,
+    opts: RunOptions,
+) -> Result<Generated> {
+    let Generation {
+        bests,
+        short,
+        order,
+        multiplicity,
+    } = *data;
+    let fraction = |e: &Evaluation| {
+        if e.surviving_required > 0.0 {
+            e.served_required / e.surviving_required
+        } else {
+            1.0
+        }
+    };
     let mut active: Vec<usize> = match goal {
-        Goal::TotalWithin(_) => order.clone(),
+        Goal::TotalWithin(_) => order.to_vec(),
         _ => order.iter().copied().take(ADD_PER_ROUND).collect(),
     };
     let mut rounds = Vec::new();
@@ -346,12 +431,12 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
     loop {
         // Master problem over the active outages.
         let (units, objective, site_duals) =
-            solve_master(net, audit, &cands, &bests, &active, &multiplicity, goal)?;
+            solve_master(net, audit, cands, bests, &active, multiplicity, goal)?;
         add_units = units;
         let planned = net.with_added_processing(&add_units);
-        after = verify(&planned, audit, &short, opts)?;
+        after = verify(&planned, audit, short, opts)?;
         let mut violated: Vec<(f64, usize)> = Vec::new();
-        for &k in &short {
+        for &k in short {
             if active.contains(&k) {
                 continue;
             }
@@ -386,25 +471,13 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         }
         active.extend(violated.iter().take(ADD_PER_ROUND).map(|v| v.1));
     }
-    let mut plan = Plan {
-        goal,
-        cost: cands.cost_of(&add_units),
+    Ok(Generated {
         add: add_units,
         rounds,
-        best: bests,
         after,
         drivers,
         worst_fraction,
-        modules: None,
-    };
-    if net
-        .sites
-        .iter()
-        .any(|s| s.expansion.as_ref().is_some_and(|e| e.step.is_some()))
-    {
-        round_to_modules(net, audit, &cands, &mut plan, opts)?;
-    }
-    Ok(plan)
+    })
 }
 
 /// Whether `after` (the outages solved with a plan) meets the plan's goal as well as the
@@ -449,6 +522,7 @@ fn round_to_modules(
     net: &Network,
     audit: &Audit,
     cands: &Candidates,
+    data: &Generation<'_>,
     plan: &mut Plan,
     opts: RunOptions,
 ) -> Result<()> {
@@ -502,6 +576,57 @@ fn round_to_modules(
                     break;
                 }
             }
+        }
+    }
+    // Re-optimise the sites bought by the unit with the modules fixed: the continuous part
+    // of the LP plan stays feasible, so this never does worse, and it spends what rounding
+    // freed (or, with a budget, what is left after rounding down).
+    let modular: Vec<bool> = net
+        .sites
+        .iter()
+        .map(|s| s.expansion.as_ref().is_some_and(|e| e.step.is_some()))
+        .collect();
+    let fixed: Vec<f64> = add
+        .iter()
+        .zip(&modular)
+        .map(|(a, m)| if *m { *a } else { 0.0 })
+        .collect();
+    let mut rest = cands.clone();
+    for (v, m) in modular.iter().enumerate() {
+        if *m {
+            rest.cost[v] = None;
+        }
+    }
+    if rest.cost.iter().any(Option::is_some) {
+        let fixed_cost = cands.cost_of(&fixed);
+        let goal = match plan.goal {
+            Goal::CloseAll => Goal::CloseAll,
+            Goal::WorstWithin(b) => Goal::WorstWithin((b - fixed_cost).max(0.0)),
+            Goal::TotalWithin(b) => Goal::TotalWithin((b - fixed_cost).max(0.0)),
+        };
+        let g = generate(
+            &net.with_added_processing(&fixed),
+            audit,
+            &rest,
+            data,
+            goal,
+            opts,
+        )?;
+        let combined: Vec<f64> = fixed.iter().zip(&g.add).map(|(f, a)| f + a).collect();
+        let better = match plan.goal {
+            Goal::CloseAll => {
+                meets(plan.goal, audit, &plan.best, &g.after, target)
+                    && (cands.cost_of(&combined) < cands.cost_of(&add) - 1e-9
+                        || !meets(plan.goal, audit, &plan.best, &after, target))
+            }
+            Goal::WorstWithin(_) => after_worst(&g.after) > after_worst(&after) + 1e-9,
+            Goal::TotalWithin(_) => {
+                after_total(audit, &g.after) < after_total(audit, &after) - 1e-9
+            }
+        };
+        if better {
+            add = combined;
+            after = g.after;
         }
     }
     plan.cost = cands.cost_of(&add);
@@ -612,7 +737,27 @@ fn solve_master(
             vec![Vec::new(); net.sites.len()],
         ));
     }
-    let sol = lp::solve(&model).map_err(|e| Error::Solver(format!("plan master problem: {e}")))?;
+    let mut sol =
+        lp::solve(&model).map_err(|e| Error::Solver(format!("plan master problem: {e}")))?;
+    if let Some(t) = t {
+        // Lexicographic second phase: keep the best worst-case fraction, then serve as much
+        // as possible in the other active outages (each weighted by 1/required), so money
+        // is not spread arbitrarily when the worst case cannot improve.
+        let t_best = sol.x[t].clamp(0.0, 1.0);
+        model.objective[t] = 0.0;
+        model.lower[t] = (t_best - 1e-7).max(0.0);
+        for (index, &k) in indices.iter().zip(active) {
+            let req = audit.evaluations[k].surviving_required;
+            if req > 0.0 {
+                for &f in index.demand_var.iter().flatten() {
+                    model.objective[f] = 1.0 / (req * active.len() as f64);
+                }
+            }
+        }
+        sol = lp::solve(&model)
+            .map_err(|e| Error::Solver(format!("plan master problem, second phase: {e}")))?;
+        sol.x[t] = sol.x[t].max(t_best.min(model.upper[t]));
+    }
     let units = values(&add, &sol.x, total_required);
     let objective = match (goal, t) {
         (Goal::WorstWithin(_), Some(t)) => sol.x[t].clamp(0.0, 1.0),

@@ -479,16 +479,27 @@ pub fn plan_report(
         let _ = writeln!(out, "\nBuy (total cost {}):\n{t}", num(plan.cost));
     }
     if let Some(m) = &plan.modules {
-        let _ = writeln!(
-            out,
-            "Modules: the continuous plan costs {} (a lower bound for any plan); rounded to whole \
-             modules and repaired ({} module{} removed) it costs {}, gap {} to that bound.",
-            num(m.lp_cost),
-            m.repaired,
-            if m.repaired == 1 { "" } else { "s" },
-            num(plan.cost),
-            num(m.gap)
-        );
+        if matches!(plan.goal, Goal::CloseAll) {
+            let _ = writeln!(
+                out,
+                "Modules: the continuous plan costs {} (a lower bound for any plan); rounded to \
+                 whole modules and repaired ({} module{} removed) it costs {}, gap {} to that \
+                 bound.",
+                num(m.lp_cost),
+                m.repaired,
+                if m.repaired == 1 { "" } else { "s" },
+                num(plan.cost),
+                num(m.gap)
+            );
+        } else {
+            let _ = writeln!(
+                out,
+                "Modules: the continuous plan spends {}; in whole modules (rounded down to fit the \
+                 budget, the rest re-optimised) the plan spends {}.",
+                num(m.lp_cost),
+                num(plan.cost)
+            );
+        }
     }
     let rounds: Vec<String> = plan
         .rounds
