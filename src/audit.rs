@@ -42,6 +42,16 @@ impl Audit {
         &self.evaluations[self.outage_of[i]]
     }
 
+    /// The first scenario (in list order) whose outage is `k`; every outage has one.
+    pub fn first_scenario(&self, k: usize) -> &Scenario {
+        let i = self
+            .outage_of
+            .iter()
+            .position(|&o| o == k)
+            .expect("every outage comes from a scenario");
+        &self.scenarios[i]
+    }
+
     /// The baseline's evaluation, if the baseline is among the scenarios.
     pub fn baseline(&self) -> Option<&Evaluation> {
         self.scenarios

@@ -115,9 +115,26 @@ pub struct Closing {
     pub dual_bound: f64,
 }
 
-/// Best served_required of `outage` with every candidate expanded as far as allowed, with
-/// the flow index and solution of that LP.
+/// Best served_required of `outage` (evaluated as `eval`) with every candidate expanded as
+/// far as allowed, and the links whose capacity limits it. The value is snapped to the
+/// whole required demand when within [`TOL`], and never below what `eval` already serves.
 fn best_reachable(
+    net: &Network,
+    outage: &Outage,
+    cands: &Candidates,
+    eval: &Evaluation,
+) -> Result<(f64, Vec<LinkIdx>)> {
+    let required = eval.surviving_required;
+    let (best, links) = best_reachable_raw(net, outage, cands, required)?;
+    let best = if (required - best).abs() <= TOL * required.max(1.0) {
+        required
+    } else {
+        best.max(eval.served_required)
+    };
+    Ok((best, links))
+}
+
+fn best_reachable_raw(
     net: &Network,
     outage: &Outage,
     cands: &Candidates,
@@ -158,13 +175,8 @@ pub fn close(
         return Ok(None);
     }
     let required = eval.surviving_required;
-    let (best, binding_links) = best_reachable(net, outage, cands, required)?;
+    let (best, binding_links) = best_reachable(net, outage, cands, eval)?;
     let scale = required.max(1.0);
-    let best = if (required - best).abs() <= TOL * scale {
-        required
-    } else {
-        best.max(eval.served_required)
-    };
     if best <= eval.served_required + TOL * scale {
         return Ok(Some(Closing {
             cost: 0.0,
@@ -297,13 +309,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
             if e.shortfall <= 0.0 {
                 return Ok(e.served_required);
             }
-            let (b, _) = best_reachable(net, &audit.outages[k], &cands, e.surviving_required)?;
-            let scale = e.surviving_required.max(1.0);
-            Ok(if (e.surviving_required - b).abs() <= TOL * scale {
-                e.surviving_required
-            } else {
-                b.max(e.served_required)
-            })
+            Ok(best_reachable(net, &audit.outages[k], &cands, e)?.0)
         },
     )?;
     let gains = |k: usize| bests[k] - audit.evaluations[k].served_required;
@@ -313,13 +319,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
             Goal::WorstWithin(_) | Goal::TotalWithin(_) => audit.evaluations[k].shortfall > 0.0,
         })
         .collect();
-    let fraction = |e: &Evaluation| {
-        if e.surviving_required > 0.0 {
-            e.served_required / e.surviving_required
-        } else {
-            1.0
-        }
-    };
+    let fraction = Evaluation::served_fraction;
     // Start from the worst outages.
     let mut order = short.clone();
     order.sort_by(|&a, &b| {
@@ -412,13 +412,7 @@ fn generate(
         order,
         multiplicity,
     } = *data;
-    let fraction = |e: &Evaluation| {
-        if e.surviving_required > 0.0 {
-            e.served_required / e.surviving_required
-        } else {
-            1.0
-        }
-    };
+    let fraction = Evaluation::served_fraction;
     let mut active: Vec<usize> = match goal {
         Goal::TotalWithin(_) => order.to_vec(),
         _ => order.iter().copied().take(ADD_PER_ROUND).collect(),
@@ -498,13 +492,7 @@ fn meets(goal: Goal, audit: &Audit, best: &[f64], after: &[Evaluation], target: 
 fn after_worst(after: &[Evaluation]) -> f64 {
     after
         .iter()
-        .map(|e| {
-            if e.surviving_required > 0.0 {
-                e.served_required / e.surviving_required
-            } else {
-                1.0
-            }
-        })
+        .map(Evaluation::served_fraction)
         .fold(1.0, f64::min)
 }
 

@@ -295,14 +295,7 @@ pub fn plan_json(
     default_costs: bool,
 ) -> PlanJson {
     use crate::expand::Goal;
-    let first_scenario = |k: usize| -> Vec<String> {
-        let i = audit
-            .outage_of
-            .iter()
-            .position(|&o| o == k)
-            .expect("every outage has a scenario");
-        audit.scenarios[i].failed.clone()
-    };
+    let first_scenario = |k: usize| audit.first_scenario(k).failed.clone();
     PlanJson {
         network: net.name.clone(),
         unit: net.unit.clone(),

@@ -449,14 +449,7 @@ pub fn plan_report(
         let drivers: Vec<String> = plan.drivers[v]
             .iter()
             .take(3)
-            .map(|(k, _)| {
-                let i = audit
-                    .outage_of
-                    .iter()
-                    .position(|o| o == k)
-                    .expect("every outage has a scenario");
-                audit.scenarios[i].display_name()
-            })
+            .map(|(k, _)| audit.first_scenario(*k).display_name())
             .collect();
         t.add_row(vec![
             Cell::new(&net.sites[v].id),

@@ -106,6 +106,15 @@ impl Evaluation {
         v
     }
 
+    /// served_required / surviving required (1 when nothing is required).
+    pub fn served_fraction(&self) -> f64 {
+        if self.surviving_required > 0.0 {
+            self.served_required / self.surviving_required
+        } else {
+            1.0
+        }
+    }
+
     /// Relative gap between the certified upper bound and served_required.
     pub fn certified_gap(&self) -> f64 {
         let denom = self
