@@ -42,6 +42,9 @@ pub struct SiteFile {
     /// Processing is bought in modules of this size (our own optional field).
     #[serde(default)]
     pub expand_step: Option<f64>,
+    /// Probability that the site is down at a random moment (0 <= p < 1).
+    #[serde(default)]
+    pub failure_probability: Option<f64>,
 }
 
 /// One `links[]` entry.
@@ -58,6 +61,12 @@ pub struct LinkFile {
     /// Shared-risk link groups (SRLG, RFC 4202) the link belongs to.
     #[serde(default)]
     pub risk_groups: Option<Vec<String>>,
+    /// Routing metric of the link (a positive integer up to 16777215), both directions.
+    #[serde(default)]
+    pub metric: Option<f64>,
+    /// Probability that the link is down at a random moment (0 <= p < 1).
+    #[serde(default)]
+    pub failure_probability: Option<f64>,
 }
 
 /// One `demands[]` entry.

@@ -3,4 +3,6 @@
 pub mod file;
 pub mod network;
 
-pub use network::{Arc, Demand, Expansion, Link, LinkIdx, Network, RiskGroup, Site, SiteIdx};
+pub use network::{
+    Arc, Demand, Expansion, Link, LinkIdx, MAX_METRIC, Network, RiskGroup, Site, SiteIdx,
+};

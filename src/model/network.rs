@@ -36,6 +36,8 @@ pub struct Site {
     pub processing: f64,
     /// `None`: this site cannot be expanded.
     pub expansion: Option<Expansion>,
+    /// Unavailability (probability of being down), when the file gives one.
+    pub failure_probability: Option<f64>,
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -48,6 +50,35 @@ pub struct Link {
     pub one_way: bool,
     /// Indices into [`Network::groups`].
     pub groups: Vec<usize>,
+    /// Routing metric (1..=[`MAX_METRIC`]), the same in both directions; 1 when absent.
+    pub metric: u32,
+    /// Unavailability (probability of being down), when the file gives one.
+    pub failure_probability: Option<f64>,
+}
+
+/// Largest routing metric a link may carry (24 bits, as link-state protocols allow).
+pub const MAX_METRIC: u32 = 16_777_215;
+
+/// Checks an optional failure probability: a finite number with 0 <= p < 1.
+fn probability(element: &str, value: Option<f64>) -> Result<Option<f64>> {
+    match value {
+        None => Ok(None),
+        Some(p) if p.is_finite() && (0.0..1.0).contains(&p) => Ok(Some(p)),
+        Some(p) => Err(Error::Input(format!(
+            "{element}: field `failure_probability` must be a number with 0 <= p < 1, got {p}"
+        ))),
+    }
+}
+
+/// Checks a routing metric: a whole number from 1 to [`MAX_METRIC`]; 1 when absent.
+fn metric(element: &str, value: Option<f64>) -> Result<u32> {
+    match value {
+        None => Ok(1),
+        Some(m) if m.fract() == 0.0 && (1.0..=MAX_METRIC as f64).contains(&m) => Ok(m as u32),
+        Some(m) => Err(Error::Input(format!(
+            "{element}: field `metric` must be a whole number from 1 to {MAX_METRIC}, got {m}"
+        ))),
+    }
 }
 
 /// One direction of a link: the unit the LP's capacity rows are written for.
@@ -184,6 +215,7 @@ impl Network {
                 id: s.id.clone(),
                 processing,
                 expansion,
+                failure_probability: probability(&el, s.failure_probability)?,
             });
         }
         let lookup = |el: &str, field: &str, id: &str| -> Result<SiteIdx> {
@@ -233,6 +265,8 @@ impl Network {
                 capacity,
                 one_way: l.one_way.unwrap_or(false),
                 groups: Vec::new(),
+                metric: metric(&el, l.metric)?,
+                failure_probability: probability(&el, l.failure_probability)?,
             });
         }
         let mut groups = Vec::with_capacity(group_members.len());
