@@ -48,11 +48,44 @@ pub struct ScenarioJson {
     pub bottlenecks: Vec<BottleneckJson>,
     /// Surviving demands no walk through a processing site can serve.
     pub cut_off_demands: Vec<String>,
+    /// Why each cut-off demand cannot be served: `no path` or `no processing reachable`.
+    pub cut_off_reasons: BTreeMap<String, &'static str>,
+    /// How served_required was verified (bounds, residual, backend).
+    pub verification: VerificationJson,
+    /// How throughput was verified, when it needed its own LP.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub throughput_verification: Option<VerificationJson>,
     /// Shadow price of each site's processing row: served units per added unit.
     pub site_prices: BTreeMap<String, f64>,
     /// Issue-3 closing, present when requested (`null` when the scenario has no shortfall).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub closing: Option<serde_json::Value>,
+}
+
+/// The verifier's account of one LP result.
+#[derive(Serialize)]
+pub struct VerificationJson {
+    /// `proven` (the bounds meet) or `unproven` (served is the proven lower bound).
+    pub status: &'static str,
+    pub lower_bound: f64,
+    pub upper_bound: f64,
+    /// Largest relative row residual of the kept allocation.
+    pub residual: f64,
+    pub backend: &'static str,
+    pub attempts: usize,
+}
+
+impl VerificationJson {
+    pub fn of(v: &crate::solve::Verification) -> VerificationJson {
+        VerificationJson {
+            status: if v.proven { "proven" } else { "unproven" },
+            lower_bound: round9(v.lower),
+            upper_bound: round9(v.upper),
+            residual: v.residual,
+            backend: v.backend,
+            attempts: v.attempts,
+        }
+    }
 }
 
 #[derive(Serialize)]
@@ -158,8 +191,23 @@ pub fn scenario_json(
         cut_off_demands: e
             .cut_off
             .iter()
-            .map(|&d| net.demands[d].label.clone())
+            .map(|&(d, _)| net.demands[d].label.clone())
             .collect(),
+        cut_off_reasons: e
+            .cut_off
+            .iter()
+            .map(|&(d, r)| {
+                (
+                    net.demands[d].label.clone(),
+                    match r {
+                        crate::solve::Unservable::NoPath => "no path",
+                        crate::solve::Unservable::NoProcessing => "no processing reachable",
+                    },
+                )
+            })
+            .collect(),
+        verification: VerificationJson::of(&e.verification),
+        throughput_verification: e.throughput_verification.as_ref().map(VerificationJson::of),
         site_prices: net
             .sites
             .iter()

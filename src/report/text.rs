@@ -108,21 +108,35 @@ pub fn check_summary(net: &Network) -> String {
     out
 }
 
-/// Names the main bottleneck of a scenario with a shortfall: the saturated resource with
-/// the highest shadow price.
+/// Names the cause of a scenario's shortfall in words: demands with no path, demands
+/// with no processing reachable, or the saturated resource with the highest shadow price
+/// (a link direction or a site's processing). Cut-off demands are named when they make up
+/// at least half of the shortfall.
 pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
+    use crate::solve::Unservable;
     if e.shortfall <= 0.0 {
         return "—".into();
     }
-    let cut: f64 = e.cut_off.iter().map(|&d| net.demands[d].required).sum();
-    match e.bottlenecks.iter().find(|b| b.price > 0.0) {
-        Some(b) if cut < e.shortfall / 2.0 => resource_name(net, b.resource),
-        _ if cut > 0.0 => format!(
-            "no path: {} demand{} cut off",
-            e.cut_off.len(),
-            if e.cut_off.len() == 1 { "" } else { "s" }
-        ),
-        Some(b) => resource_name(net, b.resource),
+    let count = |reason| e.cut_off.iter().filter(|(_, r)| *r == reason).count();
+    let no_path = e.cut_off_required(net, Unservable::NoPath);
+    let no_proc = e.cut_off_required(net, Unservable::NoProcessing);
+    let demands = |n: usize| format!("{n} demand{}", if n == 1 { "" } else { "s" });
+    let saturated = e.bottlenecks.iter().find(|b| b.price > 0.0);
+    if no_path + no_proc >= e.shortfall / 2.0 && no_path + no_proc > 0.0 {
+        return if no_proc > no_path {
+            format!(
+                "no processing reachable: {}",
+                demands(count(Unservable::NoProcessing))
+            )
+        } else {
+            format!("no path: {} cut off", demands(count(Unservable::NoPath)))
+        };
+    }
+    match saturated {
+        Some(b) => match b.resource {
+            Resource::Arc(_) => format!("saturated {}", resource_name(net, b.resource)),
+            Resource::Site(v) => format!("saturated processing at {}", net.sites[v].id),
+        },
         None => "—".into(),
     }
 }
@@ -360,8 +374,8 @@ pub fn closing_report(
             } else if c.binding_links.is_empty() {
                 match audit.eval(i).cut_off.len() {
                     0 => "expansion limits (expand_max, candidate sites)".into(),
-                    1 => "no path for 1 demand".into(),
-                    n => format!("no path for {n} demands"),
+                    1 => "no path (or no candidate site) for 1 demand".into(),
+                    n => format!("no path (or no candidate site) for {n} demands"),
                 }
             } else {
                 link_list(net, &c.binding_links, 3)

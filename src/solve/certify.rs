@@ -20,45 +20,48 @@
 use petgraph::algo::dijkstra;
 use petgraph::graph::{DiGraph, NodeIndex};
 
+use super::surviving::Surviving;
 use crate::model::Network;
-use crate::scenario::Outage;
 
-/// Computes the dual bound above for demand caps `bound[d]`, arc prices `arc_price`
-/// (indexed like `Network::arcs`) and site prices `site_price`; negative prices are
-/// treated as 0. Sites with no processing capacity (`capacity[v] <= 0`) cannot process.
-/// `capacity[v]` is the processing capacity to price (the site's own, or with additions).
+/// Computes the dual bound above on the surviving network `view` (the same view the LP
+/// was built on: only usable arcs, only sites that can process), for demand caps
+/// `bound[d]`, arc capacities `arc_cap` and prices `arc_price` (indexed like
+/// `Network::arcs`), and site capacities `site_cap` and prices `site_price`. Negative
+/// prices are treated as 0. Any capacities at least as large as what an optimal
+/// allocation uses give a valid bound (the presolved ones of [`super::flow::FlowIndex`]
+/// qualify).
 pub fn dual_bound(
     net: &Network,
-    outage: &Outage,
+    view: &Surviving,
     bound: &[f64],
-    capacity: &[f64],
+    arc_cap: &[f64],
+    site_cap: &[f64],
     arc_price: &[f64],
     site_price: &[f64],
 ) -> f64 {
     let n = net.sites.len();
-    let site_alive = outage.site_alive(net);
-    let link_alive = outage.link_alive(net);
-    let mut fwd: DiGraph<(), f64> = DiGraph::with_capacity(n, net.arcs.len());
-    let mut rev: DiGraph<(), f64> = DiGraph::with_capacity(n, net.arcs.len());
+    let mut fwd: DiGraph<(), f64> = DiGraph::with_capacity(n, view.arcs.len());
+    let mut rev: DiGraph<(), f64> = DiGraph::with_capacity(n, view.arcs.len());
     for _ in 0..n {
         fwd.add_node(());
         rev.add_node(());
     }
     let mut total = 0.0;
-    for (a, arc) in net.arcs.iter().enumerate() {
-        if !link_alive[arc.link] {
-            continue;
-        }
+    for &a in &view.arcs {
+        let arc = &net.arcs[a];
         let y = arc_price[a].max(0.0);
-        total += arc.capacity * y;
+        if y > 0.0 {
+            total += arc_cap[a] * y;
+        }
         fwd.add_edge(NodeIndex::new(arc.from), NodeIndex::new(arc.to), y);
         rev.add_edge(NodeIndex::new(arc.to), NodeIndex::new(arc.from), y);
     }
-    let procs: Vec<usize> = (0..n)
-        .filter(|&v| site_alive[v] && capacity[v] > 0.0)
-        .collect();
+    let procs: Vec<usize> = (0..n).filter(|&v| view.can_process[v]).collect();
     for &v in &procs {
-        total += capacity[v] * site_price[v].max(0.0);
+        let z = site_price[v].max(0.0);
+        if z > 0.0 {
+            total += site_cap[v] * z;
+        }
     }
     let mut from_cache: Vec<Option<Vec<f64>>> = vec![None; n];
     let mut to_cache: Vec<Option<Vec<f64>>> = vec![None; n];
@@ -71,7 +74,7 @@ pub fn dual_bound(
         d
     };
     for (d, dem) in net.demands.iter().enumerate() {
-        if !site_alive[dem.from] || !site_alive[dem.to] || bound[d] <= 0.0 {
+        if !view.demand_alive(net, d) || bound[d] <= 0.0 {
             continue;
         }
         if from_cache[dem.from].is_none() {

@@ -29,9 +29,8 @@
 //! (flow elsewhere could never reach a sink) and cuts the model size on sparse networks.
 //! Cost: two breadth-first searches per source and layer, O(sources · (sites + arcs)).
 
-use std::collections::VecDeque;
-
 use super::lp::{Lp, Sense};
+use super::surviving::Surviving;
 use crate::model::Network;
 use crate::scenario::Outage;
 
@@ -42,6 +41,25 @@ pub enum Cap {
     Required,
     /// `f_d <= volume_d`: all offered traffic (throughput).
     Volume,
+}
+
+/// One source's block of the model: which variable carries what.
+#[derive(Debug, Clone)]
+pub struct SourceBlock {
+    /// The origin site of the block's demands.
+    pub source: usize,
+    /// `(demand, flow variable)` for each demand of this source with a variable.
+    pub demands: Vec<(usize, usize)>,
+    /// `(arc, variable)` of the unprocessed layer.
+    pub arc0: Vec<(usize, usize)>,
+    /// `(arc, variable)` of the processed layer.
+    pub arc1: Vec<(usize, usize)>,
+    /// `(site, variable)` of the conversions (processing) from layer 0 to layer 1.
+    pub procs: Vec<(usize, usize)>,
+    /// Σ of the block's demand bounds: no arc of one layer needs to carry more than this.
+    pub bound: f64,
+    /// The block's conservation rows.
+    pub rows: Vec<usize>,
 }
 
 /// Where the flow model's pieces sit in the LP.
@@ -59,9 +77,40 @@ pub struct FlowIndex {
     pub arc_vars: Vec<Vec<usize>>,
     /// Per site: every processing variable at it.
     pub site_vars: Vec<Vec<usize>>,
+    /// Per arc: the right-hand side of its capacity row after presolve,
+    /// `min(capacity, 2 · Σ bounds of the sources using it)` (0 when it has no row).
+    pub arc_cap: Vec<f64>,
+    /// Per site: the right-hand side of its processing row after presolve,
+    /// `min(processing, Σ bounds of the sources that may process there)`.
+    pub site_cap: Vec<f64>,
+    /// Per source with variables: its block.
+    pub blocks: Vec<SourceBlock>,
 }
 
 impl FlowIndex {
+    /// The natural magnitude of each row and variable of `lp` for [`super::verify::residual`]:
+    /// a block's demand bound for its conservation rows and its variables (what they can
+    /// carry), `default` elsewhere (capacity rows are judged by their own right-hand side).
+    pub fn magnitudes(&self, lp: &Lp, default: f64) -> (Vec<f64>, Vec<f64>) {
+        let mut rows = vec![default; lp.rows.len()];
+        let mut vars = vec![default; lp.num_vars()];
+        for b in &self.blocks {
+            for &r in &b.rows {
+                rows[r] = rows[r].max(b.bound);
+            }
+            let all = b
+                .demands
+                .iter()
+                .chain(&b.arc0)
+                .chain(&b.arc1)
+                .chain(&b.procs);
+            for &(_, v) in all {
+                vars[v] = vars[v].max(b.bound);
+            }
+        }
+        (rows, vars)
+    }
+
     /// Σ f_d of a solution.
     pub fn served(&self, x: &[f64]) -> f64 {
         self.demand_var.iter().flatten().map(|&v| x[v]).sum()
@@ -92,33 +141,20 @@ impl FlowIndex {
     }
 }
 
-/// Breadth-first reachability over `adj` from all `starts`. O(nodes + arcs).
-fn reach(adj: &[Vec<usize>], starts: impl IntoIterator<Item = usize>) -> Vec<bool> {
-    let mut seen = vec![false; adj.len()];
-    let mut queue = VecDeque::new();
-    for s in starts {
-        if !seen[s] {
-            seen[s] = true;
-            queue.push_back(s);
-        }
-    }
-    while let Some(u) = queue.pop_front() {
-        for &v in &adj[u] {
-            if !seen[v] {
-                seen[v] = true;
-                queue.push_back(v);
-            }
-        }
-    }
-    seen
-}
-
 /// Appends the two-layer flow model of `net` under `outage` to `lp`, with flow variables
 /// capped per `cap` and objective coefficient `obj` on each flow variable.
 ///
 /// `added[v]`, when given, is a variable (already in `lp`) of processing added at site `v`:
 /// its processing row becomes `Σ p - add_v <= processing_v`, and the site may process even
 /// when its own capacity is 0. Sites with no capacity and no added variable never process.
+///
+/// **Presolve.** Capacities that cannot bind are lowered before they reach the solver, so
+/// a link written as `1e12` ("unlimited") does not set the model's scale. Some optimal
+/// allocation has no cycle within a layer of a source's block (dropping a cycle frees
+/// capacity and changes no demand flow), so each layer of block `s` carries at most
+/// `B_s = Σ bounds of s's demands` on any arc, and its conversions total at most `B_s`.
+/// Hence the capacity row of an arc may use `min(capacity, Σ_s (B_s per layer it appears
+/// in))` and a processing row `min(processing, Σ_s B_s)` without changing the optimum.
 ///
 /// Size: per source, at most 2·arcs + sites variables and 2·sites conservation rows, plus
 /// one row per arc and per processing site.
@@ -131,60 +167,65 @@ pub fn build(
     added: Option<&[Option<usize>]>,
 ) -> FlowIndex {
     let n = net.sites.len();
-    let site_alive = outage.site_alive(net);
-    let link_alive = outage.link_alive(net);
-    let can_process: Vec<bool> = (0..n)
-        .map(|v| {
-            site_alive[v]
-                && (net.sites[v].processing > 0.0
-                    || added.is_some_and(|a| a.get(v).copied().flatten().is_some()))
-        })
-        .collect();
-    // Usable arcs: the link survives and has capacity.
-    let usable: Vec<usize> = (0..net.arcs.len())
-        .filter(|&a| link_alive[net.arcs[a].link] && net.arcs[a].capacity > 0.0)
-        .collect();
-    let mut fwd = vec![Vec::new(); n];
-    let mut back = vec![Vec::new(); n];
-    for &a in &usable {
-        fwd[net.arcs[a].from].push(net.arcs[a].to);
-        back[net.arcs[a].to].push(net.arcs[a].from);
-    }
+    let expandable: Option<Vec<bool>> = added.map(|a| {
+        (0..n)
+            .map(|v| a.get(v).copied().flatten().is_some())
+            .collect()
+    });
+    let view = Surviving::new(net, outage, expandable.as_deref());
+    build_on(lp, net, &view, cap, obj, added)
+}
 
+/// [`build`] on an already computed view of the surviving network.
+pub fn build_on(
+    lp: &mut Lp,
+    net: &Network,
+    view: &Surviving,
+    cap: Cap,
+    obj: f64,
+    added: Option<&[Option<usize>]>,
+) -> FlowIndex {
+    let n = net.sites.len();
     let mut index = FlowIndex {
         demand_var: vec![None; net.demands.len()],
         arc_row: vec![None; net.arcs.len()],
         site_row: vec![None; n],
         arc_vars: vec![Vec::new(); net.arcs.len()],
         site_vars: vec![Vec::new(); n],
+        arc_cap: vec![0.0; net.arcs.len()],
+        site_cap: vec![0.0; n],
+        blocks: Vec::new(),
+    };
+    let bound_of = |d: usize| match cap {
+        Cap::Required => net.demands[d].required,
+        Cap::Volume => net.demands[d].volume,
     };
 
     // Demands grouped by source, in site order (deterministic model layout).
     let mut by_source: Vec<Vec<usize>> = vec![Vec::new(); n];
-    for (d, dem) in net.demands.iter().enumerate() {
-        let bound = match cap {
-            Cap::Required => dem.required,
-            Cap::Volume => dem.volume,
-        };
-        if site_alive[dem.from] && site_alive[dem.to] && bound > 0.0 {
-            by_source[dem.from].push(d);
+    for d in 0..net.demands.len() {
+        if view.demand_alive(net, d) && bound_of(d) > 0.0 {
+            by_source[net.demands[d].from].push(d);
         }
     }
+    // Presolve sums: per arc and per site, Σ B_s over the blocks that use it.
+    let mut arc_reach = vec![0.0; net.arcs.len()];
+    let mut site_reach = vec![0.0; n];
 
     for (s, demands) in by_source.iter().enumerate() {
         if demands.is_empty() {
             continue;
         }
-        let from_s = reach(&fwd, [s]);
-        let to_dest = reach(&back, demands.iter().map(|&d| net.demands[d].to));
+        let from_s = view.reach_from([s]);
+        let to_dest = view.reach_to(demands.iter().map(|&d| net.demands[d].to));
         let procs: Vec<usize> = (0..n)
-            .filter(|&v| can_process[v] && from_s[v] && to_dest[v])
+            .filter(|&v| view.can_process[v] && from_s[v] && to_dest[v])
             .collect();
         if procs.is_empty() {
             continue;
         }
-        let from_proc = reach(&fwd, procs.iter().copied());
-        let to_proc = reach(&back, procs.iter().copied());
+        let from_proc = view.reach_from(procs.iter().copied());
+        let to_proc = view.reach_to(procs.iter().copied());
         let in0: Vec<bool> = (0..n).map(|v| from_s[v] && to_proc[v]).collect();
         let in1: Vec<bool> = (0..n).map(|v| from_proc[v] && to_dest[v]).collect();
 
@@ -192,36 +233,47 @@ pub fn build(
         // layer 0: out0 - in0 + p - [v = s]·Σf = 0; layer 1: in1 - out1 + p - Σ_{to v} f = 0.
         let mut row0: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
         let mut row1: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
+        let mut block = SourceBlock {
+            source: s,
+            demands: Vec::new(),
+            arc0: Vec::new(),
+            arc1: Vec::new(),
+            procs: Vec::new(),
+            bound: 0.0,
+            rows: Vec::new(),
+        };
         for &d in demands {
             let dem = &net.demands[d];
             if !in1[dem.to] {
                 continue;
             }
-            let bound = match cap {
-                Cap::Required => dem.required,
-                Cap::Volume => dem.volume,
-            };
-            let f = lp.add_var(0.0, bound, obj);
+            let f = lp.add_var(0.0, bound_of(d), obj);
             index.demand_var[d] = Some(f);
+            block.demands.push((d, f));
+            block.bound += bound_of(d);
             row0[s].push((f, -1.0));
             row1[dem.to].push((f, -1.0));
         }
-        if row0[s].is_empty() {
+        if block.demands.is_empty() {
             continue;
         }
-        for &a in &usable {
+        for &a in &view.arcs {
             let arc = net.arcs[a];
             if in0[arc.from] && in0[arc.to] {
                 let x = lp.add_var(0.0, f64::INFINITY, 0.0);
                 row0[arc.from].push((x, 1.0));
                 row0[arc.to].push((x, -1.0));
                 index.arc_vars[a].push(x);
+                block.arc0.push((a, x));
+                arc_reach[a] += block.bound;
             }
             if in1[arc.from] && in1[arc.to] {
                 let x = lp.add_var(0.0, f64::INFINITY, 0.0);
                 row1[arc.to].push((x, 1.0));
                 row1[arc.from].push((x, -1.0));
                 index.arc_vars[a].push(x);
+                block.arc1.push((a, x));
+                arc_reach[a] += block.bound;
             }
         }
         for &v in &procs {
@@ -229,18 +281,27 @@ pub fn build(
             row0[v].push((p, 1.0));
             row1[v].push((p, 1.0));
             index.site_vars[v].push(p);
+            block.procs.push((v, p));
+            site_reach[v] += block.bound;
         }
         for coeffs in row0.into_iter().chain(row1) {
             if !coeffs.is_empty() {
-                lp.add_row(coeffs, Sense::Eq, 0.0);
+                block.rows.push(lp.add_row(coeffs, Sense::Eq, 0.0));
             }
         }
+        let all = block.demands.iter().chain(&block.arc0).chain(&block.arc1);
+        for &(_, v) in all.chain(&block.procs) {
+            lp.magnitude[v] = block.bound;
+        }
+        index.blocks.push(block);
     }
 
-    for a in 0..net.arcs.len() {
+    for (a, &reach) in arc_reach.iter().enumerate() {
         if !index.arc_vars[a].is_empty() {
             let coeffs = index.arc_vars[a].iter().map(|&x| (x, 1.0)).collect();
-            index.arc_row[a] = Some(lp.add_row(coeffs, Sense::Le, net.arcs[a].capacity));
+            let rhs = net.arcs[a].capacity.min(reach);
+            index.arc_cap[a] = rhs;
+            index.arc_row[a] = Some(lp.add_row(coeffs, Sense::Le, rhs));
         }
     }
     for v in 0..n {
@@ -250,7 +311,9 @@ pub fn build(
             if let Some(add) = added.and_then(|a| a[v]) {
                 coeffs.push((add, -1.0));
             }
-            index.site_row[v] = Some(lp.add_row(coeffs, Sense::Le, net.sites[v].processing));
+            let rhs = net.sites[v].processing.min(site_reach[v]);
+            index.site_cap[v] = rhs;
+            index.site_row[v] = Some(lp.add_row(coeffs, Sense::Le, rhs));
         }
     }
     index

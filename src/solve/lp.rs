@@ -1,13 +1,21 @@
-//! A small sparse LP representation and the one place that talks to the LP backend.
+//! A small sparse LP representation and the one place that talks to the LP backends.
 //!
-//! Models are written against [`Lp`] (variables with bounds, rows with a sense); [`solve`]
-//! hands them to good_lp's pure-Rust `clarabel` interior-point backend and returns primal
-//! values, the shadow price of every row and the objective. Nothing outside this file
-//! names good_lp.
+//! Models are written against [`Lp`] (variables with bounds, rows with a sense). A
+//! [`Backend`] solves one and returns primal values, the shadow price of every row and of
+//! every finite upper bound, and the objective. Two backends exist, both pure Rust through
+//! good_lp: [`Clarabel`] (interior point; the default, at two tolerance levels) and
+//! [`Simplex`] (microlp, a simplex method returning a vertex; its shadow prices come from
+//! solving the explicit dual LP, a second formulation). Nothing outside this file names
+//! good_lp.
+//!
+//! Every model is scaled before it reaches a backend ([`Scaling`]): rows and columns by
+//! powers of two (exact in floating point), so that coefficients, right-hand sides and
+//! bounds sit near 1 whatever the traffic unit. Results are mapped back to the model's own
+//! units; shadow prices are unchanged by the scaling.
 
 use good_lp::{
     Expression, ProblemVariables, Solution, SolutionWithDual, SolverModel, Variable, clarabel,
-    constraint::ConstraintReference, variable,
+    constraint::ConstraintReference, microlp, variable,
 };
 
 use crate::error::{Error, Result};
@@ -35,6 +43,10 @@ pub struct Lp {
     pub objective: Vec<f64>,
     pub maximise: bool,
     pub rows: Vec<Row>,
+    /// Per variable: the magnitude of the values it may take in an optimum (0 when
+    /// unknown), a hint for [`Scaling::of`]. The flow model sets each variable's to the
+    /// demand of its source's block.
+    pub magnitude: Vec<f64>,
 }
 
 /// An optimal solution: primal values, one shadow price per row (d objective / d rhs,
@@ -62,6 +74,7 @@ impl Lp {
         self.lower.push(lower);
         self.upper.push(upper);
         self.objective.push(obj);
+        self.magnitude.push(0.0);
         self.lower.len() - 1
     }
 
@@ -127,44 +140,261 @@ fn expression(coeffs: &[(usize, f64)], vars: &[Variable]) -> Expression {
     e
 }
 
-/// Solves `lp` to optimality with the clarabel interior-point method (primal and dual
-/// feasibility and gap tolerances 1e-9 / 1e-9 / 1e-9 relative).
+/// A solver for [`Lp`] models. Implementations must return, for an optimal solution, the
+/// primal values, one shadow price per row and per variable upper bound (the derivative of
+/// the optimum with respect to that right-hand side), and the objective.
+pub trait Backend: Sync {
+    /// A short name for reports (`interior-point`, `simplex`).
+    fn name(&self) -> &'static str;
+    /// Solves `lp`; `warm`, when given, is a previous solution of a model with the same
+    /// variables that the backend may start from (backends without warm start ignore it).
+    fn solve(&self, lp: &Lp, warm: Option<&LpSolution>) -> Result<LpSolution>;
+}
+
+/// clarabel's interior-point method with feasibility and gap tolerances `tol` (relative).
+#[derive(Debug, Clone, Copy)]
+pub struct Clarabel {
+    pub tol: f64,
+    pub max_iter: u32,
+}
+
+/// The default interior-point settings.
+pub const CLARABEL: Clarabel = Clarabel {
+    tol: 1e-9,
+    max_iter: 400,
+};
+
+/// Tighter interior-point settings, tried when a default solve fails verification.
+pub const CLARABEL_TIGHT: Clarabel = Clarabel {
+    tol: 1e-12,
+    max_iter: 1000,
+};
+
+/// microlp's simplex method (a vertex solution); shadow prices from the explicit dual LP.
+#[derive(Debug, Clone, Copy)]
+pub struct Simplex;
+
+/// Solves `lp` with the default backend ([`CLARABEL`]).
 ///
 /// Every model built by this crate is feasible and bounded; any other status is returned
 /// as [`Error::Solver`].
 pub fn solve(lp: &Lp) -> Result<LpSolution> {
-    // Uniform scaling: with x = S·x', the model min c·x, A·x ≤ b, l ≤ x ≤ u becomes
-    // A·x' ≤ b/S, l/S ≤ x' ≤ u/S with the same shadow prices and objective c·x' = c·x / S.
-    // Solving with S = the largest right-hand side or bound keeps the interior-point
-    // method's absolute tolerances meaningful whatever the traffic unit (bit/s or Tbit/s).
-    let scale = lp
-        .rows
-        .iter()
-        .map(|r| r.rhs.abs())
-        .chain(lp.upper.iter().filter(|u| u.is_finite()).map(|u| u.abs()))
-        .chain(lp.lower.iter().filter(|l| l.is_finite()).map(|l| l.abs()))
-        .fold(0.0, f64::max);
-    if scale > 0.0 && scale.is_finite() && (scale - 1.0).abs() > f64::EPSILON {
-        let mut scaled = lp.clone();
-        for r in &mut scaled.rows {
-            r.rhs /= scale;
-        }
-        for b in scaled.upper.iter_mut().chain(scaled.lower.iter_mut()) {
-            if b.is_finite() {
-                *b /= scale;
-            }
-        }
-        let mut sol = solve_unscaled(&scaled)?;
-        for x in &mut sol.x {
-            *x *= scale;
-        }
-        sol.objective *= scale;
-        return Ok(sol);
-    }
-    solve_unscaled(lp)
+    CLARABEL.solve(lp, None)
 }
 
-fn solve_unscaled(lp: &Lp) -> Result<LpSolution> {
+impl Backend for Clarabel {
+    fn name(&self) -> &'static str {
+        "interior-point"
+    }
+
+    fn solve(&self, lp: &Lp, _warm: Option<&LpSolution>) -> Result<LpSolution> {
+        let scaling = Scaling::of(lp);
+        let scaled = scaling.apply(lp);
+        let sol = solve_clarabel(&scaled, *self)?;
+        Ok(scaling.unscale(lp, sol))
+    }
+}
+
+impl Backend for Simplex {
+    fn name(&self) -> &'static str {
+        "simplex"
+    }
+
+    fn solve(&self, lp: &Lp, _warm: Option<&LpSolution>) -> Result<LpSolution> {
+        let scaling = Scaling::of(lp);
+        let scaled = scaling.apply(lp);
+        let primal = solve_microlp(&scaled)?;
+        let (dual, map) = dual_of(&scaled)?;
+        let dsol = solve_microlp(&dual)?;
+        let mut duals = vec![0.0; scaled.rows.len()];
+        let mut upper_duals = vec![0.0; scaled.num_vars()];
+        let sign = if scaled.maximise { 1.0 } else { -1.0 };
+        for (i, v) in map.rows.iter().enumerate() {
+            duals[i] = sign * dsol.x[*v];
+        }
+        for (j, v) in map.uppers.iter().enumerate() {
+            if let Some(v) = v {
+                upper_duals[j] = sign * dsol.x[*v];
+            }
+        }
+        let sol = LpSolution {
+            objective: primal.objective,
+            x: primal.x,
+            duals,
+            upper_duals,
+        };
+        Ok(scaling.unscale(lp, sol))
+    }
+}
+
+/// Row and column scale factors (powers of two): the backend sees `x = S·x'`, rows
+/// multiplied by `R`, and the objective by `σ`. Then coefficients become `r_i·a_ij·s_j`,
+/// right-hand sides `r_i·b_i`, bounds `u_j / s_j`, objective coefficients `σ·c_j·s_j`;
+/// a solution maps back by `x = S·x'`, row prices `y = R·y' / σ`, bound prices
+/// `w = w' / (s_j·σ)`. Exact: powers of two change no mantissa.
+#[derive(Debug, Clone)]
+pub struct Scaling {
+    pub row: Vec<f64>,
+    pub col: Vec<f64>,
+    pub objective: f64,
+}
+
+/// The nearest power of two to a positive finite `x` (1 otherwise).
+fn pow2(x: f64) -> f64 {
+    if x.is_finite() && x > 0.0 {
+        2f64.powi(x.log2().round().clamp(-1000.0, 1000.0) as i32)
+    } else {
+        1.0
+    }
+}
+
+impl Scaling {
+    /// Column factors from the variables' magnitude hints ([`Lp::magnitude`]; 1 without
+    /// one), then each row scaled so that its largest coefficient is about 1, then one
+    /// common factor so that the largest right-hand side or bound is about 1 (columns
+    /// multiplied and rows divided by it). In the flow model this expresses each source's
+    /// flows in units of its own demand, so a source of 1e-6 units and one of 1e15 units
+    /// are each solved to the backend's relative accuracy within their own rows.
+    /// O(nonzeros).
+    pub fn of(lp: &Lp) -> Scaling {
+        let nv = lp.num_vars();
+        let mut col: Vec<f64> = (0..nv)
+            .map(|j| {
+                let m = lp.magnitude.get(j).copied().unwrap_or(0.0);
+                if m > 0.0 { pow2(m) } else { 1.0 }
+            })
+            .collect();
+        let mut row: Vec<f64> = lp
+            .rows
+            .iter()
+            .map(|r| {
+                let m = r
+                    .coeffs
+                    .iter()
+                    .map(|&(j, a)| (a * col[j]).abs())
+                    .fold(0.0, f64::max);
+                if m > 0.0 { pow2(1.0 / m) } else { 1.0 }
+            })
+            .collect();
+        let size = lp
+            .rows
+            .iter()
+            .zip(&row)
+            .map(|(r, f)| (r.rhs * f).abs())
+            .chain(
+                lp.upper
+                    .iter()
+                    .chain(&lp.lower)
+                    .enumerate()
+                    .map(|(k, b)| (b / col[k % nv.max(1)]).abs()),
+            )
+            .filter(|b| b.is_finite())
+            .fold(0.0, f64::max);
+        let common = if size > 0.0 { pow2(size) } else { 1.0 };
+        for c in &mut col {
+            *c *= common;
+        }
+        for r in &mut row {
+            *r /= common;
+        }
+        let cmax = lp
+            .objective
+            .iter()
+            .zip(&col)
+            .map(|(c, s)| (c * s).abs())
+            .fold(0.0, f64::max);
+        Scaling {
+            row,
+            col,
+            objective: if cmax > 0.0 { pow2(1.0 / cmax) } else { 1.0 },
+        }
+    }
+
+    /// The scaled model the backend sees.
+    pub fn apply(&self, lp: &Lp) -> Lp {
+        let mut out = lp.clone();
+        for (i, r) in out.rows.iter_mut().enumerate() {
+            for (j, a) in r.coeffs.iter_mut() {
+                *a *= self.row[i] * self.col[*j];
+            }
+            r.rhs *= self.row[i];
+        }
+        for j in 0..out.num_vars() {
+            out.upper[j] /= self.col[j];
+            out.lower[j] /= self.col[j];
+            out.objective[j] *= self.col[j] * self.objective;
+        }
+        out
+    }
+
+    /// A solution of the scaled model, in the units of `lp`; the objective is recomputed
+    /// from `lp`'s own coefficients.
+    pub fn unscale(&self, lp: &Lp, mut sol: LpSolution) -> LpSolution {
+        for (x, s) in sol.x.iter_mut().zip(&self.col) {
+            *x *= s;
+        }
+        for (y, r) in sol.duals.iter_mut().zip(&self.row) {
+            *y *= r / self.objective;
+        }
+        for (w, s) in sol.upper_duals.iter_mut().zip(&self.col) {
+            *w /= s * self.objective;
+        }
+        sol.objective = lp.objective.iter().zip(&sol.x).map(|(c, v)| c * v).sum();
+        sol
+    }
+}
+
+/// Where the dual LP keeps the price of each primal row and upper bound.
+struct DualMap {
+    rows: Vec<usize>,
+    uppers: Vec<Option<usize>>,
+}
+
+/// The explicit dual of `lp`, as a minimisation whose variables are the shadow prices of
+/// a maximisation: for `max c·x, A x (≤,=,≥) b, l ≤ x ≤ u` (l finite) it is
+/// `min Σ (b_i − A_i l)·y_i + Σ (u_j − l_j)·w_j + c·l` over `A^T y + w ≥ c`, with `y_i ≥ 0`
+/// for `≤` rows, free for `=` rows, `≤ 0` for `≥` rows, `w ≥ 0`. A minimisation is dualised
+/// as `max −c·x`. Free variables (infinite lower bound) are not supported.
+fn dual_of(lp: &Lp) -> Result<(Lp, DualMap)> {
+    let sign = if lp.maximise { 1.0 } else { -1.0 };
+    let nv = lp.num_vars();
+    if lp.lower.iter().any(|l| !l.is_finite()) {
+        return Err(Error::Solver(
+            "simplex dual: free variables are not supported".into(),
+        ));
+    }
+    let mut d = Lp::new(false);
+    let mut cols: Vec<Vec<(usize, f64)>> = vec![Vec::new(); nv];
+    let mut rows = Vec::with_capacity(lp.rows.len());
+    for r in &lp.rows {
+        let shift: f64 = r.coeffs.iter().map(|&(j, a)| a * lp.lower[j]).sum();
+        let (lo, hi) = match r.sense {
+            Sense::Le => (0.0, f64::INFINITY),
+            Sense::Eq => (f64::NEG_INFINITY, f64::INFINITY),
+            Sense::Ge => (f64::NEG_INFINITY, 0.0),
+        };
+        let y = d.add_var(lo, hi, r.rhs - shift);
+        for &(j, a) in &r.coeffs {
+            cols[j].push((y, a));
+        }
+        rows.push(y);
+    }
+    let mut uppers = vec![None; nv];
+    for j in 0..nv {
+        if lp.upper[j].is_finite() {
+            let w = d.add_var(0.0, f64::INFINITY, lp.upper[j] - lp.lower[j]);
+            cols[j].push((w, 1.0));
+            uppers[j] = Some(w);
+        }
+    }
+    for (j, coeffs) in cols.into_iter().enumerate() {
+        d.add_row(coeffs, Sense::Ge, sign * lp.objective[j]);
+    }
+    Ok((d, DualMap { rows, uppers }))
+}
+
+/// Builds the good_lp variables and objective of `lp`.
+fn variables(lp: &Lp) -> (ProblemVariables, Vec<Variable>) {
     let mut pv = ProblemVariables::new();
     let vars: Vec<Variable> = (0..lp.num_vars())
         .map(|i| {
@@ -175,6 +405,10 @@ fn solve_unscaled(lp: &Lp) -> Result<LpSolution> {
             pv.add(def)
         })
         .collect();
+    (pv, vars)
+}
+
+fn objective_of(lp: &Lp, vars: &[Variable]) -> Expression {
     let objective: Vec<(usize, f64)> = lp
         .objective
         .iter()
@@ -182,7 +416,51 @@ fn solve_unscaled(lp: &Lp) -> Result<LpSolution> {
         .filter(|(_, c)| **c != 0.0)
         .map(|(i, c)| (i, *c))
         .collect();
-    let obj = expression(&objective, &vars);
+    expression(&objective, vars)
+}
+
+fn constraint_of(r: &Row, vars: &[Variable]) -> good_lp::Constraint {
+    let e = expression(&r.coeffs, vars);
+    match r.sense {
+        Sense::Le => e.leq(r.rhs),
+        Sense::Eq => e.eq(r.rhs),
+        Sense::Ge => e.geq(r.rhs),
+    }
+}
+
+fn solve_microlp(lp: &Lp) -> Result<LpSolution> {
+    let (pv, vars) = variables(lp);
+    let obj = objective_of(lp, &vars);
+    let unsolved = if lp.maximise {
+        pv.maximise(obj)
+    } else {
+        pv.minimise(obj)
+    };
+    let mut model = unsolved.using(microlp);
+    for r in &lp.rows {
+        model.add_constraint(constraint_of(r, &vars));
+    }
+    for (var, &upper) in vars.iter().zip(&lp.upper) {
+        if upper.is_finite() {
+            model.add_constraint(Expression::from(*var).leq(upper));
+        }
+    }
+    let sol = model
+        .solve()
+        .map_err(|e| Error::Solver(format!("microlp: {e}")))?;
+    let x: Vec<f64> = vars.iter().map(|v| sol.value(*v)).collect();
+    let objective = lp.objective.iter().zip(&x).map(|(c, v)| c * v).sum();
+    Ok(LpSolution {
+        x,
+        duals: Vec::new(),
+        upper_duals: Vec::new(),
+        objective,
+    })
+}
+
+fn solve_clarabel(lp: &Lp, settings: Clarabel) -> Result<LpSolution> {
+    let (pv, vars) = variables(lp);
+    let obj = objective_of(lp, &vars);
     let unsolved = if lp.maximise {
         pv.maximise(obj)
     } else {
@@ -191,22 +469,14 @@ fn solve_unscaled(lp: &Lp) -> Result<LpSolution> {
     let mut model = unsolved.using(clarabel);
     model
         .settings()
-        .tol_feas(1e-9)
-        .tol_gap_abs(1e-9)
-        .tol_gap_rel(1e-9)
-        .max_iter(400);
+        .tol_feas(settings.tol)
+        .tol_gap_abs(settings.tol)
+        .tol_gap_rel(settings.tol)
+        .max_iter(settings.max_iter);
     let refs: Vec<ConstraintReference> = lp
         .rows
         .iter()
-        .map(|r| {
-            let e = expression(&r.coeffs, &vars);
-            let c = match r.sense {
-                Sense::Le => e.leq(r.rhs),
-                Sense::Eq => e.eq(r.rhs),
-                Sense::Ge => e.geq(r.rhs),
-            };
-            model.add_constraint(c)
-        })
+        .map(|r| model.add_constraint(constraint_of(r, &vars)))
         .collect();
     // Finite upper bounds as explicit rows, so that their shadow prices are known.
     let bound_refs: Vec<Option<ConstraintReference>> = (0..lp.num_vars())

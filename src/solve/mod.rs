@@ -1,21 +1,51 @@
-//! Solving one outage exactly: the two-layer LP ([`flow`]), the backend ([`lp`]) and an
-//! independent optimality certificate ([`certify`]).
+//! Solving one outage exactly: the two-layer LP ([`flow`]), the backends ([`lp`]), an
+//! independent optimality certificate ([`certify`]) and a verifier ([`verify`]), all on one
+//! view of the surviving network ([`surviving`]).
 //!
 //! [`evaluate`] is the unit of work the audit runs in parallel; it is a pure function of
 //! the network and the outage, so results do not depend on thread count or order.
+//!
+//! **Nothing is reported that is not verified.** Every LP answer is checked in the file's
+//! units: its row residuals ([`verify::residual`]), a feasible allocation rebuilt from it
+//! by flow decomposition ([`verify::repair`], a proven lower bound) and the dual bound of
+//! its shadow prices ([`certify::dual_bound`], a proven upper bound). A result is
+//! *proven* when the residual is within [`RESIDUAL_TOL`] and the two bounds meet within
+//! [`GAP_TOL`] of the demand at stake. Otherwise the LP is solved again by the next
+//! backend of [`LADDER`] (tighter interior point, then simplex with an explicit dual), the
+//! best bounds of all attempts are kept, and a result still open is reported as
+//! *unproven* with its bounds: its served value is then the proven lower bound, so a
+//! shortfall is never understated.
 
 pub mod certify;
 pub mod flow;
 pub mod lp;
+pub mod surviving;
+pub mod verify;
 
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network, SiteIdx};
 use crate::scenario::Outage;
-use flow::Cap;
+use flow::{Cap, FlowIndex};
+use lp::Backend;
+pub use surviving::{Surviving, Unservable};
 
 /// Relative tolerance used to call a resource saturated and to snap values that differ
-/// from a bound by solver noise only (the backend solves to 1e-9).
+/// from a bound by solver noise only (the backends solve to 1e-9).
 pub const TOL: f64 = 1e-7;
+
+/// Largest relative row residual ([`verify::residual`]) of an allocation that counts as
+/// feasible.
+pub const RESIDUAL_TOL: f64 = 1e-7;
+
+/// Largest gap between the proven upper and lower bounds, relative to the surviving demand
+/// at stake (Σ of the LP's demand caps), for a result to count as proven optimal.
+pub const GAP_TOL: f64 = 1e-7;
+
+/// A load at least this fraction of its capacity counts as saturated.
+pub const SATURATED: f64 = 1.0 - 1e-6;
+
+/// The backends tried in turn until a result is proven.
+pub static LADDER: [&dyn Backend; 3] = [&lp::CLARABEL, &lp::CLARABEL_TIGHT, &lp::Simplex];
 
 /// A saturated resource of an optimal allocation with its shadow price (served units per
 /// added unit of capacity).
@@ -35,10 +65,28 @@ pub enum Resource {
     Site(SiteIdx),
 }
 
+/// How one LP result was verified.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Verification {
+    /// The bounds meet within [`GAP_TOL`] and the allocation is feasible.
+    pub proven: bool,
+    /// Proven lower bound: delivered flow of the repaired, feasible allocation.
+    pub lower: f64,
+    /// Proven upper bound: the dual bound, capped by the demand at stake.
+    pub upper: f64,
+    /// Largest relative row residual of the backend's allocation that was kept.
+    pub residual: f64,
+    /// Backends tried (1 when the first one was proven).
+    pub attempts: usize,
+    /// The backend whose allocation was kept.
+    pub backend: &'static str,
+}
+
 /// Everything the tool reports for one outage.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Evaluation {
-    /// Largest Σ f_d over surviving demands with f_d <= required_d.
+    /// Largest Σ f_d over surviving demands with f_d <= required_d (the proven lower bound
+    /// when the result is unproven).
     pub served_required: f64,
     /// Σ surviving required − served_required.
     pub shortfall: f64,
@@ -63,7 +111,8 @@ pub struct Evaluation {
     /// Per site: shadow price of its processing row (`None` when the site has no row:
     /// no capacity, failed, or unreachable by any demand).
     pub site_price: Vec<Option<f64>>,
-    /// Per arc: shadow price of its capacity row (0 when absent).
+    /// Per arc: shadow price of its capacity (0 when absent, or when the presolve lowered
+    /// the row below the real capacity: the real capacity does not bind then).
     pub arc_price: Vec<f64>,
     /// Saturated resources, highest shadow price first (ties by resource order).
     pub bottlenecks: Vec<Bottleneck>,
@@ -72,8 +121,13 @@ pub struct Evaluation {
     /// Largest relative row violation of the returned allocation.
     pub max_violation: f64,
     /// Surviving demands with required > 0 that no walk through a processing site can
-    /// serve at all (cut off by the outage).
-    pub cut_off: Vec<usize>,
+    /// serve at all (cut off by the outage), with the reason.
+    pub cut_off: Vec<(usize, Unservable)>,
+    /// How served_required was verified.
+    pub verification: Verification,
+    /// How throughput was verified (`None` when it equals served_required by definition:
+    /// no surviving demand offers more than its required part).
+    pub throughput_verification: Option<Verification>,
 }
 
 impl Evaluation {
@@ -115,19 +169,53 @@ impl Evaluation {
         }
     }
 
-    /// Relative gap between the certified upper bound and served_required.
+    /// (upper bound − served_required) / surviving required: how far the reported value
+    /// may be below the optimum, relative to the demand at stake. Never clamped: a
+    /// negative value would mean the bounds cross (and the result is then unproven).
     pub fn certified_gap(&self) -> f64 {
-        let denom = self
-            .served_required
-            .max(1e-9 * self.surviving_required)
-            .max(f64::MIN_POSITIVE);
-        (self.upper_bound - self.served_required).max(0.0) / denom
+        relative_gap(
+            self.upper_bound,
+            self.served_required,
+            self.surviving_required,
+        )
+    }
+
+    /// Both LPs of this outage were proven optimal.
+    pub fn proven(&self) -> bool {
+        self.verification.proven
+            && self
+                .throughput_verification
+                .as_ref()
+                .is_none_or(|v| v.proven)
+    }
+
+    /// Surviving required demand cut off for `reason` (Σ required of those demands).
+    pub fn cut_off_required(&self, net: &Network, reason: Unservable) -> f64 {
+        self.cut_off
+            .iter()
+            .filter(|(_, r)| *r == reason)
+            .map(|&(d, _)| net.demands[d].required)
+            .sum()
     }
 }
 
-/// Snaps `x` to `target` when within [`TOL`] relative to `scale`; otherwise rounds it to
-/// a grid of 1e-9·scale, below the backend's accuracy, so solver noise does not show in
-/// large units (bit/s) and equal results print equal.
+/// `(upper − value) / scale`, with `scale` floored so an empty scenario gives 0.
+fn relative_gap(upper: f64, value: f64, scale: f64) -> f64 {
+    let gap = upper - value;
+    if gap == 0.0 {
+        0.0
+    } else {
+        gap / scale.max(f64::MIN_POSITIVE)
+    }
+}
+
+/// Below this fraction of the scenario's demand, differences are solver noise: a value is
+/// shown as the plainest number within it ([`plain`]).
+pub const NOISE: f64 = 1e-9;
+
+/// Snaps `x` to `target` when within [`TOL`] relative to `scale`; otherwise the plainest
+/// number within [`NOISE`]·`scale` of `x`, so solver noise does not show in large units
+/// (bit/s) and equal results print equal.
 fn snap(x: f64, target: f64, scale: f64) -> f64 {
     if scale.is_nan() || scale <= 0.0 {
         return if x.abs() < 1e-12 { target } else { x };
@@ -135,14 +223,45 @@ fn snap(x: f64, target: f64, scale: f64) -> f64 {
     if (x - target).abs() <= TOL * scale {
         target
     } else {
-        let grid = 1e-9 * scale;
-        let q = (x / grid).round() * grid;
-        if q.is_finite() { q } else { x }
+        plain(x, scale)
     }
 }
 
+/// The plainest number within [`NOISE`]·`scale` of `x` ([`simplest_in`]).
+fn plain(x: f64, scale: f64) -> f64 {
+    let eps = NOISE * scale;
+    simplest_in(x - eps, x + eps, x.round())
+}
+
+/// The number with the fewest significant digits (at most 15) in `[lo, hi]`, preferring
+/// `prefer` when it lies inside; `lo` when the interval is empty or not finite. Any value
+/// in the proven interval is as true as any other, so reports show the plainest one
+/// (105, not 104.999999979). O(1).
+pub fn simplest_in(lo: f64, hi: f64, prefer: f64) -> f64 {
+    if !(lo.is_finite() && hi.is_finite()) || lo > hi {
+        return lo;
+    }
+    if (lo..=hi).contains(&prefer) {
+        return prefer;
+    }
+    if lo <= 0.0 && hi >= 0.0 {
+        return 0.0;
+    }
+    let mid = 0.5 * lo + 0.5 * hi;
+    let exp = mid.abs().log10().floor() as i32;
+    for digits in 1..=15 {
+        let unit = 10f64.powi(exp + 1 - digits);
+        let candidate = (mid / unit).round() * unit;
+        if (lo..=hi).contains(&candidate) {
+            return candidate;
+        }
+    }
+    mid
+}
+
 /// Solves the served_required LP of `net` under `outage` and returns it with its flow
-/// index. The building block of [`evaluate`] and of the expansion models.
+/// index, with the default backend and no verification. The building block of the
+/// expansion models; [`evaluate`] verifies.
 pub fn solve_flow(
     net: &Network,
     outage: &Outage,
@@ -151,25 +270,185 @@ pub fn solve_flow(
     let mut model = lp::Lp::new(true);
     let index = flow::build(&mut model, net, outage, cap, 1.0, None);
     let sol = if model.num_vars() == 0 {
-        lp::LpSolution {
-            x: Vec::new(),
-            duals: vec![0.0; model.rows.len()],
-            upper_duals: Vec::new(),
-            objective: 0.0,
-        }
+        empty_solution(&model)
     } else {
         lp::solve(&model)?
     };
     Ok((model, index, sol))
 }
 
+fn empty_solution(model: &lp::Lp) -> lp::LpSolution {
+    lp::LpSolution {
+        x: Vec::new(),
+        duals: vec![0.0; model.rows.len()],
+        upper_duals: Vec::new(),
+        objective: 0.0,
+    }
+}
+
+/// A verified solve of one flow LP.
+pub struct Verified {
+    pub index: FlowIndex,
+    /// The solution whose allocation was kept (shadow prices from the attempt with the
+    /// best upper bound).
+    pub solution: lp::LpSolution,
+    /// The repaired allocation of that solution.
+    pub allocation: verify::Repaired,
+    /// The LP's own objective value of that allocation (Σ f_d).
+    pub lp_value: f64,
+    pub verification: Verification,
+    /// Per arc and site: the shadow prices used for the upper bound.
+    pub arc_price: Vec<f64>,
+    pub site_price: Vec<f64>,
+}
+
+/// Builds the flow LP of `view` with demand caps `cap`, solves it with each backend of
+/// [`LADDER`] in turn until the result is proven, and keeps the best proven bounds of all
+/// attempts. Fails only when every backend fails.
+///
+/// Cost: one LP solve when the first backend is proven (the common case), plus the
+/// certificate (O(sites · arcs · log sites)) and the repair per attempt.
+pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verified> {
+    let mut model = lp::Lp::new(true);
+    let index = flow::build_on(&mut model, net, view, cap, 1.0, None);
+    let bound: Vec<f64> = net
+        .demands
+        .iter()
+        .map(|d| match cap {
+            Cap::Required => d.required,
+            Cap::Volume => d.volume,
+        })
+        .collect();
+    let at_stake: f64 = index
+        .demand_var
+        .iter()
+        .enumerate()
+        .filter(|(_, v)| v.is_some())
+        .map(|(d, _)| bound[d])
+        .sum();
+    let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
+    let site_capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    if model.num_vars() == 0 {
+        let solution = empty_solution(&model);
+        let allocation = verify::repair(
+            net,
+            &index,
+            &solution.x,
+            &arc_capacity,
+            &site_capacity,
+            &bound,
+        );
+        return Ok(Verified {
+            index,
+            solution,
+            allocation,
+            lp_value: 0.0,
+            verification: Verification {
+                proven: true,
+                lower: 0.0,
+                upper: 0.0,
+                residual: 0.0,
+                attempts: 0,
+                backend: "none (nothing to route)",
+            },
+            arc_price: vec![0.0; net.arcs.len()],
+            site_price: vec![0.0; net.sites.len()],
+        });
+    }
+    let scale = at_stake.max(f64::MIN_POSITIVE);
+    let (row_floor, var_floor) = index.magnitudes(&model, f64::MIN_POSITIVE);
+    let mut best: Option<Verified> = None;
+    let mut best_upper = f64::INFINITY;
+    let mut best_prices: (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
+    let mut errors = Vec::new();
+    for (attempt, backend) in LADDER.iter().enumerate() {
+        let solution = match backend.solve(&model, None) {
+            Ok(s) => s,
+            Err(e) => {
+                errors.push(format!("{}: {e}", backend.name()));
+                continue;
+            }
+        };
+        let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
+        let allocation = verify::repair(
+            net,
+            &index,
+            &solution.x,
+            &arc_capacity,
+            &site_capacity,
+            &bound,
+        );
+        let arc_price: Vec<f64> = index
+            .arc_row
+            .iter()
+            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
+            .collect();
+        let site_price: Vec<f64> = index
+            .site_row
+            .iter()
+            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
+            .collect();
+        let upper = certify::dual_bound(
+            net,
+            view,
+            &bound,
+            &index.arc_cap,
+            &index.site_cap,
+            &arc_price,
+            &site_price,
+        )
+        .min(at_stake);
+        if upper < best_upper {
+            best_upper = upper;
+            best_prices = (arc_price, site_price);
+        }
+        let lp_value = index.served(&solution.x);
+        let better = best
+            .as_ref()
+            .is_none_or(|b| allocation.served > b.allocation.served);
+        if better {
+            best = Some(Verified {
+                index: index.clone(),
+                lp_value,
+                verification: Verification {
+                    proven: false,
+                    lower: allocation.served,
+                    upper: f64::INFINITY,
+                    residual,
+                    attempts: attempt + 1,
+                    backend: backend.name(),
+                },
+                solution,
+                allocation,
+                arc_price: Vec::new(),
+                site_price: Vec::new(),
+            });
+        }
+        let b = best.as_mut().expect("set above");
+        b.verification.attempts = attempt + 1;
+        b.verification.upper = best_upper;
+        let gap = best_upper - b.verification.lower;
+        b.verification.proven = b.verification.residual <= RESIDUAL_TOL
+            && gap <= GAP_TOL * scale
+            && gap >= -GAP_TOL * scale;
+        if b.verification.proven {
+            break;
+        }
+    }
+    let mut out = best.ok_or_else(|| Error::Solver(errors.join("; ")))?;
+    out.arc_price = best_prices.0;
+    out.site_price = best_prices.1;
+    Ok(out)
+}
+
 /// Solves one outage: served_required, shortfall, stranded, throughput (a second LP only
 /// when some surviving demand's volume exceeds its required part), one optimal allocation,
-/// its bottlenecks and the shadow prices, and the certified upper bound.
+/// its bottlenecks and the shadow prices, and the proven bounds (see the module
+/// documentation).
 ///
-/// Cost: one or two LP solves of the size given in [`flow::build`].
+/// Cost: one or two verified LP solves of the size given in [`flow::build`].
 pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
-    let site_alive = outage.site_alive(net);
+    let view = Surviving::new(net, outage, None);
     let mut stranded = 0.0;
     let mut stranded_volume = 0.0;
     let mut stranded_demands = Vec::new();
@@ -177,7 +456,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     let mut surviving_volume = 0.0;
     let mut needs_volume_lp = false;
     for (d, dem) in net.demands.iter().enumerate() {
-        if site_alive[dem.from] && site_alive[dem.to] {
+        if view.demand_alive(net, d) {
             surviving_required += dem.required;
             surviving_volume += dem.volume;
             needs_volume_lp |= dem.volume > dem.required;
@@ -188,56 +467,78 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         }
     }
 
-    let (model, index, sol) = solve_flow(net, outage, Cap::Required)?;
+    let solved = solve_verified(net, &view, Cap::Required)?;
+    let v = &solved.verification;
     let scale = surviving_required;
-    let mut served_required = index.served(&sol.x).clamp(0.0, surviving_required);
-    served_required = snap(snap(served_required, surviving_required, scale), 0.0, scale);
-    let shortfall = snap((surviving_required - served_required).max(0.0), 0.0, scale);
+    let served_required = if v.proven {
+        simplest_in(
+            v.lower.min(surviving_required),
+            v.upper.min(surviving_required),
+            surviving_required,
+        )
+    } else {
+        v.lower.clamp(0.0, surviving_required)
+    };
+    let shortfall = (surviving_required - served_required).max(0.0);
 
-    let demand_flow: Vec<f64> = index
-        .demand_flows(&sol.x)
+    let alloc = &solved.allocation;
+    let demand_flow: Vec<f64> = alloc
+        .demand_flow
         .iter()
         .zip(&net.demands)
         .map(|(&f, dem)| snap(snap(f.min(dem.required), dem.required, scale), 0.0, scale))
         .collect();
-    let demand_shortfall: Vec<f64> = net
-        .demands
-        .iter()
-        .zip(&demand_flow)
-        .map(|(dem, &f)| {
-            if site_alive[dem.from] && site_alive[dem.to] {
-                snap(dem.required - f, 0.0, scale)
+    let demand_shortfall: Vec<f64> = (0..net.demands.len())
+        .map(|d| {
+            if view.demand_alive(net, d) {
+                snap(net.demands[d].required - demand_flow[d], 0.0, scale)
             } else {
                 0.0
             }
         })
         .collect();
 
-    let arc_load = index.arc_loads(&sol.x);
-    let site_load = index.site_loads(&sol.x);
-    let arc_price: Vec<f64> = index
-        .arc_row
-        .iter()
-        .map(|r| r.map_or(0.0, |r| sol.duals[r].max(0.0)))
+    let index = &solved.index;
+    let arc_load = alloc.arc_load.clone();
+    let site_load = alloc.site_load.clone();
+    // The presolve lowers rows that cannot bind; a price on such a row is not a price of
+    // the real capacity.
+    let arc_price: Vec<f64> = (0..net.arcs.len())
+        .map(|a| {
+            if index.arc_cap[a] < net.arcs[a].capacity {
+                0.0
+            } else {
+                snap(solved.arc_price[a], 0.0, 1.0)
+            }
+        })
         .collect();
     let site_price: Vec<Option<f64>> = index
         .site_row
         .iter()
-        .map(|r| r.map(|r| snap(sol.duals[r].max(0.0), 0.0, 1.0)))
+        .enumerate()
+        .map(|(v, r)| {
+            r.map(|_| {
+                if index.site_cap[v] < net.sites[v].processing {
+                    0.0
+                } else {
+                    snap(solved.site_price[v], 0.0, 1.0)
+                }
+            })
+        })
         .collect();
 
     let mut bottlenecks = Vec::new();
     for (a, arc) in net.arcs.iter().enumerate() {
-        if index.arc_row[a].is_some() && arc_load[a] >= arc.capacity * (1.0 - 1e-6) - 1e-9 {
+        if index.arc_row[a].is_some() && arc_load[a] >= arc.capacity * SATURATED {
             bottlenecks.push(Bottleneck {
                 resource: Resource::Arc(a),
-                price: snap(arc_price[a], 0.0, 1.0),
+                price: arc_price[a],
                 utilisation: arc_load[a] / arc.capacity,
             });
         }
     }
     for (v, site) in net.sites.iter().enumerate() {
-        if index.site_row[v].is_some() && site_load[v] >= site.processing * (1.0 - 1e-6) - 1e-9 {
+        if index.site_row[v].is_some() && site_load[v] >= site.processing * SATURATED {
             bottlenecks.push(Bottleneck {
                 resource: Resource::Site(v),
                 price: site_price[v].unwrap_or(0.0),
@@ -251,42 +552,37 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
             .then(a.resource.cmp(&b.resource))
     });
 
-    let bounds: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
-    let site_price_dense: Vec<f64> = site_price.iter().map(|p| p.unwrap_or(0.0)).collect();
-    let upper_bound = certify::dual_bound(
-        net,
-        outage,
-        &bounds,
-        &capacity,
-        &arc_price,
-        &site_price_dense,
-    )
-    .min(surviving_required);
-    let max_violation = if model.num_vars() == 0 {
-        0.0
+    let mut verification = solved.verification.clone();
+    let upper_bound = if verification.proven {
+        verification.upper.max(served_required)
     } else {
-        model.max_violation(&sol.x)
+        verification.upper
+    };
+    verification.upper = upper_bound;
+
+    let (throughput, throughput_verification) = if needs_volume_lp {
+        let t = solve_verified(net, &view, Cap::Volume)?;
+        let tv = &t.verification;
+        let value = if tv.proven {
+            simplest_in(
+                tv.lower.min(surviving_volume),
+                tv.upper.min(surviving_volume),
+                surviving_volume,
+            )
+        } else {
+            tv.lower.clamp(0.0, surviving_volume)
+        };
+        (value.max(served_required), Some(t.verification))
+    } else {
+        (served_required, None)
     };
 
-    let throughput = if needs_volume_lp {
-        let (_, vindex, vsol) = solve_flow(net, outage, Cap::Volume)?;
-        let t = vindex
-            .served(&vsol.x)
-            .clamp(served_required, surviving_volume);
-        snap(t, surviving_volume, surviving_volume).max(served_required)
-    } else {
-        served_required
-    };
-
-    let cut_off: Vec<usize> = (0..net.demands.len())
-        .filter(|&d| {
-            let dem = &net.demands[d];
-            site_alive[dem.from]
-                && site_alive[dem.to]
-                && dem.required > 0.0
-                && index.demand_var[d].is_none()
-        })
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let cut_off: Vec<(usize, Unservable)> = view
+        .unservable(net, &required)
+        .into_iter()
+        .enumerate()
+        .filter_map(|(d, r)| r.map(|r| (d, r)))
         .collect();
     Ok(Evaluation {
         cut_off,
@@ -305,7 +601,9 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         arc_price,
         bottlenecks,
         upper_bound,
-        max_violation,
+        max_violation: verification.residual,
+        verification,
+        throughput_verification,
     })
 }
 

@@ -1,0 +1,141 @@
+//! The surviving network of one outage: the single view that the flow LP
+//! ([`super::flow`]), the dual certificate ([`super::certify`]) and the verifier
+//! ([`super::verify`]) all read, so they can never disagree on what is left standing.
+//!
+//! Rules (the contract's semantics): a failed site takes its processing and every incident
+//! link; a failed link (or a member of a failed risk group) carries nothing; an arc whose
+//! capacity is 0 carries nothing either, so it is *not usable* here — for flow, for the
+//! certificate's shortest walks, and for reachability. A site can process when it survives
+//! and has processing capacity (or an added-processing variable in an expansion model).
+//!
+//! Building the view is O(sites + links + demands).
+
+use std::collections::VecDeque;
+
+use crate::model::{Network, SiteIdx};
+use crate::scenario::Outage;
+
+/// Why a surviving demand cannot be served at all.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+pub enum Unservable {
+    /// No usable walk joins its origin to its destination.
+    NoPath,
+    /// Walks exist, but none passes through a site that can process.
+    NoProcessing,
+}
+
+/// What is left of a network under one outage.
+#[derive(Debug, Clone)]
+pub struct Surviving {
+    /// Per site: survives the outage.
+    pub site_alive: Vec<bool>,
+    /// Per arc (index into `Network::arcs`): the link survives and the capacity is > 0.
+    pub arc_usable: Vec<bool>,
+    /// The usable arcs, in arc order.
+    pub arcs: Vec<usize>,
+    /// Per site: survives and may process (capacity > 0, or an added-processing option).
+    pub can_process: Vec<bool>,
+    /// Per site: out-neighbours over usable arcs (with repeats for parallel arcs).
+    pub fwd: Vec<Vec<SiteIdx>>,
+    /// Per site: in-neighbours over usable arcs.
+    pub back: Vec<Vec<SiteIdx>>,
+}
+
+impl Surviving {
+    /// The view of `net` under `outage`. `expandable[v]`, when given, lets site `v` process
+    /// even with capacity 0 (an expansion model's added-processing variable).
+    pub fn new(net: &Network, outage: &Outage, expandable: Option<&[bool]>) -> Surviving {
+        let n = net.sites.len();
+        let site_alive = outage.site_alive(net);
+        let link_alive = outage.link_alive(net);
+        let arc_usable: Vec<bool> = net
+            .arcs
+            .iter()
+            .map(|a| link_alive[a.link] && a.capacity > 0.0)
+            .collect();
+        let arcs: Vec<usize> = (0..net.arcs.len()).filter(|&a| arc_usable[a]).collect();
+        let can_process = (0..n)
+            .map(|v| {
+                site_alive[v]
+                    && (net.sites[v].processing > 0.0
+                        || expandable.is_some_and(|e| e.get(v).copied().unwrap_or(false)))
+            })
+            .collect();
+        let mut fwd = vec![Vec::new(); n];
+        let mut back = vec![Vec::new(); n];
+        for &a in &arcs {
+            fwd[net.arcs[a].from].push(net.arcs[a].to);
+            back[net.arcs[a].to].push(net.arcs[a].from);
+        }
+        Surviving {
+            site_alive,
+            arc_usable,
+            arcs,
+            can_process,
+            fwd,
+            back,
+        }
+    }
+
+    /// Whether demand `d` has both endpoint sites standing.
+    pub fn demand_alive(&self, net: &Network, d: usize) -> bool {
+        let dem = &net.demands[d];
+        self.site_alive[dem.from] && self.site_alive[dem.to]
+    }
+
+    /// Sites reachable from `starts` over usable arcs (forward). O(sites + arcs).
+    pub fn reach_from(&self, starts: impl IntoIterator<Item = SiteIdx>) -> Vec<bool> {
+        reach(&self.fwd, starts)
+    }
+
+    /// Sites from which one of `targets` is reachable over usable arcs. O(sites + arcs).
+    pub fn reach_to(&self, targets: impl IntoIterator<Item = SiteIdx>) -> Vec<bool> {
+        reach(&self.back, targets)
+    }
+
+    /// Per demand: `Some(reason)` when the demand survives, has something to serve
+    /// (`bound[d] > 0`) and no walk through a processing site can serve it; `None`
+    /// otherwise. O(sources · (sites + arcs)).
+    pub fn unservable(&self, net: &Network, bound: &[f64]) -> Vec<Option<Unservable>> {
+        let n = net.sites.len();
+        let mut from_cache: Vec<Option<Vec<bool>>> = vec![None; n];
+        let mut to_cache: Vec<Option<Vec<bool>>> = vec![None; n];
+        (0..net.demands.len())
+            .map(|d| {
+                let dem = &net.demands[d];
+                if !self.demand_alive(net, d) || bound[d] <= 0.0 {
+                    return None;
+                }
+                let from = from_cache[dem.from].get_or_insert_with(|| self.reach_from([dem.from]));
+                if !from[dem.to] {
+                    return Some(Unservable::NoPath);
+                }
+                let from = from.clone();
+                let to = to_cache[dem.to].get_or_insert_with(|| self.reach_to([dem.to]));
+                let processed = (0..n).any(|v| self.can_process[v] && from[v] && to[v]);
+                (!processed).then_some(Unservable::NoProcessing)
+            })
+            .collect()
+    }
+}
+
+/// Breadth-first reachability over `adj` from all `starts`. O(nodes + arcs).
+pub fn reach(adj: &[Vec<usize>], starts: impl IntoIterator<Item = usize>) -> Vec<bool> {
+    let mut seen = vec![false; adj.len()];
+    let mut queue = VecDeque::new();
+    for s in starts {
+        if !seen[s] {
+            seen[s] = true;
+            queue.push_back(s);
+        }
+    }
+    while let Some(u) = queue.pop_front() {
+        for &v in &adj[u] {
+            if !seen[v] {
+                seen[v] = true;
+                queue.push_back(v);
+            }
+        }
+    }
+    seen
+}

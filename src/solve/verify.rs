@@ -1,0 +1,305 @@
+//! The verifier: checks a backend's allocation in the units of the file, without trusting
+//! the backend, and turns it into an allocation that is feasible by construction.
+//!
+//! Two checks run on every solve:
+//! - [`residual`]: the largest violation of any row or bound by the returned values, each
+//!   relative to the magnitude of its own row (the larger of its right-hand side and the
+//!   sum of the absolute values of its terms), so a row of 1e-6 units and a row of 1e15
+//!   units are judged alike;
+//! - [`repair`]: a flow decomposition of each source's block into walks (origin, layer 0,
+//!   one conversion at a processing site, layer 1, destination), cycles cancelled, flow
+//!   that reaches a dead end (a conservation violation) dropped; then every walk is scaled
+//!   down by the worst overload among the resources it uses, measured against the
+//!   network's real capacities. The result satisfies conservation, link, processing and
+//!   demand caps exactly (up to one rounding per sum), so its delivered flow is a proven
+//!   *lower* bound on served demand, whatever the backend returned. With the certificate's
+//!   dual bound ([`super::certify`]) it brackets the optimum.
+
+use super::flow::FlowIndex;
+use super::lp::{Lp, Sense};
+use crate::model::Network;
+
+/// Below this fraction of the magnitude of the model, a flow value is treated as zero by
+/// the decomposition (it is far below any backend's accuracy).
+const ZERO_FLOW: f64 = 1e-15;
+
+/// The largest violation of any row or variable bound by `x`, each relative to its own
+/// magnitude: for row `i`, `max(|rhs|, Σ|a_ij·x_j|, row_floor[i])`; for a bound of
+/// variable `j`, `max(|bound|, |x_j|, var_floor[j])`. The floors carry what a row or
+/// variable can hold (for the flow model, the demand of its source's block: see
+/// [`super::flow::FlowIndex::magnitudes`]), so an error of 1e-15 on a row whose terms
+/// happen to be near 0 is judged against the flow that row could carry. O(nonzeros).
+pub fn residual(lp: &Lp, x: &[f64], row_floor: &[f64], var_floor: &[f64]) -> f64 {
+    let mut worst: f64 = 0.0;
+    for (j, &v) in x.iter().enumerate() {
+        if !v.is_finite() {
+            return f64::INFINITY;
+        }
+        let (lo, hi) = (lp.lower[j], lp.upper[j]);
+        let floor = var_floor[j].max(f64::MIN_POSITIVE);
+        if lo.is_finite() && v < lo {
+            worst = worst.max((lo - v) / lo.abs().max(v.abs()).max(floor));
+        }
+        if hi.is_finite() && v > hi {
+            worst = worst.max((v - hi) / hi.abs().max(v.abs()).max(floor));
+        }
+    }
+    for (i, r) in lp.rows.iter().enumerate() {
+        let mut lhs = 0.0;
+        let mut terms = 0.0;
+        for &(j, a) in &r.coeffs {
+            lhs += a * x[j];
+            terms += (a * x[j]).abs();
+        }
+        let mag = r
+            .rhs
+            .abs()
+            .max(terms)
+            .max(row_floor[i])
+            .max(f64::MIN_POSITIVE);
+        let v = match r.sense {
+            Sense::Le => lhs - r.rhs,
+            Sense::Ge => r.rhs - lhs,
+            Sense::Eq => (lhs - r.rhs).abs(),
+        };
+        if v > 0.0 {
+            worst = worst.max(v / mag);
+        }
+    }
+    worst
+}
+
+/// A feasible allocation derived from a backend's answer.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Repaired {
+    /// Σ delivered flow: a proven lower bound on the optimum.
+    pub served: f64,
+    /// Per demand: delivered flow (0 without a variable).
+    pub demand_flow: Vec<f64>,
+    /// Per arc: load.
+    pub arc_load: Vec<f64>,
+    /// Per site: processing used.
+    pub site_load: Vec<f64>,
+    /// Walks found by the decomposition.
+    pub walks: usize,
+}
+
+/// One walk of the decomposition: its block, destination, resources and amount.
+struct Walk {
+    block: usize,
+    dest: usize,
+    arcs: Vec<usize>,
+    site: usize,
+    amount: f64,
+}
+
+#[derive(Clone, Copy)]
+enum EdgeKind {
+    Arc(usize),
+    Convert(usize),
+}
+
+struct Edge {
+    to: usize,
+    kind: EdgeKind,
+    left: f64,
+}
+
+/// Decomposes, cancels, trims and scales the allocation `x` of the model indexed by
+/// `index` (see the module documentation) against the real capacities `arc_capacity`
+/// (per arc) and `site_capacity` (per site) and the demand caps `bound`.
+///
+/// Complexity: per block, O((arcs + destinations) · sites) for the decomposition (every
+/// walk or cancelled cycle exhausts an edge or a destination, and a walk is at most
+/// 2·sites long), then O(Σ walk lengths) for the scaling.
+pub fn repair(
+    net: &Network,
+    index: &FlowIndex,
+    x: &[f64],
+    arc_capacity: &[f64],
+    site_capacity: &[f64],
+    bound: &[f64],
+) -> Repaired {
+    let n = net.sites.len();
+    let mut walks: Vec<Walk> = Vec::new();
+    for (b, block) in index.blocks.iter().enumerate() {
+        let eps = ZERO_FLOW * block.bound.max(f64::MIN_POSITIVE);
+        let clean = |v: f64| if v.is_finite() && v > eps { v } else { 0.0 };
+        // Nodes: site v in layer 0 is v, in layer 1 is n + v.
+        let mut edges: Vec<Edge> = Vec::new();
+        let mut out: Vec<Vec<usize>> = vec![Vec::new(); 2 * n];
+        let mut push = |from: usize, to: usize, kind: EdgeKind, left: f64| {
+            if left > 0.0 {
+                out[from].push(edges.len());
+                edges.push(Edge { to, kind, left });
+            }
+        };
+        for &(a, var) in &block.arc0 {
+            let arc = &net.arcs[a];
+            push(arc.from, arc.to, EdgeKind::Arc(a), clean(x[var]));
+        }
+        for &(a, var) in &block.arc1 {
+            let arc = &net.arcs[a];
+            push(n + arc.from, n + arc.to, EdgeKind::Arc(a), clean(x[var]));
+        }
+        for &(v, var) in &block.procs {
+            push(v, n + v, EdgeKind::Convert(v), clean(x[var]));
+        }
+        let mut need = vec![0.0; n];
+        for &(d, var) in &block.demands {
+            need[net.demands[d].to] += clean(x[var].min(bound[d]));
+        }
+        let mut supply: f64 = need.iter().sum();
+        let src = block.source;
+        let mut next = vec![0usize; 2 * n];
+        let mut on_path = vec![false; 2 * n];
+        let mut path_nodes: Vec<usize> = vec![src];
+        let mut path_edges: Vec<usize> = Vec::new();
+        on_path[src] = true;
+        while supply > eps {
+            let u = *path_nodes.last().expect("the path starts at the source");
+            if u >= n && need[u - n] > eps {
+                let t = u - n;
+                let amount = path_edges
+                    .iter()
+                    .map(|&e| edges[e].left)
+                    .fold(need[t].min(supply), f64::min);
+                let mut arcs = Vec::with_capacity(path_edges.len());
+                let mut site = usize::MAX;
+                for &e in &path_edges {
+                    edges[e].left -= amount;
+                    match edges[e].kind {
+                        EdgeKind::Arc(a) => arcs.push(a),
+                        EdgeKind::Convert(v) => site = v,
+                    }
+                }
+                need[t] -= amount;
+                supply -= amount;
+                walks.push(Walk {
+                    block: b,
+                    dest: t,
+                    arcs,
+                    site,
+                    amount,
+                });
+                for &v in &path_nodes[1..] {
+                    on_path[v] = false;
+                }
+                path_nodes.truncate(1);
+                path_edges.clear();
+                continue;
+            }
+            while next[u] < out[u].len() && edges[out[u][next[u]]].left <= eps {
+                next[u] += 1;
+            }
+            if next[u] == out[u].len() {
+                // Dead end: flow into u goes nowhere useful; drop it.
+                match path_edges.pop() {
+                    None => break,
+                    Some(e) => {
+                        edges[e].left = 0.0;
+                        on_path[u] = false;
+                        path_nodes.pop();
+                    }
+                }
+                continue;
+            }
+            let e = out[u][next[u]];
+            let v = edges[e].to;
+            if on_path[v] {
+                // A cycle within one layer: cancel it.
+                let pos = path_nodes
+                    .iter()
+                    .position(|&w| w == v)
+                    .expect("on_path nodes are on the path");
+                let cycle: Vec<usize> = path_edges[pos..].iter().copied().chain([e]).collect();
+                let m = cycle
+                    .iter()
+                    .map(|&c| edges[c].left)
+                    .fold(f64::INFINITY, f64::min);
+                for &c in &cycle {
+                    edges[c].left -= m;
+                }
+                for &w in &path_nodes[pos + 1..] {
+                    on_path[w] = false;
+                }
+                path_nodes.truncate(pos + 1);
+                path_edges.truncate(pos);
+                continue;
+            }
+            on_path[v] = true;
+            path_nodes.push(v);
+            path_edges.push(e);
+        }
+    }
+
+    // Scale each walk by the worst overload among its resources.
+    let mut arc_load = vec![0.0; net.arcs.len()];
+    let mut site_load = vec![0.0; n];
+    for w in &walks {
+        for &a in &w.arcs {
+            arc_load[a] += w.amount;
+        }
+        site_load[w.site] += w.amount;
+    }
+    let factor = |load: f64, cap: f64| {
+        if load <= cap {
+            1.0
+        } else if cap > 0.0 {
+            // One ulp below the ratio, so that the scaled sum cannot round above cap.
+            (cap / load) * (1.0 - 4.0 * f64::EPSILON)
+        } else {
+            0.0
+        }
+    };
+    let arc_factor: Vec<f64> = (0..net.arcs.len())
+        .map(|a| factor(arc_load[a], arc_capacity[a]))
+        .collect();
+    let site_factor: Vec<f64> = (0..n)
+        .map(|v| factor(site_load[v], site_capacity[v]))
+        .collect();
+    let mut arc_load = vec![0.0; net.arcs.len()];
+    let mut site_load = vec![0.0; n];
+    // Per block and destination: delivered flow, shared among its demands below.
+    let mut delivered: Vec<Vec<f64>> = vec![vec![0.0; n]; index.blocks.len()];
+    let mut served = 0.0;
+    for w in &walks {
+        let f = w
+            .arcs
+            .iter()
+            .map(|&a| arc_factor[a])
+            .fold(site_factor[w.site], f64::min);
+        let amount = w.amount * f;
+        if amount <= 0.0 {
+            continue;
+        }
+        for &a in &w.arcs {
+            arc_load[a] += amount;
+        }
+        site_load[w.site] += amount;
+        delivered[w.block][w.dest] += amount;
+        served += amount;
+    }
+    let mut demand_flow = vec![0.0; net.demands.len()];
+    for (b, block) in index.blocks.iter().enumerate() {
+        // Σ of the LP's (capped) flows per destination, to share what was delivered.
+        let mut asked = vec![0.0; n];
+        for &(d, var) in &block.demands {
+            asked[net.demands[d].to] += x[var].clamp(0.0, bound[d]);
+        }
+        for &(d, var) in &block.demands {
+            let t = net.demands[d].to;
+            if asked[t] > 0.0 {
+                let share = x[var].clamp(0.0, bound[d]) / asked[t];
+                demand_flow[d] = (delivered[b][t] * share).min(bound[d]);
+            }
+        }
+    }
+    Repaired {
+        served,
+        demand_flow,
+        arc_load,
+        site_load,
+        walks: walks.len(),
+    }
+}
