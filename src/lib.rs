@@ -217,7 +217,8 @@ pub fn run(cli: Cli) -> Result<Outcome> {
     match cli.command {
         Command::Check { network } => {
             let net = load(&network)?;
-            print!("{}", report::text::check_summary(&net));
+            let cut_off = solve::baseline_cut_off(&net);
+            print!("{}", report::text::check_summary(&net, &cut_off));
             Ok(Outcome::Ok)
         }
         Command::Audit(args) => run_audit(&args),

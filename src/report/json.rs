@@ -33,6 +33,8 @@ pub struct ScenarioJson {
     pub required: f64,
     pub stranded_volume: f64,
     pub throughput_loss: f64,
+    /// Shortfall beyond what the baseline already misses (0 for the baseline).
+    pub shortfall_beyond_baseline: f64,
     /// Position in the worst-first ranking, from 1.
     pub rank: usize,
     /// Certified upper bound on served_required and the relative gap to it.
@@ -135,6 +137,7 @@ pub fn scenario_json(
         required: round9(e.surviving_required),
         stranded_volume: round9(e.stranded_volume),
         throughput_loss: round9((baseline.throughput - e.throughput).max(0.0)),
+        shortfall_beyond_baseline: round9((e.shortfall - baseline.shortfall).max(0.0)),
         rank,
         upper_bound: round9(e.upper_bound),
         certified_gap: e.certified_gap(),

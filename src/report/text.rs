@@ -8,7 +8,7 @@ use super::{CAUTION, num, percent};
 use crate::audit::Audit;
 use crate::model::Network;
 use crate::rank::{self, Criticality};
-use crate::solve::{Evaluation, Resource};
+use crate::solve::{Evaluation, Resource, Unservable};
 
 fn table(header: &[&str]) -> Table {
     let mut t = Table::new();
@@ -26,8 +26,10 @@ fn right(t: &mut Table, cols: &[usize]) {
     }
 }
 
-/// The `check` summary: sizes, totals, processing sites and risk groups.
-pub fn check_summary(net: &Network) -> String {
+/// The `check` summary: sizes, totals, processing sites and risk groups, and the demands
+/// that no walk through a processing site can serve even with nothing failed
+/// (`baseline_cut_off`, from [`crate::solve::baseline_cut_off`]).
+pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) -> String {
     let mut out = String::new();
     let u = &net.unit;
     let one_way = net.links.iter().filter(|l| l.one_way).count();
@@ -91,6 +93,9 @@ pub fn check_summary(net: &Network) -> String {
             expandable.join(", ")
         }
     );
+    if !baseline_cut_off.is_empty() {
+        let _ = writeln!(out, "  {}", baseline_misses(net, baseline_cut_off));
+    }
     if net.groups.is_empty() {
         let _ = writeln!(out, "  risk groups: none");
     } else {
@@ -108,12 +113,37 @@ pub fn check_summary(net: &Network) -> String {
     out
 }
 
+/// Why a demand cannot be served, in words.
+fn unservable_words(r: Unservable) -> &'static str {
+    match r {
+        Unservable::NoPath => "no path",
+        Unservable::NoProcessing => "no processing site on any walk",
+    }
+}
+
+/// "already short with nothing failed: N demands (X units required): d (why), ...".
+fn baseline_misses(net: &Network, cut_off: &[(usize, Unservable)]) -> String {
+    let total: f64 = cut_off.iter().map(|&(d, _)| net.demands[d].required).sum();
+    let list = first_k(
+        cut_off
+            .iter()
+            .map(|&(d, r)| format!("{} ({})", net.demands[d].label, unservable_words(r))),
+        5,
+    );
+    format!(
+        "already short with nothing failed: {} demand{} ({} {} required) cannot be served: {list}",
+        cut_off.len(),
+        if cut_off.len() == 1 { "" } else { "s" },
+        num(total),
+        net.unit
+    )
+}
+
 /// Names the cause of a scenario's shortfall in words: demands with no path, demands
 /// with no processing reachable, or the saturated resource with the highest shadow price
 /// (a link direction or a site's processing). Cut-off demands are named when they make up
 /// at least half of the shortfall.
 pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
-    use crate::solve::Unservable;
     if e.shortfall <= 0.0 {
         return "—".into();
     }
@@ -196,40 +226,68 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     let _ = writeln!(
         out,
         "Baseline: serves {} of {} {u} required ({}), throughput {} of {} {u} offered; \
-         certified gap {:.1e}.",
+         certified gap {}.",
         num(baseline.served_required),
         num(baseline.surviving_required),
         percent(baseline.served_required, baseline.surviving_required),
         num(baseline.throughput),
         num(net.total_volume()),
-        baseline.certified_gap()
+        sci(baseline.certified_gap())
     );
+    let base_short = baseline.shortfall > 0.0;
+    if base_short {
+        let _ = writeln!(
+            out,
+            "The baseline is already {} {u} short; every scenario's shortfall includes what the \
+             baseline misses, and the column \"beyond baseline\" shows what the failure adds.",
+            num(baseline.shortfall)
+        );
+        if !baseline.cut_off.is_empty() {
+            let _ = writeln!(out, "Baseline: {}.", baseline_misses(net, &baseline.cut_off));
+        }
+    }
     let order = rank::worst_first(audit);
     let shown = top.min(order.len());
-    let mut t = table(&[
-        "#",
-        "failed",
-        &format!("shortfall ({u})"),
+    let shortfall_head = format!("shortfall ({u})");
+    let mut header: Vec<&str> = vec!["#", "failed", &shortfall_head];
+    if base_short {
+        header.push("beyond baseline");
+    }
+    let stranded_head = format!("stranded ({u})");
+    let loss_head = format!("throughput loss ({u})");
+    header.extend([
         "% of required",
-        &format!("stranded ({u})"),
-        &format!("throughput loss ({u})"),
+        &stranded_head,
+        &loss_head,
         "main bottleneck",
         "one more unit helps at",
     ]);
+    let mut t = table(&header);
     for (rank_no, &i) in order.iter().take(shown).enumerate() {
         let e = audit.eval(i);
-        t.add_row(vec![
+        let mut row = vec![
             Cell::new(rank_no + 1),
             Cell::new(audit.scenarios[i].display_name()),
             Cell::new(num(e.shortfall)),
+        ];
+        if base_short {
+            row.push(Cell::new(num((e.shortfall - baseline.shortfall).max(0.0))));
+        }
+        row.extend([
             Cell::new(percent(e.shortfall, e.surviving_required)),
             Cell::new(num(e.stranded)),
             Cell::new(num((baseline.throughput - e.throughput).max(0.0))),
             Cell::new(main_bottleneck(net, e)),
             Cell::new(marginal_sites(net, e, 2)),
         ]);
+        t.add_row(row);
     }
-    right(&mut t, &[0, 2, 3, 4, 5]);
+    let numeric: Vec<usize> = if base_short {
+        vec![0, 2, 3, 4, 5, 6]
+    } else {
+        vec![0, 2, 3, 4, 5]
+    };
+    right(&mut t, &numeric);
     let short = (0..audit.scenarios.len())
         .filter(|&i| audit.eval(i).shortfall > 0.0)
         .count();
@@ -274,17 +332,68 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         );
         let _ = writeln!(out, "{c}");
     }
-    let worst_gap = audit
+    let _ = writeln!(out, "\n{}", verification_summary(audit));
+    for (k, e) in audit.evaluations.iter().enumerate() {
+        if !e.proven() {
+            let _ = writeln!(
+                out,
+                "UNPROVEN: {}: served_required between {} and {} {u} (reported at the lower \
+                 bound, so its shortfall is not understated).",
+                audit.first_scenario(k).display_name(),
+                num(e.verification.lower),
+                num(e.verification.upper)
+            );
+        }
+    }
+    out
+}
+
+/// One line on how the results were verified: how many outages were proven optimal (both
+/// LPs), the worst relative residual of an allocation and the worst certified gap.
+pub fn verification_summary(audit: &Audit) -> String {
+    let n = audit.evaluations.len();
+    let proven = audit.evaluations.iter().filter(|e| e.proven()).count();
+    let residual = audit
+        .evaluations
+        .iter()
+        .map(|e| e.max_violation)
+        .fold(0.0, f64::max);
+    let gap = audit
         .evaluations
         .iter()
         .map(Evaluation::certified_gap)
         .fold(0.0, f64::max);
-    let _ = writeln!(
-        out,
-        "\nEvery outage solved to optimality; largest certified gap between the allocation and \
-         its dual bound: {worst_gap:.1e} (relative)."
-    );
-    out
+    let fallbacks = audit
+        .evaluations
+        .iter()
+        .filter(|e| e.verification.attempts > 1)
+        .count();
+    format!(
+        "Verified: {proven} of {n} outage{} proven optimal by independent bounds (worst \
+         relative residual {}, worst certified gap {}){}{}.",
+        if n == 1 { "" } else { "s" },
+        sci(residual),
+        sci(gap),
+        if fallbacks > 0 {
+            format!("; {fallbacks} needed a second backend")
+        } else {
+            String::new()
+        },
+        if proven < n {
+            format!("; {} UNPROVEN, listed below", n - proven)
+        } else {
+            String::new()
+        }
+    )
+}
+
+/// A small nonnegative quantity in scientific notation, `0` for zero.
+fn sci(x: f64) -> String {
+    if x == 0.0 {
+        "0".into()
+    } else {
+        format!("{x:.1e}")
+    }
 }
 
 /// The caution line every report ends with.

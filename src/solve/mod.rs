@@ -441,6 +441,19 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
     Ok(out)
 }
 
+/// Demands with required > 0 that no walk through a processing site can serve even with
+/// nothing failed, with the reason (structural: reachability only, no LP).
+/// O(sources · (sites + arcs)).
+pub fn baseline_cut_off(net: &Network) -> Vec<(usize, Unservable)> {
+    let view = Surviving::new(net, &Outage::default(), None);
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    view.unservable(net, &required)
+        .into_iter()
+        .enumerate()
+        .filter_map(|(d, r)| r.map(|r| (d, r)))
+        .collect()
+}
+
 /// Solves one outage: served_required, shortfall, stranded, throughput (a second LP only
 /// when some surviving demand's volume exceeds its required part), one optimal allocation,
 /// its bottlenecks and the shadow prices, and the proven bounds (see the module
