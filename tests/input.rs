@@ -956,6 +956,70 @@ fn mutate(rng: &mut StdRng, bytes: &mut Vec<u8>) {
     }
 }
 
+/// Values a structural mutation puts in place of a random value of the document.
+fn extreme_value(rng: &mut StdRng) -> Value {
+    match rng.random_range(0..14) {
+        0 => json!(-1),
+        1 => json!(0),
+        2 => json!(1e300),
+        3 => json!(1e-300),
+        4 => json!(5e-324),
+        5 => json!(f64::MAX),
+        6 => json!("s"),
+        7 => Value::Null,
+        8 => json!(true),
+        9 => json!([]),
+        10 => json!({}),
+        11 => json!("\u{1b}[0m,"),
+        12 => json!(u64::MAX),
+        _ => json!(0.999_999_999_999),
+    }
+}
+
+/// A structural mutation of a JSON document: replace a random value (at any depth) with
+/// an extreme one, drop a random member, or rename one to a near miss or an `x-` field.
+fn mutate_value(rng: &mut StdRng, v: &mut Value) {
+    // Descend (at random, up to 4 levels) into a member, else mutate here.
+    if rng.random_bool(0.8) {
+        match v {
+            Value::Array(items) if !items.is_empty() => {
+                let i = rng.random_range(0..items.len());
+                return mutate_value(rng, &mut items[i]);
+            }
+            Value::Object(map) if !map.is_empty() => {
+                let i = rng.random_range(0..map.len());
+                return mutate_value(rng, map.values_mut().nth(i).unwrap());
+            }
+            _ => {}
+        }
+    }
+    match (rng.random_range(0..3), &mut *v) {
+        (1, Value::Object(map)) if !map.is_empty() => {
+            let k = map
+                .keys()
+                .nth(rng.random_range(0..map.len()))
+                .unwrap()
+                .clone();
+            map.remove(&k);
+        }
+        (2, Value::Object(map)) if !map.is_empty() => {
+            let k = map
+                .keys()
+                .nth(rng.random_range(0..map.len()))
+                .unwrap()
+                .clone();
+            let val = map.remove(&k).unwrap();
+            let renamed = if rng.random_bool(0.5) {
+                format!("x-{k}")
+            } else {
+                k.replacen('_', "", 1) + "s"
+            };
+            map.insert(renamed, val);
+        }
+        _ => *v = extreme_value(rng),
+    }
+}
+
 /// Largest network the fuzz test evaluates (a tiny audit: the baseline only).
 const FUZZ_EVAL_MAX_SITES: usize = 16;
 /// Tolerance of the bound check on an evaluated baseline, relative to the largest amount
@@ -964,19 +1028,30 @@ const FUZZ_EVAL_MAX_SITES: usize = 16;
 /// processing of 0.34, served_required exceeded Σ processing by 8e-4 (3e-11 of the scale).
 const FUZZ_REL_TOL: f64 = 1e-6;
 
+/// What became of one fuzz case.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Read {
+    /// Refused with an input error.
+    Refused,
+    /// Valid, too big to evaluate here.
+    Valid,
+    /// Valid and its baseline evaluated within the bounds.
+    Evaluated,
+}
+
 /// Reads `bytes`; on success evaluates the baseline when the network is small and checks
 /// served_required against the contract's bounds (0 ≤ served ≤ Σ required, served ≤ Σ
 /// processing: each unit served uses one unit of processing). Panics are caught and
 /// returned as the failure.
-fn read_and_audit(bytes: &[u8]) -> Result<bool, String> {
-    let outcome = std::panic::catch_unwind(|| -> Result<bool, String> {
+fn read_and_audit(bytes: &[u8]) -> Result<Read, String> {
+    let outcome = std::panic::catch_unwind(|| -> Result<Read, String> {
         let net = match Network::from_bytes(bytes) {
             Ok(n) => n,
-            Err(Error::Input(_)) => return Ok(false),
+            Err(Error::Input(_)) => return Ok(Read::Refused),
             Err(other) => return Err(format!("not an input error: {other:?}")),
         };
         if net.sites.len() > FUZZ_EVAL_MAX_SITES {
-            return Ok(true);
+            return Ok(Read::Valid);
         }
         let ev = redoubt::solve::evaluate(&net, &Default::default())
             .map_err(|e| format!("valid network, evaluation failed: {e}"))?;
@@ -997,7 +1072,7 @@ fn read_and_audit(bytes: &[u8]) -> Result<bool, String> {
                 ev.served_required
             ));
         }
-        Ok(true)
+        Ok(Read::Evaluated)
     });
     match outcome {
         Ok(r) => r,
@@ -1010,6 +1085,9 @@ fn read_and_audit(bytes: &[u8]) -> Result<bool, String> {
         )),
     }
 }
+
+/// Share of fuzz cases that start from a fixture rather than a generated file.
+const FUZZ_FIXTURE_SHARE: f64 = 1.0 / 3.0;
 
 /// Mutated cases of the fuzz property in the default test run; `REDOUBT_FUZZ_CASES`
 /// raises it for a longer session.
@@ -1039,24 +1117,42 @@ fn fuzzed_files_never_panic_and_give_only_input_errors() {
         .map(|p| std::fs::read(p).expect("read fixture"))
         .collect();
     assert!(corpus.len() >= 3, "corpus seeded from fixtures/*.json");
+    let fixtures = corpus.len();
     for _ in 0..200 {
         let doc = random_network(&mut rng);
         let bytes = serde_json::to_vec(&doc).unwrap();
         // Unmutated generated files are valid and evaluate.
         assert_eq!(
             read_and_audit(&bytes),
-            Ok(true),
+            Ok(Read::Evaluated),
             "{}",
             String::from_utf8_lossy(&bytes)
         );
         corpus.push(bytes);
     }
-    let mut valid = 0;
+    let (mut valid, mut evaluated) = (0usize, 0usize);
     for case in 0..cases {
-        let mut bytes = corpus[rng.random_range(0..corpus.len())].clone();
-        mutate(&mut rng, &mut bytes);
+        // A third of the cases start from a fixture, the rest from a generated file.
+        let seed = if rng.random_bool(FUZZ_FIXTURE_SHARE) {
+            rng.random_range(0..fixtures)
+        } else {
+            rng.random_range(fixtures..corpus.len())
+        };
+        let mut bytes = corpus[seed].clone();
+        // Half the cases mutate the structure (values, members), half the bytes.
+        let structured = rng.random_bool(0.5);
+        if structured && let Ok(mut v) = serde_json::from_slice::<Value>(&bytes) {
+            for _ in 0..rng.random_range(1..=3) {
+                mutate_value(&mut rng, &mut v);
+            }
+            bytes = serde_json::to_vec(&v).unwrap();
+        } else {
+            mutate(&mut rng, &mut bytes);
+        }
         match read_and_audit(&bytes) {
-            Ok(ok) => valid += usize::from(ok),
+            Ok(Read::Refused) => {}
+            Ok(Read::Valid) => valid += 1,
+            Ok(Read::Evaluated) => evaluated += 1,
             Err(why) => panic!(
                 "case {case}: {why}\nbytes: {:?}",
                 String::from_utf8_lossy(&bytes)
@@ -1064,5 +1160,39 @@ fn fuzzed_files_never_panic_and_give_only_input_errors() {
         }
     }
     // The mutations keep some files valid, so evaluation is exercised too.
-    assert!(valid > 0, "no mutated file was valid");
+    assert!(valid + evaluated > 0, "no mutated file was valid");
+    assert!(evaluated > 0, "no mutated file was evaluated");
+    assert!(
+        std::env::var("FUZZ_COUNTS").is_err(),
+        "{cases} cases: {valid} valid, {evaluated} evaluated"
+    );
+}
+
+// ---------------------------------------------------------------------------------------
+// The format documentation stays in sync with the reader
+// ---------------------------------------------------------------------------------------
+
+fn format_doc() -> String {
+    let p = Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/network-format.md");
+    std::fs::read_to_string(p).expect("docs/network-format.md")
+}
+
+/// Source: docs/network-format.md itself. Its example is a valid file, and every field the
+/// reader knows is documented there.
+#[test]
+fn the_format_doc_example_is_valid_and_every_field_is_documented() {
+    let doc = format_doc();
+    let start = doc.find("```json\n").expect("a json example") + "```json\n".len();
+    let end = start + doc[start..].find("```").expect("end of the example");
+    let run = accepted("doc-example", &doc[start..end]);
+    assert!(run.stdout.contains("valley-metro"), "{}", run.stdout);
+    for (_, fields) in strict::LISTS {
+        for field in fields.iter().chain(strict::TOP_FIELDS) {
+            assert!(
+                doc.contains(&format!("`{field}`")),
+                "`{field}` is not documented"
+            );
+        }
+    }
+    assert!(doc.contains("1e300"), "the amount limit is documented");
 }

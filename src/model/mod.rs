@@ -1,4 +1,4 @@
-//! The network: the file types ([`file`]), strict reading ([`strict`]) and the validated
+//! The network: the file types ([`file`](mod@file)), strict reading ([`strict`]) and the validated
 //! model ([`network`]).
 
 pub mod file;
