@@ -362,4 +362,28 @@ mod tests {
         assert!(Element::parse("ab", &n).is_err());
         assert!(Kinds::parse("links,bogus").is_err());
     }
+
+    #[test]
+    fn fail_lists_are_strict() {
+        let n = net();
+        assert_eq!(
+            Element::parse_list("link:ab,site:c", &n).unwrap(),
+            vec![Element::Link(0), Element::Site(2)]
+        );
+        for bad in [
+            "",
+            ",",
+            "link:ab,",
+            ",link:ab",
+            "link:ab,,site:c",
+            "link:ab, site:c",
+        ] {
+            assert!(Element::parse_list(bad, &n).is_err(), "{bad:?} accepted");
+        }
+        let m = match Element::parse_list("site:c,link:ab,site:c", &n) {
+            Err(Error::Usage(m)) => m,
+            other => panic!("repeat accepted: {other:?}"),
+        };
+        assert!(m.contains("element 3") && m.contains("element 1"), "{m}");
+    }
 }

@@ -1098,10 +1098,18 @@ const FUZZ_CASES: u64 = 3000;
 /// generated tiny networks never panic, never give an error other than `Error::Input`, and
 /// every valid small network evaluates within the contract's bounds.
 ///
+/// Half the cases mutate bytes (flips, splices of punctuation, extreme numbers, escapes,
+/// a BOM, non-UTF-8 bytes; deletions, duplications, truncation), half the structure
+/// (a value at any depth replaced with an extreme one, a member dropped or renamed).
+///
 /// Run length: the default 3000 mutated cases (plus 200 unmutated generated files) take
-/// a few seconds; a longer session with `REDOUBT_FUZZ_CASES=200000` (seed 0x0f022) ran
-/// for about 4 minutes and found no failure. A case that fails prints its bytes; keep it
-/// as a named regression test below.
+/// about 3 s. A longer session, `REDOUBT_FUZZ_CASES=200000` with this seed, ran 200,000
+/// cases in 284 s (test profile, on the shared 2-core machine under load): 10,511 files
+/// stayed valid, 9,409 of them were evaluated, and none panicked, gave an error other
+/// than `Error::Input`, or broke the bounds. The one finding of the development runs (a
+/// bound check too tight at mixed magnitudes) is kept as
+/// `fuzz_regression_served_within_processing_at_mixed_magnitudes`. A case that fails
+/// prints its bytes; keep it as a named regression test beside that one.
 #[test]
 fn fuzzed_files_never_panic_and_give_only_input_errors() {
     let cases: u64 = std::env::var("REDOUBT_FUZZ_CASES")
@@ -1162,10 +1170,6 @@ fn fuzzed_files_never_panic_and_give_only_input_errors() {
     // The mutations keep some files valid, so evaluation is exercised too.
     assert!(valid + evaluated > 0, "no mutated file was valid");
     assert!(evaluated > 0, "no mutated file was evaluated");
-    assert!(
-        std::env::var("FUZZ_COUNTS").is_err(),
-        "{cases} cases: {valid} valid, {evaluated} evaluated"
-    );
 }
 
 // ---------------------------------------------------------------------------------------
@@ -1195,4 +1199,25 @@ fn the_format_doc_example_is_valid_and_every_field_is_documented() {
         }
     }
     assert!(doc.contains("1e300"), "the amount limit is documented");
+}
+
+/// Regression kept from the fuzz test (a generated file, seed 0x0f022): capacities up to
+/// 2.7e7 next to 0.34 units of processing. served_required came out 8e-4 above Σ
+/// processing — within the solver's tolerance relative to the model's largest amount
+/// (3e-11 of 2.7e7), not relative to the processing. Source of the bound: contract (each
+/// unit served is processed once, using one unit of a site's processing).
+#[test]
+fn fuzz_regression_served_within_processing_at_mixed_magnitudes() {
+    let text = r#"{"demands":[{"from":"r3","required":235.01548058680785,"to":"z","volume":664.86},
+      {"from":"r3","id":"d1","to":"z","volume":0.2552342507563735},
+      {"from":"z","id":"d2","required":0.0,"to":"r3","volume":0.0}],
+     "links":[{"capacity":304.0,"from":"r3","id":"l0","metric":9393601,"one_way":true,"to":"z"},
+      {"capacity":0.0,"from":"r3","id":"l1","one_way":true,"to":"z"},
+      {"capacity":456.624,"from":"r3","id":"l2","one_way":true,"to":"z"},
+      {"capacity":0.0,"from":"z","id":"l3","to":"r3"},
+      {"capacity":27186876.88153366,"from":"r3","id":"l5","one_way":false,"to":"z"},
+      {"capacity":314.0,"from":"r3","id":"l6","one_way":false,"to":"z"}],
+     "sites":[{"expand_cost":127.0,"expand_max":0.43781125953579647,"id":"z"},
+      {"id":"r3","processing":0.3413313115861546}]}"#;
+    assert_eq!(read_and_audit(text.as_bytes()), Ok(Read::Evaluated));
 }
