@@ -42,11 +42,11 @@ impl Outcome {
 
 /// Reads and validates a network file.
 pub fn load(path: &Path) -> Result<Network> {
-    let text = std::fs::read_to_string(path).map_err(|source| Error::Io {
+    let bytes = std::fs::read(path).map_err(|source| Error::Io {
         path: path.to_path_buf(),
         source,
     })?;
-    Network::from_json(&text).map_err(|e| match e {
+    Network::from_bytes(&bytes).map_err(|e| match e {
         Error::Input(m) => Error::Input(format!("{}: {m}", path.display())),
         other => other,
     })
@@ -70,13 +70,7 @@ pub fn scenarios_for(
     fail: Option<&str>,
 ) -> Result<Vec<Scenario>> {
     if let Some(list) = fail {
-        let mut elements = Vec::new();
-        for part in list.split(',').map(str::trim).filter(|p| !p.is_empty()) {
-            elements.push(Element::parse(part, net)?);
-        }
-        if elements.is_empty() {
-            return Err(Error::Usage("--fail: name at least one element".into()));
-        }
+        let elements = Element::parse_list(list, net)?;
         return Ok(vec![Scenario::new(net, &elements)]);
     }
     let kinds = Kinds::parse(&args.kinds)?;

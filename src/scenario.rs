@@ -13,6 +13,7 @@ use std::fmt;
 use itertools::Itertools;
 
 use crate::error::{Error, Result};
+use crate::model::strict::{FAIL_SEPARATOR, printable};
 use crate::model::{LinkIdx, Network, SiteIdx};
 
 /// One element that can fail.
@@ -33,11 +34,14 @@ impl Element {
         }
     }
 
-    /// Parses `link:ID`, `site:ID` or `group:NAME` against the network.
+    /// Parses `link:ID`, `site:ID` or `group:NAME` against the network, exactly as
+    /// written: nothing is trimmed (ids never begin or end with whitespace, see
+    /// [`crate::model::strict::check_id`]). O(1) expected (hash lookup).
     pub fn parse(text: &str, net: &Network) -> Result<Element> {
+        let shown = printable(text);
         let (kind, id) = text.split_once(':').ok_or_else(|| {
             Error::Usage(format!(
-                "failed element {text:?} must be written kind:id with kind link, site or group"
+                "failed element \"{shown}\" must be written kind:id with kind link, site or group"
             ))
         })?;
         let found = match kind {
@@ -46,11 +50,59 @@ impl Element {
             "group" => net.group(id).map(Element::Group),
             _ => {
                 return Err(Error::Usage(format!(
-                    "failed element {text:?}: unknown kind {kind:?} (use link, site or group)"
+                    "failed element \"{shown}\": unknown kind \"{}\" (use link, site or group{})",
+                    printable(kind),
+                    space_hint(kind)
                 )));
             }
         };
-        found.ok_or_else(|| Error::Usage(format!("failed element {text:?}: no {kind} {id:?}")))
+        found.ok_or_else(|| {
+            Error::Usage(format!(
+                "failed element \"{shown}\": no {kind} \"{}\"{}",
+                printable(id),
+                space_hint(id)
+            ))
+        })
+    }
+
+    /// Parses a `--fail` list: elements separated by [`FAIL_SEPARATOR`], each as
+    /// [`Element::parse`] reads it. An empty element (two separators in a row, one at
+    /// either end, an empty list) and an element named twice are refused: either would
+    /// otherwise run a scenario other than the one written. Returns the elements in the
+    /// order written. O(n) expected for n elements.
+    pub fn parse_list(list: &str, net: &Network) -> Result<Vec<Element>> {
+        let mut elements: Vec<Element> = Vec::new();
+        let mut seen: HashMap<Element, usize> = HashMap::new();
+        for (i, part) in list.split(FAIL_SEPARATOR).enumerate() {
+            if part.is_empty() {
+                return Err(Error::Usage(format!(
+                    "--fail: element {} of \"{}\" is empty (write kind:id, separated by \
+                     `{FAIL_SEPARATOR}` with nothing around it)",
+                    i + 1,
+                    printable(list)
+                )));
+            }
+            let e = Element::parse(part, net)?;
+            if let Some(first) = seen.insert(e, i) {
+                return Err(Error::Usage(format!(
+                    "--fail: element {} \"{}\" repeats element {}; name each element once",
+                    i + 1,
+                    printable(part),
+                    first + 1
+                )));
+            }
+            elements.push(e);
+        }
+        Ok(elements)
+    }
+}
+
+/// A hint for a name that begins or ends with whitespace, which no id does.
+fn space_hint(name: &str) -> &'static str {
+    if name.trim() != name {
+        "; nothing is trimmed, and no id begins or ends with whitespace"
+    } else {
+        ""
     }
 }
 
@@ -309,5 +361,29 @@ mod tests {
         assert!(Element::parse("link:zz", &n).is_err());
         assert!(Element::parse("ab", &n).is_err());
         assert!(Kinds::parse("links,bogus").is_err());
+    }
+
+    #[test]
+    fn fail_lists_are_strict() {
+        let n = net();
+        assert_eq!(
+            Element::parse_list("link:ab,site:c", &n).unwrap(),
+            vec![Element::Link(0), Element::Site(2)]
+        );
+        for bad in [
+            "",
+            ",",
+            "link:ab,",
+            ",link:ab",
+            "link:ab,,site:c",
+            "link:ab, site:c",
+        ] {
+            assert!(Element::parse_list(bad, &n).is_err(), "{bad:?} accepted");
+        }
+        let m = match Element::parse_list("site:c,link:ab,site:c", &n) {
+            Err(Error::Usage(m)) => m,
+            other => panic!("repeat accepted: {other:?}"),
+        };
+        assert!(m.contains("element 3") && m.contains("element 1"), "{m}");
     }
 }

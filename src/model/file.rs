@@ -1,20 +1,27 @@
 //! The network file as written on disk: serde types that mirror the JSON contract
-//! (`../shared/network-format.md`) field for field, before any validation.
+//! (`../shared/network-format.md`, described for users in `docs/network-format.md`) field
+//! for field, before any validation.
 //!
 //! Nothing here is trusted: numbers may be negative, ids may repeat, sites may be unknown.
-//! [`super::network::Network::from_file`] lowers these types into a validated network.
+//! [`super::network::Network::from_file`] lowers these types into a validated network, and
+//! [`super::network::Network::to_file`] writes a network back into them. Which fields each
+//! object may hold (and the `notes` / `x-` annotations) is checked before serde sees the
+//! document, in [`super::strict`]; serde ignores the `x-` fields.
 
-use serde::Deserialize;
+use serde::{Deserialize, Serialize};
 
 /// The whole file: one JSON object.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
 pub struct NetworkFile {
     /// A label for reports.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub name: Option<String>,
     /// The traffic unit, a label for reports (e.g. `Gbit/s`).
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub unit: Option<String>,
+    /// Free text for the user; read, never printed.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub notes: Option<String>,
     /// Processing sites and plain routers alike.
     #[serde(default)]
     pub sites: Vec<SiteFile>,
@@ -24,31 +31,43 @@ pub struct NetworkFile {
     /// Traffic to route and process.
     #[serde(default)]
     pub demands: Vec<DemandFile>,
+    /// Failure probabilities of shared-risk groups named by links.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub risk_groups: Vec<RiskGroupFile>,
 }
 
 /// One `sites[]` entry.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
 pub struct SiteFile {
     pub id: String,
     /// Processing capacity in traffic units; absent means 0.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub processing: Option<f64>,
     /// Cost of one added unit of processing; absent: the site cannot be expanded.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub expand_cost: Option<f64>,
     /// Most processing that may be added; absent: unlimited.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub expand_max: Option<f64>,
     /// Processing is bought in modules of this size (our own optional field).
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub expand_step: Option<f64>,
     /// Probability that the site is down at a random moment (0 <= p < 1).
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub failure_probability: Option<f64>,
+    /// Drawing position (any finite number; no unit).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub x: Option<f64>,
+    /// Drawing position (any finite number; no unit).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub y: Option<f64>,
+    /// Free text for the user; read, never printed.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub notes: Option<String>,
 }
 
 /// One `links[]` entry.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
 pub struct LinkFile {
     pub id: String,
     pub from: String,
@@ -56,30 +75,48 @@ pub struct LinkFile {
     /// Capacity of each direction that exists.
     pub capacity: f64,
     /// `true`: only `from → to` exists.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub one_way: Option<bool>,
     /// Shared-risk link groups (SRLG, RFC 4202) the link belongs to.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub risk_groups: Option<Vec<String>>,
     /// Routing metric of the link (a positive integer up to 16777215), both directions.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub metric: Option<f64>,
     /// Probability that the link is down at a random moment (0 <= p < 1).
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub failure_probability: Option<f64>,
+    /// Free text for the user; read, never printed.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub notes: Option<String>,
 }
 
 /// One `demands[]` entry.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
 pub struct DemandFile {
     /// Optional label of our own; reports fall back to `from→to #index`.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub id: Option<String>,
     pub from: String,
     pub to: String,
     /// Offered traffic.
     pub volume: f64,
     /// Committed part; absent means the whole volume.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub required: Option<f64>,
+    /// Free text for the user; read, never printed.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub notes: Option<String>,
+}
+
+/// One top-level `risk_groups[]` entry: a probability for a group that links name.
+#[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
+pub struct RiskGroupFile {
+    /// The group's name, as written in `links[].risk_groups`.
+    pub id: String,
+    /// Probability that the group is down at a random moment (0 <= p < 1).
+    pub failure_probability: f64,
+    /// Free text for the user; read, never printed.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub notes: Option<String>,
 }

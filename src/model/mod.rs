@@ -1,8 +1,11 @@
-//! The network: the file types ([`file`]) and the validated model ([`network`]).
+//! The network: the file types ([`file`](mod@file)), strict reading ([`strict`]) and the validated
+//! model ([`network`]).
 
 pub mod file;
 pub mod network;
+pub mod strict;
 
 pub use network::{
-    Arc, Demand, Expansion, Link, LinkIdx, MAX_METRIC, Network, RiskGroup, Site, SiteIdx,
+    Arc, Demand, Expansion, Link, LinkIdx, MAX_AMOUNT, MAX_METRIC, MAX_TOTAL, Network, RiskGroup,
+    Site, SiteIdx,
 };

@@ -2,15 +2,21 @@
 //!
 //! Invariants established by [`Network::from_file`] and relied on everywhere else:
 //! - site, link and demand endpoints are indices into `sites`, and `from != to`;
-//! - every number is finite and `>= 0`; `required <= volume`; `expand_step > 0` when set;
+//! - every amount is finite, `>= 0` and at most [`MAX_AMOUNT`]; `required <= volume`;
+//!   `expand_step > 0` when set; the sums listed at [`MAX_TOTAL`] are at most it, so every
+//!   derived total (sums, twice a sum, a percentage, a plan's cost) stays finite;
 //! - site ids and link ids are unique; risk groups are sorted by name, each with its
 //!   member links sorted and without repeats;
+//! - ids, names and labels hold no control characters, and site, link and group ids no
+//!   `,` and no leading or trailing whitespace (see [`super::strict::check_id`]), so every
+//!   element can be named in `--fail` and printed as it is;
 //! - `arcs` lists every usable direction: `2 * links` minus one per one-way link, in link
 //!   order, forward direction first.
 
 use std::collections::{BTreeMap, HashMap};
 
-use super::file::{DemandFile, LinkFile, NetworkFile, SiteFile};
+use super::file::{DemandFile, LinkFile, NetworkFile, RiskGroupFile, SiteFile};
+use super::strict::{self, check_id, check_label, printable};
 use crate::error::{Error, Result};
 
 /// Index of a site in [`Network::sites`].
@@ -38,6 +44,10 @@ pub struct Site {
     pub expansion: Option<Expansion>,
     /// Unavailability (probability of being down), when the file gives one.
     pub failure_probability: Option<f64>,
+    /// Drawing position, when the file gives one (finite).
+    pub x: Option<f64>,
+    /// Drawing position, when the file gives one (finite).
+    pub y: Option<f64>,
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -105,6 +115,8 @@ pub struct Demand {
 pub struct RiskGroup {
     pub name: String,
     pub links: Vec<LinkIdx>,
+    /// Unavailability of the group as a whole, from the top-level `risk_groups` list.
+    pub failure_probability: Option<f64>,
 }
 
 /// A network whose every reference and number has been checked.
@@ -122,42 +134,100 @@ pub struct Network {
     group_index: HashMap<String, usize>,
 }
 
-/// Checks that `value` is a finite number `>= 0`, naming `element` and `field` otherwise.
+/// Largest single amount (processing, capacity, volume, required, expand_cost,
+/// expand_max, expand_step) a file may hold. Far above any real network in any unit; it
+/// keeps twice an amount, a percentage of one and a sum of a few of them finite.
+pub const MAX_AMOUNT: f64 = 1e300;
+
+/// Largest value of each of these sums: Σ volume, Σ processing, Σ capacity, Σ finite
+/// expand_max, and the dearest expand_cost × Σ volume (the most a plan that buys no more
+/// processing than the demand needs can cost). Kept there, every derived total stays
+/// finite (at most a few times this).
+pub const MAX_TOTAL: f64 = 1e300;
+
+/// Checks that `value` is a finite number `>= 0` and at most [`MAX_AMOUNT`], naming
+/// `element` and `field` otherwise.
 fn non_negative(element: &str, field: &str, value: f64) -> Result<f64> {
-    if value.is_finite() && value >= 0.0 {
-        Ok(value)
-    } else {
+    if !(value.is_finite() && value >= 0.0) {
         Err(Error::Input(format!(
             "{element}: field `{field}` must be a finite number >= 0, got {value}"
         )))
+    } else if value > MAX_AMOUNT {
+        Err(Error::Input(format!(
+            "{element}: field `{field}` must be at most {MAX_AMOUNT:e}, got {value:e}; use a \
+             larger unit"
+        )))
+    } else {
+        Ok(value)
+    }
+}
+
+/// Checks an optional drawing coordinate: any finite number.
+fn coordinate(element: &str, field: &str, value: Option<f64>) -> Result<Option<f64>> {
+    match value {
+        Some(v) if !v.is_finite() => Err(Error::Input(format!(
+            "{element}: field `{field}` must be a finite number, got {v}"
+        ))),
+        other => Ok(other),
     }
 }
 
 fn site_label(i: usize, s: &SiteFile) -> String {
-    format!("sites[{i}] (id {:?})", s.id)
+    format!("sites[{i}] (id \"{}\")", printable(&s.id))
 }
 
 fn link_label(i: usize, l: &LinkFile) -> String {
-    format!("links[{i}] (id {:?})", l.id)
+    format!("links[{i}] (id \"{}\")", printable(&l.id))
+}
+
+fn group_label(i: usize, g: &RiskGroupFile) -> String {
+    format!("risk_groups[{i}] (id \"{}\")", printable(&g.id))
 }
 
 fn demand_label(i: usize, d: &DemandFile) -> String {
+    let (from, to) = (printable(&d.from), printable(&d.to));
     match &d.id {
-        Some(id) => format!("demands[{i}] (id {id:?}, {}→{})", d.from, d.to),
-        None => format!("demands[{i}] ({}→{})", d.from, d.to),
+        Some(id) => format!("demands[{i}] (id \"{}\", {from}→{to})", printable(id)),
+        None => format!("demands[{i}] ({from}→{to})"),
     }
 }
 
+/// The UTF-8 byte-order mark some editors write at the start of a file.
+const BOM: char = '\u{FEFF}';
+
 impl Network {
+    /// Parses the bytes of a file into a validated network: UTF-8 text (a leading
+    /// byte-order mark is skipped), then [`Network::from_json`]. Invalid UTF-8 is an input
+    /// error naming the line and byte offset. Linear in the length of the file.
+    pub fn from_bytes(bytes: &[u8]) -> Result<Network> {
+        match std::str::from_utf8(bytes) {
+            Ok(text) => Network::from_json(text),
+            Err(e) => {
+                let at = e.valid_up_to();
+                let line = 1 + bytes[..at].iter().filter(|&&b| b == b'\n').count();
+                Err(Error::Input(format!(
+                    "the file is not UTF-8 text: invalid byte 0x{:02X} at byte offset {at} \
+                     (line {line})",
+                    bytes[at]
+                )))
+            }
+        }
+    }
+
     /// Parses JSON text into a validated network. Every error names the element, the
-    /// field and the value; nothing here panics, whatever the text holds.
+    /// field and the value; nothing here panics, whatever the text holds. A leading
+    /// byte-order mark is skipped; duplicate keys and unknown fields are refused (see
+    /// [`strict`]). Linear in the length of the text.
     pub fn from_json(text: &str) -> Result<Network> {
-        // First the document as plain JSON: syntax, trailing content, numbers out of range.
-        let value: serde_json::Value = match serde_json::from_str(text) {
-            Ok(v) => v,
+        let text = text.strip_prefix(BOM).unwrap_or(text);
+        // First the document as plain JSON: syntax, trailing content, numbers out of range,
+        // and keys repeated within an object.
+        let value: serde_json::Value = match strict::parse_document(text) {
+            Ok(v) => v?,
             Err(e) => return Err(Error::Input(describe_syntax_error(text, &e))),
         };
         check_shape(&value)?;
+        strict::check_fields(&value)?;
         let file: NetworkFile = match serde_path_to_error::deserialize(&value) {
             Ok(f) => f,
             Err(e) => return Err(Error::Input(describe_parse_error(&value, &e))),
@@ -168,6 +238,11 @@ impl Network {
     /// Lowers the file types into a network, checking every invariant listed in the
     /// module documentation. Linear in the size of the file (hash maps for ids).
     pub fn from_file(file: NetworkFile) -> Result<Network> {
+        for (field, label) in [("name", &file.name), ("unit", &file.unit)] {
+            if let Some(text) = label {
+                check_label(field, text)?;
+            }
+        }
         if file.sites.is_empty() {
             return Err(Error::Input(
                 "field `sites` must list at least one site, got none".into(),
@@ -177,13 +252,11 @@ impl Network {
         let mut site_index = HashMap::new();
         for (i, s) in file.sites.iter().enumerate() {
             let el = site_label(i, s);
-            if s.id.is_empty() {
-                return Err(Error::Input(format!("{el}: field `id` must not be empty")));
-            }
+            check_id(&el, "id", &s.id, true)?;
             if let Some(prev) = site_index.insert(s.id.clone(), i) {
                 return Err(Error::Input(format!(
-                    "{el}: field `id` value {:?} is already used by sites[{prev}]",
-                    s.id
+                    "{el}: field `id` value \"{}\" is already used by sites[{prev}]",
+                    printable(&s.id)
                 )));
             }
             let processing = non_negative(&el, "processing", s.processing.unwrap_or(0.0))?;
@@ -216,11 +289,16 @@ impl Network {
                 processing,
                 expansion,
                 failure_probability: probability(&el, s.failure_probability)?,
+                x: coordinate(&el, "x", s.x)?,
+                y: coordinate(&el, "y", s.y)?,
             });
         }
         let lookup = |el: &str, field: &str, id: &str| -> Result<SiteIdx> {
             site_index.get(id).copied().ok_or_else(|| {
-                Error::Input(format!("{el}: field `{field}` names unknown site {id:?}"))
+                Error::Input(format!(
+                    "{el}: field `{field}` names unknown site \"{}\"",
+                    printable(id)
+                ))
             })
         };
 
@@ -229,21 +307,19 @@ impl Network {
         let mut group_members: BTreeMap<String, Vec<LinkIdx>> = BTreeMap::new();
         for (i, l) in file.links.iter().enumerate() {
             let el = link_label(i, l);
-            if l.id.is_empty() {
-                return Err(Error::Input(format!("{el}: field `id` must not be empty")));
-            }
+            check_id(&el, "id", &l.id, true)?;
             if let Some(prev) = link_index.insert(l.id.clone(), i) {
                 return Err(Error::Input(format!(
-                    "{el}: field `id` value {:?} is already used by links[{prev}]",
-                    l.id
+                    "{el}: field `id` value \"{}\" is already used by links[{prev}]",
+                    printable(&l.id)
                 )));
             }
             let from = lookup(&el, "from", &l.from)?;
             let to = lookup(&el, "to", &l.to)?;
             if from == to {
                 return Err(Error::Input(format!(
-                    "{el}: fields `from` and `to` are the same site {:?}",
-                    l.from
+                    "{el}: fields `from` and `to` are the same site \"{}\"",
+                    printable(&l.from)
                 )));
             }
             let capacity = non_negative(&el, "capacity", l.capacity)?;
@@ -253,6 +329,7 @@ impl Network {
                         "{el}: field `risk_groups` holds an empty group name"
                     )));
                 }
+                check_id(&el, "risk_groups", g, true)?;
                 let members = group_members.entry(g.clone()).or_default();
                 if members.last() != Some(&i) {
                     members.push(i);
@@ -279,18 +356,41 @@ impl Network {
             groups.push(RiskGroup {
                 name,
                 links: members,
+                failure_probability: None,
             });
+        }
+        let mut probability_given: HashMap<&str, usize> = HashMap::new();
+        for (i, g) in file.risk_groups.iter().enumerate() {
+            let el = group_label(i, g);
+            check_id(&el, "id", &g.id, true)?;
+            if let Some(prev) = probability_given.insert(&g.id, i) {
+                return Err(Error::Input(format!(
+                    "{el}: field `id` value \"{}\" is already used by risk_groups[{prev}]",
+                    printable(&g.id)
+                )));
+            }
+            let Some(&gi) = group_index.get(&g.id) else {
+                return Err(Error::Input(format!(
+                    "{el}: field `id` names risk group \"{}\", which no link's `risk_groups` \
+                     lists",
+                    printable(&g.id)
+                )));
+            };
+            groups[gi].failure_probability = probability(&el, Some(g.failure_probability))?;
         }
 
         let mut demands = Vec::with_capacity(file.demands.len());
         for (i, d) in file.demands.iter().enumerate() {
             let el = demand_label(i, d);
+            if let Some(id) = &d.id {
+                check_id(&el, "id", id, false)?;
+            }
             let from = lookup(&el, "from", &d.from)?;
             let to = lookup(&el, "to", &d.to)?;
             if from == to {
                 return Err(Error::Input(format!(
-                    "{el}: fields `from` and `to` are the same site {:?}",
-                    d.from
+                    "{el}: fields `from` and `to` are the same site \"{}\"",
+                    printable(&d.from)
                 )));
             }
             let volume = non_negative(&el, "volume", d.volume)?;
@@ -313,7 +413,13 @@ impl Network {
             });
         }
 
-        // Every number is finite; their sums must be too, or no total can be reported.
+        // Every amount is finite and at most MAX_AMOUNT; their sums must stay within
+        // MAX_TOTAL, or some derived total would not be finite.
+        let volume_total = demands.iter().map(|d| d.volume).sum::<f64>();
+        let dearest = sites
+            .iter()
+            .filter_map(|s| s.expansion.as_ref().map(|e| e.cost))
+            .fold(0.0, f64::max);
         let totals = [
             (
                 "demands",
@@ -330,6 +436,15 @@ impl Network {
                 "capacity",
                 links.iter().map(|l| l.capacity).sum::<f64>(),
             ),
+            (
+                "sites",
+                "expand_max",
+                sites
+                    .iter()
+                    .filter_map(|s| s.expansion.as_ref().map(|e| e.max))
+                    .filter(|m| m.is_finite())
+                    .sum::<f64>(),
+            ),
         ];
         for (list, field, total) in totals {
             if !total.is_finite() {
@@ -337,6 +452,20 @@ impl Network {
                     "{list}: the sum of field `{field}` overflows ({total}); use a larger unit"
                 )));
             }
+            if total > MAX_TOTAL {
+                return Err(Error::Input(format!(
+                    "{list}: the sum of field `{field}` is {total:e}, above the limit \
+                     {MAX_TOTAL:e}; use a larger unit"
+                )));
+            }
+        }
+        let cost_bound = dearest * volume_total;
+        if cost_bound > MAX_TOTAL {
+            return Err(Error::Input(format!(
+                "sites: the largest `expand_cost` ({dearest:e}) times the sum of demand \
+                 `volume` ({volume_total:e}) is above the limit {MAX_TOTAL:e}, so a plan's cost \
+                 could not be reported; use a larger cost or traffic unit"
+            )));
         }
         let mut arcs = Vec::with_capacity(2 * links.len());
         for (li, l) in links.iter().enumerate() {
@@ -397,6 +526,80 @@ impl Network {
         self.sites.iter().map(|s| s.processing).sum()
     }
 
+    /// Writes the network back into the file types, in the contract's shape: every field
+    /// explicit (name, unit, demand labels as `id`, metric), risk groups as each link's
+    /// `risk_groups` and, for groups with a probability, the top-level list. Reading the
+    /// result gives an equal network (tested as a round trip). Linear in its size.
+    pub fn to_file(&self) -> NetworkFile {
+        NetworkFile {
+            name: Some(self.name.clone()),
+            unit: Some(self.unit.clone()),
+            notes: None,
+            sites: self
+                .sites
+                .iter()
+                .map(|s| SiteFile {
+                    id: s.id.clone(),
+                    processing: Some(s.processing),
+                    expand_cost: s.expansion.as_ref().map(|e| e.cost),
+                    expand_max: s
+                        .expansion
+                        .as_ref()
+                        .map(|e| e.max)
+                        .filter(|m| m.is_finite()),
+                    expand_step: s.expansion.as_ref().and_then(|e| e.step),
+                    failure_probability: s.failure_probability,
+                    x: s.x,
+                    y: s.y,
+                    notes: None,
+                })
+                .collect(),
+            links: self
+                .links
+                .iter()
+                .map(|l| LinkFile {
+                    id: l.id.clone(),
+                    from: self.sites[l.from].id.clone(),
+                    to: self.sites[l.to].id.clone(),
+                    capacity: l.capacity,
+                    one_way: Some(l.one_way),
+                    risk_groups: Some(
+                        l.groups
+                            .iter()
+                            .map(|&g| self.groups[g].name.clone())
+                            .collect(),
+                    ),
+                    metric: Some(f64::from(l.metric)),
+                    failure_probability: l.failure_probability,
+                    notes: None,
+                })
+                .collect(),
+            demands: self
+                .demands
+                .iter()
+                .map(|d| DemandFile {
+                    id: Some(d.label.clone()),
+                    from: self.sites[d.from].id.clone(),
+                    to: self.sites[d.to].id.clone(),
+                    volume: d.volume,
+                    required: Some(d.required),
+                    notes: None,
+                })
+                .collect(),
+            risk_groups: self
+                .groups
+                .iter()
+                .filter_map(|g| {
+                    g.failure_probability.map(|p| RiskGroupFile {
+                        id: g.name.clone(),
+                        failure_probability: p,
+                        notes: None,
+                    })
+                })
+                .collect(),
+        }
+    }
+
     /// A copy with `add[v]` units of processing added at each site `v`.
     pub fn with_added_processing(&self, add: &[f64]) -> Network {
         let mut n = self.clone();
@@ -417,7 +620,7 @@ fn check_shape(value: &serde_json::Value) -> Result<()> {
             kind_of(value)
         )));
     };
-    for list in ["sites", "links", "demands"] {
+    for list in ["sites", "links", "demands", "risk_groups"] {
         match obj.get(list) {
             None | Some(serde_json::Value::Null) => {}
             Some(serde_json::Value::Array(items)) => {
@@ -471,7 +674,7 @@ fn element_name(value: &serde_json::Value, list: &str, idx: usize) -> String {
         .and_then(|el| el.get("id"))
         .and_then(|v| v.as_str())
     {
-        Some(id) => format!("{list}[{idx}] (id {id:?})"),
+        Some(id) => format!("{list}[{idx}] (id \"{}\")", printable(id)),
         None => format!("{list}[{idx}]"),
     }
 }
@@ -564,7 +767,7 @@ fn describe_parse_error(
             .and_then(|el| el.get("id"))
             .and_then(|v| v.as_str())
     {
-        element = format!(" (id {id:?})");
+        element = format!(" (id \"{}\")", printable(id));
     }
     if path == "." || path.is_empty() {
         return format!("the network: {inner}");
