@@ -243,7 +243,11 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             num(baseline.shortfall)
         );
         if !baseline.cut_off.is_empty() {
-            let _ = writeln!(out, "Baseline: {}.", baseline_misses(net, &baseline.cut_off));
+            let _ = writeln!(
+                out,
+                "Baseline: {}.",
+                baseline_misses(net, &baseline.cut_off)
+            );
         }
     }
     let order = rank::worst_first(audit);
