@@ -19,7 +19,7 @@ pub const TOL: f64 = 1e-7;
 
 /// A saturated resource of an optimal allocation with its shadow price (served units per
 /// added unit of capacity).
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Bottleneck {
     pub resource: Resource,
     pub price: f64,
@@ -27,7 +27,9 @@ pub struct Bottleneck {
     pub utilisation: f64,
 }
 
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, serde::Serialize, serde::Deserialize,
+)]
 pub enum Resource {
     /// A link direction: the arc index in `Network::arcs`.
     Arc(usize),
@@ -36,7 +38,7 @@ pub enum Resource {
 }
 
 /// Everything the tool reports for one outage.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Evaluation {
     /// Largest Σ f_d over surviving demands with f_d <= required_d.
     pub served_required: f64,
