@@ -220,7 +220,7 @@ impl Batch {
         let e = solve::evaluate(net, &self.outages[k])?;
         let took = start.elapsed();
         if let Some(j) = journal {
-            j.record(k, &e)?;
+            j.record(k, &e);
         }
         self.done[k] = Some(e);
         Ok(Some(took))
@@ -241,7 +241,7 @@ impl Batch {
         let solved = par_map(&todo, opts, "solving", |&k| {
             let e = solve::evaluate(net, &self.outages[k])?;
             if let Some(j) = journal {
-                j.record(k, &e)?;
+                j.record(k, &e);
             }
             Ok(e)
         })?;

@@ -73,7 +73,8 @@ pub fn parse_fraction(text: &str) -> Result<f64> {
     }
 }
 
-/// Evaluates each gate on `audit`. O(gates · scenarios). A maximum gate fails when the
+/// Evaluates each gate on `audit`. O(gates · scenarios). The worst scenario is the first
+/// in list order whose value, as printed, is worst. A maximum gate fails when the
 /// worst value exceeds its limit, the fraction gate when the worst fraction is below it;
 /// compared as printed (fractions as printed percentages) unless `tolerance` is given.
 pub fn check(audit: &Audit, gates: &[Gate], tolerance: Option<f64>) -> Vec<GateResult> {
@@ -89,13 +90,22 @@ pub fn check(audit: &Audit, gates: &[Gate], tolerance: Option<f64>) -> Vec<GateR
                 }
             };
             let minimum = g.kind == GateKind::MinServedFraction;
+            // Scenarios are compared as printed, so solver noise never picks among
+            // values that print alike: the first in list order wins.
+            let printed = |v: f64| {
+                if minimum {
+                    displayed(100.0 * v)
+                } else {
+                    displayed(v)
+                }
+            };
             let mut worst: Option<(usize, f64)> = None;
             for i in 0..audit.scenarios.len() {
                 let v = value_of(i);
                 let better = match worst {
                     None => true,
-                    Some((_, w)) if minimum => v.total_cmp(&w).is_lt(),
-                    Some((_, w)) => v.total_cmp(&w).is_gt(),
+                    Some((_, w)) if minimum => printed(v).total_cmp(&printed(w)).is_lt(),
+                    Some((_, w)) => printed(v).total_cmp(&printed(w)).is_gt(),
                 };
                 if better {
                     worst = Some((i, v));

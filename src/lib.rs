@@ -310,6 +310,9 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     };
     let audit = solve_batch(&net, batch, &args.scenarios, opts, journal.as_ref(), err)
         .map_err(interrupted)?;
+    if let Some(why) = journal.as_ref().and_then(Journal::failure) {
+        note(report::text::note_journal_failed(err, &why));
+    }
     let baseline = with_baseline(&net, &audit)?;
     let cands = expand::Candidates::of(&net);
     let closings = if args.close {

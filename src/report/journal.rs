@@ -85,6 +85,8 @@ pub struct Journal {
     outages: usize,
     /// Outages the journal holds (restored plus recorded).
     saved: AtomicUsize,
+    /// The first failed write; recording stops after it (the run goes on).
+    failure: Mutex<Option<String>>,
 }
 
 fn io_err(path: &Path) -> impl FnOnce(io::Error) -> Error + '_ {
@@ -184,6 +186,7 @@ impl Journal {
             file: Mutex::new(file),
             outages,
             saved: AtomicUsize::new(saved),
+            failure: Mutex::new(None),
         })
     }
 
@@ -203,28 +206,42 @@ impl Journal {
         &self.path
     }
 
-    /// Appends outage `k`'s evaluation as one whole line (one `write` under a lock).
-    pub fn record(&self, k: usize, e: &Evaluation) -> Result<()> {
-        let mut line = serde_json::to_string(&LineOut {
+    /// Why journaling stopped, if a write failed (disk full, `ulimit -f`).
+    pub fn failure(&self) -> Option<String> {
+        self.failure
+            .lock()
+            .unwrap_or_else(|p| p.into_inner())
+            .clone()
+    }
+
+    /// Appends outage `k`'s evaluation as one whole line (one `write` under a lock). The
+    /// journal is insurance, not a result: a failed write stops journaling (see
+    /// [`Self::failure`]) and never the run.
+    pub fn record(&self, k: usize, e: &Evaluation) {
+        let Ok(mut line) = serde_json::to_string(&LineOut {
             outage: k,
             evaluation: e,
-        })
-        .map_err(|err| Error::Io {
-            path: self.path.clone(),
-            source: io::Error::other(err),
-        })?;
+        }) else {
+            return;
+        };
         // A value JSON cannot carry exactly (not finite) is not journaled: a resume solves
         // that outage again rather than restore something different.
         let exact = serde_json::from_str::<LineIn>(&line).is_ok_and(|r| r.evaluation == *e);
         if !exact {
-            return Ok(());
+            return;
         }
         line.push('\n');
         let mut file = self.file.lock().unwrap_or_else(|p| p.into_inner());
-        file.write_all(line.as_bytes())
-            .map_err(io_err(&self.path))?;
-        self.saved.fetch_add(1, Ordering::SeqCst);
-        Ok(())
+        let mut failure = self.failure.lock().unwrap_or_else(|p| p.into_inner());
+        if failure.is_some() {
+            return;
+        }
+        match file.write_all(line.as_bytes()) {
+            Ok(()) => {
+                self.saved.fetch_add(1, Ordering::SeqCst);
+            }
+            Err(err) => *failure = Some(format!("{}: {err}", self.path.display())),
+        }
     }
 
     /// Deletes the journal once the final files are written.

@@ -715,3 +715,12 @@ pub fn note_resume(
         ),
     }
 }
+
+/// A note on stderr: the journal could not be written (the run went on without it).
+pub fn note_journal_failed(w: &mut dyn Write, why: &str) -> io::Result<()> {
+    writeln!(
+        w,
+        "redoubt: note: journaling stopped ({why}); an interrupted run would resume from \
+         what was saved before"
+    )
+}
