@@ -1187,7 +1187,14 @@ fn closed_stdout_exits_141_quietly_and_json_is_written() {
     let out = TempPath::new("ring-pipe-out", "json");
     let mut child = Command::new(env!("CARGO_BIN_EXE_redoubt"))
         .args([
-            "audit", f.path(), "--depth", "2", "--top", "100000", "--quiet", "--json",
+            "audit",
+            f.path(),
+            "--depth",
+            "2",
+            "--top",
+            "100000",
+            "--quiet",
+            "--json",
             out.path(),
         ])
         .stdout(std::process::Stdio::piped())
@@ -1203,10 +1210,16 @@ fn closed_stdout_exits_141_quietly_and_json_is_written() {
     let stderr = String::from_utf8_lossy(&result.stderr);
     assert!(first.starts_with("ring"), "first line: {first}");
     assert_eq!(result.status.code(), Some(141), "stderr:\n{stderr}");
-    assert!(stderr.is_empty(), "a closed pipe ends quietly, got:\n{stderr}");
+    assert!(
+        stderr.is_empty(),
+        "a closed pipe ends quietly, got:\n{stderr}"
+    );
     // 1 + 2n + C(2n, 2) scenarios over n links and n sites (hand count).
     let pool = 2 * n;
-    assert_eq!(scenarios(&out.read_json()).len(), 1 + pool + pool * (pool - 1) / 2);
+    assert_eq!(
+        scenarios(&out.read_json()).len(),
+        1 + pool + pool * (pool - 1) / 2
+    );
 }
 
 /// A fresh folder of its own under [`temp_root`], removed when dropped.
@@ -1344,7 +1357,10 @@ fn threads_above_the_core_count_are_capped() {
             out.path(),
         ]);
         assert_eq!(run.code, 0, "{}", run.stderr);
-        assert!(start.elapsed().as_secs() < 60, "--threads {threads} too slow");
+        assert!(
+            start.elapsed().as_secs() < 60,
+            "--threads {threads} too slow"
+        );
         if threads == "10000" {
             assert!(
                 run.stderr.contains(&format!("using {cores}")),
@@ -1380,9 +1396,16 @@ fn huge_values_print_readably() {
         .map(str::len)
         .max()
         .unwrap_or(0);
-    assert!(longest_digits <= 12, "a {longest_digits}-digit number in:\n{text}");
+    assert!(
+        longest_digits <= 12,
+        "a {longest_digits}-digit number in:\n{text}"
+    );
     // Baseline: 1e300 served of 1.5e300 required, 66.7% (hand computation).
-    assert!(run.stdout.contains("serves 1e300 of 1.5e300"), "{}", run.stdout);
+    assert!(
+        run.stdout.contains("serves 1e300 of 1.5e300"),
+        "{}",
+        run.stdout
+    );
     assert!(run.stdout.contains("(66.7%)"), "{}", run.stdout);
 }
 
@@ -1392,20 +1415,33 @@ fn huge_values_print_readably() {
 fn negative_numbers_get_a_clear_message() {
     let f = TempPath::with_text("neg", PATH_NET);
     for (args, says) in [
-        (vec!["audit", f.path(), "--max-shortfall", "-1"], "--max-shortfall must be"),
-        (vec!["audit", f.path(), "--max-stranded", "-2"], "--max-stranded must be"),
+        (
+            vec!["audit", f.path(), "--max-shortfall", "-1"],
+            "--max-shortfall must be",
+        ),
+        (
+            vec!["audit", f.path(), "--max-stranded", "-2"],
+            "--max-stranded must be",
+        ),
         (
             vec!["audit", f.path(), "--min-served-fraction", "-0.5"],
             "--min-served-fraction must be",
         ),
-        (vec!["audit", f.path(), "--max-minutes", "-1"], "--max-minutes must be"),
+        (
+            vec!["audit", f.path(), "--max-minutes", "-1"],
+            "--max-minutes must be",
+        ),
         (vec!["plan", f.path(), "--budget", "-1"], "--budget must be"),
     ] {
         let run = redoubt(&args);
         assert_eq!(run.code, 2, "{args:?}:\n{}", run.stderr);
         assert!(run.stderr.contains(says), "{args:?}:\n{}", run.stderr);
         assert!(run.stderr.contains("-"), "{}", run.stderr);
-        assert!(!run.stderr.contains("unexpected argument"), "{}", run.stderr);
+        assert!(
+            !run.stderr.contains("unexpected argument"),
+            "{}",
+            run.stderr
+        );
     }
 }
 
@@ -1511,4 +1547,141 @@ fn stranded_and_served_fraction_gates_by_hand() {
     assert_eq!(code, 0);
     let (code, _) = gate(&["--max-shortfall", "5.5", "--gate-tolerance", "0.4"]);
     assert_eq!(code, 1);
+}
+
+// ---------------------------------------------------------------------------------------
+// Runs that resume (issue 7)
+// ---------------------------------------------------------------------------------------
+
+fn journal_lines(path: &Path) -> usize {
+    std::fs::read(path).map_or(0, |b| b.iter().filter(|&&c| c == b'\n').count())
+}
+
+/// Starts `redoubt args`, waits until the journal holds at least `lines` lines, sends
+/// SIGINT (with coreutils' `kill`), and returns the finished run.
+fn interrupt_at(args: &[&str], journal: &Path, lines: usize) -> Run {
+    let child = Command::new(env!("CARGO_BIN_EXE_redoubt"))
+        .args(args)
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("the redoubt binary starts");
+    let start = std::time::Instant::now();
+    while journal_lines(journal) < lines {
+        assert!(
+            start.elapsed().as_secs() < 300,
+            "journal never reached {lines} lines"
+        );
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    let kill = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .expect("kill runs");
+    assert!(kill.success());
+    let out = child.wait_with_output().expect("redoubt ends");
+    Run {
+        code: out.status.code().unwrap_or(-1),
+        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+    }
+}
+
+/// Source: the brief (SIGINT leaves a valid journal; `--resume` skips what is done and
+/// writes byte-identical final files to an uninterrupted run; a torn last line is
+/// ignored; a fingerprint mismatch is refused). A real audit (the demo at depth 2,
+/// several hundred outages) is interrupted twice, damaged at its end, and resumed.
+#[test]
+fn interrupted_audit_resumes_to_identical_files() {
+    let demo = demo();
+    let reference = TempPath::new("resume-ref", "json");
+    let full = redoubt(&[
+        "audit",
+        s(&demo),
+        "--depth",
+        "2",
+        "--quiet",
+        "--json",
+        reference.path(),
+    ]);
+    assert_eq!(full.code, 0, "{}", full.stderr);
+    let want_json = std::fs::read(&reference.0).unwrap();
+
+    let dir = TempDir::new("resume");
+    let json = dir.0.join("audit.json");
+    let journal = dir.0.join("audit.json.journal");
+    let args = ["audit", s(&demo), "--depth", "2", "--json", s(&json)];
+    let resume: Vec<&str> = args.iter().copied().chain(["--resume"]).collect();
+
+    let first = interrupt_at(&args, &journal, 40);
+    assert_eq!(first.code, 130, "SIGINT exit status:\n{}", first.stderr);
+    assert!(first.stderr.contains("--resume"), "{}", first.stderr);
+    assert!(!json.exists(), "no final file from an interrupted run");
+    let kept = journal_lines(&journal);
+    assert!(kept > 40, "journal kept {kept} lines");
+
+    // Another scenario list or other network bytes: refused, journal untouched.
+    let other_depth = redoubt(&["audit", s(&demo), "--json", s(&json), "--resume"]);
+    assert_eq!(other_depth.code, 2, "{}", other_depth.stderr);
+    assert!(
+        other_depth
+            .stderr
+            .contains("another network file or other options")
+    );
+    let edited = dir.0.join("edited.json");
+    let mut bytes = std::fs::read(&demo).unwrap();
+    bytes.push(b'\n');
+    std::fs::write(&edited, bytes).unwrap();
+    let other_file = redoubt(&[
+        "audit",
+        s(&edited),
+        "--depth",
+        "2",
+        "--json",
+        s(&json),
+        "--resume",
+    ]);
+    assert_eq!(other_file.code, 2, "{}", other_file.stderr);
+    assert_eq!(journal_lines(&journal), kept);
+
+    let second = interrupt_at(&resume, &journal, kept + 150);
+    assert_eq!(second.code, 130, "{}", second.stderr);
+    assert!(second.stderr.contains("resuming"), "{}", second.stderr);
+
+    // A kill in the middle of a write leaves a torn last line.
+    let mut torn = std::fs::OpenOptions::new()
+        .append(true)
+        .open(&journal)
+        .unwrap();
+    std::io::Write::write_all(&mut torn, b"{\"outage\": 3, \"evaluation\": {\"served_req").unwrap();
+    drop(torn);
+
+    let last = redoubt(&resume);
+    assert_eq!(last.code, 0, "{}", last.stderr);
+    assert!(
+        std::fs::read(&json).unwrap() == want_json,
+        "resumed JSON differs from the uninterrupted run"
+    );
+    assert!(last.stdout == full.stdout, "resumed report differs");
+    assert!(
+        !journal.exists(),
+        "journal removed once the files are written"
+    );
+}
+
+/// Source: the brief (estimate the work from the scenario count and a first timed solve;
+/// refuse beyond a limit unless --yes).
+#[test]
+fn long_runs_are_estimated_and_refused_without_yes() {
+    let demo = demo();
+    let args = ["audit", s(&demo), "--quiet", "--max-minutes", "0.00001"];
+    let run = redoubt(&args);
+    assert_eq!(run.code, 2, "{}", run.stderr);
+    assert!(run.stderr.contains("estimated"), "{}", run.stderr);
+    assert!(run.stderr.contains("--yes"), "{}", run.stderr);
+    assert!(run.stdout.is_empty());
+    let mut yes = args.to_vec();
+    yes.push("--yes");
+    let run = redoubt(&yes);
+    assert_eq!(run.code, 0, "{}", run.stderr);
 }
