@@ -1,6 +1,6 @@
 //! Output formats. Only this module knows how results look on a terminal or in a file:
 //! [`text`] for the `check` summary, the tables, notes and gate lines, [`json`] for `--json`
-//! files and the resume journal's lines, [`file`] for writing output files safely.
+//! files and the resume journal's lines, [`mod@file`] for writing output files safely.
 //!
 //! Every exporter writes to a `&mut dyn Write` it is given; nothing here prints.
 
