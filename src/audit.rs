@@ -1,19 +1,23 @@
 //! Running the scenarios: deduplicate outages, solve each once (in parallel with rayon),
-//! and keep every scenario listed under its own names.
+//! and keep every scenario listed under its own names. A run can journal each result as
+//! it finishes ([`crate::report::journal`]) and be resumed from that journal, and it stops
+//! cleanly on SIGINT ([`install_interrupt_handler`]).
 //!
 //! Invariant: the result depends only on the network and the scenario list. Outages are
-//! solved by a pure function and collected in input order, so the thread count changes the
-//! wall time, never a number.
+//! solved by a pure function and collected in input order, so the thread count, an
+//! interruption or a resume changes the wall time, never a number.
 
 use std::io::IsTerminal;
+use std::sync::Once;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
 
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
-use crate::error::{Error, Result};
+use crate::error::{EXIT_INTERRUPTED, Error, Result};
 use crate::model::Network;
+use crate::report::journal::Journal;
 use crate::scenario::{self, Outage, Scenario};
 use crate::solve::{self, Evaluation};
 
@@ -24,6 +28,29 @@ pub struct RunOptions {
     pub threads: Option<usize>,
     /// Show a progress bar on stderr (only drawn when stderr is a terminal).
     pub progress: bool,
+}
+
+/// Set by the SIGINT handler; every batch checks it before starting an item.
+static INTERRUPTED: AtomicBool = AtomicBool::new(false);
+
+/// Installs the SIGINT handler once per process. The first Ctrl-C asks every running batch
+/// to stop once the solves in flight have finished (and been journaled); a second one
+/// exits at once with [`EXIT_INTERRUPTED`]. A failure to install is ignored: Ctrl-C then
+/// keeps its default effect.
+pub fn install_interrupt_handler() {
+    static ONCE: Once = Once::new();
+    ONCE.call_once(|| {
+        let _ = ctrlc::set_handler(|| {
+            if INTERRUPTED.swap(true, Ordering::SeqCst) {
+                std::process::exit(EXIT_INTERRUPTED);
+            }
+        });
+    });
+}
+
+/// Whether an interrupt was asked for.
+pub fn interrupted() -> bool {
+    INTERRUPTED.load(Ordering::SeqCst)
 }
 
 /// The evaluated scenarios.
@@ -61,43 +88,38 @@ impl Audit {
     }
 }
 
-/// A progress bar on stderr with an ETA. It stays hidden for the first second (short runs
-/// never show it) and whenever `enabled` is false or stderr is not a terminal.
+/// A progress bar on stderr with items done, rate and ETA. It is drawn from the start
+/// whenever `enabled` is true and stderr is a terminal, hidden otherwise, and cleared when
+/// the batch ends (finished or interrupted), so the terminal is never left mid-line.
 pub struct Progress {
     bar: ProgressBar,
-    start: Instant,
-    live: bool,
-    shown: AtomicBool,
 }
 
 impl Progress {
     pub fn new(len: usize, enabled: bool, what: &str) -> Progress {
-        let bar = ProgressBar::with_draw_target(Some(len as u64), ProgressDrawTarget::hidden());
+        let live = enabled && std::io::stderr().is_terminal();
+        let target = if live {
+            ProgressDrawTarget::stderr()
+        } else {
+            ProgressDrawTarget::hidden()
+        };
+        let bar = ProgressBar::with_draw_target(Some(len as u64), target);
         bar.set_style(
             ProgressStyle::with_template(
-                "{msg} [{bar:30}] {pos}/{len}, {elapsed} elapsed, ETA {eta}",
+                "{msg} [{bar:30}] {pos}/{len} done, {per_sec}, {elapsed} elapsed, ETA {eta}",
             )
             .expect("static template")
             .progress_chars("=> "),
         );
         bar.set_message(what.to_string());
-        Progress {
-            bar,
-            start: Instant::now(),
-            live: enabled && std::io::stderr().is_terminal(),
-            shown: AtomicBool::new(false),
+        if live {
+            bar.enable_steady_tick(Duration::from_millis(500));
         }
+        Progress { bar }
     }
 
-    /// Counts one finished item; shows the bar once a second has passed.
+    /// Counts one finished item.
     pub fn inc(&self) {
-        if self.live
-            && self.start.elapsed() > Duration::from_secs(1)
-            && !self.shown.swap(true, Ordering::Relaxed)
-        {
-            self.bar.set_draw_target(ProgressDrawTarget::stderr());
-            self.bar.enable_steady_tick(Duration::from_millis(500));
-        }
         self.bar.inc(1);
     }
 
@@ -107,7 +129,8 @@ impl Progress {
 }
 
 /// Runs `f` on `items` in parallel with the requested thread count, results in input
-/// order.
+/// order. Each item first checks for an interrupt: once one is asked for, no new item
+/// starts and the call returns [`Error::Interrupted`] after the items in flight.
 pub fn par_map<T, R, F>(items: &[T], opts: RunOptions, what: &str, f: F) -> Result<Vec<R>>
 where
     T: Sync,
@@ -119,6 +142,9 @@ where
         items
             .par_iter()
             .map(|it| {
+                if interrupted() {
+                    return Err(Error::Interrupted(format!("{what} stopped")));
+                }
                 let r = f(it);
                 bar.inc();
                 r
@@ -137,14 +163,105 @@ where
     out
 }
 
+/// Scenarios with their distinct outages, some of them already evaluated (by a first
+/// timed solve or from a journal), the rest still to solve.
+pub struct Batch {
+    scenarios: Vec<Scenario>,
+    outage_of: Vec<usize>,
+    outages: Vec<Outage>,
+    done: Vec<Option<Evaluation>>,
+}
+
+impl Batch {
+    /// Deduplicates the outages of `scenarios`; nothing is solved yet. O(scenarios ·
+    /// elements per scenario).
+    pub fn new(net: &Network, scenarios: Vec<Scenario>) -> Batch {
+        let (outages, outage_of) = scenario::dedup(net, &scenarios);
+        let done = vec![None; outages.len()];
+        Batch {
+            scenarios,
+            outage_of,
+            outages,
+            done,
+        }
+    }
+
+    /// Number of distinct outages.
+    pub fn outages(&self) -> usize {
+        self.outages.len()
+    }
+
+    /// Number of outages not evaluated yet.
+    pub fn remaining(&self) -> usize {
+        self.done.iter().filter(|d| d.is_none()).count()
+    }
+
+    /// Takes evaluations restored from a journal (`restored[k]` for outage `k`); entries
+    /// already present are kept. Invariant: `restored.len() == self.outages()`.
+    pub fn restore(&mut self, restored: Vec<Option<Evaluation>>) {
+        for (slot, r) in self.done.iter_mut().zip(restored) {
+            if slot.is_none() {
+                *slot = r;
+            }
+        }
+    }
+
+    /// Solves the first outage not evaluated yet, records it in `journal`, and returns how
+    /// long the solve took (`None` when nothing remains). Used to estimate the run.
+    pub fn solve_first(
+        &mut self,
+        net: &Network,
+        journal: Option<&Journal>,
+    ) -> Result<Option<Duration>> {
+        let Some(k) = self.done.iter().position(Option::is_none) else {
+            return Ok(None);
+        };
+        let start = Instant::now();
+        let e = solve::evaluate(net, &self.outages[k])?;
+        let took = start.elapsed();
+        if let Some(j) = journal {
+            j.record(k, &e);
+        }
+        self.done[k] = Some(e);
+        Ok(Some(took))
+    }
+
+    /// Solves every remaining outage in parallel, recording each in `journal` as it
+    /// finishes, and returns the complete audit. On an interrupt the finished solves stay
+    /// recorded and [`Error::Interrupted`] is returned.
+    pub fn finish(
+        self,
+        net: &Network,
+        opts: RunOptions,
+        journal: Option<&Journal>,
+    ) -> Result<Audit> {
+        let todo: Vec<usize> = (0..self.outages.len())
+            .filter(|&k| self.done[k].is_none())
+            .collect();
+        let solved = par_map(&todo, opts, "solving", |&k| {
+            let e = solve::evaluate(net, &self.outages[k])?;
+            if let Some(j) = journal {
+                j.record(k, &e);
+            }
+            Ok(e)
+        })?;
+        let mut done = self.done;
+        for (k, e) in todo.into_iter().zip(solved) {
+            done[k] = Some(e);
+        }
+        Ok(Audit {
+            scenarios: self.scenarios,
+            outage_of: self.outage_of,
+            outages: self.outages,
+            evaluations: done
+                .into_iter()
+                .map(|e| e.expect("every outage is solved or restored"))
+                .collect(),
+        })
+    }
+}
+
 /// Evaluates every scenario of `scenarios`, solving each distinct outage once.
 pub fn run(net: &Network, scenarios: Vec<Scenario>, opts: RunOptions) -> Result<Audit> {
-    let (outages, outage_of) = scenario::dedup(net, &scenarios);
-    let evaluations = par_map(&outages, opts, "solving", |o| solve::evaluate(net, o))?;
-    Ok(Audit {
-        scenarios,
-        outage_of,
-        outages,
-        evaluations,
-    })
+    Batch::new(net, scenarios).finish(net, opts, None)
 }

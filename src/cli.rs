@@ -40,9 +40,15 @@ pub struct ScenarioArgs {
     /// Worker threads (default: one per core). Results do not depend on it.
     #[arg(long)]
     pub threads: Option<usize>,
-    /// No progress bar.
+    /// No progress bar and no notes on stderr.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Run even when the estimated time exceeds the limit (--max-minutes, default 60).
+    #[arg(long)]
+    pub yes: bool,
+    /// Refuse to start when the estimated time exceeds this many minutes (default 60).
+    #[arg(long, value_name = "M", allow_negative_numbers = true)]
+    pub max_minutes: Option<f64>,
 }
 
 #[derive(Debug, Args)]
@@ -50,17 +56,32 @@ pub struct AuditArgs {
     #[command(flatten)]
     pub scenarios: ScenarioArgs,
     /// Evaluate one named scenario instead, e.g. `link:X,site:Y,group:Z`.
-    #[arg(long, value_name = "ELEMENTS")]
+    #[arg(long, value_name = "ELEMENTS", conflicts_with_all = ["depth", "kinds"])]
     pub fail: Option<String>,
     /// How many scenarios (and elements) the tables show.
     #[arg(long, default_value_t = 15)]
     pub top: usize,
-    /// Write every scenario to this JSON file.
+    /// Write every scenario to this JSON file (results are journaled beside it as they
+    /// finish, in FILE.journal).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
+    /// Continue an interrupted run from the journal beside --json FILE.
+    #[arg(long, requires = "json")]
+    pub resume: bool,
     /// Gate: exit 1 when any scenario's shortfall exceeds this many units.
-    #[arg(long, value_name = "X")]
+    #[arg(long, value_name = "X", allow_negative_numbers = true)]
     pub max_shortfall: Option<f64>,
+    /// Gate: exit 1 when any scenario strands more than this many units.
+    #[arg(long, value_name = "X", allow_negative_numbers = true)]
+    pub max_stranded: Option<f64>,
+    /// Gate: exit 1 when any scenario serves less than this fraction of its surviving
+    /// required demand: a fraction 0..1 (`0.95`) or a percentage (`95%`).
+    #[arg(long, value_name = "F", allow_hyphen_values = true)]
+    pub min_served_fraction: Option<String>,
+    /// Gates compare raw values with this tolerance (in the gate's own unit) instead of
+    /// the values as printed.
+    #[arg(long, value_name = "T", allow_negative_numbers = true)]
+    pub gate_tolerance: Option<f64>,
     /// For each scenario with a shortfall, the cheapest processing expansion that closes it.
     #[arg(long)]
     pub close: bool,
@@ -82,7 +103,7 @@ pub struct PlanArgs {
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
     /// Spend at most this much instead of closing every gap.
-    #[arg(long, value_name = "B")]
+    #[arg(long, value_name = "B", allow_negative_numbers = true)]
     pub budget: Option<f64>,
     /// What a budgeted plan optimises.
     #[arg(long, value_enum, default_value_t = Objective::Worst, requires = "budget")]

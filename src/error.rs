@@ -25,14 +25,30 @@ pub enum Error {
     /// (all-zero flow) and bounded (flows are capped by demand).
     #[error("solver failed: {0}")]
     Solver(String),
+    /// Standard output was closed by its reader (`| head`): the run ends quietly.
+    #[error("standard output closed")]
+    BrokenPipe,
+    /// The run was interrupted (SIGINT); the message says what was kept and how to resume.
+    #[error("interrupted: {0}")]
+    Interrupted(String),
 }
 
+/// Exit status when standard output is closed early: 128 + SIGPIPE (13), what a shell
+/// reports for a tool that a closed pipe stops.
+pub const EXIT_BROKEN_PIPE: i32 = 141;
+
+/// Exit status after an interrupt: 128 + SIGINT (2).
+pub const EXIT_INTERRUPTED: i32 = 130;
+
 impl Error {
-    /// Exit status: 2 for bad input or usage (and unreadable files), 3 for a solver failure.
+    /// Exit status: 2 for bad input or usage (and unreadable or unwritable files), 3 for a
+    /// solver failure, [`EXIT_BROKEN_PIPE`] and [`EXIT_INTERRUPTED`].
     pub fn exit_code(&self) -> i32 {
         match self {
             Error::Input(_) | Error::Usage(_) | Error::Io { .. } => 2,
             Error::Solver(_) => 3,
+            Error::BrokenPipe => EXIT_BROKEN_PIPE,
+            Error::Interrupted(_) => EXIT_INTERRUPTED,
         }
     }
 }

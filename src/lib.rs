@@ -9,17 +9,22 @@ pub mod audit;
 pub mod cli;
 pub mod error;
 pub mod expand;
+pub mod gate;
 pub mod model;
 pub mod rank;
 pub mod report;
 pub mod scenario;
 pub mod solve;
 
-use std::path::Path;
+use std::io::{self, Write};
+use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 use cli::{AuditArgs, Cli, Command, Objective, PlanArgs, ScenarioArgs};
 use error::{Error, Result};
+use gate::{Gate, GateKind};
 use model::Network;
+use report::journal::{self, Journal};
 use scenario::{Element, Kinds, Scenario};
 
 /// What a successful command ends with.
@@ -27,7 +32,7 @@ use scenario::{Element, Kinds, Scenario};
 pub enum Outcome {
     /// Everything asked for was done and no gate failed.
     Ok,
-    /// A gate (`--max-shortfall`) failed.
+    /// A gate (`--max-shortfall`, `--max-stranded`, `--min-served-fraction`) failed.
     GateFailed,
 }
 
@@ -42,21 +47,40 @@ impl Outcome {
 
 /// Reads and validates a network file.
 pub fn load(path: &Path) -> Result<Network> {
+    read_network(path).map(|(net, _)| net)
+}
+
+/// Reads and validates a network file; also returns its text (for the fingerprint).
+fn read_network(path: &Path) -> Result<(Network, String)> {
     let bytes = std::fs::read(path).map_err(|source| Error::Io {
         path: path.to_path_buf(),
         source,
     })?;
-    Network::from_bytes(&bytes).map_err(|e| match e {
+    let net = Network::from_bytes(&bytes).map_err(|e| match e {
         Error::Input(m) => Error::Input(format!("{}: {m}", path.display())),
         other => other,
+    })?;
+    Ok((net, String::from_utf8_lossy(&bytes).into_owned()))
+}
+
+/// Maps a failed write to standard output: a closed pipe ends the run quietly
+/// ([`Error::BrokenPipe`]), anything else is an I/O error on `<stdout>`.
+pub fn stdout_result(r: io::Result<()>) -> Result<()> {
+    r.map_err(|source| {
+        if source.kind() == io::ErrorKind::BrokenPipe {
+            Error::BrokenPipe
+        } else {
+            Error::Io {
+                path: PathBuf::from("<stdout>"),
+                source,
+            }
+        }
     })
 }
 
-fn write_file(path: &Path, text: &str) -> Result<()> {
-    std::fs::write(path, text).map_err(|source| Error::Io {
-        path: path.to_path_buf(),
-        source,
-    })
+/// Notes on stderr are best effort: a closed stderr never stops a run.
+fn note(r: io::Result<()>) {
+    let _ = r;
 }
 
 /// Largest scenario count a run accepts; beyond it the user is asked to narrow the run.
@@ -86,14 +110,88 @@ pub fn scenarios_for(
     Ok(scenario::enumerate(net, kinds, args.depth))
 }
 
-fn run_options(args: &ScenarioArgs) -> Result<audit::RunOptions> {
-    if args.threads == Some(0) {
-        return Err(Error::Usage("--threads must be at least 1".into()));
-    }
+/// Without `--max-minutes`, a run estimated longer than this many minutes needs `--yes`.
+pub const DEFAULT_MAX_MINUTES: f64 = 60.0;
+
+/// Runs estimated to take at least this long say so on stderr before they start.
+pub const ESTIMATE_NOTE_FROM: Duration = Duration::from_secs(10);
+
+/// The cores this process may use (1 when unknown).
+fn cores() -> usize {
+    std::thread::available_parallelism().map_or(1, usize::from)
+}
+
+/// Run options from the command line; `--threads` above the core count is capped at it
+/// (with a note), since more threads than cores only add contention.
+fn run_options(args: &ScenarioArgs, err: &mut dyn Write) -> Result<audit::RunOptions> {
+    let threads = match args.threads {
+        Some(0) => return Err(Error::Usage("--threads must be at least 1".into())),
+        Some(t) if t > cores() => {
+            if !args.quiet {
+                note(report::text::note_threads_capped(err, t, cores()));
+            }
+            Some(cores())
+        }
+        other => other,
+    };
     Ok(audit::RunOptions {
-        threads: args.threads,
+        threads,
         progress: !args.quiet,
     })
+}
+
+/// The time limit of a run in minutes (`None` with `--yes`), checked before any work.
+fn time_limit(args: &ScenarioArgs) -> Result<Option<f64>> {
+    if let Some(m) = args.max_minutes
+        && !(m.is_finite() && m > 0.0)
+    {
+        return Err(Error::Usage(format!(
+            "--max-minutes must be a finite number > 0, got {m}"
+        )));
+    }
+    Ok(if args.yes {
+        None
+    } else {
+        Some(args.max_minutes.unwrap_or(DEFAULT_MAX_MINUTES))
+    })
+}
+
+/// Solves a batch: a first timed solve, an estimate of the rest (shown when long, refused
+/// beyond the limit unless `--yes`), then everything else in parallel, each result
+/// journaled when a journal is given.
+fn solve_batch(
+    net: &Network,
+    mut batch: audit::Batch,
+    args: &ScenarioArgs,
+    opts: audit::RunOptions,
+    journal: Option<&Journal>,
+    err: &mut dyn Write,
+) -> Result<audit::Audit> {
+    let limit = time_limit(args)?;
+    let left = batch.remaining();
+    if let Some(first) = batch.solve_first(net, journal)? {
+        let threads = opts.threads.unwrap_or_else(cores).clamp(1, left.max(1));
+        let rest = first.mul_f64((left - 1) as f64 / threads as f64);
+        let minutes = (first + rest).as_secs_f64() / 60.0;
+        if !args.quiet && first + rest >= ESTIMATE_NOTE_FROM {
+            note(report::text::note_estimate(
+                err, left, first, threads, minutes,
+            ));
+        }
+        if let Some(max) = limit
+            && minutes > max
+        {
+            return Err(Error::Usage(format!(
+                "the run is estimated at {} minutes ({left} outages, the first took {} s), \
+                 above the limit of {} minutes; pass --yes to run it anyway, raise \
+                 --max-minutes, or lower --depth / narrow --kinds",
+                report::num(minutes),
+                report::num(first.as_secs_f64()),
+                report::num(max)
+            )));
+        }
+    }
+    batch.finish(net, opts, journal)
 }
 
 /// Runs the audit and returns it with the baseline's evaluation (solved separately when
@@ -104,79 +202,163 @@ pub fn audit_network(
     opts: audit::RunOptions,
 ) -> Result<(audit::Audit, solve::Evaluation)> {
     let audit = audit::run(net, scenarios, opts)?;
-    let baseline = match audit.baseline() {
-        Some(b) => b.clone(),
-        None => solve::evaluate(net, &scenario::Outage::default())?,
-    };
+    let baseline = with_baseline(net, &audit)?;
     Ok((audit, baseline))
 }
 
-fn run_audit(args: &AuditArgs) -> Result<Outcome> {
-    if let Some(x) = args.max_shortfall
-        && !(x.is_finite() && x >= 0.0)
-    {
-        return Err(Error::Usage(format!(
-            "--max-shortfall must be a finite number >= 0, got {x}"
-        )));
+fn with_baseline(net: &Network, audit: &audit::Audit) -> Result<solve::Evaluation> {
+    match audit.baseline() {
+        Some(b) => Ok(b.clone()),
+        None => solve::evaluate(net, &scenario::Outage::default()),
     }
-    let net = load(&args.scenarios.network)?;
+}
+
+/// The gates of an audit command line, validated.
+fn gates_of(args: &AuditArgs) -> Result<Vec<Gate>> {
+    let mut gates = Vec::new();
+    if let Some(x) = args.max_shortfall {
+        gates.push(Gate {
+            kind: GateKind::MaxShortfall,
+            limit: gate::max_limit("--max-shortfall", x)?,
+        });
+    }
+    if let Some(x) = args.max_stranded {
+        gates.push(Gate {
+            kind: GateKind::MaxStranded,
+            limit: gate::max_limit("--max-stranded", x)?,
+        });
+    }
+    if let Some(f) = &args.min_served_fraction {
+        gates.push(Gate {
+            kind: GateKind::MinServedFraction,
+            limit: gate::parse_fraction(f)?,
+        });
+    }
+    if let Some(t) = args.gate_tolerance {
+        gate::max_limit("--gate-tolerance", t)?;
+        if gates.is_empty() {
+            return Err(Error::Usage(
+                "--gate-tolerance needs a gate (--max-shortfall, --max-stranded or \
+                 --min-served-fraction)"
+                    .into(),
+            ));
+        }
+    }
+    Ok(gates)
+}
+
+/// The fingerprint of an audit's results: the program version, the network file's bytes
+/// and the options that decide the scenario list.
+fn audit_fingerprint(args: &AuditArgs, network_text: &str) -> String {
+    let options = match &args.fail {
+        Some(f) => format!("fail={f}"),
+        None => format!(
+            "depth={};kinds={}",
+            args.scenarios.depth, args.scenarios.kinds
+        ),
+    };
+    journal::fingerprint(&[
+        b"redoubt audit",
+        env!("CARGO_PKG_VERSION").as_bytes(),
+        network_text.as_bytes(),
+        options.as_bytes(),
+    ])
+}
+
+fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
+    let gates = gates_of(args)?;
+    time_limit(&args.scenarios)?;
+    let input = args.scenarios.network.as_path();
+    let journal_path = args.json.as_deref().map(journal::path_for);
+    if let (Some(json), Some(jp)) = (&args.json, &journal_path) {
+        report::file::check_output("--json", json, &[input])?;
+        report::file::check_output("--json (its journal)", jp, &[input])?;
+    }
+    let (net, text) = read_network(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
-    let opts = run_options(&args.scenarios)?;
-    let (audit, baseline) = audit_network(&net, scenarios, opts)?;
-    print!(
-        "{}",
-        report::text::audit_report(&net, &audit, &baseline, args.top)
-    );
-    print!("{}", report::text::relief_report(&net, &audit, args.top));
-    let closing_json = if args.close {
-        let cands = expand::Candidates::of(&net);
-        let closings = audit::par_map(
-            &(0..audit.outages.len()).collect::<Vec<_>>(),
-            opts,
-            "closing",
-            |&k| expand::close(&net, &audit.outages[k], &audit.evaluations[k], &cands),
-        )?;
-        print!(
-            "{}",
-            report::text::closing_report(&net, &audit, &closings, cands.default_costs, args.top)
-        );
+    let opts = run_options(&args.scenarios, err)?;
+    let mut batch = audit::Batch::new(&net, scenarios);
+    let journal = match &journal_path {
+        Some(jp) => {
+            let fp = audit_fingerprint(args, &text);
+            let (j, restored, opened) = Journal::open(jp, &fp, batch.outages(), args.resume)?;
+            if !args.scenarios.quiet {
+                note(report::text::note_resume(err, jp, opened, batch.outages()));
+            }
+            batch.restore(restored);
+            Some(j)
+        }
+        None => None,
+    };
+    let interrupted = |e: Error| match (&e, &journal) {
+        (Error::Interrupted(_), Some(j)) => Error::Interrupted(format!(
+            "{} of {} outages saved in {}; run the same command with --resume to continue",
+            j.saved(),
+            j.outages(),
+            j.path().display()
+        )),
+        (Error::Interrupted(_), None) => {
+            Error::Interrupted("nothing kept (results are journaled only with --json FILE)".into())
+        }
+        _ => e,
+    };
+    let audit = solve_batch(&net, batch, &args.scenarios, opts, journal.as_ref(), err)
+        .map_err(interrupted)?;
+    if let Some(why) = journal.as_ref().and_then(Journal::failure) {
+        note(report::text::note_journal_failed(err, &why));
+    }
+    let baseline = with_baseline(&net, &audit)?;
+    let cands = expand::Candidates::of(&net);
+    let closings = if args.close {
         Some(
-            audit
-                .outage_of
-                .iter()
-                .map(|&k| {
-                    report::json::closing_json(&net, closings[k].as_ref(), cands.default_costs)
-                })
-                .collect::<Vec<_>>(),
+            audit::par_map(
+                &(0..audit.outages.len()).collect::<Vec<_>>(),
+                opts,
+                "closing",
+                |&k| expand::close(&net, &audit.outages[k], &audit.evaluations[k], &cands),
+            )
+            .map_err(interrupted)?,
         )
     } else {
         None
     };
-    print!("{}", report::text::caution());
+    let verdicts = gate::check(&audit, &gates, args.gate_tolerance);
+    // Files first: a reader that closes stdout early never costs the --json file.
     if let Some(path) = &args.json {
-        let doc = report::json::audit_json(&net, &audit, &baseline, closing_json.as_deref());
-        write_file(path, &report::json::to_string(&doc))?;
+        let closing_json = closings.as_ref().map(|c| {
+            audit
+                .outage_of
+                .iter()
+                .map(|&k| report::json::closing_json(&net, c[k].as_ref(), cands.default_costs))
+                .collect::<Vec<_>>()
+        });
+        let mut doc = report::json::audit_json(&net, &audit, &baseline, closing_json.as_deref());
+        doc.gates = report::json::gates_json(&audit, &verdicts);
+        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
     }
-    if let Some(limit) = args.max_shortfall {
-        let worst = audit
-            .evaluations
-            .iter()
-            .map(|e| e.shortfall)
-            .fold(0.0, f64::max);
-        if worst > limit {
-            eprintln!(
-                "redoubt: gate failed: worst shortfall {} {} exceeds --max-shortfall {}",
-                report::num(worst),
-                net.unit,
-                report::num(limit)
-            );
-            return Ok(Outcome::GateFailed);
-        }
+    if let Some(j) = journal {
+        j.remove()?;
     }
-    Ok(Outcome::Ok)
+    stdout_result(report::text::write_audit(
+        out,
+        &net,
+        &audit,
+        &baseline,
+        closings.as_deref().map(|c| report::text::ClosingPart {
+            closings: c,
+            default_costs: cands.default_costs,
+        }),
+        &verdicts,
+        args.top,
+    ))?;
+    Ok(if verdicts.iter().all(|g| g.passed) {
+        Outcome::Ok
+    } else {
+        Outcome::GateFailed
+    })
 }
 
-fn run_plan(args: &PlanArgs) -> Result<Outcome> {
+fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
     let goal = match args.budget {
         None => expand::Goal::CloseAll,
         Some(b) if !(b.is_finite() && b >= 0.0) => {
@@ -189,33 +371,49 @@ fn run_plan(args: &PlanArgs) -> Result<Outcome> {
             Objective::Total => expand::Goal::TotalWithin(b),
         },
     };
-    let net = load(&args.scenarios.network)?;
+    time_limit(&args.scenarios)?;
+    let input = args.scenarios.network.as_path();
+    if let Some(json) = &args.json {
+        report::file::check_output("--json", json, &[input])?;
+    }
+    let net = load(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, None)?;
-    let opts = run_options(&args.scenarios)?;
-    let audit = audit::run(&net, scenarios, opts)?;
+    let opts = run_options(&args.scenarios, err)?;
+    let batch = audit::Batch::new(&net, scenarios);
+    let audit = solve_batch(&net, batch, &args.scenarios, opts, None, err)?;
     let plan = expand::plan(&net, &audit, goal, opts)?;
     let default_costs = expand::Candidates::of(&net).default_costs;
-    print!(
-        "{}",
-        report::text::plan_report(&net, &audit, &plan, default_costs, args.top)
-    );
     if let Some(path) = &args.json {
         let doc = report::json::plan_json(&net, &audit, &plan, default_costs);
-        write_file(path, &report::json::to_string(&doc))?;
+        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
     }
+    stdout_result(report::text::write_plan(
+        out,
+        &net,
+        &audit,
+        &plan,
+        default_costs,
+        args.top,
+    ))?;
     Ok(Outcome::Ok)
 }
 
-/// Runs one command line.
-pub fn run(cli: Cli) -> Result<Outcome> {
+/// Runs one command line: reports go to `out` (standard output), notes to `err`.
+pub fn run(cli: Cli, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
     match cli.command {
         Command::Check { network } => {
             let net = load(&network)?;
             let cut_off = solve::baseline_cut_off(&net);
-            print!("{}", report::text::check_summary(&net, &cut_off));
+            stdout_result(report::text::write_check(out, &net, &cut_off))?;
             Ok(Outcome::Ok)
         }
-        Command::Audit(args) => run_audit(&args),
-        Command::Plan(args) => run_plan(&args),
+        Command::Audit(args) => {
+            audit::install_interrupt_handler();
+            run_audit(&args, out, err)
+        }
+        Command::Plan(args) => {
+            audit::install_interrupt_handler();
+            run_plan(&args, out, err)
+        }
     }
 }

@@ -1,11 +1,23 @@
-//! The `redoubt` binary: parse the command line, call [`redoubt::run`], map the outcome
-//! to an exit status (0 ok, 1 a gate failed, 2 bad input or usage, 3 solver failure).
+//! The `redoubt` binary: parse the command line, call [`redoubt::run`] with a locked
+//! standard output and standard error, map the outcome to an exit status (0 ok, 1 a gate
+//! failed, 2 bad input or usage, 3 solver failure, 130 interrupted, 141 standard output
+//! closed early).
 
+use std::io::{self, BufWriter, Write};
 use std::process::ExitCode;
 
 use clap::Parser;
+use redoubt::error::Error;
 
 fn main() -> ExitCode {
+    // A write past `ulimit -f` must fail with an error (and leave the old output file in
+    // place), not kill the process with SIGXFSZ.
+    #[cfg(unix)]
+    // SAFETY: setting a signal's disposition to "ignore" at start-up, before any thread
+    // exists, has no memory-safety preconditions.
+    unsafe {
+        libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+    }
     let cli = match redoubt::cli::Cli::try_parse() {
         Ok(c) => c,
         Err(e) => {
@@ -13,10 +25,21 @@ fn main() -> ExitCode {
             return ExitCode::from(if e.use_stderr() { 2 } else { 0 });
         }
     };
-    match redoubt::run(cli) {
+    let stdout = io::stdout();
+    let mut out = BufWriter::new(stdout.lock());
+    let stderr = io::stderr();
+    let mut err = stderr.lock();
+    let result = redoubt::run(cli, &mut out, &mut err)
+        .and_then(|outcome| redoubt::stdout_result(out.flush()).map(|()| outcome));
+    match result {
         Ok(outcome) => ExitCode::from(outcome.exit_code()),
+        Err(Error::BrokenPipe) => {
+            // The reader has what it wanted; drop the rest of the buffer unwritten.
+            std::mem::forget(out);
+            ExitCode::from(Error::BrokenPipe.exit_code() as u8)
+        }
         Err(e) => {
-            eprintln!("redoubt: {e}");
+            let _ = writeln!(err, "redoubt: {e}");
             ExitCode::from(e.exit_code() as u8)
         }
     }

@@ -1147,3 +1147,541 @@ fn budgeted_plans_by_hand() {
         );
     }
 }
+
+// ---------------------------------------------------------------------------------------
+// Output that never hurts (issue 7): pipes, atomic files, output paths, threads, numbers
+// ---------------------------------------------------------------------------------------
+
+/// A ring of `n` sites and `n` links (capacity 10, processing 5 at every site) with one
+/// demand between opposite sites: many cheap scenarios, for outputs larger than a pipe.
+fn ring_net(n: usize) -> String {
+    let sites: Vec<String> = (0..n)
+        .map(|i| format!(r#"{{"id": "s{i}", "processing": 5}}"#))
+        .collect();
+    let links: Vec<String> = (0..n)
+        .map(|i| {
+            format!(
+                r#"{{"id": "l{i}", "from": "s{i}", "to": "s{}", "capacity": 10}}"#,
+                (i + 1) % n
+            )
+        })
+        .collect();
+    format!(
+        r#"{{"name": "ring", "unit": "Gbit/s", "sites": [{}], "links": [{}],
+          "demands": [{{"from": "s0", "to": "s{}", "volume": 8}}]}}"#,
+        sites.join(","),
+        links.join(","),
+        n / 2
+    )
+}
+
+/// Source: POSIX shell convention (common practice, no source): a tool stopped by a
+/// closed pipe reports 128 + SIGPIPE = 141; the brief (the --json file is still written).
+/// The reader takes one line of a report far larger than a pipe buffer (64 KiB on Linux)
+/// and closes the pipe.
+#[test]
+fn closed_stdout_exits_141_quietly_and_json_is_written() {
+    use std::io::{BufRead, BufReader};
+    let n = 24;
+    let f = TempPath::with_text("ring-pipe", &ring_net(n));
+    let out = TempPath::new("ring-pipe-out", "json");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_redoubt"))
+        .args([
+            "audit",
+            f.path(),
+            "--depth",
+            "2",
+            "--top",
+            "100000",
+            "--quiet",
+            "--json",
+            out.path(),
+        ])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("the redoubt binary starts");
+    let mut first = String::new();
+    BufReader::new(child.stdout.take().expect("piped"))
+        .read_line(&mut first)
+        .expect("one line");
+    // The reader is dropped here: the pipe is closed.
+    let result = child.wait_with_output().expect("redoubt ends");
+    let stderr = String::from_utf8_lossy(&result.stderr);
+    assert!(first.starts_with("ring"), "first line: {first}");
+    assert_eq!(result.status.code(), Some(141), "stderr:\n{stderr}");
+    assert!(
+        stderr.is_empty(),
+        "a closed pipe ends quietly, got:\n{stderr}"
+    );
+    // 1 + 2n + C(2n, 2) scenarios over n links and n sites (hand count).
+    let pool = 2 * n;
+    assert_eq!(
+        scenarios(&out.read_json()).len(),
+        1 + pool + pool * (pool - 1) / 2
+    );
+}
+
+/// A fresh folder of its own under [`temp_root`], removed when dropped.
+struct TempDir(PathBuf);
+
+impl TempDir {
+    fn new(stem: &str) -> TempDir {
+        let p = TempPath::new(stem, "d");
+        std::fs::create_dir_all(&p.0).expect("create folder");
+        TempDir(p.0.clone())
+    }
+
+    fn names(&self) -> BTreeSet<String> {
+        std::fs::read_dir(&self.0)
+            .expect("list folder")
+            .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
+            .collect()
+    }
+}
+
+impl Drop for TempDir {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_dir_all(&self.0);
+    }
+}
+
+/// Source: POSIX `ulimit -f` (writes past the limit fail with EFBIG once SIGXFSZ is
+/// ignored); the brief (the old file stays intact until a complete new one replaces it).
+#[test]
+fn failed_write_keeps_the_old_json_intact() {
+    let dir = TempDir::new("ulimit");
+    let json = dir.0.join("out.json");
+    let old = "{\"old\": \"complete\"}\n";
+    std::fs::write(&json, old).expect("old file");
+    // 8 blocks of 512 bytes: far less than the depth-2 report of the small ring.
+    let script = format!(
+        "ulimit -f 8; exec '{}' audit '{}' --depth 2 --quiet --json '{}' >/dev/null",
+        env!("CARGO_BIN_EXE_redoubt"),
+        s(&fixture("small-ring.json")),
+        s(&json)
+    );
+    let out = Command::new("sh")
+        .args(["-c", &script])
+        .output()
+        .expect("sh runs");
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "stderr:\n{stderr}");
+    assert!(stderr.contains("out.json"), "names the file:\n{stderr}");
+    assert_eq!(std::fs::read_to_string(&json).expect("still there"), old);
+    // No temporary file is left behind (the journal may stay: it is valid to resume).
+    let names: Vec<String> = dir
+        .names()
+        .into_iter()
+        .filter(|n| n != "out.json" && n != "out.json.journal")
+        .collect();
+    assert!(names.is_empty(), "left behind: {names:?}");
+    // Without the limit the same command replaces the file with the full report.
+    let run = redoubt(&[
+        "audit",
+        s(&fixture("small-ring.json")),
+        "--depth",
+        "2",
+        "--quiet",
+        "--json",
+        s(&json),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let doc: Value = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert!(!scenarios(&doc).is_empty());
+    assert_eq!(dir.names(), BTreeSet::from(["out.json".to_string()]));
+}
+
+/// Source: the brief (refuse, exit 2, the input untouched), through the same path, a
+/// different spelling of it and a symbolic link.
+#[test]
+fn json_naming_the_input_is_refused() {
+    let dir = TempDir::new("self");
+    let input = dir.0.join("net.json");
+    std::fs::write(&input, PATH_NET).unwrap();
+    let link = dir.0.join("alias.json");
+    std::os::unix::fs::symlink(&input, &link).expect("symlink");
+    let respelled = dir.0.join(".").join("net.json");
+    for target in [&input, &respelled, &link] {
+        let run = redoubt(&["audit", s(&input), "--quiet", "--json", s(target)]);
+        assert_eq!(run.code, 2, "--json {target:?}:\n{}", run.stderr);
+        assert!(run.stderr.contains("input file"), "{}", run.stderr);
+        assert_eq!(std::fs::read_to_string(&input).unwrap(), PATH_NET);
+    }
+}
+
+/// Source: the brief (every output path is checked before any solving). The 50-site
+/// fixture at depth 1 takes minutes (DEVELOPERS.md); each refusal comes in seconds.
+#[test]
+fn bad_output_paths_are_refused_before_solving() {
+    let dir = TempDir::new("paths");
+    let missing = dir.0.join("no-such-folder").join("out.json");
+    // /proc refuses new files even to root.
+    let unwritable = Path::new("/proc/redoubt-out.json");
+    let grid = fixture("grid-50.json");
+    for (target, says) in [
+        (dir.0.as_path(), "directory"),
+        (missing.as_path(), "does not exist"),
+        (unwritable, "cannot create"),
+    ] {
+        let start = std::time::Instant::now();
+        let run = redoubt(&["audit", s(&grid), "--quiet", "--json", s(target)]);
+        assert_eq!(run.code, 2, "--json {target:?}:\n{}", run.stderr);
+        assert!(run.stderr.contains(says), "{says}: {}", run.stderr);
+        assert!(start.elapsed().as_secs() < 20, "refused only after solving");
+        let plan = redoubt(&["plan", s(&grid), "--quiet", "--json", s(target)]);
+        assert_eq!(plan.code, 2, "plan --json {target:?}:\n{}", plan.stderr);
+    }
+    assert!(dir.names().is_empty(), "nothing written: {:?}", dir.names());
+}
+
+/// Source: the brief (capped at the core count with a note; results unchanged). The
+/// core count is read here from `nproc` (coreutils), not from the product.
+#[test]
+fn threads_above_the_core_count_are_capped() {
+    let nproc = Command::new("nproc").output().expect("nproc runs");
+    let cores = String::from_utf8_lossy(&nproc.stdout).trim().to_string();
+    let ring = fixture("small-ring.json");
+    let mut texts = Vec::new();
+    for threads in ["1", "10000"] {
+        let out = TempPath::new("threads", "json");
+        let start = std::time::Instant::now();
+        let run = redoubt(&[
+            "audit",
+            s(&ring),
+            "--depth",
+            "2",
+            "--threads",
+            threads,
+            "--json",
+            out.path(),
+        ]);
+        assert_eq!(run.code, 0, "{}", run.stderr);
+        assert!(
+            start.elapsed().as_secs() < 60,
+            "--threads {threads} too slow"
+        );
+        if threads == "10000" {
+            assert!(
+                run.stderr.contains(&format!("using {cores}")),
+                "note naming {cores} cores:\n{}",
+                run.stderr
+            );
+        }
+        texts.push(std::fs::read_to_string(&out.0).unwrap());
+    }
+    assert!(texts[0] == texts[1], "--threads 10000 changed the JSON");
+}
+
+/// Source: the brief (engineering notation past 1e9, percentages never overflow, never
+/// "0.0e0"); IEEE 754 double range (common practice, no source) for the magnitudes.
+#[test]
+fn huge_values_print_readably() {
+    let net = r#"{"name": "huge", "unit": "bit/s",
+      "sites": [{"id": "a", "processing": 1e300}, {"id": "b"}],
+      "links": [{"id": "ab", "from": "a", "to": "b", "capacity": 1e300}],
+      "demands": [{"from": "a", "to": "b", "volume": 1.5e300}]}"#;
+    let f = TempPath::with_text("huge-text", net);
+    let check = redoubt(&["check", f.path()]);
+    assert_eq!(check.code, 0, "{}", check.stderr);
+    assert!(check.stdout.contains("volume 1.5e300"), "{}", check.stdout);
+    let run = redoubt(&["audit", f.path(), "--quiet", "--kinds", "links"]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let text = format!("{}{}", check.stdout, run.stdout);
+    for bad in ["inf", "NaN", "0.0e0"] {
+        assert!(!text.contains(bad), "{bad:?} in:\n{text}");
+    }
+    let longest_digits = text
+        .split(|c: char| !c.is_ascii_digit())
+        .map(str::len)
+        .max()
+        .unwrap_or(0);
+    assert!(
+        longest_digits <= 12,
+        "a {longest_digits}-digit number in:\n{text}"
+    );
+    // Baseline: 1e300 served of 1.5e300 required, 66.7% (hand computation).
+    assert!(
+        run.stdout.contains("serves 1e300 of 1.5e300"),
+        "{}",
+        run.stdout
+    );
+    assert!(run.stdout.contains("(66.7%)"), "{}", run.stdout);
+}
+
+/// Source: the brief (negative numbers reach our own clear message, not clap's
+/// "unexpected argument").
+#[test]
+fn negative_numbers_get_a_clear_message() {
+    let f = TempPath::with_text("neg", PATH_NET);
+    for (args, says) in [
+        (
+            vec!["audit", f.path(), "--max-shortfall", "-1"],
+            "--max-shortfall must be",
+        ),
+        (
+            vec!["audit", f.path(), "--max-stranded", "-2"],
+            "--max-stranded must be",
+        ),
+        (
+            vec!["audit", f.path(), "--min-served-fraction", "-0.5"],
+            "--min-served-fraction must be",
+        ),
+        (
+            vec!["audit", f.path(), "--max-minutes", "-1"],
+            "--max-minutes must be",
+        ),
+        (vec!["plan", f.path(), "--budget", "-1"], "--budget must be"),
+    ] {
+        let run = redoubt(&args);
+        assert_eq!(run.code, 2, "{args:?}:\n{}", run.stderr);
+        assert!(run.stderr.contains(says), "{args:?}:\n{}", run.stderr);
+        assert!(run.stderr.contains("-"), "{}", run.stderr);
+        assert!(
+            !run.stderr.contains("unexpected argument"),
+            "{}",
+            run.stderr
+        );
+    }
+}
+
+/// Source: the brief (`--depth`/`--kinds` with `--fail` are refused, exit 2).
+#[test]
+fn fail_with_depth_or_kinds_is_refused() {
+    let f = TempPath::with_text("fail-depth", PATH_NET);
+    for extra in [["--depth", "2"], ["--kinds", "links"]] {
+        let mut args = vec!["audit", f.path(), "--fail", "site:b"];
+        args.extend_from_slice(&extra);
+        let run = redoubt(&args);
+        assert_eq!(run.code, 2, "{args:?}:\n{}", run.stderr);
+        assert!(run.stderr.contains(extra[0]), "{}", run.stderr);
+        assert!(run.stdout.is_empty());
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// Gates on what is printed (issue 6)
+// ---------------------------------------------------------------------------------------
+
+fn gate_lines(stdout: &str) -> Vec<&str> {
+    stdout
+        .lines()
+        .filter(|l| l.starts_with("PASS ") || l.starts_with("FAIL "))
+        .collect()
+}
+
+/// Source: issue 6 (the demo's site:millbrook prints a shortfall of 14; a gate at 14
+/// passes, with a PASS line naming the scenario, value and limit).
+#[test]
+fn gate_compares_at_the_printed_precision() {
+    let run = redoubt(&[
+        "audit",
+        s(&demo()),
+        "--quiet",
+        "--fail",
+        "site:millbrook",
+        "--max-shortfall",
+        "14",
+    ]);
+    assert_eq!(run.code, 0, "{}\n{}", run.stdout, run.stderr);
+    let lines = gate_lines(&run.stdout);
+    assert_eq!(lines.len(), 1, "{}", run.stdout);
+    assert!(lines[0].starts_with("PASS --max-shortfall"), "{}", lines[0]);
+    for part in ["site:millbrook", "shortfall 14 ", "limit 14 "] {
+        assert!(lines[0].contains(part), "{part:?} in {}", lines[0]);
+    }
+    let run = redoubt(&[
+        "audit",
+        s(&demo()),
+        "--quiet",
+        "--fail",
+        "site:millbrook",
+        "--max-shortfall",
+        "13.9",
+    ]);
+    assert_eq!(run.code, 1, "{}", run.stdout);
+    let lines = gate_lines(&run.stdout);
+    assert!(lines[0].starts_with("FAIL --max-shortfall"), "{}", lines[0]);
+    assert!(lines[0].contains("exceeds the limit 13.9"), "{}", lines[0]);
+}
+
+/// Source: hand computation on PATH_NET (common practice, no source): worst stranded 8
+/// (site:b), worst served fraction 5/11 = 45.455% (link:bc, before group:spine in list
+/// order), worst shortfall 6 (link:bc).
+#[test]
+fn stranded_and_served_fraction_gates_by_hand() {
+    let f = TempPath::with_text("gates", PATH_NET);
+    let gate = |args: &[&str]| {
+        let mut all = vec!["audit", f.path(), "--quiet"];
+        all.extend_from_slice(args);
+        let run = redoubt(&all);
+        let lines: Vec<String> = gate_lines(&run.stdout)
+            .into_iter()
+            .map(String::from)
+            .collect();
+        (run.code, lines)
+    };
+    let (code, lines) = gate(&["--max-stranded", "8"]);
+    assert_eq!(code, 0, "{lines:?}");
+    assert!(lines[0].contains("stranded 8 Gbit/s (site:b)"), "{lines:?}");
+    let (code, lines) = gate(&["--max-stranded", "7.5"]);
+    assert_eq!(code, 1, "{lines:?}");
+    assert!(lines[0].starts_with("FAIL --max-stranded"), "{lines:?}");
+    let (code, lines) = gate(&["--min-served-fraction", "0.45"]);
+    assert_eq!(code, 0, "{lines:?}");
+    assert!(
+        lines[0].contains("served fraction 45.455% (link:bc)"),
+        "{lines:?}"
+    );
+    let (code, lines) = gate(&["--min-served-fraction", "46%"]);
+    assert_eq!(code, 1, "{lines:?}");
+    assert!(lines[0].contains("is below the limit 46%"), "{lines:?}");
+    // Several gates: one line each, exit 1 when any fails.
+    let (code, lines) = gate(&["--max-shortfall", "6", "--max-stranded", "1"]);
+    assert_eq!(code, 1, "{lines:?}");
+    assert_eq!(lines.len(), 2, "{lines:?}");
+    assert!(lines[0].starts_with("PASS --max-shortfall"), "{lines:?}");
+    assert!(lines[1].starts_with("FAIL --max-stranded"), "{lines:?}");
+    // An explicit tolerance compares raw values: 6 is within 5.5 + 0.6.
+    let (code, _) = gate(&["--max-shortfall", "5.5", "--gate-tolerance", "0.6"]);
+    assert_eq!(code, 0);
+    let (code, _) = gate(&["--max-shortfall", "5.5", "--gate-tolerance", "0.4"]);
+    assert_eq!(code, 1);
+}
+
+// ---------------------------------------------------------------------------------------
+// Runs that resume (issue 7)
+// ---------------------------------------------------------------------------------------
+
+fn journal_lines(path: &Path) -> usize {
+    std::fs::read(path).map_or(0, |b| b.iter().filter(|&&c| c == b'\n').count())
+}
+
+/// Starts `redoubt args`, waits until the journal holds at least `lines` lines, sends
+/// SIGINT (with coreutils' `kill`), and returns the finished run.
+fn interrupt_at(args: &[&str], journal: &Path, lines: usize) -> Run {
+    let child = Command::new(env!("CARGO_BIN_EXE_redoubt"))
+        .args(args)
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("the redoubt binary starts");
+    let start = std::time::Instant::now();
+    while journal_lines(journal) < lines {
+        assert!(
+            start.elapsed().as_secs() < 300,
+            "journal never reached {lines} lines"
+        );
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    let kill = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .expect("kill runs");
+    assert!(kill.success());
+    let out = child.wait_with_output().expect("redoubt ends");
+    Run {
+        code: out.status.code().unwrap_or(-1),
+        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+    }
+}
+
+/// Source: the brief (SIGINT leaves a valid journal; `--resume` skips what is done and
+/// writes byte-identical final files to an uninterrupted run; a torn last line is
+/// ignored; a fingerprint mismatch is refused). A real audit (the demo at depth 2,
+/// several hundred outages) is interrupted twice, damaged at its end, and resumed.
+#[test]
+fn interrupted_audit_resumes_to_identical_files() {
+    let demo = demo();
+    let reference = TempPath::new("resume-ref", "json");
+    let full = redoubt(&[
+        "audit",
+        s(&demo),
+        "--depth",
+        "2",
+        "--quiet",
+        "--json",
+        reference.path(),
+    ]);
+    assert_eq!(full.code, 0, "{}", full.stderr);
+    let want_json = std::fs::read(&reference.0).unwrap();
+
+    let dir = TempDir::new("resume");
+    let json = dir.0.join("audit.json");
+    let journal = dir.0.join("audit.json.journal");
+    let args = ["audit", s(&demo), "--depth", "2", "--json", s(&json)];
+    let resume: Vec<&str> = args.iter().copied().chain(["--resume"]).collect();
+
+    let first = interrupt_at(&args, &journal, 40);
+    assert_eq!(first.code, 130, "SIGINT exit status:\n{}", first.stderr);
+    assert!(first.stderr.contains("--resume"), "{}", first.stderr);
+    assert!(!json.exists(), "no final file from an interrupted run");
+    let kept = journal_lines(&journal);
+    assert!(kept > 40, "journal kept {kept} lines");
+
+    // Another scenario list or other network bytes: refused, journal untouched.
+    let other_depth = redoubt(&["audit", s(&demo), "--json", s(&json), "--resume"]);
+    assert_eq!(other_depth.code, 2, "{}", other_depth.stderr);
+    assert!(
+        other_depth
+            .stderr
+            .contains("another network file or other options")
+    );
+    let edited = dir.0.join("edited.json");
+    let mut bytes = std::fs::read(&demo).unwrap();
+    bytes.push(b'\n');
+    std::fs::write(&edited, bytes).unwrap();
+    let other_file = redoubt(&[
+        "audit",
+        s(&edited),
+        "--depth",
+        "2",
+        "--json",
+        s(&json),
+        "--resume",
+    ]);
+    assert_eq!(other_file.code, 2, "{}", other_file.stderr);
+    assert_eq!(journal_lines(&journal), kept);
+
+    let second = interrupt_at(&resume, &journal, kept + 150);
+    assert_eq!(second.code, 130, "{}", second.stderr);
+    assert!(second.stderr.contains("resuming"), "{}", second.stderr);
+
+    // A kill in the middle of a write leaves a torn last line.
+    let mut torn = std::fs::OpenOptions::new()
+        .append(true)
+        .open(&journal)
+        .unwrap();
+    std::io::Write::write_all(&mut torn, b"{\"outage\": 3, \"evaluation\": {\"served_req").unwrap();
+    drop(torn);
+
+    let last = redoubt(&resume);
+    assert_eq!(last.code, 0, "{}", last.stderr);
+    assert!(
+        std::fs::read(&json).unwrap() == want_json,
+        "resumed JSON differs from the uninterrupted run"
+    );
+    assert!(last.stdout == full.stdout, "resumed report differs");
+    assert!(
+        !journal.exists(),
+        "journal removed once the files are written"
+    );
+}
+
+/// Source: the brief (estimate the work from the scenario count and a first timed solve;
+/// refuse beyond a limit unless --yes).
+#[test]
+fn long_runs_are_estimated_and_refused_without_yes() {
+    let demo = demo();
+    let args = ["audit", s(&demo), "--quiet", "--max-minutes", "0.00001"];
+    let run = redoubt(&args);
+    assert_eq!(run.code, 2, "{}", run.stderr);
+    assert!(run.stderr.contains("estimated"), "{}", run.stderr);
+    assert!(run.stderr.contains("--yes"), "{}", run.stderr);
+    assert!(run.stdout.is_empty());
+    let mut yes = args.to_vec();
+    yes.push("--yes");
+    let run = redoubt(&yes);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+}

@@ -3,6 +3,7 @@
 //! is added for users. Numbers are rounded with [`super::round9`].
 
 use std::collections::BTreeMap;
+use std::io::{self, Write};
 
 use serde::Serialize;
 
@@ -20,6 +21,38 @@ pub struct AuditJson {
     pub baseline: ScenarioJson,
     pub scenarios: Vec<ScenarioJson>,
     pub criticality: Vec<CriticalityJson>,
+    /// The gates asked for (absent when none).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub gates: Vec<GateJson>,
+}
+
+#[derive(Serialize)]
+pub struct GateJson {
+    /// `max_shortfall`, `max_stranded` or `min_served_fraction`.
+    pub gate: &'static str,
+    pub limit: f64,
+    pub worst: f64,
+    pub worst_scenario: Option<Vec<String>>,
+    pub passed: bool,
+}
+
+/// The `gates` array of an audit document.
+pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJson> {
+    use crate::gate::GateKind;
+    gates
+        .iter()
+        .map(|g| GateJson {
+            gate: match g.kind {
+                GateKind::MaxShortfall => "max_shortfall",
+                GateKind::MaxStranded => "max_stranded",
+                GateKind::MinServedFraction => "min_served_fraction",
+            },
+            limit: g.limit,
+            worst: round9(g.value),
+            worst_scenario: g.scenario.map(|i| audit.scenarios[i].failed.clone()),
+            passed: g.passed,
+        })
+        .collect()
 }
 
 #[derive(Serialize)]
@@ -73,7 +106,7 @@ pub struct VerificationJson {
     pub upper_bound: f64,
     /// Largest relative row residual of the kept allocation.
     pub residual: f64,
-    pub backend: &'static str,
+    pub backend: String,
     pub attempts: usize,
 }
 
@@ -84,7 +117,7 @@ impl VerificationJson {
             lower_bound: round9(v.lower),
             upper_bound: round9(v.upper),
             residual: v.residual,
-            backend: v.backend,
+            backend: v.backend.clone(),
             attempts: v.attempts,
         }
     }
@@ -259,7 +292,13 @@ pub fn audit_json(
                 worst_scenario: audit.scenarios[c.worst_scenario].failed.clone(),
             })
             .collect(),
+        gates: Vec::new(),
     }
+}
+
+/// The JSON exporter: any report document as pretty JSON with a trailing newline, to `w`.
+pub fn write<T: Serialize>(w: &mut dyn Write, doc: &T) -> io::Result<()> {
+    w.write_all(to_string(doc).as_bytes())
 }
 
 /// Serialises any report document as pretty JSON with a trailing newline.

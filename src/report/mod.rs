@@ -1,6 +1,11 @@
 //! Output formats. Only this module knows how results look on a terminal or in a file:
-//! [`text`] for the `check` summary and the tables, [`json`] for `--json` files.
+//! [`text`] for the `check` summary, the tables, notes and gate lines, [`json`] for `--json`
+//! files and the resume journal's lines, [`mod@file`] for writing output files safely.
+//!
+//! Every exporter writes to a `&mut dyn Write` it is given; nothing here prints.
 
+pub mod file;
+pub mod journal;
 pub mod json;
 pub mod text;
 
@@ -9,7 +14,17 @@ pub const CAUTION: &str = "Caution: a planning aid under the model's assumptions
 traffic; the capacities in the file; one processing step per unit); it does not replace the \
 operator's own engineering review and change procedures.";
 
-/// A number for people: at most three decimals, trailing zeros trimmed, `-0` shown as `0`.
+/// From this magnitude on, [`num`] prints engineering notation (`1.5e12`).
+pub const ENGINEERING_FROM: f64 = 1e9;
+
+/// Decimals [`num`] shows below [`ENGINEERING_FROM`] (and of an engineering mantissa).
+pub const DECIMALS: usize = 3;
+
+/// A number for people. Below [`ENGINEERING_FROM`] in magnitude: at most [`DECIMALS`]
+/// decimals, trailing zeros trimmed, `-0` shown as `0`. From it on: engineering notation,
+/// a mantissa in [1, 1000) with at most [`DECIMALS`] decimals and an exponent that is a
+/// multiple of 3 (`1.5e12`, `170e306`). `+∞` prints `unlimited`. O(1); the result never
+/// exceeds 16 characters for any finite input.
 pub fn num(x: f64) -> String {
     if !x.is_finite() {
         return if x > 0.0 {
@@ -18,9 +33,50 @@ pub fn num(x: f64) -> String {
             x.to_string()
         };
     }
-    let s = format!("{:.3}", x);
+    if x.abs() >= ENGINEERING_FROM {
+        return engineering(x);
+    }
+    trimmed(x)
+}
+
+/// `x` with [`DECIMALS`] decimals, trailing zeros and a lone `-0` removed.
+fn trimmed(x: f64) -> String {
+    let s = format!("{:.*}", DECIMALS, x);
     let s = s.trim_end_matches('0').trim_end_matches('.');
     if s == "-0" { "0".into() } else { s.into() }
+}
+
+/// Engineering notation of a finite `x` with `|x| >= 1`: mantissa in [1, 1000), exponent a
+/// multiple of 3.
+fn engineering(x: f64) -> String {
+    let mut exp = (x.abs().log10().floor() as i32).div_euclid(3) * 3;
+    let mantissa = |exp: i32| x / 10f64.powi(exp);
+    if mantissa(exp).abs() < 1.0 {
+        exp -= 3;
+    }
+    let mut s = trimmed(mantissa(exp));
+    // Rounding to DECIMALS can carry the mantissa to 1000: move to the next exponent.
+    if s.trim_start_matches('-').starts_with("1000") {
+        exp += 3;
+        s = trimmed(mantissa(exp));
+    }
+    format!("{s}e{exp}")
+}
+
+/// The value a reader sees in a report for `x`: [`num`] parsed back (`x` itself when it
+/// prints as a word). Gates compare at this precision, so a printed "14" never "exceeds 14".
+pub fn displayed(x: f64) -> f64 {
+    num(x).parse().unwrap_or(x)
+}
+
+/// A small relative quantity (a gap, a residual) in scientific notation with one decimal,
+/// `0` when it is exactly zero (never `0.0e0`).
+pub fn small(x: f64) -> String {
+    if x == 0.0 {
+        "0".into()
+    } else {
+        format!("{x:.1e}")
+    }
 }
 
 /// A number for files: rounded to 9 decimals, so solver noise below 1e-9 does not show
@@ -34,26 +90,50 @@ pub fn round9(x: f64) -> f64 {
     if r == 0.0 { 0.0 } else { r }
 }
 
-/// `part` as a percentage of `whole` with one decimal (`0%` when `whole` is 0).
+/// `part` as a percentage of `whole` with one decimal. The ratio is taken first and
+/// clamped to [0, 1] (every percentage reported is a part of a whole), so no magnitude
+/// overflows; `0%` when `whole` is not positive, `—` when the ratio is not a number.
 pub fn percent(part: f64, whole: f64) -> String {
-    if whole <= 0.0 {
-        "0%".into()
-    } else {
-        format!("{:.1}%", 100.0 * part / whole)
+    if whole.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
+        return "0%".into();
     }
+    let ratio = part / whole;
+    if ratio.is_nan() {
+        return "—".into();
+    }
+    format!("{:.1}%", 100.0 * ratio.clamp(0.0, 1.0))
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
 
+    /// Common practice, no source: hand-written expected renderings.
     #[test]
     fn formatting() {
         assert_eq!(num(12.0), "12");
         assert_eq!(num(12.3456), "12.346");
         assert_eq!(num(-0.0001), "0");
+        assert_eq!(num(999_999_999.0), "999999999");
+        assert_eq!(num(1e9), "1e9");
+        assert_eq!(num(1.5e12), "1.5e12");
+        assert_eq!(num(15e12), "15e12");
+        assert_eq!(num(-2.5e10), "-25e9");
+        assert_eq!(num(999_999_999_999.9), "1e12");
+        assert_eq!(num(1e308), "100e306");
+        assert_eq!(num(f64::MAX), "179.769e306");
+        assert_eq!(displayed(14.000000021), 14.0);
+        assert_eq!(displayed(1.5e12), 1.5e12);
+        assert_eq!(small(0.0), "0");
+        assert_eq!(small(1.24e-9), "1.2e-9");
         assert_eq!(round9(1.0000000000004), 1.0);
         assert_eq!(round9(1e300), 1e300);
         assert_eq!(percent(1.0, 3.0), "33.3%");
+        assert_eq!(percent(1e308, 1e308), "100.0%");
+        assert_eq!(percent(f64::MAX, f64::MAX / 2.0), "100.0%");
+        assert_eq!(percent(1.0, 0.0), "0%");
+        for x in [1e9, 3.3e15, 7.77e100, f64::MAX, -f64::MAX] {
+            assert!(num(x).len() <= 16, "{x}: {}", num(x));
+        }
     }
 }

@@ -4,8 +4,11 @@ use std::fmt::Write as _;
 
 use comfy_table::{Cell, CellAlignment, ContentArrangement, Table, presets::UTF8_FULL_CONDENSED};
 
-use super::{CAUTION, num, percent};
+use std::io::{self, Write};
+
+use super::{CAUTION, num, percent, small};
 use crate::audit::Audit;
+use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
 use crate::rank::{self, Criticality};
 use crate::solve::{Evaluation, Resource, Unservable};
@@ -232,7 +235,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         percent(baseline.served_required, baseline.surviving_required),
         num(baseline.throughput),
         num(net.total_volume()),
-        sci(baseline.certified_gap())
+        small(baseline.certified_gap())
     );
     let base_short = baseline.shortfall > 0.0;
     if base_short {
@@ -376,8 +379,8 @@ pub fn verification_summary(audit: &Audit) -> String {
         "Verified: {proven} of {n} outage{} proven optimal by independent bounds (worst \
          relative residual {}, worst certified gap {}){}{}.",
         if n == 1 { "" } else { "s" },
-        sci(residual),
-        sci(gap),
+        small(residual),
+        small(gap),
         if fallbacks > 0 {
             format!("; {fallbacks} needed a second backend")
         } else {
@@ -389,15 +392,6 @@ pub fn verification_summary(audit: &Audit) -> String {
             String::new()
         }
     )
-}
-
-/// A small nonnegative quantity in scientific notation, `0` for zero.
-fn sci(x: f64) -> String {
-    if x == 0.0 {
-        "0".into()
-    } else {
-        format!("{x:.1e}")
-    }
 }
 
 /// The caution line every report ends with.
@@ -693,4 +687,161 @@ pub fn plan_report(
     }
     let _ = writeln!(out, "{CAUTION}");
     out
+}
+
+/// The `check` exporter: [`check_summary`] to `w`.
+pub fn write_check(
+    w: &mut dyn Write,
+    net: &Network,
+    baseline_cut_off: &[(usize, Unservable)],
+) -> io::Result<()> {
+    w.write_all(check_summary(net, baseline_cut_off).as_bytes())
+}
+
+/// The `--close` part of an audit: the closings per outage and whether costs defaulted.
+pub struct ClosingPart<'a> {
+    pub closings: &'a [Option<crate::expand::Closing>],
+    pub default_costs: bool,
+}
+
+/// The `audit` exporter: header and worst scenarios, where one more unit helps, the
+/// closings (with `--close`), one line per gate, and the caution, in that order.
+pub fn write_audit(
+    w: &mut dyn Write,
+    net: &Network,
+    audit: &Audit,
+    baseline: &Evaluation,
+    closing: Option<ClosingPart<'_>>,
+    gates: &[GateResult],
+    top: usize,
+) -> io::Result<()> {
+    w.write_all(audit_report(net, audit, baseline, top).as_bytes())?;
+    w.write_all(relief_report(net, audit, top).as_bytes())?;
+    if let Some(c) = closing {
+        w.write_all(closing_report(net, audit, c.closings, c.default_costs, top).as_bytes())?;
+    }
+    if !gates.is_empty() {
+        writeln!(w)?;
+        for g in gates {
+            writeln!(w, "{}", gate_line(net, audit, g))?;
+        }
+    }
+    w.write_all(caution().as_bytes())
+}
+
+/// The `plan` exporter: [`plan_report`] to `w`.
+pub fn write_plan(
+    w: &mut dyn Write,
+    net: &Network,
+    audit: &Audit,
+    plan: &crate::expand::Plan,
+    default_costs: bool,
+    top: usize,
+) -> io::Result<()> {
+    w.write_all(plan_report(net, audit, plan, default_costs, top).as_bytes())
+}
+
+/// One gate's verdict: `PASS` or `FAIL`, the flag and limit, the worst value and the
+/// scenario it comes from, e.g. `FAIL --max-shortfall 5: worst shortfall 14 Gbit/s
+/// (site:millbrook) exceeds the limit 5 Gbit/s`.
+pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
+    let u = &net.unit;
+    let verdict = if g.passed { "PASS" } else { "FAIL" };
+    let scenario = g.scenario.map_or_else(
+        || "no scenario".to_string(),
+        |i| audit.scenarios[i].display_name(),
+    );
+    let (flag, what, value, limit, verb) = match g.kind {
+        GateKind::MaxShortfall => (
+            "--max-shortfall",
+            "shortfall",
+            format!("{} {u}", num(g.value)),
+            format!("{} {u}", num(g.limit)),
+            if g.passed { "within" } else { "exceeds" },
+        ),
+        GateKind::MaxStranded => (
+            "--max-stranded",
+            "stranded",
+            format!("{} {u}", num(g.value)),
+            format!("{} {u}", num(g.limit)),
+            if g.passed { "within" } else { "exceeds" },
+        ),
+        GateKind::MinServedFraction => (
+            "--min-served-fraction",
+            "served fraction",
+            format!("{}%", num(100.0 * g.value)),
+            format!("{}%", num(100.0 * g.limit)),
+            if g.passed { "meets" } else { "is below" },
+        ),
+    };
+    // Compared raw (--gate-tolerance), a failing value may print like its limit: show it
+    // in full then.
+    let value = if !g.passed && value == limit {
+        match g.kind {
+            GateKind::MinServedFraction => format!("{}%", 100.0 * g.value),
+            _ => format!("{} {u}", g.value),
+        }
+    } else {
+        value
+    };
+    format!("{verdict} {flag}: worst {what} {value} ({scenario}) {verb} the limit {limit}")
+}
+
+/// A note on stderr: `--threads` was above the core count and is capped.
+pub fn note_threads_capped(w: &mut dyn Write, asked: usize, cores: usize) -> io::Result<()> {
+    writeln!(
+        w,
+        "redoubt: note: --threads {asked} is above the {cores} cores of this machine; using \
+         {cores} (results do not depend on it)"
+    )
+}
+
+/// A note on stderr: the estimated time of the run before it starts.
+pub fn note_estimate(
+    w: &mut dyn Write,
+    outages: usize,
+    first_solve: std::time::Duration,
+    threads: usize,
+    minutes: f64,
+) -> io::Result<()> {
+    writeln!(
+        w,
+        "redoubt: {outages} outages to solve; the first took {} s, so about {} minute{} on \
+         {threads} thread{}",
+        num(first_solve.as_secs_f64()),
+        num(minutes),
+        if minutes == 1.0 { "" } else { "s" },
+        if threads == 1 { "" } else { "s" }
+    )
+}
+
+/// A note on stderr: what `--resume` found in the journal.
+pub fn note_resume(
+    w: &mut dyn Write,
+    journal: &std::path::Path,
+    opened: super::journal::Opened,
+    outages: usize,
+) -> io::Result<()> {
+    match opened {
+        super::journal::Opened::Fresh => Ok(()),
+        super::journal::Opened::NothingToResume => writeln!(
+            w,
+            "redoubt: note: no journal at {}; starting from the beginning",
+            journal.display()
+        ),
+        super::journal::Opened::Resumed(n) => writeln!(
+            w,
+            "redoubt: resuming: {n} of {outages} outages restored from {}",
+            journal.display()
+        ),
+    }
+}
+
+/// A note on stderr: the journal could not be written (the run went on without it).
+pub fn note_journal_failed(w: &mut dyn Write, why: &str) -> io::Result<()> {
+    writeln!(
+        w,
+        "redoubt: note: journaling stopped ({why}); an interrupted run would resume from \
+         what was saved before"
+    )
 }

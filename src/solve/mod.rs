@@ -49,7 +49,7 @@ pub static LADDER: [&dyn Backend; 3] = [&lp::CLARABEL, &lp::CLARABEL_TIGHT, &lp:
 
 /// A saturated resource of an optimal allocation with its shadow price (served units per
 /// added unit of capacity).
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Bottleneck {
     pub resource: Resource,
     pub price: f64,
@@ -57,7 +57,9 @@ pub struct Bottleneck {
     pub utilisation: f64,
 }
 
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, serde::Serialize, serde::Deserialize,
+)]
 pub enum Resource {
     /// A link direction: the arc index in `Network::arcs`.
     Arc(usize),
@@ -66,7 +68,7 @@ pub enum Resource {
 }
 
 /// How one LP result was verified.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Verification {
     /// The bounds meet within [`GAP_TOL`] and the allocation is feasible.
     pub proven: bool,
@@ -79,11 +81,11 @@ pub struct Verification {
     /// Backends tried (1 when the first one was proven).
     pub attempts: usize,
     /// The backend whose allocation was kept.
-    pub backend: &'static str,
+    pub backend: String,
 }
 
 /// Everything the tool reports for one outage.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Evaluation {
     /// Largest Σ f_d over surviving demands with f_d <= required_d (the proven lower bound
     /// when the result is unproven).
@@ -349,7 +351,7 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
                 upper: 0.0,
                 residual: 0.0,
                 attempts: 0,
-                backend: "none (nothing to route)",
+                backend: "none (nothing to route)".into(),
             },
             arc_price: vec![0.0; net.arcs.len()],
             site_price: vec![0.0; net.sites.len()],
@@ -416,7 +418,7 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
                     upper: f64::INFINITY,
                     residual,
                     attempts: attempt + 1,
-                    backend: backend.name(),
+                    backend: backend.name().into(),
                 },
                 solution,
                 allocation,

@@ -16,7 +16,9 @@ use crate::model::{Network, SiteIdx};
 use crate::scenario::Outage;
 
 /// Why a surviving demand cannot be served at all.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, serde::Serialize, serde::Deserialize,
+)]
 pub enum Unservable {
     /// No usable walk joins its origin to its destination.
     NoPath,

@@ -1,0 +1,147 @@
+//! Gates: pass/fail limits on an audit's worst scenario, for scripts and change reviews.
+//!
+//! By default a gate compares the worst value *as printed* ([`crate::report::displayed`]):
+//! a shortfall printed as `14` passes `--max-shortfall 14` even when the solver's value is
+//! 14.000000021. With `--gate-tolerance T` the raw value is compared with the limit
+//! loosened by `T` instead.
+
+use crate::audit::Audit;
+use crate::error::{Error, Result};
+use crate::report::displayed;
+
+/// What a gate limits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum GateKind {
+    /// Largest shortfall against surviving required demand (traffic units).
+    MaxShortfall,
+    /// Largest stranded required demand (traffic units).
+    MaxStranded,
+    /// Smallest served fraction of surviving required demand (0..1).
+    MinServedFraction,
+}
+
+/// A gate: its kind and its limit (units for the maxima, a fraction for the minimum).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Gate {
+    pub kind: GateKind,
+    pub limit: f64,
+}
+
+/// A gate's verdict on an audit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct GateResult {
+    pub kind: GateKind,
+    pub limit: f64,
+    /// The worst value over the scenarios (0 for maxima, 1 for the fraction, when none).
+    pub value: f64,
+    /// The first scenario (in list order) with the worst value.
+    pub scenario: Option<usize>,
+    pub passed: bool,
+}
+
+/// Checks a limit given on the command line: finite and `>= 0`.
+pub fn max_limit(flag: &str, x: f64) -> Result<f64> {
+    if x.is_finite() && x >= 0.0 {
+        Ok(x)
+    } else {
+        Err(Error::Usage(format!(
+            "{flag} must be a finite number >= 0, got {x}"
+        )))
+    }
+}
+
+/// Parses `--min-served-fraction`: a fraction from 0 to 1 (`0.95`) or a percentage from
+/// 0% to 100% (`95%`), returned as a fraction.
+pub fn parse_fraction(text: &str) -> Result<f64> {
+    let bad = || {
+        Error::Usage(format!(
+            "--min-served-fraction must be a fraction from 0 to 1 (0.95) or a percentage \
+             from 0% to 100% (95%), got {text:?}"
+        ))
+    };
+    let t = text.trim();
+    let (number, scale) = match t.strip_suffix('%') {
+        Some(p) => (p.trim(), 100.0),
+        None => (t, 1.0),
+    };
+    let x: f64 = number.parse().map_err(|_| bad())?;
+    let f = x / scale;
+    if f.is_finite() && (0.0..=1.0).contains(&f) {
+        Ok(f)
+    } else {
+        Err(bad())
+    }
+}
+
+/// Evaluates each gate on `audit`. O(gates · scenarios). The worst scenario is the first
+/// in list order whose value, as printed, is worst. A maximum gate fails when the
+/// worst value exceeds its limit, the fraction gate when the worst fraction is below it;
+/// compared as printed (fractions as printed percentages) unless `tolerance` is given.
+pub fn check(audit: &Audit, gates: &[Gate], tolerance: Option<f64>) -> Vec<GateResult> {
+    gates
+        .iter()
+        .map(|g| {
+            let value_of = |i: usize| {
+                let e = audit.eval(i);
+                match g.kind {
+                    GateKind::MaxShortfall => e.shortfall,
+                    GateKind::MaxStranded => e.stranded,
+                    GateKind::MinServedFraction => e.served_fraction(),
+                }
+            };
+            let minimum = g.kind == GateKind::MinServedFraction;
+            // Scenarios are compared as printed, so solver noise never picks among
+            // values that print alike: the first in list order wins.
+            let printed = |v: f64| {
+                if minimum {
+                    displayed(100.0 * v)
+                } else {
+                    displayed(v)
+                }
+            };
+            let mut worst: Option<(usize, f64)> = None;
+            for i in 0..audit.scenarios.len() {
+                let v = value_of(i);
+                let better = match worst {
+                    None => true,
+                    Some((_, w)) if minimum => printed(v).total_cmp(&printed(w)).is_lt(),
+                    Some((_, w)) => printed(v).total_cmp(&printed(w)).is_gt(),
+                };
+                if better {
+                    worst = Some((i, v));
+                }
+            }
+            let value = worst.map_or(if minimum { 1.0 } else { 0.0 }, |w| w.1);
+            let passed = match (tolerance, minimum) {
+                (Some(t), false) => value <= g.limit + t,
+                (Some(t), true) => value >= g.limit - t,
+                (None, false) => displayed(value) <= displayed(g.limit),
+                (None, true) => displayed(100.0 * value) >= displayed(100.0 * g.limit),
+            };
+            GateResult {
+                kind: g.kind,
+                limit: g.limit,
+                value,
+                scenario: worst.map(|w| w.0),
+                passed,
+            }
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Common practice, no source: the accepted spellings of a fraction.
+    #[test]
+    fn fractions() {
+        assert_eq!(parse_fraction("0.95").unwrap(), 0.95);
+        assert_eq!(parse_fraction("95%").unwrap(), 0.95);
+        assert_eq!(parse_fraction("100%").unwrap(), 1.0);
+        assert_eq!(parse_fraction("0").unwrap(), 0.0);
+        for bad in ["-0.1", "1.5", "95", "abc", "nan", "101%", ""] {
+            assert!(parse_fraction(bad).is_err(), "{bad}");
+        }
+    }
+}
