@@ -266,7 +266,7 @@ pub struct PlanJson {
 pub struct PlanBody {
     pub cost: f64,
     pub add: BTreeMap<String, f64>,
-    /// Per site: the scenarios whose processing there binds in the final master.
+    /// Per site: the scenarios that serve less without that site's addition, most first.
     pub drivers: BTreeMap<String, Vec<Vec<String>>>,
 }
 
@@ -338,6 +338,7 @@ pub fn plan_json(
                 "lp_add": additions_map(net, &m.lp_add),
                 "gap": round9(m.gap),
                 "repaired_modules": m.repaired,
+                "candidates_checked": m.checked,
             })
         }),
         scenarios: audit
