@@ -510,8 +510,8 @@ pub fn plan_report(
         } else {
             let _ = writeln!(
                 out,
-                "Modules: the continuous plan spends {}; in whole modules (the sites bought by \
-                 the unit re-optimised) the plan spends {}. {search}.",
+                "Modules: the continuous plan spends {}; in whole modules (any sites bought by \
+                 the unit re-optimised with the modules fixed) the plan spends {}. {search}.",
                 num(m.lp_cost),
                 num(plan.cost)
             );
