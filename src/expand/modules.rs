@@ -167,10 +167,7 @@ pub(super) fn round_to_modules(
     let mut best_counts: Vec<f64> = options.iter().map(|o| o[0]).collect();
     let mut best = evaluate(&best_counts)?;
     let mut digits = vec![0usize; options.len()];
-    loop {
-        let Some(i) = (0..digits.len()).find(|&i| digits[i] + 1 < options[i].len()) else {
-            break;
-        };
+    while let Some(i) = (0..digits.len()).find(|&i| digits[i] + 1 < options[i].len()) {
         digits[i] += 1;
         for d in &mut digits[..i] {
             *d = 0;

@@ -44,8 +44,8 @@ fn used_addition(net: &Network, e: &Evaluation, v: usize) -> f64 {
     (e.site_load.get(v).copied().unwrap_or(0.0) - net.sites[v].processing).max(0.0)
 }
 
-/// Snaps, trims, drops and names the drivers of `add` (see the module comment). `after` must be
-/// `add` evaluated with every outage of `gainable` re-solved. Cost: one re-solve of the
+/// Trims, snaps, drops and names the drivers of `plan = (add, after)` (see the module
+/// comment); `after` must be `add` evaluated with every outage of `gainable` re-solved. Cost: one re-solve of the
 /// outages using each bought site, twice for sites kept before a later drop.
 pub(super) fn tidy(
     net: &Network,
@@ -53,14 +53,14 @@ pub(super) fn tidy(
     cands: &Candidates,
     gainable: &[usize],
     budget: Option<f64>,
-    mut add: Vec<f64>,
-    mut after: Vec<Evaluation>,
+    plan: (Vec<f64>, Vec<Evaluation>),
     opts: RunOptions,
 ) -> Result<Tidied> {
+    let (mut add, mut after) = plan;
     let n = net.sites.len();
     // 1. Trim to what the allocations use.
-    for v in 0..n {
-        if add[v] <= 0.0 {
+    for (v, a) in add.iter_mut().enumerate() {
+        if *a <= 0.0 {
             continue;
         }
         let used = gainable
@@ -71,7 +71,7 @@ pub(super) fn tidy(
             Some(step) => ((used / step) - ROUND_TOL).ceil().max(0.0) * step,
             None => used,
         };
-        add[v] = add[v].min(keep);
+        *a = a.min(keep);
     }
     // 2. Snap solver noise: an addition within SNAP_UP_TOL below / TOL above a multiple of SNAP_GRID ·
     //    the largest addition's power of ten moves onto it (upward only while the budget holds). The
