@@ -1685,3 +1685,128 @@ fn long_runs_are_estimated_and_refused_without_yes() {
     let run = redoubt(&yes);
     assert_eq!(run.code, 0, "{}", run.stderr);
 }
+
+/// Runs `plan` with `args` and returns the stdout and the `--json` document.
+fn plan_json(network: &str, args: &[&str]) -> (String, Value) {
+    let out = TempPath::new("plan-json", "json");
+    let mut all = vec!["plan", network, "--quiet", "--json", out.path()];
+    all.extend_from_slice(args);
+    let run = redoubt(&all);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    (run.stdout, out.read_json())
+}
+
+/// Rows of the text "Buy" table (between its header rule and its bottom rule).
+fn buy_rows(stdout: &str) -> Vec<String> {
+    stdout
+        .lines()
+        .skip_while(|l| !l.starts_with("Buy ("))
+        .skip_while(|l| !l.starts_with('╞'))
+        .skip(1)
+        .take_while(|l| !l.starts_with('└'))
+        .map(str::to_string)
+        .collect()
+}
+
+/// Source: the close-all plan of the same file is the reference (a budget that reaches the
+/// same shortfalls must not cost more than the least-cost plan reaching them; regression of
+/// a budget of 1000 buying 188.85 and 244.56 where close-all buys 20). Every bought site
+/// names the scenarios that drive it (never "—").
+#[test]
+fn demo_budget_never_spends_more_than_close_all() {
+    let demo = demo();
+    let (plain_text, plain) = plan_json(s(&demo), &[]);
+    let plain_cost = num(&plain["plan"], "cost");
+    assert!(plain_cost > 0.0, "{plain_text}");
+    for objective in ["worst", "total"] {
+        let (text, doc) = plan_json(s(&demo), &["--budget", "1000", "--objective", objective]);
+        let cost = num(&doc["plan"], "cost");
+        assert!(
+            cost <= plain_cost + TOL,
+            "--objective {objective}: {cost} > close-all {plain_cost}\n{text}"
+        );
+        let (a, b) = (scenarios(&doc), scenarios(&plain));
+        assert_eq!(a.len(), b.len());
+        for (x, y) in a.iter().zip(b) {
+            assert_eq!(failed_of(x), failed_of(y));
+            assert_near(
+                num(x, "shortfall_after"),
+                num(y, "shortfall_after"),
+                &format!("{objective} {:?}", failed_of(x)),
+            );
+        }
+        let add = doc["plan"]["add"].as_object().expect("add is an object");
+        assert!(!add.is_empty());
+        for site in add.keys() {
+            let d = &doc["plan"]["drivers"][site];
+            assert!(
+                d.as_array().is_some_and(|d| !d.is_empty()),
+                "{site} has no driver: {doc}"
+            );
+        }
+        let rows = buy_rows(&text);
+        assert_eq!(rows.len(), add.len(), "{text}");
+        assert!(rows.iter().all(|r| !r.contains('—')), "{text}");
+    }
+}
+
+/// Source: hand computation (see `EXPAND_NET`): closing every gap costs 9 (c +3, b +3), so
+/// a budget of 31 buys exactly that and nothing more (regression of a useless purchase).
+#[test]
+fn budget_larger_than_needed_buys_only_what_serves() {
+    let f = TempPath::with_text("budget-big", EXPAND_NET);
+    for objective in ["worst", "total"] {
+        let (text, doc) = plan_json(f.path(), &["--budget", "31", "--objective", objective]);
+        assert_near(
+            num(&doc["plan"], "cost"),
+            9.0,
+            &format!("{objective}: {text}"),
+        );
+        assert_near(num(&doc["plan"]["add"], "b"), 3.0, "b");
+        assert_near(num(&doc["plan"]["add"], "c"), 3.0, "c");
+        assert!(doc["plan"]["add"].get("a").is_none(), "{doc}");
+    }
+}
+
+/// Source: hand computation. One demand of 29.999999 from a, which can add processing
+/// only in modules of 10 at cost 1: three modules (cost 30) serve it all, so a budget of
+/// 30 buys them (regression: the LP plan of 29.999999 was rounded down and nothing bought).
+#[test]
+fn module_budget_keeps_the_last_module() {
+    let f = TempPath::with_text(
+        "modules",
+        r#"{"sites":[{"id":"a","expand_cost":1,"expand_max":100,"expand_step":10},{"id":"b"}],
+         "links":[{"id":"ab","from":"a","to":"b","capacity":100}],
+         "demands":[{"from":"a","to":"b","volume":29.999999}]}"#,
+    );
+    let (text, doc) = plan_json(f.path(), &["--depth", "0", "--budget", "30"]);
+    assert!(!text.contains("No purchase"), "{text}");
+    assert_near(num(&doc["plan"]["add"], "a"), 30.0, "a");
+    assert_near(num(scenario(&doc, &[]), "shortfall_after"), 0.0, "baseline");
+    assert!(text.contains("no integer variables"), "{text}");
+}
+
+/// Source: hand computation. Five-site ring, processing 1 at a, demands a→c 3 and b→d 2,
+/// no expand_cost anywhere: 4 more units are needed and site a alone can take them all.
+/// The report says the plan minimises the total added processing, and buys at one site.
+#[test]
+fn no_costs_plan_says_what_it_minimises_and_concentrates() {
+    let f = TempPath::with_text(
+        "nocost",
+        r#"{"sites":[{"id":"a","processing":1},{"id":"b"},{"id":"c"},{"id":"d"},{"id":"e"}],
+         "links":[{"id":"ab","from":"a","to":"b","capacity":10},
+                  {"id":"bc","from":"b","to":"c","capacity":10},
+                  {"id":"cd","from":"c","to":"d","capacity":10},
+                  {"id":"de","from":"d","to":"e","capacity":10},
+                  {"id":"ea","from":"e","to":"a","capacity":10}],
+         "demands":[{"from":"a","to":"c","volume":3},{"from":"b","to":"d","volume":2}]}"#,
+    );
+    let (text, doc) = plan_json(f.path(), &["--depth", "0"]);
+    assert!(
+        text.contains("minimises the total added processing"),
+        "{text}"
+    );
+    assert_near(num(&doc["plan"], "cost"), 4.0, "total added");
+    let add = doc["plan"]["add"].as_object().unwrap();
+    assert_eq!(add.len(), 1, "{doc}");
+}

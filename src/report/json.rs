@@ -356,7 +356,7 @@ pub struct PlanJson {
 pub struct PlanBody {
     pub cost: f64,
     pub add: BTreeMap<String, f64>,
-    /// Per site: the scenarios whose processing there binds in the final master.
+    /// Per site: the scenarios that serve less without that site's addition, most first.
     pub drivers: BTreeMap<String, Vec<Vec<String>>>,
 }
 
@@ -428,6 +428,7 @@ pub fn plan_json(
                 "lp_add": additions_map(net, &m.lp_add),
                 "gap": round9(m.gap),
                 "repaired_modules": m.repaired,
+                "candidates_checked": m.checked,
             })
         }),
         scenarios: audit

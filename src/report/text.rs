@@ -538,12 +538,14 @@ pub fn plan_report(
                            served demand"
             .to_string(),
         Goal::WorstWithin(b) => format!(
-            "within budget {}, the highest worst-case served fraction of required",
+            "within budget {}, the highest worst-case served fraction of required, then the \
+             least total shortfall, then the least cost",
             num(b)
         ),
         Goal::TotalWithin(b) => {
             format!(
-                "within budget {}, the least total shortfall over the scenarios",
+                "within budget {}, the least total shortfall over the scenarios, then the \
+                 least cost",
                 num(b)
             )
         }
@@ -558,7 +560,10 @@ pub fn plan_report(
     if default_costs {
         let _ = writeln!(
             out,
-            "No site has expand_cost: every site is a candidate at cost 1 per unit."
+            "No site has expand_cost: every site is a candidate at cost 1 per unit, so the plan \
+             minimises the total added processing; among plans with that total it concentrates \
+             the addition (ties go to sites earlier in the file) and drops any site whose \
+             addition serves nothing."
         );
     }
     let mut t = table(&["site", &format!("add ({u})"), "cost", "driven by"]);
@@ -591,14 +596,32 @@ pub fn plan_report(
         );
     } else {
         let _ = writeln!(out, "\nBuy (total cost {}):\n{t}", num(plan.cost));
+        let _ = writeln!(
+            out,
+            "Driven by: the scenarios that serve less without that site's addition (the \
+             others kept), most first.{}",
+            match plan.dropped {
+                0 => String::new(),
+                1 => " One addition the LP proposed served nothing and was dropped.".into(),
+                d => format!(" {d} additions the LP proposed served nothing and were dropped."),
+            }
+        );
     }
     if let Some(m) = &plan.modules {
+        let search = format!(
+            "{} whole-module plan{} checked (each site's count rounded down and up near the \
+             continuous plan, then one module more or less at a time), each re-solved on every \
+             scenario; the LP backend has no integer variables, so this is a search, not an \
+             exact integer optimum",
+            m.checked,
+            if m.checked == 1 { "" } else { "s" }
+        );
         if matches!(plan.goal, Goal::CloseAll) {
             let _ = writeln!(
                 out,
-                "Modules: the continuous plan costs {} (a lower bound for any plan); rounded to \
-                 whole modules and repaired ({} module{} removed) it costs {}, gap {} to that \
-                 bound.",
+                "Modules: the continuous plan costs {} (a lower bound for any plan); in whole \
+                 modules ({} module{} removed by the local search) it costs {}, gap {} to that \
+                 bound. {search}.",
                 num(m.lp_cost),
                 m.repaired,
                 if m.repaired == 1 { "" } else { "s" },
@@ -608,8 +631,8 @@ pub fn plan_report(
         } else {
             let _ = writeln!(
                 out,
-                "Modules: the continuous plan spends {}; in whole modules (rounded down to fit the \
-                 budget, the rest re-optimised) the plan spends {}.",
+                "Modules: the continuous plan spends {}; in whole modules (any sites bought by \
+                 the unit re-optimised with the modules fixed) the plan spends {}. {search}.",
                 num(m.lp_cost),
                 num(plan.cost)
             );

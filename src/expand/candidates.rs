@@ -1,0 +1,106 @@
+//! Where processing may be added, at what unit cost and up to how much, and the `add_v`
+//! variables that carry an addition into an LP.
+
+use crate::model::Network;
+use crate::scenario::Outage;
+use crate::solve::TOL;
+use crate::solve::lp::Lp;
+
+/// Where processing may be added, at what unit cost and up to how much.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Candidates {
+    /// Per site: unit cost, `None` when the site cannot be expanded.
+    pub cost: Vec<Option<f64>>,
+    /// Per site: most units that may be added (`INFINITY` when unlimited).
+    pub max: Vec<f64>,
+    /// Per site: the module size when the site buys in whole modules (`expand_step`).
+    pub step: Vec<Option<f64>>,
+    /// True when the file gives no `expand_cost` anywhere and every site is a candidate
+    /// at cost 1 per unit (a plan then minimises the total added processing).
+    pub default_costs: bool,
+}
+
+impl Candidates {
+    /// The file's candidates, or every site at cost 1 when no site has `expand_cost`.
+    /// O(sites).
+    pub fn of(net: &Network) -> Candidates {
+        if net.sites.iter().all(|s| s.expansion.is_none()) {
+            return Candidates {
+                cost: vec![Some(1.0); net.sites.len()],
+                max: vec![f64::INFINITY; net.sites.len()],
+                step: vec![None; net.sites.len()],
+                default_costs: true,
+            };
+        }
+        Candidates {
+            cost: net
+                .sites
+                .iter()
+                .map(|s| s.expansion.as_ref().map(|e| e.cost))
+                .collect(),
+            max: net
+                .sites
+                .iter()
+                .map(|s| s.expansion.as_ref().map_or(0.0, |e| e.max))
+                .collect(),
+            step: net
+                .sites
+                .iter()
+                .map(|s| s.expansion.as_ref().and_then(|e| e.step))
+                .collect(),
+            default_costs: false,
+        }
+    }
+
+    /// Cost of an addition vector: Σ cost_v · add_v. O(sites).
+    pub fn cost_of(&self, add: &[f64]) -> f64 {
+        add.iter()
+            .zip(&self.cost)
+            .map(|(a, c)| a * c.unwrap_or(0.0))
+            .sum()
+    }
+
+    /// True when some candidate site buys in whole modules.
+    pub fn any_modular(&self) -> bool {
+        self.cost
+            .iter()
+            .zip(&self.step)
+            .any(|(c, s)| c.is_some() && s.is_some())
+    }
+}
+
+/// Adds one `add_v` variable per candidate site that survives `outage` (all candidates
+/// when `outage` is `None`), bounded by `min(expand_max, cap)` and with objective
+/// coefficient `cost_v * cost_weight`. O(sites).
+pub(super) fn add_vars(
+    lp: &mut Lp,
+    net: &Network,
+    cands: &Candidates,
+    outage: Option<&Outage>,
+    cap: f64,
+    cost_weight: f64,
+) -> Vec<Option<usize>> {
+    let alive = outage.map(|o| o.site_alive(net));
+    (0..net.sites.len())
+        .map(|v| {
+            let c = cands.cost[v]?;
+            if alive.as_ref().is_some_and(|a| !a[v]) || cands.max[v] <= 0.0 {
+                return None;
+            }
+            Some(lp.add_var(0.0, cands.max[v].min(cap), c * cost_weight))
+        })
+        .collect()
+}
+
+/// The additions of a solution `x`, with values within [`TOL`]·`scale` of 0 snapped to 0
+/// (solver noise, not a purchase). O(sites).
+pub(super) fn values(add: &[Option<usize>], x: &[f64], scale: f64) -> Vec<f64> {
+    add.iter()
+        .map(|v| {
+            v.map_or(0.0, |v| {
+                let a = x[v].max(0.0);
+                if a <= TOL * scale { 0.0 } else { a }
+            })
+        })
+        .collect()
+}

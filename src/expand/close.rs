@@ -1,0 +1,139 @@
+//! The cheapest expansion for one scenario ([`close`]) and the best served_required any
+//! expansion can reach ([`best_reachable`]).
+
+use super::candidates::{Candidates, add_vars, values};
+use crate::error::Result;
+use crate::model::{LinkIdx, Network};
+use crate::scenario::Outage;
+use crate::solve::flow::{self, Cap, FlowIndex};
+use crate::solve::lp::{self, Lp, Sense};
+use crate::solve::{Evaluation, TOL};
+
+/// The cheapest expansion for one scenario.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Closing {
+    /// Σ cost · add.
+    pub cost: f64,
+    /// Units added per site.
+    pub add: Vec<f64>,
+    /// The best served_required any expansion reaches.
+    pub best: f64,
+    /// Surviving required − best: the part links or connectivity hold back.
+    pub not_closable: f64,
+    /// Links whose capacity limits `best` (positive shadow price with unlimited
+    /// expansion), in link order.
+    pub binding_links: Vec<LinkIdx>,
+    /// The dual objective of the cost LP (equals `cost` by strong duality).
+    pub dual_bound: f64,
+}
+
+/// Best served_required of `outage` (evaluated as `eval`) with every candidate expanded as
+/// far as allowed, and the links whose capacity limits it. The value is snapped to the
+/// whole required demand when within [`TOL`], and never below what `eval` already serves.
+pub(super) fn best_reachable(
+    net: &Network,
+    outage: &Outage,
+    cands: &Candidates,
+    eval: &Evaluation,
+) -> Result<(f64, Vec<LinkIdx>)> {
+    let required = eval.surviving_required;
+    let (best, links) = best_reachable_raw(net, outage, cands, required)?;
+    let best = if (required - best).abs() <= TOL * required.max(1.0) {
+        required
+    } else {
+        best.max(eval.served_required)
+    };
+    Ok((best, links))
+}
+
+fn best_reachable_raw(
+    net: &Network,
+    outage: &Outage,
+    cands: &Candidates,
+    required: f64,
+) -> Result<(f64, Vec<LinkIdx>)> {
+    let mut model = Lp::new(true);
+    let add = add_vars(&mut model, net, cands, Some(outage), required, 0.0);
+    let index = flow::build(&mut model, net, outage, Cap::Required, 1.0, Some(&add));
+    if model.num_vars() == 0 {
+        return Ok((0.0, Vec::new()));
+    }
+    let sol = lp::solve(&model)?;
+    let best = index.served(&sol.x).clamp(0.0, required);
+    let mut links: Vec<LinkIdx> = index
+        .arc_row
+        .iter()
+        .enumerate()
+        .filter_map(|(a, r)| r.filter(|&r| sol.duals[r] > 1e-6).map(|_| net.arcs[a].link))
+        .collect();
+    links.sort_unstable();
+    links.dedup();
+    Ok((best, links))
+}
+
+/// For one scenario with a shortfall, the cheapest expansion (Σ expand_cost · add, add ≤
+/// expand_max) with which served_required reaches the best value any expansion reaches;
+/// `None` when the scenario has no shortfall.
+///
+/// Two LPs: maximise served with unlimited (bounded by expand_max) additions, then
+/// minimise cost subject to served ≥ best − 1e-7·best.
+pub fn close(
+    net: &Network,
+    outage: &Outage,
+    eval: &Evaluation,
+    cands: &Candidates,
+) -> Result<Option<Closing>> {
+    if eval.shortfall <= 0.0 {
+        return Ok(None);
+    }
+    let required = eval.surviving_required;
+    let (best, binding_links) = best_reachable(net, outage, cands, eval)?;
+    let scale = required.max(1.0);
+    if best <= eval.served_required + TOL * scale {
+        return Ok(Some(Closing {
+            cost: 0.0,
+            add: vec![0.0; net.sites.len()],
+            best: eval.served_required,
+            not_closable: eval.shortfall,
+            binding_links,
+            dual_bound: 0.0,
+        }));
+    }
+    let mut model = Lp::new(false);
+    let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
+    let index = flow::build(&mut model, net, outage, Cap::Required, 0.0, Some(&add));
+    served_row(&mut model, &index, target(best, required));
+    let sol = lp::solve(&model)?;
+    let add_units = values(&add, &sol.x, scale);
+    Ok(Some(Closing {
+        cost: cands.cost_of(&add_units),
+        add: add_units,
+        best,
+        not_closable: (required - best).max(0.0),
+        binding_links,
+        dual_bound: model.dual_objective(&sol),
+    }))
+}
+
+/// The served target of a cost-minimising model: the best reachable value itself when it
+/// is the whole required demand (exactly feasible), otherwise a hair below it (1e-8
+/// relative), since an interior-point `best` may overshoot the true optimum by its
+/// tolerance.
+pub(super) fn target(best: f64, required: f64) -> f64 {
+    if best >= required {
+        required
+    } else {
+        best - 1e-8 * required.max(f64::MIN_POSITIVE)
+    }
+}
+
+/// Adds `Σ f_d >= target` over the flow variables of `index`; returns the row.
+pub(super) fn served_row(model: &mut Lp, index: &FlowIndex, target: f64) -> usize {
+    let coeffs = index
+        .demand_var
+        .iter()
+        .flatten()
+        .map(|&f| (f, 1.0))
+        .collect();
+    model.add_row(coeffs, Sense::Ge, target)
+}

@@ -1,0 +1,234 @@
+//! The master problem of constraint generation: one flow-model copy per active outage, all
+//! sharing the `add_v` variables, solved as a short sequence of LPs (lexicographic phases).
+//!
+//! Phases, each holding the previous phase's optimum with a tolerance ([`HOLD_TOL`]):
+//!
+//! | goal | 1 | 2 | 3 | 4 |
+//! |---|---|---|---|---|
+//! | close-all | least cost with every active outage at its best | — | — | tie-break |
+//! | worst within budget | largest worst fraction `t` | most served (Σ scenarios · served) | least cost | tie-break |
+//! | total within budget | most served (Σ scenarios · served) | — | least cost | tie-break |
+//!
+//! The tie-break phase holds the cost and minimises `Σ (v + 1) · add_v` (sites earlier in the
+//! file preferred): an interior-point solver returns the centre of an optimal face, which
+//! spreads an addition over every site that could take it; with distinct weights the
+//! optimum is (generically) a single vertex, so the addition is concentrated. Each phase is
+//! one LP of the master's size; a later phase whose held row the backend cannot meet is
+//! retried once with a looser hold and otherwise skipped (the earlier phase's plan stands).
+
+use super::Goal;
+use super::candidates::{Candidates, add_vars, values};
+use super::close::{served_row, target};
+use crate::audit::Audit;
+use crate::error::{Error, Result};
+use crate::model::Network;
+use crate::solve::flow::{self, Cap};
+use crate::solve::lp::{self, Lp, LpSolution, Sense};
+
+/// Largest master problem a plan builds (variables).
+pub const TOTAL_MAX_VARS: usize = 1_500_000;
+
+/// Relative tolerance with which a later phase holds an earlier phase's optimum (of the
+/// fraction `t`; of Σ scenarios · required for served totals; of the cost for the cost).
+pub(super) const HOLD_TOL: f64 = 1e-9;
+
+/// How much looser a hold is made when the backend cannot meet it at [`HOLD_TOL`].
+const HOLD_RETRY: f64 = 1e3;
+
+/// What the master sees of the outages.
+pub(super) struct MasterInput<'a> {
+    pub net: &'a Network,
+    pub audit: &'a Audit,
+    pub cands: &'a Candidates,
+    pub bests: &'a [f64],
+    pub active: &'a [usize],
+    pub multiplicity: &'a [usize],
+    /// Upper bound on the worst fraction from the outages processing cannot help.
+    pub t_cap: f64,
+}
+
+/// The master's plan and its primary objective (the cost for close-all, the worst
+/// fraction `t`, or the total shortfall over the active outages' scenarios).
+pub(super) struct MasterResult {
+    pub add: Vec<f64>,
+    pub objective: f64,
+}
+
+/// Sets the objective of `model` to `terms` (duplicates add up) and its sense.
+fn set_objective(model: &mut Lp, maximise: bool, terms: &[(usize, f64)]) {
+    model.objective.iter_mut().for_each(|c| *c = 0.0);
+    for &(j, c) in terms {
+        model.objective[j] += c;
+    }
+    model.maximise = maximise;
+}
+
+fn dot(terms: &[(usize, f64)], x: &[f64]) -> f64 {
+    terms.iter().map(|&(j, c)| c * x[j]).sum()
+}
+
+/// Adds `terms ≥ value − slack` (or `≤ value + slack`), solves, and on a backend failure
+/// retries once with the slack ×[`HOLD_RETRY`]; `None` when both fail (the caller keeps
+/// the previous phase's solution).
+fn held_solve(
+    model: &mut Lp,
+    terms: &[(usize, f64)],
+    sense: Sense,
+    value: f64,
+    slack: f64,
+) -> Option<LpSolution> {
+    let rhs = |s: f64| match sense {
+        Sense::Ge => value - s,
+        _ => value + s,
+    };
+    let row = model.add_row(terms.to_vec(), sense, rhs(slack));
+    if let Ok(sol) = lp::solve(model) {
+        return Some(sol);
+    }
+    model.rows[row].rhs = rhs(slack * HOLD_RETRY);
+    lp::solve(model).ok()
+}
+
+/// Solves the master over `input.active` for `goal` (phases in the module comment).
+///
+/// Size: one flow model per active outage (see [`flow::build`]) plus one `add` variable
+/// per candidate; refused past [`TOTAL_MAX_VARS`] variables. Cost: two to four LP solves.
+pub(super) fn solve_master(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult> {
+    let MasterInput {
+        net,
+        audit,
+        cands,
+        bests,
+        active,
+        multiplicity,
+        t_cap,
+    } = *input;
+    let total_required = net.total_required().max(1.0);
+    let mut model = Lp::new(false);
+    let add = add_vars(&mut model, net, cands, None, total_required, 0.0);
+    let cost_terms: Vec<(usize, f64)> = add
+        .iter()
+        .enumerate()
+        .filter_map(|(v, a)| a.map(|a| (a, cands.cost[v].unwrap_or(0.0))))
+        .collect();
+    let tie_terms: Vec<(usize, f64)> = add
+        .iter()
+        .enumerate()
+        .filter_map(|(v, a)| a.map(|a| (a, (v + 1) as f64 / net.sites.len() as f64)))
+        .collect();
+    if let Goal::WorstWithin(budget) | Goal::TotalWithin(budget) = goal {
+        model.add_row(cost_terms.clone(), Sense::Le, budget);
+    }
+    let t = match goal {
+        Goal::WorstWithin(_) => Some(model.add_var(0.0, t_cap.clamp(0.0, 1.0), 0.0)),
+        _ => None,
+    };
+    // Σ over active outages of (scenarios · served), and its largest value.
+    let mut served_terms: Vec<(usize, f64)> = Vec::new();
+    let mut served_scale = 0.0;
+    for &k in active {
+        let index = flow::build(
+            &mut model,
+            net,
+            &audit.outages[k],
+            Cap::Required,
+            0.0,
+            Some(&add),
+        );
+        if model.num_vars() > TOTAL_MAX_VARS {
+            return Err(Error::Usage(format!(
+                "the plan's master problem passed {TOTAL_MAX_VARS} variables; lower --depth \
+                 or narrow --kinds"
+            )));
+        }
+        let req = audit.evaluations[k].surviving_required;
+        let m = multiplicity[k] as f64;
+        served_scale += m * req;
+        served_terms.extend(index.demand_var.iter().flatten().map(|&f| (f, m)));
+        match (goal, t) {
+            (Goal::CloseAll, _) => {
+                served_row(&mut model, &index, target(bests[k], req));
+            }
+            (_, Some(t)) => {
+                let mut coeffs: Vec<(usize, f64)> = index
+                    .demand_var
+                    .iter()
+                    .flatten()
+                    .map(|&f| (f, 1.0))
+                    .collect();
+                coeffs.push((t, -req));
+                model.add_row(coeffs, Sense::Ge, 0.0);
+            }
+            _ => {}
+        }
+    }
+    let active_shortfall = |x: &[f64]| {
+        let served = if x.is_empty() {
+            0.0
+        } else {
+            dot(&served_terms, x)
+        };
+        (served_scale - served).max(0.0)
+    };
+    if model.num_vars() == 0 {
+        return Ok(MasterResult {
+            add: vec![0.0; net.sites.len()],
+            objective: match goal {
+                Goal::CloseAll => 0.0,
+                Goal::WorstWithin(_) => t_cap.clamp(0.0, 1.0),
+                Goal::TotalWithin(_) => active_shortfall(&[]),
+            },
+        });
+    }
+    let solver_error = |e: Error| Error::Solver(format!("plan master problem: {e}"));
+    let served_slack = HOLD_TOL * served_scale.max(1.0);
+    // Phase 1 (and, for worst, phase 2), then the least cost.
+    let (mut sol, objective) = match (goal, t) {
+        (Goal::CloseAll, _) => {
+            set_objective(&mut model, false, &cost_terms);
+            let sol = lp::solve(&model).map_err(solver_error)?;
+            let cost = dot(&cost_terms, &sol.x);
+            (sol, cost)
+        }
+        (_, Some(t)) => {
+            set_objective(&mut model, true, &[(t, 1.0)]);
+            let sol = lp::solve(&model).map_err(solver_error)?;
+            let t_best = sol.x[t].clamp(0.0, 1.0);
+            set_objective(&mut model, true, &served_terms);
+            let mut best = sol;
+            if let Some(s2) = held_solve(&mut model, &[(t, 1.0)], Sense::Ge, t_best, HOLD_TOL) {
+                let s_best = dot(&served_terms, &s2.x);
+                best = s2;
+                set_objective(&mut model, false, &cost_terms);
+                if let Some(s3) =
+                    held_solve(&mut model, &served_terms, Sense::Ge, s_best, served_slack)
+                {
+                    best = s3;
+                }
+            }
+            (best, t_best)
+        }
+        _ => {
+            set_objective(&mut model, true, &served_terms);
+            let sol = lp::solve(&model).map_err(solver_error)?;
+            let s_best = dot(&served_terms, &sol.x);
+            let shortfall = active_shortfall(&sol.x);
+            set_objective(&mut model, false, &cost_terms);
+            let best = held_solve(&mut model, &served_terms, Sense::Ge, s_best, served_slack)
+                .unwrap_or(sol);
+            (best, shortfall)
+        }
+    };
+    // Tie-break: the cost held, sites earlier in the file preferred.
+    let cost = dot(&cost_terms, &sol.x);
+    if cost > 0.0 && !tie_terms.is_empty() {
+        set_objective(&mut model, false, &tie_terms);
+        if let Some(s4) = held_solve(&mut model, &cost_terms, Sense::Le, cost, HOLD_TOL * cost) {
+            sol = s4;
+        }
+    }
+    Ok(MasterResult {
+        add: values(&add, &sol.x, total_required),
+        objective,
+    })
+}

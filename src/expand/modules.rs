@@ -1,0 +1,236 @@
+//! Plans in whole modules (`expand_step`).
+//!
+//! The LP backend (clarabel, interior point) has no integer variables, so there is no exact
+//! integer (MILP) search here. Instead the continuous plan is turned into whole modules by
+//! a search over module counts near it, every candidate verified by re-solving every
+//! outage processing can help:
+//!
+//! 1. **Rounding neighbourhood.** At each modular site the LP count `q` is snapped to the
+//!    nearest whole count when within [`ROUND_TOL`] (relative), else both `⌊q⌋` and `⌈q⌉`
+//!    are tried; all combinations are checked (at most [`MAX_COMBOS`]; past that, the
+//!    sites whose fraction is nearest ½ branch and the others round down within a budget,
+//!    up for close-all). The plain rounding (down within a budget, up for close-all) is
+//!    always one of them.
+//! 2. **Local search.** From the best combination, one module more or less at each modular
+//!    site, kept when the plan gets better ([`Score::compare`]: the goal first, then the
+//!    cost), until no move helps (at most [`LOCAL_PASSES`] passes).
+//!
+//! Sites bought by the unit are re-optimised for each candidate by the same
+//! constraint-generation loop with the modules fixed (and the budget left). The chosen plan
+//! is never worse than any candidate checked, in particular than plain rounding.
+
+use std::collections::BTreeMap;
+
+use super::candidates::Candidates;
+use super::generate::{Generated, Generation, Score, generate, verify};
+use super::{Goal, ModuleRounding};
+use crate::audit::{Audit, RunOptions};
+use crate::error::Result;
+use crate::model::Network;
+use crate::solve::Evaluation;
+
+/// Relative tolerance within which an LP module count is taken as whole (1e-6 of a module
+/// or of the count): an LP plan of 29.999999 in modules of 10 is 3 modules.
+pub(super) const ROUND_TOL: f64 = 1e-6;
+
+/// Most rounding combinations checked.
+const MAX_COMBOS: usize = 32;
+
+/// Most local-search passes over the modular sites.
+const LOCAL_PASSES: usize = 4;
+
+/// Relative slack on the budget for a module plan (its cost is a sum of whole modules
+/// and should not fail the budget on the last bit).
+const BUDGET_TOL: f64 = 1e-9;
+
+/// One checked module plan.
+struct Candidate {
+    add: Vec<f64>,
+    after: Vec<Evaluation>,
+    score: Score,
+}
+
+/// The best whole-module plan found near the LP plan `lp` (see the module comment), with
+/// how it was found. Cost: one verification per candidate (one constraint-generation run
+/// when some site buys by the unit); at most [`MAX_COMBOS`] + 2 · modular sites ·
+/// [`LOCAL_PASSES`] candidates.
+pub(super) fn round_to_modules(
+    net: &Network,
+    audit: &Audit,
+    cands: &Candidates,
+    data: &Generation<'_>,
+    goal: Goal,
+    lp: &Generated,
+    opts: RunOptions,
+) -> Result<(Vec<f64>, Vec<Evaluation>, ModuleRounding)> {
+    let n = net.sites.len();
+    let budget = match goal {
+        Goal::CloseAll => None,
+        Goal::WorstWithin(b) | Goal::TotalWithin(b) => Some(b),
+    };
+    let scale: f64 = audit
+        .outage_of
+        .iter()
+        .map(|&k| audit.evaluations[k].surviving_required)
+        .sum();
+    let modular: Vec<usize> = (0..n)
+        .filter(|&v| cands.cost[v].is_some() && cands.step[v].is_some() && cands.max[v] > 0.0)
+        .collect();
+    let step = |v: usize| cands.step[v].unwrap_or(1.0);
+    let max_modules = |v: usize| (cands.max[v] / step(v) * (1.0 + ROUND_TOL)).floor();
+    // 1. Rounding options per modular site.
+    let mut options: Vec<Vec<f64>> = modular
+        .iter()
+        .map(|&v| {
+            let q = lp.add[v] / step(v);
+            let near = q.round();
+            let mut o = if (q - near).abs() <= ROUND_TOL * q.max(1.0) {
+                // Within a budget a count snapped up may not fit: one fewer is the fallback.
+                if budget.is_some() && near > q {
+                    vec![near, near - 1.0]
+                } else {
+                    vec![near]
+                }
+            } else {
+                vec![q.floor(), q.ceil()]
+            };
+            for c in &mut o {
+                *c = c.clamp(0.0, max_modules(v));
+            }
+            o.dedup_by(|a, b| a == b);
+            o
+        })
+        .collect();
+    let mut branching: Vec<usize> = (0..modular.len())
+        .filter(|&i| options[i].len() > 1)
+        .collect();
+    let max_branch = MAX_COMBOS.ilog2() as usize;
+    if branching.len() > max_branch {
+        let frac = |i: usize| {
+            let q = lp.add[modular[i]] / step(modular[i]);
+            ((q - q.floor()) - 0.5).abs()
+        };
+        branching.sort_by(|&a, &b| frac(a).total_cmp(&frac(b)).then(a.cmp(&b)));
+        for &i in &branching[max_branch..] {
+            let keep = if budget.is_some() { 0 } else { 1 };
+            options[i] = vec![options[i][keep]];
+        }
+    }
+    // The unit-bought sites, re-optimised with the modules fixed.
+    let mut rest = cands.clone();
+    for &v in &modular {
+        rest.cost[v] = None;
+    }
+    let units_left = (0..n).any(|v| rest.cost[v].is_some() && rest.max[v] > 0.0);
+    let mut memo: BTreeMap<Vec<u64>, Option<Candidate>> = BTreeMap::new();
+    let mut evaluate = |counts: &[f64]| -> Result<Option<Score>> {
+        let key: Vec<u64> = counts.iter().map(|&c| c as u64).collect();
+        if let Some(c) = memo.get(&key) {
+            return Ok(c.as_ref().map(|c| c.score));
+        }
+        let mut fixed = vec![0.0; n];
+        for (&v, &c) in modular.iter().zip(counts) {
+            fixed[v] = c * step(v);
+        }
+        let fixed_cost = cands.cost_of(&fixed);
+        let candidate = match budget {
+            Some(b) if fixed_cost > b + BUDGET_TOL * b.max(1.0) => None,
+            _ => {
+                let planned = net.with_added_processing(&fixed);
+                let (add, after) = if units_left {
+                    let left = budget.map(|b| (b - fixed_cost).max(0.0));
+                    let sub_goal = match goal {
+                        Goal::CloseAll => Goal::CloseAll,
+                        Goal::WorstWithin(_) => Goal::WorstWithin(left.unwrap_or(0.0)),
+                        Goal::TotalWithin(_) => Goal::TotalWithin(left.unwrap_or(0.0)),
+                    };
+                    let g = generate(&planned, audit, &rest, data, sub_goal, opts)?;
+                    let add: Vec<f64> = fixed.iter().zip(&g.add).map(|(f, a)| f + a).collect();
+                    (add, g.after)
+                } else {
+                    (fixed, verify(&planned, audit, data.gainable, opts)?)
+                };
+                let score = Score::of(audit, data.bests, &after, cands.cost_of(&add));
+                Some(Candidate { add, after, score })
+            }
+        };
+        let score = candidate.as_ref().map(|c| c.score);
+        memo.insert(key, candidate);
+        Ok(score)
+    };
+    let better = |a: &Option<Score>, b: &Option<Score>| match (a, b) {
+        (Some(a), Some(b)) => a.compare(b, goal, scale).is_gt(),
+        (Some(_), None) => true,
+        _ => false,
+    };
+    // Every combination of the options, first option first (odometer order).
+    let mut best_counts: Vec<f64> = options.iter().map(|o| o[0]).collect();
+    let mut best = evaluate(&best_counts)?;
+    let mut digits = vec![0usize; options.len()];
+    while let Some(i) = (0..digits.len()).find(|&i| digits[i] + 1 < options[i].len()) {
+        digits[i] += 1;
+        for d in &mut digits[..i] {
+            *d = 0;
+        }
+        let counts: Vec<f64> = digits.iter().zip(&options).map(|(&d, o)| o[d]).collect();
+        let score = evaluate(&counts)?;
+        if better(&score, &best) {
+            best = score;
+            best_counts = counts;
+        }
+    }
+    let rounded = best_counts.clone();
+    // 2. Local search: one module more or less at a site.
+    for _ in 0..LOCAL_PASSES {
+        let mut improved = false;
+        for i in 0..modular.len() {
+            for delta in [-1.0, 1.0] {
+                let c = best_counts[i] + delta;
+                if c < 0.0 || c > max_modules(modular[i]) {
+                    continue;
+                }
+                let mut counts = best_counts.clone();
+                counts[i] = c;
+                let score = evaluate(&counts)?;
+                if better(&score, &best) {
+                    best = score;
+                    best_counts = counts;
+                    improved = true;
+                }
+            }
+        }
+        if !improved {
+            break;
+        }
+    }
+    let repaired: usize = rounded
+        .iter()
+        .zip(&best_counts)
+        .map(|(r, b)| (r - b).max(0.0) as usize)
+        .sum();
+    let checked = memo.values().filter(|c| c.is_some()).count();
+    let key: Vec<u64> = best_counts.iter().map(|&c| c as u64).collect();
+    let lp_cost = cands.cost_of(&lp.add);
+    let chosen = memo.remove(&key).flatten();
+    let (add, after) = match chosen {
+        Some(c) => (c.add, c.after),
+        // Nothing fits (a budget below one module everywhere): buy no modules.
+        None => {
+            let fixed = vec![0.0; n];
+            let after = verify(net, audit, data.gainable, opts)?;
+            (fixed, after)
+        }
+    };
+    let cost = cands.cost_of(&add);
+    Ok((
+        add,
+        after,
+        ModuleRounding {
+            lp_add: lp.add.clone(),
+            lp_cost,
+            gap: (cost - lp_cost).max(0.0),
+            repaired,
+            checked,
+        },
+    ))
+}
