@@ -5,6 +5,7 @@
 //! the network and the outage, so results do not depend on thread count or order.
 
 pub mod certify;
+pub mod colgen;
 pub mod flow;
 pub mod lp;
 
@@ -169,18 +170,97 @@ pub fn solve_flow(
 ///
 /// Cost: one or two LP solves of the size given in [`flow::build`].
 pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
+    let (model, index, sol) = solve_flow(net, outage, Cap::Required)?;
+    let arc_load = index.arc_loads(&sol.x);
+    let site_load = index.site_loads(&sol.x);
+    let allocation = Allocation {
+        served: index.served(&sol.x),
+        demand_flow: index.demand_flows(&sol.x),
+        arc_price: index
+            .arc_row
+            .iter()
+            .map(|r| r.map_or(0.0, |r| sol.duals[r]))
+            .collect(),
+        site_price: index
+            .site_row
+            .iter()
+            .map(|r| r.map(|r| sol.duals[r]))
+            .collect(),
+        arc_has_row: index.arc_row.iter().map(Option::is_some).collect(),
+        servable: index.demand_var.iter().map(Option::is_some).collect(),
+        max_violation: if model.num_vars() == 0 {
+            0.0
+        } else {
+            model.max_violation(&sol.x)
+        },
+        arc_load,
+        site_load,
+    };
+    let throughput = if needs_volume_lp(net, outage) {
+        let (_, vindex, vsol) = solve_flow(net, outage, Cap::Volume)?;
+        Some(vindex.served(&vsol.x))
+    } else {
+        None
+    };
+    Ok(assemble(net, outage, allocation, throughput))
+}
+
+/// Whether some surviving demand offers more than its required part, so that throughput
+/// needs its own LP (with volume caps). O(demands).
+pub fn needs_volume_lp(net: &Network, outage: &Outage) -> bool {
+    let site_alive = outage.site_alive(net);
+    net.demands
+        .iter()
+        .any(|d| site_alive[d.from] && site_alive[d.to] && d.volume > d.required)
+}
+
+/// One optimal allocation of the served_required LP with its shadow prices, as an engine
+/// (the edge LP here, the walk engine in [`colgen`]) hands it to [`assemble`]. Values are
+/// raw solver output; [`assemble`] clamps and snaps them.
+#[derive(Debug, Clone)]
+pub struct Allocation {
+    /// Σ f_d.
+    pub served: f64,
+    /// Per demand: its flow.
+    pub demand_flow: Vec<f64>,
+    /// Per arc: its load.
+    pub arc_load: Vec<f64>,
+    /// Per site: processing used.
+    pub site_load: Vec<f64>,
+    /// Per arc: shadow price of its capacity row (0 when it has none).
+    pub arc_price: Vec<f64>,
+    /// Per site: shadow price of its processing row, `None` when it has none (see
+    /// [`Evaluation::site_price`]).
+    pub site_price: Vec<Option<f64>>,
+    /// Per arc: whether the model has a capacity row for it.
+    pub arc_has_row: Vec<bool>,
+    /// Per demand: whether some walk through a processing site can serve it.
+    pub servable: Vec<bool>,
+    /// Largest relative row violation of the allocation.
+    pub max_violation: f64,
+}
+
+/// Turns an engine's [`Allocation`] (and the raw throughput optimum, when a volume LP was
+/// solved) into the reported [`Evaluation`]: stranded totals, snapping to bounds,
+/// bottlenecks, and the certified upper bound ([`certify::dual_bound`]).
+///
+/// Cost: O(demands + arcs + sites) plus the certificate's Dijkstras.
+pub fn assemble(
+    net: &Network,
+    outage: &Outage,
+    alloc: Allocation,
+    raw_throughput: Option<f64>,
+) -> Evaluation {
     let site_alive = outage.site_alive(net);
     let mut stranded = 0.0;
     let mut stranded_volume = 0.0;
     let mut stranded_demands = Vec::new();
     let mut surviving_required = 0.0;
     let mut surviving_volume = 0.0;
-    let mut needs_volume_lp = false;
     for (d, dem) in net.demands.iter().enumerate() {
         if site_alive[dem.from] && site_alive[dem.to] {
             surviving_required += dem.required;
             surviving_volume += dem.volume;
-            needs_volume_lp |= dem.volume > dem.required;
         } else {
             stranded += dem.required;
             stranded_volume += dem.volume;
@@ -188,17 +268,22 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         }
     }
 
-    let (model, index, sol) = solve_flow(net, outage, Cap::Required)?;
     let scale = surviving_required;
-    let mut served_required = index.served(&sol.x).clamp(0.0, surviving_required);
+    let mut served_required = alloc.served.clamp(0.0, surviving_required);
     served_required = snap(snap(served_required, surviving_required, scale), 0.0, scale);
     let shortfall = snap((surviving_required - served_required).max(0.0), 0.0, scale);
 
-    let demand_flow: Vec<f64> = index
-        .demand_flows(&sol.x)
+    let demand_flow: Vec<f64> = alloc
+        .demand_flow
         .iter()
         .zip(&net.demands)
-        .map(|(&f, dem)| snap(snap(f.min(dem.required), dem.required, scale), 0.0, scale))
+        .map(|(&f, dem)| {
+            snap(
+                snap(f.max(0.0).min(dem.required), dem.required, scale),
+                0.0,
+                scale,
+            )
+        })
         .collect();
     let demand_shortfall: Vec<f64> = net
         .demands
@@ -213,22 +298,18 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         })
         .collect();
 
-    let arc_load = index.arc_loads(&sol.x);
-    let site_load = index.site_loads(&sol.x);
-    let arc_price: Vec<f64> = index
-        .arc_row
+    let arc_load = alloc.arc_load;
+    let site_load = alloc.site_load;
+    let arc_price: Vec<f64> = alloc.arc_price.iter().map(|p| p.max(0.0)).collect();
+    let site_price: Vec<Option<f64>> = alloc
+        .site_price
         .iter()
-        .map(|r| r.map_or(0.0, |r| sol.duals[r].max(0.0)))
-        .collect();
-    let site_price: Vec<Option<f64>> = index
-        .site_row
-        .iter()
-        .map(|r| r.map(|r| snap(sol.duals[r].max(0.0), 0.0, 1.0)))
+        .map(|p| p.map(|p| snap(p.max(0.0), 0.0, 1.0)))
         .collect();
 
     let mut bottlenecks = Vec::new();
     for (a, arc) in net.arcs.iter().enumerate() {
-        if index.arc_row[a].is_some() && arc_load[a] >= arc.capacity * (1.0 - 1e-6) - 1e-9 {
+        if alloc.arc_has_row[a] && arc_load[a] >= arc.capacity * (1.0 - 1e-6) - 1e-9 {
             bottlenecks.push(Bottleneck {
                 resource: Resource::Arc(a),
                 price: snap(arc_price[a], 0.0, 1.0),
@@ -237,7 +318,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         }
     }
     for (v, site) in net.sites.iter().enumerate() {
-        if index.site_row[v].is_some() && site_load[v] >= site.processing * (1.0 - 1e-6) - 1e-9 {
+        if site_price[v].is_some() && site_load[v] >= site.processing * (1.0 - 1e-6) - 1e-9 {
             bottlenecks.push(Bottleneck {
                 resource: Resource::Site(v),
                 price: site_price[v].unwrap_or(0.0),
@@ -263,32 +344,22 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         &site_price_dense,
     )
     .min(surviving_required);
-    let max_violation = if model.num_vars() == 0 {
-        0.0
-    } else {
-        model.max_violation(&sol.x)
-    };
 
-    let throughput = if needs_volume_lp {
-        let (_, vindex, vsol) = solve_flow(net, outage, Cap::Volume)?;
-        let t = vindex
-            .served(&vsol.x)
-            .clamp(served_required, surviving_volume);
-        snap(t, surviving_volume, surviving_volume).max(served_required)
-    } else {
-        served_required
+    let throughput = match raw_throughput {
+        Some(t) => {
+            let t = t.clamp(served_required, surviving_volume);
+            snap(t, surviving_volume, surviving_volume).max(served_required)
+        }
+        None => served_required,
     };
 
     let cut_off: Vec<usize> = (0..net.demands.len())
         .filter(|&d| {
             let dem = &net.demands[d];
-            site_alive[dem.from]
-                && site_alive[dem.to]
-                && dem.required > 0.0
-                && index.demand_var[d].is_none()
+            site_alive[dem.from] && site_alive[dem.to] && dem.required > 0.0 && !alloc.servable[d]
         })
         .collect();
-    Ok(Evaluation {
+    Evaluation {
         cut_off,
         served_required,
         shortfall,
@@ -305,8 +376,8 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         arc_price,
         bottlenecks,
         upper_bound,
-        max_violation,
-    })
+        max_violation: alloc.max_violation,
+    }
 }
 
 #[cfg(test)]
