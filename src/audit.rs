@@ -12,6 +12,7 @@ use std::time::{Duration, Instant};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
+use crate::cli::Engine;
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::{self, Outage, Scenario};
@@ -139,8 +140,34 @@ where
 
 /// Evaluates every scenario of `scenarios`, solving each distinct outage once.
 pub fn run(net: &Network, scenarios: Vec<Scenario>, opts: RunOptions) -> Result<Audit> {
+    run_with(net, scenarios, opts, Engine::Edge)
+}
+
+/// [`run`] with a choice of engine. With [`Engine::Walks`] the baseline is solved first and
+/// every other outage starts from its optimal walks ([`solve::colgen::evaluate_walks`]);
+/// each outage is still a pure function of (network, outage, baseline), so the result does
+/// not depend on the thread count. Memory holds one basis (the baseline's) whatever the
+/// number of scenarios.
+pub fn run_with(
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: RunOptions,
+    engine: Engine,
+) -> Result<Audit> {
     let (outages, outage_of) = scenario::dedup(net, &scenarios);
-    let evaluations = par_map(&outages, opts, "solving", |o| solve::evaluate(net, o))?;
+    let evaluations = match engine {
+        Engine::Edge => par_map(&outages, opts, "solving", |o| solve::evaluate(net, o))?,
+        Engine::Walks => {
+            let base = solve::colgen::evaluate_walks(net, &Outage::default(), None)?;
+            par_map(&outages, opts, "solving", |o| {
+                if o.sites.is_empty() && o.links.is_empty() {
+                    Ok(base.evaluation.clone())
+                } else {
+                    Ok(solve::colgen::evaluate_walks(net, o, Some(&base.basis))?.evaluation)
+                }
+            })?
+        }
+    };
     Ok(Audit {
         scenarios,
         outage_of,

@@ -109,10 +109,23 @@ pub fn audit_network(
     scenarios: Vec<Scenario>,
     opts: audit::RunOptions,
 ) -> Result<(audit::Audit, solve::Evaluation)> {
-    let audit = audit::run(net, scenarios, opts)?;
-    let baseline = match audit.baseline() {
-        Some(b) => b.clone(),
-        None => solve::evaluate(net, &scenario::Outage::default())?,
+    audit_network_with(net, scenarios, opts, cli::Engine::Edge)
+}
+
+/// [`audit_network`] with a choice of engine (the baseline comes from the same engine).
+pub fn audit_network_with(
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: audit::RunOptions,
+    engine: cli::Engine,
+) -> Result<(audit::Audit, solve::Evaluation)> {
+    let audit = audit::run_with(net, scenarios, opts, engine)?;
+    let baseline = match (audit.baseline(), engine) {
+        (Some(b), _) => b.clone(),
+        (None, cli::Engine::Edge) => solve::evaluate(net, &scenario::Outage::default())?,
+        (None, cli::Engine::Walks) => {
+            solve::colgen::evaluate_walks(net, &scenario::Outage::default(), None)?.evaluation
+        }
     };
     Ok((audit, baseline))
 }
@@ -128,7 +141,7 @@ fn run_audit(args: &AuditArgs) -> Result<Outcome> {
     let net = load(&args.scenarios.network)?;
     let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios)?;
-    let (audit, baseline) = audit_network(&net, scenarios, opts)?;
+    let (audit, baseline) = audit_network_with(&net, scenarios, opts, args.engine)?;
     print!(
         "{}",
         report::text::audit_report(&net, &audit, &baseline, args.top)
