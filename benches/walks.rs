@@ -7,7 +7,12 @@
 //! number of scenarios where the two engines disagree (compared on every scenario the
 //! edge LP was run on). Run with `cargo bench --bench walks` (a few minutes).
 //!
-//! Options (after `--`): `quick` runs a smaller sample of the 50-site network.
+//! Two more sets: C = `fixtures/grid-50.json` (every single failure) and D = network B with
+//! its processing halved, so every scenario is processing-bound and goes to column
+//! generation.
+//!
+//! Options (after `--`): `quick` runs smaller samples; `A`, `B`, `C`, `D` select networks
+//! (default all).
 
 use std::time::Instant;
 
@@ -205,7 +210,7 @@ fn doubles(net: &Network, every: usize) -> Vec<Vec<Element>> {
     let mut k = 0usize;
     for i in 0..pool.len() {
         for j in i + 1..pool.len() {
-            if k % every == 0 {
+            if k.is_multiple_of(every) {
                 out.push(vec![pool[i], pool[j]]);
             }
             k += 1;
@@ -215,7 +220,56 @@ fn doubles(net: &Network, every: usize) -> Vec<Vec<Element>> {
 }
 
 fn main() {
-    let quick = std::env::args().any(|a| a == "quick");
+    let args: Vec<String> = std::env::args().collect();
+    let quick = args.iter().any(|a| a == "quick");
+    let chosen: Vec<&str> = ["A", "B", "C", "D"]
+        .into_iter()
+        .filter(|n| args.iter().any(|a| a == n))
+        .collect();
+    let want = |n: &str| chosen.is_empty() || chosen.contains(&n);
+    if want("A") {
+        network_a();
+    }
+    if want("B") {
+        network_b(quick);
+    }
+    if want("C") {
+        let text =
+            std::fs::read_to_string("fixtures/grid-50.json").expect("run from the project root");
+        let grid = Network::from_json(&text).expect("valid fixture");
+        println!("network C: fixtures/grid-50.json, 50 sites, 88 links, 660 demands");
+        let every = if quick { 20 } else { 6 };
+        bench(
+            &grid,
+            &[Run {
+                label: "C singles".into(),
+                scenarios: singles(&grid),
+                edge_every: every,
+            }],
+        );
+    }
+    if want("D") {
+        let tight = network(
+            50,
+            50,
+            88,
+            660,
+            &[(3, 80.0), (14, 60.0), (27, 75.0), (38, 55.0), (45, 45.0)],
+        );
+        println!("network D: network B with processing halved (processing-bound)");
+        let every = if quick { 20 } else { 6 };
+        bench(
+            &tight,
+            &[Run {
+                label: "D singles".into(),
+                scenarios: singles(&tight),
+                edge_every: every,
+            }],
+        );
+    }
+}
+
+fn network_a() {
     let small = network(12, 12, 18, 66, &[(2, 30.0), (6, 25.0), (9, 20.0)]);
     println!("network A: 12 sites, 18 links, 66 demands, 3 processing sites");
     bench(
@@ -233,6 +287,9 @@ fn main() {
             },
         ],
     );
+}
+
+fn network_b(quick: bool) {
     let big = network(
         50,
         50,

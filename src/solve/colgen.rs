@@ -776,3 +776,52 @@ fn fallback(net: &Network, outage: &Outage, mut stats: Stats) -> Result<Walked> 
         stats,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Processing-bound single demand (hand-computed, common practice, no source): site a
+    /// processes 3 of the 8 required, so served = 3 and the unique optimal price of a's
+    /// processing is 1 (one more unit serves one more unit); the link is slack (price 0).
+    /// The same case as `shadow_price_of_binding_processing` for the edge LP.
+    #[test]
+    fn unique_processing_price() {
+        let n = Network::from_json(
+            r#"{"sites":[{"id":"a","processing":3},{"id":"b"}],
+            "links":[{"id":"ab","from":"a","to":"b","capacity":100}],
+            "demands":[{"from":"a","to":"b","volume":10,"required":8}]}"#,
+        )
+        .unwrap();
+        let w = evaluate_walks(&n, &Outage::default(), None).unwrap();
+        let e = &w.evaluation;
+        assert!(
+            (e.served_required - 3.0).abs() < 1e-6,
+            "{}",
+            e.served_required
+        );
+        assert!((e.throughput - 3.0).abs() < 1e-6);
+        assert!(
+            (e.site_price[0].unwrap() - 1.0).abs() < 1e-6,
+            "{:?}",
+            e.site_price
+        );
+        assert!(
+            e.arc_price.iter().all(|p| p.abs() < 1e-6),
+            "{:?}",
+            e.arc_price
+        );
+        assert_eq!(e.bottlenecks[0].resource, super::super::Resource::Site(0));
+        // Edge LP (the product's other formulation) gives the same price.
+        let edge = super::super::evaluate(&n, &Outage::default()).unwrap();
+        assert!((edge.site_price[0].unwrap() - e.site_price[0].unwrap()).abs() < 1e-6);
+    }
+
+    /// Walk construction: arcs crossed twice (before and after processing) get
+    /// multiplicity 2 (hand-checked).
+    #[test]
+    fn legs_merge_into_multiplicities() {
+        let w = Walk::from_legs(0, 3, [4, 1, 4, 2]);
+        assert_eq!(w.arcs, vec![(1, 1), (2, 1), (4, 2)]);
+    }
+}
