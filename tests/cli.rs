@@ -1152,12 +1152,12 @@ fn budgeted_plans_by_hand() {
 // --engine walks
 // ---------------------------------------------------------------------------------------
 
-/// Source: hand computation in PATH_NET's table (common practice, no source), now through
-/// the walk engine.
+/// Source: hand computation in PATH_NET's table (common practice, no source), through the
+/// edge engine (`hand_computed_path_network_depth_1` runs the default walk engine).
 #[test]
-fn walk_engine_hand_computed_path_network_depth_1() {
-    let f = TempPath::with_text("path-walks", PATH_NET);
-    let (_, doc) = audit_json(f.path(), &["--depth", "1", "--engine", "walks"]);
+fn edge_engine_hand_computed_path_network_depth_1() {
+    let f = TempPath::with_text("path-edge", PATH_NET);
+    let (_, doc) = audit_json(f.path(), &["--depth", "1", "--engine", "edge"]);
     assert_eq!(scenarios(&doc).len(), PATH_EXPECTED.len());
     for row in PATH_EXPECTED {
         check_row(scenario(&doc, row.0), row);
