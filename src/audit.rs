@@ -15,11 +15,12 @@ use std::time::{Duration, Instant};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
+use crate::cli::Engine;
 use crate::error::{EXIT_INTERRUPTED, Error, Result};
 use crate::model::Network;
 use crate::report::journal::Journal;
 use crate::scenario::{self, Outage, Scenario};
-use crate::solve::{self, Evaluation};
+use crate::solve::{self, Evaluation, colgen};
 
 /// How to run a batch of scenarios.
 #[derive(Debug, Clone, Copy, Default)]
@@ -170,12 +171,20 @@ pub struct Batch {
     outage_of: Vec<usize>,
     outages: Vec<Outage>,
     done: Vec<Option<Evaluation>>,
+    engine: Engine,
+    /// With [`Engine::Walks`]: the baseline's optimum, the start of every other outage.
+    basis: Option<colgen::Basis>,
 }
 
 impl Batch {
     /// Deduplicates the outages of `scenarios`; nothing is solved yet. O(scenarios ·
     /// elements per scenario).
-    pub fn new(net: &Network, scenarios: Vec<Scenario>) -> Batch {
+    ///
+    /// With [`Engine::Walks`] the baseline is solved first (once) and every other outage
+    /// starts from its optimal walks ([`colgen::evaluate_walks`]); each outage is still a
+    /// pure function of (network, outage, baseline), so results do not depend on the thread
+    /// count, and memory holds one basis whatever the number of scenarios.
+    pub fn new(net: &Network, scenarios: Vec<Scenario>, engine: Engine) -> Batch {
         let (outages, outage_of) = scenario::dedup(net, &scenarios);
         let done = vec![None; outages.len()];
         Batch {
@@ -183,6 +192,37 @@ impl Batch {
             outage_of,
             outages,
             done,
+            engine,
+            basis: None,
+        }
+    }
+
+    /// Solves the baseline for the walk engine's basis, once; when the baseline is one of
+    /// the outages still to solve, its evaluation is kept (and journaled).
+    fn prepare(&mut self, net: &Network, journal: Option<&Journal>) -> Result<()> {
+        if self.engine != Engine::Walks || self.basis.is_some() {
+            return Ok(());
+        }
+        let base = colgen::evaluate_walks(net, &Outage::default(), None)?;
+        if let Some(k) = self.outages.iter().position(Outage::is_empty)
+            && self.done[k].is_none()
+        {
+            if let Some(j) = journal {
+                j.record(k, &base.evaluation);
+            }
+            self.done[k] = Some(base.evaluation);
+        }
+        self.basis = Some(base.basis);
+        Ok(())
+    }
+
+    /// Evaluates outage `k` with the batch's engine.
+    fn solve_one(&self, net: &Network, k: usize) -> Result<Evaluation> {
+        match (self.engine, &self.basis) {
+            (Engine::Walks, Some(basis)) => {
+                Ok(colgen::evaluate_walks(net, &self.outages[k], Some(basis))?.evaluation)
+            }
+            _ => solve::evaluate(net, &self.outages[k]),
         }
     }
 
@@ -213,11 +253,12 @@ impl Batch {
         net: &Network,
         journal: Option<&Journal>,
     ) -> Result<Option<Duration>> {
-        let Some(k) = self.done.iter().position(Option::is_none) else {
-            return Ok(None);
-        };
         let start = Instant::now();
-        let e = solve::evaluate(net, &self.outages[k])?;
+        self.prepare(net, journal)?;
+        let Some(k) = self.done.iter().position(Option::is_none) else {
+            return Ok(Some(start.elapsed()));
+        };
+        let e = self.solve_one(net, k)?;
         let took = start.elapsed();
         if let Some(j) = journal {
             j.record(k, &e);
@@ -230,16 +271,17 @@ impl Batch {
     /// finishes, and returns the complete audit. On an interrupt the finished solves stay
     /// recorded and [`Error::Interrupted`] is returned.
     pub fn finish(
-        self,
+        mut self,
         net: &Network,
         opts: RunOptions,
         journal: Option<&Journal>,
     ) -> Result<Audit> {
+        self.prepare(net, journal)?;
         let todo: Vec<usize> = (0..self.outages.len())
             .filter(|&k| self.done[k].is_none())
             .collect();
         let solved = par_map(&todo, opts, "solving", |&k| {
-            let e = solve::evaluate(net, &self.outages[k])?;
+            let e = self.solve_one(net, k)?;
             if let Some(j) = journal {
                 j.record(k, &e);
             }
@@ -263,5 +305,15 @@ impl Batch {
 
 /// Evaluates every scenario of `scenarios`, solving each distinct outage once.
 pub fn run(net: &Network, scenarios: Vec<Scenario>, opts: RunOptions) -> Result<Audit> {
-    Batch::new(net, scenarios).finish(net, opts, None)
+    Batch::new(net, scenarios, Engine::Edge).finish(net, opts, None)
+}
+
+/// [`run`] with a choice of engine ([`Batch::new`]).
+pub fn run_with(
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: RunOptions,
+    engine: Engine,
+) -> Result<Audit> {
+    Batch::new(net, scenarios, engine).finish(net, opts, None)
 }

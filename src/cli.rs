@@ -85,6 +85,20 @@ pub struct AuditArgs {
     /// For each scenario with a shortfall, the cheapest processing expansion that closes it.
     #[arg(long)]
     pub close: bool,
+    /// Solver engine: `walks` (column generation over processing walks with exact repair
+    /// shortcuts) or `edge` (the two-layer LP per outage, the cross-check); same optimum.
+    #[arg(long, value_enum, default_value_t = Engine::Walks)]
+    pub engine: Engine,
+}
+
+/// How each outage is solved; both give the same optimum.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, ValueEnum)]
+pub enum Engine {
+    /// The edge-based two-layer LP, solved cold per outage.
+    Edge,
+    /// Column generation over processing walks, each outage started from the baseline's.
+    #[default]
+    Walks,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]

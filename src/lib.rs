@@ -201,7 +201,17 @@ pub fn audit_network(
     scenarios: Vec<Scenario>,
     opts: audit::RunOptions,
 ) -> Result<(audit::Audit, solve::Evaluation)> {
-    let audit = audit::run(net, scenarios, opts)?;
+    audit_network_with(net, scenarios, opts, cli::Engine::Edge)
+}
+
+/// [`audit_network`] with a choice of engine.
+pub fn audit_network_with(
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: audit::RunOptions,
+    engine: cli::Engine,
+) -> Result<(audit::Audit, solve::Evaluation)> {
+    let audit = audit::run_with(net, scenarios, opts, engine)?;
     let baseline = with_baseline(net, &audit)?;
     Ok((audit, baseline))
 }
@@ -256,7 +266,7 @@ fn audit_fingerprint(args: &AuditArgs, network_text: &str) -> String {
             "depth={};kinds={}",
             args.scenarios.depth, args.scenarios.kinds
         ),
-    };
+    } + &format!(";engine={:?}", args.engine);
     journal::fingerprint(&[
         b"redoubt audit",
         env!("CARGO_PKG_VERSION").as_bytes(),
@@ -277,7 +287,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     let (net, text) = read_network(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err)?;
-    let mut batch = audit::Batch::new(&net, scenarios);
+    let mut batch = audit::Batch::new(&net, scenarios, args.engine);
     let journal = match &journal_path {
         Some(jp) => {
             let fp = audit_fingerprint(args, &text);
@@ -379,7 +389,7 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
     let net = load(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, None)?;
     let opts = run_options(&args.scenarios, err)?;
-    let batch = audit::Batch::new(&net, scenarios);
+    let batch = audit::Batch::new(&net, scenarios, cli::Engine::Edge);
     let audit = solve_batch(&net, batch, &args.scenarios, opts, None, err)?;
     let plan = expand::plan(&net, &audit, goal, opts)?;
     let default_costs = expand::Candidates::of(&net).default_costs;

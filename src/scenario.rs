@@ -228,6 +228,11 @@ pub struct Outage {
 }
 
 impl Outage {
+    /// Nothing fails (the baseline).
+    pub fn is_empty(&self) -> bool {
+        self.sites.is_empty() && self.links.is_empty()
+    }
+
     /// Per-site `true` when the site survives.
     pub fn site_alive(&self, net: &Network) -> Vec<bool> {
         let mut alive = vec![true; net.sites.len()];

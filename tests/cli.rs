@@ -1811,3 +1811,62 @@ fn no_costs_plan_says_what_it_minimises_and_concentrates() {
     let add = doc["plan"]["add"].as_object().unwrap();
     assert_eq!(add.len(), 1, "{doc}");
 }
+
+// ---------------------------------------------------------------------------------------
+// --engine walks
+// ---------------------------------------------------------------------------------------
+
+/// Source: hand computation in PATH_NET's table (common practice, no source), through the
+/// edge engine (`hand_computed_path_network_depth_1` runs the default walk engine).
+#[test]
+fn edge_engine_hand_computed_path_network_depth_1() {
+    let f = TempPath::with_text("path-edge", PATH_NET);
+    let (_, doc) = audit_json(f.path(), &["--depth", "1", "--engine", "edge"]);
+    assert_eq!(scenarios(&doc).len(), PATH_EXPECTED.len());
+    for row in PATH_EXPECTED {
+        check_row(scenario(&doc, row.0), row);
+    }
+}
+
+/// Source: the product's edge LP (clarabel), an independent formulation of the same
+/// optimum: on the demo at depth 2 every scenario's served_required, shortfall, stranded,
+/// throughput and upper bound agree; and the walk engine's JSON is byte-identical with
+/// --threads 1 and 2 (brief: results do not depend on the thread count).
+#[test]
+fn walk_engine_agrees_with_edge_on_demo_depth_2() {
+    let run = |engine: &str, threads: &str| {
+        audit_json(
+            s(&demo()),
+            &["--depth", "2", "--engine", engine, "--threads", threads],
+        )
+        .1
+    };
+    let edge = run("edge", "2");
+    let walks = run("walks", "1");
+    let walks2 = run("walks", "2");
+    assert_eq!(walks, walks2, "walk engine: --threads 1 and 2 differ");
+    let (e, w) = (scenarios(&edge), scenarios(&walks));
+    assert_eq!(e.len(), w.len());
+    let mut short = 0;
+    for a in e {
+        let names = failed_of(a);
+        let names: Vec<&str> = names.iter().map(String::as_str).collect();
+        let b = scenario(&walks, &names);
+        for field in [
+            "served_required",
+            "shortfall",
+            "stranded",
+            "throughput",
+            "upper_bound",
+        ] {
+            assert_near(
+                num(b, field),
+                num(a, field),
+                &format!("{:?} {field}", failed_of(a)),
+            );
+        }
+        short += usize::from(num(a, "shortfall") > 1e-6);
+    }
+    // Some scenarios must fall short, or only "everything served" would be compared.
+    assert!(short >= 10, "only {short} scenarios with a shortfall");
+}

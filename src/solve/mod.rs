@@ -17,6 +17,7 @@
 //! shortfall is never understated.
 
 pub mod certify;
+pub mod colgen;
 pub mod flow;
 pub mod lp;
 pub mod surviving;
@@ -25,7 +26,7 @@ pub mod verify;
 use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network, SiteIdx};
 use crate::scenario::Outage;
-use flow::{Cap, FlowIndex};
+use flow::Cap;
 use lp::Backend;
 pub use surviving::{Surviving, Unservable};
 
@@ -288,20 +289,54 @@ fn empty_solution(model: &lp::Lp) -> lp::LpSolution {
     }
 }
 
-/// A verified solve of one flow LP.
+/// One verified LP result, whatever engine produced it: the feasible allocation, the
+/// bounds, and the shadow prices of the real capacities.
+#[derive(Debug, Clone)]
 pub struct Verified {
-    pub index: FlowIndex,
-    /// The solution whose allocation was kept (shadow prices from the attempt with the
-    /// best upper bound).
-    pub solution: lp::LpSolution,
-    /// The repaired allocation of that solution.
+    /// The repaired, feasible allocation (its `served` is the proven lower bound).
     pub allocation: verify::Repaired,
-    /// The LP's own objective value of that allocation (Σ f_d).
+    /// The engine's own objective value (Σ f_d of its allocation).
     pub lp_value: f64,
     pub verification: Verification,
-    /// Per arc and site: the shadow prices used for the upper bound.
+    /// Per arc: shadow price of its real capacity (0 when the model had no row for it, or
+    /// when the presolve lowered the row below the real capacity: it does not bind then).
     pub arc_price: Vec<f64>,
+    /// Per site: the same for processing.
     pub site_price: Vec<f64>,
+    /// Per arc: the model has a capacity row for it (some flow could use it).
+    pub arc_has_row: Vec<bool>,
+    /// Per site: the model has a processing row for it.
+    pub site_has_row: Vec<bool>,
+}
+
+/// Whether `proven`: residual within [`RESIDUAL_TOL`] and the bounds within [`GAP_TOL`]
+/// of `at_stake` of each other (in either direction: crossing bounds are a defect).
+pub fn meets(residual: f64, lower: f64, upper: f64, at_stake: f64) -> bool {
+    let gap = upper - lower;
+    let tol = GAP_TOL * at_stake.max(f64::MIN_POSITIVE);
+    residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol
+}
+
+/// Σ of the demand caps of the demands that some walk through a processing site can
+/// serve on `view`: what is at stake in the LP. O(demands + reachability).
+pub fn at_stake(net: &Network, view: &Surviving, bound: &[f64]) -> f64 {
+    view.unservable(net, bound)
+        .iter()
+        .enumerate()
+        .filter(|(d, r)| r.is_none() && view.demand_alive(net, *d) && bound[*d] > 0.0)
+        .map(|(d, _)| bound[d])
+        .sum()
+}
+
+/// The demand caps of `cap`, per demand.
+pub fn caps_of(net: &Network, cap: Cap) -> Vec<f64> {
+    net.demands
+        .iter()
+        .map(|d| match cap {
+            Cap::Required => d.required,
+            Cap::Volume => d.volume,
+        })
+        .collect()
 }
 
 /// Builds the flow LP of `view` with demand caps `cap`, solves it with each backend of
@@ -313,14 +348,7 @@ pub struct Verified {
 pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verified> {
     let mut model = lp::Lp::new(true);
     let index = flow::build_on(&mut model, net, view, cap, 1.0, None);
-    let bound: Vec<f64> = net
-        .demands
-        .iter()
-        .map(|d| match cap {
-            Cap::Required => d.required,
-            Cap::Volume => d.volume,
-        })
-        .collect();
+    let bound = caps_of(net, cap);
     let at_stake: f64 = index
         .demand_var
         .iter()
@@ -341,8 +369,6 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
             &bound,
         );
         return Ok(Verified {
-            index,
-            solution,
             allocation,
             lp_value: 0.0,
             verification: Verification {
@@ -355,6 +381,8 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
             },
             arc_price: vec![0.0; net.arcs.len()],
             site_price: vec![0.0; net.sites.len()],
+            arc_has_row: vec![false; net.arcs.len()],
+            site_has_row: vec![false; net.sites.len()],
         });
     }
     let scale = at_stake.max(f64::MIN_POSITIVE);
@@ -410,7 +438,6 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
             .is_none_or(|b| allocation.served > b.allocation.served);
         if better {
             best = Some(Verified {
-                index: index.clone(),
                 lp_value,
                 verification: Verification {
                     proven: false,
@@ -420,26 +447,47 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
                     attempts: attempt + 1,
                     backend: backend.name().into(),
                 },
-                solution,
                 allocation,
                 arc_price: Vec::new(),
                 site_price: Vec::new(),
+                arc_has_row: index.arc_row.iter().map(Option::is_some).collect(),
+                site_has_row: index.site_row.iter().map(Option::is_some).collect(),
             });
         }
         let b = best.as_mut().expect("set above");
         b.verification.attempts = attempt + 1;
         b.verification.upper = best_upper;
-        let gap = best_upper - b.verification.lower;
-        b.verification.proven = b.verification.residual <= RESIDUAL_TOL
-            && gap <= GAP_TOL * scale
-            && gap >= -GAP_TOL * scale;
+        b.verification.proven = meets(
+            b.verification.residual,
+            b.verification.lower,
+            best_upper,
+            scale,
+        );
         if b.verification.proven {
             break;
         }
     }
     let mut out = best.ok_or_else(|| Error::Solver(errors.join("; ")))?;
-    out.arc_price = best_prices.0;
-    out.site_price = best_prices.1;
+    // The presolve lowers rows that cannot bind; a price on such a row is not a price of
+    // the real capacity.
+    out.arc_price = (0..net.arcs.len())
+        .map(|a| {
+            if index.arc_cap[a] < net.arcs[a].capacity {
+                0.0
+            } else {
+                best_prices.0[a]
+            }
+        })
+        .collect();
+    out.site_price = (0..net.sites.len())
+        .map(|v| {
+            if index.site_cap[v] < net.sites[v].processing {
+                0.0
+            } else {
+                best_prices.1[v]
+            }
+        })
+        .collect();
     Ok(out)
 }
 
@@ -464,17 +512,45 @@ pub fn baseline_cut_off(net: &Network) -> Vec<(usize, Unservable)> {
 /// Cost: one or two verified LP solves of the size given in [`flow::build`].
 pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     let view = Surviving::new(net, outage, None);
+    let required = solve_verified(net, &view, Cap::Required)?;
+    let volume = if needs_volume_lp(net, outage) {
+        Some(solve_verified(net, &view, Cap::Volume)?)
+    } else {
+        None
+    };
+    Ok(finish(net, &view, required, volume))
+}
+
+/// Whether some surviving demand offers more than its required part, so that throughput
+/// needs its own LP (with volume caps). O(demands).
+pub fn needs_volume_lp(net: &Network, outage: &Outage) -> bool {
+    let site_alive = outage.site_alive(net);
+    net.demands
+        .iter()
+        .any(|d| site_alive[d.from] && site_alive[d.to] && d.volume > d.required)
+}
+
+/// Turns verified results (served_required LP, and the throughput LP when one was
+/// solved) into the reported [`Evaluation`]: stranded totals, the plainest value inside
+/// each proven interval (or the proven lower bound when unproven), per-demand flows,
+/// bottlenecks, prices and cut-off demands. Any engine's results go through here.
+///
+/// Cost: O(demands + arcs + sites) plus one reachability pass per source.
+pub fn finish(
+    net: &Network,
+    view: &Surviving,
+    solved: Verified,
+    volume: Option<Verified>,
+) -> Evaluation {
     let mut stranded = 0.0;
     let mut stranded_volume = 0.0;
     let mut stranded_demands = Vec::new();
     let mut surviving_required = 0.0;
     let mut surviving_volume = 0.0;
-    let mut needs_volume_lp = false;
     for (d, dem) in net.demands.iter().enumerate() {
         if view.demand_alive(net, d) {
             surviving_required += dem.required;
             surviving_volume += dem.volume;
-            needs_volume_lp |= dem.volume > dem.required;
         } else {
             stranded += dem.required;
             stranded_volume += dem.volume;
@@ -482,7 +558,6 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         }
     }
 
-    let solved = solve_verified(net, &view, Cap::Required)?;
     let v = &solved.verification;
     let scale = surviving_required;
     let served_required = if v.proven {
@@ -513,38 +588,20 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         })
         .collect();
 
-    let index = &solved.index;
     let arc_load = alloc.arc_load.clone();
     let site_load = alloc.site_load.clone();
-    // The presolve lowers rows that cannot bind; a price on such a row is not a price of
-    // the real capacity.
-    let arc_price: Vec<f64> = (0..net.arcs.len())
-        .map(|a| {
-            if index.arc_cap[a] < net.arcs[a].capacity {
-                0.0
-            } else {
-                snap(solved.arc_price[a], 0.0, 1.0)
-            }
-        })
-        .collect();
-    let site_price: Vec<Option<f64>> = index
-        .site_row
+    let arc_price: Vec<f64> = solved
+        .arc_price
         .iter()
-        .enumerate()
-        .map(|(v, r)| {
-            r.map(|_| {
-                if index.site_cap[v] < net.sites[v].processing {
-                    0.0
-                } else {
-                    snap(solved.site_price[v], 0.0, 1.0)
-                }
-            })
-        })
+        .map(|&p| snap(p.max(0.0), 0.0, 1.0))
+        .collect();
+    let site_price: Vec<Option<f64>> = (0..net.sites.len())
+        .map(|v| solved.site_has_row[v].then(|| snap(solved.site_price[v].max(0.0), 0.0, 1.0)))
         .collect();
 
     let mut bottlenecks = Vec::new();
     for (a, arc) in net.arcs.iter().enumerate() {
-        if index.arc_row[a].is_some() && arc_load[a] >= arc.capacity * SATURATED {
+        if solved.arc_has_row[a] && arc_load[a] >= arc.capacity * SATURATED {
             bottlenecks.push(Bottleneck {
                 resource: Resource::Arc(a),
                 price: arc_price[a],
@@ -553,7 +610,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         }
     }
     for (v, site) in net.sites.iter().enumerate() {
-        if index.site_row[v].is_some() && site_load[v] >= site.processing * SATURATED {
+        if solved.site_has_row[v] && site_load[v] >= site.processing * SATURATED {
             bottlenecks.push(Bottleneck {
                 resource: Resource::Site(v),
                 price: site_price[v].unwrap_or(0.0),
@@ -575,8 +632,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     };
     verification.upper = upper_bound;
 
-    let (throughput, throughput_verification) = if needs_volume_lp {
-        let t = solve_verified(net, &view, Cap::Volume)?;
+    let (throughput, throughput_verification) = if let Some(t) = volume {
         let tv = &t.verification;
         let value = if tv.proven {
             simplest_in(
@@ -599,7 +655,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         .enumerate()
         .filter_map(|(d, r)| r.map(|r| (d, r)))
         .collect();
-    Ok(Evaluation {
+    Evaluation {
         cut_off,
         served_required,
         shortfall,
@@ -619,7 +675,7 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
         max_violation: verification.residual,
         verification,
         throughput_verification,
-    })
+    }
 }
 
 #[cfg(test)]

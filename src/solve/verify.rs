@@ -84,13 +84,24 @@ pub struct Repaired {
     pub walks: usize,
 }
 
-/// One walk of the decomposition: its block, destination, resources and amount.
-struct Walk {
-    block: usize,
-    dest: usize,
-    arcs: Vec<usize>,
-    site: usize,
-    amount: f64,
+/// Where a walk delivers its flow.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Sink {
+    /// One demand (walk formulation).
+    Demand(usize),
+    /// The demands of one block (source) with one destination, shared in proportion to
+    /// the LP's flows (edge formulation, aggregated by source).
+    Group { block: usize, dest: usize },
+}
+
+/// One walk of an allocation: the arcs it crosses (an arc crossed twice is listed twice),
+/// the site where it is processed, where it delivers, and how much it carries.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Walk {
+    pub sink: Sink,
+    pub arcs: Vec<usize>,
+    pub site: usize,
+    pub amount: f64,
 }
 
 #[derive(Clone, Copy)]
@@ -176,8 +187,7 @@ pub fn repair(
                 need[t] -= amount;
                 supply -= amount;
                 walks.push(Walk {
-                    block: b,
-                    dest: t,
+                    sink: Sink::Group { block: b, dest: t },
                     arcs,
                     site,
                     amount,
@@ -233,52 +243,12 @@ pub fn repair(
         }
     }
 
-    // Scale each walk by the worst overload among its resources.
-    let mut arc_load = vec![0.0; net.arcs.len()];
-    let mut site_load = vec![0.0; n];
-    for w in &walks {
-        for &a in &w.arcs {
-            arc_load[a] += w.amount;
-        }
-        site_load[w.site] += w.amount;
-    }
-    let factor = |load: f64, cap: f64| {
-        if load <= cap {
-            1.0
-        } else if cap > 0.0 {
-            // One ulp below the ratio, so that the scaled sum cannot round above cap.
-            (cap / load) * (1.0 - 4.0 * f64::EPSILON)
-        } else {
-            0.0
-        }
-    };
-    let arc_factor: Vec<f64> = (0..net.arcs.len())
-        .map(|a| factor(arc_load[a], arc_capacity[a]))
-        .collect();
-    let site_factor: Vec<f64> = (0..n)
-        .map(|v| factor(site_load[v], site_capacity[v]))
-        .collect();
-    let mut arc_load = vec![0.0; net.arcs.len()];
-    let mut site_load = vec![0.0; n];
-    // Per block and destination: delivered flow, shared among its demands below.
+    let scaled = scale_walks(net, &walks, arc_capacity, site_capacity);
     let mut delivered: Vec<Vec<f64>> = vec![vec![0.0; n]; index.blocks.len()];
-    let mut served = 0.0;
-    for w in &walks {
-        let f = w
-            .arcs
-            .iter()
-            .map(|&a| arc_factor[a])
-            .fold(site_factor[w.site], f64::min);
-        let amount = w.amount * f;
-        if amount <= 0.0 {
-            continue;
+    for (w, &amount) in walks.iter().zip(&scaled.amounts) {
+        if let Sink::Group { block, dest } = w.sink {
+            delivered[block][dest] += amount;
         }
-        for &a in &w.arcs {
-            arc_load[a] += amount;
-        }
-        site_load[w.site] += amount;
-        delivered[w.block][w.dest] += amount;
-        served += amount;
     }
     let mut demand_flow = vec![0.0; net.demands.len()];
     for (b, block) in index.blocks.iter().enumerate() {
@@ -296,10 +266,125 @@ pub fn repair(
         }
     }
     Repaired {
-        served,
+        served: scaled.served,
         demand_flow,
-        arc_load,
-        site_load,
+        arc_load: scaled.arc_load,
+        site_load: scaled.site_load,
         walks: walks.len(),
+    }
+}
+
+/// A walk allocation scaled to fit: per walk its amount after scaling, the loads and the
+/// total delivered.
+struct Scaled {
+    amounts: Vec<f64>,
+    arc_load: Vec<f64>,
+    site_load: Vec<f64>,
+    served: f64,
+}
+
+/// Scales every walk by the worst overload (load / capacity, measured against the real
+/// `arc_capacity` and `site_capacity`) among the resources it uses, so that every link
+/// direction and site is within its capacity. O(Σ walk lengths).
+fn scale_walks(
+    net: &Network,
+    walks: &[Walk],
+    arc_capacity: &[f64],
+    site_capacity: &[f64],
+) -> Scaled {
+    let n = net.sites.len();
+    let mut arc_load = vec![0.0; net.arcs.len()];
+    let mut site_load = vec![0.0; n];
+    for w in walks {
+        for &a in &w.arcs {
+            arc_load[a] += w.amount;
+        }
+        site_load[w.site] += w.amount;
+    }
+    let factor = |load: f64, cap: f64| {
+        if load <= cap {
+            1.0
+        } else if cap > 0.0 {
+            // A few ulps below the ratio, so that the scaled sum cannot round above cap.
+            (cap / load) * (1.0 - 4.0 * f64::EPSILON)
+        } else {
+            0.0
+        }
+    };
+    let arc_factor: Vec<f64> = (0..net.arcs.len())
+        .map(|a| factor(arc_load[a], arc_capacity[a]))
+        .collect();
+    let site_factor: Vec<f64> = (0..n)
+        .map(|v| factor(site_load[v], site_capacity[v]))
+        .collect();
+    let mut out = Scaled {
+        amounts: Vec::with_capacity(walks.len()),
+        arc_load: vec![0.0; net.arcs.len()],
+        site_load: vec![0.0; n],
+        served: 0.0,
+    };
+    for w in walks {
+        let f = w
+            .arcs
+            .iter()
+            .map(|&a| arc_factor[a])
+            .fold(site_factor[w.site], f64::min);
+        let amount = (w.amount * f).max(0.0);
+        for &a in &w.arcs {
+            out.arc_load[a] += amount;
+        }
+        out.site_load[w.site] += amount;
+        out.served += amount;
+        out.amounts.push(amount);
+    }
+    out
+}
+
+/// The feasible allocation of a walk formulation's answer: each walk delivers to one
+/// demand; walk amounts are first capped so no demand receives more than `bound[d]`
+/// (scaled in proportion), then scaled to fit the capacities. The delivered total is a
+/// proven lower bound on the optimum. O(Σ walk lengths).
+pub fn repair_walks(
+    net: &Network,
+    walks: &[Walk],
+    arc_capacity: &[f64],
+    site_capacity: &[f64],
+    bound: &[f64],
+) -> Repaired {
+    let mut asked = vec![0.0; net.demands.len()];
+    for w in walks {
+        if let Sink::Demand(d) = w.sink {
+            asked[d] += w.amount.max(0.0);
+        }
+    }
+    let capped: Vec<Walk> = walks
+        .iter()
+        .filter_map(|w| {
+            let Sink::Demand(d) = w.sink else { return None };
+            let amount = w.amount.max(0.0);
+            let amount = if asked[d] > bound[d] && asked[d] > 0.0 {
+                amount * (bound[d] / asked[d]) * (1.0 - 4.0 * f64::EPSILON)
+            } else {
+                amount
+            };
+            Some(Walk {
+                amount,
+                ..w.clone()
+            })
+        })
+        .collect();
+    let scaled = scale_walks(net, &capped, arc_capacity, site_capacity);
+    let mut demand_flow = vec![0.0; net.demands.len()];
+    for (w, &a) in capped.iter().zip(&scaled.amounts) {
+        if let Sink::Demand(d) = w.sink {
+            demand_flow[d] += a;
+        }
+    }
+    Repaired {
+        served: scaled.served,
+        demand_flow,
+        arc_load: scaled.arc_load,
+        site_load: scaled.site_load,
+        walks: capped.len(),
     }
 }
