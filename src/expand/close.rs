@@ -7,7 +7,7 @@ use crate::model::{LinkIdx, Network};
 use crate::scenario::Outage;
 use crate::solve::flow::{self, Cap, FlowIndex};
 use crate::solve::lp::{self, Lp, Sense};
-use crate::solve::{Evaluation, TOL};
+use crate::solve::{self, Evaluation, GAP_TOL, TOL};
 
 /// The cheapest expansion for one scenario.
 #[derive(Debug, Clone, PartialEq)]
@@ -25,6 +25,11 @@ pub struct Closing {
     pub binding_links: Vec<LinkIdx>,
     /// The dual objective of the cost LP (equals `cost` by strong duality).
     pub dual_bound: f64,
+    /// served_required of the scenario re-solved (and verified) with `add` applied.
+    pub served_after: f64,
+    /// `served_after` reaches `best` within [`GAP_TOL`] of the required demand and that
+    /// re-solve was proven optimal: the closing is checked, not just computed.
+    pub verified: bool,
 }
 
 /// Best served_required of `outage` (evaluated as `eval`) with every candidate expanded as
@@ -46,30 +51,39 @@ pub(super) fn best_reachable(
     Ok((best, links))
 }
 
+/// [`best_reachable`] before snapping: the verified evaluation (see
+/// [`crate::solve::evaluate`]) of `net` with every candidate site that survives expanded
+/// to `min(expand_max, required)` (no site can use more than the whole demand), and the
+/// links with a positive shadow price there. Using the verified solve means the best
+/// reachable value is proven by the same independent bounds as every scenario's.
 fn best_reachable_raw(
     net: &Network,
     outage: &Outage,
     cands: &Candidates,
     required: f64,
 ) -> Result<(f64, Vec<LinkIdx>)> {
-    let mut model = Lp::new(true);
-    let add = add_vars(&mut model, net, cands, Some(outage), required, 0.0);
-    let index = flow::build(&mut model, net, outage, Cap::Required, 1.0, Some(&add));
-    if model.num_vars() == 0 {
-        return Ok((0.0, Vec::new()));
-    }
-    let sol = lp::solve(&model)?;
-    let best = index.served(&sol.x).clamp(0.0, required);
-    let mut links: Vec<LinkIdx> = index
-        .arc_row
+    let alive = outage.site_alive(net);
+    let add: Vec<f64> = (0..net.sites.len())
+        .map(|v| match cands.cost[v] {
+            Some(_) if alive[v] => cands.max[v].min(required).max(0.0),
+            _ => 0.0,
+        })
+        .collect();
+    let e = solve::evaluate(&net.with_added_processing(&add), outage)?;
+    let mut links: Vec<LinkIdx> = e
+        .arc_price
         .iter()
         .enumerate()
-        .filter_map(|(a, r)| r.filter(|&r| sol.duals[r] > 1e-6).map(|_| net.arcs[a].link))
+        .filter(|(_, p)| **p > PRICE_BINDS)
+        .map(|(a, _)| net.arcs[a].link)
         .collect();
     links.sort_unstable();
     links.dedup();
-    Ok((best, links))
+    Ok((e.served_required, links))
 }
+
+/// A shadow price above this counts as binding.
+const PRICE_BINDS: f64 = 1e-6;
 
 /// For one scenario with a shortfall, the cheapest expansion (Σ expand_cost · add, add ≤
 /// expand_max) with which served_required reaches the best value any expansion reaches;
@@ -97,6 +111,8 @@ pub fn close(
             not_closable: eval.shortfall,
             binding_links,
             dual_bound: 0.0,
+            served_after: eval.served_required,
+            verified: eval.proven(),
         }));
     }
     let mut model = Lp::new(false);
@@ -105,8 +121,11 @@ pub fn close(
     served_row(&mut model, &index, target(best, required));
     let sol = lp::solve(&model)?;
     let add_units = values(&add, &sol.x, scale);
+    let after = solve::evaluate(&net.with_added_processing(&add_units), outage)?;
     Ok(Some(Closing {
         cost: cands.cost_of(&add_units),
+        verified: after.proven() && after.served_required >= best - GAP_TOL * required,
+        served_after: after.served_required,
         add: add_units,
         best,
         not_closable: (required - best).max(0.0),

@@ -323,6 +323,8 @@ pub fn closing_json(
             "best_served_required": round9(c.best),
             "binding_links": c.binding_links.iter().map(|&l| net.links[l].id.clone()).collect::<Vec<_>>(),
             "dual_bound": round9(c.dual_bound),
+            "served_after": round9(c.served_after),
+            "verified": c.verified,
             "default_costs": default_costs,
         }),
     }

@@ -491,6 +491,28 @@ pub fn closing_report(
     }
     right(&mut t, &[1, 2, 4]);
     let _ = writeln!(out, "{t}");
+    let checked = order
+        .iter()
+        .filter(|&&i| closings[audit.outage_of[i]].as_ref().is_some_and(|c| c.verified))
+        .count();
+    let _ = writeln!(
+        out,
+        "Each closing re-solved with its additions applied: {checked} of {} reach their best \
+         reachable value, proven.",
+        order.len()
+    );
+    for &i in &order {
+        let c = closings[audit.outage_of[i]].as_ref().expect("filtered");
+        if !c.verified {
+            let _ = writeln!(
+                out,
+                "UNVERIFIED closing: {}: with the additions it serves {} of the best reachable {} {u}.",
+                audit.scenarios[i].display_name(),
+                num(c.served_after),
+                num(c.best)
+            );
+        }
+    }
     out
 }
 
