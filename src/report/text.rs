@@ -493,7 +493,11 @@ pub fn closing_report(
     let _ = writeln!(out, "{t}");
     let checked = order
         .iter()
-        .filter(|&&i| closings[audit.outage_of[i]].as_ref().is_some_and(|c| c.verified))
+        .filter(|&&i| {
+            closings[audit.outage_of[i]]
+                .as_ref()
+                .is_some_and(|c| c.verified)
+        })
         .count();
     let _ = writeln!(
         out,

@@ -346,6 +346,17 @@ pub fn caps_of(net: &Network, cap: Cap) -> Vec<f64> {
 /// Cost: one LP solve when the first backend is proven (the common case), plus the
 /// certificate (O(sites · arcs · log sites)) and the repair per attempt.
 pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verified> {
+    solve_verified_with(net, view, cap, &LADDER)
+}
+
+/// [`solve_verified`] with another ladder of backends (tests use it to check that a
+/// backend's wrong answer is caught).
+pub fn solve_verified_with(
+    net: &Network,
+    view: &Surviving,
+    cap: Cap,
+    ladder: &[&dyn Backend],
+) -> Result<Verified> {
     let mut model = lp::Lp::new(true);
     let index = flow::build_on(&mut model, net, view, cap, 1.0, None);
     let bound = caps_of(net, cap);
@@ -391,7 +402,7 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
     let mut best_upper = f64::INFINITY;
     let mut best_prices: (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
     let mut errors = Vec::new();
-    for (attempt, backend) in LADDER.iter().enumerate() {
+    for (attempt, backend) in ladder.iter().enumerate() {
         let solution = match backend.solve(&model, None) {
             Ok(s) => s,
             Err(e) => {
@@ -433,9 +444,13 @@ pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verif
             best_prices = (arc_price, site_price);
         }
         let lp_value = index.served(&solution.x);
-        let better = best
-            .as_ref()
-            .is_none_or(|b| allocation.served > b.allocation.served);
+        // Prefer an allocation that passes the residual check, then the larger lower bound.
+        let feasible = residual <= RESIDUAL_TOL;
+        let better = best.as_ref().is_none_or(|b| {
+            let b_feasible = b.verification.residual <= RESIDUAL_TOL;
+            (feasible && !b_feasible)
+                || (feasible == b_feasible && allocation.served > b.allocation.served)
+        });
         if better {
             best = Some(Verified {
                 lp_value,

@@ -24,11 +24,12 @@ use crate::model::Network;
 const ZERO_FLOW: f64 = 1e-15;
 
 /// The largest violation of any row or variable bound by `x`, each relative to its own
-/// magnitude: for row `i`, `max(|rhs|, Σ|a_ij·x_j|, row_floor[i])`; for a bound of
-/// variable `j`, `max(|bound|, |x_j|, var_floor[j])`. The floors carry what a row or
-/// variable can hold (for the flow model, the demand of its source's block: see
+/// magnitude: for row `i`, `max(|rhs|, Σ|a_ij·x_j|, row_floor[i], max_j |a_ij|·var_floor[j])`;
+/// for a bound of variable `j`, `max(|bound|, |x_j|, var_floor[j])`. The floors carry what
+/// a row or variable can hold (for the flow model, the demand of its source's block: see
 /// [`super::flow::FlowIndex::magnitudes`]), so an error of 1e-15 on a row whose terms
-/// happen to be near 0 is judged against the flow that row could carry. O(nonzeros).
+/// happen to be near 0, or of 1e-9 units on a link of 1e-6 units crossed by a source of
+/// 1e15 units, is judged against the flow that row could carry. O(nonzeros).
 pub fn residual(lp: &Lp, x: &[f64], row_floor: &[f64], var_floor: &[f64]) -> f64 {
     let mut worst: f64 = 0.0;
     for (j, &v) in x.iter().enumerate() {
@@ -47,15 +48,18 @@ pub fn residual(lp: &Lp, x: &[f64], row_floor: &[f64], var_floor: &[f64]) -> f64
     for (i, r) in lp.rows.iter().enumerate() {
         let mut lhs = 0.0;
         let mut terms = 0.0;
+        let mut carried: f64 = 0.0;
         for &(j, a) in &r.coeffs {
             lhs += a * x[j];
             terms += (a * x[j]).abs();
+            carried = carried.max(a.abs() * var_floor[j]);
         }
         let mag = r
             .rhs
             .abs()
             .max(terms)
             .max(row_floor[i])
+            .max(carried)
             .max(f64::MIN_POSITIVE);
         let v = match r.sense {
             Sense::Le => lhs - r.rhs,
