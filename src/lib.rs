@@ -12,6 +12,7 @@ pub mod expand;
 pub mod model;
 pub mod rank;
 pub mod report;
+pub mod routing;
 pub mod scenario;
 pub mod solve;
 
