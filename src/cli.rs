@@ -43,6 +43,21 @@ pub struct ScenarioArgs {
     /// No progress bar.
     #[arg(long, short)]
     pub quiet: bool,
+    /// Routing model: best (any walk: the best re-route), nearest (shortest paths with
+    /// equal-cost split, nearest processing site) or steered (shortest paths, any split
+    /// among processing sites).
+    #[arg(long, value_enum, default_value_t = Routing::Best)]
+    pub routing: Routing,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum Routing {
+    /// Any walk after a failure (a traffic-engineering re-optimisation).
+    Best,
+    /// Shortest paths, per-hop equal split, processing at the nearest candidate sites.
+    Nearest,
+    /// Shortest paths, per-hop equal split, any proportion among candidate sites.
+    Steered,
 }
 
 #[derive(Debug, Args)]

@@ -18,7 +18,7 @@ pub mod solve;
 
 use std::path::Path;
 
-use cli::{AuditArgs, Cli, Command, Objective, PlanArgs, ScenarioArgs};
+use cli::{AuditArgs, Cli, Command, Objective, PlanArgs, Routing, ScenarioArgs};
 use error::{Error, Result};
 use model::Network;
 use scenario::{Element, Kinds, Scenario};
@@ -129,6 +129,12 @@ fn run_audit(args: &AuditArgs) -> Result<Outcome> {
     let net = load(&args.scenarios.network)?;
     let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios)?;
+    if let Some(mode) = routing_mode(args.scenarios.routing) {
+        if args.close && mode == routing::Mode::Nearest {
+            return Err(nearest_refused("audit --close"));
+        }
+        return run_routed_audit(args, &net, scenarios, opts, mode);
+    }
     let (audit, baseline) = audit_network(&net, scenarios, opts)?;
     print!(
         "{}",
@@ -164,7 +170,12 @@ fn run_audit(args: &AuditArgs) -> Result<Outcome> {
         let doc = report::json::audit_json(&net, &audit, &baseline, closing_json.as_deref());
         write_file(path, &report::json::to_string(&doc))?;
     }
-    if let Some(limit) = args.max_shortfall {
+    gate(&net, &audit, args.max_shortfall)
+}
+
+/// The `--max-shortfall` gate over the audit's (routed or best) shortfalls.
+fn gate(net: &Network, audit: &audit::Audit, limit: Option<f64>) -> Result<Outcome> {
+    if let Some(limit) = limit {
         let worst = audit
             .evaluations
             .iter()
@@ -199,6 +210,11 @@ fn run_plan(args: &PlanArgs) -> Result<Outcome> {
     let net = load(&args.scenarios.network)?;
     let scenarios = scenarios_for(&net, &args.scenarios, None)?;
     let opts = run_options(&args.scenarios)?;
+    match routing_mode(args.scenarios.routing) {
+        Some(routing::Mode::Nearest) => return Err(nearest_refused("plan")),
+        Some(mode) => return run_routed_plan(args, &net, scenarios, opts, goal, mode),
+        None => {}
+    }
     let audit = audit::run(&net, scenarios, opts)?;
     let plan = expand::plan(&net, &audit, goal, opts)?;
     let default_costs = expand::Candidates::of(&net).default_costs;
@@ -208,6 +224,105 @@ fn run_plan(args: &PlanArgs) -> Result<Outcome> {
     );
     if let Some(path) = &args.json {
         let doc = report::json::plan_json(&net, &audit, &plan, default_costs);
+        write_file(path, &report::json::to_string(&doc))?;
+    }
+    Ok(Outcome::Ok)
+}
+
+fn routing_mode(r: Routing) -> Option<routing::Mode> {
+    match r {
+        Routing::Best => None,
+        Routing::Nearest => Some(routing::Mode::Nearest),
+        Routing::Steered => Some(routing::Mode::Steered),
+    }
+}
+
+fn nearest_refused(what: &str) -> Error {
+    Error::Usage(format!(
+        "{what} --routing nearest: buying processing changes which sites are nearest, so \
+         purchases are defined for --routing steered (or best) only"
+    ))
+}
+
+/// `audit --routing nearest|steered`: the routed audit beside the best re-route.
+fn run_routed_audit(
+    args: &AuditArgs,
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: audit::RunOptions,
+    mode: routing::Mode,
+) -> Result<Outcome> {
+    let ra = routing::run(net, scenarios, mode, opts, true)?;
+    let audit = &ra.audit;
+    print!("{}", report::routing::routing_report(net, &ra, args.top));
+    print!(
+        "\n{}",
+        report::text::audit_report(net, audit, &ra.baseline.eval, args.top)
+    );
+    print!("{}", report::text::relief_report(net, audit, args.top));
+    let closing_json = if args.close {
+        let cands = expand::Candidates::of(net);
+        let closings = audit::par_map(
+            &(0..audit.outages.len()).collect::<Vec<_>>(),
+            opts,
+            "closing",
+            |&k| {
+                routing::expand::close(
+                    net,
+                    &ra.trees,
+                    &audit.outages[k],
+                    &audit.evaluations[k],
+                    &cands,
+                )
+            },
+        )?;
+        print!(
+            "{}",
+            report::text::closing_report(net, audit, &closings, cands.default_costs, args.top)
+        );
+        Some(
+            audit
+                .outage_of
+                .iter()
+                .map(|&k| {
+                    report::json::closing_json(net, closings[k].as_ref(), cands.default_costs)
+                })
+                .collect::<Vec<_>>(),
+        )
+    } else {
+        None
+    };
+    print!("{}", report::text::caution());
+    if let Some(path) = &args.json {
+        let doc = report::routing::audit_json(net, &ra, closing_json.as_deref());
+        write_file(path, &report::json::to_string(&doc))?;
+    }
+    gate(net, audit, args.max_shortfall)
+}
+
+/// `plan --routing steered`: one purchase for the steered model.
+fn run_routed_plan(
+    args: &PlanArgs,
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: audit::RunOptions,
+    goal: expand::Goal,
+    mode: routing::Mode,
+) -> Result<Outcome> {
+    let ra = routing::run(net, scenarios, mode, opts, false)?;
+    let plan = routing::expand::plan(net, &ra, goal, opts)?;
+    let default_costs = expand::Candidates::of(net).default_costs;
+    print!(
+        "Routing as deployed ({}): processing bought for the steered model.\n",
+        mode.name()
+    );
+    print!(
+        "{}",
+        report::text::plan_report(net, &ra.audit, &plan, default_costs, args.top)
+    );
+    if let Some(path) = &args.json {
+        let mut doc = report::json::plan_json(net, &ra.audit, &plan, default_costs);
+        doc.routing = mode.name();
         write_file(path, &report::json::to_string(&doc))?;
     }
     Ok(Outcome::Ok)

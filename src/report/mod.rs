@@ -2,6 +2,7 @@
 //! [`text`] for the `check` summary and the tables, [`json`] for `--json` files.
 
 pub mod json;
+pub mod routing;
 pub mod text;
 
 /// The caution every report carries.

@@ -513,3 +513,23 @@ pub fn run(
         trees,
     })
 }
+
+/// Relative tolerance (to the surviving required demand) below which a change of offered
+/// arc load counts as no change.
+pub const MOVE_TOL: f64 = 1e-9;
+
+/// Arcs whose offered load under `now` exceeds the baseline's `base`, with the increase,
+/// largest first (ties by arc): where a failure moves traffic. O(arcs log arcs).
+pub fn moved_onto(base: &Offered, now: &Offered, scale: f64) -> Vec<(usize, f64)> {
+    let tol = MOVE_TOL * scale.max(1.0);
+    let mut v: Vec<(usize, f64)> = now
+        .arc_load
+        .iter()
+        .zip(&base.arc_load)
+        .enumerate()
+        .map(|(a, (n, b))| (a, n - b))
+        .filter(|(_, d)| *d > tol)
+        .collect();
+    v.sort_by(|x, y| y.1.total_cmp(&x.1).then(x.0.cmp(&y.0)));
+    v
+}
