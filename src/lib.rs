@@ -312,10 +312,7 @@ fn run_routed_plan(
     let ra = routing::run(net, scenarios, mode, opts, false)?;
     let plan = routing::expand::plan(net, &ra, goal, opts)?;
     let default_costs = expand::Candidates::of(net).default_costs;
-    print!(
-        "Routing as deployed ({}): processing bought for the steered model.\n",
-        mode.name()
-    );
+    print!("{}", report::routing::plan_header(mode));
     print!(
         "{}",
         report::text::plan_report(net, &ra.audit, &plan, default_costs, args.top)

@@ -380,11 +380,11 @@ fn same_distances(n: usize, arcs: &[WArc], alive: &[bool], what: &str) {
     for t in 0..n {
         let ours = Tree::toward(n, arcs, alive, t);
         let theirs = bellman_ford_to(n, arcs, alive, t);
-        for v in 0..n {
-            if theirs[v].is_infinite() {
+        for (v, &d) in theirs.iter().enumerate() {
+            if d.is_infinite() {
                 assert_eq!(ours.dist[v], UNREACHABLE, "{what}: {v} → {t}");
             } else {
-                assert_eq!(ours.dist[v] as f64, theirs[v], "{what}: {v} → {t}");
+                assert_eq!(ours.dist[v] as f64, d, "{what}: {v} → {t}");
             }
         }
     }
@@ -554,6 +554,8 @@ impl RNet {
 }
 
 type RArc = (usize, usize, usize, u64, f64);
+/// A candidate site of a demand: (site, dist(o,v) + dist(v,t), per-arc load per unit).
+type Candidate = (usize, u64, Vec<f64>);
 
 /// Every simple path from `o` to `t` as a list of arc indices (depth-first enumeration).
 fn simple_paths(arcs: &[RArc], o: usize, t: usize, n: usize) -> Vec<Vec<usize>> {
@@ -653,7 +655,7 @@ fn reference(r: &RNet, dead_sites: &[usize], dead_links: &[usize]) -> RefRouted 
             .clone()
     };
     // Per surviving demand: candidates (site, length, per-arc load per unit).
-    let mut routes: Vec<(usize, Vec<(usize, u64, Vec<f64>)>)> = Vec::new();
+    let mut routes: Vec<(usize, Vec<Candidate>)> = Vec::new();
     for (d, &(o, t, _, _)) in r.demands.iter().enumerate() {
         if dead_sites.contains(&o) || dead_sites.contains(&t) {
             continue;

@@ -176,6 +176,16 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
     out
 }
 
+/// The line a `plan --routing steered` report starts with.
+pub fn plan_header(mode: Mode) -> String {
+    format!(
+        "Routing as deployed ({}): {}; processing bought for this model (routes stay the \
+         shortest paths).\n",
+        mode.name(),
+        describe(mode)
+    )
+}
+
 /// The routing fields a scenario's JSON object gains under nearest/steered.
 #[derive(Serialize)]
 pub struct RoutedScenarioJson {

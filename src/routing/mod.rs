@@ -52,6 +52,9 @@ pub const OVERLOAD_TOL: f64 = 1e-9;
 /// Loads below this (absolute) count as no load when deciding an infinite utilisation.
 pub const LOAD_EPS: f64 = 1e-12;
 
+/// Per-unit load on arcs: `(arc index, fraction)` pairs sorted by arc.
+pub type ArcLoad = Vec<(usize, f64)>;
+
 /// One site at which a demand may be processed, with its fixed routes.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Choice {
@@ -60,7 +63,7 @@ pub struct Choice {
     pub length: u64,
     /// Per unit of the demand: load on each arc of both legs (sorted by arc; an arc on both
     /// legs carries the sum).
-    pub arcs: Vec<(usize, f64)>,
+    pub arcs: ArcLoad,
 }
 
 /// The routes of one surviving demand.
@@ -97,7 +100,7 @@ pub fn merge(a: &[(usize, f64)], b: &[(usize, f64)], w: f64) -> Vec<(usize, f64)
 /// must exclude failed sites). Legs are computed once per (origin, destination) pair.
 /// O(demands · candidates · (n + m)) in the worst case, far less with shared legs.
 pub fn routes(net: &Network, trees: &Trees, eligible: &[bool]) -> Vec<Option<DemandRoutes>> {
-    let mut legs: HashMap<(SiteIdx, SiteIdx), Shared<Vec<(usize, f64)>>> = HashMap::new();
+    let mut legs: HashMap<(SiteIdx, SiteIdx), Shared<ArcLoad>> = HashMap::new();
     let mut leg = |o: SiteIdx, t: SiteIdx| {
         Shared::clone(
             legs.entry((o, t))
