@@ -174,3 +174,28 @@ pub fn weak_dual_bound(lp: &Lp, sol: &LpSolution) -> f64 {
     }
     bound
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// max x + y with x, y in [0, 3] and x + y <= 4 (hand-worked: optimum 4). With the
+    /// row price 1 the bound is 4·1 + 3·max(0, 1 − 1)·2 = 4 (tight); with price 0 it is
+    /// 3 + 3 = 6; with price 2 it is 8: every price gives a bound ≥ the optimum.
+    #[test]
+    fn weak_dual_bound_is_valid_for_any_price() {
+        let mut lp = Lp::new(true);
+        let x = lp.add_var(0.0, 3.0, 1.0);
+        let y = lp.add_var(0.0, 3.0, 1.0);
+        lp.add_row(vec![(x, 1.0), (y, 1.0)], Sense::Le, 4.0);
+        for (price, want) in [(1.0, 4.0), (0.0, 6.0), (2.0, 8.0), (-5.0, 6.0)] {
+            let sol = LpSolution {
+                x: vec![2.0, 2.0],
+                duals: vec![price],
+                upper_duals: vec![0.0, 0.0],
+                objective: 4.0,
+            };
+            assert_eq!(weak_dual_bound(&lp, &sol), want, "price {price}");
+        }
+    }
+}

@@ -248,7 +248,8 @@ mod tests {
         let t = Tree::toward(4, &a, &[true; 4], 3);
         assert_eq!(t.dist, vec![2, 1, 5, 0]);
         assert_eq!(t.leg(0, &a), vec![(0, 1.0), (2, 1.0)]);
-        assert!(!t.on_dag[1] && !t.on_dag[3]);
+        // 0→2 is not tight (1 + 5 ≠ 2); 2→3 is node 2's own next hop, so it is on the DAG.
+        assert!(!t.on_dag[1] && t.on_dag[3]);
     }
 
     /// Unreachable destination and zero-length leg give no arcs.
