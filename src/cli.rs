@@ -49,6 +49,22 @@ pub struct ScenarioArgs {
     /// Refuse to start when the estimated time exceeds this many minutes (default 60).
     #[arg(long, value_name = "M", allow_negative_numbers = true)]
     pub max_minutes: Option<f64>,
+
+    /// Routing model: best (any walk: the best re-route), nearest (shortest paths with
+    /// equal-cost split, nearest processing site) or steered (shortest paths, any split
+    /// among processing sites).
+    #[arg(long, value_enum, default_value_t = Routing::Best)]
+    pub routing: Routing,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum Routing {
+    /// Any walk after a failure (a traffic-engineering re-optimisation).
+    Best,
+    /// Shortest paths, per-hop equal split, processing at the nearest candidate sites.
+    Nearest,
+    /// Shortest paths, per-hop equal split, any proportion among candidate sites.
+    Steered,
 }
 
 #[derive(Debug, Args)]

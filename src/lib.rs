@@ -13,6 +13,7 @@ pub mod gate;
 pub mod model;
 pub mod rank;
 pub mod report;
+pub mod routing;
 pub mod scenario;
 pub mod solve;
 
@@ -20,7 +21,7 @@ use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
-use cli::{AuditArgs, Cli, Command, Objective, PlanArgs, ScenarioArgs};
+use cli::{AuditArgs, Cli, Command, Objective, PlanArgs, Routing, ScenarioArgs};
 use error::{Error, Result};
 use gate::{Gate, GateKind};
 use model::Network;
@@ -287,6 +288,12 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     let (net, text) = read_network(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err)?;
+    if let Some(mode) = routing_mode(args.scenarios.routing) {
+        if args.close && mode == routing::Mode::Nearest {
+            return Err(nearest_refused("audit --close"));
+        }
+        return run_routed_audit(args, &net, scenarios, opts, mode, &gates, out);
+    }
     let mut batch = audit::Batch::new(&net, scenarios, args.engine);
     let journal = match &journal_path {
         Some(jp) => {
@@ -389,6 +396,11 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
     let net = load(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, None)?;
     let opts = run_options(&args.scenarios, err)?;
+    match routing_mode(args.scenarios.routing) {
+        Some(routing::Mode::Nearest) => return Err(nearest_refused("plan")),
+        Some(mode) => return run_routed_plan(args, &net, scenarios, opts, goal, mode, out),
+        None => {}
+    }
     let batch = audit::Batch::new(&net, scenarios, cli::Engine::Edge);
     let audit = solve_batch(&net, batch, &args.scenarios, opts, None, err)?;
     let plan = expand::plan(&net, &audit, goal, opts)?;
@@ -401,6 +413,119 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
         out,
         &net,
         &audit,
+        &plan,
+        default_costs,
+        args.top,
+    ))?;
+    Ok(Outcome::Ok)
+}
+
+fn routing_mode(r: Routing) -> Option<routing::Mode> {
+    match r {
+        Routing::Best => None,
+        Routing::Nearest => Some(routing::Mode::Nearest),
+        Routing::Steered => Some(routing::Mode::Steered),
+    }
+}
+
+fn nearest_refused(what: &str) -> Error {
+    Error::Usage(format!(
+        "{what} --routing nearest: buying processing changes which sites are nearest, so \
+         purchases are defined for --routing steered (or best) only"
+    ))
+}
+
+/// `audit --routing nearest|steered`: the routed audit beside the best re-route (no
+/// journal: the routed models are fast).
+fn run_routed_audit(
+    args: &AuditArgs,
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: audit::RunOptions,
+    mode: routing::Mode,
+    gates: &[Gate],
+    out: &mut dyn Write,
+) -> Result<Outcome> {
+    let ra = routing::run(net, scenarios, mode, opts, true)?;
+    let audit = &ra.audit;
+    let cands = expand::Candidates::of(net);
+    let closings = if args.close {
+        Some(audit::par_map(
+            &(0..audit.outages.len()).collect::<Vec<_>>(),
+            opts,
+            "closing",
+            |&k| {
+                routing::expand::close(
+                    net,
+                    &ra.trees,
+                    &audit.outages[k],
+                    &audit.evaluations[k],
+                    &cands,
+                )
+            },
+        )?)
+    } else {
+        None
+    };
+    let verdicts = gate::check(audit, gates, args.gate_tolerance);
+    if let Some(path) = &args.json {
+        let closing_json = closings.as_ref().map(|c| {
+            audit
+                .outage_of
+                .iter()
+                .map(|&k| report::json::closing_json(net, c[k].as_ref(), cands.default_costs))
+                .collect::<Vec<_>>()
+        });
+        let mut doc = report::routing::audit_json(net, &ra, closing_json.as_deref());
+        doc.gates = report::json::gates_json(audit, &verdicts);
+        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+    }
+    stdout_result(
+        out.write_all(report::routing::routing_report(net, &ra, args.top).as_bytes())
+            .and_then(|()| writeln!(out)),
+    )?;
+    stdout_result(report::text::write_audit(
+        out,
+        net,
+        audit,
+        &ra.baseline.eval,
+        closings.as_deref().map(|c| report::text::ClosingPart {
+            closings: c,
+            default_costs: cands.default_costs,
+        }),
+        &verdicts,
+        args.top,
+    ))?;
+    Ok(if verdicts.iter().all(|g| g.passed) {
+        Outcome::Ok
+    } else {
+        Outcome::GateFailed
+    })
+}
+
+/// `plan --routing steered`: one purchase for the steered model.
+fn run_routed_plan(
+    args: &PlanArgs,
+    net: &Network,
+    scenarios: Vec<Scenario>,
+    opts: audit::RunOptions,
+    goal: expand::Goal,
+    mode: routing::Mode,
+    out: &mut dyn Write,
+) -> Result<Outcome> {
+    let ra = routing::run(net, scenarios, mode, opts, false)?;
+    let plan = routing::expand::plan(net, &ra, goal, opts)?;
+    let default_costs = expand::Candidates::of(net).default_costs;
+    if let Some(path) = &args.json {
+        let mut doc = report::json::plan_json(net, &ra.audit, &plan, default_costs);
+        doc.routing = mode.name();
+        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+    }
+    stdout_result(out.write_all(report::routing::plan_header(mode).as_bytes()))?;
+    stdout_result(report::text::write_plan(
+        out,
+        net,
+        &ra.audit,
         &plan,
         default_costs,
         args.top,

@@ -17,6 +17,8 @@ use crate::solve::{Evaluation, Resource};
 pub struct AuditJson {
     pub network: String,
     pub unit: String,
+    /// `best`, `nearest` or `steered` (`--routing`).
+    pub routing: &'static str,
     pub caution: &'static str,
     pub baseline: ScenarioJson,
     pub scenarios: Vec<ScenarioJson>,
@@ -95,6 +97,9 @@ pub struct ScenarioJson {
     /// Issue-3 closing, present when requested (`null` when the scenario has no shortfall).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub closing: Option<serde_json::Value>,
+    /// Under `--routing nearest|steered`: utilisation, overloads, the best re-route.
+    #[serde(flatten)]
+    pub routed: Option<super::routing::RoutedScenarioJson>,
 }
 
 /// The verifier's account of one LP result.
@@ -251,6 +256,7 @@ pub fn scenario_json(
             .filter_map(|(s, p)| p.map(|p| (s.id.clone(), round9(p))))
             .collect(),
         closing: None,
+        routed: None,
     }
 }
 
@@ -279,6 +285,7 @@ pub fn audit_json(
     AuditJson {
         network: net.name.clone(),
         unit: net.unit.clone(),
+        routing: "best",
         caution: CAUTION,
         baseline: scenario_json(net, &[], baseline, baseline, 0),
         scenarios,
@@ -342,6 +349,8 @@ fn additions_map(net: &Network, add: &[f64]) -> BTreeMap<String, f64> {
 pub struct PlanJson {
     pub network: String,
     pub unit: String,
+    /// `best` or `steered` (`--routing`).
+    pub routing: &'static str,
     pub caution: &'static str,
     pub goal: String,
     pub default_costs: bool,
@@ -391,6 +400,7 @@ pub fn plan_json(
     PlanJson {
         network: net.name.clone(),
         unit: net.unit.clone(),
+        routing: "best",
         caution: CAUTION,
         goal: match plan.goal {
             Goal::CloseAll => "close-all".into(),

@@ -7,6 +7,7 @@
 pub mod file;
 pub mod journal;
 pub mod json;
+pub mod routing;
 pub mod text;
 
 /// The caution every report carries.

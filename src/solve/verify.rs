@@ -73,6 +73,45 @@ pub fn residual(lp: &Lp, x: &[f64], row_floor: &[f64], var_floor: &[f64]) -> f64
     worst
 }
 
+/// A proven lower bound for a *packing* LP — `max c·x` over `A x ≤ b`, `0 ≤ x ≤ u`, with
+/// `A ≥ 0`, `b ≥ 0`, `c ≥ 0` (the fixed-route models are of this form): `x` clamped into
+/// its bounds, then each variable scaled by the worst overload `min(1, b_i / (A_i x))`
+/// among the rows it appears in. Every row then holds (its load can only fall), so
+/// `c·x'` is achievable whatever the backend returned. Returns `(c·x', x')`; `None` when
+/// `lp` is not a packing LP. O(nonzeros).
+pub fn packing_lower(lp: &Lp, x: &[f64]) -> Option<(f64, Vec<f64>)> {
+    let packing =
+        lp.rows.iter().all(|r| {
+            r.sense == Sense::Le && r.rhs >= 0.0 && r.coeffs.iter().all(|&(_, a)| a >= 0.0)
+        }) && lp.lower.iter().all(|&l| l == 0.0)
+            && lp.objective.iter().all(|&c| c >= 0.0);
+    if !packing {
+        return None;
+    }
+    let clamped: Vec<f64> = x
+        .iter()
+        .zip(&lp.upper)
+        .map(|(&v, &u)| if v.is_finite() { v.clamp(0.0, u) } else { 0.0 })
+        .collect();
+    let mut factor = vec![1.0f64; clamped.len()];
+    for r in &lp.rows {
+        let load: f64 = r.coeffs.iter().map(|&(j, a)| a * clamped[j]).sum();
+        if load > r.rhs {
+            let f = if load > 0.0 {
+                (r.rhs / load) * (1.0 - 4.0 * f64::EPSILON)
+            } else {
+                0.0
+            };
+            for &(j, _) in &r.coeffs {
+                factor[j] = factor[j].min(f);
+            }
+        }
+    }
+    let scaled: Vec<f64> = clamped.iter().zip(&factor).map(|(v, f)| v * f).collect();
+    let value = scaled.iter().zip(&lp.objective).map(|(v, c)| v * c).sum();
+    Some((value, scaled))
+}
+
 /// A feasible allocation derived from a backend's answer.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Repaired {

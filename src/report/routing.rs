@@ -1,0 +1,268 @@
+//! Output for the deployed routings (`--routing nearest|steered`): the comparison with the
+//! best re-route, utilisation under the offered load, and where failures move traffic.
+
+use std::fmt::Write as _;
+
+use comfy_table::{Cell, CellAlignment, ContentArrangement, Table, presets::UTF8_FULL_CONDENSED};
+use serde::Serialize;
+
+use super::{num, percent, round9};
+use crate::model::Network;
+use crate::routing::{self, Mode, Offered, RoutedAudit};
+use crate::solve::Evaluation;
+
+/// How many items a table cell lists before `(+N more)`.
+const CELL_ITEMS: usize = 2;
+
+/// A utilisation for people: a percentage, or `inf` for load on capacity 0.
+pub fn util_text(u: f64) -> String {
+    if u.is_infinite() {
+        "inf".into()
+    } else {
+        percent(u, 1.0)
+    }
+}
+
+/// A utilisation for files: a number rounded to 9 decimals, or the string `"inf"`.
+pub fn util_json(u: f64) -> serde_json::Value {
+    if u.is_infinite() {
+        serde_json::Value::String("inf".into())
+    } else {
+        serde_json::json!(round9(u))
+    }
+}
+
+/// `link:ID` / `site:ID` names of the overloaded resources, sorted.
+pub fn overloaded_names(net: &Network, o: &Offered) -> Vec<String> {
+    let mut v: Vec<String> = o
+        .overloaded_links
+        .iter()
+        .map(|&l| format!("link:{}", net.links[l].id))
+        .chain(
+            o.overloaded_sites
+                .iter()
+                .map(|&s| format!("site:{}", net.sites[s].id)),
+        )
+        .collect();
+    v.sort();
+    v
+}
+
+fn first_k(items: Vec<String>, k: usize) -> String {
+    let total = items.len();
+    let mut parts: Vec<String> = items.into_iter().take(k).collect();
+    if total > k {
+        parts.push(format!("(+{} more)", total - k));
+    }
+    if parts.is_empty() {
+        "—".into()
+    } else {
+        parts.join(", ")
+    }
+}
+
+fn describe(mode: Mode) -> &'static str {
+    match mode {
+        Mode::Nearest => {
+            "shortest paths on the link metrics, split equally per hop over equal-cost next \
+             hops, each demand processed at its nearest processing site(s)"
+        }
+        Mode::Steered => {
+            "shortest paths on the link metrics, split equally per hop over equal-cost next \
+             hops, each demand steered to its processing sites in the best proportions"
+        }
+    }
+}
+
+/// The routing section of the audit report: baseline, per-scenario comparison with the
+/// best re-route, overloads under the offered load, traffic moved by each failure, and the
+/// failures that hurt only under the deployed routing.
+pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
+    let u = &net.unit;
+    let m = ra.mode.name();
+    let audit = &ra.audit;
+    let mut out = String::new();
+    let _ = writeln!(out, "Routing as deployed ({m}): {}.", describe(ra.mode));
+    let b = &ra.baseline;
+    let _ = writeln!(
+        out,
+        "Baseline: {m} serves {} of {} {u} required ({}); the best re-route serves {}. \
+         Offered load (every demand's required on the nearest routes): largest link \
+         utilisation {}, largest site utilisation {}; overloaded: {}.",
+        num(b.eval.served_required),
+        num(b.eval.surviving_required),
+        percent(b.eval.served_required, b.eval.surviving_required),
+        num(ra.baseline_best.served_required),
+        util_text(b.offered.max_link_util),
+        util_text(b.offered.max_site_util),
+        first_k(overloaded_names(net, &b.offered), CELL_ITEMS),
+    );
+    let order = crate::rank::worst_first(audit);
+    let mut t = Table::new();
+    t.load_style(UTF8_FULL_CONDENSED)
+        .set_content_arrangement(ContentArrangement::Dynamic)
+        .set_header(vec![
+            "#".to_string(),
+            "failed".to_string(),
+            format!("served, {m} ({u})"),
+            format!("served, best re-route ({u})"),
+            format!("recoverable ({u})"),
+            "max link util.".to_string(),
+            "max site util.".to_string(),
+            "overloaded".to_string(),
+            "traffic moved onto".to_string(),
+        ]);
+    for (r, &i) in order.iter().take(top).enumerate() {
+        let k = audit.outage_of[i];
+        let e = &audit.evaluations[k];
+        let o = &ra.offered[k];
+        let moved: Vec<String> = routing::moved_onto(&b.offered, o, e.surviving_required)
+            .iter()
+            .map(|&(a, d)| {
+                let arc = &net.arcs[a];
+                format!(
+                    "{} (→{}) +{}",
+                    net.links[arc.link].id,
+                    net.sites[arc.to].id,
+                    num(d)
+                )
+            })
+            .collect();
+        t.add_row(vec![
+            Cell::new(r + 1),
+            Cell::new(audit.scenarios[i].display_name()),
+            Cell::new(num(e.served_required)),
+            Cell::new(num(ra.best[k].served_required)),
+            Cell::new(num(ra.recoverable(k))),
+            Cell::new(util_text(o.max_link_util)),
+            Cell::new(util_text(o.max_site_util)),
+            Cell::new(first_k(overloaded_names(net, o), CELL_ITEMS)),
+            Cell::new(first_k(moved, CELL_ITEMS)),
+        ]);
+    }
+    for c in [0, 2, 3, 4, 5, 6] {
+        if let Some(col) = t.column_mut(c) {
+            col.set_cell_alignment(CellAlignment::Right);
+        }
+    }
+    let _ = writeln!(
+        out,
+        "\nWorst {} of {} scenarios under {m} routing, beside the best re-route \
+         (recoverable = what steering or re-optimisation would win back):\n{t}",
+        top.min(order.len()),
+        order.len()
+    );
+    let only: Vec<String> = order
+        .iter()
+        .filter(|&&i| {
+            let k = audit.outage_of[i];
+            audit.evaluations[k].shortfall > 0.0 && ra.best[k].shortfall <= 0.0
+        })
+        .map(|&i| audit.scenarios[i].display_name())
+        .collect();
+    if only.is_empty() {
+        let _ = writeln!(
+            out,
+            "No scenario is short under {m} routing while the best re-route serves it fully."
+        );
+    } else {
+        let _ = writeln!(
+            out,
+            "Short under {m} routing but fully served by a re-route ({}): {}",
+            only.len(),
+            first_k(only, top)
+        );
+    }
+    out
+}
+
+/// The line a `plan --routing steered` report starts with.
+pub fn plan_header(mode: Mode) -> String {
+    format!(
+        "Routing as deployed ({}): {}; processing bought for this model (routes stay the \
+         shortest paths).\n",
+        mode.name(),
+        describe(mode)
+    )
+}
+
+/// The routing fields a scenario's JSON object gains under nearest/steered.
+#[derive(Serialize)]
+pub struct RoutedScenarioJson {
+    pub max_link_utilisation: serde_json::Value,
+    pub max_site_utilisation: serde_json::Value,
+    pub overloaded: Vec<String>,
+    /// served_required of the best re-route of the same outage, and the difference.
+    pub best_served_required: f64,
+    pub recoverable: f64,
+    /// Link directions whose offered load rose against the baseline, largest first.
+    pub traffic_moved_onto: Vec<MovedJson>,
+}
+
+#[derive(Serialize)]
+pub struct MovedJson {
+    pub link: String,
+    pub from: String,
+    pub to: String,
+    pub increase: f64,
+}
+
+fn routed_fields(
+    net: &Network,
+    base: &Offered,
+    o: &Offered,
+    e: &Evaluation,
+    best: &Evaluation,
+) -> RoutedScenarioJson {
+    RoutedScenarioJson {
+        max_link_utilisation: util_json(o.max_link_util),
+        max_site_utilisation: util_json(o.max_site_util),
+        overloaded: overloaded_names(net, o),
+        best_served_required: round9(best.served_required),
+        recoverable: round9((best.served_required - e.served_required).max(0.0)),
+        traffic_moved_onto: routing::moved_onto(base, o, e.surviving_required)
+            .into_iter()
+            .map(|(a, d)| {
+                let arc = &net.arcs[a];
+                MovedJson {
+                    link: net.links[arc.link].id.clone(),
+                    from: net.sites[arc.from].id.clone(),
+                    to: net.sites[arc.to].id.clone(),
+                    increase: round9(d),
+                }
+            })
+            .collect(),
+    }
+}
+
+/// The audit document under a deployed routing: the same document as the best re-route
+/// (values under the chosen routing), with `routing` set and each scenario carrying
+/// [`RoutedScenarioJson`].
+pub fn audit_json(
+    net: &Network,
+    ra: &RoutedAudit,
+    closing: Option<&[serde_json::Value]>,
+) -> super::json::AuditJson {
+    let audit = &ra.audit;
+    let mut doc = super::json::audit_json(net, audit, &ra.baseline.eval, closing);
+    doc.routing = ra.mode.name();
+    let base = &ra.baseline.offered;
+    doc.baseline.routed = Some(routed_fields(
+        net,
+        base,
+        base,
+        &ra.baseline.eval,
+        &ra.baseline_best,
+    ));
+    for (i, s) in doc.scenarios.iter_mut().enumerate() {
+        let k = audit.outage_of[i];
+        s.routed = Some(routed_fields(
+            net,
+            base,
+            &ra.offered[k],
+            &audit.evaluations[k],
+            &ra.best[k],
+        ));
+    }
+    doc
+}

@@ -1,0 +1,407 @@
+//! Buying processing for the steered routing: the same questions as [`crate::expand`]
+//! (close one scenario's gap; one plan for all scenarios), asked of the fixed-route model
+//! of [`super::fixed`] under [`Mode::Steered`] with one `add_v` variable per candidate
+//! site in its processing row.
+//!
+//! Added processing can make a site a candidate: a surviving expandable site with
+//! processing 0 gets steered variables too (its row `Σ y − add_v <= 0` keeps them at 0
+//! unless processing is bought). Routes do not depend on processing, so the paths stay
+//! the shortest paths. Under [`Mode::Nearest`] a purchase would change which sites are
+//! nearest (a site with processing 0 is no candidate), so purchases are only defined for
+//! the steered routing; the command line refuses the nearest one.
+//!
+//! Invariant: adding processing never lowers the steered served_required (the LP only
+//! gains room in site rows), so scenarios without shortfall need nothing.
+
+use super::spt::Trees;
+use super::{DemandRoutes, Mode, RoutedAudit, fixed};
+use crate::audit::{self, RunOptions};
+use crate::error::{Error, Result};
+use crate::expand::{Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOTAL_MAX_VARS};
+use crate::model::Network;
+use crate::scenario::Outage;
+use crate::solve::lp::{self, Lp, Sense};
+use crate::solve::{Evaluation, TOL};
+
+/// Per site: surviving, and with processing > 0 or processing that may be bought.
+fn eligible(net: &Network, outage: &Outage, cands: &Candidates) -> Vec<bool> {
+    let alive = outage.site_alive(net);
+    (0..net.sites.len())
+        .map(|v| {
+            alive[v]
+                && (net.sites[v].processing > 0.0
+                    || (cands.cost[v].is_some() && cands.max[v] > 0.0))
+        })
+        .collect()
+}
+
+/// One `add_v` per surviving candidate site, bounded by `min(expand_max, cap)`, objective
+/// `cost_v · weight`.
+fn add_vars(
+    lp: &mut Lp,
+    net: &Network,
+    cands: &Candidates,
+    outage: Option<&Outage>,
+    cap: f64,
+    weight: f64,
+) -> Vec<Option<usize>> {
+    let alive = outage.map(|o| o.site_alive(net));
+    (0..net.sites.len())
+        .map(|v| {
+            let c = cands.cost[v]?;
+            if alive.as_ref().is_some_and(|a| !a[v]) || cands.max[v] <= 0.0 {
+                return None;
+            }
+            Some(lp.add_var(0.0, cands.max[v].min(cap), c * weight))
+        })
+        .collect()
+}
+
+fn values(add: &[Option<usize>], x: &[f64], scale: f64) -> Vec<f64> {
+    add.iter()
+        .map(|v| {
+            v.map_or(0.0, |v| {
+                let a = x[v].max(0.0);
+                if a <= TOL * scale { 0.0 } else { a }
+            })
+        })
+        .collect()
+}
+
+/// The served target of a cost model: exactly `required` when the best reaches it, else a
+/// hair (1e-8 relative) below the interior-point best.
+fn target(best: f64, required: f64) -> f64 {
+    if best >= required {
+        required
+    } else {
+        best - 1e-8 * required.max(f64::MIN_POSITIVE)
+    }
+}
+
+fn served_row(
+    model: &mut Lp,
+    index: &fixed::FixedIndex,
+    coeff: f64,
+    extra: Option<(usize, f64)>,
+    rhs: f64,
+) {
+    let mut coeffs: Vec<(usize, f64)> = index
+        .demand_vars
+        .iter()
+        .flatten()
+        .map(|&v| (v, coeff))
+        .collect();
+    coeffs.extend(extra);
+    model.add_row(coeffs, Sense::Ge, rhs);
+}
+
+/// The steered routes of `outage` with expandable sites as candidates.
+fn expandable_routes(
+    net: &Network,
+    trees: &Trees,
+    outage: &Outage,
+    cands: &Candidates,
+) -> Vec<Option<DemandRoutes>> {
+    let t = trees.for_outage(net, outage);
+    super::routes(net, &t, &eligible(net, outage, cands))
+}
+
+/// Best steered served_required of `outage` with every candidate expanded as allowed, and
+/// the links limiting it (positive shadow price). Snapped to `required` within [`TOL`] and
+/// never below `served`.
+fn best_reachable(
+    net: &Network,
+    routes: &[Option<DemandRoutes>],
+    outage: &Outage,
+    cands: &Candidates,
+    required: f64,
+    served: f64,
+) -> Result<(f64, Vec<usize>)> {
+    let mut model = Lp::new(true);
+    let add = add_vars(&mut model, net, cands, Some(outage), required, 0.0);
+    let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let index = fixed::build(
+        &mut model,
+        net,
+        routes,
+        Mode::Steered,
+        &caps,
+        1.0,
+        Some(&add),
+    );
+    if index.demand_vars.iter().all(Vec::is_empty) {
+        return Ok((served, Vec::new()));
+    }
+    let sol = lp::solve(&model)?;
+    let best = index.served(&sol.x).clamp(0.0, required);
+    let mut links: Vec<usize> = index
+        .arc_row
+        .iter()
+        .enumerate()
+        .filter_map(|(a, r)| r.filter(|&r| sol.duals[r] > 1e-6).map(|_| net.arcs[a].link))
+        .collect();
+    links.sort_unstable();
+    links.dedup();
+    let best = if (required - best).abs() <= TOL * required.max(1.0) {
+        required
+    } else {
+        best.max(served)
+    };
+    Ok((best, links))
+}
+
+/// For one scenario with a steered shortfall (`eval` is its steered evaluation), the
+/// cheapest processing with which the steered served_required reaches the best any
+/// expansion reaches; `None` without shortfall. Two small LPs (best reachable, then least
+/// cost subject to served ≥ best).
+pub fn close(
+    net: &Network,
+    trees: &Trees,
+    outage: &Outage,
+    eval: &Evaluation,
+    cands: &Candidates,
+) -> Result<Option<Closing>> {
+    if eval.shortfall <= 0.0 {
+        return Ok(None);
+    }
+    let required = eval.surviving_required;
+    let routes = expandable_routes(net, trees, outage, cands);
+    let (best, binding_links) =
+        best_reachable(net, &routes, outage, cands, required, eval.served_required)?;
+    let scale = required.max(1.0);
+    if best <= eval.served_required + TOL * scale {
+        return Ok(Some(Closing {
+            cost: 0.0,
+            add: vec![0.0; net.sites.len()],
+            best: eval.served_required,
+            not_closable: eval.shortfall,
+            binding_links,
+            dual_bound: 0.0,
+            served_after: eval.served_required,
+            verified: eval.proven(),
+        }));
+    }
+    let mut model = Lp::new(false);
+    let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
+    let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let index = fixed::build(
+        &mut model,
+        net,
+        &routes,
+        Mode::Steered,
+        &caps,
+        0.0,
+        Some(&add),
+    );
+    served_row(&mut model, &index, 1.0, None, target(best, required));
+    let sol = lp::solve(&model)?;
+    let add_units = values(&add, &sol.x, scale);
+    let after = super::evaluate(&with_added(net, &add_units), trees, outage, Mode::Steered)?.eval;
+    Ok(Some(Closing {
+        cost: cands.cost_of(&add_units),
+        verified: after.proven()
+            && after.served_required >= best - crate::solve::GAP_TOL * required,
+        served_after: after.served_required,
+        add: add_units,
+        best,
+        not_closable: (required - best).max(0.0),
+        binding_links,
+        dual_bound: model.dual_objective(&sol),
+    }))
+}
+
+/// `net` with `add` units of processing added per site.
+pub fn with_added(net: &Network, add: &[f64]) -> Network {
+    let mut n = net.clone();
+    for (s, a) in n.sites.iter_mut().zip(add) {
+        s.processing += a;
+    }
+    n
+}
+
+/// One plan of processing purchases for every scenario of a steered audit. Every outage
+/// with a shortfall is held in one master LP at once (the steered models are small), all
+/// sharing the `add` variables, so the plan is exact for the continuous problem:
+/// close-all (least cost with every outage at its best reachable), worst within budget
+/// (largest t with served_k ≥ t·required_k), or total within budget (most Σ served over
+/// the scenarios). Sites with `expand_step` are then rounded to whole modules (up for
+/// close-all, never past expand_max; down within a budget) without a repair pass. The plan
+/// is verified by re-solving every short outage with it applied.
+pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Result<Plan> {
+    let audit = &ra.audit;
+    let cands = Candidates::of(net);
+    let short: Vec<usize> = (0..audit.outages.len())
+        .filter(|&k| audit.evaluations[k].shortfall > 0.0)
+        .collect();
+    let prepared = audit::par_map(&short, opts, "best reachable", |&k| {
+        let e = &audit.evaluations[k];
+        let routes = expandable_routes(net, &ra.trees, &audit.outages[k], &cands);
+        let (best, _) = best_reachable(
+            net,
+            &routes,
+            &audit.outages[k],
+            &cands,
+            e.surviving_required,
+            e.served_required,
+        )?;
+        Ok((routes, best))
+    })?;
+    let mut best: Vec<f64> = audit
+        .evaluations
+        .iter()
+        .map(|e| e.served_required)
+        .collect();
+    for (&k, (_, b)) in short.iter().zip(&prepared) {
+        best[k] = *b;
+    }
+    let cap = audit
+        .evaluations
+        .iter()
+        .map(|e| e.surviving_required)
+        .fold(0.0, f64::max);
+    let minimise = goal == Goal::CloseAll;
+    let mut model = Lp::new(!minimise);
+    let add = add_vars(
+        &mut model,
+        net,
+        &cands,
+        None,
+        cap,
+        if minimise { 1.0 } else { 0.0 },
+    );
+    let t = match goal {
+        Goal::WorstWithin(_) => Some(model.add_var(0.0, 1.0, 1.0)),
+        _ => None,
+    };
+    if let Goal::WorstWithin(b) | Goal::TotalWithin(b) = goal {
+        let coeffs = add
+            .iter()
+            .enumerate()
+            .filter_map(|(v, a)| a.map(|a| (a, cands.cost[v].unwrap_or(0.0))))
+            .collect();
+        model.add_row(coeffs, Sense::Le, b);
+    }
+    let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let mut indices = Vec::with_capacity(short.len());
+    for (&k, (routes, _)) in short.iter().zip(&prepared) {
+        let mult = audit.outage_of.iter().filter(|&&o| o == k).count() as f64;
+        let obj = if matches!(goal, Goal::TotalWithin(_)) {
+            mult
+        } else {
+            0.0
+        };
+        let index = fixed::build(
+            &mut model,
+            net,
+            routes,
+            Mode::Steered,
+            &caps,
+            obj,
+            Some(&add),
+        );
+        let required = audit.evaluations[k].surviving_required;
+        match goal {
+            Goal::CloseAll => served_row(&mut model, &index, 1.0, None, target(best[k], required)),
+            Goal::WorstWithin(_) => {
+                served_row(&mut model, &index, 1.0, t.map(|t| (t, -required)), 0.0)
+            }
+            Goal::TotalWithin(_) => {}
+        }
+        indices.push(index);
+        if model.num_vars() > TOTAL_MAX_VARS {
+            return Err(Error::Usage(format!(
+                "the steered plan would hold more than {TOTAL_MAX_VARS} variables; \
+                 lower --depth or narrow --kinds"
+            )));
+        }
+    }
+    let (lp_add, objective, duals) = if short.is_empty() || model.num_vars() == 0 {
+        (vec![0.0; net.sites.len()], 0.0, Vec::new())
+    } else {
+        let sol = lp::solve(&model)?;
+        (values(&add, &sol.x, cap.max(1.0)), sol.objective, sol.duals)
+    };
+    let lp_cost = cands.cost_of(&lp_add);
+    let stepped = net
+        .sites
+        .iter()
+        .zip(&lp_add)
+        .any(|(s, &a)| a > 0.0 && s.expansion.as_ref().is_some_and(|e| e.step.is_some()));
+    let (plan_add, modules) = if stepped {
+        let rounded: Vec<f64> = net
+            .sites
+            .iter()
+            .zip(&lp_add)
+            .enumerate()
+            .map(
+                |(v, (s, &a))| match s.expansion.as_ref().and_then(|e| e.step) {
+                    Some(step) if a > 0.0 => {
+                        let units = a / step;
+                        let n = if minimise {
+                            (units - TOL).ceil()
+                        } else {
+                            (units + TOL).floor()
+                        };
+                        (n * step).min(cands.max[v].max(0.0))
+                    }
+                    _ => a,
+                },
+            )
+            .collect();
+        let cost = cands.cost_of(&rounded);
+        (
+            rounded,
+            Some(ModuleRounding {
+                lp_add: lp_add.clone(),
+                lp_cost,
+                gap: (cost - lp_cost).max(0.0),
+                repaired: 0,
+                checked: 1,
+            }),
+        )
+    } else {
+        (lp_add, None)
+    };
+    let mut drivers: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.sites.len()];
+    for (&k, index) in short.iter().zip(&indices) {
+        for (v, r) in index.site_row.iter().enumerate() {
+            if let Some(r) = r
+                && let Some(&y) = duals.get(*r)
+                && y.abs() > 1e-9
+            {
+                drivers[v].push((k, y.abs()));
+            }
+        }
+    }
+    for d in &mut drivers {
+        d.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    }
+    let applied = with_added(net, &plan_add);
+    let resolved = audit::par_map(&short, opts, "verifying", |&k| {
+        super::evaluate(&applied, &ra.trees, &audit.outages[k], Mode::Steered)
+    })?;
+    let mut after: Vec<Evaluation> = audit.evaluations.clone();
+    for (&k, r) in short.iter().zip(resolved) {
+        after[k] = r.eval;
+    }
+    let worst_fraction = after
+        .iter()
+        .map(Evaluation::served_fraction)
+        .fold(1.0, f64::min);
+    Ok(Plan {
+        goal,
+        cost: cands.cost_of(&plan_add),
+        add: plan_add,
+        rounds: vec![Round {
+            active: short.len(),
+            objective,
+            violated: 0,
+        }],
+        best,
+        after,
+        drivers,
+        worst_fraction,
+        modules,
+        dropped: 0,
+    })
+}
