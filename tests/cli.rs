@@ -1870,3 +1870,142 @@ fn walk_engine_agrees_with_edge_on_demo_depth_2() {
     // Some scenarios must fall short, or only "everything served" would be compared.
     assert!(short >= 10, "only {short} scenarios with a shortfall");
 }
+
+// ---------------------------------------------------------------------------------------
+// Numbers a planner can sign (wide magnitudes, the verifier, causes, the baseline)
+// ---------------------------------------------------------------------------------------
+
+/// The demo with its first link (harrow-millbrook, capacity 100) written as `cap`.
+fn demo_with_first_link(cap: f64) -> TempPath {
+    let mut fx = read_fixture(&demo());
+    fx["links"][0]["capacity"] = serde_json::json!(cap);
+    TempPath::with_text("demo-wide", &fx.to_string())
+}
+
+/// Source: the issue's reproduction (values from the plain demo: group:east-pole-route 20
+/// short, site:fenwick 8, site:millbrook 14) and the LP itself: raising the capacity of a
+/// link can only raise served_required, and the demo's own results never saturate
+/// harrow-millbrook beyond what 100 carries, so writing 1e12 or 1e9 ("unlimited") changes
+/// no scenario. Once, 8 of 42 scenarios lost their shortfall and fenwick was served above
+/// its own upper bound with gap 0. Both engines, every scenario proven, bounds never
+/// crossed, and a gate of 5 fails on the 20-unit shortfall.
+#[test]
+fn unlimited_capacity_written_as_1e12_changes_no_scenario() {
+    let (_, plain) = audit_json(s(&demo()), &["--engine", "edge"]);
+    for (name, want) in [
+        (&["group:east-pole-route"][..], 20.0),
+        (&["site:fenwick"][..], 8.0),
+        (&["site:millbrook"][..], 14.0),
+    ] {
+        assert_near(num(scenario(&plain, name), "shortfall"), want, "plain demo");
+    }
+    for cap in [1e12, 1e9] {
+        let f = demo_with_first_link(cap);
+        for engine in ["edge", "walks"] {
+            let (_, doc) = audit_json(f.path(), &["--engine", engine]);
+            let what = format!("capacity {cap:e}, engine {engine}");
+            assert_eq!(scenarios(&doc).len(), scenarios(&plain).len(), "{what}");
+            for (a, b) in scenarios(&plain).iter().zip(scenarios(&doc)) {
+                assert_eq!(failed_of(a), failed_of(b), "{what}");
+                for field in ["served_required", "shortfall", "throughput"] {
+                    assert_near(num(b, field), num(a, field), &format!("{what} {field}"));
+                }
+                assert_eq!(b["verification"]["status"], "proven", "{what}: {b}");
+                let (served, upper) = (num(b, "served_required"), num(b, "upper_bound"));
+                assert!(
+                    upper >= served - 1e-9,
+                    "{what}: served {served} above {upper}"
+                );
+                assert!(num(b, "certified_gap") >= -1e-9, "{what}: bounds cross");
+            }
+            let gate = redoubt(&[
+                "audit",
+                f.path(),
+                "--quiet",
+                "--engine",
+                engine,
+                "--max-shortfall",
+                "5",
+            ]);
+            assert_eq!(
+                gate.code, 1,
+                "{what}: the 20-unit shortfall must fail the gate"
+            );
+        }
+    }
+}
+
+/// Source: the contract (a unit must be processed once; with no processing anywhere
+/// nothing can be served: hand computation). The cause is named as missing processing,
+/// not as a missing path; `check` says what the baseline already misses.
+#[test]
+fn no_processing_anywhere_names_the_cause() {
+    let net = r#"{"sites":[{"id":"a"},{"id":"b"},{"id":"c"}],
+      "links":[{"id":"ab","from":"a","to":"b","capacity":4},
+               {"id":"bc","from":"b","to":"c","capacity":4}],
+      "demands":[{"from":"a","to":"c","volume":6},{"from":"a","to":"b","volume":1}]}"#;
+    let f = TempPath::with_text("noproc", net);
+    let check = redoubt(&["check", f.path()]);
+    assert_eq!(check.code, 0, "{}", check.stderr);
+    assert!(
+        check
+            .stdout
+            .contains("already short with nothing failed: 2 demands (7 units")
+            && check.stdout.contains("no processing site on any walk"),
+        "{}",
+        check.stdout
+    );
+    let run = redoubt(&["audit", f.path(), "--quiet"]);
+    // The ranked table's baseline row names the cause; nothing calls it a missing path.
+    assert!(
+        run.stdout
+            .lines()
+            .any(|l| l.contains("baseline") && l.contains("no processing reachable")),
+        "{}",
+        run.stdout
+    );
+    assert!(!run.stdout.contains("no path:"), "{}", run.stdout);
+    let (_, doc) = audit_json(f.path(), &[]);
+    assert_near(
+        num(&doc["baseline"], "shortfall"),
+        7.0,
+        "baseline shortfall",
+    );
+    assert_eq!(
+        doc["baseline"]["cut_off_reasons"]["a→c #1"], "no processing reachable",
+        "{}",
+        doc["baseline"]
+    );
+}
+
+/// Source: hand computation. Site z is joined to nothing, so demand a→z (3) is short
+/// with nothing failed; a→b (5, processing at a, link 10) is served. Failing ab adds
+/// 5 to the shortfall: 8 in all, 5 beyond the baseline's 3.
+#[test]
+fn a_baseline_shortfall_is_stated_and_kept_apart() {
+    let net = r#"{"sites":[{"id":"a","processing":20},{"id":"b"},{"id":"z"}],
+      "links":[{"id":"ab","from":"a","to":"b","capacity":10}],
+      "demands":[{"id":"lost","from":"a","to":"z","volume":3},{"from":"a","to":"b","volume":5}]}"#;
+    let f = TempPath::with_text("baseline-short", net);
+    let check = redoubt(&["check", f.path()]);
+    assert!(
+        check.stdout.contains("lost (no path)"),
+        "check must name the demand the baseline misses:\n{}",
+        check.stdout
+    );
+    let (run, doc) = audit_json(f.path(), &["--kinds", "links"]);
+    assert!(
+        run.stdout.contains("The baseline is already 3 units short")
+            && run.stdout.contains("beyond baseline"),
+        "{}",
+        run.stdout
+    );
+    let ab = scenario(&doc, &["link:ab"]);
+    assert_near(num(ab, "shortfall"), 8.0, "link:ab shortfall");
+    assert_near(num(ab, "shortfall_beyond_baseline"), 5.0, "beyond baseline");
+    assert_near(
+        num(&doc["baseline"], "shortfall_beyond_baseline"),
+        0.0,
+        "baseline",
+    );
+}
