@@ -401,7 +401,7 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
         Some(mode) => return run_routed_plan(args, &net, scenarios, opts, goal, mode, out),
         None => {}
     }
-    let batch = audit::Batch::new(&net, scenarios, cli::Engine::Edge);
+    let batch = audit::Batch::new(&net, scenarios, cli::Engine::Walks);
     let audit = solve_batch(&net, batch, &args.scenarios, opts, None, err)?;
     let plan = expand::plan(&net, &audit, goal, opts)?;
     let default_costs = expand::Candidates::of(&net).default_costs;

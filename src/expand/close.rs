@@ -69,7 +69,7 @@ fn best_reachable_raw(
             _ => 0.0,
         })
         .collect();
-    let e = solve::evaluate(&net.with_added_processing(&add), outage)?;
+    let e = solve::evaluate_cold_walks(&net.with_added_processing(&add), outage)?;
     let mut links: Vec<LinkIdx> = e
         .arc_price
         .iter()
@@ -121,7 +121,7 @@ pub fn close(
     served_row(&mut model, &index, target(best, required));
     let sol = lp::solve(&model)?;
     let add_units = values(&add, &sol.x, scale);
-    let after = solve::evaluate(&net.with_added_processing(&add_units), outage)?;
+    let after = solve::evaluate_cold_walks(&net.with_added_processing(&add_units), outage)?;
     Ok(Some(Closing {
         cost: cands.cost_of(&add_units),
         verified: after.proven() && after.served_required >= best - GAP_TOL * required,

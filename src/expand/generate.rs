@@ -133,7 +133,7 @@ pub(super) fn verify(
     opts: RunOptions,
 ) -> Result<Vec<Evaluation>> {
     let solved = audit::par_map(which, opts, "verifying plan", |&k| {
-        solve::evaluate(planned, &audit.outages[k])
+        solve::evaluate_cold_walks(planned, &audit.outages[k])
     })?;
     let mut after = audit.evaluations.clone();
     for (&k, e) in which.iter().zip(solved) {

@@ -536,6 +536,13 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     Ok(finish(net, &view, required, volume))
 }
 
+/// [`evaluate`] by the walk engine started cold ([`colgen::evaluate_walks`]): the same
+/// verified result (an unproven walk answer falls back to the edge LP's ladder), usually
+/// faster on networks of tens of sites. What the expansion layer re-solves with.
+pub fn evaluate_cold_walks(net: &Network, outage: &Outage) -> Result<Evaluation> {
+    Ok(colgen::evaluate_walks(net, outage, None)?.evaluation)
+}
+
 /// Whether some surviving demand offers more than its required part, so that throughput
 /// needs its own LP (with volume caps). O(demands).
 pub fn needs_volume_lp(net: &Network, outage: &Outage) -> bool {
