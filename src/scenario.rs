@@ -87,7 +87,10 @@ impl Element {
                     printable(list)
                 )));
             }
-            let e = Element::parse(part, net)?;
+            let e = Element::parse(part, net).map_err(|e| match e {
+                Error::Usage(m) if flag != "--fail" => Error::Usage(format!("{flag}: {m}")),
+                other => other,
+            })?;
             if let Some(first) = seen.insert(e, i) {
                 return Err(Error::Usage(format!(
                     "{flag}: element {} \"{}\" repeats element {}; name each element once",

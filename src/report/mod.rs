@@ -24,12 +24,12 @@ pub fn prob(x: f64) -> f64 {
     format!("{x:.14e}").parse().unwrap_or(x)
 }
 
-/// A probability for people: `0`, four decimals from 0.001 on (`0.0199`), else three
+/// A probability for people: `0`, four decimals from 0.01 on (`0.0199`), else three
 /// significant digits in scientific notation (`1.23e-5`). O(1).
 pub fn probability(p: f64) -> String {
     if p == 0.0 {
         "0".into()
-    } else if p >= 1e-3 {
+    } else if p >= 1e-2 {
         trimmed4(p)
     } else {
         format!("{p:.2e}")
