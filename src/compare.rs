@@ -262,3 +262,31 @@ pub fn run(args: &CompareArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         Outcome::GateFailed
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn values(shortfall: f64, stranded: f64) -> Values {
+        Values {
+            served_required: 0.0,
+            shortfall,
+            stranded,
+            throughput: 0.0,
+        }
+    }
+
+    /// Hand check (common practice, no source) of "compared at the printed precision":
+    /// 14.3331 and 14.3334 both print 14.333 (3 decimals), so no change; 14.333 → 14.334
+    /// is a change of exactly 0.001, which a tolerance of 0.001 allows and 0 does not.
+    #[test]
+    fn deltas_are_taken_as_printed() {
+        let c = Change::new(vec![], values(14.3331, 0.0), values(14.3334, 0.0));
+        assert_eq!(c.delta_shortfall, 0.0);
+        let c = Change::new(vec![], values(14.333, 2.0), values(14.334, 1.0));
+        assert_eq!(c.delta_shortfall, 0.001);
+        assert_eq!(c.delta_stranded, -1.0);
+        assert!(c.delta_shortfall > 0.0);
+        assert!(c.delta_shortfall <= 0.001);
+    }
+}

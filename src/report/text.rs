@@ -1031,11 +1031,11 @@ pub fn write_compare(
     let changes = |title: &str, list: &[crate::compare::Change]| -> String {
         let mut t = table(&[
             "failed",
-            &format!("shortfall before ({u})"),
-            &format!("after ({u})"),
+            "shortfall before",
+            "after",
             "change",
-            &format!("stranded before ({u})"),
-            &format!("after ({u})"),
+            "stranded before",
+            "after",
         ]);
         for ch in list.iter().take(top) {
             t.add_row(vec![
@@ -1049,7 +1049,7 @@ pub fn write_compare(
         }
         right(&mut t, &[1, 2, 3, 4, 5]);
         format!(
-            "\n{title} ({} scenario{}, top {}):\n{t}\n",
+            "\n{title} ({} scenario{}, top {}; amounts in {u}):\n{t}\n",
             list.len(),
             plural(list.len()),
             top.min(list.len())
