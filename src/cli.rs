@@ -24,6 +24,9 @@ pub enum Command {
     },
     /// Fail the network every way up to --depth, solve each scenario exactly, rank the worst.
     Audit(AuditArgs),
+    /// Pre-change check: run the same scenarios on two versions of a network and say
+    /// which got worse (exit 1 when any got worse by more than --tolerance).
+    Compare(CompareArgs),
 }
 
 /// Which scenarios to evaluate and how.
@@ -49,6 +52,10 @@ pub struct ScenarioArgs {
     /// Refuse to start when the estimated time exceeds this many minutes (default 60).
     #[arg(long, value_name = "M", allow_negative_numbers = true)]
     pub max_minutes: Option<f64>,
+    /// Keep these elements down in every scenario (a maintenance window), e.g.
+    /// `link:X,site:Y`: the baseline is that state and scenarios name only further failures.
+    #[arg(long, value_name = "ELEMENTS")]
+    pub down: Option<String>,
 
     /// Routing model: best (any walk: the best re-route), nearest (shortest paths with
     /// equal-cost split, nearest processing site) or steered (shortest paths, any split
@@ -81,6 +88,9 @@ pub struct AuditArgs {
     /// finish, in FILE.journal).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
+    /// Write one CSV row per scenario to this file (after a `#` caution line and a header).
+    #[arg(long, value_name = "FILE")]
+    pub csv: Option<PathBuf>,
     /// Continue an interrupted run from the journal beside --json FILE.
     #[arg(long, requires = "json")]
     pub resume: bool,
@@ -141,4 +151,72 @@ pub struct PlanArgs {
     /// How many scenarios the tables show.
     #[arg(long, default_value_t = 15)]
     pub top: usize,
+    /// Write the network with the purchase added (processing increased) to this file;
+    /// every other field of the input, your own included, is kept.
+    #[arg(long, value_name = "OUT.json")]
+    pub apply: Option<PathBuf>,
+}
+
+#[derive(Debug, Args)]
+pub struct CompareArgs {
+    /// The network before the change (JSON).
+    pub before: PathBuf,
+    /// The network after the change (JSON).
+    pub after: PathBuf,
+    /// Largest number of elements failed together.
+    #[arg(long, default_value_t = 1)]
+    pub depth: usize,
+    /// Kinds of element to fail: any of links, sites, groups (comma-separated).
+    #[arg(long, default_value = "links,sites,groups")]
+    pub kinds: String,
+    /// Compare one named scenario instead, e.g. `link:X,site:Y`.
+    #[arg(long, value_name = "ELEMENTS", conflicts_with_all = ["depth", "kinds"])]
+    pub fail: Option<String>,
+    /// Keep these elements down on both sides in every scenario, e.g. `link:X`.
+    #[arg(long, value_name = "ELEMENTS")]
+    pub down: Option<String>,
+    /// A scenario got worse when its shortfall or stranded demand (as printed) rose by
+    /// more than this many units.
+    #[arg(
+        long,
+        value_name = "X",
+        default_value_t = 0.0,
+        allow_negative_numbers = true
+    )]
+    pub tolerance: f64,
+    /// Write the comparison to this JSON file.
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<PathBuf>,
+    /// How many scenarios each table shows.
+    #[arg(long, default_value_t = 15)]
+    pub top: usize,
+    /// Worker threads (default: one per core). Results do not depend on it.
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// No progress bar and no notes on stderr.
+    #[arg(long, short)]
+    pub quiet: bool,
+    /// Run even when the estimated time exceeds the limit (--max-minutes, default 60).
+    #[arg(long)]
+    pub yes: bool,
+    /// Refuse to start when the estimated time of either side exceeds this many minutes.
+    #[arg(long, value_name = "M", allow_negative_numbers = true)]
+    pub max_minutes: Option<f64>,
+}
+
+impl CompareArgs {
+    /// The scenario options of one side (`network` is that side's file).
+    pub fn side(&self, network: PathBuf) -> ScenarioArgs {
+        ScenarioArgs {
+            network,
+            depth: self.depth,
+            kinds: self.kinds.clone(),
+            threads: self.threads,
+            quiet: self.quiet,
+            yes: self.yes,
+            max_minutes: self.max_minutes,
+            down: self.down.clone(),
+            routing: Routing::Best,
+        }
+    }
 }

@@ -7,12 +7,15 @@
 
 pub mod audit;
 pub mod cli;
+pub mod compare;
 pub mod error;
 pub mod expand;
+pub mod fold;
 pub mod gate;
 pub mod model;
 pub mod rank;
 pub mod report;
+pub mod risk;
 pub mod routing;
 pub mod scenario;
 pub mod solve;
@@ -94,12 +97,19 @@ pub fn scenarios_for(
     args: &ScenarioArgs,
     fail: Option<&str>,
 ) -> Result<Vec<Scenario>> {
+    let down = down_for(net, args)?;
     if let Some(list) = fail {
         let elements = Element::parse_list(list, net)?;
-        return Ok(vec![Scenario::new(net, &elements)]);
+        if let Some(e) = elements.iter().find(|e| down.contains(e)) {
+            return Err(Error::Usage(format!(
+                "--fail: {} is already down (--down); name only further failures",
+                e.name(net)
+            )));
+        }
+        return Ok(vec![Scenario::new(net, &elements).with_down(&down)]);
     }
     let kinds = Kinds::parse(&args.kinds)?;
-    let pool = scenario::elements(net, kinds).len();
+    let pool = scenario::pool_without(net, kinds, &down).len();
     let count = scenario::count(pool, args.depth);
     if count > MAX_SCENARIOS {
         return Err(Error::Usage(format!(
@@ -108,7 +118,16 @@ pub fn scenarios_for(
             args.depth
         )));
     }
-    Ok(scenario::enumerate(net, kinds, args.depth))
+    let pool = scenario::pool_without(net, kinds, &down);
+    Ok(scenario::enumerate_pool(net, &pool, args.depth, &down))
+}
+
+/// The elements `--down` keeps down in every scenario (empty without it).
+pub fn down_for(net: &Network, args: &ScenarioArgs) -> Result<Vec<Element>> {
+    match &args.down {
+        Some(list) => Element::parse_list_for("--down", list, net),
+        None => Ok(Vec::new()),
+    }
 }
 
 /// Without `--max-minutes`, a run estimated longer than this many minutes needs `--yes`.
@@ -124,7 +143,7 @@ fn cores() -> usize {
 
 /// Run options from the command line; `--threads` above the core count is capped at it
 /// (with a note), since more threads than cores only add contention.
-fn run_options(args: &ScenarioArgs, err: &mut dyn Write) -> Result<audit::RunOptions> {
+pub(crate) fn run_options(args: &ScenarioArgs, err: &mut dyn Write) -> Result<audit::RunOptions> {
     let threads = match args.threads {
         Some(0) => return Err(Error::Usage("--threads must be at least 1".into())),
         Some(t) if t > cores() => {
@@ -160,7 +179,7 @@ fn time_limit(args: &ScenarioArgs) -> Result<Option<f64>> {
 /// Solves a batch: a first timed solve, an estimate of the rest (shown when long, refused
 /// beyond the limit unless `--yes`), then everything else in parallel, each result
 /// journaled when a journal is given.
-fn solve_batch(
+pub(crate) fn solve_batch(
     net: &Network,
     mut batch: audit::Batch,
     args: &ScenarioArgs,
@@ -217,10 +236,15 @@ pub fn audit_network_with(
     Ok((audit, baseline))
 }
 
-fn with_baseline(net: &Network, audit: &audit::Audit) -> Result<solve::Evaluation> {
+/// The baseline's evaluation: with `--down`, the down state (what every scenario keeps
+/// down), else the intact network.
+pub(crate) fn with_baseline(net: &Network, audit: &audit::Audit) -> Result<solve::Evaluation> {
     match audit.baseline() {
         Some(b) => Ok(b.clone()),
-        None => solve::evaluate(net, &scenario::Outage::default()),
+        None => {
+            let down = audit.scenarios.first().map_or(&[][..], |s| &s.down[..]);
+            solve::evaluate(net, &Scenario::baseline().with_down(down).outage(net))
+        }
     }
 }
 
@@ -267,13 +291,35 @@ fn audit_fingerprint(args: &AuditArgs, network_text: &str) -> String {
             "depth={};kinds={}",
             args.scenarios.depth, args.scenarios.kinds
         ),
-    } + &format!(";engine={:?}", args.engine);
+    } + &format!(";engine={:?}", args.engine)
+        + &args
+            .scenarios
+            .down
+            .as_ref()
+            .map(|d| format!(";down={d}"))
+            .unwrap_or_default();
     journal::fingerprint(&[
         b"redoubt audit",
         env!("CARGO_PKG_VERSION").as_bytes(),
         network_text.as_bytes(),
         options.as_bytes(),
     ])
+}
+
+/// The risk figures of an enumerated run (none for one named scenario, `--fail`, or when
+/// no element of the pool has a failure probability).
+fn risk_of(
+    net: &Network,
+    args: &ScenarioArgs,
+    named: bool,
+    audit: &audit::Audit,
+) -> Result<Option<risk::Risk>> {
+    if named {
+        return Ok(None);
+    }
+    let kinds = Kinds::parse(&args.kinds)?;
+    let pool = scenario::pool_without(net, kinds, &down_for(net, args)?);
+    Ok(risk::assess(net, &pool, audit))
 }
 
 fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
@@ -284,6 +330,11 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     if let (Some(json), Some(jp)) = (&args.json, &journal_path) {
         report::file::check_output("--json", json, &[input])?;
         report::file::check_output("--json (its journal)", jp, &[input])?;
+    }
+    if let Some(csv) = &args.csv {
+        let mut others = vec![input];
+        others.extend(args.json.as_deref());
+        report::file::check_output("--csv", csv, &others)?;
     }
     let (net, text) = read_network(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
@@ -340,6 +391,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         None
     };
     let verdicts = gate::check(&audit, &gates, args.gate_tolerance);
+    let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &audit)?;
     // Files first: a reader that closes stdout early never costs the --json file.
     if let Some(path) = &args.json {
         let closing_json = closings.as_ref().map(|c| {
@@ -351,7 +403,15 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         });
         let mut doc = report::json::audit_json(&net, &audit, &baseline, closing_json.as_deref());
         doc.gates = report::json::gates_json(&audit, &verdicts);
+        if let Some(r) = &risk {
+            report::json::attach_risk(&mut doc, &net, &audit, r);
+        }
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+    }
+    if let Some(path) = &args.csv {
+        report::file::write_atomic(path, |w| {
+            report::csv::write_audit(w, &audit, closings.as_deref(), risk.as_ref())
+        })?;
     }
     if let Some(j) = journal {
         j.remove()?;
@@ -365,6 +425,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
             closings: c,
             default_costs: cands.default_costs,
         }),
+        risk.as_ref(),
         &verdicts,
         args.top,
     ))?;
@@ -393,7 +454,12 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
     if let Some(json) = &args.json {
         report::file::check_output("--json", json, &[input])?;
     }
-    let net = load(input)?;
+    if let Some(apply) = &args.apply {
+        let mut others = vec![input];
+        others.extend(args.json.as_deref());
+        report::file::check_output("--apply", apply, &others)?;
+    }
+    let (net, text) = read_network(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, None)?;
     let opts = run_options(&args.scenarios, err)?;
     match routing_mode(args.scenarios.routing) {
@@ -408,6 +474,13 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
     if let Some(path) = &args.json {
         let doc = report::json::plan_json(&net, &audit, &plan, default_costs);
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+    }
+    if let Some(path) = &args.apply {
+        let doc = model::apply::with_purchase(&text, &net, &plan.add)?;
+        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+        if !args.scenarios.quiet {
+            note(report::text::note_applied(err, path, &plan.add));
+        }
     }
     stdout_result(report::text::write_plan(
         out,
@@ -468,6 +541,7 @@ fn run_routed_audit(
         None
     };
     let verdicts = gate::check(audit, gates, args.gate_tolerance);
+    let risk = risk_of(net, &args.scenarios, args.fail.is_some(), audit)?;
     if let Some(path) = &args.json {
         let closing_json = closings.as_ref().map(|c| {
             audit
@@ -478,7 +552,15 @@ fn run_routed_audit(
         });
         let mut doc = report::routing::audit_json(net, &ra, closing_json.as_deref());
         doc.gates = report::json::gates_json(audit, &verdicts);
+        if let Some(r) = &risk {
+            report::json::attach_risk(&mut doc, net, audit, r);
+        }
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+    }
+    if let Some(path) = &args.csv {
+        report::file::write_atomic(path, |w| {
+            report::csv::write_audit(w, audit, closings.as_deref(), risk.as_ref())
+        })?;
     }
     stdout_result(
         out.write_all(report::routing::routing_report(net, &ra, args.top).as_bytes())
@@ -493,6 +575,7 @@ fn run_routed_audit(
             closings: c,
             default_costs: cands.default_costs,
         }),
+        risk.as_ref(),
         &verdicts,
         args.top,
     ))?;
@@ -549,6 +632,10 @@ pub fn run(cli: Cli, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome
         Command::Plan(args) => {
             audit::install_interrupt_handler();
             run_plan(&args, out, err)
+        }
+        Command::Compare(args) => {
+            audit::install_interrupt_handler();
+            compare::run(&args, out, err)
         }
     }
 }

@@ -71,21 +71,29 @@ impl Element {
     /// otherwise run a scenario other than the one written. Returns the elements in the
     /// order written. O(n) expected for n elements.
     pub fn parse_list(list: &str, net: &Network) -> Result<Vec<Element>> {
+        Element::parse_list_for("--fail", list, net)
+    }
+
+    /// [`Element::parse_list`] with messages that name `flag` (`--fail`, `--down`).
+    pub fn parse_list_for(flag: &str, list: &str, net: &Network) -> Result<Vec<Element>> {
         let mut elements: Vec<Element> = Vec::new();
         let mut seen: HashMap<Element, usize> = HashMap::new();
         for (i, part) in list.split(FAIL_SEPARATOR).enumerate() {
             if part.is_empty() {
                 return Err(Error::Usage(format!(
-                    "--fail: element {} of \"{}\" is empty (write kind:id, separated by \
+                    "{flag}: element {} of \"{}\" is empty (write kind:id, separated by \
                      `{FAIL_SEPARATOR}` with nothing around it)",
                     i + 1,
                     printable(list)
                 )));
             }
-            let e = Element::parse(part, net)?;
+            let e = Element::parse(part, net).map_err(|e| match e {
+                Error::Usage(m) if flag != "--fail" => Error::Usage(format!("{flag}: {m}")),
+                other => other,
+            })?;
             if let Some(first) = seen.insert(e, i) {
                 return Err(Error::Usage(format!(
-                    "--fail: element {} \"{}\" repeats element {}; name each element once",
+                    "{flag}: element {} \"{}\" repeats element {}; name each element once",
                     i + 1,
                     printable(part),
                     first + 1
@@ -153,6 +161,9 @@ pub struct Scenario {
     pub elements: Vec<Element>,
     /// Contract names of `elements`, sorted; empty for the baseline.
     pub failed: Vec<String>,
+    /// Elements kept down in every scenario of the run (`--down`, a maintenance window):
+    /// part of the outage, never of the name. Empty without `--down`.
+    pub down: Vec<Element>,
 }
 
 impl Scenario {
@@ -165,6 +176,7 @@ impl Scenario {
         Scenario {
             failed: pairs.iter().map(|p| p.0.clone()).collect(),
             elements: pairs.into_iter().map(|p| p.1).collect(),
+            down: Vec::new(),
         }
     }
 
@@ -172,7 +184,15 @@ impl Scenario {
         Scenario {
             elements: Vec::new(),
             failed: Vec::new(),
+            down: Vec::new(),
         }
+    }
+
+    /// The same scenario with `down` kept down as well (a maintenance window): the
+    /// outage grows, the name does not. O(|down|).
+    pub fn with_down(mut self, down: &[Element]) -> Scenario {
+        self.down = down.to_vec();
+        self
     }
 
     pub fn is_baseline(&self) -> bool {
@@ -183,7 +203,7 @@ impl Scenario {
     pub fn outage(&self, net: &Network) -> Outage {
         let mut sites = Vec::new();
         let mut links = Vec::new();
-        for e in &self.elements {
+        for e in self.elements.iter().chain(&self.down) {
             match *e {
                 Element::Link(l) => links.push(l),
                 Element::Site(s) => sites.push(s),
@@ -287,11 +307,31 @@ pub fn count(n: usize, depth: usize) -> u128 {
 /// The baseline, then every set of 1..=depth distinct elements of the chosen kinds, by
 /// size and then in [`elements`] order. Deterministic; O(count · depth).
 pub fn enumerate(net: &Network, kinds: Kinds, depth: usize) -> Vec<Scenario> {
-    let pool = elements(net, kinds);
-    let mut out = vec![Scenario::baseline()];
+    enumerate_pool(net, &elements(net, kinds), depth, &[])
+}
+
+/// The pool of a run with `down` kept down: [`elements`] of the chosen kinds without the
+/// elements already down (failing them again would change nothing). O(pool · |down|).
+pub fn pool_without(net: &Network, kinds: Kinds, down: &[Element]) -> Vec<Element> {
+    elements(net, kinds)
+        .into_iter()
+        .filter(|e| !down.contains(e))
+        .collect()
+}
+
+/// The (down-state) baseline, then every set of 1..=depth distinct elements of `pool`, by
+/// size and then in pool order, each with `down` kept down ([`Scenario::with_down`]).
+/// Deterministic; O(count · (depth + |down|)).
+pub fn enumerate_pool(
+    net: &Network,
+    pool: &[Element],
+    depth: usize,
+    down: &[Element],
+) -> Vec<Scenario> {
+    let mut out = vec![Scenario::baseline().with_down(down)];
     for k in 1..=depth.min(pool.len()) {
         for combo in pool.iter().copied().combinations(k) {
-            out.push(Scenario::new(net, &combo));
+            out.push(Scenario::new(net, &combo).with_down(down));
         }
     }
     out

@@ -2009,3 +2009,464 @@ fn a_baseline_shortfall_is_stated_and_kept_apart() {
         "baseline",
     );
 }
+
+// ---------------------------------------------------------------------------------------
+// Risk in numbers, CSV, maintenance windows, compare, plan --apply, folding
+// ---------------------------------------------------------------------------------------
+
+/// PATH_NET with failure probabilities on its three links (ab 0.01, bc 0.02, cd 0.05),
+/// none on sites or the group, and user fields (`notes`, `x-owner`) that must survive.
+fn path_net_with_probabilities() -> String {
+    let mut v: Value = serde_json::from_str(PATH_NET).unwrap();
+    for (i, p) in [0.01, 0.02, 0.05].into_iter().enumerate() {
+        v["links"][i]["failure_probability"] = Value::from(p);
+    }
+    v["notes"] = Value::from("invented test network");
+    v["sites"][0]["x-owner"] = Value::from("ops team");
+    v.to_string()
+}
+
+/// The probability that exactly `failed` of `pool` (id → p) fail, independently
+/// (the contract's formula, recomputed here).
+fn exact_probability(pool: &[(&str, f64)], failed: &[String]) -> f64 {
+    pool.iter()
+        .map(|(id, p)| {
+            if failed.iter().any(|f| f == &format!("link:{id}")) {
+                *p
+            } else {
+                1.0 - p
+            }
+        })
+        .product()
+}
+
+const PATH_POOL: &[(&str, f64)] = &[("ab", 0.01), ("bc", 0.02), ("cd", 0.05)];
+
+/// Hand computation (common practice, no source; shortfalls from PATH_NET's table):
+/// P(none) = 0.99·0.98·0.95 = 0.92169; P(ab only) = 0.01·0.98·0.95 = 0.00931; P(bc only)
+/// = 0.99·0.02·0.95 = 0.01881; P(cd only) = 0.99·0.98·0.05 = 0.04851. Expected shortfall
+/// 4·0.00931 + 6·0.01881 + 3·0.04851 = 0.29563; P(any shortfall) = 0.07663; unexamined
+/// 1 − 0.99832 = 0.00168.
+#[test]
+fn risk_numbers_by_hand_at_depth_1() {
+    let f = TempPath::with_text("risk", &path_net_with_probabilities());
+    let (run, doc) = audit_json(f.path(), &["--kinds", "links"]);
+    let r = &doc["risk"];
+    assert_near(num(r, "expected_shortfall"), 0.29563, "expected shortfall");
+    assert_near(num(r, "p_any_shortfall"), 0.07663, "P(any shortfall)");
+    assert_near(num(r, "uncovered_probability"), 0.00168, "unexamined");
+    // Bound: expected + unexamined × Σ required (11).
+    assert_near(
+        num(r, "expected_shortfall_bound"),
+        0.29563 + 0.00168 * 11.0,
+        "bound",
+    );
+    assert_near(
+        num(scenario(&doc, &["link:cd"]), "probability"),
+        0.04851,
+        "P(cd)",
+    );
+    // Most likely short first: cd (0.04851), bc, ab.
+    let likely: Vec<Vec<String>> = r["most_likely_short"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(failed_of)
+        .collect();
+    assert_eq!(
+        likely,
+        vec![vec!["link:cd"], vec!["link:bc"], vec!["link:ab"]]
+    );
+    assert!(
+        run.stdout.contains("expected shortfall 0.296 Gbit/s"),
+        "{}",
+        run.stdout
+    );
+    assert!(
+        run.stdout.contains("probability of any shortfall 0.0766"),
+        "{}",
+        run.stdout
+    );
+    assert!(
+        run.stdout.contains("left unexamined 1.68e-3"),
+        "{}",
+        run.stdout
+    );
+}
+
+/// Brute force: every one of the 2³ link states run on its own with `--fail`, weighted by
+/// its probability computed in the test, must give the depth-3 audit's expected shortfall
+/// and probability of any shortfall, with nothing left unexamined. Sites and the group
+/// carry no probability: a depth-1 audit over all kinds must say they never fail and
+/// give every scenario naming one probability 0.
+#[test]
+fn risk_agrees_with_brute_force_over_every_state() {
+    let f = TempPath::with_text("risk-bf", &path_net_with_probabilities());
+    let (_, doc) = audit_json(f.path(), &["--kinds", "links", "--depth", "3"]);
+    let (mut expected, mut any) = (0.0, 0.0);
+    for mask in 0..8u32 {
+        let failed: Vec<String> = (0..3)
+            .filter(|b| mask & (1 << b) != 0)
+            .map(|b| format!("link:{}", PATH_POOL[b].0))
+            .collect();
+        let shortfall = if failed.is_empty() {
+            num(
+                &audit_json(f.path(), &["--kinds", "links", "--depth", "0"]).1["baseline"],
+                "shortfall",
+            )
+        } else {
+            let (_, one) = audit_json(f.path(), &["--fail", &failed.join(",")]);
+            num(&scenarios(&one)[0], "shortfall")
+        };
+        let p = exact_probability(PATH_POOL, &failed);
+        expected += p * shortfall;
+        if shortfall > TOL {
+            any += p;
+        }
+    }
+    let r = &doc["risk"];
+    assert_near(
+        num(r, "expected_shortfall"),
+        expected,
+        "brute-force expectation",
+    );
+    assert_near(num(r, "p_any_shortfall"), any, "brute-force P(any)");
+    assert_near(
+        num(r, "uncovered_probability"),
+        0.0,
+        "full depth leaves nothing",
+    );
+
+    let (run, all) = audit_json(f.path(), &[]);
+    let never: Vec<&str> = all["risk"]["never_failing"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_str().unwrap())
+        .collect();
+    assert_eq!(
+        never,
+        ["site:a", "site:b", "site:c", "site:d", "group:spine"],
+        "pool elements without a probability"
+    );
+    assert_near(
+        num(scenario(&all, &["site:a"]), "probability"),
+        0.0,
+        "site:a",
+    );
+    assert!(
+        run.stdout.contains("treated as never failing"),
+        "{}",
+        run.stdout
+    );
+}
+
+/// Without any probability there is no `risk` object (nothing to weigh).
+#[test]
+fn no_probabilities_no_risk_section() {
+    let f = TempPath::with_text("norisk", PATH_NET);
+    let (run, doc) = audit_json(f.path(), &[]);
+    assert!(doc.get("risk").is_none(), "{}", doc["risk"]);
+    assert!(!run.stdout.contains("Risk ("), "{}", run.stdout);
+}
+
+/// A CSV reader for the test (RFC 4180 quoting), written here independently of the
+/// product: returns the rows after the `#` comment lines.
+fn parse_csv(text: &str) -> Vec<Vec<String>> {
+    let mut rows = Vec::new();
+    for line in text.lines().filter(|l| !l.starts_with('#')) {
+        let (mut row, mut cur, mut quoted, mut chars) =
+            (Vec::new(), String::new(), false, line.chars().peekable());
+        while let Some(c) = chars.next() {
+            match (c, quoted) {
+                ('"', true) if chars.peek() == Some(&'"') => {
+                    cur.push('"');
+                    chars.next();
+                }
+                ('"', _) => quoted = !quoted,
+                (',', false) => row.push(std::mem::take(&mut cur)),
+                (c, _) => cur.push(c),
+            }
+        }
+        row.push(cur);
+        rows.push(row);
+    }
+    rows
+}
+
+/// CSV and JSON written by the same run agree on every scenario and field (both parsed
+/// here); the CSV starts with the caution line and has one row per scenario.
+#[test]
+fn csv_agrees_with_json() {
+    let f = TempPath::with_text("csv", &path_net_with_probabilities());
+    let csv = TempPath::new("audit", "csv");
+    let (_, doc) = audit_json(f.path(), &["--depth", "2", "--close", "--csv", csv.path()]);
+    let text = std::fs::read_to_string(&csv.0).expect("csv written");
+    assert!(text.starts_with("# Caution: a planning aid"), "{text}");
+    let rows = parse_csv(&text);
+    let header = &rows[0];
+    assert_eq!(
+        rows.len() - 1,
+        scenarios(&doc).len(),
+        "one row per scenario"
+    );
+    let col = |name: &str| {
+        header
+            .iter()
+            .position(|h| h == name)
+            .unwrap_or_else(|| panic!("no column {name}"))
+    };
+    for (row, sc) in rows[1..].iter().zip(scenarios(&doc)) {
+        assert_eq!(
+            row[col("failed")],
+            failed_of(sc).join(","),
+            "same order and names"
+        );
+        for field in [
+            "served_required",
+            "shortfall",
+            "stranded",
+            "throughput",
+            "probability",
+        ] {
+            let got: f64 = row[col(field)].parse().unwrap();
+            assert_eq!(got, num(sc, field), "{field} of {:?}", failed_of(sc));
+        }
+        assert_eq!(row[col("rank")], sc["rank"].to_string());
+        match sc["closing"].as_object() {
+            Some(c) => assert_eq!(
+                row[col("closing_cost")].parse::<f64>().unwrap(),
+                c["cost"].as_f64().unwrap()
+            ),
+            None => assert_eq!(row[col("closing_cost")], ""),
+        }
+        let same_as = sc
+            .get("same_as")
+            .map(|v| failed_of(&serde_json::json!({"failed": v})).join(","));
+        assert_eq!(row[col("same_as")], same_as.unwrap_or_default());
+    }
+}
+
+/// Maintenance window on PATH_NET with link bc down. Hand computation (common practice,
+/// no source): the down state is PATH_NET's `link:bc` row (served 5, shortfall 6); with ab
+/// failing too, only c→d (2) is served: shortfall 9; with cd failing too, only a→b (3):
+/// shortfall 8. Every scenario must equal `--fail` of the union.
+#[test]
+fn down_keeps_elements_down_in_every_scenario() {
+    let f = TempPath::with_text("down", PATH_NET);
+    let (run, doc) = audit_json(f.path(), &["--down", "link:bc"]);
+    assert_eq!(doc["down"], serde_json::json!(["link:bc"]));
+    assert!(
+        run.stdout.contains("Maintenance window: link:bc"),
+        "{}",
+        run.stdout
+    );
+    assert_near(num(&doc["baseline"], "shortfall"), 6.0, "down state");
+    assert_near(
+        num(scenario(&doc, &["link:ab"]), "shortfall"),
+        9.0,
+        "ab during bc",
+    );
+    assert_near(
+        num(scenario(&doc, &["link:cd"]), "shortfall"),
+        8.0,
+        "cd during bc",
+    );
+    for sc in scenarios(&doc) {
+        let failed = failed_of(sc);
+        assert!(
+            !failed.contains(&"link:bc".to_string()),
+            "down is not named: {failed:?}"
+        );
+        let mut union = failed.clone();
+        union.push("link:bc".into());
+        let (_, one) = audit_json(f.path(), &["--fail", &union.join(",")]);
+        let want = &scenarios(&one)[0];
+        assert_eq!(
+            contract_fields(sc),
+            contract_fields(want),
+            "{failed:?} vs --fail {union:?}"
+        );
+    }
+    let again = redoubt(&[
+        "audit",
+        f.path(),
+        "--quiet",
+        "--down",
+        "link:bc",
+        "--fail",
+        "link:bc",
+    ]);
+    assert_eq!(again.code, 2, "a failure of a down element is refused");
+    let bad = redoubt(&["audit", f.path(), "--quiet", "--down", "link:zz"]);
+    assert_eq!(bad.code, 2);
+    assert!(bad.stderr.contains("--down"), "{}", bad.stderr);
+}
+
+/// `compare`: removing link bc, which PATH_NET needs (hand table: its failure costs 6),
+/// fails the check (exit 1); the baseline got worse 0 → 6; scenarios naming link:bc are
+/// removed risks; an identical copy passes (exit 0) with nothing worse or better, and a
+/// tolerance above the worst increase passes too.
+#[test]
+fn compare_gates_a_change_that_removes_a_needed_link() {
+    let before = TempPath::with_text("before", PATH_NET);
+    let mut v: Value = serde_json::from_str(PATH_NET).unwrap();
+    v["links"].as_array_mut().unwrap().remove(1);
+    let after = TempPath::with_text("after", &v.to_string());
+    let copy = TempPath::with_text("copy", PATH_NET);
+    let out = TempPath::new("compare", "json");
+
+    let run = redoubt(&[
+        "compare",
+        before.path(),
+        after.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(run.code, 1, "{}\n{}", run.stdout, run.stderr);
+    assert!(run.stdout.starts_with("FAIL compare"), "{}", run.stdout);
+    let doc = out.read_json();
+    assert_eq!(doc["passed"], false);
+    let base = doc["worse"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| failed_of(c).is_empty())
+        .expect("the baseline got worse");
+    assert_near(num(base, "delta_shortfall"), 6.0, "baseline 0 → 6");
+    let removed: Vec<Vec<String>> = doc["removed_risks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(failed_of)
+        .collect();
+    assert_eq!(removed, vec![vec!["link:bc".to_string()]]);
+    assert_eq!(doc["elements_removed"], serde_json::json!(["link:bc"]));
+
+    let same = redoubt(&[
+        "compare",
+        before.path(),
+        copy.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(same.code, 0, "{}\n{}", same.stdout, same.stderr);
+    let doc = out.read_json();
+    assert_eq!(doc["worse"].as_array().unwrap().len(), 0);
+    assert_eq!(doc["better"].as_array().unwrap().len(), 0);
+    assert_eq!(
+        doc["matched_scenarios"],
+        1 + 3 + 4 + 1,
+        "baseline, links, sites, group"
+    );
+
+    let loose = redoubt(&[
+        "compare",
+        before.path(),
+        after.path(),
+        "--quiet",
+        "--tolerance",
+        "100",
+    ]);
+    assert_eq!(loose.code, 0, "{}", loose.stdout);
+    assert!(loose.stdout.contains("Caution:"), "{}", loose.stdout);
+}
+
+/// `plan --apply`: the written network passes `check`, keeps the user's fields, and
+/// re-auditing it gives each scenario the plan's shortfall after (EXPAND_NET: the plan adds
+/// b +3, c +3, hand-computed in `close_json_contract_by_hand`).
+#[test]
+fn plan_apply_writes_a_network_that_reaudits_to_the_plan() {
+    let mut v: Value = serde_json::from_str(EXPAND_NET).unwrap();
+    v["notes"] = Value::from("keep this note");
+    v["sites"][1]["x-rack"] = Value::from("r7");
+    let f = TempPath::with_text("apply-in", &v.to_string());
+    let plan_out = TempPath::new("apply-plan", "json");
+    let applied = TempPath::new("applied", "json");
+    let run = redoubt(&[
+        "plan",
+        f.path(),
+        "--quiet",
+        "--json",
+        plan_out.path(),
+        "--apply",
+        applied.path(),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let check = redoubt(&["check", applied.path()]);
+    assert_eq!(check.code, 0, "{}", check.stderr);
+    let written = applied.read_json();
+    assert_eq!(written["notes"], "keep this note");
+    assert_eq!(written["sites"][1]["x-rack"], "r7");
+    assert_near(num(&written["sites"][1], "processing"), 3.0, "b +3");
+    assert_near(num(&written["sites"][2], "processing"), 3.0, "c +3");
+    assert_near(
+        num(&written["sites"][2], "expand_max"),
+        0.0,
+        "c's headroom used up",
+    );
+    let plan = plan_out.read_json();
+    let (_, re) = audit_json(applied.path(), &[]);
+    for row in scenarios(&plan) {
+        let failed: Vec<String> = failed_of(row);
+        let names: Vec<&str> = failed.iter().map(String::as_str).collect();
+        assert_near(
+            num(scenario(&re, &names), "shortfall"),
+            num(row, "shortfall_after"),
+            &format!("{failed:?} re-audited"),
+        );
+    }
+    let same = redoubt(&["plan", f.path(), "--quiet", "--apply", f.path()]);
+    assert_eq!(same.code, 2, "--apply onto the input is refused");
+}
+
+/// Folding at depth 2 (links and groups) on PATH_NET, recomputed here from the fixture:
+/// each scenario's failed link set (groups expanded); a scenario is folded when a
+/// scenario with fewer elements has the same set, `same_as` naming the first such with the
+/// fewest elements. By hand: `group:spine` = {ab, cd} takes `group:spine + link:ab`,
+/// `group:spine + link:cd` and `link:ab + link:cd`: "+3 equivalent".
+#[test]
+fn depth_2_folds_equivalent_scenarios() {
+    let f = TempPath::with_text("fold", PATH_NET);
+    let (run, doc) = audit_json(f.path(), &["--depth", "2", "--kinds", "links,groups"]);
+    let links_of = |failed: &[String]| -> BTreeSet<String> {
+        failed
+            .iter()
+            .flat_map(|n| match n.as_str() {
+                "group:spine" => vec!["ab".to_string(), "cd".to_string()],
+                other => vec![other.trim_start_matches("link:").to_string()],
+            })
+            .collect()
+    };
+    let all = scenarios(&doc);
+    let mut folded = 0;
+    for sc in all {
+        let failed = failed_of(sc);
+        let set = links_of(&failed);
+        let smallest = all
+            .iter()
+            .map(failed_of)
+            .filter(|g| links_of(g) == set)
+            .min_by_key(|g| g.len())
+            .unwrap();
+        let want = (smallest.len() < failed.len()).then_some(smallest);
+        let got = sc
+            .get("same_as")
+            .map(|v| failed_of(&serde_json::json!({"failed": v})));
+        assert_eq!(got, want, "{failed:?}");
+        folded += usize::from(got.is_some());
+    }
+    assert_eq!(folded, 3);
+    assert!(
+        run.stdout.contains("group:spine (+3 equivalent)"),
+        "{}",
+        run.stdout
+    );
+    assert!(
+        !run.stdout.contains("link:ab + link:cd "),
+        "folded rows are not listed:\n{}",
+        run.stdout
+    );
+}

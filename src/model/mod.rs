@@ -1,6 +1,7 @@
 //! The network: the file types ([`file`](mod@file)), strict reading ([`strict`]) and the validated
 //! model ([`network`]).
 
+pub mod apply;
 pub mod file;
 pub mod network;
 pub mod strict;

@@ -7,7 +7,7 @@ use std::io::{self, Write};
 
 use serde::Serialize;
 
-use super::{CAUTION, round9};
+use super::{CAUTION, prob, round9};
 use crate::audit::Audit;
 use crate::model::Network;
 use crate::rank;
@@ -20,9 +20,15 @@ pub struct AuditJson {
     /// `best`, `nearest` or `steered` (`--routing`).
     pub routing: &'static str,
     pub caution: &'static str,
+    /// Elements kept down in every scenario (`--down`); absent without it.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub down: Vec<String>,
     pub baseline: ScenarioJson,
     pub scenarios: Vec<ScenarioJson>,
     pub criticality: Vec<CriticalityJson>,
+    /// Risk figures under independent failures, when some pool element has a probability.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub risk: Option<RiskJson>,
     /// The gates asked for (absent when none).
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub gates: Vec<GateJson>,
@@ -100,6 +106,60 @@ pub struct ScenarioJson {
     /// Under `--routing nearest|steered`: utilisation, overloads, the best re-route.
     #[serde(flatten)]
     pub routed: Option<super::routing::RoutedScenarioJson>,
+    /// Probability that exactly this scenario's elements fail (with `risk`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub probability: Option<f64>,
+    /// The failed list of the smallest scenario with the same outage, when this one is
+    /// folded into it (tables list it there as an equivalent).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub same_as: Option<Vec<String>>,
+}
+
+/// The `risk` object of an audit document (see [`crate::risk`]).
+#[derive(Serialize)]
+pub struct RiskJson {
+    pub expected_shortfall: f64,
+    /// Upper bound on the expectation over every state (unexamined ones short by all).
+    pub expected_shortfall_bound: f64,
+    pub p_any_shortfall: f64,
+    pub covered_probability: f64,
+    pub uncovered_probability: f64,
+    /// Pool elements without a probability: treated as never failing for these sums.
+    pub never_failing: Vec<String>,
+    pub most_likely_short: Vec<LikelyJson>,
+    pub assumption: &'static str,
+}
+
+#[derive(Serialize)]
+pub struct LikelyJson {
+    pub failed: Vec<String>,
+    pub probability: f64,
+    pub shortfall: f64,
+}
+
+/// The risk object; also sets each scenario's `probability`.
+pub fn attach_risk(doc: &mut AuditJson, net: &Network, audit: &Audit, r: &crate::risk::Risk) {
+    for (sc, &p) in doc.scenarios.iter_mut().zip(&r.probability) {
+        sc.probability = Some(prob(p));
+    }
+    doc.risk = Some(RiskJson {
+        expected_shortfall: prob(r.expected_shortfall),
+        expected_shortfall_bound: prob(r.expected_shortfall_bound),
+        p_any_shortfall: prob(r.p_any_shortfall),
+        covered_probability: prob(r.covered_probability),
+        uncovered_probability: prob(r.uncovered_probability),
+        never_failing: r.without_probability.iter().map(|e| e.name(net)).collect(),
+        most_likely_short: r
+            .most_likely_short
+            .iter()
+            .map(|&i| LikelyJson {
+                failed: audit.scenarios[i].failed.clone(),
+                probability: prob(r.probability[i]),
+                shortfall: round9(audit.eval(i).shortfall),
+            })
+            .collect(),
+        assumption: crate::risk::ASSUMPTION,
+    });
 }
 
 /// The verifier's account of one LP result.
@@ -257,6 +317,8 @@ pub fn scenario_json(
             .collect(),
         closing: None,
         routed: None,
+        probability: None,
+        same_as: None,
     }
 }
 
@@ -272,6 +334,7 @@ pub fn audit_json(
     for (r, &i) in order.iter().enumerate() {
         rank_of[i] = r + 1;
     }
+    let folding = crate::fold::Folding::of(audit);
     let scenarios = audit
         .scenarios
         .iter()
@@ -279,6 +342,7 @@ pub fn audit_json(
         .map(|(i, s)| {
             let mut j = scenario_json(net, &s.failed, audit.eval(i), baseline, rank_of[i]);
             j.closing = closing.map(|c| c[i].clone());
+            j.same_as = folding.into[i].map(|r| audit.scenarios[r].failed.clone());
             j
         })
         .collect();
@@ -287,6 +351,12 @@ pub fn audit_json(
         unit: net.unit.clone(),
         routing: "best",
         caution: CAUTION,
+        down: audit
+            .scenarios
+            .first()
+            .map(|s| s.down.iter().map(|e| e.name(net)).collect())
+            .unwrap_or_default(),
+        risk: None,
         baseline: scenario_json(net, &[], baseline, baseline, 0),
         scenarios,
         criticality: rank::criticality(audit)
@@ -460,5 +530,118 @@ pub fn plan_json(
                 }
             })
             .collect(),
+    }
+}
+
+/// The four contract values of one side of a comparison.
+#[derive(Serialize)]
+pub struct ValuesJson {
+    pub served_required: f64,
+    pub shortfall: f64,
+    pub stranded: f64,
+    pub throughput: f64,
+}
+
+impl ValuesJson {
+    fn of(v: &crate::compare::Values) -> ValuesJson {
+        ValuesJson {
+            served_required: round9(v.served_required),
+            shortfall: round9(v.shortfall),
+            stranded: round9(v.stranded),
+            throughput: round9(v.throughput),
+        }
+    }
+}
+
+#[derive(Serialize)]
+pub struct ChangeJson {
+    pub failed: Vec<String>,
+    pub before: ValuesJson,
+    pub after: ValuesJson,
+    pub delta_shortfall: f64,
+    pub delta_stranded: f64,
+}
+
+#[derive(Serialize)]
+pub struct OneSidedJson {
+    pub failed: Vec<String>,
+    #[serde(flatten)]
+    pub values: ValuesJson,
+}
+
+#[derive(Serialize)]
+pub struct CompareJson {
+    pub caution: &'static str,
+    pub before: String,
+    pub after: String,
+    pub unit: String,
+    pub tolerance: f64,
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub down: Vec<String>,
+    /// No scenario got worse by more than the tolerance.
+    pub passed: bool,
+    pub baseline: ChangeJson,
+    pub matched_scenarios: usize,
+    pub worse: Vec<ChangeJson>,
+    pub better: Vec<ChangeJson>,
+    pub added_risks: Vec<OneSidedJson>,
+    pub removed_risks: Vec<OneSidedJson>,
+    pub elements_added: Vec<String>,
+    pub elements_removed: Vec<String>,
+}
+
+fn change_json(c: &crate::compare::Change) -> ChangeJson {
+    ChangeJson {
+        failed: c.failed.clone(),
+        before: ValuesJson::of(&c.before),
+        after: ValuesJson::of(&c.after),
+        delta_shortfall: round9(c.delta_shortfall),
+        delta_stranded: round9(c.delta_stranded),
+    }
+}
+
+fn one_sided_json(v: &[crate::compare::OneSided]) -> Vec<OneSidedJson> {
+    v.iter()
+        .map(|o| OneSidedJson {
+            failed: o.failed.clone(),
+            values: ValuesJson::of(&o.values),
+        })
+        .collect()
+}
+
+/// The `compare --json` document; `before`/`after` are the two baselines.
+pub fn compare_json(
+    c: &crate::compare::Comparison,
+    before: &Evaluation,
+    after: &Evaluation,
+) -> CompareJson {
+    use crate::compare::{Change, Values};
+    let base = Change {
+        failed: Vec::new(),
+        before: Values::of(before),
+        after: Values::of(after),
+        delta_shortfall: super::displayed(
+            super::displayed(after.shortfall) - super::displayed(before.shortfall),
+        ),
+        delta_stranded: super::displayed(
+            super::displayed(after.stranded) - super::displayed(before.stranded),
+        ),
+    };
+    CompareJson {
+        caution: CAUTION,
+        before: c.before_name.clone(),
+        after: c.after_name.clone(),
+        unit: c.unit.clone(),
+        tolerance: c.tolerance,
+        down: c.down.clone(),
+        passed: c.passed(),
+        baseline: change_json(&base),
+        matched_scenarios: c.matched,
+        worse: c.worse.iter().map(change_json).collect(),
+        better: c.better.iter().map(change_json).collect(),
+        added_risks: one_sided_json(&c.added_risks),
+        removed_risks: one_sided_json(&c.removed_risks),
+        elements_added: c.elements_added.clone(),
+        elements_removed: c.elements_removed.clone(),
     }
 }

@@ -4,6 +4,7 @@
 //!
 //! Every exporter writes to a `&mut dyn Write` it is given; nothing here prints.
 
+pub mod csv;
 pub mod file;
 pub mod journal;
 pub mod json;
@@ -13,7 +14,44 @@ pub mod text;
 /// The caution every report carries.
 pub const CAUTION: &str = "Caution: a planning aid under the model's assumptions (fluid, splittable \
 traffic; the capacities in the file; one processing step per unit); it does not replace the \
-operator's own engineering review and change procedures.";
+operator's own engineering review, change procedures and local rules.";
+
+/// A probability for files: 15 significant digits (small probabilities would vanish
+/// under [`round9`]), so the last digits of summation noise do not show. O(1).
+pub fn prob(x: f64) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    format!("{x:.14e}").parse().unwrap_or(x)
+}
+
+/// A probability for people: `0`, four decimals from 0.01 on (`0.0199`), else three
+/// significant digits in scientific notation (`1.23e-5`). O(1).
+pub fn probability(p: f64) -> String {
+    if p == 0.0 {
+        "0".into()
+    } else if p >= 1e-2 {
+        trimmed4(p)
+    } else {
+        format!("{p:.2e}")
+    }
+}
+
+/// A small expected amount for people: [`num`] from 0.001 on, else three significant
+/// digits in scientific notation (an expected shortfall is often tiny). O(1).
+pub fn sig(x: f64) -> String {
+    if x == 0.0 || x.abs() >= 1e-3 {
+        num(x)
+    } else {
+        format!("{x:.2e}")
+    }
+}
+
+fn trimmed4(x: f64) -> String {
+    let s = format!("{x:.4}");
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    s.into()
+}
 
 /// From this magnitude on, [`num`] prints engineering notation (`1.5e12`).
 pub const ENGINEERING_FROM: f64 = 1e9;

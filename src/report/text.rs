@@ -237,6 +237,19 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         num(net.total_volume()),
         small(baseline.certified_gap())
     );
+    let down: Vec<String> = audit
+        .scenarios
+        .first()
+        .map(|s| s.down.iter().map(|e| e.name(net)).collect())
+        .unwrap_or_default();
+    if !down.is_empty() {
+        let _ = writeln!(
+            out,
+            "Maintenance window: {} kept down in every scenario; the baseline is that state and \
+             each scenario names only the further failures.",
+            down.join(", ")
+        );
+    }
     let base_short = baseline.shortfall > 0.0;
     if base_short {
         let _ = writeln!(
@@ -253,7 +266,12 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             );
         }
     }
-    let order = rank::worst_first(audit);
+    let folding = crate::fold::Folding::of(audit);
+    let all = rank::worst_first(audit).len();
+    let order: Vec<usize> = rank::worst_first(audit)
+        .into_iter()
+        .filter(|&i| folding.into[i].is_none())
+        .collect();
     let shown = top.min(order.len());
     let shortfall_head = format!("shortfall ({u})");
     let mut header: Vec<&str> = vec!["#", "failed", &shortfall_head];
@@ -274,7 +292,10 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         let e = audit.eval(i);
         let mut row = vec![
             Cell::new(rank_no + 1),
-            Cell::new(audit.scenarios[i].display_name()),
+            Cell::new(match folding.equivalents[i] {
+                0 => audit.scenarios[i].display_name(),
+                n => format!("{} (+{n} equivalent)", audit.scenarios[i].display_name()),
+            }),
             Cell::new(num(e.shortfall)),
         ];
         if base_short {
@@ -298,10 +319,17 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     let short = (0..audit.scenarios.len())
         .filter(|&i| audit.eval(i).shortfall > 0.0)
         .count();
+    let folded = folding.folded();
     let _ = writeln!(
         out,
-        "\nWorst {shown} of {} scenarios ({short} with a shortfall against required demand):",
-        order.len()
+        "\nWorst {shown} of {all} scenarios ({short} with a shortfall against required demand{}):",
+        match folded {
+            0 => String::new(),
+            1 => "; 1 scenario is the same outage as a smaller one and is folded into it".into(),
+            f => format!(
+                "; {f} scenarios are the same outage as a smaller one and are folded into it"
+            ),
+        }
     );
     let _ = writeln!(out, "{t}");
     if short > 0 {
@@ -352,6 +380,66 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             );
         }
     }
+    out
+}
+
+/// The risk section: expected shortfall (with its bound), the probability of any
+/// shortfall, the most likely short scenarios and the probability left unexamined, under
+/// [`crate::risk::ASSUMPTION`].
+pub fn risk_report(net: &Network, audit: &Audit, r: &crate::risk::Risk) -> String {
+    let u = &net.unit;
+    let mut out = String::new();
+    let _ = writeln!(out, "\nRisk (assumption: {}):", crate::risk::ASSUMPTION);
+    let _ = writeln!(
+        out,
+        "  expected shortfall {} {u} over the scenarios examined (at most {} {u} counting the \
+         unexamined states as short by all required demand)",
+        super::sig(r.expected_shortfall),
+        super::sig(r.expected_shortfall_bound)
+    );
+    let _ = writeln!(
+        out,
+        "  probability of any shortfall {} (examined scenarios)",
+        super::probability(r.p_any_shortfall)
+    );
+    let _ = writeln!(
+        out,
+        "  probability the chosen depth left unexamined {}",
+        super::probability(r.uncovered_probability)
+    );
+    if !r.without_probability.is_empty() {
+        let n = r.without_probability.len();
+        let _ = writeln!(
+            out,
+            "  {n} element{} without failure_probability, treated as never failing: {}",
+            if n == 1 { "" } else { "s" },
+            first_k(r.without_probability.iter().map(|e| e.name(net)), 5)
+        );
+    }
+    if r.most_likely_short.is_empty() {
+        let _ = writeln!(
+            out,
+            "  no examined scenario with a shortfall has a positive probability"
+        );
+        return out;
+    }
+    let mut t = table(&[
+        "most likely short",
+        "probability",
+        &format!("shortfall ({u})"),
+        &format!("share of expected ({u})"),
+    ]);
+    for &i in &r.most_likely_short {
+        let e = audit.eval(i);
+        t.add_row(vec![
+            Cell::new(audit.scenarios[i].display_name()),
+            Cell::new(super::probability(r.probability[i])),
+            Cell::new(num(e.shortfall)),
+            Cell::new(super::sig(r.probability[i] * e.shortfall)),
+        ]);
+    }
+    right(&mut t, &[1, 2, 3]);
+    let _ = writeln!(out, "{t}");
     out
 }
 
@@ -754,13 +842,16 @@ pub struct ClosingPart<'a> {
 }
 
 /// The `audit` exporter: header and worst scenarios, where one more unit helps, the
-/// closings (with `--close`), one line per gate, and the caution, in that order.
+/// closings (with `--close`), the risk figures (when probabilities are given), one line
+/// per gate, and the caution, in that order.
+#[allow(clippy::too_many_arguments)] // each part is optional and independent
 pub fn write_audit(
     w: &mut dyn Write,
     net: &Network,
     audit: &Audit,
     baseline: &Evaluation,
     closing: Option<ClosingPart<'_>>,
+    risk: Option<&crate::risk::Risk>,
     gates: &[GateResult],
     top: usize,
 ) -> io::Result<()> {
@@ -768,6 +859,9 @@ pub fn write_audit(
     w.write_all(relief_report(net, audit, top).as_bytes())?;
     if let Some(c) = closing {
         w.write_all(closing_report(net, audit, c.closings, c.default_costs, top).as_bytes())?;
+    }
+    if let Some(r) = risk {
+        w.write_all(risk_report(net, audit, r).as_bytes())?;
     }
     if !gates.is_empty() {
         writeln!(w)?;
@@ -892,5 +986,163 @@ pub fn note_journal_failed(w: &mut dyn Write, why: &str) -> io::Result<()> {
         w,
         "redoubt: note: journaling stopped ({why}); an interrupted run would resume from \
          what was saved before"
+    )
+}
+
+/// `baseline` for an empty failed list, else the names joined with ` + `.
+fn scenario_words(failed: &[String]) -> String {
+    if failed.is_empty() {
+        "baseline".into()
+    } else {
+        failed.join(" + ")
+    }
+}
+
+/// A signed change as printed: `+2`, `-1.5`, `0`.
+fn signed(x: f64) -> String {
+    if x > 0.0 {
+        format!("+{}", num(x))
+    } else {
+        num(x)
+    }
+}
+
+/// The `compare` exporter: the verdict first, the baselines, the scenarios that got worse
+/// and better, the added and removed risks, the elements added and removed, the caution.
+/// `before`/`after` are the two baselines (with `--down`, the down states).
+pub fn write_compare(
+    w: &mut dyn Write,
+    c: &crate::compare::Comparison,
+    before: &Evaluation,
+    after: &Evaluation,
+    top: usize,
+) -> io::Result<()> {
+    let u = &c.unit;
+    let plural = |n: usize| if n == 1 { "" } else { "s" };
+    let verdict = if c.passed() { "PASS" } else { "FAIL" };
+    writeln!(
+        w,
+        "{verdict} compare: {} of {} matched scenario{} got worse by more than {} {u} \
+         (shortfall or stranded, as printed); {} better; {} added risk{}, {} removed.",
+        c.worse.len(),
+        c.matched,
+        plural(c.matched),
+        num(c.tolerance),
+        c.better.len(),
+        c.added_risks.len(),
+        plural(c.added_risks.len()),
+        c.removed_risks.len()
+    )?;
+    writeln!(
+        w,
+        "Before: {}; after: {}.{}",
+        c.before_name,
+        c.after_name,
+        if c.down.is_empty() {
+            String::new()
+        } else {
+            format!(" Kept down on both sides: {}.", c.down.join(", "))
+        }
+    )?;
+    writeln!(
+        w,
+        "Baseline shortfall {} → {} {u}, stranded {} → {} {u}, throughput {} → {} {u}.",
+        num(before.shortfall),
+        num(after.shortfall),
+        num(before.stranded),
+        num(after.stranded),
+        num(before.throughput),
+        num(after.throughput)
+    )?;
+    let changes = |title: &str, list: &[crate::compare::Change]| -> String {
+        let mut t = table(&[
+            "failed",
+            "shortfall before",
+            "after",
+            "change",
+            "stranded before",
+            "after",
+        ]);
+        for ch in list.iter().take(top) {
+            t.add_row(vec![
+                Cell::new(scenario_words(&ch.failed)),
+                Cell::new(num(ch.before.shortfall)),
+                Cell::new(num(ch.after.shortfall)),
+                Cell::new(signed(ch.delta_shortfall)),
+                Cell::new(num(ch.before.stranded)),
+                Cell::new(num(ch.after.stranded)),
+            ]);
+        }
+        right(&mut t, &[1, 2, 3, 4, 5]);
+        format!(
+            "\n{title} ({} scenario{}, top {}; amounts in {u}):\n{t}\n",
+            list.len(),
+            plural(list.len()),
+            top.min(list.len())
+        )
+    };
+    if !c.worse.is_empty() {
+        w.write_all(changes("Got worse", &c.worse).as_bytes())?;
+    }
+    if !c.better.is_empty() {
+        w.write_all(changes("Got better", &c.better).as_bytes())?;
+    }
+    let sided = |title: &str, list: &[crate::compare::OneSided]| -> String {
+        let mut t = table(&[
+            "failed",
+            &format!("shortfall ({u})"),
+            &format!("stranded ({u})"),
+        ]);
+        for o in list.iter().take(top) {
+            t.add_row(vec![
+                Cell::new(scenario_words(&o.failed)),
+                Cell::new(num(o.values.shortfall)),
+                Cell::new(num(o.values.stranded)),
+            ]);
+        }
+        right(&mut t, &[1, 2]);
+        format!(
+            "\n{title} ({} scenario{}, top {}):\n{t}\n",
+            list.len(),
+            plural(list.len()),
+            top.min(list.len())
+        )
+    };
+    if !c.added_risks.is_empty() {
+        w.write_all(
+            sided(
+                "Added risks: scenarios that name an element only the new network has",
+                &c.added_risks,
+            )
+            .as_bytes(),
+        )?;
+    }
+    if !c.removed_risks.is_empty() {
+        w.write_all(
+            sided(
+                "Removed risks: scenarios that name an element the new network no longer has",
+                &c.removed_risks,
+            )
+            .as_bytes(),
+        )?;
+    }
+    writeln!(
+        w,
+        "\nElements added: {}.\nElements removed: {}.",
+        first_k(c.elements_added.iter().cloned(), 10),
+        first_k(c.elements_removed.iter().cloned(), 10)
+    )?;
+    w.write_all(caution().as_bytes())
+}
+
+/// A note on stderr: `plan --apply` wrote the network with the purchase added.
+pub fn note_applied(w: &mut dyn Write, path: &std::path::Path, add: &[f64]) -> io::Result<()> {
+    let sites = add.iter().filter(|a| **a > 0.0).count();
+    writeln!(
+        w,
+        "redoubt: wrote {} with the purchase added ({sites} site{} with more processing); \
+         audit it to review the change",
+        path.display(),
+        if sites == 1 { "" } else { "s" }
     )
 }
