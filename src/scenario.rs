@@ -287,14 +287,21 @@ pub fn count(n: usize, depth: usize) -> u128 {
 /// The baseline, then every set of 1..=depth distinct elements of the chosen kinds, by
 /// size and then in [`elements`] order. Deterministic; O(count · depth).
 pub fn enumerate(net: &Network, kinds: Kinds, depth: usize) -> Vec<Scenario> {
+    lazy(net, kinds, depth).collect()
+}
+
+/// [`enumerate`] as an iterator: yields the same scenarios in the same order, one at a
+/// time, holding only the element pool and one combination (memory O(pool + depth),
+/// whatever the count). Each item costs O(depth · log depth) plus its names.
+pub fn lazy(net: &Network, kinds: Kinds, depth: usize) -> impl Iterator<Item = Scenario> + '_ {
     let pool = elements(net, kinds);
-    let mut out = vec![Scenario::baseline()];
-    for k in 1..=depth.min(pool.len()) {
-        for combo in pool.iter().copied().combinations(k) {
-            out.push(Scenario::new(net, &combo));
-        }
-    }
-    out
+    let top = depth.min(pool.len());
+    std::iter::once(Scenario::baseline()).chain((1..=top).flat_map(move |k| {
+        pool.clone()
+            .into_iter()
+            .combinations(k)
+            .map(|combo| Scenario::new(net, &combo))
+    }))
 }
 
 /// Groups scenarios by outage: returns the distinct outages (in first-seen order) and,

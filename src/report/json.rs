@@ -14,12 +14,12 @@ use crate::rank;
 use crate::solve::{Evaluation, Resource};
 
 #[derive(Serialize)]
-pub struct AuditJson {
+pub struct AuditJson<'a> {
     pub network: String,
     pub unit: String,
     pub caution: &'static str,
     pub baseline: ScenarioJson,
-    pub scenarios: Vec<ScenarioJson>,
+    pub scenarios: LazyScenarios<'a>,
     pub criticality: Vec<CriticalityJson>,
     /// The gates asked for (absent when none).
     #[serde(skip_serializing_if = "Vec::is_empty")]
@@ -254,28 +254,96 @@ pub fn scenario_json(
     }
 }
 
+/// Outage `k`'s full evaluation, for documents built from thin audits.
+pub type Full<'a> = &'a (dyn Fn(usize) -> crate::error::Result<Evaluation> + Sync);
+
+/// The `scenarios` array of an audit document, built one scenario at a time while it is
+/// written (so a document of any length needs memory for one scenario): serialises exactly
+/// like the `Vec<ScenarioJson>` it stands for.
+pub struct LazyScenarios<'a> {
+    net: &'a Network,
+    audit: &'a Audit,
+    baseline: &'a Evaluation,
+    closing: Option<&'a [serde_json::Value]>,
+    rank_of: Vec<usize>,
+    full: Full<'a>,
+}
+
+impl LazyScenarios<'_> {
+    /// Scenario `i`'s object. O(demands + sites + its lists).
+    pub fn get(&self, i: usize) -> crate::error::Result<ScenarioJson> {
+        let k = self.audit.outage_of[i];
+        let held = self.audit.eval(i);
+        let fetched;
+        let e = if held.is_thin(self.net) {
+            fetched = (self.full)(k)?;
+            &fetched
+        } else {
+            held
+        };
+        let mut j = scenario_json(
+            self.net,
+            &self.audit.scenarios[i].failed,
+            e,
+            self.baseline,
+            self.rank_of[i],
+        );
+        j.closing = self.closing.map(|c| c[i].clone());
+        Ok(j)
+    }
+}
+
+impl Serialize for LazyScenarios<'_> {
+    fn serialize<S: serde::Serializer>(&self, ser: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::{Error as _, SerializeSeq};
+        let n = self.audit.scenarios.len();
+        let mut seq = ser.serialize_seq(Some(n))?;
+        for i in 0..n {
+            let j = self.get(i).map_err(S::Error::custom)?;
+            seq.serialize_element(&j)?;
+        }
+        seq.end()
+    }
+}
+
 /// The whole audit document; `closing[i]`, when given, is attached to scenario `i`.
-pub fn audit_json(
-    net: &Network,
-    audit: &Audit,
-    baseline: &Evaluation,
-    closing: Option<&[serde_json::Value]>,
-) -> AuditJson {
+/// Every evaluation must be full ([`audit_json_with`] reads thin ones back).
+pub fn audit_json<'a>(
+    net: &'a Network,
+    audit: &'a Audit,
+    baseline: &'a Evaluation,
+    closing: Option<&'a [serde_json::Value]>,
+) -> AuditJson<'a> {
+    audit_json_with(net, audit, baseline, closing, &|k| {
+        Err(crate::error::Error::Usage(format!(
+            "internal: outage {k} has no full evaluation"
+        )))
+    })
+}
+
+/// [`audit_json`] for an audit of thin evaluations ([`Evaluation::thin`]): `full(k)`
+/// gives outage `k`'s full evaluation while the document is written, and `baseline` must
+/// be full. O(scenarios · log scenarios) to rank; the scenarios are built as written.
+pub fn audit_json_with<'a>(
+    net: &'a Network,
+    audit: &'a Audit,
+    baseline: &'a Evaluation,
+    closing: Option<&'a [serde_json::Value]>,
+    full: Full<'a>,
+) -> AuditJson<'a> {
     let order = rank::worst_first(audit);
     let mut rank_of = vec![0; order.len()];
     for (r, &i) in order.iter().enumerate() {
         rank_of[i] = r + 1;
     }
-    let scenarios = audit
-        .scenarios
-        .iter()
-        .enumerate()
-        .map(|(i, s)| {
-            let mut j = scenario_json(net, &s.failed, audit.eval(i), baseline, rank_of[i]);
-            j.closing = closing.map(|c| c[i].clone());
-            j
-        })
-        .collect();
+    let scenarios = LazyScenarios {
+        net,
+        audit,
+        baseline,
+        closing,
+        rank_of,
+        full,
+    };
     AuditJson {
         network: net.name.clone(),
         unit: net.unit.clone(),
@@ -296,9 +364,11 @@ pub fn audit_json(
     }
 }
 
-/// The JSON exporter: any report document as pretty JSON with a trailing newline, to `w`.
+/// The JSON exporter: any report document as pretty JSON with a trailing newline, to `w`,
+/// streamed (byte-identical to [`to_string`]).
 pub fn write<T: Serialize>(w: &mut dyn Write, doc: &T) -> io::Result<()> {
-    w.write_all(to_string(doc).as_bytes())
+    serde_json::to_writer_pretty(&mut *w, doc).map_err(io::Error::other)?;
+    w.write_all(b"\n")
 }
 
 /// Serialises any report document as pretty JSON with a trailing newline.

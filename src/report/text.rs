@@ -10,6 +10,7 @@ use super::{CAUTION, num, percent, small};
 use crate::audit::Audit;
 use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
+use crate::model::strict::printable;
 use crate::rank::{self, Criticality};
 use crate::solve::{Evaluation, Resource, Unservable};
 
@@ -835,6 +836,22 @@ pub fn note_estimate(
         num(minutes),
         if minutes == 1.0 { "" } else { "s" },
         if threads == 1 { "" } else { "s" }
+    )
+}
+
+/// What `audit --shard I/N` prints: the shard, its outages and where its part is.
+pub fn write_shard(
+    w: &mut dyn Write,
+    shard: usize,
+    shards: usize,
+    outages: usize,
+    part: &std::path::Path,
+) -> io::Result<()> {
+    writeln!(
+        w,
+        "shard {shard}/{shards}: {outages} outages solved; part written to {} (combine the \
+         parts with `redoubt merge PART… --json FILE`)",
+        printable(&part.display().to_string())
     )
 }
 
