@@ -1985,3 +1985,30 @@ fn streamed_json_equals_the_in_memory_document() {
         "streamed JSON differs from the in-memory document"
     );
 }
+
+/// Source: issue 7 row 10 (`--depth 2` on a 400-site file took 1.75 GB before the first
+/// solve); the scenario count is the binomial sum 1 + n + C(n, 2) over n = 400 sites + 400
+/// ring links, computed here. The run is counted and estimated before any scenario is
+/// enumerated, and refused without --yes.
+#[test]
+fn depth_2_on_400_sites_is_estimated_before_enumerating() {
+    let net = TempPath::with_text("ring-400", &ring_net(400));
+    let run = redoubt(&[
+        "audit",
+        net.path(),
+        "--depth",
+        "2",
+        "--max-minutes",
+        "0.001",
+    ]);
+    assert_eq!(run.code, 2, "{}", run.stderr);
+    let n: u64 = 800;
+    let count = 1 + n + n * (n - 1) / 2;
+    assert!(
+        run.stderr.contains(&format!("{count} scenarios")),
+        "{count}: {}",
+        run.stderr
+    );
+    assert!(run.stderr.contains("--yes"), "{}", run.stderr);
+    assert!(run.stdout.is_empty());
+}

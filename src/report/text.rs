@@ -820,17 +820,18 @@ pub fn note_threads_capped(w: &mut dyn Write, asked: usize, cores: usize) -> io:
     )
 }
 
-/// A note on stderr: the estimated time of the run before it starts.
+/// A note on stderr: the estimated time of the run before it starts (`scenarios` counted,
+/// not yet enumerated; `first_solve` is one sample failure).
 pub fn note_estimate(
     w: &mut dyn Write,
-    outages: usize,
+    scenarios: usize,
     first_solve: std::time::Duration,
     threads: usize,
     minutes: f64,
 ) -> io::Result<()> {
     writeln!(
         w,
-        "redoubt: {outages} outages to solve; the first took {} s, so about {} minute{} on \
+        "redoubt: {scenarios} scenarios to solve; one took {} s, so about {} minute{} on \
          {threads} thread{}",
         num(first_solve.as_secs_f64()),
         num(minutes),
