@@ -109,7 +109,8 @@ fn main() {
         .into_iter()
         .filter(|n| args.iter().any(|a| a == n))
         .collect();
-    let want = |n: &str| chosen.is_empty() || chosen.contains(&n);
+    let profiling = args.iter().any(|a| a == "profile400");
+    let want = |n: &str| (chosen.is_empty() && !profiling) || chosen.contains(&n);
     let full = args.iter().any(|a| a == "full");
     if want("B") {
         bench_b(full);
@@ -119,6 +120,9 @@ fn main() {
     }
     if want("G400") {
         bench_400();
+    }
+    if args.iter().any(|a| a == "profile400") {
+        profile_400();
     }
 }
 
@@ -306,5 +310,21 @@ fn bench_400() {
     println!(
         "  => all {count} scenarios: about {:.0} min on 2 threads",
         per * count as f64 / 60.0
+    );
+}
+
+/// `profile400`: a few single failures of the 400-site network from the baseline, for perf.
+fn profile_400() {
+    let procs: Vec<(usize, f64)> = (0..400).step_by(20).map(|i| (i, 60.0)).collect();
+    let net = generate(400, 400, 760, Demands::OnePerSource, &procs);
+    let base = colgen::evaluate_walks(&net, &Outage::default(), None).expect("baseline");
+    let t = Instant::now();
+    for s in 0..20 {
+        let o = Scenario::new(&net, &[Element::Link(s * 7)]).outage(&net);
+        colgen::evaluate_walks(&net, &o, Some(&base.basis)).expect("single");
+    }
+    println!(
+        "profile400: {:.3} s per single",
+        t.elapsed().as_secs_f64() / 20.0
     );
 }
