@@ -62,8 +62,12 @@ fn run(
     let own = batch.own();
     let outages = batch.outages();
     let mem_enum = peak_mb();
+    let tb = Instant::now();
+    batch.seed(redoubt::audit::probe(net, Engine::Walks, None).expect("baseline"), None);
+    let baseline = tb.elapsed().as_secs_f64();
+    let t = Instant::now();
     batch.solve_rest(net, TWO, None).expect("solves");
-    let wall = t.elapsed().as_secs_f64() - enumerated;
+    let wall = t.elapsed().as_secs_f64();
     let st = batch.stats();
     let kept: usize = own
         .iter()
@@ -71,7 +75,7 @@ fn run(
         .map(bytes)
         .sum();
     println!(
-        "  {label}: {outages} outages, {} solved in {wall:.1} s = {:.4} s/outage (wall, 2 threads) \
+        "  {label}: {outages} outages, baseline {baseline:.2} s, then {} solved in {wall:.1} s = {:.4} s/outage (wall, 2 threads) \
          | LPs: no-flow {}, repair {}, colgen {}, fallback {} | master solves {}, pricing rounds {} \
          | dedup {enumerated:.1} s, peak MB after dedup {mem_enum:.0}, after solving {:.0} \
          | kept {:.0} bytes/outage",
@@ -109,7 +113,7 @@ fn main() {
         .into_iter()
         .filter(|n| args.iter().any(|a| a == n))
         .collect();
-    let profiling = args.iter().any(|a| a == "profile400");
+    let profiling = args.iter().any(|a| a.starts_with("profile"));
     let want = |n: &str| (chosen.is_empty() && !profiling) || chosen.contains(&n);
     let full = args.iter().any(|a| a == "full");
     if want("B") {
@@ -123,6 +127,25 @@ fn main() {
     }
     if args.iter().any(|a| a == "profile400") {
         profile_400();
+    }
+    if args.iter().any(|a| a == "profile200") {
+        let net = net_200();
+        let base = colgen::evaluate_walks(&net, &Outage::default(), None).expect("baseline");
+        for e in [
+            Element::Site(3),
+            Element::Site(10),
+            Element::Link(50),
+            Element::Site(77),
+        ] {
+            let o = Scenario::new(&net, &[e]).outage(&net);
+            let t = Instant::now();
+            let w = colgen::evaluate_walks(&net, &o, Some(&base.basis)).expect("single");
+            println!(
+                "profile200 {e:?}: {:.3} s {:?}",
+                t.elapsed().as_secs_f64(),
+                w.stats
+            );
+        }
     }
 }
 

@@ -262,8 +262,13 @@ impl Batch {
         scenarios: impl IntoIterator<Item = Scenario>,
         engine: Engine,
     ) -> Batch {
-        let mut index: HashMap<Outage, usize> = HashMap::new();
-        let mut outages = Vec::new();
+        use std::hash::{BuildHasher, BuildHasherDefault, DefaultHasher};
+        // Outages are found by a 64-bit hash and compared in full, so each is stored once;
+        // the rare outages whose hash another outage already has go to `collided`.
+        let hasher = BuildHasherDefault::<DefaultHasher>::default();
+        let mut index: HashMap<u64, usize> = HashMap::new();
+        let mut collided: HashMap<Outage, usize> = HashMap::new();
+        let mut outages: Vec<Outage> = Vec::new();
         let mut outage_of = Vec::new();
         let mut parent = Vec::new();
         let mut single = HashMap::new();
@@ -271,9 +276,17 @@ impl Batch {
         for s in scenarios {
             let o = s.outage(net);
             let next = outages.len();
-            let k = *index.entry(o).or_insert(next);
+            let h = hasher.hash_one(&o);
+            let k = match index.get(&h) {
+                Some(&k) if outages[k] == o => k,
+                Some(_) => *collided.entry(o.clone()).or_insert(next),
+                None => {
+                    index.insert(h, next);
+                    next
+                }
+            };
             if k == next {
-                outages.push(s.outage(net));
+                outages.push(o);
                 parent.push((s.elements.len() >= 2).then(|| s.elements[0]));
             }
             if let [e] = s.elements[..] {
@@ -282,7 +295,7 @@ impl Batch {
             outage_of.push(k);
             list.push(s);
         }
-        drop(index);
+        drop((index, collided));
         Batch {
             scenarios: list,
             outage_of,

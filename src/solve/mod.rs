@@ -246,7 +246,7 @@ fn relative_gap(upper: f64, value: f64, scale: f64) -> f64 {
 }
 
 /// Below this fraction of the scenario's demand, differences are solver noise: a value is
-/// shown as the plainest number within it ([`plain`]).
+/// shown as the plainest number within it (`plain`).
 pub const NOISE: f64 = 1e-9;
 
 /// Snaps `x` to `target` when within [`TOL`] relative to `scale`; otherwise the plainest
