@@ -63,7 +63,10 @@ fn run(
     let outages = batch.outages();
     let mem_enum = peak_mb();
     let tb = Instant::now();
-    batch.seed(redoubt::audit::probe(net, Engine::Walks, None).expect("baseline"), None);
+    batch.seed(
+        redoubt::audit::probe(net, Engine::Walks, None).expect("baseline"),
+        None,
+    );
     let baseline = tb.elapsed().as_secs_f64();
     let t = Instant::now();
     batch.solve_rest(net, TWO, None).expect("solves");
