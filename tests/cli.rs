@@ -1950,6 +1950,16 @@ fn sharded_audit_merges_to_the_unsharded_files() {
         let run = redoubt(&["audit", s(&demo), "--shard", bad, "--json", s(&other)]);
         assert_eq!(run.code, 2, "--shard {bad}: {}", run.stderr);
     }
+    // A part needs --json; gates and --close belong to whole runs.
+    for extra in [&["--close"][..], &["--max-shortfall", "1"][..], &[][..]] {
+        let mut args = vec!["audit", s(&demo), "--shard", "1/2"];
+        if !extra.is_empty() {
+            args.extend(["--json", s(&other)]);
+        }
+        args.extend_from_slice(extra);
+        let run = redoubt(&args);
+        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
+    }
 }
 
 /// Source: the library's in-memory path (`audit_network_with` keeps every evaluation in
