@@ -219,7 +219,7 @@ pub enum Keep {
     /// Everything (plans and `--close` read the full vectors).
     Full,
     /// [`Evaluation::thin`] when the journal holds the full one (readable again with
-    /// [`Journal::read`]), else full.
+    /// [`crate::report::journal::JournalReader::read`]), else full.
     ThinJournaled,
     /// Always thin: the reports need nothing more (an audit without `--json`).
     Thin,

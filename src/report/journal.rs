@@ -78,16 +78,16 @@ pub enum Opened {
     Resumed(usize),
 }
 
-/// An open journal; [`Journal::record`] and [`Journal::read`] may be called from many
+/// An open journal; [`Journal::record`] and [`Journal::line`] may be called from many
 /// threads. It remembers where each outage's line starts, so a report can read one
-/// evaluation back ([`Journal::read`]) instead of keeping every evaluation in memory.
+/// evaluation back ([`JournalReader::read`]) instead of keeping every evaluation in memory.
 pub struct Journal {
     path: PathBuf,
     /// The file and the offset of its end (where the next line goes).
     file: Mutex<(File, u64)>,
     /// Per outage: the byte offset of its last whole line, if journaled.
     offsets: Mutex<Vec<Option<u64>>>,
-    /// A reading handle, opened on the first [`Journal::read`].
+    /// A reading handle, opened on the first [`Journal::line`].
     reader: Mutex<Option<BufReader<File>>>,
     outages: usize,
     /// Outages the journal holds (restored plus recorded).
@@ -233,7 +233,7 @@ impl Journal {
     }
 
     /// Appends outage `k`'s evaluation as one whole line (one `write` under a lock) and
-    /// returns whether it is journaled (so [`Self::read`] gives it back bit for bit). The
+    /// returns whether it is journaled (so [`JournalReader::read`] gives it back bit for bit). The
     /// journal is insurance, not a result: a failed write stops journaling (see
     /// [`Self::failure`]) and never the run. O(size of the evaluation).
     pub fn record(&self, k: usize, e: &Evaluation) -> bool {
