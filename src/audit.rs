@@ -7,9 +7,10 @@
 //! solved by a pure function and collected in input order, so the thread count, an
 //! interruption or a resume changes the wall time, never a number.
 
+use std::collections::HashMap;
 use std::io::IsTerminal;
-use std::sync::Once;
 use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Mutex, Once};
 use std::time::{Duration, Instant};
 
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
@@ -19,7 +20,7 @@ use crate::cli::Engine;
 use crate::error::{EXIT_INTERRUPTED, Error, Result};
 use crate::model::Network;
 use crate::report::journal::Journal;
-use crate::scenario::{self, Outage, Scenario};
+use crate::scenario::{Element, Outage, Scenario};
 use crate::solve::{self, Evaluation, colgen};
 
 /// How to run a batch of scenarios.
@@ -62,6 +63,8 @@ pub struct Audit {
     pub outage_of: Vec<usize>,
     pub outages: Vec<Outage>,
     pub evaluations: Vec<Evaluation>,
+    /// Work done by the walk engine (zero for the edge engine and restored outages).
+    pub stats: colgen::Stats,
 }
 
 impl Audit {
@@ -164,36 +167,210 @@ where
     out
 }
 
+/// A first timed solve, made before the scenarios are enumerated, so a run can be
+/// estimated (and refused) from the scenario count alone ([`probe`]).
+pub struct Probe {
+    engine: Engine,
+    /// With [`Engine::Walks`]: the baseline's optimum and evaluation.
+    base: Option<colgen::Walked>,
+    /// The sample scenario's outage and evaluation.
+    sample: Option<(Outage, Evaluation)>,
+    /// How long the baseline took (zero for the edge engine, which needs no basis).
+    pub baseline_took: Duration,
+    /// How long the sample took: the estimate of one outage.
+    pub sample_took: Duration,
+}
+
+/// Solves what a batch needs before anything else (the walk engine's baseline) and one
+/// sample scenario, timed. The sample is solved exactly as [`Batch`] would solve it (a
+/// single failure starts from the baseline), so its evaluation is reused.
+pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result<Probe> {
+    let start = Instant::now();
+    let base = match engine {
+        Engine::Walks => Some(colgen::evaluate_walks(net, &Outage::default(), None)?),
+        Engine::Edge => None,
+    };
+    let baseline_took = start.elapsed();
+    let start = Instant::now();
+    let sample = match sample {
+        Some(sc) if sc.elements.len() <= 1 => {
+            let o = sc.outage(net);
+            let e = match &base {
+                Some(b) if o.is_empty() => b.evaluation.clone(),
+                Some(b) => colgen::evaluate_walks(net, &o, Some(&b.basis))?.evaluation,
+                None => solve::evaluate(net, &o)?,
+            };
+            Some((o, e))
+        }
+        _ => None,
+    };
+    Ok(Probe {
+        engine,
+        base,
+        sample,
+        baseline_took,
+        sample_took: start.elapsed(),
+    })
+}
+
+/// What a [`Batch`] keeps of each evaluation.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Keep {
+    /// Everything (plans and `--close` read the full vectors).
+    Full,
+    /// [`Evaluation::thin`] when the journal holds the full one (readable again with
+    /// [`crate::report::journal::JournalReader::read`]), else full.
+    ThinJournaled,
+    /// Always thin: the reports need nothing more (an audit without `--json`).
+    Thin,
+}
+
 /// Scenarios with their distinct outages, some of them already evaluated (by a first
 /// timed solve or from a journal), the rest still to solve.
+///
+/// With [`Engine::Walks`] the baseline is solved first (once). An outage whose first
+/// scenario fails two or more elements starts from the optimum of the single failure of
+/// its first element (its *parent*, solved from the baseline), every other outage from
+/// the baseline's ([`colgen::evaluate_walks`]); children are solved in families, one
+/// parent basis per family in flight, so memory holds one basis per thread whatever the
+/// number of scenarios. Each outage is a pure function of (network, outage, parent), so
+/// results do not depend on the thread count, the shard or on what was restored.
 pub struct Batch {
     scenarios: Vec<Scenario>,
     outage_of: Vec<usize>,
     outages: Vec<Outage>,
     done: Vec<Option<Evaluation>>,
+    /// Per outage: the element whose single failure is its parent (walk engine).
+    parent: Vec<Option<Element>>,
+    /// Per element with a single-failure scenario: that scenario's outage.
+    single: HashMap<Element, usize>,
     engine: Engine,
     /// With [`Engine::Walks`]: the baseline's optimum, the start of every other outage.
     basis: Option<colgen::Basis>,
+    /// What is kept of each evaluation.
+    keep: Keep,
+    /// Only outages `k` with `k % n == i` are solved (`(i, n)`, `i` from 0).
+    shard: Option<(usize, usize)>,
+    stats: Mutex<colgen::Stats>,
 }
 
 impl Batch {
-    /// Deduplicates the outages of `scenarios`; nothing is solved yet. O(scenarios ·
-    /// elements per scenario).
-    ///
-    /// With [`Engine::Walks`] the baseline is solved first (once) and every other outage
-    /// starts from its optimal walks ([`colgen::evaluate_walks`]); each outage is still a
-    /// pure function of (network, outage, baseline), so results do not depend on the thread
-    /// count, and memory holds one basis whatever the number of scenarios.
-    pub fn new(net: &Network, scenarios: Vec<Scenario>, engine: Engine) -> Batch {
-        let (outages, outage_of) = scenario::dedup(net, &scenarios);
-        let done = vec![None; outages.len()];
+    /// Deduplicates the outages of `scenarios` as they come (the list is never held twice);
+    /// nothing is solved yet. O(scenarios · elements per scenario + links).
+    pub fn new(
+        net: &Network,
+        scenarios: impl IntoIterator<Item = Scenario>,
+        engine: Engine,
+    ) -> Batch {
+        use std::hash::{BuildHasher, BuildHasherDefault, DefaultHasher};
+        // Outages are found by a 64-bit hash and compared in full, so each is stored once;
+        // the rare outages whose hash another outage already has go to `collided`.
+        let hasher = BuildHasherDefault::<DefaultHasher>::default();
+        let mut index: HashMap<u64, usize> = HashMap::new();
+        let mut collided: HashMap<Outage, usize> = HashMap::new();
+        let mut outages: Vec<Outage> = Vec::new();
+        let mut outage_of = Vec::new();
+        let mut parent = Vec::new();
+        let mut single = HashMap::new();
+        let mut list = Vec::new();
+        for s in scenarios {
+            let o = s.outage(net);
+            let next = outages.len();
+            let h = hasher.hash_one(&o);
+            let k = match index.get(&h) {
+                Some(&k) if outages[k] == o => k,
+                Some(_) => *collided.entry(o.clone()).or_insert(next),
+                None => {
+                    index.insert(h, next);
+                    next
+                }
+            };
+            if k == next {
+                outages.push(o);
+                parent.push((s.elements.len() >= 2).then(|| s.elements[0]));
+            }
+            if let [e] = s.elements[..] {
+                single.entry(e).or_insert(k);
+            }
+            outage_of.push(k);
+            list.push(s);
+        }
+        drop((index, collided));
         Batch {
-            scenarios,
+            scenarios: list,
             outage_of,
+            done: vec![None; outages.len()],
             outages,
-            done,
+            parent,
+            single,
             engine,
             basis: None,
+            keep: Keep::Full,
+            shard: None,
+            stats: Mutex::new(colgen::Stats::default()),
+        }
+    }
+
+    /// Chooses what is kept of each evaluation (default [`Keep::Full`]).
+    pub fn keeping(mut self, keep: Keep) -> Batch {
+        self.keep = keep;
+        self
+    }
+
+    /// Solves only shard `i` of `n` (from 1): the outages `k` with `k % n == i - 1`.
+    pub fn shard(mut self, i: usize, n: usize) -> Batch {
+        self.shard = Some((i - 1, n));
+        self
+    }
+
+    /// Whether outage `k` is this batch's to solve.
+    fn mine(&self, k: usize) -> bool {
+        self.shard.is_none_or(|(i, n)| k % n == i)
+    }
+
+    /// The outages this batch solves (all, or its shard's), in order.
+    pub fn own(&self) -> Vec<usize> {
+        (0..self.outages.len()).filter(|&k| self.mine(k)).collect()
+    }
+
+    /// Takes the probe's solves: the baseline basis, and the baseline's and the sample's
+    /// evaluations for the outages equal to them.
+    pub fn seed(&mut self, probe: Probe, journal: Option<&Journal>) {
+        if probe.engine != self.engine {
+            return;
+        }
+        let mut found: Vec<(Outage, Evaluation)> = probe.sample.into_iter().collect();
+        if let Some(b) = probe.base {
+            found.push((Outage::default(), b.evaluation));
+            self.basis = Some(b.basis);
+        }
+        for (o, e) in found {
+            if let Some(k) = self.outages.iter().position(|x| *x == o)
+                && self.done[k].is_none()
+                && self.mine(k)
+            {
+                self.keep(k, e, journal);
+            }
+        }
+    }
+
+    /// Stores outage `k`'s evaluation (journaled first; thin when asked).
+    fn keep(&mut self, k: usize, e: Evaluation, journal: Option<&Journal>) {
+        let journaled = journal.is_some_and(|j| j.record(k, &e));
+        self.done[k] = Some(self.stored(k, e, journaled));
+    }
+
+    /// What the batch keeps of an evaluation: thin when asked and the journal holds the
+    /// full one, else the full one (so every full evaluation stays reachable).
+    /// The baseline is always kept full (every report shows it).
+    fn stored(&self, k: usize, e: Evaluation, journaled: bool) -> Evaluation {
+        if self.outages[k].is_empty() {
+            return e;
+        }
+        match self.keep {
+            Keep::Thin => e.thin(),
+            Keep::ThinJournaled if journaled => e.thin(),
+            _ => e,
         }
     }
 
@@ -203,27 +380,86 @@ impl Batch {
         if self.engine != Engine::Walks || self.basis.is_some() {
             return Ok(());
         }
-        let base = colgen::evaluate_walks(net, &Outage::default(), None)?;
-        if let Some(k) = self.outages.iter().position(Outage::is_empty)
-            && self.done[k].is_none()
-        {
-            if let Some(j) = journal {
-                j.record(k, &base.evaluation);
-            }
-            self.done[k] = Some(base.evaluation);
-        }
-        self.basis = Some(base.basis);
+        let p = probe(net, self.engine, None)?;
+        self.seed(p, journal);
         Ok(())
     }
 
-    /// Evaluates outage `k` with the batch's engine.
-    fn solve_one(&self, net: &Network, k: usize) -> Result<Evaluation> {
-        match (self.engine, &self.basis) {
-            (Engine::Walks, Some(basis)) => {
-                Ok(colgen::evaluate_walks(net, &self.outages[k], Some(basis))?.evaluation)
+    /// Evaluates `outage` from `parent` (the baseline's basis when `None`) with the
+    /// batch's engine.
+    fn solve_from(
+        &self,
+        net: &Network,
+        outage: &Outage,
+        parent: Option<&colgen::Basis>,
+    ) -> Result<colgen::Walked> {
+        let basis = parent.or(self.basis.as_ref());
+        let w = colgen::evaluate_walks(net, outage, basis)?;
+        self.stats
+            .lock()
+            .unwrap_or_else(|p| p.into_inner())
+            .add(&w.stats);
+        Ok(w)
+    }
+
+    /// Solves one family: the parent single failure `p` (for its basis; its own outage
+    /// is kept when it is in `members`), then its children from it. Returns the results
+    /// in `members` order.
+    fn solve_family(
+        &self,
+        net: &Network,
+        p: Option<Element>,
+        members: &[usize],
+        bar: &Progress,
+        journal: Option<&Journal>,
+    ) -> Result<Vec<(usize, Evaluation)>> {
+        let mut out = Vec::with_capacity(members.len());
+        let mut record = |k: usize, e: Evaluation| {
+            let journaled = journal.is_some_and(|j| j.record(k, &e));
+            bar.inc();
+            out.push((k, self.stored(k, e, journaled)));
+        };
+        if self.engine == Engine::Edge {
+            for &k in members {
+                if interrupted() {
+                    return Err(Error::Interrupted("solving stopped".into()));
+                }
+                record(k, solve::evaluate(net, &self.outages[k])?);
             }
-            _ => solve::evaluate(net, &self.outages[k]),
+        } else {
+            let parent = match p {
+                None => None,
+                Some(e) => {
+                    let po = Scenario::new(net, &[e]).outage(net);
+                    let kp = self.single.get(&e).copied();
+                    if interrupted() {
+                        return Err(Error::Interrupted("solving stopped".into()));
+                    }
+                    let w = self.solve_from(net, &po, None)?;
+                    if let Some(kp) = kp
+                        && members.contains(&kp)
+                    {
+                        record(kp, w.evaluation);
+                    }
+                    Some(w.basis)
+                }
+            };
+            for &k in members {
+                if p.is_some() && self.single.get(&p.expect("some")) == Some(&k) {
+                    continue;
+                }
+                if interrupted() {
+                    return Err(Error::Interrupted("solving stopped".into()));
+                }
+                let from = if self.parent[k].is_some() {
+                    parent.as_ref()
+                } else {
+                    None
+                };
+                record(k, self.solve_from(net, &self.outages[k], from)?.evaluation);
+            }
         }
+        Ok(out)
     }
 
     /// Number of distinct outages.
@@ -231,19 +467,105 @@ impl Batch {
         self.outages.len()
     }
 
-    /// Number of outages not evaluated yet.
+    /// Number of outages of this batch (its shard) not evaluated yet.
     pub fn remaining(&self) -> usize {
-        self.done.iter().filter(|d| d.is_none()).count()
+        (0..self.done.len())
+            .filter(|&k| self.done[k].is_none() && self.mine(k))
+            .count()
     }
 
     /// Takes evaluations restored from a journal (`restored[k]` for outage `k`); entries
-    /// already present are kept. Invariant: `restored.len() == self.outages()`.
+    /// already present are kept. Invariant: `restored.len() == self.outages()`. Restored
+    /// evaluations are journaled by definition, so they are kept thin when asked.
     pub fn restore(&mut self, restored: Vec<Option<Evaluation>>) {
-        for (slot, r) in self.done.iter_mut().zip(restored) {
+        let thin = self.keep != Keep::Full;
+        for ((slot, r), o) in self.done.iter_mut().zip(restored).zip(&self.outages) {
             if slot.is_none() {
-                *slot = r;
+                *slot = if thin && !o.is_empty() {
+                    r.map(Evaluation::thin)
+                } else {
+                    r
+                };
             }
         }
+    }
+
+    /// The families of the outages still to solve, in a deterministic order: children
+    /// grouped under their parent element (with the parent's own outage), the rest one
+    /// by one.
+    fn families(&self) -> Vec<(Option<Element>, Vec<usize>)> {
+        let todo: Vec<usize> = (0..self.outages.len())
+            .filter(|&k| self.done[k].is_none() && self.mine(k))
+            .collect();
+        if self.engine == Engine::Edge {
+            return todo.into_iter().map(|k| (None, vec![k])).collect();
+        }
+        let mut fam: std::collections::BTreeMap<Element, Vec<usize>> = Default::default();
+        for &k in &todo {
+            if let Some(e) = self.parent[k] {
+                fam.entry(e).or_default().push(k);
+            }
+        }
+        let in_family: std::collections::HashSet<usize> = fam
+            .keys()
+            .filter_map(|e| self.single.get(e).copied())
+            .filter(|kp| !self.outages[*kp].is_empty())
+            .collect();
+        let mut out: Vec<(Option<Element>, Vec<usize>)> = Vec::new();
+        for (e, mut members) in fam {
+            if let Some(&kp) = self.single.get(&e)
+                && todo.binary_search(&kp).is_ok()
+                && !self.outages[kp].is_empty()
+            {
+                members.insert(0, kp);
+            }
+            out.push((Some(e), members));
+        }
+        out.extend(
+            todo.iter()
+                .filter(|k| self.parent[**k].is_none() && !in_family.contains(k))
+                .map(|&k| (None, vec![k])),
+        );
+        out
+    }
+
+    /// Solves every remaining outage of the batch (its shard) in parallel, recording each
+    /// in `journal` as it finishes. On an interrupt the finished solves stay recorded and
+    /// [`Error::Interrupted`] is returned.
+    pub fn solve_rest(
+        &mut self,
+        net: &Network,
+        opts: RunOptions,
+        journal: Option<&Journal>,
+    ) -> Result<()> {
+        self.prepare(net, journal)?;
+        let families = self.families();
+        let bar = Progress::new(self.remaining(), opts.progress, "solving");
+        let this = &*self;
+        let work = || -> Result<Vec<Vec<(usize, Evaluation)>>> {
+            families
+                .par_iter()
+                .map(|(p, members)| {
+                    if interrupted() {
+                        return Err(Error::Interrupted("solving stopped".into()));
+                    }
+                    this.solve_family(net, *p, members, &bar, journal)
+                })
+                .collect()
+        };
+        let solved = match opts.threads {
+            Some(t) => rayon::ThreadPoolBuilder::new()
+                .num_threads(t.max(1))
+                .build()
+                .map_err(|e| Error::Usage(format!("--threads {t}: {e}")))?
+                .install(work),
+            None => work(),
+        };
+        bar.finish();
+        for (k, e) in solved?.into_iter().flatten() {
+            self.done[k] = Some(e);
+        }
+        Ok(())
     }
 
     /// Solves the first outage not evaluated yet, records it in `journal`, and returns how
@@ -255,54 +577,63 @@ impl Batch {
     ) -> Result<Option<Duration>> {
         let start = Instant::now();
         self.prepare(net, journal)?;
-        let Some(k) = self.done.iter().position(Option::is_none) else {
+        let Some(k) = (0..self.done.len()).find(|&k| self.done[k].is_none() && self.mine(k)) else {
             return Ok(Some(start.elapsed()));
         };
-        let e = self.solve_one(net, k)?;
+        let start = Instant::now();
+        let fam = self
+            .families()
+            .into_iter()
+            .find(|(_, m)| m.contains(&k))
+            .expect("k is to do");
+        let bar = Progress::new(0, false, "");
+        let solved = self.solve_family(net, fam.0, &[k], &bar, journal)?;
         let took = start.elapsed();
-        if let Some(j) = journal {
-            j.record(k, &e);
+        for (k, e) in solved {
+            self.done[k] = Some(e);
         }
-        self.done[k] = Some(e);
         Ok(Some(took))
     }
 
-    /// Solves every remaining outage in parallel, recording each in `journal` as it
-    /// finishes, and returns the complete audit. On an interrupt the finished solves stay
-    /// recorded and [`Error::Interrupted`] is returned.
+    /// Outage `k`'s evaluation as kept, if evaluated.
+    pub fn evaluation(&self, k: usize) -> Option<&Evaluation> {
+        self.done[k].as_ref()
+    }
+
+    /// Work done by the walk engine so far (summed over the solves).
+    pub fn stats(&self) -> colgen::Stats {
+        *self.stats.lock().unwrap_or_else(|p| p.into_inner())
+    }
+
+    /// Solves every remaining outage ([`Self::solve_rest`]) and returns the complete
+    /// audit.
     pub fn finish(
         mut self,
         net: &Network,
         opts: RunOptions,
         journal: Option<&Journal>,
     ) -> Result<Audit> {
-        self.prepare(net, journal)?;
-        let todo: Vec<usize> = (0..self.outages.len())
-            .filter(|&k| self.done[k].is_none())
-            .collect();
-        let solved = par_map(&todo, opts, "solving", |&k| {
-            let e = self.solve_one(net, k)?;
-            if let Some(j) = journal {
-                j.record(k, &e);
-            }
-            Ok(e)
-        })?;
-        let mut done = self.done;
-        for (k, e) in todo.into_iter().zip(solved) {
-            done[k] = Some(e);
-        }
-        Ok(Audit {
+        self.shard = None;
+        self.solve_rest(net, opts, journal)?;
+        Ok(self.into_audit())
+    }
+
+    /// The audit of a batch whose outages are all evaluated.
+    pub fn into_audit(self) -> Audit {
+        let stats = self.stats();
+        Audit {
             scenarios: self.scenarios,
             outage_of: self.outage_of,
             outages: self.outages,
-            evaluations: done
+            evaluations: self
+                .done
                 .into_iter()
                 .map(|e| e.expect("every outage is solved or restored"))
                 .collect(),
-        })
+            stats,
+        }
     }
 }
-
 /// Evaluates every scenario of `scenarios`, solving each distinct outage once.
 pub fn run(net: &Network, scenarios: Vec<Scenario>, opts: RunOptions) -> Result<Audit> {
     Batch::new(net, scenarios, Engine::Edge).finish(net, opts, None)

@@ -27,6 +27,21 @@ pub enum Command {
     /// Pre-change check: run the same scenarios on two versions of a network and say
     /// which got worse (exit 1 when any got worse by more than --tolerance).
     Compare(CompareArgs),
+    /// Combine the part files of `audit --shard I/N` into the audit an unsharded run gives.
+    Merge(MergeArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct MergeArgs {
+    /// The part files (`audit --shard I/N --json PART`), one per shard, in any order.
+    #[arg(required = true)]
+    pub parts: Vec<PathBuf>,
+    /// Write the merged audit to this JSON file (exactly what the unsharded run writes).
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<PathBuf>,
+    /// How many scenarios (and elements) the tables show.
+    #[arg(long, default_value_t = 15)]
+    pub top: usize,
 }
 
 /// Which scenarios to evaluate and how.
@@ -111,6 +126,11 @@ pub struct AuditArgs {
     /// For each scenario with a shortfall, the cheapest processing expansion that closes it.
     #[arg(long)]
     pub close: bool,
+    /// Evaluate only shard I of N (a deterministic slice of the outages) and write a part
+    /// file to --json FILE; `redoubt merge` combines the parts.
+    #[arg(long, value_name = "I/N", requires = "json",
+          conflicts_with_all = ["close", "max_shortfall", "max_stranded", "min_served_fraction", "gate_tolerance"])]
+    pub shard: Option<String>,
     /// Solver engine: `walks` (column generation over processing walks with exact repair
     /// shortcuts) or `edge` (the two-layer LP per outage, the cross-check); same optimum.
     #[arg(long, value_enum, default_value_t = Engine::Walks)]

@@ -10,7 +10,7 @@
 use std::collections::HashMap;
 use std::io::Write;
 
-use crate::audit::{self, Audit};
+use crate::audit::Audit;
 use crate::cli::{CompareArgs, Engine};
 use crate::error::{Error, Result};
 use crate::model::Network;
@@ -223,10 +223,9 @@ fn audit_side(
         Error::Usage(m) => Error::Usage(format!("{which} ({}): {m}", path.display())),
         other => other,
     };
-    let scenarios = crate::scenarios_for(&net, &sargs, args.fail.as_deref()).map_err(in_side)?;
+    let list = crate::scenario_list(&net, &sargs, args.fail.as_deref()).map_err(in_side)?;
     let opts = crate::run_options(&sargs, err)?;
-    let batch = audit::Batch::new(&net, scenarios, Engine::Walks);
-    let audit = crate::solve_batch(&net, batch, &sargs, opts, None, err)?;
+    let audit = crate::solve_list(&net, list, Engine::Walks, &sargs, opts, err)?;
     Ok((net, audit))
 }
 

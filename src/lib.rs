@@ -24,7 +24,7 @@ use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
-use cli::{AuditArgs, Cli, Command, Objective, PlanArgs, Routing, ScenarioArgs};
+use cli::{AuditArgs, Cli, Command, MergeArgs, Objective, PlanArgs, Routing, ScenarioArgs};
 use error::{Error, Result};
 use gate::{Gate, GateKind};
 use model::Network;
@@ -90,14 +90,25 @@ fn note(r: io::Result<()>) {
 /// Largest scenario count a run accepts; beyond it the user is asked to narrow the run.
 pub const MAX_SCENARIOS: u128 = 2_000_000;
 
+/// A lazily enumerated scenario list with its length.
+pub struct Scenarios<'a> {
+    /// Number of scenarios the iterator yields.
+    pub count: u128,
+    /// The first failure scenario (the baseline when there is none): the timed sample.
+    pub sample: Scenario,
+    pub iter: Box<dyn Iterator<Item = Scenario> + 'a>,
+}
+
 /// The scenarios a command line asks for: one named scenario (`--fail`) or the baseline
-/// plus every set of 1..=depth elements of the chosen kinds.
-pub fn scenarios_for(
-    net: &Network,
-    args: &ScenarioArgs,
+/// plus every set of 1..=depth elements of the chosen kinds, counted first (refused above
+/// [`MAX_SCENARIOS`]) and enumerated lazily ([`scenario::lazy`]). O(pool) until iterated.
+pub fn scenarios_for<'a>(
+    net: &'a Network,
+    depth: usize,
+    kinds: &str,
     fail: Option<&str>,
-) -> Result<Vec<Scenario>> {
-    let down = down_for(net, args)?;
+    down: &[Element],
+) -> Result<Scenarios<'a>> {
     if let Some(list) = fail {
         let elements = Element::parse_list(list, net)?;
         if let Some(e) = elements.iter().find(|e| down.contains(e)) {
@@ -106,20 +117,42 @@ pub fn scenarios_for(
                 e.name(net)
             )));
         }
-        return Ok(vec![Scenario::new(net, &elements).with_down(&down)]);
+        let sc = Scenario::new(net, &elements).with_down(down);
+        return Ok(Scenarios {
+            count: 1,
+            sample: sc.clone(),
+            iter: Box::new(std::iter::once(sc)),
+        });
     }
-    let kinds = Kinds::parse(&args.kinds)?;
-    let pool = scenario::pool_without(net, kinds, &down).len();
-    let count = scenario::count(pool, args.depth);
+    let kinds = Kinds::parse(kinds)?;
+    let pool = scenario::pool_without(net, kinds, down);
+    let count = scenario::count(pool.len(), depth);
     if count > MAX_SCENARIOS {
         return Err(Error::Usage(format!(
-            "--depth {} over {pool} elements gives {count} scenarios (limit {MAX_SCENARIOS}); \
+            "--depth {depth} over {} elements gives {count} scenarios (limit {MAX_SCENARIOS}); \
              lower --depth or narrow --kinds",
-            args.depth
+            pool.len()
         )));
     }
-    let pool = scenario::pool_without(net, kinds, &down);
-    Ok(scenario::enumerate_pool(net, &pool, args.depth, &down))
+    let sample = match pool.first() {
+        Some(e) if depth > 0 => Scenario::new(net, &[*e]).with_down(down),
+        _ => Scenario::baseline().with_down(down),
+    };
+    Ok(Scenarios {
+        count,
+        sample,
+        iter: Box::new(scenario::lazy_pool(net, pool, depth, down.to_vec())),
+    })
+}
+
+/// [`scenarios_for`] of a command line's scenario options (with its `--down`).
+pub(crate) fn scenario_list<'a>(
+    net: &'a Network,
+    args: &ScenarioArgs,
+    fail: Option<&str>,
+) -> Result<Scenarios<'a>> {
+    let down = down_for(net, args)?;
+    scenarios_for(net, args.depth, &args.kinds, fail, &down)
 }
 
 /// The elements `--down` keeps down in every scenario (empty without it).
@@ -128,6 +161,22 @@ pub fn down_for(net: &Network, args: &ScenarioArgs) -> Result<Vec<Element>> {
         Some(list) => Element::parse_list_for("--down", list, net),
         None => Ok(Vec::new()),
     }
+}
+
+/// Estimates, then solves every scenario of `list` with `engine` (no journal), keeping
+/// every evaluation in full.
+pub(crate) fn solve_list(
+    net: &Network,
+    list: Scenarios<'_>,
+    engine: cli::Engine,
+    args: &ScenarioArgs,
+    opts: audit::RunOptions,
+    err: &mut dyn Write,
+) -> Result<audit::Audit> {
+    let probe = estimate(net, &list, 1, engine, args, opts, err)?;
+    let mut batch = audit::Batch::new(net, list.iter, engine);
+    batch.seed(probe, None);
+    batch.finish(net, opts, None)
 }
 
 /// Without `--max-minutes`, a run estimated longer than this many minutes needs `--yes`.
@@ -176,42 +225,50 @@ fn time_limit(args: &ScenarioArgs) -> Result<Option<f64>> {
     })
 }
 
-/// Solves a batch: a first timed solve, an estimate of the rest (shown when long, refused
-/// beyond the limit unless `--yes`), then everything else in parallel, each result
-/// journaled when a journal is given.
-pub(crate) fn solve_batch(
+/// Estimates a run before its scenarios are enumerated: solves what the engine needs
+/// first (the baseline) and one sample scenario, timed, then `baseline + sample ×
+/// (count − 1) / threads`. Shows the estimate when long; refuses beyond the limit unless
+/// `--yes`. Returns the probe, whose solves the batch reuses.
+fn estimate(
     net: &Network,
-    mut batch: audit::Batch,
+    list: &Scenarios<'_>,
+    share: usize,
+    engine: cli::Engine,
     args: &ScenarioArgs,
     opts: audit::RunOptions,
-    journal: Option<&Journal>,
     err: &mut dyn Write,
-) -> Result<audit::Audit> {
+) -> Result<audit::Probe> {
     let limit = time_limit(args)?;
-    let left = batch.remaining();
-    if let Some(first) = batch.solve_first(net, journal)? {
-        let threads = opts.threads.unwrap_or_else(cores).clamp(1, left.max(1));
-        let rest = first.mul_f64((left - 1) as f64 / threads as f64);
-        let minutes = (first + rest).as_secs_f64() / 60.0;
-        if !args.quiet && first + rest >= ESTIMATE_NOTE_FROM {
-            note(report::text::note_estimate(
-                err, left, first, threads, minutes,
-            ));
-        }
-        if let Some(max) = limit
-            && minutes > max
-        {
-            return Err(Error::Usage(format!(
-                "the run is estimated at {} minutes ({left} outages, the first took {} s), \
-                 above the limit of {} minutes; pass --yes to run it anyway, raise \
-                 --max-minutes, or lower --depth / narrow --kinds",
-                report::num(minutes),
-                report::num(first.as_secs_f64()),
-                report::num(max)
-            )));
-        }
+    let count = (list.count as usize).div_ceil(share.max(1));
+    let probe = audit::probe(net, engine, Some(&list.sample))?;
+    let threads = opts.threads.unwrap_or_else(cores).clamp(1, count.max(1));
+    let first = probe.baseline_took + probe.sample_took;
+    let rest = probe
+        .sample_took
+        .mul_f64(count.saturating_sub(1) as f64 / threads as f64);
+    let minutes = (probe.baseline_took + probe.sample_took + rest).as_secs_f64() / 60.0;
+    if !args.quiet && first + rest >= ESTIMATE_NOTE_FROM {
+        note(report::text::note_estimate(
+            err,
+            count,
+            probe.sample_took,
+            threads,
+            minutes,
+        ));
     }
-    batch.finish(net, opts, journal)
+    if let Some(max) = limit
+        && minutes > max
+    {
+        return Err(Error::Usage(format!(
+            "the run is estimated at {} minutes ({count} scenarios, one took {} s), \
+             above the limit of {} minutes; pass --yes to run it anyway, raise \
+             --max-minutes, or lower --depth / narrow --kinds",
+            report::num(minutes),
+            report::num(probe.sample_took.as_secs_f64()),
+            report::num(max)
+        )));
+    }
+    Ok(probe)
 }
 
 /// Runs the audit and returns it with the baseline's evaluation (solved separately when
@@ -239,13 +296,42 @@ pub fn audit_network_with(
 /// The baseline's evaluation: with `--down`, the down state (what every scenario keeps
 /// down), else the intact network.
 pub(crate) fn with_baseline(net: &Network, audit: &audit::Audit) -> Result<solve::Evaluation> {
-    match audit.baseline() {
-        Some(b) => Ok(b.clone()),
+    with_full_baseline(net, audit, &|_| {
+        Err(Error::Usage("internal: thin baseline".into()))
+    })
+}
+
+/// The baseline's full evaluation: the audit's (read back with `full` when thin), else
+/// solved.
+fn with_full_baseline(
+    net: &Network,
+    audit: &audit::Audit,
+    full: report::json::Full<'_>,
+) -> Result<solve::Evaluation> {
+    match audit.scenarios.iter().position(Scenario::is_baseline) {
+        Some(i) if audit.eval(i).is_thin(net) => full(audit.outage_of[i]),
+        Some(i) => Ok(audit.eval(i).clone()),
         None => {
             let down = audit.scenarios.first().map_or(&[][..], |s| &s.down[..]);
             solve::evaluate(net, &Scenario::baseline().with_down(down).outage(net))
         }
     }
+}
+
+/// Parses `--shard I/N` (1 ≤ I ≤ N).
+fn parse_shard(text: &str) -> Result<(usize, usize)> {
+    let bad = || {
+        Error::Usage(format!(
+            "--shard must be I/N with 1 <= I <= N (e.g. 3/8), got {:?}",
+            model::strict::printable(text)
+        ))
+    };
+    let (i, n) = text.split_once('/').ok_or_else(bad)?;
+    let (i, n): (usize, usize) = (i.parse().map_err(|_| bad())?, n.parse().map_err(|_| bad())?);
+    if i == 0 || i > n {
+        return Err(bad());
+    }
+    Ok((i, n))
 }
 
 /// The gates of an audit command line, validated.
@@ -325,6 +411,7 @@ fn risk_of(
 fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
     let gates = gates_of(args)?;
     time_limit(&args.scenarios)?;
+    let shard = args.shard.as_deref().map(parse_shard).transpose()?;
     let input = args.scenarios.network.as_path();
     let journal_path = args.json.as_deref().map(journal::path_for);
     if let (Some(json), Some(jp)) = (&args.json, &journal_path) {
@@ -336,19 +423,50 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         others.extend(args.json.as_deref());
         report::file::check_output("--csv", csv, &others)?;
     }
+    if shard.is_some() && args.scenarios.down.is_some() {
+        return Err(Error::Usage(
+            "--shard with --down is not supported: a part file does not carry the \
+             maintenance state"
+                .into(),
+        ));
+    }
     let (net, text) = read_network(input)?;
-    let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
+    let list = scenario_list(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err)?;
     if let Some(mode) = routing_mode(args.scenarios.routing) {
         if args.close && mode == routing::Mode::Nearest {
             return Err(nearest_refused("audit --close"));
         }
+        if shard.is_some() {
+            return Err(Error::Usage(
+                "--shard is for --routing best (the routed models are fast)".into(),
+            ));
+        }
+        let scenarios: Vec<Scenario> = list.iter.collect();
         return run_routed_audit(args, &net, scenarios, opts, mode, &gates, out);
     }
-    let mut batch = audit::Batch::new(&net, scenarios, args.engine);
+    let share = shard.map_or(1, |s| s.1);
+    let probe = estimate(&net, &list, share, args.engine, &args.scenarios, opts, err)?;
+    // --close reads every evaluation in full; otherwise only the JSON does, from the journal.
+    let keep = match (args.close, &args.json) {
+        (true, _) => audit::Keep::Full,
+        (false, Some(_)) => audit::Keep::ThinJournaled,
+        (false, None) => audit::Keep::Thin,
+    };
+    let mut batch = audit::Batch::new(&net, list.iter, args.engine).keeping(keep);
+    if let Some((i, n)) = shard {
+        batch = batch.shard(i, n);
+    }
+    let fingerprint = audit_fingerprint(args, &text);
     let journal = match &journal_path {
         Some(jp) => {
-            let fp = audit_fingerprint(args, &text);
+            let fp = match shard {
+                Some((i, n)) => journal::fingerprint(&[
+                    fingerprint.as_bytes(),
+                    format!("shard={i}/{n}").as_bytes(),
+                ]),
+                None => fingerprint.clone(),
+            };
             let (j, restored, opened) = Journal::open(jp, &fp, batch.outages(), args.resume)?;
             if !args.scenarios.quiet {
                 note(report::text::note_resume(err, jp, opened, batch.outages()));
@@ -358,6 +476,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         }
         None => None,
     };
+    batch.seed(probe, journal.as_ref());
     let interrupted = |e: Error| match (&e, &journal) {
         (Error::Interrupted(_), Some(j)) => Error::Interrupted(format!(
             "{} of {} outages saved in {}; run the same command with --resume to continue",
@@ -370,47 +489,151 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         }
         _ => e,
     };
-    let audit = solve_batch(&net, batch, &args.scenarios, opts, journal.as_ref(), err)
+    batch
+        .solve_rest(&net, opts, journal.as_ref())
         .map_err(interrupted)?;
     if let Some(why) = journal.as_ref().and_then(Journal::failure) {
         note(report::text::note_journal_failed(err, &why));
     }
-    let baseline = with_baseline(&net, &audit)?;
-    let cands = expand::Candidates::of(&net);
-    let closings = if args.close {
+    if let (Some((i, n)), Some(path), Some(j)) = (shard, &args.json, &journal) {
+        let header = journal::PartHeader {
+            redoubt_part: journal::PART_VERSION,
+            fingerprint,
+            shard: i,
+            shards: n,
+            outages: batch.outages(),
+            network: text.clone(),
+            depth: args.scenarios.depth,
+            kinds: args.scenarios.kinds.clone(),
+            fail: args.fail.clone(),
+            engine: format!("{:?}", args.engine),
+        };
+        let own = batch.own();
+        let lines = own.iter().map(|&k| match j.line(k)? {
+            Some(line) => Ok(line),
+            None => batch
+                .evaluation(k)
+                .and_then(|e| journal::to_line(k, e))
+                .ok_or_else(|| {
+                    Error::Solver(format!(
+                        "outage {k} has a value a part file cannot carry exactly"
+                    ))
+                }),
+        });
+        let mut failed = None;
+        report::file::write_atomic(path, |w| {
+            journal::write_part(w, &header, lines).map_err(|e| {
+                let m = e.to_string();
+                failed = Some(e);
+                io::Error::other(m)
+            })
+        })
+        .map_err(|e| failed.take().unwrap_or(e))?;
+        journal.map(Journal::remove).transpose()?;
+        stdout_result(report::text::write_shard(out, i, n, own.len(), path))?;
+        return Ok(Outcome::Ok);
+    }
+    let audit = batch.into_audit();
+    let saved = journal
+        .as_ref()
+        .map(|j| (j.saved(), j.outages(), j.path().to_path_buf()));
+    let interrupted = move |e: Error| match (&e, &saved) {
+        (Error::Interrupted(_), Some((n, of, path))) => Error::Interrupted(format!(
+            "{n} of {of} outages saved in {}; run the same command with --resume to continue",
+            path.display()
+        )),
+        _ => e,
+    };
+    let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &audit)?;
+    let reader = journal.as_ref().map(Journal::reader).transpose()?;
+    let full = |k: usize| -> Result<solve::Evaluation> {
+        match reader.as_ref().map(|j| j.read(k)).transpose()?.flatten() {
+            Some(e) => Ok(e),
+            None => Err(Error::Usage(format!(
+                "internal: outage {k} is not journaled"
+            ))),
+        }
+    };
+    finish_audit(
+        &net,
+        &audit,
+        &full,
+        AuditOutput {
+            json: args.json.as_deref(),
+            csv: args.csv.as_deref(),
+            risk: risk.as_ref(),
+            gates: &gates,
+            gate_tolerance: args.gate_tolerance,
+            close: args.close,
+            top: args.top,
+            opts,
+        },
+        journal,
+        &interrupted,
+        out,
+    )
+}
+
+/// What an audit (or a merge) writes.
+struct AuditOutput<'a> {
+    json: Option<&'a Path>,
+    csv: Option<&'a Path>,
+    risk: Option<&'a risk::Risk>,
+    gates: &'a [Gate],
+    gate_tolerance: Option<f64>,
+    close: bool,
+    top: usize,
+    opts: audit::RunOptions,
+}
+
+/// Closings, gates, the `--json` file (streamed; thin evaluations read back with `full`),
+/// the journal removed, then the report on `out`.
+#[allow(clippy::too_many_arguments)]
+fn finish_audit(
+    net: &Network,
+    audit: &audit::Audit,
+    full: report::json::Full<'_>,
+    o: AuditOutput<'_>,
+    journal: Option<Journal>,
+    interrupted: &dyn Fn(Error) -> Error,
+    out: &mut dyn Write,
+) -> Result<Outcome> {
+    let baseline = with_full_baseline(net, audit, full)?;
+    let cands = expand::Candidates::of(net);
+    let closings = if o.close {
         Some(
             audit::par_map(
                 &(0..audit.outages.len()).collect::<Vec<_>>(),
-                opts,
+                o.opts,
                 "closing",
-                |&k| expand::close(&net, &audit.outages[k], &audit.evaluations[k], &cands),
+                |&k| expand::close(net, &audit.outages[k], &audit.evaluations[k], &cands),
             )
             .map_err(interrupted)?,
         )
     } else {
         None
     };
-    let verdicts = gate::check(&audit, &gates, args.gate_tolerance);
-    let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &audit)?;
+    let verdicts = gate::check(audit, o.gates, o.gate_tolerance);
     // Files first: a reader that closes stdout early never costs the --json file.
-    if let Some(path) = &args.json {
+    if let Some(path) = o.json {
         let closing_json = closings.as_ref().map(|c| {
             audit
                 .outage_of
                 .iter()
-                .map(|&k| report::json::closing_json(&net, c[k].as_ref(), cands.default_costs))
+                .map(|&k| report::json::closing_json(net, c[k].as_ref(), cands.default_costs))
                 .collect::<Vec<_>>()
         });
-        let mut doc = report::json::audit_json(&net, &audit, &baseline, closing_json.as_deref());
-        doc.gates = report::json::gates_json(&audit, &verdicts);
-        if let Some(r) = &risk {
-            report::json::attach_risk(&mut doc, &net, &audit, r);
+        let mut doc =
+            report::json::audit_json_with(net, audit, &baseline, closing_json.as_deref(), full);
+        doc.gates = report::json::gates_json(audit, &verdicts);
+        if let Some(r) = o.risk {
+            report::json::attach_risk(&mut doc, net, audit, r);
         }
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
     }
-    if let Some(path) = &args.csv {
+    if let Some(path) = o.csv {
         report::file::write_atomic(path, |w| {
-            report::csv::write_audit(w, &audit, closings.as_deref(), risk.as_ref())
+            report::csv::write_audit(w, audit, closings.as_deref(), o.risk)
         })?;
     }
     if let Some(j) = journal {
@@ -418,22 +641,80 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     }
     stdout_result(report::text::write_audit(
         out,
-        &net,
-        &audit,
+        net,
+        audit,
         &baseline,
         closings.as_deref().map(|c| report::text::ClosingPart {
             closings: c,
             default_costs: cands.default_costs,
         }),
-        risk.as_ref(),
+        o.risk,
         &verdicts,
-        args.top,
+        o.top,
     ))?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok
     } else {
         Outcome::GateFailed
     })
+}
+
+/// `merge`: reads the part files, rebuilds the run's scenario list from the network and
+/// options they carry, and writes what the unsharded audit writes.
+fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
+    if let Some(json) = &args.json {
+        let inputs: Vec<&Path> = args.parts.iter().map(PathBuf::as_path).collect();
+        report::file::check_output("--json", json, &inputs)?;
+    }
+    let mut held: Vec<Option<solve::Evaluation>> = Vec::new();
+    let parts = journal::Parts::open(&args.parts, |k, e| {
+        if held.len() <= k {
+            held.resize(k + 1, None);
+        }
+        held[k] = Some(if k == 0 { e } else { e.thin() });
+    })?;
+    let h = &parts.header;
+    let net = Network::from_bytes(h.network.as_bytes())
+        .map_err(|e| Error::Input(format!("merge: the network in the parts: {e}")))?;
+    let engine = match h.engine.as_str() {
+        "Edge" => cli::Engine::Edge,
+        _ => cli::Engine::Walks,
+    };
+    let list = scenarios_for(&net, h.depth, &h.kinds, h.fail.as_deref(), &[])?;
+    let mut batch = audit::Batch::new(&net, list.iter, engine).keeping(audit::Keep::Thin);
+    if batch.outages() != h.outages {
+        return Err(Error::Usage(format!(
+            "merge: the parts name {} outages, their network and options give {}",
+            h.outages,
+            batch.outages()
+        )));
+    }
+    held.resize(h.outages, None);
+    batch.restore(held);
+    let audit = batch.into_audit();
+    let full = |k: usize| parts.read(k);
+    let opts = audit::RunOptions {
+        threads: None,
+        progress: false,
+    };
+    finish_audit(
+        &net,
+        &audit,
+        &full,
+        AuditOutput {
+            json: args.json.as_deref(),
+            csv: None,
+            risk: None,
+            gates: &[],
+            gate_tolerance: None,
+            close: false,
+            top: args.top,
+            opts,
+        },
+        None,
+        &|e| e,
+        out,
+    )
 }
 
 fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
@@ -460,15 +741,17 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
         report::file::check_output("--apply", apply, &others)?;
     }
     let (net, text) = read_network(input)?;
-    let scenarios = scenarios_for(&net, &args.scenarios, None)?;
+    let list = scenario_list(&net, &args.scenarios, None)?;
     let opts = run_options(&args.scenarios, err)?;
     match routing_mode(args.scenarios.routing) {
         Some(routing::Mode::Nearest) => return Err(nearest_refused("plan")),
-        Some(mode) => return run_routed_plan(args, &net, scenarios, opts, goal, mode, out),
+        Some(mode) => {
+            let scenarios: Vec<Scenario> = list.iter.collect();
+            return run_routed_plan(args, &net, scenarios, opts, goal, mode, out);
+        }
         None => {}
     }
-    let batch = audit::Batch::new(&net, scenarios, cli::Engine::Walks);
-    let audit = solve_batch(&net, batch, &args.scenarios, opts, None, err)?;
+    let audit = solve_list(&net, list, cli::Engine::Walks, &args.scenarios, opts, err)?;
     let plan = expand::plan(&net, &audit, goal, opts)?;
     let default_costs = expand::Candidates::of(&net).default_costs;
     if let Some(path) = &args.json {
@@ -629,13 +912,14 @@ pub fn run(cli: Cli, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome
             audit::install_interrupt_handler();
             run_audit(&args, out, err)
         }
-        Command::Plan(args) => {
-            audit::install_interrupt_handler();
-            run_plan(&args, out, err)
-        }
+        Command::Merge(args) => run_merge(&args, out),
         Command::Compare(args) => {
             audit::install_interrupt_handler();
             compare::run(&args, out, err)
+        }
+        Command::Plan(args) => {
+            audit::install_interrupt_handler();
+            run_plan(&args, out, err)
         }
     }
 }

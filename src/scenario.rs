@@ -328,13 +328,32 @@ pub fn enumerate_pool(
     depth: usize,
     down: &[Element],
 ) -> Vec<Scenario> {
-    let mut out = vec![Scenario::baseline().with_down(down)];
-    for k in 1..=depth.min(pool.len()) {
-        for combo in pool.iter().copied().combinations(k) {
-            out.push(Scenario::new(net, &combo).with_down(down));
-        }
-    }
-    out
+    lazy_pool(net, pool.to_vec(), depth, down.to_vec()).collect()
+}
+
+/// [`enumerate`] as an iterator: yields the same scenarios in the same order, one at a
+/// time, holding only the element pool and one combination (memory O(pool + depth),
+/// whatever the count). Each item costs O(depth · log depth) plus its names.
+pub fn lazy(net: &Network, kinds: Kinds, depth: usize) -> impl Iterator<Item = Scenario> + '_ {
+    lazy_pool(net, elements(net, kinds), depth, Vec::new())
+}
+
+/// [`enumerate_pool`] as an iterator (see [`lazy`]).
+pub fn lazy_pool(
+    net: &Network,
+    pool: Vec<Element>,
+    depth: usize,
+    down: Vec<Element>,
+) -> impl Iterator<Item = Scenario> + '_ {
+    let top = depth.min(pool.len());
+    let first = Scenario::baseline().with_down(&down);
+    std::iter::once(first).chain((1..=top).flat_map(move |k| {
+        let down = down.clone();
+        pool.clone()
+            .into_iter()
+            .combinations(k)
+            .map(move |combo| Scenario::new(net, &combo).with_down(&down))
+    }))
 }
 
 /// Groups scenarios by outage: returns the distinct outages (in first-seen order) and,

@@ -2470,3 +2470,155 @@ fn depth_2_folds_equivalent_scenarios() {
         run.stdout
     );
 }
+
+/// Source: the brief (`merge` of the shard files gives exactly the JSON an unsharded run
+/// writes); the reference is the unsharded run of the same binary, compared byte for byte,
+/// with shards run at different thread counts and merged in another order.
+#[test]
+fn sharded_audit_merges_to_the_unsharded_files() {
+    let demo = demo();
+    let dir = TempDir::new("shards");
+    let whole = dir.0.join("whole.json");
+    let base = ["audit", s(&demo), "--depth", "2", "--quiet"];
+    let full: Vec<&str> = base.iter().copied().chain(["--json", s(&whole)]).collect();
+    let reference = redoubt(&full);
+    assert_eq!(reference.code, 0, "{}", reference.stderr);
+    let parts: Vec<PathBuf> = (1..=3)
+        .map(|i| dir.0.join(format!("part-{i}.jsonl")))
+        .collect();
+    for (i, part) in parts.iter().enumerate() {
+        let shard = format!("{}/3", i + 1);
+        let threads = if i == 1 { "1" } else { "2" };
+        let args: Vec<&str> = base
+            .iter()
+            .copied()
+            .chain(["--shard", &shard, "--threads", threads, "--json", s(part)])
+            .collect();
+        let run = redoubt(&args);
+        assert_eq!(run.code, 0, "{}", run.stderr);
+        assert!(
+            run.stdout.contains(&format!("shard {shard}")),
+            "{}",
+            run.stdout
+        );
+        assert!(part.exists() && !dir.0.join(format!("part-{}.jsonl.journal", i + 1)).exists());
+    }
+    let merged = dir.0.join("merged.json");
+    let run = redoubt(&[
+        "merge",
+        s(&parts[2]),
+        s(&parts[0]),
+        s(&parts[1]),
+        "--json",
+        s(&merged),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    assert!(
+        std::fs::read(&merged).unwrap() == std::fs::read(&whole).unwrap(),
+        "merged JSON differs from the unsharded run's"
+    );
+    assert_eq!(run.stdout, reference.stdout, "merged report differs");
+
+    // A shard missing, a shard given twice, a part of another run: refused.
+    let missing = redoubt(&["merge", s(&parts[0]), s(&parts[1])]);
+    assert_eq!(missing.code, 2, "{}", missing.stderr);
+    assert!(
+        missing.stderr.contains("shard 3/3 is missing"),
+        "{}",
+        missing.stderr
+    );
+    let twice = redoubt(&["merge", s(&parts[0]), s(&parts[0]), s(&parts[1])]);
+    assert_eq!(twice.code, 2, "{}", twice.stderr);
+    assert!(twice.stderr.contains("twice"), "{}", twice.stderr);
+    let other = dir.0.join("other.jsonl");
+    let run = redoubt(&[
+        "audit",
+        s(&demo),
+        "--depth",
+        "1",
+        "--quiet",
+        "--shard",
+        "1/3",
+        "--json",
+        s(&other),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let mixed = redoubt(&["merge", s(&other), s(&parts[1]), s(&parts[2])]);
+    assert_eq!(mixed.code, 2, "{}", mixed.stderr);
+    assert!(mixed.stderr.contains("another run"), "{}", mixed.stderr);
+    for bad in ["0/3", "4/3", "3", "a/b"] {
+        let run = redoubt(&["audit", s(&demo), "--shard", bad, "--json", s(&other)]);
+        assert_eq!(run.code, 2, "--shard {bad}: {}", run.stderr);
+    }
+    // A part needs --json; gates and --close belong to whole runs.
+    for extra in [&["--close"][..], &["--max-shortfall", "1"][..], &[][..]] {
+        let mut args = vec!["audit", s(&demo), "--shard", "1/2"];
+        if !extra.is_empty() {
+            args.extend(["--json", s(&other)]);
+        }
+        args.extend_from_slice(extra);
+        let run = redoubt(&args);
+        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
+    }
+}
+
+/// Source: the library's in-memory path (`audit_network_with` keeps every evaluation in
+/// full and `audit_json` builds the document from them), against the binary, which keeps
+/// thin evaluations and streams the JSON from its journal: the bytes must be equal.
+#[test]
+fn streamed_json_equals_the_in_memory_document() {
+    let demo = demo();
+    let out = TempPath::new("streamed", "json");
+    let run = redoubt(&[
+        "audit",
+        s(&demo),
+        "--depth",
+        "2",
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let net = redoubt::load(&demo).unwrap();
+    let scenarios = redoubt::scenario::enumerate(&net, redoubt::scenario::Kinds::ALL, 2);
+    let (audit, baseline) = redoubt::audit_network_with(
+        &net,
+        scenarios,
+        redoubt::audit::RunOptions::default(),
+        redoubt::cli::Engine::Walks,
+    )
+    .unwrap();
+    let doc = redoubt::report::json::audit_json(&net, &audit, &baseline, None);
+    let want = redoubt::report::json::to_string(&doc);
+    assert!(
+        std::fs::read_to_string(&out.0).unwrap() == want,
+        "streamed JSON differs from the in-memory document"
+    );
+}
+
+/// Source: issue 7 row 10 (`--depth 2` on a 400-site file took 1.75 GB before the first
+/// solve); the scenario count is the binomial sum 1 + n + C(n, 2) over n = 400 sites + 400
+/// ring links, computed here. The run is counted and estimated before any scenario is
+/// enumerated, and refused without --yes.
+#[test]
+fn depth_2_on_400_sites_is_estimated_before_enumerating() {
+    let net = TempPath::with_text("ring-400", &ring_net(400));
+    let run = redoubt(&[
+        "audit",
+        net.path(),
+        "--depth",
+        "2",
+        "--max-minutes",
+        "0.001",
+    ]);
+    assert_eq!(run.code, 2, "{}", run.stderr);
+    let n: u64 = 800;
+    let count = 1 + n + n * (n - 1) / 2;
+    assert!(
+        run.stderr.contains(&format!("{count} scenarios")),
+        "{count}: {}",
+        run.stderr
+    );
+    assert!(run.stderr.contains("--yes"), "{}", run.stderr);
+    assert!(run.stdout.is_empty());
+}

@@ -86,3 +86,87 @@ fn grid50_walk_engine_equals_edge_lp() {
         assert!(e.max_violation < 1e-6, "outage {i}: {}", e.max_violation);
     }
 }
+
+/// The faster searches against their definitions, on the fixture under every single failure
+/// and a few doubles: the cut-off demands by one search from each origin and to each
+/// destination (`Surviving::unservable_by_ends`), and the dual bound with Dijkstra trees
+/// rooted at the demands' ends (the textbook per-commodity shortest paths) against trees
+/// rooted at the processing sites, at arbitrary deterministic prices.
+#[test]
+fn site_rooted_searches_equal_the_per_demand_ones() {
+    use redoubt::solve::{Surviving, Unservable, certify};
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/fixtures/grid-50.json"
+    ))
+    .unwrap();
+    let net = Network::from_json(&text).unwrap();
+    let mut sets: Vec<Vec<Element>> = (0..net.links.len())
+        .map(|l| vec![Element::Link(l)])
+        .collect();
+    sets.extend((0..net.sites.len()).map(|s| vec![Element::Site(s)]));
+    sets.extend((0..10).map(|i| vec![Element::Site(i * 5), Element::Link(i * 7 + 1)]));
+    // Islands: each link alone with its two ends (every other link of theirs failed), so
+    // demands leave the island (no path) or stay on it without processing.
+    for l in 0..12 {
+        let (a, b) = (net.links[l].from, net.links[l].to);
+        let others = (0..net.links.len()).filter(|&m| {
+            m != l
+                && [a, b]
+                    .iter()
+                    .any(|&x| net.links[m].from == x || net.links[m].to == x)
+        });
+        sets.push(others.map(Element::Link).collect());
+    }
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let arc_cap: Vec<f64> = net
+        .arcs
+        .iter()
+        .map(|a| net.links[a.link].capacity)
+        .collect();
+    let site_cap: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    let (mut no_path, mut no_proc, mut compared) = (0usize, 0usize, 0usize);
+    for (i, els) in sets.iter().enumerate() {
+        let o = Scenario::new(&net, els).outage(&net);
+        let view = Surviving::new(&net, &o, None);
+        let fast = view.unservable(&net, &required);
+        assert_eq!(fast, view.unservable_by_ends(&net, &required), "{els:?}");
+        no_path += fast
+            .iter()
+            .filter(|r| **r == Some(Unservable::NoPath))
+            .count();
+        no_proc += fast
+            .iter()
+            .filter(|r| **r == Some(Unservable::NoProcessing))
+            .count();
+        let y: Vec<f64> = (0..net.arcs.len())
+            .map(|a| ((a * 37 + i * 11) % 17) as f64 / 400.0)
+            .collect();
+        let z: Vec<f64> = (0..net.sites.len())
+            .map(|v| ((v * 13 + i) % 7) as f64 / 50.0)
+            .collect();
+        let by = |sites| {
+            certify::dual_bound_rooted(
+                &net,
+                &view,
+                &required,
+                &arc_cap,
+                &site_cap,
+                &y,
+                &z,
+                Some(sites),
+            )
+        };
+        let (a, b) = (by(true), by(false));
+        assert!(
+            (a - b).abs() <= 1e-9 * a.abs().max(1.0),
+            "{els:?}: {a} vs {b}"
+        );
+        compared += 1;
+    }
+    // Islands cut demands off for both reasons, so every outcome is exercised.
+    assert!(
+        no_path > 0 && no_proc > 0 && compared == sets.len(),
+        "{no_path} {no_proc}"
+    );
+}

@@ -7,7 +7,7 @@
 //! one. A kill at any moment leaves at most a torn last line, which reading ignores.
 
 use std::fs::{self, File, OpenOptions};
-use std::io::{self, Write};
+use std::io::{self, BufRead, BufReader, Seek, Write};
 use std::path::{Path, PathBuf};
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -78,10 +78,17 @@ pub enum Opened {
     Resumed(usize),
 }
 
-/// An open journal; [`Journal::record`] may be called from many threads.
+/// An open journal; [`Journal::record`] and [`Journal::line`] may be called from many
+/// threads. It remembers where each outage's line starts, so a report can read one
+/// evaluation back ([`JournalReader::read`]) instead of keeping every evaluation in memory.
 pub struct Journal {
     path: PathBuf,
-    file: Mutex<File>,
+    /// The file and the offset of its end (where the next line goes).
+    file: Mutex<(File, u64)>,
+    /// Per outage: the byte offset of its last whole line, if journaled.
+    offsets: Mutex<Vec<Option<u64>>>,
+    /// A reading handle, opened on the first [`Journal::line`].
+    reader: Mutex<Option<BufReader<File>>>,
     outages: usize,
     /// Outages the journal holds (restored plus recorded).
     saved: AtomicUsize,
@@ -143,6 +150,8 @@ impl Journal {
                     )));
                 }
                 let mut count = 0;
+                let mut offsets = vec![None; outages];
+                let mut at = text.find('\n').map_or(len, |i| i + 1) as u64;
                 for (n, line) in lines.enumerate() {
                     let rec: LineIn =
                         serde_json::from_str(line).map_err(|_| damaged(path, n + 2))?;
@@ -153,13 +162,15 @@ impl Journal {
                         count += 1;
                     }
                     *slot = Some(rec.evaluation);
+                    offsets[rec.outage] = Some(at);
+                    at += line.len() as u64 + 1;
                 }
                 let file = OpenOptions::new()
                     .write(true)
                     .open(path)
                     .map_err(io_err(path))?;
                 file.set_len(len as u64).map_err(io_err(path))?;
-                let journal = Journal::at(path, file, len as u64, outages, count)?;
+                let journal = Journal::at(path, file, len as u64, offsets, count)?;
                 return Ok((journal, restored, Opened::Resumed(count)));
             }
             _ if resume => Opened::NothingToResume,
@@ -174,17 +185,24 @@ impl Journal {
         let mut line = serde_json::to_string(&header).expect("header serialises");
         line.push('\n');
         file.write_all(line.as_bytes()).map_err(io_err(path))?;
-        let journal = Journal::at(path, file, line.len() as u64, outages, 0)?;
+        let journal = Journal::at(path, file, line.len() as u64, vec![None; outages], 0)?;
         Ok((journal, restored, opened))
     }
 
-    fn at(path: &Path, mut file: File, end: u64, outages: usize, saved: usize) -> Result<Journal> {
-        use std::io::Seek;
+    fn at(
+        path: &Path,
+        mut file: File,
+        end: u64,
+        offsets: Vec<Option<u64>>,
+        saved: usize,
+    ) -> Result<Journal> {
         file.seek(io::SeekFrom::Start(end)).map_err(io_err(path))?;
         Ok(Journal {
             path: path.to_path_buf(),
-            file: Mutex::new(file),
-            outages,
+            file: Mutex::new((file, end)),
+            outages: offsets.len(),
+            offsets: Mutex::new(offsets),
+            reader: Mutex::new(None),
             saved: AtomicUsize::new(saved),
             failure: Mutex::new(None),
         })
@@ -214,34 +232,74 @@ impl Journal {
             .clone()
     }
 
-    /// Appends outage `k`'s evaluation as one whole line (one `write` under a lock). The
+    /// Appends outage `k`'s evaluation as one whole line (one `write` under a lock) and
+    /// returns whether it is journaled (so [`JournalReader::read`] gives it back bit for bit). The
     /// journal is insurance, not a result: a failed write stops journaling (see
-    /// [`Self::failure`]) and never the run.
-    pub fn record(&self, k: usize, e: &Evaluation) {
-        let Ok(mut line) = serde_json::to_string(&LineOut {
-            outage: k,
-            evaluation: e,
-        }) else {
-            return;
-        };
+    /// [`Self::failure`]) and never the run. O(size of the evaluation).
+    pub fn record(&self, k: usize, e: &Evaluation) -> bool {
         // A value JSON cannot carry exactly (not finite) is not journaled: a resume solves
         // that outage again rather than restore something different.
-        let exact = serde_json::from_str::<LineIn>(&line).is_ok_and(|r| r.evaluation == *e);
-        if !exact {
-            return;
-        }
+        let Some(mut line) = to_line(k, e) else {
+            return false;
+        };
         line.push('\n');
         let mut file = self.file.lock().unwrap_or_else(|p| p.into_inner());
         let mut failure = self.failure.lock().unwrap_or_else(|p| p.into_inner());
         if failure.is_some() {
-            return;
+            return false;
         }
-        match file.write_all(line.as_bytes()) {
+        let at = file.1;
+        match file.0.write_all(line.as_bytes()) {
             Ok(()) => {
+                file.1 += line.len() as u64;
                 self.saved.fetch_add(1, Ordering::SeqCst);
+                if let Some(slot) = self
+                    .offsets
+                    .lock()
+                    .unwrap_or_else(|p| p.into_inner())
+                    .get_mut(k)
+                {
+                    *slot = Some(at);
+                }
+                true
             }
-            Err(err) => *failure = Some(format!("{}: {err}", self.path.display())),
+            Err(err) => {
+                *failure = Some(format!("{}: {err}", self.path.display()));
+                false
+            }
         }
+    }
+
+    /// Outage `k`'s journaled line, without its newline (`None` when not journaled).
+    /// O(line length): one seek and one read.
+    pub fn line(&self, k: usize) -> Result<Option<String>> {
+        let Some(at) = self
+            .offsets
+            .lock()
+            .unwrap_or_else(|p| p.into_inner())
+            .get(k)
+            .copied()
+            .flatten()
+        else {
+            return Ok(None);
+        };
+        line_at(&self.reader, &self.path, at).map(Some)
+    }
+
+    /// A reader of the lines journaled so far, independent of the journal's lifetime (it
+    /// keeps the file open, so it reads even after [`Self::remove`] on Unix). O(outages).
+    pub fn reader(&self) -> Result<JournalReader> {
+        Ok(JournalReader {
+            path: self.path.clone(),
+            offsets: self
+                .offsets
+                .lock()
+                .unwrap_or_else(|p| p.into_inner())
+                .clone(),
+            reader: Mutex::new(Some(BufReader::new(
+                File::open(&self.path).map_err(io_err(&self.path))?,
+            ))),
+        })
     }
 
     /// Deletes the journal once the final files are written.
@@ -251,9 +309,285 @@ impl Journal {
     }
 }
 
+/// Reads the line starting at byte `at` of `path` (without its newline) through the
+/// shared handle `reader`, opened on first use. O(line length).
+fn line_at(reader: &Mutex<Option<BufReader<File>>>, path: &Path, at: u64) -> Result<String> {
+    let mut reader = reader.lock().unwrap_or_else(|p| p.into_inner());
+    if reader.is_none() {
+        *reader = Some(BufReader::new(File::open(path).map_err(io_err(path))?));
+    }
+    let r = reader.as_mut().expect("opened above");
+    r.seek(io::SeekFrom::Start(at)).map_err(io_err(path))?;
+    let mut line = String::new();
+    r.read_line(&mut line).map_err(io_err(path))?;
+    if line.pop() != Some('\n') {
+        return Err(changed(path));
+    }
+    Ok(line)
+}
+
+/// Reads journaled evaluations back ([`Journal::reader`]).
+pub struct JournalReader {
+    path: PathBuf,
+    offsets: Vec<Option<u64>>,
+    reader: Mutex<Option<BufReader<File>>>,
+}
+
+impl JournalReader {
+    /// Outage `k`'s evaluation as journaled (bit-identical to the recorded one), `None`
+    /// when it was not journaled. O(size of the evaluation).
+    pub fn read(&self, k: usize) -> Result<Option<Evaluation>> {
+        let Some(at) = self.offsets.get(k).copied().flatten() else {
+            return Ok(None);
+        };
+        let line = line_at(&self.reader, &self.path, at)?;
+        parse_line(&line, k)
+            .map(Some)
+            .ok_or_else(|| changed(&self.path))
+    }
+}
+
+/// Parses one journal or part line of outage `k`.
+fn parse_line(line: &str, k: usize) -> Option<Evaluation> {
+    serde_json::from_str::<LineIn>(line)
+        .ok()
+        .filter(|r| r.outage == k)
+        .map(|r| r.evaluation)
+}
+
+fn changed(path: &Path) -> Error {
+    Error::Usage(format!(
+        "{} changed while this run was reading it back; run again",
+        path.display()
+    ))
+}
+
+/// Version of the part-file layout.
+pub const PART_VERSION: u32 = 1;
+
+/// The first line of a part file (`audit --shard I/N`): everything `merge` needs to
+/// rebuild the run's scenario list and to check that the parts belong together.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PartHeader {
+    pub redoubt_part: u32,
+    /// The run's fingerprint without the shard (equal in every part of one run).
+    pub fingerprint: String,
+    /// This part's shard, from 1.
+    pub shard: usize,
+    pub shards: usize,
+    /// Distinct outages of the whole run.
+    pub outages: usize,
+    /// The network file's text.
+    pub network: String,
+    pub depth: usize,
+    pub kinds: String,
+    pub fail: Option<String>,
+    pub engine: String,
+}
+
+/// Writes a part file: the header line, then `lines` (journal lines
+/// `{"outage":k,"evaluation":…}`, one per outage of the shard), each ending in a newline.
+/// O(total size).
+pub fn write_part(
+    w: &mut dyn Write,
+    header: &PartHeader,
+    lines: impl Iterator<Item = Result<String>>,
+) -> Result<()> {
+    let io = |source| Error::Io {
+        path: PathBuf::from("<part>"),
+        source,
+    };
+    let mut head = serde_json::to_string(header).expect("header serialises");
+    head.push('\n');
+    w.write_all(head.as_bytes()).map_err(io)?;
+    for line in lines {
+        let mut line = line?;
+        line.push('\n');
+        w.write_all(line.as_bytes()).map_err(io)?;
+    }
+    Ok(())
+}
+
+/// One evaluation as a journal/part line (without newline); `None` when JSON cannot carry
+/// it exactly (a non-finite value).
+pub fn to_line(k: usize, e: &Evaluation) -> Option<String> {
+    let line = serde_json::to_string(&LineOut {
+        outage: k,
+        evaluation: e,
+    })
+    .ok()?;
+    serde_json::from_str::<LineIn>(&line)
+        .is_ok_and(|r| r.evaluation == *e)
+        .then_some(line)
+}
+
+/// The part files of one sharded run, read for `merge`: headers checked, every outage's
+/// line located so [`Parts::read`] can give its evaluation back.
+pub struct Parts {
+    pub header: PartHeader,
+    paths: Vec<PathBuf>,
+    /// Per outage: (part, byte offset of its line).
+    offsets: Vec<(usize, u64)>,
+    readers: Vec<Mutex<Option<BufReader<File>>>>,
+}
+
+impl Parts {
+    /// Reads the parts' headers and lines and calls `each(k, evaluation)` once per outage
+    /// (in file order). Refuses (usage error naming the file) parts of different runs, a
+    /// shard given twice or missing, a damaged line, and an outage missing or present in
+    /// two parts. O(total size); memory O(outages) beyond what `each` keeps.
+    pub fn open(paths: &[PathBuf], mut each: impl FnMut(usize, Evaluation)) -> Result<Parts> {
+        let mut header: Option<PartHeader> = None;
+        let mut seen_shard: Vec<bool> = Vec::new();
+        let mut offsets: Vec<Option<(usize, u64)>> = Vec::new();
+        for (p, path) in paths.iter().enumerate() {
+            let bad = |why: String| Error::Usage(format!("merge: {}: {why}", path.display()));
+            let mut r = BufReader::new(File::open(path).map_err(io_err(path))?);
+            let mut line = String::new();
+            r.read_line(&mut line).map_err(io_err(path))?;
+            let h: PartHeader = serde_json::from_str(line.trim_end())
+                .ok()
+                .filter(|h: &PartHeader| h.redoubt_part == PART_VERSION)
+                .ok_or_else(|| {
+                    bad("not a redoubt part file (audit --shard I/N --json FILE)".into())
+                })?;
+            let mut at = line.len() as u64;
+            match &header {
+                None => {
+                    seen_shard = vec![false; h.shards];
+                    offsets = vec![None; h.outages];
+                    header = Some(h.clone());
+                }
+                Some(first) if first.fingerprint != h.fingerprint || first.shards != h.shards => {
+                    return Err(bad(format!(
+                        "belongs to another run than {} (another network file, other options \
+                         or another shard count)",
+                        paths[0].display()
+                    )));
+                }
+                Some(_) => {}
+            }
+            if h.shard == 0
+                || h.shard > h.shards
+                || std::mem::replace(&mut seen_shard[h.shard - 1], true)
+            {
+                return Err(bad(format!(
+                    "shard {}/{} given twice or out of range",
+                    h.shard, h.shards
+                )));
+            }
+            let mut n = 1;
+            loop {
+                line.clear();
+                let got = r.read_line(&mut line).map_err(io_err(path))?;
+                if got == 0 {
+                    break;
+                }
+                n += 1;
+                let rec: LineIn = serde_json::from_str(line.trim_end())
+                    .ok()
+                    .filter(|_| line.ends_with('\n'))
+                    .ok_or_else(|| bad(format!("damaged at line {n}")))?;
+                let slot = offsets
+                    .get_mut(rec.outage)
+                    .ok_or_else(|| bad(format!("damaged at line {n}")))?;
+                if slot.is_some() {
+                    return Err(bad(format!("outage {} is in two parts", rec.outage)));
+                }
+                *slot = Some((p, at));
+                at += got as u64;
+                each(rec.outage, rec.evaluation);
+            }
+        }
+        let header = header.ok_or_else(|| Error::Usage("merge: name the part files".into()))?;
+        if let Some(missing) = seen_shard.iter().position(|s| !s) {
+            return Err(Error::Usage(format!(
+                "merge: shard {}/{} is missing",
+                missing + 1,
+                header.shards
+            )));
+        }
+        let offsets = offsets
+            .into_iter()
+            .enumerate()
+            .map(|(k, o)| {
+                o.ok_or_else(|| {
+                    Error::Usage(format!(
+                        "merge: outage {k} is in no part (a shard was stopped before it ended?)"
+                    ))
+                })
+            })
+            .collect::<Result<Vec<_>>>()?;
+        Ok(Parts {
+            header,
+            readers: paths.iter().map(|_| Mutex::new(None)).collect(),
+            paths: paths.to_vec(),
+            offsets,
+        })
+    }
+
+    /// Outage `k`'s evaluation, bit-identical to the one the shard solved. O(its size).
+    pub fn read(&self, k: usize) -> Result<Evaluation> {
+        let (p, at) = self.offsets[k];
+        let path = &self.paths[p];
+        let line = line_at(&self.readers[p], path, at)?;
+        parse_line(&line, k).ok_or_else(|| changed(path))
+    }
+}
+
 fn damaged(path: &Path, line: usize) -> Error {
     Error::Usage(format!(
         "--resume: {} is damaged at line {line}; rerun without --resume to start again",
         path.display()
     ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::Network;
+    use crate::scenario::{Element, Scenario};
+
+    /// Source: the journal's own contract (a line read back by offset is the evaluation
+    /// recorded, bit for bit, also after a resume re-reads the file), checked against the
+    /// evaluations solved here.
+    #[test]
+    fn lines_read_back_by_offset_equal_what_was_recorded() {
+        let net = Network::from_json(
+            r#"{"sites":[{"id":"a","processing":3},{"id":"b"},{"id":"c","processing":1}],
+            "links":[{"id":"ab","from":"a","to":"b","capacity":2},
+                     {"id":"bc","from":"b","to":"c","capacity":5},
+                     {"id":"ca","from":"c","to":"a","capacity":1}],
+            "demands":[{"from":"a","to":"c","volume":2,"required":1.5},
+                       {"from":"b","to":"a","volume":1}]}"#,
+        )
+        .unwrap();
+        let evals: Vec<Evaluation> = [vec![], vec![Element::Link(0)], vec![Element::Site(2)]]
+            .iter()
+            .map(|els| {
+                crate::solve::evaluate(&net, &Scenario::new(&net, els).outage(&net)).unwrap()
+            })
+            .collect();
+        let dir = std::env::temp_dir().join(format!("redoubt-journal-{}", std::process::id()));
+        fs::create_dir_all(&dir).unwrap();
+        let path = dir.join("j.journal");
+        let (j, _, _) = Journal::open(&path, "fp", 3, false).unwrap();
+        // Recorded out of order, outage 1 twice: the last line counts.
+        assert!(j.record(2, &evals[2]) && j.record(1, &evals[0]) && j.record(1, &evals[1]));
+        let r = j.reader().unwrap();
+        assert_eq!(r.read(0).unwrap(), None);
+        assert_eq!(r.read(1).unwrap().as_ref(), Some(&evals[1]));
+        assert_eq!(r.read(2).unwrap().as_ref(), Some(&evals[2]));
+        drop((j, r));
+        let (j, restored, opened) = Journal::open(&path, "fp", 3, true).unwrap();
+        assert_eq!(opened, Opened::Resumed(2));
+        assert_eq!(restored[1].as_ref(), Some(&evals[1]));
+        assert!(j.record(0, &evals[0]));
+        let r = j.reader().unwrap();
+        for (k, e) in evals.iter().enumerate() {
+            assert_eq!(r.read(k).unwrap().as_ref(), Some(e), "outage {k}");
+            assert_eq!(j.line(k).unwrap(), to_line(k, e));
+        }
+        let _ = fs::remove_dir_all(&dir);
+    }
 }

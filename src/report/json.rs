@@ -14,7 +14,7 @@ use crate::rank;
 use crate::solve::{Evaluation, Resource};
 
 #[derive(Serialize)]
-pub struct AuditJson {
+pub struct AuditJson<'a> {
     pub network: String,
     pub unit: String,
     /// `best`, `nearest` or `steered` (`--routing`).
@@ -24,7 +24,7 @@ pub struct AuditJson {
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub down: Vec<String>,
     pub baseline: ScenarioJson,
-    pub scenarios: Vec<ScenarioJson>,
+    pub scenarios: LazyScenarios<'a>,
     pub criticality: Vec<CriticalityJson>,
     /// Risk figures under independent failures, when some pool element has a probability.
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -138,10 +138,10 @@ pub struct LikelyJson {
 }
 
 /// The risk object; also sets each scenario's `probability`.
-pub fn attach_risk(doc: &mut AuditJson, net: &Network, audit: &Audit, r: &crate::risk::Risk) {
-    for (sc, &p) in doc.scenarios.iter_mut().zip(&r.probability) {
-        sc.probability = Some(prob(p));
-    }
+pub fn attach_risk(doc: &mut AuditJson<'_>, net: &Network, audit: &Audit, r: &crate::risk::Risk) {
+    let probability: Vec<f64> = r.probability.iter().map(|&p| prob(p)).collect();
+    doc.scenarios
+        .patch(Box::new(move |i, sc| sc.probability = Some(probability[i])));
     doc.risk = Some(RiskJson {
         expected_shortfall: prob(r.expected_shortfall),
         expected_shortfall_bound: prob(r.expected_shortfall_bound),
@@ -322,30 +322,121 @@ pub fn scenario_json(
     }
 }
 
+/// Outage `k`'s full evaluation, for documents built from thin audits.
+pub type Full<'a> = &'a (dyn Fn(usize) -> crate::error::Result<Evaluation> + Sync);
+
+/// The `scenarios` array of an audit document, built one scenario at a time while it is
+/// written (so a document of any length needs memory for one scenario): serialises exactly
+/// like the `Vec<ScenarioJson>` it stands for.
+pub struct LazyScenarios<'a> {
+    net: &'a Network,
+    audit: &'a Audit,
+    baseline: &'a Evaluation,
+    closing: Option<&'a [serde_json::Value]>,
+    rank_of: Vec<usize>,
+    full: Full<'a>,
+    /// Per scenario: the failed list of the smallest equivalent scenario, when folded.
+    same_as: Vec<Option<Vec<String>>>,
+    /// Additions of other parts of the report (risk, routed fields), applied to every
+    /// scenario object as it is written.
+    patches: Vec<Patch<'a>>,
+}
+
+/// Adds fields to scenario `i`'s object as it is written.
+pub type Patch<'a> = Box<dyn Fn(usize, &mut ScenarioJson) + 'a>;
+
+impl<'a> LazyScenarios<'a> {
+    /// Applies `patch` to every scenario object as it is written.
+    pub fn patch(&mut self, patch: Patch<'a>) {
+        self.patches.push(patch);
+    }
+}
+
+impl LazyScenarios<'_> {
+    /// Scenario `i`'s object. O(demands + sites + its lists).
+    pub fn get(&self, i: usize) -> crate::error::Result<ScenarioJson> {
+        let k = self.audit.outage_of[i];
+        let held = self.audit.eval(i);
+        let fetched;
+        let e = if held.is_thin(self.net) {
+            fetched = (self.full)(k)?;
+            &fetched
+        } else {
+            held
+        };
+        let mut j = scenario_json(
+            self.net,
+            &self.audit.scenarios[i].failed,
+            e,
+            self.baseline,
+            self.rank_of[i],
+        );
+        j.closing = self.closing.map(|c| c[i].clone());
+        j.same_as = self.same_as[i].clone();
+        for p in &self.patches {
+            p(i, &mut j);
+        }
+        Ok(j)
+    }
+}
+
+impl Serialize for LazyScenarios<'_> {
+    fn serialize<S: serde::Serializer>(&self, ser: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::{Error as _, SerializeSeq};
+        let n = self.audit.scenarios.len();
+        let mut seq = ser.serialize_seq(Some(n))?;
+        for i in 0..n {
+            let j = self.get(i).map_err(S::Error::custom)?;
+            seq.serialize_element(&j)?;
+        }
+        seq.end()
+    }
+}
+
 /// The whole audit document; `closing[i]`, when given, is attached to scenario `i`.
-pub fn audit_json(
-    net: &Network,
-    audit: &Audit,
-    baseline: &Evaluation,
-    closing: Option<&[serde_json::Value]>,
-) -> AuditJson {
+/// Every evaluation must be full ([`audit_json_with`] reads thin ones back).
+pub fn audit_json<'a>(
+    net: &'a Network,
+    audit: &'a Audit,
+    baseline: &'a Evaluation,
+    closing: Option<&'a [serde_json::Value]>,
+) -> AuditJson<'a> {
+    audit_json_with(net, audit, baseline, closing, &|k| {
+        Err(crate::error::Error::Usage(format!(
+            "internal: outage {k} has no full evaluation"
+        )))
+    })
+}
+
+/// [`audit_json`] for an audit of thin evaluations ([`Evaluation::thin`]): `full(k)`
+/// gives outage `k`'s full evaluation while the document is written, and `baseline` must
+/// be full. O(scenarios · log scenarios) to rank; the scenarios are built as written.
+pub fn audit_json_with<'a>(
+    net: &'a Network,
+    audit: &'a Audit,
+    baseline: &'a Evaluation,
+    closing: Option<&'a [serde_json::Value]>,
+    full: Full<'a>,
+) -> AuditJson<'a> {
     let order = rank::worst_first(audit);
     let mut rank_of = vec![0; order.len()];
     for (r, &i) in order.iter().enumerate() {
         rank_of[i] = r + 1;
     }
     let folding = crate::fold::Folding::of(audit);
-    let scenarios = audit
-        .scenarios
-        .iter()
-        .enumerate()
-        .map(|(i, s)| {
-            let mut j = scenario_json(net, &s.failed, audit.eval(i), baseline, rank_of[i]);
-            j.closing = closing.map(|c| c[i].clone());
-            j.same_as = folding.into[i].map(|r| audit.scenarios[r].failed.clone());
-            j
-        })
+    let same_as = (0..audit.scenarios.len())
+        .map(|i| folding.into[i].map(|r| audit.scenarios[r].failed.clone()))
         .collect();
+    let scenarios = LazyScenarios {
+        net,
+        audit,
+        baseline,
+        closing,
+        rank_of,
+        full,
+        same_as,
+        patches: Vec::new(),
+    };
     AuditJson {
         network: net.name.clone(),
         unit: net.unit.clone(),
@@ -373,9 +464,11 @@ pub fn audit_json(
     }
 }
 
-/// The JSON exporter: any report document as pretty JSON with a trailing newline, to `w`.
+/// The JSON exporter: any report document as pretty JSON with a trailing newline, to `w`,
+/// streamed (byte-identical to [`to_string`]).
 pub fn write<T: Serialize>(w: &mut dyn Write, doc: &T) -> io::Result<()> {
-    w.write_all(to_string(doc).as_bytes())
+    serde_json::to_writer_pretty(&mut *w, doc).map_err(io::Error::other)?;
+    w.write_all(b"\n")
 }
 
 /// Serialises any report document as pretty JSON with a trailing newline.

@@ -238,11 +238,11 @@ fn routed_fields(
 /// The audit document under a deployed routing: the same document as the best re-route
 /// (values under the chosen routing), with `routing` set and each scenario carrying
 /// [`RoutedScenarioJson`].
-pub fn audit_json(
-    net: &Network,
-    ra: &RoutedAudit,
-    closing: Option<&[serde_json::Value]>,
-) -> super::json::AuditJson {
+pub fn audit_json<'a>(
+    net: &'a Network,
+    ra: &'a RoutedAudit,
+    closing: Option<&'a [serde_json::Value]>,
+) -> super::json::AuditJson<'a> {
     let audit = &ra.audit;
     let mut doc = super::json::audit_json(net, audit, &ra.baseline.eval, closing);
     doc.routing = ra.mode.name();
@@ -254,7 +254,7 @@ pub fn audit_json(
         &ra.baseline.eval,
         &ra.baseline_best,
     ));
-    for (i, s) in doc.scenarios.iter_mut().enumerate() {
+    doc.scenarios.patch(Box::new(move |i, s| {
         let k = audit.outage_of[i];
         s.routed = Some(routed_fields(
             net,
@@ -263,6 +263,6 @@ pub fn audit_json(
             &audit.evaluations[k],
             &ra.best[k],
         ));
-    }
+    }));
     doc
 }

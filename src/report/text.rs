@@ -10,6 +10,7 @@ use super::{CAUTION, num, percent, small};
 use crate::audit::Audit;
 use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
+use crate::model::strict::printable;
 use crate::rank::{self, Criticality};
 use crate::solve::{Evaluation, Resource, Unservable};
 
@@ -939,22 +940,39 @@ pub fn note_threads_capped(w: &mut dyn Write, asked: usize, cores: usize) -> io:
     )
 }
 
-/// A note on stderr: the estimated time of the run before it starts.
+/// A note on stderr: the estimated time of the run before it starts (`scenarios` counted,
+/// not yet enumerated; `first_solve` is one sample failure).
 pub fn note_estimate(
     w: &mut dyn Write,
-    outages: usize,
+    scenarios: usize,
     first_solve: std::time::Duration,
     threads: usize,
     minutes: f64,
 ) -> io::Result<()> {
     writeln!(
         w,
-        "redoubt: {outages} outages to solve; the first took {} s, so about {} minute{} on \
+        "redoubt: {scenarios} scenarios to solve; one took {} s, so about {} minute{} on \
          {threads} thread{}",
         num(first_solve.as_secs_f64()),
         num(minutes),
         if minutes == 1.0 { "" } else { "s" },
         if threads == 1 { "" } else { "s" }
+    )
+}
+
+/// What `audit --shard I/N` prints: the shard, its outages and where its part is.
+pub fn write_shard(
+    w: &mut dyn Write,
+    shard: usize,
+    shards: usize,
+    outages: usize,
+    part: &std::path::Path,
+) -> io::Result<()> {
+    writeln!(
+        w,
+        "shard {shard}/{shards}: {outages} outages solved; part written to {} (combine the \
+         parts with `redoubt merge PART… --json FILE`)",
+        printable(&part.display().to_string())
     )
 }
 

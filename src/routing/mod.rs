@@ -557,6 +557,7 @@ pub fn run(
             outage_of,
             outages,
             evaluations,
+            stats: Default::default(),
         },
         best,
         offered,

@@ -192,6 +192,39 @@ impl Evaluation {
                 .is_none_or(|v| v.proven)
     }
 
+    /// The evaluation without its per-demand, per-arc and per-site vectors (`demand_flow`,
+    /// `demand_shortfall`, `arc_load`, `site_load`, `arc_price` emptied, and `site_price`
+    /// unless the outage has a shortfall): what ranking, gates, criticality, the relief
+    /// table and the verification summary read, in a few hundred bytes instead of
+    /// O(demands + arcs + sites). O(1) beyond freeing. Invariant:
+    /// every scalar, `bottlenecks`, `cut_off`, `stranded_demands` and both verifications
+    /// are unchanged; a report that shows the dropped vectors asks for the full evaluation
+    /// again ([`Evaluation::is_thin`]).
+    pub fn thin(mut self) -> Evaluation {
+        for v in [
+            &mut self.demand_flow,
+            &mut self.demand_shortfall,
+            &mut self.arc_load,
+            &mut self.site_load,
+            &mut self.arc_price,
+        ] {
+            *v = Vec::new();
+        }
+        if self.shortfall <= 0.0 {
+            self.site_price = Vec::new();
+        }
+        self.bottlenecks.shrink_to_fit();
+        self.cut_off.shrink_to_fit();
+        self.stranded_demands.shrink_to_fit();
+        self
+    }
+
+    /// Whether this is a [`thin`](Evaluation::thin) evaluation of `net` (its per-demand
+    /// vectors are missing; a full one has one entry per demand).
+    pub fn is_thin(&self, net: &Network) -> bool {
+        self.demand_flow.len() != net.demands.len()
+    }
+
     /// Surviving required demand cut off for `reason` (Σ required of those demands).
     pub fn cut_off_required(&self, net: &Network, reason: Unservable) -> f64 {
         self.cut_off
