@@ -9,6 +9,7 @@ pub mod file;
 pub mod journal;
 pub mod json;
 pub mod routing;
+pub mod screen;
 pub mod text;
 
 /// The caution every report carries.

@@ -2,7 +2,7 @@
 
 use std::fmt::Write as _;
 
-use comfy_table::{Cell, CellAlignment, ContentArrangement, Table, presets::UTF8_FULL_CONDENSED};
+use comfy_table::Cell;
 
 use std::io::{self, Write};
 
@@ -13,20 +13,11 @@ use crate::model::Network;
 use crate::rank::{self, Criticality};
 use crate::solve::{Evaluation, Resource, Unservable};
 
-fn table(header: &[&str]) -> Table {
-    let mut t = Table::new();
-    t.load_style(UTF8_FULL_CONDENSED)
-        .set_content_arrangement(ContentArrangement::Dynamic)
-        .set_header(header.iter().map(Cell::new));
-    t
-}
+use super::screen::{self, render, right, table};
 
-fn right(t: &mut Table, cols: &[usize]) {
-    for &c in cols {
-        if let Some(col) = t.column_mut(c) {
-            col.set_cell_alignment(CellAlignment::Right);
-        }
-    }
+/// `""` for one, `"s"` otherwise.
+fn plural(n: usize) -> &'static str {
+    if n == 1 { "" } else { "s" }
 }
 
 /// The `check` summary: sizes, totals, processing sites and risk groups, and the demands
@@ -188,7 +179,7 @@ pub fn marginal_sites(net: &Network, e: &Evaluation, k: usize) -> String {
         .collect();
     v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
     if v.is_empty() {
-        return "none (not processing-bound)".into();
+        return "none".into();
     }
     v.iter()
         .take(k)
@@ -208,6 +199,62 @@ pub fn resource_name(net: &Network, r: Resource) -> String {
             )
         }
         Resource::Site(v) => format!("site {} processing", net.sites[v].id),
+    }
+}
+
+/// What the columns of the scenario table mean, in words.
+fn column_legend(base_short: bool) -> String {
+    format!(
+        "Columns: shortfall = required demand of the surviving demands that is not routed and \
+         processed (stranded demand is not in it); % of surviving required = that shortfall over \
+         the required demand whose end sites survive; {}stranded = required demand of demands \
+         whose own end site failed (no network can serve it); throughput loss = offered volume \
+         (required and beyond) that the baseline carries and the scenario does not.",
+        if base_short {
+            "beyond baseline = the shortfall the failure adds to the baseline's own; "
+        } else {
+            ""
+        }
+    )
+}
+
+/// The one-line verdict that opens the audit text: how many scenarios are short and the
+/// worst with its shortfall and stranded demand, after `PASS`/`FAIL` and how many gates
+/// failed when there are gates.
+pub fn verdict(net: &Network, audit: &Audit, gates: &[GateResult]) -> String {
+    let u = &net.unit;
+    let n = audit.scenarios.len();
+    let short = (0..n).filter(|&i| audit.eval(i).shortfall > 0.0).count();
+    let worst = rank::worst_first(audit).first().copied();
+    let scenarios = match worst {
+        Some(i) if short > 0 => {
+            let e = audit.eval(i);
+            format!(
+                "{short} of {n} scenario{} short; worst {} (shortfall {} {u}, stranded {} {u})",
+                plural(n),
+                audit.scenarios[i].display_name(),
+                num(e.shortfall),
+                num(e.stranded)
+            )
+        }
+        _ => format!("none of {n} scenario{} short", plural(n)),
+    };
+    if gates.is_empty() {
+        return format!("Verdict: {scenarios}.");
+    }
+    let failed = gates.iter().filter(|g| !g.passed).count();
+    if failed == 0 {
+        format!(
+            "Verdict: PASS ({} gate{} met); {scenarios}.",
+            gates.len(),
+            plural(gates.len())
+        )
+    } else {
+        format!(
+            "Verdict: FAIL ({failed} of {} gate{} failed); {scenarios}.",
+            gates.len(),
+            plural(gates.len())
+        )
     }
 }
 
@@ -273,19 +320,15 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         .filter(|&i| folding.into[i].is_none())
         .collect();
     let shown = top.min(order.len());
-    let shortfall_head = format!("shortfall ({u})");
-    let mut header: Vec<&str> = vec!["#", "failed", &shortfall_head];
+    let mut header: Vec<&str> = vec!["#", "failed", "shortfall"];
     if base_short {
         header.push("beyond baseline");
     }
-    let stranded_head = format!("stranded ({u})");
-    let loss_head = format!("throughput loss ({u})");
     header.extend([
-        "% of required",
-        &stranded_head,
-        &loss_head,
-        "main bottleneck",
-        "one more unit helps at",
+        "% of surviving required",
+        "stranded",
+        "throughput loss",
+        "main bottleneck (one more unit helps at)",
     ]);
     let mut t = table(&header);
     for (rank_no, &i) in order.iter().take(shown).enumerate() {
@@ -305,15 +348,17 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             Cell::new(percent(e.shortfall, e.surviving_required)),
             Cell::new(num(e.stranded)),
             Cell::new(num((baseline.throughput - e.throughput).max(0.0))),
-            Cell::new(main_bottleneck(net, e)),
-            Cell::new(marginal_sites(net, e, 2)),
+            Cell::new(match marginal_sites(net, e, 2) {
+                m if m == "none" || m == "—" => main_bottleneck(net, e),
+                m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
+            }),
         ]);
         t.add_row(row);
     }
-    let numeric: Vec<usize> = if base_short {
-        vec![0, 2, 3, 4, 5, 6]
+    let (numeric, free): (Vec<usize>, Vec<usize>) = if base_short {
+        (vec![0, 2, 3, 4, 5, 6], vec![7])
     } else {
-        vec![0, 2, 3, 4, 5]
+        (vec![0, 2, 3, 4, 5], vec![6])
     };
     right(&mut t, &numeric);
     let short = (0..audit.scenarios.len())
@@ -322,7 +367,9 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     let folded = folding.folded();
     let _ = writeln!(
         out,
-        "\nWorst {shown} of {all} scenarios ({short} with a shortfall against required demand{}):",
+        "\nWorst {shown} of {all} scenario{} ({short} with a shortfall against required demand; \
+         amounts in {u}{}):",
+        plural(all),
         match folded {
             0 => String::new(),
             1 => "; 1 scenario is the same outage as a smaller one and is folded into it".into(),
@@ -331,12 +378,14 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             ),
         }
     );
-    let _ = writeln!(out, "{t}");
+    let _ = writeln!(out, "{}", render(&mut t, &free));
+    let _ = writeln!(out, "{}", column_legend(base_short));
     if short > 0 {
         let _ = writeln!(
             out,
             "\"one more unit helps at X (+Y)\": one more unit of processing at X serves up to Y \
-             more in that scenario (its shadow price)."
+             more in that scenario (its shadow price); when it is not shown, more processing \
+             anywhere would not serve more (links or cut-off paths limit it)."
         );
     }
 
@@ -344,8 +393,8 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     if !crit.is_empty() {
         let mut c = table(&[
             "element",
-            &format!("worst shortfall ({u})"),
-            &format!("worst stranded ({u})"),
+            "worst shortfall",
+            "worst stranded",
             "scenarios short",
             "worst scenario",
         ]);
@@ -361,11 +410,12 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         right(&mut c, &[1, 2, 3]);
         let _ = writeln!(
             out,
-            "\nElement criticality (worst scenario containing each element; top {} of {}):",
+            "\nElement criticality (worst scenario containing each element; top {} of {}; \
+             amounts in {u}):",
             top.min(crit.len()),
             crit.len()
         );
-        let _ = writeln!(out, "{c}");
+        let _ = writeln!(out, "{}", render(&mut c, &[4]));
     }
     let _ = writeln!(out, "\n{}", verification_summary(audit));
     for (k, e) in audit.evaluations.iter().enumerate() {
@@ -429,6 +479,7 @@ pub fn risk_report(net: &Network, audit: &Audit, r: &crate::risk::Risk) -> Strin
         &format!("shortfall ({u})"),
         &format!("share of expected ({u})"),
     ]);
+
     for &i in &r.most_likely_short {
         let e = audit.eval(i);
         t.add_row(vec![
@@ -439,7 +490,7 @@ pub fn risk_report(net: &Network, audit: &Audit, r: &crate::risk::Risk) -> Strin
         ]);
     }
     right(&mut t, &[1, 2, 3]);
-    let _ = writeln!(out, "{t}");
+    let _ = writeln!(out, "{}", render(&mut t, &[]));
     out
 }
 
@@ -550,10 +601,10 @@ pub fn closing_report(
     }
     let mut t = table(&[
         "failed",
-        &format!("shortfall ({u})"),
+        "shortfall",
         "cost",
         "add at",
-        &format!("not closable ({u})"),
+        "not closable",
         "what limits the rest",
     ]);
     for &i in order.iter().take(top) {
@@ -578,7 +629,7 @@ pub fn closing_report(
         ]);
     }
     right(&mut t, &[1, 2, 4]);
-    let _ = writeln!(out, "{t}");
+    let _ = writeln!(out, "Amounts in {u}.\n{}", render(&mut t, &[3, 5]));
     let checked = order
         .iter()
         .filter(|&&i| {
@@ -628,6 +679,7 @@ pub fn relief_report(net: &Network, audit: &Audit, top: usize) -> String {
         ]);
     }
     right(&mut t, &[1, 2]);
+    let t = render(&mut t, &[]);
     let _ = writeln!(
         out,
         "\nWhere one more unit of processing helps (shadow prices of processing, over the \
@@ -709,7 +761,12 @@ pub fn plan_report(
             "\nNo purchase: added processing would not serve more in any scenario."
         );
     } else {
-        let _ = writeln!(out, "\nBuy (total cost {}):\n{t}", num(plan.cost));
+        let _ = writeln!(
+            out,
+            "\nBuy (total cost {}):\n{}",
+            num(plan.cost),
+            render(&mut t, &[3])
+        );
         let _ = writeln!(
             out,
             "Driven by: the scenarios that serve less without that site's addition (the \
@@ -798,7 +855,8 @@ pub fn plan_report(
     if shown > 0 {
         let _ = writeln!(
             out,
-            "\nScenarios with a shortfall, before and after the plan (top {shown}):\n{s}"
+            "\nScenarios with a shortfall, before and after the plan (top {shown}):\n{}",
+            render(&mut s, &[])
         );
         let left: f64 = order.iter().map(|&i| after(i)).fold(0.0, f64::max);
         if left > 0.0 {
@@ -832,7 +890,7 @@ pub fn write_check(
     net: &Network,
     baseline_cut_off: &[(usize, Unservable)],
 ) -> io::Result<()> {
-    w.write_all(check_summary(net, baseline_cut_off).as_bytes())
+    w.write_all(screen::finish(&check_summary(net, baseline_cut_off)).as_bytes())
 }
 
 /// The `--close` part of an audit: the closings per outage and whether costs defaulted.
@@ -855,21 +913,29 @@ pub fn write_audit(
     gates: &[GateResult],
     top: usize,
 ) -> io::Result<()> {
-    w.write_all(audit_report(net, audit, baseline, top).as_bytes())?;
-    w.write_all(relief_report(net, audit, top).as_bytes())?;
+    let mut s = format!("{}\n", verdict(net, audit, gates));
+    s.push_str(&audit_report(net, audit, baseline, top));
+    s.push_str(&relief_report(net, audit, top));
     if let Some(c) = closing {
-        w.write_all(closing_report(net, audit, c.closings, c.default_costs, top).as_bytes())?;
+        s.push_str(&closing_report(
+            net,
+            audit,
+            c.closings,
+            c.default_costs,
+            top,
+        ));
     }
     if let Some(r) = risk {
-        w.write_all(risk_report(net, audit, r).as_bytes())?;
+        s.push_str(&risk_report(net, audit, r));
     }
     if !gates.is_empty() {
-        writeln!(w)?;
+        s.push('\n');
         for g in gates {
-            writeln!(w, "{}", gate_line(net, audit, g))?;
+            let _ = writeln!(s, "{}", gate_line(net, audit, g));
         }
     }
-    w.write_all(caution().as_bytes())
+    s.push_str(&caution());
+    w.write_all(screen::finish(&s).as_bytes())
 }
 
 /// The `plan` exporter: [`plan_report`] to `w`.
@@ -881,7 +947,7 @@ pub fn write_plan(
     default_costs: bool,
     top: usize,
 ) -> io::Result<()> {
-    w.write_all(plan_report(net, audit, plan, default_costs, top).as_bytes())
+    w.write_all(screen::finish(&plan_report(net, audit, plan, default_costs, top)).as_bytes())
 }
 
 /// One gate's verdict: `PASS` or `FAIL`, the flag and limit, the worst value and the
@@ -1075,10 +1141,11 @@ pub fn write_compare(
         }
         right(&mut t, &[1, 2, 3, 4, 5]);
         format!(
-            "\n{title} ({} scenario{}, top {}; amounts in {u}):\n{t}\n",
+            "\n{title} ({} scenario{}, top {}; amounts in {u}):\n{}\n",
             list.len(),
             plural(list.len()),
-            top.min(list.len())
+            top.min(list.len()),
+            render(&mut t, &[])
         )
     };
     if !c.worse.is_empty() {
@@ -1102,10 +1169,11 @@ pub fn write_compare(
         }
         right(&mut t, &[1, 2]);
         format!(
-            "\n{title} ({} scenario{}, top {}):\n{t}\n",
+            "\n{title} ({} scenario{}, top {}):\n{}\n",
             list.len(),
             plural(list.len()),
-            top.min(list.len())
+            top.min(list.len()),
+            render(&mut t, &[])
         )
     };
     if !c.added_risks.is_empty() {
