@@ -111,6 +111,11 @@ pub struct AuditArgs {
     /// For each scenario with a shortfall, the cheapest processing expansion that closes it.
     #[arg(long)]
     pub close: bool,
+    /// Explain the worst scenario: per-demand served and short amounts, saturated link
+    /// directions, cut-off demands, what processing can and cannot fix, which links would
+    /// have to grow. On by default with --fail.
+    #[arg(long)]
+    pub why: bool,
     /// Solver engine: `walks` (column generation over processing walks with exact repair
     /// shortcuts) or `edge` (the two-layer LP per outage, the cross-check); same optimum.
     #[arg(long, value_enum, default_value_t = Engine::Walks)]

@@ -392,6 +392,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     };
     let verdicts = gate::check(&audit, &gates, args.gate_tolerance);
     let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &audit)?;
+    let why = why_of(args, &net, &audit, &cands, closings.as_deref())?;
     // Files first: a reader that closes stdout early never costs the --json file.
     if let Some(path) = &args.json {
         let closing_json = closings.as_ref().map(|c| {
@@ -428,12 +429,39 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         risk.as_ref(),
         &verdicts,
         args.top,
+        why.as_ref().map(|(i, c)| report::text::WhyPart {
+            scenario: *i,
+            closing: c.as_ref(),
+        }),
     ))?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok
     } else {
         Outcome::GateFailed
     })
+}
+
+/// The scenario `--why` explains (by default with `--fail`): the worst one, with its
+/// closing (taken from `--close`, else computed for it alone).
+fn why_of(
+    args: &AuditArgs,
+    net: &Network,
+    audit: &audit::Audit,
+    cands: &expand::Candidates,
+    closings: Option<&[Option<expand::Closing>]>,
+) -> Result<Option<(usize, Option<expand::Closing>)>> {
+    if !(args.why || args.fail.is_some()) {
+        return Ok(None);
+    }
+    let Some(&i) = rank::worst_first(audit).first() else {
+        return Ok(None);
+    };
+    let k = audit.outage_of[i];
+    let closing = match closings {
+        Some(c) => c[k].clone(),
+        None => expand::close(net, &audit.outages[k], &audit.evaluations[k], cands)?,
+    };
+    Ok(Some((i, closing)))
 }
 
 fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
@@ -578,6 +606,7 @@ fn run_routed_audit(
         risk.as_ref(),
         &verdicts,
         args.top,
+        None,
     ))?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok

@@ -26,6 +26,10 @@ const TABLE_LINE: char = '\u{1}';
 /// columns).
 const RIGHT_PAD: usize = 1;
 
+/// Room kept for a free-text column (when its text is that long) before headers are
+/// given their whole width.
+const FREE_ROOM: usize = 40;
+
 /// Our table style: a thin rule under the header, columns set apart by space alone and a
 /// thin closing rule; no side borders, no column rules, no double lines.
 const STYLE: TableStyle = TableStyle::new()
@@ -83,6 +87,12 @@ pub fn render(t: &mut Table, free: &[usize]) -> String {
             }
         }
     }
+    let mut header_full = vec![0usize; columns];
+    if let Some(h) = t.header() {
+        for (c, cell) in h.cell_iter().enumerate().take(columns) {
+            header_full[c] = cell.content().chars().count();
+        }
+    }
     for row in t.row_iter() {
         for (c, cell) in row.cell_iter().enumerate().take(columns) {
             let text = cell.content();
@@ -94,14 +104,39 @@ pub fn render(t: &mut Table, free: &[usize]) -> String {
             }
         }
     }
+    // Tight widths first (a header wraps at its spaces); then, left to right, a header is
+    // given its whole width while the table still fits.
+    let mut want: Vec<usize> = (0..columns)
+        .map(|c| {
+            let body = if free.contains(&c) {
+                longest_word[c]
+            } else {
+                widest[c]
+            };
+            body.max(header_word[c]) + RIGHT_PAD
+        })
+        .collect();
+    let screen = width();
+    let junctions = columns.saturating_sub(1);
     for c in 0..columns {
-        let body = if free.contains(&c) {
-            longest_word[c]
-        } else {
-            widest[c]
-        };
+        let reserve: usize = free
+            .iter()
+            .filter(|&&f| f < columns)
+            .map(|&f| {
+                (widest[f] + RIGHT_PAD)
+                    .min(FREE_ROOM)
+                    .saturating_sub(want[f])
+            })
+            .sum();
+        let total: usize = want.iter().sum::<usize>() + junctions + reserve;
+        let whole = header_full[c] + RIGHT_PAD;
+        if !free.contains(&c) && whole > want[c] && total + whole - want[c] <= screen {
+            want[c] = whole;
+        }
+    }
+    for (c, &w) in want.iter().enumerate() {
         // The boundary counts the cell padding too.
-        let floor = u16::try_from(body.max(header_word[c]) + RIGHT_PAD).unwrap_or(u16::MAX);
+        let floor = u16::try_from(w).unwrap_or(u16::MAX);
         if let Some(col) = t.column_mut(c) {
             col.set_padding((0, RIGHT_PAD as u16));
             col.set_constraint(if free.contains(&c) {

@@ -265,13 +265,18 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "{} — {} scenarios ({} distinct outages), {} sites, {} links, {} demands",
+        "{} — {} scenario{} ({} distinct outage{}), {} site{}, {} link{}, {} demand{}",
         net.name,
         audit.scenarios.len(),
+        plural(audit.scenarios.len()),
         audit.outages.len(),
+        plural(audit.outages.len()),
         net.sites.len(),
+        plural(net.sites.len()),
         net.links.len(),
-        net.demands.len()
+        plural(net.links.len()),
+        net.demands.len(),
+        plural(net.demands.len())
     );
     let _ = writeln!(
         out,
@@ -899,7 +904,8 @@ pub struct ClosingPart<'a> {
     pub default_costs: bool,
 }
 
-/// The `audit` exporter: header and worst scenarios, where one more unit helps, the
+/// The `audit` exporter: the verdict, header and worst scenarios, the explanation of one
+/// scenario (`why`: `--why`, or `--fail`), where one more unit helps, the
 /// closings (with `--close`), the risk figures (when probabilities are given), one line
 /// per gate, and the caution, in that order.
 #[allow(clippy::too_many_arguments)] // each part is optional and independent
@@ -912,9 +918,13 @@ pub fn write_audit(
     risk: Option<&crate::risk::Risk>,
     gates: &[GateResult],
     top: usize,
+    why: Option<WhyPart<'_>>,
 ) -> io::Result<()> {
     let mut s = format!("{}\n", verdict(net, audit, gates));
     s.push_str(&audit_report(net, audit, baseline, top));
+    if let Some(y) = &why {
+        s.push_str(&why_report(net, audit, y));
+    }
     s.push_str(&relief_report(net, audit, top));
     if let Some(c) = closing {
         s.push_str(&closing_report(
@@ -1214,3 +1224,213 @@ pub fn note_applied(w: &mut dyn Write, path: &std::path::Path, add: &[f64]) -> i
         if sites == 1 { "" } else { "s" }
     )
 }
+
+/// The scenario `--why` (and `audit --fail` by default) explains, with its closing when
+/// one was computed (`None` when nothing is short).
+pub struct WhyPart<'a> {
+    /// Index into `audit.scenarios`.
+    pub scenario: usize,
+    pub closing: Option<&'a crate::expand::Closing>,
+}
+
+/// Why one scenario is short: per-demand served and short amounts (one of possibly several
+/// optimal splits), saturated link directions and processing sites, cut-off demands, what
+/// added processing can and cannot fix, and the links whose growth would serve more (their
+/// shadow prices).
+pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
+    let u = &net.unit;
+    let i = why.scenario;
+    let e = audit.eval(i);
+    let name = audit.scenarios[i].display_name();
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "\nWhy {name}: serves {} of {} {u} surviving required ({} short, {} of surviving \
+         required); {} {u} stranded.",
+        num(e.served_required),
+        num(e.surviving_required),
+        num(e.shortfall),
+        percent(e.shortfall, e.surviving_required),
+        num(e.stranded)
+    );
+    let mut t = table(&[
+        "demand",
+        "from → to",
+        "required",
+        "served",
+        "short",
+        "status",
+    ]);
+    for (d, dem) in net.demands.iter().enumerate() {
+        if dem.required <= 0.0 {
+            continue;
+        }
+        let stranded = e.stranded_demands.contains(&d);
+        let cut = e.cut_off.iter().find(|(c, _)| *c == d).map(|(_, r)| *r);
+        let short = e.demand_shortfall.get(d).copied().unwrap_or(0.0);
+        let status = if stranded {
+            "stranded: an end site failed".to_string()
+        } else if let Some(r) = cut {
+            format!("cut off: {}", unservable_words(r))
+        } else if short > 0.0 {
+            "short".to_string()
+        } else {
+            "served".to_string()
+        };
+        t.add_row(vec![
+            Cell::new(&dem.label),
+            Cell::new(format!(
+                "{} → {}",
+                net.sites[dem.from].id, net.sites[dem.to].id
+            )),
+            Cell::new(num(dem.required)),
+            Cell::new(num(if stranded {
+                0.0
+            } else {
+                e.demand_flow.get(d).copied().unwrap_or(0.0)
+            })),
+            Cell::new(num(if stranded { dem.required } else { short })),
+            Cell::new(status),
+        ]);
+    }
+    right(&mut t, &[2, 3, 4]);
+    let _ = writeln!(
+        out,
+        "Per demand (amounts in {u}; required part only; a stranded demand's required counts \
+         as short here but not in the shortfall):\n{}",
+        render(&mut t, &[5])
+    );
+    let _ = writeln!(
+        out,
+        "The total served is exact; this split among demands is one of several optimal ones \
+         when the network could serve the same total another way."
+    );
+    let arcs: Vec<&crate::solve::Bottleneck> = e
+        .bottlenecks
+        .iter()
+        .filter(|b| matches!(b.resource, Resource::Arc(_)))
+        .collect();
+    if arcs.is_empty() {
+        let _ = writeln!(out, "Saturated link directions: none.");
+    } else {
+        let _ = writeln!(
+            out,
+            "Saturated link direction{} (full in this allocation): {}.",
+            plural(arcs.len()),
+            first_k(
+                arcs.iter().map(|b| resource_name(net, b.resource)),
+                arcs.len()
+            )
+        );
+    }
+    let sites: Vec<String> = e
+        .bottlenecks
+        .iter()
+        .filter_map(|b| match b.resource {
+            Resource::Site(v) => Some(net.sites[v].id.clone()),
+            Resource::Arc(_) => None,
+        })
+        .collect();
+    let _ = writeln!(
+        out,
+        "Saturated processing: {}.",
+        if sites.is_empty() {
+            "none".to_string()
+        } else {
+            sites.join(", ")
+        }
+    );
+    if e.cut_off.is_empty() {
+        let _ = writeln!(out, "Cut-off demands: none.");
+    } else {
+        let _ = writeln!(
+            out,
+            "Cut-off demand{} (no walk through a surviving processing site): {}.",
+            plural(e.cut_off.len()),
+            first_k(
+                e.cut_off.iter().map(|&(d, r)| format!(
+                    "{} ({})",
+                    net.demands[d].label,
+                    unservable_words(r)
+                )),
+                e.cut_off.len()
+            )
+        );
+    }
+    if e.shortfall <= 0.0 {
+        let _ = writeln!(out, "Nothing is short, so nothing needs fixing.");
+        return out;
+    }
+    match why.closing {
+        Some(c) => {
+            let fixed = (c.best - e.served_required).max(0.0);
+            if fixed > 0.0 {
+                let _ = writeln!(
+                    out,
+                    "Processing can fix {} {u} of the {} {u} short: add {} (cost {}).",
+                    num(fixed),
+                    num(e.shortfall),
+                    additions(net, &c.add, net.sites.len()),
+                    num(c.cost)
+                );
+            } else {
+                let _ = writeln!(
+                    out,
+                    "Processing cannot fix any of it: added processing at the candidate sites \
+                     would not serve more."
+                );
+            }
+            if c.not_closable > 0.0 {
+                let _ = writeln!(
+                    out,
+                    "Processing cannot fix {} {u}: {}.",
+                    num(c.not_closable),
+                    if c.binding_links.is_empty() {
+                        "cut-off demands or the expansion limits hold it back".to_string()
+                    } else {
+                        format!(
+                            "the capacity of {} holds it back",
+                            link_list(net, &c.binding_links, c.binding_links.len())
+                        )
+                    }
+                );
+            }
+        }
+        None => {
+            let _ = writeln!(out, "What processing can fix was not computed.");
+        }
+    }
+    let mut grow: Vec<(usize, f64)> = e
+        .arc_price
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| **p > PRICE_SHOWN)
+        .map(|(a, p)| (a, *p))
+        .collect();
+    grow.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    if grow.is_empty() {
+        let _ = writeln!(
+            out,
+            "Links that would have to grow: none (no link direction's capacity limits what is \
+             served)."
+        );
+    } else {
+        let _ = writeln!(
+            out,
+            "Links that would have to grow (one more {u} of capacity serves up to this much more, \
+             its shadow price): {}.",
+            first_k(
+                grow.iter().map(|&(a, p)| format!(
+                    "{} +{}",
+                    resource_name(net, Resource::Arc(a)),
+                    num(p)
+                )),
+                grow.len()
+            )
+        );
+    }
+    out
+}
+
+/// Shadow prices at or below this are shown as no effect (solver noise).
+const PRICE_SHOWN: f64 = 1e-6;
