@@ -91,6 +91,10 @@ pub struct AuditArgs {
     /// Write one CSV row per scenario to this file (after a `#` caution line and a header).
     #[arg(long, value_name = "FILE")]
     pub csv: Option<PathBuf>,
+    /// Write a self-contained HTML report (report.html) and its Markdown twin (report.md)
+    /// into this folder (created when missing).
+    #[arg(long, value_name = "DIR")]
+    pub report: Option<PathBuf>,
     /// Continue an interrupted run from the journal beside --json FILE.
     #[arg(long, requires = "json")]
     pub resume: bool,

@@ -336,10 +336,16 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         others.extend(args.json.as_deref());
         report::file::check_output("--csv", csv, &others)?;
     }
+    let report_files = report_files(args, input)?;
     let (net, text) = read_network(input)?;
     let scenarios = scenarios_for(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err)?;
     if let Some(mode) = routing_mode(args.scenarios.routing) {
+        if args.report.is_some() {
+            return Err(Error::Usage(
+                "--report is not available with --routing nearest|steered yet".into(),
+            ));
+        }
         if args.close && mode == routing::Mode::Nearest {
             return Err(nearest_refused("audit --close"));
         }
@@ -414,6 +420,19 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
             report::csv::write_audit(w, &audit, closings.as_deref(), risk.as_ref())
         })?;
     }
+    if let Some((html, md)) = &report_files {
+        let r = report::html::Report {
+            net: &net,
+            audit: &audit,
+            baseline: &baseline,
+            closings: closings.as_deref(),
+            risk: risk.as_ref(),
+            gates: &verdicts,
+            top: args.top,
+        };
+        report::file::write_atomic(html, |w| report::html::write(w, &r))?;
+        report::file::write_atomic(md, |w| report::markdown::write(w, &r))?;
+    }
     if let Some(j) = journal {
         j.remove()?;
     }
@@ -439,6 +458,25 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     } else {
         Outcome::GateFailed
     })
+}
+
+/// `--report DIR`: the folder made when missing, and its two files checked before solving.
+fn report_files(args: &AuditArgs, input: &Path) -> Result<Option<(PathBuf, PathBuf)>> {
+    let Some(dir) = &args.report else {
+        return Ok(None);
+    };
+    std::fs::create_dir_all(dir).map_err(|source| Error::Io {
+        path: dir.clone(),
+        source,
+    })?;
+    let html = dir.join(report::html::HTML_FILE);
+    let md = dir.join(report::html::MARKDOWN_FILE);
+    let mut others = vec![input];
+    others.extend(args.json.as_deref());
+    others.extend(args.csv.as_deref());
+    report::file::check_output("--report", &html, &others)?;
+    report::file::check_output("--report", &md, &others)?;
+    Ok(Some((html, md)))
 }
 
 /// The scenario `--why` explains (by default with `--fail`): the worst one, with its
