@@ -16,18 +16,55 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// One least-cost processing expansion that closes every scenario's closable gap.
+    #[command(after_help = PLAN_EXAMPLES)]
     Plan(PlanArgs),
     /// Validate a network file and print a summary.
+    #[command(after_help = CHECK_EXAMPLES)]
     Check {
         /// The network file (JSON).
         network: PathBuf,
     },
     /// Fail the network every way up to --depth, solve each scenario exactly, rank the worst.
+    #[command(after_help = AUDIT_EXAMPLES)]
     Audit(AuditArgs),
     /// Pre-change check: run the same scenarios on two versions of a network and say
     /// which got worse (exit 1 when any got worse by more than --tolerance).
+    #[command(after_help = COMPARE_EXAMPLES)]
     Compare(CompareArgs),
 }
+
+// The help of every command ends with examples in one layout: a heading, then each
+// command line indented two spaces with what it does on the next line, indented six.
+
+const CHECK_EXAMPLES: &str = "Examples:
+  redoubt check net.json
+      validate the file and list sites, links, demands, processing and risk groups
+  redoubt check net.json && redoubt audit net.json
+      audit only a file that reads cleanly";
+
+const AUDIT_EXAMPLES: &str = "Examples:
+  redoubt audit net.json --depth 2
+      every single and double failure; the worst first
+  redoubt audit net.json --fail link:ab,site:c
+      one scenario, explained demand by demand
+  redoubt audit net.json --close --report out/ --max-shortfall 5
+      closings, an HTML and Markdown report in out/, exit 1 above 5 units short";
+
+const PLAN_EXAMPLES: &str = "Examples:
+  redoubt plan net.json
+      the least-cost processing purchase that closes every closable gap
+  redoubt plan net.json --budget 40 --objective total
+      spend at most 40 for the least total shortfall
+  redoubt plan net.json --apply bought.json
+      also write the network with the purchase added, for a re-audit";
+
+const COMPARE_EXAMPLES: &str = "Examples:
+  redoubt compare before.json after.json
+      single failures on both versions; exit 1 when any got worse
+  redoubt compare before.json after.json --depth 2 --tolerance 0.5
+      double failures; worse means more than 0.5 units
+  redoubt compare before.json after.json --down link:ab
+      both sides with link ab in maintenance";
 
 /// Which scenarios to evaluate and how.
 #[derive(Debug, Args, Clone)]

@@ -39,6 +39,9 @@ const MAP_SIZE: f64 = 560.0;
 /// Margin around the drawn sites.
 const MAP_MARGIN: f64 = 50.0;
 
+/// Rows of a table, each a list of cell texts.
+pub type Rows = Vec<Vec<String>>;
+
 /// Everything both report files show, computed once.
 pub struct Report<'a> {
     pub net: &'a Network,
@@ -232,7 +235,7 @@ impl Report<'_> {
     }
 
     /// The risk figures and table, when probabilities were given.
-    pub fn risk_table(&self) -> Option<(Vec<String>, Vec<String>, Vec<Vec<String>>)> {
+    pub fn risk_table(&self) -> Option<(Vec<String>, Vec<String>, Rows)> {
         let r = self.risk?;
         let u = &self.net.unit;
         let facts = vec![
@@ -365,7 +368,7 @@ color:#23404f;border-bottom:2px solid #d9b45a;padding-bottom:3px}\
 border-radius:6px}.verdict.fail{background:#f8e1dc}table{border-collapse:collapse;\
 margin:6px 0 10px;background:#fff}th,td{padding:4px 10px;border-bottom:1px solid #e3ded2;\
 text-align:left;vertical-align:top}th{font-weight:600;color:#23404f;background:#efeadf}\
-td.n{text-align:right;font-variant-numeric:tabular-nums}.facts td:first-child{color:#566}\
+td.n{text-align:right;font-variant-numeric:tabular-nums}td.k{white-space:nowrap}.facts td:first-child{color:#566}\
 svg{background:#fff;border:1px solid #e3ded2;margin:6px 0}figcaption{color:#566;\
 font-size:13px}ul{margin:4px 0}code{font-size:13px}";
 
@@ -380,6 +383,9 @@ fn table_html(out: &mut String, head: &[String], rows: &[Vec<String>], numeric: 
         for (c, v) in r.iter().enumerate() {
             if numeric.contains(&c) {
                 let _ = write!(out, "<td class=\"n\">{}</td>", esc(v));
+            } else if c == 0 || (c == 1 && head.first().is_some_and(|h| h == "#")) {
+                // Names are never broken (they paste back into --fail).
+                let _ = write!(out, "<td class=\"k\">{}</td>", esc(v));
             } else {
                 let _ = write!(out, "<td>{}</td>", esc(v));
             }

@@ -361,9 +361,9 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         t.add_row(row);
     }
     let (numeric, free): (Vec<usize>, Vec<usize>) = if base_short {
-        (vec![0, 2, 3, 4, 5, 6], vec![7])
+        (vec![0, 2, 3, 4, 5, 6], vec![1, 7])
     } else {
-        (vec![0, 2, 3, 4, 5], vec![6])
+        (vec![0, 2, 3, 4, 5], vec![1, 6])
     };
     right(&mut t, &numeric);
     let short = (0..audit.scenarios.len())
