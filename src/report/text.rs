@@ -202,6 +202,9 @@ pub fn resource_name(net: &Network, r: Resource) -> String {
     }
 }
 
+/// Scenario names up to this many characters stay on one line in the scenario table.
+const NAME_ON_ONE_LINE: usize = 32;
+
 /// What the columns of the scenario table mean, in words.
 fn column_legend(base_short: bool) -> String {
     format!(
@@ -336,13 +339,18 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         "main bottleneck (one more unit helps at)",
     ]);
     let mut t = table(&header);
+    let mut widest_name = 0;
     for (rank_no, &i) in order.iter().take(shown).enumerate() {
         let e = audit.eval(i);
         let mut row = vec![
             Cell::new(rank_no + 1),
-            Cell::new(match folding.equivalents[i] {
-                0 => audit.scenarios[i].display_name(),
-                n => format!("{} (+{n} equivalent)", audit.scenarios[i].display_name()),
+            Cell::new({
+                let name = match folding.equivalents[i] {
+                    0 => audit.scenarios[i].display_name(),
+                    n => format!("{} (+{n} equivalent)", audit.scenarios[i].display_name()),
+                };
+                widest_name = widest_name.max(name.chars().count());
+                name
             }),
             Cell::new(num(e.shortfall)),
         ];
@@ -361,9 +369,16 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         t.add_row(row);
     }
     let (numeric, free): (Vec<usize>, Vec<usize>) = if base_short {
-        (vec![0, 2, 3, 4, 5, 6], vec![1, 7])
+        (vec![0, 2, 3, 4, 5, 6], vec![7])
     } else {
-        (vec![0, 2, 3, 4, 5], vec![1, 6])
+        (vec![0, 2, 3, 4, 5], vec![6])
+    };
+    // A long scenario name (depth 2 and more) wraps at its spaces, between whole element
+    // names; a short one stays on one line.
+    let free: Vec<usize> = if widest_name > NAME_ON_ONE_LINE {
+        std::iter::once(1).chain(free).collect()
+    } else {
+        free
     };
     right(&mut t, &numeric);
     let short = (0..audit.scenarios.len())
