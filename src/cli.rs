@@ -16,16 +16,20 @@ pub struct Cli {
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// One least-cost processing expansion that closes every scenario's closable gap.
+    #[command(after_help = PLAN_EXAMPLES)]
     Plan(PlanArgs),
     /// Validate a network file and print a summary.
+    #[command(after_help = CHECK_EXAMPLES)]
     Check {
         /// The network file (JSON).
         network: PathBuf,
     },
     /// Fail the network every way up to --depth, solve each scenario exactly, rank the worst.
+    #[command(after_help = AUDIT_EXAMPLES)]
     Audit(AuditArgs),
     /// Pre-change check: run the same scenarios on two versions of a network and say
     /// which got worse (exit 1 when any got worse by more than --tolerance).
+    #[command(after_help = COMPARE_EXAMPLES)]
     Compare(CompareArgs),
     /// Combine the part files of `audit --shard I/N` into the audit an unsharded run gives.
     Merge(MergeArgs),
@@ -43,6 +47,39 @@ pub struct MergeArgs {
     #[arg(long, default_value_t = 15)]
     pub top: usize,
 }
+
+// The help of every command ends with examples in one layout: a heading, then each
+// command line indented two spaces with what it does on the next line, indented six.
+
+const CHECK_EXAMPLES: &str = "Examples:
+  redoubt check net.json
+      validate the file and list sites, links, demands, processing and risk groups
+  redoubt check net.json && redoubt audit net.json
+      audit only a file that reads cleanly";
+
+const AUDIT_EXAMPLES: &str = "Examples:
+  redoubt audit net.json --depth 2
+      every single and double failure; the worst first
+  redoubt audit net.json --fail link:ab,site:c
+      one scenario, explained demand by demand
+  redoubt audit net.json --close --report out/ --max-shortfall 5
+      closings, an HTML and Markdown report in out/, exit 1 above 5 units short";
+
+const PLAN_EXAMPLES: &str = "Examples:
+  redoubt plan net.json
+      the least-cost processing purchase that closes every closable gap
+  redoubt plan net.json --budget 40 --objective total
+      spend at most 40 for the least total shortfall
+  redoubt plan net.json --apply bought.json
+      also write the network with the purchase added, for a re-audit";
+
+const COMPARE_EXAMPLES: &str = "Examples:
+  redoubt compare before.json after.json
+      single failures on both versions; exit 1 when any got worse
+  redoubt compare before.json after.json --depth 2 --tolerance 0.5
+      double failures; worse means more than 0.5 units
+  redoubt compare before.json after.json --down link:ab
+      both sides with link ab in maintenance";
 
 /// Which scenarios to evaluate and how.
 #[derive(Debug, Args, Clone)]
@@ -106,6 +143,10 @@ pub struct AuditArgs {
     /// Write one CSV row per scenario to this file (after a `#` caution line and a header).
     #[arg(long, value_name = "FILE")]
     pub csv: Option<PathBuf>,
+    /// Write a self-contained HTML report (report.html) and its Markdown twin (report.md)
+    /// into this folder (created when missing).
+    #[arg(long, value_name = "DIR")]
+    pub report: Option<PathBuf>,
     /// Continue an interrupted run from the journal beside --json FILE.
     #[arg(long, requires = "json")]
     pub resume: bool,
@@ -131,6 +172,11 @@ pub struct AuditArgs {
     #[arg(long, value_name = "I/N", requires = "json",
           conflicts_with_all = ["close", "max_shortfall", "max_stranded", "min_served_fraction", "gate_tolerance"])]
     pub shard: Option<String>,
+    /// Explain the worst scenario: per-demand served and short amounts, saturated link
+    /// directions, cut-off demands, what processing can and cannot fix, which links would
+    /// have to grow. On by default with --fail.
+    #[arg(long)]
+    pub why: bool,
     /// Solver engine: `walks` (column generation over processing walks with exact repair
     /// shortcuts) or `edge` (the two-layer LP per outage, the cross-check); same optimum.
     #[arg(long, value_enum, default_value_t = Engine::Walks)]

@@ -430,10 +430,16 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
                 .into(),
         ));
     }
+    let report_files = report_files(args, input)?;
     let (net, text) = read_network(input)?;
     let list = scenario_list(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err)?;
     if let Some(mode) = routing_mode(args.scenarios.routing) {
+        if args.report.is_some() {
+            return Err(Error::Usage(
+                "--report is not available with --routing nearest|steered yet".into(),
+            ));
+        }
         if args.close && mode == routing::Mode::Nearest {
             return Err(nearest_refused("audit --close"));
         }
@@ -448,7 +454,10 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     let share = shard.map_or(1, |s| s.1);
     let probe = estimate(&net, &list, share, args.engine, &args.scenarios, opts, err)?;
     // --close reads every evaluation in full; otherwise only the JSON does, from the journal.
-    let keep = match (args.close, &args.json) {
+    // --close, --why and --report read every evaluation in full; otherwise only the JSON
+    // does, from the journal.
+    let whole = args.close || args.why || args.fail.is_some() || args.report.is_some();
+    let keep = match (whole, &args.json) {
         (true, _) => audit::Keep::Full,
         (false, Some(_)) => audit::Keep::ThinJournaled,
         (false, None) => audit::Keep::Thin,
@@ -565,6 +574,8 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
             gates: &gates,
             gate_tolerance: args.gate_tolerance,
             close: args.close,
+            why: args.why || args.fail.is_some(),
+            report: report_files.as_ref(),
             top: args.top,
             opts,
         },
@@ -582,6 +593,10 @@ struct AuditOutput<'a> {
     gates: &'a [Gate],
     gate_tolerance: Option<f64>,
     close: bool,
+    /// Explain the worst scenario (`--why`, or by default with `--fail`).
+    why: bool,
+    /// `--report DIR`'s HTML and Markdown files.
+    report: Option<&'a (PathBuf, PathBuf)>,
     top: usize,
     opts: audit::RunOptions,
 }
@@ -614,6 +629,11 @@ fn finish_audit(
         None
     };
     let verdicts = gate::check(audit, o.gates, o.gate_tolerance);
+    let why = if o.why {
+        why_of(net, audit, &cands, closings.as_deref())?
+    } else {
+        None
+    };
     // Files first: a reader that closes stdout early never costs the --json file.
     if let Some(path) = o.json {
         let closing_json = closings.as_ref().map(|c| {
@@ -636,6 +656,19 @@ fn finish_audit(
             report::csv::write_audit(w, audit, closings.as_deref(), o.risk)
         })?;
     }
+    if let Some((html, md)) = o.report {
+        let r = report::html::Report {
+            net,
+            audit,
+            baseline: &baseline,
+            closings: closings.as_deref(),
+            risk: o.risk,
+            gates: &verdicts,
+            top: o.top,
+        };
+        report::file::write_atomic(html, |w| report::html::write(w, &r))?;
+        report::file::write_atomic(md, |w| report::markdown::write(w, &r))?;
+    }
     if let Some(j) = journal {
         j.remove()?;
     }
@@ -651,6 +684,10 @@ fn finish_audit(
         o.risk,
         &verdicts,
         o.top,
+        why.as_ref().map(|(i, c)| report::text::WhyPart {
+            scenario: *i,
+            closing: c.as_ref(),
+        }),
     ))?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok
@@ -708,6 +745,8 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
             gates: &[],
             gate_tolerance: None,
             close: false,
+            why: false,
+            report: None,
             top: args.top,
             opts,
         },
@@ -715,6 +754,44 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
         &|e| e,
         out,
     )
+}
+
+/// `--report DIR`: the folder made when missing, and its two files checked before solving.
+fn report_files(args: &AuditArgs, input: &Path) -> Result<Option<(PathBuf, PathBuf)>> {
+    let Some(dir) = &args.report else {
+        return Ok(None);
+    };
+    std::fs::create_dir_all(dir).map_err(|source| Error::Io {
+        path: dir.clone(),
+        source,
+    })?;
+    let html = dir.join(report::html::HTML_FILE);
+    let md = dir.join(report::html::MARKDOWN_FILE);
+    let mut others = vec![input];
+    others.extend(args.json.as_deref());
+    others.extend(args.csv.as_deref());
+    report::file::check_output("--report", &html, &others)?;
+    report::file::check_output("--report", &md, &others)?;
+    Ok(Some((html, md)))
+}
+
+/// The scenario `--why` explains (by default with `--fail`): the worst one, with its
+/// closing (taken from `--close`, else computed for it alone).
+fn why_of(
+    net: &Network,
+    audit: &audit::Audit,
+    cands: &expand::Candidates,
+    closings: Option<&[Option<expand::Closing>]>,
+) -> Result<Option<(usize, Option<expand::Closing>)>> {
+    let Some(&i) = rank::worst_first(audit).first() else {
+        return Ok(None);
+    };
+    let k = audit.outage_of[i];
+    let closing = match closings {
+        Some(c) => c[k].clone(),
+        None => expand::close(net, &audit.outages[k], &audit.evaluations[k], cands)?,
+    };
+    Ok(Some((i, closing)))
 }
 
 fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
@@ -861,6 +938,7 @@ fn run_routed_audit(
         risk.as_ref(),
         &verdicts,
         args.top,
+        None,
     ))?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok

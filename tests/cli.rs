@@ -1208,7 +1208,8 @@ fn closed_stdout_exits_141_quietly_and_json_is_written() {
     // The reader is dropped here: the pipe is closed.
     let result = child.wait_with_output().expect("redoubt ends");
     let stderr = String::from_utf8_lossy(&result.stderr);
-    assert!(first.starts_with("ring"), "first line: {first}");
+    // The audit text opens with its verdict line.
+    assert!(first.starts_with("Verdict:"), "first line: {first}");
     assert_eq!(result.status.code(), Some(141), "stderr:\n{stderr}");
     assert!(
         stderr.is_empty(),
@@ -1697,14 +1698,14 @@ fn plan_json(network: &str, args: &[&str]) -> (String, Value) {
     (run.stdout, out.read_json())
 }
 
-/// Rows of the text "Buy" table (between its header rule and its bottom rule).
+/// Rows of the text "Buy" table (between its header rule and its bottom rule, both `─`).
 fn buy_rows(stdout: &str) -> Vec<String> {
     stdout
         .lines()
         .skip_while(|l| !l.starts_with("Buy ("))
-        .skip_while(|l| !l.starts_with('╞'))
+        .skip_while(|l| !l.starts_with('─'))
         .skip(1)
-        .take_while(|l| !l.starts_with('└'))
+        .take_while(|l| !l.starts_with('─'))
         .map(str::to_string)
         .collect()
 }
@@ -1803,8 +1804,10 @@ fn no_costs_plan_says_what_it_minimises_and_concentrates() {
          "demands":[{"from":"a","to":"c","volume":3},{"from":"b","to":"d","volume":2}]}"#,
     );
     let (text, doc) = plan_json(f.path(), &["--depth", "0"]);
+    // Prose wraps to the screen width: compare with the line breaks folded to spaces.
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
     assert!(
-        text.contains("minimises the total added processing"),
+        flat.contains("minimises the total added processing"),
         "{text}"
     );
     assert_near(num(&doc["plan"], "cost"), 4.0, "total added");

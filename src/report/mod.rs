@@ -6,9 +6,12 @@
 
 pub mod csv;
 pub mod file;
+pub mod html;
 pub mod journal;
 pub mod json;
+pub mod markdown;
 pub mod routing;
+pub mod screen;
 pub mod text;
 
 /// The caution every report carries.

@@ -3,7 +3,9 @@
 
 use std::fmt::Write as _;
 
-use comfy_table::{Cell, CellAlignment, ContentArrangement, Table, presets::UTF8_FULL_CONDENSED};
+use comfy_table::Cell;
+
+use super::screen;
 use serde::Serialize;
 
 use super::{num, percent, round9};
@@ -98,21 +100,18 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
         first_k(overloaded_names(net, &b.offered), CELL_ITEMS),
     );
     let order = crate::rank::worst_first(audit);
-    let mut t = Table::new();
-    t.load_style(UTF8_FULL_CONDENSED)
-        .set_content_arrangement(ContentArrangement::Dynamic)
-        .set_header(vec![
-            "#".to_string(),
-            "failed".to_string(),
-            format!("served, {m} ({u})"),
-            format!("served, best re-route ({u})"),
-            format!("recoverable ({u})"),
-            "max link util.".to_string(),
-            "max site util.".to_string(),
-            "overloaded".to_string(),
-            "traffic moved onto".to_string(),
-        ]);
-    for (r, &i) in order.iter().take(top).enumerate() {
+    // Worst first, without a rank column: the width goes to the names.
+    let mut t = screen::table(&[
+        "failed".to_string(),
+        format!("served, {m} ({u})"),
+        format!("served, best re-route ({u})"),
+        format!("win-back ({u})"),
+        "max link util.".to_string(),
+        "max site util.".to_string(),
+        "overloaded".to_string(),
+        "traffic moved onto".to_string(),
+    ]);
+    for &i in order.iter().take(top) {
         let k = audit.outage_of[i];
         let e = &audit.evaluations[k];
         let o = &ra.offered[k];
@@ -129,7 +128,6 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
             })
             .collect();
         t.add_row(vec![
-            Cell::new(r + 1),
             Cell::new(audit.scenarios[i].display_name()),
             Cell::new(num(e.served_required)),
             Cell::new(num(ra.best[k].served_required)),
@@ -140,15 +138,12 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
             Cell::new(first_k(moved, CELL_ITEMS)),
         ]);
     }
-    for c in [0, 2, 3, 4, 5, 6] {
-        if let Some(col) = t.column_mut(c) {
-            col.set_cell_alignment(CellAlignment::Right);
-        }
-    }
+    screen::right(&mut t, &[1, 2, 3, 4, 5]);
+    let t = screen::render(&mut t, &[6, 7]);
     let _ = writeln!(
         out,
         "\nWorst {} of {} scenarios under {m} routing, beside the best re-route \
-         (recoverable = what steering or re-optimisation would win back):\n{t}",
+         (win-back = what steering or re-optimisation would recover):\n{t}",
         top.min(order.len()),
         order.len()
     );
@@ -173,7 +168,7 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
             first_k(only, top)
         );
     }
-    out
+    screen::finish(&out)
 }
 
 /// The line a `plan --routing steered` report starts with.

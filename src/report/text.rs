@@ -2,7 +2,7 @@
 
 use std::fmt::Write as _;
 
-use comfy_table::{Cell, CellAlignment, ContentArrangement, Table, presets::UTF8_FULL_CONDENSED};
+use comfy_table::Cell;
 
 use std::io::{self, Write};
 
@@ -14,20 +14,11 @@ use crate::model::strict::printable;
 use crate::rank::{self, Criticality};
 use crate::solve::{Evaluation, Resource, Unservable};
 
-fn table(header: &[&str]) -> Table {
-    let mut t = Table::new();
-    t.load_style(UTF8_FULL_CONDENSED)
-        .set_content_arrangement(ContentArrangement::Dynamic)
-        .set_header(header.iter().map(Cell::new));
-    t
-}
+use super::screen::{self, render, right, table};
 
-fn right(t: &mut Table, cols: &[usize]) {
-    for &c in cols {
-        if let Some(col) = t.column_mut(c) {
-            col.set_cell_alignment(CellAlignment::Right);
-        }
-    }
+/// `""` for one, `"s"` otherwise.
+fn plural(n: usize) -> &'static str {
+    if n == 1 { "" } else { "s" }
 }
 
 /// The `check` summary: sizes, totals, processing sites and risk groups, and the demands
@@ -189,7 +180,7 @@ pub fn marginal_sites(net: &Network, e: &Evaluation, k: usize) -> String {
         .collect();
     v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
     if v.is_empty() {
-        return "none (not processing-bound)".into();
+        return "none".into();
     }
     v.iter()
         .take(k)
@@ -212,6 +203,65 @@ pub fn resource_name(net: &Network, r: Resource) -> String {
     }
 }
 
+/// Scenario names up to this many characters stay on one line in the scenario table.
+const NAME_ON_ONE_LINE: usize = 32;
+
+/// What the columns of the scenario table mean, in words.
+fn column_legend(base_short: bool) -> String {
+    format!(
+        "Columns: shortfall = required demand of the surviving demands that is not routed and \
+         processed (stranded demand is not in it); % of surviving required = that shortfall over \
+         the required demand whose end sites survive; {}stranded = required demand of demands \
+         whose own end site failed (no network can serve it); throughput loss = offered volume \
+         (required and beyond) that the baseline carries and the scenario does not.",
+        if base_short {
+            "beyond baseline = the shortfall the failure adds to the baseline's own; "
+        } else {
+            ""
+        }
+    )
+}
+
+/// The one-line verdict that opens the audit text: how many scenarios are short and the
+/// worst with its shortfall and stranded demand, after `PASS`/`FAIL` and how many gates
+/// failed when there are gates.
+pub fn verdict(net: &Network, audit: &Audit, gates: &[GateResult]) -> String {
+    let u = &net.unit;
+    let n = audit.scenarios.len();
+    let short = (0..n).filter(|&i| audit.eval(i).shortfall > 0.0).count();
+    let worst = rank::worst_first(audit).first().copied();
+    let scenarios = match worst {
+        Some(i) if short > 0 => {
+            let e = audit.eval(i);
+            format!(
+                "{short} of {n} scenario{} short; worst {} (shortfall {} {u}, stranded {} {u})",
+                plural(n),
+                audit.scenarios[i].display_name(),
+                num(e.shortfall),
+                num(e.stranded)
+            )
+        }
+        _ => format!("none of {n} scenario{} short", plural(n)),
+    };
+    if gates.is_empty() {
+        return format!("Verdict: {scenarios}.");
+    }
+    let failed = gates.iter().filter(|g| !g.passed).count();
+    if failed == 0 {
+        format!(
+            "Verdict: PASS ({} gate{} met); {scenarios}.",
+            gates.len(),
+            plural(gates.len())
+        )
+    } else {
+        format!(
+            "Verdict: FAIL ({failed} of {} gate{} failed); {scenarios}.",
+            gates.len(),
+            plural(gates.len())
+        )
+    }
+}
+
 /// The audit report: header, worst scenarios, element criticality (the caller ends the
 /// report with [`caution`]).
 pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: usize) -> String {
@@ -219,13 +269,18 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "{} — {} scenarios ({} distinct outages), {} sites, {} links, {} demands",
+        "{} — {} scenario{} ({} distinct outage{}), {} site{}, {} link{}, {} demand{}",
         net.name,
         audit.scenarios.len(),
+        plural(audit.scenarios.len()),
         audit.outages.len(),
+        plural(audit.outages.len()),
         net.sites.len(),
+        plural(net.sites.len()),
         net.links.len(),
-        net.demands.len()
+        plural(net.links.len()),
+        net.demands.len(),
+        plural(net.demands.len())
     );
     let _ = writeln!(
         out,
@@ -274,28 +329,29 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         .filter(|&i| folding.into[i].is_none())
         .collect();
     let shown = top.min(order.len());
-    let shortfall_head = format!("shortfall ({u})");
-    let mut header: Vec<&str> = vec!["#", "failed", &shortfall_head];
+    let mut header: Vec<&str> = vec!["#", "failed", "shortfall"];
     if base_short {
         header.push("beyond baseline");
     }
-    let stranded_head = format!("stranded ({u})");
-    let loss_head = format!("throughput loss ({u})");
     header.extend([
-        "% of required",
-        &stranded_head,
-        &loss_head,
-        "main bottleneck",
-        "one more unit helps at",
+        "% of surviving required",
+        "stranded",
+        "throughput loss",
+        "main bottleneck (one more unit helps at)",
     ]);
     let mut t = table(&header);
+    let mut widest_name = 0;
     for (rank_no, &i) in order.iter().take(shown).enumerate() {
         let e = audit.eval(i);
         let mut row = vec![
             Cell::new(rank_no + 1),
-            Cell::new(match folding.equivalents[i] {
-                0 => audit.scenarios[i].display_name(),
-                n => format!("{} (+{n} equivalent)", audit.scenarios[i].display_name()),
+            Cell::new({
+                let name = match folding.equivalents[i] {
+                    0 => audit.scenarios[i].display_name(),
+                    n => format!("{} (+{n} equivalent)", audit.scenarios[i].display_name()),
+                };
+                widest_name = widest_name.max(name.chars().count());
+                name
             }),
             Cell::new(num(e.shortfall)),
         ];
@@ -306,15 +362,24 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             Cell::new(percent(e.shortfall, e.surviving_required)),
             Cell::new(num(e.stranded)),
             Cell::new(num((baseline.throughput - e.throughput).max(0.0))),
-            Cell::new(main_bottleneck(net, e)),
-            Cell::new(marginal_sites(net, e, 2)),
+            Cell::new(match marginal_sites(net, e, 2) {
+                m if m == "none" || m == "—" => main_bottleneck(net, e),
+                m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
+            }),
         ]);
         t.add_row(row);
     }
-    let numeric: Vec<usize> = if base_short {
-        vec![0, 2, 3, 4, 5, 6]
+    let (numeric, free): (Vec<usize>, Vec<usize>) = if base_short {
+        (vec![0, 2, 3, 4, 5, 6], vec![7])
     } else {
-        vec![0, 2, 3, 4, 5]
+        (vec![0, 2, 3, 4, 5], vec![6])
+    };
+    // A long scenario name (depth 2 and more) wraps at its spaces, between whole element
+    // names; a short one stays on one line.
+    let free: Vec<usize> = if widest_name > NAME_ON_ONE_LINE {
+        std::iter::once(1).chain(free).collect()
+    } else {
+        free
     };
     right(&mut t, &numeric);
     let short = (0..audit.scenarios.len())
@@ -323,7 +388,9 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     let folded = folding.folded();
     let _ = writeln!(
         out,
-        "\nWorst {shown} of {all} scenarios ({short} with a shortfall against required demand{}):",
+        "\nWorst {shown} of {all} scenario{} ({short} with a shortfall against required demand; \
+         amounts in {u}{}):",
+        plural(all),
         match folded {
             0 => String::new(),
             1 => "; 1 scenario is the same outage as a smaller one and is folded into it".into(),
@@ -332,12 +399,14 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             ),
         }
     );
-    let _ = writeln!(out, "{t}");
+    let _ = writeln!(out, "{}", render(&mut t, &free));
+    let _ = writeln!(out, "{}", column_legend(base_short));
     if short > 0 {
         let _ = writeln!(
             out,
             "\"one more unit helps at X (+Y)\": one more unit of processing at X serves up to Y \
-             more in that scenario (its shadow price)."
+             more in that scenario (its shadow price); when it is not shown, more processing \
+             anywhere would not serve more (links or cut-off paths limit it)."
         );
     }
 
@@ -345,8 +414,8 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     if !crit.is_empty() {
         let mut c = table(&[
             "element",
-            &format!("worst shortfall ({u})"),
-            &format!("worst stranded ({u})"),
+            "worst shortfall",
+            "worst stranded",
             "scenarios short",
             "worst scenario",
         ]);
@@ -362,11 +431,12 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         right(&mut c, &[1, 2, 3]);
         let _ = writeln!(
             out,
-            "\nElement criticality (worst scenario containing each element; top {} of {}):",
+            "\nElement criticality (worst scenario containing each element; top {} of {}; \
+             amounts in {u}):",
             top.min(crit.len()),
             crit.len()
         );
-        let _ = writeln!(out, "{c}");
+        let _ = writeln!(out, "{}", render(&mut c, &[4]));
     }
     let _ = writeln!(out, "\n{}", verification_summary(audit));
     for (k, e) in audit.evaluations.iter().enumerate() {
@@ -430,6 +500,7 @@ pub fn risk_report(net: &Network, audit: &Audit, r: &crate::risk::Risk) -> Strin
         &format!("shortfall ({u})"),
         &format!("share of expected ({u})"),
     ]);
+
     for &i in &r.most_likely_short {
         let e = audit.eval(i);
         t.add_row(vec![
@@ -440,7 +511,7 @@ pub fn risk_report(net: &Network, audit: &Audit, r: &crate::risk::Risk) -> Strin
         ]);
     }
     right(&mut t, &[1, 2, 3]);
-    let _ = writeln!(out, "{t}");
+    let _ = writeln!(out, "{}", render(&mut t, &[]));
     out
 }
 
@@ -551,10 +622,10 @@ pub fn closing_report(
     }
     let mut t = table(&[
         "failed",
-        &format!("shortfall ({u})"),
+        "shortfall",
         "cost",
         "add at",
-        &format!("not closable ({u})"),
+        "not closable",
         "what limits the rest",
     ]);
     for &i in order.iter().take(top) {
@@ -579,7 +650,7 @@ pub fn closing_report(
         ]);
     }
     right(&mut t, &[1, 2, 4]);
-    let _ = writeln!(out, "{t}");
+    let _ = writeln!(out, "Amounts in {u}.\n{}", render(&mut t, &[3, 5]));
     let checked = order
         .iter()
         .filter(|&&i| {
@@ -629,6 +700,7 @@ pub fn relief_report(net: &Network, audit: &Audit, top: usize) -> String {
         ]);
     }
     right(&mut t, &[1, 2]);
+    let t = render(&mut t, &[]);
     let _ = writeln!(
         out,
         "\nWhere one more unit of processing helps (shadow prices of processing, over the \
@@ -710,7 +782,12 @@ pub fn plan_report(
             "\nNo purchase: added processing would not serve more in any scenario."
         );
     } else {
-        let _ = writeln!(out, "\nBuy (total cost {}):\n{t}", num(plan.cost));
+        let _ = writeln!(
+            out,
+            "\nBuy (total cost {}):\n{}",
+            num(plan.cost),
+            render(&mut t, &[3])
+        );
         let _ = writeln!(
             out,
             "Driven by: the scenarios that serve less without that site's addition (the \
@@ -799,7 +876,8 @@ pub fn plan_report(
     if shown > 0 {
         let _ = writeln!(
             out,
-            "\nScenarios with a shortfall, before and after the plan (top {shown}):\n{s}"
+            "\nScenarios with a shortfall, before and after the plan (top {shown}):\n{}",
+            render(&mut s, &[])
         );
         let left: f64 = order.iter().map(|&i| after(i)).fold(0.0, f64::max);
         if left > 0.0 {
@@ -833,7 +911,7 @@ pub fn write_check(
     net: &Network,
     baseline_cut_off: &[(usize, Unservable)],
 ) -> io::Result<()> {
-    w.write_all(check_summary(net, baseline_cut_off).as_bytes())
+    w.write_all(screen::finish(&check_summary(net, baseline_cut_off)).as_bytes())
 }
 
 /// The `--close` part of an audit: the closings per outage and whether costs defaulted.
@@ -842,7 +920,8 @@ pub struct ClosingPart<'a> {
     pub default_costs: bool,
 }
 
-/// The `audit` exporter: header and worst scenarios, where one more unit helps, the
+/// The `audit` exporter: the verdict, header and worst scenarios, the explanation of one
+/// scenario (`why`: `--why`, or `--fail`), where one more unit helps, the
 /// closings (with `--close`), the risk figures (when probabilities are given), one line
 /// per gate, and the caution, in that order.
 #[allow(clippy::too_many_arguments)] // each part is optional and independent
@@ -855,22 +934,34 @@ pub fn write_audit(
     risk: Option<&crate::risk::Risk>,
     gates: &[GateResult],
     top: usize,
+    why: Option<WhyPart<'_>>,
 ) -> io::Result<()> {
-    w.write_all(audit_report(net, audit, baseline, top).as_bytes())?;
-    w.write_all(relief_report(net, audit, top).as_bytes())?;
+    let mut s = format!("{}\n", verdict(net, audit, gates));
+    s.push_str(&audit_report(net, audit, baseline, top));
+    if let Some(y) = &why {
+        s.push_str(&why_report(net, audit, y));
+    }
+    s.push_str(&relief_report(net, audit, top));
     if let Some(c) = closing {
-        w.write_all(closing_report(net, audit, c.closings, c.default_costs, top).as_bytes())?;
+        s.push_str(&closing_report(
+            net,
+            audit,
+            c.closings,
+            c.default_costs,
+            top,
+        ));
     }
     if let Some(r) = risk {
-        w.write_all(risk_report(net, audit, r).as_bytes())?;
+        s.push_str(&risk_report(net, audit, r));
     }
     if !gates.is_empty() {
-        writeln!(w)?;
+        s.push('\n');
         for g in gates {
-            writeln!(w, "{}", gate_line(net, audit, g))?;
+            let _ = writeln!(s, "{}", gate_line(net, audit, g));
         }
     }
-    w.write_all(caution().as_bytes())
+    s.push_str(&caution());
+    w.write_all(screen::finish(&s).as_bytes())
 }
 
 /// The `plan` exporter: [`plan_report`] to `w`.
@@ -882,7 +973,7 @@ pub fn write_plan(
     default_costs: bool,
     top: usize,
 ) -> io::Result<()> {
-    w.write_all(plan_report(net, audit, plan, default_costs, top).as_bytes())
+    w.write_all(screen::finish(&plan_report(net, audit, plan, default_costs, top)).as_bytes())
 }
 
 /// One gate's verdict: `PASS` or `FAIL`, the flag and limit, the worst value and the
@@ -1093,10 +1184,11 @@ pub fn write_compare(
         }
         right(&mut t, &[1, 2, 3, 4, 5]);
         format!(
-            "\n{title} ({} scenario{}, top {}; amounts in {u}):\n{t}\n",
+            "\n{title} ({} scenario{}, top {}; amounts in {u}):\n{}\n",
             list.len(),
             plural(list.len()),
-            top.min(list.len())
+            top.min(list.len()),
+            render(&mut t, &[])
         )
     };
     if !c.worse.is_empty() {
@@ -1120,10 +1212,11 @@ pub fn write_compare(
         }
         right(&mut t, &[1, 2]);
         format!(
-            "\n{title} ({} scenario{}, top {}):\n{t}\n",
+            "\n{title} ({} scenario{}, top {}):\n{}\n",
             list.len(),
             plural(list.len()),
-            top.min(list.len())
+            top.min(list.len()),
+            render(&mut t, &[])
         )
     };
     if !c.added_risks.is_empty() {
@@ -1164,3 +1257,213 @@ pub fn note_applied(w: &mut dyn Write, path: &std::path::Path, add: &[f64]) -> i
         if sites == 1 { "" } else { "s" }
     )
 }
+
+/// The scenario `--why` (and `audit --fail` by default) explains, with its closing when
+/// one was computed (`None` when nothing is short).
+pub struct WhyPart<'a> {
+    /// Index into `audit.scenarios`.
+    pub scenario: usize,
+    pub closing: Option<&'a crate::expand::Closing>,
+}
+
+/// Why one scenario is short: per-demand served and short amounts (one of possibly several
+/// optimal splits), saturated link directions and processing sites, cut-off demands, what
+/// added processing can and cannot fix, and the links whose growth would serve more (their
+/// shadow prices).
+pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
+    let u = &net.unit;
+    let i = why.scenario;
+    let e = audit.eval(i);
+    let name = audit.scenarios[i].display_name();
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "\nWhy {name}: serves {} of {} {u} surviving required ({} short, {} of surviving \
+         required); {} {u} stranded.",
+        num(e.served_required),
+        num(e.surviving_required),
+        num(e.shortfall),
+        percent(e.shortfall, e.surviving_required),
+        num(e.stranded)
+    );
+    let mut t = table(&[
+        "demand",
+        "from → to",
+        "required",
+        "served",
+        "short",
+        "status",
+    ]);
+    for (d, dem) in net.demands.iter().enumerate() {
+        if dem.required <= 0.0 {
+            continue;
+        }
+        let stranded = e.stranded_demands.contains(&d);
+        let cut = e.cut_off.iter().find(|(c, _)| *c == d).map(|(_, r)| *r);
+        let short = e.demand_shortfall.get(d).copied().unwrap_or(0.0);
+        let status = if stranded {
+            "stranded: an end site failed".to_string()
+        } else if let Some(r) = cut {
+            format!("cut off: {}", unservable_words(r))
+        } else if short > 0.0 {
+            "short".to_string()
+        } else {
+            "served".to_string()
+        };
+        t.add_row(vec![
+            Cell::new(&dem.label),
+            Cell::new(format!(
+                "{} → {}",
+                net.sites[dem.from].id, net.sites[dem.to].id
+            )),
+            Cell::new(num(dem.required)),
+            Cell::new(num(if stranded {
+                0.0
+            } else {
+                e.demand_flow.get(d).copied().unwrap_or(0.0)
+            })),
+            Cell::new(num(if stranded { dem.required } else { short })),
+            Cell::new(status),
+        ]);
+    }
+    right(&mut t, &[2, 3, 4]);
+    let _ = writeln!(
+        out,
+        "Per demand (amounts in {u}; required part only; a stranded demand's required counts \
+         as short here but not in the shortfall):\n{}",
+        render(&mut t, &[5])
+    );
+    let _ = writeln!(
+        out,
+        "The total served is exact; this split among demands is one of several optimal ones \
+         when the network could serve the same total another way."
+    );
+    let arcs: Vec<&crate::solve::Bottleneck> = e
+        .bottlenecks
+        .iter()
+        .filter(|b| matches!(b.resource, Resource::Arc(_)))
+        .collect();
+    if arcs.is_empty() {
+        let _ = writeln!(out, "Saturated link directions: none.");
+    } else {
+        let _ = writeln!(
+            out,
+            "Saturated link direction{} (full in this allocation): {}.",
+            plural(arcs.len()),
+            first_k(
+                arcs.iter().map(|b| resource_name(net, b.resource)),
+                arcs.len()
+            )
+        );
+    }
+    let sites: Vec<String> = e
+        .bottlenecks
+        .iter()
+        .filter_map(|b| match b.resource {
+            Resource::Site(v) => Some(net.sites[v].id.clone()),
+            Resource::Arc(_) => None,
+        })
+        .collect();
+    let _ = writeln!(
+        out,
+        "Saturated processing: {}.",
+        if sites.is_empty() {
+            "none".to_string()
+        } else {
+            sites.join(", ")
+        }
+    );
+    if e.cut_off.is_empty() {
+        let _ = writeln!(out, "Cut-off demands: none.");
+    } else {
+        let _ = writeln!(
+            out,
+            "Cut-off demand{} (no walk through a surviving processing site): {}.",
+            plural(e.cut_off.len()),
+            first_k(
+                e.cut_off.iter().map(|&(d, r)| format!(
+                    "{} ({})",
+                    net.demands[d].label,
+                    unservable_words(r)
+                )),
+                e.cut_off.len()
+            )
+        );
+    }
+    if e.shortfall <= 0.0 {
+        let _ = writeln!(out, "Nothing is short, so nothing needs fixing.");
+        return out;
+    }
+    match why.closing {
+        Some(c) => {
+            let fixed = (c.best - e.served_required).max(0.0);
+            if fixed > 0.0 {
+                let _ = writeln!(
+                    out,
+                    "Processing can fix {} {u} of the {} {u} short: add {} (cost {}).",
+                    num(fixed),
+                    num(e.shortfall),
+                    additions(net, &c.add, net.sites.len()),
+                    num(c.cost)
+                );
+            } else {
+                let _ = writeln!(
+                    out,
+                    "Processing cannot fix any of it: added processing at the candidate sites \
+                     would not serve more."
+                );
+            }
+            if c.not_closable > 0.0 {
+                let _ = writeln!(
+                    out,
+                    "Processing cannot fix {} {u}: {}.",
+                    num(c.not_closable),
+                    if c.binding_links.is_empty() {
+                        "cut-off demands or the expansion limits hold it back".to_string()
+                    } else {
+                        format!(
+                            "the capacity of {} holds it back",
+                            link_list(net, &c.binding_links, c.binding_links.len())
+                        )
+                    }
+                );
+            }
+        }
+        None => {
+            let _ = writeln!(out, "What processing can fix was not computed.");
+        }
+    }
+    let mut grow: Vec<(usize, f64)> = e
+        .arc_price
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| **p > PRICE_SHOWN)
+        .map(|(a, p)| (a, *p))
+        .collect();
+    grow.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    if grow.is_empty() {
+        let _ = writeln!(
+            out,
+            "Links that would have to grow: none (no link direction's capacity limits what is \
+             served)."
+        );
+    } else {
+        let _ = writeln!(
+            out,
+            "Links that would have to grow (one more {u} of capacity serves up to this much more, \
+             its shadow price): {}.",
+            first_k(
+                grow.iter().map(|&(a, p)| format!(
+                    "{} +{}",
+                    resource_name(net, Resource::Arc(a)),
+                    num(p)
+                )),
+                grow.len()
+            )
+        );
+    }
+    out
+}
+
+/// Shadow prices at or below this are shown as no effect (solver noise).
+const PRICE_SHOWN: f64 = 1e-6;
