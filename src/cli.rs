@@ -33,6 +33,72 @@ pub enum Command {
     Compare(CompareArgs),
     /// Combine the part files of `audit --shard I/N` into the audit an unsharded run gives.
     Merge(MergeArgs),
+    /// Write another format's topology as a network file (then check and audit it).
+    #[command(subcommand, after_help = IMPORT_EXAMPLES)]
+    Import(ImportFrom),
+}
+
+/// Examples of `redoubt import`.
+pub const IMPORT_EXAMPLES: &str = "Examples:
+  redoubt import networkx topo.json --json net.json --capacity 100 --processing-sites 3 --processing 50 --demand 2 --required-fraction 0.8
+  redoubt import csv --sites sites.csv --links links.csv --demands demands.csv --json net.json";
+
+#[derive(Debug, Subcommand)]
+pub enum ImportFrom {
+    /// networkx node-link JSON (`nodes`, `links` or `edges`), as open topology collections
+    /// ship it; processing and demands come from the flags.
+    Networkx(NetworkxArgs),
+    /// Three CSV files with header rows named like the JSON fields.
+    Csv(CsvArgs),
+}
+
+#[derive(Debug, Args)]
+pub struct NetworkxArgs {
+    /// The node-link JSON file.
+    pub file: PathBuf,
+    /// Write the network here.
+    #[arg(long, value_name = "FILE")]
+    pub json: PathBuf,
+    /// Capacity of every link (each direction), or the fallback for --capacity-attr.
+    #[arg(long, default_value_t = 100.0, allow_negative_numbers = true)]
+    pub capacity: f64,
+    /// Read each link's capacity from this numeric edge attribute.
+    #[arg(long, value_name = "ATTR")]
+    pub capacity_attr: Option<String>,
+    /// Put processing at this many sites of highest degree (ties in file order).
+    #[arg(long, default_value_t = 1)]
+    pub processing_sites: usize,
+    /// Processing capacity of each of those sites.
+    #[arg(long, default_value_t = 100.0, allow_negative_numbers = true)]
+    pub processing: f64,
+    /// Volume of the demand between every ordered pair of sites (0: none).
+    #[arg(long, default_value_t = 1.0, allow_negative_numbers = true)]
+    pub demand: f64,
+    /// Required part of each demand, as a fraction of its volume.
+    #[arg(long, default_value_t = 1.0, allow_negative_numbers = true)]
+    pub required_fraction: f64,
+    /// The network's name (default: the graph's `name`, else the file name).
+    #[arg(long)]
+    pub name: Option<String>,
+}
+
+#[derive(Debug, Args)]
+pub struct CsvArgs {
+    /// Sites: id, processing, expand_cost, expand_max, expand_step, failure_probability, x, y, notes.
+    #[arg(long, value_name = "FILE")]
+    pub sites: PathBuf,
+    /// Links: id, from, to, capacity, one_way, risk_groups (`;`-separated), metric, failure_probability, notes.
+    #[arg(long, value_name = "FILE")]
+    pub links: PathBuf,
+    /// Demands: id, from, to, volume, required, notes.
+    #[arg(long, value_name = "FILE")]
+    pub demands: PathBuf,
+    /// Write the network here.
+    #[arg(long, value_name = "FILE")]
+    pub json: PathBuf,
+    /// The network's name.
+    #[arg(long, default_value = "imported network")]
+    pub name: String,
 }
 
 #[derive(Debug, Args)]

@@ -3,6 +3,7 @@
 
 pub mod apply;
 pub mod file;
+pub mod import;
 pub mod network;
 pub mod strict;
 

@@ -1,0 +1,386 @@
+//! Importers: other people's topology files written as our network format.
+//!
+//! - [`from_node_link`]: networkx node-link JSON (`nodes`, and `links` or `edges` with
+//!   `source`/`target`), as open topology collections ship it. A topology has no
+//!   processing and no demands, so the caller chooses a capacity rule (one capacity for
+//!   every link, or a numeric edge attribute), a processing placement (the `k` sites of
+//!   highest degree, ties in file order) and a demand (one per ordered pair of sites, with
+//!   a required fraction).
+//! - [`from_csv`]: three CSV files with header rows (sites, links, demands) for spreadsheet
+//!   users; columns are named like the JSON fields.
+//!
+//! Both return a JSON document in the contract's shape; the caller validates it with
+//! [`super::Network::from_json`] like any file, so every rule of the format applies.
+
+use std::collections::BTreeMap;
+
+use serde_json::{Map, Value, json};
+
+use crate::error::{Error, Result};
+
+/// How an imported topology gets capacities, processing and demands.
+#[derive(Debug, Clone)]
+pub struct Rules {
+    /// Capacity of every link, or the fallback when `capacity_attr` is missing on an edge.
+    pub capacity: f64,
+    /// A numeric edge attribute to read the capacity from.
+    pub capacity_attr: Option<String>,
+    /// How many sites get processing: the highest-degree ones (ties in file order).
+    pub processing_sites: usize,
+    /// Processing capacity of each of those sites.
+    pub processing: f64,
+    /// Volume of the demand between every ordered pair of sites (0: no demands).
+    pub demand: f64,
+    /// Required part of each demand, as a fraction of its volume (0..=1).
+    pub required_fraction: f64,
+}
+
+fn input(msg: String) -> Error {
+    Error::Input(msg)
+}
+
+/// A node or endpoint id as text (networkx writes numbers or strings).
+fn id_text(v: &Value, what: &str) -> Result<String> {
+    match v {
+        Value::String(s) => Ok(s.clone()),
+        Value::Number(n) => Ok(n.to_string()),
+        other => Err(input(format!(
+            "{what}: id must be a string or a number, got {other}"
+        ))),
+    }
+}
+
+/// An id the format accepts: commas (the `--fail` separator) become `_`, control
+/// characters are dropped, edge spaces trimmed.
+fn clean_id(s: &str) -> String {
+    s.chars()
+        .filter(|c| !c.is_control())
+        .map(|c| if c == ',' { '_' } else { c })
+        .collect::<String>()
+        .trim()
+        .to_string()
+}
+
+/// Converts networkx node-link JSON `text` with `rules`. Self-loops are dropped (a link
+/// joins two distinct sites); a directed graph gives one-way links; a node's `pos`
+/// (`[x, y]`) becomes its drawing position; a node's `name` becomes its site id when every
+/// node has a distinct one, else its `id` does. Link ids are `FROM-TO` (with `#N` for
+/// parallel links). O(nodes² + edges) (one demand per ordered pair).
+pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Value> {
+    if !(rules.required_fraction.is_finite() && (0.0..=1.0).contains(&rules.required_fraction)) {
+        return Err(Error::Usage(format!(
+            "--required-fraction must be between 0 and 1, got {}",
+            rules.required_fraction
+        )));
+    }
+    for (flag, v) in [
+        ("--capacity", rules.capacity),
+        ("--processing", rules.processing),
+        ("--demand", rules.demand),
+    ] {
+        if !(v.is_finite() && v >= 0.0) {
+            return Err(Error::Usage(format!(
+                "{flag} must be a finite number >= 0, got {v}"
+            )));
+        }
+    }
+    let doc: Value = serde_json::from_str(text.trim_start_matches('\u{feff}'))
+        .map_err(|e| input(format!("not node-link JSON: {e}")))?;
+    let nodes = doc
+        .get("nodes")
+        .and_then(Value::as_array)
+        .ok_or_else(|| input("node-link JSON needs a `nodes` array".into()))?;
+    let edges = doc
+        .get("links")
+        .or_else(|| doc.get("edges"))
+        .and_then(Value::as_array)
+        .ok_or_else(|| input("node-link JSON needs a `links` (or `edges`) array".into()))?;
+    let directed = doc
+        .get("directed")
+        .and_then(Value::as_bool)
+        .unwrap_or(false);
+    let mut ids = Vec::with_capacity(nodes.len());
+    let mut index = BTreeMap::new();
+    let mut pos = Vec::with_capacity(nodes.len());
+    for (i, n) in nodes.iter().enumerate() {
+        let raw = id_text(
+            n.get("id")
+                .ok_or_else(|| input(format!("nodes[{i}]: no `id`")))?,
+            &format!("nodes[{i}]"),
+        )?;
+        let id = clean_id(&raw);
+        if id.is_empty() || index.insert(raw.clone(), i).is_some() {
+            return Err(input(format!(
+                "nodes[{i}]: id {raw:?} is empty or repeated"
+            )));
+        }
+        ids.push(id);
+        pos.push(
+            n.get("pos")
+                .and_then(Value::as_array)
+                .and_then(|p| Some((p.first()?.as_f64()?, p.get(1)?.as_f64()?))),
+        );
+    }
+    // Readable names when every node has a distinct one (open collections keep city
+    // names there and numbers in `id`).
+    let names: Vec<Option<String>> = nodes
+        .iter()
+        .map(|n| n.get("name").and_then(Value::as_str).map(clean_id))
+        .collect();
+    let distinct: std::collections::BTreeSet<&String> = names.iter().flatten().collect();
+    if names
+        .iter()
+        .all(|n| n.as_ref().is_some_and(|n| !n.is_empty()))
+        && distinct.len() == names.len()
+    {
+        ids = names.into_iter().flatten().collect();
+    }
+    let mut degree = vec![0usize; nodes.len()];
+    let mut links = Vec::new();
+    let mut seen: BTreeMap<(usize, usize), usize> = BTreeMap::new();
+    for (k, e) in edges.iter().enumerate() {
+        let end = |key: &str| -> Result<usize> {
+            let raw = id_text(
+                e.get(key)
+                    .ok_or_else(|| input(format!("edges[{k}]: no `{key}`")))?,
+                &format!("edges[{k}].{key}"),
+            )?;
+            index
+                .get(&raw)
+                .copied()
+                .ok_or_else(|| input(format!("edges[{k}]: `{key}` names unknown node {raw:?}")))
+        };
+        let (a, b) = (end("source")?, end("target")?);
+        if a == b {
+            continue;
+        }
+        let capacity = match &rules.capacity_attr {
+            Some(attr) => e
+                .get(attr)
+                .and_then(Value::as_f64)
+                .unwrap_or(rules.capacity),
+            None => rules.capacity,
+        };
+        degree[a] += 1;
+        degree[b] += 1;
+        let n = seen.entry((a.min(b), a.max(b))).or_insert(0);
+        *n += 1;
+        let id = if *n == 1 {
+            format!("{}-{}", ids[a], ids[b])
+        } else {
+            format!("{}-{}#{n}", ids[a], ids[b])
+        };
+        links.push(
+            json!({"id": id, "from": ids[a], "to": ids[b], "capacity": capacity,
+                          "one_way": directed}),
+        );
+    }
+    let mut by_degree: Vec<usize> = (0..nodes.len()).collect();
+    by_degree.sort_by(|&x, &y| degree[y].cmp(&degree[x]).then(x.cmp(&y)));
+    let processing: Vec<bool> = {
+        let mut p = vec![false; nodes.len()];
+        for &v in by_degree.iter().take(rules.processing_sites) {
+            p[v] = true;
+        }
+        p
+    };
+    let sites: Vec<Value> = (0..nodes.len())
+        .map(|v| {
+            let mut s = Map::new();
+            s.insert("id".into(), json!(ids[v]));
+            s.insert(
+                "processing".into(),
+                json!(if processing[v] { rules.processing } else { 0.0 }),
+            );
+            if let Some((x, y)) = pos[v] {
+                s.insert("x".into(), json!(x));
+                s.insert("y".into(), json!(y));
+            }
+            Value::Object(s)
+        })
+        .collect();
+    let mut demands = Vec::new();
+    if rules.demand > 0.0 {
+        for a in 0..nodes.len() {
+            for b in 0..nodes.len() {
+                if a != b {
+                    demands.push(json!({"from": ids[a], "to": ids[b], "volume": rules.demand,
+                                        "required": rules.demand * rules.required_fraction}));
+                }
+            }
+        }
+    }
+    Ok(json!({"name": name, "sites": sites, "links": links, "demands": demands}))
+}
+
+/// Splits one CSV line into fields (RFC 4180: commas, fields in double quotes with `""`
+/// for a quote). O(line length).
+fn csv_fields(line: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    let mut cur = String::new();
+    let mut quoted = false;
+    let mut chars = line.chars().peekable();
+    while let Some(c) = chars.next() {
+        match (c, quoted) {
+            ('"', true) if chars.peek() == Some(&'"') => {
+                cur.push('"');
+                chars.next();
+            }
+            ('"', _) => quoted = !quoted,
+            (',', false) => out.push(std::mem::take(&mut cur)),
+            _ => cur.push(c),
+        }
+    }
+    out.push(cur);
+    out
+}
+
+/// Which columns a CSV file may have, and whether each is a number, a boolean, a list
+/// (`;`-separated) or text.
+#[derive(Clone, Copy)]
+enum Kind {
+    Text,
+    Number,
+    Bool,
+    List,
+}
+
+/// Reads one CSV file (`what`: `sites`, `links`, `demands`) into JSON objects. Blank
+/// lines and lines starting with `#` are skipped; empty cells are left out (the format's
+/// default applies). O(size).
+fn csv_objects(text: &str, what: &str, columns: &[(&str, Kind)]) -> Result<Vec<Value>> {
+    let mut lines = text
+        .trim_start_matches('\u{feff}')
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| !l.trim().is_empty() && !l.starts_with('#'));
+    let Some((_, header)) = lines.next() else {
+        return Ok(Vec::new());
+    };
+    let header: Vec<String> = csv_fields(header)
+        .iter()
+        .map(|h| h.trim().to_string())
+        .collect();
+    let mut kinds = Vec::with_capacity(header.len());
+    for h in &header {
+        match columns.iter().find(|(c, _)| c == h) {
+            Some(&(_, k)) => kinds.push(k),
+            None => {
+                let known: Vec<&str> = columns.iter().map(|c| c.0).collect();
+                return Err(input(format!(
+                    "{what} CSV: unknown column {h:?} (columns: {})",
+                    known.join(", ")
+                )));
+            }
+        }
+    }
+    let mut out = Vec::new();
+    for (n, line) in lines {
+        let cells = csv_fields(line);
+        if cells.len() != header.len() {
+            return Err(input(format!(
+                "{what} CSV line {}: {} fields, the header has {}",
+                n + 1,
+                cells.len(),
+                header.len()
+            )));
+        }
+        let mut obj = Map::new();
+        for ((h, k), cell) in header.iter().zip(&kinds).zip(cells) {
+            let cell = cell.trim();
+            if cell.is_empty() {
+                continue;
+            }
+            let v = match k {
+                Kind::Text => json!(cell),
+                Kind::Number => json!(cell.parse::<f64>().map_err(|_| input(format!(
+                    "{what} CSV line {}: column {h:?} must be a number, got {cell:?}",
+                    n + 1
+                )))?),
+                Kind::Bool => match cell.to_ascii_lowercase().as_str() {
+                    "true" | "yes" | "1" => json!(true),
+                    "false" | "no" | "0" => json!(false),
+                    _ => {
+                        return Err(input(format!(
+                            "{what} CSV line {}: column {h:?} must be true or false, got {cell:?}",
+                            n + 1
+                        )));
+                    }
+                },
+                Kind::List => json!(
+                    cell.split(';')
+                        .map(str::trim)
+                        .filter(|s| !s.is_empty())
+                        .collect::<Vec<_>>()
+                ),
+            };
+            obj.insert(h.clone(), v);
+        }
+        out.push(Value::Object(obj));
+    }
+    Ok(out)
+}
+
+/// Converts three CSV files (sites, links, demands; header rows with the JSON field names;
+/// `risk_groups` as a `;`-separated list) into the network format. O(total size).
+pub fn from_csv(name: &str, sites: &str, links: &str, demands: &str) -> Result<Value> {
+    use Kind::*;
+    let sites = csv_objects(
+        sites,
+        "sites",
+        &[
+            ("id", Text),
+            ("processing", Number),
+            ("expand_cost", Number),
+            ("expand_max", Number),
+            ("expand_step", Number),
+            ("failure_probability", Number),
+            ("x", Number),
+            ("y", Number),
+            ("notes", Text),
+        ],
+    )?;
+    let links = csv_objects(
+        links,
+        "links",
+        &[
+            ("id", Text),
+            ("from", Text),
+            ("to", Text),
+            ("capacity", Number),
+            ("one_way", Bool),
+            ("risk_groups", List),
+            ("metric", Number),
+            ("failure_probability", Number),
+            ("notes", Text),
+        ],
+    )?;
+    let demands = csv_objects(
+        demands,
+        "demands",
+        &[
+            ("id", Text),
+            ("from", Text),
+            ("to", Text),
+            ("volume", Number),
+            ("required", Number),
+            ("notes", Text),
+        ],
+    )?;
+    Ok(json!({"name": name, "sites": sites, "links": links, "demands": demands}))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// RFC 4180 quoting (common practice for CSV, RFC 4180 section 2).
+    #[test]
+    fn csv_quotes_and_commas() {
+        assert_eq!(
+            csv_fields(r#"a,"b,c","d""e",f"#),
+            vec!["a", "b,c", "d\"e", "f"]
+        );
+        assert_eq!(csv_fields("x,,y"), vec!["x", "", "y"]);
+    }
+}
