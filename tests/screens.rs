@@ -91,6 +91,8 @@ fn demo_screens() -> Vec<(String, String)> {
         vec!["plan", demo],
         vec!["audit", demo, "--routing", "nearest"],
         vec!["check", demo],
+        vec!["compare", demo, demo, "--depth", "2"],
+        vec!["plan", demo, "--budget", "10"],
     ];
     cases
         .into_iter()

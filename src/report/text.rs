@@ -830,17 +830,19 @@ pub fn plan_report(
             );
         }
     }
-    let rounds: Vec<String> = plan
-        .rounds
-        .iter()
-        .map(|r| format!("{} in master → {} violated", r.active, r.violated))
-        .collect();
+    // The search in plain words: how many scenarios the purchase was worked out on, how
+    // many passes it took to check it against all the others.
+    let set_by = plan.rounds.last().map_or(0, |r| r.active);
+    let added: usize = plan.rounds.iter().map(|r| r.violated).sum();
     let _ = writeln!(
         out,
-        "Constraint generation: {} round{} ({}); every scenario re-solved with the plan applied.",
+        "How it was found: worked out on {set_by} scenario{} ({} of them pulled in after a check \
+         found them still short), in {} pass{}; then every scenario was solved again with the \
+         purchase applied.",
+        if set_by == 1 { "" } else { "s" },
+        added,
         plan.rounds.len(),
-        if plan.rounds.len() == 1 { "" } else { "s" },
-        rounds.join("; ")
+        if plan.rounds.len() == 1 { "" } else { "es" },
     );
     let mut order: Vec<usize> = (0..audit.scenarios.len()).collect();
     let after = |i: usize| plan.after[audit.outage_of[i]].shortfall;
@@ -1120,6 +1122,19 @@ fn signed(x: f64) -> String {
 /// and better, the added and removed risks, the elements added and removed, the caution.
 /// `before`/`after` are the two baselines (with `--down`, the down states).
 pub fn write_compare(
+    w: &mut dyn Write,
+    c: &crate::compare::Comparison,
+    before: &Evaluation,
+    after: &Evaluation,
+    top: usize,
+) -> io::Result<()> {
+    let mut buf = Vec::new();
+    compare_lines(&mut buf, c, before, after, top)?;
+    w.write_all(super::screen::finish(&String::from_utf8_lossy(&buf)).as_bytes())
+}
+
+/// The lines of [`write_compare`] before they are wrapped to the screen width.
+fn compare_lines(
     w: &mut dyn Write,
     c: &crate::compare::Comparison,
     before: &Evaluation,
