@@ -65,12 +65,12 @@ pub const DECIMALS: usize = 3;
 /// A number for people. Below [`ENGINEERING_FROM`] in magnitude: at most [`DECIMALS`]
 /// decimals, trailing zeros trimmed, `-0` shown as `0`. From it on: engineering notation,
 /// a mantissa in [1, 1000) with at most [`DECIMALS`] decimals and an exponent that is a
-/// multiple of 3 (`1.5e12`, `170e306`). `+∞` prints `unlimited`. O(1); the result never
+/// multiple of 3 (`1.5e12`, `170e306`). `+∞` prints `no limit`. O(1); the result never
 /// exceeds 16 characters for any finite input.
 pub fn num(x: f64) -> String {
     if !x.is_finite() {
         return if x > 0.0 {
-            "unlimited".into()
+            "no limit".into()
         } else {
             x.to_string()
         };

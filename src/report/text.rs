@@ -67,10 +67,14 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) ->
         .filter_map(|s| {
             s.expansion.as_ref().map(|e| {
                 format!(
-                    "{} (cost {}/unit, up to {}{})",
+                    "{} (cost {}/unit, {}{})",
                     s.id,
                     num(e.cost),
-                    num(e.max),
+                    if e.max.is_finite() {
+                        format!("up to {}", num(e.max))
+                    } else {
+                        "no limit".into()
+                    },
                     e.step
                         .map(|st| format!(", modules of {}", num(st)))
                         .unwrap_or_default()
