@@ -72,7 +72,7 @@ impl Candidates {
 /// Adds one `add_v` variable per candidate site that survives `outage` (all candidates
 /// when `outage` is `None`), bounded by `min(expand_max, cap)` and with objective
 /// coefficient `cost_v * cost_weight`. O(sites).
-pub(super) fn add_vars(
+pub(crate) fn add_vars(
     lp: &mut Lp,
     net: &Network,
     cands: &Candidates,
@@ -94,7 +94,7 @@ pub(super) fn add_vars(
 
 /// The additions of a solution `x`, with values within [`TOL`]·`scale` of 0 snapped to 0
 /// (solver noise, not a purchase). O(sites).
-pub(super) fn values(add: &[Option<usize>], x: &[f64], scale: f64) -> Vec<f64> {
+pub(crate) fn values(add: &[Option<usize>], x: &[f64], scale: f64) -> Vec<f64> {
     add.iter()
         .map(|v| {
             v.map_or(0.0, |v| {

@@ -138,7 +138,7 @@ pub fn close(
 /// is the whole required demand (exactly feasible), otherwise a hair below it (1e-8
 /// relative), since an interior-point `best` may overshoot the true optimum by its
 /// tolerance.
-pub(super) fn target(best: f64, required: f64) -> f64 {
+pub(crate) fn target(best: f64, required: f64) -> f64 {
     if best >= required {
         required
     } else {

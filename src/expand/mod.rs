@@ -28,6 +28,8 @@ mod modules;
 mod tidy;
 
 pub use candidates::Candidates;
+pub(crate) use candidates::{add_vars, values};
+pub(crate) use close::target;
 pub use close::{Closing, close};
 pub use master::TOTAL_MAX_VARS;
 

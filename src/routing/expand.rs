@@ -17,7 +17,10 @@ use super::spt::Trees;
 use super::{DemandRoutes, Mode, RoutedAudit, fixed};
 use crate::audit::{self, RunOptions};
 use crate::error::{Error, Result};
-use crate::expand::{Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOTAL_MAX_VARS};
+use crate::expand::{
+    Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOTAL_MAX_VARS, add_vars, target,
+    values,
+};
 use crate::model::Network;
 use crate::scenario::Outage;
 use crate::solve::lp::{self, Lp, Sense};
@@ -33,49 +36,6 @@ fn eligible(net: &Network, outage: &Outage, cands: &Candidates) -> Vec<bool> {
                     || (cands.cost[v].is_some() && cands.max[v] > 0.0))
         })
         .collect()
-}
-
-/// One `add_v` per surviving candidate site, bounded by `min(expand_max, cap)`, objective
-/// `cost_v · weight`.
-fn add_vars(
-    lp: &mut Lp,
-    net: &Network,
-    cands: &Candidates,
-    outage: Option<&Outage>,
-    cap: f64,
-    weight: f64,
-) -> Vec<Option<usize>> {
-    let alive = outage.map(|o| o.site_alive(net));
-    (0..net.sites.len())
-        .map(|v| {
-            let c = cands.cost[v]?;
-            if alive.as_ref().is_some_and(|a| !a[v]) || cands.max[v] <= 0.0 {
-                return None;
-            }
-            Some(lp.add_var(0.0, cands.max[v].min(cap), c * weight))
-        })
-        .collect()
-}
-
-fn values(add: &[Option<usize>], x: &[f64], scale: f64) -> Vec<f64> {
-    add.iter()
-        .map(|v| {
-            v.map_or(0.0, |v| {
-                let a = x[v].max(0.0);
-                if a <= TOL * scale { 0.0 } else { a }
-            })
-        })
-        .collect()
-}
-
-/// The served target of a cost model: exactly `required` when the best reaches it, else a
-/// hair (1e-8 relative) below the interior-point best.
-fn target(best: f64, required: f64) -> f64 {
-    if best >= required {
-        required
-    } else {
-        best - 1e-8 * required.max(f64::MIN_POSITIVE)
-    }
 }
 
 fn served_row(
