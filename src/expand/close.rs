@@ -32,6 +32,27 @@ pub struct Closing {
     pub verified: bool,
 }
 
+impl Closing {
+    /// The closing of a scenario (evaluated as `eval`) that no added processing improves:
+    /// nothing to buy, its whole shortfall not closable, limited by `binding_links`.
+    pub fn nothing_to_buy(
+        net: &Network,
+        eval: &Evaluation,
+        binding_links: Vec<LinkIdx>,
+    ) -> Closing {
+        Closing {
+            cost: 0.0,
+            add: vec![0.0; net.sites.len()],
+            best: eval.served_required,
+            not_closable: eval.shortfall,
+            binding_links,
+            dual_bound: 0.0,
+            served_after: eval.served_required,
+            verified: eval.proven(),
+        }
+    }
+}
+
 /// Best served_required of `outage` (evaluated as `eval`) with every candidate expanded as
 /// far as allowed, and the links whose capacity limits it. The value is snapped to the
 /// whole required demand when within [`TOL`], and never below what `eval` already serves.
@@ -104,16 +125,7 @@ pub fn close(
     let (best, binding_links) = best_reachable(net, outage, cands, eval)?;
     let scale = required.max(1.0);
     if best <= eval.served_required + TOL * scale {
-        return Ok(Some(Closing {
-            cost: 0.0,
-            add: vec![0.0; net.sites.len()],
-            best: eval.served_required,
-            not_closable: eval.shortfall,
-            binding_links,
-            dual_bound: 0.0,
-            served_after: eval.served_required,
-            verified: eval.proven(),
-        }));
+        return Ok(Some(Closing::nothing_to_buy(net, eval, binding_links)));
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);

@@ -992,21 +992,18 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
         || "no scenario".to_string(),
         |i| audit.scenarios[i].display_name(),
     );
+    let amount = |flag, what| {
+        (
+            flag,
+            what,
+            format!("{} {u}", num(g.value)),
+            format!("{} {u}", num(g.limit)),
+            if g.passed { "within" } else { "exceeds" },
+        )
+    };
     let (flag, what, value, limit, verb) = match g.kind {
-        GateKind::MaxShortfall => (
-            "--max-shortfall",
-            "shortfall",
-            format!("{} {u}", num(g.value)),
-            format!("{} {u}", num(g.limit)),
-            if g.passed { "within" } else { "exceeds" },
-        ),
-        GateKind::MaxStranded => (
-            "--max-stranded",
-            "stranded",
-            format!("{} {u}", num(g.value)),
-            format!("{} {u}", num(g.limit)),
-            if g.passed { "within" } else { "exceeds" },
-        ),
+        GateKind::MaxShortfall => amount("--max-shortfall", "shortfall"),
+        GateKind::MaxStranded => amount("--max-stranded", "stranded"),
         GateKind::MinServedFraction => (
             "--min-served-fraction",
             "served fraction",

@@ -130,16 +130,7 @@ pub fn close(
         best_reachable(net, &routes, outage, cands, required, eval.served_required)?;
     let scale = required.max(1.0);
     if best <= eval.served_required + TOL * scale {
-        return Ok(Some(Closing {
-            cost: 0.0,
-            add: vec![0.0; net.sites.len()],
-            best: eval.served_required,
-            not_closable: eval.shortfall,
-            binding_links,
-            dual_bound: 0.0,
-            served_after: eval.served_required,
-            verified: eval.proven(),
-        }));
+        return Ok(Some(Closing::nothing_to_buy(net, eval, binding_links)));
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
