@@ -1,5 +1,5 @@
 //! The `redoubt` binary: parse the command line, call [`redoubt::run`] with a locked
-//! standard output and standard error, map the outcome to an exit status (0 ok, 1 a gate
+//! standard output and the (unlocked) standard error, map the outcome to an exit status (0 ok, 1 a gate
 //! failed, 2 bad input or usage, 3 solver failure, 130 interrupted, 141 standard output
 //! closed early).
 
@@ -27,8 +27,10 @@ fn main() -> ExitCode {
     };
     let stdout = io::stdout();
     let mut out = BufWriter::new(stdout.lock());
-    let stderr = io::stderr();
-    let mut err = stderr.lock();
+    // Standard error stays unlocked: the progress bar's timer thread writes to it too, and a
+    // lock held for the whole run would leave that thread (and so the bar's final clear on
+    // this thread) waiting forever on a terminal. Each write takes the lock briefly.
+    let mut err = io::stderr();
     let result = redoubt::run(cli, &mut out, &mut err)
         .and_then(|outcome| redoubt::stdout_result(out.flush()).map(|()| outcome));
     match result {

@@ -46,8 +46,10 @@ pub fn width() -> usize {
     {
         return w.max(MIN_WIDTH);
     }
+    // A pseudo-terminal nobody sized reports 0 columns: that is "unknown", not "narrow".
     Table::new()
         .width()
+        .filter(|&w| w > 0)
         .map_or(DEFAULT_WIDTH, usize::from)
         .max(MIN_WIDTH)
 }
