@@ -7,20 +7,77 @@
 //! [`super::network::Network::to_file`] writes a network back into them. Which fields each
 //! object may hold (and the `notes` / `x-` annotations) is checked before serde sees the
 //! document, in [`super::strict`]; serde ignores the `x-` fields.
+//!
+//! An optional field is either absent (its default applies) or holds a value of its type:
+//! `null` is refused ([`present`]), never taken as absent, so `"required": null` cannot
+//! quietly become the whole volume.
 
+use serde::de::{self, Deserializer};
 use serde::{Deserialize, Serialize};
+
+/// What a field's type holds, in words, for the message that refuses `null` in it.
+pub trait Described {
+    /// `a number`, `a string`...
+    const WHAT: &'static str;
+}
+
+impl Described for f64 {
+    const WHAT: &'static str = "a number";
+}
+
+impl Described for String {
+    const WHAT: &'static str = "a string";
+}
+
+impl Described for bool {
+    const WHAT: &'static str = "true or false";
+}
+
+impl Described for Vec<String> {
+    const WHAT: &'static str = "a list of names";
+}
+
+/// Reads an optional field that is present in the document: its value, or an error when
+/// the value is `null` ("null is not a number; leave the field out for the default").
+/// Used with `#[serde(default)]`, so an absent field still gives `None` without calling
+/// this. Serde's own `Option<T>` would read `null` as absent.
+pub fn present<'de, D, T>(deserializer: D) -> Result<Option<T>, D::Error>
+where
+    D: Deserializer<'de>,
+    T: Deserialize<'de> + Described,
+{
+    match Option::<T>::deserialize(deserializer)? {
+        Some(v) => Ok(Some(v)),
+        None => Err(de::Error::custom(format!(
+            "null is not {}; leave the field out for the default",
+            T::WHAT
+        ))),
+    }
+}
 
 /// The whole file: one JSON object.
 #[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
 pub struct NetworkFile {
     /// A label for reports.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub name: Option<String>,
     /// The traffic unit, a label for reports (e.g. `Gbit/s`).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub unit: Option<String>,
     /// Free text for the user; read, never printed.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub notes: Option<String>,
     /// Processing sites and plain routers alike.
     #[serde(default)]
@@ -41,28 +98,60 @@ pub struct NetworkFile {
 pub struct SiteFile {
     pub id: String,
     /// Processing capacity in traffic units; absent means 0.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub processing: Option<f64>,
     /// Cost of one added unit of processing; absent: the site cannot be expanded.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub expand_cost: Option<f64>,
     /// Most processing that may be added; absent: unlimited.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub expand_max: Option<f64>,
     /// Processing is bought in modules of this size (our own optional field).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub expand_step: Option<f64>,
     /// Probability that the site is down at a random moment (0 <= p < 1).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub failure_probability: Option<f64>,
     /// Drawing position (any finite number; no unit).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub x: Option<f64>,
     /// Drawing position (any finite number; no unit).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub y: Option<f64>,
     /// Free text for the user; read, never printed.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub notes: Option<String>,
 }
 
@@ -75,19 +164,39 @@ pub struct LinkFile {
     /// Capacity of each direction that exists.
     pub capacity: f64,
     /// `true`: only `from → to` exists.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub one_way: Option<bool>,
     /// Shared-risk link groups (SRLG, RFC 4202) the link belongs to.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub risk_groups: Option<Vec<String>>,
     /// Routing metric of the link (a positive integer up to 16777215), both directions.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub metric: Option<f64>,
     /// Probability that the link is down at a random moment (0 <= p < 1).
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub failure_probability: Option<f64>,
     /// Free text for the user; read, never printed.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub notes: Option<String>,
 }
 
@@ -95,17 +204,29 @@ pub struct LinkFile {
 #[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
 pub struct DemandFile {
     /// Optional label of our own; reports fall back to `from→to #index`.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub id: Option<String>,
     pub from: String,
     pub to: String,
     /// Offered traffic.
     pub volume: f64,
     /// Committed part; absent means the whole volume.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub required: Option<f64>,
     /// Free text for the user; read, never printed.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub notes: Option<String>,
 }
 
@@ -117,6 +238,10 @@ pub struct RiskGroupFile {
     /// Probability that the group is down at a random moment (0 <= p < 1).
     pub failure_probability: f64,
     /// Free text for the user; read, never printed.
-    #[serde(default, skip_serializing_if = "Option::is_none")]
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
     pub notes: Option<String>,
 }

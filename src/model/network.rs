@@ -610,9 +610,10 @@ impl Network {
     }
 }
 
-/// The contract's shape that serde alone does not enforce: the document is an object and
-/// every `sites`, `links` and `demands` entry is an object (serde would accept an array
-/// of the fields in declaration order).
+/// The contract's shape that serde alone does not enforce: the document is an object,
+/// each of its lists is an array (`null` is not taken as an empty list) and every `sites`,
+/// `links`, `demands` and `risk_groups` entry is an object (serde would accept an array of
+/// the fields in declaration order).
 fn check_shape(value: &serde_json::Value) -> Result<()> {
     let Some(obj) = value.as_object() else {
         return Err(Error::Input(format!(
@@ -622,7 +623,17 @@ fn check_shape(value: &serde_json::Value) -> Result<()> {
     };
     for list in ["sites", "links", "demands", "risk_groups"] {
         match obj.get(list) {
-            None | Some(serde_json::Value::Null) => {}
+            None => {}
+            Some(serde_json::Value::Null) => {
+                let instead = if list == "sites" {
+                    "list at least one site"
+                } else {
+                    "leave the field out for none"
+                };
+                return Err(Error::Input(format!(
+                    "the network: field `{list}`: null is not a list; {instead}"
+                )));
+            }
             Some(serde_json::Value::Array(items)) => {
                 for (i, item) in items.iter().enumerate() {
                     if !item.is_object() {
@@ -666,16 +677,21 @@ fn short(v: &serde_json::Value) -> String {
     }
 }
 
-/// `sites[2] (id "x")` for a path's first two segments, when the element has an id.
+/// `sites[2] (id "x")` for a path's first two segments, when the element has an id; a
+/// demand also shows its ends when they are strings (`demands[0] (a→b)`), as
+/// `demand_label` does.
 fn element_name(value: &serde_json::Value, list: &str, idx: usize) -> String {
-    match value
-        .get(list)
-        .and_then(|l| l.get(idx))
-        .and_then(|el| el.get("id"))
-        .and_then(|v| v.as_str())
-    {
-        Some(id) => format!("{list}[{idx}] (id \"{}\")", printable(id)),
-        None => format!("{list}[{idx}]"),
+    let el = value.get(list).and_then(|l| l.get(idx));
+    let text = |field: &str| el.and_then(|el| el.get(field)).and_then(|v| v.as_str());
+    let ends = match (list, text("from"), text("to")) {
+        ("demands", Some(from), Some(to)) => Some(format!("{}→{}", printable(from), printable(to))),
+        _ => None,
+    };
+    match (text("id"), ends) {
+        (Some(id), Some(ends)) => format!("{list}[{idx}] (id \"{}\", {ends})", printable(id)),
+        (Some(id), None) => format!("{list}[{idx}] (id \"{}\")", printable(id)),
+        (None, Some(ends)) => format!("{list}[{idx}] ({ends})"),
+        (None, None) => format!("{list}[{idx}]"),
     }
 }
 
@@ -749,30 +765,31 @@ fn find_marker(v: &serde_json::Value, mark: &str) -> Option<Vec<String>> {
 }
 
 /// Turns a serde error into a message that names the element (by index and, where the
-/// file has one, its id), the field and the offending value.
+/// file has one, its id), the field and the offending value: `sites[0] (id "a"): field
+/// `processing`: null is not a number; ...`, or `the network: field `name`: ...`.
 fn describe_parse_error(
     value: &serde_json::Value,
     e: &serde_path_to_error::Error<serde_json::Error>,
 ) -> String {
     let path = e.path().to_string();
     let inner = e.inner();
-    let mut element = String::new();
-    let mut segments = path.split('.');
-    if let Some(first) = segments.next()
-        && let Some((list, rest)) = first.split_once('[')
-        && let Ok(idx) = rest.trim_end_matches(']').parse::<usize>()
-        && let Some(id) = value
-            .get(list)
-            .and_then(|l| l.get(idx))
-            .and_then(|el| el.get("id"))
-            .and_then(|v| v.as_str())
-    {
-        element = format!(" (id \"{}\")", printable(id));
-    }
     if path == "." || path.is_empty() {
         return format!("the network: {inner}");
     }
-    format!("{path}{element}: {inner}")
+    let (first, rest) = match path.split_once('.') {
+        Some((first, rest)) => (first, Some(rest)),
+        None => (path.as_str(), None),
+    };
+    if let Some((list, idx)) = first.split_once('[')
+        && let Ok(idx) = idx.trim_end_matches(']').parse::<usize>()
+    {
+        let element = element_name(value, list, idx);
+        return match rest {
+            Some(field) => format!("{element}: field `{field}`: {inner}"),
+            None => format!("{element}: {inner}"),
+        };
+    }
+    format!("the network: field `{path}`: {inner}")
 }
 
 #[cfg(test)]

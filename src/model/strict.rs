@@ -8,8 +8,9 @@
 //! - [`check_fields`]: refuses unknown fields of the document, of each site, link, demand
 //!   and risk-group entry, with a "did you mean" for near misses ([`osa_distance`]).
 //!   Each of them may also carry `notes` and any field whose name starts with [`USER_PREFIX`].
-//! - [`check_id`], [`check_label`]: the character rules for ids and for the `name`/`unit`
-//!   labels.
+//! - [`check_id`], [`check_label`]: the character rules for ids (no control and no format
+//!   character, [`is_format_char`]) and for the `name`/`unit` labels (no control
+//!   character).
 
 use serde::de::{self, Deserialize, Deserializer, MapAccess, SeqAccess, Visitor};
 use serde_json::Value;
@@ -162,12 +163,13 @@ impl Doc {
     }
 }
 
-/// `text` with every control or otherwise unsafe character escaped (Rust's `escape_debug`),
-/// so a name read from the file can be printed inside a message.
+/// `text` with every control, bidirectional or format character shown as its escape
+/// (`\u{200b}`) and the rest as Rust's `escape_debug`, so a name read from the file can be
+/// printed inside a message and every invisible character in it is seen.
 pub fn printable(text: &str) -> String {
     text.chars()
         .map(|c| {
-            if is_unsafe_char(c) {
+            if is_unsafe_char(c) || is_format_char(c) {
                 c.escape_unicode().to_string()
             } else {
                 c.escape_debug().to_string()
@@ -337,24 +339,95 @@ pub fn check_fields(value: &Value) -> Result<()> {
 
 /// A character that must not reach a terminal from the file: any `char::is_control`
 /// (C0, DEL, C1: ESC, BEL, NUL, the OSC introducer...) and the Unicode bidirectional
-/// formatting characters, which reorder what a terminal shows (Unicode UAX #9).
+/// control characters (the `Bidi_Control` property of the UCD's PropList.txt: U+061C,
+/// U+200E, U+200F, U+202A–U+202E, U+2066–U+2069; from memory), which reorder what a
+/// terminal shows (Unicode UAX #9). The rule for the `name` and `unit` labels.
 pub fn is_unsafe_char(c: char) -> bool {
     c.is_control()
-        || matches!(c, '\u{200E}' | '\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}')
+        || matches!(
+            c,
+            '\u{061C}' | '\u{200E}' | '\u{200F}' | '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}'
+        )
+}
+
+/// The code points of Unicode general category Cf ("Format": soft hyphen, zero-width
+/// space and joiners, the bidirectional marks, embeddings, overrides and isolates, the
+/// byte-order mark, invisible operators, tags...), as inclusive ranges in ascending order.
+///
+/// Source: Unicode 18.0.0, `General_Category=Cf` of the UCD file
+/// `extracted/DerivedGeneralCategory.txt` (170 code points). The ranges were taken from
+/// the tables of the `unicode-properties` crate 0.1.5 (generated from that UCD version,
+/// its `UNICODE_VERSION`), not read from the UCD file itself; the total of 170 matches
+/// that file's count for Cf as we remember it (from memory). The test
+/// `format_characters_match_the_unicode_database` (tests/input_strict.rs) compares every
+/// code point with that crate. Python's `unicodedata` (UCD 14.0.0) agrees except for
+/// U+13439–U+1343F, added in Unicode 15.0.
+pub const FORMAT_RANGES: &[(char, char)] = &[
+    ('\u{00AD}', '\u{00AD}'),
+    ('\u{0600}', '\u{0605}'),
+    ('\u{061C}', '\u{061C}'),
+    ('\u{06DD}', '\u{06DD}'),
+    ('\u{070F}', '\u{070F}'),
+    ('\u{0890}', '\u{0891}'),
+    ('\u{08E2}', '\u{08E2}'),
+    ('\u{180E}', '\u{180E}'),
+    ('\u{200B}', '\u{200F}'),
+    ('\u{202A}', '\u{202E}'),
+    ('\u{2060}', '\u{2064}'),
+    ('\u{2066}', '\u{206F}'),
+    ('\u{FEFF}', '\u{FEFF}'),
+    ('\u{FFF9}', '\u{FFFB}'),
+    ('\u{110BD}', '\u{110BD}'),
+    ('\u{110CD}', '\u{110CD}'),
+    ('\u{13430}', '\u{1343F}'),
+    ('\u{1BCA0}', '\u{1BCA3}'),
+    ('\u{1D173}', '\u{1D17A}'),
+    ('\u{E0001}', '\u{E0001}'),
+    ('\u{E0020}', '\u{E007F}'),
+];
+
+/// Whether `c` is a format character (general category Cf, [`FORMAT_RANGES`]): invisible
+/// in print, so an id holding one looks like another id. Binary search, O(log ranges).
+pub fn is_format_char(c: char) -> bool {
+    FORMAT_RANGES
+        .binary_search_by(|&(lo, hi)| {
+            if hi < c {
+                std::cmp::Ordering::Less
+            } else if lo > c {
+                std::cmp::Ordering::Greater
+            } else {
+                std::cmp::Ordering::Equal
+            }
+        })
+        .is_ok()
 }
 
 /// The separator of `--fail` lists; never part of an id.
 pub const FAIL_SEPARATOR: char = ',';
 
 /// Checks an id named on the command line (site, link, risk group): not empty, no
-/// character from [`is_unsafe_char`], no [`FAIL_SEPARATOR`], no leading or trailing
-/// whitespace. With `named_on_cli` false (demand ids) only the character rule applies.
-/// Linear in the id's length.
+/// control character ([`is_unsafe_char`]), no format character ([`is_format_char`]:
+/// zero-width, bidirectional and other invisible characters, which make an id print like
+/// another one), no [`FAIL_SEPARATOR`], no leading or trailing whitespace. With
+/// `named_on_cli` false (demand ids) only the two character rules apply. Linear in the
+/// id's length.
 pub fn check_id(element: &str, field: &str, id: &str, named_on_cli: bool) -> Result<()> {
     if let Some((pos, c)) = id.chars().enumerate().find(|&(_, c)| is_unsafe_char(c)) {
         return Err(Error::Input(format!(
-            "{element}: field `{field}` value \"{}\" holds the control character U+{:04X} at \
-             character {}; ids are printed in reports and must not carry control characters",
+            "{element}: field `{field}` value \"{}\" holds the {} U+{:04X} at character {}; \
+             ids are printed in reports and must not carry control characters",
+            printable(id),
+            control_kind(c),
+            c as u32,
+            pos + 1
+        )));
+    }
+    if let Some((pos, c)) = id.chars().enumerate().find(|&(_, c)| is_format_char(c)) {
+        return Err(Error::Input(format!(
+            "{element}: field `{field}` value \"{}\" holds the invisible format character \
+             U+{:04X} at character {}; ids must not carry format characters (Unicode \
+             category Cf: zero-width, bidirectional and other invisible characters), which \
+             make one id print like another; remove it",
             printable(id),
             c as u32,
             pos + 1
@@ -385,14 +458,25 @@ pub fn check_id(element: &str, field: &str, id: &str, named_on_cli: bool) -> Res
     Ok(())
 }
 
+/// `control character` (category Cc) or `bidirectional control character`, for messages
+/// about a character of [`is_unsafe_char`].
+fn control_kind(c: char) -> &'static str {
+    if c.is_control() {
+        "control character"
+    } else {
+        "bidirectional control character"
+    }
+}
+
 /// Checks a label printed in reports (`name`, `unit`): no character from
 /// [`is_unsafe_char`]. Linear in its length.
 pub fn check_label(field: &str, text: &str) -> Result<()> {
     match text.chars().enumerate().find(|&(_, c)| is_unsafe_char(c)) {
         Some((pos, c)) => Err(Error::Input(format!(
-            "the network: field `{field}` value \"{}\" holds the control character U+{:04X} at \
-             character {}; labels are printed in reports and must not carry control characters",
+            "the network: field `{field}` value \"{}\" holds the {} U+{:04X} at character {}; \
+             labels are printed in reports and must not carry control characters",
             printable(text),
+            control_kind(c),
             c as u32,
             pos + 1
         ))),
