@@ -59,10 +59,12 @@ pub struct NetworkxArgs {
     /// Write the network here.
     #[arg(long, value_name = "FILE")]
     pub json: PathBuf,
-    /// Capacity of every link (each direction), or the fallback for --capacity-attr.
-    #[arg(long, default_value_t = 100.0, allow_negative_numbers = true)]
-    pub capacity: f64,
-    /// Read each link's capacity from this numeric edge attribute.
+    /// Capacity of every link, each direction (default 100); with --capacity-attr, the
+    /// capacity of the edges that lack the attribute (without it they are refused).
+    #[arg(long, allow_negative_numbers = true)]
+    pub capacity: Option<f64>,
+    /// Read each link's capacity from this edge attribute (a JSON number on every edge;
+    /// an edge without it needs --capacity).
     #[arg(long, value_name = "ATTR")]
     pub capacity_attr: Option<String>,
     /// Put processing at this many sites of highest degree (ties in file order).

@@ -986,7 +986,8 @@ fn read_text(path: &Path) -> Result<String> {
 
 /// `import`: converts, validates the result as any network file is validated, writes it
 /// atomically, and prints its `check` summary.
-fn run_import(from: &cli::ImportFrom, out: &mut dyn Write) -> Result<Outcome> {
+fn run_import(from: &cli::ImportFrom, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
+    let mut fallback = None;
     let (doc, target, inputs) = match from {
         cli::ImportFrom::Networkx(a) => {
             report::file::check_output("--json", &a.json, &[a.file.as_path()])?;
@@ -1007,19 +1008,29 @@ fn run_import(from: &cli::ImportFrom, out: &mut dyn Write) -> Result<Outcome> {
                 demand: a.demand,
                 required_fraction: a.required_fraction,
             };
-            let doc = model::import::from_node_link(&text, &name, &rules)
+            let imported = model::import::from_node_link(&text, &name, &rules)
                 .map_err(|e| prefix(e, &a.file))?;
-            (doc, a.json.clone(), vec![a.file.clone()])
+            if let (Some((n, of)), Some(attr), Some(c)) =
+                (imported.fallback, &a.capacity_attr, a.capacity)
+            {
+                fallback = Some((n, of, attr.clone(), c));
+            }
+            (imported.doc, a.json.clone(), vec![a.file.clone()])
         }
         cli::ImportFrom::Csv(a) => {
             let ins = [a.sites.as_path(), a.links.as_path(), a.demands.as_path()];
             report::file::check_output("--json", &a.json, &ins)?;
-            let doc = model::import::from_csv(
-                &a.name,
-                &read_text(&a.sites)?,
-                &read_text(&a.links)?,
-                &read_text(&a.demands)?,
-            )?;
+            let texts = [
+                read_text(&a.sites)?,
+                read_text(&a.links)?,
+                read_text(&a.demands)?,
+            ];
+            let shown = ins.map(|p| p.display().to_string());
+            let file = |i: usize| model::import::CsvFile {
+                path: &shown[i],
+                text: &texts[i],
+            };
+            let doc = model::import::from_csv(&a.name, file(0), file(1), file(2))?;
             (
                 doc,
                 a.json.clone(),
@@ -1040,6 +1051,11 @@ fn run_import(from: &cli::ImportFrom, out: &mut dyn Write) -> Result<Outcome> {
         other => other,
     })?;
     report::file::write_atomic(&target, |w| report::json::write(w, &doc))?;
+    if let Some((n, of, attr, capacity)) = fallback {
+        note(report::text::note_capacity_fallback(
+            err, n, of, &attr, capacity,
+        ));
+    }
     let cut_off = solve::baseline_cut_off(&net);
     stdout_result(report::text::write_check(out, &net, &cut_off))?;
     Ok(Outcome::Ok)
@@ -1066,7 +1082,7 @@ pub fn run(cli: Cli, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome
             run_audit(&args, out, err)
         }
         Command::Merge(args) => run_merge(&args, out),
-        Command::Import(from) => run_import(&from, out),
+        Command::Import(from) => run_import(&from, out, err),
         Command::Compare(args) => {
             audit::install_interrupt_handler();
             compare::run(&args, out, err)

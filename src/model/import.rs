@@ -18,11 +18,20 @@ use serde_json::{Map, Value, json};
 
 use crate::error::{Error, Result};
 
+/// Capacity of every imported link when neither `--capacity` nor `--capacity-attr` is
+/// given (documented in `--help`).
+pub const DEFAULT_CAPACITY: f64 = 100.0;
+
+/// How many offending edges a message lists before "and N more".
+const LISTED: usize = 5;
+
 /// How an imported topology gets capacities, processing and demands.
 #[derive(Debug, Clone)]
 pub struct Rules {
-    /// Capacity of every link, or the fallback when `capacity_attr` is missing on an edge.
-    pub capacity: f64,
+    /// Capacity of every link (without `capacity_attr`; [`DEFAULT_CAPACITY`] when `None`),
+    /// or, with `capacity_attr`, the capacity of the edges that lack the attribute (`None`:
+    /// such edges are refused).
+    pub capacity: Option<f64>,
     /// A numeric edge attribute to read the capacity from.
     pub capacity_attr: Option<String>,
     /// How many sites get processing: the highest-degree ones (ties in file order).
@@ -61,12 +70,40 @@ fn clean_id(s: &str) -> String {
         .to_string()
 }
 
+/// What [`from_node_link`] made: the network document, and how many links took the
+/// explicit `--capacity` because their edge lacks `--capacity-attr` (for a note).
+#[derive(Debug, Clone)]
+pub struct Imported {
+    /// The network, in the contract's shape.
+    pub doc: Value,
+    /// Links whose capacity is the `--capacity` fallback, and the links in all.
+    pub fallback: Option<(usize, usize)>,
+}
+
+/// `edges[3] (a–b)` for the first [`LISTED`] of `edges`, then `and N more`.
+fn listed(edges: &[String]) -> String {
+    let mut text = edges
+        .iter()
+        .take(LISTED)
+        .cloned()
+        .collect::<Vec<_>>()
+        .join(", ");
+    if edges.len() > LISTED {
+        text.push_str(&format!(" and {} more", edges.len() - LISTED));
+    }
+    text
+}
+
 /// Converts networkx node-link JSON `text` with `rules`. Self-loops are dropped (a link
 /// joins two distinct sites); a directed graph gives one-way links; a node's `pos`
 /// (`[x, y]`) becomes its drawing position; a node's `name` becomes its site id when every
 /// node has a distinct one, else its `id` does. Link ids are `FROM-TO` (with `#N` for
-/// parallel links). O(nodes² + edges) (one demand per ordered pair).
-pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Value> {
+/// parallel links). Nothing is guessed: a file with both `links` and `edges`, a
+/// `directed` that is not a boolean, a `--capacity-attr` that no edge has, or that holds
+/// anything but a JSON number, and (without an explicit `--capacity`) an edge that lacks
+/// it are refused, naming the edges and how many. O(nodes² + edges) (one demand per
+/// ordered pair).
+pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Imported> {
     if !(rules.required_fraction.is_finite() && (0.0..=1.0).contains(&rules.required_fraction)) {
         return Err(Error::Usage(format!(
             "--required-fraction must be between 0 and 1, got {}",
@@ -74,7 +111,7 @@ pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Value> {
         )));
     }
     for (flag, v) in [
-        ("--capacity", rules.capacity),
+        ("--capacity", rules.capacity.unwrap_or(DEFAULT_CAPACITY)),
         ("--processing", rules.processing),
         ("--demand", rules.demand),
     ] {
@@ -90,15 +127,35 @@ pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Value> {
         .get("nodes")
         .and_then(Value::as_array)
         .ok_or_else(|| input("node-link JSON needs a `nodes` array".into()))?;
+    let key = match (doc.get("links"), doc.get("edges")) {
+        (Some(l), Some(e)) => {
+            let count = |v: &Value| {
+                v.as_array()
+                    .map_or(String::new(), |a| format!(" ({})", a.len()))
+            };
+            return Err(input(format!(
+                "node-link JSON has both `links`{} and `edges`{}; networkx writes one of them \
+                 and only one would be read: keep the one that holds the topology",
+                count(l),
+                count(e)
+            )));
+        }
+        (None, Some(_)) => "edges",
+        _ => "links",
+    };
     let edges = doc
-        .get("links")
-        .or_else(|| doc.get("edges"))
+        .get(key)
         .and_then(Value::as_array)
         .ok_or_else(|| input("node-link JSON needs a `links` (or `edges`) array".into()))?;
-    let directed = doc
-        .get("directed")
-        .and_then(Value::as_bool)
-        .unwrap_or(false);
+    let directed = match doc.get("directed") {
+        None => false,
+        Some(Value::Bool(b)) => *b,
+        Some(other) => {
+            return Err(input(format!(
+                "node-link JSON: `directed` must be true or false, got {other}"
+            )));
+        }
+    };
     let mut ids = Vec::with_capacity(nodes.len());
     let mut index = BTreeMap::new();
     let mut pos = Vec::with_capacity(nodes.len());
@@ -138,28 +195,59 @@ pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Value> {
     let mut degree = vec![0usize; nodes.len()];
     let mut links = Vec::new();
     let mut seen: BTreeMap<(usize, usize), usize> = BTreeMap::new();
+    // With --capacity-attr: the edges that lack it and those whose value is no number.
+    let mut missing: Vec<String> = Vec::new();
+    let mut not_number: Vec<String> = Vec::new();
+    let mut attributes: std::collections::BTreeSet<&str> = std::collections::BTreeSet::new();
     for (k, e) in edges.iter().enumerate() {
-        let end = |key: &str| -> Result<usize> {
+        let end = |end_key: &str| -> Result<(usize, String)> {
             let raw = id_text(
-                e.get(key)
-                    .ok_or_else(|| input(format!("edges[{k}]: no `{key}`")))?,
-                &format!("edges[{k}].{key}"),
+                e.get(end_key)
+                    .ok_or_else(|| input(format!("{key}[{k}]: no `{end_key}`")))?,
+                &format!("{key}[{k}].{end_key}"),
             )?;
-            index
-                .get(&raw)
-                .copied()
-                .ok_or_else(|| input(format!("edges[{k}]: `{key}` names unknown node {raw:?}")))
+            match index.get(&raw) {
+                Some(&i) => Ok((i, raw)),
+                None => Err(input(format!(
+                    "{key}[{k}]: `{end_key}` names unknown node {raw:?}"
+                ))),
+            }
         };
-        let (a, b) = (end("source")?, end("target")?);
+        let ((a, raw_a), (b, raw_b)) = (end("source")?, end("target")?);
         if a == b {
             continue;
         }
+        // The edge as the file names it (source and target node ids).
+        let shown = || format!("{key}[{k}] ({raw_a}–{raw_b})");
         let capacity = match &rules.capacity_attr {
-            Some(attr) => e
-                .get(attr)
-                .and_then(Value::as_f64)
-                .unwrap_or(rules.capacity),
-            None => rules.capacity,
+            Some(attr) => {
+                if let Some(obj) = e.as_object() {
+                    attributes.extend(
+                        obj.keys()
+                            .map(String::as_str)
+                            .filter(|k| !matches!(*k, "source" | "target" | "key")),
+                    );
+                }
+                match e.get(attr) {
+                    Some(v) if v.is_number() && v.as_f64().is_some() => {
+                        v.as_f64().unwrap_or_default()
+                    }
+                    Some(other) => {
+                        let mut text = other.to_string();
+                        if text.chars().count() > 40 {
+                            text = format!("{}…", text.chars().take(40).collect::<String>());
+                        }
+                        not_number.push(format!("{} {text}", shown()));
+                        continue;
+                    }
+                    None => {
+                        missing.push(shown());
+                        // Without an explicit --capacity these edges are refused below.
+                        rules.capacity.unwrap_or_default()
+                    }
+                }
+            }
+            None => rules.capacity.unwrap_or(DEFAULT_CAPACITY),
         };
         degree[a] += 1;
         degree[b] += 1;
@@ -174,6 +262,39 @@ pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Value> {
             json!({"id": id, "from": ids[a], "to": ids[b], "capacity": capacity,
                           "one_way": directed}),
         );
+    }
+    let mut fallback = None;
+    if let Some(attr) = &rules.capacity_attr {
+        let total = links.len() + not_number.len();
+        if !not_number.is_empty() {
+            return Err(input(format!(
+                "--capacity-attr {attr:?}: the value is not a JSON number on {} of {total} \
+                 {key}: {}; write capacities as plain numbers (in the network's traffic unit)",
+                not_number.len(),
+                listed(&not_number)
+            )));
+        }
+        if total > 0 && missing.len() == total {
+            let known = attributes.iter().copied().collect::<Vec<_>>().join(", ");
+            return Err(input(format!(
+                "--capacity-attr {attr:?}: no edge has this attribute ({total} {key}); the \
+                 edges' attributes are: {}",
+                if known.is_empty() { "none" } else { &known }
+            )));
+        }
+        if !missing.is_empty() {
+            match rules.capacity {
+                Some(_) => fallback = Some((missing.len(), total)),
+                None => {
+                    return Err(input(format!(
+                        "--capacity-attr {attr:?}: the attribute is missing on {} of {total} \
+                         {key}: {}; give --capacity C to use C for them",
+                        missing.len(),
+                        listed(&missing)
+                    )));
+                }
+            }
+        }
     }
     let mut by_degree: Vec<usize> = (0..nodes.len()).collect();
     by_degree.sort_by(|&x, &y| degree[y].cmp(&degree[x]).then(x.cmp(&y)));
@@ -210,7 +331,10 @@ pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Value> {
             }
         }
     }
-    Ok(json!({"name": name, "sites": sites, "links": links, "demands": demands}))
+    Ok(Imported {
+        doc: json!({"name": name, "sites": sites, "links": links, "demands": demands}),
+        fallback,
+    })
 }
 
 /// Splits one CSV line into fields (RFC 4180: commas, fields in double quotes with `""`
@@ -245,11 +369,24 @@ enum Kind {
     List,
 }
 
+/// One CSV file to import: its path as shown in messages, and its text.
+#[derive(Debug, Clone, Copy)]
+pub struct CsvFile<'a> {
+    /// The file's path, as messages name it.
+    pub path: &'a str,
+    /// The file's contents.
+    pub text: &'a str,
+}
+
 /// Reads one CSV file (`what`: `sites`, `links`, `demands`) into JSON objects. Blank
 /// lines and lines starting with `#` are skipped; empty cells are left out (the format's
-/// default applies). O(size).
-fn csv_objects(text: &str, what: &str, columns: &[(&str, Kind)]) -> Result<Vec<Value>> {
-    let mut lines = text
+/// default applies). A number cell must hold a finite number: `NaN`, `inf` and values
+/// beyond f64 (`1e999`) are refused, naming the file, the line, the data row, the column
+/// and the cell (serde_json would write them as `null`). O(size).
+fn csv_objects(file: CsvFile, what: &str, columns: &[(&str, Kind)]) -> Result<Vec<Value>> {
+    let path = file.path;
+    let mut lines = file
+        .text
         .trim_start_matches('\u{feff}')
         .lines()
         .enumerate()
@@ -268,19 +405,19 @@ fn csv_objects(text: &str, what: &str, columns: &[(&str, Kind)]) -> Result<Vec<V
             None => {
                 let known: Vec<&str> = columns.iter().map(|c| c.0).collect();
                 return Err(input(format!(
-                    "{what} CSV: unknown column {h:?} (columns: {})",
+                    "{path} ({what} CSV): unknown column {h:?} (columns: {})",
                     known.join(", ")
                 )));
             }
         }
     }
     let mut out = Vec::new();
-    for (n, line) in lines {
+    for (row, (n, line)) in lines.enumerate() {
+        let at = format!("{path} ({what} CSV) line {}, row {}", n + 1, row + 1);
         let cells = csv_fields(line);
         if cells.len() != header.len() {
             return Err(input(format!(
-                "{what} CSV line {}: {} fields, the header has {}",
-                n + 1,
+                "{at}: {} fields, the header has {}",
                 cells.len(),
                 header.len()
             )));
@@ -293,17 +430,27 @@ fn csv_objects(text: &str, what: &str, columns: &[(&str, Kind)]) -> Result<Vec<V
             }
             let v = match k {
                 Kind::Text => json!(cell),
-                Kind::Number => json!(cell.parse::<f64>().map_err(|_| input(format!(
-                    "{what} CSV line {}: column {h:?} must be a number, got {cell:?}",
-                    n + 1
-                )))?),
+                Kind::Number => match cell.parse::<f64>() {
+                    Ok(x) if x.is_finite() => json!(x),
+                    Ok(_) => {
+                        return Err(input(format!(
+                            "{at}, column {h:?}: {cell:?} is not a finite number (NaN, \
+                             infinities and values beyond ±1.8e308 are refused; leave the cell \
+                             empty for the field's default)"
+                        )));
+                    }
+                    Err(_) => {
+                        return Err(input(format!(
+                            "{at}, column {h:?}: must be a number, got {cell:?}"
+                        )));
+                    }
+                },
                 Kind::Bool => match cell.to_ascii_lowercase().as_str() {
                     "true" | "yes" | "1" => json!(true),
                     "false" | "no" | "0" => json!(false),
                     _ => {
                         return Err(input(format!(
-                            "{what} CSV line {}: column {h:?} must be true or false, got {cell:?}",
-                            n + 1
+                            "{at}, column {h:?}: must be true or false, got {cell:?}"
                         )));
                     }
                 },
@@ -323,7 +470,7 @@ fn csv_objects(text: &str, what: &str, columns: &[(&str, Kind)]) -> Result<Vec<V
 
 /// Converts three CSV files (sites, links, demands; header rows with the JSON field names;
 /// `risk_groups` as a `;`-separated list) into the network format. O(total size).
-pub fn from_csv(name: &str, sites: &str, links: &str, demands: &str) -> Result<Value> {
+pub fn from_csv(name: &str, sites: CsvFile, links: CsvFile, demands: CsvFile) -> Result<Value> {
     use Kind::*;
     let sites = csv_objects(
         sites,

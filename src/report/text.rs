@@ -1262,6 +1262,23 @@ fn compare_lines(
     w.write_all(caution().as_bytes())
 }
 
+/// A note on stderr: `import networkx --capacity-attr ATTR --capacity C` gave `n` of `of`
+/// links the capacity `C` because their edge has no `ATTR`.
+pub fn note_capacity_fallback(
+    w: &mut dyn Write,
+    n: usize,
+    of: usize,
+    attr: &str,
+    capacity: f64,
+) -> io::Result<()> {
+    writeln!(
+        w,
+        "redoubt: note: {n} of {of} links have no `{}` and take --capacity {}",
+        printable(attr),
+        num(capacity)
+    )
+}
+
 /// A note on stderr: `plan --apply` wrote the network with the purchase added.
 pub fn note_applied(w: &mut dyn Write, path: &std::path::Path, add: &[f64]) -> io::Result<()> {
     let sites = add.iter().filter(|a| **a > 0.0).count();
