@@ -509,6 +509,9 @@ fn a_graph_with_both_links_and_edges_is_refused() {
 // Ids with format characters
 // ---------------------------------------------------------------------------------------
 
+/// Puts an id into a document, where a case needs it.
+type Put = Box<dyn Fn(&mut Value, &str)>;
+
 /// Source: Unicode general category Cf (U+200B ZERO WIDTH SPACE, U+061C ARABIC LETTER
 /// MARK, U+202E RIGHT-TO-LEFT OVERRIDE, U+FEFF ZERO WIDTH NO-BREAK SPACE, U+2060 WORD
 /// JOINER, U+00AD SOFT HYPHEN, U+E0041 TAG LATIN CAPITAL LETTER A; checked against the
@@ -519,7 +522,7 @@ fn a_graph_with_both_links_and_edges_is_refused() {
 #[test]
 fn ids_with_format_characters_are_refused_with_the_code_point() {
     let with = |c: char| format!("har{c}row");
-    let cases: Vec<(char, &str, Box<dyn Fn(&mut Value, &str)>, &str, &str)> = vec![
+    let cases: Vec<(char, &str, Put, &str, &str)> = vec![
         (
             '\u{200B}',
             "U+200B",
@@ -581,8 +584,7 @@ fn ids_with_format_characters_are_refused_with_the_code_point() {
         let run = check(&doc);
         let m = assert_refused(code, &run, &[element, field, code]);
         assert!(
-            !m.chars()
-                .any(|ch| redoubt::model::strict::is_format_char(ch)),
+            !m.chars().any(redoubt::model::strict::is_format_char),
             "{code}: a format character reached the message: {m:?}"
         );
     }
