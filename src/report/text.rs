@@ -6,7 +6,7 @@ use comfy_table::Cell;
 
 use std::io::{self, Write};
 
-use super::{CAUTION, num, percent, small};
+use super::{CAUTION, given, num, percent, shift_point, small};
 use crate::audit::Audit;
 use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
@@ -997,7 +997,7 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
             flag,
             what,
             format!("{} {u}", num(g.value)),
-            format!("{} {u}", num(g.limit)),
+            format!("{} {u}", given(g.limit)),
             if g.passed { "within" } else { "exceeds" },
         )
     };
@@ -1008,7 +1008,7 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
             "--min-served-fraction",
             "served fraction",
             format!("{}%", num(100.0 * g.value)),
-            format!("{}%", num(100.0 * g.limit)),
+            format!("{}%", shift_point(g.limit, 2)),
             if g.passed { "meets" } else { "is below" },
         ),
     };
