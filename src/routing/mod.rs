@@ -49,8 +49,6 @@ impl Mode {
 
 /// Relative tolerance above capacity before a resource counts as overloaded.
 pub const OVERLOAD_TOL: f64 = 1e-9;
-/// Loads below this (absolute) count as no load when deciding an infinite utilisation.
-pub const LOAD_EPS: f64 = 1e-12;
 
 /// Per-unit load on arcs: `(arc index, fraction)` pairs sorted by arc.
 pub type ArcLoad = Vec<(usize, f64)>;
@@ -164,8 +162,11 @@ pub struct Offered {
     pub overloaded_sites: Vec<SiteIdx>,
 }
 
+/// Load over capacity; 0 without load, `INFINITY` for a load on capacity 0. Offered loads
+/// are sums of nonnegative shares (no cancellation), so any positive load is real, however
+/// small (a file in units of 1e-13 has utilisations too).
 fn utilisation(load: f64, cap: f64) -> f64 {
-    if load <= LOAD_EPS {
+    if load <= 0.0 {
         0.0
     } else if cap <= 0.0 {
         f64::INFINITY
@@ -175,7 +176,7 @@ fn utilisation(load: f64, cap: f64) -> f64 {
 }
 
 fn overloaded(load: f64, cap: f64) -> bool {
-    load > LOAD_EPS && load > cap * (1.0 + OVERLOAD_TOL)
+    load > 0.0 && load > cap * (1.0 + OVERLOAD_TOL)
 }
 
 /// The offered load of `routes` (required, nearest shares). O(Σ nearest routes' arcs).

@@ -846,6 +846,40 @@ mod tests {
         assert!(e2.certified_gap() < 1e-6, "{e2:?}");
     }
 
+    /// Hand-worked: the reported value of a proven interval never exceeds what is offered,
+    /// and is the offered amount itself whenever the interval reaches it.
+    #[test]
+    fn reported_values_stay_within_the_offer() {
+        assert_eq!(reported_in(149.99999999, 150.00000002, 150.0), 150.0);
+        assert_eq!(reported_in(150.00000001, 150.00000002, 150.0), 150.0);
+        assert_eq!(reported_in(104.999999979, 105.00000001, 150.0), 105.0);
+        assert_eq!(reported_in(89.99999, 90.00001, 150.0), 90.0);
+        let odd = 0.1 + 0.2 + 149.7;
+        assert!(reported_in(odd - 1e-9, odd + 1e-9, odd) <= odd);
+        // Crossing bounds above the offer (solver noise) still report the offer.
+        assert_eq!(reported_in(150.2, 150.1, 150.0), 150.0);
+    }
+
+    /// Hand-worked: 7e11 + 2.5e-6 − 7e11 is 0 in floating point; summed apart it is not.
+    #[test]
+    fn a_small_cut_off_part_is_not_lost() {
+        let surviving = 7e11 + 2.5e-6;
+        assert_eq!(surviving - 7e11, 0.0);
+        assert_eq!(shortfall_of(2.5e-6, 7e11, 7e11), 2.5e-6);
+        assert_eq!(shortfall_of(0.0, 20.0, 8.0), 12.0);
+    }
+
+    /// Hand-worked: demands from the same origin share its scale, others keep their own.
+    #[test]
+    fn flow_scales_are_per_origin() {
+        let n = net(r#"{"sites":[{"id":"a","processing":10},{"id":"b"},{"id":"c"}],
+            "links":[{"id":"ab","from":"a","to":"b","capacity":1}],
+            "demands":[{"from":"a","to":"b","volume":7},{"from":"a","to":"c","volume":0.5},
+                       {"from":"b","to":"a","volume":2}]}"#);
+        assert_eq!(flow_scales(&n, &[true, true, true]), vec![7.5, 7.5, 2.0]);
+        assert_eq!(flow_scales(&n, &[true, false, true]), vec![7.0, 0.5, 2.0]);
+    }
+
     #[test]
     fn shadow_price_of_binding_processing() {
         let n = net(r#"{"sites":[{"id":"a","processing":3},{"id":"b"}],
