@@ -25,7 +25,12 @@ fn audit_json(net: &TempPath, args: &[&str]) -> (common::Run, Value) {
     let mut all = args.to_vec();
     all.extend_from_slice(&["--json", out.path()]);
     let run = audit(net, &all);
-    assert!(run.code == 0 || run.code == 1, "{}\n{}", run.stdout, run.stderr);
+    assert!(
+        run.code == 0 || run.code == 1,
+        "{}\n{}",
+        run.stdout,
+        run.stderr
+    );
     (run, out.read_json())
 }
 
@@ -83,7 +88,11 @@ const GATE_NET: &str = r#"{"sites":[{"id":"a","processing":100},{"id":"b"}],
 fn gate_limits_are_compared_exactly_as_given() {
     let net = TempPath::with_text("gate", GATE_NET);
     let cases: [(&[&str], i32, &str); 10] = [
-        (&["--max-shortfall", "11.9999"], 1, "exceeds the limit 11.9999 units"),
+        (
+            &["--max-shortfall", "11.9999"],
+            1,
+            "exceeds the limit 11.9999 units",
+        ),
         (&["--max-shortfall", "12"], 0, "within the limit 12 units"),
         (
             &["--min-served-fraction", "40.0001%"],
@@ -109,8 +118,16 @@ fn gate_limits_are_compared_exactly_as_given() {
             "exceeds the limit 11.9999 units",
         ),
         // A limit with more digits than the screen shows is still printed as given.
-        (&["--max-shortfall", "12.00001"], 0, "within the limit 12.00001 units"),
-        (&["--max-shortfall", "0.0000125"], 1, "exceeds the limit 12.5e-6 units"),
+        (
+            &["--max-shortfall", "12.00001"],
+            0,
+            "within the limit 12.00001 units",
+        ),
+        (
+            &["--max-shortfall", "0.0000125"],
+            1,
+            "exceeds the limit 12.5e-6 units",
+        ),
     ];
     for (args, code, part) in cases {
         let mut all = vec!["--depth", "0"];
@@ -119,7 +136,11 @@ fn gate_limits_are_compared_exactly_as_given() {
         assert_eq!(run.code, code, "{args:?}:\n{}", run.stdout);
         let lines = gate_lines(&run.stdout);
         assert_eq!(lines.len(), 1, "{args:?}:\n{}", run.stdout);
-        assert!(lines[0].contains(part), "{args:?}: {part:?} in {}", lines[0]);
+        assert!(
+            lines[0].contains(part),
+            "{args:?}: {part:?} in {}",
+            lines[0]
+        );
         assert!(lines[0].contains("(baseline)"), "{}", lines[0]);
     }
     // Stranded: failing site b strands 20 (hand computation above).
@@ -168,8 +189,16 @@ fn served_and_throughput_never_exceed_what_is_offered() {
     for engine in ["walks", "edge"] {
         let (_, doc) = audit_json(&net, &["--engine", engine, "--kinds", "links,sites"]);
         let base = scenario(&doc, &[]);
-        assert_eq!(f(&base["throughput"]), 150.0, "{engine}: baseline throughput");
-        assert_eq!(f(&base["served_required"]), 90.0, "{engine}: baseline served");
+        assert_eq!(
+            f(&base["throughput"]),
+            150.0,
+            "{engine}: baseline throughput"
+        );
+        assert_eq!(
+            f(&base["served_required"]),
+            90.0,
+            "{engine}: baseline served"
+        );
         for (failed, throughput) in [("link:ad", 120.0), ("link:bd", 90.0), ("site:b", 90.0)] {
             let sc = scenario(&doc, &[failed]);
             assert_eq!(f(&sc["throughput"]), throughput, "{engine}: {failed}");
@@ -198,7 +227,11 @@ fn served_and_throughput_never_exceed_what_is_offered() {
         }
         let base = scenario(&doc, &[]);
         let want = if routing == "best" { 150.0 } else { 30.0 };
-        assert_eq!(f(&base["throughput"]), want, "{routing}: baseline throughput");
+        assert_eq!(
+            f(&base["throughput"]),
+            want,
+            "{routing}: baseline throughput"
+        );
     }
 }
 

@@ -175,9 +175,7 @@ pub fn file_num(x: f64) -> f64 {
     } else if x.abs() >= 1e11 {
         x.round()
     } else {
-        format!("{:.*e}", FILE_DIGITS - 1, x)
-            .parse()
-            .unwrap_or(x)
+        format!("{:.*e}", FILE_DIGITS - 1, x).parse().unwrap_or(x)
     };
     // `-0` prints as `0`.
     if r == 0.0 { 0.0 } else { r }
@@ -407,7 +405,11 @@ mod tests {
         assert_eq!(ratio_percent(0.0), "0.0%");
         assert_eq!(ratio_percent(f64::INFINITY), "inf");
         assert_eq!(ratio_percent(1e12), "100e12%");
-        assert!(ratio_percent(f64::MAX).len() <= 20, "{}", ratio_percent(f64::MAX));
+        assert!(
+            ratio_percent(f64::MAX).len() <= 20,
+            "{}",
+            ratio_percent(f64::MAX)
+        );
     }
 
     /// Common practice, no source: moving a decimal point by hand.

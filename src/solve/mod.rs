@@ -253,9 +253,9 @@ pub const NOISE: f64 = 1e-9;
 
 /// Snaps `x` to `target` when within [`TOL`] relative to `scale`; otherwise the plainest
 /// number within [`NOISE`]·`scale` of `x`, so solver noise does not show in large units
-/// (bit/s) and equal results print equal. `scale` is the amount at stake for `x` (a
-/// demand's own required part for its flow), never a larger total: a 2.5e-6 demand's
-/// shortfall is not noise beside a 7e11 one.
+/// (bit/s) and equal results print equal. `scale` is the amount at stake for `x` (for a
+/// demand's flow, its origin's servable demand: [`flow_scales`]), never a scenario or file
+/// total.
 fn snap(x: f64, target: f64, scale: f64) -> f64 {
     if scale.is_nan() || scale <= 0.0 {
         return if x.abs() < 1e-12 { target } else { x };
@@ -872,10 +872,12 @@ mod tests {
     /// Hand-worked: demands from the same origin share its scale, others keep their own.
     #[test]
     fn flow_scales_are_per_origin() {
-        let n = net(r#"{"sites":[{"id":"a","processing":10},{"id":"b"},{"id":"c"}],
+        let n = net(
+            r#"{"sites":[{"id":"a","processing":10},{"id":"b"},{"id":"c"}],
             "links":[{"id":"ab","from":"a","to":"b","capacity":1}],
             "demands":[{"from":"a","to":"b","volume":7},{"from":"a","to":"c","volume":0.5},
-                       {"from":"b","to":"a","volume":2}]}"#);
+                       {"from":"b","to":"a","volume":2}]}"#,
+        );
         assert_eq!(flow_scales(&n, &[true, true, true]), vec![7.5, 7.5, 2.0]);
         assert_eq!(flow_scales(&n, &[true, false, true]), vec![7.0, 0.5, 2.0]);
     }
