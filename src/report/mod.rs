@@ -20,7 +20,8 @@ traffic; the capacities in the file; one processing step per unit); it does not 
 operator's own engineering review, change procedures and local rules.";
 
 /// A probability for files: 15 significant digits (small probabilities would vanish
-/// under [`round9`]), so the last digits of summation noise do not show. O(1).
+/// under a fixed number of decimals), so the last digits of summation noise do not show.
+/// O(1).
 pub fn prob(x: f64) -> f64 {
     if x == 0.0 || !x.is_finite() {
         return x;

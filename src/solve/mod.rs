@@ -319,7 +319,7 @@ pub fn shortfall_of(cut_off: f64, servable: f64, served: f64) -> f64 {
     cut_off + (servable - served).max(0.0)
 }
 
-/// Per demand, the amount its flow is judged against when it is snapped ([`snap`]): the
+/// Per demand, the amount its flow is judged against when it is snapped (`snap`): the
 /// required demand of the servable demands (`servable[d]`) that share its origin, which is
 /// the LP block it is solved in (flows are scaled and repaired per origin, so that is the
 /// precision a flow has); a demand that is not servable keeps its own required part.
