@@ -1,13 +1,16 @@
 //! Gates: pass/fail limits on an audit's worst scenario, for scripts and change reviews.
 //!
-//! By default a gate compares the worst value *as printed* ([`crate::report::displayed`]):
-//! a shortfall printed as `14` passes `--max-shortfall 14` even when the solver's value is
-//! 14.000000021. With `--gate-tolerance T` the raw value is compared with the limit
-//! loosened by `T` instead.
+//! By default a gate compares the worst value *as printed* ([`crate::report::displayed`])
+//! with the limit *exactly as given*: a shortfall printed as `14` passes `--max-shortfall
+//! 14` even when the solver's value is 14.000000021, and a shortfall printed as `12` fails
+//! `--max-shortfall 11.9999` (the limit is never rounded). A served fraction is compared
+//! as its printed percentage (`95.5%` is the fraction 0.955, exactly) with the limit given.
+//! With `--gate-tolerance T` the raw value is compared with the limit loosened by `T`
+//! instead.
 
 use crate::audit::Audit;
 use crate::error::{Error, Result};
-use crate::report::displayed;
+use crate::report::{displayed, num, shift_text};
 
 /// What a gate limits.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -65,7 +68,15 @@ pub fn parse_fraction(text: &str) -> Result<f64> {
         None => (t, 1.0),
     };
     let x: f64 = number.parse().map_err(|_| bad())?;
-    let f = x / scale;
+    // A percentage's decimal point is moved in the text, so `33.3%` is the fraction 0.333
+    // exactly as written (dividing the parsed 33.3 by 100 would round twice).
+    let f = if scale == 1.0 {
+        x
+    } else {
+        shift_text(number, -2)
+            .and_then(|t| t.parse().ok())
+            .unwrap_or(x / scale)
+    };
     if f.is_finite() && (0.0..=1.0).contains(&f) {
         Ok(f)
     } else {
@@ -73,10 +84,21 @@ pub fn parse_fraction(text: &str) -> Result<f64> {
     }
 }
 
+/// The fraction a reader sees for `f` in a report: its percentage as [`num`] prints it,
+/// with the decimal point moved back by two places in the text (so `95.5%` is exactly the
+/// nearest double to 0.955). O(1).
+pub fn displayed_fraction(f: f64) -> f64 {
+    let printed = num(100.0 * f);
+    shift_text(&printed, -2)
+        .and_then(|t| t.parse().ok())
+        .unwrap_or_else(|| displayed(100.0 * f) / 100.0)
+}
+
 /// Evaluates each gate on `audit`. O(gates · scenarios). The worst scenario is the first
 /// in list order whose value, as printed, is worst. A maximum gate fails when the
 /// worst value exceeds its limit, the fraction gate when the worst fraction is below it;
-/// compared as printed (fractions as printed percentages) unless `tolerance` is given.
+/// unless `tolerance` is given, the worst value is compared as printed (a fraction as its
+/// printed percentage, [`displayed_fraction`]) with the limit exactly as given.
 pub fn check(audit: &Audit, gates: &[Gate], tolerance: Option<f64>) -> Vec<GateResult> {
     gates
         .iter()
@@ -115,8 +137,8 @@ pub fn check(audit: &Audit, gates: &[Gate], tolerance: Option<f64>) -> Vec<GateR
             let passed = match (tolerance, minimum) {
                 (Some(t), false) => value <= g.limit + t,
                 (Some(t), true) => value >= g.limit - t,
-                (None, false) => displayed(value) <= displayed(g.limit),
-                (None, true) => displayed(100.0 * value) >= displayed(100.0 * g.limit),
+                (None, false) => displayed(value) <= g.limit,
+                (None, true) => displayed_fraction(value) >= g.limit,
             };
             GateResult {
                 kind: g.kind,
@@ -140,8 +162,23 @@ mod tests {
         assert_eq!(parse_fraction("95%").unwrap(), 0.95);
         assert_eq!(parse_fraction("100%").unwrap(), 1.0);
         assert_eq!(parse_fraction("0").unwrap(), 0.0);
+        // Moved in the text: exactly the nearest double to the fraction written.
+        assert_eq!(parse_fraction("33.3%").unwrap(), 0.333);
+        assert_eq!(parse_fraction("7%").unwrap(), 0.07);
+        assert_eq!(parse_fraction("99.9999%").unwrap(), 0.999999);
         for bad in ["-0.1", "1.5", "95", "abc", "nan", "101%", ""] {
             assert!(parse_fraction(bad).is_err(), "{bad}");
         }
+    }
+
+    /// Hand-worked: a printed percentage read back as a fraction, exactly.
+    #[test]
+    fn printed_fractions() {
+        assert_eq!(displayed_fraction(0.955), 0.955);
+        assert_eq!(displayed_fraction(0.07), 0.07);
+        // 0.9999999 prints as 100%: the reader sees the whole.
+        assert_eq!(displayed_fraction(0.9999999), 1.0);
+        // 0.12345678 prints as 12.346%.
+        assert_eq!(displayed_fraction(0.12345678), 0.12346);
     }
 }

@@ -16,7 +16,7 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 use serde_json::Value;
 
 /// Absolute tolerance on reported amounts (the values checked here are all below 1000, and
-/// the product rounds its JSON numbers to 9 decimals).
+/// the product writes JSON numbers with 12 significant digits).
 const TOL: f64 = 1e-6;
 
 // ---------------------------------------------------------------------------------------
@@ -904,7 +904,7 @@ fn processing_bound_serves_total_processing() {
 /// Source: hand computation (common practice, no source): one link a→b and processing at a,
 /// all of size 1e300 (finite, so valid per the contract), serve 1e300; the brief's JSON
 /// contract has `served_required` and `throughput` as numbers. Known bug, see the report:
-/// `report::round9` multiplies by 1e9 and overflows to infinity above ~1.8e299, which
+/// the former 9-decimal rounding multiplied by 1e9 and overflowed to infinity above ~1.8e299, which
 /// serde_json writes as `null`.
 #[test]
 

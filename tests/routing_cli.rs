@@ -9,7 +9,8 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 
 use serde_json::{Value, json};
 
-/// Absolute tolerance on reported amounts (the product rounds JSON numbers to 9 decimals).
+/// Absolute tolerance on reported amounts (the product writes JSON numbers with 12
+/// significant digits).
 const TOL: f64 = 1e-6;
 
 struct Run {

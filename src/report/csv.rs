@@ -3,13 +3,13 @@
 //! Layout: a first line `# ` + [`super::CAUTION`] (skip it as a comment line), a header
 //! row, then one row per scenario in the order of the JSON document's `scenarios`. The
 //! `failed` column is the scenario's elements joined with `,` (a `--fail` list; empty for
-//! the baseline). Numbers are the JSON document's (rounded with [`super::round9`]), so the
+//! the baseline). Numbers are the JSON document's (rounded with [`super::file_num`]), so the
 //! two files agree exactly. Fields are quoted as RFC 4180 asks (a comma, a quote or a line
 //! break inside; quotes doubled).
 
 use std::io::{self, Write};
 
-use super::{CAUTION, prob, round9};
+use super::{CAUTION, file_num, prob};
 use crate::audit::Audit;
 use crate::expand::Closing;
 use crate::fold::Folding;
@@ -25,9 +25,10 @@ pub fn field(text: &str) -> String {
     }
 }
 
-/// A number as the JSON file holds it: rounded to 9 decimals, shortest round-trip digits.
+/// A number as the JSON file holds it: [`file_num`] (12 significant digits), shortest
+/// round-trip digits in plain decimal form.
 fn number(x: f64) -> String {
-    format!("{}", round9(x))
+    format!("{}", file_num(x))
 }
 
 fn failed_list(s: &Scenario) -> String {

@@ -5,7 +5,7 @@
 use std::fmt::Write as _;
 use std::io::{self, Write};
 
-use super::{CAUTION, num, percent};
+use super::{CAUTION, file_diff, num, percent};
 use crate::audit::Audit;
 use crate::gate::GateResult;
 use crate::model::Network;
@@ -158,7 +158,7 @@ impl Report<'_> {
                     num(e.shortfall),
                     percent(e.shortfall, e.surviving_required),
                     num(e.stranded),
-                    num((self.baseline.throughput - e.throughput).max(0.0)),
+                    num(file_diff(self.baseline.throughput, e.throughput).max(0.0)),
                     super::text::main_bottleneck(self.net, e),
                 ]
             })

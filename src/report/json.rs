@@ -1,13 +1,13 @@
 //! The `--json` files. Field names of the contract (`scenarios[].failed`,
 //! `served_required`, `shortfall`, `stranded`, `throughput`) never change; everything else
-//! is added for users. Numbers are rounded with [`super::round9`].
+//! is added for users. Numbers are rounded with [`super::file_num`].
 
 use std::collections::BTreeMap;
 use std::io::{self, Write};
 
 use serde::Serialize;
 
-use super::{CAUTION, prob, round9};
+use super::{CAUTION, file_diff, file_num, prob};
 use crate::audit::Audit;
 use crate::model::Network;
 use crate::rank;
@@ -56,7 +56,7 @@ pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJ
                 GateKind::MinServedFraction => "min_served_fraction",
             },
             limit: g.limit,
-            worst: round9(g.value),
+            worst: file_num(g.value),
             worst_scenario: g.scenario.map(|i| audit.scenarios[i].failed.clone()),
             passed: g.passed,
         })
@@ -155,7 +155,7 @@ pub fn attach_risk(doc: &mut AuditJson<'_>, net: &Network, audit: &Audit, r: &cr
             .map(|&i| LikelyJson {
                 failed: audit.scenarios[i].failed.clone(),
                 probability: prob(r.probability[i]),
-                shortfall: round9(audit.eval(i).shortfall),
+                shortfall: file_num(audit.eval(i).shortfall),
             })
             .collect(),
         assumption: crate::risk::ASSUMPTION,
@@ -179,8 +179,8 @@ impl VerificationJson {
     pub fn of(v: &crate::solve::Verification) -> VerificationJson {
         VerificationJson {
             status: if v.proven { "proven" } else { "unproven" },
-            lower_bound: round9(v.lower),
-            upper_bound: round9(v.upper),
+            lower_bound: file_num(v.lower),
+            upper_bound: file_num(v.upper),
             residual: v.residual,
             backend: v.backend.clone(),
             attempts: v.attempts,
@@ -228,16 +228,16 @@ pub fn scenario_json(
 ) -> ScenarioJson {
     ScenarioJson {
         failed: failed.to_vec(),
-        served_required: round9(e.served_required),
-        shortfall: round9(e.shortfall),
-        stranded: round9(e.stranded),
-        throughput: round9(e.throughput),
-        required: round9(e.surviving_required),
-        stranded_volume: round9(e.stranded_volume),
-        throughput_loss: round9((baseline.throughput - e.throughput).max(0.0)),
-        shortfall_beyond_baseline: round9((e.shortfall - baseline.shortfall).max(0.0)),
+        served_required: file_num(e.served_required),
+        shortfall: file_num(e.shortfall),
+        stranded: file_num(e.stranded),
+        throughput: file_num(e.throughput),
+        required: file_num(e.surviving_required),
+        stranded_volume: file_num(e.stranded_volume),
+        throughput_loss: file_diff(baseline.throughput, e.throughput).max(0.0),
+        shortfall_beyond_baseline: file_diff(e.shortfall, baseline.shortfall).max(0.0),
         rank,
-        upper_bound: round9(e.upper_bound),
+        upper_bound: file_num(e.upper_bound),
         certified_gap: e.certified_gap(),
         max_violation: e.max_violation,
         stranded_demands: e
@@ -254,9 +254,9 @@ pub fn scenario_json(
                 demand: dem.label.clone(),
                 from: net.sites[dem.from].id.clone(),
                 to: net.sites[dem.to].id.clone(),
-                required: round9(dem.required),
-                served: round9(e.demand_flow[d]),
-                shortfall: round9(e.demand_shortfall[d]),
+                required: file_num(dem.required),
+                served: file_num(e.demand_flow[d]),
+                shortfall: file_num(e.demand_shortfall[d]),
             })
             .collect(),
         saturated_links: e
@@ -278,14 +278,14 @@ pub fn scenario_json(
                     id: net.links[net.arcs[a].link].id.clone(),
                     from: Some(net.sites[net.arcs[a].from].id.clone()),
                     to: Some(net.sites[net.arcs[a].to].id.clone()),
-                    price: round9(b.price),
+                    price: file_num(b.price),
                 },
                 Resource::Site(v) => BottleneckJson {
                     kind: "site",
                     id: net.sites[v].id.clone(),
                     from: None,
                     to: None,
-                    price: round9(b.price),
+                    price: file_num(b.price),
                 },
             })
             .collect(),
@@ -313,7 +313,7 @@ pub fn scenario_json(
             .sites
             .iter()
             .zip(&e.site_price)
-            .filter_map(|(s, p)| p.map(|p| (s.id.clone(), round9(p))))
+            .filter_map(|(s, p)| p.map(|p| (s.id.clone(), file_num(p))))
             .collect(),
         closing: None,
         routed: None,
@@ -454,8 +454,8 @@ pub fn audit_json_with<'a>(
             .into_iter()
             .map(|c| CriticalityJson {
                 element: c.element.name(net),
-                worst_shortfall: round9(c.worst_shortfall),
-                worst_stranded: round9(c.worst_stranded),
+                worst_shortfall: file_num(c.worst_shortfall),
+                worst_stranded: file_num(c.worst_stranded),
                 scenarios_short: c.scenarios_short,
                 worst_scenario: audit.scenarios[c.worst_scenario].failed.clone(),
             })
@@ -487,13 +487,13 @@ pub fn closing_json(
     match c {
         None => serde_json::Value::Null,
         Some(c) => serde_json::json!({
-            "cost": round9(c.cost),
+            "cost": file_num(c.cost),
             "add": additions_map(net, &c.add),
-            "not_closable": round9(c.not_closable),
-            "best_served_required": round9(c.best),
+            "not_closable": file_num(c.not_closable),
+            "best_served_required": file_num(c.best),
             "binding_links": c.binding_links.iter().map(|&l| net.links[l].id.clone()).collect::<Vec<_>>(),
-            "dual_bound": round9(c.dual_bound),
-            "served_after": round9(c.served_after),
+            "dual_bound": file_num(c.dual_bound),
+            "served_after": file_num(c.served_after),
             "verified": c.verified,
             "default_costs": default_costs,
         }),
@@ -504,7 +504,7 @@ fn additions_map(net: &Network, add: &[f64]) -> BTreeMap<String, f64> {
     add.iter()
         .enumerate()
         .filter(|(_, a)| **a > 0.0)
-        .map(|(v, a)| (net.sites[v].id.clone(), round9(*a)))
+        .map(|(v, a)| (net.sites[v].id.clone(), file_num(*a)))
         .collect()
 }
 
@@ -572,7 +572,7 @@ pub fn plan_json(
         },
         default_costs,
         plan: PlanBody {
-            cost: round9(plan.cost),
+            cost: file_num(plan.cost),
             add: additions_map(net, &plan.add),
             drivers: plan
                 .drivers
@@ -592,16 +592,16 @@ pub fn plan_json(
             .iter()
             .map(|r| RoundJson {
                 active: r.active,
-                objective: round9(r.objective),
+                objective: file_num(r.objective),
                 violated: r.violated,
             })
             .collect(),
-        worst_fraction_after: round9(plan.worst_fraction),
+        worst_fraction_after: file_num(plan.worst_fraction),
         modules: plan.modules.as_ref().map(|m| {
             serde_json::json!({
-                "lp_cost": round9(m.lp_cost),
+                "lp_cost": file_num(m.lp_cost),
                 "lp_add": additions_map(net, &m.lp_add),
-                "gap": round9(m.gap),
+                "gap": file_num(m.gap),
                 "repaired_modules": m.repaired,
                 "candidates_checked": m.checked,
             })
@@ -615,11 +615,11 @@ pub fn plan_json(
                 let before = &audit.evaluations[k];
                 PlanScenarioJson {
                     failed: s.failed.clone(),
-                    shortfall_before: round9(before.shortfall),
-                    shortfall_after: round9(plan.after[k].shortfall),
-                    not_closable: round9((before.surviving_required - plan.best[k]).max(0.0)),
-                    served_required_after: round9(plan.after[k].served_required),
-                    best_served_required: round9(plan.best[k]),
+                    shortfall_before: file_num(before.shortfall),
+                    shortfall_after: file_num(plan.after[k].shortfall),
+                    not_closable: file_diff(before.surviving_required, plan.best[k]).max(0.0),
+                    served_required_after: file_num(plan.after[k].served_required),
+                    best_served_required: file_num(plan.best[k]),
                 }
             })
             .collect(),
@@ -638,10 +638,10 @@ pub struct ValuesJson {
 impl ValuesJson {
     fn of(v: &crate::compare::Values) -> ValuesJson {
         ValuesJson {
-            served_required: round9(v.served_required),
-            shortfall: round9(v.shortfall),
-            stranded: round9(v.stranded),
-            throughput: round9(v.throughput),
+            served_required: file_num(v.served_required),
+            shortfall: file_num(v.shortfall),
+            stranded: file_num(v.stranded),
+            throughput: file_num(v.throughput),
         }
     }
 }
@@ -688,8 +688,8 @@ fn change_json(c: &crate::compare::Change) -> ChangeJson {
         failed: c.failed.clone(),
         before: ValuesJson::of(&c.before),
         after: ValuesJson::of(&c.after),
-        delta_shortfall: round9(c.delta_shortfall),
-        delta_stranded: round9(c.delta_stranded),
+        delta_shortfall: file_num(c.delta_shortfall),
+        delta_stranded: file_num(c.delta_stranded),
     }
 }
 

@@ -20,7 +20,8 @@ traffic; the capacities in the file; one processing step per unit); it does not 
 operator's own engineering review, change procedures and local rules.";
 
 /// A probability for files: 15 significant digits (small probabilities would vanish
-/// under [`round9`]), so the last digits of summation noise do not show. O(1).
+/// under a fixed number of decimals), so the last digits of summation noise do not show.
+/// O(1).
 pub fn prob(x: f64) -> f64 {
     if x == 0.0 || !x.is_finite() {
         return x;
@@ -59,14 +60,19 @@ fn trimmed4(x: f64) -> String {
 /// From this magnitude on, [`num`] prints engineering notation (`1.5e12`).
 pub const ENGINEERING_FROM: f64 = 1e9;
 
+/// Below this magnitude (and above 0), [`num`] prints engineering notation (`2.5e-6`), so a
+/// small amount never prints as `0`.
+pub const ENGINEERING_BELOW: f64 = 1e-3;
+
 /// Decimals [`num`] shows below [`ENGINEERING_FROM`] (and of an engineering mantissa).
 pub const DECIMALS: usize = 3;
 
-/// A number for people. Below [`ENGINEERING_FROM`] in magnitude: at most [`DECIMALS`]
-/// decimals, trailing zeros trimmed, `-0` shown as `0`. From it on: engineering notation,
-/// a mantissa in [1, 1000) with at most [`DECIMALS`] decimals and an exponent that is a
-/// multiple of 3 (`1.5e12`, `170e306`). `+∞` prints `no limit`. O(1); the result never
-/// exceeds 16 characters for any finite input.
+/// A number for people. From [`ENGINEERING_BELOW`] to below [`ENGINEERING_FROM`] in
+/// magnitude: at most [`DECIMALS`] decimals, trailing zeros trimmed, `-0` shown as `0`.
+/// Outside that range (and not zero): engineering notation, a mantissa in [1, 1000) with at
+/// most [`DECIMALS`] decimals and an exponent that is a multiple of 3 (`1.5e12`,
+/// `170e306`, `2.5e-6`, `100e-12`), so a nonzero amount never prints as `0`. `+∞` prints
+/// `no limit`. O(1); the result never exceeds 16 characters for any finite input.
 pub fn num(x: f64) -> String {
     if !x.is_finite() {
         return if x > 0.0 {
@@ -75,7 +81,7 @@ pub fn num(x: f64) -> String {
             x.to_string()
         };
     }
-    if x.abs() >= ENGINEERING_FROM {
+    if x != 0.0 && (x.abs() >= ENGINEERING_FROM || x.abs() < ENGINEERING_BELOW) {
         return engineering(x);
     }
     trimmed(x)
@@ -88,27 +94,59 @@ fn trimmed(x: f64) -> String {
     if s == "-0" { "0".into() } else { s.into() }
 }
 
-/// Engineering notation of a finite `x` with `|x| >= 1`: mantissa in [1, 1000), exponent a
-/// multiple of 3.
+/// Engineering notation of a finite nonzero `x`: mantissa in [1, 1000) with at most
+/// [`DECIMALS`] decimals (trailing zeros trimmed), exponent a multiple of 3. Built from
+/// Rust's correctly rounded scientific formatting, so it is exact for every magnitude
+/// (subnormals included) and the mantissa is rounded once. O(1).
 fn engineering(x: f64) -> String {
-    let mut exp = (x.abs().log10().floor() as i32).div_euclid(3) * 3;
-    let mantissa = |exp: i32| x / 10f64.powi(exp);
-    if mantissa(exp).abs() < 1.0 {
-        exp -= 3;
+    let exponent = |s: &str| -> i32 {
+        s.rsplit_once('e')
+            .and_then(|(_, e)| e.parse().ok())
+            .unwrap_or(0)
+    };
+    let mut e = exponent(&format!("{x:e}"));
+    // At most two rounds: rounding the mantissa can carry it to the next power of ten once.
+    for _ in 0..2 {
+        let base = e.div_euclid(3) * 3;
+        let shift = (e - base) as usize;
+        let s = format!("{:.*e}", shift + DECIMALS, x);
+        let got = exponent(&s);
+        if got != e {
+            e = got;
+            continue;
+        }
+        let mantissa = s.split_once('e').map_or(s.as_str(), |(m, _)| m);
+        let digits: String = mantissa.chars().filter(char::is_ascii_digit).collect();
+        let (int, frac) = digits.split_at((shift + 1).min(digits.len()));
+        let frac = frac.trim_end_matches('0');
+        let sign = if x < 0.0 { "-" } else { "" };
+        return if frac.is_empty() {
+            format!("{sign}{int}e{base}")
+        } else {
+            format!("{sign}{int}.{frac}e{base}")
+        };
     }
-    let mut s = trimmed(mantissa(exp));
-    // Rounding to DECIMALS can carry the mantissa to 1000: move to the next exponent.
-    if s.trim_start_matches('-').starts_with("1000") {
-        exp += 3;
-        s = trimmed(mantissa(exp));
-    }
-    format!("{s}e{exp}")
+    format!("{x:e}")
 }
 
 /// The value a reader sees in a report for `x`: [`num`] parsed back (`x` itself when it
 /// prints as a word). Gates compare at this precision, so a printed "14" never "exceeds 14".
 pub fn displayed(x: f64) -> f64 {
     num(x).parse().unwrap_or(x)
+}
+
+/// A limit exactly as the user gave it: [`num`] when that reads back as `x`, else the
+/// shortest digits that do (`11.9999`, not `12`; `1.2345678901e12` for a value
+/// engineering notation would round). O(1).
+pub fn given(x: f64) -> String {
+    let n = num(x);
+    if n.parse::<f64>().ok() == Some(x) || !x.is_finite() {
+        n
+    } else if x.abs() >= ENGINEERING_FROM || (x != 0.0 && x.abs() < ENGINEERING_BELOW) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
 }
 
 /// A small relative quantity (a gap, a residual) in scientific notation with one decimal,
@@ -121,20 +159,55 @@ pub fn small(x: f64) -> String {
     }
 }
 
-/// A number for files: rounded to 9 decimals, so solver noise below 1e-9 does not show
-/// and equal results print equal.
-pub fn round9(x: f64) -> f64 {
-    // Above 1e6 nine decimals are beyond f64 precision anyway; leave such values alone.
-    if !x.is_finite() || x.abs() >= 1e6 {
-        return x;
-    }
-    let r = (x * 1e9).round() / 1e9;
+/// Significant digits of a number in a file ([`file_num`]).
+pub const FILE_DIGITS: usize = 12;
+
+/// A number for files: rounded to [`FILE_DIGITS`] significant digits, or to a whole
+/// number when that keeps more digits (from 1e11 on), so an integer is always kept as it is.
+/// The last digits of floating-point arithmetic do not show, equal results print equal,
+/// and a small amount (1e-10 units) keeps its digits instead of vanishing under a fixed
+/// number of decimals. Monotone (rounding to a grid that only coarsens with magnitude, and
+/// every grid holds the powers of ten): `x <= y` implies `file_num(x) <= file_num(y)`, so
+/// a value never prints above a bound it does not exceed. A pure function of `x` (the same
+/// bytes whatever the thread count). O(1).
+pub fn file_num(x: f64) -> f64 {
+    let r = if !x.is_finite() || x == x.trunc() {
+        x
+    } else if x.abs() >= 1e11 {
+        x.round()
+    } else {
+        format!("{:.*e}", FILE_DIGITS - 1, x).parse().unwrap_or(x)
+    };
+    // `-0` prints as `0`.
     if r == 0.0 { 0.0 } else { r }
 }
 
-/// `part` as a percentage of `whole` with one decimal. The ratio is taken first and
-/// clamped to [0, 1] (every percentage reported is a part of a whole), so no magnitude
-/// overflows; `0%` when `whole` is not positive, `—` when the ratio is not a number.
+/// `a − b` for files: the difference of the two values as [`file_num`] writes them,
+/// rounded where their last written digit is, so the subtraction's own rounding (`0.3 −
+/// 0.1 = 0.19999999999999998`, `1e6 + 0.1 − 1e6 = 0.10000000009`) does not show. O(1).
+pub fn file_diff(a: f64, b: f64) -> f64 {
+    let (a, b) = (file_num(a), file_num(b));
+    let d = a - b;
+    let big = a.abs().max(b.abs());
+    if d == 0.0 || !d.is_finite() || big == 0.0 {
+        return file_num(d);
+    }
+    // The place value of the last significant digit of the larger operand.
+    let place = big.log10().floor() as i32 + 1 - FILE_DIGITS as i32;
+    let rounded: f64 = if place >= 0 {
+        d
+    } else {
+        format!("{:.*}", (-place) as usize, d).parse().unwrap_or(d)
+    };
+    file_num(rounded)
+}
+
+/// `part` as a percentage of `whole` with one decimal, for a part of a whole (a served
+/// fraction, a shortfall over the required demand): the ratio is taken first and clamped
+/// to [0, 1], so no magnitude overflows. A ratio strictly between 0 and 0.05 % prints
+/// `<0.1%` and one strictly between 99.95 % and 1 prints `>99.9%`, so a nonzero part
+/// never reads as none and a short scenario never reads as fully served. `0%` when
+/// `whole` is not positive, `—` when the ratio is not a number. O(1).
 pub fn percent(part: f64, whole: f64) -> String {
     if whole.partial_cmp(&0.0) != Some(std::cmp::Ordering::Greater) {
         return "0%".into();
@@ -143,7 +216,93 @@ pub fn percent(part: f64, whole: f64) -> String {
     if ratio.is_nan() {
         return "—".into();
     }
-    format!("{:.1}%", 100.0 * ratio.clamp(0.0, 1.0))
+    let r = ratio.clamp(0.0, 1.0);
+    let text = format!("{:.1}%", 100.0 * r);
+    if r > 0.0 && text == "0.0%" {
+        "<0.1%".into()
+    } else if r < 1.0 && text == "100.0%" {
+        ">99.9%".into()
+    } else {
+        text
+    }
+}
+
+/// A ratio that may exceed 1 (a utilisation: offered load over capacity) as a percentage
+/// with one decimal, never clamped: 2.5 prints `250.0%`. From [`ENGINEERING_FROM`] % on the
+/// percentage is in [`num`]'s engineering notation (`1.5e12%`); a ratio strictly between 0
+/// and 0.05 % prints `<0.1%`; a negative or not-a-number ratio prints `—`, `+∞` prints
+/// `inf`. O(1).
+pub fn ratio_percent(ratio: f64) -> String {
+    if ratio.is_nan() || ratio < 0.0 {
+        return "—".into();
+    }
+    if ratio.is_infinite() {
+        return "inf".into();
+    }
+    let pct = 100.0 * ratio;
+    if pct.is_infinite() || pct >= ENGINEERING_FROM {
+        // 100 · ratio overflows only above f64::MAX / 100: show the ratio's own digits.
+        return if pct.is_infinite() {
+            format!("{}00%", num(ratio))
+        } else {
+            format!("{}%", num(pct))
+        };
+    }
+    let text = format!("{pct:.1}%");
+    if ratio > 0.0 && text == "0.0%" {
+        "<0.1%".into()
+    } else {
+        text
+    }
+}
+
+/// The decimal text of `x` (its shortest round-trip digits, never in exponent form) with
+/// the decimal point moved `places` to the right (left when negative): `shift_point(0.95,
+/// 2)` is `"95"`, `shift_point(11.9999, -2)` is `"0.119999"`. Exact, with no rounding:
+/// a limit given as `0.999999` shows as `99.9999%`, not `100%`. O(digits).
+pub fn shift_point(x: f64, places: i32) -> String {
+    let text = format!("{x}");
+    shift_text(&text, places).unwrap_or(text)
+}
+
+/// [`shift_point`] on a plain decimal text (`-12.5`, `0.001`, `7`); `None` when the text is
+/// not one (an exponent, a word).
+pub fn shift_text(text: &str, places: i32) -> Option<String> {
+    let (sign, body) = match text.strip_prefix('-') {
+        Some(b) => ("-", b),
+        None => ("", text.strip_prefix('+').unwrap_or(text)),
+    };
+    let (int, frac) = body.split_once('.').unwrap_or((body, ""));
+    if int.is_empty() && frac.is_empty()
+        || !int.chars().chain(frac.chars()).all(|c| c.is_ascii_digit())
+    {
+        return None;
+    }
+    let digits = format!("{int}{frac}");
+    // Position of the point within `digits` after the move (may fall outside).
+    let point = int.len() as i64 + places as i64;
+    let (int, frac) = if point <= 0 {
+        (
+            "0".to_string(),
+            format!("{}{digits}", "0".repeat((-point) as usize)),
+        )
+    } else if point as usize >= digits.len() {
+        (
+            format!("{digits}{}", "0".repeat(point as usize - digits.len())),
+            String::new(),
+        )
+    } else {
+        let (i, f) = digits.split_at(point as usize);
+        (i.to_string(), f.to_string())
+    };
+    let int = int.trim_start_matches('0');
+    let int = if int.is_empty() { "0" } else { int };
+    let frac = frac.trim_end_matches('0');
+    Some(if frac.is_empty() {
+        format!("{sign}{int}")
+    } else {
+        format!("{sign}{int}.{frac}")
+    })
 }
 
 #[cfg(test)]
@@ -155,7 +314,8 @@ mod tests {
     fn formatting() {
         assert_eq!(num(12.0), "12");
         assert_eq!(num(12.3456), "12.346");
-        assert_eq!(num(-0.0001), "0");
+        assert_eq!(num(0.001), "0.001");
+        assert_eq!(num(-0.0), "0");
         assert_eq!(num(999_999_999.0), "999999999");
         assert_eq!(num(1e9), "1e9");
         assert_eq!(num(1.5e12), "1.5e12");
@@ -164,18 +324,108 @@ mod tests {
         assert_eq!(num(999_999_999_999.9), "1e12");
         assert_eq!(num(1e308), "100e306");
         assert_eq!(num(f64::MAX), "179.769e306");
+        // Small amounts keep their digits instead of printing as 0.
+        assert_eq!(num(-0.0001), "-100e-6");
+        assert_eq!(num(2.5e-6), "2.5e-6");
+        assert_eq!(num(1e-10), "100e-12");
+        assert_eq!(num(1.23456e-7), "123.456e-9");
+        assert_eq!(num(0.00099999999), "1e-3");
+        assert_eq!(num(5e-324), "4.941e-324");
         assert_eq!(displayed(14.000000021), 14.0);
         assert_eq!(displayed(1.5e12), 1.5e12);
+        assert_eq!(displayed(2.5e-6), 2.5e-6);
+        assert_eq!(given(11.9999), "11.9999");
+        assert_eq!(given(12.0), "12");
+        assert_eq!(given(1.5e12), "1.5e12");
+        assert_eq!(given(1.2345678901e12), "1.2345678901e12");
+        assert_eq!(given(2.5e-6), "2.5e-6");
+        assert_eq!(given(1.23456789e-7), "1.23456789e-7");
         assert_eq!(small(0.0), "0");
         assert_eq!(small(1.24e-9), "1.2e-9");
-        assert_eq!(round9(1.0000000000004), 1.0);
-        assert_eq!(round9(1e300), 1e300);
+        for x in [
+            1e9,
+            3.3e15,
+            7.77e100,
+            f64::MAX,
+            -f64::MAX,
+            -1.23456e-300,
+            f64::MIN_POSITIVE,
+            -5e-324,
+        ] {
+            assert!(num(x).len() <= 16, "{x}: {}", num(x));
+            assert_ne!(displayed(x), 0.0, "{x}");
+        }
+    }
+
+    /// Common practice, no source: numbers in files keep 12 significant digits.
+    #[test]
+    fn file_numbers() {
+        assert_eq!(file_num(1.0000000000004), 1.0);
+        assert_eq!(file_num(0.1 + 0.2), 0.3);
+        assert_eq!(file_num(1e-10), 1e-10);
+        assert_eq!(file_num(1.00000000001e-10), 1.00000000001e-10);
+        assert_eq!(file_num(2.5e-6 + 1e-22), 2.5e-6);
+        assert_eq!(file_num(104.999999979), 104.999999979);
+        assert_eq!(file_num(1e300), 1e300);
+        assert_eq!(file_num(1_234_567_890_123.0), 1_234_567_890_123.0);
+        assert_eq!(file_num(1_234_567_890_123.4), 1_234_567_890_123.0);
+        assert_eq!(file_num(-0.0).to_bits(), 0.0f64.to_bits());
+        assert_eq!(file_diff(0.3, 0.1), 0.2);
+        assert_eq!(file_diff(1e6 + 0.1, 1e6), 0.1);
+        assert_eq!(file_diff(2.5e-6, 0.0), 2.5e-6);
+        // Monotone around the switch to whole numbers and at powers of ten.
+        let xs = [
+            99_999_999_999.99,
+            99_999_999_999.999_99,
+            1e11,
+            1e11 + 0.4,
+            1e11 + 0.6,
+            1_234_567_890_122.6,
+            1_234_567_890_123.0,
+            1_234_567_890_123.4,
+        ];
+        for w in xs.windows(2) {
+            assert!(file_num(w[0]) <= file_num(w[1]), "{w:?}");
+        }
+    }
+
+    /// Common practice, no source: percentages of a whole and utilisations.
+    #[test]
+    fn percentages() {
         assert_eq!(percent(1.0, 3.0), "33.3%");
         assert_eq!(percent(1e308, 1e308), "100.0%");
         assert_eq!(percent(f64::MAX, f64::MAX / 2.0), "100.0%");
         assert_eq!(percent(1.0, 0.0), "0%");
-        for x in [1e9, 3.3e15, 7.77e100, f64::MAX, -f64::MAX] {
-            assert!(num(x).len() <= 16, "{x}: {}", num(x));
-        }
+        assert_eq!(percent(2.5e-6, 7e11), "<0.1%");
+        assert_eq!(percent(0.0, 7e11), "0.0%");
+        assert_eq!(percent(99.99999, 100.0), ">99.9%");
+        assert_eq!(ratio_percent(2.5), "250.0%");
+        assert_eq!(ratio_percent(1.7), "170.0%");
+        assert_eq!(ratio_percent(0.5), "50.0%");
+        assert_eq!(ratio_percent(1e-9), "<0.1%");
+        assert_eq!(ratio_percent(0.0), "0.0%");
+        assert_eq!(ratio_percent(f64::INFINITY), "inf");
+        assert_eq!(ratio_percent(1e12), "100e12%");
+        assert!(
+            ratio_percent(f64::MAX).len() <= 20,
+            "{}",
+            ratio_percent(f64::MAX)
+        );
+    }
+
+    /// Common practice, no source: moving a decimal point by hand.
+    #[test]
+    fn shifted_points() {
+        assert_eq!(shift_point(0.95, 2), "95");
+        assert_eq!(shift_point(0.999999, 2), "99.9999");
+        assert_eq!(shift_point(0.07, 2), "7");
+        assert_eq!(shift_point(1.0, 2), "100");
+        assert_eq!(shift_point(0.0, 2), "0");
+        assert_eq!(shift_text("95.5", -2).as_deref(), Some("0.955"));
+        assert_eq!(shift_text("7", -2).as_deref(), Some("0.07"));
+        assert_eq!(shift_text("-12.5", 1).as_deref(), Some("-125"));
+        assert_eq!(shift_text("1e3", -2), None);
+        assert_eq!(shift_text("", -2), None);
+        assert_eq!(shift_text(".", -2), None);
     }
 }

@@ -8,7 +8,7 @@ use comfy_table::Cell;
 use super::screen;
 use serde::Serialize;
 
-use super::{num, percent, round9};
+use super::{file_diff, file_num, num, percent, ratio_percent};
 use crate::model::Network;
 use crate::routing::{self, Mode, Offered, RoutedAudit};
 use crate::solve::Evaluation;
@@ -16,21 +16,18 @@ use crate::solve::Evaluation;
 /// How many items a table cell lists before `(+N more)`.
 const CELL_ITEMS: usize = 2;
 
-/// A utilisation for people: a percentage, or `inf` for load on capacity 0.
+/// A utilisation for people: a percentage, never clamped (offered load above capacity
+/// shows as `250.0%`), or `inf` for load on capacity 0 ([`ratio_percent`]).
 pub fn util_text(u: f64) -> String {
-    if u.is_infinite() {
-        "inf".into()
-    } else {
-        percent(u, 1.0)
-    }
+    ratio_percent(u)
 }
 
-/// A utilisation for files: a number rounded to 9 decimals, or the string `"inf"`.
+/// A utilisation for files: a number ([`file_num`]), or the string `"inf"`.
 pub fn util_json(u: f64) -> serde_json::Value {
     if u.is_infinite() {
         serde_json::Value::String("inf".into())
     } else {
-        serde_json::json!(round9(u))
+        serde_json::json!(file_num(u))
     }
 }
 
@@ -213,8 +210,8 @@ fn routed_fields(
         max_link_utilisation: util_json(o.max_link_util),
         max_site_utilisation: util_json(o.max_site_util),
         overloaded: overloaded_names(net, o),
-        best_served_required: round9(best.served_required),
-        recoverable: round9((best.served_required - e.served_required).max(0.0)),
+        best_served_required: file_num(best.served_required),
+        recoverable: file_diff(best.served_required, e.served_required).max(0.0),
         traffic_moved_onto: routing::moved_onto(base, o, e.surviving_required)
             .into_iter()
             .map(|(a, d)| {
@@ -223,7 +220,7 @@ fn routed_fields(
                     link: net.links[arc.link].id.clone(),
                     from: net.sites[arc.from].id.clone(),
                     to: net.sites[arc.to].id.clone(),
-                    increase: round9(d),
+                    increase: file_num(d),
                 }
             })
             .collect(),

@@ -6,7 +6,7 @@ use comfy_table::Cell;
 
 use std::io::{self, Write};
 
-use super::{CAUTION, num, percent, small};
+use super::{CAUTION, file_diff, given, num, percent, shift_point, small};
 use crate::audit::Audit;
 use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
@@ -360,12 +360,14 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             Cell::new(num(e.shortfall)),
         ];
         if base_short {
-            row.push(Cell::new(num((e.shortfall - baseline.shortfall).max(0.0))));
+            row.push(Cell::new(num(
+                file_diff(e.shortfall, baseline.shortfall).max(0.0)
+            )));
         }
         row.extend([
             Cell::new(percent(e.shortfall, e.surviving_required)),
             Cell::new(num(e.stranded)),
-            Cell::new(num((baseline.throughput - e.throughput).max(0.0))),
+            Cell::new(num(file_diff(baseline.throughput, e.throughput).max(0.0))),
             Cell::new(match marginal_sites(net, e, 2) {
                 m if m == "none" || m == "—" => main_bottleneck(net, e),
                 m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
@@ -873,9 +875,11 @@ pub fn plan_report(
             Cell::new(audit.scenarios[i].display_name()),
             Cell::new(num(audit.eval(i).shortfall)),
             Cell::new(num(plan.after[k].shortfall)),
-            Cell::new(num((audit.evaluations[k].surviving_required
-                - plan.best[k])
-                .max(0.0))),
+            Cell::new(num(file_diff(
+                audit.evaluations[k].surviving_required,
+                plan.best[k],
+            )
+            .max(0.0))),
         ]);
     }
     right(&mut s, &[1, 2, 3]);
@@ -997,7 +1001,7 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
             flag,
             what,
             format!("{} {u}", num(g.value)),
-            format!("{} {u}", num(g.limit)),
+            format!("{} {u}", given(g.limit)),
             if g.passed { "within" } else { "exceeds" },
         )
     };
@@ -1008,7 +1012,7 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
             "--min-served-fraction",
             "served fraction",
             format!("{}%", num(100.0 * g.value)),
-            format!("{}%", num(100.0 * g.limit)),
+            format!("{}%", shift_point(g.limit, 2)),
             if g.passed { "meets" } else { "is below" },
         ),
     };

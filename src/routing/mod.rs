@@ -49,8 +49,6 @@ impl Mode {
 
 /// Relative tolerance above capacity before a resource counts as overloaded.
 pub const OVERLOAD_TOL: f64 = 1e-9;
-/// Loads below this (absolute) count as no load when deciding an infinite utilisation.
-pub const LOAD_EPS: f64 = 1e-12;
 
 /// Per-unit load on arcs: `(arc index, fraction)` pairs sorted by arc.
 pub type ArcLoad = Vec<(usize, f64)>;
@@ -164,8 +162,11 @@ pub struct Offered {
     pub overloaded_sites: Vec<SiteIdx>,
 }
 
+/// Load over capacity; 0 without load, `INFINITY` for a load on capacity 0. Offered loads
+/// are sums of nonnegative shares (no cancellation), so any positive load is real, however
+/// small (a file in units of 1e-13 has utilisations too).
 fn utilisation(load: f64, cap: f64) -> f64 {
-    if load <= LOAD_EPS {
+    if load <= 0.0 {
         0.0
     } else if cap <= 0.0 {
         f64::INFINITY
@@ -175,7 +176,7 @@ fn utilisation(load: f64, cap: f64) -> f64 {
 }
 
 fn overloaded(load: f64, cap: f64) -> bool {
-    load > LOAD_EPS && load > cap * (1.0 + OVERLOAD_TOL)
+    load > 0.0 && load > cap * (1.0 + OVERLOAD_TOL)
 }
 
 /// The offered load of `routes` (required, nearest shares). O(Σ nearest routes' arcs).
@@ -280,7 +281,7 @@ fn verify_fixed(model: &lp::Lp, sol: &mut lp::LpSolution, at_stake: f64) -> Chec
     let proven = solve::meets(residual, lower, upper, at_stake);
     Checked {
         value: if proven {
-            solve::simplest_in(lower, upper.max(lower), at_stake)
+            solve::reported_in(lower, upper.max(lower), at_stake)
         } else {
             lower
         },
@@ -366,27 +367,51 @@ pub fn evaluate_routes(
     }
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
     let (model, index, mut sol) = solve_fixed(net, routes, mode, &required)?;
-    let verification = verify_fixed(&model, &mut sol, surviving_required);
-    let scale = surviving_required;
+    // Demands whose routes reach no processing site serve nothing: their required part
+    // is summed apart from the rest, so neither total is lost in the other.
+    let cut_off_of = |d: usize| routes[d].as_ref().is_some_and(|r| r.candidates.is_empty());
+    let cut_off_required: f64 = (0..net.demands.len())
+        .filter(|&d| cut_off_of(d))
+        .map(|d| net.demands[d].required)
+        .sum();
+    let servable_required: f64 = if cut_off_required > 0.0 {
+        (0..net.demands.len())
+            .filter(|&d| routes[d].is_some() && !cut_off_of(d))
+            .map(|d| net.demands[d].required)
+            .sum()
+    } else {
+        surviving_required
+    };
+    let verification = verify_fixed(&model, &mut sol, servable_required);
     let served_required = verification.value;
     let verification = verification.verification;
-    let shortfall = (surviving_required - served_required).max(0.0);
-    let demand_flow: Vec<f64> = index
-        .demand_flows(&sol.x)
-        .iter()
-        .zip(&net.demands)
-        .map(|(&f, dem)| snap(snap(f.min(dem.required), dem.required, scale), 0.0, scale))
+    let shortfall = solve::shortfall_of(cut_off_required, servable_required, served_required);
+    // A cut-off demand serves exactly nothing; any other flow is judged against the
+    // servable demand of its origin, never against a larger total.
+    let servable: Vec<bool> = (0..net.demands.len())
+        .map(|d| routes[d].is_some() && !cut_off_of(d))
         .collect();
-    let demand_shortfall: Vec<f64> = net
-        .demands
-        .iter()
-        .zip(&demand_flow)
-        .zip(routes)
-        .map(|((dem, &f), r)| {
-            if r.is_some() {
-                snap(dem.required - f, 0.0, scale)
+    let scales = solve::flow_scales(net, &servable);
+    let flows = index.demand_flows(&sol.x);
+    let demand_flow: Vec<f64> = (0..net.demands.len())
+        .map(|d| {
+            let (r, scale) = (net.demands[d].required, scales[d]);
+            if servable[d] {
+                snap(snap(flows[d].min(r), r, scale), 0.0, scale)
             } else {
                 0.0
+            }
+        })
+        .collect();
+    let demand_shortfall: Vec<f64> = (0..net.demands.len())
+        .map(|d| {
+            let r = net.demands[d].required;
+            if routes[d].is_none() {
+                0.0
+            } else if servable[d] {
+                snap(r - demand_flow[d], 0.0, scales[d])
+            } else {
+                r
             }
         })
         .collect();
@@ -446,7 +471,10 @@ pub fn evaluate_routes(
         let volume: Vec<f64> = net.demands.iter().map(|d| d.volume).collect();
         let (vmodel, _, mut vsol) = solve_fixed(net, routes, mode, &volume)?;
         let t = verify_fixed(&vmodel, &mut vsol, surviving_volume);
-        (t.value.max(served_required), Some(t.verification))
+        (
+            t.value.max(served_required).min(surviving_volume),
+            Some(t.verification),
+        )
     } else {
         (served_required, None)
     };
@@ -574,7 +602,7 @@ pub const MOVE_TOL: f64 = 1e-9;
 /// Arcs whose offered load under `now` exceeds the baseline's `base`, with the increase,
 /// largest first (ties by arc): where a failure moves traffic. O(arcs log arcs).
 pub fn moved_onto(base: &Offered, now: &Offered, scale: f64) -> Vec<(usize, f64)> {
-    let tol = MOVE_TOL * scale.max(1.0);
+    let tol = MOVE_TOL * scale.max(f64::MIN_POSITIVE);
     let mut v: Vec<(usize, f64)> = now
         .arc_load
         .iter()

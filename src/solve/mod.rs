@@ -91,7 +91,9 @@ pub struct Evaluation {
     /// Largest Σ f_d over surviving demands with f_d <= required_d (the proven lower bound
     /// when the result is unproven).
     pub served_required: f64,
-    /// Σ surviving required − served_required.
+    /// Σ surviving required − served_required, summed as the cut-off demands' required
+    /// plus what the servable ones miss ([`shortfall_of`]), so a small cut-off demand beside
+    /// large served ones is not lost to rounding.
     pub shortfall: f64,
     /// Σ required of demands with a failed endpoint site.
     pub stranded: f64,
@@ -251,7 +253,9 @@ pub const NOISE: f64 = 1e-9;
 
 /// Snaps `x` to `target` when within [`TOL`] relative to `scale`; otherwise the plainest
 /// number within [`NOISE`]·`scale` of `x`, so solver noise does not show in large units
-/// (bit/s) and equal results print equal.
+/// (bit/s) and equal results print equal. `scale` is the amount at stake for `x` (for a
+/// demand's flow, its origin's servable demand: [`flow_scales`]), never a scenario or file
+/// total.
 fn snap(x: f64, target: f64, scale: f64) -> f64 {
     if scale.is_nan() || scale <= 0.0 {
         return if x.abs() < 1e-12 { target } else { x };
@@ -293,6 +297,51 @@ pub fn simplest_in(lo: f64, hi: f64, prefer: f64) -> f64 {
         }
     }
     mid
+}
+
+/// The value reported for an amount proven to lie in `[lo, hi]` that can never exceed
+/// `offered` (the required demand or the volume at stake): `offered` itself when the
+/// interval reaches it, else the plainest number in the interval cut at `offered`
+/// ([`simplest_in`]). Never above `offered`, so a report never serves more than is
+/// offered (`150`, not `150.00000001`). O(1).
+pub fn reported_in(lo: f64, hi: f64, offered: f64) -> f64 {
+    if lo <= offered && offered <= hi {
+        return offered;
+    }
+    simplest_in(lo.min(offered), hi.min(offered), offered).min(offered)
+}
+
+/// A scenario's shortfall: the required demand of its cut-off demands (`cut_off`, which no
+/// walk can serve) plus what the servable ones (`servable` required in all) miss of it
+/// (`served` is their proven total). Summed this way, a cut-off demand of 2.5e-6 units
+/// beside 7e11 served units is not lost to the rounding of `7e11 + 2.5e-6 − 7e11`. O(1).
+pub fn shortfall_of(cut_off: f64, servable: f64, served: f64) -> f64 {
+    cut_off + (servable - served).max(0.0)
+}
+
+/// Per demand, the amount its flow is judged against when it is snapped (`snap`): the
+/// required demand of the servable demands (`servable[d]`) that share its origin, which is
+/// the LP block it is solved in (flows are scaled and repaired per origin, so that is the
+/// precision a flow has); a demand that is not servable keeps its own required part.
+/// Never a scenario or file total. O(demands + sites).
+pub fn flow_scales(net: &Network, servable: &[bool]) -> Vec<f64> {
+    let mut by_origin = vec![0.0; net.sites.len()];
+    for (d, dem) in net.demands.iter().enumerate() {
+        if servable[d] {
+            by_origin[dem.from] += dem.required;
+        }
+    }
+    net.demands
+        .iter()
+        .enumerate()
+        .map(|(d, dem)| {
+            if servable[d] {
+                by_origin[dem.from]
+            } else {
+                dem.required
+            }
+        })
+        .collect()
 }
 
 /// Solves the served_required LP of `net` under `outage` and returns it with its flow
@@ -613,32 +662,61 @@ pub fn finish(
         }
     }
 
-    let v = &solved.verification;
-    let scale = surviving_required;
-    let served_required = if v.proven {
-        simplest_in(
-            v.lower.min(surviving_required),
-            v.upper.min(surviving_required),
-            surviving_required,
-        )
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let cut_off: Vec<(usize, Unservable)> = view
+        .unservable(net, &required)
+        .into_iter()
+        .enumerate()
+        .filter_map(|(d, r)| r.map(|r| (d, r)))
+        .collect();
+    // Σ required of the cut-off demands, and of the surviving ones some walk can serve
+    // (what the LP holds), each summed on its own so neither is lost in the other.
+    let cut_off_required: f64 = cut_off.iter().map(|&(d, _)| required[d]).sum();
+    let mut servable: Vec<bool> = (0..net.demands.len())
+        .map(|d| view.demand_alive(net, d))
+        .collect();
+    for &(d, _) in &cut_off {
+        servable[d] = false;
+    }
+    let servable_required: f64 = if cut_off.is_empty() {
+        surviving_required
     } else {
-        v.lower.clamp(0.0, surviving_required)
+        (0..net.demands.len())
+            .filter(|&d| servable[d])
+            .map(|d| required[d])
+            .sum()
     };
-    let shortfall = (surviving_required - served_required).max(0.0);
 
+    let v = &solved.verification;
+    let served_required = if v.proven {
+        reported_in(v.lower, v.upper, servable_required)
+    } else {
+        v.lower.clamp(0.0, servable_required)
+    };
+    let shortfall = shortfall_of(cut_off_required, servable_required, served_required);
+
+    // A cut-off demand serves exactly nothing; any other flow is judged against its LP
+    // block (its origin's servable demand), never against a larger total.
     let alloc = &solved.allocation;
-    let demand_flow: Vec<f64> = alloc
-        .demand_flow
-        .iter()
-        .zip(&net.demands)
-        .map(|(&f, dem)| snap(snap(f.min(dem.required), dem.required, scale), 0.0, scale))
+    let scales = flow_scales(net, &servable);
+    let demand_flow: Vec<f64> = (0..net.demands.len())
+        .map(|d| {
+            let (f, r, scale) = (alloc.demand_flow[d], required[d], scales[d]);
+            if servable[d] {
+                snap(snap(f.min(r), r, scale), 0.0, scale)
+            } else {
+                0.0
+            }
+        })
         .collect();
     let demand_shortfall: Vec<f64> = (0..net.demands.len())
         .map(|d| {
-            if view.demand_alive(net, d) {
-                snap(net.demands[d].required - demand_flow[d], 0.0, scale)
-            } else {
+            if !view.demand_alive(net, d) {
                 0.0
+            } else if servable[d] {
+                snap(required[d] - demand_flow[d], 0.0, scales[d])
+            } else {
+                required[d]
             }
         })
         .collect();
@@ -690,26 +768,18 @@ pub fn finish(
     let (throughput, throughput_verification) = if let Some(t) = volume {
         let tv = &t.verification;
         let value = if tv.proven {
-            simplest_in(
-                tv.lower.min(surviving_volume),
-                tv.upper.min(surviving_volume),
-                surviving_volume,
-            )
+            reported_in(tv.lower, tv.upper, surviving_volume)
         } else {
             tv.lower.clamp(0.0, surviving_volume)
         };
-        (value.max(served_required), Some(t.verification))
+        (
+            value.max(served_required).min(surviving_volume),
+            Some(t.verification),
+        )
     } else {
         (served_required, None)
     };
 
-    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let cut_off: Vec<(usize, Unservable)> = view
-        .unservable(net, &required)
-        .into_iter()
-        .enumerate()
-        .filter_map(|(d, r)| r.map(|r| (d, r)))
-        .collect();
     Evaluation {
         cut_off,
         served_required,
@@ -774,6 +844,42 @@ mod tests {
         let e2 = evaluate(&n2, &Outage::default()).unwrap();
         assert!((e2.served_required - 10.0).abs() < 1e-6);
         assert!(e2.certified_gap() < 1e-6, "{e2:?}");
+    }
+
+    /// Hand-worked: the reported value of a proven interval never exceeds what is offered,
+    /// and is the offered amount itself whenever the interval reaches it.
+    #[test]
+    fn reported_values_stay_within_the_offer() {
+        assert_eq!(reported_in(149.99999999, 150.00000002, 150.0), 150.0);
+        assert_eq!(reported_in(150.00000001, 150.00000002, 150.0), 150.0);
+        assert_eq!(reported_in(104.999999979, 105.00000001, 150.0), 105.0);
+        assert_eq!(reported_in(89.99999, 90.00001, 150.0), 90.0);
+        let odd = 0.1 + 0.2 + 149.7;
+        assert!(reported_in(odd - 1e-9, odd + 1e-9, odd) <= odd);
+        // Crossing bounds above the offer (solver noise) still report the offer.
+        assert_eq!(reported_in(150.2, 150.1, 150.0), 150.0);
+    }
+
+    /// Hand-worked: 7e11 + 2.5e-6 − 7e11 is 0 in floating point; summed apart it is not.
+    #[test]
+    fn a_small_cut_off_part_is_not_lost() {
+        let surviving = 7e11 + 2.5e-6;
+        assert_eq!(surviving - 7e11, 0.0);
+        assert_eq!(shortfall_of(2.5e-6, 7e11, 7e11), 2.5e-6);
+        assert_eq!(shortfall_of(0.0, 20.0, 8.0), 12.0);
+    }
+
+    /// Hand-worked: demands from the same origin share its scale, others keep their own.
+    #[test]
+    fn flow_scales_are_per_origin() {
+        let n = net(
+            r#"{"sites":[{"id":"a","processing":10},{"id":"b"},{"id":"c"}],
+            "links":[{"id":"ab","from":"a","to":"b","capacity":1}],
+            "demands":[{"from":"a","to":"b","volume":7},{"from":"a","to":"c","volume":0.5},
+                       {"from":"b","to":"a","volume":2}]}"#,
+        );
+        assert_eq!(flow_scales(&n, &[true, true, true]), vec![7.5, 7.5, 2.0]);
+        assert_eq!(flow_scales(&n, &[true, false, true]), vec![7.0, 0.5, 2.0]);
     }
 
     #[test]
