@@ -43,6 +43,35 @@ const LOCAL_PASSES: usize = 4;
 /// and should not fail the budget on the last bit).
 const BUDGET_TOL: f64 = 1e-9;
 
+/// Per outage: the best reachable served_required `data.bests` capped by what the outage
+/// reaches with the additions `fixed` and every site of `rest` at its maximum (at most the
+/// total required demand; one verified re-solve per gainable outage).
+fn reachable_with(
+    net: &Network,
+    audit: &Audit,
+    rest: &Candidates,
+    fixed: &[f64],
+    data: &Generation<'_>,
+    opts: RunOptions,
+) -> Result<Vec<f64>> {
+    let cap = net.total_required();
+    let full: Vec<f64> = fixed
+        .iter()
+        .enumerate()
+        .map(|(v, f)| match rest.cost[v] {
+            Some(_) => f + rest.max[v].min(cap).max(0.0),
+            None => *f,
+        })
+        .collect();
+    let after = verify(&net.with_added_processing(&full), audit, data.gainable, opts)?;
+    Ok(data
+        .bests
+        .iter()
+        .zip(&after)
+        .map(|(b, e)| b.min(e.served_required))
+        .collect())
+}
+
 /// One checked module plan.
 struct Candidate {
     add: Vec<f64>,
@@ -77,7 +106,7 @@ pub(super) fn round_to_modules(
         .filter(|&v| cands.cost[v].is_some() && cands.step[v].is_some() && cands.max[v] > 0.0)
         .collect();
     let step = |v: usize| cands.step[v].unwrap_or(1.0);
-    let max_modules = |v: usize| (cands.max[v] / step(v) * (1.0 + ROUND_TOL)).floor();
+    let max_modules = |v: usize| cands.max_modules(v);
     // 1. Rounding options per modular site.
     let mut options: Vec<Vec<f64>> = modular
         .iter()
@@ -130,7 +159,7 @@ pub(super) fn round_to_modules(
         }
         let mut fixed = vec![0.0; n];
         for (&v, &c) in modular.iter().zip(counts) {
-            fixed[v] = c * step(v);
+            fixed[v] = cands.modules_to_units(v, c);
         }
         let fixed_cost = cands.cost_of(&fixed);
         let candidate = match budget {
@@ -144,7 +173,21 @@ pub(super) fn round_to_modules(
                         Goal::WorstWithin(_) => Goal::WorstWithin(left.unwrap_or(0.0)),
                         Goal::TotalWithin(_) => Goal::TotalWithin(left.unwrap_or(0.0)),
                     };
-                    let g = generate(&planned, audit, &rest, data, sub_goal, opts)?;
+                    // Close-all with these modules fixed: the unit-bought sites can only
+                    // lift each outage to what they reach at their own maximum, so that is
+                    // the target (a module plan short of the true best is then scored as
+                    // such, instead of making the master infeasible).
+                    let reach: Vec<f64>;
+                    let capped = if goal == Goal::CloseAll {
+                        reach = reachable_with(net, audit, &rest, &fixed, data, opts)?;
+                        Generation {
+                            bests: &reach,
+                            ..*data
+                        }
+                    } else {
+                        Generation { ..*data }
+                    };
+                    let g = generate(&planned, audit, &rest, &capped, sub_goal, opts)?;
                     let add: Vec<f64> = fixed.iter().zip(&g.add).map(|(f, a)| f + a).collect();
                     (add, g.after)
                 } else {
