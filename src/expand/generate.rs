@@ -22,7 +22,7 @@ pub(super) const MEET_TOL: f64 = 1e-6;
 const COST_TOL: f64 = 1e-9;
 
 /// Most rounds of [`top_up`].
-const TOP_UP_ROUNDS: usize = 4;
+pub(crate) const TOP_UP_ROUNDS: usize = 4;
 
 /// A shadow price of processing below this does not count as relief (see
 /// [`cheapest_raise`]).

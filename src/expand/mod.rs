@@ -29,7 +29,8 @@ mod tidy;
 
 pub use candidates::Candidates;
 pub(crate) use candidates::{add_vars, values};
-pub(crate) use close::target;
+pub(crate) use close::{target, top_up_one};
+pub(crate) use modules::cheapest_whole;
 pub use close::{Closing, close};
 pub use master::TOTAL_MAX_VARS;
 

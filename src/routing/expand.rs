@@ -18,8 +18,8 @@ use super::{DemandRoutes, Mode, RoutedAudit, fixed};
 use crate::audit::{self, RunOptions};
 use crate::error::{Error, Result};
 use crate::expand::{
-    Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOTAL_MAX_VARS, add_vars, target,
-    values,
+    Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOTAL_MAX_VARS, add_vars,
+    cheapest_whole, target, top_up_one, values,
 };
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -145,9 +145,11 @@ pub fn close(
         Some(&add),
     );
     served_row(&mut model, &index, 1.0, None, target(best, required));
-    let sol = lp::solve(&model)?;
-    let add_units = values(&add, &sol.x, scale);
-    let after = super::evaluate(&with_added(net, &add_units), trees, outage, Mode::Steered)?.eval;
+    let whole = cheapest_whole(&model, &add, cands)?;
+    let add_units = values(&add, &whole.x, scale);
+    let (add_units, after) = top_up_one(cands, best, add_units, |a| {
+        Ok(super::evaluate(&with_added(net, a), trees, outage, Mode::Steered)?.eval)
+    })?;
     Ok(Some(Closing {
         cost: cands.cost_of(&add_units),
         verified: after.proven()
@@ -157,7 +159,8 @@ pub fn close(
         best,
         not_closable: (required - best).max(0.0),
         binding_links,
-        dual_bound: model.dual_objective(&sol),
+        dual_bound: whole.dual_bound,
+        modules_exhaustive: whole.exhaustive,
     }))
 }
 
