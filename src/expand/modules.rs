@@ -1,4 +1,14 @@
-//! Plans in whole modules (`expand_step`).
+//! Plans and closings in whole modules (`expand_step`).
+//!
+//! A site with `expand_step` s and `expand_max` m buys one of 0, s, 2s, …, and m itself
+//! when m is not a multiple of s (the last module is partial: the file's `expand_max` is a
+//! hard limit, and the continuous best reachable value, computed with every site at m,
+//! stays reachable in whole modules). So rounding a continuous purchase up to the next
+//! allowed amount is always possible and never serves less: a plan or closing in whole
+//! modules exists whenever the continuous one does.
+//!
+//! Closings ([`cheapest_whole`]) are one LP each: branch and bound on it finds the cheapest
+//! whole-module closing. Plans hold many outages; for them:
 //!
 //! The LP backend (clarabel, interior point) has no integer variables, so there is no exact
 //! integer (MILP) search here. Instead the continuous plan is turned into whole modules by
@@ -16,8 +26,12 @@
 //!    cost), until no move helps (at most [`LOCAL_PASSES`] passes).
 //!
 //! Sites bought by the unit are re-optimised for each candidate by the same
-//! constraint-generation loop with the modules fixed (and the budget left). The chosen plan
-//! is never worse than any candidate checked, in particular than plain rounding.
+//! constraint-generation loop with the modules fixed (and the budget left); for close-all
+//! each outage's target is then its best capped by what it reaches with those modules and
+//! every unit-bought site at its maximum (one re-solve per gainable outage), so a rounding
+//! too low to close everything is scored as falling short instead of making the master
+//! infeasible. The chosen plan is never worse than any candidate checked, in particular
+//! than plain rounding (up for close-all, which reaches every best).
 
 use std::collections::BTreeMap;
 
