@@ -162,7 +162,13 @@ fn the_last_module_is_partial_at_expand_max() {
             plan["plan"]
         );
         let audit = json_of(&[
-            "audit", f.path(), "--depth", "0", "--close", "--routing", routing,
+            "audit",
+            f.path(),
+            "--depth",
+            "0",
+            "--close",
+            "--routing",
+            routing,
         ]);
         let c = baseline_closing(&audit);
         assert!((num(&c["add"]["c"]) - 6.0).abs() < 1e-9, "{routing}: {c}");
@@ -202,7 +208,13 @@ fn closing_buys_the_cheapest_whole_modules() {
     assert_eq!(bf, vec![3.0, 0.0], "brute force");
     for routing in ["best", "steered"] {
         let audit = json_of(&[
-            "audit", f.path(), "--depth", "0", "--close", "--routing", routing,
+            "audit",
+            f.path(),
+            "--depth",
+            "0",
+            "--close",
+            "--routing",
+            routing,
         ]);
         let c = baseline_closing(&audit);
         assert!((num(&c["cost"]) - bf_cost).abs() < 1e-6, "{routing}: {c}");
@@ -213,7 +225,11 @@ fn closing_buys_the_cheapest_whole_modules() {
     let text = redoubt(&["audit", f.path(), "--depth", "0", "--close", "-q"]);
     assert!(text.stdout.contains("b +3"), "{}", text.stdout);
     let plan = json_of(&["plan", f.path(), "--depth", "0"]);
-    assert!((num(&plan["plan"]["cost"]) - bf_cost).abs() < 1e-6, "{}", plan["plan"]);
+    assert!(
+        (num(&plan["plan"]["cost"]) - bf_cost).abs() < 1e-6,
+        "{}",
+        plan["plan"]
+    );
 }
 
 /// Hub network with non-round processing: a hub h (processing 1000 − Σ others) reaches o
@@ -239,7 +255,14 @@ fn hub() -> Value {
         json!({"id": "d", "expand_cost": 1, "expand_max": 5}),
     ];
     let mut links = vec![];
-    for (a, b) in [("h", "o"), ("h", "t"), ("h", "c"), ("h", "r"), ("r", "pb"), ("r", "d")] {
+    for (a, b) in [
+        ("h", "o"),
+        ("h", "t"),
+        ("h", "c"),
+        ("h", "r"),
+        ("r", "pb"),
+        ("r", "d"),
+    ] {
         links.push(json!({"id": format!("{a}-{b}"), "from": a, "to": b, "capacity": 2000}));
     }
     for (id, p) in procs {
@@ -283,7 +306,12 @@ fn close_all_plan_reaches_every_closing_target() {
         closings += 1;
         let required = num(&sc["required"]);
         let best = num(&closing["best_served_required"]);
-        assert_eq!(closing["verified"], json!(true), "{}: {closing}", sc["failed"]);
+        assert_eq!(
+            closing["verified"],
+            json!(true),
+            "{}: {closing}",
+            sc["failed"]
+        );
         assert!(
             num(&closing["served_after"]) >= best - GAP_TOL * required,
             "{}: {closing}",
@@ -306,5 +334,8 @@ fn close_all_plan_reaches_every_closing_target() {
             assert!(c >= num(&closing["add"]["c"]) - GAP_TOL * required);
         }
     }
-    assert_eq!(closings, 9, "seven processing losses and the two cut demand links");
+    assert_eq!(
+        closings, 9,
+        "seven processing losses and the two cut demand links"
+    );
 }

@@ -2,12 +2,13 @@
 //! expansion can reach ([`best_reachable`]).
 
 use super::candidates::{Candidates, add_vars, values};
+use super::generate::{TOP_UP_ROUNDS, cheapest_raise, reaches};
+use super::modules::cheapest_whole;
+use super::tidy::snap_up;
 use crate::error::Result;
 use crate::model::{LinkIdx, Network};
 use crate::scenario::Outage;
 use crate::solve::flow::{self, Cap, FlowIndex};
-use super::generate::{TOP_UP_ROUNDS, cheapest_raise, reaches};
-use super::modules::cheapest_whole;
 use crate::solve::lp::{Lp, Sense};
 use crate::solve::{self, Evaluation, TOL};
 
@@ -144,7 +145,7 @@ pub fn close(
     let index = flow::build(&mut model, net, outage, Cap::Required, 0.0, Some(&add));
     served_row(&mut model, &index, target(best, required));
     let whole = cheapest_whole(&model, &add, cands)?;
-    let add_units = values(&add, &whole.x, scale);
+    let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
     let (add_units, after) = top_up_one(cands, best, add_units, |a| {
         solve::evaluate_cold_walks(&net.with_added_processing(a), outage)
     })?;

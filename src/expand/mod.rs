@@ -29,11 +29,12 @@ mod tidy;
 
 pub use candidates::Candidates;
 pub(crate) use candidates::{add_vars, values};
+pub use close::{Closing, close};
 pub(crate) use close::{target, top_up_one};
 pub(crate) use generate::{TOP_UP_ROUNDS, cheapest_raise, reaches};
-pub(crate) use modules::cheapest_whole;
-pub use close::{Closing, close};
 pub use master::TOTAL_MAX_VARS;
+pub(crate) use modules::cheapest_whole;
+pub(crate) use tidy::snap_up;
 
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::Result;

@@ -78,7 +78,12 @@ fn reachable_with(
             None => *f,
         })
         .collect();
-    let after = verify(&net.with_added_processing(&full), audit, data.gainable, opts)?;
+    let after = verify(
+        &net.with_added_processing(&full),
+        audit,
+        data.gainable,
+        opts,
+    )?;
     Ok(data
         .bests
         .iter()

@@ -77,24 +77,7 @@ pub(super) fn tidy(
     //    largest addition's power of ten moves up onto it (never down: a purchase never ends
     //    below what its verified target needs), within expand_max and the budget. Sites that
     //    buy by the module are whole modules already.
-    let largest = add.iter().copied().fold(0.0, f64::max);
-    if largest > 0.0 {
-        let grid = SNAP_GRID * 10f64.powf(largest.log10().floor());
-        for v in (0..n).filter(|&v| cands.module(v).is_none()) {
-            let snapped = (add[v] / grid).ceil() * grid;
-            if add[v] > 0.0
-                && snapped > add[v]
-                && snapped - add[v] <= SNAP_UP_TOL * add[v]
-                && snapped <= cands.max[v]
-            {
-                let mut trial = add.clone();
-                trial[v] = snapped;
-                if budget.is_none_or(|b| cands.cost_of(&trial) <= b) {
-                    add = trial;
-                }
-            }
-        }
-    }
+    add = snap_up(cands, add, budget);
     // The trimmed and snapped plan re-solved (the drop pass and the drivers read it); for
     // close-all, an outage that reached its best before and no longer does (the trim
     // follows the proven lower-bound allocation, which may serve a hair less than the
@@ -150,6 +133,33 @@ pub(super) fn tidy(
         drivers,
         dropped,
     })
+}
+
+/// `add` with solver noise snapped up: each addition at a site bought by the unit that lies
+/// within [`SNAP_UP_TOL`] (relative) below a multiple of `SNAP_GRID` times the power of ten
+/// of the largest addition moves up onto it, when that stays within `expand_max` and
+/// (when given) the budget. Never lowers an addition, so it never serves less. O(sites).
+pub(crate) fn snap_up(cands: &Candidates, mut add: Vec<f64>, budget: Option<f64>) -> Vec<f64> {
+    let largest = add.iter().copied().fold(0.0, f64::max);
+    if largest <= 0.0 {
+        return add;
+    }
+    let grid = SNAP_GRID * 10f64.powf(largest.log10().floor());
+    for v in (0..add.len()).filter(|&v| cands.module(v).is_none()) {
+        let snapped = (add[v] / grid).ceil() * grid;
+        if add[v] > 0.0
+            && snapped > add[v]
+            && snapped - add[v] <= SNAP_UP_TOL * add[v]
+            && snapped <= cands.max[v]
+        {
+            let was = add[v];
+            add[v] = snapped;
+            if budget.is_some_and(|b| cands.cost_of(&add) > b) {
+                add[v] = was;
+            }
+        }
+    }
+    add
 }
 
 type Without = (Vec<(usize, f64)>, Vec<f64>, Vec<Evaluation>);

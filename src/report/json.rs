@@ -495,6 +495,7 @@ pub fn closing_json(
             "dual_bound": round9(c.dual_bound),
             "served_after": round9(c.served_after),
             "verified": c.verified,
+            "modules_exhaustive": c.modules_exhaustive,
             "default_costs": default_costs,
         }),
     }

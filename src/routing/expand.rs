@@ -19,7 +19,7 @@ use crate::audit::{self, RunOptions};
 use crate::error::{Error, Result};
 use crate::expand::{
     Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOP_UP_ROUNDS, TOTAL_MAX_VARS,
-    add_vars, cheapest_raise, cheapest_whole, reaches, target, top_up_one, values,
+    add_vars, cheapest_raise, cheapest_whole, reaches, snap_up, target, top_up_one, values,
 };
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -146,7 +146,7 @@ pub fn close(
     );
     served_row(&mut model, &index, 1.0, None, target(best, required));
     let whole = cheapest_whole(&model, &add, cands)?;
-    let add_units = values(&add, &whole.x, scale);
+    let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
     let (add_units, after) = top_up_one(cands, best, add_units, |a| {
         Ok(super::evaluate(&with_added(net, a), trees, outage, Mode::Steered)?.eval)
     })?;
