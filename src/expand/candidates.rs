@@ -76,7 +76,7 @@ impl Candidates {
     }
 
     /// Most modules at `v`: `⌈expand_max / step⌉` (the last one partial when `expand_max` is
-    /// not a multiple), within [`MODULE_TOL`]; infinite when unlimited. O(1).
+    /// not a multiple), within `MODULE_TOL` (1e-9); infinite when unlimited. O(1).
     pub fn max_modules(&self, v: usize) -> f64 {
         match self.module(v) {
             Some(step) => (self.max[v].max(0.0) / step - MODULE_TOL).ceil().max(0.0),
@@ -84,7 +84,7 @@ impl Candidates {
         }
     }
 
-    /// The least allowed addition at `v` that is at least `a` (less [`MODULE_TOL`] of a
+    /// The least allowed addition at `v` that is at least `a` (less `MODULE_TOL`, 1e-9, of a
     /// module: floating-point noise): at a modular site the next whole module
     /// count, capped at `expand_max`; `a` itself at a site bought by the unit. Never below
     /// `a` (but for that noise) unless `a` exceeds `expand_max`. O(1).

@@ -29,13 +29,13 @@ pub struct Closing {
     /// The dual objective of the continuous cost LP: equals `cost` by strong duality when
     /// no site buys by the module, else a lower bound on it.
     pub dual_bound: f64,
-    /// The whole-module search ([`super::modules::cheapest_whole`]) ran to the end, so no
+    /// The whole-module search (branch and bound, `modules::cheapest_whole`) ran to the end, so no
     /// cheaper whole-module closing exists; false when it stopped at its node limit (the
     /// closing is then the cheapest found). True without modules.
     pub modules_exhaustive: bool,
     /// served_required of the scenario re-solved (and verified) with `add` applied.
     pub served_after: f64,
-    /// `served_after` reaches `best` within [`GAP_TOL`] of the required demand and that
+    /// `served_after` reaches `best` within [`crate::solve::GAP_TOL`] of the required demand and that
     /// re-solve was proven optimal: the closing is checked, not just computed.
     pub verified: bool,
 }
@@ -121,10 +121,10 @@ const PRICE_BINDS: f64 = 1e-6;
 ///
 /// The best value is one verified solve with every candidate at its maximum; the cost is
 /// the LP minimising cost subject to served ≥ best (a hair below when best is not the whole
-/// required demand, see [`target`]), searched for whole modules by branch and bound
-/// ([`cheapest_whole`]). The purchase is then re-solved; where solver inaccuracy leaves it
+/// required demand, see `target`), searched for whole modules by branch and bound
+/// (`modules::cheapest_whole`). The purchase is then re-solved; where solver inaccuracy leaves it
 /// short of best by more than the audit's proof tolerance, it is raised where the shadow
-/// price makes that cheapest ([`top_up_one`]) and re-solved again.
+/// price makes that cheapest (`top_up_one`) and re-solved again.
 pub fn close(
     net: &Network,
     outage: &Outage,

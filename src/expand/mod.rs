@@ -177,16 +177,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         Goal::CloseAll => None,
         Goal::WorstWithin(b) | Goal::TotalWithin(b) => Some(b),
     };
-    let tidied = tidy::tidy(
-        net,
-        audit,
-        &cands,
-        &gainable,
-        &bests,
-        budget,
-        (add, after),
-        opts,
-    )?;
+    let tidied = tidy::tidy(net, audit, &cands, &data, budget, (add, after), opts)?;
     let short: Vec<usize> = (0..n_out).filter(|&k| eval(k).shortfall > 0.0).collect();
     let after = verify(&net.with_added_processing(&tidied.add), audit, &short, opts)?;
     let cost = cands.cost_of(&tidied.add);

@@ -18,7 +18,7 @@
 //!    others kept), with the units they lose: they set the purchase.
 
 use super::candidates::Candidates;
-use super::generate::{reaches, verify};
+use super::generate::{Generation, reaches, verify};
 use crate::audit::{Audit, RunOptions};
 use crate::error::Result;
 use crate::model::Network;
@@ -46,18 +46,20 @@ fn used_addition(net: &Network, e: &Evaluation, v: usize) -> f64 {
 }
 
 /// Trims, snaps, drops and names the drivers of `plan = (add, after)` (see the module
-/// comment); `after` must be `add` evaluated with every outage of `gainable` re-solved. Cost: one re-solve of the
-/// outages using each bought site, twice for sites kept before a later drop.
+/// comment); `after` must be `add` evaluated with every outage of `data.gainable`
+/// re-solved. Cost: one re-solve of the gainable outages when the trim or the snap changed
+/// the plan, one re-solve of the outages using each bought site, twice for sites kept
+/// before a later drop.
 pub(super) fn tidy(
     net: &Network,
     audit: &Audit,
     cands: &Candidates,
-    gainable: &[usize],
-    bests: &[f64],
+    data: &Generation<'_>,
     budget: Option<f64>,
     plan: (Vec<f64>, Vec<Evaluation>),
     opts: RunOptions,
 ) -> Result<Tidied> {
+    let (gainable, bests) = (data.gainable, data.bests);
     let (mut add, mut after) = plan;
     let before = (add.clone(), after.clone());
     let n = net.sites.len();
