@@ -179,8 +179,8 @@ pub fn with_added(net: &Network, add: &[f64]) -> Network {
 /// close-all (least cost with every outage at its best reachable), worst within budget
 /// (largest t with served_k ≥ t·required_k), or total within budget (most Σ served over
 /// the scenarios). Sites with `expand_step` are then rounded to whole modules (up for
-/// close-all, the last module partial at expand_max; down within a budget, keeping a site
-/// the LP bought out) without a repair pass. The plan is verified by re-solving every short
+/// close-all, the last module partial at expand_max; down within a budget, then back up
+/// where the budget still allows, cheapest raise first) without a repair pass. The plan is verified by re-solving every short
 /// outage with it applied; for close-all, an outage left short of its best by more than
 /// the audit's proof tolerance (LP inaccuracy) is topped up by shadow price and re-solved.
 pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Result<Plan> {
@@ -306,6 +306,26 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
                 },
             )
             .collect();
+        // Within a budget, a site rounded down goes back up to the LP's amount in whole
+        // modules when the budget still allows it, cheapest raise first (more processing
+        // never serves less, so this is never worse than rounding down).
+        let mut rounded = rounded;
+        if let Goal::WorstWithin(b) | Goal::TotalWithin(b) = goal {
+            let mut raises: Vec<(f64, usize)> = (0..rounded.len())
+                .filter(|&v| cands.module(v).is_some())
+                .map(|v| (cands.round_up(v, lp_add[v]), v))
+                .filter(|&(to, v)| to > rounded[v])
+                .map(|(to, v)| (cands.cost[v].unwrap_or(0.0) * (to - rounded[v]), v))
+                .collect();
+            raises.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+            for (_, v) in raises {
+                let mut trial = rounded.clone();
+                trial[v] = cands.round_up(v, lp_add[v]);
+                if cands.cost_of(&trial) <= b * (1.0 + 1e-9) {
+                    rounded = trial;
+                }
+            }
+        }
         let cost = cands.cost_of(&rounded);
         (
             rounded,
