@@ -60,14 +60,57 @@ impl Candidates {
             .sum()
     }
 
+    /// The module size at `v` when `v` is a candidate that buys in whole modules.
+    pub fn module(&self, v: usize) -> Option<f64> {
+        self.cost[v].and(self.step[v]).filter(|s| *s > 0.0)
+    }
+
+    /// The addition of `count` modules at `v`: `count · step`, capped at `expand_max` (the
+    /// last module is partial when `expand_max` is not a multiple of the step). `count` is
+    /// taken as is at a site bought by the unit. O(1).
+    pub fn modules_to_units(&self, v: usize, count: f64) -> f64 {
+        match self.module(v) {
+            Some(step) => (count * step).min(self.max[v].max(0.0)),
+            None => count,
+        }
+    }
+
+    /// Most modules at `v`: `⌈expand_max / step⌉` (the last one partial when `expand_max` is
+    /// not a multiple), within `MODULE_TOL` (1e-9); infinite when unlimited. O(1).
+    pub fn max_modules(&self, v: usize) -> f64 {
+        match self.module(v) {
+            Some(step) => (self.max[v].max(0.0) / step - MODULE_TOL).ceil().max(0.0),
+            None => self.max[v],
+        }
+    }
+
+    /// The least allowed addition at `v` that is at least `a` (less `MODULE_TOL`, 1e-9, of a
+    /// module: floating-point noise): at a modular site the next whole module
+    /// count, capped at `expand_max`; `a` itself at a site bought by the unit. Never below
+    /// `a` (but for that noise) unless `a` exceeds `expand_max`. O(1).
+    pub fn round_up(&self, v: usize, a: f64) -> f64 {
+        match self.module(v) {
+            Some(step) if a > 0.0 => {
+                self.modules_to_units(v, (a / step - MODULE_TOL).ceil().max(0.0))
+            }
+            Some(_) => 0.0,
+            None => a,
+        }
+    }
+
     /// True when some candidate site buys in whole modules.
     pub fn any_modular(&self) -> bool {
         self.cost
             .iter()
             .zip(&self.step)
-            .any(|(c, s)| c.is_some() && s.is_some())
+            .any(|(c, s)| c.is_some() && s.is_some_and(|s| s > 0.0))
     }
 }
+
+/// Relative tolerance (of a module) within which an amount just above a whole number of
+/// modules counts as that number (floating-point noise: 8.000000000001 in modules of 4 is
+/// 2 modules, not 3).
+pub const MODULE_TOL: f64 = 1e-9;
 
 /// Adds one `add_v` variable per candidate site that survives `outage` (all candidates
 /// when `outage` is `None`), bounded by `min(expand_max, cap)` and with objective
@@ -87,7 +130,12 @@ pub(crate) fn add_vars(
             if alive.as_ref().is_some_and(|a| !a[v]) || cands.max[v] <= 0.0 {
                 return None;
             }
-            Some(lp.add_var(0.0, cands.max[v].min(cap), c * cost_weight))
+            let bound = cands.max[v].min(cap);
+            let j = lp.add_var(0.0, bound, c * cost_weight);
+            if bound.is_finite() {
+                lp.magnitude[j] = bound;
+            }
+            Some(j)
         })
         .collect()
 }

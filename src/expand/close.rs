@@ -2,12 +2,15 @@
 //! expansion can reach ([`best_reachable`]).
 
 use super::candidates::{Candidates, add_vars, values};
+use super::generate::{TOP_UP_ROUNDS, cheapest_raise, reaches};
+use super::modules::cheapest_whole;
+use super::tidy::snap_up;
 use crate::error::Result;
 use crate::model::{LinkIdx, Network};
 use crate::scenario::Outage;
 use crate::solve::flow::{self, Cap, FlowIndex};
-use crate::solve::lp::{self, Lp, Sense};
-use crate::solve::{self, Evaluation, GAP_TOL, TOL};
+use crate::solve::lp::{Lp, Sense};
+use crate::solve::{self, Evaluation, TOL};
 
 /// The cheapest expansion for one scenario.
 #[derive(Debug, Clone, PartialEq)]
@@ -23,11 +26,16 @@ pub struct Closing {
     /// Links whose capacity limits `best` (positive shadow price with unlimited
     /// expansion), in link order.
     pub binding_links: Vec<LinkIdx>,
-    /// The dual objective of the cost LP (equals `cost` by strong duality).
+    /// The dual objective of the continuous cost LP: equals `cost` by strong duality when
+    /// no site buys by the module, else a lower bound on it.
     pub dual_bound: f64,
+    /// The whole-module search (branch and bound, `modules::cheapest_whole`) ran to the end, so no
+    /// cheaper whole-module closing exists; false when it stopped at its node limit (the
+    /// closing is then the cheapest found). True without modules.
+    pub modules_exhaustive: bool,
     /// served_required of the scenario re-solved (and verified) with `add` applied.
     pub served_after: f64,
-    /// `served_after` reaches `best` within [`GAP_TOL`] of the required demand and that
+    /// `served_after` reaches `best` within [`crate::solve::GAP_TOL`] of the required demand and that
     /// re-solve was proven optimal: the closing is checked, not just computed.
     pub verified: bool,
 }
@@ -49,6 +57,7 @@ impl Closing {
             dual_bound: 0.0,
             served_after: eval.served_required,
             verified: eval.proven(),
+            modules_exhaustive: true,
         }
     }
 }
@@ -107,11 +116,15 @@ fn best_reachable_raw(
 const PRICE_BINDS: f64 = 1e-6;
 
 /// For one scenario with a shortfall, the cheapest expansion (Σ expand_cost · add, add ≤
-/// expand_max) with which served_required reaches the best value any expansion reaches;
-/// `None` when the scenario has no shortfall.
+/// expand_max, whole modules where a site has `expand_step`) with which served_required
+/// reaches the best value any expansion reaches; `None` when the scenario has no shortfall.
 ///
-/// Two LPs: maximise served with unlimited (bounded by expand_max) additions, then
-/// minimise cost subject to served ≥ best − 1e-7·best.
+/// The best value is one verified solve with every candidate at its maximum; the cost is
+/// the LP minimising cost subject to served ≥ best (a hair below when best is not the whole
+/// required demand, see `target`), searched for whole modules by branch and bound
+/// (`modules::cheapest_whole`). The purchase is then re-solved; where solver inaccuracy leaves it
+/// short of best by more than the audit's proof tolerance, it is raised where the shadow
+/// price makes that cheapest (`top_up_one`) and re-solved again.
 pub fn close(
     net: &Network,
     outage: &Outage,
@@ -131,19 +144,46 @@ pub fn close(
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
     let index = flow::build(&mut model, net, outage, Cap::Required, 0.0, Some(&add));
     served_row(&mut model, &index, target(best, required));
-    let sol = lp::solve(&model)?;
-    let add_units = values(&add, &sol.x, scale);
-    let after = solve::evaluate_cold_walks(&net.with_added_processing(&add_units), outage)?;
+    let whole = cheapest_whole(&model, &add, cands)?;
+    let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
+    let (add_units, after) = top_up_one(cands, best, add_units, |a| {
+        solve::evaluate_cold_walks(&net.with_added_processing(a), outage)
+    })?;
     Ok(Some(Closing {
         cost: cands.cost_of(&add_units),
-        verified: after.proven() && after.served_required >= best - GAP_TOL * required,
+        verified: after.proven() && reaches(&after, best),
         served_after: after.served_required,
         add: add_units,
         best,
         not_closable: (required - best).max(0.0),
         binding_links,
-        dual_bound: model.dual_objective(&sol),
+        dual_bound: whole.dual_bound,
+        modules_exhaustive: whole.exhaustive,
     }))
+}
+
+/// One closing's purchase `add` evaluated by `evaluate`, raised by [`cheapest_raise`]
+/// while the evaluation misses `best` by [`reaches`] (solver inaccuracy in the cost LP;
+/// at most [`TOP_UP_ROUNDS`] re-evaluations), with its last evaluation.
+pub(crate) fn top_up_one(
+    cands: &Candidates,
+    best: f64,
+    mut add: Vec<f64>,
+    evaluate: impl Fn(&[f64]) -> Result<Evaluation>,
+) -> Result<(Vec<f64>, Evaluation)> {
+    let mut after = evaluate(&add)?;
+    for _ in 0..TOP_UP_ROUNDS {
+        if reaches(&after, best) {
+            break;
+        }
+        let Some((v, to)) = cheapest_raise(cands, &add, &after, best - after.served_required)
+        else {
+            break;
+        };
+        add[v] = to;
+        after = evaluate(&add)?;
+    }
+    Ok((add, after))
 }
 
 /// The served target of a cost-minimising model: the best reachable value itself when it

@@ -9,17 +9,32 @@ use super::{Goal, Round};
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::Result;
 use crate::model::Network;
-use crate::solve::{self, Evaluation};
+use crate::solve::{self, Evaluation, GAP_TOL};
 
 /// Outages added to the master at most per round (the most violated first).
 const ADD_PER_ROUND: usize = 4;
 
-/// Relative tolerance (of an outage's required demand) below which an outage counts as at
-/// its best reachable value, and (absolute, on fractions) at the master's worst fraction.
+/// Absolute tolerance (on served fractions) within which an outage counts as at the
+/// master's worst fraction, and two worst fractions or totals (relative) count as equal.
 pub(super) const MEET_TOL: f64 = 1e-6;
 
 /// Relative tolerance under which two costs count as equal when plans are compared.
 const COST_TOL: f64 = 1e-9;
+
+/// Most rounds of [`top_up`].
+pub(crate) const TOP_UP_ROUNDS: usize = 4;
+
+/// A shadow price of processing below this does not count as relief (see
+/// [`cheapest_raise`]).
+const PRICE_MIN: f64 = 1e-6;
+
+/// The proof standard of a purchase: the evaluation `e` of an outage with the purchase
+/// applied (served_required is proven achievable: inside the proven interval, or the proven
+/// lower bound when unproven) reaches `best` within [`GAP_TOL`] of the outage's surviving
+/// required demand, the tolerance every audit result is proven to. O(1).
+pub(crate) fn reaches(e: &Evaluation, best: f64) -> bool {
+    e.served_required >= best - GAP_TOL * e.surviving_required
+}
 
 /// The outage data constraint generation works on.
 pub(super) struct Generation<'a> {
@@ -51,7 +66,11 @@ pub(super) struct Generated {
 /// every outage outside the master at its best and above `t` is optimal for all outages
 /// (served never exceeds best, so adding those outages could not change any phase), so
 /// the loop is exact; each round adds at least one outage or stops, so it ends after at
-/// most |gainable| rounds.
+/// most |gainable| rounds. "Below best" is judged by the proof standard [`reaches`], so an
+/// outage outside the master is never left further below its best than the audit's proven
+/// tolerance; for close-all the final plan is then topped up ([`top_up`]) where the
+/// master's own outages miss that standard (the interior-point master may return a plan
+/// that meets its rows only to about 1e-8 of the whole model's magnitude).
 pub(super) fn generate(
     net: &Network,
     audit: &Audit,
@@ -98,7 +117,7 @@ pub(super) fn generate(
                 _ => 0.0,
             };
             let below_best = ((data.bests[k] - e.served_required) / scale).max(0.0);
-            if below_t > MEET_TOL || below_best > MEET_TOL {
+            if below_t > MEET_TOL || !reaches(e, data.bests[k]) {
                 violated.push((below_t, below_best, k));
             }
         }
@@ -113,14 +132,87 @@ pub(super) fn generate(
             violated: violated.len(),
         });
         if violated.is_empty() {
-            return Ok(Generated {
-                add: master.add,
-                rounds,
-                after,
-            });
+            let (add, after) = if goal == Goal::CloseAll {
+                top_up(
+                    net,
+                    audit,
+                    cands,
+                    data.bests,
+                    data.gainable,
+                    (master.add, after),
+                    opts,
+                )?
+            } else {
+                (master.add, after)
+            };
+            return Ok(Generated { add, rounds, after });
         }
         active.extend(violated.iter().take(ADD_PER_ROUND).map(|v| v.2));
     }
+}
+
+/// Raises the plan `(add, after)` (`after`: `add` evaluated with every outage of `which`
+/// re-solved) until every outage of `which` reaches its best by [`reaches`]: each short
+/// outage asks for [`cheapest_raise`], each site takes the largest level asked of it, and
+/// the outages are re-solved; at most [`TOP_UP_ROUNDS`] rounds, and it stops early when
+/// no short outage has a priced candidate. The deficits it closes are solver inaccuracy
+/// (far below a unit), so the plan's cost barely moves. Cost: one [`verify`] per round.
+pub(super) fn top_up(
+    net: &Network,
+    audit: &Audit,
+    cands: &Candidates,
+    bests: &[f64],
+    which: &[usize],
+    plan: (Vec<f64>, Vec<Evaluation>),
+    opts: RunOptions,
+) -> Result<(Vec<f64>, Vec<Evaluation>)> {
+    let (mut add, mut after) = plan;
+    for _ in 0..TOP_UP_ROUNDS {
+        let mut level = add.clone();
+        for &k in which {
+            let e = &after[k];
+            if reaches(e, bests[k]) {
+                continue;
+            }
+            if let Some((v, to)) = cheapest_raise(cands, &add, e, bests[k] - e.served_required) {
+                level[v] = level[v].max(to);
+            }
+        }
+        if level == add {
+            break;
+        }
+        add = level;
+        after = verify(&net.with_added_processing(&add), audit, which, opts)?;
+    }
+    Ok((add, after))
+}
+
+/// For an outage evaluated as `e` with `add` applied that serves `deficit` less than it
+/// must: the candidate site where serving it by the site's shadow price of processing
+/// costs least, and the addition there that does (`add_v + deficit / price`, rounded up to
+/// whole modules where the site buys by the module, at most `expand_max`); `None` when no
+/// candidate has a price above [`PRICE_MIN`] and room left. Ties go to the site earlier in
+/// the file. O(sites).
+pub(crate) fn cheapest_raise(
+    cands: &Candidates,
+    add: &[f64],
+    e: &Evaluation,
+    deficit: f64,
+) -> Option<(usize, f64)> {
+    (0..add.len())
+        .filter_map(|v| {
+            let cost = cands.cost[v]?;
+            let price = e.site_price.get(v).copied().flatten()?;
+            if price <= PRICE_MIN {
+                return None;
+            }
+            let to = cands
+                .round_up(v, add[v] + deficit / price.min(1.0))
+                .min(cands.max[v]);
+            (to > add[v]).then_some((v, to, cost * (to - add[v])))
+        })
+        .min_by(|a, b| a.2.total_cmp(&b.2).then(a.0.cmp(&b.0)))
+        .map(|(v, to, _)| (v, to))
 }
 
 /// Every outage with `planned` (the network with a plan applied): the outages in `which`
@@ -149,7 +241,7 @@ pub(super) struct Score {
     pub worst: f64,
     /// Σ over scenarios of the shortfall (an outage counts once per scenario).
     pub total_shortfall: f64,
-    /// Whether every outage reaches its best reachable value.
+    /// Whether every outage reaches its best reachable value ([`reaches`]).
     pub at_best: bool,
     pub cost: f64,
 }
@@ -163,10 +255,7 @@ impl Score {
                 .map(Evaluation::served_fraction)
                 .fold(1.0, f64::min),
             total_shortfall: audit.outage_of.iter().map(|&k| after[k].shortfall).sum(),
-            at_best: after
-                .iter()
-                .zip(bests)
-                .all(|(e, b)| e.served_required >= b - MEET_TOL * e.surviving_required.max(1.0)),
+            at_best: after.iter().zip(bests).all(|(e, b)| reaches(e, *b)),
             cost,
         }
     }

@@ -29,9 +29,12 @@ mod tidy;
 
 pub use candidates::Candidates;
 pub(crate) use candidates::{add_vars, values};
-pub(crate) use close::target;
 pub use close::{Closing, close};
+pub(crate) use close::{target, top_up_one};
+pub(crate) use generate::{TOP_UP_ROUNDS, cheapest_raise, reaches};
 pub use master::TOTAL_MAX_VARS;
+pub(crate) use modules::cheapest_whole;
+pub(crate) use tidy::snap_up;
 
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::Result;
@@ -174,7 +177,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         Goal::CloseAll => None,
         Goal::WorstWithin(b) | Goal::TotalWithin(b) => Some(b),
     };
-    let tidied = tidy::tidy(net, audit, &cands, &gainable, budget, (add, after), opts)?;
+    let tidied = tidy::tidy(net, audit, &cands, &data, budget, (add, after), opts)?;
     let short: Vec<usize> = (0..n_out).filter(|&k| eval(k).shortfall > 0.0).collect();
     let after = verify(&net.with_added_processing(&tidied.add), audit, &short, opts)?;
     let cost = cands.cost_of(&tidied.add);

@@ -1,4 +1,14 @@
-//! Plans in whole modules (`expand_step`).
+//! Plans and closings in whole modules (`expand_step`).
+//!
+//! A site with `expand_step` s and `expand_max` m buys one of 0, s, 2s, …, and m itself
+//! when m is not a multiple of s (the last module is partial: the file's `expand_max` is a
+//! hard limit, and the continuous best reachable value, computed with every site at m,
+//! stays reachable in whole modules). So rounding a continuous purchase up to the next
+//! allowed amount is always possible and never serves less: a plan or closing in whole
+//! modules exists whenever the continuous one does.
+//!
+//! Closings ([`cheapest_whole`]) are one LP each: branch and bound on it finds the cheapest
+//! whole-module closing. Plans hold many outages; for them:
 //!
 //! The LP backend (clarabel, interior point) has no integer variables, so there is no exact
 //! integer (MILP) search here. Instead the continuous plan is turned into whole modules by
@@ -16,8 +26,12 @@
 //!    cost), until no move helps (at most [`LOCAL_PASSES`] passes).
 //!
 //! Sites bought by the unit are re-optimised for each candidate by the same
-//! constraint-generation loop with the modules fixed (and the budget left). The chosen plan
-//! is never worse than any candidate checked, in particular than plain rounding.
+//! constraint-generation loop with the modules fixed (and the budget left); for close-all
+//! each outage's target is then its best capped by what it reaches with those modules and
+//! every unit-bought site at its maximum (one re-solve per gainable outage), so a rounding
+//! too low to close everything is scored as falling short instead of making the master
+//! infeasible. The chosen plan is never worse than any candidate checked, in particular
+//! than plain rounding (up for close-all, which reaches every best).
 
 use std::collections::BTreeMap;
 
@@ -28,6 +42,7 @@ use crate::audit::{Audit, RunOptions};
 use crate::error::Result;
 use crate::model::Network;
 use crate::solve::Evaluation;
+use crate::solve::lp::{self, Lp};
 
 /// Relative tolerance within which an LP module count is taken as whole (1e-6 of a module
 /// or of the count): an LP plan of 29.999999 in modules of 10 is 3 modules.
@@ -42,6 +57,40 @@ const LOCAL_PASSES: usize = 4;
 /// Relative slack on the budget for a module plan (its cost is a sum of whole modules
 /// and should not fail the budget on the last bit).
 const BUDGET_TOL: f64 = 1e-9;
+
+/// Per outage: the best reachable served_required `data.bests` capped by what the outage
+/// reaches with the additions `fixed` and every site of `rest` at its maximum (at most the
+/// total required demand; one verified re-solve per gainable outage).
+fn reachable_with(
+    net: &Network,
+    audit: &Audit,
+    rest: &Candidates,
+    fixed: &[f64],
+    data: &Generation<'_>,
+    opts: RunOptions,
+) -> Result<Vec<f64>> {
+    let cap = net.total_required();
+    let full: Vec<f64> = fixed
+        .iter()
+        .enumerate()
+        .map(|(v, f)| match rest.cost[v] {
+            Some(_) => f + rest.max[v].min(cap).max(0.0),
+            None => *f,
+        })
+        .collect();
+    let after = verify(
+        &net.with_added_processing(&full),
+        audit,
+        data.gainable,
+        opts,
+    )?;
+    Ok(data
+        .bests
+        .iter()
+        .zip(&after)
+        .map(|(b, e)| b.min(e.served_required))
+        .collect())
+}
 
 /// One checked module plan.
 struct Candidate {
@@ -77,7 +126,7 @@ pub(super) fn round_to_modules(
         .filter(|&v| cands.cost[v].is_some() && cands.step[v].is_some() && cands.max[v] > 0.0)
         .collect();
     let step = |v: usize| cands.step[v].unwrap_or(1.0);
-    let max_modules = |v: usize| (cands.max[v] / step(v) * (1.0 + ROUND_TOL)).floor();
+    let max_modules = |v: usize| cands.max_modules(v);
     // 1. Rounding options per modular site.
     let mut options: Vec<Vec<f64>> = modular
         .iter()
@@ -130,7 +179,7 @@ pub(super) fn round_to_modules(
         }
         let mut fixed = vec![0.0; n];
         for (&v, &c) in modular.iter().zip(counts) {
-            fixed[v] = c * step(v);
+            fixed[v] = cands.modules_to_units(v, c);
         }
         let fixed_cost = cands.cost_of(&fixed);
         let candidate = match budget {
@@ -144,7 +193,21 @@ pub(super) fn round_to_modules(
                         Goal::WorstWithin(_) => Goal::WorstWithin(left.unwrap_or(0.0)),
                         Goal::TotalWithin(_) => Goal::TotalWithin(left.unwrap_or(0.0)),
                     };
-                    let g = generate(&planned, audit, &rest, data, sub_goal, opts)?;
+                    // Close-all with these modules fixed: the unit-bought sites can only
+                    // lift each outage to what they reach at their own maximum, so that is
+                    // the target (a module plan short of the true best is then scored as
+                    // such, instead of making the master infeasible).
+                    let reach: Vec<f64>;
+                    let capped = if goal == Goal::CloseAll {
+                        reach = reachable_with(net, audit, &rest, &fixed, data, opts)?;
+                        Generation {
+                            bests: &reach,
+                            ..*data
+                        }
+                    } else {
+                        Generation { ..*data }
+                    };
+                    let g = generate(&planned, audit, &rest, &capped, sub_goal, opts)?;
                     let add: Vec<f64> = fixed.iter().zip(&g.add).map(|(f, a)| f + a).collect();
                     (add, g.after)
                 } else {
@@ -233,4 +296,139 @@ pub(super) fn round_to_modules(
             checked,
         },
     ))
+}
+
+/// Most LP solves of one [`cheapest_whole`] search.
+pub(crate) const MAX_NODES: usize = 200;
+
+/// What [`cheapest_whole`] found.
+pub(crate) struct WholeModules {
+    /// The chosen solution's variable values: every modular addition whole modules (the
+    /// last one partial at `expand_max`), the other variables as the LP left them.
+    pub x: Vec<f64>,
+    /// The continuous optimum's dual objective: a lower bound on the cost of any purchase
+    /// (equal to the cost when no site buys by the module).
+    pub dual_bound: f64,
+    /// The search ran to the end: no cheaper whole-module solution exists (up to the LP
+    /// tolerances); false when it stopped at [`MAX_NODES`] solves with the best found.
+    pub exhaustive: bool,
+}
+
+/// The cheapest solution of `model` (minimising the purchase cost; `add[v]` its addition
+/// variables) with every addition at a site that buys by the module (`expand_step`) a whole
+/// number of modules, at most `expand_max`: branch and bound on the LP relaxation. At a
+/// node whose LP optimum has a modular addition `x` strictly between two allowed amounts
+/// `lo < x < hi` (consecutive multiples of the step, or the last multiple and
+/// `expand_max`), two children bound it by `≤ lo` and `≥ hi`; a node is pruned when its
+/// LP cost is not below the best whole-module solution found (or its LP fails: an
+/// infeasible branch). Every node's LP solution rounded up to allowed amounts is itself a
+/// whole-module solution (more processing never serves less), so the root already gives
+/// one. Amounts within [`ROUND_TOL`] of a module below an allowed amount count as that
+/// amount (rounded up, never down). Nodes are taken cheapest bound first. Cost: at most
+/// [`MAX_NODES`] LP solves of the model's size.
+pub(crate) fn cheapest_whole(
+    model: &Lp,
+    add: &[Option<usize>],
+    cands: &Candidates,
+) -> Result<WholeModules> {
+    let mut model = model.clone();
+    let modular: Vec<(usize, usize)> = add
+        .iter()
+        .enumerate()
+        .filter_map(|(v, a)| a.filter(|_| cands.module(v).is_some()).map(|j| (v, j)))
+        .collect();
+    // A whole module may pass the variable's bound (the demand at stake): allow it.
+    for &(v, j) in &modular {
+        model.upper[j] = model.upper[j].max(cands.round_up(v, model.upper[j]));
+    }
+    let root = lp::solve(&model)?;
+    let dual_bound = model.dual_objective(&root);
+    if modular.is_empty() {
+        return Ok(WholeModules {
+            x: root.x,
+            dual_bound,
+            exhaustive: true,
+        });
+    }
+    let cost = |x: &[f64]| -> f64 { model.objective.iter().zip(x).map(|(c, v)| c * v).sum() };
+    let rounded = |x: &[f64]| -> Vec<f64> {
+        let mut y = x.to_vec();
+        for &(v, j) in &modular {
+            y[j] = cands.round_up(v, x[j].max(0.0));
+        }
+        y
+    };
+    let mut best_x = rounded(&root.x);
+    let mut best_cost = cost(&best_x);
+    let prune = |c: f64, best: f64| c >= best - 1e-9 * best.abs().max(1.0);
+    // Open nodes: (LP bound of the parent, bounds of the modular variables).
+    let mut open: Vec<(f64, Vec<(f64, f64)>)> = Vec::new();
+    let mut node = Some((
+        root,
+        modular
+            .iter()
+            .map(|&(_, j)| (model.lower[j], model.upper[j]))
+            .collect::<Vec<_>>(),
+    ));
+    let mut solves = 1;
+    loop {
+        if let Some((sol, bounds)) = node.take() {
+            let c = cost(&sol.x);
+            if !prune(c, best_cost) {
+                let y = rounded(&sol.x);
+                let cy = cost(&y);
+                if cy < best_cost {
+                    best_cost = cy;
+                    best_x = y;
+                }
+                // The modular addition farthest (in modules) from an allowed amount above.
+                let branch = modular
+                    .iter()
+                    .enumerate()
+                    .map(|(i, &(v, j))| {
+                        let step = cands.module(v).unwrap_or(1.0);
+                        (i, (cands.round_up(v, sol.x[j].max(0.0)) - sol.x[j]) / step)
+                    })
+                    .filter(|&(_, gap)| gap > ROUND_TOL)
+                    .max_by(|a, b| a.1.total_cmp(&b.1).then(b.0.cmp(&a.0)));
+                if let Some((i, _)) = branch {
+                    let (v, j) = modular[i];
+                    let x = sol.x[j].max(0.0);
+                    let hi = cands.round_up(v, x);
+                    let step = cands.module(v).unwrap_or(1.0);
+                    let lo = ((x / step).floor() * step).min(x);
+                    let mut down = bounds.clone();
+                    down[i].1 = lo.min(down[i].1);
+                    let mut up = bounds;
+                    up[i].0 = hi.max(up[i].0);
+                    open.push((c, down));
+                    open.push((c, up));
+                }
+            }
+        }
+        open.retain(|(b, _)| !prune(*b, best_cost));
+        if open.is_empty() || solves >= MAX_NODES {
+            break;
+        }
+        // Cheapest bound first (the last pushed among equals: depth first on ties).
+        let i = (0..open.len())
+            .min_by(|&a, &b| open[a].0.total_cmp(&open[b].0).then(b.cmp(&a)))
+            .expect("not empty");
+        let (_, bounds) = open.swap_remove(i);
+        for (&(_, j), &(lo, hi)) in modular.iter().zip(&bounds) {
+            model.lower[j] = lo;
+            model.upper[j] = hi;
+        }
+        solves += 1;
+        if bounds.iter().all(|(lo, hi)| lo <= hi)
+            && let Ok(sol) = lp::solve(&model)
+        {
+            node = Some((sol, bounds));
+        }
+    }
+    Ok(WholeModules {
+        x: best_x,
+        dual_bound,
+        exhaustive: open.is_empty(),
+    })
 }

@@ -535,3 +535,104 @@ fn module_rounding_uses_a_relative_tolerance() {
         assert!(p.after[0].shortfall <= EPS, "{goal:?}");
     }
 }
+
+/// Closings in whole modules against brute force over every module count: on the square
+/// with steps (2, 3, 2) and with steps (5, 3, 4), whose `expand_max` (12, 12, 6) is not a
+/// multiple of 5 or 4, so the last module at a and c is partial (a: 0, 5, 10, 12; c: 0, 4,
+/// 6). For every outage with a shortfall, the closing reaches its best and costs what the
+/// cheapest grid point reaching that best costs; the search ran to the end.
+#[test]
+fn closings_in_modules_match_brute_force_over_module_counts() {
+    let grid = |step: f64, max: f64| -> Vec<f64> {
+        let mut v: Vec<f64> = (0..)
+            .map(|m| f64::from(m) * step)
+            .take_while(|a| *a < max)
+            .collect();
+        v.push(max);
+        v
+    };
+    for steps in [[2.0, 3.0, 2.0], [5.0, 3.0, 4.0]] {
+        let net = square(Some(steps));
+        let audit = links_audit(&net);
+        let cands = Candidates::of(&net);
+        let options = vec![
+            grid(steps[0], 12.0),
+            grid(steps[1], 12.0),
+            grid(steps[2], 6.0),
+            vec![0.0],
+        ];
+        let points = brute_force(&net, &audit, &options);
+        let mut closed = 0;
+        for (k, o) in audit.outages.iter().enumerate() {
+            let e = &audit.evaluations[k];
+            let Some(c) = close(&net, o, e, &cands).unwrap() else {
+                continue;
+            };
+            let cheapest = points
+                .iter()
+                .filter(|p| e.surviving_required - p.shortfall[k] >= c.best - EPS)
+                .map(|p| p.cost)
+                .fold(f64::INFINITY, f64::min);
+            assert!(
+                (c.cost - cheapest).abs() <= EPS,
+                "steps {steps:?} outage {k}: closing {:?} costs {} vs brute force {cheapest}",
+                c.add,
+                c.cost
+            );
+            for (v, s) in steps.iter().enumerate() {
+                let max = [12.0, 12.0, 6.0][v];
+                let m = c.add[v] / s;
+                assert!(
+                    (m - m.round()).abs() < 1e-9 || (c.add[v] - max).abs() < 1e-9,
+                    "steps {steps:?} outage {k}: {:?}",
+                    c.add
+                );
+            }
+            assert!(c.verified && c.modules_exhaustive, "{c:?}");
+            closed += usize::from(c.cost > 0.0);
+        }
+        assert!(closed > 0, "some closing must buy");
+    }
+}
+
+/// A close-all plan with partial last modules (steps 5, 3, 4 under `expand_max` 12, 12, 6)
+/// reaches every outage's best and costs no more than the cheapest grid point that does
+/// (brute force over every allowed amount: a 0, 5, 10, 12; b 0, 3, …, 12; c 0, 4, 6).
+#[test]
+fn close_all_plan_with_partial_modules_matches_brute_force() {
+    let steps = [5.0, 3.0, 4.0];
+    let net = square(Some(steps));
+    let audit = links_audit(&net);
+    let options: Vec<Vec<f64>> = vec![
+        vec![0.0, 5.0, 10.0, 12.0],
+        (0..=4).map(|m| f64::from(m) * 3.0).collect(),
+        vec![0.0, 4.0, 6.0],
+        vec![0.0],
+    ];
+    let points = brute_force(&net, &audit, &options);
+    let p = plan(&net, &audit, Goal::CloseAll, RunOptions::default()).unwrap();
+    let bf = best_point(&points, Goal::CloseAll, &p.best, &audit);
+    for (k, e) in p.after.iter().enumerate() {
+        assert!(
+            e.served_required >= p.best[k] - EPS,
+            "outage {k}: {} < best {}",
+            e.served_required,
+            p.best[k]
+        );
+    }
+    assert!(
+        p.cost <= bf.cost + EPS,
+        "plan {:?} costs {} > brute force {} at {:?}",
+        p.add,
+        p.cost,
+        bf.cost,
+        bf.add
+    );
+    for (v, a) in p.add.iter().take(3).enumerate() {
+        assert!(
+            options[v].iter().any(|o| (o - a).abs() < 1e-9),
+            "{:?}",
+            p.add
+        );
+    }
+}

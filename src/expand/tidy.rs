@@ -2,22 +2,23 @@
 //!
 //! 1. **Trim.** Every re-solved outage's allocation stays feasible when each site's
 //!    addition is cut to the most any of those allocations processes beyond the site's own
-//!    capacity (rounded up to whole modules), so the cut changes no served value. Exact, no
-//!    re-solve.
-//! 2. **Snap.** Additions within 1e-6 below or [`TOL`] above (relative) a grid of
-//!    `SNAP_GRID` times the power of ten of the largest addition move onto it (upward only
-//!    within the budget): solver noise, not a purchase. The next steps and the final
-//!    verification re-solve with the snapped values.
+//!    capacity (rounded up to whole modules, the last one partial at `expand_max`), so the
+//!    cut changes no served value of those allocations.
+//! 2. **Snap.** Additions within 1e-6 (relative) below a grid of `SNAP_GRID` times the
+//!    power of ten of the largest addition move up onto it (within `expand_max` and the
+//!    budget; never down, so a purchase never ends below what its target needs): solver
+//!    noise, not a purchase. The trimmed and snapped plan is re-solved; for close-all, when
+//!    an outage that reached its best (by the proof standard of `generate::reaches`) no
+//!    longer does, the untrimmed plan is kept.
 //! 3. **Drop.** Cheapest addition first, each site's whole addition is removed and the
 //!    outages whose allocation used it are re-solved; when none serves less (within
-//!    [`TOL`] of its required demand) the removal stands. Crumbs left by the solver go
-//!    here.
+//!    [`TOL`] of its required demand) and, for close-all, none falls below its best by the
+//!    proof standard, the removal stands. Crumbs left by the solver go here.
 //! 4. **Drivers.** For each addition kept, the outages that serve less without it (the
 //!    others kept), with the units they lose: they set the purchase.
 
 use super::candidates::Candidates;
-use super::generate::verify;
-use super::modules::ROUND_TOL;
+use super::generate::{Generation, reaches, verify};
 use crate::audit::{Audit, RunOptions};
 use crate::error::Result;
 use crate::model::Network;
@@ -45,18 +46,22 @@ fn used_addition(net: &Network, e: &Evaluation, v: usize) -> f64 {
 }
 
 /// Trims, snaps, drops and names the drivers of `plan = (add, after)` (see the module
-/// comment); `after` must be `add` evaluated with every outage of `gainable` re-solved. Cost: one re-solve of the
-/// outages using each bought site, twice for sites kept before a later drop.
+/// comment); `after` must be `add` evaluated with every outage of `data.gainable`
+/// re-solved. Cost: one re-solve of the gainable outages when the trim or the snap changed
+/// the plan, one re-solve of the outages using each bought site, twice for sites kept
+/// before a later drop.
 pub(super) fn tidy(
     net: &Network,
     audit: &Audit,
     cands: &Candidates,
-    gainable: &[usize],
+    data: &Generation<'_>,
     budget: Option<f64>,
     plan: (Vec<f64>, Vec<Evaluation>),
     opts: RunOptions,
 ) -> Result<Tidied> {
+    let (gainable, bests) = (data.gainable, data.bests);
     let (mut add, mut after) = plan;
+    let before = (add.clone(), after.clone());
     let n = net.sites.len();
     // 1. Trim to what the allocations use.
     for (v, a) in add.iter_mut().enumerate() {
@@ -67,29 +72,29 @@ pub(super) fn tidy(
             .iter()
             .map(|&k| used_addition(net, &after[k], v))
             .fold(0.0, f64::max);
-        let keep = match cands.step[v] {
-            Some(step) => ((used / step) - ROUND_TOL).ceil().max(0.0) * step,
-            None => used,
-        };
+        let keep = cands.round_up(v, used);
         *a = a.min(keep);
     }
-    // 2. Snap solver noise: an addition within SNAP_UP_TOL below / TOL above a multiple of SNAP_GRID ·
-    //    the largest addition's power of ten moves onto it (upward only while the budget holds). The
-    //    drop pass and the final verification re-solve with the snapped values.
-    let largest = add.iter().copied().fold(0.0, f64::max);
-    if largest > 0.0 {
-        let grid = SNAP_GRID * 10f64.powf(largest.log10().floor());
-        for v in 0..n {
-            let snapped = (add[v] / grid).round() * grid;
-            // Up (never serves less) within SNAP_UP_TOL, down within TOL.
-            let tol = if snapped >= add[v] { SNAP_UP_TOL } else { TOL };
-            if add[v] > 0.0 && (snapped - add[v]).abs() <= tol * add[v] {
-                let mut trial = add.clone();
-                trial[v] = snapped;
-                if budget.is_none_or(|b| cands.cost_of(&trial) <= b) {
-                    add = trial;
-                }
-            }
+    // 2. Snap solver noise: an addition within SNAP_UP_TOL below a multiple of SNAP_GRID · the
+    //    largest addition's power of ten moves up onto it (never down: a purchase never ends
+    //    below what its verified target needs), within expand_max and the budget. Sites that
+    //    buy by the module are whole modules already.
+    add = snap_up(cands, add, budget);
+    // The trimmed and snapped plan re-solved (the drop pass and the drivers read it); for
+    // close-all, an outage that reached its best before and no longer does (the trim
+    // follows the proven lower-bound allocation, which may serve a hair less than the
+    // reported value) brings the untrimmed plan back.
+    if add != before.0 {
+        let trial_after = verify(&net.with_added_processing(&add), audit, gainable, opts)?;
+        let lost = budget.is_none()
+            && gainable
+                .iter()
+                .any(|&k| reaches(&before.1[k], bests[k]) && !reaches(&trial_after[k], bests[k]));
+        if lost {
+            add = before.0;
+            after = before.1;
+        } else {
+            after = trial_after;
         }
     }
     // 3. Drop, cheapest addition first.
@@ -102,7 +107,12 @@ pub(super) fn tidy(
     let mut kept: Vec<(usize, usize)> = Vec::new();
     for &v in &order {
         let (losses, trial, trial_after) = without(net, audit, gainable, &add, &after, v, opts)?;
-        if losses.is_empty() {
+        // Close-all: no outage may fall below its best by the proof standard either.
+        let keeps_targets = budget.is_some()
+            || gainable
+                .iter()
+                .all(|&k| !reaches(&after[k], bests[k]) || reaches(&trial_after[k], bests[k]));
+        if losses.is_empty() && keeps_targets {
             add = trial;
             after = trial_after;
             dropped += 1;
@@ -125,6 +135,33 @@ pub(super) fn tidy(
         drivers,
         dropped,
     })
+}
+
+/// `add` with solver noise snapped up: each addition at a site bought by the unit that lies
+/// within [`SNAP_UP_TOL`] (relative) below a multiple of `SNAP_GRID` times the power of ten
+/// of the largest addition moves up onto it, when that stays within `expand_max` and
+/// (when given) the budget. Never lowers an addition, so it never serves less. O(sites).
+pub(crate) fn snap_up(cands: &Candidates, mut add: Vec<f64>, budget: Option<f64>) -> Vec<f64> {
+    let largest = add.iter().copied().fold(0.0, f64::max);
+    if largest <= 0.0 {
+        return add;
+    }
+    let grid = SNAP_GRID * 10f64.powf(largest.log10().floor());
+    for v in (0..add.len()).filter(|&v| cands.module(v).is_none()) {
+        let snapped = (add[v] / grid).ceil() * grid;
+        if add[v] > 0.0
+            && snapped > add[v]
+            && snapped - add[v] <= SNAP_UP_TOL * add[v]
+            && snapped <= cands.max[v]
+        {
+            let was = add[v];
+            add[v] = snapped;
+            if budget.is_some_and(|b| cands.cost_of(&add) > b) {
+                add[v] = was;
+            }
+        }
+    }
+    add
 }
 
 type Without = (Vec<(usize, f64)>, Vec<f64>, Vec<Evaluation>);

@@ -495,6 +495,7 @@ pub fn closing_json(
             "dual_bound": file_num(c.dual_bound),
             "served_after": file_num(c.served_after),
             "verified": c.verified,
+            "modules_exhaustive": c.modules_exhaustive,
             "default_costs": default_costs,
         }),
     }

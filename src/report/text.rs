@@ -671,6 +671,22 @@ pub fn closing_report(
          reachable value, proven.",
         order.len()
     );
+    let stopped = order
+        .iter()
+        .filter(|&&i| {
+            closings[audit.outage_of[i]]
+                .as_ref()
+                .is_some_and(|c| !c.modules_exhaustive)
+        })
+        .count();
+    if stopped > 0 {
+        let _ = writeln!(
+            out,
+            "Whole modules: for {stopped} closing(s) the search over module counts stopped at its \
+             limit of LP solves; each shows the cheapest whole-module purchase found, which may \
+             not be the cheapest there is."
+        );
+    }
     for &i in &order {
         let c = closings[audit.outage_of[i]].as_ref().expect("filtered");
         if !c.verified {

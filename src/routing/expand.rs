@@ -18,8 +18,8 @@ use super::{DemandRoutes, Mode, RoutedAudit, fixed};
 use crate::audit::{self, RunOptions};
 use crate::error::{Error, Result};
 use crate::expand::{
-    Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOTAL_MAX_VARS, add_vars, target,
-    values,
+    Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOP_UP_ROUNDS, TOTAL_MAX_VARS,
+    add_vars, cheapest_raise, cheapest_whole, reaches, snap_up, target, top_up_one, values,
 };
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -145,9 +145,11 @@ pub fn close(
         Some(&add),
     );
     served_row(&mut model, &index, 1.0, None, target(best, required));
-    let sol = lp::solve(&model)?;
-    let add_units = values(&add, &sol.x, scale);
-    let after = super::evaluate(&with_added(net, &add_units), trees, outage, Mode::Steered)?.eval;
+    let whole = cheapest_whole(&model, &add, cands)?;
+    let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
+    let (add_units, after) = top_up_one(cands, best, add_units, |a| {
+        Ok(super::evaluate(&with_added(net, a), trees, outage, Mode::Steered)?.eval)
+    })?;
     Ok(Some(Closing {
         cost: cands.cost_of(&add_units),
         verified: after.proven()
@@ -157,7 +159,8 @@ pub fn close(
         best,
         not_closable: (required - best).max(0.0),
         binding_links,
-        dual_bound: model.dual_objective(&sol),
+        dual_bound: whole.dual_bound,
+        modules_exhaustive: whole.exhaustive,
     }))
 }
 
@@ -176,8 +179,10 @@ pub fn with_added(net: &Network, add: &[f64]) -> Network {
 /// close-all (least cost with every outage at its best reachable), worst within budget
 /// (largest t with served_k ≥ t·required_k), or total within budget (most Σ served over
 /// the scenarios). Sites with `expand_step` are then rounded to whole modules (up for
-/// close-all, never past expand_max; down within a budget) without a repair pass. The plan
-/// is verified by re-solving every short outage with it applied.
+/// close-all, the last module partial at expand_max; down within a budget, then back up
+/// where the budget still allows, cheapest raise first) without a repair pass. The plan is verified by re-solving every short
+/// outage with it applied; for close-all, an outage left short of its best by more than
+/// the audit's proof tolerance (LP inaccuracy) is topped up by shadow price and re-solved.
 pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Result<Plan> {
     let audit = &ra.audit;
     let cands = Candidates::of(net);
@@ -288,17 +293,39 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
                 |(v, (s, &a))| match s.expansion.as_ref().and_then(|e| e.step) {
                     Some(step) if a > 0.0 => {
                         let units = a / step;
-                        let n = if minimise {
-                            (units - TOL).ceil()
+                        if minimise {
+                            cands.round_up(v, a)
+                        } else if a >= cands.max[v] * (1.0 - TOL) {
+                            // The LP bought the site out: the partial last module fits.
+                            cands.max[v]
                         } else {
-                            (units + TOL).floor()
-                        };
-                        (n * step).min(cands.max[v].max(0.0))
+                            ((units + TOL).floor() * step).min(cands.max[v].max(0.0))
+                        }
                     }
                     _ => a,
                 },
             )
             .collect();
+        // Within a budget, a site rounded down goes back up to the LP's amount in whole
+        // modules when the budget still allows it, cheapest raise first (more processing
+        // never serves less, so this is never worse than rounding down).
+        let mut rounded = rounded;
+        if let Goal::WorstWithin(b) | Goal::TotalWithin(b) = goal {
+            let mut raises: Vec<(f64, usize)> = (0..rounded.len())
+                .filter(|&v| cands.module(v).is_some())
+                .map(|v| (cands.round_up(v, lp_add[v]), v))
+                .filter(|&(to, v)| to > rounded[v])
+                .map(|(to, v)| (cands.cost[v].unwrap_or(0.0) * (to - rounded[v]), v))
+                .collect();
+            raises.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
+            for (_, v) in raises {
+                let mut trial = rounded.clone();
+                trial[v] = cands.round_up(v, lp_add[v]);
+                if cands.cost_of(&trial) <= b * (1.0 + 1e-9) {
+                    rounded = trial;
+                }
+            }
+        }
         let cost = cands.cost_of(&rounded);
         (
             rounded,
@@ -327,13 +354,39 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
     for d in &mut drivers {
         d.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
     }
-    let applied = with_added(net, &plan_add);
-    let resolved = audit::par_map(&short, opts, "verifying", |&k| {
-        super::evaluate(&applied, &ra.trees, &audit.outages[k], Mode::Steered)
-    })?;
-    let mut after: Vec<Evaluation> = audit.evaluations.clone();
-    for (&k, r) in short.iter().zip(resolved) {
-        after[k] = r.eval;
+    let solve_all = |add: &[f64]| -> Result<Vec<Evaluation>> {
+        let applied = with_added(net, add);
+        let resolved = audit::par_map(&short, opts, "verifying", |&k| {
+            super::evaluate(&applied, &ra.trees, &audit.outages[k], Mode::Steered)
+        })?;
+        let mut after: Vec<Evaluation> = audit.evaluations.clone();
+        for (&k, r) in short.iter().zip(resolved) {
+            after[k] = r.eval;
+        }
+        Ok(after)
+    };
+    let mut plan_add = plan_add;
+    let mut after = solve_all(&plan_add)?;
+    // Close-all: an outage the LP's inaccuracy leaves short of its best (by the audit's
+    // proof tolerance) gets its cheapest raise by shadow price, and all are re-solved.
+    if minimise {
+        for _ in 0..TOP_UP_ROUNDS {
+            let mut level = plan_add.clone();
+            for &k in &short {
+                let e = &after[k];
+                if !reaches(e, best[k])
+                    && let Some((v, to)) =
+                        cheapest_raise(&cands, &plan_add, e, best[k] - e.served_required)
+                {
+                    level[v] = level[v].max(to);
+                }
+            }
+            if level == plan_add {
+                break;
+            }
+            plan_add = level;
+            after = solve_all(&plan_add)?;
+        }
     }
     let worst_fraction = after
         .iter()
