@@ -2198,16 +2198,19 @@ fn parse_csv(text: &str) -> Vec<Vec<String>> {
 }
 
 /// CSV and JSON written by the same run agree on every scenario and field (both parsed
-/// here); the CSV starts with the caution line and has one row per scenario.
+/// here); the CSV starts with its header row, has one row per scenario and carries the
+/// caution in its last column.
 #[test]
 fn csv_agrees_with_json() {
     let f = TempPath::with_text("csv", &path_net_with_probabilities());
     let csv = TempPath::new("audit", "csv");
     let (_, doc) = audit_json(f.path(), &["--depth", "2", "--close", "--csv", csv.path()]);
     let text = std::fs::read_to_string(&csv.0).expect("csv written");
-    assert!(text.starts_with("# Caution: a planning aid"), "{text}");
+    assert!(text.starts_with("failed,rank,"), "{text}");
     let rows = parse_csv(&text);
     let header = &rows[0];
+    assert_eq!(header.last().map(String::as_str), Some("caution"));
+    assert!(rows[1].last().unwrap().starts_with("Caution: a planning aid"));
     assert_eq!(
         rows.len() - 1,
         scenarios(&doc).len(),

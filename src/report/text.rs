@@ -1148,11 +1148,18 @@ fn compare_lines(
     writeln!(
         w,
         "{verdict} compare: {} of {} matched scenario{} got worse by more than {} {u} \
-         (shortfall or stranded, as printed); {} better; {} added risk{}, {} removed.",
+         (shortfall or stranded, as printed); {} newly short{}; {} better; {} added risk{}, \
+         {} removed.",
         c.worse.len(),
         c.matched,
         plural(c.matched),
         num(c.tolerance),
+        c.new_short.len(),
+        if c.allow_new_short && !c.new_short.is_empty() {
+            " (allowed)"
+        } else {
+            ""
+        },
         c.better.len(),
         c.added_risks.len(),
         plural(c.added_risks.len()),
@@ -1207,6 +1214,18 @@ fn compare_lines(
             render(&mut t, &[])
         )
     };
+    if !c.new_short.is_empty() {
+        let title = format!(
+            "Newly short: short after the change and not before, a new point of failure \
+             that {}",
+            if c.allow_new_short {
+                "--allow-new-short lets pass"
+            } else {
+                "fails the compare unless --allow-new-short"
+            }
+        );
+        w.write_all(changes(&title, &c.new_short).as_bytes())?;
+    }
     if !c.worse.is_empty() {
         w.write_all(changes("Got worse", &c.worse).as_bytes())?;
     }
