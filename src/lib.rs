@@ -836,8 +836,8 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
     }
     if let Some(path) = &args.apply {
-        let doc = model::apply::with_purchase(&text, &net, &plan.add)?;
-        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+        let edited = model::apply::with_purchase(&text, &net, &plan.add)?;
+        report::file::write_atomic(path, |w| w.write_all(edited.as_bytes()))?;
         if !args.scenarios.quiet {
             note(report::text::note_applied(err, path, &plan.add));
         }

@@ -2210,7 +2210,12 @@ fn csv_agrees_with_json() {
     let rows = parse_csv(&text);
     let header = &rows[0];
     assert_eq!(header.last().map(String::as_str), Some("caution"));
-    assert!(rows[1].last().unwrap().starts_with("Caution: a planning aid"));
+    assert!(
+        rows[1]
+            .last()
+            .unwrap()
+            .starts_with("Caution: a planning aid")
+    );
     assert_eq!(
         rows.len() - 1,
         scenarios(&doc).len(),

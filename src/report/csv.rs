@@ -95,7 +95,11 @@ pub fn write_audit(
                 .map(|r| failed_list(&audit.scenarios[r]))
                 .unwrap_or_default(),
         );
-        row.push(if i == 0 { field(CAUTION) } else { String::new() });
+        row.push(if i == 0 {
+            field(CAUTION)
+        } else {
+            String::new()
+        });
         writeln!(w, "{}", row.join(","))?;
     }
     Ok(())
