@@ -6,7 +6,7 @@ use comfy_table::Cell;
 
 use std::io::{self, Write};
 
-use super::{CAUTION, num, percent, small};
+use super::{CAUTION, amount, num, percent, small, unit_one};
 use crate::audit::Audit;
 use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
@@ -170,9 +170,15 @@ pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
     }
 }
 
-/// The `k` sites with the highest shadow price of processing in a scenario with a
-/// shortfall, as `site (+price)`: one more unit there serves up to `price` more.
-pub fn marginal_sites(net: &Network, e: &Evaluation, k: usize) -> String {
+/// The `k` expandable sites (where processing can be bought) with the highest shadow price
+/// of processing in a scenario with a shortfall, as `site (+price)`: one more unit there
+/// serves up to `price` more.
+pub fn marginal_sites(
+    net: &Network,
+    cands: &crate::expand::Candidates,
+    e: &Evaluation,
+    k: usize,
+) -> String {
     if e.shortfall <= 0.0 {
         return "—".into();
     }
@@ -180,6 +186,7 @@ pub fn marginal_sites(net: &Network, e: &Evaluation, k: usize) -> String {
         .site_price
         .iter()
         .enumerate()
+        .filter(|&(s, _)| cands.expandable(s))
         .filter_map(|(s, p)| p.filter(|p| *p > 1e-6).map(|p| (s, p)))
         .collect();
     v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
@@ -327,6 +334,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         }
     }
     let folding = crate::fold::Folding::of(audit);
+    let cands = crate::expand::Candidates::of(net);
     let all = rank::worst_first(audit).len();
     let order: Vec<usize> = rank::worst_first(audit)
         .into_iter()
@@ -366,7 +374,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             Cell::new(percent(e.shortfall, e.surviving_required)),
             Cell::new(num(e.stranded)),
             Cell::new(num((baseline.throughput - e.throughput).max(0.0))),
-            Cell::new(match marginal_sites(net, e, 2) {
+            Cell::new(match marginal_sites(net, &cands, e, 2) {
                 m if m == "none" || m == "—" => main_bottleneck(net, e),
                 m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
             }),
@@ -408,9 +416,10 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     if short > 0 {
         let _ = writeln!(
             out,
-            "\"one more unit helps at X (+Y)\": one more unit of processing at X serves up to Y \
-             more in that scenario (its shadow price); when it is not shown, more processing \
-             anywhere would not serve more (links or cut-off paths limit it)."
+            "\"one more unit helps at X (+Y)\": one more unit of processing bought at X (an \
+             expandable site) serves up to Y more in that scenario (its shadow price); when it \
+             is not shown, one more unit at an expandable site would not serve more (links, \
+             cut-off paths or processing at sites that cannot be expanded limit it)."
         );
     }
 
@@ -686,7 +695,7 @@ pub fn closing_report(
 
 /// "Where one more unit helps": sites whose added unit relieves the most scenarios.
 pub fn relief_report(net: &Network, audit: &Audit, top: usize) -> String {
-    let rows = crate::expand::relief(audit, net.sites.len());
+    let rows = crate::expand::relief(audit, &crate::expand::Candidates::of(net));
     let mut out = String::new();
     if rows.is_empty() {
         return out;
@@ -707,8 +716,8 @@ pub fn relief_report(net: &Network, audit: &Audit, top: usize) -> String {
     let t = render(&mut t, &[]);
     let _ = writeln!(
         out,
-        "\nWhere one more unit of processing helps (shadow prices of processing, over the \
-         outages with a shortfall):\n{t}"
+        "\nWhere one more unit of processing helps (expandable sites; shadow prices of \
+         processing, over the outages with a shortfall):\n{t}"
     );
     out
 }
@@ -1429,64 +1438,61 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
         let _ = writeln!(out, "Nothing is short, so nothing needs fixing.");
         return out;
     }
-    match why.closing {
+    // One explanation: what processing fixes (bought only at expandable sites, the
+    // closing's), then what holds the rest back, judged in the same state as the links
+    // that must grow: every expandable site at its limit. Without a closing, the
+    // scenario's own shadow prices are all there is.
+    let grow: Vec<(usize, f64)> = match why.closing {
         Some(c) => {
             let fixed = (c.best - e.served_required).max(0.0);
+            let held = held_back(net, e, c);
             if fixed > 0.0 {
                 let _ = writeln!(
                     out,
-                    "Processing can fix {} {u} of the {} {u} short: add {} (cost {}).",
-                    num(fixed),
-                    num(e.shortfall),
+                    "Processing can fix {} of the {} short: add {} (cost {}).",
+                    amount(fixed, u),
+                    amount(e.shortfall, u),
                     additions(net, &c.add, net.sites.len()),
                     num(c.cost)
                 );
+                if c.not_closable > 0.0 {
+                    let _ = writeln!(
+                        out,
+                        "It cannot fix the other {}: {held}.",
+                        amount(c.not_closable, u)
+                    );
+                }
             } else {
                 let _ = writeln!(
                     out,
-                    "Processing cannot fix any of it: added processing at the candidate sites \
-                     would not serve more."
+                    "Processing cannot fix any of the {} short: {held}.",
+                    amount(e.shortfall, u)
                 );
             }
-            if c.not_closable > 0.0 {
-                let _ = writeln!(
-                    out,
-                    "Processing cannot fix {} {u}: {}.",
-                    num(c.not_closable),
-                    if c.binding_links.is_empty() {
-                        "cut-off demands or the expansion limits hold it back".to_string()
-                    } else {
-                        format!(
-                            "the capacity of {} holds it back",
-                            link_list(net, &c.binding_links, c.binding_links.len())
-                        )
-                    }
-                );
-            }
+            c.binding_arcs.clone()
         }
         None => {
             let _ = writeln!(out, "What processing can fix was not computed.");
+            crate::expand::binding(e.arc_price.iter().copied().enumerate())
         }
-    }
-    let mut grow: Vec<(usize, f64)> = e
-        .arc_price
-        .iter()
-        .enumerate()
-        .filter(|(_, p)| **p > PRICE_SHOWN)
-        .map(|(a, p)| (a, *p))
-        .collect();
-    grow.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    };
+    let state = if why.closing.is_some() {
+        "with processing added as far as allowed at the expandable sites"
+    } else {
+        "in this scenario as it is"
+    };
     if grow.is_empty() {
         let _ = writeln!(
             out,
-            "Links that would have to grow: none (no link direction's capacity limits what is \
-             served)."
+            "Links that would have to grow: none ({state}, no link direction's capacity limits \
+             what is served)."
         );
     } else {
         let _ = writeln!(
             out,
-            "Links that would have to grow (one more {u} of capacity serves up to this much more, \
-             its shadow price): {}.",
+            "Links that would have to grow ({state}; one more {} of capacity serves up to this \
+             much more, its shadow price): {}.",
+            unit_one(u),
             first_k(
                 grow.iter().map(|&(a, p)| format!(
                     "{} +{}",
@@ -1500,5 +1506,29 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
     out
 }
 
-/// Shadow prices at or below this are shown as no effect (solver noise).
-const PRICE_SHOWN: f64 = 1e-6;
+/// What holds back the part of a shortfall that processing cannot fix, in the state of
+/// the closing's best reachable value (every expandable site at its limit): link capacity
+/// (the links are named once, in the sentence that follows), demands cut off from every
+/// surviving processing site, or the expansion limits.
+fn held_back(net: &Network, e: &Evaluation, c: &crate::expand::Closing) -> String {
+    let cut: f64 = e
+        .cut_off
+        .iter()
+        .map(|&(d, _)| net.demands[d].required)
+        .sum();
+    if !c.binding_arcs.is_empty() {
+        "link capacity holds it back even with every expandable site at its limit (the \
+         links below)"
+            .into()
+    } else if cut > 0.0 && super::displayed(cut) >= super::displayed(c.not_closable) {
+        "the cut-off demands above have no walk through a surviving processing site".into()
+    } else if cut > 0.0 {
+        format!(
+            "{} of it is cut-off demand (no walk through a surviving processing site); the \
+             expansion limits (expand_max, candidate sites) hold back the rest",
+            num(cut)
+        )
+    } else {
+        "the expansion limits (expand_max, candidate sites) hold it back".into()
+    }
+}
