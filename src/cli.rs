@@ -110,6 +110,15 @@ pub struct MergeArgs {
     /// Write the merged audit to this JSON file (exactly what the unsharded run writes).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
+    /// Write one CSV row per scenario to this file, as `audit --csv` does.
+    #[arg(long, value_name = "FILE")]
+    pub csv: Option<PathBuf>,
+    /// Write the HTML report and its Markdown twin into this folder, as `audit --report`.
+    #[arg(long, value_name = "DIR")]
+    pub report: Option<PathBuf>,
+    /// Explain the worst scenario, as `audit --why`.
+    #[arg(long)]
+    pub why: bool,
     /// How many scenarios (and elements) the tables show.
     #[arg(long, default_value_t = 15)]
     pub top: usize,

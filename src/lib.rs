@@ -412,6 +412,9 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     let gates = gates_of(args)?;
     time_limit(&args.scenarios)?;
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
+    if shard.is_some() {
+        report::text::refuse_with_shard(args.csv.is_some(), args.report.is_some(), args.why)?;
+    }
     let input = args.scenarios.network.as_path();
     let journal_path = args.json.as_deref().map(journal::path_for);
     if let (Some(json), Some(jp)) = (&args.json, &journal_path) {
@@ -699,16 +702,27 @@ fn finish_audit(
 /// `merge`: reads the part files, rebuilds the run's scenario list from the network and
 /// options they carry, and writes what the unsharded audit writes.
 fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
+    let inputs: Vec<&Path> = args.parts.iter().map(PathBuf::as_path).collect();
     if let Some(json) = &args.json {
-        let inputs: Vec<&Path> = args.parts.iter().map(PathBuf::as_path).collect();
         report::file::check_output("--json", json, &inputs)?;
     }
+    if let Some(csv) = &args.csv {
+        let mut others = inputs.clone();
+        others.extend(args.json.as_deref());
+        report::file::check_output("--csv", csv, &others)?;
+    }
+    let mut others = inputs.clone();
+    others.extend(args.json.as_deref());
+    others.extend(args.csv.as_deref());
+    let report_files = report_dir(args.report.as_deref(), &others)?;
+    // --report and --why read evaluations in full, as an unsharded audit keeps them.
+    let whole = args.report.is_some() || args.why;
     let mut held: Vec<Option<solve::Evaluation>> = Vec::new();
     let parts = journal::Parts::open(&args.parts, |k, e| {
         if held.len() <= k {
             held.resize(k + 1, None);
         }
-        held[k] = Some(if k == 0 { e } else { e.thin() });
+        held[k] = Some(if k == 0 || whole { e } else { e.thin() });
     })?;
     let h = &parts.header;
     let net = Network::from_bytes(h.network.as_bytes())
@@ -718,7 +732,12 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
         _ => cli::Engine::Walks,
     };
     let list = scenarios_for(&net, h.depth, &h.kinds, h.fail.as_deref(), &[])?;
-    let mut batch = audit::Batch::new(&net, list.iter, engine).keeping(audit::Keep::Thin);
+    let keep = if whole {
+        audit::Keep::Full
+    } else {
+        audit::Keep::Thin
+    };
+    let mut batch = audit::Batch::new(&net, list.iter, engine).keeping(keep);
     if batch.outages() != h.outages {
         return Err(Error::Usage(format!(
             "merge: the parts name {} outages, their network and options give {}",
@@ -734,19 +753,27 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
         threads: None,
         progress: false,
     };
+    let risk = match h.fail {
+        Some(_) => None,
+        None => risk::assess(
+            &net,
+            &scenario::pool_without(&net, Kinds::parse(&h.kinds)?, &[]),
+            &audit,
+        ),
+    };
     finish_audit(
         &net,
         &audit,
         &full,
         AuditOutput {
             json: args.json.as_deref(),
-            csv: None,
-            risk: None,
+            csv: args.csv.as_deref(),
+            risk: risk.as_ref(),
             gates: &[],
             gate_tolerance: None,
             close: false,
-            why: false,
-            report: None,
+            why: args.why,
+            report: report_files.as_ref(),
             top: args.top,
             opts,
         },
@@ -758,20 +785,26 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
 
 /// `--report DIR`: the folder made when missing, and its two files checked before solving.
 fn report_files(args: &AuditArgs, input: &Path) -> Result<Option<(PathBuf, PathBuf)>> {
-    let Some(dir) = &args.report else {
+    let mut others = vec![input];
+    others.extend(args.json.as_deref());
+    others.extend(args.csv.as_deref());
+    report_dir(args.report.as_deref(), &others)
+}
+
+/// The `--report DIR` folder (made when missing) and its two files, checked as outputs
+/// that are none of `others`.
+fn report_dir(dir: Option<&Path>, others: &[&Path]) -> Result<Option<(PathBuf, PathBuf)>> {
+    let Some(dir) = dir else {
         return Ok(None);
     };
     std::fs::create_dir_all(dir).map_err(|source| Error::Io {
-        path: dir.clone(),
+        path: dir.to_path_buf(),
         source,
     })?;
     let html = dir.join(report::html::HTML_FILE);
     let md = dir.join(report::html::MARKDOWN_FILE);
-    let mut others = vec![input];
-    others.extend(args.json.as_deref());
-    others.extend(args.csv.as_deref());
-    report::file::check_output("--report", &html, &others)?;
-    report::file::check_output("--report", &md, &others)?;
+    report::file::check_output("--report", &html, others)?;
+    report::file::check_output("--report", &md, others)?;
     Ok(Some((html, md)))
 }
 

@@ -1063,6 +1063,26 @@ pub fn note_estimate(
     )
 }
 
+/// `audit --shard` writes a part file and nothing else: `--csv`, `--report` and `--why`
+/// (flags given as `csv`, `report`, `why`) are refused with a pointer to `merge`, which
+/// writes them for the whole run.
+pub fn refuse_with_shard(csv: bool, report: bool, why: bool) -> crate::error::Result<()> {
+    let given: Vec<&str> = [(csv, "--csv"), (report, "--report"), (why, "--why")]
+        .into_iter()
+        .filter_map(|(on, flag)| on.then_some(flag))
+        .collect();
+    if given.is_empty() {
+        return Ok(());
+    }
+    Err(crate::error::Error::Usage(format!(
+        "--shard writes only a part file, so {} would describe one shard; give {} to \
+         `redoubt merge PART… --json FILE`, which writes {} for the whole run",
+        given.join(", "),
+        if given.len() == 1 { "it" } else { "them" },
+        if given.len() == 1 { "it" } else { "them" }
+    )))
+}
+
 /// What `audit --shard I/N` prints: the shard, its outages and where its part is.
 pub fn write_shard(
     w: &mut dyn Write,
