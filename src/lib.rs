@@ -259,13 +259,11 @@ fn estimate(
     if let Some(max) = limit
         && minutes > max
     {
-        return Err(Error::Usage(format!(
-            "the run is estimated at {} minutes ({count} scenarios, one took {} s), \
-             above the limit of {} minutes; pass --yes to run it anyway, raise \
-             --max-minutes, or lower --depth / narrow --kinds",
-            report::num(minutes),
-            report::num(probe.sample_took.as_secs_f64()),
-            report::num(max)
+        return Err(Error::Usage(report::text::estimate_refused(
+            minutes,
+            count,
+            probe.sample_took.as_secs_f64(),
+            max,
         )));
     }
     Ok(probe)
@@ -491,9 +489,9 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     batch.seed(probe, journal.as_ref());
     let interrupted = |e: Error| match (&e, &journal) {
         (Error::Interrupted(_), Some(j)) => Error::Interrupted(format!(
-            "{} of {} outages saved in {}; run the same command with --resume to continue",
+            "{} of {} saved in {}; run the same command with --resume to continue",
             j.saved(),
-            j.outages(),
+            report::count(j.outages(), "outage"),
             j.path().display()
         )),
         (Error::Interrupted(_), None) => {
@@ -551,7 +549,8 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         .map(|j| (j.saved(), j.outages(), j.path().to_path_buf()));
     let interrupted = move |e: Error| match (&e, &saved) {
         (Error::Interrupted(_), Some((n, of, path))) => Error::Interrupted(format!(
-            "{n} of {of} outages saved in {}; run the same command with --resume to continue",
+            "{n} of {} saved in {}; run the same command with --resume to continue",
+            report::count(*of, "outage"),
             path.display()
         )),
         _ => e,

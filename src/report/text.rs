@@ -40,10 +40,10 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) ->
     );
     let _ = writeln!(
         out,
-        "  volume {} {u}  required {} {u}  processing {} {u}",
-        num(net.total_volume()),
-        num(net.total_required()),
-        num(net.total_processing())
+        "  volume {}  required {}  processing {}",
+        amount(net.total_volume(), u),
+        amount(net.total_required(), u),
+        amount(net.total_processing(), u)
     );
     let procs: Vec<String> = net
         .sites
@@ -245,11 +245,11 @@ pub fn verdict(net: &Network, audit: &Audit, gates: &[GateResult]) -> String {
         Some(i) if short > 0 => {
             let e = audit.eval(i);
             format!(
-                "{short} of {n} scenario{} short; worst {} (shortfall {} {u}, stranded {} {u})",
+                "{short} of {n} scenario{} short; worst {} (shortfall {}, stranded {})",
                 plural(n),
                 audit.scenarios[i].display_name(),
-                num(e.shortfall),
-                num(e.stranded)
+                amount(e.shortfall, u),
+                amount(e.stranded, u)
             )
         }
         _ => format!("none of {n} scenario{} short", plural(n)),
@@ -295,13 +295,13 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     );
     let _ = writeln!(
         out,
-        "Baseline: serves {} of {} {u} required ({}), throughput {} of {} {u} offered; \
+        "Baseline: serves {} of {} required ({}), throughput {} of {} offered; \
          certified gap {}.",
         num(baseline.served_required),
-        num(baseline.surviving_required),
+        amount(baseline.surviving_required, u),
         percent(baseline.served_required, baseline.surviving_required),
         num(baseline.throughput),
-        num(net.total_volume()),
+        amount(net.total_volume(), u),
         small(baseline.certified_gap())
     );
     let down: Vec<String> = audit
@@ -321,9 +321,9 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     if base_short {
         let _ = writeln!(
             out,
-            "The baseline is already {} {u} short; every scenario's shortfall includes what the \
+            "The baseline is already {} short; every scenario's shortfall includes what the \
              baseline misses, and the column \"beyond baseline\" shows what the failure adds.",
-            num(baseline.shortfall)
+            amount(baseline.shortfall, u)
         );
         if !baseline.cut_off.is_empty() {
             let _ = writeln!(
@@ -456,11 +456,11 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         if !e.proven() {
             let _ = writeln!(
                 out,
-                "UNPROVEN: {}: served_required between {} and {} {u} (reported at the lower \
+                "UNPROVEN: {}: served_required between {} and {} (reported at the lower \
                  bound, so its shortfall is not understated).",
                 audit.first_scenario(k).display_name(),
                 num(e.verification.lower),
-                num(e.verification.upper)
+                amount(e.verification.upper, u)
             );
         }
     }
@@ -683,10 +683,10 @@ pub fn closing_report(
         if !c.verified {
             let _ = writeln!(
                 out,
-                "UNVERIFIED closing: {}: with the additions it serves {} of the best reachable {} {u}.",
+                "UNVERIFIED closing: {}: with the additions it serves {} of the best reachable {}.",
                 audit.scenarios[i].display_name(),
                 num(c.served_after),
-                num(c.best)
+                amount(c.best, u)
             );
         }
     }
@@ -752,10 +752,10 @@ pub fn plan_report(
     };
     let _ = writeln!(
         out,
-        "{} — purchase plan over {} scenarios ({} distinct outages): {goal}.",
+        "{} — purchase plan over {} ({}): {goal}.",
         net.name,
-        audit.scenarios.len(),
-        audit.outages.len()
+        super::count(audit.scenarios.len(), "scenario"),
+        super::count(audit.outages.len(), "distinct outage")
     );
     if default_costs {
         let _ = writeln!(
@@ -898,9 +898,9 @@ pub fn plan_report(
         if left > 0.0 {
             let _ = writeln!(
                 out,
-                "Worst shortfall after the plan: {} {u}; what remains is limited by links or \
+                "Worst shortfall after the plan: {}; what remains is limited by links or \
                  connectivity, not by processing{}.",
-                num(left),
+                amount(left, u),
                 if matches!(plan.goal, Goal::CloseAll) {
                     ""
                 } else {
@@ -1005,8 +1005,8 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
         (
             flag,
             what,
-            format!("{} {u}", num(g.value)),
-            format!("{} {u}", num(g.limit)),
+            super::amount(g.value, u),
+            super::amount(g.limit, u),
             if g.passed { "within" } else { "exceeds" },
         )
     };
@@ -1054,12 +1054,25 @@ pub fn note_estimate(
 ) -> io::Result<()> {
     writeln!(
         w,
-        "redoubt: {scenarios} scenarios to solve; one took {} s, so about {} minute{} on \
-         {threads} thread{}",
-        num(first_solve.as_secs_f64()),
-        num(minutes),
-        if minutes == 1.0 { "" } else { "s" },
-        if threads == 1 { "" } else { "s" }
+        "redoubt: {} to solve; one took {}, so about {} on {}",
+        super::count(scenarios, "scenario"),
+        super::duration(first_solve.as_secs_f64()),
+        super::duration(60.0 * minutes),
+        super::count(threads, "thread")
+    )
+}
+
+/// The refusal of a run estimated beyond its time limit (both in minutes), in durations
+/// a person reads at a glance ([`super::duration`]: seconds under two minutes).
+pub fn estimate_refused(minutes: f64, scenarios: usize, one_took: f64, limit: f64) -> String {
+    format!(
+        "the run is estimated at {} ({}, one took {}), above the limit of {} \
+         (--max-minutes {limit}); pass --yes to run it anyway, raise --max-minutes, or lower \
+         --depth / narrow --kinds",
+        super::duration(60.0 * minutes),
+        super::count(scenarios, "scenario"),
+        super::duration(one_took),
+        super::duration(60.0 * limit),
     )
 }
 
@@ -1093,8 +1106,9 @@ pub fn write_shard(
 ) -> io::Result<()> {
     writeln!(
         w,
-        "shard {shard}/{shards}: {outages} outages solved; part written to {} (combine the \
+        "shard {shard}/{shards}: {} solved; part written to {} (combine the \
          parts with `redoubt merge PART… --json FILE`)",
+        super::count(outages, "outage"),
         printable(&part.display().to_string())
     )
 }
@@ -1115,7 +1129,8 @@ pub fn note_resume(
         ),
         super::journal::Opened::Resumed(n) => writeln!(
             w,
-            "redoubt: resuming: {n} of {outages} outages restored from {}",
+            "redoubt: resuming: {n} of {} restored from {}",
+            super::count(outages, "outage"),
             journal.display()
         ),
     }
@@ -1176,13 +1191,13 @@ fn compare_lines(
     let verdict = if c.passed() { "PASS" } else { "FAIL" };
     writeln!(
         w,
-        "{verdict} compare: {} of {} matched scenario{} got worse by more than {} {u} \
+        "{verdict} compare: {} of {} matched scenario{} got worse by more than {} \
          (shortfall or stranded, as printed); {} newly short{}; {} better; {} added risk{}, \
          {} removed.",
         c.worse.len(),
         c.matched,
         plural(c.matched),
-        num(c.tolerance),
+        amount(c.tolerance, u),
         c.new_short.len(),
         if c.allow_new_short && !c.new_short.is_empty() {
             " (allowed)"
@@ -1207,13 +1222,13 @@ fn compare_lines(
     )?;
     writeln!(
         w,
-        "Baseline shortfall {} → {} {u}, stranded {} → {} {u}, throughput {} → {} {u}.",
+        "Baseline shortfall {} → {}, stranded {} → {}, throughput {} → {}.",
         num(before.shortfall),
-        num(after.shortfall),
+        amount(after.shortfall, u),
         num(before.stranded),
-        num(after.stranded),
+        amount(after.stranded, u),
         num(before.throughput),
-        num(after.throughput)
+        amount(after.throughput, u)
     )?;
     let changes = |title: &str, list: &[crate::compare::Change]| -> String {
         let mut t = table(&[
@@ -1342,13 +1357,13 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "\nWhy {name}: serves {} of {} {u} surviving required ({} short, {} of surviving \
-         required); {} {u} stranded.",
+        "\nWhy {name}: serves {} of {} surviving required ({} short, {} of surviving \
+         required); {} stranded.",
         num(e.served_required),
-        num(e.surviving_required),
+        amount(e.surviving_required, u),
         num(e.shortfall),
         percent(e.shortfall, e.surviving_required),
-        num(e.stranded)
+        amount(e.stranded, u)
     );
     let mut t = table(&[
         "demand",
