@@ -166,10 +166,10 @@ pub fn count(n: usize, noun: &str) -> String {
     format!("{n} {noun}{}", if n == 1 { "" } else { "s" })
 }
 
-/// A duration for people, from seconds: seconds under two minutes (`0.06 s`, `17.6 s`;
-/// three decimals below 1 s, one from 1 s on; `under 0.001 s` when it would print as 0),
-/// minutes with one decimal under two hours (`5 minutes`, `60.2 minutes`), hours with one
-/// decimal beyond (`2.5 hours`). Never `0 minutes`. O(1).
+/// A duration for people, from seconds, with one decimal at most: milliseconds under a
+/// second (`0.6 ms`, `60 ms`; `under 0.1 ms` when it would print as 0), seconds under two
+/// minutes (`17.6 s`), minutes under two hours (`5 minutes`, `60.2 minutes`), hours
+/// beyond (`2.5 hours`). Never `0 minutes`. O(1).
 pub fn duration(seconds: f64) -> String {
     let one = |x: f64| {
         let s = format!("{x:.1}");
@@ -179,9 +179,9 @@ pub fn duration(seconds: f64) -> String {
         return num(seconds);
     }
     if seconds < 1.0 {
-        return match num(seconds) {
-            z if z == "0" => "under 0.001 s".into(),
-            n => format!("{n} s"),
+        return match one(seconds * 1000.0) {
+            z if z == "0" || z == "-0" => "under 0.1 ms".into(),
+            ms => format!("{ms} ms"),
         };
     }
     if seconds < 120.0 {
@@ -228,8 +228,9 @@ mod tests {
         assert_eq!(amount(1.0, "Mpps"), "1 Mpps");
         assert_eq!(count(1, "outage"), "1 outage");
         assert_eq!(count(0, "outage"), "0 outages");
-        assert_eq!(duration(0.06), "0.06 s");
-        assert_eq!(duration(0.0001), "under 0.001 s");
+        assert_eq!(duration(0.06), "60 ms");
+        assert_eq!(duration(0.0006), "0.6 ms");
+        assert_eq!(duration(0.00001), "under 0.1 ms");
         assert_eq!(duration(17.58), "17.6 s");
         assert_eq!(duration(119.0), "119 s");
         assert_eq!(duration(300.0), "5 minutes");
