@@ -2316,8 +2316,9 @@ fn down_keeps_elements_down_in_every_scenario() {
 
 /// `compare`: removing link bc, which PATH_NET needs (hand table: its failure costs 6),
 /// fails the check (exit 1); the baseline got worse 0 → 6; scenarios naming link:bc are
-/// removed risks; an identical copy passes (exit 0) with nothing worse or better, and a
-/// tolerance above the worst increase passes too.
+/// removed risks; an identical copy passes (exit 0) with nothing worse or better. A
+/// tolerance above the worst increase still fails, since the baseline is newly short
+/// (short after, not before), unless `--allow-new-short`.
 #[test]
 fn compare_gates_a_change_that_removes_a_needed_link() {
     let before = TempPath::with_text("before", PATH_NET);
@@ -2373,16 +2374,20 @@ fn compare_gates_a_change_that_removes_a_needed_link() {
         "baseline, links, sites, group"
     );
 
-    let loose = redoubt(&[
+    let mut loose = vec![
         "compare",
         before.path(),
         after.path(),
         "--quiet",
         "--tolerance",
         "100",
-    ]);
-    assert_eq!(loose.code, 0, "{}", loose.stdout);
-    assert!(loose.stdout.contains("Caution:"), "{}", loose.stdout);
+    ];
+    let run = redoubt(&loose);
+    assert_eq!(run.code, 1, "newly short: {}", run.stdout);
+    loose.push("--allow-new-short");
+    let run = redoubt(&loose);
+    assert_eq!(run.code, 0, "{}", run.stdout);
+    assert!(run.stdout.contains("Caution:"), "{}", run.stdout);
 }
 
 /// `plan --apply`: the written network passes `check`, keeps the user's fields, and

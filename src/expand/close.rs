@@ -67,7 +67,7 @@ pub fn links_of(net: &Network, arcs: &[(usize, f64)]) -> Vec<LinkIdx> {
     links
 }
 
-/// Link directions with a shadow price above [`PRICE_BINDS`], as `(arc, price)`, largest
+/// Link directions with a shadow price above `PRICE_BINDS` (1e-6), as `(arc, price)`, largest
 /// price first, then by arc. O(m log m).
 pub fn binding(prices: impl Iterator<Item = (usize, f64)>) -> Vec<(usize, f64)> {
     let mut v: Vec<(usize, f64)> = prices.filter(|&(_, p)| p > PRICE_BINDS).collect();
