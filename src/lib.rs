@@ -856,7 +856,12 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
         Some(routing::Mode::Nearest) => return Err(nearest_refused("plan")),
         Some(mode) => {
             let scenarios: Vec<Scenario> = list.iter.collect();
-            return run_routed_plan(args, &net, scenarios, opts, goal, mode, out);
+            let routed = Routed {
+                net: &net,
+                text: &text,
+                mode,
+            };
+            return run_routed_plan(args, routed, scenarios, opts, goal, out, err);
         }
         None => {}
     }
@@ -867,13 +872,7 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
         let doc = report::json::plan_json(&net, &audit, &plan, default_costs);
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
     }
-    if let Some(path) = &args.apply {
-        let edited = model::apply::with_purchase(&text, &net, &plan.add)?;
-        report::file::write_atomic(path, |w| w.write_all(edited.as_bytes()))?;
-        if !args.scenarios.quiet {
-            note(report::text::note_applied(err, path, &plan.add));
-        }
-    }
+    write_applied(args, &text, &net, &plan.add, err)?;
     stdout_result(report::text::write_plan(
         out,
         &net,
@@ -979,16 +978,43 @@ fn run_routed_audit(
     })
 }
 
+/// `plan --apply OUT`: the input file with the purchase `add` (edited in place), written
+/// atomically, and a note on stderr.
+fn write_applied(
+    args: &PlanArgs,
+    text: &str,
+    net: &Network,
+    add: &[f64],
+    err: &mut dyn Write,
+) -> Result<()> {
+    if let Some(path) = &args.apply {
+        let edited = model::apply::with_purchase(text, net, add)?;
+        report::file::write_atomic(path, |w| w.write_all(edited.as_bytes()))?;
+        if !args.scenarios.quiet {
+            note(report::text::note_applied(err, path, add));
+        }
+    }
+    Ok(())
+}
+
+/// The network of a routed plan, its file's text (for `--apply`) and the routing model.
+struct Routed<'a> {
+    net: &'a Network,
+    text: &'a str,
+    mode: routing::Mode,
+}
+
 /// `plan --routing steered`: one purchase for the steered model.
 fn run_routed_plan(
     args: &PlanArgs,
-    net: &Network,
+    routed: Routed<'_>,
     scenarios: Vec<Scenario>,
     opts: audit::RunOptions,
     goal: expand::Goal,
-    mode: routing::Mode,
     out: &mut dyn Write,
+    err: &mut dyn Write,
 ) -> Result<Outcome> {
+    let Routed { net, text, mode } = routed;
     let ra = routing::run(net, scenarios, mode, opts, false)?;
     let plan = routing::expand::plan(net, &ra, goal, opts)?;
     let default_costs = expand::Candidates::of(net).default_costs;
@@ -997,6 +1023,7 @@ fn run_routed_plan(
         doc.routing = mode.name();
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
     }
+    write_applied(args, text, net, &plan.add, err)?;
     stdout_result(out.write_all(report::routing::plan_header(mode).as_bytes()))?;
     stdout_result(report::text::write_plan(
         out,

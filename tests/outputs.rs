@@ -311,6 +311,51 @@ fn plan_apply_changes_only_the_bought_lines() {
         "integers stay integers"
     );
 
+    only_bought_lines_changed(&input, &applied, &add);
+}
+
+/// `plan --routing steered --apply` writes the file too (it was silently skipped), with
+/// the same in-place edit: on the small ring the steered plan buys at c.
+#[test]
+fn plan_apply_works_with_steered_routing() {
+    let text = std::fs::read_to_string(common::fixture("small-ring.json")).unwrap();
+    let input = TempPath::with_text("ring-in", &text);
+    let (applied, plan) = (
+        TempPath::new("ring-out", "json"),
+        TempPath::new("ring-plan", "json"),
+    );
+    let run = redoubt(&[
+        "plan",
+        input.path(),
+        "--quiet",
+        "--routing",
+        "steered",
+        "--json",
+        plan.path(),
+        "--apply",
+        applied.path(),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let add = plan.read_json()["plan"]["add"]
+        .as_object()
+        .expect("plan.add")
+        .clone();
+    assert!(!add.is_empty(), "the steered plan buys something");
+    assert!(applied.0.exists(), "--apply wrote its file");
+    only_bought_lines_changed(&input, &applied, &add);
+}
+
+/// `applied` is `input` with each site of `add` (site id → units, from the plan's JSON)
+/// bought: `diff` shows only `processing` / `expand_max` lines, at most two per bought
+/// site; each `processing` grew by the addition and each finite `expand_max` shrank by
+/// it; every other line is byte-identical, in order.
+fn only_bought_lines_changed(
+    input: &TempPath,
+    applied: &TempPath,
+    add: &serde_json::Map<String, Value>,
+) {
+    let text = std::fs::read_to_string(&input.0).unwrap();
+    let out = std::fs::read_to_string(&applied.0).unwrap();
     let (removed, added) = diff_lines(input.path(), applied.path());
     let changed = |lines: &[String]| {
         lines

@@ -32,6 +32,7 @@ pub(crate) use candidates::{add_vars, values};
 pub(crate) use close::target;
 pub use close::{Closing, binding, close, links_of};
 pub use master::TOTAL_MAX_VARS;
+pub(crate) use tidy::snap_up;
 
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::Result;

@@ -30,6 +30,28 @@ const SNAP_GRID: f64 = 1e-5;
 /// master asks for a hair below best, 1e-8 of required, so its plan may be that far under).
 const SNAP_UP_TOL: f64 = 1e-6;
 
+/// Moves each addition lying within [`SNAP_UP_TOL`] (relative) below a multiple of
+/// [`SNAP_GRID`] · the largest addition's power of ten up onto it (2.9999999995 → 3), so
+/// solver noise does not reach reports or an applied file; upward only, so nothing serves
+/// less, and only while `Σ cost · add` stays within `budget`. O(sites).
+pub(crate) fn snap_up(add: &mut [f64], cands: &Candidates, budget: Option<f64>) {
+    let largest = add.iter().copied().fold(0.0, f64::max);
+    if largest <= 0.0 {
+        return;
+    }
+    let grid = SNAP_GRID * 10f64.powf(largest.log10().floor());
+    for v in 0..add.len() {
+        let snapped = (add[v] / grid).round() * grid;
+        if add[v] > 0.0 && snapped > add[v] && snapped - add[v] <= SNAP_UP_TOL * add[v] {
+            let was = add[v];
+            add[v] = snapped;
+            if budget.is_some_and(|b| cands.cost_of(add) > b) {
+                add[v] = was;
+            }
+        }
+    }
+}
+
 /// A plan after trimming and dropping, with the drivers of each addition.
 pub(super) struct Tidied {
     pub add: Vec<f64>,

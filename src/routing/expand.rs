@@ -312,7 +312,14 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
             }),
         )
     } else {
-        (lp_add, None)
+        // Interior-point noise (2.9999999995) snapped up onto a round value.
+        let mut snapped = lp_add;
+        let budget = match goal {
+            Goal::CloseAll => None,
+            Goal::WorstWithin(b) | Goal::TotalWithin(b) => Some(b),
+        };
+        crate::expand::snap_up(&mut snapped, &cands, budget);
+        (snapped, None)
     };
     let mut drivers: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.sites.len()];
     for (&k, index) in short.iter().zip(&indices) {
