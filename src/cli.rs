@@ -28,7 +28,8 @@ pub enum Command {
     #[command(after_help = AUDIT_EXAMPLES)]
     Audit(AuditArgs),
     /// Pre-change check: run the same scenarios on two versions of a network and say
-    /// which got worse (exit 1 when any got worse by more than --tolerance).
+    /// which got worse (exit 1 when any got worse by more than --tolerance, or is short
+    /// and was not before).
     #[command(after_help = COMPARE_EXAMPLES)]
     Compare(CompareArgs),
     /// Combine the part files of `audit --shard I/N` into the audit an unsharded run gives.
@@ -111,6 +112,15 @@ pub struct MergeArgs {
     /// Write the merged audit to this JSON file (exactly what the unsharded run writes).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
+    /// Write one CSV row per scenario to this file, as `audit --csv` does.
+    #[arg(long, value_name = "FILE")]
+    pub csv: Option<PathBuf>,
+    /// Write the HTML report and its Markdown twin into this folder, as `audit --report`.
+    #[arg(long, value_name = "DIR")]
+    pub report: Option<PathBuf>,
+    /// Explain the worst scenario, as `audit --why`.
+    #[arg(long)]
+    pub why: bool,
     /// How many scenarios (and elements) the tables show.
     #[arg(long, default_value_t = 15)]
     pub top: usize,
@@ -208,7 +218,8 @@ pub struct AuditArgs {
     /// finish, in FILE.journal).
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
-    /// Write one CSV row per scenario to this file (after a `#` caution line and a header).
+    /// Write one CSV row per scenario to this file (after a header row; the caution is the
+    /// last column).
     #[arg(long, value_name = "FILE")]
     pub csv: Option<PathBuf>,
     /// Write a self-contained HTML report (report.html) and its Markdown twin (report.md)
@@ -318,6 +329,10 @@ pub struct CompareArgs {
         allow_negative_numbers = true
     )]
     pub tolerance: f64,
+    /// Let scenarios that are short after the change and were not before (a new point of
+    /// failure) pass; they are still listed. Without it they fail the compare (exit 1).
+    #[arg(long)]
+    pub allow_new_short: bool,
     /// Write the comparison to this JSON file.
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,

@@ -5,7 +5,12 @@
 //! demand, each as printed ([`crate::report::displayed`]), rose by more than the
 //! tolerance; *better* when either fell by more than it and neither rose. A scenario that
 //! names an element only one side has is an *added risk* (only after) or a *removed risk*
-//! (only before). The command exits 1 when any scenario got worse.
+//! (only before). A scenario on both sides is *newly short* when its shortfall as printed
+//! is 0 before and above 0 after: the change made it a point of failure that it was not
+//! (a new single point of failure at depth 1), whatever the tolerance. The command exits 1
+//! when any scenario got worse or is newly short (`--allow-new-short` lets the newly short
+//! ones pass, still listed). Both files must state the same traffic `unit`: amounts in
+//! different units are not comparable, so such a pair is refused (exit 2).
 
 use std::collections::HashMap;
 use std::io::Write;
@@ -87,6 +92,11 @@ pub struct Comparison {
     pub worse: Vec<Change>,
     /// Largest decrease first.
     pub better: Vec<Change>,
+    /// Matched scenarios short after (as printed) and not before, largest shortfall after
+    /// first, then by name. They may also be in `worse`.
+    pub new_short: Vec<Change>,
+    /// Newly short scenarios do not fail the comparison (`--allow-new-short`).
+    pub allow_new_short: bool,
     /// Only after (they name an element the change adds), worst shortfall first.
     pub added_risks: Vec<OneSided>,
     /// Only before (they name an element the change removes), worst shortfall first.
@@ -97,9 +107,10 @@ pub struct Comparison {
 }
 
 impl Comparison {
-    /// Whether the change passes: no scenario got worse beyond the tolerance.
+    /// Whether the change passes: no scenario got worse beyond the tolerance, and none is
+    /// newly short (unless those are allowed).
     pub fn passed(&self) -> bool {
-        self.worse.is_empty()
+        self.worse.is_empty() && (self.allow_new_short || self.new_short.is_empty())
     }
 }
 
@@ -133,12 +144,14 @@ fn one_sided(audit: &Audit, only: &[usize]) -> Vec<OneSided> {
 
 /// Compares two audited sides. Scenarios are matched by their sorted `failed` lists
 /// (hash map, O(n) expected), then sorted: O(n log n) for n scenarios. Deterministic:
-/// every order ends on the scenario's names.
+/// every order ends on the scenario's names. `allow_new_short` is carried into the result
+/// ([`Comparison::passed`]).
 pub fn compare(
     before: (&Network, &Audit),
     after: (&Network, &Audit),
     tolerance: f64,
     down: Vec<String>,
+    allow_new_short: bool,
 ) -> Comparison {
     let (nb, ab) = before;
     let (na, aa) = after;
@@ -150,7 +163,7 @@ pub fn compare(
         .collect();
     let mut seen_before = vec![false; ab.scenarios.len()];
     let mut only_after = Vec::new();
-    let (mut worse, mut better) = (Vec::new(), Vec::new());
+    let (mut worse, mut better, mut new_short) = (Vec::new(), Vec::new(), Vec::new());
     let mut matched = 0;
     for (j, s) in aa.scenarios.iter().enumerate() {
         let Some(&i) = index.get(&s.failed[..]) else {
@@ -164,6 +177,9 @@ pub fn compare(
             Values::of(ab.eval(i)),
             Values::of(aa.eval(j)),
         );
+        if displayed(c.before.shortfall) == 0.0 && displayed(c.after.shortfall) > 0.0 {
+            new_short.push(c.clone());
+        }
         if c.delta_shortfall > tolerance || c.delta_stranded > tolerance {
             worse.push(c);
         } else if c.delta_shortfall < -tolerance || c.delta_stranded < -tolerance {
@@ -185,6 +201,13 @@ pub fn compare(
             .then(a.delta_stranded.total_cmp(&b.delta_stranded))
             .then_with(|| a.failed.cmp(&b.failed))
     });
+    new_short.sort_by(|a: &Change, b: &Change| {
+        b.after
+            .shortfall
+            .total_cmp(&a.after.shortfall)
+            .then(a.failed.len().cmp(&b.failed.len()))
+            .then_with(|| a.failed.cmp(&b.failed))
+    });
     let (eb, ea) = (element_names(nb), element_names(na));
     Comparison {
         before_name: nb.name.clone(),
@@ -195,6 +218,8 @@ pub fn compare(
         matched,
         worse,
         better,
+        new_short,
+        allow_new_short,
         added_risks: one_sided(aa, &only_after),
         removed_risks: one_sided(ab, &only_before),
         elements_added: ea
@@ -210,14 +235,29 @@ pub fn compare(
     }
 }
 
-/// Audits one side: its scenarios (with `--down`), solved with the walk engine.
+/// Refuses two sides whose amounts are in different traffic units (the file's `unit`
+/// label, compared exactly; a file without one is in `units`).
+pub fn same_unit(before: &Network, after: &Network) -> Result<()> {
+    if before.unit == after.unit {
+        return Ok(());
+    }
+    Err(Error::Usage(format!(
+        "BEFORE is in {:?} and AFTER in {:?}: amounts in different units cannot be compared; \
+         convert one file (every capacity, processing, volume and required amount) and give \
+         both the same `unit`",
+        before.unit, after.unit
+    )))
+}
+
+/// Audits one side (`net`, read from `path`): its scenarios (with `--down`), solved with
+/// the walk engine.
 fn audit_side(
     args: &CompareArgs,
+    net: Network,
     path: &std::path::Path,
     which: &str,
     err: &mut dyn Write,
 ) -> Result<(Network, Audit)> {
-    let net = crate::load(path)?;
     let sargs = args.side(path.to_path_buf());
     let in_side = |e: Error| match e {
         Error::Usage(m) => Error::Usage(format!("{which} ({}): {m}", path.display())),
@@ -230,7 +270,8 @@ fn audit_side(
 }
 
 /// `redoubt compare`: audits both sides, writes `--json` (atomically) before the text,
-/// and returns [`Outcome::GateFailed`] when any scenario got worse.
+/// and returns [`Outcome::GateFailed`] when the change does not pass
+/// ([`Comparison::passed`]). Two files in different units are refused before any solving.
 pub fn run(args: &CompareArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
     if !(args.tolerance.is_finite() && args.tolerance >= 0.0) {
         return Err(Error::Usage(format!(
@@ -241,15 +282,23 @@ pub fn run(args: &CompareArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     if let Some(json) = &args.json {
         report::file::check_output("--json", json, &[&args.before, &args.after])?;
     }
-    let (nb, ab) = audit_side(args, &args.before, "BEFORE", err)?;
-    let (na, aa) = audit_side(args, &args.after, "AFTER", err)?;
+    let (nb, na) = (crate::load(&args.before)?, crate::load(&args.after)?);
+    same_unit(&nb, &na)?;
+    let (nb, ab) = audit_side(args, nb, &args.before, "BEFORE", err)?;
+    let (na, aa) = audit_side(args, na, &args.after, "AFTER", err)?;
     let down = match &args.down {
         Some(list) => list.split(',').map(str::to_string).collect(),
         None => Vec::new(),
     };
     let bb = crate::with_baseline(&nb, &ab)?;
     let ba = crate::with_baseline(&na, &aa)?;
-    let c = compare((&nb, &ab), (&na, &aa), args.tolerance, down);
+    let c = compare(
+        (&nb, &ab),
+        (&na, &aa),
+        args.tolerance,
+        down,
+        args.allow_new_short,
+    );
     if let Some(path) = &args.json {
         let doc = report::json::compare_json(&c, &bb, &ba);
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;

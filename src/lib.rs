@@ -259,13 +259,11 @@ fn estimate(
     if let Some(max) = limit
         && minutes > max
     {
-        return Err(Error::Usage(format!(
-            "the run is estimated at {} minutes ({count} scenarios, one took {} s), \
-             above the limit of {} minutes; pass --yes to run it anyway, raise \
-             --max-minutes, or lower --depth / narrow --kinds",
-            report::num(minutes),
-            report::num(probe.sample_took.as_secs_f64()),
-            report::num(max)
+        return Err(Error::Usage(report::text::estimate_refused(
+            minutes,
+            count,
+            probe.sample_took.as_secs_f64(),
+            max,
         )));
     }
     Ok(probe)
@@ -412,6 +410,9 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     let gates = gates_of(args)?;
     time_limit(&args.scenarios)?;
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
+    if shard.is_some() {
+        report::text::refuse_with_shard(args.csv.is_some(), args.report.is_some(), args.why)?;
+    }
     let input = args.scenarios.network.as_path();
     let journal_path = args.json.as_deref().map(journal::path_for);
     if let (Some(json), Some(jp)) = (&args.json, &journal_path) {
@@ -488,9 +489,9 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     batch.seed(probe, journal.as_ref());
     let interrupted = |e: Error| match (&e, &journal) {
         (Error::Interrupted(_), Some(j)) => Error::Interrupted(format!(
-            "{} of {} outages saved in {}; run the same command with --resume to continue",
+            "{} of {} saved in {}; run the same command with --resume to continue",
             j.saved(),
-            j.outages(),
+            report::count(j.outages(), "outage"),
             j.path().display()
         )),
         (Error::Interrupted(_), None) => {
@@ -548,7 +549,8 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         .map(|j| (j.saved(), j.outages(), j.path().to_path_buf()));
     let interrupted = move |e: Error| match (&e, &saved) {
         (Error::Interrupted(_), Some((n, of, path))) => Error::Interrupted(format!(
-            "{n} of {of} outages saved in {}; run the same command with --resume to continue",
+            "{n} of {} saved in {}; run the same command with --resume to continue",
+            report::count(*of, "outage"),
             path.display()
         )),
         _ => e,
@@ -699,16 +701,27 @@ fn finish_audit(
 /// `merge`: reads the part files, rebuilds the run's scenario list from the network and
 /// options they carry, and writes what the unsharded audit writes.
 fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
+    let inputs: Vec<&Path> = args.parts.iter().map(PathBuf::as_path).collect();
     if let Some(json) = &args.json {
-        let inputs: Vec<&Path> = args.parts.iter().map(PathBuf::as_path).collect();
         report::file::check_output("--json", json, &inputs)?;
     }
+    if let Some(csv) = &args.csv {
+        let mut others = inputs.clone();
+        others.extend(args.json.as_deref());
+        report::file::check_output("--csv", csv, &others)?;
+    }
+    let mut others = inputs.clone();
+    others.extend(args.json.as_deref());
+    others.extend(args.csv.as_deref());
+    let report_files = report_dir(args.report.as_deref(), &others)?;
+    // --report and --why read evaluations in full, as an unsharded audit keeps them.
+    let whole = args.report.is_some() || args.why;
     let mut held: Vec<Option<solve::Evaluation>> = Vec::new();
     let parts = journal::Parts::open(&args.parts, |k, e| {
         if held.len() <= k {
             held.resize(k + 1, None);
         }
-        held[k] = Some(if k == 0 { e } else { e.thin() });
+        held[k] = Some(if k == 0 || whole { e } else { e.thin() });
     })?;
     let h = &parts.header;
     let net = Network::from_bytes(h.network.as_bytes())
@@ -718,7 +731,12 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
         _ => cli::Engine::Walks,
     };
     let list = scenarios_for(&net, h.depth, &h.kinds, h.fail.as_deref(), &[])?;
-    let mut batch = audit::Batch::new(&net, list.iter, engine).keeping(audit::Keep::Thin);
+    let keep = if whole {
+        audit::Keep::Full
+    } else {
+        audit::Keep::Thin
+    };
+    let mut batch = audit::Batch::new(&net, list.iter, engine).keeping(keep);
     if batch.outages() != h.outages {
         return Err(Error::Usage(format!(
             "merge: the parts name {} outages, their network and options give {}",
@@ -734,19 +752,27 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
         threads: None,
         progress: false,
     };
+    let risk = match h.fail {
+        Some(_) => None,
+        None => risk::assess(
+            &net,
+            &scenario::pool_without(&net, Kinds::parse(&h.kinds)?, &[]),
+            &audit,
+        ),
+    };
     finish_audit(
         &net,
         &audit,
         &full,
         AuditOutput {
             json: args.json.as_deref(),
-            csv: None,
-            risk: None,
+            csv: args.csv.as_deref(),
+            risk: risk.as_ref(),
             gates: &[],
             gate_tolerance: None,
             close: false,
-            why: false,
-            report: None,
+            why: args.why,
+            report: report_files.as_ref(),
             top: args.top,
             opts,
         },
@@ -758,20 +784,26 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
 
 /// `--report DIR`: the folder made when missing, and its two files checked before solving.
 fn report_files(args: &AuditArgs, input: &Path) -> Result<Option<(PathBuf, PathBuf)>> {
-    let Some(dir) = &args.report else {
+    let mut others = vec![input];
+    others.extend(args.json.as_deref());
+    others.extend(args.csv.as_deref());
+    report_dir(args.report.as_deref(), &others)
+}
+
+/// The `--report DIR` folder (made when missing) and its two files, checked as outputs
+/// that are none of `others`.
+fn report_dir(dir: Option<&Path>, others: &[&Path]) -> Result<Option<(PathBuf, PathBuf)>> {
+    let Some(dir) = dir else {
         return Ok(None);
     };
     std::fs::create_dir_all(dir).map_err(|source| Error::Io {
-        path: dir.clone(),
+        path: dir.to_path_buf(),
         source,
     })?;
     let html = dir.join(report::html::HTML_FILE);
     let md = dir.join(report::html::MARKDOWN_FILE);
-    let mut others = vec![input];
-    others.extend(args.json.as_deref());
-    others.extend(args.csv.as_deref());
-    report::file::check_output("--report", &html, &others)?;
-    report::file::check_output("--report", &md, &others)?;
+    report::file::check_output("--report", &html, others)?;
+    report::file::check_output("--report", &md, others)?;
     Ok(Some((html, md)))
 }
 
@@ -824,7 +856,12 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
         Some(routing::Mode::Nearest) => return Err(nearest_refused("plan")),
         Some(mode) => {
             let scenarios: Vec<Scenario> = list.iter.collect();
-            return run_routed_plan(args, &net, scenarios, opts, goal, mode, out);
+            let routed = Routed {
+                net: &net,
+                text: &text,
+                mode,
+            };
+            return run_routed_plan(args, routed, scenarios, opts, goal, out, err);
         }
         None => {}
     }
@@ -835,13 +872,7 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
         let doc = report::json::plan_json(&net, &audit, &plan, default_costs);
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
     }
-    if let Some(path) = &args.apply {
-        let doc = model::apply::with_purchase(&text, &net, &plan.add)?;
-        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
-        if !args.scenarios.quiet {
-            note(report::text::note_applied(err, path, &plan.add));
-        }
-    }
+    write_applied(args, &text, &net, &plan.add, err)?;
     stdout_result(report::text::write_plan(
         out,
         &net,
@@ -947,16 +978,43 @@ fn run_routed_audit(
     })
 }
 
+/// `plan --apply OUT`: the input file with the purchase `add` (edited in place), written
+/// atomically, and a note on stderr.
+fn write_applied(
+    args: &PlanArgs,
+    text: &str,
+    net: &Network,
+    add: &[f64],
+    err: &mut dyn Write,
+) -> Result<()> {
+    if let Some(path) = &args.apply {
+        let edited = model::apply::with_purchase(text, net, add)?;
+        report::file::write_atomic(path, |w| w.write_all(edited.as_bytes()))?;
+        if !args.scenarios.quiet {
+            note(report::text::note_applied(err, path, add));
+        }
+    }
+    Ok(())
+}
+
+/// The network of a routed plan, its file's text (for `--apply`) and the routing model.
+struct Routed<'a> {
+    net: &'a Network,
+    text: &'a str,
+    mode: routing::Mode,
+}
+
 /// `plan --routing steered`: one purchase for the steered model.
 fn run_routed_plan(
     args: &PlanArgs,
-    net: &Network,
+    routed: Routed<'_>,
     scenarios: Vec<Scenario>,
     opts: audit::RunOptions,
     goal: expand::Goal,
-    mode: routing::Mode,
     out: &mut dyn Write,
+    err: &mut dyn Write,
 ) -> Result<Outcome> {
+    let Routed { net, text, mode } = routed;
     let ra = routing::run(net, scenarios, mode, opts, false)?;
     let plan = routing::expand::plan(net, &ra, goal, opts)?;
     let default_costs = expand::Candidates::of(net).default_costs;
@@ -965,6 +1023,7 @@ fn run_routed_plan(
         doc.routing = mode.name();
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
     }
+    write_applied(args, text, net, &plan.add, err)?;
     stdout_result(out.write_all(report::routing::plan_header(mode).as_bytes()))?;
     stdout_result(report::text::write_plan(
         out,

@@ -2198,16 +2198,24 @@ fn parse_csv(text: &str) -> Vec<Vec<String>> {
 }
 
 /// CSV and JSON written by the same run agree on every scenario and field (both parsed
-/// here); the CSV starts with the caution line and has one row per scenario.
+/// here); the CSV starts with its header row, has one row per scenario and carries the
+/// caution in its last column.
 #[test]
 fn csv_agrees_with_json() {
     let f = TempPath::with_text("csv", &path_net_with_probabilities());
     let csv = TempPath::new("audit", "csv");
     let (_, doc) = audit_json(f.path(), &["--depth", "2", "--close", "--csv", csv.path()]);
     let text = std::fs::read_to_string(&csv.0).expect("csv written");
-    assert!(text.starts_with("# Caution: a planning aid"), "{text}");
+    assert!(text.starts_with("failed,rank,"), "{text}");
     let rows = parse_csv(&text);
     let header = &rows[0];
+    assert_eq!(header.last().map(String::as_str), Some("caution"));
+    assert!(
+        rows[1]
+            .last()
+            .unwrap()
+            .starts_with("Caution: a planning aid")
+    );
     assert_eq!(
         rows.len() - 1,
         scenarios(&doc).len(),
@@ -2308,8 +2316,9 @@ fn down_keeps_elements_down_in_every_scenario() {
 
 /// `compare`: removing link bc, which PATH_NET needs (hand table: its failure costs 6),
 /// fails the check (exit 1); the baseline got worse 0 → 6; scenarios naming link:bc are
-/// removed risks; an identical copy passes (exit 0) with nothing worse or better, and a
-/// tolerance above the worst increase passes too.
+/// removed risks; an identical copy passes (exit 0) with nothing worse or better. A
+/// tolerance above the worst increase still fails, since the baseline is newly short
+/// (short after, not before), unless `--allow-new-short`.
 #[test]
 fn compare_gates_a_change_that_removes_a_needed_link() {
     let before = TempPath::with_text("before", PATH_NET);
@@ -2365,16 +2374,20 @@ fn compare_gates_a_change_that_removes_a_needed_link() {
         "baseline, links, sites, group"
     );
 
-    let loose = redoubt(&[
+    let mut loose = vec![
         "compare",
         before.path(),
         after.path(),
         "--quiet",
         "--tolerance",
         "100",
-    ]);
-    assert_eq!(loose.code, 0, "{}", loose.stdout);
-    assert!(loose.stdout.contains("Caution:"), "{}", loose.stdout);
+    ];
+    let run = redoubt(&loose);
+    assert_eq!(run.code, 1, "newly short: {}", run.stdout);
+    loose.push("--allow-new-short");
+    let run = redoubt(&loose);
+    assert_eq!(run.code, 0, "{}", run.stdout);
+    assert!(run.stdout.contains("Caution:"), "{}", run.stdout);
 }
 
 /// `plan --apply`: the written network passes `check`, keeps the user's fields, and

@@ -52,6 +52,11 @@ impl Candidates {
         }
     }
 
+    /// Whether processing can be bought at site `v`: a candidate with room to add.
+    pub fn expandable(&self, v: usize) -> bool {
+        self.cost.get(v).is_some_and(Option::is_some) && self.max.get(v).is_some_and(|m| *m > 0.0)
+    }
+
     /// Cost of an addition vector: Σ cost_v · add_v. O(sites).
     pub fn cost_of(&self, add: &[f64]) -> f64 {
         add.iter()

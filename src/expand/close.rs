@@ -26,6 +26,10 @@ pub struct Closing {
     /// Links whose capacity limits `best` (positive shadow price with unlimited
     /// expansion), in link order.
     pub binding_links: Vec<LinkIdx>,
+    /// The link directions behind `binding_links`: (arc, shadow price with every
+    /// candidate expanded as far as allowed), largest price first, then by arc. One more
+    /// unit of that arc's capacity serves up to the price more there.
+    pub binding_arcs: Vec<(usize, f64)>,
     /// The dual objective of the continuous cost LP: equals `cost` by strong duality when
     /// no site buys by the module, else a lower bound on it.
     pub dual_bound: f64,
@@ -42,18 +46,20 @@ pub struct Closing {
 
 impl Closing {
     /// The closing of a scenario (evaluated as `eval`) that no added processing improves:
-    /// nothing to buy, its whole shortfall not closable, limited by `binding_links`.
+    /// nothing to buy, its whole shortfall not closable, limited by `binding_arcs` (as
+    /// [`Closing::binding_arcs`]).
     pub fn nothing_to_buy(
         net: &Network,
         eval: &Evaluation,
-        binding_links: Vec<LinkIdx>,
+        binding_arcs: Vec<(usize, f64)>,
     ) -> Closing {
         Closing {
             cost: 0.0,
             add: vec![0.0; net.sites.len()],
             best: eval.served_required,
             not_closable: eval.shortfall,
-            binding_links,
+            binding_links: links_of(net, &binding_arcs),
+            binding_arcs,
             dual_bound: 0.0,
             served_after: eval.served_required,
             verified: eval.proven(),
@@ -62,15 +68,32 @@ impl Closing {
     }
 }
 
+/// The links of `arcs` (link directions), sorted, each once. O(k log k).
+pub fn links_of(net: &Network, arcs: &[(usize, f64)]) -> Vec<LinkIdx> {
+    let mut links: Vec<LinkIdx> = arcs.iter().map(|&(a, _)| net.arcs[a].link).collect();
+    links.sort_unstable();
+    links.dedup();
+    links
+}
+
+/// Link directions with a shadow price above `PRICE_BINDS` (1e-6), as `(arc, price)`, largest
+/// price first, then by arc. O(m log m).
+pub fn binding(prices: impl Iterator<Item = (usize, f64)>) -> Vec<(usize, f64)> {
+    let mut v: Vec<(usize, f64)> = prices.filter(|&(_, p)| p > PRICE_BINDS).collect();
+    v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    v
+}
+
 /// Best served_required of `outage` (evaluated as `eval`) with every candidate expanded as
-/// far as allowed, and the links whose capacity limits it. The value is snapped to the
+/// far as allowed, and the link directions whose capacity limits it (with their shadow
+/// prices, as [`Closing::binding_arcs`]). The value is snapped to the
 /// whole required demand when within [`TOL`], and never below what `eval` already serves.
 pub(super) fn best_reachable(
     net: &Network,
     outage: &Outage,
     cands: &Candidates,
     eval: &Evaluation,
-) -> Result<(f64, Vec<LinkIdx>)> {
+) -> Result<(f64, Vec<(usize, f64)>)> {
     let required = eval.surviving_required;
     let (best, links) = best_reachable_raw(net, outage, cands, required)?;
     let best = if (required - best).abs() <= TOL * required.max(1.0) {
@@ -84,14 +107,14 @@ pub(super) fn best_reachable(
 /// [`best_reachable`] before snapping: the verified evaluation (see
 /// [`crate::solve::evaluate`]) of `net` with every candidate site that survives expanded
 /// to `min(expand_max, required)` (no site can use more than the whole demand), and the
-/// links with a positive shadow price there. Using the verified solve means the best
+/// link directions with a positive shadow price there. Using the verified solve means the best
 /// reachable value is proven by the same independent bounds as every scenario's.
 fn best_reachable_raw(
     net: &Network,
     outage: &Outage,
     cands: &Candidates,
     required: f64,
-) -> Result<(f64, Vec<LinkIdx>)> {
+) -> Result<(f64, Vec<(usize, f64)>)> {
     let alive = outage.site_alive(net);
     let add: Vec<f64> = (0..net.sites.len())
         .map(|v| match cands.cost[v] {
@@ -100,16 +123,8 @@ fn best_reachable_raw(
         })
         .collect();
     let e = solve::evaluate_cold_walks(&net.with_added_processing(&add), outage)?;
-    let mut links: Vec<LinkIdx> = e
-        .arc_price
-        .iter()
-        .enumerate()
-        .filter(|(_, p)| **p > PRICE_BINDS)
-        .map(|(a, _)| net.arcs[a].link)
-        .collect();
-    links.sort_unstable();
-    links.dedup();
-    Ok((e.served_required, links))
+    let arcs = binding(e.arc_price.iter().copied().enumerate());
+    Ok((e.served_required, arcs))
 }
 
 /// A shadow price above this counts as binding.
@@ -135,10 +150,10 @@ pub fn close(
         return Ok(None);
     }
     let required = eval.surviving_required;
-    let (best, binding_links) = best_reachable(net, outage, cands, eval)?;
+    let (best, binding_arcs) = best_reachable(net, outage, cands, eval)?;
     let scale = required.max(1.0);
     if best <= eval.served_required + TOL * scale {
-        return Ok(Some(Closing::nothing_to_buy(net, eval, binding_links)));
+        return Ok(Some(Closing::nothing_to_buy(net, eval, binding_arcs)));
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
@@ -156,7 +171,8 @@ pub fn close(
         add: add_units,
         best,
         not_closable: (required - best).max(0.0),
-        binding_links,
+        binding_links: links_of(net, &binding_arcs),
+        binding_arcs,
         dual_bound: whole.dual_bound,
         modules_exhaustive: whole.exhaustive,
     }))

@@ -29,7 +29,7 @@ mod tidy;
 
 pub use candidates::Candidates;
 pub(crate) use candidates::{add_vars, values};
-pub use close::{Closing, close};
+pub use close::{Closing, binding, close, links_of};
 pub(crate) use close::{target, top_up_one};
 pub(crate) use generate::{TOP_UP_ROUNDS, cheapest_raise, reaches};
 pub use master::TOTAL_MAX_VARS;
@@ -201,10 +201,13 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
     })
 }
 
-/// Per site: how many outages (with a shortfall) would serve more with one more unit
-/// there, and the largest such gain; from each outage's shadow prices. Sites without a
-/// processing row in an outage (no capacity) are not priced there.
-pub fn relief(audit: &Audit, n_sites: usize) -> Vec<(SiteIdx, usize, f64)> {
+/// Per expandable site (a candidate of `cands` with room to add): how many outages (with a
+/// shortfall) would serve more with one more unit there, and the largest such gain; from
+/// each outage's shadow prices. Sites without a processing row in an outage (no
+/// capacity) are not priced there; sites that cannot be expanded are left out, since no
+/// unit can be bought there.
+pub fn relief(audit: &Audit, cands: &Candidates) -> Vec<(SiteIdx, usize, f64)> {
+    let n_sites = cands.cost.len();
     let mut out: Vec<(SiteIdx, usize, f64)> = (0..n_sites).map(|v| (v, 0, 0.0)).collect();
     for e in &audit.evaluations {
         if e.shortfall <= 0.0 {
@@ -219,7 +222,7 @@ pub fn relief(audit: &Audit, n_sites: usize) -> Vec<(SiteIdx, usize, f64)> {
             }
         }
     }
-    out.retain(|r| r.1 > 0);
+    out.retain(|r| r.1 > 0 && cands.expandable(r.0));
     out.sort_by(|a, b| b.1.cmp(&a.1).then(b.2.total_cmp(&a.2)).then(a.0.cmp(&b.0)));
     out
 }

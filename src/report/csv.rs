@@ -1,7 +1,10 @@
 //! `--csv FILE`: one row per scenario, for spreadsheets.
 //!
-//! Layout: a first line `# ` + [`super::CAUTION`] (skip it as a comment line), a header
-//! row, then one row per scenario in the order of the JSON document's `scenarios`. The
+//! Layout: a header row first (what spreadsheet and data-frame readers take as the column
+//! names with their default options), then one row per scenario in the order of the JSON
+//! document's `scenarios`. The last column, `caution`, holds [`super::CAUTION`] in the
+//! first data row and is empty below it, so the caution travels with the data without a
+//! comment line that plain RFC 4180 readers would take for the header. The
 //! `failed` column is the scenario's elements joined with `,` (a `--fail` list; empty for
 //! the baseline). Numbers are the JSON document's (rounded with [`super::file_num`]), so the
 //! two files agree exactly. Fields are quoted as RFC 4180 asks (a comma, a quote or a line
@@ -35,16 +38,16 @@ fn failed_list(s: &Scenario) -> String {
     field(&s.failed.join(","))
 }
 
-/// The `audit --csv` exporter: caution line, header, one row per scenario; the
-/// `closing_cost` and `not_closable` columns appear when `closings` (per outage) are
-/// given, `probability` when `risk` is. O(scenarios · elements per scenario).
+/// The `audit --csv` exporter: header, one row per scenario, the caution in the last
+/// column of the first row; the `closing_cost` and `not_closable` columns appear when
+/// `closings` (per outage) are given, `probability` when `risk` is. O(scenarios ·
+/// elements per scenario).
 pub fn write_audit(
     w: &mut dyn Write,
     audit: &Audit,
     closings: Option<&[Option<Closing>]>,
     risk: Option<&Risk>,
 ) -> io::Result<()> {
-    writeln!(w, "# {CAUTION}")?;
     let mut header = vec![
         "failed",
         "rank",
@@ -60,7 +63,7 @@ pub fn write_audit(
     if risk.is_some() {
         header.push("probability");
     }
-    header.push("same_as");
+    header.extend(["same_as", "caution"]);
     writeln!(w, "{}", header.join(","))?;
     let order = crate::rank::worst_first(audit);
     let mut rank_of = vec![0; order.len()];
@@ -93,6 +96,11 @@ pub fn write_audit(
                 .map(|r| failed_list(&audit.scenarios[r]))
                 .unwrap_or_default(),
         );
+        row.push(if i == 0 {
+            field(CAUTION)
+        } else {
+            String::new()
+        });
         writeln!(w, "{}", row.join(","))?;
     }
     Ok(())

@@ -94,17 +94,14 @@ impl Report<'_> {
             ("links".into(), n.links.len().to_string()),
             ("demands".into(), n.demands.len().to_string()),
             ("risk groups".into(), n.groups.len().to_string()),
-            (
-                "offered volume".into(),
-                format!("{} {u}", num(n.total_volume())),
-            ),
+            ("offered volume".into(), super::amount(n.total_volume(), u)),
             (
                 "required demand".into(),
-                format!("{} {u}", num(n.total_required())),
+                super::amount(n.total_required(), u),
             ),
             (
                 "processing capacity".into(),
-                format!("{} {u}", num(n.total_processing())),
+                super::amount(n.total_processing(), u),
             ),
             (
                 "baseline served".into(),
@@ -121,9 +118,9 @@ impl Report<'_> {
             (
                 "scenarios".into(),
                 format!(
-                    "{} ({} distinct outages)",
+                    "{} ({})",
                     self.audit.scenarios.len(),
-                    self.audit.outages.len()
+                    super::count(self.audit.outages.len(), "distinct outage")
                 ),
             ),
             (

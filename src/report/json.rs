@@ -672,12 +672,17 @@ pub struct CompareJson {
     pub tolerance: f64,
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub down: Vec<String>,
-    /// No scenario got worse by more than the tolerance.
+    /// No scenario got worse by more than the tolerance, and none is newly short (unless
+    /// `--allow-new-short`).
     pub passed: bool,
     pub baseline: ChangeJson,
     pub matched_scenarios: usize,
     pub worse: Vec<ChangeJson>,
     pub better: Vec<ChangeJson>,
+    /// Scenarios short after the change and not before (shortfall as printed).
+    pub new_short: Vec<ChangeJson>,
+    /// Newly short scenarios were allowed to pass (`--allow-new-short`).
+    pub allow_new_short: bool,
     pub added_risks: Vec<OneSidedJson>,
     pub removed_risks: Vec<OneSidedJson>,
     pub elements_added: Vec<String>,
@@ -733,6 +738,8 @@ pub fn compare_json(
         matched_scenarios: c.matched,
         worse: c.worse.iter().map(change_json).collect(),
         better: c.better.iter().map(change_json).collect(),
+        new_short: c.new_short.iter().map(change_json).collect(),
+        allow_new_short: c.allow_new_short,
         added_risks: one_sided_json(&c.added_risks),
         removed_risks: one_sided_json(&c.removed_risks),
         elements_added: c.elements_added.clone(),

@@ -305,6 +305,54 @@ pub fn shift_text(text: &str, places: i32) -> Option<String> {
     })
 }
 
+/// An amount with its traffic unit, `num(x) unit`. The default label `units` (a file
+/// without `unit`) reads `unit` when the amount prints as exactly 1 (`1 unit`, `0.5
+/// units`); other labels (`Gbit/s`, `Mpps`) are symbols and never change. O(1).
+pub fn amount(x: f64, unit: &str) -> String {
+    let n = num(x);
+    let u = if n == "1" { unit_one(unit) } else { unit };
+    format!("{n} {u}")
+}
+
+/// The unit label for one unit: `unit` for the default `units`, any other label as is.
+pub fn unit_one(unit: &str) -> &str {
+    if unit == "units" { "unit" } else { unit }
+}
+
+/// `n noun` with the plural `s` when `n` is not 1 (`1 outage`, `3 outages`). For nouns
+/// whose plural is the word plus `s`. O(len).
+pub fn count(n: usize, noun: &str) -> String {
+    format!("{n} {noun}{}", if n == 1 { "" } else { "s" })
+}
+
+/// A duration for people, from seconds, with one decimal at most: milliseconds under a
+/// second (`0.6 ms`, `60 ms`; `under 0.1 ms` when it would print as 0), seconds under two
+/// minutes (`17.6 s`), minutes under two hours (`5 minutes`, `60.2 minutes`), hours
+/// beyond (`2.5 hours`). Never `0 minutes`. O(1).
+pub fn duration(seconds: f64) -> String {
+    let one = |x: f64| {
+        let s = format!("{x:.1}");
+        s.trim_end_matches(".0").to_string()
+    };
+    if !seconds.is_finite() {
+        return num(seconds);
+    }
+    if seconds < 1.0 {
+        return match one(seconds * 1000.0) {
+            z if z == "0" || z == "-0" => "under 0.1 ms".into(),
+            ms => format!("{ms} ms"),
+        };
+    }
+    if seconds < 120.0 {
+        return format!("{} s", one(seconds));
+    }
+    let minutes = seconds / 60.0;
+    if minutes < 120.0 {
+        return format!("{} minutes", one(minutes));
+    }
+    format!("{} hours", one(minutes / 60.0))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -427,5 +475,22 @@ mod tests {
         assert_eq!(shift_text("1e3", -2), None);
         assert_eq!(shift_text("", -2), None);
         assert_eq!(shift_text(".", -2), None);
+        assert_eq!(amount(1.0, "units"), "1 unit");
+        assert_eq!(amount(1.0004, "units"), "1 unit");
+        assert_eq!(amount(0.5, "units"), "0.5 units");
+        assert_eq!(amount(1.0, "Mpps"), "1 Mpps");
+        assert_eq!(count(1, "outage"), "1 outage");
+        assert_eq!(count(0, "outage"), "0 outages");
+        assert_eq!(duration(0.06), "60 ms");
+        assert_eq!(duration(0.0006), "0.6 ms");
+        assert_eq!(duration(0.00001), "under 0.1 ms");
+        assert_eq!(duration(17.58), "17.6 s");
+        assert_eq!(duration(119.0), "119 s");
+        assert_eq!(duration(300.0), "5 minutes");
+        assert_eq!(duration(3612.0), "60.2 minutes");
+        assert_eq!(duration(9000.0), "2.5 hours");
+        for x in [1e9, 3.3e15, 7.77e100, f64::MAX, -f64::MAX] {
+            assert!(num(x).len() <= 16, "{x}: {}", num(x));
+        }
     }
 }

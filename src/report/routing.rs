@@ -139,10 +139,10 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
     let t = screen::render(&mut t, &[6, 7]);
     let _ = writeln!(
         out,
-        "\nWorst {} of {} scenarios under {m} routing, beside the best re-route \
+        "\nWorst {} of {} under {m} routing, beside the best re-route \
          (win-back = what steering or re-optimisation would recover):\n{t}",
         top.min(order.len()),
-        order.len()
+        super::count(order.len(), "scenario")
     );
     let only: Vec<String> = order
         .iter()

@@ -6,7 +6,7 @@ use comfy_table::Cell;
 
 use std::io::{self, Write};
 
-use super::{CAUTION, file_diff, given, num, percent, shift_point, small};
+use super::{CAUTION, amount, file_diff, given, num, percent, shift_point, small, unit_one};
 use crate::audit::Audit;
 use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
@@ -40,10 +40,10 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) ->
     );
     let _ = writeln!(
         out,
-        "  volume {} {u}  required {} {u}  processing {} {u}",
-        num(net.total_volume()),
-        num(net.total_required()),
-        num(net.total_processing())
+        "  volume {}  required {}  processing {}",
+        amount(net.total_volume(), u),
+        amount(net.total_required(), u),
+        amount(net.total_processing(), u)
     );
     let procs: Vec<String> = net
         .sites
@@ -170,9 +170,15 @@ pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
     }
 }
 
-/// The `k` sites with the highest shadow price of processing in a scenario with a
-/// shortfall, as `site (+price)`: one more unit there serves up to `price` more.
-pub fn marginal_sites(net: &Network, e: &Evaluation, k: usize) -> String {
+/// The `k` expandable sites (where processing can be bought) with the highest shadow price
+/// of processing in a scenario with a shortfall, as `site (+price)`: one more unit there
+/// serves up to `price` more.
+pub fn marginal_sites(
+    net: &Network,
+    cands: &crate::expand::Candidates,
+    e: &Evaluation,
+    k: usize,
+) -> String {
     if e.shortfall <= 0.0 {
         return "—".into();
     }
@@ -180,6 +186,7 @@ pub fn marginal_sites(net: &Network, e: &Evaluation, k: usize) -> String {
         .site_price
         .iter()
         .enumerate()
+        .filter(|&(s, _)| cands.expandable(s))
         .filter_map(|(s, p)| p.filter(|p| *p > 1e-6).map(|p| (s, p)))
         .collect();
     v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
@@ -238,11 +245,11 @@ pub fn verdict(net: &Network, audit: &Audit, gates: &[GateResult]) -> String {
         Some(i) if short > 0 => {
             let e = audit.eval(i);
             format!(
-                "{short} of {n} scenario{} short; worst {} (shortfall {} {u}, stranded {} {u})",
+                "{short} of {n} scenario{} short; worst {} (shortfall {}, stranded {})",
                 plural(n),
                 audit.scenarios[i].display_name(),
-                num(e.shortfall),
-                num(e.stranded)
+                amount(e.shortfall, u),
+                amount(e.stranded, u)
             )
         }
         _ => format!("none of {n} scenario{} short", plural(n)),
@@ -288,13 +295,13 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     );
     let _ = writeln!(
         out,
-        "Baseline: serves {} of {} {u} required ({}), throughput {} of {} {u} offered; \
+        "Baseline: serves {} of {} required ({}), throughput {} of {} offered; \
          certified gap {}.",
         num(baseline.served_required),
-        num(baseline.surviving_required),
+        amount(baseline.surviving_required, u),
         percent(baseline.served_required, baseline.surviving_required),
         num(baseline.throughput),
-        num(net.total_volume()),
+        amount(net.total_volume(), u),
         small(baseline.certified_gap())
     );
     let down: Vec<String> = audit
@@ -314,9 +321,9 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     if base_short {
         let _ = writeln!(
             out,
-            "The baseline is already {} {u} short; every scenario's shortfall includes what the \
+            "The baseline is already {} short; every scenario's shortfall includes what the \
              baseline misses, and the column \"beyond baseline\" shows what the failure adds.",
-            num(baseline.shortfall)
+            amount(baseline.shortfall, u)
         );
         if !baseline.cut_off.is_empty() {
             let _ = writeln!(
@@ -327,6 +334,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         }
     }
     let folding = crate::fold::Folding::of(audit);
+    let cands = crate::expand::Candidates::of(net);
     let all = rank::worst_first(audit).len();
     let order: Vec<usize> = rank::worst_first(audit)
         .into_iter()
@@ -368,7 +376,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             Cell::new(percent(e.shortfall, e.surviving_required)),
             Cell::new(num(e.stranded)),
             Cell::new(num(file_diff(baseline.throughput, e.throughput).max(0.0))),
-            Cell::new(match marginal_sites(net, e, 2) {
+            Cell::new(match marginal_sites(net, &cands, e, 2) {
                 m if m == "none" || m == "—" => main_bottleneck(net, e),
                 m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
             }),
@@ -410,9 +418,10 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     if short > 0 {
         let _ = writeln!(
             out,
-            "\"one more unit helps at X (+Y)\": one more unit of processing at X serves up to Y \
-             more in that scenario (its shadow price); when it is not shown, more processing \
-             anywhere would not serve more (links or cut-off paths limit it)."
+            "\"one more unit helps at X (+Y)\": one more unit of processing bought at X (an \
+             expandable site) serves up to Y more in that scenario (its shadow price); when it \
+             is not shown, one more unit at an expandable site would not serve more (links, \
+             cut-off paths or processing at sites that cannot be expanded limit it)."
         );
     }
 
@@ -449,11 +458,11 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         if !e.proven() {
             let _ = writeln!(
                 out,
-                "UNPROVEN: {}: served_required between {} and {} {u} (reported at the lower \
+                "UNPROVEN: {}: served_required between {} and {} (reported at the lower \
                  bound, so its shortfall is not understated).",
                 audit.first_scenario(k).display_name(),
                 num(e.verification.lower),
-                num(e.verification.upper)
+                amount(e.verification.upper, u)
             );
         }
     }
@@ -692,10 +701,10 @@ pub fn closing_report(
         if !c.verified {
             let _ = writeln!(
                 out,
-                "UNVERIFIED closing: {}: with the additions it serves {} of the best reachable {} {u}.",
+                "UNVERIFIED closing: {}: with the additions it serves {} of the best reachable {}.",
                 audit.scenarios[i].display_name(),
                 num(c.served_after),
-                num(c.best)
+                amount(c.best, u)
             );
         }
     }
@@ -704,7 +713,7 @@ pub fn closing_report(
 
 /// "Where one more unit helps": sites whose added unit relieves the most scenarios.
 pub fn relief_report(net: &Network, audit: &Audit, top: usize) -> String {
-    let rows = crate::expand::relief(audit, net.sites.len());
+    let rows = crate::expand::relief(audit, &crate::expand::Candidates::of(net));
     let mut out = String::new();
     if rows.is_empty() {
         return out;
@@ -725,8 +734,8 @@ pub fn relief_report(net: &Network, audit: &Audit, top: usize) -> String {
     let t = render(&mut t, &[]);
     let _ = writeln!(
         out,
-        "\nWhere one more unit of processing helps (shadow prices of processing, over the \
-         outages with a shortfall):\n{t}"
+        "\nWhere one more unit of processing helps (expandable sites; shadow prices of \
+         processing, over the outages with a shortfall):\n{t}"
     );
     out
 }
@@ -761,10 +770,10 @@ pub fn plan_report(
     };
     let _ = writeln!(
         out,
-        "{} — purchase plan over {} scenarios ({} distinct outages): {goal}.",
+        "{} — purchase plan over {} ({}): {goal}.",
         net.name,
-        audit.scenarios.len(),
-        audit.outages.len()
+        super::count(audit.scenarios.len(), "scenario"),
+        super::count(audit.outages.len(), "distinct outage")
     );
     if default_costs {
         let _ = writeln!(
@@ -909,9 +918,9 @@ pub fn plan_report(
         if left > 0.0 {
             let _ = writeln!(
                 out,
-                "Worst shortfall after the plan: {} {u}; what remains is limited by links or \
+                "Worst shortfall after the plan: {}; what remains is limited by links or \
                  connectivity, not by processing{}.",
-                num(left),
+                amount(left, u),
                 if matches!(plan.goal, Goal::CloseAll) {
                     ""
                 } else {
@@ -1016,8 +1025,16 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
         (
             flag,
             what,
-            format!("{} {u}", num(g.value)),
-            format!("{} {u}", given(g.limit)),
+            super::amount(g.value, u),
+            format!(
+                "{} {}",
+                given(g.limit),
+                if given(g.limit) == "1" {
+                    super::unit_one(u)
+                } else {
+                    u
+                }
+            ),
             if g.passed { "within" } else { "exceeds" },
         )
     };
@@ -1065,13 +1082,46 @@ pub fn note_estimate(
 ) -> io::Result<()> {
     writeln!(
         w,
-        "redoubt: {scenarios} scenarios to solve; one took {} s, so about {} minute{} on \
-         {threads} thread{}",
-        num(first_solve.as_secs_f64()),
-        num(minutes),
-        if minutes == 1.0 { "" } else { "s" },
-        if threads == 1 { "" } else { "s" }
+        "redoubt: {} to solve; one took {}, so about {} on {}",
+        super::count(scenarios, "scenario"),
+        super::duration(first_solve.as_secs_f64()),
+        super::duration(60.0 * minutes),
+        super::count(threads, "thread")
     )
+}
+
+/// The refusal of a run estimated beyond its time limit (both in minutes), in durations
+/// a person reads at a glance ([`super::duration`]: seconds under two minutes).
+pub fn estimate_refused(minutes: f64, scenarios: usize, one_took: f64, limit: f64) -> String {
+    format!(
+        "the run is estimated at {} ({}, one took {}), above the limit of {} \
+         (--max-minutes {limit}); pass --yes to run it anyway, raise --max-minutes, or lower \
+         --depth / narrow --kinds",
+        super::duration(60.0 * minutes),
+        super::count(scenarios, "scenario"),
+        super::duration(one_took),
+        super::duration(60.0 * limit),
+    )
+}
+
+/// `audit --shard` writes a part file and nothing else: `--csv`, `--report` and `--why`
+/// (flags given as `csv`, `report`, `why`) are refused with a pointer to `merge`, which
+/// writes them for the whole run.
+pub fn refuse_with_shard(csv: bool, report: bool, why: bool) -> crate::error::Result<()> {
+    let given: Vec<&str> = [(csv, "--csv"), (report, "--report"), (why, "--why")]
+        .into_iter()
+        .filter_map(|(on, flag)| on.then_some(flag))
+        .collect();
+    if given.is_empty() {
+        return Ok(());
+    }
+    Err(crate::error::Error::Usage(format!(
+        "--shard writes only a part file, so {} would describe one shard; give {} to \
+         `redoubt merge PART… --json FILE`, which writes {} for the whole run",
+        given.join(", "),
+        if given.len() == 1 { "it" } else { "them" },
+        if given.len() == 1 { "it" } else { "them" }
+    )))
 }
 
 /// What `audit --shard I/N` prints: the shard, its outages and where its part is.
@@ -1084,8 +1134,9 @@ pub fn write_shard(
 ) -> io::Result<()> {
     writeln!(
         w,
-        "shard {shard}/{shards}: {outages} outages solved; part written to {} (combine the \
+        "shard {shard}/{shards}: {} solved; part written to {} (combine the \
          parts with `redoubt merge PART… --json FILE`)",
+        super::count(outages, "outage"),
         printable(&part.display().to_string())
     )
 }
@@ -1106,7 +1157,8 @@ pub fn note_resume(
         ),
         super::journal::Opened::Resumed(n) => writeln!(
             w,
-            "redoubt: resuming: {n} of {outages} outages restored from {}",
+            "redoubt: resuming: {n} of {} restored from {}",
+            super::count(outages, "outage"),
             journal.display()
         ),
     }
@@ -1167,12 +1219,19 @@ fn compare_lines(
     let verdict = if c.passed() { "PASS" } else { "FAIL" };
     writeln!(
         w,
-        "{verdict} compare: {} of {} matched scenario{} got worse by more than {} {u} \
-         (shortfall or stranded, as printed); {} better; {} added risk{}, {} removed.",
+        "{verdict} compare: {} of {} matched scenario{} got worse by more than {} \
+         (shortfall or stranded, as printed); {} newly short{}; {} better; {} added risk{}, \
+         {} removed.",
         c.worse.len(),
         c.matched,
         plural(c.matched),
-        num(c.tolerance),
+        amount(c.tolerance, u),
+        c.new_short.len(),
+        if c.allow_new_short && !c.new_short.is_empty() {
+            " (allowed)"
+        } else {
+            ""
+        },
         c.better.len(),
         c.added_risks.len(),
         plural(c.added_risks.len()),
@@ -1191,13 +1250,13 @@ fn compare_lines(
     )?;
     writeln!(
         w,
-        "Baseline shortfall {} → {} {u}, stranded {} → {} {u}, throughput {} → {} {u}.",
+        "Baseline shortfall {} → {}, stranded {} → {}, throughput {} → {}.",
         num(before.shortfall),
-        num(after.shortfall),
+        amount(after.shortfall, u),
         num(before.stranded),
-        num(after.stranded),
+        amount(after.stranded, u),
         num(before.throughput),
-        num(after.throughput)
+        amount(after.throughput, u)
     )?;
     let changes = |title: &str, list: &[crate::compare::Change]| -> String {
         let mut t = table(&[
@@ -1227,6 +1286,18 @@ fn compare_lines(
             render(&mut t, &[])
         )
     };
+    if !c.new_short.is_empty() {
+        let title = format!(
+            "Newly short: short after the change and not before, a new point of failure \
+             that {}",
+            if c.allow_new_short {
+                "--allow-new-short lets pass"
+            } else {
+                "fails the compare unless --allow-new-short"
+            }
+        );
+        w.write_all(changes(&title, &c.new_short).as_bytes())?;
+    }
     if !c.worse.is_empty() {
         w.write_all(changes("Got worse", &c.worse).as_bytes())?;
     }
@@ -1331,13 +1402,13 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "\nWhy {name}: serves {} of {} {u} surviving required ({} short, {} of surviving \
-         required); {} {u} stranded.",
+        "\nWhy {name}: serves {} of {} surviving required ({} short, {} of surviving \
+         required); {} stranded.",
         num(e.served_required),
-        num(e.surviving_required),
+        amount(e.surviving_required, u),
         num(e.shortfall),
         percent(e.shortfall, e.surviving_required),
-        num(e.stranded)
+        amount(e.stranded, u)
     );
     let mut t = table(&[
         "demand",
@@ -1447,64 +1518,61 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
         let _ = writeln!(out, "Nothing is short, so nothing needs fixing.");
         return out;
     }
-    match why.closing {
+    // One explanation: what processing fixes (bought only at expandable sites, the
+    // closing's), then what holds the rest back, judged in the same state as the links
+    // that must grow: every expandable site at its limit. Without a closing, the
+    // scenario's own shadow prices are all there is.
+    let grow: Vec<(usize, f64)> = match why.closing {
         Some(c) => {
             let fixed = (c.best - e.served_required).max(0.0);
+            let held = held_back(net, e, c);
             if fixed > 0.0 {
                 let _ = writeln!(
                     out,
-                    "Processing can fix {} {u} of the {} {u} short: add {} (cost {}).",
-                    num(fixed),
-                    num(e.shortfall),
+                    "Processing can fix {} of the {} short: add {} (cost {}).",
+                    amount(fixed, u),
+                    amount(e.shortfall, u),
                     additions(net, &c.add, net.sites.len()),
                     num(c.cost)
                 );
+                if c.not_closable > 0.0 {
+                    let _ = writeln!(
+                        out,
+                        "It cannot fix the other {}: {held}.",
+                        amount(c.not_closable, u)
+                    );
+                }
             } else {
                 let _ = writeln!(
                     out,
-                    "Processing cannot fix any of it: added processing at the candidate sites \
-                     would not serve more."
+                    "Processing cannot fix any of the {} short: {held}.",
+                    amount(e.shortfall, u)
                 );
             }
-            if c.not_closable > 0.0 {
-                let _ = writeln!(
-                    out,
-                    "Processing cannot fix {} {u}: {}.",
-                    num(c.not_closable),
-                    if c.binding_links.is_empty() {
-                        "cut-off demands or the expansion limits hold it back".to_string()
-                    } else {
-                        format!(
-                            "the capacity of {} holds it back",
-                            link_list(net, &c.binding_links, c.binding_links.len())
-                        )
-                    }
-                );
-            }
+            c.binding_arcs.clone()
         }
         None => {
             let _ = writeln!(out, "What processing can fix was not computed.");
+            crate::expand::binding(e.arc_price.iter().copied().enumerate())
         }
-    }
-    let mut grow: Vec<(usize, f64)> = e
-        .arc_price
-        .iter()
-        .enumerate()
-        .filter(|(_, p)| **p > PRICE_SHOWN)
-        .map(|(a, p)| (a, *p))
-        .collect();
-    grow.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    };
+    let state = if why.closing.is_some() {
+        "with processing added as far as allowed at the expandable sites"
+    } else {
+        "in this scenario as it is"
+    };
     if grow.is_empty() {
         let _ = writeln!(
             out,
-            "Links that would have to grow: none (no link direction's capacity limits what is \
-             served)."
+            "Links that would have to grow: none ({state}, no link direction's capacity limits \
+             what is served)."
         );
     } else {
         let _ = writeln!(
             out,
-            "Links that would have to grow (one more {u} of capacity serves up to this much more, \
-             its shadow price): {}.",
+            "Links that would have to grow ({state}; one more {} of capacity serves up to this \
+             much more, its shadow price): {}.",
+            unit_one(u),
             first_k(
                 grow.iter().map(|&(a, p)| format!(
                     "{} +{}",
@@ -1518,5 +1586,29 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
     out
 }
 
-/// Shadow prices at or below this are shown as no effect (solver noise).
-const PRICE_SHOWN: f64 = 1e-6;
+/// What holds back the part of a shortfall that processing cannot fix, in the state of
+/// the closing's best reachable value (every expandable site at its limit): link capacity
+/// (the links are named once, in the sentence that follows), demands cut off from every
+/// surviving processing site, or the expansion limits.
+fn held_back(net: &Network, e: &Evaluation, c: &crate::expand::Closing) -> String {
+    let cut: f64 = e
+        .cut_off
+        .iter()
+        .map(|&(d, _)| net.demands[d].required)
+        .sum();
+    if !c.binding_arcs.is_empty() {
+        "link capacity holds it back even with every expandable site at its limit (the \
+         links below)"
+            .into()
+    } else if cut > 0.0 && super::displayed(cut) >= super::displayed(c.not_closable) {
+        "the cut-off demands above have no walk through a surviving processing site".into()
+    } else if cut > 0.0 {
+        format!(
+            "{} of it is cut-off demand (no walk through a surviving processing site); the \
+             expansion limits (expand_max, candidate sites) hold back the rest",
+            num(cut)
+        )
+    } else {
+        "the expansion limits (expand_max, candidate sites) hold it back".into()
+    }
+}

@@ -67,7 +67,8 @@ fn expandable_routes(
 }
 
 /// Best steered served_required of `outage` with every candidate expanded as allowed, and
-/// the links limiting it (positive shadow price). Snapped to `required` within [`TOL`] and
+/// the link directions limiting it (positive shadow price, as
+/// [`Closing::binding_arcs`]). Snapped to `required` within [`TOL`] and
 /// never below `served`.
 fn best_reachable(
     net: &Network,
@@ -76,7 +77,7 @@ fn best_reachable(
     cands: &Candidates,
     required: f64,
     served: f64,
-) -> Result<(f64, Vec<usize>)> {
+) -> Result<(f64, Vec<(usize, f64)>)> {
     let mut model = Lp::new(true);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 0.0);
     let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
@@ -94,20 +95,19 @@ fn best_reachable(
     }
     let sol = lp::solve(&model)?;
     let best = index.served(&sol.x).clamp(0.0, required);
-    let mut links: Vec<usize> = index
-        .arc_row
-        .iter()
-        .enumerate()
-        .filter_map(|(a, r)| r.filter(|&r| sol.duals[r] > 1e-6).map(|_| net.arcs[a].link))
-        .collect();
-    links.sort_unstable();
-    links.dedup();
+    let arcs = crate::expand::binding(
+        index
+            .arc_row
+            .iter()
+            .enumerate()
+            .filter_map(|(a, r)| r.map(|r| (a, sol.duals[r]))),
+    );
     let best = if (required - best).abs() <= TOL * required.max(1.0) {
         required
     } else {
         best.max(served)
     };
-    Ok((best, links))
+    Ok((best, arcs))
 }
 
 /// For one scenario with a steered shortfall (`eval` is its steered evaluation), the
@@ -126,11 +126,11 @@ pub fn close(
     }
     let required = eval.surviving_required;
     let routes = expandable_routes(net, trees, outage, cands);
-    let (best, binding_links) =
+    let (best, binding_arcs) =
         best_reachable(net, &routes, outage, cands, required, eval.served_required)?;
     let scale = required.max(1.0);
     if best <= eval.served_required + TOL * scale {
-        return Ok(Some(Closing::nothing_to_buy(net, eval, binding_links)));
+        return Ok(Some(Closing::nothing_to_buy(net, eval, binding_arcs)));
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
@@ -158,7 +158,8 @@ pub fn close(
         add: add_units,
         best,
         not_closable: (required - best).max(0.0),
-        binding_links,
+        binding_links: crate::expand::links_of(net, &binding_arcs),
+        binding_arcs,
         dual_bound: whole.dual_bound,
         modules_exhaustive: whole.exhaustive,
     }))
@@ -338,7 +339,12 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
             }),
         )
     } else {
-        (lp_add, None)
+        // Interior-point noise (2.9999999995) snapped up onto a round value.
+        let budget = match goal {
+            Goal::CloseAll => None,
+            Goal::WorstWithin(b) | Goal::TotalWithin(b) => Some(b),
+        };
+        (snap_up(&cands, lp_add, budget), None)
     };
     let mut drivers: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.sites.len()];
     for (&k, index) in short.iter().zip(&indices) {
