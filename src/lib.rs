@@ -424,8 +424,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         Some(jp) => journal::check_path(jp, args.resume)?,
         None if args.resume && args.json.is_some() => {
             return Err(Error::Usage(
-                "--resume: the --json output is a device or a FIFO, which keeps no journal"
-                    .into(),
+                "--resume: the --json output is a device or a FIFO, which keeps no journal".into(),
             ));
         }
         None => {}
@@ -1014,9 +1013,23 @@ fn read_text(path: &Path) -> Result<String> {
 }
 
 /// `import`: converts, validates the result as any network file is validated, writes it
-/// atomically, and prints its `check` summary.
+/// atomically, and prints its `check` summary. A node-link import is written as it is
+/// generated (its all-pairs demands never exist as a list), so its memory is the network's.
 fn run_import(from: &cli::ImportFrom, out: &mut dyn Write) -> Result<Outcome> {
-    let (doc, target, inputs) = match from {
+    let not_valid = |inputs: &[&Path]| {
+        let names = inputs
+            .iter()
+            .map(|p| p.display().to_string())
+            .collect::<Vec<_>>()
+            .join(", ");
+        move |e: Error| match e {
+            Error::Input(m) => Error::Input(format!(
+                "the imported network from {names} is not valid: {m}"
+            )),
+            other => other,
+        }
+    };
+    let net = match from {
         cli::ImportFrom::Networkx(a) => {
             report::file::check_output("--json", &a.json, &[a.file.as_path()])?;
             let text = read_text(&a.file)?;
@@ -1038,7 +1051,10 @@ fn run_import(from: &cli::ImportFrom, out: &mut dyn Write) -> Result<Outcome> {
             };
             let doc = model::import::from_node_link(&text, &name, &rules)
                 .map_err(|e| prefix(e, &a.file))?;
-            (doc, a.json.clone(), vec![a.file.clone()])
+            drop(text);
+            let net = doc.network().map_err(not_valid(&[&a.file]))?;
+            report::file::write_atomic(&a.json, |w| report::json::write(w, &doc))?;
+            net
         }
         cli::ImportFrom::Csv(a) => {
             let ins = [a.sites.as_path(), a.links.as_path(), a.demands.as_path()];
@@ -1049,26 +1065,12 @@ fn run_import(from: &cli::ImportFrom, out: &mut dyn Write) -> Result<Outcome> {
                 &read_text(&a.links)?,
                 &read_text(&a.demands)?,
             )?;
-            (
-                doc,
-                a.json.clone(),
-                vec![a.sites.clone(), a.links.clone(), a.demands.clone()],
-            )
+            let text = report::json::to_string(&doc);
+            let net = Network::from_json(&text).map_err(not_valid(&ins))?;
+            report::file::write_atomic(&a.json, |w| report::json::write(w, &doc))?;
+            net
         }
     };
-    let text = report::json::to_string(&doc);
-    let net = Network::from_json(&text).map_err(|e| match e {
-        Error::Input(m) => Error::Input(format!(
-            "the imported network from {} is not valid: {m}",
-            inputs
-                .iter()
-                .map(|p| p.display().to_string())
-                .collect::<Vec<_>>()
-                .join(", ")
-        )),
-        other => other,
-    })?;
-    report::file::write_atomic(&target, |w| report::json::write(w, &doc))?;
     let cut_off = solve::baseline_cut_off(&net);
     stdout_result(report::text::write_check(out, &net, &cut_off))?;
     Ok(Outcome::Ok)

@@ -354,8 +354,8 @@ pub fn write_atomic(
         path: path.to_path_buf(),
         source,
     };
-    let target = target_of(path)
-        .map_err(|why| Error::Usage(format!("{}: {why}", path.display())))?;
+    let target =
+        target_of(path).map_err(|why| Error::Usage(format!("{}: {why}", path.display())))?;
     let target = match target {
         Target::Through(t) => {
             let file = OpenOptions::new().write(true).open(&t).map_err(io_error)?;
