@@ -338,7 +338,8 @@ pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<NodeLink>
             y: pos[v].map(|p| p.1),
         })
         .collect();
-    let each = (rules.demand > 0.0).then(|| (rules.demand, rules.demand * rules.required_fraction));
+    let each =
+        (rules.demand > 0.0).then_some((rules.demand, rules.demand * rules.required_fraction));
     Ok(NodeLink {
         demands: AllPairs { ids, each },
         links,

@@ -26,14 +26,14 @@ pub const DEFAULT_MAX_INPUT_MIB: u64 = 256;
 /// The environment variable that raises (or lowers) [`DEFAULT_MAX_INPUT_MIB`].
 pub const MAX_INPUT_ENV: &str = "REDOUBT_MAX_INPUT_MIB";
 
-/// The input size limit in bytes: `REDOUBT_MAX_INPUT_MIB` (a whole number of MiB, at least
-/// 1) when set, else [`DEFAULT_MAX_INPUT_MIB`]. A value that is not such a number is a
-/// usage error naming the variable.
+/// The input size limit in bytes: `REDOUBT_MAX_INPUT_MIB` (a whole number of MiB, at
+/// least 1) when set, else [`DEFAULT_MAX_INPUT_MIB`]. A value that is not such a number is
+/// a usage error naming the variable.
 pub fn input_limit() -> Result<u64> {
     let mib = match std::env::var(MAX_INPUT_ENV) {
         Err(_) => DEFAULT_MAX_INPUT_MIB,
         Ok(v) => match v.trim().parse::<u64>() {
-            Ok(m) if m >= 1 && m <= u64::MAX >> 20 => m,
+            Ok(m) if (1..=u64::MAX >> 20).contains(&m) => m,
             _ => {
                 return Err(Error::Usage(format!(
                     "{MAX_INPUT_ENV} must be a whole number of MiB, at least 1, got {v:?}"
