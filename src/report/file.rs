@@ -260,8 +260,9 @@ fn output_key(path: &Path) -> PathBuf {
 }
 
 /// Refuses (usage error, exit 2) two outputs of one command that would land in the same
-/// file, naming both flags: each `(flag, path)` is compared by [`output_key`] and, for
-/// files that exist, by device and inode. Call it before any work. O(outputs²).
+/// file, naming both flags: each `(flag, path)` is compared by the name it will be written
+/// under (its folder canonicalised, or folded lexically when new, plus its file name; a
+/// symbolic link by its target) and, for files that exist, by device and inode. Call it before any work. O(outputs²).
 pub fn check_distinct(outputs: &[(String, PathBuf)]) -> Result<()> {
     let keys: Vec<PathBuf> = outputs.iter().map(|(_, p)| output_key(p)).collect();
     for (i, (flag_i, path_i)) in outputs.iter().enumerate() {
