@@ -1,7 +1,7 @@
 //! Running the scenarios: deduplicate outages, solve each once (in parallel with rayon),
 //! and keep every scenario listed under its own names. A run can journal each result as
 //! it finishes ([`crate::report::journal`]) and be resumed from that journal, and it stops
-//! cleanly on SIGINT ([`install_interrupt_handler`]).
+//! cleanly on SIGINT, SIGTERM or SIGHUP ([`install_interrupt_handler`]).
 //!
 //! Invariant: the result depends only on the network and the scenario list. Outages are
 //! solved by a pure function and collected in input order, so the thread count, an
@@ -32,18 +32,23 @@ pub struct RunOptions {
     pub progress: bool,
 }
 
-/// Set by the SIGINT handler; every batch checks it before starting an item.
+/// Set by the signal handler; every batch checks it before starting an item.
 static INTERRUPTED: AtomicBool = AtomicBool::new(false);
 
-/// Installs the SIGINT handler once per process. The first Ctrl-C asks every running batch
-/// to stop once the solves in flight have finished (and been journaled); a second one
-/// exits at once with [`EXIT_INTERRUPTED`]. A failure to install is ignored: Ctrl-C then
-/// keeps its default effect.
+/// Installs the handler of SIGINT, SIGTERM and SIGHUP (Ctrl-C, `kill`, a closed terminal)
+/// once per process. The first signal asks every running batch to stop once the solves in
+/// flight have finished (and been journaled), and a final file not yet renamed into place
+/// is dropped ([`crate::report::file::write_atomic`]); the run then ends with
+/// [`Error::Interrupted`] and its resume hint. A second signal removes the temporary files
+/// ([`crate::report::file::remove_temporaries`]) and exits at once with
+/// [`EXIT_INTERRUPTED`]. A failure to install is ignored: the signals then keep their
+/// default effect.
 pub fn install_interrupt_handler() {
     static ONCE: Once = Once::new();
     ONCE.call_once(|| {
         let _ = ctrlc::set_handler(|| {
             if INTERRUPTED.swap(true, Ordering::SeqCst) {
+                crate::report::file::remove_temporaries();
                 std::process::exit(EXIT_INTERRUPTED);
             }
         });

@@ -28,7 +28,8 @@ pub enum Error {
     /// Standard output was closed by its reader (`| head`): the run ends quietly.
     #[error("standard output closed")]
     BrokenPipe,
-    /// The run was interrupted (SIGINT); the message says what was kept and how to resume.
+    /// The run was interrupted (SIGINT, SIGTERM or SIGHUP); the message says what was kept
+    /// and how to resume.
     #[error("interrupted: {0}")]
     Interrupted(String),
 }
@@ -37,7 +38,8 @@ pub enum Error {
 /// reports for a tool that a closed pipe stops.
 pub const EXIT_BROKEN_PIPE: i32 = 141;
 
-/// Exit status after an interrupt: 128 + SIGINT (2).
+/// Exit status after an interrupt: 128 + SIGINT (2), also when SIGTERM or SIGHUP stopped
+/// the run (all three are handled alike: the same clean stop and resume hint).
 pub const EXIT_INTERRUPTED: i32 = 130;
 
 impl Error {

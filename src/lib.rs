@@ -56,10 +56,7 @@ pub fn load(path: &Path) -> Result<Network> {
 
 /// Reads and validates a network file; also returns its text (for the fingerprint).
 fn read_network(path: &Path) -> Result<(Network, String)> {
-    let bytes = std::fs::read(path).map_err(|source| Error::Io {
-        path: path.to_path_buf(),
-        source,
-    })?;
+    let bytes = model::read_input(path)?;
     let net = Network::from_bytes(&bytes).map_err(|e| match e {
         Error::Input(m) => Error::Input(format!("{}: {m}", path.display())),
         other => other,
@@ -414,15 +411,27 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         report::text::refuse_with_shard(args.csv.is_some(), args.report.is_some(), args.why)?;
     }
     let input = args.scenarios.network.as_path();
-    let journal_path = args.json.as_deref().map(journal::path_for);
-    if let (Some(json), Some(jp)) = (&args.json, &journal_path) {
+    // A device or a FIFO (--json /dev/null) is written through and keeps no journal.
+    let journal_path = args
+        .json
+        .as_deref()
+        .filter(|j| !report::file::is_written_through(j))
+        .map(journal::path_for);
+    report::file::check_distinct(&audit_outputs(args, journal_path.as_deref()))?;
+    if let Some(json) = &args.json {
         report::file::check_output("--json", json, &[input])?;
-        report::file::check_output("--json (its journal)", jp, &[input])?;
+    }
+    match &journal_path {
+        Some(jp) => journal::check_path(jp, args.resume)?,
+        None if args.resume && args.json.is_some() => {
+            return Err(Error::Usage(
+                "--resume: the --json output is a device or a FIFO, which keeps no journal".into(),
+            ));
+        }
+        None => {}
     }
     if let Some(csv) = &args.csv {
-        let mut others = vec![input];
-        others.extend(args.json.as_deref());
-        report::file::check_output("--csv", csv, &others)?;
+        report::file::check_output("--csv", csv, &[input])?;
     }
     if shard.is_some() && args.scenarios.down.is_some() {
         return Err(Error::Usage(
@@ -458,10 +467,10 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     // --close, --why and --report read every evaluation in full; otherwise only the JSON
     // does, from the journal.
     let whole = args.close || args.why || args.fail.is_some() || args.report.is_some();
-    let keep = match (whole, &args.json) {
-        (true, _) => audit::Keep::Full,
-        (false, Some(_)) => audit::Keep::ThinJournaled,
-        (false, None) => audit::Keep::Thin,
+    let keep = match (whole, &journal_path, &args.json) {
+        (true, _, _) | (false, None, Some(_)) => audit::Keep::Full,
+        (false, Some(_), _) => audit::Keep::ThinJournaled,
+        (false, None, None) => audit::Keep::Thin,
     };
     let mut batch = audit::Batch::new(&net, list.iter, args.engine).keeping(keep);
     if let Some((i, n)) = shard {
@@ -538,7 +547,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
                 io::Error::other(m)
             })
         })
-        .map_err(|e| failed.take().unwrap_or(e))?;
+        .map_err(|e| interrupted(failed.take().unwrap_or(e)))?;
         journal.map(Journal::remove).transpose()?;
         stdout_result(report::text::write_shard(out, i, n, own.len(), path))?;
         return Ok(Outcome::Ok);
@@ -585,6 +594,27 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         &interrupted,
         out,
     )
+}
+
+/// Every file an audit writes, with the flag that asks for it, for
+/// [`report::file::check_distinct`]: `--json`, its journal, `--csv`, the two `--report` files.
+fn audit_outputs(args: &AuditArgs, journal: Option<&Path>) -> Vec<(String, PathBuf)> {
+    let mut outputs = Vec::new();
+    if let Some(json) = &args.json {
+        outputs.push(("--json".to_string(), json.clone()));
+    }
+    if let Some(jp) = journal {
+        outputs.push(("the journal of --json".to_string(), jp.to_path_buf()));
+    }
+    if let Some(csv) = &args.csv {
+        outputs.push(("--csv".to_string(), csv.clone()));
+    }
+    if let Some(dir) = &args.report {
+        for name in [report::html::HTML_FILE, report::html::MARKDOWN_FILE] {
+            outputs.push((format!("--report ({name})"), dir.join(name)));
+        }
+    }
+    outputs
 }
 
 /// What an audit (or a merge) writes.
@@ -651,12 +681,13 @@ fn finish_audit(
         if let Some(r) = o.risk {
             report::json::attach_risk(&mut doc, net, audit, r);
         }
-        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+        report::file::write_atomic(path, |w| report::json::write(w, &doc)).map_err(interrupted)?;
     }
     if let Some(path) = o.csv {
         report::file::write_atomic(path, |w| {
             report::csv::write_audit(w, audit, closings.as_deref(), o.risk)
-        })?;
+        })
+        .map_err(interrupted)?;
     }
     if let Some((html, md)) = o.report {
         let r = report::html::Report {
@@ -668,8 +699,8 @@ fn finish_audit(
             gates: &verdicts,
             top: o.top,
         };
-        report::file::write_atomic(html, |w| report::html::write(w, &r))?;
-        report::file::write_atomic(md, |w| report::markdown::write(w, &r))?;
+        report::file::write_atomic(html, |w| report::html::write(w, &r)).map_err(interrupted)?;
+        report::file::write_atomic(md, |w| report::markdown::write(w, &r)).map_err(interrupted)?;
     }
     if let Some(j) = journal {
         j.remove()?;
@@ -844,10 +875,13 @@ fn run_plan(args: &PlanArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result
     if let Some(json) = &args.json {
         report::file::check_output("--json", json, &[input])?;
     }
+    let outputs = [("--json", &args.json), ("--apply", &args.apply)]
+        .into_iter()
+        .filter_map(|(flag, p)| Some((flag.to_string(), p.clone()?)))
+        .collect::<Vec<_>>();
+    report::file::check_distinct(&outputs)?;
     if let Some(apply) = &args.apply {
-        let mut others = vec![input];
-        others.extend(args.json.as_deref());
-        report::file::check_output("--apply", apply, &others)?;
+        report::file::check_output("--apply", apply, &[input])?;
     }
     let (net, text) = read_network(input)?;
     let list = scenario_list(&net, &args.scenarios, None)?;
@@ -1037,17 +1071,28 @@ fn run_routed_plan(
 }
 
 fn read_text(path: &Path) -> Result<String> {
-    std::fs::read_to_string(path).map_err(|source| Error::Io {
-        path: path.to_path_buf(),
-        source,
-    })
+    model::read_input_text(path)
 }
 
 /// `import`: converts, validates the result as any network file is validated, writes it
-/// atomically, and prints its `check` summary.
+/// atomically, and prints its `check` summary. A node-link import is written as it is
+/// generated (its all-pairs demands never exist as a list), so its memory is the network's.
 fn run_import(from: &cli::ImportFrom, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
     let mut fallback = None;
-    let (doc, target, inputs) = match from {
+    let not_valid = |inputs: &[&Path]| {
+        let names = inputs
+            .iter()
+            .map(|p| p.display().to_string())
+            .collect::<Vec<_>>()
+            .join(", ");
+        move |e: Error| match e {
+            Error::Input(m) => Error::Input(format!(
+                "the imported network from {names} is not valid: {m}"
+            )),
+            other => other,
+        }
+    };
+    let net = match from {
         cli::ImportFrom::Networkx(a) => {
             report::file::check_output("--json", &a.json, &[a.file.as_path()])?;
             let text = read_text(&a.file)?;
@@ -1074,7 +1119,10 @@ fn run_import(from: &cli::ImportFrom, out: &mut dyn Write, err: &mut dyn Write) 
             {
                 fallback = Some((n, of, attr.clone(), c));
             }
-            (imported.doc, a.json.clone(), vec![a.file.clone()])
+            drop(text);
+            let net = imported.doc.network().map_err(not_valid(&[&a.file]))?;
+            report::file::write_atomic(&a.json, |w| report::json::write(w, &imported.doc))?;
+            net
         }
         cli::ImportFrom::Csv(a) => {
             let ins = [a.sites.as_path(), a.links.as_path(), a.demands.as_path()];
@@ -1090,26 +1138,12 @@ fn run_import(from: &cli::ImportFrom, out: &mut dyn Write, err: &mut dyn Write) 
                 text: &texts[i],
             };
             let doc = model::import::from_csv(&a.name, file(0), file(1), file(2))?;
-            (
-                doc,
-                a.json.clone(),
-                vec![a.sites.clone(), a.links.clone(), a.demands.clone()],
-            )
+            let text = report::json::to_string(&doc);
+            let net = Network::from_json(&text).map_err(not_valid(&ins))?;
+            report::file::write_atomic(&a.json, |w| report::json::write(w, &doc))?;
+            net
         }
     };
-    let text = report::json::to_string(&doc);
-    let net = Network::from_json(&text).map_err(|e| match e {
-        Error::Input(m) => Error::Input(format!(
-            "the imported network from {} is not valid: {m}",
-            inputs
-                .iter()
-                .map(|p| p.display().to_string())
-                .collect::<Vec<_>>()
-                .join(", ")
-        )),
-        other => other,
-    })?;
-    report::file::write_atomic(&target, |w| report::json::write(w, &doc))?;
     if let Some((n, of, attr, capacity)) = fallback {
         note(report::text::note_capacity_fallback(
             err, n, of, &attr, capacity,
@@ -1140,8 +1174,14 @@ pub fn run(cli: Cli, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome
             audit::install_interrupt_handler();
             run_audit(&args, out, err)
         }
-        Command::Merge(args) => run_merge(&args, out),
-        Command::Import(from) => run_import(&from, out, err),
+        Command::Merge(args) => {
+            audit::install_interrupt_handler();
+            run_merge(&args, out)
+        }
+        Command::Import(from) => {
+            audit::install_interrupt_handler();
+            run_import(&from, out, err)
+        }
         Command::Compare(args) => {
             audit::install_interrupt_handler();
             compare::run(&args, out, err)

@@ -1,7 +1,7 @@
 //! The `redoubt` binary: parse the command line, call [`redoubt::run`] with a locked
 //! standard output and the (unlocked) standard error, map the outcome to an exit status (0 ok, 1 a gate
-//! failed, 2 bad input or usage, 3 solver failure, 130 interrupted, 141 standard output
-//! closed early).
+//! failed, 2 bad input or usage, 3 solver failure, 130 interrupted by SIGINT, SIGTERM or
+//! SIGHUP, 141 standard output closed early).
 
 use std::io::{self, BufWriter, Write};
 use std::process::ExitCode;

@@ -1277,7 +1277,8 @@ fn failed_write_keeps_the_old_json_intact() {
         .filter(|n| n != "out.json" && n != "out.json.journal")
         .collect();
     assert!(names.is_empty(), "left behind: {names:?}");
-    // Without the limit the same command replaces the file with the full report.
+    // Without the limit the same command (resuming the journal the failed run kept, which
+    // is never replaced without --resume) replaces the file with the full report.
     let run = redoubt(&[
         "audit",
         s(&fixture("small-ring.json")),
@@ -1286,6 +1287,7 @@ fn failed_write_keeps_the_old_json_intact() {
         "--quiet",
         "--json",
         s(&json),
+        "--resume",
     ]);
     assert_eq!(run.code, 0, "{}", run.stderr);
     let doc: Value = serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();

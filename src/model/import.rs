@@ -14,8 +14,11 @@
 
 use std::collections::BTreeMap;
 
+use serde::Serialize;
 use serde_json::{Map, Value, json};
 
+use super::Network;
+use super::file::{DemandFile, LinkFile, NetworkFile, SiteFile};
 use crate::error::{Error, Result};
 
 /// Capacity of every imported link when neither `--capacity` nor `--capacity-attr` is
@@ -70,12 +73,151 @@ fn clean_id(s: &str) -> String {
         .to_string()
 }
 
+/// One site of an imported topology, as written (keys in the order a sorted JSON object
+/// would have them, which the earlier writer produced).
+#[derive(Debug, Clone, Serialize)]
+struct SiteOut {
+    id: String,
+    processing: f64,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    x: Option<f64>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    y: Option<f64>,
+}
+
+/// One link of an imported topology, as written (keys sorted).
+#[derive(Debug, Clone, Serialize)]
+struct LinkOut {
+    capacity: f64,
+    from: String,
+    id: String,
+    one_way: bool,
+    to: String,
+}
+
+/// One demand as written (keys sorted); borrowed, made while it is written.
+#[derive(Serialize)]
+struct DemandOut<'a> {
+    from: &'a str,
+    required: f64,
+    to: &'a str,
+    volume: f64,
+}
+
+/// The demands of an import: `volume` (and `required`) between every ordered pair of
+/// distinct sites, in row order (`from` = 0, 1, …; `to` ascending, skipping `from`). Never
+/// materialised: serialised and lowered pair by pair.
+#[derive(Debug, Clone)]
+struct AllPairs {
+    ids: Vec<String>,
+    /// `(volume, required)`, or `None` for no demands.
+    each: Option<(f64, f64)>,
+}
+
+impl AllPairs {
+    /// The ordered pairs `(from, to)` of site indices, with an exact length (pair `k` is
+    /// row `k / (n − 1)`, and the `k mod (n − 1)`-th other site). O(1) memory.
+    fn pairs(&self) -> impl ExactSizeIterator<Item = (usize, usize)> + '_ {
+        let others = self.ids.len().saturating_sub(1);
+        (0..self.len()).map(move |k| {
+            let (a, j) = (k / others, k % others);
+            (a, if j < a { j } else { j + 1 })
+        })
+    }
+
+    /// The number of demands: n·(n − 1), or 0.
+    fn len(&self) -> usize {
+        match self.each {
+            Some(_) => self.ids.len() * self.ids.len().saturating_sub(1),
+            None => 0,
+        }
+    }
+}
+
+impl Serialize for AllPairs {
+    fn serialize<S: serde::Serializer>(&self, ser: S) -> std::result::Result<S::Ok, S::Error> {
+        use serde::ser::SerializeSeq;
+        let (volume, required) = self.each.unwrap_or((0.0, 0.0));
+        let mut seq = ser.serialize_seq(Some(self.len()))?;
+        for (a, b) in self.pairs() {
+            seq.serialize_element(&DemandOut {
+                from: &self.ids[a],
+                required,
+                to: &self.ids[b],
+                volume,
+            })?;
+        }
+        seq.end()
+    }
+}
+
+/// An imported topology in the network format, ready to validate ([`NodeLink::network`])
+/// and to write (it serialises as the network file, streaming the demands). Memory is
+/// O(sites + links): the demand between every ordered pair of sites is generated while it is
+/// written or lowered, never held as a list (1,000 sites have 999,000 of them).
+#[derive(Debug, Clone, Serialize)]
+pub struct NodeLink {
+    demands: AllPairs,
+    links: Vec<LinkOut>,
+    name: String,
+    sites: Vec<SiteOut>,
+}
+
+impl NodeLink {
+    /// The validated network the written file describes, lowered by
+    /// [`Network::from_file_and`], the same validation any network file goes through after
+    /// parsing (the field and shape checks of strict reading concern only parsed text: this
+    /// document has exactly the contract's fields). The demands are handed over one at a
+    /// time, so memory is the network's own. O(sites + links + demands).
+    pub fn network(&self) -> Result<Network> {
+        let file = NetworkFile {
+            name: Some(self.name.clone()),
+            sites: self
+                .sites
+                .iter()
+                .map(|s| SiteFile {
+                    id: s.id.clone(),
+                    processing: Some(s.processing),
+                    x: s.x,
+                    y: s.y,
+                    ..SiteFile::default()
+                })
+                .collect(),
+            links: self
+                .links
+                .iter()
+                .map(|l| LinkFile {
+                    id: l.id.clone(),
+                    from: l.from.clone(),
+                    to: l.to.clone(),
+                    capacity: l.capacity,
+                    one_way: Some(l.one_way),
+                    ..LinkFile::default()
+                })
+                .collect(),
+            ..NetworkFile::default()
+        };
+        let (volume, required) = self.demands.each.unwrap_or((0.0, 0.0));
+        let ids = &self.demands.ids;
+        Network::from_file_and(
+            file,
+            self.demands.pairs().map(|(a, b)| DemandFile {
+                from: ids[a].clone(),
+                to: ids[b].clone(),
+                volume,
+                required: Some(required),
+                ..DemandFile::default()
+            }),
+        )
+    }
+}
+
 /// What [`from_node_link`] made: the network document, and how many links took the
 /// explicit `--capacity` because their edge lacks `--capacity-attr` (for a note).
 #[derive(Debug, Clone)]
 pub struct Imported {
-    /// The network, in the contract's shape.
-    pub doc: Value,
+    /// The network, in the contract's shape (its demands streamed when written).
+    pub doc: NodeLink,
     /// Links whose capacity is the `--capacity` fallback, and the links in all.
     pub fallback: Option<(usize, usize)>,
 }
@@ -101,8 +243,8 @@ fn listed(edges: &[String]) -> String {
 /// parallel links). Nothing is guessed: a file with both `links` and `edges`, a
 /// `directed` that is not a boolean, a `--capacity-attr` that no edge has, or that holds
 /// anything but a JSON number, and (without an explicit `--capacity`) an edge that lacks
-/// it are refused, naming the edges and how many. O(nodes² + edges) (one demand per
-/// ordered pair).
+/// it are refused, naming the edges and how many. O(nodes + edges) time and memory: the
+/// nodes² demands are generated when the result is written or lowered, not here.
 pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Imported> {
     if !(rules.required_fraction.is_finite() && (0.0..=1.0).contains(&rules.required_fraction)) {
         return Err(Error::Usage(format!(
@@ -258,10 +400,13 @@ pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Imported>
         } else {
             format!("{}-{}#{n}", ids[a], ids[b])
         };
-        links.push(
-            json!({"id": id, "from": ids[a], "to": ids[b], "capacity": capacity,
-                          "one_way": directed}),
-        );
+        links.push(LinkOut {
+            capacity,
+            from: ids[a].clone(),
+            id,
+            one_way: directed,
+            to: ids[b].clone(),
+        });
     }
     let mut fallback = None;
     if let Some(attr) = &rules.capacity_attr {
@@ -305,34 +450,23 @@ pub fn from_node_link(text: &str, name: &str, rules: &Rules) -> Result<Imported>
         }
         p
     };
-    let sites: Vec<Value> = (0..nodes.len())
-        .map(|v| {
-            let mut s = Map::new();
-            s.insert("id".into(), json!(ids[v]));
-            s.insert(
-                "processing".into(),
-                json!(if processing[v] { rules.processing } else { 0.0 }),
-            );
-            if let Some((x, y)) = pos[v] {
-                s.insert("x".into(), json!(x));
-                s.insert("y".into(), json!(y));
-            }
-            Value::Object(s)
+    let sites: Vec<SiteOut> = (0..nodes.len())
+        .map(|v| SiteOut {
+            id: ids[v].clone(),
+            processing: if processing[v] { rules.processing } else { 0.0 },
+            x: pos[v].map(|p| p.0),
+            y: pos[v].map(|p| p.1),
         })
         .collect();
-    let mut demands = Vec::new();
-    if rules.demand > 0.0 {
-        for a in 0..nodes.len() {
-            for b in 0..nodes.len() {
-                if a != b {
-                    demands.push(json!({"from": ids[a], "to": ids[b], "volume": rules.demand,
-                                        "required": rules.demand * rules.required_fraction}));
-                }
-            }
-        }
-    }
+    let each =
+        (rules.demand > 0.0).then_some((rules.demand, rules.demand * rules.required_fraction));
     Ok(Imported {
-        doc: json!({"name": name, "sites": sites, "links": links, "demands": demands}),
+        doc: NodeLink {
+            demands: AllPairs { ids, each },
+            links,
+            name: name.to_string(),
+            sites,
+        },
         fallback,
     })
 }
@@ -520,6 +654,21 @@ pub fn from_csv(name: &str, sites: CsvFile, links: CsvFile, demands: CsvFile) ->
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Source: the definition (every ordered pair of distinct sites, row by row), written
+    /// out by hand for three sites.
+    #[test]
+    fn all_pairs_in_row_order() {
+        let p = AllPairs {
+            ids: vec!["a".into(), "b".into(), "c".into()],
+            each: Some((1.0, 0.5)),
+        };
+        let got: Vec<_> = p.pairs().collect();
+        assert_eq!(got, [(0, 1), (0, 2), (1, 0), (1, 2), (2, 0), (2, 1)]);
+        assert_eq!(p.pairs().len(), 6);
+        let none = AllPairs { each: None, ..p };
+        assert_eq!(none.pairs().count(), 0);
+    }
 
     /// RFC 4180 quoting (common practice for CSV, RFC 4180 section 2).
     #[test]

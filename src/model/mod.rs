@@ -11,3 +11,75 @@ pub use network::{
     Arc, Demand, Expansion, Link, LinkIdx, MAX_AMOUNT, MAX_METRIC, MAX_TOTAL, Network, RiskGroup,
     Site, SiteIdx,
 };
+
+use std::io::Read;
+use std::path::Path;
+
+use crate::error::{Error, Result};
+
+/// The largest input file read, in MiB, unless `REDOUBT_MAX_INPUT_MIB` says otherwise. A
+/// network of 1,000 sites with a demand between every pair is about 100 MiB of JSON, so the
+/// default leaves room while a device such as `/dev/zero` or a runaway pipe stops with a
+/// message instead of filling memory.
+pub const DEFAULT_MAX_INPUT_MIB: u64 = 256;
+
+/// The environment variable that raises (or lowers) [`DEFAULT_MAX_INPUT_MIB`].
+pub const MAX_INPUT_ENV: &str = "REDOUBT_MAX_INPUT_MIB";
+
+/// The input size limit in bytes: `REDOUBT_MAX_INPUT_MIB` (a whole number of MiB, at
+/// least 1) when set, else [`DEFAULT_MAX_INPUT_MIB`]. A value that is not such a number is
+/// a usage error naming the variable.
+pub fn input_limit() -> Result<u64> {
+    let mib = match std::env::var(MAX_INPUT_ENV) {
+        Err(_) => DEFAULT_MAX_INPUT_MIB,
+        Ok(v) => match v.trim().parse::<u64>() {
+            Ok(m) if (1..=u64::MAX >> 20).contains(&m) => m,
+            _ => {
+                return Err(Error::Usage(format!(
+                    "{MAX_INPUT_ENV} must be a whole number of MiB, at least 1, got {v:?}"
+                )));
+            }
+        },
+    };
+    Ok(mib << 20)
+}
+
+/// The refusal for an input larger than `limit` bytes.
+pub fn too_large(path: &Path, limit: u64) -> Error {
+    Error::Input(format!(
+        "{}: larger than the input limit of {} MiB; set {MAX_INPUT_ENV} to a larger number of \
+         MiB to read it",
+        path.display(),
+        limit >> 20
+    ))
+}
+
+/// Reads the whole of an input file, at most [`input_limit`] bytes (through
+/// [`Read::take`], so a device or a pipe that never ends is not read past the limit).
+/// O(size) time and memory.
+pub fn read_input(path: &Path) -> Result<Vec<u8>> {
+    let limit = input_limit()?;
+    let io = |source| Error::Io {
+        path: path.to_path_buf(),
+        source,
+    };
+    let file = std::fs::File::open(path).map_err(io)?;
+    let mut bytes = Vec::new();
+    file.take(limit + 1).read_to_end(&mut bytes).map_err(io)?;
+    if bytes.len() as u64 > limit {
+        return Err(too_large(path, limit));
+    }
+    Ok(bytes)
+}
+
+/// [`read_input`] as UTF-8 text; other bytes are an input error naming the file and the
+/// offset.
+pub fn read_input_text(path: &Path) -> Result<String> {
+    String::from_utf8(read_input(path)?).map_err(|e| {
+        let at = e.utf8_error().valid_up_to();
+        Error::Input(format!(
+            "{}: not UTF-8 text: invalid byte at byte offset {at}",
+            path.display()
+        ))
+    })
+}

@@ -238,6 +238,18 @@ impl Network {
     /// Lowers the file types into a network, checking every invariant listed in the
     /// module documentation. Linear in the size of the file (hash maps for ids).
     pub fn from_file(file: NetworkFile) -> Result<Network> {
+        Network::from_file_and(file, std::iter::empty())
+    }
+
+    /// [`Network::from_file`] of `file` with `more` demands listed after its own, taken one
+    /// at a time (so a long generated list is never held as file types). Same checks, same
+    /// errors (indices continue after the file's demands). Linear in the size of the file
+    /// plus the number of demands.
+    pub fn from_file_and(
+        mut file: NetworkFile,
+        more: impl Iterator<Item = DemandFile>,
+    ) -> Result<Network> {
+        let file_demands = std::mem::take(&mut file.demands);
         for (field, label) in [("name", &file.name), ("unit", &file.unit)] {
             if let Some(text) = label {
                 check_label(field, text)?;
@@ -379,8 +391,9 @@ impl Network {
             groups[gi].failure_probability = probability(&el, Some(g.failure_probability))?;
         }
 
-        let mut demands = Vec::with_capacity(file.demands.len());
-        for (i, d) in file.demands.iter().enumerate() {
+        let mut demands = Vec::with_capacity(file_demands.len() + more.size_hint().0);
+        for (i, d) in file_demands.into_iter().chain(more).enumerate() {
+            let d = &d;
             let el = demand_label(i, d);
             if let Some(id) = &d.id {
                 check_id(&el, "id", id, false)?;

@@ -7,7 +7,7 @@
 //! one. A kill at any moment leaves at most a torn last line, which reading ignores.
 
 use std::fs::{self, File, OpenOptions};
-use std::io::{self, BufRead, BufReader, Seek, Write};
+use std::io::{self, BufRead, BufReader, Read, Seek, Write};
 use std::path::{Path, PathBuf};
 use std::sync::Mutex;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -103,12 +103,86 @@ fn io_err(path: &Path) -> impl FnOnce(io::Error) -> Error + '_ {
     }
 }
 
+/// The refusal for a journal path that already holds something and no `--resume`.
+fn already_there(path: &Path) -> Error {
+    Error::Usage(format!(
+        "{} already exists (the journal of an interrupted run?); add --resume to continue \
+         that run, or remove the file to start again",
+        path.display()
+    ))
+}
+
+/// Opens `path` for reading without following a symbolic link (`O_NOFOLLOW` on Unix).
+fn open_nofollow(path: &Path, write: bool) -> io::Result<File> {
+    let mut o = OpenOptions::new();
+    o.read(true).write(write);
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::OpenOptionsExt;
+        o.custom_flags(libc::O_NOFOLLOW);
+    }
+    o.open(path)
+}
+
+/// Opens an existing journal for `--resume`, read and write, refusing (usage error) a
+/// symbolic link or anything but a regular file; a missing file is an I/O error of kind
+/// `NotFound`.
+fn open_existing(path: &Path) -> Result<File> {
+    let not_regular = |what: &str| {
+        Error::Usage(format!(
+            "--resume: {} is {what}, not a journal; a journal is never followed or \
+             replaced: remove it (or name another --json file)",
+            path.display()
+        ))
+    };
+    if fs::symlink_metadata(path).is_ok_and(|m| m.file_type().is_symlink()) {
+        return Err(not_regular("a symbolic link"));
+    }
+    let file = open_nofollow(path, true).map_err(|e| {
+        #[cfg(unix)]
+        if e.raw_os_error() == Some(libc::ELOOP) {
+            return not_regular("a symbolic link");
+        }
+        io_err(path)(e)
+    })?;
+    if !file.metadata().map_err(io_err(path))?.is_file() {
+        return Err(not_regular("not a regular file"));
+    }
+    Ok(file)
+}
+
+/// Checks, before any work, that a journal can be opened at `path` as [`Journal::open`]
+/// will: nothing there without `resume`; with `resume`, nothing or a regular file (not a
+/// symbolic link). Usage errors name the path. One `lstat`.
+pub fn check_path(path: &Path, resume: bool) -> Result<()> {
+    match fs::symlink_metadata(path) {
+        Err(e) if e.kind() == io::ErrorKind::NotFound => Ok(()),
+        Err(e) => Err(io_err(path)(e)),
+        Ok(_) if !resume => Err(already_there(path)),
+        Ok(m) if m.file_type().is_symlink() => Err(Error::Usage(format!(
+            "--resume: {} is a symbolic link, not a journal; a journal is never followed or \
+             replaced: remove it (or name another --json file)",
+            path.display()
+        ))),
+        Ok(m) if !m.is_file() => Err(Error::Usage(format!(
+            "--resume: {} is not a regular file, not a journal; remove it (or name another \
+             --json file)",
+            path.display()
+        ))),
+        Ok(_) => Ok(()),
+    }
+}
+
 impl Journal {
     /// Opens the journal at `path` for a run of `outages` outages with `fingerprint`.
-    /// Without `resume` it starts a new journal (replacing any old one). With `resume` it
-    /// reads the old one: a torn last line is cut off, a header with another fingerprint
-    /// or outage count is refused (usage error naming the file), and the evaluations found
-    /// are returned (`[k]` for outage `k`). O(journal size).
+    /// Without `resume` it creates a new journal exclusively (`O_CREAT|O_EXCL`: never
+    /// through a symbolic link, never over an existing file, which is refused with a usage
+    /// error saying to add `--resume` or remove it). With `resume` it opens the old one
+    /// without following a symbolic link and refuses anything but a regular file; a torn
+    /// last line is cut off, a header with another fingerprint or outage count is refused
+    /// (usage error naming the file), and the evaluations found are returned (`[k]` for
+    /// outage `k`); when there is none, a new journal is created as without `resume`.
+    /// O(journal size).
     pub fn open(
         path: &Path,
         fingerprint: &str,
@@ -117,20 +191,24 @@ impl Journal {
     ) -> Result<(Journal, Vec<Option<Evaluation>>, Opened)> {
         let mut restored = vec![None; outages];
         let existing = if resume {
-            match fs::read(path) {
-                Ok(b) => Some(b),
-                Err(e) if e.kind() == io::ErrorKind::NotFound => None,
-                Err(e) => return Err(io_err(path)(e)),
+            match open_existing(path) {
+                Ok(mut file) => {
+                    let mut bytes = Vec::new();
+                    file.read_to_end(&mut bytes).map_err(io_err(path))?;
+                    Some((file, bytes))
+                }
+                Err(Error::Io { source, .. }) if source.kind() == io::ErrorKind::NotFound => None,
+                Err(e) => return Err(e),
             }
         } else {
             None
         };
         // Only whole lines count: a line without its newline was torn by a kill.
         let whole = existing
-            .as_deref()
-            .map(|b| b.iter().rposition(|&c| c == b'\n').map_or(0, |i| i + 1));
-        let opened = match (&existing, whole) {
-            (Some(bytes), Some(len)) if len > 0 => {
+            .as_ref()
+            .map(|(_, b)| b.iter().rposition(|&c| c == b'\n').map_or(0, |i| i + 1));
+        let opened = match (existing, whole) {
+            (Some((file, bytes)), Some(len)) if len > 0 => {
                 let text = std::str::from_utf8(&bytes[..len]).map_err(|_| damaged(path, 1))?;
                 let mut lines = text.lines();
                 let header: Header = lines
@@ -165,18 +243,37 @@ impl Journal {
                     offsets[rec.outage] = Some(at);
                     at += line.len() as u64 + 1;
                 }
-                let file = OpenOptions::new()
-                    .write(true)
-                    .open(path)
-                    .map_err(io_err(path))?;
                 file.set_len(len as u64).map_err(io_err(path))?;
                 let journal = Journal::at(path, file, len as u64, offsets, count)?;
                 return Ok((journal, restored, Opened::Resumed(count)));
             }
+            (Some((file, _)), _) => {
+                // Empty or torn before its header ended: start it again in place.
+                file.set_len(0).map_err(io_err(path))?;
+                let journal = Journal::start(path, file, fingerprint, outages)?;
+                return Ok((journal, restored, Opened::NothingToResume));
+            }
             _ if resume => Opened::NothingToResume,
             _ => Opened::Fresh,
         };
-        let mut file = File::create(path).map_err(io_err(path))?;
+        let file = OpenOptions::new()
+            .read(true)
+            .write(true)
+            .create_new(true)
+            .open(path)
+            .map_err(|e| {
+                if e.kind() == io::ErrorKind::AlreadyExists {
+                    already_there(path)
+                } else {
+                    io_err(path)(e)
+                }
+            })?;
+        let journal = Journal::start(path, file, fingerprint, outages)?;
+        Ok((journal, restored, opened))
+    }
+
+    /// Writes the header line into the empty `file` and opens the journal after it.
+    fn start(path: &Path, mut file: File, fingerprint: &str, outages: usize) -> Result<Journal> {
         let header = Header {
             redoubt_journal: VERSION,
             fingerprint: fingerprint.to_string(),
@@ -184,9 +281,9 @@ impl Journal {
         };
         let mut line = serde_json::to_string(&header).expect("header serialises");
         line.push('\n');
+        file.seek(io::SeekFrom::Start(0)).map_err(io_err(path))?;
         file.write_all(line.as_bytes()).map_err(io_err(path))?;
-        let journal = Journal::at(path, file, line.len() as u64, vec![None; outages], 0)?;
-        Ok((journal, restored, opened))
+        Journal::at(path, file, line.len() as u64, vec![None; outages], 0)
     }
 
     fn at(
@@ -283,7 +380,7 @@ impl Journal {
         else {
             return Ok(None);
         };
-        line_at(&self.reader, &self.path, at).map(Some)
+        line_at(&self.reader, &self.path, at, true).map(Some)
     }
 
     /// A reader of the lines journaled so far, independent of the journal's lifetime (it
@@ -297,7 +394,7 @@ impl Journal {
                 .unwrap_or_else(|p| p.into_inner())
                 .clone(),
             reader: Mutex::new(Some(BufReader::new(
-                File::open(&self.path).map_err(io_err(&self.path))?,
+                open_nofollow(&self.path, false).map_err(io_err(&self.path))?,
             ))),
         })
     }
@@ -310,11 +407,22 @@ impl Journal {
 }
 
 /// Reads the line starting at byte `at` of `path` (without its newline) through the
-/// shared handle `reader`, opened on first use. O(line length).
-fn line_at(reader: &Mutex<Option<BufReader<File>>>, path: &Path, at: u64) -> Result<String> {
+/// shared handle `reader`, opened on first use (a `journal` without following a symbolic
+/// link). O(line length).
+fn line_at(
+    reader: &Mutex<Option<BufReader<File>>>,
+    path: &Path,
+    at: u64,
+    journal: bool,
+) -> Result<String> {
     let mut reader = reader.lock().unwrap_or_else(|p| p.into_inner());
     if reader.is_none() {
-        *reader = Some(BufReader::new(File::open(path).map_err(io_err(path))?));
+        let file = if journal {
+            open_nofollow(path, false)
+        } else {
+            File::open(path)
+        };
+        *reader = Some(BufReader::new(file.map_err(io_err(path))?));
     }
     let r = reader.as_mut().expect("opened above");
     r.seek(io::SeekFrom::Start(at)).map_err(io_err(path))?;
@@ -340,7 +448,7 @@ impl JournalReader {
         let Some(at) = self.offsets.get(k).copied().flatten() else {
             return Ok(None);
         };
-        let line = line_at(&self.reader, &self.path, at)?;
+        let line = line_at(&self.reader, &self.path, at, true)?;
         parse_line(&line, k)
             .map(Some)
             .ok_or_else(|| changed(&self.path))
@@ -435,16 +543,30 @@ impl Parts {
     /// Reads the parts' headers and lines and calls `each(k, evaluation)` once per outage
     /// (in file order). Refuses (usage error naming the file) parts of different runs, a
     /// shard given twice or missing, a damaged line, and an outage missing or present in
-    /// two parts. O(total size); memory O(outages) beyond what `each` keeps.
+    /// two parts; a line longer than [`crate::model::input_limit`] is refused before it is
+    /// read whole. O(total size); memory O(outages) beyond what `each` keeps.
     pub fn open(paths: &[PathBuf], mut each: impl FnMut(usize, Evaluation)) -> Result<Parts> {
         let mut header: Option<PartHeader> = None;
         let mut seen_shard: Vec<bool> = Vec::new();
         let mut offsets: Vec<Option<(usize, u64)>> = Vec::new();
+        // One line is at most the input limit (a part's header carries the network file).
+        let limit = crate::model::input_limit()?;
+        let read_line = |r: &mut BufReader<File>, line: &mut String, path: &Path| {
+            let got = r
+                .by_ref()
+                .take(limit + 1)
+                .read_line(line)
+                .map_err(io_err(path))?;
+            if got as u64 > limit {
+                return Err(crate::model::too_large(path, limit));
+            }
+            Ok(got)
+        };
         for (p, path) in paths.iter().enumerate() {
             let bad = |why: String| Error::Usage(format!("merge: {}: {why}", path.display()));
             let mut r = BufReader::new(File::open(path).map_err(io_err(path))?);
             let mut line = String::new();
-            r.read_line(&mut line).map_err(io_err(path))?;
+            read_line(&mut r, &mut line, path)?;
             let h: PartHeader = serde_json::from_str(line.trim_end())
                 .ok()
                 .filter(|h: &PartHeader| h.redoubt_part == PART_VERSION)
@@ -479,7 +601,7 @@ impl Parts {
             let mut n = 1;
             loop {
                 line.clear();
-                let got = r.read_line(&mut line).map_err(io_err(path))?;
+                let got = read_line(&mut r, &mut line, path)?;
                 if got == 0 {
                     break;
                 }
@@ -530,7 +652,7 @@ impl Parts {
     pub fn read(&self, k: usize) -> Result<Evaluation> {
         let (p, at) = self.offsets[k];
         let path = &self.paths[p];
-        let line = line_at(&self.readers[p], path, at)?;
+        let line = line_at(&self.readers[p], path, at, false)?;
         parse_line(&line, k).ok_or_else(|| changed(path))
     }
 }
