@@ -98,6 +98,7 @@ fn best_reachable(
         .arc_row
         .iter()
         .enumerate()
+        .filter(|&(a, _)| !index.arc_lowered[a])
         .filter_map(|(a, r)| r.filter(|&r| sol.duals[r] > 1e-6).map(|_| net.arcs[a].link))
         .collect();
     links.sort_unstable();
@@ -317,6 +318,7 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
     for (&k, index) in short.iter().zip(&indices) {
         for (v, r) in index.site_row.iter().enumerate() {
             if let Some(r) = r
+                && !index.site_lowered[v]
                 && let Some(&y) = duals.get(*r)
                 && y.abs() > 1e-9
             {
