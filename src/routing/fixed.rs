@@ -230,6 +230,48 @@ pub fn weak_dual_bound(lp: &Lp, sol: &LpSolution) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::routing::{processing_sites, routes, spt::Trees};
+    use crate::scenario::Outage;
+
+    /// Presolve, hand-worked: a–b–c, processing 100 at b, demands a→c of 10 and c→a of 5.
+    /// Link ab (1e12) carries at most 10 a→b and 5 b→a: its rows drop to 10 and 5. Link bc
+    /// of capacity 1 can bind: kept at 1. Site b can take 15 of its 100: row lowered to 15.
+    /// The optimum is unchanged: 1 + 1 (each demand crosses bc once; nearest = steered here).
+    #[test]
+    fn presolve_lowers_only_rows_that_cannot_bind() {
+        let net = Network::from_bytes(
+            br#"{"sites":[{"id":"a"},{"id":"b","processing":100},{"id":"c"}],
+                "links":[{"id":"ab","from":"a","to":"b","capacity":1e12},
+                         {"id":"bc","from":"b","to":"c","capacity":1}],
+                "demands":[{"from":"a","to":"c","volume":10},{"from":"c","to":"a","volume":5}]}"#,
+        )
+        .unwrap();
+        let r = routes(
+            &net,
+            &Trees::baseline(&net),
+            &processing_sites(&net, &Outage::default()),
+        );
+        let mut lp = Lp::new(true);
+        let idx = build(&mut lp, &net, &r, Mode::Nearest, &[10.0, 5.0], 1.0, None);
+        let rhs = |row: Option<usize>| lp.rows[row.unwrap()].rhs;
+        let mut ab: Vec<f64> = (0..net.arcs.len())
+            .filter(|&a| net.links[net.arcs[a].link].id == "ab")
+            .map(|a| rhs(idx.arc_row[a]))
+            .collect();
+        ab.sort_by(f64::total_cmp);
+        assert_eq!(ab, vec![5.0, 10.0]);
+        for a in 0..net.arcs.len() {
+            let bc = net.links[net.arcs[a].link].id == "bc";
+            assert_eq!(idx.arc_lowered[a], !bc, "arc {a}");
+            if bc {
+                assert_eq!(rhs(idx.arc_row[a]), 1.0);
+            }
+        }
+        assert_eq!(rhs(idx.site_row[1]), 15.0);
+        assert!(idx.site_lowered[1]);
+        let sol = crate::solve::lp::solve(&lp).unwrap();
+        assert!((idx.served(&sol.x) - 2.0).abs() < 1e-7, "{:?}", sol.x);
+    }
 
     /// max x + y with x, y in [0, 3] and x + y <= 4 (hand-worked: optimum 4). With the
     /// row price 1 the bound is 4·1 + 3·max(0, 1 − 1)·2 = 4 (tight); with price 0 it is
