@@ -987,15 +987,10 @@ fn run_routed_audit(
             report::csv::write_audit(w, audit, closings.as_deref(), risk.as_ref())
         })?;
     }
-    stdout_result(
-        out.write_all(report::routing::routing_report(net, &ra, args.top).as_bytes())
-            .and_then(|()| writeln!(out)),
-    )?;
-    stdout_result(report::text::write_audit(
+    stdout_result(report::routing::write_audit(
         out,
         net,
-        audit,
-        &ra.baseline.eval,
+        &ra,
         closings.as_deref().map(|c| report::text::ClosingPart {
             closings: c,
             default_costs: cands.default_costs,
@@ -1003,7 +998,6 @@ fn run_routed_audit(
         risk.as_ref(),
         &verdicts,
         args.top,
-        None,
     ))?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok

@@ -168,6 +168,36 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
     screen::finish(&out)
 }
 
+/// The audit exporter under a deployed routing: the verdict line first (as every audit
+/// text), then [`routing_report`], then the audit's own sections
+/// ([`super::text::audit_sections`]) on the routed values.
+#[allow(clippy::too_many_arguments)] // each part is optional and independent
+pub fn write_audit(
+    w: &mut dyn std::io::Write,
+    net: &Network,
+    ra: &RoutedAudit,
+    closing: Option<super::text::ClosingPart<'_>>,
+    risk: Option<&crate::risk::Risk>,
+    gates: &[crate::gate::GateResult],
+    top: usize,
+) -> std::io::Result<()> {
+    let audit = &ra.audit;
+    let mut s = format!("{}\n", super::text::verdict(net, audit, gates));
+    s.push_str(&routing_report(net, ra, top));
+    s.push('\n');
+    s.push_str(&super::text::audit_sections(
+        net,
+        audit,
+        &ra.baseline.eval,
+        closing,
+        risk,
+        gates,
+        top,
+        None,
+    ));
+    w.write_all(screen::finish(&s).as_bytes())
+}
+
 /// The line a `plan --routing steered` report starts with.
 pub fn plan_header(mode: Mode) -> String {
     format!(

@@ -455,14 +455,25 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     }
     let _ = writeln!(out, "\n{}", verification_summary(audit));
     for (k, e) in audit.evaluations.iter().enumerate() {
-        if !e.proven() {
+        let name = || audit.first_scenario(k).display_name();
+        if !e.verification.proven {
             let _ = writeln!(
                 out,
                 "UNPROVEN: {}: served_required between {} and {} (reported at the lower \
                  bound, so its shortfall is not understated).",
-                audit.first_scenario(k).display_name(),
+                name(),
                 num(e.verification.lower),
                 amount(e.verification.upper, u)
+            );
+        }
+        if let Some(t) = e.throughput_verification.as_ref().filter(|t| !t.proven) {
+            let _ = writeln!(
+                out,
+                "UNPROVEN: {}: throughput between {} and {} {u} (reported at the lower bound, \
+                 so its loss is not understated).",
+                name(),
+                num(t.lower),
+                num(t.upper)
             );
         }
     }
@@ -531,10 +542,31 @@ pub fn risk_report(net: &Network, audit: &Audit, r: &crate::risk::Risk) -> Strin
 }
 
 /// One line on how the results were verified: how many outages were proven optimal (both
-/// LPs), the worst relative residual of an allocation and the worst certified gap.
+/// LPs), and when some are not, how many per quantity (served_required; throughput, which
+/// is served_required itself when no demand offers more than its required part), the worst
+/// relative residual of an allocation and the worst certified gap.
 pub fn verification_summary(audit: &Audit) -> String {
     let n = audit.evaluations.len();
     let proven = audit.evaluations.iter().filter(|e| e.proven()).count();
+    let served_proven = audit
+        .evaluations
+        .iter()
+        .filter(|e| e.verification.proven)
+        .count();
+    let throughput_proven = audit
+        .evaluations
+        .iter()
+        .filter(|e| {
+            e.throughput_verification
+                .as_ref()
+                .map_or(e.verification.proven, |t| t.proven)
+        })
+        .count();
+    let per_quantity = if proven < n {
+        format!("served_required {served_proven}, throughput {throughput_proven}; ")
+    } else {
+        String::new()
+    };
     let residual = audit
         .evaluations
         .iter()
@@ -551,8 +583,8 @@ pub fn verification_summary(audit: &Audit) -> String {
         .filter(|e| e.verification.attempts > 1)
         .count();
     format!(
-        "Verified: {proven} of {n} outage{} proven optimal by independent bounds (worst \
-         relative residual {}, worst certified gap {}){}{}.",
+        "Verified: {proven} of {n} outage{} proven optimal by independent bounds \
+         ({per_quantity}worst relative residual {}, worst certified gap {}){}{}.",
         if n == 1 { "" } else { "s" },
         small(residual),
         small(gap),
@@ -972,7 +1004,26 @@ pub fn write_audit(
     why: Option<WhyPart<'_>>,
 ) -> io::Result<()> {
     let mut s = format!("{}\n", verdict(net, audit, gates));
-    s.push_str(&audit_report(net, audit, baseline, top));
+    s.push_str(&audit_sections(
+        net, audit, baseline, closing, risk, gates, top, why,
+    ));
+    w.write_all(screen::finish(&s).as_bytes())
+}
+
+/// Everything [`write_audit`] writes after the verdict line (for reports that put their
+/// own section between the verdict and the audit).
+#[allow(clippy::too_many_arguments)] // each part is optional and independent
+pub fn audit_sections(
+    net: &Network,
+    audit: &Audit,
+    baseline: &Evaluation,
+    closing: Option<ClosingPart<'_>>,
+    risk: Option<&crate::risk::Risk>,
+    gates: &[GateResult],
+    top: usize,
+    why: Option<WhyPart<'_>>,
+) -> String {
+    let mut s = audit_report(net, audit, baseline, top);
     if let Some(y) = &why {
         s.push_str(&why_report(net, audit, y));
     }
@@ -996,7 +1047,7 @@ pub fn write_audit(
         }
     }
     s.push_str(&caution());
-    w.write_all(screen::finish(&s).as_bytes())
+    s
 }
 
 /// The `plan` exporter: [`plan_report`] to `w`.

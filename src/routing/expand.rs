@@ -100,6 +100,7 @@ fn best_reachable(
             .arc_row
             .iter()
             .enumerate()
+            .filter(|&(a, _)| !index.arc_lowered[a])
             .filter_map(|(a, r)| r.map(|r| (a, sol.duals[r]))),
     );
     let best = if (required - best).abs() <= TOL * required.max(1.0) {
@@ -350,6 +351,7 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
     for (&k, index) in short.iter().zip(&indices) {
         for (v, r) in index.site_row.iter().enumerate() {
             if let Some(r) = r
+                && !index.site_lowered[v]
                 && let Some(&y) = duals.get(*r)
                 && y.abs() > 1e-9
             {

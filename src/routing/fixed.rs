@@ -7,6 +7,14 @@
 //! with `Σ_v y_{d,v} <= cap_d`. Rows: per arc `Σ load-per-unit · var <= capacity`, per
 //! site `Σ share · var (− add_v) <= processing`. Every row is `<=` with non-negative
 //! coefficients, and every variable lies in `[0, cap_d]`; [`weak_dual_bound`] relies on it.
+//!
+//! Presolve: a capacity that cannot bind is lowered to what can cross it, `Σ_d cap_d ·
+//! max_{var of d} coefficient` (the most the demands can put on that row, since a demand's
+//! variables sum to at most `cap_d`). The lowered row is implied by the variable bounds, so
+//! the feasible set, the optimum and every weak-duality bound are unchanged; it keeps a link
+//! of 1e12 beside demands of 1e4 from setting the model's scale. Site rows offset by
+//! added processing are not lowered. Each variable carries its demand's cap as magnitude
+//! hint, so [`crate::solve::lp::Scaling`] expresses it as a fraction of its demand.
 
 use super::{DemandRoutes, Mode};
 use crate::model::Network;
@@ -26,6 +34,10 @@ pub struct FixedIndex {
     pub arc_row: Vec<Option<usize>>,
     /// Per site: its processing row, when some variable is processed there.
     pub site_row: Vec<Option<usize>>,
+    /// Per arc / site: the presolve lowered its row below the real capacity (the real
+    /// capacity cannot bind, so a price on that row is no price of the capacity).
+    pub arc_lowered: Vec<bool>,
+    pub site_lowered: Vec<bool>,
 }
 
 impl FixedIndex {
@@ -79,6 +91,7 @@ pub fn build(
     let mut demand_vars = vec![Vec::new(); net.demands.len()];
     let mut var_arcs = Vec::new();
     let mut var_sites = Vec::new();
+    let mut var_demand = Vec::new();
     for (d, r) in routes.iter().enumerate() {
         let Some(r) = r else { continue };
         if r.candidates.is_empty() {
@@ -97,12 +110,14 @@ pub fn build(
                 demand_vars[d].push(lp.add_var(0.0, cap[d], obj));
                 var_arcs.push(arcs);
                 var_sites.push(sites);
+                var_demand.push(d);
             }
             Mode::Steered => {
                 for ch in &r.candidates {
                     demand_vars[d].push(lp.add_var(0.0, cap[d], obj));
                     var_arcs.push(ch.arcs.clone());
                     var_sites.push(vec![(ch.site, 1.0)]);
+                    var_demand.push(d);
                 }
                 if demand_vars[d].len() > 1 {
                     let coeffs = demand_vars[d].iter().map(|&v| (v, 1.0)).collect();
@@ -121,11 +136,39 @@ pub fn build(
             site_terms[s].push((first_var + j, c));
         }
     }
+    for (j, &d) in var_demand.iter().enumerate() {
+        lp.magnitude[first_var + j] = cap[d];
+    }
+    // What can cross a row: per demand its largest coefficient there times its cap.
+    let reach = |terms: &[(usize, f64)]| -> f64 {
+        let mut per: Vec<(usize, f64)> = terms
+            .iter()
+            .map(|&(v, c)| (var_demand[v - first_var], c))
+            .collect();
+        per.sort_by(|a, b| a.0.cmp(&b.0).then(b.1.total_cmp(&a.1)));
+        per.dedup_by_key(|p| p.0);
+        per.iter().map(|&(d, c)| c * cap[d]).sum()
+    };
+    let mut arc_lowered = vec![false; net.arcs.len()];
     let arc_row = arc_terms
         .into_iter()
         .zip(&net.arcs)
-        .map(|(t, arc)| (!t.is_empty()).then(|| lp.add_row(t, Sense::Le, arc.capacity)))
+        .enumerate()
+        .map(|(a, (t, arc))| {
+            if t.is_empty() {
+                return None;
+            }
+            let most = reach(&t);
+            let rhs = if most < arc.capacity {
+                arc_lowered[a] = true;
+                most
+            } else {
+                arc.capacity
+            };
+            Some(lp.add_row(t, Sense::Le, rhs))
+        })
         .collect();
+    let mut site_lowered = vec![false; net.sites.len()];
     let site_row = site_terms
         .into_iter()
         .enumerate()
@@ -133,10 +176,17 @@ pub fn build(
             if t.is_empty() {
                 return None;
             }
+            let mut rhs = net.sites[s].processing;
             if let Some(a) = add.and_then(|a| a[s]) {
                 t.push((a, -1.0));
+            } else {
+                let most = reach(&t);
+                if most < rhs {
+                    site_lowered[s] = true;
+                    rhs = most;
+                }
             }
-            Some(lp.add_row(t, Sense::Le, net.sites[s].processing))
+            Some(lp.add_row(t, Sense::Le, rhs))
         })
         .collect();
     FixedIndex {
@@ -146,6 +196,8 @@ pub fn build(
         first_var,
         arc_row,
         site_row,
+        arc_lowered,
+        site_lowered,
     }
 }
 
@@ -178,6 +230,48 @@ pub fn weak_dual_bound(lp: &Lp, sol: &LpSolution) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::routing::{processing_sites, routes, spt::Trees};
+    use crate::scenario::Outage;
+
+    /// Presolve, hand-worked: a–b–c, processing 100 at b, demands a→c of 10 and c→a of 5.
+    /// Link ab (1e12) carries at most 10 a→b and 5 b→a: its rows drop to 10 and 5. Link bc
+    /// of capacity 1 can bind: kept at 1. Site b can take 15 of its 100: row lowered to 15.
+    /// The optimum is unchanged: 1 + 1 (each demand crosses bc once; nearest = steered here).
+    #[test]
+    fn presolve_lowers_only_rows_that_cannot_bind() {
+        let net = Network::from_bytes(
+            br#"{"sites":[{"id":"a"},{"id":"b","processing":100},{"id":"c"}],
+                "links":[{"id":"ab","from":"a","to":"b","capacity":1e12},
+                         {"id":"bc","from":"b","to":"c","capacity":1}],
+                "demands":[{"from":"a","to":"c","volume":10},{"from":"c","to":"a","volume":5}]}"#,
+        )
+        .unwrap();
+        let r = routes(
+            &net,
+            &Trees::baseline(&net),
+            &processing_sites(&net, &Outage::default()),
+        );
+        let mut lp = Lp::new(true);
+        let idx = build(&mut lp, &net, &r, Mode::Nearest, &[10.0, 5.0], 1.0, None);
+        let rhs = |row: Option<usize>| lp.rows[row.unwrap()].rhs;
+        let mut ab: Vec<f64> = (0..net.arcs.len())
+            .filter(|&a| net.links[net.arcs[a].link].id == "ab")
+            .map(|a| rhs(idx.arc_row[a]))
+            .collect();
+        ab.sort_by(f64::total_cmp);
+        assert_eq!(ab, vec![5.0, 10.0]);
+        for a in 0..net.arcs.len() {
+            let bc = net.links[net.arcs[a].link].id == "bc";
+            assert_eq!(idx.arc_lowered[a], !bc, "arc {a}");
+            if bc {
+                assert_eq!(rhs(idx.arc_row[a]), 1.0);
+            }
+        }
+        assert_eq!(rhs(idx.site_row[1]), 15.0);
+        assert!(idx.site_lowered[1]);
+        let sol = crate::solve::lp::solve(&lp).unwrap();
+        assert!((idx.served(&sol.x) - 2.0).abs() < 1e-7, "{:?}", sol.x);
+    }
 
     /// max x + y with x, y in [0, 3] and x + y <= 4 (hand-worked: optimum 4). With the
     /// row price 1 the bound is 4·1 + 3·max(0, 1 − 1)·2 = 4 (tight); with price 0 it is

@@ -245,20 +245,31 @@ fn snap(x: f64, target: f64, scale: f64) -> f64 {
     }
 }
 
-/// A fixed-route result checked like every other: the value reported, and how.
+/// A fixed-route result checked like every other: the value reported, how, the feasible
+/// allocation kept and the row prices of the best upper bound.
 struct Checked {
     value: f64,
     verification: solve::Verification,
+    /// The scaled-down, feasible allocation ([`solve::verify::packing_lower`]).
+    x: Vec<f64>,
+    /// Row prices of the attempt with the least upper bound (clipped at 0 by readers).
+    duals: Vec<f64>,
 }
 
-/// Verifies the solution `sol` of a fixed-route model (a packing LP): the scaled-down
-/// allocation of [`solve::verify::packing_lower`] is the proven lower bound (and replaces
-/// `sol.x`, so loads and flows reported are feasible), the weak-duality bound of its prices
-/// ([`fixed::weak_dual_bound`]) the upper bound; the value is the plainest number between
-/// them when they meet within [`solve::GAP_TOL`] of `at_stake`, else the lower bound.
-fn verify_fixed(model: &lp::Lp, sol: &mut lp::LpSolution, at_stake: f64) -> Checked {
+/// Solves and verifies a fixed-route model (a packing LP) with each backend of
+/// `ladder` in turn until the result is proven: the scaled-down allocation of
+/// [`solve::verify::packing_lower`] is the proven lower bound (loads and flows reported are
+/// its own, so feasible), the weak-duality bound of the prices
+/// ([`fixed::weak_dual_bound`]) the upper bound. The best bounds of all attempts are kept;
+/// the value is the plainest number between them when they meet within
+/// [`solve::GAP_TOL`] of `at_stake` and the allocation's residual ([`solve::verify::residual`],
+/// each row against what its demands can put on it) is within [`solve::RESIDUAL_TOL`],
+/// else the lower bound. The ladder ends with the simplex, whose vertex and explicit dual
+/// close the bounds where the interior point's prices leave them open. Fails only when
+/// every backend fails.
+fn verify_fixed(model: &lp::Lp, at_stake: f64, ladder: &[&dyn lp::Backend]) -> Result<Checked> {
     if model.num_vars() == 0 {
-        return Checked {
+        return Ok(Checked {
             value: 0.0,
             verification: solve::Verification {
                 proven: true,
@@ -268,55 +279,89 @@ fn verify_fixed(model: &lp::Lp, sol: &mut lp::LpSolution, at_stake: f64) -> Chec
                 attempts: 0,
                 backend: "none (nothing to route)".into(),
             },
+            x: Vec::new(),
+            duals: vec![0.0; model.rows.len()],
+        });
+    }
+    let row_floor = vec![0.0; model.rows.len()];
+    let var_floor = &model.upper;
+    let mut best: Option<Checked> = None;
+    let mut best_upper = f64::INFINITY;
+    let mut best_duals = vec![0.0; model.rows.len()];
+    let mut errors = Vec::new();
+    for (attempt, backend) in ladder.iter().enumerate() {
+        let sol = match backend.solve(model, None) {
+            Ok(s) => s,
+            Err(e) => {
+                errors.push(format!("{}: {e}", backend.name()));
+                continue;
+            }
         };
+        let residual = solve::verify::residual(model, &sol.x, &row_floor, var_floor);
+        // The fixed-route model is a packing LP by construction; were it not, nothing is
+        // proven and the lower bound is 0.
+        let (lower, x) = solve::verify::packing_lower(model, &sol.x)
+            .unwrap_or_else(|| (0.0, vec![0.0; sol.x.len()]));
+        let lower = lower.min(at_stake);
+        let upper = fixed::weak_dual_bound(model, &sol).min(at_stake).max(0.0);
+        if upper < best_upper {
+            best_upper = upper;
+            best_duals = sol.duals;
+        }
+        let feasible = residual <= solve::RESIDUAL_TOL;
+        let better = best.as_ref().is_none_or(|b| {
+            let b_feasible = b.verification.residual <= solve::RESIDUAL_TOL;
+            (feasible && !b_feasible) || (feasible == b_feasible && lower > b.verification.lower)
+        });
+        if better {
+            best = Some(Checked {
+                value: lower,
+                verification: solve::Verification {
+                    proven: false,
+                    lower,
+                    upper: f64::INFINITY,
+                    residual,
+                    attempts: attempt + 1,
+                    backend: backend.name().into(),
+                },
+                x,
+                duals: Vec::new(),
+            });
+        }
+        let Some(b) = best.as_mut() else { continue };
+        let v = &mut b.verification;
+        v.attempts = attempt + 1;
+        v.upper = best_upper;
+        v.proven = solve::meets(v.residual, v.lower, best_upper, at_stake);
+        if v.proven {
+            break;
+        }
     }
-    let residual = model.max_violation(&sol.x);
-    // The fixed-route model is a packing LP by construction; were it not, nothing is
-    // proven and the lower bound is 0.
-    let (lower, x) = solve::verify::packing_lower(model, &sol.x)
-        .unwrap_or_else(|| (0.0, vec![0.0; sol.x.len()]));
-    sol.x = x;
-    let lower = lower.min(at_stake);
-    let upper = fixed::weak_dual_bound(model, sol).min(at_stake).max(0.0);
-    let proven = solve::meets(residual, lower, upper, at_stake);
-    Checked {
-        value: if proven {
-            solve::reported_in(lower, upper.max(lower), at_stake)
-        } else {
-            lower
-        },
-        verification: solve::Verification {
-            proven,
-            lower,
-            upper,
-            residual,
-            attempts: 1,
-            backend: "interior-point".into(),
-        },
-    }
+    let mut out = best.ok_or_else(|| crate::error::Error::Solver(errors.join("; ")))?;
+    out.duals = best_duals;
+    let v = &out.verification;
+    out.value = if v.proven {
+        solve::reported_in(v.lower, v.upper.max(v.lower), at_stake)
+    } else {
+        v.lower
+    };
+    Ok(out)
 }
 
-/// Solves the fixed-route LP of `routes` with per-demand caps `cap`; returns the model,
-/// its index and solution (an empty solution when there is no variable).
-pub fn solve_fixed(
+/// Builds the fixed-route LP of `routes` with per-demand caps `cap` and solves it with
+/// [`verify_fixed`] on [`solve::LADDER`] (`at_stake`: the demand the proof is measured
+/// against); returns the model's index and the checked result.
+fn solve_fixed(
     net: &Network,
     routes: &[Option<DemandRoutes>],
     mode: Mode,
     cap: &[f64],
-) -> Result<(lp::Lp, fixed::FixedIndex, lp::LpSolution)> {
+    at_stake: f64,
+) -> Result<(fixed::FixedIndex, Checked)> {
     let mut model = lp::Lp::new(true);
     let index = fixed::build(&mut model, net, routes, mode, cap, 1.0, None);
-    let sol = if model.num_vars() == 0 {
-        lp::LpSolution {
-            x: Vec::new(),
-            duals: vec![0.0; model.rows.len()],
-            upper_duals: Vec::new(),
-            objective: 0.0,
-        }
-    } else {
-        lp::solve(&model)?
-    };
-    Ok((model, index, sol))
+    let checked = verify_fixed(&model, at_stake, &solve::LADDER)?;
+    Ok((index, checked))
 }
 
 /// One outage under the deployed routing.
@@ -366,7 +411,6 @@ pub fn evaluate_routes(
         }
     }
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let (model, index, mut sol) = solve_fixed(net, routes, mode, &required)?;
     // Demands whose routes reach no processing site serve nothing: their required part
     // is summed apart from the rest, so neither total is lost in the other.
     let cut_off_of = |d: usize| routes[d].as_ref().is_some_and(|r| r.candidates.is_empty());
@@ -382,9 +426,9 @@ pub fn evaluate_routes(
     } else {
         surviving_required
     };
-    let verification = verify_fixed(&model, &mut sol, servable_required);
-    let served_required = verification.value;
-    let verification = verification.verification;
+    let (index, sol) = solve_fixed(net, routes, mode, &required, servable_required)?;
+    let served_required = sol.value;
+    let verification = sol.verification.clone();
     let shortfall = solve::shortfall_of(cut_off_required, servable_required, served_required);
     // A cut-off demand serves exactly nothing; any other flow is judged against the
     // servable demand of its origin, never against a larger total.
@@ -419,12 +463,25 @@ pub fn evaluate_routes(
     let arc_price: Vec<f64> = index
         .arc_row
         .iter()
-        .map(|r| r.map_or(0.0, |r| snap(sol.duals[r].max(0.0), 0.0, 1.0)))
+        .zip(&index.arc_lowered)
+        .map(|(r, &low)| match r {
+            Some(r) if !low => snap(sol.duals[*r].max(0.0), 0.0, 1.0),
+            _ => 0.0,
+        })
         .collect();
     let site_price: Vec<Option<f64>> = index
         .site_row
         .iter()
-        .map(|r| r.map(|r| snap(sol.duals[r].max(0.0), 0.0, 1.0)))
+        .zip(&index.site_lowered)
+        .map(|(r, &low)| {
+            r.map(|r| {
+                if low {
+                    0.0
+                } else {
+                    snap(sol.duals[r].max(0.0), 0.0, 1.0)
+                }
+            })
+        })
         .collect();
     let mut bottlenecks = Vec::new();
     for (a, arc) in net.arcs.iter().enumerate() {
@@ -469,8 +526,7 @@ pub fn evaluate_routes(
     let max_violation = verification.residual;
     let (throughput, throughput_verification) = if needs_volume_lp {
         let volume: Vec<f64> = net.demands.iter().map(|d| d.volume).collect();
-        let (vmodel, _, mut vsol) = solve_fixed(net, routes, mode, &volume)?;
-        let t = verify_fixed(&vmodel, &mut vsol, surviving_volume);
+        let (_, t) = solve_fixed(net, routes, mode, &volume, surviving_volume)?;
         (
             t.value.max(served_required).min(surviving_volume),
             Some(t.verification),
@@ -524,7 +580,8 @@ pub struct RoutedAudit {
     pub best: Vec<Evaluation>,
     /// Per outage: the offered load on the nearest routes.
     pub offered: Vec<Offered>,
-    /// The baseline: routed, best re-route and offered load.
+    /// The baseline (the elements every scenario keeps down, `--down`; else the intact
+    /// network): routed, best re-route and offered load.
     pub baseline: Routed,
     pub baseline_best: Evaluation,
     /// The baseline trees every outage starts from.
@@ -559,13 +616,16 @@ pub fn run(
     } else {
         routed.iter().map(|r| r.eval.clone()).collect()
     };
-    let base_k = outages.iter().position(|o| *o == Outage::default());
+    // The baseline is what every scenario keeps down (`--down`), as for the best re-route.
+    let down = scenarios.first().map_or(&[][..], |sc| &sc.down[..]);
+    let base_outage = Scenario::baseline().with_down(down).outage(net);
+    let base_k = outages.iter().position(|o| *o == base_outage);
     let (baseline, baseline_best) = match base_k {
         Some(k) => (routed[k].clone(), best[k].clone()),
         None => {
-            let r = evaluate(net, &trees, &Outage::default(), mode)?;
+            let r = evaluate(net, &trees, &base_outage, mode)?;
             let b = if with_best {
-                solve::evaluate(net, &Outage::default())?
+                solve::evaluate(net, &base_outage)?
             } else {
                 r.eval.clone()
             };
