@@ -127,10 +127,13 @@ fn peer_script() -> Option<PathBuf> {
         return Some(PathBuf::from(p));
     }
     let root = Path::new(env!("CARGO_MANIFEST_DIR"));
-    ["../shared/peers/peer_warm.py", "../../shared/peers/peer_warm.py"]
-        .iter()
-        .map(|p| root.join(p))
-        .find(|p| p.exists())
+    [
+        "../shared/peers/peer_warm.py",
+        "../../shared/peers/peer_warm.py",
+    ]
+    .iter()
+    .map(|p| root.join(p))
+    .find(|p| p.exists())
 }
 
 /// Whether `python3` can import highspy and numpy.
@@ -165,8 +168,8 @@ struct Side {
 fn redoubt_audit(text: &str, depth: usize) -> (Side, String) {
     let t = Instant::now();
     let net = Network::from_json(text).expect("generated network is valid");
-    let mut batch = Batch::new(&net, scenario::lazy(&net, ALL, depth), Engine::Walks)
-        .keeping(Keep::Thin);
+    let mut batch =
+        Batch::new(&net, scenario::lazy(&net, ALL, depth), Engine::Walks).keeping(Keep::Thin);
     let outages = batch.outages();
     let tb = Instant::now();
     batch.seed(
@@ -230,8 +233,7 @@ fn peer_audit(script: &Path, file: &Path, depth: usize) -> Option<(Side, String)
         println!("  peer failed: {status}");
         return None;
     }
-    let doc: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(&out).ok()?).ok()?;
+    let doc: serde_json::Value = serde_json::from_str(&std::fs::read_to_string(&out).ok()?).ok()?;
     let mut served = HashMap::new();
     for s in doc["scenarios"].as_array()? {
         let mut names: Vec<String> = s["failed"]
@@ -271,7 +273,9 @@ fn main() {
         match peer_script() {
             Some(p) if peer_ready() => Some(p),
             Some(_) => {
-                println!("peer skipped: python3 cannot import highspy and numpy (pip install highspy numpy)");
+                println!(
+                    "peer skipped: python3 cannot import highspy and numpy (pip install highspy numpy)"
+                );
                 None
             }
             None => {

@@ -34,8 +34,11 @@
 //! numerical corner) or exceeds [`MAX_ROUNDS`], the scenario is solved by the edge LP
 //! instead and counted as a fallback.
 //!
-//! Master LPs are solved by [`super::lp::solve`] (the interior-point backend, cold): they are
-//! small (columns ≈ a few walks per demand, rows ≈ arcs + sites + demands).
+//! Master LPs are solved by the warm simplex of [`super::simplex`] (kept between rounds,
+//! restricted to the demands a failure touches; see [`WarmMaster`]), or, above
+//! [`WARM_ROWS`] rows, by [`super::lp::solve`] (the interior-point backend, cold).
+//! Parallel links of one direction are one arc (a class) for pricing, repair and masters,
+//! and the flow is split back per link before verification ([`Graph::split`]).
 //!
 //! Determinism: Dijkstra breaks ties by hop count and then node index, walks are added in
 //! demand order, and a scenario's result depends only on the network, the outage and the
@@ -771,7 +774,12 @@ fn generate(
         }
     }
     let mut m = WarmMaster::new(g, caps, active);
-    for (w, f) in walks.into_iter().zip(values) {
+    // Fixed walks first, so that rows are created net of their loads.
+    let (free, fixed): (Vec<(Walk, f64)>, Vec<(Walk, f64)>) = walks
+        .into_iter()
+        .zip(values)
+        .partition(|(w, _)| m.active[w.demand]);
+    for (w, f) in fixed.into_iter().chain(free) {
         m.add(w, f);
     }
     match m.run(stats)? {
@@ -789,13 +797,15 @@ enum Warm {
     Abandon(Vec<Walk>),
 }
 
-/// The restricted master kept by the warm simplex across rounds: rows are created as
-/// columns need them (an arc's, a site's; a demand's only while it is *active*). Walks of
-/// an inactive demand are columns fixed at their start flow (no demand row): they use
-/// their capacity but do not move. A demand is activated (its row added, its columns
-/// freed) when its share of the duality gap, `Σ_w f_w · price(w) + b_d·max(0, 1 − c_d) −
-/// Σ_w f_w`, is positive; when no demand has a share and no column prices out, the gap is
-/// closed (the bound of [`price`] decomposes into these shares and the master's own gap).
+/// The restricted master kept by the warm simplex across rounds. Only *active* demands
+/// have columns (and a cap row); the walks of an inactive demand stay at their start flow
+/// outside the LP, and the arc and site rows (created as columns need them) hold what
+/// those fixed walks leave: `cap − fixed load`. A demand is activated when its share of
+/// the duality gap, `Σ_w f_w · price(w) + b_d·max(0, 1 − c_d) − Σ_w f_w`, is positive: its
+/// walks become columns at their flow and the rows get their load back, which leaves the
+/// basis and every basic value unchanged. The bound of [`price`] is the master's own dual
+/// value plus these shares, so when no demand has a share and no column prices out, the
+/// gap is closed.
 struct WarmMaster<'a, 'g> {
     g: &'g Graph<'a>,
     caps: &'g [f64],
@@ -805,8 +815,12 @@ struct WarmMaster<'a, 'g> {
     arc_row: Vec<usize>,
     site_row: Vec<usize>,
     dem_row: Vec<usize>,
+    /// The LP's columns, in column order.
     walks: Vec<Walk>,
-    by_demand: Vec<Vec<usize>>,
+    /// Per inactive demand: its fixed walks and flows.
+    fixed: Vec<Vec<(Walk, f64)>>,
+    fixed_arc: Vec<f64>,
+    fixed_site: Vec<f64>,
     active: Vec<bool>,
     seen: HashSet<Walk>,
 }
@@ -827,55 +841,76 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
             site_row: vec![NO_ROW; net.sites.len()],
             dem_row: vec![NO_ROW; net.demands.len()],
             walks: Vec::new(),
-            by_demand: vec![Vec::new(); net.demands.len()],
+            fixed: vec![Vec::new(); net.demands.len()],
+            fixed_arc: vec![0.0; net.arcs.len()],
+            fixed_site: vec![0.0; net.sites.len()],
             active,
             seen: HashSet::new(),
         }
     }
 
-    /// Adds walk `w` as a column at flow `f` (free when its demand is active, else fixed
-    /// at `f`), with the rows it needs. Walks already present are skipped.
+    /// Adds walk `w` at flow `f`: a column when its demand is active, else a fixed walk.
+    /// Walks already present are skipped.
     fn add(&mut self, w: Walk, f: f64) {
         if !self.seen.insert(w.clone()) {
             return;
         }
         let d = w.demand;
-        if self.active[d] && self.dem_row[d] == NO_ROW {
+        if !self.active[d] {
+            for &(a, k) in &w.arcs {
+                self.fixed_arc[a] += f64::from(k) * f;
+            }
+            self.fixed_site[w.site] += f;
+            self.fixed[d].push((w, f));
+            return;
+        }
+        self.column(w, f);
+    }
+
+    /// Adds the column of walk `w` (active demand) at flow `f`, creating the rows it
+    /// needs (arc and site rows hold the capacity the fixed walks leave).
+    fn column(&mut self, w: Walk, f: f64) {
+        let d = w.demand;
+        if self.dem_row[d] == NO_ROW {
             self.dem_row[d] = self.lp.add_row(self.caps[d], &[]);
         }
         let mut entries = Vec::with_capacity(w.arcs.len() + 2);
         for &(a, k) in &w.arcs {
             if self.arc_row[a] == NO_ROW {
-                self.arc_row[a] = self.lp.add_row(self.arc_cap[a], &[]);
+                let rhs = (self.arc_cap[a] - self.fixed_arc[a]).max(0.0);
+                self.arc_row[a] = self.lp.add_row(rhs, &[]);
             }
             entries.push((self.arc_row[a], f64::from(k)));
         }
         if self.site_row[w.site] == NO_ROW {
-            self.site_row[w.site] = self.lp.add_row(self.site_cap[w.site], &[]);
+            let rhs = (self.site_cap[w.site] - self.fixed_site[w.site]).max(0.0);
+            self.site_row[w.site] = self.lp.add_row(rhs, &[]);
         }
         entries.push((self.site_row[w.site], 1.0));
-        if self.active[d] {
-            entries.push((self.dem_row[d], 1.0));
-        }
-        let (lo, hi) = if self.active[d] {
-            (0.0, f64::INFINITY)
-        } else {
-            (f, f)
-        };
-        let j = self.lp.add_col(1.0, lo, hi, f, entries);
-        self.by_demand[d].push(j);
+        entries.push((self.dem_row[d], 1.0));
+        self.lp.add_col(1.0, 0.0, f64::INFINITY, f, entries);
         self.walks.push(w);
     }
 
-    /// Frees the columns of demand `d` and adds its cap row.
-    fn activate(&mut self, d: usize) -> Result<()> {
+    /// Makes demand `d` active: its cap row, and its fixed walks as columns at their flow
+    /// (each existing row first gets the walk's load back, so no basic value moves).
+    fn activate(&mut self, d: usize) {
         self.active[d] = true;
-        let entries: Vec<(usize, f64)> = self.by_demand[d].iter().map(|&j| (j, 1.0)).collect();
-        self.dem_row[d] = self.lp.add_row(self.caps[d], &entries);
-        for &j in &self.by_demand[d] {
-            self.lp.set_bounds(j, 0.0, f64::INFINITY)?;
+        self.dem_row[d] = self.lp.add_row(self.caps[d], &[]);
+        for (w, f) in std::mem::take(&mut self.fixed[d]) {
+            for &(a, k) in &w.arcs {
+                let load = f64::from(k) * f;
+                self.fixed_arc[a] -= load;
+                if self.arc_row[a] != NO_ROW {
+                    self.lp.shift_rhs(self.arc_row[a], load);
+                }
+            }
+            self.fixed_site[w.site] -= f;
+            if self.site_row[w.site] != NO_ROW {
+                self.lp.shift_rhs(self.site_row[w.site], f);
+            }
+            self.column(w, f);
         }
-        Ok(())
     }
 
     fn dual(&self, row: usize) -> f64 {
@@ -886,6 +921,19 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
         }
     }
 
+    /// All walks (columns, then fixed walks) and their flows.
+    fn into_solution(self) -> (Vec<Walk>, Vec<f64>) {
+        let mut flow: Vec<f64> = (0..self.walks.len())
+            .map(|j| self.lp.value(j).max(0.0))
+            .collect();
+        let mut walks = self.walks;
+        for (w, f) in self.fixed.into_iter().flatten() {
+            walks.push(w);
+            flow.push(f);
+        }
+        (walks, flow)
+    }
+
     /// Rounds of master solve, pricing and activation until the dual bound meets the
     /// master's value.
     fn run(mut self, stats: &mut Stats) -> Result<Warm> {
@@ -893,7 +941,7 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
         let mut scale: Option<f64> = None;
         loop {
             if self.lp.rows() > WARM_ROWS {
-                return Ok(Warm::Abandon(self.walks));
+                return Ok(Warm::Abandon(self.into_solution().0));
             }
             if self.lp.cols() > 0 {
                 stats.lp_solves += 1;
@@ -903,7 +951,7 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
                     .solve(PIVOTS_PER_ROW * self.lp.rows().max(100))
                     .is_err()
                 {
-                    return Ok(Warm::Abandon(self.walks));
+                    return Ok(Warm::Abandon(self.into_solution().0));
                 }
             }
             let y: Vec<f64> = self.arc_row.iter().map(|&r| self.dual(r)).collect();
@@ -917,17 +965,17 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
                     }
                 })
                 .collect();
-            let flow: Vec<f64> = (0..self.walks.len())
-                .map(|j| self.lp.value(j).max(0.0))
-                .collect();
-            let value: f64 = flow.iter().sum();
+            let fixed_total: f64 = self.fixed.iter().flatten().map(|(_, f)| f).sum();
+            let value = self.lp.objective() + fixed_total;
             stats.rounds += 1;
             let p = price(self.g, self.caps, &y, &z, Some(&u));
             let s = *scale.get_or_insert_with(|| servable_total(self.caps, &p.cost).max(1.0));
             if p.bound - value <= GAP_TOL * s {
                 stats.generated += 1;
+                let (walks, flow) = self.into_solution();
+                let value = flow.iter().sum();
                 return Ok(Warm::Done(Solved {
-                    walks: self.walks,
+                    walks,
                     flow,
                     value,
                     arc_price: y,
@@ -945,16 +993,15 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
                 }
                 let mut share = 0.0;
                 let mut f_d = 0.0;
-                for &j in &self.by_demand[d] {
-                    let w = &self.walks[j];
+                for (w, f) in &self.fixed[d] {
                     let c: f64 = w
                         .arcs
                         .iter()
                         .map(|&(a, k)| f64::from(k) * y[a])
                         .sum::<f64>()
                         + z[w.site];
-                    share += flow[j] * c;
-                    f_d += flow[j];
+                    share += f * c;
+                    f_d += f;
                 }
                 if p.cost[d].is_finite() {
                     share += self.caps[d] * (1.0 - p.cost[d]).max(0.0);
@@ -979,7 +1026,7 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
                 }
             }
             for d in wake {
-                self.activate(d)?;
+                self.activate(d);
             }
             for w in fresh {
                 self.add(w, 0.0);

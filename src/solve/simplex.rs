@@ -142,6 +142,20 @@ impl Simplex {
         j
     }
 
+    /// Raises (or lowers) the right-hand side of row `i` by `delta`; the basic variables
+    /// absorb it (`x_B += delta · B⁻¹ e_i`). O(m). Used together with a column added at a
+    /// value that takes exactly `delta` of the row, which leaves every basic value as it was.
+    pub fn shift_rhs(&mut self, i: usize, delta: f64) {
+        self.rhs[i] += delta;
+        for p in 0..self.basis.len() {
+            let a = self.binv[i][p];
+            if a != 0.0 {
+                let v = self.basis[p];
+                self.set(v, self.get(v) + delta * a);
+            }
+        }
+    }
+
     /// Sets the bounds of a nonbasic column whose value lies within them (used to free a
     /// column that was fixed). Returns an error otherwise.
     pub fn set_bounds(&mut self, j: usize, lower: f64, upper: f64) -> Result<()> {
@@ -219,7 +233,13 @@ impl Simplex {
     /// The reduced cost of a nonbasic variable: `c_j − y·a_j`.
     fn reduced(&self, v: Var) -> f64 {
         match v {
-            Var::Col(j) => self.obj[j] - self.cols[j].iter().map(|&(r, a)| self.y[r] * a).sum::<f64>(),
+            Var::Col(j) => {
+                self.obj[j]
+                    - self.cols[j]
+                        .iter()
+                        .map(|&(r, a)| self.y[r] * a)
+                        .sum::<f64>()
+            }
             Var::Slack(i) => -self.y[i],
         }
     }
