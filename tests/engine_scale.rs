@@ -54,7 +54,12 @@ fn many_parallel_links_are_one_class_and_split_back() {
     let base = &doc["baseline"];
     assert!((base["served_required"].as_f64().unwrap() - total).abs() < 1e-6);
     assert_eq!(base["saturated_links"].as_array().unwrap().len(), n);
-    let scenarios = doc["scenarios"].as_array().unwrap();
+    let scenarios: Vec<&Value> = doc["scenarios"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|s| !s["failed"].as_array().unwrap().is_empty())
+        .collect();
     assert_eq!(scenarios.len(), n);
     for s in scenarios {
         let name = s["failed"][0].as_str().unwrap();
