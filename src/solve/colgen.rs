@@ -35,10 +35,10 @@
 //! instead and counted as a fallback.
 //!
 //! Master LPs are solved by the warm simplex of [`super::simplex`] (kept between rounds,
-//! restricted to the demands a failure touches; see [`WarmMaster`]), or, above
+//! restricted to the demands a failure touches; see `WarmMaster`), or, above
 //! [`WARM_ROWS`] rows, by [`super::lp::solve`] (the interior-point backend, cold).
 //! Parallel links of one direction are one arc (a class) for pricing, repair and masters,
-//! and the flow is split back per link before verification ([`Graph::split`]).
+//! and the flow is split back per link before verification (`Graph::split`).
 //!
 //! Determinism: Dijkstra breaks ties by hop count and then node index, walks are added in
 //! demand order, and a scenario's result depends only on the network, the outage and the
@@ -775,7 +775,8 @@ fn generate(
     }
     let mut m = WarmMaster::new(g, caps, active);
     // Fixed walks first, so that rows are created net of their loads.
-    let (free, fixed): (Vec<(Walk, f64)>, Vec<(Walk, f64)>) = walks
+    type Start = Vec<(Walk, f64)>;
+    let (free, fixed): (Start, Start) = walks
         .into_iter()
         .zip(values)
         .partition(|(w, _)| m.active[w.demand]);

@@ -262,9 +262,9 @@ impl Simplex {
                 }
             }
         }
-        for i in 0..m {
-            if self.slack_pos[i] == NONE {
-                net[i] -= self.slack[i];
+        for ((n, &pos), &s) in net.iter_mut().zip(&self.slack_pos).zip(&self.slack) {
+            if pos == NONE {
+                *n -= s;
             }
         }
         let mut xb = vec![0.0; m];
