@@ -52,6 +52,21 @@ pub fn generate(
     demands: Demands,
     procs: &[(usize, f64)],
 ) -> Network {
+    let doc = document(seed, sites, links, demands, procs, 0);
+    Network::from_json(&doc.to_string()).expect("generated network is valid")
+}
+
+/// The JSON document of [`generate`], with `groups` shared-risk groups of two links each
+/// (distinct links, drawn after everything else, so `groups = 0` gives [`generate`]'s
+/// network exactly).
+pub fn document(
+    seed: u64,
+    sites: usize,
+    links: usize,
+    demands: Demands,
+    procs: &[(usize, f64)],
+    groups: usize,
+) -> serde_json::Value {
     let mut rng = Rng(seed);
     let mut edges: Vec<(usize, usize)> = (0..sites).map(|i| (i, (i + 1) % sites)).collect();
     while edges.len() < links {
@@ -98,9 +113,21 @@ pub fn generate(
             json!({"from": format!("s{a:02}"), "to": format!("s{b:02}"), "volume": v, "required": r})
         })
         .collect();
-    let doc = json!({"name": "bench", "unit": "Gbit/s", "sites": site_docs, "links": link_docs,
-                     "demands": demand_docs});
-    Network::from_json(&doc.to_string()).expect("generated network is valid")
+    let mut link_docs = link_docs;
+    let mut grouped = vec![false; link_docs.len()];
+    for g in 0..groups {
+        let mut members = 0;
+        while members < 2 && grouped.iter().any(|&b| !b) {
+            let k = rng.below(link_docs.len());
+            if !grouped[k] {
+                grouped[k] = true;
+                link_docs[k]["risk_groups"] = json!([format!("g{g:02}")]);
+                members += 1;
+            }
+        }
+    }
+    json!({"name": "bench", "unit": "Gbit/s", "sites": site_docs, "links": link_docs,
+           "demands": demand_docs})
 }
 
 /// Peak resident memory of this process so far, in MB (Linux `VmHWM`).

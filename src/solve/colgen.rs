@@ -34,17 +34,21 @@
 //! numerical corner) or exceeds [`MAX_ROUNDS`], the scenario is solved by the edge LP
 //! instead and counted as a fallback.
 //!
-//! Master LPs are solved by [`super::lp::solve`] (the interior-point backend, cold): they are
-//! small (columns ≈ a few walks per demand, rows ≈ arcs + sites + demands).
+//! Master LPs are solved by the warm simplex of [`super::simplex`] (kept between rounds,
+//! restricted to the demands a failure touches; see `WarmMaster`), or, above
+//! [`WARM_ROWS`] rows, by [`super::lp::solve`] (the interior-point backend, cold).
+//! Parallel links of one direction are one arc (a class) for pricing, repair and masters,
+//! and the flow is split back per link before verification (`Graph::split`).
 //!
 //! Determinism: Dijkstra breaks ties by hop count and then node index, walks are added in
 //! demand order, and a scenario's result depends only on the network, the outage and the
 //! parent basis, never on thread count.
 
 use std::cmp::Ordering;
-use std::collections::{BinaryHeap, HashSet, VecDeque};
+use std::collections::{BinaryHeap, HashMap, HashSet, VecDeque};
 
 use super::lp::{self, Lp, Sense};
+use super::simplex::Simplex;
 use super::surviving::Surviving;
 use super::{
     Evaluation, Verification, Verified, caps_of, certify, finish, meets, needs_volume_lp,
@@ -63,6 +67,12 @@ pub const GAP_TOL: f64 = 1e-8;
 pub const FLOW_EPS: f64 = 1e-9;
 /// Pricing rounds before a scenario falls back to the edge LP.
 pub const MAX_ROUNDS: usize = 200;
+/// Largest master (rows: arcs, sites and demand caps in it) solved by the warm simplex
+/// ([`super::simplex`], a dense basis inverse of 8·rows² bytes); larger masters go to
+/// the interior-point backend.
+pub const WARM_ROWS: usize = 2500;
+/// Pivots allowed per warm master solve, per row of the master.
+const PIVOTS_PER_ROW: usize = 50;
 
 /// One processing walk of one demand: the arcs it crosses (sorted by arc index, each with
 /// the number of crossings, 1 or 2) and the site where it is processed.
@@ -164,12 +174,24 @@ struct Graph<'a> {
     arc_usable: Vec<bool>,
     /// Per site: survives with processing > 0.
     can_process: Vec<bool>,
-    /// Per site: usable arcs leaving it / entering it (link alive, capacity > 0).
+    /// Per site: usable class arcs leaving it / entering it (see `rep`).
     out: Vec<Vec<usize>>,
     inc: Vec<Vec<usize>>,
+    /// The usable class arcs.
     usable: Vec<usize>,
     /// Surviving sites with processing > 0.
     procs: Vec<usize>,
+    /// Per arc: the first usable arc with the same ends and direction (its *class*);
+    /// itself for an unusable arc. Parallel arcs of one direction are interchangeable in
+    /// the LP, so pricing, repair and masters see one arc per class whose capacity is
+    /// the class's total ([`Graph::split`] spreads the flow back over the links).
+    rep: Vec<usize>,
+    /// Per class arc: its usable members, in arc order (the class arc first).
+    members: Vec<Vec<usize>>,
+    /// Per class arc: Σ capacity of its members (the arc's own capacity otherwise).
+    class_cap: Vec<f64>,
+    /// Some class has two members or more.
+    merged: bool,
 }
 
 impl<'a> Graph<'a> {
@@ -179,9 +201,30 @@ impl<'a> Graph<'a> {
         let n = net.sites.len();
         let mut out = vec![Vec::new(); n];
         let mut inc = vec![Vec::new(); n];
+        let mut rep: Vec<usize> = (0..net.arcs.len()).collect();
+        let mut members: Vec<Vec<usize>> = vec![Vec::new(); net.arcs.len()];
+        let mut class_cap: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
+        let mut first: std::collections::HashMap<(usize, usize), usize> =
+            std::collections::HashMap::new();
+        let mut usable = Vec::new();
+        let mut merged = false;
         for &a in &view.arcs {
-            out[net.arcs[a].from].push(a);
-            inc[net.arcs[a].to].push(a);
+            let arc = &net.arcs[a];
+            match first.get(&(arc.from, arc.to)) {
+                Some(&r) => {
+                    rep[a] = r;
+                    members[r].push(a);
+                    class_cap[r] += arc.capacity;
+                    merged = true;
+                }
+                None => {
+                    first.insert((arc.from, arc.to), a);
+                    members[a].push(a);
+                    out[arc.from].push(a);
+                    inc[arc.to].push(a);
+                    usable.push(a);
+                }
+            }
         }
         let procs = (0..n).filter(|&v| view.can_process[v]).collect();
         Graph {
@@ -191,8 +234,102 @@ impl<'a> Graph<'a> {
             can_process: view.can_process.clone(),
             out,
             inc,
-            usable: view.arcs.clone(),
+            usable,
             procs,
+            rep,
+            members,
+            class_cap,
+            merged,
+        }
+    }
+
+    /// Walk `w` (of any arcs) in class arcs, when it survives this outage.
+    fn lift(&self, w: &Walk) -> Option<Walk> {
+        if !w.survives(self) {
+            return None;
+        }
+        if !self.merged {
+            return Some(w.clone());
+        }
+        Some(Walk::from_legs(
+            w.demand,
+            w.site,
+            w.arcs
+                .iter()
+                .flat_map(|&(a, k)| std::iter::repeat_n(self.rep[a], usize::from(k))),
+        ))
+    }
+
+    /// `s` (in class arcs) spread over the real links: each walk's flow on a class fills
+    /// the members in arc order (a walk splits where a member fills up), so each member's
+    /// load stays within its capacity when the class's load is within the class's (a last
+    /// remainder of rounding goes to the class's last member). Prices: each member gets
+    /// its class's. O(walks · class crossings · members).
+    fn split(&self, s: Solved) -> Solved {
+        if !self.merged {
+            return s;
+        }
+        let mut rem: Vec<f64> = self.net.arcs.iter().map(|a| a.capacity).collect();
+        let mut walks = Vec::with_capacity(s.walks.len());
+        let mut flow = Vec::with_capacity(s.flow.len());
+        for (w, &f) in s.walks.iter().zip(&s.flow) {
+            let arcs: Vec<usize> = w
+                .arcs
+                .iter()
+                .flat_map(|&(a, k)| std::iter::repeat_n(a, usize::from(k)))
+                .collect();
+            let mut pieces: Vec<(f64, Vec<usize>)> = vec![(f, arcs.clone())];
+            if f > 0.0 {
+                for (i, &a) in arcs.iter().enumerate() {
+                    let ms = &self.members[a];
+                    if ms.len() < 2 {
+                        continue;
+                    }
+                    let mut next = Vec::new();
+                    for (amount, path) in pieces {
+                        let mut left = amount;
+                        for &m in ms {
+                            if left <= 0.0 {
+                                break;
+                            }
+                            let take = left.min(rem[m]);
+                            if take <= 0.0 {
+                                continue;
+                            }
+                            rem[m] -= take;
+                            left -= take;
+                            let mut p = path.clone();
+                            p[i] = m;
+                            next.push((take, p));
+                        }
+                        if left > 0.0 {
+                            let m = *ms.last().expect("a class has a member");
+                            rem[m] -= left;
+                            let mut p = path.clone();
+                            p[i] = m;
+                            next.push((left, p));
+                        }
+                    }
+                    pieces = next;
+                }
+            }
+            for (amount, path) in pieces {
+                walks.push(Walk::from_legs(w.demand, w.site, path));
+                flow.push(amount);
+            }
+        }
+        let mut arc_price = s.arc_price;
+        for &r in &self.usable {
+            for &m in &self.members[r][1..] {
+                arc_price[m] = arc_price[r];
+            }
+        }
+        Solved {
+            walks,
+            flow,
+            value: s.value,
+            arc_price,
+            site_price: s.site_price,
         }
     }
 
@@ -200,7 +337,22 @@ impl<'a> Graph<'a> {
     /// [`super::flow::build`]): each arc at most `2·Σ caps` (a walk crosses an arc at most
     /// twice), each site at most `Σ caps`. Using them leaves the optimum unchanged and keeps
     /// a capacity written as 1e12 from setting the scale of the master. O(arcs + sites).
+    /// Class arcs carry their class's capacity.
     fn effective(&self, caps: &[f64]) -> (Vec<f64>, Vec<f64>) {
+        let total: f64 = caps.iter().sum();
+        (
+            self.class_cap.iter().map(|c| c.min(2.0 * total)).collect(),
+            self.net
+                .sites
+                .iter()
+                .map(|s| s.processing.min(total))
+                .collect(),
+        )
+    }
+
+    /// [`Graph::effective`] per real arc (no classes): what the certificate and the
+    /// verifier use.
+    fn effective_real(&self, caps: &[f64]) -> (Vec<f64>, Vec<f64>) {
         let total: f64 = caps.iter().sum();
         (
             self.net
@@ -578,9 +730,316 @@ fn servable_total(caps: &[f64], cost: &[f64]) -> f64 {
         .sum()
 }
 
-/// Column generation from the columns `start`. `None` when it stalls or exceeds
-/// [`MAX_ROUNDS`]. Each round: one master solve and one pricing pass.
+/// Column generation: the warm simplex master ([`WarmMaster`]) when its rows fit
+/// [`WARM_ROWS`], else (or when the simplex gives up) the interior-point master
+/// ([`generate_cold`]) over the same walks. `start` walks carry the feasible flows `flow`
+/// (a point the first master starts from; empty flows mean 0). `active`: the demands
+/// whose walks are free from the start (`None`: all); the others keep their start flows
+/// fixed until the pricing shows that freeing them may pay. `None` when column
+/// generation does not converge.
 fn generate(
+    g: &Graph,
+    caps: &[f64],
+    start: Vec<Walk>,
+    flow: Vec<f64>,
+    active: Option<Vec<bool>>,
+    stats: &mut Stats,
+) -> Result<Option<Solved>> {
+    let active = active.unwrap_or_else(|| caps.iter().map(|&b| b > 0.0).collect());
+    // Start walks in class arcs (a parent's walks come in real arcs).
+    let (start, flow): (Vec<Walk>, Vec<f64>) = start
+        .iter()
+        .enumerate()
+        .filter_map(|(k, w)| g.lift(w).map(|w| (w, flow.get(k).copied().unwrap_or(0.0))))
+        .unzip();
+    let rows = g.usable.len() + g.procs.len() + active.iter().filter(|&&a| a).count();
+    if rows > WARM_ROWS {
+        return generate_cold(g, caps, start, stats);
+    }
+    let mut merged: HashMap<Walk, usize> = HashMap::new();
+    let mut walks: Vec<Walk> = Vec::new();
+    let mut values: Vec<f64> = Vec::new();
+    for (k, w) in start.into_iter().enumerate() {
+        let f = flow.get(k).copied().unwrap_or(0.0).max(0.0);
+        if caps[w.demand] <= 0.0 {
+            continue;
+        }
+        match merged.get(&w) {
+            Some(&i) => values[i] += f,
+            None => {
+                merged.insert(w.clone(), walks.len());
+                walks.push(w);
+                values.push(f);
+            }
+        }
+    }
+    let mut m = WarmMaster::new(g, caps, active);
+    // Fixed walks first, so that rows are created net of their loads.
+    type Start = Vec<(Walk, f64)>;
+    let (free, fixed): (Start, Start) = walks
+        .into_iter()
+        .zip(values)
+        .partition(|(w, _)| m.active[w.demand]);
+    for (w, f) in fixed.into_iter().chain(free) {
+        m.add(w, f);
+    }
+    match m.run(stats)? {
+        Warm::Done(s) => Ok(Some(s)),
+        Warm::Stalled => Ok(None),
+        Warm::Abandon(walks) => generate_cold(g, caps, walks, stats),
+    }
+}
+
+/// How a warm column generation ended.
+enum Warm {
+    Done(Solved),
+    Stalled,
+    /// The simplex gave up or the master outgrew [`WARM_ROWS`]: its walks so far.
+    Abandon(Vec<Walk>),
+}
+
+/// The restricted master kept by the warm simplex across rounds. Only *active* demands
+/// have columns (and a cap row); the walks of an inactive demand stay at their start flow
+/// outside the LP, and the arc and site rows (created as columns need them) hold what
+/// those fixed walks leave: `cap − fixed load`. A demand is activated when its share of
+/// the duality gap, `Σ_w f_w · price(w) + b_d·max(0, 1 − c_d) − Σ_w f_w`, is positive: its
+/// walks become columns at their flow and the rows get their load back, which leaves the
+/// basis and every basic value unchanged. The bound of [`price`] is the master's own dual
+/// value plus these shares, so when no demand has a share and no column prices out, the
+/// gap is closed.
+struct WarmMaster<'a, 'g> {
+    g: &'g Graph<'a>,
+    caps: &'g [f64],
+    arc_cap: Vec<f64>,
+    site_cap: Vec<f64>,
+    lp: Simplex,
+    arc_row: Vec<usize>,
+    site_row: Vec<usize>,
+    dem_row: Vec<usize>,
+    /// The LP's columns, in column order.
+    walks: Vec<Walk>,
+    /// Per inactive demand: its fixed walks and flows.
+    fixed: Vec<Vec<(Walk, f64)>>,
+    fixed_arc: Vec<f64>,
+    fixed_site: Vec<f64>,
+    active: Vec<bool>,
+    seen: HashSet<Walk>,
+}
+
+const NO_ROW: usize = usize::MAX;
+
+impl<'a, 'g> WarmMaster<'a, 'g> {
+    fn new(g: &'g Graph<'a>, caps: &'g [f64], active: Vec<bool>) -> Self {
+        let net = g.net;
+        let (arc_cap, site_cap) = g.effective(caps);
+        WarmMaster {
+            g,
+            caps,
+            arc_cap,
+            site_cap,
+            lp: Simplex::new(),
+            arc_row: vec![NO_ROW; net.arcs.len()],
+            site_row: vec![NO_ROW; net.sites.len()],
+            dem_row: vec![NO_ROW; net.demands.len()],
+            walks: Vec::new(),
+            fixed: vec![Vec::new(); net.demands.len()],
+            fixed_arc: vec![0.0; net.arcs.len()],
+            fixed_site: vec![0.0; net.sites.len()],
+            active,
+            seen: HashSet::new(),
+        }
+    }
+
+    /// Adds walk `w` at flow `f`: a column when its demand is active, else a fixed walk.
+    /// Walks already present are skipped.
+    fn add(&mut self, w: Walk, f: f64) {
+        if !self.seen.insert(w.clone()) {
+            return;
+        }
+        let d = w.demand;
+        if !self.active[d] {
+            for &(a, k) in &w.arcs {
+                self.fixed_arc[a] += f64::from(k) * f;
+            }
+            self.fixed_site[w.site] += f;
+            self.fixed[d].push((w, f));
+            return;
+        }
+        self.column(w, f);
+    }
+
+    /// Adds the column of walk `w` (active demand) at flow `f`, creating the rows it
+    /// needs (arc and site rows hold the capacity the fixed walks leave).
+    fn column(&mut self, w: Walk, f: f64) {
+        let d = w.demand;
+        if self.dem_row[d] == NO_ROW {
+            self.dem_row[d] = self.lp.add_row(self.caps[d], &[]);
+        }
+        let mut entries = Vec::with_capacity(w.arcs.len() + 2);
+        for &(a, k) in &w.arcs {
+            if self.arc_row[a] == NO_ROW {
+                let rhs = (self.arc_cap[a] - self.fixed_arc[a]).max(0.0);
+                self.arc_row[a] = self.lp.add_row(rhs, &[]);
+            }
+            entries.push((self.arc_row[a], f64::from(k)));
+        }
+        if self.site_row[w.site] == NO_ROW {
+            let rhs = (self.site_cap[w.site] - self.fixed_site[w.site]).max(0.0);
+            self.site_row[w.site] = self.lp.add_row(rhs, &[]);
+        }
+        entries.push((self.site_row[w.site], 1.0));
+        entries.push((self.dem_row[d], 1.0));
+        self.lp.add_col(1.0, 0.0, f64::INFINITY, f, entries);
+        self.walks.push(w);
+    }
+
+    /// Makes demand `d` active: its cap row, and its fixed walks as columns at their flow
+    /// (each existing row first gets the walk's load back, so no basic value moves).
+    fn activate(&mut self, d: usize) {
+        self.active[d] = true;
+        self.dem_row[d] = self.lp.add_row(self.caps[d], &[]);
+        for (w, f) in std::mem::take(&mut self.fixed[d]) {
+            for &(a, k) in &w.arcs {
+                let load = f64::from(k) * f;
+                self.fixed_arc[a] -= load;
+                if self.arc_row[a] != NO_ROW {
+                    self.lp.shift_rhs(self.arc_row[a], load);
+                }
+            }
+            self.fixed_site[w.site] -= f;
+            if self.site_row[w.site] != NO_ROW {
+                self.lp.shift_rhs(self.site_row[w.site], f);
+            }
+            self.column(w, f);
+        }
+    }
+
+    fn dual(&self, row: usize) -> f64 {
+        if row == NO_ROW {
+            0.0
+        } else {
+            self.lp.dual(row).max(0.0)
+        }
+    }
+
+    /// All walks (columns, then fixed walks) and their flows.
+    fn into_solution(self) -> (Vec<Walk>, Vec<f64>) {
+        let mut flow: Vec<f64> = (0..self.walks.len())
+            .map(|j| self.lp.value(j).max(0.0))
+            .collect();
+        let mut walks = self.walks;
+        for (w, f) in self.fixed.into_iter().flatten() {
+            walks.push(w);
+            flow.push(f);
+        }
+        (walks, flow)
+    }
+
+    /// Rounds of master solve, pricing and activation until the dual bound meets the
+    /// master's value.
+    fn run(mut self, stats: &mut Stats) -> Result<Warm> {
+        let net = self.g.net;
+        let mut scale: Option<f64> = None;
+        loop {
+            if self.lp.rows() > WARM_ROWS {
+                return Ok(Warm::Abandon(self.into_solution().0));
+            }
+            if self.lp.cols() > 0 {
+                stats.lp_solves += 1;
+                stats.max_columns = stats.max_columns.max(self.walks.len());
+                if self
+                    .lp
+                    .solve(PIVOTS_PER_ROW * self.lp.rows().max(100))
+                    .is_err()
+                {
+                    return Ok(Warm::Abandon(self.into_solution().0));
+                }
+            }
+            let y: Vec<f64> = self.arc_row.iter().map(|&r| self.dual(r)).collect();
+            let z: Vec<f64> = self.site_row.iter().map(|&r| self.dual(r)).collect();
+            let u: Vec<f64> = (0..net.demands.len())
+                .map(|d| {
+                    if self.active[d] {
+                        self.dual(self.dem_row[d])
+                    } else {
+                        f64::INFINITY
+                    }
+                })
+                .collect();
+            let fixed_total: f64 = self.fixed.iter().flatten().map(|(_, f)| f).sum();
+            let value = self.lp.objective() + fixed_total;
+            stats.rounds += 1;
+            let p = price(self.g, self.caps, &y, &z, Some(&u));
+            let s = *scale.get_or_insert_with(|| servable_total(self.caps, &p.cost).max(1.0));
+            if p.bound - value <= GAP_TOL * s {
+                stats.generated += 1;
+                let (walks, flow) = self.into_solution();
+                let value = flow.iter().sum();
+                return Ok(Warm::Done(Solved {
+                    walks,
+                    flow,
+                    value,
+                    arc_price: y,
+                    site_price: z,
+                }));
+            }
+            if stats.rounds >= MAX_ROUNDS {
+                return Ok(Warm::Stalled);
+            }
+            // Inactive demands whose share of the gap is positive.
+            let mut wake = Vec::new();
+            for d in 0..net.demands.len() {
+                if self.active[d] || self.caps[d] <= 0.0 {
+                    continue;
+                }
+                let mut share = 0.0;
+                let mut f_d = 0.0;
+                for (w, f) in &self.fixed[d] {
+                    let c: f64 = w
+                        .arcs
+                        .iter()
+                        .map(|&(a, k)| f64::from(k) * y[a])
+                        .sum::<f64>()
+                        + z[w.site];
+                    share += f * c;
+                    f_d += f;
+                }
+                if p.cost[d].is_finite() {
+                    share += self.caps[d] * (1.0 - p.cost[d]).max(0.0);
+                }
+                share -= f_d;
+                if share > PRICE_TOL * self.caps[d].max(f_d) {
+                    wake.push(d);
+                }
+            }
+            let fresh: Vec<Walk> = p
+                .walks
+                .into_iter()
+                .filter(|w| !self.seen.contains(w))
+                .collect();
+            if fresh.is_empty() && wake.is_empty() {
+                // The rest of the gap is spread thinner than the tolerance: free everyone.
+                wake = (0..net.demands.len())
+                    .filter(|&d| !self.active[d] && self.caps[d] > 0.0)
+                    .collect();
+                if wake.is_empty() {
+                    return Ok(Warm::Stalled);
+                }
+            }
+            for d in wake {
+                self.activate(d);
+            }
+            for w in fresh {
+                self.add(w, 0.0);
+            }
+        }
+    }
+}
+
+/// Column generation from the columns `start` with the interior-point master (solved
+/// cold each round). `None` when it stalls or exceeds [`MAX_ROUNDS`]. Each round: one
+/// master solve and one pricing pass.
+fn generate_cold(
     g: &Graph,
     caps: &[f64],
     start: Vec<Walk>,
@@ -640,7 +1099,7 @@ fn generate(
 fn repair(g: &Graph, walks: &mut Vec<Walk>, flow: &mut Vec<f64>, lost: &[f64], eps: f64) {
     let net = g.net;
     let n = net.sites.len();
-    let mut arc_res: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
+    let mut arc_res: Vec<f64> = g.class_cap.clone();
     let mut site_res: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
     for (w, &f) in walks.iter().zip(flow.iter()) {
         for &(a, m) in &w.arcs {
@@ -732,7 +1191,7 @@ fn solve_caps(
     stats: &mut Stats,
 ) -> Result<Option<Solved>> {
     let Some(p) = parent else {
-        return generate(g, caps, Vec::new(), stats);
+        return generate(g, caps, Vec::new(), Vec::new(), None, stats);
     };
     let net = g.net;
     let zero_y = vec![0.0; net.arcs.len()];
@@ -752,9 +1211,9 @@ fn solve_caps(
         if f <= eps {
             continue;
         }
-        if w.survives(g) {
-            walks.push(w.clone());
+        if let Some(w) = g.lift(w) {
             flow.push(f.min(caps[w.demand]));
+            walks.push(w);
         } else {
             dropped = true;
             if caps[w.demand] > 0.0 {
@@ -790,7 +1249,8 @@ fn solve_caps(
             }));
         }
     }
-    generate(g, caps, walks, stats)
+    let active: Vec<bool> = lost.iter().map(|&l| l > 0.0).collect();
+    generate(g, caps, walks, flow, Some(active), stats)
 }
 
 /// Verifies a walk-formulation answer like any other ([`super::solve_verified`]): the walks
@@ -830,7 +1290,7 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
             arc_has_row[a] = true;
         }
     }
-    let (arc_cap, site_cap) = g.effective(caps);
+    let (arc_cap, site_cap) = g.effective_real(caps);
     let over = |load: f64, cap: f64| {
         if load > cap {
             (load - cap) / load.max(cap).max(f64::MIN_POSITIVE)
@@ -932,8 +1392,11 @@ pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) ->
         // Start from the parent's volume optimum, else from this scenario's required walks.
         let solved = match (parent.and_then(|b| b.volume.as_ref()), &required) {
             (Some(pv), _) => solve_caps(&g, &vcaps, Some(pv), &mut stats)?,
-            (None, Some(r)) => generate(&g, &vcaps, r.walks.clone(), &mut stats)?,
-            (None, None) => generate(&g, &vcaps, Vec::new(), &mut stats)?,
+            (None, Some(r)) => {
+                let flow = r.flow.clone();
+                generate(&g, &vcaps, r.walks.clone(), flow, None, &mut stats)?
+            }
+            (None, None) => generate(&g, &vcaps, Vec::new(), Vec::new(), None, &mut stats)?,
         };
         let (v, solved) = checked(
             net,
@@ -968,6 +1431,7 @@ fn checked(
     stats: &mut Stats,
 ) -> Result<(Verified, Option<Solved>)> {
     if let Some(s) = solved {
+        let s = g.split(s);
         let v = verified(g, view, &s, caps);
         if v.verification.proven {
             return Ok((v, Some(s)));

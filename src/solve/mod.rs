@@ -20,6 +20,7 @@ pub mod certify;
 pub mod colgen;
 pub mod flow;
 pub mod lp;
+pub mod simplex;
 pub mod surviving;
 pub mod verify;
 
