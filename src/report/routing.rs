@@ -8,7 +8,7 @@ use comfy_table::Cell;
 use super::screen;
 use serde::Serialize;
 
-use super::{file_diff, file_num, num, percent, ratio_percent};
+use super::{file_num, num, percent, ratio_percent};
 use crate::model::Network;
 use crate::routing::{self, Mode, Offered, RoutedAudit};
 use crate::solve::Evaluation;
@@ -241,7 +241,7 @@ fn routed_fields(
         max_site_utilisation: util_json(o.max_site_util),
         overloaded: overloaded_names(net, o),
         best_served_required: file_num(best.served_required),
-        recoverable: file_diff(best.served_required, e.served_required).max(0.0),
+        recoverable: file_num(routing::win_back(best, e)),
         traffic_moved_onto: routing::moved_onto(base, o, e.surviving_required)
             .into_iter()
             .map(|(a, d)| {

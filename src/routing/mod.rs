@@ -592,7 +592,20 @@ impl RoutedAudit {
     /// Best re-route served_required minus routed served_required of outage `k` (≥ 0):
     /// what steering or re-optimisation would recover.
     pub fn recoverable(&self, k: usize) -> f64 {
-        (self.best[k].served_required - self.audit.evaluations[k].served_required).max(0.0)
+        win_back(&self.best[k], &self.audit.evaluations[k])
+    }
+}
+
+/// What the best re-route serves beyond the routed evaluation `routed` of the same outage:
+/// `best − routed`, and 0 when that is within [`solve::GAP_TOL`] of the surviving required
+/// demand (both values are proven only to that tolerance, so a smaller difference is
+/// solver noise, not a win-back). O(1).
+pub fn win_back(best: &Evaluation, routed: &Evaluation) -> f64 {
+    let d = best.served_required - routed.served_required;
+    if d <= solve::GAP_TOL * routed.surviving_required.max(f64::MIN_POSITIVE) {
+        0.0
+    } else {
+        d
     }
 }
 

@@ -289,6 +289,10 @@ pub fn simplest_in(lo: f64, hi: f64, prefer: f64) -> f64 {
         return 0.0;
     }
     let mid = 0.5 * lo + 0.5 * hi;
+    if !mid.is_normal() {
+        // Subnormal ends (the midpoint may even underflow to 0): no digits to drop.
+        return if (lo..=hi).contains(&mid) { mid } else { lo };
+    }
     let exp = mid.abs().log10().floor() as i32;
     for digits in 1..=15 {
         let unit = 10f64.powi(exp + 1 - digits);
@@ -807,6 +811,18 @@ pub fn finish(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// IEEE 754 subnormals (common practice, no source): the midpoint of the smallest
+    /// positive doubles underflows to 0, which has no power of ten; the interval's own
+    /// ends are returned instead of a panic.
+    #[test]
+    fn simplest_in_subnormal_intervals() {
+        let tiny = f64::from_bits(1);
+        assert_eq!(simplest_in(tiny, tiny, 1.0), tiny);
+        let x = simplest_in(tiny, 8.0 * tiny, 1.0);
+        assert!((tiny..=8.0 * tiny).contains(&x), "{x:e}");
+        assert_eq!(simplest_in(104.99999997, 105.00000002, 0.0), 105.0);
+    }
 
     fn net(json: &str) -> Network {
         Network::from_json(json).unwrap()
