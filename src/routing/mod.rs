@@ -480,6 +480,7 @@ pub fn evaluate_routes(
             cut_off,
             verification,
             throughput_verification,
+            proof: None,
         },
         offered: offered(net, routes),
         trees_recomputed,
