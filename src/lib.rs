@@ -721,7 +721,14 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
         report::file::check_output("--json", json, &inputs)?;
     }
     let h = &journal::Parts::headers(&args.parts, &|h| {
-        run_fingerprint(&h.network, h.fail.as_deref(), h.depth, &h.kinds, &h.engine, None)
+        run_fingerprint(
+            &h.network,
+            h.fail.as_deref(),
+            h.depth,
+            &h.kinds,
+            &h.engine,
+            None,
+        )
     })?;
     let net = Network::from_bytes(h.network.as_bytes())
         .map_err(|e| Error::Input(format!("merge: the network in the parts: {e}")))?;

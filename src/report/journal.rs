@@ -555,16 +555,21 @@ fn part_header(path: &Path) -> Result<(PartHeader, u64)> {
         .and_then(|l| serde_json::from_str(l.trim_end()).ok())
         .filter(|h: &PartHeader| h.redoubt_part == PART_VERSION && line.ends_with(b"\n"))
         .ok_or_else(|| {
-            bad("line 1 is not a redoubt part header (audit --shard I/N --json FILE, \
+            bad(
+                "line 1 is not a redoubt part header (audit --shard I/N --json FILE, \
                  of this version)"
-                .into())
+                    .into(),
+            )
         })?;
     Ok((h, line.len() as u64))
 }
 
 /// The header with its shard set to 0, for comparing the parts of one run.
 fn run_of(h: &PartHeader) -> PartHeader {
-    PartHeader { shard: 0, ..h.clone() }
+    PartHeader {
+        shard: 0,
+        ..h.clone()
+    }
 }
 
 impl Parts {
@@ -695,9 +700,7 @@ impl Parts {
         let offsets = offsets
             .into_iter()
             .enumerate()
-            .map(|(k, o)| {
-                o.ok_or_else(|| Error::Usage(format!("merge: outage {k} is in no part")))
-            })
+            .map(|(k, o)| o.ok_or_else(|| Error::Usage(format!("merge: outage {k} is in no part"))))
             .collect::<Result<Vec<_>>>()?;
         Ok(Parts {
             header: header.clone(),
@@ -714,9 +717,7 @@ impl Parts {
         let path = &self.paths[p];
         let line = line_at(&self.readers[p], path, at)?;
         match parse_line(line.as_bytes()) {
-            Ok((o, e)) if o == k && line_check(&line.as_bytes()[CHECKED_FROM..]) == check => {
-                Ok(e)
-            }
+            Ok((o, e)) if o == k && line_check(&line.as_bytes()[CHECKED_FROM..]) == check => Ok(e),
             _ => Err(changed(path)),
         }
     }
