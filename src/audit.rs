@@ -517,8 +517,10 @@ impl Batch {
         journal: &Journal,
         opts: RunOptions,
     ) -> Result<Vec<(usize, String)>> {
+        /// Per outage: the verified evaluation, or the line refused and why.
+        type Checked = (Option<Evaluation>, Option<(usize, String)>);
         let outages = &self.outages;
-        let work = || -> Vec<(Option<Evaluation>, Option<(usize, String)>)> {
+        let work = || -> Vec<Checked> {
             found
                 .restored
                 .into_par_iter()

@@ -355,9 +355,9 @@ fn read_lines(
         || header.outages != outages
     {
         return Err(Error::Usage(format!(
-            "--resume: {} (line 1) was written for another network file, other options or \
-             another version of redoubt (fingerprint {}, this run {fingerprint}); rerun \
-             without --resume to start again",
+            "--resume: {} (line 1) was written for another network file or other options, \
+             or by another version of redoubt (fingerprint {}, this run {fingerprint}); \
+             rerun without --resume to start again",
             path.display(),
             header.fingerprint
         )));
