@@ -407,7 +407,7 @@ fn damaged_lines_are_solved_again_or_refused() {
         ),
         (
             "walk demand out of range",
-            Box::new(|l: &str| reseal(&l.replacen("{\"demand\":", "{\"demand\":99999,\"d\":", 1))),
+            Box::new(|l: &str| reseal(&set_index_after(l, "\"walks\":[["))),
         ),
         (
             "empty per-demand vector",
@@ -512,6 +512,20 @@ fn numbers(line: &str) -> Vec<(usize, usize)> {
     out
 }
 
+/// `line` with the index that follows the first `key` set to 99999 (inserted when a
+/// list starts there without one).
+fn set_index_after(line: &str, key: &str) -> String {
+    let i = line.find(key).expect("key present") + key.len();
+    let end = i + line[i..]
+        .find(|c: char| !c.is_ascii_digit())
+        .unwrap_or(line.len() - i);
+    let by = match (end > i, line[end..].starts_with(']')) {
+        (true, _) | (false, true) => "99999",
+        (false, false) => "99999,",
+    };
+    format!("{}{by}{}", &line[..i], &line[end..])
+}
+
 /// One hostile change to a journal or part (`lines`, line 1 the header), chosen by `rng`;
 /// returns the bytes and a description.
 fn mutate(lines: &[String], rng: &mut Rng) -> (Vec<u8>, String) {
@@ -582,29 +596,17 @@ fn mutate(lines: &[String], rng: &mut Rng) -> (Vec<u8>, String) {
         _ => {
             let keys = [
                 "\"outage\":",
-                "{\"demand\":",
-                "\"site\":",
-                "\"arcs\":[",
+                "\"walks\":[[",
                 "\"stranded_demands\":[",
                 "{\"Arc\":",
                 "\"arc_prices\":[[",
+                "\"site_prices\":[[",
+                "\"cut_off\":[[",
             ];
             let key = keys[rng.below(keys.len())];
             let l = edited[data].clone();
             let key = if l.contains(key) { key } else { "\"outage\":" };
-            let i = l.find(key).unwrap() + key.len();
-            let changed = format!("{}99999,{}", &l[..i], &l[i..]);
-            // A number followed by a comma stays valid JSON only where a list goes on;
-            // elsewhere (a lone number) the old value is replaced instead.
-            let changed = if key.ends_with(':') {
-                let end = i + l[i..]
-                    .find(|c: char| !(c.is_ascii_digit()))
-                    .unwrap_or(l.len() - i);
-                format!("{}99999{}", &l[..i], &l[end..])
-            } else {
-                changed
-            };
-            edited[data] = reseal(&changed);
+            edited[data] = reseal(&set_index_after(&l, key));
             format!("line {}: index after {key} set to 99999", data + 1)
         }
     };

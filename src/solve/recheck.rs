@@ -41,12 +41,34 @@ use crate::scenario::Outage;
 /// One walk of a stored allocation: the demand it serves, the site where it is
 /// processed, the arcs it crosses (in walk order, or any order: the walk engine keeps a
 /// walk's arcs sorted; an arc crossed twice is listed twice) and the flow it carries.
+/// Written as the array `[demand, site, flow, [arcs…]]` (a proof holds thousands).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(from = "WalkRow", into = "WalkRow")]
 pub struct CertWalk {
     pub demand: usize,
     pub site: usize,
     pub arcs: Vec<usize>,
     pub flow: f64,
+}
+
+/// [`CertWalk`] as written.
+type WalkRow = (usize, usize, f64, Vec<usize>);
+
+impl From<WalkRow> for CertWalk {
+    fn from((demand, site, flow, arcs): WalkRow) -> CertWalk {
+        CertWalk {
+            demand,
+            site,
+            arcs,
+            flow,
+        }
+    }
+}
+
+impl From<CertWalk> for WalkRow {
+    fn from(w: CertWalk) -> WalkRow {
+        (w.demand, w.site, w.flow, w.arcs)
+    }
 }
 
 /// What verifies one LP result again: its feasible allocation as walks and the positive
