@@ -279,6 +279,10 @@ fn edited_journal_value_is_solved_again() {
         .expect("baseline served_required");
     assert!(served > 0.0, "the demo baseline serves demand");
     let journal = clean.journal();
+    // Untouched, every line verifies: nothing is solved again.
+    let r = clean.resume(&joined(&journal), "untouched journal");
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(!r.stderr.contains("ignored"), "{}", r.stderr);
     let at = line_of(&journal, 0);
     let mut value: serde_json::Value =
         serde_json::from_str(&format!("{{{}", &journal[at][CHECKED_FROM..])).unwrap();
@@ -445,7 +449,8 @@ fn damaged_lines_are_solved_again_or_refused() {
         assert_eq!(r.code, 0, "{what}: {}", r.stderr);
         assert!(
             r.stderr
-                .contains(&format!("out.json.journal line {} ignored", at + 1)),
+                .contains(&format!("out.json.journal line {} ignored", at + 1))
+                && r.stderr.matches("ignored").count() == 1,
             "{what}: {}",
             r.stderr
         );
