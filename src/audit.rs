@@ -364,8 +364,9 @@ impl Batch {
     /// full one, else the full one (so every full evaluation stays reachable).
     /// The baseline is always kept full (every report shows it).
     fn stored(&self, k: usize, mut e: Evaluation, journaled: bool) -> Evaluation {
-        // The proof is read back from the journal line when needed (part files).
-        if journaled || self.keep == Keep::Thin {
+        // The proof is only ever read back from a journal line (part files), or from the
+        // evaluation itself when a part line is made without the journal's.
+        if journaled || self.keep != Keep::ThinJournaled {
             e.proof = None;
         }
         if self.outages[k].is_empty() {
