@@ -583,7 +583,8 @@ impl Parts {
         fingerprint_of: &dyn Fn(&PartHeader) -> String,
     ) -> Result<PartHeader> {
         let mut first: Option<PartHeader> = None;
-        let mut seen_shard: Vec<bool> = Vec::new();
+        // A set, not a vector by shard count: a header may claim any count.
+        let mut seen_shard = std::collections::BTreeSet::new();
         for path in paths {
             let bad = |why: String| Error::Usage(format!("merge: {}: {why}", path.display()));
             let (h, _) = part_header(path)?;
@@ -595,34 +596,28 @@ impl Parts {
                 ));
             }
             match &first {
-                None => {
-                    seen_shard = vec![false; h.shards];
-                    first = Some(h.clone());
-                }
+                None => first = Some(h.clone()),
                 Some(f) if run_of(f) != run_of(&h) => {
                     return Err(bad(format!(
-                        "belongs to another run than {} (another network file, other options \
-                         or another shard count)",
+                        "line 1: belongs to another run than {} (another network file, other \
+                         options or another shard count)",
                         paths[0].display()
                     )));
                 }
                 Some(_) => {}
             }
-            if h.shard == 0
-                || h.shard > h.shards
-                || std::mem::replace(&mut seen_shard[h.shard - 1], true)
-            {
+            if h.shard == 0 || h.shard > h.shards || !seen_shard.insert(h.shard) {
                 return Err(bad(format!(
-                    "shard {}/{} given twice or out of range",
+                    "line 1: shard {}/{} given twice or out of range",
                     h.shard, h.shards
                 )));
             }
         }
         let header = first.ok_or_else(|| Error::Usage("merge: name the part files".into()))?;
-        if let Some(missing) = seen_shard.iter().position(|s| !s) {
+        // At most one more step than there are parts.
+        if let Some(missing) = (1..=header.shards).find(|s| !seen_shard.contains(s)) {
             return Err(Error::Usage(format!(
-                "merge: shard {}/{} is missing",
-                missing + 1,
+                "merge: shard {missing}/{} is missing",
                 header.shards
             )));
         }
