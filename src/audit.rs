@@ -19,7 +19,7 @@ use rayon::prelude::*;
 use crate::cli::Engine;
 use crate::error::{EXIT_INTERRUPTED, Error, Result};
 use crate::model::Network;
-use crate::report::journal::Journal;
+use crate::report::journal::{Journal, Resume};
 use crate::scenario::{Element, Outage, Scenario};
 use crate::solve::{self, Evaluation, colgen};
 
@@ -368,7 +368,12 @@ impl Batch {
     /// What the batch keeps of an evaluation: thin when asked and the journal holds the
     /// full one, else the full one (so every full evaluation stays reachable).
     /// The baseline is always kept full (every report shows it).
-    fn stored(&self, k: usize, e: Evaluation, journaled: bool) -> Evaluation {
+    fn stored(&self, k: usize, mut e: Evaluation, journaled: bool) -> Evaluation {
+        // The proof is only ever read back from a journal line (part files), or from the
+        // evaluation itself when a part line is made without the journal's.
+        if journaled || self.keep != Keep::ThinJournaled {
+            e.proof = None;
+        }
         if self.outages[k].is_empty() {
             return e;
         }
@@ -479,9 +484,11 @@ impl Batch {
             .count()
     }
 
-    /// Takes evaluations restored from a journal (`restored[k]` for outage `k`); entries
-    /// already present are kept. Invariant: `restored.len() == self.outages()`. Restored
-    /// evaluations are journaled by definition, so they are kept thin when asked.
+    /// Takes evaluations restored from a journal or part files (`restored[k]` for outage
+    /// `k`, verified by the caller: see [`Self::restore_verified`]); entries already
+    /// present are kept. Invariant: `restored.len() == self.outages()`. Restored
+    /// evaluations are journaled by definition, so they are kept thin when asked, and
+    /// without their proof.
     pub fn restore(&mut self, restored: Vec<Option<Evaluation>>) {
         let thin = self.keep != Keep::Full;
         for ((slot, r), o) in self.done.iter_mut().zip(restored).zip(&self.outages) {
@@ -489,10 +496,76 @@ impl Batch {
                 *slot = if thin && !o.is_empty() {
                     r.map(Evaluation::thin)
                 } else {
-                    r
+                    r.map(|mut e| {
+                        e.proof = None;
+                        e
+                    })
                 };
             }
         }
+    }
+
+    /// Outage `k` of the batch (`k < self.outages()`).
+    pub fn outage(&self, k: usize) -> &Outage {
+        &self.outages[k]
+    }
+
+    /// Takes what `--resume` found in `journal` after verifying each evaluation against
+    /// its outage again ([`solve::recheck::recheck`], in parallel): an evaluation that
+    /// does not verify is dropped from the journal ([`Journal::discard`]) and its outage
+    /// is solved again, like the outages of damaged lines. Returns every ignored line
+    /// (from 1) with the reason, in line order. Cost: one verification per restored
+    /// outage, far cheaper than a solve.
+    pub fn restore_verified(
+        &mut self,
+        net: &Network,
+        found: Resume,
+        journal: &Journal,
+        opts: RunOptions,
+    ) -> Result<Vec<(usize, String)>> {
+        /// Per outage: the verified evaluation, or the line refused and why.
+        type Checked = (Option<Evaluation>, Option<(usize, String)>);
+        let outages = &self.outages;
+        let work = || -> Vec<Checked> {
+            found
+                .restored
+                .into_par_iter()
+                .enumerate()
+                .map(|(k, r)| match r {
+                    None => (None, None),
+                    Some(r) => match solve::recheck::recheck(net, &outages[k], &r.evaluation) {
+                        Ok(()) => (Some(r.evaluation), None),
+                        Err(why) => (
+                            None,
+                            Some((
+                                r.line,
+                                format!("outage {k} does not verify against the network: {why}"),
+                            )),
+                        ),
+                    },
+                })
+                .collect()
+        };
+        let checked = match opts.threads {
+            Some(t) => rayon::ThreadPoolBuilder::new()
+                .num_threads(t.max(1))
+                .build()
+                .map_err(|e| Error::Usage(format!("--threads {t}: {e}")))?
+                .install(work),
+            None => work(),
+        };
+        let mut ignored = found.damaged;
+        let mut restored = Vec::with_capacity(checked.len());
+        for (k, (e, refused)) in checked.into_iter().enumerate() {
+            if let Some(r) = refused {
+                journal.discard(k);
+                ignored.push(r);
+            }
+            restored.push(e);
+        }
+        ignored.sort_by_key(|(line, _)| *line);
+        self.restore(restored);
+        Ok(ignored)
     }
 
     /// The families of the outages still to solve, in a deterministic order: children

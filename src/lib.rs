@@ -366,19 +366,30 @@ fn gates_of(args: &AuditArgs) -> Result<Vec<Gate>> {
 /// The fingerprint of an audit's results: the program version, the network file's bytes
 /// and the options that decide the scenario list.
 fn audit_fingerprint(args: &AuditArgs, network_text: &str) -> String {
-    let options = match &args.fail {
+    run_fingerprint(
+        network_text,
+        args.fail.as_deref(),
+        args.scenarios.depth,
+        &args.scenarios.kinds,
+        &format!("{:?}", args.engine),
+        args.scenarios.down.as_deref(),
+    )
+}
+
+/// [`audit_fingerprint`] from its parts (also what `merge` recomputes from a part header).
+fn run_fingerprint(
+    network_text: &str,
+    fail: Option<&str>,
+    depth: usize,
+    kinds: &str,
+    engine: &str,
+    down: Option<&str>,
+) -> String {
+    let options = match fail {
         Some(f) => format!("fail={f}"),
-        None => format!(
-            "depth={};kinds={}",
-            args.scenarios.depth, args.scenarios.kinds
-        ),
-    } + &format!(";engine={:?}", args.engine)
-        + &args
-            .scenarios
-            .down
-            .as_ref()
-            .map(|d| format!(";down={d}"))
-            .unwrap_or_default();
+        None => format!("depth={depth};kinds={kinds}"),
+    } + &format!(";engine={engine}")
+        + &down.map(|d| format!(";down={d}")).unwrap_or_default();
     journal::fingerprint(&[
         b"redoubt audit",
         env!("CARGO_PKG_VERSION").as_bytes(),
@@ -486,11 +497,17 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
                 ]),
                 None => fingerprint.clone(),
             };
-            let (j, restored, opened) = Journal::open(jp, &fp, batch.outages(), args.resume)?;
+            let (j, found, opened) = Journal::open(jp, &fp, batch.outages(), args.resume)?;
+            for (line, why) in batch.restore_verified(&net, found, &j, opts)? {
+                note(report::text::note_journal_line(err, jp, line, &why));
+            }
             if !args.scenarios.quiet {
+                let opened = match opened {
+                    journal::Opened::Resumed(_) => journal::Opened::Resumed(j.saved()),
+                    other => other,
+                };
                 note(report::text::note_resume(err, jp, opened, batch.outages()));
             }
-            batch.restore(restored);
             Some(j)
         }
         None => None,
@@ -747,14 +764,16 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
     let report_files = report_dir(args.report.as_deref(), &others)?;
     // --report and --why read evaluations in full, as an unsharded audit keeps them.
     let whole = args.report.is_some() || args.why;
-    let mut held: Vec<Option<solve::Evaluation>> = Vec::new();
-    let parts = journal::Parts::open(&args.parts, |k, e| {
-        if held.len() <= k {
-            held.resize(k + 1, None);
-        }
-        held[k] = Some(if k == 0 || whole { e } else { e.thin() });
+    let h = &journal::Parts::headers(&args.parts, &|h| {
+        run_fingerprint(
+            &h.network,
+            h.fail.as_deref(),
+            h.depth,
+            &h.kinds,
+            &h.engine,
+            None,
+        )
     })?;
-    let h = &parts.header;
     let net = Network::from_bytes(h.network.as_bytes())
         .map_err(|e| Error::Input(format!("merge: the network in the parts: {e}")))?;
     let engine = match h.engine.as_str() {
@@ -775,7 +794,13 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
             batch.outages()
         )));
     }
-    held.resize(h.outages, None);
+    // Every line is verified against the parts' network before it is used.
+    let mut held: Vec<Option<solve::Evaluation>> = vec![None; h.outages];
+    let parts = journal::Parts::open(&args.parts, h, |k, e| {
+        solve::recheck::recheck(&net, batch.outage(k), &e)?;
+        held[k] = Some(if k == 0 || whole { e } else { e.thin() });
+        Ok(())
+    })?;
     batch.restore(held);
     let audit = batch.into_audit();
     let full = |k: usize| parts.read(k);

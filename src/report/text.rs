@@ -1215,6 +1215,21 @@ pub fn note_resume(
     }
 }
 
+/// A note on stderr: a line of the journal was ignored on `--resume` (damaged, or its
+/// evaluation does not verify against the network); what it held is solved again.
+pub fn note_journal_line(
+    w: &mut dyn Write,
+    journal: &std::path::Path,
+    line: usize,
+    why: &str,
+) -> io::Result<()> {
+    writeln!(
+        w,
+        "redoubt: note: {} line {line} ignored: {why}; what it held is solved again",
+        journal.display()
+    )
+}
+
 /// A note on stderr: the journal could not be written (the run went on without it).
 pub fn note_journal_failed(w: &mut dyn Write, why: &str) -> io::Result<()> {
     writeln!(

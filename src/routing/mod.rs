@@ -564,6 +564,7 @@ pub fn evaluate_routes(
             cut_off,
             verification,
             throughput_verification,
+            proof: None,
         },
         offered: offered(net, routes),
         trees_recomputed,

@@ -20,6 +20,7 @@ pub mod certify;
 pub mod colgen;
 pub mod flow;
 pub mod lp;
+pub mod recheck;
 pub mod simplex;
 pub mod surviving;
 pub mod verify;
@@ -134,6 +135,11 @@ pub struct Evaluation {
     /// How throughput was verified (`None` when it equals served_required by definition:
     /// no surviving demand offers more than its required part).
     pub throughput_verification: Option<Verification>,
+    /// What a journal or part file keeps so that the result can be verified again without
+    /// solving ([`recheck::recheck`]); `None` in thin evaluations and where nothing reads
+    /// it back. Never shown in a report.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub proof: Option<Box<recheck::Proof>>,
 }
 
 impl Evaluation {
@@ -216,6 +222,7 @@ impl Evaluation {
         if self.shortfall <= 0.0 {
             self.site_price = Vec::new();
         }
+        self.proof = None;
         self.bottlenecks.shrink_to_fit();
         self.cut_off.shrink_to_fit();
         self.stranded_demands.shrink_to_fit();
@@ -394,6 +401,9 @@ pub struct Verified {
     pub arc_has_row: Vec<bool>,
     /// Per site: the model has a processing row for it.
     pub site_has_row: Vec<bool>,
+    /// Per arc and per site: the prices that gave the upper bound (as the certificate
+    /// read them, before rows lowered by the presolve were zeroed above).
+    pub bound_price: (Vec<f64>, Vec<f64>),
 }
 
 /// Whether `proven`: residual within [`RESIDUAL_TOL`] and the bounds within [`GAP_TOL`]
@@ -481,6 +491,7 @@ pub fn solve_verified_with(
             site_price: vec![0.0; net.sites.len()],
             arc_has_row: vec![false; net.arcs.len()],
             site_has_row: vec![false; net.sites.len()],
+            bound_price: (Vec::new(), Vec::new()),
         });
     }
     let scale = at_stake.max(f64::MIN_POSITIVE);
@@ -554,6 +565,7 @@ pub fn solve_verified_with(
                 site_price: Vec::new(),
                 arc_has_row: index.arc_row.iter().map(Option::is_some).collect(),
                 site_has_row: index.site_row.iter().map(Option::is_some).collect(),
+                bound_price: (Vec::new(), Vec::new()),
             });
         }
         let b = best.as_mut().expect("set above");
@@ -590,6 +602,7 @@ pub fn solve_verified_with(
             }
         })
         .collect();
+    out.bound_price = best_prices;
     Ok(out)
 }
 
@@ -762,6 +775,10 @@ pub fn finish(
             .then(a.resource.cmp(&b.resource))
     });
 
+    let proof = Some(Box::new(recheck::Proof {
+        required: recheck::Certificate::of(&solved),
+        volume: volume.as_ref().map(recheck::Certificate::of),
+    }));
     let mut verification = solved.verification.clone();
     let upper_bound = if verification.proven {
         verification.upper.max(served_required)
@@ -805,6 +822,7 @@ pub fn finish(
         max_violation: verification.residual,
         verification,
         throughput_verification,
+        proof,
     }
 }
 

@@ -125,6 +125,11 @@ pub struct Repaired {
     pub site_load: Vec<f64>,
     /// Walks found by the decomposition.
     pub walks: usize,
+    /// The allocation as walks, each delivering to one demand, with its flow after
+    /// scaling (walks that carry nothing left out): the loads and per-demand flows above
+    /// are their sums, up to rounding. What a journal keeps to verify the result again
+    /// ([`super::recheck`]).
+    pub paths: Vec<Walk>,
 }
 
 /// Where a walk delivers its flow.
@@ -293,18 +298,47 @@ pub fn repair(
             delivered[block][dest] += amount;
         }
     }
+    // Per block: each demand's share of what its destination receives, in proportion
+    // to the LP's (capped) flows.
+    let shares: Vec<Vec<(usize, f64)>> = index
+        .blocks
+        .iter()
+        .map(|block| {
+            let mut asked = vec![0.0; n];
+            for &(d, var) in &block.demands {
+                asked[net.demands[d].to] += x[var].clamp(0.0, bound[d]);
+            }
+            block
+                .demands
+                .iter()
+                .filter_map(|&(d, var)| {
+                    let t = net.demands[d].to;
+                    (asked[t] > 0.0).then(|| (d, x[var].clamp(0.0, bound[d]) / asked[t]))
+                })
+                .collect()
+        })
+        .collect();
     let mut demand_flow = vec![0.0; net.demands.len()];
-    for (b, block) in index.blocks.iter().enumerate() {
-        // Σ of the LP's (capped) flows per destination, to share what was delivered.
-        let mut asked = vec![0.0; n];
-        for &(d, var) in &block.demands {
-            asked[net.demands[d].to] += x[var].clamp(0.0, bound[d]);
-        }
-        for &(d, var) in &block.demands {
+    for (b, block) in shares.iter().enumerate() {
+        for &(d, share) in block {
             let t = net.demands[d].to;
-            if asked[t] > 0.0 {
-                let share = x[var].clamp(0.0, bound[d]) / asked[t];
-                demand_flow[d] = (delivered[b][t] * share).min(bound[d]);
+            demand_flow[d] = (delivered[b][t] * share).min(bound[d]);
+        }
+    }
+    let mut paths = Vec::new();
+    for (w, &amount) in walks.iter().zip(&scaled.amounts) {
+        let Sink::Group { block, dest } = w.sink else {
+            continue;
+        };
+        for &(d, share) in &shares[block] {
+            let flow = amount * share;
+            if net.demands[d].to == dest && flow > 0.0 {
+                paths.push(Walk {
+                    sink: Sink::Demand(d),
+                    arcs: w.arcs.clone(),
+                    site: w.site,
+                    amount: flow,
+                });
             }
         }
     }
@@ -314,6 +348,7 @@ pub fn repair(
         arc_load: scaled.arc_load,
         site_load: scaled.site_load,
         walks: walks.len(),
+        paths,
     }
 }
 
@@ -423,11 +458,19 @@ pub fn repair_walks(
             demand_flow[d] += a;
         }
     }
+    let walks = capped.len();
+    let paths = capped
+        .into_iter()
+        .zip(&scaled.amounts)
+        .filter(|(_, a)| **a > 0.0)
+        .map(|(w, &amount)| Walk { amount, ..w })
+        .collect();
     Repaired {
         served: scaled.served,
         demand_flow,
         arc_load: scaled.arc_load,
         site_load: scaled.site_load,
-        walks: capped.len(),
+        walks,
+        paths,
     }
 }
