@@ -196,39 +196,19 @@ pub fn build_on(
         site_cap: vec![0.0; n],
         blocks: Vec::new(),
     };
-    let bound_of = |d: usize| match cap {
-        Cap::Required => net.demands[d].required,
-        Cap::Volume => net.demands[d].volume,
-    };
-
-    // Demands grouped by source, in site order (deterministic model layout).
-    let mut by_source: Vec<Vec<usize>> = vec![Vec::new(); n];
-    for d in 0..net.demands.len() {
-        if view.demand_alive(net, d) && bound_of(d) > 0.0 {
-            by_source[net.demands[d].from].push(d);
-        }
-    }
+    let bound_of = |d: usize| cap.bound(net, d);
     // Presolve sums: per arc and per site, Σ B_s over the blocks that use it.
     let mut arc_reach = vec![0.0; net.arcs.len()];
     let mut site_reach = vec![0.0; n];
 
-    for (s, demands) in by_source.iter().enumerate() {
-        if demands.is_empty() {
-            continue;
-        }
-        let from_s = view.reach_from([s]);
-        let to_dest = view.reach_to(demands.iter().map(|&d| net.demands[d].to));
-        let procs: Vec<usize> = (0..n)
-            .filter(|&v| view.can_process[v] && from_s[v] && to_dest[v])
-            .collect();
-        if procs.is_empty() {
-            continue;
-        }
-        let from_proc = view.reach_from(procs.iter().copied());
-        let to_proc = view.reach_to(procs.iter().copied());
-        let in0: Vec<bool> = (0..n).map(|v| from_s[v] && to_proc[v]).collect();
-        let in1: Vec<bool> = (0..n).map(|v| from_proc[v] && to_dest[v]).collect();
-
+    for_each_block(net, view, cap, |shape| {
+        let BlockShape {
+            source: s,
+            served,
+            procs,
+            in0,
+            in1,
+        } = shape;
         // Conservation rows, collected per node and layer:
         // layer 0: out0 - in0 + p - [v = s]·Σf = 0; layer 1: in1 - out1 + p - Σ_{to v} f = 0.
         let mut row0: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
@@ -242,20 +222,14 @@ pub fn build_on(
             bound: 0.0,
             rows: Vec::new(),
         };
-        for &d in demands {
+        for d in served {
             let dem = &net.demands[d];
-            if !in1[dem.to] {
-                continue;
-            }
             let f = lp.add_var(0.0, bound_of(d), obj);
             index.demand_var[d] = Some(f);
             block.demands.push((d, f));
             block.bound += bound_of(d);
             row0[s].push((f, -1.0));
             row1[dem.to].push((f, -1.0));
-        }
-        if block.demands.is_empty() {
-            continue;
         }
         for &a in &view.arcs {
             let arc = net.arcs[a];
@@ -294,7 +268,7 @@ pub fn build_on(
             lp.magnitude[v] = block.bound;
         }
         index.blocks.push(block);
-    }
+    });
 
     for (a, &reach) in arc_reach.iter().enumerate() {
         if !index.arc_vars[a].is_empty() {
@@ -319,29 +293,43 @@ pub fn build_on(
     index
 }
 
-/// The capacities [`build_on`] gives the capacity and processing rows of `view` under
-/// demand caps `cap`, without building the model: per arc `min(capacity, Σ_s B_s per
-/// layer of block s that may use it)` (0 when no block may), per site `min(processing,
-/// Σ_s B_s over the blocks that may process there)`. By the presolve argument of
-/// [`build`] some optimal allocation fits within them, so the certificate's dual bound
-/// ([`super::certify::dual_bound`]) computed with them is a valid upper bound. Equal to
-/// `FlowIndex::arc_cap` and `site_cap` (tested). O(sources · (sites + arcs)).
-pub fn presolved_caps(net: &Network, view: &Surviving, cap: Cap) -> (Vec<f64>, Vec<f64>) {
+impl Cap {
+    /// The cap of demand `d`'s flow: its required part or its volume. O(1).
+    pub fn bound(self, net: &Network, d: usize) -> f64 {
+        match self {
+            Cap::Required => net.demands[d].required,
+            Cap::Volume => net.demands[d].volume,
+        }
+    }
+}
+
+/// What one source block may use on a surviving view: its demands that can be served
+/// (`served`, in demand order: the destination is reachable from a processing site the
+/// source reaches), the processing sites on some source → site → destination walk
+/// (`procs`), and the nodes of each layer (`in0`: reached from the source and reaching a
+/// processing site; `in1`: reached from a processing site and reaching a destination).
+struct BlockShape {
+    source: usize,
+    served: Vec<usize>,
+    procs: Vec<usize>,
+    in0: Vec<bool>,
+    in1: Vec<bool>,
+}
+
+/// Calls `f` with the [`BlockShape`] of every source (in site order) whose surviving
+/// demands with a positive cap under `cap` include one that can be served; the one scan
+/// that [`build_on`] and [`presolved_caps`] share, so the model and the certificate's
+/// capacities cannot disagree. O(sources · (sites + arcs)): four reachability passes per
+/// source.
+fn for_each_block(net: &Network, view: &Surviving, cap: Cap, mut f: impl FnMut(BlockShape)) {
     let n = net.sites.len();
-    let bound_of = |d: usize| match cap {
-        Cap::Required => net.demands[d].required,
-        Cap::Volume => net.demands[d].volume,
-    };
+    // Demands grouped by source, in site order (deterministic model layout).
     let mut by_source: Vec<Vec<usize>> = vec![Vec::new(); n];
     for d in 0..net.demands.len() {
-        if view.demand_alive(net, d) && bound_of(d) > 0.0 {
+        if view.demand_alive(net, d) && cap.bound(net, d) > 0.0 {
             by_source[net.demands[d].from].push(d);
         }
     }
-    let mut arc_reach = vec![0.0; net.arcs.len()];
-    let mut arc_used = vec![false; net.arcs.len()];
-    let mut site_reach = vec![0.0; n];
-    let mut site_used = vec![false; n];
     for (s, demands) in by_source.iter().enumerate() {
         if demands.is_empty() {
             continue;
@@ -366,23 +354,47 @@ pub fn presolved_caps(net: &Network, view: &Surviving, cap: Cap) -> (Vec<f64>, V
         if served.is_empty() {
             continue;
         }
-        let bound: f64 = served.iter().fold(0.0, |b, &d| b + bound_of(d));
+        f(BlockShape {
+            source: s,
+            served,
+            procs,
+            in0,
+            in1,
+        });
+    }
+}
+
+/// The capacities [`build_on`] gives the capacity and processing rows of `view` under
+/// demand caps `cap`, without building the model: per arc `min(capacity, Σ_s B_s per
+/// layer of block s that may use it)` (0 when no block may), per site `min(processing,
+/// Σ_s B_s over the blocks that may process there)`. By the presolve argument of
+/// [`build`] some optimal allocation fits within them, so the certificate's dual bound
+/// ([`super::certify::dual_bound`]) computed with them is a valid upper bound. Equal to
+/// `FlowIndex::arc_cap` and `site_cap` (tested). O(sources · (sites + arcs)).
+pub fn presolved_caps(net: &Network, view: &Surviving, cap: Cap) -> (Vec<f64>, Vec<f64>) {
+    let n = net.sites.len();
+    let mut arc_reach = vec![0.0; net.arcs.len()];
+    let mut arc_used = vec![false; net.arcs.len()];
+    let mut site_reach = vec![0.0; n];
+    let mut site_used = vec![false; n];
+    for_each_block(net, view, cap, |shape| {
+        let bound: f64 = shape.served.iter().fold(0.0, |b, &d| b + cap.bound(net, d));
         for &a in &view.arcs {
             let arc = net.arcs[a];
-            if in0[arc.from] && in0[arc.to] {
+            if shape.in0[arc.from] && shape.in0[arc.to] {
                 arc_reach[a] += bound;
                 arc_used[a] = true;
             }
-            if in1[arc.from] && in1[arc.to] {
+            if shape.in1[arc.from] && shape.in1[arc.to] {
                 arc_reach[a] += bound;
                 arc_used[a] = true;
             }
         }
-        for &v in &procs {
+        for &v in &shape.procs {
             site_reach[v] += bound;
             site_used[v] = true;
         }
-    }
+    });
     let arc_cap = (0..net.arcs.len())
         .map(|a| {
             if arc_used[a] {

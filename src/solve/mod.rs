@@ -652,6 +652,42 @@ pub fn needs_volume_lp(net: &Network, outage: &Outage) -> bool {
         .any(|d| site_alive[d.from] && site_alive[d.to] && d.volume > d.required)
 }
 
+/// The demands of one outage split by [`Surviving::demand_alive`]: the stranded ones
+/// (an end failed or no path: their required and volume totals and indices, in demand
+/// order) and the totals of the surviving ones. What [`finish`] reports and what a
+/// re-check of a restored result compares against. O(demands).
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct DemandSplit {
+    pub stranded: f64,
+    pub stranded_volume: f64,
+    pub stranded_demands: Vec<usize>,
+    pub surviving_required: f64,
+    pub surviving_volume: f64,
+}
+
+impl DemandSplit {
+    pub(crate) fn of(net: &Network, view: &Surviving) -> DemandSplit {
+        let mut split = DemandSplit {
+            stranded: 0.0,
+            stranded_volume: 0.0,
+            stranded_demands: Vec::new(),
+            surviving_required: 0.0,
+            surviving_volume: 0.0,
+        };
+        for (d, dem) in net.demands.iter().enumerate() {
+            if view.demand_alive(net, d) {
+                split.surviving_required += dem.required;
+                split.surviving_volume += dem.volume;
+            } else {
+                split.stranded += dem.required;
+                split.stranded_volume += dem.volume;
+                split.stranded_demands.push(d);
+            }
+        }
+        split
+    }
+}
+
 /// Turns verified results (served_required LP, and the throughput LP when one was
 /// solved) into the reported [`Evaluation`]: stranded totals, the plainest value inside
 /// each proven interval (or the proven lower bound when unproven), per-demand flows,
@@ -664,21 +700,13 @@ pub fn finish(
     solved: Verified,
     volume: Option<Verified>,
 ) -> Evaluation {
-    let mut stranded = 0.0;
-    let mut stranded_volume = 0.0;
-    let mut stranded_demands = Vec::new();
-    let mut surviving_required = 0.0;
-    let mut surviving_volume = 0.0;
-    for (d, dem) in net.demands.iter().enumerate() {
-        if view.demand_alive(net, d) {
-            surviving_required += dem.required;
-            surviving_volume += dem.volume;
-        } else {
-            stranded += dem.required;
-            stranded_volume += dem.volume;
-            stranded_demands.push(d);
-        }
-    }
+    let DemandSplit {
+        stranded,
+        stranded_volume,
+        stranded_demands,
+        surviving_required,
+        surviving_volume,
+    } = DemandSplit::of(net, view);
 
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
     let cut_off: Vec<(usize, Unservable)> = view

@@ -317,21 +317,13 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
     let view = Surviving::new(net, outage, None);
 
     // What does not depend on the LP: recomputed exactly as `finish` does.
-    let mut stranded = 0.0;
-    let mut stranded_volume = 0.0;
-    let mut stranded_demands = Vec::new();
-    let mut surviving_required = 0.0;
-    let mut surviving_volume = 0.0;
-    for (d, dem) in net.demands.iter().enumerate() {
-        if view.demand_alive(net, d) {
-            surviving_required += dem.required;
-            surviving_volume += dem.volume;
-        } else {
-            stranded += dem.required;
-            stranded_volume += dem.volume;
-            stranded_demands.push(d);
-        }
-    }
+    let super::DemandSplit {
+        stranded,
+        stranded_volume,
+        stranded_demands,
+        surviving_required,
+        surviving_volume,
+    } = super::DemandSplit::of(net, &view);
     if e.stranded != stranded
         || e.stranded_volume != stranded_volume
         || e.stranded_demands != stranded_demands
