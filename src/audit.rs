@@ -137,6 +137,20 @@ impl Progress {
     }
 }
 
+/// Runs `work` on a rayon pool of `threads` threads (`None`: rayon's global pool, one
+/// thread per core). Building a pool can fail only for a resource reason, reported as a
+/// usage error naming `--threads`. O(1) beyond `work`.
+fn in_pool<R: Send>(threads: Option<usize>, work: impl FnOnce() -> R + Send) -> Result<R> {
+    match threads {
+        Some(t) => Ok(rayon::ThreadPoolBuilder::new()
+            .num_threads(t.max(1))
+            .build()
+            .map_err(|e| Error::Usage(format!("--threads {t}: {e}")))?
+            .install(work)),
+        None => Ok(work()),
+    }
+}
+
 /// Runs `f` on `items` in parallel with the requested thread count, results in input
 /// order. Each item first checks for an interrupt: once one is asked for, no new item
 /// starts and the call returns [`Error::Interrupted`] after the items in flight.
@@ -160,14 +174,7 @@ where
             })
             .collect()
     };
-    let out = match opts.threads {
-        Some(t) => rayon::ThreadPoolBuilder::new()
-            .num_threads(t.max(1))
-            .build()
-            .map_err(|e| Error::Usage(format!("--threads {t}: {e}")))?
-            .install(work),
-        None => work(),
-    };
+    let out = in_pool(opts.threads, work)?;
     bar.finish();
     out
 }
@@ -546,14 +553,7 @@ impl Batch {
                 })
                 .collect()
         };
-        let checked = match opts.threads {
-            Some(t) => rayon::ThreadPoolBuilder::new()
-                .num_threads(t.max(1))
-                .build()
-                .map_err(|e| Error::Usage(format!("--threads {t}: {e}")))?
-                .install(work),
-            None => work(),
-        };
+        let checked = in_pool(opts.threads, work)?;
         let mut ignored = found.damaged;
         let mut restored = Vec::with_capacity(checked.len());
         for (k, (e, refused)) in checked.into_iter().enumerate() {
@@ -631,14 +631,7 @@ impl Batch {
                 })
                 .collect()
         };
-        let solved = match opts.threads {
-            Some(t) => rayon::ThreadPoolBuilder::new()
-                .num_threads(t.max(1))
-                .build()
-                .map_err(|e| Error::Usage(format!("--threads {t}: {e}")))?
-                .install(work),
-            None => work(),
-        };
+        let solved = in_pool(opts.threads, work)?;
         bar.finish();
         for (k, e) in solved?.into_iter().flatten() {
             self.done[k] = Some(e);
