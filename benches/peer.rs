@@ -29,9 +29,9 @@ use std::time::Instant;
 
 use common::{Demands, document, peak_mb};
 use redoubt::audit::{Batch, Keep, RunOptions};
-use redoubt::cli::Engine;
 use redoubt::model::Network;
 use redoubt::scenario::{self, Kinds};
+use redoubt::solve::Engine;
 
 const TWO: RunOptions = RunOptions {
     threads: Some(2),

@@ -22,9 +22,9 @@ use std::time::Instant;
 
 use common::{Demands, generate, network, peak_mb};
 use redoubt::audit::{Batch, Keep, RunOptions};
-use redoubt::cli::Engine;
 use redoubt::model::Network;
 use redoubt::scenario::{self, Element, Kinds, Outage, Scenario};
+use redoubt::solve::Engine;
 use redoubt::solve::{self, Evaluation, colgen};
 
 const TWO: RunOptions = RunOptions {

@@ -16,11 +16,11 @@ use std::time::{Duration, Instant};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
-use crate::cli::Engine;
 use crate::error::{EXIT_INTERRUPTED, Error, Result};
 use crate::model::Network;
 use crate::report::journal::{Journal, Resume};
 use crate::scenario::{Element, Outage, Scenario};
+use crate::solve::Engine;
 use crate::solve::{self, Evaluation, colgen};
 
 /// How to run a batch of scenarios.

@@ -1,5 +1,7 @@
-//! Pre-change check (`redoubt compare BEFORE AFTER`): the same scenarios on two versions
-//! of a network, matched by the names of their failed elements.
+//! Pre-change check (`redoubt compare BEFORE AFTER`): the comparison of two audits of the
+//! same scenarios on two versions of a network, matched by the names of their failed
+//! elements. This is the model only (what got worse, better, newly short); the command that
+//! loads, solves and writes both sides is `app::compare`.
 //!
 //! A scenario present on both sides *got worse* when its shortfall or its stranded
 //! demand, each as printed ([`crate::report::displayed`]), rose by more than the
@@ -13,16 +15,13 @@
 //! different units are not comparable, so such a pair is refused (exit 2).
 
 use std::collections::HashMap;
-use std::io::Write;
 
 use crate::audit::Audit;
-use crate::cli::{CompareArgs, Engine};
 use crate::error::{Error, Result};
 use crate::model::Network;
-use crate::report::{self, displayed};
+use crate::report::displayed;
 use crate::scenario::{self, Kinds};
 use crate::solve::Evaluation;
-use crate::{Outcome, stdout_result};
 
 /// The four contract values of one scenario on one side.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -247,68 +246,6 @@ pub fn same_unit(before: &Network, after: &Network) -> Result<()> {
          both the same `unit`",
         before.unit, after.unit
     )))
-}
-
-/// Audits one side (`net`, read from `path`): its scenarios (with `--down`), solved with
-/// the walk engine.
-fn audit_side(
-    args: &CompareArgs,
-    net: Network,
-    path: &std::path::Path,
-    which: &str,
-    err: &mut dyn Write,
-) -> Result<(Network, Audit)> {
-    let sargs = args.side(path.to_path_buf());
-    let in_side = |e: Error| match e {
-        Error::Usage(m) => Error::Usage(format!("{which} ({}): {m}", path.display())),
-        other => other,
-    };
-    let list = crate::scenario_list(&net, &sargs, args.fail.as_deref()).map_err(in_side)?;
-    let opts = crate::run_options(&sargs, err)?;
-    let audit = crate::solve_list(&net, list, Engine::Walks, &sargs, opts, err)?;
-    Ok((net, audit))
-}
-
-/// `redoubt compare`: audits both sides, writes `--json` (atomically) before the text,
-/// and returns [`Outcome::GateFailed`] when the change does not pass
-/// ([`Comparison::passed`]). Two files in different units are refused before any solving.
-pub fn run(args: &CompareArgs, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome> {
-    if !(args.tolerance.is_finite() && args.tolerance >= 0.0) {
-        return Err(Error::Usage(format!(
-            "--tolerance must be a finite number >= 0, got {}",
-            args.tolerance
-        )));
-    }
-    if let Some(json) = &args.json {
-        report::file::check_output("--json", json, &[&args.before, &args.after])?;
-    }
-    let (nb, na) = (crate::load(&args.before)?, crate::load(&args.after)?);
-    same_unit(&nb, &na)?;
-    let (nb, ab) = audit_side(args, nb, &args.before, "BEFORE", err)?;
-    let (na, aa) = audit_side(args, na, &args.after, "AFTER", err)?;
-    let down = match &args.down {
-        Some(list) => list.split(',').map(str::to_string).collect(),
-        None => Vec::new(),
-    };
-    let bb = crate::with_baseline(&nb, &ab)?;
-    let ba = crate::with_baseline(&na, &aa)?;
-    let c = compare(
-        (&nb, &ab),
-        (&na, &aa),
-        args.tolerance,
-        down,
-        args.allow_new_short,
-    );
-    if let Some(path) = &args.json {
-        let doc = report::json::compare_json(&c, &bb, &ba);
-        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
-    }
-    stdout_result(report::text::write_compare(out, &c, &bb, &ba, args.top))?;
-    Ok(if c.passed() {
-        Outcome::Ok
-    } else {
-        Outcome::GateFailed
-    })
 }
 
 #[cfg(test)]

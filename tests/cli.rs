@@ -2603,7 +2603,7 @@ fn streamed_json_equals_the_in_memory_document() {
         &net,
         scenarios,
         redoubt::audit::RunOptions::default(),
-        redoubt::cli::Engine::Walks,
+        redoubt::solve::Engine::Walks,
     )
     .unwrap();
     let doc = redoubt::report::json::audit_json(&net, &audit, &baseline, None);

@@ -18,6 +18,7 @@
 
 pub mod certify;
 pub mod colgen;
+pub mod engine;
 pub mod flow;
 pub mod lp;
 pub mod recheck;
@@ -28,6 +29,7 @@ pub mod verify;
 use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network, SiteIdx};
 use crate::scenario::Outage;
+pub use engine::Engine;
 use flow::Cap;
 use lp::Backend;
 pub use surviving::{Surviving, Unservable};

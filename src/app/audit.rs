@@ -1,0 +1,444 @@
+//! `redoubt audit` (best re-route): output checks before solving, the estimate, the
+//! journal and `--resume`, `--shard` part files, then closings, gates and every output
+//! (`finish_audit`, which `merge` shares). The routed audit is in `audit_routed`.
+
+use std::io::{self, Write};
+use std::path::{Path, PathBuf};
+
+use super::audit_routed::{self, nearest_refused};
+use super::options::AuditOptions;
+use super::scenarios::{estimate, risk_of, run_options, scenario_list};
+use super::{Outcome, note, read_network, stdout_result};
+use crate::audit;
+use crate::baseline::with_full_baseline;
+use crate::error::{Error, Result};
+use crate::expand;
+use crate::gate::{self, Gate};
+use crate::model::Network;
+use crate::rank;
+use crate::report::{
+    self,
+    journal::{self, Journal},
+};
+use crate::risk;
+use crate::routing;
+use crate::scenario::Scenario;
+use crate::solve;
+
+/// The fingerprint of an audit's results: the program version, the network file's bytes
+/// and the options that decide the scenario list.
+fn audit_fingerprint(o: &AuditOptions, network_text: &str) -> String {
+    run_fingerprint(
+        network_text,
+        o.fail.as_deref(),
+        o.scenarios.depth,
+        &o.scenarios.kinds,
+        o.engine.as_str(),
+        o.scenarios.down.as_deref(),
+    )
+}
+
+/// [`audit_fingerprint`] from its parts (also what `merge` recomputes from a part header):
+/// FNV-1a 64 over the command, the version, the network text and the options
+/// (`fail=…` or `depth=…;kinds=…`, then `;engine=` and the engine's name,
+/// [`crate::solve::Engine::as_str`], then `;down=…`).
+/// O(size of the network text).
+pub(super) fn run_fingerprint(
+    network_text: &str,
+    fail: Option<&str>,
+    depth: usize,
+    kinds: &str,
+    engine: &str,
+    down: Option<&str>,
+) -> String {
+    let options = match fail {
+        Some(f) => format!("fail={f}"),
+        None => format!("depth={depth};kinds={kinds}"),
+    } + &format!(";engine={engine}")
+        + &down.map(|d| format!(";down={d}")).unwrap_or_default();
+    journal::fingerprint(&[
+        b"redoubt audit",
+        env!("CARGO_PKG_VERSION").as_bytes(),
+        network_text.as_bytes(),
+        options.as_bytes(),
+    ])
+}
+
+/// `audit`: every output path checked (and the journal opened or refused) before the
+/// network is read, the estimate before anything is enumerated, the batch solved (restored
+/// from the journal with `--resume`, one shard's slice with `--shard`), then the part file
+/// or [`finish_audit`]. The flags were checked when lowered ([`super::options`]).
+pub(super) fn run(
+    args: &AuditOptions,
+    out: &mut dyn Write,
+    err: &mut dyn Write,
+) -> Result<Outcome> {
+    let shard = args.shard;
+    let input = args.scenarios.network.as_path();
+    // A device or a FIFO (--json /dev/null) is written through and keeps no journal.
+    let journal_path = args
+        .json
+        .as_deref()
+        .filter(|j| !report::file::is_written_through(j))
+        .map(journal::path_for);
+    report::file::check_distinct(&audit_outputs(args, journal_path.as_deref()))?;
+    if let Some(json) = &args.json {
+        report::file::check_output("--json", json, &[input])?;
+    }
+    match &journal_path {
+        Some(jp) => journal::check_path(jp, args.resume)?,
+        None if args.resume && args.json.is_some() => {
+            return Err(Error::Usage(
+                "--resume: the --json output is a device or a FIFO, which keeps no journal".into(),
+            ));
+        }
+        None => {}
+    }
+    if let Some(csv) = &args.csv {
+        report::file::check_output("--csv", csv, &[input])?;
+    }
+    if shard.is_some() && args.scenarios.down.is_some() {
+        return Err(Error::Usage(
+            "--shard with --down is not supported: a part file does not carry the \
+             maintenance state"
+                .into(),
+        ));
+    }
+    let report_files = report_files(args, input)?;
+    let (net, text) = read_network(input)?;
+    let list = scenario_list(&net, &args.scenarios, args.fail.as_deref())?;
+    let opts = run_options(&args.scenarios, err);
+    if let Some(mode) = args.scenarios.routing {
+        if args.report.is_some() {
+            return Err(Error::Usage(
+                "--report is not available with --routing nearest|steered yet".into(),
+            ));
+        }
+        if args.close && mode == routing::Mode::Nearest {
+            return Err(nearest_refused("audit --close"));
+        }
+        if shard.is_some() {
+            return Err(Error::Usage(
+                "--shard is for --routing best (the routed models are fast)".into(),
+            ));
+        }
+        let scenarios: Vec<Scenario> = list.iter.collect();
+        return audit_routed::run(args, &net, scenarios, opts, mode, &args.gates, out);
+    }
+    let share = shard.map_or(1, |s| s.1);
+    let probe = estimate(&net, &list, share, args.engine, &args.scenarios, opts, err)?;
+    // --close, --why and --report read every evaluation in full; otherwise only the JSON
+    // does, from the journal.
+    let whole = args.close || args.why || args.fail.is_some() || args.report.is_some();
+    let keep = match (whole, &journal_path, &args.json) {
+        (true, _, _) | (false, None, Some(_)) => audit::Keep::Full,
+        (false, Some(_), _) => audit::Keep::ThinJournaled,
+        (false, None, None) => audit::Keep::Thin,
+    };
+    let mut batch = audit::Batch::new(&net, list.iter, args.engine).keeping(keep);
+    if let Some((i, n)) = shard {
+        batch = batch.shard(i, n);
+    }
+    let fingerprint = audit_fingerprint(args, &text);
+    let journal = match &journal_path {
+        Some(jp) => {
+            let fp = match shard {
+                Some((i, n)) => journal::fingerprint(&[
+                    fingerprint.as_bytes(),
+                    format!("shard={i}/{n}").as_bytes(),
+                ]),
+                None => fingerprint.clone(),
+            };
+            let (j, found, opened) = Journal::open(jp, &fp, batch.outages(), args.resume)?;
+            for (line, why) in batch.restore_verified(&net, found, &j, opts)? {
+                note(report::text::note_journal_line(err, jp, line, &why));
+            }
+            if !args.scenarios.quiet {
+                let opened = match opened {
+                    journal::Opened::Resumed(_) => journal::Opened::Resumed(j.saved()),
+                    other => other,
+                };
+                note(report::text::note_resume(err, jp, opened, batch.outages()));
+            }
+            Some(j)
+        }
+        None => None,
+    };
+    batch.seed(probe, journal.as_ref());
+    let interrupted = |e: Error| match (&e, &journal) {
+        (Error::Interrupted(_), Some(j)) => Error::Interrupted(format!(
+            "{} of {} saved in {}; run the same command with --resume to continue",
+            j.saved(),
+            report::count(j.outages(), "outage"),
+            j.path().display()
+        )),
+        (Error::Interrupted(_), None) => {
+            Error::Interrupted("nothing kept (results are journaled only with --json FILE)".into())
+        }
+        _ => e,
+    };
+    batch
+        .solve_rest(&net, opts, journal.as_ref())
+        .map_err(interrupted)?;
+    if let Some(why) = journal.as_ref().and_then(Journal::failure) {
+        note(report::text::note_journal_failed(err, &why));
+    }
+    if let (Some((i, n)), Some(path), Some(j)) = (shard, &args.json, &journal) {
+        let header = journal::PartHeader {
+            redoubt_part: journal::PART_VERSION,
+            fingerprint,
+            shard: i,
+            shards: n,
+            outages: batch.outages(),
+            network: text.clone(),
+            depth: args.scenarios.depth,
+            kinds: args.scenarios.kinds.clone(),
+            fail: args.fail.clone(),
+            engine: args.engine.as_str().to_string(),
+        };
+        let own = batch.own();
+        let lines = own.iter().map(|&k| match j.line(k)? {
+            Some(line) => Ok(line),
+            None => batch
+                .evaluation(k)
+                .and_then(|e| journal::to_line(k, e))
+                .ok_or_else(|| {
+                    Error::Internal(format!(
+                        "outage {k} has a value a part file cannot carry exactly"
+                    ))
+                }),
+        });
+        let mut failed = None;
+        report::file::write_atomic(path, |w| {
+            journal::write_part(w, &header, lines).map_err(|e| {
+                let m = e.to_string();
+                failed = Some(e);
+                io::Error::other(m)
+            })
+        })
+        .map_err(|e| interrupted(failed.take().unwrap_or(e)))?;
+        journal.map(Journal::remove).transpose()?;
+        stdout_result(report::text::write_shard(out, i, n, own.len(), path))?;
+        return Ok(Outcome::Ok);
+    }
+    let audit = batch.into_audit();
+    let saved = journal
+        .as_ref()
+        .map(|j| (j.saved(), j.outages(), j.path().to_path_buf()));
+    let interrupted = move |e: Error| match (&e, &saved) {
+        (Error::Interrupted(_), Some((n, of, path))) => Error::Interrupted(format!(
+            "{n} of {} saved in {}; run the same command with --resume to continue",
+            report::count(*of, "outage"),
+            path.display()
+        )),
+        _ => e,
+    };
+    let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &audit)?;
+    let reader = journal.as_ref().map(Journal::reader).transpose()?;
+    let full = |k: usize| -> Result<solve::Evaluation> {
+        match reader.as_ref().map(|j| j.read(k)).transpose()?.flatten() {
+            Some(e) => Ok(e),
+            None => Err(Error::Internal(format!("outage {k} is not journaled"))),
+        }
+    };
+    finish_audit(
+        &net,
+        &audit,
+        &full,
+        AuditOutput {
+            json: args.json.as_deref(),
+            csv: args.csv.as_deref(),
+            risk: risk.as_ref(),
+            gates: &args.gates,
+            gate_tolerance: args.gate_tolerance,
+            close: args.close,
+            why: args.why || args.fail.is_some(),
+            report: report_files.as_ref(),
+            top: args.top,
+            opts,
+        },
+        journal,
+        &interrupted,
+        out,
+    )
+}
+
+/// Every file an audit writes, with the flag that asks for it, for
+/// [`report::file::check_distinct`]: `--json`, its journal, `--csv`, the two `--report` files.
+fn audit_outputs(args: &AuditOptions, journal: Option<&Path>) -> Vec<(String, PathBuf)> {
+    let mut outputs = Vec::new();
+    if let Some(json) = &args.json {
+        outputs.push(("--json".to_string(), json.clone()));
+    }
+    if let Some(jp) = journal {
+        outputs.push(("the journal of --json".to_string(), jp.to_path_buf()));
+    }
+    if let Some(csv) = &args.csv {
+        outputs.push(("--csv".to_string(), csv.clone()));
+    }
+    if let Some(dir) = &args.report {
+        for name in [report::html::HTML_FILE, report::html::MARKDOWN_FILE] {
+            outputs.push((format!("--report ({name})"), dir.join(name)));
+        }
+    }
+    outputs
+}
+
+/// What an audit (or a merge) writes.
+pub(super) struct AuditOutput<'a> {
+    pub(super) json: Option<&'a Path>,
+    pub(super) csv: Option<&'a Path>,
+    pub(super) risk: Option<&'a risk::Risk>,
+    pub(super) gates: &'a [Gate],
+    pub(super) gate_tolerance: Option<f64>,
+    pub(super) close: bool,
+    /// Explain the worst scenario (`--why`, or by default with `--fail`).
+    pub(super) why: bool,
+    /// `--report DIR`'s HTML and Markdown files.
+    pub(super) report: Option<&'a (PathBuf, PathBuf)>,
+    pub(super) top: usize,
+    pub(super) opts: audit::RunOptions,
+}
+
+/// Closings, gates, the `--json` file (streamed; thin evaluations read back with `full`),
+/// the journal removed, then the report on `out`.
+#[allow(clippy::too_many_arguments)]
+pub(super) fn finish_audit(
+    net: &Network,
+    audit: &audit::Audit,
+    full: report::json::Full<'_>,
+    o: AuditOutput<'_>,
+    journal: Option<Journal>,
+    interrupted: &dyn Fn(Error) -> Error,
+    out: &mut dyn Write,
+) -> Result<Outcome> {
+    let baseline = with_full_baseline(net, audit, full)?;
+    let cands = expand::Candidates::of(net);
+    let closings = if o.close {
+        Some(
+            audit::par_map(
+                &(0..audit.outages.len()).collect::<Vec<_>>(),
+                o.opts,
+                "closing",
+                |&k| expand::close(net, &audit.outages[k], &audit.evaluations[k], &cands),
+            )
+            .map_err(interrupted)?,
+        )
+    } else {
+        None
+    };
+    let verdicts = gate::check(audit, o.gates, o.gate_tolerance);
+    let why = if o.why {
+        why_of(net, audit, &cands, closings.as_deref())?
+    } else {
+        None
+    };
+    // Files first: a reader that closes stdout early never costs the --json file.
+    if let Some(path) = o.json {
+        let closing_json = closings.as_ref().map(|c| {
+            audit
+                .outage_of
+                .iter()
+                .map(|&k| report::json::closing_json(net, c[k].as_ref(), cands.default_costs))
+                .collect::<Vec<_>>()
+        });
+        let mut doc =
+            report::json::audit_json_with(net, audit, &baseline, closing_json.as_deref(), full);
+        doc.gates = report::json::gates_json(audit, &verdicts);
+        if let Some(r) = o.risk {
+            report::json::attach_risk(&mut doc, net, audit, r);
+        }
+        report::file::write_atomic(path, |w| report::json::write(w, &doc)).map_err(interrupted)?;
+    }
+    if let Some(path) = o.csv {
+        report::file::write_atomic(path, |w| {
+            report::csv::write_audit(w, audit, closings.as_deref(), o.risk)
+        })
+        .map_err(interrupted)?;
+    }
+    if let Some((html, md)) = o.report {
+        let r = report::html::Report {
+            net,
+            audit,
+            baseline: &baseline,
+            closings: closings.as_deref(),
+            risk: o.risk,
+            gates: &verdicts,
+            top: o.top,
+        };
+        report::file::write_atomic(html, |w| report::html::write(w, &r)).map_err(interrupted)?;
+        report::file::write_atomic(md, |w| report::markdown::write(w, &r)).map_err(interrupted)?;
+    }
+    if let Some(j) = journal {
+        j.remove()?;
+    }
+    stdout_result(report::text::write_audit(
+        out,
+        net,
+        audit,
+        &baseline,
+        closings.as_deref().map(|c| report::text::ClosingPart {
+            closings: c,
+            default_costs: cands.default_costs,
+        }),
+        o.risk,
+        &verdicts,
+        o.top,
+        why.as_ref().map(|(i, c)| report::text::WhyPart {
+            scenario: *i,
+            closing: c.as_ref(),
+        }),
+    ))?;
+    Ok(if verdicts.iter().all(|g| g.passed) {
+        Outcome::Ok
+    } else {
+        Outcome::GateFailed
+    })
+}
+
+/// `--report DIR`: the folder made when missing, and its two files checked before solving.
+fn report_files(args: &AuditOptions, input: &Path) -> Result<Option<(PathBuf, PathBuf)>> {
+    let mut others = vec![input];
+    others.extend(args.json.as_deref());
+    others.extend(args.csv.as_deref());
+    report_dir(args.report.as_deref(), &others)
+}
+
+/// The `--report DIR` folder (made when missing) and its two files, checked as outputs
+/// that are none of `others`.
+pub(super) fn report_dir(
+    dir: Option<&Path>,
+    others: &[&Path],
+) -> Result<Option<(PathBuf, PathBuf)>> {
+    let Some(dir) = dir else {
+        return Ok(None);
+    };
+    std::fs::create_dir_all(dir).map_err(|source| Error::Io {
+        path: dir.to_path_buf(),
+        source,
+    })?;
+    let html = dir.join(report::html::HTML_FILE);
+    let md = dir.join(report::html::MARKDOWN_FILE);
+    report::file::check_output("--report", &html, others)?;
+    report::file::check_output("--report", &md, others)?;
+    Ok(Some((html, md)))
+}
+
+/// The scenario `--why` explains (by default with `--fail`): the worst one, with its
+/// closing (taken from `--close`, else computed for it alone).
+fn why_of(
+    net: &Network,
+    audit: &audit::Audit,
+    cands: &expand::Candidates,
+    closings: Option<&[Option<expand::Closing>]>,
+) -> Result<Option<(usize, Option<expand::Closing>)>> {
+    let Some(&i) = rank::worst_first(audit).first() else {
+        return Ok(None);
+    };
+    let k = audit.outage_of[i];
+    let closing = match closings {
+        Some(c) => c[k].clone(),
+        None => expand::close(net, &audit.outages[k], &audit.evaluations[k], cands)?,
+    };
+    Ok(Some((i, closing)))
+}

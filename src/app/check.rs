@@ -1,0 +1,18 @@
+//! `redoubt check`: validate a network file and print its summary.
+
+use std::io::Write;
+use std::path::Path;
+
+use super::{Outcome, load, stdout_result};
+use crate::error::Result;
+use crate::report;
+use crate::solve;
+
+/// Reads and validates `network`, then prints its summary with the demands the intact
+/// network cuts off. O(file + one reachability scan per source).
+pub(super) fn run(network: &Path, out: &mut dyn Write) -> Result<Outcome> {
+    let net = load(network)?;
+    let cut_off = solve::baseline_cut_off(&net);
+    stdout_result(report::text::write_check(out, &net, &cut_off))?;
+    Ok(Outcome::Ok)
+}
