@@ -1,7 +1,15 @@
 //! The `redoubt` binary: parse the command line, call [`redoubt::run`] with a locked
-//! standard output and the (unlocked) standard error, map the outcome to an exit status (0 ok, 1 a gate
-//! failed, 2 bad input or usage, 3 solver failure, 130 interrupted by SIGINT, SIGTERM or
-//! SIGHUP, 141 standard output closed early).
+//! standard output and the (unlocked) standard error, and map the outcome to an exit
+//! status (the README's table):
+//!
+//! | status | meaning |
+//! |---|---|
+//! | 0 | done, no gate failed |
+//! | 1 | a gate failed, or `compare` found a change that does not pass |
+//! | 2 | bad input or usage (a file that cannot be read or written included; also clap's refusals) |
+//! | 3 | an internal fault: the LP backend failed, or a state the program relies on did not hold |
+//! | 130 | interrupted by SIGINT, SIGTERM or SIGHUP (128 + SIGINT) |
+//! | 141 | standard output closed early (128 + SIGPIPE) |
 
 use std::io::{self, BufWriter, Write};
 use std::process::ExitCode;

@@ -89,7 +89,7 @@ pub fn with_purchase(text: &str, net: &Network, add: &[f64]) -> Result<String> {
 /// The edited text reads back as `intended`, and as plain JSON equals `before` with only
 /// the bought sites' `processing` and `expand_max` replaced.
 fn check(before: &str, after: &str, intended: &Network, add: &[f64]) -> Result<()> {
-    let wrong = |why: String| Error::Input(format!("--apply: internal: the edited file {why}"));
+    let wrong = |why: String| Error::Internal(format!("--apply: the edited file {why}"));
     let back = Network::from_json(after).map_err(|e| wrong(format!("does not read back: {e}")))?;
     if &back != intended {
         return Err(wrong(
