@@ -86,7 +86,8 @@ fn bad_input_and_usage_exit_2() {
 /// EPIPE and the run ends quietly with 141, whatever the command.
 #[test]
 fn closed_stdout_exits_141() {
-    for args in [vec!["check", s(&demo())]] {
+    let d = demo();
+    for args in [vec!["check", s(&d)], vec!["audit", s(&d), "--quiet"]] {
         let (reader, writer) = std::io::pipe().expect("a pipe");
         drop(reader);
         let out = Command::new(env!("CARGO_BIN_EXE_redoubt"))
