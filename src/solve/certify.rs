@@ -61,6 +61,61 @@ pub fn dual_bound_rooted(
     site_price: &[f64],
     at_sites: Option<bool>,
 ) -> f64 {
+    let mut total = priced_capacity(view, arc_cap, site_cap, arc_price, site_price);
+    let active: Vec<usize> = (0..net.demands.len())
+        .filter(|&d| view.demand_alive(net, d) && bound[d] > 0.0)
+        .collect();
+    let costs = cheapest_walks(net, view, arc_price, site_price, &active, at_sites);
+    for (&d, c) in active.iter().zip(costs) {
+        total += bound[d] * (1.0 - c).max(0.0);
+    }
+    total
+}
+
+/// `Σ_a cap_a·y_a + Σ_v proc_v·z_v` over the usable arcs and the sites that can process
+/// on `view`, with negative prices read as 0: what the resources are worth at these
+/// prices. O(arcs + sites).
+pub fn priced_capacity(
+    view: &Surviving,
+    arc_cap: &[f64],
+    site_cap: &[f64],
+    arc_price: &[f64],
+    site_price: &[f64],
+) -> f64 {
+    // One running sum in arc order, then site order: the order the bound always used.
+    let mut total = 0.0;
+    for &a in &view.arcs {
+        let y = arc_price[a].max(0.0);
+        if y > 0.0 {
+            total += arc_cap[a] * y;
+        }
+    }
+    for v in (0..view.can_process.len()).filter(|&v| view.can_process[v]) {
+        let z = site_price[v].max(0.0);
+        if z > 0.0 {
+            total += site_cap[v] * z;
+        }
+    }
+    total
+}
+
+/// For each demand of `active` (in that order): the price of its cheapest processing walk
+/// on `view`, `min_v dist(origin, v) + z_v + dist(v, destination)` with arc prices
+/// `arc_price` and site prices `site_price` (negative read as 0), `+∞` when no walk through
+/// a processing site exists. Trees are rooted at the processing sites (`Some(true)`), at
+/// the demands' ends (`Some(false)`), or wherever fewer are needed (`None`); every choice
+/// gives the same costs up to rounding.
+///
+/// Cost: 2 · min(processing sites, distinct ends) Dijkstras (petgraph), O(arcs · log
+/// sites) each, plus O(|active| · processing sites).
+pub fn cheapest_walks(
+    net: &Network,
+    view: &Surviving,
+    arc_price: &[f64],
+    site_price: &[f64],
+    active: &[usize],
+    at_sites: Option<bool>,
+) -> Vec<f64> {
     let n = net.sites.len();
     let mut fwd: DiGraph<(), f64> = DiGraph::with_capacity(n, view.arcs.len());
     let mut rev: DiGraph<(), f64> = DiGraph::with_capacity(n, view.arcs.len());
@@ -68,23 +123,13 @@ pub fn dual_bound_rooted(
         fwd.add_node(());
         rev.add_node(());
     }
-    let mut total = 0.0;
     for &a in &view.arcs {
         let arc = &net.arcs[a];
         let y = arc_price[a].max(0.0);
-        if y > 0.0 {
-            total += arc_cap[a] * y;
-        }
         fwd.add_edge(NodeIndex::new(arc.from), NodeIndex::new(arc.to), y);
         rev.add_edge(NodeIndex::new(arc.to), NodeIndex::new(arc.from), y);
     }
     let procs: Vec<usize> = (0..n).filter(|&v| view.can_process[v]).collect();
-    for &v in &procs {
-        let z = site_price[v].max(0.0);
-        if z > 0.0 {
-            total += site_cap[v] * z;
-        }
-    }
     let distances = |g: &DiGraph<(), f64>, s: usize| -> Vec<f64> {
         let map = dijkstra(g, NodeIndex::new(s), None, |e| *e.weight());
         let mut d = vec![f64::INFINITY; n];
@@ -93,11 +138,8 @@ pub fn dual_bound_rooted(
         }
         d
     };
-    let active: Vec<usize> = (0..net.demands.len())
-        .filter(|&d| view.demand_alive(net, d) && bound[d] > 0.0)
-        .collect();
     let mut ends = vec![(false, false); n];
-    for &d in &active {
+    for &d in active {
         ends[net.demands[d].from].0 = true;
         ends[net.demands[d].to].1 = true;
     }
@@ -110,34 +152,36 @@ pub fn dual_bound_rooted(
         // from v, dist(v → t) on the forward graph from v.
         let into: Vec<Vec<f64>> = procs.iter().map(|&v| distances(&rev, v)).collect();
         let out: Vec<Vec<f64>> = procs.iter().map(|&v| distances(&fwd, v)).collect();
-        for &d in &active {
-            let dem = &net.demands[d];
-            let c = procs
-                .iter()
-                .enumerate()
-                .map(|(i, &v)| into[i][dem.from] + site_price[v].max(0.0) + out[i][dem.to])
-                .fold(f64::INFINITY, f64::min);
-            total += bound[d] * (1.0 - c).max(0.0);
-        }
-        return total;
+        return active
+            .iter()
+            .map(|&d| {
+                let dem = &net.demands[d];
+                procs
+                    .iter()
+                    .enumerate()
+                    .map(|(i, &v)| into[i][dem.from] + site_price[v].max(0.0) + out[i][dem.to])
+                    .fold(f64::INFINITY, f64::min)
+            })
+            .collect();
     }
     let mut from_cache: Vec<Option<Vec<f64>>> = vec![None; n];
     let mut to_cache: Vec<Option<Vec<f64>>> = vec![None; n];
-    for &d in &active {
-        let dem = &net.demands[d];
-        if from_cache[dem.from].is_none() {
-            from_cache[dem.from] = Some(distances(&fwd, dem.from));
-        }
-        if to_cache[dem.to].is_none() {
-            to_cache[dem.to] = Some(distances(&rev, dem.to));
-        }
-        let ds = from_cache[dem.from].as_ref().expect("filled above");
-        let dt = to_cache[dem.to].as_ref().expect("filled above");
-        let c = procs
-            .iter()
-            .map(|&v| ds[v] + site_price[v].max(0.0) + dt[v])
-            .fold(f64::INFINITY, f64::min);
-        total += bound[d] * (1.0 - c).max(0.0);
-    }
-    total
+    active
+        .iter()
+        .map(|&d| {
+            let dem = &net.demands[d];
+            if from_cache[dem.from].is_none() {
+                from_cache[dem.from] = Some(distances(&fwd, dem.from));
+            }
+            if to_cache[dem.to].is_none() {
+                to_cache[dem.to] = Some(distances(&rev, dem.to));
+            }
+            let ds = from_cache[dem.from].as_ref().expect("filled above");
+            let dt = to_cache[dem.to].as_ref().expect("filled above");
+            procs
+                .iter()
+                .map(|&v| ds[v] + site_price[v].max(0.0) + dt[v])
+                .fold(f64::INFINITY, f64::min)
+        })
+        .collect()
 }

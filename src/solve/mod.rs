@@ -18,6 +18,7 @@
 
 pub mod certify;
 pub mod colgen;
+pub mod concurrent;
 pub mod engine;
 pub mod flow;
 pub mod lp;

@@ -1,0 +1,264 @@
+//! Growth headroom: the maximum concurrent flow of the two-layer model.
+//!
+//! The **headroom** λ of an outage is the largest factor such that every surviving demand
+//! with `required > 0` can be served at `λ · required` *at the same time*, routed and
+//! processed once within every capacity (demands with a failed endpoint are left out).
+//! λ ≥ 1: the committed demand fits and may grow by λ − 1; λ < 1: the outage is short.
+//! No surviving required demand: no value (never ∞).
+//!
+//! **Model.** The edge model of [`super::flow`] aggregated by source (exact for the same
+//! reason as there: per source, a single-source flow with fixed sink amounts decomposes
+//! into walks), with each demand's flow tied to one variable: `f_d = λ · required_d`,
+//! maximise λ. The flow variables are capped at `Λ · required_d`, where
+//! `Λ = Σ processing of the sites that can process / Σ required` is an a-priori bound
+//! (every unit is processed once, so `λ · Σ required ≤ Σ processing`); with those caps the
+//! presolve of [`super::flow::build_on`] (rows no larger than the block totals) keeps the
+//! optimum.
+//!
+//! **Verification** (nothing from the backend is trusted):
+//! - *Lower bound.* The solution is decomposed and scaled into a feasible allocation by
+//!   [`super::verify::repair`] against the real capacities; `min_d flow_d / required_d` of
+//!   that allocation is a concurrent factor it achieves.
+//! - *Upper bound.* For any prices `y_a, z_v ≥ 0`, let `c_d` be demand `d`'s cheapest
+//!   priced processing walk ([`super::certify::cheapest_walks`]). Any allocation serving
+//!   `λ · required_d` to each `d` has `λ · Σ_d required_d · c_d ≤ Σ_walks flow · price ≤
+//!   Σ_a cap_a·y_a + Σ_v proc_v·z_v`, so `λ ≤ (Σ cap·y + Σ proc·z) / Σ_d required_d·c_d`
+//!   (LP weak duality for the path formulation of maximum concurrent flow). With the LP's
+//!   own shadow prices the quotient meets the optimum.
+//! - *Proven* when the residual passes and the bounds meet within [`super::GAP_TOL`]
+//!   relative to the bound. The reported value is the plainest number in the interval,
+//!   1 when the interval holds 1 (so λ ≥ 1 exactly when nothing is short).
+//!
+//! A surviving demand that no walk through a processing site can serve at all gives λ = 0,
+//! proven by that demand alone (its cheapest walk costs nothing it could use).
+
+use super::flow::{self, Cap};
+use super::lp::{self, Sense};
+use super::surviving::Surviving;
+use super::{Backend, GAP_TOL, LADDER, RESIDUAL_TOL, certify, simplest_in, verify};
+use crate::error::{Error, Result};
+use crate::model::Network;
+use crate::scenario::Outage;
+
+/// The headroom of one outage, with how it was proven.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Headroom {
+    /// The reported factor: the plainest number in `[lower, upper]` when proven, else
+    /// `lower`; `None` when no surviving demand has `required > 0`.
+    pub value: Option<f64>,
+    /// A concurrent factor a verified feasible allocation achieves.
+    pub lower: f64,
+    /// A certified upper bound on the factor.
+    pub upper: f64,
+    /// `lower` and `upper` meet within [`GAP_TOL`] and the LP residual passed.
+    pub proven: bool,
+}
+
+impl Headroom {
+    /// The headroom of an outage with no surviving required demand.
+    fn absent() -> Headroom {
+        Headroom {
+            value: None,
+            lower: 0.0,
+            upper: 0.0,
+            proven: true,
+        }
+    }
+
+    /// λ = 0, proven: some surviving required demand has no walk through a processing site.
+    fn zero() -> Headroom {
+        Headroom {
+            value: Some(0.0),
+            lower: 0.0,
+            upper: 0.0,
+            proven: true,
+        }
+    }
+}
+
+/// The headroom of `net` under `outage` (see the module documentation).
+///
+/// Cost: one LP of the size of the served-demand model (plus one variable and one row per
+/// demand), solved by the backends of [`LADDER`] in turn until proven, plus one repair and
+/// one certificate per attempt.
+pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
+    headroom_on(net, &Surviving::new(net, outage, None))
+}
+
+/// [`headroom`] on an already computed view of the surviving network.
+pub fn headroom_on(net: &Network, view: &Surviving) -> Result<Headroom> {
+    headroom_with(net, view, &LADDER)
+}
+
+/// [`headroom_on`] with another ladder of backends (tests check with it that a wrong
+/// answer is caught).
+pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -> Result<Headroom> {
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let active: Vec<usize> = (0..net.demands.len())
+        .filter(|&d| view.demand_alive(net, d) && required[d] > 0.0)
+        .collect();
+    if active.is_empty() {
+        return Ok(Headroom::absent());
+    }
+    let unservable = view.unservable(net, &required);
+    if active.iter().any(|&d| unservable[d].is_some()) {
+        return Ok(Headroom::zero());
+    }
+    let total_required: f64 = active.iter().map(|&d| required[d]).sum();
+    let total_processing: f64 = (0..net.sites.len())
+        .filter(|&v| view.can_process[v])
+        .map(|v| net.sites[v].processing)
+        .sum();
+    // Λ: no allocation serves more than every site's processing in all.
+    let ceiling = total_processing / total_required;
+    if !(ceiling.is_finite() && ceiling > 0.0) {
+        return Err(Error::Solver(format!(
+            "headroom: no finite a-priori bound (processing {total_processing}, required {total_required})"
+        )));
+    }
+
+    // The flow model with every demand capped at Λ·required_d.
+    let mut capped = net.clone();
+    for (d, dem) in capped.demands.iter_mut().enumerate() {
+        dem.required = if active.binary_search(&d).is_ok() {
+            ceiling * required[d]
+        } else {
+            0.0
+        };
+    }
+    let mut model = lp::Lp::new(true);
+    let index = flow::build_on(&mut model, &capped, view, Cap::Required, 0.0, None);
+    let lambda = model.add_var(0.0, ceiling, 1.0);
+    model.magnitude[lambda] = 1.0;
+    for &d in &active {
+        let f = index.demand_var[d].ok_or_else(|| {
+            Error::Solver(format!(
+                "headroom: servable demand {d} has no flow variable"
+            ))
+        })?;
+        model.add_row(vec![(f, 1.0), (lambda, -required[d])], Sense::Eq, 0.0);
+    }
+
+    let bound: Vec<f64> = capped.demands.iter().map(|d| d.required).collect();
+    let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
+    let site_capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    let (mut row_floor, mut var_floor) = index.magnitudes(&model, f64::MIN_POSITIVE);
+    // The tying rows hold Λ·required_d at most; λ itself is at most Λ.
+    for r in row_floor.iter_mut().skip(model.rows.len() - active.len()) {
+        *r = r.max(ceiling * total_required);
+    }
+    var_floor[lambda] = ceiling;
+
+    let mut best = Headroom {
+        value: None,
+        lower: 0.0,
+        upper: ceiling,
+        proven: false,
+    };
+    let mut errors = Vec::new();
+    for backend in ladder {
+        let solution = match backend.solve(&model, None) {
+            Ok(s) => s,
+            Err(e) => {
+                errors.push(format!("{}: {e}", backend.name()));
+                continue;
+            }
+        };
+        let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
+        let repaired = verify::repair(
+            net,
+            &index,
+            &solution.x,
+            &arc_capacity,
+            &site_capacity,
+            &bound,
+        );
+        let lower = active
+            .iter()
+            .map(|&d| repaired.demand_flow[d] / required[d])
+            .fold(f64::INFINITY, f64::min)
+            .max(0.0);
+        let price = |row: &Option<usize>| row.map_or(0.0, |r| solution.duals[r].max(0.0));
+        let arc_price: Vec<f64> = index.arc_row.iter().map(price).collect();
+        let site_price: Vec<f64> = index.site_row.iter().map(price).collect();
+        let upper = upper_bound(net, view, &index, &active, &arc_price, &site_price).min(ceiling);
+        best.lower = best.lower.max(lower);
+        best.upper = best.upper.min(upper);
+        let gap = best.upper - best.lower;
+        let tol = GAP_TOL * best.upper.max(f64::MIN_POSITIVE);
+        best.proven = residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol;
+        if best.proven {
+            break;
+        }
+    }
+    if best.lower == 0.0 && best.upper == ceiling && !errors.is_empty() {
+        return Err(Error::Solver(errors.join("; ")));
+    }
+    best.value = Some(if best.proven {
+        simplest_in(best.lower.min(best.upper), best.upper, 1.0)
+    } else {
+        best.lower
+    });
+    Ok(best)
+}
+
+/// The certified bound of the module documentation for prices `arc_price`, `site_price`
+/// over the demands `active`: `(Σ cap·y + Σ proc·z) / Σ_d required_d · c_d`, with the
+/// presolved capacities of `index` (an optimal allocation uses no more). `+∞` when no
+/// demand's cheapest walk has a positive price (the prices prove nothing).
+/// O(certificate): see [`certify::cheapest_walks`].
+fn upper_bound(
+    net: &Network,
+    view: &Surviving,
+    index: &flow::FlowIndex,
+    active: &[usize],
+    arc_price: &[f64],
+    site_price: &[f64],
+) -> f64 {
+    let worth =
+        certify::priced_capacity(view, &index.arc_cap, &index.site_cap, arc_price, site_price);
+    let costs = certify::cheapest_walks(net, view, arc_price, site_price, active, None);
+    let priced: f64 = active
+        .iter()
+        .zip(&costs)
+        .map(|(&d, &c)| net.demands[d].required * c)
+        .sum();
+    if priced > 0.0 && priced.is_finite() {
+        worth / priced
+    } else {
+        f64::INFINITY
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::Network;
+
+    fn net(text: &str) -> Network {
+        Network::from_json(text).expect("valid test network")
+    }
+
+    /// Hand case: one link a→b of capacity 10, processing ample at a, required 4 from a
+    /// to b: the link carries 10, so λ = 10 / 4 = 2.5.
+    #[test]
+    fn one_link_sets_the_factor() {
+        let n = net(r#"{"sites":[{"id":"a","processing":100},{"id":"b"}],
+            "links":[{"id":"ab","from":"a","to":"b","capacity":10,"one_way":true}],
+            "demands":[{"from":"a","to":"b","volume":4,"required":4}]}"#);
+        let h = headroom(&n, &Outage::default()).unwrap();
+        assert!(h.proven, "{h:?}");
+        assert_eq!(h.value, Some(2.5));
+    }
+
+    /// Hand case: the same link, processing 6 at a: 6 / 4 = 1.5 (processing binds).
+    #[test]
+    fn processing_sets_the_factor() {
+        let n = net(r#"{"sites":[{"id":"a","processing":6},{"id":"b"}],
+            "links":[{"id":"ab","from":"a","to":"b","capacity":10,"one_way":true}],
+            "demands":[{"from":"a","to":"b","volume":4,"required":4}]}"#);
+        let h = headroom(&n, &Outage::default()).unwrap();
+        assert!(h.proven, "{h:?}");
+        assert_eq!(h.value, Some(1.5));
+    }
+}
