@@ -12,89 +12,19 @@
 //! - the `strsim` crate's `osa_distance` as a reference for our own edit distance;
 //! - f64 limits (`f64::MAX` ≈ 1.8e308) for the overflow rows.
 
-use std::path::{Path, PathBuf};
-use std::process::Command;
-use std::sync::OnceLock;
-use std::sync::atomic::{AtomicUsize, Ordering};
+mod common;
 
+use std::path::Path;
+
+use common::{Run, TempPath, redoubt, temp_root};
 use rand::rngs::StdRng;
 use rand::{RngExt, SeedableRng};
 use redoubt::error::Error;
 use redoubt::model::{MAX_AMOUNT, MAX_METRIC, Network, strict};
 use serde_json::{Value, json};
 
-// ---------------------------------------------------------------------------------------
-// Harness (as in tests/cli.rs)
-// ---------------------------------------------------------------------------------------
-
-struct Run {
-    code: i32,
-    stdout: String,
-    stderr: String,
-    raw: Vec<u8>,
-}
-
-fn redoubt(args: &[&str]) -> Run {
-    let out = Command::new(env!("CARGO_BIN_EXE_redoubt"))
-        .args(args)
-        .env_remove("RUST_BACKTRACE")
-        .output()
-        .expect("the redoubt binary starts");
-    let mut raw = out.stdout.clone();
-    raw.extend_from_slice(&out.stderr);
-    let run = Run {
-        code: out.status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-        raw,
-    };
-    // Source: contract, "Never a panic."
-    assert!(
-        !run.stderr.contains("panicked"),
-        "redoubt {args:?} panicked:\n{}",
-        run.stderr
-    );
-    run
-}
-
-fn temp_root() -> &'static Path {
-    static ROOT: OnceLock<PathBuf> = OnceLock::new();
-    ROOT.get_or_init(|| {
-        let dir = std::env::temp_dir().join(format!("redoubt-input-{}", std::process::id()));
-        std::fs::create_dir_all(&dir).expect("create temp dir");
-        dir
-    })
-}
-
-/// A unique file in [`temp_root`], removed when dropped.
-struct TempFile(PathBuf);
-
-impl TempFile {
-    fn bytes(stem: &str, bytes: &[u8]) -> TempFile {
-        static NEXT: AtomicUsize = AtomicUsize::new(0);
-        let n = NEXT.fetch_add(1, Ordering::Relaxed);
-        let p = temp_root().join(format!("{stem}-{n}.json"));
-        std::fs::write(&p, bytes).expect("write temp file");
-        TempFile(p)
-    }
-
-    fn text(stem: &str, text: &str) -> TempFile {
-        TempFile::bytes(stem, text.as_bytes())
-    }
-
-    fn path(&self) -> &str {
-        self.0.to_str().expect("utf-8 temp path")
-    }
-}
-
-impl Drop for TempFile {
-    fn drop(&mut self) {
-        let _ = std::fs::remove_file(&self.0);
-    }
-}
-
 fn check(case: &str, text: &str) -> Run {
-    let f = TempFile::text(case, text);
+    let f = TempPath::with_text(case, text);
     redoubt(&["check", f.path()])
 }
 
@@ -205,7 +135,7 @@ fn misspelled_fields_are_refused_with_a_suggestion() {
     );
     assert!(!m.contains("did you mean"), "{m}");
     // Through `audit` too (exit 2 before any solving).
-    let f = TempFile::text("audit-procesing", &net(r#", "procesing": 50"#, "", "", ""));
+    let f = TempPath::with_text("audit-procesing", &net(r#", "procesing": 50"#, "", "", ""));
     let run = redoubt(&["audit", f.path(), "--quiet"]);
     assert_eq!(run.code, 2, "{}", run.stderr);
 }
@@ -246,13 +176,16 @@ fn notes_are_never_printed_and_must_be_strings() {
         "",
     );
     let run = accepted("escape-note", &text);
-    assert!(!run.raw.contains(&0x1b), "an ESC byte reached the output");
+    assert!(
+        !run.stdout.contains('\x1b') && !run.stderr.contains('\x1b'),
+        "an ESC byte reached the output"
+    );
     assert!(!run.stdout.contains("secret-note") && !run.stderr.contains("secret-note"));
-    let f = TempFile::text("escape-note-audit", &text);
+    let f = TempPath::with_text("escape-note-audit", &text);
     let run = redoubt(&["audit", f.path(), "--quiet"]);
     assert_eq!(run.code, 0, "{}", run.stderr);
     assert!(
-        !run.raw.contains(&0x1b),
+        !run.stdout.contains('\x1b') && !run.stderr.contains('\x1b'),
         "an ESC byte reached the audit output"
     );
     refused(
@@ -363,7 +296,7 @@ fn a_leading_byte_order_mark_is_accepted() {
     let plain = accepted("no-bom", &text);
     let mut bytes = vec![0xEF, 0xBB, 0xBF];
     bytes.extend_from_slice(text.as_bytes());
-    let f = TempFile::bytes("bom", &bytes);
+    let f = TempPath::with_bytes("bom", &bytes);
     let run = redoubt(&["check", f.path()]);
     assert_eq!(run.code, 0, "{}", run.stderr);
     assert_eq!(run.stdout, plain.stdout);
@@ -381,7 +314,7 @@ fn invalid_utf8_is_refused_with_its_offset() {
     let mut bytes = br#"{"sites": [{"id": "ke"#.to_vec();
     let at = bytes.len();
     bytes.extend_from_slice(b"\xFFstrel\"}]}");
-    let f = TempFile::bytes("not-utf8", &bytes);
+    let f = TempPath::with_bytes("not-utf8", &bytes);
     let run = redoubt(&["check", f.path()]);
     assert_eq!(run.code, 2, "{}", run.stderr);
     assert!(
@@ -431,12 +364,13 @@ fn control_characters_in_ids_and_labels_are_refused() {
     ];
     for (case, text, needles) in cases {
         refused(case, text, needles);
-        let f = TempFile::text(case, text);
+        let f = TempPath::with_text(case, text);
         let run = redoubt(&["check", f.path()]);
         let bad = run
-            .raw
-            .iter()
-            .any(|&b| b < 0x20 && b != b'\n' && b != b'\t');
+            .stdout
+            .bytes()
+            .chain(run.stderr.bytes())
+            .any(|b| b < 0x20 && b != b'\n' && b != b'\t');
         assert!(
             !bad,
             "{case}: a control byte reached the output: {:?}",
@@ -461,7 +395,7 @@ fn ids_that_fail_lists_cannot_name_are_refused() {
     let comma = r#"{"sites": [{"id": "x"}, {"id": "y"}, {"id": "x,link:y"}],
       "links": [{"id": "y", "from": "x", "to": "y", "capacity": 1}]}"#;
     refused("comma-site", comma, &["sites[2]", "x,link:y", "separator"]);
-    let f = TempFile::text("comma-audit", comma);
+    let f = TempPath::with_text("comma-audit", comma);
     let run = redoubt(&["audit", f.path(), "--quiet", "--fail", "site:x,link:y"]);
     assert_eq!(run.code, 2, "the wrong scenario ran:\n{}", run.stdout);
     for (case, from, to) in [
@@ -480,7 +414,7 @@ fn ids_that_fail_lists_cannot_name_are_refused() {
     );
     // Other punctuation can be named: a colon after the kind is part of the id.
     let text = net("", "", "", "").replace("\"ln-7\"", "\"ln:7 a\"");
-    let f = TempFile::text("colon-id", &text);
+    let f = TempPath::with_text("colon-id", &text);
     let run = redoubt(&["audit", f.path(), "--quiet", "--fail", "link:ln:7 a"]);
     assert_eq!(run.code, 0, "{}", run.stderr);
 }
@@ -489,7 +423,7 @@ fn ids_that_fail_lists_cannot_name_are_refused() {
 /// repeated element is refused with exit 2"); usage errors exit 2 (brief).
 #[test]
 fn fail_lists_are_read_strictly() {
-    let f = TempFile::text("fail-net", &net("", "", "", ""));
+    let f = TempPath::with_text("fail-net", &net("", "", "", ""));
     let bad: [(&str, &str); 8] = [
         ("site:kestrel ", "nothing is trimmed"),
         (" site:kestrel", "nothing is trimmed"),
@@ -562,7 +496,7 @@ fn amounts_and_totals_beyond_the_limits_are_refused() {
     let at = r#"{"sites": [{"id": "a", "processing": 1e300}, {"id": "b"}],
       "links": [{"id": "ab", "from": "a", "to": "b", "capacity": 1e300}],
       "demands": [{"from": "a", "to": "b", "volume": 1e300, "required": 5e299}]}"#;
-    let f = TempFile::text("at-limit", at);
+    let f = TempPath::with_text("at-limit", at);
     let run = redoubt(&["audit", f.path(), "--quiet"]);
     assert_eq!(run.code, 0, "{}", run.stderr);
     assert!(!run.stdout.contains("inf"), "{}", run.stdout);
