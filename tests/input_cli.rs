@@ -437,31 +437,40 @@ fn fail_with_depth_or_kinds_is_refused() {
     }
 }
 
-/// Source: contract ("non-finite number ... is refused ... exit status 2") and hand
-/// computation: every number is finite, but Σ required = 2e308 overflows. Either the file
-/// is refused (exit 2), or the answer is right: link and processing of 1e308 serve 1e308.
-/// Known bug, see the report: exit 0 with served_required 0 and shortfall 0, the text
-/// report saying "solved to optimality" with a certified gap of 1e308.
+/// Source: contract ("non-finite number ... is refused ... exit status 2"), the format
+/// doc's limits (each amount and each total at most 1e300) and hand computation. Amounts
+/// of 1e308, whose Σ required (2e308) overflows f64, are refused with exit 2 naming the
+/// limit. At the limit the answer is right: two demands a→b of 5e299 (Σ required 1e300,
+/// at the limit), a link of 6e299 and processing 1e300 at a serve 6e299 (the link binds),
+/// shortfall 1e300 − 6e299 = 4e299, by hand.
 #[test]
-
 fn overflowing_totals_are_refused_or_right() {
-    let net = r#"{"sites": [{"id": "a", "processing": 1e308}, {"id": "b", "processing": 1e308}],
+    let over = r#"{"sites": [{"id": "a", "processing": 1e308}, {"id": "b", "processing": 1e308}],
       "links": [{"id": "ab", "from": "a", "to": "b", "capacity": 1e308}],
       "demands": [{"from": "a", "to": "b", "volume": 1e308},
                   {"from": "a", "to": "b", "volume": 1e308}]}"#;
-    let f = TempPath::with_text("overflow", net);
-    let out = TempPath::new("overflow-out", "json");
+    let f = TempPath::with_text("overflow", over);
+    let run = redoubt(&["check", f.path()]);
+    assert_eq!(run.code, 2, "1e308 amounts accepted:\n{}", run.stdout);
+    assert!(run.stderr.contains("1e300"), "{}", run.stderr);
+
+    let at_limit = r#"{"sites": [{"id": "a", "processing": 1e300}, {"id": "b"}],
+      "links": [{"id": "ab", "from": "a", "to": "b", "capacity": 6e299}],
+      "demands": [{"from": "a", "to": "b", "volume": 5e299},
+                  {"from": "a", "to": "b", "volume": 5e299}]}"#;
+    let f = TempPath::with_text("at-limit", at_limit);
+    let out = TempPath::new("at-limit-out", "json");
     let run = redoubt(&["audit", f.path(), "--quiet", "--json", out.path()]);
-    if run.code == 2 {
-        return;
-    }
     assert_eq!(run.code, 0, "{}", run.stderr);
     let doc = out.read_json();
-    let served = scenario(&doc, &[])["served_required"]
-        .as_f64()
-        .unwrap_or(0.0);
-    assert!(
-        (served - 1e308).abs() <= 1e-6 * 1e308,
-        "accepted, but served_required = {served} (want 1e308)"
-    );
+    let base = scenario(&doc, &[]);
+    for (field, want) in [("served_required", 6e299), ("shortfall", 4e299)] {
+        let x = base[field]
+            .as_f64()
+            .unwrap_or_else(|| panic!("{field} is {} in the JSON", base[field]));
+        assert!(
+            (x - want).abs() <= 1e-6 * want,
+            "{field} = {x}, want {want:e}"
+        );
+    }
 }
