@@ -13,7 +13,7 @@ use common::json::*;
 use common::*;
 use serde_json::Value;
 
-/// Source: the brief's JSON contract ({"scenarios":[{"failed", "served_required",
+/// Source: the README's JSON contract ({"scenarios":[{"failed", "served_required",
 /// "shortfall", "stranded", "throughput"}]}), the contract's definitions, and the fixture
 /// file (elements and required amounts read here with serde_json).
 #[test]
@@ -52,7 +52,7 @@ fn audit_json_contract_on_demo() {
 
     let doc: Value = serde_json::from_str(demo_depth1_single_thread()).expect("JSON");
     let list = scenarios(&doc);
-    // Source: brief — count = 1 + #links + #sites + #groups at depth 1 with default kinds.
+    // Source: README — count = 1 + #links + #sites + #groups at depth 1 with default kinds.
     assert_eq!(list.len(), 1 + links.len() + sites.len() + groups.len());
 
     let mut expected_names: BTreeSet<Vec<String>> = BTreeSet::new();
@@ -104,7 +104,7 @@ fn audit_json_contract_on_demo() {
     }
 }
 
-/// Source: brief ("`failed` sorted"; count 1 + Σ_{k<=2} C(elements, k) at depth 2). On the
+/// Source: README ("`failed` sorted"; count 1 + Σ_{k<=2} C(elements, k) at depth 2). On the
 /// small ring fixture: 4 links + 4 sites + 1 group = 9 elements, 1 + 9 + 36 = 46 scenarios.
 #[test]
 fn depth_2_failed_lists_are_sorted_and_complete() {
@@ -240,12 +240,11 @@ fn processing_bound_serves_total_processing() {
 }
 
 /// Source: hand computation (common practice, no source): one link a→b and processing at a,
-/// all of size 1e300 (finite, so valid per the contract), serve 1e300; the brief's JSON
-/// contract has `served_required` and `throughput` as numbers. Known bug, see the report:
-/// the former 9-decimal rounding multiplied by 1e9 and overflowed to infinity above ~1.8e299, which
+/// all of size 1e300 (finite, so valid per the contract), serve 1e300; the README's JSON
+/// contract has `served_required` and `throughput` as numbers. Regression guard: a former
+/// 9-decimal rounding multiplied by 1e9 and overflowed to infinity above ~1.8e299, which
 /// serde_json writes as `null`.
 #[test]
-
 fn huge_finite_amounts_stay_numbers_in_json() {
     let net = r#"{"sites": [{"id": "a", "processing": 1e300}, {"id": "b"}],
       "links": [{"id": "ab", "from": "a", "to": "b", "capacity": 1e300}],

@@ -11,7 +11,7 @@ use common::json::*;
 use common::*;
 use serde_json::Value;
 
-/// Source: brief (results do not depend on the thread count). Byte-identical JSON with
+/// Source: the README (results do not depend on the thread count). Byte-identical JSON with
 /// --threads 1 and --threads 2: the demo at depth 2 (862 scenarios; measured about 30 s
 /// single-threaded with the test profile's opt-level 1, about 5 minutes at opt-level 0)
 /// and the small ring at depth 2.
@@ -85,7 +85,7 @@ fn edge_engine_hand_computed_path_network_depth_1() {
 /// Source: the product's edge LP (clarabel), an independent formulation of the same
 /// optimum: on the demo at depth 2 every scenario's served_required, shortfall, stranded,
 /// throughput and upper bound agree; and the walk engine's JSON is byte-identical with
-/// --threads 1 and 2 (brief: results do not depend on the thread count).
+/// --threads 1 and 2 (README: results do not depend on the thread count).
 #[test]
 fn walk_engine_agrees_with_edge_on_demo_depth_2() {
     let run = |engine: &str, threads: &str| {
@@ -132,7 +132,7 @@ fn demo_with_first_link(cap: f64) -> TempPath {
     TempPath::with_text("demo-wide", &fx.to_string())
 }
 
-/// Source: the reproduction (values from the plain demo: group:east-pole-route 20
+/// Source: a reproduced defect (values from the plain demo: group:east-pole-route 20
 /// short, site:fenwick 8, site:millbrook 14) and the LP itself: raising the capacity of a
 /// link can only raise served_required, and the demo's own results never saturate
 /// harrow-millbrook beyond what 100 carries, so writing 1e12 or 1e9 ("unlimited") changes

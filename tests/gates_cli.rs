@@ -10,7 +10,7 @@ mod common;
 use common::json::*;
 use common::*;
 
-/// Source: brief (exit 1 when the gate fails, 0 otherwise); worst shortfall 6 by hand
+/// Source: the README (exit 1 when the gate fails, 0 otherwise); worst shortfall 6 by hand
 /// (PATH_NET's table: link:bc and group:spine).
 #[test]
 fn max_shortfall_gate() {
@@ -49,7 +49,7 @@ fn gate_lines(stdout: &str) -> Vec<&str> {
         .collect()
 }
 
-/// Source: issue 6 (the demo's site:millbrook prints a shortfall of 14; a gate at 14
+/// Source: a reproduced defect (the demo's site:millbrook prints a shortfall of 14; a gate at 14
 /// passes, with a PASS line naming the scenario, value and limit).
 #[test]
 fn gate_compares_at_the_printed_precision() {

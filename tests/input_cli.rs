@@ -326,7 +326,7 @@ fn missing_file_exits_2_and_names_it() {
     assert_eq!(run.code, 2, "{}", run.stderr);
 }
 
-/// Source: the brief's exit-status contract (2 for bad usage).
+/// Source: the README's exit statuses (2 for bad usage).
 #[test]
 fn bad_usage_exits_2() {
     let ring = fixture("small-ring.json");
@@ -361,7 +361,7 @@ fn bad_usage_exits_2() {
     }
 }
 
-/// Source: the brief (2 for bad usage). A depth whose scenario count is beyond any run on a
+/// Source: the README (2 for bad usage). A depth whose scenario count is beyond any run on a
 /// big network is refused at once, before solving (the test would time out otherwise).
 #[test]
 fn huge_depth_on_big_network_exits_2() {
@@ -377,7 +377,7 @@ fn huge_depth_on_big_network_exits_2() {
     );
 }
 
-/// Source: the brief (2 for bad usage, never a panic). Regression guard: this suite found
+/// Source: the README (2 for bad usage, never a panic). Regression guard: this suite found
 /// the scenario count overflowing u128 in `scenario::count` (a panic in a debug build, a
 /// wrapped count in a release build).
 #[test]
@@ -387,7 +387,7 @@ fn depth_100_on_big_network_exits_2() {
     assert_eq!(run.code, 2, "{}", run.stderr);
 }
 
-/// Source: the brief (negative numbers reach our own clear message, not clap's
+/// Source: the README (negative numbers reach our own clear message, not clap's
 /// "unexpected argument").
 #[test]
 fn negative_numbers_get_a_clear_message() {
@@ -423,7 +423,7 @@ fn negative_numbers_get_a_clear_message() {
     }
 }
 
-/// Source: the brief (`--depth`/`--kinds` with `--fail` are refused, exit 2).
+/// Source: the README (`--depth`/`--kinds` with `--fail` are refused, exit 2).
 #[test]
 fn fail_with_depth_or_kinds_is_refused() {
     let f = TempPath::with_text("fail-depth", PATH_NET);

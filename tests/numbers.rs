@@ -156,7 +156,7 @@ fn assert_rel(got: f64, want: f64, scale: f64, tol: f64, what: &str) {
     );
 }
 
-/// The reproduced case: sites a (processing 10), b, c, d; links ab 1e12, bc 1,
+/// A reproduced defect: sites a (processing 10), b, c, d; links ab 1e12, bc 1,
 /// bd 1e12, dc 2 (full duplex); one demand a→c of 5. With processing at the origin the
 /// served amount is min(5, max flow a→c), and the max flow is 1 + 2 = 3 (hand: the cut
 /// {bc, dc}); petgraph's dinics must agree, for the baseline and every link failure.

@@ -16,7 +16,7 @@ use common::*;
 use serde_json::Value;
 
 /// Source: POSIX shell convention (common practice, no source): a tool stopped by a
-/// closed pipe reports 128 + SIGPIPE = 141; the brief (the --json file is still written).
+/// closed pipe reports 128 + SIGPIPE = 141; the README (the --json file is still written).
 /// The reader takes one line of a report far larger than a pipe buffer (64 KiB on Linux)
 /// and closes the pipe.
 #[test]
@@ -64,7 +64,7 @@ fn closed_stdout_exits_141_quietly_and_json_is_written() {
 }
 
 /// Source: POSIX `ulimit -f` (writes past the limit fail with EFBIG once SIGXFSZ is
-/// ignored); the brief (the old file stays intact until a complete new one replaces it).
+/// ignored); the README (the old file stays intact until a complete new one replaces it).
 #[test]
 fn failed_write_keeps_the_old_json_intact() {
     let dir = TempDir::new("ulimit");
@@ -111,7 +111,7 @@ fn failed_write_keeps_the_old_json_intact() {
     assert_eq!(dir.names(), BTreeSet::from(["out.json".to_string()]));
 }
 
-/// Source: the brief (refuse, exit 2, the input untouched), through the same path, a
+/// Source: the README (refuse, exit 2, the input untouched), through the same path, a
 /// different spelling of it and a symbolic link.
 #[test]
 fn json_naming_the_input_is_refused() {
@@ -129,7 +129,7 @@ fn json_naming_the_input_is_refused() {
     }
 }
 
-/// Source: the brief (every output path is checked before any solving). The 50-site
+/// Source: the README (every output path is checked before any solving). The 50-site
 /// fixture at depth 1 takes minutes (DEVELOPERS.md); each refusal comes in seconds.
 #[test]
 fn bad_output_paths_are_refused_before_solving() {
@@ -154,7 +154,7 @@ fn bad_output_paths_are_refused_before_solving() {
     assert!(dir.names().is_empty(), "nothing written: {:?}", dir.names());
 }
 
-/// Source: the brief (capped at the core count with a note; results unchanged). The
+/// Source: the README (capped at the core count with a note; results unchanged). The
 /// core count is read here from `nproc` (coreutils), not from the product.
 #[test]
 fn threads_above_the_core_count_are_capped() {
@@ -192,7 +192,7 @@ fn threads_above_the_core_count_are_capped() {
     assert!(texts[0] == texts[1], "--threads 10000 changed the JSON");
 }
 
-/// Source: the brief (engineering notation past 1e9, percentages never overflow, never
+/// Source: the README (engineering notation past 1e9, percentages never overflow, never
 /// "0.0e0"); IEEE 754 double range (common practice, no source) for the magnitudes.
 #[test]
 fn huge_values_print_readably() {

@@ -1,6 +1,6 @@
 //! `--routing` through the real binary. Outside references: the input contract
 //! `shared/network-format.md` ("Routing as deployed": metric range, exit status 2, the
-//! JSON fields of the issue), and small networks whose values are worked by hand in the
+//! routed JSON fields), and small networks whose values are worked by hand in the
 //! comments.
 
 mod common;

@@ -71,7 +71,7 @@ fn names_in(text: &str) -> BTreeSet<String> {
     found
 }
 
-/// The demo's audit screens named in the brief, each as its stdout.
+/// The demo's audit screens named in the README, each as its stdout.
 fn demo_screens() -> Vec<(String, String)> {
     let demo = demo_path();
     let demo = demo.to_str().expect("utf-8 path");

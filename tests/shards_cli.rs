@@ -47,7 +47,7 @@ fn interrupt_at(args: &[&str], journal: &Path, lines: usize) -> Run {
     }
 }
 
-/// Source: the brief (SIGINT leaves a valid journal; `--resume` skips what is done and
+/// Source: the README (SIGINT leaves a valid journal; `--resume` skips what is done and
 /// writes byte-identical final files to an uninterrupted run; a torn last line is
 /// ignored; a fingerprint mismatch is refused). A real audit (the demo at depth 2,
 /// several hundred outages) is interrupted twice, damaged at its end, and resumed.
@@ -129,7 +129,7 @@ fn interrupted_audit_resumes_to_identical_files() {
     );
 }
 
-/// Source: the brief (estimate the work from the scenario count and a first timed solve;
+/// Source: the README (estimate the work from the scenario count and a first timed solve;
 /// refuse beyond a limit unless --yes).
 #[test]
 fn long_runs_are_estimated_and_refused_without_yes() {
@@ -146,7 +146,7 @@ fn long_runs_are_estimated_and_refused_without_yes() {
     assert_eq!(run.code, 0, "{}", run.stderr);
 }
 
-/// Source: issue 7 row 10 (`--depth 2` on a 400-site file took 1.75 GB before the first
+/// Source: a measured defect (`--depth 2` on a 400-site file took 1.75 GB before the first
 /// solve); the scenario count is the binomial sum 1 + n + C(n, 2) over n = 400 sites + 400
 /// ring links, computed here. The run is counted and estimated before any scenario is
 /// enumerated, and refused without --yes.
@@ -173,7 +173,7 @@ fn depth_2_on_400_sites_is_estimated_before_enumerating() {
     assert!(run.stdout.is_empty());
 }
 
-/// Source: the brief (`merge` of the shard files gives exactly the JSON an unsharded run
+/// Source: the README (`merge` of the shard files gives exactly the JSON an unsharded run
 /// writes); the reference is the unsharded run of the same binary, compared byte for byte,
 /// with shards run at different thread counts and merged in another order.
 #[test]
