@@ -121,6 +121,7 @@ fn check_outside(net: &Network, o: &Outage, e: &Evaluation, what: &str) {
 }
 
 #[test]
+#[ignore = "slow tier: cargo test --release -- --ignored"]
 fn grid50_outages_meet_their_dual_bound() {
     let text = std::fs::read_to_string(concat!(
         env!("CARGO_MANIFEST_DIR"),
@@ -150,6 +151,7 @@ fn grid50_outages_meet_their_dual_bound() {
 /// with petgraph's Dijkstra, computed in this file ([`check_outside`]), for optimality. Children start
 /// from the baseline's walks, so the repair shortcuts are exercised too.
 #[test]
+#[ignore = "slow tier: cargo test --release -- --ignored"]
 fn grid50_walk_engine_equals_edge_lp() {
     use redoubt::solve::colgen::evaluate_walks;
     let text = std::fs::read_to_string(concat!(
