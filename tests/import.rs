@@ -5,34 +5,25 @@
 //! (MIT licence; see fixtures/open/README.md). Its own `graph.stats` block (11 nodes,
 //! 14 links, 110 demands) is the outside reference for the counts.
 
+mod common;
+
 use std::path::PathBuf;
-use std::process::Command;
 
 use serde_json::Value;
 
+/// `redoubt ARGS` through the shared harness: (exit status, stdout, stderr).
 fn redoubt(args: &[&str]) -> (i32, String, String) {
-    let out = Command::new(env!("CARGO_BIN_EXE_redoubt"))
-        .args(args)
-        .output()
-        .expect("run redoubt");
-    (
-        out.status.code().unwrap_or(-1),
-        String::from_utf8_lossy(&out.stdout).into_owned(),
-        String::from_utf8_lossy(&out.stderr).into_owned(),
-    )
+    let run = common::redoubt(args);
+    (run.code, run.stdout, run.stderr)
 }
 
+/// `NAME` in this test process's own temporary folder.
 fn temp(name: &str) -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("redoubt-import-{}", std::process::id()));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir.join(name)
+    common::temp_root().join(name)
 }
 
 fn fixture() -> String {
-    format!(
-        "{}/fixtures/open/abilene-topozoo.json",
-        env!("CARGO_MANIFEST_DIR")
-    )
+    common::s(&common::fixture("open/abilene-topozoo.json")).to_string()
 }
 
 fn read(p: &PathBuf) -> Value {

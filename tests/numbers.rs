@@ -156,7 +156,7 @@ fn assert_rel(got: f64, want: f64, scale: f64, tol: f64, what: &str) {
     );
 }
 
-/// The reproduced case: sites a (processing 10), b, c, d; links ab 1e12, bc 1,
+/// A reproduced defect: sites a (processing 10), b, c, d; links ab 1e12, bc 1,
 /// bd 1e12, dc 2 (full duplex); one demand a→c of 5. With processing at the origin the
 /// served amount is min(5, max flow a→c), and the max flow is 1 + 2 = 3 (hand: the cut
 /// {bc, dc}); petgraph's dinics must agree, for the baseline and every link failure.
@@ -188,14 +188,15 @@ fn unlimited_links_written_as_1e12_do_not_hide_a_shortfall() {
         assert_rel(e.served_required, want, 5.0, 1e-9, &format!("{failed:?}"));
         assert_rel(e.shortfall, 5.0 - want, 5.0, 1e-9, &format!("{failed:?}"));
         assert!(e.verification.proven, "{failed:?}: {:?}", e.verification);
-        assert!(
-            e.certified_gap().abs() < 1e-7,
-            "{failed:?}: {}",
-            e.certified_gap()
-        );
-        assert!(
-            e.upper_bound >= want - 1e-9,
-            "{failed:?}: bound below the optimum"
+        // The upper bound against petgraph's max flow (not against the product's own
+        // served value): weak duality puts it at or above the optimum, and a met
+        // certificate puts it on it.
+        assert_rel(
+            e.upper_bound,
+            want,
+            5.0,
+            1e-7,
+            &format!("{failed:?}: upper bound vs petgraph max flow"),
         );
     }
     let base = evaluate(&net, &Outage::default()).unwrap();
@@ -220,7 +221,8 @@ fn zero_capacity_links_leave_no_certificate_gap() {
     let e = evaluate(&net, &Outage::default()).unwrap();
     assert_rel(e.served_required, 4.0, 6.0, 1e-9, "served");
     assert_rel(e.served_required, t.reference(&[]), 6.0, 1e-9, "vs microlp");
-    assert!(e.certified_gap().abs() < 1e-7, "gap {}", e.certified_gap());
+    // The upper bound against the hand value 4 (the gap once reached 1.0 here).
+    assert_rel(e.upper_bound, 4.0, 6.0, 1e-7, "upper bound vs hand");
     assert!(e.verification.proven);
 }
 

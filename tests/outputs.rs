@@ -12,29 +12,8 @@ mod common;
 use std::collections::BTreeSet;
 use std::process::Command;
 
-use common::{TempPath, demo, redoubt, redoubt_env, s};
+use common::{TempDir, TempPath, demo, redoubt, redoubt_env, s};
 use serde_json::Value;
-
-/// A folder in the test's temporary root, removed on drop.
-struct TempDir(std::path::PathBuf);
-
-impl TempDir {
-    fn new(stem: &str) -> TempDir {
-        let d = TempPath::new(stem, "d").0.clone();
-        std::fs::create_dir_all(&d).expect("create temp folder");
-        TempDir(d)
-    }
-
-    fn join(&self, name: &str) -> std::path::PathBuf {
-        self.0.join(name)
-    }
-}
-
-impl Drop for TempDir {
-    fn drop(&mut self) {
-        let _ = std::fs::remove_dir_all(&self.0);
-    }
-}
 
 /// A path ring a–b–c–a with processing at a, failure probabilities on every element, and
 /// two demands. Invented for these tests.

@@ -1,61 +1,30 @@
 //! `--routing` through the real binary. Outside references: the input contract
 //! `shared/network-format.md` ("Routing as deployed": metric range, exit status 2, the
-//! JSON fields of the issue), and small networks whose values are worked by hand in the
+//! routed JSON fields), and small networks whose values are worked by hand in the
 //! comments.
 
+mod common;
+
 use std::path::{Path, PathBuf};
-use std::process::Command;
 use std::sync::atomic::{AtomicUsize, Ordering};
 
+use common::{demo, redoubt, s};
 use serde_json::{Value, json};
 
 /// Absolute tolerance on reported amounts (the product writes JSON numbers with 12
 /// significant digits).
 const TOL: f64 = 1e-6;
 
-struct Run {
-    code: i32,
-    stdout: String,
-    stderr: String,
-}
-
-fn redoubt(args: &[&str]) -> Run {
-    let out = Command::new(env!("CARGO_BIN_EXE_redoubt"))
-        .args(args)
-        .output()
-        .expect("the redoubt binary starts");
-    let run = Run {
-        code: out.status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    };
-    assert!(
-        !run.stderr.contains("panicked"),
-        "{args:?} panicked: {}",
-        run.stderr
-    );
-    run
-}
-
+/// A unique `N-NAME` path in this test process's own temporary folder.
 fn temp(name: &str) -> PathBuf {
     static N: AtomicUsize = AtomicUsize::new(0);
-    let dir = std::env::temp_dir().join(format!(
-        "redoubt-routing-{}-{}",
-        std::process::id(),
-        N.fetch_add(1, Ordering::Relaxed)
-    ));
-    std::fs::create_dir_all(&dir).unwrap();
-    dir.join(name)
+    common::temp_root().join(format!("{}-{name}", N.fetch_add(1, Ordering::Relaxed)))
 }
 
 fn write_net(v: &Value) -> PathBuf {
     let p = temp("net.json");
     std::fs::write(&p, v.to_string()).unwrap();
     p
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
 }
 
 fn read_json(p: &Path) -> Value {
@@ -252,10 +221,6 @@ fn steered_purchases_and_nearest_refusal() {
         assert_eq!(r.code, 2, "{cmd:?}");
         assert!(r.stderr.contains("nearest"), "{}", r.stderr);
     }
-}
-
-fn demo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/demo-harrowmere.json")
 }
 
 /// The demo shows failures that hurt under the deployed routing while a re-route serves

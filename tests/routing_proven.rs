@@ -425,6 +425,7 @@ fn first_line(text: &str) -> &str {
 /// every value meets the reference to 1e-9 of the scenario's required demand. The text's
 /// summary counts every outage proven.
 #[test]
+#[ignore = "slow tier: cargo test --release -- --ignored"]
 fn fifteen_sites_are_proven_and_right_under_both_routings() {
     let doc = fifteen_sites();
     let net = RefNet::parse(&doc);

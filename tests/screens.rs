@@ -5,32 +5,23 @@
 //! network file itself (read with serde_json, not with redoubt) and by running `--fail`
 //! with each; the HTML report is rendered by headless Chromium, an independent browser.
 
+mod common;
+
 use std::collections::BTreeSet;
 use std::io::Write as _;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+use common::{Run, redoubt_env};
+
 const DEMO: &str = "fixtures/demo-harrowmere.json";
 /// The screen width the tests ask for.
 const COLUMNS: usize = 100;
 
-struct Run {
-    code: Option<i32>,
-    stdout: String,
-    stderr: String,
-}
-
+/// `redoubt ARGS` through the shared harness, on a screen of [`COLUMNS`] columns.
 fn redoubt(args: &[&str]) -> Run {
-    let out = Command::new(env!("CARGO_BIN_EXE_redoubt"))
-        .args(args)
-        .env("COLUMNS", COLUMNS.to_string())
-        .output()
-        .expect("the redoubt binary runs");
-    Run {
-        code: out.status.code(),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    }
+    let columns = COLUMNS.to_string();
+    redoubt_env(args, &[("COLUMNS", columns.as_str())])
 }
 
 fn demo_path() -> PathBuf {
@@ -80,7 +71,7 @@ fn names_in(text: &str) -> BTreeSet<String> {
     found
 }
 
-/// The demo's audit screens named in the brief, each as its stdout.
+/// The demo's audit screens named in the README, each as its stdout.
 fn demo_screens() -> Vec<(String, String)> {
     let demo = demo_path();
     let demo = demo.to_str().expect("utf-8 path");
@@ -104,11 +95,7 @@ fn demo_screens() -> Vec<(String, String)> {
                 all.pop();
             }
             let run = redoubt(&all);
-            assert!(
-                run.code == Some(0) || run.code == Some(1),
-                "{args:?}: {}",
-                run.stderr
-            );
+            assert!(run.code == 0 || run.code == 1, "{args:?}: {}", run.stderr);
             (args[1..].join(" "), run.stdout)
         })
         .collect()
@@ -147,7 +134,7 @@ fn every_demo_screen_fits_100_columns_and_its_names_paste_into_fail() {
             name,
             "--quiet",
         ]);
-        assert_eq!(run.code, Some(0), "--fail {name}: {}", run.stderr);
+        assert_eq!(run.code, 0, "--fail {name}: {}", run.stderr);
         assert!(
             run.stdout.contains(&format!("Why {name}:")),
             "--fail explains the scenario by default:\n{}",
@@ -171,7 +158,7 @@ fn verdict_comes_first_and_agrees_with_the_json() {
         "--json",
         json.to_str().expect("utf-8"),
     ]);
-    assert_eq!(run.code, Some(0), "{}", run.stderr);
+    assert_eq!(run.code, 0, "{}", run.stderr);
     let doc: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(&json).expect("json")).expect("json");
     let scenarios = doc["scenarios"].as_array().expect("scenarios");
@@ -194,7 +181,7 @@ fn verdict_comes_first_and_agrees_with_the_json() {
         "--max-shortfall",
         "5",
     ]);
-    assert_eq!(gated.code, Some(1));
+    assert_eq!(gated.code, 1);
     assert!(
         gated
             .stdout
@@ -209,7 +196,7 @@ fn verdict_comes_first_and_agrees_with_the_json() {
 fn every_command_help_ends_with_examples_in_one_layout() {
     for cmd in ["check", "audit", "plan", "compare"] {
         let run = redoubt(&[cmd, "--help"]);
-        assert_eq!(run.code, Some(0), "{cmd}: {}", run.stderr);
+        assert_eq!(run.code, 0, "{cmd}: {}", run.stderr);
         let tail: Vec<&str> = run
             .stdout
             .lines()
@@ -258,7 +245,7 @@ fn html_report_renders_in_headless_chromium() {
         "--report",
         dir.to_str().expect("utf-8"),
     ]);
-    assert_eq!(run.code, Some(0), "{}", run.stderr);
+    assert_eq!(run.code, 0, "{}", run.stderr);
     let html = std::fs::read_to_string(dir.join("report.html")).expect("report.html");
     let md = std::fs::read_to_string(dir.join("report.md")).expect("report.md");
     for text in [&html, &md] {

@@ -100,7 +100,7 @@ pub struct ScenarioJson {
     pub throughput_verification: Option<VerificationJson>,
     /// Shadow price of each site's processing row: served units per added unit.
     pub site_prices: BTreeMap<String, f64>,
-    /// Issue-3 closing, present when requested (`null` when the scenario has no shortfall).
+    /// The scenario's closing, present when requested (`null` when the scenario has no shortfall).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub closing: Option<serde_json::Value>,
     /// Under `--routing nearest|steered`: utilisation, overloads, the best re-route.

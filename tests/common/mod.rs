@@ -5,11 +5,16 @@
 //!   time limit, so what a person at a terminal meets (the progress bar, the terminal
 //!   width, Ctrl-C) is tested too: piped output alone never draws the bar.
 //! - [`TempPath`] is a unique file in this test process's own temporary folder, removed on
-//!   drop.
+//!   drop; [`TempDir`] a folder there, removed with its contents.
+//! - [`json`] reads `--json` audit documents and holds the hand-computed networks that
+//!   several files share.
 //!
 //! Every run asserts that the binary did not panic, whatever the command.
 #![allow(dead_code)] // each test crate uses part of the harness
 
+pub mod json;
+
+use std::collections::BTreeSet;
 use std::io::{Read, Write};
 use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
@@ -182,8 +187,13 @@ impl TempPath {
 
     /// A new `.json` file holding `text`.
     pub fn with_text(stem: &str, text: &str) -> TempPath {
+        TempPath::with_bytes(stem, text.as_bytes())
+    }
+
+    /// A new `.json` file holding `bytes` (which need not be UTF-8).
+    pub fn with_bytes(stem: &str, bytes: &[u8]) -> TempPath {
         let p = TempPath::new(stem, "json");
-        std::fs::write(&p.0, text).expect("write temp file");
+        std::fs::write(&p.0, bytes).expect("write temp file");
         p
     }
 
@@ -200,5 +210,35 @@ impl TempPath {
 impl Drop for TempPath {
     fn drop(&mut self) {
         let _ = std::fs::remove_file(&self.0);
+    }
+}
+
+/// A fresh folder of its own under [`temp_root`], removed (with its contents) when dropped.
+pub struct TempDir(pub PathBuf);
+
+impl TempDir {
+    pub fn new(stem: &str) -> TempDir {
+        let p = TempPath::new(stem, "d");
+        std::fs::create_dir_all(&p.0).expect("create folder");
+        TempDir(p.0.clone())
+    }
+
+    /// `NAME` inside the folder.
+    pub fn join(&self, name: &str) -> PathBuf {
+        self.0.join(name)
+    }
+
+    /// The names of the entries in the folder.
+    pub fn names(&self) -> BTreeSet<String> {
+        std::fs::read_dir(&self.0)
+            .expect("list folder")
+            .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
+            .collect()
+    }
+}
+
+impl Drop for TempDir {
+    fn drop(&mut self) {
+        let _ = std::fs::remove_dir_all(&self.0);
     }
 }

@@ -1,0 +1,232 @@
+//! Failure probabilities and `compare` through the binary: risk numbers by hand and by brute force over every state, and a change that removes a needed link.
+//!
+//! Outside references: the input contract `shared/network-format.md` (field names, exit
+//! statuses, error-message content, the definitions of served_required, shortfall, stranded
+//! and throughput), the fixture files themselves (counted here with serde_json, not by the
+//! product), and small networks whose results are computed by hand in the comments.
+
+mod common;
+
+use common::json::*;
+use common::*;
+use serde_json::Value;
+
+/// The probability that exactly `failed` of `pool` (id → p) fail, independently
+/// (the contract's formula, recomputed here).
+fn exact_probability(pool: &[(&str, f64)], failed: &[String]) -> f64 {
+    pool.iter()
+        .map(|(id, p)| {
+            if failed.iter().any(|f| f == &format!("link:{id}")) {
+                *p
+            } else {
+                1.0 - p
+            }
+        })
+        .product()
+}
+
+const PATH_POOL: &[(&str, f64)] = &[("ab", 0.01), ("bc", 0.02), ("cd", 0.05)];
+
+/// Hand computation (common practice, no source; shortfalls from PATH_NET's table):
+/// P(none) = 0.99·0.98·0.95 = 0.92169; P(ab only) = 0.01·0.98·0.95 = 0.00931; P(bc only)
+/// = 0.99·0.02·0.95 = 0.01881; P(cd only) = 0.99·0.98·0.05 = 0.04851. Expected shortfall
+/// 4·0.00931 + 6·0.01881 + 3·0.04851 = 0.29563; P(any shortfall) = 0.07663; unexamined
+/// 1 − 0.99832 = 0.00168.
+#[test]
+fn risk_numbers_by_hand_at_depth_1() {
+    let f = TempPath::with_text("risk", &path_net_with_probabilities());
+    let (run, doc) = audit_json(f.path(), &["--kinds", "links"]);
+    let r = &doc["risk"];
+    assert_near(num(r, "expected_shortfall"), 0.29563, "expected shortfall");
+    assert_near(num(r, "p_any_shortfall"), 0.07663, "P(any shortfall)");
+    assert_near(num(r, "uncovered_probability"), 0.00168, "unexamined");
+    // Bound: expected + unexamined × Σ required (11).
+    assert_near(
+        num(r, "expected_shortfall_bound"),
+        0.29563 + 0.00168 * 11.0,
+        "bound",
+    );
+    assert_near(
+        num(scenario(&doc, &["link:cd"]), "probability"),
+        0.04851,
+        "P(cd)",
+    );
+    // Most likely short first: cd (0.04851), bc, ab.
+    let likely: Vec<Vec<String>> = r["most_likely_short"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(failed_of)
+        .collect();
+    assert_eq!(
+        likely,
+        vec![vec!["link:cd"], vec!["link:bc"], vec!["link:ab"]]
+    );
+    assert!(
+        run.stdout.contains("expected shortfall 0.296 Gbit/s"),
+        "{}",
+        run.stdout
+    );
+    assert!(
+        run.stdout.contains("probability of any shortfall 0.0766"),
+        "{}",
+        run.stdout
+    );
+    assert!(
+        run.stdout.contains("left unexamined 1.68e-3"),
+        "{}",
+        run.stdout
+    );
+}
+
+/// Brute force: every one of the 2³ link states run on its own with `--fail`, weighted by
+/// its probability computed in the test, must give the depth-3 audit's expected shortfall
+/// and probability of any shortfall, with nothing left unexamined. Sites and the group
+/// carry no probability: a depth-1 audit over all kinds must say they never fail and
+/// give every scenario naming one probability 0.
+#[test]
+fn risk_agrees_with_brute_force_over_every_state() {
+    let f = TempPath::with_text("risk-bf", &path_net_with_probabilities());
+    let (_, doc) = audit_json(f.path(), &["--kinds", "links", "--depth", "3"]);
+    let (mut expected, mut any) = (0.0, 0.0);
+    for mask in 0..8u32 {
+        let failed: Vec<String> = (0..3)
+            .filter(|b| mask & (1 << b) != 0)
+            .map(|b| format!("link:{}", PATH_POOL[b].0))
+            .collect();
+        let shortfall = if failed.is_empty() {
+            num(
+                &audit_json(f.path(), &["--kinds", "links", "--depth", "0"]).1["baseline"],
+                "shortfall",
+            )
+        } else {
+            let (_, one) = audit_json(f.path(), &["--fail", &failed.join(",")]);
+            num(&scenarios(&one)[0], "shortfall")
+        };
+        let p = exact_probability(PATH_POOL, &failed);
+        expected += p * shortfall;
+        if shortfall > TOL {
+            any += p;
+        }
+    }
+    let r = &doc["risk"];
+    assert_near(
+        num(r, "expected_shortfall"),
+        expected,
+        "brute-force expectation",
+    );
+    assert_near(num(r, "p_any_shortfall"), any, "brute-force P(any)");
+    assert_near(
+        num(r, "uncovered_probability"),
+        0.0,
+        "full depth leaves nothing",
+    );
+
+    let (run, all) = audit_json(f.path(), &[]);
+    let never: Vec<&str> = all["risk"]["never_failing"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_str().unwrap())
+        .collect();
+    assert_eq!(
+        never,
+        ["site:a", "site:b", "site:c", "site:d", "group:spine"],
+        "pool elements without a probability"
+    );
+    assert_near(
+        num(scenario(&all, &["site:a"]), "probability"),
+        0.0,
+        "site:a",
+    );
+    assert!(
+        run.stdout.contains("treated as never failing"),
+        "{}",
+        run.stdout
+    );
+}
+
+/// Without any probability there is no `risk` object (nothing to weigh).
+#[test]
+fn no_probabilities_no_risk_section() {
+    let f = TempPath::with_text("norisk", PATH_NET);
+    let (run, doc) = audit_json(f.path(), &[]);
+    assert!(doc.get("risk").is_none(), "{}", doc["risk"]);
+    assert!(!run.stdout.contains("Risk ("), "{}", run.stdout);
+}
+
+/// `compare`: removing link bc, which PATH_NET needs (hand table: its failure costs 6),
+/// fails the check (exit 1); the baseline got worse 0 → 6; scenarios naming link:bc are
+/// removed risks; an identical copy passes (exit 0) with nothing worse or better. A
+/// tolerance above the worst increase still fails, since the baseline is newly short
+/// (short after, not before), unless `--allow-new-short`.
+#[test]
+fn compare_gates_a_change_that_removes_a_needed_link() {
+    let before = TempPath::with_text("before", PATH_NET);
+    let mut v: Value = serde_json::from_str(PATH_NET).unwrap();
+    v["links"].as_array_mut().unwrap().remove(1);
+    let after = TempPath::with_text("after", &v.to_string());
+    let copy = TempPath::with_text("copy", PATH_NET);
+    let out = TempPath::new("compare", "json");
+
+    let run = redoubt(&[
+        "compare",
+        before.path(),
+        after.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(run.code, 1, "{}\n{}", run.stdout, run.stderr);
+    assert!(run.stdout.starts_with("FAIL compare"), "{}", run.stdout);
+    let doc = out.read_json();
+    assert_eq!(doc["passed"], false);
+    let base = doc["worse"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| failed_of(c).is_empty())
+        .expect("the baseline got worse");
+    assert_near(num(base, "delta_shortfall"), 6.0, "baseline 0 → 6");
+    let removed: Vec<Vec<String>> = doc["removed_risks"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(failed_of)
+        .collect();
+    assert_eq!(removed, vec![vec!["link:bc".to_string()]]);
+    assert_eq!(doc["elements_removed"], serde_json::json!(["link:bc"]));
+
+    let same = redoubt(&[
+        "compare",
+        before.path(),
+        copy.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(same.code, 0, "{}\n{}", same.stdout, same.stderr);
+    let doc = out.read_json();
+    assert_eq!(doc["worse"].as_array().unwrap().len(), 0);
+    assert_eq!(doc["better"].as_array().unwrap().len(), 0);
+    assert_eq!(
+        doc["matched_scenarios"],
+        1 + 3 + 4 + 1,
+        "baseline, links, sites, group"
+    );
+
+    let mut loose = vec![
+        "compare",
+        before.path(),
+        after.path(),
+        "--quiet",
+        "--tolerance",
+        "100",
+    ];
+    let run = redoubt(&loose);
+    assert_eq!(run.code, 1, "newly short: {}", run.stdout);
+    loose.push("--allow-new-short");
+    let run = redoubt(&loose);
+    assert_eq!(run.code, 0, "{}", run.stdout);
+    assert!(run.stdout.contains("Caution:"), "{}", run.stdout);
+}
