@@ -469,8 +469,23 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
                 "--shard is for --routing best (the routed models are fast)".into(),
             ));
         }
-        let scenarios: Vec<Scenario> = list.iter.collect();
-        return run_routed_audit(args, &net, scenarios, opts, mode, &gates, out);
+        let ra = routing::run(&net, list.iter.collect(), mode, opts, true)?;
+        let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &ra.audit)?;
+        let o = AuditOutput {
+            json: args.json.as_deref(),
+            csv: args.csv.as_deref(),
+            risk: risk.as_ref(),
+            gates: &gates,
+            gate_tolerance: args.gate_tolerance,
+            close: args.close,
+            why: false,
+            report: None,
+            top: args.top,
+            opts,
+            routed: Some(&ra),
+        };
+        let thin = |_: usize| Err(Error::Usage("internal: thin routed evaluation".into()));
+        return finish_audit(&net, &ra.audit, &thin, o, None, &|e| e, out);
     }
     let share = shard.map_or(1, |s| s.1);
     let probe = estimate(&net, &list, share, args.engine, &args.scenarios, opts, err)?;
@@ -606,6 +621,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
             report: report_files.as_ref(),
             top: args.top,
             opts,
+            routed: None,
         },
         journal,
         &interrupted,
@@ -648,6 +664,9 @@ struct AuditOutput<'a> {
     report: Option<&'a (PathBuf, PathBuf)>,
     top: usize,
     opts: audit::RunOptions,
+    /// A routed audit (`--routing nearest|steered`): its model closes, its baseline and
+    /// comparison are shown.
+    routed: Option<&'a routing::RoutedAudit>,
 }
 
 /// Closings, gates, the `--json` file (streamed; thin evaluations read back with `full`),
@@ -662,15 +681,25 @@ fn finish_audit(
     interrupted: &dyn Fn(Error) -> Error,
     out: &mut dyn Write,
 ) -> Result<Outcome> {
-    let baseline = with_full_baseline(net, audit, full)?;
+    let baseline = match o.routed {
+        Some(ra) => ra.baseline.eval.clone(),
+        None => with_full_baseline(net, audit, full)?,
+    };
     let cands = expand::Candidates::of(net);
+    let closer: &dyn solve::evaluator::Evaluator = match o.routed {
+        Some(ra) => &ra.model,
+        None => &solve::evaluator::Walks,
+    };
     let closings = if o.close {
         Some(
             audit::par_map(
                 &(0..audit.outages.len()).collect::<Vec<_>>(),
                 o.opts,
                 "closing",
-                |&k| expand::close(net, &audit.outages[k], &audit.evaluations[k], &cands),
+                |&k| {
+                    let (outage, e) = (&audit.outages[k], &audit.evaluations[k]);
+                    expand::close_with(closer, net, outage, e, &cands)
+                },
             )
             .map_err(interrupted)?,
         )
@@ -692,8 +721,12 @@ fn finish_audit(
                 .map(|&k| report::json::closing_json(net, c[k].as_ref(), cands.default_costs))
                 .collect::<Vec<_>>()
         });
-        let mut doc =
-            report::json::audit_json_with(net, audit, &baseline, closing_json.as_deref(), full);
+        let mut doc = match o.routed {
+            Some(ra) => report::routing::audit_json(net, ra, closing_json.as_deref()),
+            None => {
+                report::json::audit_json_with(net, audit, &baseline, closing_json.as_deref(), full)
+            }
+        };
         doc.gates = report::json::gates_json(audit, &verdicts);
         if let Some(r) = o.risk {
             report::json::attach_risk(&mut doc, net, audit, r);
@@ -722,23 +755,35 @@ fn finish_audit(
     if let Some(j) = journal {
         j.remove()?;
     }
-    stdout_result(report::text::write_audit(
-        out,
-        net,
-        audit,
-        &baseline,
-        closings.as_deref().map(|c| report::text::ClosingPart {
-            closings: c,
-            default_costs: cands.default_costs,
-        }),
-        o.risk,
-        &verdicts,
-        o.top,
-        why.as_ref().map(|(i, c)| report::text::WhyPart {
-            scenario: *i,
-            closing: c.as_ref(),
-        }),
-    ))?;
+    let closing_part = closings.as_deref().map(|c| report::text::ClosingPart {
+        closings: c,
+        default_costs: cands.default_costs,
+    });
+    stdout_result(match o.routed {
+        Some(ra) => report::routing::write_audit(
+            out,
+            net,
+            ra,
+            closing_part,
+            o.risk,
+            &verdicts,
+            o.top,
+        ),
+        None => report::text::write_audit(
+            out,
+            net,
+            audit,
+            &baseline,
+            closing_part,
+            o.risk,
+            &verdicts,
+            o.top,
+            why.as_ref().map(|(i, c)| report::text::WhyPart {
+                scenario: *i,
+                closing: c.as_ref(),
+            }),
+        ),
+    })?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok
     } else {
@@ -831,6 +876,7 @@ fn run_merge(args: &MergeArgs, out: &mut dyn Write) -> Result<Outcome> {
             report: report_files.as_ref(),
             top: args.top,
             opts,
+            routed: None,
         },
         None,
         &|e| e,
@@ -956,79 +1002,6 @@ fn nearest_refused(what: &str) -> Error {
         "{what} --routing nearest: buying processing changes which sites are nearest, so \
          purchases are defined for --routing steered (or best) only"
     ))
-}
-
-/// `audit --routing nearest|steered`: the routed audit beside the best re-route (no
-/// journal: the routed models are fast).
-fn run_routed_audit(
-    args: &AuditArgs,
-    net: &Network,
-    scenarios: Vec<Scenario>,
-    opts: audit::RunOptions,
-    mode: routing::Mode,
-    gates: &[Gate],
-    out: &mut dyn Write,
-) -> Result<Outcome> {
-    let ra = routing::run(net, scenarios, mode, opts, true)?;
-    let audit = &ra.audit;
-    let cands = expand::Candidates::of(net);
-    let closings = if args.close {
-        Some(audit::par_map(
-            &(0..audit.outages.len()).collect::<Vec<_>>(),
-            opts,
-            "closing",
-            |&k| {
-                routing::expand::close(
-                    net,
-                    &ra.trees,
-                    &audit.outages[k],
-                    &audit.evaluations[k],
-                    &cands,
-                )
-            },
-        )?)
-    } else {
-        None
-    };
-    let verdicts = gate::check(audit, gates, args.gate_tolerance);
-    let risk = risk_of(net, &args.scenarios, args.fail.is_some(), audit)?;
-    if let Some(path) = &args.json {
-        let closing_json = closings.as_ref().map(|c| {
-            audit
-                .outage_of
-                .iter()
-                .map(|&k| report::json::closing_json(net, c[k].as_ref(), cands.default_costs))
-                .collect::<Vec<_>>()
-        });
-        let mut doc = report::routing::audit_json(net, &ra, closing_json.as_deref());
-        doc.gates = report::json::gates_json(audit, &verdicts);
-        if let Some(r) = &risk {
-            report::json::attach_risk(&mut doc, net, audit, r);
-        }
-        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
-    }
-    if let Some(path) = &args.csv {
-        report::file::write_atomic(path, |w| {
-            report::csv::write_audit(w, audit, closings.as_deref(), risk.as_ref())
-        })?;
-    }
-    stdout_result(report::routing::write_audit(
-        out,
-        net,
-        &ra,
-        closings.as_deref().map(|c| report::text::ClosingPart {
-            closings: c,
-            default_costs: cands.default_costs,
-        }),
-        risk.as_ref(),
-        &verdicts,
-        args.top,
-    ))?;
-    Ok(if verdicts.iter().all(|g| g.passed) {
-        Outcome::Ok
-    } else {
-        Outcome::GateFailed
-    })
 }
 
 /// `plan --apply OUT`: the input file with the purchase `add` (edited in place), written

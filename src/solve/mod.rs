@@ -18,6 +18,7 @@
 
 pub mod certify;
 pub mod colgen;
+pub mod evaluator;
 pub mod flow;
 pub mod lp;
 pub mod recheck;
@@ -29,6 +30,7 @@ use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network, SiteIdx};
 use crate::scenario::Outage;
 use flow::Cap;
+use evaluator::Evaluator;
 use lp::Backend;
 pub use surviving::{Surviving, Unservable};
 
@@ -501,7 +503,7 @@ pub fn solve_verified_with(
     let mut best_prices: (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
     let mut errors = Vec::new();
     for (attempt, backend) in ladder.iter().enumerate() {
-        let solution = match backend.solve(&model, None) {
+        let solution = match backend.solve(&model) {
             Ok(s) => s,
             Err(e) => {
                 errors.push(format!("{}: {e}", backend.name()));
@@ -626,21 +628,14 @@ pub fn baseline_cut_off(net: &Network) -> Vec<(usize, Unservable)> {
 ///
 /// Cost: one or two verified LP solves of the size given in [`flow::build`].
 pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
-    let view = Surviving::new(net, outage, None);
-    let required = solve_verified(net, &view, Cap::Required)?;
-    let volume = if needs_volume_lp(net, outage) {
-        Some(solve_verified(net, &view, Cap::Volume)?)
-    } else {
-        None
-    };
-    Ok(finish(net, &view, required, volume))
+    Ok(evaluator::Edge.evaluate(net, outage, None)?.evaluation)
 }
 
-/// [`evaluate`] by the walk engine started cold ([`colgen::evaluate_walks`]): the same
-/// verified result (an unproven walk answer falls back to the edge LP's ladder), usually
-/// faster on networks of tens of sites. What the expansion layer re-solves with.
+/// [`evaluate`] by the walk engine started cold ([`evaluator::Walks`]): the same verified
+/// result (an unproven walk answer falls back to the edge LP's ladder), usually faster on
+/// networks of tens of sites.
 pub fn evaluate_cold_walks(net: &Network, outage: &Outage) -> Result<Evaluation> {
-    Ok(colgen::evaluate_walks(net, outage, None)?.evaluation)
+    Ok(evaluator::Walks.evaluate(net, outage, None)?.evaluation)
 }
 
 /// Whether some surviving demand offers more than its required part, so that throughput
@@ -650,6 +645,22 @@ pub fn needs_volume_lp(net: &Network, outage: &Outage) -> bool {
     net.demands
         .iter()
         .any(|d| site_alive[d.from] && site_alive[d.to] && d.volume > d.required)
+}
+
+/// `resource` as a bottleneck when saturated: load ≥ [`SATURATED`]·`capacity`, or, for a
+/// row of capacity 0 (a routing model routes over capacity-0 links), a positive price
+/// (utilisation 1 then). O(1).
+fn saturated(resource: Resource, load: f64, capacity: f64, price: f64) -> Option<Bottleneck> {
+    let (hit, utilisation) = if capacity > 0.0 {
+        (load >= capacity * SATURATED, load / capacity)
+    } else {
+        (price > 0.0, 1.0)
+    };
+    hit.then_some(Bottleneck {
+        resource,
+        price,
+        utilisation,
+    })
 }
 
 /// The demands of one outage split by [`Surviving::demand_alive`]: the stranded ones
@@ -689,14 +700,43 @@ impl DemandSplit {
 }
 
 /// Turns verified results (served_required LP, and the throughput LP when one was
-/// solved) into the reported [`Evaluation`]: stranded totals, the plainest value inside
-/// each proven interval (or the proven lower bound when unproven), per-demand flows,
-/// bottlenecks, prices and cut-off demands. Any engine's results go through here.
+/// solved) into the reported [`Evaluation`], with the cut-off demands of the best re-route
+/// (no walk through a processing site on `view`, [`Surviving::unservable`]). What the edge
+/// LP and the walk engine end in; see [`finish_with`].
 ///
-/// Cost: O(demands + arcs + sites) plus one reachability pass per source.
+/// Cost: O(demands + arcs + sites) plus one reachability pass per processing site.
 pub fn finish(
     net: &Network,
     view: &Surviving,
+    solved: Verified,
+    volume: Option<Verified>,
+) -> Evaluation {
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let cut_off: Vec<(usize, Unservable)> = view
+        .unservable(net, &required)
+        .into_iter()
+        .enumerate()
+        .filter_map(|(d, r)| r.map(|r| (d, r)))
+        .collect();
+    finish_with(net, view, cut_off, solved, volume)
+}
+
+/// The one ending of every engine and routing model ([`evaluator::Evaluator`]): verified
+/// results (served_required, and throughput when that LP was solved) and the demands the
+/// model cannot serve at all (`cut_off`, surviving demands with required > 0, in demand
+/// order) become the reported [`Evaluation`]: stranded totals, the plainest value inside
+/// each proven interval (or the proven lower bound when unproven), per-demand flows
+/// snapped against their origin's servable demand ([`flow_scales`]), shadow prices,
+/// saturated resources (load ≥ [`SATURATED`]·capacity; a resource of capacity 0 that has
+/// a row is saturated when its price is positive) and the proof a journal keeps.
+///
+/// Invariant: `solved` and `volume` are results of models of `view`'s outage whose
+/// demand variables exclude `cut_off`. Cost: O(demands + arcs + sites + bottlenecks ·
+/// log bottlenecks).
+pub fn finish_with(
+    net: &Network,
+    view: &Surviving,
+    cut_off: Vec<(usize, Unservable)>,
     solved: Verified,
     volume: Option<Verified>,
 ) -> Evaluation {
@@ -709,12 +749,6 @@ pub fn finish(
     } = DemandSplit::of(net, view);
 
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let cut_off: Vec<(usize, Unservable)> = view
-        .unservable(net, &required)
-        .into_iter()
-        .enumerate()
-        .filter_map(|(d, r)| r.map(|r| (d, r)))
-        .collect();
     // Σ required of the cut-off demands, and of the surviving ones some walk can serve
     // (what the LP holds), each summed on its own so neither is lost in the other.
     let cut_off_required: f64 = cut_off.iter().map(|&(d, _)| required[d]).sum();
@@ -780,21 +814,24 @@ pub fn finish(
 
     let mut bottlenecks = Vec::new();
     for (a, arc) in net.arcs.iter().enumerate() {
-        if solved.arc_has_row[a] && arc_load[a] >= arc.capacity * SATURATED {
-            bottlenecks.push(Bottleneck {
-                resource: Resource::Arc(a),
-                price: arc_price[a],
-                utilisation: arc_load[a] / arc.capacity,
-            });
+        if solved.arc_has_row[a] {
+            bottlenecks.extend(saturated(
+                Resource::Arc(a),
+                arc_load[a],
+                arc.capacity,
+                arc_price[a],
+            ));
         }
     }
     for (v, site) in net.sites.iter().enumerate() {
-        if solved.site_has_row[v] && site_load[v] >= site.processing * SATURATED {
-            bottlenecks.push(Bottleneck {
-                resource: Resource::Site(v),
-                price: site_price[v].unwrap_or(0.0),
-                utilisation: site_load[v] / site.processing,
-            });
+        if solved.site_has_row[v] {
+            let price = site_price[v].unwrap_or(0.0);
+            bottlenecks.extend(saturated(
+                Resource::Site(v),
+                site_load[v],
+                site.processing,
+                price,
+            ));
         }
     }
     bottlenecks.sort_by(|a, b| {
