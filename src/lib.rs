@@ -760,15 +760,9 @@ fn finish_audit(
         default_costs: cands.default_costs,
     });
     stdout_result(match o.routed {
-        Some(ra) => report::routing::write_audit(
-            out,
-            net,
-            ra,
-            closing_part,
-            o.risk,
-            &verdicts,
-            o.top,
-        ),
+        Some(ra) => {
+            report::routing::write_audit(out, net, ra, closing_part, o.risk, &verdicts, o.top)
+        }
         None => report::text::write_audit(
             out,
             net,

@@ -8,8 +8,8 @@ use super::tidy::snap_up;
 use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network};
 use crate::scenario::Outage;
-use crate::solve::flow::FlowIndex;
 use crate::solve::evaluator::{Evaluator, Walks};
+use crate::solve::flow::FlowIndex;
 use crate::solve::lp::{Lp, Sense};
 use crate::solve::{Evaluation, TOL};
 
@@ -249,5 +249,9 @@ pub(super) fn served_row(model: &mut Lp, index: &FlowIndex, target: f64) -> usiz
 /// Adds `Σ served >= target` ([`crate::solve::evaluator::AddModel::served`]); returns the
 /// row. O(|served|).
 fn served_at_least(model: &mut Lp, served: &[usize], target: f64) -> usize {
-    model.add_row(served.iter().map(|&f| (f, 1.0)).collect(), Sense::Ge, target)
+    model.add_row(
+        served.iter().map(|&f| (f, 1.0)).collect(),
+        Sense::Ge,
+        target,
+    )
 }

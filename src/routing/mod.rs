@@ -9,7 +9,12 @@
 //! candidates with least `dist(o,v) + dist(v,t)`, ties split equally; [`Mode::Steered`]
 //! lets each demand split among all its candidates in any proportion. [`fixed`] holds the
 //! LP of what is served under those fixed routes; [`offered`] the load when every demand
-//! sends its full `required` on the nearest routes; [`expand`] the steered purchase models.
+//! sends its full `required` on the nearest routes; [`expand`] the steered plan.
+//!
+//! Each mode is a [`Model`], an [`Evaluator`] like the exact engines: the audit's batch
+//! drives it, its fixed-route LPs are verified into [`solve::Verified`] results
+//! (`verify_fixed`) and end in [`solve::finish_with`], and closings and plans buy
+//! processing on [`Evaluator::add_processing`].
 //!
 //! Invariants: routed served_required ≤ best re-route (every fixed route is a walk); under
 //! the same outage steered ≥ nearest (nearest's shares are one steered choice). Every
@@ -407,7 +412,7 @@ pub fn evaluate(net: &Network, base: &Trees, outage: &Outage, mode: Mode) -> Res
 }
 
 /// [`evaluate`] once the routes of `outage` are known: the fixed-route LPs verified
-/// ([`verify_fixed`]) and finished by [`solve::finish_with`], with the demands whose
+/// (`verify_fixed`) and finished by [`solve::finish_with`], with the demands whose
 /// routes reach no processing site as cut off. The evaluation carries no proof: a
 /// journal's re-check ([`solve::recheck`]) is defined for the best re-route only.
 pub fn evaluate_routes(
@@ -517,8 +522,8 @@ pub fn run(
     with_best: bool,
 ) -> Result<RoutedAudit> {
     let model = Model::new(net, mode);
-    let audit =
-        audit::Batch::with_evaluator(net, scenarios, Box::new(model.clone())).finish(net, opts, None)?;
+    let audit = audit::Batch::with_evaluator(net, scenarios, Box::new(model.clone()))
+        .finish(net, opts, None)?;
     beside(net, model, audit, opts, with_best)
 }
 

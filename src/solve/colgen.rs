@@ -47,12 +47,12 @@
 use std::cmp::Ordering;
 use std::collections::{BinaryHeap, HashMap, HashSet, VecDeque};
 
-use super::lp::{self, Lp, Sense};
-use super::simplex::Simplex;
-use super::surviving::Surviving;
 use super::edge::{at_stake, caps_of, meets, needs_volume_lp, solve_verified};
 use super::finish::finish;
 use super::flow::Cap;
+use super::lp::{self, Lp, Sense};
+use super::simplex::Simplex;
+use super::surviving::Surviving;
 use super::types::{Evaluation, Verification, Verified};
 use super::{certify, verify};
 use crate::error::Result;
@@ -1380,15 +1380,8 @@ pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) ->
         parent.and_then(|b| b.required.as_ref()),
         &mut stats,
     )?;
-    let (req_verified, required) = checked(
-        net,
-        &g,
-        &view,
-        required,
-        &caps,
-        Cap::Required,
-        &mut stats,
-    )?;
+    let (req_verified, required) =
+        checked(net, &g, &view, required, &caps, Cap::Required, &mut stats)?;
     let (vol_verified, volume) = if needs_volume_lp(net, outage) {
         let vcaps = g.caps(true);
         // Start from the parent's volume optimum, else from this scenario's required walks.
@@ -1400,15 +1393,7 @@ pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) ->
             }
             (None, None) => generate(&g, &vcaps, Vec::new(), Vec::new(), None, &mut stats)?,
         };
-        let (v, solved) = checked(
-            net,
-            &g,
-            &view,
-            solved,
-            &vcaps,
-            Cap::Volume,
-            &mut stats,
-        )?;
+        let (v, solved) = checked(net, &g, &view, solved, &vcaps, Cap::Volume, &mut stats)?;
         (Some(v), solved)
     } else {
         (None, None)

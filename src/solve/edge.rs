@@ -259,4 +259,3 @@ pub fn needs_volume_lp(net: &Network, outage: &Outage) -> bool {
         .iter()
         .any(|d| site_alive[d.from] && site_alive[d.to] && d.volume > d.required)
 }
-

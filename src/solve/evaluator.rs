@@ -4,7 +4,7 @@
 //!
 //! Implemented by the edge LP ([`Edge`]), the walk engine ([`Walks`]) and each routing as
 //! deployed ([`crate::routing::Model`]). Every implementation ends in
-//! [`super::finish_with`] (directly or through [`super::finish`]), so stranded totals,
+//! [`super::finish_with`] (directly or through [`super::finish::finish`]), so stranded totals,
 //! snapping, prices and bottlenecks are computed once for all of them.
 
 use std::any::Any;
@@ -84,8 +84,7 @@ pub trait Evaluator: Send + Sync {
 
     /// The verified evaluation of `outage`; `warm`, when given, is the [`Evaluated::warm`]
     /// this evaluator returned for an outage whose failed set is a subset of this one's.
-    fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>)
-    -> Result<Evaluated>;
+    fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>) -> Result<Evaluated>;
 
     /// Whether [`Evaluator::evaluate`] starts from a parent's optimum: the batch then
     /// solves the baseline first and children in families from their parent.

@@ -2,7 +2,7 @@
 //! reported [`Evaluation`] ([`finish_with`]): stranded totals, the plainest value inside
 //! each proven interval, per-demand flows snapped against their LP block, prices and
 //! saturated resources. Also the number rules the re-check of stored results reuses
-//! ([`reported_in`], [`shortfall_of`], [`flow_scales`], [`DemandSplit`]).
+//! ([`reported_in`], [`shortfall_of`], [`flow_scales`], `DemandSplit`).
 
 use super::surviving::{Surviving, Unservable};
 use super::types::{Bottleneck, Evaluation, Resource, Verified};
@@ -198,7 +198,12 @@ pub(crate) fn reported_shortfall(
 /// `resource` as a bottleneck when saturated: load ≥ [`SATURATED`]·`capacity`, or, for a
 /// row of capacity 0 (a routing model routes over capacity-0 links), a positive price
 /// (utilisation 1 then). O(1).
-pub(crate) fn saturated(resource: Resource, load: f64, capacity: f64, price: f64) -> Option<Bottleneck> {
+pub(crate) fn saturated(
+    resource: Resource,
+    load: f64,
+    capacity: f64,
+    price: f64,
+) -> Option<Bottleneck> {
     let (hit, utilisation) = if capacity > 0.0 {
         (load >= capacity * SATURATED, load / capacity)
     } else {
@@ -213,7 +218,7 @@ pub(crate) fn saturated(resource: Resource, load: f64, capacity: f64, price: f64
 
 /// The demands of one outage split by [`Surviving::demand_alive`]: the stranded ones
 /// (an end failed or no path: their required and volume totals and indices, in demand
-/// order) and the totals of the surviving ones. What [`finish`] reports and what a
+/// order) and the totals of the surviving ones. What [`finish_with`] reports and what a
 /// re-check of a restored result compares against. O(demands).
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct DemandSplit {
@@ -408,4 +413,3 @@ pub fn finish_with(
         proof,
     }
 }
-

@@ -37,10 +37,8 @@ pub use edge::{
     solve_verified_with,
 };
 use evaluator::Evaluator;
-pub use finish::{
-    NOISE, finish, finish_with, flow_scales, reported_in, shortfall_of, simplest_in,
-};
 pub(crate) use finish::DemandSplit;
+pub use finish::{NOISE, finish, finish_with, flow_scales, reported_in, shortfall_of, simplest_in};
 use lp::Backend;
 pub use surviving::{Surviving, Unservable};
 pub use types::{Bottleneck, Evaluation, Resource, Verification, Verified};

@@ -16,7 +16,7 @@
 //!   must lie in `[L, U]` (within that tolerance); an unproven value must not exceed `L`;
 //!   the stored bounds must not claim more than `L` and `U` prove;
 //! - everything else the reports read is either recomputed exactly as
-//!   [`super::finish`] computes it (stranded and surviving totals, cut-off demands,
+//!   [`super::finish::finish`] computes it (stranded and surviving totals, cut-off demands,
 //!   shortfalls, the value from its bounds) or checked against the walks' allocation
 //!   (per-demand flows and loads) and the certificate's prices (shadow prices,
 //!   bottlenecks), and every index is checked to be in range.
@@ -28,15 +28,13 @@
 
 use serde::{Deserialize, Serialize};
 
-use super::finish::{
-    Servable, cut_off_on, reported_flow, reported_shortfall, saturated, snap,
-};
+use super::finish::{Servable, cut_off_on, reported_flow, reported_shortfall, saturated, snap};
 use super::flow::{self, Cap};
 use super::surviving::Surviving;
 use super::verify::{self, Repaired, Sink, Walk};
 use super::{
-    Evaluation, GAP_TOL, NOISE, RESIDUAL_TOL, Resource, TOL, Verification, Verified,
-    certify, needs_volume_lp, reported_in, shortfall_of,
+    Evaluation, GAP_TOL, NOISE, RESIDUAL_TOL, Resource, TOL, Verification, Verified, certify,
+    needs_volume_lp, reported_in, shortfall_of,
 };
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -244,7 +242,7 @@ fn prove(net: &Network, view: &Surviving, cap: Cap, c: &Certificate) -> Result<P
 }
 
 /// Checks a stored verification against what its certificate proves and returns the
-/// value [`super::finish`] reports for it (`total`: the surviving demand under the LP's
+/// value [`super::finish::finish`] reports for it (`total`: the surviving demand under the LP's
 /// caps). See the module documentation for the rules.
 fn value_of(v: &Verification, total: f64, p: &Proven, what: &str) -> Result<f64, String> {
     let bad = |why: &str| Err(format!("{what}: {why}"));

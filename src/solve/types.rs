@@ -1,7 +1,7 @@
 //! The results every engine produces and every report reads: [`Verified`] (one LP answer
 //! with its proven bounds and prices, whatever engine made it) and [`Evaluation`] (one
 //! outage as reported). Shared by the engines ([`super::edge`], [`super::colgen`], the
-//! routing models) and the common ending ([`super::finish`]) without any of them
+//! routing models) and the common ending ([`super::finish::finish_with`]) without any of them
 //! importing another.
 
 use super::surviving::Unservable;
@@ -235,4 +235,3 @@ pub struct Verified {
     /// read them, before rows lowered by the presolve were zeroed above).
     pub bound_price: (Vec<f64>, Vec<f64>),
 }
-
