@@ -1,7 +1,7 @@
 //! One plan of processing purchases for the steered routing (all short outages in one
 //! master). Closings of one scenario are [`crate::expand::close_with`] with the routing
 //! [`super::Model`]; both read the model through the evaluator seam: best reachable is
-//! [`crate::expand::best_reachable`], the model with `add_v` variables in its processing
+//! `crate::expand::best_reachable`, the model with `add_v` variables in its processing
 //! rows is [`Evaluator::add_processing`], re-solves are [`Evaluator::evaluate`] of
 //! [`Network::with_added_processing`].
 //!

@@ -13,7 +13,7 @@ use crate::scenario::Outage;
 
 /// Solves the served_required LP of `net` under `outage` and returns it with its flow
 /// index, with the default backend and no verification. The building block of the
-/// expansion models; [`evaluate`] verifies.
+/// expansion models; [`super::evaluate`] verifies.
 pub fn solve_flow(
     net: &Network,
     outage: &Outage,

@@ -268,7 +268,7 @@ pub fn finish(
     finish_with(net, view, cut_off, solved, volume)
 }
 
-/// The one ending of every engine and routing model ([`evaluator::Evaluator`]): verified
+/// The one ending of every engine and routing model ([`super::evaluator::Evaluator`]): verified
 /// results (served_required, and throughput when that LP was solved) and the demands the
 /// model cannot serve at all (`cut_off`, surviving demands with required > 0, in demand
 /// order) become the reported [`Evaluation`]: stranded totals, the plainest value inside

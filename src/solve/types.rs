@@ -31,7 +31,7 @@ pub enum Resource {
 /// How one LP result was verified.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Verification {
-    /// The bounds meet within [`GAP_TOL`] and the allocation is feasible.
+    /// The bounds meet within [`super::GAP_TOL`] and the allocation is feasible.
     pub proven: bool,
     /// Proven lower bound: delivered flow of the repaired, feasible allocation.
     pub lower: f64,
@@ -52,7 +52,7 @@ pub struct Evaluation {
     /// when the result is unproven).
     pub served_required: f64,
     /// Σ surviving required − served_required, summed as the cut-off demands' required
-    /// plus what the servable ones miss ([`shortfall_of`]), so a small cut-off demand beside
+    /// plus what the servable ones miss ([`super::shortfall_of`]), so a small cut-off demand beside
     /// large served ones is not lost to rounding.
     pub shortfall: f64,
     /// Σ required of demands with a failed endpoint site.
@@ -81,7 +81,7 @@ pub struct Evaluation {
     pub arc_price: Vec<f64>,
     /// Saturated resources, highest shadow price first (ties by resource order).
     pub bottlenecks: Vec<Bottleneck>,
-    /// Certified upper bound on served_required ([`certify::dual_bound`]).
+    /// Certified upper bound on served_required ([`super::certify::dual_bound`]).
     pub upper_bound: f64,
     /// Largest relative row violation of the returned allocation.
     pub max_violation: f64,
