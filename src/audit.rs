@@ -21,6 +21,7 @@ use crate::model::Network;
 use crate::report::journal::{Journal, Resume};
 use crate::scenario::{Element, Outage, Scenario};
 use crate::solve::Engine;
+use crate::solve::evaluator::{self, Evaluated, Evaluator, Warm};
 use crate::solve::{self, Evaluation, colgen};
 
 /// How to run a batch of scenarios.
@@ -182,9 +183,10 @@ where
 /// A first timed solve, made before the scenarios are enumerated, so a run can be
 /// estimated (and refused) from the scenario count alone ([`probe`]).
 pub struct Probe {
-    engine: Engine,
-    /// With [`Engine::Walks`]: the baseline's optimum and evaluation.
-    base: Option<colgen::Walked>,
+    /// The evaluator's name ([`Evaluator::name`]).
+    engine: &'static str,
+    /// With a warm-starting evaluator: the baseline's evaluation and optimum.
+    base: Option<Evaluated>,
     /// The sample scenario's outage and evaluation.
     sample: Option<(Outage, Evaluation)>,
     /// How long the baseline took (zero for the edge engine, which needs no basis).
@@ -197,10 +199,28 @@ pub struct Probe {
 /// sample scenario, timed. The sample is solved exactly as [`Batch`] would solve it (a
 /// single failure starts from the baseline), so its evaluation is reused.
 pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result<Probe> {
+    probe_with(net, &*evaluator(engine), sample)
+}
+
+/// The evaluator of `engine`: the seam ([`Evaluator`]) every batch drives.
+pub fn evaluator(engine: Engine) -> Box<dyn Evaluator> {
+    match engine {
+        Engine::Walks => Box::new(evaluator::Walks),
+        Engine::Edge => Box::new(evaluator::Edge),
+    }
+}
+
+/// [`probe`] with any evaluator.
+pub fn probe_with(
+    net: &Network,
+    engine: &dyn Evaluator,
+    sample: Option<&Scenario>,
+) -> Result<Probe> {
     let start = Instant::now();
-    let base = match engine {
-        Engine::Walks => Some(colgen::evaluate_walks(net, &Outage::default(), None)?),
-        Engine::Edge => None,
+    let base = if engine.warm_starts() {
+        Some(engine.evaluate(net, &Outage::default(), None)?)
+    } else {
+        None
     };
     let baseline_took = start.elapsed();
     let start = Instant::now();
@@ -209,15 +229,15 @@ pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result
             let o = sc.outage(net);
             let e = match &base {
                 Some(b) if o.is_empty() => b.evaluation.clone(),
-                Some(b) => colgen::evaluate_walks(net, &o, Some(&b.basis))?.evaluation,
-                None => solve::evaluate(net, &o)?,
+                Some(b) => engine.evaluate(net, &o, b.warm.as_ref())?.evaluation,
+                None => engine.evaluate(net, &o, None)?.evaluation,
             };
             Some((o, e))
         }
         _ => None,
     };
     Ok(Probe {
-        engine,
+        engine: engine.name(),
         base,
         sample,
         baseline_took,
@@ -240,10 +260,11 @@ pub enum Keep {
 /// Scenarios with their distinct outages, some of them already evaluated (by a first
 /// timed solve or from a journal), the rest still to solve.
 ///
-/// With [`Engine::Walks`] the baseline is solved first (once). An outage whose first
-/// scenario fails two or more elements starts from the optimum of the single failure of
-/// its first element (its *parent*, solved from the baseline), every other outage from
-/// the baseline's ([`colgen::evaluate_walks`]); children are solved in families, one
+/// Outages are evaluated only through the batch's [`Evaluator`] (an engine or a routing
+/// model). With a warm-starting one ([`Evaluator::warm_starts`], the walk engine) the
+/// baseline is solved first (once). An outage whose first scenario fails two or more
+/// elements starts from the optimum of the single failure of its first element (its
+/// *parent*, solved from the baseline), every other outage from the baseline's; children are solved in families, one
 /// parent basis per family in flight, so memory holds one basis per thread whatever the
 /// number of scenarios. Each outage is a pure function of (network, outage, parent), so
 /// results do not depend on the thread count, the shard or on what was restored.
@@ -256,9 +277,10 @@ pub struct Batch {
     parent: Vec<Option<Element>>,
     /// Per element with a single-failure scenario: that scenario's outage.
     single: HashMap<Element, usize>,
-    engine: Engine,
-    /// With [`Engine::Walks`]: the baseline's optimum, the start of every other outage.
-    basis: Option<colgen::Basis>,
+    engine: Box<dyn Evaluator>,
+    /// With a warm-starting evaluator: the baseline's optimum, the start of every other
+    /// outage.
+    basis: Option<Warm>,
     /// What is kept of each evaluation.
     keep: Keep,
     /// Only outages `k` with `k % n == i` are solved (`(i, n)`, `i` from 0).
@@ -273,6 +295,15 @@ impl Batch {
         net: &Network,
         scenarios: impl IntoIterator<Item = Scenario>,
         engine: Engine,
+    ) -> Batch {
+        Batch::with_evaluator(net, scenarios, evaluator(engine))
+    }
+
+    /// [`Batch::new`] with any evaluator (a routing model, a future engine).
+    pub fn with_evaluator(
+        net: &Network,
+        scenarios: impl IntoIterator<Item = Scenario>,
+        engine: Box<dyn Evaluator>,
     ) -> Batch {
         use std::hash::{BuildHasher, BuildHasherDefault, DefaultHasher};
         // Outages are found by a 64-bit hash and compared in full, so each is stored once;
@@ -348,13 +379,13 @@ impl Batch {
     /// Takes the probe's solves: the baseline basis, and the baseline's and the sample's
     /// evaluations for the outages equal to them.
     pub fn seed(&mut self, probe: Probe, journal: Option<&Journal>) {
-        if probe.engine != self.engine {
+        if probe.engine != self.engine.name() {
             return;
         }
         let mut found: Vec<(Outage, Evaluation)> = probe.sample.into_iter().collect();
         if let Some(b) = probe.base {
             found.push((Outage::default(), b.evaluation));
-            self.basis = Some(b.basis);
+            self.basis = b.warm;
         }
         for (o, e) in found {
             if let Some(k) = self.outages.iter().position(|x| *x == o)
@@ -394,24 +425,24 @@ impl Batch {
     /// Solves the baseline for the walk engine's basis, once; when the baseline is one of
     /// the outages still to solve, its evaluation is kept (and journaled).
     fn prepare(&mut self, net: &Network, journal: Option<&Journal>) -> Result<()> {
-        if self.engine != Engine::Walks || self.basis.is_some() {
+        if !self.engine.warm_starts() || self.basis.is_some() {
             return Ok(());
         }
-        let p = probe(net, self.engine, None)?;
+        let p = probe_with(net, &*self.engine, None)?;
         self.seed(p, journal);
         Ok(())
     }
 
-    /// Evaluates `outage` from `parent` (the baseline's basis when `None`) with the
-    /// batch's engine.
+    /// Evaluates `outage` from `parent` (the baseline's optimum when `None`) with the
+    /// batch's evaluator.
     fn solve_from(
         &self,
         net: &Network,
         outage: &Outage,
-        parent: Option<&colgen::Basis>,
-    ) -> Result<colgen::Walked> {
+        parent: Option<&Warm>,
+    ) -> Result<Evaluated> {
         let basis = parent.or(self.basis.as_ref());
-        let w = colgen::evaluate_walks(net, outage, basis)?;
+        let w = self.engine.evaluate(net, outage, basis)?;
         self.stats
             .lock()
             .unwrap_or_else(|p| p.into_inner())
@@ -436,12 +467,12 @@ impl Batch {
             bar.inc();
             out.push((k, self.stored(k, e, journaled)));
         };
-        if self.engine == Engine::Edge {
+        if !self.engine.warm_starts() {
             for &k in members {
                 if interrupted() {
                     return Err(Error::Interrupted("solving stopped".into()));
                 }
-                record(k, solve::evaluate(net, &self.outages[k])?);
+                record(k, self.solve_from(net, &self.outages[k], None)?.evaluation);
             }
         } else {
             let parent = match p {
@@ -458,7 +489,7 @@ impl Batch {
                     {
                         record(kp, w.evaluation);
                     }
-                    Some(w.basis)
+                    w.warm
                 }
             };
             for &k in members {
@@ -575,7 +606,7 @@ impl Batch {
         let todo: Vec<usize> = (0..self.outages.len())
             .filter(|&k| self.done[k].is_none() && self.mine(k))
             .collect();
-        if self.engine == Engine::Edge {
+        if !self.engine.warm_starts() {
             return todo.into_iter().map(|k| (None, vec![k])).collect();
         }
         let mut fam: std::collections::BTreeMap<Element, Vec<usize>> = Default::default();

@@ -368,7 +368,7 @@ fn one_file_from_1e_minus6_to_1e15() {
 fn all_backends(lp: &Lp) -> Vec<(&'static str, LpSolution)> {
     solve::LADDER
         .iter()
-        .map(|b| (b.name(), b.solve(lp, None).expect("textbook LP solves")))
+        .map(|b| (b.name(), b.solve(lp).expect("textbook LP solves")))
         .collect()
 }
 
@@ -452,8 +452,8 @@ impl Backend for Lying {
     fn name(&self) -> &'static str {
         "lying"
     }
-    fn solve(&self, lp: &Lp, warm: Option<&LpSolution>) -> redoubt::error::Result<LpSolution> {
-        let mut s = lp::CLARABEL.solve(lp, warm)?;
+    fn solve(&self, lp: &Lp) -> redoubt::error::Result<LpSolution> {
+        let mut s = lp::CLARABEL.solve(lp)?;
         for x in &mut s.x {
             *x *= 2.0;
         }

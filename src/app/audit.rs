@@ -1,11 +1,11 @@
 //! `redoubt audit` (best re-route): output checks before solving, the estimate, the
 //! journal and `--resume`, `--shard` part files, then closings, gates and every output
-//! (`finish_audit`, which `merge` shares). The routed audit is in `audit_routed`.
+//! (`finish_audit`, which `merge` shares). A routed audit (`--routing nearest|steered`) runs through the same ending.
 
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 
-use super::audit_routed::{self, nearest_refused};
+use super::nearest_refused;
 use super::options::AuditOptions;
 use super::scenarios::{estimate, risk_of, run_options, scenario_list};
 use super::{Outcome, note, read_network, stdout_result};
@@ -22,7 +22,6 @@ use crate::report::{
 };
 use crate::risk;
 use crate::routing;
-use crate::scenario::Scenario;
 use crate::solve;
 
 /// The fingerprint of an audit's results: the program version, the network file's bytes
@@ -122,8 +121,23 @@ pub(super) fn run(
                 "--shard is for --routing best (the routed models are fast)".into(),
             ));
         }
-        let scenarios: Vec<Scenario> = list.iter.collect();
-        return audit_routed::run(args, &net, scenarios, opts, mode, &args.gates, out);
+        let ra = routing::run(&net, list.iter.collect(), mode, opts, true)?;
+        let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &ra.audit)?;
+        let o = AuditOutput {
+            json: args.json.as_deref(),
+            csv: args.csv.as_deref(),
+            risk: risk.as_ref(),
+            gates: &args.gates,
+            gate_tolerance: args.gate_tolerance,
+            close: args.close,
+            why: false,
+            report: None,
+            top: args.top,
+            opts,
+            routed: Some(&ra),
+        };
+        let thin = |_: usize| Err(Error::Internal("thin routed evaluation".into()));
+        return finish_audit(&net, &ra.audit, &thin, o, None, &|e| e, out);
     }
     let share = shard.map_or(1, |s| s.1);
     let probe = estimate(&net, &list, share, args.engine, &args.scenarios, opts, err)?;
@@ -256,6 +270,7 @@ pub(super) fn run(
             report: report_files.as_ref(),
             top: args.top,
             opts,
+            routed: None,
         },
         journal,
         &interrupted,
@@ -298,6 +313,9 @@ pub(super) struct AuditOutput<'a> {
     pub(super) report: Option<&'a (PathBuf, PathBuf)>,
     pub(super) top: usize,
     pub(super) opts: audit::RunOptions,
+    /// A routed audit (`--routing nearest|steered`): its model closes, its baseline and
+    /// comparison are shown.
+    pub(super) routed: Option<&'a routing::RoutedAudit>,
 }
 
 /// Closings, gates, the `--json` file (streamed; thin evaluations read back with `full`),
@@ -312,15 +330,25 @@ pub(super) fn finish_audit(
     interrupted: &dyn Fn(Error) -> Error,
     out: &mut dyn Write,
 ) -> Result<Outcome> {
-    let baseline = with_full_baseline(net, audit, full)?;
+    let baseline = match o.routed {
+        Some(ra) => ra.baseline.eval.clone(),
+        None => with_full_baseline(net, audit, full)?,
+    };
     let cands = expand::Candidates::of(net);
+    let closer: &dyn solve::evaluator::Evaluator = match o.routed {
+        Some(ra) => &ra.model,
+        None => &solve::evaluator::Walks,
+    };
     let closings = if o.close {
         Some(
             audit::par_map(
                 &(0..audit.outages.len()).collect::<Vec<_>>(),
                 o.opts,
                 "closing",
-                |&k| expand::close(net, &audit.outages[k], &audit.evaluations[k], &cands),
+                |&k| {
+                    let (outage, e) = (&audit.outages[k], &audit.evaluations[k]);
+                    expand::close_with(closer, net, outage, e, &cands)
+                },
             )
             .map_err(interrupted)?,
         )
@@ -342,8 +370,12 @@ pub(super) fn finish_audit(
                 .map(|&k| report::json::closing_json(net, c[k].as_ref(), cands.default_costs))
                 .collect::<Vec<_>>()
         });
-        let mut doc =
-            report::json::audit_json_with(net, audit, &baseline, closing_json.as_deref(), full);
+        let mut doc = match o.routed {
+            Some(ra) => report::routing::audit_json(net, ra, closing_json.as_deref()),
+            None => {
+                report::json::audit_json_with(net, audit, &baseline, closing_json.as_deref(), full)
+            }
+        };
         doc.gates = report::json::gates_json(audit, &verdicts);
         if let Some(r) = o.risk {
             report::json::attach_risk(&mut doc, net, audit, r);
@@ -372,23 +404,29 @@ pub(super) fn finish_audit(
     if let Some(j) = journal {
         j.remove()?;
     }
-    stdout_result(report::text::write_audit(
-        out,
-        net,
-        audit,
-        &baseline,
-        closings.as_deref().map(|c| report::text::ClosingPart {
-            closings: c,
-            default_costs: cands.default_costs,
-        }),
-        o.risk,
-        &verdicts,
-        o.top,
-        why.as_ref().map(|(i, c)| report::text::WhyPart {
-            scenario: *i,
-            closing: c.as_ref(),
-        }),
-    ))?;
+    let closing_part = closings.as_deref().map(|c| report::text::ClosingPart {
+        closings: c,
+        default_costs: cands.default_costs,
+    });
+    stdout_result(match o.routed {
+        Some(ra) => {
+            report::routing::write_audit(out, net, ra, closing_part, o.risk, &verdicts, o.top)
+        }
+        None => report::text::write_audit(
+            out,
+            net,
+            audit,
+            &baseline,
+            closing_part,
+            o.risk,
+            &verdicts,
+            o.top,
+            why.as_ref().map(|(i, c)| report::text::WhyPart {
+                scenario: *i,
+                closing: c.as_ref(),
+            }),
+        ),
+    })?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok
     } else {

@@ -101,6 +101,7 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
             report: report_files.as_ref(),
             top: args.top,
             opts,
+            routed: None,
         },
         None,
         &|e| e,

@@ -4,7 +4,6 @@
 //! nothing below this layer sees a clap type or calls back up into it.
 
 mod audit;
-mod audit_routed;
 mod check;
 mod compare;
 mod import;
@@ -96,4 +95,12 @@ pub fn stdout_result(r: io::Result<()>) -> Result<()> {
 /// Notes on stderr are best effort: a closed stderr never stops a run.
 fn note(r: io::Result<()>) {
     let _ = r;
+}
+
+/// The refusal of a purchase (`plan`, `audit --close`) on the nearest-site model.
+pub(crate) fn nearest_refused(what: &str) -> crate::error::Error {
+    crate::error::Error::Usage(format!(
+        "{what} --routing nearest: buying processing changes which sites are nearest, so \
+         purchases are defined for --routing steered (or best) only"
+    ))
 }

@@ -3,7 +3,7 @@
 
 use std::io::Write;
 
-use super::audit_routed::nearest_refused;
+use super::nearest_refused;
 use super::options::PlanOptions;
 use super::plan_routed::{self, Routed};
 use super::scenarios::{run_options, scenario_list, solve_list};

@@ -5,12 +5,13 @@ use super::candidates::{Candidates, add_vars, values};
 use super::generate::{TOP_UP_ROUNDS, cheapest_raise, reaches};
 use super::modules::cheapest_whole;
 use super::tidy::snap_up;
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network};
 use crate::scenario::Outage;
-use crate::solve::flow::{self, Cap, FlowIndex};
+use crate::solve::evaluator::{Evaluator, Walks};
+use crate::solve::flow::FlowIndex;
 use crate::solve::lp::{Lp, Sense};
-use crate::solve::{self, Evaluation, TOL};
+use crate::solve::{Evaluation, TOL};
 
 /// The cheapest expansion for one scenario.
 #[derive(Debug, Clone, PartialEq)]
@@ -84,18 +85,20 @@ pub fn binding(prices: impl Iterator<Item = (usize, f64)>) -> Vec<(usize, f64)> 
     v
 }
 
-/// Best served_required of `outage` (evaluated as `eval`) with every candidate expanded as
-/// far as allowed, and the link directions whose capacity limits it (with their shadow
-/// prices, as [`Closing::binding_arcs`]). The value is snapped to the
+/// Best served_required of `outage` (evaluated as `eval` by `ev`) with every candidate
+/// expanded as far as allowed, and the link directions whose capacity limits it (with
+/// their shadow prices, as [`Closing::binding_arcs`]). The value is snapped to the
 /// whole required demand when within [`TOL`], and never below what `eval` already serves.
-pub(super) fn best_reachable(
+/// The one best-reachable of closings and plans, for every engine and routing model.
+pub(crate) fn best_reachable(
+    ev: &dyn Evaluator,
     net: &Network,
     outage: &Outage,
     cands: &Candidates,
     eval: &Evaluation,
 ) -> Result<(f64, Vec<(usize, f64)>)> {
     let required = eval.surviving_required;
-    let (best, links) = best_reachable_raw(net, outage, cands, required)?;
+    let (best, links) = best_reachable_raw(ev, net, outage, cands, required)?;
     let best = if (required - best).abs() <= TOL * required.max(1.0) {
         required
     } else {
@@ -104,12 +107,13 @@ pub(super) fn best_reachable(
     Ok((best, links))
 }
 
-/// [`best_reachable`] before snapping: the verified evaluation (see
-/// [`crate::solve::evaluate`]) of `net` with every candidate site that survives expanded
-/// to `min(expand_max, required)` (no site can use more than the whole demand), and the
-/// link directions with a positive shadow price there. Using the verified solve means the best
-/// reachable value is proven by the same independent bounds as every scenario's.
+/// [`best_reachable`] before snapping: the verified evaluation by `ev` of `net` with every
+/// candidate site that survives expanded to `min(expand_max, required)` (no site can use
+/// more than the whole demand), and the link directions with a positive shadow price
+/// there. Using the verified solve means the best reachable value is proven by the same
+/// independent bounds as every scenario's. Cost: one evaluation.
 fn best_reachable_raw(
+    ev: &dyn Evaluator,
     net: &Network,
     outage: &Outage,
     cands: &Candidates,
@@ -122,7 +126,9 @@ fn best_reachable_raw(
             _ => 0.0,
         })
         .collect();
-    let e = solve::evaluate_cold_walks(&net.with_added_processing(&add), outage)?;
+    let e = ev
+        .evaluate(&net.with_added_processing(&add), outage, None)?
+        .evaluation;
     let arcs = binding(e.arc_price.iter().copied().enumerate());
     Ok((e.served_required, arcs))
 }
@@ -146,23 +152,43 @@ pub fn close(
     eval: &Evaluation,
     cands: &Candidates,
 ) -> Result<Option<Closing>> {
+    close_with(&Walks, net, outage, eval, cands)
+}
+
+/// [`close`] for the model of `ev` (the best re-route by the walk engine, or a routing
+/// model): best reachable and the re-solves by `ev`, the cost LP on
+/// [`Evaluator::add_processing`]. Fails with a usage error when `ev` defines no purchases.
+pub fn close_with(
+    ev: &dyn Evaluator,
+    net: &Network,
+    outage: &Outage,
+    eval: &Evaluation,
+    cands: &Candidates,
+) -> Result<Option<Closing>> {
     if eval.shortfall <= 0.0 {
         return Ok(None);
     }
     let required = eval.surviving_required;
-    let (best, binding_arcs) = best_reachable(net, outage, cands, eval)?;
+    let (best, binding_arcs) = best_reachable(ev, net, outage, cands, eval)?;
     let scale = required.max(1.0);
     if best <= eval.served_required + TOL * scale {
         return Ok(Some(Closing::nothing_to_buy(net, eval, binding_arcs)));
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
-    let index = flow::build(&mut model, net, outage, Cap::Required, 0.0, Some(&add));
-    served_row(&mut model, &index, target(best, required));
+    let Some(m) = ev.add_processing(&mut model, net, outage, &add, 0.0) else {
+        return Err(Error::Usage(format!(
+            "purchases are not defined for --routing {}",
+            ev.name()
+        )));
+    };
+    served_at_least(&mut model, &m.served, target(best, required));
     let whole = cheapest_whole(&model, &add, cands)?;
     let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
     let (add_units, after) = top_up_one(cands, best, add_units, |a| {
-        solve::evaluate_cold_walks(&net.with_added_processing(a), outage)
+        Ok(ev
+            .evaluate(&net.with_added_processing(a), outage, None)?
+            .evaluation)
     })?;
     Ok(Some(Closing {
         cost: cands.cost_of(&add_units),
@@ -181,7 +207,7 @@ pub fn close(
 /// One closing's purchase `add` evaluated by `evaluate`, raised by [`cheapest_raise`]
 /// while the evaluation misses `best` by [`reaches`] (solver inaccuracy in the cost LP;
 /// at most [`TOP_UP_ROUNDS`] re-evaluations), with its last evaluation.
-pub(crate) fn top_up_one(
+fn top_up_one(
     cands: &Candidates,
     best: f64,
     mut add: Vec<f64>,
@@ -216,11 +242,16 @@ pub(crate) fn target(best: f64, required: f64) -> f64 {
 
 /// Adds `Σ f_d >= target` over the flow variables of `index`; returns the row.
 pub(super) fn served_row(model: &mut Lp, index: &FlowIndex, target: f64) -> usize {
-    let coeffs = index
-        .demand_var
-        .iter()
-        .flatten()
-        .map(|&f| (f, 1.0))
-        .collect();
-    model.add_row(coeffs, Sense::Ge, target)
+    let served: Vec<usize> = index.demand_var.iter().flatten().copied().collect();
+    served_at_least(model, &served, target)
+}
+
+/// Adds `Σ served >= target` ([`crate::solve::evaluator::AddModel::served`]); returns the
+/// row. O(|served|).
+fn served_at_least(model: &mut Lp, served: &[usize], target: f64) -> usize {
+    model.add_row(
+        served.iter().map(|&f| (f, 1.0)).collect(),
+        Sense::Ge,
+        target,
+    )
 }

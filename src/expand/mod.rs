@@ -29,16 +29,16 @@ mod tidy;
 
 pub use candidates::Candidates;
 pub(crate) use candidates::{add_vars, values};
-pub use close::{Closing, binding, close, links_of};
-pub(crate) use close::{target, top_up_one};
+pub use close::{Closing, binding, close, close_with, links_of};
+pub(crate) use close::{best_reachable, target};
 pub(crate) use generate::{TOP_UP_ROUNDS, cheapest_raise, reaches};
 pub use master::TOTAL_MAX_VARS;
-pub(crate) use modules::cheapest_whole;
 pub(crate) use tidy::snap_up;
 
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::Result;
 use crate::model::{Network, SiteIdx};
+use crate::solve::evaluator::Walks;
 use crate::solve::{Evaluation, TOL};
 use generate::{Generation, generate, verify};
 
@@ -134,7 +134,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
             if e.shortfall <= 0.0 {
                 return Ok(e.served_required);
             }
-            Ok(close::best_reachable(net, &audit.outages[k], &cands, e)?.0)
+            Ok(close::best_reachable(&Walks, net, &audit.outages[k], &cands, e)?.0)
         },
     )?;
     let eval = |k: usize| &audit.evaluations[k];

@@ -1,7 +1,9 @@
-//! Buying processing for the steered routing: the same questions as [`crate::expand`]
-//! (close one scenario's gap; one plan for all scenarios), asked of the fixed-route model
-//! of [`super::fixed`] under [`Mode::Steered`] with one `add_v` variable per candidate
-//! site in its processing row.
+//! One plan of processing purchases for the steered routing (all short outages in one
+//! master). Closings of one scenario are [`crate::expand::close_with`] with the routing
+//! [`super::Model`]; both read the model through the evaluator seam: best reachable is
+//! `crate::expand::best_reachable`, the model with `add_v` variables in its processing
+//! rows is [`Evaluator::add_processing`], re-solves are [`Evaluator::evaluate`] of
+//! [`Network::with_added_processing`].
 //!
 //! Added processing can make a site a candidate: a surviving expandable site with
 //! processing 0 gets steered variables too (its row `Σ y − add_v <= 0` keeps them at 0
@@ -13,166 +15,23 @@
 //! Invariant: adding processing never lowers the steered served_required (the LP only
 //! gains room in site rows), so scenarios without shortfall need nothing.
 
-use super::spt::Trees;
-use super::{DemandRoutes, Mode, RoutedAudit, fixed};
+use super::{Mode, RoutedAudit};
 use crate::audit::{self, RunOptions};
 use crate::error::{Error, Result};
 use crate::expand::{
-    Candidates, Closing, Goal, ModuleRounding, Plan, Round, TOP_UP_ROUNDS, TOTAL_MAX_VARS,
-    add_vars, cheapest_raise, cheapest_whole, reaches, snap_up, target, top_up_one, values,
+    Candidates, Goal, ModuleRounding, Plan, Round, TOP_UP_ROUNDS, TOTAL_MAX_VARS, add_vars,
+    best_reachable, cheapest_raise, reaches, snap_up, target, values,
 };
 use crate::model::Network;
-use crate::scenario::Outage;
+use crate::solve::evaluator::{AddModel, Evaluator};
 use crate::solve::lp::{self, Lp, Sense};
 use crate::solve::{Evaluation, TOL};
 
-/// Per site: surviving, and with processing > 0 or processing that may be bought.
-fn eligible(net: &Network, outage: &Outage, cands: &Candidates) -> Vec<bool> {
-    let alive = outage.site_alive(net);
-    (0..net.sites.len())
-        .map(|v| {
-            alive[v]
-                && (net.sites[v].processing > 0.0
-                    || (cands.cost[v].is_some() && cands.max[v] > 0.0))
-        })
-        .collect()
-}
-
-fn served_row(
-    model: &mut Lp,
-    index: &fixed::FixedIndex,
-    coeff: f64,
-    extra: Option<(usize, f64)>,
-    rhs: f64,
-) {
-    let mut coeffs: Vec<(usize, f64)> = index
-        .demand_vars
-        .iter()
-        .flatten()
-        .map(|&v| (v, coeff))
-        .collect();
+/// Adds `coeff · Σ served + extra ≥ rhs` over the served variables of `m`. O(|served|).
+fn served_row(model: &mut Lp, m: &AddModel, coeff: f64, extra: Option<(usize, f64)>, rhs: f64) {
+    let mut coeffs: Vec<(usize, f64)> = m.served.iter().map(|&v| (v, coeff)).collect();
     coeffs.extend(extra);
     model.add_row(coeffs, Sense::Ge, rhs);
-}
-
-/// The steered routes of `outage` with expandable sites as candidates.
-fn expandable_routes(
-    net: &Network,
-    trees: &Trees,
-    outage: &Outage,
-    cands: &Candidates,
-) -> Vec<Option<DemandRoutes>> {
-    let t = trees.for_outage(net, outage);
-    super::routes(net, &t, &eligible(net, outage, cands))
-}
-
-/// Best steered served_required of `outage` with every candidate expanded as allowed, and
-/// the link directions limiting it (positive shadow price, as
-/// [`Closing::binding_arcs`]). Snapped to `required` within [`TOL`] and
-/// never below `served`.
-fn best_reachable(
-    net: &Network,
-    routes: &[Option<DemandRoutes>],
-    outage: &Outage,
-    cands: &Candidates,
-    required: f64,
-    served: f64,
-) -> Result<(f64, Vec<(usize, f64)>)> {
-    let mut model = Lp::new(true);
-    let add = add_vars(&mut model, net, cands, Some(outage), required, 0.0);
-    let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let index = fixed::build(
-        &mut model,
-        net,
-        routes,
-        Mode::Steered,
-        &caps,
-        1.0,
-        Some(&add),
-    );
-    if index.demand_vars.iter().all(Vec::is_empty) {
-        return Ok((served, Vec::new()));
-    }
-    let sol = lp::solve(&model)?;
-    let best = index.served(&sol.x).clamp(0.0, required);
-    let arcs = crate::expand::binding(
-        index
-            .arc_row
-            .iter()
-            .enumerate()
-            .filter(|&(a, _)| !index.arc_lowered[a])
-            .filter_map(|(a, r)| r.map(|r| (a, sol.duals[r]))),
-    );
-    let best = if (required - best).abs() <= TOL * required.max(1.0) {
-        required
-    } else {
-        best.max(served)
-    };
-    Ok((best, arcs))
-}
-
-/// For one scenario with a steered shortfall (`eval` is its steered evaluation), the
-/// cheapest processing with which the steered served_required reaches the best any
-/// expansion reaches; `None` without shortfall. Two small LPs (best reachable, then least
-/// cost subject to served ≥ best).
-pub fn close(
-    net: &Network,
-    trees: &Trees,
-    outage: &Outage,
-    eval: &Evaluation,
-    cands: &Candidates,
-) -> Result<Option<Closing>> {
-    if eval.shortfall <= 0.0 {
-        return Ok(None);
-    }
-    let required = eval.surviving_required;
-    let routes = expandable_routes(net, trees, outage, cands);
-    let (best, binding_arcs) =
-        best_reachable(net, &routes, outage, cands, required, eval.served_required)?;
-    let scale = required.max(1.0);
-    if best <= eval.served_required + TOL * scale {
-        return Ok(Some(Closing::nothing_to_buy(net, eval, binding_arcs)));
-    }
-    let mut model = Lp::new(false);
-    let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
-    let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let index = fixed::build(
-        &mut model,
-        net,
-        &routes,
-        Mode::Steered,
-        &caps,
-        0.0,
-        Some(&add),
-    );
-    served_row(&mut model, &index, 1.0, None, target(best, required));
-    let whole = cheapest_whole(&model, &add, cands)?;
-    let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
-    let (add_units, after) = top_up_one(cands, best, add_units, |a| {
-        Ok(super::evaluate(&with_added(net, a), trees, outage, Mode::Steered)?.eval)
-    })?;
-    Ok(Some(Closing {
-        cost: cands.cost_of(&add_units),
-        verified: after.proven()
-            && after.served_required >= best - crate::solve::GAP_TOL * required,
-        served_after: after.served_required,
-        add: add_units,
-        best,
-        not_closable: (required - best).max(0.0),
-        binding_links: crate::expand::links_of(net, &binding_arcs),
-        binding_arcs,
-        dual_bound: whole.dual_bound,
-        modules_exhaustive: whole.exhaustive,
-    }))
-}
-
-/// `net` with `add` units of processing added per site.
-pub fn with_added(net: &Network, add: &[f64]) -> Network {
-    let mut n = net.clone();
-    for (s, a) in n.sites.iter_mut().zip(add) {
-        s.processing += a;
-    }
-    n
 }
 
 /// One plan of processing purchases for every scenario of a steered audit. Every outage
@@ -191,25 +50,23 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
     let short: Vec<usize> = (0..audit.outages.len())
         .filter(|&k| audit.evaluations[k].shortfall > 0.0)
         .collect();
+    let model_of = &ra.model;
+    if model_of.mode != Mode::Steered {
+        return Err(Error::Usage(format!(
+            "purchases are not defined for --routing {}",
+            model_of.name()
+        )));
+    }
     let prepared = audit::par_map(&short, opts, "best reachable", |&k| {
         let e = &audit.evaluations[k];
-        let routes = expandable_routes(net, &ra.trees, &audit.outages[k], &cands);
-        let (best, _) = best_reachable(
-            net,
-            &routes,
-            &audit.outages[k],
-            &cands,
-            e.surviving_required,
-            e.served_required,
-        )?;
-        Ok((routes, best))
+        Ok(best_reachable(model_of, net, &audit.outages[k], &cands, e)?.0)
     })?;
     let mut best: Vec<f64> = audit
         .evaluations
         .iter()
         .map(|e| e.served_required)
         .collect();
-    for (&k, (_, b)) in short.iter().zip(&prepared) {
+    for (&k, b) in short.iter().zip(&prepared) {
         best[k] = *b;
     }
     let cap = audit
@@ -239,24 +96,17 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
             .collect();
         model.add_row(coeffs, Sense::Le, b);
     }
-    let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
     let mut indices = Vec::with_capacity(short.len());
-    for (&k, (routes, _)) in short.iter().zip(&prepared) {
+    for &k in &short {
         let mult = audit.outage_of.iter().filter(|&&o| o == k).count() as f64;
         let obj = if matches!(goal, Goal::TotalWithin(_)) {
             mult
         } else {
             0.0
         };
-        let index = fixed::build(
-            &mut model,
-            net,
-            routes,
-            Mode::Steered,
-            &caps,
-            obj,
-            Some(&add),
-        );
+        let index = model_of
+            .add_processing(&mut model, net, &audit.outages[k], &add, obj)
+            .expect("the steered model defines purchases");
         let required = audit.evaluations[k].surviving_required;
         match goal {
             Goal::CloseAll => served_row(&mut model, &index, 1.0, None, target(best[k], required)),
@@ -349,9 +199,8 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
     };
     let mut drivers: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.sites.len()];
     for (&k, index) in short.iter().zip(&indices) {
-        for (v, r) in index.site_row.iter().enumerate() {
+        for (v, r) in index.site_rows.iter().enumerate() {
             if let Some(r) = r
-                && !index.site_lowered[v]
                 && let Some(&y) = duals.get(*r)
                 && y.abs() > 1e-9
             {
@@ -363,13 +212,13 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
         d.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
     }
     let solve_all = |add: &[f64]| -> Result<Vec<Evaluation>> {
-        let applied = with_added(net, add);
+        let applied = net.with_added_processing(add);
         let resolved = audit::par_map(&short, opts, "verifying", |&k| {
-            super::evaluate(&applied, &ra.trees, &audit.outages[k], Mode::Steered)
+            model_of.evaluate(&applied, &audit.outages[k], None)
         })?;
         let mut after: Vec<Evaluation> = audit.evaluations.clone();
         for (&k, r) in short.iter().zip(resolved) {
-            after[k] = r.eval;
+            after[k] = r.evaluation;
         }
         Ok(after)
     };

@@ -9,7 +9,12 @@
 //! candidates with least `dist(o,v) + dist(v,t)`, ties split equally; [`Mode::Steered`]
 //! lets each demand split among all its candidates in any proportion. [`fixed`] holds the
 //! LP of what is served under those fixed routes; [`offered`] the load when every demand
-//! sends its full `required` on the nearest routes; [`expand`] the steered purchase models.
+//! sends its full `required` on the nearest routes; [`expand`] the steered plan.
+//!
+//! Each mode is a [`Model`], an [`Evaluator`] like the exact engines: the audit's batch
+//! drives it, its fixed-route LPs are verified into [`solve::Verified`] results
+//! (`verify_fixed`) and end in [`solve::finish_with`], and closings and plans buy
+//! processing on [`Evaluator::add_processing`].
 //!
 //! Invariants: routed served_required ≤ best re-route (every fixed route is a walk); under
 //! the same outage steered ≥ nearest (nearest's shares are one steered choice). Every
@@ -25,8 +30,9 @@ use std::sync::Arc as Shared;
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::Result;
 use crate::model::{Network, SiteIdx};
-use crate::scenario::{self, Outage, Scenario};
-use crate::solve::{self, Bottleneck, Evaluation, Resource, TOL, lp};
+use crate::scenario::{Outage, Scenario};
+use crate::solve::evaluator::{AddModel, Evaluated, Evaluator, Warm};
+use crate::solve::{self, Evaluation, lp};
 use spt::{Trees, UNREACHABLE};
 
 /// How processing sites are chosen on the deployed routes.
@@ -230,47 +236,46 @@ pub fn offered(net: &Network, routes: &[Option<DemandRoutes>]) -> Offered {
     }
 }
 
-/// Snaps `x` to `target` within [`TOL`] relative to `scale`, else rounds to a 1e-9·scale
-/// grid (the same rule as the best re-route's results, so equal values print equal).
-fn snap(x: f64, target: f64, scale: f64) -> f64 {
-    if scale.is_nan() || scale <= 0.0 {
-        return if x.abs() < 1e-12 { target } else { x };
-    }
-    if (x - target).abs() <= TOL * scale {
-        target
-    } else {
-        let grid = 1e-9 * scale;
-        let q = (x / grid).round() * grid;
-        if q.is_finite() { q } else { x }
-    }
-}
-
-/// A fixed-route result checked like every other: the value reported, how, the feasible
-/// allocation kept and the row prices of the best upper bound.
-struct Checked {
-    value: f64,
-    verification: solve::Verification,
-    /// The scaled-down, feasible allocation ([`solve::verify::packing_lower`]).
-    x: Vec<f64>,
-    /// Row prices of the attempt with the least upper bound (clipped at 0 by readers).
-    duals: Vec<f64>,
-}
-
 /// Solves and verifies a fixed-route model (a packing LP) with each backend of
 /// `ladder` in turn until the result is proven: the scaled-down allocation of
 /// [`solve::verify::packing_lower`] is the proven lower bound (loads and flows reported are
 /// its own, so feasible), the weak-duality bound of the prices
-/// ([`fixed::weak_dual_bound`]) the upper bound. The best bounds of all attempts are kept;
-/// the value is the plainest number between them when they meet within
-/// [`solve::GAP_TOL`] of `at_stake` and the allocation's residual ([`solve::verify::residual`],
-/// each row against what its demands can put on it) is within [`solve::RESIDUAL_TOL`],
-/// else the lower bound. The ladder ends with the simplex, whose vertex and explicit dual
-/// close the bounds where the interior point's prices leave them open. Fails only when
-/// every backend fails.
-fn verify_fixed(model: &lp::Lp, at_stake: f64, ladder: &[&dyn lp::Backend]) -> Result<Checked> {
+/// ([`fixed::weak_dual_bound`]) the upper bound. The best bounds of all attempts are kept
+/// (proven when they meet within [`solve::GAP_TOL`] of `at_stake` and the allocation's
+/// residual, [`solve::verify::residual`], is within [`solve::RESIDUAL_TOL`]); the ladder
+/// ends with the simplex, whose vertex and explicit dual close the bounds where the
+/// interior point's prices leave them open. The result is a [`solve::Verified`] like any
+/// engine's, with the prices of the best upper bound (0 on rows the presolve lowered), for
+/// [`solve::finish_with`]. Fails only when every backend fails.
+///
+/// Cost: one LP solve per attempt plus O(nonzeros) for the residual, repair and bound.
+fn verify_fixed(
+    net: &Network,
+    model: &lp::Lp,
+    index: &fixed::FixedIndex,
+    at_stake: f64,
+    ladder: &[&dyn lp::Backend],
+) -> Result<solve::Verified> {
+    let (n_arcs, n_sites) = (net.arcs.len(), net.sites.len());
+    let allocation_of = |x: &[f64], served: f64| {
+        let (arc_load, site_load) = index.loads(x, n_arcs, n_sites);
+        solve::verify::Repaired {
+            served,
+            demand_flow: index.demand_flows(x),
+            arc_load,
+            site_load,
+            walks: 0,
+            paths: Vec::new(),
+        }
+    };
+    let mut best: Option<solve::Verified> = None;
+    let mut best_upper = f64::INFINITY;
+    let mut best_duals = vec![0.0; model.rows.len()];
+    let mut errors = Vec::new();
     if model.num_vars() == 0 {
-        return Ok(Checked {
-            value: 0.0,
+        best = Some(solve::Verified {
+            allocation: allocation_of(&[], 0.0),
+            lp_value: 0.0,
             verification: solve::Verification {
                 proven: true,
                 lower: 0.0,
@@ -279,18 +284,21 @@ fn verify_fixed(model: &lp::Lp, at_stake: f64, ladder: &[&dyn lp::Backend]) -> R
                 attempts: 0,
                 backend: "none (nothing to route)".into(),
             },
-            x: Vec::new(),
-            duals: vec![0.0; model.rows.len()],
+            arc_price: Vec::new(),
+            site_price: Vec::new(),
+            arc_has_row: Vec::new(),
+            site_has_row: Vec::new(),
+            bound_price: (Vec::new(), Vec::new()),
         });
+        best_upper = 0.0;
     }
     let row_floor = vec![0.0; model.rows.len()];
     let var_floor = &model.upper;
-    let mut best: Option<Checked> = None;
-    let mut best_upper = f64::INFINITY;
-    let mut best_duals = vec![0.0; model.rows.len()];
-    let mut errors = Vec::new();
     for (attempt, backend) in ladder.iter().enumerate() {
-        let sol = match backend.solve(model, None) {
+        if model.num_vars() == 0 {
+            break;
+        }
+        let sol = match backend.solve(model) {
             Ok(s) => s,
             Err(e) => {
                 errors.push(format!("{}: {e}", backend.name()));
@@ -314,8 +322,9 @@ fn verify_fixed(model: &lp::Lp, at_stake: f64, ladder: &[&dyn lp::Backend]) -> R
             (feasible && !b_feasible) || (feasible == b_feasible && lower > b.verification.lower)
         });
         if better {
-            best = Some(Checked {
-                value: lower,
+            best = Some(solve::Verified {
+                allocation: allocation_of(&x, lower),
+                lp_value: index.served(&sol.x),
                 verification: solve::Verification {
                     proven: false,
                     lower,
@@ -324,8 +333,11 @@ fn verify_fixed(model: &lp::Lp, at_stake: f64, ladder: &[&dyn lp::Backend]) -> R
                     attempts: attempt + 1,
                     backend: backend.name().into(),
                 },
-                x,
-                duals: Vec::new(),
+                arc_price: Vec::new(),
+                site_price: Vec::new(),
+                arc_has_row: Vec::new(),
+                site_has_row: Vec::new(),
+                bound_price: (Vec::new(), Vec::new()),
             });
         }
         let Some(b) = best.as_mut() else { continue };
@@ -338,30 +350,37 @@ fn verify_fixed(model: &lp::Lp, at_stake: f64, ladder: &[&dyn lp::Backend]) -> R
         }
     }
     let mut out = best.ok_or_else(|| crate::error::Error::Solver(errors.join("; ")))?;
-    out.duals = best_duals;
-    let v = &out.verification;
-    out.value = if v.proven {
-        solve::reported_in(v.lower, v.upper.max(v.lower), at_stake)
-    } else {
-        v.lower
+    // Prices of the real capacities: a row the presolve lowered does not bind at the real
+    // capacity, so its price is 0.
+    let price = |row: &Option<usize>, lowered: bool| match row {
+        Some(r) if !lowered => best_duals[*r].max(0.0),
+        _ => 0.0,
     };
+    out.arc_price = (0..n_arcs)
+        .map(|a| price(&index.arc_row[a], index.arc_lowered[a]))
+        .collect();
+    out.site_price = (0..n_sites)
+        .map(|v| price(&index.site_row[v], index.site_lowered[v]))
+        .collect();
+    out.arc_has_row = index.arc_row.iter().map(Option::is_some).collect();
+    out.site_has_row = index.site_row.iter().map(Option::is_some).collect();
+    out.bound_price = (out.arc_price.clone(), out.site_price.clone());
     Ok(out)
 }
 
 /// Builds the fixed-route LP of `routes` with per-demand caps `cap` and solves it with
 /// [`verify_fixed`] on [`solve::LADDER`] (`at_stake`: the demand the proof is measured
-/// against); returns the model's index and the checked result.
+/// against).
 fn solve_fixed(
     net: &Network,
     routes: &[Option<DemandRoutes>],
     mode: Mode,
     cap: &[f64],
     at_stake: f64,
-) -> Result<(fixed::FixedIndex, Checked)> {
+) -> Result<solve::Verified> {
     let mut model = lp::Lp::new(true);
     let index = fixed::build(&mut model, net, routes, mode, cap, 1.0, None);
-    let checked = verify_fixed(&model, at_stake, &solve::LADDER)?;
-    Ok((index, checked))
+    verify_fixed(net, &model, &index, at_stake, &solve::LADDER)
 }
 
 /// One outage under the deployed routing.
@@ -379,196 +398,76 @@ pub struct Routed {
 
 /// Evaluates `outage` under `mode`, reusing the baseline trees `base` where the failure
 /// does not touch them. One LP for served_required, a second for throughput only when
-/// some surviving demand's volume exceeds its required part.
+/// some surviving demand's volume exceeds its required part; both end in
+/// [`solve::finish_with`] like every engine's. Cost: the trees touched by the failure
+/// (Dijkstra each), the legs of the demands, and one or two small packing LPs.
 pub fn evaluate(net: &Network, base: &Trees, outage: &Outage, mode: Mode) -> Result<Routed> {
     let trees = base.for_outage(net, outage);
     let routes = routes(net, &trees, &processing_sites(net, outage));
-    evaluate_routes(net, &routes, mode, trees.recomputed)
+    Ok(Routed {
+        eval: evaluate_routes(net, outage, &routes, mode)?,
+        offered: offered(net, &routes),
+        trees_recomputed: trees.recomputed,
+    })
 }
 
-/// [`evaluate`] once the routes are known.
+/// [`evaluate`] once the routes of `outage` are known: the fixed-route LPs verified
+/// (`verify_fixed`) and finished by [`solve::finish_with`], with the demands whose
+/// routes reach no processing site as cut off. The evaluation carries no proof: a
+/// journal's re-check ([`solve::recheck`]) is defined for the best re-route only.
 pub fn evaluate_routes(
     net: &Network,
+    outage: &Outage,
     routes: &[Option<DemandRoutes>],
     mode: Mode,
-    trees_recomputed: usize,
-) -> Result<Routed> {
-    let mut stranded = 0.0;
-    let mut stranded_volume = 0.0;
-    let mut stranded_demands = Vec::new();
-    let mut surviving_required = 0.0;
-    let mut surviving_volume = 0.0;
-    let mut needs_volume_lp = false;
-    for (d, (dem, r)) in net.demands.iter().zip(routes).enumerate() {
-        if r.is_some() {
-            surviving_required += dem.required;
-            surviving_volume += dem.volume;
-            needs_volume_lp |= dem.volume > dem.required;
-        } else {
-            stranded += dem.required;
-            stranded_volume += dem.volume;
-            stranded_demands.push(d);
-        }
-    }
-    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    // Demands whose routes reach no processing site serve nothing: their required part
-    // is summed apart from the rest, so neither total is lost in the other.
-    let cut_off_of = |d: usize| routes[d].as_ref().is_some_and(|r| r.candidates.is_empty());
-    let cut_off_required: f64 = (0..net.demands.len())
-        .filter(|&d| cut_off_of(d))
-        .map(|d| net.demands[d].required)
-        .sum();
-    let servable_required: f64 = if cut_off_required > 0.0 {
-        (0..net.demands.len())
-            .filter(|&d| routes[d].is_some() && !cut_off_of(d))
-            .map(|d| net.demands[d].required)
-            .sum()
-    } else {
-        surviving_required
-    };
-    let (index, sol) = solve_fixed(net, routes, mode, &required, servable_required)?;
-    let served_required = sol.value;
-    let verification = sol.verification.clone();
-    let shortfall = solve::shortfall_of(cut_off_required, servable_required, served_required);
-    // A cut-off demand serves exactly nothing; any other flow is judged against the
-    // servable demand of its origin, never against a larger total.
-    let servable: Vec<bool> = (0..net.demands.len())
-        .map(|d| routes[d].is_some() && !cut_off_of(d))
-        .collect();
-    let scales = solve::flow_scales(net, &servable);
-    let flows = index.demand_flows(&sol.x);
-    let demand_flow: Vec<f64> = (0..net.demands.len())
-        .map(|d| {
-            let (r, scale) = (net.demands[d].required, scales[d]);
-            if servable[d] {
-                snap(snap(flows[d].min(r), r, scale), 0.0, scale)
-            } else {
-                0.0
-            }
-        })
-        .collect();
-    let demand_shortfall: Vec<f64> = (0..net.demands.len())
-        .map(|d| {
-            let r = net.demands[d].required;
-            if routes[d].is_none() {
-                0.0
-            } else if servable[d] {
-                snap(r - demand_flow[d], 0.0, scales[d])
-            } else {
-                r
-            }
-        })
-        .collect();
-    let (arc_load, site_load) = index.loads(&sol.x, net.arcs.len(), net.sites.len());
-    let arc_price: Vec<f64> = index
-        .arc_row
-        .iter()
-        .zip(&index.arc_lowered)
-        .map(|(r, &low)| match r {
-            Some(r) if !low => snap(sol.duals[*r].max(0.0), 0.0, 1.0),
-            _ => 0.0,
-        })
-        .collect();
-    let site_price: Vec<Option<f64>> = index
-        .site_row
-        .iter()
-        .zip(&index.site_lowered)
-        .map(|(r, &low)| {
-            r.map(|r| {
-                if low {
-                    0.0
-                } else {
-                    snap(sol.duals[r].max(0.0), 0.0, 1.0)
-                }
-            })
-        })
-        .collect();
-    let mut bottlenecks = Vec::new();
-    for (a, arc) in net.arcs.iter().enumerate() {
-        if index.arc_row[a].is_none() {
-            continue;
-        }
-        let saturated = if arc.capacity > 0.0 {
-            arc_load[a] >= arc.capacity * (1.0 - 1e-6) - 1e-9
-        } else {
-            arc_price[a] > 0.0
-        };
-        if saturated {
-            bottlenecks.push(Bottleneck {
-                resource: Resource::Arc(a),
-                price: arc_price[a],
-                utilisation: if arc.capacity > 0.0 {
-                    arc_load[a] / arc.capacity
-                } else {
-                    1.0
-                },
-            });
-        }
-    }
-    for (v, site) in net.sites.iter().enumerate() {
-        if index.site_row[v].is_some()
-            && site.processing > 0.0
-            && site_load[v] >= site.processing * (1.0 - 1e-6) - 1e-9
-        {
-            bottlenecks.push(Bottleneck {
-                resource: Resource::Site(v),
-                price: site_price[v].unwrap_or(0.0),
-                utilisation: site_load[v] / site.processing,
-            });
-        }
-    }
-    bottlenecks.sort_by(|a, b| {
-        b.price
-            .total_cmp(&a.price)
-            .then(a.resource.cmp(&b.resource))
-    });
-    let upper_bound = verification.upper;
-    let max_violation = verification.residual;
-    let (throughput, throughput_verification) = if needs_volume_lp {
-        let volume: Vec<f64> = net.demands.iter().map(|d| d.volume).collect();
-        let (_, t) = solve_fixed(net, routes, mode, &volume, surviving_volume)?;
-        (
-            t.value.max(served_required).min(surviving_volume),
-            Some(t.verification),
-        )
-    } else {
-        (served_required, None)
-    };
+) -> Result<Evaluation> {
+    let view = solve::Surviving::new(net, outage, None);
     // A demand whose routes reach no processing site: no path at all on the surviving
     // links, or no processing site on its shortest paths.
-    let cut_off = (0..net.demands.len())
+    let cut_off: Vec<(usize, solve::Unservable)> = (0..net.demands.len())
         .filter(|&d| {
             net.demands[d].required > 0.0
                 && routes[d].as_ref().is_some_and(|r| r.candidates.is_empty())
         })
         .map(|d| (d, solve::Unservable::NoProcessing))
         .collect();
-    Ok(Routed {
-        eval: Evaluation {
-            served_required,
-            shortfall,
-            stranded,
-            stranded_volume,
-            stranded_demands,
-            surviving_required,
-            throughput,
-            demand_flow,
-            demand_shortfall,
-            arc_load,
-            site_load,
-            site_price,
-            arc_price,
-            bottlenecks,
-            upper_bound,
-            max_violation,
-            cut_off,
-            verification,
-            throughput_verification,
-            proof: None,
-        },
-        offered: offered(net, routes),
-        trees_recomputed,
-    })
+    let mut is_cut = vec![false; net.demands.len()];
+    for &(d, _) in &cut_off {
+        is_cut[d] = true;
+    }
+    let live = |d: &usize| routes[*d].is_some();
+    let servable = |d: &usize| live(d) && !is_cut[*d];
+    let stake = |cap: &dyn Fn(usize) -> f64, keep: &dyn Fn(&usize) -> bool| -> f64 {
+        (0..net.demands.len()).filter(keep).map(cap).sum()
+    };
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let solved = solve_fixed(
+        net,
+        routes,
+        mode,
+        &required,
+        stake(&|d| required[d], &servable),
+    )?;
+    let volume = if net
+        .demands
+        .iter()
+        .enumerate()
+        .any(|(d, dem)| live(&d) && dem.volume > dem.required)
+    {
+        let volume: Vec<f64> = net.demands.iter().map(|d| d.volume).collect();
+        Some(solve_fixed(
+            net,
+            routes,
+            mode,
+            &volume,
+            stake(&|d| volume[d], &live),
+        )?)
+    } else {
+        None
+    };
+    let mut eval = solve::finish_with(net, &view, cut_off, solved, volume);
+    eval.proof = None;
+    Ok(eval)
 }
 
 /// A whole audit under a deployed routing, beside the best re-route of the same outages.
@@ -585,8 +484,8 @@ pub struct RoutedAudit {
     /// network): routed, best re-route and offered load.
     pub baseline: Routed,
     pub baseline_best: Evaluation,
-    /// The baseline trees every outage starts from.
-    pub trees: Trees,
+    /// The routing model the audit was evaluated with (its baseline trees).
+    pub model: Model,
 }
 
 impl RoutedAudit {
@@ -610,9 +509,11 @@ pub fn win_back(best: &Evaluation, routed: &Evaluation) -> f64 {
     }
 }
 
-/// Runs every scenario under `mode` and under the best re-route (both in parallel, each
-/// distinct outage once). With `with_best` false the best re-route is not solved and
-/// `best` repeats the routed evaluations (for callers that only need the routed values).
+/// Runs every scenario under `mode` through the audit's [`audit::Batch`] (each distinct
+/// outage once, the routing [`Model`] as its evaluator), then the best re-route and the
+/// offered load of each outage beside it ([`beside`]). With `with_best` false the best
+/// re-route is not solved and `best` repeats the routed evaluations (for callers that only
+/// need the routed values).
 pub fn run(
     net: &Network,
     scenarios: Vec<Scenario>,
@@ -620,24 +521,47 @@ pub fn run(
     opts: RunOptions,
     with_best: bool,
 ) -> Result<RoutedAudit> {
-    let trees = Trees::baseline(net);
-    let (outages, outage_of) = scenario::dedup(net, &scenarios);
-    let routed = audit::par_map(&outages, opts, "routing", |o| {
-        evaluate(net, &trees, o, mode)
-    })?;
+    let model = Model::new(net, mode);
+    let audit = audit::Batch::with_evaluator(net, scenarios, Box::new(model.clone()))
+        .finish(net, opts, None)?;
+    beside(net, model, audit, opts, with_best)
+}
+
+/// The routed `audit` (evaluated by `model`) with what the comparison shows beside it:
+/// the best re-route of each outage (`with_best`), the offered load on the nearest routes,
+/// and the baseline (what every scenario keeps down, `--down`, as for the best re-route).
+/// Cost: one best re-route solve and one route computation per outage, in parallel.
+pub fn beside(
+    net: &Network,
+    model: Model,
+    audit: Audit,
+    opts: RunOptions,
+    with_best: bool,
+) -> Result<RoutedAudit> {
+    let outages = &audit.outages;
     let best = if with_best {
-        audit::par_map(&outages, opts, "solving", |o| solve::evaluate(net, o))?
+        audit::par_map(outages, opts, "solving", |o| solve::evaluate(net, o))?
     } else {
-        routed.iter().map(|r| r.eval.clone()).collect()
+        audit.evaluations.clone()
     };
-    // The baseline is what every scenario keeps down (`--down`), as for the best re-route.
-    let down = scenarios.first().map_or(&[][..], |sc| &sc.down[..]);
+    let offered_of = |o: &Outage| {
+        let trees = model.trees.for_outage(net, o);
+        offered(net, &routes(net, &trees, &processing_sites(net, o)))
+    };
+    let offered: Vec<Offered> = audit::par_map(outages, opts, "routing", |o| Ok(offered_of(o)))?;
+    let down = audit.scenarios.first().map_or(&[][..], |sc| &sc.down[..]);
     let base_outage = Scenario::baseline().with_down(down).outage(net);
-    let base_k = outages.iter().position(|o| *o == base_outage);
-    let (baseline, baseline_best) = match base_k {
-        Some(k) => (routed[k].clone(), best[k].clone()),
+    let (baseline, baseline_best) = match outages.iter().position(|o| *o == base_outage) {
+        Some(k) => (
+            Routed {
+                eval: audit.evaluations[k].clone(),
+                offered: offered[k].clone(),
+                trees_recomputed: 0,
+            },
+            best[k].clone(),
+        ),
         None => {
-            let r = evaluate(net, &trees, &base_outage, mode)?;
+            let r = evaluate(net, &model.trees, &base_outage, model.mode)?;
             let b = if with_best {
                 solve::evaluate(net, &base_outage)?
             } else {
@@ -646,27 +570,84 @@ pub fn run(
             (r, b)
         }
     };
-    let mut evaluations = Vec::with_capacity(routed.len());
-    let mut offered = Vec::with_capacity(routed.len());
-    for r in routed {
-        evaluations.push(r.eval);
-        offered.push(r.offered);
-    }
     Ok(RoutedAudit {
-        mode,
-        audit: Audit {
-            scenarios,
-            outage_of,
-            outages,
-            evaluations,
-            stats: Default::default(),
-        },
+        mode: model.mode,
+        audit,
         best,
         offered,
         baseline,
         baseline_best,
-        trees,
+        model,
     })
+}
+
+/// A routing as deployed as an [`Evaluator`]: the fixed-route LP of `mode` on the
+/// shortest-path routes of each outage, the baseline trees shared where a failure does
+/// not touch them.
+#[derive(Debug, Clone)]
+pub struct Model {
+    pub mode: Mode,
+    /// The baseline trees every outage starts from.
+    pub trees: Trees,
+}
+
+impl Model {
+    /// The model of `mode` on `net` (one Dijkstra per destination). O(sites · (arcs +
+    /// sites) log sites).
+    pub fn new(net: &Network, mode: Mode) -> Model {
+        Model {
+            mode,
+            trees: Trees::baseline(net),
+        }
+    }
+}
+
+impl Evaluator for Model {
+    fn name(&self) -> &'static str {
+        self.mode.name()
+    }
+
+    /// The trees touched by the failure recomputed, the demands' routes, and the
+    /// fixed-route LPs verified and finished ([`evaluate_routes`]). No warm start: the
+    /// models are small. Cost: as [`evaluate`] without the offered load.
+    fn evaluate(&self, net: &Network, outage: &Outage, _: Option<&Warm>) -> Result<Evaluated> {
+        let trees = self.trees.for_outage(net, outage);
+        let routes = routes(net, &trees, &processing_sites(net, outage));
+        Ok(Evaluated::cold(evaluate_routes(
+            net, outage, &routes, self.mode,
+        )?))
+    }
+
+    /// Steered only: the steered model with an expandable surviving site as a candidate
+    /// even at processing 0 (its row `Σ y − add_v ≤ 0`); routes do not depend on
+    /// processing, so the paths stay the shortest paths. Under [`Mode::Nearest`] a
+    /// purchase changes which sites are nearest, so `None`. Cost: the outage's routes and
+    /// O(route nonzeros) rows.
+    fn add_processing(
+        &self,
+        model: &mut lp::Lp,
+        net: &Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        obj: f64,
+    ) -> Option<AddModel> {
+        if self.mode == Mode::Nearest {
+            return None;
+        }
+        let alive = outage.site_alive(net);
+        let eligible: Vec<bool> = (0..net.sites.len())
+            .map(|v| alive[v] && (net.sites[v].processing > 0.0 || add[v].is_some()))
+            .collect();
+        let routes = routes(net, &self.trees.for_outage(net, outage), &eligible);
+        let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+        let index = fixed::build(model, net, &routes, Mode::Steered, &caps, obj, Some(add));
+        Some(AddModel {
+            served: index.demand_vars.iter().flatten().copied().collect(),
+            site_rows: (0..net.sites.len())
+                .map(|v| index.site_row[v].filter(|_| !index.site_lowered[v]))
+                .collect(),
+        })
+    }
 }
 
 /// Relative tolerance (to the surviving required demand) below which a change of offered

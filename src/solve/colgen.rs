@@ -47,13 +47,14 @@
 use std::cmp::Ordering;
 use std::collections::{BinaryHeap, HashMap, HashSet, VecDeque};
 
+use super::edge::{at_stake, caps_of, meets, needs_volume_lp, solve_verified};
+use super::finish::finish;
+use super::flow::Cap;
 use super::lp::{self, Lp, Sense};
 use super::simplex::Simplex;
 use super::surviving::Surviving;
-use super::{
-    Evaluation, Verification, Verified, caps_of, certify, finish, meets, needs_volume_lp,
-    solve_verified, verify,
-};
+use super::types::{Evaluation, Verification, Verified};
+use super::{certify, verify};
 use crate::error::Result;
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -1308,7 +1309,7 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
     for (d, &b) in caps.iter().enumerate() {
         residual = residual.max(over(demand_flow[d], b));
     }
-    let at_stake = super::at_stake(net, view, caps);
+    let at_stake = at_stake(net, view, caps);
     let upper = certify::dual_bound(
         net,
         view,
@@ -1379,15 +1380,8 @@ pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) ->
         parent.and_then(|b| b.required.as_ref()),
         &mut stats,
     )?;
-    let (req_verified, required) = checked(
-        net,
-        &g,
-        &view,
-        required,
-        &caps,
-        super::Cap::Required,
-        &mut stats,
-    )?;
+    let (req_verified, required) =
+        checked(net, &g, &view, required, &caps, Cap::Required, &mut stats)?;
     let (vol_verified, volume) = if needs_volume_lp(net, outage) {
         let vcaps = g.caps(true);
         // Start from the parent's volume optimum, else from this scenario's required walks.
@@ -1399,15 +1393,7 @@ pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) ->
             }
             (None, None) => generate(&g, &vcaps, Vec::new(), Vec::new(), None, &mut stats)?,
         };
-        let (v, solved) = checked(
-            net,
-            &g,
-            &view,
-            solved,
-            &vcaps,
-            super::Cap::Volume,
-            &mut stats,
-        )?;
+        let (v, solved) = checked(net, &g, &view, solved, &vcaps, Cap::Volume, &mut stats)?;
         (Some(v), solved)
     } else {
         (None, None)
@@ -1428,7 +1414,7 @@ fn checked(
     view: &Surviving,
     solved: Option<Solved>,
     caps: &[f64],
-    cap: super::Cap,
+    cap: Cap,
     stats: &mut Stats,
 ) -> Result<(Verified, Option<Solved>)> {
     if let Some(s) = solved {
@@ -1444,7 +1430,7 @@ fn checked(
 }
 
 /// Per demand: its cap under `cap` when it survives `view`, else 0 (as [`Graph::caps`]).
-fn caps_of_view(net: &Network, view: &Surviving, cap: super::Cap) -> Vec<f64> {
+fn caps_of_view(net: &Network, view: &Surviving, cap: Cap) -> Vec<f64> {
     caps_of(net, cap)
         .into_iter()
         .enumerate()

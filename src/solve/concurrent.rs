@@ -157,7 +157,7 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
     };
     let mut errors = Vec::new();
     for backend in ladder {
-        let solution = match backend.solve(&model, None) {
+        let solution = match backend.solve(&model) {
             Ok(s) => s,
             Err(e) => {
                 errors.push(format!("{}: {e}", backend.name()));

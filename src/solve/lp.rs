@@ -146,9 +146,10 @@ fn expression(coeffs: &[(usize, f64)], vars: &[Variable]) -> Expression {
 pub trait Backend: Sync {
     /// A short name for reports (`interior-point`, `simplex`).
     fn name(&self) -> &'static str;
-    /// Solves `lp`; `warm`, when given, is a previous solution of a model with the same
-    /// variables that the backend may start from (backends without warm start ignore it).
-    fn solve(&self, lp: &Lp, warm: Option<&LpSolution>) -> Result<LpSolution>;
+    /// Solves `lp` cold. (Warm starts live a level up: the walk engine's masters keep
+    /// their simplex basis, and an [`crate::solve::evaluator::Evaluator`] takes a parent's
+    /// optimum.)
+    fn solve(&self, lp: &Lp) -> Result<LpSolution>;
 }
 
 /// clarabel's interior-point method with feasibility and gap tolerances `tol` (relative).
@@ -179,7 +180,7 @@ pub struct Simplex;
 /// Every model built by this crate is feasible and bounded; any other status is returned
 /// as [`Error::Solver`].
 pub fn solve(lp: &Lp) -> Result<LpSolution> {
-    CLARABEL.solve(lp, None)
+    CLARABEL.solve(lp)
 }
 
 impl Backend for Clarabel {
@@ -187,7 +188,7 @@ impl Backend for Clarabel {
         "interior-point"
     }
 
-    fn solve(&self, lp: &Lp, _warm: Option<&LpSolution>) -> Result<LpSolution> {
+    fn solve(&self, lp: &Lp) -> Result<LpSolution> {
         let scaling = Scaling::of(lp);
         let scaled = scaling.apply(lp);
         let sol = solve_clarabel(&scaled, *self)?;
@@ -200,7 +201,7 @@ impl Backend for Simplex {
         "simplex"
     }
 
-    fn solve(&self, lp: &Lp, _warm: Option<&LpSolution>) -> Result<LpSolution> {
+    fn solve(&self, lp: &Lp) -> Result<LpSolution> {
         let scaling = Scaling::of(lp);
         let scaled = scaling.apply(lp);
         let primal = solve_microlp(&scaled)?;

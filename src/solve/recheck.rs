@@ -16,7 +16,7 @@
 //!   must lie in `[L, U]` (within that tolerance); an unproven value must not exceed `L`;
 //!   the stored bounds must not claim more than `L` and `U` prove;
 //! - everything else the reports read is either recomputed exactly as
-//!   [`super::finish`] computes it (stranded and surviving totals, cut-off demands,
+//!   [`super::finish::finish`] computes it (stranded and surviving totals, cut-off demands,
 //!   shortfalls, the value from its bounds) or checked against the walks' allocation
 //!   (per-demand flows and loads) and the certificate's prices (shadow prices,
 //!   bottlenecks), and every index is checked to be in range.
@@ -28,12 +28,13 @@
 
 use serde::{Deserialize, Serialize};
 
+use super::finish::{Servable, cut_off_on, reported_flow, reported_shortfall, saturated, snap};
 use super::flow::{self, Cap};
 use super::surviving::Surviving;
 use super::verify::{self, Repaired, Sink, Walk};
 use super::{
-    Evaluation, GAP_TOL, NOISE, RESIDUAL_TOL, Resource, SATURATED, TOL, Verification, Verified,
-    certify, flow_scales, needs_volume_lp, reported_in, shortfall_of, snap,
+    Evaluation, GAP_TOL, NOISE, RESIDUAL_TOL, Resource, TOL, Verification, Verified, certify,
+    needs_volume_lp, reported_in, shortfall_of,
 };
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -241,7 +242,7 @@ fn prove(net: &Network, view: &Surviving, cap: Cap, c: &Certificate) -> Result<P
 }
 
 /// Checks a stored verification against what its certificate proves and returns the
-/// value [`super::finish`] reports for it (`total`: the surviving demand under the LP's
+/// value [`super::finish::finish`] reports for it (`total`: the surviving demand under the LP's
 /// caps). See the module documentation for the rules.
 fn value_of(v: &Verification, total: f64, p: &Proven, what: &str) -> Result<f64, String> {
     let bad = |why: &str| Err(format!("{what}: {why}"));
@@ -332,28 +333,18 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
         return Err("its stranded or surviving demand does not match the network".into());
     }
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let cut_off: Vec<_> = view
-        .unservable(net, &required)
-        .into_iter()
-        .enumerate()
-        .filter_map(|(d, r)| r.map(|r| (d, r)))
-        .collect();
+    let cut_off = cut_off_on(net, &view);
     if e.cut_off != cut_off {
         return Err("its cut-off demands do not match the network".into());
     }
     // As `finish`: the cut-off demands summed apart from the servable ones (what the LP
     // holds), each flow snapped at its origin's servable demand.
-    let cut_off_required: f64 = cut_off.iter().map(|&(d, _)| required[d]).sum();
-    let mut servable: Vec<bool> = (0..nd).map(|d| view.demand_alive(net, d)).collect();
-    for &(d, _) in &cut_off {
-        servable[d] = false;
-    }
-    let servable_required: f64 = if cut_off.is_empty() {
-        surviving_required
-    } else {
-        (0..nd).filter(|&d| servable[d]).map(|d| required[d]).sum()
-    };
-    let scales = flow_scales(net, &servable);
+    let Servable {
+        servable,
+        cut_off_required,
+        servable_required,
+        scales,
+    } = Servable::of(net, &view, surviving_required, &cut_off);
 
     // served_required: the certificate's bounds, then the value from the stored bounds.
     let req = prove(net, &view, Cap::Required, &proof.required)?;
@@ -394,24 +385,14 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
         let f = e.demand_flow[d];
         // As `finish` reports the walks' flow (snapped to the demand or to 0).
         let (req_d, sc) = (required[d], scales[d]);
-        let walked = if servable[d] {
-            snap(snap(alloc.demand_flow[d].min(req_d), req_d, sc), 0.0, sc)
-        } else {
-            0.0
-        };
+        let walked = reported_flow(alloc.demand_flow[d], req_d, servable[d], sc);
         if !near(f, walked, (TOL + 2.0 * NOISE) * scale) {
             return Err(format!(
                 "demand {}: its flow {f} is not the stored walks' ({walked})",
                 net.demands[d].label
             ));
         }
-        let short = if !view.demand_alive(net, d) {
-            0.0
-        } else if servable[d] {
-            snap(req_d - f, 0.0, sc)
-        } else {
-            req_d
-        };
+        let short = reported_shortfall(view.demand_alive(net, d), servable[d], req_d, f, sc);
         if e.demand_shortfall[d] != short {
             return Err(format!(
                 "demand {}: its shortfall does not agree with its flow",
@@ -456,7 +437,7 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
             ),
             _ => return Err("a bottleneck names a resource out of range".into()),
         };
-        if load < cap * SATURATED || b.utilisation != load / cap || b.price != price {
+        if saturated(b.resource, load, cap, price).as_ref() != Some(b) {
             return Err("a bottleneck is not saturated or not priced as its resource".into());
         }
     }

@@ -612,7 +612,7 @@ mod tests {
                     .collect();
                 lp.add_row(coeffs, Sense::Le, b);
             }
-            let reference = crate::solve::lp::Simplex.solve(&lp, None).unwrap();
+            let reference = crate::solve::lp::Simplex.solve(&lp).unwrap();
             let mut s = Simplex::new();
             for &b in &rhs {
                 s.add_row(b, &[]);

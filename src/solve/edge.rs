@@ -1,0 +1,261 @@
+//! The edge LP: the two-layer flow model of one outage ([`super::flow`]) solved by the
+//! backends of [`super::LADDER`] in turn and verified ([`solve_verified`]): the engine the
+//! walk engine falls back to and the expansion models build on.
+
+use super::flow::{self, Cap};
+use super::lp::{self, Backend};
+use super::surviving::{Surviving, Unservable};
+use super::types::{Verification, Verified};
+use super::{GAP_TOL, LADDER, RESIDUAL_TOL, certify, verify};
+use crate::error::{Error, Result};
+use crate::model::Network;
+use crate::scenario::Outage;
+
+/// Solves the served_required LP of `net` under `outage` and returns it with its flow
+/// index, with the default backend and no verification. The building block of the
+/// expansion models; [`super::evaluate`] verifies.
+pub fn solve_flow(
+    net: &Network,
+    outage: &Outage,
+    cap: Cap,
+) -> Result<(lp::Lp, flow::FlowIndex, lp::LpSolution)> {
+    let mut model = lp::Lp::new(true);
+    let index = flow::build(&mut model, net, outage, cap, 1.0, None);
+    let sol = if model.num_vars() == 0 {
+        empty_solution(&model)
+    } else {
+        lp::solve(&model)?
+    };
+    Ok((model, index, sol))
+}
+
+fn empty_solution(model: &lp::Lp) -> lp::LpSolution {
+    lp::LpSolution {
+        x: Vec::new(),
+        duals: vec![0.0; model.rows.len()],
+        upper_duals: Vec::new(),
+        objective: 0.0,
+    }
+}
+
+/// Whether `proven`: residual within [`RESIDUAL_TOL`] and the bounds within [`GAP_TOL`]
+/// of `at_stake` of each other (in either direction: crossing bounds are a defect).
+pub fn meets(residual: f64, lower: f64, upper: f64, at_stake: f64) -> bool {
+    let gap = upper - lower;
+    let tol = GAP_TOL * at_stake.max(f64::MIN_POSITIVE);
+    residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol
+}
+
+/// Σ of the demand caps of the demands that some walk through a processing site can
+/// serve on `view`: what is at stake in the LP. O(demands + reachability).
+pub fn at_stake(net: &Network, view: &Surviving, bound: &[f64]) -> f64 {
+    view.unservable(net, bound)
+        .iter()
+        .enumerate()
+        .filter(|(d, r)| r.is_none() && view.demand_alive(net, *d) && bound[*d] > 0.0)
+        .map(|(d, _)| bound[d])
+        .sum()
+}
+
+/// The demand caps of `cap`, per demand.
+pub fn caps_of(net: &Network, cap: Cap) -> Vec<f64> {
+    net.demands
+        .iter()
+        .map(|d| match cap {
+            Cap::Required => d.required,
+            Cap::Volume => d.volume,
+        })
+        .collect()
+}
+
+/// Builds the flow LP of `view` with demand caps `cap`, solves it with each backend of
+/// [`LADDER`] in turn until the result is proven, and keeps the best proven bounds of all
+/// attempts. Fails only when every backend fails.
+///
+/// Cost: one LP solve when the first backend is proven (the common case), plus the
+/// certificate (O(sites · arcs · log sites)) and the repair per attempt.
+pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verified> {
+    solve_verified_with(net, view, cap, &LADDER)
+}
+
+/// [`solve_verified`] with another ladder of backends (tests use it to check that a
+/// backend's wrong answer is caught).
+pub fn solve_verified_with(
+    net: &Network,
+    view: &Surviving,
+    cap: Cap,
+    ladder: &[&dyn Backend],
+) -> Result<Verified> {
+    let mut model = lp::Lp::new(true);
+    let index = flow::build_on(&mut model, net, view, cap, 1.0, None);
+    let bound = caps_of(net, cap);
+    let at_stake: f64 = index
+        .demand_var
+        .iter()
+        .enumerate()
+        .filter(|(_, v)| v.is_some())
+        .map(|(d, _)| bound[d])
+        .sum();
+    let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
+    let site_capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    if model.num_vars() == 0 {
+        let solution = empty_solution(&model);
+        let allocation = verify::repair(
+            net,
+            &index,
+            &solution.x,
+            &arc_capacity,
+            &site_capacity,
+            &bound,
+        );
+        return Ok(Verified {
+            allocation,
+            lp_value: 0.0,
+            verification: Verification {
+                proven: true,
+                lower: 0.0,
+                upper: 0.0,
+                residual: 0.0,
+                attempts: 0,
+                backend: "none (nothing to route)".into(),
+            },
+            arc_price: vec![0.0; net.arcs.len()],
+            site_price: vec![0.0; net.sites.len()],
+            arc_has_row: vec![false; net.arcs.len()],
+            site_has_row: vec![false; net.sites.len()],
+            bound_price: (Vec::new(), Vec::new()),
+        });
+    }
+    let scale = at_stake.max(f64::MIN_POSITIVE);
+    let (row_floor, var_floor) = index.magnitudes(&model, f64::MIN_POSITIVE);
+    let mut best: Option<Verified> = None;
+    let mut best_upper = f64::INFINITY;
+    let mut best_prices: (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
+    let mut errors = Vec::new();
+    for (attempt, backend) in ladder.iter().enumerate() {
+        let solution = match backend.solve(&model) {
+            Ok(s) => s,
+            Err(e) => {
+                errors.push(format!("{}: {e}", backend.name()));
+                continue;
+            }
+        };
+        let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
+        let allocation = verify::repair(
+            net,
+            &index,
+            &solution.x,
+            &arc_capacity,
+            &site_capacity,
+            &bound,
+        );
+        let arc_price: Vec<f64> = index
+            .arc_row
+            .iter()
+            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
+            .collect();
+        let site_price: Vec<f64> = index
+            .site_row
+            .iter()
+            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
+            .collect();
+        let upper = certify::dual_bound(
+            net,
+            view,
+            &bound,
+            &index.arc_cap,
+            &index.site_cap,
+            &arc_price,
+            &site_price,
+        )
+        .min(at_stake);
+        if upper < best_upper {
+            best_upper = upper;
+            best_prices = (arc_price, site_price);
+        }
+        let lp_value = index.served(&solution.x);
+        // Prefer an allocation that passes the residual check, then the larger lower bound.
+        let feasible = residual <= RESIDUAL_TOL;
+        let better = best.as_ref().is_none_or(|b| {
+            let b_feasible = b.verification.residual <= RESIDUAL_TOL;
+            (feasible && !b_feasible)
+                || (feasible == b_feasible && allocation.served > b.allocation.served)
+        });
+        if better {
+            best = Some(Verified {
+                lp_value,
+                verification: Verification {
+                    proven: false,
+                    lower: allocation.served,
+                    upper: f64::INFINITY,
+                    residual,
+                    attempts: attempt + 1,
+                    backend: backend.name().into(),
+                },
+                allocation,
+                arc_price: Vec::new(),
+                site_price: Vec::new(),
+                arc_has_row: index.arc_row.iter().map(Option::is_some).collect(),
+                site_has_row: index.site_row.iter().map(Option::is_some).collect(),
+                bound_price: (Vec::new(), Vec::new()),
+            });
+        }
+        let b = best.as_mut().expect("set above");
+        b.verification.attempts = attempt + 1;
+        b.verification.upper = best_upper;
+        b.verification.proven = meets(
+            b.verification.residual,
+            b.verification.lower,
+            best_upper,
+            scale,
+        );
+        if b.verification.proven {
+            break;
+        }
+    }
+    let mut out = best.ok_or_else(|| Error::Solver(errors.join("; ")))?;
+    // The presolve lowers rows that cannot bind; a price on such a row is not a price of
+    // the real capacity.
+    out.arc_price = (0..net.arcs.len())
+        .map(|a| {
+            if index.arc_cap[a] < net.arcs[a].capacity {
+                0.0
+            } else {
+                best_prices.0[a]
+            }
+        })
+        .collect();
+    out.site_price = (0..net.sites.len())
+        .map(|v| {
+            if index.site_cap[v] < net.sites[v].processing {
+                0.0
+            } else {
+                best_prices.1[v]
+            }
+        })
+        .collect();
+    out.bound_price = best_prices;
+    Ok(out)
+}
+
+/// Demands with required > 0 that no walk through a processing site can serve even with
+/// nothing failed, with the reason (structural: reachability only, no LP).
+/// O(sources · (sites + arcs)).
+pub fn baseline_cut_off(net: &Network) -> Vec<(usize, Unservable)> {
+    let view = Surviving::new(net, &Outage::default(), None);
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    view.unservable(net, &required)
+        .into_iter()
+        .enumerate()
+        .filter_map(|(d, r)| r.map(|r| (d, r)))
+        .collect()
+}
+
+/// Whether some surviving demand offers more than its required part, so that throughput
+/// needs its own LP (with volume caps). O(demands).
+pub fn needs_volume_lp(net: &Network, outage: &Outage) -> bool {
+    let site_alive = outage.site_alive(net);
+    net.demands
+        .iter()
+        .any(|d| site_alive[d.from] && site_alive[d.to] && d.volume > d.required)
+}

@@ -1,0 +1,191 @@
+//! The evaluator seam: one trait through which the audit ([`crate::audit::Batch`]) and
+//! everything built on it (closings, plans, compare, shards, resume) drive an engine or a
+//! routing model, so that none of them knows which one it runs.
+//!
+//! Implemented by the edge LP ([`Edge`]), the walk engine ([`Walks`]) and each routing as
+//! deployed ([`crate::routing::Model`]). Every implementation ends in
+//! [`super::finish_with`] (directly or through [`super::finish::finish`]), so stranded totals,
+//! snapping, prices and bottlenecks are computed once for all of them.
+
+use std::any::Any;
+
+use super::colgen::{self, Stats};
+use super::flow::{self, Cap};
+use super::lp::Lp;
+use super::{Evaluation, Surviving, finish, needs_volume_lp, solve_verified};
+use crate::error::Result;
+use crate::model::Network;
+use crate::scenario::Outage;
+
+/// An engine's optimum kept to start a child outage from (the walk engine's
+/// [`colgen::Basis`]); opaque to the batch, which only hands it back to the evaluator that
+/// made it.
+pub type Warm = Box<dyn Any + Send + Sync>;
+
+/// One outage evaluated: the verified [`Evaluation`], what a child may start from, and the
+/// work done.
+pub struct Evaluated {
+    pub evaluation: Evaluation,
+    /// `Some` only from an evaluator whose [`Evaluator::warm_starts`] is true.
+    pub warm: Option<Warm>,
+    /// Work counted by the walk engine (zero for the others).
+    pub stats: Stats,
+}
+
+impl Evaluated {
+    /// A result without warm start or counted work.
+    pub fn cold(evaluation: Evaluation) -> Evaluated {
+        Evaluated {
+            evaluation,
+            warm: None,
+            stats: Stats::default(),
+        }
+    }
+}
+
+/// The served model of one outage with added-processing variables, as built into a
+/// caller's [`Lp`] by [`Evaluator::add_processing`].
+pub struct AddModel {
+    /// The variables whose sum is the outage's served_required.
+    pub served: Vec<usize>,
+    /// Per site: its processing row when that row can bind at the real capacity (`None`
+    /// without a row or when the presolve lowered it); the plans read its price.
+    pub site_rows: Vec<Option<usize>>,
+}
+
+/// Evaluates one outage on the network left standing: the seam every engine and routing
+/// model plugs into.
+///
+/// What it computes: [`Evaluator::evaluate`] returns the outage's verified
+/// [`Evaluation`] (served_required and throughput proven or reported unproven with their
+/// bounds, one feasible allocation, prices, bottlenecks), ending in
+/// [`super::finish_with`]; [`Evaluator::add_processing`] builds the same served model with
+/// added-processing variables for closings and plans (`None` when purchases are not
+/// defined for the model).
+///
+/// Invariants an implementation keeps: `evaluate` is a pure function of (network, outage,
+/// warm), so results do not depend on threads, shards or what a resume restored; a warm
+/// start changes the work, never the verified values beyond the tolerances of
+/// [`super::GAP_TOL`]; the reported values come only from verified bounds (a lower bound
+/// from a feasible allocation, an upper bound valid for any prices); more processing never
+/// lowers served_required (what [`crate::expand`] relies on).
+///
+/// Adding an engine: implement this trait, end `evaluate` in [`super::finish_with`] with
+/// the engine's own [`super::Verified`] results and the demands its model cannot serve at
+/// all, and map it in [`crate::audit::evaluator`]. A (1 − ε)-approximate engine plugs in
+/// the same way: its `Verified` carries its proven lower and upper bounds, and results
+/// outside [`super::GAP_TOL`] are reported unproven with those bounds, never as exact.
+/// A service-chain model (an ordered list of processing kinds per demand) plugs in as a
+/// routing model does: its own LP, verified into a `Verified`, and `add_processing` with
+/// one row per chained site.
+pub trait Evaluator: Send + Sync {
+    /// A short name (`edge`, `walks`, `nearest`, `steered`).
+    fn name(&self) -> &'static str;
+
+    /// The verified evaluation of `outage`; `warm`, when given, is the [`Evaluated::warm`]
+    /// this evaluator returned for an outage whose failed set is a subset of this one's.
+    fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>) -> Result<Evaluated>;
+
+    /// Whether [`Evaluator::evaluate`] starts from a parent's optimum: the batch then
+    /// solves the baseline first and children in families from their parent.
+    fn warm_starts(&self) -> bool {
+        false
+    }
+
+    /// Builds the served_required model of `outage` into `model` with the additions
+    /// `add` (per site: its `add_v` variable) in the processing rows, each served unit
+    /// weighted `obj` in the objective. `None` when buying processing is not defined for
+    /// this model (it would change the routes).
+    fn add_processing(
+        &self,
+        model: &mut Lp,
+        net: &Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        obj: f64,
+    ) -> Option<AddModel>;
+}
+
+/// The edge LP: one two-layer flow LP per quantity ([`super::solve_verified`] climbing
+/// [`super::LADDER`]), cold. Cost: one or two verified LP solves of the size given in
+/// [`flow::build`].
+pub struct Edge;
+
+impl Evaluator for Edge {
+    fn name(&self) -> &'static str {
+        "edge"
+    }
+
+    fn evaluate(&self, net: &Network, outage: &Outage, _: Option<&Warm>) -> Result<Evaluated> {
+        let view = Surviving::new(net, outage, None);
+        let required = solve_verified(net, &view, Cap::Required)?;
+        let volume = if needs_volume_lp(net, outage) {
+            Some(solve_verified(net, &view, Cap::Volume)?)
+        } else {
+            None
+        };
+        Ok(Evaluated::cold(finish(net, &view, required, volume)))
+    }
+
+    fn add_processing(
+        &self,
+        model: &mut Lp,
+        net: &Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        obj: f64,
+    ) -> Option<AddModel> {
+        Some(two_layer_with(model, net, outage, add, obj))
+    }
+}
+
+/// The two-layer model with additions: what both exact engines buy against.
+fn two_layer_with(
+    model: &mut Lp,
+    net: &Network,
+    outage: &Outage,
+    add: &[Option<usize>],
+    obj: f64,
+) -> AddModel {
+    let index = flow::build(model, net, outage, Cap::Required, obj, Some(add));
+    AddModel {
+        served: index.demand_var.iter().flatten().copied().collect(),
+        site_rows: index.site_row.clone(),
+    }
+}
+
+/// The walk engine ([`colgen::evaluate_walks`]): column generation over processing walks,
+/// started from a parent's [`colgen::Basis`]; an answer it cannot prove falls back to the
+/// edge LP. Cost: see [`colgen::evaluate_walks`]; memory independent of sources × arcs.
+pub struct Walks;
+
+impl Evaluator for Walks {
+    fn name(&self) -> &'static str {
+        "walks"
+    }
+
+    fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>) -> Result<Evaluated> {
+        let parent = warm.and_then(|w| w.downcast_ref::<colgen::Basis>());
+        let w = colgen::evaluate_walks(net, outage, parent)?;
+        Ok(Evaluated {
+            evaluation: w.evaluation,
+            warm: Some(Box::new(w.basis)),
+            stats: w.stats,
+        })
+    }
+
+    fn warm_starts(&self) -> bool {
+        true
+    }
+
+    fn add_processing(
+        &self,
+        model: &mut Lp,
+        net: &Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        obj: f64,
+    ) -> Option<AddModel> {
+        Some(two_layer_with(model, net, outage, add, obj))
+    }
+}

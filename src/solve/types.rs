@@ -1,0 +1,237 @@
+//! The results every engine produces and every report reads: [`Verified`] (one LP answer
+//! with its proven bounds and prices, whatever engine made it) and [`Evaluation`] (one
+//! outage as reported). Shared by the engines ([`super::edge`], [`super::colgen`], the
+//! routing models) and the common ending ([`super::finish::finish_with`]) without any of them
+//! importing another.
+
+use super::surviving::Unservable;
+use super::{recheck, verify};
+use crate::model::{LinkIdx, Network, SiteIdx};
+
+/// A saturated resource of an optimal allocation with its shadow price (served units per
+/// added unit of capacity).
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Bottleneck {
+    pub resource: Resource,
+    pub price: f64,
+    /// Load over capacity in the allocation (1.0 when saturated).
+    pub utilisation: f64,
+}
+
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, serde::Serialize, serde::Deserialize,
+)]
+pub enum Resource {
+    /// A link direction: the arc index in `Network::arcs`.
+    Arc(usize),
+    /// A site's processing.
+    Site(SiteIdx),
+}
+
+/// How one LP result was verified.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Verification {
+    /// The bounds meet within [`super::GAP_TOL`] and the allocation is feasible.
+    pub proven: bool,
+    /// Proven lower bound: delivered flow of the repaired, feasible allocation.
+    pub lower: f64,
+    /// Proven upper bound: the dual bound, capped by the demand at stake.
+    pub upper: f64,
+    /// Largest relative row residual of the backend's allocation that was kept.
+    pub residual: f64,
+    /// Backends tried (1 when the first one was proven).
+    pub attempts: usize,
+    /// The backend whose allocation was kept.
+    pub backend: String,
+}
+
+/// Everything the tool reports for one outage.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Evaluation {
+    /// Largest Σ f_d over surviving demands with f_d <= required_d (the proven lower bound
+    /// when the result is unproven).
+    pub served_required: f64,
+    /// Σ surviving required − served_required, summed as the cut-off demands' required
+    /// plus what the servable ones miss ([`super::shortfall_of`]), so a small cut-off demand beside
+    /// large served ones is not lost to rounding.
+    pub shortfall: f64,
+    /// Σ required of demands with a failed endpoint site.
+    pub stranded: f64,
+    /// Σ volume of those demands.
+    pub stranded_volume: f64,
+    /// Indices of the stranded demands.
+    pub stranded_demands: Vec<usize>,
+    /// Σ required of the surviving demands.
+    pub surviving_required: f64,
+    /// Largest Σ f_d with f_d <= volume_d over surviving demands.
+    pub throughput: f64,
+    /// Per demand: flow in one optimal allocation of the served_required LP.
+    pub demand_flow: Vec<f64>,
+    /// Per demand: required − flow (0 for stranded demands).
+    pub demand_shortfall: Vec<f64>,
+    /// Per arc: load in that allocation.
+    pub arc_load: Vec<f64>,
+    /// Per site: processing used in that allocation.
+    pub site_load: Vec<f64>,
+    /// Per site: shadow price of its processing row (`None` when the site has no row:
+    /// no capacity, failed, or unreachable by any demand).
+    pub site_price: Vec<Option<f64>>,
+    /// Per arc: shadow price of its capacity (0 when absent, or when the presolve lowered
+    /// the row below the real capacity: the real capacity does not bind then).
+    pub arc_price: Vec<f64>,
+    /// Saturated resources, highest shadow price first (ties by resource order).
+    pub bottlenecks: Vec<Bottleneck>,
+    /// Certified upper bound on served_required ([`super::certify::dual_bound`]).
+    pub upper_bound: f64,
+    /// Largest relative row violation of the returned allocation.
+    pub max_violation: f64,
+    /// Surviving demands with required > 0 that no walk through a processing site can
+    /// serve at all (cut off by the outage), with the reason.
+    pub cut_off: Vec<(usize, Unservable)>,
+    /// How served_required was verified.
+    pub verification: Verification,
+    /// How throughput was verified (`None` when it equals served_required by definition:
+    /// no surviving demand offers more than its required part).
+    pub throughput_verification: Option<Verification>,
+    /// What a journal or part file keeps so that the result can be verified again without
+    /// solving ([`recheck::recheck`]); `None` in thin evaluations and where nothing reads
+    /// it back. Never shown in a report.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub proof: Option<Box<recheck::Proof>>,
+}
+
+impl Evaluation {
+    /// Saturated links (each once, in link order).
+    pub fn saturated_links(&self, net: &Network) -> Vec<LinkIdx> {
+        let mut v: Vec<LinkIdx> = self
+            .bottlenecks
+            .iter()
+            .filter_map(|b| match b.resource {
+                Resource::Arc(a) => Some(net.arcs[a].link),
+                Resource::Site(_) => None,
+            })
+            .collect();
+        v.sort_unstable();
+        v.dedup();
+        v
+    }
+
+    /// Saturated sites, in site order.
+    pub fn saturated_sites(&self) -> Vec<SiteIdx> {
+        let mut v: Vec<SiteIdx> = self
+            .bottlenecks
+            .iter()
+            .filter_map(|b| match b.resource {
+                Resource::Site(s) => Some(s),
+                Resource::Arc(_) => None,
+            })
+            .collect();
+        v.sort_unstable();
+        v
+    }
+
+    /// served_required / surviving required (1 when nothing is required).
+    pub fn served_fraction(&self) -> f64 {
+        if self.surviving_required > 0.0 {
+            self.served_required / self.surviving_required
+        } else {
+            1.0
+        }
+    }
+
+    /// (upper bound − served_required) / surviving required: how far the reported value
+    /// may be below the optimum, relative to the demand at stake. Never clamped: a
+    /// negative value would mean the bounds cross (and the result is then unproven).
+    pub fn certified_gap(&self) -> f64 {
+        relative_gap(
+            self.upper_bound,
+            self.served_required,
+            self.surviving_required,
+        )
+    }
+
+    /// Both LPs of this outage were proven optimal.
+    pub fn proven(&self) -> bool {
+        self.verification.proven
+            && self
+                .throughput_verification
+                .as_ref()
+                .is_none_or(|v| v.proven)
+    }
+
+    /// The evaluation without its per-demand, per-arc and per-site vectors (`demand_flow`,
+    /// `demand_shortfall`, `arc_load`, `site_load`, `arc_price` emptied, and `site_price`
+    /// unless the outage has a shortfall): what ranking, gates, criticality, the relief
+    /// table and the verification summary read, in a few hundred bytes instead of
+    /// O(demands + arcs + sites). O(1) beyond freeing. Invariant:
+    /// every scalar, `bottlenecks`, `cut_off`, `stranded_demands` and both verifications
+    /// are unchanged; a report that shows the dropped vectors asks for the full evaluation
+    /// again ([`Evaluation::is_thin`]).
+    pub fn thin(mut self) -> Evaluation {
+        for v in [
+            &mut self.demand_flow,
+            &mut self.demand_shortfall,
+            &mut self.arc_load,
+            &mut self.site_load,
+            &mut self.arc_price,
+        ] {
+            *v = Vec::new();
+        }
+        if self.shortfall <= 0.0 {
+            self.site_price = Vec::new();
+        }
+        self.proof = None;
+        self.bottlenecks.shrink_to_fit();
+        self.cut_off.shrink_to_fit();
+        self.stranded_demands.shrink_to_fit();
+        self
+    }
+
+    /// Whether this is a [`thin`](Evaluation::thin) evaluation of `net` (its per-demand
+    /// vectors are missing; a full one has one entry per demand).
+    pub fn is_thin(&self, net: &Network) -> bool {
+        self.demand_flow.len() != net.demands.len()
+    }
+
+    /// Surviving required demand cut off for `reason` (Σ required of those demands).
+    pub fn cut_off_required(&self, net: &Network, reason: Unservable) -> f64 {
+        self.cut_off
+            .iter()
+            .filter(|(_, r)| *r == reason)
+            .map(|&(d, _)| net.demands[d].required)
+            .sum()
+    }
+}
+
+/// `(upper − value) / scale`, with `scale` floored so an empty scenario gives 0.
+fn relative_gap(upper: f64, value: f64, scale: f64) -> f64 {
+    let gap = upper - value;
+    if gap == 0.0 {
+        0.0
+    } else {
+        gap / scale.max(f64::MIN_POSITIVE)
+    }
+}
+
+/// One verified LP result, whatever engine produced it: the feasible allocation, the
+/// bounds, and the shadow prices of the real capacities.
+#[derive(Debug, Clone)]
+pub struct Verified {
+    /// The repaired, feasible allocation (its `served` is the proven lower bound).
+    pub allocation: verify::Repaired,
+    /// The engine's own objective value (Σ f_d of its allocation).
+    pub lp_value: f64,
+    pub verification: Verification,
+    /// Per arc: shadow price of its real capacity (0 when the model had no row for it, or
+    /// when the presolve lowered the row below the real capacity: it does not bind then).
+    pub arc_price: Vec<f64>,
+    /// Per site: the same for processing.
+    pub site_price: Vec<f64>,
+    /// Per arc: the model has a capacity row for it (some flow could use it).
+    pub arc_has_row: Vec<bool>,
+    /// Per site: the model has a processing row for it.
+    pub site_has_row: Vec<bool>,
+    /// Per arc and per site: the prices that gave the upper bound (as the certificate
+    /// read them, before rows lowered by the presolve were zeroed above).
+    pub bound_price: (Vec<f64>, Vec<f64>),
+}
