@@ -2,7 +2,7 @@
 //! of a network, matched by the names of their failed elements.
 //!
 //! A scenario present on both sides *got worse* when its shortfall or its stranded
-//! demand, each as printed ([`crate::report::displayed`]), rose by more than the
+//! demand, each as printed ([`crate::numbers::displayed`]), rose by more than the
 //! tolerance; *better* when either fell by more than it and neither rose. A scenario that
 //! names an element only one side has is an *added risk* (only after) or a *removed risk*
 //! (only before). A scenario on both sides is *newly short* when its shortfall as printed
@@ -19,7 +19,8 @@ use crate::audit::Audit;
 use crate::cli::{CompareArgs, Engine};
 use crate::error::{Error, Result};
 use crate::model::Network;
-use crate::report::{self, displayed};
+use crate::numbers::displayed;
+use crate::report;
 use crate::scenario::{self, Kinds};
 use crate::solve::Evaluation;
 use crate::{Outcome, stdout_result};

@@ -12,7 +12,9 @@ pub mod error;
 pub mod expand;
 pub mod fold;
 pub mod gate;
+pub mod journal;
 pub mod model;
+pub mod numbers;
 pub mod rank;
 pub mod report;
 pub mod risk;
@@ -24,11 +26,11 @@ use std::io::{self, Write};
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
+use crate::journal::Journal;
 use cli::{AuditArgs, Cli, Command, MergeArgs, Objective, PlanArgs, Routing, ScenarioArgs};
 use error::{Error, Result};
 use gate::{Gate, GateKind};
 use model::Network;
-use report::journal::{self, Journal};
 use scenario::{Element, Kinds, Scenario};
 
 /// What a successful command ends with.
