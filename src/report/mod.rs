@@ -5,10 +5,12 @@
 //! Every exporter writes to a `&mut dyn Write` it is given; nothing here prints.
 
 pub mod csv;
+pub mod export;
 pub mod file;
 pub mod html;
 pub mod json;
 pub mod markdown;
+pub mod model;
 pub mod notes;
 pub mod routing;
 pub mod screen;

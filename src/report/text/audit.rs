@@ -4,6 +4,8 @@
 use super::check::baseline_misses;
 #[allow(unused_imports)]
 use super::*;
+use crate::report::export::{Exporter, Text};
+use crate::report::model::Model;
 
 /// What the columns of the scenario table mean, in words.
 pub(super) fn column_legend(base_short: bool) -> String {
@@ -24,12 +26,12 @@ pub(super) fn column_legend(base_short: bool) -> String {
 /// The one-line verdict that opens the audit text: how many scenarios are short and the
 /// worst with its shortfall and stranded demand, after `PASS`/`FAIL` and how many gates
 /// failed when there are gates.
-pub fn verdict(net: &Network, audit: &Audit, gates: &[GateResult]) -> String {
+pub fn verdict(m: &Model<'_>) -> String {
+    let (net, audit, gates) = (m.net, m.audit, m.gates);
     let u = &net.unit;
     let n = audit.scenarios.len();
-    let short = (0..n).filter(|&i| audit.eval(i).shortfall > 0.0).count();
-    let worst = rank::worst_first(audit).first().copied();
-    let scenarios = match worst {
+    let short = m.short;
+    let scenarios = match m.worst() {
         Some(i) if short > 0 => {
             let e = audit.eval(i);
             format!(
@@ -63,7 +65,8 @@ pub fn verdict(net: &Network, audit: &Audit, gates: &[GateResult]) -> String {
 
 /// The audit report: header, worst scenarios, element criticality (the caller ends the
 /// report with [`caution`]).
-pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: usize) -> String {
+pub fn audit_report(m: &Model<'_>) -> String {
+    let (net, audit, baseline, top) = (m.net, m.audit, m.baseline, m.top);
     let u = &net.unit;
     let mut out = String::new();
     let _ = writeln!(
@@ -121,13 +124,10 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             );
         }
     }
-    let folding = crate::fold::Folding::of(audit);
-    let cands = crate::expand::Candidates::of(net);
-    let all = rank::worst_first(audit).len();
-    let order: Vec<usize> = rank::worst_first(audit)
-        .into_iter()
-        .filter(|&i| folding.into[i].is_none())
-        .collect();
+    let folding = &m.folding;
+    let cands = &m.candidates;
+    let all = m.order.len();
+    let order = &m.shown;
     let shown = top.min(order.len());
     let mut header: Vec<&str> = vec!["#", "failed", "shortfall"];
     if base_short {
@@ -164,7 +164,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
             Cell::new(percent(e.shortfall, e.surviving_required)),
             Cell::new(num(e.stranded)),
             Cell::new(num(file_diff(baseline.throughput, e.throughput).max(0.0))),
-            Cell::new(match marginal_sites(net, &cands, e, 2) {
+            Cell::new(match marginal_sites(net, cands, e, 2) {
                 m if m == "none" || m == "—" => main_bottleneck(net, e),
                 m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
             }),
@@ -184,9 +184,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         free
     };
     right(&mut t, &numeric);
-    let short = (0..audit.scenarios.len())
-        .filter(|&i| audit.eval(i).shortfall > 0.0)
-        .count();
+    let short = m.short;
     let folded = folding.folded();
     let _ = writeln!(
         out,
@@ -213,7 +211,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         );
     }
 
-    let crit: Vec<Criticality> = rank::criticality(audit);
+    let crit: &[Criticality] = &m.criticality;
     if !crit.is_empty() {
         let mut c = table(&[
             "element",
@@ -328,73 +326,41 @@ pub fn verification_summary(audit: &Audit) -> String {
     )
 }
 
-/// The `--close` part of an audit: the closings per outage and whether costs defaulted.
-pub struct ClosingPart<'a> {
-    pub closings: &'a [Option<crate::expand::Closing>],
-    pub default_costs: bool,
-}
-
-/// The `audit` exporter: the verdict, header and worst scenarios, the explanation of one
-/// scenario (`why`: `--why`, or `--fail`), where one more unit helps, the
-/// closings (with `--close`), the risk figures (when probabilities are given), one line
-/// per gate, and the caution, in that order.
-#[allow(clippy::too_many_arguments)] // each part is optional and independent
-pub fn write_audit(
-    w: &mut dyn Write,
-    net: &Network,
-    audit: &Audit,
-    baseline: &Evaluation,
-    closing: Option<ClosingPart<'_>>,
-    risk: Option<&crate::risk::Risk>,
-    gates: &[GateResult],
-    top: usize,
-    why: Option<WhyPart<'_>>,
-) -> io::Result<()> {
-    let mut s = format!("{}\n", verdict(net, audit, gates));
-    s.push_str(&audit_sections(
-        net, audit, baseline, closing, risk, gates, top, why,
-    ));
-    w.write_all(screen::finish(&s).as_bytes())
-}
-
-/// Everything [`write_audit`] writes after the verdict line (for reports that put their
-/// own section between the verdict and the audit).
-#[allow(clippy::too_many_arguments)] // each part is optional and independent
-pub fn audit_sections(
-    net: &Network,
-    audit: &Audit,
-    baseline: &Evaluation,
-    closing: Option<ClosingPart<'_>>,
-    risk: Option<&crate::risk::Risk>,
-    gates: &[GateResult],
-    top: usize,
-    why: Option<WhyPart<'_>>,
-) -> String {
-    let mut s = audit_report(net, audit, baseline, top);
-    if let Some(y) = &why {
-        s.push_str(&why_report(net, audit, y));
-    }
-    s.push_str(&relief_report(net, audit, top));
-    if let Some(c) = closing {
-        s.push_str(&closing_report(
-            net,
-            audit,
-            c.closings,
-            c.default_costs,
-            top,
-        ));
-    }
-    if let Some(r) = risk {
-        s.push_str(&risk_report(net, audit, r));
-    }
-    if !gates.is_empty() {
-        s.push('\n');
-        for g in gates {
-            let _ = writeln!(s, "{}", gate_line(net, audit, g));
+/// The audit text: the verdict, the routed comparison (under `--routing`), the header and
+/// worst scenarios, the explanation of one scenario (`--why`, or `--fail`), where one more
+/// unit helps, the closings (with `--close`), the risk figures (when probabilities are
+/// given), one line per gate, and the caution, in that order. Each section is wrapped to
+/// the screen ([`screen::finish`], line by line) and written as soon as it is formatted.
+impl Exporter for Text {
+    fn write(&self, m: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
+        let mut section = |s: &str| w.write_all(screen::finish(s).as_bytes());
+        section(&format!("{}\n", verdict(m)))?;
+        if let Some(ra) = m.routed {
+            section(&format!(
+                "{}\n",
+                crate::report::routing::routing_report(m, ra)
+            ))?;
         }
+        section(&audit_report(m))?;
+        if let Some(y) = &m.why {
+            section(&why_report(m.net, m.audit, y))?;
+        }
+        section(&relief_report(m))?;
+        if m.closings.is_some() {
+            section(&closing_report(m))?;
+        }
+        if let Some(r) = m.risk {
+            section(&risk_report(m.net, m.audit, r))?;
+        }
+        if !m.gates.is_empty() {
+            let mut s = String::from("\n");
+            for g in m.gates {
+                let _ = writeln!(s, "{}", gate_line(m.net, m.audit, g));
+            }
+            section(&s)?;
+        }
+        section(&caution())
     }
-    s.push_str(&caution());
-    s
 }
 
 /// What `audit --shard I/N` prints: the shard, its outages and where its part is.

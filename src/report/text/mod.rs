@@ -13,7 +13,7 @@ use crate::audit::Audit;
 use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
 use crate::model::strict::printable;
-use crate::rank::{self, Criticality};
+use crate::rank::Criticality;
 use crate::solve::{Evaluation, Resource, Unservable};
 
 use super::screen::{self, render, right, table};
@@ -26,10 +26,7 @@ mod plan;
 mod risk;
 mod why;
 
-pub use audit::{
-    ClosingPart, audit_report, audit_sections, verdict, verification_summary, write_audit,
-    write_shard,
-};
+pub use audit::{audit_report, verdict, verification_summary, write_shard};
 pub use check::{check_summary, write_check};
 pub use compare::write_compare;
 pub use gates::gate_line;

@@ -3,19 +3,21 @@
 
 #[allow(unused_imports)]
 use super::*;
+use crate::report::model::Model;
 
 /// The `--close` section: per scenario with a shortfall, the cheapest expansion.
-pub fn closing_report(
-    net: &Network,
-    audit: &Audit,
-    closings: &[Option<crate::expand::Closing>],
-    default_costs: bool,
-    top: usize,
-) -> String {
+pub fn closing_report(m: &Model<'_>) -> String {
+    let (net, audit, top) = (m.net, m.audit, m.top);
+    let default_costs = m.default_costs();
+    let Some(closings) = m.closings else {
+        return String::new();
+    };
     let u = &net.unit;
     let mut out = String::new();
-    let order: Vec<usize> = rank::worst_first(audit)
-        .into_iter()
+    let order: Vec<usize> = m
+        .order
+        .iter()
+        .copied()
         .filter(|&i| closings[audit.outage_of[i]].is_some())
         .collect();
     let _ = writeln!(
@@ -108,8 +110,8 @@ pub fn closing_report(
 }
 
 /// "Where one more unit helps": sites whose added unit relieves the most scenarios.
-pub fn relief_report(net: &Network, audit: &Audit, top: usize) -> String {
-    let rows = crate::expand::relief(audit, &crate::expand::Candidates::of(net));
+pub fn relief_report(m: &Model<'_>) -> String {
+    let (net, top, rows) = (m.net, m.top, &m.relief);
     let mut out = String::new();
     if rows.is_empty() {
         return out;
