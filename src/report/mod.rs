@@ -1,6 +1,7 @@
-//! Output formats. Only this module knows how results look on a terminal or in a file:
-//! [`text`] for the `check` summary, the tables, notes and gate lines, [`json`] for `--json`
-//! files and the resume journal's lines, [`mod@file`] for writing output files safely.
+//! Output formats. Only this module knows how results look on a terminal or in a file.
+//! An audit run builds one [`model::Model`] and hands it to one [`export::Exporter`] per
+//! format ([`text`], [`json`], [`csv`], [`html`], [`markdown`]); [`notes`] words the
+//! stderr notes, [`mod@file`] writes output files safely.
 //!
 //! Every exporter writes to a `&mut dyn Write` it is given; nothing here prints.
 

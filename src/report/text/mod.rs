@@ -1,5 +1,5 @@
-//! Terminal output, one file per screen: [`check`], [`audit`], [`why`], [`plan`] (closings,
-//! relief, plans), [`risk`], [`compare`], [`gates`]; the helpers several screens share
+//! Terminal output, one file per screen: `check`, `audit`, `why`, `plan` (closings,
+//! relief, plans), `risk`, `compare`, `gates`; the helpers several screens share
 //! live here. Notes for stderr are in [`super::notes`].
 
 use std::fmt::Write as _;
