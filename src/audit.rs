@@ -1,6 +1,6 @@
 //! Running the scenarios: deduplicate outages, solve each once (in parallel with rayon),
 //! and keep every scenario listed under its own names. A run can journal each result as
-//! it finishes ([`crate::report::journal`]) and be resumed from that journal, and it stops
+//! it finishes ([`crate::journal`]) and be resumed from that journal, and it stops
 //! cleanly on SIGINT, SIGTERM or SIGHUP ([`install_interrupt_handler`]).
 //!
 //! Invariant: the result depends only on the network and the scenario list. Outages are
@@ -17,8 +17,8 @@ use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 
 use crate::error::{EXIT_INTERRUPTED, Error, Result};
+use crate::journal::{Journal, Resume};
 use crate::model::Network;
-use crate::report::journal::{Journal, Resume};
 use crate::scenario::{Element, Outage, Scenario};
 use crate::solve::Engine;
 use crate::solve::evaluator::{self, Evaluated, Evaluator, Warm};
@@ -251,7 +251,7 @@ pub enum Keep {
     /// Everything (plans and `--close` read the full vectors).
     Full,
     /// [`Evaluation::thin`] when the journal holds the full one (readable again with
-    /// [`crate::report::journal::JournalReader::read`]), else full.
+    /// [`crate::journal::JournalReader::read`]), else full.
     ThinJournaled,
     /// Always thin: the reports need nothing more (an audit without `--json`).
     Thin,

@@ -4,7 +4,7 @@
 //! loads, solves and writes both sides is `app::compare`.
 //!
 //! A scenario present on both sides *got worse* when its shortfall or its stranded
-//! demand, each as printed ([`crate::report::displayed`]), rose by more than the
+//! demand, each as printed ([`crate::numbers::displayed`]), rose by more than the
 //! tolerance; *better* when either fell by more than it and neither rose. A scenario that
 //! names an element only one side has is an *added risk* (only after) or a *removed risk*
 //! (only before). A scenario on both sides is *newly short* when its shortfall as printed
@@ -19,7 +19,7 @@ use std::collections::HashMap;
 use crate::audit::Audit;
 use crate::error::{Error, Result};
 use crate::model::Network;
-use crate::report::displayed;
+use crate::numbers::displayed;
 use crate::scenario::{self, Kinds};
 use crate::solve::Evaluation;
 

@@ -1,6 +1,6 @@
 //! Gates: pass/fail limits on an audit's worst scenario, for scripts and change reviews.
 //!
-//! By default a gate compares the worst value *as printed* ([`crate::report::displayed`])
+//! By default a gate compares the worst value *as printed* ([`crate::numbers::displayed`])
 //! with the limit *exactly as given*: a shortfall printed as `14` passes `--max-shortfall
 //! 14` even when the solver's value is 14.000000021, and a shortfall printed as `12` fails
 //! `--max-shortfall 11.9999` (the limit is never rounded). A served fraction is compared
@@ -10,7 +10,7 @@
 
 use crate::audit::Audit;
 use crate::error::{Error, Result};
-use crate::report::{displayed, num, shift_text};
+use crate::numbers::{displayed, num, shift_text};
 
 /// What a gate limits.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

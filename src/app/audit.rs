@@ -14,12 +14,9 @@ use crate::baseline::with_full_baseline;
 use crate::error::{Error, Result};
 use crate::expand;
 use crate::gate::{self, Gate};
+use crate::journal::{self, Journal};
 use crate::model::Network;
-use crate::rank;
-use crate::report::{
-    self,
-    journal::{self, Journal},
-};
+use crate::report;
 use crate::risk;
 use crate::routing;
 use crate::solve;
@@ -356,77 +353,51 @@ pub(super) fn finish_audit(
         None
     };
     let verdicts = gate::check(audit, o.gates, o.gate_tolerance);
-    let why = if o.why {
-        why_of(net, audit, &cands, closings.as_deref())?
-    } else {
-        None
+    // A routed audit holds every evaluation in full.
+    let full: report::json::Full<'_> = match o.routed {
+        Some(_) => &report::json::all_full,
+        None => full,
     };
+    let why_closing;
+    let mut model = report::model::Model::build(report::model::Parts {
+        net,
+        audit,
+        baseline: &baseline,
+        full,
+        closings: closings.as_deref(),
+        risk: o.risk,
+        gates: &verdicts,
+        why: None,
+        routed: o.routed,
+        top: o.top,
+    });
+    if o.why {
+        why_closing = why_of(net, audit, &cands, closings.as_deref(), model.worst())?;
+        model.why = why_closing.as_ref().map(|(i, c)| report::text::WhyPart {
+            scenario: *i,
+            closing: c.as_ref(),
+        });
+    }
+    use report::export::Exporter as _;
     // Files first: a reader that closes stdout early never costs the --json file.
     if let Some(path) = o.json {
-        let closing_json = closings.as_ref().map(|c| {
-            audit
-                .outage_of
-                .iter()
-                .map(|&k| report::json::closing_json(net, c[k].as_ref(), cands.default_costs))
-                .collect::<Vec<_>>()
-        });
-        let mut doc = match o.routed {
-            Some(ra) => report::routing::audit_json(net, ra, closing_json.as_deref()),
-            None => {
-                report::json::audit_json_with(net, audit, &baseline, closing_json.as_deref(), full)
-            }
-        };
-        doc.gates = report::json::gates_json(audit, &verdicts);
-        if let Some(r) = o.risk {
-            report::json::attach_risk(&mut doc, net, audit, r);
-        }
-        report::file::write_atomic(path, |w| report::json::write(w, &doc)).map_err(interrupted)?;
+        report::file::write_atomic(path, |w| report::export::Json.write(&model, w))
+            .map_err(interrupted)?;
     }
     if let Some(path) = o.csv {
-        report::file::write_atomic(path, |w| {
-            report::csv::write_audit(w, audit, closings.as_deref(), o.risk)
-        })
-        .map_err(interrupted)?;
+        report::file::write_atomic(path, |w| report::export::Csv.write(&model, w))
+            .map_err(interrupted)?;
     }
     if let Some((html, md)) = o.report {
-        let r = report::html::Report {
-            net,
-            audit,
-            baseline: &baseline,
-            closings: closings.as_deref(),
-            risk: o.risk,
-            gates: &verdicts,
-            top: o.top,
-        };
-        report::file::write_atomic(html, |w| report::html::write(w, &r)).map_err(interrupted)?;
-        report::file::write_atomic(md, |w| report::markdown::write(w, &r)).map_err(interrupted)?;
+        report::file::write_atomic(html, |w| report::export::Html.write(&model, w))
+            .map_err(interrupted)?;
+        report::file::write_atomic(md, |w| report::export::Markdown.write(&model, w))
+            .map_err(interrupted)?;
     }
     if let Some(j) = journal {
         j.remove()?;
     }
-    let closing_part = closings.as_deref().map(|c| report::text::ClosingPart {
-        closings: c,
-        default_costs: cands.default_costs,
-    });
-    stdout_result(match o.routed {
-        Some(ra) => {
-            report::routing::write_audit(out, net, ra, closing_part, o.risk, &verdicts, o.top)
-        }
-        None => report::text::write_audit(
-            out,
-            net,
-            audit,
-            &baseline,
-            closing_part,
-            o.risk,
-            &verdicts,
-            o.top,
-            why.as_ref().map(|(i, c)| report::text::WhyPart {
-                scenario: *i,
-                closing: c.as_ref(),
-            }),
-        ),
-    })?;
+    stdout_result(report::export::Text.write(&model, out))?;
     Ok(if verdicts.iter().all(|g| g.passed) {
         Outcome::Ok
     } else {
@@ -469,8 +440,9 @@ fn why_of(
     audit: &audit::Audit,
     cands: &expand::Candidates,
     closings: Option<&[Option<expand::Closing>]>,
+    worst: Option<usize>,
 ) -> Result<Option<(usize, Option<expand::Closing>)>> {
-    let Some(&i) = rank::worst_first(audit).first() else {
+    let Some(i) = worst else {
         return Ok(None);
     };
     let k = audit.outage_of[i];

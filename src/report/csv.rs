@@ -12,11 +12,9 @@
 
 use std::io::{self, Write};
 
+use super::export::{Csv, Exporter};
+use super::model::Model;
 use super::{CAUTION, file_num, prob};
-use crate::audit::Audit;
-use crate::expand::Closing;
-use crate::fold::Folding;
-use crate::risk::Risk;
 use crate::scenario::Scenario;
 
 /// One CSV field, quoted when it holds a comma, a quote or a line break. O(len).
@@ -40,14 +38,16 @@ fn failed_list(s: &Scenario) -> String {
 
 /// The `audit --csv` exporter: header, one row per scenario, the caution in the last
 /// column of the first row; the `closing_cost` and `not_closable` columns appear when
-/// `closings` (per outage) are given, `probability` when `risk` is. O(scenarios ·
-/// elements per scenario).
-pub fn write_audit(
-    w: &mut dyn Write,
-    audit: &Audit,
-    closings: Option<&[Option<Closing>]>,
-    risk: Option<&Risk>,
-) -> io::Result<()> {
+/// the model holds closings (per outage), `probability` when it holds risk figures; ranks
+/// and `same_as` are the model's. O(scenarios · elements per scenario).
+impl Exporter for Csv {
+    fn write(&self, m: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
+        write_rows(w, m)
+    }
+}
+
+fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
+    let (audit, closings, risk) = (m.audit, m.closings, m.risk);
     let mut header = vec![
         "failed",
         "rank",
@@ -65,12 +65,7 @@ pub fn write_audit(
     }
     header.extend(["same_as", "caution"]);
     writeln!(w, "{}", header.join(","))?;
-    let order = crate::rank::worst_first(audit);
-    let mut rank_of = vec![0; order.len()];
-    for (r, &i) in order.iter().enumerate() {
-        rank_of[i] = r + 1;
-    }
-    let folding = Folding::of(audit);
+    let (rank_of, folding) = (&m.rank_of, &m.folding);
     for (i, s) in audit.scenarios.iter().enumerate() {
         let e = audit.eval(i);
         let mut row = vec![

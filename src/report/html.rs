@@ -5,13 +5,11 @@
 use std::fmt::Write as _;
 use std::io::{self, Write};
 
+use super::export::{Exporter, Html};
+use super::model::Model;
 use super::{CAUTION, file_diff, num, percent};
-use crate::audit::Audit;
-use crate::gate::GateResult;
-use crate::model::Network;
-use crate::rank;
 use crate::scenario::Element;
-use crate::solve::{Evaluation, Resource};
+use crate::solve::Resource;
 
 /// File names inside the report folder.
 pub const HTML_FILE: &str = "report.html";
@@ -42,21 +40,16 @@ const MAP_MARGIN: f64 = 50.0;
 /// Rows of a table, each a list of cell texts.
 pub type Rows = Vec<Vec<String>>;
 
-/// Everything both report files show, computed once.
-pub struct Report<'a> {
-    pub net: &'a Network,
-    pub audit: &'a Audit,
-    pub baseline: &'a Evaluation,
-    pub closings: Option<&'a [Option<crate::expand::Closing>]>,
-    pub risk: Option<&'a crate::risk::Risk>,
-    pub gates: &'a [GateResult],
-    pub top: usize,
-}
+/// What both report files show: the run's [`Model`], built once and read by both
+/// exporters (the views below only format it).
+pub type Report<'a> = Model<'a>;
 
-impl Report<'_> {
+/// Views of the model for the HTML and Markdown reports (tables as text cells, chart
+/// values). Each is O(rows shown) except where said.
+impl Model<'_> {
     /// The verdict line of the text report, and the gate lines.
     pub fn verdict(&self) -> String {
-        super::text::verdict(self.net, self.audit, self.gates)
+        super::text::verdict(self)
     }
 
     /// One line per gate (`PASS …`/`FAIL …`).
@@ -67,18 +60,9 @@ impl Report<'_> {
             .collect()
     }
 
-    /// Scenario indices, worst first, folded scenarios left out.
-    pub fn worst(&self) -> Vec<usize> {
-        let folding = crate::fold::Folding::of(self.audit);
-        rank::worst_first(self.audit)
-            .into_iter()
-            .filter(|&i| folding.into[i].is_none())
-            .collect()
-    }
-
     /// The worst scenario (drawn on the map), if any scenario is short.
     pub fn worst_short(&self) -> Option<usize> {
-        self.worst()
+        self.shown
             .first()
             .copied()
             .filter(|&i| self.audit.eval(i).shortfall > 0.0)
@@ -143,7 +127,7 @@ impl Report<'_> {
             "main bottleneck".into(),
         ];
         let rows = self
-            .worst()
+            .shown
             .iter()
             .take(self.top)
             .enumerate()
@@ -165,7 +149,7 @@ impl Report<'_> {
 
     /// Element criticality: (element name, worst shortfall), worst first.
     pub fn criticality(&self) -> Vec<(String, f64)> {
-        rank::criticality(self.audit)
+        self.criticality
             .iter()
             .take(CHART_BARS)
             .map(|c| (c.element.name(self.net), c.worst_shortfall))
@@ -213,8 +197,9 @@ impl Report<'_> {
             format!("not closable ({u})"),
         ];
         let rows = self
-            .worst()
-            .into_iter()
+            .shown
+            .iter()
+            .copied()
             .filter_map(|i| {
                 closings[self.audit.outage_of[i]].as_ref().map(|c| {
                     vec![
@@ -644,6 +629,13 @@ pub fn html(r: &Report<'_>) -> String {
 }
 
 /// The HTML exporter: [`html`] to `w`.
+impl Exporter for Html {
+    fn write(&self, r: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
+        write(w, r)
+    }
+}
+
+/// The HTML exporter as a function: [`html`] to `w`.
 pub fn write(w: &mut dyn Write, r: &Report<'_>) -> io::Result<()> {
     w.write_all(html(r).as_bytes())
 }

@@ -2,6 +2,8 @@
 //! `served_required`, `shortfall`, `stranded`, `throughput`) never change; everything else
 //! is added for users. Numbers are rounded with [`super::file_num`].
 
+use super::export::{Exporter, Json};
+use super::model::{Model, Parts};
 use std::collections::BTreeMap;
 use std::io::{self, Write};
 
@@ -10,7 +12,6 @@ use serde::Serialize;
 use super::{CAUTION, file_diff, file_num, prob};
 use crate::audit::Audit;
 use crate::model::Network;
-use crate::rank;
 use crate::solve::{Evaluation, Resource};
 
 #[derive(Serialize)]
@@ -394,36 +395,46 @@ impl Serialize for LazyScenarios<'_> {
 }
 
 /// The whole audit document; `closing[i]`, when given, is attached to scenario `i`.
-/// Every evaluation must be full ([`audit_json_with`] reads thin ones back).
+/// Every evaluation must be full ([`audit_json_with`] reads thin ones back). Builds the
+/// run's [`Model`] (no gates, risk or closings) for it.
 pub fn audit_json<'a>(
     net: &'a Network,
     audit: &'a Audit,
     baseline: &'a Evaluation,
     closing: Option<&'a [serde_json::Value]>,
 ) -> AuditJson<'a> {
-    audit_json_with(net, audit, baseline, closing, &|k| {
-        Err(crate::error::Error::Usage(format!(
-            "internal: outage {k} has no full evaluation"
-        )))
-    })
+    let model = Model::build(Parts {
+        net,
+        audit,
+        baseline,
+        full: &all_full,
+        closings: None,
+        risk: None,
+        gates: &[],
+        why: None,
+        routed: None,
+        top: 0,
+    });
+    audit_json_with(&model, closing)
 }
 
-/// [`audit_json`] for an audit of thin evaluations ([`Evaluation::thin`]): `full(k)`
-/// gives outage `k`'s full evaluation while the document is written, and `baseline` must
-/// be full. O(scenarios · log scenarios) to rank; the scenarios are built as written.
+/// The [`Full`] of an audit whose evaluations are all full: asking for one is an error.
+pub fn all_full(k: usize) -> crate::error::Result<Evaluation> {
+    Err(crate::error::Error::Usage(format!(
+        "internal: outage {k} has no full evaluation"
+    )))
+}
+
+/// The audit document of `m` (thin evaluations read back through `m.full`, the baseline
+/// full) with `closing[i]` attached to scenario `i` when given; its ranks, folding and
+/// criticality are the model's. O(scenarios + elements); the scenarios are built as
+/// written.
 pub fn audit_json_with<'a>(
-    net: &'a Network,
-    audit: &'a Audit,
-    baseline: &'a Evaluation,
+    m: &Model<'a>,
     closing: Option<&'a [serde_json::Value]>,
-    full: Full<'a>,
 ) -> AuditJson<'a> {
-    let order = rank::worst_first(audit);
-    let mut rank_of = vec![0; order.len()];
-    for (r, &i) in order.iter().enumerate() {
-        rank_of[i] = r + 1;
-    }
-    let folding = crate::fold::Folding::of(audit);
+    let (net, audit, baseline) = (m.net, m.audit, m.baseline);
+    let folding = &m.folding;
     let same_as = (0..audit.scenarios.len())
         .map(|i| folding.into[i].map(|r| audit.scenarios[r].failed.clone()))
         .collect();
@@ -432,8 +443,8 @@ pub fn audit_json_with<'a>(
         audit,
         baseline,
         closing,
-        rank_of,
-        full,
+        rank_of: m.rank_of.clone(),
+        full: m.full,
         same_as,
         patches: Vec::new(),
     };
@@ -450,8 +461,9 @@ pub fn audit_json_with<'a>(
         risk: None,
         baseline: scenario_json(net, &[], baseline, baseline, 0),
         scenarios,
-        criticality: rank::criticality(audit)
-            .into_iter()
+        criticality: m
+            .criticality
+            .iter()
             .map(|c| CriticalityJson {
                 element: c.element.name(net),
                 worst_shortfall: file_num(c.worst_shortfall),
@@ -461,6 +473,29 @@ pub fn audit_json_with<'a>(
             })
             .collect(),
         gates: Vec::new(),
+    }
+}
+
+/// The `--json` document of an audit: the routed document under `--routing`, the
+/// closings (with `--close`), one object per gate, the risk fields; streamed to `w`.
+impl Exporter for Json {
+    fn write(&self, m: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
+        let closing_json = m.closings.map(|c| {
+            m.audit
+                .outage_of
+                .iter()
+                .map(|&k| closing_json(m.net, c[k].as_ref(), m.default_costs()))
+                .collect::<Vec<_>>()
+        });
+        let mut doc = match m.routed {
+            Some(ra) => super::routing::audit_json(m, ra, closing_json.as_deref()),
+            None => audit_json_with(m, closing_json.as_deref()),
+        };
+        doc.gates = gates_json(m.audit, m.gates);
+        if let Some(r) = m.risk {
+            attach_risk(&mut doc, m.net, m.audit, r);
+        }
+        write(w, &doc)
     }
 }
 

@@ -121,3 +121,9 @@ pub fn markdown(r: &Report<'_>) -> String {
 pub fn write(w: &mut dyn Write, r: &Report<'_>) -> io::Result<()> {
     w.write_all(markdown(r).as_bytes())
 }
+
+impl super::export::Exporter for super::export::Markdown {
+    fn write(&self, r: &Report<'_>, w: &mut dyn Write) -> io::Result<()> {
+        write(w, r)
+    }
+}

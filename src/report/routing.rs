@@ -5,6 +5,7 @@ use std::fmt::Write as _;
 
 use comfy_table::Cell;
 
+use super::model::Model;
 use super::screen;
 use serde::Serialize;
 
@@ -76,7 +77,8 @@ fn describe(mode: Mode) -> &'static str {
 /// The routing section of the audit report: baseline, per-scenario comparison with the
 /// best re-route, overloads under the offered load, traffic moved by each failure, and the
 /// failures that hurt only under the deployed routing.
-pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
+pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
+    let (net, top) = (model.net, model.top);
     let u = &net.unit;
     let m = ra.mode.name();
     let audit = &ra.audit;
@@ -96,7 +98,7 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
         util_text(b.offered.max_site_util),
         first_k(overloaded_names(net, &b.offered), CELL_ITEMS),
     );
-    let order = crate::rank::worst_first(audit);
+    let order = &model.order;
     // Worst first, without a rank column: the width goes to the names.
     let mut t = screen::table(&[
         "failed".to_string(),
@@ -168,36 +170,6 @@ pub fn routing_report(net: &Network, ra: &RoutedAudit, top: usize) -> String {
     screen::finish(&out)
 }
 
-/// The audit exporter under a deployed routing: the verdict line first (as every audit
-/// text), then [`routing_report`], then the audit's own sections
-/// ([`super::text::audit_sections`]) on the routed values.
-#[allow(clippy::too_many_arguments)] // each part is optional and independent
-pub fn write_audit(
-    w: &mut dyn std::io::Write,
-    net: &Network,
-    ra: &RoutedAudit,
-    closing: Option<super::text::ClosingPart<'_>>,
-    risk: Option<&crate::risk::Risk>,
-    gates: &[crate::gate::GateResult],
-    top: usize,
-) -> std::io::Result<()> {
-    let audit = &ra.audit;
-    let mut s = format!("{}\n", super::text::verdict(net, audit, gates));
-    s.push_str(&routing_report(net, ra, top));
-    s.push('\n');
-    s.push_str(&super::text::audit_sections(
-        net,
-        audit,
-        &ra.baseline.eval,
-        closing,
-        risk,
-        gates,
-        top,
-        None,
-    ));
-    w.write_all(screen::finish(&s).as_bytes())
-}
-
 /// The line a `plan --routing steered` report starts with.
 pub fn plan_header(mode: Mode) -> String {
     format!(
@@ -261,12 +233,12 @@ fn routed_fields(
 /// (values under the chosen routing), with `routing` set and each scenario carrying
 /// [`RoutedScenarioJson`].
 pub fn audit_json<'a>(
-    net: &'a Network,
+    model: &Model<'a>,
     ra: &'a RoutedAudit,
     closing: Option<&'a [serde_json::Value]>,
 ) -> super::json::AuditJson<'a> {
-    let audit = &ra.audit;
-    let mut doc = super::json::audit_json(net, audit, &ra.baseline.eval, closing);
+    let (net, audit) = (model.net, &ra.audit);
+    let mut doc = super::json::audit_json_with(model, closing);
     doc.routing = ra.mode.name();
     let base = &ra.baseline.offered;
     doc.baseline.routed = Some(routed_fields(

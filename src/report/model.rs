@@ -1,0 +1,147 @@
+//! The report model: what every audit exporter reads, computed once per run.
+//!
+//! [`Model::build`] ranks the scenarios ([`rank::worst_first`]), folds equal outages
+//! ([`Folding`]), computes element criticality ([`rank::criticality`]) and where one more
+//! unit of processing helps ([`crate::expand::relief`]); it is the only caller of the
+//! ranking in the report layer. The exporters ([`super::export`]: text, JSON, CSV, HTML,
+//! Markdown) then only format what the model holds, so they cannot disagree on the order,
+//! the ranks or the worst scenario.
+//!
+//! The model keeps every scenario's row (not only the `top` shown), the closings per
+//! outage with their prices, the risk figures and the gates, so a fuller HTML report (a
+//! table of all scenarios, the plan, the closings) reads what it needs from here without
+//! solving or ranking again.
+
+use crate::audit::Audit;
+use crate::expand::{Candidates, Closing};
+use crate::fold::Folding;
+use crate::gate::GateResult;
+use crate::model::Network;
+use crate::rank::{self, Criticality};
+use crate::risk::Risk;
+use crate::routing::RoutedAudit;
+use crate::solve::Evaluation;
+
+use super::json::Full;
+use super::text::WhyPart;
+
+/// What a run hands to [`Model::build`]: the solved audit and the optional parts computed
+/// beside it. Every field is given by name, so adding a part does not reorder arguments.
+pub struct Parts<'a> {
+    pub net: &'a Network,
+    pub audit: &'a Audit,
+    /// The baseline's full evaluation (also when the audit keeps thin evaluations).
+    pub baseline: &'a Evaluation,
+    /// Outage `k`'s full evaluation while a file is written (thin audits read it back).
+    pub full: Full<'a>,
+    /// `--close`: the cheapest closing per outage (`None` where nothing is short).
+    pub closings: Option<&'a [Option<Closing>]>,
+    /// When given, the risk figures under independent failures.
+    pub risk: Option<&'a Risk>,
+    /// One verdict per gate, in the order given on the command line.
+    pub gates: &'a [GateResult],
+    /// The scenario `--why` explains, with its closing.
+    pub why: Option<WhyPart<'a>>,
+    /// `--routing nearest|steered`: the routed audit (its `audit` is `audit` above).
+    pub routed: Option<&'a RoutedAudit>,
+    /// How many scenarios (and elements) the tables show.
+    pub top: usize,
+}
+
+/// The report model of one audit run. Indices are into `audit.scenarios` unless said.
+pub struct Model<'a> {
+    pub net: &'a Network,
+    pub audit: &'a Audit,
+    /// The baseline's full evaluation.
+    pub baseline: &'a Evaluation,
+    /// Reads outage `k`'s full evaluation back (thin audits) while a file is written.
+    pub full: Full<'a>,
+    /// Every scenario, worst first ([`rank::worst_first`]: shortfall, stranded,
+    /// throughput, fewer elements, names), folded ones included.
+    pub order: Vec<usize>,
+    /// `rank_of[i]`: scenario `i`'s 1-based position in `order` (the JSON and CSV rank).
+    pub rank_of: Vec<usize>,
+    /// `order` without the scenarios folded into a smaller one (what the tables list).
+    pub shown: Vec<usize>,
+    /// Which scenarios are the same outage as a smaller one, and how many each stands for.
+    pub folding: Folding,
+    /// Every element that appears in a scenario, most critical first.
+    pub criticality: Vec<Criticality>,
+    /// How many scenarios have a shortfall above 0.
+    pub short: usize,
+    /// Expansion candidates (cost, limits, modules) per site; `default_costs` says that no
+    /// site has a cost, so every site is a candidate at cost 1.
+    pub candidates: Candidates,
+    /// `--close`: the cheapest closing per outage (index with `audit.outage_of[i]`); each
+    /// holds its cost, additions per site, what is not closable and the binding links.
+    pub closings: Option<&'a [Option<Closing>]>,
+    /// "Where one more unit helps": (site, scenarios helped, most served per added unit),
+    /// best first ([`crate::expand::relief`]).
+    pub relief: Vec<(usize, usize, f64)>,
+    /// The risk figures, when probabilities are given.
+    pub risk: Option<&'a Risk>,
+    /// One verdict per gate.
+    pub gates: &'a [GateResult],
+    /// The explained scenario (`--why`, `--fail`).
+    pub why: Option<WhyPart<'a>>,
+    /// The routed audit, under `--routing nearest|steered`.
+    pub routed: Option<&'a RoutedAudit>,
+    /// How many rows the tables show.
+    pub top: usize,
+}
+
+impl<'a> Model<'a> {
+    /// Builds the model from a run's parts: O(S log S · E) for S scenarios of at most E
+    /// elements (the ranking, the criticality pass, the folding's hash of outages) plus the
+    /// relief scan over the outages' shadow prices. Deterministic: the order is total
+    /// ([`rank`]), so thread count and evaluation order do not change it.
+    pub fn build(p: Parts<'a>) -> Model<'a> {
+        let audit = p.audit;
+        let order = rank::worst_first(audit);
+        let mut rank_of = vec![0; order.len()];
+        for (r, &i) in order.iter().enumerate() {
+            rank_of[i] = r + 1;
+        }
+        let folding = Folding::of(audit);
+        let shown = order
+            .iter()
+            .copied()
+            .filter(|&i| folding.into[i].is_none())
+            .collect();
+        let short = (0..audit.scenarios.len())
+            .filter(|&i| audit.eval(i).shortfall > 0.0)
+            .count();
+        let candidates = Candidates::of(p.net);
+        let relief = crate::expand::relief(audit, &candidates);
+        Model {
+            net: p.net,
+            audit,
+            baseline: p.baseline,
+            full: p.full,
+            criticality: rank::criticality_in(audit, &order),
+            order,
+            rank_of,
+            shown,
+            folding,
+            short,
+            candidates,
+            closings: p.closings,
+            relief,
+            risk: p.risk,
+            gates: p.gates,
+            why: p.why,
+            routed: p.routed,
+            top: p.top,
+        }
+    }
+
+    /// The worst scenario of the run (first in `order`), if there is any scenario.
+    pub fn worst(&self) -> Option<usize> {
+        self.order.first().copied()
+    }
+
+    /// Whether `--close` costs defaulted (no site has `expand_cost`).
+    pub fn default_costs(&self) -> bool {
+        self.candidates.default_costs
+    }
+}

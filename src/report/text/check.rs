@@ -1,0 +1,123 @@
+//! The `check` screen: sizes, totals, processing and expandable sites, risk groups, and
+//! the demands no walk can serve with nothing failed.
+
+#[allow(unused_imports)]
+use super::*;
+
+/// The `check` summary: sizes, totals, processing sites and risk groups, and the demands
+/// that no walk through a processing site can serve even with nothing failed
+/// (`baseline_cut_off`, from [`crate::solve::baseline_cut_off`]).
+pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) -> String {
+    let mut out = String::new();
+    let u = &net.unit;
+    let one_way = net.links.iter().filter(|l| l.one_way).count();
+    let _ = writeln!(out, "{}: valid", net.name);
+    let _ = writeln!(
+        out,
+        "  sites {}  links {} ({} one-way, {} directions)  demands {}",
+        net.sites.len(),
+        net.links.len(),
+        one_way,
+        net.arcs.len(),
+        net.demands.len()
+    );
+    let _ = writeln!(
+        out,
+        "  volume {}  required {}  processing {}",
+        amount(net.total_volume(), u),
+        amount(net.total_required(), u),
+        amount(net.total_processing(), u)
+    );
+    let procs: Vec<String> = net
+        .sites
+        .iter()
+        .filter(|s| s.processing > 0.0)
+        .map(|s| format!("{} {}", s.id, num(s.processing)))
+        .collect();
+    let _ = writeln!(
+        out,
+        "  processing sites ({}): {}",
+        procs.len(),
+        if procs.is_empty() {
+            "none".into()
+        } else {
+            procs.join(", ")
+        }
+    );
+    let expandable: Vec<String> = net
+        .sites
+        .iter()
+        .filter_map(|s| {
+            s.expansion.as_ref().map(|e| {
+                format!(
+                    "{} (cost {}/unit, {}{})",
+                    s.id,
+                    num(e.cost),
+                    if e.max.is_finite() {
+                        format!("up to {}", num(e.max))
+                    } else {
+                        "no limit".into()
+                    },
+                    e.step
+                        .map(|st| format!(", modules of {}", num(st)))
+                        .unwrap_or_default()
+                )
+            })
+        })
+        .collect();
+    let _ = writeln!(
+        out,
+        "  expandable sites ({}): {}",
+        expandable.len(),
+        if expandable.is_empty() {
+            "none".into()
+        } else {
+            expandable.join(", ")
+        }
+    );
+    if !baseline_cut_off.is_empty() {
+        let _ = writeln!(out, "  {}", baseline_misses(net, baseline_cut_off));
+    }
+    if net.groups.is_empty() {
+        let _ = writeln!(out, "  risk groups: none");
+    } else {
+        let _ = writeln!(out, "  risk groups ({}):", net.groups.len());
+        for g in &net.groups {
+            let _ = writeln!(
+                out,
+                "    {} — {} link{}",
+                g.name,
+                g.links.len(),
+                if g.links.len() == 1 { "" } else { "s" }
+            );
+        }
+    }
+    out
+}
+
+/// "already short with nothing failed: N demands (X units required): d (why), ...".
+pub(super) fn baseline_misses(net: &Network, cut_off: &[(usize, Unservable)]) -> String {
+    let total: f64 = cut_off.iter().map(|&(d, _)| net.demands[d].required).sum();
+    let list = first_k(
+        cut_off
+            .iter()
+            .map(|&(d, r)| format!("{} ({})", net.demands[d].label, unservable_words(r))),
+        5,
+    );
+    format!(
+        "already short with nothing failed: {} demand{} ({} {} required) cannot be served: {list}",
+        cut_off.len(),
+        if cut_off.len() == 1 { "" } else { "s" },
+        num(total),
+        net.unit
+    )
+}
+
+/// The `check` exporter: [`check_summary`] to `w`.
+pub fn write_check(
+    w: &mut dyn Write,
+    net: &Network,
+    baseline_cut_off: &[(usize, Unservable)],
+) -> io::Result<()> {
+    w.write_all(screen::finish(&check_summary(net, baseline_cut_off)).as_bytes())
+}

@@ -1,0 +1,184 @@
+//! The `compare` screen: worse, better, newly short, added and removed risks.
+
+#[allow(unused_imports)]
+use super::*;
+
+/// `baseline` for an empty failed list, else the names joined with ` + `.
+pub(super) fn scenario_words(failed: &[String]) -> String {
+    if failed.is_empty() {
+        "baseline".into()
+    } else {
+        failed.join(" + ")
+    }
+}
+
+/// A signed change as printed: `+2`, `-1.5`, `0`.
+pub(super) fn signed(x: f64) -> String {
+    if x > 0.0 {
+        format!("+{}", num(x))
+    } else {
+        num(x)
+    }
+}
+
+/// The `compare` exporter: the verdict first, the baselines, the scenarios that got worse
+/// and better, the added and removed risks, the elements added and removed, the caution.
+/// `before`/`after` are the two baselines (with `--down`, the down states).
+pub fn write_compare(
+    w: &mut dyn Write,
+    c: &crate::compare::Comparison,
+    before: &Evaluation,
+    after: &Evaluation,
+    top: usize,
+) -> io::Result<()> {
+    let mut buf = Vec::new();
+    compare_lines(&mut buf, c, before, after, top)?;
+    w.write_all(crate::report::screen::finish(&String::from_utf8_lossy(&buf)).as_bytes())
+}
+
+/// The lines of [`write_compare`] before they are wrapped to the screen width.
+pub(super) fn compare_lines(
+    w: &mut dyn Write,
+    c: &crate::compare::Comparison,
+    before: &Evaluation,
+    after: &Evaluation,
+    top: usize,
+) -> io::Result<()> {
+    let u = &c.unit;
+    let plural = |n: usize| if n == 1 { "" } else { "s" };
+    let verdict = if c.passed() { "PASS" } else { "FAIL" };
+    writeln!(
+        w,
+        "{verdict} compare: {} of {} matched scenario{} got worse by more than {} \
+         (shortfall or stranded, as printed); {} newly short{}; {} better; {} added risk{}, \
+         {} removed.",
+        c.worse.len(),
+        c.matched,
+        plural(c.matched),
+        amount(c.tolerance, u),
+        c.new_short.len(),
+        if c.allow_new_short && !c.new_short.is_empty() {
+            " (allowed)"
+        } else {
+            ""
+        },
+        c.better.len(),
+        c.added_risks.len(),
+        plural(c.added_risks.len()),
+        c.removed_risks.len()
+    )?;
+    writeln!(
+        w,
+        "Before: {}; after: {}.{}",
+        c.before_name,
+        c.after_name,
+        if c.down.is_empty() {
+            String::new()
+        } else {
+            format!(" Kept down on both sides: {}.", c.down.join(", "))
+        }
+    )?;
+    writeln!(
+        w,
+        "Baseline shortfall {} → {}, stranded {} → {}, throughput {} → {}.",
+        num(before.shortfall),
+        amount(after.shortfall, u),
+        num(before.stranded),
+        amount(after.stranded, u),
+        num(before.throughput),
+        amount(after.throughput, u)
+    )?;
+    let changes = |title: &str, list: &[crate::compare::Change]| -> String {
+        let mut t = table(&[
+            "failed",
+            "shortfall before",
+            "after",
+            "change",
+            "stranded before",
+            "after",
+        ]);
+        for ch in list.iter().take(top) {
+            t.add_row(vec![
+                Cell::new(scenario_words(&ch.failed)),
+                Cell::new(num(ch.before.shortfall)),
+                Cell::new(num(ch.after.shortfall)),
+                Cell::new(signed(ch.delta_shortfall)),
+                Cell::new(num(ch.before.stranded)),
+                Cell::new(num(ch.after.stranded)),
+            ]);
+        }
+        right(&mut t, &[1, 2, 3, 4, 5]);
+        format!(
+            "\n{title} ({} scenario{}, top {}; amounts in {u}):\n{}\n",
+            list.len(),
+            plural(list.len()),
+            top.min(list.len()),
+            render(&mut t, &[])
+        )
+    };
+    if !c.new_short.is_empty() {
+        let title = format!(
+            "Newly short: short after the change and not before, a new point of failure \
+             that {}",
+            if c.allow_new_short {
+                "--allow-new-short lets pass"
+            } else {
+                "fails the compare unless --allow-new-short"
+            }
+        );
+        w.write_all(changes(&title, &c.new_short).as_bytes())?;
+    }
+    if !c.worse.is_empty() {
+        w.write_all(changes("Got worse", &c.worse).as_bytes())?;
+    }
+    if !c.better.is_empty() {
+        w.write_all(changes("Got better", &c.better).as_bytes())?;
+    }
+    let sided = |title: &str, list: &[crate::compare::OneSided]| -> String {
+        let mut t = table(&[
+            "failed",
+            &format!("shortfall ({u})"),
+            &format!("stranded ({u})"),
+        ]);
+        for o in list.iter().take(top) {
+            t.add_row(vec![
+                Cell::new(scenario_words(&o.failed)),
+                Cell::new(num(o.values.shortfall)),
+                Cell::new(num(o.values.stranded)),
+            ]);
+        }
+        right(&mut t, &[1, 2]);
+        format!(
+            "\n{title} ({} scenario{}, top {}):\n{}\n",
+            list.len(),
+            plural(list.len()),
+            top.min(list.len()),
+            render(&mut t, &[])
+        )
+    };
+    if !c.added_risks.is_empty() {
+        w.write_all(
+            sided(
+                "Added risks: scenarios that name an element only the new network has",
+                &c.added_risks,
+            )
+            .as_bytes(),
+        )?;
+    }
+    if !c.removed_risks.is_empty() {
+        w.write_all(
+            sided(
+                "Removed risks: scenarios that name an element the new network no longer has",
+                &c.removed_risks,
+            )
+            .as_bytes(),
+        )?;
+    }
+    writeln!(
+        w,
+        "\nElements added: {}.\nElements removed: {}.",
+        first_k(c.elements_added.iter().cloned(), 10),
+        first_k(c.elements_removed.iter().cloned(), 10)
+    )?;
+    w.write_all(caution().as_bytes())
+}

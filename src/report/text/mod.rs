@@ -1,0 +1,171 @@
+//! Terminal output, one file per screen: `check`, `audit`, `why`, `plan` (closings,
+//! relief, plans), `risk`, `compare`, `gates`; the helpers several screens share
+//! live here. Notes for stderr are in [`super::notes`].
+
+use std::fmt::Write as _;
+
+use comfy_table::Cell;
+
+use std::io::{self, Write};
+
+use super::{CAUTION, amount, file_diff, given, num, percent, shift_point, small, unit_one};
+use crate::audit::Audit;
+use crate::gate::{GateKind, GateResult};
+use crate::model::Network;
+use crate::model::strict::printable;
+use crate::rank::Criticality;
+use crate::solve::{Evaluation, Resource, Unservable};
+
+use super::screen::{self, render, right, table};
+
+mod audit;
+mod check;
+mod compare;
+mod gates;
+mod plan;
+mod risk;
+mod why;
+
+pub use audit::{audit_report, verdict, verification_summary, write_shard};
+pub use check::{check_summary, write_check};
+pub use compare::write_compare;
+pub use gates::gate_line;
+pub use plan::{closing_report, plan_report, relief_report, write_plan};
+pub use risk::risk_report;
+pub use why::{WhyPart, why_report};
+// The notes kept at their old path for callers.
+pub use super::notes::{
+    estimate_refused, note_applied, note_capacity_fallback, note_estimate, note_journal_failed,
+    note_journal_line, note_resume, note_threads_capped, refuse_with_shard,
+};
+
+/// `""` for one, `"s"` otherwise.
+fn plural(n: usize) -> &'static str {
+    if n == 1 { "" } else { "s" }
+}
+
+/// Why a demand cannot be served, in words.
+fn unservable_words(r: Unservable) -> &'static str {
+    match r {
+        Unservable::NoPath => "no path",
+        Unservable::NoProcessing => "no processing site on any walk",
+    }
+}
+
+/// Names the cause of a scenario's shortfall in words: demands with no path, demands
+/// with no processing reachable, or the saturated resource with the highest shadow price
+/// (a link direction or a site's processing). Cut-off demands are named when they make up
+/// at least half of the shortfall.
+pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
+    if e.shortfall <= 0.0 {
+        return "—".into();
+    }
+    let count = |reason| e.cut_off.iter().filter(|(_, r)| *r == reason).count();
+    let no_path = e.cut_off_required(net, Unservable::NoPath);
+    let no_proc = e.cut_off_required(net, Unservable::NoProcessing);
+    let demands = |n: usize| format!("{n} demand{}", if n == 1 { "" } else { "s" });
+    let saturated = e.bottlenecks.iter().find(|b| b.price > 0.0);
+    if no_path + no_proc >= e.shortfall / 2.0 && no_path + no_proc > 0.0 {
+        return if no_proc > no_path {
+            format!(
+                "no processing reachable: {}",
+                demands(count(Unservable::NoProcessing))
+            )
+        } else {
+            format!("no path: {} cut off", demands(count(Unservable::NoPath)))
+        };
+    }
+    match saturated {
+        Some(b) => match b.resource {
+            Resource::Arc(_) => format!("saturated {}", resource_name(net, b.resource)),
+            Resource::Site(v) => format!("saturated processing at {}", net.sites[v].id),
+        },
+        None => "—".into(),
+    }
+}
+
+/// The `k` expandable sites (where processing can be bought) with the highest shadow price
+/// of processing in a scenario with a shortfall, as `site (+price)`: one more unit there
+/// serves up to `price` more.
+pub fn marginal_sites(
+    net: &Network,
+    cands: &crate::expand::Candidates,
+    e: &Evaluation,
+    k: usize,
+) -> String {
+    if e.shortfall <= 0.0 {
+        return "—".into();
+    }
+    let mut v: Vec<(usize, f64)> = e
+        .site_price
+        .iter()
+        .enumerate()
+        .filter(|&(s, _)| cands.expandable(s))
+        .filter_map(|(s, p)| p.filter(|p| *p > 1e-6).map(|p| (s, p)))
+        .collect();
+    v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    if v.is_empty() {
+        return "none".into();
+    }
+    v.iter()
+        .take(k)
+        .map(|(s, p)| format!("{} (+{})", net.sites[*s].id, num(*p)))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// `link ID (A→B)` or `site ID processing`.
+pub fn resource_name(net: &Network, r: Resource) -> String {
+    match r {
+        Resource::Arc(a) => {
+            let arc = &net.arcs[a];
+            format!(
+                "link {} ({}→{})",
+                net.links[arc.link].id, net.sites[arc.from].id, net.sites[arc.to].id
+            )
+        }
+        Resource::Site(v) => format!("site {} processing", net.sites[v].id),
+    }
+}
+
+/// Scenario names up to this many characters stay on one line in the scenario table.
+const NAME_ON_ONE_LINE: usize = 32;
+
+/// The caution line every report ends with.
+pub fn caution() -> String {
+    format!("{CAUTION}\n")
+}
+
+/// The first `k` items joined with commas, `(+N more)` for the rest, `—` when empty.
+fn first_k(items: impl ExactSizeIterator<Item = String>, k: usize) -> String {
+    let total = items.len();
+    let mut parts: Vec<String> = items.take(k).collect();
+    if total > k {
+        parts.push(format!("(+{} more)", total - k));
+    }
+    if parts.is_empty() {
+        "—".into()
+    } else {
+        parts.join(", ")
+    }
+}
+
+/// `site +units` for the largest additions of an expansion, at most `k` of them.
+pub fn additions(net: &Network, add: &[f64], k: usize) -> String {
+    let mut v: Vec<(usize, f64)> = add
+        .iter()
+        .enumerate()
+        .filter(|(_, a)| **a > 0.0)
+        .map(|(i, a)| (i, *a))
+        .collect();
+    v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    first_k(
+        v.iter()
+            .map(|(i, a)| format!("{} +{}", net.sites[*i].id, num(*a))),
+        k,
+    )
+}
+
+fn link_list(net: &Network, links: &[usize], k: usize) -> String {
+    first_k(links.iter().map(|&l| net.links[l].id.clone()), k)
+}
