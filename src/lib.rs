@@ -19,6 +19,8 @@ pub mod risk;
 pub mod routing;
 pub mod scenario;
 pub mod solve;
+pub mod worst;
+pub mod worst_cmd;
 
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
@@ -1193,6 +1195,7 @@ pub fn run(cli: Cli, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome
             audit::install_interrupt_handler();
             run_audit(&args, out, err)
         }
+        Command::Worst(args) => worst_cmd::run(&args, out, err),
         Command::Merge(args) => {
             audit::install_interrupt_handler();
             run_merge(&args, out)

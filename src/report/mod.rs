@@ -13,6 +13,7 @@ pub mod markdown;
 pub mod routing;
 pub mod screen;
 pub mod text;
+pub mod worst;
 
 /// The caution every report carries.
 pub const CAUTION: &str = "Caution: a planning aid under the model's assumptions (fluid, splittable \
