@@ -644,7 +644,8 @@ pub fn search(net: &Network, opts: Options) -> Result<Worst> {
         let mut done = false;
         while batch.len() < BATCH {
             let Some(node) = s.queue.pop() else {
-                done = true;
+                // Done unless this batch's solves push children.
+                done = batch.is_empty() && later.is_empty();
                 break;
             };
             if !s.can_beat(node.priority) {
