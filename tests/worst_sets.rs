@@ -341,6 +341,27 @@ fn fixtures_match_brute_force() {
     }
 }
 
+/// The help ends with examples in the layout every command uses.
+#[test]
+fn help_ends_with_examples() {
+    let run = redoubt(&["worst", "--help"]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let tail: Vec<&str> = run
+        .stdout
+        .lines()
+        .skip_while(|l| *l != "Examples:")
+        .skip(1)
+        .collect();
+    assert!(tail.len() >= 4, "{}", run.stdout);
+    for pair in tail.chunks(2) {
+        assert!(pair[0].starts_with("  redoubt worst "), "{pair:?}");
+        assert!(
+            pair.get(1).is_some_and(|l| l.starts_with("      ")),
+            "{pair:?}"
+        );
+    }
+}
+
 /// The same answer, proof counts included, whatever the thread count (batches are formed
 /// in a fixed order).
 #[test]
