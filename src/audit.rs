@@ -141,7 +141,10 @@ impl Progress {
 /// Runs `work` on a rayon pool of `threads` threads (`None`: rayon's global pool, one
 /// thread per core). Building a pool can fail only for a resource reason, reported as a
 /// usage error naming `--threads`. O(1) beyond `work`.
-fn in_pool<R: Send>(threads: Option<usize>, work: impl FnOnce() -> R + Send) -> Result<R> {
+pub(crate) fn in_pool<R: Send>(
+    threads: Option<usize>,
+    work: impl FnOnce() -> R + Send,
+) -> Result<R> {
     match threads {
         Some(t) => Ok(rayon::ThreadPoolBuilder::new()
             .num_threads(t.max(1))

@@ -32,6 +32,10 @@ pub enum Command {
     /// and was not before).
     #[command(after_help = COMPARE_EXAMPLES)]
     Compare(CompareArgs),
+    /// The N worst sets of at most K failed elements, found exactly without solving every
+    /// set, with a proof that no other set is worse.
+    #[command(after_help = WORST_EXAMPLES)]
+    Worst(WorstArgs),
     /// Combine the part files of `audit --shard I/N` into the audit an unsharded run gives.
     Merge(MergeArgs),
     /// Write another format's topology as a network file (then check and audit it).
@@ -142,6 +146,14 @@ const AUDIT_EXAMPLES: &str = "Examples:
       one scenario, explained demand by demand
   redoubt audit net.json --close --report out/ --max-shortfall 5
       closings, an HTML and Markdown report in out/, exit 1 above 5 units short";
+
+const WORST_EXAMPLES: &str = "Examples:
+  redoubt worst net.json --k 2
+      the 10 worst sets of one or two failures, with the proof
+  redoubt worst net.json --k 3 --kinds links --top 5 --by lost
+      the 5 worst sets of up to three link cuts, stranded demand counted as lost
+  redoubt worst net.json --k 2 --json worst.json
+      also write the sets and the proof to a file";
 
 const PLAN_EXAMPLES: &str = "Examples:
   redoubt plan net.json
@@ -368,4 +380,37 @@ impl CompareArgs {
             routing: Routing::Best,
         }
     }
+}
+
+/// What ranks the sets of `redoubt worst`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum WorstBy {
+    /// Surviving required demand that is not served.
+    Shortfall,
+    /// Shortfall plus the required demand stranded by failed end sites.
+    Lost,
+}
+
+#[derive(Debug, Args)]
+pub struct WorstArgs {
+    /// The network file (JSON).
+    pub network: PathBuf,
+    /// Largest number of elements failed together.
+    #[arg(long)]
+    pub k: usize,
+    /// Kinds of element to fail: any of links, sites, groups (comma-separated).
+    #[arg(long, default_value = "links,sites,groups")]
+    pub kinds: String,
+    /// How many sets to list (sets with the same outage count once).
+    #[arg(long, default_value_t = 10)]
+    pub top: usize,
+    /// What ranks the sets: shortfall, or lost (shortfall + stranded).
+    #[arg(long, value_enum, default_value_t = WorstBy::Shortfall)]
+    pub by: WorstBy,
+    /// Write the sets and the proof to this JSON file.
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<PathBuf>,
+    /// Worker threads (default: one per core). Results do not depend on it.
+    #[arg(long)]
+    pub threads: Option<usize>,
 }

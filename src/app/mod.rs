@@ -12,6 +12,7 @@ pub mod options;
 mod plan;
 mod plan_routed;
 mod scenarios;
+mod worst;
 
 use std::io::{self, Write};
 use std::path::{Path, PathBuf};
@@ -58,6 +59,7 @@ pub fn run(cli: Cli, out: &mut dyn Write, err: &mut dyn Write) -> Result<Outcome
         Command::Import(o) => import::run(&o, out, err),
         Command::Compare(o) => compare::run(&o, out, err),
         Command::Plan(o) => plan::run(&o, out, err),
+        Command::Worst(o) => worst::run(&o, out, err),
     }
 }
 

@@ -32,6 +32,15 @@ pub enum Command {
     Import(ImportOptions),
     Compare(CompareOptions),
     Plan(PlanOptions),
+    Worst(WorstOptions),
+}
+
+/// `worst`, validated: the network, the search's options, the `--json` file.
+#[derive(Debug, Clone)]
+pub struct WorstOptions {
+    pub network: PathBuf,
+    pub json: Option<PathBuf>,
+    pub search: crate::worst::Options,
 }
 
 /// Which scenarios a run evaluates and how (the scenario flags shared by `audit`, `plan`
@@ -164,6 +173,7 @@ pub fn lower(cli: Cli) -> Result<Command> {
         cli::Command::Import(from) => Command::Import(import(from)),
         cli::Command::Compare(a) => Command::Compare(compare(a)?),
         cli::Command::Plan(a) => Command::Plan(plan(a)?),
+        cli::Command::Worst(a) => Command::Worst(worst(a)?),
     })
 }
 
@@ -450,4 +460,25 @@ mod tests {
         assert_eq!(p.goal, expand::Goal::WorstWithin(4.0));
         assert_eq!(p.scenarios.time_limit, Some(DEFAULT_MAX_MINUTES));
     }
+}
+
+/// `worst`'s flags: `--threads 0` refused, the kinds parsed, `--by` mapped to the library's.
+pub fn worst(a: cli::WorstArgs) -> Result<WorstOptions> {
+    if a.threads == Some(0) {
+        return Err(Error::Usage("--threads must be at least 1".into()));
+    }
+    Ok(WorstOptions {
+        search: crate::worst::Options {
+            k: a.k,
+            kinds: crate::scenario::Kinds::parse(&a.kinds)?,
+            top: a.top,
+            by: match a.by {
+                cli::WorstBy::Shortfall => crate::worst::By::Shortfall,
+                cli::WorstBy::Lost => crate::worst::By::Lost,
+            },
+            threads: a.threads,
+        },
+        network: a.network,
+        json: a.json,
+    })
 }

@@ -16,6 +16,7 @@ pub mod notes;
 pub mod routing;
 pub mod screen;
 pub mod text;
+pub mod worst;
 
 pub use crate::numbers::*;
 

@@ -1,0 +1,229 @@
+//! The output of `redoubt worst`: the table of the worst sets with one line on the proof
+//! and the caution ([`text`]), and the JSON document ([`json`], written by [`write_json`]).
+//! Field names of the JSON contract: `worst[].rank`, `failed`, `shortfall`, `stranded`,
+//! `lost`, `served_required`; `proof`.
+
+use std::io::{self, Write};
+
+use serde::Serialize;
+
+use super::screen::{finish, render, right, table};
+use super::{CAUTION, amount, file_num, num};
+use crate::model::Network;
+use crate::worst::{By, Worst};
+
+/// How the bound of the proof is obtained, in one sentence (text and JSON).
+pub const METHOD: &str = "best-first branch and bound over sets; a set that was not solved \
+is bounded by a solved subset's proven lower-bound allocation: that subset's value plus the \
+flow the allocation sends through the added elements (dropping the walks they break leaves \
+a feasible allocation)";
+
+fn by_name(by: By) -> &'static str {
+    match by {
+        By::Shortfall => "shortfall",
+        By::Lost => "lost",
+    }
+}
+
+fn kinds_list(w: &Worst) -> Vec<&'static str> {
+    let k = w.options.kinds;
+    [(k.links, "links"), (k.sites, "sites"), (k.groups, "groups")]
+        .into_iter()
+        .filter(|p| p.0)
+        .map(|p| p.1)
+        .collect()
+}
+
+/// The text report: a heading, the table worst first, one line on the proof, a line on
+/// unproven solves when there are any, and the caution. O(listed sets · names).
+pub fn text(net: &Network, w: &Worst) -> String {
+    let o = &w.options;
+    let p = &w.proof;
+    let mut s = String::new();
+    s.push_str(&format!(
+        "Worst sets of at most {} failed elements ({}; ranked by {}; amounts in {}):\n",
+        o.k,
+        kinds_list(w).join(", "),
+        by_name(o.by),
+        net.unit
+    ));
+    if w.sets.is_empty() {
+        s.push_str("No set of the pool loses any required demand.\n");
+    } else {
+        let mut t = table(&[
+            "rank",
+            "failed",
+            "shortfall",
+            "stranded",
+            "lost",
+            "served required",
+        ]);
+        for (i, set) in w.sets.iter().enumerate() {
+            t.add_row(vec![
+                (i + 1).to_string(),
+                set.failed.join(" + "),
+                num(set.shortfall),
+                num(set.stranded),
+                num(set.lost),
+                num(set.served_required),
+            ]);
+        }
+        right(&mut t, &[0, 2, 3, 4, 5]);
+        s.push_str(&render(&mut t, &[1]));
+        s.push('\n');
+    }
+    s.push_str(&proof_line(net, w));
+    s.push('\n');
+    if p.unproven > 0 {
+        s.push_str(&format!(
+            "UNPROVEN: {} solved outages were not proven optimal; their values are their proven \
+             lower bounds' (never understated).\n",
+            p.unproven
+        ));
+    }
+    s.push_str(CAUTION);
+    s.push('\n');
+    finish(&s)
+}
+
+/// The one line on the proof.
+fn proof_line(net: &Network, w: &Worst) -> String {
+    let p = &w.proof;
+    let counts = format!(
+        "{} of {} sets solved ({} distinct outages), {} bounded, {} pruned unvisited",
+        p.sets_solved, p.sets_total, p.outages_solved, p.sets_bounded, p.sets_pruned
+    );
+    let full = w.sets.len() >= w.options.top;
+    match p.bound {
+        None => format!("Proof: exhaustive, every set solved ({counts})."),
+        Some(b) if full => format!(
+            "Proof: every set not solved loses at most {} (a solved subset's proven allocation \
+             plus its flow through the added elements), below the {}th worst's {}; {counts}.",
+            amount(b, &net.unit),
+            w.options.top,
+            num(p.threshold)
+        ),
+        Some(b) => format!(
+            "Proof: only {} sets lose anything; every set not solved loses at most {} (a solved \
+             subset's proven allocation plus its flow through the added elements), within the \
+             verifier's noise of {}; {counts}.",
+            w.sets.len(),
+            amount(b, &net.unit),
+            num(p.floor)
+        ),
+    }
+}
+
+/// One listed set in the JSON document.
+#[derive(Serialize)]
+pub struct SetJson {
+    pub rank: usize,
+    pub failed: Vec<String>,
+    pub shortfall: f64,
+    pub stranded: f64,
+    pub lost: f64,
+    pub served_required: f64,
+    /// The served_required LP was proven optimal.
+    pub proven: bool,
+}
+
+/// The `proof` object.
+#[derive(Serialize)]
+pub struct ProofJson {
+    /// What is proven, in words.
+    pub statement: String,
+    /// How the bound is obtained.
+    pub method: &'static str,
+    /// Every set not solved has a value at most `bound + tolerance`; null when every set
+    /// was solved.
+    pub bound: Option<f64>,
+    /// The value as printed a set must reach to be listed: the N-th worst's when the list
+    /// is full, else `floor` (which it must exceed).
+    pub threshold: f64,
+    /// Values as printed at or below this are the verifier's noise, not a loss.
+    pub floor: f64,
+    /// How far a reported value may exceed the optimum (2 · GAP_TOL · Σ required).
+    pub tolerance: f64,
+    pub sets_total: u128,
+    pub sets_solved: u128,
+    pub outages_solved: usize,
+    pub sets_bounded: u128,
+    pub sets_pruned: u128,
+    pub unproven: usize,
+    pub pool: usize,
+}
+
+/// The `redoubt worst --json` document.
+#[derive(Serialize)]
+pub struct WorstJson {
+    pub network: String,
+    pub unit: String,
+    pub caution: &'static str,
+    pub k: usize,
+    pub kinds: Vec<&'static str>,
+    pub by: &'static str,
+    pub top: usize,
+    pub worst: Vec<SetJson>,
+    pub proof: ProofJson,
+}
+
+/// The JSON document of `w` (numbers as files write them, [`file_num`]). O(listed sets).
+pub fn json(net: &Network, w: &Worst) -> WorstJson {
+    let p = &w.proof;
+    let full = w.sets.len() >= w.options.top;
+    let statement = match p.bound {
+        None => "every set was solved; the list is exact".to_string(),
+        Some(_) if full => format!(
+            "every set not listed was solved and ranks below the {}th, or was not solved and \
+             has a value at most bound + tolerance, which as printed is below threshold",
+            w.options.top
+        ),
+        Some(_) => "every set not listed was solved and loses nothing above floor, or was not \
+                    solved and has a value at most bound + tolerance, which as printed is at \
+                    most floor"
+            .to_string(),
+    };
+    WorstJson {
+        network: net.name.clone(),
+        unit: net.unit.clone(),
+        caution: CAUTION,
+        k: w.options.k,
+        kinds: kinds_list(w),
+        by: by_name(w.options.by),
+        top: w.options.top,
+        worst: w
+            .sets
+            .iter()
+            .enumerate()
+            .map(|(i, s)| SetJson {
+                rank: i + 1,
+                failed: s.failed.clone(),
+                shortfall: file_num(s.shortfall),
+                stranded: file_num(s.stranded),
+                lost: file_num(s.lost),
+                served_required: file_num(s.served_required),
+                proven: s.proven,
+            })
+            .collect(),
+        proof: ProofJson {
+            statement,
+            method: METHOD,
+            bound: p.bound.map(file_num),
+            threshold: p.threshold,
+            floor: p.floor,
+            tolerance: file_num(p.tolerance),
+            sets_total: p.sets_total,
+            sets_solved: p.sets_solved,
+            outages_solved: p.outages_solved,
+            sets_bounded: p.sets_bounded,
+            sets_pruned: p.sets_pruned,
+            unproven: p.unproven,
+            pool: p.pool,
+        },
+    }
+}
+
+/// Writes [`json`] of `w` as pretty JSON with a trailing newline.
+pub fn write_json(out: &mut dyn Write, net: &Network, w: &Worst) -> io::Result<()> {
+    super::json::write(out, &json(net, w))
+}
