@@ -32,10 +32,11 @@
 //! A surviving demand that no walk through a processing site can serve at all gives λ = 0,
 //! proven by that demand alone (its cheapest walk costs nothing it could use).
 
+use super::edge::{Attempt, try_backend};
 use super::flow::{self, Cap};
 use super::lp::{self, Sense};
 use super::surviving::Surviving;
-use super::{Backend, GAP_TOL, LADDER, RESIDUAL_TOL, certify, simplest_in, verify};
+use super::{Backend, GAP_TOL, LADDER, RESIDUAL_TOL, certify, simplest_in};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -140,8 +141,6 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
     }
 
     let bound: Vec<f64> = capped.demands.iter().map(|d| d.required).collect();
-    let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
-    let site_capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
     let (mut row_floor, mut var_floor) = index.magnitudes(&model, f64::MIN_POSITIVE);
     // The tying rows hold Λ·required_d at most; λ itself is at most Λ.
     for r in row_floor.iter_mut().skip(model.rows.len() - active.len()) {
@@ -157,22 +156,15 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
     };
     let mut errors = Vec::new();
     for backend in ladder {
-        let solution = match backend.solve(&model) {
-            Ok(s) => s,
-            Err(e) => {
-                errors.push(format!("{}: {e}", backend.name()));
-                continue;
-            }
+        let floors = (row_floor.as_slice(), var_floor.as_slice());
+        let Some(Attempt {
+            solution,
+            residual,
+            allocation: repaired,
+        }) = try_backend(*backend, &model, floors, net, &index, &bound, &mut errors)
+        else {
+            continue;
         };
-        let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
-        let repaired = verify::repair(
-            net,
-            &index,
-            &solution.x,
-            &arc_capacity,
-            &site_capacity,
-            &bound,
-        );
         let lower = active
             .iter()
             .map(|&d| repaired.demand_flow[d] / required[d])

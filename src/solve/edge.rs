@@ -133,22 +133,22 @@ pub fn solve_verified_with(
     let mut best_prices: (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
     let mut errors = Vec::new();
     for (attempt, backend) in ladder.iter().enumerate() {
-        let solution = match backend.solve(&model) {
-            Ok(s) => s,
-            Err(e) => {
-                errors.push(format!("{}: {e}", backend.name()));
-                continue;
-            }
-        };
-        let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
-        let allocation = verify::repair(
+        let Some(Attempt {
+            solution,
+            residual,
+            allocation,
+        }) = try_backend(
+            *backend,
+            &model,
+            (&row_floor, &var_floor),
             net,
             &index,
-            &solution.x,
-            &arc_capacity,
-            &site_capacity,
             &bound,
-        );
+            &mut errors,
+        )
+        else {
+            continue;
+        };
         let arc_price: Vec<f64> = index
             .arc_row
             .iter()
@@ -258,4 +258,50 @@ pub fn needs_volume_lp(net: &Network, outage: &Outage) -> bool {
     net.demands
         .iter()
         .any(|d| site_alive[d.from] && site_alive[d.to] && d.volume > d.required)
+}
+
+/// One backend's answer on a flow model, checked: the solution, its residual
+/// ([`verify::residual`] with the floors `floors`), and the feasible allocation repaired from
+/// it against the file's real capacities ([`verify::repair`], demand caps `bound`).
+pub(crate) struct Attempt {
+    pub solution: lp::LpSolution,
+    pub residual: f64,
+    pub allocation: verify::Repaired,
+}
+
+/// Solves `model` (built into `index`) with `backend` and checks the answer ([`Attempt`]);
+/// a backend error is appended to `errors` as `name: error` and gives `None`, so a ladder
+/// goes on to its next backend. Cost: one solve, O(nonzeros) for the residual, the repair.
+pub(crate) fn try_backend(
+    backend: &dyn Backend,
+    model: &lp::Lp,
+    floors: (&[f64], &[f64]),
+    net: &Network,
+    index: &flow::FlowIndex,
+    bound: &[f64],
+    errors: &mut Vec<String>,
+) -> Option<Attempt> {
+    let solution = match backend.solve(model) {
+        Ok(s) => s,
+        Err(e) => {
+            errors.push(format!("{}: {e}", backend.name()));
+            return None;
+        }
+    };
+    let residual = verify::residual(model, &solution.x, floors.0, floors.1);
+    let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
+    let site_capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    let allocation = verify::repair(
+        net,
+        index,
+        &solution.x,
+        &arc_capacity,
+        &site_capacity,
+        bound,
+    );
+    Some(Attempt {
+        solution,
+        residual,
+        allocation,
+    })
 }
