@@ -182,7 +182,7 @@ impl Model<'_> {
 
     /// The shortfall distribution: (bin label, scenario count); the first bin holds the
     /// scenarios with no shortfall, the rest split (0, top] into bins of one round width
-    /// ([`round_width`]: 1, 2 or 5 × 10^k, at most [`HISTOGRAM_BINS`] bins), bin `b`
+    /// ([`round_width`]: 1, 2 or 5 × 10^k, at most `HISTOGRAM_BINS` (8) bins), bin `b`
     /// holding (`(b−1)·w`, `b·w`]. O(scenarios).
     pub fn histogram(&self) -> Vec<(String, usize)> {
         let values: Vec<f64> = (0..self.audit.scenarios.len())
@@ -574,10 +574,10 @@ fn why_section(o: &mut String, r: &Report<'_>) {
         }
         None => crate::expand::binding(e.arc_price.iter().copied().enumerate()),
     };
-    let _ = write!(
+    let _ = writeln!(
         o,
         "<li>Links that would have to grow (one more {u} of capacity serves up to this much \
-         more, its shadow price{}): {}.</li></ul>\n",
+         more, its shadow price{}): {}.</li></ul>",
         if closing.is_some() {
             ", with processing added as far as allowed"
         } else {

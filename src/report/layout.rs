@@ -99,7 +99,7 @@ impl SplitMix {
 }
 
 /// The seed of the layout's start positions (fixed: the same network, the same drawing).
-const SEED: u64 = 0x7265_646f_7562_74;
+const SEED: u64 = 0x0072_6564_6f75_6274;
 
 /// Hop distances between all sites over the links (both directions), by one breadth-first
 /// search per site: O(n·(n + m)). Sites in different components are one hop further apart

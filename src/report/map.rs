@@ -1,7 +1,7 @@
 //! The report's topology map: the drawing computed once per run ([`Drawing::of`], held
 //! by the report model), the utilisation colour scale, the per-scenario marks, and the
 //! SVG with its legend. The page's script redraws the marks of a chosen scenario from the
-//! data [`scenario_data`] embeds; the SVG as written shows the worst scenario.
+//! data [`marks_json`] writes; the SVG as written shows the worst scenario.
 
 use std::fmt::Write as _;
 
