@@ -255,7 +255,14 @@ fn html_report_renders_in_headless_chromium() {
             "verdict"
         );
     }
-    for banned in ["<script", "<link", "@import", "http://", "https://", "url("] {
+    for banned in [
+        "<script src",
+        "<link",
+        "@import",
+        "http://",
+        "https://",
+        "url(",
+    ] {
         let outside = html.replace("http://www.w3.org/2000/svg", "");
         assert!(!outside.contains(banned), "self-contained: found {banned}");
     }

@@ -105,11 +105,6 @@ pub(super) fn run(
     let list = scenario_list(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err);
     if let Some(mode) = args.scenarios.routing {
-        if args.report.is_some() {
-            return Err(Error::Usage(
-                "--report is not available with --routing nearest|steered yet".into(),
-            ));
-        }
         if args.close && mode == routing::Mode::Nearest {
             return Err(nearest_refused("audit --close"));
         }
@@ -128,7 +123,7 @@ pub(super) fn run(
             gate_tolerance: args.gate_tolerance,
             close: args.close,
             why: false,
-            report: None,
+            report: report_files.as_ref(),
             top: args.top,
             opts,
             routed: Some(&ra),
@@ -371,6 +366,9 @@ pub(super) fn finish_audit(
         routed: o.routed,
         top: o.top,
     });
+    if o.report.is_some() {
+        model = model.drawn();
+    }
     if o.why {
         why_closing = why_of(net, audit, &cands, closings.as_deref(), model.worst())?;
         model.why = why_closing.as_ref().map(|(i, c)| report::text::WhyPart {

@@ -1,15 +1,16 @@
-//! `audit --report DIR`: one self-contained HTML file (inline styles and SVG; no scripts,
-//! no external styles or fonts, so it opens offline) and its Markdown twin
-//! ([`super::markdown`]). Both are built from one [`Report`], so they say the same.
+//! `audit --report DIR`: one self-contained HTML file (inline styles, inline SVG and one
+//! small inline script; no external script, style, font or image, so it opens offline)
+//! and its Markdown twin ([`super::markdown`]). Both are built from one [`Report`], so
+//! they say the same. The page holds every scenario in a sortable, filterable table
+//! ([`super::table`]), the closings, the worst scenario's explanation and prices, and the
+//! topology map ([`super::map`]) whose marks follow the scenario chosen in the table.
 
 use std::fmt::Write as _;
 use std::io::{self, Write};
 
 use super::export::{Exporter, Html};
 use super::model::Model;
-use super::{CAUTION, file_diff, num, percent};
-use crate::scenario::Element;
-use crate::solve::Resource;
+use super::{CAUTION, file_diff, map, num, percent, table};
 
 /// File names inside the report folder.
 pub const HTML_FILE: &str = "report.html";
@@ -32,10 +33,33 @@ pub const ASSUMPTIONS: [&str; 5] = [
 const CHART_BARS: usize = 12;
 /// Bins of the shortfall distribution (plus one for scenarios with none).
 const HISTOGRAM_BINS: usize = 8;
-/// Side of the topology drawing's square, in SVG units.
-const MAP_SIZE: f64 = 560.0;
-/// Margin around the drawn sites.
-const MAP_MARGIN: f64 = 50.0;
+
+/// The smallest round bin width (`m` × 10^`k`, `m` ∈ {1, 2, 5}) that covers (0, `top`]
+/// in at most `bins` bins; `None` when `top` is not positive. O(log top).
+pub fn round_width(top: f64, bins: usize) -> Option<(u64, i32)> {
+    if !(top > 0.0 && top.is_finite()) || bins == 0 {
+        return None;
+    }
+    let mut k = (top / bins as f64).log10().floor() as i32 - 1;
+    loop {
+        for m in [1u64, 2, 5] {
+            if (top / decimal(m, k)).ceil() <= bins as f64 {
+                return Some((m, k));
+            }
+        }
+        k += 1;
+    }
+}
+
+/// `n` × 10^`k` as the nearest double (an integer times a power of ten, divided when `k`
+/// is negative, so 3 × 10⁻¹ is 0.3, not 0.30000000000000004).
+pub fn decimal(n: u64, k: i32) -> f64 {
+    if k >= 0 {
+        n as f64 * 10f64.powi(k)
+    } else {
+        n as f64 / 10f64.powi(-k)
+    }
+}
 
 /// Rows of a table, each a list of cell texts.
 pub type Rows = Vec<Vec<String>>;
@@ -157,28 +181,30 @@ impl Model<'_> {
     }
 
     /// The shortfall distribution: (bin label, scenario count); the first bin holds the
-    /// scenarios with no shortfall, the rest split (0, worst] into equal widths.
+    /// scenarios with no shortfall, the rest split (0, top] into bins of one round width
+    /// ([`round_width`]: 1, 2 or 5 × 10^k, at most `HISTOGRAM_BINS` (8) bins), bin `b`
+    /// holding (`(b−1)·w`, `b·w`]. O(scenarios).
     pub fn histogram(&self) -> Vec<(String, usize)> {
         let values: Vec<f64> = (0..self.audit.scenarios.len())
             .map(|i| self.audit.eval(i).shortfall)
             .collect();
         let worst = values.iter().copied().fold(0.0, f64::max);
         let mut bins = vec![("none".to_string(), 0usize)];
-        if worst > 0.0 {
-            let step = worst / HISTOGRAM_BINS as f64;
-            for b in 0..HISTOGRAM_BINS {
-                bins.push((
-                    format!("{}–{}", num(step * b as f64), num(step * (b + 1) as f64)),
-                    0,
-                ));
-            }
+        let Some((m, k)) = round_width(worst, HISTOGRAM_BINS) else {
+            bins[0].1 = values.len();
+            return bins;
+        };
+        let edge = |b: usize| decimal(b as u64 * m, k);
+        let w = edge(1);
+        let count = ((worst / w).ceil() as usize).max(1);
+        for b in 0..count {
+            bins.push((format!("{}–{}", num(edge(b)), num(edge(b + 1))), 0));
         }
         for v in values {
             if v <= 0.0 {
                 bins[0].1 += 1;
             } else {
-                let step = worst / HISTOGRAM_BINS as f64;
-                let b = ((v / step).ceil() as usize).clamp(1, HISTOGRAM_BINS);
+                let b = ((v / w).ceil() as usize).clamp(1, count);
                 bins[b].1 += 1;
             }
         }
@@ -211,7 +237,6 @@ impl Model<'_> {
                     ]
                 })
             })
-            .take(self.top)
             .collect();
         Some((head, rows))
     }
@@ -254,78 +279,10 @@ impl Model<'_> {
             .collect();
         Some((facts, head, rows))
     }
-
-    /// Site positions in drawing units: the file's `x`/`y` when every site has them, else
-    /// a circle in file order (deterministic).
-    pub fn positions(&self) -> Vec<(f64, f64)> {
-        let sites = &self.net.sites;
-        let inner = MAP_SIZE - 2.0 * MAP_MARGIN;
-        if !sites.is_empty() && sites.iter().all(|s| s.x.is_some() && s.y.is_some()) {
-            let xs: Vec<f64> = sites.iter().map(|s| s.x.unwrap_or(0.0)).collect();
-            let ys: Vec<f64> = sites.iter().map(|s| s.y.unwrap_or(0.0)).collect();
-            let (x0, x1) = (
-                xs.iter().copied().fold(f64::INFINITY, f64::min),
-                xs.iter().copied().fold(f64::NEG_INFINITY, f64::max),
-            );
-            let (y0, y1) = (
-                ys.iter().copied().fold(f64::INFINITY, f64::min),
-                ys.iter().copied().fold(f64::NEG_INFINITY, f64::max),
-            );
-            let span = (x1 - x0).max(y1 - y0);
-            let scale = if span > 0.0 { inner / span } else { 0.0 };
-            return xs
-                .iter()
-                .zip(&ys)
-                .map(|(x, y)| {
-                    (
-                        MAP_MARGIN + (x - x0) * scale,
-                        // Larger y is drawn higher up, as on a map.
-                        MAP_MARGIN + (y1 - y) * scale,
-                    )
-                })
-                .collect();
-        }
-        let n = sites.len().max(1) as f64;
-        let r = inner / 2.0;
-        (0..sites.len())
-            .map(|i| {
-                let a = std::f64::consts::TAU * i as f64 / n - std::f64::consts::FRAC_PI_2;
-                (MAP_SIZE / 2.0 + r * a.cos(), MAP_SIZE / 2.0 + r * a.sin())
-            })
-            .collect()
-    }
-
-    /// For the map: failed links and sites of scenario `i` (its group links included), and
-    /// the links with a saturated direction in it.
-    pub fn marks(&self, i: Option<usize>) -> (Vec<bool>, Vec<bool>, Vec<bool>) {
-        let n = self.net;
-        let mut link_failed = vec![false; n.links.len()];
-        let mut site_failed = vec![false; n.sites.len()];
-        let mut saturated = vec![false; n.links.len()];
-        if let Some(i) = i {
-            for e in &self.audit.scenarios[i].elements {
-                match *e {
-                    Element::Link(l) => link_failed[l] = true,
-                    Element::Site(v) => site_failed[v] = true,
-                    Element::Group(g) => {
-                        for &l in &n.groups[g].links {
-                            link_failed[l] = true;
-                        }
-                    }
-                }
-            }
-            for b in &self.audit.eval(i).bottlenecks {
-                if let Resource::Arc(a) = b.resource {
-                    saturated[n.arcs[a].link] = true;
-                }
-            }
-        }
-        (link_failed, site_failed, saturated)
-    }
 }
 
 /// Escapes text for HTML content and attribute values.
-fn esc(s: &str) -> String {
+pub fn esc(s: &str) -> String {
     let mut o = String::with_capacity(s.len());
     for c in s.chars() {
         match c {
@@ -352,7 +309,23 @@ margin:6px 0 10px;background:#fff}th,td{padding:4px 10px;border-bottom:1px solid
 text-align:left;vertical-align:top}th{font-weight:600;color:#23404f;background:#efeadf}\
 td.n{text-align:right;font-variant-numeric:tabular-nums}td.k{white-space:nowrap}.facts td:first-child{color:#566}\
 svg{background:#fff;border:1px solid #e3ded2;margin:6px 0}figcaption{color:#566;\
-font-size:13px}ul{margin:4px 0}code{font-size:13px}";
+font-size:13px}ul{margin:4px 0}code{font-size:13px}\
+#scenarios th{cursor:pointer;user-select:none}#scenarios th[aria-sort=descending]::after{content:' ▼'}\
+#scenarios th[aria-sort=ascending]::after{content:' ▲'}#scenarios tbody tr{cursor:pointer}\
+#scenarios tr.sel td{background:#fdf1c7}#filter{font:inherit;padding:4px 8px}\
+#topology .ln{stroke-width:3}#topology .halo{stroke:none;stroke-width:13;stroke-linecap:round}\
+#topology .sat .halo{stroke:#ffd84d;stroke-opacity:.85}#topology .sat .ln{stroke-width:4.5}\
+#topology .failed .ln{stroke:#2c3338;stroke-dasharray:7 5;stroke-width:2}\
+#topology .failed .arrow{fill:#2c3338}#topology .mk{fill:#fff;stroke:#23404f;stroke-width:2}\
+#topology .failed .mk{fill:#f3c6bf;stroke:#b0281c}#topology .cross{stroke:#b0281c;\
+stroke-width:2.5;display:none}#topology .failed .cross{display:inline}\
+#topology .lbl rect{fill:#fff;fill-opacity:.9}#topology .lbl text{fill:#1f2a30}\
+#topology .clbl text{fill:#4b5b64}.legend{font-size:13px;color:#33444c}\
+.legend .key{display:inline-block;margin:2px 12px 2px 0}.legend i{display:inline-block;\
+width:18px;height:10px;margin-right:5px;vertical-align:middle;font-style:normal}\
+.legend i.dash{border-top:2px dashed #2c3338;height:0}.legend i.halo{background:#ffd84d}\
+.legend i.sq{width:10px;border:2px solid #23404f;background:#fff}\
+.legend i.xsite{color:#b0281c;font-weight:700;width:auto}";
 
 fn table_html(out: &mut String, head: &[String], rows: &[Vec<String>], numeric: &[usize]) {
     out.push_str("<table><thead><tr>");
@@ -454,82 +427,255 @@ fn histogram_svg(bins: &[(String, usize)], unit: &str) -> String {
     s
 }
 
-/// The topology: links as lines, sites as circles (processing sites as squares); the
-/// worst scenario's failed elements in red (dashed links, crossed sites), its saturated
-/// links thick amber.
-fn map_svg(r: &Report<'_>) -> String {
-    let net = r.net;
-    let pos = r.positions();
-    let (lf, sf, sat) = r.marks(r.worst_short());
-    let mut s = format!(
-        "<svg id=\"topology\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{MAP_SIZE}\" \
-         height=\"{MAP_SIZE}\" viewBox=\"0 0 {MAP_SIZE} {MAP_SIZE}\" role=\"img\">"
+/// The map section: the drawing (laid out once, [`Model::drawn`]; laid out here when the
+/// model was built without it), the legend and a caption naming the marked scenario.
+fn map_section(o: &mut String, r: &Report<'_>, first: Option<usize>) {
+    let own;
+    let d = match &r.drawing {
+        Some(d) => d,
+        None => {
+            own = map::Drawing::of(r.net);
+            &own
+        }
+    };
+    let blank = map::Marks {
+        link_failed: vec![false; r.net.links.len()],
+        site_failed: vec![false; r.net.sites.len()],
+        saturated: vec![false; r.net.links.len()],
+        util: vec![None; r.net.links.len()],
+    };
+    let mk = first.map(|i| map::marks(r, i)).unwrap_or(blank);
+    let _ = writeln!(
+        o,
+        "<h2>Topology</h2>\n<p>Marked: <strong id=\"map-scenario\">{}</strong> (choose a \
+         scenario in the table to mark it). {}</p>",
+        esc(&first.map_or("baseline".into(), |i| r.audit.scenarios[i].display_name())),
+        if d.from_file {
+            "Sites at the file's x, y positions."
+        } else {
+            "The file gives no x, y positions: sites placed by a deterministic \
+             stress-majorisation layout (hop distances), the same on every run."
+        }
     );
-    for (l, link) in net.links.iter().enumerate() {
-        let (a, b) = (pos[link.from], pos[link.to]);
-        let (stroke, width, dash) = if lf[l] {
-            ("#c0392b", 3.0, " stroke-dasharray=\"7 5\"")
-        } else if sat[l] {
-            ("#d9a21a", 6.0, "")
+    o.push_str("<figure>");
+    o.push_str(&map::map_svg(r, d, &mk));
+    o.push_str(&map::legend_html(r.routed.is_some()));
+    o.push_str("</figure>\n");
+}
+
+/// The worst scenario's explanation (the `--why` data when given, else the worst
+/// scenario with its closing from `--close` if any): the demands not fully served,
+/// saturated resources, cut-off demands, what processing fixes, which links would have to
+/// grow, and where one more unit of processing helps (its site prices).
+fn why_section(o: &mut String, r: &Report<'_>) {
+    let (i, closing) = match &r.why {
+        Some(w) => (w.scenario, w.closing),
+        None => match r.worst_short() {
+            Some(i) => (i, r.closings.and_then(|c| c[r.audit.outage_of[i]].as_ref())),
+            None => return,
+        },
+    };
+    let net = r.net;
+    let u = &net.unit;
+    let e = r.audit.eval(i);
+    let _ = writeln!(
+        o,
+        "<h2 id=\"why\">Why the worst scenario is short</h2>\n<p><strong>{}</strong> serves {} \
+         of {} {u} surviving required ({} short, {}); {} {u} stranded.</p>",
+        esc(&r.audit.scenarios[i].display_name()),
+        num(e.served_required),
+        num(e.surviving_required),
+        num(e.shortfall),
+        percent(e.shortfall, e.surviving_required),
+        num(e.stranded)
+    );
+    let head = vec![
+        "demand".to_string(),
+        "from → to".into(),
+        format!("required ({u})"),
+        format!("served ({u})"),
+        format!("short ({u})"),
+        "status".into(),
+    ];
+    let mut rows = Vec::new();
+    for (dm, dem) in net.demands.iter().enumerate() {
+        let stranded = e.stranded_demands.contains(&dm);
+        let cut = e.cut_off.iter().any(|(c, _)| *c == dm);
+        let short = e.demand_shortfall.get(dm).copied().unwrap_or(0.0);
+        if dem.required <= 0.0 || !(stranded || cut || short > 0.0) {
+            continue;
+        }
+        let status = if stranded {
+            "stranded: an end site failed"
+        } else if cut {
+            "cut off: no walk through a surviving processing site"
         } else {
-            ("#8aa0ab", 2.0, "")
+            "short"
         };
-        let _ = write!(
-            s,
-            "<line x1=\"{:.1}\" y1=\"{:.1}\" x2=\"{:.1}\" y2=\"{:.1}\" stroke=\"{stroke}\" \
-             stroke-width=\"{width}\"{dash}><title>link:{}</title></line>",
-            a.0,
-            a.1,
-            b.0,
-            b.1,
-            esc(&link.id)
-        );
+        rows.push(vec![
+            dem.label.clone(),
+            format!("{} → {}", net.sites[dem.from].id, net.sites[dem.to].id),
+            num(dem.required),
+            num(if stranded {
+                0.0
+            } else {
+                e.demand_flow.get(dm).copied().unwrap_or(0.0)
+            }),
+            num(if stranded { dem.required } else { short }),
+            status.into(),
+        ]);
     }
-    for (v, site) in net.sites.iter().enumerate() {
-        let (x, y) = pos[v];
-        let fill = if sf[v] { "#f3c6bf" } else { "#ffffff" };
-        let edge = if sf[v] { "#c0392b" } else { "#23404f" };
-        if site.processing > 0.0 {
-            let _ = write!(
-                s,
-                "<rect x=\"{:.1}\" y=\"{:.1}\" width=\"16\" height=\"16\" fill=\"{fill}\" \
-                 stroke=\"{edge}\" stroke-width=\"2.5\"/>",
-                x - 8.0,
-                y - 8.0
-            );
+    if !rows.is_empty() {
+        o.push_str("<p>Demands not fully served (one of possibly several optimal splits):</p>\n");
+        table_html(o, &head, &rows, &[2, 3, 4]);
+    }
+    let names = |f: &dyn Fn(&crate::solve::Bottleneck) -> Option<String>| -> String {
+        let v: Vec<String> = e.bottlenecks.iter().filter_map(f).collect();
+        if v.is_empty() {
+            "none".into()
         } else {
-            let _ = write!(
-                s,
-                "<circle cx=\"{x:.1}\" cy=\"{y:.1}\" r=\"7\" fill=\"{fill}\" stroke=\"{edge}\" \
-                 stroke-width=\"2\"/>"
-            );
+            v.join(", ")
         }
-        if sf[v] {
+    };
+    o.push_str("<ul>");
+    let _ = write!(
+        o,
+        "<li>Saturated link directions: {}.</li><li>Saturated processing: {}.</li>",
+        esc(&names(&|b| match b.resource {
+            crate::solve::Resource::Arc(_) => Some(super::text::resource_name(net, b.resource)),
+            _ => None,
+        })),
+        esc(&names(&|b| match b.resource {
+            crate::solve::Resource::Site(v) => Some(net.sites[v].id.clone()),
+            _ => None,
+        }))
+    );
+    let grow = match closing {
+        Some(c) => {
+            let fixed = (c.best - e.served_required).max(0.0);
             let _ = write!(
-                s,
-                "<path d=\"M{:.1} {:.1}L{:.1} {:.1}M{:.1} {:.1}L{:.1} {:.1}\" stroke=\"#c0392b\" \
-                 stroke-width=\"2.5\"/>",
-                x - 11.0,
-                y - 11.0,
-                x + 11.0,
-                y + 11.0,
-                x - 11.0,
-                y + 11.0,
-                x + 11.0,
-                y - 11.0
+                o,
+                "<li>Processing can fix {} of the {} {u} short{}; {} {u} cannot be closed by \
+                 processing.</li>",
+                num(fixed),
+                num(e.shortfall),
+                if fixed > 0.0 {
+                    esc(&format!(
+                        ": add {} (cost {})",
+                        super::text::additions(net, &c.add, net.sites.len()),
+                        num(c.cost)
+                    ))
+                } else {
+                    String::new()
+                },
+                num(c.not_closable)
             );
+            c.binding_arcs.clone()
         }
-        let _ = write!(
-            s,
-            "<text x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"middle\" font-size=\"12\" \
-             fill=\"#1f2a30\">{}</text>",
-            x,
-            y - 13.0,
-            esc(&site.id)
+        None => crate::expand::binding(e.arc_price.iter().copied().enumerate()),
+    };
+    let _ = writeln!(
+        o,
+        "<li>Links that would have to grow (one more {u} of capacity serves up to this much \
+         more, its shadow price{}): {}.</li></ul>",
+        if closing.is_some() {
+            ", with processing added as far as allowed"
+        } else {
+            ""
+        },
+        esc(&if grow.is_empty() {
+            "none".to_string()
+        } else {
+            grow.iter()
+                .map(|&(a, p)| {
+                    format!(
+                        "{} +{}",
+                        super::text::resource_name(net, crate::solve::Resource::Arc(a)),
+                        num(p)
+                    )
+                })
+                .collect::<Vec<_>>()
+                .join(", ")
+        })
+    );
+    let mut prices: Vec<(usize, f64)> = e
+        .site_price
+        .iter()
+        .enumerate()
+        .filter_map(|(v, p)| p.filter(|p| *p > 1e-6).map(|p| (v, p)))
+        .collect();
+    prices.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    o.push_str("<h2>Where one more unit helps</h2>\n");
+    if prices.is_empty() {
+        o.push_str("<p>In the worst scenario no site's processing limits what is served.</p>\n");
+    } else {
+        let rows: Vec<Vec<String>> = prices
+            .iter()
+            .map(|&(v, p)| vec![format!("site:{}", net.sites[v].id), num(p)])
+            .collect();
+        let _ = writeln!(
+            o,
+            "<p>In the worst scenario, one more {u} of processing at a site serves up to its \
+             price more (the shadow price of its processing):</p>"
+        );
+        table_html(
+            o,
+            &["site".into(), format!("served per added {u}")],
+            &rows,
+            &[1],
         );
     }
-    s.push_str("</svg>");
-    s
+    if !r.relief.is_empty() {
+        let rows: Vec<Vec<String>> = r
+            .relief
+            .iter()
+            .map(|&(v, n, p)| vec![format!("site:{}", net.sites[v].id), n.to_string(), num(p)])
+            .collect();
+        o.push_str("<p>Over all short scenarios (expandable sites):</p>\n");
+        table_html(
+            o,
+            &[
+                "site".into(),
+                "short scenarios helped".into(),
+                format!("most served per added {u}"),
+            ],
+            &rows,
+            &[1, 2],
+        );
+    }
+}
+
+/// The page's embedded data for its script: every element name, the colour scale, and
+/// each listed scenario's names and marks ([`map::marks_json`]). O(rows · (links + sites)).
+fn page_data(r: &Report<'_>, rows: &[table::Row]) -> String {
+    let mut names: Vec<String> = r
+        .criticality
+        .iter()
+        .map(|c| c.element.name(r.net))
+        .collect();
+    names.sort();
+    let mut o = format!(
+        "{{\"names\":{},\"steps\":{},\"unknown\":\"#9aa9b1\",\"sc\":[",
+        serde_json::to_string(&names).unwrap_or_else(|_| "[]".into()),
+        serde_json::to_string(&map::UTIL_STEPS.iter().map(|s| s.1).collect::<Vec<_>>())
+            .unwrap_or_else(|_| "[]".into())
+    );
+    for (k, row) in rows.iter().enumerate() {
+        if k > 0 {
+            o.push(',');
+        }
+        let mk = map::marks(r, row.scenario);
+        let body = map::marks_json(&mk);
+        let _ = write!(
+            o,
+            "{{\"n\":{},{}",
+            serde_json::to_string(&r.audit.scenarios[row.scenario].failed)
+                .unwrap_or_else(|_| "[]".into()),
+            &body[1..]
+        );
+    }
+    o.push_str("]}");
+    table::script_safe(&o)
 }
 
 /// The HTML report as one string.
@@ -565,20 +711,72 @@ pub fn html(r: &Report<'_>) -> String {
     for (k, v) in r.summary() {
         let _ = write!(o, "<tr><td>{}</td><td>{}</td></tr>", esc(&k), esc(&v));
     }
+    if let Some(ra) = r.routed {
+        let b = &ra.baseline;
+        let _ = write!(
+            o,
+            "<tr><td>routing</td><td>{} (as deployed); baseline serves {} {u}, the best \
+             re-route {} {u}; largest link utilisation under the offered load {}</td></tr>",
+            esc(ra.mode.name()),
+            num(b.eval.served_required),
+            num(ra.baseline_best.served_required),
+            esc(&super::routing::util_text(b.offered.max_link_util))
+        );
+    }
     o.push_str("</tbody></table>\n<h2>Assumptions of the model</h2>\n<ul>");
     for a in ASSUMPTIONS {
         let _ = write!(o, "<li>{}</li>", esc(a));
     }
-    o.push_str("</ul>\n<h2>Worst scenarios</h2>\n");
-    let (head, rows) = r.worst_table();
-    table_html(&mut o, &head, &rows, &[0, 2, 3, 4, 5]);
+    o.push_str("</ul>\n");
+    let (head, rows) = table::all_scenarios(r);
+    let _ = writeln!(
+        o,
+        "<h2>All scenarios</h2>\n<p>{} listed{}, worst first. Click a column head to sort, \
+         type element names to filter (<span id=\"shown-count\">{}</span> shown), click a row \
+         to mark it on the map.</p>\n<p><input id=\"filter\" type=\"search\" \
+         placeholder=\"filter: e.g. link:{}\" aria-label=\"filter scenarios by element name\" \
+         size=\"40\"></p>",
+        super::count(rows.len(), "scenario"),
+        if rows.len() < r.audit.scenarios.len() {
+            format!(
+                " of {} (the --json and --csv files hold all)",
+                r.audit.scenarios.len()
+            )
+        } else {
+            String::new()
+        },
+        rows.len(),
+        esc(net.links.first().map_or("", |l| l.id.as_str()))
+    );
+    o.push_str(&table::scenarios_html(&head, &rows));
     let _ = writeln!(
         o,
         "<p>Shortfall: required demand of surviving demands not routed and processed. \
          Stranded: required demand of demands whose own end site failed (not in the \
          shortfall). Throughput loss: offered volume the baseline carries and the scenario \
-         does not.</p>"
+         does not.{}</p>",
+        if r.routed.is_some() {
+            " Values are those of the deployed routing; win-back is what the best re-route \
+             would recover."
+        } else {
+            ""
+        }
     );
+    map_section(&mut o, r, rows.first().map(|row| row.scenario));
+    why_section(&mut o, r);
+    if let Some((head, rows)) = r.closing_table() {
+        o.push_str("<h2>Closing the gaps</h2>\n");
+        let _ = writeln!(
+            o,
+            "<p>The cheapest processing added per short scenario{}.</p>",
+            if r.default_costs() {
+                " (no site has a cost: every unit costs 1)"
+            } else {
+                ""
+            }
+        );
+        table_html(&mut o, &head, &rows, &[1, 2, 4]);
+    }
     o.push_str("<h2>Element criticality</h2>\n<figure>");
     o.push_str(&bars_svg(&r.criticality(), u, "criticality"));
     let _ = writeln!(
@@ -590,31 +788,9 @@ pub fn html(r: &Report<'_>) -> String {
     o.push_str("<h2>Shortfall over the scenarios</h2>\n<figure>");
     o.push_str(&histogram_svg(&r.histogram(), u));
     o.push_str(
-        "<figcaption>How many scenarios fall in each shortfall range.</figcaption></figure>\n",
+        "<figcaption>How many scenarios fall in each shortfall range (a range includes its \
+         upper end).</figcaption></figure>\n",
     );
-    o.push_str("<h2>Topology</h2>\n<figure>");
-    o.push_str(&map_svg(r));
-    let _ = writeln!(
-        o,
-        "<figcaption>{}Squares process traffic. {}</figcaption></figure>",
-        match r.worst_short() {
-            Some(i) => format!(
-                "Marked: the worst scenario, {} — failed links red dashed, failed sites crossed, \
-                 saturated links thick amber. ",
-                r.audit.scenarios[i].display_name()
-            ),
-            None => "No scenario is short, so nothing is marked. ".into(),
-        },
-        if net.sites.iter().all(|s| s.x.is_some() && s.y.is_some()) {
-            "Sites at the file's x, y positions."
-        } else {
-            "Sites on a circle in file order (the file gives no x, y positions)."
-        }
-    );
-    if let Some((head, rows)) = r.closing_table() {
-        o.push_str("<h2>Closing the gaps</h2>\n");
-        table_html(&mut o, &head, &rows, &[1, 2, 4]);
-    }
     if let Some((facts, head, rows)) = r.risk_table() {
         o.push_str("<h2>Risk</h2>\n<ul>");
         for f in facts {
@@ -624,6 +800,12 @@ pub fn html(r: &Report<'_>) -> String {
         table_html(&mut o, &head, &rows, &[1, 2]);
     }
     let _ = writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION));
+    let _ = write!(
+        o,
+        "<script type=\"application/json\" id=\"report-data\">{}</script>\n<script>{}</script>\n",
+        page_data(r, &rows),
+        table::SCRIPT
+    );
     o.push_str("</main></body></html>\n");
     o
 }

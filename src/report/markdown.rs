@@ -46,9 +46,22 @@ pub fn markdown(r: &Report<'_>) -> String {
     for a in ASSUMPTIONS {
         let _ = writeln!(o, "- {a}");
     }
-    o.push_str("\n## Worst scenarios\n\n");
-    let (head, rows) = r.worst_table();
-    table_md(&mut o, &head, &rows);
+    o.push_str("\n## All scenarios\n\n");
+    let (head, rows) = super::table::all_scenarios(r);
+    if rows.len() < r.audit.scenarios.len() {
+        let _ = writeln!(
+            o,
+            "The first {} of {} scenarios, worst first (the --json and --csv files hold all).\n",
+            rows.len(),
+            r.audit.scenarios.len()
+        );
+    }
+    let head: Vec<String> = head.into_iter().map(|(h, _)| h).collect();
+    let cells: Vec<Vec<String>> = rows
+        .iter()
+        .map(|row| row.cells.iter().map(|(t, _)| t.clone()).collect())
+        .collect();
+    table_md(&mut o, &head, &cells);
     o.push_str("## Element criticality\n\n");
     let crit: Vec<Vec<String>> = r
         .criticality()
@@ -74,7 +87,8 @@ pub fn markdown(r: &Report<'_>) -> String {
     o.push_str("## Topology\n\n");
     match r.worst_short() {
         Some(i) => {
-            let (lf, sf, sat) = r.marks(Some(i));
+            let mk = super::map::marks(r, i);
+            let (lf, sf, sat) = (mk.link_failed, mk.site_failed, mk.saturated);
             let names = |marks: &[bool], ids: &dyn Fn(usize) -> String| -> String {
                 let v: Vec<String> = marks
                     .iter()

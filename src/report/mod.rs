@@ -10,11 +10,14 @@ pub mod export;
 pub mod file;
 pub mod html;
 pub mod json;
+pub mod layout;
+pub mod map;
 pub mod markdown;
 pub mod model;
 pub mod notes;
 pub mod routing;
 pub mod screen;
+pub mod table;
 pub mod text;
 pub mod worst;
 

@@ -88,6 +88,9 @@ pub struct Model<'a> {
     pub routed: Option<&'a RoutedAudit>,
     /// How many rows the tables show.
     pub top: usize,
+    /// The topology map's geometry (layout and label places), computed once when a
+    /// report is written ([`Model::drawn`]); `None` otherwise.
+    pub drawing: Option<super::map::Drawing>,
 }
 
 impl<'a> Model<'a> {
@@ -132,7 +135,16 @@ impl<'a> Model<'a> {
             why: p.why,
             routed: p.routed,
             top: p.top,
+            drawing: None,
         }
+    }
+
+    /// The model with the map's geometry computed ([`super::map::Drawing::of`]: the
+    /// layout when the file gives no positions, and the label places), for the report
+    /// files. Once per run; deterministic.
+    pub fn drawn(mut self) -> Self {
+        self.drawing = Some(super::map::Drawing::of(self.net));
+        self
     }
 
     /// The worst scenario of the run (first in `order`), if there is any scenario.
