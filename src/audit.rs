@@ -21,7 +21,7 @@ use crate::error::{EXIT_INTERRUPTED, Error, Result};
 use crate::model::Network;
 use crate::report::journal::{Journal, Resume};
 use crate::scenario::{Element, Outage, Scenario};
-use crate::solve::{self, Evaluation, colgen};
+use crate::solve::{self, Evaluation, approx, colgen};
 
 /// How to run a batch of scenarios.
 #[derive(Debug, Clone, Copy, Default)]
@@ -196,11 +196,12 @@ pub struct Probe {
 /// Solves what a batch needs before anything else (the walk engine's baseline) and one
 /// sample scenario, timed. The sample is solved exactly as [`Batch`] would solve it (a
 /// single failure starts from the baseline), so its evaluation is reused.
-pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result<Probe> {
+/// `eps` is the approximate engine's ε (read only with [`Engine::Approx`]).
+pub fn probe(net: &Network, engine: Engine, eps: f64, sample: Option<&Scenario>) -> Result<Probe> {
     let start = Instant::now();
     let base = match engine {
         Engine::Walks => Some(colgen::evaluate_walks(net, &Outage::default(), None)?),
-        Engine::Edge => None,
+        Engine::Edge | Engine::Approx => None,
     };
     let baseline_took = start.elapsed();
     let start = Instant::now();
@@ -210,6 +211,7 @@ pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result
             let e = match &base {
                 Some(b) if o.is_empty() => b.evaluation.clone(),
                 Some(b) => colgen::evaluate_walks(net, &o, Some(&b.basis))?.evaluation,
+                None if engine == Engine::Approx => approx::evaluate_approx(net, &o, eps)?,
                 None => solve::evaluate(net, &o)?,
             };
             Some((o, e))
@@ -257,6 +259,8 @@ pub struct Batch {
     /// Per element with a single-failure scenario: that scenario's outage.
     single: HashMap<Element, usize>,
     engine: Engine,
+    /// With [`Engine::Approx`]: its ε.
+    epsilon: f64,
     /// With [`Engine::Walks`]: the baseline's optimum, the start of every other outage.
     basis: Option<colgen::Basis>,
     /// What is kept of each evaluation.
@@ -316,11 +320,18 @@ impl Batch {
             parent,
             single,
             engine,
+            epsilon: approx::DEFAULT_EPSILON,
             basis: None,
             keep: Keep::Full,
             shard: None,
             stats: Mutex::new(colgen::Stats::default()),
         }
+    }
+
+    /// Sets the ε of [`Engine::Approx`] (default [`approx::DEFAULT_EPSILON`]).
+    pub fn with_epsilon(mut self, eps: f64) -> Batch {
+        self.epsilon = eps;
+        self
     }
 
     /// Chooses what is kept of each evaluation (default [`Keep::Full`]).
@@ -397,7 +408,7 @@ impl Batch {
         if self.engine != Engine::Walks || self.basis.is_some() {
             return Ok(());
         }
-        let p = probe(net, self.engine, None)?;
+        let p = probe(net, self.engine, self.epsilon, None)?;
         self.seed(p, journal);
         Ok(())
     }
@@ -436,12 +447,19 @@ impl Batch {
             bar.inc();
             out.push((k, self.stored(k, e, journaled)));
         };
-        if self.engine == Engine::Edge {
+        if self.engine != Engine::Walks {
             for &k in members {
                 if interrupted() {
                     return Err(Error::Interrupted("solving stopped".into()));
                 }
-                record(k, solve::evaluate(net, &self.outages[k])?);
+                let o = &self.outages[k];
+                record(
+                    k,
+                    match self.engine {
+                        Engine::Approx => approx::evaluate_approx(net, o, self.epsilon)?,
+                        _ => solve::evaluate(net, o)?,
+                    },
+                );
             }
         } else {
             let parent = match p {
@@ -575,7 +593,7 @@ impl Batch {
         let todo: Vec<usize> = (0..self.outages.len())
             .filter(|&k| self.done[k].is_none() && self.mine(k))
             .collect();
-        if self.engine == Engine::Edge {
+        if self.engine != Engine::Walks {
             return todo.into_iter().map(|k| (None, vec![k])).collect();
         }
         let mut fam: std::collections::BTreeMap<Element, Vec<usize>> = Default::default();

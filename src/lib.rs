@@ -170,7 +170,8 @@ pub(crate) fn solve_list(
     opts: audit::RunOptions,
     err: &mut dyn Write,
 ) -> Result<audit::Audit> {
-    let probe = estimate(net, &list, 1, engine, args, opts, err)?;
+    let eps = solve::approx::DEFAULT_EPSILON;
+    let probe = estimate(net, &list, 1, engine, eps, args, opts, err)?;
     let mut batch = audit::Batch::new(net, list.iter, engine);
     batch.seed(probe, None);
     batch.finish(net, opts, None)
@@ -225,19 +226,22 @@ fn time_limit(args: &ScenarioArgs) -> Result<Option<f64>> {
 /// Estimates a run before its scenarios are enumerated: solves what the engine needs
 /// first (the baseline) and one sample scenario, timed, then `baseline + sample ×
 /// (count − 1) / threads`. Shows the estimate when long; refuses beyond the limit unless
-/// `--yes`. Returns the probe, whose solves the batch reuses.
+/// `--yes`. Returns the probe, whose solves the batch reuses. `eps`: the ε of
+/// `--engine approx`.
+#[allow(clippy::too_many_arguments)]
 fn estimate(
     net: &Network,
     list: &Scenarios<'_>,
     share: usize,
     engine: cli::Engine,
+    eps: f64,
     args: &ScenarioArgs,
     opts: audit::RunOptions,
     err: &mut dyn Write,
 ) -> Result<audit::Probe> {
     let limit = time_limit(args)?;
     let count = (list.count as usize).div_ceil(share.max(1));
-    let probe = audit::probe(net, engine, Some(&list.sample))?;
+    let probe = audit::probe(net, engine, eps, Some(&list.sample))?;
     let threads = opts.threads.unwrap_or_else(cores).clamp(1, count.max(1));
     let first = probe.baseline_took + probe.sample_took;
     let rest = probe
@@ -371,9 +375,32 @@ fn audit_fingerprint(args: &AuditArgs, network_text: &str) -> String {
         args.fail.as_deref(),
         args.scenarios.depth,
         &args.scenarios.kinds,
-        &format!("{:?}", args.engine),
+        &match args.engine {
+            // ε decides the results: a journal of another ε is not resumed.
+            cli::Engine::Approx => format!("Approx:{}", args.epsilon.unwrap_or_default()),
+            other => format!("{other:?}"),
+        },
         args.scenarios.down.as_deref(),
     )
+}
+
+/// The ε of `--engine approx` (default [`solve::approx::DEFAULT_EPSILON`]); `--epsilon`
+/// outside (0, 0.5] or without `--engine approx`, or `--engine approx` with `--shard`
+/// (a part file does not carry ε), is a usage error.
+fn approx_epsilon(args: &AuditArgs) -> Result<f64> {
+    use solve::approx::{DEFAULT_EPSILON, MAX_EPSILON, epsilon_ok};
+    match (args.engine, args.epsilon) {
+        (cli::Engine::Approx, _) if args.shard.is_some() => Err(Error::Usage(
+            "--engine approx with --shard is not supported: a part file does not carry ε".into(),
+        )),
+        (cli::Engine::Approx, None) => Ok(DEFAULT_EPSILON),
+        (cli::Engine::Approx, Some(e)) if epsilon_ok(e) => Ok(e),
+        (cli::Engine::Approx, Some(e)) => Err(Error::Usage(format!(
+            "--epsilon must be > 0 and at most {MAX_EPSILON}, got {e}"
+        ))),
+        (_, Some(_)) => Err(Error::Usage("--epsilon is only for --engine approx".into())),
+        (_, None) => Ok(DEFAULT_EPSILON),
+    }
 }
 
 /// [`audit_fingerprint`] from its parts (also what `merge` recomputes from a part header).
@@ -418,6 +445,7 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
     let gates = gates_of(args)?;
     time_limit(&args.scenarios)?;
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
+    let eps = approx_epsilon(args)?;
     if shard.is_some() {
         report::text::refuse_with_shard(args.csv.is_some(), args.report.is_some(), args.why)?;
     }
@@ -473,7 +501,16 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         return run_routed_audit(args, &net, scenarios, opts, mode, &gates, out);
     }
     let share = shard.map_or(1, |s| s.1);
-    let probe = estimate(&net, &list, share, args.engine, &args.scenarios, opts, err)?;
+    let probe = estimate(
+        &net,
+        &list,
+        share,
+        args.engine,
+        eps,
+        &args.scenarios,
+        opts,
+        err,
+    )?;
     // --close reads every evaluation in full; otherwise only the JSON does, from the journal.
     // --close, --why and --report read every evaluation in full; otherwise only the JSON
     // does, from the journal.
@@ -483,7 +520,9 @@ fn run_audit(args: &AuditArgs, out: &mut dyn Write, err: &mut dyn Write) -> Resu
         (false, Some(_), _) => audit::Keep::ThinJournaled,
         (false, None, None) => audit::Keep::Thin,
     };
-    let mut batch = audit::Batch::new(&net, list.iter, args.engine).keeping(keep);
+    let mut batch = audit::Batch::new(&net, list.iter, args.engine)
+        .keeping(keep)
+        .with_epsilon(eps);
     if let Some((i, n)) = shard {
         batch = batch.shard(i, n);
     }

@@ -456,7 +456,17 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     let _ = writeln!(out, "\n{}", verification_summary(audit));
     for (k, e) in audit.evaluations.iter().enumerate() {
         let name = || audit.first_scenario(k).display_name();
-        if !e.verification.proven {
+        if let Some(eps) = approximate(&e.verification).filter(|_| !e.verification.proven) {
+            let _ = writeln!(
+                out,
+                "APPROXIMATE: {}: served_required between {} and {} (approximate within {eps} \
+                 of required; reported at the lower bound, so its shortfall is not \
+                 understated).",
+                name(),
+                num(e.verification.lower),
+                amount(e.verification.upper, u)
+            );
+        } else if !e.verification.proven {
             let _ = writeln!(
                 out,
                 "UNPROVEN: {}: served_required between {} and {} (reported at the lower \
@@ -469,8 +479,13 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
         if let Some(t) = e.throughput_verification.as_ref().filter(|t| !t.proven) {
             let _ = writeln!(
                 out,
-                "UNPROVEN: {}: throughput between {} and {} {u} (reported at the lower bound, \
+                "{}: {}: throughput between {} and {} {u} (reported at the lower bound, \
                  so its loss is not understated).",
+                if approximate(t).is_some() {
+                    "APPROXIMATE"
+                } else {
+                    "UNPROVEN"
+                },
                 name(),
                 num(t.lower),
                 num(t.upper)
@@ -594,11 +609,29 @@ pub fn verification_summary(audit: &Audit) -> String {
             String::new()
         },
         if proven < n {
-            format!("; {} UNPROVEN, listed below", n - proven)
+            match audit
+                .evaluations
+                .iter()
+                .find_map(|e| approximate(&e.verification))
+            {
+                Some(eps) => format!(
+                    "; {} approximate within {eps} of required (--engine approx), listed below",
+                    n - proven
+                ),
+                None => format!("; {} UNPROVEN, listed below", n - proven),
+            }
         } else {
             String::new()
         }
     )
+}
+
+/// The ε of a result of the approximate engine (its backend reads `approx (epsilon E)`),
+/// as written there; `None` for the exact engines.
+fn approximate(v: &crate::solve::Verification) -> Option<&str> {
+    v.backend
+        .strip_prefix("approx (epsilon ")
+        .and_then(|r| r.strip_suffix(')'))
 }
 
 /// The caution line every report ends with.

@@ -71,6 +71,9 @@ pub const MAX_EPSILON: f64 = 0.5;
 pub const MAX_PHASE_FACTOR: f64 = 4.0;
 /// Stored lengths are renormalised when one exceeds this.
 const RENORM: f64 = 1e150;
+/// Cheapest-walk rounds per origin when the lower bound is topped up with residual
+/// capacity.
+const TOP_UP_WALKS: usize = 4;
 
 /// Whether `eps` is an ε this engine accepts: finite, in (0, [`MAX_EPSILON`]].
 pub fn epsilon_ok(eps: f64) -> bool {
@@ -179,9 +182,20 @@ impl State<'_> {
     /// Dijkstra from `2s` (site `s`, unprocessed) with the stored lengths; fills `dist`
     /// and `pred` (the edge index reaching each node). O((arcs + sites)·log sites).
     fn dijkstra(&mut self, s: usize) {
+        self.dijkstra_within(s, None);
+    }
+
+    /// [`Self::dijkstra`] over the edges whose row keeps some residual capacity
+    /// (`residual`: per arc, per site), when given.
+    fn dijkstra_within(&mut self, s: usize, residual: Option<(&[f64], &[f64])>) {
         let len = |r: Row| match r {
             Row::Arc(a) => self.arc_len[a],
             Row::Site(v) => self.site_len[v],
+        };
+        let open = |r: Row| match (r, residual) {
+            (_, None) => true,
+            (Row::Arc(a), Some((ra, _))) => ra[a] > 0.0,
+            (Row::Site(v), Some((_, rs))) => rs[v] > 0.0,
         };
         self.dist.fill(f64::INFINITY);
         self.pred.fill(usize::MAX);
@@ -194,6 +208,9 @@ impl State<'_> {
             }
             for e in self.layers.start[u]..self.layers.start[u + 1] {
                 let w = self.layers.to[e];
+                if !open(self.layers.row[e]) {
+                    continue;
+                }
                 let nd = d + len(self.layers.row[e]);
                 if nd < self.dist[w] {
                     self.dist[w] = nd;
@@ -395,9 +412,7 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
             }
         })
         .collect();
-    let active: Vec<usize> = (0..net.demands.len())
-        .filter(|&d| bound[d] > 0.0)
-        .collect();
+    let active: Vec<usize> = (0..net.demands.len()).filter(|&d| bound[d] > 0.0).collect();
     let at_stake = super::at_stake(net, view, &all);
     let target = eps * at_stake;
     let (arc_cap, site_cap) = flow::presolved_caps(net, view, cap);
@@ -415,7 +430,13 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
         arc_len: net
             .arcs
             .iter()
-            .map(|a| if a.capacity > 0.0 { 1.0 / a.capacity } else { 0.0 })
+            .map(|a| {
+                if a.capacity > 0.0 {
+                    1.0 / a.capacity
+                } else {
+                    0.0
+                }
+            })
             .collect(),
         site_len: net
             .sites
@@ -523,31 +544,140 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
         }
         if standard_done || phases >= next_check {
             next_check = phases + phases.div_ceil(4);
-            let (lower, upper) = estimate(&st, &active, &walk_len, &arc_cap, &site_cap);
+            let (lower, upper) =
+                estimate(&mut st, &by_origin, &active, &walk_len, &arc_cap, &site_cap);
             if upper.min(at_stake) - lower <= target {
                 break;
             }
         }
     }
     Ok(verified(
-        net, view, &st, &all, &active, &walk_len, &arc_cap, &site_cap, at_stake, eps,
+        net, view, &mut st, &by_origin, &all, &active, &walk_len, &arc_cap, &site_cap, at_stake,
+        eps,
     ))
 }
 
-/// The cheap interval of a run in progress: the flow scaled by its largest overload, and
-/// the certificate's bound with each demand's last computed walk length (a lower bound on
-/// its current one, so never below the true bound) at the best scale.
+/// The interval of a run in progress: the verifier's repair of the walks (raw and scaled
+/// by their largest overload, the better kept) and the certificate's bound with each
+/// demand's last computed walk length (a lower bound on its current one, so never below
+/// the true certificate) at the best scale. O(Σ walk lengths + demands·log demands).
 fn estimate(
-    st: &State,
+    st: &mut State,
+    by_origin: &[Vec<usize>],
     active: &[usize],
     walk_len: &[f64],
     arc_cap: &[f64],
     site_cap: &[f64],
 ) -> (f64, f64) {
-    let total: f64 = st.flow.iter().sum();
-    let lower = total / st.overload();
+    let lower = repaired(st, by_origin).served;
     let (a, terms) = priced(st, active, walk_len, arc_cap, site_cap);
     (lower, best_scale(a, &terms).0)
+}
+
+/// The verifier's repair ([`verify::repair_walks`]) of the run's walks, raw and scaled by
+/// their largest overload; the one that delivers more. Feasible by construction.
+fn repaired(st: &mut State, by_origin: &[Vec<usize>]) -> verify::Repaired {
+    let net = st.net;
+    let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
+    let site_capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    let raw = verify::repair_walks(
+        net,
+        &st.verify_walks(1.0),
+        &arc_capacity,
+        &site_capacity,
+        st.bound,
+    );
+    let scaled = verify::repair_walks(
+        net,
+        &st.verify_walks(1.0 / st.overload()),
+        &arc_capacity,
+        &site_capacity,
+        st.bound,
+    );
+    let best = if scaled.served >= raw.served {
+        scaled
+    } else {
+        raw
+    };
+    top_up(st, by_origin, best, &arc_capacity, &site_capacity)
+}
+
+/// Fills what a feasible allocation leaves: per origin (site order) and demand (file
+/// order) still short of its cap, up to [`TOP_UP_WALKS`] cheapest walks (current lengths)
+/// over the rows with residual capacity, each carrying what its tightest row leaves
+/// (an arc crossed twice counts twice). The extended walk list is repaired again, so the
+/// result is feasible by construction whatever this adds. O(origins · TOP_UP_WALKS ·
+/// Dijkstra + Σ walk lengths).
+fn top_up(
+    st: &mut State,
+    by_origin: &[Vec<usize>],
+    alloc: verify::Repaired,
+    arc_capacity: &[f64],
+    site_capacity: &[f64],
+) -> verify::Repaired {
+    let net = st.net;
+    let mut ra: Vec<f64> = (0..net.arcs.len())
+        .map(|a| arc_capacity[a] - alloc.arc_load[a])
+        .collect();
+    let mut rs: Vec<f64> = (0..net.sites.len())
+        .map(|v| site_capacity[v] - alloc.site_load[v])
+        .collect();
+    let mut short: Vec<f64> = (0..net.demands.len())
+        .map(|d| st.bound[d] - alloc.demand_flow[d])
+        .collect();
+    let mut walks = alloc.paths.clone();
+    let before = walks.len();
+    for (s, demands) in by_origin.iter().enumerate() {
+        for _ in 0..TOP_UP_WALKS {
+            if !demands.iter().any(|&d| short[d] > 1e-9 * st.bound[d]) {
+                break;
+            }
+            st.dijkstra_within(s, Some((&ra, &rs)));
+            let mut added = false;
+            for &d in demands {
+                let t = net.demands[d].to;
+                if short[d] <= 1e-9 * st.bound[d] || !st.dist[2 * t + 1].is_finite() {
+                    continue;
+                }
+                let (arcs, site) = st.walk_to(t);
+                let mut mult: HashMap<usize, f64> = HashMap::new();
+                for &a in &arcs {
+                    *mult.entry(a).or_insert(0.0) += 1.0;
+                }
+                let mut amount = short[d].min(rs[site]);
+                for (&a, &m) in &mult {
+                    amount = amount.min(ra[a] / m);
+                }
+                if amount <= 0.0 {
+                    continue;
+                }
+                for (&a, &m) in &mult {
+                    ra[a] -= amount * m;
+                }
+                rs[site] -= amount;
+                short[d] -= amount;
+                added = true;
+                walks.push(verify::Walk {
+                    sink: verify::Sink::Demand(d),
+                    arcs,
+                    site,
+                    amount,
+                });
+            }
+            if !added {
+                break;
+            }
+        }
+    }
+    if walks.len() == before {
+        return alloc;
+    }
+    let topped = verify::repair_walks(net, &walks, arc_capacity, site_capacity, st.bound);
+    if topped.served >= alloc.served {
+        topped
+    } else {
+        alloc
+    }
 }
 
 /// `Σ cap·l` over arcs and sites (stored units, presolved capacities) and the demands'
@@ -565,10 +695,7 @@ fn priced(
         .map(|(c, l)| c * l)
         .chain(site_cap.iter().zip(&st.site_len).map(|(c, l)| c * l))
         .sum();
-    let terms = active
-        .iter()
-        .map(|&d| (st.bound[d], walk_len[d]))
-        .collect();
+    let terms = active.iter().map(|&d| (st.bound[d], walk_len[d])).collect();
     (a, terms)
 }
 
@@ -577,7 +704,8 @@ fn priced(
 fn verified(
     net: &Network,
     view: &Surviving,
-    st: &State,
+    st: &mut State,
+    by_origin: &[Vec<usize>],
     all: &[f64],
     active: &[usize],
     walk_len: &[f64],
@@ -589,19 +717,7 @@ fn verified(
     let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
     let site_capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
     let u = st.overload();
-    let raw = verify::repair_walks(net, &st.verify_walks(1.0), &arc_capacity, &site_capacity, all);
-    let scaled = verify::repair_walks(
-        net,
-        &st.verify_walks(1.0 / u),
-        &arc_capacity,
-        &site_capacity,
-        all,
-    );
-    let allocation = if scaled.served >= raw.served {
-        scaled
-    } else {
-        raw
-    };
+    let allocation = repaired(st, by_origin);
     // The residual of the scheme's own answer (the flow scaled by its largest overload).
     let over = |load: f64, cap: f64| {
         let load = load / u;
@@ -690,10 +806,12 @@ mod tests {
     /// price 1 on v's processing: 4·1 + 6·max(0, 1 − 1) = 4.
     #[test]
     fn path_with_processing_in_the_middle() {
-        let n = net(r#"{"sites":[{"id":"s"},{"id":"v","processing":4},{"id":"t"}],
+        let n = net(
+            r#"{"sites":[{"id":"s"},{"id":"v","processing":4},{"id":"t"}],
             "links":[{"id":"sv","from":"s","to":"v","capacity":10},
                      {"id":"vt","from":"v","to":"t","capacity":10}],
-            "demands":[{"from":"s","to":"t","volume":6}]}"#);
+            "demands":[{"from":"s","to":"t","volume":6}]}"#,
+        );
         for eps in [0.01, 0.1, 0.5] {
             let e = evaluate_approx(&n, &Outage::default(), eps).unwrap();
             let v = &e.verification;
@@ -708,12 +826,18 @@ mod tests {
     #[test]
     fn best_scale_of_a_hand_case() {
         let (v, th) = best_scale(4.0, &[(6.0, 1.0)]);
-        assert!((v - 4.0).abs() < 1e-12 && (th - 1.0).abs() < 1e-12, "{v} {th}");
+        assert!(
+            (v - 4.0).abs() < 1e-12 && (th - 1.0).abs() < 1e-12,
+            "{v} {th}"
+        );
         assert_eq!(best_scale(3.0, &[]), (0.0, 0.0));
         // Two demands (hand-worked): 2θ + 5·max(0,1−θ) + 1·max(0,1−θ/2): slope −4 on
         // [0,1), +1.5 after θ = 1, so the least is at θ = 1: 2 + 0 + 0.5 = 2.5.
         let (v, th) = best_scale(2.0, &[(5.0, 1.0), (1.0, 0.5)]);
-        assert!((v - 2.5).abs() < 1e-12 && (th - 1.0).abs() < 1e-12, "{v} {th}");
+        assert!(
+            (v - 2.5).abs() < 1e-12 && (th - 1.0).abs() < 1e-12,
+            "{v} {th}"
+        );
     }
 
     /// ε outside (0, 0.5] is refused, never run.
@@ -732,12 +856,14 @@ mod tests {
     /// is the optimum. The approximate interval holds 5 and is at most ε·50 wide.
     #[test]
     fn arc_crossed_twice() {
-        let n = net(r#"{"sites":[{"id":"s"},{"id":"m"},{"id":"t"},{"id":"p","processing":100}],
+        let n = net(
+            r#"{"sites":[{"id":"s"},{"id":"m"},{"id":"t"},{"id":"p","processing":100}],
             "links":[{"id":"sm","from":"s","to":"m","capacity":100,"one_way":true},
                      {"id":"mt","from":"m","to":"t","capacity":10,"one_way":true},
                      {"id":"tp","from":"t","to":"p","capacity":100,"one_way":true},
                      {"id":"pm","from":"p","to":"m","capacity":100,"one_way":true}],
-            "demands":[{"from":"s","to":"t","volume":50}]}"#);
+            "demands":[{"from":"s","to":"t","volume":50}]}"#,
+        );
         let e = evaluate_approx(&n, &Outage::default(), 0.05).unwrap();
         let v = &e.verification;
         assert!(v.lower <= 5.0 + 1e-9 && v.upper >= 5.0 - 1e-9, "{v:?}");
