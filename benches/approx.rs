@@ -34,7 +34,9 @@ fn network(seed: u64, sites: usize, links: usize, sources: usize, per_source: us
     }
     let caps = [400.0, 600.0, 1000.0, 1000.0, 1500.0];
     let site_docs: Vec<_> = (0..sites)
-        .map(|i| json!({"id": format!("s{i}"), "processing": if i % 20 == 0 { 400.0 } else { 0.0 }}))
+        .map(
+            |i| json!({"id": format!("s{i}"), "processing": if i % 20 == 0 { 400.0 } else { 0.0 }}),
+        )
         .collect();
     let link_docs: Vec<_> = edges
         .iter()
@@ -50,7 +52,11 @@ fn network(seed: u64, sites: usize, links: usize, sources: usize, per_source: us
         for _ in 0..per_source {
             let b = (a + 1 + rng.below(sites - 1)) % sites;
             let v = ((0.2 + 1.4 * rng.unit()) * 100.0).round() / 100.0;
-            let r = if rng.below(3) == 0 { (v * 80.0).round() / 100.0 } else { v };
+            let r = if rng.below(3) == 0 {
+                (v * 80.0).round() / 100.0
+            } else {
+                v
+            };
             demand_docs.push(json!({"from": format!("s{a}"), "to": format!("s{b}"),
                                     "volume": v, "required": r}));
         }
@@ -77,8 +83,8 @@ fn main() {
         peak_mb()
     );
     let t = Instant::now();
-    let base = approx::evaluate_approx(&net, &Scenario::baseline().outage(&net), eps)
-        .expect("baseline");
+    let base =
+        approx::evaluate_approx(&net, &Scenario::baseline().outage(&net), eps).expect("baseline");
     println!(
         "baseline: {:.2} s, served [{:.3}, {:.3}] of {:.3} (width {:.2e} of required), proven {}",
         t.elapsed().as_secs_f64(),

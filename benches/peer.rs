@@ -173,7 +173,7 @@ fn redoubt_audit(text: &str, depth: usize) -> (Side, String) {
     let outages = batch.outages();
     let tb = Instant::now();
     batch.seed(
-        redoubt::audit::probe(&net, Engine::Walks, None).expect("baseline"),
+        redoubt::audit::probe(&net, Engine::Walks, 0.01, None).expect("baseline"),
         None,
     );
     let baseline = tb.elapsed().as_secs_f64();

@@ -64,7 +64,7 @@ fn run(
     let mem_enum = peak_mb();
     let tb = Instant::now();
     batch.seed(
-        redoubt::audit::probe(net, Engine::Walks, None).expect("baseline"),
+        redoubt::audit::probe(net, Engine::Walks, 0.01, None).expect("baseline"),
         None,
     );
     let baseline = tb.elapsed().as_secs_f64();

@@ -144,7 +144,14 @@ fn random_networks_contain_the_edge_optimum() {
         let approx = audit_json(
             file.path(),
             &[
-                "--depth", "1", "--kinds", "links", "--engine", "approx", "--epsilon", "0.05",
+                "--depth",
+                "1",
+                "--kinds",
+                "links",
+                "--engine",
+                "approx",
+                "--epsilon",
+                "0.05",
             ],
         );
         let edge = audit_json(
@@ -202,7 +209,15 @@ fn epsilon_usage() {
 fn text_says_approximate_within_epsilon() {
     let f = fixture("demo-harrowmere.json");
     let run = redoubt(&[
-        "audit", s(&f), "--depth", "1", "--engine", "approx", "--epsilon", "0.1", "--quiet",
+        "audit",
+        s(&f),
+        "--depth",
+        "1",
+        "--engine",
+        "approx",
+        "--epsilon",
+        "0.1",
+        "--quiet",
     ]);
     assert_eq!(run.code, 0, "{}", run.stderr);
     assert!(

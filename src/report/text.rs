@@ -456,7 +456,10 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
     let _ = writeln!(out, "\n{}", verification_summary(audit));
     for (k, e) in audit.evaluations.iter().enumerate() {
         let name = || audit.first_scenario(k).display_name();
-        if let Some(eps) = approximate(&e.verification).filter(|_| !e.verification.proven) {
+        if let Some(eps) = approximate(&e.verification)
+            .filter(|_| !e.verification.proven)
+            .filter(|eps| within(&e.verification, eps, e.surviving_required))
+        {
             let _ = writeln!(
                 out,
                 "APPROXIMATE: {}: served_required between {} and {} (approximate within {eps} \
@@ -481,7 +484,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
                 out,
                 "{}: {}: throughput between {} and {} {u} (reported at the lower bound, \
                  so its loss is not understated).",
-                if approximate(t).is_some() {
+                if approximate(t).is_some_and(|eps| within(t, eps, e.surviving_required)) {
                     "APPROXIMATE"
                 } else {
                     "UNPROVEN"
@@ -609,16 +612,25 @@ pub fn verification_summary(audit: &Audit) -> String {
             String::new()
         },
         if proven < n {
-            match audit
+            let close = |e: &Evaluation| {
+                let v = &e.verification;
+                !v.proven && approximate(v).is_some_and(|eps| within(v, eps, e.surviving_required))
+            };
+            let approx = audit.evaluations.iter().filter(|e| close(e)).count();
+            let eps = audit
                 .evaluations
                 .iter()
                 .find_map(|e| approximate(&e.verification))
-            {
-                Some(eps) => format!(
-                    "; {} approximate within {eps} of required (--engine approx), listed below",
-                    n - proven
+                .unwrap_or_default();
+            match (approx, n - proven - approx) {
+                (0, open) => format!("; {open} UNPROVEN, listed below"),
+                (a, 0) => format!(
+                    "; {a} approximate within {eps} of required (--engine approx), listed below"
                 ),
-                None => format!("; {} UNPROVEN, listed below", n - proven),
+                (a, open) => format!(
+                    "; {a} approximate within {eps} of required (--engine approx) and {open} \
+                     UNPROVEN, listed below"
+                ),
             }
         } else {
             String::new()
@@ -632,6 +644,13 @@ fn approximate(v: &crate::solve::Verification) -> Option<&str> {
     v.backend
         .strip_prefix("approx (epsilon ")
         .and_then(|r| r.strip_suffix(')'))
+}
+
+/// Whether the interval of `v` is at most `eps` (as written) × `required` wide: what
+/// "approximate within E" claims.
+fn within(v: &crate::solve::Verification, eps: &str, required: f64) -> bool {
+    eps.parse::<f64>()
+        .is_ok_and(|e| v.upper - v.lower <= e * required * (1.0 + 1e-9))
 }
 
 /// The caution line every report ends with.
