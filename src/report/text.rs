@@ -484,7 +484,7 @@ pub fn audit_report(net: &Network, audit: &Audit, baseline: &Evaluation, top: us
                 out,
                 "{}: {}: throughput between {} and {} {u} (reported at the lower bound, \
                  so its loss is not understated).",
-                if approximate(t).is_some_and(|eps| within(t, eps, e.surviving_required)) {
+                if approximate(t).is_some_and(|eps| within(t, eps, volume_scale(e, t))) {
                     "APPROXIMATE"
                 } else {
                     "UNPROVEN"
@@ -612,9 +612,15 @@ pub fn verification_summary(audit: &Audit) -> String {
             String::new()
         },
         if proven < n {
+            let ok = |v: &crate::solve::Verification, scale: f64| {
+                v.proven || approximate(v).is_some_and(|eps| within(v, eps, scale))
+            };
             let close = |e: &Evaluation| {
-                let v = &e.verification;
-                !v.proven && approximate(v).is_some_and(|eps| within(v, eps, e.surviving_required))
+                !e.proven()
+                    && ok(&e.verification, e.surviving_required)
+                    && e.throughput_verification
+                        .as_ref()
+                        .is_none_or(|t| ok(t, volume_scale(e, t)))
             };
             let approx = audit.evaluations.iter().filter(|e| close(e)).count();
             let eps = audit
@@ -651,6 +657,13 @@ fn approximate(v: &crate::solve::Verification) -> Option<&str> {
 fn within(v: &crate::solve::Verification, eps: &str, required: f64) -> bool {
     eps.parse::<f64>()
         .is_ok_and(|e| v.upper - v.lower <= e * required * (1.0 + 1e-9))
+}
+
+/// What the throughput interval `t` of `e` is judged against: the surviving required
+/// demand, or the interval's upper end when larger (never above the surviving volume, so
+/// the claim is never looser than ε × volume).
+fn volume_scale(e: &Evaluation, t: &crate::solve::Verification) -> f64 {
+    e.surviving_required.max(t.upper)
 }
 
 /// The caution line every report ends with.
