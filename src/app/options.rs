@@ -481,7 +481,9 @@ mod tests {
             &["audit", "n.json", "--engine", "approx", "--epsilon", "NaN"],
             &["audit", "n.json", "--engine", "edge", "--epsilon", "0.1"],
             &["audit", "n.json", "--epsilon", "0.1"],
-            &["audit", "n.json", "--engine", "approx", "--shard", "1/2"],
+            &[
+                "audit", "n.json", "--engine", "approx", "--shard", "1/2", "--json", "p.json",
+            ],
         ] {
             assert!(matches!(eps(line), Err(Error::Usage(_))), "{line:?}");
         }
