@@ -432,6 +432,27 @@ fn import(from: cli::ImportFrom) -> ImportOptions {
     }
 }
 
+/// `worst`'s flags: `--threads 0` refused, the kinds parsed, `--by` mapped to the library's.
+pub fn worst(a: cli::WorstArgs) -> Result<WorstOptions> {
+    if a.threads == Some(0) {
+        return Err(Error::Usage("--threads must be at least 1".into()));
+    }
+    Ok(WorstOptions {
+        search: crate::worst::Options {
+            k: a.k,
+            kinds: crate::scenario::Kinds::parse(&a.kinds)?,
+            top: a.top,
+            by: match a.by {
+                cli::WorstBy::Shortfall => crate::worst::By::Shortfall,
+                cli::WorstBy::Lost => crate::worst::By::Lost,
+            },
+            threads: a.threads,
+        },
+        network: a.network,
+        json: a.json,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -512,25 +533,4 @@ mod tests {
         assert_eq!(p.goal, expand::Goal::WorstWithin(4.0));
         assert_eq!(p.scenarios.time_limit, Some(DEFAULT_MAX_MINUTES));
     }
-}
-
-/// `worst`'s flags: `--threads 0` refused, the kinds parsed, `--by` mapped to the library's.
-pub fn worst(a: cli::WorstArgs) -> Result<WorstOptions> {
-    if a.threads == Some(0) {
-        return Err(Error::Usage("--threads must be at least 1".into()));
-    }
-    Ok(WorstOptions {
-        search: crate::worst::Options {
-            k: a.k,
-            kinds: crate::scenario::Kinds::parse(&a.kinds)?,
-            top: a.top,
-            by: match a.by {
-                cli::WorstBy::Shortfall => crate::worst::By::Shortfall,
-                cli::WorstBy::Lost => crate::worst::By::Lost,
-            },
-            threads: a.threads,
-        },
-        network: a.network,
-        json: a.json,
-    })
 }

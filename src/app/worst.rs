@@ -16,7 +16,7 @@ pub fn run(args: &WorstOptions, out: &mut dyn Write, _err: &mut dyn Write) -> Re
     if let Some(json) = &args.json {
         report::file::check_output("--json", json, &[&args.network])?;
     }
-    let found = worst::search(&net, args.search.clone())?;
+    let found = worst::search(&net, args.search)?;
     if let Some(path) = &args.json {
         report::file::write_atomic(path, |w| report::worst::write_json(w, &net, &found))?;
     }
