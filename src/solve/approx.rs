@@ -82,7 +82,7 @@ pub fn epsilon_ok(eps: f64) -> bool {
 
 /// Evaluates one outage with the approximate engine: [`solve_approx`] for served_required
 /// (and for throughput when some surviving demand offers more than it requires), turned
-/// into an [`Evaluation`] by [`finish`] like every engine's results. `served_required` is
+/// into an [`Evaluation`] by [`finish()`] like every engine's results. `served_required` is
 /// the proven lower bound unless the interval closes, `upper_bound` the certificate's.
 ///
 /// Cost: one or two runs of [`solve_approx`].
@@ -392,7 +392,7 @@ pub fn best_scale(a: f64, terms: &[(f64, f64)]) -> (f64, f64) {
 /// certificate with the final (scaled) lengths the upper bound. `proven` only when they
 /// meet within [`super::GAP_TOL`]. `eps` must satisfy [`epsilon_ok`].
 ///
-/// Cost: see the module documentation. The result is what [`finish`] takes, as for the
+/// Cost: see the module documentation. The result is what [`finish()`] takes, as for the
 /// other engines.
 pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Result<Verified> {
     if !epsilon_ok(eps) {
