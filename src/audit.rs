@@ -210,6 +210,7 @@ pub fn evaluator(engine: Engine) -> Box<dyn Evaluator> {
     match engine {
         Engine::Walks => Box::new(evaluator::Walks),
         Engine::Edge => Box::new(evaluator::Edge),
+        Engine::Approx { epsilon } => Box::new(evaluator::Approx { epsilon }),
     }
 }
 

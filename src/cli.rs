@@ -270,8 +270,13 @@ pub struct AuditArgs {
     pub why: bool,
     /// Solver engine: `walks` (column generation over processing walks with exact repair
     /// shortcuts) or `edge` (the two-layer LP per outage, the cross-check); same optimum.
+    /// `approx`: a proven interval within ε of required per outage (see --epsilon).
     #[arg(long, value_enum, default_value_t = Engine::Walks)]
     pub engine: Engine,
+    /// With --engine approx: the width allowed for each outage's proven interval, as a
+    /// fraction of its surviving required demand, in (0, 0.5] (default 0.01).
+    #[arg(long, value_name = "E")]
+    pub epsilon: Option<f64>,
 }
 
 /// How each outage is solved; both give the same optimum.
@@ -282,6 +287,8 @@ pub enum Engine {
     /// Column generation over processing walks, each outage started from the baseline's.
     #[default]
     Walks,
+    /// Garg–Könemann approximation: a proven interval per outage, within ε of required.
+    Approx,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]

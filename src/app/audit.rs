@@ -29,15 +29,16 @@ fn audit_fingerprint(o: &AuditOptions, network_text: &str) -> String {
         o.fail.as_deref(),
         o.scenarios.depth,
         &o.scenarios.kinds,
-        o.engine.as_str(),
+        &o.engine.to_string(),
         o.scenarios.down.as_deref(),
     )
 }
 
 /// [`audit_fingerprint`] from its parts (also what `merge` recomputes from a part header):
 /// FNV-1a 64 over the command, the version, the network text and the options
-/// (`fail=…` or `depth=…;kinds=…`, then `;engine=` and the engine's name,
-/// [`crate::solve::Engine::as_str`], then `;down=…`).
+/// (`fail=…` or `depth=…;kinds=…`, then `;engine=` and the engine as
+/// [`crate::solve::Engine`]'s `Display` names it (its [`crate::solve::Engine::as_str`], or
+/// `Approx:{ε}`), then `;down=…`).
 /// O(size of the network text).
 pub(super) fn run_fingerprint(
     network_text: &str,

@@ -17,7 +17,7 @@ use crate::expand;
 use crate::gate::{self, Gate, GateKind};
 use crate::model::import::Rules;
 use crate::routing;
-use crate::solve::Engine;
+use crate::solve::{Engine, approx};
 
 /// Without `--max-minutes`, a run estimated longer than this many minutes needs `--yes`.
 pub const DEFAULT_MAX_MINUTES: f64 = 60.0;
@@ -177,11 +177,28 @@ pub fn lower(cli: Cli) -> Result<Command> {
     })
 }
 
-/// The library's engine for `--engine`.
-pub fn engine(e: cli::Engine) -> Engine {
-    match e {
-        cli::Engine::Edge => Engine::Edge,
-        cli::Engine::Walks => Engine::Walks,
+/// The library's engine for `--engine` and `--epsilon` (ε defaults to
+/// [`approx::DEFAULT_EPSILON`]). Usage errors: `--epsilon` without `--engine approx`, ε
+/// outside (0, [`approx::MAX_EPSILON`]] or NaN ([`approx::epsilon_ok`]), and `--engine
+/// approx` with `--shard` (a part file names its engine without ε). O(1).
+pub fn engine(e: cli::Engine, epsilon: Option<f64>, sharded: bool) -> Result<Engine> {
+    match (e, epsilon) {
+        (cli::Engine::Approx, _) if sharded => Err(Error::Usage(
+            "--engine approx with --shard is not supported: a part file does not carry ε".into(),
+        )),
+        (cli::Engine::Approx, None) => Ok(Engine::Approx {
+            epsilon: approx::DEFAULT_EPSILON,
+        }),
+        (cli::Engine::Approx, Some(epsilon)) if approx::epsilon_ok(epsilon) => {
+            Ok(Engine::Approx { epsilon })
+        }
+        (cli::Engine::Approx, Some(x)) => Err(Error::Usage(format!(
+            "--epsilon must be > 0 and at most {}, got {x}",
+            approx::MAX_EPSILON
+        ))),
+        (_, Some(_)) => Err(Error::Usage("--epsilon is only for --engine approx".into())),
+        (cli::Engine::Edge, None) => Ok(Engine::Edge),
+        (cli::Engine::Walks, None) => Ok(Engine::Walks),
     }
 }
 
@@ -304,11 +321,13 @@ fn gates_of(args: &AuditArgs) -> Result<Vec<Gate>> {
     Ok(gates)
 }
 
-/// `audit`: gates, `--max-minutes`, `--shard` (and what a shard refuses), `--threads`.
+/// `audit`: gates, `--max-minutes`, `--shard`, `--engine` with `--epsilon` (and what a
+/// shard refuses), `--threads`.
 fn audit(args: AuditArgs) -> Result<AuditOptions> {
     let gates = gates_of(&args)?;
     time_limit(args.scenarios.max_minutes, args.scenarios.yes)?;
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
+    let engine = engine(args.engine, args.epsilon, shard.is_some())?;
     if shard.is_some() {
         crate::report::text::refuse_with_shard(
             args.csv.is_some(),
@@ -329,7 +348,7 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
         close: args.close,
         shard,
         why: args.why,
-        engine: engine(args.engine),
+        engine,
     })
 }
 
@@ -449,13 +468,46 @@ mod tests {
     /// name is what `format!("{:?}")` of the clap value gave before (part files carry it).
     #[test]
     fn engines_map_by_name() {
-        for e in [cli::Engine::Edge, cli::Engine::Walks] {
-            assert_eq!(engine(e).as_str(), format!("{e:?}"));
+        for e in [cli::Engine::Edge, cli::Engine::Walks, cli::Engine::Approx] {
+            assert_eq!(engine(e, None, false).unwrap().as_str(), format!("{e:?}"));
         }
         let Command::Audit(a) = lowered(&["audit", "n.json", "--engine", "edge"]).unwrap() else {
             panic!("an audit")
         };
         assert_eq!(a.engine, Engine::Edge);
+    }
+
+    /// `--epsilon` is checked once, here: the default ε without it, the value given when
+    /// inside (0, 0.5] (0.5 itself is inside), and a usage error for 0, a negative ε,
+    /// 0.6, NaN, `--epsilon` with an exact engine and `--engine approx` with `--shard`.
+    #[test]
+    fn epsilon_is_checked_once() {
+        let eps = |line: &[&str]| match lowered(line) {
+            Ok(Command::Audit(a)) => Ok(a.engine),
+            Ok(_) => panic!("an audit"),
+            Err(e) => Err(e),
+        };
+        assert_eq!(
+            eps(&["audit", "n.json", "--engine", "approx"]).unwrap(),
+            Engine::Approx { epsilon: 0.01 }
+        );
+        assert_eq!(
+            eps(&["audit", "n.json", "--engine", "approx", "--epsilon", "0.5"]).unwrap(),
+            Engine::Approx { epsilon: 0.5 }
+        );
+        for line in [
+            &["audit", "n.json", "--engine", "approx", "--epsilon", "0"][..],
+            &["audit", "n.json", "--engine", "approx", "--epsilon=-0.1"],
+            &["audit", "n.json", "--engine", "approx", "--epsilon", "0.6"],
+            &["audit", "n.json", "--engine", "approx", "--epsilon", "NaN"],
+            &["audit", "n.json", "--engine", "edge", "--epsilon", "0.1"],
+            &["audit", "n.json", "--epsilon", "0.1"],
+            &[
+                "audit", "n.json", "--engine", "approx", "--shard", "1/2", "--json", "p.json",
+            ],
+        ] {
+            assert!(matches!(eps(line), Err(Error::Usage(_))), "{line:?}");
+        }
     }
 
     /// Hand-written cases: `--shard 0/3` and `4/3` are outside 1 ≤ I ≤ N, `3/3` is inside;

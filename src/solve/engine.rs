@@ -5,8 +5,9 @@ use std::str::FromStr;
 
 use crate::error::Error;
 
-/// How each outage is solved; both give the same optimum (certified by the same checks).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
+/// How each outage is solved. The exact engines ([`Engine::ALL`]) give the same optimum
+/// (certified by the same checks); [`Engine::Approx`] gives a proven interval per outage.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub enum Engine {
     /// The edge-based two-layer LP, solved cold per outage ([`crate::solve::evaluate`]).
     Edge,
@@ -14,34 +15,48 @@ pub enum Engine {
     /// optimum ([`crate::solve::colgen::evaluate_walks`]).
     #[default]
     Walks,
+    /// Garg–Könemann packing ([`crate::solve::approx::evaluate_approx`]): per outage an
+    /// interval proven by the same verifier, aiming at a width of `epsilon` × the surviving
+    /// required demand. `epsilon` is checked by [`crate::solve::approx::epsilon_ok`] where
+    /// the command line is lowered.
+    Approx { epsilon: f64 },
 }
 
 impl Engine {
-    /// Every engine, in the order of their names.
+    /// Every exact engine, in the order of their names: the ones a part file may name
+    /// (`--engine approx` is refused with `--shard`).
     pub const ALL: [Engine; 2] = [Engine::Edge, Engine::Walks];
 
-    /// The engine's name in part files and in the run fingerprint (`Edge`, `Walks`). These
+    /// The engine's name in part files and in the run fingerprint (`Edge`, `Walks`;
+    /// `Approx` without its ε, see [`Engine`]'s `Display` for the fingerprint). These
     /// strings are a file format: a part written by an earlier version carries them, so
     /// they never change. O(1).
     pub fn as_str(self) -> &'static str {
         match self {
             Engine::Edge => "Edge",
             Engine::Walks => "Walks",
+            Engine::Approx { .. } => "Approx",
         }
     }
 }
 
+/// The engine as the run fingerprint names it: [`Engine::as_str`] for the exact engines,
+/// `Approx:{epsilon}` for the approximate one (ε decides its results, so a journal written
+/// with another ε is not resumed). O(1).
 impl fmt::Display for Engine {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        f.write_str(self.as_str())
+        match self {
+            Engine::Approx { epsilon } => write!(f, "Approx:{epsilon}"),
+            other => f.write_str(other.as_str()),
+        }
     }
 }
 
 impl FromStr for Engine {
     type Err = Error;
 
-    /// The engine named exactly [`Engine::as_str`]; any other text is refused as input
-    /// (a part file is data). O(1).
+    /// The exact engine named exactly [`Engine::as_str`]; any other text (`Approx`
+    /// included: no part file carries it) is refused as input (a part file is data). O(1).
     fn from_str(s: &str) -> Result<Engine, Error> {
         Engine::ALL
             .into_iter()
@@ -68,8 +83,19 @@ mod tests {
         for e in Engine::ALL {
             assert_eq!(e.as_str().parse::<Engine>().unwrap(), e);
             assert_eq!(format!("{e:?}"), e.as_str());
+            assert_eq!(e.to_string(), e.as_str());
         }
-        for bad in ["edge", "walks", "", "Walks ", "Colgen"] {
+        let approx = Engine::Approx { epsilon: 0.05 };
+        assert_eq!(approx.to_string(), "Approx:0.05");
+        for bad in [
+            "edge",
+            "walks",
+            "",
+            "Walks ",
+            "Colgen",
+            "Approx",
+            "Approx:0.05",
+        ] {
             assert!(
                 matches!(bad.parse::<Engine>(), Err(Error::Input(_))),
                 "{bad:?}"

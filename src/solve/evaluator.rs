@@ -189,3 +189,43 @@ impl Evaluator for Walks {
         Some(two_layer_with(model, net, outage, add, obj))
     }
 }
+
+/// The approximate engine ([`super::approx::evaluate_approx`]): Garg–Könemann packing per
+/// outage, cold, its interval proven by the verifier (lower bound from repaired walks,
+/// upper bound from the certificate) and reported unproven with those bounds unless they
+/// meet within [`super::GAP_TOL`]. Cost: see [`super::approx`]; memory
+/// O(sites + arcs + demands) plus the walks carrying flow.
+pub struct Approx {
+    /// The aimed width of each interval, as a fraction of the surviving required demand;
+    /// satisfies [`super::approx::epsilon_ok`] (checked where the command line is lowered,
+    /// and again by [`super::approx::solve_approx`]).
+    pub epsilon: f64,
+}
+
+impl Evaluator for Approx {
+    fn name(&self) -> &'static str {
+        "approx"
+    }
+
+    fn evaluate(&self, net: &Network, outage: &Outage, _: Option<&Warm>) -> Result<Evaluated> {
+        Ok(Evaluated::cold(super::approx::evaluate_approx(
+            net,
+            outage,
+            self.epsilon,
+        )?))
+    }
+
+    /// The exact two-layer model the engine approximates: buying processing is defined
+    /// as for the exact engines (the routes are any walk), and the purchase LP is solved
+    /// exactly by the caller.
+    fn add_processing(
+        &self,
+        model: &mut Lp,
+        net: &Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        obj: f64,
+    ) -> Option<AddModel> {
+        Some(two_layer_with(model, net, outage, add, obj))
+    }
+}

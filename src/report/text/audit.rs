@@ -6,6 +6,7 @@ use super::check::baseline_misses;
 use super::*;
 use crate::report::export::{Exporter, Text};
 use crate::report::model::Model;
+use crate::solve::Verification;
 
 /// What the columns of the scenario table mean, in words.
 pub(super) fn column_legend(base_short: bool) -> String {
@@ -242,7 +243,20 @@ pub fn audit_report(m: &Model<'_>) -> String {
     let _ = writeln!(out, "\n{}", verification_summary(audit));
     for (k, e) in audit.evaluations.iter().enumerate() {
         let name = || audit.first_scenario(k).display_name();
-        if !e.verification.proven {
+        if let Some(eps) = approximate(&e.verification)
+            .filter(|_| !e.verification.proven)
+            .filter(|eps| within(&e.verification, eps, e.surviving_required))
+        {
+            let _ = writeln!(
+                out,
+                "APPROXIMATE: {}: served_required between {} and {} (approximate within {eps} \
+                 of required; reported at the lower bound, so its shortfall is not \
+                 understated).",
+                name(),
+                num(e.verification.lower),
+                amount(e.verification.upper, u)
+            );
+        } else if !e.verification.proven {
             let _ = writeln!(
                 out,
                 "UNPROVEN: {}: served_required between {} and {} (reported at the lower \
@@ -255,8 +269,13 @@ pub fn audit_report(m: &Model<'_>) -> String {
         if let Some(t) = e.throughput_verification.as_ref().filter(|t| !t.proven) {
             let _ = writeln!(
                 out,
-                "UNPROVEN: {}: throughput between {} and {} {u} (reported at the lower bound, \
+                "{}: {}: throughput between {} and {} {u} (reported at the lower bound, \
                  so its loss is not understated).",
+                if approximate(t).is_some_and(|eps| within(t, eps, volume_scale(e, t))) {
+                    "APPROXIMATE"
+                } else {
+                    "UNPROVEN"
+                },
                 name(),
                 num(t.lower),
                 num(t.upper)
@@ -319,11 +338,67 @@ pub fn verification_summary(audit: &Audit) -> String {
             String::new()
         },
         if proven < n {
-            format!("; {} UNPROVEN, listed below", n - proven)
+            unproven_summary(audit, n - proven)
         } else {
             String::new()
         }
     )
+}
+
+/// The tail of [`verification_summary`] for the `open` outages not proven optimal: how
+/// many are "approximate within E" (every quantity proven or, from `--engine approx`, an
+/// interval at most E × its scale wide) and how many stay UNPROVEN. Without an approximate
+/// result it is the exact engines' wording. O(outages).
+fn unproven_summary(audit: &Audit, open: usize) -> String {
+    let ok = |v: &Verification, scale: f64| {
+        v.proven || approximate(v).is_some_and(|eps| within(v, eps, scale))
+    };
+    let close = |e: &Evaluation| {
+        !e.proven()
+            && ok(&e.verification, e.surviving_required)
+            && e.throughput_verification
+                .as_ref()
+                .is_none_or(|t| ok(t, volume_scale(e, t)))
+    };
+    let approx = audit.evaluations.iter().filter(|e| close(e)).count();
+    let eps = audit
+        .evaluations
+        .iter()
+        .find_map(|e| approximate(&e.verification))
+        .unwrap_or_default();
+    match (approx, open - approx) {
+        (0, open) => format!("; {open} UNPROVEN, listed below"),
+        (a, 0) => {
+            format!("; {a} approximate within {eps} of required (--engine approx), listed below")
+        }
+        (a, open) => format!(
+            "; {a} approximate within {eps} of required (--engine approx) and {open} \
+             UNPROVEN, listed below"
+        ),
+    }
+}
+
+/// The ε of a result of the approximate engine (its backend reads `approx (epsilon E)`),
+/// as written there; `None` for the exact engines. O(length of the backend name).
+fn approximate(v: &Verification) -> Option<&str> {
+    v.backend
+        .strip_prefix("approx (epsilon ")
+        .and_then(|r| r.strip_suffix(')'))
+}
+
+/// Whether the interval of `v` is at most `eps` (as written) × `required` wide: what
+/// "approximate within E" claims (with a relative slack of 1e-9 for the rounding of the
+/// bounds). O(length of `eps`).
+fn within(v: &Verification, eps: &str, required: f64) -> bool {
+    eps.parse::<f64>()
+        .is_ok_and(|e| v.upper - v.lower <= e * required * (1.0 + 1e-9))
+}
+
+/// What the throughput interval `t` of `e` is judged against: the surviving required
+/// demand, or the interval's upper end when larger (never above the surviving volume, so
+/// the claim is never looser than ε × volume). O(1).
+fn volume_scale(e: &Evaluation, t: &Verification) -> f64 {
+    e.surviving_required.max(t.upper)
 }
 
 /// The audit text: the verdict, the routed comparison (under `--routing`), the header and

@@ -1,0 +1,136 @@
+//! The approximate engine at scale: a generated network of 1,000 sites, about 2,000 links
+//! and 20,000 demands from 100 sources (so one shortest-path tree per source serves 200
+//! demands), the depth-1 audit of every link at ε = 0.01.
+//!
+//! Prints the baseline's time, then for a deterministic sample of link failures (every
+//! `k`-th link; `cargo bench --bench approx -- K`, default 100) the time of each, the
+//! interval and its width relative to required, the mean, the estimate of the whole
+//! depth-1 audit on two threads (mean × links / 2) and the peak memory (VmHWM). The sample
+//! is measured and the total extrapolated from it. `-- K congested` lowers the processing
+//! below the required total, so every scenario is short (the hard case).
+
+mod common;
+
+use std::time::Instant;
+
+use common::{Rng, peak_mb};
+use redoubt::model::Network;
+use redoubt::scenario::{Element, Scenario};
+use redoubt::solve::approx;
+use serde_json::json;
+
+/// A ring plus random chords up to `links`, capacities 400..1,500; processing `proc` at
+/// every 20th site; `sources` origins each with `per_source` random destinations, volume
+/// 0.2..1.6 (a third requiring 80 %).
+fn network(
+    seed: u64,
+    sites: usize,
+    links: usize,
+    sources: usize,
+    per_source: usize,
+    proc: f64,
+) -> Network {
+    let mut rng = Rng(seed);
+    let mut edges: Vec<(usize, usize)> = (0..sites).map(|i| (i, (i + 1) % sites)).collect();
+    let mut seen: std::collections::HashSet<(usize, usize)> = edges.iter().copied().collect();
+    while edges.len() < links {
+        let (a, b) = (rng.below(sites), rng.below(sites));
+        if a != b && !seen.contains(&(a, b)) && !seen.contains(&(b, a)) {
+            seen.insert((a, b));
+            edges.push((a, b));
+        }
+    }
+    let caps = [400.0, 600.0, 1000.0, 1000.0, 1500.0];
+    let site_docs: Vec<_> = (0..sites)
+        .map(|i| json!({"id": format!("s{i}"), "processing": if i % 20 == 0 { proc } else { 0.0 }}))
+        .collect();
+    let link_docs: Vec<_> = edges
+        .iter()
+        .enumerate()
+        .map(|(k, &(a, b))| {
+            json!({"id": format!("l{k}"), "from": format!("s{a}"), "to": format!("s{b}"),
+                   "capacity": caps[rng.below(caps.len())]})
+        })
+        .collect();
+    let mut demand_docs = Vec::new();
+    for k in 0..sources {
+        let a = (k * sites) / sources + 3;
+        for _ in 0..per_source {
+            let b = (a + 1 + rng.below(sites - 1)) % sites;
+            let v = ((0.2 + 1.4 * rng.unit()) * 100.0).round() / 100.0;
+            let r = if rng.below(3) == 0 {
+                (v * 80.0).round() / 100.0
+            } else {
+                v
+            };
+            demand_docs.push(json!({"from": format!("s{a}"), "to": format!("s{b}"),
+                                    "volume": v, "required": r}));
+        }
+    }
+    let doc = json!({"name": "approx-bench", "unit": "Gbit/s", "sites": site_docs,
+                     "links": link_docs, "demands": demand_docs});
+    Network::from_json(&doc.to_string()).expect("generated network is valid")
+}
+
+fn main() {
+    let every: usize = std::env::args()
+        .skip(1)
+        .find_map(|a| a.parse().ok())
+        .unwrap_or(100);
+    // `congested`: processing 300 per site (15,000 in all, below the 16,776 required), so
+    // every scenario is short and the interval must be closed by the phases themselves.
+    let proc = if std::env::args().any(|a| a == "congested") {
+        300.0
+    } else {
+        400.0
+    };
+    let eps = 0.01;
+    let t = Instant::now();
+    let net = network(7, 1000, 2000, 100, 200, proc);
+    println!(
+        "network: {} sites, {} links, {} demands; built in {:.1} s; peak {:.0} MB",
+        net.sites.len(),
+        net.links.len(),
+        net.demands.len(),
+        t.elapsed().as_secs_f64(),
+        peak_mb()
+    );
+    let t = Instant::now();
+    let base =
+        approx::evaluate_approx(&net, &Scenario::baseline().outage(&net), eps).expect("baseline");
+    println!(
+        "baseline: {:.2} s, served [{:.3}, {:.3}] of {:.3} (width {:.2e} of required), proven {}",
+        t.elapsed().as_secs_f64(),
+        base.served_required,
+        base.upper_bound,
+        base.surviving_required,
+        (base.upper_bound - base.served_required) / base.surviving_required,
+        base.verification.proven
+    );
+    let mut times = Vec::new();
+    for l in (0..net.links.len()).step_by(every.max(1)) {
+        let sc = Scenario::new(&net, &[Element::Link(l)]);
+        let t = Instant::now();
+        let e = approx::evaluate_approx(&net, &sc.outage(&net), eps).expect("scenario");
+        let secs = t.elapsed().as_secs_f64();
+        times.push(secs);
+        println!(
+            "link {l:>4}: {secs:.2} s, served [{:.3}, {:.3}] of {:.3} (width {:.2e}), proven {}",
+            e.served_required,
+            e.upper_bound,
+            e.surviving_required,
+            (e.upper_bound - e.served_required) / e.surviving_required.max(1e-300),
+            e.verification.proven
+        );
+    }
+    let mean = times.iter().sum::<f64>() / times.len().max(1) as f64;
+    let worst = times.iter().copied().fold(0.0, f64::max);
+    println!(
+        "sample of {} links: mean {mean:.2} s, worst {worst:.2} s per scenario; depth-1 of all {} \
+         links on 2 threads ≈ {:.1} min (extrapolated); peak {:.0} MB",
+        times.len(),
+        net.links.len(),
+        mean * net.links.len() as f64 / 2.0 / 60.0,
+        peak_mb()
+    );
+}

@@ -1,0 +1,229 @@
+//! The approximate engine (`--engine approx --epsilon E`) through the binary: on the demo
+//! fixtures and on generated networks, every scenario's proven interval
+//! `[served_required, upper_bound]` must contain the value the edge LP engine proves, and
+//! be at most `E × required` wide. The edge LP (`--engine edge`: the two-layer edge
+//! formulation aggregated by source, solved by clarabel with microlp as the last rung of
+//! its ladder) is an independent formulation and solver of the same optimum: the approx
+//! engine works on walks with Garg–Könemann lengths, shares no solver with it, and only
+//! its verifier (repair and certificate) is common code.
+mod common;
+
+use common::{TempPath, fixture, redoubt, s};
+use serde_json::{Value, json};
+
+/// Runs `audit FILE ARGS --json OUT --quiet` and returns the document.
+fn audit_json(file: &str, args: &[&str]) -> Value {
+    let out = TempPath::new("approx-out", "json");
+    let mut all = vec!["audit", file];
+    all.extend_from_slice(args);
+    all.extend_from_slice(&["--json", out.path(), "--quiet", "--yes"]);
+    let run = redoubt(&all);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    out.read_json()
+}
+
+/// Every scenario of `approx` (same scenario list as `edge`, matched by failed names)
+/// holds the edge LP's proven served_required (and throughput) within its interval, and
+/// the interval is at most `eps × required` wide (plus rounding).
+fn contains_edge(approx: &Value, edge: &Value, eps: f64) {
+    let edge_by: std::collections::HashMap<String, &Value> = edge["scenarios"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| (s["failed"].to_string(), s))
+        .collect();
+    let list = approx["scenarios"].as_array().unwrap();
+    assert_eq!(list.len(), edge_by.len());
+    for a in list {
+        let name = a["failed"].to_string();
+        let e = edge_by[&name];
+        assert_eq!(e["verification"]["status"], "proven", "{name}");
+        let exact = e["served_required"].as_f64().unwrap();
+        let lo = a["served_required"].as_f64().unwrap();
+        let hi = a["upper_bound"].as_f64().unwrap();
+        let required = a["required"].as_f64().unwrap();
+        let tol = 1e-6 * required.max(1.0);
+        assert!(
+            lo <= exact + tol && exact <= hi + tol,
+            "{name}: edge {exact} outside [{lo}, {hi}]"
+        );
+        assert!(
+            hi - lo <= eps * required + tol,
+            "{name}: [{lo}, {hi}] wider than {eps} × {required}"
+        );
+        let v = &a["verification"];
+        assert!(v["backend"].as_str().unwrap().starts_with("approx"), "{v}");
+        if let Some(tv) = a["throughput_verification"].as_object() {
+            let t_exact = e["throughput"].as_f64().unwrap();
+            let (tlo, thi) = (
+                tv["lower_bound"].as_f64().unwrap(),
+                tv["upper_bound"].as_f64().unwrap(),
+            );
+            assert!(
+                tlo <= t_exact + tol && t_exact <= thi + tol,
+                "{name}: edge throughput {t_exact} outside [{tlo}, {thi}]"
+            );
+        }
+    }
+}
+
+#[test]
+fn small_ring_depth_1_at_one_percent() {
+    let f = fixture("small-ring.json");
+    let approx = audit_json(s(&f), &["--depth", "1", "--engine", "approx"]);
+    let edge = audit_json(s(&f), &["--depth", "1", "--engine", "edge"]);
+    contains_edge(&approx, &edge, 0.01);
+}
+
+#[test]
+fn demo_depth_1_at_ten_percent() {
+    let f = fixture("demo-harrowmere.json");
+    let approx = audit_json(
+        s(&f),
+        &["--depth", "1", "--engine", "approx", "--epsilon", "0.1"],
+    );
+    let edge = audit_json(s(&f), &["--depth", "1", "--engine", "edge"]);
+    contains_edge(&approx, &edge, 0.1);
+}
+
+/// splitmix64 (copied from benches/common/mod.rs, so the networks are reproducible).
+struct Rng(u64);
+impl Rng {
+    fn next(&mut self) -> u64 {
+        self.0 = self.0.wrapping_add(0x9e37_79b9_7f4a_7c15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+        z ^ (z >> 31)
+    }
+    fn below(&mut self, n: usize) -> usize {
+        (self.next() % n as u64) as usize
+    }
+}
+
+/// A ring plus random chords (capacities 4..20, tight enough that some failures short
+/// demand), processing at two sites, random demands (the bench generator's shape).
+fn random_network(seed: u64, sites: usize, links: usize, demands: usize) -> String {
+    let mut rng = Rng(seed);
+    let mut edges: Vec<(usize, usize)> = (0..sites).map(|i| (i, (i + 1) % sites)).collect();
+    while edges.len() < links {
+        let (a, b) = (rng.below(sites), rng.below(sites));
+        if a != b && !edges.contains(&(a, b)) && !edges.contains(&(b, a)) {
+            edges.push((a, b));
+        }
+    }
+    let site_docs: Vec<Value> = (0..sites)
+        .map(|i| {
+            let p = if i == 0 || i == sites / 2 { 25 } else { 0 };
+            json!({"id": format!("s{i}"), "processing": p})
+        })
+        .collect();
+    let link_docs: Vec<Value> = edges
+        .iter()
+        .enumerate()
+        .map(|(k, &(a, b))| {
+            json!({"id": format!("l{k}"), "from": format!("s{a}"), "to": format!("s{b}"),
+                   "capacity": 4 + 4 * rng.below(5)})
+        })
+        .collect();
+    let demand_docs: Vec<Value> = (0..demands)
+        .map(|_| {
+            let a = rng.below(sites);
+            let b = (a + 1 + rng.below(sites - 1)) % sites;
+            let v = 1 + rng.below(8);
+            json!({"from": format!("s{a}"), "to": format!("s{b}"), "volume": v + 2, "required": v})
+        })
+        .collect();
+    json!({"sites": site_docs, "links": link_docs, "demands": demand_docs}).to_string()
+}
+
+#[test]
+fn random_networks_contain_the_edge_optimum() {
+    for seed in 1..=4 {
+        let file = TempPath::with_text("approx-random", &random_network(seed, 9, 14, 12));
+        let approx = audit_json(
+            file.path(),
+            &[
+                "--depth",
+                "1",
+                "--kinds",
+                "links",
+                "--engine",
+                "approx",
+                "--epsilon",
+                "0.05",
+            ],
+        );
+        let edge = audit_json(
+            file.path(),
+            &["--depth", "1", "--kinds", "links", "--engine", "edge"],
+        );
+        contains_edge(&approx, &edge, 0.05);
+    }
+}
+
+/// Hand case (computed here): path s–v–t, links of capacity 10, processing 4 at v only,
+/// one demand s→t requiring 6 (volume 6). Every walk is processed at v, so the optimum is
+/// 4 (the walk s→v→t with 4 on each link, within their 10): shortfall 2.
+#[test]
+fn hand_path_serves_four() {
+    let file = TempPath::with_text(
+        "approx-hand",
+        r#"{"sites":[{"id":"s"},{"id":"v","processing":4},{"id":"t"}],
+            "links":[{"id":"sv","from":"s","to":"v","capacity":10},
+                     {"id":"vt","from":"v","to":"t","capacity":10}],
+            "demands":[{"from":"s","to":"t","volume":6}]}"#,
+    );
+    let doc = audit_json(
+        file.path(),
+        &["--depth", "0", "--engine", "approx", "--epsilon", "0.2"],
+    );
+    let base = &doc["baseline"];
+    let lo = base["served_required"].as_f64().unwrap();
+    let hi = base["upper_bound"].as_f64().unwrap();
+    assert!(lo <= 4.0 + 1e-9 && hi >= 4.0 - 1e-9, "[{lo}, {hi}]");
+    assert!(hi - lo <= 0.2 * 6.0, "[{lo}, {hi}]");
+}
+
+/// `--epsilon` needs `--engine approx` and a value in (0, 0.5]: usage errors (exit 2).
+#[test]
+fn epsilon_usage() {
+    let f = fixture("small-ring.json");
+    for args in [
+        vec!["--epsilon", "0.1"],
+        vec!["--engine", "approx", "--epsilon", "0"],
+        vec!["--engine", "approx", "--epsilon", "0.6"],
+        vec!["--engine", "approx", "--epsilon", "NaN"],
+        vec!["--engine", "edge", "--epsilon", "0.01"],
+    ] {
+        let mut all = vec!["audit", s(&f), "--quiet"];
+        all.extend_from_slice(&args);
+        let run = redoubt(&all);
+        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
+        assert!(run.stderr.contains("--epsilon"), "{args:?}: {}", run.stderr);
+    }
+}
+
+/// The text names the approximate results plainly.
+#[test]
+fn text_says_approximate_within_epsilon() {
+    let f = fixture("demo-harrowmere.json");
+    let run = redoubt(&[
+        "audit",
+        s(&f),
+        "--depth",
+        "1",
+        "--engine",
+        "approx",
+        "--epsilon",
+        "0.1",
+        "--quiet",
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    assert!(
+        run.stdout.contains("approximate within 0.1"),
+        "{}",
+        run.stdout
+    );
+    assert!(!run.stdout.contains("UNPROVEN"), "{}", run.stdout);
+}
