@@ -204,6 +204,22 @@ fn epsilon_usage() {
     }
 }
 
+/// Purchases start from an exact served amount: `--close` and `--why` with the approximate
+/// engine are usage errors (exit 2) that name the exact engines.
+#[test]
+fn purchases_need_an_exact_engine() {
+    let f = fixture("small-ring.json");
+    for flag in ["--close", "--why"] {
+        let run = redoubt(&["audit", s(&f), "--quiet", "--engine", "approx", flag]);
+        assert_eq!(run.code, 2, "{flag}: {}", run.stderr);
+        assert!(
+            run.stderr.contains("--engine walks"),
+            "{flag}: {}",
+            run.stderr
+        );
+    }
+}
+
 /// The text names the approximate results plainly.
 #[test]
 fn text_says_approximate_within_epsilon() {

@@ -328,6 +328,15 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
     time_limit(args.scenarios.max_minutes, args.scenarios.yes)?;
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
     let engine = engine(args.engine, args.epsilon, shard.is_some())?;
+    if matches!(engine, Engine::Approx { .. }) && (args.close || args.why) {
+        // A closing starts from the scenario's served amount; an approximate one is only a
+        // lower bound, and closings built on it did not always verify.
+        return Err(Error::Usage(
+            "--close and --why need exact results: use them with --engine walks or edge, \
+             not --engine approx"
+                .into(),
+        ));
+    }
     if shard.is_some() {
         crate::report::text::refuse_with_shard(
             args.csv.is_some(),
