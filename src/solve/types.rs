@@ -31,7 +31,7 @@ pub enum Resource {
 /// How one LP result was verified.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Verification {
-    /// The bounds meet within [`super::GAP_TOL`] and the allocation is feasible.
+    /// The bounds meet within [`crate::tol::PROOF_GAP_TOL`] and the allocation is feasible.
     pub proven: bool,
     /// Proven lower bound: delivered flow of the repaired, feasible allocation.
     pub lower: f64,
