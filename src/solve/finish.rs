@@ -411,6 +411,7 @@ pub fn finish_with(
         site_price,
         arc_price,
         bottlenecks,
+        // Copies of `verification.upper` and `.residual` (see `Evaluation::upper_bound`).
         upper_bound,
         max_violation: verification.residual,
         verification,
