@@ -25,6 +25,7 @@ pub mod risk;
 pub mod routing;
 pub mod scenario;
 pub mod solve;
+pub mod tol;
 pub mod worst;
 
 pub use app::options::DEFAULT_MAX_MINUTES;

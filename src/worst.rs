@@ -78,7 +78,7 @@ use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::report::file_num;
 use crate::scenario::{self, Element, Kinds, Outage, Scenario};
-use crate::solve::{self, Evaluation, colgen};
+use crate::solve::{Evaluation, colgen};
 
 /// Nodes solved together in one parallel batch. Fixed (never the thread count), so the
 /// search is the same on any machine.
@@ -582,7 +582,7 @@ pub fn search(net: &Network, opts: Options) -> Result<Worst> {
         site_demands[d.to].push((d.from, d.required));
     }
     let required: f64 = net.demands.iter().map(|d| d.required).sum();
-    let tolerance = 2.0 * solve::GAP_TOL * required;
+    let tolerance = 2.0 * crate::tol::PROOF_GAP_TOL * required;
     let floor = key(2.0 * tolerance);
     let base = audit::in_pool(opts.threads, || {
         colgen::evaluate_walks(net, &Outage::default(), None)

@@ -113,9 +113,8 @@ impl Candidates {
 }
 
 /// Relative tolerance (of a module) within which an amount just above a whole number of
-/// modules counts as that number (floating-point noise: 8.000000000001 in modules of 4 is
-/// 2 modules, not 3).
-pub const MODULE_TOL: f64 = 1e-9;
+/// modules counts as that number (defined in [`crate::tol`]).
+pub use crate::tol::MODULE_TOL;
 
 /// Adds one `add_v` variable per candidate site that survives `outage` (all candidates
 /// when `outage` is `None`), bounded by `min(expand_max, cap)` and with objective

@@ -133,8 +133,7 @@ fn best_reachable_raw(
     Ok((e.served_required, arcs))
 }
 
-/// A shadow price above this counts as binding.
-const PRICE_BINDS: f64 = 1e-6;
+use crate::tol::{CLOSE_TARGET_TOL, PRICE_BINDS};
 
 /// For one scenario with a shortfall, the cheapest expansion (Σ expand_cost · add, add ≤
 /// expand_max, whole modules where a site has `expand_step`) with which served_required
@@ -229,14 +228,14 @@ fn top_up_one(
 }
 
 /// The served target of a cost-minimising model: the best reachable value itself when it
-/// is the whole required demand (exactly feasible), otherwise a hair below it (1e-8
-/// relative), since an interior-point `best` may overshoot the true optimum by its
+/// is the whole required demand (exactly feasible), otherwise a hair below it
+/// ([`CLOSE_TARGET_TOL`] relative), since an interior-point `best` may overshoot the true optimum by its
 /// tolerance.
 pub(crate) fn target(best: f64, required: f64) -> f64 {
     if best >= required {
         required
     } else {
-        best - 1e-8 * required.max(f64::MIN_POSITIVE)
+        best - CLOSE_TARGET_TOL * required.max(f64::MIN_POSITIVE)
     }
 }
 

@@ -14,19 +14,15 @@ use crate::solve::{self, Evaluation, GAP_TOL};
 /// Outages added to the master at most per round (the most violated first).
 const ADD_PER_ROUND: usize = 4;
 
-/// Absolute tolerance (on served fractions) within which an outage counts as at the
-/// master's worst fraction, and two worst fractions or totals (relative) count as equal.
-pub(super) const MEET_TOL: f64 = 1e-6;
-
-/// Relative tolerance under which two costs count as equal when plans are compared.
-const COST_TOL: f64 = 1e-9;
+/// `MEET_TOL`: at the master's worst fraction; `COST_TOL`: equal costs (see [`crate::tol`]).
+pub(super) use crate::tol::{COST_TOL, MEET_TOL};
 
 /// Most rounds of [`top_up`].
 pub(crate) const TOP_UP_ROUNDS: usize = 4;
 
 /// A shadow price of processing below this does not count as relief (see
-/// [`cheapest_raise`]).
-const PRICE_MIN: f64 = 1e-6;
+/// [`cheapest_raise`]); defined in [`crate::tol`].
+use crate::tol::PRICE_MIN;
 
 /// The proof standard of a purchase: the evaluation `e` of an outage with the purchase
 /// applied (served_required is proven achievable: inside the proven interval, or the proven

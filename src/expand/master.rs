@@ -28,12 +28,10 @@ use crate::solve::lp::{self, Lp, LpSolution, Sense};
 /// Largest master problem a plan builds (variables).
 pub const TOTAL_MAX_VARS: usize = 1_500_000;
 
-/// Relative tolerance with which a later phase holds an earlier phase's optimum (of the
-/// fraction `t`; of Σ scenarios · required for served totals; of the cost for the cost).
-pub(super) const HOLD_TOL: f64 = 1e-9;
-
-/// How much looser a hold is made when the backend cannot meet it at [`HOLD_TOL`].
-const HOLD_RETRY: f64 = 1e3;
+/// How a later phase holds an earlier phase's optimum, and the retry's loosening factor
+/// (defined in [`crate::tol`]).
+use crate::tol::HOLD_RETRY;
+pub(super) use crate::tol::HOLD_TOL;
 
 /// What the master sees of the outages.
 pub(super) struct MasterInput<'a> {

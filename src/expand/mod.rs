@@ -40,6 +40,7 @@ use crate::error::Result;
 use crate::model::{Network, SiteIdx};
 use crate::solve::evaluator::Walks;
 use crate::solve::{Evaluation, TOL};
+use crate::tol::PRICE_BINDS;
 use generate::{Generation, generate, verify};
 
 /// What a plan optimises. Every goal ends with the least cost that keeps its optimum,
@@ -215,7 +216,7 @@ pub fn relief(audit: &Audit, cands: &Candidates) -> Vec<(SiteIdx, usize, f64)> {
         }
         for (v, p) in e.site_price.iter().enumerate() {
             if let Some(p) = p
-                && *p > 1e-6
+                && *p > PRICE_BINDS
             {
                 out[v].1 += 1;
                 out[v].2 = f64::max(out[v].2, *p);

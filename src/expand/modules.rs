@@ -44,9 +44,9 @@ use crate::model::Network;
 use crate::solve::Evaluation;
 use crate::solve::lp::{self, Lp};
 
-/// Relative tolerance within which an LP module count is taken as whole (1e-6 of a module
-/// or of the count): an LP plan of 29.999999 in modules of 10 is 3 modules.
-pub(super) const ROUND_TOL: f64 = 1e-6;
+/// Relative tolerance within which an LP module count is taken as whole (defined in
+/// [`crate::tol`]): an LP plan of 29.999999 in modules of 10 is 3 modules.
+pub(super) use crate::tol::ROUND_TOL;
 
 /// Most rounding combinations checked.
 const MAX_COMBOS: usize = 32;
@@ -54,9 +54,8 @@ const MAX_COMBOS: usize = 32;
 /// Most local-search passes over the modular sites.
 const LOCAL_PASSES: usize = 4;
 
-/// Relative slack on the budget for a module plan (its cost is a sum of whole modules
-/// and should not fail the budget on the last bit).
-const BUDGET_TOL: f64 = 1e-9;
+/// Relative slack on the budget for a module plan; and equal costs (see [`crate::tol`]).
+use crate::tol::{BUDGET_TOL, COST_TOL};
 
 /// Per outage: the best reachable served_required `data.bests` capped by what the outage
 /// reaches with the additions `fixed` and every site of `rest` at its maximum (at most the
@@ -360,7 +359,7 @@ pub(crate) fn cheapest_whole(
     };
     let mut best_x = rounded(&root.x);
     let mut best_cost = cost(&best_x);
-    let prune = |c: f64, best: f64| c >= best - 1e-9 * best.abs().max(1.0);
+    let prune = |c: f64, best: f64| c >= best - COST_TOL * best.abs().max(1.0);
     // Open nodes: (LP bound of the parent, bounds of the modular variables).
     let mut open: Vec<(f64, Vec<(f64, f64)>)> = Vec::new();
     let mut node = Some((

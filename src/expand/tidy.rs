@@ -24,12 +24,9 @@ use crate::error::Result;
 use crate::model::Network;
 use crate::solve::{Evaluation, TOL};
 
-/// Grid (relative to the power of ten of the largest addition) that noise is snapped to.
-const SNAP_GRID: f64 = 1e-5;
-
-/// Relative distance within which an addition is snapped up onto the grid (a close-all
-/// master asks for a hair below best, 1e-8 of required, so its plan may be that far under).
-const SNAP_UP_TOL: f64 = 1e-6;
+/// The snapping grid of additions and how far below it an addition is snapped up
+/// (defined in [`crate::tol`]).
+use crate::tol::{SNAP_GRID, SNAP_UP_TOL};
 
 /// A plan after trimming and dropping, with the drivers of each addition.
 pub(super) struct Tidied {

@@ -26,6 +26,7 @@ use crate::model::Network;
 use crate::solve::evaluator::{AddModel, Evaluator};
 use crate::solve::lp::{self, Lp, Sense};
 use crate::solve::{Evaluation, TOL};
+use crate::tol::{BUDGET_TOL, DRIVER_PRICE_TOL};
 
 /// Adds `coeff · Σ served + extra ≥ rhs` over the served variables of `m`. O(|served|).
 fn served_row(model: &mut Lp, m: &AddModel, coeff: f64, extra: Option<(usize, f64)>, rhs: f64) {
@@ -173,7 +174,7 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
             for (_, v) in raises {
                 let mut trial = rounded.clone();
                 trial[v] = cands.round_up(v, lp_add[v]);
-                if cands.cost_of(&trial) <= b * (1.0 + 1e-9) {
+                if cands.cost_of(&trial) <= b * (1.0 + BUDGET_TOL) {
                     rounded = trial;
                 }
             }
@@ -202,7 +203,7 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
         for (v, r) in index.site_rows.iter().enumerate() {
             if let Some(r) = r
                 && let Some(&y) = duals.get(*r)
-                && y.abs() > 1e-9
+                && y.abs() > DRIVER_PRICE_TOL
             {
                 drivers[v].push((k, y.abs()));
             }

@@ -53,8 +53,9 @@ impl Mode {
     }
 }
 
-/// Relative tolerance above capacity before a resource counts as overloaded.
-pub const OVERLOAD_TOL: f64 = 1e-9;
+/// Relative tolerance above capacity before a resource counts as overloaded (defined in
+/// [`crate::tol`]).
+pub use crate::tol::OVERLOAD_TOL;
 
 /// Per-unit load on arcs: `(arc index, fraction)` pairs sorted by arc.
 pub type ArcLoad = Vec<(usize, f64)>;
@@ -241,7 +242,7 @@ pub fn offered(net: &Network, routes: &[Option<DemandRoutes>]) -> Offered {
 /// [`solve::verify::packing_lower`] is the proven lower bound (loads and flows reported are
 /// its own, so feasible), the weak-duality bound of the prices
 /// ([`fixed::weak_dual_bound`]) the upper bound. The best bounds of all attempts are kept
-/// (proven when they meet within [`solve::GAP_TOL`] of `at_stake` and the allocation's
+/// (proven when they meet within [`crate::tol::PROOF_GAP_TOL`] of `at_stake` and the allocation's
 /// residual, [`solve::verify::residual`], is within [`solve::RESIDUAL_TOL`]); the ladder
 /// ends with the simplex, whose vertex and explicit dual close the bounds where the
 /// interior point's prices leave them open. The result is a [`solve::Verified`] like any
@@ -497,12 +498,12 @@ impl RoutedAudit {
 }
 
 /// What the best re-route serves beyond the routed evaluation `routed` of the same outage:
-/// `best − routed`, and 0 when that is within [`solve::GAP_TOL`] of the surviving required
+/// `best − routed`, and 0 when that is within [`crate::tol::PROOF_GAP_TOL`] of the surviving required
 /// demand (both values are proven only to that tolerance, so a smaller difference is
 /// solver noise, not a win-back). O(1).
 pub fn win_back(best: &Evaluation, routed: &Evaluation) -> f64 {
     let d = best.served_required - routed.served_required;
-    if d <= solve::GAP_TOL * routed.surviving_required.max(f64::MIN_POSITIVE) {
+    if d <= crate::tol::PROOF_GAP_TOL * routed.surviving_required.max(f64::MIN_POSITIVE) {
         0.0
     } else {
         d
@@ -651,8 +652,8 @@ impl Evaluator for Model {
 }
 
 /// Relative tolerance (to the surviving required demand) below which a change of offered
-/// arc load counts as no change.
-pub const MOVE_TOL: f64 = 1e-9;
+/// arc load counts as no change (defined in [`crate::tol`]).
+pub use crate::tol::MOVE_TOL;
 
 /// Arcs whose offered load under `now` exceeds the baseline's `base`, with the increase,
 /// largest first (ties by arc): where a failure moves traffic. O(arcs log arcs).

@@ -59,13 +59,12 @@ use crate::error::Result;
 use crate::model::Network;
 use crate::scenario::Outage;
 
-/// A walk prices out when `1 − c_d − u_d` exceeds this (prices are per served unit).
-pub const PRICE_TOL: f64 = 1e-9;
-/// Column generation (and every shortcut) stops when the dual bound exceeds the primal
-/// value by at most this, relative to `max(1, Σ caps)` of the demands that can be served.
-pub const GAP_TOL: f64 = 1e-8;
-/// Walk flows below this (relative to the same scale) count as carrying nothing.
-pub const FLOW_EPS: f64 = 1e-9;
+/// The walk engine's tolerances (defined and explained in [`crate::tol`]): `GAP_TOL` is the
+/// column-generation stopping gap [`crate::tol::COLGEN_GAP_TOL`], tighter than the proof
+/// gap `solve::GAP_TOL`.
+pub use crate::tol::{
+    COLGEN_GAP_TOL as GAP_TOL, WALK_FLOW_EPS as FLOW_EPS, WALK_PRICE_TOL as PRICE_TOL,
+};
 /// Pricing rounds before a scenario falls back to the edge LP.
 pub const MAX_ROUNDS: usize = 200;
 /// Largest master (rows: arcs, sites and demand caps in it) solved by the warm simplex

@@ -25,7 +25,7 @@
 //!   Σ_a cap_a·y_a + Σ_v proc_v·z_v`, so `λ ≤ (Σ cap·y + Σ proc·z) / Σ_d required_d·c_d`
 //!   (LP weak duality for the path formulation of maximum concurrent flow). With the LP's
 //!   own shadow prices the quotient meets the optimum.
-//! - *Proven* when the residual passes and the bounds meet within [`super::GAP_TOL`]
+//! - *Proven* when the residual passes and the bounds meet within [`crate::tol::PROOF_GAP_TOL`]
 //!   relative to the bound. The reported value is the plainest number in the interval,
 //!   1 when the interval holds 1 (so λ ≥ 1 exactly when nothing is short).
 //!
@@ -36,10 +36,11 @@ use super::edge::{Attempt, try_backend};
 use super::flow::{self, Cap};
 use super::lp::{self, Sense};
 use super::surviving::Surviving;
-use super::{Backend, GAP_TOL, LADDER, RESIDUAL_TOL, certify, simplest_in};
+use super::{Backend, LADDER, RESIDUAL_TOL, certify, simplest_in};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
+use crate::tol::PROOF_GAP_TOL;
 
 /// The headroom of one outage, with how it was proven.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -51,7 +52,7 @@ pub struct Headroom {
     pub lower: f64,
     /// A certified upper bound on the factor.
     pub upper: f64,
-    /// `lower` and `upper` meet within [`GAP_TOL`] and the LP residual passed.
+    /// `lower` and `upper` meet within [`PROOF_GAP_TOL`] and the LP residual passed.
     pub proven: bool,
 }
 
@@ -177,7 +178,7 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
         best.lower = best.lower.max(lower);
         best.upper = best.upper.min(upper);
         let gap = best.upper - best.lower;
-        let tol = GAP_TOL * best.upper.max(f64::MIN_POSITIVE);
+        let tol = PROOF_GAP_TOL * best.upper.max(f64::MIN_POSITIVE);
         best.proven = residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol;
         if best.proven {
             break;

@@ -6,10 +6,11 @@ use super::flow::{self, Cap};
 use super::lp::{self, Backend};
 use super::surviving::{Surviving, Unservable};
 use super::types::{Verification, Verified};
-use super::{GAP_TOL, LADDER, RESIDUAL_TOL, certify, verify};
+use super::{LADDER, RESIDUAL_TOL, certify, verify};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
+use crate::tol::PROOF_GAP_TOL;
 
 /// Solves the served_required LP of `net` under `outage` and returns it with its flow
 /// index, with the default backend and no verification. The building block of the
@@ -38,11 +39,11 @@ fn empty_solution(model: &lp::Lp) -> lp::LpSolution {
     }
 }
 
-/// Whether `proven`: residual within [`RESIDUAL_TOL`] and the bounds within [`GAP_TOL`]
+/// Whether `proven`: residual within [`RESIDUAL_TOL`] and the bounds within [`PROOF_GAP_TOL`]
 /// of `at_stake` of each other (in either direction: crossing bounds are a defect).
 pub fn meets(residual: f64, lower: f64, upper: f64, at_stake: f64) -> bool {
     let gap = upper - lower;
-    let tol = GAP_TOL * at_stake.max(f64::MIN_POSITIVE);
+    let tol = PROOF_GAP_TOL * at_stake.max(f64::MIN_POSITIVE);
     residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol
 }
 

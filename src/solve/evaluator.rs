@@ -66,7 +66,7 @@ pub struct AddModel {
 /// Invariants an implementation keeps: `evaluate` is a pure function of (network, outage,
 /// warm), so results do not depend on threads, shards or what a resume restored; a warm
 /// start changes the work, never the verified values beyond the tolerances of
-/// [`super::GAP_TOL`]; the reported values come only from verified bounds (a lower bound
+/// [`crate::tol::PROOF_GAP_TOL`]; the reported values come only from verified bounds (a lower bound
 /// from a feasible allocation, an upper bound valid for any prices); more processing never
 /// lowers served_required (what [`crate::expand`] relies on).
 ///
@@ -74,7 +74,7 @@ pub struct AddModel {
 /// the engine's own [`super::Verified`] results and the demands its model cannot serve at
 /// all, and map it in [`crate::audit::evaluator`]. A (1 − ε)-approximate engine plugs in
 /// the same way: its `Verified` carries its proven lower and upper bounds, and results
-/// outside [`super::GAP_TOL`] are reported unproven with those bounds, never as exact.
+/// outside [`crate::tol::PROOF_GAP_TOL`] are reported unproven with those bounds, never as exact.
 /// A service-chain model (an ordered list of processing kinds per demand) plugs in as a
 /// routing model does: its own LP, verified into a `Verified`, and `add_processing` with
 /// one row per chained site.

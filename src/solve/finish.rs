@@ -8,10 +8,11 @@ use super::surviving::{Surviving, Unservable};
 use super::types::{Bottleneck, Evaluation, Resource, Verified};
 use super::{SATURATED, TOL, recheck};
 use crate::model::Network;
+use crate::tol::SNAP_WITHOUT_SCALE;
 
 /// Below this fraction of the scenario's demand, differences are solver noise: a value is
-/// shown as the plainest number within it (see [`simplest_in`]).
-pub const NOISE: f64 = 1e-9;
+/// shown as the plainest number within it (see [`simplest_in`]); defined in [`crate::tol`].
+pub use crate::tol::NOISE;
 
 /// Snaps `x` to `target` when within [`TOL`] relative to `scale`; otherwise the plainest
 /// number within [`NOISE`]·`scale` of `x`, so solver noise does not show in large units
@@ -20,7 +21,11 @@ pub const NOISE: f64 = 1e-9;
 /// total.
 pub(crate) fn snap(x: f64, target: f64, scale: f64) -> f64 {
     if scale.is_nan() || scale <= 0.0 {
-        return if x.abs() < 1e-12 { target } else { x };
+        return if x.abs() < SNAP_WITHOUT_SCALE {
+            target
+        } else {
+            x
+        };
     }
     if (x - target).abs() <= TOL * scale {
         target
@@ -406,6 +411,7 @@ pub fn finish_with(
         site_price,
         arc_price,
         bottlenecks,
+        // Copies of `verification.upper` and `.residual` (see `Evaluation::upper_bound`).
         upper_bound,
         max_violation: verification.residual,
         verification,

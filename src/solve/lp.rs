@@ -161,13 +161,13 @@ pub struct Clarabel {
 
 /// The default interior-point settings.
 pub const CLARABEL: Clarabel = Clarabel {
-    tol: 1e-9,
+    tol: crate::tol::CLARABEL_TOL,
     max_iter: 400,
 };
 
 /// Tighter interior-point settings, tried when a default solve fails verification.
 pub const CLARABEL_TIGHT: Clarabel = Clarabel {
-    tol: 1e-12,
+    tol: crate::tol::CLARABEL_TIGHT_TOL,
     max_iter: 1000,
 };
 

@@ -47,20 +47,10 @@ use lp::Backend;
 pub use surviving::{Surviving, Unservable};
 pub use types::{Bottleneck, Evaluation, Resource, Verification, Verified};
 
-/// Relative tolerance used to call a resource saturated and to snap values that differ
-/// from a bound by solver noise only (the backends solve to 1e-9).
-pub const TOL: f64 = 1e-7;
-
-/// Largest relative row residual ([`verify::residual`]) of an allocation that counts as
-/// feasible.
-pub const RESIDUAL_TOL: f64 = 1e-7;
-
-/// Largest gap between the proven upper and lower bounds, relative to the surviving demand
-/// at stake (Σ of the LP's demand caps), for a result to count as proven optimal.
-pub const GAP_TOL: f64 = 1e-7;
-
-/// A load at least this fraction of its capacity counts as saturated.
-pub const SATURATED: f64 = 1.0 - 1e-6;
+/// The tolerances of verification, under the names callers use (defined and explained in
+/// [`crate::tol`]): `TOL` is [`crate::tol::RELATIVE_TOL`], `GAP_TOL` the proof gap
+/// [`crate::tol::PROOF_GAP_TOL`] (not the walk engine's stopping gap `colgen::GAP_TOL`).
+pub use crate::tol::{PROOF_GAP_TOL as GAP_TOL, RELATIVE_TOL as TOL, RESIDUAL_TOL, SATURATED};
 
 /// The backends tried in turn until a result is proven.
 pub static LADDER: [&dyn Backend; 3] = [&lp::CLARABEL, &lp::CLARABEL_TIGHT, &lp::Simplex];

@@ -12,7 +12,7 @@
 //!   proven lower bound `L`;
 //! - the prices give the certificate's dual bound ([`certify::dual_bound`], with the
 //!   presolved capacities of [`flow::presolved_caps`]), a proven upper bound `U`;
-//! - a value labelled proven needs `U − L` within [`GAP_TOL`] of the demand at stake and
+//! - a value labelled proven needs `U − L` within [`PROOF_GAP_TOL`] of the demand at stake and
 //!   must lie in `[L, U]` (within that tolerance); an unproven value must not exceed `L`;
 //!   the stored bounds must not claim more than `L` and `U` prove;
 //! - everything else the reports read is either recomputed exactly as
@@ -33,11 +33,12 @@ use super::flow::{self, Cap};
 use super::surviving::Surviving;
 use super::verify::{self, Repaired, Sink, Walk};
 use super::{
-    Evaluation, GAP_TOL, NOISE, RESIDUAL_TOL, Resource, TOL, Verification, Verified, certify,
+    Evaluation, NOISE, RESIDUAL_TOL, Resource, TOL, Verification, Verified, certify,
     needs_volume_lp, reported_in, shortfall_of,
 };
 use crate::model::Network;
 use crate::scenario::Outage;
+use crate::tol::{PROOF_GAP_TOL, RECHECK_LOAD_TOL, RECHECK_SLACK};
 
 /// One walk of a stored allocation: the demand it serves, the site where it is
 /// processed, the arcs it crosses (in walk order, or any order: the walk engine keeps a
@@ -251,7 +252,7 @@ fn value_of(v: &Verification, total: f64, p: &Proven, what: &str) -> Result<f64,
     }
     let lower = p.allocation.served;
     // The tolerance of a proven result, with room for the rounding of the sums.
-    let tol = GAP_TOL * p.at_stake.max(f64::MIN_POSITIVE) * (1.0 + 1e-6);
+    let tol = PROOF_GAP_TOL * p.at_stake.max(f64::MIN_POSITIVE) * (1.0 + RECHECK_SLACK);
     let value = if v.proven {
         reported_in(v.lower, v.upper, total)
     } else {
@@ -401,7 +402,7 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
         }
     }
     for a in 0..na {
-        if !near(e.arc_load[a], alloc.arc_load[a], 1e-9 * scale) {
+        if !near(e.arc_load[a], alloc.arc_load[a], RECHECK_LOAD_TOL * scale) {
             return Err(format!(
                 "a link direction of {}: its load {} is not the stored walks' ({})",
                 net.links[net.arcs[a].link].id, e.arc_load[a], alloc.arc_load[a]
@@ -409,7 +410,7 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
         }
     }
     for v in 0..ns {
-        if !near(e.site_load[v], alloc.site_load[v], 1e-9 * scale) {
+        if !near(e.site_load[v], alloc.site_load[v], RECHECK_LOAD_TOL * scale) {
             return Err(format!(
                 "site {}: its processing used {} is not the stored walks' ({})",
                 net.sites[v].id, e.site_load[v], alloc.site_load[v]

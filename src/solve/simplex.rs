@@ -26,10 +26,9 @@
 
 use crate::error::{Error, Result};
 
-/// Reduced costs below this count as zero (objective units per unit of the column).
-pub const DUAL_TOL: f64 = 1e-11;
-/// Pivot elements below this (in absolute value) are not used.
-pub const PIVOT_TOL: f64 = 1e-9;
+use crate::tol::SIMPLEX_DRIFT_TOL;
+/// The simplex's tolerances (defined and explained in [`crate::tol`]).
+pub use crate::tol::{SIMPLEX_DUAL_TOL as DUAL_TOL, SIMPLEX_PIVOT_TOL as PIVOT_TOL};
 /// Pivots between recomputations of duals and primal values from the inverse.
 pub const REFRESH: usize = 100;
 /// Degenerate pivots in a row before Bland's rule takes over.
@@ -372,7 +371,7 @@ impl Simplex {
         loop {
             if since_refresh >= REFRESH {
                 since_refresh = 0;
-                if self.refresh() > 1e-9 {
+                if self.refresh() > SIMPLEX_DRIFT_TOL {
                     self.reinvert()?;
                     self.refresh();
                 }
@@ -385,7 +384,7 @@ impl Simplex {
                 // Optimal by the running values: confirm with values from the inverse.
                 refreshed = true;
                 since_refresh = 0;
-                if self.refresh() > 1e-9 {
+                if self.refresh() > SIMPLEX_DRIFT_TOL {
                     self.reinvert()?;
                     self.refresh();
                 }

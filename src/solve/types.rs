@@ -31,7 +31,7 @@ pub enum Resource {
 /// How one LP result was verified.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Verification {
-    /// The bounds meet within [`super::GAP_TOL`] and the allocation is feasible.
+    /// The bounds meet within [`crate::tol::PROOF_GAP_TOL`] and the allocation is feasible.
     pub proven: bool,
     /// Proven lower bound: delivered flow of the repaired, feasible allocation.
     pub lower: f64,
@@ -81,9 +81,14 @@ pub struct Evaluation {
     pub arc_price: Vec<f64>,
     /// Saturated resources, highest shadow price first (ties by resource order).
     pub bottlenecks: Vec<Bottleneck>,
-    /// Certified upper bound on served_required ([`super::certify::dual_bound`]).
+    /// Certified upper bound on served_required ([`super::certify::dual_bound`]). A copy
+    /// of `verification.upper`, which is the source of truth: both are set once, together,
+    /// by [`super::finish::finish_with`], and [`recheck::recheck`] refuses a stored line
+    /// where they differ. The copy stays because it is a field of every journal and part
+    /// line (serde of this struct) and the JSON's `upper_bound` is written from it.
     pub upper_bound: f64,
-    /// Largest relative row violation of the returned allocation.
+    /// Largest relative row violation of the returned allocation. A copy of
+    /// `verification.residual` (the source of truth), kept and checked like `upper_bound`.
     pub max_violation: f64,
     /// Surviving demands with required > 0 that no walk through a processing site can
     /// serve at all (cut off by the outage), with the reason.

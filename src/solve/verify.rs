@@ -19,9 +19,7 @@ use super::flow::FlowIndex;
 use super::lp::{Lp, Sense};
 use crate::model::Network;
 
-/// Below this fraction of the magnitude of the model, a flow value is treated as zero by
-/// the decomposition (it is far below any backend's accuracy).
-const ZERO_FLOW: f64 = 1e-15;
+use crate::tol::ZERO_FLOW;
 
 /// The largest violation of any row or variable bound by `x`, each relative to its own
 /// magnitude: for row `i`, `max(|rhs|, Σ|a_ij·x_j|, row_floor[i], max_j |a_ij|·var_floor[j])`;

@@ -101,7 +101,7 @@ pub fn marginal_sites(
         .iter()
         .enumerate()
         .filter(|&(s, _)| cands.expandable(s))
-        .filter_map(|(s, p)| p.filter(|p| *p > 1e-6).map(|p| (s, p)))
+        .filter_map(|(s, p)| p.filter(|p| *p > crate::tol::PRICE_BINDS).map(|p| (s, p)))
         .collect();
     v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
     if v.is_empty() {
