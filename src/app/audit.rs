@@ -365,7 +365,9 @@ pub(super) fn finish_audit(
     };
     let mut verdicts = gate::check(audit, o.gates, o.gate_tolerance);
     if let (Some(g), Some(h)) = (
-        o.gates.iter().find(|g| g.kind == gate::GateKind::MinHeadroom),
+        o.gates
+            .iter()
+            .find(|g| g.kind == gate::GateKind::MinHeadroom),
         &headroom,
     ) {
         verdicts.push(gate::check_headroom(&h.least, g.limit, o.gate_tolerance));

@@ -53,7 +53,11 @@ fn allows(cap: f64, load: f64) -> f64 {
 
 /// The headroom of `outage` under the routing `model`: the outage's trees (the baseline's
 /// where the failure does not touch them), its routes, then [`headroom`].
-pub fn of_outage(model: &super::Model, net: &Network, outage: &crate::scenario::Outage) -> Result<Headroom> {
+pub fn of_outage(
+    model: &super::Model,
+    net: &Network,
+    outage: &crate::scenario::Outage,
+) -> Result<Headroom> {
     let trees = model.trees.for_outage(net, outage);
     let routes = super::routes(net, &trees, &super::processing_sites(net, outage));
     headroom(net, &routes, model.mode)
@@ -62,11 +66,7 @@ pub fn of_outage(model: &super::Model, net: &Network, outage: &crate::scenario::
 /// The headroom of one outage under `mode`, from its `routes` ([`super::routes`]).
 /// Nearest: O(Σ nearest routes' arcs + arcs + sites); steered: one LP of the size of the
 /// steered fixed-route model plus one tying row per demand, by [`LADDER`].
-pub fn headroom(
-    net: &Network,
-    routes: &[Option<DemandRoutes>],
-    mode: Mode,
-) -> Result<Headroom> {
+pub fn headroom(net: &Network, routes: &[Option<DemandRoutes>], mode: Mode) -> Result<Headroom> {
     let active = active(net, routes);
     if active.is_empty() {
         return Ok(exact(None));
@@ -175,7 +175,8 @@ fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
     model.magnitude[lambda] = ceiling;
     let first_tie = model.rows.len();
     for &d in active {
-        let mut coeffs: Vec<(usize, f64)> = index.demand_vars[d].iter().map(|&v| (v, 1.0)).collect();
+        let mut coeffs: Vec<(usize, f64)> =
+            index.demand_vars[d].iter().map(|&v| (v, 1.0)).collect();
         coeffs.push((lambda, -required[d]));
         model.add_row(coeffs, Sense::Eq, 0.0);
     }
@@ -286,11 +287,7 @@ fn quotient(
             .candidates
             .iter()
             .map(|ch| {
-                site_price[ch.site]
-                    + ch.arcs
-                        .iter()
-                        .map(|&(a, f)| f * arc_price[a])
-                        .sum::<f64>()
+                site_price[ch.site] + ch.arcs.iter().map(|&(a, f)| f * arc_price[a]).sum::<f64>()
             })
             .fold(f64::INFINITY, f64::min);
         priced += required[d] * cheapest;

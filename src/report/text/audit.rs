@@ -168,12 +168,10 @@ pub fn audit_report(m: &Model<'_>) -> String {
         if with_headroom {
             row.push(Cell::new(crate::report::headroom::table_cell(m, i)));
         }
-        row.extend([
-            Cell::new(match marginal_sites(net, cands, e, 2) {
-                m if m == "none" || m == "—" => main_bottleneck(net, e),
-                m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
-            }),
-        ]);
+        row.extend([Cell::new(match marginal_sites(net, cands, e, 2) {
+            m if m == "none" || m == "—" => main_bottleneck(net, e),
+            m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
+        })]);
         t.add_row(row);
     }
     // Every column but the name and the bottleneck is a number; the bottleneck is last.
