@@ -12,7 +12,7 @@
 //!   The fixed-route LP of [`super::fixed`] (one variable per demand and candidate) with
 //!   each demand's variables tied to `λ · required_d`, maximise λ. Verified like every LP
 //!   here: the lower bound scales the backend's allocation into the real capacities
-//!   ([`steered`]), the upper bound is the weak-duality quotient of the row prices.
+//!   (`steered`), the upper bound is the weak-duality quotient of the row prices.
 
 use super::{DemandRoutes, Mode, fixed};
 use crate::error::{Error, Result};
