@@ -255,6 +255,14 @@ pub struct AuditArgs {
     /// the values as printed.
     #[arg(long, value_name = "T", allow_negative_numbers = true)]
     pub gate_tolerance: Option<f64>,
+    /// How much required demand can grow, every demand alike, before some scenario is
+    /// short: the headroom factor of each scenario and the least over the audit.
+    #[arg(long)]
+    pub headroom: bool,
+    /// Gate: exit 1 when the audit's headroom is below this factor of required demand
+    /// (1.2: every scenario must carry 120% of required); implies --headroom.
+    #[arg(long, value_name = "X", allow_negative_numbers = true)]
+    pub min_headroom: Option<f64>,
     /// For each scenario with a shortfall, the cheapest processing expansion that closes it.
     #[arg(long)]
     pub close: bool,
@@ -352,6 +360,13 @@ pub struct CompareArgs {
     /// failure) pass; they are still listed. Without it they fail the compare (exit 1).
     #[arg(long)]
     pub allow_new_short: bool,
+    /// Also compare growth headroom per scenario (headroom lost or gained is reported).
+    #[arg(long)]
+    pub headroom: bool,
+    /// Gate: exit 1 when AFTER's headroom is below this factor of required demand (1.2:
+    /// 120%); implies --headroom.
+    #[arg(long, value_name = "X", allow_negative_numbers = true)]
+    pub min_headroom: Option<f64>,
     /// Write the comparison to this JSON file.
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,

@@ -103,13 +103,23 @@ pub struct Comparison {
     /// Element names (`link:X`, `site:Y`, `group:Z`) only after / only before, sorted.
     pub elements_added: Vec<String>,
     pub elements_removed: Vec<String>,
+    /// `--headroom`: headroom lost and gained per matched scenario, both sides' headroom
+    /// and the `--min-headroom` gate on AFTER (set by the command; `None` from
+    /// [`compare`]).
+    pub headroom: Option<crate::headroom::Comparison>,
 }
 
 impl Comparison {
-    /// Whether the change passes: no scenario got worse beyond the tolerance, and none is
-    /// newly short (unless those are allowed).
+    /// Whether the change passes: no scenario got worse beyond the tolerance, none is
+    /// newly short (unless those are allowed), and AFTER's headroom meets `--min-headroom`
+    /// when given (headroom lost is reported, it does not fail the change by itself).
     pub fn passed(&self) -> bool {
-        self.worse.is_empty() && (self.allow_new_short || self.new_short.is_empty())
+        self.worse.is_empty()
+            && (self.allow_new_short || self.new_short.is_empty())
+            && self
+                .headroom
+                .as_ref()
+                .is_none_or(crate::headroom::Comparison::passed)
     }
 }
 
@@ -231,6 +241,7 @@ pub fn compare(
             .filter(|n| ea.binary_search(n).is_err())
             .cloned()
             .collect(),
+        headroom: None,
     }
 }
 

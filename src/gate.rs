@@ -21,6 +21,9 @@ pub enum GateKind {
     MaxStranded,
     /// Smallest served fraction of surviving required demand (0..1).
     MinServedFraction,
+    /// Least growth headroom of the audit, a factor of required demand (`--min-headroom
+    /// 1.2`: every surviving demand must fit at 120 % of its required in every scenario).
+    MinHeadroom,
 }
 
 /// A gate: its kind and its limit (units for the maxima, a fraction for the minimum).
@@ -35,7 +38,8 @@ pub struct Gate {
 pub struct GateResult {
     pub kind: GateKind,
     pub limit: f64,
-    /// The worst value over the scenarios (0 for maxima, 1 for the fraction, when none).
+    /// The worst value over the scenarios (0 for maxima, 1 for the fraction, when none;
+    /// `+∞` for the headroom when no scenario has surviving required demand).
     pub value: f64,
     /// The first scenario (in list order) with the worst value.
     pub scenario: Option<usize>,
@@ -94,7 +98,39 @@ pub fn displayed_fraction(f: f64) -> f64 {
         .unwrap_or_else(|| displayed(100.0 * f) / 100.0)
 }
 
-/// Evaluates each gate on `audit`. O(gates · scenarios). The worst scenario is the first
+/// The `--min-headroom` gate on an audit's least headroom ([`crate::headroom::Least`]):
+/// fails when the headroom is below `limit` (a factor of required demand, `1.2` for
+/// 120 %), compared as printed ([`crate::headroom::shown`]: its printed percentage read
+/// back as a factor) unless `tolerance` is given (then raw, with the limit loosened by
+/// it). An unproven headroom is its proven lower bound, so the gate never passes on an
+/// overstated value. No value (no scenario has surviving required demand): passes, with
+/// value `+∞` and no scenario. O(1).
+pub fn check_headroom(
+    least: &crate::headroom::Least,
+    limit: f64,
+    tolerance: Option<f64>,
+) -> GateResult {
+    let (value, passed) = match least.value {
+        None => (f64::INFINITY, true),
+        Some(v) => (
+            v,
+            match tolerance {
+                Some(t) => v >= limit - t,
+                None => crate::headroom::shown(v) >= limit,
+            },
+        ),
+    };
+    GateResult {
+        kind: GateKind::MinHeadroom,
+        limit,
+        value,
+        scenario: least.scenario,
+        passed,
+    }
+}
+
+/// Evaluates each gate on `audit`. O(gates · scenarios). A [`GateKind::MinHeadroom`] gate
+/// needs the headroom: it is checked by [`check_headroom`] and skipped here. The worst scenario is the first
 /// in list order whose value, as printed, is worst. A maximum gate fails when the
 /// worst value exceeds its limit, the fraction gate when the worst fraction is below it;
 /// unless `tolerance` is given, the worst value is compared as printed (a fraction as its
@@ -102,13 +138,14 @@ pub fn displayed_fraction(f: f64) -> f64 {
 pub fn check(audit: &Audit, gates: &[Gate], tolerance: Option<f64>) -> Vec<GateResult> {
     gates
         .iter()
+        .filter(|g| g.kind != GateKind::MinHeadroom)
         .map(|g| {
             let value_of = |i: usize| {
                 let e = audit.eval(i);
                 match g.kind {
                     GateKind::MaxShortfall => e.shortfall,
                     GateKind::MaxStranded => e.stranded,
-                    GateKind::MinServedFraction => e.served_fraction(),
+                    GateKind::MinServedFraction | GateKind::MinHeadroom => e.served_fraction(),
                 }
             };
             let minimum = g.kind == GateKind::MinServedFraction;

@@ -16,6 +16,7 @@ pub mod error;
 pub mod expand;
 pub mod fold;
 pub mod gate;
+pub mod headroom;
 pub mod journal;
 pub mod model;
 pub mod numbers;

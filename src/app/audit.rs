@@ -128,6 +128,7 @@ pub(super) fn run(
             top: args.top,
             opts,
             routed: Some(&ra),
+            headroom: args.headroom,
         };
         let thin = |_: usize| Err(Error::Internal("thin routed evaluation".into()));
         return finish_audit(&net, &ra.audit, &thin, o, None, &|e| e, out);
@@ -264,6 +265,7 @@ pub(super) fn run(
             top: args.top,
             opts,
             routed: None,
+            headroom: args.headroom,
         },
         journal,
         &interrupted,
@@ -309,6 +311,9 @@ pub(super) struct AuditOutput<'a> {
     /// A routed audit (`--routing nearest|steered`): its model closes, its baseline and
     /// comparison are shown.
     pub(super) routed: Option<&'a routing::RoutedAudit>,
+    /// `--headroom`: the growth headroom of every outage (under the routed model when
+    /// `routed`), the baseline's and the least.
+    pub(super) headroom: bool,
 }
 
 /// Closings, gates, the `--json` file (streamed; thin evaluations read back with `full`),
@@ -348,7 +353,21 @@ pub(super) fn finish_audit(
     } else {
         None
     };
-    let verdicts = gate::check(audit, o.gates, o.gate_tolerance);
+    let headroom = if o.headroom {
+        let model = o.routed.map(|ra| &ra.model);
+        Some(crate::headroom::of_audit(net, audit, model, o.opts).map_err(interrupted)?)
+    } else {
+        None
+    };
+    let mut verdicts = gate::check(audit, o.gates, o.gate_tolerance);
+    if let (Some(g), Some(h)) = (
+        o.gates
+            .iter()
+            .find(|g| g.kind == gate::GateKind::MinHeadroom),
+        &headroom,
+    ) {
+        verdicts.push(gate::check_headroom(&h.least, g.limit, o.gate_tolerance));
+    }
     // A routed audit holds every evaluation in full.
     let full: report::json::Full<'_> = match o.routed {
         Some(_) => &report::json::all_full,
@@ -366,6 +385,7 @@ pub(super) fn finish_audit(
         why: None,
         routed: o.routed,
         top: o.top,
+        headroom: headroom.as_ref(),
     });
     if o.report.is_some() {
         model = model.drawn();

@@ -36,7 +36,8 @@ fn audit_side(
     Ok((net, audit))
 }
 
-/// `redoubt compare`: audits both sides, writes `--json` (atomically) before the text,
+/// `redoubt compare`: audits both sides (with `--headroom`, each side's headroom per
+/// outage, [`crate::headroom::of_audit`]), writes `--json` (atomically) before the text,
 /// and returns [`Outcome::GateFailed`] when the change does not pass
 /// ([`crate::compare::Comparison::passed`]). Two files in different units are refused
 /// before any solving.
@@ -59,13 +60,21 @@ pub(super) fn run(
     };
     let bb = with_baseline(&nb, &ab)?;
     let ba = with_baseline(&na, &aa)?;
-    let c = compare(
+    let mut c = compare(
         (&nb, &ab),
         (&na, &aa),
         args.tolerance,
         down,
         args.allow_new_short,
     );
+    if args.headroom {
+        let hb = crate::headroom::of_audit(&nb, &ab, None, opts)?;
+        let ha = crate::headroom::of_audit(&na, &aa, None, opts)?;
+        let gate = args
+            .min_headroom
+            .map(|limit| crate::gate::check_headroom(&ha.least, limit, None));
+        c.headroom = Some(crate::headroom::compare((&ab, &hb), (&aa, &ha), gate));
+    }
     if let Some(path) = &args.json {
         let doc = report::json::compare_json(&c, &bb, &ba);
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;

@@ -103,6 +103,7 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
             top: args.top,
             opts,
             routed: None,
+            headroom: false,
         },
         None,
         &|e| e,

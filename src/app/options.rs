@@ -78,7 +78,8 @@ pub struct AuditOptions {
     pub csv: Option<PathBuf>,
     pub report: Option<PathBuf>,
     pub resume: bool,
-    /// The gates, in the order `--max-shortfall`, `--max-stranded`, `--min-served-fraction`.
+    /// The gates, in the order `--max-shortfall`, `--max-stranded`, `--min-served-fraction`,
+    /// `--min-headroom`.
     pub gates: Vec<Gate>,
     /// `--gate-tolerance` (only with a gate).
     pub gate_tolerance: Option<f64>,
@@ -87,6 +88,8 @@ pub struct AuditOptions {
     pub shard: Option<(usize, usize)>,
     pub why: bool,
     pub engine: Engine,
+    /// `--headroom` (also set by `--min-headroom`).
+    pub headroom: bool,
 }
 
 /// `plan`, validated.
@@ -113,6 +116,10 @@ pub struct CompareOptions {
     pub allow_new_short: bool,
     pub json: Option<PathBuf>,
     pub top: usize,
+    /// `--headroom` (also set by `--min-headroom`).
+    pub headroom: bool,
+    /// `--min-headroom`: the least headroom AFTER must keep (a factor, finite, ≥ 0).
+    pub min_headroom: Option<f64>,
 }
 
 impl CompareOptions {
@@ -308,12 +315,18 @@ fn gates_of(args: &AuditArgs) -> Result<Vec<Gate>> {
             limit: gate::parse_fraction(f)?,
         });
     }
+    if let Some(x) = args.min_headroom {
+        gates.push(Gate {
+            kind: GateKind::MinHeadroom,
+            limit: gate::max_limit("--min-headroom", x)?,
+        });
+    }
     if let Some(t) = args.gate_tolerance {
         gate::max_limit("--gate-tolerance", t)?;
         if gates.is_empty() {
             return Err(Error::Usage(
-                "--gate-tolerance needs a gate (--max-shortfall, --max-stranded or \
-                 --min-served-fraction)"
+                "--gate-tolerance needs a gate (--max-shortfall, --max-stranded, \
+                 --min-served-fraction or --min-headroom)"
                     .into(),
             ));
         }
@@ -334,6 +347,14 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
         return Err(Error::Usage(
             "--close and --why need exact results: use them with --engine walks or edge, \
              not --engine approx"
+                .into(),
+        ));
+    }
+    let headroom = args.headroom || args.min_headroom.is_some();
+    if shard.is_some() && headroom {
+        return Err(Error::Usage(
+            "--headroom (and --min-headroom) with --shard is not supported yet: part files \
+             do not carry headroom; run the audit unsharded (--resume works with --headroom)"
                 .into(),
         ));
     }
@@ -358,6 +379,7 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
         shard,
         why: args.why,
         engine,
+        headroom,
     })
 }
 
@@ -392,6 +414,10 @@ fn compare(args: CompareArgs) -> Result<CompareOptions> {
             args.tolerance
         )));
     }
+    let min_headroom = args
+        .min_headroom
+        .map(|x| gate::max_limit("--min-headroom", x))
+        .transpose()?;
     let sides = scenarios(args.side(args.before.clone()))?;
     Ok(CompareOptions {
         sides,
@@ -402,6 +428,8 @@ fn compare(args: CompareArgs) -> Result<CompareOptions> {
         allow_new_short: args.allow_new_short,
         json: args.json,
         top: args.top,
+        headroom: args.headroom || min_headroom.is_some(),
+        min_headroom,
     })
 }
 

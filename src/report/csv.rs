@@ -38,7 +38,8 @@ fn failed_list(s: &Scenario) -> String {
 
 /// The `audit --csv` exporter: header, one row per scenario, the caution in the last
 /// column of the first row; the `closing_cost` and `not_closable` columns appear when
-/// the model holds closings (per outage), `probability` when it holds risk figures; ranks
+/// the model holds closings (per outage), `probability` when it holds risk figures,
+/// `headroom` (before `caution`; empty when the scenario has none) with `--headroom`; ranks
 /// and `same_as` are the model's. O(scenarios · elements per scenario).
 impl Exporter for Csv {
     fn write(&self, m: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
@@ -63,7 +64,11 @@ fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
     if risk.is_some() {
         header.push("probability");
     }
-    header.extend(["same_as", "caution"]);
+    header.push("same_as");
+    if m.headroom.is_some() {
+        header.push("headroom");
+    }
+    header.push("caution");
     writeln!(w, "{}", header.join(","))?;
     let (rank_of, folding) = (&m.rank_of, &m.folding);
     for (i, s) in audit.scenarios.iter().enumerate() {
@@ -91,6 +96,9 @@ fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
                 .map(|r| failed_list(&audit.scenarios[r]))
                 .unwrap_or_default(),
         );
+        if m.headroom.is_some() {
+            row.push(super::headroom::csv_cell(m, i));
+        }
         row.push(if i == 0 {
             field(CAUTION)
         } else {

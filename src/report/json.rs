@@ -33,6 +33,9 @@ pub struct AuditJson<'a> {
     /// The gates asked for (absent when none).
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub gates: Vec<GateJson>,
+    /// `--headroom`: the least headroom over the scenarios and the scenario that sets it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub headroom: Option<super::headroom::HeadroomJson>,
 }
 
 #[derive(Serialize)]
@@ -40,7 +43,9 @@ pub struct GateJson {
     /// `max_shortfall`, `max_stranded` or `min_served_fraction`.
     pub gate: &'static str,
     pub limit: f64,
-    pub worst: f64,
+    /// The worst value; `null` only for `min_headroom` when no scenario has surviving
+    /// required demand.
+    pub worst: Option<f64>,
     pub worst_scenario: Option<Vec<String>>,
     pub passed: bool,
 }
@@ -55,9 +60,10 @@ pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJ
                 GateKind::MaxShortfall => "max_shortfall",
                 GateKind::MaxStranded => "max_stranded",
                 GateKind::MinServedFraction => "min_served_fraction",
+                GateKind::MinHeadroom => "min_headroom",
             },
             limit: g.limit,
-            worst: file_num(g.value),
+            worst: g.value.is_finite().then(|| file_num(g.value)),
             worst_scenario: g.scenario.map(|i| audit.scenarios[i].failed.clone()),
             passed: g.passed,
         })
@@ -114,6 +120,13 @@ pub struct ScenarioJson {
     /// folded into it (tables list it there as an equivalent).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub same_as: Option<Vec<String>>,
+    /// `--headroom`: the largest factor of required demand every surviving demand can
+    /// send at once (`null` without surviving required demand).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub headroom: Option<Option<f64>>,
+    /// `--headroom`: how that factor was verified (absent when it is `null`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub headroom_verification: Option<super::headroom::HeadroomVerificationJson>,
 }
 
 /// The `risk` object of an audit document (see [`crate::risk`]).
@@ -320,6 +333,8 @@ pub fn scenario_json(
         routed: None,
         probability: None,
         same_as: None,
+        headroom: None,
+        headroom_verification: None,
     }
 }
 
@@ -414,6 +429,7 @@ pub fn audit_json<'a>(
         why: None,
         routed: None,
         top: 0,
+        headroom: None,
     });
     audit_json_with(&model, closing)
 }
@@ -473,6 +489,7 @@ pub fn audit_json_with<'a>(
             })
             .collect(),
         gates: Vec::new(),
+        headroom: None,
     }
 }
 
@@ -495,6 +512,7 @@ impl Exporter for Json {
         if let Some(r) = m.risk {
             attach_risk(&mut doc, m.net, m.audit, r);
         }
+        super::headroom::attach(&mut doc, m);
         write(w, &doc)
     }
 }
@@ -722,6 +740,9 @@ pub struct CompareJson {
     pub removed_risks: Vec<OneSidedJson>,
     pub elements_added: Vec<String>,
     pub elements_removed: Vec<String>,
+    /// `compare --headroom`: both sides' headroom, the scenarios that lost and gained it.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub headroom: Option<super::headroom::CompareJson>,
 }
 
 fn change_json(c: &crate::compare::Change) -> ChangeJson {
@@ -779,5 +800,6 @@ pub fn compare_json(
         removed_risks: one_sided_json(&c.removed_risks),
         elements_added: c.elements_added.clone(),
         elements_removed: c.elements_removed.clone(),
+        headroom: c.headroom.as_ref().map(super::headroom::compare_json),
     }
 }

@@ -8,6 +8,7 @@
 pub mod csv;
 pub mod export;
 pub mod file;
+pub mod headroom;
 pub mod html;
 pub mod json;
 pub mod layout;

@@ -16,6 +16,7 @@ use crate::audit::Audit;
 use crate::expand::{Candidates, Closing};
 use crate::fold::Folding;
 use crate::gate::GateResult;
+use crate::headroom::AuditHeadroom;
 use crate::model::Network;
 use crate::rank::{self, Criticality};
 use crate::risk::Risk;
@@ -46,6 +47,8 @@ pub struct Parts<'a> {
     pub routed: Option<&'a RoutedAudit>,
     /// How many scenarios (and elements) the tables show.
     pub top: usize,
+    /// `--headroom`: per outage, the baseline's and the audit's least.
+    pub headroom: Option<&'a AuditHeadroom>,
 }
 
 /// The report model of one audit run. Indices are into `audit.scenarios` unless said.
@@ -91,6 +94,9 @@ pub struct Model<'a> {
     /// The topology map's geometry (layout and label places), computed once when a
     /// report is written ([`Model::drawn`]); `None` otherwise.
     pub drawing: Option<super::map::Drawing>,
+    /// `--headroom`: per outage (index with `audit.outage_of[i]`), the baseline's, and the
+    /// audit's least with the scenario that sets it.
+    pub headroom: Option<&'a AuditHeadroom>,
 }
 
 impl<'a> Model<'a> {
@@ -136,6 +142,7 @@ impl<'a> Model<'a> {
             routed: p.routed,
             top: p.top,
             drawing: None,
+            headroom: p.headroom,
         }
     }
 

@@ -22,6 +22,7 @@
 
 pub mod expand;
 pub mod fixed;
+pub mod headroom;
 pub mod spt;
 
 use std::collections::HashMap;

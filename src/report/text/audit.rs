@@ -134,12 +134,12 @@ pub fn audit_report(m: &Model<'_>) -> String {
     if base_short {
         header.push("beyond baseline");
     }
-    header.extend([
-        "% of surviving required",
-        "stranded",
-        "throughput loss",
-        "main bottleneck (one more unit helps at)",
-    ]);
+    header.extend(["% of surviving required", "stranded", "throughput loss"]);
+    let with_headroom = m.headroom.is_some();
+    if with_headroom {
+        header.push("headroom");
+    }
+    header.push("main bottleneck (one more unit helps at)");
     let mut t = table(&header);
     let mut widest_name = 0;
     for (rank_no, &i) in order.iter().take(shown).enumerate() {
@@ -165,18 +165,20 @@ pub fn audit_report(m: &Model<'_>) -> String {
             Cell::new(percent(e.shortfall, e.surviving_required)),
             Cell::new(num(e.stranded)),
             Cell::new(num(file_diff(baseline.throughput, e.throughput).max(0.0))),
-            Cell::new(match marginal_sites(net, cands, e, 2) {
-                m if m == "none" || m == "—" => main_bottleneck(net, e),
-                m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
-            }),
         ]);
+        if with_headroom {
+            row.push(Cell::new(crate::report::headroom::table_cell(m, i)));
+        }
+        row.extend([Cell::new(match marginal_sites(net, cands, e, 2) {
+            m if m == "none" || m == "—" => main_bottleneck(net, e),
+            m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
+        })]);
         t.add_row(row);
     }
-    let (numeric, free): (Vec<usize>, Vec<usize>) = if base_short {
-        (vec![0, 2, 3, 4, 5, 6], vec![7])
-    } else {
-        (vec![0, 2, 3, 4, 5], vec![6])
-    };
+    // Every column but the name and the bottleneck is a number; the bottleneck is last.
+    let last = header.len() - 1;
+    let numeric: Vec<usize> = std::iter::once(0).chain(2..last).collect();
+    let free = vec![last];
     // A long scenario name (depth 2 and more) wraps at its spaces, between whole element
     // names; a short one stays on one line.
     let free: Vec<usize> = if widest_name > NAME_ON_ONE_LINE {
@@ -202,6 +204,14 @@ pub fn audit_report(m: &Model<'_>) -> String {
     );
     let _ = writeln!(out, "{}", render(&mut t, &free));
     let _ = writeln!(out, "{}", column_legend(base_short));
+    if with_headroom {
+        let _ = writeln!(
+            out,
+            "headroom = the largest share of its required demand every surviving demand can \
+             be sent at once in that scenario (above 100%: room to grow; below: short now; \
+             ≥: unproven, the proven lower bound; —: no surviving required demand)."
+        );
+    }
     if short > 0 {
         let _ = writeln!(
             out,
@@ -241,6 +251,7 @@ pub fn audit_report(m: &Model<'_>) -> String {
         let _ = writeln!(out, "{}", render(&mut c, &[4]));
     }
     let _ = writeln!(out, "\n{}", verification_summary(audit));
+    out.push_str(&crate::report::headroom::verification_lines(m));
     for (k, e) in audit.evaluations.iter().enumerate() {
         let name = || audit.first_scenario(k).display_name();
         if let Some(eps) = approximate(&e.verification)
@@ -410,6 +421,9 @@ impl Exporter for Text {
     fn write(&self, m: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
         let mut section = |s: &str| w.write_all(screen::finish(s).as_bytes());
         section(&format!("{}\n", verdict(m)))?;
+        if let Some(h) = crate::report::headroom::sentence(m) {
+            section(&format!("{h}\n"))?;
+        }
         if let Some(ra) = m.routed {
             section(&format!(
                 "{}\n",

@@ -4,7 +4,7 @@
 use super::*;
 
 /// `baseline` for an empty failed list, else the names joined with ` + `.
-pub(super) fn scenario_words(failed: &[String]) -> String {
+pub(crate) fn scenario_words(failed: &[String]) -> String {
     if failed.is_empty() {
         "baseline".into()
     } else {
@@ -13,7 +13,7 @@ pub(super) fn scenario_words(failed: &[String]) -> String {
 }
 
 /// A signed change as printed: `+2`, `-1.5`, `0`.
-pub(super) fn signed(x: f64) -> String {
+pub(crate) fn signed(x: f64) -> String {
     if x > 0.0 {
         format!("+{}", num(x))
     } else {
@@ -51,7 +51,7 @@ pub(super) fn compare_lines(
         w,
         "{verdict} compare: {} of {} matched scenario{} got worse by more than {} \
          (shortfall or stranded, as printed); {} newly short{}; {} better; {} added risk{}, \
-         {} removed.",
+         {} removed{}.",
         c.worse.len(),
         c.matched,
         plural(c.matched),
@@ -65,7 +65,12 @@ pub(super) fn compare_lines(
         c.better.len(),
         c.added_risks.len(),
         plural(c.added_risks.len()),
-        c.removed_risks.len()
+        c.removed_risks.len(),
+        match c.headroom.as_ref().and_then(|h| h.gate) {
+            Some(g) if g.passed => "; --min-headroom met",
+            Some(_) => "; --min-headroom not met",
+            None => "",
+        }
     )?;
     writeln!(
         w,
@@ -173,6 +178,9 @@ pub(super) fn compare_lines(
             )
             .as_bytes(),
         )?;
+    }
+    if let Some(h) = &c.headroom {
+        w.write_all(crate::report::headroom::compare_text(h, top).as_bytes())?;
     }
     writeln!(
         w,

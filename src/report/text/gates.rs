@@ -30,6 +30,9 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
             if g.passed { "within" } else { "exceeds" },
         )
     };
+    if g.kind == GateKind::MinHeadroom {
+        return headroom_gate_line(audit, g);
+    }
     let (flag, what, value, limit, verb) = match g.kind {
         GateKind::MaxShortfall => amount("--max-shortfall", "shortfall"),
         GateKind::MaxStranded => amount("--max-stranded", "stranded"),
@@ -40,6 +43,7 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
             format!("{}%", shift_point(g.limit, 2)),
             if g.passed { "meets" } else { "is below" },
         ),
+        GateKind::MinHeadroom => unreachable!("worded by headroom_gate_line"),
     };
     // Compared raw (--gate-tolerance), a failing value may print like its limit: show it
     // in full then.
@@ -52,4 +56,32 @@ pub fn gate_line(net: &Network, audit: &Audit, g: &GateResult) -> String {
         value
     };
     format!("{verdict} {flag}: worst {what} {value} ({scenario}) {verb} the limit {limit}")
+}
+
+/// The `--min-headroom` line: the audit's least headroom as a percentage of required
+/// demand and the scenario that sets it against the limit (given as a factor, shown with
+/// its percentage), e.g. `FAIL --min-headroom 1.2: least headroom 118% of required
+/// (link:ab) is below the limit 1.2 (120%)`.
+fn headroom_gate_line(audit: &Audit, g: &GateResult) -> String {
+    let verdict = if g.passed { "PASS" } else { "FAIL" };
+    let limit = format!("{} ({}%)", given(g.limit), shift_point(g.limit, 2));
+    let Some(i) = g.scenario.filter(|_| g.value.is_finite()) else {
+        return format!(
+            "{verdict} --min-headroom {}: no scenario has surviving required demand, so \
+             there is no headroom to limit",
+            given(g.limit)
+        );
+    };
+    let mut value = crate::headroom::percent(g.value);
+    // Compared raw (--gate-tolerance), a failing value may print like its limit.
+    if !g.passed && crate::headroom::shown(g.value) >= g.limit {
+        value = format!("{}%", 100.0 * g.value);
+    }
+    format!(
+        "{verdict} --min-headroom {}: least headroom {value} of required ({}) {} the limit \
+         {limit}",
+        given(g.limit),
+        audit.scenarios[i].display_name(),
+        if g.passed { "meets" } else { "is below" }
+    )
 }
