@@ -54,7 +54,7 @@ use super::lp::{self, Lp, Sense};
 use super::simplex::Simplex;
 use super::surviving::Surviving;
 use super::types::{Evaluation, Verification, Verified};
-use super::{certify, verify};
+use super::{cancel, certify, verify};
 use crate::error::Result;
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -942,6 +942,7 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
         let net = self.g.net;
         let mut scale: Option<f64> = None;
         loop {
+            cancel::check()?;
             if self.lp.rows() > WARM_ROWS {
                 return Ok(Warm::Abandon(self.into_solution().0));
             }
@@ -953,6 +954,8 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
                     .solve(PIVOTS_PER_ROW * self.lp.rows().max(100))
                     .is_err()
                 {
+                    // An interrupt ends the scenario; any other failure goes cold.
+                    cancel::check()?;
                     return Ok(Warm::Abandon(self.into_solution().0));
                 }
             }
@@ -1056,6 +1059,7 @@ fn generate_cold(
     }
     let mut scale: Option<f64> = None;
     loop {
+        cancel::check()?;
         let m = if walks.is_empty() {
             Master {
                 flow: Vec::new(),

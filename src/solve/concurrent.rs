@@ -157,8 +157,10 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
     };
     let mut errors = Vec::new();
     for backend in ladder {
+        super::cancel::check()?;
         let solution = match backend.solve(&model) {
             Ok(s) => s,
+            Err(e @ Error::Interrupted(_)) => return Err(e),
             Err(e) => {
                 errors.push(format!("{}: {e}", backend.name()));
                 continue;

@@ -133,8 +133,11 @@ pub fn solve_verified_with(
     let mut best_prices: (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
     let mut errors = Vec::new();
     for (attempt, backend) in ladder.iter().enumerate() {
+        // microlp cannot be stopped mid-solve: never start an attempt after an interrupt.
+        super::cancel::check()?;
         let solution = match backend.solve(&model) {
             Ok(s) => s,
+            Err(e @ Error::Interrupted(_)) => return Err(e),
             Err(e) => {
                 errors.push(format!("{}: {e}", backend.name()));
                 continue;

@@ -16,6 +16,7 @@
 //! *unproven* with its bounds: its served value is then the proven lower bound, so a
 //! shortfall is never understated.
 
+pub mod cancel;
 pub mod certify;
 pub mod colgen;
 pub mod concurrent;
