@@ -8,9 +8,9 @@ use super::tidy::snap_up;
 use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network};
 use crate::scenario::Outage;
-use crate::solve::evaluator::{Evaluator, Walks};
+use crate::solve::evaluator::{Evaluator, Walks, served_at_least};
 use crate::solve::flow::FlowIndex;
-use crate::solve::lp::{Lp, Sense};
+use crate::solve::lp::Lp;
 use crate::solve::{Evaluation, TOL};
 
 /// The cheapest expansion for one scenario.
@@ -176,13 +176,15 @@ pub fn close_with(
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
-    let Some(m) = ev.add_processing(&mut model, net, outage, &add, 0.0) else {
+    if ev
+        .closing_model(&mut model, net, outage, &add, target(best, required))?
+        .is_none()
+    {
         return Err(Error::Usage(format!(
             "purchases are not defined for --routing {}",
             ev.name()
         )));
-    };
-    served_at_least(&mut model, &m.served, target(best, required));
+    }
     let whole = cheapest_whole(&model, &add, cands)?;
     let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
     let (add_units, after) = top_up_one(cands, best, add_units, |a| {
@@ -246,12 +248,4 @@ pub(super) fn served_row(model: &mut Lp, index: &FlowIndex, target: f64) -> usiz
     served_at_least(model, &served, target)
 }
 
-/// Adds `Σ served >= target` ([`crate::solve::evaluator::AddModel::served`]); returns the
-/// row. O(|served|).
-fn served_at_least(model: &mut Lp, served: &[usize], target: f64) -> usize {
-    model.add_row(
-        served.iter().map(|&f| (f, 1.0)).collect(),
-        Sense::Ge,
-        target,
-    )
-}
+

@@ -44,6 +44,8 @@
 //! demand order, and a scenario's result depends only on the network, the outage and the
 //! parent basis, never on thread count.
 
+pub mod buy;
+
 use std::cmp::Ordering;
 use std::collections::{BinaryHeap, HashMap, HashSet, VecDeque};
 

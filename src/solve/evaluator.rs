@@ -104,6 +104,37 @@ pub trait Evaluator: Send + Sync {
         add: &[Option<usize>],
         obj: f64,
     ) -> Option<AddModel>;
+
+    /// Builds into `model` (holding the additions `add` with their costs as objective) the
+    /// cost model of a closing: the served_required model of `outage` with the additions
+    /// in the processing rows and `Σ served ≥ target`. `None` when purchases are not
+    /// defined for this model. The default is [`Evaluator::add_processing`] (served
+    /// weighted 0) plus that row; the walk engine generates walk columns instead
+    /// ([`colgen::buy::cost_master`]), with the same optimum.
+    fn closing_model(
+        &self,
+        model: &mut Lp,
+        net: &Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        target: f64,
+    ) -> Result<Option<AddModel>> {
+        Ok(self
+            .add_processing(model, net, outage, add, 0.0)
+            .map(|m| {
+                served_at_least(model, &m.served, target);
+                m
+            }))
+    }
+}
+
+/// Adds `Σ served ≥ target`; returns the row. O(|served|).
+pub fn served_at_least(model: &mut Lp, served: &[usize], target: f64) -> usize {
+    model.add_row(
+        served.iter().map(|&f| (f, 1.0)).collect(),
+        super::lp::Sense::Ge,
+        target,
+    )
 }
 
 /// The edge LP: one two-layer flow LP per quantity ([`super::solve_verified`] climbing
@@ -187,5 +218,23 @@ impl Evaluator for Walks {
         obj: f64,
     ) -> Option<AddModel> {
         Some(two_layer_with(model, net, outage, add, obj))
+    }
+
+    /// The walk master of [`colgen::buy::cost_master`]; the edge model with additions
+    /// when the walk engine gives no start or stalls.
+    fn closing_model(
+        &self,
+        model: &mut Lp,
+        net: &Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        target: f64,
+    ) -> Result<Option<AddModel>> {
+        if let Some(m) = colgen::buy::cost_master(net, outage, model, add, target)? {
+            return Ok(Some(m));
+        }
+        let m = two_layer_with(model, net, outage, add, 0.0);
+        served_at_least(model, &m.served, target);
+        Ok(Some(m))
     }
 }
