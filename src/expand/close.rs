@@ -176,16 +176,14 @@ pub fn close_with(
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
-    if ev
-        .closing_model(&mut model, net, outage, &add, target(best, required))?
-        .is_none()
-    {
+    let Some(cm) = ev.closing_model(&mut model, net, outage, &add, target(best, required))?
+    else {
         return Err(Error::Usage(format!(
             "purchases are not defined for --routing {}",
             ev.name()
         )));
-    }
-    let whole = cheapest_whole(&model, &add, cands)?;
+    };
+    let whole = cheapest_whole(&model, &add, cands, &|lp| cm.solve(lp))?;
     let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
     let (add_units, after) = top_up_one(cands, best, add_units, |a| {
         Ok(ev

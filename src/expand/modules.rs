@@ -42,7 +42,7 @@ use crate::audit::{Audit, RunOptions};
 use crate::error::Result;
 use crate::model::Network;
 use crate::solve::Evaluation;
-use crate::solve::lp::{self, Lp};
+use crate::solve::lp::{Lp, LpSolution};
 
 /// Relative tolerance within which an LP module count is taken as whole (1e-6 of a module
 /// or of the count): an LP plan of 29.999999 in modules of 10 is 3 modules.
@@ -330,6 +330,7 @@ pub(crate) fn cheapest_whole(
     model: &Lp,
     add: &[Option<usize>],
     cands: &Candidates,
+    solve: &dyn Fn(&Lp) -> Result<LpSolution>,
 ) -> Result<WholeModules> {
     let mut model = model.clone();
     let modular: Vec<(usize, usize)> = add
@@ -341,7 +342,7 @@ pub(crate) fn cheapest_whole(
     for &(v, j) in &modular {
         model.upper[j] = model.upper[j].max(cands.round_up(v, model.upper[j]));
     }
-    let root = lp::solve(&model)?;
+    let root = solve(&model)?;
     let dual_bound = model.dual_objective(&root);
     if modular.is_empty() {
         return Ok(WholeModules {
@@ -421,7 +422,7 @@ pub(crate) fn cheapest_whole(
         }
         solves += 1;
         if bounds.iter().all(|(lo, hi)| lo <= hi)
-            && let Ok(sol) = lp::solve(&model)
+            && let Ok(sol) = solve(&model)
         {
             node = Some((sol, bounds));
         }
