@@ -32,7 +32,6 @@ pub struct RunOptions {
     pub progress: bool,
 }
 
-
 /// Installs the handler of SIGINT, SIGTERM and SIGHUP (Ctrl-C, `kill`, a closed terminal)
 /// once per process. The first signal ([`crate::solve::cancel::request`]) asks every running
 /// batch to stop: solves in flight are abandoned within a pivot, an interior-point

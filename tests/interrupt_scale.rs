@@ -129,10 +129,18 @@ fn ctrl_c_stops_a_200_site_audit_promptly_and_resume_gives_the_uninterrupted_jso
     let cut = TempPath::new("interrupt-200-cut", "json");
     let journal = format!("{}.journal", cut.path());
     let args = |out: &str| -> Vec<String> {
-        ["audit", net.path(), "--kinds", "sites", "--yes", "--json", out]
-            .iter()
-            .map(|a| a.to_string())
-            .collect()
+        [
+            "audit",
+            net.path(),
+            "--kinds",
+            "sites",
+            "--yes",
+            "--json",
+            out,
+        ]
+        .iter()
+        .map(|a| a.to_string())
+        .collect()
     };
     let cut_args = args(cut.path());
     let cut_refs: Vec<&str> = cut_args.iter().map(String::as_str).collect();

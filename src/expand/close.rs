@@ -156,8 +156,10 @@ pub fn close(
 }
 
 /// [`close`] for the model of `ev` (the best re-route by the walk engine, or a routing
-/// model): best reachable and the re-solves by `ev`, the cost LP on
-/// [`Evaluator::add_processing`]. Fails with a usage error when `ev` defines no purchases.
+/// model): best reachable and the re-solves by `ev`, the cost LP by
+/// [`Evaluator::closing_model`] (the walk engine's walk master, else the model of
+/// [`Evaluator::add_processing`]), its whole-module search re-solving through that model.
+/// Fails with a usage error when `ev` defines no purchases.
 pub fn close_with(
     ev: &dyn Evaluator,
     net: &Network,
@@ -176,8 +178,7 @@ pub fn close_with(
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
-    let Some(cm) = ev.closing_model(&mut model, net, outage, &add, target(best, required))?
-    else {
+    let Some(cm) = ev.closing_model(&mut model, net, outage, &add, target(best, required))? else {
         return Err(Error::Usage(format!(
             "purchases are not defined for --routing {}",
             ev.name()
@@ -245,5 +246,3 @@ pub(super) fn served_row(model: &mut Lp, index: &FlowIndex, target: f64) -> usiz
     let served: Vec<usize> = index.demand_var.iter().flatten().copied().collect();
     served_at_least(model, &served, target)
 }
-
-

@@ -325,7 +325,10 @@ pub(crate) struct WholeModules {
 /// whole-module solution (more processing never serves less), so the root already gives
 /// one. Amounts within [`ROUND_TOL`] of a module below an allowed amount count as that
 /// amount (rounded up, never down). Nodes are taken cheapest bound first. Cost: at most
-/// [`MAX_NODES`] LP solves of the model's size.
+/// [`MAX_NODES`] LP solves of the model's size. Every LP (root and nodes) is solved by
+/// `solve`, which returns the optimum of the whole model at those bounds: one
+/// interior-point solve for a complete model, column generation for the walk master of
+/// a closing ([`crate::solve::evaluator::ClosingModel::solve`]).
 pub(crate) fn cheapest_whole(
     model: &Lp,
     add: &[Option<usize>],

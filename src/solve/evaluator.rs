@@ -119,15 +119,13 @@ pub trait Evaluator: Send + Sync {
         add: &[Option<usize>],
         target: f64,
     ) -> Result<Option<ClosingModel<'a>>> {
-        Ok(self
-            .add_processing(model, net, outage, add, 0.0)
-            .map(|m| {
-                served_at_least(model, &m.served, target);
-                ClosingModel {
-                    add: m,
-                    walks: None,
-                }
-            }))
+        Ok(self.add_processing(model, net, outage, add, 0.0).map(|m| {
+            served_at_least(model, &m.served, target);
+            ClosingModel {
+                add: m,
+                walks: None,
+            }
+        }))
     }
 }
 

@@ -192,8 +192,14 @@ impl WalkCloser<'_> {
             };
             let cost = sol.objective;
             let mut bound = sigma * self.target
-                - g.usable.iter().map(|&a| y[a] * self.arc_cap[a]).sum::<f64>()
-                - g.procs.iter().map(|&v| z[v] * self.site_cap[v]).sum::<f64>();
+                - g.usable
+                    .iter()
+                    .map(|&a| y[a] * self.arc_cap[a])
+                    .sum::<f64>()
+                - g.procs
+                    .iter()
+                    .map(|&v| z[v] * self.site_cap[v])
+                    .sum::<f64>();
             for (v, a) in self.add.iter().enumerate() {
                 if let Some(j) = *a {
                     // Σ (cost − z)·add over lower ≤ add ≤ upper, at its minimum.
