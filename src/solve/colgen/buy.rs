@@ -21,7 +21,7 @@
 //! optimum within [`CLOSE_GAP`]: the restricted master is then optimal for the full model.
 
 use super::{Graph, MAX_ROUNDS, Walk, evaluate_walks, price};
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
 use crate::solve::cancel;
@@ -46,6 +46,7 @@ pub struct WalkCloser<'a> {
     cols: std::sync::Mutex<Columns>,
     /// Columns in the master [`cost_master`] returned; later ones were found at nodes.
     root_cols: usize,
+    outage: Outage,
 }
 
 /// Builds into `model` (which already holds the addition variables `add`, per site, with
@@ -118,6 +119,7 @@ pub fn cost_master<'a>(
         target,
         cols: std::sync::Mutex::new(cols),
         root_cols: 0,
+        outage: outage.clone(),
     };
     if closer.generate(&mut work)?.is_none() {
         return Ok(None);
@@ -140,7 +142,14 @@ impl WalkCloser<'_> {
     /// a copy, the solution cut back to `lp`'s variables (the walks added carry no cost,
     /// so the objective is unchanged). Columns found are kept for later solves. When the
     /// generation stalls, the copy's restricted optimum (a cost no lower than the true
-    /// one). O(rounds · (one interior-point solve + one pricing pass)).
+    /// one). An error when no purchase within the bounds serves the target (a node to
+    /// prune).
+    ///
+    /// New bounds can leave the columns so far unable to serve the target while other
+    /// walks could: the walk engine's verified optimum with every addition at its new
+    /// upper bound either serves less than the target (the node is infeasible: an error)
+    /// or gives walks that make the restricted master feasible. O(one walk evaluation +
+    /// rounds · (one interior-point solve + one pricing pass)).
     pub fn solve(&self, lp: &Lp) -> Result<LpSolution> {
         let mut work = lp.clone();
         // Columns found at other nodes, missing from `lp`.
@@ -148,6 +157,26 @@ impl WalkCloser<'_> {
             let cols = self.cols.lock().expect("not poisoned");
             for w in &cols.order[self.root_cols..] {
                 cols.column(&mut work, w, &self.caps);
+            }
+        }
+        // The walk engine's optimum with every addition at its upper bound here: proves
+        // the node infeasible when it serves less than the target, else its walks make
+        // the restricted master feasible.
+        let ub: Vec<f64> = self
+            .add
+            .iter()
+            .map(|a| a.map_or(0.0, |j| lp.upper[j].max(0.0)))
+            .collect();
+        let reach = evaluate_walks(&self.g.net.with_added_processing(&ub), &self.outage, None)?;
+        if reach.evaluation.served_required + 1e-9 * self.target.max(1.0) < self.target {
+            return Err(Error::Solver(
+                "no purchase within these bounds serves the target".into(),
+            ));
+        }
+        if let Some(start) = reach.basis.required {
+            let mut cols = self.cols.lock().expect("not poisoned");
+            for w in start.walks.iter().filter_map(|w| self.g.lift(w)) {
+                cols.add(&mut work, w, &self.caps);
             }
         }
         let sol = self.generate(&mut work)?;
