@@ -12,7 +12,7 @@
 //! **Pricing.** With arc duals `y ≥ 0`, site duals `z ≥ 0`, demand duals `u ≥ 0` and the
 //! served row's dual `σ ≥ 0`, a walk of `d` through `v` has reduced cost
 //! `Σ mult·y + z_v + u_d − σ`; dividing by `σ` gives the walk engine's own pricing
-//! ([`super::price`] at `y/σ`, `z/σ`, `u/σ`): the same shortest processing walk.
+//! (the pricing pass of [`super`] at `y/σ`, `z/σ`, `u/σ`): the same shortest processing walk.
 //!
 //! **Stopping.** Lagrangian relaxation of the arc, site and served rows (demand rows and
 //! variable bounds kept) gives, for any `y, z, σ ≥ 0`, the lower bound
@@ -60,7 +60,7 @@ pub struct WalkCloser<'a> {
 /// Start: the walks of the walk engine's verified optimum with every addition at its
 /// bound (feasible when `target` is at most the best reachable value). Cost per round: one
 /// interior-point solve of at most arcs + sites + demands + 1 rows and the columns so far,
-/// and one pricing pass ([`super::price`]); at most [`MAX_ROUNDS`] rounds.
+/// and one pricing pass of [`super`]; at most [`MAX_ROUNDS`] rounds.
 pub fn cost_master<'a>(
     net: &'a Network,
     outage: &Outage,
