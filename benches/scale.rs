@@ -12,8 +12,8 @@
 //!   deterministic slice of them solved (shard 1 of N).
 //!
 //! - `CLOSE200`: the `G200` network written to a file and `redoubt audit FILE --fail
-//!   link:X` (its explanation and closing included) run by the built binary, timed, for a
-//!   few links; the closing's cost master is the walk master (`solve::colgen::buy`).
+//!   X` (its explanation and closing included) run by the built binary, timed, for two
+//!   links and two processing sites; the closing's cost master is the walk master (`solve::colgen::buy`).
 //!
 //! Prints scenarios, seconds per scenario (wall, 2 threads), LPs decided by each shortcut,
 //! master LP solves, pricing rounds, fallbacks and peak memory (VmHWM, so each figure
@@ -271,11 +271,11 @@ fn close_200() {
         "network G200 (file {}): audit --fail link:X, explanation and closing",
         path.display()
     );
-    for link in ["l07", "l00", "l150"] {
+    for element in ["link:l07", "link:l150", "site:s00", "site:s10"] {
         let t = Instant::now();
         let out = std::process::Command::new(env!("CARGO_BIN_EXE_redoubt"))
             .args(["audit", path.to_str().expect("utf-8 path"), "--fail"])
-            .arg(format!("link:{link}"))
+            .arg(element)
             .output()
             .expect("redoubt runs");
         let took = t.elapsed().as_secs_f64();
@@ -286,7 +286,7 @@ fn close_200() {
             .unwrap_or("");
         let buys = text.lines().filter(|l| l.contains("add ")).count();
         println!(
-            "  --fail link:{link}: {took:.1} s, exit {:?} | {short} | {buys} purchase lines",
+            "  --fail {element}: {took:.1} s, exit {:?} | {short} | {buys} purchase lines",
             out.status.code()
         );
     }
