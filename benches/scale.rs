@@ -11,6 +11,10 @@
 //!   depth-2 scenario of links and sites enumerated and deduplicated (peak memory), and a
 //!   deterministic slice of them solved (shard 1 of N).
 //!
+//! - `CLOSE200`: the `G200` network written to a file and `redoubt audit FILE --fail
+//!   X` (its explanation and closing included) run by the built binary, timed, for two
+//!   links and two processing sites; the closing's cost master is the walk master (`solve::colgen::buy`).
+//!
 //! Prints scenarios, seconds per scenario (wall, 2 threads), LPs decided by each shortcut,
 //! master LP solves, pricing rounds, fallbacks and peak memory (VmHWM, so each figure
 //! includes everything before it). Run with `cargo bench --bench scale -- B G200 G400`
@@ -112,7 +116,7 @@ fn singles(net: &Network) -> Vec<Vec<Element>> {
 
 fn main() {
     let args: Vec<String> = std::env::args().collect();
-    let chosen: Vec<&str> = ["B", "G200", "G400"]
+    let chosen: Vec<&str> = ["B", "G200", "G400", "CLOSE200"]
         .into_iter()
         .filter(|n| args.iter().any(|a| a == n))
         .collect();
@@ -127,6 +131,9 @@ fn main() {
     }
     if want("G400") {
         bench_400();
+    }
+    if chosen.contains(&"CLOSE200") {
+        close_200();
     }
     if args.iter().any(|a| a == "profile400") {
         profile_400();
@@ -251,6 +258,39 @@ fn bench_b(full: bool) {
 fn net_200() -> Network {
     let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, 200.0)).collect();
     generate(200, 200, 395, Demands::Random(3903), &procs)
+}
+
+/// `CLOSE200`: `audit --fail link:X` (with its explanation and closing) on the G200
+/// network through the binary, wall time per link.
+fn close_200() {
+    let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, 200.0)).collect();
+    let doc = common::document(200, 200, 395, Demands::Random(3903), &procs, 0);
+    let path = std::env::temp_dir().join(format!("redoubt-close200-{}.json", std::process::id()));
+    std::fs::write(&path, doc.to_string()).expect("write the network");
+    println!(
+        "network G200 (file {}): audit --fail link:X, explanation and closing",
+        path.display()
+    );
+    for element in ["link:l07", "link:l150", "site:s00", "site:s10"] {
+        let t = Instant::now();
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_redoubt"))
+            .args(["audit", path.to_str().expect("utf-8 path"), "--fail"])
+            .arg(element)
+            .output()
+            .expect("redoubt runs");
+        let took = t.elapsed().as_secs_f64();
+        let text = String::from_utf8_lossy(&out.stdout);
+        let short = text
+            .lines()
+            .find(|l| l.starts_with("Verdict:"))
+            .unwrap_or("");
+        let buys = text.lines().filter(|l| l.contains("add ")).count();
+        println!(
+            "  --fail {element}: {took:.1} s, exit {:?} | {short} | {buys} purchase lines",
+            out.status.code()
+        );
+    }
+    let _ = std::fs::remove_file(&path);
 }
 
 fn bench_200() {

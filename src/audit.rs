@@ -9,7 +9,6 @@
 
 use std::collections::HashMap;
 use std::io::IsTerminal;
-use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Mutex, Once};
 use std::time::{Duration, Instant};
 
@@ -33,12 +32,11 @@ pub struct RunOptions {
     pub progress: bool,
 }
 
-/// Set by the signal handler; every batch checks it before starting an item.
-static INTERRUPTED: AtomicBool = AtomicBool::new(false);
-
 /// Installs the handler of SIGINT, SIGTERM and SIGHUP (Ctrl-C, `kill`, a closed terminal)
-/// once per process. The first signal asks every running batch to stop once the solves in
-/// flight have finished (and been journaled), and a final file not yet renamed into place
+/// once per process. The first signal ([`crate::solve::cancel::request`]) asks every running
+/// batch to stop: solves in flight are abandoned within a pivot, an interior-point
+/// iteration or a pricing round (their scenarios are not journaled), finished ones stay
+/// journaled, and a final file not yet renamed into place
 /// is dropped ([`crate::report::file::write_atomic`]); the run then ends with
 /// [`Error::Interrupted`] and its resume hint. A second signal removes the temporary files
 /// ([`crate::report::file::remove_temporaries`]) and exits at once with
@@ -48,7 +46,7 @@ pub fn install_interrupt_handler() {
     static ONCE: Once = Once::new();
     ONCE.call_once(|| {
         let _ = ctrlc::set_handler(|| {
-            if INTERRUPTED.swap(true, Ordering::SeqCst) {
+            if crate::solve::cancel::request() {
                 crate::report::file::remove_temporaries();
                 std::process::exit(EXIT_INTERRUPTED);
             }
@@ -58,7 +56,7 @@ pub fn install_interrupt_handler() {
 
 /// Whether an interrupt was asked for.
 pub fn interrupted() -> bool {
-    INTERRUPTED.load(Ordering::SeqCst)
+    crate::solve::cancel::requested()
 }
 
 /// The evaluated scenarios.

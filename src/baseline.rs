@@ -41,7 +41,9 @@ pub fn with_baseline(net: &Network, audit: &Audit) -> Result<Evaluation> {
 }
 
 /// The baseline's full evaluation: the audit's (read back with `full` when thin), else
-/// solved (one outage: the `--down` state of the first scenario, or the intact network).
+/// solved by the walk engine, the audit's default (one outage: the `--down` state of the
+/// first scenario, or the intact network; an unproven walk answer falls back to the edge
+/// LP's ladder, so the result is verified like every scenario's).
 pub fn with_full_baseline(
     net: &Network,
     audit: &Audit,
@@ -52,7 +54,7 @@ pub fn with_full_baseline(
         Some(i) => Ok(audit.eval(i).clone()),
         None => {
             let down = audit.scenarios.first().map_or(&[][..], |s| &s.down[..]);
-            solve::evaluate(net, &Scenario::baseline().with_down(down).outage(net))
+            solve::evaluate_cold_walks(net, &Scenario::baseline().with_down(down).outage(net))
         }
     }
 }

@@ -8,9 +8,9 @@ use super::tidy::snap_up;
 use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network};
 use crate::scenario::Outage;
-use crate::solve::evaluator::{Evaluator, Walks};
+use crate::solve::evaluator::{Evaluator, Walks, served_at_least};
 use crate::solve::flow::FlowIndex;
-use crate::solve::lp::{Lp, Sense};
+use crate::solve::lp::Lp;
 use crate::solve::{Evaluation, TOL};
 
 /// The cheapest expansion for one scenario.
@@ -155,8 +155,10 @@ pub fn close(
 }
 
 /// [`close`] for the model of `ev` (the best re-route by the walk engine, or a routing
-/// model): best reachable and the re-solves by `ev`, the cost LP on
-/// [`Evaluator::add_processing`]. Fails with a usage error when `ev` defines no purchases.
+/// model): best reachable and the re-solves by `ev`, the cost LP by
+/// [`Evaluator::closing_model`] (the walk engine's walk master, else the model of
+/// [`Evaluator::add_processing`]), its whole-module search re-solving through that model.
+/// Fails with a usage error when `ev` defines no purchases.
 pub fn close_with(
     ev: &dyn Evaluator,
     net: &Network,
@@ -175,14 +177,13 @@ pub fn close_with(
     }
     let mut model = Lp::new(false);
     let add = add_vars(&mut model, net, cands, Some(outage), required, 1.0);
-    let Some(m) = ev.add_processing(&mut model, net, outage, &add, 0.0) else {
+    let Some(cm) = ev.closing_model(&mut model, net, outage, &add, target(best, required))? else {
         return Err(Error::Usage(format!(
             "purchases are not defined for --routing {}",
             ev.name()
         )));
     };
-    served_at_least(&mut model, &m.served, target(best, required));
-    let whole = cheapest_whole(&model, &add, cands)?;
+    let whole = cheapest_whole(&model, &add, cands, &|lp| cm.solve(lp))?;
     let add_units = snap_up(cands, values(&add, &whole.x, scale), None);
     let (add_units, after) = top_up_one(cands, best, add_units, |a| {
         Ok(ev
@@ -243,14 +244,4 @@ pub(crate) fn target(best: f64, required: f64) -> f64 {
 pub(super) fn served_row(model: &mut Lp, index: &FlowIndex, target: f64) -> usize {
     let served: Vec<usize> = index.demand_var.iter().flatten().copied().collect();
     served_at_least(model, &served, target)
-}
-
-/// Adds `Σ served >= target` ([`crate::solve::evaluator::AddModel::served`]); returns the
-/// row. O(|served|).
-fn served_at_least(model: &mut Lp, served: &[usize], target: f64) -> usize {
-    model.add_row(
-        served.iter().map(|&f| (f, 1.0)).collect(),
-        Sense::Ge,
-        target,
-    )
 }

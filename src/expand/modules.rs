@@ -42,7 +42,7 @@ use crate::audit::{Audit, RunOptions};
 use crate::error::Result;
 use crate::model::Network;
 use crate::solve::Evaluation;
-use crate::solve::lp::{self, Lp};
+use crate::solve::lp::{Lp, LpSolution};
 
 /// Relative tolerance within which an LP module count is taken as whole (defined in
 /// [`crate::tol`]): an LP plan of 29.999999 in modules of 10 is 3 modules.
@@ -324,11 +324,15 @@ pub(crate) struct WholeModules {
 /// whole-module solution (more processing never serves less), so the root already gives
 /// one. Amounts within [`ROUND_TOL`] of a module below an allowed amount count as that
 /// amount (rounded up, never down). Nodes are taken cheapest bound first. Cost: at most
-/// [`MAX_NODES`] LP solves of the model's size.
+/// [`MAX_NODES`] LP solves of the model's size. Every LP (root and nodes) is solved by
+/// `solve`, which returns the optimum of the whole model at those bounds: one
+/// interior-point solve for a complete model, column generation for the walk master of
+/// a closing ([`crate::solve::evaluator::ClosingModel::solve`]).
 pub(crate) fn cheapest_whole(
     model: &Lp,
     add: &[Option<usize>],
     cands: &Candidates,
+    solve: &dyn Fn(&Lp) -> Result<LpSolution>,
 ) -> Result<WholeModules> {
     let mut model = model.clone();
     let modular: Vec<(usize, usize)> = add
@@ -340,7 +344,7 @@ pub(crate) fn cheapest_whole(
     for &(v, j) in &modular {
         model.upper[j] = model.upper[j].max(cands.round_up(v, model.upper[j]));
     }
-    let root = lp::solve(&model)?;
+    let root = solve(&model)?;
     let dual_bound = model.dual_objective(&root);
     if modular.is_empty() {
         return Ok(WholeModules {
@@ -420,7 +424,7 @@ pub(crate) fn cheapest_whole(
         }
         solves += 1;
         if bounds.iter().all(|(lo, hi)| lo <= hi)
-            && let Ok(sol) = lp::solve(&model)
+            && let Ok(sol) = solve(&model)
         {
             node = Some((sol, bounds));
         }

@@ -29,7 +29,7 @@ use std::collections::HashMap;
 use std::sync::Arc as Shared;
 
 use crate::audit::{self, Audit, RunOptions};
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::model::{Network, SiteIdx};
 use crate::scenario::{Outage, Scenario};
 use crate::solve::evaluator::{AddModel, Evaluated, Evaluator, Warm};
@@ -300,8 +300,10 @@ fn verify_fixed(
         if model.num_vars() == 0 {
             break;
         }
+        solve::cancel::check()?;
         let sol = match backend.solve(model) {
             Ok(s) => s,
+            Err(e @ Error::Interrupted(_)) => return Err(e),
             Err(e) => {
                 errors.push(format!("{}: {e}", backend.name()));
                 continue;

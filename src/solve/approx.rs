@@ -488,6 +488,8 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
     let mut next_check = 1;
     let mut standard_done = false;
     while !origins.is_empty() && alpha.is_finite() && phases < max_phases {
+        // A phase on a large network takes well under a second: Ctrl-C is seen in time.
+        super::cancel::check()?;
         phases += 1;
         let mut limit = (1.0 + eps) * alpha;
         let mut seen = f64::INFINITY;

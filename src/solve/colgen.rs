@@ -44,6 +44,8 @@
 //! demand order, and a scenario's result depends only on the network, the outage and the
 //! parent basis, never on thread count.
 
+pub mod buy;
+
 use std::cmp::Ordering;
 use std::collections::{BinaryHeap, HashMap, HashSet, VecDeque};
 
@@ -54,7 +56,7 @@ use super::lp::{self, Lp, Sense};
 use super::simplex::Simplex;
 use super::surviving::Surviving;
 use super::types::{Evaluation, Verification, Verified};
-use super::{certify, verify};
+use super::{cancel, certify, verify};
 use crate::error::Result;
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -941,6 +943,7 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
         let net = self.g.net;
         let mut scale: Option<f64> = None;
         loop {
+            cancel::check()?;
             if self.lp.rows() > WARM_ROWS {
                 return Ok(Warm::Abandon(self.into_solution().0));
             }
@@ -952,6 +955,8 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
                     .solve(PIVOTS_PER_ROW * self.lp.rows().max(100))
                     .is_err()
                 {
+                    // An interrupt ends the scenario; any other failure goes cold.
+                    cancel::check()?;
                     return Ok(Warm::Abandon(self.into_solution().0));
                 }
             }
@@ -1055,6 +1060,7 @@ fn generate_cold(
     }
     let mut scale: Option<f64> = None;
     loop {
+        cancel::check()?;
         let m = if walks.is_empty() {
             Master {
                 flow: Vec::new(),

@@ -162,7 +162,7 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
             solution,
             residual,
             allocation: repaired,
-        }) = try_backend(*backend, &model, floors, net, &index, &bound, &mut errors)
+        }) = try_backend(*backend, &model, floors, net, &index, &bound, &mut errors)?
         else {
             continue;
         };

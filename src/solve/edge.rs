@@ -146,7 +146,7 @@ pub fn solve_verified_with(
             &index,
             &bound,
             &mut errors,
-        )
+        )?
         else {
             continue;
         };
@@ -271,8 +271,10 @@ pub(crate) struct Attempt {
 }
 
 /// Solves `model` (built into `index`) with `backend` and checks the answer ([`Attempt`]);
-/// a backend error is appended to `errors` as `name: error` and gives `None`, so a ladder
-/// goes on to its next backend. Cost: one solve, O(nonzeros) for the residual, the repair.
+/// a backend error is appended to `errors` as `name: error` and gives `Ok(None)`, so a
+/// ladder goes on to its next backend. An interrupt (before the attempt, or reported by the
+/// backend) is returned as the error: microlp cannot be stopped mid-solve, so no attempt
+/// starts after one. Cost: one solve, O(nonzeros) for the residual, the repair.
 pub(crate) fn try_backend(
     backend: &dyn Backend,
     model: &lp::Lp,
@@ -281,12 +283,14 @@ pub(crate) fn try_backend(
     index: &flow::FlowIndex,
     bound: &[f64],
     errors: &mut Vec<String>,
-) -> Option<Attempt> {
+) -> Result<Option<Attempt>> {
+    super::cancel::check()?;
     let solution = match backend.solve(model) {
         Ok(s) => s,
+        Err(e @ Error::Interrupted(_)) => return Err(e),
         Err(e) => {
             errors.push(format!("{}: {e}", backend.name()));
-            return None;
+            return Ok(None);
         }
     };
     let residual = verify::residual(model, &solution.x, floors.0, floors.1);
@@ -300,9 +304,9 @@ pub(crate) fn try_backend(
         &site_capacity,
         bound,
     );
-    Some(Attempt {
+    Ok(Some(Attempt {
         solution,
         residual,
         allocation,
-    })
+    }))
 }

@@ -104,6 +104,58 @@ pub trait Evaluator: Send + Sync {
         add: &[Option<usize>],
         obj: f64,
     ) -> Option<AddModel>;
+
+    /// Builds into `model` (holding the additions `add` with their costs as objective) the
+    /// cost model of a closing: the served_required model of `outage` with the additions
+    /// in the processing rows and `Σ served ≥ target`. `None` when purchases are not
+    /// defined for this model. The default is [`Evaluator::add_processing`] (served
+    /// weighted 0) plus that row; the walk engine generates walk columns instead
+    /// ([`colgen::buy::cost_master`]), with the same optimum.
+    fn closing_model<'a>(
+        &self,
+        model: &mut Lp,
+        net: &'a Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        target: f64,
+    ) -> Result<Option<ClosingModel<'a>>> {
+        Ok(self.add_processing(model, net, outage, add, 0.0).map(|m| {
+            served_at_least(model, &m.served, target);
+            ClosingModel {
+                add: m,
+                walks: None,
+            }
+        }))
+    }
+}
+
+/// A closing's cost model as built by [`Evaluator::closing_model`].
+pub struct ClosingModel<'a> {
+    pub add: AddModel,
+    /// The walk master when the model is one: its re-solves price new walks
+    /// ([`colgen::buy::WalkCloser::solve`]); `None` for a model complete as built.
+    pub walks: Option<colgen::buy::WalkCloser<'a>>,
+}
+
+impl ClosingModel<'_> {
+    /// The optimum of `lp` (the built model, bounds possibly changed) over the whole
+    /// model: [`colgen::buy::WalkCloser::solve`] for a walk master, else one
+    /// [`super::lp::solve`].
+    pub fn solve(&self, lp: &Lp) -> Result<super::lp::LpSolution> {
+        match &self.walks {
+            Some(w) => w.solve(lp),
+            None => super::lp::solve(lp),
+        }
+    }
+}
+
+/// Adds `Σ served ≥ target`; returns the row. O(|served|).
+pub fn served_at_least(model: &mut Lp, served: &[usize], target: f64) -> usize {
+    model.add_row(
+        served.iter().map(|&f| (f, 1.0)).collect(),
+        super::lp::Sense::Ge,
+        target,
+    )
 }
 
 /// The edge LP: one two-layer flow LP per quantity ([`super::solve_verified`] climbing
@@ -187,6 +239,30 @@ impl Evaluator for Walks {
         obj: f64,
     ) -> Option<AddModel> {
         Some(two_layer_with(model, net, outage, add, obj))
+    }
+
+    /// The walk master of [`colgen::buy::cost_master`]; the edge model with additions
+    /// when the walk engine gives no start or stalls.
+    fn closing_model<'a>(
+        &self,
+        model: &mut Lp,
+        net: &'a Network,
+        outage: &Outage,
+        add: &[Option<usize>],
+        target: f64,
+    ) -> Result<Option<ClosingModel<'a>>> {
+        if let Some((m, walks)) = colgen::buy::cost_master(net, outage, model, add, target)? {
+            return Ok(Some(ClosingModel {
+                add: m,
+                walks: Some(walks),
+            }));
+        }
+        let m = two_layer_with(model, net, outage, add, 0.0);
+        served_at_least(model, &m.served, target);
+        Ok(Some(ClosingModel {
+            add: m,
+            walks: None,
+        }))
     }
 }
 

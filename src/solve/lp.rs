@@ -14,8 +14,7 @@
 //! units; shadow prices are unchanged by the scaling.
 
 use good_lp::{
-    Expression, ProblemVariables, Solution, SolutionWithDual, SolverModel, Variable, clarabel,
-    constraint::ConstraintReference, microlp, variable,
+    Expression, ProblemVariables, Solution, SolverModel, Variable, clarabel, microlp, variable,
 };
 
 use crate::error::{Error, Result};
@@ -459,7 +458,20 @@ fn solve_microlp(lp: &Lp) -> Result<LpSolution> {
     })
 }
 
+/// Solves `lp` with clarabel through good_lp's model builder, driving the solver itself
+/// so that its termination callback polls [`super::cancel`] at every interior-point
+/// iteration (an interrupt abandons the solve within one iteration with
+/// [`Error::Interrupted`]).
+///
+/// Shadow prices follow good_lp's conversion (its `clarabel` module): clarabel solves
+/// `min g(x)` s.t. `A·x + s = b`, `s` in the cones, with `g = ±f` (minus when
+/// maximising); the price of a row is `z_i · (−objective_factor) · rhs_scale`, where
+/// `rhs_scale` is −1 for a `≥` row (stored as `rhs − lhs ≤ 0`) and 1 otherwise. good_lp
+/// adds one row per finite variable lower bound before ours, in variable order, so row
+/// `i` of `lp` is clarabel row `lower_rows + i` and the explicit upper-bound rows follow.
+/// Accepted statuses are good_lp's own (solved, almost solved, dual infeasible).
 fn solve_clarabel(lp: &Lp, settings: Clarabel) -> Result<LpSolution> {
+    use clarabel::solver::{IPSolver, SolverStatus};
     let (pv, vars) = variables(lp);
     let obj = objective_of(lp, &vars);
     let unsolved = if lp.maximise {
@@ -474,38 +486,50 @@ fn solve_clarabel(lp: &Lp, settings: Clarabel) -> Result<LpSolution> {
         .tol_gap_abs(settings.tol)
         .tol_gap_rel(settings.tol)
         .max_iter(settings.max_iter);
-    let refs: Vec<ConstraintReference> = lp
+    for r in &lp.rows {
+        model.add_constraint(constraint_of(r, &vars));
+    }
+    // Finite upper bounds as explicit rows, so that their shadow prices are known.
+    let uppers: Vec<usize> = (0..lp.num_vars())
+        .filter(|&i| lp.upper[i].is_finite())
+        .collect();
+    for &i in &uppers {
+        model.add_constraint(Expression::from(vars[i]).leq(lp.upper[i]));
+    }
+    let mut solver = model
+        .try_into_solver()
+        .map_err(|e| Error::Solver(format!("clarabel: {e}")))?;
+    solver.set_termination_callback(|_| super::cancel::requested());
+    solver.solve();
+    match solver.solution.status {
+        SolverStatus::Solved
+        | SolverStatus::AlmostSolved
+        | SolverStatus::AlmostDualInfeasible
+        | SolverStatus::DualInfeasible => {}
+        SolverStatus::CallbackTerminated => {
+            return Err(Error::Interrupted("interior-point solve abandoned".into()));
+        }
+        other => return Err(Error::Solver(format!("clarabel: {other:?}"))),
+    }
+    let sol = &solver.solution;
+    // good_lp numbers the variables in the order `variables` adds them: 0, 1, ….
+    let x: Vec<f64> = sol.x[..vars.len()].to_vec();
+    // −objective_factor: objective_factor is −1 when maximising, 1 when minimising.
+    let objective_scale = if lp.maximise { 1.0 } else { -1.0 };
+    let lower_rows = lp.lower.iter().filter(|l| l.is_finite()).count();
+    let duals: Vec<f64> = lp
         .rows
         .iter()
-        .map(|r| model.add_constraint(constraint_of(r, &vars)))
-        .collect();
-    // Finite upper bounds as explicit rows, so that their shadow prices are known.
-    let bound_refs: Vec<Option<ConstraintReference>> = (0..lp.num_vars())
-        .map(|i| {
-            lp.upper[i]
-                .is_finite()
-                .then(|| model.add_constraint(Expression::from(vars[i]).leq(lp.upper[i])))
+        .enumerate()
+        .map(|(i, r)| {
+            let rhs_scale = if r.sense == Sense::Ge { -1.0 } else { 1.0 };
+            sol.z[lower_rows + i] * objective_scale * rhs_scale
         })
         .collect();
-    let mut sol = model
-        .solve()
-        .map_err(|e| Error::Solver(format!("clarabel: {e}")))?;
-    let x: Vec<f64> = vars.iter().map(|v| sol.value(*v)).collect();
-    let (duals, upper_duals) = {
-        let d = sol.compute_dual();
-        let rows = refs
-            .iter()
-            .map(|r| good_lp::DualValues::dual(&d, r.clone()))
-            .collect();
-        let bounds = bound_refs
-            .iter()
-            .map(|r| {
-                r.as_ref()
-                    .map_or(0.0, |r| good_lp::DualValues::dual(&d, r.clone()))
-            })
-            .collect();
-        (rows, bounds)
-    };
+    let mut upper_duals = vec![0.0; lp.num_vars()];
+    for (k, &i) in uppers.iter().enumerate() {
+        upper_duals[i] = sol.z[lower_rows + lp.rows.len() + k] * objective_scale;
+    }
     let objective = lp.objective.iter().zip(&x).map(|(c, v)| c * v).sum();
     Ok(LpSolution {
         x,
@@ -549,5 +573,21 @@ mod tests {
         assert!((s.objective - 14.0).abs() < 1e-6);
         // Raising the rhs by one costs 2 more.
         assert!((s.duals[r] - 2.0).abs() < 1e-6, "{:?}", s.duals);
+    }
+
+    /// min x + 4y, x + y = 5, x <= 3 (hand calculation): x takes the cheaper units up to its
+    /// bound, so x = 3, y = 2, value 11; one more unit of the equality costs 4 (a unit of y),
+    /// one more unit of x's bound saves 4 − 1 = 3. Covers the equality row and the upper
+    /// bound row of a minimisation, the two price conversions not met above.
+    #[test]
+    fn minimise_with_equality_and_bound() {
+        let mut lp = Lp::new(false);
+        let x = lp.add_var(0.0, 3.0, 1.0);
+        let y = lp.add_var(0.0, f64::INFINITY, 4.0);
+        let r = lp.add_row(vec![(x, 1.0), (y, 1.0)], Sense::Eq, 5.0);
+        let s = solve(&lp).unwrap();
+        assert!((s.objective - 11.0).abs() < 1e-6, "{}", s.objective);
+        assert!((s.duals[r] - 4.0).abs() < 1e-6, "{:?}", s.duals);
+        assert!((s.upper_duals[x] + 3.0).abs() < 1e-6, "{:?}", s.upper_duals);
     }
 }

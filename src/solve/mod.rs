@@ -17,6 +17,7 @@
 //! shortfall is never understated.
 
 pub mod approx;
+pub mod cancel;
 pub mod certify;
 pub mod colgen;
 pub mod concurrent;

@@ -312,6 +312,8 @@ impl Simplex {
         let mut basis: Vec<Var> = (0..m).map(Var::Slack).collect();
         for v in basics {
             let Var::Col(j) = v else { continue };
+            // O(m²) per column: a large basis takes long enough to poll.
+            super::cancel::check()?;
             let alpha = self.ftran(&self.cols[j]);
             let mut best = NONE;
             for p in 0..m {
@@ -362,13 +364,16 @@ impl Simplex {
 
     /// Re-optimises from the current basis and point. Errors when the model is
     /// unbounded, the basis becomes singular, or `max_pivots` is exceeded (the caller
-    /// then uses another backend).
+    /// then uses another backend), and with [`Error::Interrupted`] when an interrupt is
+    /// asked for ([`super::cancel`], polled before every pivot and every column of a
+    /// re-inversion).
     pub fn solve(&mut self, max_pivots: usize) -> Result<()> {
         let start = self.pivots;
         let mut degenerate = 0usize;
         let mut since_refresh = 0usize;
         let mut refreshed = false;
         loop {
+            super::cancel::check()?;
             if since_refresh >= REFRESH {
                 since_refresh = 0;
                 if self.refresh() > SIMPLEX_DRIFT_TOL {
