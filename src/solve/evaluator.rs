@@ -95,7 +95,9 @@ pub trait Evaluator: Send + Sync {
     /// Builds the served_required model of `outage` into `model` with the additions
     /// `add` (per site: its `add_v` variable) in the processing rows, each served unit
     /// weighted `obj` in the objective. `None` when buying processing is not defined for
-    /// this model (it would change the routes).
+    /// this model (it would change the routes). The default is the two-layer model of
+    /// [`flow::build`] with the additions: what every engine routing on any walk (edge LP,
+    /// walks, approx) buys against.
     fn add_processing(
         &self,
         model: &mut Lp,
@@ -103,7 +105,9 @@ pub trait Evaluator: Send + Sync {
         outage: &Outage,
         add: &[Option<usize>],
         obj: f64,
-    ) -> Option<AddModel>;
+    ) -> Option<AddModel> {
+        Some(two_layer_with(model, net, outage, add, obj))
+    }
 
     /// Builds into `model` (holding the additions `add` with their costs as objective) the
     /// cost model of a closing: the served_required model of `outage` with the additions
@@ -178,20 +182,9 @@ impl Evaluator for Edge {
         };
         Ok(Evaluated::cold(finish(net, &view, required, volume)))
     }
-
-    fn add_processing(
-        &self,
-        model: &mut Lp,
-        net: &Network,
-        outage: &Outage,
-        add: &[Option<usize>],
-        obj: f64,
-    ) -> Option<AddModel> {
-        Some(two_layer_with(model, net, outage, add, obj))
-    }
 }
 
-/// The two-layer model with additions: what both exact engines buy against.
+/// The two-layer model with additions: what every any-walk engine buys against.
 fn two_layer_with(
     model: &mut Lp,
     net: &Network,
@@ -228,17 +221,6 @@ impl Evaluator for Walks {
 
     fn warm_starts(&self) -> bool {
         true
-    }
-
-    fn add_processing(
-        &self,
-        model: &mut Lp,
-        net: &Network,
-        outage: &Outage,
-        add: &[Option<usize>],
-        obj: f64,
-    ) -> Option<AddModel> {
-        Some(two_layer_with(model, net, outage, add, obj))
     }
 
     /// The walk master of [`colgen::buy::cost_master`]; the edge model with additions
@@ -289,19 +271,5 @@ impl Evaluator for Approx {
             outage,
             self.epsilon,
         )?))
-    }
-
-    /// The exact two-layer model the engine approximates: buying processing is defined
-    /// as for the exact engines (the routes are any walk), and the purchase LP is solved
-    /// exactly by the caller.
-    fn add_processing(
-        &self,
-        model: &mut Lp,
-        net: &Network,
-        outage: &Outage,
-        add: &[Option<usize>],
-        obj: f64,
-    ) -> Option<AddModel> {
-        Some(two_layer_with(model, net, outage, add, obj))
     }
 }
