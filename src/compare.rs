@@ -103,6 +103,8 @@ pub struct Comparison {
     /// Element names (`link:X`, `site:Y`, `group:Z`) only after / only before, sorted.
     pub elements_added: Vec<String>,
     pub elements_removed: Vec<String>,
+    /// What the change does to the file, field by field ([`crate::model::diff::edits`]).
+    pub file_changes: Vec<crate::model::diff::Edit>,
     /// `--headroom`: headroom lost and gained per matched scenario, both sides' headroom
     /// and the `--min-headroom` gate on AFTER (set by the command; `None` from
     /// [`compare`]).
@@ -241,6 +243,7 @@ pub fn compare(
             .filter(|n| ea.binary_search(n).is_err())
             .cloned()
             .collect(),
+        file_changes: crate::model::diff::edits(nb, na),
         headroom: None,
     }
 }

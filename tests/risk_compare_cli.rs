@@ -230,3 +230,86 @@ fn compare_gates_a_change_that_removes_a_needed_link() {
     assert_eq!(run.code, 0, "{}", run.stdout);
     assert!(run.stdout.contains("Caution:"), "{}", run.stdout);
 }
+
+/// `compare` lists what the change does to the file: the edits below are made here to a
+/// copy of the path network (link `ab` capacity halved, a link `ad` added, the demand's
+/// required amount raised), so each expected row is known from the edit itself, not from
+/// the program; the text shows `link:ab capacity 10 → 5` as a reviewer reads it.
+#[test]
+fn compare_lists_the_changed_fields_of_the_file() {
+    let before = TempPath::with_text("before-edits", PATH_NET);
+    let mut v: Value = serde_json::from_str(PATH_NET).unwrap();
+    let ab = v["links"]
+        .as_array_mut()
+        .unwrap()
+        .iter_mut()
+        .find(|l| l["id"] == "ab")
+        .expect("link ab");
+    let old_cap = ab["capacity"].as_f64().unwrap();
+    ab["capacity"] = serde_json::json!(old_cap / 2.0);
+    v["links"].as_array_mut().unwrap().push(serde_json::json!(
+        {"id": "ad", "from": "a", "to": "d", "capacity": 3}
+    ));
+    let demand = &mut v["demands"][0];
+    let old_req = demand["required"]
+        .as_f64()
+        .or_else(|| demand["volume"].as_f64())
+        .unwrap();
+    demand["required"] = serde_json::json!(old_req + 1.0);
+    let label = demand["id"].as_str().map(str::to_string);
+    let after = TempPath::with_text("after-edits", &v.to_string());
+    let out = TempPath::new("compare-edits", "json");
+    let run = redoubt(&[
+        "compare",
+        before.path(),
+        after.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert!(run.code == 0 || run.code == 1, "{}", run.stderr);
+    let doc = out.read_json();
+    let rows: Vec<(String, String)> = doc["file_changes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|e| {
+            (
+                e["element"].as_str().unwrap().to_string(),
+                e["field"].as_str().unwrap().to_string(),
+            )
+        })
+        .collect();
+    let demand_element = format!("demand:{}", label.unwrap_or_else(|| "a→b #1".to_string()));
+    assert_eq!(
+        rows,
+        vec![
+            ("link:ab".to_string(), "capacity".to_string()),
+            ("link:ad".to_string(), "added".to_string()),
+            (demand_element, "required".to_string()),
+        ],
+        "{}",
+        doc["file_changes"]
+    );
+    let cap = &doc["file_changes"][0];
+    assert_near(num(cap, "before"), old_cap, "capacity before");
+    assert_near(num(cap, "after"), old_cap / 2.0, "capacity after");
+    assert!(cap["before"].is_number() && doc["file_changes"][1]["before"].is_null());
+    assert_near(
+        num(&doc["file_changes"][2], "after"),
+        old_req + 1.0,
+        "required after",
+    );
+    assert!(
+        run.stdout.contains("What changed in the file (3 changes"),
+        "{}",
+        run.stdout
+    );
+    let line = run
+        .stdout
+        .lines()
+        .find(|l| l.starts_with("link:ab "))
+        .expect("a row for link:ab");
+    let words: Vec<&str> = line.split_whitespace().collect();
+    assert_eq!(words[1], "capacity", "{line}");
+}

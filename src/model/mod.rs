@@ -2,6 +2,7 @@
 //! model ([`network`]).
 
 pub mod apply;
+pub mod diff;
 pub mod file;
 pub mod import;
 pub mod network;

@@ -740,9 +740,38 @@ pub struct CompareJson {
     pub removed_risks: Vec<OneSidedJson>,
     pub elements_added: Vec<String>,
     pub elements_removed: Vec<String>,
+    /// What the change does to the file: `{element, field, before, after}` per changed
+    /// field (`field` is `added` or `removed` for an element only one side has; a side
+    /// without the field or the element is `null`).
+    pub file_changes: Vec<FileChangeJson>,
     /// `compare --headroom`: both sides' headroom, the scenarios that lost and gained it.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub headroom: Option<super::headroom::CompareJson>,
+}
+
+/// One field that changed between the two files of `compare`.
+#[derive(Serialize)]
+pub struct FileChangeJson {
+    pub element: String,
+    pub field: &'static str,
+    pub before: Option<serde_json::Value>,
+    pub after: Option<serde_json::Value>,
+}
+
+fn file_change_json(e: &crate::model::diff::Edit) -> FileChangeJson {
+    use crate::model::diff::Value;
+    let value = |v: &Option<Value>| {
+        v.as_ref().map(|v| match v {
+            Value::Number(x) => serde_json::json!(x),
+            Value::Text(t) => serde_json::json!(t),
+        })
+    };
+    FileChangeJson {
+        element: e.element.clone(),
+        field: e.field,
+        before: value(&e.before),
+        after: value(&e.after),
+    }
 }
 
 fn change_json(c: &crate::compare::Change) -> ChangeJson {
@@ -800,6 +829,7 @@ pub fn compare_json(
         removed_risks: one_sided_json(&c.removed_risks),
         elements_added: c.elements_added.clone(),
         elements_removed: c.elements_removed.clone(),
+        file_changes: c.file_changes.iter().map(file_change_json).collect(),
         headroom: c.headroom.as_ref().map(super::headroom::compare_json),
     }
 }

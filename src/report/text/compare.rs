@@ -93,6 +93,7 @@ pub(super) fn compare_lines(
         num(before.throughput),
         amount(after.throughput, u)
     )?;
+    file_changes(w, c, top)?;
     let changes = |title: &str, list: &[crate::compare::Change]| -> String {
         let mut t = table(&[
             "failed",
@@ -189,4 +190,42 @@ pub(super) fn compare_lines(
         first_k(c.elements_removed.iter().cloned(), 10)
     )?;
     w.write_all(caution().as_bytes())
+}
+
+/// The section "What changed in the file": one row per changed field (`link:l3 capacity
+/// 100 → 10`), at most `top` rows, then how many more; nothing when the files are equal
+/// in every compared field.
+fn file_changes(w: &mut dyn Write, c: &crate::compare::Comparison, top: usize) -> io::Result<()> {
+    use crate::model::diff::Value;
+    let list = &c.file_changes;
+    if list.is_empty() {
+        return writeln!(
+            w,
+            "\nThe two files have the same sites, links, groups and demands."
+        );
+    }
+    let shown = |v: &Option<Value>| match v {
+        None => "—".to_string(),
+        Some(Value::Number(x)) => num(*x),
+        Some(Value::Text(t)) if t.is_empty() => "none".to_string(),
+        Some(Value::Text(t)) => t.clone(),
+    };
+    let mut t = table(&["element", "field", "before", "after"]);
+    for e in list.iter().take(top) {
+        t.add_row(vec![
+            Cell::new(&e.element),
+            Cell::new(e.field),
+            Cell::new(shown(&e.before)),
+            Cell::new(shown(&e.after)),
+        ]);
+    }
+    writeln!(
+        w,
+        "\nWhat changed in the file ({} change{}, first {}; amounts in {}):\n{}",
+        list.len(),
+        if list.len() == 1 { "" } else { "s" },
+        top.min(list.len()),
+        c.unit,
+        render(&mut t, &[])
+    )
 }
