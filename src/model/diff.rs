@@ -65,7 +65,7 @@ fn kind<T>(
     out: &mut Vec<Edit>,
 ) {
     let old: HashMap<&str, &T> = before.iter().map(|e| (key(e), e)).collect();
-    let new: BTreeSet<&str> = after.iter().map(|e| key(e)).collect();
+    let new: BTreeSet<&str> = after.iter().map(&key).collect();
     for a in after {
         let element = format!("{prefix}:{}", key(a));
         match old.get(key(a)) {
@@ -131,73 +131,53 @@ fn sites(before: &Network, after: &Network, out: &mut Vec<Edit>) {
     );
 }
 
+/// A link as compared: id, ends (`a–b`, or `a→b` one way), capacity, metric, its groups
+/// sorted and joined, failure probability. Ends are site ids, not indices, since the two
+/// sides number their sites independently.
+type LinkRow = (String, String, f64, u32, String, Option<f64>);
+
+fn link_rows(net: &Network) -> Vec<LinkRow> {
+    net.links
+        .iter()
+        .map(|l| {
+            let arrow = if l.one_way { "→" } else { "–" };
+            let ends = format!("{}{arrow}{}", net.sites[l.from].id, net.sites[l.to].id);
+            let mut groups: Vec<&str> = l
+                .groups
+                .iter()
+                .map(|&g| net.groups[g].name.as_str())
+                .collect();
+            groups.sort_unstable();
+            (
+                l.id.clone(),
+                ends,
+                l.capacity,
+                l.metric,
+                groups.join(", "),
+                l.failure_probability,
+            )
+        })
+        .collect()
+}
+
 fn links(before: &Network, after: &Network, out: &mut Vec<Edit>) {
-    let ends = |net: &Network, l: &super::Link| {
-        let arrow = if l.one_way { "→" } else { "–" };
-        format!("{}{arrow}{}", net.sites[l.from].id, net.sites[l.to].id)
-    };
-    let members = |net: &Network, l: &super::Link| {
-        let mut names: Vec<&str> = l
-            .groups
-            .iter()
-            .map(|&g| net.groups[g].name.as_str())
-            .collect();
-        names.sort_unstable();
-        names.join(", ")
-    };
-    let fields = |net: &Network, l: &super::Link| {
-        vec![
-            ("ends", Some(Value::Text(ends(net, l)))),
-            ("capacity", num(l.capacity)),
-            ("metric", num(f64::from(l.metric))),
-            ("groups", Some(Value::Text(members(net, l)))),
-            ("failure_probability", opt(l.failure_probability)),
-        ]
-    };
-    // The two sides index sites differently, so the field lists are built per side and
-    // matched by link id here rather than through `kind`'s single `fields` closure.
-    let old: HashMap<&str, &super::Link> =
-        before.links.iter().map(|l| (l.id.as_str(), l)).collect();
-    let new: BTreeSet<&str> = after.links.iter().map(|l| l.id.as_str()).collect();
-    for a in &after.links {
-        let element = format!("link:{}", a.id);
-        match old.get(a.id.as_str()) {
-            None => out.push(Edit {
-                element,
-                field: "added",
-                before: None,
-                after: Some(Value::Text(format!(
-                    "{}, capacity {}",
-                    ends(after, a),
-                    crate::numbers::num(a.capacity)
-                ))),
-            }),
-            Some(b) => {
-                for ((field, vb), (_, va)) in fields(before, b).into_iter().zip(fields(after, a)) {
-                    if vb != va {
-                        out.push(Edit {
-                            element: element.clone(),
-                            field,
-                            before: vb,
-                            after: va,
-                        });
-                    }
-                }
-            }
-        }
-    }
-    for b in before.links.iter().filter(|b| !new.contains(b.id.as_str())) {
-        out.push(Edit {
-            element: format!("link:{}", b.id),
-            field: "removed",
-            before: Some(Value::Text(format!(
-                "{}, capacity {}",
-                ends(before, b),
-                crate::numbers::num(b.capacity)
-            ))),
-            after: None,
-        });
-    }
+    kind(
+        "link",
+        &link_rows(before),
+        &link_rows(after),
+        |l| l.0.as_str(),
+        |l| {
+            vec![
+                ("ends", Some(Value::Text(l.1.clone()))),
+                ("capacity", num(l.2)),
+                ("metric", num(f64::from(l.3))),
+                ("groups", Some(Value::Text(l.4.clone()))),
+                ("failure_probability", opt(l.5)),
+            ]
+        },
+        |l| format!("{}, capacity {}", l.1, crate::numbers::num(l.2)),
+        out,
+    );
 }
 
 fn groups(before: &Network, after: &Network, out: &mut Vec<Edit>) {
