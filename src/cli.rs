@@ -370,6 +370,10 @@ pub struct CompareArgs {
     /// Write the comparison to this JSON file.
     #[arg(long, value_name = "FILE")]
     pub json: Option<PathBuf>,
+    /// Write the comparison as a self-contained HTML page (report.html) and its Markdown
+    /// twin (report.md) into this folder (made when missing), every scenario listed.
+    #[arg(long, value_name = "DIR")]
+    pub report: Option<PathBuf>,
     /// How many scenarios each table shows.
     #[arg(long, default_value_t = 15)]
     pub top: usize,

@@ -313,3 +313,83 @@ fn compare_lists_the_changed_fields_of_the_file() {
     let words: Vec<&str> = line.split_whitespace().collect();
     assert_eq!(words[1], "capacity", "{line}");
 }
+
+/// `compare --report DIR` writes the comparison as report.html and report.md. The rows
+/// of every table are checked against the `--json` of the same run (a second output of
+/// the binary, written by another exporter), the page against being self-contained (no
+/// address it would fetch), and both against the caution.
+#[test]
+fn compare_report_lists_every_scenario_of_the_json() {
+    let before = TempPath::with_text("before-report", PATH_NET);
+    let mut v: Value = serde_json::from_str(PATH_NET).unwrap();
+    v["links"].as_array_mut().unwrap().remove(1);
+    let after = TempPath::with_text("after-report", &v.to_string());
+    let out = TempPath::new("compare-report", "json");
+    let dir = TempDir::new("compare-report-dir");
+    let run = redoubt(&[
+        "compare",
+        before.path(),
+        after.path(),
+        "--quiet",
+        "--top",
+        "1",
+        "--json",
+        out.path(),
+        "--report",
+        dir.join("").to_str().unwrap(),
+    ]);
+    assert_eq!(run.code, 1, "{}\n{}", run.stdout, run.stderr);
+    assert_eq!(
+        dir.names(),
+        ["report.html", "report.md"]
+            .iter()
+            .map(|s| s.to_string())
+            .collect()
+    );
+    let doc = out.read_json();
+    let md = std::fs::read_to_string(dir.join("report.md")).unwrap();
+    let html = std::fs::read_to_string(dir.join("report.html")).unwrap();
+    let words = |c: &Value| {
+        let f = failed_of(c);
+        if f.is_empty() {
+            "baseline".to_string()
+        } else {
+            f.join(" + ")
+        }
+    };
+    let worse = doc["worse"].as_array().unwrap();
+    assert!(worse.len() > 1, "more rows than --top 1: {doc}");
+    let section = md
+        .split("## Got worse")
+        .nth(1)
+        .expect("a Got worse section")
+        .split("\n## ")
+        .next()
+        .unwrap();
+    let rows: Vec<&str> = section
+        .lines()
+        .filter(|l| l.starts_with("| ") && !l.starts_with("| failed"))
+        .collect();
+    assert_eq!(rows.len(), worse.len(), "{section}");
+    for (row, c) in rows.iter().zip(worse) {
+        let cells: Vec<&str> = row.trim_matches('|').split(" | ").map(str::trim).collect();
+        assert_eq!(cells[0], words(c), "{row}");
+        assert_near(
+            cells[2].parse().unwrap(),
+            num(&c["after"], "shortfall"),
+            "shortfall after",
+        );
+        assert!(
+            html.contains(&format!("<td class=\"k\">{}</td>", cells[0])),
+            "{row}"
+        );
+    }
+    assert!(md.contains("| link:bc | removed |"), "{md}");
+    for page in [&md, &html] {
+        assert!(page.contains("Caution:"));
+    }
+    assert!(
+        !html.contains("src=") && !html.contains("href="),
+        "self-contained"
+    );
+}

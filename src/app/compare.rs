@@ -49,6 +49,9 @@ pub(super) fn run(
     if let Some(json) = &args.json {
         report::file::check_output("--json", json, &[&args.before, &args.after])?;
     }
+    let mut others: Vec<&Path> = vec![&args.before, &args.after];
+    others.extend(args.json.as_deref());
+    let report_files = super::audit::report_dir(args.report.as_deref(), &others)?;
     let (nb, na) = (load(&args.before)?, load(&args.after)?);
     same_unit(&nb, &na)?;
     let opts = run_options(&args.sides, err);
@@ -78,6 +81,11 @@ pub(super) fn run(
     if let Some(path) = &args.json {
         let doc = report::json::compare_json(&c, &bb, &ba);
         report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+    }
+    if let Some((html, md)) = &report_files {
+        let page = report::compare_page::Page::new(&c, &bb, &ba);
+        report::file::write_atomic(html, |w| page.write_html(w))?;
+        report::file::write_atomic(md, |w| page.write_markdown(w))?;
     }
     stdout_result(report::text::write_compare(out, &c, &bb, &ba, args.top))?;
     Ok(if c.passed() {

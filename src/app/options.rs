@@ -115,6 +115,8 @@ pub struct CompareOptions {
     pub tolerance: f64,
     pub allow_new_short: bool,
     pub json: Option<PathBuf>,
+    /// `--report DIR`: the comparison's HTML page and Markdown twin.
+    pub report: Option<PathBuf>,
     pub top: usize,
     /// `--headroom` (also set by `--min-headroom`).
     pub headroom: bool,
@@ -427,6 +429,7 @@ fn compare(args: CompareArgs) -> Result<CompareOptions> {
         tolerance: args.tolerance,
         allow_new_short: args.allow_new_short,
         json: args.json,
+        report: args.report,
         top: args.top,
         headroom: args.headroom || min_headroom.is_some(),
         min_headroom,

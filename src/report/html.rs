@@ -298,7 +298,7 @@ pub fn esc(s: &str) -> String {
 }
 
 /// The page's own styles: a paper-like page, slate headings, amber marks.
-const STYLE: &str = "body{font:15px/1.45 system-ui,sans-serif;margin:0;background:#f6f4ef;\
+pub(crate) const STYLE: &str = "body{font:15px/1.45 system-ui,sans-serif;margin:0;background:#f6f4ef;\
 color:#1f2a30}main{max-width:1080px;margin:0 auto;padding:24px 32px 48px}\
 h1{font-size:26px;margin:8px 0 4px;color:#23404f}h2{font-size:18px;margin:32px 0 8px;\
 color:#23404f;border-bottom:2px solid #d9b45a;padding-bottom:3px}\
@@ -327,7 +327,12 @@ width:18px;height:10px;margin-right:5px;vertical-align:middle;font-style:normal}
 .legend i.sq{width:10px;border:2px solid #23404f;background:#fff}\
 .legend i.xsite{color:#b0281c;font-weight:700;width:auto}";
 
-fn table_html(out: &mut String, head: &[String], rows: &[Vec<String>], numeric: &[usize]) {
+pub(crate) fn table_html(
+    out: &mut String,
+    head: &[String],
+    rows: &[Vec<String>],
+    numeric: &[usize],
+) {
     out.push_str("<table><thead><tr>");
     for h in head {
         let _ = write!(out, "<th>{}</th>", esc(h));

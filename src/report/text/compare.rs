@@ -46,32 +46,7 @@ pub(super) fn compare_lines(
 ) -> io::Result<()> {
     let u = &c.unit;
     let plural = |n: usize| if n == 1 { "" } else { "s" };
-    let verdict = if c.passed() { "PASS" } else { "FAIL" };
-    writeln!(
-        w,
-        "{verdict} compare: {} of {} matched scenario{} got worse by more than {} \
-         (shortfall or stranded, as printed); {} newly short{}; {} better; {} added risk{}, \
-         {} removed{}.",
-        c.worse.len(),
-        c.matched,
-        plural(c.matched),
-        amount(c.tolerance, u),
-        c.new_short.len(),
-        if c.allow_new_short && !c.new_short.is_empty() {
-            " (allowed)"
-        } else {
-            ""
-        },
-        c.better.len(),
-        c.added_risks.len(),
-        plural(c.added_risks.len()),
-        c.removed_risks.len(),
-        match c.headroom.as_ref().and_then(|h| h.gate) {
-            Some(g) if g.passed => "; --min-headroom met",
-            Some(_) => "; --min-headroom not met",
-            None => "",
-        }
-    )?;
+    writeln!(w, "{}", verdict_line(c))?;
     writeln!(
         w,
         "Before: {}; after: {}.{}",
@@ -227,5 +202,37 @@ fn file_changes(w: &mut dyn Write, c: &crate::compare::Comparison, top: usize) -
         top.min(list.len()),
         c.unit,
         render(&mut t, &[])
+    )
+}
+
+/// The verdict sentence of `compare` (PASS or FAIL, then the counts), shared by the text
+/// and the `--report` pages.
+pub(crate) fn verdict_line(c: &crate::compare::Comparison) -> String {
+    let u = &c.unit;
+    let plural = |n: usize| if n == 1 { "" } else { "s" };
+    let verdict = if c.passed() { "PASS" } else { "FAIL" };
+    format!(
+        "{verdict} compare: {} of {} matched scenario{} got worse by more than {} \
+         (shortfall or stranded, as printed); {} newly short{}; {} better; {} added risk{}, \
+         {} removed{}.",
+        c.worse.len(),
+        c.matched,
+        plural(c.matched),
+        amount(c.tolerance, u),
+        c.new_short.len(),
+        if c.allow_new_short && !c.new_short.is_empty() {
+            " (allowed)"
+        } else {
+            ""
+        },
+        c.better.len(),
+        c.added_risks.len(),
+        plural(c.added_risks.len()),
+        c.removed_risks.len(),
+        match c.headroom.as_ref().and_then(|h| h.gate) {
+            Some(g) if g.passed => "; --min-headroom met",
+            Some(_) => "; --min-headroom not met",
+            None => "",
+        }
     )
 }
