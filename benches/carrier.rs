@@ -59,7 +59,10 @@ fn measure(args: &[&str]) -> Measured {
         if estimate_s.is_none() && line.to_lowercase().contains("estimate") {
             estimate_s = Some(start.elapsed().as_secs_f64());
         }
-        if let Some(v) = line.trim().strip_prefix("Maximum resident set size (kbytes):") {
+        if let Some(v) = line
+            .trim()
+            .strip_prefix("Maximum resident set size (kbytes):")
+        {
             peak_kb = v.trim().parse().unwrap_or(f64::NAN);
         }
         tail.push(line);
@@ -106,7 +109,9 @@ fn j34(dir: &Path) {
     for (label, extra) in [("default", None), ("--detail", Some("--detail"))] {
         let out = dir.join(format!("j34-{}.json", label.trim_start_matches('-')));
         let out_s = out.to_str().expect("utf-8 path");
-        let mut args = vec!["audit", net, "--depth", "2", "--yes", "--quiet", "--json", out_s];
+        let mut args = vec![
+            "audit", net, "--depth", "2", "--yes", "--quiet", "--json", out_s,
+        ];
         args.extend(extra);
         let m = measure(&args);
         if m.status > 1 {
@@ -158,7 +163,10 @@ fn m500(dir: &Path) {
 }
 
 fn main() {
-    let args: Vec<String> = std::env::args().skip(1).filter(|a| !a.starts_with('-')).collect();
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| !a.starts_with('-'))
+        .collect();
     let chosen: Vec<&str> = ["J34", "M500"]
         .into_iter()
         .filter(|c| args.is_empty() || args.iter().any(|a| a == c))

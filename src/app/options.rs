@@ -15,8 +15,8 @@ use crate::cli::{self, AuditArgs, Cli, CompareArgs, MergeArgs, Objective, PlanAr
 use crate::error::{Error, Result};
 use crate::expand;
 use crate::gate::{self, Gate, GateKind};
-use crate::report::json::Detail;
 use crate::model::import::Rules;
+use crate::report::json::Detail;
 use crate::routing;
 use crate::solve::{Engine, approx};
 
