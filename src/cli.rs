@@ -128,6 +128,14 @@ pub struct MergeArgs {
     /// How many scenarios (and elements) the tables show.
     #[arg(long, default_value_t = 15)]
     pub top: usize,
+    /// In --json, write the per-demand lists (stranded, short and cut-off demands) of every
+    /// scenario; by default only the worst (--detail-top) carry them.
+    #[arg(long, conflicts_with = "detail_top")]
+    pub detail: bool,
+    /// In --json, how many of the worst scenarios carry the per-demand lists (default:
+    /// --top's value; 0: none but the baseline).
+    #[arg(long, value_name = "N")]
+    pub detail_top: Option<usize>,
 }
 
 // The help of every command ends with examples in one layout: a heading, then each
@@ -226,6 +234,14 @@ pub struct AuditArgs {
     /// How many scenarios (and elements) the tables show.
     #[arg(long, default_value_t = 15)]
     pub top: usize,
+    /// In --json, write the per-demand lists (stranded, short and cut-off demands) of every
+    /// scenario; by default only the worst (--detail-top) carry them.
+    #[arg(long, conflicts_with = "detail_top")]
+    pub detail: bool,
+    /// In --json, how many of the worst scenarios carry the per-demand lists (default:
+    /// --top's value; 0: none but the baseline).
+    #[arg(long, value_name = "N")]
+    pub detail_top: Option<usize>,
     /// Write every scenario to this JSON file (results are journaled beside it as they
     /// finish, in FILE.journal).
     #[arg(long, value_name = "FILE")]

@@ -126,6 +126,7 @@ pub(super) fn run(
             why: false,
             report: report_files.as_ref(),
             top: args.top,
+            detail: args.detail,
             opts,
             routed: Some(&ra),
             headroom: args.headroom,
@@ -263,6 +264,7 @@ pub(super) fn run(
             why: args.why || args.fail.is_some(),
             report: report_files.as_ref(),
             top: args.top,
+            detail: args.detail,
             opts,
             routed: None,
             headroom: args.headroom,
@@ -307,6 +309,8 @@ pub(super) struct AuditOutput<'a> {
     /// `--report DIR`'s HTML and Markdown files.
     pub(super) report: Option<&'a (PathBuf, PathBuf)>,
     pub(super) top: usize,
+    /// Which scenarios of the `--json` document carry the per-demand lists.
+    pub(super) detail: report::json::Detail,
     pub(super) opts: audit::RunOptions,
     /// A routed audit (`--routing nearest|steered`): its model closes, its baseline and
     /// comparison are shown.
@@ -386,6 +390,7 @@ pub(super) fn finish_audit(
         routed: o.routed,
         top: o.top,
         headroom: headroom.as_ref(),
+        detail: o.detail,
     });
     if o.report.is_some() {
         model = model.drawn();

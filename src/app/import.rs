@@ -61,7 +61,7 @@ pub(super) fn run(
             }
             drop(text);
             let net = imported.doc.network().map_err(not_valid(&[file]))?;
-            report::file::write_atomic(json, |w| report::json::write(w, &imported.doc))?;
+            report::file::write_atomic(json, |w| report::json::write_pretty(w, &imported.doc))?;
             net
         }
         ImportOptions::Csv {
@@ -82,7 +82,7 @@ pub(super) fn run(
             let doc = model::import::from_csv(name, file(0), file(1), file(2))?;
             let text = report::json::to_string(&doc);
             let net = Network::from_json(&text).map_err(not_valid(&ins))?;
-            report::file::write_atomic(json, |w| report::json::write(w, &doc))?;
+            report::file::write_atomic(json, |w| report::json::write_pretty(w, &doc))?;
             net
         }
     };

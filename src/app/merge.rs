@@ -101,6 +101,7 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
             why: args.why,
             report: report_files.as_ref(),
             top: args.top,
+            detail: args.detail,
             opts,
             routed: None,
             headroom: false,

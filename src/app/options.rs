@@ -16,6 +16,7 @@ use crate::error::{Error, Result};
 use crate::expand;
 use crate::gate::{self, Gate, GateKind};
 use crate::model::import::Rules;
+use crate::report::json::Detail;
 use crate::routing;
 use crate::solve::{Engine, approx};
 
@@ -74,6 +75,8 @@ pub struct AuditOptions {
     /// `--fail`: one named scenario instead of the enumeration.
     pub fail: Option<String>,
     pub top: usize,
+    /// `--detail` / `--detail-top N`: which scenarios of `--json` carry per-demand lists.
+    pub detail: Detail,
     pub json: Option<PathBuf>,
     pub csv: Option<PathBuf>,
     pub report: Option<PathBuf>,
@@ -143,6 +146,8 @@ pub struct MergeOptions {
     pub report: Option<PathBuf>,
     pub why: bool,
     pub top: usize,
+    /// `--detail` / `--detail-top N`: which scenarios of `--json` carry per-demand lists.
+    pub detail: Detail,
 }
 
 /// `import`: where the topology comes from and where the network goes.
@@ -371,6 +376,7 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
         scenarios: scenarios(args.scenarios)?,
         fail: args.fail,
         top: args.top,
+        detail: detail(args.detail, args.detail_top, args.top),
         json: args.json,
         csv: args.csv,
         report: args.report,
@@ -444,6 +450,16 @@ fn merge(args: MergeArgs) -> MergeOptions {
         report: args.report,
         why: args.why,
         top: args.top,
+        detail: detail(args.detail, args.detail_top, args.top),
+    }
+}
+
+/// `--detail` (every scenario) or `--detail-top N` (default: `--top`'s N) as a [`Detail`].
+fn detail(all: bool, top: Option<usize>, shown: usize) -> Detail {
+    if all {
+        Detail::All
+    } else {
+        Detail::Worst(top.unwrap_or(shown))
     }
 }
 

@@ -1,6 +1,12 @@
 //! The `--json` files. Field names of the contract (`scenarios[].failed`,
 //! `served_required`, `shortfall`, `stranded`, `throughput`) never change; everything else
 //! is added for users. Numbers are rounded with [`super::file_num`].
+//!
+//! Size: the per-demand lists of a scenario ([`DETAIL_FIELDS`]: stranded, short and
+//! cut-off demands) are written only for the scenarios [`Detail`] selects (the baseline
+//! always), and the document says which (`detail` at the top, `detail` per scenario); a
+//! report document is pretty-printed only when it is small ([`PRETTY_LIMIT`]), so a
+//! carrier-scale audit is written compactly.
 
 use super::export::{Exporter, Json};
 use super::model::{Model, Parts};
@@ -24,6 +30,8 @@ pub struct AuditJson<'a> {
     /// Elements kept down in every scenario (`--down`); absent without it.
     #[serde(skip_serializing_if = "Vec::is_empty")]
     pub down: Vec<String>,
+    /// Which scenario objects carry the per-demand lists ([`DETAIL_FIELDS`]).
+    pub detail: DetailJson,
     pub baseline: ScenarioJson,
     pub scenarios: LazyScenarios<'a>,
     pub criticality: Vec<CriticalityJson>,
@@ -36,6 +44,85 @@ pub struct AuditJson<'a> {
     /// `--headroom`: the least headroom over the scenarios and the scenario that sets it.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub headroom: Option<super::headroom::HeadroomJson>,
+}
+
+/// The per-demand lists of a scenario object: their size grows with the demands of each
+/// scenario, so a large audit writes them only where asked ([`Detail`]).
+pub const DETAIL_FIELDS: [&str; 4] = [
+    "stranded_demands",
+    "demand_shortfall",
+    "cut_off_demands",
+    "cut_off_reasons",
+];
+
+/// Which scenarios of an audit document carry the per-demand lists ([`DETAIL_FIELDS`]);
+/// the baseline always does.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Detail {
+    /// Every scenario (`--detail`).
+    All,
+    /// The `n` worst scenarios the text's table lists (worst first, folded equivalents
+    /// skipped) and the scenarios folded into them (`--detail-top N`, default `--top`).
+    Worst(usize),
+}
+
+impl Detail {
+    /// Per scenario of `m`: whether its object carries the per-demand lists. O(scenarios).
+    /// Depends only on the model's order and folding, so a merged or resumed run selects
+    /// the same scenarios as the run it stands for.
+    pub fn selected(self, m: &Model<'_>) -> Vec<bool> {
+        let n = m.audit.scenarios.len();
+        match self {
+            Detail::All => vec![true; n],
+            Detail::Worst(top) => {
+                let mut chosen = vec![false; n];
+                for &i in m.shown.iter().take(top) {
+                    chosen[i] = true;
+                }
+                for i in 0..n {
+                    if let Some(r) = m.folding.into[i] {
+                        chosen[i] = chosen[r];
+                    }
+                }
+                chosen
+            }
+        }
+    }
+}
+
+/// The top-level `detail` object: which scenario objects carry [`DETAIL_FIELDS`].
+#[derive(Serialize)]
+pub struct DetailJson {
+    /// `all` (`--detail`) or `worst`.
+    pub scenarios: &'static str,
+    /// With `worst`: how many of the worst distinct scenarios carry them (with the
+    /// scenarios folded into those); absent with `all`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub worst: Option<usize>,
+    /// How many scenario objects carry them (each says so in its own `detail`).
+    pub with_detail: usize,
+    pub fields: [&'static str; 4],
+    pub note: &'static str,
+}
+
+impl DetailJson {
+    fn of(d: Detail, chosen: &[bool]) -> DetailJson {
+        DetailJson {
+            scenarios: match d {
+                Detail::All => "all",
+                Detail::Worst(_) => "worst",
+            },
+            worst: match d {
+                Detail::All => None,
+                Detail::Worst(n) => Some(n),
+            },
+            with_detail: chosen.iter().filter(|&&c| c).count(),
+            fields: DETAIL_FIELDS,
+            note: "the listed fields are present only in scenario objects whose `detail` is \
+                   true (and in the baseline); `--detail` writes them for every scenario, \
+                   `--detail-top N` for the N worst",
+        }
+    }
 }
 
 #[derive(Serialize)]
@@ -90,16 +177,27 @@ pub struct ScenarioJson {
     pub certified_gap: f64,
     /// Largest relative row violation of the allocation (primal feasibility check).
     pub max_violation: f64,
-    pub stranded_demands: Vec<String>,
-    /// Demands short in one optimal allocation (only those with shortfall > 0).
-    pub demand_shortfall: Vec<DemandShortJson>,
+    /// Whether this object carries the per-demand lists ([`DETAIL_FIELDS`]); the
+    /// document's top-level `detail` says which scenarios do.
+    pub detail: bool,
+    /// Demands whose own end site failed (a per-demand list: only with `detail`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub stranded_demands: Option<Vec<String>>,
+    /// Demands short in one optimal allocation (only those with shortfall > 0; a
+    /// per-demand list: only with `detail`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub demand_shortfall: Option<Vec<DemandShortJson>>,
     pub saturated_links: Vec<String>,
     pub saturated_sites: Vec<String>,
     pub bottlenecks: Vec<BottleneckJson>,
-    /// Surviving demands no walk through a processing site can serve.
-    pub cut_off_demands: Vec<String>,
-    /// Why each cut-off demand cannot be served: `no path` or `no processing reachable`.
-    pub cut_off_reasons: BTreeMap<String, &'static str>,
+    /// Surviving demands no walk through a processing site can serve (a per-demand list:
+    /// only with `detail`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub cut_off_demands: Option<Vec<String>>,
+    /// Why each cut-off demand cannot be served: `no path` or `no processing reachable`
+    /// (only with `detail`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub cut_off_reasons: Option<BTreeMap<String, &'static str>>,
     /// How served_required was verified (bounds, residual, backend).
     pub verification: VerificationJson,
     /// How throughput was verified, when it needed its own LP.
@@ -232,13 +330,15 @@ pub struct CriticalityJson {
     pub worst_scenario: Vec<String>,
 }
 
-/// One scenario's JSON object (without `closing`).
+/// One scenario's JSON object (without `closing`), with the per-demand lists when
+/// `detail`. O(demands + arcs + sites) with them, O(arcs + sites + bottlenecks) without.
 pub fn scenario_json(
     net: &Network,
     failed: &[String],
     e: &Evaluation,
     baseline: &Evaluation,
     rank: usize,
+    detail: bool,
 ) -> ScenarioJson {
     ScenarioJson {
         failed: failed.to_vec(),
@@ -254,25 +354,28 @@ pub fn scenario_json(
         upper_bound: file_num(e.upper_bound),
         certified_gap: e.certified_gap(),
         max_violation: e.max_violation,
-        stranded_demands: e
-            .stranded_demands
-            .iter()
-            .map(|&d| net.demands[d].label.clone())
-            .collect(),
-        demand_shortfall: net
-            .demands
-            .iter()
-            .enumerate()
-            .filter(|(d, _)| e.demand_shortfall[*d] > 0.0)
-            .map(|(d, dem)| DemandShortJson {
-                demand: dem.label.clone(),
-                from: net.sites[dem.from].id.clone(),
-                to: net.sites[dem.to].id.clone(),
-                required: file_num(dem.required),
-                served: file_num(e.demand_flow[d]),
-                shortfall: file_num(e.demand_shortfall[d]),
-            })
-            .collect(),
+        detail,
+        stranded_demands: detail.then(|| {
+            e.stranded_demands
+                .iter()
+                .map(|&d| net.demands[d].label.clone())
+                .collect()
+        }),
+        demand_shortfall: detail.then(|| {
+            net.demands
+                .iter()
+                .enumerate()
+                .filter(|(d, _)| e.demand_shortfall[*d] > 0.0)
+                .map(|(d, dem)| DemandShortJson {
+                    demand: dem.label.clone(),
+                    from: net.sites[dem.from].id.clone(),
+                    to: net.sites[dem.to].id.clone(),
+                    required: file_num(dem.required),
+                    served: file_num(e.demand_flow[d]),
+                    shortfall: file_num(e.demand_shortfall[d]),
+                })
+                .collect()
+        }),
         saturated_links: e
             .saturated_links(net)
             .iter()
@@ -303,24 +406,26 @@ pub fn scenario_json(
                 },
             })
             .collect(),
-        cut_off_demands: e
-            .cut_off
-            .iter()
-            .map(|&(d, _)| net.demands[d].label.clone())
-            .collect(),
-        cut_off_reasons: e
-            .cut_off
-            .iter()
-            .map(|&(d, r)| {
-                (
-                    net.demands[d].label.clone(),
-                    match r {
-                        crate::solve::Unservable::NoPath => "no path",
-                        crate::solve::Unservable::NoProcessing => "no processing reachable",
-                    },
-                )
-            })
-            .collect(),
+        cut_off_demands: detail.then(|| {
+            e.cut_off
+                .iter()
+                .map(|&(d, _)| net.demands[d].label.clone())
+                .collect()
+        }),
+        cut_off_reasons: detail.then(|| {
+            e.cut_off
+                .iter()
+                .map(|&(d, r)| {
+                    (
+                        net.demands[d].label.clone(),
+                        match r {
+                            crate::solve::Unservable::NoPath => "no path",
+                            crate::solve::Unservable::NoProcessing => "no processing reachable",
+                        },
+                    )
+                })
+                .collect()
+        }),
         verification: VerificationJson::of(&e.verification),
         throughput_verification: e.throughput_verification.as_ref().map(VerificationJson::of),
         site_prices: net
@@ -350,6 +455,8 @@ pub struct LazyScenarios<'a> {
     baseline: &'a Evaluation,
     closing: Option<&'a [serde_json::Value]>,
     rank_of: Vec<usize>,
+    /// Per scenario: whether its object carries the per-demand lists.
+    detail: Vec<bool>,
     full: Full<'a>,
     /// Per scenario: the failed list of the smallest equivalent scenario, when folded.
     same_as: Vec<Option<Vec<String>>>,
@@ -386,6 +493,7 @@ impl LazyScenarios<'_> {
             e,
             self.baseline,
             self.rank_of[i],
+            self.detail[i],
         );
         j.closing = self.closing.map(|c| c[i].clone());
         j.same_as = self.same_as[i].clone();
@@ -430,6 +538,7 @@ pub fn audit_json<'a>(
         routed: None,
         top: 0,
         headroom: None,
+        detail: Detail::All,
     });
     audit_json_with(&model, closing)
 }
@@ -454,12 +563,15 @@ pub fn audit_json_with<'a>(
     let same_as = (0..audit.scenarios.len())
         .map(|i| folding.into[i].map(|r| audit.scenarios[r].failed.clone()))
         .collect();
+    let detail = m.detail.selected(m);
+    let detail_json = DetailJson::of(m.detail, &detail);
     let scenarios = LazyScenarios {
         net,
         audit,
         baseline,
         closing,
         rank_of: m.rank_of.clone(),
+        detail,
         full: m.full,
         same_as,
         patches: Vec::new(),
@@ -475,7 +587,8 @@ pub fn audit_json_with<'a>(
             .map(|s| s.down.iter().map(|e| e.name(net)).collect())
             .unwrap_or_default(),
         risk: None,
-        baseline: scenario_json(net, &[], baseline, baseline, 0),
+        detail: detail_json,
+        baseline: scenario_json(net, &[], baseline, baseline, 0, true),
         scenarios,
         criticality: m
             .criticality
@@ -517,14 +630,57 @@ impl Exporter for Json {
     }
 }
 
-/// The JSON exporter: any report document as pretty JSON with a trailing newline, to `w`,
-/// streamed (byte-identical to [`to_string`]).
+/// A report document whose compact form is at most this many bytes is pretty-printed
+/// (indented, one field a line: at most a few MB to read in an editor); a larger one is
+/// written compactly (one line), which is several times smaller and what tools read.
+pub const PRETTY_LIMIT: u64 = 1 << 20;
+
+/// The JSON exporter: any report document with a trailing newline, to `w`, streamed:
+/// pretty when its compact form is at most [`PRETTY_LIMIT`] bytes, else compact. The
+/// choice is a function of the document alone, so a resumed or merged run writes the
+/// same bytes. Cost: a first compact pass that stops after [`PRETTY_LIMIT`] bytes.
 pub fn write<T: Serialize>(w: &mut dyn Write, doc: &T) -> io::Result<()> {
+    if compact_within(doc, PRETTY_LIMIT) {
+        write_pretty(w, doc)
+    } else {
+        serde_json::to_writer(&mut *w, doc).map_err(io::Error::other)?;
+        w.write_all(b"\n")
+    }
+}
+
+/// Whether `doc`'s compact form is at most `limit` bytes: serialised into a counter that
+/// stops the serialisation once past `limit`. O(min(size, limit)). A document that fails
+/// to serialise within the limit counts as small (the real write reports the error).
+fn compact_within<T: Serialize>(doc: &T, limit: u64) -> bool {
+    struct Counter {
+        bytes: u64,
+        limit: u64,
+    }
+    impl Write for Counter {
+        fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+            self.bytes += buf.len() as u64;
+            if self.bytes > self.limit {
+                return Err(io::Error::other("over the limit"));
+            }
+            Ok(buf.len())
+        }
+        fn flush(&mut self) -> io::Result<()> {
+            Ok(())
+        }
+    }
+    let mut c = Counter { bytes: 0, limit };
+    let _ = serde_json::to_writer(&mut c, doc);
+    c.bytes <= limit
+}
+
+/// Any document as pretty JSON with a trailing newline, to `w`, streamed (byte-identical
+/// to [`to_string`]); network files (`import`) are always written so.
+pub fn write_pretty<T: Serialize>(w: &mut dyn Write, doc: &T) -> io::Result<()> {
     serde_json::to_writer_pretty(&mut *w, doc).map_err(io::Error::other)?;
     w.write_all(b"\n")
 }
 
-/// Serialises any report document as pretty JSON with a trailing newline.
+/// Serialises any document as pretty JSON with a trailing newline.
 pub fn to_string<T: Serialize>(doc: &T) -> String {
     let mut s = serde_json::to_string_pretty(doc).expect("report types always serialise");
     s.push('\n');

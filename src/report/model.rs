@@ -23,7 +23,7 @@ use crate::risk::Risk;
 use crate::routing::RoutedAudit;
 use crate::solve::Evaluation;
 
-use super::json::Full;
+use super::json::{Detail, Full};
 use super::text::WhyPart;
 
 /// What a run hands to [`Model::build`]: the solved audit and the optional parts computed
@@ -49,6 +49,8 @@ pub struct Parts<'a> {
     pub top: usize,
     /// `--headroom`: per outage, the baseline's and the audit's least.
     pub headroom: Option<&'a AuditHeadroom>,
+    /// Which scenarios of the `--json` document carry the per-demand lists.
+    pub detail: Detail,
 }
 
 /// The report model of one audit run. Indices are into `audit.scenarios` unless said.
@@ -97,6 +99,8 @@ pub struct Model<'a> {
     /// `--headroom`: per outage (index with `audit.outage_of[i]`), the baseline's, and the
     /// audit's least with the scenario that sets it.
     pub headroom: Option<&'a AuditHeadroom>,
+    /// Which scenarios of the `--json` document carry the per-demand lists.
+    pub detail: Detail,
 }
 
 impl<'a> Model<'a> {
@@ -143,6 +147,7 @@ impl<'a> Model<'a> {
             top: p.top,
             drawing: None,
             headroom: p.headroom,
+            detail: p.detail,
         }
     }
 
