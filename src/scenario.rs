@@ -164,6 +164,9 @@ pub struct Scenario {
     /// Elements kept down in every scenario of the run (`--down`, a maintenance window):
     /// part of the outage, never of the name. Empty without `--down`.
     pub down: Vec<Element>,
+    /// The traffic matrix the scenario is evaluated under (0: the file's `demands`,
+    /// `base`; `m` ≥ 1: `matrices[m - 1]`). Part of the outage, never of the name.
+    pub matrix: usize,
 }
 
 impl Scenario {
@@ -177,6 +180,7 @@ impl Scenario {
             failed: pairs.iter().map(|p| p.0.clone()).collect(),
             elements: pairs.into_iter().map(|p| p.1).collect(),
             down: Vec::new(),
+            matrix: 0,
         }
     }
 
@@ -185,7 +189,14 @@ impl Scenario {
             elements: Vec::new(),
             failed: Vec::new(),
             down: Vec::new(),
+            matrix: 0,
         }
+    }
+
+    /// The same scenario under traffic matrix `m` (see [`Scenario::matrix`]). O(1).
+    pub fn under(mut self, m: usize) -> Scenario {
+        self.matrix = m;
+        self
     }
 
     /// The same scenario with `down` kept down as well (a maintenance window): the
@@ -219,7 +230,11 @@ impl Scenario {
         }
         links.sort_unstable();
         links.dedup();
-        Outage { sites, links }
+        Outage {
+            sites,
+            links,
+            matrix: self.matrix,
+        }
     }
 
     /// `failed` joined for display; `baseline` for the empty scenario.
@@ -245,6 +260,9 @@ impl fmt::Display for Scenario {
 pub struct Outage {
     pub sites: Vec<SiteIdx>,
     pub links: Vec<LinkIdx>,
+    /// The traffic matrix the outage is evaluated under ([`Network::view`]); 0 for the
+    /// file's `demands`. Two outages under different matrices are different work.
+    pub matrix: usize,
 }
 
 impl Outage {

@@ -55,6 +55,8 @@ pub struct ScenarioOptions {
     pub kinds: String,
     /// `--down` as given (parsed against the network; the fingerprint holds this text).
     pub down: Option<String>,
+    /// `--matrix` as given (parsed against the network; the fingerprint holds this text).
+    pub matrix: Option<String>,
     /// `None` for `--routing best` (any walk), else the deployed-routes model.
     pub routing: Option<routing::Mode>,
     /// `--quiet`: no progress bar, no notes.
@@ -228,6 +230,7 @@ fn scenarios(args: cli::ScenarioArgs) -> Result<ScenarioOptions> {
         depth: args.depth,
         kinds: args.kinds,
         down: args.down,
+        matrix: args.matrix,
         routing: routing_mode(args.routing),
         quiet: args.quiet,
         time_limit,

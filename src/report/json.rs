@@ -73,6 +73,10 @@ pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJ
 #[derive(Serialize)]
 pub struct ScenarioJson {
     pub failed: Vec<String>,
+    /// The traffic matrix (`base`: the file's `demands`); absent for a file without
+    /// `matrices`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
     pub served_required: f64,
     pub shortfall: f64,
     pub stranded: f64,
@@ -242,6 +246,7 @@ pub fn scenario_json(
 ) -> ScenarioJson {
     ScenarioJson {
         failed: failed.to_vec(),
+        matrix: None,
         served_required: file_num(e.served_required),
         shortfall: file_num(e.shortfall),
         stranded: file_num(e.stranded),
@@ -353,6 +358,9 @@ pub struct LazyScenarios<'a> {
     full: Full<'a>,
     /// Per scenario: the failed list of the smallest equivalent scenario, when folded.
     same_as: Vec<Option<Vec<String>>>,
+    /// Per matrix: its baseline when the run holds it (empty for a file without
+    /// `matrices`: every scenario then reads `baseline` and carries no `matrix`).
+    baselines: Vec<Option<&'a Evaluation>>,
     /// Additions of other parts of the report (risk, routed fields), applied to every
     /// scenario object as it is written.
     patches: Vec<Patch<'a>>,
@@ -380,13 +388,23 @@ impl LazyScenarios<'_> {
         } else {
             held
         };
+        let sc = &self.audit.scenarios[i];
+        let baseline = self
+            .baselines
+            .get(sc.matrix)
+            .copied()
+            .flatten()
+            .unwrap_or(self.baseline);
         let mut j = scenario_json(
-            self.net,
-            &self.audit.scenarios[i].failed,
+            self.net.view(sc.matrix),
+            &sc.failed,
             e,
-            self.baseline,
+            baseline,
             self.rank_of[i],
         );
+        if !self.baselines.is_empty() {
+            j.matrix = Some(self.net.matrix_id(sc.matrix).to_string());
+        }
         j.closing = self.closing.map(|c| c[i].clone());
         j.same_as = self.same_as[i].clone();
         for p in &self.patches {
@@ -462,6 +480,7 @@ pub fn audit_json_with<'a>(
         rank_of: m.rank_of.clone(),
         full: m.full,
         same_as,
+        baselines: m.matrix_baselines.clone(),
         patches: Vec::new(),
     };
     AuditJson {
@@ -475,7 +494,19 @@ pub fn audit_json_with<'a>(
             .map(|s| s.down.iter().map(|e| e.name(net)).collect())
             .unwrap_or_default(),
         risk: None,
-        baseline: scenario_json(net, &[], baseline, baseline, 0),
+        baseline: {
+            // The run's baseline is its first baseline scenario's (the first matrix run).
+            let mx = audit
+                .scenarios
+                .iter()
+                .find(|s| s.is_baseline())
+                .map_or(0, |s| s.matrix);
+            let mut b = scenario_json(net.view(mx), &[], baseline, baseline, 0);
+            if m.several_matrices() {
+                b.matrix = Some(net.matrix_id(mx).to_string());
+            }
+            b
+        },
         scenarios,
         criticality: m
             .criticality
