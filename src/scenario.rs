@@ -167,6 +167,9 @@ pub struct Scenario {
     /// The traffic matrix the scenario is evaluated under (0: the file's `demands`,
     /// `base`; `m` ≥ 1: `matrices[m - 1]`). Part of the outage, never of the name.
     pub matrix: usize,
+    /// The matrix's id when the run evaluates a file with `matrices` (then every shown
+    /// name says which matrix: ` under matrix ID`); `None` otherwise.
+    pub matrix_name: Option<std::sync::Arc<str>>,
 }
 
 impl Scenario {
@@ -181,6 +184,7 @@ impl Scenario {
             elements: pairs.into_iter().map(|p| p.1).collect(),
             down: Vec::new(),
             matrix: 0,
+            matrix_name: None,
         }
     }
 
@@ -190,6 +194,7 @@ impl Scenario {
             failed: Vec::new(),
             down: Vec::new(),
             matrix: 0,
+            matrix_name: None,
         }
     }
 
@@ -197,6 +202,16 @@ impl Scenario {
     pub fn under(mut self, m: usize) -> Scenario {
         self.matrix = m;
         self
+    }
+
+    /// The same scenario under matrix `m` of `net`, named by it when `net` has
+    /// `matrices` ([`Scenario::display_name`] then says ` under matrix ID`). O(1).
+    pub fn under_named(self, net: &Network, m: usize) -> Scenario {
+        let mut s = self.under(m);
+        if net.matrix_count() > 1 {
+            s.matrix_name = Some(net.matrix_id(m).into());
+        }
+        s
     }
 
     /// The same scenario with `down` kept down as well (a maintenance window): the
@@ -237,8 +252,18 @@ impl Scenario {
         }
     }
 
-    /// `failed` joined for display; `baseline` for the empty scenario.
+    /// `failed` joined for display; `baseline` for the empty scenario; followed by
+    /// ` under matrix ID` when the run names matrices.
     pub fn display_name(&self) -> String {
+        match &self.matrix_name {
+            Some(m) => format!("{} under matrix {m}", self.failed_name()),
+            None => self.failed_name(),
+        }
+    }
+
+    /// `failed` joined for display; `baseline` for the empty scenario (never the
+    /// matrix).
+    pub fn failed_name(&self) -> String {
         if self.failed.is_empty() {
             "baseline".into()
         } else {

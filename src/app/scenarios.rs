@@ -84,6 +84,7 @@ pub(super) fn scenario_list<'a>(
     let down = down_for(net, o)?;
     let list = scenarios_for(net, o.depth, &o.kinds, fail, &down)?;
     Ok(under_matrices(
+        net,
         list,
         matrices_for(net, o.matrix.as_deref())?,
     ))
@@ -138,19 +139,23 @@ fn printable_list(list: &str) -> String {
 /// Every scenario of `list` under each matrix of `matrices` in turn (grouped by scenario:
 /// scenario 1 under each matrix, then scenario 2, …); `list` itself when that is `[0]`.
 /// The count is multiplied; still lazy. O(1) until iterated.
-pub fn under_matrices(list: Scenarios<'_>, matrices: Vec<usize>) -> Scenarios<'_> {
-    if matrices == [0] {
+pub fn under_matrices<'a>(
+    net: &'a Network,
+    list: Scenarios<'a>,
+    matrices: Vec<usize>,
+) -> Scenarios<'a> {
+    if net.matrix_count() == 1 {
         return list;
     }
     let first = matrices[0];
     Scenarios {
         count: list.count * matrices.len() as u128,
-        sample: list.sample.under(first),
+        sample: list.sample.under_named(net, first),
         iter: Box::new(list.iter.flat_map(move |s| {
             matrices
                 .clone()
                 .into_iter()
-                .map(move |m| s.clone().under(m))
+                .map(move |m| s.clone().under_named(net, m))
         })),
     }
 }

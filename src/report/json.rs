@@ -47,11 +47,18 @@ pub struct GateJson {
     /// required demand.
     pub worst: Option<f64>,
     pub worst_scenario: Option<Vec<String>>,
+    /// The traffic matrix of `worst_scenario`; absent for a file without `matrices`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
     pub passed: bool,
 }
 
 /// The `gates` array of an audit document.
-pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJson> {
+pub fn gates_json(
+    net: &Network,
+    audit: &Audit,
+    gates: &[crate::gate::GateResult],
+) -> Vec<GateJson> {
     use crate::gate::GateKind;
     gates
         .iter()
@@ -65,6 +72,10 @@ pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJ
             limit: g.limit,
             worst: g.value.is_finite().then(|| file_num(g.value)),
             worst_scenario: g.scenario.map(|i| audit.scenarios[i].failed.clone()),
+            matrix: g
+                .scenario
+                .filter(|_| net.matrix_count() > 1)
+                .map(|i| net.matrix_id(audit.scenarios[i].matrix).to_string()),
             passed: g.passed,
         })
         .collect()
@@ -539,7 +550,7 @@ impl Exporter for Json {
             Some(ra) => super::routing::audit_json(m, ra, closing_json.as_deref()),
             None => audit_json_with(m, closing_json.as_deref()),
         };
-        doc.gates = gates_json(m.audit, m.gates);
+        doc.gates = gates_json(m.net, m.audit, m.gates);
         if let Some(r) = m.risk {
             attach_risk(&mut doc, m.net, m.audit, r);
         }

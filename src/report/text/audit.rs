@@ -39,7 +39,7 @@ pub fn verdict(m: &Model<'_>) -> String {
                 "{short} of {n} scenario{} short; worst {}{} (shortfall {}, stranded {})",
                 plural(n),
                 audit.scenarios[i].display_name(),
-                under_matrix(m, i),
+                "",
                 amount(e.shortfall, u),
                 amount(e.stranded, u)
             )
@@ -83,9 +83,22 @@ pub fn audit_report(m: &Model<'_>) -> String {
     let (net, audit, baseline, top) = (m.net, m.audit, m.baseline, m.top);
     let u = &net.unit;
     let mut out = String::new();
+    let pairs = if m.several_matrices() {
+        let mut ms: Vec<usize> = audit.scenarios.iter().map(|s| s.matrix).collect();
+        ms.sort_unstable();
+        ms.dedup();
+        let n = audit.scenarios.len() / ms.len().max(1);
+        if let [one] = ms[..] {
+            format!(" under matrix {}", net.matrix_id(one))
+        } else {
+            format!(" ({n} scenario{} × {} matrices)", plural(n), ms.len())
+        }
+    } else {
+        String::new()
+    };
     let _ = writeln!(
         out,
-        "{} — {} scenario{} ({} distinct outage{}), {} site{}, {} link{}, {} demand{}",
+        "{} — {} scenario{}{pairs} ({} distinct outage{}), {} site{}, {} link{}, {} demand{}",
         net.name,
         audit.scenarios.len(),
         plural(audit.scenarios.len()),
@@ -106,7 +119,17 @@ pub fn audit_report(m: &Model<'_>) -> String {
         amount(baseline.surviving_required, u),
         percent(baseline.served_required, baseline.surviving_required),
         num(baseline.throughput),
-        amount(net.total_volume(), u),
+        amount(
+            net.view(
+                audit
+                    .scenarios
+                    .iter()
+                    .find(|s| s.is_baseline())
+                    .map_or(0, |s| s.matrix)
+            )
+            .total_volume(),
+            u
+        ),
         small(baseline.certified_gap())
     );
     if m.several_matrices() {
@@ -170,8 +193,8 @@ pub fn audit_report(m: &Model<'_>) -> String {
             Cell::new(rank_no + 1),
             Cell::new({
                 let name = match folding.equivalents[i] {
-                    0 => audit.scenarios[i].display_name(),
-                    n => format!("{} (+{n} equivalent)", audit.scenarios[i].display_name()),
+                    0 => audit.scenarios[i].failed_name(),
+                    n => format!("{} (+{n} equivalent)", audit.scenarios[i].failed_name()),
                 };
                 widest_name = widest_name.max(name.chars().count());
                 name
