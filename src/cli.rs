@@ -444,4 +444,8 @@ pub struct WorstArgs {
     /// Worker threads (default: one per core). Results do not depend on it.
     #[arg(long)]
     pub threads: Option<usize>,
+    /// Search only these traffic matrices (comma-separated ids, `base` for `demands`).
+    /// Default: every matrix.
+    #[arg(long, value_name = "IDS")]
+    pub matrix: Option<String>,
 }

@@ -40,6 +40,8 @@ pub enum Command {
 pub struct WorstOptions {
     pub network: PathBuf,
     pub json: Option<PathBuf>,
+    /// `--matrix` as given (parsed against the network).
+    pub matrix: Option<String>,
     pub search: crate::worst::Options,
 }
 
@@ -490,6 +492,7 @@ pub fn worst(a: cli::WorstArgs) -> Result<WorstOptions> {
         },
         network: a.network,
         json: a.json,
+        matrix: a.matrix,
     })
 }
 
