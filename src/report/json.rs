@@ -640,6 +640,9 @@ pub struct RoundJson {
 #[derive(Serialize)]
 pub struct PlanScenarioJson {
     pub failed: Vec<String>,
+    /// The traffic matrix (absent for a file without `matrices`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
     pub shortfall_before: f64,
     pub shortfall_after: f64,
     pub not_closable: f64,
@@ -711,6 +714,7 @@ pub fn plan_json(
                 let before = &audit.evaluations[k];
                 PlanScenarioJson {
                     failed: s.failed.clone(),
+                    matrix: s.matrix_name.as_deref().map(str::to_string),
                     shortfall_before: file_num(before.shortfall),
                     shortfall_after: file_num(plan.after[k].shortfall),
                     not_closable: file_diff(before.surviving_required, plan.best[k]).max(0.0),
