@@ -258,6 +258,10 @@ pub fn probe_with(
     })
 }
 
+/// A family of outages solved together: the parent single failure (element and traffic
+/// matrix; `None` for outages solved from the baseline or cold) and its members.
+type Family = (Option<(Element, usize)>, Vec<usize>);
+
 /// What a [`Batch`] keeps of each evaluation.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Keep {
@@ -624,7 +628,7 @@ impl Batch {
     /// The families of the outages still to solve, in a deterministic order: children
     /// grouped under their parent element (with the parent's own outage), the rest one
     /// by one.
-    fn families(&self) -> Vec<(Option<(Element, usize)>, Vec<usize>)> {
+    fn families(&self) -> Vec<Family> {
         let todo: Vec<usize> = (0..self.outages.len())
             .filter(|&k| self.done[k].is_none() && self.mine(k))
             .collect();
@@ -643,7 +647,7 @@ impl Batch {
             .filter_map(|&(m, e)| self.single.get(&(e, m)).copied())
             .filter(|kp| !self.outages[*kp].is_empty())
             .collect();
-        let mut out: Vec<(Option<(Element, usize)>, Vec<usize>)> = Vec::new();
+        let mut out: Vec<Family> = Vec::new();
         for ((m, e), mut members) in fam {
             if let Some(&kp) = self.single.get(&(e, m))
                 && todo.binary_search(&kp).is_ok()

@@ -157,10 +157,18 @@ fn worst_matrix_differs_per_scenario_by_hand() {
         (&["link:xy"][..], "base", 8.0, 0.0),
         (&["link:xy"][..], "evening", 6.0, 0.0),
     ];
-    assert_eq!(scenarios(&doc).len(), want.len(), "4 scenarios × 2 matrices");
+    assert_eq!(
+        scenarios(&doc).len(),
+        want.len(),
+        "4 scenarios × 2 matrices"
+    );
     for (names, m, served, short) in want {
         let sc = pair(&doc, names, m);
-        assert_near(num(sc, "served_required"), served, &format!("{names:?} {m}"));
+        assert_near(
+            num(sc, "served_required"),
+            served,
+            &format!("{names:?} {m}"),
+        );
         assert_near(num(sc, "shortfall"), short, &format!("{names:?} {m}"));
     }
     // The worst pair ranks first; the text names the worst matrix of each scenario.
@@ -198,7 +206,11 @@ fn matrix_flag_selects_and_refuses_unknown_ids() {
     assert_eq!(scenarios(&doc).len(), 4);
     assert!(scenarios(&doc).iter().all(|sc| sc["matrix"] == "evening"));
     // Under evening alone the worst is link:hy, 2 short (STAR's comment).
-    assert_near(num(pair(&doc, &["link:hy"], "evening"), "shortfall"), 2.0, "hy");
+    assert_near(
+        num(pair(&doc, &["link:hy"], "evening"), "shortfall"),
+        2.0,
+        "hy",
+    );
     assert_eq!(num(pair(&doc, &["link:hy"], "evening"), "rank"), 1.0);
 
     let (_, both) = audit_json(f.path(), &["--kinds", "links", "--matrix", "evening,base"]);
@@ -268,7 +280,8 @@ fn gates_cover_every_matrix() {
     ]);
     assert_eq!(run.code, 1, "{}", run.stderr);
     assert!(
-        run.stdout.contains("(link:hx under matrix base) exceeds the limit 3"),
+        run.stdout
+            .contains("(link:hx under matrix base) exceeds the limit 3"),
         "{}",
         run.stdout
     );
@@ -363,7 +376,10 @@ fn csv_has_a_matrix_column() {
         assert_eq!(row[short].parse::<f64>().unwrap(), num(sc, "shortfall"));
     }
     // STAR's comment: link:hy under evening is 2 short.
-    assert!(rows.iter().any(|r| r[0] == "link:hy" && r[1] == "evening" && r[short] == "2"));
+    assert!(
+        rows.iter()
+            .any(|r| r[0] == "link:hy" && r[1] == "evening" && r[short] == "2")
+    );
 }
 
 #[test]
@@ -406,12 +422,11 @@ fn check_summarises_matrices() {
 #[test]
 fn files_without_matrices_show_no_matrix() {
     let csv = TempPath::new("nomatrix", "csv");
-    let (run, doc) = audit_json(s(&demo()), &["--csv", csv.path(), "--max-shortfall", "1000"]);
-    assert!(
-        scenarios(&doc)
-            .iter()
-            .all(|sc| sc.get("matrix").is_none())
+    let (run, doc) = audit_json(
+        s(&demo()),
+        &["--csv", csv.path(), "--max-shortfall", "1000"],
     );
+    assert!(scenarios(&doc).iter().all(|sc| sc.get("matrix").is_none()));
     assert!(doc["baseline"].get("matrix").is_none());
     assert!(doc["gates"][0].get("matrix").is_none());
     assert!(!run.stdout.contains("matri"), "{}", run.stdout);
