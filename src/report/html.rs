@@ -475,7 +475,8 @@ fn why_section(o: &mut String, r: &Report<'_>) {
             None => return,
         },
     };
-    let net = r.net;
+    // The scenario's demands are its traffic matrix's.
+    let net = r.net.view(r.audit.scenarios[i].matrix);
     let u = &net.unit;
     let e = r.audit.eval(i);
     let _ = writeln!(
