@@ -164,7 +164,7 @@ impl Model<'_> {
                     percent(e.shortfall, e.surviving_required),
                     num(e.stranded),
                     num(file_diff(self.baseline.throughput, e.throughput).max(0.0)),
-                    super::text::main_bottleneck(self.net, e),
+                    super::text::main_bottleneck(self.net.view(self.audit.scenarios[i].matrix), e),
                 ]
             })
             .collect();

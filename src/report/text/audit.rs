@@ -160,7 +160,16 @@ pub fn audit_report(m: &Model<'_>) -> String {
             let _ = writeln!(
                 out,
                 "Baseline: {}.",
-                baseline_misses(net, &baseline.cut_off)
+                baseline_misses(
+                    net.view(
+                        audit
+                            .scenarios
+                            .iter()
+                            .find(|s| s.is_baseline())
+                            .map_or(0, |s| s.matrix)
+                    ),
+                    &baseline.cut_off
+                )
             );
         }
     }
