@@ -433,3 +433,50 @@ fn files_without_matrices_show_no_matrix() {
     let text = std::fs::read_to_string(&csv.0).unwrap();
     assert!(!text.lines().next().unwrap().contains("matrix"));
 }
+
+#[test]
+fn shards_merge_and_report_with_matrices() {
+    let f = TempPath::with_text("matrices-shard", STAR);
+    let dir = TempDir::new("matrices-shard");
+    let (p1, p2) = (dir.join("p1.json"), dir.join("p2.json"));
+    for (i, p) in [(1, &p1), (2, &p2)] {
+        let shard = format!("{i}/2");
+        let run = redoubt(&[
+            "audit",
+            f.path(),
+            "-q",
+            "--kinds",
+            "links",
+            "--shard",
+            &shard,
+            "--json",
+            s(p),
+        ]);
+        assert_eq!(run.code, 0, "{}", run.stderr);
+    }
+    let merged = dir.join("merged.json");
+    let run = redoubt(&["merge", s(&p1), s(&p2), "--json", s(&merged)]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let (_, whole) = audit_json(f.path(), &["--kinds", "links"]);
+    let got: Value = serde_json::from_str(&std::fs::read_to_string(&merged).unwrap()).unwrap();
+    assert_eq!(got, whole, "merged parts equal the unsharded run");
+    // The HTML report and --why of a matrix scenario (link:hy is worst under evening).
+    let run = redoubt(&[
+        "audit",
+        f.path(),
+        "-q",
+        "--fail",
+        "link:hy",
+        "--matrix",
+        "evening",
+        "--report",
+        s(&dir.join("rep")),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    assert!(
+        run.stdout.contains("link:hy under matrix evening"),
+        "{}",
+        run.stdout
+    );
+    assert!(dir.join("rep").join("report.html").exists());
+}
