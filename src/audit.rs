@@ -87,6 +87,15 @@ impl Audit {
         &self.scenarios[i]
     }
 
+    /// The baseline's evaluation under traffic matrix `m`, if that pair is among the
+    /// scenarios. O(scenarios).
+    pub fn baseline_under(&self, m: usize) -> Option<&Evaluation> {
+        self.scenarios
+            .iter()
+            .position(|s| s.is_baseline() && s.matrix == m)
+            .map(|i| self.eval(i))
+    }
+
     /// The baseline's evaluation, if the baseline is among the scenarios.
     pub fn baseline(&self) -> Option<&Evaluation> {
         self.scenarios
@@ -229,10 +238,12 @@ pub fn probe_with(
     let sample = match sample {
         Some(sc) if sc.elements.len() <= 1 => {
             let o = sc.outage(net);
+            // The baseline's optimum is the base matrix's; another matrix starts cold.
+            let on = net.view(o.matrix);
             let e = match &base {
-                Some(b) if o.is_empty() => b.evaluation.clone(),
-                Some(b) => engine.evaluate(net, &o, b.warm.as_ref())?.evaluation,
-                None => engine.evaluate(net, &o, None)?.evaluation,
+                Some(b) if o.matrix == 0 && o.is_empty() => b.evaluation.clone(),
+                Some(b) if o.matrix == 0 => engine.evaluate(on, &o, b.warm.as_ref())?.evaluation,
+                _ => engine.evaluate(on, &o, None)?.evaluation,
             };
             Some((o, e))
         }
@@ -246,6 +257,10 @@ pub fn probe_with(
         sample_took: start.elapsed(),
     })
 }
+
+/// A family of outages solved together: the parent single failure (element and traffic
+/// matrix; `None` for outages solved from the baseline or cold) and its members.
+type Family = (Option<(Element, usize)>, Vec<usize>);
 
 /// What a [`Batch`] keeps of each evaluation.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -277,8 +292,8 @@ pub struct Batch {
     done: Vec<Option<Evaluation>>,
     /// Per outage: the element whose single failure is its parent (walk engine).
     parent: Vec<Option<Element>>,
-    /// Per element with a single-failure scenario: that scenario's outage.
-    single: HashMap<Element, usize>,
+    /// Per (element, matrix) with a single-failure scenario: that scenario's outage.
+    single: HashMap<(Element, usize), usize>,
     engine: Box<dyn Evaluator>,
     /// With a warm-starting evaluator: the baseline's optimum, the start of every other
     /// outage.
@@ -335,7 +350,7 @@ impl Batch {
                 parent.push((s.elements.len() >= 2).then(|| s.elements[0]));
             }
             if let [e] = s.elements[..] {
-                single.entry(e).or_insert(k);
+                single.entry((e, s.matrix)).or_insert(k);
             }
             outage_of.push(k);
             list.push(s);
@@ -443,8 +458,17 @@ impl Batch {
         outage: &Outage,
         parent: Option<&Warm>,
     ) -> Result<Evaluated> {
-        let basis = parent.or(self.basis.as_ref());
-        let w = self.engine.evaluate(net, outage, basis)?;
+        // The baseline's optimum is the base matrix's: another matrix's outage without a
+        // parent starts cold (its demands are other ones).
+        let base = if outage.matrix == 0 {
+            self.basis.as_ref()
+        } else {
+            None
+        };
+        let basis = parent.or(base);
+        let w = self
+            .engine
+            .evaluate(net.view(outage.matrix), outage, basis)?;
         self.stats
             .lock()
             .unwrap_or_else(|p| p.into_inner())
@@ -458,7 +482,7 @@ impl Batch {
     fn solve_family(
         &self,
         net: &Network,
-        p: Option<Element>,
+        p: Option<(Element, usize)>,
         members: &[usize],
         bar: &Progress,
         journal: Option<&Journal>,
@@ -479,9 +503,9 @@ impl Batch {
         } else {
             let parent = match p {
                 None => None,
-                Some(e) => {
-                    let po = Scenario::new(net, &[e]).outage(net);
-                    let kp = self.single.get(&e).copied();
+                Some((e, m)) => {
+                    let po = Scenario::new(net, &[e]).under(m).outage(net);
+                    let kp = self.single.get(&(e, m)).copied();
                     if interrupted() {
                         return Err(Error::Interrupted("solving stopped".into()));
                     }
@@ -604,33 +628,34 @@ impl Batch {
     /// The families of the outages still to solve, in a deterministic order: children
     /// grouped under their parent element (with the parent's own outage), the rest one
     /// by one.
-    fn families(&self) -> Vec<(Option<Element>, Vec<usize>)> {
+    fn families(&self) -> Vec<Family> {
         let todo: Vec<usize> = (0..self.outages.len())
             .filter(|&k| self.done[k].is_none() && self.mine(k))
             .collect();
         if !self.engine.warm_starts() {
             return todo.into_iter().map(|k| (None, vec![k])).collect();
         }
-        let mut fam: std::collections::BTreeMap<Element, Vec<usize>> = Default::default();
+        // Families are keyed by (matrix, element): a parent's optimum is its matrix's.
+        let mut fam: std::collections::BTreeMap<(usize, Element), Vec<usize>> = Default::default();
         for &k in &todo {
             if let Some(e) = self.parent[k] {
-                fam.entry(e).or_default().push(k);
+                fam.entry((self.outages[k].matrix, e)).or_default().push(k);
             }
         }
         let in_family: std::collections::HashSet<usize> = fam
             .keys()
-            .filter_map(|e| self.single.get(e).copied())
+            .filter_map(|&(m, e)| self.single.get(&(e, m)).copied())
             .filter(|kp| !self.outages[*kp].is_empty())
             .collect();
-        let mut out: Vec<(Option<Element>, Vec<usize>)> = Vec::new();
-        for (e, mut members) in fam {
-            if let Some(&kp) = self.single.get(&e)
+        let mut out: Vec<Family> = Vec::new();
+        for ((m, e), mut members) in fam {
+            if let Some(&kp) = self.single.get(&(e, m))
                 && todo.binary_search(&kp).is_ok()
                 && !self.outages[kp].is_empty()
             {
                 members.insert(0, kp);
             }
-            out.push((Some(e), members));
+            out.push((Some((e, m)), members));
         }
         out.extend(
             todo.iter()

@@ -206,6 +206,10 @@ pub struct ScenarioArgs {
     /// `link:X,site:Y`: the baseline is that state and scenarios name only further failures.
     #[arg(long, value_name = "ELEMENTS")]
     pub down: Option<String>,
+    /// Evaluate only these traffic matrices of the file (comma-separated ids; `base` is
+    /// the top-level `demands`). Default: every matrix.
+    #[arg(long, value_name = "IDS")]
+    pub matrix: Option<String>,
 
     /// Routing model: best (any walk: the best re-route), nearest (shortest paths with
     /// equal-cost split, nearest processing site) or steered (shortest paths, any split
@@ -363,6 +367,10 @@ pub struct CompareArgs {
     /// Keep these elements down on both sides in every scenario, e.g. `link:X`.
     #[arg(long, value_name = "ELEMENTS")]
     pub down: Option<String>,
+    /// Compare only these traffic matrices (comma-separated ids, `base` for `demands`);
+    /// each must be in both files. Default: every matrix.
+    #[arg(long, value_name = "IDS")]
+    pub matrix: Option<String>,
     /// A scenario got worse when its shortfall or stranded demand (as printed) rose by
     /// more than this many units.
     #[arg(
@@ -419,6 +427,7 @@ impl CompareArgs {
             yes: self.yes,
             max_minutes: self.max_minutes,
             down: self.down.clone(),
+            matrix: self.matrix.clone(),
             routing: Routing::Best,
         }
     }
@@ -455,4 +464,8 @@ pub struct WorstArgs {
     /// Worker threads (default: one per core). Results do not depend on it.
     #[arg(long)]
     pub threads: Option<usize>,
+    /// Search only these traffic matrices (comma-separated ids, `base` for `demands`).
+    /// Default: every matrix.
+    #[arg(long, value_name = "IDS")]
+    pub matrix: Option<String>,
 }

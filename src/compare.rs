@@ -166,18 +166,20 @@ pub fn compare(
 ) -> Comparison {
     let (nb, ab) = before;
     let (na, aa) = after;
-    let index: HashMap<&[String], usize> = ab
+    // Scenarios are matched by their failed names and, for files with `matrices`, the
+    // matrix's id (a matrix one side lacks gives added or removed pairs).
+    let index: HashMap<(&[String], Option<&str>), usize> = ab
         .scenarios
         .iter()
         .enumerate()
-        .map(|(i, s)| (&s.failed[..], i))
+        .map(|(i, s)| ((&s.failed[..], s.matrix_name.as_deref()), i))
         .collect();
     let mut seen_before = vec![false; ab.scenarios.len()];
     let mut only_after = Vec::new();
     let (mut worse, mut better, mut new_short) = (Vec::new(), Vec::new(), Vec::new());
     let mut matched = 0;
     for (j, s) in aa.scenarios.iter().enumerate() {
-        let Some(&i) = index.get(&s.failed[..]) else {
+        let Some(&i) = index.get(&(&s.failed[..], s.matrix_name.as_deref())) else {
             only_after.push(j);
             continue;
         };

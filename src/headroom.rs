@@ -83,11 +83,34 @@ pub fn of_audit(
         of_outage(net, o, routing)
     })?;
     let down = audit.scenarios.first().map_or(&[][..], |s| &s.down[..]);
-    let base = Scenario::baseline().with_down(down).outage(net);
-    let baseline = match audit.outages.iter().position(|o| *o == base) {
-        Some(k) => per_outage[k].clone(),
-        None => of_outage(net, &base, routing)?,
-    };
+    // With several traffic matrices, the baseline's headroom is the least over the
+    // matrices the run evaluates (each matrix's own baseline).
+    let mut matrices: Vec<usize> = Vec::new();
+    for s in &audit.scenarios {
+        if !matrices.contains(&s.matrix) {
+            matrices.push(s.matrix);
+        }
+    }
+    if matrices.is_empty() {
+        matrices.push(0);
+    }
+    let mut baseline: Option<Headroom> = None;
+    for m in matrices {
+        let base = Scenario::baseline().with_down(down).under(m).outage(net);
+        let h = match audit.outages.iter().position(|o| *o == base) {
+            Some(k) => per_outage[k].clone(),
+            None => of_outage(net, &base, routing)?,
+        };
+        let lower = match (&baseline, h.value) {
+            (None, _) => true,
+            (Some(b), Some(v)) => b.value.is_none_or(|bv| v.total_cmp(&bv).is_lt()),
+            (Some(_), None) => false,
+        };
+        if lower {
+            baseline = Some(h);
+        }
+    }
+    let baseline = baseline.expect("at least one matrix");
     let least = least(audit, &per_outage, &rank::worst_first(audit));
     Ok(AuditHeadroom {
         per_outage,

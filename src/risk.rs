@@ -81,10 +81,29 @@ pub fn assess(net: &Network, pool: &[Element], audit: &Audit) -> Option<Risk> {
             ln.exp()
         })
         .collect();
+    // With several traffic matrices a scenario is listed once per matrix: the sums count
+    // it once, at its worst matrix (largest shortfall, the first on ties), so the figures
+    // are those of the worst hour. Without matrices every scenario counts.
+    let mut worst_of: std::collections::HashMap<&[String], usize> = Default::default();
+    for (i, s) in audit.scenarios.iter().enumerate() {
+        let k = worst_of.entry(&s.failed[..]).or_insert(i);
+        if audit.eval(i).shortfall > audit.eval(*k).shortfall {
+            *k = i;
+        }
+    }
+    let counted: Vec<bool> = audit
+        .scenarios
+        .iter()
+        .enumerate()
+        .map(|(i, s)| worst_of[&s.failed[..]] == i)
+        .collect();
     let mut expected_shortfall = 0.0;
     let mut p_any_shortfall = 0.0;
     let mut covered = 0.0;
     for (i, &q) in probability.iter().enumerate() {
+        if !counted[i] {
+            continue;
+        }
         let short = audit.eval(i).shortfall;
         covered += q;
         expected_shortfall += q * short;
@@ -94,7 +113,7 @@ pub fn assess(net: &Network, pool: &[Element], audit: &Audit) -> Option<Risk> {
     }
     let uncovered = (1.0 - covered).clamp(0.0, 1.0);
     let mut most_likely_short: Vec<usize> = (0..probability.len())
-        .filter(|&i| audit.eval(i).shortfall > 0.0 && probability[i] > 0.0)
+        .filter(|&i| counted[i] && audit.eval(i).shortfall > 0.0 && probability[i] > 0.0)
         .collect();
     most_likely_short.sort_by(|&a, &b| probability[b].total_cmp(&probability[a]).then(a.cmp(&b)));
     most_likely_short.truncate(MOST_LIKELY_SHOWN);

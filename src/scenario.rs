@@ -164,6 +164,12 @@ pub struct Scenario {
     /// Elements kept down in every scenario of the run (`--down`, a maintenance window):
     /// part of the outage, never of the name. Empty without `--down`.
     pub down: Vec<Element>,
+    /// The traffic matrix the scenario is evaluated under (0: the file's `demands`,
+    /// `base`; `m` ≥ 1: `matrices[m - 1]`). Part of the outage, never of the name.
+    pub matrix: usize,
+    /// The matrix's id when the run evaluates a file with `matrices` (then every shown
+    /// name says which matrix: ` under matrix ID`); `None` otherwise.
+    pub matrix_name: Option<std::sync::Arc<str>>,
 }
 
 impl Scenario {
@@ -177,6 +183,8 @@ impl Scenario {
             failed: pairs.iter().map(|p| p.0.clone()).collect(),
             elements: pairs.into_iter().map(|p| p.1).collect(),
             down: Vec::new(),
+            matrix: 0,
+            matrix_name: None,
         }
     }
 
@@ -185,7 +193,25 @@ impl Scenario {
             elements: Vec::new(),
             failed: Vec::new(),
             down: Vec::new(),
+            matrix: 0,
+            matrix_name: None,
         }
+    }
+
+    /// The same scenario under traffic matrix `m` (see [`Scenario::matrix`]). O(1).
+    pub fn under(mut self, m: usize) -> Scenario {
+        self.matrix = m;
+        self
+    }
+
+    /// The same scenario under matrix `m` of `net`, named by it when `net` has
+    /// `matrices` ([`Scenario::display_name`] then says ` under matrix ID`). O(1).
+    pub fn under_named(self, net: &Network, m: usize) -> Scenario {
+        let mut s = self.under(m);
+        if net.matrix_count() > 1 {
+            s.matrix_name = Some(net.matrix_id(m).into());
+        }
+        s
     }
 
     /// The same scenario with `down` kept down as well (a maintenance window): the
@@ -219,11 +245,25 @@ impl Scenario {
         }
         links.sort_unstable();
         links.dedup();
-        Outage { sites, links }
+        Outage {
+            sites,
+            links,
+            matrix: self.matrix,
+        }
     }
 
-    /// `failed` joined for display; `baseline` for the empty scenario.
+    /// `failed` joined for display; `baseline` for the empty scenario; followed by
+    /// ` under matrix ID` when the run names matrices.
     pub fn display_name(&self) -> String {
+        match &self.matrix_name {
+            Some(m) => format!("{} under matrix {m}", self.failed_name()),
+            None => self.failed_name(),
+        }
+    }
+
+    /// `failed` joined for display; `baseline` for the empty scenario (never the
+    /// matrix).
+    pub fn failed_name(&self) -> String {
         if self.failed.is_empty() {
             "baseline".into()
         } else {
@@ -245,6 +285,9 @@ impl fmt::Display for Scenario {
 pub struct Outage {
     pub sites: Vec<SiteIdx>,
     pub links: Vec<LinkIdx>,
+    /// The traffic matrix the outage is evaluated under ([`Network::view`]); 0 for the
+    /// file's `demands`. Two outages under different matrices are different work.
+    pub matrix: usize,
 }
 
 impl Outage {

@@ -121,6 +121,8 @@ pub struct WorstSet {
     pub served_required: f64,
     /// The served_required LP was proven optimal.
     pub proven: bool,
+    /// The traffic matrix it was solved under (0: `base`).
+    pub matrix: usize,
 }
 
 /// Why no set outside the list is worse.
@@ -168,6 +170,75 @@ pub struct Worst {
 /// and the pruning compare, so near-equal values tie stably. Monotone. O(1).
 pub fn key(x: f64) -> f64 {
     file_num(x)
+}
+
+/// The N worst (set, matrix) pairs from each matrix's own [`search`] (`each`: matrix
+/// index and its answer, each on that matrix's view). Exact: a pair outside matrix `m`'s
+/// list is at most `m`'s N-th worst (or its floor), and the merged N-th worst is at least
+/// that, since the union holds `m`'s N. Ties as in each list (value as printed, fewer
+/// elements, names), then the matrix index. The proof's counts are summed, its bound the
+/// largest, its threshold the merged N-th's (else the largest floor). O(M·N log(M·N)).
+pub fn merge(each: Vec<(usize, Worst)>, opts: Options) -> Worst {
+    let mut sets: Vec<WorstSet> = Vec::new();
+    let mut proof: Option<Proof> = None;
+    let mut baseline: Option<Evaluation> = None;
+    for (m, w) in each {
+        sets.extend(w.sets.into_iter().map(|mut s| {
+            s.matrix = m;
+            s
+        }));
+        let p = w.proof;
+        proof = Some(match proof {
+            None => p,
+            Some(mut q) => {
+                q.bound = match (q.bound, p.bound) {
+                    (Some(a), Some(b)) => Some(a.max(b)),
+                    (a, b) => a.or(b),
+                };
+                q.floor = q.floor.max(p.floor);
+                q.tolerance = q.tolerance.max(p.tolerance);
+                q.sets_total += p.sets_total;
+                q.sets_solved += p.sets_solved;
+                q.outages_solved += p.outages_solved;
+                q.sets_bounded += p.sets_bounded;
+                q.sets_pruned += p.sets_pruned;
+                q.unproven += p.unproven;
+                q.stats.add(&p.stats);
+                q
+            }
+        });
+        baseline.get_or_insert(w.baseline);
+    }
+    sets.sort_by(|a, b| {
+        key(value_of(b, opts.by))
+            .total_cmp(&key(value_of(a, opts.by)))
+            .then(a.failed.len().cmp(&b.failed.len()))
+            .then_with(|| a.failed.cmp(&b.failed))
+            .then(a.matrix.cmp(&b.matrix))
+    });
+    sets.truncate(opts.top);
+    let mut proof = proof.expect("at least one matrix");
+    if sets.len() >= opts.top
+        && let Some(last) = sets.last()
+    {
+        proof.threshold = key(value_of(last, opts.by));
+    } else {
+        proof.threshold = proof.floor;
+    }
+    Worst {
+        sets,
+        proof,
+        options: opts,
+        baseline: baseline.expect("at least one matrix"),
+    }
+}
+
+/// A listed set's ranking value. O(1).
+fn value_of(s: &WorstSet, by: By) -> f64 {
+    match by {
+        By::Shortfall => s.shortfall,
+        By::Lost => s.lost,
+    }
 }
 
 /// The reported value of `e` that ranks sets.
@@ -734,6 +805,7 @@ pub fn search(net: &Network, opts: Options) -> Result<Worst> {
                 lost: o.shortfall + o.stranded,
                 served_required: o.served_required,
                 proven: o.proven,
+                matrix: 0,
             }
         })
         .collect();

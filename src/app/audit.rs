@@ -31,6 +31,7 @@ fn audit_fingerprint(o: &AuditOptions, network_text: &str) -> String {
         &o.scenarios.kinds,
         &o.engine.to_string(),
         o.scenarios.down.as_deref(),
+        o.scenarios.matrix.as_deref(),
     )
 }
 
@@ -38,7 +39,7 @@ fn audit_fingerprint(o: &AuditOptions, network_text: &str) -> String {
 /// FNV-1a 64 over the command, the version, the network text and the options
 /// (`fail=…` or `depth=…;kinds=…`, then `;engine=` and the engine as
 /// [`crate::solve::Engine`]'s `Display` names it (its [`crate::solve::Engine::as_str`], or
-/// `Approx:{ε}`), then `;down=…`).
+/// `Approx:{ε}`), then `;down=…`, then `;matrix=…` with `--matrix`).
 /// O(size of the network text).
 pub(super) fn run_fingerprint(
     network_text: &str,
@@ -47,12 +48,14 @@ pub(super) fn run_fingerprint(
     kinds: &str,
     engine: &str,
     down: Option<&str>,
+    matrix: Option<&str>,
 ) -> String {
     let options = match fail {
         Some(f) => format!("fail={f}"),
         None => format!("depth={depth};kinds={kinds}"),
     } + &format!(";engine={engine}")
-        + &down.map(|d| format!(";down={d}")).unwrap_or_default();
+        + &down.map(|d| format!(";down={d}")).unwrap_or_default()
+        + &matrix.map(|m| format!(";matrix={m}")).unwrap_or_default();
     journal::fingerprint(&[
         b"redoubt audit",
         env!("CARGO_PKG_VERSION").as_bytes(),
@@ -204,6 +207,7 @@ pub(super) fn run(
             kinds: args.scenarios.kinds.clone(),
             fail: args.fail.clone(),
             engine: args.engine.as_str().to_string(),
+            matrix: args.scenarios.matrix.clone(),
         };
         let own = batch.own();
         let lines = own.iter().map(|&k| match j.line(k)? {

@@ -43,6 +43,7 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
             &h.kinds,
             &h.engine,
             None,
+            h.matrix.as_deref(),
         )
     })?;
     let net = Network::from_bytes(h.network.as_bytes())
@@ -52,6 +53,11 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
         other => other,
     })?;
     let list = scenarios_for(&net, h.depth, &h.kinds, h.fail.as_deref(), &[])?;
+    let list = super::scenarios::under_matrices(
+        &net,
+        list,
+        super::scenarios::matrices_for(&net, h.matrix.as_deref())?,
+    );
     let keep = if whole {
         audit::Keep::Full
     } else {

@@ -41,6 +41,8 @@ pub enum Command {
 pub struct WorstOptions {
     pub network: PathBuf,
     pub json: Option<PathBuf>,
+    /// `--matrix` as given (parsed against the network).
+    pub matrix: Option<String>,
     pub search: crate::worst::Options,
 }
 
@@ -56,6 +58,8 @@ pub struct ScenarioOptions {
     pub kinds: String,
     /// `--down` as given (parsed against the network; the fingerprint holds this text).
     pub down: Option<String>,
+    /// `--matrix` as given (parsed against the network; the fingerprint holds this text).
+    pub matrix: Option<String>,
     /// `None` for `--routing best` (any walk), else the deployed-routes model.
     pub routing: Option<routing::Mode>,
     /// `--quiet`: no progress bar, no notes.
@@ -235,6 +239,7 @@ fn scenarios(args: cli::ScenarioArgs) -> Result<ScenarioOptions> {
         depth: args.depth,
         kinds: args.kinds,
         down: args.down,
+        matrix: args.matrix,
         routing: routing_mode(args.routing),
         quiet: args.quiet,
         time_limit,
@@ -506,6 +511,7 @@ pub fn worst(a: cli::WorstArgs) -> Result<WorstOptions> {
         },
         network: a.network,
         json: a.json,
+        matrix: a.matrix,
     })
 }
 

@@ -82,7 +82,89 @@ pub(super) fn scenario_list<'a>(
     fail: Option<&str>,
 ) -> Result<Scenarios<'a>> {
     let down = down_for(net, o)?;
-    scenarios_for(net, o.depth, &o.kinds, fail, &down)
+    if o.routing.is_some() && net.matrix_count() > 1 {
+        return Err(Error::Usage(
+            "--routing nearest|steered with several traffic matrices is not supported yet; \
+             use --routing best, or a file per matrix"
+                .into(),
+        ));
+    }
+    let list = scenarios_for(net, o.depth, &o.kinds, fail, &down)?;
+    Ok(under_matrices(
+        net,
+        list,
+        matrices_for(net, o.matrix.as_deref())?,
+    ))
+}
+
+/// The matrices a run evaluates: those `--matrix` names (in the order written, each
+/// once), else every matrix of the file in file order (`[0]` without `matrices`). An
+/// unknown id is refused with the ids the file has and the nearest one. O(ids · matrices).
+pub fn matrices_for(net: &Network, list: Option<&str>) -> Result<Vec<usize>> {
+    let Some(list) = list else {
+        return Ok((0..net.matrix_count()).collect());
+    };
+    let known: Vec<&str> = (0..net.matrix_count()).map(|m| net.matrix_id(m)).collect();
+    let mut out: Vec<usize> = Vec::new();
+    for (i, id) in list.split(',').enumerate() {
+        let Some(m) = net.matrix_index(id) else {
+            let shown = crate::model::strict::printable(id);
+            let hint = match crate::model::strict::near_miss(id, &known) {
+                Some(k) => format!("; did you mean \"{k}\"?"),
+                None => String::new(),
+            };
+            let what = if id.is_empty() {
+                format!(
+                    "--matrix: entry {} of \"{}\" is empty",
+                    i + 1,
+                    printable_list(list)
+                )
+            } else {
+                format!("--matrix: no traffic matrix \"{shown}\"{hint}")
+            };
+            return Err(Error::Usage(format!(
+                "{what} (the file's matrices: {})",
+                known.join(", ")
+            )));
+        };
+        if out.contains(&m) {
+            return Err(Error::Usage(format!(
+                "--matrix: \"{}\" is named twice; name each matrix once",
+                net.matrix_id(m)
+            )));
+        }
+        out.push(m);
+    }
+    Ok(out)
+}
+
+/// `list` made printable for a message.
+fn printable_list(list: &str) -> String {
+    crate::model::strict::printable(list)
+}
+
+/// Every scenario of `list` under each matrix of `matrices` in turn (grouped by scenario:
+/// scenario 1 under each matrix, then scenario 2, …); `list` itself when that is `[0]`.
+/// The count is multiplied; still lazy. O(1) until iterated.
+pub fn under_matrices<'a>(
+    net: &'a Network,
+    list: Scenarios<'a>,
+    matrices: Vec<usize>,
+) -> Scenarios<'a> {
+    if net.matrix_count() == 1 {
+        return list;
+    }
+    let first = matrices[0];
+    Scenarios {
+        count: list.count * matrices.len() as u128,
+        sample: list.sample.under_named(net, first),
+        iter: Box::new(list.iter.flat_map(move |s| {
+            matrices
+                .clone()
+                .into_iter()
+                .map(move |m| s.clone().under_named(net, m))
+        })),
+    }
 }
 
 /// The elements `--down` keeps down in every scenario (empty without it).

@@ -16,7 +16,16 @@ pub fn run(args: &WorstOptions, out: &mut dyn Write, _err: &mut dyn Write) -> Re
     if let Some(json) = &args.json {
         report::file::check_output("--json", json, &[&args.network])?;
     }
-    let found = worst::search(&net, args.search)?;
+    let matrices = super::scenarios::matrices_for(&net, args.matrix.as_deref())?;
+    let found = if net.matrix_count() == 1 {
+        worst::search(&net, args.search)?
+    } else {
+        let mut each = Vec::with_capacity(matrices.len());
+        for m in matrices {
+            each.push((m, worst::search(net.view(m), args.search)?));
+        }
+        worst::merge(each, args.search)
+    };
     if let Some(path) = &args.json {
         report::file::write_atomic(path, |w| report::worst::write_json(w, &net, &found))?;
     }

@@ -600,6 +600,9 @@ pub struct PartHeader {
     pub kinds: String,
     pub fail: Option<String>,
     pub engine: String,
+    /// `--matrix` as given (absent without it: every matrix of the network).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
 }
 
 /// Writes a part file: the header line, then `lines` (journal lines

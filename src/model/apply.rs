@@ -72,6 +72,13 @@ pub fn with_purchase(text: &str, net: &Network, add: &[f64]) -> Result<String> {
             }
         }
     }
+    // Each traffic matrix's view shares the sites, so it holds the purchase too.
+    let sites = intended.sites.clone();
+    for m in &mut intended.matrices {
+        let mut v = (*m.view).clone();
+        v.sites = sites.clone();
+        m.view = std::sync::Arc::new(v);
+    }
     edits.sort_by_key(|(r, _)| r.start);
     let mut out = String::with_capacity(text.len() + 64);
     out.push_str(bom);

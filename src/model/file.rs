@@ -91,6 +91,27 @@ pub struct NetworkFile {
     /// Failure probabilities of shared-risk groups named by links.
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub risk_groups: Vec<RiskGroupFile>,
+    /// Further traffic matrices over the same sites and links (the top-level `demands`
+    /// are the matrix `base`).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub matrices: Vec<MatrixFile>,
+}
+
+/// One top-level `matrices[]` entry: a named demand list over the file's sites.
+#[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
+pub struct MatrixFile {
+    /// The matrix's name (unique, not `base`).
+    pub id: String,
+    /// Its demands, each shaped like a top-level `demands[]` entry.
+    #[serde(default)]
+    pub demands: Vec<DemandFile>,
+    /// Free text for the user; read, never printed.
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub notes: Option<String>,
 }
 
 /// One `sites[]` entry.

@@ -9,8 +9,8 @@ pub mod network;
 pub mod strict;
 
 pub use network::{
-    Arc, Demand, Expansion, Link, LinkIdx, MAX_AMOUNT, MAX_METRIC, MAX_TOTAL, Network, RiskGroup,
-    Site, SiteIdx,
+    Arc, BASE_MATRIX, Demand, Expansion, Link, LinkIdx, MAX_AMOUNT, MAX_METRIC, MAX_TOTAL, Matrix,
+    Network, RiskGroup, Site, SiteIdx,
 };
 
 use std::io::Read;

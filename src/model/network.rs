@@ -15,7 +15,7 @@
 
 use std::collections::{BTreeMap, HashMap};
 
-use super::file::{DemandFile, LinkFile, NetworkFile, RiskGroupFile, SiteFile};
+use super::file::{DemandFile, LinkFile, MatrixFile, NetworkFile, RiskGroupFile, SiteFile};
 use super::strict::{self, check_id, check_label, printable};
 use crate::error::{Error, Result};
 
@@ -119,6 +119,17 @@ pub struct RiskGroup {
     pub failure_probability: Option<f64>,
 }
 
+/// The name of matrix 0, the file's top-level `demands`.
+pub const BASE_MATRIX: &str = "base";
+
+/// One further traffic matrix, lowered into its own view: the same sites, links, arcs and
+/// groups with the matrix's demands (and no matrices of its own).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Matrix {
+    pub id: String,
+    pub view: std::sync::Arc<Network>,
+}
+
 /// A network whose every reference and number has been checked.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Network {
@@ -129,6 +140,10 @@ pub struct Network {
     pub arcs: Vec<Arc>,
     pub demands: Vec<Demand>,
     pub groups: Vec<RiskGroup>,
+    /// The further traffic matrices of the file, in file order (matrix `m` ≥ 1 is
+    /// `matrices[m - 1]`; matrix 0 is `demands`, named `base`). Empty without any, and
+    /// always empty in a matrix's own view.
+    pub matrices: Vec<Matrix>,
     site_index: HashMap<String, SiteIdx>,
     link_index: HashMap<String, LinkIdx>,
     group_index: HashMap<String, usize>,
@@ -498,7 +513,8 @@ impl Network {
             }
         }
 
-        Ok(Network {
+        let matrix_files = std::mem::take(&mut file.matrices);
+        let mut net = Network {
             name: file.name.unwrap_or_else(|| "unnamed network".into()),
             unit: file.unit.unwrap_or_else(|| "units".into()),
             sites,
@@ -506,10 +522,46 @@ impl Network {
             arcs,
             demands,
             groups,
+            matrices: Vec::new(),
             site_index,
             link_index,
             group_index,
-        })
+        };
+        net.matrices = lower_matrices(&net, matrix_files)?;
+        Ok(net)
+    }
+
+    /// The network under matrix `m` (0: this network, `base`; `m` ≥ 1: the view of
+    /// `matrices[m - 1]`). A view has no matrices, so a view returns itself for any `m`:
+    /// resolving twice is harmless. O(1).
+    pub fn view(&self, m: usize) -> &Network {
+        if m == 0 || self.matrices.is_empty() {
+            self
+        } else {
+            &self.matrices[m - 1].view
+        }
+    }
+
+    /// How many traffic matrices the file has (1 + `matrices`).
+    pub fn matrix_count(&self) -> usize {
+        1 + self.matrices.len()
+    }
+
+    /// The name of matrix `m`: `base` for 0, else its id.
+    pub fn matrix_id(&self, m: usize) -> &str {
+        if m == 0 {
+            BASE_MATRIX
+        } else {
+            &self.matrices[m - 1].id
+        }
+    }
+
+    /// The index of the matrix named `id` (`base` is 0). O(matrices).
+    pub fn matrix_index(&self, id: &str) -> Option<usize> {
+        if id == BASE_MATRIX {
+            return Some(0);
+        }
+        self.matrices.iter().position(|m| m.id == id).map(|i| i + 1)
     }
 
     pub fn site(&self, id: &str) -> Option<SiteIdx> {
@@ -610,6 +662,15 @@ impl Network {
                     })
                 })
                 .collect(),
+            matrices: self
+                .matrices
+                .iter()
+                .map(|m| MatrixFile {
+                    id: m.id.clone(),
+                    demands: m.view.to_file().demands,
+                    notes: None,
+                })
+                .collect(),
         }
     }
 
@@ -619,8 +680,57 @@ impl Network {
         for (s, &a) in n.sites.iter_mut().zip(add) {
             s.processing += a;
         }
+        for m in &mut n.matrices {
+            m.view = std::sync::Arc::new(m.view.with_added_processing(add));
+        }
         n
     }
+}
+
+/// Lowers the file's `matrices` into views of `net` (its sites, links and groups with each
+/// matrix's demands), checking each demand list as the top-level one is checked (errors
+/// say `matrices[i] (id "…"): demands[j] …`) and each id: a valid id, unique, not
+/// `base`. O(matrices × size of the network).
+fn lower_matrices(net: &Network, files: Vec<MatrixFile>) -> Result<Vec<Matrix>> {
+    if files.is_empty() {
+        return Ok(Vec::new());
+    }
+    let mut base = net.to_file();
+    base.demands = Vec::new();
+    base.matrices = Vec::new();
+    let mut seen: HashMap<String, usize> = HashMap::new();
+    let mut out = Vec::with_capacity(files.len());
+    for (i, m) in files.into_iter().enumerate() {
+        let el = format!("matrices[{i}] (id \"{}\")", printable(&m.id));
+        check_id(&el, "id", &m.id, true)?;
+        if m.id == BASE_MATRIX {
+            return Err(Error::Input(format!(
+                "{el}: field `id` may not be \"{BASE_MATRIX}\": that name is the top-level \
+                 `demands`; name this matrix otherwise"
+            )));
+        }
+        if let Some(prev) = seen.insert(m.id.clone(), i) {
+            return Err(Error::Input(format!(
+                "{el}: field `id` value \"{}\" is already used by matrices[{prev}]; matrix \
+                 ids are unique",
+                printable(&m.id)
+            )));
+        }
+        let mut file = base.clone();
+        file.demands = m.demands;
+        let view = Network::from_file(file).map_err(|e| match e {
+            Error::Input(msg) => Error::Input(format!("{el}: {msg}")),
+            other => other,
+        })?;
+        let mut view = view;
+        view.name = net.name.clone();
+        view.unit = net.unit.clone();
+        out.push(Matrix {
+            id: m.id,
+            view: std::sync::Arc::new(view),
+        });
+    }
+    Ok(out)
 }
 
 /// The contract's shape that serde alone does not enforce: the document is an object,
@@ -634,7 +744,7 @@ fn check_shape(value: &serde_json::Value) -> Result<()> {
             kind_of(value)
         )));
     };
-    for list in ["sites", "links", "demands", "risk_groups"] {
+    for list in ["sites", "links", "demands", "risk_groups", "matrices"] {
         match obj.get(list) {
             None => {}
             Some(serde_json::Value::Null) => {
@@ -655,6 +765,20 @@ fn check_shape(value: &serde_json::Value) -> Result<()> {
                             kind_of(item),
                             short(item)
                         )));
+                    }
+                    if list == "matrices"
+                        && let Some(serde_json::Value::Array(ds)) = item.get("demands")
+                    {
+                        for (j, d) in ds.iter().enumerate() {
+                            if !d.is_object() {
+                                return Err(Error::Input(format!(
+                                    "matrices[{i}].demands[{j}]: must be an object with \
+                                     named fields, got {}: {}",
+                                    kind_of(d),
+                                    short(d)
+                                )));
+                            }
+                        }
                     }
                 }
             }

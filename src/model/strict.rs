@@ -25,7 +25,15 @@ pub const USER_PREFIX: &str = "x-";
 pub const NOTES: &str = "notes";
 
 /// Fields of the document itself.
-pub const TOP_FIELDS: &[&str] = &["name", "unit", "sites", "links", "demands", "risk_groups"];
+pub const TOP_FIELDS: &[&str] = &[
+    "name",
+    "unit",
+    "sites",
+    "links",
+    "demands",
+    "risk_groups",
+    "matrices",
+];
 /// Fields of a `sites[]` entry.
 pub const SITE_FIELDS: &[&str] = &[
     "id",
@@ -50,6 +58,8 @@ pub const LINK_FIELDS: &[&str] = &[
 ];
 /// Fields of a `demands[]` entry.
 pub const DEMAND_FIELDS: &[&str] = &["id", "from", "to", "volume", "required"];
+/// Fields of a top-level `matrices[]` entry.
+pub const MATRIX_FIELDS: &[&str] = &["id", "demands"];
 /// Fields of a top-level `risk_groups[]` entry.
 pub const RISK_GROUP_FIELDS: &[&str] = &["id", "failure_probability"];
 
@@ -59,6 +69,7 @@ pub const LISTS: &[(&str, &[&str])] = &[
     ("links", LINK_FIELDS),
     ("demands", DEMAND_FIELDS),
     ("risk_groups", RISK_GROUP_FIELDS),
+    ("matrices", MATRIX_FIELDS),
 ];
 
 /// Largest edit distance ([`osa_distance`]) at which an unknown field is offered as a near
@@ -322,6 +333,7 @@ pub fn check_fields(value: &Value) -> Result<()> {
             "sites" => "a site",
             "links" => "a link",
             "demands" => "a demand",
+            "matrices" => "a traffic matrix",
             _ => "a risk group entry",
         };
         let Some(items) = top.get(list).and_then(Value::as_array) else {
@@ -330,7 +342,18 @@ pub fn check_fields(value: &Value) -> Result<()> {
         for (i, item) in items.iter().enumerate() {
             if let Some(obj) = item.as_object() {
                 let id = obj.get("id").and_then(Value::as_str);
-                check_object(&element_at(list, i, id), what, obj, fields)?;
+                let at = element_at(list, i, id);
+                check_object(&at, what, obj, fields)?;
+                // A matrix's demands are checked like the top-level ones.
+                if let Some(demands) = obj.get("demands").and_then(Value::as_array) {
+                    for (j, d) in demands.iter().enumerate() {
+                        if let Some(dobj) = d.as_object() {
+                            let did = dobj.get("id").and_then(Value::as_str);
+                            let inner = format!("{at}: {}", element_at("demands", j, did));
+                            check_object(&inner, "a demand", dobj, DEMAND_FIELDS)?;
+                        }
+                    }
+                }
             }
         }
     }

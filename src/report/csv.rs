@@ -6,7 +6,8 @@
 //! first data row and is empty below it, so the caution travels with the data without a
 //! comment line that plain RFC 4180 readers would take for the header. The
 //! `failed` column is the scenario's elements joined with `,` (a `--fail` list; empty for
-//! the baseline). Numbers are the JSON document's (rounded with [`super::file_num`]), so the
+//! the baseline); a file with `matrices` adds a `matrix` column after it (one row per
+//! scenario and matrix). Numbers are the JSON document's (rounded with [`super::file_num`]), so the
 //! two files agree exactly. Fields are quoted as RFC 4180 asks (a comma, a quote or a line
 //! break inside; quotes doubled).
 
@@ -49,15 +50,19 @@ impl Exporter for Csv {
 
 fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
     let (audit, closings, risk) = (m.audit, m.closings, m.risk);
-    let mut header = vec![
-        "failed",
+    let several = m.several_matrices();
+    let mut header = vec!["failed"];
+    if several {
+        header.push("matrix");
+    }
+    header.extend([
         "rank",
         "required",
         "served_required",
         "shortfall",
         "stranded",
         "throughput",
-    ];
+    ]);
     if closings.is_some() {
         header.extend(["closing_cost", "not_closable"]);
     }
@@ -73,15 +78,18 @@ fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
     let (rank_of, folding) = (&m.rank_of, &m.folding);
     for (i, s) in audit.scenarios.iter().enumerate() {
         let e = audit.eval(i);
-        let mut row = vec![
-            failed_list(s),
+        let mut row = vec![failed_list(s)];
+        if several {
+            row.push(field(m.net.matrix_id(s.matrix)));
+        }
+        row.extend([
             rank_of[i].to_string(),
             number(e.surviving_required),
             number(e.served_required),
             number(e.shortfall),
             number(e.stranded),
             number(e.throughput),
-        ];
+        ]);
         if let Some(c) = closings {
             match &c[audit.outage_of[i]] {
                 Some(c) => row.extend([number(c.cost), number(c.not_closable)]),

@@ -21,7 +21,7 @@ pub struct HeadroomJson {
     /// The failed elements of the scenario that sets it (`[]` when `value` is null).
     pub failed: Vec<String>,
     /// The traffic matrix the value is taken under (`base`: the file's `demands`).
-    pub matrix: &'static str,
+    pub matrix: String,
     /// `proven`, `unproven` (then `value` is the proven lower bound) or `none`.
     pub status: &'static str,
 }
@@ -63,7 +63,15 @@ pub fn attach<'a>(doc: &mut AuditJson<'a>, m: &Model<'a>) {
             .filter(|_| least.value.is_some())
             .map(|i| audit.scenarios[i].failed.clone())
             .unwrap_or_default(),
-        matrix: "base",
+        matrix: m
+            .net
+            .matrix_id(
+                least
+                    .scenario
+                    .filter(|_| least.value.is_some())
+                    .map_or(0, |i| audit.scenarios[i].matrix),
+            )
+            .to_string(),
         status: match least.value {
             None => "none",
             Some(_) => status(least.proven),
@@ -260,6 +268,7 @@ pub fn compare_json(c: &headroom::Comparison) -> CompareJson {
             limit: g.limit,
             worst: g.value.is_finite().then(|| file_num(g.value)),
             worst_scenario: c.after.1.clone(),
+            matrix: None,
             passed: g.passed,
         }),
     }

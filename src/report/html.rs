@@ -164,7 +164,7 @@ impl Model<'_> {
                     percent(e.shortfall, e.surviving_required),
                     num(e.stranded),
                     num(file_diff(self.baseline.throughput, e.throughput).max(0.0)),
-                    super::text::main_bottleneck(self.net, e),
+                    super::text::main_bottleneck(self.net.view(self.audit.scenarios[i].matrix), e),
                 ]
             })
             .collect();
@@ -480,7 +480,8 @@ fn why_section(o: &mut String, r: &Report<'_>) {
             None => return,
         },
     };
-    let net = r.net;
+    // The scenario's demands are its traffic matrix's.
+    let net = r.net.view(r.audit.scenarios[i].matrix);
     let u = &net.unit;
     let e = r.audit.eval(i);
     let _ = writeln!(

@@ -134,11 +134,18 @@ pub struct GateJson {
     /// required demand.
     pub worst: Option<f64>,
     pub worst_scenario: Option<Vec<String>>,
+    /// The traffic matrix of `worst_scenario`; absent for a file without `matrices`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
     pub passed: bool,
 }
 
 /// The `gates` array of an audit document.
-pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJson> {
+pub fn gates_json(
+    net: &Network,
+    audit: &Audit,
+    gates: &[crate::gate::GateResult],
+) -> Vec<GateJson> {
     use crate::gate::GateKind;
     gates
         .iter()
@@ -152,6 +159,10 @@ pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJ
             limit: g.limit,
             worst: g.value.is_finite().then(|| file_num(g.value)),
             worst_scenario: g.scenario.map(|i| audit.scenarios[i].failed.clone()),
+            matrix: g
+                .scenario
+                .filter(|_| net.matrix_count() > 1)
+                .map(|i| net.matrix_id(audit.scenarios[i].matrix).to_string()),
             passed: g.passed,
         })
         .collect()
@@ -160,6 +171,10 @@ pub fn gates_json(audit: &Audit, gates: &[crate::gate::GateResult]) -> Vec<GateJ
 #[derive(Serialize)]
 pub struct ScenarioJson {
     pub failed: Vec<String>,
+    /// The traffic matrix (`base`: the file's `demands`); absent for a file without
+    /// `matrices`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
     pub served_required: f64,
     pub shortfall: f64,
     pub stranded: f64,
@@ -342,6 +357,7 @@ pub fn scenario_json(
 ) -> ScenarioJson {
     ScenarioJson {
         failed: failed.to_vec(),
+        matrix: None,
         served_required: file_num(e.served_required),
         shortfall: file_num(e.shortfall),
         stranded: file_num(e.stranded),
@@ -460,6 +476,9 @@ pub struct LazyScenarios<'a> {
     full: Full<'a>,
     /// Per scenario: the failed list of the smallest equivalent scenario, when folded.
     same_as: Vec<Option<Vec<String>>>,
+    /// Per matrix: its baseline when the run holds it (empty for a file without
+    /// `matrices`: every scenario then reads `baseline` and carries no `matrix`).
+    baselines: Vec<Option<&'a Evaluation>>,
     /// Additions of other parts of the report (risk, routed fields), applied to every
     /// scenario object as it is written.
     patches: Vec<Patch<'a>>,
@@ -487,14 +506,24 @@ impl LazyScenarios<'_> {
         } else {
             held
         };
+        let sc = &self.audit.scenarios[i];
+        let baseline = self
+            .baselines
+            .get(sc.matrix)
+            .copied()
+            .flatten()
+            .unwrap_or(self.baseline);
         let mut j = scenario_json(
-            self.net,
-            &self.audit.scenarios[i].failed,
+            self.net.view(sc.matrix),
+            &sc.failed,
             e,
-            self.baseline,
+            baseline,
             self.rank_of[i],
             self.detail[i],
         );
+        if !self.baselines.is_empty() {
+            j.matrix = Some(self.net.matrix_id(sc.matrix).to_string());
+        }
         j.closing = self.closing.map(|c| c[i].clone());
         j.same_as = self.same_as[i].clone();
         for p in &self.patches {
@@ -574,6 +603,7 @@ pub fn audit_json_with<'a>(
         detail,
         full: m.full,
         same_as,
+        baselines: m.matrix_baselines.clone(),
         patches: Vec::new(),
     };
     AuditJson {
@@ -588,7 +618,19 @@ pub fn audit_json_with<'a>(
             .unwrap_or_default(),
         risk: None,
         detail: detail_json,
-        baseline: scenario_json(net, &[], baseline, baseline, 0, true),
+        baseline: {
+            // The run's baseline is its first baseline scenario's (the first matrix run).
+            let mx = audit
+                .scenarios
+                .iter()
+                .find(|s| s.is_baseline())
+                .map_or(0, |s| s.matrix);
+            let mut b = scenario_json(net.view(mx), &[], baseline, baseline, 0, true);
+            if m.several_matrices() {
+                b.matrix = Some(net.matrix_id(mx).to_string());
+            }
+            b
+        },
         scenarios,
         criticality: m
             .criticality
@@ -621,7 +663,7 @@ impl Exporter for Json {
             Some(ra) => super::routing::audit_json(m, ra, closing_json.as_deref()),
             None => audit_json_with(m, closing_json.as_deref()),
         };
-        doc.gates = gates_json(m.audit, m.gates);
+        doc.gates = gates_json(m.net, m.audit, m.gates);
         if let Some(r) = m.risk {
             attach_risk(&mut doc, m.net, m.audit, r);
         }
@@ -754,6 +796,9 @@ pub struct RoundJson {
 #[derive(Serialize)]
 pub struct PlanScenarioJson {
     pub failed: Vec<String>,
+    /// The traffic matrix (absent for a file without `matrices`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
     pub shortfall_before: f64,
     pub shortfall_after: f64,
     pub not_closable: f64,
@@ -825,6 +870,7 @@ pub fn plan_json(
                 let before = &audit.evaluations[k];
                 PlanScenarioJson {
                     failed: s.failed.clone(),
+                    matrix: s.matrix_name.as_deref().map(str::to_string),
                     shortfall_before: file_num(before.shortfall),
                     shortfall_after: file_num(plan.after[k].shortfall),
                     not_closable: file_diff(before.surviving_required, plan.best[k]).max(0.0),

@@ -101,6 +101,9 @@ pub struct Model<'a> {
     pub headroom: Option<&'a AuditHeadroom>,
     /// Which scenarios of the `--json` document carry the per-demand lists.
     pub detail: Detail,
+    /// Per traffic matrix: its baseline's evaluation when the run holds it (a file with
+    /// `matrices`); empty otherwise, and then every scenario reads `baseline`.
+    pub matrix_baselines: Vec<Option<&'a Evaluation>>,
 }
 
 impl<'a> Model<'a> {
@@ -116,11 +119,23 @@ impl<'a> Model<'a> {
             rank_of[i] = r + 1;
         }
         let folding = Folding::of(audit);
+        // With several matrices the tables show each scenario once, under its worst matrix
+        // (the first of its pairs in the worst-first order).
+        let several = p.net.matrix_count() > 1;
+        let mut seen: std::collections::HashSet<&[String]> = Default::default();
         let shown = order
             .iter()
             .copied()
             .filter(|&i| folding.into[i].is_none())
+            .filter(|&i| !several || seen.insert(&audit.scenarios[i].failed[..]))
             .collect();
+        let matrix_baselines = if several {
+            (0..p.net.matrix_count())
+                .map(|m| audit.baseline_under(m))
+                .collect()
+        } else {
+            Vec::new()
+        };
         let short = (0..audit.scenarios.len())
             .filter(|&i| audit.eval(i).shortfall > 0.0)
             .count();
@@ -148,7 +163,29 @@ impl<'a> Model<'a> {
             drawing: None,
             headroom: p.headroom,
             detail: p.detail,
+            matrix_baselines,
         }
+    }
+
+    /// Whether the file has several traffic matrices (the reports then name them).
+    pub fn several_matrices(&self) -> bool {
+        self.net.matrix_count() > 1
+    }
+
+    /// The baseline scenario `i` is compared with: its matrix's baseline when the run
+    /// holds it, else the run's baseline. O(1).
+    pub fn baseline_of(&self, i: usize) -> &'a Evaluation {
+        let m = self.audit.scenarios[i].matrix;
+        self.matrix_baselines
+            .get(m)
+            .copied()
+            .flatten()
+            .unwrap_or(self.baseline)
+    }
+
+    /// Scenario `i`'s matrix view of the network (its demands), for demand names. O(1).
+    pub fn net_of(&self, i: usize) -> &'a Network {
+        self.net.view(self.audit.scenarios[i].matrix)
     }
 
     /// The model with the map's geometry computed ([`super::map::Drawing::of`]: the

@@ -53,7 +53,7 @@ pub fn all_scenarios(m: &Model<'_>) -> (Vec<(String, bool)>, Vec<Row>) {
         .take(MAX_ROWS)
         .map(|&i| {
             let e = m.audit.eval(i);
-            let loss = file_diff(m.baseline.throughput, e.throughput).max(0.0);
+            let loss = file_diff(m.baseline_of(i).throughput, e.throughput).max(0.0);
             let ratio = if e.surviving_required > 0.0 {
                 e.shortfall / e.surviving_required
             } else {
@@ -66,7 +66,7 @@ pub fn all_scenarios(m: &Model<'_>) -> (Vec<(String, bool)>, Vec<Row>) {
                 (percent(e.shortfall, e.surviving_required), Some(ratio)),
                 (num(e.stranded), Some(e.stranded)),
                 (num(loss), Some(loss)),
-                (super::text::main_bottleneck(m.net, e), None),
+                (super::text::main_bottleneck(m.net_of(i), e), None),
             ];
             if let Some(ra) = m.routed {
                 let k = m.audit.outage_of[i];

@@ -50,25 +50,31 @@ pub fn text(net: &Network, w: &Worst) -> String {
     if w.sets.is_empty() {
         s.push_str("No set of the pool loses any required demand.\n");
     } else {
-        let mut t = table(&[
-            "rank",
-            "failed",
-            "shortfall",
-            "stranded",
-            "lost",
-            "served required",
-        ]);
+        let several = net.matrix_count() > 1;
+        let mut header = vec!["rank", "failed"];
+        if several {
+            header.push("matrix");
+        }
+        header.extend(["shortfall", "stranded", "lost", "served required"]);
+        let mut t = table(&header);
         for (i, set) in w.sets.iter().enumerate() {
-            t.add_row(vec![
-                (i + 1).to_string(),
-                set.failed.join(" + "),
+            let mut row = vec![(i + 1).to_string(), set.failed.join(" + ")];
+            if several {
+                row.push(net.matrix_id(set.matrix).to_string());
+            }
+            row.extend([
                 num(set.shortfall),
                 num(set.stranded),
                 num(set.lost),
                 num(set.served_required),
             ]);
+            t.add_row(row);
         }
-        right(&mut t, &[0, 2, 3, 4, 5]);
+        if several {
+            right(&mut t, &[0, 3, 4, 5, 6]);
+        } else {
+            right(&mut t, &[0, 2, 3, 4, 5]);
+        }
         s.push_str(&render(&mut t, &[1]));
         s.push('\n');
     }
@@ -125,6 +131,9 @@ pub struct SetJson {
     pub served_required: f64,
     /// The served_required LP was proven optimal.
     pub proven: bool,
+    /// The traffic matrix (absent for a file without `matrices`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
 }
 
 /// The `proof` object.
@@ -203,6 +212,7 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
                 lost: file_num(s.lost),
                 served_required: file_num(s.served_required),
                 proven: s.proven,
+                matrix: (net.matrix_count() > 1).then(|| net.matrix_id(s.matrix).to_string()),
             })
             .collect(),
         proof: ProofJson {

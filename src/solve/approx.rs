@@ -87,6 +87,7 @@ pub fn epsilon_ok(eps: f64) -> bool {
 ///
 /// Cost: one or two runs of [`solve_approx`].
 pub fn evaluate_approx(net: &Network, outage: &Outage, eps: f64) -> Result<Evaluation> {
+    let net = net.view(outage.matrix);
     let view = Surviving::new(net, outage, None);
     let required = solve_approx(net, &view, Cap::Required, eps)?;
     let volume = if super::needs_volume_lp(net, outage) {

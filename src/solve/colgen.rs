@@ -1375,6 +1375,7 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
 /// and one pricing pass each. Memory: O(columns · walk length + sites²), independent of
 /// sources × arcs.
 pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) -> Result<Walked> {
+    let net = net.view(outage.matrix);
     let view = Surviving::new(net, outage, None);
     let g = Graph::new(net, &view);
     let mut stats = Stats::default();

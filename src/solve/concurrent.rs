@@ -84,6 +84,7 @@ impl Headroom {
 /// demand), solved by the backends of [`LADDER`] in turn until proven, plus one repair and
 /// one certificate per attempt.
 pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
+    let net = net.view(outage.matrix);
     headroom_on(net, &Surviving::new(net, outage, None))
 }
 

@@ -173,6 +173,7 @@ impl Evaluator for Edge {
     }
 
     fn evaluate(&self, net: &Network, outage: &Outage, _: Option<&Warm>) -> Result<Evaluated> {
+        let net = net.view(outage.matrix);
         let view = Surviving::new(net, outage, None);
         let required = solve_verified(net, &view, Cap::Required)?;
         let volume = if needs_volume_lp(net, outage) {

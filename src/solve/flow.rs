@@ -166,6 +166,7 @@ pub fn build(
     obj: f64,
     added: Option<&[Option<usize>]>,
 ) -> FlowIndex {
+    let net = net.view(outage.matrix);
     let n = net.sites.len();
     let expandable: Option<Vec<bool>> = added.map(|a| {
         (0..n)

@@ -300,6 +300,7 @@ fn value_of(v: &Verification, total: f64, p: &Proven, what: &str) -> Result<f64,
 /// source and per processing site), and one pass over the walks; plus O(demands + arcs +
 /// sites) comparisons.
 pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), String> {
+    let net = net.view(outage.matrix);
     let proof = e
         .proof
         .as_deref()

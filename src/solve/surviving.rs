@@ -47,6 +47,13 @@ impl Surviving {
     /// The view of `net` under `outage`. `expandable[v]`, when given, lets site `v` process
     /// even with capacity 0 (an expansion model's added-processing variable).
     pub fn new(net: &Network, outage: &Outage, expandable: Option<&[bool]>) -> Surviving {
+        // `net` is the outage's matrix view (callers resolve `Network::view` first): the
+        // demands read beside this view must be the matrix's.
+        debug_assert!(
+            outage.matrix == 0 || net.matrices.is_empty(),
+            "an outage under matrix {} read against the base network",
+            outage.matrix
+        );
         let n = net.sites.len();
         let site_alive = outage.site_alive(net);
         let link_alive = outage.link_alive(net);

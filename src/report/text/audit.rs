@@ -36,9 +36,10 @@ pub fn verdict(m: &Model<'_>) -> String {
         Some(i) if short > 0 => {
             let e = audit.eval(i);
             format!(
-                "{short} of {n} scenario{} short; worst {} (shortfall {}, stranded {})",
+                "{short} of {n} scenario{} short; worst {}{} (shortfall {}, stranded {})",
                 plural(n),
                 audit.scenarios[i].display_name(),
+                "",
                 amount(e.shortfall, u),
                 amount(e.stranded, u)
             )
@@ -64,15 +65,40 @@ pub fn verdict(m: &Model<'_>) -> String {
     }
 }
 
+/// ` under matrix ID` for scenario `i` of a file with `matrices`; empty otherwise.
+pub fn under_matrix(m: &Model<'_>, i: usize) -> String {
+    if m.several_matrices() {
+        format!(
+            " under matrix {}",
+            m.net.matrix_id(m.audit.scenarios[i].matrix)
+        )
+    } else {
+        String::new()
+    }
+}
+
 /// The audit report: header, worst scenarios, element criticality (the caller ends the
 /// report with [`caution`]).
 pub fn audit_report(m: &Model<'_>) -> String {
     let (net, audit, baseline, top) = (m.net, m.audit, m.baseline, m.top);
     let u = &net.unit;
     let mut out = String::new();
+    let pairs = if m.several_matrices() {
+        let mut ms: Vec<usize> = audit.scenarios.iter().map(|s| s.matrix).collect();
+        ms.sort_unstable();
+        ms.dedup();
+        let n = audit.scenarios.len() / ms.len().max(1);
+        if let [one] = ms[..] {
+            format!(" under matrix {}", net.matrix_id(one))
+        } else {
+            format!(" ({n} scenario{} × {} matrices)", plural(n), ms.len())
+        }
+    } else {
+        String::new()
+    };
     let _ = writeln!(
         out,
-        "{} — {} scenario{} ({} distinct outage{}), {} site{}, {} link{}, {} demand{}",
+        "{} — {} scenario{}{pairs} ({} distinct outage{}), {} site{}, {} link{}, {} demand{}",
         net.name,
         audit.scenarios.len(),
         plural(audit.scenarios.len()),
@@ -93,9 +119,22 @@ pub fn audit_report(m: &Model<'_>) -> String {
         amount(baseline.surviving_required, u),
         percent(baseline.served_required, baseline.surviving_required),
         num(baseline.throughput),
-        amount(net.total_volume(), u),
+        amount(
+            net.view(
+                audit
+                    .scenarios
+                    .iter()
+                    .find(|s| s.is_baseline())
+                    .map_or(0, |s| s.matrix)
+            )
+            .total_volume(),
+            u
+        ),
         small(baseline.certified_gap())
     );
+    if m.several_matrices() {
+        let _ = writeln!(out, "{}", matrices_line(m));
+    }
     let down: Vec<String> = audit
         .scenarios
         .first()
@@ -121,7 +160,16 @@ pub fn audit_report(m: &Model<'_>) -> String {
             let _ = writeln!(
                 out,
                 "Baseline: {}.",
-                baseline_misses(net, &baseline.cut_off)
+                baseline_misses(
+                    net.view(
+                        audit
+                            .scenarios
+                            .iter()
+                            .find(|s| s.is_baseline())
+                            .map_or(0, |s| s.matrix)
+                    ),
+                    &baseline.cut_off
+                )
             );
         }
     }
@@ -130,7 +178,12 @@ pub fn audit_report(m: &Model<'_>) -> String {
     let all = m.order.len();
     let order = &m.shown;
     let shown = top.min(order.len());
-    let mut header: Vec<&str> = vec!["#", "failed", "shortfall"];
+    let several = m.several_matrices();
+    let mut header: Vec<&str> = vec!["#", "failed"];
+    if several {
+        header.push("worst matrix");
+    }
+    header.push("shortfall");
     if base_short {
         header.push("beyond baseline");
     }
@@ -144,18 +197,22 @@ pub fn audit_report(m: &Model<'_>) -> String {
     let mut widest_name = 0;
     for (rank_no, &i) in order.iter().take(shown).enumerate() {
         let e = audit.eval(i);
+        let (net, baseline) = (m.net_of(i), m.baseline_of(i));
         let mut row = vec![
             Cell::new(rank_no + 1),
             Cell::new({
                 let name = match folding.equivalents[i] {
-                    0 => audit.scenarios[i].display_name(),
-                    n => format!("{} (+{n} equivalent)", audit.scenarios[i].display_name()),
+                    0 => audit.scenarios[i].failed_name(),
+                    n => format!("{} (+{n} equivalent)", audit.scenarios[i].failed_name()),
                 };
                 widest_name = widest_name.max(name.chars().count());
                 name
             }),
-            Cell::new(num(e.shortfall)),
         ];
+        if several {
+            row.push(Cell::new(m.net.matrix_id(audit.scenarios[i].matrix)));
+        }
+        row.push(Cell::new(num(e.shortfall)));
         if base_short {
             row.push(Cell::new(num(
                 file_diff(e.shortfall, baseline.shortfall).max(0.0)
@@ -177,7 +234,8 @@ pub fn audit_report(m: &Model<'_>) -> String {
     }
     // Every column but the name and the bottleneck is a number; the bottleneck is last.
     let last = header.len() - 1;
-    let numeric: Vec<usize> = std::iter::once(0).chain(2..last).collect();
+    let first_number = if several { 3 } else { 2 };
+    let numeric: Vec<usize> = std::iter::once(0).chain(first_number..last).collect();
     let free = vec![last];
     // A long scenario name (depth 2 and more) wraps at its spaces, between whole element
     // names; a short one stays on one line.
@@ -466,5 +524,35 @@ pub fn write_shard(
          parts with `redoubt merge PART… --json FILE`)",
         crate::report::count(outages, "outage"),
         printable(&part.display().to_string())
+    )
+}
+
+/// The line naming the run's traffic matrices: each with its demand count and required
+/// total, and how the table shows them. O(matrices · demands).
+fn matrices_line(m: &Model<'_>) -> String {
+    let u = &m.net.unit;
+    let mut ms: Vec<usize> = Vec::new();
+    for s in &m.audit.scenarios {
+        if !ms.contains(&s.matrix) {
+            ms.push(s.matrix);
+        }
+    }
+    let each: Vec<String> = ms
+        .iter()
+        .map(|&k| {
+            let v = m.net.view(k);
+            format!(
+                "{} ({} demand{}, {} required)",
+                m.net.matrix_id(k),
+                v.demands.len(),
+                plural(v.demands.len()),
+                amount(v.total_required(), u)
+            )
+        })
+        .collect();
+    format!(
+        "Traffic matrices: {}. Every scenario is solved under each; the table shows each \
+         scenario once, under its worst matrix.",
+        each.join(", ")
     )
 }

@@ -78,6 +78,36 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) ->
     if !baseline_cut_off.is_empty() {
         let _ = writeln!(out, "  {}", baseline_misses(net, baseline_cut_off));
     }
+    if !net.matrices.is_empty() {
+        let _ = writeln!(
+            out,
+            "  traffic matrices ({}; every scenario is evaluated under each):",
+            net.matrix_count()
+        );
+        for m in 0..net.matrix_count() {
+            let v = net.view(m);
+            let _ = writeln!(
+                out,
+                "    {} — {} demand{}, volume {}, required {}{}",
+                net.matrix_id(m),
+                v.demands.len(),
+                if v.demands.len() == 1 { "" } else { "s" },
+                amount(v.total_volume(), u),
+                amount(v.total_required(), u),
+                if m == 0 {
+                    " (the top-level demands)"
+                } else {
+                    ""
+                }
+            );
+            if m > 0 {
+                let cut = crate::solve::baseline_cut_off(v);
+                if !cut.is_empty() {
+                    let _ = writeln!(out, "      {}", baseline_misses(v, &cut));
+                }
+            }
+        }
+    }
     if net.groups.is_empty() {
         let _ = writeln!(out, "  risk groups: none");
     } else {

@@ -26,7 +26,7 @@ mod plan;
 mod risk;
 mod why;
 
-pub use audit::{audit_report, verdict, verification_summary, write_shard};
+pub use audit::{audit_report, under_matrix, verdict, verification_summary, write_shard};
 pub use check::{check_summary, write_check};
 pub use compare::write_compare;
 pub(crate) use compare::{scenario_words, signed, verdict_line};

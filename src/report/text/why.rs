@@ -17,8 +17,10 @@ pub struct WhyPart<'a> {
 /// added processing can and cannot fix, and the links whose growth would serve more (their
 /// shadow prices).
 pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
-    let u = &net.unit;
     let i = why.scenario;
+    // The explained scenario's demands are its traffic matrix's.
+    let net = net.view(audit.scenarios[i].matrix);
+    let u = &net.unit;
     let e = audit.eval(i);
     let name = audit.scenarios[i].display_name();
     let mut out = String::new();

@@ -68,6 +68,7 @@ pub fn cost_master<'a>(
     add: &[Option<usize>],
     target: f64,
 ) -> Result<Option<(AddModel, WalkCloser<'a>)>> {
+    let net = net.view(outage.matrix);
     let expandable: Vec<bool> = add.iter().map(Option::is_some).collect();
     let view = Surviving::new(net, outage, Some(&expandable));
     let g = Graph::new(net, &view);
