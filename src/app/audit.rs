@@ -105,6 +105,34 @@ pub(super) fn run(
     let (net, text) = read_network(input)?;
     let list = scenario_list(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err);
+    if net.chains.is_some() {
+        for (given, flag) in [
+            (
+                args.scenarios.routing.is_some(),
+                "--routing nearest|steered",
+            ),
+            (args.close, "--close"),
+            (args.headroom, "--headroom"),
+            (args.why, "--why"),
+            (shard.is_some(), "--shard"),
+            (args.resume, "--resume"),
+            (
+                matches!(args.engine, crate::solve::Engine::Approx { .. }),
+                "--engine approx",
+            ),
+        ] {
+            if given {
+                super::chains_refused(&net, &format!("audit {flag}"))?;
+            }
+        }
+        if !args.scenarios.quiet {
+            note(writeln!(
+                err,
+                "note: the file lists `functions`: every scenario is solved with the layered \
+                 edge LP of service chains (the walk engine does not take chains yet)"
+            ));
+        }
+    }
     if let Some(mode) = args.scenarios.routing {
         if args.close && mode == routing::Mode::Nearest {
             return Err(nearest_refused("audit --close"));

@@ -50,6 +50,8 @@ pub(super) fn run(
         report::file::check_output("--json", json, &[&args.before, &args.after])?;
     }
     let (nb, na) = (load(&args.before)?, load(&args.after)?);
+    super::chains_refused(&nb, "compare")?;
+    super::chains_refused(&na, "compare")?;
     same_unit(&nb, &na)?;
     let opts = run_options(&args.sides, err);
     let (nb, ab) = audit_side(args, nb, &args.before, "BEFORE", opts, err)?;

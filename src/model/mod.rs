@@ -2,11 +2,13 @@
 //! model ([`network`]).
 
 pub mod apply;
+pub mod chains;
 pub mod file;
 pub mod import;
 pub mod network;
 pub mod strict;
 
+pub use chains::{Chains, Function, FunctionIdx};
 pub use network::{
     Arc, Demand, Expansion, Link, LinkIdx, MAX_AMOUNT, MAX_METRIC, MAX_TOTAL, Network, RiskGroup,
     Site, SiteIdx,

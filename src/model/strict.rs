@@ -25,7 +25,15 @@ pub const USER_PREFIX: &str = "x-";
 pub const NOTES: &str = "notes";
 
 /// Fields of the document itself.
-pub const TOP_FIELDS: &[&str] = &["name", "unit", "sites", "links", "demands", "risk_groups"];
+pub const TOP_FIELDS: &[&str] = &[
+    "name",
+    "unit",
+    "sites",
+    "links",
+    "demands",
+    "risk_groups",
+    "functions",
+];
 /// Fields of a `sites[]` entry.
 pub const SITE_FIELDS: &[&str] = &[
     "id",
@@ -33,6 +41,8 @@ pub const SITE_FIELDS: &[&str] = &[
     "expand_cost",
     "expand_max",
     "expand_step",
+    "functions",
+    "expand",
     "failure_probability",
     "x",
     "y",
@@ -49,7 +59,9 @@ pub const LINK_FIELDS: &[&str] = &[
     "failure_probability",
 ];
 /// Fields of a `demands[]` entry.
-pub const DEMAND_FIELDS: &[&str] = &["id", "from", "to", "volume", "required"];
+pub const DEMAND_FIELDS: &[&str] = &["id", "from", "to", "volume", "required", "chain"];
+/// Fields of a top-level `functions[]` entry.
+pub const FUNCTION_FIELDS: &[&str] = &["id", "gain"];
 /// Fields of a top-level `risk_groups[]` entry.
 pub const RISK_GROUP_FIELDS: &[&str] = &["id", "failure_probability"];
 
@@ -59,6 +71,7 @@ pub const LISTS: &[(&str, &[&str])] = &[
     ("links", LINK_FIELDS),
     ("demands", DEMAND_FIELDS),
     ("risk_groups", RISK_GROUP_FIELDS),
+    ("functions", FUNCTION_FIELDS),
 ];
 
 /// Largest edit distance ([`osa_distance`]) at which an unknown field is offered as a near
@@ -322,6 +335,7 @@ pub fn check_fields(value: &Value) -> Result<()> {
             "sites" => "a site",
             "links" => "a link",
             "demands" => "a demand",
+            "functions" => "a function",
             _ => "a risk group entry",
         };
         let Some(items) = top.get(list).and_then(Value::as_array) else {

@@ -19,6 +19,7 @@
 pub mod approx;
 pub mod cancel;
 pub mod certify;
+pub mod chain;
 pub mod colgen;
 pub mod concurrent;
 pub mod edge;
