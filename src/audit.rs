@@ -205,7 +205,7 @@ pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result
 
 /// The evaluator of `net` with `engine`: the layered edge LP of service chains
 /// ([`crate::solve::chain::ChainEdge`]) whatever the engine when the file lists
-/// `functions`, else [`evaluator`].
+/// `functions`, else [`evaluator()`].
 pub fn evaluator_for(net: &Network, engine: Engine) -> Box<dyn Evaluator> {
     if net.chains.is_some() {
         Box::new(crate::solve::chain::ChainEdge)

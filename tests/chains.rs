@@ -297,6 +297,7 @@ fn reference_served(t: &RNet, failed_site: Option<usize>, failed_link: Option<us
         .eval(&objective)
 }
 
+#[allow(clippy::needless_range_loop)] // each function's capacity goes to a random site
 fn random_net(rng: &mut StdRng) -> RNet {
     let n = rng.random_range(4..=6);
     let nf = rng.random_range(1..=3);
@@ -334,9 +335,8 @@ fn random_net(rng: &mut StdRng) -> RNet {
     for i in 0..rng.random_range(2..=5) {
         let a = if i % 3 == 2 {
             demands
-                .iter()
-                .map(|d: &(usize, usize, f64, f64, Vec<usize>)| d.0)
                 .last()
+                .map(|d: &(usize, usize, f64, f64, Vec<usize>)| d.0)
                 .unwrap()
         } else {
             rng.random_range(0..n)
