@@ -147,6 +147,24 @@ fn plain_traffic_competes_with_a_chain() {
     let cut = scenario(&doc, &["link:bc"]);
     assert_close(num(cut, "served_required"), 8.0, "bc failed");
     assert_eq!(cut["cut_off_demands"], json!(["chained"]), "{cut}");
+    // One named scenario (`--fail`) solves its baseline on its own: the same 10.
+    let file = TempPath::with_text("chains-fail", &net.to_string());
+    let (_, doc) = audit_json(file.path(), &["--fail", "link:bc"]);
+    assert_close(
+        num(&doc["baseline"], "served_required"),
+        10.0,
+        "--fail baseline",
+    );
+    assert_close(
+        num(&doc["baseline"], "delivered"),
+        10.0,
+        "--fail baseline delivered",
+    );
+    assert_close(
+        num(scenario(&doc, &["link:bc"]), "served_required"),
+        8.0,
+        "--fail bc",
+    );
 }
 
 #[test]
