@@ -256,3 +256,46 @@ pub fn lower(
         chain,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::model::Network;
+
+    const FILE: &str = r#"{"functions":[{"id":"fw","gain":1},{"id":"nat","gain":0.75}],
+        "sites":[{"id":"a","functions":{"fw":4}},
+                 {"id":"b","functions":{"nat":2.5},"expand":{"nat":{"cost":3,"max":9},"fw":{"cost":1}}},
+                 {"id":"c"}],
+        "links":[{"id":"ab","from":"a","to":"b","capacity":5},{"id":"bc","from":"b","to":"c","capacity":5}],
+        "demands":[{"from":"a","to":"c","volume":4,"chain":["fw","nat","fw"]},
+                   {"from":"c","to":"a","volume":1}]}"#;
+
+    /// The validated chains, and the file written back reads as an equal network (a
+    /// round trip through `to_file`).
+    #[test]
+    fn chains_lower_and_round_trip() {
+        let net = Network::from_json(FILE).unwrap();
+        let ch = net.chains.as_ref().unwrap();
+        assert_eq!(ch.chain[0], vec![0, 1, 0]);
+        assert!(ch.chain[1].is_empty(), "no chain: plain traffic");
+        assert_eq!(ch.capacity[1], vec![0.0, 2.5]);
+        assert_eq!(ch.expand[1][1].as_ref().unwrap().max, 9.0);
+        assert_eq!(ch.expand[1][0].as_ref().unwrap().max, f64::INFINITY);
+        // 1, then ·1, ·0.75, ·1 (hand computed).
+        assert_eq!(ch.cumulative(&ch.chain[0]), vec![1.0, 1.0, 0.75, 0.75]);
+        assert_eq!(ch.total_gain(0), 0.75);
+        let text = serde_json::to_string(&net.to_file()).unwrap();
+        assert_eq!(Network::from_json(&text).unwrap(), net, "{text}");
+        let plain = Network::from_json(
+            r#"{"sites":[{"id":"a","processing":1},{"id":"b"}],
+                "links":[{"id":"ab","from":"a","to":"b","capacity":1}],
+                "demands":[{"from":"a","to":"b","volume":1}]}"#,
+        )
+        .unwrap();
+        assert!(plain.chains.is_none());
+        let text = serde_json::to_string(&plain.to_file()).unwrap();
+        assert!(
+            !text.contains("functions") && !text.contains("chain"),
+            "{text}"
+        );
+    }
+}
