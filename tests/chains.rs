@@ -240,9 +240,14 @@ impl RNet {
 /// (`G_j` = g1·…·gj); `p[d][j][v]` moves layer j to j+1 at a surviving site with
 /// capacity of f_{j+1}, its function row takes `G_j · p`; conservation per demand, layer
 /// and site with `F_d` leaving the origin in layer 0 and reaching the destination in
-/// layer k; `0 <= F_d <= required`. A failed site loses its functions and links; a demand
-/// with a failed end is left out.
-fn reference_served(t: &RNet, failed_site: Option<usize>, failed_link: Option<usize>) -> f64 {
+/// layer k; `0 <= F_d <= required` (`<= volume` with `by_volume`: the throughput). A
+/// failed site loses its functions and links; a demand with a failed end is left out.
+fn reference_served(
+    t: &RNet,
+    failed_site: Option<usize>,
+    failed_link: Option<usize>,
+    by_volume: bool,
+) -> f64 {
     let n = t.capacity.len();
     let up = |v: usize| failed_site != Some(v);
     let mut arcs = Vec::new();
@@ -261,12 +266,13 @@ fn reference_served(t: &RNet, failed_site: Option<usize>, failed_link: Option<us
     let mut fn_use = vec![vec![Expression::from(0.0); nf]; n];
     let mut objective = Expression::from(0.0);
     let mut balance = Vec::new();
-    for (from, to, _, required, chain) in &t.demands {
+    for (from, to, volume, required, chain) in &t.demands {
         if !up(*from) || !up(*to) {
             continue;
         }
         let k = chain.len();
-        let f: Variable = pv.add(variable().min(0.0).max(*required));
+        let cap = if by_volume { *volume } else { *required };
+        let f: Variable = pv.add(variable().min(0.0).max(cap));
         objective += f;
         let mut g = 1.0;
         let mut node = vec![vec![Expression::from(0.0); n]; k + 1];
@@ -396,12 +402,18 @@ fn random_chains_match_a_per_demand_reference_under_every_single_failure() {
                 },
                 _ => panic!("depth 1 only: {failed:?}"),
             };
-            let want = reference_served(&t, site, link);
+            let want = reference_served(&t, site, link, false);
             assert_eq!(sc["verification"]["status"], "proven", "{sc}");
             assert_close(
                 num(sc, "served_required"),
                 want,
                 &format!("instance {instance}, failed {failed:?}"),
+            );
+            let want = reference_served(&t, site, link, true);
+            assert_close(
+                num(sc, "throughput"),
+                want,
+                &format!("throughput, instance {instance}, failed {failed:?}"),
             );
             checked += 1;
         }
