@@ -209,7 +209,18 @@ pub struct Probe {
 /// sample scenario, timed. The sample is solved exactly as [`Batch`] would solve it (a
 /// single failure starts from the baseline), so its evaluation is reused.
 pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result<Probe> {
-    probe_with(net, &*evaluator(engine), sample)
+    probe_with(net, &*evaluator_for(net, engine), sample)
+}
+
+/// The evaluator of `net` with `engine`: the layered edge LP of service chains
+/// ([`crate::solve::chain::ChainEdge`]) whatever the engine when the file lists
+/// `functions`, else [`evaluator()`].
+pub fn evaluator_for(net: &Network, engine: Engine) -> Box<dyn Evaluator> {
+    if net.chains.is_some() {
+        Box::new(crate::solve::chain::ChainEdge)
+    } else {
+        evaluator(engine)
+    }
 }
 
 /// The evaluator of `engine`: the seam ([`Evaluator`]) every batch drives.
@@ -313,7 +324,7 @@ impl Batch {
         scenarios: impl IntoIterator<Item = Scenario>,
         engine: Engine,
     ) -> Batch {
-        Batch::with_evaluator(net, scenarios, evaluator(engine))
+        Batch::with_evaluator(net, scenarios, evaluator_for(net, engine))
     }
 
     /// [`Batch::new`] with any evaluator (a routing model, a future engine).

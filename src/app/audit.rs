@@ -108,6 +108,34 @@ pub(super) fn run(
     let (net, text) = read_network(input)?;
     let list = scenario_list(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err);
+    if net.chains.is_some() {
+        for (given, flag) in [
+            (
+                args.scenarios.routing.is_some(),
+                "--routing nearest|steered",
+            ),
+            (args.close, "--close"),
+            (args.headroom, "--headroom"),
+            (args.why, "--why"),
+            (shard.is_some(), "--shard"),
+            (args.resume, "--resume"),
+            (
+                matches!(args.engine, crate::solve::Engine::Approx { .. }),
+                "--engine approx",
+            ),
+        ] {
+            if given {
+                super::chains_refused(&net, &format!("audit {flag}"))?;
+            }
+        }
+        if !args.scenarios.quiet {
+            note(writeln!(
+                err,
+                "note: the file lists `functions`: every scenario is solved with the layered \
+                 edge LP of service chains (the walk engine does not take chains yet)"
+            ));
+        }
+    }
     if let Some(mode) = args.scenarios.routing {
         if args.close && mode == routing::Mode::Nearest {
             return Err(nearest_refused("audit --close"));
@@ -476,6 +504,8 @@ fn why_of(
     let k = audit.outage_of[i];
     let closing = match closings {
         Some(c) => c[k].clone(),
+        // Purchases of function capacity are not modelled yet: no closing with chains.
+        None if net.chains.is_some() => None,
         None => expand::close(net, &audit.outages[k], &audit.evaluations[k], cands)?,
     };
     Ok(Some((i, closing)))

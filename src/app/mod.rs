@@ -99,6 +99,19 @@ fn note(r: io::Result<()>) {
     let _ = r;
 }
 
+/// Refuses `what` on a network whose file lists `functions` (service chains): only the
+/// audit's best re-route and `check` take such files so far.
+pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
+    if net.chains.is_some() {
+        return Err(Error::Usage(format!(
+            "{what}: the file lists `functions` (service chains), which only `redoubt check` \
+             and `redoubt audit` (best re-route, without --close, --headroom, --why, --shard \
+             or --resume) take so far"
+        )));
+    }
+    Ok(())
+}
+
 /// The refusal of a purchase (`plan`, `audit --close`) on the nearest-site model.
 pub(crate) fn nearest_refused(what: &str) -> crate::error::Error {
     crate::error::Error::Usage(format!(

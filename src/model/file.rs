@@ -14,6 +14,7 @@
 
 use serde::de::{self, Deserializer};
 use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
 
 /// What a field's type holds, in words, for the message that refuses `null` in it.
 pub trait Described {
@@ -35,6 +36,18 @@ impl Described for bool {
 
 impl Described for Vec<String> {
     const WHAT: &'static str = "a list of names";
+}
+
+impl Described for Vec<FunctionFile> {
+    const WHAT: &'static str = "a list of functions";
+}
+
+impl Described for BTreeMap<String, f64> {
+    const WHAT: &'static str = "an object of function capacities";
+}
+
+impl Described for BTreeMap<String, ExpandFile> {
+    const WHAT: &'static str = "an object of function purchases";
 }
 
 /// Reads an optional field that is present in the document: its value, or an error when
@@ -95,6 +108,13 @@ pub struct NetworkFile {
     /// are the matrix `base`).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub matrices: Vec<MatrixFile>,
+    /// Network functions with their gains; absent: the one function `processing`, gain 1.
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub functions: Option<Vec<FunctionFile>>,
 }
 
 /// One top-level `matrices[]` entry: a named demand list over the file's sites.
@@ -112,6 +132,36 @@ pub struct MatrixFile {
         skip_serializing_if = "Option::is_none"
     )]
     pub notes: Option<String>,
+}
+
+/// One top-level `functions[]` entry.
+#[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
+pub struct FunctionFile {
+    pub id: String,
+    /// Traffic that leaves the function per unit that enters it (> 0).
+    pub gain: f64,
+    /// Free text for the user; read, never printed.
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub notes: Option<String>,
+}
+
+/// One `sites[].expand` value: buying more of one function at the site.
+#[derive(Debug, Clone, Default, PartialEq, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct ExpandFile {
+    /// Cost per added unit.
+    pub cost: f64,
+    /// Most that may be added; absent: unlimited.
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub max: Option<f64>,
 }
 
 /// One `sites[]` entry.
@@ -153,6 +203,20 @@ pub struct SiteFile {
         skip_serializing_if = "Option::is_none"
     )]
     pub failure_probability: Option<f64>,
+    /// Capacity of each function at this site (with top-level `functions` only).
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub functions: Option<BTreeMap<String, f64>>,
+    /// Purchases of each function at this site (with top-level `functions` only).
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub expand: Option<BTreeMap<String, ExpandFile>>,
     /// Drawing position (any finite number; no unit).
     #[serde(
         default,
@@ -242,6 +306,14 @@ pub struct DemandFile {
         skip_serializing_if = "Option::is_none"
     )]
     pub required: Option<f64>,
+    /// Ordered function ids every unit must pass (with top-level `functions` only);
+    /// absent there: plain traffic.
+    #[serde(
+        default,
+        deserialize_with = "present",
+        skip_serializing_if = "Option::is_none"
+    )]
+    pub chain: Option<Vec<String>>,
     /// Free text for the user; read, never printed.
     #[serde(
         default,

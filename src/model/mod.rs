@@ -3,11 +3,13 @@
 
 pub mod apply;
 pub mod diff;
+pub mod chains;
 pub mod file;
 pub mod import;
 pub mod network;
 pub mod strict;
 
+pub use chains::{Chains, Function, FunctionIdx};
 pub use network::{
     Arc, BASE_MATRIX, Demand, Expansion, Link, LinkIdx, MAX_AMOUNT, MAX_METRIC, MAX_TOTAL, Matrix,
     Network, RiskGroup, Site, SiteIdx,

@@ -144,6 +144,9 @@ pub struct Network {
     /// `matrices[m - 1]`; matrix 0 is `demands`, named `base`). Empty without any, and
     /// always empty in a matrix's own view.
     pub matrices: Vec<Matrix>,
+    /// Service chains and gains when the file lists `functions` ([`super::chains`]);
+    /// `None`: one function `processing` of gain 1 (`Site::processing`, `Site::expansion`).
+    pub chains: Option<super::chains::Chains>,
     site_index: HashMap<String, SiteIdx>,
     link_index: HashMap<String, LinkIdx>,
     group_index: HashMap<String, usize>,
@@ -407,6 +410,7 @@ impl Network {
         }
 
         let mut demands = Vec::with_capacity(file_demands.len() + more.size_hint().0);
+        let mut demand_chains = Vec::new();
         for (i, d) in file_demands.into_iter().chain(more).enumerate() {
             let d = &d;
             let el = demand_label(i, d);
@@ -439,7 +443,28 @@ impl Network {
                 volume,
                 required,
             });
+            if file.functions.is_some() || d.chain.is_some() {
+                demand_chains.push((el, d.chain.clone(), volume));
+            }
         }
+        let chains = match &file.functions {
+            Some(functions) => {
+                // Demands without an entry (none: every demand pushed one) are plain.
+                Some(super::chains::lower(
+                    functions,
+                    &file.sites,
+                    &demand_chains,
+                )?)
+            }
+            None => {
+                let given: Vec<(String, bool)> = demand_chains
+                    .iter()
+                    .map(|(el, c, _)| (el.clone(), c.is_some()))
+                    .collect();
+                super::chains::refuse_without_functions(&file.sites, &given)?;
+                None
+            }
+        };
 
         // Every amount is finite and at most MAX_AMOUNT; their sums must stay within
         // MAX_TOTAL, or some derived total would not be finite.
@@ -523,6 +548,7 @@ impl Network {
             demands,
             groups,
             matrices: Vec::new(),
+            chains,
             site_index,
             link_index,
             group_index,
@@ -603,9 +629,35 @@ impl Network {
             sites: self
                 .sites
                 .iter()
-                .map(|s| SiteFile {
+                .enumerate()
+                .map(|(v, s)| SiteFile {
                     id: s.id.clone(),
-                    processing: Some(s.processing),
+                    processing: self.chains.is_none().then_some(s.processing),
+                    functions: self.chains.as_ref().map(|c| {
+                        c.functions
+                            .iter()
+                            .zip(&c.capacity[v])
+                            .filter(|&(_, &cap)| cap > 0.0)
+                            .map(|(f, &cap)| (f.id.clone(), cap))
+                            .collect()
+                    }),
+                    expand: self.chains.as_ref().map(|c| {
+                        c.functions
+                            .iter()
+                            .zip(&c.expand[v])
+                            .filter_map(|(f, e)| {
+                                e.as_ref().map(|e| {
+                                    (
+                                        f.id.clone(),
+                                        super::file::ExpandFile {
+                                            cost: e.cost,
+                                            max: Some(e.max).filter(|m| m.is_finite()),
+                                        },
+                                    )
+                                })
+                            })
+                            .collect()
+                    }),
                     expand_cost: s.expansion.as_ref().map(|e| e.cost),
                     expand_max: s
                         .expansion
@@ -642,8 +694,15 @@ impl Network {
             demands: self
                 .demands
                 .iter()
-                .map(|d| DemandFile {
+                .enumerate()
+                .map(|(i, d)| DemandFile {
                     id: Some(d.label.clone()),
+                    chain: self.chains.as_ref().map(|c| {
+                        c.chain[i]
+                            .iter()
+                            .map(|&f| c.functions[f].id.clone())
+                            .collect()
+                    }),
                     from: self.sites[d.from].id.clone(),
                     to: self.sites[d.to].id.clone(),
                     volume: d.volume,
@@ -671,6 +730,16 @@ impl Network {
                     notes: None,
                 })
                 .collect(),
+            functions: self.chains.as_ref().map(|c| {
+                c.functions
+                    .iter()
+                    .map(|f| super::file::FunctionFile {
+                        id: f.id.clone(),
+                        gain: f.gain,
+                        notes: None,
+                    })
+                    .collect()
+            }),
         }
     }
 
@@ -744,7 +813,14 @@ fn check_shape(value: &serde_json::Value) -> Result<()> {
             kind_of(value)
         )));
     };
-    for list in ["sites", "links", "demands", "risk_groups", "matrices"] {
+    for list in [
+        "sites",
+        "links",
+        "demands",
+        "risk_groups",
+        "matrices",
+        "functions",
+    ] {
         match obj.get(list) {
             None => {}
             Some(serde_json::Value::Null) => {

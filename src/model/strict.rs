@@ -33,6 +33,7 @@ pub const TOP_FIELDS: &[&str] = &[
     "demands",
     "risk_groups",
     "matrices",
+    "functions",
 ];
 /// Fields of a `sites[]` entry.
 pub const SITE_FIELDS: &[&str] = &[
@@ -41,6 +42,8 @@ pub const SITE_FIELDS: &[&str] = &[
     "expand_cost",
     "expand_max",
     "expand_step",
+    "functions",
+    "expand",
     "failure_probability",
     "x",
     "y",
@@ -56,10 +59,12 @@ pub const LINK_FIELDS: &[&str] = &[
     "metric",
     "failure_probability",
 ];
-/// Fields of a `demands[]` entry.
-pub const DEMAND_FIELDS: &[&str] = &["id", "from", "to", "volume", "required"];
 /// Fields of a top-level `matrices[]` entry.
 pub const MATRIX_FIELDS: &[&str] = &["id", "demands"];
+/// Fields of a `demands[]` entry.
+pub const DEMAND_FIELDS: &[&str] = &["id", "from", "to", "volume", "required", "chain"];
+/// Fields of a top-level `functions[]` entry.
+pub const FUNCTION_FIELDS: &[&str] = &["id", "gain"];
 /// Fields of a top-level `risk_groups[]` entry.
 pub const RISK_GROUP_FIELDS: &[&str] = &["id", "failure_probability"];
 
@@ -70,6 +75,7 @@ pub const LISTS: &[(&str, &[&str])] = &[
     ("demands", DEMAND_FIELDS),
     ("risk_groups", RISK_GROUP_FIELDS),
     ("matrices", MATRIX_FIELDS),
+    ("functions", FUNCTION_FIELDS),
 ];
 
 /// Largest edit distance ([`osa_distance`]) at which an unknown field is offered as a near
@@ -334,6 +340,7 @@ pub fn check_fields(value: &Value) -> Result<()> {
             "links" => "a link",
             "demands" => "a demand",
             "matrices" => "a traffic matrix",
+            "functions" => "a function",
             _ => "a risk group entry",
         };
         let Some(items) = top.get(list).and_then(Value::as_array) else {

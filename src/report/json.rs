@@ -179,6 +179,10 @@ pub struct ScenarioJson {
     pub shortfall: f64,
     pub stranded: f64,
     pub throughput: f64,
+    /// With service chains: the volume reaching the destinations in the reported
+    /// served_required allocation (origin units times each chain's gain).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub delivered: Option<f64>,
     /// Σ required of the surviving demands.
     pub required: f64,
     pub stranded_volume: f64,
@@ -362,6 +366,7 @@ pub fn scenario_json(
         shortfall: file_num(e.shortfall),
         stranded: file_num(e.stranded),
         throughput: file_num(e.throughput),
+        delivered: e.delivered.map(file_num),
         required: file_num(e.surviving_required),
         stranded_volume: file_num(e.stranded_volume),
         throughput_loss: file_diff(baseline.throughput, e.throughput).max(0.0),

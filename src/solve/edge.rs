@@ -245,6 +245,9 @@ pub fn solve_verified_with(
 pub fn baseline_cut_off(net: &Network) -> Vec<(usize, Unservable)> {
     let view = Surviving::new(net, &Outage::default(), None);
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    if net.chains.is_some() {
+        return super::chain::cut_off(net, &view, &required);
+    }
     view.unservable(net, &required)
         .into_iter()
         .enumerate()

@@ -417,5 +417,6 @@ pub fn finish_with(
         verification,
         throughput_verification,
         proof,
+        delivered: None,
     }
 }

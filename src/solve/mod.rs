@@ -19,6 +19,7 @@
 pub mod approx;
 pub mod cancel;
 pub mod certify;
+pub mod chain;
 pub mod colgen;
 pub mod concurrent;
 pub mod edge;
@@ -62,14 +63,26 @@ pub static LADDER: [&dyn Backend; 3] = [&lp::CLARABEL, &lp::CLARABEL_TIGHT, &lp:
 /// documentation).
 ///
 /// Cost: one or two verified LP solves of the size given in [`flow::build`].
+///
+/// A network with `functions` is solved by the layered LP of service chains
+/// ([`chain::evaluate`]).
 pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
+    if net.chains.is_some() {
+        return chain::evaluate(net, outage);
+    }
     Ok(evaluator::Edge.evaluate(net, outage, None)?.evaluation)
 }
 
 /// [`evaluate`] by the walk engine started cold ([`evaluator::Walks`]): the same verified
 /// result (an unproven walk answer falls back to the edge LP's ladder), usually faster on
 /// networks of tens of sites.
+///
+/// A network with `functions` is solved by the layered LP of service chains
+/// ([`chain::evaluate`]).
 pub fn evaluate_cold_walks(net: &Network, outage: &Outage) -> Result<Evaluation> {
+    if net.chains.is_some() {
+        return chain::evaluate(net, outage);
+    }
     Ok(evaluator::Walks.evaluate(net, outage, None)?.evaluation)
 }
 

@@ -103,6 +103,12 @@ pub struct Evaluation {
     /// it back. Never shown in a report.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub proof: Option<Box<recheck::Proof>>,
+    /// With service chains ([`crate::model::Chains`]): Σ over demands of the reported
+    /// flow times its chain's gain, the volume reaching the destinations in the reported
+    /// served_required allocation (one optimum; another optimum may deliver another
+    /// amount). `None` for a network without `functions`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub delivered: Option<f64>,
 }
 
 impl Evaluation {

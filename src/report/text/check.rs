@@ -21,6 +21,20 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) ->
         net.arcs.len(),
         net.demands.len()
     );
+    if let Some(ch) = &net.chains {
+        let _ = writeln!(
+            out,
+            "  volume {}  required {}  (origin units)",
+            amount(net.total_volume(), u),
+            amount(net.total_required(), u),
+        );
+        chains_summary(&mut out, net, ch);
+        if !baseline_cut_off.is_empty() {
+            let _ = writeln!(out, "  {}", baseline_misses(net, baseline_cut_off));
+        }
+        groups_summary(&mut out, net);
+        return out;
+    }
     let _ = writeln!(
         out,
         "  volume {}  required {}  processing {}",
@@ -108,6 +122,90 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) ->
             }
         }
     }
+    groups_summary(&mut out, net);
+    out
+}
+
+/// The functions with their gains, capacities and purchases, and the chains with the
+/// number of demands and the required volume each carries, and their total gain.
+fn chains_summary(out: &mut String, net: &Network, ch: &crate::model::Chains) {
+    let _ = writeln!(out, "  functions ({}):", ch.functions.len());
+    for (f, func) in ch.functions.iter().enumerate() {
+        let at: Vec<String> = net
+            .sites
+            .iter()
+            .enumerate()
+            .filter(|&(v, _)| ch.capacity[v][f] > 0.0)
+            .map(|(v, s)| format!("{} {}", s.id, num(ch.capacity[v][f])))
+            .collect();
+        let buy: Vec<String> = net
+            .sites
+            .iter()
+            .enumerate()
+            .filter_map(|(v, s)| {
+                ch.expand[v][f].as_ref().map(|e| {
+                    format!(
+                        "{} (cost {}/unit, {})",
+                        s.id,
+                        num(e.cost),
+                        if e.max.is_finite() {
+                            format!("up to {}", num(e.max))
+                        } else {
+                            "no limit".into()
+                        }
+                    )
+                })
+            })
+            .collect();
+        let _ = writeln!(
+            out,
+            "    {} — gain {}; capacity {}: {}{}",
+            func.id,
+            num(func.gain),
+            num((0..net.sites.len()).map(|v| ch.capacity[v][f]).sum::<f64>()),
+            if at.is_empty() {
+                "none".into()
+            } else {
+                at.join(", ")
+            },
+            if buy.is_empty() {
+                String::new()
+            } else {
+                format!("; expandable: {}", buy.join(", "))
+            }
+        );
+    }
+    let mut chains: std::collections::BTreeMap<Vec<usize>, (usize, f64)> =
+        std::collections::BTreeMap::new();
+    for (d, dem) in net.demands.iter().enumerate() {
+        let e = chains.entry(ch.chain[d].clone()).or_default();
+        e.0 += 1;
+        e.1 += dem.required;
+    }
+    let _ = writeln!(out, "  chains ({}):", chains.len());
+    for (chain, (count, required)) in chains {
+        let gain: f64 = chain.iter().map(|&f| ch.functions[f].gain).product();
+        let name = if chain.is_empty() {
+            "plain traffic (no function)".to_string()
+        } else {
+            chain
+                .iter()
+                .map(|&f| ch.functions[f].id.as_str())
+                .collect::<Vec<_>>()
+                .join(" > ")
+        };
+        let _ = writeln!(
+            out,
+            "    {name} — {count} demand{}, required {}, total gain {}",
+            if count == 1 { "" } else { "s" },
+            num(required),
+            num(gain)
+        );
+    }
+}
+
+/// The risk groups with their sizes.
+fn groups_summary(out: &mut String, net: &Network) {
     if net.groups.is_empty() {
         let _ = writeln!(out, "  risk groups: none");
     } else {
@@ -122,7 +220,6 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) ->
             );
         }
     }
-    out
 }
 
 /// "already short with nothing failed: N demands (X units required): d (why), ...".

@@ -1,0 +1,820 @@
+//! The layered edge LP of service chains and gains (a network whose file lists
+//! `functions`, [`crate::model::Chains`]), its verification, and its evaluator.
+//!
+//! **Model.** Demands are grouped by (origin, chain); a group whose chain has `k` functions
+//! gets `k + 1` layers of the surviving network. A unit in layer `j` has passed the first
+//! `j` functions; every flow variable is measured in *origin units*, so an arc variable in
+//! layer `j` puts `G_j = g1 · … · gj` units on the arc's capacity row, and the conversion
+//! variable of function `f_{j+1}` at site `v` (layer `j` → `j + 1` at `v`) puts `G_j` units
+//! (the volume entering it) on the row of `f_{j+1}` at `v`. Flow is conserved per group
+//! and layer node; the origin's layer 0 supplies `Σ F_d`, each destination's layer `k`
+//! absorbs its demands' `F_d ≤ cap_d`; the objective is `Σ F_d` (origin units). Arc rows
+//! are shared by every layer of every group, function rows by every group and position
+//! that uses the function. Plain traffic (empty chain) is one layer.
+//!
+//! Aggregating the demands of one (origin, chain) is exact for the same reason source
+//! aggregation is in [`super::flow`]: the group's layered flow is a single-source flow
+//! (source: the origin in layer 0) to several sinks (destinations in layer `k`), which
+//! decomposes into source–sink paths in the layered graph, each a walk of one demand of
+//! the group; the coefficients depend only on the layer, which the group fixes.
+//!
+//! **Verification**, generalising [`super::verify`] and [`super::certify`]:
+//! the residual of every row ([`super::verify::residual`]); a lower bound from a
+//! decomposition of each group's flow into layered walks (cycles cancelled, dead ends
+//! dropped), each walk scaled by the worst overload of the arcs and functions it uses
+//! against the real capacities ([`repair`]); an upper bound from the LP's prices
+//! ([`dual_bound`]): `Σ cap_a·y_a + Σ cap_vf·z_vf + Σ_d cap_d·max(0, 1 − π_d)`, where
+//! `π_d` is the cheapest layered walk of `d` with arc `a` in layer `j` costing `G_j·y_a`
+//! and function `f_{j+1}` at `v` costing `G_j·z_vf`. Valid for any nonnegative prices
+//! (weak duality: a walk of `w` origin units uses exactly those amounts of each row).
+
+use std::cmp::Reverse;
+use std::collections::{BTreeMap, BinaryHeap};
+
+use super::evaluator::{AddModel, Evaluated, Evaluator, Warm};
+use super::lp::{Backend, Lp, Sense};
+use super::surviving::{Surviving, Unservable};
+use super::types::{Evaluation, Verification, Verified};
+use super::{LADDER, RESIDUAL_TOL, finish_with, needs_volume_lp, verify};
+use crate::error::{Error, Result};
+use crate::model::{Chains, FunctionIdx, Network, SiteIdx};
+use crate::scenario::Outage;
+use crate::tol::{PROOF_GAP_TOL, ZERO_FLOW};
+
+/// One (origin, chain) group of demands.
+#[derive(Debug, Clone)]
+pub struct Group {
+    pub origin: SiteIdx,
+    pub chain: Vec<FunctionIdx>,
+    /// `cumulative[j]`: origin units → layer-`j` units.
+    pub cumulative: Vec<f64>,
+    /// The group's demands (servable ones only).
+    pub demands: Vec<usize>,
+}
+
+/// An edge of a group's layered graph with its LP variable.
+#[derive(Debug, Clone, Copy)]
+pub struct Edge {
+    /// Layered node ids `layer · sites + site`.
+    pub from: usize,
+    pub to: usize,
+    pub var: usize,
+    pub kind: EdgeKind,
+}
+
+/// What an edge of the layered graph uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum EdgeKind {
+    /// Arc `a` (index into `Network::arcs`) in layer `j`.
+    Arc { arc: usize, layer: usize },
+    /// Function at position `j` of the chain (layer `j` → `j + 1`) at site `v`.
+    Function { site: SiteIdx, layer: usize },
+}
+
+/// The built LP with what the verifier needs.
+pub struct Layered {
+    pub groups: Vec<Group>,
+    /// Per group: its edges.
+    pub edges: Vec<Vec<Edge>>,
+    /// Per demand: its variable `F_d` (`None`: stranded, cut off, or nothing to serve).
+    pub demand_var: Vec<Option<usize>>,
+    /// Per arc: its capacity row.
+    pub arc_row: Vec<Option<usize>>,
+    /// Per (site, function): its capacity row.
+    pub function_row: BTreeMap<(SiteIdx, FunctionIdx), usize>,
+    /// Per arc: the right-hand side of its row (capacity lowered to what can use it).
+    pub arc_cap: Vec<f64>,
+    /// Per (site, function) row: its right-hand side.
+    pub function_cap: BTreeMap<(SiteIdx, FunctionIdx), f64>,
+    /// Per demand: its cap (required or volume).
+    pub bound: Vec<f64>,
+}
+
+/// Per demand: reachable through its whole chain on `view` (`Ok`), else why not. A
+/// stranded demand or one with cap 0 gives `Ok(false)` (not in the LP, not cut off).
+/// O(groups · (chain + 1) · (sites + arcs)).
+fn servable(
+    net: &Network,
+    ch: &Chains,
+    view: &Surviving,
+    bound: &[f64],
+) -> Vec<std::result::Result<bool, Unservable>> {
+    let n = net.sites.len();
+    let mut cache: BTreeMap<(SiteIdx, Vec<FunctionIdx>), Vec<bool>> = BTreeMap::new();
+    net.demands
+        .iter()
+        .enumerate()
+        .map(|(d, dem)| {
+            if !view.demand_alive(net, d) || bound[d] <= 0.0 {
+                return Ok(false);
+            }
+            let key = (dem.from, ch.chain[d].clone());
+            let reach = cache
+                .entry(key)
+                .or_insert_with(|| forward(net, ch, view, dem.from, &ch.chain[d]));
+            let k = ch.chain[d].len();
+            if reach[k * n + dem.to] {
+                Ok(true)
+            } else if view.reach_from([dem.from])[dem.to] {
+                Err(Unservable::NoProcessing)
+            } else {
+                Err(Unservable::NoPath)
+            }
+        })
+        .collect()
+}
+
+/// The surviving demands with required > 0 whose whole chain no layered walk on `view`
+/// can pass (caps `bound`), with the reason, in demand order. The chain model's cut-off
+/// list. O(groups · (chain + 1) · (sites + arcs)).
+pub fn cut_off(net: &Network, view: &Surviving, bound: &[f64]) -> Vec<(usize, Unservable)> {
+    let ch = net.chains.as_ref().expect("a network with functions");
+    servable(net, ch, view, bound)
+        .into_iter()
+        .enumerate()
+        .filter_map(|(d, s)| match s {
+            Err(r) if net.demands[d].required > 0.0 => Some((d, r)),
+            _ => None,
+        })
+        .collect()
+}
+
+/// Whether site `v` can run function `f` on `view`: alive with capacity > 0.
+fn runs(ch: &Chains, view: &Surviving, v: SiteIdx, f: FunctionIdx) -> bool {
+    view.site_alive[v] && ch.capacity[v][f] > 0.0
+}
+
+/// Layered nodes reachable from `(origin, 0)`. O((k + 1) · (sites + arcs)).
+fn forward(
+    net: &Network,
+    ch: &Chains,
+    view: &Surviving,
+    origin: SiteIdx,
+    chain: &[FunctionIdx],
+) -> Vec<bool> {
+    let n = net.sites.len();
+    let k = chain.len();
+    let mut seen = vec![false; (k + 1) * n];
+    let mut start: Vec<SiteIdx> = vec![origin];
+    for j in 0..=k {
+        let r = view.reach_from(start.iter().copied());
+        for v in 0..n {
+            seen[j * n + v] = r[v];
+        }
+        if j < k {
+            start = (0..n)
+                .filter(|&v| r[v] && runs(ch, view, v, chain[j]))
+                .collect();
+        }
+    }
+    seen
+}
+
+/// Layered nodes from which some destination in `dests` is reachable in layer `k`.
+fn backward(
+    net: &Network,
+    ch: &Chains,
+    view: &Surviving,
+    dests: &[SiteIdx],
+    chain: &[FunctionIdx],
+) -> Vec<bool> {
+    let n = net.sites.len();
+    let k = chain.len();
+    let mut seen = vec![false; (k + 1) * n];
+    let mut end: Vec<SiteIdx> = dests.to_vec();
+    for j in (0..=k).rev() {
+        let r = view.reach_to(end.iter().copied());
+        for v in 0..n {
+            seen[j * n + v] = r[v];
+        }
+        if j > 0 {
+            end = (0..n)
+                .filter(|&v| r[v] && runs(ch, view, v, chain[j - 1]))
+                .collect();
+        }
+    }
+    seen
+}
+
+/// Builds the layered LP of `view` with demand caps `bound` into a new maximising [`Lp`].
+/// Cut-off demands (no layered walk) get no variable and are returned with their reason.
+/// Size: per group, `(k + 1) · usable arcs + k · sites` variables at most (pruned to nodes
+/// reachable from the origin and reaching a destination), the same number of
+/// conservation rows per group, one row per arc and per (site, function).
+pub fn build(
+    net: &Network,
+    view: &Surviving,
+    bound: &[f64],
+) -> (Lp, Layered, Vec<(usize, Unservable)>) {
+    let ch = net.chains.as_ref().expect("a network with functions");
+    let n = net.sites.len();
+    let status = servable(net, ch, view, bound);
+    let mut cut_off = Vec::new();
+    let mut by_key: BTreeMap<(SiteIdx, Vec<FunctionIdx>), Vec<usize>> = BTreeMap::new();
+    for (d, s) in status.iter().enumerate() {
+        match s {
+            Ok(true) => by_key
+                .entry((net.demands[d].from, ch.chain[d].clone()))
+                .or_default()
+                .push(d),
+            Ok(false) => {}
+            Err(r) => {
+                if net.demands[d].required > 0.0 {
+                    cut_off.push((d, *r));
+                }
+            }
+        }
+    }
+    let mut model = Lp::new(true);
+    let mut demand_var = vec![None; net.demands.len()];
+    let mut arc_terms: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.arcs.len()];
+    let mut arc_need = vec![0.0; net.arcs.len()];
+    let mut fn_terms: BTreeMap<(SiteIdx, FunctionIdx), Vec<(usize, f64)>> = BTreeMap::new();
+    let mut fn_need: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
+    let mut groups = Vec::new();
+    let mut all_edges = Vec::new();
+    for ((origin, chain), demands) in by_key {
+        let k = chain.len();
+        let cumulative = ch.cumulative(&chain);
+        let total: f64 = demands.iter().map(|&d| bound[d]).sum();
+        let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to).collect();
+        let fwd = forward(net, ch, view, origin, &chain);
+        let back = backward(net, ch, view, &dests, &chain);
+        let live = |node: usize| fwd[node] && back[node];
+        // Conservation terms per layered node: + in, − out.
+        let mut node_terms: BTreeMap<usize, Vec<(usize, f64)>> = BTreeMap::new();
+        let mut edges = Vec::new();
+        for j in 0..=k {
+            for &a in &view.arcs {
+                let arc = &net.arcs[a];
+                let (from, to) = (j * n + arc.from, j * n + arc.to);
+                if !(live(from) && live(to)) {
+                    continue;
+                }
+                let var = model.add_var(0.0, f64::INFINITY, 0.0);
+                model.magnitude[var] = total;
+                arc_terms[a].push((var, cumulative[j]));
+                arc_need[a] += cumulative[j] * total;
+                node_terms.entry(from).or_default().push((var, -1.0));
+                node_terms.entry(to).or_default().push((var, 1.0));
+                edges.push(Edge {
+                    from,
+                    to,
+                    var,
+                    kind: EdgeKind::Arc { arc: a, layer: j },
+                });
+            }
+            if j < k {
+                let f = chain[j];
+                for v in 0..n {
+                    let (from, to) = (j * n + v, (j + 1) * n + v);
+                    if !(runs(ch, view, v, f) && live(from) && live(to)) {
+                        continue;
+                    }
+                    let var = model.add_var(0.0, f64::INFINITY, 0.0);
+                    model.magnitude[var] = total;
+                    fn_terms
+                        .entry((v, f))
+                        .or_default()
+                        .push((var, cumulative[j]));
+                    *fn_need.entry((v, f)).or_default() += cumulative[j] * total;
+                    node_terms.entry(from).or_default().push((var, -1.0));
+                    node_terms.entry(to).or_default().push((var, 1.0));
+                    edges.push(Edge {
+                        from,
+                        to,
+                        var,
+                        kind: EdgeKind::Function { site: v, layer: j },
+                    });
+                }
+            }
+        }
+        for &d in &demands {
+            let var = model.add_var(0.0, bound[d], 1.0);
+            model.magnitude[var] = total;
+            demand_var[d] = Some(var);
+            node_terms.entry(origin).or_default().push((var, 1.0));
+            node_terms
+                .entry(k * n + net.demands[d].to)
+                .or_default()
+                .push((var, -1.0));
+        }
+        for (_, terms) in node_terms {
+            model.add_row(terms, Sense::Eq, 0.0);
+        }
+        groups.push(Group {
+            origin,
+            chain,
+            cumulative,
+            demands,
+        });
+        all_edges.push(edges);
+    }
+    let mut arc_row = vec![None; net.arcs.len()];
+    let mut arc_cap = vec![0.0; net.arcs.len()];
+    for (a, terms) in arc_terms.into_iter().enumerate() {
+        if !terms.is_empty() {
+            // An optimum never needs more on an arc than every group crossing it once per
+            // layer with its whole demand (cycles within a layer cancel).
+            arc_cap[a] = net.arcs[a].capacity.min(arc_need[a]);
+            arc_row[a] = Some(model.add_row(terms, Sense::Le, arc_cap[a]));
+        }
+    }
+    let mut function_row = BTreeMap::new();
+    let mut function_cap = BTreeMap::new();
+    for (key, terms) in fn_terms {
+        let cap = ch.capacity[key.0][key.1].min(fn_need[&key]);
+        function_cap.insert(key, cap);
+        function_row.insert(key, model.add_row(terms, Sense::Le, cap));
+    }
+    (
+        model,
+        Layered {
+            groups,
+            edges: all_edges,
+            demand_var,
+            arc_row,
+            function_row,
+            arc_cap,
+            function_cap,
+            bound: bound.to_vec(),
+        },
+        cut_off,
+    )
+}
+
+/// One layered walk of a repaired allocation: its group, its edges, its destination and
+/// the origin units it carries.
+#[derive(Debug, Clone)]
+pub struct LayeredWalk {
+    pub group: usize,
+    pub edges: Vec<EdgeKind>,
+    pub dest: SiteIdx,
+    pub flow: f64,
+}
+
+/// The allocation of `x` made feasible: each group's flow decomposed into layered walks
+/// (cycles cancelled, flow stuck at a dead end dropped), each walk scaled by the worst
+/// overload of the arcs and functions it uses, measured against the real capacities, and
+/// each destination's delivered flow shared among the group's demands to it in proportion
+/// to their LP flows (never above a cap). Returns the allocation (loads in the units each
+/// resource counts) and the walks. Feasible by construction, so its served total is a
+/// proven lower bound. O(groups · edges · walks).
+pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired, Vec<LayeredWalk>) {
+    let ch = net.chains.as_ref().expect("a network with functions");
+    let n = net.sites.len();
+    let mut walks: Vec<LayeredWalk> = Vec::new();
+    let mut lp_flow = vec![0.0; net.demands.len()];
+    for (g, group) in layered.groups.iter().enumerate() {
+        let k = group.chain.len();
+        let total: f64 = group.demands.iter().map(|&d| layered.bound[d]).sum();
+        let eps = ZERO_FLOW * total.max(f64::MIN_POSITIVE);
+        let edges = &layered.edges[g];
+        let mut rest: Vec<f64> = edges.iter().map(|e| x[e.var].max(0.0)).collect();
+        let mut out: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
+        for (i, e) in edges.iter().enumerate() {
+            out.entry(e.from).or_default().push(i);
+        }
+        let mut sink: BTreeMap<usize, f64> = BTreeMap::new();
+        let mut supply = 0.0;
+        for &d in &group.demands {
+            let f = layered.demand_var[d].map_or(0.0, |v| x[v].clamp(0.0, layered.bound[d]));
+            lp_flow[d] = f;
+            supply += f;
+            *sink.entry(k * n + net.demands[d].to).or_default() += f;
+        }
+        let source = group.origin;
+        let next = |node: usize, rest: &[f64]| -> Option<usize> {
+            out.get(&node)?.iter().copied().find(|&i| rest[i] > eps)
+        };
+        // Each pass ends a walk, cancels a cycle or drops a dead end: each zeroes at least
+        // one edge, the supply or a sink.
+        while supply > eps {
+            let mut path: Vec<usize> = Vec::new();
+            let mut pos: BTreeMap<usize, usize> = BTreeMap::new();
+            let mut node = source;
+            pos.insert(node, 0);
+            let done = loop {
+                if sink.get(&node).is_some_and(|&s| s > eps) {
+                    break true;
+                }
+                let Some(i) = next(node, &rest) else {
+                    break false;
+                };
+                path.push(i);
+                node = edges[i].to;
+                if let Some(&at) = pos.get(&node) {
+                    // A cycle: cancel it and go on from where it closed.
+                    let cycle: Vec<usize> = path.drain(at..).collect();
+                    let m = cycle.iter().map(|&c| rest[c]).fold(f64::INFINITY, f64::min);
+                    for &c in &cycle {
+                        rest[c] -= m;
+                    }
+                    pos.retain(|_, p| *p <= at);
+                } else {
+                    pos.insert(node, path.len());
+                }
+            };
+            if !done {
+                match path.last() {
+                    // Flow stuck at a dead end: drop what enters it.
+                    Some(&i) => rest[i] = 0.0,
+                    None => break,
+                }
+                continue;
+            }
+            let s = sink.get_mut(&node).expect("a sink");
+            let m = path.iter().map(|&i| rest[i]).fold(supply.min(*s), f64::min);
+            for &i in &path {
+                rest[i] -= m;
+            }
+            *s -= m;
+            supply -= m;
+            walks.push(LayeredWalk {
+                group: g,
+                edges: path.iter().map(|&i| edges[i].kind).collect(),
+                dest: node % n,
+                flow: m,
+            });
+        }
+    }
+    scale_walks(net, ch, layered, &mut walks);
+    let mut arc_load = vec![0.0; net.arcs.len()];
+    let mut site_load = vec![0.0; net.sites.len()];
+    let mut delivered: BTreeMap<(usize, SiteIdx), f64> = BTreeMap::new();
+    for w in &walks {
+        let cum = &layered.groups[w.group].cumulative;
+        for e in &w.edges {
+            match *e {
+                EdgeKind::Arc { arc, layer } => arc_load[arc] += w.flow * cum[layer],
+                EdgeKind::Function { site, layer } => site_load[site] += w.flow * cum[layer],
+            }
+        }
+        *delivered.entry((w.group, w.dest)).or_default() += w.flow;
+    }
+    let mut demand_flow = vec![0.0; net.demands.len()];
+    for (g, group) in layered.groups.iter().enumerate() {
+        let mut by_dest: BTreeMap<SiteIdx, Vec<usize>> = BTreeMap::new();
+        for &d in &group.demands {
+            by_dest.entry(net.demands[d].to).or_default().push(d);
+        }
+        for (t, ds) in by_dest {
+            let got = delivered.get(&(g, t)).copied().unwrap_or(0.0);
+            let lp: f64 = ds.iter().map(|&d| lp_flow[d]).sum();
+            if lp <= 0.0 {
+                continue;
+            }
+            for &d in &ds {
+                demand_flow[d] = (got * (lp_flow[d] / lp)).min(layered.bound[d]);
+            }
+        }
+    }
+    let served = demand_flow.iter().sum();
+    (
+        verify::Repaired {
+            served,
+            demand_flow,
+            arc_load,
+            site_load,
+            walks: walks.len(),
+            paths: Vec::new(),
+        },
+        walks,
+    )
+}
+
+/// Scales each walk by the worst overload (load / real capacity, when above 1) of the arcs
+/// and functions it uses. O(Σ walk lengths).
+fn scale_walks(net: &Network, ch: &Chains, layered: &Layered, walks: &mut [LayeredWalk]) {
+    let mut arc_load = vec![0.0; net.arcs.len()];
+    let mut fn_load: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
+    let function_at = |g: usize, layer: usize| layered.groups[g].chain[layer];
+    for w in walks.iter() {
+        let cum = &layered.groups[w.group].cumulative;
+        for e in &w.edges {
+            match *e {
+                EdgeKind::Arc { arc, layer } => arc_load[arc] += w.flow * cum[layer],
+                EdgeKind::Function { site, layer } => {
+                    *fn_load
+                        .entry((site, function_at(w.group, layer)))
+                        .or_default() += w.flow * cum[layer]
+                }
+            }
+        }
+    }
+    let over = |load: f64, cap: f64| {
+        if load > cap {
+            if cap > 0.0 { load / cap } else { f64::INFINITY }
+        } else {
+            1.0
+        }
+    };
+    for w in walks.iter_mut() {
+        let mut worst: f64 = 1.0;
+        for e in &w.edges {
+            let o = match *e {
+                EdgeKind::Arc { arc, .. } => over(arc_load[arc], net.arcs[arc].capacity),
+                EdgeKind::Function { site, layer } => {
+                    let f = function_at(w.group, layer);
+                    over(fn_load[&(site, f)], ch.capacity[site][f])
+                }
+            };
+            worst = worst.max(o);
+        }
+        w.flow = if worst.is_finite() {
+            w.flow / worst
+        } else {
+            0.0
+        };
+    }
+}
+
+/// The dual bound of the layered model for nonnegative prices `arc_price` (per arc) and
+/// `fn_price` (per (site, function) row), over `layered`'s demands: `Σ arc_cap·y +
+/// Σ function_cap·z + Σ_d cap_d · max(0, 1 − π_d)`, `π_d` the cheapest layered walk of
+/// `d` (layered Dijkstra per group). Valid for any nonnegative prices.
+/// O(groups · (k + 1) · (arcs + sites) · log).
+pub fn dual_bound(
+    net: &Network,
+    view: &Surviving,
+    layered: &Layered,
+    arc_price: &[f64],
+    fn_price: &BTreeMap<(SiteIdx, FunctionIdx), f64>,
+) -> f64 {
+    let ch = net.chains.as_ref().expect("a network with functions");
+    let n = net.sites.len();
+    let mut bound = 0.0;
+    for (a, &cap) in layered.arc_cap.iter().enumerate() {
+        if layered.arc_row[a].is_some() {
+            bound += cap * arc_price[a];
+        }
+    }
+    for (key, &cap) in &layered.function_cap {
+        bound += cap * fn_price.get(key).copied().unwrap_or(0.0);
+    }
+    for group in &layered.groups {
+        let k = group.chain.len();
+        let cum = &group.cumulative;
+        let mut dist = vec![f64::INFINITY; (k + 1) * n];
+        let mut heap = BinaryHeap::new();
+        dist[group.origin] = 0.0;
+        heap.push(Reverse((Ordered(0.0), group.origin)));
+        while let Some(Reverse((Ordered(dv), node))) = heap.pop() {
+            if dv > dist[node] {
+                continue;
+            }
+            let (j, v) = (node / n, node % n);
+            let mut relax = |to: usize, cost: f64, heap: &mut BinaryHeap<_>| {
+                let nd = dv + cost;
+                if nd < dist[to] {
+                    dist[to] = nd;
+                    heap.push(Reverse((Ordered(nd), to)));
+                }
+            };
+            for &a in &view.arcs {
+                let arc = &net.arcs[a];
+                if arc.from == v {
+                    relax(j * n + arc.to, cum[j] * arc_price[a], &mut heap);
+                }
+            }
+            if j < k && runs(ch, view, v, group.chain[j]) {
+                let z = fn_price.get(&(v, group.chain[j])).copied().unwrap_or(0.0);
+                relax((j + 1) * n + v, cum[j] * z, &mut heap);
+            }
+        }
+        for &d in &group.demands {
+            let pi = dist[k * n + net.demands[d].to];
+            bound += layered.bound[d] * (1.0 - pi).max(0.0);
+        }
+    }
+    bound
+}
+
+/// A float ordered by `total_cmp`, for the heap.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Ordered(f64);
+impl Eq for Ordered {}
+impl PartialOrd for Ordered {
+    fn partial_cmp(&self, o: &Self) -> Option<std::cmp::Ordering> {
+        Some(self.cmp(o))
+    }
+}
+impl Ord for Ordered {
+    fn cmp(&self, o: &Self) -> std::cmp::Ordering {
+        self.0.total_cmp(&o.0)
+    }
+}
+
+/// The layered LP of `view` with caps `bound`, solved by each backend of `ladder` in turn
+/// until proven, verified (residual, repaired lower bound, dual upper bound), the best
+/// bounds of all attempts kept. Also returns the cut-off demands. Fails only when every
+/// backend fails.
+pub fn solve_verified_with(
+    net: &Network,
+    view: &Surviving,
+    bound: &[f64],
+    ladder: &[&dyn Backend],
+) -> Result<(Verified, Vec<(usize, Unservable)>)> {
+    let (model, layered, cut_off) = build(net, view, bound);
+    let at_stake: f64 = (0..net.demands.len())
+        .filter(|&d| layered.demand_var[d].is_some())
+        .map(|d| bound[d])
+        .sum();
+    let arc_has_row: Vec<bool> = layered.arc_row.iter().map(Option::is_some).collect();
+    let site_has_row = vec![false; net.sites.len()];
+    if model.num_vars() == 0 {
+        let (allocation, _) = repair(net, &layered, &[]);
+        return Ok((
+            Verified {
+                allocation,
+                lp_value: 0.0,
+                verification: Verification {
+                    proven: true,
+                    lower: 0.0,
+                    upper: 0.0,
+                    residual: 0.0,
+                    attempts: 0,
+                    backend: "none (nothing to route)".into(),
+                },
+                arc_price: vec![0.0; net.arcs.len()],
+                site_price: vec![0.0; net.sites.len()],
+                arc_has_row,
+                site_has_row,
+                bound_price: (Vec::new(), Vec::new()),
+            },
+            cut_off,
+        ));
+    }
+    let var_floor = model.magnitude.clone();
+    let row_floor: Vec<f64> = model
+        .rows
+        .iter()
+        .map(|r| {
+            r.coeffs
+                .iter()
+                .map(|&(j, a)| a.abs() * var_floor[j])
+                .fold(0.0, f64::max)
+        })
+        .collect();
+    let scale = at_stake.max(f64::MIN_POSITIVE);
+    let mut best: Option<Verified> = None;
+    let mut best_upper = f64::INFINITY;
+    let mut best_arc_price = vec![0.0; net.arcs.len()];
+    let mut errors = Vec::new();
+    for (attempt, backend) in ladder.iter().enumerate() {
+        super::cancel::check()?;
+        let solution = match backend.solve(&model) {
+            Ok(s) => s,
+            Err(Error::Solver(m)) => {
+                errors.push(format!("{}: {m}", backend.name()));
+                continue;
+            }
+            Err(e) => return Err(e),
+        };
+        let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
+        let (allocation, _) = repair(net, &layered, &solution.x);
+        let arc_price: Vec<f64> = layered
+            .arc_row
+            .iter()
+            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
+            .collect();
+        let fn_price: BTreeMap<(SiteIdx, FunctionIdx), f64> = layered
+            .function_row
+            .iter()
+            .map(|(&k, &r)| (k, solution.duals[r].max(0.0)))
+            .collect();
+        let upper = dual_bound(net, view, &layered, &arc_price, &fn_price).min(at_stake);
+        if upper < best_upper {
+            best_upper = upper;
+            best_arc_price = arc_price;
+        }
+        let lp_value: f64 = layered
+            .demand_var
+            .iter()
+            .flatten()
+            .map(|&v| solution.x[v])
+            .sum();
+        let feasible = residual <= RESIDUAL_TOL;
+        let better = best.as_ref().is_none_or(|b| {
+            let b_feasible = b.verification.residual <= RESIDUAL_TOL;
+            (feasible && !b_feasible)
+                || (feasible == b_feasible && allocation.served > b.allocation.served)
+        });
+        if better {
+            best = Some(Verified {
+                lp_value,
+                verification: Verification {
+                    proven: false,
+                    lower: allocation.served,
+                    upper: f64::INFINITY,
+                    residual,
+                    attempts: attempt + 1,
+                    backend: backend.name().into(),
+                },
+                allocation,
+                arc_price: Vec::new(),
+                site_price: vec![0.0; net.sites.len()],
+                arc_has_row: arc_has_row.clone(),
+                site_has_row: site_has_row.clone(),
+                bound_price: (Vec::new(), Vec::new()),
+            });
+        }
+        let b = best.as_mut().expect("set above");
+        b.verification.attempts = attempt + 1;
+        b.verification.upper = best_upper;
+        let gap = best_upper - b.verification.lower;
+        let tol = PROOF_GAP_TOL * scale;
+        b.verification.proven =
+            b.verification.residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol;
+        if b.verification.proven {
+            break;
+        }
+    }
+    let mut out = best.ok_or_else(|| Error::Solver(errors.join("; ")))?;
+    out.arc_price = (0..net.arcs.len())
+        .map(|a| {
+            if layered.arc_cap[a] < net.arcs[a].capacity {
+                0.0
+            } else {
+                best_arc_price[a]
+            }
+        })
+        .collect();
+    out.bound_price = (best_arc_price, Vec::new());
+    Ok((out, cut_off))
+}
+
+/// [`solve_verified_with`] on [`LADDER`].
+pub fn solve_verified(
+    net: &Network,
+    view: &Surviving,
+    bound: &[f64],
+) -> Result<(Verified, Vec<(usize, Unservable)>)> {
+    solve_verified_with(net, view, bound, &LADDER)
+}
+
+/// Σ over demands of the reported flow times its chain's gain: the volume reaching the
+/// destinations at the reported served_required allocation. O(demands · chain).
+pub fn delivered(net: &Network, flows: &[f64]) -> f64 {
+    match &net.chains {
+        Some(ch) => flows
+            .iter()
+            .enumerate()
+            .map(|(d, &f)| f * ch.total_gain(d))
+            .sum(),
+        None => flows.iter().sum(),
+    }
+}
+
+/// The evaluator of a network with `functions`: the layered edge LP per quantity, cold.
+/// Purchases are not defined yet (`add_processing` gives `None`).
+pub struct ChainEdge;
+
+impl Evaluator for ChainEdge {
+    fn name(&self) -> &'static str {
+        "chains"
+    }
+
+    fn evaluate(&self, net: &Network, outage: &Outage, _: Option<&Warm>) -> Result<Evaluated> {
+        Ok(Evaluated::cold(evaluate(net, outage)?))
+    }
+
+    fn add_processing(
+        &self,
+        _: &mut Lp,
+        _: &Network,
+        _: &Outage,
+        _: &[Option<usize>],
+        _: f64,
+    ) -> Option<AddModel> {
+        None
+    }
+}
+
+/// One outage of a network with `functions`, verified and reported: the layered LP with
+/// caps `required`, and with caps `volume` when some surviving demand offers more, ended
+/// in [`finish_with`] with the layered cut-off list; `delivered` set from the reported
+/// flows.
+pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
+    let view = Surviving::new(net, outage, None);
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let (solved, cut_off) = solve_verified(net, &view, &required)?;
+    let volume = if needs_volume_lp(net, outage) {
+        let caps: Vec<f64> = net.demands.iter().map(|d| d.volume).collect();
+        Some(solve_verified(net, &view, &caps)?.0)
+    } else {
+        None
+    };
+    let mut e = finish_with(net, &view, cut_off, solved, volume);
+    // Shown as the plainest number within solver noise of the delivered volume at stake
+    // (Σ required · gain over the surviving demands), as every reported amount is.
+    let ch = net.chains.as_ref().expect("a network with functions");
+    let at_stake: f64 = (0..net.demands.len())
+        .filter(|&d| view.demand_alive(net, d))
+        .map(|d| net.demands[d].required * ch.total_gain(d))
+        .sum();
+    let x = delivered(net, &e.demand_flow);
+    let eps = crate::tol::NOISE * at_stake;
+    e.delivered = Some(super::simplest_in(x - eps, x + eps, x.round()).max(0.0));
+    Ok(e)
+}

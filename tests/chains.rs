@@ -1,0 +1,572 @@
+//! Service chains and gains (`functions`, `sites[].functions`, `demands[].chain`), through
+//! the binary:
+//!
+//! - hand-worked cases, each with its calculation in a comment (common practice, no
+//!   source: the arithmetic is the contract's definition applied by hand);
+//! - a second formulation written here from the input contract: one layered LP *per
+//!   demand* (not aggregated by origin and chain), solved by microlp (a simplex method,
+//!   through good_lp) rather than the product's interior-point backend, over random small
+//!   networks with random chains and gains, for every single-failure scenario;
+//! - a chain of one gain-1 function against the same file written without `functions`
+//!   (the base model the rest of the test suite checks), on the shipped examples;
+//! - refusals with their messages.
+
+mod common;
+
+use common::json::{audit_json, num, scenario, scenarios};
+use common::{TempPath, redoubt};
+use good_lp::{Expression, ProblemVariables, Solution, SolverModel, Variable, microlp, variable};
+use rand::prelude::*;
+use serde_json::{Value, json};
+
+/// Relative tolerance of the comparisons: |got − want| <= REL · max(1, |want|).
+const REL: f64 = 1e-6;
+
+fn assert_close(got: f64, want: f64, what: &str) {
+    assert!(
+        (got - want).abs() <= REL * want.abs().max(1.0),
+        "{what}: got {got}, want {want} (relative tolerance {REL})"
+    );
+}
+
+/// Audits `net` (baseline and every single link and site failure) and returns the JSON.
+fn audit(net: &Value) -> Value {
+    let file = TempPath::with_text("chains", &net.to_string());
+    let (run, doc) = audit_json(file.path(), &["--threads", "1"]);
+    assert!(
+        run.stderr.is_empty(),
+        "--quiet prints no note: {}",
+        run.stderr
+    );
+    doc
+}
+
+fn baseline_served(net: &Value) -> (f64, f64) {
+    let doc = audit(net);
+    let sc = scenario(&doc, &[]);
+    assert_eq!(sc["verification"]["status"], "proven", "{sc}");
+    (num(sc, "served_required"), num(sc, "delivered"))
+}
+
+/// A path a — b — c — d with `fw` (gain 1) at b and `scrub` (gain `g`) at c; links ab and
+/// bc of capacity 10, cd of capacity 3; one demand a→d of volume 10 with chain fw > scrub.
+fn two_function_path(fw_capacity: f64, g: f64) -> Value {
+    json!({
+        "functions": [{"id": "fw", "gain": 1}, {"id": "scrub", "gain": g}],
+        "sites": [
+            {"id": "a"},
+            {"id": "b", "functions": {"fw": fw_capacity}},
+            {"id": "c", "functions": {"scrub": 100}},
+            {"id": "d"}
+        ],
+        "links": [
+            {"id": "ab", "from": "a", "to": "b", "capacity": 10},
+            {"id": "bc", "from": "b", "to": "c", "capacity": 10},
+            {"id": "cd", "from": "c", "to": "d", "capacity": 3}
+        ],
+        "demands": [{"from": "a", "to": "d", "volume": 10, "chain": ["fw", "scrub"]}]
+    })
+}
+
+#[test]
+fn two_function_chain_on_a_path() {
+    // Served F (origin units) uses ab and bc at F (before scrub), fw at b at F, scrub at c
+    // at F, and cd at g·F after scrub. With g = 1 and fw = 2: F <= min(10, 10, 2, 100, 3)
+    // = 2, delivered 2.
+    let (served, delivered) = baseline_served(&two_function_path(2.0, 1.0));
+    assert_close(served, 2.0, "fw binds");
+    assert_close(delivered, 2.0, "gain 1 delivers what is served");
+    // With fw = 8 and g = 1: F <= min(10, 10, 8, 100, 3) = 3 (cd binds).
+    let (served, _) = baseline_served(&two_function_path(8.0, 1.0));
+    assert_close(served, 3.0, "cd binds");
+}
+
+#[test]
+fn a_gain_of_one_half_halves_link_use_after_the_function() {
+    // Same path, fw = 8, scrub gain 0.5: cd carries 0.5·F <= 3, so F <= 6; the others
+    // allow 8 (fw). Served 6 origin units, delivered 0.5 · 6 = 3.
+    let (served, delivered) = baseline_served(&two_function_path(8.0, 0.5));
+    assert_close(served, 6.0, "served in origin units");
+    assert_close(delivered, 3.0, "delivered at the destination");
+    // Gain 2 doubles it instead: 2·F <= 3, F = 1.5, delivered 3.
+    let (served, delivered) = baseline_served(&two_function_path(8.0, 2.0));
+    assert_close(served, 1.5, "gain 2");
+    assert_close(delivered, 3.0, "gain 2 delivered");
+}
+
+/// One-way links a→m (100), m→t (8), t→p (100), p→m (100); `f` (gain `g`) only at p;
+/// demand a→t of volume 50 with chain [f].
+fn revisit(g: f64) -> Value {
+    json!({
+        "functions": [{"id": "f", "gain": g}],
+        "sites": [{"id": "a"}, {"id": "m"}, {"id": "t"}, {"id": "p", "functions": {"f": 100}}],
+        "links": [
+            {"id": "am", "from": "a", "to": "m", "capacity": 100, "one_way": true},
+            {"id": "mt", "from": "m", "to": "t", "capacity": 8, "one_way": true},
+            {"id": "tp", "from": "t", "to": "p", "capacity": 100, "one_way": true},
+            {"id": "pm", "from": "p", "to": "m", "capacity": 100, "one_way": true}
+        ],
+        "demands": [{"from": "a", "to": "t", "volume": 50, "chain": ["f"]}]
+    })
+}
+
+#[test]
+fn the_only_walk_crosses_a_link_before_and_after_the_function() {
+    // The only walk is a→m→t→p (f) →m→t: m→t carries F before f and g·F after it.
+    // g = 1: 2F <= 8, F = 4.
+    let (served, _) = baseline_served(&revisit(1.0));
+    assert_close(served, 4.0, "link crossed twice, gain 1");
+    // g = 0.5: F + 0.5F <= 8, F = 16/3, delivered 8/3.
+    let (served, delivered) = baseline_served(&revisit(0.5));
+    assert_close(served, 16.0 / 3.0, "link crossed twice, gain 0.5");
+    assert_close(delivered, 8.0 / 3.0, "delivered, gain 0.5");
+}
+
+#[test]
+fn plain_traffic_competes_with_a_chain() {
+    // Path a — b — c (capacity 10 each way); f only at c. The chained demand a→b (required
+    // 5) must go a→b→c (f) →b: a→b, b→c and c→b each carry F1. The plain demand a→b
+    // (required 8, no chain) uses a→b only: F1 + F2 <= 10 on a→b, so served 10 of 13,
+    // shortfall 3. Failing link bc cuts the chained demand off (no way to f): served 8.
+    let net = json!({
+        "functions": [{"id": "f", "gain": 1}],
+        "sites": [{"id": "a"}, {"id": "b"}, {"id": "c", "functions": {"f": 100}}],
+        "links": [
+            {"id": "ab", "from": "a", "to": "b", "capacity": 10},
+            {"id": "bc", "from": "b", "to": "c", "capacity": 10}
+        ],
+        "demands": [
+            {"id": "chained", "from": "a", "to": "b", "volume": 5, "chain": ["f"]},
+            {"id": "plain", "from": "a", "to": "b", "volume": 8}
+        ]
+    });
+    let doc = audit(&net);
+    let base = scenario(&doc, &[]);
+    assert_close(num(base, "served_required"), 10.0, "baseline served");
+    assert_close(num(base, "shortfall"), 3.0, "baseline shortfall");
+    let cut = scenario(&doc, &["link:bc"]);
+    assert_close(num(cut, "served_required"), 8.0, "bc failed");
+    assert_eq!(cut["cut_off_demands"], json!(["chained"]), "{cut}");
+    // One named scenario (`--fail`) solves its baseline on its own: the same 10.
+    let file = TempPath::with_text("chains-fail", &net.to_string());
+    let (_, doc) = audit_json(file.path(), &["--fail", "link:bc"]);
+    assert_close(
+        num(&doc["baseline"], "served_required"),
+        10.0,
+        "--fail baseline",
+    );
+    assert_close(
+        num(&doc["baseline"], "delivered"),
+        10.0,
+        "--fail baseline delivered",
+    );
+    assert_close(
+        num(scenario(&doc, &["link:bc"]), "served_required"),
+        8.0,
+        "--fail bc",
+    );
+}
+
+#[test]
+fn the_reversed_chain_gives_another_answer() {
+    // Path a — b — c — d (ab 100, bc 6, cd 100); f1 (gain 0.5) only at b, f2 (gain 1)
+    // only at c; one demand a→d of volume 20.
+    // Chain f1 > f2: a→b (f1) →c (f2) →d; b→c carries 0.5F <= 6: F = 12.
+    // Chain f2 > f1: a→b→c (f2) →b (f1) →c→d; b→c carries F (before f2) + 0.5F (after
+    // f1) <= 6: F = 4 (c→b carries F <= 6, not binding).
+    let net = |chain: [&str; 2]| {
+        json!({
+            "functions": [{"id": "f1", "gain": 0.5}, {"id": "f2", "gain": 1}],
+            "sites": [
+                {"id": "a"},
+                {"id": "b", "functions": {"f1": 100}},
+                {"id": "c", "functions": {"f2": 100}},
+                {"id": "d"}
+            ],
+            "links": [
+                {"id": "ab", "from": "a", "to": "b", "capacity": 100},
+                {"id": "bc", "from": "b", "to": "c", "capacity": 6},
+                {"id": "cd", "from": "c", "to": "d", "capacity": 100}
+            ],
+            "demands": [{"from": "a", "to": "d", "volume": 20, "chain": chain}]
+        })
+    };
+    let (forward, _) = baseline_served(&net(["f1", "f2"]));
+    let (reversed, _) = baseline_served(&net(["f2", "f1"]));
+    assert_close(forward, 12.0, "f1 > f2");
+    assert_close(reversed, 4.0, "f2 > f1");
+}
+
+// ---------------------------------------------------------------------------------------
+// Reference: a per-demand layered LP on microlp.
+// ---------------------------------------------------------------------------------------
+
+struct RNet {
+    gains: Vec<f64>,
+    /// Per site, per function.
+    capacity: Vec<Vec<f64>>,
+    /// (from, to, capacity, one_way).
+    links: Vec<(usize, usize, f64, bool)>,
+    /// (from, to, volume, required, chain).
+    demands: Vec<(usize, usize, f64, f64, Vec<usize>)>,
+}
+
+impl RNet {
+    fn to_json(&self) -> Value {
+        let fid = |f: usize| format!("f{f}");
+        json!({
+            "functions": self.gains.iter().enumerate()
+                .map(|(f, g)| json!({"id": fid(f), "gain": g})).collect::<Vec<_>>(),
+            "sites": self.capacity.iter().enumerate().map(|(v, caps)| {
+                let m: serde_json::Map<String, Value> = caps.iter().enumerate()
+                    .filter(|(_, c)| **c > 0.0)
+                    .map(|(f, c)| (fid(f), json!(c))).collect();
+                json!({"id": format!("s{v}"), "functions": m})
+            }).collect::<Vec<_>>(),
+            "links": self.links.iter().enumerate().map(|(l, &(a, b, c, one))| json!({
+                "id": format!("l{l}"), "from": format!("s{a}"), "to": format!("s{b}"),
+                "capacity": c, "one_way": one})).collect::<Vec<_>>(),
+            "demands": self.demands.iter().map(|(a, b, vol, req, chain)| json!({
+                "from": format!("s{a}"), "to": format!("s{b}"), "volume": vol,
+                "required": req,
+                "chain": chain.iter().map(|&f| fid(f)).collect::<Vec<_>>()
+            })).collect::<Vec<_>>(),
+        })
+    }
+}
+
+/// served_required from the contract: per demand `d` with chain f1…fk, layers 0..=k of
+/// the surviving arcs; `x[d][j][a]` in origin units, the arc row takes `G_j · x`
+/// (`G_j` = g1·…·gj); `p[d][j][v]` moves layer j to j+1 at a surviving site with
+/// capacity of f_{j+1}, its function row takes `G_j · p`; conservation per demand, layer
+/// and site with `F_d` leaving the origin in layer 0 and reaching the destination in
+/// layer k; `0 <= F_d <= required` (`<= volume` with `by_volume`: the throughput). A
+/// failed site loses its functions and links; a demand with a failed end is left out.
+fn reference_served(
+    t: &RNet,
+    failed_site: Option<usize>,
+    failed_link: Option<usize>,
+    by_volume: bool,
+) -> f64 {
+    let n = t.capacity.len();
+    let up = |v: usize| failed_site != Some(v);
+    let mut arcs = Vec::new();
+    for (l, &(a, b, c, one)) in t.links.iter().enumerate() {
+        if failed_link == Some(l) || !up(a) || !up(b) {
+            continue;
+        }
+        arcs.push((a, b, c));
+        if !one {
+            arcs.push((b, a, c));
+        }
+    }
+    let nf = t.gains.len();
+    let mut pv = ProblemVariables::new();
+    let mut arc_use = vec![Expression::from(0.0); arcs.len()];
+    let mut fn_use = vec![vec![Expression::from(0.0); nf]; n];
+    let mut objective = Expression::from(0.0);
+    let mut balance = Vec::new();
+    for (from, to, volume, required, chain) in &t.demands {
+        if !up(*from) || !up(*to) {
+            continue;
+        }
+        let k = chain.len();
+        let cap = if by_volume { *volume } else { *required };
+        let f: Variable = pv.add(variable().min(0.0).max(cap));
+        objective += f;
+        let mut g = 1.0;
+        let mut node = vec![vec![Expression::from(0.0); n]; k + 1];
+        for j in 0..=k {
+            for (a, &(u, w, _)) in arcs.iter().enumerate() {
+                let x = pv.add(variable().min(0.0));
+                node[j][u] -= x;
+                node[j][w] += x;
+                arc_use[a] += g * x;
+            }
+            if j < k {
+                for v in 0..n {
+                    if up(v) && t.capacity[v][chain[j]] > 0.0 {
+                        let p = pv.add(variable().min(0.0));
+                        node[j][v] -= p;
+                        node[j + 1][v] += p;
+                        fn_use[v][chain[j]] += g * p;
+                    }
+                }
+                g *= t.gains[chain[j]];
+            }
+        }
+        node[0][*from] += f;
+        node[k][*to] -= f;
+        for layer in node {
+            balance.extend(layer);
+        }
+    }
+    let mut model = pv.maximise(objective.clone()).using(microlp);
+    for e in balance {
+        model.add_constraint(e.eq(0.0));
+    }
+    for (a, e) in arc_use.into_iter().enumerate() {
+        model.add_constraint(e.leq(arcs[a].2));
+    }
+    for (v, row) in fn_use.into_iter().enumerate() {
+        for (f, e) in row.into_iter().enumerate() {
+            if up(v) && t.capacity[v][f] > 0.0 {
+                model.add_constraint(e.leq(t.capacity[v][f]));
+            }
+        }
+    }
+    model
+        .solve()
+        .expect("microlp solves the reference")
+        .eval(&objective)
+}
+
+#[allow(clippy::needless_range_loop)] // each function's capacity goes to a random site
+fn random_net(rng: &mut StdRng) -> RNet {
+    let n = rng.random_range(4..=6);
+    let nf = rng.random_range(1..=3);
+    let gains_from = [0.5, 0.8, 1.0, 1.25, 2.0];
+    let gains: Vec<f64> = (0..nf)
+        .map(|_| gains_from[rng.random_range(0..gains_from.len())])
+        .collect();
+    let mut capacity = vec![vec![0.0; nf]; n];
+    for f in 0..nf {
+        // At least one site per function, a second one often.
+        for _ in 0..rng.random_range(1..=2) {
+            capacity[rng.random_range(0..n)][f] = rng.random_range(5..=300) as f64 / 10.0;
+        }
+    }
+    let mut links = Vec::new();
+    for l in 0..rng.random_range(n..=n + 4) {
+        let (a, b) = if l < n {
+            (l, (l + 1) % n)
+        } else {
+            let a = rng.random_range(0..n);
+            let mut b = rng.random_range(0..n - 1);
+            if b >= a {
+                b += 1;
+            }
+            (a, b)
+        };
+        links.push((
+            a,
+            b,
+            rng.random_range(10..=300) as f64 / 10.0,
+            rng.random_bool(0.25),
+        ));
+    }
+    let mut demands = Vec::new();
+    for i in 0..rng.random_range(2..=5) {
+        let a = if i % 3 == 2 {
+            demands
+                .last()
+                .map(|d: &(usize, usize, f64, f64, Vec<usize>)| d.0)
+                .unwrap()
+        } else {
+            rng.random_range(0..n)
+        };
+        let mut b = rng.random_range(0..n - 1);
+        if b >= a {
+            b += 1;
+        }
+        let chain: Vec<usize> = (0..rng.random_range(0..=3))
+            .map(|_| rng.random_range(0..nf))
+            .collect();
+        let volume = rng.random_range(10..=250) as f64 / 10.0;
+        let required = (volume * rng.random_range(3..=10) as f64).round() / 10.0;
+        demands.push((a, b, volume, required.min(volume), chain));
+    }
+    RNet {
+        gains,
+        capacity,
+        links,
+        demands,
+    }
+}
+
+#[test]
+fn random_chains_match_a_per_demand_reference_under_every_single_failure() {
+    let mut rng = StdRng::seed_from_u64(0xC4A1);
+    for instance in 0..12 {
+        let t = random_net(&mut rng);
+        let doc = audit(&t.to_json());
+        let mut checked = 0;
+        for sc in scenarios(&doc) {
+            let failed = common::json::failed_of(sc);
+            let (site, link) = match failed.as_slice() {
+                [] => (None, None),
+                [one] => match one.split_once(':') {
+                    Some(("site", id)) => (Some(id[1..].parse().unwrap()), None),
+                    Some(("link", id)) => (None, Some(id[1..].parse().unwrap())),
+                    _ => panic!("unexpected element {one}"),
+                },
+                _ => panic!("depth 1 only: {failed:?}"),
+            };
+            let want = reference_served(&t, site, link, false);
+            assert_eq!(sc["verification"]["status"], "proven", "{sc}");
+            assert_close(
+                num(sc, "served_required"),
+                want,
+                &format!("instance {instance}, failed {failed:?}"),
+            );
+            let want = reference_served(&t, site, link, true);
+            assert_close(
+                num(sc, "throughput"),
+                want,
+                &format!("throughput, instance {instance}, failed {failed:?}"),
+            );
+            checked += 1;
+        }
+        assert_eq!(
+            checked,
+            1 + t.capacity.len() + t.links.len(),
+            "baseline and every single link and site failure"
+        );
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// One gain-1 function is the base model.
+// ---------------------------------------------------------------------------------------
+
+/// `file` rewritten with one function `proc` of gain 1: `processing` becomes
+/// `functions.proc`, `expand_cost`/`expand_max` become `expand.proc`, and every demand
+/// gets the chain `["proc"]`.
+fn as_one_function(file: &Value) -> Value {
+    let mut out = file.clone();
+    out["functions"] = json!([{"id": "proc", "gain": 1}]);
+    for s in out["sites"].as_array_mut().unwrap() {
+        let o = s.as_object_mut().unwrap();
+        let p = o.remove("processing").unwrap_or(json!(0));
+        o.insert("functions".into(), json!({"proc": p}));
+        let cost = o.remove("expand_cost");
+        let max = o.remove("expand_max");
+        o.remove("expand_step");
+        if let Some(c) = cost {
+            let mut e = json!({"cost": c});
+            if let Some(m) = max {
+                e["max"] = m;
+            }
+            o.insert("expand".into(), json!({"proc": e}));
+        }
+    }
+    for d in out["demands"].as_array_mut().unwrap() {
+        d["chain"] = json!(["proc"]);
+    }
+    out
+}
+
+#[test]
+fn one_gain_one_function_equals_the_base_model_on_the_examples() {
+    let mut compared = 0;
+    for name in ["small-ring.json", "demo-harrowmere.json"] {
+        let path = common::fixture(name);
+        let base: Value = serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+        let (_, plain) = audit_json(common::s(&path), &["--threads", "1", "--engine", "edge"]);
+        let chained = audit(&as_one_function(&base));
+        for sc in scenarios(&plain) {
+            let failed = common::json::failed_of(sc);
+            let names: Vec<&str> = failed.iter().map(String::as_str).collect();
+            let other = scenario(&chained, &names);
+            for field in ["served_required", "shortfall", "stranded", "throughput"] {
+                assert_close(
+                    num(other, field),
+                    num(sc, field),
+                    &format!("{name} {failed:?} {field}"),
+                );
+            }
+            assert_close(
+                num(other, "delivered"),
+                num(sc, "served_required"),
+                "gain 1 delivers what it serves",
+            );
+            compared += 1;
+        }
+    }
+    assert!(compared > 10, "the examples' scenarios were compared");
+}
+
+// ---------------------------------------------------------------------------------------
+// Refusals.
+// ---------------------------------------------------------------------------------------
+
+fn refused(net: &Value, needles: &[&str]) {
+    let file = TempPath::with_text("chains-bad", &net.to_string());
+    let run = redoubt(&["check", file.path()]);
+    assert_eq!(run.code, 2, "refused with status 2: {}", run.stderr);
+    for n in needles {
+        assert!(run.stderr.contains(n), "{n:?} in {}", run.stderr);
+    }
+}
+
+#[test]
+fn chain_fields_are_validated() {
+    let base = two_function_path(8.0, 0.5);
+    let mut bad = base.clone();
+    bad["demands"][0]["chain"] = json!(["fw", "scrubb"]);
+    refused(
+        &bad,
+        &["demands[0]", "chain", "scrubb", "did you mean \"scrub\""],
+    );
+    let mut bad = base.clone();
+    bad["sites"][1]["functions"] = json!({"fx": 3});
+    refused(&bad, &["sites[1]", "fx", "did you mean \"fw\""]);
+    let mut bad = base.clone();
+    bad["functions"][1]["gain"] = json!(0);
+    refused(&bad, &["functions[1]", "gain", "> 0"]);
+    let mut bad = base.clone();
+    bad["sites"][2]["functions"] = json!({"scrub": -1});
+    refused(&bad, &["sites[2]", "scrub", ">= 0", "-1"]);
+    let mut bad = base.clone();
+    bad["sites"][0]["processing"] = json!(5);
+    refused(
+        &bad,
+        &[
+            "sites[0]",
+            "processing",
+            "sites[].functions",
+            "sites[].expand",
+        ],
+    );
+    let mut bad = base.clone();
+    bad["sites"][0]["expand_cost"] = json!(5);
+    refused(&bad, &["expand_cost", "sites[].expand"]);
+    let mut bad = base.clone();
+    bad.as_object_mut().unwrap().remove("functions");
+    bad["sites"][1].as_object_mut().unwrap().remove("functions");
+    bad["sites"][2].as_object_mut().unwrap().remove("functions");
+    refused(&bad, &["demands[0]", "chain", "functions"]);
+}
+
+#[test]
+fn check_summarises_functions_and_chains() {
+    let file = TempPath::with_text("chains-check", &two_function_path(8.0, 0.5).to_string());
+    let run = redoubt(&["check", file.path()]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    for needle in [
+        "functions (2)",
+        "fw — gain 1; capacity 8: b 8",
+        "scrub — gain 0.5",
+        "fw > scrub — 1 demand, required 10, total gain 0.5",
+    ] {
+        assert!(run.stdout.contains(needle), "{needle:?} in {}", run.stdout);
+    }
+}
+
+#[test]
+fn commands_that_do_not_take_chains_yet_say_so() {
+    let file = TempPath::with_text("chains-refuse", &two_function_path(8.0, 0.5).to_string());
+    for args in [
+        vec!["audit", file.path(), "--close"],
+        vec!["audit", file.path(), "--routing", "steered"],
+        vec!["plan", file.path()],
+    ] {
+        let run = redoubt(&args);
+        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
+        assert!(
+            run.stderr.contains("`functions`"),
+            "{args:?}: {}",
+            run.stderr
+        );
+    }
+}
