@@ -21,6 +21,7 @@ use crate::model::Network;
 use crate::rank::{self, Criticality};
 use crate::risk::Risk;
 use crate::routing::RoutedAudit;
+use crate::screening::Screen;
 use crate::solve::Evaluation;
 
 use super::json::Full;
@@ -49,6 +50,9 @@ pub struct Parts<'a> {
     pub top: usize,
     /// `--headroom`: per outage, the baseline's and the audit's least.
     pub headroom: Option<&'a AuditHeadroom>,
+    /// `--exact-top`: which outages were solved exactly (the rest are approximate
+    /// intervals).
+    pub screen: Option<&'a Screen>,
 }
 
 /// The report model of one audit run. Indices are into `audit.scenarios` unless said.
@@ -97,6 +101,8 @@ pub struct Model<'a> {
     /// `--headroom`: per outage (index with `audit.outage_of[i]`), the baseline's, and the
     /// audit's least with the scenario that sets it.
     pub headroom: Option<&'a AuditHeadroom>,
+    /// `--exact-top`: which outages were solved exactly.
+    pub screen: Option<&'a Screen>,
 }
 
 impl<'a> Model<'a> {
@@ -143,6 +149,7 @@ impl<'a> Model<'a> {
             top: p.top,
             drawing: None,
             headroom: p.headroom,
+            screen: p.screen,
         }
     }
 
