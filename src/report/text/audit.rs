@@ -305,7 +305,7 @@ pub fn screen_line(sc: &crate::screening::Screen) -> String {
     format!(
         "Screened (--exact-top {}): {} solved exactly with the walk engine (every one that \
          could be among the {} worst or decide a gate), so the {} worst are exact; the \
-         other {} from --engine approx, ranked by their lower ends.",
+         other {} from --engine approx, ranked at their proven served amount.",
         sc.top,
         crate::report::count(sc.solved_exactly(), "outage"),
         sc.top,
