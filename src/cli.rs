@@ -305,6 +305,11 @@ pub struct AuditArgs {
     /// fraction of its surviving required demand, in (0, 0.5] (default 0.01).
     #[arg(long, value_name = "E")]
     pub epsilon: Option<f64>,
+    /// With --engine approx: rank every scenario by its proven interval, then solve
+    /// exactly (walk engine) every scenario that could be among the N worst or decide a
+    /// gate; the rest stay proven intervals.
+    #[arg(long, value_name = "N")]
+    pub exact_top: Option<usize>,
 }
 
 /// How each outage is solved; both give the same optimum.

@@ -25,6 +25,7 @@ pub mod report;
 pub mod risk;
 pub mod routing;
 pub mod scenario;
+pub mod screening;
 pub mod solve;
 pub mod tol;
 pub mod worst;

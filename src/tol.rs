@@ -178,3 +178,10 @@ pub const SNAP_GRID: f64 = 1e-5;
 /// close-all master asks for [`CLOSE_TARGET_TOL`] below best, so its plan may be that far
 /// under); without it such a plan would be reported a hair short of its target.
 pub const SNAP_UP_TOL: f64 = 1e-6;
+
+/// Room (relative to a scenario's surviving required demand plus its throughput bound)
+/// added on each side of an approximate interval when `--exact-top` decides which
+/// scenarios could reach the N worst or a gate's limit; without it an exact engine's value,
+/// which may sit up to [`PROOF_GAP_TOL`] outside the true optimum, could fall just outside
+/// the interval and a scenario that ties the N-th worst would not be solved exactly.
+pub const SCREEN_TOL: f64 = 1e-6;

@@ -145,6 +145,11 @@ pub(super) fn run(
                 "--shard is for --routing best (the routed models are fast)".into(),
             ));
         }
+        if args.exact_top.is_some() {
+            return Err(Error::Usage(
+                "--exact-top is for --routing best (--engine approx)".into(),
+            ));
+        }
         let ra = routing::run(&net, list.iter.collect(), mode, opts, true)?;
         let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &ra.audit)?;
         let o = AuditOutput {
@@ -161,6 +166,7 @@ pub(super) fn run(
             opts,
             routed: Some(&ra),
             headroom: args.headroom,
+            screen: None,
         };
         let thin = |_: usize| Err(Error::Internal("thin routed evaluation".into()));
         return finish_audit(&net, &ra.audit, &thin, o, None, &|e| e, out);
@@ -262,7 +268,7 @@ pub(super) fn run(
         stdout_result(report::text::write_shard(out, i, n, own.len(), path))?;
         return Ok(Outcome::Ok);
     }
-    let audit = batch.into_audit();
+    let mut audit = batch.into_audit();
     let saved = journal
         .as_ref()
         .map(|j| (j.saved(), j.outages(), j.path().to_path_buf()));
@@ -274,6 +280,15 @@ pub(super) fn run(
         )),
         _ => e,
     };
+    // --exact-top: the outages that could reach the N worst or decide a gate, solved
+    // exactly and kept in full (never journaled: a resume solves them again).
+    let screen = args
+        .exact_top
+        .map(|n| {
+            crate::screening::confirm(&net, &mut audit, n, &args.gates, args.gate_tolerance, opts)
+        })
+        .transpose()
+        .map_err(&interrupted)?;
     let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &audit)?;
     let reader = journal.as_ref().map(Journal::reader).transpose()?;
     let full = |k: usize| -> Result<solve::Evaluation> {
@@ -300,6 +315,7 @@ pub(super) fn run(
             opts,
             routed: None,
             headroom: args.headroom,
+            screen: screen.as_ref(),
         },
         journal,
         &interrupted,
@@ -350,6 +366,8 @@ pub(super) struct AuditOutput<'a> {
     /// `--headroom`: the growth headroom of every outage (under the routed model when
     /// `routed`), the baseline's and the least.
     pub(super) headroom: bool,
+    /// `--exact-top`: which outages were solved exactly.
+    pub(super) screen: Option<&'a crate::screening::Screen>,
 }
 
 /// Closings, gates, the `--json` file (streamed; thin evaluations read back with `full`),
@@ -423,6 +441,7 @@ pub(super) fn finish_audit(
         top: o.top,
         headroom: headroom.as_ref(),
         detail: o.detail,
+        screen: o.screen,
     });
     if o.report.is_some() {
         model = model.drawn();

@@ -111,6 +111,7 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
             opts,
             routed: None,
             headroom: false,
+            screen: None,
         },
         None,
         &|e| e,

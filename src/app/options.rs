@@ -97,6 +97,9 @@ pub struct AuditOptions {
     pub engine: Engine,
     /// `--headroom` (also set by `--min-headroom`).
     pub headroom: bool,
+    /// `--exact-top N` (only with `--engine approx`, N ≥ 1): the N worst scenarios and the
+    /// gates solved exactly ([`crate::screening`]).
+    pub exact_top: Option<usize>,
 }
 
 /// `plan`, validated.
@@ -362,6 +365,24 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
                 .into(),
         ));
     }
+    match (args.exact_top, engine) {
+        (None, _) => {}
+        (Some(0), _) => {
+            return Err(Error::Usage(
+                "--exact-top must be at least 1 (the number of worst scenarios to solve \
+                 exactly)"
+                    .into(),
+            ));
+        }
+        (Some(_), Engine::Approx { .. }) => {}
+        (Some(_), _) => {
+            return Err(Error::Usage(
+                "--exact-top is only for --engine approx (the exact engines solve every \
+                 scenario exactly)"
+                    .into(),
+            ));
+        }
+    }
     let headroom = args.headroom || args.min_headroom.is_some();
     if shard.is_some() && headroom {
         return Err(Error::Usage(
@@ -393,6 +414,7 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
         why: args.why,
         engine,
         headroom,
+        exact_top: args.exact_top,
     })
 }
 

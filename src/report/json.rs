@@ -44,6 +44,9 @@ pub struct AuditJson<'a> {
     /// `--headroom`: the least headroom over the scenarios and the scenario that sets it.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub headroom: Option<super::headroom::HeadroomJson>,
+    /// `--exact-top`: what was solved exactly.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub screen: Option<ScreenJson>,
 }
 
 /// The per-demand lists of a scenario object: their size grows with the demands of each
@@ -244,6 +247,22 @@ pub struct ScenarioJson {
     /// `--headroom`: how that factor was verified (absent when it is `null`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub headroom_verification: Option<super::headroom::HeadroomVerificationJson>,
+    /// `--exact-top`: `true` when the walk engine solved this scenario exactly, `false`
+    /// when its values are the approximate engine's proven interval (`served_required`
+    /// the lower end, `upper_bound` the upper end).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub exact: Option<bool>,
+}
+
+/// `--exact-top`: the top-level `screen` object of an audit document.
+#[derive(Serialize)]
+pub struct ScreenJson {
+    /// The N asked for: the N worst scenarios are exactly the exact engines' N worst.
+    pub top: usize,
+    /// Distinct outages solved exactly.
+    pub solved_exactly: usize,
+    /// Distinct outages left as proven intervals.
+    pub certified: usize,
 }
 
 /// The `risk` object of an audit document (see [`crate::risk`]).
@@ -461,6 +480,7 @@ pub fn scenario_json(
         same_as: None,
         headroom: None,
         headroom_verification: None,
+        exact: None,
     }
 }
 
@@ -573,6 +593,7 @@ pub fn audit_json<'a>(
         top: 0,
         headroom: None,
         detail: Detail::All,
+        screen: None,
     });
     audit_json_with(&model, closing)
 }
@@ -650,6 +671,7 @@ pub fn audit_json_with<'a>(
             .collect(),
         gates: Vec::new(),
         headroom: None,
+        screen: None,
     }
 }
 
@@ -673,6 +695,16 @@ impl Exporter for Json {
             attach_risk(&mut doc, m.net, m.audit, r);
         }
         super::headroom::attach(&mut doc, m);
+        if let Some(sc) = m.screen {
+            let (exact, outage_of) = (&sc.exact, &m.audit.outage_of);
+            doc.scenarios
+                .patch(Box::new(move |i, j| j.exact = Some(exact[outage_of[i]])));
+            doc.screen = Some(ScreenJson {
+                top: sc.top,
+                solved_exactly: sc.solved_exactly(),
+                certified: sc.certified(),
+            });
+        }
         write(w, &doc)
     }
 }

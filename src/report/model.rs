@@ -21,6 +21,7 @@ use crate::model::Network;
 use crate::rank::{self, Criticality};
 use crate::risk::Risk;
 use crate::routing::RoutedAudit;
+use crate::screening::Screen;
 use crate::solve::Evaluation;
 
 use super::json::{Detail, Full};
@@ -51,6 +52,9 @@ pub struct Parts<'a> {
     pub headroom: Option<&'a AuditHeadroom>,
     /// Which scenarios of the `--json` document carry the per-demand lists.
     pub detail: Detail,
+    /// `--exact-top`: which outages were solved exactly (the rest are approximate
+    /// intervals).
+    pub screen: Option<&'a Screen>,
 }
 
 /// The report model of one audit run. Indices are into `audit.scenarios` unless said.
@@ -104,6 +108,8 @@ pub struct Model<'a> {
     /// Per traffic matrix: its baseline's evaluation when the run holds it (a file with
     /// `matrices`); empty otherwise, and then every scenario reads `baseline`.
     pub matrix_baselines: Vec<Option<&'a Evaluation>>,
+    /// `--exact-top`: which outages were solved exactly.
+    pub screen: Option<&'a Screen>,
 }
 
 impl<'a> Model<'a> {
@@ -164,6 +170,7 @@ impl<'a> Model<'a> {
             headroom: p.headroom,
             detail: p.detail,
             matrix_baselines,
+            screen: p.screen,
         }
     }
 

@@ -309,6 +309,9 @@ pub fn audit_report(m: &Model<'_>) -> String {
         let _ = writeln!(out, "{}", render(&mut c, &[4]));
     }
     let _ = writeln!(out, "\n{}", verification_summary(audit));
+    if let Some(sc) = m.screen {
+        let _ = writeln!(out, "{}", screen_line(sc));
+    }
     out.push_str(&crate::report::headroom::verification_lines(m));
     for (k, e) in audit.evaluations.iter().enumerate() {
         let name = || audit.first_scenario(k).display_name();
@@ -352,6 +355,25 @@ pub fn audit_report(m: &Model<'_>) -> String {
         }
     }
     out
+}
+
+/// `--exact-top N`: how many outages the walk engine solved exactly (those that could be
+/// among the N worst or decide a gate) and that the rest are proven intervals. O(outages).
+pub fn screen_line(sc: &crate::screening::Screen) -> String {
+    format!(
+        "Screened (--exact-top {}): {} solved exactly with the walk engine (every one that \
+         could be among the {} worst or decide a gate), so the {} worst are exact; the \
+         other {} from --engine approx, ranked at their proven served amount.",
+        sc.top,
+        crate::report::count(sc.solved_exactly(), "outage"),
+        sc.top,
+        sc.top,
+        if sc.certified() == 1 {
+            "1 is a proven interval".to_string()
+        } else {
+            format!("{} are proven intervals", sc.certified())
+        },
+    )
 }
 
 /// One line on how the results were verified: how many outages were proven optimal (both
