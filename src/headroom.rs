@@ -21,6 +21,8 @@ use crate::numbers::{displayed, file_num, num};
 use crate::rank;
 use crate::routing;
 use crate::scenario::{Outage, Scenario};
+use crate::solve::Surviving;
+use crate::solve::concurrent;
 pub use crate::solve::concurrent::Headroom;
 
 /// The headroom of one outage: under the best re-route when `routing` is `None`, else
@@ -79,14 +81,32 @@ pub fn of_audit(
     routing: Option<&routing::Model>,
     opts: RunOptions,
 ) -> Result<AuditHeadroom> {
-    let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
-        of_outage(net, o, routing)
-    })?;
     let down = audit.scenarios.first().map_or(&[][..], |s| &s.down[..]);
     let base = Scenario::baseline().with_down(down).outage(net);
-    let baseline = match audit.outages.iter().position(|o| *o == base) {
-        Some(k) => per_outage[k].clone(),
-        None => of_outage(net, &base, routing)?,
+    let (baseline, per_outage) = match routing {
+        Some(model) => {
+            let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
+                routing::headroom::of_outage(model, net, o)
+            })?;
+            let baseline = match audit.outages.iter().position(|o| *o == base) {
+                Some(k) => per_outage[k].clone(),
+                None => routing::headroom::of_outage(model, net, &base)?,
+            };
+            (baseline, per_outage)
+        }
+        None => {
+            // The baseline first: its columns start every outage.
+            let view = Surviving::new(net, &base, None);
+            let (baseline, columns, _) = concurrent::headroom_walks(net, &view, None)?;
+            let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
+                if *o == base {
+                    return Ok(baseline.clone());
+                }
+                let view = Surviving::new(net, o, None);
+                Ok(concurrent::headroom_walks(net, &view, columns.as_ref())?.0)
+            })?;
+            (baseline, per_outage)
+        }
     };
     let least = least(audit, &per_outage, &rank::worst_first(audit));
     Ok(AuditHeadroom {
