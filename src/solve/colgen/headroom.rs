@@ -128,6 +128,29 @@ pub fn solve(
     for (w, f) in lifted {
         m.column(w, f * factor);
     }
+    // Every active demand gets its cheapest walk at the parent's prices (zero prices
+    // without a parent) as a column at 0, so the first master serves them all; without
+    // these, each round would price only the demands its degenerate duals name.
+    let zero = (vec![0.0; net.arcs.len()], vec![0.0; net.sites.len()]);
+    let (y0, z0) = match parent {
+        Some(p) => (
+            p.arc_price.iter().map(|&y| y.max(0.0)).collect::<Vec<f64>>(),
+            p.site_price.iter().map(|&z| z.max(0.0)).collect::<Vec<f64>>(),
+        ),
+        None => zero,
+    };
+    // Class prices: a class arc takes its cheapest member's price.
+    let mut y0c = y0.clone();
+    for &r in &g.usable {
+        for &a in &g.members[r] {
+            y0c[r] = y0c[r].min(y0[a]);
+        }
+    }
+    let every = vec![f64::NEG_INFINITY; net.demands.len()];
+    work.rounds += 1;
+    for w in price(&g, &caps, &y0c, &z0, Some(&every)).walks {
+        m.column(w, 0.0);
+    }
     m.run(net, view, setup, &real_caps, &caps, work)
 }
 
