@@ -29,6 +29,11 @@
 //!   relative to the bound. The reported value is the plainest number in the interval,
 //!   1 when the interval holds 1 (so λ ≥ 1 exactly when nothing is short).
 //!
+//! **Engines.** [`headroom_walks`] solves the same model on the walk engine
+//! ([`super::colgen::headroom`], column generation with one λ, started from a parent's
+//! columns) and verifies it the same way; only when that answer is not proven is the edge
+//! λ-LP above ([`headroom_lp`]) solved.
+//!
 //! A surviving demand that no walk through a processing site can serve at all gives λ = 0,
 //! proven by that demand alone (its cheapest walk costs nothing it could use).
 
