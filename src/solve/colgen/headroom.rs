@@ -134,8 +134,14 @@ pub fn solve(
     let zero = (vec![0.0; net.arcs.len()], vec![0.0; net.sites.len()]);
     let (y0, z0) = match parent {
         Some(p) => (
-            p.arc_price.iter().map(|&y| y.max(0.0)).collect::<Vec<f64>>(),
-            p.site_price.iter().map(|&z| z.max(0.0)).collect::<Vec<f64>>(),
+            p.arc_price
+                .iter()
+                .map(|&y| y.max(0.0))
+                .collect::<Vec<f64>>(),
+            p.site_price
+                .iter()
+                .map(|&z| z.max(0.0))
+                .collect::<Vec<f64>>(),
         ),
         None => zero,
     };
