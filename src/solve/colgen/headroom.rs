@@ -10,7 +10,7 @@
 //!
 //! **Pricing.** With arc duals `y`, site duals `z` and demand duals `u` (all `≥ 0`), the
 //! column of a walk `w` of `d` has reduced cost `u_d − price(w)`, so the walk engine's
-//! pricing pass ([`super::price`]) at `y`, `z` with demand duals `1 − u_d` finds the
+//! pricing pass (`price` of the walk engine) at `y`, `z` with demand duals `1 − u_d` finds the
 //! improving walks (`u_d − c_d > PRICE_TOL`). The duals are multiplied by `Σ required`
 //! first (so that `Σ_d required_d·u_d/Σ required = 1` at an optimum and the absolute
 //! [`super::PRICE_TOL`] compares amounts of order one). The same pass gives every demand's
