@@ -21,6 +21,8 @@ use crate::numbers::{displayed, file_num, num};
 use crate::rank;
 use crate::routing;
 use crate::scenario::{Outage, Scenario};
+use crate::solve::Surviving;
+use crate::solve::concurrent;
 pub use crate::solve::concurrent::Headroom;
 
 /// The headroom of one outage: under the best re-route when `routing` is `None`, else
@@ -79,12 +81,9 @@ pub fn of_audit(
     routing: Option<&routing::Model>,
     opts: RunOptions,
 ) -> Result<AuditHeadroom> {
-    let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
-        of_outage(net, o, routing)
-    })?;
     let down = audit.scenarios.first().map_or(&[][..], |s| &s.down[..]);
-    // With several traffic matrices, the baseline's headroom is the least over the
-    // matrices the run evaluates (each matrix's own baseline).
+    // With several traffic matrices, each matrix has its own baseline; the audit's
+    // baseline headroom is the least over the matrices the run evaluates.
     let mut matrices: Vec<usize> = Vec::new();
     for s in &audit.scenarios {
         if !matrices.contains(&s.matrix) {
@@ -94,13 +93,52 @@ pub fn of_audit(
     if matrices.is_empty() {
         matrices.push(0);
     }
+    let bases: Vec<Outage> = matrices
+        .iter()
+        .map(|&m| Scenario::baseline().with_down(down).under(m).outage(net))
+        .collect();
+    let (per_base, per_outage) = match routing {
+        Some(model) => {
+            let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
+                routing::headroom::of_outage(model, net, o)
+            })?;
+            let mut per_base = Vec::with_capacity(bases.len());
+            for base in &bases {
+                per_base.push(match audit.outages.iter().position(|o| o == base) {
+                    Some(k) => per_outage[k].clone(),
+                    None => routing::headroom::of_outage(model, net, base)?,
+                });
+            }
+            (per_base, per_outage)
+        }
+        None => {
+            // Each matrix's baseline first: its columns start every outage of that matrix.
+            let mut per_base = Vec::with_capacity(bases.len());
+            let mut columns = Vec::with_capacity(bases.len());
+            for base in &bases {
+                let view_net = net.view(base.matrix);
+                let view = Surviving::new(view_net, base, None);
+                let (h, cols, _) = concurrent::headroom_walks(view_net, &view, None)?;
+                per_base.push(h);
+                columns.push(cols);
+            }
+            let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
+                let k = bases
+                    .iter()
+                    .position(|b| b.matrix == o.matrix)
+                    .expect("every outage's matrix has a baseline");
+                if *o == bases[k] {
+                    return Ok(per_base[k].clone());
+                }
+                let view_net = net.view(o.matrix);
+                let view = Surviving::new(view_net, o, None);
+                Ok(concurrent::headroom_walks(view_net, &view, columns[k].as_ref())?.0)
+            })?;
+            (per_base, per_outage)
+        }
+    };
     let mut baseline: Option<Headroom> = None;
-    for m in matrices {
-        let base = Scenario::baseline().with_down(down).under(m).outage(net);
-        let h = match audit.outages.iter().position(|o| *o == base) {
-            Some(k) => per_outage[k].clone(),
-            None => of_outage(net, &base, routing)?,
-        };
+    for h in per_base {
         let lower = match (&baseline, h.value) {
             (None, _) => true,
             (Some(b), Some(v)) => b.value.is_none_or(|bv| v.total_cmp(&bv).is_lt()),

@@ -29,9 +29,15 @@
 //!   relative to the bound. The reported value is the plainest number in the interval,
 //!   1 when the interval holds 1 (so λ ≥ 1 exactly when nothing is short).
 //!
+//! **Engines.** [`headroom_walks`] solves the same model on the walk engine
+//! ([`super::colgen::headroom`], column generation with one λ, started from a parent's
+//! columns) and verifies it the same way; only when that answer is not proven is the edge
+//! λ-LP above ([`headroom_lp`]) solved.
+//!
 //! A surviving demand that no walk through a processing site can serve at all gives λ = 0,
 //! proven by that demand alone (its cheapest walk costs nothing it could use).
 
+use super::colgen::headroom::{Columns, Work};
 use super::edge::{Attempt, try_backend};
 use super::flow::{self, Cap};
 use super::lp::{self, Sense};
@@ -58,7 +64,7 @@ pub struct Headroom {
 
 impl Headroom {
     /// The headroom of an outage with no surviving required demand.
-    fn absent() -> Headroom {
+    pub(crate) fn absent() -> Headroom {
         Headroom {
             value: None,
             lower: 0.0,
@@ -68,7 +74,7 @@ impl Headroom {
     }
 
     /// λ = 0, proven: some surviving required demand has no walk through a processing site.
-    fn zero() -> Headroom {
+    pub(crate) fn zero() -> Headroom {
         Headroom {
             value: Some(0.0),
             lower: 0.0,
@@ -78,34 +84,30 @@ impl Headroom {
     }
 }
 
-/// The headroom of `net` under `outage` (see the module documentation).
-///
-/// Cost: one LP of the size of the served-demand model (plus one variable and one row per
-/// demand), solved by the backends of [`LADDER`] in turn until proven, plus one repair and
-/// one certificate per attempt.
-pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
-    let net = net.view(outage.matrix);
-    headroom_on(net, &Surviving::new(net, outage, None))
+/// What every headroom solve starts from: the required amounts, the surviving demands with
+/// `required > 0` (ascending), the a-priori ceiling `Λ` and `Σ required` over them.
+#[derive(Debug, Clone)]
+pub struct Setup {
+    pub required: Vec<f64>,
+    pub active: Vec<usize>,
+    pub ceiling: f64,
+    pub total_required: f64,
 }
 
-/// [`headroom`] on an already computed view of the surviving network.
-pub fn headroom_on(net: &Network, view: &Surviving) -> Result<Headroom> {
-    headroom_with(net, view, &LADDER)
-}
-
-/// [`headroom_on`] with another ladder of backends (tests check with it that a wrong
-/// answer is caught).
-pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -> Result<Headroom> {
+/// The checks before any LP: `Err(headroom)` when the outage is decided without one (no
+/// surviving required demand: no value; a surviving demand with no processing walk:
+/// λ = 0), else the [`Setup`]. O(sites + arcs + demands) (one reachability scan).
+pub fn setup(net: &Network, view: &Surviving) -> Result<std::result::Result<Setup, Headroom>> {
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
     let active: Vec<usize> = (0..net.demands.len())
         .filter(|&d| view.demand_alive(net, d) && required[d] > 0.0)
         .collect();
     if active.is_empty() {
-        return Ok(Headroom::absent());
+        return Ok(Err(Headroom::absent()));
     }
     let unservable = view.unservable(net, &required);
     if active.iter().any(|&d| unservable[d].is_some()) {
-        return Ok(Headroom::zero());
+        return Ok(Err(Headroom::zero()));
     }
     let total_required: f64 = active.iter().map(|&d| required[d]).sum();
     let total_processing: f64 = (0..net.sites.len())
@@ -119,6 +121,107 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
             "headroom: no finite a-priori bound (processing {total_processing}, required {total_required})"
         )));
     }
+    Ok(Ok(Setup {
+        required,
+        active,
+        ceiling,
+        total_required,
+    }))
+}
+
+/// The interval `[lower, upper]` with its verdict as a [`Headroom`]: proven when the
+/// residual passes and the bounds meet within [`PROOF_GAP_TOL`] of `upper`; the value is
+/// then the plainest number in the interval (1 when it holds 1), else `lower`. O(1).
+pub fn decide(lower: f64, upper: f64, residual: f64) -> Headroom {
+    let gap = upper - lower;
+    let tol = PROOF_GAP_TOL * upper.max(f64::MIN_POSITIVE);
+    let proven = residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol;
+    Headroom {
+        value: Some(if proven {
+            simplest_in(lower.min(upper), upper, 1.0)
+        } else {
+            lower
+        }),
+        lower,
+        upper,
+        proven,
+    }
+}
+
+/// The headroom of `net` under `outage` (see the module documentation): on the walk
+/// engine ([`headroom_walks`], cold), else the edge λ-LP.
+///
+/// Cost: a column generation of the walk engine; when it does not prove its answer, one
+/// LP of the size of the served-demand model (plus one variable and one row per demand),
+/// solved by the backends of [`LADDER`] in turn until proven.
+pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
+    let net = net.view(outage.matrix);
+    headroom_on(net, &Surviving::new(net, outage, None))
+}
+
+/// [`headroom`] on an already computed view of the surviving network.
+pub fn headroom_on(net: &Network, view: &Surviving) -> Result<Headroom> {
+    Ok(headroom_walks(net, view, None)?.0)
+}
+
+/// How one headroom was found.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct HeadroomWork {
+    /// The walk engine's work (see [`Work`]).
+    pub walks: Work,
+    /// Decided without any LP (no surviving demand, or one with no processing walk).
+    pub trivial: bool,
+    /// The walk engine did not prove it: the edge λ-LP ([`headroom_lp`]) was solved.
+    pub fallback: bool,
+}
+
+/// The headroom of the outage `view` on the walk engine ([`super::colgen::headroom`]),
+/// started from `parent` (the baseline's columns, normally), with the edge λ-LP
+/// ([`headroom_lp`]) when the walk engine does not prove its answer. Returns the columns
+/// of a proven walk-engine answer (a start for child outages) and the work done.
+///
+/// Cost: see [`super::colgen::headroom::solve`]; plus [`headroom_lp`] on a fallback.
+pub fn headroom_walks(
+    net: &Network,
+    view: &Surviving,
+    parent: Option<&Columns>,
+) -> Result<(Headroom, Option<Columns>, HeadroomWork)> {
+    let mut work = HeadroomWork::default();
+    let setup = match setup(net, view)? {
+        Ok(s) => s,
+        Err(decided) => {
+            work.trivial = true;
+            return Ok((decided, None, work));
+        }
+    };
+    if let Some((h, cols)) =
+        super::colgen::headroom::solve(net, view, &setup, parent, &mut work.walks)?
+    {
+        return Ok((h, Some(cols), work));
+    }
+    work.fallback = true;
+    Ok((headroom_lp(net, view)?, None, work))
+}
+
+/// The edge λ-LP of the module documentation on `view`, solved by the backends of
+/// [`LADDER`] in turn until proven (the walk engine's fallback and reference).
+pub fn headroom_lp(net: &Network, view: &Surviving) -> Result<Headroom> {
+    headroom_with(net, view, &LADDER)
+}
+
+/// [`headroom_on`] with another ladder of backends (tests check with it that a wrong
+/// answer is caught).
+pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -> Result<Headroom> {
+    let setup = match setup(net, view)? {
+        Ok(s) => s,
+        Err(decided) => return Ok(decided),
+    };
+    let Setup {
+        required,
+        active,
+        ceiling,
+        total_required,
+    } = setup;
 
     // The flow model with every demand capped at Λ·required_d.
     let mut capped = net.clone();
@@ -175,7 +278,8 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
         let price = |row: &Option<usize>| row.map_or(0.0, |r| solution.duals[r].max(0.0));
         let arc_price: Vec<f64> = index.arc_row.iter().map(price).collect();
         let site_price: Vec<f64> = index.site_row.iter().map(price).collect();
-        let upper = upper_bound(net, view, &index, &active, &arc_price, &site_price).min(ceiling);
+        let caps = (index.arc_cap.as_slice(), index.site_cap.as_slice());
+        let upper = upper_bound(net, view, caps, &active, &arc_price, &site_price).min(ceiling);
         best.lower = best.lower.max(lower);
         best.upper = best.upper.min(upper);
         let gap = best.upper - best.lower;
@@ -198,19 +302,19 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
 
 /// The certified bound of the module documentation for prices `arc_price`, `site_price`
 /// over the demands `active`: `(Σ cap·y + Σ proc·z) / Σ_d required_d · c_d`, with the
-/// presolved capacities of `index` (an optimal allocation uses no more). `+∞` when no
+/// capacities `caps` (arcs, sites; any at least what an allocation at λ ≤ Λ uses, such as
+/// the presolved ones of a flow index). `+∞` when no
 /// demand's cheapest walk has a positive price (the prices prove nothing).
 /// O(certificate): see [`certify::cheapest_walks`].
-fn upper_bound(
+pub fn upper_bound(
     net: &Network,
     view: &Surviving,
-    index: &flow::FlowIndex,
+    caps: (&[f64], &[f64]),
     active: &[usize],
     arc_price: &[f64],
     site_price: &[f64],
 ) -> f64 {
-    let worth =
-        certify::priced_capacity(view, &index.arc_cap, &index.site_cap, arc_price, site_price);
+    let worth = certify::priced_capacity(view, caps.0, caps.1, arc_price, site_price);
     let costs = certify::cheapest_walks(net, view, arc_price, site_price, active, None);
     let priced: f64 = active
         .iter()

@@ -1,0 +1,125 @@
+//! `audit --headroom` cost: the depth-1 audit alone beside the audit plus its headroom, on
+//! generated networks (deterministic, `common::document`):
+//! - `B`: 50 sites, 88 links, 662 demands, 4 shared-risk groups (the network `B` of
+//!   `benches/peer.rs`); links, sites and groups fail.
+//! - `G200`: 200 sites, 395 links, 3,903 demands, 20 processing sites (the network of
+//!   `benches/scale.rs`); links fail.
+//!
+//! Per network: the audit (`audit::run`, two threads), then `headroom::of_audit` on it
+//! (walk engine from the baseline's columns, two threads), then one sequential pass over
+//! the outages that counts how each headroom was found (inherited from the baseline's
+//! columns, column generation, fallback to the edge λ-LP), and the edge λ-LP alone on the
+//! first few outages for comparison. Wall times depend on the machine's load.
+//!
+//! Run: `cargo bench --bench headroom` (both), or name networks: `-- B G200`.
+
+mod common;
+
+use std::time::Instant;
+
+use common::{Demands, document};
+use redoubt::audit::{self, RunOptions};
+use redoubt::headroom;
+use redoubt::model::Network;
+use redoubt::scenario::{self, Kinds};
+use redoubt::solve::Surviving;
+use redoubt::solve::concurrent;
+
+const TWO: RunOptions = RunOptions {
+    threads: Some(2),
+    progress: false,
+};
+
+fn case(name: &str, net: &Network, kinds: Kinds) {
+    let scenarios = scenario::enumerate(net, kinds, 1);
+    let t = Instant::now();
+    let a = audit::run(net, scenarios, TWO).expect("audit solves");
+    let audit_s = t.elapsed().as_secs_f64();
+    let t = Instant::now();
+    let h = headroom::of_audit(net, &a, None, TWO).expect("headroom solves");
+    let head_s = t.elapsed().as_secs_f64();
+    let unproven = h.per_outage.iter().filter(|x| !x.proven).count();
+    println!(
+        "{name}: {} scenarios, {} outages | audit {audit_s:.2} s | audit + headroom {:.2} s \
+         (headroom {head_s:.2} s, ratio {:.2}) | least λ {:?} | unproven {unproven}",
+        a.scenarios.len(),
+        a.outages.len(),
+        audit_s + head_s,
+        (audit_s + head_s) / audit_s,
+        h.least.value,
+    );
+    // How each was found (one thread, sequential).
+    let base_view = Surviving::new(net, &redoubt::scenario::Outage::default(), None);
+    let (_, cols, _) = concurrent::headroom_walks(net, &base_view, None).expect("baseline");
+    let (mut inherited, mut generated, mut fallback, mut trivial, mut rounds) = (0, 0, 0, 0, 0);
+    let t = Instant::now();
+    for o in &a.outages {
+        let view = Surviving::new(net, o, None);
+        let (_, _, w) = concurrent::headroom_walks(net, &view, cols.as_ref()).expect("solves");
+        rounds += w.walks.rounds;
+        if w.trivial {
+            trivial += 1;
+        } else if w.fallback {
+            fallback += 1;
+        } else if w.walks.inherited {
+            inherited += 1;
+        } else {
+            generated += 1;
+        }
+    }
+    println!(
+        "  one thread: {:.2} s | inherited {inherited}, column generation {generated} \
+         ({rounds} pricing rounds in all), edge λ-LP fallback {fallback}, no LP {trivial}",
+        t.elapsed().as_secs_f64()
+    );
+    let k = a.outages.len().min(5);
+    let t = Instant::now();
+    for o in &a.outages[..k] {
+        concurrent::headroom_lp(net, &Surviving::new(net, o, None)).expect("λ-LP solves");
+    }
+    println!(
+        "  edge λ-LP alone: {:.3} s per outage (first {k}, one thread)",
+        t.elapsed().as_secs_f64() / k as f64
+    );
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| !a.starts_with('-'))
+        .collect();
+    let want = |n: &str| args.is_empty() || args.iter().any(|a| a == n);
+    if want("B") {
+        let doc = document(
+            50,
+            50,
+            88,
+            Demands::Random(662),
+            &[
+                (3, 160.0),
+                (14, 120.0),
+                (27, 150.0),
+                (38, 110.0),
+                (45, 90.0),
+            ],
+            4,
+        );
+        let net = Network::from_json(&doc.to_string()).expect("valid");
+        let kinds = Kinds {
+            links: true,
+            sites: true,
+            groups: true,
+        };
+        case("B", &net, kinds);
+    }
+    if want("G200") {
+        let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, 200.0)).collect();
+        let net = common::generate(200, 200, 395, Demands::Random(3903), &procs);
+        let kinds = Kinds {
+            links: true,
+            sites: false,
+            groups: false,
+        };
+        case("G200", &net, kinds);
+    }
+}
