@@ -57,6 +57,18 @@ pub enum Goal {
     TotalWithin(f64),
 }
 
+/// The formulation of a plan's master problem.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Master {
+    /// Column generation over processing walks, one block of rows per outage
+    /// ([`crate::solve::colgen::plan`]): what `redoubt plan` uses.
+    Walks,
+    /// One edge flow-model copy (sources × arcs variables) per outage: the independent
+    /// formulation the tests compare the walk master with; refused past
+    /// [`TOTAL_MAX_VARS`] variables.
+    Edge,
+}
+
 /// One round of constraint generation.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Round {
@@ -124,6 +136,17 @@ pub struct ModuleRounding {
 /// models per round, at most |gainable| rounds) and by one [`crate::solve::evaluate`] per
 /// gainable outage per verification.
 pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Result<Plan> {
+    plan_with(net, audit, goal, opts, Master::Walks)
+}
+
+/// [`plan`] with the master problem in formulation `master`.
+pub fn plan_with(
+    net: &Network,
+    audit: &Audit,
+    goal: Goal,
+    opts: RunOptions,
+    master: Master,
+) -> Result<Plan> {
     let cands = Candidates::of(net);
     let n_out = audit.outages.len();
     let bests: Vec<f64> = audit::par_map(
@@ -166,6 +189,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         gainable: &gainable,
         multiplicity: &multiplicity,
         t_cap,
+        master,
     };
     let g = generate(net, audit, &cands, &data, goal, opts)?;
     let (add, after, mut modules) = if cands.any_modular() {

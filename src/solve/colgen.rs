@@ -45,6 +45,7 @@
 //! parent basis, never on thread count.
 
 pub mod buy;
+pub mod plan;
 
 use std::cmp::Ordering;
 use std::collections::{BinaryHeap, HashMap, HashSet, VecDeque};
