@@ -3,8 +3,10 @@
 //! of scenarios ([`plan`]): least cost closing every closable gap, or the best use of a
 //! budget, found by constraint generation.
 //!
-//! Both use the two-layer flow model of [`crate::solve::flow`] with one extra variable
-//! `add_v >= 0` per candidate site in that site's processing row.
+//! Both use the two-layer model with one extra variable `add_v >= 0` per candidate site in
+//! that site's processing row: the plan's master in walk form
+//! ([`crate::solve::colgen::plan`], or the edge flow model of [`crate::solve::flow`] with
+//! [`Master::Edge`]).
 //!
 //! | file | what |
 //! |---|---|
@@ -132,8 +134,9 @@ pub struct ModuleRounding {
 /// 4. trim and drop additions that serve nothing, and find what drives each (`tidy.rs`);
 /// 5. every outage with a shortfall re-solved with the final plan.
 ///
-/// Cost: dominated by the master solves (a few LPs the size of the active outages' flow
-/// models per round, at most |gainable| rounds) and by one [`crate::solve::evaluate`] per
+/// Cost: dominated by the master solves (per round, two to four column generations over
+/// the active outages' walk blocks, [`crate::solve::colgen::plan`]; at most |gainable|
+/// rounds) and by one [`crate::solve::evaluate`] per
 /// gainable outage per verification.
 pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Result<Plan> {
     plan_with(net, audit, goal, opts, Master::Walks)
