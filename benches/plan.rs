@@ -3,7 +3,7 @@
 //! random demands, processing at every tenth site, lowered from 200 to 180 so that losing
 //! a processing site leaves gaps a purchase can close), with every processing site
 //! expandable (`expand_cost` 1, 2 or 3 by site, `expand_max` 400), run by the built binary
-//! on two threads and timed (wall). Prints the time, the plan's cost, its rounds and the
+//! on two threads with the walk master (the hidden `--master walks`) and timed (wall). Prints the time, the plan's cost, its rounds and the
 //! verdict line. `write PATH` only writes the network file.
 
 mod common;
@@ -38,7 +38,7 @@ fn main() {
     let path = std::env::temp_dir().join(format!("redoubt-plan200-{}.json", std::process::id()));
     std::fs::write(&path, doc.to_string()).expect("write the network");
     println!(
-        "PLAN200 (file {}): plan --depth 1 --kinds links,sites --threads 2",
+        "PLAN200 (file {}): plan --depth 1 --kinds links,sites --threads 2 --master walks",
         path.display()
     );
     let t = Instant::now();
@@ -51,6 +51,8 @@ fn main() {
             "links,sites",
             "--threads",
             "2",
+            "--master",
+            "walks",
             "--yes",
             "-q",
         ])

@@ -101,6 +101,8 @@ pub struct PlanOptions {
     pub goal: expand::Goal,
     pub top: usize,
     pub apply: Option<PathBuf>,
+    /// The master problem's formulation (hidden `--master`).
+    pub master: expand::Master,
 }
 
 /// `compare`, validated.
@@ -403,6 +405,10 @@ fn plan(args: PlanArgs) -> Result<PlanOptions> {
         goal,
         top: args.top,
         apply: args.apply,
+        master: match args.master {
+            cli::PlanMaster::Edge => expand::Master::Edge,
+            cli::PlanMaster::Walks => expand::Master::Walks,
+        },
     })
 }
 

@@ -50,7 +50,7 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
         None => {}
     }
     let audit = solve_list(&net, list, Engine::Walks, &args.scenarios, opts, err)?;
-    let plan = expand::plan(&net, &audit, goal, opts)?;
+    let plan = expand::plan_with(&net, &audit, goal, opts, args.master)?;
     let default_costs = expand::Candidates::of(&net).default_costs;
     if let Some(path) = &args.json {
         let doc = report::json::plan_json(&net, &audit, &plan, default_costs);
