@@ -68,8 +68,10 @@ pub enum Master {
     /// its master solves meet their rows only to about 1e-6 relative (a close-all master
     /// whose cost falls when an outage is added, which an exact master cannot do), so a
     /// plan may be left short of a target by more than the proof tolerance and be topped
-    /// up at a site's limit instead of the cheapest split. Reached by `plan --master
-    /// walks` (hidden), the bench and the cross-check test.
+    /// up at a site's limit instead of the cheapest split. Its rounds solved by a simplex
+    /// (a vertex) instead give the edge master's plan, so the formulation and its
+    /// stopping rule are not the cause. Reached by `plan --master walks` (hidden), the
+    /// bench and the cross-check test.
     Walks,
     /// One edge flow-model copy (sources × arcs variables) per outage: what `redoubt
     /// plan` uses; refused past [`TOTAL_MAX_VARS`] variables.
