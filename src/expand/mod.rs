@@ -64,9 +64,10 @@ pub enum Goal {
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Master {
     /// Column generation over processing walks, one block of rows per outage
-    /// ([`crate::solve::colgen::plan`]). Not the default: on a network of magnitude 1000
-    /// its master solves meet their rows only to about 1e-7 of its magnitude (2e-4 on rows of 1000) (a close-all master
-    /// whose cost falls when an outage is added, which an exact master cannot do), so a
+    /// ([`crate::solve::colgen::plan`]). Not the default: its interior-point master
+    /// solves meet their rows only to about 1e-7 of their magnitude (2e-4 on rows of
+    /// 1000; a close-all master whose cost falls when an outage is added, which an exact
+    /// master cannot do), so a
     /// plan may be left short of a target by more than the proof tolerance and be topped
     /// up at a site's limit instead of the cheapest split. Its rounds solved by a simplex
     /// (a vertex) instead give the edge master's plan, so the formulation and its
