@@ -352,6 +352,19 @@ pub struct PlanArgs {
     /// every other field of the input, your own included, is kept.
     #[arg(long, value_name = "OUT.json")]
     pub apply: Option<PathBuf>,
+    /// The formulation of the plan's master problem (hidden: for the bench and for
+    /// comparing the two; `edge` is the default).
+    #[arg(long, value_enum, default_value_t = PlanMaster::Edge, hide = true)]
+    pub master: PlanMaster,
+}
+
+/// The formulation of `plan`'s master problem.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum PlanMaster {
+    /// One edge flow-model copy per scenario.
+    Edge,
+    /// Column generation over processing walks.
+    Walks,
 }
 
 #[derive(Debug, Args)]

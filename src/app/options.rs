@@ -111,6 +111,8 @@ pub struct PlanOptions {
     pub goal: expand::Goal,
     pub top: usize,
     pub apply: Option<PathBuf>,
+    /// The master problem's formulation (hidden `--master`).
+    pub master: expand::Master,
 }
 
 /// `compare`, validated.
@@ -438,6 +440,10 @@ fn plan(args: PlanArgs) -> Result<PlanOptions> {
         goal,
         top: args.top,
         apply: args.apply,
+        master: match args.master {
+            cli::PlanMaster::Edge => expand::Master::Edge,
+            cli::PlanMaster::Walks => expand::Master::Walks,
+        },
     })
 }
 

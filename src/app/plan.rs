@@ -8,7 +8,7 @@ use super::options::PlanOptions;
 use super::plan_routed::{self, Routed};
 use super::scenarios::{run_options, scenario_list, solve_list};
 use super::{Outcome, note, read_network, stdout_result};
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::expand;
 use crate::model::{self, Network};
 use crate::report;
@@ -35,6 +35,13 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
     }
     let (net, text) = read_network(input)?;
     super::chains_refused(&net, "plan")?;
+    if args.master == expand::Master::Walks && !net.matrices.is_empty() {
+        return Err(Error::Usage(
+            "--master walks does not take files with `matrices` yet; leave --master out (the \
+             edge master plans over every matrix)"
+                .into(),
+        ));
+    }
     let list = scenario_list(&net, &args.scenarios, None)?;
     let opts = run_options(&args.scenarios, err);
     match args.scenarios.routing {
@@ -51,7 +58,7 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
         None => {}
     }
     let audit = solve_list(&net, list, Engine::Walks, &args.scenarios, opts, err)?;
-    let plan = expand::plan(&net, &audit, goal, opts)?;
+    let plan = expand::plan_with(&net, &audit, goal, opts, args.master)?;
     let default_costs = expand::Candidates::of(&net).default_costs;
     if let Some(path) = &args.json {
         let doc = report::json::plan_json(&net, &audit, &plan, default_costs);

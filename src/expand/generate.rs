@@ -44,6 +44,8 @@ pub(super) struct Generation<'a> {
     /// The worst served fraction among the outages processing cannot help (1 when none):
     /// no plan does better than this, so it bounds `t` without a flow model.
     pub t_cap: f64,
+    /// The master's formulation.
+    pub master: super::Master,
 }
 
 /// What constraint generation returns.
@@ -91,6 +93,7 @@ pub(super) fn generate(
                 active: &active,
                 multiplicity: data.multiplicity,
                 t_cap: data.t_cap,
+                master: data.master,
             },
             goal,
         )?;

@@ -16,12 +16,13 @@
 //! one LP of the master's size; a later phase whose held row the backend cannot meet is
 //! retried once with a looser hold and otherwise skipped (the earlier phase's plan stands).
 
-use super::Goal;
 use super::candidates::{Candidates, add_vars, values};
 use super::close::{served_row, target};
+use super::{Goal, Master};
 use crate::audit::Audit;
 use crate::error::{Error, Result};
 use crate::model::Network;
+use crate::solve::colgen::plan::{GoalRow, PlanMaster};
 use crate::solve::flow::{self, Cap};
 use crate::solve::lp::{self, Lp, LpSolution, Sense};
 
@@ -43,6 +44,8 @@ pub(super) struct MasterInput<'a> {
     pub multiplicity: &'a [usize],
     /// Upper bound on the worst fraction from the outages processing cannot help.
     pub t_cap: f64,
+    /// Which formulation the master uses.
+    pub master: Master,
 }
 
 /// The master's plan and its primary objective (the cost for close-all, the worst
@@ -92,6 +95,17 @@ fn held_solve(
 /// Size: one flow model per active outage (see [`flow::build`]) plus one `add` variable
 /// per candidate; refused past [`TOTAL_MAX_VARS`] variables. Cost: two to four LP solves.
 pub(super) fn solve_master(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult> {
+    match input.master {
+        Master::Edge => solve_master_edge(input, goal),
+        Master::Walks => solve_master_walks(input, goal),
+    }
+}
+
+/// [`solve_master`] on the edge model: one flow-model copy per active outage.
+///
+/// Size: one flow model per active outage (see [`flow::build`]) plus one `add` variable
+/// per candidate; refused past [`TOTAL_MAX_VARS`] variables. Cost: two to four LP solves.
+fn solve_master_edge(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult> {
     let MasterInput {
         net,
         audit,
@@ -100,6 +114,7 @@ pub(super) fn solve_master(input: &MasterInput<'_>, goal: Goal) -> Result<Master
         active,
         multiplicity,
         t_cap,
+        master: _,
     } = *input;
     let total_required = net.total_required().max(1.0);
     let mut model = Lp::new(false);
@@ -222,6 +237,151 @@ pub(super) fn solve_master(input: &MasterInput<'_>, goal: Goal) -> Result<Master
     if cost > 0.0 && !tie_terms.is_empty() {
         set_objective(&mut model, false, &tie_terms);
         if let Some(s4) = held_solve(&mut model, &cost_terms, Sense::Le, cost, HOLD_TOL * cost) {
+            sol = s4;
+        }
+    }
+    Ok(MasterResult {
+        add: values(&add, &sol.x, total_required),
+        objective,
+    })
+}
+
+/// Solves `rows` + `held` (terms ≥ or ≤ value ∓ slack) on the walk master; on a failure
+/// retries once with the slack ×[`HOLD_RETRY`]; `None` when both fail (the caller keeps
+/// the previous phase's solution). The held row stays in `rows` when a solve succeeds.
+fn held_walks(
+    pm: &mut PlanMaster<'_>,
+    rows: &mut Vec<GoalRow>,
+    objective: (&[(usize, f64)], bool),
+    held: (&[(usize, f64)], Sense, f64, f64),
+) -> Result<Option<LpSolution>> {
+    let (terms, sense, value, slack) = held;
+    let rhs = |s: f64| match sense {
+        Sense::Ge => value - s,
+        _ => value + s,
+    };
+    for s in [slack, slack * HOLD_RETRY] {
+        rows.push((terms.to_vec(), sense, rhs(s)));
+        match pm.solve(rows, objective.0, objective.1) {
+            Ok(sol) => return Ok(Some(sol)),
+            Err(e @ Error::Interrupted(_)) => return Err(e),
+            Err(_) => {
+                rows.pop();
+            }
+        }
+    }
+    Ok(None)
+}
+
+/// [`solve_master`] on the walk engine ([`PlanMaster`]): one block of walk columns per
+/// active outage sharing the `add` variables, each outage's served value a variable
+/// `s_k`; the phases of the module comment, each solved by column generation.
+///
+/// Size: per active outage, rows for its usable arcs, processing sites and demands, and
+/// the walk columns generation adds (no sources × arcs variables). Cost: two to four
+/// column generations, each a few interior-point solves of the whole master plus one
+/// walk pricing pass per outage per round.
+fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult> {
+    let MasterInput {
+        net,
+        audit,
+        cands,
+        bests,
+        active,
+        multiplicity,
+        t_cap,
+        master: _,
+    } = *input;
+    let total_required = net.total_required().max(1.0);
+    let mut base = Lp::new(false);
+    let add = add_vars(&mut base, net, cands, None, total_required, 0.0);
+    let cost_terms: Vec<(usize, f64)> = add
+        .iter()
+        .enumerate()
+        .filter_map(|(v, a)| a.map(|a| (a, cands.cost[v].unwrap_or(0.0))))
+        .collect();
+    let tie_terms: Vec<(usize, f64)> = add
+        .iter()
+        .enumerate()
+        .filter_map(|(v, a)| a.map(|a| (a, (v + 1) as f64 / net.sites.len() as f64)))
+        .collect();
+    if let Goal::WorstWithin(budget) | Goal::TotalWithin(budget) = goal {
+        base.add_row(cost_terms.clone(), Sense::Le, budget);
+    }
+    let t = match goal {
+        Goal::WorstWithin(_) => {
+            let t = base.add_var(0.0, t_cap.clamp(0.0, 1.0), 0.0);
+            base.magnitude[t] = 1.0;
+            Some(t)
+        }
+        _ => None,
+    };
+    let served_scale: f64 = active
+        .iter()
+        .map(|&k| multiplicity[k] as f64 * audit.evaluations[k].surviving_required)
+        .sum();
+    if active.is_empty() || cost_terms.is_empty() {
+        return Ok(MasterResult {
+            add: vec![0.0; net.sites.len()],
+            objective: match goal {
+                Goal::CloseAll => 0.0,
+                Goal::WorstWithin(_) => t_cap.clamp(0.0, 1.0),
+                Goal::TotalWithin(_) => served_scale,
+            },
+        });
+    }
+    let mut pm = PlanMaster::new(net, base, add.clone());
+    let mut rows: Vec<GoalRow> = Vec::new();
+    let mut served_terms: Vec<(usize, f64)> = Vec::new();
+    for &k in active {
+        let s = pm.add_outage(&audit.outages[k])?;
+        let req = audit.evaluations[k].surviving_required;
+        served_terms.push((s, multiplicity[k] as f64));
+        match (goal, t) {
+            (Goal::CloseAll, _) => rows.push((vec![(s, 1.0)], Sense::Ge, target(bests[k], req))),
+            (_, Some(t)) => rows.push((vec![(s, 1.0), (t, -req)], Sense::Ge, 0.0)),
+            _ => {}
+        }
+    }
+    let solver_error = |e: Error| match e {
+        e @ Error::Interrupted(_) => e,
+        e => Error::Solver(format!("plan master problem (walks): {e}")),
+    };
+    let served_slack = HOLD_TOL * served_scale.max(1.0);
+    let (mut sol, objective) = match (goal, t) {
+        (Goal::CloseAll, _) => {
+            let sol = pm.solve(&rows, &cost_terms, false).map_err(solver_error)?;
+            let cost = dot(&cost_terms, &sol.x);
+            (sol, cost)
+        }
+        (_, Some(t)) => {
+            let sol = pm.solve(&rows, &[(t, 1.0)], true).map_err(solver_error)?;
+            let t_best = sol.x[t].clamp(0.0, 1.0);
+            let mut best = sol;
+            let held = (&[(t, 1.0)][..], Sense::Ge, t_best, HOLD_TOL);
+            if let Some(s2) = held_walks(&mut pm, &mut rows, (&served_terms, true), held)? {
+                let s_best = dot(&served_terms, &s2.x);
+                best = s2;
+                let held = (&served_terms[..], Sense::Ge, s_best, served_slack);
+                if let Some(s3) = held_walks(&mut pm, &mut rows, (&cost_terms, false), held)? {
+                    best = s3;
+                }
+            }
+            (best, t_best)
+        }
+        _ => {
+            let sol = pm.solve(&rows, &served_terms, true).map_err(solver_error)?;
+            let s_best = dot(&served_terms, &sol.x);
+            let shortfall = (served_scale - s_best).max(0.0);
+            let held = (&served_terms[..], Sense::Ge, s_best, served_slack);
+            let best = held_walks(&mut pm, &mut rows, (&cost_terms, false), held)?.unwrap_or(sol);
+            (best, shortfall)
+        }
+    };
+    let cost = dot(&cost_terms, &sol.x);
+    if cost > 0.0 && !tie_terms.is_empty() {
+        let held = (&cost_terms[..], Sense::Le, cost, HOLD_TOL * cost);
+        if let Some(s4) = held_walks(&mut pm, &mut rows, (&tie_terms, false), held)? {
             sol = s4;
         }
     }

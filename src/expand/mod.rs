@@ -3,8 +3,11 @@
 //! of scenarios ([`plan`]): least cost closing every closable gap, or the best use of a
 //! budget, found by constraint generation.
 //!
-//! Both use the two-layer flow model of [`crate::solve::flow`] with one extra variable
-//! `add_v >= 0` per candidate site in that site's processing row.
+//! Both use the two-layer model with one extra variable `add_v >= 0` per candidate site in
+//! that site's processing row: the plan's master in the edge flow model of
+//! [`crate::solve::flow`] ([`Master::Edge`], the default), or in walk form
+//! ([`crate::solve::colgen::plan`], [`Master::Walks`], not yet the default: its
+//! interior-point solves are less accurate, see [`Master::Walks`]).
 //!
 //! | file | what |
 //! |---|---|
@@ -55,6 +58,25 @@ pub enum Goal {
     /// Within budget, minimise the total shortfall over the scenarios (an outage shared by
     /// several scenarios counts once per scenario); with it held, the cost.
     TotalWithin(f64),
+}
+
+/// The formulation of a plan's master problem.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Master {
+    /// Column generation over processing walks, one block of rows per outage
+    /// ([`crate::solve::colgen::plan`]). Not the default: its interior-point master
+    /// solves meet their rows only to about 1e-7 of their magnitude (2e-4 on rows of
+    /// 1000; a close-all master whose cost falls when an outage is added, which an exact
+    /// master cannot do), so a
+    /// plan may be left short of a target by more than the proof tolerance and be topped
+    /// up at a site's limit instead of the cheapest split. Its rounds solved by a simplex
+    /// (a vertex) instead give the edge master's plan, so the formulation and its
+    /// stopping rule are not the cause. Reached by `plan --master walks` (hidden), the
+    /// bench and the cross-check test.
+    Walks,
+    /// One edge flow-model copy (sources × arcs variables) per outage: what `redoubt
+    /// plan` uses; refused past [`TOTAL_MAX_VARS`] variables.
+    Edge,
 }
 
 /// One round of constraint generation.
@@ -120,10 +142,21 @@ pub struct ModuleRounding {
 /// 4. trim and drop additions that serve nothing, and find what drives each (`tidy.rs`);
 /// 5. every outage with a shortfall re-solved with the final plan.
 ///
-/// Cost: dominated by the master solves (a few LPs the size of the active outages' flow
-/// models per round, at most |gainable| rounds) and by one [`crate::solve::evaluate`] per
-/// gainable outage per verification.
+/// Cost: dominated by the master solves (per round, two to four LPs over one edge
+/// flow-model copy per active outage, [`Master::Edge`]; at most |gainable| rounds) and by
+/// one [`crate::solve::evaluate`] per gainable outage per verification.
 pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Result<Plan> {
+    plan_with(net, audit, goal, opts, Master::Edge)
+}
+
+/// [`plan`] with the master problem in formulation `master`.
+pub fn plan_with(
+    net: &Network,
+    audit: &Audit,
+    goal: Goal,
+    opts: RunOptions,
+    master: Master,
+) -> Result<Plan> {
     let cands = Candidates::of(net);
     let n_out = audit.outages.len();
     let bests: Vec<f64> = audit::par_map(
@@ -166,6 +199,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         gainable: &gainable,
         multiplicity: &multiplicity,
         t_cap,
+        master,
     };
     let g = generate(net, audit, &cands, &data, goal, opts)?;
     let (add, after, mut modules) = if cands.any_modular() {

@@ -46,6 +46,7 @@
 
 pub mod buy;
 pub mod headroom;
+pub mod plan;
 
 use std::cmp::Ordering;
 use std::collections::{BinaryHeap, HashMap, HashSet, VecDeque};

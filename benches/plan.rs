@@ -1,0 +1,71 @@
+//! `cargo bench --bench plan [-- write PATH]`: `redoubt plan` at depth 1 (links and sites)
+//! on the 200-site network of `benches/scale.rs` (`G200`: 200 sites, 395 links, 3,903
+//! random demands, processing at every tenth site, lowered from 200 to 180 so that losing
+//! a processing site leaves gaps a purchase can close), with every processing site
+//! expandable (`expand_cost` 1, 2 or 3 by site, `expand_max` 400), run by the built binary
+//! on two threads with the walk master (the hidden `--master walks`) and timed (wall). Prints the time, the plan's cost, its rounds and the
+//! verdict line. `write PATH` only writes the network file.
+
+mod common;
+
+use std::time::Instant;
+
+use common::Demands;
+
+/// The G200 document with expandable processing sites.
+fn document() -> serde_json::Value {
+    let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, 200.0)).collect();
+    let mut doc = common::document(200, 200, 395, Demands::Random(3903), &procs, 0);
+    let sites = doc["sites"].as_array_mut().expect("sites");
+    for (i, s) in sites.iter_mut().enumerate() {
+        if i % 10 == 0 {
+            s["processing"] = serde_json::json!(180);
+            s["expand_cost"] = serde_json::json!(1 + (i / 10) % 3);
+            s["expand_max"] = serde_json::json!(400);
+        }
+    }
+    doc
+}
+
+fn main() {
+    let args: Vec<String> = std::env::args().collect();
+    let doc = document();
+    if let Some(i) = args.iter().position(|a| a == "write") {
+        let path = args.get(i + 1).expect("write PATH");
+        std::fs::write(path, doc.to_string()).expect("write the network");
+        return;
+    }
+    let path = std::env::temp_dir().join(format!("redoubt-plan200-{}.json", std::process::id()));
+    std::fs::write(&path, doc.to_string()).expect("write the network");
+    println!(
+        "PLAN200 (file {}): plan --depth 1 --kinds links,sites --threads 2 --master walks",
+        path.display()
+    );
+    let t = Instant::now();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_redoubt"))
+        .args(["plan", path.to_str().expect("utf-8 path")])
+        .args([
+            "--depth",
+            "1",
+            "--kinds",
+            "links,sites",
+            "--threads",
+            "2",
+            "--master",
+            "walks",
+            "--yes",
+            "-q",
+        ])
+        .output()
+        .expect("redoubt runs");
+    let took = t.elapsed().as_secs_f64();
+    let text = String::from_utf8_lossy(&out.stdout);
+    println!("  plan: {took:.1} s wall, exit {:?}", out.status.code());
+    for line in text.lines().take(40) {
+        println!("  | {line}");
+    }
+    if !out.status.success() {
+        println!("  stderr: {}", String::from_utf8_lossy(&out.stderr));
+    }
+    let _ = std::fs::remove_file(&path);
+}
