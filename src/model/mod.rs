@@ -2,8 +2,8 @@
 //! model ([`network`]).
 
 pub mod apply;
-pub mod diff;
 pub mod chains;
+pub mod diff;
 pub mod file;
 pub mod import;
 pub mod network;
