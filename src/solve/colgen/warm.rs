@@ -1,0 +1,257 @@
+//! The warm restricted master: column generation whose master is the project's bounded primal simplex, kept between rounds (`WarmMaster`); new walks enter at zero against the current duals.
+
+use super::*;
+use std::collections::HashSet;
+
+use crate::error::Result;
+use crate::solve::cancel;
+use crate::solve::simplex::Simplex;
+
+/// How a warm column generation ended.
+pub(super) enum Warm {
+    Done(Solved),
+    Stalled,
+    /// The simplex gave up or the master outgrew [`WARM_ROWS`]: its walks so far.
+    Abandon(Vec<Walk>),
+}
+
+/// The restricted master kept by the warm simplex across rounds. Only *active* demands
+/// have columns (and a cap row); the walks of an inactive demand stay at their start flow
+/// outside the LP, and the arc and site rows (created as columns need them) hold what
+/// those fixed walks leave: `cap − fixed load`. A demand is activated when its share of
+/// the duality gap, `Σ_w f_w · price(w) + b_d·max(0, 1 − c_d) − Σ_w f_w`, is positive: its
+/// walks become columns at their flow and the rows get their load back, which leaves the
+/// basis and every basic value unchanged. The bound of [`price`] is the master's own dual
+/// value plus these shares, so when no demand has a share and no column prices out, the
+/// gap is closed.
+pub(super) struct WarmMaster<'a, 'g> {
+    pub(super) g: &'g Graph<'a>,
+    pub(super) caps: &'g [f64],
+    pub(super) arc_cap: Vec<f64>,
+    pub(super) site_cap: Vec<f64>,
+    pub(super) lp: Simplex,
+    pub(super) arc_row: Vec<usize>,
+    pub(super) site_row: Vec<usize>,
+    pub(super) dem_row: Vec<usize>,
+    /// The LP's columns, in column order.
+    pub(super) walks: Vec<Walk>,
+    /// Per inactive demand: its fixed walks and flows.
+    pub(super) fixed: Vec<Vec<(Walk, f64)>>,
+    pub(super) fixed_arc: Vec<f64>,
+    pub(super) fixed_site: Vec<f64>,
+    pub(super) active: Vec<bool>,
+    pub(super) seen: HashSet<Walk>,
+}
+
+pub(super) const NO_ROW: usize = usize::MAX;
+
+impl<'a, 'g> WarmMaster<'a, 'g> {
+    pub(super) fn new(g: &'g Graph<'a>, caps: &'g [f64], active: Vec<bool>) -> Self {
+        let net = g.net;
+        let (arc_cap, site_cap) = g.effective(caps);
+        WarmMaster {
+            g,
+            caps,
+            arc_cap,
+            site_cap,
+            lp: Simplex::new(),
+            arc_row: vec![NO_ROW; net.arcs.len()],
+            site_row: vec![NO_ROW; net.sites.len()],
+            dem_row: vec![NO_ROW; net.demands.len()],
+            walks: Vec::new(),
+            fixed: vec![Vec::new(); net.demands.len()],
+            fixed_arc: vec![0.0; net.arcs.len()],
+            fixed_site: vec![0.0; net.sites.len()],
+            active,
+            seen: HashSet::new(),
+        }
+    }
+
+    /// Adds walk `w` at flow `f`: a column when its demand is active, else a fixed walk.
+    /// Walks already present are skipped.
+    pub(super) fn add(&mut self, w: Walk, f: f64) {
+        if !self.seen.insert(w.clone()) {
+            return;
+        }
+        let d = w.demand;
+        if !self.active[d] {
+            for &(a, k) in &w.arcs {
+                self.fixed_arc[a] += f64::from(k) * f;
+            }
+            self.fixed_site[w.site] += f;
+            self.fixed[d].push((w, f));
+            return;
+        }
+        self.column(w, f);
+    }
+
+    /// Adds the column of walk `w` (active demand) at flow `f`, creating the rows it
+    /// needs (arc and site rows hold the capacity the fixed walks leave).
+    pub(super) fn column(&mut self, w: Walk, f: f64) {
+        let d = w.demand;
+        if self.dem_row[d] == NO_ROW {
+            self.dem_row[d] = self.lp.add_row(self.caps[d], &[]);
+        }
+        let mut entries = Vec::with_capacity(w.arcs.len() + 2);
+        for &(a, k) in &w.arcs {
+            if self.arc_row[a] == NO_ROW {
+                let rhs = (self.arc_cap[a] - self.fixed_arc[a]).max(0.0);
+                self.arc_row[a] = self.lp.add_row(rhs, &[]);
+            }
+            entries.push((self.arc_row[a], f64::from(k)));
+        }
+        if self.site_row[w.site] == NO_ROW {
+            let rhs = (self.site_cap[w.site] - self.fixed_site[w.site]).max(0.0);
+            self.site_row[w.site] = self.lp.add_row(rhs, &[]);
+        }
+        entries.push((self.site_row[w.site], 1.0));
+        entries.push((self.dem_row[d], 1.0));
+        self.lp.add_col(1.0, 0.0, f64::INFINITY, f, entries);
+        self.walks.push(w);
+    }
+
+    /// Makes demand `d` active: its cap row, and its fixed walks as columns at their flow
+    /// (each existing row first gets the walk's load back, so no basic value moves).
+    pub(super) fn activate(&mut self, d: usize) {
+        self.active[d] = true;
+        self.dem_row[d] = self.lp.add_row(self.caps[d], &[]);
+        for (w, f) in std::mem::take(&mut self.fixed[d]) {
+            for &(a, k) in &w.arcs {
+                let load = f64::from(k) * f;
+                self.fixed_arc[a] -= load;
+                if self.arc_row[a] != NO_ROW {
+                    self.lp.shift_rhs(self.arc_row[a], load);
+                }
+            }
+            self.fixed_site[w.site] -= f;
+            if self.site_row[w.site] != NO_ROW {
+                self.lp.shift_rhs(self.site_row[w.site], f);
+            }
+            self.column(w, f);
+        }
+    }
+
+    pub(super) fn dual(&self, row: usize) -> f64 {
+        if row == NO_ROW {
+            0.0
+        } else {
+            self.lp.dual(row).max(0.0)
+        }
+    }
+
+    /// All walks (columns, then fixed walks) and their flows.
+    pub(super) fn into_solution(self) -> (Vec<Walk>, Vec<f64>) {
+        let mut flow: Vec<f64> = (0..self.walks.len())
+            .map(|j| self.lp.value(j).max(0.0))
+            .collect();
+        let mut walks = self.walks;
+        for (w, f) in self.fixed.into_iter().flatten() {
+            walks.push(w);
+            flow.push(f);
+        }
+        (walks, flow)
+    }
+
+    /// Rounds of master solve, pricing and activation until the dual bound meets the
+    /// master's value.
+    pub(super) fn run(mut self, stats: &mut Stats) -> Result<Warm> {
+        let net = self.g.net;
+        let mut scale: Option<f64> = None;
+        loop {
+            cancel::check()?;
+            if self.lp.rows() > WARM_ROWS {
+                return Ok(Warm::Abandon(self.into_solution().0));
+            }
+            if self.lp.cols() > 0 {
+                stats.lp_solves += 1;
+                stats.max_columns = stats.max_columns.max(self.walks.len());
+                if self
+                    .lp
+                    .solve(PIVOTS_PER_ROW * self.lp.rows().max(100))
+                    .is_err()
+                {
+                    // An interrupt ends the scenario; any other failure goes cold.
+                    cancel::check()?;
+                    return Ok(Warm::Abandon(self.into_solution().0));
+                }
+            }
+            let y: Vec<f64> = self.arc_row.iter().map(|&r| self.dual(r)).collect();
+            let z: Vec<f64> = self.site_row.iter().map(|&r| self.dual(r)).collect();
+            let u: Vec<f64> = (0..net.demands.len())
+                .map(|d| {
+                    if self.active[d] {
+                        self.dual(self.dem_row[d])
+                    } else {
+                        f64::INFINITY
+                    }
+                })
+                .collect();
+            let fixed_total: f64 = self.fixed.iter().flatten().map(|(_, f)| f).sum();
+            let value = self.lp.objective() + fixed_total;
+            stats.rounds += 1;
+            let p = price(self.g, self.caps, &y, &z, Some(&u));
+            let s = *scale.get_or_insert_with(|| servable_total(self.caps, &p.cost).max(1.0));
+            if p.bound - value <= GAP_TOL * s {
+                stats.generated += 1;
+                let (walks, flow) = self.into_solution();
+                let value = flow.iter().sum();
+                return Ok(Warm::Done(Solved {
+                    walks,
+                    flow,
+                    value,
+                    arc_price: y,
+                    site_price: z,
+                }));
+            }
+            if stats.rounds >= MAX_ROUNDS {
+                return Ok(Warm::Stalled);
+            }
+            // Inactive demands whose share of the gap is positive.
+            let mut wake = Vec::new();
+            for d in 0..net.demands.len() {
+                if self.active[d] || self.caps[d] <= 0.0 {
+                    continue;
+                }
+                let mut share = 0.0;
+                let mut f_d = 0.0;
+                for (w, f) in &self.fixed[d] {
+                    let c: f64 = w
+                        .arcs
+                        .iter()
+                        .map(|&(a, k)| f64::from(k) * y[a])
+                        .sum::<f64>()
+                        + z[w.site];
+                    share += f * c;
+                    f_d += f;
+                }
+                if p.cost[d].is_finite() {
+                    share += self.caps[d] * (1.0 - p.cost[d]).max(0.0);
+                }
+                share -= f_d;
+                if share > PRICE_TOL * self.caps[d].max(f_d) {
+                    wake.push(d);
+                }
+            }
+            let fresh: Vec<Walk> = p
+                .walks
+                .into_iter()
+                .filter(|w| !self.seen.contains(w))
+                .collect();
+            if fresh.is_empty() && wake.is_empty() {
+                // The rest of the gap is spread thinner than the tolerance: free everyone.
+                wake = (0..net.demands.len())
+                    .filter(|&d| !self.active[d] && self.caps[d] > 0.0)
+                    .collect();
+                if wake.is_empty() {
+                    return Ok(Warm::Stalled);
+                }
+            }
+            for d in wake {
+                self.activate(d);
+            }
+            for w in fresh {
+                self.add(w, 0.0);
+            }
+        }
+    }
+}
