@@ -7,6 +7,7 @@ pub mod diff;
 pub mod file;
 pub mod import;
 pub mod network;
+mod shape;
 pub mod strict;
 
 pub use chains::{Chains, Function, FunctionIdx};
