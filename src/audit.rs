@@ -72,6 +72,15 @@ pub struct Audit {
 }
 
 impl Audit {
+    /// The traffic matrix of the run's baseline: that of its first baseline scenario (the
+    /// first matrix the run evaluates), 0 (`base`) when it holds none. O(scenarios).
+    pub fn baseline_matrix(&self) -> usize {
+        self.scenarios
+            .iter()
+            .find(|s| s.is_baseline())
+            .map_or(0, |s| s.matrix)
+    }
+
     /// The evaluation of scenario `i`.
     pub fn eval(&self, i: usize) -> &Evaluation {
         &self.evaluations[self.outage_of[i]]

@@ -101,6 +101,35 @@ pub(super) fn solve_master(input: &MasterInput<'_>, goal: Goal) -> Result<Master
     }
 }
 
+/// The purchase variables every master starts with, added to `model`: one `add` variable
+/// per candidate site ([`add_vars`]), the cost terms `Σ cost_v · add_v`, the tie-break
+/// terms (site position over the site count: a deterministic preference among equal
+/// plans), and with a budget goal the row `Σ cost_v · add_v ≤ budget`. O(sites).
+#[allow(clippy::type_complexity)]
+fn purchases(
+    model: &mut Lp,
+    net: &Network,
+    cands: &Candidates,
+    goal: Goal,
+    total_required: f64,
+) -> (Vec<Option<usize>>, Vec<(usize, f64)>, Vec<(usize, f64)>) {
+    let add = add_vars(model, net, cands, None, total_required, 0.0);
+    let cost_terms: Vec<(usize, f64)> = add
+        .iter()
+        .enumerate()
+        .filter_map(|(v, a)| a.map(|a| (a, cands.cost[v].unwrap_or(0.0))))
+        .collect();
+    let tie_terms: Vec<(usize, f64)> = add
+        .iter()
+        .enumerate()
+        .filter_map(|(v, a)| a.map(|a| (a, (v + 1) as f64 / net.sites.len() as f64)))
+        .collect();
+    if let Goal::WorstWithin(budget) | Goal::TotalWithin(budget) = goal {
+        model.add_row(cost_terms.clone(), Sense::Le, budget);
+    }
+    (add, cost_terms, tie_terms)
+}
+
 /// [`solve_master`] on the edge model: one flow-model copy per active outage.
 ///
 /// Size: one flow model per active outage (see [`flow::build`]) plus one `add` variable
@@ -118,20 +147,7 @@ fn solve_master_edge(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult
     } = *input;
     let total_required = net.total_required().max(1.0);
     let mut model = Lp::new(false);
-    let add = add_vars(&mut model, net, cands, None, total_required, 0.0);
-    let cost_terms: Vec<(usize, f64)> = add
-        .iter()
-        .enumerate()
-        .filter_map(|(v, a)| a.map(|a| (a, cands.cost[v].unwrap_or(0.0))))
-        .collect();
-    let tie_terms: Vec<(usize, f64)> = add
-        .iter()
-        .enumerate()
-        .filter_map(|(v, a)| a.map(|a| (a, (v + 1) as f64 / net.sites.len() as f64)))
-        .collect();
-    if let Goal::WorstWithin(budget) | Goal::TotalWithin(budget) = goal {
-        model.add_row(cost_terms.clone(), Sense::Le, budget);
-    }
+    let (add, cost_terms, tie_terms) = purchases(&mut model, net, cands, goal, total_required);
     let t = match goal {
         Goal::WorstWithin(_) => Some(model.add_var(0.0, t_cap.clamp(0.0, 1.0), 0.0)),
         _ => None,
@@ -294,20 +310,7 @@ fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResul
     } = *input;
     let total_required = net.total_required().max(1.0);
     let mut base = Lp::new(false);
-    let add = add_vars(&mut base, net, cands, None, total_required, 0.0);
-    let cost_terms: Vec<(usize, f64)> = add
-        .iter()
-        .enumerate()
-        .filter_map(|(v, a)| a.map(|a| (a, cands.cost[v].unwrap_or(0.0))))
-        .collect();
-    let tie_terms: Vec<(usize, f64)> = add
-        .iter()
-        .enumerate()
-        .filter_map(|(v, a)| a.map(|a| (a, (v + 1) as f64 / net.sites.len() as f64)))
-        .collect();
-    if let Goal::WorstWithin(budget) | Goal::TotalWithin(budget) = goal {
-        base.add_row(cost_terms.clone(), Sense::Le, budget);
-    }
+    let (add, cost_terms, tie_terms) = purchases(&mut base, net, cands, goal, total_required);
     let t = match goal {
         Goal::WorstWithin(_) => {
             let t = base.add_var(0.0, t_cap.clamp(0.0, 1.0), 0.0);

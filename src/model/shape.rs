@@ -16,14 +16,7 @@ pub(super) fn check_shape(value: &serde_json::Value) -> Result<()> {
             kind_of(value)
         )));
     };
-    for list in [
-        "sites",
-        "links",
-        "demands",
-        "risk_groups",
-        "matrices",
-        "functions",
-    ] {
+    for list in super::strict::LISTS.iter().map(|&(list, _)| list) {
         match obj.get(list) {
             None => {}
             Some(serde_json::Value::Null) => {

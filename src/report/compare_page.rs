@@ -8,10 +8,9 @@ use std::fmt::Write as _;
 use std::io::{self, Write};
 
 use super::CAUTION;
-use super::html::{STYLE, esc, table_html};
-use super::text::{scenario_words, signed, verdict_line};
+use super::html::{esc, page_opening, table_html};
+use super::text::{edit_value, scenario_words, signed, verdict_line};
 use crate::compare::{Change, Comparison, OneSided};
-use crate::model::diff::Value;
 use crate::numbers::num;
 use crate::solve::Evaluation;
 
@@ -91,12 +90,6 @@ impl Page {
     /// `before` and `after`. O(rows of the comparison + file changes).
     pub fn new(c: &Comparison, before: &Evaluation, after: &Evaluation) -> Page {
         let u = &c.unit;
-        let shown = |v: &Option<Value>| match v {
-            None => "—".to_string(),
-            Some(Value::Number(x)) => num(*x),
-            Some(Value::Text(t)) if t.is_empty() => "none".to_string(),
-            Some(Value::Text(t)) => t.clone(),
-        };
         let mut sections = vec![Section {
             title: format!("What changed in the file ({})", c.file_changes.len()),
             note: format!(
@@ -112,8 +105,8 @@ impl Page {
                     vec![
                         e.element.clone(),
                         e.field.to_string(),
-                        shown(&e.before),
-                        shown(&e.after),
+                        edit_value(&e.before),
+                        edit_value(&e.after),
                     ]
                 })
                 .collect(),
@@ -179,20 +172,12 @@ impl Page {
     /// The HTML page: one self-contained file (inline styles, no script, nothing fetched).
     pub fn html(&self) -> String {
         let mut o = String::new();
-        let _ = write!(
-            o,
-            "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\
-             <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\
-             <title>redoubt compare — {}</title><style>{STYLE}</style></head><body><main>\n",
-            esc(&self.title)
-        );
-        let _ = writeln!(o, "<h1>{}</h1>", esc(&self.title));
-        let _ = writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION));
-        let _ = writeln!(
-            o,
-            "<p class=\"verdict{}\">{}</p>",
-            if self.passed { "" } else { " fail" },
-            esc(&self.verdict)
+        page_opening(
+            &mut o,
+            &format!("redoubt compare — {}", self.title),
+            &self.title,
+            &self.verdict,
+            self.passed,
         );
         let _ = writeln!(o, "<p>{}</p>", esc(&self.baselines));
         for s in &self.sections {

@@ -684,26 +684,45 @@ fn page_data(r: &Report<'_>, rows: &[table::Row]) -> String {
     table::script_safe(&o)
 }
 
+/// The opening every report page shares, appended to `o`: the document head with the
+/// page's own styles ([`STYLE`], nothing fetched), `title` in the tab, `heading`, the
+/// caution, and the verdict (marked as failing unless `passed`). O(length of the text).
+pub(crate) fn page_opening(
+    o: &mut String,
+    title: &str,
+    heading: &str,
+    verdict: &str,
+    passed: bool,
+) {
+    let _ = write!(
+        o,
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\
+         <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\
+         <title>{}</title><style>{STYLE}</style></head><body><main>\n",
+        esc(title)
+    );
+    let _ = writeln!(o, "<h1>{}</h1>", esc(heading));
+    let _ = writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION));
+    let _ = writeln!(
+        o,
+        "<p class=\"verdict{}\">{}</p>",
+        if passed { "" } else { " fail" },
+        esc(verdict)
+    );
+}
+
 /// The HTML report as one string.
 pub fn html(r: &Report<'_>) -> String {
     let net = r.net;
     let u = &net.unit;
     let mut o = String::new();
-    let _ = write!(
-        o,
-        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\
-         <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\
-         <title>redoubt audit — {}</title><style>{STYLE}</style></head><body><main>\n",
-        esc(&net.name)
-    );
-    let _ = writeln!(o, "<h1>Failure audit: {}</h1>", esc(&net.name));
-    let _ = writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION));
     let failed_gate = r.gates.iter().any(|g| !g.passed);
-    let _ = writeln!(
-        o,
-        "<p class=\"verdict{}\">{}</p>",
-        if failed_gate { " fail" } else { "" },
-        esc(&r.verdict())
+    page_opening(
+        &mut o,
+        &format!("redoubt audit — {}", net.name),
+        &format!("Failure audit: {}", net.name),
+        &r.verdict(),
+        !failed_gate,
     );
     let gates = r.gate_lines();
     if !gates.is_empty() {

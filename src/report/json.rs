@@ -651,12 +651,7 @@ pub fn audit_json_with<'a>(
         risk: None,
         detail: detail_json,
         baseline: {
-            // The run's baseline is its first baseline scenario's (the first matrix run).
-            let mx = audit
-                .scenarios
-                .iter()
-                .find(|s| s.is_baseline())
-                .map_or(0, |s| s.matrix);
+            let mx = audit.baseline_matrix();
             let mut b = scenario_json(net.view(mx), &[], baseline, baseline, 0, true);
             if m.several_matrices() {
                 b.matrix = Some(net.matrix_id(mx).to_string());

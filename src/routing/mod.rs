@@ -278,14 +278,7 @@ fn verify_fixed(
         best = Some(solve::Verified {
             allocation: allocation_of(&[], 0.0),
             lp_value: 0.0,
-            verification: solve::Verification {
-                proven: true,
-                lower: 0.0,
-                upper: 0.0,
-                residual: 0.0,
-                attempts: 0,
-                backend: "none (nothing to route)".into(),
-            },
+            verification: solve::Verification::nothing_to_route(),
             arc_price: Vec::new(),
             site_price: Vec::new(),
             arc_has_row: Vec::new(),

@@ -31,6 +31,7 @@
 use std::cmp::Reverse;
 use std::collections::{BTreeMap, BinaryHeap};
 
+use super::edge::better_attempt;
 use super::evaluator::{AddModel, Evaluated, Evaluator, Warm};
 use super::lp::{Backend, Lp, Sense};
 use super::surviving::{Surviving, Unservable};
@@ -196,6 +197,30 @@ fn backward(
     seen
 }
 
+/// Adds one edge of a demand group's layered graph to `model`: a flow variable (at least
+/// 0, magnitude hint `total`, the group's demand) with its terms in the conservation rows
+/// of `from` (−1) and `to` (+1), recorded in `edges` with `kind`. Returns the variable.
+/// O(log nodes).
+fn layer_edge(
+    model: &mut Lp,
+    node_terms: &mut BTreeMap<usize, Vec<(usize, f64)>>,
+    edges: &mut Vec<Edge>,
+    (from, to, total): (usize, usize, f64),
+    kind: EdgeKind,
+) -> usize {
+    let var = model.add_var(0.0, f64::INFINITY, 0.0);
+    model.magnitude[var] = total;
+    node_terms.entry(from).or_default().push((var, -1.0));
+    node_terms.entry(to).or_default().push((var, 1.0));
+    edges.push(Edge {
+        from,
+        to,
+        var,
+        kind,
+    });
+    var
+}
+
 /// Builds the layered LP of `view` with demand caps `bound` into a new maximising [`Lp`].
 /// Cut-off demands (no layered walk) get no variable and are returned with their reason.
 /// Size: per group, `(k + 1) · usable arcs + k · sites` variables at most (pruned to nodes
@@ -251,18 +276,15 @@ pub fn build(
                 if !(live(from) && live(to)) {
                     continue;
                 }
-                let var = model.add_var(0.0, f64::INFINITY, 0.0);
-                model.magnitude[var] = total;
+                let var = layer_edge(
+                    &mut model,
+                    &mut node_terms,
+                    &mut edges,
+                    (from, to, total),
+                    EdgeKind::Arc { arc: a, layer: j },
+                );
                 arc_terms[a].push((var, cumulative[j]));
                 arc_need[a] += cumulative[j] * total;
-                node_terms.entry(from).or_default().push((var, -1.0));
-                node_terms.entry(to).or_default().push((var, 1.0));
-                edges.push(Edge {
-                    from,
-                    to,
-                    var,
-                    kind: EdgeKind::Arc { arc: a, layer: j },
-                });
             }
             if j < k {
                 let f = chain[j];
@@ -271,21 +293,18 @@ pub fn build(
                     if !(runs(ch, view, v, f) && live(from) && live(to)) {
                         continue;
                     }
-                    let var = model.add_var(0.0, f64::INFINITY, 0.0);
-                    model.magnitude[var] = total;
+                    let var = layer_edge(
+                        &mut model,
+                        &mut node_terms,
+                        &mut edges,
+                        (from, to, total),
+                        EdgeKind::Function { site: v, layer: j },
+                    );
                     fn_terms
                         .entry((v, f))
                         .or_default()
                         .push((var, cumulative[j]));
                     *fn_need.entry((v, f)).or_default() += cumulative[j] * total;
-                    node_terms.entry(from).or_default().push((var, -1.0));
-                    node_terms.entry(to).or_default().push((var, 1.0));
-                    edges.push(Edge {
-                        from,
-                        to,
-                        var,
-                        kind: EdgeKind::Function { site: v, layer: j },
-                    });
                 }
             }
         }
@@ -628,14 +647,7 @@ pub fn solve_verified_with(
             Verified {
                 allocation,
                 lp_value: 0.0,
-                verification: Verification {
-                    proven: true,
-                    lower: 0.0,
-                    upper: 0.0,
-                    residual: 0.0,
-                    attempts: 0,
-                    backend: "none (nothing to route)".into(),
-                },
+                verification: Verification::nothing_to_route(),
                 arc_price: vec![0.0; net.arcs.len()],
                 site_price: vec![0.0; net.sites.len()],
                 arc_has_row,
@@ -694,13 +706,7 @@ pub fn solve_verified_with(
             .flatten()
             .map(|&v| solution.x[v])
             .sum();
-        let feasible = residual <= RESIDUAL_TOL;
-        let better = best.as_ref().is_none_or(|b| {
-            let b_feasible = b.verification.residual <= RESIDUAL_TOL;
-            (feasible && !b_feasible)
-                || (feasible == b_feasible && allocation.served > b.allocation.served)
-        });
-        if better {
+        if better_attempt(best.as_ref(), residual, allocation.served) {
             best = Some(Verified {
                 lp_value,
                 verification: Verification {

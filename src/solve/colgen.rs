@@ -510,18 +510,16 @@ fn solve_caps(
     generate(g, caps, walks, flow, Some(active), stats)
 }
 
-/// Verifies a walk-formulation answer like any other ([`super::solve_verified`]): the walks
-/// scaled into a feasible allocation ([`verify::repair_walks`], the proven lower bound),
-/// the certificate's dual bound of the prices on the same surviving network (upper bound),
-/// the largest relative overload of the walks as they came (residual).
-fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
-    let net = g.net;
+/// The walks with their flows, each split back onto its real links, scaled into the
+/// file's real arc and site capacities by [`verify::repair_walks`] (demand `d` capped at
+/// `caps[d]`): a feasible allocation, the proven lower bound of any walk answer.
+/// O(total walk length + arcs + sites + demands).
+fn repair_columns(net: &Network, walks: &[Walk], flow: &[f64], caps: &[f64]) -> verify::Repaired {
     let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
     let site_capacity: Vec<f64> = net.sites.iter().map(|v| v.processing).collect();
-    let walks: Vec<verify::Walk> = s
-        .walks
+    let walks: Vec<verify::Walk> = walks
         .iter()
-        .zip(&s.flow)
+        .zip(flow)
         .map(|(w, &f)| verify::Walk {
             sink: verify::Sink::Demand(w.demand),
             arcs: w
@@ -533,35 +531,80 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
             amount: f,
         })
         .collect();
-    let allocation = verify::repair_walks(net, &walks, &arc_capacity, &site_capacity, caps);
-    // The walks as they came: the largest overload relative to what each row could hold.
-    let mut arc_load = vec![0.0; net.arcs.len()];
-    let mut site_load = vec![0.0; net.sites.len()];
-    let mut demand_flow = vec![0.0; net.demands.len()];
-    let mut arc_has_row = vec![false; net.arcs.len()];
-    for (w, &f) in s.walks.iter().zip(&s.flow) {
-        demand_flow[w.demand] += f;
-        site_load[w.site] += f;
-        for &(a, m) in &w.arcs {
-            arc_load[a] += f64::from(m) * f;
-            arc_has_row[a] = true;
-        }
-    }
-    let (arc_cap, site_cap) = g.effective_real(caps);
-    let over = |load: f64, cap: f64| {
-        if load > cap {
-            (load - cap) / load.max(cap).max(f64::MIN_POSITIVE)
-        } else {
-            0.0
-        }
+    verify::repair_walks(net, &walks, &arc_capacity, &site_capacity, caps)
+}
+
+/// What walks with flows put on each arc (a walk crossing an arc `m` times counts `m`
+/// times), each site (where it processes) and each demand, and which arcs some walk uses.
+pub(super) struct Loads {
+    pub(super) arc: Vec<f64>,
+    pub(super) site: Vec<f64>,
+    pub(super) demand: Vec<f64>,
+    pub(super) arc_used: Vec<bool>,
+}
+
+/// The [`Loads`] of `walks` with flows `flow`. O(total walk length + arcs + sites +
+/// demands).
+pub(super) fn loads(net: &Network, walks: &[Walk], flow: &[f64]) -> Loads {
+    let mut l = Loads {
+        arc: vec![0.0; net.arcs.len()],
+        site: vec![0.0; net.sites.len()],
+        demand: vec![0.0; net.demands.len()],
+        arc_used: vec![false; net.arcs.len()],
     };
-    let mut residual: f64 = 0.0;
-    for a in 0..net.arcs.len() {
-        residual = residual.max(over(arc_load[a], arc_capacity[a]));
+    for (w, &f) in walks.iter().zip(flow) {
+        l.demand[w.demand] += f;
+        l.site[w.site] += f;
+        for &(a, m) in &w.arcs {
+            l.arc[a] += f64::from(m) * f;
+            l.arc_used[a] = true;
+        }
     }
-    for v in 0..net.sites.len() {
-        residual = residual.max(over(site_load[v], site_capacity[v]));
+    l
+}
+
+/// How far `load` exceeds `cap`, relative to the larger of the two (0 when it fits).
+pub(super) fn overload(load: f64, cap: f64) -> f64 {
+    if load > cap {
+        (load - cap) / load.max(cap).max(f64::MIN_POSITIVE)
+    } else {
+        0.0
     }
+}
+
+/// The largest [`overload`] of `arc_load` and `site_load` against the file's arc and site
+/// capacities (the residual of walks as they came). O(arcs + sites).
+pub(super) fn capacity_residual(net: &Network, arc_load: &[f64], site_load: &[f64]) -> f64 {
+    let arcs = net
+        .arcs
+        .iter()
+        .zip(arc_load)
+        .map(|(a, &l)| overload(l, a.capacity));
+    let sites = net
+        .sites
+        .iter()
+        .zip(site_load)
+        .map(|(v, &l)| overload(l, v.processing));
+    arcs.chain(sites).fold(0.0, f64::max)
+}
+
+/// Verifies a walk-formulation answer like any other ([`super::solve_verified`]): the walks
+/// scaled into a feasible allocation ([`verify::repair_walks`], the proven lower bound),
+/// the certificate's dual bound of the prices on the same surviving network (upper bound),
+/// the largest relative overload of the walks as they came (residual).
+fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
+    let net = g.net;
+    let allocation = repair_columns(net, &s.walks, &s.flow, caps);
+    // The walks as they came: the largest overload relative to what each row could hold.
+    let Loads {
+        arc: arc_load,
+        site: site_load,
+        demand: demand_flow,
+        arc_used: arc_has_row,
+    } = loads(net, &s.walks, &s.flow);
+    let (arc_cap, site_cap) = g.effective_real(caps);
+    let over = overload;
+    let mut residual = capacity_residual(net, &arc_load, &site_load);
     for (d, &b) in caps.iter().enumerate() {
         residual = residual.max(over(demand_flow[d], b));
     }
@@ -591,7 +634,7 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
         allocation,
         arc_price: (0..net.arcs.len())
             .map(|a| {
-                if lowered(arc_cap[a], arc_capacity[a]) {
+                if lowered(arc_cap[a], net.arcs[a].capacity) {
                     0.0
                 } else {
                     s.arc_price[a].max(0.0)
@@ -600,7 +643,7 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
             .collect(),
         site_price: (0..net.sites.len())
             .map(|v| {
-                if lowered(site_cap[v], site_capacity[v]) {
+                if lowered(site_cap[v], net.sites[v].processing) {
                     0.0
                 } else {
                     s.site_price[v].max(0.0)

@@ -112,14 +112,7 @@ pub fn solve_verified_with(
         return Ok(Verified {
             allocation,
             lp_value: 0.0,
-            verification: Verification {
-                proven: true,
-                lower: 0.0,
-                upper: 0.0,
-                residual: 0.0,
-                attempts: 0,
-                backend: "none (nothing to route)".into(),
-            },
+            verification: Verification::nothing_to_route(),
             arc_price: vec![0.0; net.arcs.len()],
             site_price: vec![0.0; net.sites.len()],
             arc_has_row: vec![false; net.arcs.len()],
@@ -175,14 +168,7 @@ pub fn solve_verified_with(
             best_prices = (arc_price, site_price);
         }
         let lp_value = index.served(&solution.x);
-        // Prefer an allocation that passes the residual check, then the larger lower bound.
-        let feasible = residual <= RESIDUAL_TOL;
-        let better = best.as_ref().is_none_or(|b| {
-            let b_feasible = b.verification.residual <= RESIDUAL_TOL;
-            (feasible && !b_feasible)
-                || (feasible == b_feasible && allocation.served > b.allocation.served)
-        });
-        if better {
+        if better_attempt(best.as_ref(), residual, allocation.served) {
             best = Some(Verified {
                 lp_value,
                 verification: Verification {
@@ -312,4 +298,16 @@ pub(crate) fn try_backend(
         residual,
         allocation,
     }))
+}
+
+/// Whether a backend attempt whose allocation has `residual` and serves `served` (its
+/// repaired lower bound) should replace `best`, the best attempt so far: one that passes
+/// the residual check ([`RESIDUAL_TOL`]) beats one that does not, then the larger lower
+/// bound wins. O(1).
+pub(crate) fn better_attempt(best: Option<&Verified>, residual: f64, served: f64) -> bool {
+    let feasible = residual <= RESIDUAL_TOL;
+    best.is_none_or(|b| {
+        let b_feasible = b.verification.residual <= RESIDUAL_TOL;
+        (feasible && !b_feasible) || (feasible == b_feasible && served > b.allocation.served)
+    })
 }

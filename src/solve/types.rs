@@ -45,6 +45,21 @@ pub struct Verification {
     pub backend: String,
 }
 
+impl Verification {
+    /// The verification of an LP with no variable (no surviving demand can be routed):
+    /// proven, both bounds 0, nothing solved.
+    pub fn nothing_to_route() -> Verification {
+        Verification {
+            proven: true,
+            lower: 0.0,
+            upper: 0.0,
+            residual: 0.0,
+            attempts: 0,
+            backend: "none (nothing to route)".into(),
+        }
+    }
+}
+
 /// Everything the tool reports for one outage.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Evaluation {

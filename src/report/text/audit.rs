@@ -119,17 +119,7 @@ pub fn audit_report(m: &Model<'_>) -> String {
         amount(baseline.surviving_required, u),
         percent(baseline.served_required, baseline.surviving_required),
         num(baseline.throughput),
-        amount(
-            net.view(
-                audit
-                    .scenarios
-                    .iter()
-                    .find(|s| s.is_baseline())
-                    .map_or(0, |s| s.matrix)
-            )
-            .total_volume(),
-            u
-        ),
+        amount(net.view(audit.baseline_matrix()).total_volume(), u),
         small(baseline.certified_gap())
     );
     if m.several_matrices() {
@@ -160,16 +150,7 @@ pub fn audit_report(m: &Model<'_>) -> String {
             let _ = writeln!(
                 out,
                 "Baseline: {}.",
-                baseline_misses(
-                    net.view(
-                        audit
-                            .scenarios
-                            .iter()
-                            .find(|s| s.is_baseline())
-                            .map_or(0, |s| s.matrix)
-                    ),
-                    &baseline.cut_off
-                )
+                baseline_misses(net.view(audit.baseline_matrix()), &baseline.cut_off)
             );
         }
     }

@@ -62,21 +62,9 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) ->
         .sites
         .iter()
         .filter_map(|s| {
-            s.expansion.as_ref().map(|e| {
-                format!(
-                    "{} (cost {}/unit, {}{})",
-                    s.id,
-                    num(e.cost),
-                    if e.max.is_finite() {
-                        format!("up to {}", num(e.max))
-                    } else {
-                        "no limit".into()
-                    },
-                    e.step
-                        .map(|st| format!(", modules of {}", num(st)))
-                        .unwrap_or_default()
-                )
-            })
+            s.expansion
+                .as_ref()
+                .map(|e| purchase_terms(&s.id, e.cost, e.max, e.step))
         })
         .collect();
     let _ = writeln!(
@@ -143,18 +131,9 @@ fn chains_summary(out: &mut String, net: &Network, ch: &crate::model::Chains) {
             .iter()
             .enumerate()
             .filter_map(|(v, s)| {
-                ch.expand[v][f].as_ref().map(|e| {
-                    format!(
-                        "{} (cost {}/unit, {})",
-                        s.id,
-                        num(e.cost),
-                        if e.max.is_finite() {
-                            format!("up to {}", num(e.max))
-                        } else {
-                            "no limit".into()
-                        }
-                    )
-                })
+                ch.expand[v][f]
+                    .as_ref()
+                    .map(|e| purchase_terms(&s.id, e.cost, e.max, None))
             })
             .collect();
         let _ = writeln!(
@@ -247,4 +226,20 @@ pub fn write_check(
     baseline_cut_off: &[(usize, Unservable)],
 ) -> io::Result<()> {
     w.write_all(screen::finish(&check_summary(net, baseline_cut_off)).as_bytes())
+}
+
+/// How one purchase option reads in `check`: `SITE (cost C/unit, up to M[, modules of S])`,
+/// `no limit` for an unbounded `max`.
+fn purchase_terms(site: &str, cost: f64, max: f64, step: Option<f64>) -> String {
+    format!(
+        "{site} (cost {}/unit, {}{})",
+        num(cost),
+        if max.is_finite() {
+            format!("up to {}", num(max))
+        } else {
+            "no limit".into()
+        },
+        step.map(|st| format!(", modules of {}", num(st)))
+            .unwrap_or_default()
+    )
 }

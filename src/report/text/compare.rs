@@ -171,7 +171,6 @@ pub(super) fn compare_lines(
 /// 100 → 10`), at most `top` rows, then how many more; nothing when the files are equal
 /// in every compared field.
 fn file_changes(w: &mut dyn Write, c: &crate::compare::Comparison, top: usize) -> io::Result<()> {
-    use crate::model::diff::Value;
     let list = &c.file_changes;
     if list.is_empty() {
         return writeln!(
@@ -179,19 +178,13 @@ fn file_changes(w: &mut dyn Write, c: &crate::compare::Comparison, top: usize) -
             "\nThe two files have the same sites, links, groups and demands."
         );
     }
-    let shown = |v: &Option<Value>| match v {
-        None => "—".to_string(),
-        Some(Value::Number(x)) => num(*x),
-        Some(Value::Text(t)) if t.is_empty() => "none".to_string(),
-        Some(Value::Text(t)) => t.clone(),
-    };
     let mut t = table(&["element", "field", "before", "after"]);
     for e in list.iter().take(top) {
         t.add_row(vec![
             Cell::new(&e.element),
             Cell::new(e.field),
-            Cell::new(shown(&e.before)),
-            Cell::new(shown(&e.after)),
+            Cell::new(edit_value(&e.before)),
+            Cell::new(edit_value(&e.after)),
         ]);
     }
     writeln!(
@@ -235,4 +228,16 @@ pub(crate) fn verdict_line(c: &crate::compare::Comparison) -> String {
             None => "",
         }
     )
+}
+
+/// One side of a changed field as printed: a number as [`num`] writes it, a text as it
+/// is (`none` when empty), `—` for a side without the field or the element.
+pub(crate) fn edit_value(v: &Option<crate::model::diff::Value>) -> String {
+    use crate::model::diff::Value;
+    match v {
+        None => "—".to_string(),
+        Some(Value::Number(x)) => num(*x),
+        Some(Value::Text(t)) if t.is_empty() => "none".to_string(),
+        Some(Value::Text(t)) => t.clone(),
+    }
 }

@@ -46,7 +46,6 @@ use crate::solve::cancel;
 use crate::solve::concurrent::{Headroom, Setup, decide, upper_bound};
 use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
-use crate::solve::verify;
 
 /// A verified headroom optimum in real arcs: its walks with flows and the prices that
 /// certified it (the start of child outages).
@@ -191,53 +190,16 @@ fn certified(
     real_caps: &(Vec<f64>, Vec<f64>),
     cols: &Columns,
 ) -> Headroom {
-    let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
-    let site_capacity: Vec<f64> = net.sites.iter().map(|v| v.processing).collect();
-    let walks: Vec<verify::Walk> = cols
-        .walks
-        .iter()
-        .zip(&cols.flow)
-        .map(|(w, &f)| verify::Walk {
-            sink: verify::Sink::Demand(w.demand),
-            arcs: w
-                .arcs
-                .iter()
-                .flat_map(|&(a, m)| std::iter::repeat_n(a, usize::from(m)))
-                .collect(),
-            site: w.site,
-            amount: f,
-        })
-        .collect();
     let unbounded = vec![f64::INFINITY; net.demands.len()];
-    let repaired = verify::repair_walks(net, &walks, &arc_capacity, &site_capacity, &unbounded);
+    let repaired = super::repair_columns(net, &cols.walks, &cols.flow, &unbounded);
     let lower = setup
         .active
         .iter()
         .map(|&d| repaired.demand_flow[d] / setup.required[d])
         .fold(f64::INFINITY, f64::min)
         .max(0.0);
-    let mut arc_load = vec![0.0; net.arcs.len()];
-    let mut site_load = vec![0.0; net.sites.len()];
-    for (w, &f) in cols.walks.iter().zip(&cols.flow) {
-        site_load[w.site] += f;
-        for &(a, m) in &w.arcs {
-            arc_load[a] += f64::from(m) * f;
-        }
-    }
-    let over = |load: f64, cap: f64| {
-        if load > cap {
-            (load - cap) / load.max(cap).max(f64::MIN_POSITIVE)
-        } else {
-            0.0
-        }
-    };
-    let mut residual: f64 = 0.0;
-    for a in 0..net.arcs.len() {
-        residual = residual.max(over(arc_load[a], arc_capacity[a]));
-    }
-    for v in 0..net.sites.len() {
-        residual = residual.max(over(site_load[v], site_capacity[v]));
-    }
+    let l = super::loads(net, &cols.walks, &cols.flow);
+    let residual = super::capacity_residual(net, &l.arc, &l.site);
     let caps = (real_caps.0.as_slice(), real_caps.1.as_slice());
     let upper = upper_bound(
         net,
