@@ -47,6 +47,8 @@ impl Values {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Change {
     pub failed: Vec<String>,
+    /// The traffic matrix's id, for files with `matrices` (`None` without).
+    pub matrix: Option<String>,
     pub before: Values,
     pub after: Values,
     /// Printed shortfall after − printed shortfall before.
@@ -56,7 +58,14 @@ pub struct Change {
 }
 
 impl Change {
-    fn new(failed: Vec<String>, before: Values, after: Values) -> Change {
+    /// Scenario `failed` (under `matrix`) with its values on both sides and their
+    /// printed differences.
+    pub fn new(
+        failed: Vec<String>,
+        matrix: Option<String>,
+        before: Values,
+        after: Values,
+    ) -> Change {
         // Differences of printed values, printed again: 14.334 − 14.333 is 0.001, not
         // 0.00099999…, so a tolerance of 0.001 compares as a reader would.
         let delta = |a: f64, b: f64| displayed(displayed(a) - displayed(b));
@@ -64,6 +73,7 @@ impl Change {
             delta_shortfall: delta(after.shortfall, before.shortfall),
             delta_stranded: delta(after.stranded, before.stranded),
             failed,
+            matrix,
             before,
             after,
         }
@@ -74,6 +84,8 @@ impl Change {
 #[derive(Debug, Clone, PartialEq)]
 pub struct OneSided {
     pub failed: Vec<String>,
+    /// The traffic matrix's id, for files with `matrices`.
+    pub matrix: Option<String>,
     pub values: Values,
 }
 
@@ -139,6 +151,10 @@ fn one_sided(audit: &Audit, only: &[usize]) -> Vec<OneSided> {
         .iter()
         .map(|&i| OneSided {
             failed: audit.scenarios[i].failed.clone(),
+            matrix: audit.scenarios[i]
+                .matrix_name
+                .as_deref()
+                .map(str::to_string),
             values: Values::of(audit.eval(i)),
         })
         .collect();
@@ -149,6 +165,7 @@ fn one_sided(audit: &Audit, only: &[usize]) -> Vec<OneSided> {
             .then(b.values.stranded.total_cmp(&a.values.stranded))
             .then(a.failed.len().cmp(&b.failed.len()))
             .then_with(|| a.failed.cmp(&b.failed))
+            .then_with(|| a.matrix.cmp(&b.matrix))
     });
     v
 }
@@ -187,6 +204,7 @@ pub fn compare(
         matched += 1;
         let c = Change::new(
             s.failed.clone(),
+            s.matrix_name.as_deref().map(str::to_string),
             Values::of(ab.eval(i)),
             Values::of(aa.eval(j)),
         );
@@ -207,12 +225,14 @@ pub fn compare(
             .total_cmp(&a.delta_shortfall)
             .then(b.delta_stranded.total_cmp(&a.delta_stranded))
             .then_with(|| a.failed.cmp(&b.failed))
+            .then_with(|| a.matrix.cmp(&b.matrix))
     });
     better.sort_by(|a, b| {
         a.delta_shortfall
             .total_cmp(&b.delta_shortfall)
             .then(a.delta_stranded.total_cmp(&b.delta_stranded))
             .then_with(|| a.failed.cmp(&b.failed))
+            .then_with(|| a.matrix.cmp(&b.matrix))
     });
     new_short.sort_by(|a: &Change, b: &Change| {
         b.after
@@ -220,6 +240,7 @@ pub fn compare(
             .total_cmp(&a.after.shortfall)
             .then(a.failed.len().cmp(&b.failed.len()))
             .then_with(|| a.failed.cmp(&b.failed))
+            .then_with(|| a.matrix.cmp(&b.matrix))
     });
     let (eb, ea) = (element_names(nb), element_names(na));
     Comparison {
@@ -282,9 +303,9 @@ mod tests {
     /// is a change of exactly 0.001, which a tolerance of 0.001 allows and 0 does not.
     #[test]
     fn deltas_are_taken_as_printed() {
-        let c = Change::new(vec![], values(14.3331, 0.0), values(14.3334, 0.0));
+        let c = Change::new(vec![], None, values(14.3331, 0.0), values(14.3334, 0.0));
         assert_eq!(c.delta_shortfall, 0.0);
-        let c = Change::new(vec![], values(14.333, 2.0), values(14.334, 1.0));
+        let c = Change::new(vec![], None, values(14.333, 2.0), values(14.334, 1.0));
         assert_eq!(c.delta_shortfall, 0.001);
         assert_eq!(c.delta_stranded, -1.0);
         assert!(c.delta_shortfall > 0.0);

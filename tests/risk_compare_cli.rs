@@ -393,3 +393,72 @@ fn compare_report_lists_every_scenario_of_the_json() {
         "self-contained"
     );
 }
+
+/// `compare` on a file with traffic matrices matches (scenario, matrix) pairs and names the
+/// matrix of every changed pair: the demo's hours file with one link's capacity cut to a
+/// tenth (an edit made here, so which pairs can change is known: only pairs whose routes
+/// need that link). Each `worse` entry must carry a `matrix` that the file lists, the text
+/// must show it, and the same comparison through a file without matrices must not.
+#[test]
+fn compare_names_the_matrix_of_each_changed_pair() {
+    let hours = fixture("demo-harrowmere-hours.json");
+    let mut v: Value = serde_json::from_str(&std::fs::read_to_string(&hours).unwrap()).unwrap();
+    let ids: Vec<String> = std::iter::once("base".to_string())
+        .chain(
+            v["matrices"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|m| m["id"].as_str().unwrap().to_string()),
+        )
+        .collect();
+    let cap = v["links"][0]["capacity"].as_f64().unwrap();
+    v["links"][0]["capacity"] = serde_json::json!(cap / 10.0);
+    let after = TempPath::with_text("hours-after", &v.to_string());
+    let out = TempPath::new("compare-hours", "json");
+    let run = redoubt(&[
+        "compare",
+        s(&hours),
+        after.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(run.code, 1, "{}\n{}", run.stdout, run.stderr);
+    let doc = out.read_json();
+    let worse = doc["worse"].as_array().unwrap();
+    assert!(!worse.is_empty(), "{doc}");
+    for c in worse {
+        let m = c["matrix"].as_str().expect("a matrix on every pair");
+        assert!(ids.iter().any(|i| i == m), "{m} not in {ids:?}");
+    }
+    let first = &worse[0];
+    let words = format!(
+        "{} under matrix {}",
+        failed_of(first).join(" + "),
+        first["matrix"].as_str().unwrap()
+    );
+    let shown = if failed_of(first).is_empty() {
+        format!("baseline under matrix {}", first["matrix"].as_str().unwrap())
+    } else {
+        words
+    };
+    assert!(run.stdout.contains(&shown), "{shown}\n{}", run.stdout);
+
+    let plain = TempPath::with_text("plain-before", PATH_NET);
+    let mut p: Value = serde_json::from_str(PATH_NET).unwrap();
+    p["links"][0]["capacity"] = serde_json::json!(1);
+    let plain_after = TempPath::with_text("plain-after", &p.to_string());
+    let run = redoubt(&[
+        "compare",
+        plain.path(),
+        plain_after.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(run.code, 1, "{}", run.stderr);
+    let doc = out.read_json();
+    assert!(doc["worse"][0].get("matrix").is_none(), "{doc}");
+    assert!(!run.stdout.contains("under matrix"), "{}", run.stdout);
+}

@@ -9,7 +9,7 @@ use std::io::{self, Write};
 
 use super::CAUTION;
 use super::html::{esc, page_opening, table_html};
-use super::text::{edit_value, scenario_words, signed, verdict_line};
+use super::text::{change_words, edit_value, signed, verdict_line};
 use crate::compare::{Change, Comparison, OneSided};
 use crate::numbers::num;
 use crate::solve::Evaluation;
@@ -51,7 +51,7 @@ fn changes(title: &str, note: &str, list: &[Change], unit: &str) -> Section {
             .iter()
             .map(|c| {
                 vec![
-                    scenario_words(&c.failed),
+                    change_words(&c.failed, c.matrix.as_deref()),
                     num(c.before.shortfall),
                     num(c.after.shortfall),
                     signed(c.delta_shortfall),
@@ -75,7 +75,7 @@ fn sided(title: &str, note: &str, list: &[OneSided], unit: &str) -> Section {
             .iter()
             .map(|o| {
                 vec![
-                    scenario_words(&o.failed),
+                    change_words(&o.failed, o.matrix.as_deref()),
                     num(o.values.shortfall),
                     num(o.values.stranded),
                 ]

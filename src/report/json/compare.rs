@@ -28,6 +28,8 @@ impl ValuesJson {
 #[derive(Serialize)]
 pub struct ChangeJson {
     pub failed: Vec<String>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
     pub before: ValuesJson,
     pub after: ValuesJson,
     pub delta_shortfall: f64,
@@ -37,6 +39,8 @@ pub struct ChangeJson {
 #[derive(Serialize)]
 pub struct OneSidedJson {
     pub failed: Vec<String>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub matrix: Option<String>,
     #[serde(flatten)]
     pub values: ValuesJson,
 }
@@ -102,6 +106,7 @@ fn file_change_json(e: &crate::model::diff::Edit) -> FileChangeJson {
 fn change_json(c: &crate::compare::Change) -> ChangeJson {
     ChangeJson {
         failed: c.failed.clone(),
+        matrix: c.matrix.clone(),
         before: ValuesJson::of(&c.before),
         after: ValuesJson::of(&c.after),
         delta_shortfall: file_num(c.delta_shortfall),
@@ -113,6 +118,7 @@ fn one_sided_json(v: &[crate::compare::OneSided]) -> Vec<OneSidedJson> {
     v.iter()
         .map(|o| OneSidedJson {
             failed: o.failed.clone(),
+            matrix: o.matrix.clone(),
             values: ValuesJson::of(&o.values),
         })
         .collect()
@@ -125,17 +131,7 @@ pub fn compare_json(
     after: &Evaluation,
 ) -> CompareJson {
     use crate::compare::{Change, Values};
-    let base = Change {
-        failed: Vec::new(),
-        before: Values::of(before),
-        after: Values::of(after),
-        delta_shortfall: crate::report::displayed(
-            crate::report::displayed(after.shortfall) - crate::report::displayed(before.shortfall),
-        ),
-        delta_stranded: crate::report::displayed(
-            crate::report::displayed(after.stranded) - crate::report::displayed(before.stranded),
-        ),
-    };
+    let base = Change::new(Vec::new(), None, Values::of(before), Values::of(after));
     CompareJson {
         caution: CAUTION,
         before: c.before_name.clone(),

@@ -80,7 +80,7 @@ pub(super) fn compare_lines(
         ]);
         for ch in list.iter().take(top) {
             t.add_row(vec![
-                Cell::new(scenario_words(&ch.failed)),
+                Cell::new(change_words(&ch.failed, ch.matrix.as_deref())),
                 Cell::new(num(ch.before.shortfall)),
                 Cell::new(num(ch.after.shortfall)),
                 Cell::new(signed(ch.delta_shortfall)),
@@ -123,7 +123,7 @@ pub(super) fn compare_lines(
         ]);
         for o in list.iter().take(top) {
             t.add_row(vec![
-                Cell::new(scenario_words(&o.failed)),
+                Cell::new(change_words(&o.failed, o.matrix.as_deref())),
                 Cell::new(num(o.values.shortfall)),
                 Cell::new(num(o.values.stranded)),
             ]);
@@ -239,5 +239,14 @@ pub(crate) fn edit_value(v: &Option<crate::model::diff::Value>) -> String {
         Some(Value::Number(x)) => num(*x),
         Some(Value::Text(t)) if t.is_empty() => "none".to_string(),
         Some(Value::Text(t)) => t.clone(),
+    }
+}
+
+/// A compared scenario as printed: [`scenario_words`], then ` under matrix ID` for files
+/// with `matrices`.
+pub(crate) fn change_words(failed: &[String], matrix: Option<&str>) -> String {
+    match matrix {
+        Some(m) => format!("{} under matrix {m}", scenario_words(failed)),
+        None => scenario_words(failed),
     }
 }

@@ -29,7 +29,7 @@ mod why;
 pub use audit::{audit_report, under_matrix, verdict, verification_summary, write_shard};
 pub use check::{check_summary, write_check};
 pub use compare::write_compare;
-pub(crate) use compare::{edit_value, scenario_words, signed, verdict_line};
+pub(crate) use compare::{change_words, edit_value, scenario_words, signed, verdict_line};
 pub use gates::gate_line;
 pub use plan::{closing_report, plan_report, relief_report, write_plan};
 pub use risk::risk_report;
