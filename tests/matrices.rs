@@ -142,6 +142,20 @@ fn each_matrix_alone_equals_a_file_with_it_as_demands() {
     );
 }
 
+/// A maintenance window (`--down`) holds under every matrix: each matrix of the hours demo,
+/// audited with a link kept down, gives every scenario the values of a file whose only
+/// demands are that matrix, audited with the same link down (the single-matrix audit is the
+/// outside reference: it has no matrix machinery at all).
+#[test]
+fn a_maintenance_window_holds_under_every_matrix() {
+    let demo = std::fs::read_to_string(fixture("demo-harrowmere-hours.json")).unwrap();
+    each_matrix_equals_its_own_file(
+        &demo,
+        &["base", "evening-peak", "forecast-next-year"],
+        &["--down", "link:harrow-millbrook", "--kinds", "links,sites"],
+    );
+}
+
 #[test]
 fn worst_matrix_differs_per_scenario_by_hand() {
     let f = TempPath::with_text("matrices-star", STAR);

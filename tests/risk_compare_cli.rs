@@ -439,7 +439,10 @@ fn compare_names_the_matrix_of_each_changed_pair() {
         first["matrix"].as_str().unwrap()
     );
     let shown = if failed_of(first).is_empty() {
-        format!("baseline under matrix {}", first["matrix"].as_str().unwrap())
+        format!(
+            "baseline under matrix {}",
+            first["matrix"].as_str().unwrap()
+        )
     } else {
         words
     };
