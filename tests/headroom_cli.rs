@@ -415,20 +415,54 @@ fn nothing_without_the_flag() {
     assert!(!run.stdout.contains("eadroom"), "{}", run.stdout);
 }
 
-/// `--headroom` with `--shard` is refused as a usage error (part files do not carry it).
+/// `--headroom` with `--shard`: the parts record that the run asked for headroom and
+/// `merge` computes it over every outage, so the merged JSON and text equal the unsharded
+/// `--headroom` run's byte for byte (the unsharded run is the reference: it never sees a
+/// part file). `--min-headroom` with `--shard` stays a usage error (parts are not gated).
 #[test]
-fn shard_refused() {
+fn sharded_headroom_merges_to_the_unsharded_run() {
+    let demo = demo();
+    let dir = TempDir::new("headroom-shards");
+    let whole = dir.join("whole.json");
+    let base = ["audit", s(&demo), "--headroom", "--quiet"];
+    let full: Vec<&str> = base.iter().copied().chain(["--json", s(&whole)]).collect();
+    let reference = redoubt(&full);
+    assert_eq!(reference.code, 0, "{}", reference.stderr);
+    let parts: Vec<std::path::PathBuf> =
+        (1..=2).map(|i| dir.join(&format!("p{i}.jsonl"))).collect();
+    for (i, part) in parts.iter().enumerate() {
+        let shard = format!("{}/2", i + 1);
+        let args: Vec<&str> = base
+            .iter()
+            .copied()
+            .chain(["--shard", &shard, "--json", s(part)])
+            .collect();
+        let run = redoubt(&args);
+        assert_eq!(run.code, 0, "{}", run.stderr);
+    }
+    let merged = dir.join("merged.json");
+    let run = redoubt(&["merge", s(&parts[1]), s(&parts[0]), "--json", s(&merged)]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let doc: Value = serde_json::from_slice(&std::fs::read(&merged).unwrap()).unwrap();
+    assert!(doc["headroom"]["value"].is_number(), "{}", doc["headroom"]);
+    assert!(
+        std::fs::read(&merged).unwrap() == std::fs::read(&whole).unwrap(),
+        "merged JSON differs from the unsharded --headroom run's"
+    );
+    assert_eq!(run.stdout, reference.stdout, "merged text differs");
+
     let net = TempPath::with_text("shard", ONE_LINK);
     let part = TempPath::new("part", "json");
-    let run = redoubt(&[
+    let refused = redoubt(&[
         "audit",
         net.path(),
-        "--headroom",
+        "--min-headroom",
+        "1.5",
         "--shard",
         "1/2",
         "--json",
         part.path(),
     ]);
-    assert_eq!(run.code, 2, "{}", run.stderr);
-    assert!(run.stderr.contains("--shard"), "{}", run.stderr);
+    assert_eq!(refused.code, 2, "{}", refused.stderr);
+    assert!(refused.stderr.contains("--shard"), "{}", refused.stderr);
 }

@@ -242,6 +242,7 @@ pub(super) fn run(
             fail: args.fail.clone(),
             engine: args.engine.as_str().to_string(),
             matrix: args.scenarios.matrix.clone(),
+            headroom: args.headroom,
         };
         let own = batch.own();
         let lines = own.iter().map(|&k| match j.line(k)? {

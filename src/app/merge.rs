@@ -110,7 +110,7 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
             detail: args.detail,
             opts,
             routed: None,
-            headroom: false,
+            headroom: h.headroom,
             screen: None,
         },
         None,

@@ -386,10 +386,11 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
         }
     }
     let headroom = args.headroom || args.min_headroom.is_some();
-    if shard.is_some() && headroom {
+    if shard.is_some() && args.min_headroom.is_some() {
         return Err(Error::Usage(
-            "--headroom (and --min-headroom) with --shard is not supported yet: part files \
-             do not carry headroom; run the audit unsharded (--resume works with --headroom)"
+            "--min-headroom with --shard is not supported: a part file is not gated (merge \
+             applies no gate); give the shards --headroom and merge reports the headroom, or \
+             run the audit unsharded"
                 .into(),
         ));
     }

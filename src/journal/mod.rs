@@ -603,6 +603,10 @@ pub struct PartHeader {
     /// `--matrix` as given (absent without it: every matrix of the network).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub matrix: Option<String>,
+    /// The run asked for `--headroom`: `merge` computes the headroom of every outage of the
+    /// whole run (absent in parts of runs without it).
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub headroom: bool,
 }
 
 /// Writes a part file: the header line, then `lines` (journal lines
