@@ -170,6 +170,13 @@ fn one_sided(audit: &Audit, only: &[usize]) -> Vec<OneSided> {
     v
 }
 
+/// The matrix a scenario is matched by in [`compare`]: its id, `base` without matrices.
+fn matrix_key(s: &crate::scenario::Scenario) -> &str {
+    s.matrix_name
+        .as_deref()
+        .unwrap_or(crate::model::BASE_MATRIX)
+}
+
 /// Compares two audited sides. Scenarios are matched by their sorted `failed` lists
 /// (hash map, O(n) expected), then sorted: O(n log n) for n scenarios. Deterministic:
 /// every order ends on the scenario's names. `allow_new_short` is carried into the result
@@ -183,20 +190,21 @@ pub fn compare(
 ) -> Comparison {
     let (nb, ab) = before;
     let (na, aa) = after;
-    // Scenarios are matched by their failed names and, for files with `matrices`, the
-    // matrix's id (a matrix one side lacks gives added or removed pairs).
-    let index: HashMap<(&[String], Option<&str>), usize> = ab
+    // Scenarios are matched by their failed names and their traffic matrix (`base` for a
+    // file without `matrices`, so a file that gains or loses matrices still matches its
+    // base pairs; a matrix one side lacks gives added or removed pairs).
+    let index: HashMap<(&[String], &str), usize> = ab
         .scenarios
         .iter()
         .enumerate()
-        .map(|(i, s)| ((&s.failed[..], s.matrix_name.as_deref()), i))
+        .map(|(i, s)| ((&s.failed[..], matrix_key(s)), i))
         .collect();
     let mut seen_before = vec![false; ab.scenarios.len()];
     let mut only_after = Vec::new();
     let (mut worse, mut better, mut new_short) = (Vec::new(), Vec::new(), Vec::new());
     let mut matched = 0;
     for (j, s) in aa.scenarios.iter().enumerate() {
-        let Some(&i) = index.get(&(&s.failed[..], s.matrix_name.as_deref())) else {
+        let Some(&i) = index.get(&(&s.failed[..], matrix_key(s))) else {
             only_after.push(j);
             continue;
         };
@@ -204,7 +212,10 @@ pub fn compare(
         matched += 1;
         let c = Change::new(
             s.failed.clone(),
-            s.matrix_name.as_deref().map(str::to_string),
+            s.matrix_name
+                .as_deref()
+                .or(ab.scenarios[i].matrix_name.as_deref())
+                .map(str::to_string),
             Values::of(ab.eval(i)),
             Values::of(aa.eval(j)),
         );

@@ -465,3 +465,39 @@ fn compare_names_the_matrix_of_each_changed_pair() {
     assert!(doc["worse"][0].get("matrix").is_none(), "{doc}");
     assert!(!run.stdout.contains("under matrix"), "{}", run.stdout);
 }
+
+/// A change that adds traffic matrices (the plain demo before, its hours twin after: the
+/// same network and base demands with two matrices more, as fixtures/make_fixtures.py
+/// writes them) matches every base pair, so nothing got worse or better under `base`;
+/// the new matrices' pairs are added risks, and the file changes list both matrices as
+/// added.
+#[test]
+fn compare_matches_base_pairs_when_matrices_are_added() {
+    let out = TempPath::new("compare-add-matrices", "json");
+    let before = demo();
+    let after = fixture("demo-harrowmere-hours.json");
+    let run = redoubt(&[
+        "compare",
+        s(&before),
+        s(&after),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert!(run.code == 0 || run.code == 1, "{}", run.stderr);
+    let doc = out.read_json();
+    let (_, plain) = audit_json(s(&before), &[]);
+    let pairs = scenarios(&plain).len() as u64;
+    assert_eq!(doc["matched_scenarios"].as_u64(), Some(pairs), "{doc}");
+    let added = doc["added_risks"].as_array().unwrap();
+    assert_eq!(added.len() as u64, 2 * pairs, "two new matrices");
+    assert!(added.iter().all(|r| r["matrix"] != "base"), "{doc}");
+    let matrices: Vec<&str> = doc["file_changes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|e| e["element"].as_str().unwrap().starts_with("matrix:"))
+        .map(|e| e["field"].as_str().unwrap())
+        .collect();
+    assert_eq!(matrices, vec!["added", "added"], "{}", doc["file_changes"]);
+}

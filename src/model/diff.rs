@@ -36,7 +36,7 @@ pub struct Edit {
 }
 
 /// Every difference between `before` and `after`, in this order: sites, links, groups,
-/// demands; within each kind, by the element's position in `after` and then the removed
+/// demands, further traffic matrices; within each kind, by the element's position in `after` and then the removed
 /// ones in their order in `before`; within an element, fields in the order of the module
 /// comment.
 ///
@@ -48,15 +48,58 @@ pub fn edits(before: &Network, after: &Network) -> Vec<Edit> {
     sites(before, after, &mut out);
     links(before, after, &mut out);
     groups(before, after, &mut out);
-    demands(before, after, &mut out);
+    demands(before, after, "", &mut out);
+    matrices(before, after, &mut out);
     out
+}
+
+/// The further traffic matrices: one added or removed (`matrix:ID`, with its demand count
+/// and required total), and for a matrix both files have, its demand edits named
+/// `demand:LABEL (matrix ID)`.
+fn matrices(before: &Network, after: &Network, out: &mut Vec<Edit>) {
+    let summary = |net: &Network, m: usize| {
+        let v = net.view(m);
+        Value::Text(format!(
+            "{} demands, required {}",
+            v.demands.len(),
+            crate::numbers::num(v.total_required())
+        ))
+    };
+    for m in 1..after.matrix_count() {
+        let id = after.matrix_id(m);
+        match before.matrix_index(id) {
+            None => out.push(Edit {
+                element: format!("matrix:{id}"),
+                field: "added",
+                before: None,
+                after: Some(summary(after, m)),
+            }),
+            Some(mb) => demands(
+                before.view(mb),
+                after.view(m),
+                &format!(" (matrix {id})"),
+                out,
+            ),
+        }
+    }
+    for m in 1..before.matrix_count() {
+        let id = before.matrix_id(m);
+        if after.matrix_index(id).is_none() {
+            out.push(Edit {
+                element: format!("matrix:{id}"),
+                field: "removed",
+                before: Some(summary(before, m)),
+                after: None,
+            });
+        }
+    }
 }
 
 /// Pushes the edits of one kind: elements matched by `key`, fields compared by `fields`
 /// (a list of `(field, value)` per element; `None` when the element lacks the field),
 /// `summary` describing an element added or removed.
 fn kind<T>(
-    prefix: &str,
+    (prefix, suffix): (&str, &str),
     before: &[T],
     after: &[T],
     key: impl Fn(&T) -> &str,
@@ -67,7 +110,7 @@ fn kind<T>(
     let old: HashMap<&str, &T> = before.iter().map(|e| (key(e), e)).collect();
     let new: BTreeSet<&str> = after.iter().map(&key).collect();
     for a in after {
-        let element = format!("{prefix}:{}", key(a));
+        let element = format!("{prefix}:{}{suffix}", key(a));
         match old.get(key(a)) {
             None => out.push(Edit {
                 element,
@@ -91,7 +134,7 @@ fn kind<T>(
     }
     for b in before.iter().filter(|b| !new.contains(key(b))) {
         out.push(Edit {
-            element: format!("{prefix}:{}", key(b)),
+            element: format!("{prefix}:{}{suffix}", key(b)),
             field: "removed",
             before: Some(Value::Text(summary(b))),
             after: None,
@@ -109,7 +152,7 @@ fn opt(x: Option<f64>) -> Option<Value> {
 
 fn sites(before: &Network, after: &Network, out: &mut Vec<Edit>) {
     kind(
-        "site",
+        ("site", ""),
         &before.sites,
         &after.sites,
         |s| s.id.as_str(),
@@ -162,7 +205,7 @@ fn link_rows(net: &Network) -> Vec<LinkRow> {
 
 fn links(before: &Network, after: &Network, out: &mut Vec<Edit>) {
     kind(
-        "link",
+        ("link", ""),
         &link_rows(before),
         &link_rows(after),
         |l| l.0.as_str(),
@@ -197,7 +240,7 @@ fn groups(before: &Network, after: &Network, out: &mut Vec<Edit>) {
         .map(|g| (g.name.clone(), members(after, g), g.failure_probability))
         .collect();
     kind(
-        "group",
+        ("group", ""),
         &b,
         &a,
         |g| g.0.as_str(),
@@ -212,7 +255,9 @@ fn groups(before: &Network, after: &Network, out: &mut Vec<Edit>) {
     );
 }
 
-fn demands(before: &Network, after: &Network, out: &mut Vec<Edit>) {
+/// The demand edits of `before` and `after` (two views of one matrix), each element named
+/// `demand:LABEL` followed by `suffix`.
+fn demands(before: &Network, after: &Network, suffix: &str, out: &mut Vec<Edit>) {
     let flat = |net: &Network| -> Vec<(String, String, f64, f64)> {
         net.demands
             .iter()
@@ -223,7 +268,7 @@ fn demands(before: &Network, after: &Network, out: &mut Vec<Edit>) {
             .collect()
     };
     kind(
-        "demand",
+        ("demand", suffix),
         &flat(before),
         &flat(after),
         |d| d.0.as_str(),
@@ -292,6 +337,38 @@ mod tests {
                     None,
                     t("c→a, volume 1, required 1")
                 ),
+            ]
+        );
+    }
+
+    /// Matrices: `evening` kept with one demand's volume raised (5 → 7), `night` removed,
+    /// `forecast` added; each edit written out by hand from the two files.
+    #[test]
+    fn matrices_added_removed_and_changed() {
+        let body = r#""sites":[{"id":"a","processing":10},{"id":"b"}],
+            "links":[{"id":"l1","from":"a","to":"b","capacity":100}],
+            "demands":[{"id":"d","from":"a","to":"b","volume":5}]"#;
+        let before = net(&format!(
+            r#"{{{body},"matrices":[
+                {{"id":"evening","demands":[{{"id":"d","from":"a","to":"b","volume":5}}]}},
+                {{"id":"night","demands":[{{"id":"d","from":"a","to":"b","volume":1}}]}}]}}"#
+        ));
+        let after = net(&format!(
+            r#"{{{body},"matrices":[
+                {{"id":"evening","demands":[{{"id":"d","from":"a","to":"b","volume":7}}]}},
+                {{"id":"forecast","demands":[{{"id":"d","from":"a","to":"b","volume":6}}]}}]}}"#
+        ));
+        let got: Vec<(String, &str)> = edits(&before, &after)
+            .into_iter()
+            .map(|e| (e.element, e.field))
+            .collect();
+        assert_eq!(
+            got,
+            vec![
+                ("demand:d (matrix evening)".into(), "volume"),
+                ("demand:d (matrix evening)".into(), "required"),
+                ("matrix:forecast".into(), "added"),
+                ("matrix:night".into(), "removed"),
             ]
         );
     }
