@@ -11,9 +11,6 @@
 
 mod common;
 
-use std::path::Path;
-use std::process::Command;
-
 use common::json::{PATH_NET, failed_of, num, scenario, scenarios};
 use common::*;
 use serde_json::Value;
@@ -232,40 +229,6 @@ fn merge_and_resume_write_the_plain_runs_detail() {
     );
     let doc: Value = serde_json::from_slice(&full).unwrap();
     assert!(scenarios(&doc).iter().all(has_detail));
-}
-
-fn journal_lines(path: &Path) -> usize {
-    std::fs::read(path).map_or(0, |b| b.iter().filter(|&&c| c == b'\n').count())
-}
-
-/// Starts `redoubt args`, waits until the journal holds at least `lines` lines, sends
-/// SIGINT (coreutils' `kill`) and returns the finished run.
-fn interrupt_at(args: &[&str], journal: &Path, lines: usize) -> Run {
-    let child = Command::new(env!("CARGO_BIN_EXE_redoubt"))
-        .args(args)
-        .stdout(std::process::Stdio::piped())
-        .stderr(std::process::Stdio::piped())
-        .spawn()
-        .expect("the redoubt binary starts");
-    let start = std::time::Instant::now();
-    while journal_lines(journal) < lines {
-        assert!(
-            start.elapsed().as_secs() < 300,
-            "journal never reached {lines} lines"
-        );
-        std::thread::sleep(std::time::Duration::from_millis(20));
-    }
-    let kill = Command::new("kill")
-        .args(["-INT", &child.id().to_string()])
-        .status()
-        .expect("kill runs");
-    assert!(kill.success());
-    let out = child.wait_with_output().expect("redoubt ends");
-    Run {
-        code: out.status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    }
 }
 
 /// A document whose compact form is over 1 MiB is written on one line (compact); a small

@@ -242,3 +242,39 @@ impl Drop for TempDir {
         let _ = std::fs::remove_dir_all(&self.0);
     }
 }
+
+/// How many whole lines the file at `path` holds (0 when it does not exist yet).
+pub fn journal_lines(path: &Path) -> usize {
+    std::fs::read(path).map_or(0, |b| b.iter().filter(|&&c| c == b'\n').count())
+}
+
+/// Starts `redoubt args`, waits until the journal at `journal` holds at least `lines`
+/// lines, sends SIGINT (with coreutils' `kill`), and returns the finished run. Panics when
+/// the journal does not get there within 5 minutes.
+pub fn interrupt_at(args: &[&str], journal: &Path, lines: usize) -> Run {
+    let child = Command::new(env!("CARGO_BIN_EXE_redoubt"))
+        .args(args)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the redoubt binary starts");
+    let start = Instant::now();
+    while journal_lines(journal) < lines {
+        assert!(
+            start.elapsed().as_secs() < 300,
+            "journal never reached {lines} lines"
+        );
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    let kill = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .expect("kill runs");
+    assert!(kill.success());
+    let out = child.wait_with_output().expect("redoubt ends");
+    Run {
+        code: out.status.code().unwrap_or(-1),
+        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
+        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
+    }
+}
