@@ -171,14 +171,12 @@ pub fn solve_verified_with(
         if better_attempt(best.as_ref(), residual, allocation.served) {
             best = Some(Verified {
                 lp_value,
-                verification: Verification {
-                    proven: false,
-                    lower: allocation.served,
-                    upper: f64::INFINITY,
+                verification: Verification::open(
+                    allocation.served,
                     residual,
-                    attempts: attempt + 1,
-                    backend: backend.name().into(),
-                },
+                    attempt + 1,
+                    backend.name(),
+                ),
                 allocation,
                 arc_price: Vec::new(),
                 site_price: Vec::new(),

@@ -58,6 +58,20 @@ impl Verification {
             backend: "none (nothing to route)".into(),
         }
     }
+
+    /// A backend attempt's verification before its upper bound is known: `lower` (the
+    /// repaired allocation's value), the allocation's `residual`, `attempts` so far and
+    /// the backend's name; not proven, upper bound infinite (the caller closes it).
+    pub fn open(lower: f64, residual: f64, attempts: usize, backend: &str) -> Verification {
+        Verification {
+            proven: false,
+            lower,
+            upper: f64::INFINITY,
+            residual,
+            attempts,
+            backend: backend.into(),
+        }
+    }
 }
 
 /// Everything the tool reports for one outage.
