@@ -6,6 +6,7 @@ use std::path::Path;
 use super::{Outcome, load, stdout_result};
 use crate::error::Result;
 use crate::report;
+use crate::report::export::Exporter as _;
 use crate::solve;
 
 /// Reads and validates `network`, then prints its summary with the demands the intact
@@ -13,6 +14,10 @@ use crate::solve;
 pub(super) fn run(network: &Path, out: &mut dyn Write) -> Result<Outcome> {
     let net = load(network)?;
     let cut_off = solve::baseline_cut_off(&net);
-    stdout_result(report::text::write_check(out, &net, &cut_off))?;
+    let doc = report::export::CheckReport {
+        net: &net,
+        cut_off: &cut_off,
+    };
+    stdout_result(report::export::Text.write(&doc, out))?;
     Ok(Outcome::Ok)
 }

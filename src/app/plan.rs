@@ -12,6 +12,7 @@ use crate::error::{Error, Result};
 use crate::expand;
 use crate::model::{self, Network};
 use crate::report;
+use crate::report::export::{Exporter as _, PlanReport};
 use crate::routing;
 use crate::scenario::Scenario;
 use crate::solve::Engine;
@@ -59,20 +60,31 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
     }
     let audit = solve_list(&net, list, Engine::Walks, &args.scenarios, opts, err)?;
     let plan = expand::plan_with(&net, &audit, goal, opts, args.master)?;
-    let default_costs = expand::Candidates::of(&net).default_costs;
+    let doc = PlanReport {
+        net: &net,
+        audit: &audit,
+        plan: &plan,
+        default_costs: expand::Candidates::of(&net).default_costs,
+        top: args.top,
+        routing: None,
+    };
+    write_plan(args, &text, &doc, out, err)
+}
+
+/// The end of every `plan`: `--json`, `--apply`, then the text on `out`, each through its
+/// exporter.
+pub(super) fn write_plan(
+    args: &PlanOptions,
+    text: &str,
+    doc: &PlanReport<'_>,
+    out: &mut dyn Write,
+    err: &mut dyn Write,
+) -> Result<Outcome> {
     if let Some(path) = &args.json {
-        let doc = report::json::plan_json(&net, &audit, &plan, default_costs);
-        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
+        report::file::write_atomic(path, |w| report::export::Json.write(doc, w))?;
     }
-    write_applied(args, &text, &net, &plan.add, err)?;
-    stdout_result(report::text::write_plan(
-        out,
-        &net,
-        &audit,
-        &plan,
-        default_costs,
-        args.top,
-    ))?;
+    write_applied(args, text, doc.net, &doc.plan.add, err)?;
+    stdout_result(report::export::Text.write(doc, out))?;
     Ok(Outcome::Ok)
 }
 

@@ -2,14 +2,14 @@
 
 use std::io::Write;
 
+use super::Outcome;
 use super::options::PlanOptions;
-use super::plan::write_applied;
-use super::{Outcome, stdout_result};
+use super::plan::write_plan;
 use crate::audit;
 use crate::error::Result;
 use crate::expand;
 use crate::model::Network;
-use crate::report;
+use crate::report::export::PlanReport;
 use crate::routing;
 use crate::scenario::Scenario;
 
@@ -33,21 +33,13 @@ pub(super) fn run(
     let Routed { net, text, mode } = routed;
     let ra = routing::run(net, scenarios, mode, opts, false)?;
     let plan = routing::expand::plan(net, &ra, goal, opts)?;
-    let default_costs = expand::Candidates::of(net).default_costs;
-    if let Some(path) = &args.json {
-        let mut doc = report::json::plan_json(net, &ra.audit, &plan, default_costs);
-        doc.routing = mode.name();
-        report::file::write_atomic(path, |w| report::json::write(w, &doc))?;
-    }
-    write_applied(args, text, net, &plan.add, err)?;
-    stdout_result(out.write_all(report::routing::plan_header(mode).as_bytes()))?;
-    stdout_result(report::text::write_plan(
-        out,
+    let doc = PlanReport {
         net,
-        &ra.audit,
-        &plan,
-        default_costs,
-        args.top,
-    ))?;
-    Ok(Outcome::Ok)
+        audit: &ra.audit,
+        plan: &plan,
+        default_costs: expand::Candidates::of(net).default_costs,
+        top: args.top,
+        routing: Some(mode),
+    };
+    write_plan(args, text, &doc, out, err)
 }

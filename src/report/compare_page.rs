@@ -4,10 +4,11 @@
 //! got worse or better, and the added and removed risks (all rows, not the text's top N),
 //! the headroom when compared; each exporter only lays it out.
 
-use std::fmt::Write as _;
+use std::fmt;
 use std::io::{self, Write};
 
 use super::CAUTION;
+use super::export::streamed;
 use super::html::{esc, page_opening, table_html};
 use super::text::{change_words, edit_value, signed, verdict_line};
 use crate::compare::{Change, Comparison, OneSided};
@@ -169,62 +170,58 @@ impl Page {
         }
     }
 
-    /// The HTML page: one self-contained file (inline styles, no script, nothing fetched).
-    pub fn html(&self) -> String {
-        let mut o = String::new();
+    /// The HTML page onto `o`: one self-contained file (inline styles, no script, nothing fetched).
+    pub fn html(&self, o: &mut dyn fmt::Write) -> fmt::Result {
         page_opening(
-            &mut o,
+            o,
             &format!("redoubt compare — {}", self.title),
             &self.title,
             &self.verdict,
             self.passed,
-        );
-        let _ = writeln!(o, "<p>{}</p>", esc(&self.baselines));
+        )?;
+        writeln!(o, "<p>{}</p>", esc(&self.baselines))?;
         for s in &self.sections {
-            let _ = writeln!(o, "<h2>{}</h2>", esc(&s.title));
-            let _ = writeln!(o, "<p>{}</p>", esc(&s.note));
+            writeln!(o, "<h2>{}</h2>", esc(&s.title))?;
+            writeln!(o, "<p>{}</p>", esc(&s.note))?;
             if !s.rows.is_empty() {
-                table_html(&mut o, &s.head, &s.rows, &s.numeric);
+                table_html(o, &s.head, &s.rows, &s.numeric)?;
             }
         }
-        let _ = writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION));
-        o.push_str("</main></body></html>\n");
-        o
+        writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION))?;
+        o.write_str("</main></body></html>\n")
     }
 
-    /// The Markdown twin of [`Page::html`].
-    pub fn markdown(&self) -> String {
+    /// The Markdown twin of [`Page::html`] onto `o`.
+    pub fn markdown(&self, o: &mut dyn fmt::Write) -> fmt::Result {
         let cell = |s: &str| s.replace('|', "\\|").replace('\n', " ");
-        let mut o = String::new();
-        let _ = writeln!(o, "# {}\n", self.title);
-        let _ = writeln!(o, "> {}\n", CAUTION);
-        let _ = writeln!(o, "**{}**\n", self.verdict);
-        let _ = writeln!(o, "{}\n", self.baselines);
+        writeln!(o, "# {}\n", self.title)?;
+        writeln!(o, "> {}\n", CAUTION)?;
+        writeln!(o, "**{}**\n", self.verdict)?;
+        writeln!(o, "{}\n", self.baselines)?;
         for s in &self.sections {
-            let _ = writeln!(o, "## {}\n\n{}\n", s.title, s.note);
+            writeln!(o, "## {}\n\n{}\n", s.title, s.note)?;
             if s.rows.is_empty() {
                 continue;
             }
             let head: Vec<String> = s.head.iter().map(|h| cell(h)).collect();
-            let _ = writeln!(o, "| {} |", head.join(" | "));
-            let _ = writeln!(o, "|{}", "---|".repeat(s.head.len()));
+            writeln!(o, "| {} |", head.join(" | "))?;
+            writeln!(o, "|{}", "---|".repeat(s.head.len()))?;
             for r in &s.rows {
                 let row: Vec<String> = r.iter().map(|c| cell(c)).collect();
-                let _ = writeln!(o, "| {} |", row.join(" | "));
+                writeln!(o, "| {} |", row.join(" | "))?;
             }
-            o.push('\n');
+            o.write_char('\n')?;
         }
-        let _ = writeln!(o, "> {}", CAUTION);
-        o
+        writeln!(o, "> {}", CAUTION)
     }
 
-    /// [`Page::html`] to `w`.
+    /// [`Page::html`] streamed to `w`.
     pub fn write_html(&self, w: &mut dyn Write) -> io::Result<()> {
-        w.write_all(self.html().as_bytes())
+        streamed(w, |o| self.html(o))
     }
 
-    /// [`Page::markdown`] to `w`.
+    /// [`Page::markdown`] streamed to `w`.
     pub fn write_markdown(&self, w: &mut dyn Write) -> io::Result<()> {
-        w.write_all(self.markdown().as_bytes())
+        streamed(w, |o| self.markdown(o))
     }
 }

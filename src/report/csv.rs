@@ -42,7 +42,7 @@ fn failed_list(s: &Scenario) -> String {
 /// the model holds closings (per outage), `probability` when it holds risk figures,
 /// `headroom` (before `caution`; empty when the scenario has none) with `--headroom`; ranks
 /// and `same_as` are the model's. O(scenarios · elements per scenario).
-impl Exporter for Csv {
+impl Exporter<Model<'_>> for Csv {
     fn write(&self, m: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
         write_rows(w, m)
     }

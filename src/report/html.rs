@@ -5,10 +5,10 @@
 //! ([`super::table`]), the closings, the worst scenario's explanation and prices, and the
 //! topology map ([`super::map`]) whose marks follow the scenario chosen in the table.
 
-use std::fmt::Write as _;
+use std::fmt;
 use std::io::{self, Write};
 
-use super::export::{Exporter, Html};
+use super::export::{Exporter, Html, streamed};
 use super::model::Model;
 use super::{CAUTION, file_diff, map, num, percent, table};
 
@@ -327,51 +327,54 @@ width:18px;height:10px;margin-right:5px;vertical-align:middle;font-style:normal}
 .legend i.sq{width:10px;border:2px solid #23404f;background:#fff}\
 .legend i.xsite{color:#b0281c;font-weight:700;width:auto}";
 
+/// A table of text cells onto `out`: `numeric` columns right-aligned, names in the first
+/// column (the second under a `#` column) never broken. O(cells).
 pub(crate) fn table_html(
-    out: &mut String,
+    out: &mut dyn fmt::Write,
     head: &[String],
     rows: &[Vec<String>],
     numeric: &[usize],
-) {
-    out.push_str("<table><thead><tr>");
+) -> fmt::Result {
+    out.write_str("<table><thead><tr>")?;
     for h in head {
-        let _ = write!(out, "<th>{}</th>", esc(h));
+        write!(out, "<th>{}</th>", esc(h))?;
     }
-    out.push_str("</tr></thead><tbody>\n");
+    out.write_str("</tr></thead><tbody>\n")?;
     for r in rows {
-        out.push_str("<tr>");
+        out.write_str("<tr>")?;
         for (c, v) in r.iter().enumerate() {
             if numeric.contains(&c) {
-                let _ = write!(out, "<td class=\"n\">{}</td>", esc(v));
+                write!(out, "<td class=\"n\">{}</td>", esc(v))?;
             } else if c == 0 || (c == 1 && head.first().is_some_and(|h| h == "#")) {
                 // Names are never broken (they paste back into --fail).
-                let _ = write!(out, "<td class=\"k\">{}</td>", esc(v));
+                write!(out, "<td class=\"k\">{}</td>", esc(v))?;
             } else {
-                let _ = write!(out, "<td>{}</td>", esc(v));
+                write!(out, "<td>{}</td>", esc(v))?;
             }
         }
-        out.push_str("</tr>\n");
+        out.write_str("</tr>\n")?;
     }
-    out.push_str("</tbody></table>\n");
+    out.write_str("</tbody></table>\n")
 }
 
 /// A horizontal bar chart: one labelled bar per item, scaled to the largest.
-fn bars_svg(items: &[(String, f64)], unit: &str, id: &str) -> String {
+fn bars_svg(o: &mut dyn fmt::Write, items: &[(String, f64)], unit: &str, id: &str) -> fmt::Result {
     const ROW: f64 = 24.0;
     const LABEL: f64 = 230.0;
     const BAR: f64 = 520.0;
     let h = ROW * items.len().max(1) as f64 + 20.0;
     let max = items.iter().map(|i| i.1).fold(0.0, f64::max);
-    let mut s = format!(
+    write!(
+        o,
         "<svg id=\"{id}\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" \
          viewBox=\"0 0 {w} {h}\" role=\"img\">",
         w = LABEL + BAR + 90.0
-    );
+    )?;
     for (k, (name, v)) in items.iter().enumerate() {
         let y = 10.0 + ROW * k as f64;
         let len = if max > 0.0 { BAR * v / max } else { 0.0 };
-        let _ = write!(
-            s,
+        write!(
+            o,
             "<text x=\"{tx}\" y=\"{ty}\" text-anchor=\"end\" font-size=\"13\" \
              fill=\"#1f2a30\">{name}</text><rect x=\"{LABEL}\" y=\"{y}\" width=\"{len:.1}\" \
              height=\"{bh}\" fill=\"#2f6f8a\"/><text x=\"{vx:.1}\" y=\"{ty}\" font-size=\"12\" \
@@ -383,32 +386,32 @@ fn bars_svg(items: &[(String, f64)], unit: &str, id: &str) -> String {
             name = esc(name),
             val = esc(&num(*v)),
             unit = esc(unit),
-        );
+        )?;
     }
-    s.push_str("</svg>");
-    s
+    o.write_str("</svg>")
 }
 
 /// A column chart of scenario counts per shortfall bin.
-fn histogram_svg(bins: &[(String, usize)], unit: &str) -> String {
+fn histogram_svg(o: &mut dyn fmt::Write, bins: &[(String, usize)], unit: &str) -> fmt::Result {
     const W: f64 = 840.0;
     const H: f64 = 260.0;
     const BASE: f64 = 210.0;
     let n = bins.len().max(1) as f64;
     let col = (W - 60.0) / n;
     let max = bins.iter().map(|b| b.1).max().unwrap_or(0).max(1) as f64;
-    let mut s = format!(
+    write!(
+        o,
         "<svg id=\"distribution\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{W}\" \
          height=\"{H}\" viewBox=\"0 0 {W} {H}\" role=\"img\"><line x1=\"30\" y1=\"{BASE}\" \
          x2=\"{x2}\" y2=\"{BASE}\" stroke=\"#999\"/>",
         x2 = W - 20.0
-    );
+    )?;
     for (k, (label, count)) in bins.iter().enumerate() {
         let x = 30.0 + col * k as f64 + 4.0;
         let h = (BASE - 30.0) * *count as f64 / max;
         let fill = if k == 0 { "#8fb59a" } else { "#c9703a" };
-        let _ = write!(
-            s,
+        write!(
+            o,
             "<rect x=\"{x:.1}\" y=\"{y:.1}\" width=\"{bw:.1}\" height=\"{h:.1}\" \
              fill=\"{fill}\"/><text x=\"{cx:.1}\" y=\"{ly:.1}\" text-anchor=\"middle\" \
              font-size=\"12\">{count}</text><text x=\"{cx:.1}\" y=\"{by}\" \
@@ -419,22 +422,21 @@ fn histogram_svg(bins: &[(String, usize)], unit: &str) -> String {
             ly = BASE - h - 5.0,
             by = BASE + 16.0,
             label = esc(label),
-        );
+        )?;
     }
-    let _ = write!(
-        s,
+    write!(
+        o,
         "<text x=\"{cx}\" y=\"{y}\" text-anchor=\"middle\" font-size=\"12\" fill=\"#566\">\
          shortfall ({u}); bar height = number of scenarios</text></svg>",
         cx = W / 2.0,
         y = BASE + 40.0,
         u = esc(unit)
-    );
-    s
+    )
 }
 
 /// The map section: the drawing (laid out once, [`Model::drawn`]; laid out here when the
 /// model was built without it), the legend and a caption naming the marked scenario.
-fn map_section(o: &mut String, r: &Report<'_>, first: Option<usize>) {
+fn map_section(o: &mut dyn fmt::Write, r: &Report<'_>, first: Option<usize>) -> fmt::Result {
     let own;
     let d = match &r.drawing {
         Some(d) => d,
@@ -450,7 +452,7 @@ fn map_section(o: &mut String, r: &Report<'_>, first: Option<usize>) {
         util: vec![None; r.net.links.len()],
     };
     let mk = first.map(|i| map::marks(r, i)).unwrap_or(blank);
-    let _ = writeln!(
+    writeln!(
         o,
         "<h2>Topology</h2>\n<p>Marked: <strong id=\"map-scenario\">{}</strong> (choose a \
          scenario in the table to mark it). {}</p>",
@@ -461,30 +463,30 @@ fn map_section(o: &mut String, r: &Report<'_>, first: Option<usize>) {
             "The file gives no x, y positions: sites placed by a deterministic \
              stress-majorisation layout (hop distances), the same on every run."
         }
-    );
-    o.push_str("<figure>");
-    o.push_str(&map::map_svg(r, d, &mk));
-    o.push_str(&map::legend_html(r.routed.is_some()));
-    o.push_str("</figure>\n");
+    )?;
+    o.write_str("<figure>")?;
+    o.write_str(&map::map_svg(r, d, &mk))?;
+    o.write_str(&map::legend_html(r.routed.is_some()))?;
+    o.write_str("</figure>\n")
 }
 
 /// The worst scenario's explanation (the `--why` data when given, else the worst
 /// scenario with its closing from `--close` if any): the demands not fully served,
 /// saturated resources, cut-off demands, what processing fixes, which links would have to
 /// grow, and where one more unit of processing helps (its site prices).
-fn why_section(o: &mut String, r: &Report<'_>) {
+fn why_section(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
     let (i, closing) = match &r.why {
         Some(w) => (w.scenario, w.closing),
         None => match r.worst_short() {
             Some(i) => (i, r.closings.and_then(|c| c[r.audit.outage_of[i]].as_ref())),
-            None => return,
+            None => return Ok(()),
         },
     };
     // The scenario's demands are its traffic matrix's.
     let net = r.net.view(r.audit.scenarios[i].matrix);
     let u = &net.unit;
     let e = r.audit.eval(i);
-    let _ = writeln!(
+    writeln!(
         o,
         "<h2 id=\"why\">Why the worst scenario is short</h2>\n<p><strong>{}</strong> serves {} \
          of {} {u} surviving required ({} short, {}); {} {u} stranded.</p>",
@@ -494,7 +496,7 @@ fn why_section(o: &mut String, r: &Report<'_>) {
         num(e.shortfall),
         percent(e.shortfall, e.surviving_required),
         num(e.stranded)
-    );
+    )?;
     let head = vec![
         "demand".to_string(),
         "from → to".into(),
@@ -532,8 +534,8 @@ fn why_section(o: &mut String, r: &Report<'_>) {
         ]);
     }
     if !rows.is_empty() {
-        o.push_str("<p>Demands not fully served (one of possibly several optimal splits):</p>\n");
-        table_html(o, &head, &rows, &[2, 3, 4]);
+        o.write_str("<p>Demands not fully served (one of possibly several optimal splits):</p>\n")?;
+        table_html(o, &head, &rows, &[2, 3, 4])?;
     }
     let names = |f: &dyn Fn(&crate::solve::Bottleneck) -> Option<String>| -> String {
         let v: Vec<String> = e.bottlenecks.iter().filter_map(f).collect();
@@ -543,8 +545,8 @@ fn why_section(o: &mut String, r: &Report<'_>) {
             v.join(", ")
         }
     };
-    o.push_str("<ul>");
-    let _ = write!(
+    o.write_str("<ul>")?;
+    write!(
         o,
         "<li>Saturated link directions: {}.</li><li>Saturated processing: {}.</li>",
         esc(&names(&|b| match b.resource {
@@ -555,11 +557,11 @@ fn why_section(o: &mut String, r: &Report<'_>) {
             crate::solve::Resource::Site(v) => Some(net.sites[v].id.clone()),
             _ => None,
         }))
-    );
+    )?;
     let grow = match closing {
         Some(c) => {
             let fixed = (c.best - e.served_required).max(0.0);
-            let _ = write!(
+            write!(
                 o,
                 "<li>Processing can fix {} of the {} {u} short{}; {} {u} cannot be closed by \
                  processing.</li>",
@@ -575,12 +577,12 @@ fn why_section(o: &mut String, r: &Report<'_>) {
                     String::new()
                 },
                 num(c.not_closable)
-            );
+            )?;
             c.binding_arcs.clone()
         }
         None => crate::expand::binding(e.arc_price.iter().copied().enumerate()),
     };
-    let _ = writeln!(
+    writeln!(
         o,
         "<li>Links that would have to grow (one more {u} of capacity serves up to this much \
          more, its shadow price{}): {}.</li></ul>",
@@ -603,7 +605,7 @@ fn why_section(o: &mut String, r: &Report<'_>) {
                 .collect::<Vec<_>>()
                 .join(", ")
         })
-    );
+    )?;
     let mut prices: Vec<(usize, f64)> = e
         .site_price
         .iter()
@@ -611,25 +613,25 @@ fn why_section(o: &mut String, r: &Report<'_>) {
         .filter_map(|(v, p)| p.filter(|p| *p > 1e-6).map(|p| (v, p)))
         .collect();
     prices.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
-    o.push_str("<h2>Where one more unit helps</h2>\n");
+    o.write_str("<h2>Where one more unit helps</h2>\n")?;
     if prices.is_empty() {
-        o.push_str("<p>In the worst scenario no site's processing limits what is served.</p>\n");
+        o.write_str("<p>In the worst scenario no site's processing limits what is served.</p>\n")?;
     } else {
         let rows: Vec<Vec<String>> = prices
             .iter()
             .map(|&(v, p)| vec![format!("site:{}", net.sites[v].id), num(p)])
             .collect();
-        let _ = writeln!(
+        writeln!(
             o,
             "<p>In the worst scenario, one more {u} of processing at a site serves up to its \
              price more (the shadow price of its processing):</p>"
-        );
+        )?;
         table_html(
             o,
             &["site".into(), format!("served per added {u}")],
             &rows,
             &[1],
-        );
+        )?;
     }
     if !r.relief.is_empty() {
         let rows: Vec<Vec<String>> = r
@@ -637,7 +639,7 @@ fn why_section(o: &mut String, r: &Report<'_>) {
             .iter()
             .map(|&(v, n, p)| vec![format!("site:{}", net.sites[v].id), n.to_string(), num(p)])
             .collect();
-        o.push_str("<p>Over all short scenarios (expandable sites):</p>\n");
+        o.write_str("<p>Over all short scenarios (expandable sites):</p>\n")?;
         table_html(
             o,
             &[
@@ -647,98 +649,98 @@ fn why_section(o: &mut String, r: &Report<'_>) {
             ],
             &rows,
             &[1, 2],
-        );
+        )?;
     }
+    Ok(())
 }
 
-/// The page's embedded data for its script: every element name, the colour scale, and
-/// each listed scenario's names and marks ([`map::marks_json`]). O(rows · (links + sites)).
-fn page_data(r: &Report<'_>, rows: &[table::Row]) -> String {
+/// The page's embedded data for its script onto `o`: every element name, the colour
+/// scale, and each listed scenario's names and marks ([`map::marks_json`]), each piece
+/// made safe for a `<script>` element ([`table::script_safe`]; it maps characters one by
+/// one, so piece by piece is the same as over the whole). O(rows · (links + sites)).
+fn page_data(o: &mut dyn fmt::Write, r: &Report<'_>, rows: &[table::Row]) -> fmt::Result {
     let mut names: Vec<String> = r
         .criticality
         .iter()
         .map(|c| c.element.name(r.net))
         .collect();
     names.sort();
-    let mut o = format!(
+    o.write_str(&table::script_safe(&format!(
         "{{\"names\":{},\"steps\":{},\"unknown\":\"#9aa9b1\",\"sc\":[",
         serde_json::to_string(&names).unwrap_or_else(|_| "[]".into()),
         serde_json::to_string(&map::UTIL_STEPS.iter().map(|s| s.1).collect::<Vec<_>>())
             .unwrap_or_else(|_| "[]".into())
-    );
+    )))?;
     for (k, row) in rows.iter().enumerate() {
         if k > 0 {
-            o.push(',');
+            o.write_char(',')?;
         }
         let mk = map::marks(r, row.scenario);
         let body = map::marks_json(&mk);
-        let _ = write!(
-            o,
+        o.write_str(&table::script_safe(&format!(
             "{{\"n\":{},{}",
             serde_json::to_string(&r.audit.scenarios[row.scenario].failed)
                 .unwrap_or_else(|_| "[]".into()),
             &body[1..]
-        );
+        )))?;
     }
-    o.push_str("]}");
-    table::script_safe(&o)
+    o.write_str("]}")
 }
 
 /// The opening every report page shares, appended to `o`: the document head with the
 /// page's own styles ([`STYLE`], nothing fetched), `title` in the tab, `heading`, the
 /// caution, and the verdict (marked as failing unless `passed`). O(length of the text).
 pub(crate) fn page_opening(
-    o: &mut String,
+    o: &mut dyn fmt::Write,
     title: &str,
     heading: &str,
     verdict: &str,
     passed: bool,
-) {
-    let _ = write!(
+) -> fmt::Result {
+    write!(
         o,
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\
          <meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\
          <title>{}</title><style>{STYLE}</style></head><body><main>\n",
         esc(title)
-    );
-    let _ = writeln!(o, "<h1>{}</h1>", esc(heading));
-    let _ = writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION));
-    let _ = writeln!(
+    )?;
+    writeln!(o, "<h1>{}</h1>", esc(heading))?;
+    writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION))?;
+    writeln!(
         o,
         "<p class=\"verdict{}\">{}</p>",
         if passed { "" } else { " fail" },
         esc(verdict)
-    );
+    )
 }
 
-/// The HTML report as one string.
-pub fn html(r: &Report<'_>) -> String {
+/// The HTML report onto `o`, section by section. O(scenarios listed · (links + sites)).
+pub fn html(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
     let net = r.net;
     let u = &net.unit;
-    let mut o = String::new();
     let failed_gate = r.gates.iter().any(|g| !g.passed);
     page_opening(
-        &mut o,
+        o,
         &format!("redoubt audit — {}", net.name),
         &format!("Failure audit: {}", net.name),
         &r.verdict(),
         !failed_gate,
-    );
+    )?;
     let gates = r.gate_lines();
     if !gates.is_empty() {
-        o.push_str("<ul>");
+        o.write_str("<ul>")?;
         for g in gates {
-            let _ = write!(o, "<li><code>{}</code></li>", esc(&g));
+            write!(o, "<li><code>{}</code></li>", esc(&g))?;
         }
-        o.push_str("</ul>\n");
+        o.write_str("</ul>\n")?;
     }
-    o.push_str("<h2>Network</h2>\n<table class=\"facts\"><tbody>");
+    o.write_str("<h2>Network</h2>\n<table class=\"facts\"><tbody>")?;
     for (k, v) in r.summary() {
-        let _ = write!(o, "<tr><td>{}</td><td>{}</td></tr>", esc(&k), esc(&v));
+        write!(o, "<tr><td>{}</td><td>{}</td></tr>", esc(&k), esc(&v))?;
     }
     if let Some(ra) = r.routed {
         let b = &ra.baseline;
-        let _ = write!(
+        write!(
             o,
             "<tr><td>routing</td><td>{} (as deployed); baseline serves {} {u}, the best \
              re-route {} {u}; largest link utilisation under the offered load {}</td></tr>",
@@ -746,15 +748,15 @@ pub fn html(r: &Report<'_>) -> String {
             num(b.eval.served_required),
             num(ra.baseline_best.served_required),
             esc(&super::routing::util_text(b.offered.max_link_util))
-        );
+        )?;
     }
-    o.push_str("</tbody></table>\n<h2>Assumptions of the model</h2>\n<ul>");
+    o.write_str("</tbody></table>\n<h2>Assumptions of the model</h2>\n<ul>")?;
     for a in ASSUMPTIONS {
-        let _ = write!(o, "<li>{}</li>", esc(a));
+        write!(o, "<li>{}</li>", esc(a))?;
     }
-    o.push_str("</ul>\n");
+    o.write_str("</ul>\n")?;
     let (head, rows) = table::all_scenarios(r);
-    let _ = writeln!(
+    writeln!(
         o,
         "<h2>All scenarios</h2>\n<p>{} listed{}, worst first. Click a column head to sort, \
          type element names to filter (<span id=\"shown-count\">{}</span> shown), click a row \
@@ -772,9 +774,9 @@ pub fn html(r: &Report<'_>) -> String {
         },
         rows.len(),
         esc(net.links.first().map_or("", |l| l.id.as_str()))
-    );
-    o.push_str(&table::scenarios_html(&head, &rows));
-    let _ = writeln!(
+    )?;
+    table::scenarios_html(o, &head, &rows)?;
+    writeln!(
         o,
         "<p>Shortfall: required demand of surviving demands not routed and processed. \
          Stranded: required demand of demands whose own end site failed (not in the \
@@ -786,12 +788,12 @@ pub fn html(r: &Report<'_>) -> String {
         } else {
             ""
         }
-    );
-    map_section(&mut o, r, rows.first().map(|row| row.scenario));
-    why_section(&mut o, r);
+    )?;
+    map_section(o, r, rows.first().map(|row| row.scenario))?;
+    why_section(o, r)?;
     if let Some((head, rows)) = r.closing_table() {
-        o.push_str("<h2>Closing the gaps</h2>\n");
-        let _ = writeln!(
+        o.write_str("<h2>Closing the gaps</h2>\n")?;
+        writeln!(
             o,
             "<p>The cheapest processing added per short scenario{}.</p>",
             if r.default_costs() {
@@ -799,50 +801,46 @@ pub fn html(r: &Report<'_>) -> String {
             } else {
                 ""
             }
-        );
-        table_html(&mut o, &head, &rows, &[1, 2, 4]);
+        )?;
+        table_html(o, &head, &rows, &[1, 2, 4])?;
     }
-    o.push_str("<h2>Element criticality</h2>\n<figure>");
-    o.push_str(&bars_svg(&r.criticality(), u, "criticality"));
-    let _ = writeln!(
+    o.write_str("<h2>Element criticality</h2>\n<figure>")?;
+    bars_svg(o, &r.criticality(), u, "criticality")?;
+    writeln!(
         o,
         "<figcaption>Worst shortfall of any scenario containing each element (top {}).\
          </figcaption></figure>",
         CHART_BARS
-    );
-    o.push_str("<h2>Shortfall over the scenarios</h2>\n<figure>");
-    o.push_str(&histogram_svg(&r.histogram(), u));
-    o.push_str(
+    )?;
+    o.write_str("<h2>Shortfall over the scenarios</h2>\n<figure>")?;
+    histogram_svg(o, &r.histogram(), u)?;
+    o.write_str(
         "<figcaption>How many scenarios fall in each shortfall range (a range includes its \
          upper end).</figcaption></figure>\n",
-    );
+    )?;
     if let Some((facts, head, rows)) = r.risk_table() {
-        o.push_str("<h2>Risk</h2>\n<ul>");
+        o.write_str("<h2>Risk</h2>\n<ul>")?;
         for f in facts {
-            let _ = write!(o, "<li>{}</li>", esc(&f));
+            write!(o, "<li>{}</li>", esc(&f))?;
         }
-        o.push_str("</ul>\n");
-        table_html(&mut o, &head, &rows, &[1, 2]);
+        o.write_str("</ul>\n")?;
+        table_html(o, &head, &rows, &[1, 2])?;
     }
-    let _ = writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION));
-    let _ = write!(
-        o,
-        "<script type=\"application/json\" id=\"report-data\">{}</script>\n<script>{}</script>\n",
-        page_data(r, &rows),
-        table::SCRIPT
-    );
-    o.push_str("</main></body></html>\n");
-    o
+    writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION))?;
+    o.write_str("<script type=\"application/json\" id=\"report-data\">")?;
+    page_data(o, r, &rows)?;
+    write!(o, "</script>\n<script>{}</script>\n", table::SCRIPT)?;
+    o.write_str("</main></body></html>\n")
 }
 
-/// The HTML exporter: [`html`] to `w`.
-impl Exporter for Html {
+/// The HTML exporter: [`html`] streamed to `w`.
+impl Exporter<Model<'_>> for Html {
     fn write(&self, r: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
         write(w, r)
     }
 }
 
-/// The HTML exporter as a function: [`html`] to `w`.
+/// The HTML exporter as a function: [`html`] streamed to `w`.
 pub fn write(w: &mut dyn Write, r: &Report<'_>) -> io::Result<()> {
-    w.write_all(html(r).as_bytes())
+    streamed(w, |o| html(o, r))
 }

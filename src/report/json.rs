@@ -678,7 +678,7 @@ pub fn audit_json_with<'a>(
 
 /// The `--json` document of an audit: the routed document under `--routing`, the
 /// closings (with `--close`), one object per gate, the risk fields; streamed to `w`.
-impl Exporter for Json {
+impl Exporter<Model<'_>> for Json {
     fn write(&self, m: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
         let closing_json = m.closings.map(|c| {
             m.audit

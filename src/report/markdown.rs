@@ -1,10 +1,11 @@
 //! The Markdown twin of the HTML report ([`super::html`]): the same [`Report`], with the
 //! charts as tables.
 
-use std::fmt::Write as _;
+use std::fmt;
 use std::io::{self, Write};
 
 use super::CAUTION;
+use super::export::streamed;
 use super::html::{ASSUMPTIONS, Report};
 
 /// A cell's text made safe for a Markdown table (pipes escaped, no line breaks).
@@ -12,79 +13,75 @@ fn cell(s: &str) -> String {
     s.replace('|', "\\|").replace('\n', " ")
 }
 
-fn table_md(out: &mut String, head: &[String], rows: &[Vec<String>]) {
-    let _ = writeln!(
+/// A Markdown table onto `out`, then a blank line. O(cells).
+fn table_md(out: &mut dyn fmt::Write, head: &[String], rows: &[Vec<String>]) -> fmt::Result {
+    writeln!(
         out,
         "| {} |",
         head.iter().map(|h| cell(h)).collect::<Vec<_>>().join(" | ")
-    );
-    let _ = writeln!(out, "|{}", "---|".repeat(head.len()));
+    )?;
+    writeln!(out, "|{}", "---|".repeat(head.len()))?;
     for r in rows {
-        let _ = writeln!(
+        writeln!(
             out,
             "| {} |",
             r.iter().map(|c| cell(c)).collect::<Vec<_>>().join(" | ")
-        );
+        )?;
     }
-    out.push('\n');
+    out.write_char('\n')
 }
 
-/// The Markdown report as one string.
-pub fn markdown(r: &Report<'_>) -> String {
+/// The Markdown report onto `o`, section by section. O(scenarios listed + elements).
+pub fn markdown(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
     let u = &r.net.unit;
-    let mut o = String::new();
-    let _ = writeln!(o, "# Failure audit: {}\n", cell(&r.net.name));
-    let _ = writeln!(o, "> {CAUTION}\n");
-    let _ = writeln!(o, "**{}**\n", r.verdict());
+    writeln!(o, "# Failure audit: {}\n", cell(&r.net.name))?;
+    writeln!(o, "> {CAUTION}\n")?;
+    writeln!(o, "**{}**\n", r.verdict())?;
     for g in r.gate_lines() {
-        let _ = writeln!(o, "- `{g}`");
+        writeln!(o, "- `{g}`")?;
     }
-    o.push_str("\n## Network\n\n");
+    o.write_str("\n## Network\n\n")?;
     let facts: Vec<Vec<String>> = r.summary().into_iter().map(|(k, v)| vec![k, v]).collect();
-    table_md(&mut o, &["fact".into(), "value".into()], &facts);
-    o.push_str("## Assumptions of the model\n\n");
+    table_md(o, &["fact".into(), "value".into()], &facts)?;
+    o.write_str("## Assumptions of the model\n\n")?;
     for a in ASSUMPTIONS {
-        let _ = writeln!(o, "- {a}");
+        writeln!(o, "- {a}")?;
     }
-    o.push_str("\n## All scenarios\n\n");
+    o.write_str("\n## All scenarios\n\n")?;
     let (head, rows) = super::table::all_scenarios(r);
     if rows.len() < r.audit.scenarios.len() {
-        let _ = writeln!(
+        writeln!(
             o,
             "The first {} of {} scenarios, worst first (the --json and --csv files hold all).\n",
             rows.len(),
             r.audit.scenarios.len()
-        );
+        )?;
     }
     let head: Vec<String> = head.into_iter().map(|(h, _)| h).collect();
     let cells: Vec<Vec<String>> = rows
         .iter()
         .map(|row| row.cells.iter().map(|(t, _)| t.clone()).collect())
         .collect();
-    table_md(&mut o, &head, &cells);
-    o.push_str("## Element criticality\n\n");
+    table_md(o, &head, &cells)?;
+    o.write_str("## Element criticality\n\n")?;
     let crit: Vec<Vec<String>> = r
         .criticality()
         .into_iter()
         .map(|(n, v)| vec![n, super::num(v)])
         .collect();
     table_md(
-        &mut o,
+        o,
         &["element".into(), format!("worst shortfall ({u})")],
         &crit,
-    );
-    o.push_str("## Shortfall over the scenarios\n\n");
+    )?;
+    o.write_str("## Shortfall over the scenarios\n\n")?;
     let hist: Vec<Vec<String>> = r
         .histogram()
         .into_iter()
         .map(|(b, c)| vec![b, c.to_string()])
         .collect();
-    table_md(
-        &mut o,
-        &[format!("shortfall ({u})"), "scenarios".into()],
-        &hist,
-    );
-    o.push_str("## Topology\n\n");
+    table_md(o, &[format!("shortfall ({u})"), "scenarios".into()], &hist)?;
+    o.write_str("## Topology\n\n")?;
     match r.worst_short() {
         Some(i) => {
             let mk = super::map::marks(r, i);
@@ -104,39 +101,38 @@ pub fn markdown(r: &Report<'_>) -> String {
             };
             let link = |l: usize| format!("link:{}", r.net.links[l].id);
             let site = |v: usize| format!("site:{}", r.net.sites[v].id);
-            let _ = writeln!(
+            writeln!(
                 o,
                 "Worst scenario {}: failed links {}; failed sites {}; saturated links {}.\n",
                 r.audit.scenarios[i].display_name(),
                 names(&lf, &link),
                 names(&sf, &site),
                 names(&sat, &link)
-            );
+            )?;
         }
-        None => o.push_str("No scenario is short.\n\n"),
+        None => o.write_str("No scenario is short.\n\n")?,
     }
     if let Some((head, rows)) = r.closing_table() {
-        o.push_str("## Closing the gaps\n\n");
-        table_md(&mut o, &head, &rows);
+        o.write_str("## Closing the gaps\n\n")?;
+        table_md(o, &head, &rows)?;
     }
     if let Some((facts, head, rows)) = r.risk_table() {
-        o.push_str("## Risk\n\n");
+        o.write_str("## Risk\n\n")?;
         for f in facts {
-            let _ = writeln!(o, "- {f}");
+            writeln!(o, "- {f}")?;
         }
-        o.push('\n');
-        table_md(&mut o, &head, &rows);
+        o.write_char('\n')?;
+        table_md(o, &head, &rows)?;
     }
-    let _ = writeln!(o, "> {CAUTION}");
-    o
+    writeln!(o, "> {CAUTION}")
 }
 
-/// The Markdown exporter: [`markdown`] to `w`.
+/// The Markdown exporter: [`markdown`] streamed to `w`.
 pub fn write(w: &mut dyn Write, r: &Report<'_>) -> io::Result<()> {
-    w.write_all(markdown(r).as_bytes())
+    streamed(w, |o| markdown(o, r))
 }
 
-impl super::export::Exporter for super::export::Markdown {
+impl super::export::Exporter<Report<'_>> for super::export::Markdown {
     fn write(&self, r: &Report<'_>, w: &mut dyn Write) -> io::Result<()> {
         write(w, r)
     }

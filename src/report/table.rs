@@ -3,7 +3,7 @@
 //! element name, and choosing a scenario to mark on the map. The script reads only the
 //! page itself (no network access, no library).
 
-use std::fmt::Write as _;
+use std::fmt;
 
 use super::html::esc;
 use super::model::Model;
@@ -95,43 +95,46 @@ pub fn all_scenarios(m: &Model<'_>) -> (Vec<(String, bool)>, Vec<Row>) {
     (head, rows)
 }
 
-/// The table as HTML: `<table id="scenarios">`, numeric cells carrying `data-v` (their
+/// The table as HTML onto `o`: `<table id="scenarios">`, numeric cells carrying `data-v` (their
 /// sort value), each row its position in the page's data (`data-i`) and rank. O(rows).
-pub fn scenarios_html(head: &[(String, bool)], rows: &[Row]) -> String {
-    let mut o = String::from("<table id=\"scenarios\" class=\"sortable\"><thead><tr>");
+pub fn scenarios_html(
+    o: &mut dyn fmt::Write,
+    head: &[(String, bool)],
+    rows: &[Row],
+) -> fmt::Result {
+    o.write_str("<table id=\"scenarios\" class=\"sortable\"><thead><tr>")?;
     for (c, (h, numeric)) in head.iter().enumerate() {
-        let _ = write!(
+        write!(
             o,
             "<th data-col=\"{c}\"{} title=\"sort by this column\">{}</th>",
             if *numeric { " class=\"n\"" } else { "" },
             esc(h)
-        );
+        )?;
     }
-    o.push_str("</tr></thead><tbody>\n");
+    o.write_str("</tr></thead><tbody>\n")?;
     for (k, r) in rows.iter().enumerate() {
-        let _ = write!(o, "<tr data-i=\"{k}\" data-rank=\"{}\">", k + 1);
+        write!(o, "<tr data-i=\"{k}\" data-rank=\"{}\">", k + 1)?;
         for (c, (text, value)) in r.cells.iter().enumerate() {
             match value {
                 Some(v) => {
-                    let _ = write!(
+                    write!(
                         o,
                         "<td class=\"n\" data-v=\"{}\">{}</td>",
                         js_num(*v),
                         esc(text)
-                    );
+                    )?;
                 }
                 None if c == 1 => {
-                    let _ = write!(o, "<td class=\"k\">{}</td>", esc(text));
+                    write!(o, "<td class=\"k\">{}</td>", esc(text))?;
                 }
                 None => {
-                    let _ = write!(o, "<td>{}</td>", esc(text));
+                    write!(o, "<td>{}</td>", esc(text))?;
                 }
             }
         }
-        o.push_str("</tr>\n");
+        o.write_str("</tr>\n")?;
     }
-    o.push_str("</tbody></table>\n");
-    o
+    o.write_str("</tbody></table>\n")
 }
 
 /// A number as JavaScript reads it back (shortest round-trip form; non-finite as a

@@ -7,6 +7,7 @@ use serde::Serialize;
 use super::*;
 use crate::audit::Audit;
 use crate::model::Network;
+use crate::report::export::{Exporter, Json, PlanReport};
 use crate::report::{CAUTION, file_diff, file_num};
 
 #[derive(Serialize)]
@@ -53,6 +54,18 @@ pub struct PlanScenarioJson {
     pub not_closable: f64,
     pub served_required_after: f64,
     pub best_served_required: f64,
+}
+
+/// The `plan --json` exporter: [`plan_json`] (its `routing` the model's name under
+/// `--routing`) through [`write`].
+impl Exporter<PlanReport<'_>> for Json {
+    fn write(&self, p: &PlanReport<'_>, w: &mut dyn std::io::Write) -> std::io::Result<()> {
+        let mut doc = plan_json(p.net, p.audit, p.plan, p.default_costs);
+        if let Some(mode) = p.routing {
+            doc.routing = mode.name();
+        }
+        write(w, &doc)
+    }
 }
 
 /// The `plan --json` document.

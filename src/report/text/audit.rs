@@ -478,7 +478,7 @@ fn volume_scale(e: &Evaluation, t: &Verification) -> f64 {
 /// unit helps, the closings (with `--close`), the risk figures (when probabilities are
 /// given), one line per gate, and the caution, in that order. Each section is wrapped to
 /// the screen ([`screen::finish`], line by line) and written as soon as it is formatted.
-impl Exporter for Text {
+impl Exporter<Model<'_>> for Text {
     fn write(&self, m: &Model<'_>, w: &mut dyn Write) -> io::Result<()> {
         let mut section = |s: &str| w.write_all(screen::finish(s).as_bytes());
         section(&format!("{}\n", verdict(m)))?;

@@ -3,6 +3,7 @@
 
 #[allow(unused_imports)]
 use super::*;
+use crate::report::export::{CheckReport, Exporter, Text};
 
 /// The `check` summary: sizes, totals, processing sites and risk groups, and the demands
 /// that no walk through a processing site can serve even with nothing failed
@@ -220,6 +221,13 @@ pub(super) fn baseline_misses(net: &Network, cut_off: &[(usize, Unservable)]) ->
 }
 
 /// The `check` exporter: [`check_summary`] to `w`.
+impl Exporter<CheckReport<'_>> for Text {
+    fn write(&self, c: &CheckReport<'_>, w: &mut dyn Write) -> io::Result<()> {
+        write_check(w, c.net, c.cut_off)
+    }
+}
+
+/// [`check_summary`] to `w`.
 pub fn write_check(
     w: &mut dyn Write,
     net: &Network,

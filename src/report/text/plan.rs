@@ -3,6 +3,7 @@
 
 #[allow(unused_imports)]
 use super::*;
+use crate::report::export::{Exporter, PlanReport, Text};
 use crate::report::model::Model;
 
 /// The `--close` section: per scenario with a shortfall, the cheapest expansion.
@@ -338,7 +339,18 @@ pub fn plan_report(
     out
 }
 
-/// The `plan` exporter: [`plan_report`] to `w`.
+/// The `plan` exporter: under `--routing`, the routing's header
+/// ([`crate::report::routing::plan_header`]), then [`plan_report`].
+impl Exporter<PlanReport<'_>> for Text {
+    fn write(&self, p: &PlanReport<'_>, w: &mut dyn Write) -> io::Result<()> {
+        if let Some(mode) = p.routing {
+            w.write_all(crate::report::routing::plan_header(mode).as_bytes())?;
+        }
+        write_plan(w, p.net, p.audit, p.plan, p.default_costs, p.top)
+    }
+}
+
+/// [`plan_report`] to `w`.
 pub fn write_plan(
     w: &mut dyn Write,
     net: &Network,
