@@ -8,7 +8,7 @@
 //! its verifier (repair and certificate) is common code.
 mod common;
 
-use common::{TempPath, fixture, redoubt, s};
+use common::{TempPath, fixture, random, redoubt, s};
 use serde_json::{Value, json};
 
 /// Runs `audit FILE ARGS --json OUT --quiet` and returns the document.
@@ -86,55 +86,13 @@ fn demo_depth_1_at_ten_percent() {
     contains_edge(&approx, &edge, 0.1);
 }
 
-/// splitmix64 (copied from benches/common/mod.rs, so the networks are reproducible).
-struct Rng(u64);
-impl Rng {
-    fn next(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9e37_79b9_7f4a_7c15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-        z ^ (z >> 31)
-    }
-    fn below(&mut self, n: usize) -> usize {
-        (self.next() % n as u64) as usize
-    }
-}
-
 /// A ring plus random chords (capacities 4..20, tight enough that some failures short
-/// demand), processing at two sites, random demands (the bench generator's shape).
+/// demand), processing at two sites, random demands (the bench generator's shape;
+/// [`random::random_network`]).
 fn random_network(seed: u64, sites: usize, links: usize, demands: usize) -> String {
-    let mut rng = Rng(seed);
-    let mut edges: Vec<(usize, usize)> = (0..sites).map(|i| (i, (i + 1) % sites)).collect();
-    while edges.len() < links {
-        let (a, b) = (rng.below(sites), rng.below(sites));
-        if a != b && !edges.contains(&(a, b)) && !edges.contains(&(b, a)) {
-            edges.push((a, b));
-        }
-    }
-    let site_docs: Vec<Value> = (0..sites)
-        .map(|i| {
-            let p = if i == 0 || i == sites / 2 { 25 } else { 0 };
-            json!({"id": format!("s{i}"), "processing": p})
-        })
-        .collect();
-    let link_docs: Vec<Value> = edges
-        .iter()
-        .enumerate()
-        .map(|(k, &(a, b))| {
-            json!({"id": format!("l{k}"), "from": format!("s{a}"), "to": format!("s{b}"),
-                   "capacity": 4 + 4 * rng.below(5)})
-        })
-        .collect();
-    let demand_docs: Vec<Value> = (0..demands)
-        .map(|_| {
-            let a = rng.below(sites);
-            let b = (a + 1 + rng.below(sites - 1)) % sites;
-            let v = 1 + rng.below(8);
-            json!({"from": format!("s{a}"), "to": format!("s{b}"), "volume": v + 2, "required": v})
-        })
-        .collect();
-    json!({"sites": site_docs, "links": link_docs, "demands": demand_docs}).to_string()
+    random::random_network(seed, sites, links, demands, |i, _| {
+        if i == 0 || i == sites / 2 { 25 } else { 0 }
+    })
 }
 
 #[test]

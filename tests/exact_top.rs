@@ -9,7 +9,7 @@ mod common;
 
 use std::collections::HashMap;
 
-use common::{TempPath, fixture, redoubt, s};
+use common::{TempPath, fixture, random, redoubt, s};
 use serde_json::{Value, json};
 
 /// Runs `audit FILE ARGS --json OUT --quiet --yes`; returns the exit code and document.
@@ -96,59 +96,17 @@ fn agrees(screened: &Value, walks: &Value, edge: &Value, top: usize) {
     );
 }
 
-/// splitmix64 (as in benches/common/mod.rs), so the networks are reproducible.
-struct Rng(u64);
-impl Rng {
-    fn next(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9e37_79b9_7f4a_7c15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-        z ^ (z >> 31)
-    }
-    fn below(&mut self, n: usize) -> usize {
-        (self.next() % n as u64) as usize
-    }
-}
-
 /// A ring plus random chords (capacities 4..20, tight enough that many failures short
-/// demand, with ties among the shortfalls), processing at three sites, random demands.
+/// demand, with ties among the shortfalls), processing at three sites, random demands
+/// ([`random::random_network`]).
 fn random_network(seed: u64, sites: usize, links: usize, demands: usize) -> String {
-    let mut rng = Rng(seed);
-    let mut edges: Vec<(usize, usize)> = (0..sites).map(|i| (i, (i + 1) % sites)).collect();
-    while edges.len() < links {
-        let (a, b) = (rng.below(sites), rng.below(sites));
-        if a != b && !edges.contains(&(a, b)) && !edges.contains(&(b, a)) {
-            edges.push((a, b));
+    random::random_network(seed, sites, links, demands, |i, rng| {
+        if i == 0 || i == sites / 2 || i == sites / 3 {
+            15 + 5 * rng.below(3)
+        } else {
+            0
         }
-    }
-    let site_docs: Vec<Value> = (0..sites)
-        .map(|i| {
-            let p = if i == 0 || i == sites / 2 || i == sites / 3 {
-                15 + 5 * rng.below(3)
-            } else {
-                0
-            };
-            json!({"id": format!("s{i}"), "processing": p})
-        })
-        .collect();
-    let link_docs: Vec<Value> = edges
-        .iter()
-        .enumerate()
-        .map(|(k, &(a, b))| {
-            json!({"id": format!("l{k}"), "from": format!("s{a}"), "to": format!("s{b}"),
-                   "capacity": 4 + 4 * rng.below(5)})
-        })
-        .collect();
-    let demand_docs: Vec<Value> = (0..demands)
-        .map(|_| {
-            let a = rng.below(sites);
-            let b = (a + 1 + rng.below(sites - 1)) % sites;
-            let v = 1 + rng.below(8);
-            json!({"from": format!("s{a}"), "to": format!("s{b}"), "volume": v + 2, "required": v})
-        })
-        .collect();
-    json!({"sites": site_docs, "links": link_docs, "demands": demand_docs}).to_string()
+    })
 }
 
 /// Random small and medium networks, depth-1 link failures, several N: the screened

@@ -11,36 +11,8 @@ use std::path::{Path, PathBuf};
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
-use common::{Run, TempPath, demo, fixture, redoubt, redoubt_env, s};
+use common::{Run, TempDir, TempPath, demo, fixture, redoubt, redoubt_env, s};
 use serde_json::Value;
-
-/// A fresh folder of its own, removed when dropped.
-struct Dir(PathBuf);
-
-impl Dir {
-    fn new(stem: &str) -> Dir {
-        let p = TempPath::new(stem, "d");
-        std::fs::create_dir_all(&p.0).expect("create folder");
-        Dir(p.0.clone())
-    }
-
-    fn join(&self, name: &str) -> PathBuf {
-        self.0.join(name)
-    }
-
-    fn names(&self) -> BTreeSet<String> {
-        std::fs::read_dir(&self.0)
-            .expect("list folder")
-            .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
-            .collect()
-    }
-}
-
-impl Drop for Dir {
-    fn drop(&mut self) {
-        let _ = std::fs::remove_dir_all(&self.0);
-    }
-}
 
 fn set(names: &[&str]) -> BTreeSet<String> {
     names.iter().map(|n| n.to_string()).collect()
@@ -78,7 +50,7 @@ fn reference_json() -> Vec<u8> {
 #[test]
 fn a_symbolic_link_output_writes_its_target_and_stays_a_link() {
     let want = reference_json();
-    let dir = Dir::new("link");
+    let dir = TempDir::new("link");
     let target = dir.join("target.json");
     std::fs::write(&target, "old").unwrap();
     let link = dir.join("link.json");
@@ -147,7 +119,7 @@ fn a_symbolic_link_output_writes_its_target_and_stays_a_link() {
 #[test]
 fn a_fifo_output_is_written_through_to_its_reader() {
     let want = reference_json();
-    let dir = Dir::new("fifo");
+    let dir = TempDir::new("fifo");
     let fifo = dir.join("out.json");
     mkfifo(&fifo);
     let reader = {
@@ -177,7 +149,7 @@ fn a_fifo_output_is_written_through_to_its_reader() {
 /// afterwards, so a regression cannot reach the machine's own device unchecked.
 #[test]
 fn a_character_device_output_stays_a_device() {
-    let dir = Dir::new("device");
+    let dir = TempDir::new("device");
     let node = dir.join("null");
     let c = std::ffi::CString::new(s(&node)).unwrap();
     // SAFETY: valid NUL-terminated path; makedev of constants.
@@ -221,7 +193,7 @@ fn a_character_device_output_stays_a_device() {
 /// writes. Expected: refused with exit 2 before solving, the victim untouched.
 #[test]
 fn a_planted_journal_is_never_followed_or_replaced() {
-    let dir = Dir::new("journal");
+    let dir = TempDir::new("journal");
     let victim = dir.join("victim.txt");
     std::fs::write(&victim, "precious").unwrap();
     let json = dir.join("out.json");
@@ -271,7 +243,7 @@ fn a_planted_journal_is_never_followed_or_replaced() {
 /// naming both flags, and no file written.
 #[test]
 fn two_outputs_on_one_new_path_are_refused() {
-    let dir = Dir::new("collide");
+    let dir = TempDir::new("collide");
     let d = s(&demo()).to_string();
     let a = dir.join("a");
     let a_again = dir.0.join("sub").join("..").join("a");
@@ -358,7 +330,7 @@ fn signal_at(args: &[&str], journal: &Path, lines: usize, signal: i32) -> Run {
 /// hint, the journal kept, no temporary file, and `--resume` finishes the run.
 #[test]
 fn sigterm_and_sighup_stop_like_ctrl_c_and_resume_finishes() {
-    let dir = Dir::new("term");
+    let dir = TempDir::new("term");
     let json = dir.join("grid.json");
     let journal = dir.join("grid.json.journal");
     let grid = fixture("grid-50.json");
@@ -396,7 +368,7 @@ fn sigterm_and_sighup_stop_like_ctrl_c_and_resume_finishes() {
 fn a_signal_at_any_moment_leaves_no_temporary_file() {
     let net = fixture("small-ring.json");
     for (k, delay_ms) in [5u64, 40, 80, 120, 160, 220, 300].into_iter().enumerate() {
-        let dir = Dir::new("anytime");
+        let dir = TempDir::new("anytime");
         let json = dir.join("out.json");
         let child = Command::new(env!("CARGO_BIN_EXE_redoubt"))
             .args([
@@ -460,7 +432,7 @@ fn inputs_are_read_up_to_a_limit() {
         "{}",
         run.stderr
     );
-    let dir = Dir::new("limit");
+    let dir = TempDir::new("limit");
     // The demo network followed by spaces up to one byte past 1 MiB: valid JSON.
     let mut bytes = std::fs::read(demo()).unwrap();
     bytes.resize((1 << 20) + 1, b' ');
@@ -510,7 +482,7 @@ fn import_writes_every_ordered_pair_and_reads_back() {
     );
     let topo = serde_json::json!({"directed": false, "graph": {"name": "ring30"},
                                   "nodes": nodes, "links": links});
-    let dir = Dir::new("import");
+    let dir = TempDir::new("import");
     let src = dir.join("topo.json");
     std::fs::write(&src, topo.to_string()).unwrap();
     let out = dir.join("net.json");

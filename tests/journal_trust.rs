@@ -15,48 +15,8 @@ mod common;
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
 
-use common::{Run, TempPath, demo, fixture, redoubt, s};
-
-/// A folder of its own, removed with everything in it on drop.
-struct Dir(PathBuf);
-
-impl Dir {
-    fn new(stem: &str) -> Dir {
-        let p = TempPath::new(stem, "d");
-        std::fs::create_dir_all(&p.0).expect("create folder");
-        Dir(p.0.clone())
-    }
-
-    fn path(&self, name: &str) -> PathBuf {
-        self.0.join(name)
-    }
-
-    fn names(&self) -> BTreeSet<String> {
-        std::fs::read_dir(&self.0)
-            .expect("list folder")
-            .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
-            .collect()
-    }
-
-    /// Hidden files are the atomic writer's temporaries and probes.
-    fn assert_no_temporaries(&self, what: &str) {
-        let hidden: Vec<String> = self
-            .names()
-            .into_iter()
-            .filter(|n| n.starts_with('.'))
-            .collect();
-        assert!(
-            hidden.is_empty(),
-            "{what}: temporary files left: {hidden:?}"
-        );
-    }
-}
-
-impl Drop for Dir {
-    fn drop(&mut self) {
-        let _ = std::fs::remove_dir_all(&self.0);
-    }
-}
+use common::random::Rng;
+use common::{Run, TempDir, TempPath, demo, fixture, redoubt, s};
 
 /// 64-bit FNV-1a continued from `h`.
 fn fnv1a(mut h: u64, bytes: &[u8]) -> u64 {
@@ -106,7 +66,7 @@ fn fingerprint(network: &str, depth: u64, kinds: &str, engine: &str) -> String {
 /// A clean run and its parts: the reference every hostile run is compared with.
 struct Clean {
     /// Holds the reference files while the test runs.
-    _dir: Dir,
+    _dir: TempDir,
     args: Vec<String>,
     json: Vec<u8>,
     stdout: String,
@@ -123,7 +83,7 @@ fn run(args: &[String]) -> Run {
 
 impl Clean {
     fn new(network: &Path, depth: &str) -> Clean {
-        let dir = Dir::new("trust");
+        let dir = TempDir::new("trust");
         let args: Vec<String> = ["audit", s(network), "--depth", depth, "--quiet"]
             .iter()
             .map(|a| a.to_string())
@@ -134,15 +94,15 @@ impl Clean {
                 .chain(extra.iter().map(|e| e.to_string()))
                 .collect()
         };
-        let reference = dir.path("reference.json");
+        let reference = dir.join("reference.json");
         let r = run(&with(&["--json", s(&reference)]));
         assert_eq!(r.code, 0, "{}", r.stderr);
-        let whole = dir.path("whole.jsonl");
+        let whole = dir.join("whole.jsonl");
         let w = run(&with(&["--shard", "1/1", "--json", s(&whole)]));
         assert_eq!(w.code, 0, "{}", w.stderr);
         let mut parts = [Vec::new(), Vec::new()];
         for (i, part) in parts.iter_mut().enumerate() {
-            let path = dir.path(&format!("clean-{}.jsonl", i + 1));
+            let path = dir.join(&format!("clean-{}.jsonl", i + 1));
             let shard = format!("{}/2", i + 1);
             let p = run(&with(&["--shard", &shard, "--json", s(&path)]));
             assert_eq!(p.code, 0, "{}", p.stderr);
@@ -183,9 +143,9 @@ impl Clean {
     /// 0 with the reference's files and report, or exit 2 naming the journal and a line;
     /// never a temporary file. Returns the run.
     fn resume(&self, journal: &[u8], what: &str) -> Run {
-        let dir = Dir::new("resume");
-        let json = dir.path("out.json");
-        let jp = dir.path("out.json.journal");
+        let dir = TempDir::new("resume");
+        let json = dir.join("out.json");
+        let jp = dir.join("out.json.journal");
         std::fs::write(&jp, journal).unwrap();
         let mut args = self.args.clone();
         args.extend(["--json".into(), s(&json).into(), "--resume".into()]);
@@ -218,12 +178,12 @@ impl Clean {
     /// the rules: exit 0 with the reference's JSON and report, or exit 2 naming the part
     /// and a line; never a temporary file, never an output from a refused merge.
     fn merge(&self, first: &[u8], what: &str) -> Run {
-        let dir = Dir::new("merge");
-        let p1 = dir.path("part-one.jsonl");
-        let p2 = dir.path("part-two.jsonl");
+        let dir = TempDir::new("merge");
+        let p1 = dir.join("part-one.jsonl");
+        let p2 = dir.join("part-two.jsonl");
         std::fs::write(&p1, first).unwrap();
         std::fs::write(&p2, &self.parts[1]).unwrap();
-        let json = dir.path("merged.json");
+        let json = dir.join("merged.json");
         let r = redoubt(&["merge", s(&p1), s(&p2), "--json", s(&json)]);
         match r.code {
             0 => {
@@ -351,7 +311,7 @@ fn merge_refuses_edited_network_text_and_lines() {
     );
 
     // (b) network edited and fingerprinted again in both parts.
-    let dir = Dir::new("refingerprint");
+    let dir = TempDir::new("refingerprint");
     let mut paths = Vec::new();
     for (i, part) in clean.parts.iter().enumerate() {
         let (mut h, rest) = header_of(part);
@@ -364,7 +324,7 @@ fn merge_refuses_edited_network_text_and_lines() {
         )
         .into();
         h["network"] = network.into();
-        let path = dir.path(&format!("part-{}.jsonl", i + 1));
+        let path = dir.join(&format!("part-{}.jsonl", i + 1));
         std::fs::write(
             &path,
             format!("{}\n{rest}", serde_json::to_string(&h).unwrap()),
@@ -372,7 +332,7 @@ fn merge_refuses_edited_network_text_and_lines() {
         .unwrap();
         paths.push(path);
     }
-    let json = dir.path("merged.json");
+    let json = dir.join("merged.json");
     let r = redoubt(&["merge", s(&paths[0]), s(&paths[1]), "--json", s(&json)]);
     assert_eq!(r.code, 2, "{}", r.stderr);
     assert!(
@@ -468,24 +428,6 @@ fn damaged_lines_are_solved_again_or_refused() {
             "{what}: {}",
             r.stderr
         );
-    }
-}
-
-/// splitmix64: a small deterministic generator (Steele, Lea and Flood's constants, from
-/// memory), so the property test is the same on every run.
-struct Rng(u64);
-
-impl Rng {
-    fn next(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9e37_79b9_7f4a_7c15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
-        z ^ (z >> 31)
-    }
-
-    fn below(&mut self, n: usize) -> usize {
-        (self.next() % n.max(1) as u64) as usize
     }
 }
 

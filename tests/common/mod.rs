@@ -6,6 +6,7 @@
 //!   width, Ctrl-C) is tested too: piped output alone never draws the bar.
 //! - [`TempPath`] is a unique file in this test process's own temporary folder, removed on
 //!   drop; [`TempDir`] a folder there, removed with its contents.
+//! - [`random`] is the seeded generator and random network several files share.
 //! - [`json`] reads `--json` audit documents and holds the hand-computed networks that
 //!   several files share.
 //!
@@ -13,6 +14,7 @@
 #![allow(dead_code)] // each test crate uses part of the harness
 
 pub mod json;
+pub mod random;
 
 use std::collections::BTreeSet;
 use std::io::{Read, Write};
@@ -234,6 +236,22 @@ impl TempDir {
             .expect("list folder")
             .map(|e| e.expect("entry").file_name().to_string_lossy().into_owned())
             .collect()
+    }
+}
+
+impl TempDir {
+    /// Panics naming `what` when the folder holds hidden files: the atomic writer's
+    /// temporaries and probes, which a finished or refused run must not leave.
+    pub fn assert_no_temporaries(&self, what: &str) {
+        let hidden: Vec<String> = self
+            .names()
+            .into_iter()
+            .filter(|n| n.starts_with('.'))
+            .collect();
+        assert!(
+            hidden.is_empty(),
+            "{what}: temporary files left: {hidden:?}"
+        );
     }
 }
 
