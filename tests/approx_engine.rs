@@ -9,7 +9,7 @@
 mod common;
 
 use common::{TempPath, fixture, random, redoubt, s};
-use serde_json::{Value, json};
+use serde_json::Value;
 
 /// Runs `audit FILE ARGS --json OUT --quiet` and returns the document.
 fn audit_json(file: &str, args: &[&str]) -> Value {

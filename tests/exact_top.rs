@@ -10,7 +10,7 @@ mod common;
 use std::collections::HashMap;
 
 use common::{TempPath, fixture, random, redoubt, s};
-use serde_json::{Value, json};
+use serde_json::Value;
 
 /// Runs `audit FILE ARGS --json OUT --quiet --yes`; returns the exit code and document.
 fn audit(file: &str, args: &[&str]) -> (i32, Value) {

@@ -7,7 +7,7 @@ mod common;
 
 use std::collections::BTreeSet;
 use std::os::unix::fs::FileTypeExt;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 

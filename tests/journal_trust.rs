@@ -12,11 +12,10 @@
 
 mod common;
 
-use std::collections::BTreeSet;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 
 use common::random::Rng;
-use common::{Run, TempDir, TempPath, demo, fixture, redoubt, s};
+use common::{Run, TempDir, demo, fixture, redoubt, s};
 
 /// 64-bit FNV-1a continued from `h`.
 fn fnv1a(mut h: u64, bytes: &[u8]) -> u64 {
