@@ -19,6 +19,7 @@ use crate::error::{EXIT_INTERRUPTED, Error, Result};
 use crate::journal::{Journal, Resume};
 use crate::model::Network;
 use crate::scenario::{Element, Outage, Scenario};
+pub use crate::scenario::{OutageId, ScenarioId};
 use crate::solve::Engine;
 use crate::solve::evaluator::{self, Evaluated, Evaluator, Warm};
 use crate::solve::{self, Evaluation, colgen};
@@ -63,8 +64,8 @@ pub fn interrupted() -> bool {
 #[derive(Debug, Clone)]
 pub struct Audit {
     pub scenarios: Vec<Scenario>,
-    /// Per scenario: index into `outages` / `evaluations`.
-    pub outage_of: Vec<usize>,
+    /// Per scenario: its outage (index into `outages` / `evaluations`).
+    pub outage_of: Vec<OutageId>,
     pub outages: Vec<Outage>,
     pub evaluations: Vec<Evaluation>,
     /// Work done by the walk engine (zero for the edge engine and restored outages).
@@ -81,13 +82,14 @@ impl Audit {
             .map_or(0, |s| s.matrix)
     }
 
-    /// The evaluation of scenario `i`.
-    pub fn eval(&self, i: usize) -> &Evaluation {
-        &self.evaluations[self.outage_of[i]]
+    /// The evaluation of scenario `i`: a [`ScenarioId`] (the report path's lists), or a
+    /// plain index from a caller whose lists are not typed yet. O(1).
+    pub fn eval(&self, i: impl Into<ScenarioId>) -> &Evaluation {
+        &self.evaluations[self.outage_of[i.into()]]
     }
 
     /// The first scenario (in list order) whose outage is `k`; every outage has one.
-    pub fn first_scenario(&self, k: usize) -> &Scenario {
+    pub fn first_scenario(&self, k: OutageId) -> &Scenario {
         let i = self
             .outage_of
             .iter()
@@ -102,7 +104,7 @@ impl Audit {
         self.scenarios
             .iter()
             .position(|s| s.is_baseline() && s.matrix == m)
-            .map(|i| self.eval(i))
+            .map(|i| self.eval(ScenarioId(i)))
     }
 
     /// The baseline's evaluation, if the baseline is among the scenarios.
@@ -110,7 +112,7 @@ impl Audit {
         self.scenarios
             .iter()
             .position(Scenario::is_baseline)
-            .map(|i| self.eval(i))
+            .map(|i| self.eval(ScenarioId(i)))
     }
 }
 
@@ -307,7 +309,7 @@ pub enum Keep {
 /// results do not depend on the thread count, the shard or on what was restored.
 pub struct Batch {
     scenarios: Vec<Scenario>,
-    outage_of: Vec<usize>,
+    outage_of: Vec<OutageId>,
     outages: Vec<Outage>,
     done: Vec<Option<Evaluation>>,
     /// Per outage: the element whose single failure is its parent (walk engine).
@@ -372,7 +374,7 @@ impl Batch {
             if let [e] = s.elements[..] {
                 single.entry((e, s.matrix)).or_insert(k);
             }
-            outage_of.push(k);
+            outage_of.push(OutageId(k));
             list.push(s);
         }
         drop((index, collided));
@@ -409,8 +411,11 @@ impl Batch {
     }
 
     /// The outages this batch solves (all, or its shard's), in order.
-    pub fn own(&self) -> Vec<usize> {
-        (0..self.outages.len()).filter(|&k| self.mine(k)).collect()
+    pub fn own(&self) -> Vec<OutageId> {
+        (0..self.outages.len())
+            .filter(|&k| self.mine(k))
+            .map(OutageId)
+            .collect()
     }
 
     /// Takes the probe's solves: the baseline basis, and the baseline's and the sample's
@@ -436,7 +441,7 @@ impl Batch {
 
     /// Stores outage `k`'s evaluation (journaled first; thin when asked).
     fn keep(&mut self, k: usize, e: Evaluation, journal: Option<&Journal>) {
-        let journaled = journal.is_some_and(|j| j.record(k, &e));
+        let journaled = journal.is_some_and(|j| j.record(OutageId(k), &e));
         self.done[k] = Some(self.stored(k, e, journaled));
     }
 
@@ -509,7 +514,7 @@ impl Batch {
     ) -> Result<Vec<(usize, Evaluation)>> {
         let mut out = Vec::with_capacity(members.len());
         let mut record = |k: usize, e: Evaluation| {
-            let journaled = journal.is_some_and(|j| j.record(k, &e));
+            let journaled = journal.is_some_and(|j| j.record(OutageId(k), &e));
             bar.inc();
             out.push((k, self.stored(k, e, journaled)));
         };
@@ -590,7 +595,7 @@ impl Batch {
     }
 
     /// Outage `k` of the batch (`k < self.outages()`).
-    pub fn outage(&self, k: usize) -> &Outage {
+    pub fn outage(&self, k: OutageId) -> &Outage {
         &self.outages[k]
     }
 
@@ -635,7 +640,7 @@ impl Batch {
         let mut restored = Vec::with_capacity(checked.len());
         for (k, (e, refused)) in checked.into_iter().enumerate() {
             if let Some(r) = refused {
-                journal.discard(k);
+                journal.discard(OutageId(k));
                 ignored.push(r);
             }
             restored.push(e);
@@ -745,7 +750,7 @@ impl Batch {
     }
 
     /// Outage `k`'s evaluation as kept, if evaluated.
-    pub fn evaluation(&self, k: usize) -> Option<&Evaluation> {
+    pub fn evaluation(&self, k: OutageId) -> Option<&Evaluation> {
         self.done[k].as_ref()
     }
 

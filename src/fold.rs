@@ -3,7 +3,7 @@
 //! They share one computation already ([`crate::scenario::dedup`]); the reports list
 //! them once, under the smallest, with a count of the equivalents folded into it.
 
-use crate::audit::Audit;
+use crate::audit::{Audit, ScenarioId};
 
 /// What folding does to an audit's scenario list.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -11,8 +11,8 @@ pub struct Folding {
     /// Per scenario: `Some(r)` when it is folded into scenario `r`, the first (in list
     /// order) of the scenarios with the fewest elements among those with the same outage;
     /// only scenarios with strictly more elements than `r` are folded.
-    pub into: Vec<Option<usize>>,
-    /// Per scenario: how many scenarios are folded into it.
+    pub into: Vec<Option<ScenarioId>>,
+    /// Per scenario (index with a [`ScenarioId`]): how many scenarios are folded into it.
     pub equivalents: Vec<usize>,
 }
 
@@ -22,9 +22,10 @@ impl Folding {
     /// Invariant: a scenario `r` that others fold into is never folded itself, and shares
     /// their outage, so every number reported for `r` holds for each of them.
     pub fn of(audit: &Audit) -> Folding {
-        let mut smallest: Vec<Option<usize>> = vec![None; audit.outages.len()];
+        // Per outage: its smallest scenario so far.
+        let mut smallest: Vec<Option<ScenarioId>> = vec![None; audit.outages.len()];
         for (i, s) in audit.scenarios.iter().enumerate() {
-            let k = audit.outage_of[i];
+            let (i, k) = (ScenarioId(i), audit.outage_of[i]);
             match smallest[k] {
                 Some(r) if audit.scenarios[r].elements.len() <= s.elements.len() => {}
                 _ => smallest[k] = Some(i),
@@ -33,6 +34,7 @@ impl Folding {
         let mut into = vec![None; audit.scenarios.len()];
         let mut equivalents = vec![0; audit.scenarios.len()];
         for (i, s) in audit.scenarios.iter().enumerate() {
+            let i = ScenarioId(i);
             let r = smallest[audit.outage_of[i]].expect("every outage has a scenario");
             if audit.scenarios[r].elements.len() < s.elements.len() {
                 into[i] = Some(r);
@@ -72,7 +74,7 @@ mod tests {
             crate::audit::run(&n, scenario::enumerate(&n, kinds, 2), Default::default()).unwrap();
         let names: Vec<String> = audit.scenarios.iter().map(|s| s.display_name()).collect();
         let f = Folding::of(&audit);
-        let at = |name: &str| names.iter().position(|n| n == name).unwrap();
+        let at = |name: &str| ScenarioId(names.iter().position(|n| n == name).unwrap());
         assert_eq!(f.into[at("group:g + link:ab")], Some(at("link:ab")));
         assert_eq!(f.into[at("group:g")], None);
         assert_eq!(f.into[at("group:g + link:bc")], None);

@@ -14,7 +14,7 @@
 //! scenario has a value has none. An unproven λ is its proven lower bound, so headroom is
 //! never overstated.
 
-use crate::audit::{self, Audit, RunOptions};
+use crate::audit::{self, Audit, RunOptions, ScenarioId};
 use crate::error::Result;
 use crate::model::Network;
 use crate::numbers::{displayed, file_num, num};
@@ -65,9 +65,9 @@ pub struct AuditHeadroom {
 }
 
 impl AuditHeadroom {
-    /// Scenario `i`'s headroom.
-    pub fn of(&self, audit: &Audit, i: usize) -> &Headroom {
-        &self.per_outage[audit.outage_of[i]]
+    /// Scenario `i`'s headroom (a [`ScenarioId`] or a plain index). O(1).
+    pub fn of(&self, audit: &Audit, i: impl Into<ScenarioId>) -> &Headroom {
+        &self.per_outage[audit.outage_of[i.into()]]
     }
 }
 
@@ -160,7 +160,7 @@ pub fn of_audit(
 /// The least headroom over the scenarios of `audit`, visiting them in `order` (worst
 /// first) so that, among scenarios whose values are equal as written ([`file_num`]), the
 /// first in that order sets it. O(S).
-pub fn least(audit: &Audit, per_outage: &[Headroom], order: &[usize]) -> Least {
+pub fn least(audit: &Audit, per_outage: &[Headroom], order: &[ScenarioId]) -> Least {
     let mut best: Option<(usize, f64)> = None;
     for &i in order {
         let Some(v) = per_outage[audit.outage_of[i]].value else {
@@ -168,7 +168,7 @@ pub fn least(audit: &Audit, per_outage: &[Headroom], order: &[usize]) -> Least {
         };
         let v = file_num(v);
         if best.is_none_or(|(_, b)| v.total_cmp(&b).is_lt()) {
-            best = Some((i, v));
+            best = Some((i.0, v));
         }
     }
     match best {

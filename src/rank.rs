@@ -7,17 +7,17 @@
 
 use std::cmp::Ordering;
 
-use crate::audit::Audit;
+use crate::audit::{Audit, ScenarioId};
 use crate::scenario::Element;
 
 /// Scenario indices of `audit`, worst first.
-pub fn worst_first(audit: &Audit) -> Vec<usize> {
-    let mut idx: Vec<usize> = (0..audit.scenarios.len()).collect();
+pub fn worst_first(audit: &Audit) -> Vec<ScenarioId> {
+    let mut idx: Vec<ScenarioId> = (0..audit.scenarios.len()).map(ScenarioId).collect();
     idx.sort_by(|&a, &b| compare(audit, a, b));
     idx
 }
 
-fn compare(audit: &Audit, a: usize, b: usize) -> Ordering {
+fn compare(audit: &Audit, a: ScenarioId, b: ScenarioId) -> Ordering {
     let (ea, eb) = (audit.eval(a), audit.eval(b));
     eb.shortfall
         .total_cmp(&ea.shortfall)
@@ -41,7 +41,7 @@ pub struct Criticality {
     /// Worst stranded required demand of any scenario containing it.
     pub worst_stranded: f64,
     /// The scenario index that attains `worst_shortfall` (first in rank order).
-    pub worst_scenario: usize,
+    pub worst_scenario: ScenarioId,
     /// Number of scenarios containing the element with shortfall above 0.
     pub scenarios_short: usize,
 }
@@ -56,7 +56,7 @@ pub fn criticality(audit: &Audit) -> Vec<Criticality> {
 /// [`criticality`] from an order already computed (`order` must be [`worst_first`] of
 /// `audit`: each element's `worst_scenario` is the first in it). O(Σ scenario sizes + k log
 /// k) for k elements.
-pub fn criticality_in(audit: &Audit, order: &[usize]) -> Vec<Criticality> {
+pub fn criticality_in(audit: &Audit, order: &[ScenarioId]) -> Vec<Criticality> {
     let mut out: Vec<Criticality> = Vec::new();
     let mut pos: std::collections::HashMap<Element, usize> = std::collections::HashMap::new();
     for &i in order {

@@ -11,10 +11,73 @@ use std::collections::HashMap;
 use std::fmt;
 
 use itertools::Itertools;
+use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
 use crate::model::strict::{FAIL_SEPARATOR, printable};
 use crate::model::{LinkIdx, Network, SiteIdx};
+
+/// Index of a distinct outage of an audit: into [`crate::audit::Audit::outages`] and
+/// [`crate::audit::Audit::evaluations`], the journal's and the part files' line numbers. A plain
+/// `usize` in memory and in JSON (`#[repr(transparent)]`, `#[serde(transparent)]`).
+#[repr(transparent)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[serde(transparent)]
+pub struct OutageId(pub usize);
+
+/// Index of a scenario of an audit: into [`crate::audit::Audit::scenarios`] and
+/// [`crate::audit::Audit::outage_of`]
+/// (several scenarios may share one [`OutageId`]). A plain `usize` in memory and in JSON.
+#[repr(transparent)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
+#[serde(transparent)]
+pub struct ScenarioId(pub usize);
+
+/// `Vec` and slice indexing by the typed ids, so a list per outage (or per scenario) is
+/// indexed by its own kind of id and an outage id cannot index a scenario's list unnoticed
+/// (a plain `usize` still indexes anything); `Display` is the number. O(1).
+macro_rules! typed_index {
+    ($id:ty) => {
+        impl<T> std::ops::Index<$id> for [T] {
+            type Output = T;
+            fn index(&self, i: $id) -> &T {
+                &self[i.0]
+            }
+        }
+        impl<T> std::ops::IndexMut<$id> for [T] {
+            fn index_mut(&mut self, i: $id) -> &mut T {
+                &mut self[i.0]
+            }
+        }
+        impl<T> std::ops::Index<$id> for Vec<T> {
+            type Output = T;
+            fn index(&self, i: $id) -> &T {
+                &self[i.0]
+            }
+        }
+        impl<T> std::ops::IndexMut<$id> for Vec<T> {
+            fn index_mut(&mut self, i: $id) -> &mut T {
+                &mut self[i.0]
+            }
+        }
+        impl fmt::Display for $id {
+            fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                self.0.fmt(f)
+            }
+        }
+    };
+}
+typed_index!(OutageId);
+typed_index!(ScenarioId);
+
+/// A plain scenario index (position in the audit's list) as a [`ScenarioId`], for callers
+/// whose own lists are still plain (gates, risk, compare): [`crate::audit::Audit::eval`]
+/// takes either.
+impl From<usize> for ScenarioId {
+    fn from(i: usize) -> ScenarioId {
+        ScenarioId(i)
+    }
+}
 
 /// One element that can fail.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]

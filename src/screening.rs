@@ -25,7 +25,7 @@
 
 use std::cmp::Ordering;
 
-use crate::audit::{self, Audit, RunOptions};
+use crate::audit::{self, Audit, OutageId, RunOptions};
 use crate::error::Result;
 use crate::gate::{Gate, GateKind};
 use crate::model::Network;
@@ -215,7 +215,7 @@ pub fn confirm(
     if !chosen.is_empty() {
         let scenarios = chosen
             .iter()
-            .map(|&k| audit.first_scenario(k).clone())
+            .map(|&k| audit.first_scenario(OutageId(k)).clone())
             .collect();
         let solved = audit::run_with(net, scenarios, opts, Engine::Walks)?;
         for (j, &k) in chosen.iter().enumerate() {

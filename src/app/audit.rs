@@ -168,7 +168,7 @@ pub(super) fn run(
             headroom: args.headroom,
             screen: None,
         };
-        let thin = |_: usize| Err(Error::Internal("thin routed evaluation".into()));
+        let thin = |_: audit::OutageId| Err(Error::Internal("thin routed evaluation".into()));
         return finish_audit(&net, &ra.audit, &thin, o, None, &|e| e, out);
     }
     let share = shard.map_or(1, |s| s.1);
@@ -292,7 +292,7 @@ pub(super) fn run(
         .map_err(&interrupted)?;
     let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &audit)?;
     let reader = journal.as_ref().map(Journal::reader).transpose()?;
-    let full = |k: usize| -> Result<solve::Evaluation> {
+    let full = |k: audit::OutageId| -> Result<solve::Evaluation> {
         match reader.as_ref().map(|j| j.read(k)).transpose()?.flatten() {
             Some(e) => Ok(e),
             None => Err(Error::Internal(format!("outage {k} is not journaled"))),
@@ -516,8 +516,8 @@ fn why_of(
     audit: &audit::Audit,
     cands: &expand::Candidates,
     closings: Option<&[Option<expand::Closing>]>,
-    worst: Option<usize>,
-) -> Result<Option<(usize, Option<expand::Closing>)>> {
+    worst: Option<audit::ScenarioId>,
+) -> Result<Option<(audit::ScenarioId, Option<expand::Closing>)>> {
     let Some(i) = worst else {
         return Ok(None);
     };

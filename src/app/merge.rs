@@ -75,12 +75,12 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
     let mut held: Vec<Option<solve::Evaluation>> = vec![None; h.outages];
     let parts = journal::Parts::open(&args.parts, h, |k, e| {
         solve::recheck::recheck(&net, batch.outage(k), &e)?;
-        held[k] = Some(if k == 0 || whole { e } else { e.thin() });
+        held[k] = Some(if k.0 == 0 || whole { e } else { e.thin() });
         Ok(())
     })?;
     batch.restore(held);
     let audit = batch.into_audit();
-    let full = |k: usize| parts.read(k);
+    let full = |k: audit::OutageId| parts.read(k);
     let opts = audit::RunOptions {
         threads: None,
         progress: false,

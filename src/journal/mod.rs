@@ -26,6 +26,7 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
+use crate::scenario::OutageId;
 use crate::solve::Evaluation;
 
 /// Version of the journal layout; a journal of another version is not resumed.
@@ -40,7 +41,7 @@ struct Header {
 
 #[derive(Serialize)]
 struct LineOut<'a> {
-    outage: usize,
+    outage: OutageId,
     evaluation: &'a Evaluation,
 }
 
@@ -49,7 +50,7 @@ struct LineOut<'a> {
 struct LineIn {
     #[allow(dead_code)] // checked on the raw bytes before parsing
     check: String,
-    outage: usize,
+    outage: OutageId,
     evaluation: Evaluation,
 }
 
@@ -332,9 +333,9 @@ impl Journal {
 
     /// Forgets outage `k`'s line (a restored line that did not verify): it is no longer
     /// read back nor counted as saved, until the outage is recorded again. O(1).
-    pub fn discard(&self, k: usize) {
+    pub fn discard(&self, k: OutageId) {
         let mut offsets = self.offsets.lock().unwrap_or_else(|p| p.into_inner());
-        if let Some(slot) = offsets.get_mut(k)
+        if let Some(slot) = offsets.get_mut(k.0)
             && slot.take().is_some()
         {
             self.saved.fetch_sub(1, Ordering::SeqCst);
@@ -358,7 +359,7 @@ impl Journal {
     /// returns whether it is journaled (so [`JournalReader::read`] gives it back bit for bit). The
     /// journal is insurance, not a result: a failed write stops journaling (see
     /// [`Self::failure`]) and never the run. O(size of the evaluation).
-    pub fn record(&self, k: usize, e: &Evaluation) -> bool {
+    pub fn record(&self, k: OutageId, e: &Evaluation) -> bool {
         // A value JSON cannot carry exactly (not finite) is not journaled: a resume solves
         // that outage again rather than restore something different.
         let Some(mut line) = to_line(k, e) else {
@@ -379,7 +380,7 @@ impl Journal {
                     .offsets
                     .lock()
                     .unwrap_or_else(|p| p.into_inner())
-                    .get_mut(k)
+                    .get_mut(k.0)
                 {
                     *slot = Some(at);
                 }
@@ -394,12 +395,12 @@ impl Journal {
 
     /// Outage `k`'s journaled line, without its newline (`None` when not journaled).
     /// O(line length): one seek and one read.
-    pub fn line(&self, k: usize) -> Result<Option<String>> {
+    pub fn line(&self, k: OutageId) -> Result<Option<String>> {
         let Some(at) = self
             .offsets
             .lock()
             .unwrap_or_else(|p| p.into_inner())
-            .get(k)
+            .get(k.0)
             .copied()
             .flatten()
         else {
@@ -466,7 +467,7 @@ fn read_lines(
         let line_no = n + 2;
         let line = raw.strip_suffix(b"\n").unwrap_or(raw);
         match parse_line(line) {
-            Ok((k, evaluation)) if k < outages => {
+            Ok((k, evaluation)) if k.0 < outages => {
                 let slot = &mut found.restored[k];
                 if slot.is_none() {
                     count += 1;
@@ -526,8 +527,8 @@ pub struct JournalReader {
 impl JournalReader {
     /// Outage `k`'s evaluation as journaled (bit-identical to the recorded one), `None`
     /// when it was not journaled. O(size of the evaluation).
-    pub fn read(&self, k: usize) -> Result<Option<Evaluation>> {
-        let Some(at) = self.offsets.get(k).copied().flatten() else {
+    pub fn read(&self, k: OutageId) -> Result<Option<Evaluation>> {
+        let Some(at) = self.offsets.get(k.0).copied().flatten() else {
             return Ok(None);
         };
         let line = line_at(&self.reader, &self.path, at, true)?;
@@ -545,7 +546,7 @@ fn line_check(checked: &[u8]) -> u64 {
 
 /// Parses one journal or part line (without its newline) into its outage and
 /// evaluation, after checking its check; `Err` says what is wrong. O(line length).
-fn parse_line(line: &[u8]) -> std::result::Result<(usize, Evaluation), String> {
+fn parse_line(line: &[u8]) -> std::result::Result<(OutageId, Evaluation), String> {
     let check = line
         .get(CHECK_OPEN.len()..CHECKED_FROM - 2)
         .filter(|_| line.starts_with(CHECK_OPEN.as_bytes()))
@@ -634,7 +635,7 @@ pub fn write_part(
 
 /// One evaluation as a journal/part line (without newline); `None` when JSON cannot carry
 /// it exactly (a non-finite value).
-pub fn to_line(k: usize, e: &Evaluation) -> Option<String> {
+pub fn to_line(k: OutageId, e: &Evaluation) -> Option<String> {
     let body = serde_json::to_string(&LineOut {
         outage: k,
         evaluation: e,
@@ -770,7 +771,7 @@ impl Parts {
     pub fn open(
         paths: &[PathBuf],
         header: &PartHeader,
-        mut verify: impl FnMut(usize, Evaluation) -> std::result::Result<(), String>,
+        mut verify: impl FnMut(OutageId, Evaluation) -> std::result::Result<(), String>,
     ) -> Result<Parts> {
         let mut offsets: Vec<Option<(usize, u64, u64)>> = vec![None; header.outages];
         // One line is at most the input limit (a part's header carries the network file).
@@ -783,7 +784,9 @@ impl Parts {
             }
             let mut r = BufReader::new(File::open(path).map_err(io_err(path))?);
             r.seek(io::SeekFrom::Start(at)).map_err(io_err(path))?;
-            let mut expected = (h.shard - 1..header.outages).step_by(header.shards.max(1));
+            let mut expected = (h.shard - 1..header.outages)
+                .step_by(header.shards.max(1))
+                .map(OutageId);
             let mut line = Vec::new();
             let mut n = 1;
             loop {
@@ -845,7 +848,7 @@ impl Parts {
 
     /// Outage `k`'s evaluation, bit-identical to the one the shard solved and verified
     /// when the parts were opened (its line's check is compared). O(its size).
-    pub fn read(&self, k: usize) -> Result<Evaluation> {
+    pub fn read(&self, k: OutageId) -> Result<Evaluation> {
         let (p, at, check) = self.offsets[k];
         let path = &self.paths[p];
         let line = line_at(&self.readers[p], path, at, false)?;

@@ -97,7 +97,7 @@ pub fn csv_cell(m: &Model<'_>, i: usize) -> String {
 
 /// The table cell of scenario `i`: its headroom as a percentage of required demand
 /// (`124%`), `≥118%` when unproven (the proven lower bound), `—` without a value. O(1).
-pub fn table_cell(m: &Model<'_>, i: usize) -> String {
+pub fn table_cell(m: &Model<'_>, i: crate::audit::ScenarioId) -> String {
     let Some(h) = m.headroom else {
         return String::new();
     };
@@ -192,7 +192,9 @@ pub fn verification_lines(m: &Model<'_>) -> String {
                 out,
                 "UNPROVEN: {}: headroom between {} and {} of required (reported at the lower \
                  bound, so growth room is not overstated).",
-                m.audit.first_scenario(k).display_name(),
+                m.audit
+                    .first_scenario(crate::audit::OutageId(k))
+                    .display_name(),
                 percent(one.lower),
                 percent(one.upper)
             );

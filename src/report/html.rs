@@ -85,7 +85,7 @@ impl Model<'_> {
     }
 
     /// The worst scenario (drawn on the map), if any scenario is short.
-    pub fn worst_short(&self) -> Option<usize> {
+    pub fn worst_short(&self) -> Option<crate::audit::ScenarioId> {
         self.shown
             .first()
             .copied()
@@ -436,7 +436,11 @@ fn histogram_svg(o: &mut dyn fmt::Write, bins: &[(String, usize)], unit: &str) -
 
 /// The map section: the drawing (laid out once, [`Model::drawn`]; laid out here when the
 /// model was built without it), the legend and a caption naming the marked scenario.
-fn map_section(o: &mut dyn fmt::Write, r: &Report<'_>, first: Option<usize>) -> fmt::Result {
+fn map_section(
+    o: &mut dyn fmt::Write,
+    r: &Report<'_>,
+    first: Option<crate::audit::ScenarioId>,
+) -> fmt::Result {
     let own;
     let d = match &r.drawing {
         Some(d) => d,

@@ -16,7 +16,7 @@ use std::io::{self, Write};
 use serde::Serialize;
 
 use super::{CAUTION, file_diff, file_num, prob};
-use crate::audit::Audit;
+use crate::audit::{Audit, OutageId};
 use crate::model::Network;
 use crate::solve::{Evaluation, Resource};
 
@@ -491,7 +491,7 @@ pub fn scenario_json(
 }
 
 /// Outage `k`'s full evaluation, for documents built from thin audits.
-pub type Full<'a> = &'a (dyn Fn(usize) -> crate::error::Result<Evaluation> + Sync);
+pub type Full<'a> = &'a (dyn Fn(OutageId) -> crate::error::Result<Evaluation> + Sync);
 
 /// The `scenarios` array of an audit document, built one scenario at a time while it is
 /// written (so a document of any length needs memory for one scenario): serialises exactly
@@ -605,7 +605,7 @@ pub fn audit_json<'a>(
 }
 
 /// The [`Full`] of an audit whose evaluations are all full: asking for one is an error.
-pub fn all_full(k: usize) -> crate::error::Result<Evaluation> {
+pub fn all_full(k: OutageId) -> crate::error::Result<Evaluation> {
     Err(crate::error::Error::Usage(format!(
         "internal: outage {k} has no full evaluation"
     )))

@@ -167,7 +167,7 @@ pub struct Marks {
 
 /// The marks of scenario `i`: O(elements + arcs + bottlenecks); a thin evaluation's
 /// allocation is read back through the model's `full` (utilisation unknown if that fails).
-pub fn marks(m: &Model<'_>, i: usize) -> Marks {
+pub fn marks(m: &Model<'_>, i: crate::audit::ScenarioId) -> Marks {
     let n = m.net;
     let mut link_failed = vec![false; n.links.len()];
     let mut site_failed = vec![false; n.sites.len()];

@@ -12,7 +12,7 @@
 //! table of all scenarios, the plan, the closings) reads what it needs from here without
 //! solving or ranking again.
 
-use crate::audit::Audit;
+use crate::audit::{Audit, ScenarioId};
 use crate::expand::{Candidates, Closing};
 use crate::fold::Folding;
 use crate::gate::GateResult;
@@ -67,11 +67,11 @@ pub struct Model<'a> {
     pub full: Full<'a>,
     /// Every scenario, worst first ([`rank::worst_first`]: shortfall, stranded,
     /// throughput, fewer elements, names), folded ones included.
-    pub order: Vec<usize>,
-    /// `rank_of[i]`: scenario `i`'s 1-based position in `order` (the JSON and CSV rank).
+    pub order: Vec<ScenarioId>,
+    /// `rank_of[i]` (index with a [`ScenarioId`]): scenario `i`'s 1-based position in `order` (the JSON and CSV rank).
     pub rank_of: Vec<usize>,
     /// `order` without the scenarios folded into a smaller one (what the tables list).
-    pub shown: Vec<usize>,
+    pub shown: Vec<ScenarioId>,
     /// Which scenarios are the same outage as a smaller one, and how many each stands for.
     pub folding: Folding,
     /// Every element that appears in a scenario, most critical first.
@@ -143,7 +143,7 @@ impl<'a> Model<'a> {
             Vec::new()
         };
         let short = (0..audit.scenarios.len())
-            .filter(|&i| audit.eval(i).shortfall > 0.0)
+            .filter(|&i| audit.eval(ScenarioId(i)).shortfall > 0.0)
             .count();
         let candidates = Candidates::of(p.net);
         let relief = crate::expand::relief(audit, &candidates);
@@ -181,7 +181,7 @@ impl<'a> Model<'a> {
 
     /// The baseline scenario `i` is compared with: its matrix's baseline when the run
     /// holds it, else the run's baseline. O(1).
-    pub fn baseline_of(&self, i: usize) -> &'a Evaluation {
+    pub fn baseline_of(&self, i: ScenarioId) -> &'a Evaluation {
         let m = self.audit.scenarios[i].matrix;
         self.matrix_baselines
             .get(m)
@@ -191,7 +191,7 @@ impl<'a> Model<'a> {
     }
 
     /// Scenario `i`'s matrix view of the network (its demands), for demand names. O(1).
-    pub fn net_of(&self, i: usize) -> &'a Network {
+    pub fn net_of(&self, i: ScenarioId) -> &'a Network {
         self.net.view(self.audit.scenarios[i].matrix)
     }
 
@@ -204,7 +204,7 @@ impl<'a> Model<'a> {
     }
 
     /// The worst scenario of the run (first in `order`), if there is any scenario.
-    pub fn worst(&self) -> Option<usize> {
+    pub fn worst(&self) -> Option<ScenarioId> {
         self.order.first().copied()
     }
 

@@ -130,7 +130,7 @@ pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
             Cell::new(audit.scenarios[i].display_name()),
             Cell::new(num(e.served_required)),
             Cell::new(num(ra.best[k].served_required)),
-            Cell::new(num(ra.recoverable(k))),
+            Cell::new(num(ra.recoverable(k.0))),
             Cell::new(util_text(o.max_link_util)),
             Cell::new(util_text(o.max_site_util)),
             Cell::new(first_k(overloaded_names(net, o), CELL_ITEMS)),

@@ -18,7 +18,7 @@ pub type Cell = (String, Option<f64>);
 /// One scenario's row.
 pub struct Row {
     /// Index into `audit.scenarios`.
-    pub scenario: usize,
+    pub scenario: crate::audit::ScenarioId,
     pub cells: Vec<Cell>,
 }
 
@@ -74,7 +74,7 @@ pub fn all_scenarios(m: &Model<'_>) -> (Vec<(String, bool)>, Vec<Row>) {
                 let util = ra.offered[k].max_link_util;
                 cells.push((num(e.served_required), Some(e.served_required)));
                 cells.push((num(best), Some(best)));
-                cells.push((num(ra.recoverable(k)), Some(ra.recoverable(k))));
+                cells.push((num(ra.recoverable(k.0)), Some(ra.recoverable(k.0))));
                 cells.push((
                     super::routing::util_text(util),
                     Some(if util.is_finite() { util } else { f64::MAX }),

@@ -99,7 +99,7 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
     }
     let mut indices = Vec::with_capacity(short.len());
     for &k in &short {
-        let mult = audit.outage_of.iter().filter(|&&o| o == k).count() as f64;
+        let mult = audit.outage_of.iter().filter(|&&o| o.0 == k).count() as f64;
         let obj = if matches!(goal, Goal::TotalWithin(_)) {
             mult
         } else {

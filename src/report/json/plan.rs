@@ -5,7 +5,7 @@ use std::collections::BTreeMap;
 use serde::Serialize;
 
 use super::*;
-use crate::audit::Audit;
+use crate::audit::{Audit, OutageId};
 use crate::model::Network;
 use crate::report::export::{Exporter, Json, PlanReport};
 use crate::report::{CAUTION, file_diff, file_num};
@@ -76,7 +76,7 @@ pub fn plan_json(
     default_costs: bool,
 ) -> PlanJson {
     use crate::expand::Goal;
-    let first_scenario = |k: usize| audit.first_scenario(k).failed.clone();
+    let first_scenario = |k: usize| audit.first_scenario(OutageId(k)).failed.clone();
     PlanJson {
         network: net.name.clone(),
         unit: net.unit.clone(),

@@ -295,7 +295,7 @@ pub fn audit_report(m: &Model<'_>) -> String {
     }
     out.push_str(&crate::report::headroom::verification_lines(m));
     for (k, e) in audit.evaluations.iter().enumerate() {
-        let name = || audit.first_scenario(k).display_name();
+        let name = || audit.first_scenario(OutageId(k)).display_name();
         if let Some(eps) = approximate(&e.verification)
             .filter(|_| !e.verification.proven)
             .filter(|eps| within(&e.verification, eps, e.surviving_required))

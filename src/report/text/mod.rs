@@ -9,7 +9,7 @@ use comfy_table::Cell;
 use std::io::{self, Write};
 
 use super::{CAUTION, amount, file_diff, given, num, percent, shift_point, small, unit_one};
-use crate::audit::Audit;
+use crate::audit::{Audit, OutageId, ScenarioId};
 use crate::gate::{GateKind, GateResult};
 use crate::model::Network;
 use crate::model::strict::printable;

@@ -15,7 +15,7 @@ pub fn closing_report(m: &Model<'_>) -> String {
     };
     let u = &net.unit;
     let mut out = String::new();
-    let order: Vec<usize> = m
+    let order: Vec<ScenarioId> = m
         .order
         .iter()
         .copied()
@@ -192,7 +192,7 @@ pub fn plan_report(
         let drivers: Vec<String> = plan.drivers[v]
             .iter()
             .take(3)
-            .map(|(k, _)| audit.first_scenario(*k).display_name())
+            .map(|(k, _)| audit.first_scenario(OutageId(*k)).display_name())
             .collect();
         t.add_row(vec![
             Cell::new(&net.sites[v].id),

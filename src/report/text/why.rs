@@ -8,7 +8,7 @@ use super::*;
 /// one was computed (`None` when nothing is short).
 pub struct WhyPart<'a> {
     /// Index into `audit.scenarios`.
-    pub scenario: usize,
+    pub scenario: crate::audit::ScenarioId,
     pub closing: Option<&'a crate::expand::Closing>,
 }
 
