@@ -57,7 +57,7 @@ pub struct PlanScenarioJson {
 }
 
 /// The `plan --json` exporter: [`plan_json`] (its `routing` the model's name under
-/// `--routing`) through [`write`].
+/// `--routing`) through [`write()`].
 impl Exporter<PlanReport<'_>> for Json {
     fn write(&self, p: &PlanReport<'_>, w: &mut dyn std::io::Write) -> std::io::Result<()> {
         let mut doc = plan_json(p.net, p.audit, p.plan, p.default_costs);
