@@ -192,9 +192,9 @@ fn a_maintenance_window_holds_under_every_matrix() {
     }
 }
 
-/// The hours demo under nearest routing, failing groups: each of its three matrices alone.
+/// The hours demo under both routings, failing groups: each of its three matrices alone
+/// (the forecast holds one demand more than `base`). About 6 s in a debug build.
 #[test]
-#[ignore = "slow tier: cargo test --release -- --ignored"]
 fn each_matrix_of_the_hours_demo_equals_its_own_file() {
     let demo = std::fs::read_to_string(fixture("demo-harrowmere-hours.json")).unwrap();
     for routing in ["nearest", "steered"] {
