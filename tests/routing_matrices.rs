@@ -52,9 +52,12 @@ const RING: &str = r#"{"name": "hand-ring", "unit": "Gbit/s",
  "matrices": [{"id": "evening", "demands": [{"from": "c", "to": "b", "volume": 30}]}]
 }"#;
 
-/// RING's hand table: (failed, matrix, served_required, shortfall, best re-route served,
-/// headroom).
-const RING_TABLE: &[(&[&str], &str, f64, f64, f64, f64)] = &[
+/// One row of RING's hand table: (failed, matrix, served_required, shortfall, best re-route
+/// served, headroom).
+type RingRow = (&'static [&'static str], &'static str, f64, f64, f64, f64);
+
+/// RING's hand table.
+const RING_TABLE: &[RingRow] = &[
     (&[], "base", 12.0, 0.0, 12.0, 5.0 / 3.0),
     (&[], "evening", 20.0, 10.0, 30.0, 2.0 / 3.0),
     (&["link:ab"], "base", 12.0, 0.0, 12.0, 25.0 / 3.0),
