@@ -595,3 +595,294 @@ fn steered_closings_per_matrix_and_nearest_purchases_refused() {
         assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
     }
 }
+
+// ---------------------------------------------------------------------------------------
+// A second formulation of the steered plan over two matrices, on microlp
+// ---------------------------------------------------------------------------------------
+
+/// Five sites with unequal metrics: `e` (4, cost 1), `w` (3, cost 2) process; `c`
+/// processes nothing but may buy (cost 1.5), so it becomes a candidate once bought.
+/// Every site may add at most 30. `base` sends towards `w`, `evening` between `w` and `c`;
+/// no matrix's cheapest purchase covers the other's (measured: base alone 7, evening alone
+/// 7.5, both 8).
+const PENTAGON: &str = r#"{"name": "pentagon", "unit": "Gbit/s",
+ "sites": [{"id": "n"},
+           {"id": "e", "processing": 4, "expand_cost": 1, "expand_max": 30},
+           {"id": "s"},
+           {"id": "w", "processing": 3, "expand_cost": 2, "expand_max": 30},
+           {"id": "c", "processing": 0, "expand_cost": 1.5, "expand_max": 30}],
+ "links": [{"id": "n-e", "from": "n", "to": "e", "capacity": 12, "metric": 1},
+           {"id": "e-s", "from": "e", "to": "s", "capacity": 10, "metric": 2},
+           {"id": "s-w", "from": "s", "to": "w", "capacity": 12, "metric": 1},
+           {"id": "w-n", "from": "w", "to": "n", "capacity": 10, "metric": 1},
+           {"id": "n-c", "from": "n", "to": "c", "capacity": 8, "metric": 2},
+           {"id": "c-s", "from": "c", "to": "s", "capacity": 8, "metric": 2}],
+ "demands": [{"from": "e", "to": "w", "volume": 6}, {"from": "s", "to": "w", "volume": 7}],
+ "matrices": [{"id": "evening", "demands": [{"from": "w", "to": "c", "volume": 8},
+                                            {"from": "c", "to": "w", "volume": 6}]}]
+}"#;
+
+/// One pair's steered model, written here from the contract ("Routing as deployed"):
+/// Dijkstra on the metrics of the surviving links, one unit of a leg split equally per hop
+/// over the equal-cost next hops, candidates the surviving sites that process or may buy,
+/// one variable per demand and candidate over both legs.
+struct PairModel {
+    /// Per demand: (candidate site, per-arc load of one unit) pairs, and the demand's cap.
+    demands: Vec<(Vec<(usize, Vec<f64>)>, f64)>,
+    /// Capacity of each surviving arc.
+    arc_capacity: Vec<f64>,
+}
+
+fn pair_model(doc: &Value, matrix: &str, failed: &[String]) -> PairModel {
+    let sites: Vec<&str> = doc["sites"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| s["id"].as_str().unwrap())
+        .collect();
+    let idx = |v: &Value| sites.iter().position(|s| v.as_str() == Some(s)).unwrap();
+    let n = sites.len();
+    let down_site: Vec<bool> = sites
+        .iter()
+        .map(|s| failed.contains(&format!("site:{s}")))
+        .collect();
+    // Arcs (from, to, capacity, metric) of the surviving links, both directions.
+    let mut arcs: Vec<(usize, usize, f64, u64)> = Vec::new();
+    for l in doc["links"].as_array().unwrap() {
+        let (a, b) = (idx(&l["from"]), idx(&l["to"]));
+        let id = l["id"].as_str().unwrap();
+        if failed.contains(&format!("link:{id}")) || down_site[a] || down_site[b] {
+            continue;
+        }
+        let (cap, metric) = (
+            l["capacity"].as_f64().unwrap(),
+            l["metric"].as_u64().unwrap(),
+        );
+        arcs.push((a, b, cap, metric));
+        arcs.push((b, a, cap, metric));
+    }
+    const FAR: u64 = u64::MAX;
+    // dist[t][u]: u → t, by Dijkstra from t over reversed arcs (a plain O(n²) scan).
+    let dist: Vec<Vec<u64>> = (0..n)
+        .map(|t| {
+            let mut d = vec![FAR; n];
+            if down_site[t] {
+                return d;
+            }
+            d[t] = 0;
+            let mut done = vec![false; n];
+            while let Some(u) = (0..n)
+                .filter(|&u| !done[u] && d[u] != FAR)
+                .min_by_key(|&u| d[u])
+            {
+                done[u] = true;
+                for &(from, to, _, m) in &arcs {
+                    if to == u && d[u] + m < d[from] {
+                        d[from] = d[u] + m;
+                    }
+                }
+            }
+            d
+        })
+        .collect();
+    let leg = |o: usize, t: usize| -> Vec<f64> {
+        let mut load = vec![0.0; arcs.len()];
+        let mut at = vec![0.0; n];
+        at[o] = 1.0;
+        let mut order: Vec<usize> = (0..n).filter(|&u| dist[t][u] != FAR).collect();
+        order.sort_by_key(|&u| std::cmp::Reverse(dist[t][u]));
+        for u in order {
+            if u == t || at[u] == 0.0 {
+                continue;
+            }
+            let next: Vec<usize> = (0..arcs.len())
+                .filter(|&k| {
+                    let (from, to, _, m) = arcs[k];
+                    from == u && dist[t][to] != FAR && m + dist[t][to] == dist[t][u]
+                })
+                .collect();
+            let share = at[u] / next.len() as f64;
+            for k in next {
+                load[k] += share;
+                at[arcs[k].1] += share;
+            }
+        }
+        load
+    };
+    let site_docs = doc["sites"].as_array().unwrap();
+    let candidate = |v: usize| {
+        !down_site[v]
+            && (site_docs[v]["processing"].as_f64().unwrap_or(0.0) > 0.0
+                || site_docs[v].get("expand_cost").is_some())
+    };
+    let list = if matrix == "base" {
+        &doc["demands"]
+    } else {
+        &doc["matrices"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|m| m["id"] == matrix)
+            .unwrap()["demands"]
+    };
+    let demands = list
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|d| {
+            let (o, t) = (idx(&d["from"]), idx(&d["to"]));
+            if down_site[o] || down_site[t] {
+                return None; // stranded
+            }
+            let cands = (0..n)
+                .filter(|&v| candidate(v) && dist[v][o] != FAR && dist[t][v] != FAR)
+                .map(|v| {
+                    let (a, b) = (leg(o, v), leg(v, t));
+                    (v, a.iter().zip(&b).map(|(x, y)| x + y).collect())
+                })
+                .collect();
+            Some((cands, d["volume"].as_f64().unwrap()))
+        })
+        .collect();
+    PairModel {
+        demands,
+        arc_capacity: arcs.iter().map(|a| a.2).collect(),
+    }
+}
+
+/// Adds one pair's steered rows to an LP under construction: arc rows, demand rows and
+/// site rows `Σ y ≤ processing + add_v`; returns Σ y (the pair's served amount).
+fn add_pair(
+    pv: &mut good_lp::ProblemVariables,
+    rows: &mut Vec<good_lp::Constraint>,
+    m: &PairModel,
+    processing: &[f64],
+    add: &[good_lp::Expression],
+) -> good_lp::Expression {
+    use good_lp::{Expression, variable};
+    let n = processing.len();
+    let mut served = Expression::from(0.0);
+    let mut arc_rows: Vec<Expression> = vec![Expression::from(0.0); m.arc_capacity.len()];
+    let mut site_rows: Vec<Expression> = vec![Expression::from(0.0); n];
+    for (cands, cap) in &m.demands {
+        let mut sum = Expression::from(0.0);
+        for (v, unit) in cands {
+            let y = pv.add(variable().min(0.0).max(*cap));
+            sum += y;
+            site_rows[*v] += y;
+            for (k, &c) in unit.iter().enumerate() {
+                if c > 0.0 {
+                    arc_rows[k] += c * y;
+                }
+            }
+        }
+        served += sum.clone();
+        rows.push(sum.leq(*cap));
+    }
+    for (k, row) in arc_rows.into_iter().enumerate() {
+        rows.push(row.leq(m.arc_capacity[k]));
+    }
+    for (v, row) in site_rows.into_iter().enumerate() {
+        rows.push(row.leq(processing[v] + add[v].clone()));
+    }
+    served
+}
+
+/// The least cost with which every (scenario, matrix) pair of `pairs` reaches the most it
+/// can serve with every site bought out (two LPs per pair for the best, then one LP over
+/// all pairs sharing the purchases), all on microlp.
+fn reference_plan_cost(doc: &Value, pairs: &[(String, Vec<String>)]) -> f64 {
+    use good_lp::{Expression, ProblemVariables, Solution, SolverModel, microlp, variable};
+    let site_docs = doc["sites"].as_array().unwrap();
+    let processing: Vec<f64> = site_docs
+        .iter()
+        .map(|s| s["processing"].as_f64().unwrap_or(0.0))
+        .collect();
+    let cost: Vec<Option<f64>> = site_docs
+        .iter()
+        .map(|s| s["expand_cost"].as_f64())
+        .collect();
+    let max: Vec<f64> = site_docs
+        .iter()
+        .map(|s| s["expand_max"].as_f64().unwrap_or(0.0))
+        .collect();
+    let models: Vec<PairModel> = pairs
+        .iter()
+        .map(|(m, failed)| pair_model(doc, m, failed))
+        .collect();
+    // Best reachable per pair: every expandable site at its maximum.
+    let bought_out: Vec<Expression> = (0..processing.len())
+        .map(|v| Expression::from(if cost[v].is_some() { max[v] } else { 0.0 }))
+        .collect();
+    let best: Vec<f64> = models
+        .iter()
+        .map(|m| {
+            let mut pv = ProblemVariables::new();
+            let mut rows = Vec::new();
+            let served = add_pair(&mut pv, &mut rows, m, &processing, &bought_out);
+            let mut lp = pv.maximise(served.clone()).using(microlp);
+            for r in rows {
+                lp.add_constraint(r);
+            }
+            lp.solve().expect("best reachable solves").eval(&served)
+        })
+        .collect();
+    let mut pv = ProblemVariables::new();
+    let add: Vec<Expression> = (0..processing.len())
+        .map(|v| match cost[v] {
+            Some(_) => Expression::from(pv.add(variable().min(0.0).max(max[v]))),
+            None => Expression::from(0.0),
+        })
+        .collect();
+    let total: Expression = (0..processing.len())
+        .filter_map(|v| cost[v].map(|c| c * add[v].clone()))
+        .sum();
+    let mut rows = Vec::new();
+    for (m, b) in models.iter().zip(&best) {
+        let served = add_pair(&mut pv, &mut rows, m, &processing, &add);
+        // Within 1e-9 of the best: what the simplex's own rounding needs.
+        rows.push(served.geq(b - 1e-9 * b.max(1.0)));
+    }
+    let mut lp = pv.minimise(total.clone()).using(microlp);
+    for r in rows {
+        lp.add_constraint(r);
+    }
+    lp.solve().expect("the plan LP solves").eval(&total)
+}
+
+/// The steered plan over both matrices of PENTAGON (every single link failure and the
+/// baseline) costs what the reference formulation above finds on microlp, and so does each
+/// matrix alone; over both it costs at least what each alone does.
+#[test]
+fn steered_plan_over_two_matrices_matches_a_reference_lp() {
+    let f = TempPath::with_text("routing-matrices-pentagon", PENTAGON);
+    let (_, audit) = audit_json(f.path(), &["--routing", "steered", "--kinds", "links"]);
+    let doc: Value = serde_json::from_str(PENTAGON).unwrap();
+    let pairs_of = |matrix: Option<&str>| -> Vec<(String, Vec<String>)> {
+        scenarios(&audit)
+            .iter()
+            .filter(|sc| matrix.is_none_or(|m| sc["matrix"] == m))
+            .map(|sc| (sc["matrix"].as_str().unwrap().to_string(), failed_of(sc)))
+            .collect()
+    };
+    let mut costs = Vec::new();
+    for (flag, matrix) in [
+        (&["--matrix", "base"][..], Some("base")),
+        (&["--matrix", "evening"][..], Some("evening")),
+        (&[][..], None),
+    ] {
+        let pairs = pairs_of(matrix);
+        assert_eq!(pairs.len(), if matrix.is_some() { 7 } else { 14 });
+        let want = reference_plan_cost(&doc, &pairs);
+        let got = steered_plan_cost(f.path(), flag);
+        assert!(
+            (got - want).abs() <= 1e-6 * want.max(1.0),
+            "{matrix:?}: plan {got}, reference {want}"
+        );
+        costs.push(got);
+    }
+    assert!(costs[2] >= costs[0].max(costs[1]) - 1e-9, "{costs:?}");
+    // Not a formality here: both matrices together need more than either alone.
+    assert!(costs[2] > costs[0].max(costs[1]) + 0.1, "{costs:?}");
+    eprintln!("pentagon steered plans (base, evening, both): {costs:?}");
+}
