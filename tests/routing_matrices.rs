@@ -627,11 +627,14 @@ const PENTAGON: &str = r#"{"name": "pentagon", "unit": "Gbit/s",
 /// over the equal-cost next hops, candidates the surviving sites that process or may buy,
 /// one variable per demand and candidate over both legs.
 struct PairModel {
-    /// Per demand: (candidate site, per-arc load of one unit) pairs, and the demand's cap.
-    demands: Vec<(Vec<(usize, Vec<f64>)>, f64)>,
+    /// Per demand: its candidates and its cap.
+    demands: Vec<(Vec<Candidate>, f64)>,
     /// Capacity of each surviving arc.
     arc_capacity: Vec<f64>,
 }
+
+/// A candidate processing site of a demand and the per-arc load of one unit routed via it.
+type Candidate = (usize, Vec<f64>);
 
 fn pair_model(doc: &Value, matrix: &str, failed: &[String]) -> PairModel {
     let sites: Vec<&str> = doc["sites"]
