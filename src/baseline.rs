@@ -50,7 +50,9 @@ pub fn with_full_baseline(
     full: report::json::Full<'_>,
 ) -> Result<Evaluation> {
     match audit.scenarios.iter().position(Scenario::is_baseline) {
-        Some(i) if audit.eval(i).is_thin(net) => full(audit.outage_of[i]),
+        Some(i) if audit.eval(i).is_thin(net.view(audit.scenarios[i].matrix)) => {
+            full(audit.outage_of[i])
+        }
         Some(i) => Ok(audit.eval(i).clone()),
         None => {
             let down = audit.scenarios.first().map_or(&[][..], |s| &s.down[..]);

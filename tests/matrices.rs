@@ -11,8 +11,6 @@
 
 mod common;
 
-use std::collections::BTreeMap;
-
 use common::json::*;
 use common::*;
 use serde_json::Value;
@@ -57,55 +55,6 @@ const TWO_SITES: &str = r#"{"name": "two-sites", "unit": "Gbit/s",
  "demands": [{"from": "s", "to": "t", "volume": 8}],
  "matrices": [{"id": "evening", "demands": [{"from": "s", "to": "t", "volume": 12}]}]
 }"#;
-
-/// The scenario object with `failed` (any order) under `matrix`.
-fn pair<'a>(doc: &'a Value, names: &[&str], matrix: &str) -> &'a Value {
-    let mut want: Vec<String> = names.iter().map(|n| n.to_string()).collect();
-    want.sort();
-    scenarios(doc)
-        .iter()
-        .find(|sc| {
-            let mut f = failed_of(sc);
-            f.sort();
-            f == want && sc["matrix"] == matrix
-        })
-        .unwrap_or_else(|| panic!("no scenario {names:?} under {matrix}"))
-}
-
-/// The file `text` with `matrices` removed and `demands` replaced by the demands of matrix
-/// `id` (`base`: the file's own).
-fn alone(text: &str, id: &str) -> String {
-    let mut v: Value = serde_json::from_str(text).unwrap();
-    let obj = v.as_object_mut().unwrap();
-    let ms = obj.remove("matrices").unwrap_or(Value::Array(vec![]));
-    if id != "base" {
-        let m = ms
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|m| m["id"] == id)
-            .unwrap()
-            .clone();
-        obj.insert("demands".into(), m["demands"].clone());
-    }
-    serde_json::to_string(&v).unwrap()
-}
-
-/// Per scenario key (sorted failed names joined): (served_required, shortfall).
-fn by_failed(doc: &Value, matrix: Option<&str>) -> BTreeMap<String, (f64, f64)> {
-    scenarios(doc)
-        .iter()
-        .filter(|sc| matrix.is_none_or(|m| sc["matrix"] == m))
-        .map(|sc| {
-            let mut f = failed_of(sc);
-            f.sort();
-            (
-                f.join(","),
-                (num(sc, "served_required"), num(sc, "shortfall")),
-            )
-        })
-        .collect()
-}
 
 /// Each matrix of a file, audited with the others, gives every scenario the
 /// served_required and shortfall of a file whose only `demands` are that matrix.

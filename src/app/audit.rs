@@ -384,7 +384,7 @@ pub(super) fn finish_audit(
     out: &mut dyn Write,
 ) -> Result<Outcome> {
     let baseline = match o.routed {
-        Some(ra) => ra.baseline.eval.clone(),
+        Some(ra) => ra.baseline().routed.eval.clone(),
         None => with_full_baseline(net, audit, full)?,
     };
     let cands = expand::Candidates::of(net);

@@ -82,13 +82,6 @@ pub(super) fn scenario_list<'a>(
     fail: Option<&str>,
 ) -> Result<Scenarios<'a>> {
     let down = down_for(net, o)?;
-    if o.routing.is_some() && net.matrix_count() > 1 {
-        return Err(Error::Usage(
-            "--routing nearest|steered with several traffic matrices is not supported yet; \
-             use --routing best, or a file per matrix"
-                .into(),
-        ));
-    }
     let list = scenarios_for(net, o.depth, &o.kinds, fail, &down)?;
     Ok(under_matrices(
         net,

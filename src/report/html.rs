@@ -743,16 +743,23 @@ pub fn html(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
         write!(o, "<tr><td>{}</td><td>{}</td></tr>", esc(&k), esc(&v))?;
     }
     if let Some(ra) = r.routed {
-        let b = &ra.baseline;
-        write!(
-            o,
-            "<tr><td>routing</td><td>{} (as deployed); baseline serves {} {u}, the best \
-             re-route {} {u}; largest link utilisation under the offered load {}</td></tr>",
-            esc(ra.mode.name()),
-            num(b.eval.served_required),
-            num(ra.baseline_best.served_required),
-            esc(&super::routing::util_text(b.offered.max_link_util))
-        )?;
+        for b in &ra.baselines {
+            let under = if r.several_matrices() {
+                format!(" under matrix {}", r.net.matrix_id(b.matrix))
+            } else {
+                String::new()
+            };
+            write!(
+                o,
+                "<tr><td>routing</td><td>{} (as deployed); baseline{} serves {} {u}, the best \
+                 re-route {} {u}; largest link utilisation under the offered load {}</td></tr>",
+                esc(ra.mode.name()),
+                esc(&under),
+                num(b.routed.eval.served_required),
+                num(b.best.served_required),
+                esc(&super::routing::util_text(b.routed.offered.max_link_util))
+            )?;
+        }
     }
     o.write_str("</tbody></table>\n<h2>Assumptions of the model</h2>\n<ul>")?;
     for a in ASSUMPTIONS {

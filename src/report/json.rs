@@ -531,7 +531,9 @@ impl LazyScenarios<'_> {
         let k = self.audit.outage_of[i];
         let held = self.audit.eval(i);
         let fetched;
-        let e = if held.is_thin(self.net) {
+        // Thin against its own matrix's demands (a matrix may hold more or fewer demands
+        // than `base`).
+        let e = if held.is_thin(self.net.view(self.audit.scenarios[i].matrix)) {
             fetched = (self.full)(k)?;
             &fetched
         } else {

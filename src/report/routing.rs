@@ -74,9 +74,11 @@ fn describe(mode: Mode) -> &'static str {
     }
 }
 
-/// The routing section of the audit report: baseline, per-scenario comparison with the
-/// best re-route, overloads under the offered load, traffic moved by each failure, and the
-/// failures that hurt only under the deployed routing.
+/// The routing section of the audit report: baseline (one line per traffic matrix when the
+/// file has `matrices`), per-scenario comparison with the best re-route (each scenario
+/// once, under its worst matrix, with several matrices), overloads under the offered load,
+/// traffic moved by each failure (against its own matrix's baseline), and the failures that
+/// hurt only under the deployed routing. O(S log S) for S scenarios.
 pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
     let (net, top) = (model.net, model.top);
     let u = &net.unit;
@@ -84,24 +86,40 @@ pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
     let audit = &ra.audit;
     let mut out = String::new();
     let _ = writeln!(out, "Routing as deployed ({m}): {}.", describe(ra.mode));
-    let b = &ra.baseline;
-    let _ = writeln!(
-        out,
-        "Baseline: {m} serves {} of {} {u} required ({}); the best re-route serves {}. \
-         Offered load (every demand's required on the nearest routes): largest link \
-         utilisation {}, largest site utilisation {}; overloaded: {}.",
-        num(b.eval.served_required),
-        num(b.eval.surviving_required),
-        percent(b.eval.served_required, b.eval.surviving_required),
-        num(ra.baseline_best.served_required),
-        util_text(b.offered.max_link_util),
-        util_text(b.offered.max_site_util),
-        first_k(overloaded_names(net, &b.offered), CELL_ITEMS),
-    );
+    let several = model.several_matrices();
+    for b in &ra.baselines {
+        let under = if several {
+            format!(" under matrix {}", net.matrix_id(b.matrix))
+        } else {
+            String::new()
+        };
+        let (e, o) = (&b.routed.eval, &b.routed.offered);
+        let _ = writeln!(
+            out,
+            "Baseline{under}: {m} serves {} of {} {u} required ({}); the best re-route serves \
+             {}. Offered load (every demand's required on the nearest routes): largest link \
+             utilisation {}, largest site utilisation {}; overloaded: {}.",
+            num(e.served_required),
+            num(e.surviving_required),
+            percent(e.served_required, e.surviving_required),
+            num(b.best.served_required),
+            util_text(o.max_link_util),
+            util_text(o.max_site_util),
+            first_k(overloaded_names(net, o), CELL_ITEMS),
+        );
+    }
     let order = &model.order;
+    // With several matrices each scenario is listed once, under its worst matrix (the first
+    // of its pairs in the worst-first order), as in the audit's own table.
+    let mut seen: std::collections::HashSet<&[String]> = Default::default();
+    let rows: Vec<crate::scenario::ScenarioId> = order
+        .iter()
+        .copied()
+        .filter(|&i| !several || seen.insert(&audit.scenarios[i].failed[..]))
+        .collect();
     // Worst first, without a rank column: the width goes to the names.
-    let mut t = screen::table(&[
-        "failed".to_string(),
+    let mut header = vec!["failed".to_string()];
+    header.extend([
         format!("served, {m} ({u})"),
         format!("served, best re-route ({u})"),
         format!("win-back ({u})"),
@@ -110,11 +128,13 @@ pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
         "overloaded".to_string(),
         "traffic moved onto".to_string(),
     ]);
-    for &i in order.iter().take(top) {
+    let mut t = screen::table(&header);
+    for &i in rows.iter().take(top) {
         let k = audit.outage_of[i];
         let e = &audit.evaluations[k];
         let o = &ra.offered[k];
-        let moved: Vec<String> = routing::moved_onto(&b.offered, o, e.surviving_required)
+        let base = &ra.baseline_under(audit.scenarios[i].matrix).routed.offered;
+        let moved: Vec<String> = routing::moved_onto(base, o, e.surviving_required)
             .iter()
             .map(|&(a, d)| {
                 let arc = &net.arcs[a];
@@ -126,8 +146,9 @@ pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
                 )
             })
             .collect();
-        t.add_row(vec![
-            Cell::new(audit.scenarios[i].display_name()),
+        // With several matrices the name says which: "site:x under matrix evening-peak".
+        let mut row = vec![Cell::new(audit.scenarios[i].display_name())];
+        row.extend([
             Cell::new(num(e.served_required)),
             Cell::new(num(ra.best[k].served_required)),
             Cell::new(num(ra.recoverable(k.0))),
@@ -136,15 +157,27 @@ pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
             Cell::new(first_k(overloaded_names(net, o), CELL_ITEMS)),
             Cell::new(first_k(moved, CELL_ITEMS)),
         ]);
+        t.add_row(row);
     }
     screen::right(&mut t, &[1, 2, 3, 4, 5]);
-    let t = screen::render(&mut t, &[6, 7]);
+    // A name that carries its matrix wraps at its spaces (between the scenario and its
+    // matrix); without matrices the names stay on one line, as before.
+    let t = if several {
+        screen::render(&mut t, &[0, 6, 7])
+    } else {
+        screen::render(&mut t, &[6, 7])
+    };
     let _ = writeln!(
         out,
         "\nWorst {} of {} under {m} routing, beside the best re-route \
-         (win-back = what steering or re-optimisation would recover):\n{t}",
-        top.min(order.len()),
-        super::count(order.len(), "scenario")
+         (win-back = what steering or re-optimisation would recover{}):\n{t}",
+        top.min(rows.len()),
+        super::count(order.len(), "scenario"),
+        if several {
+            "; each scenario once, under its worst matrix"
+        } else {
+            ""
+        }
     );
     let only: Vec<String> = order
         .iter()
@@ -240,19 +273,19 @@ pub fn audit_json<'a>(
     let (net, audit) = (model.net, &ra.audit);
     let mut doc = super::json::audit_json_with(model, closing);
     doc.routing = ra.mode.name();
-    let base = &ra.baseline.offered;
+    let first = ra.baseline_under(audit.baseline_matrix());
     doc.baseline.routed = Some(routed_fields(
         net,
-        base,
-        base,
-        &ra.baseline.eval,
-        &ra.baseline_best,
+        &first.routed.offered,
+        &first.routed.offered,
+        &first.routed.eval,
+        &first.best,
     ));
     doc.scenarios.patch(Box::new(move |i, s| {
         let k = audit.outage_of[i];
         s.routed = Some(routed_fields(
             net,
-            base,
+            &ra.baseline_under(audit.scenarios[i].matrix).routed.offered,
             &ra.offered[k],
             &audit.evaluations[k],
             &ra.best[k],

@@ -51,13 +51,15 @@ fn allows(cap: f64, load: f64) -> f64 {
     }
 }
 
-/// The headroom of `outage` under the routing `model`: the outage's trees (the baseline's
+/// The headroom of `outage` under the routing `model`, on its traffic matrix's view
+/// ([`Network::view`]): the outage's trees (the baseline's
 /// where the failure does not touch them), its routes, then [`headroom`].
 pub fn of_outage(
     model: &super::Model,
     net: &Network,
     outage: &crate::scenario::Outage,
 ) -> Result<Headroom> {
+    let net = net.view(outage.matrix);
     let trees = model.trees.for_outage(net, outage);
     let routes = super::routes(net, &trees, &super::processing_sites(net, outage));
     headroom(net, &routes, model.mode)

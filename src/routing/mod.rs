@@ -393,12 +393,14 @@ pub struct Routed {
     pub trees_recomputed: usize,
 }
 
-/// Evaluates `outage` under `mode`, reusing the baseline trees `base` where the failure
-/// does not touch them. One LP for served_required, a second for throughput only when
+/// Evaluates `outage` under `mode` (on its traffic matrix's view, [`Network::view`]),
+/// reusing the baseline trees `base` where the failure does not touch them (trees depend on
+/// the topology and the metrics only, so every matrix shares them). One LP for served_required, a second for throughput only when
 /// some surviving demand's volume exceeds its required part; both end in
 /// [`solve::finish_with`] like every engine's. Cost: the trees touched by the failure
 /// (Dijkstra each), the legs of the demands, and one or two small packing LPs.
 pub fn evaluate(net: &Network, base: &Trees, outage: &Outage, mode: Mode) -> Result<Routed> {
+    let net = net.view(outage.matrix);
     let trees = base.for_outage(net, outage);
     let routes = routes(net, &trees, &processing_sites(net, outage));
     Ok(Routed {
@@ -408,7 +410,8 @@ pub fn evaluate(net: &Network, base: &Trees, outage: &Outage, mode: Mode) -> Res
     })
 }
 
-/// [`evaluate`] once the routes of `outage` are known: the fixed-route LPs verified
+/// [`evaluate`] once the routes of `outage` are known (`net` is the outage's matrix view,
+/// as [`routes`] was given): the fixed-route LPs verified
 /// (`verify_fixed`) and finished by [`solve::finish_with`], with the demands whose
 /// routes reach no processing site as cut off. The evaluation carries no proof: a
 /// journal's re-check ([`solve::recheck`]) is defined for the best re-route only.
@@ -477,15 +480,43 @@ pub struct RoutedAudit {
     pub best: Vec<Evaluation>,
     /// Per outage: the offered load on the nearest routes.
     pub offered: Vec<Offered>,
-    /// The baseline (the elements every scenario keeps down, `--down`; else the intact
-    /// network): routed, best re-route and offered load.
-    pub baseline: Routed,
-    pub baseline_best: Evaluation,
+    /// Per traffic matrix the run evaluates, in the order the scenarios first name them
+    /// (one entry, matrix 0, for a file without `matrices`): the baseline (the elements
+    /// every scenario keeps down, `--down`; else the intact network) under that matrix.
+    /// Never empty.
+    pub baselines: Vec<RoutedBaseline>,
     /// The routing model the audit was evaluated with (its baseline trees).
     pub model: Model,
 }
 
+/// The baseline of one traffic matrix under a deployed routing: routed, best re-route and
+/// offered load. The routes are those of the intact (or `--down`) network: they depend on
+/// the topology, the metrics and which sites process, never on the matrix; what differs
+/// per matrix is the load put on them.
+#[derive(Debug, Clone)]
+pub struct RoutedBaseline {
+    /// The traffic matrix ([`Network::view`]).
+    pub matrix: usize,
+    pub routed: Routed,
+    pub best: Evaluation,
+}
+
 impl RoutedAudit {
+    /// The baseline of the run's first matrix (the only one without `matrices`): what a
+    /// report shows as "the" baseline, as the best re-route's audit does. O(1).
+    pub fn baseline(&self) -> &RoutedBaseline {
+        &self.baselines[0]
+    }
+
+    /// The baseline of matrix `m` (the first matrix's when the run does not evaluate `m`,
+    /// which no scenario of the run names). O(matrices).
+    pub fn baseline_under(&self, m: usize) -> &RoutedBaseline {
+        self.baselines
+            .iter()
+            .find(|b| b.matrix == m)
+            .unwrap_or(&self.baselines[0])
+    }
+
     /// Best re-route served_required minus routed served_required of outage `k` (≥ 0):
     /// what steering or re-optimisation would recover.
     pub fn recoverable(&self, k: usize) -> f64 {
@@ -525,8 +556,9 @@ pub fn run(
 }
 
 /// The routed `audit` (evaluated by `model`) with what the comparison shows beside it:
-/// the best re-route of each outage (`with_best`), the offered load on the nearest routes,
-/// and the baseline (what every scenario keeps down, `--down`, as for the best re-route).
+/// the best re-route of each outage (`with_best`), the offered load on the nearest routes
+/// (each outage on its matrix's view), and the baseline of every matrix the run evaluates
+/// (what every scenario keeps down, `--down`, as for the best re-route).
 /// Cost: one best re-route solve and one route computation per outage, in parallel.
 pub fn beside(
     net: &Network,
@@ -542,38 +574,55 @@ pub fn beside(
         audit.evaluations.clone()
     };
     let offered_of = |o: &Outage| {
-        let trees = model.trees.for_outage(net, o);
-        offered(net, &routes(net, &trees, &processing_sites(net, o)))
+        let view = net.view(o.matrix);
+        let trees = model.trees.for_outage(view, o);
+        offered(view, &routes(view, &trees, &processing_sites(view, o)))
     };
     let offered: Vec<Offered> = audit::par_map(outages, opts, "routing", |o| Ok(offered_of(o)))?;
     let down = audit.scenarios.first().map_or(&[][..], |sc| &sc.down[..]);
-    let base_outage = Scenario::baseline().with_down(down).outage(net);
-    let (baseline, baseline_best) = match outages.iter().position(|o| *o == base_outage) {
-        Some(k) => (
-            Routed {
-                eval: audit.evaluations[k].clone(),
-                offered: offered[k].clone(),
-                trees_recomputed: 0,
-            },
-            best[k].clone(),
-        ),
-        None => {
-            let r = evaluate(net, &model.trees, &base_outage, model.mode)?;
-            let b = if with_best {
-                solve::evaluate(net, &base_outage)?
-            } else {
-                r.eval.clone()
-            };
-            (r, b)
+    let mut matrices: Vec<usize> = Vec::new();
+    for sc in &audit.scenarios {
+        if !matrices.contains(&sc.matrix) {
+            matrices.push(sc.matrix);
         }
-    };
+    }
+    if matrices.is_empty() {
+        matrices.push(0);
+    }
+    let mut baselines = Vec::with_capacity(matrices.len());
+    for m in matrices {
+        let base_outage = Scenario::baseline().with_down(down).under(m).outage(net);
+        let (routed, best_eval) = match outages.iter().position(|o| *o == base_outage) {
+            Some(k) => (
+                Routed {
+                    eval: audit.evaluations[k].clone(),
+                    offered: offered[k].clone(),
+                    trees_recomputed: 0,
+                },
+                best[k].clone(),
+            ),
+            None => {
+                let r = evaluate(net, &model.trees, &base_outage, model.mode)?;
+                let b = if with_best {
+                    solve::evaluate(net, &base_outage)?
+                } else {
+                    r.eval.clone()
+                };
+                (r, b)
+            }
+        };
+        baselines.push(RoutedBaseline {
+            matrix: m,
+            routed,
+            best: best_eval,
+        });
+    }
     Ok(RoutedAudit {
         mode: model.mode,
         audit,
         best,
         offered,
-        baseline,
-        baseline_best,
+        baselines,
         model,
     })
 }
@@ -608,6 +657,7 @@ impl Evaluator for Model {
     /// fixed-route LPs verified and finished ([`evaluate_routes`]). No warm start: the
     /// models are small. Cost: as [`evaluate`] without the offered load.
     fn evaluate(&self, net: &Network, outage: &Outage, _: Option<&Warm>) -> Result<Evaluated> {
+        let net = net.view(outage.matrix);
         let trees = self.trees.for_outage(net, outage);
         let routes = routes(net, &trees, &processing_sites(net, outage));
         Ok(Evaluated::cold(evaluate_routes(
@@ -631,6 +681,7 @@ impl Evaluator for Model {
         if self.mode == Mode::Nearest {
             return None;
         }
+        let net = net.view(outage.matrix);
         let alive = outage.site_alive(net);
         let eligible: Vec<bool> = (0..net.sites.len())
             .map(|v| alive[v] && (net.sites[v].processing > 0.0 || add[v].is_some()))

@@ -206,3 +206,58 @@ pub fn ring_net(n: usize) -> String {
         n / 2
     )
 }
+
+// Files with several traffic matrices (`matrices`), shared by tests/matrices.rs and
+// tests/routing_matrices.rs.
+
+/// The scenario object with `failed` (any order) under `matrix`.
+pub fn pair<'a>(doc: &'a Value, names: &[&str], matrix: &str) -> &'a Value {
+    let mut want: Vec<String> = names.iter().map(|n| n.to_string()).collect();
+    want.sort();
+    scenarios(doc)
+        .iter()
+        .find(|sc| {
+            let mut f = failed_of(sc);
+            f.sort();
+            f == want && sc["matrix"] == matrix
+        })
+        .unwrap_or_else(|| panic!("no scenario {names:?} under {matrix}"))
+}
+
+/// The file `text` with `matrices` removed and `demands` replaced by the demands of matrix
+/// `id` (`base`: the file's own).
+pub fn alone(text: &str, id: &str) -> String {
+    let mut v: Value = serde_json::from_str(text).unwrap();
+    let obj = v.as_object_mut().unwrap();
+    let ms = obj.remove("matrices").unwrap_or(Value::Array(vec![]));
+    if id != "base" {
+        let m = ms
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|m| m["id"] == id)
+            .unwrap()
+            .clone();
+        obj.insert("demands".into(), m["demands"].clone());
+    }
+    serde_json::to_string(&v).unwrap()
+}
+
+/// Per scenario key (sorted failed names joined): (served_required, shortfall).
+pub fn by_failed(
+    doc: &Value,
+    matrix: Option<&str>,
+) -> std::collections::BTreeMap<String, (f64, f64)> {
+    scenarios(doc)
+        .iter()
+        .filter(|sc| matrix.is_none_or(|m| sc["matrix"] == m))
+        .map(|sc| {
+            let mut f = failed_of(sc);
+            f.sort();
+            (
+                f.join(","),
+                (num(sc, "served_required"), num(sc, "shortfall")),
+            )
+        })
+        .collect()
+}
