@@ -185,3 +185,8 @@ pub const SNAP_UP_TOL: f64 = 1e-6;
 /// which may sit up to [`PROOF_GAP_TOL`] outside the true optimum, could fall just outside
 /// the interval and a scenario that ties the N-th worst would not be solved exactly.
 pub const SCREEN_TOL: f64 = 1e-6;
+
+/// Relative raise of every bought function amount (service chains) per top-up round when
+/// the purchase re-solved misses its best reachable value; without it a purchase that the
+/// interior point left a hair short would be reported unverified instead of being raised.
+pub const CHAIN_RAISE: f64 = 1e-6;
