@@ -190,3 +190,10 @@ pub const SCREEN_TOL: f64 = 1e-6;
 /// the purchase re-solved misses its best reachable value; without it a purchase that the
 /// interior point left a hair short would be reported unverified instead of being raised.
 pub const CHAIN_RAISE: f64 = 1e-6;
+
+/// Relative distance within which a bought function amount (service chains) is tried at
+/// the nearest decimal with five digits below the largest amount's leading digit (2.9999958
+/// → 3); the plainer purchase is kept only when its re-solve reaches what is asked of it.
+/// Without it the interior point's noise (about 1e-6 relative on purchase LPs) would be
+/// printed and written into `--apply`.
+pub const CHAIN_PLAIN_TOL: f64 = 1e-5;

@@ -42,7 +42,7 @@ use crate::solve::chain;
 use crate::solve::evaluator::served_at_least;
 use crate::solve::lp::{self, Lp, Sense};
 use crate::solve::{Evaluation, Surviving, TOL};
-use crate::tol::{CHAIN_RAISE, COST_TOL, HOLD_RETRY, HOLD_TOL};
+use crate::tol::{CHAIN_PLAIN_TOL, CHAIN_RAISE, COST_TOL, HOLD_RETRY, HOLD_TOL};
 
 /// Where function capacity may be bought: the slots and their costs and limits.
 #[derive(Debug, Clone, PartialEq)]
@@ -252,17 +252,44 @@ fn served_model(
 }
 
 /// `x`'s purchase per slot: clamped into `[0, max]`, noise below [`TOL`] of `scale`
-/// dropped, then snapped up ([`snap_up`]) within `budget`. O(slots).
-fn units_of(offer: &Offer, buy: &[usize], x: &[f64], scale: f64, budget: Option<f64>) -> Vec<f64> {
-    let units: Vec<f64> = buy
-        .iter()
+/// dropped. O(slots).
+fn units_of(offer: &Offer, buy: &[usize], x: &[f64], scale: f64) -> Vec<f64> {
+    buy.iter()
         .enumerate()
         .map(|(s, &var)| {
             let u = x[var].clamp(0.0, offer.cands.max[s]);
             if u <= TOL * scale { 0.0 } else { u }
         })
-        .collect();
-    snap_up(&offer.cands, units, budget)
+        .collect()
+}
+
+/// `units` with each amount at the nearest decimal with five digits below the largest
+/// amount's leading digit, when that is within [`CHAIN_PLAIN_TOL`] (relative) and within
+/// the slot's limit; else unchanged. The caller keeps the result only when its re-solve
+/// serves what was asked. O(slots).
+fn plain(offer: &Offer, units: &[f64]) -> Vec<f64> {
+    let largest = units.iter().copied().fold(0.0, f64::max);
+    if largest <= 0.0 {
+        return units.to_vec();
+    }
+    let decimals = (5 - largest.log10().floor() as i64).clamp(0, 17) as usize;
+    units
+        .iter()
+        .enumerate()
+        .map(|(s, &u)| {
+            // Decimal rounding through text: `3.00000` reads back as exactly 3.
+            let r: f64 = format!("{u:.decimals$}").parse().unwrap_or(u);
+            if u > 0.0
+                && (r - u).abs() <= CHAIN_PLAIN_TOL * u
+                && r <= offer.cands.max[s]
+                && r >= 0.0
+            {
+                r
+            } else {
+                u
+            }
+        })
+        .collect()
 }
 
 /// Holds an earlier phase's optimum in `model`: `Σ coeffs ≥ value − slack` (maximised
@@ -442,8 +469,14 @@ pub fn close(
     let first = lp::solve(&model)?;
     let dual_bound = model.dual_objective(&first);
     let (sol, _) = finish_phases(&mut model, &buy, offer, first, true)?;
-    let units = units_of(offer, &buy, &sol.x, scale, None);
-    let (units, after) = top_up(net, offer, outage, best, units)?;
+    let raw = units_of(offer, &buy, &sol.x, scale);
+    let tidy = plain(offer, &raw);
+    let after = evaluate_with(net, offer, outage, &tidy)?;
+    let (units, after) = if reaches(&after, best) {
+        (tidy, after)
+    } else {
+        top_up(net, offer, outage, best, snap_up(&offer.cands, raw, None))?
+    };
     Ok(Some(Closing {
         cost: offer.cands.cost_of(&units),
         add: offer.site_totals(net, &units),
@@ -512,7 +545,24 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
             chain::evaluate(&planned, &audit.outages[k])
         })
     };
-    let mut gained = verify(&units, &gainable)?;
+    // The plainer purchase when it serves as much: every gainable outage at its best
+    // (close-all), or within the budget (budget goals; it moves each amount by at most
+    // CHAIN_PLAIN_TOL).
+    let tidy = plain(&offer, &units);
+    let mut gained = verify(&tidy, &gainable)?;
+    let kept = match budget {
+        None => gainable
+            .iter()
+            .zip(&gained)
+            .all(|(&k, e)| reaches(e, bests[k])),
+        Some(b) => offer.cands.cost_of(&tidy) <= b * (1.0 + COST_TOL) + COST_TOL,
+    };
+    if kept {
+        units = tidy;
+    } else {
+        units = snap_up(&offer.cands, units, budget);
+        gained = verify(&units, &gainable)?;
+    }
     if goal == Goal::CloseAll {
         for _ in 0..TOP_UP_ROUNDS {
             let short = gainable
@@ -604,7 +654,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
 
 /// The plan's master over the `gainable` outages: purchase variables shared by one
 /// layered model per outage, solved for `goal` in lexicographic phases. Returns the
-/// purchase per slot (snapped) and the one round. Refused with a usage error past
+/// purchase per slot (as the LP left it, noise dropped) and the one round. Refused with a usage error past
 /// [`TOTAL_MAX_VARS`] variables.
 fn master(
     net: &Network,
@@ -708,11 +758,7 @@ fn master(
             (sol, (all - total).max(0.0))
         }
     };
-    let budget = match goal {
-        Goal::CloseAll => None,
-        Goal::WorstWithin(b) | Goal::TotalWithin(b) => Some(b),
-    };
-    let units = units_of(offer, &buy, &sol.x, scale, budget);
+    let units = units_of(offer, &buy, &sol.x, scale);
     Ok((
         units,
         vec![Round {
