@@ -531,8 +531,13 @@ fn why_of(
     let k = audit.outage_of[i];
     let closing = match closings {
         Some(c) => c[k].clone(),
-        // Purchases of function capacity are not modelled yet: no closing with chains.
-        None if net.chains.is_some() => None,
+        // Service chains buy function capacity.
+        None if net.chains.is_some() => expand::chain_buy::close(
+            net,
+            &audit.outages[k],
+            &audit.evaluations[k],
+            &expand::chain_buy::Offer::of(net),
+        )?,
         None => expand::close(net, &audit.outages[k], &audit.evaluations[k], cands)?,
     };
     Ok(Some((i, closing)))

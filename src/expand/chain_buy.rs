@@ -413,7 +413,7 @@ fn raise(offer: &Offer, units: &mut [f64]) -> bool {
 }
 
 /// Best served_required of `outage` (evaluated as `eval`) with every offered slot that
-/// survives bought as far as it can help ([`Offer::room`]), verified, and the link
+/// survives bought as far as it can help (its limit, at most [`Offer::need`]), verified, and the link
 /// directions whose capacity limits it. Snapped to the whole required demand within
 /// [`TOL`], never below `eval`'s served value. One [`chain::evaluate`].
 pub fn best_reachable(
@@ -440,7 +440,7 @@ pub fn best_reachable(
 /// For one scenario with a shortfall (evaluated as `eval`), the cheapest function
 /// capacity (per site and function, within `offer`) with which served_required reaches
 /// the best value any purchase reaches; `None` without a shortfall. The cost LP (cost
-/// minimised subject to served ≥ best, then the tie-break of [`finish_phases`]) is one
+/// minimised subject to served ≥ best, then the tie-break toward earlier slots) is one
 /// layered model with purchase variables; its purchase is re-solved and raised while
 /// solver noise leaves it short. `Closing::add` holds the units per site (all functions
 /// together), `Closing::functions` each (site, function).

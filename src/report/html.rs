@@ -232,7 +232,7 @@ impl Model<'_> {
                         self.audit.scenarios[i].display_name(),
                         num(self.audit.eval(i).shortfall),
                         num(c.cost),
-                        super::text::additions(self.net, &c.add, 3),
+                        super::text::closing_additions(self.net, c, 3),
                         num(c.not_closable),
                     ]
                 })
@@ -568,7 +568,7 @@ fn why_section(o: &mut String, r: &Report<'_>) {
                 if fixed > 0.0 {
                     esc(&format!(
                         ": add {} (cost {})",
-                        super::text::additions(net, &c.add, net.sites.len()),
+                        super::text::closing_additions(net, c, usize::MAX),
                         num(c.cost)
                     ))
                 } else {

@@ -197,6 +197,16 @@ pub fn function_additions(
     )
 }
 
+/// What a closing buys, as its table cell and sentences write it: the function purchases
+/// (`SITE FUNCTION +UNITS`) of a service-chain closing, else the processing per site; the
+/// `k` largest, the rest counted.
+pub fn closing_additions(net: &Network, c: &crate::expand::Closing, k: usize) -> String {
+    match &c.functions {
+        Some(bought) => function_additions(net, bought, k),
+        None => additions(net, &c.add, k),
+    }
+}
+
 fn link_list(net: &Network, links: &[usize], k: usize) -> String {
     first_k(links.iter().map(|&l| net.links[l].id.clone()), k)
 }

@@ -57,10 +57,7 @@ pub fn closing_report(m: &Model<'_>) -> String {
             Cell::new(audit.scenarios[i].display_name()),
             Cell::new(num(audit.eval(i).shortfall)),
             Cell::new(num(c.cost)),
-            Cell::new(match &c.functions {
-                Some(bought) => function_additions(net, bought, 3),
-                None => additions(net, &c.add, 3),
-            }),
+            Cell::new(closing_additions(net, c, 3)),
             Cell::new(num(c.not_closable)),
             Cell::new(if c.not_closable <= 0.0 {
                 "—".into()
