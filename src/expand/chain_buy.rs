@@ -768,3 +768,38 @@ fn master(
         }],
     ))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The plainer amounts by hand: with 20 the largest, amounts round to 4 decimals
+    /// (five digits below the leading digit of 20), kept when within 1e-5 relative and
+    /// within the limit.
+    #[test]
+    fn plain_amounts() {
+        let net = Network::from_json(
+            r#"{"functions":[{"id":"f","gain":1}],
+                "sites":[{"id":"a","expand":{"f":{"cost":1,"max":3}}},
+                         {"id":"b","expand":{"f":{"cost":1}}},
+                         {"id":"c","expand":{"f":{"cost":1}}},
+                         {"id":"d","expand":{"f":{"cost":1}}}],
+                "links":[{"id":"ab","from":"a","to":"b","capacity":1}],"demands":[]}"#,
+        )
+        .unwrap();
+        let offer = Offer::of(&net);
+        assert_eq!(offer.slots, vec![(0, 0), (1, 0), (2, 0), (3, 0)]);
+        let got = plain(
+            &offer,
+            &[3.0000000000000004, 19.99999981, 2.99999, 0.123456],
+        );
+        // a: 3.0000000000000004 → 3 (within its max 3); b: 19.99999981 → 20 (1e-8 away);
+        // c: 2.99999 is 1e-5 from 3 relative 3.3e-6 → 3; d: 0.123456 → 0.1235 is 3.5e-4
+        // relative away: unchanged.
+        assert_eq!(got, vec![3.0, 20.0, 3.0, 0.123456]);
+        // Up to the limit: 2.9999999 at a (max 3; largest 2.9999999, so 5 decimals) rounds
+        // to 3, which the limit allows.
+        let got = plain(&offer, &[2.9999999, 0.0, 0.0, 0.0]);
+        assert_eq!(got[0], 3.0);
+    }
+}

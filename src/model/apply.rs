@@ -528,6 +528,31 @@ mod tests {
         assert_eq!(out, want);
     }
 
+    /// Function purchases (service chains): an existing member is raised, a missing one is
+    /// added to the site's `functions` (after its last member, or into an empty `{}`), a
+    /// site without `functions` gets the object beside its `id` (with the separator the
+    /// object uses between its members, here `,`), and a finite
+    /// `expand.F.max` shrinks; every other byte is kept. Expected text written by hand:
+    /// x buys fw 2 (4 → 6, max 5 → 3) and dpi 1.5 (new), y buys dpi 1 into `{}`, z buys
+    /// fw 0.25 (no `functions`; its `expand` has no max).
+    #[test]
+    fn function_purchases_edit_sites_functions() {
+        let text = r#"{"functions":[{"id":"fw","gain":1},{"id":"dpi","gain":1}],"sites":[
+            {"id":"x", "functions": {"fw": 4}, "expand": {"fw": {"cost": 1, "max": 5}, "dpi": {"cost": 2}}},
+            {"id":"y","functions":{},"expand":{"dpi":{"cost":1,"max":9}}},
+            {"id":"z","expand":{"fw":{"cost":3}}}],
+            "links":[{"id":"xy","from":"x","to":"y","capacity":5}],"demands":[]}"#;
+        let net = Network::from_json(text).unwrap();
+        let add = vec![vec![2.0, 1.5], vec![0.0, 1.0], vec![0.25, 0.0]];
+        let out = with_function_purchase(text, &net, &add).unwrap();
+        let want = r#"{"functions":[{"id":"fw","gain":1},{"id":"dpi","gain":1}],"sites":[
+            {"id":"x", "functions": {"fw": 6, "dpi": 1.5}, "expand": {"fw": {"cost": 1, "max": 3}, "dpi": {"cost": 2}}},
+            {"id":"y","functions":{"dpi": 1},"expand":{"dpi":{"cost":1,"max":8}}},
+            {"id":"z","functions":{"fw": 0.25},"expand":{"fw":{"cost":3}}}],
+            "links":[{"id":"xy","from":"x","to":"y","capacity":5}],"demands":[]}"#;
+        assert_eq!(out, want);
+    }
+
     /// Rust's float formatting gives the shortest digits that read back exactly (its
     /// documented contract); the exponent form is used only for very long numbers.
     #[test]
