@@ -603,6 +603,8 @@ fn random_chain_purchases_match_a_per_demand_reference() {
     let mut rng = StdRng::seed_from_u64(0xB0B5);
     let mut closed = 0;
     let mut planned = 0;
+    // Instances whose plan must serve several outages with one purchase.
+    let mut shared = 0;
     for instance in 0..10 {
         let t = random_net(&mut rng);
         let net = t.to_json();
@@ -632,6 +634,9 @@ fn random_chain_purchases_match_a_per_demand_reference() {
             targets.push((fail, target));
             closed += 1;
         }
+        if targets.len() >= 2 {
+            shared += 1;
+        }
         let (plan, _) = plan_of(&net, &[]);
         let want = if targets.is_empty() {
             0.0
@@ -656,5 +661,6 @@ fn random_chain_purchases_match_a_per_demand_reference() {
         planned += 1;
     }
     assert!(closed >= 5, "the instances exercise closings: {closed}");
+    assert!(shared >= 5, "plans shared among outages: {shared}");
     assert_eq!(planned, 10);
 }
