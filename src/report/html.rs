@@ -559,10 +559,15 @@ fn why_section(o: &mut String, r: &Report<'_>) {
     let grow = match closing {
         Some(c) => {
             let fixed = (c.best - e.served_required).max(0.0);
+            let (what, by) = if c.functions.is_some() {
+                ("Function capacity", "function capacity")
+            } else {
+                ("Processing", "processing")
+            };
             let _ = write!(
                 o,
-                "<li>Processing can fix {} of the {} {u} short{}; {} {u} cannot be closed by \
-                 processing.</li>",
+                "<li>{what} can fix {} of the {} {u} short{}; {} {u} cannot be closed by \
+                 {by}.</li>",
                 num(fixed),
                 num(e.shortfall),
                 if fixed > 0.0 {
