@@ -185,3 +185,15 @@ pub const SNAP_UP_TOL: f64 = 1e-6;
 /// which may sit up to [`PROOF_GAP_TOL`] outside the true optimum, could fall just outside
 /// the interval and a scenario that ties the N-th worst would not be solved exactly.
 pub const SCREEN_TOL: f64 = 1e-6;
+
+/// Relative raise of every bought function amount (service chains) per top-up round when
+/// the purchase re-solved misses its best reachable value; without it a purchase that the
+/// interior point left a hair short would be reported unverified instead of being raised.
+pub const CHAIN_RAISE: f64 = 1e-6;
+
+/// Relative distance within which a bought function amount (service chains) is tried at
+/// the nearest decimal with five digits below the largest amount's leading digit (2.9999958
+/// → 3); the plainer purchase is kept only when its re-solve reaches what is asked of it.
+/// Without it the interior point's noise (about 1e-6 relative on purchase LPs) would be
+/// printed and written into `--apply`.
+pub const CHAIN_PLAIN_TOL: f64 = 1e-5;

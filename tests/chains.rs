@@ -557,9 +557,9 @@ fn check_summarises_functions_and_chains() {
 fn commands_that_do_not_take_chains_yet_say_so() {
     let file = TempPath::with_text("chains-refuse", &two_function_path(8.0, 0.5).to_string());
     for args in [
-        vec!["audit", file.path(), "--close"],
+        vec!["audit", file.path(), "--why"],
         vec!["audit", file.path(), "--routing", "steered"],
-        vec!["plan", file.path()],
+        vec!["plan", file.path(), "--routing", "steered"],
     ] {
         let run = redoubt(&args);
         assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);

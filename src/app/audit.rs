@@ -114,7 +114,6 @@ pub(super) fn run(
                 args.scenarios.routing.is_some(),
                 "--routing nearest|steered",
             ),
-            (args.close, "--close"),
             (args.headroom, "--headroom"),
             (args.why, "--why"),
             (shard.is_some(), "--shard"),
@@ -392,6 +391,11 @@ pub(super) fn finish_audit(
         Some(ra) => &ra.model,
         None => &solve::evaluator::Walks,
     };
+    // Service chains buy function capacity per site and function.
+    let offer = net
+        .chains
+        .as_ref()
+        .map(|_| expand::chain_buy::Offer::of(net));
     let closings = if o.close {
         Some(
             audit::par_map(
@@ -400,7 +404,10 @@ pub(super) fn finish_audit(
                 "closing",
                 |&k| {
                     let (outage, e) = (&audit.outages[k], &audit.evaluations[k]);
-                    expand::close_with(closer, net, outage, e, &cands)
+                    match &offer {
+                        Some(offer) => expand::chain_buy::close(net, outage, e, offer),
+                        None => expand::close_with(closer, net, outage, e, &cands),
+                    }
                 },
             )
             .map_err(interrupted)?,
@@ -524,8 +531,13 @@ fn why_of(
     let k = audit.outage_of[i];
     let closing = match closings {
         Some(c) => c[k].clone(),
-        // Purchases of function capacity are not modelled yet: no closing with chains.
-        None if net.chains.is_some() => None,
+        // Service chains buy function capacity.
+        None if net.chains.is_some() => expand::chain_buy::close(
+            net,
+            &audit.outages[k],
+            &audit.evaluations[k],
+            &expand::chain_buy::Offer::of(net),
+        )?,
         None => expand::close(net, &audit.outages[k], &audit.evaluations[k], cands)?,
     };
     Ok(Some((i, closing)))

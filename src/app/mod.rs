@@ -99,14 +99,16 @@ fn note(r: io::Result<()>) {
     let _ = r;
 }
 
-/// Refuses `what` on a network whose file lists `functions` (service chains): only the
-/// audit's best re-route and `check` take such files so far.
+/// Refuses `what` on a network whose file lists `functions` (service chains): only
+/// `check`, the audit's best re-route (with `--close`) and `plan` (best re-route) take
+/// such files so far.
 pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
     if net.chains.is_some() {
         return Err(Error::Usage(format!(
-            "{what}: the file lists `functions` (service chains), which only `redoubt check` \
-             and `redoubt audit` (best re-route, without --close, --headroom, --why, --shard \
-             or --resume) take so far"
+            "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
+             `redoubt audit` (best re-route, with or without --close; not --routing, \
+             --headroom, --why, --shard, --resume or --engine approx) and `redoubt plan` \
+             (best re-route; not --routing or --master walks) take so far"
         )));
     }
     Ok(())

@@ -35,7 +35,12 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
         report::file::check_output("--apply", apply, &[input])?;
     }
     let (net, text) = read_network(input)?;
-    super::chains_refused(&net, "plan")?;
+    if args.scenarios.routing.is_some() {
+        super::chains_refused(&net, "plan --routing")?;
+    }
+    if args.master == expand::Master::Walks {
+        super::chains_refused(&net, "plan --master walks")?;
+    }
     if args.master == expand::Master::Walks && !net.matrices.is_empty() {
         return Err(Error::Usage(
             "--master walks does not take files with `matrices` yet; leave --master out (the \
@@ -59,7 +64,11 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
         None => {}
     }
     let audit = solve_list(&net, list, Engine::Walks, &args.scenarios, opts, err)?;
-    let plan = expand::plan_with(&net, &audit, goal, opts, args.master)?;
+    let plan = if net.chains.is_some() {
+        expand::chain_buy::plan(&net, &audit, goal, opts)?
+    } else {
+        expand::plan_with(&net, &audit, goal, opts, args.master)?
+    };
     let doc = PlanReport {
         net: &net,
         audit: &audit,
@@ -83,7 +92,10 @@ pub(super) fn write_plan(
     if let Some(path) = &args.json {
         report::file::write_atomic(path, |w| report::export::Json.write(doc, w))?;
     }
-    write_applied(args, text, doc.net, &doc.plan.add, err)?;
+    match &doc.plan.functions {
+        Some(bought) => write_applied_functions(args, text, doc.net, bought, err)?,
+        None => write_applied(args, text, doc.net, &doc.plan.add, err)?,
+    }
     stdout_result(report::export::Text.write(doc, out))?;
     Ok(Outcome::Ok)
 }
@@ -102,6 +114,34 @@ pub(super) fn write_applied(
         report::file::write_atomic(path, |w| w.write_all(edited.as_bytes()))?;
         if !args.scenarios.quiet {
             note(report::text::note_applied(err, path, add));
+        }
+    }
+    Ok(())
+}
+
+/// `plan --apply OUT` for service chains: the input file with each bought function added
+/// to `sites[].functions` (edited in place), written atomically, and a note on stderr.
+fn write_applied_functions(
+    args: &PlanOptions,
+    text: &str,
+    net: &Network,
+    bought: &[expand::chain_buy::FunctionPurchase],
+    err: &mut dyn Write,
+) -> Result<()> {
+    if let Some(path) = &args.apply {
+        let nf = net.chains.as_ref().map_or(0, |c| c.functions.len());
+        let mut add = vec![vec![0.0; nf]; net.sites.len()];
+        for p in bought {
+            add[p.site][p.function] += p.units;
+        }
+        let edited = model::apply::with_function_purchase(text, net, &add)?;
+        report::file::write_atomic(path, |w| w.write_all(edited.as_bytes()))?;
+        if !args.scenarios.quiet {
+            note(report::text::note_applied_functions(
+                err,
+                path,
+                bought.len(),
+            ));
         }
     }
     Ok(())

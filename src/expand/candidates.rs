@@ -24,6 +24,18 @@ impl Candidates {
     /// The file's candidates, or every site at cost 1 when no site has `expand_cost`.
     /// O(sites).
     pub fn of(net: &Network) -> Candidates {
+        if let Some(ch) = &net.chains {
+            // Service chains buy function capacity ([`super::chain_buy::Offer`]), never
+            // processing: no site is a processing candidate; `default_costs` says whether
+            // the file's sites offer no function purchase at all.
+            let n = net.sites.len();
+            return Candidates {
+                cost: vec![None; n],
+                max: vec![0.0; n],
+                step: vec![None; n],
+                default_costs: ch.expand.iter().flatten().all(Option::is_none),
+            };
+        }
         if net.sites.iter().all(|s| s.expansion.is_none()) {
             return Candidates {
                 cost: vec![Some(1.0); net.sites.len()],

@@ -18,8 +18,11 @@ use crate::solve::{Evaluation, TOL};
 pub struct Closing {
     /// Σ cost · add.
     pub cost: f64,
-    /// Units added per site.
+    /// Units added per site (with service chains: every function bought there together).
     pub add: Vec<f64>,
+    /// With service chains: each function bought, per site ([`super::chain_buy`]);
+    /// `None` for processing purchases.
+    pub functions: Option<Vec<super::chain_buy::FunctionPurchase>>,
     /// The best served_required any expansion reaches.
     pub best: f64,
     /// Surviving required − best: the part links or connectivity hold back.
@@ -57,6 +60,7 @@ impl Closing {
         Closing {
             cost: 0.0,
             add: vec![0.0; net.sites.len()],
+            functions: None,
             best: eval.served_required,
             not_closable: eval.shortfall,
             binding_links: links_of(net, &binding_arcs),
@@ -195,6 +199,7 @@ pub fn close_with(
         verified: after.proven() && reaches(&after, best),
         served_after: after.served_required,
         add: add_units,
+        functions: None,
         best,
         not_closable: (required - best).max(0.0),
         binding_links: links_of(net, &binding_arcs),

@@ -24,6 +24,7 @@
 //! verified for a scenario by solving that scenario with the plan applied.
 
 mod candidates;
+pub mod chain_buy;
 mod close;
 mod generate;
 mod master;
@@ -116,6 +117,10 @@ pub struct Plan {
     /// When some site buys in modules (`expand_step`): the LP plan before rounding, its
     /// cost, and the gap of the module plan to it.
     pub modules: Option<ModuleRounding>,
+    /// With service chains: each function bought, per site, with its drivers
+    /// ([`chain_buy::plan`]); `add` then holds the units per site, all functions together.
+    /// `None` for processing purchases.
+    pub functions: Option<Vec<chain_buy::FunctionPurchase>>,
 }
 
 /// How a continuous plan became a plan in whole modules.
@@ -233,6 +238,7 @@ pub fn plan_with(
         drivers: tidied.drivers,
         dropped: tidied.dropped,
         modules,
+        functions: None,
     })
 }
 

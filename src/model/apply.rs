@@ -124,6 +124,176 @@ fn check(before: &str, after: &str, intended: &Network, add: &[f64]) -> Result<(
     Ok(())
 }
 
+/// `s` as a JSON string literal (quoted, escaped). O(len).
+fn json_string(s: &str) -> String {
+    serde_json::to_string(s).expect("a string always serialises")
+}
+
+/// The network file's JSON `text` (already read into `net`, a network with service
+/// chains) with `add[v][f]` units of function `f` bought at site `v`: the site's
+/// `functions.F` becomes its capacity + `add[v][f]` (exactly what
+/// [`Network::with_added_functions`] solves; the member is inserted when the site had
+/// none of the function, and a `functions` object beside `id` when the site had none),
+/// and a finite `expand.F.max` shrinks by what was bought (never below 0). Every other
+/// byte is kept. Checked as [`with_purchase`] is: the result reads back as exactly the
+/// intended network, and as JSON equals the input with only the bought sites'
+/// `functions` and `expand` changed. Linear in the size of the document.
+pub fn with_function_purchase(text: &str, net: &Network, add: &[Vec<f64>]) -> Result<String> {
+    let ch = net
+        .chains
+        .as_ref()
+        .ok_or_else(|| Error::Internal("--apply: function purchase without `functions`".into()))?;
+    let (bom, body) = match text.strip_prefix(BOM) {
+        Some(rest) => (BOM, rest),
+        None => ("", text),
+    };
+    let broken = |what: &str| Error::Input(format!("--apply: the input {what}"));
+    let top = Scanner::at(body, 0).object()?;
+    let sites_span = top
+        .get(body, "sites")
+        .ok_or_else(|| broken("has no `sites` list"))?;
+    let entries = Scanner::at(body, sites_span.start).array()?;
+    let mut edits: Vec<(Range<usize>, String)> = Vec::new();
+    let mut intended = net.clone();
+    let ic = intended.chains.as_mut().expect("cloned with chains");
+    for (v, (more, site)) in add.iter().zip(&net.sites).enumerate() {
+        let bought: Vec<(usize, f64)> = more
+            .iter()
+            .copied()
+            .enumerate()
+            .filter(|&(_, a)| a > 0.0)
+            .collect();
+        if bought.is_empty() {
+            continue;
+        }
+        let not_site = || broken(&format!("has no sites[{v}] with id \"{}\"", site.id));
+        let span = entries.get(v).ok_or_else(not_site)?;
+        let obj = Scanner::at(body, span.start).object()?;
+        let id = obj.member(body, "id").ok_or_else(not_site)?;
+        if serde_json::from_str::<String>(&body[id.value.clone()]).ok() != Some(site.id.clone()) {
+            return Err(not_site());
+        }
+        for &(f, a) in &bought {
+            ic.capacity[v][f] = ch.capacity[v][f] + a;
+        }
+        let name = |f: usize| ch.functions[f].id.as_str();
+        match obj.member(body, "functions") {
+            Some(m) => {
+                let fobj = Scanner::at(body, m.value.start).object()?;
+                let mut inserted = String::new();
+                for &(f, _) in &bought {
+                    let new = ic.capacity[v][f];
+                    match (fobj.member(body, name(f)), fobj.members.last()) {
+                        (Some(fm), _) => edits.push((fm.value.clone(), number_text(new))),
+                        (None, Some(last)) => {
+                            inserted.push_str(&fobj.new_member(body, last, name(f), new))
+                        }
+                        (None, None) => {
+                            if !inserted.is_empty() {
+                                inserted.push_str(", ");
+                            }
+                            inserted.push_str(&format!(
+                                "{}: {}",
+                                json_string(name(f)),
+                                number_text(new)
+                            ));
+                        }
+                    }
+                }
+                if !inserted.is_empty() {
+                    match fobj.members.last() {
+                        Some(last) => edits.push((last.value.end..last.value.end, inserted)),
+                        None => edits.push((m.value.clone(), format!("{{{inserted}}}"))),
+                    }
+                }
+            }
+            None => {
+                let members: Vec<String> = bought
+                    .iter()
+                    .map(|&(f, _)| {
+                        format!(
+                            "{}: {}",
+                            json_string(name(f)),
+                            number_text(ic.capacity[v][f])
+                        )
+                    })
+                    .collect();
+                let value = format!("{{{}}}", members.join(", "));
+                edits.push((
+                    id.value.end..id.value.end,
+                    obj.new_member_text(body, id, "functions", &value),
+                ));
+            }
+        }
+        if let Some(e) = obj.member(body, "expand") {
+            let eobj = Scanner::at(body, e.value.start).object()?;
+            for &(f, a) in &bought {
+                let Some(fm) = eobj.member(body, name(f)) else {
+                    continue;
+                };
+                let inner = Scanner::at(body, fm.value.start).object()?;
+                if let Some(mm) = inner.member(body, "max")
+                    && let Ok(max) = body[mm.value.clone()].trim().parse::<f64>()
+                    && max.is_finite()
+                {
+                    let left = (max - a).max(0.0) + 0.0; // + 0.0: never -0
+                    edits.push((mm.value.clone(), number_text(left)));
+                    if let Some(x) = ic.expand[v][f].as_mut() {
+                        x.max = left;
+                    }
+                }
+            }
+        }
+    }
+    let chains = intended.chains.clone();
+    for m in &mut intended.matrices {
+        let mut v = (*m.view).clone();
+        if v.chains.is_some() {
+            v.chains = chains.clone();
+        }
+        m.view = std::sync::Arc::new(v);
+    }
+    edits.sort_by_key(|(r, _)| r.start);
+    let mut out = String::with_capacity(text.len() + 64);
+    out.push_str(bom);
+    let mut at = 0;
+    for (r, new) in &edits {
+        out.push_str(&body[at..r.start]);
+        out.push_str(new);
+        at = r.end;
+    }
+    out.push_str(&body[at..]);
+    let wrong = |why: String| Error::Internal(format!("--apply: the edited file {why}"));
+    let after = &out[bom.len()..];
+    let back = Network::from_json(after).map_err(|e| wrong(format!("does not read back: {e}")))?;
+    if back != intended {
+        return Err(wrong(
+            "does not read back as the network with the purchase".into(),
+        ));
+    }
+    let parse = |t: &str| serde_json::from_str::<Value>(t).map_err(|e| wrong(e.to_string()));
+    let (mut old, new) = (parse(body)?, parse(after)?);
+    for (v, more) in add.iter().enumerate() {
+        if more.iter().all(|a| *a <= 0.0) {
+            continue;
+        }
+        for key in ["functions", "expand"] {
+            if let (Some(o), Some(n)) = (
+                old["sites"][v].as_object_mut(),
+                new["sites"][v].get(key).cloned(),
+            ) {
+                o.insert(key.into(), n);
+            }
+        }
+    }
+    if old != new {
+        return Err(wrong(
+            "changed more than the bought sites' functions".into(),
+        ));
+    }
+    Ok(out)
+}
+
 /// A number as JSON text that reads back as exactly `x` (finite): the shortest round-trip
 /// digits, without an exponent (`43`, `6.5`) unless that would be longer than 21
 /// characters (`1e300`, `1.5e-20`). O(1).
@@ -169,6 +339,12 @@ impl Object {
     /// the separators this object already uses (the gap between two of its members, and
     /// `beside`'s own `": "`), so a pretty-printed object stays pretty.
     fn new_member(&self, text: &str, beside: &Member, name: &str, x: f64) -> String {
+        self.new_member_text(text, beside, name, &number_text(x))
+    }
+
+    /// [`Object::new_member`] with the value given as JSON text `value`; the key is
+    /// written as a JSON string (escaped).
+    fn new_member_text(&self, text: &str, beside: &Member, name: &str, value: &str) -> String {
         let k = self
             .members
             .iter()
@@ -180,7 +356,7 @@ impl Object {
             (None, None) => ", ",
         };
         let colon = &text[beside.key.end..beside.value.start];
-        format!("{gap}\"{name}\"{colon}{}", number_text(x))
+        format!("{gap}{}{colon}{value}", json_string(name))
     }
 }
 
@@ -349,6 +525,31 @@ mod tests {
         let net = Network::from_json(text).unwrap();
         let out = with_purchase(text, &net, &[3.0, 1.0, 2.0]).unwrap();
         let want = "\u{FEFF}{\n  \"sites\": [\n    {\n      \"id\": \"a\",\n      \"processing\": 3,\n      \"notes\": \"}{,\\\"]\"\n    },\n    {\"id\":\"b\", \"processing\":1},\n    {\"x-n\": 12345678901234567890, \"\\u0069d\": \"c\", \"processing\": 2}\n  ],\n  \"links\": [],\n  \"demands\": []\n}\n";
+        assert_eq!(out, want);
+    }
+
+    /// Function purchases (service chains): an existing member is raised, a missing one is
+    /// added to the site's `functions` (after its last member, or into an empty `{}`), a
+    /// site without `functions` gets the object beside its `id` (with the separator the
+    /// object uses between its members, here `,`), and a finite
+    /// `expand.F.max` shrinks; every other byte is kept. Expected text written by hand:
+    /// x buys fw 2 (4 → 6, max 5 → 3) and dpi 1.5 (new), y buys dpi 1 into `{}`, z buys
+    /// fw 0.25 (no `functions`; its `expand` has no max).
+    #[test]
+    fn function_purchases_edit_sites_functions() {
+        let text = r#"{"functions":[{"id":"fw","gain":1},{"id":"dpi","gain":1}],"sites":[
+            {"id":"x", "functions": {"fw": 4}, "expand": {"fw": {"cost": 1, "max": 5}, "dpi": {"cost": 2}}},
+            {"id":"y","functions":{},"expand":{"dpi":{"cost":1,"max":9}}},
+            {"id":"z","expand":{"fw":{"cost":3}}}],
+            "links":[{"id":"xy","from":"x","to":"y","capacity":5}],"demands":[]}"#;
+        let net = Network::from_json(text).unwrap();
+        let add = vec![vec![2.0, 1.5], vec![0.0, 1.0], vec![0.25, 0.0]];
+        let out = with_function_purchase(text, &net, &add).unwrap();
+        let want = r#"{"functions":[{"id":"fw","gain":1},{"id":"dpi","gain":1}],"sites":[
+            {"id":"x", "functions": {"fw": 6, "dpi": 1.5}, "expand": {"fw": {"cost": 1, "max": 3}, "dpi": {"cost": 2}}},
+            {"id":"y","functions":{"dpi": 1},"expand":{"dpi":{"cost":1,"max":8}}},
+            {"id":"z","functions":{"fw": 0.25},"expand":{"fw":{"cost":3}}}],
+            "links":[{"id":"xy","from":"x","to":"y","capacity":5}],"demands":[]}"#;
         assert_eq!(out, want);
     }
 

@@ -79,6 +79,26 @@ impl Chains {
     }
 }
 
+impl super::Network {
+    /// This network with `add[v][f]` units of function `f` bought at site `v` (added to
+    /// its capacity in `sites[].functions`); the network itself when it has no chains.
+    /// Each traffic matrix's view gets the same purchase. O(size of the network).
+    pub fn with_added_functions(&self, add: &[Vec<f64>]) -> super::Network {
+        let mut n = self.clone();
+        if let Some(ch) = n.chains.as_mut() {
+            for (row, more) in ch.capacity.iter_mut().zip(add) {
+                for (c, a) in row.iter_mut().zip(more) {
+                    *c += a;
+                }
+            }
+        }
+        for m in &mut n.matrices {
+            m.view = std::sync::Arc::new(m.view.with_added_functions(add));
+        }
+        n
+    }
+}
+
 fn non_negative(el: &str, field: &str, v: f64) -> Result<f64> {
     if !(v.is_finite() && v >= 0.0) {
         Err(Error::Input(format!(

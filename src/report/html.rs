@@ -232,7 +232,7 @@ impl Model<'_> {
                         self.audit.scenarios[i].display_name(),
                         num(self.audit.eval(i).shortfall),
                         num(c.cost),
-                        super::text::additions(self.net, &c.add, 3),
+                        super::text::closing_additions(self.net, c, 3),
                         num(c.not_closable),
                     ]
                 })
@@ -565,16 +565,21 @@ fn why_section(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
     let grow = match closing {
         Some(c) => {
             let fixed = (c.best - e.served_required).max(0.0);
+            let (what, by) = if c.functions.is_some() {
+                ("Function capacity", "function capacity")
+            } else {
+                ("Processing", "processing")
+            };
             write!(
                 o,
-                "<li>Processing can fix {} of the {} {u} short{}; {} {u} cannot be closed by \
-                 processing.</li>",
+                "<li>{what} can fix {} of the {} {u} short{}; {} {u} cannot be closed by \
+                 {by}.</li>",
                 num(fixed),
                 num(e.shortfall),
                 if fixed > 0.0 {
                     esc(&format!(
                         ": add {} (cost {})",
-                        super::text::additions(net, &c.add, net.sites.len()),
+                        super::text::closing_additions(net, c, usize::MAX),
                         num(c.cost)
                     ))
                 } else {

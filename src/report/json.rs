@@ -777,7 +777,8 @@ pub fn closing_json(
 ) -> serde_json::Value {
     match c {
         None => serde_json::Value::Null,
-        Some(c) => serde_json::json!({
+        Some(c) => {
+            let mut j = serde_json::json!({
             "cost": file_num(c.cost),
             "add": additions_map(net, &c.add),
             "not_closable": file_num(c.not_closable),
@@ -788,8 +789,32 @@ pub fn closing_json(
             "verified": c.verified,
             "modules_exhaustive": c.modules_exhaustive,
             "default_costs": default_costs,
-        }),
+            });
+            if let (Some(bought), Some(o)) = (&c.functions, j.as_object_mut()) {
+                o.insert(
+                    "add_functions".into(),
+                    serde_json::json!(function_additions_map(net, bought)),
+                );
+            }
+            j
+        }
     }
+}
+
+/// Per site, per function: the units bought (service chains), sites and functions by id.
+fn function_additions_map(
+    net: &Network,
+    bought: &[crate::expand::chain_buy::FunctionPurchase],
+) -> BTreeMap<String, BTreeMap<String, f64>> {
+    let mut out: BTreeMap<String, BTreeMap<String, f64>> = BTreeMap::new();
+    if let Some(ch) = &net.chains {
+        for p in bought.iter().filter(|p| p.units > 0.0) {
+            out.entry(net.sites[p.site].id.clone())
+                .or_default()
+                .insert(ch.functions[p.function].id.clone(), file_num(p.units));
+        }
+    }
+    out
 }
 
 fn additions_map(net: &Network, add: &[f64]) -> BTreeMap<String, f64> {

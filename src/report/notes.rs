@@ -133,6 +133,22 @@ pub fn note_capacity_fallback(
     )
 }
 
+/// The note after `plan --apply` on a file with service chains: `count` (site, function)
+/// purchases written into `sites[].functions`.
+pub fn note_applied_functions(
+    w: &mut dyn Write,
+    path: &std::path::Path,
+    count: usize,
+) -> io::Result<()> {
+    writeln!(
+        w,
+        "redoubt: wrote {} with the purchase added ({count} function capacit{} raised in \
+         sites[].functions); audit it to review the change",
+        path.display(),
+        if count == 1 { "y" } else { "ies" }
+    )
+}
+
 /// A note on stderr: `plan --apply` wrote the network with the purchase added.
 pub fn note_applied(w: &mut dyn Write, path: &std::path::Path, add: &[f64]) -> io::Result<()> {
     let sites = add.iter().filter(|a| **a > 0.0).count();

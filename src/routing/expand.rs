@@ -265,5 +265,6 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
         worst_fraction,
         modules,
         dropped: 0,
+        functions: None,
     })
 }

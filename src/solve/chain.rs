@@ -771,7 +771,8 @@ pub fn delivered(net: &Network, flows: &[f64]) -> f64 {
 }
 
 /// The evaluator of a network with `functions`: the layered edge LP per quantity, cold.
-/// Purchases are not defined yet (`add_processing` gives `None`).
+/// Purchases of function capacity are built by [`crate::expand::chain_buy`] on
+/// [`build`], not through this trait (`add_processing` gives `None`).
 pub struct ChainEdge;
 
 impl Evaluator for ChainEdge {

@@ -32,6 +32,10 @@ pub struct PlanJson {
 pub struct PlanBody {
     pub cost: f64,
     pub add: BTreeMap<String, f64>,
+    /// With service chains: per site, per function, the units of function capacity bought
+    /// (`add` then holds each site's functions together). Absent for processing purchases.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub add_functions: Option<BTreeMap<String, BTreeMap<String, f64>>>,
     /// Per site: the scenarios that serve less without that site's addition, most first.
     pub drivers: BTreeMap<String, Vec<Vec<String>>>,
 }
@@ -91,6 +95,10 @@ pub fn plan_json(
         plan: PlanBody {
             cost: file_num(plan.cost),
             add: additions_map(net, &plan.add),
+            add_functions: plan
+                .functions
+                .as_ref()
+                .map(|bought| function_additions_map(net, bought)),
             drivers: plan
                 .drivers
                 .iter()

@@ -36,8 +36,8 @@ pub use risk::risk_report;
 pub use why::{WhyPart, why_report};
 // The notes kept at their old path for callers.
 pub use super::notes::{
-    estimate_refused, note_applied, note_capacity_fallback, note_estimate, note_journal_failed,
-    note_journal_line, note_resume, note_threads_capped, refuse_with_shard,
+    estimate_refused, note_applied, note_applied_functions, note_capacity_fallback, note_estimate,
+    note_journal_failed, note_journal_line, note_resume, note_threads_capped, refuse_with_shard,
 };
 
 /// `""` for one, `"s"` otherwise.
@@ -165,6 +165,46 @@ pub fn additions(net: &Network, add: &[f64], k: usize) -> String {
             .map(|(i, a)| format!("{} +{}", net.sites[*i].id, num(*a))),
         k,
     )
+}
+
+/// The `k` largest function purchases as `SITE FUNCTION +UNITS`, most first, then by site
+/// and function; the rest counted. O(p log p).
+pub fn function_additions(
+    net: &Network,
+    bought: &[crate::expand::chain_buy::FunctionPurchase],
+    k: usize,
+) -> String {
+    let Some(ch) = &net.chains else {
+        return String::new();
+    };
+    let mut v: Vec<&crate::expand::chain_buy::FunctionPurchase> = bought.iter().collect();
+    v.sort_by(|a, b| {
+        b.units
+            .total_cmp(&a.units)
+            .then(a.site.cmp(&b.site))
+            .then(a.function.cmp(&b.function))
+    });
+    first_k(
+        v.iter().map(|p| {
+            format!(
+                "{} {} +{}",
+                net.sites[p.site].id,
+                ch.functions[p.function].id,
+                num(p.units)
+            )
+        }),
+        k,
+    )
+}
+
+/// What a closing buys, as its table cell and sentences write it: the function purchases
+/// (`SITE FUNCTION +UNITS`) of a service-chain closing, else the processing per site; the
+/// `k` largest, the rest counted.
+pub fn closing_additions(net: &Network, c: &crate::expand::Closing, k: usize) -> String {
+    match &c.functions {
+        Some(bought) => function_additions(net, bought, k),
+        None => additions(net, &c.add, k),
+    }
 }
 
 fn link_list(net: &Network, links: &[usize], k: usize) -> String {

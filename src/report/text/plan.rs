@@ -21,14 +21,24 @@ pub fn closing_report(m: &Model<'_>) -> String {
         .copied()
         .filter(|&i| closings[audit.outage_of[i]].is_some())
         .collect();
+    let chains = net.chains.is_some();
     let _ = writeln!(
         out,
-        "\nClosing the gaps: cheapest added processing per scenario ({} with a shortfall){}",
-        order.len(),
-        if default_costs {
-            ". No site has expand_cost: every site is a candidate at cost 1 per unit."
+        "\nClosing the gaps: cheapest added {} per scenario ({} with a shortfall){}",
+        if chains {
+            "function capacity (site and function)"
         } else {
-            "."
+            "processing"
+        },
+        order.len(),
+        match (default_costs, chains) {
+            (false, _) => ".",
+            (true, false) =>
+                ". No site has expand_cost: every site is a candidate at cost 1 per unit.",
+            (true, true) => {
+                ". No site has `expand`: every function at every site is a candidate at cost 1 \
+                 per unit."
+            }
         }
     );
     if order.is_empty() {
@@ -48,12 +58,15 @@ pub fn closing_report(m: &Model<'_>) -> String {
             Cell::new(audit.scenarios[i].display_name()),
             Cell::new(num(audit.eval(i).shortfall)),
             Cell::new(num(c.cost)),
-            Cell::new(additions(net, &c.add, 3)),
+            Cell::new(closing_additions(net, c, 3)),
             Cell::new(num(c.not_closable)),
             Cell::new(if c.not_closable <= 0.0 {
                 "—".into()
             } else if c.binding_links.is_empty() {
                 match audit.eval(i).cut_off.len() {
+                    0 if chains => {
+                        "expansion limits (expand max, sites offering the function)".into()
+                    }
                     0 => "expansion limits (expand_max, candidate sites)".into(),
                     1 => "no path (or no candidate site) for 1 demand".into(),
                     n => format!("no path (or no candidate site) for {n} demands"),
@@ -174,60 +187,29 @@ pub fn plan_report(
         crate::report::count(audit.scenarios.len(), "scenario"),
         crate::report::count(audit.outages.len(), "distinct outage")
     );
-    if default_costs {
-        let _ = writeln!(
-            out,
-            "No site has expand_cost: every site is a candidate at cost 1 per unit, so the plan \
-             minimises the total added processing; among plans with that total it concentrates \
-             the addition (ties go to sites earlier in the file) and drops any site whose \
-             addition serves nothing."
-        );
-    }
-    let mut t = table(&["site", &format!("add ({u})"), "cost", "driven by"]);
-    for (v, a) in plan.add.iter().enumerate() {
-        if *a <= 0.0 {
-            continue;
+    match (&plan.functions, default_costs) {
+        (Some(_), true) => {
+            let _ = writeln!(
+                out,
+                "No site has `expand`: every function at every site is a candidate at cost 1 \
+                 per unit, so the plan minimises the total added function capacity; ties go to \
+                 sites earlier in the file, and any purchase that serves nothing is dropped."
+            );
         }
-        let cost = a * net.sites[v].expansion.as_ref().map_or(1.0, |e| e.cost);
-        let drivers: Vec<String> = plan.drivers[v]
-            .iter()
-            .take(3)
-            .map(|(k, _)| audit.first_scenario(OutageId(*k)).display_name())
-            .collect();
-        t.add_row(vec![
-            Cell::new(&net.sites[v].id),
-            Cell::new(num(*a)),
-            Cell::new(num(cost)),
-            Cell::new(if drivers.is_empty() {
-                "—".into()
-            } else {
-                drivers.join("; ")
-            }),
-        ]);
+        (None, true) => {
+            let _ = writeln!(
+                out,
+                "No site has expand_cost: every site is a candidate at cost 1 per unit, so the plan \
+                 minimises the total added processing; among plans with that total it concentrates \
+                 the addition (ties go to sites earlier in the file) and drops any site whose \
+                 addition serves nothing."
+            );
+        }
+        _ => {}
     }
-    right(&mut t, &[1, 2]);
-    if plan.add.iter().all(|a| *a <= 0.0) {
-        let _ = writeln!(
-            out,
-            "\nNo purchase: added processing would not serve more in any scenario."
-        );
-    } else {
-        let _ = writeln!(
-            out,
-            "\nBuy (total cost {}):\n{}",
-            num(plan.cost),
-            render(&mut t, &[3])
-        );
-        let _ = writeln!(
-            out,
-            "Driven by: the scenarios that serve less without that site's addition (the \
-             others kept), most first.{}",
-            match plan.dropped {
-                0 => String::new(),
-                1 => " One addition the LP proposed served nothing and was dropped.".into(),
-                d => format!(" {d} additions the LP proposed served nothing and were dropped."),
-            }
-        );
+    match &plan.functions {
+        Some(bought) => function_purchase_table(&mut out, net, audit, plan, bought),
+        None => site_purchase_table(&mut out, net, audit, plan),
     }
     if let Some(m) = &plan.modules {
         let search = format!(
@@ -318,8 +300,13 @@ pub fn plan_report(
             let _ = writeln!(
                 out,
                 "Worst shortfall after the plan: {}; what remains is limited by links or \
-                 connectivity, not by processing{}.",
+                 connectivity, not by {}{}.",
                 amount(left, u),
+                if plan.functions.is_some() {
+                    "function capacity where it can be bought"
+                } else {
+                    "processing"
+                },
                 if matches!(plan.goal, Goal::CloseAll) {
                     ""
                 } else {
@@ -337,6 +324,122 @@ pub fn plan_report(
     }
     let _ = writeln!(out, "{CAUTION}");
     out
+}
+
+/// The plan's purchase of processing per site: the table, or that nothing is bought.
+fn site_purchase_table(out: &mut String, net: &Network, audit: &Audit, plan: &crate::expand::Plan) {
+    let u = &net.unit;
+    let mut t = table(&["site", &format!("add ({u})"), "cost", "driven by"]);
+    for (v, a) in plan.add.iter().enumerate() {
+        if *a <= 0.0 {
+            continue;
+        }
+        let cost = a * net.sites[v].expansion.as_ref().map_or(1.0, |e| e.cost);
+        let drivers: Vec<String> = plan.drivers[v]
+            .iter()
+            .take(3)
+            .map(|(k, _)| audit.first_scenario(OutageId(*k)).display_name())
+            .collect();
+        t.add_row(vec![
+            Cell::new(&net.sites[v].id),
+            Cell::new(num(*a)),
+            Cell::new(num(cost)),
+            Cell::new(if drivers.is_empty() {
+                "—".into()
+            } else {
+                drivers.join("; ")
+            }),
+        ]);
+    }
+    right(&mut t, &[1, 2]);
+    if plan.add.iter().all(|a| *a <= 0.0) {
+        let _ = writeln!(
+            out,
+            "\nNo purchase: added processing would not serve more in any scenario."
+        );
+    } else {
+        let _ = writeln!(
+            out,
+            "\nBuy (total cost {}):\n{}",
+            num(plan.cost),
+            render(&mut t, &[3])
+        );
+        let _ = writeln!(
+            out,
+            "Driven by: the scenarios that serve less without that site's addition (the \
+             others kept), most first.{}",
+            match plan.dropped {
+                0 => String::new(),
+                1 => " One addition the LP proposed served nothing and was dropped.".into(),
+                d => format!(" {d} additions the LP proposed served nothing and were dropped."),
+            }
+        );
+    }
+}
+
+/// The plan's purchase of function capacity (service chains): one row per site and
+/// function, or that nothing is bought.
+fn function_purchase_table(
+    out: &mut String,
+    net: &Network,
+    audit: &Audit,
+    plan: &crate::expand::Plan,
+    bought: &[crate::expand::chain_buy::FunctionPurchase],
+) {
+    let Some(ch) = &net.chains else {
+        return;
+    };
+    if bought.is_empty() {
+        let _ = writeln!(
+            out,
+            "\nNo purchase: added function capacity would not serve more in any scenario."
+        );
+        return;
+    }
+    let mut t = table(&[
+        "site",
+        "function",
+        &format!("add ({})", net.unit),
+        "cost",
+        "driven by",
+    ]);
+    for p in bought {
+        let drivers: Vec<String> = p
+            .drivers
+            .iter()
+            .take(3)
+            .map(|(k, _)| audit.first_scenario(OutageId(*k)).display_name())
+            .collect();
+        t.add_row(vec![
+            Cell::new(&net.sites[p.site].id),
+            Cell::new(&ch.functions[p.function].id),
+            Cell::new(num(p.units)),
+            Cell::new(num(p.cost)),
+            Cell::new(if drivers.is_empty() {
+                "—".into()
+            } else {
+                drivers.join("; ")
+            }),
+        ]);
+    }
+    right(&mut t, &[2, 3]);
+    let _ = writeln!(
+        out,
+        "\nBuy function capacity (total cost {}; units measured where traffic enters the \
+         function):\n{}",
+        num(plan.cost),
+        render(&mut t, &[4])
+    );
+    let _ = writeln!(
+        out,
+        "Driven by: the scenarios that serve less without that purchase (the others kept), \
+         most first.{}",
+        match plan.dropped {
+            0 => String::new(),
+            1 => " One purchase the LP proposed served nothing and was dropped.".into(),
+            d => format!(" {d} purchases the LP proposed served nothing and were dropped."),
+        }
+    );
 }
 
 /// The `plan` exporter: under `--routing`, the routing's header

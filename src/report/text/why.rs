@@ -153,10 +153,15 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
             if fixed > 0.0 {
                 let _ = writeln!(
                     out,
-                    "Processing can fix {} of the {} short: add {} (cost {}).",
+                    "{} can fix {} of the {} short: add {} (cost {}).",
+                    if c.functions.is_some() {
+                        "Function capacity"
+                    } else {
+                        "Processing"
+                    },
                     amount(fixed, u),
                     amount(e.shortfall, u),
-                    additions(net, &c.add, net.sites.len()),
+                    closing_additions(net, c, usize::MAX),
                     num(c.cost)
                 );
                 if c.not_closable > 0.0 {
