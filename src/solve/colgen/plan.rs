@@ -20,8 +20,14 @@
 //! (the shortest processing walk through the site's price, purchase option included:
 //! expandable sites are processing sites of the pricing graph).
 //!
+//! **Solver.** The master is solved by the warm bounded simplex of
+//! [`crate::solve::simplex`] (exact up to rounding: a vertex), kept across rounds and
+//! across the caller's lexicographic phases; past [`WARM_ROWS`] simplex rows, or when the
+//! simplex fails, by the interior-point backend (note: its rows hold only to about 1e-7 of
+//! the master's magnitude). See [`PlanMaster::solve`].
+//!
 //! **Stopping.** A round adds every improving walk not yet in its block; the loop stops
-//! when none is new (the restricted master is then optimal up to the backend's duals) or
+//! when none is new (the restricted master is then optimal up to the solver's duals) or
 //! after [`MAX_ROUNDS`] rounds. A restricted master is a restriction of the full one, so
 //! its plan is always feasible for every block; the caller re-verifies the plan on every
 //! outage anyway.
@@ -301,7 +307,7 @@ impl<'a> PlanMaster<'a> {
     /// covers the caller's and served variables (and the walks). An error when a master
     /// solve fails (infeasible rows, a backend failure).
     ///
-    /// The rounds are solved by the warm bounded simplex ([`Exact`]), which returns a
+    /// The rounds are solved by the warm bounded simplex (`Exact`), which returns a
     /// vertex meeting every row to rounding, and is kept across rounds and across calls
     /// whose `rows` extend the previous call's (the lexicographic phases: each re-optimises
     /// from the last phase's vertex). Above [`WARM_ROWS`] simplex rows (its dense inverse
