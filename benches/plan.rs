@@ -1,10 +1,16 @@
-//! `cargo bench --bench plan [-- write PATH]`: `redoubt plan` at depth 1 (links and sites)
-//! on the 200-site network of `benches/scale.rs` (`G200`: 200 sites, 395 links, 3,903
-//! random demands, processing at every tenth site, lowered from 200 to 180 so that losing
-//! a processing site leaves gaps a purchase can close), with every processing site
-//! expandable (`expand_cost` 1, 2 or 3 by site, `expand_max` 400), run by the built binary
-//! on two threads with the walk master (the hidden `--master walks`) and timed (wall). Prints the time, the plan's cost, its rounds and the
-//! verdict line. `write PATH` only writes the network file.
+//! `cargo bench --bench plan [-- NET… MASTER…] [-- write PATH]`: `redoubt plan` at depth 1
+//! (links and sites) through the built binary on two threads, timed (wall), with each
+//! master named (`walks`, the default, and `edge`, the hidden `--master edge`; both when
+//! none is named) on each network named (both when none is):
+//!
+//! - `G200`: the 200-site network of `benches/scale.rs` (200 sites, 395 links, 3,903
+//!   random demands, processing at every tenth site, lowered from 200 to 180 so that
+//!   losing a processing site leaves gaps a purchase can close), with every processing
+//!   site expandable (`expand_cost` 1, 2 or 3 by site, `expand_max` 400);
+//! - `grid-50`: `fixtures/grid-50.json`.
+//!
+//! Prints per run the time, the exit code and the report's first lines (the plan's cost,
+//! its rounds). `write PATH` only writes the G200 file.
 
 mod common;
 
@@ -35,37 +41,50 @@ fn main() {
         std::fs::write(path, doc.to_string()).expect("write the network");
         return;
     }
-    let path = std::env::temp_dir().join(format!("redoubt-plan200-{}.json", std::process::id()));
-    std::fs::write(&path, doc.to_string()).expect("write the network");
-    println!(
-        "PLAN200 (file {}): plan --depth 1 --kinds links,sites --threads 2 --master walks",
-        path.display()
-    );
-    let t = Instant::now();
-    let out = std::process::Command::new(env!("CARGO_BIN_EXE_redoubt"))
-        .args(["plan", path.to_str().expect("utf-8 path")])
-        .args([
-            "--depth",
-            "1",
-            "--kinds",
-            "links,sites",
-            "--threads",
-            "2",
-            "--master",
-            "walks",
-            "--yes",
-            "-q",
-        ])
-        .output()
-        .expect("redoubt runs");
-    let took = t.elapsed().as_secs_f64();
-    let text = String::from_utf8_lossy(&out.stdout);
-    println!("  plan: {took:.1} s wall, exit {:?}", out.status.code());
-    for line in text.lines().take(40) {
-        println!("  | {line}");
+    let g200 = std::env::temp_dir().join(format!("redoubt-plan200-{}.json", std::process::id()));
+    std::fs::write(&g200, doc.to_string()).expect("write the network");
+    let grid = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("fixtures/grid-50.json");
+    let mut nets: Vec<(&str, &std::path::Path)> = vec![("G200", &g200), ("grid-50", &grid)];
+    let mut masters = vec!["walks", "edge"];
+    if args.iter().any(|a| a == "G200" || a == "grid-50") {
+        nets.retain(|(n, _)| args.iter().any(|a| a == n));
     }
-    if !out.status.success() {
-        println!("  stderr: {}", String::from_utf8_lossy(&out.stderr));
+    if args.iter().any(|a| a == "walks" || a == "edge") {
+        masters.retain(|m| args.iter().any(|a| a == m));
     }
-    let _ = std::fs::remove_file(&path);
+    for (name, path) in nets {
+        for master in &masters {
+            println!(
+                "PLAN {name} (file {}): plan --depth 1 --kinds links,sites --threads 2 --master {master}",
+                path.display()
+            );
+            let t = Instant::now();
+            let out = std::process::Command::new(env!("CARGO_BIN_EXE_redoubt"))
+                .args(["plan", path.to_str().expect("utf-8 path")])
+                .args([
+                    "--depth",
+                    "1",
+                    "--kinds",
+                    "links,sites",
+                    "--threads",
+                    "2",
+                    "--master",
+                    master,
+                    "--yes",
+                    "-q",
+                ])
+                .output()
+                .expect("redoubt runs");
+            let took = t.elapsed().as_secs_f64();
+            let text = String::from_utf8_lossy(&out.stdout);
+            println!("  plan: {took:.1} s wall, exit {:?}", out.status.code());
+            for line in text.lines().take(12) {
+                println!("  | {line}");
+            }
+            if !out.status.success() {
+                println!("  stderr: {}", String::from_utf8_lossy(&out.stderr));
+            }
+        }
+    }
+    let _ = std::fs::remove_file(&g200);
 }

@@ -353,8 +353,8 @@ pub struct PlanArgs {
     #[arg(long, value_name = "OUT.json")]
     pub apply: Option<PathBuf>,
     /// The formulation of the plan's master problem (hidden: for the bench and for
-    /// comparing the two; `edge` is the default).
-    #[arg(long, value_enum, default_value_t = PlanMaster::Edge, hide = true)]
+    /// comparing the two; `walks` is the default).
+    #[arg(long, value_enum, default_value_t = PlanMaster::Walks, hide = true)]
     pub master: PlanMaster,
 }
 

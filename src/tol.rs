@@ -151,6 +151,12 @@ pub const PRICE_MIN: f64 = 1e-6;
 /// for the cost); without it the later phase would be infeasible by the earlier one's noise.
 pub const HOLD_TOL: f64 = 1e-9;
 
+/// Largest total violation of the walk plan master's goal rows (relative to their total
+/// violation at the simplex's start point, floored at 1) its first phase may leave and
+/// still call the goal rows met; without it rounding in the last digits of a target met
+/// exactly would send the master to the interior-point backend.
+pub const PLAN_FEASIBLE_TOL: f64 = 1e-9;
+
 /// How much looser a hold is made (a factor on [`HOLD_TOL`]) when the backend cannot meet
 /// it at [`HOLD_TOL`]; without the retry such a plan would fail instead of being solved.
 pub const HOLD_RETRY: f64 = 1e3;

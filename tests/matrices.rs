@@ -298,6 +298,9 @@ fn plan_covers_every_matrix_and_closes_both() {
     assert_near(base, 6.0, "base plan");
     assert_near(evening, 14.0, "evening plan");
     assert_near(both, 14.0, "plan over both");
+    // The same plan from the edge master (one edge flow model per (scenario, matrix)).
+    let both_edge = plan_cost(f.path(), &["--master", "edge"]);
+    assert_near(both_edge, 14.0, "plan over both, edge master");
     assert!(both >= base && both >= evening);
 
     let bought = TempPath::new("matrices-bought", "json");

@@ -108,7 +108,7 @@ pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
             "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
              `redoubt audit` (best re-route, with or without --close; not --routing, \
              --headroom, --why, --shard, --resume or --engine approx) and `redoubt plan` \
-             (best re-route; not --routing or --master walks) take so far"
+             (best re-route; not --routing) take so far"
         )));
     }
     Ok(())

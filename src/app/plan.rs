@@ -8,7 +8,7 @@ use super::options::PlanOptions;
 use super::plan_routed::{self, Routed};
 use super::scenarios::{run_options, scenario_list, solve_list};
 use super::{Outcome, note, read_network, stdout_result};
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::expand;
 use crate::model::{self, Network};
 use crate::report;
@@ -37,16 +37,6 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
     let (net, text) = read_network(input)?;
     if args.scenarios.routing.is_some() {
         super::chains_refused(&net, "plan --routing")?;
-    }
-    if args.master == expand::Master::Walks {
-        super::chains_refused(&net, "plan --master walks")?;
-    }
-    if args.master == expand::Master::Walks && !net.matrices.is_empty() {
-        return Err(Error::Usage(
-            "--master walks does not take files with `matrices` yet; leave --master out (the \
-             edge master plans over every matrix)"
-                .into(),
-        ));
     }
     let list = scenario_list(&net, &args.scenarios, None)?;
     let opts = run_options(&args.scenarios, err);

@@ -1,5 +1,10 @@
-//! The master problem of constraint generation: one flow-model copy per active outage, all
-//! sharing the `add_v` variables, solved as a short sequence of LPs (lexicographic phases).
+//! The master problem of constraint generation: one model per active outage (a block of
+//! walk rows, [`Master::Walks`], the default; or an edge flow-model copy, [`Master::Edge`]),
+//! all sharing the `add_v` variables, solved as a short sequence of LPs (lexicographic
+//! phases). The walk master keeps one warm simplex across its phases: each phase adds its
+//! held row (met at the last phase's vertex) and its objective, and re-optimises from that
+//! vertex with column generation; only past the simplex's size limit does it solve each
+//! round cold by the interior point (see [`Master::Walks`]).
 //!
 //! Phases, each holding the previous phase's optimum with a tolerance ([`HOLD_TOL`]):
 //!
@@ -295,8 +300,9 @@ fn held_walks(
 ///
 /// Size: per active outage, rows for its usable arcs, processing sites and demands, and
 /// the walk columns generation adds (no sources × arcs variables). Cost: two to four
-/// column generations, each a few interior-point solves of the whole master plus one
-/// walk pricing pass per outage per round.
+/// column generations, each a few warm simplex re-optimisations (interior-point solves of
+/// the whole master past [`crate::solve::colgen::WARM_ROWS`] rows) plus one walk pricing
+/// pass per outage per round.
 fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult> {
     let MasterInput {
         net,

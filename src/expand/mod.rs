@@ -5,9 +5,8 @@
 //!
 //! Both use the two-layer model with one extra variable `add_v >= 0` per candidate site in
 //! that site's processing row: the plan's master in the edge flow model of
-//! [`crate::solve::flow`] ([`Master::Edge`], the default), or in walk form
-//! ([`crate::solve::colgen::plan`], [`Master::Walks`], not yet the default: its
-//! interior-point solves are less accurate, see [`Master::Walks`]).
+//! [`crate::solve::flow`] ([`Master::Edge`], `plan --master edge`), or in walk form
+//! ([`crate::solve::colgen::plan`], [`Master::Walks`], the default).
 //!
 //! | file | what |
 //! |---|---|
@@ -65,18 +64,16 @@ pub enum Goal {
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Master {
     /// Column generation over processing walks, one block of rows per outage
-    /// ([`crate::solve::colgen::plan`]). Not the default: its interior-point master
-    /// solves meet their rows only to about 1e-7 of their magnitude (2e-4 on rows of
-    /// 1000; a close-all master whose cost falls when an outage is added, which an exact
-    /// master cannot do), so a
-    /// plan may be left short of a target by more than the proof tolerance and be topped
-    /// up at a site's limit instead of the cheapest split. Its rounds solved by a simplex
-    /// (a vertex) instead give the edge master's plan, so the formulation and its
-    /// stopping rule are not the cause. Reached by `plan --master walks` (hidden), the
-    /// bench and the cross-check test.
+    /// ([`crate::solve::colgen::plan`]): what `redoubt plan` uses. Its rounds and
+    /// lexicographic phases are solved by the warm bounded simplex (a vertex, rows met to
+    /// rounding, so its plans are the edge master's); a master past the simplex's size
+    /// limit ([`crate::solve::colgen::WARM_ROWS`] rows, e.g. thousands of demands per
+    /// outage) goes to the interior-point backend instead, whose rows hold only to about
+    /// 1e-7 of their magnitude (as the edge master's).
     Walks,
-    /// One edge flow-model copy (sources × arcs variables) per outage: what `redoubt
-    /// plan` uses; refused past [`TOTAL_MAX_VARS`] variables.
+    /// One edge flow-model copy (sources × arcs variables) per outage, solved by the
+    /// interior-point backend: the hidden `plan --master edge`, the cross-check of the walk
+    /// master; refused past [`TOTAL_MAX_VARS`] variables.
     Edge,
 }
 
@@ -147,11 +144,11 @@ pub struct ModuleRounding {
 /// 4. trim and drop additions that serve nothing, and find what drives each (`tidy.rs`);
 /// 5. every outage with a shortfall re-solved with the final plan.
 ///
-/// Cost: dominated by the master solves (per round, two to four LPs over one edge
-/// flow-model copy per active outage, [`Master::Edge`]; at most |gainable| rounds) and by
-/// one [`crate::solve::evaluate`] per gainable outage per verification.
+/// Cost: dominated by the master solves (per round, two to four column generations over
+/// one block of walk rows per active outage, [`Master::Walks`]; at most |gainable|
+/// rounds) and by one [`crate::solve::evaluate`] per gainable outage per verification.
 pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Result<Plan> {
-    plan_with(net, audit, goal, opts, Master::Edge)
+    plan_with(net, audit, goal, opts, Master::Walks)
 }
 
 /// [`plan`] with the master problem in formulation `master`.

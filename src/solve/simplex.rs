@@ -168,6 +168,18 @@ impl Simplex {
         Ok(())
     }
 
+    /// Replaces the objective (one coefficient per column, in column order; columns past
+    /// `obj` get 0) and recomputes the duals and basic values from the inverse. The basis
+    /// and point are kept, so a point optimal for the old objective is the start of the
+    /// next [`Simplex::solve`] (a lexicographic phase re-optimises from the last phase's
+    /// vertex). O(m² + nonzeros).
+    pub fn set_objective(&mut self, obj: &[f64]) {
+        for (j, c) in self.obj.iter_mut().enumerate() {
+            *c = obj.get(j).copied().unwrap_or(0.0);
+        }
+        self.refresh();
+    }
+
     /// The value of column `j`.
     pub fn value(&self, j: usize) -> f64 {
         self.x[j]

@@ -20,8 +20,14 @@
 //! (the shortest processing walk through the site's price, purchase option included:
 //! expandable sites are processing sites of the pricing graph).
 //!
+//! **Solver.** The master is solved by the warm bounded simplex of
+//! [`crate::solve::simplex`] (exact up to rounding: a vertex), kept across rounds and
+//! across the caller's lexicographic phases; past [`WARM_ROWS`] simplex rows, or when the
+//! simplex fails, by the interior-point backend (note: its rows hold only to about 1e-7 of
+//! the master's magnitude). See [`PlanMaster::solve`].
+//!
 //! **Stopping.** A round adds every improving walk not yet in its block; the loop stops
-//! when none is new (the restricted master is then optimal up to the backend's duals) or
+//! when none is new (the restricted master is then optimal up to the solver's duals) or
 //! after [`MAX_ROUNDS`] rounds. A restricted master is a restriction of the full one, so
 //! its plan is always feasible for every block; the caller re-verifies the plan on every
 //! outage anyway.
@@ -30,29 +36,44 @@ use std::collections::HashSet;
 
 use rayon::prelude::*;
 
-use super::{Graph, MAX_ROUNDS, Walk, evaluate_walks, price};
-use crate::error::Result;
+use super::{Graph, MAX_ROUNDS, PIVOTS_PER_ROW, WARM_ROWS, Walk, evaluate_walks, price};
+use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
 use crate::solve::cancel;
 use crate::solve::lp::{self, Lp, LpSolution, Sense};
+use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
+use crate::tol::PLAN_FEASIBLE_TOL;
 
-/// No row (an arc or demand without one).
+/// No row (an arc or demand without one); no simplex row or column yet.
 const NO_ROW: usize = usize::MAX;
 
 /// One row a caller adds for one solve: terms, sense, right-hand side.
 pub type GoalRow = (Vec<(usize, f64)>, Sense, f64);
 
 /// The walk master of a plan: the caller's variables and rows, one block per outage, the
-/// walk columns found so far (kept across solves).
+/// walk columns found so far (kept across solves), and the warm simplex that solves it.
 pub struct PlanMaster<'a> {
     net: &'a Network,
     base: Lp,
     add: Vec<Option<usize>>,
     blocks: Vec<Block<'a>>,
+    /// Per row of `base`: whether it is a block's arc, site or demand row (rows the
+    /// simplex creates only when a walk column enters them).
+    lazy: Vec<bool>,
+    /// Per variable of `base`: its entries (row of `base`, coefficient) when it is a walk.
+    walk_entries: Vec<Option<Vec<(usize, f64)>>>,
+    /// The simplex's copy of the master, kept warm across rounds and phases; `None`
+    /// before the first solve and after the simplex was given up.
+    exact: Option<Exact>,
+    /// Whether the simplex was given up (the master outgrew [`WARM_ROWS`] rows, or the
+    /// simplex failed): later solves go to the interior-point backend.
+    exact_off: bool,
     /// Master LP solves so far.
     pub lp_solves: usize,
+    /// Of them, solves by the interior-point backend (the fallback).
+    pub interior_point_solves: usize,
 }
 
 /// One outage's rows in the master.
@@ -66,16 +87,146 @@ struct Block<'a> {
     seen: HashSet<Walk>,
 }
 
+/// The master on the warm bounded simplex ([`Simplex`]: `max c·x`, `≤` rows): a `≥` row
+/// of `base` enters negated, a minimisation with its objective negated. The caller's
+/// variables, the served variables and their rows (budget, served rows, goal rows) are
+/// created at once; a block's arc, site and demand rows only when a walk column enters
+/// them (until then the row holds with its slack basic, dual 0, as in the full model:
+/// every right-hand side is ≥ 0 and only walks and `−add_v` enter these rows).
+///
+/// A goal row violated at the current point gets an *artificial* column (coefficient −1
+/// in the negated row, started at the violation, so the basis stays primal feasible);
+/// before the next objective a first phase maximises `−Σ artificial` (with column
+/// generation) and then holds the artificials with the row `Σ artificial ≤` its optimum,
+/// which is 0 up to [`PLAN_FEASIBLE_TOL`] when the goal rows can be met.
+struct Exact {
+    sx: Simplex,
+    /// Per variable of `base`: its simplex column (`NO_ROW` for none yet).
+    col: Vec<usize>,
+    /// Per row of `base`, then per goal row: its simplex row (`NO_ROW` for none yet) and
+    /// sign (+1 for `≤`, −1 for a negated `≥`).
+    row: Vec<(usize, f64)>,
+    /// The goal rows mirrored so far (in the order of the caller's `rows`).
+    goals: Vec<GoalRow>,
+    /// Artificial columns not yet held.
+    artificial: Vec<usize>,
+}
+
+/// Why the simplex was given up on a master.
+fn too_big() -> Error {
+    Error::Solver(format!(
+        "plan master past {WARM_ROWS} simplex rows (the interior-point backend takes it)"
+    ))
+}
+
+impl Exact {
+    /// Adds row `r` of `base` (entries on the columns that exist), an artificial column
+    /// when the current point violates it. O(m · entries).
+    fn add_base_row(&mut self, base: &Lp, r: usize) -> Result<()> {
+        let row = &base.rows[r];
+        let entries: Vec<(usize, f64)> = row
+            .coeffs
+            .iter()
+            .filter(|&&(j, _)| self.col[j] != NO_ROW)
+            .map(|&(j, a)| (self.col[j], a))
+            .collect();
+        self.row[r] = self.add_row(&entries, row.sense, row.rhs)?;
+        Ok(())
+    }
+
+    /// Adds `entries sense rhs` (simplex columns); returns its simplex row and sign.
+    fn add_row(
+        &mut self,
+        entries: &[(usize, f64)],
+        sense: Sense,
+        rhs: f64,
+    ) -> Result<(usize, f64)> {
+        if self.sx.rows() >= WARM_ROWS {
+            return Err(too_big());
+        }
+        let sign = match sense {
+            Sense::Le => 1.0,
+            Sense::Ge => -1.0,
+            Sense::Eq => {
+                return Err(Error::Solver("plan master: an equality row".into()));
+            }
+        };
+        let signed: Vec<(usize, f64)> = entries.iter().map(|&(c, a)| (c, sign * a)).collect();
+        let i = self.sx.add_row(sign * rhs, &signed);
+        let lhs: f64 = signed.iter().map(|&(c, a)| a * self.sx.value(c)).sum();
+        let violation = lhs - sign * rhs;
+        if violation > 0.0 {
+            let c = self
+                .sx
+                .add_col(0.0, 0.0, f64::INFINITY, violation, vec![(i, -1.0)]);
+            self.artificial.push(c);
+        }
+        Ok((i, sign))
+    }
+
+    /// Adds the walk column `j` of `base` with `entries` (rows of `base`), creating the
+    /// rows it enters. O(m · entries).
+    fn add_walk(&mut self, base: &Lp, j: usize, entries: &[(usize, f64)]) -> Result<()> {
+        let mut sx_entries = Vec::with_capacity(entries.len());
+        for &(r, a) in entries {
+            if self.row[r].0 == NO_ROW {
+                self.add_base_row(base, r)?;
+            }
+            let (i, sign) = self.row[r];
+            sx_entries.push((i, sign * a));
+        }
+        self.col[j] = self.sx.add_col(0.0, 0.0, f64::INFINITY, 0.0, sx_entries);
+        Ok(())
+    }
+
+    /// The current point as a solution of `base` with `goals` rows: primal values per
+    /// variable, duals in [`LpSolution`]'s convention (d objective / d rhs of the row as
+    /// the caller wrote it; 0 for a row the simplex has not created), the objective.
+    fn solution(&self, base: &Lp, objective: &[(usize, f64)], maximise: bool) -> LpSolution {
+        let x: Vec<f64> = self
+            .col
+            .iter()
+            .map(|&c| if c == NO_ROW { 0.0 } else { self.sx.value(c) })
+            .collect();
+        let sg = if maximise { 1.0 } else { -1.0 };
+        let duals = self
+            .row
+            .iter()
+            .map(|&(i, sign)| {
+                if i == NO_ROW {
+                    0.0
+                } else {
+                    sg * sign * self.sx.dual(i)
+                }
+            })
+            .collect();
+        let value = objective.iter().map(|&(j, c)| c * x[j]).sum();
+        LpSolution {
+            upper_duals: vec![0.0; base.num_vars()],
+            x,
+            duals,
+            objective: value,
+        }
+    }
+}
+
 impl<'a> PlanMaster<'a> {
     /// A master over `base` (the caller's LP: the addition variables `add`, per site, with
     /// their bounds, and the caller's variables and fixed rows) with no outage yet. O(1).
     pub fn new(net: &'a Network, base: Lp, add: Vec<Option<usize>>) -> PlanMaster<'a> {
+        let lazy = vec![false; base.rows.len()];
+        let walk_entries = vec![None; base.num_vars()];
         PlanMaster {
             net,
             base,
             add,
             blocks: Vec::new(),
+            lazy,
+            walk_entries,
+            exact: None,
+            exact_off: false,
             lp_solves: 0,
+            interior_point_solves: 0,
         }
     }
 
@@ -87,10 +238,11 @@ impl<'a> PlanMaster<'a> {
     /// Adds `outage`'s block (module comment) and returns its served variable `s_k`.
     /// Start columns: the walks of the walk engine's verified optimum of the outage with
     /// every addition at its upper bound (so a target at most the best reachable value is
-    /// feasible from the first solve). Cost: one walk-engine evaluation, O(arcs + sites +
-    /// demands + start walks' lengths) to build.
+    /// feasible from the first solve). The outage's traffic matrix decides its demands.
+    /// Cost: one walk-engine evaluation, O(arcs + sites + demands + start walks' lengths)
+    /// to build.
     pub fn add_outage(&mut self, outage: &Outage) -> Result<usize> {
-        let net = self.net;
+        let net = self.net.view(outage.matrix);
         let expandable: Vec<bool> = self.add.iter().map(Option::is_some).collect();
         let view = Surviving::new(net, outage, Some(&expandable));
         let g = Graph::new(net, &view);
@@ -100,7 +252,9 @@ impl<'a> PlanMaster<'a> {
             .iter()
             .map(|a| a.map_or(0.0, |j| self.base.upper[j].max(0.0)))
             .collect();
-        let start = evaluate_walks(&net.with_added_processing(&full), outage, None)?;
+        let start = evaluate_walks(&self.net.with_added_processing(&full), outage, None)?;
+        // The simplex copy is rebuilt with the new block at the next solve.
+        self.exact = None;
         let base = &mut self.base;
         let (arc_cap, site_cap) = g.effective(&caps);
         let mut arc_row = vec![NO_ROW; net.arcs.len()];
@@ -118,10 +272,13 @@ impl<'a> PlanMaster<'a> {
                 dem_row[d] = base.add_row(Vec::new(), Sense::Le, b);
             }
         }
+        self.lazy.resize(base.rows.len(), true);
         let total: f64 = caps.iter().sum();
         let served = base.add_var(0.0, total, 0.0);
         base.magnitude[served] = total;
         let served_row = base.add_row(vec![(served, -1.0)], Sense::Ge, 0.0);
+        self.lazy.push(false);
+        self.walk_entries.push(None);
         let mut block = Block {
             g,
             caps,
@@ -134,7 +291,9 @@ impl<'a> PlanMaster<'a> {
         if let Some(s) = start.basis.required {
             for w in s.walks.iter().filter_map(|w| block.g.lift(w)) {
                 if block.admits(&w) && block.seen.insert(w.clone()) {
-                    block.column(base, &w);
+                    let (j, entries) = block.column(base, &w);
+                    debug_assert_eq!(j, self.walk_entries.len());
+                    self.walk_entries.push(Some(entries));
                 }
             }
         }
@@ -143,13 +302,181 @@ impl<'a> PlanMaster<'a> {
     }
 
     /// The optimum over every walk of the master with `rows` added and the objective
-    /// `objective` (duplicates add up; maximised when `maximise`): column generation on a
-    /// copy (module comment); the columns found are kept for later solves. Its solution's
-    /// `x` covers the caller's and served variables (and the walks). An error when a
-    /// master solve fails (infeasible rows, a backend failure). Cost per round: one
-    /// interior-point solve of the whole master and one pricing pass per block (in
-    /// parallel); at most [`MAX_ROUNDS`] rounds.
+    /// `objective` (duplicates add up; maximised when `maximise`): column generation
+    /// (module comment); the columns found are kept for later solves. Its solution's `x`
+    /// covers the caller's and served variables (and the walks). An error when a master
+    /// solve fails (infeasible rows, a backend failure).
+    ///
+    /// The rounds are solved by the warm bounded simplex (`Exact`), which returns a
+    /// vertex meeting every row to rounding, and is kept across rounds and across calls
+    /// whose `rows` extend the previous call's (the lexicographic phases: each re-optimises
+    /// from the last phase's vertex). Above [`WARM_ROWS`] simplex rows (its dense inverse
+    /// would not fit), or when the simplex fails (pivot limit, singular basis), the master
+    /// goes to the interior-point backend for this and every later call: a cold solve of
+    /// the whole master per round, whose rows hold only to about 1e-7 of its magnitude.
+    /// Cost per round: one warm re-optimisation (or one interior-point solve) and one
+    /// pricing pass per block (in parallel); at most [`MAX_ROUNDS`] rounds.
     pub fn solve(
+        &mut self,
+        rows: &[GoalRow],
+        objective: &[(usize, f64)],
+        maximise: bool,
+    ) -> Result<LpSolution> {
+        if !self.exact_off {
+            match self.solve_exact(rows, objective, maximise) {
+                Ok(sol) => return Ok(sol),
+                Err(e @ Error::Interrupted(_)) => return Err(e),
+                Err(_) => {
+                    self.exact = None;
+                    self.exact_off = true;
+                }
+            }
+        }
+        self.solve_interior(rows, objective, maximise)
+    }
+
+    /// Builds the simplex copy of `base` (module comment of [`Exact`]): the caller's and
+    /// served variables and the eager rows, then every walk column found so far.
+    fn build_exact(&self) -> Result<Exact> {
+        let base = &self.base;
+        let mut ex = Exact {
+            sx: Simplex::new(),
+            col: vec![NO_ROW; base.num_vars()],
+            row: vec![(NO_ROW, 1.0); base.rows.len()],
+            goals: Vec::new(),
+            artificial: Vec::new(),
+        };
+        for j in 0..base.num_vars() {
+            if self.walk_entries[j].is_none() {
+                let (l, u) = (base.lower[j], base.upper[j]);
+                let start = 0.0f64.clamp(l, u);
+                ex.col[j] = ex.sx.add_col(0.0, l, u, start, Vec::new());
+            }
+        }
+        for r in 0..base.rows.len() {
+            if !self.lazy[r] {
+                ex.add_base_row(base, r)?;
+            }
+        }
+        for (j, e) in self.walk_entries.iter().enumerate() {
+            if let Some(entries) = e {
+                ex.add_walk(base, j, entries)?;
+            }
+        }
+        Ok(ex)
+    }
+
+    /// [`PlanMaster::solve`] on the warm simplex; an error (other than an interrupt)
+    /// sends the caller to the interior-point backend.
+    fn solve_exact(
+        &mut self,
+        rows: &[GoalRow],
+        objective: &[(usize, f64)],
+        maximise: bool,
+    ) -> Result<LpSolution> {
+        let reuse = self.exact.as_ref().is_some_and(|ex| {
+            ex.goals.len() <= rows.len() && ex.goals[..] == rows[..ex.goals.len()]
+        });
+        if !reuse {
+            self.exact = Some(self.build_exact()?);
+        }
+        let ex = self.exact.as_mut().expect("built above");
+        for g in rows[ex.goals.len()..].iter() {
+            let entries: Vec<(usize, f64)> = g.0.iter().map(|&(j, a)| (ex.col[j], a)).collect();
+            let r = ex.add_row(&entries, g.1, g.2)?;
+            ex.row.push(r);
+            ex.goals.push(g.clone());
+        }
+        // First phase: drive the artificials of violated goal rows to zero, then hold them.
+        if !ex.artificial.is_empty() {
+            let scale: f64 = ex
+                .artificial
+                .iter()
+                .map(|&c| ex.sx.value(c))
+                .sum::<f64>()
+                .max(1.0);
+            let mut obj = vec![0.0; ex.sx.cols()];
+            for &c in &ex.artificial {
+                obj[c] = -1.0;
+            }
+            self.exact_rounds(&obj, &[], true)?;
+            let ex = self.exact.as_mut().expect("built above");
+            let left: f64 = ex.artificial.iter().map(|&c| ex.sx.value(c).max(0.0)).sum();
+            if left > PLAN_FEASIBLE_TOL * scale {
+                return Err(Error::Solver(format!(
+                    "plan master: goal rows short by {left} on the walk columns"
+                )));
+            }
+            let entries: Vec<(usize, f64)> = ex.artificial.iter().map(|&c| (c, 1.0)).collect();
+            ex.artificial.clear();
+            ex.add_row(&entries, Sense::Le, left)?;
+        }
+        let ex = self.exact.as_mut().expect("built above");
+        let sg = if maximise { 1.0 } else { -1.0 };
+        let mut obj = vec![0.0; ex.sx.cols()];
+        for &(j, c) in objective {
+            obj[ex.col[j]] += sg * c;
+        }
+        self.exact_rounds(&obj, objective, maximise)
+    }
+
+    /// Column generation on the simplex with the simplex objective `obj` (per simplex
+    /// column, maximised; new walks cost 0); the solution is reported for the caller's
+    /// `objective` and sense. O(rounds · (re-optimisation + pricing)).
+    fn exact_rounds(
+        &mut self,
+        obj: &[f64],
+        objective: &[(usize, f64)],
+        maximise: bool,
+    ) -> Result<LpSolution> {
+        let sg = if maximise { 1.0 } else { -1.0 };
+        self.exact
+            .as_mut()
+            .expect("built by the caller")
+            .sx
+            .set_objective(obj);
+        let mut round = 0;
+        loop {
+            cancel::check()?;
+            let ex = self.exact.as_mut().expect("built by the caller");
+            if ex.sx.rows() > WARM_ROWS {
+                return Err(too_big());
+            }
+            let limit = PIVOTS_PER_ROW * ex.sx.rows().max(100);
+            ex.sx.solve(limit)?;
+            self.lp_solves += 1;
+            let sol = ex.solution(&self.base, objective, maximise);
+            round += 1;
+            if round > MAX_ROUNDS {
+                return Ok(sol);
+            }
+            let fresh: Vec<Vec<Walk>> = self
+                .blocks
+                .par_iter()
+                .map(|b| b.improving(&sol, sg))
+                .collect();
+            let mut added = 0;
+            for (b, walks) in self.blocks.iter_mut().zip(fresh) {
+                for w in walks {
+                    if b.seen.insert(w.clone()) {
+                        let (j, entries) = b.column(&mut self.base, &w);
+                        let ex = self.exact.as_mut().expect("built by the caller");
+                        ex.col.push(NO_ROW);
+                        ex.add_walk(&self.base, j, &entries)?;
+                        self.walk_entries.push(Some(entries));
+                        added += 1;
+                    }
+                }
+            }
+            if added == 0 {
+                return Ok(sol);
+            }
+        }
+    }
+
+    /// [`PlanMaster::solve`] on the interior-point backend: column generation on a copy
+    /// of `base` with `rows`, one cold solve of the whole master per round.
+    fn solve_interior(
         &mut self,
         rows: &[GoalRow],
         objective: &[(usize, f64)],
@@ -168,6 +495,7 @@ impl<'a> PlanMaster<'a> {
         for _ in 0..MAX_ROUNDS {
             cancel::check()?;
             self.lp_solves += 1;
+            self.interior_point_solves += 1;
             let sol = lp::solve(&work)?;
             let fresh: Vec<Vec<Walk>> = self
                 .blocks
@@ -179,7 +507,8 @@ impl<'a> PlanMaster<'a> {
                 for w in walks {
                     if b.seen.insert(w.clone()) {
                         b.column(&mut work, &w);
-                        b.column(&mut self.base, &w);
+                        let (_, entries) = b.column(&mut self.base, &w);
+                        self.walk_entries.push(Some(entries));
                         added += 1;
                     }
                 }
@@ -189,6 +518,7 @@ impl<'a> PlanMaster<'a> {
             }
         }
         self.lp_solves += 1;
+        self.interior_point_solves += 1;
         lp::solve(&work)
     }
 }
@@ -199,19 +529,24 @@ impl Block<'_> {
         self.site_row[w.site].is_some() && self.dem_row[w.demand] != NO_ROW
     }
 
-    /// Adds walk `w`'s column to `lp` (this block's rows); returns its variable.
-    /// O(walk length).
-    fn column(&self, lp: &mut Lp, w: &Walk) -> usize {
+    /// Adds walk `w`'s column to `lp` (this block's rows); returns its variable and its
+    /// entries (row, coefficient). O(walk length).
+    fn column(&self, lp: &mut Lp, w: &Walk) -> (usize, Vec<(usize, f64)>) {
         let site = self.site_row[w.site].expect("a column's site has a row");
         let j = lp.add_var(0.0, f64::INFINITY, 0.0);
         lp.magnitude[j] = self.caps[w.demand];
-        for &(a, m) in &w.arcs {
-            lp.rows[self.arc_row[a]].coeffs.push((j, f64::from(m)));
+        let mut entries: Vec<(usize, f64)> = w
+            .arcs
+            .iter()
+            .map(|&(a, m)| (self.arc_row[a], f64::from(m)))
+            .collect();
+        entries.push((site, 1.0));
+        entries.push((self.dem_row[w.demand], 1.0));
+        entries.push((self.served_row, 1.0));
+        for &(r, a) in &entries {
+            lp.rows[r].coeffs.push((j, a));
         }
-        lp.rows[site].coeffs.push((j, 1.0));
-        lp.rows[self.dem_row[w.demand]].coeffs.push((j, 1.0));
-        lp.rows[self.served_row].coeffs.push((j, 1.0));
-        j
+        (j, entries)
     }
 
     /// The walks of this block that improve the master at `sol`'s shadow prices (module
