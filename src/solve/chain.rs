@@ -64,7 +64,7 @@ pub struct Edge {
 }
 
 /// What an edge of the layered graph uses.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum EdgeKind {
     /// Arc `a` (index into `Network::arcs`) in layer `j`.
     Arc { arc: usize, layer: usize },
@@ -141,7 +141,7 @@ pub fn cut_off(net: &Network, view: &Surviving, bound: &[f64]) -> Vec<(usize, Un
 }
 
 /// Whether site `v` can run function `f` on `view`: alive with capacity > 0.
-fn runs(ch: &Chains, view: &Surviving, v: SiteIdx, f: FunctionIdx) -> bool {
+pub(crate) fn runs(ch: &Chains, view: &Surviving, v: SiteIdx, f: FunctionIdx) -> bool {
     view.site_alive[v] && ch.capacity[v][f] > 0.0
 }
 
@@ -809,7 +809,20 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     } else {
         None
     };
-    let mut e = finish_with(net, &view, cut_off, solved, volume);
+    Ok(finish_chain(net, &view, cut_off, solved, volume))
+}
+
+/// The evaluation of one outage of a network with `functions` from its verified
+/// required (and volume) results and its cut-off list: [`finish_with`], then `delivered`
+/// from the reported flows. Shared by every chain engine. O(demands · chain).
+pub(crate) fn finish_chain(
+    net: &Network,
+    view: &Surviving,
+    cut_off: Vec<(usize, Unservable)>,
+    solved: Verified,
+    volume: Option<Verified>,
+) -> Evaluation {
+    let mut e = finish_with(net, view, cut_off, solved, volume);
     // Shown as the plainest number within solver noise of the delivered volume at stake
     // (Σ required · gain over the surviving demands), as every reported amount is.
     let ch = net.chains.as_ref().expect("a network with functions");
@@ -820,5 +833,5 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     let x = delivered(net, &e.demand_flow);
     let eps = crate::tol::NOISE * at_stake;
     e.delivered = Some(super::simplest_in(x - eps, x + eps, x.round()).max(0.0));
-    Ok(e)
+    e
 }
