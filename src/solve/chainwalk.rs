@@ -568,7 +568,8 @@ struct Start {
     walks: Vec<(ChainWalk, f64)>,
     /// Per demand: some walk of it that carried flow was lost.
     lost: Vec<bool>,
-    /// The rows could not hold the surviving flows: they were scaled.
+    /// The rows could not hold the surviving flows: they were scaled down by more than
+    /// rounding.
     scaled: bool,
 }
 
@@ -604,16 +605,17 @@ fn surviving_start(rows: &Rows, start: &Solved) -> Start {
             *load.entry(key).or_default() += c * f;
         }
     }
+    // Rows the parent filled exactly may be over by rounding: those scale the start by
+    // about START_MARGIN, which is not a change of the allocation (`scaled` stays false).
     let mut factor: f64 = 1.0;
-    let mut scaled = false;
     for (key, l) in load {
         let rhs = rows.rhs(key);
-        scaled |= l > rhs;
-        if l > 0.0 {
+        if l > rhs * (1.0 - START_MARGIN) {
             factor = factor.min(rhs * (1.0 - START_MARGIN) / l);
         }
     }
-    let factor = if scaled { factor.max(0.0) } else { 1.0 };
+    let factor = factor.max(0.0);
+    let scaled = factor < 1.0 - 2.0 * START_MARGIN;
     Start {
         walks: kept.into_iter().map(|(w, f)| (w, f * factor)).collect(),
         lost,
