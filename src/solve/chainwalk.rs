@@ -939,6 +939,10 @@ fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) -> Verified {
     }
 }
 
+/// One LP decided: its verified result, the cut-off demands and, when the walks proved
+/// it, the optimum (a child's start).
+type Decided = (Verified, Vec<(usize, Unservable)>, Option<Solved>);
+
 /// One LP of an outage (caps `caps`) by the walk engine, verified: when every walk of the
 /// parent's optimum `start` that carried flow survives (no flow lost), that allocation
 /// with the parent's prices first (no master solve: proven when the bounds meet, as they
@@ -953,7 +957,7 @@ fn solve_caps(
     caps: &[f64],
     start: Option<&Solved>,
     stats: &mut Stats,
-) -> Result<(Verified, Vec<(usize, Unservable)>, Option<Solved>)> {
+) -> Result<Decided> {
     let (mut layered, cut_off) = layered_rows(net, view, caps);
     if !layered.groups.is_empty() {
         let answer = {
