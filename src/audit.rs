@@ -223,12 +223,16 @@ pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result
     probe_with(net, &*evaluator_for(net, engine), sample)
 }
 
-/// The evaluator of `net` with `engine`: the layered edge LP of service chains
-/// ([`crate::solve::chain::ChainEdge`]) whatever the engine when the file lists
-/// `functions`, else [`evaluator()`].
+/// The evaluator of `net` with `engine`. When the file lists `functions`: the layered
+/// edge LP of service chains ([`crate::solve::chain::ChainEdge`]) with [`Engine::Edge`],
+/// else the layered walk engine ([`crate::solve::chainwalk::ChainWalks`]); otherwise
+/// [`evaluator()`].
 pub fn evaluator_for(net: &Network, engine: Engine) -> Box<dyn Evaluator> {
     if net.chains.is_some() {
-        Box::new(crate::solve::chain::ChainEdge)
+        match engine {
+            Engine::Edge => Box::new(crate::solve::chain::ChainEdge),
+            _ => Box::new(crate::solve::chainwalk::ChainWalks),
+        }
     } else {
         evaluator(engine)
     }

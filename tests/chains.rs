@@ -3,19 +3,24 @@
 //!
 //! - hand-worked cases, each with its calculation in a comment (common practice, no
 //!   source: the arithmetic is the contract's definition applied by hand);
-//! - a second formulation written here from the input contract: one layered LP *per
-//!   demand* (not aggregated by origin and chain), solved by microlp (a simplex method,
-//!   through good_lp) rather than the product's interior-point backend, over random small
+//! - a second formulation written from the input contract (`tests/common/chain_reference.rs`):
+//!   one layered LP *per demand* (not aggregated by origin and chain), solved by microlp (a
+//!   simplex method, through good_lp) rather than the product's backends, over random small
 //!   networks with random chains and gains, for every single-failure scenario;
+//! - every audit here runs both engines (the default layered walk engine and `--engine
+//!   edge`, the layered edge LP) and requires the same served_required and throughput
+//!   from both;
 //! - a chain of one gain-1 function against the same file written without `functions`
 //!   (the base model the rest of the test suite checks), on the shipped examples;
 //! - refusals with their messages.
 
+#[path = "common/chain_reference.rs"]
+mod chain_reference;
 mod common;
 
+use chain_reference::{random_net, reference_served};
 use common::json::{audit_json, num, scenario, scenarios};
 use common::{TempPath, redoubt};
-use good_lp::{Expression, ProblemVariables, Solution, SolverModel, Variable, microlp, variable};
 use rand::prelude::*;
 use serde_json::{Value, json};
 
@@ -29,15 +34,34 @@ fn assert_close(got: f64, want: f64, what: &str) {
     );
 }
 
-/// Audits `net` (baseline and every single link and site failure) and returns the JSON.
+/// Audits `net` (baseline and every single link and site failure, `--detail` so that every
+/// scenario lists its cut-off demands) with the default engine
+/// (layered walks) and with `--engine edge` (layered edge LP), requires the same
+/// served_required, throughput and cut-off list from both in every scenario (not
+/// `delivered`: optima with the same served_required may deliver different amounts), and
+/// returns the default engine's JSON.
 fn audit(net: &Value) -> Value {
     let file = TempPath::with_text("chains", &net.to_string());
-    let (run, doc) = audit_json(file.path(), &["--threads", "1"]);
+    let (run, doc) = audit_json(file.path(), &["--threads", "1", "--detail"]);
     assert!(
         run.stderr.is_empty(),
         "--quiet prints no note: {}",
         run.stderr
     );
+    let (_, edge) = audit_json(
+        file.path(),
+        &["--threads", "1", "--detail", "--engine", "edge"],
+    );
+    let (walks, edges) = (scenarios(&doc), scenarios(&edge));
+    assert_eq!(walks.len(), edges.len());
+    for (w, e) in walks.iter().zip(edges) {
+        let what = format!("{:?}", common::json::failed_of(w));
+        assert_eq!(common::json::failed_of(w), common::json::failed_of(e));
+        for field in ["served_required", "throughput"] {
+            assert_close(num(w, field), num(e, field), &format!("{field}, {what}"));
+        }
+        assert_eq!(w["cut_off_demands"], e["cut_off_demands"], "{what}");
+    }
     doc
 }
 
@@ -200,189 +224,6 @@ fn the_reversed_chain_gives_another_answer() {
 // ---------------------------------------------------------------------------------------
 // Reference: a per-demand layered LP on microlp.
 // ---------------------------------------------------------------------------------------
-
-struct RNet {
-    gains: Vec<f64>,
-    /// Per site, per function.
-    capacity: Vec<Vec<f64>>,
-    /// (from, to, capacity, one_way).
-    links: Vec<(usize, usize, f64, bool)>,
-    /// (from, to, volume, required, chain).
-    demands: Vec<(usize, usize, f64, f64, Vec<usize>)>,
-}
-
-impl RNet {
-    fn to_json(&self) -> Value {
-        let fid = |f: usize| format!("f{f}");
-        json!({
-            "functions": self.gains.iter().enumerate()
-                .map(|(f, g)| json!({"id": fid(f), "gain": g})).collect::<Vec<_>>(),
-            "sites": self.capacity.iter().enumerate().map(|(v, caps)| {
-                let m: serde_json::Map<String, Value> = caps.iter().enumerate()
-                    .filter(|(_, c)| **c > 0.0)
-                    .map(|(f, c)| (fid(f), json!(c))).collect();
-                json!({"id": format!("s{v}"), "functions": m})
-            }).collect::<Vec<_>>(),
-            "links": self.links.iter().enumerate().map(|(l, &(a, b, c, one))| json!({
-                "id": format!("l{l}"), "from": format!("s{a}"), "to": format!("s{b}"),
-                "capacity": c, "one_way": one})).collect::<Vec<_>>(),
-            "demands": self.demands.iter().map(|(a, b, vol, req, chain)| json!({
-                "from": format!("s{a}"), "to": format!("s{b}"), "volume": vol,
-                "required": req,
-                "chain": chain.iter().map(|&f| fid(f)).collect::<Vec<_>>()
-            })).collect::<Vec<_>>(),
-        })
-    }
-}
-
-/// served_required from the contract: per demand `d` with chain f1…fk, layers 0..=k of
-/// the surviving arcs; `x[d][j][a]` in origin units, the arc row takes `G_j · x`
-/// (`G_j` = g1·…·gj); `p[d][j][v]` moves layer j to j+1 at a surviving site with
-/// capacity of f_{j+1}, its function row takes `G_j · p`; conservation per demand, layer
-/// and site with `F_d` leaving the origin in layer 0 and reaching the destination in
-/// layer k; `0 <= F_d <= required` (`<= volume` with `by_volume`: the throughput). A
-/// failed site loses its functions and links; a demand with a failed end is left out.
-fn reference_served(
-    t: &RNet,
-    failed_site: Option<usize>,
-    failed_link: Option<usize>,
-    by_volume: bool,
-) -> f64 {
-    let n = t.capacity.len();
-    let up = |v: usize| failed_site != Some(v);
-    let mut arcs = Vec::new();
-    for (l, &(a, b, c, one)) in t.links.iter().enumerate() {
-        if failed_link == Some(l) || !up(a) || !up(b) {
-            continue;
-        }
-        arcs.push((a, b, c));
-        if !one {
-            arcs.push((b, a, c));
-        }
-    }
-    let nf = t.gains.len();
-    let mut pv = ProblemVariables::new();
-    let mut arc_use = vec![Expression::from(0.0); arcs.len()];
-    let mut fn_use = vec![vec![Expression::from(0.0); nf]; n];
-    let mut objective = Expression::from(0.0);
-    let mut balance = Vec::new();
-    for (from, to, volume, required, chain) in &t.demands {
-        if !up(*from) || !up(*to) {
-            continue;
-        }
-        let k = chain.len();
-        let cap = if by_volume { *volume } else { *required };
-        let f: Variable = pv.add(variable().min(0.0).max(cap));
-        objective += f;
-        let mut g = 1.0;
-        let mut node = vec![vec![Expression::from(0.0); n]; k + 1];
-        for j in 0..=k {
-            for (a, &(u, w, _)) in arcs.iter().enumerate() {
-                let x = pv.add(variable().min(0.0));
-                node[j][u] -= x;
-                node[j][w] += x;
-                arc_use[a] += g * x;
-            }
-            if j < k {
-                for v in 0..n {
-                    if up(v) && t.capacity[v][chain[j]] > 0.0 {
-                        let p = pv.add(variable().min(0.0));
-                        node[j][v] -= p;
-                        node[j + 1][v] += p;
-                        fn_use[v][chain[j]] += g * p;
-                    }
-                }
-                g *= t.gains[chain[j]];
-            }
-        }
-        node[0][*from] += f;
-        node[k][*to] -= f;
-        for layer in node {
-            balance.extend(layer);
-        }
-    }
-    let mut model = pv.maximise(objective.clone()).using(microlp);
-    for e in balance {
-        model.add_constraint(e.eq(0.0));
-    }
-    for (a, e) in arc_use.into_iter().enumerate() {
-        model.add_constraint(e.leq(arcs[a].2));
-    }
-    for (v, row) in fn_use.into_iter().enumerate() {
-        for (f, e) in row.into_iter().enumerate() {
-            if up(v) && t.capacity[v][f] > 0.0 {
-                model.add_constraint(e.leq(t.capacity[v][f]));
-            }
-        }
-    }
-    model
-        .solve()
-        .expect("microlp solves the reference")
-        .eval(&objective)
-}
-
-#[allow(clippy::needless_range_loop)] // each function's capacity goes to a random site
-fn random_net(rng: &mut StdRng) -> RNet {
-    let n = rng.random_range(4..=6);
-    let nf = rng.random_range(1..=3);
-    let gains_from = [0.5, 0.8, 1.0, 1.25, 2.0];
-    let gains: Vec<f64> = (0..nf)
-        .map(|_| gains_from[rng.random_range(0..gains_from.len())])
-        .collect();
-    let mut capacity = vec![vec![0.0; nf]; n];
-    for f in 0..nf {
-        // At least one site per function, a second one often.
-        for _ in 0..rng.random_range(1..=2) {
-            capacity[rng.random_range(0..n)][f] = rng.random_range(5..=300) as f64 / 10.0;
-        }
-    }
-    let mut links = Vec::new();
-    for l in 0..rng.random_range(n..=n + 4) {
-        let (a, b) = if l < n {
-            (l, (l + 1) % n)
-        } else {
-            let a = rng.random_range(0..n);
-            let mut b = rng.random_range(0..n - 1);
-            if b >= a {
-                b += 1;
-            }
-            (a, b)
-        };
-        links.push((
-            a,
-            b,
-            rng.random_range(10..=300) as f64 / 10.0,
-            rng.random_bool(0.25),
-        ));
-    }
-    let mut demands = Vec::new();
-    for i in 0..rng.random_range(2..=5) {
-        let a = if i % 3 == 2 {
-            demands
-                .last()
-                .map(|d: &(usize, usize, f64, f64, Vec<usize>)| d.0)
-                .unwrap()
-        } else {
-            rng.random_range(0..n)
-        };
-        let mut b = rng.random_range(0..n - 1);
-        if b >= a {
-            b += 1;
-        }
-        let chain: Vec<usize> = (0..rng.random_range(0..=3))
-            .map(|_| rng.random_range(0..nf))
-            .collect();
-        let volume = rng.random_range(10..=250) as f64 / 10.0;
-        let required = (volume * rng.random_range(3..=10) as f64).round() / 10.0;
-        demands.push((a, b, volume, required.min(volume), chain));
-    }
-    RNet {
-        gains,
-        capacity,
-        links,
-        demands,
-    }
-}
 
 #[test]
 fn random_chains_match_a_per_demand_reference_under_every_single_failure() {

@@ -128,10 +128,16 @@ pub(super) fn run(
             }
         }
         if !args.scenarios.quiet {
+            let how = match args.engine {
+                crate::solve::Engine::Edge => "the layered edge LP of service chains",
+                _ => {
+                    "the layered walk engine of service chains (`--engine edge`: the layered \
+                     edge LP)"
+                }
+            };
             note(writeln!(
                 err,
-                "note: the file lists `functions`: every scenario is solved with the layered \
-                 edge LP of service chains (the walk engine does not take chains yet)"
+                "note: the file lists `functions`: every scenario is solved with {how}"
             ));
         }
     }

@@ -64,7 +64,7 @@ pub struct Edge {
 }
 
 /// What an edge of the layered graph uses.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
 pub enum EdgeKind {
     /// Arc `a` (index into `Network::arcs`) in layer `j`.
     Arc { arc: usize, layer: usize },
@@ -94,7 +94,7 @@ pub struct Layered {
 /// Per demand: reachable through its whole chain on `view` (`Ok`), else why not. A
 /// stranded demand or one with cap 0 gives `Ok(false)` (not in the LP, not cut off).
 /// O(groups · (chain + 1) · (sites + arcs)).
-fn servable(
+pub(crate) fn servable(
     net: &Network,
     ch: &Chains,
     view: &Surviving,
@@ -141,12 +141,12 @@ pub fn cut_off(net: &Network, view: &Surviving, bound: &[f64]) -> Vec<(usize, Un
 }
 
 /// Whether site `v` can run function `f` on `view`: alive with capacity > 0.
-fn runs(ch: &Chains, view: &Surviving, v: SiteIdx, f: FunctionIdx) -> bool {
+pub(crate) fn runs(ch: &Chains, view: &Surviving, v: SiteIdx, f: FunctionIdx) -> bool {
     view.site_alive[v] && ch.capacity[v][f] > 0.0
 }
 
 /// Layered nodes reachable from `(origin, 0)`. O((k + 1) · (sites + arcs)).
-fn forward(
+pub(crate) fn forward(
     net: &Network,
     ch: &Chains,
     view: &Surviving,
@@ -172,7 +172,7 @@ fn forward(
 }
 
 /// Layered nodes from which some destination in `dests` is reachable in layer `k`.
-fn backward(
+pub(crate) fn backward(
     net: &Network,
     ch: &Chains,
     view: &Surviving,
@@ -551,8 +551,8 @@ fn scale_walks(net: &Network, ch: &Chains, layered: &Layered, walks: &mut [Layer
 /// The dual bound of the layered model for nonnegative prices `arc_price` (per arc) and
 /// `fn_price` (per (site, function) row), over `layered`'s demands: `Σ arc_cap·y +
 /// Σ function_cap·z + Σ_d cap_d · max(0, 1 − π_d)`, `π_d` the cheapest layered walk of
-/// `d` (layered Dijkstra per group). Valid for any nonnegative prices.
-/// O(groups · (k + 1) · (arcs + sites) · log).
+/// `d` (layered Dijkstra per group, over each site's outgoing arcs). Valid for any
+/// nonnegative prices. O(groups · (k + 1) · (arcs + sites) · log).
 pub fn dual_bound(
     net: &Network,
     view: &Surviving,
@@ -570,6 +570,11 @@ pub fn dual_bound(
     }
     for (key, &cap) in &layered.function_cap {
         bound += cap * fn_price.get(key).copied().unwrap_or(0.0);
+    }
+    // The usable arcs leaving each site, in `view.arcs` order.
+    let mut out: Vec<Vec<usize>> = vec![Vec::new(); n];
+    for &a in &view.arcs {
+        out[net.arcs[a].from].push(a);
     }
     for group in &layered.groups {
         let k = group.chain.len();
@@ -590,11 +595,8 @@ pub fn dual_bound(
                     heap.push(Reverse((Ordered(nd), to)));
                 }
             };
-            for &a in &view.arcs {
-                let arc = &net.arcs[a];
-                if arc.from == v {
-                    relax(j * n + arc.to, cum[j] * arc_price[a], &mut heap);
-                }
+            for &a in &out[v] {
+                relax(j * n + net.arcs[a].to, cum[j] * arc_price[a], &mut heap);
             }
             if j < k && runs(ch, view, v, group.chain[j]) {
                 let z = fn_price.get(&(v, group.chain[j])).copied().unwrap_or(0.0);
@@ -810,7 +812,20 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     } else {
         None
     };
-    let mut e = finish_with(net, &view, cut_off, solved, volume);
+    Ok(finish_chain(net, &view, cut_off, solved, volume))
+}
+
+/// The evaluation of one outage of a network with `functions` from its verified
+/// required (and volume) results and its cut-off list: [`finish_with`], then `delivered`
+/// from the reported flows. Shared by every chain engine. O(demands · chain).
+pub(crate) fn finish_chain(
+    net: &Network,
+    view: &Surviving,
+    cut_off: Vec<(usize, Unservable)>,
+    solved: Verified,
+    volume: Option<Verified>,
+) -> Evaluation {
+    let mut e = finish_with(net, view, cut_off, solved, volume);
     // Shown as the plainest number within solver noise of the delivered volume at stake
     // (Σ required · gain over the surviving demands), as every reported amount is.
     let ch = net.chains.as_ref().expect("a network with functions");
@@ -821,5 +836,5 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     let x = delivered(net, &e.demand_flow);
     let eps = crate::tol::NOISE * at_stake;
     e.delivered = Some(super::simplest_in(x - eps, x + eps, x.round()).max(0.0));
-    Ok(e)
+    e
 }

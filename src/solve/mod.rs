@@ -20,6 +20,7 @@ pub mod approx;
 pub mod cancel;
 pub mod certify;
 pub mod chain;
+pub mod chainwalk;
 pub mod colgen;
 pub mod concurrent;
 pub mod edge;
@@ -77,11 +78,11 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
 /// result (an unproven walk answer falls back to the edge LP's ladder), usually faster on
 /// networks of tens of sites.
 ///
-/// A network with `functions` is solved by the layered LP of service chains
-/// ([`chain::evaluate`]).
+/// A network with `functions` is solved by the layered walk engine of service chains
+/// started cold ([`chainwalk::evaluate_walks`]).
 pub fn evaluate_cold_walks(net: &Network, outage: &Outage) -> Result<Evaluation> {
     if net.chains.is_some() {
-        return chain::evaluate(net, outage);
+        return Ok(chainwalk::evaluate_walks(net, outage, None)?.evaluation);
     }
     Ok(evaluator::Walks.evaluate(net, outage, None)?.evaluation)
 }

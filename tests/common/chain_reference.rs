@@ -1,0 +1,195 @@
+//! A second formulation of the service-chain model written from the input contract
+//! (/work/shared/network-format.md, "Service chains and traffic that changes volume"): one
+//! layered LP *per demand* (not aggregated by origin and chain as the product's edge LP is,
+//! and with no walks as the product's walk engine has), solved by microlp (a simplex method,
+//! through good_lp) rather than the product's backends; and the random small networks with
+//! random chains and gains it is checked on. Shared by `tests/chains.rs` and
+//! `tests/chain_walks.rs` through `#[path]`.
+#![allow(dead_code)] // each test crate uses part of it
+
+use good_lp::{Expression, ProblemVariables, Solution, SolverModel, Variable, microlp, variable};
+use rand::prelude::*;
+use serde_json::{Value, json};
+
+pub struct RNet {
+    pub gains: Vec<f64>,
+    /// Per site, per function.
+    pub capacity: Vec<Vec<f64>>,
+    /// (from, to, capacity, one_way).
+    pub links: Vec<(usize, usize, f64, bool)>,
+    /// (from, to, volume, required, chain).
+    pub demands: Vec<(usize, usize, f64, f64, Vec<usize>)>,
+}
+
+impl RNet {
+    pub fn to_json(&self) -> Value {
+        let fid = |f: usize| format!("f{f}");
+        json!({
+            "functions": self.gains.iter().enumerate()
+                .map(|(f, g)| json!({"id": fid(f), "gain": g})).collect::<Vec<_>>(),
+            "sites": self.capacity.iter().enumerate().map(|(v, caps)| {
+                let m: serde_json::Map<String, Value> = caps.iter().enumerate()
+                    .filter(|(_, c)| **c > 0.0)
+                    .map(|(f, c)| (fid(f), json!(c))).collect();
+                json!({"id": format!("s{v}"), "functions": m})
+            }).collect::<Vec<_>>(),
+            "links": self.links.iter().enumerate().map(|(l, &(a, b, c, one))| json!({
+                "id": format!("l{l}"), "from": format!("s{a}"), "to": format!("s{b}"),
+                "capacity": c, "one_way": one})).collect::<Vec<_>>(),
+            "demands": self.demands.iter().map(|(a, b, vol, req, chain)| json!({
+                "from": format!("s{a}"), "to": format!("s{b}"), "volume": vol,
+                "required": req,
+                "chain": chain.iter().map(|&f| fid(f)).collect::<Vec<_>>()
+            })).collect::<Vec<_>>(),
+        })
+    }
+}
+
+/// served_required from the contract: per demand `d` with chain f1…fk, layers 0..=k of
+/// the surviving arcs; `x[d][j][a]` in origin units, the arc row takes `G_j · x`
+/// (`G_j` = g1·…·gj); `p[d][j][v]` moves layer j to j+1 at a surviving site with
+/// capacity of f_{j+1}, its function row takes `G_j · p`; conservation per demand, layer
+/// and site with `F_d` leaving the origin in layer 0 and reaching the destination in
+/// layer k; `0 <= F_d <= required` (`<= volume` with `by_volume`: the throughput). A
+/// failed site loses its functions and links; a demand with a failed end is left out.
+pub fn reference_served(
+    t: &RNet,
+    failed_site: Option<usize>,
+    failed_link: Option<usize>,
+    by_volume: bool,
+) -> f64 {
+    let n = t.capacity.len();
+    let up = |v: usize| failed_site != Some(v);
+    let mut arcs = Vec::new();
+    for (l, &(a, b, c, one)) in t.links.iter().enumerate() {
+        if failed_link == Some(l) || !up(a) || !up(b) {
+            continue;
+        }
+        arcs.push((a, b, c));
+        if !one {
+            arcs.push((b, a, c));
+        }
+    }
+    let nf = t.gains.len();
+    let mut pv = ProblemVariables::new();
+    let mut arc_use = vec![Expression::from(0.0); arcs.len()];
+    let mut fn_use = vec![vec![Expression::from(0.0); nf]; n];
+    let mut objective = Expression::from(0.0);
+    let mut balance = Vec::new();
+    for (from, to, volume, required, chain) in &t.demands {
+        if !up(*from) || !up(*to) {
+            continue;
+        }
+        let k = chain.len();
+        let cap = if by_volume { *volume } else { *required };
+        let f: Variable = pv.add(variable().min(0.0).max(cap));
+        objective += f;
+        let mut g = 1.0;
+        let mut node = vec![vec![Expression::from(0.0); n]; k + 1];
+        for j in 0..=k {
+            for (a, &(u, w, _)) in arcs.iter().enumerate() {
+                let x = pv.add(variable().min(0.0));
+                node[j][u] -= x;
+                node[j][w] += x;
+                arc_use[a] += g * x;
+            }
+            if j < k {
+                for v in 0..n {
+                    if up(v) && t.capacity[v][chain[j]] > 0.0 {
+                        let p = pv.add(variable().min(0.0));
+                        node[j][v] -= p;
+                        node[j + 1][v] += p;
+                        fn_use[v][chain[j]] += g * p;
+                    }
+                }
+                g *= t.gains[chain[j]];
+            }
+        }
+        node[0][*from] += f;
+        node[k][*to] -= f;
+        for layer in node {
+            balance.extend(layer);
+        }
+    }
+    let mut model = pv.maximise(objective.clone()).using(microlp);
+    for e in balance {
+        model.add_constraint(e.eq(0.0));
+    }
+    for (a, e) in arc_use.into_iter().enumerate() {
+        model.add_constraint(e.leq(arcs[a].2));
+    }
+    for (v, row) in fn_use.into_iter().enumerate() {
+        for (f, e) in row.into_iter().enumerate() {
+            if up(v) && t.capacity[v][f] > 0.0 {
+                model.add_constraint(e.leq(t.capacity[v][f]));
+            }
+        }
+    }
+    model
+        .solve()
+        .expect("microlp solves the reference")
+        .eval(&objective)
+}
+
+#[allow(clippy::needless_range_loop)] // each function's capacity goes to a random site
+pub fn random_net(rng: &mut StdRng) -> RNet {
+    let n = rng.random_range(4..=6);
+    let nf = rng.random_range(1..=3);
+    let gains_from = [0.5, 0.8, 1.0, 1.25, 2.0];
+    let gains: Vec<f64> = (0..nf)
+        .map(|_| gains_from[rng.random_range(0..gains_from.len())])
+        .collect();
+    let mut capacity = vec![vec![0.0; nf]; n];
+    for f in 0..nf {
+        // At least one site per function, a second one often.
+        for _ in 0..rng.random_range(1..=2) {
+            capacity[rng.random_range(0..n)][f] = rng.random_range(5..=300) as f64 / 10.0;
+        }
+    }
+    let mut links = Vec::new();
+    for l in 0..rng.random_range(n..=n + 4) {
+        let (a, b) = if l < n {
+            (l, (l + 1) % n)
+        } else {
+            let a = rng.random_range(0..n);
+            let mut b = rng.random_range(0..n - 1);
+            if b >= a {
+                b += 1;
+            }
+            (a, b)
+        };
+        links.push((
+            a,
+            b,
+            rng.random_range(10..=300) as f64 / 10.0,
+            rng.random_bool(0.25),
+        ));
+    }
+    let mut demands = Vec::new();
+    for i in 0..rng.random_range(2..=5) {
+        let a = if i % 3 == 2 {
+            demands
+                .last()
+                .map(|d: &(usize, usize, f64, f64, Vec<usize>)| d.0)
+                .unwrap()
+        } else {
+            rng.random_range(0..n)
+        };
+        let mut b = rng.random_range(0..n - 1);
+        if b >= a {
+            b += 1;
+        }
+        let chain: Vec<usize> = (0..rng.random_range(0..=3))
+            .map(|_| rng.random_range(0..nf))
+            .collect();
+        let volume = rng.random_range(10..=250) as f64 / 10.0;
+        let required = (volume * rng.random_range(3..=10) as f64).round() / 10.0;
+        demands.push((a, b, volume, required.min(volume), chain));
+    }
+    RNet {
+        gains,
+        capacity,
+        links,
+        demands,
+    }
+}
