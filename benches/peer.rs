@@ -333,7 +333,7 @@ mod warm_peer {
                 highs_sys::Highs_run(ptr);
                 assert_eq!(
                     highs_sys::Highs_getModelStatus(ptr),
-                    highs_sys::MODEL_STATUS_OPTIMAL as HighsInt,
+                    highs_sys::MODEL_STATUS_OPTIMAL,
                     "baseline solve"
                 );
             }
@@ -394,7 +394,7 @@ mod warm_peer {
                 highs_sys::Highs_run(ptr);
                 assert_eq!(
                     highs_sys::Highs_getModelStatus(ptr),
-                    highs_sys::MODEL_STATUS_OPTIMAL as HighsInt,
+                    highs_sys::MODEL_STATUS_OPTIMAL,
                     "scenario solve"
                 );
                 let value = highs_sys::Highs_getObjectiveValue(ptr) / self.objective_scale;

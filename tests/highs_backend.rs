@@ -31,12 +31,6 @@ use redoubt::scenario::{self, Kinds};
 use redoubt::solve::Engine;
 use reference_common::*;
 
-const ALL: Kinds = Kinds {
-    links: true,
-    sites: true,
-    groups: true,
-};
-
 /// Served values per scenario name (failed elements sorted and joined by `,`).
 type Served = BTreeMap<String, (f64, f64)>;
 
@@ -82,17 +76,18 @@ fn binary_audit(file: &Path, depth: usize, engine: &str) -> (Served, Vec<String>
     (served, backends)
 }
 
-/// The same audit by the library with HiGHS turned off (the default build's path), one
-/// thread, the edge engine.
-fn pure_rust_audit(net: &Network, depth: usize) -> Served {
+/// The same audit by the library with HiGHS turned off (the default build's path: the
+/// walk engine's warm simplex and cold interior-point masters, the pure-Rust ladder),
+/// failing `kinds`.
+fn pure_rust_audit(net: &Network, depth: usize, kinds: Kinds) -> Served {
     redoubt::solve::highs::set_enabled(false);
-    let list: Vec<_> = scenario::lazy(net, ALL, depth).collect();
+    let list: Vec<_> = scenario::lazy(net, kinds, depth).collect();
     let opts = RunOptions {
-        threads: Some(1),
+        threads: None,
         progress: false,
     };
-    let (audit, _) =
-        redoubt::audit_network_with(net, list, opts, Engine::Edge).expect("pure-Rust audit solves");
+    let (audit, _) = redoubt::audit_network_with(net, list, opts, Engine::Walks)
+        .expect("pure-Rust audit solves");
     (0..audit.scenarios.len())
         .map(|i| {
             let mut failed = audit.scenarios[i].failed.clone();
@@ -125,18 +120,30 @@ fn assert_same(got: &Served, want: &Served, total: f64, rel: f64, what: &str) {
     }
 }
 
-/// The fixtures (the invented demo, a 4-site ring, a 50-site grid) at depth 1, both exact
-/// engines: the HiGHS build's served values equal the pure-Rust path's in every scenario,
-/// and the edge engine's answers really come from HiGHS (its verification names it).
+/// The fixtures at depth 1: the HiGHS build's served values equal the pure-Rust path's in
+/// every scenario, with the edge engine (every LP solved by HiGHS first: its verification
+/// names it) on the invented demo and the 4-site ring, and with the walk engine on those
+/// and the 50-site grid.
 #[test]
 fn fixtures_agree_with_the_pure_rust_path() {
-    for name in ["small-ring.json", "demo-harrowmere.json", "grid-50.json"] {
+    let cases: [(&str, &[&str]); 3] = [
+        ("small-ring.json", &["edge", "walks"]),
+        ("demo-harrowmere.json", &["edge", "walks"]),
+        ("grid-50.json", &["walks"]),
+    ];
+    for (name, engines) in cases {
         let file = fixture(name);
         let net = Network::from_json(&std::fs::read_to_string(&file).unwrap()).unwrap();
         let total: f64 = net.demands.iter().map(|d| d.required).sum();
-        let want = pure_rust_audit(&net, 1);
-        for engine in ["edge", "walks"] {
-            let (got, backends) = binary_audit(&file, 1, engine);
+        let runs: Vec<(&str, Served, Vec<String>)> = engines
+            .iter()
+            .map(|&e| {
+                let (served, backends) = binary_audit(&file, 1, e);
+                (e, served, backends)
+            })
+            .collect();
+        let want = pure_rust_audit(&net, 1, kinds_of(&runs[0].1));
+        for (engine, got, backends) in runs {
             assert_same(&got, &want, total, 1e-7, &format!("{name}, {engine}"));
             if engine == "edge" {
                 assert!(
@@ -145,6 +152,21 @@ fn fixtures_agree_with_the_pure_rust_path() {
                 );
             }
         }
+    }
+}
+
+/// The kinds of element the binary's default audit failed (read from its scenario names),
+/// so that the library audit enumerates the same scenarios.
+fn kinds_of(served: &Served) -> Kinds {
+    let has = |prefix: &str| {
+        served
+            .keys()
+            .any(|k| k.split(',').any(|p| p.starts_with(prefix)))
+    };
+    Kinds {
+        links: has("link:"),
+        sites: has("site:"),
+        groups: has("group:"),
     }
 }
 
@@ -189,7 +211,7 @@ fn random_networks_agree_with_the_reference() {
         let net = t.network();
         let total: f64 = net.demands.iter().map(|d| d.required).sum();
         let (got, _) = binary_audit(Path::new(file.path()), 1, "edge");
-        let want = pure_rust_audit(&net, 1);
+        let want = pure_rust_audit(&net, 1, kinds_of(&got));
         assert_same(&got, &want, total, 1e-7, &format!("random {k}"));
         for (name, (served, throughput)) in &got {
             let (sites, links) = failed_indices(&t, name);
@@ -213,8 +235,8 @@ fn random_networks_agree_with_the_reference() {
 /// A generated network whose walk master has more rows than the warm simplex takes
 /// (`colgen::WARM_ROWS`): 40 sites, 70 duplex links (140 arcs), 10 processing sites, two
 /// demands per ordered pair (3,120), so the baseline's master has 3,270 rows and is the
-/// warm HiGHS model. Depth 1 on links by the walk engine: the served values equal the
-/// pure-Rust path's (edge LP, interior point).
+/// warm HiGHS model. Depth 1 by the walk engine: every link failure's served value equals
+/// the pure-Rust path's (the baseline's master on the cold interior point).
 #[test]
 #[ignore = "slow tier: cargo test --release -- --ignored"]
 fn large_walk_master_agrees_with_the_pure_rust_path() {
@@ -266,32 +288,18 @@ fn large_walk_master_agrees_with_the_pure_rust_path() {
     let net = t.network();
     let total: f64 = net.demands.iter().map(|d| d.required).sum();
     let (got, _) = binary_audit(Path::new(file.path()), 1, "walks");
-    redoubt::solve::highs::set_enabled(false);
-    let list: Vec<_> = scenario::lazy(
-        &net,
-        Kinds {
-            links: true,
-            sites: false,
-            groups: false,
-        },
-        1,
-    )
-    .collect();
-    let opts = RunOptions {
-        threads: None,
-        progress: false,
+    let links = Kinds {
+        links: true,
+        sites: false,
+        groups: false,
     };
-    let (audit, _) =
-        redoubt::audit_network_with(&net, list, opts, Engine::Edge).expect("pure-Rust audit");
-    for i in 0..audit.scenarios.len() {
-        let mut failed = audit.scenarios[i].failed.clone();
-        failed.sort();
-        let key = failed.join(",");
-        let (served, _) = got[&key];
-        let want = audit.eval(i).served_required;
+    let want = pure_rust_audit(&net, 1, links);
+    for (key, (served, _)) in &want {
+        let (got_served, _) = got[key];
         assert!(
-            (served - want).abs() <= 1e-7 * total,
-            "scenario {key}: HiGHS walk master {served}, pure Rust {want}"
+            (got_served - served).abs() <= 1e-7 * total,
+            "scenario {key}: HiGHS walk master {got_served}, pure Rust {served}"
         );
     }
+    assert_eq!(want.len(), t.links.len() + 1, "baseline and every link");
 }

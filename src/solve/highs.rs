@@ -222,7 +222,9 @@ impl WarmLp {
     /// it); returns its index. O(1).
     pub fn add_row(&mut self, rhs: f64) -> usize {
         let i = self.rows.len();
-        let row = self.model().add_row(f64::NEG_INFINITY..=rhs, []);
+        let row = self
+            .model()
+            .add_row(f64::NEG_INFINITY..=rhs, std::iter::empty());
         self.rows.push(row);
         self.rhs.push(rhs);
         self.y.push(0.0);
