@@ -15,7 +15,7 @@ use crate::solve::simplex::Simplex;
 /// last solve stopped.
 pub(super) trait MasterLp {
     /// Rows above which the master is abandoned (to the cold interior-point master).
-    const ROW_LIMIT: usize;
+    fn row_limit(&self) -> usize;
     fn rows(&self) -> usize;
     fn cols(&self) -> usize;
     /// Adds the empty row `0 ≤ rhs`; returns its index.
@@ -37,7 +37,9 @@ pub(super) trait MasterLp {
 }
 
 impl MasterLp for Simplex {
-    const ROW_LIMIT: usize = WARM_ROWS;
+    fn row_limit(&self) -> usize {
+        WARM_ROWS
+    }
     fn rows(&self) -> usize {
         Simplex::rows(self)
     }
@@ -77,7 +79,9 @@ impl MasterLp for Simplex {
 /// HiGHS keeps a sparse factorisation, so the master has no size limit.
 #[cfg(feature = "highs")]
 impl MasterLp for crate::solve::highs::WarmLp {
-    const ROW_LIMIT: usize = usize::MAX;
+    fn row_limit(&self) -> usize {
+        usize::MAX
+    }
     fn rows(&self) -> usize {
         Self::rows(self)
     }
@@ -112,6 +116,17 @@ impl MasterLp for crate::solve::highs::WarmLp {
     fn objective(&self) -> f64 {
         Self::objective(self)
     }
+}
+
+/// The master LP for a master above [`WARM_ROWS`] rows: HiGHS's [`crate::solve::highs::WarmLp`]
+/// when the `highs` feature is built and HiGHS is enabled, else `None` (the caller goes
+/// cold). O(1).
+pub(super) fn large_master_lp() -> Option<Box<dyn MasterLp>> {
+    #[cfg(feature = "highs")]
+    if crate::solve::highs::enabled() {
+        return Some(Box::new(crate::solve::highs::WarmLp::new()));
+    }
+    None
 }
 
 /// How a warm column generation ended.
@@ -267,7 +282,7 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
         let mut scale: Option<f64> = None;
         loop {
             cancel::check()?;
-            if self.lp.rows() > L::ROW_LIMIT {
+            if self.lp.rows() > self.lp.row_limit() {
                 return Ok(Warm::Abandon(self.into_solution().0));
             }
             if self.lp.cols() > 0 {
