@@ -25,8 +25,9 @@
 //! demands' bounds, then restoring them; two threads), with its served values compared.
 //!
 //! Run: `cargo bench --bench peer` (all), or name networks: `-- T12 T22 B G200`;
-//! `-- nopeer` skips the peer. The peer script is looked up at `$PEER_WARM`, else
-//! `../shared/peers/peer_warm.py` and `../../shared/peers/peer_warm.py` from the crate.
+//! `-- nopeer` skips the peer, `-- nowarm` the warm HiGHS baseline. The peer script is
+//! looked up at `$PEER_WARM`, else `../shared/peers/peer_warm.py` and
+//! `../../shared/peers/peer_warm.py` from the crate.
 
 mod common;
 
@@ -517,22 +518,24 @@ fn main() {
             {
                 redoubt::solve::highs::set_enabled(true);
                 let (with, hnote) = redoubt_audit(&case.text, depth);
-                let (warm_s, warm) = warm_peer::audit(&case.text, depth);
                 println!(
-                    "  depth {depth}: redoubt with highs {:.2} s ({:.2}x the default) | {hnote}",
+                    "  depth {depth}: redoubt with highs {:.2} s ({:.2}x faster than the default) | {hnote}",
                     with.seconds,
                     ours.seconds / with.seconds
                 );
-                println!(
-                    "  depth {depth}: warm HiGHS edge LP (Rust, 2 threads) {warm_s:.2} s | \
-                     ratio warm/redoubt-highs {:.2}x, warm/redoubt-default {:.2}x | \
-                     served differs from redoubt in {} of {} scenarios (highs) and {} (default)",
-                    warm_s / with.seconds,
-                    warm_s / ours.seconds,
-                    disagreements(&with.served, &warm, total_required),
-                    with.served.len(),
-                    disagreements(&ours.served, &warm, total_required),
-                );
+                if !args.iter().any(|a| a == "nowarm") {
+                    let (warm_s, warm) = warm_peer::audit(&case.text, depth);
+                    println!(
+                        "  depth {depth}: warm HiGHS edge LP (Rust, 2 threads) {warm_s:.2} s | \
+                         ratio warm/redoubt-highs {:.2}x, warm/redoubt-default {:.2}x | \
+                         served differs from redoubt in {} of {} scenarios (highs) and {} (default)",
+                        warm_s / with.seconds,
+                        warm_s / ours.seconds,
+                        disagreements(&with.served, &warm, total_required),
+                        with.served.len(),
+                        disagreements(&ours.served, &warm, total_required),
+                    );
+                }
             }
             let Some(script) = &peer else { continue };
             let Some((theirs, pnote)) = peer_audit(script, &file, depth) else {
