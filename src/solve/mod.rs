@@ -81,17 +81,6 @@ pub fn ladder() -> &'static [&'static dyn Backend] {
     &LADDER
 }
 
-/// The backends tried in turn until a result is proven: with the `highs` feature, HiGHS's
-/// dual simplex first (a vertex with exact basis duals, usually proven at once and faster
-/// than the interior point on carrier-sized edge LPs), then the pure-Rust ladder.
-#[cfg(feature = "highs")]
-pub static LADDER: [&dyn Backend; 4] = [
-    &highs::HIGHS,
-    &lp::CLARABEL,
-    &lp::CLARABEL_TIGHT,
-    &lp::Simplex,
-];
-
 /// Solves one outage: served_required, shortfall, stranded, throughput (a second LP only
 /// when some surviving demand's volume exceeds its required part), one optimal allocation,
 /// its bottlenecks and the shadow prices, and the proven bounds (see the module
