@@ -320,7 +320,7 @@ fn warm_master<'a, 'g, L: MasterLp>(
 /// Column generation for a master above [`WARM_ROWS`] rows (the warm simplex's dense
 /// inverse would not fit): with the `highs` feature a [`WarmMaster`] on one HiGHS instance
 /// re-solved from its basis each round (the cold master when HiGHS fails; unless
-/// [`super::highs::set_enabled`] turned it off), else the cold
+/// `highs::set_enabled` turned it off), else the cold
 /// interior-point master ([`generate_cold`]). Same arguments and result as [`generate`].
 fn generate_large(
     g: &Graph,

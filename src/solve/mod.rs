@@ -71,8 +71,8 @@ pub static HIGHS_LADDER: [&dyn Backend; 4] = [
     &lp::Simplex,
 ];
 
-/// The backends every verified solve climbs: [`HIGHS_LADDER`] when the `highs` feature is
-/// built and HiGHS is enabled ([`highs::set_enabled`]), else [`LADDER`]. O(1).
+/// The backends every verified solve climbs: `HIGHS_LADDER` when the `highs` feature is
+/// built and HiGHS is enabled (`highs::set_enabled`), else [`LADDER`]. O(1).
 pub fn ladder() -> &'static [&'static dyn Backend] {
     #[cfg(feature = "highs")]
     if highs::enabled() {

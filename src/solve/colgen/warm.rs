@@ -118,7 +118,7 @@ impl MasterLp for crate::solve::highs::WarmLp {
     }
 }
 
-/// The master LP for a master above [`WARM_ROWS`] rows: HiGHS's [`crate::solve::highs::WarmLp`]
+/// The master LP for a master above [`WARM_ROWS`] rows: HiGHS's `highs::WarmLp`
 /// when the `highs` feature is built and HiGHS is enabled, else `None` (the caller goes
 /// cold). O(1).
 pub(super) fn large_master_lp() -> Option<Box<dyn MasterLp>> {
