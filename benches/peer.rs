@@ -16,9 +16,18 @@
 //! every scenario (relative to Σ required, 1e-6): an independent formulation and solver.
 //! Without `python3` + `highspy` the peer is skipped with a message.
 //!
+//! Built with `--features highs`, each depth also prints redoubt with HiGHS (its first LP
+//! backend and large walk masters) beside the default pure-Rust path (HiGHS turned off in
+//! the same process, `solve::highs::set_enabled`), and a warm HiGHS edge-LP baseline of our
+//! own in Rust (`warm_peer`: the peer's method — the source-aggregated two-layer LP of the
+//! intact network built once per thread, each scenario re-solved by dual simplex without
+//! presolve from the baseline's optimal basis after zeroing the failed rows and stranded
+//! demands' bounds, then restoring them; two threads), with its served values compared.
+//!
 //! Run: `cargo bench --bench peer` (all), or name networks: `-- T12 T22 B G200`;
-//! `-- nopeer` skips the peer. The peer script is looked up at `$PEER_WARM`, else
-//! `../shared/peers/peer_warm.py` and `../../shared/peers/peer_warm.py` from the crate.
+//! `-- nopeer` skips the peer, `-- nowarm` the warm HiGHS baseline. The peer script is
+//! looked up at `$PEER_WARM`, else `../shared/peers/peer_warm.py` and
+//! `../../shared/peers/peer_warm.py` from the crate.
 
 mod common;
 
@@ -260,6 +269,202 @@ fn peer_audit(script: &Path, file: &Path, depth: usize) -> Option<(Side, String)
     ))
 }
 
+/// The warm HiGHS edge-LP baseline (see the module comment), built with `--features highs`.
+#[cfg(feature = "highs")]
+mod warm_peer {
+    use std::collections::HashMap;
+    use std::time::Instant;
+
+    use highs::{ColProblem, Model};
+    use highs_sys::HighsInt;
+    use redoubt::model::Network;
+    use redoubt::scenario::{self, Outage};
+    use redoubt::solve::flow::{self, Cap, FlowIndex};
+    use redoubt::solve::lp::{Lp, Scaling, Sense};
+
+    /// One LP (required or volume caps) of the intact network, loaded in HiGHS with the
+    /// optimal basis of its baseline solve.
+    struct Warm {
+        model: Model,
+        index: FlowIndex,
+        scaled: Lp,
+        objective_scale: f64,
+        col_basis: Vec<HighsInt>,
+        row_basis: Vec<HighsInt>,
+    }
+
+    impl Warm {
+        /// Builds and solves the baseline LP of `net` with caps `cap`. None when the
+        /// model is empty.
+        fn new(net: &Network, cap: Cap) -> Option<Warm> {
+            let mut lp = Lp::new(true);
+            let index = flow::build(&mut lp, net, &Outage::default(), cap, 1.0, None);
+            if lp.num_vars() == 0 {
+                return None;
+            }
+            let scaling = Scaling::of(&lp);
+            let scaled = scaling.apply(&lp);
+            let mut pb = ColProblem::new();
+            let rows: Vec<highs::Row> = scaled
+                .rows
+                .iter()
+                .map(|r| match r.sense {
+                    Sense::Le => pb.add_row(f64::NEG_INFINITY..=r.rhs),
+                    Sense::Ge => pb.add_row(r.rhs..=f64::INFINITY),
+                    Sense::Eq => pb.add_row(r.rhs..=r.rhs),
+                })
+                .collect();
+            let mut cols: Vec<Vec<(highs::Row, f64)>> = vec![Vec::new(); scaled.num_vars()];
+            for (i, r) in scaled.rows.iter().enumerate() {
+                for &(j, a) in &r.coeffs {
+                    cols[j].push((rows[i], a));
+                }
+            }
+            for (j, c) in cols.iter().enumerate() {
+                pb.add_column(scaled.objective[j], scaled.lower[j]..=scaled.upper[j], c);
+            }
+            let mut model = pb.optimise(highs::Sense::Maximise);
+            model.make_quiet();
+            model.set_option("solver", "simplex");
+            model.set_option("simplex_strategy", 1);
+            model.set_option("threads", 1);
+            let ptr = model.as_mut_ptr();
+            // SAFETY: `ptr` is the live HiGHS instance owned by `model`.
+            unsafe {
+                highs_sys::Highs_run(ptr);
+                assert_eq!(
+                    highs_sys::Highs_getModelStatus(ptr),
+                    highs_sys::MODEL_STATUS_OPTIMAL,
+                    "baseline solve"
+                );
+            }
+            model.set_option("presolve", "off");
+            let mut col_basis = vec![0; scaled.num_vars()];
+            let mut row_basis = vec![0; scaled.rows.len()];
+            // SAFETY: the arrays have one entry per column and per row.
+            unsafe {
+                highs_sys::Highs_getBasis(
+                    model.as_mut_ptr(),
+                    col_basis.as_mut_ptr(),
+                    row_basis.as_mut_ptr(),
+                );
+            }
+            Some(Warm {
+                model,
+                index,
+                scaled,
+                objective_scale: scaling.objective,
+                col_basis,
+                row_basis,
+            })
+        }
+
+        /// The LP's optimum under `outage`: failed arcs' and sites' rows and stranded
+        /// demands' bounds set to 0, re-solved from the baseline basis, then restored.
+        fn solve(&mut self, net: &Network, outage: &Outage) -> f64 {
+            let alive = outage.site_alive(net);
+            let mut rows = Vec::new();
+            for (a, arc) in net.arcs.iter().enumerate() {
+                if outage.links.contains(&arc.link) || !alive[arc.from] || !alive[arc.to] {
+                    rows.extend(self.index.arc_row[a]);
+                }
+            }
+            for (v, up) in alive.iter().enumerate() {
+                if !up {
+                    rows.extend(self.index.site_row[v]);
+                }
+            }
+            let cols: Vec<usize> = net
+                .demands
+                .iter()
+                .enumerate()
+                .filter(|(_, d)| !alive[d.from] || !alive[d.to])
+                .filter_map(|(d, _)| self.index.demand_var[d])
+                .collect();
+            let ptr = self.model.as_mut_ptr();
+            // SAFETY: `ptr` is the live instance; rows and columns are in range; the basis
+            // arrays have one entry per column and row.
+            unsafe {
+                for &r in &rows {
+                    highs_sys::Highs_changeRowBounds(ptr, r as HighsInt, f64::NEG_INFINITY, 0.0);
+                }
+                for &c in &cols {
+                    highs_sys::Highs_changeColBounds(ptr, c as HighsInt, 0.0, 0.0);
+                }
+                highs_sys::Highs_setBasis(ptr, self.col_basis.as_ptr(), self.row_basis.as_ptr());
+                highs_sys::Highs_run(ptr);
+                assert_eq!(
+                    highs_sys::Highs_getModelStatus(ptr),
+                    highs_sys::MODEL_STATUS_OPTIMAL,
+                    "scenario solve"
+                );
+                let value = highs_sys::Highs_getObjectiveValue(ptr) / self.objective_scale;
+                for &r in &rows {
+                    let rhs = self.scaled.rows[r].rhs;
+                    highs_sys::Highs_changeRowBounds(ptr, r as HighsInt, f64::NEG_INFINITY, rhs);
+                }
+                for &c in &cols {
+                    let (lo, hi) = (self.scaled.lower[c], self.scaled.upper[c]);
+                    highs_sys::Highs_changeColBounds(ptr, c as HighsInt, lo, hi);
+                }
+                value
+            }
+        }
+    }
+
+    /// Every scenario of `net` (links, sites and groups to `depth`) solved warm on two
+    /// threads (scenarios dealt round-robin, each thread with its own two LPs): wall
+    /// seconds and served_required per scenario name.
+    pub fn audit(text: &str, depth: usize) -> (f64, HashMap<String, f64>) {
+        let t = Instant::now();
+        let net = Network::from_json(text).expect("valid");
+        let list: Vec<scenario::Scenario> = scenario::lazy(&net, super::ALL, depth).collect();
+        let volume = net.demands.iter().any(|d| d.volume > d.required);
+        let served: Vec<(String, f64)> = std::thread::scope(|scope| {
+            let handles: Vec<_> = (0..2)
+                .map(|k| {
+                    let (net, list) = (&net, &list);
+                    scope.spawn(move || {
+                        let mut req = Warm::new(net, Cap::Required);
+                        let mut vol = if volume {
+                            Warm::new(net, Cap::Volume)
+                        } else {
+                            None
+                        };
+                        let mut out = Vec::new();
+                        for sc in list.iter().skip(k).step_by(2) {
+                            let outage = sc.outage(net);
+                            let served = req.as_mut().map_or(0.0, |w| w.solve(net, &outage));
+                            if let Some(w) = vol.as_mut() {
+                                w.solve(net, &outage);
+                            }
+                            out.push((sc.failed.join(","), served));
+                        }
+                        out
+                    })
+                })
+                .collect();
+            handles
+                .into_iter()
+                .flat_map(|h| h.join().expect("peer thread"))
+                .collect()
+        });
+        (t.elapsed().as_secs_f64(), served.into_iter().collect())
+    }
+}
+
+/// How many scenarios of `ours` differ from `theirs` by more than 1e-6 of `total` (or are
+/// missing there).
+fn disagreements(ours: &HashMap<String, f64>, theirs: &HashMap<String, f64>, total: f64) -> usize {
+    ours.iter()
+        .filter(|(k, v)| {
+            theirs
+                .get(*k)
+                .is_none_or(|p| (*v - p).abs() > 1e-6 * total.max(1.0))
+        })
+        .count()
+}
+
 fn main() {
     let args: Vec<String> = std::env::args().collect();
     let chosen: Vec<&str> = ["T12", "T22", "B", "G200"]
@@ -301,26 +506,42 @@ fn main() {
             file.display()
         );
         for &depth in &case.depths {
+            #[cfg(feature = "highs")]
+            redoubt::solve::highs::set_enabled(false);
             let (ours, note) = redoubt_audit(&case.text, depth);
             println!(
                 "  depth {depth}: {} scenarios | redoubt {:.2} s | {note}",
                 ours.served.len(),
                 ours.seconds
             );
+            #[cfg(feature = "highs")]
+            {
+                redoubt::solve::highs::set_enabled(true);
+                let (with, hnote) = redoubt_audit(&case.text, depth);
+                println!(
+                    "  depth {depth}: redoubt with highs {:.2} s ({:.2}x faster than the default) | {hnote}",
+                    with.seconds,
+                    ours.seconds / with.seconds
+                );
+                if !args.iter().any(|a| a == "nowarm") {
+                    let (warm_s, warm) = warm_peer::audit(&case.text, depth);
+                    println!(
+                        "  depth {depth}: warm HiGHS edge LP (Rust, 2 threads) {warm_s:.2} s | \
+                         ratio warm/redoubt-highs {:.2}x, warm/redoubt-default {:.2}x | \
+                         served differs from redoubt in {} of {} scenarios (highs) and {} (default)",
+                        warm_s / with.seconds,
+                        warm_s / ours.seconds,
+                        disagreements(&with.served, &warm, total_required),
+                        with.served.len(),
+                        disagreements(&ours.served, &warm, total_required),
+                    );
+                }
+            }
             let Some(script) = &peer else { continue };
             let Some((theirs, pnote)) = peer_audit(script, &file, depth) else {
                 continue;
             };
-            let disagree = ours
-                .served
-                .iter()
-                .filter(|(k, v)| {
-                    theirs
-                        .served
-                        .get(*k)
-                        .is_none_or(|p| (*v - p).abs() > 1e-6 * total_required.max(1.0))
-                })
-                .count();
+            let disagree = disagreements(&ours.served, &theirs.served, total_required);
             println!(
                 "  depth {depth}: peer {:.2} s ({pnote}) | ratio peer/redoubt {:.1}x (by the peer's own elapsed: {:.1}x) | served differs in {disagree} of {} scenarios",
                 theirs.seconds,

@@ -366,7 +366,7 @@ fn one_file_from_1e_minus6_to_1e15() {
 
 /// Solves `lp` with every backend of the ladder and returns their solutions.
 fn all_backends(lp: &Lp) -> Vec<(&'static str, LpSolution)> {
-    solve::LADDER
+    solve::ladder()
         .iter()
         .map(|b| (b.name(), b.solve(lp).expect("textbook LP solves")))
         .collect()

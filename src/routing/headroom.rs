@@ -19,7 +19,7 @@ use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::solve::concurrent::Headroom;
 use crate::solve::lp::{self, Sense};
-use crate::solve::{GAP_TOL, LADDER, RESIDUAL_TOL, simplest_in, verify};
+use crate::solve::{GAP_TOL, RESIDUAL_TOL, ladder, simplest_in, verify};
 
 /// The demands the headroom is taken over: surviving (routes known) with `required > 0`.
 fn active(net: &Network, routes: &[Option<DemandRoutes>]) -> Vec<usize> {
@@ -67,7 +67,7 @@ pub fn of_outage(
 
 /// The headroom of one outage under `mode`, from its `routes` ([`super::routes`]).
 /// Nearest: O(Σ nearest routes' arcs + arcs + sites); steered: one LP of the size of the
-/// steered fixed-route model plus one tying row per demand, by [`LADDER`].
+/// steered fixed-route model plus one tying row per demand, by [`crate::solve::ladder`].
 pub fn headroom(net: &Network, routes: &[Option<DemandRoutes>], mode: Mode) -> Result<Headroom> {
     let active = active(net, routes);
     if active.is_empty() {
@@ -198,7 +198,7 @@ fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
     };
     let mut errors = Vec::new();
     let mut solved = false;
-    for backend in LADDER.iter() {
+    for backend in ladder().iter() {
         let sol = match backend.solve(&model) {
             Ok(s) => s,
             Err(e) => {

@@ -366,7 +366,7 @@ fn verify_fixed(
 }
 
 /// Builds the fixed-route LP of `routes` with per-demand caps `cap` and solves it with
-/// [`verify_fixed`] on [`solve::LADDER`] (`at_stake`: the demand the proof is measured
+/// [`verify_fixed`] on [`solve::ladder`] (`at_stake`: the demand the proof is measured
 /// against).
 fn solve_fixed(
     net: &Network,
@@ -377,7 +377,7 @@ fn solve_fixed(
 ) -> Result<solve::Verified> {
     let mut model = lp::Lp::new(true);
     let index = fixed::build(&mut model, net, routes, mode, cap, 1.0, None);
-    verify_fixed(net, &model, &index, at_stake, &solve::LADDER)
+    verify_fixed(net, &model, &index, at_stake, solve::ladder())
 }
 
 /// One outage under the deployed routing.

@@ -36,7 +36,7 @@ use super::evaluator::{AddModel, Evaluated, Evaluator, Warm};
 use super::lp::{Backend, Lp, Sense};
 use super::surviving::{Surviving, Unservable};
 use super::types::{Evaluation, Verification, Verified};
-use super::{LADDER, RESIDUAL_TOL, finish_with, needs_volume_lp, verify};
+use super::{RESIDUAL_TOL, finish_with, ladder, needs_volume_lp, verify};
 use crate::error::{Error, Result};
 use crate::model::{Chains, FunctionIdx, Network, SiteIdx};
 use crate::scenario::Outage;
@@ -750,13 +750,13 @@ pub fn solve_verified_with(
     Ok((out, cut_off))
 }
 
-/// [`solve_verified_with`] on [`LADDER`].
+/// [`solve_verified_with`] on [`ladder`].
 pub fn solve_verified(
     net: &Network,
     view: &Surviving,
     bound: &[f64],
 ) -> Result<(Verified, Vec<(usize, Unservable)>)> {
-    solve_verified_with(net, view, bound, &LADDER)
+    solve_verified_with(net, view, bound, ladder())
 }
 
 /// Σ over demands of the reported flow times its chain's gain: the volume reaching the

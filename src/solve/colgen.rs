@@ -36,7 +36,8 @@
 //!
 //! Master LPs are solved by the warm simplex of [`super::simplex`] (kept between rounds,
 //! restricted to the demands a failure touches; see `WarmMaster`), or, above
-//! [`WARM_ROWS`] rows, by [`super::lp::solve`] (the interior-point backend, cold).
+//! [`WARM_ROWS`] rows, by [`super::lp::solve`] (the interior-point backend, cold), or with
+//! the `highs` feature by one HiGHS instance kept between rounds (`generate_large`).
 //! Parallel links of one direction are one arc (a class) for pricing, repair and masters,
 //! and the flow is split back per link before verification (`Graph::split`).
 //!
@@ -233,8 +234,8 @@ fn servable_total(caps: &[f64], cost: &[f64]) -> f64 {
 }
 
 /// Column generation: the warm simplex master ([`WarmMaster`]) when its rows fit
-/// [`WARM_ROWS`], else (or when the simplex gives up) the interior-point master
-/// ([`generate_cold`]) over the same walks. `start` walks carry the feasible flows `flow`
+/// [`WARM_ROWS`], else (or when the simplex gives up) [`generate_large`] over the same
+/// walks. `start` walks carry the feasible flows `flow`
 /// (a point the first master starts from; empty flows mean 0). `active`: the demands
 /// whose walks are free from the start (`None`: all); the others keep their start flows
 /// fixed until the pricing shows that freeing them may pay. `None` when column
@@ -256,8 +257,37 @@ fn generate(
         .unzip();
     let rows = g.usable.len() + g.procs.len() + active.iter().filter(|&&a| a).count();
     if rows > WARM_ROWS {
-        return generate_cold(g, caps, start, stats);
+        return generate_large(g, caps, start, flow, active, stats);
     }
+    let m = warm_master(
+        g,
+        caps,
+        start,
+        flow,
+        active,
+        crate::solve::simplex::Simplex::new(),
+    );
+    match m.run(stats)? {
+        Warm::Done(s) => Ok(Some(s)),
+        Warm::Stalled => Ok(None),
+        Warm::Abandon(walks) => {
+            let active = caps.iter().map(|&b| b > 0.0).collect();
+            generate_large(g, caps, walks, Vec::new(), active, stats)
+        }
+    }
+}
+
+/// A [`WarmMaster`] on the empty LP `lp` holding the walks `start` (class arcs) at their
+/// flows `flow` (duplicates merged, demands without a cap dropped): inactive demands' walks
+/// fixed first, so that rows are created net of their loads. O(walks · walk length).
+fn warm_master<'a, 'g, L: MasterLp>(
+    g: &'g Graph<'a>,
+    caps: &'g [f64],
+    start: Vec<Walk>,
+    flow: Vec<f64>,
+    active: Vec<bool>,
+    lp: L,
+) -> WarmMaster<'a, 'g, L> {
     let mut merged: HashMap<Walk, usize> = HashMap::new();
     let mut walks: Vec<Walk> = Vec::new();
     let mut values: Vec<f64> = Vec::new();
@@ -275,8 +305,7 @@ fn generate(
             }
         }
     }
-    let mut m = WarmMaster::new(g, caps, active);
-    // Fixed walks first, so that rows are created net of their loads.
+    let mut m = WarmMaster::new(g, caps, active, lp);
     type Start = Vec<(Walk, f64)>;
     let (free, fixed): (Start, Start) = walks
         .into_iter()
@@ -285,11 +314,33 @@ fn generate(
     for (w, f) in fixed.into_iter().chain(free) {
         m.add(w, f);
     }
-    match m.run(stats)? {
-        Warm::Done(s) => Ok(Some(s)),
-        Warm::Stalled => Ok(None),
-        Warm::Abandon(walks) => generate_cold(g, caps, walks, stats),
+    m
+}
+
+/// Column generation for a master above [`WARM_ROWS`] rows (the warm simplex's dense
+/// inverse would not fit): with the `highs` feature a [`WarmMaster`] on one HiGHS instance
+/// re-solved from its basis each round (the cold master when HiGHS fails; unless
+/// `highs::set_enabled` turned it off), else the cold
+/// interior-point master ([`generate_cold`]). Same arguments and result as [`generate`].
+fn generate_large(
+    g: &Graph,
+    caps: &[f64],
+    start: Vec<Walk>,
+    flow: Vec<f64>,
+    active: Vec<bool>,
+    stats: &mut Stats,
+) -> Result<Option<Solved>> {
+    #[cfg(feature = "highs")]
+    if super::highs::enabled() {
+        let m = warm_master(g, caps, start, flow, active, super::highs::WarmLp::new());
+        return match m.run(stats)? {
+            Warm::Done(s) => Ok(Some(s)),
+            Warm::Stalled => Ok(None),
+            Warm::Abandon(walks) => generate_cold(g, caps, walks, stats),
+        };
     }
+    let _ = (flow, active);
+    generate_cold(g, caps, start, stats)
 }
 
 /// Column generation from the columns `start` with the interior-point master (solved

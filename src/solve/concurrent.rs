@@ -42,7 +42,7 @@ use super::edge::{Attempt, try_backend};
 use super::flow::{self, Cap};
 use super::lp::{self, Sense};
 use super::surviving::Surviving;
-use super::{Backend, LADDER, RESIDUAL_TOL, certify, simplest_in};
+use super::{Backend, RESIDUAL_TOL, certify, ladder, simplest_in};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -153,7 +153,7 @@ pub fn decide(lower: f64, upper: f64, residual: f64) -> Headroom {
 ///
 /// Cost: a column generation of the walk engine; when it does not prove its answer, one
 /// LP of the size of the served-demand model (plus one variable and one row per demand),
-/// solved by the backends of [`LADDER`] in turn until proven.
+/// solved by the backends of [`ladder`] in turn until proven.
 pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
     let net = net.view(outage.matrix);
     headroom_on(net, &Surviving::new(net, outage, None))
@@ -204,9 +204,9 @@ pub fn headroom_walks(
 }
 
 /// The edge λ-LP of the module documentation on `view`, solved by the backends of
-/// [`LADDER`] in turn until proven (the walk engine's fallback and reference).
+/// [`ladder`] in turn until proven (the walk engine's fallback and reference).
 pub fn headroom_lp(net: &Network, view: &Surviving) -> Result<Headroom> {
-    headroom_with(net, view, &LADDER)
+    headroom_with(net, view, ladder())
 }
 
 /// [`headroom_on`] with another ladder of backends (tests check with it that a wrong

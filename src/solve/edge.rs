@@ -1,12 +1,12 @@
 //! The edge LP: the two-layer flow model of one outage ([`super::flow`]) solved by the
-//! backends of [`super::LADDER`] in turn and verified ([`solve_verified`]): the engine the
+//! backends of [`super::ladder`] in turn and verified ([`solve_verified`]): the engine the
 //! walk engine falls back to and the expansion models build on.
 
 use super::flow::{self, Cap};
 use super::lp::{self, Backend};
 use super::surviving::{Surviving, Unservable};
 use super::types::{Verification, Verified};
-use super::{LADDER, RESIDUAL_TOL, certify, verify};
+use super::{RESIDUAL_TOL, certify, ladder, verify};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -70,13 +70,13 @@ pub fn caps_of(net: &Network, cap: Cap) -> Vec<f64> {
 }
 
 /// Builds the flow LP of `view` with demand caps `cap`, solves it with each backend of
-/// [`LADDER`] in turn until the result is proven, and keeps the best proven bounds of all
+/// [`ladder`] in turn until the result is proven, and keeps the best proven bounds of all
 /// attempts. Fails only when every backend fails.
 ///
 /// Cost: one LP solve when the first backend is proven (the common case), plus the
 /// certificate (O(sites · arcs · log sites)) and the repair per attempt.
 pub fn solve_verified(net: &Network, view: &Surviving, cap: Cap) -> Result<Verified> {
-    solve_verified_with(net, view, cap, &LADDER)
+    solve_verified_with(net, view, cap, ladder())
 }
 
 /// [`solve_verified`] with another ladder of backends (tests use it to check that a

@@ -163,7 +163,7 @@ pub fn served_at_least(model: &mut Lp, served: &[usize], target: f64) -> usize {
 }
 
 /// The edge LP: one two-layer flow LP per quantity ([`super::solve_verified`] climbing
-/// [`super::LADDER`]), cold. Cost: one or two verified LP solves of the size given in
+/// [`super::ladder`]), cold. Cost: one or two verified LP solves of the size given in
 /// [`flow::build`].
 pub struct Edge;
 

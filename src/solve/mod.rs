@@ -28,6 +28,8 @@ pub mod engine;
 pub mod evaluator;
 pub mod finish;
 pub mod flow;
+#[cfg(feature = "highs")]
+pub mod highs;
 pub mod lp;
 pub mod recheck;
 pub mod simplex;
@@ -55,8 +57,30 @@ pub use types::{Bottleneck, Evaluation, Resource, Verification, Verified};
 /// [`crate::tol::PROOF_GAP_TOL`] (not the walk engine's stopping gap `colgen::GAP_TOL`).
 pub use crate::tol::{PROOF_GAP_TOL as GAP_TOL, RELATIVE_TOL as TOL, RESIDUAL_TOL, SATURATED};
 
-/// The backends tried in turn until a result is proven.
+/// The pure-Rust backends, tried in turn until a result is proven: the whole ladder of the
+/// default build, and the rungs after HiGHS with the `highs` feature.
 pub static LADDER: [&dyn Backend; 3] = [&lp::CLARABEL, &lp::CLARABEL_TIGHT, &lp::Simplex];
+
+/// With the `highs` feature: HiGHS's dual simplex first (a vertex with exact basis duals,
+/// usually proven at once and faster than the interior point on carrier-sized edge LPs),
+/// then [`LADDER`].
+#[cfg(feature = "highs")]
+pub static HIGHS_LADDER: [&dyn Backend; 4] = [
+    &highs::HIGHS,
+    &lp::CLARABEL,
+    &lp::CLARABEL_TIGHT,
+    &lp::Simplex,
+];
+
+/// The backends every verified solve climbs: `HIGHS_LADDER` when the `highs` feature is
+/// built and HiGHS is enabled (`highs::set_enabled`), else [`LADDER`]. O(1).
+pub fn ladder() -> &'static [&'static dyn Backend] {
+    #[cfg(feature = "highs")]
+    if highs::enabled() {
+        return &HIGHS_LADDER;
+    }
+    &LADDER
+}
 
 /// Solves one outage: served_required, shortfall, stranded, throughput (a second LP only
 /// when some surviving demand's volume exceeds its required part), one optimal allocation,

@@ -1,9 +1,10 @@
-//! Helpers shared by `tests/reference.rs` and `tests/reference_walks.rs`: a test-side
+//! Helpers shared by `tests/reference.rs`, `tests/reference_walks.rs` and
+//! `tests/highs_backend.rs`: a test-side
 //! network description written to JSON in the contract's shape, the product's evaluation
 //! through its scenario → outage path, and the per-demand reference LP solved by microlp
 //! (a second formulation, written from the input contract, with a different solver).
-//! Included by those two files only (`#[path]`), so other test crates do not compile it.
-#![allow(dead_code)] // each of the two test crates uses part of it
+//! Included by those files only (`#[path]`), so other test crates do not compile it.
+#![allow(dead_code)] // each test crate that includes it uses part of it
 
 use good_lp::{Expression, ProblemVariables, Solution, SolverModel, Variable, microlp, variable};
 use rand::prelude::*;

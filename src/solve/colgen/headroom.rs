@@ -31,14 +31,15 @@
 //! `flow_d / required_d` is the lower bound. The prices give the upper bound through
 //! [`crate::solve::concurrent::upper_bound`] (petgraph's Dijkstra). An interval that does
 //! not close within [`crate::tol::PROOF_GAP_TOL`], a stalled generation, or a master beyond
-//! [`super::WARM_ROWS`] rows or [`super::MAX_ROUNDS`] rounds returns `None`; the caller
-//! then solves the edge λ-LP.
+//! [`super::WARM_ROWS`] rows (unless the `highs` feature's warm HiGHS master takes it) or
+//! [`super::MAX_ROUNDS`] rounds returns `None`; the caller then solves the edge λ-LP.
 //!
 //! Determinism: walks are added in demand order and the simplex is deterministic, so the
 //! answer depends only on the network, the outage and the parent.
 
 use std::collections::HashSet;
 
+use super::warm::{MasterLp, large_master_lp};
 use super::{GAP_TOL, Graph, MAX_ROUNDS, PIVOTS_PER_ROW, Solved, WARM_ROWS, Walk, price};
 use crate::error::Result;
 use crate::model::Network;
@@ -111,13 +112,18 @@ pub fn solve(
     }
 
     let rows = g.usable.len() + g.procs.len() + setup.active.len();
-    if rows > WARM_ROWS {
-        return Ok(None);
-    }
+    let lp: Box<dyn MasterLp> = if rows <= WARM_ROWS {
+        Box::new(Simplex::new())
+    } else {
+        match large_master_lp() {
+            Some(lp) => lp,
+            None => return Ok(None),
+        }
+    };
     // Class arcs carry their class's capacity.
     let arc_cap: Vec<f64> = g.class_cap.iter().map(|c| c.min(2.0 * limit)).collect();
     let site_cap: Vec<f64> = net.sites.iter().map(|s| s.processing.min(limit)).collect();
-    let mut m = Master::new(&g, setup, arc_cap, site_cap);
+    let mut m = Master::new(&g, setup, arc_cap, site_cap, lp);
     // Start columns in class arcs, scaled into the presolved capacities if need be.
     let lifted: Vec<(Walk, f64)> = start
         .iter()
@@ -215,13 +221,14 @@ fn certified(
 
 const NO_ROW: usize = usize::MAX;
 
-/// The restricted master kept by the warm simplex: demand rows for every active demand,
+/// The restricted master kept by a warm LP (the bounded simplex, or HiGHS above
+/// [`WARM_ROWS`] rows with the `highs` feature): demand rows for every active demand,
 /// arc and site rows created when a column first needs them, λ as column 0.
 struct Master<'a, 'g> {
     g: &'g Graph<'a>,
     arc_cap: Vec<f64>,
     site_cap: Vec<f64>,
-    lp: Simplex,
+    lp: Box<dyn MasterLp>,
     arc_row: Vec<usize>,
     site_row: Vec<usize>,
     dem_row: Vec<usize>,
@@ -231,13 +238,18 @@ struct Master<'a, 'g> {
 }
 
 impl<'a, 'g> Master<'a, 'g> {
-    fn new(g: &'g Graph<'a>, setup: &Setup, arc_cap: Vec<f64>, site_cap: Vec<f64>) -> Self {
+    fn new(
+        g: &'g Graph<'a>,
+        setup: &Setup,
+        arc_cap: Vec<f64>,
+        site_cap: Vec<f64>,
+        mut lp: Box<dyn MasterLp>,
+    ) -> Self {
         let net = g.net;
-        let mut lp = Simplex::new();
         let mut dem_row = vec![NO_ROW; net.demands.len()];
         let mut entries = Vec::with_capacity(setup.active.len());
         for &d in &setup.active {
-            dem_row[d] = lp.add_row(0.0, &[]);
+            dem_row[d] = lp.add_row(0.0);
             entries.push((dem_row[d], setup.required[d]));
         }
         lp.add_col(1.0, 0.0, setup.ceiling, 0.0, entries);
@@ -289,12 +301,12 @@ impl<'a, 'g> Master<'a, 'g> {
         let mut entries = Vec::with_capacity(w.arcs.len() + 2);
         for &(a, k) in &w.arcs {
             if self.arc_row[a] == NO_ROW {
-                self.arc_row[a] = self.lp.add_row(self.arc_cap[a], &[]);
+                self.arc_row[a] = self.lp.add_row(self.arc_cap[a]);
             }
             entries.push((self.arc_row[a], f64::from(k)));
         }
         if self.site_row[w.site] == NO_ROW {
-            self.site_row[w.site] = self.lp.add_row(self.site_cap[w.site], &[]);
+            self.site_row[w.site] = self.lp.add_row(self.site_cap[w.site]);
         }
         entries.push((self.site_row[w.site], 1.0));
         entries.push((self.dem_row[w.demand], -1.0));
@@ -325,7 +337,7 @@ impl<'a, 'g> Master<'a, 'g> {
         let scale = setup.total_required;
         loop {
             cancel::check()?;
-            if self.lp.rows() > WARM_ROWS {
+            if self.lp.rows() > self.lp.row_limit() {
                 return Ok(None);
             }
             work.lp_solves += 1;

@@ -1,4 +1,7 @@
-//! The warm restricted master: column generation whose master is the project's bounded primal simplex, kept between rounds (`WarmMaster`); new walks enter at zero against the current duals.
+//! The warm restricted master: column generation whose master LP is kept between rounds
+//! (`WarmMaster`), the project's bounded primal simplex or, with the `highs` feature and
+//! above [`WARM_ROWS`], one HiGHS instance re-solved from its basis (`MasterLp`); new walks
+//! enter at zero against the current duals.
 
 use super::*;
 use std::collections::HashSet;
@@ -7,11 +10,130 @@ use crate::error::Result;
 use crate::solve::cancel;
 use crate::solve::simplex::Simplex;
 
+/// The LP a [`WarmMaster`] keeps between rounds: a maximisation over `≤` rows (added empty,
+/// their coefficients come with the columns) and bounded columns, re-solved from where the
+/// last solve stopped.
+pub(super) trait MasterLp {
+    /// Rows above which the master is abandoned (to the cold interior-point master).
+    fn row_limit(&self) -> usize;
+    fn rows(&self) -> usize;
+    fn cols(&self) -> usize;
+    /// Adds the empty row `0 ≤ rhs`; returns its index.
+    fn add_row(&mut self, rhs: f64) -> usize;
+    /// Adds a column (objective, bounds, value it starts from, entries); returns its index.
+    fn add_col(
+        &mut self,
+        obj: f64,
+        lower: f64,
+        upper: f64,
+        value: f64,
+        entries: Vec<(usize, f64)>,
+    ) -> usize;
+    fn shift_rhs(&mut self, i: usize, delta: f64);
+    fn solve(&mut self, max_pivots: usize) -> Result<()>;
+    fn value(&self, j: usize) -> f64;
+    fn dual(&self, i: usize) -> f64;
+    fn objective(&self) -> f64;
+}
+
+impl MasterLp for Simplex {
+    fn row_limit(&self) -> usize {
+        WARM_ROWS
+    }
+    fn rows(&self) -> usize {
+        Simplex::rows(self)
+    }
+    fn cols(&self) -> usize {
+        Simplex::cols(self)
+    }
+    fn add_row(&mut self, rhs: f64) -> usize {
+        Simplex::add_row(self, rhs, &[])
+    }
+    fn add_col(
+        &mut self,
+        obj: f64,
+        lower: f64,
+        upper: f64,
+        value: f64,
+        entries: Vec<(usize, f64)>,
+    ) -> usize {
+        Simplex::add_col(self, obj, lower, upper, value, entries)
+    }
+    fn shift_rhs(&mut self, i: usize, delta: f64) {
+        Simplex::shift_rhs(self, i, delta)
+    }
+    fn solve(&mut self, max_pivots: usize) -> Result<()> {
+        Simplex::solve(self, max_pivots)
+    }
+    fn value(&self, j: usize) -> f64 {
+        Simplex::value(self, j)
+    }
+    fn dual(&self, i: usize) -> f64 {
+        Simplex::dual(self, i)
+    }
+    fn objective(&self) -> f64 {
+        Simplex::objective(self)
+    }
+}
+
+/// HiGHS keeps a sparse factorisation, so the master has no size limit.
+#[cfg(feature = "highs")]
+impl MasterLp for crate::solve::highs::WarmLp {
+    fn row_limit(&self) -> usize {
+        usize::MAX
+    }
+    fn rows(&self) -> usize {
+        Self::rows(self)
+    }
+    fn cols(&self) -> usize {
+        Self::cols(self)
+    }
+    fn add_row(&mut self, rhs: f64) -> usize {
+        Self::add_row(self, rhs)
+    }
+    fn add_col(
+        &mut self,
+        obj: f64,
+        lower: f64,
+        upper: f64,
+        value: f64,
+        entries: Vec<(usize, f64)>,
+    ) -> usize {
+        Self::add_col(self, obj, lower, upper, value, entries)
+    }
+    fn shift_rhs(&mut self, i: usize, delta: f64) {
+        Self::shift_rhs(self, i, delta)
+    }
+    fn solve(&mut self, max_pivots: usize) -> Result<()> {
+        Self::solve(self, max_pivots)
+    }
+    fn value(&self, j: usize) -> f64 {
+        Self::value(self, j)
+    }
+    fn dual(&self, i: usize) -> f64 {
+        Self::dual(self, i)
+    }
+    fn objective(&self) -> f64 {
+        Self::objective(self)
+    }
+}
+
+/// The master LP for a master above [`WARM_ROWS`] rows: HiGHS's `highs::WarmLp`
+/// when the `highs` feature is built and HiGHS is enabled, else `None` (the caller goes
+/// cold). O(1).
+pub(super) fn large_master_lp() -> Option<Box<dyn MasterLp>> {
+    #[cfg(feature = "highs")]
+    if crate::solve::highs::enabled() {
+        return Some(Box::new(crate::solve::highs::WarmLp::new()));
+    }
+    None
+}
+
 /// How a warm column generation ended.
 pub(super) enum Warm {
     Done(Solved),
     Stalled,
-    /// The simplex gave up or the master outgrew [`WARM_ROWS`]: its walks so far.
+    /// The master LP gave up or outgrew its row limit: its walks so far.
     Abandon(Vec<Walk>),
 }
 
@@ -24,12 +146,12 @@ pub(super) enum Warm {
 /// basis and every basic value unchanged. The bound of [`price`] is the master's own dual
 /// value plus these shares, so when no demand has a share and no column prices out, the
 /// gap is closed.
-pub(super) struct WarmMaster<'a, 'g> {
+pub(super) struct WarmMaster<'a, 'g, L: MasterLp = Simplex> {
     pub(super) g: &'g Graph<'a>,
     pub(super) caps: &'g [f64],
     pub(super) arc_cap: Vec<f64>,
     pub(super) site_cap: Vec<f64>,
-    pub(super) lp: Simplex,
+    pub(super) lp: L,
     pub(super) arc_row: Vec<usize>,
     pub(super) site_row: Vec<usize>,
     pub(super) dem_row: Vec<usize>,
@@ -45,8 +167,9 @@ pub(super) struct WarmMaster<'a, 'g> {
 
 pub(super) const NO_ROW: usize = usize::MAX;
 
-impl<'a, 'g> WarmMaster<'a, 'g> {
-    pub(super) fn new(g: &'g Graph<'a>, caps: &'g [f64], active: Vec<bool>) -> Self {
+impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
+    /// An empty master on the LP `lp` (empty too).
+    pub(super) fn new(g: &'g Graph<'a>, caps: &'g [f64], active: Vec<bool>, lp: L) -> Self {
         let net = g.net;
         let (arc_cap, site_cap) = g.effective(caps);
         WarmMaster {
@@ -54,7 +177,7 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
             caps,
             arc_cap,
             site_cap,
-            lp: Simplex::new(),
+            lp,
             arc_row: vec![NO_ROW; net.arcs.len()],
             site_row: vec![NO_ROW; net.sites.len()],
             dem_row: vec![NO_ROW; net.demands.len()],
@@ -90,19 +213,19 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
     pub(super) fn column(&mut self, w: Walk, f: f64) {
         let d = w.demand;
         if self.dem_row[d] == NO_ROW {
-            self.dem_row[d] = self.lp.add_row(self.caps[d], &[]);
+            self.dem_row[d] = self.lp.add_row(self.caps[d]);
         }
         let mut entries = Vec::with_capacity(w.arcs.len() + 2);
         for &(a, k) in &w.arcs {
             if self.arc_row[a] == NO_ROW {
                 let rhs = (self.arc_cap[a] - self.fixed_arc[a]).max(0.0);
-                self.arc_row[a] = self.lp.add_row(rhs, &[]);
+                self.arc_row[a] = self.lp.add_row(rhs);
             }
             entries.push((self.arc_row[a], f64::from(k)));
         }
         if self.site_row[w.site] == NO_ROW {
             let rhs = (self.site_cap[w.site] - self.fixed_site[w.site]).max(0.0);
-            self.site_row[w.site] = self.lp.add_row(rhs, &[]);
+            self.site_row[w.site] = self.lp.add_row(rhs);
         }
         entries.push((self.site_row[w.site], 1.0));
         entries.push((self.dem_row[d], 1.0));
@@ -114,7 +237,7 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
     /// (each existing row first gets the walk's load back, so no basic value moves).
     pub(super) fn activate(&mut self, d: usize) {
         self.active[d] = true;
-        self.dem_row[d] = self.lp.add_row(self.caps[d], &[]);
+        self.dem_row[d] = self.lp.add_row(self.caps[d]);
         for (w, f) in std::mem::take(&mut self.fixed[d]) {
             for &(a, k) in &w.arcs {
                 let load = f64::from(k) * f;
@@ -159,7 +282,7 @@ impl<'a, 'g> WarmMaster<'a, 'g> {
         let mut scale: Option<f64> = None;
         loop {
             cancel::check()?;
-            if self.lp.rows() > WARM_ROWS {
+            if self.lp.rows() > self.lp.row_limit() {
                 return Ok(Warm::Abandon(self.into_solution().0));
             }
             if self.lp.cols() > 0 {
