@@ -399,8 +399,8 @@ enum Read {
 }
 
 /// Reads `bytes`; on success evaluates the baseline when the network is small and checks
-/// served_required against the contract's bounds (0 ≤ served ≤ Σ required, served ≤ Σ
-/// processing: each unit served uses one unit of processing). Panics are caught and
+/// served_required against the contract's bounds (0 ≤ served ≤ Σ required, and without
+/// `functions` served ≤ Σ processing: each unit served uses one unit of processing). Panics are caught and
 /// returned as the failure.
 fn read_and_audit(bytes: &[u8]) -> Result<Read, String> {
     let outcome = std::panic::catch_unwind(|| -> Result<Read, String> {
@@ -415,7 +415,14 @@ fn read_and_audit(bytes: &[u8]) -> Result<Read, String> {
         let ev = redoubt::solve::evaluate(&net, &Default::default())
             .map_err(|e| format!("valid network, evaluation failed: {e}"))?;
         let req = net.total_required();
-        let cap = req.min(net.total_processing());
+        // A file with `functions` (service chains) has no single processing step: plain
+        // traffic needs none and each chain step has its own capacity, so only Σ required
+        // bounds it (network-format.md, "Service chains and traffic that changes volume").
+        let cap = if net.chains.is_some() {
+            req
+        } else {
+            req.min(net.total_processing())
+        };
         // Every reported value is verified: it lies within the proven bounds, which meet
         // within GAP_TOL of the demand at stake (or it is the proven lower bound).
         let slack = redoubt::solve::GAP_TOL * req;
