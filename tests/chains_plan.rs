@@ -664,3 +664,47 @@ fn random_chain_purchases_match_a_per_demand_reference() {
     assert!(shared >= 5, "plans shared among outages: {shared}");
     assert_eq!(planned, 10);
 }
+
+/// The caution states the model's assumptions, so a chain file's reports state the chain
+/// model's ("each unit through its demand's chain of functions"), never the single
+/// processing step of files without `functions` (which keep theirs). Checked in the audit
+/// text, `--json`, the `--csv` column, and the plan's text and JSON (common practice, no
+/// source: a caution must describe the model the numbers come from).
+#[test]
+fn chain_reports_state_the_chain_model_in_their_caution() {
+    let flat = |s: &str| s.split_whitespace().collect::<Vec<_>>().join(" ");
+    let chain_words = "each unit through its demand's chain of functions in order";
+    let single_words = "one processing step per unit";
+    for (fixture, want, not) in [
+        ("demo-quillhaven-chains.json", chain_words, single_words),
+        ("demo-harrowmere.json", single_words, chain_words),
+    ] {
+        let path = common::fixture(fixture);
+        let path = path.to_str().unwrap();
+        let json = TempPath::new("caution", "json");
+        let csv = TempPath::new("caution", "csv");
+        let run = redoubt(&[
+            "audit",
+            path,
+            "--quiet",
+            "--json",
+            json.path(),
+            "--csv",
+            csv.path(),
+        ]);
+        assert!(run.code == 0 || run.code == 1, "{fixture}: {}", run.stderr);
+        let doc = json.read_json();
+        let csv_text = std::fs::read_to_string(csv.path()).unwrap();
+        let (plan, plan_text) = plan_at(path, &[]);
+        for (what, text) in [
+            ("audit text", flat(&run.stdout)),
+            ("audit JSON", doc["caution"].as_str().unwrap().to_string()),
+            ("CSV", flat(&csv_text)),
+            ("plan text", flat(&plan_text)),
+            ("plan JSON", plan["caution"].as_str().unwrap().to_string()),
+        ] {
+            assert!(text.contains(want), "{fixture} {what}: no {want:?}");
+            assert!(!text.contains(not), "{fixture} {what}: says {not:?}");
+        }
+    }
+}

@@ -178,6 +178,7 @@ impl Page {
             &self.title,
             &self.verdict,
             self.passed,
+            CAUTION,
         )?;
         writeln!(o, "<p>{}</p>", esc(&self.baselines))?;
         for s in &self.sections {

@@ -15,7 +15,7 @@ use std::io::{self, Write};
 
 use super::export::{Csv, Exporter};
 use super::model::Model;
-use super::{CAUTION, file_num, prob};
+use super::{file_num, prob};
 use crate::scenario::Scenario;
 
 /// One CSV field, quoted when it holds a comma, a quote or a line break. O(len).
@@ -108,7 +108,7 @@ fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
             row.push(super::headroom::csv_cell(m, i));
         }
         row.push(if i == 0 {
-            field(CAUTION)
+            field(super::caution_for(m.net))
         } else {
             String::new()
         });

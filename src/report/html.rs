@@ -10,7 +10,7 @@ use std::io::{self, Write};
 
 use super::export::{Exporter, Html, streamed};
 use super::model::Model;
-use super::{CAUTION, file_diff, map, num, percent, table};
+use super::{file_diff, map, num, percent, table};
 
 /// File names inside the report folder.
 pub const HTML_FILE: &str = "report.html";
@@ -698,13 +698,14 @@ fn page_data(o: &mut dyn fmt::Write, r: &Report<'_>, rows: &[table::Row]) -> fmt
 
 /// The opening every report page shares, appended to `o`: the document head with the
 /// page's own styles ([`STYLE`], nothing fetched), `title` in the tab, `heading`, the
-/// caution, and the verdict (marked as failing unless `passed`). O(length of the text).
+/// `caution` sentence, and the verdict (marked as failing unless `passed`). O(length of the text).
 pub(crate) fn page_opening(
     o: &mut dyn fmt::Write,
     title: &str,
     heading: &str,
     verdict: &str,
     passed: bool,
+    caution: &str,
 ) -> fmt::Result {
     write!(
         o,
@@ -714,7 +715,7 @@ pub(crate) fn page_opening(
         esc(title)
     )?;
     writeln!(o, "<h1>{}</h1>", esc(heading))?;
-    writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION))?;
+    writeln!(o, "<p class=\"caution\">{}</p>", esc(caution))?;
     writeln!(
         o,
         "<p class=\"verdict{}\">{}</p>",
@@ -734,6 +735,7 @@ pub fn html(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
         &format!("Failure audit: {}", net.name),
         &r.verdict(),
         !failed_gate,
+        super::caution_for(net),
     )?;
     let gates = r.gate_lines();
     if !gates.is_empty() {
@@ -842,7 +844,11 @@ pub fn html(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
         o.write_str("</ul>\n")?;
         table_html(o, &head, &rows, &[1, 2])?;
     }
-    writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION))?;
+    writeln!(
+        o,
+        "<p class=\"caution\">{}</p>",
+        esc(super::caution_for(r.net))
+    )?;
     o.write_str("<script type=\"application/json\" id=\"report-data\">")?;
     page_data(o, r, &rows)?;
     write!(o, "</script>\n<script>{}</script>\n", table::SCRIPT)?;

@@ -15,7 +15,7 @@ use std::io::{self, Write};
 
 use serde::Serialize;
 
-use super::{CAUTION, file_diff, file_num, prob};
+use super::{file_diff, file_num, prob};
 use crate::audit::{Audit, OutageId};
 use crate::model::Network;
 use crate::solve::{Evaluation, Resource};
@@ -644,7 +644,7 @@ pub fn audit_json_with<'a>(
         network: net.name.clone(),
         unit: net.unit.clone(),
         routing: "best",
-        caution: CAUTION,
+        caution: super::caution_for(net),
         down: audit
             .scenarios
             .first()

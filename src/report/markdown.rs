@@ -4,7 +4,6 @@
 use std::fmt;
 use std::io::{self, Write};
 
-use super::CAUTION;
 use super::export::streamed;
 use super::html::{ASSUMPTIONS, Report};
 
@@ -35,7 +34,7 @@ fn table_md(out: &mut dyn fmt::Write, head: &[String], rows: &[Vec<String>]) -> 
 pub fn markdown(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
     let u = &r.net.unit;
     writeln!(o, "# Failure audit: {}\n", cell(&r.net.name))?;
-    writeln!(o, "> {CAUTION}\n")?;
+    writeln!(o, "> {}\n", super::caution_for(r.net))?;
     writeln!(o, "**{}**\n", r.verdict())?;
     for g in r.gate_lines() {
         writeln!(o, "- `{g}`")?;
@@ -124,7 +123,7 @@ pub fn markdown(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
         o.write_char('\n')?;
         table_md(o, &head, &rows)?;
     }
-    writeln!(o, "> {CAUTION}")
+    writeln!(o, "> {}", super::caution_for(r.net))
 }
 
 /// The Markdown exporter: [`markdown`] streamed to `w`.

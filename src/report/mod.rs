@@ -29,3 +29,20 @@ pub use crate::numbers::*;
 pub const CAUTION: &str = "Caution: a planning aid under the model's assumptions (fluid, splittable \
 traffic; the capacities in the file; one processing step per unit); it does not replace the \
 operator's own engineering review, change procedures and local rules.";
+
+/// The caution of a network whose file lists `functions` (service chains): the same
+/// sentence with the chain model's assumption in place of "one processing step per unit".
+pub const CHAIN_CAUTION: &str = "Caution: a planning aid under the model's assumptions (fluid, \
+splittable traffic; the capacities in the file; each unit through its demand's chain of functions \
+in order, its volume scaled by each function's constant gain); it does not replace the operator's \
+own engineering review, change procedures and local rules.";
+
+/// The caution a report on `net` carries: [`CHAIN_CAUTION`] when its file lists
+/// `functions`, else [`CAUTION`]. O(1).
+pub fn caution_for(net: &crate::model::Network) -> &'static str {
+    if net.chains.is_some() {
+        CHAIN_CAUTION
+    } else {
+        CAUTION
+    }
+}

@@ -8,7 +8,7 @@ use super::*;
 use crate::audit::{Audit, OutageId};
 use crate::model::Network;
 use crate::report::export::{Exporter, Json, PlanReport};
-use crate::report::{CAUTION, file_diff, file_num};
+use crate::report::{file_diff, file_num};
 
 #[derive(Serialize)]
 pub struct PlanJson {
@@ -85,7 +85,7 @@ pub fn plan_json(
         network: net.name.clone(),
         unit: net.unit.clone(),
         routing: "best",
-        caution: CAUTION,
+        caution: crate::report::caution_for(net),
         goal: match plan.goal {
             Goal::CloseAll => "close-all".into(),
             Goal::WorstWithin(b) => format!("worst within budget {b}"),

@@ -509,7 +509,7 @@ impl Exporter<Model<'_>> for Text {
             }
             section(&s)?;
         }
-        section(&caution())
+        section(&format!("{}\n", super::super::caution_for(m.net)))
     }
 }
 

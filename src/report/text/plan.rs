@@ -322,7 +322,7 @@ pub fn plan_report(
     } else {
         let _ = writeln!(out, "\nNo scenario has a shortfall.");
     }
-    let _ = writeln!(out, "{CAUTION}");
+    let _ = writeln!(out, "{}", crate::report::caution_for(net));
     out
 }
 
