@@ -221,22 +221,21 @@ fn layer_edge(
     var
 }
 
-/// Builds the layered LP of `view` with demand caps `bound` into a new maximising [`Lp`].
-/// Cut-off demands (no layered walk) get no variable and are returned with their reason.
-/// Size: per group, `(k + 1) · usable arcs + k · sites` variables at most (pruned to nodes
-/// reachable from the origin and reaching a destination), the same number of
-/// conservation rows per group, one row per arc and per (site, function).
-pub fn build(
+/// Demands with a layered walk, grouped by (origin, chain) in key order: the groups of
+/// [`build`] and of the layered walk engine.
+pub(crate) type DemandGroups = BTreeMap<(SiteIdx, Vec<FunctionIdx>), Vec<usize>>;
+
+/// [`DemandGroups`] of `view` with caps `bound`, and the cut-off demands (required above
+/// zero) with their reason; one [`servable`] pass. O(demands · (k + 1) · (sites + arcs)).
+pub(crate) fn demand_groups(
     net: &Network,
+    ch: &Chains,
     view: &Surviving,
     bound: &[f64],
-) -> (Lp, Layered, Vec<(usize, Unservable)>) {
-    let ch = net.chains.as_ref().expect("a network with functions");
-    let n = net.sites.len();
-    let status = servable(net, ch, view, bound);
+) -> (DemandGroups, Vec<(usize, Unservable)>) {
     let mut cut_off = Vec::new();
-    let mut by_key: BTreeMap<(SiteIdx, Vec<FunctionIdx>), Vec<usize>> = BTreeMap::new();
-    for (d, s) in status.iter().enumerate() {
+    let mut by_key = DemandGroups::new();
+    for (d, s) in servable(net, ch, view, bound).iter().enumerate() {
         match s {
             Ok(true) => by_key
                 .entry((net.demands[d].from, ch.chain[d].clone()))
@@ -250,6 +249,22 @@ pub fn build(
             }
         }
     }
+    (by_key, cut_off)
+}
+
+/// Builds the layered LP of `view` with demand caps `bound` into a new maximising [`Lp`].
+/// Cut-off demands (no layered walk) get no variable and are returned with their reason.
+/// Size: per group, `(k + 1) · usable arcs + k · sites` variables at most (pruned to nodes
+/// reachable from the origin and reaching a destination), the same number of
+/// conservation rows per group, one row per arc and per (site, function).
+pub fn build(
+    net: &Network,
+    view: &Surviving,
+    bound: &[f64],
+) -> (Lp, Layered, Vec<(usize, Unservable)>) {
+    let ch = net.chains.as_ref().expect("a network with functions");
+    let n = net.sites.len();
+    let (by_key, cut_off) = demand_groups(net, ch, view, bound);
     let mut model = Lp::new(true);
     let mut demand_var = vec![None; net.demands.len()];
     let mut arc_terms: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.arcs.len()];

@@ -736,22 +736,7 @@ fn layered_rows(
 ) -> (Layered, Vec<(usize, Unservable)>) {
     let ch = net.chains.as_ref().expect("a network with functions");
     let n = net.sites.len();
-    let mut cut_off = Vec::new();
-    let mut by_key: BTreeMap<(SiteIdx, Vec<FunctionIdx>), Vec<usize>> = BTreeMap::new();
-    for (d, s) in chain::servable(net, ch, view, bound).iter().enumerate() {
-        match s {
-            Ok(true) => by_key
-                .entry((net.demands[d].from, ch.chain[d].clone()))
-                .or_default()
-                .push(d),
-            Ok(false) => {}
-            Err(r) => {
-                if net.demands[d].required > 0.0 {
-                    cut_off.push((d, *r));
-                }
-            }
-        }
-    }
+    let (by_key, cut_off) = chain::demand_groups(net, ch, view, bound);
     let mut arc_need: Vec<Option<f64>> = vec![None; net.arcs.len()];
     let mut fn_need: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
     let mut groups = Vec::new();
