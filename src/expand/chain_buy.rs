@@ -204,6 +204,8 @@ fn served_model(
     offer: &Offer,
     buy: &[usize],
 ) -> Vec<usize> {
+    // The outage's traffic matrix: its demands, the same sites and functions.
+    let net = net.view(outage.matrix);
     let ch = net.chains.as_ref().expect("a network with functions");
     let alive = outage.site_alive(net);
     // Layers through every slot that may be bought: a positive capacity makes it run.

@@ -818,6 +818,7 @@ impl Evaluator for ChainEdge {
 /// in [`finish_with`] with the layered cut-off list; `delivered` set from the reported
 /// flows.
 pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
+    let net = net.view(outage.matrix);
     let view = Surviving::new(net, outage, None);
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
     let (solved, cut_off) = solve_verified(net, &view, &required)?;

@@ -1069,6 +1069,7 @@ pub struct Walked {
 /// rounds of one warm simplex solve and one pricing pass (one layered Dijkstra per
 /// (origin, chain) group), then one verification (the layered LP built, not solved).
 pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) -> Result<Walked> {
+    let net = net.view(outage.matrix);
     let view = Surviving::new(net, outage, None);
     let mut stats = Stats::default();
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
