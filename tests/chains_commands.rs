@@ -172,3 +172,222 @@ fn closings_and_plans_cover_every_matrix() {
         assert_eq!(num(pair(&after, &["site:c"], m), "shortfall"), 0.0);
     }
 }
+
+/// A chain network big enough to interrupt: a ring of 10 sites (capacity 20 + 7·v mod
+/// 41) with 6 chords, functions `fw` (gain 1), `dpi` (0.8), `tc` (0.5) at a few sites
+/// each, 12 demands with chains of 0 to 2 functions, and a second matrix `busy` of 14.
+/// Invented; every number is a fixed formula of the indices.
+fn chain_ring() -> String {
+    let n = 10;
+    let fns = ["fw", "dpi", "tc"];
+    let sites: Vec<Value> = (0..n)
+        .map(|v| {
+            let mut m = serde_json::Map::new();
+            for (f, id) in fns.iter().enumerate() {
+                if (v + 2 * f) % 3 == 0 {
+                    m.insert(id.to_string(), json!(8 + (v * 5 + f * 3) % 25));
+                }
+            }
+            json!({"id": format!("s{v}"), "functions": m})
+        })
+        .collect();
+    let mut links: Vec<Value> = (0..n)
+        .map(|v| {
+            json!({"id": format!("r{v}"), "from": format!("s{v}"),
+                   "to": format!("s{}", (v + 1) % n), "capacity": 20 + (7 * v) % 41})
+        })
+        .collect();
+    for c in 0..6 {
+        links.push(json!({"id": format!("c{c}"), "from": format!("s{c}"),
+                          "to": format!("s{}", (c + 4) % n), "capacity": 10 + 5 * c}));
+    }
+    let demands = |k: usize, shift: usize| -> Vec<Value> {
+        (0..k)
+            .map(|i| {
+                let a = (i * 3 + shift) % n;
+                let b = (a + 1 + (i * 7) % (n - 1)) % n;
+                let chain: Vec<&str> = (0..i % 3).map(|j| fns[(i + j) % 3]).collect();
+                json!({"from": format!("s{a}"), "to": format!("s{b}"),
+                       "volume": 3 + (i * 5) % 13, "chain": chain})
+            })
+            .collect()
+    };
+    json!({"name": "chain-ring", "unit": "Gbit/s",
+           "functions": [{"id": "fw", "gain": 1}, {"id": "dpi", "gain": 0.8},
+                         {"id": "tc", "gain": 0.5}],
+           "sites": sites, "links": links, "demands": demands(12, 0),
+           "matrices": [{"id": "busy", "demands": demands(14, 1)}]})
+    .to_string()
+}
+
+/// 64-bit FNV-1a over `bytes` from the published offset basis 0xcbf29ce484222325 with
+/// prime 0x100000001b3 (constants written from memory): the line check of journals and
+/// parts, recomputed here so that an edited line passes it as a hostile editor's would.
+fn reseal(line: &str) -> String {
+    let rest = &line[28..]; // after `{"check":"<16 hex>",`
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for &b in rest.as_bytes() {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    format!("{{\"check\":\"{h:016x}\",{rest}")
+}
+
+/// Halves the first `"served_required":X` of a journal or part line (a short scenario
+/// made to look shorter) with the shortfall moved to match, resealed.
+fn halved(line: &str) -> String {
+    let v: Value = serde_json::from_str(line).unwrap();
+    let e = &v["evaluation"];
+    let (served, short) = (num(e, "served_required"), num(e, "shortfall"));
+    let edited = line
+        .replacen(
+            &format!("\"served_required\":{}", e["served_required"]),
+            &format!("\"served_required\":{}", served / 2.0),
+            1,
+        )
+        .replacen(
+            &format!("\"shortfall\":{}", e["shortfall"]),
+            &format!("\"shortfall\":{}", short + served / 2.0),
+            1,
+        );
+    assert_ne!(edited, line, "the edit applies");
+    reseal(&edited)
+}
+
+/// `audit --shard I/3` of a chain file with two matrices at depth 2, merged: the JSON, the
+/// CSV and the text equal the one-process run's byte for byte (the contract: a merged run
+/// is the unsharded run). A part whose line is edited (served value halved, shortfall
+/// moved to match, line check recomputed) is refused naming the part and the line.
+#[test]
+fn shards_of_a_chain_file_merge_to_the_one_process_run() {
+    let file = TempPath::with_text("chain-ring", &chain_ring());
+    let dir = common::TempDir::new("chain-shards");
+    let (json, csv) = (dir.join("one.json"), dir.join("one.csv"));
+    let one = redoubt(&[
+        "audit",
+        file.path(),
+        "--depth",
+        "2",
+        "--json",
+        common::s(&json),
+        "--csv",
+        common::s(&csv),
+    ]);
+    assert_eq!(one.code, 0, "{}", one.stderr);
+    let mut parts = Vec::new();
+    for i in 1..=3 {
+        let p = dir.join(&format!("part-{i}.jsonl"));
+        let shard = format!("{i}/3");
+        let r = redoubt(&[
+            "audit",
+            file.path(),
+            "--depth",
+            "2",
+            "--shard",
+            &shard,
+            "--json",
+            common::s(&p),
+        ]);
+        assert_eq!(r.code, 0, "{}", r.stderr);
+        parts.push(p);
+    }
+    let (mjson, mcsv) = (dir.join("merged.json"), dir.join("merged.csv"));
+    let mut args = vec!["merge"];
+    args.extend(parts.iter().map(|p| common::s(p)));
+    args.extend(["--json", common::s(&mjson), "--csv", common::s(&mcsv)]);
+    let merged = redoubt(&args);
+    assert_eq!(merged.code, 0, "{}", merged.stderr);
+    assert!(
+        std::fs::read(&json).unwrap() == std::fs::read(&mjson).unwrap(),
+        "JSON"
+    );
+    assert!(
+        std::fs::read(&csv).unwrap() == std::fs::read(&mcsv).unwrap(),
+        "CSV"
+    );
+    assert_eq!(one.stdout, merged.stdout);
+
+    // One short scenario's line edited in part 2.
+    let text = std::fs::read_to_string(&parts[1]).unwrap();
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    let k = (1..lines.len())
+        .find(|&k| {
+            lines[k].contains("\"served_required\"") && !lines[k].contains("\"shortfall\":0.0")
+        })
+        .expect("a short scenario in part 2");
+    lines[k] = halved(&lines[k]);
+    std::fs::write(&parts[1], lines.join("\n") + "\n").unwrap();
+    let bad = dir.join("bad.json");
+    let mut args = vec!["merge"];
+    args.extend(parts.iter().map(|p| common::s(p)));
+    args.extend(["--json", common::s(&bad)]);
+    let r = redoubt(&args);
+    assert_eq!(r.code, 2, "{}", r.stderr);
+    assert!(
+        r.stderr.contains("part-2.jsonl") && r.stderr.contains(&format!("line {}", k + 1)),
+        "{}",
+        r.stderr
+    );
+    assert!(!bad.exists());
+}
+
+/// An interrupted audit of a chain file resumes to the uninterrupted run's JSON byte for
+/// byte; a journal line edited as above is solved again (said on stderr) and the result is
+/// still the uninterrupted run's.
+#[test]
+fn an_interrupted_chain_audit_resumes_to_identical_files() {
+    let file = TempPath::with_text("chain-ring", &chain_ring());
+    let reference = TempPath::new("chain-resume-ref", "json");
+    let full = redoubt(&[
+        "audit",
+        file.path(),
+        "--depth",
+        "2",
+        "--quiet",
+        "--json",
+        reference.path(),
+    ]);
+    assert_eq!(full.code, 0, "{}", full.stderr);
+    let want = std::fs::read(&reference.0).unwrap();
+    let dir = common::TempDir::new("chain-resume");
+    let json = dir.join("audit.json");
+    let journal = dir.join("audit.json.journal");
+    let args = [
+        "audit",
+        file.path(),
+        "--depth",
+        "2",
+        "--quiet",
+        "--json",
+        common::s(&json),
+    ];
+    let first = common::interrupt_at(&args, &journal, 30);
+    assert_eq!(first.code, 130, "{}", first.stderr);
+    let kept = std::fs::read_to_string(&journal).unwrap();
+    let resume: Vec<&str> = args.iter().copied().chain(["--resume"]).collect();
+    let r = redoubt(&resume);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(std::fs::read(&json).unwrap() == want, "resumed JSON");
+
+    // The kept journal with one short scenario's line edited.
+    let mut lines: Vec<String> = kept.lines().map(str::to_string).collect();
+    let k = (1..lines.len())
+        .find(|&k| {
+            lines[k].contains("\"served_required\"") && !lines[k].contains("\"shortfall\":0.0")
+        })
+        .expect("a short scenario journaled");
+    lines[k] = halved(&lines[k]);
+    std::fs::remove_file(&json).unwrap();
+    std::fs::write(&journal, lines.join("\n") + "\n").unwrap();
+    let r = redoubt(&resume);
+    assert_eq!(r.code, 0, "{}", r.stderr);
+    assert!(
+        r.stderr.contains(&format!("line {}", k + 1)),
+        "{}",
+        r.stderr
+    );
+    assert!(
+        std::fs::read(&json).unwrap() == want,
+        "resumed JSON after an edited line"
+    );
+}

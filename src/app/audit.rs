@@ -116,8 +116,6 @@ pub(super) fn run(
             ),
             (args.headroom, "--headroom"),
             (args.why, "--why"),
-            (shard.is_some(), "--shard"),
-            (args.resume, "--resume"),
             (
                 matches!(args.engine, crate::solve::Engine::Approx { .. }),
                 "--engine approx",

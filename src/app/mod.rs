@@ -106,9 +106,9 @@ pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
     if net.chains.is_some() {
         return Err(Error::Usage(format!(
             "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
-             `redoubt audit` (best re-route, with or without --close; not --routing, \
-             --headroom, --why, --shard, --resume or --engine approx) and `redoubt plan` \
-             (best re-route; not --routing) take so far"
+             `redoubt audit` (best re-route, with or without --close, --shard or --resume, \
+             and `redoubt merge` of its parts; not --routing, --headroom, --why or --engine \
+             approx) and `redoubt plan` (best re-route; not --routing) take so far"
         )));
     }
     Ok(())

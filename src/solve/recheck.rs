@@ -26,6 +26,8 @@
 //! pass per source and per processing site, and one pass over the walks per LP; far
 //! cheaper than a solve.
 
+mod chain;
+
 use serde::{Deserialize, Serialize};
 
 use super::finish::{Servable, cut_off_on, reported_flow, reported_shortfall, saturated, snap};
@@ -293,13 +295,18 @@ fn value_of(v: &Verification, total: f64, p: &Proven, what: &str) -> Result<f64,
 }
 
 /// Verifies the stored evaluation `e` of `outage` on `net` again from its [`Proof`],
-/// without solving (see the module documentation). `Err` says what does not hold.
+/// without solving (see the module documentation). `Err` says what does not hold. A
+/// network with `functions` is verified by solving the outage again in layers instead
+/// ([`chain::recheck`]).
 ///
 /// Cost: for each LP, the certificate's dual bound (2 · min(processing sites, demand
 /// ends) Dijkstras), the presolved capacities and the demand at stake (reachability per
 /// source and per processing site), and one pass over the walks; plus O(demands + arcs +
 /// sites) comparisons.
 pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), String> {
+    if net.chains.is_some() {
+        return chain::recheck(net, outage, e);
+    }
     let net = net.view(outage.matrix);
     let proof = e
         .proof
