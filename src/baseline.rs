@@ -41,7 +41,8 @@ pub fn with_baseline(net: &Network, audit: &Audit) -> Result<Evaluation> {
 }
 
 /// The baseline's full evaluation: the audit's (read back with `full` when thin), else
-/// solved by the walk engine, the audit's default (one outage: the `--down` state of the
+/// solved by the walk engine, the audit's default (the layered one for a file with
+/// `functions`; one outage: the `--down` state of the
 /// first scenario, or the intact network; an unproven walk answer falls back to the edge
 /// LP's ladder, so the result is verified like every scenario's).
 pub fn with_full_baseline(
@@ -56,7 +57,12 @@ pub fn with_full_baseline(
         Some(i) => Ok(audit.eval(i).clone()),
         None => {
             let down = audit.scenarios.first().map_or(&[][..], |s| &s.down[..]);
-            solve::evaluate_cold_walks(net, &Scenario::baseline().with_down(down).outage(net))
+            let outage = Scenario::baseline().with_down(down).outage(net);
+            match net.chains {
+                // A file with `functions`: the layered walk engine, cold.
+                Some(_) => Ok(solve::chainwalk::evaluate_walks(net, &outage, None)?.evaluation),
+                None => solve::evaluate_cold_walks(net, &outage),
+            }
         }
     }
 }

@@ -391,3 +391,103 @@ fn an_interrupted_chain_audit_resumes_to_identical_files() {
         "resumed JSON after an edited line"
     );
 }
+
+/// `compare` of a random chain file with itself after one function capacity changed (the
+/// first site running function 0 loses half of it, or gains 10): every scenario the
+/// comparison lists as worse or better carries before and after served values equal to
+/// the per-demand microlp reference on each side, and the scenarios it lists are exactly
+/// those whose reference shortfall moved (tolerance 0, as printed: more than 1e-6 here).
+/// Also between the chain file and itself: nothing changes, exit 0.
+#[test]
+fn compare_of_chain_files_against_the_reference() {
+    let mut rng = StdRng::seed_from_u64(0xC0_3FA2E);
+    let mut listed_any = 0;
+    for instance in 0..5 {
+        let before = random_net(&mut rng);
+        let mut after = RNet {
+            gains: before.gains.clone(),
+            capacity: before.capacity.clone(),
+            links: before.links.clone(),
+            demands: before.demands.clone(),
+        };
+        let v = (0..after.capacity.len())
+            .find(|&v| after.capacity[v][0] > 0.0)
+            .expect("every function runs somewhere");
+        after.capacity[v][0] = if instance % 2 == 0 {
+            after.capacity[v][0] / 2.0
+        } else {
+            after.capacity[v][0] + 10.0
+        };
+        let fb = TempPath::with_text("chain-cmp-b", &before.to_json().to_string());
+        let fa = TempPath::with_text("chain-cmp-a", &after.to_json().to_string());
+        let out = TempPath::new("chain-cmp", "json");
+        let r = redoubt(&[
+            "compare",
+            fb.path(),
+            fa.path(),
+            "--depth",
+            "1",
+            "--threads",
+            "1",
+            "--json",
+            out.path(),
+        ]);
+        assert!(r.code == 0 || r.code == 1, "{}", r.stderr);
+        let doc = out.read_json();
+        let surviving = |t: &RNet, site: Option<usize>| -> f64 {
+            t.demands
+                .iter()
+                .filter(|d| site != Some(d.0) && site != Some(d.1))
+                .map(|d| d.3)
+                .sum()
+        };
+        let mut listed = std::collections::BTreeSet::new();
+        for row in doc["worse"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .chain(doc["better"].as_array().unwrap())
+        {
+            let (site, link) = failed_element(row);
+            let what = format!("instance {instance}, {:?}", failed_of(row));
+            let (b, a) = (
+                reference_served(&before, site, link, false),
+                reference_served(&after, site, link, false),
+            );
+            assert_close(num(&row["before"], "served_required"), b, &what);
+            assert_close(num(&row["after"], "served_required"), a, &what);
+            listed.insert(failed_of(row));
+        }
+        // Every scenario whose reference shortfall moved is listed.
+        let n = before.capacity.len();
+        let elements = (0..n)
+            .map(|s| (Some(s), None))
+            .chain((0..before.links.len()).map(|l| (None, Some(l))))
+            .chain([(None, None)]);
+        for (site, link) in elements {
+            let (b, a) = (
+                reference_served(&before, site, link, false),
+                reference_served(&after, site, link, false),
+            );
+            let moved = (surviving(&before, site) - b - (surviving(&after, site) - a)).abs() > 1e-6;
+            let name = match (site, link) {
+                (Some(s), _) => vec![format!("site:s{s}")],
+                (_, Some(l)) => vec![format!("link:l{l}")],
+                _ => vec![],
+            };
+            if name.is_empty() {
+                continue; // the baseline is its own object, not a row
+            }
+            assert_eq!(
+                listed.contains(&name),
+                moved,
+                "instance {instance}, {name:?}"
+            );
+        }
+        listed_any += listed.len();
+        let same = redoubt(&["compare", fb.path(), fb.path(), "--depth", "1"]);
+        assert_eq!(same.code, 0, "{}", same.stderr);
+        assert!(same.stdout.starts_with("PASS"), "{}", same.stdout);
+    }
+    assert!(listed_any > 0, "some change was listed");
+}

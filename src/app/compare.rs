@@ -1,4 +1,5 @@
-//! `redoubt compare`: both files loaded and audited (same scenarios, walk engine), the
+//! `redoubt compare`: both files loaded and audited (same scenarios, walk engine; the
+//! layered walk engine for a file with `functions`), the
 //! comparison model of [`crate::compare`], then `--json` and the text.
 
 use std::io::Write;
@@ -53,8 +54,10 @@ pub(super) fn run(
     others.extend(args.json.as_deref());
     let report_files = super::audit::report_dir(args.report.as_deref(), &others)?;
     let (nb, na) = (load(&args.before)?, load(&args.after)?);
-    super::chains_refused(&nb, "compare")?;
-    super::chains_refused(&na, "compare")?;
+    if args.headroom {
+        super::chains_refused(&nb, "compare --headroom")?;
+        super::chains_refused(&na, "compare --headroom")?;
+    }
     same_unit(&nb, &na)?;
     let opts = run_options(&args.sides, err);
     let (nb, ab) = audit_side(args, nb, &args.before, "BEFORE", opts, err)?;
