@@ -125,8 +125,9 @@ pub struct WorstSet {
     pub matrix: usize,
 }
 
-/// Why no set outside the list is worse.
-#[derive(Debug, Clone, PartialEq)]
+/// Why no set outside the list is worse. Serialized (without `stats`) as the figures of
+/// the `worst --json` proof object.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
 pub struct Proof {
     /// Every set that was not solved has a value at most `bound + tolerance`, and that is
     /// below `threshold` as printed; `None` when every set was solved.
@@ -153,6 +154,7 @@ pub struct Proof {
     /// Elements in the pool.
     pub pool: usize,
     /// Work done by the walk engine.
+    #[serde(skip)]
     pub stats: colgen::Stats,
 }
 

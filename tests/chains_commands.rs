@@ -491,3 +491,24 @@ fn compare_of_chain_files_against_the_reference() {
     }
     assert!(listed_any > 0, "some change was listed");
 }
+
+/// What chain files are still refused, with a message that names `functions` and lists
+/// what takes them (compare and merge among them now).
+#[test]
+fn what_chain_files_still_refuse_says_so() {
+    let mut rng = StdRng::seed_from_u64(11);
+    let t = random_net(&mut rng);
+    let file = TempPath::with_text("chain-refuse", &t.to_json().to_string());
+    for args in [
+        vec!["worst", file.path(), "--k", "2"],
+        vec!["audit", file.path(), "--headroom"],
+        vec!["audit", file.path(), "--why"],
+        vec!["compare", file.path(), file.path(), "--headroom"],
+    ] {
+        let run = redoubt(&args);
+        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
+        for needle in ["`functions`", "`redoubt compare`", "`redoubt merge`"] {
+            assert!(run.stderr.contains(needle), "{args:?}: {}", run.stderr);
+        }
+    }
+}

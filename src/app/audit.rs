@@ -156,20 +156,9 @@ pub(super) fn run(
         let ra = routing::run(&net, list.iter.collect(), mode, opts, true)?;
         let risk = risk_of(&net, &args.scenarios, args.fail.is_some(), &ra.audit)?;
         let o = AuditOutput {
-            json: args.json.as_deref(),
-            csv: args.csv.as_deref(),
-            risk: risk.as_ref(),
-            gates: &args.gates,
-            gate_tolerance: args.gate_tolerance,
-            close: args.close,
             why: false,
-            report: report_files.as_ref(),
-            top: args.top,
-            detail: args.detail,
-            opts,
             routed: Some(&ra),
-            headroom: args.headroom,
-            screen: None,
+            ..AuditOutput::of_audit(args, risk.as_ref(), report_files.as_ref(), opts)
         };
         let thin = |_: audit::OutageId| Err(Error::Internal("thin routed evaluation".into()));
         return finish_audit(&net, &ra.audit, &thin, o, None, &|e| e, out);
@@ -306,20 +295,9 @@ pub(super) fn run(
         &audit,
         &full,
         AuditOutput {
-            json: args.json.as_deref(),
-            csv: args.csv.as_deref(),
-            risk: risk.as_ref(),
-            gates: &args.gates,
-            gate_tolerance: args.gate_tolerance,
-            close: args.close,
             why: args.why || args.fail.is_some(),
-            report: report_files.as_ref(),
-            top: args.top,
-            detail: args.detail,
-            opts,
-            routed: None,
-            headroom: args.headroom,
             screen: screen.as_ref(),
+            ..AuditOutput::of_audit(args, risk.as_ref(), report_files.as_ref(), opts)
         },
         journal,
         &interrupted,
@@ -372,6 +350,61 @@ pub(super) struct AuditOutput<'a> {
     pub(super) headroom: bool,
     /// `--exact-top`: which outages were solved exactly.
     pub(super) screen: Option<&'a crate::screening::Screen>,
+}
+
+impl<'a> AuditOutput<'a> {
+    /// What the outputs and report flags of every audit-like run share: `--json`, `--csv`,
+    /// the risk figures, `--report`, `--top`, `--detail` and the run options; no gates, no
+    /// closings, no explanation, no routed model, no headroom, no screen.
+    pub(super) fn plain(
+        json: Option<&'a Path>,
+        csv: Option<&'a Path>,
+        risk: Option<&'a risk::Risk>,
+        report: Option<&'a (PathBuf, PathBuf)>,
+        (top, detail): (usize, report::json::Detail),
+        opts: audit::RunOptions,
+    ) -> AuditOutput<'a> {
+        AuditOutput {
+            json,
+            csv,
+            risk,
+            gates: &[],
+            gate_tolerance: None,
+            close: false,
+            why: false,
+            report,
+            top,
+            detail,
+            opts,
+            routed: None,
+            headroom: false,
+            screen: None,
+        }
+    }
+
+    /// [`Self::plain`] with what `audit`'s command line adds: its gates, `--close` and
+    /// `--headroom` (the explanation, routed model and screen left to the caller).
+    fn of_audit(
+        args: &'a AuditOptions,
+        risk: Option<&'a risk::Risk>,
+        report: Option<&'a (PathBuf, PathBuf)>,
+        opts: audit::RunOptions,
+    ) -> AuditOutput<'a> {
+        AuditOutput {
+            gates: &args.gates,
+            gate_tolerance: args.gate_tolerance,
+            close: args.close,
+            headroom: args.headroom,
+            ..AuditOutput::plain(
+                args.json.as_deref(),
+                args.csv.as_deref(),
+                risk,
+                report,
+                (args.top, args.detail),
+                opts,
+            )
+        }
+    }
 }
 
 /// Closings, gates, the `--json` file (streamed; thin evaluations read back with `full`),

@@ -10,7 +10,7 @@ use serde::Serialize;
 use super::screen::{finish, render, right, table};
 use super::{CAUTION, amount, file_num, num};
 use crate::model::Network;
-use crate::worst::{By, Worst};
+use crate::worst::{By, Proof, Worst};
 
 /// How the bound of the proof is obtained, in one sentence (text and JSON).
 pub const METHOD: &str = "best-first branch and bound over sets; a set that was not solved \
@@ -143,23 +143,11 @@ pub struct ProofJson {
     pub statement: String,
     /// How the bound is obtained.
     pub method: &'static str,
-    /// Every set not solved has a value at most `bound + tolerance`; null when every set
-    /// was solved.
-    pub bound: Option<f64>,
-    /// The value as printed a set must reach to be listed: the N-th worst's when the list
-    /// is full, else `floor` (which it must exceed).
-    pub threshold: f64,
-    /// Values as printed at or below this are the verifier's noise, not a loss.
-    pub floor: f64,
-    /// How far a reported value may exceed the optimum (2 · GAP_TOL · Σ required).
-    pub tolerance: f64,
-    pub sets_total: u128,
-    pub sets_solved: u128,
-    pub outages_solved: usize,
-    pub sets_bounded: u128,
-    pub sets_pruned: u128,
-    pub unproven: usize,
-    pub pool: usize,
+    /// The proof's figures in [`crate::worst::Proof`]'s order (its work counters left
+    /// out): `bound` (null when every set was solved), `threshold`, `floor`, `tolerance`
+    /// and the set counts; `bound` and `tolerance` at 12 significant digits.
+    #[serde(flatten)]
+    pub figures: Proof,
 }
 
 /// The `redoubt worst --json` document.
@@ -218,17 +206,11 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
         proof: ProofJson {
             statement,
             method: METHOD,
-            bound: p.bound.map(file_num),
-            threshold: p.threshold,
-            floor: p.floor,
-            tolerance: file_num(p.tolerance),
-            sets_total: p.sets_total,
-            sets_solved: p.sets_solved,
-            outages_solved: p.outages_solved,
-            sets_bounded: p.sets_bounded,
-            sets_pruned: p.sets_pruned,
-            unproven: p.unproven,
-            pool: p.pool,
+            figures: Proof {
+                bound: p.bound.map(file_num),
+                tolerance: file_num(p.tolerance),
+                ..p.clone()
+            },
         },
     }
 }

@@ -294,6 +294,24 @@ fn value_of(v: &Verification, total: f64, p: &Proven, what: &str) -> Result<f64,
     Ok(value)
 }
 
+/// The network's demand, arc and site counts, when every per-demand, per-arc and per-site
+/// list of `e` has that length; otherwise which list does not. O(1).
+fn lengths(net: &Network, e: &Evaluation) -> Result<(usize, usize, usize), String> {
+    let (nd, na, ns) = (net.demands.len(), net.arcs.len(), net.sites.len());
+    if e.demand_flow.len() != nd || e.demand_shortfall.len() != nd {
+        return Err(format!("its per-demand lists do not have {nd} entries"));
+    }
+    if e.arc_load.len() != na || e.arc_price.len() != na {
+        return Err(format!(
+            "its per-link-direction lists do not have {na} entries"
+        ));
+    }
+    if e.site_load.len() != ns || e.site_price.len() != ns {
+        return Err(format!("its per-site lists do not have {ns} entries"));
+    }
+    Ok((nd, na, ns))
+}
+
 /// Verifies the stored evaluation `e` of `outage` on `net` again from its [`Proof`],
 /// without solving (see the module documentation). `Err` says what does not hold. A
 /// network with `functions` is verified by solving the outage again in layers instead
@@ -312,18 +330,7 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
         .proof
         .as_deref()
         .ok_or("no certificate to verify it with")?;
-    let (nd, na, ns) = (net.demands.len(), net.arcs.len(), net.sites.len());
-    if e.demand_flow.len() != nd || e.demand_shortfall.len() != nd {
-        return Err(format!("its per-demand lists do not have {nd} entries"));
-    }
-    if e.arc_load.len() != na || e.arc_price.len() != na {
-        return Err(format!(
-            "its per-link-direction lists do not have {na} entries"
-        ));
-    }
-    if e.site_load.len() != ns || e.site_price.len() != ns {
-        return Err(format!("its per-site lists do not have {ns} entries"));
-    }
+    let (nd, na, ns) = lengths(net, e)?;
     let view = Surviving::new(net, outage, None);
 
     // What does not depend on the LP: recomputed exactly as `finish` does.
@@ -450,6 +457,12 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
             return Err("a bottleneck is not saturated or not priced as its resource".into());
         }
     }
+    in_report_order(e)
+}
+
+/// `Ok` when `e`'s bottlenecks are in report order: highest price first, ties by
+/// resource, no resource twice. O(bottlenecks).
+fn in_report_order(e: &Evaluation) -> Result<(), String> {
     let ordered = e.bottlenecks.windows(2).all(|w| {
         w[1].price
             .total_cmp(&w[0].price)

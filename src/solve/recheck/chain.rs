@@ -33,18 +33,7 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
         .chains
         .as_ref()
         .ok_or("the network lists no functions")?;
-    let (nd, na, ns) = (net.demands.len(), net.arcs.len(), net.sites.len());
-    if e.demand_flow.len() != nd || e.demand_shortfall.len() != nd {
-        return Err(format!("its per-demand lists do not have {nd} entries"));
-    }
-    if e.arc_load.len() != na || e.arc_price.len() != na {
-        return Err(format!(
-            "its per-link-direction lists do not have {na} entries"
-        ));
-    }
-    if e.site_load.len() != ns || e.site_price.len() != ns {
-        return Err(format!("its per-site lists do not have {ns} entries"));
-    }
+    let (nd, na, ns) = super::lengths(net, e)?;
     let fresh = chain::evaluate(net, outage)
         .map_err(|err| format!("its outage could not be solved again in layers: {err}"))?;
     if e.stranded != fresh.stranded
@@ -138,16 +127,7 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
             return Err("a bottleneck names a resource out of range".into());
         }
     }
-    let ordered = e.bottlenecks.windows(2).all(|w| {
-        w[1].price
-            .total_cmp(&w[0].price)
-            .then(w[0].resource.cmp(&w[1].resource))
-            .is_lt()
-    });
-    if !ordered {
-        return Err("its bottlenecks are not in report order".into());
-    }
-    Ok(())
+    super::in_report_order(e)
 }
 
 /// Whether a stored `value` with its verification `stored` agrees with the fresh
