@@ -315,7 +315,7 @@ fn lengths(net: &Network, e: &Evaluation) -> Result<(usize, usize, usize), Strin
 /// Verifies the stored evaluation `e` of `outage` on `net` again from its [`Proof`],
 /// without solving (see the module documentation). `Err` says what does not hold. A
 /// network with `functions` is verified by solving the outage again in layers instead
-/// ([`chain::recheck`]).
+/// (the private module `recheck::chain`).
 ///
 /// Cost: for each LP, the certificate's dual bound (2 · min(processing sites, demand
 /// ends) Dijkstras), the presolved capacities and the demand at stake (reachability per
