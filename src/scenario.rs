@@ -11,31 +11,24 @@ use std::collections::HashMap;
 use std::fmt;
 
 use itertools::Itertools;
-use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
-use crate::model::index::typed_index;
+use crate::model::index::index_type;
 use crate::model::strict::{FAIL_SEPARATOR, printable};
 use crate::model::{LinkIdx, Network, SiteIdx};
 
-/// Index of a distinct outage of an audit: into [`crate::audit::Audit::outages`] and
-/// [`crate::audit::Audit::evaluations`], the journal's and the part files' line numbers. A plain
-/// `usize` in memory and in JSON (`#[repr(transparent)]`, `#[serde(transparent)]`).
-#[repr(transparent)]
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
-#[serde(transparent)]
-pub struct OutageId(pub usize);
-
-/// Index of a scenario of an audit: into [`crate::audit::Audit::scenarios`] and
-/// [`crate::audit::Audit::outage_of`]
-/// (several scenarios may share one [`OutageId`]). A plain `usize` in memory and in JSON.
-#[repr(transparent)]
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
-#[serde(transparent)]
-pub struct ScenarioId(pub usize);
-
-typed_index!(OutageId);
-typed_index!(ScenarioId);
+index_type!(
+    /// Index of a distinct outage of an audit: into [`crate::audit::Audit::outages`] and
+    /// [`crate::audit::Audit::evaluations`], the journal's and the part files' line numbers. A plain
+    /// `usize` in memory and in JSON (`#[repr(transparent)]`, `#[serde(transparent)]`).
+    OutageId
+);
+index_type!(
+    /// Index of a scenario of an audit: into [`crate::audit::Audit::scenarios`] and
+    /// [`crate::audit::Audit::outage_of`]
+    /// (several scenarios may share one [`OutageId`]). A plain `usize` in memory and in JSON.
+    ScenarioId
+);
 
 /// One element that can fail.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]

@@ -62,7 +62,7 @@ fn each_matrix_equals_its_own_file(text: &str, ids: &[&str], args: &[&str]) {
     let (doc, owns) = with_each_matrix_alone(text, ids, args);
     for (id, own) in ids.iter().zip(&owns) {
         assert!(
-            !scenarios(&own).iter().any(|sc| sc.get("matrix").is_some()),
+            !scenarios(own).iter().any(|sc| sc.get("matrix").is_some()),
             "a file without matrices names none"
         );
         let want = by_failed(own, None);

@@ -5,8 +5,6 @@
 //! `#[serde(transparent)]`): journals, part files and reports are unchanged. The solvers'
 //! inner loops may keep plain `usize` and convert at their boundary with `.0` or `From`.
 
-use serde::{Deserialize, Serialize};
-
 /// `Vec` and slice indexing by a typed id, so a list per site (or per outage, …) is
 /// indexed by its own kind of id and another kind cannot index it unnoticed (a plain
 /// `usize` still indexes anything); `Display` is the number; `From` both ways with
@@ -54,39 +52,46 @@ macro_rules! typed_index {
 }
 pub(crate) use typed_index;
 
-/// Index of a site in [`super::Network::sites`].
-#[repr(transparent)]
-#[derive(
-    Debug, Clone, Copy, Default, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize,
-)]
-#[serde(transparent)]
-pub struct SiteIdx(pub usize);
+/// Declares a typed index: a `#[repr(transparent)]`, `#[serde(transparent)]` newtype of
+/// `usize` with the derives every index needs and [`typed_index!`]'s impls. The doc
+/// comments given go on the type.
+macro_rules! index_type {
+    ($(#[$doc:meta])* $id:ident) => {
+        $(#[$doc])*
+        #[repr(transparent)]
+        #[derive(
+            Debug,
+            Clone,
+            Copy,
+            Default,
+            PartialEq,
+            Eq,
+            PartialOrd,
+            Ord,
+            Hash,
+            serde::Serialize,
+            serde::Deserialize,
+        )]
+        #[serde(transparent)]
+        pub struct $id(pub usize);
+        $crate::model::index::typed_index!($id);
+    };
+}
+pub(crate) use index_type;
 
-/// Index of a link in [`super::Network::links`].
-#[repr(transparent)]
-#[derive(
-    Debug, Clone, Copy, Default, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize,
-)]
-#[serde(transparent)]
-pub struct LinkIdx(pub usize);
-
-/// Index of an arc (one direction of a link) in [`super::Network::arcs`].
-#[repr(transparent)]
-#[derive(
-    Debug, Clone, Copy, Default, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize,
-)]
-#[serde(transparent)]
-pub struct ArcIdx(pub usize);
-
-/// Index of a demand in [`super::Network::demands`] (of the matrix's view it belongs to).
-#[repr(transparent)]
-#[derive(
-    Debug, Clone, Copy, Default, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize,
-)]
-#[serde(transparent)]
-pub struct DemandIdx(pub usize);
-
-typed_index!(SiteIdx);
-typed_index!(LinkIdx);
-typed_index!(ArcIdx);
-typed_index!(DemandIdx);
+index_type!(
+    /// Index of a site in [`super::Network::sites`].
+    SiteIdx
+);
+index_type!(
+    /// Index of a link in [`super::Network::links`].
+    LinkIdx
+);
+index_type!(
+    /// Index of an arc (one direction of a link) in [`super::Network::arcs`].
+    ArcIdx
+);
+index_type!(
+    /// Index of a demand in [`super::Network::demands`] (of the matrix's view it belongs to).
+    DemandIdx
+);

@@ -131,7 +131,6 @@ pub fn reference_served(
         .eval(&objective)
 }
 
-#[allow(clippy::needless_range_loop)] // each function's capacity goes to a random site
 /// A site of `0..n` other than `a`, uniform (n ≥ 2).
 pub fn other_site(rng: &mut StdRng, n: usize, a: usize) -> usize {
     let b = rng.random_range(0..n - 1);
@@ -173,6 +172,7 @@ pub fn ring_links(
     links
 }
 
+#[allow(clippy::needless_range_loop)] // each function's capacity goes to a random site
 pub fn random_net(rng: &mut StdRng) -> RNet {
     let n = rng.random_range(4..=6);
     let nf = rng.random_range(1..=3);
