@@ -109,7 +109,7 @@ fn main() {
     );
     let mut times = Vec::new();
     for l in (0..net.links.len()).step_by(every.max(1)) {
-        let sc = Scenario::new(&net, &[Element::Link(l)]);
+        let sc = Scenario::new(&net, &[Element::Link(l.into())]);
         let t = Instant::now();
         let e = approx::evaluate_approx(&net, &sc.outage(&net), eps).expect("scenario");
         let secs = t.elapsed().as_secs_f64();

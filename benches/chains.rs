@@ -101,9 +101,9 @@ fn chain_doc(scale: f64) -> serde_json::Value {
 
 fn singles(net: &Network) -> Vec<Vec<Element>> {
     let mut v: Vec<Vec<Element>> = (0..net.links.len())
-        .map(|l| vec![Element::Link(l)])
+        .map(|l| vec![Element::Link(l.into())])
         .collect();
-    v.extend((0..net.sites.len()).map(|s| vec![Element::Site(s)]));
+    v.extend((0..net.sites.len()).map(|s| vec![Element::Site(s.into())]));
     v
 }
 

@@ -34,7 +34,7 @@ fn main() {
     );
     let mut outages = vec![Outage::default()];
     for l in 0..4 {
-        outages.push(Scenario::new(&net, &[Element::Link(l)]).outage(&net));
+        outages.push(Scenario::new(&net, &[Element::Link(l.into())]).outage(&net));
     }
     for (i, o) in outages.iter().enumerate() {
         let t = Instant::now();

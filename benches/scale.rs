@@ -142,10 +142,10 @@ fn main() {
         let net = net_200();
         let base = colgen::evaluate_walks(&net, &Outage::default(), None).expect("baseline");
         for e in [
-            Element::Site(3),
-            Element::Site(10),
-            Element::Link(50),
-            Element::Site(77),
+            Element::Site(3.into()),
+            Element::Site(10.into()),
+            Element::Link(50.into()),
+            Element::Site(77.into()),
         ] {
             let o = Scenario::new(&net, &[e]).outage(&net);
             let t = Instant::now();
@@ -296,7 +296,7 @@ fn close_200() {
 fn bench_200() {
     let net = net_200();
     let sources = {
-        let mut s: Vec<usize> = net.demands.iter().map(|d| d.from).collect();
+        let mut s: Vec<usize> = net.demands.iter().map(|d| d.from.0).collect();
         s.sort_unstable();
         s.dedup();
         s.len()
@@ -308,7 +308,7 @@ fn bench_200() {
     let t = Instant::now();
     let base = colgen::evaluate_walks(&net, &Outage::default(), None).expect("baseline");
     let b = t.elapsed().as_secs_f64();
-    let o = Scenario::new(&net, &[Element::Link(7)]).outage(&net);
+    let o = Scenario::new(&net, &[Element::Link(7.into())]).outage(&net);
     let t = Instant::now();
     let one = colgen::evaluate_walks(&net, &o, Some(&base.basis)).expect("one failure");
     let f = t.elapsed().as_secs_f64();
@@ -351,7 +351,7 @@ fn bench_400() {
     let t = Instant::now();
     let base = colgen::evaluate_walks(&net, &Outage::default(), None).expect("baseline");
     let b = t.elapsed().as_secs_f64();
-    let o = Scenario::new(&net, &[Element::Site(3)]).outage(&net);
+    let o = Scenario::new(&net, &[Element::Site(3.into())]).outage(&net);
     let t = Instant::now();
     colgen::evaluate_walks(&net, &o, Some(&base.basis)).expect("one failure");
     println!(
@@ -386,7 +386,7 @@ fn profile_400() {
     let base = colgen::evaluate_walks(&net, &Outage::default(), None).expect("baseline");
     let t = Instant::now();
     for s in 0..20 {
-        let o = Scenario::new(&net, &[Element::Link(s * 7)]).outage(&net);
+        let o = Scenario::new(&net, &[Element::Link((s * 7).into())]).outage(&net);
         colgen::evaluate_walks(&net, &o, Some(&base.basis)).expect("single");
     }
     println!(

@@ -119,9 +119,9 @@ fn bench(net: &Network, runs: &[Run]) {
 
 fn singles(net: &Network) -> Vec<Vec<Element>> {
     let mut v: Vec<Vec<Element>> = (0..net.links.len())
-        .map(|l| vec![Element::Link(l)])
+        .map(|l| vec![Element::Link(l.into())])
         .collect();
-    v.extend((0..net.sites.len()).map(|s| vec![Element::Site(s)]));
+    v.extend((0..net.sites.len()).map(|s| vec![Element::Site(s.into())]));
     v
 }
 

@@ -179,6 +179,21 @@ const COMPARE_EXAMPLES: &str = "Examples:
   redoubt compare before.json after.json --down link:ab
       both sides with link ab in maintenance";
 
+/// How a run of many scenarios goes: threads, notes, the time-limit override (shared by
+/// the scenario commands and `compare`).
+#[derive(Debug, Args, Clone)]
+pub struct RunArgs {
+    /// Worker threads (default: one per core). Results do not depend on it.
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// No progress bar and no notes on stderr.
+    #[arg(long, short)]
+    pub quiet: bool,
+    /// Run even when the estimated time exceeds the limit (--max-minutes, default 60).
+    #[arg(long)]
+    pub yes: bool,
+}
+
 /// Which scenarios to evaluate and how.
 #[derive(Debug, Args, Clone)]
 pub struct ScenarioArgs {
@@ -190,15 +205,8 @@ pub struct ScenarioArgs {
     /// Kinds of element to fail: any of links, sites, groups (comma-separated).
     #[arg(long, default_value = "links,sites,groups")]
     pub kinds: String,
-    /// Worker threads (default: one per core). Results do not depend on it.
-    #[arg(long)]
-    pub threads: Option<usize>,
-    /// No progress bar and no notes on stderr.
-    #[arg(long, short)]
-    pub quiet: bool,
-    /// Run even when the estimated time exceeds the limit (--max-minutes, default 60).
-    #[arg(long)]
-    pub yes: bool,
+    #[command(flatten)]
+    pub run: RunArgs,
     /// Refuse to start when the estimated time exceeds this many minutes (default 60).
     #[arg(long, value_name = "M", allow_negative_numbers = true)]
     pub max_minutes: Option<f64>,
@@ -419,15 +427,8 @@ pub struct CompareArgs {
     /// How many scenarios each table shows.
     #[arg(long, default_value_t = 15)]
     pub top: usize,
-    /// Worker threads (default: one per core). Results do not depend on it.
-    #[arg(long)]
-    pub threads: Option<usize>,
-    /// No progress bar and no notes on stderr.
-    #[arg(long, short)]
-    pub quiet: bool,
-    /// Run even when the estimated time exceeds the limit (--max-minutes, default 60).
-    #[arg(long)]
-    pub yes: bool,
+    #[command(flatten)]
+    pub run: RunArgs,
     /// Refuse to start when the estimated time of either side exceeds this many minutes.
     #[arg(long, value_name = "M", allow_negative_numbers = true)]
     pub max_minutes: Option<f64>,
@@ -440,9 +441,7 @@ impl CompareArgs {
             network,
             depth: self.depth,
             kinds: self.kinds.clone(),
-            threads: self.threads,
-            quiet: self.quiet,
-            yes: self.yes,
+            run: self.run.clone(),
             max_minutes: self.max_minutes,
             down: self.down.clone(),
             matrix: self.matrix.clone(),

@@ -170,7 +170,7 @@ mod tests {
             assert!((got - want).abs() < 1e-12, "{got} vs {want}");
         }
         assert!((r.uncovered_probability - 0.02).abs() < 1e-12);
-        assert_eq!(r.without_probability, vec![Element::Link(2)]);
+        assert_eq!(r.without_probability, vec![Element::Link(2.into())]);
         assert!((r.p_any_shortfall - 0.08).abs() < 1e-9);
         assert!((r.expected_shortfall - 0.08).abs() < 1e-9);
         assert!((r.expected_shortfall_bound - 0.10).abs() < 1e-9);

@@ -11,73 +11,24 @@ use std::collections::HashMap;
 use std::fmt;
 
 use itertools::Itertools;
-use serde::{Deserialize, Serialize};
 
 use crate::error::{Error, Result};
+use crate::model::index::index_type;
 use crate::model::strict::{FAIL_SEPARATOR, printable};
 use crate::model::{LinkIdx, Network, SiteIdx};
 
-/// Index of a distinct outage of an audit: into [`crate::audit::Audit::outages`] and
-/// [`crate::audit::Audit::evaluations`], the journal's and the part files' line numbers. A plain
-/// `usize` in memory and in JSON (`#[repr(transparent)]`, `#[serde(transparent)]`).
-#[repr(transparent)]
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
-#[serde(transparent)]
-pub struct OutageId(pub usize);
-
-/// Index of a scenario of an audit: into [`crate::audit::Audit::scenarios`] and
-/// [`crate::audit::Audit::outage_of`]
-/// (several scenarios may share one [`OutageId`]). A plain `usize` in memory and in JSON.
-#[repr(transparent)]
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize, Deserialize)]
-#[serde(transparent)]
-pub struct ScenarioId(pub usize);
-
-/// `Vec` and slice indexing by the typed ids, so a list per outage (or per scenario) is
-/// indexed by its own kind of id and an outage id cannot index a scenario's list unnoticed
-/// (a plain `usize` still indexes anything); `Display` is the number. O(1).
-macro_rules! typed_index {
-    ($id:ty) => {
-        impl<T> std::ops::Index<$id> for [T] {
-            type Output = T;
-            fn index(&self, i: $id) -> &T {
-                &self[i.0]
-            }
-        }
-        impl<T> std::ops::IndexMut<$id> for [T] {
-            fn index_mut(&mut self, i: $id) -> &mut T {
-                &mut self[i.0]
-            }
-        }
-        impl<T> std::ops::Index<$id> for Vec<T> {
-            type Output = T;
-            fn index(&self, i: $id) -> &T {
-                &self[i.0]
-            }
-        }
-        impl<T> std::ops::IndexMut<$id> for Vec<T> {
-            fn index_mut(&mut self, i: $id) -> &mut T {
-                &mut self[i.0]
-            }
-        }
-        impl fmt::Display for $id {
-            fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-                self.0.fmt(f)
-            }
-        }
-    };
-}
-typed_index!(OutageId);
-typed_index!(ScenarioId);
-
-/// A plain scenario index (position in the audit's list) as a [`ScenarioId`], for callers
-/// whose own lists are still plain (gates, risk, compare): [`crate::audit::Audit::eval`]
-/// takes either.
-impl From<usize> for ScenarioId {
-    fn from(i: usize) -> ScenarioId {
-        ScenarioId(i)
-    }
-}
+index_type!(
+    /// Index of a distinct outage of an audit: into [`crate::audit::Audit::outages`] and
+    /// [`crate::audit::Audit::evaluations`], the journal's and the part files' line numbers. A plain
+    /// `usize` in memory and in JSON (`#[repr(transparent)]`, `#[serde(transparent)]`).
+    OutageId
+);
+index_type!(
+    /// Index of a scenario of an audit: into [`crate::audit::Audit::scenarios`] and
+    /// [`crate::audit::Audit::outage_of`]
+    /// (several scenarios may share one [`OutageId`]). A plain `usize` in memory and in JSON.
+    ScenarioId
+);
 
 /// One element that can fail.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -303,7 +254,7 @@ impl Scenario {
         sites.dedup();
         for (li, l) in net.links.iter().enumerate() {
             if sites.binary_search(&l.from).is_ok() || sites.binary_search(&l.to).is_ok() {
-                links.push(li);
+                links.push(LinkIdx(li));
             }
         }
         links.sort_unstable();
@@ -383,10 +334,10 @@ impl Outage {
 pub fn elements(net: &Network, kinds: Kinds) -> Vec<Element> {
     let mut out = Vec::new();
     if kinds.links {
-        out.extend((0..net.links.len()).map(Element::Link));
+        out.extend((0..net.links.len()).map(|l| Element::Link(LinkIdx(l))));
     }
     if kinds.sites {
-        out.extend((0..net.sites.len()).map(Element::Site));
+        out.extend((0..net.sites.len()).map(|s| Element::Site(SiteIdx(s))));
     }
     if kinds.groups {
         out.extend((0..net.groups.len()).map(Element::Group));
@@ -508,7 +459,7 @@ mod tests {
     fn group_outage_equals_member_links() {
         let n = net();
         let g = Scenario::new(&n, &[Element::Group(0)]);
-        let l = Scenario::new(&n, &[Element::Link(1), Element::Link(0)]);
+        let l = Scenario::new(&n, &[Element::Link(LinkIdx(1)), Element::Link(LinkIdx(0))]);
         assert_eq!(g.outage(&n), l.outage(&n));
         assert_eq!(l.failed, vec!["link:ab", "link:bc"]);
         let (outages, of) = dedup(&n, &[g, l, Scenario::baseline()]);
@@ -519,9 +470,9 @@ mod tests {
     #[test]
     fn site_takes_incident_links() {
         let n = net();
-        let o = Scenario::new(&n, &[Element::Site(1)]).outage(&n);
-        assert_eq!(o.links, vec![0, 1]);
-        assert_eq!(o.sites, vec![1]);
+        let o = Scenario::new(&n, &[Element::Site(SiteIdx(1))]).outage(&n);
+        assert_eq!(o.links, vec![LinkIdx(0), LinkIdx(1)]);
+        assert_eq!(o.sites, vec![SiteIdx(1)]);
     }
 
     #[test]
@@ -538,7 +489,7 @@ mod tests {
         let n = net();
         assert_eq!(
             Element::parse_list("link:ab,site:c", &n).unwrap(),
-            vec![Element::Link(0), Element::Site(2)]
+            vec![Element::Link(LinkIdx(0)), Element::Site(SiteIdx(2))]
         );
         for bad in [
             "",

@@ -75,7 +75,7 @@ use rayon::prelude::*;
 
 use crate::audit;
 use crate::error::{Error, Result};
-use crate::model::Network;
+use crate::model::{LinkIdx, Network, SiteIdx};
 use crate::report::file_num;
 use crate::scenario::{self, Element, Kinds, Outage, Scenario};
 use crate::solve::{Evaluation, colgen};
@@ -263,7 +263,7 @@ pub fn lower_value(e: &Evaluation, by: By) -> f64 {
 /// on the flow of the walks that `el`'s failure breaks (see the module comment). `e` must
 /// be a full evaluation (not thin). O(arcs).
 pub fn element_flow(net: &Network, e: &Evaluation, el: Element) -> f64 {
-    let link = |l: usize| -> f64 {
+    let link = |l: LinkIdx| -> f64 {
         net.arcs
             .iter()
             .enumerate()
@@ -278,7 +278,7 @@ pub fn element_flow(net: &Network, e: &Evaluation, el: Element) -> f64 {
             .iter()
             .enumerate()
             .filter(|(_, l)| l.from == s || l.to == s)
-            .map(|(i, _)| link(i))
+            .map(|(i, _)| link(LinkIdx(i)))
             .sum(),
         Element::Group(g) => net.groups[g].links.iter().map(|&l| link(l)).sum(),
     }
@@ -480,7 +480,7 @@ impl<'a> Search<'a> {
         let Element::Site(s) = self.pool[e] else {
             return 0.0;
         };
-        let failed = |v: usize| {
+        let failed = |v: SiteIdx| {
             set.iter()
                 .any(|&i| matches!(self.pool[i], Element::Site(x) if x == v))
         };
@@ -489,7 +489,7 @@ impl<'a> Search<'a> {
         }
         self.site_demands[s]
             .iter()
-            .filter(|(other, _)| !failed(*other))
+            .filter(|(other, _)| !failed(SiteIdx(*other)))
             .map(|d| d.1)
             .sum()
     }
@@ -651,8 +651,8 @@ pub fn search(net: &Network, opts: Options) -> Result<Worst> {
     let names: Vec<String> = pool.iter().map(|e| e.name(net)).collect();
     let mut site_demands = vec![Vec::new(); net.sites.len()];
     for d in &net.demands {
-        site_demands[d.from].push((d.to, d.required));
-        site_demands[d.to].push((d.from, d.required));
+        site_demands[d.from].push((d.to.0, d.required));
+        site_demands[d.to].push((d.from.0, d.required));
     }
     let required: f64 = net.demands.iter().map(|d| d.required).sum();
     let tolerance = 2.0 * crate::tol::PROOF_GAP_TOL * required;

@@ -11,8 +11,11 @@
 //!   every closing and of the close-all plan equals the reference optimum;
 //! - files without `functions` keep their closing and plan documents (no new field).
 
+#[path = "common/chain_reference.rs"]
+mod chain_reference;
 mod common;
 
+use chain_reference::{other_site, random_gains, ring_links};
 use common::json::{audit_json, failed_of, num, scenario, scenarios};
 use common::{TempPath, redoubt};
 use good_lp::{
@@ -514,10 +517,7 @@ fn reference_cost(t: &RNet, targets: &[(Failure, f64)]) -> f64 {
 fn random_net(rng: &mut StdRng) -> RNet {
     let n = rng.random_range(4..=5);
     let nf = rng.random_range(1..=2);
-    let gains_from = [0.5, 0.9, 1.0, 2.0];
-    let gains: Vec<f64> = (0..nf)
-        .map(|_| gains_from[rng.random_range(0..gains_from.len())])
-        .collect();
+    let gains = random_gains(rng, nf, &[0.5, 0.9, 1.0, 2.0]);
     let mut capacity = vec![vec![0.0; nf]; n];
     for f in 0..nf {
         capacity[rng.random_range(0..n)][f] = rng.random_range(5..=100) as f64 / 10.0;
@@ -539,32 +539,11 @@ fn random_net(rng: &mut StdRng) -> RNet {
             }
         }
     }
-    let mut links = Vec::new();
-    for l in 0..rng.random_range(n..=n + 2) {
-        let (a, b) = if l < n {
-            (l, (l + 1) % n)
-        } else {
-            let a = rng.random_range(0..n);
-            let mut b = rng.random_range(0..n - 1);
-            if b >= a {
-                b += 1;
-            }
-            (a, b)
-        };
-        links.push((
-            a,
-            b,
-            rng.random_range(20..=300) as f64 / 10.0,
-            rng.random_bool(0.2),
-        ));
-    }
+    let links = ring_links(rng, n, 2, 20..=300, 0.2);
     let mut demands = Vec::new();
     for _ in 0..rng.random_range(2..=3) {
         let a = rng.random_range(0..n);
-        let mut b = rng.random_range(0..n - 1);
-        if b >= a {
-            b += 1;
-        }
+        let b = other_site(rng, n, a);
         let chain: Vec<usize> = (0..rng.random_range(0..=2))
             .map(|_| rng.random_range(0..nf))
             .collect();

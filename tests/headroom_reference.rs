@@ -9,96 +9,35 @@
 //!
 //! Every comparison of floats uses an explicit relative tolerance.
 
-use good_lp::{Expression, ProblemVariables, Solution, SolverModel, Variable, microlp, variable};
+use good_lp::{Expression, Solution, Variable, variable};
 use rand::prelude::*;
-use redoubt::model::Network;
 use redoubt::scenario::{Element, Outage, Scenario};
 use redoubt::solve::Surviving;
 use redoubt::solve::concurrent::{Headroom, headroom, headroom_lp, headroom_walks};
 use redoubt::solve::evaluate;
-use serde_json::json;
 
-/// |got − want| <= REL · max(1, |want|).
-const REL: f64 = 1e-6;
+#[path = "common/reference.rs"]
+mod reference;
+use reference::{TDemand, TLink, TNet, TwoLayer, assert_close, outage_of, random_sites, surviving};
 
-fn assert_close(got: f64, want: f64, what: &str) {
-    assert!(
-        (got - want).abs() <= REL * want.abs().max(1.0),
-        "{what}: got {got}, want {want} (relative tolerance {REL})"
-    );
-}
-
-#[derive(Debug, Clone)]
-struct TLink {
-    from: usize,
-    to: usize,
-    capacity: f64,
-    one_way: bool,
-}
-
-#[derive(Debug, Clone)]
-struct TDemand {
-    from: usize,
-    to: usize,
-    required: f64,
-}
-
-#[derive(Debug, Clone, Default)]
-struct TNet {
-    processing: Vec<f64>,
-    links: Vec<TLink>,
-    demands: Vec<TDemand>,
-}
-
-impl TNet {
-    fn network(&self) -> Network {
-        let sites: Vec<_> = self
-            .processing
-            .iter()
-            .enumerate()
-            .map(|(v, &p)| json!({"id": format!("s{v}"), "processing": p}))
-            .collect();
-        let links: Vec<_> = self
-            .links
-            .iter()
-            .enumerate()
-            .map(|(l, k)| {
-                json!({"id": format!("l{l}"), "from": format!("s{}", k.from),
-                       "to": format!("s{}", k.to), "capacity": k.capacity, "one_way": k.one_way})
-            })
-            .collect();
-        let demands: Vec<_> = self
-            .demands
-            .iter()
-            .map(|d| {
-                json!({"from": format!("s{}", d.from), "to": format!("s{}", d.to),
-                       "volume": d.required, "required": d.required})
-            })
-            .collect();
-        let text = json!({"sites": sites, "links": links, "demands": demands}).to_string();
-        Network::from_json(&text).expect("valid test network")
+/// A demand of `required` units that offers exactly that (volume = required).
+fn demand(from: usize, to: usize, required: f64) -> TDemand {
+    TDemand {
+        from,
+        to,
+        volume: required,
+        required: Some(required),
     }
+}
 
-    /// The product's headroom with the named sites and links failed, through the product's
-    /// scenario → outage path.
-    fn product(&self, failed_sites: &[usize], failed_links: &[usize]) -> (Headroom, f64) {
-        let net = self.network();
-        let mut elements = Vec::new();
-        for &v in failed_sites {
-            elements.push(Element::Site(net.site(&format!("s{v}")).expect("site")));
-        }
-        for &l in failed_links {
-            elements.push(Element::Link(net.link(&format!("l{l}")).expect("link")));
-        }
-        let outage = if elements.is_empty() {
-            Outage::default()
-        } else {
-            Scenario::new(&net, &elements).outage(&net)
-        };
-        let h = headroom(&net, &outage).expect("headroom");
-        let shortfall = evaluate(&net, &outage).expect("evaluation").shortfall;
-        (h, shortfall)
-    }
+/// The product's headroom of `t` with the named sites and links failed, through the
+/// product's scenario → outage path, and the product's shortfall there.
+fn product(t: &TNet, failed_sites: &[usize], failed_links: &[usize]) -> (Headroom, f64) {
+    let net = t.network();
+    let outage = outage_of(&net, failed_sites, failed_links);
+    let h = headroom(&net, &outage).expect("headroom");
+    let shortfall = evaluate(&net, &outage).expect("evaluation").shortfall;
+    (h, shortfall)
 }
 
 /// The reference: per demand `d` with a surviving endpoint pair and required `r_d > 0`, a
@@ -107,93 +46,30 @@ impl TNet {
 /// demand survives. Failures applied from the contract: a failed site loses its
 /// processing and its links; a demand with a failed endpoint is left out.
 fn reference(t: &TNet, failed_sites: &[usize], failed_links: &[usize]) -> Option<f64> {
-    let n = t.processing.len();
-    let up: Vec<bool> = (0..n).map(|v| !failed_sites.contains(&v)).collect();
-    let mut arcs: Vec<(usize, usize, f64)> = Vec::new();
-    for (l, k) in t.links.iter().enumerate() {
-        if failed_links.contains(&l) || !up[k.from] || !up[k.to] {
-            continue;
-        }
-        arcs.push((k.from, k.to, k.capacity));
-        if !k.one_way {
-            arcs.push((k.to, k.from, k.capacity));
-        }
-    }
-    let live: Vec<&TDemand> = t
+    let (up, arcs) = surviving(t, failed_sites, failed_links);
+    let live: Vec<(usize, usize, f64)> = t
         .demands
         .iter()
-        .filter(|d| up[d.from] && up[d.to] && d.required > 0.0)
+        .map(|d| (d.from, d.to, d.required.unwrap_or(d.volume)))
+        .filter(|&(from, to, r)| up[from] && up[to] && r > 0.0)
         .collect();
     if live.is_empty() {
         return None;
     }
-    let mut pv = ProblemVariables::new();
-    let lambda: Variable = pv.add(variable().min(0.0));
-    let mut arc_use: Vec<Expression> = vec![Expression::from(0.0); arcs.len()];
-    let mut site_use: Vec<Expression> = vec![Expression::from(0.0); n];
-    let mut balance: Vec<Expression> = Vec::new();
-    for d in &live {
-        let x0: Vec<Variable> = arcs.iter().map(|_| pv.add(variable().min(0.0))).collect();
-        let x1: Vec<Variable> = arcs.iter().map(|_| pv.add(variable().min(0.0))).collect();
-        let mut layer0: Vec<Expression> = vec![Expression::from(0.0); n];
-        let mut layer1: Vec<Expression> = vec![Expression::from(0.0); n];
-        for (a, &(from, to, _)) in arcs.iter().enumerate() {
-            layer0[from] += x0[a];
-            layer0[to] -= x0[a];
-            layer1[from] += x1[a];
-            layer1[to] -= x1[a];
-            arc_use[a] += x0[a];
-            arc_use[a] += x1[a];
-        }
-        for v in 0..n {
-            if up[v] && t.processing[v] > 0.0 {
-                let p = pv.add(variable().min(0.0));
-                layer0[v] += p;
-                layer1[v] -= p;
-                site_use[v] += p;
-            }
-        }
+    let mut lp = TwoLayer::new(t, &up, arcs);
+    let lambda: Variable = lp.pv.add(variable().min(0.0));
+    for (from, to, r) in live {
         // out − in + p = λ·r at the origin (layer 0); out − in − p = −λ·r at the destination.
-        layer0[d.from] -= d.required * lambda;
-        layer1[d.to] += d.required * lambda;
-        balance.extend(layer0);
-        balance.extend(layer1);
+        lp.commodity(from, to, r * lambda);
     }
-    let mut model = pv.maximise(lambda).using(microlp);
-    for e in balance {
-        model.add_constraint(e.eq(0.0));
-    }
-    for (a, e) in arc_use.into_iter().enumerate() {
-        model.add_constraint(e.leq(arcs[a].2));
-    }
-    for (v, e) in site_use.into_iter().enumerate() {
-        if up[v] && t.processing[v] > 0.0 {
-            model.add_constraint(e.leq(t.processing[v]));
-        }
-    }
-    let sol = model.solve().expect("microlp solves the reference LP");
+    let sol = lp.maximise(Expression::from(lambda));
     Some(sol.value(lambda))
 }
 
 /// 5–8 sites on a ring plus chords (some one-way), 2–7 demands, processing at some sites;
 /// one-decimal numbers.
 fn random_instance(rng: &mut StdRng) -> TNet {
-    let n = rng.random_range(5..=8);
-    let mut t = TNet {
-        processing: (0..n)
-            .map(|_| {
-                if rng.random_bool(0.45) {
-                    rng.random_range(5..=400) as f64 / 10.0
-                } else {
-                    0.0
-                }
-            })
-            .collect(),
-        ..TNet::default()
-    };
-    if t.processing.iter().all(|&p| p == 0.0) {
-        t.processing[rng.random_range(0..n)] = 12.5;
-    }
+    let (n, mut t) = random_sites(rng);
     for l in 0..rng.random_range(n..=n + 6) {
         let (from, to) = if l < n {
             (l, (l + 1) % n)
@@ -212,11 +88,8 @@ fn random_instance(rng: &mut StdRng) -> TNet {
     for _ in 0..rng.random_range(2..=7) {
         let from = rng.random_range(0..n);
         let to = (from + rng.random_range(1..n)) % n;
-        t.demands.push(TDemand {
-            from,
-            to,
-            required: rng.random_range(5..=150) as f64 / 10.0,
-        });
+        t.demands
+            .push(demand(from, to, rng.random_range(5..=150) as f64 / 10.0));
     }
     t
 }
@@ -236,7 +109,7 @@ fn path(processing: &[f64], capacities: &[f64], demands: &[(usize, usize, f64)])
             .collect(),
         demands: demands
             .iter()
-            .map(|&(from, to, required)| TDemand { from, to, required })
+            .map(|&(from, to, required)| demand(from, to, required))
             .collect(),
     }
 }
@@ -245,7 +118,7 @@ fn path(processing: &[f64], capacities: &[f64], demands: &[(usize, usize, f64)])
 /// the link carries 10 = λ·4, so λ = 2.5.
 #[test]
 fn one_link_of_ten_and_four_required_gives_two_and_a_half() {
-    let (h, _) = path(&[100.0, 0.0], &[10.0], &[(0, 1, 4.0)]).product(&[], &[]);
+    let (h, _) = product(&path(&[100.0, 0.0], &[10.0], &[(0, 1, 4.0)]), &[], &[]);
     assert!(h.proven);
     assert_eq!(h.value, Some(2.5));
 }
@@ -254,7 +127,7 @@ fn one_link_of_ten_and_four_required_gives_two_and_a_half() {
 /// before the link's 10).
 #[test]
 fn processing_binds_before_the_link() {
-    let (h, _) = path(&[6.0, 0.0], &[10.0], &[(0, 1, 4.0)]).product(&[], &[]);
+    let (h, _) = product(&path(&[6.0, 0.0], &[10.0], &[(0, 1, 4.0)]), &[], &[]);
     assert!(h.proven);
     assert_eq!(h.value, Some(1.5));
 }
@@ -271,7 +144,7 @@ fn headroom_is_not_served_over_required() {
         &[10.0, 10.0],
         &[(0, 1, 2.0), (0, 2, 8.0), (1, 2, 10.0)],
     );
-    let (h, shortfall) = t.product(&[], &[]);
+    let (h, shortfall) = product(&t, &[], &[]);
     assert!(h.proven);
     assert_close(h.value.unwrap(), 10.0 / 18.0, "λ");
     assert_close(shortfall, 8.0, "shortfall of the max-sum LP (20 − 12)");
@@ -281,7 +154,7 @@ fn headroom_is_not_served_over_required() {
 #[test]
 fn no_surviving_required_demand_has_no_headroom() {
     let t = path(&[0.0, 100.0], &[10.0], &[(0, 1, 4.0)]);
-    let (h, _) = t.product(&[0], &[]);
+    let (h, _) = product(&t, &[0], &[]);
     assert_eq!(h.value, None);
 }
 
@@ -293,7 +166,7 @@ fn cut_off_demand_gives_zero() {
         &[10.0, 10.0],
         &[(0, 1, 4.0), (2, 1, 1.0)],
     );
-    let (h, _) = t.product(&[], &[1]);
+    let (h, _) = product(&t, &[], &[1]);
     assert_eq!(h.value, Some(0.0));
 }
 
@@ -311,7 +184,7 @@ fn matches_per_demand_concurrent_lp_on_random_networks() {
         cases.extend((0..t.links.len()).map(|l| (vec![], vec![l])));
         for (sites, links) in cases {
             let want = reference(&t, &sites, &links);
-            let (got, shortfall) = t.product(&sites, &links);
+            let (got, shortfall) = product(&t, &sites, &links);
             let label = format!("{t:?} failing sites {sites:?} links {links:?}");
             match (want, got.value) {
                 (None, None) => {}
@@ -349,10 +222,12 @@ fn walk_engine_matches_the_edge_lambda_lp_on_random_networks() {
         let (_, columns, _) = headroom_walks(&net, &base, None).expect("baseline");
         let mut outages = vec![Outage::default()];
         outages.extend(
-            (0..net.sites.len()).map(|v| Scenario::new(&net, &[Element::Site(v)]).outage(&net)),
+            (0..net.sites.len())
+                .map(|v| Scenario::new(&net, &[Element::Site(v.into())]).outage(&net)),
         );
         outages.extend(
-            (0..net.links.len()).map(|l| Scenario::new(&net, &[Element::Link(l)]).outage(&net)),
+            (0..net.links.len())
+                .map(|l| Scenario::new(&net, &[Element::Link(l.into())]).outage(&net)),
         );
         for o in outages {
             let view = Surviving::new(&net, &o, None);

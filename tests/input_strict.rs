@@ -243,45 +243,23 @@ const DEMANDS: &str = "id,from,to,volume,required\nvideo,harrow,wembley,5,\n";
 #[test]
 fn non_finite_csv_numbers_are_refused_with_file_row_column_and_value() {
     for bad in ["NaN", "nan", "inf", "-inf", "infinity", "1e999", "-1e999"] {
-        // (which file, its text with the bad cell, column, line, row)
+        // (which file, the cell's text, the same with the bad value at `BAD`, column, row);
+        // the header is line 1, so row r is line r + 1.
         let cases = [
-            (
-                "sites",
-                SITES.replace("harrow,6,", &format!("harrow,{bad},")),
-                "processing",
-                2,
-                1,
-            ),
-            (
-                "sites",
-                SITES.replace("wembley,,,,", &format!("wembley,,,{bad},")),
-                "expand_max",
-                3,
-                2,
-            ),
-            (
-                "links",
-                LINKS.replace(",5,\n", &format!(",5,{bad}\n")),
-                "failure_probability",
-                2,
-                1,
-            ),
-            (
-                "demands",
-                DEMANDS.replace(",5,\n", &format!(",5,{bad}\n")),
-                "required",
-                2,
-                1,
-            ),
-            (
-                "links",
-                LINKS.replace(",10,", &format!(",{bad},")),
-                "capacity",
-                2,
-                1,
-            ),
+            ("sites", "harrow,6,", "harrow,BAD,", "processing", 1),
+            ("sites", "wembley,,,,", "wembley,,,BAD,", "expand_max", 2),
+            ("links", ",5,\n", ",5,BAD\n", "failure_probability", 1),
+            ("demands", ",5,\n", ",5,BAD\n", "required", 1),
+            ("links", ",10,", ",BAD,", "capacity", 1),
         ];
-        for (file, text, column, line, row) in cases {
+        for (file, cell, bad_cell, column, row) in cases {
+            let base = match file {
+                "sites" => SITES,
+                "links" => LINKS,
+                _ => DEMANDS,
+            };
+            let text = base.replace(cell, &bad_cell.replace("BAD", bad));
+            let line = row + 1;
             let csv = match file {
                 "sites" => Csv::new(&text, LINKS, DEMANDS),
                 "links" => Csv::new(SITES, &text, DEMANDS),

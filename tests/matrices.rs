@@ -59,16 +59,13 @@ const TWO_SITES: &str = r#"{"name": "two-sites", "unit": "Gbit/s",
 /// Each matrix of a file, audited with the others, gives every scenario the
 /// served_required and shortfall of a file whose only `demands` are that matrix.
 fn each_matrix_equals_its_own_file(text: &str, ids: &[&str], args: &[&str]) {
-    let all = TempPath::with_text("matrices-all", text);
-    let (_, doc) = audit_json(all.path(), args);
-    for id in ids {
-        let one = TempPath::with_text("matrices-one", &alone(text, id));
-        let (_, own) = audit_json(one.path(), args);
+    let (doc, owns) = with_each_matrix_alone(text, ids, args);
+    for (id, own) in ids.iter().zip(&owns) {
         assert!(
-            !scenarios(&own).iter().any(|sc| sc.get("matrix").is_some()),
+            !scenarios(own).iter().any(|sc| sc.get("matrix").is_some()),
             "a file without matrices names none"
         );
-        let want = by_failed(&own, None);
+        let want = by_failed(own, None);
         let got = by_failed(&doc, Some(id));
         assert_eq!(got.len(), want.len(), "matrix {id}: scenario count");
         for (k, (served, short)) in &want {
@@ -276,16 +273,9 @@ fn gates_cover_every_matrix() {
 
 /// `plan --json` total cost.
 fn plan_cost(file: &str, extra: &[&str]) -> f64 {
-    let out = TempPath::new("matrices-plan", "json");
-    let mut args = vec!["plan", file, "-q", "--kinds", "sites", "--json", out.path()];
+    let mut args = vec!["--kinds", "sites"];
     args.extend_from_slice(extra);
-    let run = redoubt(&args);
-    assert_eq!(run.code, 0, "{}", run.stderr);
-    let doc = out.read_json();
-    doc["cost"]
-        .as_f64()
-        .or_else(|| doc["plan"]["cost"].as_f64())
-        .unwrap_or_else(|| panic!("no cost in {doc}"))
+    plan_json(file, &args).0
 }
 
 #[test]

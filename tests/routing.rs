@@ -780,7 +780,9 @@ fn routed_values_match_an_independent_implementation() {
         for s in scenario::enumerate(&n, kinds, 1) {
             let outage = s.outage(&n);
             let what = format!("seed {seed}, {}", s.display_name());
-            let want = reference(&r, &outage.sites, &outage.links);
+            let dead_sites: Vec<usize> = outage.sites.iter().map(|s| s.0).collect();
+            let dead_links: Vec<usize> = outage.links.iter().map(|l| l.0).collect();
+            let want = reference(&r, &dead_sites, &dead_links);
             let near = routing::evaluate(&n, &trees, &outage, Mode::Nearest).unwrap();
             let steer = routing::evaluate(&n, &trees, &outage, Mode::Steered).unwrap();
             assert_close(
@@ -877,11 +879,11 @@ fn leg_splits_match_path_enumeration() {
             for t in 0..nn {
                 let want = bf_leg(&arcs, o, t, nn);
                 let mut got = vec![0.0; arcs.len()];
-                for (a, f) in trees.leg(o, t) {
+                for (a, f) in trees.leg(o.into(), t.into()) {
                     let arc = &n.arcs[a];
                     let i = arcs
                         .iter()
-                        .position(|x| x.0 == arc.link && x.1 == arc.from && x.2 == arc.to)
+                        .position(|x| x.0 == arc.link.0 && x.1 == arc.from.0 && x.2 == arc.to.0)
                         .unwrap();
                     got[i] += f;
                 }

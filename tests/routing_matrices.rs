@@ -139,16 +139,13 @@ fn keyed(doc: &Value, matrix: Option<&str>) -> std::collections::BTreeMap<String
 /// re-route, win-back, traffic moved against its own matrix's baseline, headroom) as the
 /// file whose only demands are that matrix.
 fn each_matrix_equals_its_own_file(text: &str, ids: &[&str], routing: &str, args: &[&str]) {
-    let all = TempPath::with_text("routing-matrices-all", text);
     // `--detail`: every scenario carries its per-demand lists (otherwise chosen over the run).
     let mut full = vec!["--routing", routing, "--headroom", "--detail"];
     full.extend_from_slice(args);
-    let (_, doc) = audit_json(all.path(), &full);
+    let (doc, owns) = with_each_matrix_alone(text, ids, &full);
     assert_eq!(doc["routing"], routing);
-    for id in ids {
-        let one = TempPath::with_text("routing-matrices-one", &alone(text, id));
-        let (_, own) = audit_json(one.path(), &full);
-        let want = keyed(&own, None);
+    for (id, own) in ids.iter().zip(&owns) {
+        let want = keyed(own, None);
         let got = keyed(&doc, Some(id));
         assert_eq!(got.len(), want.len(), "{routing} {id}: scenario count");
         for (k, w) in &want {
@@ -503,27 +500,11 @@ fn steered_headroom_per_matrix_by_hand() {
 
 /// `plan --routing steered --json` total cost.
 fn steered_plan_cost(file: &str, extra: &[&str]) -> f64 {
-    let out = TempPath::new("routing-matrices-plan", "json");
-    let mut args = vec![
-        "plan",
-        file,
-        "-q",
-        "--routing",
-        "steered",
-        "--kinds",
-        "links",
-        "--json",
-        out.path(),
-    ];
+    let mut args = vec!["--routing", "steered", "--kinds", "links"];
     args.extend_from_slice(extra);
-    let run = redoubt(&args);
-    assert_eq!(run.code, 0, "{}", run.stderr);
-    let doc = out.read_json();
+    let (cost, doc) = plan_json(file, &args);
     assert_eq!(doc["routing"], "steered");
-    doc["cost"]
-        .as_f64()
-        .or_else(|| doc["plan"]["cost"].as_f64())
-        .unwrap_or_else(|| panic!("no cost in {doc}"))
+    cost
 }
 
 #[test]

@@ -12,7 +12,7 @@
 use petgraph::algo::dijkstra;
 use petgraph::graph::{DiGraph, NodeIndex};
 use petgraph::visit::{EdgeRef, Reversed};
-use redoubt::model::Network;
+use redoubt::model::{Network, SiteIdx};
 use redoubt::scenario::{Element, Outage, Scenario};
 use redoubt::solve::{self, Evaluation};
 
@@ -23,7 +23,7 @@ use redoubt::solve::{self, Evaluation};
 /// petgraph's Dijkstra from each origin and, on the reversed graph, to each destination.
 /// Valid for any nonnegative prices. O(sites · (arcs + sites) log sites + demands · sites).
 fn weak_dual_bound(net: &Network, o: &Outage, e: &Evaluation) -> f64 {
-    let site_up = |v: usize| !o.sites.contains(&v);
+    let site_up = |v: SiteIdx| !o.sites.contains(&v);
     let mut g: DiGraph<(), f64> = DiGraph::new();
     let nodes: Vec<NodeIndex> = (0..net.sites.len()).map(|_| g.add_node(())).collect();
     let mut bound = 0.0;
@@ -37,7 +37,7 @@ fn weak_dual_bound(net: &Network, o: &Outage, e: &Evaluation) -> f64 {
     }
     let z: Vec<Option<f64>> = (0..net.sites.len())
         .map(|v| {
-            (site_up(v) && net.sites[v].processing > 0.0).then(|| {
+            (site_up(SiteIdx(v)) && net.sites[v].processing > 0.0).then(|| {
                 e.site_price
                     .get(v)
                     .copied()
@@ -104,7 +104,7 @@ fn check_outside(net: &Network, o: &Outage, e: &Evaluation, what: &str) {
         );
     }
     for (v, site) in net.sites.iter().enumerate() {
-        let cap = if o.sites.contains(&v) {
+        let cap = if o.sites.contains(&SiteIdx(v)) {
             0.0
         } else {
             site.processing
@@ -134,7 +134,11 @@ fn grid50_outages_meet_their_dual_bound() {
         (50, 88, 660)
     );
     let mut outages = vec![Outage::default()];
-    for e in [Element::Link(3), Element::Site(27), Element::Group(0)] {
+    for e in [
+        Element::Link(3.into()),
+        Element::Site(27.into()),
+        Element::Group(0),
+    ] {
         outages.push(Scenario::new(&net, &[e]).outage(&net));
     }
     for (i, o) in outages.iter().enumerate() {
@@ -162,7 +166,11 @@ fn grid50_walk_engine_equals_edge_lp() {
     let net = Network::from_json(&text).unwrap();
     let base = evaluate_walks(&net, &Outage::default(), None).unwrap();
     let mut outages = vec![Outage::default()];
-    for e in [Element::Link(3), Element::Site(27), Element::Group(0)] {
+    for e in [
+        Element::Link(3.into()),
+        Element::Site(27.into()),
+        Element::Group(0),
+    ] {
         outages.push(Scenario::new(&net, &[e]).outage(&net));
     }
     let rel = |a: f64, b: f64| (a - b).abs() / b.abs().max(1.0);
@@ -198,10 +206,15 @@ fn site_rooted_searches_equal_the_per_demand_ones() {
     .unwrap();
     let net = Network::from_json(&text).unwrap();
     let mut sets: Vec<Vec<Element>> = (0..net.links.len())
-        .map(|l| vec![Element::Link(l)])
+        .map(|l| vec![Element::Link(l.into())])
         .collect();
-    sets.extend((0..net.sites.len()).map(|s| vec![Element::Site(s)]));
-    sets.extend((0..10).map(|i| vec![Element::Site(i * 5), Element::Link(i * 7 + 1)]));
+    sets.extend((0..net.sites.len()).map(|s| vec![Element::Site(s.into())]));
+    sets.extend((0..10).map(|i| {
+        vec![
+            Element::Site((i * 5).into()),
+            Element::Link((i * 7 + 1).into()),
+        ]
+    }));
     // Islands: each link alone with its two ends (every other link of theirs failed), so
     // demands leave the island (no path) or stay on it without processing.
     for l in 0..12 {
@@ -212,7 +225,7 @@ fn site_rooted_searches_equal_the_per_demand_ones() {
                     .iter()
                     .any(|&x| net.links[m].from == x || net.links[m].to == x)
         });
-        sets.push(others.map(Element::Link).collect());
+        sets.push(others.map(|l| Element::Link(l.into())).collect());
     }
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
     let arc_cap: Vec<f64> = net
@@ -242,16 +255,14 @@ fn site_rooted_searches_equal_the_per_demand_ones() {
             .map(|v| ((v * 13 + i) % 7) as f64 / 50.0)
             .collect();
         let by = |sites| {
-            certify::dual_bound_rooted(
-                &net,
-                &view,
-                &required,
-                &arc_cap,
-                &site_cap,
-                &y,
-                &z,
-                Some(sites),
-            )
+            let inputs = certify::DualInputs {
+                bound: &required,
+                arc_cap: &arc_cap,
+                site_cap: &site_cap,
+                arc_price: &y,
+                site_price: &z,
+            };
+            certify::dual_bound_rooted(&net, &view, &inputs, Some(sites))
         };
         let (a, b) = (by(true), by(false));
         assert!(

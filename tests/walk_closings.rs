@@ -68,11 +68,11 @@ fn assert_same(what: &str, w: &Closing, e: &Closing) {
 fn compare_all(name: &str, net: &Network) -> usize {
     let mut outages = vec![(String::from("baseline"), Outage::default())];
     for l in 0..net.links.len() {
-        let o = Scenario::new(net, &[Element::Link(l)]).outage(net);
+        let o = Scenario::new(net, &[Element::Link(l.into())]).outage(net);
         outages.push((format!("link {}", net.links[l].id), o));
     }
     for v in 0..net.sites.len() {
-        let o = Scenario::new(net, &[Element::Site(v)]).outage(net);
+        let o = Scenario::new(net, &[Element::Site(v.into())]).outage(net);
         outages.push((format!("site {}", net.sites[v].id), o));
     }
     let mut compared = 0;

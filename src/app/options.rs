@@ -237,8 +237,8 @@ pub fn routing_mode(r: Routing) -> Option<routing::Mode> {
 /// The scenario flags, validated: `--max-minutes` (finite, > 0) and `--threads` (≥ 1,
 /// capped at the core count).
 fn scenarios(args: cli::ScenarioArgs) -> Result<ScenarioOptions> {
-    let time_limit = time_limit(args.max_minutes, args.yes)?;
-    let Threads { threads, capped } = threads(args.threads)?;
+    let time_limit = time_limit(args.max_minutes, args.run.yes)?;
+    let Threads { threads, capped } = threads(args.run.threads)?;
     Ok(ScenarioOptions {
         network: args.network,
         depth: args.depth,
@@ -246,11 +246,11 @@ fn scenarios(args: cli::ScenarioArgs) -> Result<ScenarioOptions> {
         down: args.down,
         matrix: args.matrix,
         routing: routing_mode(args.routing),
-        quiet: args.quiet,
+        quiet: args.run.quiet,
         time_limit,
         run: RunOptions {
             threads,
-            progress: !args.quiet,
+            progress: !args.run.quiet,
         },
         threads_capped: capped,
     })
@@ -355,7 +355,7 @@ fn gates_of(args: &AuditArgs) -> Result<Vec<Gate>> {
 /// shard refuses), `--threads`.
 fn audit(args: AuditArgs) -> Result<AuditOptions> {
     let gates = gates_of(&args)?;
-    time_limit(args.scenarios.max_minutes, args.scenarios.yes)?;
+    time_limit(args.scenarios.max_minutes, args.scenarios.run.yes)?;
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
     let engine = engine(args.engine, args.epsilon, shard.is_some())?;
     if matches!(engine, Engine::Approx { .. }) && (args.close || args.why) {

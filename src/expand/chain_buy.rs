@@ -82,12 +82,12 @@ impl Offer {
             for f in 0..nf {
                 match &ch.expand[v][f] {
                     _ if !any => {
-                        slots.push((v, f));
+                        slots.push((SiteIdx(v), f));
                         cost.push(Some(1.0));
                         max.push(f64::INFINITY);
                     }
                     Some(e) => {
-                        slots.push((v, f));
+                        slots.push((SiteIdx(v), f));
                         cost.push(Some(e.cost));
                         max.push(e.max);
                     }
@@ -230,8 +230,11 @@ fn served_model(
         let var = model.add_var(sub.lower[j], sub.upper[j], 0.0);
         model.magnitude[var] = sub.magnitude[j];
     }
-    let row_of: BTreeMap<usize, (SiteIdx, FunctionIdx)> =
-        layered.function_row.iter().map(|(&k, &r)| (r, k)).collect();
+    let row_of: BTreeMap<usize, (SiteIdx, FunctionIdx)> = layered
+        .function_row
+        .iter()
+        .map(|(&(v, f), &r)| (r, (SiteIdx(v), f)))
+        .collect();
     for (r, row) in sub.rows.iter().enumerate() {
         let mut coeffs: Vec<(usize, f64)> = row.coeffs.iter().map(|&(j, a)| (j + off, a)).collect();
         let mut rhs = row.rhs;
@@ -642,10 +645,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         cost,
         rounds,
         best: bests,
-        worst_fraction: after
-            .iter()
-            .map(Evaluation::served_fraction)
-            .fold(1.0, f64::min),
+        worst_fraction: super::worst_fraction(&after),
         after,
         drivers: site_drivers,
         dropped,
@@ -673,7 +673,7 @@ fn master(
         .map(|v| {
             gainable
                 .iter()
-                .any(|&k| !audit.outages[k].sites.contains(&v))
+                .any(|&k| !audit.outages[k].sites.contains(&SiteIdx(v)))
         })
         .collect();
     let cost_weight = if goal == Goal::CloseAll { 1.0 } else { 0.0 };
@@ -790,7 +790,8 @@ mod tests {
         )
         .unwrap();
         let offer = Offer::of(&net);
-        assert_eq!(offer.slots, vec![(0, 0), (1, 0), (2, 0), (3, 0)]);
+        let at = |v: usize| (SiteIdx(v), 0);
+        assert_eq!(offer.slots, vec![at(0), at(1), at(2), at(3)]);
         let got = plain(
             &offer,
             &[3.0000000000000004, 19.99999981, 2.99999, 0.123456],

@@ -227,16 +227,22 @@ pub fn plan_with(
         add: tidied.add,
         rounds: g.rounds,
         best: bests,
-        worst_fraction: after
-            .iter()
-            .map(Evaluation::served_fraction)
-            .fold(1.0, f64::min),
+        worst_fraction: worst_fraction(&after),
         after,
         drivers: tidied.drivers,
         dropped: tidied.dropped,
         modules,
         functions: None,
     })
+}
+
+/// The lowest served fraction over `after` (1 when empty): a plan's
+/// [`Plan::worst_fraction`]. O(outages).
+pub(crate) fn worst_fraction(after: &[Evaluation]) -> f64 {
+    after
+        .iter()
+        .map(Evaluation::served_fraction)
+        .fold(1.0, f64::min)
 }
 
 /// Per expandable site (a candidate of `cands` with room to add): how many outages (with a
@@ -246,7 +252,7 @@ pub fn plan_with(
 /// unit can be bought there.
 pub fn relief(audit: &Audit, cands: &Candidates) -> Vec<(SiteIdx, usize, f64)> {
     let n_sites = cands.cost.len();
-    let mut out: Vec<(SiteIdx, usize, f64)> = (0..n_sites).map(|v| (v, 0, 0.0)).collect();
+    let mut out: Vec<(SiteIdx, usize, f64)> = (0..n_sites).map(|v| (SiteIdx(v), 0, 0.0)).collect();
     for e in &audit.evaluations {
         if e.shortfall <= 0.0 {
             continue;
@@ -260,7 +266,7 @@ pub fn relief(audit: &Audit, cands: &Candidates) -> Vec<(SiteIdx, usize, f64)> {
             }
         }
     }
-    out.retain(|r| r.1 > 0 && cands.expandable(r.0));
+    out.retain(|r| r.1 > 0 && cands.expandable(r.0.0));
     out.sort_by(|a, b| b.1.cmp(&a.1).then(b.2.total_cmp(&a.2)).then(a.0.cmp(&b.0)));
     out
 }

@@ -200,6 +200,15 @@ struct Point {
     shortfall: Vec<f64>,
 }
 
+/// The [`square`] with module sizes `steps`, its single-link audit and the
+/// [`brute_force`] points over `options`.
+fn module_square(steps: [f64; 3], options: &[Vec<f64>]) -> (Network, Audit, Vec<Point>) {
+    let net = square(Some(steps));
+    let audit = links_audit(&net);
+    let points = brute_force(&net, &audit, options);
+    (net, audit, points)
+}
+
 /// Every addition of the grid `options[v]` (values per site), evaluated on every outage.
 fn brute_force(net: &Network, audit: &Audit, options: &[Vec<f64>]) -> Vec<Point> {
     let cands = Candidates::of(net);
@@ -276,15 +285,12 @@ fn plan_total(audit: &Audit, p: &Plan) -> f64 {
 #[test]
 fn module_plans_match_brute_force_over_module_counts() {
     let steps = [2.0, 3.0, 2.0];
-    let net = square(Some(steps));
-    let audit = links_audit(&net);
-    let options: Vec<Vec<f64>> = vec![
-        (0..=6).map(|m| m as f64 * 2.0).collect(),
-        (0..=4).map(|m| m as f64 * 3.0).collect(),
-        (0..=3).map(|m| m as f64 * 2.0).collect(),
-        vec![0.0],
-    ];
-    let points = brute_force(&net, &audit, &options);
+    let counts = [6, 4, 3];
+    let options: Vec<Vec<f64>> = (0..3)
+        .map(|v| (0..=counts[v]).map(|m| m as f64 * steps[v]).collect())
+        .chain([vec![0.0]])
+        .collect();
+    let (net, audit, points) = module_square(steps, &options);
     let mut goals = vec![Goal::CloseAll];
     for b in [0.0, 3.0, 4.0, 7.0, 10.0, 15.0, 40.0] {
         goals.push(Goal::WorstWithin(b));
@@ -600,16 +606,13 @@ fn closings_in_modules_match_brute_force_over_module_counts() {
 /// (brute force over every allowed amount: a 0, 5, 10, 12; b 0, 3, …, 12; c 0, 4, 6).
 #[test]
 fn close_all_plan_with_partial_modules_matches_brute_force() {
-    let steps = [5.0, 3.0, 4.0];
-    let net = square(Some(steps));
-    let audit = links_audit(&net);
-    let options: Vec<Vec<f64>> = vec![
+    let options = [
         vec![0.0, 5.0, 10.0, 12.0],
         (0..=4).map(|m| f64::from(m) * 3.0).collect(),
         vec![0.0, 4.0, 6.0],
         vec![0.0],
     ];
-    let points = brute_force(&net, &audit, &options);
+    let (net, audit, points) = module_square([5.0, 3.0, 4.0], &options);
     let p = plan(&net, &audit, Goal::CloseAll, RunOptions::default()).unwrap();
     let bf = best_point(&points, Goal::CloseAll, &p.best, &audit);
     for (k, e) in p.after.iter().enumerate() {

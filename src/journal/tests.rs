@@ -1,7 +1,6 @@
 //! Journal round trips and damaged lines (unit tests of [`super`]).
 
 use super::*;
-use crate::model::Network;
 use crate::scenario::{Element, Scenario};
 
 /// Source: the journal's own contract (a line read back by offset is the evaluation
@@ -9,19 +8,15 @@ use crate::scenario::{Element, Scenario};
 /// evaluations solved here.
 #[test]
 fn lines_read_back_by_offset_equal_what_was_recorded() {
-    let net = Network::from_json(
-        r#"{"sites":[{"id":"a","processing":3},{"id":"b"},{"id":"c","processing":1}],
-        "links":[{"id":"ab","from":"a","to":"b","capacity":2},
-                 {"id":"bc","from":"b","to":"c","capacity":5},
-                 {"id":"ca","from":"c","to":"a","capacity":1}],
-        "demands":[{"from":"a","to":"c","volume":2,"required":1.5},
-                   {"from":"b","to":"a","volume":1}]}"#,
-    )
-    .unwrap();
-    let evals: Vec<Evaluation> = [vec![], vec![Element::Link(0)], vec![Element::Site(2)]]
-        .iter()
-        .map(|els| crate::solve::evaluate(&net, &Scenario::new(&net, els).outage(&net)).unwrap())
-        .collect();
+    let net = crate::model::test_ring();
+    let evals: Vec<Evaluation> = [
+        vec![],
+        vec![Element::Link(0.into())],
+        vec![Element::Site(2.into())],
+    ]
+    .iter()
+    .map(|els| crate::solve::evaluate(&net, &Scenario::new(&net, els).outage(&net)).unwrap())
+    .collect();
     let dir = std::env::temp_dir().join(format!("redoubt-journal-{}", std::process::id()));
     fs::create_dir_all(&dir).unwrap();
     let path = dir.join("j.journal");

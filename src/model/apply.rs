@@ -29,36 +29,21 @@ const BOM: &str = "\u{FEFF}";
 /// intended network, and as JSON it equals the input with only the edited values
 /// changed. Linear in the size of the document.
 pub fn with_purchase(text: &str, net: &Network, add: &[f64]) -> Result<String> {
-    let (bom, body) = match text.strip_prefix(BOM) {
-        Some(rest) => (BOM, rest),
-        None => ("", text),
-    };
-    let broken = |what: &str| Error::Input(format!("--apply: the input {what}"));
-    let top = Scanner::at(body, 0).object()?;
-    let sites_span = top
-        .get(body, "sites")
-        .ok_or_else(|| broken("has no `sites` list"))?;
-    let entries = Scanner::at(body, sites_span.start).array()?;
+    let (bom, body, entries) = site_entries(text)?;
     let mut edits: Vec<(Range<usize>, String)> = Vec::new();
     let mut intended = net.clone();
     for (v, (&a, site)) in add.iter().zip(&net.sites).enumerate() {
         if a <= 0.0 {
             continue;
         }
-        let not_site = || broken(&format!("has no sites[{v}] with id \"{}\"", site.id));
-        let span = entries.get(v).ok_or_else(not_site)?;
-        let obj = Scanner::at(body, span.start).object()?;
-        let id = obj.member(body, "id").ok_or_else(not_site)?;
-        if serde_json::from_str::<String>(&body[id.value.clone()]).ok() != Some(site.id.clone()) {
-            return Err(not_site());
-        }
+        let (obj, id) = site_object(body, &entries, v, &site.id)?;
         let processing = site.processing + a;
         intended.sites[v].processing = processing;
         match obj.member(body, "processing") {
             Some(m) => edits.push((m.value.clone(), number_text(processing))),
             None => edits.push((
                 id.value.end..id.value.end,
-                obj.new_member(body, id, "processing", processing),
+                obj.new_member(body, &id, "processing", processing),
             )),
         }
         if let Some(m) = obj.member(body, "expand_max")
@@ -79,8 +64,64 @@ pub fn with_purchase(text: &str, net: &Network, add: &[f64]) -> Result<String> {
         v.sites = sites.clone();
         m.view = std::sync::Arc::new(v);
     }
+    let out = splice(bom, body, edits);
+    let bought = |v: usize| add.get(v).is_some_and(|&a| a > 0.0);
+    check(
+        body,
+        &out[bom.len()..],
+        &intended,
+        bought,
+        ["processing", "expand_max"],
+        "amounts",
+    )?;
+    Ok(out)
+}
+
+/// The input split after its byte-order mark (kept apart, written back unchanged), and the
+/// byte spans of its `sites` entries. O(len).
+fn site_entries(text: &str) -> Result<(&'static str, &str, Vec<Range<usize>>)> {
+    let (bom, body) = match text.strip_prefix(BOM) {
+        Some(rest) => (BOM, rest),
+        None => ("", text),
+    };
+    let top = Scanner::at(body, 0).object()?;
+    let sites_span = top
+        .get(body, "sites")
+        .ok_or_else(|| Error::Input("--apply: the input has no `sites` list".into()))?;
+    let entries = Scanner::at(body, sites_span.start).array()?;
+    Ok((bom, body, entries))
+}
+
+/// The scanned object of `sites[v]` and its `id` member, checked to name `id`. O(entry).
+fn site_object(
+    body: &str,
+    entries: &[Range<usize>],
+    v: usize,
+    id: &str,
+) -> Result<(Object, Member)> {
+    let not_site = || {
+        Error::Input(format!(
+            "--apply: the input has no sites[{v}] with id \"{id}\""
+        ))
+    };
+    let span = entries.get(v).ok_or_else(not_site)?;
+    let obj = Scanner::at(body, span.start).object()?;
+    let member = obj.member(body, "id").ok_or_else(not_site)?.clone();
+    if serde_json::from_str::<String>(&body[member.value.clone()])
+        .ok()
+        .as_deref()
+        != Some(id)
+    {
+        return Err(not_site());
+    }
+    Ok((obj, member))
+}
+
+/// `body` with each span of `edits` replaced by its text (spans disjoint), after `bom`.
+/// O(len + edits · log edits).
+fn splice(bom: &str, body: &str, mut edits: Vec<(Range<usize>, String)>) -> String {
     edits.sort_by_key(|(r, _)| r.start);
-    let mut out = String::with_capacity(text.len() + 64);
+    let mut out = String::with_capacity(bom.len() + body.len() + 64);
     out.push_str(bom);
     let mut at = 0;
     for (r, new) in &edits {
@@ -89,13 +130,20 @@ pub fn with_purchase(text: &str, net: &Network, add: &[f64]) -> Result<String> {
         at = r.end;
     }
     out.push_str(&body[at..]);
-    check(body, &out[bom.len()..], &intended, add)?;
-    Ok(out)
+    out
 }
 
 /// The edited text reads back as `intended`, and as plain JSON equals `before` with only
-/// the bought sites' `processing` and `expand_max` replaced.
-fn check(before: &str, after: &str, intended: &Network, add: &[f64]) -> Result<()> {
+/// the members `keys` of the bought sites (`bought(v)`) replaced; `what` names those
+/// members in the message otherwise. O(len).
+fn check(
+    before: &str,
+    after: &str,
+    intended: &Network,
+    bought: impl Fn(usize) -> bool,
+    keys: [&str; 2],
+    what: &str,
+) -> Result<()> {
     let wrong = |why: String| Error::Internal(format!("--apply: the edited file {why}"));
     let back = Network::from_json(after).map_err(|e| wrong(format!("does not read back: {e}")))?;
     if &back != intended {
@@ -105,11 +153,9 @@ fn check(before: &str, after: &str, intended: &Network, add: &[f64]) -> Result<(
     }
     let parse = |t: &str| serde_json::from_str::<Value>(t).map_err(|e| wrong(e.to_string()));
     let (mut old, new) = (parse(before)?, parse(after)?);
-    for (v, &a) in add.iter().enumerate() {
-        if a <= 0.0 {
-            continue;
-        }
-        for key in ["processing", "expand_max"] {
+    let n = old["sites"].as_array().map_or(0, Vec::len);
+    for v in (0..n).filter(|&v| bought(v)) {
+        for key in keys {
             if let (Some(o), Some(n)) = (
                 old["sites"][v].as_object_mut(),
                 new["sites"][v].get(key).cloned(),
@@ -119,7 +165,7 @@ fn check(before: &str, after: &str, intended: &Network, add: &[f64]) -> Result<(
         }
     }
     if old != new {
-        return Err(wrong("changed more than the bought sites' amounts".into()));
+        return Err(wrong(format!("changed more than the bought sites' {what}")));
     }
     Ok(())
 }
@@ -143,16 +189,7 @@ pub fn with_function_purchase(text: &str, net: &Network, add: &[Vec<f64>]) -> Re
         .chains
         .as_ref()
         .ok_or_else(|| Error::Internal("--apply: function purchase without `functions`".into()))?;
-    let (bom, body) = match text.strip_prefix(BOM) {
-        Some(rest) => (BOM, rest),
-        None => ("", text),
-    };
-    let broken = |what: &str| Error::Input(format!("--apply: the input {what}"));
-    let top = Scanner::at(body, 0).object()?;
-    let sites_span = top
-        .get(body, "sites")
-        .ok_or_else(|| broken("has no `sites` list"))?;
-    let entries = Scanner::at(body, sites_span.start).array()?;
+    let (bom, body, entries) = site_entries(text)?;
     let mut edits: Vec<(Range<usize>, String)> = Vec::new();
     let mut intended = net.clone();
     let ic = intended.chains.as_mut().expect("cloned with chains");
@@ -166,13 +203,7 @@ pub fn with_function_purchase(text: &str, net: &Network, add: &[Vec<f64>]) -> Re
         if bought.is_empty() {
             continue;
         }
-        let not_site = || broken(&format!("has no sites[{v}] with id \"{}\"", site.id));
-        let span = entries.get(v).ok_or_else(not_site)?;
-        let obj = Scanner::at(body, span.start).object()?;
-        let id = obj.member(body, "id").ok_or_else(not_site)?;
-        if serde_json::from_str::<String>(&body[id.value.clone()]).ok() != Some(site.id.clone()) {
-            return Err(not_site());
-        }
+        let (obj, id) = site_object(body, &entries, v, &site.id)?;
         for &(f, a) in &bought {
             ic.capacity[v][f] = ch.capacity[v][f] + a;
         }
@@ -221,7 +252,7 @@ pub fn with_function_purchase(text: &str, net: &Network, add: &[Vec<f64>]) -> Re
                 let value = format!("{{{}}}", members.join(", "));
                 edits.push((
                     id.value.end..id.value.end,
-                    obj.new_member_text(body, id, "functions", &value),
+                    obj.new_member_text(body, &id, "functions", &value),
                 ));
             }
         }
@@ -253,44 +284,16 @@ pub fn with_function_purchase(text: &str, net: &Network, add: &[Vec<f64>]) -> Re
         }
         m.view = std::sync::Arc::new(v);
     }
-    edits.sort_by_key(|(r, _)| r.start);
-    let mut out = String::with_capacity(text.len() + 64);
-    out.push_str(bom);
-    let mut at = 0;
-    for (r, new) in &edits {
-        out.push_str(&body[at..r.start]);
-        out.push_str(new);
-        at = r.end;
-    }
-    out.push_str(&body[at..]);
-    let wrong = |why: String| Error::Internal(format!("--apply: the edited file {why}"));
-    let after = &out[bom.len()..];
-    let back = Network::from_json(after).map_err(|e| wrong(format!("does not read back: {e}")))?;
-    if back != intended {
-        return Err(wrong(
-            "does not read back as the network with the purchase".into(),
-        ));
-    }
-    let parse = |t: &str| serde_json::from_str::<Value>(t).map_err(|e| wrong(e.to_string()));
-    let (mut old, new) = (parse(body)?, parse(after)?);
-    for (v, more) in add.iter().enumerate() {
-        if more.iter().all(|a| *a <= 0.0) {
-            continue;
-        }
-        for key in ["functions", "expand"] {
-            if let (Some(o), Some(n)) = (
-                old["sites"][v].as_object_mut(),
-                new["sites"][v].get(key).cloned(),
-            ) {
-                o.insert(key.into(), n);
-            }
-        }
-    }
-    if old != new {
-        return Err(wrong(
-            "changed more than the bought sites' functions".into(),
-        ));
-    }
+    let out = splice(bom, body, edits);
+    let bought = |v: usize| add.get(v).is_some_and(|more| more.iter().any(|&a| a > 0.0));
+    check(
+        body,
+        &out[bom.len()..],
+        &intended,
+        bought,
+        ["functions", "expand"],
+        "functions",
+    )?;
     Ok(out)
 }
 

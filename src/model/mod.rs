@@ -6,14 +6,16 @@ pub mod chains;
 pub mod diff;
 pub mod file;
 pub mod import;
+pub mod index;
 pub mod network;
 mod shape;
 pub mod strict;
 
 pub use chains::{Chains, Function, FunctionIdx};
+pub use index::{ArcIdx, DemandIdx, LinkIdx, SiteIdx};
 pub use network::{
-    Arc, BASE_MATRIX, Demand, Expansion, Link, LinkIdx, MAX_AMOUNT, MAX_METRIC, MAX_TOTAL, Matrix,
-    Network, RiskGroup, Site, SiteIdx,
+    Arc, BASE_MATRIX, Demand, Expansion, Link, MAX_AMOUNT, MAX_METRIC, MAX_TOTAL, Matrix, Network,
+    RiskGroup, Site,
 };
 
 use std::io::Read;
@@ -86,4 +88,20 @@ pub fn read_input_text(path: &Path) -> Result<String> {
             path.display()
         ))
     })
+}
+
+/// A three-site ring for unit tests (shared by the journal and re-check tests): sites a
+/// (processing 3), b, c (processing 1); links a→b 2, b→c 5, c→a 1 (both ways); demands
+/// a→c (volume 2, required 1.5) and b→a (volume 1).
+#[cfg(test)]
+pub(crate) fn test_ring() -> Network {
+    Network::from_json(
+        r#"{"sites":[{"id":"a","processing":3},{"id":"b"},{"id":"c","processing":1}],
+        "links":[{"id":"ab","from":"a","to":"b","capacity":2},
+                 {"id":"bc","from":"b","to":"c","capacity":5},
+                 {"id":"ca","from":"c","to":"a","capacity":1}],
+        "demands":[{"from":"a","to":"c","volume":2,"required":1.5},
+                   {"from":"b","to":"a","volume":1}]}"#,
+    )
+    .expect("a valid network")
 }

@@ -20,10 +20,7 @@ use super::shape::{check_shape, describe_parse_error, describe_syntax_error};
 use super::strict::{self, check_id, check_label, printable};
 use crate::error::{Error, Result};
 
-/// Index of a site in [`Network::sites`].
-pub type SiteIdx = usize;
-/// Index of a link in [`Network::links`].
-pub type LinkIdx = usize;
+pub use super::index::{ArcIdx, DemandIdx, LinkIdx, SiteIdx};
 
 /// How processing may be bought at a site.
 #[derive(Debug, Clone, PartialEq)]
@@ -284,7 +281,7 @@ impl Network {
         for (i, s) in file.sites.iter().enumerate() {
             let el = site_label(i, s);
             check_id(&el, "id", &s.id, true)?;
-            if let Some(prev) = site_index.insert(s.id.clone(), i) {
+            if let Some(prev) = site_index.insert(s.id.clone(), SiteIdx(i)) {
                 return Err(Error::Input(format!(
                     "{el}: field `id` value \"{}\" is already used by sites[{prev}]",
                     printable(&s.id)
@@ -339,7 +336,7 @@ impl Network {
         for (i, l) in file.links.iter().enumerate() {
             let el = link_label(i, l);
             check_id(&el, "id", &l.id, true)?;
-            if let Some(prev) = link_index.insert(l.id.clone(), i) {
+            if let Some(prev) = link_index.insert(l.id.clone(), LinkIdx(i)) {
                 return Err(Error::Input(format!(
                     "{el}: field `id` value \"{}\" is already used by links[{prev}]",
                     printable(&l.id)
@@ -362,8 +359,8 @@ impl Network {
                 }
                 check_id(&el, "risk_groups", g, true)?;
                 let members = group_members.entry(g.clone()).or_default();
-                if members.last() != Some(&i) {
-                    members.push(i);
+                if members.last() != Some(&LinkIdx(i)) {
+                    members.push(LinkIdx(i));
                 }
             }
             links.push(Link {
@@ -524,14 +521,14 @@ impl Network {
         let mut arcs = Vec::with_capacity(2 * links.len());
         for (li, l) in links.iter().enumerate() {
             arcs.push(Arc {
-                link: li,
+                link: LinkIdx(li),
                 from: l.from,
                 to: l.to,
                 capacity: l.capacity,
             });
             if !l.one_way {
                 arcs.push(Arc {
-                    link: li,
+                    link: LinkIdx(li),
                     from: l.to,
                     to: l.from,
                     capacity: l.capacity,
@@ -823,7 +820,7 @@ mod tests {
         let n = Network::from_json(OK).unwrap();
         assert_eq!(n.sites[1].processing, 0.0);
         assert_eq!(n.arcs.len(), 2);
-        assert_eq!(n.groups[0].links, vec![0]);
+        assert_eq!(n.groups[0].links, vec![LinkIdx(0)]);
         assert_eq!(n.demands[0].required, 3.0);
         assert_eq!(n.unit, "units");
     }

@@ -47,7 +47,7 @@ pub struct PlanReport<'a> {
 /// What `check` reports: the network and the demands the intact network cuts off.
 pub struct CheckReport<'a> {
     pub net: &'a Network,
-    pub cut_off: &'a [(usize, Unservable)],
+    pub cut_off: &'a [(crate::model::DemandIdx, Unservable)],
 }
 
 /// The terminal report ([`super::text`]).

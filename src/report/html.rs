@@ -511,8 +511,8 @@ fn why_section(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
     ];
     let mut rows = Vec::new();
     for (dm, dem) in net.demands.iter().enumerate() {
-        let stranded = e.stranded_demands.contains(&dm);
-        let cut = e.cut_off.iter().any(|(c, _)| *c == dm);
+        let stranded = e.stranded_demands.contains(&dm.into());
+        let cut = e.cut_off.iter().any(|(c, _)| c.0 == dm);
         let short = e.demand_shortfall.get(dm).copied().unwrap_or(0.0);
         if dem.required <= 0.0 || !(stranded || cut || short > 0.0) {
             continue;
@@ -607,7 +607,7 @@ fn why_section(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
                 .map(|&(a, p)| {
                     format!(
                         "{} +{}",
-                        super::text::resource_name(net, crate::solve::Resource::Arc(a)),
+                        super::text::resource_name(net, crate::solve::Resource::Arc(a.into())),
                         num(p)
                     )
                 })

@@ -108,8 +108,8 @@ fn hop_distances(net: &Network) -> Vec<Vec<f64>> {
     let n = net.sites.len();
     let mut adj = vec![Vec::new(); n];
     for l in &net.links {
-        adj[l.from].push(l.to);
-        adj[l.to].push(l.from);
+        adj[l.from].push(l.to.0);
+        adj[l.to].push(l.from.0);
     }
     let mut d = vec![vec![f64::INFINITY; n]; n];
     let mut far: f64 = 1.0;

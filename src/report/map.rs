@@ -89,7 +89,7 @@ impl Drawing {
             std::collections::BTreeMap::new();
         for (l, link) in net.links.iter().enumerate() {
             pairs
-                .entry((link.from.min(link.to), link.from.max(link.to)))
+                .entry((link.from.0.min(link.to.0), link.from.0.max(link.to.0)))
                 .or_default()
                 .push(l);
         }
@@ -106,7 +106,7 @@ impl Drawing {
                     (pb.0 + nx * off, pb.1 + ny * off),
                 );
                 let link = &net.links[l];
-                seg[l] = if link.from == *a { (p, q) } else { (q, p) };
+                seg[l] = if link.from.0 == *a { (p, q) } else { (q, p) };
             }
         }
         let mut placer = Placer {

@@ -86,7 +86,7 @@ pub struct Model<'a> {
     pub closings: Option<&'a [Option<Closing>]>,
     /// "Where one more unit helps": (site, scenarios helped, most served per added unit),
     /// best first ([`crate::expand::relief`]).
-    pub relief: Vec<(usize, usize, f64)>,
+    pub relief: Vec<(crate::model::SiteIdx, usize, f64)>,
     /// The risk figures, when probabilities are given.
     pub risk: Option<&'a Risk>,
     /// One verdict per gate.

@@ -105,7 +105,7 @@ pub fn build(
                 for &c in &r.nearest {
                     let ch = &r.candidates[c];
                     arcs = super::merge(&arcs, &ch.arcs, w);
-                    sites.push((ch.site, w));
+                    sites.push((ch.site.0, w));
                 }
                 demand_vars[d].push(lp.add_var(0.0, cap[d], obj));
                 var_arcs.push(arcs);
@@ -116,7 +116,7 @@ pub fn build(
                 for ch in &r.candidates {
                     demand_vars[d].push(lp.add_var(0.0, cap[d], obj));
                     var_arcs.push(ch.arcs.clone());
-                    var_sites.push(vec![(ch.site, 1.0)]);
+                    var_sites.push(vec![(ch.site.0, 1.0)]);
                     var_demand.push(d);
                 }
                 if demand_vars[d].len() > 1 {

@@ -30,7 +30,7 @@ use std::sync::Arc as Shared;
 
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::{Error, Result};
-use crate::model::{Network, SiteIdx};
+use crate::model::{LinkIdx, Network, SiteIdx};
 use crate::scenario::{Outage, Scenario};
 use crate::solve::evaluator::{AddModel, Evaluated, Evaluator, Warm};
 use crate::solve::{self, Evaluation, lp};
@@ -119,7 +119,7 @@ pub fn routes(net: &Network, trees: &Trees, eligible: &[bool]) -> Vec<Option<Dem
             trees.trees[dem.from].as_ref()?;
             trees.trees[dem.to].as_ref()?;
             let mut candidates = Vec::new();
-            for v in (0..net.sites.len()).filter(|&v| eligible[v]) {
+            for v in (0..net.sites.len()).filter(|&v| eligible[v]).map(SiteIdx) {
                 let (d1, d2) = (trees.dist(dem.from, v), trees.dist(v, dem.to));
                 if d1 == UNREACHABLE || d2 == UNREACHABLE {
                     continue;
@@ -166,7 +166,7 @@ pub struct Offered {
     pub max_link_util: f64,
     pub max_site_util: f64,
     /// Links with a direction above capacity (link order) and sites above capacity.
-    pub overloaded_links: Vec<usize>,
+    pub overloaded_links: Vec<LinkIdx>,
     pub overloaded_sites: Vec<SiteIdx>,
 }
 
@@ -215,7 +215,7 @@ pub fn offered(net: &Network, routes: &[Option<DemandRoutes>]) -> Offered {
         .zip(&net.sites)
         .map(|(&l, s)| utilisation(l, s.processing))
         .collect();
-    let mut overloaded_links: Vec<usize> = arc_load
+    let mut overloaded_links: Vec<LinkIdx> = arc_load
         .iter()
         .zip(&net.arcs)
         .filter(|(l, a)| overloaded(**l, a.capacity))
@@ -224,6 +224,7 @@ pub fn offered(net: &Network, routes: &[Option<DemandRoutes>]) -> Offered {
     overloaded_links.dedup();
     let overloaded_sites = (0..net.sites.len())
         .filter(|&v| overloaded(site_load[v], net.sites[v].processing))
+        .map(SiteIdx)
         .collect();
     let max = |u: &[f64]| u.iter().copied().fold(0.0, f64::max);
     Offered {

@@ -41,8 +41,8 @@ pub fn weighted_arcs(net: &Network) -> Vec<WArc> {
     net.arcs
         .iter()
         .map(|a| WArc {
-            from: a.from,
-            to: a.to,
+            from: a.from.0,
+            to: a.to.0,
             weight: u64::from(net.links[a.link].metric),
         })
         .collect()
@@ -216,7 +216,7 @@ impl Trees {
     pub fn leg(&self, o: SiteIdx, t: SiteIdx) -> Vec<(usize, f64)> {
         self.trees[t]
             .as_ref()
-            .map_or_else(Vec::new, |tr| tr.leg(o, &self.arcs))
+            .map_or_else(Vec::new, |tr| tr.leg(o.0, &self.arcs))
     }
 }
 

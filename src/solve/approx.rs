@@ -119,8 +119,8 @@ impl Layers {
         let mut edges: Vec<(usize, usize, Row)> = Vec::new();
         for &a in &view.arcs {
             let arc = &net.arcs[a];
-            edges.push((2 * arc.from, 2 * arc.to, Row::Arc(a)));
-            edges.push((2 * arc.from + 1, 2 * arc.to + 1, Row::Arc(a)));
+            edges.push((2 * arc.from.0, 2 * arc.to.0, Row::Arc(a)));
+            edges.push((2 * arc.from.0 + 1, 2 * arc.to.0 + 1, Row::Arc(a)));
         }
         for v in 0..n {
             if view.can_process[v] {
@@ -233,7 +233,7 @@ impl State<'_> {
             match self.layers.row[e] {
                 Row::Arc(a) => {
                     arcs.push(a);
-                    node = 2 * self.net.arcs[a].from + (node & 1);
+                    node = 2 * self.net.arcs[a].from.0 + (node & 1);
                 }
                 Row::Site(v) => {
                     site = v;
@@ -480,7 +480,7 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
     for &s in &origins {
         st.dijkstra(s);
         for &d in &by_origin[s] {
-            let t = net.demands[d].to;
+            let t = net.demands[d].to.0;
             walk_len[d] = st.dist[2 * t + 1];
             alpha = alpha.min(walk_len[d] + st.dem_len[d]);
         }
@@ -500,7 +500,7 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
                 let mut picked = Vec::new();
                 let mut least = f64::INFINITY;
                 for &d in &by_origin[s] {
-                    let t = net.demands[d].to;
+                    let t = net.demands[d].to.0;
                     walk_len[d] = st.dist[2 * t + 1];
                     let len = walk_len[d] + st.dem_len[d];
                     if len < limit {
@@ -638,7 +638,7 @@ fn top_up(
             st.dijkstra_within(s, Some((&ra, &rs)));
             let mut added = false;
             for &d in demands {
-                let t = net.demands[d].to;
+                let t = net.demands[d].to.0;
                 if short[d] <= 1e-9 * st.bound[d] || !st.dist[2 * t + 1].is_finite() {
                     continue;
                 }

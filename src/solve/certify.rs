@@ -42,32 +42,45 @@ pub fn dual_bound(
     arc_price: &[f64],
     site_price: &[f64],
 ) -> f64 {
-    dual_bound_rooted(
-        net, view, bound, arc_cap, site_cap, arc_price, site_price, None,
-    )
+    let inputs = DualInputs {
+        bound,
+        arc_cap,
+        site_cap,
+        arc_price,
+        site_price,
+    };
+    dual_bound_rooted(net, view, &inputs, None)
+}
+
+/// The arguments of [`dual_bound`] after the network and its view: demand caps, arc and
+/// site capacities and prices (indexed like `Network::demands`, `Network::arcs`,
+/// `Network::sites`).
+#[derive(Debug, Clone, Copy)]
+pub struct DualInputs<'a> {
+    pub bound: &'a [f64],
+    pub arc_cap: &'a [f64],
+    pub site_cap: &'a [f64],
+    pub arc_price: &'a [f64],
+    pub site_price: &'a [f64],
 }
 
 /// [`dual_bound`] with the shortest-path trees rooted at the processing sites
 /// (`Some(true)`), at the demands' ends (`Some(false)`), or wherever fewer are needed
 /// (`None`). Every choice gives the same bound up to rounding (tested).
-#[allow(clippy::too_many_arguments)]
 pub fn dual_bound_rooted(
     net: &Network,
     view: &Surviving,
-    bound: &[f64],
-    arc_cap: &[f64],
-    site_cap: &[f64],
-    arc_price: &[f64],
-    site_price: &[f64],
+    inputs: &DualInputs,
     at_sites: Option<bool>,
 ) -> f64 {
-    let mut total = priced_capacity(view, arc_cap, site_cap, arc_price, site_price);
+    let x = inputs;
+    let mut total = priced_capacity(view, x.arc_cap, x.site_cap, x.arc_price, x.site_price);
     let active: Vec<usize> = (0..net.demands.len())
-        .filter(|&d| view.demand_alive(net, d) && bound[d] > 0.0)
+        .filter(|&d| view.demand_alive(net, d) && x.bound[d] > 0.0)
         .collect();
-    let costs = cheapest_walks(net, view, arc_price, site_price, &active, at_sites);
+    let costs = cheapest_walks(net, view, x.arc_price, x.site_price, &active, at_sites);
     for (&d, c) in active.iter().zip(costs) {
-        total += bound[d] * (1.0 - c).max(0.0);
+        total += x.bound[d] * (1.0 - c).max(0.0);
     }
     total
 }
@@ -126,8 +139,8 @@ pub fn cheapest_walks(
     for &a in &view.arcs {
         let arc = &net.arcs[a];
         let y = arc_price[a].max(0.0);
-        fwd.add_edge(NodeIndex::new(arc.from), NodeIndex::new(arc.to), y);
-        rev.add_edge(NodeIndex::new(arc.to), NodeIndex::new(arc.from), y);
+        fwd.add_edge(NodeIndex::new(arc.from.0), NodeIndex::new(arc.to.0), y);
+        rev.add_edge(NodeIndex::new(arc.to.0), NodeIndex::new(arc.from.0), y);
     }
     let procs: Vec<usize> = (0..n).filter(|&v| view.can_process[v]).collect();
     let distances = |g: &DiGraph<(), f64>, s: usize| -> Vec<f64> {
@@ -171,10 +184,10 @@ pub fn cheapest_walks(
         .map(|&d| {
             let dem = &net.demands[d];
             if from_cache[dem.from].is_none() {
-                from_cache[dem.from] = Some(distances(&fwd, dem.from));
+                from_cache[dem.from.0] = Some(distances(&fwd, dem.from.0));
             }
             if to_cache[dem.to].is_none() {
-                to_cache[dem.to] = Some(distances(&rev, dem.to));
+                to_cache[dem.to.0] = Some(distances(&rev, dem.to.0));
             }
             let ds = from_cache[dem.from].as_ref().expect("filled above");
             let dt = to_cache[dem.to].as_ref().expect("filled above");

@@ -38,7 +38,9 @@ use super::surviving::{Surviving, Unservable};
 use super::types::{Evaluation, Verification, Verified};
 use super::{RESIDUAL_TOL, finish_with, ladder, needs_volume_lp, verify};
 use crate::error::{Error, Result};
-use crate::model::{Chains, FunctionIdx, Network, SiteIdx};
+use crate::model::{Chains, FunctionIdx, Network};
+/// A site number inside this engine's layered graph: [`crate::model::SiteIdx`]`.0`.
+type SiteIdx = usize;
 use crate::scenario::Outage;
 use crate::tol::{PROOF_GAP_TOL, ZERO_FLOW};
 
@@ -109,14 +111,14 @@ pub(crate) fn servable(
             if !view.demand_alive(net, d) || bound[d] <= 0.0 {
                 return Ok(false);
             }
-            let key = (dem.from, ch.chain[d].clone());
+            let key = (dem.from.0, ch.chain[d].clone());
             let reach = cache
                 .entry(key)
-                .or_insert_with(|| forward(net, ch, view, dem.from, &ch.chain[d]));
+                .or_insert_with(|| forward(net, ch, view, dem.from.0, &ch.chain[d]));
             let k = ch.chain[d].len();
-            if reach[k * n + dem.to] {
+            if reach[k * n + dem.to.0] {
                 Ok(true)
-            } else if view.reach_from([dem.from])[dem.to] {
+            } else if view.reach_from([dem.from.0])[dem.to] {
                 Err(Unservable::NoProcessing)
             } else {
                 Err(Unservable::NoPath)
@@ -238,7 +240,7 @@ pub(crate) fn demand_groups(
     for (d, s) in servable(net, ch, view, bound).iter().enumerate() {
         match s {
             Ok(true) => by_key
-                .entry((net.demands[d].from, ch.chain[d].clone()))
+                .entry((net.demands[d].from.0, ch.chain[d].clone()))
                 .or_default()
                 .push(d),
             Ok(false) => {}
@@ -277,7 +279,7 @@ pub fn build(
         let k = chain.len();
         let cumulative = ch.cumulative(&chain);
         let total: f64 = demands.iter().map(|&d| bound[d]).sum();
-        let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to).collect();
+        let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
         let fwd = forward(net, ch, view, origin, &chain);
         let back = backward(net, ch, view, &dests, &chain);
         let live = |node: usize| fwd[node] && back[node];
@@ -287,7 +289,7 @@ pub fn build(
         for j in 0..=k {
             for &a in &view.arcs {
                 let arc = &net.arcs[a];
-                let (from, to) = (j * n + arc.from, j * n + arc.to);
+                let (from, to) = (j * n + arc.from.0, j * n + arc.to.0);
                 if !(live(from) && live(to)) {
                     continue;
                 }
@@ -329,7 +331,7 @@ pub fn build(
             demand_var[d] = Some(var);
             node_terms.entry(origin).or_default().push((var, 1.0));
             node_terms
-                .entry(k * n + net.demands[d].to)
+                .entry(k * n + net.demands[d].to.0)
                 .or_default()
                 .push((var, -1.0));
         }
@@ -415,7 +417,7 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
             let f = layered.demand_var[d].map_or(0.0, |v| x[v].clamp(0.0, layered.bound[d]));
             lp_flow[d] = f;
             supply += f;
-            *sink.entry(k * n + net.demands[d].to).or_default() += f;
+            *sink.entry(k * n + net.demands[d].to.0).or_default() += f;
         }
         let source = group.origin;
         let next = |node: usize, rest: &[f64]| -> Option<usize> {
@@ -490,7 +492,7 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
     for (g, group) in layered.groups.iter().enumerate() {
         let mut by_dest: BTreeMap<SiteIdx, Vec<usize>> = BTreeMap::new();
         for &d in &group.demands {
-            by_dest.entry(net.demands[d].to).or_default().push(d);
+            by_dest.entry(net.demands[d].to.0).or_default().push(d);
         }
         for (t, ds) in by_dest {
             let got = delivered.get(&(g, t)).copied().unwrap_or(0.0);
@@ -611,7 +613,7 @@ pub fn dual_bound(
                 }
             };
             for &a in &out[v] {
-                relax(j * n + net.arcs[a].to, cum[j] * arc_price[a], &mut heap);
+                relax(j * n + net.arcs[a].to.0, cum[j] * arc_price[a], &mut heap);
             }
             if j < k && runs(ch, view, v, group.chain[j]) {
                 let z = fn_price.get(&(v, group.chain[j])).copied().unwrap_or(0.0);
@@ -619,7 +621,7 @@ pub fn dual_bound(
             }
         }
         for &d in &group.demands {
-            let pi = dist[k * n + net.demands[d].to];
+            let pi = dist[k * n + net.demands[d].to.0];
             bound += layered.bound[d] * (1.0 - pi).max(0.0);
         }
     }

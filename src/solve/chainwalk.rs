@@ -61,7 +61,9 @@ use super::surviving::{Surviving, Unservable};
 use super::types::{Evaluation, Verification, Verified};
 use super::{RESIDUAL_TOL, cancel, needs_volume_lp};
 use crate::error::Result;
-use crate::model::{Chains, FunctionIdx, Network, SiteIdx};
+use crate::model::{Chains, FunctionIdx, Network};
+/// A site number inside this engine's layered graph: [`crate::model::SiteIdx`]`.0`.
+type SiteIdx = usize;
 use crate::scenario::Outage;
 use crate::tol::PROOF_GAP_TOL;
 
@@ -266,7 +268,7 @@ impl<'a> Rows<'a> {
                     }
                 };
                 for &a in &self.out[v] {
-                    let to = j * n + self.net.arcs[a].to;
+                    let to = j * n + self.net.arcs[a].to.0;
                     relax(
                         to,
                         cum[j] * y[a].max(0.0),
@@ -283,7 +285,7 @@ impl<'a> Rows<'a> {
                 }
             }
             for &d in &group.demands {
-                let end = k * n + self.net.demands[d].to;
+                let end = k * n + self.net.demands[d].to.0;
                 let pi = dist[end];
                 if !pi.is_finite() {
                     continue;
@@ -654,7 +656,7 @@ fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f64)>) {
         }
         let group = &layered.groups[rows.group_of[d]];
         let k = group.chain.len();
-        let target = k * n + net.demands[d].to;
+        let target = k * n + net.demands[d].to.0;
         let mut remaining = amount.min(room(&res, RowKey::Demand(d)));
         let mut budget = 2 * (net.arcs.len() + n) + 2;
         while remaining > eps && budget > 0 {
@@ -683,7 +685,7 @@ fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f64)>) {
                     }
                 }
                 for &a in &rows.out[v] {
-                    let next = j * n + net.arcs[a].to;
+                    let next = j * n + net.arcs[a].to.0;
                     if !seen[next]
                         && layered.arc_row[a].is_some()
                         && room(&res, RowKey::Arc(a)) > eps
@@ -744,14 +746,14 @@ fn layered_rows(
         let k = chain_fns.len();
         let cumulative = ch.cumulative(&chain_fns);
         let total: f64 = demands.iter().map(|&d| bound[d]).sum();
-        let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to).collect();
+        let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
         let fwd = chain::forward(net, ch, view, origin, &chain_fns);
         let back = chain::backward(net, ch, view, &dests, &chain_fns);
         let live = |node: usize| fwd[node] && back[node];
         for j in 0..=k {
             for &a in &view.arcs {
                 let arc = &net.arcs[a];
-                if live(j * n + arc.from) && live(j * n + arc.to) {
+                if live(j * n + arc.from.0) && live(j * n + arc.to.0) {
                     *arc_need[a].get_or_insert(0.0) += cumulative[j] * total;
                 }
             }
@@ -819,9 +821,10 @@ fn with_walks(net: &Network, layered: &mut Layered, group_of: &[usize], s: &Solv
         for e in &w.edges {
             let i = *var[g].entry(*e).or_insert_with(|| {
                 let (from, to) = match *e {
-                    EdgeKind::Arc { arc, layer } => {
-                        (layer * n + net.arcs[arc].from, layer * n + net.arcs[arc].to)
-                    }
+                    EdgeKind::Arc { arc, layer } => (
+                        layer * n + net.arcs[arc].from.0,
+                        layer * n + net.arcs[arc].to.0,
+                    ),
                     EdgeKind::Function { site, layer } => {
                         (layer * n + site, (layer + 1) * n + site)
                     }
@@ -1182,14 +1185,14 @@ mod tests {
     fn a_failure_off_the_optimum_needs_no_master() {
         let net = path();
         let base = evaluate_walks(&net, &Outage::default(), None).unwrap();
-        let spare = Scenario::new(&net, &[Element::Link(3)]).outage(&net);
+        let spare = Scenario::new(&net, &[Element::Link(3.into())]).outage(&net);
         let w = evaluate_walks(&net, &spare, Some(&base.basis)).unwrap();
         assert!((w.evaluation.served_required - 6.0).abs() < 1e-6);
         assert_eq!(
             (w.stats.no_flow, w.stats.lp_solves, w.stats.fallback),
             (1, 0, 0)
         );
-        let cd = Scenario::new(&net, &[Element::Link(2)]).outage(&net);
+        let cd = Scenario::new(&net, &[Element::Link(2.into())]).outage(&net);
         let w = evaluate_walks(&net, &cd, Some(&base.basis)).unwrap();
         assert!(
             w.evaluation.served_required.abs() < 1e-9,

@@ -434,9 +434,9 @@ fn repair(g: &Graph, walks: &mut Vec<Walk>, flow: &mut Vec<f64>, lost: &[f64], e
             let mut pred: Vec<Option<(usize, usize)>> = vec![None; 2 * n];
             let mut seen = vec![false; 2 * n];
             let mut queue = VecDeque::new();
-            seen[2 * dem.from] = true;
-            queue.push_back(2 * dem.from);
-            let target = 2 * dem.to + 1;
+            seen[2 * dem.from.0] = true;
+            queue.push_back(2 * dem.from.0);
+            let target = 2 * dem.to.0 + 1;
             while let Some(st) = queue.pop_front() {
                 if st == target {
                     break;
@@ -448,7 +448,7 @@ fn repair(g: &Graph, walks: &mut Vec<Walk>, flow: &mut Vec<f64>, lost: &[f64], e
                     queue.push_back(st + 1);
                 }
                 for &a in &g.out[u] {
-                    let next = 2 * net.arcs[a].to + layer;
+                    let next = 2 * net.arcs[a].to.0 + layer;
                     if arc_res[a] > eps && !seen[next] {
                         seen[next] = true;
                         pred[next] = Some((st, a));
@@ -823,7 +823,10 @@ mod tests {
             "{:?}",
             e.arc_price
         );
-        assert_eq!(e.bottlenecks[0].resource, super::super::Resource::Site(0));
+        assert_eq!(
+            e.bottlenecks[0].resource,
+            super::super::Resource::Site(0.into())
+        );
         // Edge LP (the product's other formulation) gives the same price.
         let edge = super::super::evaluate(&n, &Outage::default()).unwrap();
         assert!((edge.site_price[0].unwrap() - e.site_price[0].unwrap()).abs() < 1e-6);

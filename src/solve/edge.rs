@@ -8,7 +8,7 @@ use super::surviving::{Surviving, Unservable};
 use super::types::{Verification, Verified};
 use super::{RESIDUAL_TOL, certify, ladder, verify};
 use crate::error::{Error, Result};
-use crate::model::Network;
+use crate::model::{DemandIdx, Network};
 use crate::scenario::Outage;
 use crate::tol::PROOF_GAP_TOL;
 
@@ -226,17 +226,15 @@ pub fn solve_verified_with(
 /// Demands with required > 0 that no walk through a processing site can serve even with
 /// nothing failed, with the reason (structural: reachability only, no LP).
 /// O(sources · (sites + arcs)).
-pub fn baseline_cut_off(net: &Network) -> Vec<(usize, Unservable)> {
+pub fn baseline_cut_off(net: &Network) -> Vec<(DemandIdx, Unservable)> {
     let view = Surviving::new(net, &Outage::default(), None);
-    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    if net.chains.is_some() {
-        return super::chain::cut_off(net, &view, &required);
-    }
-    view.unservable(net, &required)
-        .into_iter()
-        .enumerate()
-        .filter_map(|(d, r)| r.map(|r| (d, r)))
-        .collect()
+    let cut = if net.chains.is_some() {
+        let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+        super::chain::cut_off(net, &view, &required)
+    } else {
+        super::finish::cut_off_on(net, &view)
+    };
+    cut.into_iter().map(|(d, r)| (DemandIdx(d), r)).collect()
 }
 
 /// Whether some surviving demand offers more than its required part, so that throughput

@@ -92,6 +92,12 @@ pub trait Evaluator: Send + Sync {
         false
     }
 
+    /// Whether [`Evaluator::closing_model`] generates walk columns (the walk engine)
+    /// instead of building the edge model with additions. Default `false`.
+    fn closes_with_walks(&self) -> bool {
+        false
+    }
+
     /// Builds the served_required model of `outage` into `model` with the additions
     /// `add` (per site: its `add_v` variable) in the processing rows, each served unit
     /// weighted `obj` in the objective. `None` when buying processing is not defined for
@@ -112,9 +118,10 @@ pub trait Evaluator: Send + Sync {
     /// Builds into `model` (holding the additions `add` with their costs as objective) the
     /// cost model of a closing: the served_required model of `outage` with the additions
     /// in the processing rows and `Σ served ≥ target`. `None` when purchases are not
-    /// defined for this model. The default is [`Evaluator::add_processing`] (served
-    /// weighted 0) plus that row; the walk engine generates walk columns instead
-    /// ([`colgen::buy::cost_master`]), with the same optimum.
+    /// defined for this model. An engine that [`Evaluator::closes_with_walks`] gets the
+    /// walk master of [`colgen::buy::cost_master`] (same optimum) when that gives a start;
+    /// otherwise, and for every other engine, [`Evaluator::add_processing`] (served
+    /// weighted 0) plus that row.
     fn closing_model<'a>(
         &self,
         model: &mut Lp,
@@ -123,6 +130,14 @@ pub trait Evaluator: Send + Sync {
         add: &[Option<usize>],
         target: f64,
     ) -> Result<Option<ClosingModel<'a>>> {
+        if self.closes_with_walks()
+            && let Some((m, walks)) = colgen::buy::cost_master(net, outage, model, add, target)?
+        {
+            return Ok(Some(ClosingModel {
+                add: m,
+                walks: Some(walks),
+            }));
+        }
         Ok(self.add_processing(model, net, outage, add, 0.0).map(|m| {
             served_at_least(model, &m.served, target);
             ClosingModel {
@@ -224,28 +239,10 @@ impl Evaluator for Walks {
         true
     }
 
-    /// The walk master of [`colgen::buy::cost_master`]; the edge model with additions
-    /// when the walk engine gives no start or stalls.
-    fn closing_model<'a>(
-        &self,
-        model: &mut Lp,
-        net: &'a Network,
-        outage: &Outage,
-        add: &[Option<usize>],
-        target: f64,
-    ) -> Result<Option<ClosingModel<'a>>> {
-        if let Some((m, walks)) = colgen::buy::cost_master(net, outage, model, add, target)? {
-            return Ok(Some(ClosingModel {
-                add: m,
-                walks: Some(walks),
-            }));
-        }
-        let m = two_layer_with(model, net, outage, add, 0.0);
-        served_at_least(model, &m.served, target);
-        Ok(Some(ClosingModel {
-            add: m,
-            walks: None,
-        }))
+    /// Closings generate walk columns ([`colgen::buy::cost_master`]); the edge model
+    /// with additions when the walk engine gives no start.
+    fn closes_with_walks(&self) -> bool {
+        true
     }
 }
 

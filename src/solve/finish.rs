@@ -7,7 +7,7 @@
 use super::surviving::{Surviving, Unservable};
 use super::types::{Bottleneck, Evaluation, Resource, Verified};
 use super::{SATURATED, TOL, recheck};
-use crate::model::Network;
+use crate::model::{ArcIdx, DemandIdx, Network, SiteIdx};
 use crate::tol::SNAP_WITHOUT_SCALE;
 
 /// Below this fraction of the scenario's demand, differences are solver noise: a value is
@@ -229,7 +229,7 @@ pub(crate) fn saturated(
 pub(crate) struct DemandSplit {
     pub stranded: f64,
     pub stranded_volume: f64,
-    pub stranded_demands: Vec<usize>,
+    pub stranded_demands: Vec<DemandIdx>,
     pub surviving_required: f64,
     pub surviving_volume: f64,
 }
@@ -250,7 +250,7 @@ impl DemandSplit {
             } else {
                 split.stranded += dem.required;
                 split.stranded_volume += dem.volume;
-                split.stranded_demands.push(d);
+                split.stranded_demands.push(DemandIdx(d));
             }
         }
         split
@@ -344,7 +344,7 @@ pub fn finish_with(
     for (a, arc) in net.arcs.iter().enumerate() {
         if solved.arc_has_row[a] {
             bottlenecks.extend(saturated(
-                Resource::Arc(a),
+                Resource::Arc(ArcIdx(a)),
                 arc_load[a],
                 arc.capacity,
                 arc_price[a],
@@ -355,7 +355,7 @@ pub fn finish_with(
         if solved.site_has_row[v] {
             let price = site_price[v].unwrap_or(0.0);
             bottlenecks.extend(saturated(
-                Resource::Site(v),
+                Resource::Site(SiteIdx(v)),
                 site_load[v],
                 site.processing,
                 price,
@@ -396,7 +396,10 @@ pub fn finish_with(
     };
 
     Evaluation {
-        cut_off,
+        cut_off: cut_off
+            .into_iter()
+            .map(|(d, r)| (DemandIdx(d), r))
+            .collect(),
         served_required,
         shortfall,
         stranded,

@@ -336,7 +336,7 @@ fn for_each_block(net: &Network, view: &Surviving, cap: Cap, mut f: impl FnMut(B
             continue;
         }
         let from_s = view.reach_from([s]);
-        let to_dest = view.reach_to(demands.iter().map(|&d| net.demands[d].to));
+        let to_dest = view.reach_to(demands.iter().map(|&d| net.demands[d].to.0));
         let procs: Vec<usize> = (0..n)
             .filter(|&v| view.can_process[v] && from_s[v] && to_dest[v])
             .collect();
@@ -434,10 +434,12 @@ mod tests {
         let net = Network::from_json(&text).unwrap();
         let mut outages = vec![Outage::default()];
         outages.extend(
-            (0..net.links.len()).map(|l| Scenario::new(&net, &[Element::Link(l)]).outage(&net)),
+            (0..net.links.len())
+                .map(|l| Scenario::new(&net, &[Element::Link(l.into())]).outage(&net)),
         );
         outages.extend(
-            (0..net.sites.len()).map(|s| Scenario::new(&net, &[Element::Site(s)]).outage(&net)),
+            (0..net.sites.len())
+                .map(|s| Scenario::new(&net, &[Element::Site(s.into())]).outage(&net)),
         );
         for o in &outages {
             let view = Surviving::new(&net, o, None);

@@ -212,7 +212,7 @@ mod tests {
         assert!((e.shortfall - 5.0).abs() < 1e-6);
         assert!((e.throughput - 3.0).abs() < 1e-6);
         assert!((e.site_price[0].unwrap() - 1.0).abs() < 1e-6);
-        assert_eq!(e.bottlenecks[0].resource, Resource::Site(0));
+        assert_eq!(e.bottlenecks[0].resource, Resource::Site(0.into()));
         assert!(e.certified_gap() < 1e-6);
     }
 }

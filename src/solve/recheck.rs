@@ -150,9 +150,9 @@ fn is_trail(net: &Network, arcs: &[usize], from: usize, to: usize, site: usize) 
     let mut out: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
     for &a in arcs {
         let arc = &net.arcs[a];
-        *balance.entry(arc.from).or_default() += 1;
-        *balance.entry(arc.to).or_default() -= 1;
-        out.entry(arc.from).or_default().push(arc.to);
+        *balance.entry(arc.from.0).or_default() += 1;
+        *balance.entry(arc.to.0).or_default() -= 1;
+        out.entry(arc.from.0).or_default().push(arc.to.0);
     }
     *balance.entry(from).or_default() -= 1;
     *balance.entry(to).or_default() += 1;
@@ -168,7 +168,7 @@ fn is_trail(net: &Network, arcs: &[usize], from: usize, to: usize, site: usize) 
             }
         }
     }
-    arcs.iter().all(|&a| seen.contains(&net.arcs[a].from)) && seen.contains(&site)
+    arcs.iter().all(|&a| seen.contains(&net.arcs[a].from.0)) && seen.contains(&site)
 }
 
 /// Checks the walks and prices of `c` on `view` under demand caps `cap` and returns the
@@ -196,7 +196,7 @@ fn prove(net: &Network, view: &Surviving, cap: Cap, c: &Certificate) -> Result<P
         {
             return bad("crosses a link direction that is not usable in this outage");
         }
-        if !is_trail(net, &w.arcs, dem.from, dem.to, w.site) {
+        if !is_trail(net, &w.arcs, dem.from.0, dem.to.0, w.site) {
             return bad("does not join its demand's ends through its processing site");
         }
         walks.push(Walk {
@@ -350,7 +350,12 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
     }
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
     let cut_off = cut_off_on(net, &view);
-    if e.cut_off != cut_off {
+    if !e
+        .cut_off
+        .iter()
+        .map(|&(d, r)| (d.0, r))
+        .eq(cut_off.iter().copied())
+    {
         return Err("its cut-off demands do not match the network".into());
     }
     // As `finish`: the cut-off demands summed apart from the servable ones (what the LP
@@ -445,8 +450,8 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
     // Bottlenecks: saturated resources with their reported price, in report order.
     for b in &e.bottlenecks {
         let (load, cap, price) = match b.resource {
-            Resource::Arc(a) if a < na => (e.arc_load[a], net.arcs[a].capacity, e.arc_price[a]),
-            Resource::Site(v) if v < ns && e.site_price[v].is_some() => (
+            Resource::Arc(a) if a.0 < na => (e.arc_load[a], net.arcs[a].capacity, e.arc_price[a]),
+            Resource::Site(v) if v.0 < ns && e.site_price[v].is_some() => (
                 e.site_load[v],
                 net.sites[v].processing,
                 e.site_price[v].unwrap_or(0.0),
@@ -481,15 +486,7 @@ mod tests {
     use crate::scenario::{Element, Scenario};
 
     fn net() -> Network {
-        Network::from_json(
-            r#"{"sites":[{"id":"a","processing":3},{"id":"b"},{"id":"c","processing":1}],
-            "links":[{"id":"ab","from":"a","to":"b","capacity":2},
-                     {"id":"bc","from":"b","to":"c","capacity":5},
-                     {"id":"ca","from":"c","to":"a","capacity":1}],
-            "demands":[{"from":"a","to":"c","volume":2,"required":1.5},
-                       {"from":"b","to":"a","volume":1}]}"#,
-        )
-        .unwrap()
+        crate::model::test_ring()
     }
 
     /// Source: the verifier's own contract — every evaluation either engine produces
@@ -500,10 +497,10 @@ mod tests {
         let n = net();
         let mut outages = vec![Outage::default()];
         for l in 0..n.links.len() {
-            outages.push(Scenario::new(&n, &[Element::Link(l)]).outage(&n));
+            outages.push(Scenario::new(&n, &[Element::Link(l.into())]).outage(&n));
         }
         for s in 0..n.sites.len() {
-            outages.push(Scenario::new(&n, &[Element::Site(s)]).outage(&n));
+            outages.push(Scenario::new(&n, &[Element::Site(s.into())]).outage(&n));
         }
         for o in &outages {
             let edge = crate::solve::evaluate(&n, o).unwrap();
@@ -547,7 +544,7 @@ mod tests {
         thin.proof = e.proof.clone();
         assert!(recheck(&n, &o, &thin).is_err());
         // On another outage (link bc failed) the baseline's walks are not walks.
-        let failed = Scenario::new(&n, &[Element::Link(1)]).outage(&n);
+        let failed = Scenario::new(&n, &[Element::Link(1.into())]).outage(&n);
         assert!(recheck(&n, &failed, &e).is_err());
     }
 }

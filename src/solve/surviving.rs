@@ -12,7 +12,7 @@
 
 use std::collections::VecDeque;
 
-use crate::model::{Network, SiteIdx};
+use crate::model::Network;
 use crate::scenario::Outage;
 
 /// Why a surviving demand cannot be served at all.
@@ -38,9 +38,9 @@ pub struct Surviving {
     /// Per site: survives and may process (capacity > 0, or an added-processing option).
     pub can_process: Vec<bool>,
     /// Per site: out-neighbours over usable arcs (with repeats for parallel arcs).
-    pub fwd: Vec<Vec<SiteIdx>>,
+    pub fwd: Vec<Vec<usize>>,
     /// Per site: in-neighbours over usable arcs.
-    pub back: Vec<Vec<SiteIdx>>,
+    pub back: Vec<Vec<usize>>,
 }
 
 impl Surviving {
@@ -73,8 +73,8 @@ impl Surviving {
         let mut fwd = vec![Vec::new(); n];
         let mut back = vec![Vec::new(); n];
         for &a in &arcs {
-            fwd[net.arcs[a].from].push(net.arcs[a].to);
-            back[net.arcs[a].to].push(net.arcs[a].from);
+            fwd[net.arcs[a].from].push(net.arcs[a].to.0);
+            back[net.arcs[a].to].push(net.arcs[a].from.0);
         }
         Surviving {
             site_alive,
@@ -93,12 +93,12 @@ impl Surviving {
     }
 
     /// Sites reachable from `starts` over usable arcs (forward). O(sites + arcs).
-    pub fn reach_from(&self, starts: impl IntoIterator<Item = SiteIdx>) -> Vec<bool> {
+    pub fn reach_from(&self, starts: impl IntoIterator<Item = usize>) -> Vec<bool> {
         reach(&self.fwd, starts)
     }
 
     /// Sites from which one of `targets` is reachable over usable arcs. O(sites + arcs).
-    pub fn reach_to(&self, targets: impl IntoIterator<Item = SiteIdx>) -> Vec<bool> {
+    pub fn reach_to(&self, targets: impl IntoIterator<Item = usize>) -> Vec<bool> {
         reach(&self.back, targets)
     }
 
@@ -124,7 +124,8 @@ impl Surviving {
                 if (0..procs.len()).any(|i| into[i][dem.from] && out[i][dem.to]) {
                     return None;
                 }
-                let from = from_cache[dem.from].get_or_insert_with(|| self.reach_from([dem.from]));
+                let from =
+                    from_cache[dem.from].get_or_insert_with(|| self.reach_from([dem.from.0]));
                 Some(if from[dem.to] {
                     Unservable::NoProcessing
                 } else {
@@ -146,12 +147,13 @@ impl Surviving {
                 if !self.demand_alive(net, d) || bound[d] <= 0.0 {
                     return None;
                 }
-                let from = from_cache[dem.from].get_or_insert_with(|| self.reach_from([dem.from]));
+                let from =
+                    from_cache[dem.from].get_or_insert_with(|| self.reach_from([dem.from.0]));
                 if !from[dem.to] {
                     return Some(Unservable::NoPath);
                 }
                 let from = from.clone();
-                let to = to_cache[dem.to].get_or_insert_with(|| self.reach_to([dem.to]));
+                let to = to_cache[dem.to].get_or_insert_with(|| self.reach_to([dem.to.0]));
                 let processed = (0..n).any(|v| self.can_process[v] && from[v] && to[v]);
                 (!processed).then_some(Unservable::NoProcessing)
             })

@@ -6,7 +6,7 @@
 
 use super::surviving::Unservable;
 use super::{recheck, verify};
-use crate::model::{LinkIdx, Network, SiteIdx};
+use crate::model::{ArcIdx, DemandIdx, LinkIdx, Network, SiteIdx};
 
 /// A saturated resource of an optimal allocation with its shadow price (served units per
 /// added unit of capacity).
@@ -23,7 +23,7 @@ pub struct Bottleneck {
 )]
 pub enum Resource {
     /// A link direction: the arc index in `Network::arcs`.
-    Arc(usize),
+    Arc(ArcIdx),
     /// A site's processing.
     Site(SiteIdx),
 }
@@ -89,7 +89,7 @@ pub struct Evaluation {
     /// Σ volume of those demands.
     pub stranded_volume: f64,
     /// Indices of the stranded demands.
-    pub stranded_demands: Vec<usize>,
+    pub stranded_demands: Vec<DemandIdx>,
     /// Σ required of the surviving demands.
     pub surviving_required: f64,
     /// Largest Σ f_d with f_d <= volume_d over surviving demands.
@@ -121,7 +121,7 @@ pub struct Evaluation {
     pub max_violation: f64,
     /// Surviving demands with required > 0 that no walk through a processing site can
     /// serve at all (cut off by the outage), with the reason.
-    pub cut_off: Vec<(usize, Unservable)>,
+    pub cut_off: Vec<(DemandIdx, Unservable)>,
     /// How served_required was verified.
     pub verification: Verification,
     /// How throughput was verified (`None` when it equals served_required by definition:

@@ -193,11 +193,16 @@ pub fn repair(
         };
         for &(a, var) in &block.arc0 {
             let arc = &net.arcs[a];
-            push(arc.from, arc.to, EdgeKind::Arc(a), clean(x[var]));
+            push(arc.from.0, arc.to.0, EdgeKind::Arc(a), clean(x[var]));
         }
         for &(a, var) in &block.arc1 {
             let arc = &net.arcs[a];
-            push(n + arc.from, n + arc.to, EdgeKind::Arc(a), clean(x[var]));
+            push(
+                n + arc.from.0,
+                n + arc.to.0,
+                EdgeKind::Arc(a),
+                clean(x[var]),
+            );
         }
         for &(v, var) in &block.procs {
             push(v, n + v, EdgeKind::Convert(v), clean(x[var]));
@@ -330,7 +335,7 @@ pub fn repair(
         };
         for &(d, share) in &shares[block] {
             let flow = amount * share;
-            if net.demands[d].to == dest && flow > 0.0 {
+            if net.demands[d].to.0 == dest && flow > 0.0 {
                 paths.push(Walk {
                     sink: Sink::Demand(d),
                     arcs: w.arcs.clone(),

@@ -131,14 +131,52 @@ pub fn reference_served(
         .eval(&objective)
 }
 
+/// A site of `0..n` other than `a`, uniform (n ≥ 2).
+pub fn other_site(rng: &mut StdRng, n: usize, a: usize) -> usize {
+    let b = rng.random_range(0..n - 1);
+    if b >= a { b + 1 } else { b }
+}
+
+/// `nf` gains drawn uniformly from `from`.
+pub fn random_gains(rng: &mut StdRng, nf: usize, from: &[f64]) -> Vec<f64> {
+    (0..nf)
+        .map(|_| from[rng.random_range(0..from.len())])
+        .collect()
+}
+
+/// The links `(from, to, capacity, one_way)` of a ring of `n` sites plus up to `chords`
+/// random chords (their number drawn first): capacities in tenths drawn from `tenths`,
+/// one-way at probability `one_way`.
+pub fn ring_links(
+    rng: &mut StdRng,
+    n: usize,
+    chords: usize,
+    tenths: std::ops::RangeInclusive<i32>,
+    one_way: f64,
+) -> Vec<(usize, usize, f64, bool)> {
+    let mut links = Vec::new();
+    for l in 0..rng.random_range(n..=n + chords) {
+        let (a, b) = if l < n {
+            (l, (l + 1) % n)
+        } else {
+            let a = rng.random_range(0..n);
+            (a, other_site(rng, n, a))
+        };
+        links.push((
+            a,
+            b,
+            rng.random_range(tenths.clone()) as f64 / 10.0,
+            rng.random_bool(one_way),
+        ));
+    }
+    links
+}
+
 #[allow(clippy::needless_range_loop)] // each function's capacity goes to a random site
 pub fn random_net(rng: &mut StdRng) -> RNet {
     let n = rng.random_range(4..=6);
     let nf = rng.random_range(1..=3);
-    let gains_from = [0.5, 0.8, 1.0, 1.25, 2.0];
-    let gains: Vec<f64> = (0..nf)
-        .map(|_| gains_from[rng.random_range(0..gains_from.len())])
-        .collect();
+    let gains = random_gains(rng, nf, &[0.5, 0.8, 1.0, 1.25, 2.0]);
     let mut capacity = vec![vec![0.0; nf]; n];
     for f in 0..nf {
         // At least one site per function, a second one often.
@@ -146,25 +184,7 @@ pub fn random_net(rng: &mut StdRng) -> RNet {
             capacity[rng.random_range(0..n)][f] = rng.random_range(5..=300) as f64 / 10.0;
         }
     }
-    let mut links = Vec::new();
-    for l in 0..rng.random_range(n..=n + 4) {
-        let (a, b) = if l < n {
-            (l, (l + 1) % n)
-        } else {
-            let a = rng.random_range(0..n);
-            let mut b = rng.random_range(0..n - 1);
-            if b >= a {
-                b += 1;
-            }
-            (a, b)
-        };
-        links.push((
-            a,
-            b,
-            rng.random_range(10..=300) as f64 / 10.0,
-            rng.random_bool(0.25),
-        ));
-    }
+    let links = ring_links(rng, n, 4, 10..=300, 0.25);
     let mut demands = Vec::new();
     for i in 0..rng.random_range(2..=5) {
         let a = if i % 3 == 2 {
@@ -175,10 +195,7 @@ pub fn random_net(rng: &mut StdRng) -> RNet {
         } else {
             rng.random_range(0..n)
         };
-        let mut b = rng.random_range(0..n - 1);
-        if b >= a {
-            b += 1;
-        }
+        let b = other_site(rng, n, a);
         let chain: Vec<usize> = (0..rng.random_range(0..=3))
             .map(|_| rng.random_range(0..nf))
             .collect();

@@ -70,6 +70,38 @@ pub fn audit_json(network: &str, args: &[&str]) -> (Run, Value) {
     (run, doc)
 }
 
+/// Runs `plan FILE -q ARGS --json OUT` (it must exit 0) and returns the plan's total cost:
+/// the document's `cost`, or `plan.cost`, and the document.
+pub fn plan_json(network: &str, args: &[&str]) -> (f64, Value) {
+    let out = TempPath::new("plan", "json");
+    let mut all = vec!["plan", network, "-q"];
+    all.extend_from_slice(args);
+    all.extend_from_slice(&["--json", out.path()]);
+    let run = redoubt(&all);
+    assert_eq!(run.code, 0, "plan {args:?} failed:\n{}", run.stderr);
+    let doc = out.read_json();
+    let cost = doc["cost"]
+        .as_f64()
+        .or_else(|| doc["plan"]["cost"].as_f64())
+        .unwrap_or_else(|| panic!("no cost in {doc}"));
+    (cost, doc)
+}
+
+/// The audit documents (`audit_json` with `args`) of the file `text` and, per matrix id of
+/// `ids`, of the file whose only `demands` are that matrix ([`alone`]).
+pub fn with_each_matrix_alone(text: &str, ids: &[&str], args: &[&str]) -> (Value, Vec<Value>) {
+    let all = TempPath::with_text("matrices-all", text);
+    let (_, doc) = audit_json(all.path(), args);
+    let own = ids
+        .iter()
+        .map(|id| {
+            let one = TempPath::with_text("matrices-one", &alone(text, id));
+            audit_json(one.path(), args).1
+        })
+        .collect();
+    (doc, own)
+}
+
 /// The demo's depth-1 audit with default kinds and one thread, written once per test
 /// process and shared by the tests that need it.
 pub fn demo_depth1_single_thread() -> &'static str {

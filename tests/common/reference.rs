@@ -105,6 +105,13 @@ impl TNet {
 /// product's own scenario → outage path (as the command line does).
 pub fn product_eval(t: &TNet, failed_sites: &[usize], failed_links: &[usize]) -> Evaluation {
     let net = t.network();
+    let outage = outage_of(&net, failed_sites, failed_links);
+    evaluate(&net, &outage).expect("product evaluation")
+}
+
+/// The product's outage of `net` (a [`TNet::network`]) with the sites `s{v}` and links
+/// `l{l}` named failed, through its scenario → outage path (as the command line goes).
+pub fn outage_of(net: &Network, failed_sites: &[usize], failed_links: &[usize]) -> Outage {
     let mut elements = Vec::new();
     for &v in failed_sites {
         elements.push(Element::Site(net.site(&site_id(v)).expect("site exists")));
@@ -112,12 +119,11 @@ pub fn product_eval(t: &TNet, failed_sites: &[usize], failed_links: &[usize]) ->
     for &l in failed_links {
         elements.push(Element::Link(net.link(&link_id(l)).expect("link exists")));
     }
-    let outage = if elements.is_empty() {
+    if elements.is_empty() {
         Outage::default()
     } else {
-        Scenario::new(&net, &elements).outage(&net)
-    };
-    evaluate(&net, &outage).expect("product evaluation")
+        Scenario::new(net, &elements).outage(net)
+    }
 }
 
 /// What the reference computes for one outage.
@@ -149,9 +155,40 @@ pub fn reference_lp(
     failed_links: &[usize],
     by_volume: bool,
 ) -> f64 {
+    let (site_up, arcs) = surviving(t, failed_sites, failed_links);
+    let live: Vec<&TDemand> = t
+        .demands
+        .iter()
+        .filter(|d| site_up[d.from] && site_up[d.to])
+        .collect();
+    if live.is_empty() {
+        return 0.0;
+    }
+    let mut lp = TwoLayer::new(t, &site_up, arcs);
+    let mut objective = Expression::from(0.0);
+    for d in &live {
+        let cap = if by_volume {
+            d.volume
+        } else {
+            d.required.unwrap_or(d.volume)
+        };
+        let f: Variable = lp.pv.add(variable().min(0.0).max(cap));
+        objective += f;
+        lp.commodity(d.from, d.to, Expression::from(f));
+    }
+    lp.maximise(objective.clone()).eval(&objective)
+}
+
+/// The sites standing (`!failed_sites`) and the arcs `(from, to, capacity)` of the links
+/// standing (not failed, both ends up), both directions of a duplex link, as the contract
+/// reads failures. O(links · failed).
+pub fn surviving(
+    t: &TNet,
+    failed_sites: &[usize],
+    failed_links: &[usize],
+) -> (Vec<bool>, Vec<(usize, usize, f64)>) {
     let n = t.processing.len();
     let site_up: Vec<bool> = (0..n).map(|v| !failed_sites.contains(&v)).collect();
-    // Arcs (from, to, capacity) of surviving links.
     let mut arcs: Vec<(usize, usize, f64)> = Vec::new();
     for (l, k) in t.links.iter().enumerate() {
         if failed_links.contains(&l) || !site_up[k.from] || !site_up[k.to] {
@@ -162,68 +199,94 @@ pub fn reference_lp(
             arcs.push((k.to, k.from, k.capacity));
         }
     }
-    let live: Vec<&TDemand> = t
-        .demands
-        .iter()
-        .filter(|d| site_up[d.from] && site_up[d.to])
-        .collect();
-    if live.is_empty() {
-        return 0.0;
+    (site_up, arcs)
+}
+
+/// The two-layer route-and-process LP under construction, one commodity at a time: per
+/// commodity an unprocessed flow x0 and a processed flow x1 on every arc and a processing
+/// flow p at every standing site with processing, with conservation
+///   layer 0: out0 − in0 + p = amount·[v = from]
+///   layer 1: out1 − in1 − p = −amount·[v = to]
+/// and the shared rows Σ (x0 + x1) <= capacity per arc, Σ p <= processing per site.
+pub struct TwoLayer<'a> {
+    pub pv: ProblemVariables,
+    t: &'a TNet,
+    site_up: &'a [bool],
+    arcs: Vec<(usize, usize, f64)>,
+    arc_use: Vec<Expression>,
+    site_use: Vec<Expression>,
+    /// Conservation expressions, each must equal 0.
+    balance: Vec<Expression>,
+}
+
+impl<'a> TwoLayer<'a> {
+    pub fn new(t: &'a TNet, site_up: &'a [bool], arcs: Vec<(usize, usize, f64)>) -> Self {
+        let n = t.processing.len();
+        TwoLayer {
+            pv: ProblemVariables::new(),
+            t,
+            site_up,
+            arc_use: vec![Expression::from(0.0); arcs.len()],
+            site_use: vec![Expression::from(0.0); n],
+            arcs,
+            balance: Vec::new(),
+        }
     }
 
-    let mut pv = ProblemVariables::new();
-    let mut arc_use: Vec<Expression> = vec![Expression::from(0.0); arcs.len()];
-    let mut site_use: Vec<Expression> = vec![Expression::from(0.0); n];
-    let mut objective = Expression::from(0.0);
-    // Conservation expressions, each must equal 0.
-    let mut balance: Vec<Expression> = Vec::new();
-    for d in &live {
-        let cap = if by_volume {
-            d.volume
-        } else {
-            d.required.unwrap_or(d.volume)
-        };
-        let f: Variable = pv.add(variable().min(0.0).max(cap));
-        objective += f;
-        let x0: Vec<Variable> = arcs.iter().map(|_| pv.add(variable().min(0.0))).collect();
-        let x1: Vec<Variable> = arcs.iter().map(|_| pv.add(variable().min(0.0))).collect();
+    /// Adds one commodity delivering `amount` from `from` to `to` through processing.
+    pub fn commodity(&mut self, from: usize, to: usize, amount: Expression) {
+        let n = self.t.processing.len();
+        let pv = &mut self.pv;
+        let x0: Vec<Variable> = self
+            .arcs
+            .iter()
+            .map(|_| pv.add(variable().min(0.0)))
+            .collect();
+        let x1: Vec<Variable> = self
+            .arcs
+            .iter()
+            .map(|_| pv.add(variable().min(0.0)))
+            .collect();
         let mut layer0: Vec<Expression> = vec![Expression::from(0.0); n];
         let mut layer1: Vec<Expression> = vec![Expression::from(0.0); n];
-        for (a, &(from, to, _)) in arcs.iter().enumerate() {
-            layer0[from] += x0[a];
-            layer0[to] -= x0[a];
-            layer1[from] += x1[a];
-            layer1[to] -= x1[a];
-            arc_use[a] += x0[a];
-            arc_use[a] += x1[a];
+        for (a, &(u, w, _)) in self.arcs.iter().enumerate() {
+            layer0[u] += x0[a];
+            layer0[w] -= x0[a];
+            layer1[u] += x1[a];
+            layer1[w] -= x1[a];
+            self.arc_use[a] += x0[a];
+            self.arc_use[a] += x1[a];
         }
         for v in 0..n {
-            if site_up[v] && t.processing[v] > 0.0 {
+            if self.site_up[v] && self.t.processing[v] > 0.0 {
                 let p = pv.add(variable().min(0.0));
                 layer0[v] += p;
                 layer1[v] -= p;
-                site_use[v] += p;
+                self.site_use[v] += p;
             }
         }
-        layer0[d.from] -= f;
-        layer1[d.to] += f;
-        balance.extend(layer0);
-        balance.extend(layer1);
+        layer0[from] -= amount.clone();
+        layer1[to] += amount;
+        self.balance.extend(layer0);
+        self.balance.extend(layer1);
     }
-    let mut model = pv.maximise(objective.clone()).using(microlp);
-    for e in balance {
-        model.add_constraint(e.eq(0.0));
-    }
-    for (a, e) in arc_use.into_iter().enumerate() {
-        model.add_constraint(e.leq(arcs[a].2));
-    }
-    for (v, e) in site_use.into_iter().enumerate() {
-        if site_up[v] && t.processing[v] > 0.0 {
-            model.add_constraint(e.leq(t.processing[v]));
+
+    /// Maximises `objective` over the commodities added, with microlp (simplex).
+    pub fn maximise(self, objective: Expression) -> impl Solution {
+        let mut model = self.pv.maximise(objective).using(microlp);
+        for e in self.balance {
+            model.add_constraint(e.eq(0.0));
         }
+        for (a, e) in self.arc_use.into_iter().enumerate() {
+            model.add_constraint(e.leq(self.arcs[a].2));
+        }
+        for (v, e) in self.site_use.into_iter().enumerate() {
+            if self.site_up[v] && self.t.processing[v] > 0.0 {
+                model.add_constraint(e.leq(self.t.processing[v]));
+            }
+        }
+        model.solve().expect("microlp solves the reference LP")
     }
-    let sol = model.solve().expect("microlp solves the reference LP");
-    sol.eval(&objective)
 }
 
 pub fn reference(t: &TNet, failed_sites: &[usize], failed_links: &[usize]) -> RefResult {
@@ -245,10 +308,9 @@ pub fn reference(t: &TNet, failed_sites: &[usize], failed_links: &[usize]) -> Re
     }
 }
 
-/// A random small instance: 5–8 sites, 8–14 links (some one-way), 3–8 demands (some
-/// sharing an origin, some without `required`), processing at some sites. Numbers carry
-/// one decimal so the optimum is not always a whole number.
-pub fn random_instance(rng: &mut StdRng) -> TNet {
+/// 5–8 sites, each with processing (one decimal, 0.5–40) at probability 0.45, at least one
+/// (12.5 at a random site when none drew any); no link, no demand yet.
+pub fn random_sites(rng: &mut StdRng) -> (usize, TNet) {
     let n = rng.random_range(5..=8);
     let mut t = TNet {
         processing: (0..n)
@@ -265,6 +327,14 @@ pub fn random_instance(rng: &mut StdRng) -> TNet {
     if t.processing.iter().all(|&p| p == 0.0) {
         t.processing[rng.random_range(0..n)] = 12.5;
     }
+    (n, t)
+}
+
+/// A random small instance: 5–8 sites, 8–14 links (some one-way), 3–8 demands (some
+/// sharing an origin, some without `required`), processing at some sites. Numbers carry
+/// one decimal so the optimum is not always a whole number.
+pub fn random_instance(rng: &mut StdRng) -> TNet {
+    let (n, mut t) = random_sites(rng);
     let m = rng.random_range(8..=14);
     // A ring first, so most instances are connected, then random chords.
     for l in 0..m {

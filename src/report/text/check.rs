@@ -3,12 +3,13 @@
 
 #[allow(unused_imports)]
 use super::*;
+use crate::model::DemandIdx;
 use crate::report::export::{CheckReport, Exporter, Text};
 
 /// The `check` summary: sizes, totals, processing sites and risk groups, and the demands
 /// that no walk through a processing site can serve even with nothing failed
 /// (`baseline_cut_off`, from [`crate::solve::baseline_cut_off`]).
-pub fn check_summary(net: &Network, baseline_cut_off: &[(usize, Unservable)]) -> String {
+pub fn check_summary(net: &Network, baseline_cut_off: &[(DemandIdx, Unservable)]) -> String {
     let mut out = String::new();
     let u = &net.unit;
     let one_way = net.links.iter().filter(|l| l.one_way).count();
@@ -203,7 +204,7 @@ fn groups_summary(out: &mut String, net: &Network) {
 }
 
 /// "already short with nothing failed: N demands (X units required): d (why), ...".
-pub(super) fn baseline_misses(net: &Network, cut_off: &[(usize, Unservable)]) -> String {
+pub(super) fn baseline_misses(net: &Network, cut_off: &[(DemandIdx, Unservable)]) -> String {
     let total: f64 = cut_off.iter().map(|&(d, _)| net.demands[d].required).sum();
     let list = first_k(
         cut_off
@@ -231,7 +232,7 @@ impl Exporter<CheckReport<'_>> for Text {
 pub fn write_check(
     w: &mut dyn Write,
     net: &Network,
-    baseline_cut_off: &[(usize, Unservable)],
+    baseline_cut_off: &[(DemandIdx, Unservable)],
 ) -> io::Result<()> {
     w.write_all(screen::finish(&check_summary(net, baseline_cut_off)).as_bytes())
 }

@@ -11,8 +11,8 @@ use std::io::{self, Write};
 use super::{CAUTION, amount, file_diff, given, num, percent, shift_point, small, unit_one};
 use crate::audit::{Audit, OutageId, ScenarioId};
 use crate::gate::{GateKind, GateResult};
-use crate::model::Network;
 use crate::model::strict::printable;
+use crate::model::{LinkIdx, Network};
 use crate::rank::Criticality;
 use crate::solve::{Evaluation, Resource, Unservable};
 
@@ -207,6 +207,6 @@ pub fn closing_additions(net: &Network, c: &crate::expand::Closing, k: usize) ->
     }
 }
 
-fn link_list(net: &Network, links: &[usize], k: usize) -> String {
+fn link_list(net: &Network, links: &[LinkIdx], k: usize) -> String {
     first_k(links.iter().map(|&l| net.links[l].id.clone()), k)
 }

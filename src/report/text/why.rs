@@ -46,8 +46,8 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
         if dem.required <= 0.0 {
             continue;
         }
-        let stranded = e.stranded_demands.contains(&d);
-        let cut = e.cut_off.iter().find(|(c, _)| *c == d).map(|(_, r)| *r);
+        let stranded = e.stranded_demands.contains(&d.into());
+        let cut = e.cut_off.iter().find(|(c, _)| c.0 == d).map(|(_, r)| *r);
         let short = e.demand_shortfall.get(d).copied().unwrap_or(0.0);
         let status = if stranded {
             "stranded: an end site failed".to_string()
@@ -205,7 +205,7 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
             first_k(
                 grow.iter().map(|&(a, p)| format!(
                     "{} +{}",
-                    resource_name(net, Resource::Arc(a)),
+                    resource_name(net, Resource::Arc(a.into())),
                     num(p)
                 )),
                 grow.len()

@@ -51,7 +51,7 @@ impl<'a> Graph<'a> {
         let mut merged = false;
         for &a in &view.arcs {
             let arc = &net.arcs[a];
-            match first.get(&(arc.from, arc.to)) {
+            match first.get(&(arc.from.0, arc.to.0)) {
                 Some(&r) => {
                     rep[a] = r;
                     members[r].push(a);
@@ -59,7 +59,7 @@ impl<'a> Graph<'a> {
                     merged = true;
                 }
                 None => {
-                    first.insert((arc.from, arc.to), a);
+                    first.insert((arc.from.0, arc.to.0), a);
                     members[a].push(a);
                     out[arc.from].push(a);
                     inc[arc.to].push(a);
@@ -285,7 +285,7 @@ pub(super) fn dijkstra(g: &Graph, root: usize, y: &[f64], forward: bool) -> Tree
         let arcs = if forward { &g.out[node] } else { &g.inc[node] };
         for &a in arcs {
             let arc = &g.net.arcs[a];
-            let next = if forward { arc.to } else { arc.from };
+            let next = if forward { arc.to.0 } else { arc.from.0 };
             if done[next] {
                 continue;
             }

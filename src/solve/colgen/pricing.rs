@@ -108,13 +108,13 @@ impl Legs {
                 while x != o {
                     let a = ds.pred[x];
                     legs.push(a);
-                    x = net.arcs[a].from;
+                    x = net.arcs[a].from.0;
                 }
                 let mut x = v;
                 while x != t {
                     let a = dt.pred[x];
                     legs.push(a);
-                    x = net.arcs[a].to;
+                    x = net.arcs[a].to.0;
                 }
             }
             Legs::Sites { into, out } => {
@@ -126,13 +126,13 @@ impl Legs {
                 while x != v {
                     let a = ri.pred[x];
                     legs.push(a);
-                    x = net.arcs[a].to;
+                    x = net.arcs[a].to.0;
                 }
                 let mut x = t;
                 while x != v {
                     let a = fo.pred[x];
                     legs.push(a);
-                    x = net.arcs[a].from;
+                    x = net.arcs[a].from.0;
                 }
             }
         }
@@ -169,11 +169,11 @@ pub(super) fn price(g: &Graph, caps: &[f64], y: &[f64], z: &[f64], u: Option<&[f
         }
         let mut best: Option<(f64, u32, usize)> = None;
         for &v in &g.procs {
-            let (d2, h2) = legs.second(v, dem.to);
+            let (d2, h2) = legs.second(v, dem.to.0);
             if d2.is_finite() {
                 reaches_dest[dem.from][v] = true;
             }
-            let (d1, h1) = legs.first(dem.from, v);
+            let (d1, h1) = legs.first(dem.from.0, v);
             let c = d1 + z[v].max(0.0) + d2;
             if !c.is_finite() {
                 continue;
@@ -189,7 +189,11 @@ pub(super) fn price(g: &Graph, caps: &[f64], y: &[f64], z: &[f64], u: Option<&[f
         if let Some(u) = u
             && 1.0 - c - u[d] > PRICE_TOL
         {
-            walks.push(Walk::from_legs(d, v, legs.arcs(net, dem.from, v, dem.to)));
+            walks.push(Walk::from_legs(
+                d,
+                v,
+                legs.arcs(net, dem.from.0, v, dem.to.0),
+            ));
         }
     }
     let mut site_reached = vec![false; n];
