@@ -72,8 +72,9 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
     }
 
     // Per demand, link direction and site: a feasible-looking allocation of the stored value.
-    let stranded: std::collections::BTreeSet<usize> = e.stranded_demands.iter().copied().collect();
-    let cut: std::collections::BTreeSet<usize> = e.cut_off.iter().map(|&(d, _)| d).collect();
+    let stranded: std::collections::BTreeSet<usize> =
+        e.stranded_demands.iter().map(|d| d.0).collect();
+    let cut: std::collections::BTreeSet<usize> = e.cut_off.iter().map(|&(d, _)| d.0).collect();
     let mut sum = 0.0;
     for d in 0..nd {
         let (f, req) = (e.demand_flow[d], net.demands[d].required);
@@ -123,8 +124,8 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
     }
     for b in &e.bottlenecks {
         let in_range = match b.resource {
-            Resource::Arc(a) => a < na,
-            Resource::Site(v) => v < ns,
+            Resource::Arc(a) => a.0 < na,
+            Resource::Site(v) => v.0 < ns,
         };
         if !in_range || !price_ok(b.price) {
             return Err("a bottleneck names a resource out of range".into());
@@ -180,10 +181,10 @@ mod tests {
     fn outages(n: &Network) -> Vec<Outage> {
         let mut out = vec![Outage::default()];
         for l in 0..n.links.len() {
-            out.push(Scenario::new(n, &[Element::Link(l)]).outage(n));
+            out.push(Scenario::new(n, &[Element::Link(l.into())]).outage(n));
         }
         for s in 0..n.sites.len() {
-            out.push(Scenario::new(n, &[Element::Site(s)]).outage(n));
+            out.push(Scenario::new(n, &[Element::Site(s.into())]).outage(n));
         }
         out
     }
@@ -228,7 +229,7 @@ mod tests {
         moved.demand_flow.swap(0, 1);
         moved.demand_shortfall = vec![6.0 - moved.demand_flow[0], 2.0 - moved.demand_flow[1]];
         assert!(recheck(&n, &o, &moved).is_err());
-        let failed = Scenario::new(&n, &[Element::Link(1)]).outage(&n);
+        let failed = Scenario::new(&n, &[Element::Link(1.into())]).outage(&n);
         assert!(recheck(&n, &failed, &e).is_err());
     }
 }
