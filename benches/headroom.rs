@@ -11,7 +11,8 @@
 //! columns, column generation, fallback to the edge λ-LP), and the edge λ-LP alone on the
 //! first few outages for comparison. Wall times depend on the machine's load.
 //!
-//! Run: `cargo bench --bench headroom` (both), or name networks: `-- B G200`; `-- quick`
+//! Run: `cargo bench --bench headroom` (both), or name networks: `-- B G200 grid-50` (the
+//! fixture `fixtures/grid-50.json`, only when named); `-- quick`
 //! keeps the first 24 scenarios of each network (baseline, then links in file order) and
 //! skips the edge λ-LP comparison.
 
@@ -124,6 +125,19 @@ fn main() {
             groups: true,
         };
         case("B", &net, kinds, quick);
+    }
+    // The fixture, only when named (`-- grid-50`): what `redoubt audit fixtures/grid-50.json
+    // --depth 1 --headroom` solves.
+    if args.iter().any(|a| a == "grid-50") {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/fixtures/grid-50.json");
+        let text = std::fs::read_to_string(path).expect("fixture");
+        let net = Network::from_json(&text).expect("valid");
+        let kinds = Kinds {
+            links: true,
+            sites: true,
+            groups: true,
+        };
+        case("grid-50", &net, kinds, quick);
     }
     if want("G200") {
         let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, 200.0)).collect();
