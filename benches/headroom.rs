@@ -5,7 +5,8 @@
 //! - `G200`: 200 sites, 395 links, 3,903 demands, 20 processing sites (the network of
 //!   `benches/scale.rs`); links fail.
 //!
-//! Per network: the audit (`audit::run`, two threads), then `headroom::of_audit` on it
+//! Per network: the audit (`audit::run_with` on the walk engine, as `redoubt audit` runs it;
+//! two threads), then `headroom::of_audit` on it
 //! (walk engine from the baseline's columns, two threads), then one sequential pass over
 //! the outages that counts how each headroom was found (inherited from the baseline's
 //! columns, column generation, fallback to the edge λ-LP), and the edge λ-LP alone on the
@@ -25,6 +26,7 @@ use redoubt::audit::{self, RunOptions};
 use redoubt::headroom;
 use redoubt::model::Network;
 use redoubt::scenario::{self, Kinds};
+use redoubt::solve::Engine;
 use redoubt::solve::Surviving;
 use redoubt::solve::concurrent;
 
@@ -39,7 +41,7 @@ fn case(name: &str, net: &Network, kinds: Kinds, quick: bool) {
         scenarios.truncate(24);
     }
     let t = Instant::now();
-    let a = audit::run(net, scenarios, TWO).expect("audit solves");
+    let a = audit::run_with(net, scenarios, TWO, Engine::Walks).expect("audit solves");
     let audit_s = t.elapsed().as_secs_f64();
     let t = Instant::now();
     let h = headroom::of_audit(net, &a, None, TWO).expect("headroom solves");
