@@ -5,13 +5,17 @@
 //! - `G200`: 200 sites, 395 links, 3,903 demands, 20 processing sites (the network of
 //!   `benches/scale.rs`); links fail.
 //!
-//! Per network: the audit (`audit::run`, two threads), then `headroom::of_audit` on it
+//! Per network: the audit (`audit::run_with` on the walk engine, as `redoubt audit` runs it;
+//! two threads), then `headroom::of_audit` on it
 //! (walk engine from the baseline's columns, two threads), then one sequential pass over
 //! the outages that counts how each headroom was found (inherited from the baseline's
 //! columns, column generation, fallback to the edge λ-LP), and the edge λ-LP alone on the
 //! first few outages for comparison. Wall times depend on the machine's load.
 //!
-//! Run: `cargo bench --bench headroom` (both), or name networks: `-- B G200`.
+//! Run: `cargo bench --bench headroom` (both), or name networks: `-- B G200 grid-50` (the
+//! fixture `fixtures/grid-50.json`, only when named); `-- quick`
+//! keeps the first 24 scenarios of each network (baseline, then links in file order) and
+//! skips the edge λ-LP comparison.
 
 mod common;
 
@@ -22,6 +26,7 @@ use redoubt::audit::{self, RunOptions};
 use redoubt::headroom;
 use redoubt::model::Network;
 use redoubt::scenario::{self, Kinds};
+use redoubt::solve::Engine;
 use redoubt::solve::Surviving;
 use redoubt::solve::concurrent;
 
@@ -30,10 +35,13 @@ const TWO: RunOptions = RunOptions {
     progress: false,
 };
 
-fn case(name: &str, net: &Network, kinds: Kinds) {
-    let scenarios = scenario::enumerate(net, kinds, 1);
+fn case(name: &str, net: &Network, kinds: Kinds, quick: bool) {
+    let mut scenarios = scenario::enumerate(net, kinds, 1);
+    if quick {
+        scenarios.truncate(24);
+    }
     let t = Instant::now();
-    let a = audit::run(net, scenarios, TWO).expect("audit solves");
+    let a = audit::run_with(net, scenarios, TWO, Engine::Walks).expect("audit solves");
     let audit_s = t.elapsed().as_secs_f64();
     let t = Instant::now();
     let h = headroom::of_audit(net, &a, None, TWO).expect("headroom solves");
@@ -51,7 +59,8 @@ fn case(name: &str, net: &Network, kinds: Kinds) {
     // How each was found (one thread, sequential).
     let base_view = Surviving::new(net, &redoubt::scenario::Outage::default(), None);
     let (_, cols, _) = concurrent::headroom_walks(net, &base_view, None).expect("baseline");
-    let (mut inherited, mut generated, mut fallback, mut trivial, mut rounds) = (0, 0, 0, 0, 0);
+    let (mut inherited, mut repaired, mut generated, mut fallback, mut trivial, mut rounds) =
+        (0, 0, 0, 0, 0, 0);
     let t = Instant::now();
     for o in &a.outages {
         let view = Surviving::new(net, o, None);
@@ -63,15 +72,20 @@ fn case(name: &str, net: &Network, kinds: Kinds) {
             fallback += 1;
         } else if w.walks.inherited {
             inherited += 1;
+        } else if w.walks.repaired {
+            repaired += 1;
         } else {
             generated += 1;
         }
     }
     println!(
-        "  one thread: {:.2} s | inherited {inherited}, column generation {generated} \
+        "  one thread: {:.2} s | inherited {inherited}, repaired {repaired}, column generation {generated} \
          ({rounds} pricing rounds in all), edge λ-LP fallback {fallback}, no LP {trivial}",
         t.elapsed().as_secs_f64()
     );
+    if quick {
+        return;
+    }
     let k = a.outages.len().min(5);
     let t = Instant::now();
     for o in &a.outages[..k] {
@@ -88,7 +102,9 @@ fn main() {
         .skip(1)
         .filter(|a| !a.starts_with('-'))
         .collect();
-    let want = |n: &str| args.is_empty() || args.iter().any(|a| a == n);
+    let quick = args.iter().any(|a| a == "quick");
+    let named = args.iter().any(|a| a != "quick");
+    let want = |n: &str| !named || args.iter().any(|a| a == n);
     if want("B") {
         let doc = document(
             50,
@@ -110,7 +126,20 @@ fn main() {
             sites: true,
             groups: true,
         };
-        case("B", &net, kinds);
+        case("B", &net, kinds, quick);
+    }
+    // The fixture, only when named (`-- grid-50`): what `redoubt audit fixtures/grid-50.json
+    // --depth 1 --headroom` solves.
+    if args.iter().any(|a| a == "grid-50") {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/fixtures/grid-50.json");
+        let text = std::fs::read_to_string(path).expect("fixture");
+        let net = Network::from_json(&text).expect("valid");
+        let kinds = Kinds {
+            links: true,
+            sites: true,
+            groups: true,
+        };
+        case("grid-50", &net, kinds, quick);
     }
     if want("G200") {
         let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, 200.0)).collect();
@@ -120,6 +149,6 @@ fn main() {
             sites: false,
             groups: false,
         };
-        case("G200", &net, kinds);
+        case("G200", &net, kinds, quick);
     }
 }

@@ -199,12 +199,16 @@ pub fn merge(each: Vec<(usize, Worst)>, opts: Options) -> Worst {
                 };
                 q.floor = q.floor.max(p.floor);
                 q.tolerance = q.tolerance.max(p.tolerance);
-                q.sets_total += p.sets_total;
-                q.sets_solved += p.sets_solved;
-                q.outages_solved += p.outages_solved;
-                q.sets_bounded += p.sets_bounded;
-                q.sets_pruned += p.sets_pruned;
-                q.unproven += p.unproven;
+                crate::solve::add_counts([
+                    (&mut q.sets_total, p.sets_total),
+                    (&mut q.sets_solved, p.sets_solved),
+                    (&mut q.sets_bounded, p.sets_bounded),
+                    (&mut q.sets_pruned, p.sets_pruned),
+                ]);
+                crate::solve::add_counts([
+                    (&mut q.outages_solved, p.outages_solved),
+                    (&mut q.unproven, p.unproven),
+                ]);
                 q.stats.add(&p.stats);
                 q
             }

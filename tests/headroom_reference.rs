@@ -257,3 +257,45 @@ fn walk_engine_matches_the_edge_lambda_lp_on_random_networks() {
         "no outage was decided by the baseline's columns"
     );
 }
+
+/// The shortcuts that decide an outage without a master, each against the per-demand
+/// microlp reference (a second formulation and solver): outages where the failure touches
+/// no flow-carrying walk of the baseline's optimum (inherited: the baseline's λ, or the
+/// baseline's allocation proving more when demands left) and outages whose cut flow the
+/// greedy re-route puts back (repaired). Random networks, every single site and link
+/// failure; both shortcuts must occur, so the comparison is not vacuous.
+#[test]
+fn shortcut_outages_match_the_per_demand_reference() {
+    let mut rng = StdRng::seed_from_u64(0x7265_7061);
+    let (mut inherited, mut repaired) = (0, 0);
+    for _ in 0..16 {
+        let t = random_instance(&mut rng);
+        let net = t.network();
+        let base = Surviving::new(&net, &Outage::default(), None);
+        let (_, columns, _) = headroom_walks(&net, &base, None).expect("baseline");
+        let mut cases: Vec<(Vec<usize>, Vec<usize>)> = Vec::new();
+        cases.extend((0..t.processing.len()).map(|v| (vec![v], vec![])));
+        cases.extend((0..t.links.len()).map(|l| (vec![], vec![l])));
+        for (sites, links) in cases {
+            let mut elements: Vec<Element> = sites.iter().map(|&v| Element::Site(v)).collect();
+            elements.extend(links.iter().map(|&l| Element::Link(l)));
+            let o = Scenario::new(&net, &elements).outage(&net);
+            let view = Surviving::new(&net, &o, None);
+            let (got, _, work) = headroom_walks(&net, &view, columns.as_ref()).expect("walks");
+            if !(work.walks.inherited || work.walks.repaired) {
+                continue;
+            }
+            let label = format!("{t:?} failing sites {sites:?} links {links:?} ({work:?})");
+            let want = reference(&t, &sites, &links).expect("a decided outage has demand");
+            assert!(got.proven, "{label}: unproven {got:?}");
+            assert_close(got.value.expect("a value"), want, &label);
+            inherited += usize::from(work.walks.inherited);
+            repaired += usize::from(work.walks.repaired);
+        }
+    }
+    assert!(
+        inherited > 0,
+        "no outage was decided by the baseline's columns"
+    );
+    assert!(repaired > 0, "no outage was decided by the re-route");
+}

@@ -17,9 +17,9 @@
 use super::{DemandRoutes, Mode, fixed};
 use crate::error::{Error, Result};
 use crate::model::Network;
-use crate::solve::concurrent::Headroom;
+use crate::solve::concurrent::{self, Headroom};
 use crate::solve::lp::{self, Sense};
-use crate::solve::{GAP_TOL, RESIDUAL_TOL, ladder, simplest_in, verify};
+use crate::solve::{ladder, verify};
 
 /// The demands the headroom is taken over: surviving (routes known) with `required > 0`.
 fn active(net: &Network, routes: &[Option<DemandRoutes>]) -> Vec<usize> {
@@ -139,8 +139,8 @@ fn nearest(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
 ///   factor `λ ≤ Λ` keeps each row within its (possibly lowered) right-hand side. With
 ///   the LP's shadow prices the quotient meets the optimum.
 ///
-/// Proven when the residual is within [`RESIDUAL_TOL`] and the bounds meet within
-/// [`GAP_TOL`] of the upper bound; the value is then the plainest number in the interval
+/// Proven when the residual is within [`crate::solve::RESIDUAL_TOL`] and the bounds meet within
+/// [`crate::solve::GAP_TOL`] of the upper bound; the value is then the plainest number in the interval
 /// (1 when it holds 1), else the lower bound.
 fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> Result<Headroom> {
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
@@ -190,12 +190,7 @@ fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
     let real_arc: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
     let real_site: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
 
-    let mut best = Headroom {
-        value: None,
-        lower: 0.0,
-        upper: ceiling,
-        proven: false,
-    };
+    let mut best = Headroom::open(ceiling);
     let mut errors = Vec::new();
     let mut solved = false;
     for backend in ladder().iter() {
@@ -215,23 +210,13 @@ fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
             .collect();
         let lower = scaled_factor(&index, &x, active, &required, &real_arc, &real_site);
         let upper = quotient(&model, &index, &sol.duals, routes, active, &required).min(ceiling);
-        best.lower = best.lower.max(lower);
-        best.upper = best.upper.min(upper);
-        let gap = best.upper - best.lower;
-        let tol = GAP_TOL * best.upper.max(f64::MIN_POSITIVE);
-        best.proven = residual <= RESIDUAL_TOL && gap.abs() <= tol;
-        if best.proven {
+        if best.narrow(lower, upper, residual) {
             break;
         }
     }
     if !solved {
         return Err(Error::Solver(errors.join("; ")));
     }
-    best.value = Some(if best.proven {
-        simplest_in(best.lower.min(best.upper), best.upper, 1.0)
-    } else {
-        best.lower
-    });
     Ok(best)
 }
 
@@ -294,11 +279,7 @@ fn quotient(
             .fold(f64::INFINITY, f64::min);
         priced += required[d] * cheapest;
     }
-    if priced > 0.0 && priced.is_finite() {
-        worth / priced
-    } else {
-        f64::INFINITY
-    }
+    concurrent::quotient(worth, priced)
 }
 
 #[cfg(test)]

@@ -57,7 +57,7 @@ use std::collections::{BinaryHeap, HashMap};
 
 use super::flow::{self, Cap};
 use super::surviving::Surviving;
-use super::{Evaluation, Verification, Verified, caps_of, certify, finish, meets, verify};
+use super::{Evaluation, Verified, caps_of, certify, finish, verify};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -758,14 +758,13 @@ fn verified(
     let lowered = |c: f64, real: f64| c < real;
     Verified {
         lp_value: st.flow.iter().sum::<f64>() / u,
-        verification: Verification {
-            proven: meets(residual, allocation.served, upper, at_stake),
-            lower: allocation.served,
-            upper,
+        verification: super::one_attempt(
             residual,
-            attempts: 1,
-            backend: format!("approx (epsilon {eps})"),
-        },
+            allocation.served,
+            upper,
+            at_stake,
+            format!("approx (epsilon {eps})"),
+        ),
         allocation,
         arc_price: (0..net.arcs.len())
             .map(|a| {
@@ -859,14 +858,7 @@ mod tests {
     /// is the optimum. The approximate interval holds 5 and is at most ε·50 wide.
     #[test]
     fn arc_crossed_twice() {
-        let n = net(
-            r#"{"sites":[{"id":"s"},{"id":"m"},{"id":"t"},{"id":"p","processing":100}],
-            "links":[{"id":"sm","from":"s","to":"m","capacity":100,"one_way":true},
-                     {"id":"mt","from":"m","to":"t","capacity":10,"one_way":true},
-                     {"id":"tp","from":"t","to":"p","capacity":100,"one_way":true},
-                     {"id":"pm","from":"p","to":"m","capacity":100,"one_way":true}],
-            "demands":[{"from":"s","to":"t","volume":50}]}"#,
-        );
+        let n = crate::solve::tests::reuse_ring("p");
         let e = evaluate_approx(&n, &Outage::default(), 0.05).unwrap();
         let v = &e.verification;
         assert!(v.lower <= 5.0 + 1e-9 && v.upper >= 5.0 - 1e-9, "{v:?}");

@@ -58,12 +58,12 @@ use warm::*;
 
 use std::collections::{HashMap, HashSet, VecDeque};
 
-use super::edge::{at_stake, caps_of, meets, needs_volume_lp, solve_verified};
+use super::edge::{at_stake, caps_of, needs_volume_lp, solve_verified};
 use super::finish::finish;
 use super::flow::Cap;
 use super::lp::{self, Lp, Sense};
 use super::surviving::Surviving;
-use super::types::{Evaluation, Verification, Verified};
+use super::types::{Evaluation, Verified};
 use super::{cancel, certify, verify};
 use crate::error::Result;
 use crate::model::Network;
@@ -157,12 +157,14 @@ pub struct Stats {
 impl Stats {
     /// Adds `other` into `self` (counts summed, `max_columns` maximised).
     pub fn add(&mut self, other: &Stats) {
-        self.no_flow += other.no_flow;
-        self.repaired += other.repaired;
-        self.generated += other.generated;
-        self.fallback += other.fallback;
-        self.lp_solves += other.lp_solves;
-        self.rounds += other.rounds;
+        super::add_counts([
+            (&mut self.no_flow, other.no_flow),
+            (&mut self.repaired, other.repaired),
+            (&mut self.generated, other.generated),
+            (&mut self.fallback, other.fallback),
+            (&mut self.lp_solves, other.lp_solves),
+            (&mut self.rounds, other.rounds),
+        ]);
         self.max_columns = self.max_columns.max(other.max_columns);
     }
 }
@@ -674,14 +676,13 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
     let lowered = |cap: f64, real: f64| cap < real;
     Verified {
         lp_value: s.value,
-        verification: Verification {
-            proven: meets(residual, allocation.served, upper, at_stake),
-            lower: allocation.served,
-            upper,
+        verification: super::one_attempt(
             residual,
-            attempts: 1,
-            backend: "walks".into(),
-        },
+            allocation.served,
+            upper,
+            at_stake,
+            "walks".into(),
+        ),
         allocation,
         arc_price: (0..net.arcs.len())
             .map(|a| {

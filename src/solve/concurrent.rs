@@ -73,6 +73,16 @@ impl Headroom {
         }
     }
 
+    /// Nothing known yet but the a-priori ceiling: `[0, ceiling]`, no value, unproven.
+    pub(crate) fn open(ceiling: f64) -> Headroom {
+        Headroom {
+            value: None,
+            lower: 0.0,
+            upper: ceiling,
+            proven: false,
+        }
+    }
+
     /// λ = 0, proven: some surviving required demand has no walk through a processing site.
     pub(crate) fn zero() -> Headroom {
         Headroom {
@@ -133,18 +143,46 @@ pub fn setup(net: &Network, view: &Surviving) -> Result<std::result::Result<Setu
 /// residual passes and the bounds meet within [`PROOF_GAP_TOL`] of `upper`; the value is
 /// then the plainest number in the interval (1 when it holds 1), else `lower`. O(1).
 pub fn decide(lower: f64, upper: f64, residual: f64) -> Headroom {
-    let gap = upper - lower;
-    let tol = PROOF_GAP_TOL * upper.max(f64::MIN_POSITIVE);
-    let proven = residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol;
-    Headroom {
-        value: Some(if proven {
-            simplest_in(lower.min(upper), upper, 1.0)
-        } else {
-            lower
-        }),
+    let mut h = Headroom {
+        value: None,
         lower,
         upper,
-        proven,
+        proven: false,
+    };
+    h.narrow(lower, upper, residual);
+    h
+}
+
+impl Headroom {
+    /// Narrows the interval by one more verified attempt (`lower` achieved by a feasible
+    /// allocation, `upper` certified, `residual` of the attempt's solution): keeps the
+    /// best of both bounds, proven when the residual passes and they meet within
+    /// [`PROOF_GAP_TOL`] of the upper bound; the value is then the plainest number in the
+    /// interval (1 when it holds 1), else the lower bound. Returns whether it is proven.
+    /// O(1).
+    pub(crate) fn narrow(&mut self, lower: f64, upper: f64, residual: f64) -> bool {
+        self.lower = self.lower.max(lower);
+        self.upper = self.upper.min(upper);
+        let gap = self.upper - self.lower;
+        let tol = PROOF_GAP_TOL * self.upper.max(f64::MIN_POSITIVE);
+        self.proven = residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol;
+        self.value = Some(if self.proven {
+            simplest_in(self.lower.min(self.upper), self.upper, 1.0)
+        } else {
+            self.lower
+        });
+        self.proven
+    }
+}
+
+/// The weak-duality quotient `worth / priced` of a headroom certificate: the priced
+/// capacity over `Σ required_d · (cheapest priced unit of d)`; `+∞` when `priced` is not
+/// positive and finite (the prices prove nothing). O(1).
+pub(crate) fn quotient(worth: f64, priced: f64) -> f64 {
+    if priced > 0.0 && priced.is_finite() {
+        worth / priced
+    } else {
+        f64::INFINITY
     }
 }
 
@@ -253,12 +291,7 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
     }
     var_floor[lambda] = ceiling;
 
-    let mut best = Headroom {
-        value: None,
-        lower: 0.0,
-        upper: ceiling,
-        proven: false,
-    };
+    let mut best = Headroom::open(ceiling);
     let mut errors = Vec::new();
     for backend in ladder {
         let floors = (row_floor.as_slice(), var_floor.as_slice());
@@ -280,23 +313,16 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
         let site_price: Vec<f64> = index.site_row.iter().map(price).collect();
         let caps = (index.arc_cap.as_slice(), index.site_cap.as_slice());
         let upper = upper_bound(net, view, caps, &active, &arc_price, &site_price).min(ceiling);
-        best.lower = best.lower.max(lower);
-        best.upper = best.upper.min(upper);
-        let gap = best.upper - best.lower;
-        let tol = PROOF_GAP_TOL * best.upper.max(f64::MIN_POSITIVE);
-        best.proven = residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol;
-        if best.proven {
+        if best.narrow(lower, upper, residual) {
             break;
         }
     }
     if best.lower == 0.0 && best.upper == ceiling && !errors.is_empty() {
         return Err(Error::Solver(errors.join("; ")));
     }
-    best.value = Some(if best.proven {
-        simplest_in(best.lower.min(best.upper), best.upper, 1.0)
-    } else {
-        best.lower
-    });
+    if best.value.is_none() {
+        best.value = Some(best.lower);
+    }
     Ok(best)
 }
 
@@ -321,11 +347,7 @@ pub fn upper_bound(
         .zip(&costs)
         .map(|(&d, &c)| net.demands[d].required * c)
         .sum();
-    if priced > 0.0 && priced.is_finite() {
-        worth / priced
-    } else {
-        f64::INFINITY
-    }
+    quotient(worth, priced)
 }
 
 #[cfg(test)]
@@ -337,25 +359,29 @@ mod tests {
         Network::from_json(text).expect("valid test network")
     }
 
-    /// Hand case: one link a→b of capacity 10, processing ample at a, required 4 from a
-    /// to b: the link carries 10, so λ = 10 / 4 = 2.5.
+    /// One link a→b of capacity 10, processing `processing` at a, required 4 from a to b:
+    /// the headroom of the intact network.
+    fn one_link(processing: f64) -> Headroom {
+        let n = net(&format!(
+            r#"{{"sites":[{{"id":"a","processing":{processing}}},{{"id":"b"}}],
+            "links":[{{"id":"ab","from":"a","to":"b","capacity":10,"one_way":true}}],
+            "demands":[{{"from":"a","to":"b","volume":4,"required":4}}]}}"#
+        ));
+        headroom(&n, &Outage::default()).unwrap()
+    }
+
+    /// Hand case: processing ample (100) at a: the link carries 10, so λ = 10 / 4 = 2.5.
     #[test]
     fn one_link_sets_the_factor() {
-        let n = net(r#"{"sites":[{"id":"a","processing":100},{"id":"b"}],
-            "links":[{"id":"ab","from":"a","to":"b","capacity":10,"one_way":true}],
-            "demands":[{"from":"a","to":"b","volume":4,"required":4}]}"#);
-        let h = headroom(&n, &Outage::default()).unwrap();
+        let h = one_link(100.0);
         assert!(h.proven, "{h:?}");
         assert_eq!(h.value, Some(2.5));
     }
 
-    /// Hand case: the same link, processing 6 at a: 6 / 4 = 1.5 (processing binds).
+    /// Hand case: processing 6 at a: 6 / 4 = 1.5 (processing binds before the link).
     #[test]
     fn processing_sets_the_factor() {
-        let n = net(r#"{"sites":[{"id":"a","processing":6},{"id":"b"}],
-            "links":[{"id":"ab","from":"a","to":"b","capacity":10,"one_way":true}],
-            "demands":[{"from":"a","to":"b","volume":4,"required":4}]}"#);
-        let h = headroom(&n, &Outage::default()).unwrap();
+        let h = one_link(6.0);
         assert!(h.proven, "{h:?}");
         assert_eq!(h.value, Some(1.5));
     }

@@ -111,6 +111,34 @@ pub fn evaluate_cold_walks(net: &Network, outage: &Outage) -> Result<Evaluation>
     Ok(evaluator::Walks.evaluate(net, outage, None)?.evaluation)
 }
 
+/// Adds each count to its total (`*total += count` for every pair): how the work counts
+/// of several runs are merged. O(pairs).
+pub fn add_counts<T: std::ops::AddAssign + Copy, const N: usize>(pairs: [(&mut T, T); N]) {
+    for (total, count) in pairs {
+        *total += count;
+    }
+}
+
+/// The verification of a result checked in one attempt: the served lower bound `lower`
+/// of a feasible allocation, the certified `upper`, the solution's `residual`; proven when
+/// [`meets`] holds relative to `at_stake`. O(1).
+pub(crate) fn one_attempt(
+    residual: f64,
+    lower: f64,
+    upper: f64,
+    at_stake: f64,
+    backend: String,
+) -> Verification {
+    Verification {
+        proven: meets(residual, lower, upper, at_stake),
+        lower,
+        upper,
+        residual,
+        attempts: 1,
+        backend,
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -131,6 +159,30 @@ mod tests {
         Network::from_json(json).unwrap()
     }
 
+    /// The one-way ring s→m→t→p→m (capacities 100 but m→t at 10) with processing 100 at
+    /// the site `at` only and one demand s→t of volume 50 (the arc-reuse case below).
+    pub(super) fn reuse_ring(at: &str) -> Network {
+        let sites: Vec<String> = ["s", "m", "t", "p"]
+            .iter()
+            .map(|&v| {
+                if v == at {
+                    format!(r#"{{"id":"{v}","processing":100}}"#)
+                } else {
+                    format!(r#"{{"id":"{v}"}}"#)
+                }
+            })
+            .collect();
+        net(&format!(
+            r#"{{"sites":[{}],
+            "links":[{{"id":"sm","from":"s","to":"m","capacity":100,"one_way":true}},
+                     {{"id":"mt","from":"m","to":"t","capacity":10,"one_way":true}},
+                     {{"id":"tp","from":"t","to":"p","capacity":100,"one_way":true}},
+                     {{"id":"pm","from":"p","to":"m","capacity":100,"one_way":true}}],
+            "demands":[{{"from":"s","to":"t","volume":50}}]}}"#,
+            sites.join(",")
+        ))
+    }
+
     /// Arc reuse (common practice, no source: it is how a walk that revisits an arc
     /// consumes it). One-way ring s→m→t→p→m, processing only at p, demand s→t: the walk
     /// s→m→t→p→m→t crosses arc m→t (capacity 10) twice, once unprocessed and once
@@ -138,14 +190,7 @@ mod tests {
     /// crossed once and carries all 10.
     #[test]
     fn walk_reusing_an_arc_halves_it() {
-        let n = net(
-            r#"{"sites":[{"id":"s"},{"id":"m"},{"id":"t"},{"id":"p","processing":100}],
-            "links":[{"id":"sm","from":"s","to":"m","capacity":100,"one_way":true},
-                     {"id":"mt","from":"m","to":"t","capacity":10,"one_way":true},
-                     {"id":"tp","from":"t","to":"p","capacity":100,"one_way":true},
-                     {"id":"pm","from":"p","to":"m","capacity":100,"one_way":true}],
-            "demands":[{"from":"s","to":"t","volume":50}]}"#,
-        );
+        let n = reuse_ring("p");
         let e = evaluate(&n, &Outage::default()).unwrap();
         assert!(
             (e.served_required - 5.0).abs() < 1e-6,
@@ -153,14 +198,7 @@ mod tests {
             e.served_required
         );
         // With processing at the origin, the arc is crossed once and carries all of it.
-        let n2 = net(
-            r#"{"sites":[{"id":"s","processing":100},{"id":"m"},{"id":"t"},{"id":"p"}],
-            "links":[{"id":"sm","from":"s","to":"m","capacity":100,"one_way":true},
-                     {"id":"mt","from":"m","to":"t","capacity":10,"one_way":true},
-                     {"id":"tp","from":"t","to":"p","capacity":100,"one_way":true},
-                     {"id":"pm","from":"p","to":"m","capacity":100,"one_way":true}],
-            "demands":[{"from":"s","to":"t","volume":50}]}"#,
-        );
+        let n2 = reuse_ring("s");
         let e2 = evaluate(&n2, &Outage::default()).unwrap();
         assert!((e2.served_required - 10.0).abs() < 1e-6);
         assert!(e2.certified_gap() < 1e-6, "{e2:?}");

@@ -24,7 +24,12 @@
 //! solved, the surviving columns and the parent's prices are verified on the outage as
 //! they are (one repair and one certificate): when no flow-carrying parent walk touches a
 //! failed element and the surviving demands are the same, they prove the parent's λ
-//! without an LP.
+//! without an LP. Otherwise the flow the outage cuts is re-routed greedily (the walk
+//! engine's repair: shortest-hop augmenting walks through what the surviving walks leave)
+//! until every active demand is back at the parent's factor; when it all fits, the parent's
+//! prices on the outage prove it, again without an LP (an outage can only lower λ when
+//! the surviving demands are the same). What the repair found starts the master when they
+//! do not.
 //!
 //! **Verification** (independent of the master): the walks, split back onto the real links,
 //! are scaled into the real capacities ([`crate::solve::verify::repair_walks`]); the least
@@ -65,6 +70,9 @@ pub struct Columns {
 pub struct Work {
     /// Decided by the parent's columns and prices without a master.
     pub inherited: bool,
+    /// Decided without a master by the parent's surviving columns with the cut flow
+    /// re-routed greedily, certified by the parent's prices.
+    pub repaired: bool,
     /// Master solves.
     pub lp_solves: usize,
     /// Pricing rounds.
@@ -108,6 +116,16 @@ pub fn solve(
         if h.proven {
             work.inherited = true;
             return Ok(Some((h, cols)));
+        }
+        // The parent's walks the outage cut, re-routed greedily through what the surviving
+        // walks leave (each demand back to the parent's factor); proven by the parent's
+        // prices when nothing was lost for good.
+        if let Some((h, cols)) = repaired(&g, net, view, setup, &real_caps, p, &start) {
+            if h.proven {
+                work.repaired = true;
+                return Ok(Some((h, cols)));
+            }
+            start = cols.walks.into_iter().zip(cols.flow).collect();
         }
     }
 
@@ -163,6 +181,69 @@ pub fn solve(
         m.column(w, 0.0);
     }
     m.run(net, view, setup, &real_caps, &caps, work)
+}
+
+/// The parent's columns on the outage with the flow the outage cuts re-routed: the parent's
+/// factor `λp = min_d parent flow_d / required_d` over the outage's active demands, each
+/// demand's shortfall `λp·required_d − surviving flow_d` re-routed by the walk engine's
+/// greedy repair (shortest-hop augmenting walks through the residual capacity of the
+/// surviving walks `start`), then [`certified`] with the parent's prices. `None` when no
+/// active demand lost flow. O(augmentations · (sites + arcs) + one certificate).
+fn repaired(
+    g: &Graph,
+    net: &Network,
+    view: &Surviving,
+    setup: &Setup,
+    real_caps: &(Vec<f64>, Vec<f64>),
+    parent: &Columns,
+    start: &[(Walk, f64)],
+) -> Option<(Headroom, Columns)> {
+    let mut had = vec![0.0; net.demands.len()];
+    for (w, &f) in parent.walks.iter().zip(&parent.flow) {
+        had[w.demand] += f.max(0.0);
+    }
+    let target = setup
+        .active
+        .iter()
+        .map(|&d| had[d] / setup.required[d])
+        .fold(f64::INFINITY, f64::min);
+    if !(target.is_finite() && target > 0.0) {
+        return None;
+    }
+    let mut walks: Vec<Walk> = Vec::with_capacity(start.len());
+    let mut flow: Vec<f64> = Vec::with_capacity(start.len());
+    let mut kept = vec![0.0; net.demands.len()];
+    for (w, f) in start {
+        if let Some(c) = g.lift(w) {
+            kept[w.demand] += f;
+            walks.push(c);
+            flow.push(*f);
+        }
+    }
+    let mut lost = vec![0.0; net.demands.len()];
+    for &d in &setup.active {
+        lost[d] = (target * setup.required[d] - kept[d]).max(0.0);
+    }
+    if lost.iter().all(|&l| l <= 0.0) {
+        return None;
+    }
+    let eps = super::FLOW_EPS * setup.total_required.max(1.0);
+    super::repair(g, &mut walks, &mut flow, &lost, eps);
+    let solved = g.split(Solved {
+        walks,
+        flow,
+        value: 0.0,
+        arc_price: parent.arc_price.clone(),
+        site_price: parent.site_price.clone(),
+    });
+    // The parent's prices are per real arc already.
+    let cols = Columns {
+        walks: solved.walks,
+        flow: solved.flow,
+        arc_price: parent.arc_price.clone(),
+        site_price: parent.site_price.clone(),
+    };
+    Some((certified(net, view, setup, real_caps, &cols), cols))
 }
 
 /// Per demand: `required_d` when it is active in `setup`, else 0 (the pricing's caps).
