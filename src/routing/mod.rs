@@ -284,6 +284,7 @@ fn verify_fixed(
             arc_has_row: Vec::new(),
             site_has_row: Vec::new(),
             bound_price: (Vec::new(), Vec::new()),
+            functions: Vec::new(),
         });
         best_upper = 0.0;
     }
@@ -334,6 +335,7 @@ fn verify_fixed(
                 site_price: Vec::new(),
                 arc_has_row: Vec::new(),
                 site_has_row: Vec::new(),
+                functions: Vec::new(),
                 bound_price: (Vec::new(), Vec::new()),
             });
         }

@@ -418,5 +418,6 @@ pub fn finish_with(
         throughput_verification,
         proof,
         delivered: None,
+        functions: Vec::new(),
     }
 }

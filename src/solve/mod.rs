@@ -50,7 +50,7 @@ pub(crate) use finish::DemandSplit;
 pub use finish::{NOISE, finish, finish_with, flow_scales, reported_in, shortfall_of, simplest_in};
 use lp::Backend;
 pub use surviving::{Surviving, Unservable};
-pub use types::{Bottleneck, Evaluation, Resource, Verification, Verified};
+pub use types::{Bottleneck, Evaluation, FunctionUse, Resource, Verification, Verified};
 
 /// The tolerances of verification, under the names callers use (defined and explained in
 /// [`crate::tol`]): `TOL` is [`crate::tol::RELATIVE_TOL`], `GAP_TOL` the proof gap
