@@ -1,0 +1,112 @@
+//! The service-chain parts of the HTML and Markdown reports (a network whose file lists
+//! `functions`): the delivered volume in the network facts and each function's load,
+//! capacity, utilisation and shadow price per site in the worst scenario. The terminal's
+//! lines are in [`super::text::delivered_line`] and [`super::text::functions_section`].
+//! Nothing here is written for a network without functions.
+
+use std::fmt;
+
+use super::html::{Report, esc, table_html};
+use super::{amount, num, percent};
+use crate::model::Network;
+use crate::solve::Evaluation;
+
+/// The header and rows of a scenario's function table: function, site, load, capacity,
+/// use (load over capacity) and price (`—` where no demand can reach it), in (site,
+/// function) order. Empty rows without functions. O(sites · functions).
+pub fn function_table(net: &Network, e: &Evaluation) -> (Vec<String>, Vec<Vec<String>>) {
+    let u = &net.unit;
+    let head = vec![
+        "function".to_string(),
+        "site".into(),
+        format!("load ({u})"),
+        format!("capacity ({u})"),
+        "use".into(),
+        format!("served per added {u} (price)"),
+    ];
+    let Some(ch) = net.chains.as_ref() else {
+        return (head, Vec::new());
+    };
+    let rows = e
+        .functions
+        .iter()
+        .map(|f| {
+            let cap = ch.capacity[f.site][f.function];
+            vec![
+                ch.functions[f.function].id.clone(),
+                net.sites[f.site].id.clone(),
+                num(f.load),
+                num(cap),
+                percent(f.load, cap),
+                f.price.map_or("—".to_string(), num),
+            ]
+        })
+        .collect();
+    (head, rows)
+}
+
+/// The network facts a report adds for a network with functions: the baseline's delivered
+/// volume, with the range other optimal allocations may deliver when it is not unique.
+/// Empty without functions. O(demands · chain).
+pub fn summary_rows(net: &Network, baseline: &Evaluation) -> Vec<(String, String)> {
+    let Some(d) = baseline.delivered else {
+        return Vec::new();
+    };
+    let range = match baseline.delivered_range(net) {
+        Some((least, most)) => format!(
+            "; another optimal allocation may deliver between {} and {}",
+            num(least),
+            num(most)
+        ),
+        None => "; every optimal allocation delivers the same".into(),
+    };
+    vec![(
+        "baseline delivered".into(),
+        format!(
+            "{} at the destinations (each chain's gain applied){range}",
+            amount(d, &net.unit)
+        ),
+    )]
+}
+
+/// The HTML "where one more unit helps" section of a network with functions: the worst
+/// scenario's function table. O(sites · functions).
+pub fn functions_html(o: &mut dyn fmt::Write, net: &Network, e: &Evaluation) -> fmt::Result {
+    let u = &net.unit;
+    o.write_str("<h2>Where one more unit helps</h2>\n")?;
+    writeln!(
+        o,
+        "<p>{}</p>",
+        esc(&format!(
+            "In the worst scenario, each function at each site: the traffic entering it, its \
+             capacity, and how much more one more {u} of it there serves (its shadow price; \
+             — where no demand can reach it)."
+        ))
+    )?;
+    let (head, rows) = function_table(net, e);
+    table_html(o, &head, &rows, &[2, 3, 4, 5])
+}
+
+/// The Markdown section of the worst scenario's function table, when the file lists
+/// functions and a scenario is short. O(sites · functions).
+pub fn functions_markdown(
+    o: &mut dyn fmt::Write,
+    r: &Report<'_>,
+    table_md: &dyn Fn(&mut dyn fmt::Write, &[String], &[Vec<String>]) -> fmt::Result,
+) -> fmt::Result {
+    let Some(i) = r.worst_short() else {
+        return Ok(());
+    };
+    if r.net.chains.is_none() {
+        return Ok(());
+    }
+    let net = r.net.view(r.audit.scenarios[i].matrix);
+    let e = r.audit.eval(i);
+    writeln!(
+        o,
+        "## Functions in the worst scenario ({})\n",
+        r.audit.scenarios[i].display_name()
+    )?;
+    let (head, rows) = function_table(net, e);
+    table_md(o, &head, &rows)
+}
