@@ -39,22 +39,27 @@ fn flat(text: &str) -> String {
     text.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
-/// The (site, link) a depth-1 scenario of a random network fails.
+/// The (site, link) a depth-1 scenario of a random network fails (ids `sN`, `lN`).
 fn failure(sc: &Value) -> (Option<usize>, Option<usize>) {
     let failed = failed_of(sc);
-    match failed.as_slice() {
-        [] => (None, None),
-        [one] => match one.split_once(':') {
-            Some(("site", id)) => (Some(id[1..].parse().unwrap()), None),
-            Some(("link", id)) => (None, Some(id[1..].parse().unwrap())),
-            _ => panic!("unexpected element {one}"),
-        },
-        _ => panic!("depth 1 only: {failed:?}"),
-    }
+    assert!(failed.len() <= 1, "depth 1 only: {failed:?}");
+    let index = |kind: &str| {
+        failed
+            .iter()
+            .find_map(|e| e.strip_prefix(kind))
+            .map(|id| id[1..].parse().unwrap())
+    };
+    (index("site:"), index("link:"))
 }
 
 /// The reference optimum with the capacity of function `f` at site `v` set to `cap`.
-fn served_with(t: &RNet, v: usize, f: usize, cap: f64, fail: (Option<usize>, Option<usize>)) -> f64 {
+fn served_with(
+    t: &RNet,
+    v: usize,
+    f: usize,
+    cap: f64,
+    fail: (Option<usize>, Option<usize>),
+) -> f64 {
     let mut t2 = RNet {
         gains: t.gains.clone(),
         capacity: t.capacity.clone(),
@@ -78,7 +83,10 @@ fn function_prices_lie_between_the_one_sided_derivatives_of_a_second_formulation
             let (_, doc) = audit_json(file.path(), &args);
             for sc in scenarios(&doc) {
                 let fail = failure(sc);
-                let what = format!("instance {instance}, {engine:?}, failed {:?}", failed_of(sc));
+                let what = format!(
+                    "instance {instance}, {engine:?}, failed {:?}",
+                    failed_of(sc)
+                );
                 assert_eq!(sc["verification"]["status"], "proven", "{what}");
                 let list = sc["functions"].as_array().cloned().unwrap_or_default();
                 // Every function with capacity at a surviving site is listed.
@@ -93,7 +101,10 @@ fn function_prices_lie_between_the_one_sided_derivatives_of_a_second_formulation
                     let f: usize = row["function"].as_str().unwrap()[1..].parse().unwrap();
                     let cap = t.capacity[v][f];
                     assert!((num(row, "capacity") - cap).abs() <= TOL, "{what}: {row}");
-                    assert!(num(row, "load") <= cap + TOL, "{what}: load within capacity {row}");
+                    assert!(
+                        num(row, "load") <= cap + TOL,
+                        "{what}: load within capacity {row}"
+                    );
                     let right = (served_with(&t, v, f, cap + DELTA, fail) - base) / DELTA;
                     let left = (base - served_with(&t, v, f, cap - DELTA, fail)) / DELTA;
                     let price = row["price"].as_f64().unwrap_or(0.0);
@@ -112,7 +123,10 @@ fn function_prices_lie_between_the_one_sided_derivatives_of_a_second_formulation
     eprintln!("{checked} prices checked, {unique_binding} unique and positive");
     // The check must have met binding functions with a unique price, not only zeros.
     assert!(checked > 100, "{checked} prices checked");
-    assert!(unique_binding >= 5, "{unique_binding} unique positive prices");
+    assert!(
+        unique_binding >= 5,
+        "{unique_binding} unique positive prices"
+    );
 }
 
 /// A path a — b — c (links of capacity 100) and a spare site d (link cd); `fw` (gain 0.5)
@@ -166,10 +180,18 @@ fn a_function_that_binds_has_its_load_price_and_sentence() {
         "saturated fw at b",
         "fw at b (+1)",
     ] {
-        assert!(flat(&run.stdout).contains(needle), "{needle:?} in {}", run.stdout);
+        assert!(
+            flat(&run.stdout).contains(needle),
+            "{needle:?} in {}",
+            run.stdout
+        );
     }
     // Files without functions print none of it.
-    let plain = redoubt(&["audit", common::s(&common::fixture("small-ring.json")), "-q"]);
+    let plain = redoubt(&[
+        "audit",
+        common::s(&common::fixture("small-ring.json")),
+        "-q",
+    ]);
     assert!(!plain.stdout.contains("Delivered"), "{}", plain.stdout);
 }
 
@@ -240,9 +262,16 @@ fn csv_html_and_markdown_show_the_json_figures() {
     let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
     for line in text.lines().skip(1) {
         let cells: Vec<&str> = line.split(',').collect();
-        let failed: Vec<&str> = if cells[0].is_empty() { vec![] } else { vec![cells[0]] };
+        let failed: Vec<&str> = if cells[0].is_empty() {
+            vec![]
+        } else {
+            vec![cells[0]]
+        };
         let sc = scenario(&doc, &failed);
-        assert_eq!(cells[col("delivered")].parse::<f64>().unwrap(), num(sc, "delivered"));
+        assert_eq!(
+            cells[col("delivered")].parse::<f64>().unwrap(),
+            num(sc, "delivered")
+        );
         // The top function is the JSON's highest positive price.
         let top = sc["functions"]
             .as_array()
@@ -254,9 +283,16 @@ fn csv_html_and_markdown_show_the_json_figures() {
             Some(f) => {
                 assert_eq!(
                     cells[col("top_function")],
-                    format!("{}@{}", f["function"].as_str().unwrap(), f["site"].as_str().unwrap())
+                    format!(
+                        "{}@{}",
+                        f["function"].as_str().unwrap(),
+                        f["site"].as_str().unwrap()
+                    )
                 );
-                assert_eq!(cells[col("top_function_price")].parse::<f64>().unwrap(), num(f, "price"));
+                assert_eq!(
+                    cells[col("top_function_price")].parse::<f64>().unwrap(),
+                    num(f, "price")
+                );
             }
             None => assert_eq!(cells[col("top_function")], ""),
         }
@@ -267,7 +303,10 @@ fn csv_html_and_markdown_show_the_json_figures() {
     let delivered = format!("{} Gbit/s at the destinations", num(base, "delivered"));
     assert!(md.contains(&delivered), "{md}");
     assert!(html.contains(&delivered));
-    assert!(md.contains("## Functions in the worst scenario (site:quillhaven)"), "{md}");
+    assert!(
+        md.contains("## Functions in the worst scenario (site:quillhaven)"),
+        "{md}"
+    );
     let worst = scenario(&doc, &["site:quillhaven"]);
     for f in worst["functions"].as_array().unwrap() {
         let row = format!(
@@ -277,7 +316,10 @@ fn csv_html_and_markdown_show_the_json_figures() {
             num(f, "load")
         );
         assert!(md.contains(&row), "{row} in {md}");
-        assert!(html.contains(&format!("<td class=\"k\">{}</td>", f["function"].as_str().unwrap())));
+        assert!(html.contains(&format!(
+            "<td class=\"k\">{}</td>",
+            f["function"].as_str().unwrap()
+        )));
     }
     assert!(md.contains("Caution: a planning aid"));
     assert!(html.contains("Caution: a planning aid"));
@@ -288,9 +330,33 @@ fn cell(v: Option<&Value>) -> String {
     match v {
         None | Some(Value::Null) => String::new(),
         Some(Value::String(s)) => s.clone(),
-        Some(Value::Array(a)) => a.iter().map(|x| cell(Some(x))).collect::<Vec<_>>().join(";"),
+        Some(Value::Array(a)) => a
+            .iter()
+            .map(|x| cell(Some(x)))
+            .collect::<Vec<_>>()
+            .join(";"),
         Some(other) => other.to_string(),
     }
+}
+
+/// `redoubt import csv` of the sites, links, demands and functions files into `out`.
+fn import_csv(
+    files: [&std::path::Path; 4],
+    out: &std::path::Path,
+    name: Option<&str>,
+) -> common::Run {
+    let mut args = vec!["import", "csv"];
+    for (flag, f) in ["--sites", "--links", "--demands", "--functions"]
+        .iter()
+        .zip(files)
+    {
+        args.extend([*flag, common::s(f)]);
+    }
+    args.extend(["--json", common::s(out)]);
+    if let Some(n) = name {
+        args.extend(["--name", n]);
+    }
+    redoubt(&args)
 }
 
 #[test]
@@ -314,8 +380,14 @@ fn csv_import_with_functions_gives_the_fixture_audit() {
         t
     };
     let sites = write("sites.csv", rows(&fx["sites"], &["id"]));
-    let links = write("links.csv", rows(&fx["links"], &["id", "from", "to", "capacity"]));
-    let demands = write("demands.csv", rows(&fx["demands"], &["from", "to", "volume", "chain"]));
+    let links = write(
+        "links.csv",
+        rows(&fx["links"], &["id", "from", "to", "capacity"]),
+    );
+    let demands = write(
+        "demands.csv",
+        rows(&fx["demands"], &["from", "to", "volume", "chain"]),
+    );
     // Functions: one declaring row each (with its gain), then one row per site and function.
     let mut f = "function,gain,site,capacity,expand_cost,expand_max\n".to_string();
     for func in fx["functions"].as_array().unwrap() {
@@ -337,22 +409,7 @@ fn csv_import_with_functions_gives_the_fixture_audit() {
     let functions = write("functions.csv", f);
     let net = dir.join("net.json");
     let name = fx["name"].as_str().unwrap();
-    let run = redoubt(&[
-        "import",
-        "csv",
-        "--sites",
-        common::s(&sites),
-        "--links",
-        common::s(&links),
-        "--demands",
-        common::s(&demands),
-        "--functions",
-        common::s(&functions),
-        "--json",
-        common::s(&net),
-        "--name",
-        name,
-    ]);
+    let run = import_csv([&sites, &links, &demands, &functions], &net, Some(name));
     assert_eq!(run.code, 0, "{}", run.stderr);
     assert!(run.stdout.contains("functions (4)"), "{}", run.stdout);
     let (_, want) = audit_json(common::s(&demo), &["--threads", "1"]);
@@ -375,28 +432,33 @@ fn the_functions_csv_is_refused_where_it_is_unclear() {
     let links = write("l.csv", "id,from,to,capacity\nab,a,b,10\n");
     let demands = write("d.csv", "from,to,volume,chain\na,b,5,fw\n");
     for (text, needle) in [
-        ("function,gain,site,capacity\nfw,1,a,5\nfw,0.5,b,5\n", "has gain 0.5 here and 1"),
-        ("function,site,capacity\nfw,a,5\n", "has no `gain` on any row"),
-        ("function,gain,site,capacity\nfw,1,z,5\n", "site \"z\" is not in the sites CSV"),
-        ("function,gain,site,capacity\nfw,1,a,5\nfw,,a,6\n", "is given twice"),
-        ("function,gain,site\nfw,1,a\n", "without a `capacity` or an `expand_cost`"),
+        (
+            "function,gain,site,capacity\nfw,1,a,5\nfw,0.5,b,5\n",
+            "has gain 0.5 here and 1",
+        ),
+        (
+            "function,site,capacity\nfw,a,5\n",
+            "has no `gain` on any row",
+        ),
+        (
+            "function,gain,site,capacity\nfw,1,z,5\n",
+            "site \"z\" is not in the sites CSV",
+        ),
+        (
+            "function,gain,site,capacity\nfw,1,a,5\nfw,,a,6\n",
+            "is given twice",
+        ),
+        (
+            "function,gain,site\nfw,1,a\n",
+            "without a `capacity` or an `expand_cost`",
+        ),
     ] {
         let functions = write("f.csv", text);
-        let out = dir.join("net.json");
-        let run = redoubt(&[
-            "import",
-            "csv",
-            "--sites",
-            common::s(&sites),
-            "--links",
-            common::s(&links),
-            "--demands",
-            common::s(&demands),
-            "--functions",
-            common::s(&functions),
-            "--json",
-            common::s(&out),
-        ]);
+        let run = import_csv(
+            [&sites, &links, &demands, &functions],
+            &dir.join("net.json"),
+            None,
+        );
         assert_eq!(run.code, 2, "{text}: {}", run.stdout);
         assert!(run.stderr.contains(needle), "{needle:?} in {}", run.stderr);
     }

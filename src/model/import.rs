@@ -86,6 +86,19 @@ struct SiteOut {
     y: Option<f64>,
 }
 
+impl SiteOut {
+    /// The site as the file contract's entry. O(id).
+    fn file(&self) -> SiteFile {
+        SiteFile {
+            id: self.id.clone(),
+            processing: Some(self.processing),
+            x: self.x,
+            y: self.y,
+            ..SiteFile::default()
+        }
+    }
+}
+
 /// One link of an imported topology, as written (keys sorted).
 #[derive(Debug, Clone, Serialize)]
 struct LinkOut {
@@ -94,6 +107,20 @@ struct LinkOut {
     id: String,
     one_way: bool,
     to: String,
+}
+
+impl LinkOut {
+    /// The link as the file contract's entry. O(ids).
+    fn file(&self) -> LinkFile {
+        LinkFile {
+            id: self.id.clone(),
+            from: self.from.clone(),
+            to: self.to.clone(),
+            capacity: self.capacity,
+            one_way: Some(self.one_way),
+            ..LinkFile::default()
+        }
+    }
 }
 
 /// One demand as written (keys sorted); borrowed, made while it is written.
@@ -173,29 +200,8 @@ impl NodeLink {
     pub fn network(&self) -> Result<Network> {
         let file = NetworkFile {
             name: Some(self.name.clone()),
-            sites: self
-                .sites
-                .iter()
-                .map(|s| SiteFile {
-                    id: s.id.clone(),
-                    processing: Some(s.processing),
-                    x: s.x,
-                    y: s.y,
-                    ..SiteFile::default()
-                })
-                .collect(),
-            links: self
-                .links
-                .iter()
-                .map(|l| LinkFile {
-                    id: l.id.clone(),
-                    from: l.from.clone(),
-                    to: l.to.clone(),
-                    capacity: l.capacity,
-                    one_way: Some(l.one_way),
-                    ..LinkFile::default()
-                })
-                .collect(),
+            sites: self.sites.iter().map(SiteOut::file).collect(),
+            links: self.links.iter().map(LinkOut::file).collect(),
             ..NetworkFile::default()
         };
         let (volume, required) = self.demands.each.unwrap_or((0.0, 0.0));
@@ -766,7 +772,9 @@ fn functions_csv(file: CsvFile, sites: &mut [Value]) -> Result<Value> {
         .into_iter()
         .map(|(id, gain, notes)| {
             let gain = gain.ok_or_else(|| {
-                input(format!("{path} (functions CSV): function {id:?} has no `gain` on any row"))
+                input(format!(
+                    "{path} (functions CSV): function {id:?} has no `gain` on any row"
+                ))
             })?;
             let mut f = json!({"id": id, "gain": gain});
             if let Some(n) = notes {

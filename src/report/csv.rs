@@ -130,7 +130,9 @@ fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
 /// site with the highest shadow price (`FUNCTION@SITE`, empty when none binds) and that
 /// price. O(sites · functions).
 fn chain_cells(net: &crate::model::Network, e: &crate::solve::Evaluation) -> [String; 3] {
-    let top = super::text::priced_functions(net, e, false).into_iter().next();
+    let top = super::text::priced_functions(net, e, false)
+        .into_iter()
+        .next();
     let ch = net.chains.as_ref();
     [
         e.delivered.map(number).unwrap_or_default(),

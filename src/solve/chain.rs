@@ -917,8 +917,7 @@ pub(crate) fn finish_chain(
     e.functions = functions
         .into_iter()
         .map(|u| FunctionUse {
-            load: super::simplest_in(u.load - load_eps, u.load + load_eps, u.load.round())
-                .max(0.0),
+            load: super::simplest_in(u.load - load_eps, u.load + load_eps, u.load.round()).max(0.0),
             price: u.price.map(|p| super::finish::snap(p, 0.0, 1.0)),
             ..u
         })

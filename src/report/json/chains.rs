@@ -37,11 +37,12 @@ gains alone)";
 
 /// `delivered_range` of a scenario object. O(demands · chain).
 pub fn delivered_range_json(net: &Network, e: &Evaluation) -> Option<DeliveredRangeJson> {
-    e.delivered_range(net).map(|(least, most)| DeliveredRangeJson {
-        least: file_num(least),
-        most: file_num(most),
-        note: RANGE_NOTE,
-    })
+    e.delivered_range(net)
+        .map(|(least, most)| DeliveredRangeJson {
+            least: file_num(least),
+            most: file_num(most),
+            note: RANGE_NOTE,
+        })
 }
 
 /// `functions` of a scenario object, in (site, function) order. O(sites · functions).

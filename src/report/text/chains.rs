@@ -44,7 +44,11 @@ pub fn function_name(net: &Network, site: usize, function: usize) -> String {
 /// The priced functions of a scenario with a shortfall, highest shadow price first (ties in
 /// (site, function) order), only those that can be bought when `expandable`: `(site,
 /// function, price)`. O(sites · functions · log).
-pub fn priced_functions(net: &Network, e: &Evaluation, expandable: bool) -> Vec<(usize, usize, f64)> {
+pub fn priced_functions(
+    net: &Network,
+    e: &Evaluation,
+    expandable: bool,
+) -> Vec<(usize, usize, f64)> {
     let Some(ch) = net.chains.as_ref() else {
         return Vec::new();
     };

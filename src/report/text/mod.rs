@@ -31,7 +31,9 @@ pub use audit::{audit_report, under_matrix, verdict, verification_summary, write
 pub use chains::{delivered_line, functions_section, marginal_functions, priced_functions};
 pub use check::{check_summary, write_check};
 pub use compare::write_compare;
-pub(crate) use compare::{change_words, edit_value, scenario_words, signed, verdict_line};
+pub(crate) use compare::{
+    CHANGE_COLUMNS, change_words, edit_value, scenario_words, signed, verdict_line,
+};
 pub use gates::gate_line;
 pub use plan::{closing_report, plan_report, relief_report, write_plan};
 pub use risk::risk_report;
@@ -157,7 +159,7 @@ pub fn caution() -> String {
 }
 
 /// The first `k` items joined with commas, `(+N more)` for the rest, `—` when empty.
-fn first_k(items: impl ExactSizeIterator<Item = String>, k: usize) -> String {
+pub(crate) fn first_k(items: impl ExactSizeIterator<Item = String>, k: usize) -> String {
     let total = items.len();
     let mut parts: Vec<String> = items.take(k).collect();
     if total > k {
