@@ -463,3 +463,43 @@ fn the_functions_csv_is_refused_where_it_is_unclear() {
         assert!(run.stderr.contains(needle), "{needle:?} in {}", run.stderr);
     }
 }
+
+#[test]
+fn check_says_what_each_function_takes_at_full_service() {
+    // Demo (fixtures/demo-quillhaven-chains.json), by hand: firewall > dpi 40, scrub 30,
+    // transcode > dpi 24, plain 20. firewall takes 40; dpi takes 40 · 1 (after firewall,
+    // gain 1) + 24 · 0.5 (after transcode) = 52; scrub 30; transcode 24. Delivered
+    // 20 + 40 + 30 · 0.9 + 24 · 0.5 · 1 = 99.
+    let demo = common::fixture("demo-quillhaven-chains.json");
+    let run = redoubt(&["check", common::s(&demo)]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let text = flat(&run.stdout);
+    for needle in [
+        "delivered when every demand's required part is served: 99 Gbit/s",
+        "firewall — gain 1; capacity 60: ambermoor 60; needed 40",
+        "(cost 2/unit, up to 40); needed 52",
+        "(cost 3/unit, up to 20); needed 30",
+        "(cost 1/unit, up to 30); needed 24",
+    ] {
+        assert!(text.contains(needle), "{needle:?} in {}", run.stdout);
+    }
+    // The fw–dpi path with a third function nobody uses: fw takes the 10 required (more
+    // than its 6), dpi takes 10 · 0.5 = 5.
+    let mut net = fw_dpi_path();
+    net["functions"]
+        .as_array_mut()
+        .unwrap()
+        .push(json!({"id": "nat", "gain": 1}));
+    let file = TempPath::with_text("fw-dpi-check", &net.to_string());
+    let run = redoubt(&["check", file.path()]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let text = flat(&run.stdout);
+    for needle in [
+        "needed 10 (more than its capacity)",
+        "dpi — gain 1; capacity 20: c 20; needed 5",
+        "nat — gain 1; capacity 0: none; in no demand's chain",
+        "delivered when every demand's required part is served: 5 Gbit/s",
+    ] {
+        assert!(text.contains(needle), "{needle:?} in {}", run.stdout);
+    }
+}
