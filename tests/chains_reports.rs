@@ -321,6 +321,8 @@ fn csv_html_and_markdown_show_the_json_figures() {
             f["function"].as_str().unwrap()
         )));
     }
+    assert!(md.contains("- Every unit passes its demand's chain of functions in order"));
+    assert!(!md.contains("Every unit is processed once"), "{md}");
     assert!(md.contains("Caution: a planning aid"));
     assert!(html.contains("Caution: a planning aid"));
 }

@@ -110,3 +110,19 @@ pub fn functions_markdown(
     let (head, rows) = function_table(net, e);
     table_md(o, &head, &rows)
 }
+
+/// The second assumption of a network with functions, in place of "every unit is
+/// processed once".
+const CHAIN_ASSUMPTION: &str = "Every unit passes its demand's chain of functions in order, \
+each at a site that runs it, within that function's capacity there; each function scales the \
+volume by its constant gain (plain traffic passes none).";
+
+/// The assumptions a report on `net` lists: [`super::html::ASSUMPTIONS`], with the chain
+/// model's in place of single processing when the file lists functions. O(1).
+pub fn assumptions(net: &Network) -> [&'static str; 5] {
+    let mut a = super::html::ASSUMPTIONS;
+    if net.chains.is_some() {
+        a[1] = CHAIN_ASSUMPTION;
+    }
+    a
+}

@@ -776,7 +776,7 @@ pub fn html(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
         }
     }
     o.write_str("</tbody></table>\n<h2>Assumptions of the model</h2>\n<ul>")?;
-    for a in ASSUMPTIONS {
+    for a in super::chains::assumptions(r.net) {
         write!(o, "<li>{}</li>", esc(a))?;
     }
     o.write_str("</ul>\n")?;

@@ -563,54 +563,6 @@ fn scale_walks(net: &Network, ch: &Chains, layered: &Layered, walks: &mut [Layer
     }
 }
 
-/// Every (site, function) with capacity at a site of `view` that runs it, in (site,
-/// function) order: the traffic `walks` put into it (in the units its capacity counts) and
-/// its price from `fn_price` (`None` without a row in `layered`; 0 where the row was
-/// lowered below the real capacity, which then does not bind). O(Σ walk lengths + sites ·
-/// functions · log).
-pub(crate) fn function_use(
-    net: &Network,
-    view: &Surviving,
-    layered: &Layered,
-    walks: &[LayeredWalk],
-    fn_price: &BTreeMap<(SiteIdx, FunctionIdx), f64>,
-) -> Vec<FunctionUse> {
-    let ch = net.chains.as_ref().expect("a network with functions");
-    let mut load: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
-    for w in walks {
-        let group = &layered.groups[w.group];
-        for e in &w.edges {
-            if let EdgeKind::Function { site, layer } = *e {
-                *load.entry((site, group.chain[layer])).or_default() +=
-                    w.flow * group.cumulative[layer];
-            }
-        }
-    }
-    let mut out = Vec::new();
-    for v in 0..net.sites.len() {
-        for f in 0..ch.functions.len() {
-            if ch.capacity[v][f] <= 0.0 || !runs(ch, view, v, f) {
-                continue;
-            }
-            let key = (v, f);
-            let price = layered.function_row.get(&key).map(|_| {
-                if layered.function_cap[&key] < ch.capacity[v][f] {
-                    0.0
-                } else {
-                    fn_price.get(&key).copied().unwrap_or(0.0).max(0.0)
-                }
-            });
-            out.push(FunctionUse {
-                site: v,
-                function: f,
-                load: load.get(&key).copied().unwrap_or(0.0),
-                price,
-            });
-        }
-    }
-    out
-}
-
 /// The dual bound of the layered model for nonnegative prices `arc_price` (per arc) and
 /// `fn_price` (per (site, function) row), over `layered`'s demands: `Σ arc_cap·y +
 /// Σ function_cap·z + Σ_d cap_d · max(0, 1 − π_d)`, `π_d` the cheapest layered walk of
@@ -708,7 +660,8 @@ pub fn solve_verified_with(
     let site_has_row = vec![false; net.sites.len()];
     if model.num_vars() == 0 {
         let (allocation, walks) = repair(net, &layered, &[]);
-        let functions = function_use(net, view, &layered, &walks, &BTreeMap::new());
+        let functions =
+            super::chain_use::function_use(net, view, &layered, &walks, &BTreeMap::new());
         return Ok((
             Verified {
                 allocation,
@@ -790,7 +743,13 @@ pub fn solve_verified_with(
                 arc_has_row: arc_has_row.clone(),
                 site_has_row: site_has_row.clone(),
                 bound_price: (Vec::new(), Vec::new()),
-                functions: function_use(net, view, &layered, &walks, &BTreeMap::new()),
+                functions: super::chain_use::function_use(
+                    net,
+                    view,
+                    &layered,
+                    &walks,
+                    &BTreeMap::new(),
+                ),
             });
         }
         let b = best.as_mut().expect("set above");
@@ -817,7 +776,7 @@ pub fn solve_verified_with(
     out.bound_price = (best_arc_price, Vec::new());
     // The loads of the kept allocation, the prices that gave the kept upper bound (as
     // `arc_price` above).
-    let priced = function_use(net, view, &layered, &[], &best_fn_price);
+    let priced = super::chain_use::function_use(net, view, &layered, &[], &best_fn_price);
     for (u, p) in out.functions.iter_mut().zip(priced) {
         u.price = p.price;
     }

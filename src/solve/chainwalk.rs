@@ -921,7 +921,7 @@ fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) -> Verified {
         arc_has_row: layered.arc_row.iter().map(Option::is_some).collect(),
         site_has_row: vec![false; net.sites.len()],
         bound_price: (arc_price, Vec::new()),
-        functions: chain::function_use(net, view, layered, &walks, &fn_price),
+        functions: super::chain_use::function_use(net, view, layered, &walks, &fn_price),
     }
 }
 

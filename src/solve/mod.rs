@@ -20,6 +20,7 @@ pub mod approx;
 pub mod cancel;
 pub mod certify;
 pub mod chain;
+mod chain_use;
 pub mod chainwalk;
 pub mod colgen;
 pub mod concurrent;

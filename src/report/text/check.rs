@@ -136,7 +136,7 @@ fn chains_summary(out: &mut String, net: &Network, ch: &crate::model::Chains) {
     );
     let _ = writeln!(
         out,
-        "  functions ({}; needed = what each takes when every required part is served):",
+        "  functions ({}) (needed: what each takes when every required part is served):",
         ch.functions.len()
     );
     for (f, func) in ch.functions.iter().enumerate() {
