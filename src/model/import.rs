@@ -611,7 +611,8 @@ fn csv_objects(file: CsvFile, what: &str, columns: &[(&str, Kind)]) -> Result<Ve
 
 /// Converts three CSV files (sites, links, demands; header rows with the JSON field names;
 /// `risk_groups` and a demand's `chain` as `;`-separated lists) and, for service chains,
-/// a fourth ([`functions_csv`]) into the network format. O(total size).
+/// a fourth (functions with their gains and per-site capacities, `functions_csv`) into
+/// the network format. O(total size).
 pub fn from_csv(
     name: &str,
     sites: CsvFile,

@@ -87,28 +87,21 @@ pub fn functions_html(o: &mut dyn fmt::Write, net: &Network, e: &Evaluation) -> 
     table_html(o, &head, &rows, &[2, 3, 4, 5])
 }
 
-/// The Markdown section of the worst scenario's function table, when the file lists
-/// functions and a scenario is short. O(sites · functions).
-pub fn functions_markdown(
-    o: &mut dyn fmt::Write,
-    r: &Report<'_>,
-    table_md: &dyn Fn(&mut dyn fmt::Write, &[String], &[Vec<String>]) -> fmt::Result,
-) -> fmt::Result {
-    let Some(i) = r.worst_short() else {
-        return Ok(());
-    };
-    if r.net.chains.is_none() {
-        return Ok(());
-    }
+/// The title, header and rows of the worst scenario's function table, when the file lists
+/// functions and a scenario is short (the Markdown report's section). O(sites · functions).
+pub fn worst_functions(r: &Report<'_>) -> Option<(String, Vec<String>, Vec<Vec<String>>)> {
+    let i = r.worst_short()?;
+    r.net.chains.as_ref()?;
     let net = r.net.view(r.audit.scenarios[i].matrix);
-    let e = r.audit.eval(i);
-    writeln!(
-        o,
-        "## Functions in the worst scenario ({})\n",
-        r.audit.scenarios[i].display_name()
-    )?;
-    let (head, rows) = function_table(net, e);
-    table_md(o, &head, &rows)
+    let (head, rows) = function_table(net, r.audit.eval(i));
+    Some((
+        format!(
+            "Functions in the worst scenario ({})",
+            r.audit.scenarios[i].display_name()
+        ),
+        head,
+        rows,
+    ))
 }
 
 /// The second assumption of a network with functions, in place of "every unit is

@@ -111,7 +111,10 @@ pub fn markdown(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
         }
         None => o.write_str("No scenario is short.\n\n")?,
     }
-    super::chains::functions_markdown(o, r, &table_md)?;
+    if let Some((title, head, rows)) = super::chains::worst_functions(r) {
+        writeln!(o, "## {title}\n")?;
+        table_md(o, &head, &rows)?;
+    }
     if let Some((head, rows)) = r.closing_table() {
         o.write_str("## Closing the gaps\n\n")?;
         table_md(o, &head, &rows)?;

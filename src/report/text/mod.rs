@@ -82,10 +82,10 @@ pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
         };
     }
     // With service chains a function's row may price higher than every link.
-    if let Some((s, f, p)) = chains::priced_functions(net, e, false).into_iter().next() {
-        if saturated.is_none_or(|b| p >= b.price) {
-            return format!("saturated {}", chains::function_name(net, s, f));
-        }
+    if let Some((s, f, p)) = chains::priced_functions(net, e, false).into_iter().next()
+        && saturated.is_none_or(|b| p >= b.price)
+    {
+        return format!("saturated {}", chains::function_name(net, s, f));
     }
     match saturated {
         Some(b) => match b.resource {
