@@ -97,9 +97,12 @@ pub struct CsvArgs {
     /// Links: id, from, to, capacity, one_way, risk_groups (`;`-separated), metric, failure_probability, notes.
     #[arg(long, value_name = "FILE")]
     pub links: PathBuf,
-    /// Demands: id, from, to, volume, required, notes.
+    /// Demands: id, from, to, volume, required, chain (`;`-separated function ids, with --functions), notes.
     #[arg(long, value_name = "FILE")]
     pub demands: PathBuf,
+    /// Service chains: one row per function and site: function, gain, site, capacity, expand_cost, expand_max, notes (a row without site only declares the function).
+    #[arg(long, value_name = "FILE")]
+    pub functions: Option<PathBuf>,
     /// Write the network here.
     #[arg(long, value_name = "FILE")]
     pub json: PathBuf,

@@ -277,8 +277,9 @@ fn shortcut_outages_match_the_per_demand_reference() {
         cases.extend((0..t.processing.len()).map(|v| (vec![v], vec![])));
         cases.extend((0..t.links.len()).map(|l| (vec![], vec![l])));
         for (sites, links) in cases {
-            let mut elements: Vec<Element> = sites.iter().map(|&v| Element::Site(v)).collect();
-            elements.extend(links.iter().map(|&l| Element::Link(l)));
+            let mut elements: Vec<Element> =
+                sites.iter().map(|&v| Element::Site(v.into())).collect();
+            elements.extend(links.iter().map(|&l| Element::Link(l.into())));
             let o = Scenario::new(&net, &elements).outage(&net);
             let view = Surviving::new(&net, &o, None);
             let (got, _, work) = headroom_walks(&net, &view, columns.as_ref()).expect("walks");

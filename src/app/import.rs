@@ -68,18 +68,29 @@ pub(super) fn run(
             sites,
             links,
             demands,
+            functions,
             json,
             name,
         } => {
-            let ins = [sites.as_path(), links.as_path(), demands.as_path()];
+            let mut ins = vec![sites.as_path(), links.as_path(), demands.as_path()];
+            ins.extend(functions.as_deref());
             report::file::check_output("--json", json, &ins)?;
-            let texts = [read_text(sites)?, read_text(links)?, read_text(demands)?];
-            let shown = ins.map(|p| p.display().to_string());
+            let texts = ins
+                .iter()
+                .map(|p| read_text(p))
+                .collect::<Result<Vec<String>>>()?;
+            let shown: Vec<String> = ins.iter().map(|p| p.display().to_string()).collect();
             let file = |i: usize| model::import::CsvFile {
                 path: &shown[i],
                 text: &texts[i],
             };
-            let doc = model::import::from_csv(name, file(0), file(1), file(2))?;
+            let doc = model::import::from_csv(
+                name,
+                file(0),
+                file(1),
+                file(2),
+                functions.as_ref().map(|_| file(3)),
+            )?;
             let text = report::json::to_string(&doc);
             let net = Network::from_json(&text).map_err(not_valid(&ins))?;
             report::file::write_atomic(json, |w| report::json::write_pretty(w, &doc))?;

@@ -175,6 +175,8 @@ pub enum ImportOptions {
         sites: PathBuf,
         links: PathBuf,
         demands: PathBuf,
+        /// The functions CSV of a network with service chains.
+        functions: Option<PathBuf>,
         json: PathBuf,
         name: String,
     },
@@ -516,6 +518,7 @@ fn import(from: cli::ImportFrom) -> ImportOptions {
             sites: a.sites,
             links: a.links,
             demands: a.demands,
+            functions: a.functions,
             json: a.json,
             name: a.name,
         },

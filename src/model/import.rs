@@ -7,7 +7,8 @@
 //!   highest degree, ties in file order) and a demand (one per ordered pair of sites, with
 //!   a required fraction).
 //! - [`from_csv`]: three CSV files with header rows (sites, links, demands) for spreadsheet
-//!   users; columns are named like the JSON fields.
+//!   users, and a fourth (functions, with their gains and per-site capacities) for service
+//!   chains; columns are named like the JSON fields.
 //!
 //! Both return a JSON document in the contract's shape; the caller validates it with
 //! [`super::Network::from_json`] like any file, so every rule of the format applies.
@@ -85,6 +86,19 @@ struct SiteOut {
     y: Option<f64>,
 }
 
+impl SiteOut {
+    /// The site as the file contract's entry. O(id).
+    fn file(&self) -> SiteFile {
+        SiteFile {
+            id: self.id.clone(),
+            processing: Some(self.processing),
+            x: self.x,
+            y: self.y,
+            ..SiteFile::default()
+        }
+    }
+}
+
 /// One link of an imported topology, as written (keys sorted).
 #[derive(Debug, Clone, Serialize)]
 struct LinkOut {
@@ -93,6 +107,20 @@ struct LinkOut {
     id: String,
     one_way: bool,
     to: String,
+}
+
+impl LinkOut {
+    /// The link as the file contract's entry. O(ids).
+    fn file(&self) -> LinkFile {
+        LinkFile {
+            id: self.id.clone(),
+            from: self.from.clone(),
+            to: self.to.clone(),
+            capacity: self.capacity,
+            one_way: Some(self.one_way),
+            ..LinkFile::default()
+        }
+    }
 }
 
 /// One demand as written (keys sorted); borrowed, made while it is written.
@@ -172,29 +200,8 @@ impl NodeLink {
     pub fn network(&self) -> Result<Network> {
         let file = NetworkFile {
             name: Some(self.name.clone()),
-            sites: self
-                .sites
-                .iter()
-                .map(|s| SiteFile {
-                    id: s.id.clone(),
-                    processing: Some(s.processing),
-                    x: s.x,
-                    y: s.y,
-                    ..SiteFile::default()
-                })
-                .collect(),
-            links: self
-                .links
-                .iter()
-                .map(|l| LinkFile {
-                    id: l.id.clone(),
-                    from: l.from.clone(),
-                    to: l.to.clone(),
-                    capacity: l.capacity,
-                    one_way: Some(l.one_way),
-                    ..LinkFile::default()
-                })
-                .collect(),
+            sites: self.sites.iter().map(SiteOut::file).collect(),
+            links: self.links.iter().map(LinkOut::file).collect(),
             ..NetworkFile::default()
         };
         let (volume, required) = self.demands.each.unwrap_or((0.0, 0.0));
@@ -603,10 +610,18 @@ fn csv_objects(file: CsvFile, what: &str, columns: &[(&str, Kind)]) -> Result<Ve
 }
 
 /// Converts three CSV files (sites, links, demands; header rows with the JSON field names;
-/// `risk_groups` as a `;`-separated list) into the network format. O(total size).
-pub fn from_csv(name: &str, sites: CsvFile, links: CsvFile, demands: CsvFile) -> Result<Value> {
+/// `risk_groups` and a demand's `chain` as `;`-separated lists) and, for service chains,
+/// a fourth (functions with their gains and per-site capacities, `functions_csv`) into
+/// the network format. O(total size).
+pub fn from_csv(
+    name: &str,
+    sites: CsvFile,
+    links: CsvFile,
+    demands: CsvFile,
+    functions: Option<CsvFile>,
+) -> Result<Value> {
     use Kind::*;
-    let sites = csv_objects(
+    let mut sites = csv_objects(
         sites,
         "sites",
         &[
@@ -645,10 +660,131 @@ pub fn from_csv(name: &str, sites: CsvFile, links: CsvFile, demands: CsvFile) ->
             ("to", Text),
             ("volume", Number),
             ("required", Number),
+            ("chain", List),
             ("notes", Text),
         ],
     )?;
-    Ok(json!({"name": name, "sites": sites, "links": links, "demands": demands}))
+    let mut doc = json!({"name": name});
+    if let Some(file) = functions {
+        doc["functions"] = functions_csv(file, &mut sites)?;
+    }
+    doc["sites"] = Value::Array(sites);
+    doc["links"] = Value::Array(links);
+    doc["demands"] = Value::Array(demands);
+    Ok(doc)
+}
+
+/// Reads the functions CSV of a network with service chains: one row per function and
+/// site (`function`, `gain`, `site`, `capacity`, `expand_cost`, `expand_max`, `notes`).
+/// A row's `capacity` and `expand_cost`/`expand_max` go into that site's `functions` and
+/// `expand` (in `sites`, the sites CSV's objects); a row without `site` only declares the
+/// function. Each function's `gain` is given on at least one of its rows and is the same
+/// wherever it is repeated. Returns the top-level `functions` list, in order of first
+/// appearance. Refuses, naming the row: no `function`, a site not in the sites CSV, the
+/// same function twice at one site, a gain missing or given twice differently, a site
+/// column without a capacity or a purchase. O(rows · log + sites).
+fn functions_csv(file: CsvFile, sites: &mut [Value]) -> Result<Value> {
+    use Kind::*;
+    let path = file.path;
+    let rows = csv_objects(
+        file,
+        "functions",
+        &[
+            ("function", Text),
+            ("gain", Number),
+            ("site", Text),
+            ("capacity", Number),
+            ("expand_cost", Number),
+            ("expand_max", Number),
+            ("notes", Text),
+        ],
+    )?;
+    let index: BTreeMap<String, usize> = sites
+        .iter()
+        .enumerate()
+        .filter_map(|(i, s)| Some((s.get("id")?.as_str()?.to_string(), i)))
+        .collect();
+    // Per function in order of first appearance: its gain (once known) and notes.
+    let mut order: Vec<(String, Option<f64>, Option<Value>)> = Vec::new();
+    for (r, row) in rows.iter().enumerate() {
+        let at = format!("{path} (functions CSV) row {}", r + 1);
+        let Some(f) = row.get("function").and_then(Value::as_str) else {
+            return Err(input(format!("{at}: no `function`")));
+        };
+        let k = match order.iter().position(|(id, _, _)| id == f) {
+            Some(k) => k,
+            None => {
+                order.push((f.to_string(), None, None));
+                order.len() - 1
+            }
+        };
+        if let Some(g) = row.get("gain").and_then(Value::as_f64) {
+            match order[k].1 {
+                Some(had) if had != g => {
+                    return Err(input(format!(
+                        "{at}: function {f:?} has gain {g} here and {had} on an earlier row"
+                    )));
+                }
+                _ => order[k].1 = Some(g),
+            }
+        }
+        let Some(site) = row.get("site").and_then(Value::as_str) else {
+            if let Some(n) = row.get("notes") {
+                order[k].2 = Some(n.clone());
+            }
+            continue;
+        };
+        let Some(&i) = index.get(site) else {
+            return Err(input(format!(
+                "{at}: site {site:?} is not in the sites CSV"
+            )));
+        };
+        let obj = sites[i].as_object_mut().expect("a CSV row is an object");
+        let mut placed = false;
+        if let Some(c) = row.get("capacity") {
+            let caps = obj.entry("functions").or_insert_with(|| json!({}));
+            if caps.get(f).is_some() {
+                return Err(input(format!(
+                    "{at}: function {f:?} at site {site:?} is given twice"
+                )));
+            }
+            caps[f] = c.clone();
+            placed = true;
+        }
+        if let Some(cost) = row.get("expand_cost") {
+            let mut buy = json!({"cost": cost});
+            if let Some(max) = row.get("expand_max") {
+                buy["max"] = max.clone();
+            }
+            obj.entry("expand").or_insert_with(|| json!({}))[f] = buy;
+            placed = true;
+        } else if row.get("expand_max").is_some() {
+            return Err(input(format!(
+                "{at}: `expand_max` without `expand_cost` (a purchase needs its cost)"
+            )));
+        }
+        if !placed {
+            return Err(input(format!(
+                "{at}: site {site:?} is named without a `capacity` or an `expand_cost`"
+            )));
+        }
+    }
+    order
+        .into_iter()
+        .map(|(id, gain, notes)| {
+            let gain = gain.ok_or_else(|| {
+                input(format!(
+                    "{path} (functions CSV): function {id:?} has no `gain` on any row"
+                ))
+            })?;
+            let mut f = json!({"id": id, "gain": gain});
+            if let Some(n) = notes {
+                f["notes"] = n;
+            }
+            Ok(f)
+        })
+        .collect::<Result<Vec<Value>>>()
+        .map(Value::Array)
 }
 
 #[cfg(test)]

@@ -38,16 +38,7 @@ fn changes(title: &str, note: &str, list: &[Change], unit: &str) -> Section {
     Section {
         title: format!("{title} ({})", list.len()),
         note: format!("{note} Amounts in {unit}."),
-        head: [
-            "failed",
-            "shortfall before",
-            "after",
-            "change",
-            "stranded before",
-            "after",
-        ]
-        .map(String::from)
-        .to_vec(),
+        head: super::text::CHANGE_COLUMNS.map(String::from).to_vec(),
         rows: list
             .iter()
             .map(|c| {

@@ -9,7 +9,9 @@
 //! the baseline); a file with `matrices` adds a `matrix` column after it (one row per
 //! scenario and matrix). Numbers are the JSON document's (rounded with [`super::file_num`]), so the
 //! two files agree exactly. Fields are quoted as RFC 4180 asks (a comma, a quote or a line
-//! break inside; quotes doubled).
+//! break inside; quotes doubled). A file with `functions` adds `delivered`, `top_function`
+//! (`FUNCTION@SITE` with the highest shadow price) and `top_function_price` before
+//! `caution`.
 
 use std::io::{self, Write};
 
@@ -73,6 +75,10 @@ fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
     if m.headroom.is_some() {
         header.push("headroom");
     }
+    let chains = m.net.chains.is_some();
+    if chains {
+        header.extend(["delivered", "top_function", "top_function_price"]);
+    }
     header.push("caution");
     writeln!(w, "{}", header.join(","))?;
     let (rank_of, folding) = (&m.rank_of, &m.folding);
@@ -107,6 +113,9 @@ fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
         if m.headroom.is_some() {
             row.push(super::headroom::csv_cell(m, i));
         }
+        if chains {
+            row.extend(chain_cells(m.net.view(s.matrix), e));
+        }
         row.push(if i == 0 {
             field(super::caution_for(m.net))
         } else {
@@ -115,6 +124,26 @@ fn write_rows(w: &mut dyn Write, m: &Model<'_>) -> io::Result<()> {
         writeln!(w, "{}", row.join(","))?;
     }
     Ok(())
+}
+
+/// The service-chain cells of a scenario's row: the delivered volume, the function at a
+/// site with the highest shadow price (`FUNCTION@SITE`, empty when none binds) and that
+/// price. O(sites · functions).
+fn chain_cells(net: &crate::model::Network, e: &crate::solve::Evaluation) -> [String; 3] {
+    let top = super::text::priced_functions(net, e, false)
+        .into_iter()
+        .next();
+    let ch = net.chains.as_ref();
+    [
+        e.delivered.map(number).unwrap_or_default(),
+        match (top, ch) {
+            (Some((s, f, _)), Some(ch)) => {
+                field(&format!("{}@{}", ch.functions[f].id, net.sites[s].id))
+            }
+            _ => String::new(),
+        },
+        top.map(|t| number(t.2)).unwrap_or_default(),
+    ]
 }
 
 #[cfg(test)]

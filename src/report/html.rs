@@ -96,7 +96,7 @@ impl Model<'_> {
     pub fn summary(&self) -> Vec<(String, String)> {
         let n = self.net;
         let u = &n.unit;
-        vec![
+        let mut facts: Vec<(String, String)> = vec![
             ("network".into(), n.name.clone()),
             ("sites".into(), n.sites.len().to_string()),
             ("links".into(), n.links.len().to_string()),
@@ -123,6 +123,9 @@ impl Model<'_> {
                     )
                 ),
             ),
+        ];
+        facts.extend(super::chains::summary_rows(n, self.baseline));
+        facts.extend([
             (
                 "scenarios".into(),
                 format!(
@@ -135,7 +138,8 @@ impl Model<'_> {
                 "verification".into(),
                 super::text::verification_summary(self.audit),
             ),
-        ]
+        ]);
+        facts
     }
 
     /// The worst-scenarios table: header and rows of text.
@@ -615,6 +619,9 @@ fn why_section(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
                 .join(", ")
         })
     )?;
+    if net.chains.is_some() {
+        return super::chains::functions_html(o, net, e);
+    }
     let mut prices: Vec<(usize, f64)> = e
         .site_price
         .iter()
@@ -769,7 +776,7 @@ pub fn html(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
         }
     }
     o.write_str("</tbody></table>\n<h2>Assumptions of the model</h2>\n<ul>")?;
-    for a in ASSUMPTIONS {
+    for a in super::chains::assumptions(r.net) {
         write!(o, "<li>{}</li>", esc(a))?;
     }
     o.write_str("</ul>\n")?;

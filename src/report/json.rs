@@ -20,6 +20,7 @@ use crate::audit::{Audit, OutageId};
 use crate::model::Network;
 use crate::solve::{Evaluation, Resource};
 
+mod chains;
 mod compare;
 mod plan;
 
@@ -192,6 +193,14 @@ pub struct ScenarioJson {
     /// served_required allocation (origin units times each chain's gain).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub delivered: Option<f64>,
+    /// With service chains, when another optimal allocation may deliver another amount:
+    /// the range every optimal allocation's delivered volume lies in.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub delivered_range: Option<chains::DeliveredRangeJson>,
+    /// With service chains: each function's load, capacity and price at each surviving
+    /// site that runs it.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub functions: Vec<chains::FunctionJson>,
     /// Σ required of the surviving demands.
     pub required: f64,
     pub stranded_volume: f64,
@@ -392,6 +401,8 @@ pub fn scenario_json(
         stranded: file_num(e.stranded),
         throughput: file_num(e.throughput),
         delivered: e.delivered.map(file_num),
+        delivered_range: chains::delivered_range_json(net, e),
+        functions: chains::functions_json(net, e),
         required: file_num(e.surviving_required),
         stranded_volume: file_num(e.stranded_volume),
         throughput_loss: file_diff(baseline.throughput, e.throughput).max(0.0),

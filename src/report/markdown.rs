@@ -5,7 +5,7 @@ use std::fmt;
 use std::io::{self, Write};
 
 use super::export::streamed;
-use super::html::{ASSUMPTIONS, Report};
+use super::html::Report;
 
 /// A cell's text made safe for a Markdown table (pipes escaped, no line breaks).
 fn cell(s: &str) -> String {
@@ -43,7 +43,7 @@ pub fn markdown(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
     let facts: Vec<Vec<String>> = r.summary().into_iter().map(|(k, v)| vec![k, v]).collect();
     table_md(o, &["fact".into(), "value".into()], &facts)?;
     o.write_str("## Assumptions of the model\n\n")?;
-    for a in ASSUMPTIONS {
+    for a in super::chains::assumptions(r.net) {
         writeln!(o, "- {a}")?;
     }
     o.write_str("\n## All scenarios\n\n")?;
@@ -110,6 +110,10 @@ pub fn markdown(o: &mut dyn fmt::Write, r: &Report<'_>) -> fmt::Result {
             )?;
         }
         None => o.write_str("No scenario is short.\n\n")?,
+    }
+    if let Some((title, head, rows)) = super::chains::worst_functions(r) {
+        writeln!(o, "## {title}\n")?;
+        table_md(o, &head, &rows)?;
     }
     if let Some((head, rows)) = r.closing_table() {
         o.write_str("## Closing the gaps\n\n")?;

@@ -5,6 +5,7 @@
 //!
 //! Every exporter writes to a `&mut dyn Write` it is given; nothing here prints.
 
+pub mod chains;
 pub mod compare_page;
 pub mod csv;
 pub mod export;

@@ -7,6 +7,7 @@ use comfy_table::Cell;
 
 use super::model::Model;
 use super::screen;
+use super::text::first_k;
 use serde::Serialize;
 
 use super::{file_num, num, percent, ratio_percent};
@@ -46,19 +47,6 @@ pub fn overloaded_names(net: &Network, o: &Offered) -> Vec<String> {
         .collect();
     v.sort();
     v
-}
-
-fn first_k(items: Vec<String>, k: usize) -> String {
-    let total = items.len();
-    let mut parts: Vec<String> = items.into_iter().take(k).collect();
-    if total > k {
-        parts.push(format!("(+{} more)", total - k));
-    }
-    if parts.is_empty() {
-        "—".into()
-    } else {
-        parts.join(", ")
-    }
 }
 
 fn describe(mode: Mode) -> &'static str {
@@ -105,7 +93,7 @@ pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
             num(b.best.served_required),
             util_text(o.max_link_util),
             util_text(o.max_site_util),
-            first_k(overloaded_names(net, o), CELL_ITEMS),
+            first_k(overloaded_names(net, o).into_iter(), CELL_ITEMS),
         );
     }
     let order = &model.order;
@@ -154,8 +142,8 @@ pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
             Cell::new(num(ra.recoverable(k.0))),
             Cell::new(util_text(o.max_link_util)),
             Cell::new(util_text(o.max_site_util)),
-            Cell::new(first_k(overloaded_names(net, o), CELL_ITEMS)),
-            Cell::new(first_k(moved, CELL_ITEMS)),
+            Cell::new(first_k(overloaded_names(net, o).into_iter(), CELL_ITEMS)),
+            Cell::new(first_k(moved.into_iter(), CELL_ITEMS)),
         ]);
         t.add_row(row);
     }
@@ -197,7 +185,7 @@ pub fn routing_report(model: &Model<'_>, ra: &RoutedAudit) -> String {
             out,
             "Short under {m} routing but fully served by a re-route ({}): {}",
             only.len(),
-            first_k(only, top)
+            first_k(only.into_iter(), top)
         );
     }
     screen::finish(&out)

@@ -285,6 +285,7 @@ fn verify_fixed(
             arc_has_row: Vec::new(),
             site_has_row: Vec::new(),
             bound_price: (Vec::new(), Vec::new()),
+            functions: Vec::new(),
         });
         best_upper = 0.0;
     }
@@ -335,6 +336,7 @@ fn verify_fixed(
                 site_price: Vec::new(),
                 arc_has_row: Vec::new(),
                 site_has_row: Vec::new(),
+                functions: Vec::new(),
                 bound_price: (Vec::new(), Vec::new()),
             });
         }

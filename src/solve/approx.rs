@@ -791,6 +791,7 @@ fn verified(
             .map(|v| view.can_process[v] && site_cap[v] > 0.0)
             .collect(),
         bound_price: (arc_price, site_price),
+        functions: Vec::new(),
     }
 }
 

@@ -35,7 +35,7 @@ use super::edge::better_attempt;
 use super::evaluator::{AddModel, Evaluated, Evaluator, Warm};
 use super::lp::{Backend, Lp, Sense};
 use super::surviving::{Surviving, Unservable};
-use super::types::{Evaluation, Verification, Verified};
+use super::types::{Evaluation, FunctionUse, Verification, Verified};
 use super::{RESIDUAL_TOL, finish_with, ladder, needs_volume_lp, verify};
 use crate::error::{Error, Result};
 use crate::model::{Chains, FunctionIdx, Network};
@@ -661,7 +661,9 @@ pub fn solve_verified_with(
     let arc_has_row: Vec<bool> = layered.arc_row.iter().map(Option::is_some).collect();
     let site_has_row = vec![false; net.sites.len()];
     if model.num_vars() == 0 {
-        let (allocation, _) = repair(net, &layered, &[]);
+        let (allocation, walks) = repair(net, &layered, &[]);
+        let functions =
+            super::chain_use::function_use(net, view, &layered, &walks, &BTreeMap::new());
         return Ok((
             Verified {
                 allocation,
@@ -672,6 +674,7 @@ pub fn solve_verified_with(
                 arc_has_row,
                 site_has_row,
                 bound_price: (Vec::new(), Vec::new()),
+                functions,
             },
             cut_off,
         ));
@@ -691,6 +694,7 @@ pub fn solve_verified_with(
     let mut best: Option<Verified> = None;
     let mut best_upper = f64::INFINITY;
     let mut best_arc_price = vec![0.0; net.arcs.len()];
+    let mut best_fn_price = BTreeMap::new();
     let mut errors = Vec::new();
     for (attempt, backend) in ladder.iter().enumerate() {
         super::cancel::check()?;
@@ -703,7 +707,7 @@ pub fn solve_verified_with(
             Err(e) => return Err(e),
         };
         let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
-        let (allocation, _) = repair(net, &layered, &solution.x);
+        let (allocation, walks) = repair(net, &layered, &solution.x);
         let arc_price: Vec<f64> = layered
             .arc_row
             .iter()
@@ -718,6 +722,7 @@ pub fn solve_verified_with(
         if upper < best_upper {
             best_upper = upper;
             best_arc_price = arc_price;
+            best_fn_price = fn_price;
         }
         let lp_value: f64 = layered
             .demand_var
@@ -740,6 +745,13 @@ pub fn solve_verified_with(
                 arc_has_row: arc_has_row.clone(),
                 site_has_row: site_has_row.clone(),
                 bound_price: (Vec::new(), Vec::new()),
+                functions: super::chain_use::function_use(
+                    net,
+                    view,
+                    &layered,
+                    &walks,
+                    &BTreeMap::new(),
+                ),
             });
         }
         let b = best.as_mut().expect("set above");
@@ -764,6 +776,12 @@ pub fn solve_verified_with(
         })
         .collect();
     out.bound_price = (best_arc_price, Vec::new());
+    // The loads of the kept allocation, the prices that gave the kept upper bound (as
+    // `arc_price` above).
+    let priced = super::chain_use::function_use(net, view, &layered, &[], &best_fn_price);
+    for (u, p) in out.functions.iter_mut().zip(priced) {
+        u.price = p.price;
+    }
     Ok((out, cut_off))
 }
 
@@ -843,6 +861,7 @@ pub(crate) fn finish_chain(
     solved: Verified,
     volume: Option<Verified>,
 ) -> Evaluation {
+    let functions = solved.functions.clone();
     let mut e = finish_with(net, view, cut_off, solved, volume);
     // Shown as the plainest number within solver noise of the delivered volume at stake
     // (Σ required · gain over the surviving demands), as every reported amount is.
@@ -854,5 +873,16 @@ pub(crate) fn finish_chain(
     let x = delivered(net, &e.demand_flow);
     let eps = crate::tol::NOISE * at_stake;
     e.delivered = Some(super::simplest_in(x - eps, x + eps, x.round()).max(0.0));
+    // Loads shown as the plainest number within solver noise of the required demand at
+    // stake; prices snapped to 0 within solver noise, as the arc prices are.
+    let load_eps = crate::tol::NOISE * e.surviving_required;
+    e.functions = functions
+        .into_iter()
+        .map(|u| FunctionUse {
+            load: super::simplest_in(u.load - load_eps, u.load + load_eps, u.load.round()).max(0.0),
+            price: u.price.map(|p| super::finish::snap(p, 0.0, 1.0)),
+            ..u
+        })
+        .collect();
     e
 }

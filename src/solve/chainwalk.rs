@@ -881,7 +881,7 @@ fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) -> Verified {
         .flat_map(|g| &g.demands)
         .map(|&d| layered.bound[d])
         .sum();
-    let (allocation, _) = chain::repair(net, layered, x);
+    let (allocation, walks) = chain::repair(net, layered, x);
     let arc_price: Vec<f64> = (0..net.arcs.len())
         .map(|a| {
             if layered.arc_row[a].is_some() {
@@ -924,6 +924,7 @@ fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) -> Verified {
         arc_has_row: layered.arc_row.iter().map(Option::is_some).collect(),
         site_has_row: vec![false; net.sites.len()],
         bound_price: (arc_price, Vec::new()),
+        functions: super::chain_use::function_use(net, view, layered, &walks, &fn_price),
     }
 }
 

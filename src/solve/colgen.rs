@@ -705,6 +705,7 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
         arc_has_row,
         site_has_row: reach.site_reached,
         bound_price: (s.arc_price.clone(), s.site_price.clone()),
+        functions: Vec::new(),
     }
 }
 

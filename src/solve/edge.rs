@@ -118,6 +118,7 @@ pub fn solve_verified_with(
             arc_has_row: vec![false; net.arcs.len()],
             site_has_row: vec![false; net.sites.len()],
             bound_price: (Vec::new(), Vec::new()),
+            functions: Vec::new(),
         });
     }
     let scale = at_stake.max(f64::MIN_POSITIVE);
@@ -182,6 +183,7 @@ pub fn solve_verified_with(
                 site_price: Vec::new(),
                 arc_has_row: index.arc_row.iter().map(Option::is_some).collect(),
                 site_has_row: index.site_row.iter().map(Option::is_some).collect(),
+                functions: Vec::new(),
                 bound_price: (Vec::new(), Vec::new()),
             });
         }

@@ -421,5 +421,6 @@ pub fn finish_with(
         throughput_verification,
         proof,
         delivered: None,
+        functions: Vec::new(),
     }
 }

@@ -20,6 +20,7 @@ pub mod approx;
 pub mod cancel;
 pub mod certify;
 pub mod chain;
+mod chain_use;
 pub mod chainwalk;
 pub mod colgen;
 pub mod concurrent;
@@ -50,7 +51,7 @@ pub(crate) use finish::DemandSplit;
 pub use finish::{NOISE, finish, finish_with, flow_scales, reported_in, shortfall_of, simplest_in};
 use lp::Backend;
 pub use surviving::{Surviving, Unservable};
-pub use types::{Bottleneck, Evaluation, Resource, Verification, Verified};
+pub use types::{Bottleneck, Evaluation, FunctionUse, Resource, Verification, Verified};
 
 /// The tolerances of verification, under the names callers use (defined and explained in
 /// [`crate::tol`]): `TOL` is [`crate::tol::RELATIVE_TOL`], `GAP_TOL` the proof gap

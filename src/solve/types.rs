@@ -6,7 +6,7 @@
 
 use super::surviving::Unservable;
 use super::{recheck, verify};
-use crate::model::{ArcIdx, DemandIdx, LinkIdx, Network, SiteIdx};
+use crate::model::{ArcIdx, DemandIdx, FunctionIdx, LinkIdx, Network, SiteIdx};
 
 /// A saturated resource of an optimal allocation with its shadow price (served units per
 /// added unit of capacity).
@@ -26,6 +26,21 @@ pub enum Resource {
     Arc(ArcIdx),
     /// A site's processing.
     Site(SiteIdx),
+}
+
+/// One function at one site of a network with `functions` in one allocation: the
+/// traffic entering it and the shadow price of its capacity.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct FunctionUse {
+    pub site: SiteIdx,
+    pub function: FunctionIdx,
+    /// Traffic entering the function at this site (origin units times the gain of the
+    /// functions before it in each chain), in the reported allocation.
+    pub load: f64,
+    /// Served origin units per added unit of this function's capacity at this site (its
+    /// shadow price); `None` when the LP had no row for it (no demand could reach it), 0
+    /// when the presolve lowered the row below the capacity (it does not bind then).
+    pub price: Option<f64>,
 }
 
 /// How one LP result was verified.
@@ -138,6 +153,11 @@ pub struct Evaluation {
     /// amount). `None` for a network without `functions`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub delivered: Option<f64>,
+    /// With service chains: every (site, function) with capacity at a surviving site, in
+    /// (site, function) order, with its load and price in the served_required allocation.
+    /// Empty (and absent from journals and part files) for a network without `functions`.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub functions: Vec<FunctionUse>,
 }
 
 impl Evaluation {
@@ -233,6 +253,41 @@ impl Evaluation {
         self.demand_flow.len() != net.demands.len()
     }
 
+    /// With service chains, when the delivered volume may differ between optimal
+    /// allocations: the range `(least, most)` it lies in for every allocation serving
+    /// `served_required` within the caps (each surviving, not cut-off demand at most its
+    /// required), from the chains' gains alone: the most fills the demands with the
+    /// highest total gain first, the least those with the lowest. The network may narrow
+    /// it; the reported `delivered` is inside it. `None` without functions, or when the
+    /// two ends meet within [`crate::tol::RELATIVE_TOL`] of the volume at stake (every
+    /// optimum delivers the same: one gain among the demands that could trade volume, or
+    /// every one of them served in full). O(demands · (chain + log demands)).
+    pub fn delivered_range(&self, net: &Network) -> Option<(f64, f64)> {
+        let ch = net.chains.as_ref()?;
+        let stranded: std::collections::BTreeSet<usize> =
+            self.stranded_demands.iter().map(|d| d.0).collect();
+        let cut: std::collections::BTreeSet<usize> = self.cut_off.iter().map(|c| c.0.0).collect();
+        let mut caps: Vec<(f64, f64)> = (0..net.demands.len())
+            .filter(|d| !stranded.contains(d) && !cut.contains(d))
+            .map(|d| (ch.total_gain(d), net.demands[d].required))
+            .filter(|&(_, r)| r > 0.0)
+            .collect();
+        caps.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let fill = |order: &mut dyn Iterator<Item = &(f64, f64)>| {
+            let (mut left, mut out) = (self.served_required, 0.0);
+            for &(g, r) in order {
+                let f = r.min(left).max(0.0);
+                out += g * f;
+                left -= f;
+            }
+            out
+        };
+        let least = fill(&mut caps.iter());
+        let most = fill(&mut caps.iter().rev());
+        let at_stake: f64 = caps.iter().map(|&(g, r)| g * r).sum();
+        (most - least > crate::tol::RELATIVE_TOL * at_stake).then_some((least, most))
+    }
+
     /// Surviving required demand cut off for `reason` (Σ required of those demands).
     pub fn cut_off_required(&self, net: &Network, reason: Unservable) -> f64 {
         self.cut_off
@@ -274,4 +329,7 @@ pub struct Verified {
     /// Per arc and per site: the prices that gave the upper bound (as the certificate
     /// read them, before rows lowered by the presolve were zeroed above).
     pub bound_price: (Vec<f64>, Vec<f64>),
+    /// With service chains: per (site, function) with capacity at a surviving site, its
+    /// load in `allocation` and its shadow price ([`FunctionUse`]); empty otherwise.
+    pub functions: Vec<FunctionUse>,
 }

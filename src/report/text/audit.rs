@@ -122,6 +122,9 @@ pub fn audit_report(m: &Model<'_>) -> String {
         amount(net.view(audit.baseline_matrix()).total_volume(), u),
         small(baseline.certified_gap())
     );
+    if let Some(line) = delivered_line(net.view(audit.baseline_matrix()), baseline) {
+        let _ = writeln!(out, "{line}");
+    }
     if m.several_matrices() {
         let _ = writeln!(out, "{}", matrices_line(m));
     }
@@ -207,7 +210,12 @@ pub fn audit_report(m: &Model<'_>) -> String {
         if with_headroom {
             row.push(Cell::new(crate::report::headroom::table_cell(m, i)));
         }
-        row.extend([Cell::new(match marginal_sites(net, cands, e, 2) {
+        let helps = if net.chains.is_some() {
+            marginal_functions(net, e, 2)
+        } else {
+            marginal_sites(net, cands, e, 2)
+        };
+        row.extend([Cell::new(match helps {
             m if m == "none" || m == "—" => main_bottleneck(net, e),
             m => format!("{} (one more unit helps at {m})", main_bottleneck(net, e)),
         })]);
@@ -251,7 +259,16 @@ pub fn audit_report(m: &Model<'_>) -> String {
              ≥: unproven, the proven lower bound; —: no surviving required demand)."
         );
     }
-    if short > 0 {
+    if short > 0 && net.chains.is_some() {
+        let _ = writeln!(
+            out,
+            "\"one more unit helps at F at S (+Y)\": one more unit of function F bought at site \
+             S (where the file lets it be bought) serves up to Y more in that scenario (its \
+             shadow price); when it is not shown, one more unit of a function that can be \
+             bought would not serve more (links, cut-off paths or functions that cannot be \
+             bought limit it)."
+        );
+    } else if short > 0 {
         let _ = writeln!(
             out,
             "\"one more unit helps at X (+Y)\": one more unit of processing bought at X (an \

@@ -119,7 +119,27 @@ pub fn check_summary(net: &Network, baseline_cut_off: &[(DemandIdx, Unservable)]
 /// The functions with their gains, capacities and purchases, and the chains with the
 /// number of demands and the required volume each carries, and their total gain.
 fn chains_summary(out: &mut String, net: &Network, ch: &crate::model::Chains) {
-    let _ = writeln!(out, "  functions ({}):", ch.functions.len());
+    // What each function takes when every demand is served in full (Σ required times the
+    // gain of the functions before it in the demand's chain, once per position).
+    let mut needed = vec![0.0; ch.functions.len()];
+    let mut delivered = 0.0;
+    for (d, dem) in net.demands.iter().enumerate() {
+        let cumulative = ch.cumulative(&ch.chain[d]);
+        for (j, &f) in ch.chain[d].iter().enumerate() {
+            needed[f] += dem.required * cumulative[j];
+        }
+        delivered += dem.required * cumulative[ch.chain[d].len()];
+    }
+    let _ = writeln!(
+        out,
+        "  delivered when every demand's required part is served: {} (each chain's gain applied)",
+        amount(delivered, &net.unit)
+    );
+    let _ = writeln!(
+        out,
+        "  functions ({}) (needed: what each takes when every required part is served):",
+        ch.functions.len()
+    );
     for (f, func) in ch.functions.iter().enumerate() {
         let at: Vec<String> = net
             .sites
@@ -138,12 +158,13 @@ fn chains_summary(out: &mut String, net: &Network, ch: &crate::model::Chains) {
                     .map(|e| purchase_terms(&s.id, e.cost, e.max, None))
             })
             .collect();
+        let total: f64 = (0..net.sites.len()).map(|v| ch.capacity[v][f]).sum();
         let _ = writeln!(
             out,
-            "    {} — gain {}; capacity {}: {}{}",
+            "    {} — gain {}; capacity {}: {}{}; {}",
             func.id,
             num(func.gain),
-            num((0..net.sites.len()).map(|v| ch.capacity[v][f]).sum::<f64>()),
+            num(total),
             if at.is_empty() {
                 "none".into()
             } else {
@@ -153,6 +174,19 @@ fn chains_summary(out: &mut String, net: &Network, ch: &crate::model::Chains) {
                 String::new()
             } else {
                 format!("; expandable: {}", buy.join(", "))
+            },
+            if needed[f] > 0.0 {
+                format!(
+                    "needed {}{}",
+                    num(needed[f]),
+                    if needed[f] > total {
+                        " (more than its capacity)"
+                    } else {
+                        ""
+                    }
+                )
+            } else {
+                "in no demand's chain".to_string()
             }
         );
     }

@@ -45,7 +45,6 @@ pub(super) fn compare_lines(
     top: usize,
 ) -> io::Result<()> {
     let u = &c.unit;
-    let plural = |n: usize| if n == 1 { "" } else { "s" };
     writeln!(w, "{}", verdict_line(c))?;
     writeln!(
         w,
@@ -70,14 +69,7 @@ pub(super) fn compare_lines(
     )?;
     file_changes(w, c, top)?;
     let changes = |title: &str, list: &[crate::compare::Change]| -> String {
-        let mut t = table(&[
-            "failed",
-            "shortfall before",
-            "after",
-            "change",
-            "stranded before",
-            "after",
-        ]);
+        let mut t = table(&CHANGE_COLUMNS);
         for ch in list.iter().take(top) {
             t.add_row(vec![
                 Cell::new(change_words(&ch.failed, ch.matrix.as_deref())),
@@ -89,12 +81,12 @@ pub(super) fn compare_lines(
             ]);
         }
         right(&mut t, &[1, 2, 3, 4, 5]);
-        format!(
-            "\n{title} ({} scenario{}, top {}; amounts in {u}):\n{}\n",
+        titled_table(
+            &format!("{title} ("),
+            &format!("; amounts in {u}"),
             list.len(),
-            plural(list.len()),
-            top.min(list.len()),
-            render(&mut t, &[])
+            top,
+            &mut t,
         )
     };
     if !c.new_short.is_empty() {
@@ -129,13 +121,7 @@ pub(super) fn compare_lines(
             ]);
         }
         right(&mut t, &[1, 2]);
-        format!(
-            "\n{title} ({} scenario{}, top {}):\n{}\n",
-            list.len(),
-            plural(list.len()),
-            top.min(list.len()),
-            render(&mut t, &[])
-        )
+        titled_table(&format!("{title} ("), "", list.len(), top, &mut t)
     };
     if !c.added_risks.is_empty() {
         w.write_all(
@@ -244,6 +230,33 @@ pub(crate) fn edit_value(v: &Option<crate::model::diff::Value>) -> String {
 
 /// A compared scenario as printed: [`scenario_words`], then ` under matrix ID` for files
 /// with `matrices`.
+/// The columns of a table of changed scenarios (the terminal's and the compare page's).
+pub(crate) const CHANGE_COLUMNS: [&str; 6] = [
+    "failed",
+    "shortfall before",
+    "after",
+    "change",
+    "stranded before",
+    "after",
+];
+
+/// A table of `n` scenarios (the first `top` shown) under its title line:
+/// `\n{opening}{n} scenario(s), top {k}{extra}):\n{table}\n`. O(table).
+fn titled_table(
+    opening: &str,
+    extra: &str,
+    n: usize,
+    top: usize,
+    t: &mut comfy_table::Table,
+) -> String {
+    format!(
+        "\n{opening}{n} scenario{}, top {}{extra}):\n{}\n",
+        plural(n),
+        top.min(n),
+        render(t, &[])
+    )
+}
+
 pub(crate) fn change_words(failed: &[String], matrix: Option<&str>) -> String {
     match matrix {
         Some(m) => format!("{} under matrix {m}", scenario_words(failed)),

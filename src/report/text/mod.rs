@@ -19,6 +19,7 @@ use crate::solve::{Evaluation, Resource, Unservable};
 use super::screen::{self, render, right, table};
 
 mod audit;
+mod chains;
 mod check;
 mod compare;
 mod gates;
@@ -27,9 +28,12 @@ mod risk;
 mod why;
 
 pub use audit::{audit_report, under_matrix, verdict, verification_summary, write_shard};
+pub use chains::{delivered_line, functions_section, marginal_functions, priced_functions};
 pub use check::{check_summary, write_check};
 pub use compare::write_compare;
-pub(crate) use compare::{change_words, edit_value, scenario_words, signed, verdict_line};
+pub(crate) use compare::{
+    CHANGE_COLUMNS, change_words, edit_value, scenario_words, signed, verdict_line,
+};
 pub use gates::gate_line;
 pub use plan::{closing_report, plan_report, relief_report, write_plan};
 pub use risk::risk_report;
@@ -55,7 +59,8 @@ fn unservable_words(r: Unservable) -> &'static str {
 
 /// Names the cause of a scenario's shortfall in words: demands with no path, demands
 /// with no processing reachable, or the saturated resource with the highest shadow price
-/// (a link direction or a site's processing). Cut-off demands are named when they make up
+/// (a link direction, a site's processing or, with service chains, a function at a site).
+/// Cut-off demands are named when they make up
 /// at least half of the shortfall.
 pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
     if e.shortfall <= 0.0 {
@@ -75,6 +80,12 @@ pub fn main_bottleneck(net: &Network, e: &Evaluation) -> String {
         } else {
             format!("no path: {} cut off", demands(count(Unservable::NoPath)))
         };
+    }
+    // With service chains a function's row may price higher than every link.
+    if let Some((s, f, p)) = chains::priced_functions(net, e, false).into_iter().next()
+        && saturated.is_none_or(|b| p >= b.price)
+    {
+        return format!("saturated {}", chains::function_name(net, s, f));
     }
     match saturated {
         Some(b) => match b.resource {
@@ -97,20 +108,30 @@ pub fn marginal_sites(
     if e.shortfall <= 0.0 {
         return "—".into();
     }
-    let mut v: Vec<(usize, f64)> = e
-        .site_price
-        .iter()
-        .enumerate()
-        .filter(|&(s, _)| cands.expandable(s))
-        .filter_map(|(s, p)| p.filter(|p| *p > crate::tol::PRICE_BINDS).map(|p| (s, p)))
-        .collect();
-    v.sort_by(|a, b| b.1.total_cmp(&a.1).then(a.0.cmp(&b.0)));
+    top_priced(
+        e.site_price
+            .iter()
+            .enumerate()
+            .filter(|&(s, _)| cands.expandable(s))
+            .filter_map(|(s, p)| {
+                p.filter(|p| *p > crate::tol::PRICE_BINDS)
+                    .map(|p| (net.sites[s].id.clone(), p))
+            })
+            .collect(),
+        k,
+    )
+}
+
+/// The `k` highest-priced `(name, price)` items as `name (+price)`, highest first (ties in
+/// the given order); `none` when there is none. O(n log n).
+fn top_priced(mut v: Vec<(String, f64)>, k: usize) -> String {
+    v.sort_by(|a, b| b.1.total_cmp(&a.1));
     if v.is_empty() {
         return "none".into();
     }
     v.iter()
         .take(k)
-        .map(|(s, p)| format!("{} (+{})", net.sites[*s].id, num(*p)))
+        .map(|(s, p)| format!("{s} (+{})", num(*p)))
         .collect::<Vec<_>>()
         .join(", ")
 }
@@ -138,7 +159,7 @@ pub fn caution() -> String {
 }
 
 /// The first `k` items joined with commas, `(+N more)` for the rest, `—` when empty.
-fn first_k(items: impl ExactSizeIterator<Item = String>, k: usize) -> String {
+pub(crate) fn first_k(items: impl ExactSizeIterator<Item = String>, k: usize) -> String {
     let total = items.len();
     let mut parts: Vec<String> = items.take(k).collect();
     if total > k {

@@ -34,6 +34,9 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
         percent(e.shortfall, e.surviving_required),
         amount(e.stranded, u)
     );
+    if let Some(line) = delivered_line(net, e) {
+        let _ = writeln!(out, "{line}");
+    }
     let mut t = table(&[
         "demand",
         "from → to",
@@ -112,15 +115,19 @@ pub fn why_report(net: &Network, audit: &Audit, why: &WhyPart<'_>) -> String {
             Resource::Arc(_) => None,
         })
         .collect();
-    let _ = writeln!(
-        out,
-        "Saturated processing: {}.",
-        if sites.is_empty() {
-            "none".to_string()
-        } else {
-            sites.join(", ")
-        }
-    );
+    if net.chains.is_some() {
+        out.push_str(&functions_section(net, e));
+    } else {
+        let _ = writeln!(
+            out,
+            "Saturated processing: {}.",
+            if sites.is_empty() {
+                "none".to_string()
+            } else {
+                sites.join(", ")
+            }
+        );
+    }
     if e.cut_off.is_empty() {
         let _ = writeln!(out, "Cut-off demands: none.");
     } else {
