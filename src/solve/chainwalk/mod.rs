@@ -224,11 +224,11 @@ fn solve_caps(
         }
         let solved = {
             let rows = Rows::new(net, view, &layered);
-            // Only the demands that lost flow are free at first (all of them without a
-            // parent, or when the start had to be scaled); the others keep their walks.
+            // Only the demands that lost flow (or had it scaled down) are free at first (all
+            // of them without a parent); the others keep their walks.
             let active: Vec<bool> = match &kept {
-                Some(k) if !k.scaled => k.lost.clone(),
-                _ => vec![true; net.demands.len()],
+                Some(k) => k.lost.clone(),
+                None => vec![true; net.demands.len()],
             };
             let mut master = Master::new(&rows, active);
             let walks = kept.map(|k| k.walks).unwrap_or_default();

@@ -11,12 +11,12 @@ use crate::solve::chain::{self, EdgeKind};
 /// Where a master starts from a parent's optimum.
 pub(super) struct Start {
     /// The parent's walks that survive this outage and belong to a demand of the LP,
-    /// merged when equal, at their flows (scaled by one factor when the new rows could not
-    /// hold them all).
+    /// merged when equal, at their flows (a walk through a row that could not hold its
+    /// surviving load scaled by that row's factor, the least one when several).
     pub(super) walks: Vec<(ChainWalk, f64)>,
-    /// Per demand: some walk of it that carried flow was lost.
+    /// Per demand: some walk of it that carried flow was lost or scaled down.
     pub(super) lost: Vec<bool>,
-    /// The rows could not hold the surviving flows: they were scaled down by more than
+    /// Some row could not hold the surviving flows: walks were scaled down by more than
     /// rounding.
     pub(super) scaled: bool,
 }
@@ -28,7 +28,8 @@ impl Start {
     }
 }
 
-/// The [`Start`] of this outage's master from the parent's optimum `start`.
+/// The [`Start`] of this outage's master from the parent's optimum `start`: a feasible
+/// point of the new rows (each row's load at most its right-hand side).
 /// O(Σ walk lengths · log).
 pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
     let mut index: HashMap<&ChainWalk, usize> = HashMap::new();
@@ -53,19 +54,36 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
             *load.entry(key).or_default() += c * f;
         }
     }
-    // Rows the parent filled exactly may be over by rounding: those scale the start by
-    // about START_MARGIN, which is not a change of the allocation (`scaled` stays false).
-    let mut factor: f64 = 1.0;
+    // Each row over its new right-hand side gets a factor that brings its load inside it;
+    // each walk is scaled by the least factor of its rows (every row's load then fits, and
+    // walks through no over-full row keep their flow). Rows the parent filled exactly may
+    // be over by rounding: those scale by about START_MARGIN, which is not a change of
+    // the allocation (neither `scaled` nor `lost`).
+    let mut factor: HashMap<RowKey, f64> = HashMap::new();
     for (key, l) in load {
         let rhs = rows.rhs(key);
         if l > rhs * (1.0 - START_MARGIN) {
-            factor = factor.min(rhs * (1.0 - START_MARGIN) / l);
+            factor.insert(key, (rhs * (1.0 - START_MARGIN) / l).max(0.0));
         }
     }
-    let factor = factor.max(0.0);
-    let scaled = factor < 1.0 - 2.0 * START_MARGIN;
+    let mut scaled = false;
+    let walks = kept
+        .into_iter()
+        .map(|(w, f)| {
+            let phi = rows
+                .coefficients(&w)
+                .iter()
+                .filter_map(|(key, _)| factor.get(key))
+                .fold(1.0_f64, |a, &b| a.min(b));
+            if phi < 1.0 - 2.0 * START_MARGIN && f > 0.0 {
+                scaled = true;
+                lost[w.demand] = true;
+            }
+            (w, f * phi)
+        })
+        .collect();
     Start {
-        walks: kept.into_iter().map(|(w, f)| (w, f * factor)).collect(),
+        walks,
         lost,
         scaled,
     }
