@@ -6,7 +6,7 @@
 use std::collections::{BTreeMap, HashMap, HashSet};
 
 use super::rows::{RowKey, Rows};
-use super::{ChainWalk, GAP_TOL, MAX_ROUNDS, NONE, Solved, WARM_ROWS};
+use super::{ChainWalk, GAP_TOL, MAX_ROUNDS, MAX_WAKE, NONE, Solved, WARM_ROWS};
 use crate::error::Result;
 use crate::model::{FunctionIdx, SiteIdx};
 use crate::solve::colgen::{Stats, round};
@@ -179,13 +179,13 @@ impl<'r, 'a> Master<'r, 'a> {
             };
             let (active, group_of) = (&self.active, &self.rows.group_of);
             let Some((wake, fresh)) = round::next_round(
-                |d| !active[d] && group_of[d] != NONE,
-                |d| layered.bound[d],
+                |d| (!active[d] && group_of[d] != NONE).then(|| layered.bound[d]),
                 &self.fixed,
                 price_of,
                 &p.cost,
                 p.walks,
                 &self.seen,
+                Some(MAX_WAKE),
             ) else {
                 return Ok(None);
             };

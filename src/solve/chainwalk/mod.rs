@@ -80,6 +80,11 @@ pub const MAX_ROUNDS: usize = 200;
 /// Largest master (rows) solved by the warm simplex (dense inverse of 8·rows² bytes);
 /// larger ones go to the layered edge LP.
 pub const WARM_ROWS: usize = super::colgen::WARM_ROWS;
+/// Fixed demands freed per master round at most (those with the largest share of the
+/// duality gap relative to their size): freeing every demand whose share is positive grows
+/// the master to hundreds of demand rows; a few per round keeps it small for a few more
+/// rounds. The answer does not depend on it (the bound decides optimality).
+const MAX_WAKE: usize = 16;
 /// Share of a row a warm start leaves free when it scales a parent's flows into the rows
 /// (keeps the start strictly inside them against rounding of the ratio).
 const START_MARGIN: f64 = 1e-9;
@@ -340,6 +345,7 @@ impl Evaluator for ChainWalks {
 
 #[cfg(test)]
 mod tests {
+    use super::rows::RowKey;
     use super::*;
     use crate::scenario::{Element, Scenario};
 

@@ -324,8 +324,7 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
             // Inactive demands whose share of the gap is positive, and the new walks.
             let (active, caps) = (&self.active, self.caps);
             let Some((wake, fresh)) = round::next_round(
-                |d| !active[d] && caps[d] > 0.0,
-                |d| caps[d],
+                |d| (!active[d] && caps[d] > 0.0).then(|| caps[d]),
                 &self.fixed,
                 |w: &Walk| {
                     w.arcs
@@ -337,6 +336,7 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
                 &p.cost,
                 p.walks,
                 &self.seen,
+                None,
             ) else {
                 return Ok(Warm::Stalled);
             };
