@@ -1,6 +1,6 @@
 //! The layered walk engine of service chains against the layered edge LP, and against the
 //! base walk engine on the same network with one processing step. `cargo bench --bench
-//! chains [-- quick]`.
+//! chains [-- quick] [no-edge]` (`no-edge`: (b) left out).
 //!
 //! Network (deterministic, `benches/common`): network B of `benches/walks.rs` (50 sites, 88
 //! links, 660 random demands) with three functions instead of processing: `fw` (gain 1) at
@@ -116,6 +116,7 @@ fn same(a: &Evaluation, b: &Evaluation) -> bool {
 
 fn main() {
     let quick = std::env::args().any(|a| a == "quick");
+    let skip_edge = std::env::args().any(|a| a == "no-edge");
     let every = if quick { 35 } else { 12 };
     let bnet = Network::from_json(&base_doc().to_string()).expect("valid base network");
     // (c) base walk engine, single function.
@@ -187,7 +188,7 @@ fn main() {
             base.evaluation.surviving_required
         );
         println!("    (a)/(c) = {:.2} (target <= 3)", a / c);
-        if !edge {
+        if !edge || skip_edge {
             continue;
         }
         // (b) layered edge LP on a sample.

@@ -50,8 +50,10 @@ mod graph;
 pub mod headroom;
 pub mod plan;
 mod pricing;
+pub(crate) mod round;
 mod warm;
 
+pub(crate) use graph::Item;
 use graph::*;
 use pricing::*;
 use warm::*;

@@ -233,11 +233,13 @@ pub(super) struct Tree {
     pub(super) pred: Vec<usize>,
 }
 
+/// A heap entry of a Dijkstra that breaks ties by hop count, then node index (shared by
+/// the base and the layered walk pricing).
 #[derive(PartialEq)]
-pub(super) struct Item {
-    pub(super) dist: f64,
-    pub(super) hops: u32,
-    pub(super) node: usize,
+pub(crate) struct Item {
+    pub(crate) dist: f64,
+    pub(crate) hops: u32,
+    pub(crate) node: usize,
 }
 
 impl Eq for Item {}

@@ -45,10 +45,9 @@
 use std::collections::HashSet;
 
 use super::warm::{MasterLp, large_master_lp};
-use super::{GAP_TOL, Graph, MAX_ROUNDS, PIVOTS_PER_ROW, Solved, WARM_ROWS, Walk, price};
+use super::{GAP_TOL, Graph, MAX_ROUNDS, Solved, WARM_ROWS, Walk, price};
 use crate::error::Result;
 use crate::model::Network;
-use crate::solve::cancel;
 use crate::solve::concurrent::{Headroom, Setup, decide, upper_bound};
 use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
@@ -417,17 +416,12 @@ impl<'a, 'g> Master<'a, 'g> {
     ) -> Result<Option<(Headroom, Columns)>> {
         let scale = setup.total_required;
         loop {
-            cancel::check()?;
-            if self.lp.rows() > self.lp.row_limit() {
-                return Ok(None);
-            }
-            work.lp_solves += 1;
-            if self
-                .lp
-                .solve(PIVOTS_PER_ROW * self.lp.rows().max(100))
-                .is_err()
-            {
-                cancel::check()?;
+            let (rows, limit) = (self.lp.rows(), self.lp.row_limit());
+            let solved = super::round::solve_round(rows, limit, true, |pivots| {
+                work.lp_solves += 1;
+                self.lp.solve(pivots)
+            })?;
+            if !solved {
                 return Ok(None);
             }
             let lambda = self.lp.value(0);

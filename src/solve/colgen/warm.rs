@@ -7,7 +7,6 @@ use super::*;
 use std::collections::HashSet;
 
 use crate::error::Result;
-use crate::solve::cancel;
 use crate::solve::simplex::Simplex;
 
 /// The LP a [`WarmMaster`] keeps between rounds: a maximisation over `≤` rows (added empty,
@@ -281,22 +280,15 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
         let net = self.g.net;
         let mut scale: Option<f64> = None;
         loop {
-            cancel::check()?;
-            if self.lp.rows() > self.lp.row_limit() {
-                return Ok(Warm::Abandon(self.into_solution().0));
-            }
-            if self.lp.cols() > 0 {
+            let (rows, limit, cols) = (self.lp.rows(), self.lp.row_limit(), self.lp.cols());
+            let solved = round::solve_round(rows, limit, cols > 0, |pivots| {
                 stats.lp_solves += 1;
                 stats.max_columns = stats.max_columns.max(self.walks.len());
-                if self
-                    .lp
-                    .solve(PIVOTS_PER_ROW * self.lp.rows().max(100))
-                    .is_err()
-                {
-                    // An interrupt ends the scenario; any other failure goes cold.
-                    cancel::check()?;
-                    return Ok(Warm::Abandon(self.into_solution().0));
-                }
+                self.lp.solve(pivots)
+            })?;
+            if !solved {
+                // Too large, or the solve failed: the master goes cold.
+                return Ok(Warm::Abandon(self.into_solution().0));
             }
             let y: Vec<f64> = self.arc_row.iter().map(|&r| self.dual(r)).collect();
             let z: Vec<f64> = self.site_row.iter().map(|&r| self.dual(r)).collect();
@@ -329,46 +321,25 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
             if stats.rounds >= MAX_ROUNDS {
                 return Ok(Warm::Stalled);
             }
-            // Inactive demands whose share of the gap is positive.
-            let mut wake = Vec::new();
-            for d in 0..net.demands.len() {
-                if self.active[d] || self.caps[d] <= 0.0 {
-                    continue;
-                }
-                let mut share = 0.0;
-                let mut f_d = 0.0;
-                for (w, f) in &self.fixed[d] {
-                    let c: f64 = w
-                        .arcs
+            // Inactive demands whose share of the gap is positive, and the new walks.
+            let (active, caps) = (&self.active, self.caps);
+            let Some((wake, fresh)) = round::next_round(
+                |d| (!active[d] && caps[d] > 0.0).then(|| caps[d]),
+                &self.fixed,
+                |w: &Walk| {
+                    w.arcs
                         .iter()
                         .map(|&(a, k)| f64::from(k) * y[a])
                         .sum::<f64>()
-                        + z[w.site];
-                    share += f * c;
-                    f_d += f;
-                }
-                if p.cost[d].is_finite() {
-                    share += self.caps[d] * (1.0 - p.cost[d]).max(0.0);
-                }
-                share -= f_d;
-                if share > PRICE_TOL * self.caps[d].max(f_d) {
-                    wake.push(d);
-                }
-            }
-            let fresh: Vec<Walk> = p
-                .walks
-                .into_iter()
-                .filter(|w| !self.seen.contains(w))
-                .collect();
-            if fresh.is_empty() && wake.is_empty() {
-                // The rest of the gap is spread thinner than the tolerance: free everyone.
-                wake = (0..net.demands.len())
-                    .filter(|&d| !self.active[d] && self.caps[d] > 0.0)
-                    .collect();
-                if wake.is_empty() {
-                    return Ok(Warm::Stalled);
-                }
-            }
+                        + z[w.site]
+                },
+                &p.cost,
+                p.walks,
+                &self.seen,
+                None,
+            ) else {
+                return Ok(Warm::Stalled);
+            };
             for d in wake {
                 self.activate(d);
             }

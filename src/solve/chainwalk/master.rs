@@ -1,0 +1,204 @@
+//! The restricted master of the layered walk engine on the warm simplex: walks as
+//! columns, rows created as columns need them, inactive demands held at fixed flows, and
+//! the rounds of master solve, pricing and activation until the dual bound meets the
+//! master's value.
+
+use std::collections::{BTreeMap, HashMap, HashSet};
+
+use super::rows::{RowKey, Rows};
+use super::{ChainWalk, GAP_TOL, MAX_ROUNDS, MAX_WAKE, NONE, Solved, WARM_ROWS};
+use crate::error::Result;
+use crate::model::FunctionIdx;
+/// A site number inside this engine's layered graph: [`crate::model::SiteIdx`]`.0`.
+type SiteIdx = usize;
+
+use crate::solve::colgen::{Stats, round};
+use crate::solve::simplex::Simplex;
+
+/// The restricted master on the warm simplex: rows created as columns need them. Only
+/// *active* demands have columns; the walks of an inactive demand stay at their start flow
+/// outside the LP, and each row holds what those fixed walks leave (`rhs − fixed load`). A
+/// demand is activated when its share of the duality gap, `Σ_w f_w · price(w) +
+/// b_d · max(0, 1 − π_d) − Σ_w f_w`, is positive: its walks become columns at their flows
+/// and the rows get their load back, which leaves every basic value unchanged (the scheme
+/// of the base engine's warm master). The bound of [`Rows::price`] is valid for any
+/// prices, so when it meets the master's value plus the fixed flow, the whole allocation
+/// is optimal.
+pub(super) struct Master<'r, 'a> {
+    pub(super) rows: &'r Rows<'a>,
+    pub(super) lp: Simplex,
+    pub(super) row: HashMap<RowKey, usize>,
+    /// The LP's columns, in column order.
+    pub(super) walks: Vec<ChainWalk>,
+    pub(super) seen: HashSet<ChainWalk>,
+    pub(super) active: Vec<bool>,
+    /// Per inactive demand: its fixed walks and flows.
+    pub(super) fixed: Vec<Vec<(ChainWalk, f64)>>,
+    pub(super) fixed_load: HashMap<RowKey, f64>,
+}
+
+impl<'r, 'a> Master<'r, 'a> {
+    /// An empty master whose active demands are `active`.
+    pub(super) fn new(rows: &'r Rows<'a>, active: Vec<bool>) -> Self {
+        Master {
+            rows,
+            lp: Simplex::new(),
+            row: HashMap::new(),
+            walks: Vec::new(),
+            seen: HashSet::new(),
+            fixed: vec![Vec::new(); active.len()],
+            active,
+            fixed_load: HashMap::new(),
+        }
+    }
+
+    /// Adds walk `w` at flow `f` (skipped when already present): a column when its demand
+    /// is active, else a fixed walk. The caller keeps the point feasible and adds fixed
+    /// walks before columns. O(rows · walk length) for the basis update.
+    pub(super) fn add(&mut self, w: ChainWalk, f: f64) {
+        if !self.seen.insert(w.clone()) {
+            return;
+        }
+        if !self.active[w.demand] {
+            for (key, c) in self.rows.coefficients(&w) {
+                *self.fixed_load.entry(key).or_default() += c * f;
+            }
+            self.fixed[w.demand].push((w, f));
+            return;
+        }
+        self.column(w, f);
+    }
+
+    /// The column of walk `w` (active demand) at flow `f`, with the rows it needs (each
+    /// created holding what the fixed walks leave).
+    pub(super) fn column(&mut self, w: ChainWalk, f: f64) {
+        let mut entries = Vec::new();
+        for (key, c) in self.rows.coefficients(&w) {
+            let r = match self.row.get(&key) {
+                Some(&r) => r,
+                None => {
+                    let fixed = self.fixed_load.get(&key).copied().unwrap_or(0.0);
+                    let r = self.lp.add_row((self.rows.rhs(key) - fixed).max(0.0), &[]);
+                    self.row.insert(key, r);
+                    r
+                }
+            };
+            entries.push((r, c));
+        }
+        self.lp.add_col(1.0, 0.0, f64::INFINITY, f, entries);
+        self.walks.push(w);
+    }
+
+    /// Makes demand `d` active: its fixed walks become columns at their flows, each
+    /// existing row first getting the walk's load back (no basic value moves).
+    pub(super) fn activate(&mut self, d: usize) {
+        self.active[d] = true;
+        for (w, f) in std::mem::take(&mut self.fixed[d]) {
+            for (key, c) in self.rows.coefficients(&w) {
+                *self.fixed_load.entry(key).or_default() -= c * f;
+                if let Some(&r) = self.row.get(&key) {
+                    self.lp.shift_rhs(r, c * f);
+                }
+            }
+            self.column(w, f);
+        }
+    }
+
+    pub(super) fn dual(&self, key: RowKey) -> f64 {
+        self.row
+            .get(&key)
+            .map_or(0.0, |&r| self.lp.dual(r).max(0.0))
+    }
+
+    /// Rounds of master solve, pricing and activation until the dual bound meets the
+    /// master's value plus the fixed flow within [`GAP_TOL`]; `None` when the simplex
+    /// fails, the master outgrows [`WARM_ROWS`], nothing enters while the gap is open, or
+    /// after [`MAX_ROUNDS`].
+    pub(super) fn run(mut self, stats: &mut Stats) -> Result<Option<Solved>> {
+        let net = self.rows.net;
+        let layered = self.rows.layered;
+        for _ in 0..MAX_ROUNDS {
+            let (rows, cols) = (self.lp.rows(), self.lp.cols());
+            let solved = round::solve_round(rows, WARM_ROWS, cols > 0, |pivots| {
+                stats.lp_solves += 1;
+                stats.max_columns = stats.max_columns.max(self.walks.len());
+                self.lp.solve(pivots)
+            })?;
+            if !solved {
+                return Ok(None);
+            }
+            let y: Vec<f64> = (0..net.arcs.len())
+                .map(|a| self.dual(RowKey::Arc(a)))
+                .collect();
+            let z: BTreeMap<(SiteIdx, FunctionIdx), f64> = layered
+                .function_cap
+                .keys()
+                .map(|&(v, f)| ((v, f), self.dual(RowKey::Function(v, f))))
+                .collect();
+            let u: Vec<f64> = (0..net.demands.len())
+                .map(|d| {
+                    if self.active[d] {
+                        self.dual(RowKey::Demand(d))
+                    } else {
+                        f64::INFINITY
+                    }
+                })
+                .collect();
+            let fixed_total: f64 = self.fixed.iter().flatten().map(|(_, f)| f).sum();
+            let value = self.lp.objective() + fixed_total;
+            stats.rounds += 1;
+            let p = self.rows.price(&y, &z, Some(&u));
+            if p.bound - value <= GAP_TOL * self.rows.scale {
+                stats.generated += 1;
+                let mut flow: Vec<f64> = (0..self.walks.len())
+                    .map(|j| self.lp.value(j).max(0.0))
+                    .collect();
+                let mut walks = self.walks;
+                for (w, f) in self.fixed.into_iter().flatten() {
+                    walks.push(w);
+                    flow.push(f);
+                }
+                return Ok(Some(Solved {
+                    value: flow.iter().sum(),
+                    walks,
+                    flow,
+                    arc_price: y,
+                    fn_price: z,
+                }));
+            }
+            // Inactive demands whose share of the gap is positive, and the new walks.
+            let price_of = |w: &ChainWalk| -> f64 {
+                self.rows
+                    .coefficients(w)
+                    .into_iter()
+                    .map(|(key, c)| {
+                        c * match key {
+                            RowKey::Arc(a) => y[a],
+                            RowKey::Function(v, f) => z.get(&(v, f)).copied().unwrap_or(0.0),
+                            RowKey::Demand(_) => 0.0,
+                        }
+                    })
+                    .sum()
+            };
+            let (active, group_of) = (&self.active, &self.rows.group_of);
+            let Some((wake, fresh)) = round::next_round(
+                |d| (!active[d] && group_of[d] != NONE).then(|| layered.bound[d]),
+                &self.fixed,
+                price_of,
+                &p.cost,
+                p.walks,
+                &self.seen,
+                Some(MAX_WAKE),
+            ) else {
+                return Ok(None);
+            };
+            for d in wake {
+                self.activate(d);
+            }
+            for w in fresh {
+                self.add(w, 0.0);
+            }
+        }
+        Ok(None)
+    }
+}

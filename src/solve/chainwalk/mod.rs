@@ -1,0 +1,446 @@
+//! The layered walk engine of service chains: column generation over layered walks, with
+//! the same optimum as the layered edge LP of [`super::chain`] and the same verification.
+//!
+//! **Columns.** A column is a *layered walk* of one demand `d` with chain `f1 … fk`: a path
+//! from the origin to a site running `f1`, then a path to a site running `f2`, …, then a
+//! path from the site of `fk` to the destination, on the surviving arcs (plain traffic,
+//! `k = 0`, is one path). Measured in origin units like every variable of the layered
+//! model, one unit of the walk puts `G_j = g1 · … · gj` units on each arc crossed in leg `j`
+//! (after `j` functions) and `G_j` units on the row of `f_{j+1}` at the site where it is
+//! applied (the volume entering it), and 1 on the cap row of `d`. The master maximises
+//! `Σ λ_w` under the arc rows, the (site, function) rows and the demand caps. By the
+//! decomposition argument of [`super::chain`] (each group's layered flow is a sum of
+//! source–sink paths of the layered graph), every edge solution is a combination of such
+//! walks, so the two formulations have the same optimum; the row right-hand sides are the
+//! edge LP's own (capacities lowered to what can use them, [`chain::Layered`]).
+//!
+//! **Pricing.** With arc duals `y`, function duals `z` and demand duals `u`, the cheapest
+//! layered walk of every demand of one (origin, chain) group is one Dijkstra on the group's
+//! layered graph (`k + 1` copies of the surviving network; arc `a` in layer `j` costs
+//! `G_j · y_a`, function `f_{j+1}` at `v` between layers `j` and `j + 1` costs
+//! `G_j · z_{v,f}`). A walk enters when `1 − π_d − u_d` exceeds [`PRICE_TOL`]. The same pass
+//! gives the dual bound `Σ cap·y + Σ cap·z + Σ_d b_d · max(0, 1 − π_d)` (weak duality, valid
+//! for any nonnegative prices), and column generation stops when it meets the master's
+//! value within [`GAP_TOL`].
+//!
+//! **Master.** The project's warm bounded simplex ([`super::simplex`]), kept between rounds:
+//! new walks enter at zero against the current basis, rows are created as columns need
+//! them. A scenario starts from the walks of its parent's optimum (the baseline's) that
+//! survive it, at their flows scaled into the new rows (a feasible start).
+//!
+//! **Shortcut.** When no walk of the parent's optimum that carried flow is lost and the
+//! parent's allocation fits the new rows, that allocation with the parent's prices is
+//! verified first, with no master solve: a failure that takes nothing the optimum used
+//! cannot raise the optimum, and the parent's prices priced on the smaller network give a
+//! bound no larger than before.
+//!
+//! **Verification** is the layered edge LP's, unchanged: the rows are [`chain::build`]'s
+//! (same groups, same lowered capacities, computed without building the LP), the walks'
+//! flows are written as edge and demand variables of the layered graph, decomposed and
+//! scaled into the real capacities by [`chain::repair`] (the proven lower bound), and the
+//! master's prices go through [`chain::dual_bound`] (the proven upper bound); proven when
+//! the row residual is within tolerance and the bounds meet within
+//! [`crate::tol::PROOF_GAP_TOL`] of the demand at stake, as in
+//! [`chain::solve_verified_with`]. An answer that is not proven, a master above
+//! [`WARM_ROWS`] rows, a simplex failure or a column generation that does not converge
+//! within [`MAX_ROUNDS`] is solved again by the layered edge LP (counted as a fallback).
+//!
+//! Determinism: Dijkstra breaks ties by hop count and then layered node index, walks enter
+//! in group and demand order, and a scenario depends only on the network, the outage and
+//! the parent's optimum, never on thread count.
+
+mod master;
+mod rows;
+mod start;
+mod verify;
+
+use std::collections::BTreeMap;
+
+use master::Master;
+use rows::{Rows, layered_rows};
+use start::{reroute, surviving_start};
+use verify::{verified, with_walks};
+
+use super::chain::{self, EdgeKind};
+use super::colgen::Stats;
+use super::evaluator::{AddModel, Evaluated, Evaluator, Warm};
+use super::lp::Lp;
+use super::needs_volume_lp;
+use super::surviving::{Surviving, Unservable};
+use super::types::{Evaluation, Verified};
+use crate::error::Result;
+use crate::model::{Chains, FunctionIdx, Network};
+/// A site number inside this engine's layered graph: [`crate::model::SiteIdx`]`.0`.
+type SiteIdx = usize;
+
+use crate::scenario::Outage;
+
+/// The engine's tolerances (defined and explained in [`crate::tol`]): the stopping gap of
+/// column generation and the reduced cost a walk needs to enter, the walk engine's own.
+pub use crate::tol::{COLGEN_GAP_TOL as GAP_TOL, WALK_PRICE_TOL as PRICE_TOL};
+/// Pricing rounds before an LP falls back to the layered edge LP.
+pub const MAX_ROUNDS: usize = 200;
+/// Largest master (rows) solved by the warm simplex (dense inverse of 8·rows² bytes);
+/// larger ones go to the layered edge LP.
+pub const WARM_ROWS: usize = super::colgen::WARM_ROWS;
+/// Fixed demands freed per master round at most (those with the largest share of the
+/// duality gap relative to their size): freeing every demand whose share is positive grows
+/// the master to hundreds of demand rows; a few per round keeps it small for a few more
+/// rounds. The answer does not depend on it (the bound decides optimality).
+const MAX_WAKE: usize = 16;
+/// Share of a row a warm start leaves free when it scales a parent's flows into the rows
+/// (keeps the start strictly inside them against rounding of the ratio).
+const START_MARGIN: f64 = 1e-9;
+const NONE: usize = usize::MAX;
+
+/// One layered walk of one demand: its edges in walk order (arcs with the layer they are
+/// crossed in, functions with the site and chain position where they are applied).
+#[derive(Debug, Clone, PartialEq, Eq, Hash)]
+pub struct ChainWalk {
+    pub demand: usize,
+    pub edges: Vec<EdgeKind>,
+}
+
+impl ChainWalk {
+    /// Every arc usable and every function site able to run its function on `view`.
+    /// O(walk length).
+    fn survives(&self, ch: &Chains, view: &Surviving) -> bool {
+        let chain = &ch.chain[self.demand];
+        self.edges.iter().all(|e| match *e {
+            EdgeKind::Arc { arc, .. } => view.arc_usable[arc],
+            EdgeKind::Function { site, layer } => chain
+                .get(layer)
+                .is_some_and(|&f| chain::runs(ch, view, site, f)),
+        })
+    }
+}
+
+/// An optimum of the walk formulation for one set of demand caps: its walks and flows,
+/// its value and the prices that certified it.
+#[derive(Debug, Clone, Default)]
+pub struct Solved {
+    pub walks: Vec<ChainWalk>,
+    pub flow: Vec<f64>,
+    pub value: f64,
+    /// Per arc of `Network::arcs` (0 without a master row).
+    pub arc_price: Vec<f64>,
+    /// Per (site, function) row of the master.
+    pub fn_price: BTreeMap<(SiteIdx, FunctionIdx), f64>,
+}
+
+/// What a child scenario starts from: the parent's proven optima (required caps, and
+/// volume caps when a throughput LP was solved).
+#[derive(Debug, Clone, Default)]
+pub struct Basis {
+    pub required: Option<Solved>,
+    pub volume: Option<Solved>,
+}
+/// One LP decided: its verified result, the cut-off demands and, when the walks proved
+/// it, the optimum (a child's start).
+type Decided = (Verified, Vec<(usize, Unservable)>, Option<Solved>);
+
+/// One LP of an outage (caps `caps`) by the walk engine, verified: when every walk of the
+/// parent's optimum `start` that carried flow survives (no flow lost), that allocation
+/// with the parent's prices first (no master solve: proven when the bounds meet, as they
+/// do when the failure takes nothing the optimum used); otherwise, or when that is not
+/// proven, column generation from the surviving walks. The layered edge LP's ladder when
+/// the walk answer is missing or not proven (counted in `stats.fallback`). Returns the
+/// verified result, the cut-off demands and, when proven by the walks, the optimum (a
+/// child's start).
+fn solve_caps(
+    net: &Network,
+    view: &Surviving,
+    caps: &[f64],
+    start: Option<&Solved>,
+    stats: &mut Stats,
+) -> Result<Decided> {
+    let (mut layered, cut_off) = layered_rows(net, view, caps);
+    if !layered.groups.is_empty() {
+        let answer = {
+            let rows = Rows::new(net, view, &layered);
+            let kept = start.map(|s| surviving_start(&rows, s));
+            let mut answer = None;
+            if let (Some(s), Some(k)) = (start, &kept)
+                && k.intact()
+            {
+                stats.rounds += 1;
+                let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = k.walks.iter().cloned().unzip();
+                answer = Some(Solved {
+                    value: flow.iter().sum(),
+                    walks,
+                    flow,
+                    arc_price: s.arc_price.clone(),
+                    fn_price: s.fn_price.clone(),
+                });
+            }
+            (answer, kept, rows.group_of.clone())
+        };
+        let (shortcut, kept, group_of) = answer;
+        if let Some(s) = shortcut {
+            let x = with_walks(net, &mut layered, &group_of, &s);
+            let rows = Rows::new(net, view, &layered);
+            let v = verified(&rows, &layered, &x, &s);
+            if v.verification.proven {
+                stats.no_flow += 1;
+                return Ok((v, cut_off, Some(s)));
+            }
+        }
+        // Repair: the lost flow re-routed greedily. When that reaches what the parent
+        // served (a child never serves more) or everything at stake, the parent's prices
+        // (or zero prices when everything is served) may prove it without a master.
+        if let (Some(p), Some(k)) = (start, &kept)
+            && !k.scaled
+            && !k.intact()
+        {
+            let repaired = {
+                let rows = Rows::new(net, view, &layered);
+                let mut walks = k.walks.clone();
+                reroute(&rows, p, &mut walks);
+                let value: f64 = walks.iter().map(|(_, f)| f).sum();
+                let all = rows.scale;
+                let tol = GAP_TOL * rows.scale;
+                (value >= p.value.min(all) - tol).then(|| {
+                    let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
+                    let zero = value >= all - tol;
+                    Solved {
+                        value,
+                        walks,
+                        flow,
+                        arc_price: if zero {
+                            vec![0.0; net.arcs.len()]
+                        } else {
+                            p.arc_price.clone()
+                        },
+                        fn_price: if zero {
+                            BTreeMap::new()
+                        } else {
+                            p.fn_price.clone()
+                        },
+                    }
+                })
+            };
+            if let Some(s) = repaired {
+                stats.rounds += 1;
+                let x = with_walks(net, &mut layered, &group_of, &s);
+                let rows = Rows::new(net, view, &layered);
+                let v = verified(&rows, &layered, &x, &s);
+                if v.verification.proven {
+                    stats.repaired += 1;
+                    return Ok((v, cut_off, Some(s)));
+                }
+            }
+        }
+        let solved = {
+            let rows = Rows::new(net, view, &layered);
+            // Only the demands that lost flow (or had it scaled down) are free at first (all
+            // of them without a parent); the others keep their walks.
+            let active: Vec<bool> = match &kept {
+                Some(k) => k.lost.clone(),
+                None => vec![true; net.demands.len()],
+            };
+            let mut master = Master::new(&rows, active);
+            let walks = kept.map(|k| k.walks).unwrap_or_default();
+            let (free, fixed): (Vec<_>, Vec<_>) = walks
+                .into_iter()
+                .partition(|(w, _)| master.active[w.demand]);
+            for (w, f) in fixed.into_iter().chain(free) {
+                master.add(w, f);
+            }
+            master.run(stats)?
+        };
+        if let Some(s) = solved {
+            let x = with_walks(net, &mut layered, &group_of, &s);
+            let rows = Rows::new(net, view, &layered);
+            let v = verified(&rows, &layered, &x, &s);
+            if v.verification.proven {
+                return Ok((v, cut_off, Some(s)));
+            }
+        }
+        stats.fallback += 1;
+    }
+    let (v, cut_off) = chain::solve_verified(net, view, caps)?;
+    Ok((v, cut_off, None))
+}
+
+/// The walk engine's answer for one outage of a network with `functions`.
+pub struct Walked {
+    pub evaluation: Evaluation,
+    /// Start for child scenarios.
+    pub basis: Basis,
+    pub stats: Stats,
+}
+
+/// Evaluates one outage of a network with `functions` with the layered walk engine: the
+/// same [`Evaluation`] as [`chain::evaluate`] (same optimum, verified by the same checks;
+/// where the optimal allocation or prices are not unique, possibly another optimal one),
+/// plus the basis for child scenarios and the work done. `parent`: the optimum of a
+/// scenario whose failed set is a subset of this one's (normally the baseline).
+///
+/// Cost: per LP (required, and volume when some surviving demand offers more) a few
+/// rounds of one warm simplex solve and one pricing pass (one layered Dijkstra per
+/// (origin, chain) group), then one verification (the layered LP built, not solved).
+pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) -> Result<Walked> {
+    let net = net.view(outage.matrix);
+    let view = Surviving::new(net, outage, None);
+    let mut stats = Stats::default();
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let (req_v, cut_off, req_s) = solve_caps(
+        net,
+        &view,
+        &required,
+        parent.and_then(|b| b.required.as_ref()),
+        &mut stats,
+    )?;
+    let (vol_v, vol_s) = if needs_volume_lp(net, outage) {
+        let caps: Vec<f64> = net.demands.iter().map(|d| d.volume).collect();
+        // From the parent's volume optimum, else from this outage's required one (feasible
+        // for volume caps, which are never smaller).
+        let start = parent.and_then(|b| b.volume.as_ref()).or(req_s.as_ref());
+        let (v, _, s) = solve_caps(net, &view, &caps, start, &mut stats)?;
+        (Some(v), s)
+    } else {
+        (None, None)
+    };
+    Ok(Walked {
+        evaluation: chain::finish_chain(net, &view, cut_off, req_v, vol_v),
+        basis: Basis {
+            required: req_s,
+            volume: vol_s,
+        },
+        stats,
+    })
+}
+
+/// The evaluator of a network with `functions` by the layered walk engine, warm-started
+/// from the parent's optimum. Purchases are not defined yet (`add_processing` gives
+/// `None`), as for [`chain::ChainEdge`].
+pub struct ChainWalks;
+
+impl Evaluator for ChainWalks {
+    fn name(&self) -> &'static str {
+        "chain walks"
+    }
+
+    fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>) -> Result<Evaluated> {
+        let parent = warm.and_then(|w| w.downcast_ref::<Basis>());
+        let w = evaluate_walks(net, outage, parent)?;
+        Ok(Evaluated {
+            evaluation: w.evaluation,
+            warm: Some(Box::new(w.basis)),
+            stats: w.stats,
+        })
+    }
+
+    fn warm_starts(&self) -> bool {
+        true
+    }
+
+    fn add_processing(
+        &self,
+        _: &mut Lp,
+        _: &Network,
+        _: &Outage,
+        _: &[Option<usize>],
+        _: f64,
+    ) -> Option<AddModel> {
+        None
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::rows::RowKey;
+    use super::*;
+    use crate::scenario::{Element, Scenario};
+
+    /// Path a — b — c — d, `fw` (gain 1) at b (capacity 8), `scrub` (gain 0.5) at c; ab and
+    /// bc 10, cd 3; a spare link d — e off the path; one demand a→d, volume 10, chain
+    /// fw > scrub. Hand-worked (common practice, no source: the contract's arithmetic):
+    /// F origin units put F on ab, bc, fw and scrub and 0.5·F on cd, so F <= min(10, 10,
+    /// 8, 100, 3/0.5) = 6, delivered 0.5 · 6 = 3.
+    fn path() -> Network {
+        Network::from_json(
+            r#"{"functions":[{"id":"fw","gain":1},{"id":"scrub","gain":0.5}],
+            "sites":[{"id":"a"},{"id":"b","functions":{"fw":8}},
+                     {"id":"c","functions":{"scrub":100}},{"id":"d"},{"id":"e"}],
+            "links":[{"id":"ab","from":"a","to":"b","capacity":10},
+                     {"id":"bc","from":"b","to":"c","capacity":10},
+                     {"id":"cd","from":"c","to":"d","capacity":3},
+                     {"id":"de","from":"d","to":"e","capacity":5}],
+            "demands":[{"from":"a","to":"d","volume":10,"chain":["fw","scrub"]}]}"#,
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn gain_halves_what_later_legs_use() {
+        let net = path();
+        let w = evaluate_walks(&net, &Outage::default(), None).unwrap();
+        let e = &w.evaluation;
+        assert!((e.served_required - 6.0).abs() < 1e-6, "{e:?}");
+        assert!((e.delivered.unwrap() - 3.0).abs() < 1e-6, "{e:?}");
+        assert!(e.certified_gap() < 1e-6, "{e:?}");
+        assert_eq!(w.stats.fallback, 0, "{:?}", w.stats);
+        assert!(w.stats.generated >= 1, "{:?}", w.stats);
+        // The layered edge LP (the product's other formulation) agrees.
+        let edge = chain::evaluate(&net, &Outage::default()).unwrap();
+        assert!((edge.served_required - e.served_required).abs() < 1e-6);
+    }
+
+    /// Failing the spare link d — e takes nothing the optimum uses: the baseline's walks
+    /// and prices are proven again without a master solve (same 6). Failing cd cuts the
+    /// demand off (served 0).
+    #[test]
+    fn a_failure_off_the_optimum_needs_no_master() {
+        let net = path();
+        let base = evaluate_walks(&net, &Outage::default(), None).unwrap();
+        let spare = Scenario::new(&net, &[Element::Link(3.into())]).outage(&net);
+        let w = evaluate_walks(&net, &spare, Some(&base.basis)).unwrap();
+        assert!((w.evaluation.served_required - 6.0).abs() < 1e-6);
+        assert_eq!(
+            (w.stats.no_flow, w.stats.lp_solves, w.stats.fallback),
+            (1, 0, 0)
+        );
+        let cd = Scenario::new(&net, &[Element::Link(2.into())]).outage(&net);
+        let w = evaluate_walks(&net, &cd, Some(&base.basis)).unwrap();
+        assert!(
+            w.evaluation.served_required.abs() < 1e-9,
+            "{:?}",
+            w.evaluation
+        );
+        assert_eq!(w.evaluation.cut_off.len(), 1);
+    }
+
+    /// One-way a→m (100), m→t (8), t→p (100), p→m (100), `f` (gain 0.5) only at p, demand
+    /// a→t of 50 with chain [f]. Hand-worked: the only walk a→m→t→p (f) →m→t crosses m→t
+    /// before f (F) and after it (0.5·F): 1.5·F <= 8, F = 16/3. The walk's column carries
+    /// the summed coefficient 1.5 on m→t.
+    #[test]
+    fn a_link_crossed_before_and_after_a_function() {
+        let net = Network::from_json(
+            r#"{"functions":[{"id":"f","gain":0.5}],
+            "sites":[{"id":"a"},{"id":"m"},{"id":"t"},{"id":"p","functions":{"f":100}}],
+            "links":[{"id":"am","from":"a","to":"m","capacity":100,"one_way":true},
+                     {"id":"mt","from":"m","to":"t","capacity":8,"one_way":true},
+                     {"id":"tp","from":"t","to":"p","capacity":100,"one_way":true},
+                     {"id":"pm","from":"p","to":"m","capacity":100,"one_way":true}],
+            "demands":[{"from":"a","to":"t","volume":50,"chain":["f"]}]}"#,
+        )
+        .unwrap();
+        let w = evaluate_walks(&net, &Outage::default(), None).unwrap();
+        let e = &w.evaluation;
+        assert!((e.served_required - 16.0 / 3.0).abs() < 1e-6, "{e:?}");
+        assert!(e.certified_gap() < 1e-6);
+        assert_eq!(w.stats.fallback, 0);
+        let walk = &w.basis.required.as_ref().unwrap().walks[0];
+        let view = Surviving::new(&net, &Outage::default(), None);
+        let (layered, _) = layered_rows(&net, &view, &[50.0]);
+        let rows = Rows::new(&net, &view, &layered);
+        let mt = rows
+            .coefficients(walk)
+            .into_iter()
+            .find(|(k, _)| *k == RowKey::Arc(1))
+            .map(|(_, c)| c);
+        assert_eq!(mt, Some(1.5), "{walk:?}");
+    }
+}

@@ -1,0 +1,145 @@
+//! Verification of a layered walk answer by the layered edge LP's checks: the walks
+//! written as edge and demand variables of the layered graph ([`with_walks`]), then the
+//! row residual, [`chain::repair`] (lower bound) and [`chain::dual_bound`] (upper bound)
+//! ([`verified`]).
+
+use std::collections::{BTreeMap, HashMap};
+
+use super::Solved;
+use super::rows::{RowKey, Rows};
+use crate::model::{FunctionIdx, Network};
+/// A site number inside this engine's layered graph: [`crate::model::SiteIdx`]`.0`.
+type SiteIdx = usize;
+
+use crate::solve::RESIDUAL_TOL;
+use crate::solve::chain::{self, EdgeKind, Layered};
+use crate::solve::types::{Verification, Verified};
+use crate::tol::PROOF_GAP_TOL;
+
+/// `layered` with the edges and demand variables the walks of `s` use (variable ids into
+/// the returned flow vector: each edge's flow is the sum of the flows of the walks through
+/// it, each demand's the sum of its walks'), the flow written as [`chain::repair`] reads
+/// an LP answer. Edges the walks do not use carry 0 and are left out, which leaves the
+/// repair's decomposition unchanged. O(Σ walk lengths).
+pub(super) fn with_walks(
+    net: &Network,
+    layered: &mut Layered,
+    group_of: &[usize],
+    s: &Solved,
+) -> Vec<f64> {
+    let n = net.sites.len();
+    let mut x: Vec<f64> = Vec::new();
+    let mut var: Vec<HashMap<EdgeKind, usize>> = vec![HashMap::new(); layered.groups.len()];
+    layered.edges.iter_mut().for_each(Vec::clear);
+    layered.demand_var.iter_mut().for_each(|v| *v = None);
+    for (w, &f) in s.walks.iter().zip(&s.flow) {
+        let g = group_of[w.demand];
+        for e in &w.edges {
+            let i = *var[g].entry(*e).or_insert_with(|| {
+                let (from, to) = match *e {
+                    EdgeKind::Arc { arc, layer } => (
+                        layer * n + net.arcs[arc].from.0,
+                        layer * n + net.arcs[arc].to.0,
+                    ),
+                    EdgeKind::Function { site, layer } => {
+                        (layer * n + site, (layer + 1) * n + site)
+                    }
+                };
+                x.push(0.0);
+                layered.edges[g].push(chain::Edge {
+                    from,
+                    to,
+                    var: x.len() - 1,
+                    kind: *e,
+                });
+                x.len() - 1
+            });
+            x[i] += f;
+        }
+        let dv = *layered.demand_var[w.demand].get_or_insert_with(|| {
+            x.push(0.0);
+            x.len() - 1
+        });
+        x[dv] += f;
+    }
+    x
+}
+
+/// The verified result of walk answer `s` on the rows `layered` of `view`, as
+/// [`chain::solve_verified_with`] verifies a backend's answer: the residual (largest
+/// relative overload of a row by the walks as they came; conservation holds by
+/// construction), [`chain::repair`] of the walks' flow (the proven lower bound),
+/// [`chain::dual_bound`] of the master's prices (the proven upper bound, capped by the
+/// demand at stake), proven when they meet within [`crate::tol::PROOF_GAP_TOL`] of it.
+/// O(Σ walk lengths + groups · Dijkstra).
+pub(super) fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) -> Verified {
+    let (net, view) = (rows.net, rows.view);
+    let over = |load: f64, cap: f64| {
+        if load > cap {
+            (load - cap) / load.max(cap.abs()).max(f64::MIN_POSITIVE)
+        } else {
+            0.0
+        }
+    };
+    let mut load: BTreeMap<RowKey, f64> = BTreeMap::new();
+    for (w, &f) in s.walks.iter().zip(&s.flow) {
+        for (key, c) in rows.coefficients(w) {
+            *load.entry(key).or_default() += c * f;
+        }
+    }
+    let residual = load
+        .iter()
+        .map(|(&key, &l)| over(l, rows.rhs(key)))
+        .fold(0.0, f64::max);
+    let at_stake: f64 = layered
+        .groups
+        .iter()
+        .flat_map(|g| &g.demands)
+        .map(|&d| layered.bound[d])
+        .sum();
+    let (allocation, walks) = chain::repair(net, layered, x);
+    let arc_price: Vec<f64> = (0..net.arcs.len())
+        .map(|a| {
+            if layered.arc_row[a].is_some() {
+                s.arc_price[a].max(0.0)
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    let fn_price: BTreeMap<(SiteIdx, FunctionIdx), f64> = layered
+        .function_row
+        .keys()
+        .map(|k| (*k, s.fn_price.get(k).copied().unwrap_or(0.0).max(0.0)))
+        .collect();
+    let upper = chain::dual_bound(net, view, layered, &arc_price, &fn_price).min(at_stake);
+    let lower = allocation.served;
+    let tol = PROOF_GAP_TOL * at_stake.max(f64::MIN_POSITIVE);
+    let gap = upper - lower;
+    Verified {
+        lp_value: s.value,
+        verification: Verification {
+            proven: residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol,
+            lower,
+            upper,
+            residual,
+            attempts: 1,
+            backend: "walks".into(),
+        },
+        allocation,
+        arc_price: (0..net.arcs.len())
+            .map(|a| {
+                if layered.arc_cap[a] < net.arcs[a].capacity {
+                    0.0
+                } else {
+                    arc_price[a]
+                }
+            })
+            .collect(),
+        site_price: vec![0.0; net.sites.len()],
+        arc_has_row: layered.arc_row.iter().map(Option::is_some).collect(),
+        site_has_row: vec![false; net.sites.len()],
+        bound_price: (arc_price, Vec::new()),
+        functions: super::super::chain_use::function_use(net, view, layered, &walks, &fn_price),
+    }
+}

@@ -1,0 +1,102 @@
+//! The steps of one round of a warm master, shared by the base walk engine
+//! ([`super::warm`]), its headroom master ([`super::headroom`]) and the layered walk engine
+//! of service chains ([`crate::solve::chainwalk`]): the master re-solved from where it
+//! stopped ([`solve_round`]), and, for a master that holds the walks of inactive demands at
+//! fixed flows, which inactive demands to free and which priced walks to add
+//! ([`next_round`]).
+
+use std::collections::HashSet;
+use std::hash::Hash;
+
+use super::PIVOTS_PER_ROW;
+use crate::error::Result;
+use crate::solve::cancel;
+use crate::tol::WALK_PRICE_TOL as PRICE_TOL;
+
+/// The master solve of one round: checks for an interrupt, then, when the master has
+/// `rows <= limit` rows and `needed` (it has columns), calls `solve` with the pivot budget
+/// [`PIVOTS_PER_ROW`]` · max(rows, 100)`. `Ok(false)`: the master is abandoned (too many
+/// rows, or the solve failed without an interrupt); `Err` on an interrupt.
+/// Cost: that of `solve`.
+pub(crate) fn solve_round(
+    rows: usize,
+    limit: usize,
+    needed: bool,
+    solve: impl FnOnce(usize) -> Result<()>,
+) -> Result<bool> {
+    cancel::check()?;
+    if rows > limit {
+        return Ok(false);
+    }
+    if needed && solve(PIVOTS_PER_ROW * rows.max(100)).is_err() {
+        // An interrupt ends the scenario; any other failure abandons the master.
+        cancel::check()?;
+        return Ok(false);
+    }
+    Ok(true)
+}
+
+/// The inactive demands to free after one pricing pass, and the priced walks not yet in
+/// the master (`seen`), in the order they came.
+///
+/// Demand `d` (with `inactive_cap(d) = Some(cap(d))`: inactive and in the LP, with its
+/// cap) is freed when its share of the duality gap,
+/// `Σ_w f_w · price(w) + cap(d) · max(0, 1 − cost[d]) − Σ_w f_w` over its
+/// fixed walks `fixed[d]` (`cost[d]`: its cheapest walk at the round's prices, infinite
+/// when unreachable), exceeds [`PRICE_TOL`]` · max(cap(d), Σ_w f_w)`. When nothing is
+/// freed and no walk is new, the rest of the gap is spread thinner than the tolerance and
+/// every inactive demand is freed; `None` when there is none (the master is stalled). With `most`, at most that many
+/// demands are freed (the largest shares relative to `max(cap(d), Σ_w f_w)`, ties by
+/// index), in index order.
+///
+/// Invariant: each freed demand's share is computed at the same prices as `cost`.
+/// Cost: O(Σ fixed walks · cost of `price` + demands + priced walks).
+pub(crate) fn next_round<W: Eq + Hash>(
+    inactive_cap: impl Fn(usize) -> Option<f64>,
+    fixed: &[Vec<(W, f64)>],
+    price: impl Fn(&W) -> f64,
+    cost: &[f64],
+    priced: Vec<W>,
+    seen: &HashSet<W>,
+    most: Option<usize>,
+) -> Option<(Vec<usize>, Vec<W>)> {
+    let mut wake: Vec<(f64, usize)> = Vec::new();
+    for (d, walks) in fixed.iter().enumerate() {
+        let Some(cap) = inactive_cap(d) else {
+            continue;
+        };
+        let (mut share, mut f_d) = (0.0, 0.0);
+        for (w, f) in walks {
+            share += f * price(w);
+            f_d += f;
+        }
+        if cost[d].is_finite() {
+            share += cap * (1.0 - cost[d]).max(0.0);
+        }
+        share -= f_d;
+        let scale = cap.max(f_d);
+        if share > PRICE_TOL * scale {
+            wake.push((share / scale, d));
+        }
+    }
+    if let Some(most) = most
+        && wake.len() > most
+    {
+        // The largest shares relative to the demand's size, ties by index; freed in index
+        // order.
+        wake.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)));
+        wake.truncate(most);
+        wake.sort_by_key(|&(_, d)| d);
+    }
+    let mut wake: Vec<usize> = wake.into_iter().map(|(_, d)| d).collect();
+    let fresh: Vec<W> = priced.into_iter().filter(|w| !seen.contains(w)).collect();
+    if fresh.is_empty() && wake.is_empty() {
+        wake = (0..fixed.len())
+            .filter(|&d| inactive_cap(d).is_some())
+            .collect();
+        if wake.is_empty() {
+            return None;
+        }
+    }
+    Some((wake, fresh))
+}
