@@ -18,10 +18,16 @@ use std::time::Instant;
 
 use common::Demands;
 
-/// The G200 document with expandable processing sites.
+/// The G200 document with expandable processing sites; `document_of(n)` its `n`-site
+/// variant (`2n − 5` links, `19.5 n` demands: the same shape, smaller).
 fn document() -> serde_json::Value {
-    let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, 200.0)).collect();
-    let mut doc = common::document(200, 200, 395, Demands::Random(3903), &procs, 0);
+    document_of(200)
+}
+
+fn document_of(n: usize) -> serde_json::Value {
+    let procs: Vec<(usize, f64)> = (0..n).step_by(10).map(|i| (i, 200.0)).collect();
+    let demands = if n == 200 { 3903 } else { n * 39 / 2 };
+    let mut doc = common::document(200, n, 2 * n - 5, Demands::Random(demands), &procs, 0);
     let sites = doc["sites"].as_array_mut().expect("sites");
     for (i, s) in sites.iter_mut().enumerate() {
         if i % 10 == 0 {
@@ -35,7 +41,11 @@ fn document() -> serde_json::Value {
 
 fn main() {
     let args: Vec<String> = std::env::args().collect();
-    let doc = document();
+    let sites = args
+        .iter()
+        .position(|a| a == "sites")
+        .map_or(200, |i| args[i + 1].parse().expect("sites N"));
+    let doc = document_of(sites);
     if let Some(i) = args.iter().position(|a| a == "write") {
         let path = args.get(i + 1).expect("write PATH");
         std::fs::write(path, doc.to_string()).expect("write the network");
