@@ -58,6 +58,8 @@ pub(super) struct MasterInput<'a> {
 pub(super) struct MasterResult {
     pub add: Vec<f64>,
     pub objective: f64,
+    /// The walk master's LP solves (zero for the edge master).
+    pub stats: super::MasterStats,
 }
 
 /// Sets the objective of `model` to `terms` (duplicates add up) and its sense.
@@ -229,6 +231,7 @@ fn solve_master_edge(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult
                 Goal::WorstWithin(_) => t_cap.clamp(0.0, 1.0),
                 Goal::TotalWithin(_) => active_shortfall(&[]),
             },
+            stats: Default::default(),
         });
     }
     let solver_error = |e: Error| Error::Solver(format!("plan master problem: {e}"));
@@ -281,6 +284,7 @@ fn solve_master_edge(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult
     Ok(MasterResult {
         add: values(&add, &sol.x, total_required),
         objective,
+        stats: Default::default(),
     })
 }
 
@@ -339,6 +343,7 @@ fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResul
                 Goal::WorstWithin(_) => t_cap.clamp(0.0, 1.0),
                 Goal::TotalWithin(_) => served_scale,
             },
+            stats: Default::default(),
         });
     }
     let mut pm = PlanMaster::new(net, base, add.clone());
@@ -399,5 +404,9 @@ fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResul
     Ok(MasterResult {
         add: values(&add, &sol.x, total_required),
         objective,
+        stats: super::MasterStats {
+            solves: pm.lp_solves,
+            interior_point_solves: pm.interior_point_solves,
+        },
     })
 }

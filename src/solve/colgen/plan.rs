@@ -326,6 +326,10 @@ impl<'a> PlanMaster<'a> {
         objective: &[(usize, f64)],
         maximise: bool,
     ) -> Result<LpSolution> {
+        if !self.exact_off && self.exact.is_none() && self.exact_rows() + rows.len() > WARM_ROWS {
+            // The simplex copy could not hold the master: skip building it.
+            self.exact_off = true;
+        }
         if !self.exact_off {
             match self.solve_exact(rows, objective, maximise) {
                 Ok(sol) => return Ok(sol),
@@ -337,6 +341,16 @@ impl<'a> PlanMaster<'a> {
             }
         }
         self.solve_interior(rows, objective, maximise)
+    }
+
+    /// Rows the simplex copy of `base` would start with: the eager rows and every lazy
+    /// row a walk column found so far enters. O(rows + walk entries).
+    fn exact_rows(&self) -> usize {
+        let mut used: Vec<bool> = self.lazy.iter().map(|&l| !l).collect();
+        for (r, _) in self.walk_entries.iter().flatten().flatten() {
+            used[*r] = true;
+        }
+        used.iter().filter(|&&u| u).count()
     }
 
     /// Builds the simplex copy of `base` (module comment of [`Exact`]): the caller's and
