@@ -340,7 +340,7 @@ fn walk_plans_match_microlp_reference_plan_lp() {
     let mut bought = 0;
     for case in 0..8 {
         let net = random_net(&mut rng);
-        let (failed, doc, cost, want) = close_all_checked(case, &net);
+        let (failed, _, cost, want) = close_all_checked(case, &net);
         let required = net.required();
         if cost > 0.0 {
             bought += 1;
