@@ -59,6 +59,14 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
     } else {
         expand::plan_with(&net, &audit, goal, opts, args.master)?
     };
+    if plan.master.interior_point_solves > 0 && !args.scenarios.quiet {
+        note(report::notes::note_plan_interior_point(
+            err,
+            plan.master.interior_point_solves,
+            plan.master.solves,
+            crate::solve::colgen::WARM_ROWS,
+        ));
+    }
     let doc = PlanReport {
         net: &net,
         audit: &audit,

@@ -650,6 +650,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
         drivers: site_drivers,
         dropped,
         modules: None,
+        master: Default::default(),
         functions: Some(purchases),
     })
 }

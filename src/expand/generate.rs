@@ -5,7 +5,7 @@ use std::cmp::Ordering;
 
 use super::candidates::Candidates;
 use super::master::{MasterInput, solve_master};
-use super::{Goal, Round};
+use super::{Goal, MasterStats, Round};
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::Result;
 use crate::model::Network;
@@ -52,6 +52,8 @@ pub(super) struct Generation<'a> {
 pub(super) struct Generated {
     pub add: Vec<f64>,
     pub rounds: Vec<Round>,
+    /// The master's LP solves over every round.
+    pub stats: MasterStats,
     /// Per outage: the evaluation with the plan applied (only `gainable` re-solved).
     pub after: Vec<Evaluation>,
 }
@@ -83,6 +85,7 @@ pub(super) fn generate(
         _ => data.gainable.iter().copied().take(ADD_PER_ROUND).collect(),
     };
     let mut rounds = Vec::new();
+    let mut stats = MasterStats::default();
     loop {
         let master = solve_master(
             &MasterInput {
@@ -97,6 +100,8 @@ pub(super) fn generate(
             },
             goal,
         )?;
+        stats.solves += master.stats.solves;
+        stats.interior_point_solves += master.stats.interior_point_solves;
         let after = verify(
             &net.with_added_processing(&master.add),
             audit,
@@ -144,7 +149,12 @@ pub(super) fn generate(
             } else {
                 (master.add, after)
             };
-            return Ok(Generated { add, rounds, after });
+            return Ok(Generated {
+                add,
+                rounds,
+                stats,
+                after,
+            });
         }
         active.extend(violated.iter().take(ADD_PER_ROUND).map(|v| v.2));
     }

@@ -58,6 +58,8 @@ pub(super) struct MasterInput<'a> {
 pub(super) struct MasterResult {
     pub add: Vec<f64>,
     pub objective: f64,
+    /// The walk master's LP solves (zero for the edge master).
+    pub stats: super::MasterStats,
 }
 
 /// Sets the objective of `model` to `terms` (duplicates add up) and its sense.
@@ -106,18 +108,26 @@ pub(super) fn solve_master(input: &MasterInput<'_>, goal: Goal) -> Result<Master
     }
 }
 
-/// The purchase variables every master starts with, added to `model`: one `add` variable
-/// per candidate site ([`add_vars`]), the cost terms `Σ cost_v · add_v`, the tie-break
-/// terms (site position over the site count: a deterministic preference among equal
-/// plans), and with a budget goal the row `Σ cost_v · add_v ≤ budget`. O(sites).
-#[allow(clippy::type_complexity)]
-fn purchases(
-    model: &mut Lp,
-    net: &Network,
-    cands: &Candidates,
-    goal: Goal,
+/// The variables every master starts with.
+struct Frame {
+    /// Per site: its `add` variable (candidate sites only).
+    add: Vec<Option<usize>>,
+    /// `Σ cost_v · add_v`.
+    cost_terms: Vec<(usize, f64)>,
+    /// Site position over the site count: a deterministic preference among equal plans.
+    tie_terms: Vec<(usize, f64)>,
+    /// The worst fraction `t` ([`Goal::WorstWithin`] only), at most `t_cap`.
+    t: Option<usize>,
+    /// Σ required over the network's demands (at least 1): the scale of the additions.
     total_required: f64,
-) -> (Vec<Option<usize>>, Vec<(usize, f64)>, Vec<(usize, f64)>) {
+}
+
+/// Adds to `model` the variables every master starts with ([`Frame`]): one `add`
+/// variable per candidate site ([`add_vars`]), with a budget goal the row
+/// `Σ cost_v · add_v ≤ budget`, and for the worst goal the variable `t`. O(sites).
+fn frame(model: &mut Lp, input: &MasterInput<'_>, goal: Goal) -> Frame {
+    let (net, cands) = (input.net, input.cands);
+    let total_required = net.total_required().max(1.0);
     let add = add_vars(model, net, cands, None, total_required, 0.0);
     let cost_terms: Vec<(usize, f64)> = add
         .iter()
@@ -132,7 +142,21 @@ fn purchases(
     if let Goal::WorstWithin(budget) | Goal::TotalWithin(budget) = goal {
         model.add_row(cost_terms.clone(), Sense::Le, budget);
     }
-    (add, cost_terms, tie_terms)
+    let t = match goal {
+        Goal::WorstWithin(_) => {
+            let t = model.add_var(0.0, input.t_cap.clamp(0.0, 1.0), 0.0);
+            model.magnitude[t] = 1.0;
+            Some(t)
+        }
+        _ => None,
+    };
+    Frame {
+        add,
+        cost_terms,
+        tie_terms,
+        t,
+        total_required,
+    }
 }
 
 /// [`solve_master`] on the edge model: one flow-model copy per active outage.
@@ -141,22 +165,17 @@ fn purchases(
 /// per candidate; refused past [`TOTAL_MAX_VARS`] variables. Cost: two to four LP solves.
 fn solve_master_edge(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult> {
     let MasterInput {
-        net,
-        audit,
-        cands,
-        bests,
-        active,
-        multiplicity,
-        t_cap,
-        master: _,
+        net, audit, bests, ..
     } = *input;
-    let total_required = net.total_required().max(1.0);
+    let (active, multiplicity, t_cap) = (input.active, input.multiplicity, input.t_cap);
     let mut model = Lp::new(false);
-    let (add, cost_terms, tie_terms) = purchases(&mut model, net, cands, goal, total_required);
-    let t = match goal {
-        Goal::WorstWithin(_) => Some(model.add_var(0.0, t_cap.clamp(0.0, 1.0), 0.0)),
-        _ => None,
-    };
+    let Frame {
+        add,
+        cost_terms,
+        tie_terms,
+        t,
+        total_required,
+    } = frame(&mut model, input, goal);
     // Σ over active outages of (scenarios · served), and its largest value.
     let mut served_terms: Vec<(usize, f64)> = Vec::new();
     let mut served_scale = 0.0;
@@ -212,6 +231,7 @@ fn solve_master_edge(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult
                 Goal::WorstWithin(_) => t_cap.clamp(0.0, 1.0),
                 Goal::TotalWithin(_) => active_shortfall(&[]),
             },
+            stats: Default::default(),
         });
     }
     let solver_error = |e: Error| Error::Solver(format!("plan master problem: {e}"));
@@ -264,6 +284,7 @@ fn solve_master_edge(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult
     Ok(MasterResult {
         add: values(&add, &sol.x, total_required),
         objective,
+        stats: Default::default(),
     })
 }
 
@@ -304,27 +325,12 @@ fn held_walks(
 /// the whole master past [`crate::solve::colgen::WARM_ROWS`] rows) plus one walk pricing
 /// pass per outage per round.
 fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult> {
-    let MasterInput {
-        net,
-        audit,
-        cands,
-        bests,
-        active,
-        multiplicity,
-        t_cap,
-        master: _,
-    } = *input;
-    let total_required = net.total_required().max(1.0);
+    let (net, audit, active) = (input.net, input.audit, input.active);
+    let (multiplicity, bests) = (input.multiplicity, input.bests);
     let mut base = Lp::new(false);
-    let (add, cost_terms, tie_terms) = purchases(&mut base, net, cands, goal, total_required);
-    let t = match goal {
-        Goal::WorstWithin(_) => {
-            let t = base.add_var(0.0, t_cap.clamp(0.0, 1.0), 0.0);
-            base.magnitude[t] = 1.0;
-            Some(t)
-        }
-        _ => None,
-    };
+    let frame = frame(&mut base, input, goal);
+    let (add, cost_terms, tie_terms) = (frame.add, frame.cost_terms, frame.tie_terms);
+    let (t, total_required, t_cap) = (frame.t, frame.total_required, input.t_cap);
     let served_scale: f64 = active
         .iter()
         .map(|&k| multiplicity[k] as f64 * audit.evaluations[k].surviving_required)
@@ -337,6 +343,7 @@ fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResul
                 Goal::WorstWithin(_) => t_cap.clamp(0.0, 1.0),
                 Goal::TotalWithin(_) => served_scale,
             },
+            stats: Default::default(),
         });
     }
     let mut pm = PlanMaster::new(net, base, add.clone());
@@ -397,5 +404,9 @@ fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResul
     Ok(MasterResult {
         add: values(&add, &sol.x, total_required),
         objective,
+        stats: super::MasterStats {
+            solves: pm.lp_solves,
+            interior_point_solves: pm.interior_point_solves,
+        },
     })
 }

@@ -90,6 +90,17 @@ pub struct Round {
     pub violated: usize,
 }
 
+/// The LP solves of a plan's walk master over all rounds of constraint generation.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct MasterStats {
+    /// Restricted-master LP solves (one per column-generation round).
+    pub solves: usize,
+    /// Of them, cold interior-point solves: the master outgrew the exact warm simplex
+    /// ([`crate::solve::colgen::WARM_ROWS`] rows), so its rows hold only to about 1e-7 of
+    /// its magnitude (the plan is verified on every scenario all the same).
+    pub interior_point_solves: usize,
+}
+
 /// A plan and how it does in every scenario.
 #[derive(Debug, Clone)]
 pub struct Plan {
@@ -98,6 +109,8 @@ pub struct Plan {
     pub add: Vec<f64>,
     pub cost: f64,
     pub rounds: Vec<Round>,
+    /// The master's LP solves (all zero for plans not found by the walk master).
+    pub master: MasterStats,
     /// Per outage of the audit: the best reachable served_required.
     pub best: Vec<f64>,
     /// Per outage: the evaluation with the plan applied (every outage with a shortfall
@@ -226,6 +239,7 @@ pub fn plan_with(
         cost,
         add: tidied.add,
         rounds: g.rounds,
+        master: g.stats,
         best: bests,
         worst_fraction: worst_fraction(&after),
         after,

@@ -107,6 +107,23 @@ pub fn note_journal_line(
     )
 }
 
+/// A note on stderr: the plan's walk master outgrew the exact warm simplex (`rows`
+/// simplex rows at most), so `interior` of its `solves` LP solves went to the
+/// interior-point solver.
+pub fn note_plan_interior_point(
+    w: &mut dyn Write,
+    interior: usize,
+    solves: usize,
+    rows: usize,
+) -> io::Result<()> {
+    writeln!(
+        w,
+        "redoubt: note: the plan's master outgrew the exact simplex ({rows} rows), so {interior} \
+         of its {solves} solves went to the interior-point solver (slower; its rows hold to \
+         about 1e-7); the plan is still checked on every scenario"
+    )
+}
+
 /// A note on stderr: the journal could not be written (the run went on without it).
 pub fn note_journal_failed(w: &mut dyn Write, why: &str) -> io::Result<()> {
     writeln!(

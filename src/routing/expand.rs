@@ -265,6 +265,7 @@ pub fn plan(net: &Network, ra: &RoutedAudit, goal: Goal, opts: RunOptions) -> Re
         worst_fraction,
         modules,
         dropped: 0,
+        master: Default::default(),
         functions: None,
     })
 }

@@ -22,7 +22,8 @@ use std::sync::atomic::{AtomicBool, Ordering};
 
 use highs::{ColProblem, HighsModelStatus, Model, SolvedModel};
 
-use super::lp::{Backend, Lp, LpSolution, Scaling, Sense};
+use super::lp::{Backend, Lp, LpSolution, Sense, scaled};
+use super::simplex::Column;
 use crate::error::{Error, Result};
 
 /// Whether HiGHS is used (on unless [`set_enabled`] turned it off).
@@ -140,10 +141,7 @@ impl Backend for Highs {
     }
 
     fn solve(&self, lp: &Lp) -> Result<LpSolution> {
-        let scaling = Scaling::of(lp);
-        let scaled = scaling.apply(lp);
-        let sol = solve_cold(&scaled)?;
-        Ok(scaling.unscale(lp, sol))
+        scaled(lp, solve_cold)
     }
 }
 
@@ -219,8 +217,10 @@ impl WarmLp {
     }
 
     /// Adds the empty row `0 ≤ rhs` (its coefficients come with the columns added after
-    /// it); returns its index. O(1).
-    pub fn add_row(&mut self, rhs: f64) -> usize {
+    /// it; `entries` must be empty, the argument keeps [`crate::solve::simplex::Simplex`]'s
+    /// signature); returns its index. O(1).
+    pub fn add_row(&mut self, rhs: f64, entries: &[(usize, f64)]) -> usize {
+        debug_assert!(entries.is_empty(), "WarmLp rows are added empty");
         let i = self.rows.len();
         let row = self
             .model()
@@ -231,23 +231,15 @@ impl WarmLp {
         i
     }
 
-    /// Adds a column with objective `obj`, bounds `lower..=upper` and entries (row,
-    /// coefficient). HiGHS places it nonbasic at a bound; `value` is its value until the
-    /// next solve. Returns its index. O(entries).
-    pub fn add_col(
-        &mut self,
-        obj: f64,
-        lower: f64,
-        upper: f64,
-        value: f64,
-        entries: Vec<(usize, f64)>,
-    ) -> usize {
+    /// Adds column `c` with entries (row, coefficient). HiGHS places it nonbasic at a
+    /// bound; `c.value` is its value until the next solve. Returns its index. O(entries).
+    pub fn add_col(&mut self, c: Column, entries: Vec<(usize, f64)>) -> usize {
         let rows: Vec<(highs::Row, f64)> =
             entries.iter().map(|&(i, a)| (self.rows[i], a)).collect();
-        self.model().add_col(obj, lower..=upper, rows);
+        self.model().add_col(c.obj, c.lower..=c.upper, rows);
         self.cols += 1;
-        self.obj.push(obj);
-        self.x.push(value);
+        self.obj.push(c.obj);
+        self.x.push(c.value);
         self.cols - 1
     }
 
@@ -385,12 +377,13 @@ mod tests {
     #[test]
     fn warm_lp_grows_and_resolves() {
         let mut w = WarmLp::new();
-        let r0 = w.add_row(4.0);
-        let a = w.add_col(1.0, 0.0, f64::INFINITY, 0.0, vec![(r0, 1.0)]);
+        let col = |obj: f64| Column::new(obj, 0.0, f64::INFINITY, 0.0);
+        let r0 = w.add_row(4.0, &[]);
+        let a = w.add_col(col(1.0), vec![(r0, 1.0)]);
         w.solve(100).unwrap();
         assert!((w.objective() - 4.0).abs() < 1e-9 && (w.dual(r0) - 1.0).abs() < 1e-9);
-        let r1 = w.add_row(1.0);
-        let b = w.add_col(2.0, 0.0, f64::INFINITY, 0.0, vec![(r0, 1.0), (r1, 1.0)]);
+        let r1 = w.add_row(1.0, &[]);
+        let b = w.add_col(col(2.0), vec![(r0, 1.0), (r1, 1.0)]);
         w.solve(100).unwrap();
         assert!((w.objective() - 5.0).abs() < 1e-9, "{}", w.objective());
         assert!((w.value(a) - 3.0).abs() < 1e-9 && (w.value(b) - 1.0).abs() < 1e-9);

@@ -188,10 +188,7 @@ impl Backend for Clarabel {
     }
 
     fn solve(&self, lp: &Lp) -> Result<LpSolution> {
-        let scaling = Scaling::of(lp);
-        let scaled = scaling.apply(lp);
-        let sol = solve_clarabel(&scaled, *self)?;
-        Ok(scaling.unscale(lp, sol))
+        scaled(lp, |s| solve_clarabel(s, *self))
     }
 }
 
@@ -201,30 +198,41 @@ impl Backend for Simplex {
     }
 
     fn solve(&self, lp: &Lp) -> Result<LpSolution> {
-        let scaling = Scaling::of(lp);
-        let scaled = scaling.apply(lp);
-        let primal = solve_microlp(&scaled)?;
-        let (dual, map) = dual_of(&scaled)?;
-        let dsol = solve_microlp(&dual)?;
-        let mut duals = vec![0.0; scaled.rows.len()];
-        let mut upper_duals = vec![0.0; scaled.num_vars()];
-        let sign = if scaled.maximise { 1.0 } else { -1.0 };
-        for (i, v) in map.rows.iter().enumerate() {
-            duals[i] = sign * dsol.x[*v];
-        }
-        for (j, v) in map.uppers.iter().enumerate() {
-            if let Some(v) = v {
-                upper_duals[j] = sign * dsol.x[*v];
-            }
-        }
-        let sol = LpSolution {
-            objective: primal.objective,
-            x: primal.x,
-            duals,
-            upper_duals,
-        };
-        Ok(scaling.unscale(lp, sol))
+        scaled(lp, solve_simplex_scaled)
     }
+}
+
+/// Solves `lp` with `solve` on its [`Scaling`] and maps the answer back to `lp`'s units
+/// (what every backend does around its own solve). O(nonzeros) besides the solve.
+pub fn scaled(lp: &Lp, solve: impl FnOnce(&Lp) -> Result<LpSolution>) -> Result<LpSolution> {
+    let scaling = Scaling::of(lp);
+    let sol = solve(&scaling.apply(lp))?;
+    Ok(scaling.unscale(lp, sol))
+}
+
+/// microlp's simplex on an already scaled `scaled`: the primal, then the explicit dual LP
+/// for the row and bound prices. O(two simplex solves).
+fn solve_simplex_scaled(scaled: &Lp) -> Result<LpSolution> {
+    let primal = solve_microlp(scaled)?;
+    let (dual, map) = dual_of(scaled)?;
+    let dsol = solve_microlp(&dual)?;
+    let mut duals = vec![0.0; scaled.rows.len()];
+    let mut upper_duals = vec![0.0; scaled.num_vars()];
+    let sign = if scaled.maximise { 1.0 } else { -1.0 };
+    for (i, v) in map.rows.iter().enumerate() {
+        duals[i] = sign * dsol.x[*v];
+    }
+    for (j, v) in map.uppers.iter().enumerate() {
+        if let Some(v) = v {
+            upper_duals[j] = sign * dsol.x[*v];
+        }
+    }
+    Ok(LpSolution {
+        objective: primal.objective,
+        x: primal.x,
+        duals,
+        upper_duals,
+    })
 }
 
 /// Row and column scale factors (powers of two): the backend sees `x = S·x'`, rows

@@ -43,6 +43,28 @@ enum Var {
     Slack(usize),
 }
 
+/// A column to add to a warm master LP: objective, bounds, and the value it starts from
+/// (nonbasic).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Column {
+    pub obj: f64,
+    pub lower: f64,
+    pub upper: f64,
+    pub value: f64,
+}
+
+impl Column {
+    /// The column with objective `obj`, bounds `lower..=upper`, starting at `value`.
+    pub const fn new(obj: f64, lower: f64, upper: f64, value: f64) -> Column {
+        Column {
+            obj,
+            lower,
+            upper,
+            value,
+        }
+    }
+}
+
 /// The model, its current basis and point (see the module comment).
 #[derive(Debug, Clone, Default)]
 pub struct Simplex {

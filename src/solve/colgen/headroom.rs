@@ -49,6 +49,7 @@ use super::{GAP_TOL, Graph, MAX_ROUNDS, Solved, WARM_ROWS, Walk, price};
 use crate::error::Result;
 use crate::model::Network;
 use crate::solve::concurrent::{Headroom, Setup, decide, upper_bound};
+use crate::solve::simplex::Column;
 use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
 
@@ -332,7 +333,7 @@ impl<'a, 'g> Master<'a, 'g> {
             dem_row[d] = lp.add_row(0.0);
             entries.push((dem_row[d], setup.required[d]));
         }
-        lp.add_col(1.0, 0.0, setup.ceiling, 0.0, entries);
+        lp.add_col(Column::new(1.0, 0.0, setup.ceiling, 0.0), entries);
         Master {
             g,
             arc_cap,
@@ -390,8 +391,8 @@ impl<'a, 'g> Master<'a, 'g> {
         }
         entries.push((self.site_row[w.site], 1.0));
         entries.push((self.dem_row[w.demand], -1.0));
-        self.lp
-            .add_col(0.0, 0.0, f64::INFINITY, f.max(0.0), entries);
+        let c = Column::new(0.0, 0.0, f64::INFINITY, f.max(0.0));
+        self.lp.add_col(c, entries);
         self.walks.push(w);
     }
 

@@ -70,6 +70,9 @@ pub struct PlanMaster<'a> {
     /// Whether the simplex was given up (the master outgrew [`WARM_ROWS`] rows, or the
     /// simplex failed): later solves go to the interior-point backend.
     exact_off: bool,
+    /// The interior-point round's copy of `base` with the goal rows and objective, while
+    /// such a round runs (walk columns enter it as they enter `base`).
+    cold: Option<Lp>,
     /// Master LP solves so far.
     pub lp_solves: usize,
     /// Of them, solves by the interior-point backend (the fallback).
@@ -225,6 +228,7 @@ impl<'a> PlanMaster<'a> {
             walk_entries,
             exact: None,
             exact_off: false,
+            cold: None,
             lp_solves: 0,
             interior_point_solves: 0,
         }
@@ -322,6 +326,10 @@ impl<'a> PlanMaster<'a> {
         objective: &[(usize, f64)],
         maximise: bool,
     ) -> Result<LpSolution> {
+        if !self.exact_off && self.exact.is_none() && self.exact_rows() + rows.len() > WARM_ROWS {
+            // The simplex copy could not hold the master: skip building it.
+            self.exact_off = true;
+        }
         if !self.exact_off {
             match self.solve_exact(rows, objective, maximise) {
                 Ok(sol) => return Ok(sol),
@@ -333,6 +341,16 @@ impl<'a> PlanMaster<'a> {
             }
         }
         self.solve_interior(rows, objective, maximise)
+    }
+
+    /// Rows the simplex copy of `base` would start with: the eager rows and every lazy
+    /// row a walk column found so far enters. O(rows + walk entries).
+    fn exact_rows(&self) -> usize {
+        let mut used: Vec<bool> = self.lazy.iter().map(|&l| !l).collect();
+        for (r, _) in self.walk_entries.iter().flatten().flatten() {
+            used[*r] = true;
+        }
+        used.iter().filter(|&&u| u).count()
     }
 
     /// Builds the simplex copy of `base` (module comment of [`Exact`]): the caller's and
@@ -435,43 +453,68 @@ impl<'a> PlanMaster<'a> {
             .expect("built by the caller")
             .sx
             .set_objective(obj);
-        let mut round = 0;
-        loop {
-            cancel::check()?;
-            let ex = self.exact.as_mut().expect("built by the caller");
+        self.rounds(sg, |pm| {
+            let ex = pm.exact.as_mut().expect("built by the caller");
             if ex.sx.rows() > WARM_ROWS {
                 return Err(too_big());
             }
             let limit = PIVOTS_PER_ROW * ex.sx.rows().max(100);
             ex.sx.solve(limit)?;
+            Ok(ex.solution(&pm.base, objective, maximise))
+        })
+    }
+
+    /// Rounds of column generation: `solve_once` solves the current restricted master
+    /// (warm simplex or cold interior point), then every block is priced and its improving
+    /// walks added ([`PlanMaster::add_improving`]); ends when no walk is new or after
+    /// [`MAX_ROUNDS`] priced rounds, with the last solution.
+    fn rounds(
+        &mut self,
+        sg: f64,
+        mut solve_once: impl FnMut(&mut Self) -> Result<LpSolution>,
+    ) -> Result<LpSolution> {
+        let mut round = 0;
+        loop {
+            cancel::check()?;
+            let sol = solve_once(self)?;
             self.lp_solves += 1;
-            let sol = ex.solution(&self.base, objective, maximise);
             round += 1;
-            if round > MAX_ROUNDS {
-                return Ok(sol);
-            }
-            let fresh: Vec<Vec<Walk>> = self
-                .blocks
-                .par_iter()
-                .map(|b| b.improving(&sol, sg))
-                .collect();
-            let mut added = 0;
-            for (b, walks) in self.blocks.iter_mut().zip(fresh) {
-                for w in walks {
-                    if b.seen.insert(w.clone()) {
-                        let (j, entries) = b.column(&mut self.base, &w);
-                        let ex = self.exact.as_mut().expect("built by the caller");
-                        ex.col.push(NO_ROW);
-                        ex.add_walk(&self.base, j, &entries)?;
-                        self.walk_entries.push(Some(entries));
-                        added += 1;
-                    }
-                }
-            }
-            if added == 0 {
+            if round > MAX_ROUNDS || self.add_improving(&sol, sg)? == 0 {
                 return Ok(sol);
             }
         }
+    }
+
+    /// Prices every block at `sol`'s shadow prices (in parallel) and adds each improving
+    /// walk not yet in its block: to `base`, to the simplex copy when there is one, and
+    /// to the interior-point copy when there is one. Returns how many were added.
+    /// O(blocks · pricing + added · (m · entries)).
+    fn add_improving(&mut self, sol: &LpSolution, sg: f64) -> Result<usize> {
+        let fresh: Vec<Vec<Walk>> = self
+            .blocks
+            .par_iter()
+            .map(|b| b.improving(sol, sg))
+            .collect();
+        let mut added = 0;
+        for (k, walks) in fresh.into_iter().enumerate() {
+            for w in walks {
+                let b = &mut self.blocks[k];
+                if !b.seen.insert(w.clone()) {
+                    continue;
+                }
+                if let Some(cold) = self.cold.as_mut() {
+                    b.column(cold, &w);
+                }
+                let (j, entries) = b.column(&mut self.base, &w);
+                if let Some(ex) = self.exact.as_mut() {
+                    ex.col.push(NO_ROW);
+                    ex.add_walk(&self.base, j, &entries)?;
+                }
+                self.walk_entries.push(Some(entries));
+                added += 1;
+            }
+        }
+        Ok(added)
     }
 
     /// [`PlanMaster::solve`] on the interior-point backend: column generation on a copy
@@ -492,34 +535,13 @@ impl<'a> PlanMaster<'a> {
         }
         work.maximise = maximise;
         let sg = if maximise { 1.0 } else { -1.0 };
-        for _ in 0..MAX_ROUNDS {
-            cancel::check()?;
-            self.lp_solves += 1;
-            self.interior_point_solves += 1;
-            let sol = lp::solve(&work)?;
-            let fresh: Vec<Vec<Walk>> = self
-                .blocks
-                .par_iter()
-                .map(|b| b.improving(&sol, sg))
-                .collect();
-            let mut added = 0;
-            for (b, walks) in self.blocks.iter_mut().zip(fresh) {
-                for w in walks {
-                    if b.seen.insert(w.clone()) {
-                        b.column(&mut work, &w);
-                        let (_, entries) = b.column(&mut self.base, &w);
-                        self.walk_entries.push(Some(entries));
-                        added += 1;
-                    }
-                }
-            }
-            if added == 0 {
-                return Ok(sol);
-            }
-        }
-        self.lp_solves += 1;
-        self.interior_point_solves += 1;
-        lp::solve(&work)
+        self.cold = Some(work);
+        let sol = self.rounds(sg, |pm| {
+            pm.interior_point_solves += 1;
+            lp::solve(pm.cold.as_ref().expect("set above"))
+        });
+        self.cold = None;
+        sol
     }
 }
 

@@ -7,7 +7,7 @@ use super::*;
 use std::collections::HashSet;
 
 use crate::error::Result;
-use crate::solve::simplex::Simplex;
+use crate::solve::simplex::{Column, Simplex};
 
 /// The LP a [`WarmMaster`] keeps between rounds: a maximisation over `≤` rows (added empty,
 /// their coefficients come with the columns) and bounded columns, re-solved from where the
@@ -19,15 +19,9 @@ pub(super) trait MasterLp {
     fn cols(&self) -> usize;
     /// Adds the empty row `0 ≤ rhs`; returns its index.
     fn add_row(&mut self, rhs: f64) -> usize;
-    /// Adds a column (objective, bounds, value it starts from, entries); returns its index.
-    fn add_col(
-        &mut self,
-        obj: f64,
-        lower: f64,
-        upper: f64,
-        value: f64,
-        entries: Vec<(usize, f64)>,
-    ) -> usize;
+    /// Adds column `c` (objective, bounds, value it starts from) with `entries`; returns
+    /// its index.
+    fn add_col(&mut self, c: Column, entries: Vec<(usize, f64)>) -> usize;
     fn shift_rhs(&mut self, i: usize, delta: f64);
     fn solve(&mut self, max_pivots: usize) -> Result<()>;
     fn value(&self, j: usize) -> f64;
@@ -35,87 +29,54 @@ pub(super) trait MasterLp {
     fn objective(&self) -> f64;
 }
 
-impl MasterLp for Simplex {
-    fn row_limit(&self) -> usize {
-        WARM_ROWS
-    }
-    fn rows(&self) -> usize {
-        Simplex::rows(self)
-    }
-    fn cols(&self) -> usize {
-        Simplex::cols(self)
-    }
-    fn add_row(&mut self, rhs: f64) -> usize {
-        Simplex::add_row(self, rhs, &[])
-    }
-    fn add_col(
-        &mut self,
-        obj: f64,
-        lower: f64,
-        upper: f64,
-        value: f64,
-        entries: Vec<(usize, f64)>,
-    ) -> usize {
-        Simplex::add_col(self, obj, lower, upper, value, entries)
-    }
-    fn shift_rhs(&mut self, i: usize, delta: f64) {
-        Simplex::shift_rhs(self, i, delta)
-    }
-    fn solve(&mut self, max_pivots: usize) -> Result<()> {
-        Simplex::solve(self, max_pivots)
-    }
-    fn value(&self, j: usize) -> f64 {
-        Simplex::value(self, j)
-    }
-    fn dual(&self, i: usize) -> f64 {
-        Simplex::dual(self, i)
-    }
-    fn objective(&self) -> f64 {
-        Simplex::objective(self)
-    }
+/// Implements [`MasterLp`] for `$t` by delegation to its inherent methods of the same
+/// names, with the row limit `$limit`; `$add` adds the [`Column`] `$c` with entries `$e`
+/// to `$s` (the one method whose inherent signature differs between the two LPs).
+macro_rules! master_lp {
+    ($t:ty, $limit:expr, |$s:ident, $c:ident, $e:ident| $add:expr) => {
+        impl MasterLp for $t {
+            fn row_limit(&self) -> usize {
+                $limit
+            }
+            fn rows(&self) -> usize {
+                <$t>::rows(self)
+            }
+            fn cols(&self) -> usize {
+                <$t>::cols(self)
+            }
+            fn add_row(&mut self, rhs: f64) -> usize {
+                <$t>::add_row(self, rhs, &[])
+            }
+            fn add_col(&mut self, $c: Column, $e: Vec<(usize, f64)>) -> usize {
+                let $s = self;
+                $add
+            }
+            fn shift_rhs(&mut self, i: usize, delta: f64) {
+                <$t>::shift_rhs(self, i, delta)
+            }
+            fn solve(&mut self, max_pivots: usize) -> Result<()> {
+                <$t>::solve(self, max_pivots)
+            }
+            fn value(&self, j: usize) -> f64 {
+                <$t>::value(self, j)
+            }
+            fn dual(&self, i: usize) -> f64 {
+                <$t>::dual(self, i)
+            }
+            fn objective(&self) -> f64 {
+                <$t>::objective(self)
+            }
+        }
+    };
 }
 
-/// HiGHS keeps a sparse factorisation, so the master has no size limit.
+master_lp!(Simplex, WARM_ROWS, |s, c, e| s
+    .add_col(c.obj, c.lower, c.upper, c.value, e));
+
+// HiGHS keeps a sparse factorisation, so the master has no size limit.
 #[cfg(feature = "highs")]
-impl MasterLp for crate::solve::highs::WarmLp {
-    fn row_limit(&self) -> usize {
-        usize::MAX
-    }
-    fn rows(&self) -> usize {
-        Self::rows(self)
-    }
-    fn cols(&self) -> usize {
-        Self::cols(self)
-    }
-    fn add_row(&mut self, rhs: f64) -> usize {
-        Self::add_row(self, rhs)
-    }
-    fn add_col(
-        &mut self,
-        obj: f64,
-        lower: f64,
-        upper: f64,
-        value: f64,
-        entries: Vec<(usize, f64)>,
-    ) -> usize {
-        Self::add_col(self, obj, lower, upper, value, entries)
-    }
-    fn shift_rhs(&mut self, i: usize, delta: f64) {
-        Self::shift_rhs(self, i, delta)
-    }
-    fn solve(&mut self, max_pivots: usize) -> Result<()> {
-        Self::solve(self, max_pivots)
-    }
-    fn value(&self, j: usize) -> f64 {
-        Self::value(self, j)
-    }
-    fn dual(&self, i: usize) -> f64 {
-        Self::dual(self, i)
-    }
-    fn objective(&self) -> f64 {
-        Self::objective(self)
-    }
-}
+master_lp!(crate::solve::highs::WarmLp, usize::MAX, |s, c, e| s
+    .add_col(c, e));
 
 /// The master LP for a master above [`WARM_ROWS`] rows: HiGHS's `highs::WarmLp`
 /// when the `highs` feature is built and HiGHS is enabled, else `None` (the caller goes
@@ -228,7 +189,8 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
         }
         entries.push((self.site_row[w.site], 1.0));
         entries.push((self.dem_row[d], 1.0));
-        self.lp.add_col(1.0, 0.0, f64::INFINITY, f, entries);
+        self.lp
+            .add_col(Column::new(1.0, 0.0, f64::INFINITY, f), entries);
         self.walks.push(w);
     }
 
