@@ -12,35 +12,10 @@
 mod chain_reference;
 mod common;
 
-use chain_reference::{random_net, reference_served};
+use chain_reference::{assert_close, failed_element, random_net, reference_served};
 use common::json::{audit_json, failed_of, num, scenarios};
 use common::{TempPath, redoubt};
 use rand::prelude::*;
-use serde_json::Value;
-
-/// Relative tolerance of the comparisons: |got − want| <= REL · max(1, |want|).
-const REL: f64 = 1e-6;
-
-fn assert_close(got: f64, want: f64, what: &str) {
-    assert!(
-        (got - want).abs() <= REL * want.abs().max(1.0),
-        "{what}: got {got}, want {want} (relative tolerance {REL})"
-    );
-}
-
-/// The (site, link) a depth-1 scenario fails, from its JSON object.
-fn failed_element(sc: &Value) -> (Option<usize>, Option<usize>) {
-    let failed = failed_of(sc);
-    match failed.as_slice() {
-        [] => (None, None),
-        [one] => match one.split_once(':') {
-            Some(("site", id)) => (Some(id[1..].parse().unwrap()), None),
-            Some(("link", id)) => (None, Some(id[1..].parse().unwrap())),
-            _ => panic!("unexpected element {one}"),
-        },
-        _ => panic!("depth 1 only: {failed:?}"),
-    }
-}
 
 #[test]
 fn layered_walks_equal_the_edge_lp_and_the_reference_at_depth_1() {

@@ -18,21 +18,11 @@
 mod chain_reference;
 mod common;
 
-use chain_reference::{random_net, reference_served};
+use chain_reference::{assert_close, random_net, reference_served};
 use common::json::{audit_json, num, scenario, scenarios};
 use common::{TempPath, redoubt};
 use rand::prelude::*;
 use serde_json::{Value, json};
-
-/// Relative tolerance of the comparisons: |got − want| <= REL · max(1, |want|).
-const REL: f64 = 1e-6;
-
-fn assert_close(got: f64, want: f64, what: &str) {
-    assert!(
-        (got - want).abs() <= REL * want.abs().max(1.0),
-        "{what}: got {got}, want {want} (relative tolerance {REL})"
-    );
-}
 
 /// Audits `net` (baseline and every single link and site failure, `--detail` so that every
 /// scenario lists its cut-off demands) with the default engine

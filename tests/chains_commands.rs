@@ -9,35 +9,11 @@
 mod chain_reference;
 mod common;
 
-use chain_reference::{RNet, random_net, reference_served};
+use chain_reference::{RNet, assert_close, failed_element, random_net, reference_served};
 use common::json::{alone, audit_json, failed_of, num, pair, scenarios};
 use common::{TempPath, redoubt};
 use rand::prelude::*;
 use serde_json::{Value, json};
-
-/// Relative tolerance of the comparisons with the reference: |got − want| <= REL · max(1, |want|).
-const REL: f64 = 1e-6;
-
-fn assert_close(got: f64, want: f64, what: &str) {
-    assert!(
-        (got - want).abs() <= REL * want.abs().max(1.0),
-        "{what}: got {got}, want {want} (relative tolerance {REL})"
-    );
-}
-
-/// The (site, link) a depth-1 scenario of a random chain network fails.
-fn failed_element(sc: &Value) -> (Option<usize>, Option<usize>) {
-    let failed = failed_of(sc);
-    match failed.as_slice() {
-        [] => (None, None),
-        [one] => match one.split_once(':') {
-            Some(("site", id)) => (Some(id[1..].parse().unwrap()), None),
-            Some(("link", id)) => (None, Some(id[1..].parse().unwrap())),
-            _ => panic!("unexpected element {one}"),
-        },
-        _ => panic!("depth 1 only: {failed:?}"),
-    }
-}
 
 /// A second traffic matrix for `t`: every demand at 1.6 times its volume and required
 /// (a busy hour), the last one dropped and a new plain demand between the first two sites.

@@ -11,6 +11,32 @@ use good_lp::{Expression, ProblemVariables, Solution, SolverModel, Variable, mic
 use rand::prelude::*;
 use serde_json::{Value, json};
 
+/// Relative tolerance of the comparisons with the reference: |got − want| <= REL · max(1, |want|).
+pub const REL: f64 = 1e-6;
+
+/// Panics unless `got` is within [`REL`] of `want` (relative to max(1, |want|)).
+pub fn assert_close(got: f64, want: f64, what: &str) {
+    assert!(
+        (got - want).abs() <= REL * want.abs().max(1.0),
+        "{what}: got {got}, want {want} (relative tolerance {REL})"
+    );
+}
+
+/// The (site, link) a depth-1 scenario of a random chain network fails, from its JSON
+/// object's `failed` list (`site:sN` / `link:lN`, the ids `RNet::to_json` writes). Every crate that includes this file also declares `mod common`.
+pub fn failed_element(sc: &Value) -> (Option<usize>, Option<usize>) {
+    let failed = crate::common::json::failed_of(sc);
+    match failed.as_slice() {
+        [] => (None, None),
+        [one] => match one.split_once(':') {
+            Some(("site", id)) => (Some(id[1..].parse().unwrap()), None),
+            Some(("link", id)) => (None, Some(id[1..].parse().unwrap())),
+            _ => panic!("unexpected element {one}"),
+        },
+        _ => panic!("depth 1 only: {failed:?}"),
+    }
+}
+
 pub struct RNet {
     pub gains: Vec<f64>,
     /// Per site, per function.
