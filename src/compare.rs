@@ -121,6 +121,9 @@ pub struct Comparison {
     /// and the `--min-headroom` gate on AFTER (set by the command; `None` from
     /// [`compare`]).
     pub headroom: Option<crate::headroom::Comparison>,
+    /// Either file lists `functions` (service chains): the reports carry the chain model's
+    /// caution.
+    pub chains: bool,
 }
 
 impl Comparison {
@@ -255,6 +258,7 @@ pub fn compare(
     });
     let (eb, ea) = (element_names(nb), element_names(na));
     Comparison {
+        chains: nb.chains.is_some() || na.chains.is_some(),
         before_name: nb.name.clone(),
         after_name: na.name.clone(),
         unit: na.unit.clone(),

@@ -647,7 +647,8 @@ fn random_chain_purchases_match_a_per_demand_reference() {
 /// The caution states the model's assumptions, so a chain file's reports state the chain
 /// model's ("each unit through its demand's chain of functions"), never the single
 /// processing step of files without `functions` (which keep theirs). Checked in the audit
-/// text, `--json`, the `--csv` column, and the plan's text and JSON (common practice, no
+/// text, `--json`, the `--csv` column, the plan's text and JSON, and `compare`'s text, JSON
+/// and Markdown page (common practice, no
 /// source: a caution must describe the model the numbers come from).
 #[test]
 fn chain_reports_state_the_chain_model_in_their_caution() {
@@ -675,7 +676,30 @@ fn chain_reports_state_the_chain_model_in_their_caution() {
         let doc = json.read_json();
         let csv_text = std::fs::read_to_string(csv.path()).unwrap();
         let (plan, plan_text) = plan_at(path, &[]);
+        // `compare` of the file with itself: text, JSON and the Markdown page.
+        let cmp_json = TempPath::new("caution-compare", "json");
+        let cmp_dir = common::TempDir::new("caution-compare");
+        let cmp_dir_path = cmp_dir.0.to_str().unwrap();
+        let cmp = redoubt(&[
+            "compare",
+            path,
+            path,
+            "--quiet",
+            "--json",
+            cmp_json.path(),
+            "--report",
+            cmp_dir_path,
+        ]);
+        assert_eq!(cmp.code, 0, "{fixture} compare: {}", cmp.stderr);
+        let cmp_md = std::fs::read_to_string(cmp_dir.join("report.md")).unwrap();
+        let cmp_doc = cmp_json.read_json();
         for (what, text) in [
+            ("compare text", flat(&cmp.stdout)),
+            (
+                "compare JSON",
+                cmp_doc["caution"].as_str().unwrap().to_string(),
+            ),
+            ("compare Markdown", flat(&cmp_md)),
             ("audit text", flat(&run.stdout)),
             ("audit JSON", doc["caution"].as_str().unwrap().to_string()),
             ("CSV", flat(&csv_text)),

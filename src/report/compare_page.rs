@@ -7,7 +7,6 @@
 use std::fmt;
 use std::io::{self, Write};
 
-use super::CAUTION;
 use super::export::streamed;
 use super::html::{esc, page_opening, table_html};
 use super::text::{change_words, edit_value, signed, verdict_line};
@@ -32,6 +31,8 @@ pub struct Page {
     verdict: String,
     baselines: String,
     sections: Vec<Section>,
+    /// The caution line (the chain model's when either file lists `functions`).
+    caution: &'static str,
 }
 
 fn changes(title: &str, note: &str, list: &[Change], unit: &str) -> Section {
@@ -145,6 +146,7 @@ impl Page {
             });
         }
         Page {
+            caution: super::caution_of(c.chains),
             title: format!("Change check: {} → {}", c.before_name, c.after_name),
             passed: c.passed(),
             verdict: verdict_line(c),
@@ -169,7 +171,7 @@ impl Page {
             &self.title,
             &self.verdict,
             self.passed,
-            CAUTION,
+            self.caution,
         )?;
         writeln!(o, "<p>{}</p>", esc(&self.baselines))?;
         for s in &self.sections {
@@ -179,7 +181,7 @@ impl Page {
                 table_html(o, &s.head, &s.rows, &s.numeric)?;
             }
         }
-        writeln!(o, "<p class=\"caution\">{}</p>", esc(CAUTION))?;
+        writeln!(o, "<p class=\"caution\">{}</p>", esc(self.caution))?;
         o.write_str("</main></body></html>\n")
     }
 
@@ -187,7 +189,7 @@ impl Page {
     pub fn markdown(&self, o: &mut dyn fmt::Write) -> fmt::Result {
         let cell = |s: &str| s.replace('|', "\\|").replace('\n', " ");
         writeln!(o, "# {}\n", self.title)?;
-        writeln!(o, "> {}\n", CAUTION)?;
+        writeln!(o, "> {}\n", self.caution)?;
         writeln!(o, "**{}**\n", self.verdict)?;
         writeln!(o, "{}\n", self.baselines)?;
         for s in &self.sections {
@@ -204,7 +206,7 @@ impl Page {
             }
             o.write_char('\n')?;
         }
-        writeln!(o, "> {}", CAUTION)
+        writeln!(o, "> {}", self.caution)
     }
 
     /// [`Page::html`] streamed to `w`.

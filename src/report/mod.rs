@@ -41,9 +41,10 @@ own engineering review, change procedures and local rules.";
 /// The caution a report on `net` carries: [`CHAIN_CAUTION`] when its file lists
 /// `functions`, else [`CAUTION`]. O(1).
 pub fn caution_for(net: &crate::model::Network) -> &'static str {
-    if net.chains.is_some() {
-        CHAIN_CAUTION
-    } else {
-        CAUTION
-    }
+    caution_of(net.chains.is_some())
+}
+
+/// [`CHAIN_CAUTION`] when `chains` (a file of the run lists `functions`), else [`CAUTION`].
+pub fn caution_of(chains: bool) -> &'static str {
+    if chains { CHAIN_CAUTION } else { CAUTION }
 }

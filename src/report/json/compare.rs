@@ -2,7 +2,7 @@
 
 use serde::Serialize;
 
-use crate::report::{CAUTION, file_num};
+use crate::report::file_num;
 use crate::solve::Evaluation;
 
 /// The four contract values of one side of a comparison.
@@ -133,7 +133,7 @@ pub fn compare_json(
     use crate::compare::{Change, Values};
     let base = Change::new(Vec::new(), None, Values::of(before), Values::of(after));
     CompareJson {
-        caution: CAUTION,
+        caution: crate::report::caution_of(c.chains),
         before: c.before_name.clone(),
         after: c.after_name.clone(),
         unit: c.unit.clone(),

@@ -150,7 +150,7 @@ pub(super) fn compare_lines(
         first_k(c.elements_added.iter().cloned(), 10),
         first_k(c.elements_removed.iter().cloned(), 10)
     )?;
-    w.write_all(caution().as_bytes())
+    writeln!(w, "{}", crate::report::caution_of(c.chains))
 }
 
 /// The section "What changed in the file": one row per changed field (`link:l3 capacity

@@ -8,7 +8,7 @@ use comfy_table::Cell;
 
 use std::io::{self, Write};
 
-use super::{CAUTION, amount, file_diff, given, num, percent, shift_point, small, unit_one};
+use super::{amount, file_diff, given, num, percent, shift_point, small, unit_one};
 use crate::audit::{Audit, OutageId, ScenarioId};
 use crate::gate::{GateKind, GateResult};
 use crate::model::strict::printable;
@@ -152,11 +152,6 @@ pub fn resource_name(net: &Network, r: Resource) -> String {
 
 /// Scenario names up to this many characters stay on one line in the scenario table.
 const NAME_ON_ONE_LINE: usize = 32;
-
-/// The caution line every report ends with.
-pub fn caution() -> String {
-    format!("{CAUTION}\n")
-}
 
 /// The first `k` items joined with commas, `(+N more)` for the rest, `—` when empty.
 pub(crate) fn first_k(items: impl ExactSizeIterator<Item = String>, k: usize) -> String {
