@@ -384,11 +384,31 @@ fn check_summarises_functions_and_chains() {
     }
 }
 
+/// `audit --why` on a chain file explains the worst scenario. Hand calculation on the path
+/// a — b — c — d: every single failure of a link or of b or c cuts the only walk through
+/// fw (at b) and scrub (at c), so the worst scenarios serve 0 of the 10 required; ties go
+/// by name, so `link:ab` is explained, with the demand a→d cut off and both functions
+/// unused (no demand can reach them: price —).
+#[test]
+fn why_explains_the_worst_chain_scenario() {
+    let file = TempPath::with_text("chains-why", &two_function_path(8.0, 0.5).to_string());
+    let run = redoubt(&["audit", file.path(), "--why"]);
+    assert_eq!(run.code, 0, "no gate given: {}", run.stderr);
+    let flat = run.stdout.split_whitespace().collect::<Vec<_>>().join(" ");
+    for needle in [
+        "Why link:ab: serves 0 of 10 units surviving required (10 short",
+        "a→d #1 a → d 10 0 10 cut off",
+        "fw b 0 8 0.0% —",
+        "scrub c 0 100 0.0% —",
+    ] {
+        assert!(flat.contains(needle), "{needle:?} in {}", run.stdout);
+    }
+}
+
 #[test]
 fn commands_that_do_not_take_chains_yet_say_so() {
     let file = TempPath::with_text("chains-refuse", &two_function_path(8.0, 0.5).to_string());
     for args in [
-        vec!["audit", file.path(), "--why"],
         vec!["audit", file.path(), "--routing", "steered"],
         vec!["plan", file.path(), "--routing", "steered"],
     ] {

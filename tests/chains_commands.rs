@@ -282,6 +282,19 @@ fn shards_of_a_chain_file_merge_to_the_one_process_run() {
         "CSV"
     );
     assert_eq!(one.stdout, merged.stdout);
+    // With `--why` too: the explanation of the worst scenario (its demands, its functions,
+    // what would fix it) is the same from the merged parts as from the one-process run,
+    // and it is there.
+    let one_why = redoubt(&["audit", file.path(), "--depth", "2", "--why"]);
+    let mut args = vec!["merge"];
+    args.extend(parts.iter().map(|p| common::s(p)));
+    args.push("--why");
+    let merged_why = redoubt(&args);
+    assert_eq!(one_why.code, 0, "{}", one_why.stderr);
+    assert_eq!(merged_why.code, 0, "{}", merged_why.stderr);
+    assert!(one_why.stdout.contains("\nWhy "), "{}", one_why.stdout);
+    assert!(one_why.stdout.contains("Functions ("), "{}", one_why.stdout);
+    assert_eq!(one_why.stdout, merged_why.stdout);
 
     // One short scenario's line edited in part 2.
     let text = std::fs::read_to_string(&parts[1]).unwrap();
@@ -469,7 +482,7 @@ fn compare_of_chain_files_against_the_reference() {
 }
 
 /// What chain files are still refused, with a message that names `functions` and lists
-/// what takes them (compare and merge among them now).
+/// what takes them (compare and merge among them now; `--why` is taken).
 #[test]
 fn what_chain_files_still_refuse_says_so() {
     let mut rng = StdRng::seed_from_u64(11);
@@ -478,7 +491,6 @@ fn what_chain_files_still_refuse_says_so() {
     for args in [
         vec!["worst", file.path(), "--k", "2"],
         vec!["audit", file.path(), "--headroom"],
-        vec!["audit", file.path(), "--why"],
         vec!["compare", file.path(), file.path(), "--headroom"],
     ] {
         let run = redoubt(&args);

@@ -115,7 +115,6 @@ pub(super) fn run(
                 "--routing nearest|steered",
             ),
             (args.headroom, "--headroom"),
-            (args.why, "--why"),
             (
                 matches!(args.engine, crate::solve::Engine::Approx { .. }),
                 "--engine approx",

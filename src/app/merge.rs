@@ -48,9 +48,6 @@ pub(super) fn run(args: &MergeOptions, out: &mut dyn Write) -> Result<Outcome> {
     })?;
     let net = Network::from_bytes(h.network.as_bytes())
         .map_err(|e| Error::Input(format!("merge: the network in the parts: {e}")))?;
-    if args.why {
-        super::chains_refused(&net, "merge --why")?;
-    }
     let engine: Engine = h.engine.parse().map_err(|e| match e {
         Error::Input(m) => Error::Input(format!("merge: the parts: {m}")),
         other => other,

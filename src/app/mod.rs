@@ -100,16 +100,16 @@ fn note(r: io::Result<()>) {
 }
 
 /// Refuses `what` on a network whose file lists `functions` (service chains), naming what
-/// takes such files so far: `check`, `audit` (best re-route, with `--close`, `--matrix`,
-/// `--shard`, `--resume`), `merge`, `compare` and `plan` (best re-route).
+/// takes such files so far: `check`, `audit` (best re-route, with `--close`, `--why`,
+/// `--matrix`, `--shard`, `--resume`), `merge`, `compare` and `plan` (best re-route).
 pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
     if net.chains.is_some() {
         return Err(Error::Usage(format!(
             "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
-             `redoubt audit` (best re-route, with or without --close, --matrix, --shard or \
-             --resume; not --routing, --headroom, --why or --engine approx), `redoubt merge` \
-             (not --why), `redoubt compare` (not --headroom) and `redoubt plan` (best \
-             re-route; not --routing) take so far"
+             `redoubt audit` (best re-route, with or without --close, --why, --matrix, --shard \
+             or --resume; not --routing, --headroom or --engine approx), `redoubt merge`, \
+             `redoubt compare` (not --headroom) and `redoubt plan` (best re-route; not \
+             --routing) take so far"
         )));
     }
     Ok(())
