@@ -32,7 +32,7 @@ use std::cmp::Reverse;
 use std::collections::{BTreeMap, BinaryHeap};
 
 use super::edge::better_attempt;
-use super::evaluator::{AddModel, Evaluated, Evaluator, Warm};
+use super::evaluator::{Evaluated, Evaluator, Warm};
 use super::lp::{Backend, Lp, Sense};
 use super::surviving::{Surviving, Unservable};
 use super::types::{Evaluation, FunctionUse, Verification, Verified};
@@ -821,15 +821,8 @@ impl Evaluator for ChainEdge {
         Ok(Evaluated::cold(evaluate(net, outage)?))
     }
 
-    fn add_processing(
-        &self,
-        _: &mut Lp,
-        _: &Network,
-        _: &Outage,
-        _: &[Option<usize>],
-        _: f64,
-    ) -> Option<AddModel> {
-        None
+    fn buys_processing(&self) -> bool {
+        false
     }
 }
 

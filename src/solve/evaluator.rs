@@ -98,12 +98,20 @@ pub trait Evaluator: Send + Sync {
         false
     }
 
+    /// Whether this model buys single-step processing through
+    /// [`Evaluator::add_processing`]'s default. `false` for the service-chain evaluators:
+    /// they buy function capacity ([`crate::expand::chain_buy`]), not through this trait.
+    /// Default `true`.
+    fn buys_processing(&self) -> bool {
+        true
+    }
+
     /// Builds the served_required model of `outage` into `model` with the additions
     /// `add` (per site: its `add_v` variable) in the processing rows, each served unit
     /// weighted `obj` in the objective. `None` when buying processing is not defined for
-    /// this model (it would change the routes). The default is the two-layer model of
-    /// [`flow::build`] with the additions: what every engine routing on any walk (edge LP,
-    /// walks, approx) buys against.
+    /// this model (it would change the routes, or [`Evaluator::buys_processing`] is
+    /// `false`). The default is the two-layer model of [`flow::build`] with the additions:
+    /// what every engine routing on any walk (edge LP, walks, approx) buys against.
     fn add_processing(
         &self,
         model: &mut Lp,
@@ -112,7 +120,8 @@ pub trait Evaluator: Send + Sync {
         add: &[Option<usize>],
         obj: f64,
     ) -> Option<AddModel> {
-        Some(two_layer_with(model, net, outage, add, obj))
+        self.buys_processing()
+            .then(|| two_layer_with(model, net, outage, add, obj))
     }
 
     /// Builds into `model` (holding the additions `add` with their costs as objective) the

@@ -63,8 +63,7 @@ use verify::{verified, with_walks};
 
 use super::chain::{self, EdgeKind};
 use super::colgen::Stats;
-use super::evaluator::{AddModel, Evaluated, Evaluator, Warm};
-use super::lp::Lp;
+use super::evaluator::{Evaluated, Evaluator, Warm};
 use super::needs_volume_lp;
 use super::surviving::{Surviving, Unservable};
 use super::types::{Evaluation, Verified};
@@ -335,15 +334,8 @@ impl Evaluator for ChainWalks {
         true
     }
 
-    fn add_processing(
-        &self,
-        _: &mut Lp,
-        _: &Network,
-        _: &Outage,
-        _: &[Option<usize>],
-        _: f64,
-    ) -> Option<AddModel> {
-        None
+    fn buys_processing(&self) -> bool {
+        false
     }
 }
 
