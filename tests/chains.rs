@@ -405,6 +405,70 @@ fn why_explains_the_worst_chain_scenario() {
     }
 }
 
+/// `compare` names what changed in the functions, field by field, as it does for links
+/// (the input contract: the list of file changes, "link:X capacity 100 → 10"): on the
+/// chains demo with the DPI at quillhaven raised 60 → 70 and the scrub gain lowered
+/// 0.9 → 0.8, exactly those two rows, in the text and in `file_changes`.
+#[test]
+fn compare_lists_function_changes() {
+    let before = common::fixture("demo-quillhaven-chains.json");
+    let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&before).unwrap()).unwrap();
+    for site in doc["sites"].as_array_mut().unwrap() {
+        if site["id"] == "quillhaven" {
+            site["functions"]["dpi"] = json!(70);
+        }
+    }
+    for f in doc["functions"].as_array_mut().unwrap() {
+        if f["id"] == "scrub" {
+            f["gain"] = json!(0.8);
+        }
+    }
+    let after = TempPath::with_text("chains-compare-after", &doc.to_string());
+    let out = TempPath::new("chains-compare", "json");
+    let run = redoubt(&[
+        "compare",
+        before.to_str().unwrap(),
+        after.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let flat = run.stdout.split_whitespace().collect::<Vec<_>>().join(" ");
+    for needle in [
+        "function:scrub gain 0.9 0.8",
+        "site:quillhaven function:dpi capacity 60 70",
+    ] {
+        assert!(flat.contains(needle), "{needle:?} in {}", run.stdout);
+    }
+    let changes = out.read_json()["file_changes"].clone();
+    let rows: Vec<(String, String, f64, f64)> = changes
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| {
+            (
+                c["element"].as_str().unwrap().to_string(),
+                c["field"].as_str().unwrap().to_string(),
+                c["before"].as_f64().unwrap(),
+                c["after"].as_f64().unwrap(),
+            )
+        })
+        .collect();
+    assert_eq!(
+        rows,
+        vec![
+            ("function:scrub".into(), "gain".into(), 0.9, 0.8),
+            (
+                "site:quillhaven function:dpi".into(),
+                "capacity".into(),
+                60.0,
+                70.0
+            ),
+        ]
+    );
+}
+
 #[test]
 fn commands_that_do_not_take_chains_yet_say_so() {
     let file = TempPath::with_text("chains-refuse", &two_function_path(8.0, 0.5).to_string());

@@ -7,7 +7,9 @@
 //! *removed*. Fields compared: a site's processing, expansion cost, limit and module, and
 //! failure probability; a link's endpoints, direction, capacity, metric, groups and
 //! failure probability; a group's members and failure probability; a demand's endpoints,
-//! volume and required amount. Drawing positions are not compared (they change no result).
+//! volume and required amount; with service chains, a function's gain (or the function
+//! added or removed) and each site's capacity of each function. Drawing positions are not
+//! compared (they change no result).
 
 use std::collections::{BTreeSet, HashMap};
 
@@ -36,9 +38,9 @@ pub struct Edit {
 }
 
 /// Every difference between `before` and `after`, in this order: sites, links, groups,
-/// demands, further traffic matrices; within each kind, by the element's position in `after` and then the removed
-/// ones in their order in `before`; within an element, fields in the order of the module
-/// comment.
+/// demands, further traffic matrices, service-chain functions; within each kind, by the
+/// element's position in `after` and then the removed ones in their order in `before`;
+/// within an element, fields in the order of the module comment.
 ///
 /// Complexity: O(S + L·g + G·m + D) for S sites, L links in g groups each, G groups of m
 /// links and D demands (hash maps by id; no pairwise search). Deterministic: it depends
@@ -50,7 +52,88 @@ pub fn edits(before: &Network, after: &Network) -> Vec<Edit> {
     groups(before, after, &mut out);
     demands(before, after, "", &mut out);
     matrices(before, after, &mut out);
+    functions(before, after, &mut out);
     out
+}
+
+/// Service chains: a function added or removed (`function:ID`, with its gain) or whose
+/// gain changed, then per site both files have, each function whose capacity there
+/// changed (`site:ID function:F`, field `capacity`; a function a site does not run counts
+/// as capacity 0). Nothing when neither file lists `functions`. O(sites · functions).
+fn functions(before: &Network, after: &Network, out: &mut Vec<Edit>) {
+    let empty = super::Chains {
+        functions: Vec::new(),
+        capacity: Vec::new(),
+        expand: Vec::new(),
+        chain: Vec::new(),
+    };
+    if before.chains.is_none() && after.chains.is_none() {
+        return;
+    }
+    let (cb, ca) = (
+        before.chains.as_ref().unwrap_or(&empty),
+        after.chains.as_ref().unwrap_or(&empty),
+    );
+    let gain = |c: &super::Chains, id: &str| c.functions.iter().position(|f| f.id == id);
+    let gain_text = |g: f64| Value::Text(format!("gain {}", crate::numbers::num(g)));
+    for f in &ca.functions {
+        let element = format!("function:{}", f.id);
+        match gain(cb, &f.id) {
+            None => out.push(Edit {
+                element,
+                field: "added",
+                before: None,
+                after: Some(gain_text(f.gain)),
+            }),
+            Some(i) if cb.functions[i].gain != f.gain => out.push(Edit {
+                element,
+                field: "gain",
+                before: num(cb.functions[i].gain),
+                after: num(f.gain),
+            }),
+            Some(_) => {}
+        }
+    }
+    for f in cb.functions.iter().filter(|f| gain(ca, &f.id).is_none()) {
+        out.push(Edit {
+            element: format!("function:{}", f.id),
+            field: "removed",
+            before: Some(gain_text(f.gain)),
+            after: None,
+        });
+    }
+    let capacity = |c: &super::Chains, v: usize, id: &str| {
+        gain(c, id).map_or(0.0, |f| c.capacity.get(v).map_or(0.0, |row| row[f]))
+    };
+    let mut ids: Vec<&str> = ca.functions.iter().map(|f| f.id.as_str()).collect();
+    ids.extend(
+        cb.functions
+            .iter()
+            .map(|f| f.id.as_str())
+            .filter(|id| gain(ca, id).is_none()),
+    );
+    let at: HashMap<&str, usize> = before
+        .sites
+        .iter()
+        .enumerate()
+        .map(|(v, s)| (s.id.as_str(), v))
+        .collect();
+    for (va, site) in after.sites.iter().enumerate() {
+        let Some(&vb) = at.get(site.id.as_str()) else {
+            continue;
+        };
+        for id in &ids {
+            let (b, a) = (capacity(cb, vb, id), capacity(ca, va, id));
+            if b != a {
+                out.push(Edit {
+                    element: format!("site:{} function:{id}", site.id),
+                    field: "capacity",
+                    before: num(b),
+                    after: num(a),
+                });
+            }
+        }
+    }
 }
 
 /// The further traffic matrices: one added or removed (`matrix:ID`, with its demand count
