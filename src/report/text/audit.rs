@@ -78,7 +78,7 @@ pub fn under_matrix(m: &Model<'_>, i: usize) -> String {
 }
 
 /// The audit report: header, worst scenarios, element criticality (the caller ends the
-/// report with [`caution`]).
+/// report with [`crate::report::caution_for`]).
 pub fn audit_report(m: &Model<'_>) -> String {
     let (net, audit, baseline, top) = (m.net, m.audit, m.baseline, m.top);
     let u = &net.unit;
