@@ -2,7 +2,8 @@
 //! far required demand can grow, every surviving demand alike, before a scenario is short.
 //!
 //! Per distinct outage the factor λ comes from [`crate::solve::concurrent::headroom`]
-//! (best re-route: the maximum concurrent flow of the two-layer model) or, under
+//! (best re-route: the maximum concurrent flow of the two-layer model; for a file with
+//! `functions`, [`crate::solve::chainwalk::headroom`] on the layered model) or, under
 //! `--routing nearest|steered`, from [`crate::routing::headroom`] (routes fixed). Each is
 //! solved once per distinct outage, in parallel ([`audit::par_map`]), after the audit's
 //! evaluations; the results depend only on the network and the outage, so the thread
@@ -34,6 +35,7 @@ pub fn of_outage(
     routing: Option<&routing::Model>,
 ) -> Result<Headroom> {
     match routing {
+        None if net.chains.is_some() => crate::solve::chainwalk::headroom::headroom(net, outage),
         None => crate::solve::concurrent::headroom(net, outage),
         Some(model) => routing::headroom::of_outage(model, net, outage),
     }
@@ -98,20 +100,21 @@ pub fn of_audit(
         .map(|&m| Scenario::baseline().with_down(down).under(m).outage(net))
         .collect();
     let (per_base, per_outage) = match routing {
-        Some(model) => {
+        // Routes fixed, or service chains (the layered model): each outage cold.
+        _ if routing.is_some() || net.chains.is_some() => {
             let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
-                routing::headroom::of_outage(model, net, o)
+                of_outage(net, o, routing)
             })?;
             let mut per_base = Vec::with_capacity(bases.len());
             for base in &bases {
                 per_base.push(match audit.outages.iter().position(|o| o == base) {
                     Some(k) => per_outage[k].clone(),
-                    None => routing::headroom::of_outage(model, net, base)?,
+                    None => of_outage(net, base, routing)?,
                 });
             }
             (per_base, per_outage)
         }
-        None => {
+        _ => {
             // Each matrix's baseline first: its columns start every outage of that matrix.
             let mut per_base = Vec::with_capacity(bases.len());
             let mut columns = Vec::with_capacity(bases.len());

@@ -114,7 +114,6 @@ pub(super) fn run(
                 args.scenarios.routing.is_some(),
                 "--routing nearest|steered",
             ),
-            (args.headroom, "--headroom"),
             (
                 matches!(args.engine, crate::solve::Engine::Approx { .. }),
                 "--engine approx",

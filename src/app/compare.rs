@@ -54,10 +54,6 @@ pub(super) fn run(
     others.extend(args.json.as_deref());
     let report_files = super::audit::report_dir(args.report.as_deref(), &others)?;
     let (nb, na) = (load(&args.before)?, load(&args.after)?);
-    if args.headroom {
-        super::chains_refused(&nb, "compare --headroom")?;
-        super::chains_refused(&na, "compare --headroom")?;
-    }
     same_unit(&nb, &na)?;
     let opts = run_options(&args.sides, err);
     let (nb, ab) = audit_side(args, nb, &args.before, "BEFORE", opts, err)?;

@@ -106,10 +106,9 @@ pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
     if net.chains.is_some() {
         return Err(Error::Usage(format!(
             "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
-             `redoubt audit` (best re-route, with or without --close, --why, --matrix, --shard \
-             or --resume; not --routing, --headroom or --engine approx), `redoubt merge`, \
-             `redoubt compare` (not --headroom) and `redoubt plan` (best re-route; not \
-             --routing) take so far"
+             `redoubt audit` (best re-route, with or without --close, --why, --matrix, --shard, \
+             --resume or --headroom; not --routing or --engine approx), `redoubt merge`, \
+             `redoubt compare` and `redoubt plan` (best re-route; not --routing) take so far"
         )));
     }
     Ok(())
