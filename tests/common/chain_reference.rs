@@ -236,3 +236,119 @@ pub fn random_net(rng: &mut StdRng) -> RNet {
         demands,
     }
 }
+
+/// Growth headroom from the contract ("Growth headroom" with "Service chains and traffic
+/// that changes volume"): the largest λ such that every surviving demand with
+/// `required > 0` is served at `λ · required` (origin units) at the same time. One layered
+/// commodity *per demand* (layers 0..=k of the surviving arcs; arc use `G_j · x`, function
+/// use `G_j · p`, as in [`reference_served`]) whose origin sends exactly `λ · required`;
+/// shared arc and function rows; maximise λ, on microlp. `None` when no demand with
+/// `required > 0` has both ends alive. A demand with no layered walk forces λ = 0 through
+/// its own conservation rows.
+pub fn reference_headroom(
+    t: &RNet,
+    failed_site: Option<usize>,
+    failed_link: Option<usize>,
+) -> Option<f64> {
+    let n = t.capacity.len();
+    let up = |v: usize| failed_site != Some(v);
+    let mut arcs = Vec::new();
+    for (l, &(a, b, c, one)) in t.links.iter().enumerate() {
+        if failed_link == Some(l) || !up(a) || !up(b) {
+            continue;
+        }
+        arcs.push((a, b, c));
+        if !one {
+            arcs.push((b, a, c));
+        }
+    }
+    let live: Vec<&(usize, usize, f64, f64, Vec<usize>)> = t
+        .demands
+        .iter()
+        .filter(|d| up(d.0) && up(d.1) && d.3 > 0.0)
+        .collect();
+    if live.is_empty() {
+        return None;
+    }
+    let nf = t.gains.len();
+    let mut pv = ProblemVariables::new();
+    let lambda: Variable = pv.add(variable().min(0.0));
+    let mut arc_use = vec![Expression::from(0.0); arcs.len()];
+    let mut fn_use = vec![vec![Expression::from(0.0); nf]; n];
+    let mut balance = Vec::new();
+    for &&(from, to, _, required, ref chain) in &live {
+        let k = chain.len();
+        let mut g = 1.0;
+        let mut node = vec![vec![Expression::from(0.0); n]; k + 1];
+        for j in 0..=k {
+            for (a, &(u, w, _)) in arcs.iter().enumerate() {
+                let x = pv.add(variable().min(0.0));
+                node[j][u] -= x;
+                node[j][w] += x;
+                arc_use[a] += g * x;
+            }
+            if j < k {
+                for v in 0..n {
+                    if up(v) && t.capacity[v][chain[j]] > 0.0 {
+                        let p = pv.add(variable().min(0.0));
+                        node[j][v] -= p;
+                        node[j + 1][v] += p;
+                        fn_use[v][chain[j]] += g * p;
+                    }
+                }
+                g *= t.gains[chain[j]];
+            }
+        }
+        node[0][from] += required * lambda;
+        node[k][to] -= required * lambda;
+        for layer in node {
+            balance.extend(layer);
+        }
+    }
+    let mut model = pv.maximise(lambda).using(microlp);
+    for e in balance {
+        model.add_constraint(e.eq(0.0));
+    }
+    for (a, e) in arc_use.into_iter().enumerate() {
+        model.add_constraint(e.leq(arcs[a].2));
+    }
+    for (v, row) in fn_use.into_iter().enumerate() {
+        for (f, e) in row.into_iter().enumerate() {
+            if up(v) && t.capacity[v][f] > 0.0 {
+                model.add_constraint(e.leq(t.capacity[v][f]));
+            }
+        }
+    }
+    let sol = model
+        .solve()
+        .expect("microlp solves the headroom reference");
+    Some(sol.value(lambda))
+}
+
+/// `file` (a network without `functions`) rewritten with one function `proc` of gain 1:
+/// each site's `processing` becomes its `functions.proc`, `expand_cost`/`expand_max`
+/// become `expand.proc`, and every demand gets the chain `["proc"]` (the contract's
+/// reading of a file without `functions`).
+pub fn with_one_function(file: &Value) -> Value {
+    let mut out = file.clone();
+    out["functions"] = json!([{"id": "proc", "gain": 1}]);
+    for s in out["sites"].as_array_mut().unwrap() {
+        let o = s.as_object_mut().unwrap();
+        let p = o.remove("processing").unwrap_or(json!(0));
+        o.insert("functions".into(), json!({"proc": p}));
+        let cost = o.remove("expand_cost");
+        let max = o.remove("expand_max");
+        o.remove("expand_step");
+        if let Some(c) = cost {
+            let mut e = json!({"cost": c});
+            if let Some(m) = max {
+                e["max"] = m;
+            }
+            o.insert("expand".into(), json!({"proc": e}));
+        }
+    }
+    for d in out["demands"].as_array_mut().unwrap() {
+        d["chain"] = json!(["proc"]);
+    }
+    out
+}
