@@ -241,9 +241,9 @@ fn compare_and_gate_on_chains() {
 
 /// Random chain networks (seeded): every single-failure scenario's headroom equals the
 /// per-demand layered concurrent-flow LP on microlp ([`reference_headroom`]) within
-/// `chain_reference::REL`, each proven; null exactly where the reference has no surviving demand; and
-/// λ ≥ 1 exactly when the scenario's shortfall is 0 (the contract: λ ≥ 1 means the
-/// committed demand fits). The top-level value is the least of the scenarios'.
+/// `chain_reference::REL`, each proven; null exactly where the reference has no surviving
+/// demand; and λ ≥ 1 exactly when the scenario's shortfall is 0 (the contract: λ ≥ 1 means
+/// the committed demand fits). The top-level value is the least of the scenarios'.
 #[test]
 fn random_chain_networks_match_the_reference() {
     let mut compared = 0;

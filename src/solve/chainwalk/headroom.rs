@@ -43,22 +43,38 @@
 //! row per surviving demand), solved cold by the backends of [`ladder`] in turn until
 //! proven, one repair and one pricing pass per attempt.
 
-use std::collections::BTreeMap;
+use std::collections::{BTreeMap, HashMap, HashSet};
 
-use super::rows::Rows;
+use super::rows::{RowKey, Rows, layered_rows};
+use super::verify::{verified, with_walks};
+use super::{ChainWalk, GAP_TOL, MAX_ROUNDS, NONE, Solved, WARM_ROWS};
 use crate::error::{Error, Result};
 use crate::model::{FunctionIdx, Network};
 use crate::scenario::Outage;
-use crate::solve::concurrent::{Headroom, Setup, quotient};
+use crate::solve::colgen::round::solve_round;
+use crate::solve::concurrent::{Headroom, Setup, decide, quotient};
 use crate::solve::lp::{Backend, Sense};
+use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
 use crate::solve::{chain, ladder, verify};
 
 /// The headroom of `net` (a network with `functions`) under `outage`, on the matrix the
-/// outage names: [`headroom_with`] on [`ladder`]. Pure function of (network, outage).
+/// outage names: by column generation over layered walks ([`by_walks`]), and when that does
+/// not prove its answer, the layered λ-LP ([`headroom_with`] on [`ladder`]). Pure function
+/// of (network, outage).
 pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
     let net = net.view(outage.matrix);
-    headroom_with(net, &Surviving::new(net, outage, None), ladder())
+    let view = Surviving::new(net, outage, None);
+    let setup = match setup(net, &view)? {
+        Ok(s) => s,
+        Err(decided) => return Ok(decided),
+    };
+    if let Some(h) = by_walks(net, &view, &setup)?
+        && h.proven
+    {
+        return Ok(h);
+    }
+    headroom_with(net, &view, ladder())
 }
 
 /// The checks before any LP (see the module documentation): `Err(headroom)` when the
@@ -113,25 +129,17 @@ pub fn setup(net: &Network, view: &Surviving) -> Result<std::result::Result<Setu
 /// every backend fails before any bound is known. Tests pass a ladder of one backend to
 /// see that an answer is checked, not trusted.
 pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -> Result<Headroom> {
+    let setup = match setup(net, view)? {
+        Ok(s) => s,
+        Err(decided) => return Ok(decided),
+    };
+    let (mut model, layered, _) = chain::build(net, view, &caps(net, &setup));
     let Setup {
         required,
         active,
         ceiling,
         total_required,
-    } = match setup(net, view)? {
-        Ok(s) => s,
-        Err(decided) => return Ok(decided),
-    };
-    let bound: Vec<f64> = (0..net.demands.len())
-        .map(|d| {
-            if active.binary_search(&d).is_ok() {
-                ceiling * required[d]
-            } else {
-                0.0
-            }
-        })
-        .collect();
-    let (mut model, layered, _) = chain::build(net, view, &bound);
+    } = setup;
     let lambda = model.add_var(0.0, ceiling, 1.0);
     model.magnitude[lambda] = ceiling;
     for &d in &active {
@@ -203,6 +211,136 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
     Ok(best)
 }
 
+/// The headroom of `view` by column generation over layered walks, cold: the master
+/// (maximise λ; `λ · required_d − Σ_{w of d} f_w ≤ 0` per surviving demand, the layered
+/// rows of [`layered_rows`] with demand caps `Λ · required`, `0 ≤ λ ≤ Λ`) on the warm
+/// simplex, rows created as columns need them; pricing by [`Rows::price`] at the row duals
+/// times `Σ required` (so the demand duals average about 1 and the absolute price
+/// tolerance compares amounts of order one), a walk of `d` entering when
+/// `u_d − π_d` exceeds it (passed as the demand duals `1 − u_d`); stopped when the priced
+/// quotient bound meets the master's λ within [`GAP_TOL`]. The answer is verified like the
+/// λ-LP's: its walks written as layered edge flows ([`with_walks`]), decomposed and scaled
+/// into the real capacities ([`verified`], whose residual is the walks' largest relative
+/// overload of a row), `min_d flow_d / required_d` the lower bound, the quotient at the
+/// master's prices the upper. `None` when the master outgrows [`WARM_ROWS`], the simplex
+/// fails, nothing new prices out while the gap is open, or after [`MAX_ROUNDS`] rounds.
+///
+/// Cost: per round one warm simplex re-optimisation (rows: used arcs, used (site,
+/// function) pairs and surviving demands) and one pricing pass (one layered Dijkstra per
+/// (origin, chain) group); then one verification.
+fn by_walks(net: &Network, view: &Surviving, setup: &Setup) -> Result<Option<Headroom>> {
+    let bound = caps(net, setup);
+    let (mut layered, _) = layered_rows(net, view, &bound);
+    let scale = setup.total_required;
+    let (walks, flow, arc_price, fn_price) = {
+        let rows = Rows::new(net, view, &layered);
+        let mut lp = Simplex::new();
+        let mut dem_row = vec![NONE; net.demands.len()];
+        let mut entries = Vec::with_capacity(setup.active.len());
+        for &d in &setup.active {
+            dem_row[d] = lp.add_row(0.0, &[]);
+            entries.push((dem_row[d], setup.required[d]));
+        }
+        lp.add_col(1.0, 0.0, setup.ceiling, 0.0, entries);
+        let mut row: HashMap<RowKey, usize> = HashMap::new();
+        let mut walks: Vec<ChainWalk> = Vec::new();
+        let mut seen: HashSet<ChainWalk> = HashSet::new();
+        // Every demand's cheapest walk at zero prices (fewest hops) starts the master.
+        let every = vec![f64::NEG_INFINITY; net.demands.len()];
+        let mut fresh = rows
+            .price(&vec![0.0; net.arcs.len()], &BTreeMap::new(), Some(&every))
+            .walks;
+        let mut rounds = 0;
+        loop {
+            for w in fresh {
+                if !seen.insert(w.clone()) {
+                    continue;
+                }
+                let mut entries = Vec::new();
+                for (key, c) in rows.coefficients(&w) {
+                    match key {
+                        RowKey::Demand(d) => entries.push((dem_row[d], -1.0)),
+                        _ => {
+                            let r = *row
+                                .entry(key)
+                                .or_insert_with(|| lp.add_row(rows.rhs(key), &[]));
+                            entries.push((r, c));
+                        }
+                    }
+                }
+                lp.add_col(0.0, 0.0, f64::INFINITY, 0.0, entries);
+                walks.push(w);
+            }
+            if !solve_round(lp.rows(), WARM_ROWS, true, |pivots| lp.solve(pivots))? {
+                return Ok(None);
+            }
+            let dual = |key: RowKey| row.get(&key).map_or(0.0, |&r| scale * lp.dual(r).max(0.0));
+            let y: Vec<f64> = (0..net.arcs.len()).map(|a| dual(RowKey::Arc(a))).collect();
+            let z: BTreeMap<(usize, FunctionIdx), f64> = layered
+                .function_cap
+                .keys()
+                .map(|&(v, f)| ((v, f), dual(RowKey::Function(v, f))))
+                .collect();
+            let u: Vec<f64> = dem_row
+                .iter()
+                .map(|&r| {
+                    if r == NONE {
+                        f64::INFINITY
+                    } else {
+                        1.0 - scale * lp.dual(r).max(0.0)
+                    }
+                })
+                .collect();
+            let lambda = lp.value(0);
+            let upper = upper_bound(&rows, &setup.active, &y, &z).min(setup.ceiling);
+            if upper - lambda <= GAP_TOL * upper.max(f64::MIN_POSITIVE) {
+                let flow: Vec<f64> = (1..lp.cols()).map(|j| lp.value(j).max(0.0)).collect();
+                break (walks, flow, y, z);
+            }
+            rounds += 1;
+            fresh = rows.price(&y, &z, Some(&u)).walks;
+            fresh.retain(|w| !seen.contains(w));
+            if fresh.is_empty() || rounds >= MAX_ROUNDS {
+                return Ok(None);
+            }
+        }
+    };
+    let solved = Solved {
+        value: flow.iter().sum(),
+        walks,
+        flow,
+        arc_price,
+        fn_price,
+    };
+    let group_of = Rows::new(net, view, &layered).group_of;
+    let x = with_walks(net, &mut layered, &group_of, &solved);
+    let rows = Rows::new(net, view, &layered);
+    let checked = verified(&rows, &layered, &x, &solved);
+    let lower = setup
+        .active
+        .iter()
+        .map(|&d| checked.allocation.demand_flow[d] / setup.required[d])
+        .fold(f64::INFINITY, f64::min)
+        .max(0.0);
+    let upper =
+        upper_bound(&rows, &setup.active, &solved.arc_price, &solved.fn_price).min(setup.ceiling);
+    Ok(Some(decide(lower, upper, checked.verification.residual)))
+}
+
+/// Per demand: `Λ · required_d` when it is active in `setup`, else 0 (the λ-model's caps).
+/// O(demands).
+fn caps(net: &Network, setup: &Setup) -> Vec<f64> {
+    (0..net.demands.len())
+        .map(|d| {
+            if setup.active.binary_search(&d).is_ok() {
+                setup.ceiling * setup.required[d]
+            } else {
+                0.0
+            }
+        })
+        .collect()
+}
+
 /// The certified bound of the module documentation at prices `arc_price` (per arc) and
 /// `fn_price` (per (site, function) row; missing: 0) over the demands `active`:
 /// `(Σ cap_a·y_a + Σ cap_vf·z_vf) / Σ_d required_d · π_d` with the rows' lowered
@@ -244,13 +382,17 @@ mod tests {
     /// `cap` at a, one demand a → b of required 4 through `fw`. The link carries at most
     /// 10 and the function at most `cap`, so λ = min(10, cap) / 4.
     fn one_link(cap: f64) -> Headroom {
-        let n = net(&format!(
+        headroom(&one_link_net(cap), &Outage::default()).unwrap()
+    }
+
+    /// The network of [`one_link`].
+    fn one_link_net(cap: f64) -> Network {
+        net(&format!(
             r#"{{"functions":[{{"id":"fw","gain":1}}],
             "sites":[{{"id":"a","functions":{{"fw":{cap}}}}},{{"id":"b"}}],
             "links":[{{"id":"ab","from":"a","to":"b","capacity":10,"one_way":true}}],
             "demands":[{{"from":"a","to":"b","volume":4,"required":4,"chain":["fw"]}}]}}"#
-        ));
-        headroom(&n, &Outage::default()).unwrap()
+        ))
     }
 
     /// min(10, 100) / 4 = 2.5: the link binds.
@@ -267,6 +409,43 @@ mod tests {
         let h = one_link(6.0);
         assert!(h.proven, "{h:?}");
         assert_eq!(h.value, Some(1.5));
+    }
+
+    /// The layered λ-LP alone (the walks' fallback) on the same hand cases: 2.5 and 1.5.
+    #[test]
+    fn the_lambda_lp_agrees_by_hand() {
+        for (cap, want) in [(100.0, 2.5), (6.0, 1.5)] {
+            let n = one_link_net(cap);
+            let view = Surviving::new(&n, &Outage::default(), None);
+            let h = headroom_with(&n, &view, ladder()).unwrap();
+            assert!(h.proven, "{h:?}");
+            assert_eq!(h.value, Some(want));
+        }
+    }
+
+    /// A backend whose answer comes with zero prices: the repaired allocation still gives
+    /// its lower bound, but the quotient proves nothing (no walk has a positive price), so
+    /// the interval stays open at the ceiling (10 + 100) / 4 = 27.5 and the result is
+    /// unproven at its lower bound, never above the true 2.5.
+    #[test]
+    fn prices_are_checked_not_trusted() {
+        struct NoPrices;
+        impl Backend for NoPrices {
+            fn name(&self) -> &'static str {
+                "no prices"
+            }
+            fn solve(&self, lp: &crate::solve::lp::Lp) -> Result<crate::solve::lp::LpSolution> {
+                let mut s = crate::solve::lp::CLARABEL.solve(lp)?;
+                s.duals.iter_mut().for_each(|y| *y = 0.0);
+                Ok(s)
+            }
+        }
+        let n = one_link_net(100.0);
+        let view = Surviving::new(&n, &Outage::default(), None);
+        let h = headroom_with(&n, &view, &[&NoPrices]).unwrap();
+        assert!(!h.proven, "{h:?}");
+        assert_eq!(h.upper, 27.5);
+        assert!(h.value.unwrap() <= 2.5 && h.value == Some(h.lower), "{h:?}");
     }
 
     /// Site a failed: the demand's origin is gone, so it is left out and no surviving
