@@ -214,7 +214,8 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
 /// The headroom of `view` by column generation over layered walks, cold: the master
 /// (maximise λ; `λ · required_d − Σ_{w of d} f_w ≤ 0` per surviving demand, the layered
 /// rows of [`layered_rows`] with demand caps `Λ · required`, `0 ≤ λ ≤ Λ`) on the warm
-/// simplex, rows created as columns need them; pricing by [`Rows::price`] at the row duals
+/// simplex, rows created as columns need them, started from every demand's cheapest walk
+/// at zero prices and at prices 1 / capacity; pricing by [`Rows::price`] at the row duals
 /// times `Σ required` (so the demand duals average about 1 and the absolute price
 /// tolerance compares amounts of order one), a walk of `d` entering when
 /// `u_d − π_d` exceeds it (passed as the demand duals `1 − u_d`); stopped when the priced
@@ -250,6 +251,16 @@ fn by_walks(net: &Network, view: &Surviving, setup: &Setup) -> Result<Option<Hea
         let mut fresh = rows
             .price(&vec![0.0; net.arcs.len()], &BTreeMap::new(), Some(&every))
             .walks;
+        // And at prices 1 / capacity (a walk through scarce rows costs more): a second,
+        // often disjoint walk per demand.
+        let inverse = |cap: f64| if cap > 0.0 { 1.0 / cap } else { 0.0 };
+        let y0: Vec<f64> = layered.arc_cap.iter().map(|&c| inverse(c)).collect();
+        let z0: BTreeMap<(usize, FunctionIdx), f64> = layered
+            .function_cap
+            .iter()
+            .map(|(&k, &c)| (k, inverse(c)))
+            .collect();
+        fresh.extend(rows.price(&y0, &z0, Some(&every)).walks);
         let mut rounds = 0;
         loop {
             for w in fresh {
