@@ -643,6 +643,64 @@ impl Ord for Ordered {
     }
 }
 
+/// The magnitude floors [`verify::residual`] measures a layered model's rows and variables
+/// against: per variable its magnitude hint, per row the largest `|a| · hint` of its terms.
+/// O(nonzeros).
+pub(crate) fn floors(model: &Lp) -> (Vec<f64>, Vec<f64>) {
+    let var_floor = model.magnitude.clone();
+    let row_floor = model
+        .rows
+        .iter()
+        .map(|r| {
+            r.coeffs
+                .iter()
+                .map(|&(j, a)| a.abs() * var_floor[j])
+                .fold(0.0, f64::max)
+        })
+        .collect();
+    (row_floor, var_floor)
+}
+
+/// One rung of a ladder: `backend`'s answer for `model` after an interrupt check; a
+/// solver failure is noted in `errors` (named by the backend) and gives `None`, any other
+/// error (an interrupt) is returned. Cost: one cold solve.
+pub(crate) fn attempt(
+    backend: &dyn Backend,
+    model: &Lp,
+    errors: &mut Vec<String>,
+) -> Result<Option<super::lp::LpSolution>> {
+    super::cancel::check()?;
+    match backend.solve(model) {
+        Ok(s) => Ok(Some(s)),
+        Err(Error::Solver(m)) => {
+            errors.push(format!("{}: {m}", backend.name()));
+            Ok(None)
+        }
+        Err(e) => Err(e),
+    }
+}
+
+impl Layered {
+    /// The nonnegative parts of an LP answer's row duals as prices: per arc (0 without a
+    /// row) and per (site, function) row. O(arcs + function rows).
+    pub(crate) fn row_prices(
+        &self,
+        duals: &[f64],
+    ) -> (Vec<f64>, BTreeMap<(SiteIdx, FunctionIdx), f64>) {
+        let arc_price = self
+            .arc_row
+            .iter()
+            .map(|r| r.map_or(0.0, |r| duals[r].max(0.0)))
+            .collect();
+        let fn_price = self
+            .function_row
+            .iter()
+            .map(|(&k, &r)| (k, duals[r].max(0.0)))
+            .collect();
+        (arc_price, fn_price)
+    }
+}
+
 /// The layered LP of `view` with caps `bound`, solved by each backend of `ladder` in turn
 /// until proven, verified (residual, repaired lower bound, dual upper bound), the best
 /// bounds of all attempts kept. Also returns the cut-off demands. Fails only when every
@@ -679,17 +737,7 @@ pub fn solve_verified_with(
             cut_off,
         ));
     }
-    let var_floor = model.magnitude.clone();
-    let row_floor: Vec<f64> = model
-        .rows
-        .iter()
-        .map(|r| {
-            r.coeffs
-                .iter()
-                .map(|&(j, a)| a.abs() * var_floor[j])
-                .fold(0.0, f64::max)
-        })
-        .collect();
+    let (row_floor, var_floor) = floors(&model);
     let scale = at_stake.max(f64::MIN_POSITIVE);
     let mut best: Option<Verified> = None;
     let mut best_upper = f64::INFINITY;
@@ -697,27 +745,12 @@ pub fn solve_verified_with(
     let mut best_fn_price = BTreeMap::new();
     let mut errors = Vec::new();
     for (attempt, backend) in ladder.iter().enumerate() {
-        super::cancel::check()?;
-        let solution = match backend.solve(&model) {
-            Ok(s) => s,
-            Err(Error::Solver(m)) => {
-                errors.push(format!("{}: {m}", backend.name()));
-                continue;
-            }
-            Err(e) => return Err(e),
+        let Some(solution) = self::attempt(*backend, &model, &mut errors)? else {
+            continue;
         };
         let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
         let (allocation, walks) = repair(net, &layered, &solution.x);
-        let arc_price: Vec<f64> = layered
-            .arc_row
-            .iter()
-            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
-            .collect();
-        let fn_price: BTreeMap<(SiteIdx, FunctionIdx), f64> = layered
-            .function_row
-            .iter()
-            .map(|(&k, &r)| (k, solution.duals[r].max(0.0)))
-            .collect();
+        let (arc_price, fn_price) = layered.row_prices(&solution.duals);
         let upper = dual_bound(net, view, &layered, &arc_price, &fn_price).min(at_stake);
         if upper < best_upper {
             best_upper = upper;

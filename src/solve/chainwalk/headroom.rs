@@ -26,7 +26,7 @@
 //!   allocation is a concurrent factor it achieves.
 //! - *Upper bound.* For any prices `y_a ≥ 0` (arcs) and `z_vf ≥ 0` (function `f` at `v`),
 //!   let `π_d` be `d`'s cheapest layered walk, arc `a` in layer `j` costing `G_j · y_a`
-//!   and `f_{j+1}` at `v` costing `G_j · z_vf` ([`Rows::price`], one layered Dijkstra per
+//!   and `f_{j+1}` at `v` costing `G_j · z_vf` (the layered walk engine's pricing, one layered Dijkstra per
 //!   group). A layered walk of `w` origin units puts exactly its priced amount on the rows,
 //!   so any allocation serving `λ · required_d` to each `d` has
 //!   `λ · Σ_d required_d · π_d ≤ Σ cap_a · y_a + Σ cap_vf · z_vf`, hence
@@ -34,7 +34,7 @@
 //!   flow in its path form), with the lowered capacities of the LP's rows. With the LP's
 //!   own shadow prices the quotient meets the optimum.
 //! - *Proven* when the residual passes and the bounds meet within
-//!   [`crate::tol::PROOF_GAP_TOL`] of the upper bound ([`Headroom::narrow`], as for files
+//!   [`crate::tol::PROOF_GAP_TOL`] of the upper bound (`Headroom::narrow`, as for files
 //!   without `functions`): the value is then the plainest number in the interval, 1 when it
 //!   holds 1. Otherwise the next backend of [`ladder`] runs, and a result still open is its
 //!   proven lower bound, never more.
@@ -59,7 +59,7 @@ use crate::solve::surviving::Surviving;
 use crate::solve::{chain, ladder, verify};
 
 /// The headroom of `net` (a network with `functions`) under `outage`, on the matrix the
-/// outage names: by column generation over layered walks ([`by_walks`]), and when that does
+/// outage names: by column generation over layered walks (`by_walks`), and when that does
 /// not prove its answer, the layered λ-LP ([`headroom_with`] on [`ladder`]). Pure function
 /// of (network, outage).
 pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
@@ -152,17 +152,7 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
         model.objective[f] = 0.0;
         model.add_row(vec![(f, 1.0), (lambda, -required[d])], Sense::Eq, 0.0);
     }
-    let var_floor = model.magnitude.clone();
-    let mut row_floor: Vec<f64> = model
-        .rows
-        .iter()
-        .map(|r| {
-            r.coeffs
-                .iter()
-                .map(|&(j, a)| a.abs() * var_floor[j])
-                .fold(0.0, f64::max)
-        })
-        .collect();
+    let (mut row_floor, var_floor) = chain::floors(&model);
     // The tying rows hold Λ · required_d at most.
     for r in row_floor.iter_mut().skip(model.rows.len() - active.len()) {
         *r = r.max(ceiling * total_required);
@@ -171,44 +161,26 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
     let mut best = Headroom::open(ceiling);
     let mut errors = Vec::new();
     for backend in ladder {
-        crate::solve::cancel::check()?;
-        let solution = match backend.solve(&model) {
-            Ok(s) => s,
-            Err(Error::Solver(m)) => {
-                errors.push(format!("{}: {m}", backend.name()));
-                continue;
-            }
-            Err(e) => return Err(e),
+        let Some(solution) = chain::attempt(*backend, &model, &mut errors)? else {
+            continue;
         };
         let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
         let (repaired, _) = chain::repair(net, &layered, &solution.x);
-        let lower = active
-            .iter()
-            .map(|&d| repaired.demand_flow[d] / required[d])
-            .fold(f64::INFINITY, f64::min)
-            .max(0.0);
-        let arc_price: Vec<f64> = layered
-            .arc_row
-            .iter()
-            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
-            .collect();
-        let fn_price: BTreeMap<(usize, FunctionIdx), f64> = layered
-            .function_row
-            .iter()
-            .map(|(&k, &r)| (k, solution.duals[r].max(0.0)))
-            .collect();
+        let (arc_price, fn_price) = layered.row_prices(&solution.duals);
         let upper = upper_bound(&rows, &active, &arc_price, &fn_price).min(ceiling);
-        if best.narrow(lower, upper, residual) {
+        if best.narrow(
+            factor(&active, &required, &repaired.demand_flow),
+            upper,
+            residual,
+        ) {
             break;
         }
     }
-    if best.lower == 0.0 && best.upper == ceiling && !errors.is_empty() {
-        return Err(Error::Solver(errors.join("; ")));
+    // `narrow` gives a value to every attempt that solved: none means every backend failed.
+    match best.value {
+        Some(_) => Ok(best),
+        None => Err(Error::Solver(errors.join("; "))),
     }
-    if best.value.is_none() {
-        best.value = Some(best.lower);
-    }
-    Ok(best)
 }
 
 /// The headroom of `view` by column generation over layered walks, cold: the master
@@ -327,15 +299,24 @@ fn by_walks(net: &Network, view: &Surviving, setup: &Setup) -> Result<Option<Hea
     let x = with_walks(net, &mut layered, &group_of, &solved);
     let rows = Rows::new(net, view, &layered);
     let checked = verified(&rows, &layered, &x, &solved);
-    let lower = setup
-        .active
-        .iter()
-        .map(|&d| checked.allocation.demand_flow[d] / setup.required[d])
-        .fold(f64::INFINITY, f64::min)
-        .max(0.0);
+    let lower = factor(
+        &setup.active,
+        &setup.required,
+        &checked.allocation.demand_flow,
+    );
     let upper =
         upper_bound(&rows, &setup.active, &solved.arc_price, &solved.fn_price).min(setup.ceiling);
     Ok(Some(decide(lower, upper, checked.verification.residual)))
+}
+
+/// The concurrent factor an allocation with per-demand flows `flow` achieves over the
+/// demands `active`: `min_d flow_d / required_d`, at least 0. O(active).
+fn factor(active: &[usize], required: &[f64], flow: &[f64]) -> f64 {
+    active
+        .iter()
+        .map(|&d| flow[d] / required[d])
+        .fold(f64::INFINITY, f64::min)
+        .max(0.0)
 }
 
 /// Per demand: `Λ · required_d` when it is active in `setup`, else 0 (the λ-model's caps).
@@ -392,11 +373,6 @@ mod tests {
     /// Hand case: a → b, one link of capacity 10, function `fw` (gain 1) of capacity
     /// `cap` at a, one demand a → b of required 4 through `fw`. The link carries at most
     /// 10 and the function at most `cap`, so λ = min(10, cap) / 4.
-    fn one_link(cap: f64) -> Headroom {
-        headroom(&one_link_net(cap), &Outage::default()).unwrap()
-    }
-
-    /// The network of [`one_link`].
     fn one_link_net(cap: f64) -> Network {
         net(&format!(
             r#"{{"functions":[{{"id":"fw","gain":1}}],
@@ -406,31 +382,20 @@ mod tests {
         ))
     }
 
-    /// min(10, 100) / 4 = 2.5: the link binds.
+    /// min(10, 100) / 4 = 2.5 (the link binds) and min(10, 6) / 4 = 1.5 (the function
+    /// binds), by the walks ([`headroom`]) and by the layered λ-LP alone (their fallback).
     #[test]
-    fn link_binds() {
-        let h = one_link(100.0);
-        assert!(h.proven, "{h:?}");
-        assert_eq!(h.value, Some(2.5));
-    }
-
-    /// min(10, 6) / 4 = 1.5: the function binds.
-    #[test]
-    fn function_binds() {
-        let h = one_link(6.0);
-        assert!(h.proven, "{h:?}");
-        assert_eq!(h.value, Some(1.5));
-    }
-
-    /// The layered λ-LP alone (the walks' fallback) on the same hand cases: 2.5 and 1.5.
-    #[test]
-    fn the_lambda_lp_agrees_by_hand() {
+    fn link_or_function_binds() {
         for (cap, want) in [(100.0, 2.5), (6.0, 1.5)] {
             let n = one_link_net(cap);
             let view = Surviving::new(&n, &Outage::default(), None);
-            let h = headroom_with(&n, &view, ladder()).unwrap();
-            assert!(h.proven, "{h:?}");
-            assert_eq!(h.value, Some(want));
+            for h in [
+                headroom(&n, &Outage::default()).unwrap(),
+                headroom_with(&n, &view, ladder()).unwrap(),
+            ] {
+                assert!(h.proven, "{h:?}");
+                assert_eq!(h.value, Some(want), "{h:?}");
+            }
         }
     }
 
