@@ -392,3 +392,42 @@ fn down_depth_and_shards_on_the_chain_demo() {
     );
     assert_eq!(run.stdout, reference.stdout, "merged text differs");
 }
+
+/// Traffic matrices: the chain demo with a second matrix `evening` whose demands are the
+/// base ones with every volume times 1.2 (required = volume). By the definition, scaling
+/// every required amount by 1.2 divides λ by 1.2 (λ · 1.2 · required fits exactly when
+/// (1.2 λ) · required does), so each scenario under `evening` has the base value / 1.2; the
+/// audit's headroom is the least pair and names its matrix.
+#[test]
+fn an_evening_matrix_divides_the_headroom() {
+    let demo = common::fixture("demo-quillhaven-chains.json");
+    let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&demo).unwrap()).unwrap();
+    let mut evening = doc["demands"].clone();
+    for d in evening.as_array_mut().unwrap() {
+        d["volume"] = json!(num(d, "volume") * 1.2);
+    }
+    doc["matrices"] = json!([{"id": "evening", "demands": evening}]);
+    let (_, out) = audit_headroom(&doc, &[]);
+    let mut pairs = 0;
+    for sc in scenarios(&out)
+        .iter()
+        .filter(|sc| sc["matrix"] == "evening")
+    {
+        let failed = failed_of(sc);
+        let base = scenarios(&out)
+            .iter()
+            .find(|b| b["matrix"] == "base" && failed_of(b) == failed)
+            .expect("the same scenario under base");
+        match (headroom_of(base), headroom_of(sc)) {
+            (Some(b), Some(e)) => assert_close(e, b / 1.2, &format!("{failed:?}")),
+            (b, e) => assert_eq!(b, e, "{failed:?}"),
+        }
+        pairs += 1;
+    }
+    assert!(pairs >= 13, "{pairs}");
+    let top = &out["headroom"];
+    assert_eq!(top["matrix"], "evening");
+    assert_eq!(top["failed"], json!(["site:quillhaven"]));
+    // Under quillhaven's failure the base λ is 20 / 52 (README): evening 20 / 62.4.
+    assert_close(num(top, "value"), 20.0 / 62.4, "20 / (1.2 · 52)");
+}
