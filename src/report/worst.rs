@@ -8,9 +8,9 @@ use std::io::{self, Write};
 use serde::Serialize;
 
 use super::screen::{finish, render, right, table};
-use super::{CAUTION, amount, file_num, num};
+use super::{amount, caution_for, file_num, num};
 use crate::model::Network;
-use crate::worst::{By, Proof, Worst};
+use crate::worst::{By, Proof, Worst, WorstSet};
 
 /// How the bound of the proof is obtained, in one sentence (text and JSON).
 pub const METHOD: &str = "best-first branch and bound over sets; a set that was not solved \
@@ -87,7 +87,7 @@ pub fn text(net: &Network, w: &Worst) -> String {
             p.unproven
         ));
     }
-    s.push_str(CAUTION);
+    s.push_str(caution_for(net));
     s.push('\n');
     finish(&s)
 }
@@ -120,17 +120,14 @@ fn proof_line(net: &Network, w: &Worst) -> String {
     }
 }
 
-/// One listed set in the JSON document.
+/// One listed set in the JSON document: its rank, then the set's own fields in
+/// [`WorstSet`]'s order (`failed`, `shortfall`, `stranded`, `lost`, `served_required`,
+/// `proven`; numbers as files write them), then its matrix.
 #[derive(Serialize)]
 pub struct SetJson {
     pub rank: usize,
-    pub failed: Vec<String>,
-    pub shortfall: f64,
-    pub stranded: f64,
-    pub lost: f64,
-    pub served_required: f64,
-    /// The served_required LP was proven optimal.
-    pub proven: bool,
+    #[serde(flatten)]
+    pub set: WorstSet,
     /// The traffic matrix (absent for a file without `matrices`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub matrix: Option<String>,
@@ -183,7 +180,7 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
     WorstJson {
         network: net.name.clone(),
         unit: net.unit.clone(),
-        caution: CAUTION,
+        caution: caution_for(net),
         k: w.options.k,
         kinds: kinds_list(w),
         by: by_name(w.options.by),
@@ -194,12 +191,13 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
             .enumerate()
             .map(|(i, s)| SetJson {
                 rank: i + 1,
-                failed: s.failed.clone(),
-                shortfall: file_num(s.shortfall),
-                stranded: file_num(s.stranded),
-                lost: file_num(s.lost),
-                served_required: file_num(s.served_required),
-                proven: s.proven,
+                set: WorstSet {
+                    shortfall: file_num(s.shortfall),
+                    stranded: file_num(s.stranded),
+                    lost: file_num(s.lost),
+                    served_required: file_num(s.served_required),
+                    ..s.clone()
+                },
                 matrix: (net.matrix_count() > 1).then(|| net.matrix_id(s.matrix).to_string()),
             })
             .collect(),
