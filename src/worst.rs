@@ -15,7 +15,17 @@
 //! flow `D` is at most `Σ_{e∈T} flow(e)`, where `flow(e)` is the load `Φ` puts on `e`'s
 //! arcs (a walk crossing an arc twice counts twice, a walk touching two elements of `T`
 //! counts in both: overcounts, so the bound stays an upper bound). Hence
-//! `served*(C) ≥ L − D`. With `R(X)` the surviving required demand and `N` the demands
+//! `served*(C) ≥ L − D`.
+//!
+//! With service chains (a file with `functions`) the same argument runs on the layered
+//! model: `Φ` is the repaired allocation's layered walks (origin → the site of each
+//! function → destination), every quantity in origin units, and a walk touches a site
+//! where it applies a function (a failed site loses its functions) through the arcs it
+//! uses there. A link's load is not the walks' origin units there (a leg after a function
+//! of gain 0.5 loads it with half of them), so `flow(e)` is the origin units of the walks
+//! that touch `e`, each walk once ([`element_flows`], from
+//! [`crate::solve::chainwalk::proven_walks`]); where the layered edge LP decided an outage
+//! (no walks kept), the loads divided by the least cumulative gain of any chain. With `R(X)` the surviving required demand and `N` the demands
 //! that `T` strands (an end site fails; every walk of theirs touches that site, so their
 //! flow is inside `D`, and their required leaves the surviving total):
 //!
@@ -58,7 +68,9 @@
 //! priority; the counts in [`Proof`] add up to [`Proof::sets_total`] (tested).
 //!
 //! Solves run in parallel batches of [`BATCH`] nodes (rayon), each outage once (cached by
-//! outage); a set is solved with the walk engine from the basis of the single failure of
+//! outage), through the audit's evaluator seam ([`audit::evaluator_for`] with the walk
+//! engine: the walk engine, or the layered walk engine for a file with `functions`, so
+//! both models share this search); a set is solved from the basis of the single failure of
 //! its first element when that was solved, else from the baseline's (as the audit does),
 //! so only K-independent memory is kept for bases. Batches are formed and consumed in a
 //! fixed order, so results and counts are the same whatever the thread count.

@@ -489,7 +489,6 @@ fn what_chain_files_still_refuse_says_so() {
     let t = random_net(&mut rng);
     let file = TempPath::with_text("chain-refuse", &t.to_json().to_string());
     for args in [
-        vec!["worst", file.path(), "--k", "2"],
         vec!["audit", file.path(), "--headroom"],
         vec!["compare", file.path(), file.path(), "--headroom"],
     ] {
