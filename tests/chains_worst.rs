@@ -160,7 +160,14 @@ struct Reference<'a> {
     solved: HashMap<Key, Figures>,
 }
 
-impl Reference<'_> {
+impl<'a> Reference<'a> {
+    fn new(case: &'a Case) -> Reference<'a> {
+        Reference {
+            case,
+            solved: HashMap::new(),
+        }
+    }
+
     fn figures(&mut self, key: &Key) -> Figures {
         if let Some(f) = self.solved.get(key) {
             return *f;
@@ -182,28 +189,36 @@ impl Reference<'_> {
     }
 }
 
-/// Every set of 1..=k names of `pool`, each sorted by name.
-fn sets_upto(pool: &[String], k: usize) -> Vec<Vec<String>> {
-    let mut out: Vec<Vec<String>> = Vec::new();
+/// Every set of 1..=`k` indices of `0..n` outside `skip`, each ascending, by size.
+fn index_sets(n: usize, k: usize, skip: &[usize]) -> Vec<Vec<usize>> {
+    let mut out: Vec<Vec<usize>> = Vec::new();
     let mut frontier: Vec<Vec<usize>> = vec![Vec::new()];
     for _ in 0..k {
         let mut next = Vec::new();
         for s in &frontier {
             let from = s.last().map_or(0, |&l| l + 1);
-            for e in from..pool.len() {
+            for e in (from..n).filter(|e| !skip.contains(e)) {
                 let mut t = s.clone();
                 t.push(e);
                 next.push(t);
             }
         }
-        for s in &next {
-            let mut names: Vec<String> = s.iter().map(|&i| pool[i].clone()).collect();
-            names.sort();
-            out.push(names);
-        }
+        out.extend(next.iter().cloned());
         frontier = next;
     }
     out
+}
+
+/// Every set of 1..=k names of `pool`, each sorted by name.
+fn sets_upto(pool: &[String], k: usize) -> Vec<Vec<String>> {
+    index_sets(pool.len(), k, &[])
+        .into_iter()
+        .map(|s| {
+            let mut names: Vec<String> = s.iter().map(|&i| pool[i].clone()).collect();
+            names.sort();
+            names
+        })
+        .collect()
 }
 
 /// Rank order of two sets of the same value: fewer elements, then name order.
@@ -368,20 +383,7 @@ fn check_pairs(case: &Case, reference: &mut Reference, k: usize) -> usize {
     let tol = 1e-6 * case.required().max(1.0);
     let base = engine.evaluate(&net, &Outage::default(), None).unwrap();
     let mut subsets: Vec<Vec<usize>> = vec![Vec::new()];
-    let mut frontier = subsets.clone();
-    for _ in 1..k {
-        let mut next = Vec::new();
-        for s in &frontier {
-            let from = s.last().map_or(0, |&l| l + 1);
-            for e in from..pool.len() {
-                let mut t = s.clone();
-                t.push(e);
-                next.push(t);
-            }
-        }
-        subsets.extend(next.iter().cloned());
-        frontier = next;
-    }
+    subsets.extend(index_sets(pool.len(), k - 1, &[]));
     let mut checked = 0;
     for a in &subsets {
         let els: Vec<_> = a.iter().map(|&i| pool[i]).collect();
@@ -394,41 +396,26 @@ fn check_pairs(case: &Case, reference: &mut Reference, k: usize) -> usize {
         let a_key = case.outage(&a_names);
         let a_stranded = case.stranded(&a_key.0);
         // Every superset: A plus 1..=k−|A| further elements.
-        let mut adds: Vec<Vec<usize>> = vec![Vec::new()];
-        for _ in a.len()..k {
-            let mut next = Vec::new();
-            for s in &adds {
-                let from = s.last().map_or(0, |&l| l + 1);
-                for e in from..pool.len() {
-                    if !a.contains(&e) {
-                        let mut t = s.clone();
-                        t.push(e);
-                        next.push(t);
-                    }
-                }
-            }
-            for t in &next {
-                let mut c_names = a_names.clone();
-                c_names.extend(t.iter().map(|&i| names[i].clone()));
-                let c_key = case.outage(&c_names);
-                let f = reference.figures(&c_key);
-                let through: f64 = t.iter().map(|&i| flows[i]).sum();
-                let bound = lower_lost + through;
-                assert!(
-                    f.shortfall + f.stranded <= bound + tol,
-                    "{a_names:?} ⊂ {c_names:?}: reference lost {} above the bound {bound}",
-                    f.shortfall + f.stranded
-                );
-                let newly = f.stranded - a_stranded;
-                let bound = lower_short + through - newly;
-                assert!(
-                    f.shortfall <= bound + tol,
-                    "{a_names:?} ⊂ {c_names:?}: reference shortfall {} above the bound {bound}",
-                    f.shortfall
-                );
-                checked += 1;
-            }
-            adds = next;
+        for t in index_sets(pool.len(), k - a.len(), a) {
+            let mut c_names = a_names.clone();
+            c_names.extend(t.iter().map(|&i| names[i].clone()));
+            let c_key = case.outage(&c_names);
+            let f = reference.figures(&c_key);
+            let through: f64 = t.iter().map(|&i| flows[i]).sum();
+            let bound = lower_lost + through;
+            assert!(
+                f.shortfall + f.stranded <= bound + tol,
+                "{a_names:?} ⊂ {c_names:?}: reference lost {} above the bound {bound}",
+                f.shortfall + f.stranded
+            );
+            let newly = f.stranded - a_stranded;
+            let bound = lower_short + through - newly;
+            assert!(
+                f.shortfall <= bound + tol,
+                "{a_names:?} ⊂ {c_names:?}: reference shortfall {} above the bound {bound}",
+                f.shortfall
+            );
+            checked += 1;
         }
     }
     checked
@@ -440,10 +427,7 @@ fn random_chain_networks_match_the_reference_by_brute_force() {
     let mut unsolved = 0;
     for instance in 0..6 {
         let case = Case::random(&mut rng);
-        let mut reference = Reference {
-            case: &case,
-            solved: HashMap::new(),
-        };
+        let mut reference = Reference::new(&case);
         for (k, kinds, top) in [
             (1, "links,sites,groups", 4),
             (2, "links", 5),
@@ -466,10 +450,7 @@ fn the_pruning_bound_holds_on_every_solved_pair_against_the_reference() {
     let mut checked = 0;
     for _ in 0..6 {
         let case = Case::random(&mut rng);
-        let mut reference = Reference {
-            case: &case,
-            solved: HashMap::new(),
-        };
+        let mut reference = Reference::new(&case);
         checked += check_pairs(&case, &mut reference, 3);
     }
     assert!(checked > 1000, "{checked} pairs");

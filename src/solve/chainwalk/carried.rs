@@ -68,33 +68,33 @@ mod tests {
     use crate::scenario::{Element, Scenario};
     use crate::solve::chainwalk::evaluate_walks;
 
-    /// One-way a→m (100), m→t (8), t→p (100), p→m (100), `f` (gain 0.5) only at p, demand
-    /// a→t of 50 with chain [f]. Hand-worked: the only walk a→m→t→p (f) →m→t crosses m→t
-    /// twice (1.5 · F <= 8, F = 16/3); as a carried walk it names m→t once, with its
-    /// 16/3 origin units, and the walks' flows sum to the proven lower bound.
+    /// Two-way links a–m (100), m–t (8), t–p (100); `f` (gain 0.5) only at p; demand a→t
+    /// of 50 with chain [f]. Hand-worked: the only walk goes a→m→t, on to p for `f`, and
+    /// back p→t: it crosses link t–p in both directions (F there, then 0.5·F back) and
+    /// m–t once (F <= 8), so F = 8.
+    const THERE_AND_BACK: &str = r#"{"functions":[{"id":"f","gain":0.5}],
+        "sites":[{"id":"a"},{"id":"m"},{"id":"t"},{"id":"p","functions":{"f":100}}],
+        "links":[{"id":"am","from":"a","to":"m","capacity":100},
+                 {"id":"mt","from":"m","to":"t","capacity":8},
+                 {"id":"tp","from":"t","to":"p","capacity":100}],
+        "demands":[{"from":"a","to":"t","volume":50,"chain":["f"]}]}"#;
+
+    /// On [`THERE_AND_BACK`] the carried walk names four distinct arcs, the two of t–p
+    /// among them, with its 8 origin units, and its flow is the proven lower bound.
     #[test]
-    fn a_walk_crossing_a_link_twice_names_it_once() {
-        let net = Network::from_json(
-            r#"{"functions":[{"id":"f","gain":0.5}],
-            "sites":[{"id":"a"},{"id":"m"},{"id":"t"},{"id":"p","functions":{"f":100}}],
-            "links":[{"id":"am","from":"a","to":"m","capacity":100,"one_way":true},
-                     {"id":"mt","from":"m","to":"t","capacity":8,"one_way":true},
-                     {"id":"tp","from":"t","to":"p","capacity":100,"one_way":true},
-                     {"id":"pm","from":"p","to":"m","capacity":100,"one_way":true}],
-            "demands":[{"from":"a","to":"t","volume":50,"chain":["f"]}]}"#,
-        )
-        .unwrap();
+    fn a_walk_there_and_back_names_each_arc_once() {
+        let net = Network::from_json(THERE_AND_BACK).unwrap();
         let o = Outage::default();
         let w = evaluate_walks(&net, &o, None).unwrap();
         let walks = proven_walks(&net, &o, &w.basis).unwrap();
         assert_eq!(walks.len(), 1, "{walks:?}");
-        assert_eq!(walks[0].arcs, vec![0, 1, 2, 3]);
-        assert!((walks[0].flow - 16.0 / 3.0).abs() < 1e-9, "{walks:?}");
-        let total: f64 = walks.iter().map(|w| w.flow).sum();
-        assert_eq!(total, w.evaluation.verification.lower);
-        // Failing the link p→m leaves no walk: nothing is routed, nothing carried.
-        let pm = Scenario::new(&net, &[Element::Link(3.into())]).outage(&net);
-        let w = evaluate_walks(&net, &pm, Some(&w.basis)).unwrap();
-        assert!(proven_walks(&net, &pm, &w.basis).is_none_or(|v| v.is_empty()));
+        let links: Vec<usize> = walks[0].arcs.iter().map(|&a| net.arcs[a].link.0).collect();
+        assert_eq!(links, vec![0, 1, 2, 2], "{walks:?}");
+        assert!((walks[0].flow - 8.0).abs() < 1e-9, "{walks:?}");
+        assert_eq!(walks[0].flow, w.evaluation.verification.lower);
+        // Failing link t–p leaves no walk: nothing is routed, nothing carried.
+        let tp = Scenario::new(&net, &[Element::Link(2.into())]).outage(&net);
+        let w = evaluate_walks(&net, &tp, Some(&w.basis)).unwrap();
+        assert!(proven_walks(&net, &tp, &w.basis).is_none_or(|v| v.is_empty()));
     }
 }
