@@ -92,6 +92,18 @@ pub fn text(net: &Network, w: &Worst) -> String {
     finish(&s)
 }
 
+/// `n` as an English ordinal: 1st, 2nd, 3rd, 4th, …, 11th, 12th, 13th, …, 21st. O(1).
+fn ordinal(n: usize) -> String {
+    let suffix = match (n % 10, n % 100) {
+        (_, 11..=13) => "th",
+        (1, _) => "st",
+        (2, _) => "nd",
+        (3, _) => "rd",
+        _ => "th",
+    };
+    format!("{n}{suffix}")
+}
+
 /// The one line on the proof.
 fn proof_line(net: &Network, w: &Worst) -> String {
     let p = &w.proof;
@@ -104,9 +116,9 @@ fn proof_line(net: &Network, w: &Worst) -> String {
         None => format!("Proof: exhaustive, every set solved ({counts})."),
         Some(b) if full => format!(
             "Proof: every set not solved loses at most {} (a solved subset's proven allocation \
-             plus its flow through the added elements), below the {}th worst's {}; {counts}.",
+             plus its flow through the added elements), below the {} worst's {}; {counts}.",
             amount(b, &net.unit),
-            w.options.top,
+            ordinal(w.options.top),
             num(p.threshold)
         ),
         Some(b) => format!(
@@ -168,9 +180,9 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
     let statement = match p.bound {
         None => "every set was solved; the list is exact".to_string(),
         Some(_) if full => format!(
-            "every set not listed was solved and ranks below the {}th, or was not solved and \
+            "every set not listed was solved and ranks below the {}, or was not solved and \
              has a value at most bound + tolerance, which as printed is below threshold",
-            w.options.top
+            ordinal(w.options.top)
         ),
         Some(_) => "every set not listed was solved and loses nothing above floor, or was not \
                     solved and has a value at most bound + tolerance, which as printed is at \
@@ -216,4 +228,22 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
 /// Writes [`json`] of `w` as pretty JSON with a trailing newline.
 pub fn write_json(out: &mut dyn Write, net: &Network, w: &Worst) -> io::Result<()> {
     super::json::write(out, &json(net, w))
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn ordinals() {
+        let got: Vec<String> = [1, 2, 3, 4, 10, 11, 12, 13, 21, 22, 101, 111]
+            .into_iter()
+            .map(super::ordinal)
+            .collect();
+        assert_eq!(
+            got,
+            [
+                "1st", "2nd", "3rd", "4th", "10th", "11th", "12th", "13th", "21st", "22nd",
+                "101st", "111th"
+            ]
+        );
+    }
 }
