@@ -16,6 +16,9 @@
 //!   required demand C \ A newly strands, for the shortfall), through the library;
 //! - a hand-worked network (below, `HAND`), where the per-element flow in origin units
 //!   differs from the link load (a gain of 0.5 after the function).
+//! - two traffic matrices on the chains demo: the same document whatever the thread
+//!   count, and each listed (set, matrix) with the figures of a file holding that matrix
+//!   as its demands (the contract's reading of a matrix).
 
 #[path = "common/chain_reference.rs"]
 mod chain_reference;
@@ -547,4 +550,85 @@ fn hand_worked_chain_with_a_gain() {
     .map(|(n, f)| (n.to_string(), f))
     .collect();
     assert_eq!(got, want);
+}
+
+/// The same document, proof counts included, whatever the thread count, on the chains demo
+/// with a second traffic matrix (batches are formed in a fixed order; each matrix is
+/// searched on its own and the lists merged).
+#[test]
+fn same_answer_whatever_the_threads_with_two_matrices() {
+    let demo = common::fixture("demo-quillhaven-chains.json");
+    let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&demo).unwrap()).unwrap();
+    let mut evening = doc["demands"].clone();
+    for d in evening.as_array_mut().unwrap() {
+        let v = d["volume"].as_f64().unwrap();
+        d["volume"] = Value::from(v * 1.25);
+    }
+    doc["matrices"] = serde_json::json!([{"id": "evening", "demands": evening}]);
+    let file = TempPath::with_text("chains-worst-hours", &doc.to_string());
+    let docs: Vec<String> = ["1", "2"]
+        .iter()
+        .map(|t| {
+            let out = TempPath::new("threads", "json");
+            let run = redoubt(&[
+                "worst",
+                file.path(),
+                "--k",
+                "2",
+                "--threads",
+                t,
+                "--json",
+                out.path(),
+            ]);
+            assert_eq!(run.code, 0, "{}", run.stderr);
+            std::fs::read_to_string(&out.0).unwrap()
+        })
+        .collect();
+    assert_eq!(docs[0], docs[1]);
+    let parsed: Value = serde_json::from_str(&docs[0]).unwrap();
+    let matrices: BTreeSet<&str> = parsed["worst"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w["matrix"].as_str().unwrap())
+        .collect();
+    assert!(matrices.contains("evening"), "{parsed}");
+    // Each matrix alone is a file with that matrix as its demands (the contract): every
+    // listed (set, matrix) is in that file's own list of ten with the same figures.
+    let mut alone = doc.clone();
+    alone.as_object_mut().unwrap().remove("matrices");
+    let base = TempPath::with_text("chains-worst-base", &alone.to_string());
+    alone["demands"] = evening;
+    let eve = TempPath::with_text("chains-worst-evening", &alone.to_string());
+    for (id, path) in [("base", base.path()), ("evening", eve.path())] {
+        let (own, _) = worst_run(path, 2, "links,sites,groups", false, 10);
+        for w in parsed["worst"].as_array().unwrap() {
+            if w["matrix"] != id {
+                continue;
+            }
+            let failed: Vec<String> = w["failed"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .map(|f| f.as_str().unwrap().to_string())
+                .collect();
+            let row = own.iter().find(|r| r.failed == failed);
+            let row = row.unwrap_or_else(|| panic!("{id}: {failed:?} not in {own:?}"));
+            assert_eq!(
+                w["shortfall"].as_f64(),
+                Some(row.shortfall),
+                "{id} {failed:?}"
+            );
+            assert_eq!(
+                w["stranded"].as_f64(),
+                Some(row.stranded),
+                "{id} {failed:?}"
+            );
+            assert_eq!(
+                w["served_required"].as_f64(),
+                Some(row.served),
+                "{id} {failed:?}"
+            );
+        }
+    }
 }
