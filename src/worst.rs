@@ -15,7 +15,17 @@
 //! flow `D` is at most `Σ_{e∈T} flow(e)`, where `flow(e)` is the load `Φ` puts on `e`'s
 //! arcs (a walk crossing an arc twice counts twice, a walk touching two elements of `T`
 //! counts in both: overcounts, so the bound stays an upper bound). Hence
-//! `served*(C) ≥ L − D`. With `R(X)` the surviving required demand and `N` the demands
+//! `served*(C) ≥ L − D`.
+//!
+//! With service chains (a file with `functions`) the same argument runs on the layered
+//! model: `Φ` is the repaired allocation's layered walks (origin → the site of each
+//! function → destination), every quantity in origin units, and a walk touches a site
+//! where it applies a function (a failed site loses its functions) through the arcs it
+//! uses there. A link's load is not the walks' origin units there (a leg after a function
+//! of gain 0.5 loads it with half of them), so `flow(e)` is the origin units of the walks
+//! that touch `e`, each walk once ([`element_flows`], from
+//! [`crate::solve::chainwalk::proven_walks`]); where the layered edge LP decided an outage
+//! (no walks kept), the loads divided by the least cumulative gain of any chain. With `R(X)` the surviving required demand and `N` the demands
 //! that `T` strands (an end site fails; every walk of theirs touches that site, so their
 //! flow is inside `D`, and their required leaves the surviving total):
 //!
@@ -58,7 +68,9 @@
 //! priority; the counts in [`Proof`] add up to [`Proof::sets_total`] (tested).
 //!
 //! Solves run in parallel batches of [`BATCH`] nodes (rayon), each outage once (cached by
-//! outage); a set is solved with the walk engine from the basis of the single failure of
+//! outage), through the audit's evaluator seam ([`audit::evaluator_for`] with the walk
+//! engine: the walk engine, or the layered walk engine for a file with `functions`, so
+//! both models share this search); a set is solved from the basis of the single failure of
 //! its first element when that was solved, else from the baseline's (as the audit does),
 //! so only K-independent memory is kept for bases. Batches are formed and consumed in a
 //! fixed order, so results and counts are the same whatever the thread count.
@@ -75,10 +87,14 @@ use rayon::prelude::*;
 
 use crate::audit;
 use crate::error::{Error, Result};
-use crate::model::{LinkIdx, Network, SiteIdx};
+use crate::model::{Network, SiteIdx};
 use crate::report::file_num;
 use crate::scenario::{self, Element, Kinds, Outage, Scenario};
-use crate::solve::{Evaluation, colgen};
+use crate::solve::evaluator::{Evaluated, Warm};
+use crate::solve::{Engine, Evaluation, colgen};
+
+mod flows;
+pub use flows::element_flows;
 
 /// Nodes solved together in one parallel batch. Fixed (never the thread count), so the
 /// search is the same on any machine.
@@ -107,10 +123,12 @@ pub struct Options {
     pub threads: Option<usize>,
 }
 
-/// One of the worst sets.
-#[derive(Debug, Clone, PartialEq)]
+/// One of the worst sets. Serialized (without `elements` and `matrix`) as the fields of
+/// a `worst --json` list entry.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
 pub struct WorstSet {
     /// Its elements, sorted by name.
+    #[serde(skip)]
     pub elements: Vec<Element>,
     /// Their contract names, sorted (as the audit writes them).
     pub failed: Vec<String>,
@@ -122,6 +140,7 @@ pub struct WorstSet {
     /// The served_required LP was proven optimal.
     pub proven: bool,
     /// The traffic matrix it was solved under (0: `base`).
+    #[serde(skip)]
     pub matrix: usize,
 }
 
@@ -262,53 +281,6 @@ pub fn lower_value(e: &Evaluation, by: By) -> f64 {
     value(e, by) + (e.served_required - e.verification.lower).max(0.0)
 }
 
-/// The flow `e`'s allocation sends through `el`: Σ load of a link's arcs; for a site, of
-/// the arcs of its incident links; for a group, of its member links' arcs. An upper bound
-/// on the flow of the walks that `el`'s failure breaks (see the module comment). `e` must
-/// be a full evaluation (not thin). O(arcs).
-pub fn element_flow(net: &Network, e: &Evaluation, el: Element) -> f64 {
-    let link = |l: LinkIdx| -> f64 {
-        net.arcs
-            .iter()
-            .enumerate()
-            .filter(|(_, a)| a.link == l)
-            .map(|(i, _)| e.arc_load[i])
-            .sum()
-    };
-    match el {
-        Element::Link(l) => link(l),
-        Element::Site(s) => net
-            .links
-            .iter()
-            .enumerate()
-            .filter(|(_, l)| l.from == s || l.to == s)
-            .map(|(i, _)| link(LinkIdx(i)))
-            .sum(),
-        Element::Group(g) => net.groups[g].links.iter().map(|&l| link(l)).sum(),
-    }
-}
-
-/// Per pool element, [`element_flow`], computed in one pass over the arcs. O(arcs +
-/// links + Σ group sizes + pool).
-fn pool_flows(net: &Network, e: &Evaluation, pool: &[Element]) -> Vec<f64> {
-    let mut link = vec![0.0; net.links.len()];
-    for (a, arc) in net.arcs.iter().enumerate() {
-        link[arc.link] += e.arc_load[a];
-    }
-    let mut site = vec![0.0; net.sites.len()];
-    for (i, l) in net.links.iter().enumerate() {
-        site[l.from] += link[i];
-        site[l.to] += link[i];
-    }
-    pool.iter()
-        .map(|&el| match el {
-            Element::Link(l) => link[l],
-            Element::Site(s) => site[s],
-            Element::Group(g) => net.groups[g].links.iter().map(|&l| link[l]).sum(),
-        })
-        .collect()
-}
-
 /// What a solved outage leaves for the bounds of its supersets.
 struct Anchor {
     /// Per pool element: the flow through it.
@@ -356,7 +328,7 @@ struct Solved {
     /// Kept while some queued node still bounds by it.
     anchor: Weak<Anchor>,
     /// The walk engine's optimum, kept for single failures only.
-    basis: Option<Arc<colgen::Basis>>,
+    basis: Option<Arc<Warm>>,
 }
 
 /// A set in the queue: its pool indices (ascending) and the bounds its solved ancestors
@@ -448,7 +420,7 @@ struct Search<'a> {
     /// Listable outages in rank order (kept sorted; the N-th sets the threshold).
     list: Vec<Ranked>,
     queue: BinaryHeap<Node>,
-    base_basis: Arc<colgen::Basis>,
+    base_basis: Option<Arc<Warm>>,
     proof: Proof,
     max_unsolved: Option<f64>,
 }
@@ -594,13 +566,13 @@ impl<'a> Search<'a> {
     }
 
     /// The basis a set starts from: its first element's single failure, else the baseline.
-    fn start_for(&self, set: &[usize]) -> Arc<colgen::Basis> {
+    fn start_for(&self, set: &[usize]) -> Option<Arc<Warm>> {
         if set.len() >= 2 {
             let o = Scenario::new(self.net, &[self.pool[set[0]]]).outage(self.net);
             if let Some(&i) = self.outages.get(&o)
                 && let Some(b) = &self.solved[i].basis
             {
-                return b.clone();
+                return Some(b.clone());
             }
         }
         self.base_basis.clone()
@@ -608,12 +580,7 @@ impl<'a> Search<'a> {
 
     /// Stores a fresh solve of outage `o` (of `set`); returns its index and, when the set
     /// still has children, the anchor to keep alive.
-    fn store(
-        &mut self,
-        o: Outage,
-        set: &[usize],
-        w: colgen::Walked,
-    ) -> (usize, Option<Arc<Anchor>>) {
+    fn store(&mut self, o: Outage, set: &[usize], w: Evaluated) -> (usize, Option<Arc<Anchor>>) {
         let e = &w.evaluation;
         self.proof.outages_solved += 1;
         if !e.verification.proven {
@@ -621,7 +588,7 @@ impl<'a> Search<'a> {
         }
         let anchor = (set.len() < self.opts.k).then(|| {
             Arc::new(Anchor::new(
-                pool_flows(self.net, e, &self.pool),
+                element_flows(self.net, &o, &w, &self.pool),
                 lower_value(e, self.opts.by),
                 self.opts.k,
             ))
@@ -633,7 +600,7 @@ impl<'a> Search<'a> {
             served_required: e.served_required,
             proven: e.verification.proven,
             anchor: anchor.as_ref().map_or_else(Weak::new, Arc::downgrade),
-            basis: (set.len() == 1).then(|| Arc::new(w.basis)),
+            basis: (set.len() == 1).then_some(w.warm).flatten().map(Arc::new),
         });
         self.outages.insert(o, i);
         (i, anchor)
@@ -661,10 +628,13 @@ pub fn search(net: &Network, opts: Options) -> Result<Worst> {
     let required: f64 = net.demands.iter().map(|d| d.required).sum();
     let tolerance = 2.0 * crate::tol::PROOF_GAP_TOL * required;
     let floor = key(2.0 * tolerance);
+    let engine = audit::evaluator_for(net, Engine::Walks);
+    let engine = engine.as_ref();
     let base = audit::in_pool(opts.threads, || {
-        colgen::evaluate_walks(net, &Outage::default(), None)
+        engine.evaluate(net, &Outage::default(), None)
     })??;
     let sets_total = scenario::count(pool.len(), opts.k) - 1;
+    let root_flows = element_flows(net, &Outage::default(), &base, &pool);
     let mut s = Search {
         net,
         opts,
@@ -676,7 +646,7 @@ pub fn search(net: &Network, opts: Options) -> Result<Worst> {
         rep: HashMap::new(),
         list: Vec::new(),
         queue: BinaryHeap::new(),
-        base_basis: Arc::new(base.basis),
+        base_basis: base.warm.map(Arc::new),
         proof: Proof {
             bound: None,
             threshold: floor,
@@ -696,11 +666,7 @@ pub fn search(net: &Network, opts: Options) -> Result<Worst> {
         names,
     };
     let e = &base.evaluation;
-    let root_anchor = Arc::new(Anchor::new(
-        pool_flows(net, e, &s.pool),
-        lower_value(e, opts.by),
-        opts.k,
-    ));
+    let root_anchor = Arc::new(Anchor::new(root_flows, lower_value(e, opts.by), opts.k));
     let root = Node {
         set: Vec::new(),
         anchors: vec![(root_anchor.clone(), root_anchor.lower)],
@@ -764,13 +730,13 @@ pub fn search(net: &Network, opts: Options) -> Result<Worst> {
             batch.push((node, o));
         }
         if !batch.is_empty() {
-            let starts: Vec<Arc<colgen::Basis>> =
+            let starts: Vec<Option<Arc<Warm>>> =
                 batch.iter().map(|(n, _)| s.start_for(&n.set)).collect();
-            let solved: Vec<Result<colgen::Walked>> = audit::in_pool(opts.threads, || {
+            let solved: Vec<Result<Evaluated>> = audit::in_pool(opts.threads, || {
                 batch
                     .par_iter()
                     .zip(&starts)
-                    .map(|((_, o), b)| colgen::evaluate_walks(net, o, Some(b)))
+                    .map(|((_, o), b)| engine.evaluate(net, o, b.as_deref()))
                     .collect()
             })?;
             drop(starts);

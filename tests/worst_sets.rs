@@ -21,7 +21,7 @@ use serde_json::Value;
 
 use redoubt::model::Network;
 use redoubt::scenario::{Element, Kinds, Outage, Scenario};
-use redoubt::solve::colgen;
+use redoubt::solve::Engine;
 use redoubt::worst::{self, By};
 
 /// One set as compared: its sorted names and its value.
@@ -414,19 +414,24 @@ fn pruning_bound_holds_on_every_pair() {
         let required: f64 = net.demands.iter().map(|d| d.required).sum();
         let tol = 2.0 * redoubt::solve::GAP_TOL * required;
         let pool = redoubt::scenario::elements(&net, Kinds::ALL);
-        let base = colgen::evaluate_walks(&net, &Outage::default(), None).unwrap();
+        let engine = redoubt::audit::evaluator_for(&net, Engine::Walks);
+        let base = engine.evaluate(&net, &Outage::default(), None).unwrap();
         for &e1 in &pool {
             let single = Scenario::new(&net, &[e1]);
-            let w1 = colgen::evaluate_walks(&net, &single.outage(&net), Some(&base.basis)).unwrap();
+            let o1 = single.outage(&net);
+            let w1 = engine.evaluate(&net, &o1, base.warm.as_ref()).unwrap();
             let s1 = &w1.evaluation;
-            for &e2 in &pool {
+            let flows = worst::element_flows(&net, &o1, &w1, &pool);
+            for (i2, &e2) in pool.iter().enumerate() {
                 if e2 == e1 {
                     continue;
                 }
                 let pair = Scenario::new(&net, &[e1, e2]);
-                let w2 = colgen::evaluate_walks(&net, &pair.outage(&net), Some(&w1.basis)).unwrap();
+                let w2 = engine
+                    .evaluate(&net, &pair.outage(&net), w1.warm.as_ref())
+                    .unwrap();
                 let s2 = &w2.evaluation;
-                let flow = worst::element_flow(&net, s1, e2);
+                let flow = flows[i2];
                 let lost2 = worst::value(s2, By::Lost);
                 let bound = worst::lower_value(s1, By::Lost) + flow;
                 assert!(

@@ -13,7 +13,6 @@ use crate::worst;
 /// Runs `redoubt worst` with its writers. O(the search).
 pub fn run(args: &WorstOptions, out: &mut dyn Write, _err: &mut dyn Write) -> Result<Outcome> {
     let net = load(&args.network)?;
-    super::chains_refused(&net, "worst")?;
     if let Some(json) = &args.json {
         report::file::check_output("--json", json, &[&args.network])?;
     }

@@ -8,9 +8,9 @@ use std::io::{self, Write};
 use serde::Serialize;
 
 use super::screen::{finish, render, right, table};
-use super::{CAUTION, amount, file_num, num};
+use super::{amount, caution_for, file_num, num};
 use crate::model::Network;
-use crate::worst::{By, Proof, Worst};
+use crate::worst::{By, Proof, Worst, WorstSet};
 
 /// How the bound of the proof is obtained, in one sentence (text and JSON).
 pub const METHOD: &str = "best-first branch and bound over sets; a set that was not solved \
@@ -87,9 +87,21 @@ pub fn text(net: &Network, w: &Worst) -> String {
             p.unproven
         ));
     }
-    s.push_str(CAUTION);
+    s.push_str(caution_for(net));
     s.push('\n');
     finish(&s)
+}
+
+/// `n` as an English ordinal: 1st, 2nd, 3rd, 4th, …, 11th, 12th, 13th, …, 21st. O(1).
+fn ordinal(n: usize) -> String {
+    let suffix = match (n % 10, n % 100) {
+        (_, 11..=13) => "th",
+        (1, _) => "st",
+        (2, _) => "nd",
+        (3, _) => "rd",
+        _ => "th",
+    };
+    format!("{n}{suffix}")
 }
 
 /// The one line on the proof.
@@ -104,9 +116,9 @@ fn proof_line(net: &Network, w: &Worst) -> String {
         None => format!("Proof: exhaustive, every set solved ({counts})."),
         Some(b) if full => format!(
             "Proof: every set not solved loses at most {} (a solved subset's proven allocation \
-             plus its flow through the added elements), below the {}th worst's {}; {counts}.",
+             plus its flow through the added elements), below the {} worst's {}; {counts}.",
             amount(b, &net.unit),
-            w.options.top,
+            ordinal(w.options.top),
             num(p.threshold)
         ),
         Some(b) => format!(
@@ -120,17 +132,14 @@ fn proof_line(net: &Network, w: &Worst) -> String {
     }
 }
 
-/// One listed set in the JSON document.
+/// One listed set in the JSON document: its rank, then the set's own fields in
+/// [`WorstSet`]'s order (`failed`, `shortfall`, `stranded`, `lost`, `served_required`,
+/// `proven`; numbers as files write them), then its matrix.
 #[derive(Serialize)]
 pub struct SetJson {
     pub rank: usize,
-    pub failed: Vec<String>,
-    pub shortfall: f64,
-    pub stranded: f64,
-    pub lost: f64,
-    pub served_required: f64,
-    /// The served_required LP was proven optimal.
-    pub proven: bool,
+    #[serde(flatten)]
+    pub set: WorstSet,
     /// The traffic matrix (absent for a file without `matrices`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub matrix: Option<String>,
@@ -171,9 +180,9 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
     let statement = match p.bound {
         None => "every set was solved; the list is exact".to_string(),
         Some(_) if full => format!(
-            "every set not listed was solved and ranks below the {}th, or was not solved and \
+            "every set not listed was solved and ranks below the {}, or was not solved and \
              has a value at most bound + tolerance, which as printed is below threshold",
-            w.options.top
+            ordinal(w.options.top)
         ),
         Some(_) => "every set not listed was solved and loses nothing above floor, or was not \
                     solved and has a value at most bound + tolerance, which as printed is at \
@@ -183,7 +192,7 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
     WorstJson {
         network: net.name.clone(),
         unit: net.unit.clone(),
-        caution: CAUTION,
+        caution: caution_for(net),
         k: w.options.k,
         kinds: kinds_list(w),
         by: by_name(w.options.by),
@@ -194,12 +203,13 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
             .enumerate()
             .map(|(i, s)| SetJson {
                 rank: i + 1,
-                failed: s.failed.clone(),
-                shortfall: file_num(s.shortfall),
-                stranded: file_num(s.stranded),
-                lost: file_num(s.lost),
-                served_required: file_num(s.served_required),
-                proven: s.proven,
+                set: WorstSet {
+                    shortfall: file_num(s.shortfall),
+                    stranded: file_num(s.stranded),
+                    lost: file_num(s.lost),
+                    served_required: file_num(s.served_required),
+                    ..s.clone()
+                },
                 matrix: (net.matrix_count() > 1).then(|| net.matrix_id(s.matrix).to_string()),
             })
             .collect(),
@@ -218,4 +228,22 @@ pub fn json(net: &Network, w: &Worst) -> WorstJson {
 /// Writes [`json`] of `w` as pretty JSON with a trailing newline.
 pub fn write_json(out: &mut dyn Write, net: &Network, w: &Worst) -> io::Result<()> {
     super::json::write(out, &json(net, w))
+}
+
+#[cfg(test)]
+mod tests {
+    #[test]
+    fn ordinals() {
+        let got: Vec<String> = [1, 2, 3, 4, 10, 11, 12, 13, 21, 22, 101, 111]
+            .into_iter()
+            .map(super::ordinal)
+            .collect();
+        assert_eq!(
+            got,
+            [
+                "1st", "2nd", "3rd", "4th", "10th", "11th", "12th", "13th", "21st", "22nd",
+                "101st", "111th"
+            ]
+        );
+    }
 }

@@ -352,3 +352,40 @@ pub fn with_one_function(file: &Value) -> Value {
     }
     out
 }
+
+/// `t` after the failure of the sites `sites` and the links `links` (indices into
+/// `t.links`), as the contract reads a failure: a failed site loses its functions and its
+/// links, a demand with a failed end leaves the network (it is stranded), every other
+/// demand keeps its volume, required amount and chain. [`reference_served`] of the result
+/// (with no further failure) is the served amount of that outage.
+pub fn without(t: &RNet, sites: &[usize], links: &[usize]) -> RNet {
+    let up = |v: &usize| !sites.contains(v);
+    RNet {
+        gains: t.gains.clone(),
+        capacity: t
+            .capacity
+            .iter()
+            .enumerate()
+            .map(|(v, caps)| {
+                if up(&v) {
+                    caps.clone()
+                } else {
+                    vec![0.0; caps.len()]
+                }
+            })
+            .collect(),
+        links: t
+            .links
+            .iter()
+            .enumerate()
+            .filter(|(l, (a, b, _, _))| !links.contains(l) && up(a) && up(b))
+            .map(|(_, &link)| link)
+            .collect(),
+        demands: t
+            .demands
+            .iter()
+            .filter(|(a, b, ..)| up(a) && up(b))
+            .cloned()
+            .collect(),
+    }
+}

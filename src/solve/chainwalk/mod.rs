@@ -49,6 +49,7 @@
 //! in group and demand order, and a scenario depends only on the network, the outage and
 //! the parent's optimum, never on thread count.
 
+mod carried;
 pub mod headroom;
 mod master;
 mod rows;
@@ -57,6 +58,7 @@ mod verify;
 
 use std::collections::BTreeMap;
 
+pub use carried::{CarriedWalk, proven_walks};
 use master::Master;
 use rows::{Rows, layered_rows};
 use start::{reroute, surviving_start};
