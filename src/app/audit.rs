@@ -111,8 +111,8 @@ pub(super) fn run(
     if net.chains.is_some() {
         for (given, flag) in [
             (
-                args.scenarios.routing.is_some(),
-                "--routing nearest|steered",
+                args.scenarios.routing.is_some() && args.close,
+                "--routing with --close",
             ),
             (args.headroom, "--headroom"),
             (
@@ -125,8 +125,9 @@ pub(super) fn run(
             }
         }
         if !args.scenarios.quiet {
-            let how = match args.engine {
-                crate::solve::Engine::Edge => "the layered edge LP of service chains",
+            let how = match (args.scenarios.routing, args.engine) {
+                (Some(_), _) => "the fixed routes of each chain's legs (routing as deployed)",
+                (None, crate::solve::Engine::Edge) => "the layered edge LP of service chains",
                 _ => {
                     "the layered walk engine of service chains (`--engine edge`: the layered \
                      edge LP)"
