@@ -110,10 +110,6 @@ pub(super) fn run(
     let opts = run_options(&args.scenarios, err);
     if net.chains.is_some() {
         for (given, flag) in [
-            (
-                args.scenarios.routing.is_some() && args.close,
-                "--routing with --close",
-            ),
             (args.headroom, "--headroom"),
             (
                 matches!(args.engine, crate::solve::Engine::Approx { .. }),
@@ -433,6 +429,13 @@ pub(super) fn finish_audit(
         .chains
         .as_ref()
         .map(|_| expand::chain_buy::Offer::of(net));
+    let steered = o.routed.map(|ra| routing::chain::Steered {
+        trees: &ra.model.trees,
+    });
+    let buyer: &dyn expand::chain_buy::ChainModel = match &steered {
+        Some(s) => s,
+        None => &expand::chain_buy::BestReroute,
+    };
     let closings = if o.close {
         Some(
             audit::par_map(
@@ -442,7 +445,7 @@ pub(super) fn finish_audit(
                 |&k| {
                     let (outage, e) = (&audit.outages[k], &audit.evaluations[k]);
                     match &offer {
-                        Some(offer) => expand::chain_buy::close(net, outage, e, offer),
+                        Some(offer) => expand::chain_buy::close_for(buyer, net, outage, e, offer),
                         None => expand::close_with(closer, net, outage, e, &cands),
                     }
                 },

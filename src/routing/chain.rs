@@ -45,6 +45,7 @@ use super::fixed::{self, Resources};
 use super::spt::{Trees, UNREACHABLE};
 use super::{ArcLoad, Choice, DemandRoutes, Mode, Offered, merge};
 use crate::error::Result;
+use crate::expand::chain_buy::{ChainModel, Offer};
 use crate::model::{Chains, Network, SiteIdx};
 use crate::scenario::Outage;
 use crate::solve::lp::{self, Lp, LpSolution};
@@ -96,6 +97,17 @@ impl<'a> ChainRouting<'a> {
     /// The layers and nearest routes of every demand of `net` (the outage's matrix view)
     /// under `trees` (the outage's). O(demands · (k · S² + Σ legs' arcs)).
     pub fn new(net: &'a Network, trees: &'a Trees, outage: &Outage) -> ChainRouting<'a> {
+        ChainRouting::with_buyable(net, trees, outage, None)
+    }
+
+    /// [`ChainRouting::new`] with the resources `buyable[r]` (surviving sites where
+    /// capacity may be bought) in the layers too, at their real capacity (0 or more).
+    fn with_buyable(
+        net: &'a Network,
+        trees: &'a Trees,
+        outage: &Outage,
+        buyable: Option<&[bool]>,
+    ) -> ChainRouting<'a> {
         let ch = net.chains.as_ref().expect("a network with functions");
         let nf = ch.functions.len();
         let alive = outage.site_alive(net);
@@ -103,7 +115,8 @@ impl<'a> ChainRouting<'a> {
         let mut runs: Vec<Vec<usize>> = vec![Vec::new(); nf];
         for v in 0..net.sites.len() {
             for f in 0..nf {
-                if alive[v] && ch.capacity[v][f] > 0.0 {
+                let bought = buyable.is_some_and(|b| b[v * nf + f]);
+                if alive[v] && (ch.capacity[v][f] > 0.0 || bought) {
                     caps[v * nf + f] = ch.capacity[v][f];
                     runs[f].push(v);
                 }
@@ -138,7 +151,11 @@ impl<'a> ChainRouting<'a> {
             .map(|d| {
                 let layers = out.layers[d].as_ref()?;
                 let candidates: Vec<Choice> = out.nearest(d, layers).into_iter().collect();
-                let nearest = if candidates.is_empty() { vec![] } else { vec![0] };
+                let nearest = if candidates.is_empty() {
+                    vec![]
+                } else {
+                    vec![0]
+                };
                 Some(DemandRoutes {
                     candidates,
                     nearest,
@@ -178,9 +195,12 @@ impl<'a> ChainRouting<'a> {
         to[last][0] = (0, 1.0);
         for j in 1..=last {
             for (i, &v) in layers[j].iter().enumerate() {
-                from[j][i] = tally(layers[j - 1].iter().enumerate().map(|(p, &u)| {
-                    (from[j - 1][p], self.legs.dist(u, v))
-                }));
+                from[j][i] = tally(
+                    layers[j - 1]
+                        .iter()
+                        .enumerate()
+                        .map(|(p, &u)| (from[j - 1][p], self.legs.dist(u, v))),
+                );
             }
         }
         for j in (0..last).rev() {
@@ -364,7 +384,9 @@ impl<'a> ChainRouting<'a> {
                 per_fn[f] += cap[d] * cum[j];
             }
         }
-        let res = (0..self.caps.len()).map(|r| per_fn[r % nf.max(1)]).collect();
+        let res = (0..self.caps.len())
+            .map(|r| per_fn[r % nf.max(1)])
+            .collect();
         (vec![any_arc; self.net.arcs.len()], res)
     }
 
@@ -404,12 +426,7 @@ impl<'a> ChainRouting<'a> {
 
     /// Steered: column generation over sequences, then the ladder with the bound over every
     /// sequence. See the module documentation for the cost.
-    fn steered(
-        &self,
-        cap: &[f64],
-        at_stake: f64,
-        ladder: &[&dyn lp::Backend],
-    ) -> Result<Verified> {
+    fn steered(&self, cap: &[f64], at_stake: f64, ladder: &[&dyn lp::Backend]) -> Result<Verified> {
         let n = self.net.demands.len();
         let mut seen: Vec<HashSet<Vec<usize>>> = vec![HashSet::new(); n];
         let mut cols: Vec<Option<DemandRoutes>> = (0..n)
@@ -436,8 +453,16 @@ impl<'a> ChainRouting<'a> {
         };
         let build = |cols: &[Option<DemandRoutes>]| {
             let mut model = Lp::new(true);
-            let index =
-                fixed::build_with(&mut model, self.net, cols, Mode::Steered, cap, 1.0, None, &res);
+            let index = fixed::build_with(
+                &mut model,
+                self.net,
+                cols,
+                Mode::Steered,
+                cap,
+                1.0,
+                None,
+                &res,
+            );
             (model, index)
         };
         for _ in 0..MAX_ROUNDS {
@@ -636,4 +661,105 @@ fn price_of(c: &Choice, arc_price: &[f64], res_price: &[f64]) -> f64 {
     let arcs: f64 = c.arcs.iter().map(|&(a, f)| f * arc_price[a]).sum();
     let steps: f64 = c.processing.iter().map(|&(r, f)| f * res_price[r]).sum();
     arcs + steps
+}
+
+/// The steered routing of service chains as the model purchases of function capacity are
+/// made for ([`crate::expand::chain_buy::close_for`], [`crate::expand::chain_buy::plan_for`]).
+pub struct Steered<'a> {
+    /// The baseline trees (routes do not depend on capacities, so a purchase keeps them).
+    pub trees: &'a Trees,
+}
+
+impl ChainModel for Steered<'_> {
+    /// [`ChainRouting::evaluate`] under [`Mode::Steered`] on `outage`'s matrix view.
+    fn evaluate(&self, net: &Network, outage: &Outage) -> Result<Evaluation> {
+        let net = net.view(outage.matrix);
+        let trees = self.trees.for_outage(net, outage);
+        ChainRouting::new(net, &trees, outage).evaluate(outage, Mode::Steered)
+    }
+
+    /// The steered model as a layered flow between the sites of consecutive steps (no
+    /// column generation, so the purchase LP is one solve): per demand `d` and pair of
+    /// consecutive layers, `z ≥ 0` per pair of sites `(u, v)` whose leg exists, carrying
+    /// `G_j ·` the leg's per-hop split on the arc rows and `G_j` on the row of the next
+    /// step's function at `v`; flow conserved at every step's site, `F_d ≤ required_d`
+    /// leaving the origin and reaching the destination. Any such flow decomposes into
+    /// sequences with the same loads, and every split among sequences is such a flow, so
+    /// the optimum is the steered one. A surviving slot's site is in its step's layer even
+    /// at capacity 0; its row is `Σ ≤ capacity + b_s`. Size O(Σ_d k · S² · leg arcs).
+    fn served_model(
+        &self,
+        model: &mut Lp,
+        net: &Network,
+        outage: &Outage,
+        offer: &Offer,
+        buy: &[usize],
+    ) -> Vec<usize> {
+        let net = net.view(outage.matrix);
+        let ch = net.chains.as_ref().expect("a network with functions");
+        let nf = ch.functions.len();
+        let trees = self.trees.for_outage(net, outage);
+        let alive = outage.site_alive(net);
+        let mut slot_var = vec![None; net.sites.len() * nf];
+        for (s, &(v, f)) in offer.slots.iter().enumerate() {
+            if alive[v] && offer.cands.max[s] > 0.0 && offer.need[f] > 0.0 {
+                slot_var[v.0 * nf + f] = Some(buy[s]);
+            }
+        }
+        let buyable: Vec<bool> = slot_var.iter().map(Option::is_some).collect();
+        let cr = ChainRouting::with_buyable(net, &trees, outage, Some(&buyable));
+        let mut arc_terms: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.arcs.len()];
+        let mut res_terms: Vec<Vec<(usize, f64)>> = vec![Vec::new(); cr.caps.len()];
+        let mut served = Vec::new();
+        for (d, dem) in net.demands.iter().enumerate() {
+            let Some(layers) = cr.layers[d].as_ref() else {
+                continue;
+            };
+            let cum = ch.cumulative(&ch.chain[d]);
+            let flow = model.add_var(0.0, dem.required, 0.0);
+            model.magnitude[flow] = dem.required;
+            served.push(flow);
+            let last = layers.len() - 1;
+            // Per layer and site: Σ in − Σ out.
+            let mut balance: Vec<Vec<Vec<(usize, f64)>>> =
+                layers.iter().map(|l| vec![Vec::new(); l.len()]).collect();
+            balance[0][0].push((flow, 1.0));
+            balance[last][0].push((flow, -1.0));
+            for j in 0..last {
+                for (p, &u) in layers[j].iter().enumerate() {
+                    for (i, &v) in layers[j + 1].iter().enumerate() {
+                        if cr.legs.dist(u, v) == UNREACHABLE {
+                            continue;
+                        }
+                        let z = model.add_var(0.0, f64::INFINITY, 0.0);
+                        model.magnitude[z] = dem.required;
+                        balance[j][p].push((z, -1.0));
+                        balance[j + 1][i].push((z, 1.0));
+                        for &(a, fr) in cr.legs.get(u, v).iter() {
+                            arc_terms[a].push((z, cum[j] * fr));
+                        }
+                        if j + 1 < last {
+                            res_terms[v * nf + ch.chain[d][j]].push((z, cum[j]));
+                        }
+                    }
+                }
+            }
+            for row in balance.into_iter().flatten() {
+                model.add_row(row, lp::Sense::Eq, 0.0);
+            }
+        }
+        for (a, t) in arc_terms.into_iter().enumerate() {
+            if !t.is_empty() {
+                model.add_row(t, lp::Sense::Le, net.arcs[a].capacity);
+            }
+        }
+        for (r, mut t) in res_terms.into_iter().enumerate() {
+            if t.is_empty() {
+                continue;
+            }
+            t.extend(slot_var[r].map(|b| (b, -1.0)));
+            model.add_row(t, lp::Sense::Le, cr.caps[r]);
+        }
+        served
+    }
 }

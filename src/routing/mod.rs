@@ -314,7 +314,15 @@ fn verify_fixed(
     ladder: &[&dyn lp::Backend],
 ) -> Result<solve::Verified> {
     let sites = net.sites.len();
-    verify_fixed_with(net, model, index, at_stake, ladder, sites, &fixed::weak_dual_bound)
+    verify_fixed_with(
+        net,
+        model,
+        index,
+        at_stake,
+        ladder,
+        sites,
+        &fixed::weak_dual_bound,
+    )
 }
 
 /// The upper bound of a fixed-route model from one backend's solution (valid for any row
