@@ -234,3 +234,81 @@ fn headroom_stays_refused_on_chain_files() {
     assert_eq!(run.code, 2, "{}", run.stderr);
     assert!(run.stderr.contains("functions"), "{}", run.stderr);
 }
+
+/// Sites o, a, c, t, e; f1 at a (4, more at 5 a unit), none at e (1 a unit), f2 at c
+/// (100); links of capacity 100: o-a, a-c, c-t of metric 1, o-e, e-c of metric 5; one
+/// demand o → t of 10 with chain [f1, f2].
+fn far_buy() -> Value {
+    let link = |id: &str, a: &str, b: &str, metric: u32| json!({"id": id, "from": a, "to": b, "capacity": 100, "metric": metric});
+    json!({
+        "functions": [{"id": "f1", "gain": 1}, {"id": "f2", "gain": 1}],
+        "sites": [
+            {"id": "o"},
+            {"id": "a", "functions": {"f1": 4}, "expand": {"f1": {"cost": 5, "max": 10}}},
+            {"id": "c", "functions": {"f2": 100}}, {"id": "t"},
+            {"id": "e", "expand": {"f1": {"cost": 1, "max": 10}}}
+        ],
+        "links": [
+            link("oa", "o", "a", 1), link("ac", "a", "c", 1), link("ct", "c", "t", 1),
+            link("oe", "o", "e", 5), link("ec", "e", "c", 5)
+        ],
+        "demands": [{"from": "o", "to": "t", "volume": 10, "chain": ["f1", "f2"]}]
+    })
+}
+
+/// By hand: e runs no f1, so the only sequence is (a, c) and steered serves 4 (short 6).
+/// f1 bought at e makes (e, c) a sequence (legs o → e, e → c of metric 5 each, c → t; all
+/// links 100), so the cheapest closing buys 6 at e for 6 × 1 = 6 (at a it would cost 30).
+/// The plan covers every single failure too: with site a down only e can take f1 (10 at e,
+/// its max), with site e down only a (10 − 4 = 6 at a, 30); every other failure needs at
+/// most what the baseline needs or cuts the demand off (site o, c, t, link c-t). So the
+/// plan buys 10 at e and 6 at a: 10 + 30 = 40; applied, the steered audit serves 10.
+/// Nearest refuses to buy (a purchase changes which sequences are nearest).
+#[test]
+fn steered_buys_function_capacity_at_a_far_site() {
+    let net = far_buy();
+    let file = TempPath::with_text("chains-routing-buy", &net.to_string());
+    let (_, doc) = audit_json(
+        file.path(),
+        &["--threads", "1", "--routing", "steered", "--close"],
+    );
+    let b = baseline(&doc);
+    assert_close(num(b, "shortfall"), 6.0, "steered shortfall");
+    let c = &b["closing"];
+    assert_close(num(c, "cost"), 6.0, "closing cost");
+    assert_close(num(&c["add_functions"]["e"], "f1"), 6.0, "6 of f1 at e");
+    assert_eq!(c["verified"], true, "{c}");
+    let out = TempPath::new("chains-routing-plan", "json");
+    let applied = TempPath::new("chains-routing-applied", "json");
+    let run = redoubt(&[
+        "plan",
+        file.path(),
+        "--routing",
+        "steered",
+        "--quiet",
+        "--json",
+        out.path(),
+        "--apply",
+        applied.path(),
+    ]);
+    assert_eq!(run.code, 0, "{}", run.stderr);
+    let plan = out.read_json();
+    assert_close(num(&plan["plan"], "cost"), 40.0, "plan cost");
+    let bought = &plan["plan"]["add_functions"];
+    assert_close(num(&bought["e"], "f1"), 10.0, "plan at e");
+    assert_close(num(&bought["a"], "f1"), 6.0, "plan at a");
+    let (_, after) = audit_json(applied.path(), &["--threads", "1", "--routing", "steered"]);
+    assert_close(
+        num(baseline(&after), "served_required"),
+        10.0,
+        "after --apply",
+    );
+    for args in [
+        vec!["plan", file.path(), "--routing", "nearest"],
+        vec!["audit", file.path(), "--routing", "nearest", "--close"],
+    ] {
+        let run = redoubt(&args);
+        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
+        assert!(run.stderr.contains("nearest"), "{}", run.stderr);
+    }
+}
