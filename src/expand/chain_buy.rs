@@ -175,18 +175,20 @@ pub trait ChainModel: Sync {
     /// The verified evaluation of `outage` on `net` (the purchase already applied).
     fn evaluate(&self, net: &Network, outage: &Outage) -> Result<Evaluation>;
 
-    /// Builds the served_required model of `outage` into `model` with the purchase
-    /// variables `buy` (per slot of `offer`, already in `model`) adding to their function
-    /// rows, the objective of its own variables 0; returns the variables whose sum is
-    /// served_required.
-    fn served_model(
-        &self,
-        model: &mut Lp,
-        net: &Network,
-        outage: &Outage,
-        offer: &Offer,
-        buy: &[usize],
-    ) -> Vec<usize>;
+    /// Builds the served_required model of `at.outage` into `model` with the purchase
+    /// variables `at.buy` (per slot of `at.offer`, already in `model`) adding to their
+    /// function rows, the objective of its own variables 0; returns the variables whose
+    /// sum is served_required.
+    fn served_model(&self, model: &mut Lp, at: &BuyAt<'_>) -> Vec<usize>;
+}
+
+/// One outage of `net` a served model with purchases is built for: the offer and its
+/// purchase variables (per slot, already in the model).
+pub struct BuyAt<'a> {
+    pub net: &'a Network,
+    pub outage: &'a Outage,
+    pub offer: &'a Offer,
+    pub buy: &'a [usize],
 }
 
 /// The best re-route of service chains: [`chain::evaluate`] and the layered LP.
@@ -197,15 +199,8 @@ impl ChainModel for BestReroute {
         chain::evaluate(net, outage)
     }
 
-    fn served_model(
-        &self,
-        model: &mut Lp,
-        net: &Network,
-        outage: &Outage,
-        offer: &Offer,
-        buy: &[usize],
-    ) -> Vec<usize> {
-        served_model(model, net, outage, offer, buy)
+    fn served_model(&self, model: &mut Lp, at: &BuyAt<'_>) -> Vec<usize> {
+        served_model(model, at.net, at.outage, at.offer, at.buy)
     }
 }
 
@@ -523,7 +518,13 @@ pub fn close_for(
     let alive = outage.site_alive(net);
     let mut model = Lp::new(false);
     let buy = buy_vars(&mut model, offer, &alive, 1.0);
-    let served = m.served_model(&mut model, net, outage, offer, &buy);
+    let at = BuyAt {
+        net,
+        outage,
+        offer,
+        buy: &buy,
+    };
+    let served = m.served_model(&mut model, &at);
     served_at_least(&mut model, &served, target(best, required));
     let first = lp::solve(&model)?;
     let dual_bound = model.dual_objective(&first);
@@ -764,7 +765,13 @@ fn master(
     let buy = buy_vars(&mut model, offer, &alive_any, cost_weight);
     let mut served = Vec::with_capacity(gainable.len());
     for &k in gainable {
-        served.push(m.served_model(&mut model, net, &audit.outages[k], offer, &buy));
+        let at = BuyAt {
+            net,
+            outage: &audit.outages[k],
+            offer,
+            buy: &buy,
+        };
+        served.push(m.served_model(&mut model, &at));
         if model.num_vars() > TOTAL_MAX_VARS {
             return Err(Error::Usage(format!(
                 "plan: the purchase model over {} outages needs more than {TOTAL_MAX_VARS} \

@@ -34,7 +34,7 @@
 //!
 //! Invariants: the LP's resources are the arcs and each (site, function) (resource index
 //! `site · functions + function`, [`super::fixed::Resources`]); every result ends in
-//! [`crate::solve::chain::finish_chain`] like the chain engines', with `delivered` and the
+//! `solve::chain::finish_chain` like the chain engines', with `delivered` and the
 //! per-function use. Pure functions of their inputs: results do not depend on threads.
 
 use std::cell::RefCell;
@@ -45,7 +45,7 @@ use super::fixed::{self, Resources};
 use super::spt::{Trees, UNREACHABLE};
 use super::{ArcLoad, Choice, DemandRoutes, Mode, Offered, merge};
 use crate::error::Result;
-use crate::expand::chain_buy::{ChainModel, Offer};
+use crate::expand::chain_buy::{BuyAt, ChainModel};
 use crate::model::{Chains, Network, SiteIdx};
 use crate::scenario::Outage;
 use crate::solve::lp::{self, Lp, LpSolution};
@@ -321,16 +321,7 @@ impl<'a> ChainRouting<'a> {
             }
         }
         let (price, _) = best[last][0];
-        if !price.is_finite() {
-            return None;
-        }
-        let mut seq = vec![0; layers.len()];
-        let mut p = 0;
-        for j in (0..=last).rev() {
-            seq[j] = layers[j][p];
-            p = best[j][p].1;
-        }
-        Some((price, seq))
+        price.is_finite().then(|| (price, trace(layers, &best)))
     }
 
     /// The demand `d`'s least-length sequence (the first by site order among ties), to
@@ -356,16 +347,7 @@ impl<'a> ChainRouting<'a> {
             }
         }
         let last = layers.len() - 1;
-        if best[last][0].0 == UNREACHABLE {
-            return None;
-        }
-        let mut seq = vec![0; layers.len()];
-        let mut p = 0;
-        for j in (0..=last).rev() {
-            seq[j] = layers[j][p];
-            p = best[j][p].1;
-        }
-        Some(seq)
+        (best[last][0].0 != UNREACHABLE).then(|| trace(layers, &best))
     }
 
     /// Ceilings valid for every sequence (see the module documentation): per arc and per
@@ -374,14 +356,14 @@ impl<'a> ChainRouting<'a> {
         let nf = self.nf();
         let mut any_arc = 0.0;
         let mut per_fn = vec![0.0; nf];
-        for d in 0..self.net.demands.len() {
-            if self.layers[d].is_none() {
+        for ((layers, chain), &c) in self.layers.iter().zip(&self.ch.chain).zip(cap) {
+            if layers.is_none() {
                 continue;
             }
-            let cum = self.ch.cumulative(&self.ch.chain[d]);
-            any_arc += cap[d] * cum.iter().sum::<f64>();
-            for (j, &f) in self.ch.chain[d].iter().enumerate() {
-                per_fn[f] += cap[d] * cum[j];
+            let cum = self.ch.cumulative(chain);
+            any_arc += c * cum.iter().sum::<f64>();
+            for (j, &f) in chain.iter().enumerate() {
+                per_fn[f] += c * cum[j];
             }
         }
         let res = (0..self.caps.len())
@@ -409,15 +391,7 @@ impl<'a> ChainRouting<'a> {
                     None,
                     &res,
                 );
-                super::verify_fixed_with(
-                    self.net,
-                    &model,
-                    &index,
-                    at_stake,
-                    ladder,
-                    self.caps.len(),
-                    &fixed::weak_dual_bound,
-                )?
+                self.verify(&model, &index, at_stake, ladder, &fixed::weak_dual_bound)?
             }
             Mode::Steered => self.steered(cap, at_stake, ladder)?,
         };
@@ -500,15 +474,20 @@ impl<'a> ChainRouting<'a> {
         }
         let (model, index) = build(&cols);
         let upper = |lp: &Lp, sol: &LpSolution| self.bound(lp, &index, sol, cap);
-        super::verify_fixed_with(
-            self.net,
-            &model,
-            &index,
-            at_stake,
-            ladder,
-            self.caps.len(),
-            &upper,
-        )
+        self.verify(&model, &index, at_stake, ladder, &upper)
+    }
+
+    /// [`super::verify_fixed_with`] over this outage's resources.
+    fn verify(
+        &self,
+        model: &Lp,
+        index: &fixed::FixedIndex,
+        at_stake: f64,
+        ladder: &[&dyn lp::Backend],
+        upper: &super::UpperBound<'_>,
+    ) -> Result<Verified> {
+        let n = self.caps.len();
+        super::verify_fixed_with(self.net, model, index, at_stake, ladder, n, upper)
     }
 
     /// The clipped prices of a solution's arc and resource rows. O(arcs + resources).
@@ -587,7 +566,7 @@ impl<'a> ChainRouting<'a> {
     /// One outage evaluated under `mode`: cut-off demands (no sequence: no path at all, or
     /// no sequence of sites running the chain on the shortest paths), the fixed-route LP
     /// for served_required and, when some surviving demand offers more, for throughput,
-    /// ended in [`crate::solve::chain::finish_chain`]. The evaluation carries no proof (a
+    /// ended in `solve::chain::finish_chain`. The evaluation carries no proof (a
     /// journal's re-check is defined for the best re-route only).
     pub fn evaluate(&self, outage: &Outage, mode: Mode) -> Result<Evaluation> {
         let net = self.net;
@@ -656,6 +635,18 @@ fn tally(pairs: impl Iterator<Item = ((u64, f64), u64)>) -> (u64, f64) {
     best
 }
 
+/// The sequence a layered pass chose: from the destination back along each node's
+/// predecessor (`back[j][i].1`, an index into layer `j − 1`). O(layers).
+fn trace<T>(layers: &[Vec<usize>], back: &[Vec<(T, usize)>]) -> Vec<usize> {
+    let mut seq = vec![0; layers.len()];
+    let mut p = 0;
+    for j in (0..layers.len()).rev() {
+        seq[j] = layers[j][p];
+        p = back[j][p].1;
+    }
+    seq
+}
+
 /// The price of one route per origin unit. O(its arcs + steps).
 fn price_of(c: &Choice, arc_price: &[f64], res_price: &[f64]) -> f64 {
     let arcs: f64 = c.arcs.iter().map(|&(a, f)| f * arc_price[a]).sum();
@@ -687,14 +678,13 @@ impl ChainModel for Steered<'_> {
     /// sequences with the same loads, and every split among sequences is such a flow, so
     /// the optimum is the steered one. A surviving slot's site is in its step's layer even
     /// at capacity 0; its row is `Σ ≤ capacity + b_s`. Size O(Σ_d k · S² · leg arcs).
-    fn served_model(
-        &self,
-        model: &mut Lp,
-        net: &Network,
-        outage: &Outage,
-        offer: &Offer,
-        buy: &[usize],
-    ) -> Vec<usize> {
+    fn served_model(&self, model: &mut Lp, at: &BuyAt<'_>) -> Vec<usize> {
+        let BuyAt {
+            net,
+            outage,
+            offer,
+            buy,
+        } = *at;
         let net = net.view(outage.matrix);
         let ch = net.chains.as_ref().expect("a network with functions");
         let nf = ch.functions.len();

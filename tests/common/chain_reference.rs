@@ -241,6 +241,10 @@ pub fn random_net(rng: &mut StdRng) -> RNet {
 // Routing as deployed on chain networks: a brute-force reference.
 // ---------------------------------------------------------------------------------------
 
+/// One sequence of the routed reference: its length, per-unit arc loads and steps (site,
+/// function, volume entering per origin unit).
+type RefRoute = (u64, Vec<f64>, Vec<(usize, usize, f64)>);
+
 /// Routing as deployed on `t` with link metrics `metric` (per link), from the contract's
 /// "Routing as deployed" and "Service chains" sections, written independently of the
 /// product: leg distances from petgraph's `dijkstra` (one run per source over the surviving
@@ -343,7 +347,7 @@ pub fn reference_routed(
             s.push(*to);
         }
         // Length (None when a leg is unreachable), per-unit arc and function loads.
-        let mut routes: Vec<(u64, Vec<f64>, Vec<(usize, usize, f64)>)> = Vec::new();
+        let mut routes: Vec<RefRoute> = Vec::new();
         for s in &seqs {
             let mut len = 0;
             let mut ok = true;
@@ -373,19 +377,18 @@ pub fn reference_routed(
         if routes.is_empty() {
             continue;
         }
-        let mut add =
-            |weight: f64, vars: &[(Variable, &(u64, Vec<f64>, Vec<(usize, usize, f64)>))]| {
-                for &(x, (_, load, steps)) in vars {
-                    for (k, &c) in load.iter().enumerate() {
-                        if c != 0.0 {
-                            arc_use[k] += weight * c * x;
-                        }
-                    }
-                    for &(v, f, gw) in steps {
-                        fn_use[v][f] += weight * gw * x;
+        let mut add = |weight: f64, vars: &[(Variable, &RefRoute)]| {
+            for &(x, (_, load, steps)) in vars {
+                for (k, &c) in load.iter().enumerate() {
+                    if c != 0.0 {
+                        arc_use[k] += weight * c * x;
                     }
                 }
-            };
+                for &(v, f, gw) in steps {
+                    fn_use[v][f] += weight * gw * x;
+                }
+            }
+        };
         if steered {
             let vars: Vec<Variable> = routes
                 .iter()
