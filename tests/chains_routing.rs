@@ -219,20 +219,81 @@ fn one_gain_one_function_equals_the_plain_routed_model() {
     assert!(compared > 20, "the examples' scenarios were compared");
 }
 
-/// The refusals that remain on chain files under a deployed routing.
+/// Headroom by hand. `diamond`, nearest: the offered load (λ = 1) puts 5 on f1 at a and at
+/// b (capacity 4): λ = 4/5 = 0.8; without link o-a only b is nearest, 10 λ <= 4: 0.4.
+/// Steered: f1 has 4 + 4 + 100 = 108 in all, but every unit crosses c-t (100) and f2 at c
+/// (100): 10 λ <= 100, λ = 10 (reached: 4 via a, 4 via b, 92 via e, links within 100).
+/// The gain-0.5 path: v-t carries 0.5 · 10 λ <= 3, λ = 0.6 under both routings.
 #[test]
-fn headroom_stays_refused_on_chain_files() {
-    let file = TempPath::with_text("chains-routing", &diamond().to_string());
-    let run = redoubt(&[
-        "audit",
-        file.path(),
-        "--routing",
-        "nearest",
-        "--headroom",
-        "--quiet",
-    ]);
-    assert_eq!(run.code, 2, "{}", run.stderr);
-    assert!(run.stderr.contains("functions"), "{}", run.stderr);
+fn headroom_under_the_deployed_routings_by_hand() {
+    let with_headroom = |net: &Value, mode: &str| {
+        let file = TempPath::with_text("chains-routing-headroom", &net.to_string());
+        let (_, doc) = audit_json(
+            file.path(),
+            &["--threads", "1", "--routing", mode, "--headroom"],
+        );
+        doc
+    };
+    let near = with_headroom(&diamond(), "nearest");
+    assert_close(num(baseline(&near), "headroom"), 0.8, "nearest");
+    assert_close(
+        num(scenario(&near, &["link:oa"]), "headroom"),
+        0.4,
+        "nearest, oa down",
+    );
+    let steer = with_headroom(&diamond(), "steered");
+    assert_close(num(baseline(&steer), "headroom"), 10.0, "steered");
+    let path = json!({
+        "functions": [{"id": "h", "gain": 0.5}],
+        "sites": [{"id": "o"}, {"id": "v", "functions": {"h": 100}}, {"id": "t"}],
+        "links": [
+            {"id": "ov", "from": "o", "to": "v", "capacity": 100},
+            {"id": "vt", "from": "v", "to": "t", "capacity": 3}
+        ],
+        "demands": [{"from": "o", "to": "t", "volume": 10, "chain": ["h"]}]
+    });
+    for mode in ["nearest", "steered"] {
+        let doc = with_headroom(&path, mode);
+        assert_close(num(baseline(&doc), "headroom"), 0.6, mode);
+    }
+}
+
+/// On random chain networks, headroom and shortfall agree under both routings: a scenario
+/// with a surviving demand is short exactly when its headroom is below 1 (by the
+/// definition of the headroom, common practice, no source), and the steered headroom is
+/// never below the nearest one (nearest's split is one steered choice).
+#[test]
+fn random_chain_headroom_agrees_with_the_shortfall() {
+    let mut rng = StdRng::seed_from_u64(0x4EAD);
+    for instance in 0..4 {
+        let t = random_net(&mut rng);
+        let metric: Vec<u64> = t.links.iter().map(|_| rng.random_range(1..=3)).collect();
+        let file = TempPath::with_text("chains-routing-hr", &with_metrics(&t, &metric).to_string());
+        let run = |mode: &str| {
+            audit_json(
+                file.path(),
+                &["--threads", "1", "--routing", mode, "--headroom"],
+            )
+            .1
+        };
+        let (near, steer) = (run("nearest"), run("steered"));
+        for (sn, ss) in scenarios(&near).iter().zip(scenarios(&steer)) {
+            let what = format!("instance {instance}, failed {}", sn["failed"]);
+            for sc in [sn, ss] {
+                let Some(h) = sc["headroom"].as_f64() else {
+                    continue;
+                };
+                let short = num(sc, "shortfall") > 1e-6;
+                assert_eq!(short, h < 1.0 - 1e-6, "{what}: headroom {h}, {sc}");
+            }
+            if let (Some(a), Some(b)) = (sn["headroom"].as_f64(), ss["headroom"].as_f64()) {
+                assert!(
+                    a <= b * (1.0 + 1e-6) + 1e-9,
+                    "{what}: nearest {a} > steered {b}"
+                );
+            }
+        }
+    }
 }
 
 /// Sites o, a, c, t, e; f1 at a (4, more at 5 a unit), none at e (1 a unit), f2 at c

@@ -110,7 +110,10 @@ pub(super) fn run(
     let opts = run_options(&args.scenarios, err);
     if net.chains.is_some() {
         for (given, flag) in [
-            (args.headroom, "--headroom"),
+            (
+                args.headroom && args.scenarios.routing.is_none(),
+                "--headroom",
+            ),
             (
                 matches!(args.engine, crate::solve::Engine::Approx { .. }),
                 "--engine approx",

@@ -108,9 +108,10 @@ pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
         return Err(Error::Usage(format!(
             "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
              `redoubt audit` (best re-route, with or without --close, --why, --matrix, --shard \
-             or --resume; --routing nearest|steered, with --close under steered; not \
-             --headroom or --engine approx), `redoubt merge`, `redoubt compare` (not \
-             --headroom) and `redoubt plan` (best re-route or --routing steered) take so far"
+             or --resume; --routing nearest|steered, with --headroom, and --close under \
+             steered; not --headroom without --routing, nor --engine approx), `redoubt \
+             merge`, `redoubt compare` (not --headroom) and `redoubt plan` (best re-route or \
+             --routing steered) take so far"
         )));
     }
     Ok(())

@@ -48,6 +48,7 @@ use crate::error::Result;
 use crate::expand::chain_buy::{BuyAt, ChainModel};
 use crate::model::{Chains, Network, SiteIdx};
 use crate::scenario::Outage;
+use crate::solve::concurrent::Headroom;
 use crate::solve::lp::{self, Lp, LpSolution};
 use crate::solve::{self, Evaluation, FunctionUse, Surviving, Unservable, Verified};
 use crate::tol::WALK_PRICE_TOL;
@@ -401,25 +402,7 @@ impl<'a> ChainRouting<'a> {
     /// Steered: column generation over sequences, then the ladder with the bound over every
     /// sequence. See the module documentation for the cost.
     fn steered(&self, cap: &[f64], at_stake: f64, ladder: &[&dyn lp::Backend]) -> Result<Verified> {
-        let n = self.net.demands.len();
-        let mut seen: Vec<HashSet<Vec<usize>>> = vec![HashSet::new(); n];
-        let mut cols: Vec<Option<DemandRoutes>> = (0..n)
-            .map(|d| {
-                self.layers[d].as_ref()?;
-                let candidates = match self.shortest(d) {
-                    Some(seq) => {
-                        let c = self.column(d, &seq);
-                        seen[d].insert(seq);
-                        vec![c]
-                    }
-                    None => Vec::new(),
-                };
-                Some(DemandRoutes {
-                    candidates,
-                    nearest: Vec::new(),
-                })
-            })
-            .collect();
+        let mut cols = self.first_columns();
         let (arc_ceiling, res_ceiling) = self.ceilings(cap);
         let res = Resources {
             capacity: &self.caps,
@@ -439,40 +422,20 @@ impl<'a> ChainRouting<'a> {
             );
             (model, index)
         };
+        let live: Vec<usize> = (0..self.net.demands.len())
+            .filter(|&d| cap[d] > 0.0)
+            .collect();
         for _ in 0..MAX_ROUNDS {
-            let (model, index) = build(&cols);
+            let (model, index) = build(&cols.0);
             if model.num_vars() == 0 {
                 break;
             }
             let Ok(sol) = lp::solve(&model) else { break };
-            let (arc_price, res_price) = self.prices(&index, &sol);
-            let mut leg_price = HashMap::new();
-            let mut added = false;
-            for d in 0..n {
-                let Some(r) = cols[d].as_mut() else { continue };
-                if r.candidates.is_empty() || cap[d] <= 0.0 {
-                    continue;
-                }
-                let present = r
-                    .candidates
-                    .iter()
-                    .map(|c| price_of(c, &arc_price, &res_price))
-                    .fold(1.0, f64::min);
-                let Some((p, seq)) = self.cheapest(d, &arc_price, &res_price, &mut leg_price)
-                else {
-                    continue;
-                };
-                if p < present - WALK_PRICE_TOL && !seen[d].contains(&seq) {
-                    r.candidates.push(self.column(d, &seq));
-                    seen[d].insert(seq);
-                    added = true;
-                }
-            }
-            if !added {
+            if !self.price_in(&mut cols, &index, &sol, &live) {
                 break;
             }
         }
-        let (model, index) = build(&cols);
+        let (model, index) = build(&cols.0);
         let upper = |lp: &Lp, sol: &LpSolution| self.bound(lp, &index, sol, cap);
         self.verify(&model, &index, at_stake, ladder, &upper)
     }
@@ -561,6 +524,185 @@ impl<'a> ChainRouting<'a> {
     /// arc and per (site, function). O(Σ routes' arcs + arcs + sites · functions).
     pub fn offered(&self) -> Offered {
         super::offered_on(self.net, &self.routes, &self.caps, self.nf())
+    }
+
+    /// Growth headroom under `mode` (the largest λ with every surviving demand of
+    /// `required > 0` sending `λ · required` at once on its fixed routes): no value without
+    /// such a demand, 0 when one has no sequence. Nearest: `min capacity / load` over the
+    /// arcs and (site, function) pairs of the offered load (loads are linear in λ), exact.
+    /// Steered: column generation as for the served LP with each demand's columns tied to
+    /// `λ · required_d` (a sequence enters when cheaper than the demand's columns), then the
+    /// ladder: lower bound the allocation scaled into the real capacities, upper bound the
+    /// priced quotient `Σ rows rhs·y / Σ_d required_d · cheapest_d` over every sequence.
+    /// The a-priori ceiling Λ: per function, its surviving capacity over what the demands
+    /// put through it per unit of λ; and every unit crosses some arc, so `Σ arc capacity /
+    /// Σ_d required_d · min_j G_j`. Cost: as [`ChainRouting::evaluate`].
+    pub fn headroom(&self, mode: Mode) -> Result<Headroom> {
+        let net = self.net;
+        let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+        let active: Vec<usize> = (0..net.demands.len())
+            .filter(|&d| self.routes[d].is_some() && required[d] > 0.0)
+            .collect();
+        if active.is_empty() {
+            return Ok(Headroom::absent());
+        }
+        if active.iter().any(|&d| {
+            self.routes[d]
+                .as_ref()
+                .is_some_and(|r| r.candidates.is_empty())
+        }) {
+            return Ok(Headroom::zero());
+        }
+        if mode == Mode::Nearest {
+            let o = self.offered();
+            let worst = o.max_link_util.max(o.max_site_util);
+            let lambda = if worst > 0.0 { 1.0 / worst } else { 0.0 };
+            return Ok(Headroom {
+                value: Some(lambda),
+                lower: lambda,
+                upper: lambda,
+                proven: true,
+            });
+        }
+        let ceiling = self.ceiling(&active, &required);
+        if ceiling.is_nan() || ceiling <= 0.0 {
+            return Ok(Headroom::zero());
+        }
+        let caps = super::headroom::lambda_caps(net.demands.len(), &active, &required, ceiling);
+        let (arc_ceiling, res_ceiling) = self.ceilings(&caps);
+        let res = Resources {
+            capacity: &self.caps,
+            ceilings: Some((&arc_ceiling, &res_ceiling)),
+        };
+        let build = |cols: &[Option<DemandRoutes>]| {
+            let mut model = Lp::new(true);
+            let index =
+                fixed::build_with(&mut model, net, cols, Mode::Steered, &caps, 0.0, None, &res);
+            let row_floor = super::headroom::tie_to_lambda(
+                &mut model, &index, &active, &required, &caps, ceiling,
+            );
+            (model, index, row_floor)
+        };
+        let mut cols = self.first_columns();
+        for _ in 0..MAX_ROUNDS {
+            let (model, index, _) = build(&cols.0);
+            let Ok(sol) = lp::solve(&model) else { break };
+            if !self.price_in(&mut cols, &index, &sol, &active) {
+                break;
+            }
+        }
+        let (model, index, row_floor) = build(&cols.0);
+        let real_arc: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
+        super::headroom::climb(&model, &row_floor, ceiling, &mut |sol, x| {
+            let lower = super::headroom::scaled_factor(
+                &index, x, &active, &required, &real_arc, &self.caps,
+            );
+            let (arc_price, res_price) = self.prices(&index, sol);
+            let worth: f64 = index
+                .arc_row
+                .iter()
+                .zip(&arc_price)
+                .chain(index.site_row.iter().zip(&res_price))
+                .filter_map(|(r, &y)| r.map(|r| model.rows[r].rhs * y))
+                .sum();
+            let mut leg_price = HashMap::new();
+            let priced: f64 = active
+                .iter()
+                .filter_map(|&d| {
+                    let (p, _) = self.cheapest(d, &arc_price, &res_price, &mut leg_price)?;
+                    Some(required[d] * p)
+                })
+                .sum();
+            (lower, solve::concurrent::quotient(worth, priced))
+        })
+    }
+
+    /// The a-priori ceiling of [`ChainRouting::headroom`]. O(Σ chain lengths + arcs +
+    /// resources).
+    fn ceiling(&self, active: &[usize], required: &[f64]) -> f64 {
+        let nf = self.nf();
+        let mut need = vec![0.0; nf];
+        let mut crossing = 0.0;
+        for &d in active {
+            let cum = self.ch.cumulative(&self.ch.chain[d]);
+            crossing += required[d] * cum.iter().copied().fold(f64::INFINITY, f64::min);
+            for (j, &f) in self.ch.chain[d].iter().enumerate() {
+                need[f] += required[d] * cum[j];
+            }
+        }
+        let arcs: f64 = self.net.arcs.iter().map(|a| a.capacity).sum();
+        let mut ceiling = arcs / crossing;
+        for (f, &n) in need.iter().enumerate() {
+            if n > 0.0 {
+                let cap: f64 = (0..self.net.sites.len())
+                    .map(|v| self.caps[v * nf + f])
+                    .sum();
+                ceiling = ceiling.min(cap / n);
+            }
+        }
+        ceiling
+    }
+
+    /// One least-length sequence per demand that has one (the columns column generation
+    /// starts from), with the sequences already in, per demand.
+    fn first_columns(&self) -> (Vec<Option<DemandRoutes>>, Vec<HashSet<Vec<usize>>>) {
+        let n = self.net.demands.len();
+        let mut seen: Vec<HashSet<Vec<usize>>> = vec![HashSet::new(); n];
+        let cols = (0..n)
+            .map(|d| {
+                self.layers[d].as_ref()?;
+                let candidates = match self.shortest(d) {
+                    Some(seq) => {
+                        let c = self.column(d, &seq);
+                        seen[d].insert(seq);
+                        vec![c]
+                    }
+                    None => Vec::new(),
+                };
+                Some(DemandRoutes {
+                    candidates,
+                    nearest: Vec::new(),
+                })
+            })
+            .collect();
+        (cols, seen)
+    }
+
+    /// One pricing round: for each demand of `which`, its cheapest sequence at `sol`'s
+    /// prices joins its columns when cheaper (by [`WALK_PRICE_TOL`]) than 1 and than every
+    /// column it has. Whether one joined. O(Σ_d k · S² + Σ columns' nonzeros).
+    fn price_in(
+        &self,
+        cols: &mut (Vec<Option<DemandRoutes>>, Vec<HashSet<Vec<usize>>>),
+        index: &fixed::FixedIndex,
+        sol: &LpSolution,
+        which: &[usize],
+    ) -> bool {
+        let (arc_price, res_price) = self.prices(index, sol);
+        let mut leg_price = HashMap::new();
+        let mut added = false;
+        for &d in which {
+            let Some(r) = cols.0[d].as_mut() else {
+                continue;
+            };
+            if r.candidates.is_empty() {
+                continue;
+            }
+            let present = r
+                .candidates
+                .iter()
+                .map(|c| price_of(c, &arc_price, &res_price))
+                .fold(1.0, f64::min);
+            let Some((p, seq)) = self.cheapest(d, &arc_price, &res_price, &mut leg_price) else {
+                continue;
+            };
+            if p < present - WALK_PRICE_TOL && !cols.1[d].contains(&seq) {
+                r.candidates.push(self.column(d, &seq));
+                cols.1[d].insert(seq);
+                added = true;
+            }
+        }
+        added
     }
 
     /// One outage evaluated under `mode`: cut-off demands (no sequence: no path at all, or
