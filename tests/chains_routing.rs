@@ -373,3 +373,47 @@ fn steered_buys_function_capacity_at_a_far_site() {
         assert!(run.stderr.contains("nearest"), "{}", run.stderr);
     }
 }
+
+/// With `matrices`, every (scenario, matrix) pair of a routed chain audit equals the audit
+/// of a file whose only demands are that matrix (the contract's "Several traffic
+/// matrices": each pair is the outage under that matrix alone). The quillhaven demo with a
+/// second, invented matrix of every demand's volume and required times 1.3.
+#[test]
+fn every_matrix_equals_the_file_with_that_matrix_alone() {
+    let path = common::fixture("demo-quillhaven-chains.json");
+    let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
+    let mut evening = doc["demands"].clone();
+    for d in evening.as_array_mut().unwrap() {
+        for k in ["volume", "required"] {
+            if let Some(x) = d[k].as_f64() {
+                d[k] = json!(x * 1.3);
+            }
+        }
+    }
+    doc["matrices"] = json!([{"id": "evening", "demands": evening}]);
+    for mode in ["nearest", "steered"] {
+        let args = ["--threads", "1", "--routing", mode];
+        let (all, own) =
+            common::json::with_each_matrix_alone(&doc.to_string(), &["evening"], &args);
+        let mut compared = 0;
+        for sc in scenarios(&all).iter().filter(|s| s["matrix"] == "evening") {
+            let failed = common::json::failed_of(sc);
+            let names: Vec<&str> = failed.iter().map(String::as_str).collect();
+            let alone = scenario(&own[0], &names);
+            for field in [
+                "served_required",
+                "throughput",
+                "delivered",
+                "max_link_utilisation",
+            ] {
+                assert_close(
+                    num(sc, field),
+                    num(alone, field),
+                    &format!("{mode} {failed:?} {field}"),
+                );
+            }
+            compared += 1;
+        }
+        assert_eq!(compared, scenarios(&own[0]).len(), "{mode}");
+    }
+}
