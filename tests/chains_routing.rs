@@ -400,12 +400,9 @@ fn every_matrix_equals_the_file_with_that_matrix_alone() {
             let failed = common::json::failed_of(sc);
             let names: Vec<&str> = failed.iter().map(String::as_str).collect();
             let alone = scenario(&own[0], &names);
-            for field in [
-                "served_required",
-                "throughput",
-                "delivered",
-                "max_link_utilisation",
-            ] {
+            // Not `delivered`: optima with the same served_required may deliver different
+            // amounts.
+            for field in ["served_required", "throughput", "max_link_utilisation"] {
                 assert_close(
                     num(sc, field),
                     num(alone, field),
