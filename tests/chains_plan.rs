@@ -303,11 +303,7 @@ fn files_without_functions_have_no_function_purchases() {
 #[test]
 fn what_chains_still_refuse_says_so() {
     let file = TempPath::with_text("chain-refuse", &short_by_three().to_string());
-    for args in [
-        vec!["audit", file.path(), "--routing", "steered"],
-        vec!["audit", file.path(), "--engine", "approx"],
-        vec!["plan", file.path(), "--routing", "steered"],
-    ] {
+    for args in [vec!["audit", file.path(), "--engine", "approx"]] {
         let run = redoubt(&args);
         assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
         for needle in ["`functions`", "redoubt plan", "--close"] {

@@ -111,8 +111,8 @@ pub(super) fn run(
     if net.chains.is_some() {
         for (given, flag) in [
             (
-                args.scenarios.routing.is_some(),
-                "--routing nearest|steered",
+                args.headroom && args.scenarios.routing.is_none(),
+                "--headroom",
             ),
             (
                 matches!(args.engine, crate::solve::Engine::Approx { .. }),
@@ -124,8 +124,9 @@ pub(super) fn run(
             }
         }
         if !args.scenarios.quiet {
-            let how = match args.engine {
-                crate::solve::Engine::Edge => "the layered edge LP of service chains",
+            let how = match (args.scenarios.routing, args.engine) {
+                (Some(_), _) => "the fixed routes of each chain's legs (routing as deployed)",
+                (None, crate::solve::Engine::Edge) => "the layered edge LP of service chains",
                 _ => {
                     "the layered walk engine of service chains (`--engine edge`: the layered \
                      edge LP)"
@@ -431,6 +432,13 @@ pub(super) fn finish_audit(
         .chains
         .as_ref()
         .map(|_| expand::chain_buy::Offer::of(net));
+    let steered = o.routed.map(|ra| routing::chain::Steered {
+        trees: &ra.model.trees,
+    });
+    let buyer: &dyn expand::chain_buy::ChainModel = match &steered {
+        Some(s) => s,
+        None => &expand::chain_buy::BestReroute,
+    };
     let closings = if o.close {
         Some(
             audit::par_map(
@@ -440,7 +448,7 @@ pub(super) fn finish_audit(
                 |&k| {
                     let (outage, e) = (&audit.outages[k], &audit.evaluations[k]);
                     match &offer {
-                        Some(offer) => expand::chain_buy::close(net, outage, e, offer),
+                        Some(offer) => expand::chain_buy::close_for(buyer, net, outage, e, offer),
                         None => expand::close_with(closer, net, outage, e, &cands),
                     }
                 },

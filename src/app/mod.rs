@@ -100,15 +100,17 @@ fn note(r: io::Result<()>) {
 }
 
 /// Refuses `what` on a network whose file lists `functions` (service chains), naming what
-/// takes such files so far: `check`, `audit` (best re-route, with `--close`, `--why`,
-/// `--matrix`, `--shard`, `--resume`), `merge`, `compare` and `plan` (best re-route).
+/// takes such files so far: `check`, `audit` (best re-route with `--close`, `--why`,
+/// `--matrix`, `--shard`, `--resume`; `--routing nearest|steered`), `merge`, `compare` and
+/// `plan` (best re-route or `--routing steered`).
 pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
     if net.chains.is_some() {
         return Err(Error::Usage(format!(
             "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
              `redoubt audit` (best re-route, with or without --close, --why, --matrix, --shard, \
-             --resume or --headroom; not --routing or --engine approx), `redoubt merge`, \
-             `redoubt compare` and `redoubt plan` (best re-route; not --routing) take so far"
+             --resume or --headroom; --routing nearest|steered, with --headroom, and --close \
+             under steered; not --engine approx), `redoubt merge`, `redoubt compare`, \
+             `redoubt worst` and `redoubt plan` (best re-route or --routing steered) take so far"
         )));
     }
     Ok(())

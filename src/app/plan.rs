@@ -35,9 +35,6 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
         report::file::check_output("--apply", apply, &[input])?;
     }
     let (net, text) = read_network(input)?;
-    if args.scenarios.routing.is_some() {
-        super::chains_refused(&net, "plan --routing")?;
-    }
     let list = scenario_list(&net, &args.scenarios, None)?;
     let opts = run_options(&args.scenarios, err);
     match args.scenarios.routing {

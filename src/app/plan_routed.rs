@@ -32,7 +32,16 @@ pub(super) fn run(
 ) -> Result<Outcome> {
     let Routed { net, text, mode } = routed;
     let ra = routing::run(net, scenarios, mode, opts, false)?;
-    let plan = routing::expand::plan(net, &ra, goal, opts)?;
+    // Service chains buy function capacity per site for the steered model.
+    let plan = match net.chains {
+        Some(_) => {
+            let model = routing::chain::Steered {
+                trees: &ra.model.trees,
+            };
+            expand::chain_buy::plan_for(&model, net, &ra.audit, goal, opts)?
+        }
+        None => routing::expand::plan(net, &ra, goal, opts)?,
+    };
     let doc = PlanReport {
         net,
         audit: &ra.audit,

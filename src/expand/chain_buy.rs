@@ -168,15 +168,51 @@ pub fn with_units(net: &Network, offer: &Offer, units: &[f64]) -> Network {
     net.with_added_functions(&offer.per_site(net, units))
 }
 
-/// The verified evaluation of `outage` on `net` with the purchase `units`: one
-/// [`chain::evaluate`].
+/// The model purchases of function capacity are made for: the best re-route's layered LP
+/// ([`BestReroute`]) or a routing as deployed (`crate::routing::chain`). Closings and
+/// plans read it only through these two methods.
+pub trait ChainModel: Sync {
+    /// The verified evaluation of `outage` on `net` (the purchase already applied).
+    fn evaluate(&self, net: &Network, outage: &Outage) -> Result<Evaluation>;
+
+    /// Builds the served_required model of `at.outage` into `model` with the purchase
+    /// variables `at.buy` (per slot of `at.offer`, already in `model`) adding to their
+    /// function rows, the objective of its own variables 0; returns the variables whose
+    /// sum is served_required.
+    fn served_model(&self, model: &mut Lp, at: &BuyAt<'_>) -> Vec<usize>;
+}
+
+/// One outage of `net` a served model with purchases is built for: the offer and its
+/// purchase variables (per slot, already in the model).
+pub struct BuyAt<'a> {
+    pub net: &'a Network,
+    pub outage: &'a Outage,
+    pub offer: &'a Offer,
+    pub buy: &'a [usize],
+}
+
+/// The best re-route of service chains: [`chain::evaluate`] and the layered LP.
+pub struct BestReroute;
+
+impl ChainModel for BestReroute {
+    fn evaluate(&self, net: &Network, outage: &Outage) -> Result<Evaluation> {
+        chain::evaluate(net, outage)
+    }
+
+    fn served_model(&self, model: &mut Lp, at: &BuyAt<'_>) -> Vec<usize> {
+        served_model(model, at.net, at.outage, at.offer, at.buy)
+    }
+}
+
+/// The verified evaluation of `outage` on `net` with the purchase `units` under `m`.
 fn evaluate_with(
+    m: &dyn ChainModel,
     net: &Network,
     offer: &Offer,
     outage: &Outage,
     units: &[f64],
 ) -> Result<Evaluation> {
-    chain::evaluate(&with_units(net, offer, units), outage)
+    m.evaluate(&with_units(net, offer, units), outage)
 }
 
 /// Adds one purchase variable per slot of `offer` to `model` (bounds `[0, room]` in
@@ -387,18 +423,19 @@ fn finish_phases(
 /// slot's limit) while the evaluation misses `best` by [`reaches`], at most
 /// [`TOP_UP_ROUNDS`] times; with the last evaluation.
 fn top_up(
+    m: &dyn ChainModel,
     net: &Network,
     offer: &Offer,
     outage: &Outage,
     best: f64,
     mut units: Vec<f64>,
 ) -> Result<(Vec<f64>, Evaluation)> {
-    let mut after = evaluate_with(net, offer, outage, &units)?;
+    let mut after = evaluate_with(m, net, offer, outage, &units)?;
     for _ in 0..TOP_UP_ROUNDS {
         if reaches(&after, best) || !raise(offer, &mut units) {
             break;
         }
-        after = evaluate_with(net, offer, outage, &units)?;
+        after = evaluate_with(m, net, offer, outage, &units)?;
     }
     Ok((units, after))
 }
@@ -422,6 +459,7 @@ fn raise(offer: &Offer, units: &mut [f64]) -> bool {
 /// directions whose capacity limits it. Snapped to the whole required demand within
 /// [`TOL`], never below `eval`'s served value. One [`chain::evaluate`].
 pub fn best_reachable(
+    m: &dyn ChainModel,
     net: &Network,
     outage: &Outage,
     offer: &Offer,
@@ -431,7 +469,7 @@ pub fn best_reachable(
     let most: Vec<f64> = (0..offer.slots.len())
         .map(|s| offer.room(s, &alive))
         .collect();
-    let e = evaluate_with(net, offer, outage, &most)?;
+    let e = evaluate_with(m, net, offer, outage, &most)?;
     let arcs = binding(e.arc_price.iter().copied().enumerate());
     let required = eval.surviving_required;
     let best = if (required - e.served_required).abs() <= TOL * required.max(1.0) {
@@ -455,11 +493,22 @@ pub fn close(
     eval: &Evaluation,
     offer: &Offer,
 ) -> Result<Option<Closing>> {
+    close_for(&BestReroute, net, outage, eval, offer)
+}
+
+/// [`close`] for the model `m`.
+pub fn close_for(
+    m: &dyn ChainModel,
+    net: &Network,
+    outage: &Outage,
+    eval: &Evaluation,
+    offer: &Offer,
+) -> Result<Option<Closing>> {
     if eval.shortfall <= 0.0 {
         return Ok(None);
     }
     let required = eval.surviving_required;
-    let (best, binding_arcs) = best_reachable(net, outage, offer, eval)?;
+    let (best, binding_arcs) = best_reachable(m, net, outage, offer, eval)?;
     let scale = required.max(1.0);
     if best <= eval.served_required + TOL * scale {
         let mut c = Closing::nothing_to_buy(net, eval, binding_arcs);
@@ -469,18 +518,31 @@ pub fn close(
     let alive = outage.site_alive(net);
     let mut model = Lp::new(false);
     let buy = buy_vars(&mut model, offer, &alive, 1.0);
-    let served = served_model(&mut model, net, outage, offer, &buy);
+    let at = BuyAt {
+        net,
+        outage,
+        offer,
+        buy: &buy,
+    };
+    let served = m.served_model(&mut model, &at);
     served_at_least(&mut model, &served, target(best, required));
     let first = lp::solve(&model)?;
     let dual_bound = model.dual_objective(&first);
     let (sol, _) = finish_phases(&mut model, &buy, offer, first, true)?;
     let raw = units_of(offer, &buy, &sol.x, scale);
     let tidy = plain(offer, &raw);
-    let after = evaluate_with(net, offer, outage, &tidy)?;
+    let after = evaluate_with(m, net, offer, outage, &tidy)?;
     let (units, after) = if reaches(&after, best) {
         (tidy, after)
     } else {
-        top_up(net, offer, outage, best, snap_up(&offer.cands, raw, None))?
+        top_up(
+            m,
+            net,
+            offer,
+            outage,
+            best,
+            snap_up(&offer.cands, raw, None),
+        )?
     };
     Ok(Some(Closing {
         cost: offer.cands.cost_of(&units),
@@ -514,6 +576,17 @@ pub fn close(
 /// plus one [`chain::evaluate`] per gainable outage per re-solve (rounds of step 3 and
 /// one per bought slot in step 4).
 pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Result<Plan> {
+    plan_for(&BestReroute, net, audit, goal, opts)
+}
+
+/// [`plan`] for the model `m` (`audit` evaluated by it).
+pub fn plan_for(
+    m: &dyn ChainModel,
+    net: &Network,
+    audit: &Audit,
+    goal: Goal,
+    opts: RunOptions,
+) -> Result<Plan> {
     let offer = Offer::of(net);
     let n_out = audit.outages.len();
     let eval = |k: usize| &audit.evaluations[k];
@@ -525,7 +598,7 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
             if eval(k).shortfall <= 0.0 {
                 return Ok(eval(k).served_required);
             }
-            Ok(best_reachable(net, &audit.outages[k], &offer, eval(k))?.0)
+            Ok(best_reachable(m, net, &audit.outages[k], &offer, eval(k))?.0)
         },
     )?;
     let gainable: Vec<usize> = (0..n_out)
@@ -542,12 +615,21 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
     let (mut units, rounds) = if gainable.is_empty() {
         (vec![0.0; offer.slots.len()], Vec::new())
     } else {
-        master(net, audit, &offer, &gainable, &bests, &multiplicity, goal)?
+        master(
+            m,
+            net,
+            audit,
+            &offer,
+            &gainable,
+            &bests,
+            &multiplicity,
+            goal,
+        )?
     };
     let verify = |units: &[f64], which: &[usize]| -> Result<Vec<Evaluation>> {
         let planned = with_units(net, &offer, units);
         audit::par_map(which, opts, "verifying plan", |&k| {
-            chain::evaluate(&planned, &audit.outages[k])
+            m.evaluate(&planned, &audit.outages[k])
         })
     };
     // The plainer purchase when it serves as much: every gainable outage at its best
@@ -659,7 +741,9 @@ pub fn plan(net: &Network, audit: &Audit, goal: Goal, opts: RunOptions) -> Resul
 /// layered model per outage, solved for `goal` in lexicographic phases. Returns the
 /// purchase per slot (as the LP left it, noise dropped) and the one round. Refused with a usage error past
 /// [`TOTAL_MAX_VARS`] variables.
+#[allow(clippy::too_many_arguments)]
 fn master(
+    m: &dyn ChainModel,
     net: &Network,
     audit: &Audit,
     offer: &Offer,
@@ -681,13 +765,13 @@ fn master(
     let buy = buy_vars(&mut model, offer, &alive_any, cost_weight);
     let mut served = Vec::with_capacity(gainable.len());
     for &k in gainable {
-        served.push(served_model(
-            &mut model,
+        let at = BuyAt {
             net,
-            &audit.outages[k],
+            outage: &audit.outages[k],
             offer,
-            &buy,
-        ));
+            buy: &buy,
+        };
+        served.push(m.served_model(&mut model, &at));
         if model.num_vars() > TOTAL_MAX_VARS {
             return Err(Error::Usage(format!(
                 "plan: the purchase model over {} outages needs more than {TOTAL_MAX_VARS} \

@@ -32,7 +32,8 @@ pub struct FixedIndex {
     pub first_var: usize,
     /// Per arc: its capacity row, when some variable loads it.
     pub arc_row: Vec<Option<usize>>,
-    /// Per site: its processing row, when some variable is processed there.
+    /// Per processing resource (site, or (site, function) with chains): its row, when
+    /// some variable is processed there.
     pub site_row: Vec<Option<usize>>,
     /// Per arc / site: the presolve lowered its row below the real capacity (the real
     /// capacity cannot bind, so a price on that row is no price of the capacity).
@@ -87,6 +88,42 @@ pub fn build(
     obj: f64,
     add: Option<&[Option<usize>]>,
 ) -> FixedIndex {
+    let sites: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    let res = Resources {
+        capacity: &sites,
+        ceilings: None,
+    };
+    build_with(lp, net, routes, mode, cap, obj, add, &res)
+}
+
+/// The processing resources a fixed-route model's processing rows stand for: the sites
+/// (their `processing`) for a file without `functions`, each (site, function) for service
+/// chains ([`super::chain`]); a [`super::Choice`]'s `processing` indexes them.
+pub struct Resources<'a> {
+    /// Per resource: its capacity.
+    pub capacity: &'a [f64],
+    /// Per arc and per resource: what every route the model could ever hold (not only the
+    /// routes given) can put on the row, when the routes given are a subset of them
+    /// (column generation). Rows are then lowered to these ceilings instead of to what the
+    /// given routes reach, so the lowered rows stay implied for every route.
+    pub ceilings: Option<(&'a [f64], &'a [f64])>,
+}
+
+/// [`build`] over the processing resources `res`: one processing row per resource some
+/// route loads, of capacity `res.capacity` (offset by `add[r]` when given).
+/// O(Σ candidates · (legs' arcs + processing entries)).
+#[allow(clippy::too_many_arguments)]
+pub fn build_with(
+    lp: &mut Lp,
+    net: &Network,
+    routes: &[Option<DemandRoutes>],
+    mode: Mode,
+    cap: &[f64],
+    obj: f64,
+    add: Option<&[Option<usize>]>,
+    res: &Resources<'_>,
+) -> FixedIndex {
+    let n_res = res.capacity.len();
     let first_var = lp.num_vars();
     let mut demand_vars = vec![Vec::new(); net.demands.len()];
     let mut var_arcs = Vec::new();
@@ -101,11 +138,11 @@ pub fn build(
             Mode::Nearest => {
                 let w = 1.0 / r.nearest.len() as f64;
                 let mut arcs: Vec<(usize, f64)> = Vec::new();
-                let mut sites = Vec::new();
+                let mut sites: Vec<(usize, f64)> = Vec::new();
                 for &c in &r.nearest {
                     let ch = &r.candidates[c];
                     arcs = super::merge(&arcs, &ch.arcs, w);
-                    sites.push((ch.site.0, w));
+                    sites = super::merge(&sites, &ch.processing, w);
                 }
                 demand_vars[d].push(lp.add_var(0.0, cap[d], obj));
                 var_arcs.push(arcs);
@@ -116,7 +153,7 @@ pub fn build(
                 for ch in &r.candidates {
                     demand_vars[d].push(lp.add_var(0.0, cap[d], obj));
                     var_arcs.push(ch.arcs.clone());
-                    var_sites.push(vec![(ch.site.0, 1.0)]);
+                    var_sites.push(ch.processing.clone());
                     var_demand.push(d);
                 }
                 if demand_vars[d].len() > 1 {
@@ -127,7 +164,7 @@ pub fn build(
         }
     }
     let mut arc_terms: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.arcs.len()];
-    let mut site_terms: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.sites.len()];
+    let mut site_terms: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n_res];
     for (j, (pa, ps)) in var_arcs.iter().zip(&var_sites).enumerate() {
         for &(a, c) in pa {
             arc_terms[a].push((first_var + j, c));
@@ -158,7 +195,7 @@ pub fn build(
             if t.is_empty() {
                 return None;
             }
-            let most = reach(&t);
+            let most = res.ceilings.map_or_else(|| reach(&t), |(arcs, _)| arcs[a]);
             let rhs = if most < arc.capacity {
                 arc_lowered[a] = true;
                 most
@@ -168,7 +205,7 @@ pub fn build(
             Some(lp.add_row(t, Sense::Le, rhs))
         })
         .collect();
-    let mut site_lowered = vec![false; net.sites.len()];
+    let mut site_lowered = vec![false; n_res];
     let site_row = site_terms
         .into_iter()
         .enumerate()
@@ -176,11 +213,11 @@ pub fn build(
             if t.is_empty() {
                 return None;
             }
-            let mut rhs = net.sites[s].processing;
+            let mut rhs = res.capacity[s];
             if let Some(a) = add.and_then(|a| a[s]) {
                 t.push((a, -1.0));
             } else {
-                let most = reach(&t);
+                let most = res.ceilings.map_or_else(|| reach(&t), |(_, r)| r[s]);
                 if most < rhs {
                     site_lowered[s] = true;
                     rhs = most;

@@ -61,6 +61,9 @@ pub fn of_outage(
 ) -> Result<Headroom> {
     let net = net.view(outage.matrix);
     let trees = model.trees.for_outage(net, outage);
+    if net.chains.is_some() {
+        return super::chain::ChainRouting::new(net, &trees, outage).headroom(model.mode);
+    }
     let routes = super::routes(net, &trees, &super::processing_sites(net, outage));
     headroom(net, &routes, model.mode)
 }
@@ -162,39 +165,38 @@ fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
              required {total_required})"
         )));
     }
-    let caps: Vec<f64> = (0..net.demands.len())
-        .map(|d| {
-            if active.binary_search(&d).is_ok() {
-                ceiling * required[d]
-            } else {
-                0.0
-            }
-        })
-        .collect();
+    let caps = lambda_caps(net.demands.len(), active, &required, ceiling);
     let mut model = lp::Lp::new(true);
     let index = fixed::build(&mut model, net, routes, Mode::Steered, &caps, 0.0, None);
-    let lambda = model.add_var(0.0, ceiling, 1.0);
-    model.magnitude[lambda] = ceiling;
-    let first_tie = model.rows.len();
-    for &d in active {
-        let mut coeffs: Vec<(usize, f64)> =
-            index.demand_vars[d].iter().map(|&v| (v, 1.0)).collect();
-        coeffs.push((lambda, -required[d]));
-        model.add_row(coeffs, Sense::Eq, 0.0);
-    }
-    let mut row_floor = vec![0.0; model.rows.len()];
-    for (r, &d) in active.iter().enumerate() {
-        row_floor[first_tie + r] = caps[d];
-    }
-    let var_floor = model.upper.clone();
+    let row_floor = tie_to_lambda(&mut model, &index, active, &required, &caps, ceiling);
     let real_arc: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
     let real_site: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    climb(&model, &row_floor, ceiling, &mut |sol, x| {
+        let lower = scaled_factor(&index, x, active, &required, &real_arc, &real_site);
+        let upper = quotient(&model, &index, &sol.duals, routes, active, &required);
+        (lower, upper)
+    })
+}
 
+/// A headroom certificate's bounds from one solution and its clamped variables.
+pub(super) type Bounds<'a> = dyn FnMut(&lp::LpSolution, &[f64]) -> (f64, f64) + 'a;
+
+/// The λ-LP `model` (rows' residual floors `row_floor`) solved by each backend of
+/// [`ladder`] in turn until `bounds` (per solution and its clamped variables: a lower
+/// bound, and an upper bound capped here at `ceiling`) meet ([`Headroom::narrow`]). Fails
+/// only when every backend fails. Cost: one LP solve per attempt plus `bounds`.
+pub(super) fn climb(
+    model: &lp::Lp,
+    row_floor: &[f64],
+    ceiling: f64,
+    bounds: &mut Bounds<'_>,
+) -> Result<Headroom> {
+    let var_floor = model.upper.clone();
     let mut best = Headroom::open(ceiling);
     let mut errors = Vec::new();
     let mut solved = false;
     for backend in ladder().iter() {
-        let sol = match backend.solve(&model) {
+        let sol = match backend.solve(model) {
             Ok(s) => s,
             Err(e) => {
                 errors.push(format!("{}: {e}", backend.name()));
@@ -202,15 +204,14 @@ fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
             }
         };
         solved = true;
-        let residual = verify::residual(&model, &sol.x, &row_floor, &var_floor);
+        let residual = verify::residual(model, &sol.x, row_floor, &var_floor);
         let x: Vec<f64> = sol
             .x
             .iter()
             .map(|&v| if v.is_finite() { v.max(0.0) } else { 0.0 })
             .collect();
-        let lower = scaled_factor(&index, &x, active, &required, &real_arc, &real_site);
-        let upper = quotient(&model, &index, &sol.duals, routes, active, &required).min(ceiling);
-        if best.narrow(lower, upper, residual) {
+        let (lower, upper) = bounds(&sol, &x);
+        if best.narrow(lower, upper.min(ceiling), residual) {
             break;
         }
     }
@@ -220,10 +221,48 @@ fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
     Ok(best)
 }
 
+/// Per demand, the cap of its variables in the λ-LP: `ceiling · required` for the active
+/// demands (ascending), 0 for the others. O(demands · log active).
+pub(super) fn lambda_caps(n: usize, active: &[usize], required: &[f64], ceiling: f64) -> Vec<f64> {
+    (0..n)
+        .map(|d| {
+            if active.binary_search(&d).is_ok() {
+                ceiling * required[d]
+            } else {
+                0.0
+            }
+        })
+        .collect()
+}
+
+/// Adds λ (in `[0, ceiling]`, objective 1) to the fixed-route model `index` in `model`
+/// and ties each active demand's variables to `λ · required_d`; returns each row's floor
+/// for the residual (0, and `caps[d]` on the tie rows). O(active demands' variables).
+pub(super) fn tie_to_lambda(
+    model: &mut lp::Lp,
+    index: &fixed::FixedIndex,
+    active: &[usize],
+    required: &[f64],
+    caps: &[f64],
+    ceiling: f64,
+) -> Vec<f64> {
+    let lambda = model.add_var(0.0, ceiling, 1.0);
+    model.magnitude[lambda] = ceiling;
+    let mut row_floor = vec![0.0; model.rows.len()];
+    for &d in active {
+        let mut coeffs: Vec<(usize, f64)> =
+            index.demand_vars[d].iter().map(|&v| (v, 1.0)).collect();
+        coeffs.push((lambda, -required[d]));
+        model.add_row(coeffs, Sense::Eq, 0.0);
+        row_floor.push(caps[d]);
+    }
+    row_floor
+}
+
 /// The lower bound of [`steered`]: `s · min_d Σ_v x_{d,v} / required_d` with `s` the
 /// worst overload of the allocation `x` (clamped at 0) against the real capacities,
 /// shrunk by a few ulps so the scaled loads stay within them. O(nonzeros).
-fn scaled_factor(
+pub(super) fn scaled_factor(
     index: &fixed::FixedIndex,
     x: &[f64],
     active: &[usize],

@@ -20,6 +20,7 @@
 //! the same outage steered ≥ nearest (nearest's shares are one steered choice). Every
 //! function here is a pure function of its inputs, so results do not depend on threads.
 
+pub mod chain;
 pub mod expand;
 pub mod fixed;
 pub mod headroom;
@@ -64,12 +65,18 @@ pub type ArcLoad = Vec<(usize, f64)>;
 /// One site at which a demand may be processed, with its fixed routes.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Choice {
+    /// The processing site (a file with `functions`: the demand's origin; its sites are
+    /// in `processing`).
     pub site: SiteIdx,
-    /// `dist(o, site) + dist(site, t)`.
+    /// `dist(o, site) + dist(site, t)` (with `functions`: the total metric of the legs).
     pub length: u64,
     /// Per unit of the demand: load on each arc of both legs (sorted by arc; an arc on both
     /// legs carries the sum).
     pub arcs: ArcLoad,
+    /// Per unit of the demand: load on each processing resource ([`fixed::Resources`]),
+    /// sorted: `(site, 1)` without `functions`; with them `(site · functions + function,
+    /// cumulative gain entering it)` for each step of the chain.
+    pub processing: ArcLoad,
 }
 
 /// The routes of one surviving demand.
@@ -129,6 +136,7 @@ pub fn routes(net: &Network, trees: &Trees, eligible: &[bool]) -> Vec<Option<Dem
                     site: v,
                     length: d1.saturating_add(d2),
                     arcs,
+                    processing: vec![(v.0, 1.0)],
                 });
             }
             let best = candidates.iter().map(|c| c.length).min();
@@ -168,6 +176,12 @@ pub struct Offered {
     /// Links with a direction above capacity (link order) and sites above capacity.
     pub overloaded_links: Vec<LinkIdx>,
     pub overloaded_sites: Vec<SiteIdx>,
+    /// With `functions`: per site, per function, the offered load entering it and its
+    /// utilisation (then `site_load` is each site's sum over its functions, `site_util`
+    /// its largest function utilisation, and a site is overloaded when one of its
+    /// functions is). Empty without `functions`.
+    pub function_load: Vec<Vec<f64>>,
+    pub function_util: Vec<Vec<f64>>,
 }
 
 /// Load over capacity; 0 without load, `INFINITY` for a load on capacity 0. Offered loads
@@ -189,8 +203,21 @@ fn overloaded(load: f64, cap: f64) -> bool {
 
 /// The offered load of `routes` (required, nearest shares). O(Σ nearest routes' arcs).
 pub fn offered(net: &Network, routes: &[Option<DemandRoutes>]) -> Offered {
+    let caps: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
+    offered_on(net, routes, &caps, 1)
+}
+
+/// [`offered`] over the processing resources of capacities `caps` (`per_site` resources
+/// per site, in site order: the sites themselves when 1, else each site's functions).
+/// O(Σ nearest routes' arcs + arcs + resources).
+pub(crate) fn offered_on(
+    net: &Network,
+    routes: &[Option<DemandRoutes>],
+    caps: &[f64],
+    per_site: usize,
+) -> Offered {
     let mut arc_load = vec![0.0; net.arcs.len()];
-    let mut site_load = vec![0.0; net.sites.len()];
+    let mut res_load = vec![0.0; caps.len()];
     for (dem, r) in net.demands.iter().zip(routes) {
         let Some(r) = r else { continue };
         if r.nearest.is_empty() {
@@ -199,7 +226,9 @@ pub fn offered(net: &Network, routes: &[Option<DemandRoutes>]) -> Offered {
         let w = dem.required / r.nearest.len() as f64;
         for &c in &r.nearest {
             let ch = &r.candidates[c];
-            site_load[ch.site] += w;
+            for &(v, f) in &ch.processing {
+                res_load[v] += w * f;
+            }
             for &(a, f) in &ch.arcs {
                 arc_load[a] += w * f;
             }
@@ -210,10 +239,10 @@ pub fn offered(net: &Network, routes: &[Option<DemandRoutes>]) -> Offered {
         .zip(&net.arcs)
         .map(|(&l, a)| utilisation(l, a.capacity))
         .collect();
-    let site_util: Vec<f64> = site_load
+    let res_util: Vec<f64> = res_load
         .iter()
-        .zip(&net.sites)
-        .map(|(&l, s)| utilisation(l, s.processing))
+        .zip(caps)
+        .map(|(&l, &c)| utilisation(l, c))
         .collect();
     let mut overloaded_links: Vec<LinkIdx> = arc_load
         .iter()
@@ -222,20 +251,45 @@ pub fn offered(net: &Network, routes: &[Option<DemandRoutes>]) -> Offered {
         .map(|(_, a)| a.link)
         .collect();
     overloaded_links.dedup();
-    let overloaded_sites = (0..net.sites.len())
-        .filter(|&v| overloaded(site_load[v], net.sites[v].processing))
+    let max = |u: &[f64]| u.iter().copied().fold(0.0, f64::max);
+    let n = net.sites.len();
+    let rows = |x: &[f64]| -> Vec<Vec<f64>> {
+        (0..n)
+            .map(|v| x[v * per_site..(v + 1) * per_site].to_vec())
+            .collect()
+    };
+    let (site_load, site_util, function_load, function_util) = if per_site == 1 {
+        (res_load.clone(), res_util.clone(), Vec::new(), Vec::new())
+    } else {
+        let (fl, fu) = (rows(&res_load), rows(&res_util));
+        (
+            fl.iter().map(|r| r.iter().sum()).collect(),
+            fu.iter().map(|r| max(r)).collect(),
+            fl,
+            fu,
+        )
+    };
+    let overloaded_sites = (0..n)
+        .filter(|&v| {
+            let r = v * per_site..(v + 1) * per_site;
+            res_load[r.clone()]
+                .iter()
+                .zip(&caps[r])
+                .any(|(&l, &c)| overloaded(l, c))
+        })
         .map(SiteIdx)
         .collect();
-    let max = |u: &[f64]| u.iter().copied().fold(0.0, f64::max);
     Offered {
         max_link_util: max(&arc_util),
-        max_site_util: max(&site_util),
+        max_site_util: max(&res_util),
         arc_load,
         site_load,
         arc_util,
         site_util,
         overloaded_links,
         overloaded_sites,
+        function_load,
+        function_util,
     }
 }
 
@@ -259,7 +313,36 @@ fn verify_fixed(
     at_stake: f64,
     ladder: &[&dyn lp::Backend],
 ) -> Result<solve::Verified> {
-    let (n_arcs, n_sites) = (net.arcs.len(), net.sites.len());
+    let sites = net.sites.len();
+    verify_fixed_with(
+        net,
+        model,
+        index,
+        at_stake,
+        ladder,
+        sites,
+        &fixed::weak_dual_bound,
+    )
+}
+
+/// The upper bound of a fixed-route model from one backend's solution (valid for any row
+/// prices).
+pub(crate) type UpperBound<'a> = dyn Fn(&lp::Lp, &lp::LpSolution) -> f64 + 'a;
+
+/// [`verify_fixed`] over `n_sites` processing resources ([`fixed::Resources`]) with the
+/// upper bound `upper` (a model holding only some of the routes, as column generation
+/// does, needs a bound that prices every route, not only the model's). The site vectors
+/// of the result are per resource.
+pub(crate) fn verify_fixed_with(
+    net: &Network,
+    model: &lp::Lp,
+    index: &fixed::FixedIndex,
+    at_stake: f64,
+    ladder: &[&dyn lp::Backend],
+    n_sites: usize,
+    upper: &UpperBound<'_>,
+) -> Result<solve::Verified> {
+    let n_arcs = net.arcs.len();
     let allocation_of = |x: &[f64], served: f64| {
         let (arc_load, site_load) = index.loads(x, n_arcs, n_sites);
         solve::verify::Repaired {
@@ -310,7 +393,7 @@ fn verify_fixed(
         let (lower, x) = solve::verify::packing_lower(model, &sol.x)
             .unwrap_or_else(|| (0.0, vec![0.0; sol.x.len()]));
         let lower = lower.min(at_stake);
-        let upper = fixed::weak_dual_bound(model, &sol).min(at_stake).max(0.0);
+        let upper = upper(model, &sol).min(at_stake).max(0.0);
         if upper < best_upper {
             best_upper = upper;
             best_duals = sol.duals;
@@ -405,6 +488,14 @@ pub struct Routed {
 pub fn evaluate(net: &Network, base: &Trees, outage: &Outage, mode: Mode) -> Result<Routed> {
     let net = net.view(outage.matrix);
     let trees = base.for_outage(net, outage);
+    if net.chains.is_some() {
+        let cr = chain::ChainRouting::new(net, &trees, outage);
+        return Ok(Routed {
+            eval: cr.evaluate(outage, mode)?,
+            offered: cr.offered(),
+            trees_recomputed: trees.recomputed,
+        });
+    }
     let routes = routes(net, &trees, &processing_sites(net, outage));
     Ok(Routed {
         eval: evaluate_routes(net, outage, &routes, mode)?,
@@ -579,6 +670,9 @@ pub fn beside(
     let offered_of = |o: &Outage| {
         let view = net.view(o.matrix);
         let trees = model.trees.for_outage(view, o);
+        if view.chains.is_some() {
+            return chain::ChainRouting::new(view, &trees, o).offered();
+        }
         offered(view, &routes(view, &trees, &processing_sites(view, o)))
     };
     let offered: Vec<Offered> = audit::par_map(outages, opts, "routing", |o| Ok(offered_of(o)))?;
@@ -662,6 +756,10 @@ impl Evaluator for Model {
     fn evaluate(&self, net: &Network, outage: &Outage, _: Option<&Warm>) -> Result<Evaluated> {
         let net = net.view(outage.matrix);
         let trees = self.trees.for_outage(net, outage);
+        if net.chains.is_some() {
+            let cr = chain::ChainRouting::new(net, &trees, outage);
+            return Ok(Evaluated::cold(cr.evaluate(outage, self.mode)?));
+        }
         let routes = routes(net, &trees, &processing_sites(net, outage));
         Ok(Evaluated::cold(evaluate_routes(
             net, outage, &routes, self.mode,

@@ -389,3 +389,206 @@ pub fn without(t: &RNet, sites: &[usize], links: &[usize]) -> RNet {
             .collect(),
     }
 }
+
+// ---------------------------------------------------------------------------------------
+// Routing as deployed on chain networks: a brute-force reference.
+// ---------------------------------------------------------------------------------------
+
+/// One sequence of the routed reference: its length, per-unit arc loads and steps (site,
+/// function, volume entering per origin unit).
+type RefRoute = (u64, Vec<f64>, Vec<(usize, usize, f64)>);
+
+/// Routing as deployed on `t` with link metrics `metric` (per link), from the contract's
+/// "Routing as deployed" and "Service chains" sections, written independently of the
+/// product: leg distances from petgraph's `dijkstra` (one run per source over the surviving
+/// arcs), the per-hop equal split computed here, *every* sequence of sites `v1 … vk`
+/// enumerated (no layered shortest path), and the fixed-route LP on microlp (nearest: one
+/// variable per demand spread equally over its least-length sequences; steered: one
+/// variable per demand and sequence). Returns served_required (throughput with
+/// `by_volume`).
+pub fn reference_routed(
+    t: &RNet,
+    metric: &[u64],
+    failed_site: Option<usize>,
+    failed_link: Option<usize>,
+    steered: bool,
+    by_volume: bool,
+) -> f64 {
+    use petgraph::algo::dijkstra;
+    use petgraph::graph::{DiGraph, NodeIndex};
+    let n = t.capacity.len();
+    let up = |v: usize| failed_site != Some(v);
+    // Surviving arcs: (from, to, capacity, metric).
+    let mut arcs: Vec<(usize, usize, f64, u64)> = Vec::new();
+    for (l, &(a, b, c, one)) in t.links.iter().enumerate() {
+        if failed_link == Some(l) || !up(a) || !up(b) {
+            continue;
+        }
+        arcs.push((a, b, c, metric[l]));
+        if !one {
+            arcs.push((b, a, c, metric[l]));
+        }
+    }
+    let mut g: DiGraph<(), u64> = DiGraph::new();
+    let nodes: Vec<NodeIndex> = (0..n).map(|_| g.add_node(())).collect();
+    for &(a, b, _, m) in &arcs {
+        g.add_edge(nodes[a], nodes[b], m);
+    }
+    // dist[u][v]: least metric u → v (None: unreachable).
+    let dist: Vec<Vec<Option<u64>>> = (0..n)
+        .map(|u| {
+            let d = dijkstra(&g, nodes[u], None, |e| *e.weight());
+            (0..n).map(|v| d.get(&nodes[v]).copied()).collect()
+        })
+        .collect();
+    // One unit u → v split equally over the next hops at every node, per arc.
+    let leg = |u: usize, v: usize| -> Vec<f64> {
+        let mut load = vec![0.0; arcs.len()];
+        let mut at = vec![0.0; n];
+        at[u] = 1.0;
+        let mut order: Vec<usize> = (0..n).filter(|&w| dist[w][v].is_some()).collect();
+        order.sort_by_key(|&w| std::cmp::Reverse(dist[w][v]));
+        for w in order {
+            if w == v || at[w] == 0.0 {
+                continue;
+            }
+            let next: Vec<usize> = (0..arcs.len())
+                .filter(|&k| {
+                    arcs[k].0 == w
+                        && dist[arcs[k].1][v].is_some_and(|dn| Some(dn + arcs[k].3) == dist[w][v])
+                })
+                .collect();
+            let share = at[w] / next.len() as f64;
+            for k in next {
+                load[k] += share;
+                at[arcs[k].1] += share;
+            }
+        }
+        load
+    };
+    let nf = t.gains.len();
+    let runs = |f: usize| -> Vec<usize> {
+        (0..n)
+            .filter(|&v| up(v) && t.capacity[v][f] > 0.0)
+            .collect()
+    };
+    let mut pv = ProblemVariables::new();
+    let mut arc_use = vec![Expression::from(0.0); arcs.len()];
+    let mut fn_use = vec![vec![Expression::from(0.0); nf]; n];
+    let mut objective = Expression::from(0.0);
+    let mut demand_rows = Vec::new();
+    for (from, to, volume, required, chain) in &t.demands {
+        if !up(*from) || !up(*to) {
+            continue;
+        }
+        let cap = if by_volume { *volume } else { *required };
+        // Every sequence: the cartesian product of the sites running each step.
+        let mut seqs: Vec<Vec<usize>> = vec![vec![*from]];
+        for &f in chain {
+            seqs = seqs
+                .into_iter()
+                .flat_map(|s| {
+                    runs(f).into_iter().map(move |v| {
+                        let mut s = s.clone();
+                        s.push(v);
+                        s
+                    })
+                })
+                .collect();
+        }
+        for s in &mut seqs {
+            s.push(*to);
+        }
+        // Length (None when a leg is unreachable), per-unit arc and function loads.
+        let mut routes: Vec<RefRoute> = Vec::new();
+        for s in &seqs {
+            let mut len = 0;
+            let mut ok = true;
+            let mut load = vec![0.0; arcs.len()];
+            let mut steps = Vec::new();
+            let mut g_now = 1.0;
+            for j in 0..s.len() - 1 {
+                match dist[s[j]][s[j + 1]] {
+                    Some(d) => len += d,
+                    None => ok = false,
+                }
+                if !ok {
+                    break;
+                }
+                for (k, x) in leg(s[j], s[j + 1]).into_iter().enumerate() {
+                    load[k] += g_now * x;
+                }
+                if j < chain.len() {
+                    steps.push((s[j + 1], chain[j], g_now));
+                    g_now *= t.gains[chain[j]];
+                }
+            }
+            if ok {
+                routes.push((len, load, steps));
+            }
+        }
+        if routes.is_empty() {
+            continue;
+        }
+        let mut add = |weight: f64, vars: &[(Variable, &RefRoute)]| {
+            for &(x, (_, load, steps)) in vars {
+                for (k, &c) in load.iter().enumerate() {
+                    if c != 0.0 {
+                        arc_use[k] += weight * c * x;
+                    }
+                }
+                for &(v, f, gw) in steps {
+                    fn_use[v][f] += weight * gw * x;
+                }
+            }
+        };
+        if steered {
+            let vars: Vec<Variable> = routes
+                .iter()
+                .map(|_| pv.add(variable().min(0.0).max(cap)))
+                .collect();
+            let pairs: Vec<_> = vars.iter().copied().zip(routes.iter()).collect();
+            add(1.0, &pairs);
+            let mut sum = Expression::from(0.0);
+            for &x in &vars {
+                sum += x;
+                objective += x;
+            }
+            demand_rows.push((sum, cap));
+        } else {
+            let least = routes.iter().map(|r| r.0).min().unwrap();
+            let tied: Vec<_> = routes.iter().filter(|r| r.0 == least).collect();
+            let x = pv.add(variable().min(0.0).max(cap));
+            objective += x;
+            let pairs: Vec<_> = tied.iter().map(|r| (x, *r)).collect();
+            add(1.0 / tied.len() as f64, &pairs);
+        }
+    }
+    let mut model = pv.maximise(objective.clone()).using(microlp);
+    for (e, cap) in demand_rows {
+        model.add_constraint(e.leq(cap));
+    }
+    for (k, e) in arc_use.into_iter().enumerate() {
+        model.add_constraint(e.leq(arcs[k].2));
+    }
+    for (v, row) in fn_use.into_iter().enumerate() {
+        for (f, e) in row.into_iter().enumerate() {
+            if up(v) && t.capacity[v][f] > 0.0 {
+                model.add_constraint(e.leq(t.capacity[v][f]));
+            }
+        }
+    }
+    model
+        .solve()
+        .expect("microlp solves the routed reference")
+        .eval(&objective)
+}
+
+/// `t`'s file with link `l` given metric `metric[l]`.
+pub fn with_metrics(t: &RNet, metric: &[u64]) -> Value {
+    let mut doc = t.to_json();
+    for (l, link) in doc["links"].as_array_mut().unwrap().iter_mut().enumerate() {
+        link["metric"] = json!(metric[l]);
+    }
+    doc
+}
