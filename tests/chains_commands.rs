@@ -483,6 +483,53 @@ fn compare_of_chain_files_against_the_reference() {
 
 /// What chain files are still refused, with a message that names `functions` and lists
 /// what takes them (compare and merge among them now; `--why` is taken).
+/// `compare` lists a demand whose chain changed among the file changes, as it lists a
+/// changed volume: on the chains demo, the first demand's chain `firewall, dpi` cut to
+/// `dpi` and the plain fourth demand given `scrub`. The rows are written out by hand from
+/// the edit: demands are named by their label (`FROM→TO #N`, N counted from 1 in file
+/// order, as `compare` names a demand without an id), a chain as its function ids in
+/// order joined with `,`, plain traffic as the empty chain (shown `none`); no other field
+/// changed, so nothing else is listed.
+#[test]
+fn compare_lists_a_changed_chain() {
+    let before = common::fixture("demo-quillhaven-chains.json");
+    let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&before).unwrap()).unwrap();
+    doc["demands"][0]["chain"] = json!(["dpi"]);
+    doc["demands"][3]["chain"] = json!(["scrub"]);
+    let after = TempPath::with_text("chains-chain-after", &doc.to_string());
+    let out = TempPath::new("chains-chain-compare", "json");
+    let run = redoubt(&[
+        "compare",
+        before.to_str().unwrap(),
+        after.path(),
+        "--quiet",
+        "--json",
+        out.path(),
+    ]);
+    assert!(run.code == 0 || run.code == 1, "{}", run.stderr);
+    let flat = run.stdout.split_whitespace().collect::<Vec<_>>().join(" ");
+    for needle in [
+        "demand:ambermoor→orrin-gate #1 chain firewall,dpi dpi",
+        "demand:ambermoor→tessaly #4 chain none scrub",
+    ] {
+        assert!(flat.contains(needle), "{needle:?} in {}", run.stdout);
+    }
+    let rows: Vec<[String; 4]> = out.read_json()["file_changes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| ["element", "field", "before", "after"].map(|k| c[k].as_str().unwrap().into()))
+        .collect();
+    let row = |e: &str, b: &str, a: &str| [e, "chain", b, a].map(String::from);
+    assert_eq!(
+        rows,
+        vec![
+            row("demand:ambermoor→orrin-gate #1", "firewall,dpi", "dpi"),
+            row("demand:ambermoor→tessaly #4", "", "scrub"),
+        ]
+    );
+}
+
 #[test]
 fn what_chain_files_still_refuse_says_so() {
     let mut rng = StdRng::seed_from_u64(11);
