@@ -345,7 +345,12 @@ fn demands(before: &Network, after: &Network, suffix: &str, out: &mut Vec<Edit>)
     // in a file without `functions`.
     let chain = |net: &Network, i: usize| -> Option<String> {
         let c = net.chains.as_ref()?;
-        let ids: Vec<&str> = c.chain.get(i)?.iter().map(|&f| c.functions[f].id.as_str()).collect();
+        let ids: Vec<&str> = c
+            .chain
+            .get(i)?
+            .iter()
+            .map(|&f| c.functions[f].id.as_str())
+            .collect();
         Some(ids.join(","))
     };
     let flat = |net: &Network| -> Vec<(String, String, f64, f64, Option<String>)> {
