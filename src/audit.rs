@@ -12,7 +12,7 @@ use std::io::IsTerminal;
 use std::sync::{Mutex, Once};
 use std::time::{Duration, Instant};
 
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressState, ProgressStyle};
 use rayon::prelude::*;
 
 use crate::error::{EXIT_INTERRUPTED, Error, Result};
@@ -134,9 +134,12 @@ impl Progress {
         let bar = ProgressBar::with_draw_target(Some(len as u64), target);
         bar.set_style(
             ProgressStyle::with_template(
-                "{msg} [{bar:30}] {pos}/{len} done, {per_sec}, {elapsed} elapsed, ETA {eta}",
+                "{msg} [{bar:30}] {pos}/{len} done, {rate}, {elapsed} elapsed, ETA {eta}",
             )
             .expect("static template")
+            .with_key("rate", |s: &ProgressState, w: &mut dyn std::fmt::Write| {
+                let _ = w.write_str(&rate_text(s.per_sec()));
+            })
             .progress_chars("=> "),
         );
         bar.set_message(what.to_string());
@@ -154,6 +157,29 @@ impl Progress {
     pub fn finish(&self) {
         self.bar.finish_and_clear();
     }
+}
+
+/// The rate the progress bar shows for `per_sec` items a second: rounded to a whole
+/// number with `,` between thousands (`12,879/s`: the digits after the point are noise
+/// at a glance, and change every redraw), `<1/s` for a positive rate that rounds to 0,
+/// `0/s` before there is one (zero or not finite). O(digits).
+fn rate_text(per_sec: f64) -> String {
+    if !per_sec.is_finite() || per_sec <= 0.0 {
+        return "0/s".into();
+    }
+    let whole = per_sec.round();
+    if whole < 1.0 {
+        return "<1/s".into();
+    }
+    let digits = format!("{whole:.0}");
+    let mut out = String::with_capacity(digits.len() + digits.len() / 3 + 2);
+    for (i, c) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i) % 3 == 0 {
+            out.push(',');
+        }
+        out.push(c);
+    }
+    out + "/s"
 }
 
 /// Runs `work` on a rayon pool of `threads` threads (`None`: rayon's global pool, one
@@ -805,4 +831,28 @@ pub fn run_with(
     engine: Engine,
 ) -> Result<Audit> {
     Batch::new(net, scenarios, engine).finish(net, opts, None)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::rate_text;
+
+    /// Hand-worked: indicatif's `{per_sec}` printed `12,879.2963/s`; rounded to the whole
+    /// number and grouped by thousands it is `12,879/s`. 999.5 rounds half away from zero
+    /// to 1,000 (Rust's `f64::round`); 0.4 rounds to 0 but is not nothing.
+    #[test]
+    fn the_rate_is_whole_and_grouped_by_thousands() {
+        for (rate, shown) in [
+            (12_879.296_3, "12,879/s"),
+            (999.5, "1,000/s"),
+            (1_234_567.0, "1,234,567/s"),
+            (42.49, "42/s"),
+            (1.0, "1/s"),
+            (0.4, "<1/s"),
+            (0.0, "0/s"),
+            (f64::INFINITY, "0/s"),
+        ] {
+            assert_eq!(rate_text(rate), shown, "{rate}");
+        }
+    }
 }

@@ -18,7 +18,7 @@
 mod chain_reference;
 mod common;
 
-use chain_reference::{assert_close, random_net, reference_served};
+use chain_reference::{assert_close, failed_element, random_net, reference_served};
 use common::json::{audit_json, num, scenario, scenarios};
 use common::{TempPath, redoubt};
 use rand::prelude::*;
@@ -224,15 +224,7 @@ fn random_chains_match_a_per_demand_reference_under_every_single_failure() {
         let mut checked = 0;
         for sc in scenarios(&doc) {
             let failed = common::json::failed_of(sc);
-            let (site, link) = match failed.as_slice() {
-                [] => (None, None),
-                [one] => match one.split_once(':') {
-                    Some(("site", id)) => (Some(id[1..].parse().unwrap()), None),
-                    Some(("link", id)) => (None, Some(id[1..].parse().unwrap())),
-                    _ => panic!("unexpected element {one}"),
-                },
-                _ => panic!("depth 1 only: {failed:?}"),
-            };
+            let (site, link) = failed_element(sc);
             let want = reference_served(&t, site, link, false);
             assert_eq!(sc["verification"]["status"], "proven", "{sc}");
             assert_close(
@@ -424,15 +416,7 @@ fn compare_lists_function_changes() {
         }
     }
     let after = TempPath::with_text("chains-compare-after", &doc.to_string());
-    let out = TempPath::new("chains-compare", "json");
-    let run = redoubt(&[
-        "compare",
-        before.to_str().unwrap(),
-        after.path(),
-        "--quiet",
-        "--json",
-        out.path(),
-    ]);
+    let (run, cmp) = common::json::compare_json(before.to_str().unwrap(), after.path());
     assert_eq!(run.code, 0, "{}", run.stderr);
     let flat = run.stdout.split_whitespace().collect::<Vec<_>>().join(" ");
     for needle in [
@@ -441,7 +425,7 @@ fn compare_lists_function_changes() {
     ] {
         assert!(flat.contains(needle), "{needle:?} in {}", run.stdout);
     }
-    let changes = out.read_json()["file_changes"].clone();
+    let changes = cmp["file_changes"].clone();
     let rows: Vec<(String, String, f64, f64)> = changes
         .as_array()
         .unwrap()

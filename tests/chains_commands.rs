@@ -10,7 +10,7 @@ mod chain_reference;
 mod common;
 
 use chain_reference::{RNet, assert_close, failed_element, random_net, reference_served};
-use common::json::{alone, audit_json, failed_of, num, pair, scenarios};
+use common::json::{alone, audit_bytes, audit_json, compare_json, failed_of, num, pair, scenarios};
 use common::{TempPath, redoubt};
 use rand::prelude::*;
 use serde_json::{Value, json};
@@ -230,6 +230,21 @@ fn halved(line: &str) -> String {
     reseal(&edited)
 }
 
+/// Edits the journal or part file at `path` in place: the first scenario line after the
+/// header with a positive shortfall is [`halved`]. Returns that line's index (0-based).
+fn halve_a_short_line(path: &std::path::Path) -> usize {
+    let text = std::fs::read_to_string(path).unwrap();
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    let k = (1..lines.len())
+        .find(|&k| {
+            lines[k].contains("\"served_required\"") && !lines[k].contains("\"shortfall\":0.0")
+        })
+        .expect("a short scenario line");
+    lines[k] = halved(&lines[k]);
+    std::fs::write(path, lines.join("\n") + "\n").unwrap();
+    k
+}
+
 /// `audit --shard I/3` of a chain file with two matrices at depth 2, merged: the JSON, the
 /// CSV and the text equal the one-process run's byte for byte (the contract: a merged run
 /// is the unsharded run). A part whose line is edited (served value halved, shortfall
@@ -297,15 +312,7 @@ fn shards_of_a_chain_file_merge_to_the_one_process_run() {
     assert_eq!(one_why.stdout, merged_why.stdout);
 
     // One short scenario's line edited in part 2.
-    let text = std::fs::read_to_string(&parts[1]).unwrap();
-    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
-    let k = (1..lines.len())
-        .find(|&k| {
-            lines[k].contains("\"served_required\"") && !lines[k].contains("\"shortfall\":0.0")
-        })
-        .expect("a short scenario in part 2");
-    lines[k] = halved(&lines[k]);
-    std::fs::write(&parts[1], lines.join("\n") + "\n").unwrap();
+    let k = halve_a_short_line(&parts[1]);
     let bad = dir.join("bad.json");
     let mut args = vec!["merge"];
     args.extend(parts.iter().map(|p| common::s(p)));
@@ -326,18 +333,7 @@ fn shards_of_a_chain_file_merge_to_the_one_process_run() {
 #[test]
 fn an_interrupted_chain_audit_resumes_to_identical_files() {
     let file = TempPath::with_text("chain-ring", &chain_ring());
-    let reference = TempPath::new("chain-resume-ref", "json");
-    let full = redoubt(&[
-        "audit",
-        file.path(),
-        "--depth",
-        "2",
-        "--quiet",
-        "--json",
-        reference.path(),
-    ]);
-    assert_eq!(full.code, 0, "{}", full.stderr);
-    let want = std::fs::read(&reference.0).unwrap();
+    let want = audit_bytes(file.path(), &["--depth", "2"]);
     let dir = common::TempDir::new("chain-resume");
     let json = dir.join("audit.json");
     let journal = dir.join("audit.json.journal");
@@ -359,15 +355,9 @@ fn an_interrupted_chain_audit_resumes_to_identical_files() {
     assert!(std::fs::read(&json).unwrap() == want, "resumed JSON");
 
     // The kept journal with one short scenario's line edited.
-    let mut lines: Vec<String> = kept.lines().map(str::to_string).collect();
-    let k = (1..lines.len())
-        .find(|&k| {
-            lines[k].contains("\"served_required\"") && !lines[k].contains("\"shortfall\":0.0")
-        })
-        .expect("a short scenario journaled");
-    lines[k] = halved(&lines[k]);
     std::fs::remove_file(&json).unwrap();
-    std::fs::write(&journal, lines.join("\n") + "\n").unwrap();
+    std::fs::write(&journal, kept).unwrap();
+    let k = halve_a_short_line(&journal);
     let r = redoubt(&resume);
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert!(
@@ -479,6 +469,44 @@ fn compare_of_chain_files_against_the_reference() {
         assert!(same.stdout.starts_with("PASS"), "{}", same.stdout);
     }
     assert!(listed_any > 0, "some change was listed");
+}
+
+/// `compare` lists a demand whose chain changed among the file changes, as it lists a
+/// changed volume: on the chains demo, the first demand's chain `firewall, dpi` cut to
+/// `dpi` and the plain fourth demand given `scrub`. The rows are written out by hand from
+/// the edit: demands are named by their label (`FROM→TO #N`, N counted from 1 in file
+/// order, as `compare` names a demand without an id), a chain as its function ids in
+/// order joined with `,`, plain traffic as the empty chain (shown `none`); no other field
+/// changed, so nothing else is listed.
+#[test]
+fn compare_lists_a_changed_chain() {
+    let before = common::fixture("demo-quillhaven-chains.json");
+    let mut doc: Value = serde_json::from_str(&std::fs::read_to_string(&before).unwrap()).unwrap();
+    doc["demands"][0]["chain"] = json!(["dpi"]);
+    doc["demands"][3]["chain"] = json!(["scrub"]);
+    let after = TempPath::with_text("chains-chain-after", &doc.to_string());
+    let (run, cmp) = compare_json(common::s(&before), after.path());
+    let flat = run.stdout.split_whitespace().collect::<Vec<_>>().join(" ");
+    for needle in [
+        "demand:ambermoor→orrin-gate #1 chain firewall,dpi dpi",
+        "demand:ambermoor→tessaly #4 chain none scrub",
+    ] {
+        assert!(flat.contains(needle), "{needle:?} in {}", run.stdout);
+    }
+    let rows: Vec<[String; 4]> = cmp["file_changes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|c| ["element", "field", "before", "after"].map(|k| c[k].as_str().unwrap().into()))
+        .collect();
+    let row = |e: &str, b: &str, a: &str| [e, "chain", b, a].map(String::from);
+    assert_eq!(
+        rows,
+        vec![
+            row("demand:ambermoor→orrin-gate #1", "firewall,dpi", "dpi"),
+            row("demand:ambermoor→tessaly #4", "", "scrub"),
+        ]
+    );
 }
 
 /// What chain files are still refused, with a message that names `functions` and lists

@@ -146,3 +146,38 @@ fn ctrl_c_on_a_terminal_stops_the_audit_and_resume_finishes_it() {
         "the journal is removed once the files are written"
     );
 }
+
+/// The rates the progress bar drew on `screen` (the text between `done, ` and `/s` of each
+/// redraw, escapes removed).
+fn drawn_rates(screen: &str) -> Vec<String> {
+    screen
+        .split(['\r', '\n'])
+        .map(strip_escapes)
+        .filter_map(|l| {
+            let rest = &l[l.find(" done, ")? + " done, ".len()..];
+            Some(rest[..rest.find("/s")?].to_string())
+        })
+        .collect()
+}
+
+/// The bar's rate is a whole number of scenarios a second, grouped by thousands
+/// (`12,879/s`, not `12,879.2963/s`): on a terminal, every redraw of a run long enough to
+/// draw several (grid-50's double site failures, stopped by Ctrl-C after 3 s, as above)
+/// shows only digits and commas, or `<1`, before `/s`.
+#[test]
+fn the_progress_bar_shows_a_whole_rate() {
+    let net = fixture("grid-50.json");
+    let args = ["audit", s(&net), "--depth", "2", "--kinds", "sites"];
+    let run = in_terminal(&args, LIMIT, Some((Duration::from_secs(3), b"\x03")));
+    assert_eq!(run.code, 130, "{}", tail(&run.screen, 2000));
+    let rates = drawn_rates(&run.screen);
+    assert!(
+        !rates.is_empty(),
+        "the bar was drawn: {}",
+        tail(&run.screen, 2000)
+    );
+    for r in &rates {
+        let whole = !r.is_empty() && r.chars().all(|c| c.is_ascii_digit() || c == ',');
+        assert!(whole || r == "<1", "rate {r:?} has no fractional digits");
+    }
+}

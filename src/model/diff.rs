@@ -7,9 +7,9 @@
 //! *removed*. Fields compared: a site's processing, expansion cost, limit and module, and
 //! failure probability; a link's endpoints, direction, capacity, metric, groups and
 //! failure probability; a group's members and failure probability; a demand's endpoints,
-//! volume and required amount; with service chains, a function's gain (or the function
-//! added or removed) and each site's capacity of each function. Drawing positions are not
-//! compared (they change no result).
+//! volume and required amount (and, with service chains, its chain); with service chains,
+//! a function's gain (or the function added or removed) and each site's capacity of each
+//! function. Drawing positions are not compared (they change no result).
 
 use std::collections::{BTreeSet, HashMap};
 
@@ -341,12 +341,25 @@ fn groups(before: &Network, after: &Network, out: &mut Vec<Edit>) {
 /// The demand edits of `before` and `after` (two views of one matrix), each element named
 /// `demand:LABEL` followed by `suffix`.
 fn demands(before: &Network, after: &Network, suffix: &str, out: &mut Vec<Edit>) {
-    let flat = |net: &Network| -> Vec<(String, String, f64, f64)> {
+    // A demand's chain as its function ids joined with `,` (empty: plain traffic); `None`
+    // in a file without `functions`.
+    let chain = |net: &Network, i: usize| -> Option<String> {
+        let c = net.chains.as_ref()?;
+        let ids: Vec<&str> = c
+            .chain
+            .get(i)?
+            .iter()
+            .map(|&f| c.functions[f].id.as_str())
+            .collect();
+        Some(ids.join(","))
+    };
+    let flat = |net: &Network| -> Vec<(String, String, f64, f64, Option<String>)> {
         net.demands
             .iter()
-            .map(|d| {
+            .enumerate()
+            .map(|(i, d)| {
                 let ends = format!("{}→{}", net.sites[d.from].id, net.sites[d.to].id);
-                (d.label.clone(), ends, d.volume, d.required)
+                (d.label.clone(), ends, d.volume, d.required, chain(net, i))
             })
             .collect()
     };
@@ -360,6 +373,7 @@ fn demands(before: &Network, after: &Network, suffix: &str, out: &mut Vec<Edit>)
                 ("ends", Some(Value::Text(d.1.clone()))),
                 ("volume", num(d.2)),
                 ("required", num(d.3)),
+                ("chain", d.4.clone().map(Value::Text)),
             ]
         },
         |d| {

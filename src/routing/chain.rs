@@ -34,7 +34,7 @@
 //!
 //! Invariants: the LP's resources are the arcs and each (site, function) (resource index
 //! `site · functions + function`, [`super::fixed::Resources`]); every result ends in
-//! `solve::chain::finish_chain` like the chain engines', with `delivered` and the
+//! `solve::finish_with` like the chain engines', with `delivered` and the
 //! per-function use. Pure functions of their inputs: results do not depend on threads.
 
 use std::cell::RefCell;
@@ -708,7 +708,7 @@ impl<'a> ChainRouting<'a> {
     /// One outage evaluated under `mode`: cut-off demands (no sequence: no path at all, or
     /// no sequence of sites running the chain on the shortest paths), the fixed-route LP
     /// for served_required and, when some surviving demand offers more, for throughput,
-    /// ended in `solve::chain::finish_chain`. The evaluation carries no proof (a
+    /// ended in `solve::finish_with`. The evaluation carries no proof (a
     /// journal's re-check is defined for the best re-route only).
     pub fn evaluate(&self, outage: &Outage, mode: Mode) -> Result<Evaluation> {
         let net = self.net;
@@ -752,7 +752,7 @@ impl<'a> ChainRouting<'a> {
         } else {
             None
         };
-        let mut eval = solve::chain::finish_chain(net, &view, cut_off, solved, volume);
+        let mut eval = solve::finish_with(net, &view, cut_off, solved, volume);
         eval.proof = None;
         Ok(eval)
     }

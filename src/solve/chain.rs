@@ -31,18 +31,18 @@
 use std::cmp::Reverse;
 use std::collections::{BTreeMap, BinaryHeap};
 
-use super::edge::better_attempt;
+use super::edge::{Rung, climb, real_prices};
 use super::evaluator::{Evaluated, Evaluator, Warm};
 use super::lp::{Backend, Lp, Sense};
 use super::surviving::{Surviving, Unservable};
-use super::types::{Evaluation, FunctionUse, Verification, Verified};
-use super::{RESIDUAL_TOL, finish_with, ladder, needs_volume_lp, verify};
+use super::types::{Evaluation, Verification, Verified};
+use super::{finish_with, ladder, needs_volume_lp, verify};
 use crate::error::{Error, Result};
 use crate::model::{Chains, FunctionIdx, Network};
 /// A site number inside this engine's layered graph: [`crate::model::SiteIdx`]`.0`.
 type SiteIdx = usize;
 use crate::scenario::Outage;
-use crate::tol::{PROOF_GAP_TOL, ZERO_FLOW};
+use crate::tol::ZERO_FLOW;
 
 /// One (origin, chain) group of demands.
 #[derive(Debug, Clone)]
@@ -286,37 +286,30 @@ pub fn build(
         // Conservation terms per layered node: + in, − out.
         let mut node_terms: BTreeMap<usize, Vec<(usize, f64)>> = BTreeMap::new();
         let mut edges = Vec::new();
+        // The variable of a layered edge between live nodes; `None` for a dead one.
+        let mut edge = |from: usize, to: usize, kind: EdgeKind| {
+            (live(from) && live(to)).then(|| {
+                let ends = (from, to, total);
+                layer_edge(&mut model, &mut node_terms, &mut edges, ends, kind)
+            })
+        };
         for j in 0..=k {
             for &a in &view.arcs {
                 let arc = &net.arcs[a];
-                let (from, to) = (j * n + arc.from.0, j * n + arc.to.0);
-                if !(live(from) && live(to)) {
+                let kind = EdgeKind::Arc { arc: a, layer: j };
+                let Some(var) = edge(j * n + arc.from.0, j * n + arc.to.0, kind) else {
                     continue;
-                }
-                let var = layer_edge(
-                    &mut model,
-                    &mut node_terms,
-                    &mut edges,
-                    (from, to, total),
-                    EdgeKind::Arc { arc: a, layer: j },
-                );
+                };
                 arc_terms[a].push((var, cumulative[j]));
                 arc_need[a] += cumulative[j] * total;
             }
             if j < k {
                 let f = chain[j];
-                for v in 0..n {
-                    let (from, to) = (j * n + v, (j + 1) * n + v);
-                    if !(runs(ch, view, v, f) && live(from) && live(to)) {
+                for v in (0..n).filter(|&v| runs(ch, view, v, f)) {
+                    let kind = EdgeKind::Function { site: v, layer: j };
+                    let Some(var) = edge(j * n + v, (j + 1) * n + v, kind) else {
                         continue;
-                    }
-                    let var = layer_edge(
-                        &mut model,
-                        &mut node_terms,
-                        &mut edges,
-                        (from, to, total),
-                        EdgeKind::Function { site: v, layer: j },
-                    );
+                    };
                     fn_terms
                         .entry((v, f))
                         .or_default()
@@ -738,76 +731,40 @@ pub fn solve_verified_with(
         ));
     }
     let (row_floor, var_floor) = floors(&model);
-    let scale = at_stake.max(f64::MIN_POSITIVE);
-    let mut best: Option<Verified> = None;
-    let mut best_upper = f64::INFINITY;
-    let mut best_arc_price = vec![0.0; net.arcs.len()];
-    let mut best_fn_price = BTreeMap::new();
-    let mut errors = Vec::new();
-    for (attempt, backend) in ladder.iter().enumerate() {
-        let Some(solution) = self::attempt(*backend, &model, &mut errors)? else {
-            continue;
-        };
-        let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
-        let (allocation, walks) = repair(net, &layered, &solution.x);
-        let (arc_price, fn_price) = layered.row_prices(&solution.duals);
-        let upper = dual_bound(net, view, &layered, &arc_price, &fn_price).min(at_stake);
-        if upper < best_upper {
-            best_upper = upper;
-            best_arc_price = arc_price;
-            best_fn_price = fn_price;
-        }
-        let lp_value: f64 = layered
-            .demand_var
-            .iter()
-            .flatten()
-            .map(|&v| solution.x[v])
-            .sum();
-        if better_attempt(best.as_ref(), residual, allocation.served) {
-            best = Some(Verified {
+    let (mut out, (best_arc_price, best_fn_price)) = climb(
+        ladder,
+        at_stake,
+        (&arc_has_row, &site_has_row),
+        (vec![0.0; net.arcs.len()], BTreeMap::new()),
+        |backend, errors| {
+            let Some(solution) = self::attempt(backend, &model, errors)? else {
+                return Ok(None);
+            };
+            let residual = verify::residual(&model, &solution.x, &row_floor, &var_floor);
+            let (allocation, walks) = repair(net, &layered, &solution.x);
+            let (arc_price, fn_price) = layered.row_prices(&solution.duals);
+            let upper = dual_bound(net, view, &layered, &arc_price, &fn_price).min(at_stake);
+            let lp_value: f64 = layered
+                .demand_var
+                .iter()
+                .flatten()
+                .map(|&v| solution.x[v])
+                .sum();
+            let layered = &layered;
+            Ok(Some(Rung {
                 lp_value,
-                verification: Verification::open(
-                    allocation.served,
-                    residual,
-                    attempt + 1,
-                    backend.name(),
-                ),
                 allocation,
-                arc_price: Vec::new(),
-                site_price: vec![0.0; net.sites.len()],
-                arc_has_row: arc_has_row.clone(),
-                site_has_row: site_has_row.clone(),
-                bound_price: (Vec::new(), Vec::new()),
-                functions: super::chain_use::function_use(
-                    net,
-                    view,
-                    &layered,
-                    &walks,
-                    &BTreeMap::new(),
-                ),
-            });
-        }
-        let b = best.as_mut().expect("set above");
-        b.verification.attempts = attempt + 1;
-        b.verification.upper = best_upper;
-        let gap = best_upper - b.verification.lower;
-        let tol = PROOF_GAP_TOL * scale;
-        b.verification.proven =
-            b.verification.residual <= RESIDUAL_TOL && gap <= tol && gap >= -tol;
-        if b.verification.proven {
-            break;
-        }
-    }
-    let mut out = best.ok_or_else(|| Error::Solver(errors.join("; ")))?;
-    out.arc_price = (0..net.arcs.len())
-        .map(|a| {
-            if layered.arc_cap[a] < net.arcs[a].capacity {
-                0.0
-            } else {
-                best_arc_price[a]
-            }
-        })
-        .collect();
+                residual,
+                upper,
+                prices: (arc_price, fn_price),
+                functions: move || {
+                    super::chain_use::function_use(net, view, layered, &walks, &BTreeMap::new())
+                },
+            }))
+        },
+    )?;
+    out.site_price = vec![0.0; net.sites.len()];
+    out.arc_price = real_prices(&best_arc_price, &layered.arc_cap, |a| net.arcs[a].capacity);
     out.bound_price = (best_arc_price, Vec::new());
     // The loads of the kept allocation, the prices that gave the kept upper bound (as
     // `arc_price` above).
@@ -874,41 +831,5 @@ pub fn evaluate(net: &Network, outage: &Outage) -> Result<Evaluation> {
     } else {
         None
     };
-    Ok(finish_chain(net, &view, cut_off, solved, volume))
-}
-
-/// The evaluation of one outage of a network with `functions` from its verified
-/// required (and volume) results and its cut-off list: [`finish_with`], then `delivered`
-/// from the reported flows. Shared by every chain engine. O(demands · chain).
-pub(crate) fn finish_chain(
-    net: &Network,
-    view: &Surviving,
-    cut_off: Vec<(usize, Unservable)>,
-    solved: Verified,
-    volume: Option<Verified>,
-) -> Evaluation {
-    let functions = solved.functions.clone();
-    let mut e = finish_with(net, view, cut_off, solved, volume);
-    // Shown as the plainest number within solver noise of the delivered volume at stake
-    // (Σ required · gain over the surviving demands), as every reported amount is.
-    let ch = net.chains.as_ref().expect("a network with functions");
-    let at_stake: f64 = (0..net.demands.len())
-        .filter(|&d| view.demand_alive(net, d))
-        .map(|d| net.demands[d].required * ch.total_gain(d))
-        .sum();
-    let x = delivered(net, &e.demand_flow);
-    let eps = crate::tol::NOISE * at_stake;
-    e.delivered = Some(super::simplest_in(x - eps, x + eps, x.round()).max(0.0));
-    // Loads shown as the plainest number within solver noise of the required demand at
-    // stake; prices snapped to 0 within solver noise, as the arc prices are.
-    let load_eps = crate::tol::NOISE * e.surviving_required;
-    e.functions = functions
-        .into_iter()
-        .map(|u| FunctionUse {
-            load: super::simplest_in(u.load - load_eps, u.load + load_eps, u.load.round()).max(0.0),
-            price: u.price.map(|p| super::finish::snap(p, 0.0, 1.0)),
-            ..u
-        })
-        .collect();
-    e
+    Ok(finish_with(net, &view, cut_off, solved, volume))
 }

@@ -1,7 +1,7 @@
 //! The per-(site, function) use of an allocation of the layered model of service chains
 //! ([`super::chain`]): what each function at each site takes and its shadow price, as
 //! [`super::types::FunctionUse`] rows, for both chain engines (the layered edge LP and the
-//! layered walk engine) to hand to [`super::chain::finish_chain`].
+//! layered walk engine) to hand to [`super::finish_with`].
 
 use std::collections::BTreeMap;
 

@@ -5,7 +5,7 @@
 use super::flow::{self, Cap};
 use super::lp::{self, Backend};
 use super::surviving::{Surviving, Unservable};
-use super::types::{Verification, Verified};
+use super::types::{FunctionUse, Verification, Verified};
 use super::{RESIDUAL_TOL, certify, ladder, verify};
 use crate::error::{Error, Result};
 use crate::model::{DemandIdx, Network};
@@ -121,106 +121,49 @@ pub fn solve_verified_with(
             functions: Vec::new(),
         });
     }
-    let scale = at_stake.max(f64::MIN_POSITIVE);
     let (row_floor, var_floor) = index.magnitudes(&model, f64::MIN_POSITIVE);
-    let mut best: Option<Verified> = None;
-    let mut best_upper = f64::INFINITY;
-    let mut best_prices: (Vec<f64>, Vec<f64>) = (Vec::new(), Vec::new());
-    let mut errors = Vec::new();
-    for (attempt, backend) in ladder.iter().enumerate() {
-        let Some(Attempt {
-            solution,
-            residual,
-            allocation,
-        }) = try_backend(
-            *backend,
-            &model,
-            (&row_floor, &var_floor),
-            net,
-            &index,
-            &bound,
-            &mut errors,
-        )?
-        else {
-            continue;
-        };
-        let arc_price: Vec<f64> = index
-            .arc_row
-            .iter()
-            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
-            .collect();
-        let site_price: Vec<f64> = index
-            .site_row
-            .iter()
-            .map(|r| r.map_or(0.0, |r| solution.duals[r].max(0.0)))
-            .collect();
-        let upper = certify::dual_bound(
-            net,
-            view,
-            &bound,
-            &index.arc_cap,
-            &index.site_cap,
-            &arc_price,
-            &site_price,
-        )
-        .min(at_stake);
-        if upper < best_upper {
-            best_upper = upper;
-            best_prices = (arc_price, site_price);
-        }
-        let lp_value = index.served(&solution.x);
-        if better_attempt(best.as_ref(), residual, allocation.served) {
-            best = Some(Verified {
-                lp_value,
-                verification: Verification::open(
-                    allocation.served,
-                    residual,
-                    attempt + 1,
-                    backend.name(),
-                ),
+    let arc_has_row: Vec<bool> = index.arc_row.iter().map(Option::is_some).collect();
+    let site_has_row: Vec<bool> = index.site_row.iter().map(Option::is_some).collect();
+    let (mut out, best_prices) = climb(
+        ladder,
+        at_stake,
+        (&arc_has_row, &site_has_row),
+        (Vec::new(), Vec::new()),
+        |backend, errors| {
+            let floors = (row_floor.as_slice(), var_floor.as_slice());
+            let Some(Attempt {
+                solution,
+                residual,
                 allocation,
-                arc_price: Vec::new(),
-                site_price: Vec::new(),
-                arc_has_row: index.arc_row.iter().map(Option::is_some).collect(),
-                site_has_row: index.site_row.iter().map(Option::is_some).collect(),
-                functions: Vec::new(),
-                bound_price: (Vec::new(), Vec::new()),
-            });
-        }
-        let b = best.as_mut().expect("set above");
-        b.verification.attempts = attempt + 1;
-        b.verification.upper = best_upper;
-        b.verification.proven = meets(
-            b.verification.residual,
-            b.verification.lower,
-            best_upper,
-            scale,
-        );
-        if b.verification.proven {
-            break;
-        }
-    }
-    let mut out = best.ok_or_else(|| Error::Solver(errors.join("; ")))?;
-    // The presolve lowers rows that cannot bind; a price on such a row is not a price of
-    // the real capacity.
-    out.arc_price = (0..net.arcs.len())
-        .map(|a| {
-            if index.arc_cap[a] < net.arcs[a].capacity {
-                0.0
-            } else {
-                best_prices.0[a]
-            }
-        })
-        .collect();
-    out.site_price = (0..net.sites.len())
-        .map(|v| {
-            if index.site_cap[v] < net.sites[v].processing {
-                0.0
-            } else {
-                best_prices.1[v]
-            }
-        })
-        .collect();
+            }) = try_backend(backend, &model, floors, net, &index, &bound, errors)?
+            else {
+                return Ok(None);
+            };
+            let price = |row: &Option<usize>| row.map_or(0.0, |r| solution.duals[r].max(0.0));
+            let arc_price: Vec<f64> = index.arc_row.iter().map(price).collect();
+            let site_price: Vec<f64> = index.site_row.iter().map(price).collect();
+            let upper = certify::dual_bound(
+                net,
+                view,
+                &bound,
+                &index.arc_cap,
+                &index.site_cap,
+                &arc_price,
+                &site_price,
+            )
+            .min(at_stake);
+            Ok(Some(Rung {
+                lp_value: index.served(&solution.x),
+                allocation,
+                residual,
+                upper,
+                prices: (arc_price, site_price),
+                functions: Vec::new,
+            }))
+        },
+    )?;
+    out.arc_price = real_prices(&best_prices.0, &index.arc_cap, |a| net.arcs[a].capacity);
+    out.site_price = real_prices(&best_prices.1, &index.site_cap, |v| net.sites[v].processing);
     out.bound_price = best_prices;
     Ok(out)
 }
@@ -308,4 +251,101 @@ pub(crate) fn better_attempt(best: Option<&Verified>, residual: f64, served: f64
         let b_feasible = b.verification.residual <= RESIDUAL_TOL;
         (feasible && !b_feasible) || (feasible == b_feasible && served > b.allocation.served)
     })
+}
+
+/// One backend's checked answer in a [`climb`]: the LP's own value, the allocation
+/// repaired from it (its `served` is the lower bound it proves), its residual, the upper
+/// bound its prices prove (already capped at what is at stake), those prices, and
+/// `functions`, which gives the allocation's per-function use once the climb keeps it.
+pub(crate) struct Rung<P, K> {
+    pub lp_value: f64,
+    pub allocation: verify::Repaired,
+    pub residual: f64,
+    pub upper: f64,
+    pub prices: P,
+    pub functions: K,
+}
+
+/// The verified climb up a ladder of backends: `attempt` solves and checks the model with
+/// each backend of `ladder` in turn (giving `Ok(None)` when the backend fails, after
+/// noting why in the error list it is given), the best attempt is kept
+/// ([`better_attempt`]) as a [`Verified`] with the model's rows `has_row` (arcs, sites)
+/// and no prices yet, the lowest upper bound of all attempts and its prices (`initial`
+/// until an attempt gives one) are kept beside it, and the climb stops at the first
+/// result that [`meets`] its upper bound over `at_stake`. Fails with the noted errors only
+/// when every backend fails. O(Σ attempts) beyond them.
+///
+/// Invariant: the kept result's `verification.upper` is the lowest upper bound seen and
+/// `verification.attempts` the number of backends tried.
+pub(crate) fn climb<P, K>(
+    ladder: &[&dyn Backend],
+    at_stake: f64,
+    has_row: (&[bool], &[bool]),
+    initial: P,
+    mut attempt: impl FnMut(&dyn Backend, &mut Vec<String>) -> Result<Option<Rung<P, K>>>,
+) -> Result<(Verified, P)>
+where
+    K: FnOnce() -> Vec<FunctionUse>,
+{
+    let mut best: Option<Verified> = None;
+    let mut best_upper = f64::INFINITY;
+    let mut best_prices = initial;
+    let mut errors = Vec::new();
+    for (tried, backend) in ladder.iter().enumerate() {
+        let Some(rung) = attempt(*backend, &mut errors)? else {
+            continue;
+        };
+        if rung.upper < best_upper {
+            best_upper = rung.upper;
+            best_prices = rung.prices;
+        }
+        let served = rung.allocation.served;
+        if better_attempt(best.as_ref(), rung.residual, served) {
+            best = Some(Verified {
+                lp_value: rung.lp_value,
+                verification: Verification::open(served, rung.residual, tried + 1, backend.name()),
+                allocation: rung.allocation,
+                arc_price: Vec::new(),
+                site_price: Vec::new(),
+                arc_has_row: has_row.0.to_vec(),
+                site_has_row: has_row.1.to_vec(),
+                bound_price: (Vec::new(), Vec::new()),
+                functions: (rung.functions)(),
+            });
+        }
+        let b = best.as_mut().expect("set above");
+        b.verification.attempts = tried + 1;
+        b.verification.upper = best_upper;
+        b.verification.proven = meets(
+            b.verification.residual,
+            b.verification.lower,
+            best_upper,
+            at_stake,
+        );
+        if b.verification.proven {
+            break;
+        }
+    }
+    let best = best.ok_or_else(|| Error::Solver(errors.join("; ")))?;
+    Ok((best, best_prices))
+}
+
+/// The prices of the real capacities from the prices `priced` of a model's rows whose
+/// bounds `model_cap` the presolve may have lowered: 0 where it did (`model_cap[i] <
+/// real(i)`: that row cannot bind, so its price is not one of the real capacity), else
+/// the row's price. O(rows).
+pub(crate) fn real_prices(
+    priced: &[f64],
+    model_cap: &[f64],
+    real: impl Fn(usize) -> f64,
+) -> Vec<f64> {
+    (0..model_cap.len())
+        .map(|i| {
+            if model_cap[i] < real(i) {
+                0.0
+            } else {
+                priced[i]
+            }
+        })
+        .collect()
 }

@@ -41,6 +41,22 @@ impl Evaluated {
             stats: Stats::default(),
         }
     }
+
+    /// The result of a warm-starting engine: `run` evaluates the outage from the start in
+    /// `warm` when that start is a `B` (the start a parent evaluation of the same engine
+    /// kept; `None` without one, or for a start of another type), and gives its
+    /// evaluation, the start it keeps for children, and its counted work. O(1) beyond `run`.
+    pub fn warm_from<B: Any + Send + Sync>(
+        warm: Option<&Warm>,
+        run: impl FnOnce(Option<&B>) -> Result<(Evaluation, B, Stats)>,
+    ) -> Result<Evaluated> {
+        let (evaluation, basis, stats) = run(warm.and_then(|w| w.downcast_ref::<B>()))?;
+        Ok(Evaluated {
+            evaluation,
+            warm: Some(Box::new(basis)),
+            stats,
+        })
+    }
 }
 
 /// The served model of one outage with added-processing variables, as built into a
@@ -235,12 +251,9 @@ impl Evaluator for Walks {
     }
 
     fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>) -> Result<Evaluated> {
-        let parent = warm.and_then(|w| w.downcast_ref::<colgen::Basis>());
-        let w = colgen::evaluate_walks(net, outage, parent)?;
-        Ok(Evaluated {
-            evaluation: w.evaluation,
-            warm: Some(Box::new(w.basis)),
-            stats: w.stats,
+        Evaluated::warm_from(warm, |parent| {
+            let w = colgen::evaluate_walks(net, outage, parent)?;
+            Ok((w.evaluation, w.basis, w.stats))
         })
     }
 

@@ -5,9 +5,9 @@
 //! ([`reported_in`], [`shortfall_of`], [`flow_scales`], `DemandSplit`).
 
 use super::surviving::{Surviving, Unservable};
-use super::types::{Bottleneck, Evaluation, Resource, Verified};
+use super::types::{Bottleneck, Evaluation, FunctionUse, Resource, Verified};
 use super::{SATURATED, TOL, recheck};
-use crate::model::{ArcIdx, DemandIdx, Network, SiteIdx};
+use crate::model::{ArcIdx, Chains, DemandIdx, Network, SiteIdx};
 use crate::tol::SNAP_WITHOUT_SCALE;
 
 /// Below this fraction of the scenario's demand, differences are solver noise: a value is
@@ -280,7 +280,9 @@ pub fn finish(
 /// each proven interval (or the proven lower bound when unproven), per-demand flows
 /// snapped against their origin's servable demand ([`flow_scales`]), shadow prices,
 /// saturated resources (load ≥ [`SATURATED`]·capacity; a resource of capacity 0 that has
-/// a row is saturated when its price is positive) and the proof a journal keeps.
+/// a row is saturated when its price is positive) and the proof a journal keeps; on a
+/// network with `functions`, also the delivered volume and the per-function loads and
+/// prices (`chain_figures`).
 ///
 /// Invariant: `solved` and `volume` are results of models of `view`'s outage whose
 /// demand variables exclude `cut_off`. Cost: O(demands + arcs + sites + bottlenecks ·
@@ -395,7 +397,8 @@ pub fn finish_with(
         (served_required, None)
     };
 
-    Evaluation {
+    let functions = solved.functions;
+    let mut e = Evaluation {
         cut_off: cut_off
             .into_iter()
             .map(|(d, r)| (DemandIdx(d), r))
@@ -422,5 +425,41 @@ pub fn finish_with(
         proof,
         delivered: None,
         functions: Vec::new(),
+    };
+    if let Some(ch) = &net.chains {
+        chain_figures(&mut e, net, view, ch, functions);
     }
+    e
+}
+
+/// The figures only a network with `functions` ([`Chains`]) has, set on its evaluation
+/// `e`: `delivered` from the reported flows ([`super::chain::delivered`]), shown as the
+/// plainest number within solver noise of the delivered volume at stake (Σ required ·
+/// gain over the surviving demands), as every reported amount is; and the per-function
+/// `functions` with their loads shown as the plainest number within solver noise of the
+/// required demand at stake and their prices snapped to 0 within solver noise, as the
+/// arc prices are. O(demands · chain + functions).
+fn chain_figures(
+    e: &mut Evaluation,
+    net: &Network,
+    view: &Surviving,
+    ch: &Chains,
+    functions: Vec<FunctionUse>,
+) {
+    let at_stake: f64 = (0..net.demands.len())
+        .filter(|&d| view.demand_alive(net, d))
+        .map(|d| net.demands[d].required * ch.total_gain(d))
+        .sum();
+    let x = super::chain::delivered(net, &e.demand_flow);
+    let eps = crate::tol::NOISE * at_stake;
+    e.delivered = Some(simplest_in(x - eps, x + eps, x.round()).max(0.0));
+    let load_eps = crate::tol::NOISE * e.surviving_required;
+    e.functions = functions
+        .into_iter()
+        .map(|u| FunctionUse {
+            load: simplest_in(u.load - load_eps, u.load + load_eps, u.load.round()).max(0.0),
+            price: u.price.map(|p| snap(p, 0.0, 1.0)),
+            ..u
+        })
+        .collect();
 }

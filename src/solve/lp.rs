@@ -436,7 +436,12 @@ fn constraint_of(r: &Row, vars: &[Variable]) -> good_lp::Constraint {
     }
 }
 
-fn solve_microlp(lp: &Lp) -> Result<LpSolution> {
+/// The good_lp model of `lp` for `solver`: the variables with their finite lower bounds
+/// ([`variables`]), the objective in `lp`'s sense, the rows of `lp` in order, then one row
+/// `x_i ≤ u_i` per finite upper bound, in variable order (so that their shadow prices are
+/// known). Returns the model, the variables, and the variables with such a row, in the
+/// order of those rows. O(nonzeros).
+fn model_of<S: good_lp::Solver>(lp: &Lp, solver: S) -> (S::Model, Vec<Variable>, Vec<usize>) {
     let (pv, vars) = variables(lp);
     let obj = objective_of(lp, &vars);
     let unsolved = if lp.maximise {
@@ -444,15 +449,21 @@ fn solve_microlp(lp: &Lp) -> Result<LpSolution> {
     } else {
         pv.minimise(obj)
     };
-    let mut model = unsolved.using(microlp);
+    let mut model = unsolved.using(solver);
     for r in &lp.rows {
         model.add_constraint(constraint_of(r, &vars));
     }
-    for (var, &upper) in vars.iter().zip(&lp.upper) {
-        if upper.is_finite() {
-            model.add_constraint(Expression::from(*var).leq(upper));
-        }
+    let uppers: Vec<usize> = (0..lp.num_vars())
+        .filter(|&i| lp.upper[i].is_finite())
+        .collect();
+    for &i in &uppers {
+        model.add_constraint(Expression::from(vars[i]).leq(lp.upper[i]));
     }
+    (model, vars, uppers)
+}
+
+fn solve_microlp(lp: &Lp) -> Result<LpSolution> {
+    let (model, vars, _) = model_of(lp, microlp);
     let sol = model
         .solve()
         .map_err(|e| Error::Solver(format!("microlp: {e}")))?;
@@ -480,30 +491,13 @@ fn solve_microlp(lp: &Lp) -> Result<LpSolution> {
 /// Accepted statuses are good_lp's own (solved, almost solved, dual infeasible).
 fn solve_clarabel(lp: &Lp, settings: Clarabel) -> Result<LpSolution> {
     use clarabel::solver::{IPSolver, SolverStatus};
-    let (pv, vars) = variables(lp);
-    let obj = objective_of(lp, &vars);
-    let unsolved = if lp.maximise {
-        pv.maximise(obj)
-    } else {
-        pv.minimise(obj)
-    };
-    let mut model = unsolved.using(clarabel);
+    let (mut model, vars, uppers) = model_of(lp, clarabel);
     model
         .settings()
         .tol_feas(settings.tol)
         .tol_gap_abs(settings.tol)
         .tol_gap_rel(settings.tol)
         .max_iter(settings.max_iter);
-    for r in &lp.rows {
-        model.add_constraint(constraint_of(r, &vars));
-    }
-    // Finite upper bounds as explicit rows, so that their shadow prices are known.
-    let uppers: Vec<usize> = (0..lp.num_vars())
-        .filter(|&i| lp.upper[i].is_finite())
-        .collect();
-    for &i in &uppers {
-        model.add_constraint(Expression::from(vars[i]).leq(lp.upper[i]));
-    }
     let mut solver = model
         .try_into_solver()
         .map_err(|e| Error::Solver(format!("clarabel: {e}")))?;

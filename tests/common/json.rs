@@ -70,6 +70,29 @@ pub fn audit_json(network: &str, args: &[&str]) -> (Run, Value) {
     (run, doc)
 }
 
+/// Runs `audit FILE ARGS --quiet --json OUT` (it must exit 0) and returns the bytes of
+/// the JSON file it wrote, for byte-for-byte comparisons with a sharded, merged or
+/// resumed run.
+pub fn audit_bytes(network: &str, args: &[&str]) -> Vec<u8> {
+    let out = TempPath::new("audit-bytes", "json");
+    let mut all = vec!["audit", network];
+    all.extend_from_slice(args);
+    all.extend(["--quiet", "--json", out.path()]);
+    let run = redoubt(&all);
+    assert_eq!(run.code, 0, "audit {args:?} failed:\n{}", run.stderr);
+    std::fs::read(&out.0).unwrap()
+}
+
+/// Runs `compare BEFORE AFTER --quiet --json OUT` and returns the run (its exit code is
+/// the caller's to check: 1 means something got worse) and the comparison document.
+pub fn compare_json(before: &str, after: &str) -> (Run, Value) {
+    let out = TempPath::new("compare", "json");
+    let run = redoubt(&["compare", before, after, "--quiet", "--json", out.path()]);
+    assert!(run.code <= 1, "compare failed:\n{}", run.stderr);
+    let doc = out.read_json();
+    (run, doc)
+}
+
 /// Runs `plan FILE -q ARGS --json OUT` (it must exit 0) and returns the plan's total cost:
 /// the document's `cost`, or `plan.cost`, and the document.
 pub fn plan_json(network: &str, args: &[&str]) -> (f64, Value) {

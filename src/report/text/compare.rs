@@ -25,25 +25,15 @@ pub(crate) fn signed(x: f64) -> String {
 /// and better, the added and removed risks, the elements added and removed, the caution.
 /// `before`/`after` are the two baselines (with `--down`, the down states).
 pub fn write_compare(
-    w: &mut dyn Write,
+    out: &mut dyn Write,
     c: &crate::compare::Comparison,
     before: &Evaluation,
     after: &Evaluation,
     top: usize,
 ) -> io::Result<()> {
-    let mut buf = Vec::new();
-    compare_lines(&mut buf, c, before, after, top)?;
-    w.write_all(crate::report::screen::finish(&String::from_utf8_lossy(&buf)).as_bytes())
-}
-
-/// The lines of [`write_compare`] before they are wrapped to the screen width.
-pub(super) fn compare_lines(
-    w: &mut dyn Write,
-    c: &crate::compare::Comparison,
-    before: &Evaluation,
-    after: &Evaluation,
-    top: usize,
-) -> io::Result<()> {
+    // The lines, written here first, then wrapped to the screen width into `out`.
+    let mut buf: Vec<u8> = Vec::new();
+    let w = &mut buf;
     let u = &c.unit;
     writeln!(w, "{}", verdict_line(c))?;
     writeln!(
@@ -150,7 +140,8 @@ pub(super) fn compare_lines(
         first_k(c.elements_added.iter().cloned(), 10),
         first_k(c.elements_removed.iter().cloned(), 10)
     )?;
-    writeln!(w, "{}", crate::report::caution_of(c.chains))
+    writeln!(w, "{}", crate::report::caution_of(c.chains))?;
+    out.write_all(crate::report::screen::finish(&String::from_utf8_lossy(&buf)).as_bytes())
 }
 
 /// The section "What changed in the file": one row per changed field (`link:l3 capacity

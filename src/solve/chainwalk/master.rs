@@ -135,29 +135,18 @@ impl<'r, 'a> Master<'r, 'a> {
                 .keys()
                 .map(|&(v, f)| ((v, f), self.dual(RowKey::Function(v, f))))
                 .collect();
-            let u: Vec<f64> = (0..net.demands.len())
-                .map(|d| {
-                    if self.active[d] {
-                        self.dual(RowKey::Demand(d))
-                    } else {
-                        f64::INFINITY
-                    }
-                })
-                .collect();
-            let fixed_total: f64 = self.fixed.iter().flatten().map(|(_, f)| f).sum();
-            let value = self.lp.objective() + fixed_total;
+            let (u, value) = round::held_prices(
+                &self.active,
+                |d| self.dual(RowKey::Demand(d)),
+                self.lp.objective(),
+                &self.fixed,
+            );
             stats.rounds += 1;
             let p = self.rows.price(&y, &z, Some(&u));
             if p.bound - value <= GAP_TOL * self.rows.scale {
                 stats.generated += 1;
-                let mut flow: Vec<f64> = (0..self.walks.len())
-                    .map(|j| self.lp.value(j).max(0.0))
-                    .collect();
-                let mut walks = self.walks;
-                for (w, f) in self.fixed.into_iter().flatten() {
-                    walks.push(w);
-                    flow.push(f);
-                }
+                let lp = &self.lp;
+                let (walks, flow) = round::with_held(self.walks, |j| lp.value(j), self.fixed);
                 return Ok(Some(Solved {
                     value: flow.iter().sum(),
                     walks,

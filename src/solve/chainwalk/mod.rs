@@ -304,7 +304,7 @@ pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) ->
         (None, None)
     };
     Ok(Walked {
-        evaluation: chain::finish_chain(net, &view, cut_off, req_v, vol_v),
+        evaluation: super::finish_with(net, &view, cut_off, req_v, vol_v),
         basis: Basis {
             required: req_s,
             volume: vol_s,
@@ -324,12 +324,9 @@ impl Evaluator for ChainWalks {
     }
 
     fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>) -> Result<Evaluated> {
-        let parent = warm.and_then(|w| w.downcast_ref::<Basis>());
-        let w = evaluate_walks(net, outage, parent)?;
-        Ok(Evaluated {
-            evaluation: w.evaluation,
-            warm: Some(Box::new(w.basis)),
-            stats: w.stats,
+        Evaluated::warm_from(warm, |parent| {
+            let w = evaluate_walks(net, outage, parent)?;
+            Ok((w.evaluation, w.basis, w.stats))
         })
     }
 

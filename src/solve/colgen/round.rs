@@ -100,3 +100,35 @@ pub(crate) fn next_round<W: Eq + Hash>(
     }
     Some((wake, fresh))
 }
+
+/// The demand prices and the value of one round of a master that holds the walks of
+/// inactive demands at fixed flows: per demand `d`, `dual(d)` (its cap row's price) when
+/// `active[d]`, else `+∞` (a held demand cannot take more flow, so pricing offers it
+/// nothing); and the master's `objective` plus every fixed flow. O(demands + fixed walks).
+pub(crate) fn held_prices<W>(
+    active: &[bool],
+    dual: impl Fn(usize) -> f64,
+    objective: f64,
+    fixed: &[Vec<(W, f64)>],
+) -> (Vec<f64>, f64) {
+    let u: Vec<f64> = (0..active.len())
+        .map(|d| if active[d] { dual(d) } else { f64::INFINITY })
+        .collect();
+    let fixed_total: f64 = fixed.iter().flatten().map(|(_, f)| f).sum();
+    (u, objective + fixed_total)
+}
+
+/// Every walk of such a master with its flow: the columns `walks` at `value(j)` (cut at 0),
+/// then the fixed walks at their flows. O(walks).
+pub(crate) fn with_held<W>(
+    mut walks: Vec<W>,
+    value: impl Fn(usize) -> f64,
+    fixed: Vec<Vec<(W, f64)>>,
+) -> (Vec<W>, Vec<f64>) {
+    let mut flow: Vec<f64> = (0..walks.len()).map(|j| value(j).max(0.0)).collect();
+    for (w, f) in fixed.into_iter().flatten() {
+        walks.push(w);
+        flow.push(f);
+    }
+    (walks, flow)
+}

@@ -225,21 +225,13 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
 
     /// All walks (columns, then fixed walks) and their flows.
     pub(super) fn into_solution(self) -> (Vec<Walk>, Vec<f64>) {
-        let mut flow: Vec<f64> = (0..self.walks.len())
-            .map(|j| self.lp.value(j).max(0.0))
-            .collect();
-        let mut walks = self.walks;
-        for (w, f) in self.fixed.into_iter().flatten() {
-            walks.push(w);
-            flow.push(f);
-        }
-        (walks, flow)
+        let lp = &self.lp;
+        round::with_held(self.walks, |j| lp.value(j), self.fixed)
     }
 
     /// Rounds of master solve, pricing and activation until the dual bound meets the
     /// master's value.
     pub(super) fn run(mut self, stats: &mut Stats) -> Result<Warm> {
-        let net = self.g.net;
         let mut scale: Option<f64> = None;
         loop {
             let (rows, limit, cols) = (self.lp.rows(), self.lp.row_limit(), self.lp.cols());
@@ -254,17 +246,12 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
             }
             let y: Vec<f64> = self.arc_row.iter().map(|&r| self.dual(r)).collect();
             let z: Vec<f64> = self.site_row.iter().map(|&r| self.dual(r)).collect();
-            let u: Vec<f64> = (0..net.demands.len())
-                .map(|d| {
-                    if self.active[d] {
-                        self.dual(self.dem_row[d])
-                    } else {
-                        f64::INFINITY
-                    }
-                })
-                .collect();
-            let fixed_total: f64 = self.fixed.iter().flatten().map(|(_, f)| f).sum();
-            let value = self.lp.objective() + fixed_total;
+            let (u, value) = round::held_prices(
+                &self.active,
+                |d| self.dual(self.dem_row[d]),
+                self.lp.objective(),
+                &self.fixed,
+            );
             stats.rounds += 1;
             let p = price(self.g, self.caps, &y, &z, Some(&u));
             let s = *scale.get_or_insert_with(|| servable_total(self.caps, &p.cost).max(1.0));

@@ -111,7 +111,7 @@ pub fn recheck(net: &Network, outage: &Outage, e: &Evaluation) -> Result<(), Str
     {
         return Err("its shadow prices are not finite and nonnegative".into());
     }
-    // As `chain::finish_chain` shows it: the plainest number within NOISE of the delivered
+    // As `finish_with` shows it: the plainest number within NOISE of the delivered
     // volume at stake (Σ required · gain over the demands that are not stranded).
     let delivered = chain::delivered(net, &e.demand_flow);
     let at_stake: f64 = (0..nd)
