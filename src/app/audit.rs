@@ -115,10 +115,6 @@ pub(super) fn run(
                 "--routing nearest|steered",
             ),
             (args.headroom, "--headroom"),
-            (
-                matches!(args.engine, crate::solve::Engine::Approx { .. }),
-                "--engine approx",
-            ),
         ] {
             if given {
                 super::chains_refused(&net, &format!("audit {flag}"))?;
@@ -127,6 +123,9 @@ pub(super) fn run(
         if !args.scenarios.quiet {
             let how = match args.engine {
                 crate::solve::Engine::Edge => "the layered edge LP of service chains",
+                crate::solve::Engine::Approx { .. } => {
+                    "the (1−ε) engine on the layered walks of service chains"
+                }
                 _ => {
                     "the layered walk engine of service chains (`--engine edge`: the layered \
                      edge LP)"

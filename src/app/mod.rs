@@ -107,7 +107,7 @@ pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
         return Err(Error::Usage(format!(
             "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
              `redoubt audit` (best re-route, with or without --close, --why, --matrix, --shard \
-             or --resume; not --routing, --headroom or --engine approx), `redoubt merge`, \
+             or --resume; not --routing or --headroom), `redoubt merge`, \
              `redoubt compare` (not --headroom) and `redoubt plan` (best re-route; not \
              --routing) take so far"
         )));
