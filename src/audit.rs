@@ -251,13 +251,17 @@ pub fn probe(net: &Network, engine: Engine, sample: Option<&Scenario>) -> Result
 
 /// The evaluator of `net` with `engine`. When the file lists `functions`: the layered
 /// edge LP of service chains ([`crate::solve::chain::ChainEdge`]) with [`Engine::Edge`],
-/// else the layered walk engine ([`crate::solve::chainwalk::ChainWalks`]); otherwise
-/// [`evaluator()`].
+/// the (1−ε) engine on layered walks ([`crate::solve::chainwalk::approx::ChainApprox`])
+/// with [`Engine::Approx`], else the layered walk engine
+/// ([`crate::solve::chainwalk::ChainWalks`]); otherwise [`evaluator()`].
 pub fn evaluator_for(net: &Network, engine: Engine) -> Box<dyn Evaluator> {
     if net.chains.is_some() {
         match engine {
             Engine::Edge => Box::new(crate::solve::chain::ChainEdge),
-            _ => Box::new(crate::solve::chainwalk::ChainWalks),
+            Engine::Approx { epsilon } => {
+                Box::new(crate::solve::chainwalk::approx::ChainApprox { epsilon })
+            }
+            Engine::Walks => Box::new(crate::solve::chainwalk::ChainWalks),
         }
     } else {
         evaluator(engine)

@@ -453,19 +453,3 @@ fn compare_lists_function_changes() {
     );
 }
 
-#[test]
-fn commands_that_do_not_take_chains_yet_say_so() {
-    let file = TempPath::with_text("chains-refuse", &two_function_path(8.0, 0.5).to_string());
-    for args in [
-        vec!["audit", file.path(), "--headroom"],
-        vec!["audit", file.path(), "--engine", "approx"],
-    ] {
-        let run = redoubt(&args);
-        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
-        assert!(
-            run.stderr.contains("`functions`"),
-            "{args:?}: {}",
-            run.stderr
-        );
-    }
-}

@@ -509,18 +509,3 @@ fn compare_lists_a_changed_chain() {
     );
 }
 
-/// What chain files are still refused, with a message that names `functions` and lists
-/// what takes them (compare and merge among them now; `--why` and `--headroom` are taken).
-#[test]
-fn what_chain_files_still_refuse_says_so() {
-    let mut rng = StdRng::seed_from_u64(11);
-    let t = random_net(&mut rng);
-    let file = TempPath::with_text("chain-refuse", &t.to_json().to_string());
-    for args in [vec!["audit", file.path(), "--engine", "approx"]] {
-        let run = redoubt(&args);
-        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
-        for needle in ["`functions`", "`redoubt compare`", "`redoubt merge`"] {
-            assert!(run.stderr.contains(needle), "{args:?}: {}", run.stderr);
-        }
-    }
-}

@@ -300,18 +300,6 @@ fn files_without_functions_have_no_function_purchases() {
     assert!(plan["plan"].get("add_functions").is_none(), "{plan}");
 }
 
-#[test]
-fn what_chains_still_refuse_says_so() {
-    let file = TempPath::with_text("chain-refuse", &short_by_three().to_string());
-    for args in [vec!["audit", file.path(), "--engine", "approx"]] {
-        let run = redoubt(&args);
-        assert_eq!(run.code, 2, "{args:?}: {}", run.stderr);
-        for needle in ["`functions`", "redoubt plan", "--close"] {
-            assert!(run.stderr.contains(needle), "{args:?}: {}", run.stderr);
-        }
-    }
-}
-
 // ---------------------------------------------------------------------------------------
 // Reference: per-demand layered LPs with purchase variables on microlp.
 // ---------------------------------------------------------------------------------------

@@ -19,11 +19,16 @@ mod common;
 #[path = "common/reference.rs"]
 mod reference_common;
 
+#[path = "../benches/common/mod.rs"]
+mod generator;
+
 use std::collections::BTreeMap;
 use std::path::Path;
+use std::process::{Command, Stdio};
+use std::time::{Duration, Instant};
 
 use common::json::{failed_of, num, scenarios};
-use common::{TempPath, fixture, redoubt, s};
+use common::{TempPath, fixture, journal_lines, redoubt, s, tail};
 use rand::prelude::*;
 use redoubt::audit::RunOptions;
 use redoubt::model::Network;
@@ -307,4 +312,183 @@ fn large_walk_master_agrees_with_the_pure_rust_path() {
         );
     }
     assert_eq!(want.len(), t.links.len() + 1, "baseline and every link");
+}
+
+/// How long `redoubt ARGS` took to write the first scenario to its journal, and how long it
+/// took to exit after SIGINT, sent `settle` after that; with its exit status and stderr.
+struct Interrupted {
+    ready_after: Duration,
+    stop_after: Duration,
+    code: i32,
+    stderr: String,
+}
+
+/// Runs `redoubt ARGS` (with `--json` whose journal is `journal`), waits until the journal
+/// holds `lines` lines, lets the solves run `settle` more, sends SIGINT (coreutils' `kill`)
+/// and times the exit. Panics when the journal never gets there, or when the process is
+/// still running `limit` after the signal (it is killed first).
+fn interrupt_timed(
+    args: &[&str],
+    journal: &Path,
+    lines: usize,
+    settle: Duration,
+    limit: Duration,
+) -> Interrupted {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_redoubt"))
+        .args(args)
+        .env_remove("RUST_BACKTRACE")
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the redoubt binary starts");
+    let mut stderr = child.stderr.take().expect("piped stderr");
+    let reader = std::thread::spawn(move || {
+        let mut text = String::new();
+        let _ = std::io::Read::read_to_string(&mut stderr, &mut text);
+        text
+    });
+    let start = Instant::now();
+    while journal_lines(journal) < lines {
+        if child.try_wait().expect("wait").is_some() || start.elapsed().as_secs() > 900 {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!(
+                "the journal never reached {lines} lines:\n{}",
+                reader.join().unwrap_or_default()
+            );
+        }
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    let ready_after = start.elapsed();
+    std::thread::sleep(settle);
+    assert!(
+        child.try_wait().expect("wait").is_none(),
+        "the run must still be solving when the signal comes"
+    );
+    let kill = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .expect("kill runs");
+    assert!(kill.success());
+    let signalled = Instant::now();
+    let status = loop {
+        if let Some(status) = child.try_wait().expect("wait") {
+            break status;
+        }
+        if signalled.elapsed() > limit {
+            let _ = child.kill();
+            let _ = child.wait();
+            panic!("redoubt {args:?} still running {limit:?} after SIGINT");
+        }
+        std::thread::sleep(Duration::from_millis(5));
+    };
+    let stop_after = signalled.elapsed();
+    Interrupted {
+        ready_after,
+        stop_after,
+        code: status.code().unwrap_or(-1),
+        stderr: reader.join().expect("stderr reader"),
+    }
+}
+
+/// Ctrl-C while HiGHS is in the middle of a long solve. The network (the benches'
+/// generator, deterministic: 100 sites on a ring with random chords, 200 links, 2,000
+/// random demands each requiring its whole volume, processing at every tenth site, two
+/// shared-risk groups of two links) makes each source-aggregated edge LP large (100
+/// sources × 400 arcs × 2 layers), so one HiGHS solve lasts seconds; `--engine edge
+/// --kinds groups` solves one outage first (the run's timed sample, the first group
+/// failure, before the journal is opened: the time until the journal's first scenario
+/// line is about one solve), then the other two outages in parallel, one HiGHS solve
+/// each in flight when SIGINT comes half a second later.
+///
+/// Without the interrupt callback the process would run on until those solves end, about
+/// the sample's time less the half second; with it, HiGHS gives up within one simplex
+/// iteration. Asserted: exit 130 (128 + SIGINT, the
+/// POSIX shell convention, common practice, no source) within 2 s, or within a quarter of
+/// the sample's time when the machine is so loaded that a quarter solve is longer; the
+/// journal whole (its header and the sample's line, each a complete JSON line, as many as
+/// the message says are saved), and `--resume` from it restores that line without
+/// ignoring any and finishes with every scenario proven by its independent bounds.
+#[test]
+#[ignore = "slow tier: cargo test --release -- --ignored"]
+fn ctrl_c_stops_a_long_highs_solve_promptly_with_a_whole_journal() {
+    let procs: Vec<(usize, f64)> = (0..100).step_by(10).map(|i| (i, 200.0)).collect();
+    let mut doc = generator::document(100, 100, 200, generator::Demands::Random(2000), &procs, 2);
+    // Every demand requires its whole volume: one LP per outage (no throughput LP).
+    for d in doc["demands"].as_array_mut().expect("demands") {
+        d["required"] = d["volume"].clone();
+    }
+    let net = TempPath::with_text("highs-interrupt", &doc.to_string());
+    let out = TempPath::new("highs-interrupt", "json");
+    let journal = format!("{}.journal", out.path());
+    let args = [
+        "audit",
+        net.path(),
+        "--engine",
+        "edge",
+        "--kinds",
+        "groups",
+        "--yes",
+        "--json",
+        out.path(),
+    ];
+    let settle = Duration::from_millis(500);
+    let run = interrupt_timed(
+        &args,
+        Path::new(&journal),
+        2,
+        settle,
+        Duration::from_secs(600),
+    );
+    let bound = Duration::from_secs(2).max(run.ready_after / 4);
+    println!(
+        "sample solved after {:.2} s; exit {} {:.2} s after SIGINT (bound {:.2} s)",
+        run.ready_after.as_secs_f64(),
+        run.code,
+        run.stop_after.as_secs_f64(),
+        bound.as_secs_f64()
+    );
+    // The test tells the two apart only when a solve left running (about the sample's
+    // time, less the settling time) would outlast the bound.
+    assert!(
+        run.ready_after.saturating_sub(settle) > bound,
+        "the sample took only {:?}: too small a network to keep HiGHS busy past the bound",
+        run.ready_after
+    );
+    assert_eq!(run.code, 130, "{}", tail(&run.stderr, 2000));
+    assert!(
+        run.stop_after <= bound,
+        "exit {:?} after SIGINT, bound {bound:?}",
+        run.stop_after
+    );
+    assert!(
+        run.stderr.contains("1 of 3 outages saved"),
+        "{}",
+        run.stderr
+    );
+    let text = std::fs::read_to_string(&journal).expect("the journal is kept");
+    assert!(text.ends_with('\n'), "the journal ends with a whole line");
+    assert_eq!(text.lines().count(), 2, "the header and the sample");
+    for line in text.lines() {
+        serde_json::from_str::<serde_json::Value>(line).expect("each line is whole JSON");
+    }
+    assert!(
+        !Path::new(out.path()).exists(),
+        "no JSON from an interrupted run"
+    );
+    let mut resume = args.to_vec();
+    resume.push("--resume");
+    let resumed = redoubt(&resume);
+    assert_eq!(resumed.code, 0, "{}", tail(&resumed.stderr, 2000));
+    assert!(
+        resumed.stderr.contains("resuming: 1 of 3 outages restored")
+            && !resumed.stderr.contains("ignored"),
+        "{}",
+        resumed.stderr
+    );
+    let doc = out.read_json();
+    assert_eq!(scenarios(&doc).len(), 3, "baseline and both groups");
+    for sc in scenarios(&doc) {
+        assert_eq!(sc["verification"]["status"], "proven", "{sc}");
+    }
 }

@@ -108,35 +108,22 @@ pub(super) fn run(
     let (net, text) = read_network(input)?;
     let list = scenario_list(&net, &args.scenarios, args.fail.as_deref())?;
     let opts = run_options(&args.scenarios, err);
-    if net.chains.is_some() {
-        for (given, flag) in [
-            (
-                args.headroom && args.scenarios.routing.is_none(),
-                "--headroom",
-            ),
-            (
-                matches!(args.engine, crate::solve::Engine::Approx { .. }),
-                "--engine approx",
-            ),
-        ] {
-            if given {
-                super::chains_refused(&net, &format!("audit {flag}"))?;
+    if net.chains.is_some() && !args.scenarios.quiet {
+        let how = match (args.scenarios.routing, args.engine) {
+            (Some(_), _) => "the fixed routes of each chain's legs (routing as deployed)",
+            (None, crate::solve::Engine::Edge) => "the layered edge LP of service chains",
+            (None, crate::solve::Engine::Approx { .. }) => {
+                "the (1−ε) engine on the layered walks of service chains"
             }
-        }
-        if !args.scenarios.quiet {
-            let how = match (args.scenarios.routing, args.engine) {
-                (Some(_), _) => "the fixed routes of each chain's legs (routing as deployed)",
-                (None, crate::solve::Engine::Edge) => "the layered edge LP of service chains",
-                _ => {
-                    "the layered walk engine of service chains (`--engine edge`: the layered \
-                     edge LP)"
-                }
-            };
-            note(writeln!(
-                err,
-                "note: the file lists `functions`: every scenario is solved with {how}"
-            ));
-        }
+            _ => {
+                "the layered walk engine of service chains (`--engine edge`: the layered \
+                 edge LP)"
+            }
+        };
+        note(writeln!(
+            err,
+            "note: the file lists `functions`: every scenario is solved with {how}"
+        ));
     }
     if let Some(mode) = args.scenarios.routing {
         if args.close && mode == routing::Mode::Nearest {

@@ -99,23 +99,6 @@ fn note(r: io::Result<()>) {
     let _ = r;
 }
 
-/// Refuses `what` on a network whose file lists `functions` (service chains), naming what
-/// takes such files so far: `check`, `audit` (best re-route with `--close`, `--why`,
-/// `--matrix`, `--shard`, `--resume`; `--routing nearest|steered`), `merge`, `compare` and
-/// `plan` (best re-route or `--routing steered`).
-pub(crate) fn chains_refused(net: &Network, what: &str) -> Result<()> {
-    if net.chains.is_some() {
-        return Err(Error::Usage(format!(
-            "{what}: the file lists `functions` (service chains), which only `redoubt check`, \
-             `redoubt audit` (best re-route, with or without --close, --why, --matrix, --shard, \
-             --resume or --headroom; --routing nearest|steered, with --headroom, and --close \
-             under steered; not --engine approx), `redoubt merge`, `redoubt compare`, \
-             `redoubt worst` and `redoubt plan` (best re-route or --routing steered) take so far"
-        )));
-    }
-    Ok(())
-}
-
 /// The refusal of a purchase (`plan`, `audit --close`) on the nearest-site model.
 pub(crate) fn nearest_refused(what: &str) -> crate::error::Error {
     crate::error::Error::Usage(format!(

@@ -4,7 +4,8 @@
 //!
 //! Polled by the walk engine between rounds and inside its repairs, by the warm simplex
 //! at every pivot, by clarabel at every interior-point iteration (its termination
-//! callback), and by every backend ladder before each attempt. A solve that sees the flag
+//! callback), by HiGHS at every simplex iteration (its user interrupt callback, with the
+//! `highs` feature: `solve::highs`), and by every backend ladder before each attempt. A solve that sees the flag
 //! returns [`Error::Interrupted`]; nothing half-solved is returned as a result, so a
 //! journal only ever holds complete scenarios.
 

@@ -10,6 +10,10 @@
 //!   model and it is re-solved from its last basis (a new column enters nonbasic at 0, a
 //!   new row with its slack basic), so a round of column generation costs a few pivots.
 //!
+//! Both stop within one simplex iteration of Ctrl-C: every HiGHS instance carries the
+//! user interrupt callback [`stop_when_asked`], which reads [`cancel::requested`]; the
+//! abandoned solve returns [`Error::Interrupted`], so nothing half-solved is journaled.
+//!
 //! Neither is trusted: every answer goes through the same residual, repair and dual-bound
 //! checks as any backend's ([`super::verify`], [`super::certify`]).
 //!
@@ -18,10 +22,12 @@
 //! objective it optimises, so the same convention holds for a maximisation and a
 //! minimisation; the unit tests check it on hand-solved LPs of each sense and row kind.
 
+use std::ffi::{c_char, c_int, c_void};
 use std::sync::atomic::{AtomicBool, Ordering};
 
 use highs::{ColProblem, HighsModelStatus, Model, SolvedModel};
 
+use super::cancel;
 use super::lp::{Backend, Lp, LpSolution, Sense, scaled};
 use super::simplex::Column;
 use crate::error::{Error, Result};
@@ -53,12 +59,58 @@ pub const HIGHS: Highs = Highs;
 /// tighter than HiGHS's default 1e-7, so that the answers usually pass the residual check
 /// ([`crate::tol::RESIDUAL_TOL`]) on the first rung.
 fn configure(model: &mut Model) {
+    watch_interrupts(model);
     model.make_quiet();
     model.set_option("solver", "simplex");
     model.set_option("simplex_strategy", 1);
     model.set_option("threads", 1);
     model.set_option("primal_feasibility_tolerance", 1e-9);
     model.set_option("dual_feasibility_tolerance", 1e-9);
+}
+
+/// HiGHS's user callback: called by the simplex once per iteration (and by the interior
+/// point once per iteration), it asks HiGHS to stop when [`cancel::requested`]; HiGHS then
+/// returns with model status `Interrupt`, which [`interrupted_or`] turns into
+/// [`Error::Interrupted`]. O(1): one atomic load. Reads nothing behind its pointers but
+/// `data_in`, which HiGHS passes valid for the call.
+unsafe extern "C" fn stop_when_asked(
+    kind: c_int,
+    _message: *const c_char,
+    _data_out: *const highs_sys::HighsCallbackDataOut,
+    data_in: *mut highs_sys::HighsCallbackDataIn,
+    _user: *mut c_void,
+) {
+    let interrupt_kind = kind == highs_sys::kHighsCallbackSimplexInterrupt
+        || kind == highs_sys::kHighsCallbackIpmInterrupt;
+    if interrupt_kind && !data_in.is_null() && cancel::requested() {
+        // SAFETY: HiGHS passes a live `HighsCallbackDataIn` for the duration of the call.
+        unsafe { (*data_in).user_interrupt = 1 };
+    }
+}
+
+/// Installs [`stop_when_asked`] on `model`'s HiGHS instance for the simplex and interior
+/// point iterations, so that Ctrl-C stops a long solve within one iteration instead of at
+/// its end. The callback holds no state (its user pointer is null), and it stays with the
+/// instance through every solve and edit of a [`WarmLp`]. O(1).
+fn watch_interrupts(model: &mut Model) {
+    let highs = model.as_mut_ptr();
+    // SAFETY: `highs` is the live HiGHS instance owned by `model`; the callback is a plain
+    // function with no captured state, and its user data pointer is null.
+    let ok = unsafe {
+        highs_sys::Highs_setCallback(highs, Some(stop_when_asked), std::ptr::null_mut()) == 0
+            && highs_sys::Highs_startCallback(highs, highs_sys::kHighsCallbackSimplexInterrupt) == 0
+            && highs_sys::Highs_startCallback(highs, highs_sys::kHighsCallbackIpmInterrupt) == 0
+    };
+    debug_assert!(ok, "HiGHS accepts the interrupt callback");
+}
+
+/// `Error::Interrupted` when a stop was asked for (HiGHS gave up because of it, or its
+/// answer is no longer wanted), else the solver error `what`.
+fn interrupted_or(what: String) -> Error {
+    match cancel::check() {
+        Err(e) => e,
+        Ok(()) => Error::Solver(what),
+    }
 }
 
 /// The row bounds of a row of sense `sense` and right-hand side `rhs`.
@@ -70,12 +122,32 @@ fn row_bounds(sense: Sense, rhs: f64) -> (f64, f64) {
     }
 }
 
-/// Maps a finished HiGHS run to its model, or to [`Error::Solver`] when it is not optimal.
-fn optimal(solved: SolvedModel) -> Result<SolvedModel> {
-    match solved.status() {
-        HighsModelStatus::Optimal | HighsModelStatus::ModelEmpty => Ok(solved),
-        other => Err(Error::Solver(format!("highs: {other:?}"))),
+/// Whether a finished HiGHS run reached an optimum (or had nothing to solve); else the
+/// error to report: [`Error::Interrupted`] when a stop was asked for, else
+/// [`Error::Solver`] naming the model status. Reads HiGHS's raw status constant: the
+/// `highs` crate's `HighsModelStatus` has no value for an interrupted run (status 17) and
+/// panics on it. O(1).
+fn check_optimal(solved: &SolvedModel) -> Result<()> {
+    // SAFETY: the pointer is the live HiGHS instance owned by `solved`.
+    let status = unsafe { highs_sys::Highs_getModelStatus(solved.as_ptr()) };
+    if status == highs_sys::kHighsModelStatusOptimal
+        || status == highs_sys::kHighsModelStatusModelEmpty
+    {
+        return Ok(());
     }
+    let what = match status {
+        highs_sys::kHighsModelStatusInterrupt => "interrupted".to_string(),
+        other => match HighsModelStatus::try_from(other) {
+            Ok(known) => format!("{known:?}"),
+            Err(_) => format!("model status {other}"),
+        },
+    };
+    Err(interrupted_or(format!("highs: {what}")))
+}
+
+/// Maps a finished HiGHS run to its model, or to the error of [`check_optimal`].
+fn optimal(solved: SolvedModel) -> Result<SolvedModel> {
+    check_optimal(&solved).map(|()| solved)
 }
 
 /// Solves `lp` (already scaled) with HiGHS's dual simplex from scratch. Row prices are
@@ -112,7 +184,7 @@ fn solve_cold(lp: &Lp) -> Result<LpSolution> {
     configure(&mut model);
     let solved = model
         .try_solve()
-        .map_err(|e| Error::Solver(format!("highs: {e:?}")))?;
+        .map_err(|e| interrupted_or(format!("highs: {e:?}")))?;
     let solved = optimal(solved)?;
     let sol = solved.get_solution();
     let x = sol.columns().to_vec();
@@ -262,7 +334,8 @@ impl WarmLp {
     }
 
     /// Re-optimises from the last basis (dual simplex; primal simplex when only new
-    /// columns price out, as HiGHS chooses). Errors when HiGHS does not report an optimum.
+    /// columns price out, as HiGHS chooses). Errors when HiGHS does not report an optimum
+    /// ([`Error::Interrupted`] when Ctrl-C stopped it between two iterations).
     /// `_max_pivots` is accepted for the warm simplex's interface; HiGHS runs to its end.
     pub fn solve(&mut self, _max_pivots: usize) -> Result<()> {
         self.model();
@@ -271,35 +344,19 @@ impl WarmLp {
         };
         let solved = model
             .try_solve()
-            .map_err(|e| Error::Solver(format!("highs: {e:?}")))?;
-        let status = solved.status();
+            .map_err(|e| interrupted_or(format!("highs: {e:?}")))?;
+        if let Err(e) = check_optimal(&solved) {
+            self.state = State::Solved(solved);
+            return Err(e);
+        }
         let sol = solved.get_solution();
         self.state = State::Solved(solved);
-        if !matches!(
-            status,
-            HighsModelStatus::Optimal | HighsModelStatus::ModelEmpty
-        ) {
-            return Err(Error::Solver(format!("highs: {status:?}")));
-        }
         self.x = sol.columns().to_vec();
         self.y = sol.dual_rows().to_vec();
         Ok(())
     }
 
-    /// The value of column `j`.
-    pub fn value(&self, j: usize) -> f64 {
-        self.x[j]
-    }
-
-    /// The dual (shadow price) of row `i`, `≥ 0` at an optimum.
-    pub fn dual(&self, i: usize) -> f64 {
-        self.y[i]
-    }
-
-    /// `c·x` at the last solution.
-    pub fn objective(&self) -> f64 {
-        self.obj.iter().zip(&self.x).map(|(c, x)| c * x).sum()
-    }
+    super::simplex::point_accessors!();
 }
 
 #[cfg(test)]

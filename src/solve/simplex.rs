@@ -65,6 +65,31 @@ impl Column {
     }
 }
 
+/// The read side of a warm LP's last point, written once for the two warm LPs (this
+/// simplex and HiGHS's `WarmLp`), which both keep the objective in `obj`, the column
+/// values in `x` and the row duals (`c_B B⁻¹`) in `y`: `value(j)`, `dual(i)` (`≥ 0` at an
+/// optimum of a maximisation over `≤` rows) and `objective()` (`c·x`, O(columns)).
+macro_rules! point_accessors {
+    () => {
+        /// The value of column `j` at the last point. O(1).
+        pub fn value(&self, j: usize) -> f64 {
+            self.x[j]
+        }
+
+        /// The dual (shadow price) of row `i` at the last point, `≥ 0` at an optimum. O(1).
+        pub fn dual(&self, i: usize) -> f64 {
+            self.y[i]
+        }
+
+        /// `c·x` at the last point. O(columns).
+        pub fn objective(&self) -> f64 {
+            self.obj.iter().zip(&self.x).map(|(c, x)| c * x).sum()
+        }
+    };
+}
+#[cfg(feature = "highs")]
+pub(super) use point_accessors;
+
 /// The model, its current basis and point (see the module comment).
 #[derive(Debug, Clone, Default)]
 pub struct Simplex {
@@ -202,20 +227,7 @@ impl Simplex {
         self.refresh();
     }
 
-    /// The value of column `j`.
-    pub fn value(&self, j: usize) -> f64 {
-        self.x[j]
-    }
-
-    /// The dual (shadow price) of row `i`: `(c_B B⁻¹)_i`, `≥ 0` at an optimum.
-    pub fn dual(&self, i: usize) -> f64 {
-        self.y[i]
-    }
-
-    /// `c·x` at the current point.
-    pub fn objective(&self) -> f64 {
-        self.obj.iter().zip(&self.x).map(|(c, x)| c * x).sum()
-    }
+    point_accessors!();
 
     fn get(&self, v: Var) -> f64 {
         match v {

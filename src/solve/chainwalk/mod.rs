@@ -49,6 +49,7 @@
 //! in group and demand order, and a scenario depends only on the network, the outage and
 //! the parent's optimum, never on thread count.
 
+pub mod approx;
 mod carried;
 pub mod headroom;
 mod master;
