@@ -26,9 +26,10 @@
 //! to the parent's factor), so the master has a demand row only for the demands the
 //! outage touched; bundled demands whose walks the prices show to be dearer than their
 //! cheapest walk are freed and the master built again from its point (module `master`).
-//! The bound is priced over every active demand, so the optimum is the full one. Before any master is
-//! solved, the surviving columns and the parent's prices are verified on the outage as
-//! they are (one repair and one certificate): when no flow-carrying parent walk touches a
+//! The bound is priced over every active demand, so the optimum is the full one.
+//!
+//! Before any master is solved, the surviving columns and the parent's prices are
+//! verified on the outage as they are (one repair and one certificate): when no flow-carrying parent walk touches a
 //! failed element and the surviving demands are the same, they prove the parent's λ
 //! without an LP. Otherwise the flow the outage cuts is re-routed greedily (the walk
 //! engine's repair: shortest-hop augmenting walks through what the surviving walks leave)

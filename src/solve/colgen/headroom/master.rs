@@ -106,8 +106,8 @@ pub(super) fn bundle_of(
             member[d] = false;
         }
     }
-    let (inside, cols): (Vec<(Walk, f64)>, Vec<(Walk, f64)>) =
-        start.into_iter().partition(|(w, _)| member[w.demand]);
+    type Flows = Vec<(Walk, f64)>;
+    let (inside, cols): (Flows, Flows) = start.into_iter().partition(|(w, _)| member[w.demand]);
     let walks = inside
         .into_iter()
         .map(|(w, f)| {
