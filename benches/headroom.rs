@@ -61,11 +61,17 @@ fn case(name: &str, net: &Network, kinds: Kinds, quick: bool) {
     let (_, cols, _) = concurrent::headroom_walks(net, &base_view, None).expect("baseline");
     let (mut inherited, mut repaired, mut generated, mut fallback, mut trivial, mut rounds) =
         (0, 0, 0, 0, 0, 0);
+    let (mut solves, mut gen_s, mut bundled, mut freed, mut lowered) = (0, 0.0, 0, 0, 0);
     let t = Instant::now();
     for o in &a.outages {
         let view = Surviving::new(net, o, None);
+        let t1 = Instant::now();
         let (_, _, w) = concurrent::headroom_walks(net, &view, cols.as_ref()).expect("solves");
+        let s1 = t1.elapsed().as_secs_f64();
         rounds += w.walks.rounds;
+        solves += w.walks.lp_solves;
+        bundled += usize::from(w.walks.bundled > 0 && w.walks.lp_solves > 0);
+        freed += w.walks.freed;
         if w.trivial {
             trivial += 1;
         } else if w.fallback {
@@ -74,13 +80,19 @@ fn case(name: &str, net: &Network, kinds: Kinds, quick: bool) {
             inherited += 1;
         } else if w.walks.repaired {
             repaired += 1;
+        } else if w.walks.lowered {
+            lowered += 1;
         } else {
             generated += 1;
+            gen_s += s1;
         }
     }
     println!(
-        "  one thread: {:.2} s | inherited {inherited}, repaired {repaired}, column generation {generated} \
-         ({rounds} pricing rounds in all), edge λ-LP fallback {fallback}, no LP {trivial}",
+        "  one thread: {:.2} s | inherited {inherited}, repaired {repaired}, \
+         lowered {lowered}, column generation {generated} \
+         ({gen_s:.2} s; {rounds} pricing rounds, {solves} master solves in all; {bundled} with a bundle, \
+         {freed} rebuilds freeing bundled demands), edge λ-LP fallback {fallback}, \
+         no LP {trivial}",
         t.elapsed().as_secs_f64()
     );
     if quick {

@@ -20,16 +20,26 @@
 //!
 //! **Start.** The columns of a parent (the baseline's optimum) that survive the outage, at
 //! their flows (scaled down uniformly if the outage's presolved capacities are smaller),
-//! with λ at 0; a first simplex pivot raises λ to what they serve. Before any master is
-//! solved, the surviving columns and the parent's prices are verified on the outage as
-//! they are (one repair and one certificate): when no flow-carrying parent walk touches a
+//! with λ at what they serve (a feasible point, so the simplex starts from it). The
+//! demands whose flow-carrying parent walks all survive are held in one bundle at a
+//! common factor θ (one column and one row `λ − θ ≤ 0` for all of them, their walks scaled
+//! to the parent's factor), so the master has a demand row only for the demands the
+//! outage touched; bundled demands whose walks the prices show to be dearer than their
+//! cheapest walk are freed and the master built again from its point (module `master`).
+//! The bound is priced over every active demand, so the optimum is the full one.
+//!
+//! Before any master is solved, the surviving columns and the parent's prices are
+//! verified on the outage as they are (one repair and one certificate): when no flow-carrying parent walk touches a
 //! failed element and the surviving demands are the same, they prove the parent's λ
 //! without an LP. Otherwise the flow the outage cuts is re-routed greedily (the walk
 //! engine's repair: shortest-hop augmenting walks through what the surviving walks leave)
 //! until every active demand is back at the parent's factor; when it all fits, the parent's
 //! prices on the outage prove it, again without an LP (an outage can only lower λ when
-//! the surviving demands are the same). What the repair found starts the master when they
-//! do not.
+//! the surviving demands are the same). When it does not fit, the parent's prices still
+//! bound this outage's λ (the certificate's quotient on the outage); every demand is then
+//! brought to that bound instead (its surviving walks scaled down to it first, the rest
+//! re-routed the same way), and when that fits the same prices prove it, again without an
+//! LP. What the repair found starts the master when they do not.
 //!
 //! **Verification** (independent of the master): the walks, split back onto the real links,
 //! are scaled into the real capacities ([`crate::solve::verify::repair_walks`]); the least
@@ -42,15 +52,12 @@
 //! Determinism: walks are added in demand order and the simplex is deterministic, so the
 //! answer depends only on the network, the outage and the parent.
 
-use std::collections::HashSet;
+mod master;
 
-use super::warm::{MasterLp, large_master_lp};
-use super::{GAP_TOL, Graph, MAX_ROUNDS, Solved, WARM_ROWS, Walk, price};
+use super::{Graph, Solved, Walk, price};
 use crate::error::Result;
 use crate::model::Network;
 use crate::solve::concurrent::{Headroom, Setup, decide, upper_bound};
-use crate::solve::simplex::Column;
-use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
 
 /// A verified headroom optimum in real arcs: its walks with flows and the prices that
@@ -73,10 +80,19 @@ pub struct Work {
     /// Decided without a master by the parent's surviving columns with the cut flow
     /// re-routed greedily, certified by the parent's prices.
     pub repaired: bool,
+    /// Decided without a master by every demand brought to the bound of the parent's
+    /// prices on this outage (below the parent's factor): surviving walks scaled down,
+    /// the rest re-routed greedily; certified by those prices.
+    pub lowered: bool,
     /// Master solves.
     pub lp_solves: usize,
     /// Pricing rounds.
     pub rounds: usize,
+    /// Active demands the first master held in its bundle (walks the outage left whole,
+    /// one common factor; see `master`).
+    pub bundled: usize,
+    /// Masters built again because bundled demands had to be freed.
+    pub freed: usize,
 }
 
 /// The headroom of the outage `view` by column generation (module documentation), from
@@ -120,40 +136,43 @@ pub fn solve(
         // The parent's walks the outage cut, re-routed greedily through what the surviving
         // walks leave (each demand back to the parent's factor); proven by the parent's
         // prices when nothing was lost for good.
-        if let Some((h, cols)) = repaired(&g, net, view, setup, &real_caps, p, &start) {
+        let upper = h.upper;
+        if let Some((h, cols)) = repaired(&g, net, view, setup, &real_caps, p, &start, None) {
             if h.proven {
                 work.repaired = true;
                 return Ok(Some((h, cols)));
             }
-            start = cols.walks.into_iter().zip(cols.flow).collect();
+            // The parent's prices bound this outage's λ by `upper`, below the parent's
+            // factor: every demand brought to `upper` instead (surviving walks scaled down
+            // first, which frees room); proven by the same prices when it all fits.
+            let lowered = repaired(&g, net, view, setup, &real_caps, p, &start, Some(upper));
+            match lowered {
+                Some((h, cols)) if h.proven => {
+                    work.lowered = true;
+                    return Ok(Some((h, cols)));
+                }
+                _ => start = cols.walks.into_iter().zip(cols.flow).collect(),
+            }
         }
     }
 
-    let rows = g.usable.len() + g.procs.len() + setup.active.len();
-    let lp: Box<dyn MasterLp> = if rows <= WARM_ROWS {
-        Box::new(Simplex::new())
-    } else {
-        match large_master_lp() {
-            Some(lp) => lp,
-            None => return Ok(None),
-        }
-    };
     // Class arcs carry their class's capacity.
     let arc_cap: Vec<f64> = g.class_cap.iter().map(|c| c.min(2.0 * limit)).collect();
     let site_cap: Vec<f64> = net.sites.iter().map(|s| s.processing.min(limit)).collect();
-    let mut m = Master::new(&g, setup, arc_cap, site_cap, lp);
-    // Start columns in class arcs, scaled into the presolved capacities if need be.
+    // Start columns in class arcs; the demands the outage left whole go into the bundle.
     let lifted: Vec<(Walk, f64)> = start
         .iter()
         .filter_map(|(w, f)| g.lift(w).map(|w| (w, *f)))
         .collect();
-    let factor = m.fit(&lifted);
-    for (w, f) in lifted {
-        m.column(w, f * factor);
-    }
-    // Every active demand gets its cheapest walk at the parent's prices (zero prices
-    // without a parent) as a column at 0, so the first master serves them all; without
-    // these, each round would price only the demands its degenerate duals name.
+    let (cols, bundle) = match parent {
+        Some(p) => master::bundle_of(&g, setup, p, lifted),
+        None => (lifted, master::Bundle::empty(net.demands.len())),
+    };
+    work.bundled = bundle.member.iter().filter(|&&m| m).count();
+    // Every active demand outside the bundle gets its cheapest walk at the parent's prices
+    // (zero prices without a parent) as a column at 0, so the first master serves them
+    // all; without these, each round would price only the demands its degenerate duals
+    // name.
     let zero = (vec![0.0; net.arcs.len()], vec![0.0; net.sites.len()]);
     let (y0, z0) = match parent {
         Some(p) => (
@@ -175,20 +194,58 @@ pub fn solve(
             y0c[r] = y0c[r].min(y0[a]);
         }
     }
+    let mut seed_caps = caps.clone();
+    for (d, c) in seed_caps.iter_mut().enumerate() {
+        if bundle.member[d] {
+            *c = 0.0;
+        }
+    }
     let every = vec![f64::NEG_INFINITY; net.demands.len()];
     work.rounds += 1;
-    for w in price(&g, &caps, &y0c, &z0, Some(&every)).walks {
-        m.column(w, 0.0);
-    }
-    m.run(net, view, setup, &real_caps, &caps, work)
+    let mut cols = cols;
+    cols.extend(
+        price(&g, &seed_caps, &y0c, &z0, Some(&every))
+            .walks
+            .into_iter()
+            .map(|w| (w, 0.0)),
+    );
+    let cg = master::Generation {
+        g: &g,
+        setup,
+        arc_cap,
+        site_cap,
+        caps: &caps,
+    };
+    let Some((walks, flow, y, z)) = cg.run(cols, bundle, work)? else {
+        return Ok(None);
+    };
+    let solved = g.split(Solved {
+        walks,
+        flow,
+        value: 0.0,
+        arc_price: y,
+        site_price: z,
+    });
+    let cols = Columns {
+        walks: solved.walks,
+        flow: solved.flow,
+        arc_price: solved.arc_price,
+        site_price: solved.site_price,
+    };
+    let h = certified(net, view, setup, &real_caps, &cols);
+    Ok(h.proven.then_some((h, cols)))
 }
 
-/// The parent's columns on the outage with the flow the outage cuts re-routed: the parent's
-/// factor `λp = min_d parent flow_d / required_d` over the outage's active demands, each
-/// demand's shortfall `λp·required_d − surviving flow_d` re-routed by the walk engine's
+/// The parent's columns on the outage with the flow the outage cuts re-routed: a target
+/// factor, the parent's `λp = min_d parent flow_d / required_d` over the outage's active
+/// demands (`lower` = `None`), else `lower` when it is below `λp` (then each demand's
+/// surviving walks `start` are first scaled down to at most `lower·required_d`); each
+/// demand's shortfall `target·required_d − surviving flow_d` re-routed by the walk engine's
 /// greedy repair (shortest-hop augmenting walks through the residual capacity of the
-/// surviving walks `start`), then [`certified`] with the parent's prices. `None` when no
-/// active demand lost flow. O(augmentations · (sites + arcs) + one certificate).
+/// surviving walks), then [`certified`] with the parent's prices. `None` when no active
+/// demand lost flow, or `lower` is not below `λp`. O(augmentations · (sites + arcs) + one
+/// certificate).
+#[allow(clippy::too_many_arguments)]
 fn repaired(
     g: &Graph,
     net: &Network,
@@ -197,16 +254,22 @@ fn repaired(
     real_caps: &(Vec<f64>, Vec<f64>),
     parent: &Columns,
     start: &[(Walk, f64)],
+    lower: Option<f64>,
 ) -> Option<(Headroom, Columns)> {
     let mut had = vec![0.0; net.demands.len()];
     for (w, &f) in parent.walks.iter().zip(&parent.flow) {
         had[w.demand] += f.max(0.0);
     }
-    let target = setup
+    let parent_factor = setup
         .active
         .iter()
         .map(|&d| had[d] / setup.required[d])
         .fold(f64::INFINITY, f64::min);
+    let target = match lower {
+        None => parent_factor,
+        Some(l) if l < parent_factor => l,
+        Some(_) => return None,
+    };
     if !(target.is_finite() && target > 0.0) {
         return None;
     }
@@ -214,10 +277,25 @@ fn repaired(
     let mut flow: Vec<f64> = Vec::with_capacity(start.len());
     let mut kept = vec![0.0; net.demands.len()];
     for (w, f) in start {
-        if let Some(c) = g.lift(w) {
+        if g.lift(w).is_some() {
             kept[w.demand] += f;
+        }
+    }
+    // With a lowered target, each demand's surviving walks carry at most its share.
+    let mut shrink = vec![1.0; net.demands.len()];
+    if lower.is_some() {
+        for &d in &setup.active {
+            let want = target * setup.required[d];
+            if kept[d] > want {
+                shrink[d] = want / kept[d];
+                kept[d] = want;
+            }
+        }
+    }
+    for (w, f) in start {
+        if let Some(c) = g.lift(w) {
             walks.push(c);
-            flow.push(*f);
+            flow.push(f * shrink[w.demand]);
         }
     }
     let mut lost = vec![0.0; net.demands.len()];
@@ -298,211 +376,4 @@ fn certified(
     )
     .min(setup.ceiling);
     decide(lower, upper, residual)
-}
-
-const NO_ROW: usize = usize::MAX;
-
-/// The restricted master kept by a warm LP (the bounded simplex, or HiGHS above
-/// [`WARM_ROWS`] rows with the `highs` feature): demand rows for every active demand,
-/// arc and site rows created when a column first needs them, λ as column 0.
-struct Master<'a, 'g> {
-    g: &'g Graph<'a>,
-    arc_cap: Vec<f64>,
-    site_cap: Vec<f64>,
-    lp: Box<dyn MasterLp>,
-    arc_row: Vec<usize>,
-    site_row: Vec<usize>,
-    dem_row: Vec<usize>,
-    /// Column `j + 1` is `walks[j]`.
-    walks: Vec<Walk>,
-    seen: HashSet<Walk>,
-}
-
-impl<'a, 'g> Master<'a, 'g> {
-    fn new(
-        g: &'g Graph<'a>,
-        setup: &Setup,
-        arc_cap: Vec<f64>,
-        site_cap: Vec<f64>,
-        mut lp: Box<dyn MasterLp>,
-    ) -> Self {
-        let net = g.net;
-        let mut dem_row = vec![NO_ROW; net.demands.len()];
-        let mut entries = Vec::with_capacity(setup.active.len());
-        for &d in &setup.active {
-            dem_row[d] = lp.add_row(0.0);
-            entries.push((dem_row[d], setup.required[d]));
-        }
-        lp.add_col(Column::new(1.0, 0.0, setup.ceiling, 0.0), entries);
-        Master {
-            g,
-            arc_cap,
-            site_cap,
-            lp,
-            arc_row: vec![NO_ROW; net.arcs.len()],
-            site_row: vec![NO_ROW; net.sites.len()],
-            dem_row,
-            walks: Vec::new(),
-            seen: HashSet::new(),
-        }
-    }
-
-    /// The largest factor ≤ 1 by which `start` (class arcs) fits the master's capacities.
-    /// O(Σ walk lengths).
-    fn fit(&self, start: &[(Walk, f64)]) -> f64 {
-        let net = self.g.net;
-        let mut arc_load = vec![0.0; net.arcs.len()];
-        let mut site_load = vec![0.0; net.sites.len()];
-        for (w, f) in start {
-            site_load[w.site] += f;
-            for &(a, k) in &w.arcs {
-                arc_load[a] += f64::from(k) * f;
-            }
-        }
-        let mut factor: f64 = 1.0;
-        for (load, cap) in arc_load
-            .iter()
-            .zip(&self.arc_cap)
-            .chain(site_load.iter().zip(&self.site_cap))
-        {
-            if *load > *cap {
-                factor = factor.min(cap / load);
-            }
-        }
-        // Rounding of the sums above: stay a few ulps inside.
-        factor * (1.0 - 8.0 * f64::EPSILON)
-    }
-
-    /// Adds walk `w` as a column at flow `f` (rows created as needed); a walk already
-    /// present is skipped.
-    fn column(&mut self, w: Walk, f: f64) {
-        if !self.seen.insert(w.clone()) {
-            return;
-        }
-        let mut entries = Vec::with_capacity(w.arcs.len() + 2);
-        for &(a, k) in &w.arcs {
-            if self.arc_row[a] == NO_ROW {
-                self.arc_row[a] = self.lp.add_row(self.arc_cap[a]);
-            }
-            entries.push((self.arc_row[a], f64::from(k)));
-        }
-        if self.site_row[w.site] == NO_ROW {
-            self.site_row[w.site] = self.lp.add_row(self.site_cap[w.site]);
-        }
-        entries.push((self.site_row[w.site], 1.0));
-        entries.push((self.dem_row[w.demand], -1.0));
-        let c = Column::new(0.0, 0.0, f64::INFINITY, f.max(0.0));
-        self.lp.add_col(c, entries);
-        self.walks.push(w);
-    }
-
-    fn dual(&self, row: usize) -> f64 {
-        if row == NO_ROW {
-            0.0
-        } else {
-            self.lp.dual(row).max(0.0)
-        }
-    }
-
-    /// Rounds of master solve and pricing until the dual bound meets λ; then the answer
-    /// verified on the real links.
-    fn run(
-        mut self,
-        net: &Network,
-        view: &Surviving,
-        setup: &Setup,
-        real_caps: &(Vec<f64>, Vec<f64>),
-        caps: &[f64],
-        work: &mut Work,
-    ) -> Result<Option<(Headroom, Columns)>> {
-        let scale = setup.total_required;
-        loop {
-            let (rows, limit) = (self.lp.rows(), self.lp.row_limit());
-            let solved = super::round::solve_round(rows, limit, true, |pivots| {
-                work.lp_solves += 1;
-                self.lp.solve(pivots)
-            })?;
-            if !solved {
-                return Ok(None);
-            }
-            let lambda = self.lp.value(0);
-            let y: Vec<f64> = self.arc_row.iter().map(|&r| scale * self.dual(r)).collect();
-            let z: Vec<f64> = self
-                .site_row
-                .iter()
-                .map(|&r| scale * self.dual(r))
-                .collect();
-            // Pricing's demand duals: a walk of d improves when u_d − c_d > PRICE_TOL,
-            // i.e. 1 − c_d − (1 − u_d) > PRICE_TOL.
-            let u: Vec<f64> = self
-                .dem_row
-                .iter()
-                .map(|&r| {
-                    if r == NO_ROW {
-                        f64::INFINITY
-                    } else {
-                        1.0 - scale * self.dual(r)
-                    }
-                })
-                .collect();
-            work.rounds += 1;
-            let p = price(self.g, caps, &y, &z, Some(&u));
-            let worth: f64 = self
-                .g
-                .usable
-                .iter()
-                .map(|&a| self.arc_cap[a] * y[a])
-                .sum::<f64>()
-                + self
-                    .g
-                    .procs
-                    .iter()
-                    .map(|&v| self.site_cap[v] * z[v])
-                    .sum::<f64>();
-            let priced: f64 = setup
-                .active
-                .iter()
-                .map(|&d| setup.required[d] * p.cost[d])
-                .sum();
-            let bound = if priced > 0.0 && priced.is_finite() {
-                (worth / priced).min(setup.ceiling)
-            } else {
-                setup.ceiling
-            };
-            if bound - lambda <= GAP_TOL * bound.max(f64::MIN_POSITIVE) {
-                let flow: Vec<f64> = (0..self.walks.len())
-                    .map(|j| self.lp.value(j + 1).max(0.0))
-                    .collect();
-                let solved = self.g.split(Solved {
-                    walks: self.walks,
-                    flow,
-                    value: lambda,
-                    arc_price: y,
-                    site_price: z,
-                });
-                let cols = Columns {
-                    walks: solved.walks,
-                    flow: solved.flow,
-                    arc_price: solved.arc_price,
-                    site_price: solved.site_price,
-                };
-                let h = certified(net, view, setup, real_caps, &cols);
-                return Ok(h.proven.then_some((h, cols)));
-            }
-            if work.rounds >= MAX_ROUNDS {
-                return Ok(None);
-            }
-            let fresh: Vec<Walk> = p
-                .walks
-                .into_iter()
-                .filter(|w| !self.seen.contains(w))
-                .collect();
-            if fresh.is_empty() {
-                return Ok(None);
-            }
-            for w in fresh {
-                self.column(w, 0.0);
-            }
-        }
-    }
 }
