@@ -452,4 +452,3 @@ fn compare_lists_function_changes() {
         ]
     );
 }
-

@@ -508,4 +508,3 @@ fn compare_lists_a_changed_chain() {
         ]
     );
 }
-

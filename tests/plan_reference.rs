@@ -374,6 +374,40 @@ fn walk_plans_match_microlp_reference_plan_lp() {
     assert!(bought >= 4, "only {bought} of 8 plans bought anything");
 }
 
+/// Source: the reference plan LP above (microlp), on networks with more demands than
+/// links fail under: 6 sites, 8 links, 7 or 8 demands, every single link failure, so
+/// most demands of a scenario are untouched by its failure and a cheaper plan may need
+/// them rerouted; the least cost and the least total shortfall must be the reference's,
+/// which keeps every demand free in every scenario.
+#[test]
+fn plans_with_many_demands_match_microlp_reference_plan_lp() {
+    let mut rng = StdRng::seed_from_u64(0x4e1d);
+    let mut bought = 0;
+    for case in 0..4 {
+        let net = random_net_of(&mut rng, 6..=6, 8..=8, 7..=8);
+        let (failed, _, cost, want) = close_all_checked(case, &net);
+        if cost > 0.0 {
+            bought += 1;
+        }
+        let budget = (want / 2.0).max(1.0);
+        let b = format!("{budget}");
+        let doc = product(&net, &["--budget", &b, "--objective", "total"]);
+        let total: f64 = doc["scenarios"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|s| s["shortfall_after"].as_f64().unwrap())
+            .sum();
+        let want_total = reference(&net, &failed, &Goal::Total(budget));
+        assert!(
+            near(total, want_total, net.required() * failed.len() as f64),
+            "case {case}: total shortfall {total} vs reference {want_total}\n{}",
+            net.to_json()
+        );
+    }
+    assert!(bought >= 2, "only {bought} of 4 plans bought anything");
+}
+
 /// Source: the reference plan LP above (microlp), on networks with many scenarios of
 /// which few bind a plan: 8 to 9 sites, 14 to 16 links, 8 to 10 demands, every single
 /// link failure. The product's master starts from a few scenarios and pulls in the ones

@@ -414,7 +414,7 @@ pub fn solve_caps(
 /// Evaluates one outage of a network with `functions` with the (1−ε) engine:
 /// [`solve_caps`] for served_required (and for throughput when some surviving demand
 /// offers more than it requires), turned into an [`Evaluation`] by
-/// `chain::finish_chain` like the other chain engines' results. `served_required` is
+/// [`crate::solve::finish_with`] like the other chain engines' results. `served_required` is
 /// the proven lower bound unless the interval closes, `upper_bound` the certificate's.
 /// Cost: one or two runs of [`solve_caps`].
 pub fn evaluate_approx(net: &Network, outage: &Outage, eps: f64) -> Result<Evaluation> {
@@ -433,7 +433,7 @@ pub fn evaluate_approx(net: &Network, outage: &Outage, eps: f64) -> Result<Evalu
     } else {
         None
     };
-    Ok(chain::finish_chain(net, &view, cut_off, req_v, vol_v))
+    Ok(super::super::finish_with(net, &view, cut_off, req_v, vol_v))
 }
 
 /// The evaluator of a network with `functions` by the (1−ε) engine (`--engine approx
