@@ -111,6 +111,22 @@ pub struct CsvArgs {
     pub name: String,
 }
 
+/// How much an audit's tables and JSON show (shared by `audit` and `merge`).
+#[derive(Debug, Args)]
+pub struct ShownArgs {
+    /// How many scenarios (and elements) the tables show.
+    #[arg(long, default_value_t = 15)]
+    pub top: usize,
+    /// In --json, write the per-demand lists (stranded, short and cut-off demands) of every
+    /// scenario; by default only the worst (--detail-top) carry them.
+    #[arg(long, conflicts_with = "detail_top")]
+    pub detail: bool,
+    /// In --json, how many of the worst scenarios carry the per-demand lists (default:
+    /// --top's value; 0: none but the baseline).
+    #[arg(long, value_name = "N")]
+    pub detail_top: Option<usize>,
+}
+
 #[derive(Debug, Args)]
 pub struct MergeArgs {
     /// The part files (`audit --shard I/N --json PART`), one per shard, in any order.
@@ -128,17 +144,8 @@ pub struct MergeArgs {
     /// Explain the worst scenario, as `audit --why`.
     #[arg(long)]
     pub why: bool,
-    /// How many scenarios (and elements) the tables show.
-    #[arg(long, default_value_t = 15)]
-    pub top: usize,
-    /// In --json, write the per-demand lists (stranded, short and cut-off demands) of every
-    /// scenario; by default only the worst (--detail-top) carry them.
-    #[arg(long, conflicts_with = "detail_top")]
-    pub detail: bool,
-    /// In --json, how many of the worst scenarios carry the per-demand lists (default:
-    /// --top's value; 0: none but the baseline).
-    #[arg(long, value_name = "N")]
-    pub detail_top: Option<usize>,
+    #[command(flatten)]
+    pub shown: ShownArgs,
 }
 
 // The help of every command ends with examples in one layout: a heading, then each
@@ -246,17 +253,8 @@ pub struct AuditArgs {
     /// Evaluate one named scenario instead, e.g. `link:X,site:Y,group:Z`.
     #[arg(long, value_name = "ELEMENTS", conflicts_with_all = ["depth", "kinds"])]
     pub fail: Option<String>,
-    /// How many scenarios (and elements) the tables show.
-    #[arg(long, default_value_t = 15)]
-    pub top: usize,
-    /// In --json, write the per-demand lists (stranded, short and cut-off demands) of every
-    /// scenario; by default only the worst (--detail-top) carry them.
-    #[arg(long, conflicts_with = "detail_top")]
-    pub detail: bool,
-    /// In --json, how many of the worst scenarios carry the per-demand lists (default:
-    /// --top's value; 0: none but the baseline).
-    #[arg(long, value_name = "N")]
-    pub detail_top: Option<usize>,
+    #[command(flatten)]
+    pub shown: ShownArgs,
     /// Write every scenario to this JSON file (results are journaled beside it as they
     /// finish, in FILE.journal).
     #[arg(long, value_name = "FILE")]

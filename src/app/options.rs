@@ -406,8 +406,8 @@ fn audit(args: AuditArgs) -> Result<AuditOptions> {
     Ok(AuditOptions {
         scenarios: scenarios(args.scenarios)?,
         fail: args.fail,
-        top: args.top,
-        detail: detail(args.detail, args.detail_top, args.top),
+        top: args.shown.top,
+        detail: detail(&args.shown),
         json: args.json,
         csv: args.csv,
         report: args.report,
@@ -485,17 +485,17 @@ fn merge(args: MergeArgs) -> MergeOptions {
         csv: args.csv,
         report: args.report,
         why: args.why,
-        top: args.top,
-        detail: detail(args.detail, args.detail_top, args.top),
+        top: args.shown.top,
+        detail: detail(&args.shown),
     }
 }
 
 /// `--detail` (every scenario) or `--detail-top N` (default: `--top`'s N) as a [`Detail`].
-fn detail(all: bool, top: Option<usize>, shown: usize) -> Detail {
-    if all {
+fn detail(shown: &cli::ShownArgs) -> Detail {
+    if shown.detail {
         Detail::All
     } else {
-        Detail::Worst(top.unwrap_or(shown))
+        Detail::Worst(shown.detail_top.unwrap_or(shown.top))
     }
 }
 
