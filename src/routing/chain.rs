@@ -41,7 +41,7 @@ use std::cell::RefCell;
 use std::collections::{BTreeMap, HashMap, HashSet};
 use std::sync::Arc as Shared;
 
-use super::fixed::{self, Resources};
+use super::fixed::{self, FixedIndex, Resources};
 use super::spt::{Trees, UNREACHABLE};
 use super::{ArcLoad, Choice, DemandRoutes, Mode, Offered, merge};
 use crate::error::Result;
@@ -170,12 +170,25 @@ impl<'a> ChainRouting<'a> {
         self.ch.functions.len()
     }
 
-    /// The resources of the fixed-route LP: every (site, function).
-    fn resources(&self) -> Resources<'_> {
-        Resources {
+    /// The fixed-route LP of `mode` over the routes `cols` (demand caps `cap`, objective
+    /// `obj` per unit) with every (site, function) as a resource, its rows lowered to
+    /// `ceilings` when given ([`Self::ceilings`]: valid for every sequence, not only
+    /// `cols`). O(Σ routes · (legs' arcs + steps)).
+    fn fixed_lp(
+        &self,
+        cols: &[Option<DemandRoutes>],
+        mode: Mode,
+        cap: &[f64],
+        obj: f64,
+        ceilings: Option<(&[f64], &[f64])>,
+    ) -> (Lp, FixedIndex) {
+        let res = Resources {
             capacity: &self.caps,
-            ceilings: None,
-        }
+            ceilings,
+        };
+        let mut model = Lp::new(true);
+        let index = fixed::build(&mut model, self.net, cols, mode, cap, obj, None, Some(&res));
+        (model, index)
     }
 
     /// Demand `d`'s nearest sequences as one route: each leg and step weighted by the
@@ -380,18 +393,7 @@ impl<'a> ChainRouting<'a> {
         let ladder = solve::ladder();
         let verified = match mode {
             Mode::Nearest => {
-                let mut model = Lp::new(true);
-                let res = self.resources();
-                let index = fixed::build_with(
-                    &mut model,
-                    self.net,
-                    &self.routes,
-                    Mode::Nearest,
-                    cap,
-                    1.0,
-                    None,
-                    &res,
-                );
+                let (model, index) = self.fixed_lp(&self.routes, mode, cap, 1.0, None);
                 self.verify(&model, &index, at_stake, ladder, &fixed::weak_dual_bound)?
             }
             Mode::Steered => self.steered(cap, at_stake, ladder)?,
@@ -404,23 +406,9 @@ impl<'a> ChainRouting<'a> {
     fn steered(&self, cap: &[f64], at_stake: f64, ladder: &[&dyn lp::Backend]) -> Result<Verified> {
         let mut cols = self.first_columns();
         let (arc_ceiling, res_ceiling) = self.ceilings(cap);
-        let res = Resources {
-            capacity: &self.caps,
-            ceilings: Some((&arc_ceiling, &res_ceiling)),
-        };
         let build = |cols: &[Option<DemandRoutes>]| {
-            let mut model = Lp::new(true);
-            let index = fixed::build_with(
-                &mut model,
-                self.net,
-                cols,
-                Mode::Steered,
-                cap,
-                1.0,
-                None,
-                &res,
-            );
-            (model, index)
+            let ceilings = Some((&arc_ceiling[..], &res_ceiling[..]));
+            self.fixed_lp(cols, Mode::Steered, cap, 1.0, ceilings)
         };
         let live: Vec<usize> = (0..self.net.demands.len())
             .filter(|&d| cap[d] > 0.0)
@@ -570,14 +558,9 @@ impl<'a> ChainRouting<'a> {
         }
         let caps = super::headroom::lambda_caps(net.demands.len(), &active, &required, ceiling);
         let (arc_ceiling, res_ceiling) = self.ceilings(&caps);
-        let res = Resources {
-            capacity: &self.caps,
-            ceilings: Some((&arc_ceiling, &res_ceiling)),
-        };
         let build = |cols: &[Option<DemandRoutes>]| {
-            let mut model = Lp::new(true);
-            let index =
-                fixed::build_with(&mut model, net, cols, Mode::Steered, &caps, 0.0, None, &res);
+            let ceilings = Some((&arc_ceiling[..], &res_ceiling[..]));
+            let (mut model, index) = self.fixed_lp(cols, Mode::Steered, &caps, 0.0, ceilings);
             let row_floor = super::headroom::tie_to_lambda(
                 &mut model, &index, &active, &required, &caps, ceiling,
             );

@@ -76,26 +76,6 @@ impl FixedIndex {
     }
 }
 
-/// Adds the fixed-route model of `routes` to `lp`: variables capped by `cap` per demand,
-/// objective coefficient `obj` on each, site rows offset by the `add` variables when given.
-/// O(Σ candidates · legs' arcs).
-pub fn build(
-    lp: &mut Lp,
-    net: &Network,
-    routes: &[Option<DemandRoutes>],
-    mode: Mode,
-    cap: &[f64],
-    obj: f64,
-    add: Option<&[Option<usize>]>,
-) -> FixedIndex {
-    let sites: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
-    let res = Resources {
-        capacity: &sites,
-        ceilings: None,
-    };
-    build_with(lp, net, routes, mode, cap, obj, add, &res)
-}
-
 /// The processing resources a fixed-route model's processing rows stand for: the sites
 /// (their `processing`) for a file without `functions`, each (site, function) for service
 /// chains ([`super::chain`]); a [`super::Choice`]'s `processing` indexes them.
@@ -109,11 +89,12 @@ pub struct Resources<'a> {
     pub ceilings: Option<(&'a [f64], &'a [f64])>,
 }
 
-/// [`build`] over the processing resources `res`: one processing row per resource some
-/// route loads, of capacity `res.capacity` (offset by `add[r]` when given).
-/// O(Σ candidates · (legs' arcs + processing entries)).
+/// Adds the fixed-route model of `routes` to `lp`: variables capped by `cap` per demand,
+/// objective coefficient `obj` on each; one processing row per resource of `res` some route
+/// loads (default: the sites and their `processing`), of capacity `res.capacity` (offset by
+/// the `add[r]` variable when given). O(Σ candidates · (legs' arcs + processing entries)).
 #[allow(clippy::too_many_arguments)]
-pub fn build_with(
+pub fn build(
     lp: &mut Lp,
     net: &Network,
     routes: &[Option<DemandRoutes>],
@@ -121,8 +102,21 @@ pub fn build_with(
     cap: &[f64],
     obj: f64,
     add: Option<&[Option<usize>]>,
-    res: &Resources<'_>,
+    res: Option<&Resources<'_>>,
 ) -> FixedIndex {
+    let processing: Vec<f64>;
+    let sites;
+    let res = match res {
+        Some(res) => res,
+        None => {
+            processing = net.sites.iter().map(|s| s.processing).collect();
+            sites = Resources {
+                capacity: &processing,
+                ceilings: None,
+            };
+            &sites
+        }
+    };
     let n_res = res.capacity.len();
     let first_var = lp.num_vars();
     let mut demand_vars = vec![Vec::new(); net.demands.len()];
@@ -289,7 +283,16 @@ mod tests {
             &processing_sites(&net, &Outage::default()),
         );
         let mut lp = Lp::new(true);
-        let idx = build(&mut lp, &net, &r, Mode::Nearest, &[10.0, 5.0], 1.0, None);
+        let idx = build(
+            &mut lp,
+            &net,
+            &r,
+            Mode::Nearest,
+            &[10.0, 5.0],
+            1.0,
+            None,
+            None,
+        );
         let rhs = |row: Option<usize>| lp.rows[row.unwrap()].rhs;
         let mut ab: Vec<f64> = (0..net.arcs.len())
             .filter(|&a| net.links[net.arcs[a].link].id == "ab")

@@ -167,7 +167,16 @@ fn steered(net: &Network, routes: &[Option<DemandRoutes>], active: &[usize]) -> 
     }
     let caps = lambda_caps(net.demands.len(), active, &required, ceiling);
     let mut model = lp::Lp::new(true);
-    let index = fixed::build(&mut model, net, routes, Mode::Steered, &caps, 0.0, None);
+    let index = fixed::build(
+        &mut model,
+        net,
+        routes,
+        Mode::Steered,
+        &caps,
+        0.0,
+        None,
+        None,
+    );
     let row_floor = tie_to_lambda(&mut model, &index, active, &required, &caps, ceiling);
     let real_arc: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
     let real_site: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();

@@ -462,7 +462,7 @@ fn solve_fixed(
     at_stake: f64,
 ) -> Result<solve::Verified> {
     let mut model = lp::Lp::new(true);
-    let index = fixed::build(&mut model, net, routes, mode, cap, 1.0, None);
+    let index = fixed::build(&mut model, net, routes, mode, cap, 1.0, None, None);
     verify_fixed(net, &model, &index, at_stake, solve::ladder())
 }
 
@@ -789,7 +789,16 @@ impl Evaluator for Model {
             .collect();
         let routes = routes(net, &self.trees.for_outage(net, outage), &eligible);
         let caps: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-        let index = fixed::build(model, net, &routes, Mode::Steered, &caps, obj, Some(add));
+        let index = fixed::build(
+            model,
+            net,
+            &routes,
+            Mode::Steered,
+            &caps,
+            obj,
+            Some(add),
+            None,
+        );
         Some(AddModel {
             served: index.demand_vars.iter().flatten().copied().collect(),
             site_rows: (0..net.sites.len())
