@@ -274,6 +274,19 @@ fn best_point<'a>(points: &'a [Point], goal: Goal, best: &[f64], audit: &Audit) 
         .expect("the empty addition is always on the grid")
 }
 
+/// Asserts that plan `p` costs no more than the brute-force point `bf` (within `EPS`);
+/// `case` names the goal in the failure message.
+fn not_dearer(p: &Plan, bf: &Point, case: &str) {
+    assert!(
+        p.cost <= bf.cost + EPS,
+        "{case}: plan {:?} costs {} > brute force {} at {:?}",
+        p.add,
+        p.cost,
+        bf.cost,
+        bf.add
+    );
+}
+
 fn plan_total(audit: &Audit, p: &Plan) -> f64 {
     audit.outage_of.iter().map(|&k| p.after[k].shortfall).sum()
 }
@@ -326,14 +339,7 @@ fn module_plans_match_brute_force_over_module_counts() {
                 );
             }
         }
-        assert!(
-            p.cost <= bf.cost + EPS,
-            "{goal:?}: cost {} vs brute force {} at {:?} (plan {:?})",
-            p.cost,
-            bf.cost,
-            bf.add,
-            p.add
-        );
+        not_dearer(&p, bf, &format!("{goal:?}"));
     }
 }
 
@@ -623,14 +629,7 @@ fn close_all_plan_with_partial_modules_matches_brute_force() {
             p.best[k]
         );
     }
-    assert!(
-        p.cost <= bf.cost + EPS,
-        "plan {:?} costs {} > brute force {} at {:?}",
-        p.add,
-        p.cost,
-        bf.cost,
-        bf.add
-    );
+    not_dearer(&p, bf, "close-all");
     for (v, a) in p.add.iter().take(3).enumerate() {
         assert!(
             options[v].iter().any(|o| (o - a).abs() < 1e-9),
