@@ -391,10 +391,7 @@ fn demands(before: &Network, after: &Network, suffix: &str, out: &mut Vec<Edit>)
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn net(text: &str) -> Network {
-        Network::from_json(text).expect("valid")
-    }
+    use crate::model::test_net as net;
 
     /// Hand-made pair: one capacity lowered, one link added, one removed, one site's
     /// processing raised, one demand's required raised, one demand added. Each edit is

@@ -90,6 +90,13 @@ pub fn read_input_text(path: &Path) -> Result<String> {
     })
 }
 
+/// A network parsed from a unit test's JSON text; panics with the parse error when the
+/// text is not a valid network. O(size of the text).
+#[cfg(test)]
+pub(crate) fn test_net(json: &str) -> Network {
+    Network::from_json(json).expect("a valid test network")
+}
+
 /// A three-site ring for unit tests (shared by the journal and re-check tests): sites a
 /// (processing 3), b, c (processing 1); links a→b 2, b→c 5, c→a 1 (both ways); demands
 /// a→c (volume 2, required 1.5) and b→a (volume 1).

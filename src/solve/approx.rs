@@ -798,10 +798,7 @@ fn verified(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn net(json: &str) -> Network {
-        Network::from_json(json).unwrap()
-    }
+    use crate::model::test_net as net;
 
     /// Hand case (computed here): path s–v–t, both links capacity 10, processing 4 at v
     /// only, one demand s→t requiring 6. Every walk is processed at v, so at most 4 is
@@ -809,12 +806,11 @@ mod tests {
     /// price 1 on v's processing: 4·1 + 6·max(0, 1 − 1) = 4.
     #[test]
     fn path_with_processing_in_the_middle() {
-        let n = net(
-            r#"{"sites":[{"id":"s"},{"id":"v","processing":4},{"id":"t"}],
+        let n = net(r#"{
+            "sites":[{"id":"s"},{"id":"v","processing":4},{"id":"t"}],
             "links":[{"id":"sv","from":"s","to":"v","capacity":10},
                      {"id":"vt","from":"v","to":"t","capacity":10}],
-            "demands":[{"from":"s","to":"t","volume":6}]}"#,
-        );
+            "demands":[{"from":"s","to":"t","volume":6}]}"#);
         for eps in [0.01, 0.1, 0.5] {
             let e = evaluate_approx(&n, &Outage::default(), eps).unwrap();
             let v = &e.verification;

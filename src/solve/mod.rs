@@ -143,6 +143,7 @@ pub(crate) fn one_attempt(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::model::test_net as net;
 
     /// IEEE 754 subnormals (common practice, no source): the midpoint of the smallest
     /// positive doubles underflows to 0, which has no power of ten; the interval's own
@@ -154,10 +155,6 @@ mod tests {
         let x = simplest_in(tiny, 8.0 * tiny, 1.0);
         assert!((tiny..=8.0 * tiny).contains(&x), "{x:e}");
         assert_eq!(simplest_in(104.99999997, 105.00000002, 0.0), 105.0);
-    }
-
-    fn net(json: &str) -> Network {
-        Network::from_json(json).unwrap()
     }
 
     /// The one-way ring s→m→t→p→m (capacities 100 but m→t at 10) with processing 100 at
