@@ -865,15 +865,14 @@ mod tests {
     /// within the limit.
     #[test]
     fn plain_amounts() {
-        let net = Network::from_json(
+        let net = crate::model::test_net(
             r#"{"functions":[{"id":"f","gain":1}],
                 "sites":[{"id":"a","expand":{"f":{"cost":1,"max":3}}},
                          {"id":"b","expand":{"f":{"cost":1}}},
                          {"id":"c","expand":{"f":{"cost":1}}},
                          {"id":"d","expand":{"f":{"cost":1}}}],
                 "links":[{"id":"ab","from":"a","to":"b","capacity":1}],"demands":[]}"#,
-        )
-        .unwrap();
+        );
         let offer = Offer::of(&net);
         let at = |v: usize| (SiteIdx(v), 0);
         assert_eq!(offer.slots, vec![at(0), at(1), at(2), at(3)]);

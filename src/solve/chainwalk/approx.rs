@@ -461,6 +461,7 @@ impl Evaluator for ChainApprox {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::model::test_net;
 
     /// Plain traffic beside a chain that doubles its volume: path a — b — c, ab 10, bc 6,
     /// `x2` (gain 2) at b (capacity 100); a→c demands of 20, one with chain [x2], one plain.
@@ -471,15 +472,14 @@ mod tests {
     /// applies to journaled chain results.
     #[test]
     fn plain_traffic_beside_a_doubling_chain() {
-        let net = Network::from_json(
+        let net = test_net(
             r#"{"functions":[{"id":"x2","gain":2}],
             "sites":[{"id":"a"},{"id":"b","functions":{"x2":100}},{"id":"c"}],
             "links":[{"id":"ab","from":"a","to":"b","capacity":10},
                      {"id":"bc","from":"b","to":"c","capacity":6}],
             "demands":[{"from":"a","to":"c","volume":20,"chain":["x2"]},
                        {"from":"a","to":"c","volume":20}]}"#,
-        )
-        .unwrap();
+        );
         for eps in [0.01, 0.1, 0.5] {
             let e = evaluate_approx(&net, &Outage::default(), eps).unwrap();
             let v = &e.verification;
@@ -493,13 +493,12 @@ mod tests {
     /// ε outside (0, 0.5] is refused, never run.
     #[test]
     fn epsilon_out_of_range_is_refused() {
-        let net = Network::from_json(
+        let net = test_net(
             r#"{"functions":[{"id":"f","gain":1}],
             "sites":[{"id":"a","functions":{"f":1}},{"id":"b"}],
             "links":[{"id":"ab","from":"a","to":"b","capacity":1}],
             "demands":[{"from":"a","to":"b","volume":1,"chain":["f"]}]}"#,
-        )
-        .unwrap();
+        );
         for eps in [0.0, 0.51, f64::NAN] {
             assert!(evaluate_approx(&net, &Outage::default(), eps).is_err());
         }
