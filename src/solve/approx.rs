@@ -388,6 +388,12 @@ pub fn best_scale(a: f64, terms: &[(f64, f64)]) -> (f64, f64) {
     (value(theta), theta)
 }
 
+/// The starting length of a row of capacity `c`: `1/c`, or 0 for a row without capacity
+/// (it bounds nothing, so no walk pays for it). O(1).
+fn initial_len(c: f64) -> f64 {
+    if c > 0.0 { 1.0 / c } else { 0.0 }
+}
+
 /// Solves the packing LP of `view` with demand caps `cap` by the scheme of the module
 /// documentation and verifies the answer: the repaired walks are the lower bound, the
 /// certificate with the final (scaled) lengths the upper bound. `proven` only when they
@@ -428,32 +434,13 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
     let mut st = State {
         net,
         layers: Layers::new(net, view),
-        arc_len: net
-            .arcs
-            .iter()
-            .map(|a| {
-                if a.capacity > 0.0 {
-                    1.0 / a.capacity
-                } else {
-                    0.0
-                }
-            })
-            .collect(),
+        arc_len: net.arcs.iter().map(|a| initial_len(a.capacity)).collect(),
         site_len: net
             .sites
             .iter()
-            .map(|s| {
-                if s.processing > 0.0 {
-                    1.0 / s.processing
-                } else {
-                    0.0
-                }
-            })
+            .map(|s| initial_len(s.processing))
             .collect(),
-        dem_len: bound
-            .iter()
-            .map(|&b| if b > 0.0 { 1.0 / b } else { 0.0 })
-            .collect(),
+        dem_len: bound.iter().map(|&b| initial_len(b)).collect(),
         arc_load: vec![0.0; net.arcs.len()],
         site_load: vec![0.0; n],
         dem_load: vec![0.0; net.demands.len()],

@@ -233,6 +233,28 @@ pub(super) struct Tree {
     pub(super) pred: Vec<usize>,
 }
 
+impl Tree {
+    /// Pushes onto `legs` this tree's arcs on the way from node `x` to the tree's root
+    /// `root`, in that order: in a tree from the root (`forward`, as [`dijkstra`]) each
+    /// step goes back along an arc to its `from` end, in a tree to the root along it to its
+    /// `to` end. `x` must be reached (a finite `dist`). O(path length).
+    pub(super) fn push_path(
+        &self,
+        net: &Network,
+        mut x: usize,
+        root: usize,
+        forward: bool,
+        legs: &mut Vec<usize>,
+    ) {
+        while x != root {
+            let a = self.pred[x];
+            legs.push(a);
+            let arc = &net.arcs[a];
+            x = if forward { arc.from.0 } else { arc.to.0 };
+        }
+    }
+}
+
 /// A heap entry of a Dijkstra that breaks ties by hop count, then node index (shared by
 /// the base and the layered walk pricing).
 #[derive(PartialEq)]

@@ -104,36 +104,16 @@ impl Legs {
                     from[o].as_ref().expect("tree"),
                     to[t].as_ref().expect("tree"),
                 );
-                let mut x = v;
-                while x != o {
-                    let a = ds.pred[x];
-                    legs.push(a);
-                    x = net.arcs[a].from.0;
-                }
-                let mut x = v;
-                while x != t {
-                    let a = dt.pred[x];
-                    legs.push(a);
-                    x = net.arcs[a].to.0;
-                }
+                ds.push_path(net, v, o, true, &mut legs);
+                dt.push_path(net, v, t, false, &mut legs);
             }
             Legs::Sites { into, out } => {
                 let (ri, fo) = (
                     into[v].as_ref().expect("tree"),
                     out[v].as_ref().expect("tree"),
                 );
-                let mut x = o;
-                while x != v {
-                    let a = ri.pred[x];
-                    legs.push(a);
-                    x = net.arcs[a].to.0;
-                }
-                let mut x = t;
-                while x != v {
-                    let a = fo.pred[x];
-                    legs.push(a);
-                    x = net.arcs[a].from.0;
-                }
+                ri.push_path(net, o, v, false, &mut legs);
+                fo.push_path(net, t, v, true, &mut legs);
             }
         }
         legs
