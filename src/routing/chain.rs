@@ -457,13 +457,7 @@ impl<'a> ChainRouting<'a> {
     /// + Σ legs' arcs).
     fn bound(&self, lp: &Lp, index: &fixed::FixedIndex, sol: &LpSolution, cap: &[f64]) -> f64 {
         let (arc_price, res_price) = self.prices(index, sol);
-        let rows: f64 = index
-            .arc_row
-            .iter()
-            .zip(&arc_price)
-            .chain(index.site_row.iter().zip(&res_price))
-            .filter_map(|(r, &y)| r.map(|r| lp.rows[r].rhs * y))
-            .sum();
+        let rows = index.priced_rows(lp, &arc_price, &res_price);
         let mut leg_price = HashMap::new();
         let demands: f64 = (0..self.net.demands.len())
             .filter_map(|d| {
@@ -581,13 +575,7 @@ impl<'a> ChainRouting<'a> {
                 &index, x, &active, &required, &real_arc, &self.caps,
             );
             let (arc_price, res_price) = self.prices(&index, sol);
-            let worth: f64 = index
-                .arc_row
-                .iter()
-                .zip(&arc_price)
-                .chain(index.site_row.iter().zip(&res_price))
-                .filter_map(|(r, &y)| r.map(|r| model.rows[r].rhs * y))
-                .sum();
+            let worth = index.priced_rows(&model, &arc_price, &res_price);
             let mut leg_price = HashMap::new();
             let priced: f64 = active
                 .iter()

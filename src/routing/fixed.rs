@@ -59,6 +59,18 @@ impl FixedIndex {
             .collect()
     }
 
+    /// `Σ rhs · price` over the arc and processing rows of `lp` (the model this index was
+    /// built into), with `arc_price` per arc and `res_price` per resource: the capacity
+    /// term of a dual bound. O(arcs + resources).
+    pub fn priced_rows(&self, lp: &Lp, arc_price: &[f64], res_price: &[f64]) -> f64 {
+        self.arc_row
+            .iter()
+            .zip(arc_price)
+            .chain(self.site_row.iter().zip(res_price))
+            .filter_map(|(r, &y)| r.map(|r| lp.rows[r].rhs * y))
+            .sum()
+    }
+
     /// Per-arc and per-site load of a solution.
     pub fn loads(&self, x: &[f64], arcs: usize, sites: usize) -> (Vec<f64>, Vec<f64>) {
         let mut arc = vec![0.0; arcs];
