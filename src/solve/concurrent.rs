@@ -108,13 +108,9 @@ pub struct Setup {
 /// surviving required demand: no value; a surviving demand with no processing walk:
 /// λ = 0), else the [`Setup`]. O(sites + arcs + demands) (one reachability scan).
 pub fn setup(net: &Network, view: &Surviving) -> Result<std::result::Result<Setup, Headroom>> {
-    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let active: Vec<usize> = (0..net.demands.len())
-        .filter(|&d| view.demand_alive(net, d) && required[d] > 0.0)
-        .collect();
-    if active.is_empty() {
+    let Some((required, active)) = active_demands(net, view) else {
         return Ok(Err(Headroom::absent()));
-    }
+    };
     let unservable = view.unservable(net, &required);
     if active.iter().any(|&d| unservable[d].is_some()) {
         return Ok(Err(Headroom::zero()));
@@ -137,6 +133,16 @@ pub fn setup(net: &Network, view: &Surviving) -> Result<std::result::Result<Setu
         ceiling,
         total_required,
     }))
+}
+
+/// Every demand's `required`, and the surviving demands with `required > 0` (ascending);
+/// `None` when there is none (the outage's headroom has no value). O(demands).
+pub(crate) fn active_demands(net: &Network, view: &Surviving) -> Option<(Vec<f64>, Vec<usize>)> {
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let active: Vec<usize> = (0..net.demands.len())
+        .filter(|&d| view.demand_alive(net, d) && required[d] > 0.0)
+        .collect();
+    (!active.is_empty()).then_some((required, active))
 }
 
 /// The interval `[lower, upper]` with its verdict as a [`Headroom`]: proven when the
