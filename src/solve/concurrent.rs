@@ -230,21 +230,35 @@ pub fn headroom_walks(
     view: &Surviving,
     parent: Option<&Columns>,
 ) -> Result<(Headroom, Option<Columns>, HeadroomWork)> {
+    walks_then_lp(
+        setup(net, view)?,
+        |setup, work| super::colgen::headroom::solve(net, view, setup, parent, work),
+        || headroom_lp(net, view),
+    )
+}
+
+/// What both walk engines' headroom does with an outage's setup: decided without an LP
+/// when `setup` is (counted `trivial`), else the walk answer `walks(setup, work)` when it
+/// is proven (with its columns), else `lp()` (counted `fallback`). Cost: one `walks` and at
+/// most one `lp`.
+pub(crate) fn walks_then_lp<C>(
+    setup: std::result::Result<Setup, Headroom>,
+    walks: impl FnOnce(&Setup, &mut Work) -> Result<Option<(Headroom, C)>>,
+    lp: impl FnOnce() -> Result<Headroom>,
+) -> Result<(Headroom, Option<C>, HeadroomWork)> {
     let mut work = HeadroomWork::default();
-    let setup = match setup(net, view)? {
+    let setup = match setup {
         Ok(s) => s,
         Err(decided) => {
             work.trivial = true;
             return Ok((decided, None, work));
         }
     };
-    if let Some((h, cols)) =
-        super::colgen::headroom::solve(net, view, &setup, parent, &mut work.walks)?
-    {
+    if let Some((h, cols)) = walks(&setup, &mut work.walks)? {
         return Ok((h, Some(cols), work));
     }
     work.fallback = true;
-    Ok((headroom_lp(net, view)?, None, work))
+    Ok((lp()?, None, work))
 }
 
 /// The edge λ-LP of the module documentation on `view`, solved by the backends of

@@ -39,15 +39,23 @@
 //!   holds 1. Otherwise the next backend of [`ladder`] runs, and a result still open is its
 //!   proven lower bound, never more.
 //!
-//! Cost per outage: one LP of the size of the layered edge LP (plus one variable and one
-//! row per surviving demand), solved cold by the backends of [`ladder`] in turn until
-//! proven, one repair and one pricing pass per attempt.
+//! **Engines.** [`headroom_walks`] solves the same model by column generation over
+//! layered walks, each outage of an audit started from the baseline's proven optimum as
+//! the walk engine of files without `functions` does it: the surviving walks with the
+//! baseline's prices, then the cut flow re-routed, then the bundled λ master shared with
+//! that engine ([`crate::solve::colgen::headroom::master`], through [`Pricing`]); every
+//! answer verified as above. Only when it is not proven is the layered λ-LP
+//! ([`headroom_with`]) solved.
+//!
+//! Cost per outage on the fallback: one LP of the size of the layered edge LP (plus one
+//! variable and one row per surviving demand), solved by the backends of [`ladder`] in
+//! turn until proven, one repair and one pricing pass per attempt.
 
 use std::collections::BTreeMap;
 
 use super::rows::{RowKey, Rows, layered_rows};
 use super::start::reroute;
-use super::verify::{verified, with_walks};
+use super::verify::{residual, with_walks};
 use super::{ChainWalk, Solved};
 use crate::error::{Error, Result};
 use crate::model::{FunctionIdx, Network};
@@ -55,7 +63,9 @@ use crate::scenario::Outage;
 use crate::solve::chain::Layered;
 use crate::solve::colgen::headroom::Work;
 use crate::solve::colgen::headroom::master::{self, Pricing};
-use crate::solve::concurrent::{Headroom, HeadroomWork, Setup, active_demands, decide, quotient};
+use crate::solve::concurrent::{
+    Headroom, HeadroomWork, Setup, active_demands, decide, quotient, walks_then_lp,
+};
 use crate::solve::lp::{Backend, Sense};
 use crate::solve::surviving::Surviving;
 use crate::solve::{chain, ladder, verify};
@@ -81,19 +91,11 @@ pub fn headroom_walks(
     view: &Surviving,
     parent: Option<&Solved>,
 ) -> Result<(Headroom, Option<Solved>, HeadroomWork)> {
-    let mut work = HeadroomWork::default();
-    let setup = match setup(net, view)? {
-        Ok(s) => s,
-        Err(decided) => {
-            work.trivial = true;
-            return Ok((decided, None, work));
-        }
-    };
-    if let Some((h, cols)) = by_walks(net, view, &setup, parent, &mut work.walks)? {
-        return Ok((h, Some(cols), work));
-    }
-    work.fallback = true;
-    Ok((headroom_with(net, view, ladder())?, None, work))
+    walks_then_lp(
+        setup(net, view)?,
+        |setup, work| by_walks(net, view, setup, parent, work),
+        || headroom_with(net, view, ladder()),
+    )
 }
 
 /// The checks before any LP (see the module documentation): `Err(headroom)` when the
@@ -243,8 +245,9 @@ fn by_walks(
     let bound = caps(net, setup);
     let (mut layered, _) = layered_rows(net, view, &bound);
     let group_of = Rows::new(net, view, &layered).group_of;
-    let check =
-        |layered: &mut Layered, s: &Solved| checked(net, view, setup, layered, &group_of, s);
+    let check = |layered: &mut Layered, s: &Solved, upper: f64| {
+        checked(net, view, setup, layered, &group_of, (s, upper))
+    };
     let with_prices = |walks: Vec<(ChainWalk, f64)>, p: &Solved| {
         let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
         Solved {
@@ -264,19 +267,21 @@ fn by_walks(
             }
         }
         let inherited = with_prices(start.clone(), p);
-        let h = check(&mut layered, &inherited);
+        // The parent's prices bound this outage's λ by `upper` (one pricing pass); every
+        // start below is certified by the same prices.
+        let upper = bound_of(net, view, setup, &layered, &inherited);
+        let h = check(&mut layered, &inherited, upper);
         if h.proven {
             work.inherited = true;
             return Ok(Some((h, inherited)));
         }
-        let upper = h.upper;
         let again = {
             let rows = Rows::new(net, view, &layered);
             rerouted(&rows, setup, p, &start, None)
         };
         if let Some(walks) = again {
             let s = with_prices(walks, p);
-            let h = check(&mut layered, &s);
+            let h = check(&mut layered, &s, upper);
             if h.proven {
                 work.repaired = true;
                 return Ok(Some((h, s)));
@@ -287,7 +292,7 @@ fn by_walks(
             };
             if let Some(walks) = lowered {
                 let s = with_prices(walks, p);
-                let h = check(&mut layered, &s);
+                let h = check(&mut layered, &s, upper);
                 if h.proven {
                     work.lowered = true;
                     return Ok(Some((h, s)));
@@ -300,16 +305,7 @@ fn by_walks(
         let rows = Rows::new(net, view, &layered);
         let pricing = Layers::new(&rows);
         let (mut cols, bundle) = match parent {
-            Some(p) => master::bundle_of(
-                |w: &ChainWalk| w.demand,
-                net.demands.len(),
-                setup,
-                p.walks
-                    .iter()
-                    .zip(&p.flow)
-                    .map(|(w, &f)| (w.demand, f, w.survives(ch, view))),
-                start,
-            ),
+            Some(p) => master::bundle_of(&pricing, setup, (&p.walks, &p.flow), start),
             None => (start, master::Bundle::empty(net.demands.len())),
         };
         work.bundled = bundle.members();
@@ -361,33 +357,47 @@ fn by_walks(
     let Some(solved) = optimum else {
         return Ok(None);
     };
-    let h = check(&mut layered, &solved);
+    let upper = bound_of(net, view, setup, &layered, &solved);
+    let h = check(&mut layered, &solved, upper);
     Ok(h.proven.then_some((h, solved)))
 }
 
-/// The verified interval of the walk answer `s` on the rows `layered` of `view`: its walks
-/// written as layered edge flows ([`with_walks`], which resets `layered`'s edges),
-/// decomposed and scaled into the real capacities ([`verified`]; residual: the walks'
-/// largest relative overload of a row), `min_d flow_d / required_d` the lower bound, the
-/// quotient at `s`'s prices the upper. O(Σ walk lengths + one repair + one pricing pass).
+/// The verified interval of the walk answer `s` on the rows `layered` of `view`, with the
+/// upper bound `upper` already certified for `s`'s prices (the quotient of
+/// [`upper_bound`], at most Λ): its walks written as layered edge flows ([`with_walks`],
+/// which resets `layered`'s edges), decomposed and scaled into the real capacities
+/// ([`chain::repair`]), `min_d flow_d / required_d` the lower bound; residual: the walks'
+/// largest relative overload of a row ([`residual`]). Skips the repair (lower bound 0, not
+/// proven) when the walks' own factor, which the repair can only lower, cannot meet
+/// `upper`. O(Σ walk lengths + one repair).
 fn checked(
     net: &Network,
     view: &Surviving,
     setup: &Setup,
     layered: &mut Layered,
     group_of: &[usize],
-    s: &Solved,
+    (s, upper): (&Solved, f64),
 ) -> Headroom {
+    let mut flow = vec![0.0; net.demands.len()];
+    for (w, &f) in s.walks.iter().zip(&s.flow) {
+        flow[w.demand] += f;
+    }
+    if !decide(factor(&setup.active, &setup.required, &flow), upper, 0.0).proven {
+        return decide(0.0, upper, 0.0);
+    }
     let x = with_walks(net, layered, group_of, s);
     let rows = Rows::new(net, view, layered);
-    let checked = verified(&rows, layered, &x, s);
-    let lower = factor(
-        &setup.active,
-        &setup.required,
-        &checked.allocation.demand_flow,
-    );
-    let upper = upper_bound(&rows, &setup.active, &s.arc_price, &s.fn_price).min(setup.ceiling);
-    decide(lower, upper, checked.verification.residual)
+    let residual = residual(&rows, s);
+    let (allocation, _) = chain::repair(net, layered, &x);
+    let lower = factor(&setup.active, &setup.required, &allocation.demand_flow);
+    decide(lower, upper, residual)
+}
+
+/// The quotient bound of [`upper_bound`] at the prices of `s` over the rows `layered` of
+/// `view`, at most Λ. One pricing pass.
+fn bound_of(net: &Network, view: &Surviving, setup: &Setup, layered: &Layered, s: &Solved) -> f64 {
+    let rows = Rows::new(net, view, layered);
+    upper_bound(&rows, &setup.active, &s.arc_price, &s.fn_price).min(setup.ceiling)
 }
 
 /// The parent's surviving walks `start` with the flow the outage cut re-routed: a target
@@ -504,6 +514,10 @@ impl Pricing for Layers<'_, '_> {
 
     fn demand(w: &ChainWalk) -> usize {
         w.demand
+    }
+
+    fn survives(&self, w: &ChainWalk) -> bool {
+        w.survives(self.rows.ch, self.rows.view)
     }
 
     fn slots(&self) -> usize {

@@ -164,17 +164,14 @@ pub fn solve(
         .iter()
         .filter_map(|(w, f)| g.lift(w).map(|w| (w, *f)))
         .collect();
+    let pricing = TwoLayer {
+        g: &g,
+        caps: &caps,
+        arc_cap,
+        site_cap,
+    };
     let (cols, bundle) = match parent {
-        Some(p) => master::bundle_of(
-            |w: &Walk| w.demand,
-            net.demands.len(),
-            setup,
-            p.walks
-                .iter()
-                .zip(&p.flow)
-                .map(|(w, &f)| (w.demand, f, w.survives(&g))),
-            lifted,
-        ),
+        Some(p) => master::bundle_of(&pricing, setup, (&p.walks, &p.flow), lifted),
         None => (lifted, master::Bundle::empty(net.demands.len())),
     };
     work.bundled = bundle.members();
@@ -218,12 +215,6 @@ pub fn solve(
             .into_iter()
             .map(|w| (w, 0.0)),
     );
-    let pricing = TwoLayer {
-        g: &g,
-        caps: &caps,
-        arc_cap,
-        site_cap,
-    };
     let cg = master::Generation { p: &pricing, setup };
     let Some((walks, flow, prices)) = cg.run(cols, bundle, work)? else {
         return Ok(None);
@@ -350,6 +341,10 @@ impl master::Pricing for TwoLayer<'_, '_> {
 
     fn demand(w: &Walk) -> usize {
         w.demand
+    }
+
+    fn survives(&self, w: &Walk) -> bool {
+        w.survives(self.g)
     }
 
     fn slots(&self) -> usize {

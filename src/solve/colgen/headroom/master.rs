@@ -45,6 +45,8 @@ pub(crate) trait Pricing {
     type Walk: Clone + Eq + Hash;
     /// The demand `w` serves. O(1).
     fn demand(w: &Self::Walk) -> usize;
+    /// Whether `w` survives the outage (every element it uses is up). O(walk length).
+    fn survives(&self, w: &Self::Walk) -> bool;
     /// How many capacity rows (slots) there are.
     fn slots(&self) -> usize;
     /// How many slots a master may use at most (the usable ones).
@@ -98,28 +100,30 @@ pub(crate) fn parent_factor(setup: &Setup, had: &[f64]) -> f64 {
 }
 
 /// Splits the feasible start `start` into the columns of the demands the outage touched
-/// and the [`Bundle`] of the others. `parent` holds the parent's walks with their flows
-/// and whether each survives the outage. An active demand is a member when every parent
-/// walk of it with flow survives; its walks in `start` are then scaled to exactly
+/// and the [`Bundle`] of the others. `parent` holds the parent's walks with their flows.
+/// An active demand is a member when every parent walk of it with flow survives the
+/// outage ([`Pricing::survives`]); its walks in `start` are then scaled to exactly
 /// `θ₀·required_d`, `θ₀` the [`parent_factor`], which only lowers loads. No bundle when
 /// `θ₀` is not positive. O(Σ walks + demands).
-pub(crate) fn bundle_of<W: Clone>(
-    demand: impl Fn(&W) -> usize,
-    n: usize,
+pub(crate) fn bundle_of<P: Pricing>(
+    p: &P,
     setup: &Setup,
-    parent: impl Iterator<Item = (usize, f64, bool)>,
-    start: Vec<(W, f64)>,
-) -> (Vec<(W, f64)>, Bundle<W>) {
+    parent: (&[P::Walk], &[f64]),
+    start: Vec<(P::Walk, f64)>,
+) -> (Vec<(P::Walk, f64)>, Bundle<P::Walk>) {
+    let n = setup.required.len();
+    let demand = P::demand;
     let mut active = vec![false; n];
     for &d in &setup.active {
         active[d] = true;
     }
     let mut had = vec![0.0; n];
     let mut cut = vec![false; n];
-    for (d, f, survives) in parent {
+    for (w, &f) in parent.0.iter().zip(parent.1) {
+        let d = demand(w);
         if f > 0.0 && active[d] {
             had[d] += f;
-            cut[d] |= !survives;
+            cut[d] |= !p.survives(w);
         }
     }
     let theta = parent_factor(setup, &had);
@@ -143,7 +147,8 @@ pub(crate) fn bundle_of<W: Clone>(
             member[d] = false;
         }
     }
-    let (inside, cols): (Vec<(W, f64)>, Vec<(W, f64)>) =
+    type Flows<W> = Vec<(W, f64)>;
+    let (inside, cols): (Flows<P::Walk>, Flows<P::Walk>) =
         start.into_iter().partition(|(w, _)| member[demand(w)]);
     let walks = inside
         .into_iter()
