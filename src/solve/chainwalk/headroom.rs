@@ -223,8 +223,8 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
 ///   [`crate::tol::COLGEN_GAP_TOL`].
 ///
 /// Every answer is verified like the λ-LP's: its walks written as layered edge flows
-/// ([`with_walks`]), decomposed and scaled into the real capacities ([`verified`], whose
-/// residual is the walks' largest relative overload of a row), `min_d flow_d / required_d`
+/// ([`with_walks`]), decomposed and scaled into the real capacities ([`chain::repair`];
+/// residual: the walks' largest relative overload of a row, [`residual`]), `min_d flow_d / required_d`
 /// the lower bound, the quotient at its prices the upper. `None` when the master stalls,
 /// outgrows the warm LPs or [`crate::solve::colgen::MAX_ROUNDS`] rounds, or its answer is
 /// not proven.
