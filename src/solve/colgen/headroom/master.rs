@@ -62,6 +62,9 @@ pub(crate) trait Pricing {
     fn price(&self, y: &[f64], u: &[f64]) -> (Vec<f64>, Vec<Self::Walk>);
 }
 
+/// Walks with their flows.
+pub(crate) type Flows<W> = Vec<(W, f64)>;
+
 /// The walks of the member demands with their flow per unit of θ, and θ's start value.
 pub(crate) struct Bundle<W> {
     /// Per demand: its walks are in the bundle (it has no demand row of its own).
@@ -110,7 +113,7 @@ pub(crate) fn bundle_of<P: Pricing>(
     setup: &Setup,
     parent: (&[P::Walk], &[f64]),
     start: Vec<(P::Walk, f64)>,
-) -> (Vec<(P::Walk, f64)>, Bundle<P::Walk>) {
+) -> (Flows<P::Walk>, Bundle<P::Walk>) {
     let n = setup.required.len();
     let demand = P::demand;
     let mut active = vec![false; n];
@@ -147,7 +150,6 @@ pub(crate) fn bundle_of<P: Pricing>(
             member[d] = false;
         }
     }
-    type Flows<W> = Vec<(W, f64)>;
     let (inside, cols): (Flows<P::Walk>, Flows<P::Walk>) =
         start.into_iter().partition(|(w, _)| member[demand(w)]);
     let walks = inside
