@@ -420,15 +420,7 @@ fn rerouted(
     for (w, &f) in parent.walks.iter().zip(&parent.flow) {
         had[w.demand] += f.max(0.0);
     }
-    let parent_factor = master::parent_factor(setup, &had);
-    let target = match lower {
-        None => parent_factor,
-        Some(l) if l < parent_factor => l,
-        Some(_) => return None,
-    };
-    if !(target.is_finite() && target > 0.0) {
-        return None;
-    }
+    let target = master::reroute_target(setup, &had, lower)?;
     let mut kept = vec![0.0; n];
     for (w, f) in start {
         kept[w.demand] += f;

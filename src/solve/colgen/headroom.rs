@@ -262,19 +262,7 @@ fn repaired(
     for (w, &f) in parent.walks.iter().zip(&parent.flow) {
         had[w.demand] += f.max(0.0);
     }
-    let parent_factor = setup
-        .active
-        .iter()
-        .map(|&d| had[d] / setup.required[d])
-        .fold(f64::INFINITY, f64::min);
-    let target = match lower {
-        None => parent_factor,
-        Some(l) if l < parent_factor => l,
-        Some(_) => return None,
-    };
-    if !(target.is_finite() && target > 0.0) {
-        return None;
-    }
+    let target = master::reroute_target(setup, &had, lower)?;
     let mut walks: Vec<Walk> = Vec::with_capacity(start.len());
     let mut flow: Vec<f64> = Vec::with_capacity(start.len());
     let mut kept = vec![0.0; net.demands.len()];

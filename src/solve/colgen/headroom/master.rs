@@ -102,6 +102,19 @@ pub(crate) fn parent_factor(setup: &Setup, had: &[f64]) -> f64 {
         .fold(f64::INFINITY, f64::min)
 }
 
+/// The factor a re-route of the parent's cut flow aims at: the [`parent_factor`] when
+/// `lower` is `None`, else `lower` when it is below that; `None` when `lower` is not below
+/// it or the target is not finite and positive. O(active).
+pub(crate) fn reroute_target(setup: &Setup, had: &[f64], lower: Option<f64>) -> Option<f64> {
+    let parent = parent_factor(setup, had);
+    let target = match lower {
+        None => parent,
+        Some(l) if l < parent => l,
+        Some(_) => return None,
+    };
+    (target.is_finite() && target > 0.0).then_some(target)
+}
+
 /// Splits the feasible start `start` into the columns of the demands the outage touched
 /// and the [`Bundle`] of the others. `parent` holds the parent's walks with their flows.
 /// An active demand is a member when every parent walk of it with flow survives the
