@@ -6,8 +6,9 @@
 //! `functions`, [`crate::solve::chainwalk::headroom`] on the layered model) or, under
 //! `--routing nearest|steered`, from [`crate::routing::headroom`] (routes fixed). Each is
 //! solved once per distinct outage, in parallel ([`audit::par_map`]), after the audit's
-//! evaluations; the results depend only on the network and the outage, so the thread
-//! count changes nothing.
+//! evaluations; under the best re-route each outage starts from its matrix's baseline
+//! answer (the walk engines' columns). The results depend only on the network, the
+//! outage and the baseline, so the thread count changes nothing.
 //!
 //! The headroom of the audit is the least λ over its scenarios ([`Least`]); ties go to the
 //! scenario first in the audit's worst-first order ([`rank::worst_first`]). A scenario with
@@ -100,8 +101,8 @@ pub fn of_audit(
         .map(|&m| Scenario::baseline().with_down(down).under(m).outage(net))
         .collect();
     let (per_base, per_outage) = match routing {
-        // Routes fixed, or service chains (the layered model): each outage cold.
-        _ if routing.is_some() || net.chains.is_some() => {
+        // Routes fixed: each outage cold.
+        Some(_) => {
             let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
                 of_outage(net, o, routing)
             })?;
@@ -114,31 +115,15 @@ pub fn of_audit(
             }
             (per_base, per_outage)
         }
-        _ => {
-            // Each matrix's baseline first: its columns start every outage of that matrix.
-            let mut per_base = Vec::with_capacity(bases.len());
-            let mut columns = Vec::with_capacity(bases.len());
-            for base in &bases {
-                let view_net = net.view(base.matrix);
-                let view = Surviving::new(view_net, base, None);
-                let (h, cols, _) = concurrent::headroom_walks(view_net, &view, None)?;
-                per_base.push(h);
-                columns.push(cols);
-            }
-            let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
-                let k = bases
-                    .iter()
-                    .position(|b| b.matrix == o.matrix)
-                    .expect("every outage's matrix has a baseline");
-                if *o == bases[k] {
-                    return Ok(per_base[k].clone());
-                }
-                let view_net = net.view(o.matrix);
-                let view = Surviving::new(view_net, o, None);
-                Ok(concurrent::headroom_walks(view_net, &view, columns[k].as_ref())?.0)
-            })?;
-            (per_base, per_outage)
-        }
+        // Service chains: the layered walk engine, from each baseline's optimum.
+        None if net.chains.is_some() => warm(net, audit, &bases, opts, |n, view, parent| {
+            let (h, cols, _) = crate::solve::chainwalk::headroom::headroom_walks(n, view, parent)?;
+            Ok((h, cols))
+        })?,
+        None => warm(net, audit, &bases, opts, |n, view, parent| {
+            let (h, cols, _) = concurrent::headroom_walks(n, view, parent)?;
+            Ok((h, cols))
+        })?,
     };
     let mut baseline: Option<Headroom> = None;
     for h in per_base {
@@ -158,6 +143,45 @@ pub fn of_audit(
         baseline,
         least,
     })
+}
+
+/// The headroom of each matrix's baseline in `bases` (cold), then of every outage of
+/// `audit` in parallel, each started from its matrix's baseline answer: `solve(net, view,
+/// parent)` gives an outage's headroom and, when proven by walks, the columns that start
+/// its children (the walk engine of files without `functions`, or the layered one of
+/// service chains). Returns (per baseline, per outage). Cost: one `solve` per baseline and
+/// per outage; the result does not depend on the thread count (each outage depends only on
+/// the network, itself and its baseline).
+fn warm<C: Sync + Send>(
+    net: &Network,
+    audit: &Audit,
+    bases: &[Outage],
+    opts: RunOptions,
+    solve: impl Fn(&Network, &Surviving, Option<&C>) -> Result<(Headroom, Option<C>)> + Sync + Send,
+) -> Result<(Vec<Headroom>, Vec<Headroom>)> {
+    // Each matrix's baseline first: its columns start every outage of that matrix.
+    let mut per_base = Vec::with_capacity(bases.len());
+    let mut columns = Vec::with_capacity(bases.len());
+    for base in bases {
+        let view_net = net.view(base.matrix);
+        let view = Surviving::new(view_net, base, None);
+        let (h, cols) = solve(view_net, &view, None)?;
+        per_base.push(h);
+        columns.push(cols);
+    }
+    let per_outage = audit::par_map(&audit.outages, opts, "headroom", |o| {
+        let k = bases
+            .iter()
+            .position(|b| b.matrix == o.matrix)
+            .expect("every outage's matrix has a baseline");
+        if *o == bases[k] {
+            return Ok(per_base[k].clone());
+        }
+        let view_net = net.view(o.matrix);
+        let view = Surviving::new(view_net, o, None);
+        Ok(solve(view_net, &view, columns[k].as_ref())?.0)
+    })?;
+    Ok((per_base, per_outage))
 }
 
 /// The least headroom over the scenarios of `audit`, visiting them in `order` (worst

@@ -431,3 +431,77 @@ fn an_evening_matrix_divides_the_headroom() {
     // Under quillhaven's failure the base λ is 20 / 52 (README): evening 20 / 62.4.
     assert_close(num(top, "value"), 20.0 / 62.4, "20 / (1.2 · 52)");
 }
+
+/// The warm path of the chain headroom (each outage started from the baseline's proven
+/// optimum: its surviving walks with the baseline's prices, the cut flow re-routed, or the
+/// bundled λ master) against the per-demand layered concurrent-flow LP on microlp
+/// ([`reference_headroom`], a second formulation and solver, on the network with the
+/// failed elements removed by [`chain_reference::without`]): random chain networks, every
+/// single site and link failure (depth 1) and every pair of a site and a link or of two
+/// links (depth 2). Each answer must be proven and equal the reference within
+/// `chain_reference::REL`; both the master-free decisions and masters started from the
+/// baseline must occur, so the comparison is not vacuous.
+#[test]
+fn warm_chain_headroom_matches_the_reference_at_depth_one_and_two() {
+    use redoubt::model::Network;
+    use redoubt::scenario::{Element, Outage, Scenario};
+    use redoubt::solve::Surviving;
+    use redoubt::solve::chainwalk::headroom::headroom_walks;
+
+    let (mut compared, mut without_master, mut from_master, mut bundled) = (0, 0, 0, 0);
+    for seed in 0..24 {
+        let mut rng = StdRng::seed_from_u64(9_100 + seed);
+        let t = random_net(&mut rng);
+        let net = Network::from_json(&t.to_json().to_string()).expect("a valid network");
+        let base = Surviving::new(&net, &Outage::default(), None);
+        let (_, columns, _) = headroom_walks(&net, &base, None).expect("baseline");
+        let Some(columns) = columns else {
+            continue;
+        };
+        let (n, m) = (t.capacity.len(), t.links.len());
+        let mut cases: Vec<(Vec<usize>, Vec<usize>)> = Vec::new();
+        cases.extend((0..n).map(|v| (vec![v], vec![])));
+        cases.extend((0..m).map(|l| (vec![], vec![l])));
+        for v in 0..n {
+            cases.extend((0..m).map(|l| (vec![v], vec![l])));
+        }
+        for a in 0..m {
+            cases.extend((a + 1..m).map(|b| (vec![], vec![a, b])));
+        }
+        for (sites, links) in cases {
+            let mut elements: Vec<Element> =
+                sites.iter().map(|&v| Element::Site(v.into())).collect();
+            elements.extend(links.iter().map(|&l| Element::Link(l.into())));
+            let o = Scenario::new(&net, &elements).outage(&net);
+            let view = Surviving::new(&net, &o, None);
+            let (got, _, work) = headroom_walks(&net, &view, Some(&columns)).expect("walks");
+            let what = format!("seed {seed}, sites {sites:?}, links {links:?} ({work:?})");
+            let want =
+                reference_headroom(&chain_reference::without(&t, &sites, &links), None, None);
+            match (got.value, want) {
+                (None, None) => continue,
+                (Some(g), Some(w)) => assert_close(g, w, &what),
+                _ => panic!("{what}: got {got:?}, reference {want:?}"),
+            }
+            assert!(got.proven, "{what}: unproven {got:?}");
+            if work.trivial || work.fallback {
+                continue;
+            }
+            compared += 1;
+            let w = work.walks;
+            if w.inherited || w.repaired || w.lowered {
+                without_master += 1;
+            } else {
+                from_master += 1;
+                bundled += usize::from(w.bundled > 0);
+            }
+        }
+    }
+    assert!(
+        compared > 300,
+        "outages decided by the warm walks: {compared}"
+    );
+    assert!(without_master > 0, "no outage decided without a master");
+    assert!(from_master > 0, "no outage needed a master");
+    assert!(bundled > 0, "no master held a bundle");
+}

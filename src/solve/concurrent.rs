@@ -108,13 +108,9 @@ pub struct Setup {
 /// surviving required demand: no value; a surviving demand with no processing walk:
 /// λ = 0), else the [`Setup`]. O(sites + arcs + demands) (one reachability scan).
 pub fn setup(net: &Network, view: &Surviving) -> Result<std::result::Result<Setup, Headroom>> {
-    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let active: Vec<usize> = (0..net.demands.len())
-        .filter(|&d| view.demand_alive(net, d) && required[d] > 0.0)
-        .collect();
-    if active.is_empty() {
+    let Some((required, active)) = active_demands(net, view) else {
         return Ok(Err(Headroom::absent()));
-    }
+    };
     let unservable = view.unservable(net, &required);
     if active.iter().any(|&d| unservable[d].is_some()) {
         return Ok(Err(Headroom::zero()));
@@ -137,6 +133,16 @@ pub fn setup(net: &Network, view: &Surviving) -> Result<std::result::Result<Setu
         ceiling,
         total_required,
     }))
+}
+
+/// Every demand's `required`, and the surviving demands with `required > 0` (ascending);
+/// `None` when there is none (the outage's headroom has no value). O(demands).
+pub(crate) fn active_demands(net: &Network, view: &Surviving) -> Option<(Vec<f64>, Vec<usize>)> {
+    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let active: Vec<usize> = (0..net.demands.len())
+        .filter(|&d| view.demand_alive(net, d) && required[d] > 0.0)
+        .collect();
+    (!active.is_empty()).then_some((required, active))
 }
 
 /// The interval `[lower, upper]` with its verdict as a [`Headroom`]: proven when the
@@ -224,21 +230,35 @@ pub fn headroom_walks(
     view: &Surviving,
     parent: Option<&Columns>,
 ) -> Result<(Headroom, Option<Columns>, HeadroomWork)> {
+    walks_then_lp(
+        setup(net, view)?,
+        |setup, work| super::colgen::headroom::solve(net, view, setup, parent, work),
+        || headroom_lp(net, view),
+    )
+}
+
+/// What both walk engines' headroom does with an outage's setup: decided without an LP
+/// when `setup` is (counted `trivial`), else the walk answer `walks(setup, work)` when it
+/// is proven (with its columns), else `lp()` (counted `fallback`). Cost: one `walks` and at
+/// most one `lp`.
+pub(crate) fn walks_then_lp<C>(
+    setup: std::result::Result<Setup, Headroom>,
+    walks: impl FnOnce(&Setup, &mut Work) -> Result<Option<(Headroom, C)>>,
+    lp: impl FnOnce() -> Result<Headroom>,
+) -> Result<(Headroom, Option<C>, HeadroomWork)> {
     let mut work = HeadroomWork::default();
-    let setup = match setup(net, view)? {
+    let setup = match setup {
         Ok(s) => s,
         Err(decided) => {
             work.trivial = true;
             return Ok((decided, None, work));
         }
     };
-    if let Some((h, cols)) =
-        super::colgen::headroom::solve(net, view, &setup, parent, &mut work.walks)?
-    {
+    if let Some((h, cols)) = walks(&setup, &mut work.walks)? {
         return Ok((h, Some(cols), work));
     }
     work.fallback = true;
-    Ok((headroom_lp(net, view)?, None, work))
+    Ok((lp()?, None, work))
 }
 
 /// The edge λ-LP of the module documentation on `view`, solved by the backends of

@@ -39,42 +39,63 @@
 //!   holds 1. Otherwise the next backend of [`ladder`] runs, and a result still open is its
 //!   proven lower bound, never more.
 //!
-//! Cost per outage: one LP of the size of the layered edge LP (plus one variable and one
-//! row per surviving demand), solved cold by the backends of [`ladder`] in turn until
-//! proven, one repair and one pricing pass per attempt.
+//! **Engines.** [`headroom_walks`] solves the same model by column generation over
+//! layered walks, each outage of an audit started from the baseline's proven optimum as
+//! the walk engine of files without `functions` does it: the surviving walks with the
+//! baseline's prices, then the cut flow re-routed, then the bundled λ master shared with
+//! that engine ([`crate::solve::colgen::headroom::master`], through [`Pricing`]); every
+//! answer verified as above. Only when it is not proven is the layered λ-LP
+//! ([`headroom_with`]) solved.
+//!
+//! Cost per outage on the fallback: one LP of the size of the layered edge LP (plus one
+//! variable and one row per surviving demand), solved by the backends of [`ladder`] in
+//! turn until proven, one repair and one pricing pass per attempt.
 
-use std::collections::{BTreeMap, HashMap, HashSet};
+use std::collections::BTreeMap;
 
 use super::rows::{RowKey, Rows, layered_rows};
-use super::verify::{verified, with_walks};
-use super::{ChainWalk, GAP_TOL, MAX_ROUNDS, NONE, Solved, WARM_ROWS};
+use super::start::reroute;
+use super::verify::{residual, with_walks};
+use super::{ChainWalk, Solved};
 use crate::error::{Error, Result};
 use crate::model::{FunctionIdx, Network};
 use crate::scenario::Outage;
-use crate::solve::colgen::round::solve_round;
-use crate::solve::concurrent::{Headroom, Setup, decide, quotient};
+use crate::solve::chain::Layered;
+use crate::solve::colgen::headroom::Work;
+use crate::solve::colgen::headroom::master::{self, Pricing};
+use crate::solve::concurrent::{
+    Headroom, HeadroomWork, Setup, active_demands, decide, quotient, walks_then_lp,
+};
 use crate::solve::lp::{Backend, Sense};
-use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
 use crate::solve::{chain, ladder, verify};
 
 /// The headroom of `net` (a network with `functions`) under `outage`, on the matrix the
-/// outage names: by column generation over layered walks (`by_walks`), and when that does
-/// not prove its answer, the layered λ-LP ([`headroom_with`] on [`ladder`]). Pure function
-/// of (network, outage).
+/// outage names, cold: [`headroom_walks`] without a parent. Pure function of (network,
+/// outage).
 pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
     let net = net.view(outage.matrix);
     let view = Surviving::new(net, outage, None);
-    let setup = match setup(net, &view)? {
-        Ok(s) => s,
-        Err(decided) => return Ok(decided),
-    };
-    if let Some(h) = by_walks(net, &view, &setup)?
-        && h.proven
-    {
-        return Ok(h);
-    }
-    headroom_with(net, &view, ladder())
+    Ok(headroom_walks(net, &view, None)?.0)
+}
+
+/// The headroom of the outage `view` by column generation over layered walks (`by_walks`),
+/// started from `parent` (the baseline's proven optimum, normally), and when that does not
+/// prove its answer, the layered λ-LP ([`headroom_with`] on [`ladder`]). Returns the
+/// optimum of a proven walk answer (a start for child outages) and the work done. Pure
+/// function of (network, outage, parent).
+///
+/// Cost: see `by_walks`; plus [`headroom_with`] on a fallback.
+pub fn headroom_walks(
+    net: &Network,
+    view: &Surviving,
+    parent: Option<&Solved>,
+) -> Result<(Headroom, Option<Solved>, HeadroomWork)> {
+    walks_then_lp(
+        setup(net, view)?,
+        |setup, work| by_walks(net, view, setup, parent, work),
+        || headroom_with(net, view, ladder()),
+    )
 }
 
 /// The checks before any LP (see the module documentation): `Err(headroom)` when the
@@ -83,13 +104,9 @@ pub fn headroom(net: &Network, outage: &Outage) -> Result<Headroom> {
 /// O(groups · (k + 1) · (sites + arcs)).
 pub fn setup(net: &Network, view: &Surviving) -> Result<std::result::Result<Setup, Headroom>> {
     let ch = net.chains.as_ref().expect("a network with functions");
-    let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
-    let active: Vec<usize> = (0..net.demands.len())
-        .filter(|&d| view.demand_alive(net, d) && required[d] > 0.0)
-        .collect();
-    if active.is_empty() {
+    let Some((required, active)) = active_demands(net, view) else {
         return Ok(Err(Headroom::absent()));
-    }
+    };
     if !chain::cut_off(net, view, &required).is_empty() {
         return Ok(Err(Headroom::zero()));
     }
@@ -183,130 +200,352 @@ pub fn headroom_with(net: &Network, view: &Surviving, ladder: &[&dyn Backend]) -
     }
 }
 
-/// The headroom of `view` by column generation over layered walks, cold: the master
-/// (maximise λ; `λ · required_d − Σ_{w of d} f_w ≤ 0` per surviving demand, the layered
-/// rows of [`layered_rows`] with demand caps `Λ · required`, `0 ≤ λ ≤ Λ`) on the warm
-/// simplex, rows created as columns need them, started from every demand's cheapest walk
-/// at zero prices and at prices 1 / capacity; pricing by [`Rows::price`] at the row duals
-/// times `Σ required` (so the demand duals average about 1 and the absolute price
-/// tolerance compares amounts of order one), a walk of `d` entering when
-/// `u_d − π_d` exceeds it (passed as the demand duals `1 − u_d`); stopped when the priced
-/// quotient bound meets the master's λ within [`GAP_TOL`]. The answer is verified like the
-/// λ-LP's: its walks written as layered edge flows ([`with_walks`]), decomposed and scaled
-/// into the real capacities ([`verified`], whose residual is the walks' largest relative
-/// overload of a row), `min_d flow_d / required_d` the lower bound, the quotient at the
-/// master's prices the upper. `None` when the master outgrows [`WARM_ROWS`], the simplex
-/// fails, nothing new prices out while the gap is open, or after [`MAX_ROUNDS`] rounds.
+/// The headroom of `view` by column generation over layered walks, from `parent` (a
+/// proven optimum of the baseline, normally) when given, as the walk engine of files
+/// without `functions` does it ([`crate::solve::colgen::headroom`]), on the same λ master
+/// ([`crate::solve::colgen::headroom::master`], one [`Pricing`] of layered walks):
 ///
-/// Cost: per round one warm simplex re-optimisation (rows: used arcs, used (site,
-/// function) pairs and surviving demands) and one pricing pass (one layered Dijkstra per
-/// (origin, chain) group); then one verification.
-fn by_walks(net: &Network, view: &Surviving, setup: &Setup) -> Result<Option<Headroom>> {
+/// - *Inherited.* The parent's walks that survive, at their flows, with the parent's
+///   prices, verified as they are: proven when the outage took nothing they used.
+/// - *Re-routed.* Each active demand's shortfall below the parent's factor re-routed
+///   greedily ([`reroute`]: shortest-hop layered walks through what the surviving walks
+///   leave), verified with the parent's prices; when that does not prove it, every demand
+///   brought instead to the bound the parent's prices give on this outage (its surviving
+///   walks scaled down to it first), verified with the same prices. No master when either
+///   is proven.
+/// - *Master.* Maximise λ with `λ · required_d − Σ_{w of d} f_w ≤ 0` per free demand, the
+///   layered rows of [`layered_rows`] (demand caps `Λ · required`), `0 ≤ λ ≤ Λ`, and the
+///   demands whose flow-carrying parent walks all survive held in one bundle θ (one row
+///   `λ − θ ≤ 0`), freed when their walks cost more than their cheapest; λ starts at what
+///   the start serves. Without a parent the start is every demand's cheapest walk at zero
+///   prices and at prices 1 / capacity. Pricing by [`Rows::price`] at the row duals times
+///   `Σ required`; stopped when the priced quotient bound meets the master's λ within
+///   [`crate::tol::COLGEN_GAP_TOL`].
+///
+/// Every answer is verified like the λ-LP's: its walks written as layered edge flows
+/// ([`with_walks`]), decomposed and scaled into the real capacities ([`chain::repair`];
+/// residual: the walks' largest relative overload of a row, [`residual`]), `min_d flow_d / required_d`
+/// the lower bound, the quotient at its prices the upper. `None` when the master stalls,
+/// outgrows the warm LPs or [`crate::solve::colgen::MAX_ROUNDS`] rounds, or its answer is
+/// not proven.
+///
+/// Cost: the start's repair and two verifications at most (each one pass over the walks,
+/// one [`chain::repair`] and one pricing pass); then per round one warm simplex
+/// re-optimisation (rows: used arcs, used (site, function) pairs, free demands and the
+/// bundle) and one pricing pass (one layered Dijkstra per (origin, chain) group); then one
+/// verification.
+fn by_walks(
+    net: &Network,
+    view: &Surviving,
+    setup: &Setup,
+    parent: Option<&Solved>,
+    work: &mut Work,
+) -> Result<Option<(Headroom, Solved)>> {
+    let ch = net.chains.as_ref().expect("a network with functions");
     let bound = caps(net, setup);
     let (mut layered, _) = layered_rows(net, view, &bound);
-    let scale = setup.total_required;
-    let (walks, flow, arc_price, fn_price) = {
-        let rows = Rows::new(net, view, &layered);
-        let mut lp = Simplex::new();
-        let mut dem_row = vec![NONE; net.demands.len()];
-        let mut entries = Vec::with_capacity(setup.active.len());
-        for &d in &setup.active {
-            dem_row[d] = lp.add_row(0.0, &[]);
-            entries.push((dem_row[d], setup.required[d]));
-        }
-        lp.add_col(1.0, 0.0, setup.ceiling, 0.0, entries);
-        let mut row: HashMap<RowKey, usize> = HashMap::new();
-        let mut walks: Vec<ChainWalk> = Vec::new();
-        let mut seen: HashSet<ChainWalk> = HashSet::new();
-        // Every demand's cheapest walk at zero prices (fewest hops) starts the master.
-        let every = vec![f64::NEG_INFINITY; net.demands.len()];
-        let mut fresh = rows
-            .price(&vec![0.0; net.arcs.len()], &BTreeMap::new(), Some(&every))
-            .walks;
-        // And at prices 1 / capacity (a walk through scarce rows costs more): a second,
-        // often disjoint walk per demand.
-        let inverse = |cap: f64| if cap > 0.0 { 1.0 / cap } else { 0.0 };
-        let y0: Vec<f64> = layered.arc_cap.iter().map(|&c| inverse(c)).collect();
-        let z0: BTreeMap<(usize, FunctionIdx), f64> = layered
-            .function_cap
-            .iter()
-            .map(|(&k, &c)| (k, inverse(c)))
-            .collect();
-        fresh.extend(rows.price(&y0, &z0, Some(&every)).walks);
-        let mut rounds = 0;
-        loop {
-            for w in fresh {
-                if !seen.insert(w.clone()) {
-                    continue;
-                }
-                let mut entries = Vec::new();
-                for (key, c) in rows.coefficients(&w) {
-                    match key {
-                        RowKey::Demand(d) => entries.push((dem_row[d], -1.0)),
-                        _ => {
-                            let r = *row
-                                .entry(key)
-                                .or_insert_with(|| lp.add_row(rows.rhs(key), &[]));
-                            entries.push((r, c));
-                        }
-                    }
-                }
-                lp.add_col(0.0, 0.0, f64::INFINITY, 0.0, entries);
-                walks.push(w);
-            }
-            if !solve_round(lp.rows(), WARM_ROWS, true, |pivots| lp.solve(pivots))? {
-                return Ok(None);
-            }
-            let dual = |key: RowKey| row.get(&key).map_or(0.0, |&r| scale * lp.dual(r).max(0.0));
-            let y: Vec<f64> = (0..net.arcs.len()).map(|a| dual(RowKey::Arc(a))).collect();
-            let z: BTreeMap<(usize, FunctionIdx), f64> = layered
-                .function_cap
-                .keys()
-                .map(|&(v, f)| ((v, f), dual(RowKey::Function(v, f))))
-                .collect();
-            let u: Vec<f64> = dem_row
-                .iter()
-                .map(|&r| {
-                    if r == NONE {
-                        f64::INFINITY
-                    } else {
-                        1.0 - scale * lp.dual(r).max(0.0)
-                    }
-                })
-                .collect();
-            let lambda = lp.value(0);
-            let upper = upper_bound(&rows, &setup.active, &y, &z).min(setup.ceiling);
-            if upper - lambda <= GAP_TOL * upper.max(f64::MIN_POSITIVE) {
-                let flow: Vec<f64> = (1..lp.cols()).map(|j| lp.value(j).max(0.0)).collect();
-                break (walks, flow, y, z);
-            }
-            rounds += 1;
-            fresh = rows.price(&y, &z, Some(&u)).walks;
-            fresh.retain(|w| !seen.contains(w));
-            if fresh.is_empty() || rounds >= MAX_ROUNDS {
-                return Ok(None);
-            }
-        }
-    };
-    let solved = Solved {
-        value: flow.iter().sum(),
-        walks,
-        flow,
-        arc_price,
-        fn_price,
-    };
     let group_of = Rows::new(net, view, &layered).group_of;
-    let x = with_walks(net, &mut layered, &group_of, &solved);
-    let rows = Rows::new(net, view, &layered);
-    let checked = verified(&rows, &layered, &x, &solved);
-    let lower = factor(
-        &setup.active,
-        &setup.required,
-        &checked.allocation.demand_flow,
-    );
-    let upper =
-        upper_bound(&rows, &setup.active, &solved.arc_price, &solved.fn_price).min(setup.ceiling);
-    Ok(Some(decide(lower, upper, checked.verification.residual)))
+    let check = |layered: &mut Layered, s: &Solved, upper: f64| {
+        checked(net, view, setup, layered, &group_of, (s, upper))
+    };
+    let with_prices = |walks: Vec<(ChainWalk, f64)>, p: &Solved| {
+        let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
+        Solved {
+            value: flow.iter().sum(),
+            walks,
+            flow,
+            arc_price: p.arc_price.clone(),
+            fn_price: p.fn_price.clone(),
+        }
+    };
+    // The parent's walks that carried flow and survive, at their flows.
+    let mut start: Vec<(ChainWalk, f64)> = Vec::new();
+    if let Some(p) = parent {
+        for (w, &f) in p.walks.iter().zip(&p.flow) {
+            if f > 0.0 && bound[w.demand] > 0.0 && w.survives(ch, view) {
+                start.push((w.clone(), f));
+            }
+        }
+        let inherited = with_prices(start.clone(), p);
+        // The parent's prices bound this outage's λ by `upper` (one pricing pass); every
+        // start below is certified by the same prices.
+        let upper = bound_of(net, view, setup, &layered, &inherited);
+        let h = check(&mut layered, &inherited, upper);
+        if h.proven {
+            work.inherited = true;
+            return Ok(Some((h, inherited)));
+        }
+        let again = {
+            let rows = Rows::new(net, view, &layered);
+            rerouted(&rows, setup, p, &start, None)
+        };
+        if let Some(walks) = again {
+            let s = with_prices(walks, p);
+            let h = check(&mut layered, &s, upper);
+            if h.proven {
+                work.repaired = true;
+                return Ok(Some((h, s)));
+            }
+            let lowered = {
+                let rows = Rows::new(net, view, &layered);
+                rerouted(&rows, setup, p, &start, Some(upper))
+            };
+            if let Some(walks) = lowered {
+                let s = with_prices(walks, p);
+                let h = check(&mut layered, &s, upper);
+                if h.proven {
+                    work.lowered = true;
+                    return Ok(Some((h, s)));
+                }
+                start = s.walks.into_iter().zip(s.flow).collect();
+            }
+        }
+    }
+    let optimum = {
+        let rows = Rows::new(net, view, &layered);
+        let pricing = Layers::new(&rows);
+        let (mut cols, bundle) = match parent {
+            Some(p) => master::bundle_of(&pricing, setup, (&p.walks, &p.flow), start),
+            None => (start, master::Bundle::empty(net.demands.len())),
+        };
+        work.bundled = bundle.members();
+        // Every active demand outside the bundle gets its cheapest walk at the parent's
+        // prices as a column at 0 (without a parent: at zero prices, fewest hops, and at
+        // prices 1 / capacity, often a disjoint second walk), so the first master serves
+        // them all.
+        let seed: Vec<f64> = (0..net.demands.len())
+            .map(|d| {
+                if bundle.member[d] {
+                    f64::INFINITY
+                } else {
+                    f64::NEG_INFINITY
+                }
+            })
+            .collect();
+        let mut fresh = Vec::new();
+        match parent {
+            Some(p) => fresh.extend(rows.price(&p.arc_price, &p.fn_price, Some(&seed)).walks),
+            None => {
+                fresh.extend(
+                    rows.price(&vec![0.0; net.arcs.len()], &BTreeMap::new(), Some(&seed))
+                        .walks,
+                );
+                let inverse = |cap: f64| if cap > 0.0 { 1.0 / cap } else { 0.0 };
+                let y0: Vec<f64> = layered.arc_cap.iter().map(|&c| inverse(c)).collect();
+                let z0: BTreeMap<(usize, FunctionIdx), f64> = layered
+                    .function_cap
+                    .iter()
+                    .map(|(&k, &c)| (k, inverse(c)))
+                    .collect();
+                fresh.extend(rows.price(&y0, &z0, Some(&seed)).walks);
+            }
+        }
+        work.rounds += 1;
+        cols.extend(fresh.into_iter().map(|w| (w, 0.0)));
+        let cg = master::Generation { p: &pricing, setup };
+        cg.run(cols, bundle, work)?.map(|(walks, flow, y)| {
+            let (arc_price, fn_price) = pricing.prices(&y);
+            Solved {
+                value: flow.iter().sum(),
+                walks,
+                flow,
+                arc_price,
+                fn_price,
+            }
+        })
+    };
+    let Some(solved) = optimum else {
+        return Ok(None);
+    };
+    let upper = bound_of(net, view, setup, &layered, &solved);
+    let h = check(&mut layered, &solved, upper);
+    Ok(h.proven.then_some((h, solved)))
+}
+
+/// The verified interval of the walk answer `s` on the rows `layered` of `view`, with the
+/// upper bound `upper` already certified for `s`'s prices (the quotient of
+/// [`upper_bound`], at most Λ): its walks written as layered edge flows ([`with_walks`],
+/// which resets `layered`'s edges), decomposed and scaled into the real capacities
+/// ([`chain::repair`]), `min_d flow_d / required_d` the lower bound; residual: the walks'
+/// largest relative overload of a row ([`residual`]). Skips the repair (lower bound 0, not
+/// proven) when the walks' own factor, which the repair can only lower, cannot meet
+/// `upper`. O(Σ walk lengths + one repair).
+fn checked(
+    net: &Network,
+    view: &Surviving,
+    setup: &Setup,
+    layered: &mut Layered,
+    group_of: &[usize],
+    (s, upper): (&Solved, f64),
+) -> Headroom {
+    let mut flow = vec![0.0; net.demands.len()];
+    for (w, &f) in s.walks.iter().zip(&s.flow) {
+        flow[w.demand] += f;
+    }
+    if !decide(factor(&setup.active, &setup.required, &flow), upper, 0.0).proven {
+        return decide(0.0, upper, 0.0);
+    }
+    let x = with_walks(net, layered, group_of, s);
+    let rows = Rows::new(net, view, layered);
+    let residual = residual(&rows, s);
+    let (allocation, _) = chain::repair(net, layered, &x);
+    let lower = factor(&setup.active, &setup.required, &allocation.demand_flow);
+    decide(lower, upper, residual)
+}
+
+/// The quotient bound of [`upper_bound`] at the prices of `s` over the rows `layered` of
+/// `view`, at most Λ. One pricing pass.
+fn bound_of(net: &Network, view: &Surviving, setup: &Setup, layered: &Layered, s: &Solved) -> f64 {
+    let rows = Rows::new(net, view, layered);
+    upper_bound(&rows, &setup.active, &s.arc_price, &s.fn_price).min(setup.ceiling)
+}
+
+/// The parent's surviving walks `start` with the flow the outage cut re-routed: a target
+/// factor, the parent's ([`master::parent_factor`] over the outage's active demands) when
+/// `lower` is `None`, else `lower` when it is below that (each demand's surviving walks
+/// first scaled down to at most `lower · required_d`); each demand's shortfall
+/// `target · required_d − surviving flow_d` re-routed by [`reroute`] through what the
+/// surviving walks leave in the rows. `None` when no active demand falls short or `lower`
+/// is not below the parent's factor. O(Σ walk lengths + augmentations · (k + 1) · (sites +
+/// arcs)).
+fn rerouted(
+    rows: &Rows,
+    setup: &Setup,
+    parent: &Solved,
+    start: &[(ChainWalk, f64)],
+    lower: Option<f64>,
+) -> Option<Vec<(ChainWalk, f64)>> {
+    let n = rows.net.demands.len();
+    let mut had = vec![0.0; n];
+    for (w, &f) in parent.walks.iter().zip(&parent.flow) {
+        had[w.demand] += f.max(0.0);
+    }
+    let target = master::reroute_target(setup, &had, lower)?;
+    let mut kept = vec![0.0; n];
+    for (w, f) in start {
+        kept[w.demand] += f;
+    }
+    let mut shrink = vec![1.0; n];
+    if lower.is_some() {
+        for &d in &setup.active {
+            let want = target * setup.required[d];
+            if kept[d] > want {
+                shrink[d] = want / kept[d];
+                kept[d] = want;
+            }
+        }
+    }
+    let mut walks: Vec<(ChainWalk, f64)> = start
+        .iter()
+        .map(|(w, f)| (w.clone(), f * shrink[w.demand]))
+        .collect();
+    // What `reroute` re-routes: per demand short of the target, its first lost parent
+    // walk carrying the shortfall (reroute reads only the amounts of lost walks).
+    let eps = crate::tol::WALK_FLOW_EPS * rows.scale;
+    let mut short = Solved::default();
+    let mut named = vec![false; n];
+    for (w, &f) in parent.walks.iter().zip(&parent.flow) {
+        let d = w.demand;
+        let gap = target * setup.required[d] - kept[d];
+        if f > 0.0 && !named[d] && gap > eps && !w.survives(rows.ch, rows.view) {
+            named[d] = true;
+            short.walks.push(w.clone());
+            short.flow.push(gap);
+        }
+    }
+    if short.walks.is_empty() {
+        return None;
+    }
+    reroute(rows, &short, &mut walks);
+    Some(walks)
+}
+
+/// The layered walks as the λ master sees them: slots `0 .. arcs` are the arcs (the
+/// layered rows' lowered capacities), slots `arcs ..` the (site, function) rows in key
+/// order; pricing is [`Rows::price`].
+struct Layers<'r, 'a> {
+    rows: &'r Rows<'a>,
+    keys: Vec<(usize, FunctionIdx)>,
+    slot: BTreeMap<(usize, FunctionIdx), usize>,
+    usable: usize,
+}
+
+impl<'r, 'a> Layers<'r, 'a> {
+    fn new(rows: &'r Rows<'a>) -> Self {
+        let arcs = rows.net.arcs.len();
+        let keys: Vec<(usize, FunctionIdx)> = rows.layered.function_cap.keys().copied().collect();
+        let slot = keys
+            .iter()
+            .enumerate()
+            .map(|(i, &k)| (k, arcs + i))
+            .collect();
+        let usable = rows.layered.arc_row.iter().filter(|r| r.is_some()).count() + keys.len();
+        Layers {
+            rows,
+            keys,
+            slot,
+            usable,
+        }
+    }
+
+    /// Slot prices `y` as arc prices and (site, function) prices.
+    fn prices(&self, y: &[f64]) -> (Vec<f64>, BTreeMap<(usize, FunctionIdx), f64>) {
+        let arcs = self.rows.net.arcs.len();
+        let z = self
+            .keys
+            .iter()
+            .enumerate()
+            .map(|(i, &k)| (k, y[arcs + i]))
+            .collect();
+        (y[..arcs].to_vec(), z)
+    }
+}
+
+impl Pricing for Layers<'_, '_> {
+    type Walk = ChainWalk;
+
+    fn demand(w: &ChainWalk) -> usize {
+        w.demand
+    }
+
+    fn survives(&self, w: &ChainWalk) -> bool {
+        w.survives(self.rows.ch, self.rows.view)
+    }
+
+    fn slots(&self) -> usize {
+        self.rows.net.arcs.len() + self.keys.len()
+    }
+
+    fn usable_slots(&self) -> usize {
+        self.usable
+    }
+
+    fn cap(&self, s: usize) -> f64 {
+        let arcs = self.rows.net.arcs.len();
+        if s < arcs {
+            self.rows.layered.arc_cap[s]
+        } else {
+            self.rows.layered.function_cap[&self.keys[s - arcs]]
+        }
+    }
+
+    fn entries(&self, w: &ChainWalk) -> Vec<(usize, f64)> {
+        self.rows
+            .coefficients(w)
+            .into_iter()
+            .filter_map(|(key, c)| match key {
+                RowKey::Arc(a) => Some((a, c)),
+                RowKey::Function(v, f) => Some((self.slot[&(v, f)], c)),
+                RowKey::Demand(_) => None,
+            })
+            .collect()
+    }
+
+    fn price(&self, y: &[f64], u: &[f64]) -> (Vec<f64>, Vec<ChainWalk>) {
+        let (arc, z) = self.prices(y);
+        let p = self.rows.price(&arc, &z, Some(u));
+        (p.cost, p.walks)
+    }
 }
 
 /// The concurrent factor an allocation with per-demand flows `flow` achieves over the

@@ -65,15 +65,9 @@ pub(super) fn with_walks(
     x
 }
 
-/// The verified result of walk answer `s` on the rows `layered` of `view`, as
-/// [`chain::solve_verified_with`] verifies a backend's answer: the residual (largest
-/// relative overload of a row by the walks as they came; conservation holds by
-/// construction), [`chain::repair`] of the walks' flow (the proven lower bound),
-/// [`chain::dual_bound`] of the master's prices (the proven upper bound, capped by the
-/// demand at stake), proven when they meet within [`crate::tol::PROOF_GAP_TOL`] of it.
-/// O(Σ walk lengths + groups · Dijkstra).
-pub(super) fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) -> Verified {
-    let (net, view) = (rows.net, rows.view);
+/// The largest relative overload of a row (arc, (site, function) or demand cap) by the
+/// walks of `s` as they came, 0 when every row holds its load. O(Σ walk lengths · log).
+pub(super) fn residual(rows: &Rows, s: &Solved) -> f64 {
     let over = |load: f64, cap: f64| {
         if load > cap {
             (load - cap) / load.max(cap.abs()).max(f64::MIN_POSITIVE)
@@ -87,10 +81,21 @@ pub(super) fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) ->
             *load.entry(key).or_default() += c * f;
         }
     }
-    let residual = load
-        .iter()
+    load.iter()
         .map(|(&key, &l)| over(l, rows.rhs(key)))
-        .fold(0.0, f64::max);
+        .fold(0.0, f64::max)
+}
+
+/// The verified result of walk answer `s` on the rows `layered` of `view`, as
+/// [`chain::solve_verified_with`] verifies a backend's answer: the residual (largest
+/// relative overload of a row by the walks as they came; conservation holds by
+/// construction), [`chain::repair`] of the walks' flow (the proven lower bound),
+/// [`chain::dual_bound`] of the master's prices (the proven upper bound, capped by the
+/// demand at stake), proven when they meet within [`crate::tol::PROOF_GAP_TOL`] of it.
+/// O(Σ walk lengths + groups · Dijkstra).
+pub(super) fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) -> Verified {
+    let (net, view) = (rows.net, rows.view);
+    let residual = residual(rows, s);
     let at_stake: f64 = layered
         .groups
         .iter()

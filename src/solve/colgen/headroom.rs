@@ -52,7 +52,7 @@
 //! Determinism: walks are added in demand order and the simplex is deterministic, so the
 //! answer depends only on the network, the outage and the parent.
 
-mod master;
+pub(crate) mod master;
 
 use super::{Graph, Solved, Walk, price};
 use crate::error::Result;
@@ -164,11 +164,17 @@ pub fn solve(
         .iter()
         .filter_map(|(w, f)| g.lift(w).map(|w| (w, *f)))
         .collect();
+    let pricing = TwoLayer {
+        g: &g,
+        caps: &caps,
+        arc_cap,
+        site_cap,
+    };
     let (cols, bundle) = match parent {
-        Some(p) => master::bundle_of(&g, setup, p, lifted),
+        Some(p) => master::bundle_of(&pricing, setup, (&p.walks, &p.flow), lifted),
         None => (lifted, master::Bundle::empty(net.demands.len())),
     };
-    work.bundled = bundle.member.iter().filter(|&&m| m).count();
+    work.bundled = bundle.members();
     // Every active demand outside the bundle gets its cheapest walk at the parent's prices
     // (zero prices without a parent) as a column at 0, so the first master serves them
     // all; without these, each round would price only the demands its degenerate duals
@@ -209,16 +215,12 @@ pub fn solve(
             .into_iter()
             .map(|w| (w, 0.0)),
     );
-    let cg = master::Generation {
-        g: &g,
-        setup,
-        arc_cap,
-        site_cap,
-        caps: &caps,
-    };
-    let Some((walks, flow, y, z)) = cg.run(cols, bundle, work)? else {
+    let cg = master::Generation { p: &pricing, setup };
+    let Some((walks, flow, prices)) = cg.run(cols, bundle, work)? else {
         return Ok(None);
     };
+    let arcs = net.arcs.len();
+    let (y, z) = (prices[..arcs].to_vec(), prices[arcs..].to_vec());
     let solved = g.split(Solved {
         walks,
         flow,
@@ -260,19 +262,7 @@ fn repaired(
     for (w, &f) in parent.walks.iter().zip(&parent.flow) {
         had[w.demand] += f.max(0.0);
     }
-    let parent_factor = setup
-        .active
-        .iter()
-        .map(|&d| had[d] / setup.required[d])
-        .fold(f64::INFINITY, f64::min);
-    let target = match lower {
-        None => parent_factor,
-        Some(l) if l < parent_factor => l,
-        Some(_) => return None,
-    };
-    if !(target.is_finite() && target > 0.0) {
-        return None;
-    }
+    let target = master::reroute_target(setup, &had, lower)?;
     let mut walks: Vec<Walk> = Vec::with_capacity(start.len());
     let mut flow: Vec<f64> = Vec::with_capacity(start.len());
     let mut kept = vec![0.0; net.demands.len()];
@@ -322,6 +312,57 @@ fn repaired(
         site_price: parent.site_price.clone(),
     };
     Some((certified(net, view, setup, real_caps, &cols), cols))
+}
+
+/// The two-layer walks as the λ master sees them: slots `0 .. arcs` are the class arcs
+/// (row capacity `arc_cap`), slots `arcs .. arcs + sites` the sites' processing
+/// (`site_cap`); pricing is the walk engine's (`price`) with the demand caps `caps`.
+struct TwoLayer<'a, 'g> {
+    g: &'g Graph<'a>,
+    caps: &'g [f64],
+    arc_cap: Vec<f64>,
+    site_cap: Vec<f64>,
+}
+
+impl master::Pricing for TwoLayer<'_, '_> {
+    type Walk = Walk;
+
+    fn demand(w: &Walk) -> usize {
+        w.demand
+    }
+
+    fn survives(&self, w: &Walk) -> bool {
+        w.survives(self.g)
+    }
+
+    fn slots(&self) -> usize {
+        self.arc_cap.len() + self.site_cap.len()
+    }
+
+    fn usable_slots(&self) -> usize {
+        self.g.usable.len() + self.g.procs.len()
+    }
+
+    fn cap(&self, s: usize) -> f64 {
+        let arcs = self.arc_cap.len();
+        if s < arcs {
+            self.arc_cap[s]
+        } else {
+            self.site_cap[s - arcs]
+        }
+    }
+
+    fn entries(&self, w: &Walk) -> Vec<(usize, f64)> {
+        let mut e: Vec<(usize, f64)> = w.arcs.iter().map(|&(a, k)| (a, f64::from(k))).collect();
+        e.push((self.arc_cap.len() + w.site, 1.0));
+        e
+    }
+
+    fn price(&self, y: &[f64], u: &[f64]) -> (Vec<f64>, Vec<Walk>) {
+        let arcs = self.arc_cap.len();
+        let p = price(self.g, self.caps, &y[..arcs], &y[arcs..], Some(u));
+        (p.cost, p.walks)
+    }
 }
 
 /// Per demand: `required_d` when it is active in `setup`, else 0 (the pricing's caps).

@@ -1,5 +1,8 @@
 //! The restricted λ master of the walk-engine headroom, with the demands an outage leaves
-//! whole held together in one **bundle**.
+//! whole held together in one **bundle**; generic over the walks and their pricing
+//! ([`Pricing`]), so the same master serves the two-layer walks of files without
+//! `functions` and the layered walks of service chains
+//! ([`crate::solve::chainwalk::headroom`]).
 //!
 //! A demand none of whose flow-carrying parent walks the outage cuts keeps those walks. In
 //! the master they become one column θ (the bundle): per unit of θ each member demand `d`
@@ -10,82 +13,136 @@
 //! together), so its λ is achievable; the dual bound is computed over every active demand
 //! as always, so the answer is still the full optimum when the bound meets λ.
 //!
-//! **Freeing members.** With arc prices `y`, site prices `z` and member `d`'s cheapest
-//! walk `c_d`, its share of the gap is `Σ_w unit_w·price(w) − required_d·c_d ≥ 0` (what
-//! its bundled walks cost per unit of θ beyond its cheapest walk). When no walk of a free
-//! demand prices out and the bound is still open, the gap lies in the members' shares
-//! (θ basic: the bundle's price equals the row dual of `λ − θ ≤ 0`, so zero shares close
-//! the bound); members with a share above [`PRICE_TOL`] per unit of `required_d` are
-//! freed: the master is built again with their bundled walks as columns at their current
-//! flows, from the current point (λ, θ and every column kept, so the start is feasible).
-//! When the shares are spread thinner than the tolerance, every member is freed (the full
-//! master). Each rebuild frees at least one demand, so there are at most as many as
-//! active demands; [`MAX_ROUNDS`] bounds the pricing rounds in all.
+//! **Freeing members.** With row prices `y` and member `d`'s cheapest walk `c_d`, its
+//! share of the gap is `Σ_w unit_w·price(w) − required_d·c_d ≥ 0` (what its bundled walks
+//! cost per unit of θ beyond its cheapest walk). When no walk of a free demand prices out
+//! and the bound is still open, the gap lies in the members' shares (θ basic: the bundle's
+//! price equals the row dual of `λ − θ ≤ 0`, so zero shares close the bound); members
+//! with a share above [`PRICE_TOL`] per unit of `required_d` are freed: the master is
+//! built again with their bundled walks as columns at their current flows, from the
+//! current point (λ, θ and every column kept, so the start is feasible). When the shares
+//! are spread thinner than the tolerance, every member is freed (the full master). Each
+//! rebuild frees at least one demand, so there are at most as many as active demands;
+//! [`MAX_ROUNDS`] bounds the pricing rounds in all.
 
 use std::collections::HashSet;
+use std::hash::Hash;
 
 use super::super::warm::{MasterLp, large_master_lp};
-use super::super::{GAP_TOL, Graph, MAX_ROUNDS, PRICE_TOL, WARM_ROWS, Walk, price};
-use super::Columns;
+use super::super::{GAP_TOL, MAX_ROUNDS, PRICE_TOL, WARM_ROWS};
 use super::Work;
 use crate::error::Result;
-use crate::solve::concurrent::Setup;
+use crate::solve::concurrent::{Setup, quotient};
 use crate::solve::simplex::{Column, Simplex};
 
 const NO_ROW: usize = usize::MAX;
 
-/// The walks of the member demands (class arcs) with their flow per unit of θ, and θ's
-/// start value.
-pub(super) struct Bundle {
+/// The walks of one engine as the λ master sees them: each walk belongs to one demand and
+/// puts fixed amounts per unit of flow on capacity rows numbered `0 .. slots()` (created in
+/// the master when a column first needs them); pricing finds every demand's cheapest walk.
+pub(crate) trait Pricing {
+    /// One walk (a column of the master).
+    type Walk: Clone + Eq + Hash;
+    /// The demand `w` serves. O(1).
+    fn demand(w: &Self::Walk) -> usize;
+    /// Whether `w` survives the outage (every element it uses is up). O(walk length).
+    fn survives(&self, w: &Self::Walk) -> bool;
+    /// How many capacity rows (slots) there are.
+    fn slots(&self) -> usize;
+    /// How many slots a master may use at most (the usable ones).
+    fn usable_slots(&self) -> usize;
+    /// The presolved capacity of slot `s` (no allocation at λ ≤ Λ exceeds it).
+    fn cap(&self, s: usize) -> f64;
+    /// The amounts one unit of `w` puts on its slots, one entry per slot. O(walk length).
+    fn entries(&self, w: &Self::Walk) -> Vec<(usize, f64)>;
+    /// At slot prices `y` (per slot, `≥ 0`) and pricing duals `u` (a walk of `d` enters
+    /// when `1 − c_d − u_d > PRICE_TOL`; `+∞` prices none of `d`): every demand's cheapest
+    /// walk cost `c_d` (`+∞` when it has none) and the walks that enter, in a deterministic
+    /// order.
+    fn price(&self, y: &[f64], u: &[f64]) -> (Vec<f64>, Vec<Self::Walk>);
+}
+
+/// Walks with their flows.
+pub(crate) type Flows<W> = Vec<(W, f64)>;
+
+/// The walks of the member demands with their flow per unit of θ, and θ's start value.
+pub(crate) struct Bundle<W> {
     /// Per demand: its walks are in the bundle (it has no demand row of its own).
-    pub(super) member: Vec<bool>,
+    pub(crate) member: Vec<bool>,
     /// Each walk with its flow per unit of θ: member `d`'s add up to `required_d`.
-    walks: Vec<(Walk, f64)>,
+    walks: Vec<(W, f64)>,
     /// θ's start value.
     theta: f64,
 }
 
-impl Bundle {
+impl<W> Bundle<W> {
     /// No member (every active demand has its own row).
-    pub(super) fn empty(demands: usize) -> Bundle {
+    pub(crate) fn empty(demands: usize) -> Bundle<W> {
         Bundle {
             member: vec![false; demands],
             walks: Vec::new(),
             theta: 0.0,
         }
     }
+
+    /// How many demands are held in the bundle. O(demands).
+    pub(crate) fn members(&self) -> usize {
+        self.member.iter().filter(|&&m| m).count()
+    }
 }
 
-/// Splits the feasible start `start` (class arcs) into the columns of the demands the
-/// outage touched and the [`Bundle`] of the others. An active demand is a member when every
-/// parent walk of it with flow survives the outage (`g`); its walks are then scaled to
-/// exactly `θ₀·required_d`, `θ₀ = min_d parent flow_d / required_d` over the active
-/// demands (the parent's factor), which only lowers loads. No bundle when `θ₀` is not
-/// positive. O(Σ walk lengths + demands).
-pub(super) fn bundle_of(
-    g: &Graph,
+/// The parent's factor over the outage's active demands: `min_d had_d / required_d`,
+/// where `had_d` is the flow of `d`'s parent walks (`flow_of` per demand, summed by the
+/// caller). O(active).
+pub(crate) fn parent_factor(setup: &Setup, had: &[f64]) -> f64 {
+    setup
+        .active
+        .iter()
+        .map(|&d| had[d] / setup.required[d])
+        .fold(f64::INFINITY, f64::min)
+}
+
+/// The factor a re-route of the parent's cut flow aims at: the [`parent_factor`] when
+/// `lower` is `None`, else `lower` when it is below that; `None` when `lower` is not below
+/// it or the target is not finite and positive. O(active).
+pub(crate) fn reroute_target(setup: &Setup, had: &[f64], lower: Option<f64>) -> Option<f64> {
+    let parent = parent_factor(setup, had);
+    let target = match lower {
+        None => parent,
+        Some(l) if l < parent => l,
+        Some(_) => return None,
+    };
+    (target.is_finite() && target > 0.0).then_some(target)
+}
+
+/// Splits the feasible start `start` into the columns of the demands the outage touched
+/// and the [`Bundle`] of the others. `parent` holds the parent's walks with their flows.
+/// An active demand is a member when every parent walk of it with flow survives the
+/// outage ([`Pricing::survives`]); its walks in `start` are then scaled to exactly
+/// `θ₀·required_d`, `θ₀` the [`parent_factor`], which only lowers loads. No bundle when
+/// `θ₀` is not positive. O(Σ walks + demands).
+pub(crate) fn bundle_of<P: Pricing>(
+    p: &P,
     setup: &Setup,
-    parent: &Columns,
-    start: Vec<(Walk, f64)>,
-) -> (Vec<(Walk, f64)>, Bundle) {
-    let n = g.net.demands.len();
+    parent: (&[P::Walk], &[f64]),
+    start: Vec<(P::Walk, f64)>,
+) -> (Flows<P::Walk>, Bundle<P::Walk>) {
+    let n = setup.required.len();
+    let demand = P::demand;
     let mut active = vec![false; n];
     for &d in &setup.active {
         active[d] = true;
     }
     let mut had = vec![0.0; n];
     let mut cut = vec![false; n];
-    for (w, &f) in parent.walks.iter().zip(&parent.flow) {
-        if f > 0.0 && active[w.demand] {
-            had[w.demand] += f;
-            cut[w.demand] |= !w.survives(g);
+    for (w, &f) in parent.0.iter().zip(parent.1) {
+        let d = demand(w);
+        if f > 0.0 && active[d] {
+            had[d] += f;
+            cut[d] |= !p.survives(w);
         }
     }
-    let theta = setup
-        .active
-        .iter()
-        .map(|&d| had[d] / setup.required[d])
-        .fold(f64::INFINITY, f64::min);
+    let theta = parent_factor(setup, &had);
     if !(theta.is_finite() && theta > 0.0) {
         return (start, Bundle::empty(n));
     }
@@ -95,8 +152,8 @@ pub(super) fn bundle_of(
     }
     let mut kept = vec![0.0; n];
     for (w, f) in &start {
-        if member[w.demand] {
-            kept[w.demand] += f;
+        if member[demand(w)] {
+            kept[demand(w)] += f;
         }
     }
     // A member whose walks carry nothing in `start` (cannot happen for walks that all
@@ -106,12 +163,13 @@ pub(super) fn bundle_of(
             member[d] = false;
         }
     }
-    type Flows = Vec<(Walk, f64)>;
-    let (inside, cols): (Flows, Flows) = start.into_iter().partition(|(w, _)| member[w.demand]);
+    let (inside, cols): (Flows<P::Walk>, Flows<P::Walk>) =
+        start.into_iter().partition(|(w, _)| member[demand(w)]);
     let walks = inside
         .into_iter()
         .map(|(w, f)| {
-            let unit = f * setup.required[w.demand] / kept[w.demand];
+            let d = demand(&w);
+            let unit = f * setup.required[d] / kept[d];
             (w, unit)
         })
         .collect();
@@ -125,54 +183,51 @@ pub(super) fn bundle_of(
     )
 }
 
-/// One column generation of the λ master: its graph, the active demands, the presolved
-/// class-arc and site capacities and the pricing's demand caps.
-pub(super) struct Generation<'a, 'g> {
-    pub(super) g: &'g Graph<'a>,
-    pub(super) setup: &'g Setup,
-    pub(super) arc_cap: Vec<f64>,
-    pub(super) site_cap: Vec<f64>,
-    pub(super) caps: &'g [f64],
+/// One column generation of the λ master: the engine's walks and pricing, and the active
+/// demands.
+pub(crate) struct Generation<'g, P: Pricing> {
+    pub(crate) p: &'g P,
+    pub(crate) setup: &'g Setup,
 }
 
 /// How one master ended.
-enum End {
-    /// The bound met λ: every walk (class arcs) with its flow, and the prices.
-    Done(Vec<Walk>, Vec<f64>, Vec<f64>, Vec<f64>),
+enum End<W> {
+    /// The bound met λ: every walk with its flow, and the slot prices.
+    Done(Vec<W>, Vec<f64>, Vec<f64>),
     /// Members to free: the master's walks at their flows, λ and θ.
-    Free(Vec<usize>, Vec<(Walk, f64)>, f64, f64),
+    Free(Vec<usize>, Vec<(W, f64)>, f64, f64),
     /// No convergence (stalled, too many rounds, too large, or the LP failed).
     Stalled,
 }
 
-/// The walks and flows, arc and site prices of a λ optimum.
-type Optimum = (Vec<Walk>, Vec<f64>, Vec<f64>, Vec<f64>);
+/// The walks and flows, and the slot prices (scaled like the pricing's) of a λ optimum.
+pub(crate) type Optimum<W> = (Vec<W>, Vec<f64>, Vec<f64>);
 
-impl Generation<'_, '_> {
-    /// Column generation from the feasible start `cols` (class arcs; start flows, possibly
-    /// 0) and `bundle`, freeing members as the module documentation says. `None` when it
-    /// does not converge. Cost: per master, one build (rows and columns added, O(m ·
-    /// nonzeros)), then per round one warm simplex re-optimisation and one pricing pass.
-    pub(super) fn run(
+impl<P: Pricing> Generation<'_, P> {
+    /// Column generation from the feasible start `cols` (start flows, possibly 0) and
+    /// `bundle`, freeing members as the module documentation says. `None` when it does not
+    /// converge. Cost: per master, one build (rows and columns added, O(m · nonzeros)),
+    /// then per round one warm simplex re-optimisation and one pricing pass.
+    pub(crate) fn run(
         &self,
-        mut cols: Vec<(Walk, f64)>,
-        mut bundle: Bundle,
+        mut cols: Vec<(P::Walk, f64)>,
+        mut bundle: Bundle<P::Walk>,
         work: &mut Work,
-    ) -> Result<Option<Optimum>> {
+    ) -> Result<Option<Optimum<P::Walk>>> {
         let mut lambda: Option<f64> = None;
         loop {
             let Some(mut m) = self.master(&cols, &bundle, lambda) else {
                 return Ok(None);
             };
             match m.run(self, &bundle, work)? {
-                End::Done(w, f, y, z) => return Ok(Some((w, f, y, z))),
+                End::Done(w, f, y) => return Ok(Some((w, f, y))),
                 End::Stalled => return Ok(None),
                 End::Free(wake, kept, l, theta) => {
                     work.freed += 1;
                     cols = kept;
                     let mut inside = Vec::new();
                     for (w, unit) in std::mem::take(&mut bundle.walks) {
-                        if wake.binary_search(&w.demand).is_ok() {
+                        if wake.binary_search(&P::demand(&w)).is_ok() {
                             cols.push((w, unit * theta));
                         } else {
                             inside.push((w, unit));
@@ -194,40 +249,35 @@ impl Generation<'_, '_> {
     /// when given). `None` when it is too large for the warm LPs.
     fn master(
         &self,
-        cols: &[(Walk, f64)],
-        bundle: &Bundle,
+        cols: &[(P::Walk, f64)],
+        bundle: &Bundle<P::Walk>,
         lambda: Option<f64>,
-    ) -> Option<Master<'_>> {
-        let g = self.g;
-        let net = g.net;
+    ) -> Option<Master<P::Walk>> {
+        let p = self.p;
         let setup = self.setup;
+        let n = setup.required.len();
         let free = setup.active.iter().filter(|&&d| !bundle.member[d]).count();
-        let rows = g.usable.len() + g.procs.len() + free + 1;
+        let rows = p.usable_slots() + free + 1;
         let lp: Box<dyn MasterLp> = if rows <= WARM_ROWS {
             Box::new(Simplex::new())
         } else {
             large_master_lp()?
         };
         // The start's loads, then one factor that fits them into the capacities.
-        let mut arc_load = vec![0.0; net.arcs.len()];
-        let mut site_load = vec![0.0; net.sites.len()];
-        let mut served = vec![0.0; net.demands.len()];
+        let mut load = vec![0.0; p.slots()];
+        let mut served = vec![0.0; n];
         let bundled = bundle.walks.iter().map(|(w, u)| (w, u * bundle.theta));
         for (w, f) in cols.iter().map(|(w, f)| (w, *f)).chain(bundled) {
-            site_load[w.site] += f;
-            served[w.demand] += f;
-            for &(a, k) in &w.arcs {
-                arc_load[a] += f64::from(k) * f;
+            served[P::demand(w)] += f;
+            for (s, c) in p.entries(w) {
+                load[s] += c * f;
             }
         }
         let mut factor: f64 = 1.0;
-        for (load, cap) in arc_load
-            .iter()
-            .zip(&self.arc_cap)
-            .chain(site_load.iter().zip(&self.site_cap))
-        {
-            if *load > *cap {
-                factor = factor.min(cap / load);
+        for (s, &l) in load.iter().enumerate() {
+            let cap = p.cap(s);
+            if l > cap {
+                factor = factor.min(cap / l);
             }
         }
         // Rounding of the sums above: stay a few ulps inside.
@@ -248,11 +298,9 @@ impl Generation<'_, '_> {
         }
         l = (l * (1.0 - 8.0 * f64::EPSILON)).max(0.0);
         let mut m = Master {
-            g,
             lp,
-            arc_row: vec![NO_ROW; net.arcs.len()],
-            site_row: vec![NO_ROW; net.sites.len()],
-            dem_row: vec![NO_ROW; net.demands.len()],
+            row: vec![NO_ROW; p.slots()],
+            dem_row: vec![NO_ROW; n],
             bundle_row: NO_ROW,
             theta_col: NO_ROW,
             col: Vec::new(),
@@ -273,30 +321,23 @@ impl Generation<'_, '_> {
         m.lp.add_col(Column::new(1.0, 0.0, setup.ceiling, l), entries);
         if !bundle.walks.is_empty() {
             // θ's column: the bundle's load per unit on every row it touches.
-            let mut arc_unit = vec![0.0; net.arcs.len()];
-            let mut site_unit = vec![0.0; net.sites.len()];
+            let mut unit = vec![0.0; p.slots()];
             for (w, u) in &bundle.walks {
-                site_unit[w.site] += u;
-                for &(a, k) in &w.arcs {
-                    arc_unit[a] += f64::from(k) * u;
+                for (s, c) in p.entries(w) {
+                    unit[s] += c * u;
                 }
             }
             let mut entries = vec![(m.bundle_row, -1.0)];
-            for (a, &u) in arc_unit.iter().enumerate() {
+            for (s, &u) in unit.iter().enumerate() {
                 if u > 0.0 {
-                    entries.push((m.arc_row(self, a), u));
-                }
-            }
-            for (v, &u) in site_unit.iter().enumerate() {
-                if u > 0.0 {
-                    entries.push((m.site_row(self, v), u));
+                    entries.push((m.slot_row(p, s), u));
                 }
             }
             m.theta_col =
                 m.lp.add_col(Column::new(0.0, 0.0, f64::INFINITY, theta), entries);
         }
         for (w, f) in cols {
-            m.column(self, w.clone(), f * factor);
+            m.column(p, w.clone(), f * factor);
         }
         Some(m)
     }
@@ -304,49 +345,40 @@ impl Generation<'_, '_> {
 
 /// The restricted master kept by a warm LP (the bounded simplex, or HiGHS above
 /// [`WARM_ROWS`] rows with the `highs` feature): a demand row for every free active demand,
-/// the bundle's row and θ, arc and site rows created when a column first needs them, λ as
+/// the bundle's row and θ, slot rows created when a column first needs them, λ as
 /// column 0.
-struct Master<'g> {
-    g: &'g Graph<'g>,
+struct Master<W> {
     lp: Box<dyn MasterLp>,
-    arc_row: Vec<usize>,
-    site_row: Vec<usize>,
+    row: Vec<usize>,
     dem_row: Vec<usize>,
     bundle_row: usize,
     theta_col: usize,
     /// The LP column of `walks[j]`.
     col: Vec<usize>,
-    walks: Vec<Walk>,
-    seen: HashSet<Walk>,
+    walks: Vec<W>,
+    seen: HashSet<W>,
 }
 
-impl Master<'_> {
-    fn arc_row(&mut self, cg: &Generation, a: usize) -> usize {
-        if self.arc_row[a] == NO_ROW {
-            self.arc_row[a] = self.lp.add_row(cg.arc_cap[a]);
+impl<W: Clone + Eq + Hash> Master<W> {
+    fn slot_row<P: Pricing<Walk = W>>(&mut self, p: &P, s: usize) -> usize {
+        if self.row[s] == NO_ROW {
+            self.row[s] = self.lp.add_row(p.cap(s));
         }
-        self.arc_row[a]
-    }
-
-    fn site_row(&mut self, cg: &Generation, v: usize) -> usize {
-        if self.site_row[v] == NO_ROW {
-            self.site_row[v] = self.lp.add_row(cg.site_cap[v]);
-        }
-        self.site_row[v]
+        self.row[s]
     }
 
     /// Adds walk `w` (of a free demand) as a column at flow `f` (rows created as needed);
     /// a walk already present is skipped.
-    fn column(&mut self, cg: &Generation, w: Walk, f: f64) {
+    fn column<P: Pricing<Walk = W>>(&mut self, p: &P, w: W, f: f64) {
         if !self.seen.insert(w.clone()) {
             return;
         }
-        let mut entries = Vec::with_capacity(w.arcs.len() + 2);
-        for &(a, k) in &w.arcs {
-            entries.push((self.arc_row(cg, a), f64::from(k)));
+        let slots = p.entries(&w);
+        let mut entries = Vec::with_capacity(slots.len() + 1);
+        for (s, c) in slots {
+            entries.push((self.slot_row(p, s), c));
         }
-        entries.push((self.site_row(cg, w.site), 1.0));
-        entries.push((self.dem_row[w.demand], -1.0));
+        entries.push((self.dem_row[P::demand(&w)], -1.0));
         let c = Column::new(0.0, 0.0, f64::INFINITY, f.max(0.0));
         self.col.push(self.lp.add_col(c, entries));
         self.walks.push(w);
@@ -377,8 +409,13 @@ impl Master<'_> {
 
     /// Rounds of master solve and pricing until the dual bound meets λ (the walks with
     /// their flows, the bundle's at θ), or members to free, or no convergence.
-    fn run(&mut self, cg: &Generation, bundle: &Bundle, work: &mut Work) -> Result<End> {
-        let setup = cg.setup;
+    fn run<P: Pricing<Walk = W>>(
+        &mut self,
+        cg: &Generation<P>,
+        bundle: &Bundle<W>,
+        work: &mut Work,
+    ) -> Result<End<W>> {
+        let (p, setup) = (cg.p, cg.setup);
         let scale = setup.total_required;
         loop {
             let (rows, limit) = (self.lp.rows(), self.lp.row_limit());
@@ -390,12 +427,7 @@ impl Master<'_> {
                 return Ok(End::Stalled);
             }
             let lambda = self.lp.value(0);
-            let y: Vec<f64> = self.arc_row.iter().map(|&r| scale * self.dual(r)).collect();
-            let z: Vec<f64> = self
-                .site_row
-                .iter()
-                .map(|&r| scale * self.dual(r))
-                .collect();
+            let y: Vec<f64> = self.row.iter().map(|&r| scale * self.dual(r)).collect();
             // Pricing's demand duals: a walk of d improves when u_d − c_d > PRICE_TOL,
             // i.e. 1 − c_d − (1 − u_d) > PRICE_TOL; members are not priced.
             let u: Vec<f64> = self
@@ -410,29 +442,14 @@ impl Master<'_> {
                 })
                 .collect();
             work.rounds += 1;
-            let p = price(self.g, cg.caps, &y, &z, Some(&u));
-            let worth: f64 = self
-                .g
-                .usable
-                .iter()
-                .map(|&a| cg.arc_cap[a] * y[a])
-                .sum::<f64>()
-                + self
-                    .g
-                    .procs
-                    .iter()
-                    .map(|&v| cg.site_cap[v] * z[v])
-                    .sum::<f64>();
+            let (cost, walks) = p.price(&y, &u);
+            let worth: f64 = y.iter().enumerate().map(|(s, &y)| p.cap(s) * y).sum();
             let priced: f64 = setup
                 .active
                 .iter()
-                .map(|&d| setup.required[d] * p.cost[d])
+                .map(|&d| setup.required[d] * cost[d])
                 .sum();
-            let bound = if priced > 0.0 && priced.is_finite() {
-                (worth / priced).min(setup.ceiling)
-            } else {
-                setup.ceiling
-            };
+            let bound = quotient(worth, priced).min(setup.ceiling);
             if bound - lambda <= GAP_TOL * bound.max(f64::MIN_POSITIVE) {
                 let theta = self.theta();
                 let mut walks = std::mem::take(&mut self.walks);
@@ -441,28 +458,22 @@ impl Master<'_> {
                     walks.push(w.clone());
                     flow.push(unit * theta);
                 }
-                return Ok(End::Done(walks, flow, y, z));
+                return Ok(End::Done(walks, flow, y));
             }
             if work.rounds >= MAX_ROUNDS {
                 return Ok(End::Stalled);
             }
-            let fresh: Vec<Walk> = p
-                .walks
+            let fresh: Vec<W> = walks
                 .into_iter()
                 .filter(|w| !self.seen.contains(w))
                 .collect();
             if fresh.is_empty() {
                 // The gap is in the members' shares: free those above the tolerance,
                 // else every member; none left: stalled.
-                let mut share = vec![0.0; p.cost.len()];
+                let mut share = vec![0.0; cost.len()];
                 for (w, unit) in &bundle.walks {
-                    let cost: f64 = w
-                        .arcs
-                        .iter()
-                        .map(|&(a, k)| f64::from(k) * y[a])
-                        .sum::<f64>()
-                        + z[w.site];
-                    share[w.demand] += unit * cost;
+                    let price: f64 = p.entries(w).iter().map(|&(s, c)| c * y[s]).sum();
+                    share[P::demand(w)] += unit * price;
                 }
                 let members: Vec<usize> = setup
                     .active
@@ -478,7 +489,7 @@ impl Master<'_> {
                     .copied()
                     .filter(|&d| {
                         let r = setup.required[d];
-                        share[d] - r * p.cost[d] > PRICE_TOL * r
+                        share[d] - r * cost[d] > PRICE_TOL * r
                     })
                     .collect();
                 if wake.is_empty() {
@@ -493,7 +504,7 @@ impl Master<'_> {
                 return Ok(End::Free(wake, kept, lambda, theta));
             }
             for w in fresh {
-                self.column(cg, w, 0.0);
+                self.column(p, w, 0.0);
             }
         }
     }
