@@ -27,6 +27,11 @@ pub(super) struct Rows<'a> {
     pub(super) group_of: Vec<usize>,
     /// Σ caps of the demands in the LP (at least 1): the scale of the tolerances.
     pub(super) scale: f64,
+    /// Per `site · functions + function`: the rank of its row among the (site, function)
+    /// rows (`NONE`: no row), for [`Rows::index`].
+    fn_slot: Vec<usize>,
+    /// Number of (site, function) rows.
+    n_fn: usize,
 }
 
 /// A row of the master.
@@ -52,6 +57,11 @@ impl<'a> Rows<'a> {
                 total += layered.bound[d];
             }
         }
+        let nf = ch.functions.len();
+        let mut fn_slot = vec![NONE; net.sites.len() * nf];
+        for (i, &(v, f)) in layered.function_cap.keys().enumerate() {
+            fn_slot[v * nf + f] = i;
+        }
         Rows {
             net,
             ch,
@@ -60,7 +70,30 @@ impl<'a> Rows<'a> {
             out,
             group_of,
             scale: f64::max(total, 1.0),
+            fn_slot,
+            n_fn: layered.function_cap.len(),
         }
+    }
+
+    /// A dense index of row `key` in `0..self.len()`: arcs first, then (site, function)
+    /// rows in key order, then demand caps. `key` must be a row of the model (a function
+    /// row without a capacity entry panics). O(1).
+    pub(super) fn index(&self, key: RowKey) -> usize {
+        let arcs = self.net.arcs.len();
+        match key {
+            RowKey::Arc(a) => a,
+            RowKey::Function(v, f) => {
+                let i = self.fn_slot[v * self.ch.functions.len() + f];
+                assert!(i != NONE, "a (site, function) pair without a row");
+                arcs + i
+            }
+            RowKey::Demand(d) => arcs + self.n_fn + d,
+        }
+    }
+
+    /// The number of dense row indices ([`Rows::index`]). O(1).
+    pub(super) fn len(&self) -> usize {
+        self.net.arcs.len() + self.n_fn + self.net.demands.len()
     }
 
     /// The coefficients of walk `w` in the master's rows (arcs and functions weighted by
@@ -68,18 +101,28 @@ impl<'a> Rows<'a> {
     /// demand's cap row), in row-key order. O(walk length · log).
     pub(super) fn coefficients(&self, w: &ChainWalk) -> Vec<(RowKey, f64)> {
         let group = &self.layered.groups[self.group_of[w.demand]];
-        let mut rows: BTreeMap<RowKey, f64> = BTreeMap::new();
-        for e in &w.edges {
-            let (key, layer) = match *e {
-                EdgeKind::Arc { arc, layer } => (RowKey::Arc(arc), layer),
-                EdgeKind::Function { site, layer } => {
-                    (RowKey::Function(site, group.chain[layer]), layer)
-                }
-            };
-            *rows.entry(key).or_default() += group.cumulative[layer];
+        let mut terms: Vec<(RowKey, f64)> = w
+            .edges
+            .iter()
+            .map(|e| match *e {
+                EdgeKind::Arc { arc, layer } => (RowKey::Arc(arc), group.cumulative[layer]),
+                EdgeKind::Function { site, layer } => (
+                    RowKey::Function(site, group.chain[layer]),
+                    group.cumulative[layer],
+                ),
+            })
+            .collect();
+        // Stable: a row used twice sums its terms in walk order.
+        terms.sort_by_key(|&(key, _)| key);
+        let mut rows: Vec<(RowKey, f64)> = Vec::with_capacity(terms.len() + 1);
+        for (key, c) in terms {
+            match rows.last_mut() {
+                Some((k, sum)) if *k == key => *sum += c,
+                _ => rows.push((key, c)),
+            }
         }
-        rows.insert(RowKey::Demand(w.demand), 1.0);
-        rows.into_iter().collect()
+        rows.push((RowKey::Demand(w.demand), 1.0));
+        rows
     }
 
     /// The right-hand side of a row: the edge LP's (lowered) capacity, or the cap.

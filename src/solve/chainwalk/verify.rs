@@ -81,15 +81,16 @@ pub(super) fn verified(rows: &Rows, layered: &Layered, x: &[f64], s: &Solved) ->
             0.0
         }
     };
-    let mut load: BTreeMap<RowKey, f64> = BTreeMap::new();
+    let mut load: Vec<Option<(RowKey, f64)>> = vec![None; rows.len()];
     for (w, &f) in s.walks.iter().zip(&s.flow) {
         for (key, c) in rows.coefficients(w) {
-            *load.entry(key).or_default() += c * f;
+            load[rows.index(key)].get_or_insert((key, 0.0)).1 += c * f;
         }
     }
     let residual = load
         .iter()
-        .map(|(&key, &l)| over(l, rows.rhs(key)))
+        .flatten()
+        .map(|&(key, l)| over(l, rows.rhs(key)))
         .fold(0.0, f64::max);
     let at_stake: f64 = layered
         .groups
