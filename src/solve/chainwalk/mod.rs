@@ -19,7 +19,7 @@
 //! group's layered graph (`k + 1` copies of the surviving network; arc `a` in layer `j`
 //! costs `G_j · y_a`, function `f_{j+1}` at `v` between layers `j` and `j + 1` costs
 //! `G_j · z_{v,f}`), found from shortest-path trees rooted at the function sites
-//! ([`rooted`]). A walk enters when `1 − π_d − u_d` exceeds [`PRICE_TOL`]. The same pass
+//! (module `rooted`). A walk enters when `1 − π_d − u_d` exceeds [`PRICE_TOL`]. The same pass
 //! gives the dual bound `Σ cap·y + Σ cap·z + Σ_d b_d · max(0, 1 − π_d)` (weak duality, valid
 //! for any nonnegative prices), and column generation stops when it meets the master's
 //! value within [`GAP_TOL`].

@@ -217,17 +217,16 @@ pub(super) fn finish(
 }
 
 /// The walk of demand `d` (destination `t`) ending in state `end` of the last layer of
-/// `layers`. O(walk length).
+/// `layers`; `trees`: the reverse and the forward trees of the sites. O(walk length).
 pub(super) fn walk(
     arcs: &[crate::model::Arc],
     group: &Group,
     layers: &[Vec<State>],
-    to_site: &[Option<Tree>],
-    from_site: &[Option<Tree>],
-    d: usize,
-    t: usize,
+    trees: (&[Option<Tree>], &[Option<Tree>]),
+    (d, t): (usize, usize),
     end: usize,
 ) -> ChainWalk {
+    let (to_site, from_site) = trees;
     let k = group.chain.len();
     // The states of the chosen sequence, first layer first.
     let mut seq = vec![end; k];

@@ -229,7 +229,7 @@ impl<'a> Rows<'a> {
                 let to = self.net.demands[d].to.0;
                 if let Some((end, pi)) = finish(group, &layers, &from_site, to) {
                     take(d, pi, &|| {
-                        walk(arcs, group, &layers, &to_site, &from_site, d, to, end)
+                        walk(arcs, group, &layers, (&to_site, &from_site), (d, to), end)
                     });
                 }
             }
