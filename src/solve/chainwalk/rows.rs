@@ -262,6 +262,9 @@ pub(super) fn layered_rows(
     rows_of(net, &skeleton(net, view, bound), bound)
 }
 
+/// An (origin, chain) group's key.
+type GroupKey = (SiteIdx, Vec<FunctionIdx>);
+
 /// The part of [`layered_rows`] that depends on the caps only through which of them are
 /// positive: the (origin, chain) groups with, per group, the arcs and function sites of
 /// its layered graph that lie on some walk from the origin to a destination, and the
@@ -269,7 +272,7 @@ pub(super) fn layered_rows(
 /// demands have a positive cap.
 pub(super) struct Skeleton {
     positive: Vec<bool>,
-    groups: Vec<((SiteIdx, Vec<FunctionIdx>), Vec<usize>)>,
+    groups: Vec<(GroupKey, Vec<usize>)>,
     /// Per group: (layer, arc) of its live arcs, layer by layer in `view.arcs` order.
     live_arcs: Vec<Vec<(usize, usize)>>,
     /// Per group: (layer, site) where it may apply the function of that layer.
@@ -314,8 +317,7 @@ pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skelet
                     arcs.push((j, a));
                 }
             }
-            if j < k {
-                let f = chain_fns[j];
+            if let Some(&f) = chain_fns.get(j) {
                 for v in 0..n {
                     if chain::runs(ch, view, v, f) && live(j * n + v) && live((j + 1) * n + v) {
                         fns.push((j, v));
