@@ -3,7 +3,7 @@
 //! the rounds of master solve, pricing and activation until the dual bound meets the
 //! master's value.
 
-use std::collections::{BTreeMap, HashMap, HashSet};
+use std::collections::{BTreeMap, HashSet};
 
 use super::rows::{RowKey, Rows};
 use super::{ChainWalk, GAP_TOL, MAX_ROUNDS, MAX_WAKE, NONE, Solved, WARM_ROWS};
@@ -27,14 +27,16 @@ use crate::solve::simplex::Simplex;
 pub(super) struct Master<'r, 'a> {
     pub(super) rows: &'r Rows<'a>,
     pub(super) lp: Simplex,
-    pub(super) row: HashMap<RowKey, usize>,
+    /// Per dense row index ([`Rows::index`]): its LP row (`NONE`: not created yet).
+    pub(super) row: Vec<usize>,
     /// The LP's columns, in column order.
     pub(super) walks: Vec<ChainWalk>,
     pub(super) seen: HashSet<ChainWalk>,
     pub(super) active: Vec<bool>,
     /// Per inactive demand: its fixed walks and flows.
     pub(super) fixed: Vec<Vec<(ChainWalk, f64)>>,
-    pub(super) fixed_load: HashMap<RowKey, f64>,
+    /// Per dense row index: the load of the fixed walks.
+    pub(super) fixed_load: Vec<f64>,
 }
 
 impl<'r, 'a> Master<'r, 'a> {
@@ -43,12 +45,12 @@ impl<'r, 'a> Master<'r, 'a> {
         Master {
             rows,
             lp: Simplex::new(),
-            row: HashMap::new(),
+            row: vec![NONE; rows.len()],
             walks: Vec::new(),
             seen: HashSet::new(),
             fixed: vec![Vec::new(); active.len()],
             active,
-            fixed_load: HashMap::new(),
+            fixed_load: vec![0.0; rows.len()],
         }
     }
 
@@ -61,7 +63,7 @@ impl<'r, 'a> Master<'r, 'a> {
         }
         if !self.active[w.demand] {
             for (key, c) in self.rows.coefficients(&w) {
-                *self.fixed_load.entry(key).or_default() += c * f;
+                self.fixed_load[self.rows.index(key)] += c * f;
             }
             self.fixed[w.demand].push((w, f));
             return;
@@ -74,16 +76,12 @@ impl<'r, 'a> Master<'r, 'a> {
     pub(super) fn column(&mut self, w: ChainWalk, f: f64) {
         let mut entries = Vec::new();
         for (key, c) in self.rows.coefficients(&w) {
-            let r = match self.row.get(&key) {
-                Some(&r) => r,
-                None => {
-                    let fixed = self.fixed_load.get(&key).copied().unwrap_or(0.0);
-                    let r = self.lp.add_row((self.rows.rhs(key) - fixed).max(0.0), &[]);
-                    self.row.insert(key, r);
-                    r
-                }
-            };
-            entries.push((r, c));
+            let i = self.rows.index(key);
+            if self.row[i] == NONE {
+                let fixed = self.fixed_load[i];
+                self.row[i] = self.lp.add_row((self.rows.rhs(key) - fixed).max(0.0), &[]);
+            }
+            entries.push((self.row[i], c));
         }
         self.lp.add_col(1.0, 0.0, f64::INFINITY, f, entries);
         self.walks.push(w);
@@ -95,9 +93,10 @@ impl<'r, 'a> Master<'r, 'a> {
         self.active[d] = true;
         for (w, f) in std::mem::take(&mut self.fixed[d]) {
             for (key, c) in self.rows.coefficients(&w) {
-                *self.fixed_load.entry(key).or_default() -= c * f;
-                if let Some(&r) = self.row.get(&key) {
-                    self.lp.shift_rhs(r, c * f);
+                let i = self.rows.index(key);
+                self.fixed_load[i] -= c * f;
+                if self.row[i] != NONE {
+                    self.lp.shift_rhs(self.row[i], c * f);
                 }
             }
             self.column(w, f);
@@ -105,9 +104,10 @@ impl<'r, 'a> Master<'r, 'a> {
     }
 
     pub(super) fn dual(&self, key: RowKey) -> f64 {
-        self.row
-            .get(&key)
-            .map_or(0.0, |&r| self.lp.dual(r).max(0.0))
+        match self.row[self.rows.index(key)] {
+            NONE => 0.0,
+            r => self.lp.dual(r).max(0.0),
+        }
     }
 
     /// Rounds of master solve, pricing and activation until the dual bound meets the

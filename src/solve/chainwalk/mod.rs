@@ -15,10 +15,11 @@
 //! edge LP's own (capacities lowered to what can use them, [`chain::Layered`]).
 //!
 //! **Pricing.** With arc duals `y`, function duals `z` and demand duals `u`, the cheapest
-//! layered walk of every demand of one (origin, chain) group is one Dijkstra on the group's
-//! layered graph (`k + 1` copies of the surviving network; arc `a` in layer `j` costs
-//! `G_j · y_a`, function `f_{j+1}` at `v` between layers `j` and `j + 1` costs
-//! `G_j · z_{v,f}`). A walk enters when `1 − π_d − u_d` exceeds [`PRICE_TOL`]. The same pass
+//! layered walk of every demand of one (origin, chain) group is a shortest path in the
+//! group's layered graph (`k + 1` copies of the surviving network; arc `a` in layer `j`
+//! costs `G_j · y_a`, function `f_{j+1}` at `v` between layers `j` and `j + 1` costs
+//! `G_j · z_{v,f}`), found from shortest-path trees rooted at the function sites
+//! (module `rooted`). A walk enters when `1 − π_d − u_d` exceeds [`PRICE_TOL`]. The same pass
 //! gives the dual bound `Σ cap·y + Σ cap·z + Σ_d b_d · max(0, 1 − π_d)` (weak duality, valid
 //! for any nonnegative prices), and column generation stops when it meets the master's
 //! value within [`GAP_TOL`].
@@ -45,7 +46,8 @@
 //! [`WARM_ROWS`] rows, a simplex failure or a column generation that does not converge
 //! within [`MAX_ROUNDS`] is solved again by the layered edge LP (counted as a fallback).
 //!
-//! Determinism: Dijkstra breaks ties by hop count and then layered node index, walks enter
+//! Determinism: Dijkstra breaks ties by hop count and then site index, the chain
+//! programme by hop count and then site order, walks enter
 //! in group and demand order, and a scenario depends only on the network, the outage and
 //! the parent's optimum, never on thread count.
 
@@ -53,6 +55,7 @@ pub mod approx;
 mod carried;
 pub mod headroom;
 mod master;
+mod rooted;
 mod rows;
 mod start;
 mod verify;
@@ -61,7 +64,7 @@ use std::collections::BTreeMap;
 
 pub use carried::{CarriedWalk, proven_walks};
 use master::Master;
-use rows::{Rows, layered_rows};
+use rows::{Rows, Skeleton, rows_of, skeleton};
 use start::{reroute, surviving_start};
 use verify::{verified, with_walks};
 
@@ -142,7 +145,8 @@ pub struct Basis {
 /// it, the optimum (a child's start).
 type Decided = (Verified, Vec<(usize, Unservable)>, Option<Solved>);
 
-/// One LP of an outage (caps `caps`) by the walk engine, verified: when every walk of the
+/// One LP of an outage (caps `caps`, rows from their skeleton `sk`) by the walk engine,
+/// verified: when every walk of the
 /// parent's optimum `start` that carried flow survives (no flow lost), that allocation
 /// with the parent's prices first (no master solve: proven when the bounds meet, as they
 /// do when the failure takes nothing the optimum used); otherwise, or when that is not
@@ -154,10 +158,11 @@ fn solve_caps(
     net: &Network,
     view: &Surviving,
     caps: &[f64],
+    sk: &Skeleton,
     start: Option<&Solved>,
     stats: &mut Stats,
 ) -> Result<Decided> {
-    let (mut layered, cut_off) = layered_rows(net, view, caps);
+    let (mut layered, cut_off) = rows_of(net, sk, caps);
     if !layered.groups.is_empty() {
         let answer = {
             let rows = Rows::new(net, view, &layered);
@@ -280,17 +285,19 @@ pub struct Walked {
 /// scenario whose failed set is a subset of this one's (normally the baseline).
 ///
 /// Cost: per LP (required, and volume when some surviving demand offers more) a few
-/// rounds of one warm simplex solve and one pricing pass (one layered Dijkstra per
-/// (origin, chain) group), then one verification (the layered LP built, not solved).
+/// rounds of one warm simplex solve and one pricing pass (two Dijkstras per
+/// function site and a small programme per (origin, chain) group), then one verification (the layered LP built, not solved).
 pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) -> Result<Walked> {
     let net = net.view(outage.matrix);
     let view = Surviving::new(net, outage, None);
     let mut stats = Stats::default();
     let required: Vec<f64> = net.demands.iter().map(|d| d.required).collect();
+    let sk = skeleton(net, &view, &required);
     let (req_v, cut_off, req_s) = solve_caps(
         net,
         &view,
         &required,
+        &sk,
         parent.and_then(|b| b.required.as_ref()),
         &mut stats,
     )?;
@@ -299,7 +306,15 @@ pub fn evaluate_walks(net: &Network, outage: &Outage, parent: Option<&Basis>) ->
         // From the parent's volume optimum, else from this outage's required one (feasible
         // for volume caps, which are never smaller).
         let start = parent.and_then(|b| b.volume.as_ref()).or(req_s.as_ref());
-        let (v, _, s) = solve_caps(net, &view, &caps, start, &mut stats)?;
+        // The required LP's skeleton when the same demands have a positive cap.
+        let vsk;
+        let sk = if sk.fits(&caps) {
+            &sk
+        } else {
+            vsk = skeleton(net, &view, &caps);
+            &vsk
+        };
+        let (v, _, s) = solve_caps(net, &view, &caps, sk, start, &mut stats)?;
         (Some(v), s)
     } else {
         (None, None)
@@ -342,7 +357,7 @@ impl Evaluator for ChainWalks {
 
 #[cfg(test)]
 mod tests {
-    use super::rows::RowKey;
+    use super::rows::{RowKey, layered_rows};
     use super::*;
     use crate::scenario::{Element, Scenario};
 

@@ -1,10 +1,12 @@
 //! The rows of the layered walk master in one outage and the pricing of layered walks:
 //! [`layered_rows`] computes the layered edge LP's rows (groups, lowered capacities)
 //! without building it, [`Rows::coefficients`] a walk's column, and [`Rows::price`] the
-//! cheapest layered walk of every demand (one layered Dijkstra per (origin, chain) group)
-//! with the dual bound at the given prices.
+//! cheapest layered walk of every demand (shortest-path trees rooted at the function sites,
+//! [`super::rooted`]) with the dual bound at the given prices.
 
-use std::collections::{BTreeMap, BinaryHeap};
+use std::collections::BTreeMap;
+
+use super::rooted::{Tree, finish, path_from, programme, tree, walk};
 
 use super::{ChainWalk, NONE, PRICE_TOL};
 use crate::model::{Chains, FunctionIdx, Network};
@@ -12,7 +14,6 @@ use crate::model::{Chains, FunctionIdx, Network};
 type SiteIdx = usize;
 
 use crate::solve::chain::{self, EdgeKind, Layered};
-use crate::solve::colgen::Item;
 use crate::solve::surviving::{Surviving, Unservable};
 
 /// The rows of the layered model in one outage, and the pricing graph.
@@ -23,10 +24,17 @@ pub(super) struct Rows<'a> {
     pub(super) layered: &'a Layered,
     /// Per site: the usable arcs leaving it.
     pub(super) out: Vec<Vec<usize>>,
+    /// Per site: the usable arcs entering it.
+    pub(super) inc: Vec<Vec<usize>>,
     /// Per demand: its group in `layered` (`NONE`: not in the LP).
     pub(super) group_of: Vec<usize>,
     /// Σ caps of the demands in the LP (at least 1): the scale of the tolerances.
     pub(super) scale: f64,
+    /// Per `site · functions + function`: the rank of its row among the (site, function)
+    /// rows (`NONE`: no row), for [`Rows::index`].
+    fn_slot: Vec<usize>,
+    /// Number of (site, function) rows.
+    n_fn: usize,
 }
 
 /// A row of the master.
@@ -41,8 +49,10 @@ impl<'a> Rows<'a> {
     pub(super) fn new(net: &'a Network, view: &'a Surviving, layered: &'a Layered) -> Rows<'a> {
         let ch = net.chains.as_ref().expect("a network with functions");
         let mut out = vec![Vec::new(); net.sites.len()];
+        let mut inc = vec![Vec::new(); net.sites.len()];
         for &a in &view.arcs {
             out[net.arcs[a].from].push(a);
+            inc[net.arcs[a].to].push(a);
         }
         let mut group_of = vec![NONE; net.demands.len()];
         let mut total = 0.0;
@@ -52,15 +62,44 @@ impl<'a> Rows<'a> {
                 total += layered.bound[d];
             }
         }
+        let nf = ch.functions.len();
+        let mut fn_slot = vec![NONE; net.sites.len() * nf];
+        for (i, &(v, f)) in layered.function_cap.keys().enumerate() {
+            fn_slot[v * nf + f] = i;
+        }
         Rows {
             net,
             ch,
             view,
             layered,
             out,
+            inc,
             group_of,
             scale: f64::max(total, 1.0),
+            fn_slot,
+            n_fn: layered.function_cap.len(),
         }
+    }
+
+    /// A dense index of row `key` in `0..self.len()`: arcs first, then (site, function)
+    /// rows in key order, then demand caps. `key` must be a row of the model (a function
+    /// row without a capacity entry panics). O(1).
+    pub(super) fn index(&self, key: RowKey) -> usize {
+        let arcs = self.net.arcs.len();
+        match key {
+            RowKey::Arc(a) => a,
+            RowKey::Function(v, f) => {
+                let i = self.fn_slot[v * self.ch.functions.len() + f];
+                assert!(i != NONE, "a (site, function) pair without a row");
+                arcs + i
+            }
+            RowKey::Demand(d) => arcs + self.n_fn + d,
+        }
+    }
+
+    /// The number of dense row indices ([`Rows::index`]). O(1).
+    pub(super) fn len(&self) -> usize {
+        self.net.arcs.len() + self.n_fn + self.net.demands.len()
     }
 
     /// The coefficients of walk `w` in the master's rows (arcs and functions weighted by
@@ -68,18 +107,28 @@ impl<'a> Rows<'a> {
     /// demand's cap row), in row-key order. O(walk length · log).
     pub(super) fn coefficients(&self, w: &ChainWalk) -> Vec<(RowKey, f64)> {
         let group = &self.layered.groups[self.group_of[w.demand]];
-        let mut rows: BTreeMap<RowKey, f64> = BTreeMap::new();
-        for e in &w.edges {
-            let (key, layer) = match *e {
-                EdgeKind::Arc { arc, layer } => (RowKey::Arc(arc), layer),
-                EdgeKind::Function { site, layer } => {
-                    (RowKey::Function(site, group.chain[layer]), layer)
-                }
-            };
-            *rows.entry(key).or_default() += group.cumulative[layer];
+        let mut terms: Vec<(RowKey, f64)> = w
+            .edges
+            .iter()
+            .map(|e| match *e {
+                EdgeKind::Arc { arc, layer } => (RowKey::Arc(arc), group.cumulative[layer]),
+                EdgeKind::Function { site, layer } => (
+                    RowKey::Function(site, group.chain[layer]),
+                    group.cumulative[layer],
+                ),
+            })
+            .collect();
+        // Stable: a row used twice sums its terms in walk order.
+        terms.sort_by_key(|&(key, _)| key);
+        let mut rows: Vec<(RowKey, f64)> = Vec::with_capacity(terms.len() + 1);
+        for (key, c) in terms {
+            match rows.last_mut() {
+                Some((k, sum)) if *k == key => *sum += c,
+                _ => rows.push((key, c)),
+            }
         }
-        rows.insert(RowKey::Demand(w.demand), 1.0);
-        rows.into_iter().collect()
+        rows.push((RowKey::Demand(w.demand), 1.0));
+        rows
     }
 
     /// The right-hand side of a row: the edge LP's (lowered) capacity, or the cap.
@@ -93,8 +142,10 @@ impl<'a> Rows<'a> {
 
     /// Prices every demand of the LP at arc prices `y` and function prices `z` (missing:
     /// 0); with demand duals `u`, also returns the walks whose reduced cost
-    /// `1 − π_d − u_d` exceeds [`PRICE_TOL`], in group and demand order. One Dijkstra per
-    /// group on its layered graph: O(groups · (k + 1) · (arcs + sites) · log).
+    /// `1 − π_d − u_d` exceeds [`PRICE_TOL`], in group and demand order. Two Dijkstras per
+    /// site running a function (one per origin of plain traffic), then per group a
+    /// programme over its chain's sites ([`super::rooted`]): O(function sites · arcs · log
+    /// + groups · k · sites² + demands · sites).
     pub(super) fn price(
         &self,
         y: &[f64],
@@ -114,85 +165,72 @@ impl<'a> Rows<'a> {
         }
         let mut cost = vec![f64::INFINITY; self.net.demands.len()];
         let mut walks = Vec::new();
+        let arcs = &self.net.arcs;
+        let nf = self.ch.functions.len();
+        // The sites running each function used by some group, and the trees of those sites
+        // (and of the origins of plain traffic).
+        let mut used = vec![false; nf];
+        for group in &layered.groups {
+            for &f in &group.chain {
+                used[f] = true;
+            }
+        }
+        let sites: Vec<Vec<usize>> = (0..nf)
+            .map(|f| {
+                if used[f] {
+                    (0..n)
+                        .filter(|&v| chain::runs(self.ch, self.view, v, f))
+                        .collect()
+                } else {
+                    Vec::new()
+                }
+            })
+            .collect();
+        let mut to_site: Vec<Option<Tree>> = (0..n).map(|_| None).collect();
+        let mut from_site: Vec<Option<Tree>> = (0..n).map(|_| None).collect();
+        for &v in sites.iter().flatten() {
+            if from_site[v].is_none() {
+                from_site[v] = Some(tree(arcs, &self.out, v, y, true));
+                to_site[v] = Some(tree(arcs, &self.inc, v, y, false));
+            }
+        }
+        let zp = |v: usize, f: usize| z.get(&(v, f)).copied().unwrap_or(0.0).max(0.0);
         for group in &layered.groups {
             let k = group.chain.len();
-            let cum = &group.cumulative;
-            let nodes = (k + 1) * n;
-            let mut dist = vec![f64::INFINITY; nodes];
-            let mut hops = vec![u32::MAX; nodes];
-            let mut pred: Vec<Option<(usize, EdgeKind)>> = vec![None; nodes];
-            let mut done = vec![false; nodes];
-            let mut heap = BinaryHeap::new();
-            dist[group.origin] = 0.0;
-            hops[group.origin] = 0;
-            heap.push(Item {
-                dist: 0.0,
-                hops: 0,
-                node: group.origin,
-            });
-            while let Some(Item {
-                dist: dv,
-                hops: hv,
-                node,
-            }) = heap.pop()
-            {
-                if done[node] {
-                    continue;
-                }
-                done[node] = true;
-                let (j, v) = (node / n, node % n);
-                let mut relax = |to: usize, cost: f64, kind: EdgeKind| {
-                    if done[to] {
-                        return;
-                    }
-                    let (nd, nh) = (dv + cost, hv + 1);
-                    if nd.total_cmp(&dist[to]).then(nh.cmp(&hops[to])).is_lt() {
-                        dist[to] = nd;
-                        hops[to] = nh;
-                        pred[to] = Some((node, kind));
-                        heap.push(Item {
-                            dist: nd,
-                            hops: nh,
-                            node: to,
-                        });
-                    }
-                };
-                for &a in &self.out[v] {
-                    let to = j * n + self.net.arcs[a].to.0;
-                    relax(
-                        to,
-                        cum[j] * y[a].max(0.0),
-                        EdgeKind::Arc { arc: a, layer: j },
-                    );
-                }
-                if j < k && chain::runs(self.ch, self.view, v, group.chain[j]) {
-                    let price = z.get(&(v, group.chain[j])).copied().unwrap_or(0.0);
-                    relax(
-                        (j + 1) * n + v,
-                        cum[j] * price.max(0.0),
-                        EdgeKind::Function { site: v, layer: j },
-                    );
-                }
-            }
-            for &d in &group.demands {
-                let end = k * n + self.net.demands[d].to.0;
-                let pi = dist[end];
-                if !pi.is_finite() {
-                    continue;
-                }
+            // Per demand: its walk's cost and, when it prices out, the walk.
+            let mut take = |d: usize, pi: f64, make: &dyn Fn() -> ChainWalk| {
                 cost[d] = pi;
                 bound += layered.bound[d] * (1.0 - pi).max(0.0);
                 if let Some(u) = u
                     && 1.0 - pi - u[d] > PRICE_TOL
                 {
-                    let mut edges = Vec::new();
-                    let mut at = end;
-                    while let Some((prev, kind)) = pred[at] {
-                        edges.push(kind);
-                        at = prev;
+                    walks.push(make());
+                }
+            };
+            if k == 0 {
+                if from_site[group.origin].is_none() {
+                    from_site[group.origin] = Some(tree(arcs, &self.out, group.origin, y, true));
+                }
+                let t = from_site[group.origin].as_ref().expect("a tree");
+                for &d in &group.demands {
+                    let to = self.net.demands[d].to.0;
+                    if t.dist[to].is_finite() {
+                        take(d, t.dist[to], &|| {
+                            let mut edges = Vec::new();
+                            path_from(arcs, t, to, 0, &mut edges);
+                            ChainWalk { demand: d, edges }
+                        });
                     }
-                    edges.reverse();
-                    walks.push(ChainWalk { demand: d, edges });
+                }
+                continue;
+            }
+            let layers = programme(group, &sites, &to_site, &from_site, zp);
+            for &d in &group.demands {
+                let to = self.net.demands[d].to.0;
+                if let Some((end, pi)) = finish(group, &layers, &from_site, to) {
+                    take(d, pi, &|| {
+                        walk(arcs, group, &layers, (&to_site, &from_site), (d, to), end)
+                    });
                 }
             }
         }
@@ -221,41 +259,104 @@ pub(super) fn layered_rows(
     view: &Surviving,
     bound: &[f64],
 ) -> (Layered, Vec<(usize, Unservable)>) {
+    rows_of(net, &skeleton(net, view, bound), bound)
+}
+
+/// An (origin, chain) group's key.
+type GroupKey = (SiteIdx, Vec<FunctionIdx>);
+
+/// The part of [`layered_rows`] that depends on the caps only through which of them are
+/// positive: the (origin, chain) groups with, per group, the arcs and function sites of
+/// its layered graph that lie on some walk from the origin to a destination, and the
+/// cut-off demands. The required and the volume LP of one outage share it when the same
+/// demands have a positive cap.
+pub(super) struct Skeleton {
+    positive: Vec<bool>,
+    groups: Vec<(GroupKey, Vec<usize>)>,
+    /// Per group: (layer, arc) of its live arcs, layer by layer in `view.arcs` order.
+    live_arcs: Vec<Vec<(usize, usize)>>,
+    /// Per group: (layer, site) where it may apply the function of that layer.
+    live_fns: Vec<Vec<(usize, SiteIdx)>>,
+    cut_off: Vec<(usize, Unservable)>,
+}
+
+impl Skeleton {
+    /// The caps `bound` are positive for exactly the demands this skeleton was made for.
+    /// O(demands).
+    pub(super) fn fits(&self, bound: &[f64]) -> bool {
+        self.positive
+            .iter()
+            .zip(bound)
+            .all(|(&p, &b)| p == (b > 0.0))
+    }
+}
+
+/// The [`Skeleton`] of `view` for caps `bound`. O(groups · (k + 1) · (sites + arcs)).
+pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skeleton {
     let ch = net.chains.as_ref().expect("a network with functions");
     let n = net.sites.len();
     let (by_key, cut_off) = chain::demand_groups(net, ch, view, bound);
-    let mut arc_need: Vec<Option<f64>> = vec![None; net.arcs.len()];
-    let mut fn_need: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
-    let mut groups = Vec::new();
+    let mut sk = Skeleton {
+        positive: bound.iter().map(|&b| b > 0.0).collect(),
+        groups: Vec::new(),
+        live_arcs: Vec::new(),
+        live_fns: Vec::new(),
+        cut_off,
+    };
     for ((origin, chain_fns), demands) in by_key {
         let k = chain_fns.len();
-        let cumulative = ch.cumulative(&chain_fns);
-        let total: f64 = demands.iter().map(|&d| bound[d]).sum();
         let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
         let fwd = chain::forward(net, ch, view, origin, &chain_fns);
         let back = chain::backward(net, ch, view, &dests, &chain_fns);
         let live = |node: usize| fwd[node] && back[node];
+        let (mut arcs, mut fns) = (Vec::new(), Vec::new());
         for j in 0..=k {
             for &a in &view.arcs {
                 let arc = &net.arcs[a];
                 if live(j * n + arc.from.0) && live(j * n + arc.to.0) {
-                    *arc_need[a].get_or_insert(0.0) += cumulative[j] * total;
+                    arcs.push((j, a));
                 }
             }
-            if j < k {
-                let f = chain_fns[j];
+            if let Some(&f) = chain_fns.get(j) {
                 for v in 0..n {
                     if chain::runs(ch, view, v, f) && live(j * n + v) && live((j + 1) * n + v) {
-                        *fn_need.entry((v, f)).or_default() += cumulative[j] * total;
+                        fns.push((j, v));
                     }
                 }
             }
         }
+        sk.groups.push(((origin, chain_fns), demands));
+        sk.live_arcs.push(arcs);
+        sk.live_fns.push(fns);
+    }
+    sk
+}
+
+/// [`layered_rows`] from its [`Skeleton`] `sk` (made for caps with the same positive
+/// entries as `bound`). O(Σ live arcs and function sites of the groups).
+pub(super) fn rows_of(
+    net: &Network,
+    sk: &Skeleton,
+    bound: &[f64],
+) -> (Layered, Vec<(usize, Unservable)>) {
+    let ch = net.chains.as_ref().expect("a network with functions");
+    let mut arc_need: Vec<Option<f64>> = vec![None; net.arcs.len()];
+    let mut fn_need: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
+    let mut groups = Vec::new();
+    for (g, ((origin, chain_fns), demands)) in sk.groups.iter().enumerate() {
+        let cumulative = ch.cumulative(chain_fns);
+        let total: f64 = demands.iter().map(|&d| bound[d]).sum();
+        for &(j, a) in &sk.live_arcs[g] {
+            *arc_need[a].get_or_insert(0.0) += cumulative[j] * total;
+        }
+        for &(j, v) in &sk.live_fns[g] {
+            *fn_need.entry((v, chain_fns[j])).or_default() += cumulative[j] * total;
+        }
         groups.push(chain::Group {
-            origin,
-            chain: chain_fns,
+            origin: *origin,
+            chain: chain_fns.clone(),
             cumulative,
-            demands,
+            demands: demands.clone(),
         });
     }
     let arc_row: Vec<Option<usize>> = arc_need
@@ -287,5 +388,5 @@ pub(super) fn layered_rows(
         function_cap,
         bound: bound.to_vec(),
     };
-    (layered, cut_off)
+    (layered, sk.cut_off.clone())
 }

@@ -2,7 +2,7 @@
 //! walks that survive the outage ([`surviving_start`], scaled into the new rows when they
 //! do not fit) and a greedy re-routing of the flow the outage took ([`reroute`]).
 
-use std::collections::{BTreeMap, HashMap};
+use std::collections::HashMap;
 
 use super::rows::{RowKey, Rows};
 use super::{ChainWalk, NONE, START_MARGIN, Solved};
@@ -32,12 +32,23 @@ impl Start {
 /// point of the new rows (each row's load at most its right-hand side).
 /// O(Σ walk lengths · log).
 pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
+    let mut lost = vec![false; rows.net.demands.len()];
+    let alive: Vec<bool> = start
+        .walks
+        .iter()
+        .zip(&start.flow)
+        .map(|(w, &f)| {
+            let ok = rows.group_of[w.demand] != NONE && w.survives(rows.ch, rows.view);
+            lost[w.demand] |= !ok && f > 0.0;
+            ok
+        })
+        .collect();
+    // Walks that carried nothing are kept only for demands that lost flow (columns their
+    // master may use again); held at zero they would change nothing.
     let mut index: HashMap<&ChainWalk, usize> = HashMap::new();
     let mut kept: Vec<(ChainWalk, f64)> = Vec::new();
-    let mut lost = vec![false; rows.net.demands.len()];
-    for (w, &f) in start.walks.iter().zip(&start.flow) {
-        if rows.group_of[w.demand] == NONE || !w.survives(rows.ch, rows.view) {
-            lost[w.demand] |= f > 0.0;
+    for ((w, &f), ok) in start.walks.iter().zip(&start.flow).zip(alive) {
+        if !ok || (f <= 0.0 && !lost[w.demand]) {
             continue;
         }
         match index.get(w) {
@@ -48,10 +59,12 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
             }
         }
     }
-    let mut load: BTreeMap<RowKey, f64> = BTreeMap::new();
-    for (w, f) in &kept {
-        for (key, c) in rows.coefficients(w) {
-            *load.entry(key).or_default() += c * f;
+    let coefficients: Vec<Vec<(RowKey, f64)>> =
+        kept.iter().map(|(w, _)| rows.coefficients(w)).collect();
+    let mut load = vec![0.0; rows.len()];
+    for ((_, f), cs) in kept.iter().zip(&coefficients) {
+        for &(key, c) in cs {
+            load[rows.index(key)] += c * f;
         }
     }
     // Each row over its new right-hand side gets a factor that brings its load inside it;
@@ -59,22 +72,25 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
     // walks through no over-full row keep their flow). Rows the parent filled exactly may
     // be over by rounding: those scale by about START_MARGIN, which is not a change of
     // the allocation (neither `scaled` nor `lost`).
-    let mut factor: HashMap<RowKey, f64> = HashMap::new();
-    for (key, l) in load {
-        let rhs = rows.rhs(key);
-        if l > rhs * (1.0 - START_MARGIN) {
-            factor.insert(key, (rhs * (1.0 - START_MARGIN) / l).max(0.0));
+    let mut factor = vec![1.0_f64; rows.len()];
+    for cs in &coefficients {
+        for &(key, _) in cs {
+            let i = rows.index(key);
+            let (l, rhs) = (load[i], rows.rhs(key));
+            if l > rhs * (1.0 - START_MARGIN) {
+                factor[i] = (rhs * (1.0 - START_MARGIN) / l).max(0.0);
+            }
         }
     }
     let mut scaled = false;
     let walks = kept
         .into_iter()
-        .map(|(w, f)| {
-            let phi = rows
-                .coefficients(&w)
+        .zip(&coefficients)
+        .map(|((w, f), cs)| {
+            let phi = cs
                 .iter()
-                .filter_map(|(key, _)| factor.get(key))
-                .fold(1.0_f64, |a, &b| a.min(b));
+                .map(|&(key, _)| factor[rows.index(key)])
+                .fold(1.0_f64, f64::min);
             if phi < 1.0 - 2.0 * START_MARGIN && f > 0.0 {
                 scaled = true;
                 lost[w.demand] = true;
@@ -104,14 +120,19 @@ pub(super) fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f
             lost[w.demand] += f;
         }
     }
-    let mut res: HashMap<RowKey, f64> = HashMap::new();
-    let room = |res: &HashMap<RowKey, f64>, key: RowKey| {
-        res.get(&key).copied().unwrap_or_else(|| rows.rhs(key))
+    // Per dense row index: what is left of its right-hand side (NaN: not yet computed).
+    let mut res = vec![f64::NAN; rows.len()];
+    let room = |res: &mut Vec<f64>, key: RowKey| {
+        let i = rows.index(key);
+        if res[i].is_nan() {
+            res[i] = rows.rhs(key);
+        }
+        res[i]
     };
     for (w, f) in walks.iter() {
         for (key, c) in rows.coefficients(w) {
-            let r = room(&res, key);
-            res.insert(key, r - c * f);
+            let r = room(&mut res, key);
+            res[rows.index(key)] = r - c * f;
         }
     }
     for (d, &amount) in lost.iter().enumerate() {
@@ -121,7 +142,7 @@ pub(super) fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f
         let group = &layered.groups[rows.group_of[d]];
         let k = group.chain.len();
         let target = k * n + net.demands[d].to.0;
-        let mut remaining = amount.min(room(&res, RowKey::Demand(d)));
+        let mut remaining = amount.min(room(&mut res, RowKey::Demand(d)));
         let mut budget = 2 * (net.arcs.len() + n) + 2;
         while remaining > eps && budget > 0 {
             budget -= 1;
@@ -141,7 +162,7 @@ pub(super) fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f
                     if !seen[next]
                         && chain::runs(rows.ch, rows.view, v, f)
                         && layered.function_cap.contains_key(&(v, f))
-                        && room(&res, RowKey::Function(v, f)) > eps
+                        && room(&mut res, RowKey::Function(v, f)) > eps
                     {
                         seen[next] = true;
                         pred[next] = Some((node, EdgeKind::Function { site: v, layer: j }));
@@ -152,7 +173,7 @@ pub(super) fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f
                     let next = j * n + net.arcs[a].to.0;
                     if !seen[next]
                         && layered.arc_row[a].is_some()
-                        && room(&res, RowKey::Arc(a)) > eps
+                        && room(&mut res, RowKey::Arc(a)) > eps
                     {
                         seen[next] = true;
                         pred[next] = Some((node, EdgeKind::Arc { arc: a, layer: j }));
@@ -174,14 +195,14 @@ pub(super) fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f
             let coefficients = rows.coefficients(&w);
             let push = coefficients
                 .iter()
-                .map(|&(key, c)| room(&res, key) / c)
+                .map(|&(key, c)| room(&mut res, key) / c)
                 .fold(remaining, f64::min);
             if push <= eps {
                 break;
             }
             for &(key, c) in &coefficients {
-                let r = room(&res, key);
-                res.insert(key, r - c * push);
+                let r = room(&mut res, key);
+                res[rows.index(key)] = r - c * push;
             }
             remaining -= push;
             walks.push((w, push));

@@ -66,7 +66,7 @@ pub(super) fn with_walks(
 }
 
 /// The largest relative overload of a row (arc, (site, function) or demand cap) by the
-/// walks of `s` as they came, 0 when every row holds its load. O(Σ walk lengths · log).
+/// walks of `s` as they came, 0 when every row holds its load. O(rows + Σ walk lengths).
 pub(super) fn residual(rows: &Rows, s: &Solved) -> f64 {
     let over = |load: f64, cap: f64| {
         if load > cap {
@@ -75,14 +75,15 @@ pub(super) fn residual(rows: &Rows, s: &Solved) -> f64 {
             0.0
         }
     };
-    let mut load: BTreeMap<RowKey, f64> = BTreeMap::new();
+    let mut load: Vec<Option<(RowKey, f64)>> = vec![None; rows.len()];
     for (w, &f) in s.walks.iter().zip(&s.flow) {
         for (key, c) in rows.coefficients(w) {
-            *load.entry(key).or_default() += c * f;
+            load[rows.index(key)].get_or_insert((key, 0.0)).1 += c * f;
         }
     }
     load.iter()
-        .map(|(&key, &l)| over(l, rows.rhs(key)))
+        .flatten()
+        .map(|&(key, l)| over(l, rows.rhs(key)))
         .fold(0.0, f64::max)
 }
 
