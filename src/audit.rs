@@ -70,6 +70,11 @@ pub struct Audit {
     pub evaluations: Vec<Evaluation>,
     /// Work done by the walk engine (zero for the edge engine and restored outages).
     pub stats: colgen::Stats,
+    /// The warm-starting evaluator's optimum of the baseline (base traffic matrix) when
+    /// the batch solved one: the start a plan's re-solves of the same network with added
+    /// processing use (that network only gains capacity, so the baseline's flows stay
+    /// feasible and the re-solve stays exact: every answer is still certified).
+    pub baseline: Option<std::sync::Arc<Warm>>,
 }
 
 impl Audit {
@@ -819,6 +824,7 @@ impl Batch {
                 .map(|e| e.expect("every outage is solved or restored"))
                 .collect(),
             stats,
+            baseline: self.basis.map(std::sync::Arc::new),
         }
     }
 }

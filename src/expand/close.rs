@@ -8,7 +8,7 @@ use super::tidy::snap_up;
 use crate::error::{Error, Result};
 use crate::model::{LinkIdx, Network};
 use crate::scenario::Outage;
-use crate::solve::evaluator::{Evaluator, Walks, served_at_least};
+use crate::solve::evaluator::{Evaluator, Walks, Warm, served_at_least};
 use crate::solve::flow::FlowIndex;
 use crate::solve::lp::Lp;
 use crate::solve::{Evaluation, TOL};
@@ -101,8 +101,24 @@ pub(crate) fn best_reachable(
     cands: &Candidates,
     eval: &Evaluation,
 ) -> Result<(f64, Vec<(usize, f64)>)> {
+    best_reachable_from(ev, net, outage, cands, eval, None)
+}
+
+/// [`best_reachable`] with `ev` started from `warm` (an optimum `ev` returned for the
+/// baseline of `net`, base traffic matrix: the expanded network only gains processing, so
+/// its flows stay feasible; `None`: cold). The value is the same verified optimum.
+/// Cost: one evaluation.
+pub(crate) fn best_reachable_from(
+    ev: &dyn Evaluator,
+    net: &Network,
+    outage: &Outage,
+    cands: &Candidates,
+    eval: &Evaluation,
+    warm: Option<&Warm>,
+) -> Result<(f64, Vec<(usize, f64)>)> {
     let required = eval.surviving_required;
-    let (best, links) = best_reachable_raw(ev, net, outage, cands, required)?;
+    let warm = warm.filter(|_| outage.matrix == 0);
+    let (best, links) = best_reachable_raw(ev, net, outage, cands, required, warm)?;
     let best = if (required - best).abs() <= TOL * required.max(1.0) {
         required
     } else {
@@ -122,6 +138,7 @@ fn best_reachable_raw(
     outage: &Outage,
     cands: &Candidates,
     required: f64,
+    warm: Option<&Warm>,
 ) -> Result<(f64, Vec<(usize, f64)>)> {
     let alive = outage.site_alive(net);
     let add: Vec<f64> = (0..net.sites.len())
@@ -131,7 +148,7 @@ fn best_reachable_raw(
         })
         .collect();
     let e = ev
-        .evaluate(&net.with_added_processing(&add), outage, None)?
+        .evaluate(&net.with_added_processing(&add), outage, warm)?
         .evaluation;
     let arcs = binding(e.arc_price.iter().copied().enumerate());
     Ok((e.served_required, arcs))

@@ -9,6 +9,8 @@ use super::{Goal, MasterStats, Round};
 use crate::audit::{self, Audit, RunOptions};
 use crate::error::Result;
 use crate::model::Network;
+use crate::scenario::Outage;
+use crate::solve::evaluator::{Evaluator, Walks};
 use crate::solve::{self, Evaluation, GAP_TOL};
 
 /// Outages added to the master at most per round (the most violated first).
@@ -224,9 +226,13 @@ pub(crate) fn cheapest_raise(
         .map(|(v, to, _)| (v, to))
 }
 
-/// Every outage with `planned` (the network with a plan applied): the outages in `which`
-/// are re-solved (in parallel, results in input order), the others keep their audit
-/// evaluation. Cost: |which| calls of [`solve::evaluate`].
+/// Every outage with `planned` (the network with a plan applied: the audit's network with
+/// processing added, never less): the outages in `which` are re-solved (in parallel,
+/// results in input order), the others keep their audit evaluation. Each re-solve is the
+/// walk engine's from the audit's baseline optimum ([`Audit::baseline`], base traffic
+/// matrix; its flows stay feasible with more processing, and the answer is certified as
+/// every walk answer is), else cold. Cost: |which| walk-engine evaluations, each warm
+/// from the baseline when there is one.
 pub(super) fn verify(
     planned: &Network,
     audit: &Audit,
@@ -234,7 +240,7 @@ pub(super) fn verify(
     opts: RunOptions,
 ) -> Result<Vec<Evaluation>> {
     let solved = audit::par_map(which, opts, "verifying plan", |&k| {
-        solve::evaluate_cold_walks(planned, &audit.outages[k])
+        evaluate_from_baseline(planned, audit, &audit.outages[k])
     })?;
     let mut after = audit.evaluations.clone();
     for (&k, e) in which.iter().zip(solved) {
@@ -299,5 +305,23 @@ impl Score {
             Goal::WorstWithin(_) => worst.then(total).then(cost),
             Goal::TotalWithin(_) => total.then(cost),
         }
+    }
+}
+
+/// `outage` on `planned` (the audit's network with processing added) by the walk engine,
+/// started from the audit's baseline optimum when it has one and the outage is on the
+/// base traffic matrix (another matrix's demands are other ones), else cold
+/// ([`solve::evaluate_cold_walks`], which also takes files with service chains).
+/// Cost: one walk-engine evaluation.
+pub(crate) fn evaluate_from_baseline(
+    planned: &Network,
+    audit: &Audit,
+    outage: &Outage,
+) -> Result<Evaluation> {
+    match &audit.baseline {
+        Some(b) if outage.matrix == 0 && planned.chains.is_none() => {
+            Ok(Walks.evaluate(planned, outage, Some(&**b))?.evaluation)
+        }
+        _ => solve::evaluate_cold_walks(planned, outage),
     }
 }

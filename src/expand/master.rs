@@ -347,6 +347,12 @@ fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResul
         });
     }
     let mut pm = PlanMaster::new(net, base, add.clone());
+    pm.start_from(
+        audit
+            .baseline
+            .as_deref()
+            .and_then(|b| b.downcast_ref::<crate::solve::colgen::Basis>()),
+    );
     let mut rows: Vec<GoalRow> = Vec::new();
     let mut served_terms: Vec<(usize, f64)> = Vec::new();
     for &k in active {

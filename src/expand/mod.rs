@@ -183,7 +183,9 @@ pub fn plan_with(
             if e.shortfall <= 0.0 {
                 return Ok(e.served_required);
             }
-            Ok(close::best_reachable(&Walks, net, &audit.outages[k], &cands, e)?.0)
+            let warm = audit.baseline.as_deref();
+            let o = &audit.outages[k];
+            Ok(close::best_reachable_from(&Walks, net, o, &cands, e, warm)?.0)
         },
     )?;
     let eval = |k: usize| &audit.evaluations[k];

@@ -36,7 +36,7 @@ use std::collections::HashSet;
 
 use rayon::prelude::*;
 
-use super::{Graph, MAX_ROUNDS, PIVOTS_PER_ROW, WARM_ROWS, Walk, evaluate_walks, price};
+use super::{Basis, Graph, MAX_ROUNDS, PIVOTS_PER_ROW, WARM_ROWS, Walk, evaluate_walks, price};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -77,6 +77,9 @@ pub struct PlanMaster<'a> {
     pub lp_solves: usize,
     /// Of them, solves by the interior-point backend (the fallback).
     pub interior_point_solves: usize,
+    /// The optimum of the network's baseline (base traffic matrix) the start solves of
+    /// [`PlanMaster::add_outage`] begin from; `None`: cold.
+    parent: Option<&'a Basis>,
 }
 
 /// One outage's rows in the master.
@@ -231,7 +234,16 @@ impl<'a> PlanMaster<'a> {
             cold: None,
             lp_solves: 0,
             interior_point_solves: 0,
+            parent: None,
         }
+    }
+
+    /// Starts every later [`PlanMaster::add_outage`]'s solve from `parent`, the walk
+    /// engine's optimum of the network's baseline (base traffic matrix): with additions
+    /// the network only gains processing, so its flows stay feasible, and the start is
+    /// the same certified optimum, found warm. O(1).
+    pub fn start_from(&mut self, parent: Option<&'a Basis>) {
+        self.parent = parent;
     }
 
     /// Variables of the master so far (the caller's, the served variables, the walks).
@@ -256,7 +268,8 @@ impl<'a> PlanMaster<'a> {
             .iter()
             .map(|a| a.map_or(0.0, |j| self.base.upper[j].max(0.0)))
             .collect();
-        let start = evaluate_walks(&self.net.with_added_processing(&full), outage, None)?;
+        let parent = self.parent.filter(|_| outage.matrix == 0);
+        let start = evaluate_walks(&self.net.with_added_processing(&full), outage, parent)?;
         // The simplex copy is rebuilt with the new block at the next solve.
         self.exact = None;
         let base = &mut self.base;
