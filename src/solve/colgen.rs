@@ -53,8 +53,8 @@ mod pricing;
 pub(crate) mod round;
 mod warm;
 
-pub(crate) use graph::Item;
 use graph::*;
+pub(crate) use graph::{Tree, shortest_tree};
 use pricing::*;
 use warm::*;
 

@@ -7,24 +7,19 @@
 //! a small dynamic programme over the chain's sites then gives each demand its walk.
 //! The idea is the base walk engine's, whose pricing is rooted at the processing sites.
 
-use std::collections::BinaryHeap;
-
 use super::{ChainWalk, NONE};
 use crate::solve::chain::{EdgeKind, Group};
-use crate::solve::colgen::Item;
+use crate::solve::colgen::shortest_tree;
 
-/// A shortest-path tree over the sites at arc lengths `max(y, 0)`: distance, hop count
-/// and the tree arc at each site (`NONE` at the root and at unreached sites). A forward
-/// tree's arc enters its site; a reverse tree's leaves it towards the root.
-pub(super) struct Tree {
-    pub(super) dist: Vec<f64>,
-    pub(super) hops: Vec<u32>,
-    pred: Vec<usize>,
-}
+/// A shortest-path tree over the sites at arc lengths `max(y, 0)`
+/// ([`crate::solve::colgen::Tree`]): distance, hop count and the tree arc at each site
+/// (`NONE` at the root and at unreached sites). A forward tree's arc enters its site; a
+/// reverse tree's leaves it towards the root.
+pub(super) use crate::solve::colgen::Tree;
 
 /// Dijkstra from `root` over the arcs `adj` (per site: the usable arcs leaving it when
-/// `forward`, entering it otherwise), ties broken by hop count then site index.
-/// O(arcs · log sites).
+/// `forward`, entering it otherwise), ties broken by hop count then site index
+/// ([`crate::solve::colgen::shortest_tree`]). O(arcs · log sites).
 pub(super) fn tree(
     arcs: &[crate::model::Arc],
     adj: &[Vec<usize>],
@@ -32,53 +27,7 @@ pub(super) fn tree(
     y: &[f64],
     forward: bool,
 ) -> Tree {
-    let n = adj.len();
-    let mut t = Tree {
-        dist: vec![f64::INFINITY; n],
-        hops: vec![u32::MAX; n],
-        pred: vec![NONE; n],
-    };
-    let mut done = vec![false; n];
-    let mut heap = BinaryHeap::new();
-    t.dist[root] = 0.0;
-    t.hops[root] = 0;
-    heap.push(Item {
-        dist: 0.0,
-        hops: 0,
-        node: root,
-    });
-    while let Some(Item { dist, hops, node }) = heap.pop() {
-        if done[node] {
-            continue;
-        }
-        done[node] = true;
-        for &a in &adj[node] {
-            let next = if forward {
-                arcs[a].to.0
-            } else {
-                arcs[a].from.0
-            };
-            if done[next] {
-                continue;
-            }
-            let (nd, nh) = (dist + y[a].max(0.0), hops + 1);
-            if nd
-                .total_cmp(&t.dist[next])
-                .then(nh.cmp(&t.hops[next]))
-                .is_lt()
-            {
-                t.dist[next] = nd;
-                t.hops[next] = nh;
-                t.pred[next] = a;
-                heap.push(Item {
-                    dist: nd,
-                    hops: nh,
-                    node: next,
-                });
-            }
-        }
-    }
-    t
+    shortest_tree(arcs, adj.len(), |v| adj[v].as_slice(), root, y, forward)
 }
 
 /// The arcs of the forward tree `t` from its root to `to`, in walk order, as edges of

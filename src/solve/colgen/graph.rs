@@ -227,10 +227,10 @@ impl<'a> Graph<'a> {
 
 /// A shortest-path tree: distance, hop count and the tree arc at each node (`usize::MAX`
 /// at the root and at unreached nodes).
-pub(super) struct Tree {
-    pub(super) dist: Vec<f64>,
-    pub(super) hops: Vec<u32>,
-    pub(super) pred: Vec<usize>,
+pub(crate) struct Tree {
+    pub(crate) dist: Vec<f64>,
+    pub(crate) hops: Vec<u32>,
+    pub(crate) pred: Vec<usize>,
 }
 
 impl Tree {
@@ -286,7 +286,24 @@ impl PartialOrd for Item {
 /// Dijkstra from `root` (`forward`) or to `root` (reverse) with arc lengths `max(y, 0)`,
 /// ties broken by hop count. O(arcs · log sites).
 pub(super) fn dijkstra(g: &Graph, root: usize, y: &[f64], forward: bool) -> Tree {
-    let n = g.net.sites.len();
+    let adj = |v: usize| -> &[usize] { if forward { &g.out[v] } else { &g.inc[v] } };
+    shortest_tree(&g.net.arcs, g.net.sites.len(), adj, root, y, forward)
+}
+
+/// Dijkstra over `n` sites from `root` (`forward`: along the arcs `adj(v)` leaving each
+/// site `v`) or to `root` (reverse: `adj(v)` are the arcs entering `v`, walked backwards),
+/// arc `a` of length `max(y[a], 0)`; ties broken by hop count, then by site index (the
+/// heap order of [`Item`]). Shared by the base walk engine's pricing and the chain
+/// engine's pricing rooted at function sites. Invariant: every arc in `adj` indexes
+/// `arcs` and `y`. O(arcs · log sites).
+pub(crate) fn shortest_tree<'a>(
+    arcs: &[crate::model::Arc],
+    n: usize,
+    adj: impl Fn(usize) -> &'a [usize],
+    root: usize,
+    y: &[f64],
+    forward: bool,
+) -> Tree {
     let mut t = Tree {
         dist: vec![f64::INFINITY; n],
         hops: vec![u32::MAX; n],
@@ -306,9 +323,8 @@ pub(super) fn dijkstra(g: &Graph, root: usize, y: &[f64], forward: bool) -> Tree
             continue;
         }
         done[node] = true;
-        let arcs = if forward { &g.out[node] } else { &g.inc[node] };
-        for &a in arcs {
-            let arc = &g.net.arcs[a];
+        for &a in adj(node) {
+            let arc = &arcs[a];
             let next = if forward { arc.to.0 } else { arc.from.0 };
             if done[next] {
                 continue;
