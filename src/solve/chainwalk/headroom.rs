@@ -43,7 +43,7 @@
 //! layered walks, each outage of an audit started from the baseline's proven optimum as
 //! the walk engine of files without `functions` does it: the surviving walks with the
 //! baseline's prices, then the cut flow re-routed, then the bundled λ master shared with
-//! that engine ([`crate::solve::colgen::headroom::master`], through [`Pricing`]); every
+//! that engine (`solve::colgen::headroom::master`, through its `Pricing` trait); every
 //! answer verified as above. Only when it is not proven is the layered λ-LP
 //! ([`headroom_with`]) solved.
 //!
