@@ -120,6 +120,25 @@ fn random_networks_contain_the_edge_optimum() {
     }
 }
 
+/// Depth 2 over links and sites: every double failure starts from its single-failure
+/// parent's walks and certificate prices (kept when that interval is within ε), so the
+/// warm intervals, including those after a processing site fails, are checked against the
+/// edge LP's proven optimum here.
+#[test]
+fn doubles_from_their_parents_contain_the_edge_optimum() {
+    for seed in 11..=13 {
+        let file = TempPath::with_text("approx-doubles", &random_network(seed, 8, 12, 10));
+        let args = ["--depth", "2", "--kinds", "links,sites"];
+        let mut with_engine = args.to_vec();
+        with_engine.extend_from_slice(&["--engine", "approx", "--epsilon", "0.02"]);
+        let approx = audit_json(file.path(), &with_engine);
+        let mut edge_args = args.to_vec();
+        edge_args.extend_from_slice(&["--engine", "edge"]);
+        let edge = audit_json(file.path(), &edge_args);
+        contains_edge(&approx, &edge, 0.02);
+    }
+}
+
 /// Hand case (computed here): path s–v–t, links of capacity 10, processing 4 at v only,
 /// one demand s→t requiring 6 (volume 6). Every walk is processed at v, so the optimum is
 /// 4 (the walk s→v→t with 4 on each link, within their 10): shortfall 2.

@@ -57,10 +57,13 @@ use std::collections::{BinaryHeap, HashMap};
 
 use super::flow::{self, Cap};
 use super::surviving::Surviving;
-use super::{Evaluation, Verified, caps_of, certify, finish, verify};
+use super::{Evaluation, Verified, caps_of, certify, verify};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
+
+mod warm;
+pub use warm::{Start, evaluate_from};
 
 /// ε used by `--engine approx` when `--epsilon` is not given.
 pub const DEFAULT_EPSILON: f64 = 0.01;
@@ -82,20 +85,12 @@ pub fn epsilon_ok(eps: f64) -> bool {
 
 /// Evaluates one outage with the approximate engine: [`solve_approx`] for served_required
 /// (and for throughput when some surviving demand offers more than it requires), turned
-/// into an [`Evaluation`] by [`finish()`] like every engine's results. `served_required` is
+/// into an [`Evaluation`] by [`finish()`](super::finish()) like every engine's results. `served_required` is
 /// the proven lower bound unless the interval closes, `upper_bound` the certificate's.
 ///
 /// Cost: one or two runs of [`solve_approx`].
 pub fn evaluate_approx(net: &Network, outage: &Outage, eps: f64) -> Result<Evaluation> {
-    let net = net.view(outage.matrix);
-    let view = Surviving::new(net, outage, None);
-    let required = solve_approx(net, &view, Cap::Required, eps)?;
-    let volume = if super::needs_volume_lp(net, outage) {
-        Some(solve_approx(net, &view, Cap::Volume, eps)?)
-    } else {
-        None
-    };
-    Ok(finish(net, &view, required, volume))
+    warm::evaluate_from(net, outage, eps, None).map(|(e, _)| e)
 }
 
 /// One row of the packing LP: an arc, a processing site or a demand cap.
@@ -394,12 +389,97 @@ fn initial_len(c: f64) -> f64 {
     if c > 0.0 { 1.0 / c } else { 0.0 }
 }
 
+/// What every run on one outage and one quantity starts from: the demand caps, which
+/// demands are active, the at-stake total, the aimed width and the presolved capacities.
+pub(crate) struct Setup {
+    /// Per demand: its cap for this quantity (required or volume), surviving or not.
+    all: Vec<f64>,
+    /// Per demand: its cap when it survives and can be served at all, else 0.
+    bound: Vec<f64>,
+    /// The demands with a positive `bound`, in file order.
+    active: Vec<usize>,
+    /// Σ caps of the surviving demands ([`super::at_stake`]).
+    at_stake: f64,
+    /// `ε × at_stake`: the widest interval the engine accepts as its answer.
+    target: f64,
+    /// Presolved arc and site capacities (valid for the certificate).
+    arc_cap: Vec<f64>,
+    site_cap: Vec<f64>,
+    /// Per origin site: its active demands in file order.
+    by_origin: Vec<Vec<usize>>,
+}
+
+impl Setup {
+    /// The setup of `view` for demand caps `cap` and width `eps`. O(sites + arcs +
+    /// demands) plus the reachability test of [`Surviving::unservable`].
+    fn new(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Setup {
+        let all = caps_of(net, cap);
+        let unservable = view.unservable(net, &all);
+        let bound: Vec<f64> = (0..net.demands.len())
+            .map(|d| {
+                if view.demand_alive(net, d) && unservable[d].is_none() {
+                    all[d]
+                } else {
+                    0.0
+                }
+            })
+            .collect();
+        let active: Vec<usize> = (0..net.demands.len()).filter(|&d| bound[d] > 0.0).collect();
+        let at_stake = super::at_stake(net, view, &all);
+        let (arc_cap, site_cap) = flow::presolved_caps(net, view, cap);
+        // Origins in site order, each with its demands in file order.
+        let mut by_origin: Vec<Vec<usize>> = vec![Vec::new(); net.sites.len()];
+        for &d in &active {
+            by_origin[net.demands[d].from].push(d);
+        }
+        Setup {
+            all,
+            bound,
+            active,
+            at_stake,
+            target: eps * at_stake,
+            arc_cap,
+            site_cap,
+            by_origin,
+        }
+    }
+}
+
+impl<'a> State<'a> {
+    /// A run's state before any flow: lengths `1/cap` ([`initial_len`]), no load, no walk.
+    /// O(sites + arcs + demands).
+    fn new(net: &'a Network, view: &Surviving, bound: &'a [f64], eps: f64) -> State<'a> {
+        let n = net.sites.len();
+        State {
+            net,
+            layers: Layers::new(net, view),
+            arc_len: net.arcs.iter().map(|a| initial_len(a.capacity)).collect(),
+            site_len: net
+                .sites
+                .iter()
+                .map(|s| initial_len(s.processing))
+                .collect(),
+            dem_len: bound.iter().map(|&b| initial_len(b)).collect(),
+            arc_load: vec![0.0; net.arcs.len()],
+            site_load: vec![0.0; n],
+            dem_load: vec![0.0; net.demands.len()],
+            bound,
+            eps,
+            walk_index: HashMap::new(),
+            walks: Vec::new(),
+            flow: Vec::new(),
+            dist: vec![0.0; 2 * n],
+            pred: vec![0; 2 * n],
+        }
+    }
+}
+
 /// Solves the packing LP of `view` with demand caps `cap` by the scheme of the module
 /// documentation and verifies the answer: the repaired walks are the lower bound, the
 /// certificate with the final (scaled) lengths the upper bound. `proven` only when they
 /// meet within [`super::GAP_TOL`]. `eps` must satisfy [`epsilon_ok`].
 ///
-/// Cost: see the module documentation. The result is what [`finish()`] takes, as for the
+/// Cost: see the module documentation. The result is what [`finish()`](super::finish()) takes, as for the
 /// other engines.
 pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Result<Verified> {
     if !epsilon_ok(eps) {
@@ -408,50 +488,18 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
         )));
     }
     let n = net.sites.len();
-    let all = caps_of(net, cap);
-    let unservable = view.unservable(net, &all);
-    let bound: Vec<f64> = (0..net.demands.len())
-        .map(|d| {
-            if view.demand_alive(net, d) && unservable[d].is_none() {
-                all[d]
-            } else {
-                0.0
-            }
-        })
-        .collect();
-    let active: Vec<usize> = (0..net.demands.len()).filter(|&d| bound[d] > 0.0).collect();
-    let at_stake = super::at_stake(net, view, &all);
-    let target = eps * at_stake;
-    let (arc_cap, site_cap) = flow::presolved_caps(net, view, cap);
-
-    // Origins in site order, each with its demands in file order.
-    let mut by_origin: Vec<Vec<usize>> = vec![Vec::new(); n];
-    for &d in &active {
-        by_origin[net.demands[d].from].push(d);
-    }
+    let Setup {
+        all,
+        bound,
+        active,
+        at_stake,
+        target,
+        arc_cap,
+        site_cap,
+        by_origin,
+    } = Setup::new(net, view, cap, eps);
     let origins: Vec<usize> = (0..n).filter(|&s| !by_origin[s].is_empty()).collect();
-
-    let mut st = State {
-        net,
-        layers: Layers::new(net, view),
-        arc_len: net.arcs.iter().map(|a| initial_len(a.capacity)).collect(),
-        site_len: net
-            .sites
-            .iter()
-            .map(|s| initial_len(s.processing))
-            .collect(),
-        dem_len: bound.iter().map(|&b| initial_len(b)).collect(),
-        arc_load: vec![0.0; net.arcs.len()],
-        site_load: vec![0.0; n],
-        dem_load: vec![0.0; net.demands.len()],
-        bound: &bound,
-        eps,
-        walk_index: HashMap::new(),
-        walks: Vec::new(),
-        flow: Vec::new(),
-        dist: vec![0.0; 2 * n],
-        pred: vec![0; 2 * n],
-    };
+    let mut st = State::new(net, view, &bound, eps);
 
     // The standard analysis: δ, the scale of the lengths, and the phase count.
     let rows_on_walk = 2.0 * n as f64 + 2.0;
@@ -742,20 +790,48 @@ fn verified(
         .collect();
     let upper = certify::dual_bound(net, view, all, arc_cap, site_cap, &arc_price, &site_price)
         .min(at_stake);
+    let lp_value = st.flow.iter().sum::<f64>() / u;
+    let verification = super::one_attempt(
+        residual,
+        allocation.served,
+        upper,
+        at_stake,
+        format!("approx (epsilon {eps})"),
+    );
+    with_prices(
+        net,
+        view,
+        (arc_cap, site_cap),
+        allocation,
+        lp_value,
+        verification,
+        (arc_price, site_price),
+    )
+}
+
+/// The [`Verified`] of a feasible `allocation` whose interval is `verification`, with the
+/// certificate's prices `bound_price` (per arc, per site) reported as shadow prices except
+/// on rows the presolve lowered below their real capacity (`caps`: the presolved arc and
+/// site capacities), which do not bind. O(sites + arcs).
+fn with_prices(
+    net: &Network,
+    view: &Surviving,
+    caps: (&[f64], &[f64]),
+    allocation: verify::Repaired,
+    lp_value: f64,
+    verification: super::Verification,
+    bound_price: (Vec<f64>, Vec<f64>),
+) -> Verified {
+    let (arc_cap, site_cap) = caps;
+    let (arc_price, site_price) = &bound_price;
     let lowered = |c: f64, real: f64| c < real;
     Verified {
-        lp_value: st.flow.iter().sum::<f64>() / u,
-        verification: super::one_attempt(
-            residual,
-            allocation.served,
-            upper,
-            at_stake,
-            format!("approx (epsilon {eps})"),
-        ),
+        lp_value,
+        verification,
         allocation,
         arc_price: (0..net.arcs.len())
             .map(|a| {
-                if lowered(arc_cap[a], arc_capacity[a]) {
+                if lowered(arc_cap[a], net.arcs[a].capacity) {
                     0.0
                 } else {
                     arc_price[a]
@@ -764,7 +840,7 @@ fn verified(
             .collect(),
         site_price: (0..net.sites.len())
             .map(|v| {
-                if lowered(site_cap[v], site_capacity[v]) {
+                if lowered(site_cap[v], net.sites[v].processing) {
                     0.0
                 } else {
                     site_price[v]
@@ -777,7 +853,7 @@ fn verified(
         site_has_row: (0..net.sites.len())
             .map(|v| view.can_process[v] && site_cap[v] > 0.0)
             .collect(),
-        bound_price: (arc_price, site_price),
+        bound_price,
         functions: Vec::new(),
     }
 }

@@ -268,11 +268,13 @@ impl Evaluator for Walks {
     }
 }
 
-/// The approximate engine ([`super::approx::evaluate_approx`]): Garg–Könemann packing per
-/// outage, cold, its interval proven by the verifier (lower bound from repaired walks,
-/// upper bound from the certificate) and reported unproven with those bounds unless they
-/// meet within [`super::GAP_TOL`]. Cost: see [`super::approx`]; memory
-/// O(sites + arcs + demands) plus the walks carrying flow.
+/// The approximate engine ([`super::approx::evaluate_from`]): per outage, first the interval
+/// of its parent's walks (repaired, topped up) and certificate prices, kept when it is
+/// within ε of the surviving required demand; otherwise Garg–Könemann packing, cold. The
+/// interval is proven by the verifier (lower bound from repaired walks, upper bound from
+/// the certificate) and reported unproven with those bounds unless they meet within
+/// [`super::GAP_TOL`]. Cost: see [`super::approx`]; memory O(sites + arcs + demands) plus
+/// the walks carrying flow (the parent's too).
 pub struct Approx {
     /// The aimed width of each interval, as a fraction of the surviving required demand;
     /// satisfies [`super::approx::epsilon_ok`] (checked where the command line is lowered,
@@ -285,11 +287,15 @@ impl Evaluator for Approx {
         "approx"
     }
 
-    fn evaluate(&self, net: &Network, outage: &Outage, _: Option<&Warm>) -> Result<Evaluated> {
-        Ok(Evaluated::cold(super::approx::evaluate_approx(
-            net,
-            outage,
-            self.epsilon,
-        )?))
+    fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>) -> Result<Evaluated> {
+        Evaluated::warm_from(warm, |parent| {
+            let (e, start) =
+                super::approx::evaluate_from(net, outage, self.epsilon, parent)?;
+            Ok((e, start, Stats::default()))
+        })
+    }
+
+    fn warm_starts(&self) -> bool {
+        true
     }
 }
