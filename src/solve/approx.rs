@@ -74,9 +74,13 @@ pub const MAX_EPSILON: f64 = 0.5;
 pub const MAX_PHASE_FACTOR: f64 = 4.0;
 /// Stored lengths are renormalised when one exceeds this.
 const RENORM: f64 = 1e150;
-/// Cheapest-walk rounds per origin when the lower bound is topped up with residual
-/// capacity.
+/// Cheapest-walk rounds per origin when the lower bound of a run's own walks is topped up
+/// with residual capacity.
 const TOP_UP_WALKS: usize = 4;
+/// The same when a parent's walks are topped up ([`warm`]): the flow a failure cut must
+/// find new walks, often over several residual bottlenecks; rounds stop as soon as no
+/// demand of the origin is short or none gained.
+const WARM_TOP_UP_WALKS: usize = 32;
 
 /// Whether `eps` is an ε this engine accepts: finite, in (0, [`MAX_EPSILON`]].
 pub fn epsilon_ok(eps: f64) -> bool {
@@ -637,21 +641,27 @@ fn repaired(st: &mut State, by_origin: &[Vec<usize>]) -> verify::Repaired {
     } else {
         raw
     };
-    top_up(st, by_origin, best, &arc_capacity, &site_capacity)
+    top_up(
+        st,
+        by_origin,
+        best,
+        (&arc_capacity, &site_capacity),
+        TOP_UP_WALKS,
+    )
 }
 
 /// Fills what a feasible allocation leaves: per origin (site order) and demand (file
-/// order) still short of its cap, up to [`TOP_UP_WALKS`] cheapest walks (current lengths)
+/// order) still short of its cap, up to `rounds` cheapest walks (current lengths)
 /// over the rows with residual capacity, each carrying what its tightest row leaves
 /// (an arc crossed twice counts twice). The extended walk list is repaired again, so the
-/// result is feasible by construction whatever this adds. O(origins · TOP_UP_WALKS ·
+/// result is feasible by construction whatever this adds. O(origins · rounds ·
 /// Dijkstra + Σ walk lengths).
 fn top_up(
     st: &mut State,
     by_origin: &[Vec<usize>],
     alloc: verify::Repaired,
-    arc_capacity: &[f64],
-    site_capacity: &[f64],
+    (arc_capacity, site_capacity): (&[f64], &[f64]),
+    rounds: usize,
 ) -> verify::Repaired {
     let net = st.net;
     let mut ra: Vec<f64> = (0..net.arcs.len())
@@ -666,7 +676,7 @@ fn top_up(
     let mut walks = alloc.paths.clone();
     let before = walks.len();
     for (s, demands) in by_origin.iter().enumerate() {
-        for _ in 0..TOP_UP_WALKS {
+        for _ in 0..rounds {
             if !demands.iter().any(|&d| short[d] > 1e-9 * st.bound[d]) {
                 break;
             }

@@ -289,8 +289,7 @@ impl Evaluator for Approx {
 
     fn evaluate(&self, net: &Network, outage: &Outage, warm: Option<&Warm>) -> Result<Evaluated> {
         Evaluated::warm_from(warm, |parent| {
-            let (e, start) =
-                super::approx::evaluate_from(net, outage, self.epsilon, parent)?;
+            let (e, start) = super::approx::evaluate_from(net, outage, self.epsilon, parent)?;
             Ok((e, start, Stats::default()))
         })
     }

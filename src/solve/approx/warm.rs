@@ -75,13 +75,7 @@ pub fn evaluate_from(
 ) -> Result<(Evaluation, Start)> {
     let net = net.view(outage.matrix);
     let view = Surviving::new(net, outage, None);
-    let required = solve(
-        net,
-        &view,
-        Cap::Required,
-        eps,
-        parent.map(|p| &p.required),
-    )?;
+    let required = solve(net, &view, Cap::Required, eps, parent.map(|p| &p.required))?;
     let volume = if needs_volume_lp(net, outage) {
         Some(solve(
             net,
@@ -149,8 +143,8 @@ fn from_parent(
         &mut st,
         &s.by_origin,
         kept_flow,
-        &arc_capacity,
-        &site_capacity,
+        (&arc_capacity, &site_capacity),
+        super::WARM_TOP_UP_WALKS,
     );
     let upper = certify::dual_bound(
         net,
