@@ -18,9 +18,8 @@ mod common;
 use std::time::Instant;
 
 use common::{Rng, peak_mb};
-use redoubt::audit::{Batch, Keep, RunOptions};
 use redoubt::model::Network;
-use redoubt::scenario::{self, Element, Kinds, Scenario};
+use redoubt::scenario::{Element, Kinds, Scenario};
 use redoubt::solve::{Engine, approx};
 use serde_json::json;
 
@@ -152,20 +151,7 @@ fn full(net: &Network, eps: f64) {
         groups: false,
     };
     let engine = Engine::Approx { epsilon: eps };
-    let t = Instant::now();
-    let mut batch = Batch::new(net, scenario::lazy(net, links, 1), engine).keeping(Keep::Thin);
-    batch.seed(
-        redoubt::audit::probe(net, engine, None).expect("baseline"),
-        None,
-    );
-    let baseline = t.elapsed().as_secs_f64();
-    let options = RunOptions {
-        threads: Some(2),
-        progress: false,
-    };
-    batch.solve_rest(net, options, None).expect("solves");
-    let audit = batch.into_audit();
-    let secs = t.elapsed().as_secs_f64();
+    let (audit, baseline, secs) = common::batch_audit(net, links, 1, engine);
     let widths: Vec<f64> = audit
         .evaluations
         .iter()

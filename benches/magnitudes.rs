@@ -16,12 +16,9 @@
 
 mod common;
 
-use std::time::Instant;
-
 use common::{Demands, document};
-use redoubt::audit::{Batch, Keep, RunOptions};
 use redoubt::model::Network;
-use redoubt::scenario::{self, Kinds};
+use redoubt::scenario::Kinds;
 use redoubt::solve::Engine;
 use serde_json::Value;
 
@@ -61,20 +58,7 @@ fn widen(mut doc: Value) -> Value {
 /// One depth-2 audit through the batch: (seconds, outages, unproven, repair, colgen,
 /// fallback).
 fn audit(net: &Network) -> (f64, usize, usize, usize, usize, usize) {
-    let t = Instant::now();
-    let mut batch =
-        Batch::new(net, scenario::lazy(net, LINKS_AND_SITES, 2), Engine::Walks).keeping(Keep::Thin);
-    batch.seed(
-        redoubt::audit::probe(net, Engine::Walks, None).expect("baseline"),
-        None,
-    );
-    let options = RunOptions {
-        threads: Some(2),
-        progress: false,
-    };
-    batch.solve_rest(net, options, None).expect("solves");
-    let audit = batch.into_audit();
-    let secs = t.elapsed().as_secs_f64();
+    let (audit, _, secs) = common::batch_audit(net, LINKS_AND_SITES, 2, Engine::Walks);
     let unproven = audit
         .evaluations
         .iter()

@@ -141,3 +141,31 @@ pub fn peak_mb() -> f64 {
         })
         .map_or(f64::NAN, |kb| kb / 1024.0)
 }
+
+/// Audits `net` through the audit's own batch, as `redoubt audit` does: the baseline
+/// probed first, then every scenario of `kinds` up to `depth` from its parent, on two
+/// threads, thin evaluations. Returns the audit, the seconds to the baseline and the
+/// seconds in all (wall, from the batch's creation).
+pub fn batch_audit(
+    net: &Network,
+    kinds: redoubt::scenario::Kinds,
+    depth: usize,
+    engine: redoubt::solve::Engine,
+) -> (redoubt::audit::Audit, f64, f64) {
+    use redoubt::audit::{Batch, Keep, RunOptions};
+    let t = std::time::Instant::now();
+    let mut batch =
+        Batch::new(net, redoubt::scenario::lazy(net, kinds, depth), engine).keeping(Keep::Thin);
+    batch.seed(
+        redoubt::audit::probe(net, engine, None).expect("baseline"),
+        None,
+    );
+    let baseline = t.elapsed().as_secs_f64();
+    let options = RunOptions {
+        threads: Some(2),
+        progress: false,
+    };
+    batch.solve_rest(net, options, None).expect("solves");
+    let audit = batch.into_audit();
+    (audit, baseline, t.elapsed().as_secs_f64())
+}
