@@ -25,7 +25,8 @@
 //! demands' bounds, then restoring them; two threads), with its served values compared.
 //!
 //! Run: `cargo bench --bench peer` (all), or name networks: `-- T12 T22 B G200`;
-//! `-- nopeer` skips the peer, `-- nowarm` the warm HiGHS baseline. The peer script is
+//! `-- nopeer` skips the peer, `-- nowarm` the warm HiGHS baseline, `-- depth1` skips every depth
+//! but 1. The peer script is
 //! looked up at `$PEER_WARM`, else `../shared/peers/peer_warm.py` and
 //! `../../shared/peers/peer_warm.py` from the crate.
 
@@ -505,7 +506,8 @@ fn main() {
             net.groups.len(),
             file.display()
         );
-        for &depth in &case.depths {
+        let only_depth_1 = args.iter().any(|a| a == "depth1");
+        for &depth in case.depths.iter().filter(|&&d| d == 1 || !only_depth_1) {
             #[cfg(feature = "highs")]
             redoubt::solve::highs::set_enabled(false);
             let (ours, note) = redoubt_audit(&case.text, depth);
