@@ -785,14 +785,18 @@ fn verified(
     for &d in active {
         residual = residual.max(over(st.dem_load[d], st.bound[d]));
     }
-    // Prices: the final lengths at the scale that minimises the certificate.
+    // Prices: the final lengths at the scale that minimises the certificate, each capped
+    // at 1. A row priced at 1 or more already prices every walk through it at 1 or more,
+    // so its demands' terms `b·max(0, 1 − price)` are 0 either way: capping only lowers
+    // the bound's capacity term, and keeps it valid (one more unit of any row serves at
+    // most one more unit of demand).
     let (a, terms) = priced(st, active, walk_len, arc_cap, site_cap);
     let (_, theta) = best_scale(a, &terms);
-    let arc_price: Vec<f64> = st.arc_len.iter().map(|l| theta * l).collect();
+    let arc_price: Vec<f64> = st.arc_len.iter().map(|l| (theta * l).min(1.0)).collect();
     let site_price: Vec<f64> = (0..net.sites.len())
         .map(|v| {
             if view.can_process[v] {
-                theta * st.site_len[v]
+                (theta * st.site_len[v]).min(1.0)
             } else {
                 0.0
             }
