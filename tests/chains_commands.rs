@@ -265,23 +265,7 @@ fn shards_of_a_chain_file_merge_to_the_one_process_run() {
         common::s(&csv),
     ]);
     assert_eq!(one.code, 0, "{}", one.stderr);
-    let mut parts = Vec::new();
-    for i in 1..=3 {
-        let p = dir.join(&format!("part-{i}.jsonl"));
-        let shard = format!("{i}/3");
-        let r = redoubt(&[
-            "audit",
-            file.path(),
-            "--depth",
-            "2",
-            "--shard",
-            &shard,
-            "--json",
-            common::s(&p),
-        ]);
-        assert_eq!(r.code, 0, "{}", r.stderr);
-        parts.push(p);
-    }
+    let parts = common::shard_parts(&dir, &["audit", file.path(), "--depth", "2"], 3);
     let (mjson, mcsv) = (dir.join("merged.json"), dir.join("merged.csv"));
     let mut args = vec!["merge"];
     args.extend(parts.iter().map(|p| common::s(p)));

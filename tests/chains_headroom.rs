@@ -26,7 +26,7 @@ use chain_reference::{
     assert_close, failed_element, random_net, reference_headroom, with_one_function,
 };
 use common::json::{audit_json, failed_of, num, scenario, scenarios};
-use common::{TempDir, TempPath, redoubt, s};
+use common::{TempDir, TempPath, redoubt, s, shard_parts};
 use rand::prelude::*;
 use serde_json::{Value, json};
 
@@ -371,18 +371,7 @@ fn down_depth_and_shards_on_the_chain_demo() {
     let full: Vec<&str> = base.iter().copied().chain(["--json", s(&whole)]).collect();
     let reference = redoubt(&full);
     assert_eq!(reference.code, 0, "{}", reference.stderr);
-    let parts: Vec<std::path::PathBuf> =
-        (1..=2).map(|i| dir.join(&format!("p{i}.jsonl"))).collect();
-    for (i, part) in parts.iter().enumerate() {
-        let shard = format!("{}/2", i + 1);
-        let args: Vec<&str> = base
-            .iter()
-            .copied()
-            .chain(["--shard", &shard, "--json", s(part)])
-            .collect();
-        let run = redoubt(&args);
-        assert_eq!(run.code, 0, "{}", run.stderr);
-    }
+    let parts = shard_parts(&dir, &base, 2);
     let merged = dir.join("merged.json");
     let run = redoubt(&["merge", s(&parts[0]), s(&parts[1]), "--json", s(&merged)]);
     assert_eq!(run.code, 0, "{}", run.stderr);

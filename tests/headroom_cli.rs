@@ -428,18 +428,7 @@ fn sharded_headroom_merges_to_the_unsharded_run() {
     let full: Vec<&str> = base.iter().copied().chain(["--json", s(&whole)]).collect();
     let reference = redoubt(&full);
     assert_eq!(reference.code, 0, "{}", reference.stderr);
-    let parts: Vec<std::path::PathBuf> =
-        (1..=2).map(|i| dir.join(&format!("p{i}.jsonl"))).collect();
-    for (i, part) in parts.iter().enumerate() {
-        let shard = format!("{}/2", i + 1);
-        let args: Vec<&str> = base
-            .iter()
-            .copied()
-            .chain(["--shard", &shard, "--json", s(part)])
-            .collect();
-        let run = redoubt(&args);
-        assert_eq!(run.code, 0, "{}", run.stderr);
-    }
+    let parts = shard_parts(&dir, &base, 2);
     let merged = dir.join("merged.json");
     let run = redoubt(&["merge", s(&parts[1]), s(&parts[0]), "--json", s(&merged)]);
     assert_eq!(run.code, 0, "{}", run.stderr);

@@ -394,24 +394,10 @@ fn files_without_matrices_show_no_matrix() {
 fn shards_merge_and_report_with_matrices() {
     let f = TempPath::with_text("matrices-shard", STAR);
     let dir = TempDir::new("matrices-shard");
-    let (p1, p2) = (dir.join("p1.json"), dir.join("p2.json"));
-    for (i, p) in [(1, &p1), (2, &p2)] {
-        let shard = format!("{i}/2");
-        let run = redoubt(&[
-            "audit",
-            f.path(),
-            "-q",
-            "--kinds",
-            "links",
-            "--shard",
-            &shard,
-            "--json",
-            s(p),
-        ]);
-        assert_eq!(run.code, 0, "{}", run.stderr);
-    }
+    let parts = shard_parts(&dir, &["audit", f.path(), "-q", "--kinds", "links"], 2);
+    let (p1, p2) = (&parts[0], &parts[1]);
     let merged = dir.join("merged.json");
-    let run = redoubt(&["merge", s(&p1), s(&p2), "--json", s(&merged)]);
+    let run = redoubt(&["merge", s(p1), s(p2), "--json", s(&merged)]);
     assert_eq!(run.code, 0, "{}", run.stderr);
     let (_, whole) = audit_json(f.path(), &["--kinds", "links"]);
     let got: Value = serde_json::from_str(&std::fs::read_to_string(&merged).unwrap()).unwrap();

@@ -296,3 +296,20 @@ pub fn interrupt_at(args: &[&str], journal: &Path, lines: usize) -> Run {
         stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
     }
 }
+
+/// Runs `redoubt AUDIT_ARGS --shard I/N --json PART` for every shard `I` of `n` (`args`
+/// starts with `audit` and the file), each part written to `dir` as `part-I.jsonl`,
+/// asserting that every shard exits 0; returns the part files in shard order.
+pub fn shard_parts(dir: &TempDir, args: &[&str], n: usize) -> Vec<PathBuf> {
+    (1..=n)
+        .map(|i| {
+            let part = dir.join(&format!("part-{i}.jsonl"));
+            let shard = format!("{i}/{n}");
+            let mut all = args.to_vec();
+            all.extend_from_slice(&["--shard", &shard, "--json", s(&part)]);
+            let run = redoubt(&all);
+            assert_eq!(run.code, 0, "shard {shard}: {}", run.stderr);
+            part
+        })
+        .collect()
+}
