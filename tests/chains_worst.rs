@@ -241,43 +241,18 @@ struct Listed {
 
 /// Runs `redoubt worst` on `path` and returns its list and its proof object.
 fn worst_run(path: &str, k: usize, kinds: &str, lost: bool, top: usize) -> (Vec<Listed>, Value) {
-    let out = TempPath::new("chains-worst", "json");
-    let (k, top) = (k.to_string(), top.to_string());
-    let by = if lost { "lost" } else { "shortfall" };
-    let run = redoubt(&[
-        "worst",
-        path,
-        "--k",
-        &k,
-        "--kinds",
-        kinds,
-        "--top",
-        &top,
-        "--by",
-        by,
-        "--json",
-        out.path(),
-    ]);
-    assert_eq!(run.code, 0, "worst failed: {}", run.stderr);
-    assert!(run.stdout.contains("Proof:"), "{}", run.stdout);
+    let (stdout, doc) = common::worst_json(path, k, kinds, lost, top);
     assert!(
-        run.stdout.contains("chain of functions"),
-        "the chain caution: {}",
-        run.stdout
+        stdout.contains("chain of functions"),
+        "the chain caution: {stdout}"
     );
-    let doc = out.read_json();
     let num = |w: &Value, f: &str| w[f].as_f64().unwrap();
     let rows = doc["worst"]
         .as_array()
         .unwrap()
         .iter()
         .map(|w| Listed {
-            failed: w["failed"]
-                .as_array()
-                .unwrap()
-                .iter()
-                .map(|f| f.as_str().unwrap().to_string())
-                .collect(),
+            failed: common::failed_names(w),
             shortfall: num(w, "shortfall"),
             stranded: num(w, "stranded"),
             lost: num(w, "lost"),

@@ -128,27 +128,7 @@ fn brute_force(path: &str, k: usize, kinds: &str, lost: bool, floor: f64) -> Vec
 
 /// Runs `redoubt worst` and returns its listed rows and the JSON document.
 fn worst_run(path: &str, k: usize, kinds: &str, lost: bool, top: usize) -> (Vec<Row>, Value) {
-    let out = TempPath::new("worst", "json");
-    let (k, top) = (k.to_string(), top.to_string());
-    let by = if lost { "lost" } else { "shortfall" };
-    let run = redoubt(&[
-        "worst",
-        path,
-        "--k",
-        &k,
-        "--kinds",
-        kinds,
-        "--top",
-        &top,
-        "--by",
-        by,
-        "--json",
-        out.path(),
-    ]);
-    assert_eq!(run.code, 0, "worst failed: {}", run.stderr);
-    assert!(run.stdout.contains("Proof:"), "{}", run.stdout);
-    assert!(run.stdout.contains("Caution:"), "{}", run.stdout);
-    let doc = out.read_json();
+    let (_, doc) = common::worst_json(path, k, kinds, lost, top);
     let rows = doc["worst"]
         .as_array()
         .unwrap()
@@ -161,12 +141,7 @@ fn worst_run(path: &str, k: usize, kinds: &str, lost: bool, top: usize) -> (Vec<
             // the product writes it); it is checked against the brute force below.
             let l = w["lost"].as_f64().unwrap();
             Row {
-                failed: w["failed"]
-                    .as_array()
-                    .unwrap()
-                    .iter()
-                    .map(|f| f.as_str().unwrap().to_string())
-                    .collect(),
+                failed: common::failed_names(w),
                 value: if lost { l } else { sf },
             }
         })

@@ -313,3 +313,46 @@ pub fn shard_parts(dir: &TempDir, args: &[&str], n: usize) -> Vec<PathBuf> {
         })
         .collect()
 }
+
+/// Runs `redoubt worst PATH --k K --kinds KINDS --top TOP --by lost|shortfall --json OUT`,
+/// asserts that it exits 0 and prints its proof line and a caution, and returns its text
+/// output and the JSON document.
+pub fn worst_json(
+    path: &str,
+    k: usize,
+    kinds: &str,
+    lost: bool,
+    top: usize,
+) -> (String, serde_json::Value) {
+    let out = TempPath::new("worst", "json");
+    let (k, top) = (k.to_string(), top.to_string());
+    let by = if lost { "lost" } else { "shortfall" };
+    let run = redoubt(&[
+        "worst",
+        path,
+        "--k",
+        &k,
+        "--kinds",
+        kinds,
+        "--top",
+        &top,
+        "--by",
+        by,
+        "--json",
+        out.path(),
+    ]);
+    assert_eq!(run.code, 0, "worst failed: {}", run.stderr);
+    assert!(run.stdout.contains("Proof:"), "{}", run.stdout);
+    assert!(run.stdout.contains("Caution:"), "{}", run.stdout);
+    (run.stdout, out.read_json())
+}
+
+/// The `failed` names of one JSON object of `worst` or `audit`, in order.
+pub fn failed_names(w: &serde_json::Value) -> Vec<String> {
+    w["failed"]
+        .as_array()
+        .expect("failed is a list")
+        .iter()
+        .map(|f| f.as_str().expect("a name").to_string())
+        .collect()
+}
