@@ -84,72 +84,21 @@ pub fn reference_served(
     failed_link: Option<usize>,
     by_volume: bool,
 ) -> f64 {
-    let n = t.capacity.len();
-    let up = |v: usize| failed_site != Some(v);
-    let mut arcs = Vec::new();
-    for (l, &(a, b, c, one)) in t.links.iter().enumerate() {
-        if failed_link == Some(l) || !up(a) || !up(b) {
-            continue;
-        }
-        arcs.push((a, b, c));
-        if !one {
-            arcs.push((b, a, c));
-        }
-    }
-    let nf = t.gains.len();
-    let mut pv = ProblemVariables::new();
-    let mut arc_use = vec![Expression::from(0.0); arcs.len()];
-    let mut fn_use = vec![vec![Expression::from(0.0); nf]; n];
+    let mut m = Layered::new(t, failed_site, failed_link);
     let mut objective = Expression::from(0.0);
-    let mut balance = Vec::new();
     for (from, to, volume, required, chain) in &t.demands {
-        if !up(*from) || !up(*to) {
+        if !m.up(*from) || !m.up(*to) {
             continue;
         }
-        let k = chain.len();
         let cap = if by_volume { *volume } else { *required };
-        let f: Variable = pv.add(variable().min(0.0).max(cap));
+        let f: Variable = m.pv.add(variable().min(0.0).max(cap));
         objective += f;
-        let mut g = 1.0;
-        let mut node = vec![vec![Expression::from(0.0); n]; k + 1];
-        for j in 0..=k {
-            for (a, &(u, w, _)) in arcs.iter().enumerate() {
-                let x = pv.add(variable().min(0.0));
-                node[j][u] -= x;
-                node[j][w] += x;
-                arc_use[a] += g * x;
-            }
-            if j < k {
-                for v in 0..n {
-                    if up(v) && t.capacity[v][chain[j]] > 0.0 {
-                        let p = pv.add(variable().min(0.0));
-                        node[j][v] -= p;
-                        node[j + 1][v] += p;
-                        fn_use[v][chain[j]] += g * p;
-                    }
-                }
-                g *= t.gains[chain[j]];
-            }
-        }
-        node[0][*from] += f;
-        node[k][*to] -= f;
-        for layer in node {
-            balance.extend(layer);
-        }
+        m.add_demand(*from, *to, chain, f.into());
     }
+    let (pv, rows) = m.rows();
     let mut model = pv.maximise(objective.clone()).using(microlp);
-    for e in balance {
-        model.add_constraint(e.eq(0.0));
-    }
-    for (a, e) in arc_use.into_iter().enumerate() {
-        model.add_constraint(e.leq(arcs[a].2));
-    }
-    for (v, row) in fn_use.into_iter().enumerate() {
-        for (f, e) in row.into_iter().enumerate() {
-            if up(v) && t.capacity[v][f] > 0.0 {
-                model.add_constraint(e.leq(t.capacity[v][f]));
-            }
-        }
+    for r in rows {
+        model.add_constraint(r);
     }
     model
         .solve()
@@ -250,79 +199,126 @@ pub fn reference_headroom(
     failed_site: Option<usize>,
     failed_link: Option<usize>,
 ) -> Option<f64> {
-    let n = t.capacity.len();
-    let up = |v: usize| failed_site != Some(v);
-    let mut arcs = Vec::new();
-    for (l, &(a, b, c, one)) in t.links.iter().enumerate() {
-        if failed_link == Some(l) || !up(a) || !up(b) {
-            continue;
-        }
-        arcs.push((a, b, c));
-        if !one {
-            arcs.push((b, a, c));
-        }
-    }
+    let mut m = Layered::new(t, failed_site, failed_link);
     let live: Vec<&(usize, usize, f64, f64, Vec<usize>)> = t
         .demands
         .iter()
-        .filter(|d| up(d.0) && up(d.1) && d.3 > 0.0)
+        .filter(|d| m.up(d.0) && m.up(d.1) && d.3 > 0.0)
         .collect();
     if live.is_empty() {
         return None;
     }
-    let nf = t.gains.len();
-    let mut pv = ProblemVariables::new();
-    let lambda: Variable = pv.add(variable().min(0.0));
-    let mut arc_use = vec![Expression::from(0.0); arcs.len()];
-    let mut fn_use = vec![vec![Expression::from(0.0); nf]; n];
-    let mut balance = Vec::new();
+    let lambda: Variable = m.pv.add(variable().min(0.0));
     for &&(from, to, _, required, ref chain) in &live {
-        let k = chain.len();
-        let mut g = 1.0;
-        let mut node = vec![vec![Expression::from(0.0); n]; k + 1];
-        for j in 0..=k {
-            for (a, &(u, w, _)) in arcs.iter().enumerate() {
-                let x = pv.add(variable().min(0.0));
-                node[j][u] -= x;
-                node[j][w] += x;
-                arc_use[a] += g * x;
-            }
-            if j < k {
-                for v in 0..n {
-                    if up(v) && t.capacity[v][chain[j]] > 0.0 {
-                        let p = pv.add(variable().min(0.0));
-                        node[j][v] -= p;
-                        node[j + 1][v] += p;
-                        fn_use[v][chain[j]] += g * p;
-                    }
-                }
-                g *= t.gains[chain[j]];
-            }
-        }
-        node[0][from] += required * lambda;
-        node[k][to] -= required * lambda;
-        for layer in node {
-            balance.extend(layer);
-        }
+        m.add_demand(from, to, chain, required * lambda);
     }
+    let (pv, rows) = m.rows();
     let mut model = pv.maximise(lambda).using(microlp);
-    for e in balance {
-        model.add_constraint(e.eq(0.0));
-    }
-    for (a, e) in arc_use.into_iter().enumerate() {
-        model.add_constraint(e.leq(arcs[a].2));
-    }
-    for (v, row) in fn_use.into_iter().enumerate() {
-        for (f, e) in row.into_iter().enumerate() {
-            if up(v) && t.capacity[v][f] > 0.0 {
-                model.add_constraint(e.leq(t.capacity[v][f]));
-            }
-        }
+    for r in rows {
+        model.add_constraint(r);
     }
     let sol = model
         .solve()
         .expect("microlp solves the headroom reference");
     Some(sol.value(lambda))
+}
+
+/// The layered per-demand flow model both references above build: the surviving arcs
+/// (a failed site loses its links and functions), and per demand with chain f1…fk layers
+/// 0..=k of them, `x[j][a]` in origin units taking `G_j · x` of arc `a`'s row (`G_j` =
+/// g1·…·gj), `p[j][v]` moving layer j to j+1 at a surviving site with capacity of
+/// f_{j+1} and taking `G_j · p` of that function's row; conservation per layer and site.
+struct Layered<'a> {
+    t: &'a RNet,
+    failed_site: Option<usize>,
+    /// Surviving arcs `(from, to, capacity)`.
+    arcs: Vec<(usize, usize, f64)>,
+    pv: ProblemVariables,
+    arc_use: Vec<Expression>,
+    /// Per site and function: its use.
+    fn_use: Vec<Vec<Expression>>,
+    /// Conservation expressions (each `= 0`).
+    balance: Vec<Expression>,
+}
+
+impl<'a> Layered<'a> {
+    fn new(t: &'a RNet, failed_site: Option<usize>, failed_link: Option<usize>) -> Self {
+        let n = t.capacity.len();
+        let up = |v: usize| failed_site != Some(v);
+        let mut arcs = Vec::new();
+        for (l, &(a, b, c, one)) in t.links.iter().enumerate() {
+            if failed_link == Some(l) || !up(a) || !up(b) {
+                continue;
+            }
+            arcs.push((a, b, c));
+            if !one {
+                arcs.push((b, a, c));
+            }
+        }
+        let nf = t.gains.len();
+        Layered {
+            t,
+            failed_site,
+            arc_use: vec![Expression::from(0.0); arcs.len()],
+            arcs,
+            pv: ProblemVariables::new(),
+            fn_use: vec![vec![Expression::from(0.0); nf]; n],
+            balance: Vec::new(),
+        }
+    }
+
+    fn up(&self, v: usize) -> bool {
+        self.failed_site != Some(v)
+    }
+
+    /// One demand's layers, `flow` (origin units) leaving `from` in layer 0 and reaching
+    /// `to` in the last layer.
+    fn add_demand(&mut self, from: usize, to: usize, chain: &[usize], flow: Expression) {
+        let (t, n, k) = (self.t, self.t.capacity.len(), chain.len());
+        let mut g = 1.0;
+        let mut node = vec![vec![Expression::from(0.0); n]; k + 1];
+        for j in 0..=k {
+            for (a, &(u, w, _)) in self.arcs.iter().enumerate() {
+                let x = self.pv.add(variable().min(0.0));
+                node[j][u] -= x;
+                node[j][w] += x;
+                self.arc_use[a] += g * x;
+            }
+            if j < k {
+                for v in 0..n {
+                    if self.up(v) && t.capacity[v][chain[j]] > 0.0 {
+                        let p = self.pv.add(variable().min(0.0));
+                        node[j][v] -= p;
+                        node[j + 1][v] += p;
+                        self.fn_use[v][chain[j]] += g * p;
+                    }
+                }
+                g *= t.gains[chain[j]];
+            }
+        }
+        node[0][from] += flow.clone();
+        node[k][to] -= flow;
+        for layer in node {
+            self.balance.extend(layer);
+        }
+    }
+
+    /// The variables and every row: conservation, arc capacities, function capacities.
+    fn rows(self) -> (ProblemVariables, Vec<good_lp::Constraint>) {
+        let mut rows: Vec<good_lp::Constraint> =
+            self.balance.into_iter().map(|e| e.eq(0.0)).collect();
+        for (a, e) in self.arc_use.into_iter().enumerate() {
+            rows.push(e.leq(self.arcs[a].2));
+        }
+        for (v, row) in self.fn_use.into_iter().enumerate() {
+            for (f, e) in row.into_iter().enumerate() {
+                if self.failed_site != Some(v) && self.t.capacity[v][f] > 0.0 {
+                    rows.push(e.leq(self.t.capacity[v][f]));
+                }
+            }
+        }
+        (self.pv, rows)
+    }
 }
 
 /// `file` (a network without `functions`) rewritten with one function `proc` of gain 1:
