@@ -285,8 +285,8 @@ impl<'a> Layered<'a> {
                 self.arc_use[a] += g * x;
             }
             if j < k {
-                for v in 0..n {
-                    if self.up(v) && t.capacity[v][chain[j]] > 0.0 {
+                for (v, caps) in t.capacity.iter().enumerate() {
+                    if self.up(v) && caps[chain[j]] > 0.0 {
                         let p = self.pv.add(variable().min(0.0));
                         node[j][v] -= p;
                         node[j + 1][v] += p;
