@@ -252,33 +252,6 @@ fn random_chains_match_a_per_demand_reference_under_every_single_failure() {
 // One gain-1 function is the base model.
 // ---------------------------------------------------------------------------------------
 
-/// `file` rewritten with one function `proc` of gain 1: `processing` becomes
-/// `functions.proc`, `expand_cost`/`expand_max` become `expand.proc`, and every demand
-/// gets the chain `["proc"]`.
-fn as_one_function(file: &Value) -> Value {
-    let mut out = file.clone();
-    out["functions"] = json!([{"id": "proc", "gain": 1}]);
-    for s in out["sites"].as_array_mut().unwrap() {
-        let o = s.as_object_mut().unwrap();
-        let p = o.remove("processing").unwrap_or(json!(0));
-        o.insert("functions".into(), json!({"proc": p}));
-        let cost = o.remove("expand_cost");
-        let max = o.remove("expand_max");
-        o.remove("expand_step");
-        if let Some(c) = cost {
-            let mut e = json!({"cost": c});
-            if let Some(m) = max {
-                e["max"] = m;
-            }
-            o.insert("expand".into(), json!({"proc": e}));
-        }
-    }
-    for d in out["demands"].as_array_mut().unwrap() {
-        d["chain"] = json!(["proc"]);
-    }
-    out
-}
-
 #[test]
 fn one_gain_one_function_equals_the_base_model_on_the_examples() {
     let mut compared = 0;
@@ -286,7 +259,7 @@ fn one_gain_one_function_equals_the_base_model_on_the_examples() {
         let path = common::fixture(name);
         let base: Value = serde_json::from_str(&std::fs::read_to_string(&path).unwrap()).unwrap();
         let (_, plain) = audit_json(common::s(&path), &["--threads", "1", "--engine", "edge"]);
-        let chained = audit(&as_one_function(&base));
+        let chained = audit(&chain_reference::with_one_function(&base));
         for sc in scenarios(&plain) {
             let failed = common::json::failed_of(sc);
             let names: Vec<&str> = failed.iter().map(String::as_str).collect();
