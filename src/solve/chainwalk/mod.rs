@@ -196,6 +196,9 @@ fn solve_caps(
         // Repair: the lost flow re-routed greedily. When that reaches what the parent
         // served (a child never serves more) or everything at stake, the parent's prices
         // (or zero prices when everything is served) may prove it without a master.
+        // The surviving walks with the re-routed flow: the master's start when the
+        // repair does not decide the LP (a feasible point of the new rows).
+        let mut rerouted: Option<Vec<(ChainWalk, f64)>> = None;
         if let (Some(p), Some(k)) = (start, &kept)
             && !k.scaled
             && !k.intact()
@@ -204,6 +207,7 @@ fn solve_caps(
                 let rows = Rows::new(net, view, &layered);
                 let mut walks = k.walks.clone();
                 reroute(&rows, p, &mut walks);
+                rerouted = Some(walks.clone());
                 let value: f64 = walks.iter().map(|(_, f)| f).sum();
                 let all = rows.scale;
                 let tol = GAP_TOL * rows.scale;
@@ -247,7 +251,10 @@ fn solve_caps(
                 None => vec![true; net.demands.len()],
             };
             let mut master = Master::new(&rows, active);
-            let walks = kept.map(|k| k.walks).unwrap_or_default();
+            let walks = rerouted
+                .map(merged)
+                .or_else(|| kept.map(|k| k.walks))
+                .unwrap_or_default();
             let (free, fixed): (Vec<_>, Vec<_>) = walks
                 .into_iter()
                 .partition(|(w, _)| master.active[w.demand]);
@@ -268,6 +275,23 @@ fn solve_caps(
     }
     let (v, cut_off) = chain::solve_verified(net, view, caps)?;
     Ok((v, cut_off, None))
+}
+
+/// `walks` with equal walks merged into the first (flows summed), in first-seen order.
+/// O(walks · walk length).
+fn merged(walks: Vec<(ChainWalk, f64)>) -> Vec<(ChainWalk, f64)> {
+    let mut index: std::collections::HashMap<ChainWalk, usize> = Default::default();
+    let mut out: Vec<(ChainWalk, f64)> = Vec::with_capacity(walks.len());
+    for (w, f) in walks {
+        match index.get(&w) {
+            Some(&i) => out[i].1 += f,
+            None => {
+                index.insert(w.clone(), out.len());
+                out.push((w, f));
+            }
+        }
+    }
+    out
 }
 
 /// The walk engine's answer for one outage of a network with `functions`.
