@@ -295,7 +295,8 @@ impl Skeleton {
 pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skeleton {
     let ch = net.chains.as_ref().expect("a network with functions");
     let n = net.sites.len();
-    let (by_key, cut_off) = chain::demand_groups(net, ch, view, bound);
+    let mut memo = chain::ReachMemo::new(view);
+    let (by_key, cut_off) = chain::demand_groups(net, ch, &mut memo, bound);
     let mut sk = Skeleton {
         positive: bound.iter().map(|&b| b > 0.0).collect(),
         groups: Vec::new(),
@@ -306,8 +307,8 @@ pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skelet
     for ((origin, chain_fns), demands) in by_key {
         let k = chain_fns.len();
         let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
-        let fwd = chain::forward(net, ch, view, origin, &chain_fns);
-        let back = chain::backward(net, ch, view, &dests, &chain_fns);
+        let fwd = chain::forward_with(net, ch, &mut memo, origin, &chain_fns);
+        let back = chain::backward_with(net, ch, &mut memo, &dests, &chain_fns);
         let live = |node: usize| fwd[node] && back[node];
         let (mut arcs, mut fns) = (Vec::new(), Vec::new());
         for j in 0..=k {
