@@ -53,6 +53,7 @@
 
 pub mod approx;
 mod carried;
+mod hash;
 pub mod headroom;
 mod master;
 mod rooted;
@@ -280,7 +281,7 @@ fn solve_caps(
 /// `walks` with equal walks merged into the first (flows summed), in first-seen order.
 /// O(walks · walk length).
 fn merged(walks: Vec<(ChainWalk, f64)>) -> Vec<(ChainWalk, f64)> {
-    let mut index: std::collections::HashMap<ChainWalk, usize> = Default::default();
+    let mut index: hash::WordMap<ChainWalk, usize> = Default::default();
     let mut out: Vec<(ChainWalk, f64)> = Vec::with_capacity(walks.len());
     for (w, f) in walks {
         match index.get(&w) {
