@@ -44,6 +44,9 @@ type SiteIdx = usize;
 use crate::scenario::Outage;
 use crate::tol::ZERO_FLOW;
 
+mod reach;
+pub(crate) use reach::{ReachMemo, backward_with, forward_with};
+
 /// One (origin, chain) group of demands.
 #[derive(Debug, Clone)]
 pub struct Group {
@@ -102,6 +105,17 @@ pub(crate) fn servable(
     view: &Surviving,
     bound: &[f64],
 ) -> Vec<std::result::Result<bool, Unservable>> {
+    servable_with(net, ch, &mut ReachMemo::new(view), bound)
+}
+
+/// [`servable`] with the single-site reach sets of `memo` (its view).
+fn servable_with(
+    net: &Network,
+    ch: &Chains,
+    memo: &mut ReachMemo,
+    bound: &[f64],
+) -> Vec<std::result::Result<bool, Unservable>> {
+    let view = memo.view;
     let n = net.sites.len();
     let mut cache: BTreeMap<(SiteIdx, Vec<FunctionIdx>), Vec<bool>> = BTreeMap::new();
     net.demands
@@ -114,11 +128,11 @@ pub(crate) fn servable(
             let key = (dem.from.0, ch.chain[d].clone());
             let reach = cache
                 .entry(key)
-                .or_insert_with(|| forward(net, ch, view, dem.from.0, &ch.chain[d]));
+                .or_insert_with(|| forward_with(net, ch, memo, dem.from.0, &ch.chain[d]));
             let k = ch.chain[d].len();
             if reach[k * n + dem.to.0] {
                 Ok(true)
-            } else if view.reach_from([dem.from.0])[dem.to] {
+            } else if memo.from(dem.from.0)[dem.to.0] {
                 Err(Unservable::NoProcessing)
             } else {
                 Err(Unservable::NoPath)
@@ -145,58 +159,6 @@ pub fn cut_off(net: &Network, view: &Surviving, bound: &[f64]) -> Vec<(usize, Un
 /// Whether site `v` can run function `f` on `view`: alive with capacity > 0.
 pub(crate) fn runs(ch: &Chains, view: &Surviving, v: SiteIdx, f: FunctionIdx) -> bool {
     view.site_alive[v] && ch.capacity[v][f] > 0.0
-}
-
-/// Layered nodes reachable from `(origin, 0)`. O((k + 1) · (sites + arcs)).
-pub(crate) fn forward(
-    net: &Network,
-    ch: &Chains,
-    view: &Surviving,
-    origin: SiteIdx,
-    chain: &[FunctionIdx],
-) -> Vec<bool> {
-    let n = net.sites.len();
-    let k = chain.len();
-    let mut seen = vec![false; (k + 1) * n];
-    let mut start: Vec<SiteIdx> = vec![origin];
-    for j in 0..=k {
-        let r = view.reach_from(start.iter().copied());
-        for v in 0..n {
-            seen[j * n + v] = r[v];
-        }
-        if j < k {
-            start = (0..n)
-                .filter(|&v| r[v] && runs(ch, view, v, chain[j]))
-                .collect();
-        }
-    }
-    seen
-}
-
-/// Layered nodes from which some destination in `dests` is reachable in layer `k`.
-pub(crate) fn backward(
-    net: &Network,
-    ch: &Chains,
-    view: &Surviving,
-    dests: &[SiteIdx],
-    chain: &[FunctionIdx],
-) -> Vec<bool> {
-    let n = net.sites.len();
-    let k = chain.len();
-    let mut seen = vec![false; (k + 1) * n];
-    let mut end: Vec<SiteIdx> = dests.to_vec();
-    for j in (0..=k).rev() {
-        let r = view.reach_to(end.iter().copied());
-        for v in 0..n {
-            seen[j * n + v] = r[v];
-        }
-        if j > 0 {
-            end = (0..n)
-                .filter(|&v| r[v] && runs(ch, view, v, chain[j - 1]))
-                .collect();
-        }
-    }
-    seen
 }
 
 /// Adds one edge of a demand group's layered graph to `model`: a flow variable (at least
@@ -232,12 +194,12 @@ pub(crate) type DemandGroups = BTreeMap<(SiteIdx, Vec<FunctionIdx>), Vec<usize>>
 pub(crate) fn demand_groups(
     net: &Network,
     ch: &Chains,
-    view: &Surviving,
+    memo: &mut ReachMemo,
     bound: &[f64],
 ) -> (DemandGroups, Vec<(usize, Unservable)>) {
     let mut cut_off = Vec::new();
     let mut by_key = DemandGroups::new();
-    for (d, s) in servable(net, ch, view, bound).iter().enumerate() {
+    for (d, s) in servable_with(net, ch, memo, bound).iter().enumerate() {
         match s {
             Ok(true) => by_key
                 .entry((net.demands[d].from.0, ch.chain[d].clone()))
@@ -266,7 +228,8 @@ pub fn build(
 ) -> (Lp, Layered, Vec<(usize, Unservable)>) {
     let ch = net.chains.as_ref().expect("a network with functions");
     let n = net.sites.len();
-    let (by_key, cut_off) = demand_groups(net, ch, view, bound);
+    let mut memo = ReachMemo::new(view);
+    let (by_key, cut_off) = demand_groups(net, ch, &mut memo, bound);
     let mut model = Lp::new(true);
     let mut demand_var = vec![None; net.demands.len()];
     let mut arc_terms: Vec<Vec<(usize, f64)>> = vec![Vec::new(); net.arcs.len()];
@@ -280,8 +243,8 @@ pub fn build(
         let cumulative = ch.cumulative(&chain);
         let total: f64 = demands.iter().map(|&d| bound[d]).sum();
         let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
-        let fwd = forward(net, ch, view, origin, &chain);
-        let back = backward(net, ch, view, &dests, &chain);
+        let fwd = forward_with(net, ch, &mut memo, origin, &chain);
+        let back = backward_with(net, ch, &mut memo, &dests, &chain);
         let live = |node: usize| fwd[node] && back[node];
         // Conservation terms per layered node: + in, − out.
         let mut node_terms: BTreeMap<usize, Vec<(usize, f64)>> = BTreeMap::new();
@@ -400,31 +363,34 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
         let eps = ZERO_FLOW * total.max(f64::MIN_POSITIVE);
         let edges = &layered.edges[g];
         let mut rest: Vec<f64> = edges.iter().map(|e| x[e.var].max(0.0)).collect();
-        let mut out: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
+        // Per layered node: its edges in edge order, what its sink still absorbs, and its
+        // position on the current path (`usize::MAX`: not on it).
+        let nodes = (k + 1) * n;
+        let mut out: Vec<Vec<usize>> = vec![Vec::new(); nodes];
         for (i, e) in edges.iter().enumerate() {
-            out.entry(e.from).or_default().push(i);
+            out[e.from].push(i);
         }
-        let mut sink: BTreeMap<usize, f64> = BTreeMap::new();
+        let mut sink: Vec<f64> = vec![0.0; nodes];
         let mut supply = 0.0;
         for &d in &group.demands {
             let f = layered.demand_var[d].map_or(0.0, |v| x[v].clamp(0.0, layered.bound[d]));
             lp_flow[d] = f;
             supply += f;
-            *sink.entry(k * n + net.demands[d].to.0).or_default() += f;
+            sink[k * n + net.demands[d].to.0] += f;
         }
         let source = group.origin;
         let next = |node: usize, rest: &[f64]| -> Option<usize> {
-            out.get(&node)?.iter().copied().find(|&i| rest[i] > eps)
+            out[node].iter().copied().find(|&i| rest[i] > eps)
         };
+        let mut pos: Vec<usize> = vec![usize::MAX; nodes];
         // Each pass ends a walk, cancels a cycle or drops a dead end: each zeroes at least
         // one edge, the supply or a sink.
         while supply > eps {
             let mut path: Vec<usize> = Vec::new();
-            let mut pos: BTreeMap<usize, usize> = BTreeMap::new();
             let mut node = source;
-            pos.insert(node, 0);
+            pos[node] = 0;
             let done = loop {
-                if sink.get(&node).is_some_and(|&s| s > eps) {
+                if sink[node] > eps {
                     break true;
                 }
                 let Some(i) = next(node, &rest) else {
@@ -432,18 +398,28 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
                 };
                 path.push(i);
                 node = edges[i].to;
-                if let Some(&at) = pos.get(&node) {
+                if pos[node] != usize::MAX {
                     // A cycle: cancel it and go on from where it closed.
+                    let at = pos[node];
                     let cycle: Vec<usize> = path.drain(at..).collect();
                     let m = cycle.iter().map(|&c| rest[c]).fold(f64::INFINITY, f64::min);
                     for &c in &cycle {
                         rest[c] -= m;
+                        // The nodes after the cycle's start leave the path.
+                        let t = edges[c].to;
+                        if pos[t] > at {
+                            pos[t] = usize::MAX;
+                        }
                     }
-                    pos.retain(|_, p| *p <= at);
                 } else {
-                    pos.insert(node, path.len());
+                    pos[node] = path.len();
                 }
             };
+            // Every node on the path leaves it before the next pass.
+            pos[source] = usize::MAX;
+            for &i in &path {
+                pos[edges[i].to] = usize::MAX;
+            }
             if !done {
                 match path.last() {
                     // Flow stuck at a dead end: drop what enters it.
@@ -452,7 +428,7 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
                 }
                 continue;
             }
-            let s = sink.get_mut(&node).expect("a sink");
+            let s = &mut sink[node];
             let m = path.iter().map(|&i| rest[i]).fold(supply.min(*s), f64::min);
             for &i in &path {
                 rest[i] -= m;
@@ -586,16 +562,43 @@ pub fn dual_bound(
     for &a in &view.arcs {
         out[net.arcs[a].from].push(a);
     }
+    let mut dist: Vec<f64> = Vec::new();
+    let mut wanted: Vec<bool> = Vec::new();
+    let mut heap = BinaryHeap::new();
     for group in &layered.groups {
         let k = group.chain.len();
         let cum = &group.cumulative;
-        let mut dist = vec![f64::INFINITY; (k + 1) * n];
-        let mut heap = BinaryHeap::new();
+        dist.clear();
+        dist.resize((k + 1) * n, f64::INFINITY);
+        heap.clear();
+        // The group's destinations in layer k not settled yet: once all are, or once the
+        // nearest open node costs 1 or more (a walk of price >= 1 adds nothing to the
+        // bound), no later pop changes a term of the bound.
+        wanted.clear();
+        wanted.resize((k + 1) * n, false);
+        let mut open = 0usize;
+        for &d in &group.demands {
+            let t = k * n + net.demands[d].to.0;
+            if !wanted[t] {
+                wanted[t] = true;
+                open += 1;
+            }
+        }
         dist[group.origin] = 0.0;
         heap.push(Reverse((Ordered(0.0), group.origin)));
         while let Some(Reverse((Ordered(dv), node))) = heap.pop() {
             if dv > dist[node] {
                 continue;
+            }
+            if dv >= 1.0 {
+                break;
+            }
+            if wanted[node] {
+                wanted[node] = false;
+                open -= 1;
+                if open == 0 {
+                    break;
+                }
             }
             let (j, v) = (node / n, node % n);
             let mut relax = |to: usize, cost: f64, heap: &mut BinaryHeap<_>| {

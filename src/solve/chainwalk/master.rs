@@ -3,7 +3,9 @@
 //! the rounds of master solve, pricing and activation until the dual bound meets the
 //! master's value.
 
-use std::collections::{BTreeMap, HashSet};
+use std::collections::BTreeMap;
+
+use super::hash::WordSet;
 
 use super::rows::{RowKey, Rows};
 use super::{ChainWalk, GAP_TOL, MAX_ROUNDS, MAX_WAKE, NONE, Solved, WARM_ROWS};
@@ -31,7 +33,7 @@ pub(super) struct Master<'r, 'a> {
     pub(super) row: Vec<usize>,
     /// The LP's columns, in column order.
     pub(super) walks: Vec<ChainWalk>,
-    pub(super) seen: HashSet<ChainWalk>,
+    pub(super) seen: WordSet<ChainWalk>,
     pub(super) active: Vec<bool>,
     /// Per inactive demand: its fixed walks and flows.
     pub(super) fixed: Vec<Vec<(ChainWalk, f64)>>,
@@ -47,7 +49,7 @@ impl<'r, 'a> Master<'r, 'a> {
             lp: Simplex::new(),
             row: vec![NONE; rows.len()],
             walks: Vec::new(),
-            seen: HashSet::new(),
+            seen: WordSet::default(),
             fixed: vec![Vec::new(); active.len()],
             active,
             fixed_load: vec![0.0; rows.len()],

@@ -27,13 +27,17 @@
 //! **Master.** The project's warm bounded simplex ([`super::simplex`]), kept between rounds:
 //! new walks enter at zero against the current basis, rows are created as columns need
 //! them. A scenario starts from the walks of its parent's optimum (the baseline's) that
-//! survive it, at their flows scaled into the new rows (a feasible start).
+//! survive it, at their flows scaled into the new rows, with the lost flow re-routed
+//! greedily when nothing was scaled (a feasible start).
 //!
-//! **Shortcut.** When no walk of the parent's optimum that carried flow is lost and the
+//! **Shortcuts.** When no walk of the parent's optimum that carried flow is lost and the
 //! parent's allocation fits the new rows, that allocation with the parent's prices is
 //! verified first, with no master solve: a failure that takes nothing the optimum used
 //! cannot raise the optimum, and the parent's prices priced on the smaller network give a
-//! bound no larger than before.
+//! bound no larger than before. Otherwise the lost flow is re-routed greedily; when that
+//! serves what the parent served, everything at stake, or the bound of the parent's
+//! prices on the new rows (one pricing pass), it is verified with those prices (zero
+//! prices when everything is served), again with no master solve.
 //!
 //! **Verification** is the layered edge LP's, unchanged: the rows are [`chain::build`]'s
 //! (same groups, same lowered capacities, computed without building the LP), the walks'
@@ -53,6 +57,7 @@
 
 pub mod approx;
 mod carried;
+mod hash;
 pub mod headroom;
 mod master;
 mod rooted;
@@ -195,7 +200,12 @@ fn solve_caps(
         }
         // Repair: the lost flow re-routed greedily. When that reaches what the parent
         // served (a child never serves more) or everything at stake, the parent's prices
-        // (or zero prices when everything is served) may prove it without a master.
+        // (or zero prices when everything is served) may prove it without a master; below
+        // that, the parent's prices still may, when their bound on this outage's rows
+        // (one pricing pass, before any verification) meets the value. The surviving
+        // walks with the re-routed flow: the master's start when the repair does not
+        // decide the LP (a feasible point of the new rows).
+        let mut rerouted: Option<Vec<(ChainWalk, f64)>> = None;
         if let (Some(p), Some(k)) = (start, &kept)
             && !k.scaled
             && !k.intact()
@@ -204,10 +214,16 @@ fn solve_caps(
                 let rows = Rows::new(net, view, &layered);
                 let mut walks = k.walks.clone();
                 reroute(&rows, p, &mut walks);
+                rerouted = Some(walks.clone());
                 let value: f64 = walks.iter().map(|(_, f)| f).sum();
                 let all = rows.scale;
                 let tol = GAP_TOL * rows.scale;
-                (value >= p.value.min(all) - tol).then(|| {
+                let reached = value >= p.value.min(all) - tol;
+                let priced = !reached && {
+                    stats.rounds += 1;
+                    rows.price(&p.arc_price, &p.fn_price, None).bound - value <= tol
+                };
+                (reached || priced).then(|| {
                     let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
                     let zero = value >= all - tol;
                     Solved {
@@ -247,7 +263,10 @@ fn solve_caps(
                 None => vec![true; net.demands.len()],
             };
             let mut master = Master::new(&rows, active);
-            let walks = kept.map(|k| k.walks).unwrap_or_default();
+            let walks = rerouted
+                .map(merged)
+                .or_else(|| kept.map(|k| k.walks))
+                .unwrap_or_default();
             let (free, fixed): (Vec<_>, Vec<_>) = walks
                 .into_iter()
                 .partition(|(w, _)| master.active[w.demand]);
@@ -268,6 +287,23 @@ fn solve_caps(
     }
     let (v, cut_off) = chain::solve_verified(net, view, caps)?;
     Ok((v, cut_off, None))
+}
+
+/// `walks` with equal walks merged into the first (flows summed), in first-seen order.
+/// O(walks · walk length).
+fn merged(walks: Vec<(ChainWalk, f64)>) -> Vec<(ChainWalk, f64)> {
+    let mut index: hash::WordMap<ChainWalk, usize> = Default::default();
+    let mut out: Vec<(ChainWalk, f64)> = Vec::with_capacity(walks.len());
+    for (w, f) in walks {
+        match index.get(&w) {
+            Some(&i) => out[i].1 += f,
+            None => {
+                index.insert(w.clone(), out.len());
+                out.push((w, f));
+            }
+        }
+    }
+    out
 }
 
 /// The walk engine's answer for one outage of a network with `functions`.

@@ -107,28 +107,25 @@ impl<'a> Rows<'a> {
     /// demand's cap row), in row-key order. O(walk length · log).
     pub(super) fn coefficients(&self, w: &ChainWalk) -> Vec<(RowKey, f64)> {
         let group = &self.layered.groups[self.group_of[w.demand]];
-        let mut terms: Vec<(RowKey, f64)> = w
-            .edges
-            .iter()
-            .map(|e| match *e {
-                EdgeKind::Arc { arc, layer } => (RowKey::Arc(arc), group.cumulative[layer]),
-                EdgeKind::Function { site, layer } => (
-                    RowKey::Function(site, group.chain[layer]),
-                    group.cumulative[layer],
-                ),
-            })
-            .collect();
-        // Stable: a row used twice sums its terms in walk order.
+        let mut terms: Vec<(RowKey, f64)> = Vec::with_capacity(w.edges.len() + 1);
+        terms.extend(w.edges.iter().map(|e| match *e {
+            EdgeKind::Arc { arc, layer } => (RowKey::Arc(arc), group.cumulative[layer]),
+            EdgeKind::Function { site, layer } => (
+                RowKey::Function(site, group.chain[layer]),
+                group.cumulative[layer],
+            ),
+        }));
+        // Stable: a row used twice sums its terms in walk order (into its first term).
         terms.sort_by_key(|&(key, _)| key);
-        let mut rows: Vec<(RowKey, f64)> = Vec::with_capacity(terms.len() + 1);
-        for (key, c) in terms {
-            match rows.last_mut() {
-                Some((k, sum)) if *k == key => *sum += c,
-                _ => rows.push((key, c)),
+        terms.dedup_by(|later, first| {
+            let same = later.0 == first.0;
+            if same {
+                first.1 += later.1;
             }
-        }
-        rows.push((RowKey::Demand(w.demand), 1.0));
-        rows
+            same
+        });
+        terms.push((RowKey::Demand(w.demand), 1.0));
+        terms
     }
 
     /// The right-hand side of a row: the edge LP's (lowered) capacity, or the cap.
@@ -295,7 +292,8 @@ impl Skeleton {
 pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skeleton {
     let ch = net.chains.as_ref().expect("a network with functions");
     let n = net.sites.len();
-    let (by_key, cut_off) = chain::demand_groups(net, ch, view, bound);
+    let mut memo = chain::ReachMemo::new(view);
+    let (by_key, cut_off) = chain::demand_groups(net, ch, &mut memo, bound);
     let mut sk = Skeleton {
         positive: bound.iter().map(|&b| b > 0.0).collect(),
         groups: Vec::new(),
@@ -306,8 +304,8 @@ pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skelet
     for ((origin, chain_fns), demands) in by_key {
         let k = chain_fns.len();
         let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
-        let fwd = chain::forward(net, ch, view, origin, &chain_fns);
-        let back = chain::backward(net, ch, view, &dests, &chain_fns);
+        let fwd = chain::forward_with(net, ch, &mut memo, origin, &chain_fns);
+        let back = chain::backward_with(net, ch, &mut memo, &dests, &chain_fns);
         let live = |node: usize| fwd[node] && back[node];
         let (mut arcs, mut fns) = (Vec::new(), Vec::new());
         for j in 0..=k {

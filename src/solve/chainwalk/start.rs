@@ -2,7 +2,7 @@
 //! walks that survive the outage ([`surviving_start`], scaled into the new rows when they
 //! do not fit) and a greedy re-routing of the flow the outage took ([`reroute`]).
 
-use std::collections::HashMap;
+use super::hash::WordMap;
 
 use super::rows::{RowKey, Rows};
 use super::{ChainWalk, NONE, START_MARGIN, Solved};
@@ -45,7 +45,7 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
         .collect();
     // Walks that carried nothing are kept only for demands that lost flow (columns their
     // master may use again); held at zero they would change nothing.
-    let mut index: HashMap<&ChainWalk, usize> = HashMap::new();
+    let mut index: WordMap<&ChainWalk, usize> = WordMap::default();
     let mut kept: Vec<(ChainWalk, f64)> = Vec::new();
     for ((w, &f), ok) in start.walks.iter().zip(&start.flow).zip(alive) {
         if !ok || (f <= 0.0 && !lost[w.demand]) {

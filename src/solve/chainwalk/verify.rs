@@ -3,7 +3,9 @@
 //! row residual, [`chain::repair`] (lower bound) and [`chain::dual_bound`] (upper bound)
 //! ([`verified`]).
 
-use std::collections::{BTreeMap, HashMap};
+use std::collections::BTreeMap;
+
+use super::hash::WordMap;
 
 use super::Solved;
 use super::rows::{RowKey, Rows};
@@ -29,7 +31,7 @@ pub(super) fn with_walks(
 ) -> Vec<f64> {
     let n = net.sites.len();
     let mut x: Vec<f64> = Vec::new();
-    let mut var: Vec<HashMap<EdgeKind, usize>> = vec![HashMap::new(); layered.groups.len()];
+    let mut var: Vec<WordMap<EdgeKind, usize>> = vec![WordMap::default(); layered.groups.len()];
     layered.edges.iter_mut().for_each(Vec::clear);
     layered.demand_var.iter_mut().for_each(|v| *v = None);
     for (w, &f) in s.walks.iter().zip(&s.flow) {

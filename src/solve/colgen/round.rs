@@ -6,7 +6,7 @@
 //! ([`next_round`]).
 
 use std::collections::HashSet;
-use std::hash::Hash;
+use std::hash::{BuildHasher, Hash};
 
 use super::PIVOTS_PER_ROW;
 use crate::error::Result;
@@ -51,13 +51,13 @@ pub(crate) fn solve_round(
 ///
 /// Invariant: each freed demand's share is computed at the same prices as `cost`.
 /// Cost: O(Σ fixed walks · cost of `price` + demands + priced walks).
-pub(crate) fn next_round<W: Eq + Hash>(
+pub(crate) fn next_round<W: Eq + Hash, S: BuildHasher>(
     inactive_cap: impl Fn(usize) -> Option<f64>,
     fixed: &[Vec<(W, f64)>],
     price: impl Fn(&W) -> f64,
     cost: &[f64],
     priced: Vec<W>,
-    seen: &HashSet<W>,
+    seen: &HashSet<W, S>,
     most: Option<usize>,
 ) -> Option<(Vec<usize>, Vec<W>)> {
     let mut wake: Vec<(f64, usize)> = Vec::new();
