@@ -12,6 +12,21 @@
 //! rows. By the flow decomposition of [`super`] each block has the optimum of the edge
 //! model with additions ([`crate::solve::flow::build`] with added-processing variables).
 //!
+//! **Held demands.** A demand of block `k` whose baseline walks (the walk engine's
+//! optimum of the network with nothing failed and nothing added) all survive the failure
+//! is *held*: its walks stay at their baseline flows outside the LP, their load comes off
+//! the block's arc and site right-hand sides and their flow is in the served row's (see
+//! `hold`). Only the demands the failure touches are columns at first, so a block holds
+//! far fewer walks and rows than the whole demand set. A held demand `d` comes back (its
+//! walks become columns at their flows, the right-hand sides take their load back, so
+//! the point does not move) when its share of the duality gap is positive: at the prices
+//! divided by `σ_k`, `Σ_w f_w·price(w) + b_d·max(0, 1 − c_d) − Σ_w f_w` with `c_d` its
+//! cheapest walk (the dual of the full block with `u_d = σ_k·max(0, 1 − c_d)` exceeds
+//! the restricted master's value by `σ_k` times the sum of these shares); with `σ_k = 0`,
+//! when one of its walks has a positive price. So when no walk is new and no demand comes
+//! back, the duals of the restricted master with those `u_d` are feasible for the full
+//! master with the same value: its optimum is the full master's, whatever the purchase.
+//!
 //! **Pricing.** With `d(r)` the shadow price of row `r` (d objective / d rhs) and
 //! `sg = +1` for a maximisation, `−1` for a minimisation, a walk of block `k` improves
 //! the master when its price `Σ mult·y_a + z_v + u_d` is below `σ_k`, where
@@ -32,11 +47,15 @@
 //! its plan is always feasible for every block; the caller re-verifies the plan on every
 //! outage anyway.
 
-use std::collections::HashSet;
+use std::collections::{HashMap, HashSet};
 
 use rayon::prelude::*;
 
-use super::{Basis, Graph, MAX_ROUNDS, PIVOTS_PER_ROW, WARM_ROWS, Walk, evaluate_walks, price};
+use super::round::gap_shares;
+use super::{
+    Basis, Graph, MAX_ROUNDS, PIVOTS_PER_ROW, PRICE_TOL, Solved, WARM_ROWS, Walk, evaluate_walks,
+    price,
+};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -45,6 +64,9 @@ use crate::solve::lp::{self, Lp, LpSolution, Sense};
 use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
 use crate::tol::PLAN_FEASIBLE_TOL;
+
+mod held;
+use held::hold;
 
 /// No row (an arc or demand without one); no simplex row or column yet.
 const NO_ROW: usize = usize::MAX;
@@ -80,6 +102,12 @@ pub struct PlanMaster<'a> {
     /// The optimum of the network's baseline (base traffic matrix) the start solves of
     /// [`PlanMaster::add_outage`] begin from; `None`: cold.
     parent: Option<&'a Basis>,
+    /// Per traffic matrix: the walk engine's optimum of the baseline (nothing failed, no
+    /// addition), whose walks the blocks hold for the demands a failure does not touch.
+    baselines: HashMap<usize, Option<Solved>>,
+    /// Held demands brought back into their blocks so far (module comment, **Held
+    /// demands**).
+    pub activated: usize,
 }
 
 /// One outage's rows in the master.
@@ -91,6 +119,11 @@ struct Block<'a> {
     dem_row: Vec<usize>,
     served_row: usize,
     seen: HashSet<Walk>,
+    /// Per demand: whether its walks are columns of the block (*active*) or *held*.
+    active: Vec<bool>,
+    /// Per held demand: its baseline walks (class arcs) and flows, fixed outside the LP;
+    /// the block's arc, site and served rows carry their load in the right-hand side.
+    held: Vec<Vec<(Walk, f64)>>,
 }
 
 /// The master on the warm bounded simplex ([`Simplex`]: `max c·x`, `≤` rows): a `≥` row
@@ -100,8 +133,10 @@ struct Block<'a> {
 /// them (until then the row holds with its slack basic, dual 0, as in the full model:
 /// every right-hand side is ≥ 0 and only walks and `−add_v` enter these rows).
 ///
-/// A goal row violated at the current point gets an *artificial* column (coefficient −1
-/// in the negated row, started at the violation, so the basis stays primal feasible);
+/// A row violated at the current point when it is added (a goal row; or, by rounding, a
+/// block row created when a held demand comes back) gets an *artificial* column
+/// (coefficient −1 in the negated row, started at the violation and bounded by it, so the
+/// basis stays primal feasible and the row is never relaxed further);
 /// before the next objective a first phase maximises `−Σ artificial` (with column
 /// generation) and then holds the artificials with the row `Σ artificial ≤` its optimum,
 /// which is 0 up to [`PLAN_FEASIBLE_TOL`] when the goal rows can be met.
@@ -162,17 +197,24 @@ impl Exact {
         let lhs: f64 = signed.iter().map(|&(c, a)| a * self.sx.value(c)).sum();
         let violation = lhs - sign * rhs;
         if violation > 0.0 {
+            // Bounded by its start: it can only shrink, never relax the row further.
             let c = self
                 .sx
-                .add_col(0.0, 0.0, f64::INFINITY, violation, vec![(i, -1.0)]);
+                .add_col(0.0, 0.0, violation, violation, vec![(i, -1.0)]);
             self.artificial.push(c);
         }
         Ok((i, sign))
     }
 
-    /// Adds the walk column `j` of `base` with `entries` (rows of `base`), creating the
-    /// rows it enters. O(m · entries).
-    fn add_walk(&mut self, base: &Lp, j: usize, entries: &[(usize, f64)]) -> Result<()> {
+    /// Adds the walk column `j` of `base` with `entries` (rows of `base`) at `value`,
+    /// creating the rows it enters. O(m · entries).
+    fn add_walk(
+        &mut self,
+        base: &Lp,
+        j: usize,
+        entries: &[(usize, f64)],
+        value: f64,
+    ) -> Result<()> {
         let mut sx_entries = Vec::with_capacity(entries.len());
         for &(r, a) in entries {
             if self.row[r].0 == NO_ROW {
@@ -181,7 +223,7 @@ impl Exact {
             let (i, sign) = self.row[r];
             sx_entries.push((i, sign * a));
         }
-        self.col[j] = self.sx.add_col(0.0, 0.0, f64::INFINITY, 0.0, sx_entries);
+        self.col[j] = self.sx.add_col(0.0, 0.0, f64::INFINITY, value, sx_entries);
         Ok(())
     }
 
@@ -235,6 +277,8 @@ impl<'a> PlanMaster<'a> {
             lp_solves: 0,
             interior_point_solves: 0,
             parent: None,
+            baselines: HashMap::new(),
+            activated: 0,
         }
     }
 
@@ -252,11 +296,13 @@ impl<'a> PlanMaster<'a> {
     }
 
     /// Adds `outage`'s block (module comment) and returns its served variable `s_k`.
-    /// Start columns: the walks of the walk engine's verified optimum of the outage with
-    /// every addition at its upper bound (so a target at most the best reachable value is
-    /// feasible from the first solve). The outage's traffic matrix decides its demands.
-    /// Cost: one walk-engine evaluation, O(arcs + sites + demands + start walks' lengths)
-    /// to build.
+    /// Demands the failure does not touch are *held* at their baseline walks
+    /// (`hold`); the others are active. Start columns: the walks of active
+    /// demands in the walk engine's verified optimum of the outage with every addition at
+    /// its upper bound (so a target at most the best reachable value is feasible from the
+    /// first solve once the demands it needs are active). The outage's traffic matrix
+    /// decides its demands. Cost: one walk-engine evaluation (two for the first outage of
+    /// a matrix), O(arcs + sites + demands + baseline and start walks' lengths) to build.
     pub fn add_outage(&mut self, outage: &Outage) -> Result<usize> {
         let net = self.net.view(outage.matrix);
         let expandable: Vec<bool> = self.add.iter().map(Option::is_some).collect();
@@ -270,18 +316,39 @@ impl<'a> PlanMaster<'a> {
             .collect();
         let parent = self.parent.filter(|_| outage.matrix == 0);
         let start = evaluate_walks(&self.net.with_added_processing(&full), outage, parent)?;
+        if !self.baselines.contains_key(&outage.matrix) {
+            let solved = match parent {
+                Some(p) => p.required.clone(),
+                None => {
+                    let baseline = Outage {
+                        sites: Vec::new(),
+                        links: Vec::new(),
+                        matrix: outage.matrix,
+                    };
+                    evaluate_walks(self.net, &baseline, None)?.basis.required
+                }
+            };
+            self.baselines.insert(outage.matrix, solved);
+        }
+        let (arc_cap, site_cap) = g.effective(&caps);
+        let (active, held, arc_load, site_load) = hold(
+            &g,
+            &caps,
+            (&arc_cap, &site_cap),
+            self.baselines[&outage.matrix].as_ref(),
+        );
         // The simplex copy is rebuilt with the new block at the next solve.
         self.exact = None;
         let base = &mut self.base;
-        let (arc_cap, site_cap) = g.effective(&caps);
         let mut arc_row = vec![NO_ROW; net.arcs.len()];
         for &a in &g.usable {
-            arc_row[a] = base.add_row(Vec::new(), Sense::Le, arc_cap[a]);
+            arc_row[a] = base.add_row(Vec::new(), Sense::Le, (arc_cap[a] - arc_load[a]).max(0.0));
         }
         let mut site_row: Vec<Option<usize>> = vec![None; net.sites.len()];
         for &v in &g.procs {
             let coeffs = self.add[v].map(|j| vec![(j, -1.0)]).unwrap_or_default();
-            site_row[v] = Some(base.add_row(coeffs, Sense::Le, site_cap[v]));
+            let rhs = (site_cap[v] - site_load[v]).max(0.0);
+            site_row[v] = Some(base.add_row(coeffs, Sense::Le, rhs));
         }
         let mut dem_row = vec![NO_ROW; net.demands.len()];
         for (d, &b) in caps.iter().enumerate() {
@@ -291,9 +358,11 @@ impl<'a> PlanMaster<'a> {
         }
         self.lazy.resize(base.rows.len(), true);
         let total: f64 = caps.iter().sum();
+        let held_total: f64 = held.iter().flatten().map(|(_, f)| f).sum();
         let served = base.add_var(0.0, total, 0.0);
         base.magnitude[served] = total;
-        let served_row = base.add_row(vec![(served, -1.0)], Sense::Ge, 0.0);
+        // Σ active walks + held flow − s_k ≥ 0.
+        let served_row = base.add_row(vec![(served, -1.0)], Sense::Ge, -held_total);
         self.lazy.push(false);
         self.walk_entries.push(None);
         let mut block = Block {
@@ -304,10 +373,12 @@ impl<'a> PlanMaster<'a> {
             dem_row,
             served_row,
             seen: HashSet::new(),
+            active,
+            held,
         };
         if let Some(s) = start.basis.required {
             for w in s.walks.iter().filter_map(|w| block.g.lift(w)) {
-                if block.admits(&w) && block.seen.insert(w.clone()) {
+                if block.active[w.demand] && block.admits(&w) && block.seen.insert(w.clone()) {
                     let (j, entries) = block.column(base, &w);
                     debug_assert_eq!(j, self.walk_entries.len());
                     self.walk_entries.push(Some(entries));
@@ -391,7 +462,7 @@ impl<'a> PlanMaster<'a> {
         }
         for (j, e) in self.walk_entries.iter().enumerate() {
             if let Some(entries) = e {
-                ex.add_walk(base, j, entries)?;
+                ex.add_walk(base, j, entries, 0.0)?;
             }
         }
         Ok(ex)
@@ -498,36 +569,95 @@ impl<'a> PlanMaster<'a> {
         }
     }
 
-    /// Prices every block at `sol`'s shadow prices (in parallel) and adds each improving
-    /// walk not yet in its block: to `base`, to the simplex copy when there is one, and
-    /// to the interior-point copy when there is one. Returns how many were added.
-    /// O(blocks · pricing + added · (m · entries)).
+    /// Prices every block at `sol`'s shadow prices (in parallel), brings back the held
+    /// demands whose share of the gap is positive ([`PlanMaster::activate`]) and adds each
+    /// improving walk not yet in its block: to `base`, to the simplex copy when there is
+    /// one, and to the interior-point copy when there is one. Returns how many walks and
+    /// demands were added. O(blocks · pricing + added · (m · entries)).
     fn add_improving(&mut self, sol: &LpSolution, sg: f64) -> Result<usize> {
-        let fresh: Vec<Vec<Walk>> = self
+        let fresh: Vec<(Vec<Walk>, Vec<usize>)> = self
             .blocks
             .par_iter()
             .map(|b| b.improving(sol, sg))
             .collect();
         let mut added = 0;
-        for (k, walks) in fresh.into_iter().enumerate() {
+        for (k, (walks, wake)) in fresh.into_iter().enumerate() {
+            for d in wake {
+                self.activate(k, d)?;
+                added += 1;
+            }
             for w in walks {
-                let b = &mut self.blocks[k];
-                if !b.seen.insert(w.clone()) {
+                if !self.blocks[k].seen.insert(w.clone()) {
                     continue;
                 }
-                if let Some(cold) = self.cold.as_mut() {
-                    b.column(cold, &w);
-                }
-                let (j, entries) = b.column(&mut self.base, &w);
-                if let Some(ex) = self.exact.as_mut() {
-                    ex.col.push(NO_ROW);
-                    ex.add_walk(&self.base, j, &entries)?;
-                }
-                self.walk_entries.push(Some(entries));
+                self.add_column(k, &w, 0.0)?;
                 added += 1;
             }
         }
         Ok(added)
+    }
+
+    /// Adds walk `w`'s column to block `k` at `value` (in `base`, the simplex copy and the
+    /// interior-point copy, whichever exist). O(m · walk length).
+    fn add_column(&mut self, k: usize, w: &Walk, value: f64) -> Result<()> {
+        let b = &self.blocks[k];
+        if let Some(cold) = self.cold.as_mut() {
+            b.column(cold, w);
+        }
+        let (j, entries) = b.column(&mut self.base, w);
+        if let Some(ex) = self.exact.as_mut() {
+            ex.col.push(NO_ROW);
+            ex.add_walk(&self.base, j, &entries, value)?;
+        }
+        self.walk_entries.push(Some(entries));
+        Ok(())
+    }
+
+    /// Makes the held demand `d` of block `k` active: each of its held walks gives its
+    /// load back to the rows it crosses (their right-hand sides rise by it) and enters as
+    /// a column at its held flow, so the current point, its basis and every basic value
+    /// stay as they were (the simplex's `shift_rhs` then `add_col` at that value).
+    /// O(held walks · m · walk length).
+    fn activate(&mut self, k: usize, d: usize) -> Result<()> {
+        let b = &mut self.blocks[k];
+        b.active[d] = true;
+        let held = std::mem::take(&mut b.held[d]);
+        self.activated += 1;
+        for (w, f) in held {
+            let b = &mut self.blocks[k];
+            b.seen.insert(w.clone());
+            let site = b.site_row[w.site].expect("a held walk's site has a row");
+            let mut loads: Vec<(usize, f64)> = w
+                .arcs
+                .iter()
+                .map(|&(a, m)| (b.arc_row[a], f64::from(m) * f))
+                .collect();
+            loads.push((site, f));
+            loads.push((b.served_row, f));
+            // Every row the walk enters exists in the simplex before any right-hand side
+            // moves: a row created while the basic values carry a shift not yet taken
+            // back by the column would look violated and get a spurious artificial.
+            if let Some(ex) = self.exact.as_mut() {
+                for r in loads.iter().map(|&(r, _)| r).chain([b.dem_row[d]]) {
+                    if ex.row[r].0 == NO_ROW {
+                        ex.add_base_row(&self.base, r)?;
+                    }
+                }
+            }
+            for (r, delta) in loads {
+                self.base.rows[r].rhs += delta;
+                if let Some(cold) = self.cold.as_mut() {
+                    cold.rows[r].rhs += delta;
+                }
+                if let Some(ex) = self.exact.as_mut()
+                    && ex.row[r].0 != NO_ROW
+                {
+                    ex.sx.shift_rhs(ex.row[r].0, ex.row[r].1 * delta);
+                }
+            }
+            self.add_column(k, &w, f)?;
+        }
+        Ok(())
     }
 
     /// [`PlanMaster::solve`] on the interior-point backend: column generation on a copy
@@ -585,26 +715,60 @@ impl Block<'_> {
     }
 
     /// The walks of this block that improve the master at `sol`'s shadow prices (module
-    /// comment; `sg` the objective's sign), one per demand at most. One pricing pass.
-    fn improving(&self, sol: &LpSolution, sg: f64) -> Vec<Walk> {
-        let sigma = (-sg * sol.duals[self.served_row]).max(0.0);
-        if sigma <= 0.0 {
-            return Vec::new();
-        }
-        let d = |r: usize| {
+    /// comment; `sg` the objective's sign), one per active demand at most, and the held
+    /// demands to bring back: those whose share of the gap ([`gap_shares`]) is positive at
+    /// the prices divided by `σ_k`, or, when `σ_k = 0`, whose held walks cross a row with
+    /// a positive price (freeing their load would gain). One pricing pass.
+    fn improving(&self, sol: &LpSolution, sg: f64) -> (Vec<Walk>, Vec<usize>) {
+        let raw = |r: usize| {
             if r == NO_ROW {
                 0.0
             } else {
-                (sg * sol.duals[r]).max(0.0) / sigma
+                (sg * sol.duals[r]).max(0.0)
             }
         };
-        let y: Vec<f64> = self.arc_row.iter().map(|&r| d(r)).collect();
-        let z: Vec<f64> = self.site_row.iter().map(|r| r.map_or(0.0, d)).collect();
-        let u: Vec<f64> = self.dem_row.iter().map(|&r| d(r)).collect();
-        price(&self.g, &self.caps, &y, &z, Some(&u))
-            .walks
-            .into_iter()
-            .filter(|w| self.admits(w))
-            .collect()
+        let y: Vec<f64> = self.arc_row.iter().map(|&r| raw(r)).collect();
+        let z: Vec<f64> = self.site_row.iter().map(|r| r.map_or(0.0, raw)).collect();
+        let walk_price = |w: &Walk, y: &[f64], z: &[f64]| {
+            w.arcs
+                .iter()
+                .map(|&(a, m)| f64::from(m) * y[a])
+                .sum::<f64>()
+                + z[w.site]
+        };
+        let sigma = (-sg * sol.duals[self.served_row]).max(0.0);
+        if sigma <= 0.0 {
+            let wake = (0..self.held.len())
+                .filter(|&d| {
+                    self.held[d]
+                        .iter()
+                        .any(|(w, _)| walk_price(w, &y, &z) > PRICE_TOL)
+                })
+                .collect();
+            return (Vec::new(), wake);
+        }
+        let y: Vec<f64> = y.iter().map(|p| p / sigma).collect();
+        let z: Vec<f64> = z.iter().map(|p| p / sigma).collect();
+        let u: Vec<f64> = self
+            .dem_row
+            .iter()
+            .enumerate()
+            .map(|(d, &r)| {
+                if self.active[d] {
+                    raw(r) / sigma
+                } else {
+                    f64::INFINITY
+                }
+            })
+            .collect();
+        let p = price(&self.g, &self.caps, &y, &z, Some(&u));
+        let wake = gap_shares(
+            |d| (!self.active[d] && self.caps[d] > 0.0).then(|| self.caps[d]),
+            &self.held,
+            |w| walk_price(w, &y, &z),
+            &p.cost,
+        );
+        let walks = p.walks.into_iter().filter(|w| self.admits(w)).collect();
+        (walks, wake.into_iter().map(|(_, d)| d).collect())
     }
 }

@@ -36,6 +36,39 @@ pub(crate) fn solve_round(
     Ok(true)
 }
 
+/// The inactive demands whose share of the duality gap exceeds the tolerance (the rule of
+/// [`next_round`]), each with its share relative to `max(cap(d), Σ_w f_w)`, in index
+/// order. Used alone by a master that must not free every demand when nothing else moves
+/// (the plan master, whose stop is "nothing new"). Cost: O(Σ fixed walks · cost of
+/// `price` + demands).
+pub(crate) fn gap_shares<W>(
+    inactive_cap: impl Fn(usize) -> Option<f64>,
+    fixed: &[Vec<(W, f64)>],
+    price: impl Fn(&W) -> f64,
+    cost: &[f64],
+) -> Vec<(f64, usize)> {
+    let mut wake: Vec<(f64, usize)> = Vec::new();
+    for (d, walks) in fixed.iter().enumerate() {
+        let Some(cap) = inactive_cap(d) else {
+            continue;
+        };
+        let (mut share, mut f_d) = (0.0, 0.0);
+        for (w, f) in walks {
+            share += f * price(w);
+            f_d += f;
+        }
+        if cost[d].is_finite() {
+            share += cap * (1.0 - cost[d]).max(0.0);
+        }
+        share -= f_d;
+        let scale = cap.max(f_d);
+        if share > PRICE_TOL * scale {
+            wake.push((share / scale, d));
+        }
+    }
+    wake
+}
+
 /// The inactive demands to free after one pricing pass, and the priced walks not yet in
 /// the master (`seen`), in the order they came.
 ///
@@ -60,25 +93,7 @@ pub(crate) fn next_round<W: Eq + Hash, S: BuildHasher>(
     seen: &HashSet<W, S>,
     most: Option<usize>,
 ) -> Option<(Vec<usize>, Vec<W>)> {
-    let mut wake: Vec<(f64, usize)> = Vec::new();
-    for (d, walks) in fixed.iter().enumerate() {
-        let Some(cap) = inactive_cap(d) else {
-            continue;
-        };
-        let (mut share, mut f_d) = (0.0, 0.0);
-        for (w, f) in walks {
-            share += f * price(w);
-            f_d += f;
-        }
-        if cost[d].is_finite() {
-            share += cap * (1.0 - cost[d]).max(0.0);
-        }
-        share -= f_d;
-        let scale = cap.max(f_d);
-        if share > PRICE_TOL * scale {
-            wake.push((share / scale, d));
-        }
-    }
+    let mut wake = gap_shares(&inactive_cap, fixed, price, cost);
     if let Some(most) = most
         && wake.len() > most
     {
