@@ -62,21 +62,7 @@ pub(crate) fn forward_with(
     origin: SiteIdx,
     chain: &[FunctionIdx],
 ) -> Vec<bool> {
-    let view = memo.view;
-    let n = net.sites.len();
-    let k = chain.len();
-    let mut seen = vec![false; (k + 1) * n];
-    let mut start: Vec<SiteIdx> = vec![origin];
-    for j in 0..=k {
-        let r = &mut seen[j * n..(j + 1) * n];
-        memo.union(&start, true, r);
-        if j < k {
-            start = (0..n)
-                .filter(|&v| r[v] && runs(ch, view, v, chain[j]))
-                .collect();
-        }
-    }
-    seen
+    layered(net, ch, memo, &[origin], chain, true)
 }
 
 /// Layered nodes from which some destination in `dests` is reachable in layer `k` on
@@ -89,18 +75,34 @@ pub(crate) fn backward_with(
     dests: &[SiteIdx],
     chain: &[FunctionIdx],
 ) -> Vec<bool> {
+    layered(net, ch, memo, dests, chain, false)
+}
+
+/// The layered reach of `ends` (in layer 0 when `forward`, else in layer `k`): layer by
+/// layer away from them, the single-site reach sets of the current ends, then the sites of
+/// that layer running the function between it and the next as the next layer's ends.
+/// Indexed `layer · sites + site`. O((k + 1) · sites · ends).
+fn layered(
+    net: &Network,
+    ch: &Chains,
+    memo: &mut ReachMemo,
+    ends: &[SiteIdx],
+    chain: &[FunctionIdx],
+    forward: bool,
+) -> Vec<bool> {
     let view = memo.view;
     let n = net.sites.len();
     let k = chain.len();
     let mut seen = vec![false; (k + 1) * n];
-    let mut end: Vec<SiteIdx> = dests.to_vec();
-    for j in (0..=k).rev() {
+    let mut start: Vec<SiteIdx> = ends.to_vec();
+    for step in 0..=k {
+        let j = if forward { step } else { k - step };
         let r = &mut seen[j * n..(j + 1) * n];
-        memo.union(&end, false, r);
-        if j > 0 {
-            end = (0..n)
-                .filter(|&v| r[v] && runs(ch, view, v, chain[j - 1]))
-                .collect();
+        memo.union(&start, forward, r);
+        if step < k {
+            // The function between layer j and the next one away from the ends.
+            let f = if forward { chain[j] } else { chain[j - 1] };
+            start = (0..n).filter(|&v| r[v] && runs(ch, view, v, f)).collect();
         }
     }
     seen
