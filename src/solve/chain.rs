@@ -357,20 +357,41 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
     let n = net.sites.len();
     let mut walks: Vec<LayeredWalk> = Vec::new();
     let mut lp_flow = vec![0.0; net.demands.len()];
+    // Per layered node (buffers shared by the groups): its edges in edge order (`first`,
+    // `order`: compressed rows), the first of them that may still carry flow (`next`:
+    // `rest` only decreases, so an edge at or below `eps` stays there), what its sink
+    // still absorbs, and its position on the current path (`usize::MAX`: not on it).
+    let (mut first, mut order, mut next) = (Vec::new(), Vec::new(), Vec::new());
+    let (mut sink, mut pos): (Vec<f64>, Vec<usize>) = (Vec::new(), Vec::new());
+    let (mut rest, mut path): (Vec<f64>, Vec<usize>) = (Vec::new(), Vec::new());
     for (g, group) in layered.groups.iter().enumerate() {
         let k = group.chain.len();
         let total: f64 = group.demands.iter().map(|&d| layered.bound[d]).sum();
         let eps = ZERO_FLOW * total.max(f64::MIN_POSITIVE);
         let edges = &layered.edges[g];
-        let mut rest: Vec<f64> = edges.iter().map(|e| x[e.var].max(0.0)).collect();
-        // Per layered node: its edges in edge order, what its sink still absorbs, and its
-        // position on the current path (`usize::MAX`: not on it).
+        rest.clear();
+        rest.extend(edges.iter().map(|e| x[e.var].max(0.0)));
         let nodes = (k + 1) * n;
-        let mut out: Vec<Vec<usize>> = vec![Vec::new(); nodes];
-        for (i, e) in edges.iter().enumerate() {
-            out[e.from].push(i);
+        first.clear();
+        first.resize(nodes + 1, 0usize);
+        for e in edges {
+            first[e.from + 1] += 1;
         }
-        let mut sink: Vec<f64> = vec![0.0; nodes];
+        for v in 0..nodes {
+            first[v + 1] += first[v];
+        }
+        next.clear();
+        next.extend_from_slice(&first[..nodes]);
+        order.clear();
+        order.resize(edges.len(), 0usize);
+        for (i, e) in edges.iter().enumerate() {
+            order[next[e.from]] = i;
+            next[e.from] += 1;
+        }
+        next.clear();
+        next.extend_from_slice(&first[..nodes]);
+        sink.clear();
+        sink.resize(nodes, 0.0);
         let mut supply = 0.0;
         for &d in &group.demands {
             let f = layered.demand_var[d].map_or(0.0, |v| x[v].clamp(0.0, layered.bound[d]));
@@ -379,21 +400,30 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
             sink[k * n + net.demands[d].to.0] += f;
         }
         let source = group.origin;
-        let next = |node: usize, rest: &[f64]| -> Option<usize> {
-            out[node].iter().copied().find(|&i| rest[i] > eps)
+        // The first edge of `node` still above `eps`, in edge order.
+        let step = |node: usize, rest: &[f64], next: &mut [usize]| -> Option<usize> {
+            while next[node] < first[node + 1] {
+                let i = order[next[node]];
+                if rest[i] > eps {
+                    return Some(i);
+                }
+                next[node] += 1;
+            }
+            None
         };
-        let mut pos: Vec<usize> = vec![usize::MAX; nodes];
+        pos.clear();
+        pos.resize(nodes, usize::MAX);
         // Each pass ends a walk, cancels a cycle or drops a dead end: each zeroes at least
         // one edge, the supply or a sink.
         while supply > eps {
-            let mut path: Vec<usize> = Vec::new();
+            path.clear();
             let mut node = source;
             pos[node] = 0;
             let done = loop {
                 if sink[node] > eps {
                     break true;
                 }
-                let Some(i) = next(node, &rest) else {
+                let Some(i) = step(node, &rest, &mut next) else {
                     break false;
                 };
                 path.push(i);
@@ -401,9 +431,11 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
                 if pos[node] != usize::MAX {
                     // A cycle: cancel it and go on from where it closed.
                     let at = pos[node];
-                    let cycle: Vec<usize> = path.drain(at..).collect();
-                    let m = cycle.iter().map(|&c| rest[c]).fold(f64::INFINITY, f64::min);
-                    for &c in &cycle {
+                    let m = path[at..]
+                        .iter()
+                        .map(|&c| rest[c])
+                        .fold(f64::INFINITY, f64::min);
+                    for &c in &path[at..] {
                         rest[c] -= m;
                         // The nodes after the cycle's start leave the path.
                         let t = edges[c].to;
@@ -411,6 +443,7 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
                             pos[t] = usize::MAX;
                         }
                     }
+                    path.truncate(at);
                 } else {
                     pos[node] = path.len();
                 }
@@ -562,6 +595,17 @@ pub fn dual_bound(
     for &a in &view.arcs {
         out[net.arcs[a].from].push(a);
     }
+    // Per `site · functions + function`: the price of applying it there, NaN where the
+    // function does not run (a dense copy of `fn_price` and [`runs`]).
+    let nf = ch.functions.len();
+    let mut fn_at = vec![f64::NAN; n * nf];
+    for v in 0..n {
+        for f in 0..nf {
+            if runs(ch, view, v, f) {
+                fn_at[v * nf + f] = fn_price.get(&(v, f)).copied().unwrap_or(0.0);
+            }
+        }
+    }
     let mut dist: Vec<f64> = Vec::new();
     let mut wanted: Vec<bool> = Vec::new();
     let mut heap = BinaryHeap::new();
@@ -611,9 +655,11 @@ pub fn dual_bound(
             for &a in &out[v] {
                 relax(j * n + net.arcs[a].to.0, cum[j] * arc_price[a], &mut heap);
             }
-            if j < k && runs(ch, view, v, group.chain[j]) {
-                let z = fn_price.get(&(v, group.chain[j])).copied().unwrap_or(0.0);
-                relax((j + 1) * n + v, cum[j] * z, &mut heap);
+            if j < k {
+                let z = fn_at[v * nf + group.chain[j]];
+                if !z.is_nan() {
+                    relax((j + 1) * n + v, cum[j] * z, &mut heap);
+                }
             }
         }
         for &d in &group.demands {
