@@ -456,7 +456,7 @@ fn rerouted(
     if short.walks.is_empty() {
         return None;
     }
-    reroute(rows, &short, &mut walks);
+    reroute(rows, &short, &mut walks, false);
     Some(walks)
 }
 

@@ -28,13 +28,15 @@
 //! new walks enter at zero against the current basis, rows are created as columns need
 //! them. A scenario starts from the walks of its parent's optimum (the baseline's) that
 //! survive it, at their flows scaled into the new rows, with the lost flow re-routed
-//! greedily when nothing was scaled (a feasible start).
+//! (greedily, then moving other walks aside) when nothing was scaled (a feasible start).
 //!
 //! **Shortcuts.** When no walk of the parent's optimum that carried flow is lost and the
 //! parent's allocation fits the new rows, that allocation with the parent's prices is
 //! verified first, with no master solve: a failure that takes nothing the optimum used
 //! cannot raise the optimum, and the parent's prices priced on the smaller network give a
-//! bound no larger than before. Otherwise the lost flow is re-routed greedily; when that
+//! bound no larger than before. Otherwise the lost flow is re-routed (greedily, then by
+//! moving flow of other walks onto walks of their own demand that avoid the rows a walk of
+//! the short demand needs, every row kept within its right-hand side); when that
 //! serves what the parent served, everything at stake, or the bound of the parent's
 //! prices on the new rows (one pricing pass), it is verified with those prices (zero
 //! prices when everything is served), again with no master solve.
@@ -198,13 +200,13 @@ fn solve_caps(
                 return Ok((v, cut_off, Some(s)));
             }
         }
-        // Repair: the lost flow re-routed greedily. When that reaches what the parent
-        // served (a child never serves more) or everything at stake, the parent's prices
-        // (or zero prices when everything is served) may prove it without a master; below
-        // that, the parent's prices still may, when their bound on this outage's rows
-        // (one pricing pass, before any verification) meets the value. The surviving
-        // walks with the re-routed flow: the master's start when the repair does not
-        // decide the LP (a feasible point of the new rows).
+        // Repair: the lost flow re-routed (`reroute`, moving other walks aside). When that
+        // reaches what the parent served (a child never serves more) or everything at
+        // stake, the parent's prices (or zero prices when everything is served) may prove
+        // it without a master; below that, the parent's prices still may, when their bound
+        // on this outage's rows (one pricing pass, before any verification) meets the
+        // value. The surviving walks with the re-routed flow: the master's start when the
+        // repair does not decide the LP (a feasible point of the new rows).
         let mut rerouted: Option<Vec<(ChainWalk, f64)>> = None;
         if let (Some(p), Some(k)) = (start, &kept)
             && !k.scaled
@@ -213,7 +215,7 @@ fn solve_caps(
             let repaired = {
                 let rows = Rows::new(net, view, &layered);
                 let mut walks = k.walks.clone();
-                reroute(&rows, p, &mut walks);
+                reroute(&rows, p, &mut walks, true);
                 rerouted = Some(walks.clone());
                 let value: f64 = walks.iter().map(|(_, f)| f).sum();
                 let all = rows.scale;

@@ -97,6 +97,15 @@ impl<'a> Rows<'a> {
         }
     }
 
+    /// The dense index of the row of function `f` at site `v`, `None` when the model has
+    /// no such row. O(1).
+    pub(super) fn function_index(&self, v: SiteIdx, f: FunctionIdx) -> Option<usize> {
+        match self.fn_slot[v * self.ch.functions.len() + f] {
+            NONE => None,
+            i => Some(self.net.arcs.len() + i),
+        }
+    }
+
     /// The number of dense row indices ([`Rows::index`]). O(1).
     pub(super) fn len(&self) -> usize {
         self.net.arcs.len() + self.n_fn + self.net.demands.len()

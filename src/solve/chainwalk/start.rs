@@ -1,6 +1,7 @@
 //! Where a scenario's layered walk master starts from the parent's optimum: the parent's
 //! walks that survive the outage ([`surviving_start`], scaled into the new rows when they
-//! do not fit) and a greedy re-routing of the flow the outage took ([`reroute`]).
+//! do not fit) and a re-routing of the flow the outage took ([`reroute`]: greedy, then by
+//! moving other walks' flow off the rows a walk of the short demand needs).
 
 use super::hash::WordMap;
 
@@ -105,14 +106,172 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
     }
 }
 
+/// Rip-up attempts per demand still short after the greedy re-routing of [`reroute`]
+/// (each: one fewest-blocked walk, room made on its full rows, one push).
+const RIP_UP_TRIES: usize = 4;
+/// Walks a demand's rip-up tries to move out of the way at most (one search each).
+const RIP_UP_MOVES: usize = 24;
+
+/// What a re-routing works on: the rows' residual room, the walks with their flows and
+/// their row coefficients (kept together, one entry per walk).
+struct Routing<'r, 'a> {
+    rows: &'r Rows<'a>,
+    /// Per dense row index: what is left of its right-hand side.
+    res: Vec<f64>,
+    walks: &'r mut Vec<(ChainWalk, f64)>,
+    coefs: Vec<Vec<(RowKey, f64)>>,
+    /// Per dense row index: the walks through it, ascending.
+    through: Vec<Vec<usize>>,
+    eps: f64,
+    /// Buffers of [`Routing::search`]: per layered node its predecessor edge and distance,
+    /// and the queue.
+    scratch: Scratch,
+}
+
+type Scratch = (
+    Vec<Option<(usize, EdgeKind)>>,
+    Vec<usize>,
+    std::collections::VecDeque<usize>,
+);
+
+impl Routing<'_, '_> {
+    fn room(&self, key: RowKey) -> f64 {
+        self.res[self.rows.index(key)]
+    }
+
+    /// Moves `f` units onto walk `i`'s rows (negative: off them). O(walk length).
+    fn load(&mut self, i: usize, f: f64) {
+        for &(key, c) in &self.coefs[i] {
+            self.res[self.rows.index(key)] -= c * f;
+        }
+        self.walks[i].1 += f;
+    }
+
+    /// Removes the last walk (added by [`Routing::add`], still at flow 0). O(1).
+    fn drop_last(&mut self) {
+        self.walks.pop();
+        for &(key, _) in &self.coefs.pop().unwrap_or_default() {
+            self.through[self.rows.index(key)].pop();
+        }
+    }
+
+    /// Appends walk `w` at flow 0 and returns its index. O(walk length · log).
+    fn add(&mut self, w: ChainWalk) -> usize {
+        let cs = self.rows.coefficients(&w);
+        for &(key, _) in &cs {
+            self.through[self.rows.index(key)].push(self.walks.len());
+        }
+        self.coefs.push(cs);
+        self.walks.push((w, 0.0));
+        self.walks.len() - 1
+    }
+
+    /// The most walk `i` can take on top of its flow within the rows' room, at most `most`
+    /// (its demand's cap row left out when `same_demand`: flow moved within its demand).
+    fn most(&self, i: usize, most: f64, same_demand: bool) -> f64 {
+        self.coefs[i]
+            .iter()
+            .filter(|(key, _)| !(same_demand && matches!(key, RowKey::Demand(_))))
+            .map(|&(key, c)| self.room(key) / c)
+            .fold(most, f64::min)
+    }
+
+    /// A layered walk of demand `d` over the rows of the model, edges whose dense row index
+    /// is `blocked` left out. When `strict`, over the edges whose row has more than `eps`
+    /// of room, the fewest hops (BFS, function edge before arcs, arcs in site order);
+    /// otherwise the fewest full rows crossed (0-1 BFS: a full row costs 1). O((k + 1) ·
+    /// (sites + arcs)).
+    fn search(&mut self, d: usize, strict: bool, blocked: &[bool]) -> Option<ChainWalk> {
+        let (rows, eps) = (self.rows, self.eps);
+        let (net, layered) = (rows.net, rows.layered);
+        let n = net.sites.len();
+        let group = &layered.groups[rows.group_of[d]];
+        let k = group.chain.len();
+        let target = k * n + net.demands[d].to.0;
+        let (pred, dist, queue) = &mut self.scratch;
+        pred.clear();
+        pred.resize((k + 1) * n, None);
+        dist.clear();
+        dist.resize((k + 1) * n, usize::MAX);
+        queue.clear();
+        dist[group.origin] = 0;
+        queue.push_back(group.origin);
+        let res = &self.res;
+        // The cost of crossing dense row `i` (`None`: not allowed).
+        let cost = |i: usize| -> Option<usize> {
+            match (blocked[i], res[i] > eps) {
+                (true, _) => None,
+                (false, true) => Some(usize::from(strict)),
+                (false, false) => (!strict).then_some(1),
+            }
+        };
+        while let Some(node) = queue.pop_front() {
+            if node == target && strict {
+                break;
+            }
+            let (j, v) = (node / n, node % n);
+            let here = dist[node];
+            let mut relax = |next: usize, c: usize, kind: EdgeKind| {
+                if here + c < dist[next] {
+                    dist[next] = here + c;
+                    pred[next] = Some((node, kind));
+                    if c == 0 && !strict {
+                        queue.push_front(next);
+                    } else {
+                        queue.push_back(next);
+                    }
+                }
+            };
+            if j < k
+                && chain::runs(rows.ch, rows.view, v, group.chain[j])
+                && let Some(i) = rows.function_index(v, group.chain[j])
+                && let Some(c) = cost(i)
+            {
+                relax((j + 1) * n + v, c, EdgeKind::Function { site: v, layer: j });
+            }
+            for &a in &rows.out[v] {
+                if layered.arc_row[a].is_some()
+                    && let Some(c) = cost(rows.index(RowKey::Arc(a)))
+                {
+                    relax(
+                        j * n + net.arcs[a].to.0,
+                        c,
+                        EdgeKind::Arc { arc: a, layer: j },
+                    );
+                }
+            }
+        }
+        if dist[target] == usize::MAX {
+            return None;
+        }
+        let mut edges = Vec::new();
+        let mut at = target;
+        while let Some((prev, kind)) = pred[at] {
+            edges.push(kind);
+            at = prev;
+        }
+        edges.reverse();
+        Some(ChainWalk { demand: d, edges })
+    }
+}
+
 /// Greedy re-routing of the flow `start` lost, per demand, through the residual capacity
 /// its surviving walks leave in the rows: shortest-hop layered walks (BFS over the layered
 /// graph of the demand's group, using only edges whose row has room), each pushed as far as
-/// its tightest row allows (a row used twice by one walk counts twice). Appends the walks
-/// it uses to `walks`. O(augmentations · (k + 1) · (sites + arcs)).
-pub(super) fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f64)>) {
+/// its tightest row allows (a row used twice by one walk counts twice). With `rip_up`, a
+/// demand still short then tries [`RIP_UP_TRIES`] times the walk crossing the fewest full
+/// rows, first moving flow of other walks through those rows onto walks of their own
+/// demand that avoid every row of that walk. Every move keeps each row's load within its
+/// right-hand side. Appends the walks it uses to `walks` (and lowers the flows of those it
+/// moves flow from). O(augmentations · (k + 1) · (sites + arcs) + rip-ups · walks ·
+/// (k + 1) · (sites + arcs)).
+pub(super) fn reroute(
+    rows: &Rows,
+    start: &Solved,
+    walks: &mut Vec<(ChainWalk, f64)>,
+    rip_up: bool,
+) {
     let (net, layered) = (rows.net, rows.layered);
-    let n = net.sites.len();
     let eps = crate::tol::WALK_FLOW_EPS * rows.scale;
     let mut lost = vec![0.0; net.demands.len()];
     for (w, &f) in start.walks.iter().zip(&start.flow) {
@@ -120,92 +279,123 @@ pub(super) fn reroute(rows: &Rows, start: &Solved, walks: &mut Vec<(ChainWalk, f
             lost[w.demand] += f;
         }
     }
-    // Per dense row index: what is left of its right-hand side (NaN: not yet computed).
-    let mut res = vec![f64::NAN; rows.len()];
-    let room = |res: &mut Vec<f64>, key: RowKey| {
-        let i = rows.index(key);
-        if res[i].is_nan() {
-            res[i] = rows.rhs(key);
-        }
-        res[i]
-    };
-    for (w, f) in walks.iter() {
-        for (key, c) in rows.coefficients(w) {
-            let r = room(&mut res, key);
-            res[rows.index(key)] = r - c * f;
+    if lost.iter().all(|&l| l <= eps) {
+        return;
+    }
+    let mut res = vec![0.0; rows.len()];
+    for (a, &cap) in layered.arc_cap.iter().enumerate() {
+        res[rows.index(RowKey::Arc(a))] = cap;
+    }
+    for (&(v, f), &cap) in &layered.function_cap {
+        res[rows.index(RowKey::Function(v, f))] = cap;
+    }
+    for d in 0..net.demands.len() {
+        res[rows.index(RowKey::Demand(d))] = layered.bound[d];
+    }
+    let coefs: Vec<Vec<(RowKey, f64)>> = walks.iter().map(|(w, _)| rows.coefficients(w)).collect();
+    let mut through = vec![Vec::new(); rows.len()];
+    for (j, (cs, (_, f))) in coefs.iter().zip(walks.iter()).enumerate() {
+        for &(key, c) in cs {
+            res[rows.index(key)] -= c * f;
+            through[rows.index(key)].push(j);
         }
     }
+    let mut r = Routing {
+        rows,
+        res,
+        walks,
+        coefs,
+        through,
+        eps,
+        scratch: Scratch::default(),
+    };
+    let none = vec![false; rows.len()];
     for (d, &amount) in lost.iter().enumerate() {
         if amount <= eps {
             continue;
         }
-        let group = &layered.groups[rows.group_of[d]];
-        let k = group.chain.len();
-        let target = k * n + net.demands[d].to.0;
-        let mut remaining = amount.min(room(&mut res, RowKey::Demand(d)));
-        let mut budget = 2 * (net.arcs.len() + n) + 2;
+        let mut remaining = amount.min(r.room(RowKey::Demand(d)));
+        let mut budget = 2 * (net.arcs.len() + net.sites.len()) + 2;
         while remaining > eps && budget > 0 {
             budget -= 1;
-            let mut pred: Vec<Option<(usize, EdgeKind)>> = vec![None; (k + 1) * n];
-            let mut seen = vec![false; (k + 1) * n];
-            let mut queue = std::collections::VecDeque::new();
-            seen[group.origin] = true;
-            queue.push_back(group.origin);
-            while let Some(node) = queue.pop_front() {
-                if node == target {
-                    break;
-                }
-                let (j, v) = (node / n, node % n);
-                if j < k {
-                    let f = group.chain[j];
-                    let next = (j + 1) * n + v;
-                    if !seen[next]
-                        && chain::runs(rows.ch, rows.view, v, f)
-                        && layered.function_cap.contains_key(&(v, f))
-                        && room(&mut res, RowKey::Function(v, f)) > eps
-                    {
-                        seen[next] = true;
-                        pred[next] = Some((node, EdgeKind::Function { site: v, layer: j }));
-                        queue.push_back(next);
-                    }
-                }
-                for &a in &rows.out[v] {
-                    let next = j * n + net.arcs[a].to.0;
-                    if !seen[next]
-                        && layered.arc_row[a].is_some()
-                        && room(&mut res, RowKey::Arc(a)) > eps
-                    {
-                        seen[next] = true;
-                        pred[next] = Some((node, EdgeKind::Arc { arc: a, layer: j }));
-                        queue.push_back(next);
-                    }
-                }
-            }
-            if !seen[target] {
+            let Some(w) = r.search(d, true, &none) else {
                 break;
-            }
-            let mut edges = Vec::new();
-            let mut at = target;
-            while let Some((prev, kind)) = pred[at] {
-                edges.push(kind);
-                at = prev;
-            }
-            edges.reverse();
-            let w = ChainWalk { demand: d, edges };
-            let coefficients = rows.coefficients(&w);
-            let push = coefficients
-                .iter()
-                .map(|&(key, c)| room(&mut res, key) / c)
-                .fold(remaining, f64::min);
+            };
+            let i = r.add(w);
+            let push = r.most(i, remaining, false);
             if push <= eps {
+                r.drop_last();
                 break;
             }
-            for &(key, c) in &coefficients {
-                let r = room(&mut res, key);
-                res[rows.index(key)] = r - c * push;
-            }
+            r.load(i, push);
             remaining -= push;
-            walks.push((w, push));
+        }
+        let mut moves = RIP_UP_MOVES;
+        for _ in 0..if rip_up { RIP_UP_TRIES } else { 0 } {
+            if remaining <= eps {
+                break;
+            }
+            let Some(w) = r.search(d, false, &none) else {
+                break;
+            };
+            let i = r.add(w);
+            // Every row of the new walk is closed to the walks moved out of the way.
+            let mut closed = vec![false; rows.len()];
+            for &(key, _) in &r.coefs[i] {
+                if !matches!(key, RowKey::Demand(_)) {
+                    closed[rows.index(key)] = true;
+                }
+            }
+            let want = remaining.min(r.room(RowKey::Demand(d)));
+            // Demands with no walk around the closed rows that has room (this try).
+            let mut stuck = vec![false; net.demands.len()];
+            for t in 0..r.coefs[i].len() {
+                let (key, c) = r.coefs[i][t];
+                let row = rows.index(key);
+                let mut need = want * c - r.res[row];
+                // The walks through the full row (those there now), in walk order.
+                let mut at = 0;
+                while need > eps * c && at < r.through[row].len() {
+                    let j = r.through[row][at];
+                    at += 1;
+                    let (e, f) = (r.walks[j].0.demand, r.walks[j].1);
+                    if j == i || f <= eps || stuck[e] {
+                        continue;
+                    }
+                    if moves == 0 {
+                        break;
+                    }
+                    moves -= 1;
+                    let Some(alt) = r.search(e, true, &closed) else {
+                        stuck[e] = true;
+                        continue;
+                    };
+                    let cj = r.coefs[j]
+                        .iter()
+                        .find(|(k2, _)| *k2 == key)
+                        .map_or(1.0, |&(_, c2)| c2);
+                    let a = r.add(alt);
+                    let m = r.most(a, f.min(need / cj), true);
+                    if m > eps {
+                        r.load(j, -m);
+                        r.load(a, m);
+                        need -= m * cj;
+                    } else {
+                        r.drop_last();
+                        stuck[e] = true;
+                    }
+                }
+            }
+            let push = r.most(i, remaining, false);
+            if push <= eps {
+                // The walk is not the last one when others were moved: it stays at 0.
+                if i + 1 == r.walks.len() {
+                    r.drop_last();
+                }
+                break;
+            }
+            r.load(i, push);
+            remaining -= push;
         }
     }
 }
