@@ -39,7 +39,9 @@
 //! the short demand needs, every row kept within its right-hand side); when that
 //! serves what the parent served, everything at stake, or the bound of the parent's
 //! prices on the new rows (one pricing pass), it is verified with those prices (zero
-//! prices when everything is served), again with no master solve.
+//! prices when everything is served), again with no master solve. Without a parent, every
+//! demand is routed that way from nothing, and zero prices prove it when it serves
+//! everything at stake.
 //!
 //! **Verification** is the layered edge LP's, unchanged: the rows are [`chain::build`]'s
 //! (same groups, same lowered capacities, computed without building the LP), the walks'
@@ -72,7 +74,7 @@ use std::collections::BTreeMap;
 pub use carried::{CarriedWalk, proven_walks};
 use master::Master;
 use rows::{Rows, Skeleton, rows_of, skeleton};
-use start::{reroute, surviving_start};
+use start::{fill, reroute, surviving_start};
 use verify::{verified, with_walks};
 
 use super::chain::{self, EdgeKind};
@@ -198,6 +200,33 @@ fn solve_caps(
             if v.verification.proven {
                 stats.no_flow += 1;
                 return Ok((v, cut_off, Some(s)));
+            }
+        }
+        // Fill: without a parent, every demand is routed as a repair re-routes (`fill`);
+        // when that serves everything at stake, zero prices prove it without a master.
+        // Otherwise the master starts empty (a greedy start there measured slower).
+        if kept.is_none() {
+            let rows = Rows::new(net, view, &layered);
+            let mut walks = Vec::new();
+            fill(&rows, &layered.bound, &mut walks, true);
+            let value: f64 = walks.iter().map(|(_, f)| f).sum();
+            if value >= rows.scale * (1.0 - GAP_TOL) {
+                stats.rounds += 1;
+                let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
+                let s = Solved {
+                    value,
+                    walks,
+                    flow,
+                    arc_price: vec![0.0; net.arcs.len()],
+                    fn_price: BTreeMap::new(),
+                };
+                let x = with_walks(net, &mut layered, &group_of, &s);
+                let rows = Rows::new(net, view, &layered);
+                let v = verified(&rows, &layered, &x, &s);
+                if v.verification.proven {
+                    stats.repaired += 1;
+                    return Ok((v, cut_off, Some(s)));
+                }
             }
         }
         // Repair: the lost flow re-routed (`reroute`, moving other walks aside). When that

@@ -271,14 +271,24 @@ pub(super) fn reroute(
     walks: &mut Vec<(ChainWalk, f64)>,
     rip_up: bool,
 ) {
-    let (net, layered) = (rows.net, rows.layered);
-    let eps = crate::tol::WALK_FLOW_EPS * rows.scale;
-    let mut lost = vec![0.0; net.demands.len()];
+    let mut lost = vec![0.0; rows.net.demands.len()];
     for (w, &f) in start.walks.iter().zip(&start.flow) {
         if rows.group_of[w.demand] != NONE && f > 0.0 && !w.survives(rows.ch, rows.view) {
             lost[w.demand] += f;
         }
     }
+    fill(rows, &lost, walks, rip_up);
+}
+
+/// What [`reroute`] does with the flow lost per demand, for any amounts `wanted` (per
+/// demand in the LP: origin units to add to what `walks` carry, capped by the room of its
+/// cap row): greedy shortest-hop walks through the room the rows have left, then, with
+/// `rip_up`, walks crossing the fewest full rows after moving other walks aside. `walks`
+/// must fit the rows; they still do after. Cost as [`reroute`].
+pub(super) fn fill(rows: &Rows, wanted: &[f64], walks: &mut Vec<(ChainWalk, f64)>, rip_up: bool) {
+    let (net, layered) = (rows.net, rows.layered);
+    let eps = crate::tol::WALK_FLOW_EPS * rows.scale;
+    let lost = wanted;
     if lost.iter().all(|&l| l <= eps) {
         return;
     }
@@ -311,7 +321,7 @@ pub(super) fn reroute(
     };
     let none = vec![false; rows.len()];
     for (d, &amount) in lost.iter().enumerate() {
-        if amount <= eps {
+        if amount <= eps || rows.group_of[d] == NONE {
             continue;
         }
         let mut remaining = amount.min(r.room(RowKey::Demand(d)));
