@@ -362,8 +362,7 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
     // `rest` only decreases, so an edge at or below `eps` stays there), what its sink
     // still absorbs, and its position on the current path (`usize::MAX`: not on it).
     let (mut first, mut order, mut next) = (Vec::new(), Vec::new(), Vec::new());
-    let (mut sink, mut pos): (Vec<f64>, Vec<usize>) = (Vec::new(), Vec::new());
-    let (mut rest, mut path): (Vec<f64>, Vec<usize>) = (Vec::new(), Vec::new());
+    let (mut sink, mut rest, mut pos, mut path) = (vec![], vec![], vec![], Vec::<usize>::new());
     for (g, group) in layered.groups.iter().enumerate() {
         let k = group.chain.len();
         let total: f64 = group.demands.iter().map(|&d| layered.bound[d]).sum();
@@ -608,6 +607,7 @@ pub fn dual_bound(
     }
     let mut dist: Vec<f64> = Vec::new();
     let mut wanted: Vec<bool> = Vec::new();
+    let (mut settled, mut same): (Vec<bool>, Vec<usize>) = (Vec::new(), Vec::new());
     let mut heap = BinaryHeap::new();
     for group in &layered.groups {
         let k = group.chain.len();
@@ -630,35 +630,51 @@ pub fn dual_bound(
         }
         dist[group.origin] = 0.0;
         heap.push(Reverse((Ordered(0.0), group.origin)));
-        while let Some(Reverse((Ordered(dv), node))) = heap.pop() {
-            if dv > dist[node] {
+        settled.clear();
+        settled.resize((k + 1) * n, false);
+        // Nodes reached at the distance being settled through edges of cost exactly 0:
+        // settled next without the heap (their distance `dv + 0` is final already).
+        'search: while let Some(Reverse((Ordered(dv), first))) = heap.pop() {
+            if dv > dist[first] || settled[first] {
                 continue;
             }
             if dv >= 1.0 {
                 break;
             }
-            if wanted[node] {
-                wanted[node] = false;
-                open -= 1;
-                if open == 0 {
-                    break;
+            same.clear();
+            same.push(first);
+            while let Some(node) = same.pop() {
+                if settled[node] {
+                    continue;
                 }
-            }
-            let (j, v) = (node / n, node % n);
-            let mut relax = |to: usize, cost: f64, heap: &mut BinaryHeap<_>| {
-                let nd = dv + cost;
-                if nd < dist[to] {
-                    dist[to] = nd;
-                    heap.push(Reverse((Ordered(nd), to)));
+                settled[node] = true;
+                if wanted[node] {
+                    wanted[node] = false;
+                    open -= 1;
+                    if open == 0 {
+                        break 'search;
+                    }
                 }
-            };
-            for &a in &out[v] {
-                relax(j * n + net.arcs[a].to.0, cum[j] * arc_price[a], &mut heap);
-            }
-            if j < k {
-                let z = fn_at[v * nf + group.chain[j]];
-                if !z.is_nan() {
-                    relax((j + 1) * n + v, cum[j] * z, &mut heap);
+                let (j, v) = (node / n, node % n);
+                let mut relax = |to: usize, cost: f64| {
+                    let nd = dv + cost;
+                    if nd < dist[to] {
+                        dist[to] = nd;
+                        if cost == 0.0 {
+                            same.push(to);
+                        } else {
+                            heap.push(Reverse((Ordered(nd), to)));
+                        }
+                    }
+                };
+                for &a in &out[v] {
+                    relax(j * n + net.arcs[a].to.0, cum[j] * arc_price[a]);
+                }
+                if j < k {
+                    let z = fn_at[v * nf + group.chain[j]];
+                    if !z.is_nan() {
+                        relax((j + 1) * n + v, cum[j] * z);
+                    }
                 }
             }
         }

@@ -108,9 +108,9 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
 
 /// Rip-up attempts per demand still short after the greedy re-routing of [`reroute`]
 /// (each: one fewest-blocked walk, room made on its full rows, one push).
-const RIP_UP_TRIES: usize = 4;
+const RIP_UP_TRIES: usize = 2;
 /// Walks a demand's rip-up tries to move out of the way at most (one search each).
-const RIP_UP_MOVES: usize = 24;
+const RIP_UP_MOVES: usize = 12;
 
 /// What a re-routing works on: the rows' residual room, the walks with their flows and
 /// their row coefficients (kept together, one entry per walk).
