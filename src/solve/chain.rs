@@ -117,7 +117,7 @@ fn servable_with(
 ) -> Vec<std::result::Result<bool, Unservable>> {
     let view = memo.view;
     let n = net.sites.len();
-    let mut cache: BTreeMap<(SiteIdx, Vec<FunctionIdx>), Vec<bool>> = BTreeMap::new();
+    let mut cache: BTreeMap<(SiteIdx, &[FunctionIdx]), Vec<bool>> = BTreeMap::new();
     net.demands
         .iter()
         .enumerate()
@@ -125,7 +125,7 @@ fn servable_with(
             if !view.demand_alive(net, d) || bound[d] <= 0.0 {
                 return Ok(false);
             }
-            let key = (dem.from.0, ch.chain[d].clone());
+            let key = (dem.from.0, &ch.chain[d][..]);
             let reach = cache
                 .entry(key)
                 .or_insert_with(|| forward_with(net, ch, memo, dem.from.0, &ch.chain[d]));

@@ -124,8 +124,15 @@ impl<'a> Rows<'a> {
                 group.cumulative[layer],
             ),
         }));
-        // Stable: a row used twice sums its terms in walk order (into its first term).
-        terms.sort_by_key(|&(key, _)| key);
+        // Stable: a row used twice sums its terms in walk order (into its first term). The
+        // order of `RowKey` as one integer (arcs, then (site, function) pairs by site and
+        // function; no demand row yet), cheaper to compare than the enum.
+        let nf = self.ch.functions.len();
+        terms.sort_by_key(|&(key, _)| match key {
+            RowKey::Arc(a) => a,
+            RowKey::Function(v, f) => self.net.arcs.len() + v * nf + f,
+            RowKey::Demand(_) => usize::MAX,
+        });
         terms.dedup_by(|later, first| {
             let same = later.0 == first.0;
             if same {
