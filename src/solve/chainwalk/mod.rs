@@ -490,6 +490,47 @@ mod tests {
         assert_eq!(w.evaluation.cut_off.len(), 1);
     }
 
+    /// Demand X a→d (10, chain `fw`, `fw` at a) and plain demand Y c→d (10) on a–d (10),
+    /// a–b (10), b–d (10), c–d (5), one-way c→b (10), c–e (5), e–d (5). Hand-worked: the
+    /// baseline serves both (X on a–d; Y 5 on c–d and, of its two-hop walks, first c→b→d).
+    /// Failing a–d leaves X only a→b→d, where Y holds 5 of b–d: the cut into d is b–d 10
+    /// + c–d 5 + e–d 5 = 20, so serving all 20 needs Y's 5 moved onto c–e–d. The re-routing
+    /// moves it (no master solve), and the layered edge LP (the product's other
+    /// formulation) agrees on 20.
+    #[test]
+    fn a_repair_moves_another_demand_aside() {
+        let net = Network::from_json(
+            r#"{"functions":[{"id":"fw","gain":1}],
+            "sites":[{"id":"a","functions":{"fw":100}},{"id":"b"},{"id":"c"},{"id":"d"},
+                     {"id":"e"}],
+            "links":[{"id":"ad","from":"a","to":"d","capacity":10},
+                     {"id":"ab","from":"a","to":"b","capacity":10},
+                     {"id":"bd","from":"b","to":"d","capacity":10},
+                     {"id":"cd","from":"c","to":"d","capacity":5},
+                     {"id":"cb","from":"c","to":"b","capacity":10,"one_way":true},
+                     {"id":"ce","from":"c","to":"e","capacity":5},
+                     {"id":"ed","from":"e","to":"d","capacity":5}],
+            "demands":[{"from":"a","to":"d","volume":10,"chain":["fw"]},
+                       {"from":"c","to":"d","volume":10}]}"#,
+        )
+        .unwrap();
+        let base = evaluate_walks(&net, &Outage::default(), None).unwrap();
+        assert!((base.evaluation.served_required - 20.0).abs() < 1e-9);
+        let ad = Scenario::new(&net, &[Element::Link(0.into())]).outage(&net);
+        let w = evaluate_walks(&net, &ad, Some(&base.basis)).unwrap();
+        let e = &w.evaluation;
+        assert!((e.served_required - 20.0).abs() < 1e-9, "{e:?}");
+        assert!(e.certified_gap() < 1e-9, "{e:?}");
+        assert_eq!(
+            (w.stats.repaired, w.stats.lp_solves, w.stats.fallback),
+            (1, 0, 0),
+            "{:?}",
+            w.stats
+        );
+        let edge = chain::evaluate(&net, &ad).unwrap();
+        assert!((edge.served_required - 20.0).abs() < 1e-6, "{edge:?}");
+    }
+
     /// One-way a→m (100), m→t (8), t→p (100), p→m (100), `f` (gain 0.5) only at p, demand
     /// a→t of 50 with chain [f]. Hand-worked: the only walk a→m→t→p (f) →m→t crosses m→t
     /// before f (F) and after it (0.5·F): 1.5·F <= 8, F = 16/3. The walk's column carries
