@@ -478,7 +478,7 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
     scale_walks(net, ch, layered, &mut walks);
     let mut arc_load = vec![0.0; net.arcs.len()];
     let mut site_load = vec![0.0; net.sites.len()];
-    let mut delivered: BTreeMap<(usize, SiteIdx), f64> = BTreeMap::new();
+    let mut delivered = vec![0.0; layered.groups.len() * n];
     for w in &walks {
         let cum = &layered.groups[w.group].cumulative;
         for e in &w.edges {
@@ -487,7 +487,7 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
                 EdgeKind::Function { site, layer } => site_load[site] += w.flow * cum[layer],
             }
         }
-        *delivered.entry((w.group, w.dest)).or_default() += w.flow;
+        delivered[w.group * n + w.dest] += w.flow;
     }
     let mut demand_flow = vec![0.0; net.demands.len()];
     for (g, group) in layered.groups.iter().enumerate() {
@@ -496,7 +496,7 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
             by_dest.entry(net.demands[d].to.0).or_default().push(d);
         }
         for (t, ds) in by_dest {
-            let got = delivered.get(&(g, t)).copied().unwrap_or(0.0);
+            let got = delivered[g * n + t];
             let lp: f64 = ds.iter().map(|&d| lp_flow[d]).sum();
             if lp <= 0.0 {
                 continue;
@@ -524,7 +524,9 @@ pub fn repair(net: &Network, layered: &Layered, x: &[f64]) -> (verify::Repaired,
 /// and functions it uses. O(Σ walk lengths).
 fn scale_walks(net: &Network, ch: &Chains, layered: &Layered, walks: &mut [LayeredWalk]) {
     let mut arc_load = vec![0.0; net.arcs.len()];
-    let mut fn_load: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
+    // Per `site · functions + function`: its load (a dense table, same sums in walk order).
+    let nf = ch.functions.len();
+    let mut fn_load = vec![0.0; net.sites.len() * nf];
     let function_at = |g: usize, layer: usize| layered.groups[g].chain[layer];
     for w in walks.iter() {
         let cum = &layered.groups[w.group].cumulative;
@@ -532,9 +534,7 @@ fn scale_walks(net: &Network, ch: &Chains, layered: &Layered, walks: &mut [Layer
             match *e {
                 EdgeKind::Arc { arc, layer } => arc_load[arc] += w.flow * cum[layer],
                 EdgeKind::Function { site, layer } => {
-                    *fn_load
-                        .entry((site, function_at(w.group, layer)))
-                        .or_default() += w.flow * cum[layer]
+                    fn_load[site * nf + function_at(w.group, layer)] += w.flow * cum[layer]
                 }
             }
         }
@@ -553,7 +553,7 @@ fn scale_walks(net: &Network, ch: &Chains, layered: &Layered, walks: &mut [Layer
                 EdgeKind::Arc { arc, .. } => over(arc_load[arc], net.arcs[arc].capacity),
                 EdgeKind::Function { site, layer } => {
                     let f = function_at(w.group, layer);
-                    over(fn_load[&(site, f)], ch.capacity[site][f])
+                    over(fn_load[site * nf + f], ch.capacity[site][f])
                 }
             };
             worst = worst.max(o);

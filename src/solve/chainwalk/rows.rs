@@ -116,32 +116,45 @@ impl<'a> Rows<'a> {
     /// demand's cap row), in row-key order. O(walk length · log).
     pub(super) fn coefficients(&self, w: &ChainWalk) -> Vec<(RowKey, f64)> {
         let group = &self.layered.groups[self.group_of[w.demand]];
-        let mut terms: Vec<(RowKey, f64)> = Vec::with_capacity(w.edges.len() + 1);
-        terms.extend(w.edges.iter().map(|e| match *e {
-            EdgeKind::Arc { arc, layer } => (RowKey::Arc(arc), group.cumulative[layer]),
-            EdgeKind::Function { site, layer } => (
-                RowKey::Function(site, group.chain[layer]),
-                group.cumulative[layer],
-            ),
-        }));
-        // Stable: a row used twice sums its terms in walk order (into its first term). The
-        // order of `RowKey` as one integer (arcs, then (site, function) pairs by site and
-        // function; no demand row yet), cheaper to compare than the enum.
-        let nf = self.ch.functions.len();
-        terms.sort_by_key(|&(key, _)| match key {
-            RowKey::Arc(a) => a,
-            RowKey::Function(v, f) => self.net.arcs.len() + v * nf + f,
-            RowKey::Demand(_) => usize::MAX,
-        });
+        let (arcs, nf) = (self.net.arcs.len(), self.ch.functions.len());
+        // Each term keyed by its row as one integer in `RowKey` order (arcs, then (site,
+        // function) pairs by site and function), then its position in the walk: sorting
+        // the keys (distinct) orders the rows as `RowKey` does and a row used twice in walk
+        // order, which its terms are summed in (into the first).
+        let mut terms: Vec<(u64, f64)> = w
+            .edges
+            .iter()
+            .enumerate()
+            .map(|(pos, e)| {
+                let (row, layer) = match *e {
+                    EdgeKind::Arc { arc, layer } => (arc, layer),
+                    EdgeKind::Function { site, layer } => {
+                        (arcs + site * nf + group.chain[layer], layer)
+                    }
+                };
+                (((row as u64) << 24) | pos as u64, group.cumulative[layer])
+            })
+            .collect();
+        terms.sort_unstable_by_key(|t| t.0);
         terms.dedup_by(|later, first| {
-            let same = later.0 == first.0;
+            let same = later.0 >> 24 == first.0 >> 24;
             if same {
                 first.1 += later.1;
             }
             same
         });
-        terms.push((RowKey::Demand(w.demand), 1.0));
-        terms
+        let mut out: Vec<(RowKey, f64)> = Vec::with_capacity(terms.len() + 1);
+        out.extend(terms.into_iter().map(|(key, c)| {
+            let row = (key >> 24) as usize;
+            let key = if row < arcs {
+                RowKey::Arc(row)
+            } else {
+                RowKey::Function((row - arcs) / nf, (row - arcs) % nf)
+            };
+            (key, c)
+        }));
+        out.push((RowKey::Demand(w.demand), 1.0));
+        out
     }
 
     /// The right-hand side of a row: the edge LP's (lowered) capacity, or the cap.
