@@ -493,9 +493,9 @@ mod tests {
     /// Demand X a→d (10, chain `fw`, `fw` at a) and plain demand Y c→d (10) on a–d (10),
     /// a–b (10), b–d (10), c–d (5), one-way c→b (10), c–e (5), e–d (5). Hand-worked: the
     /// baseline serves both (X on a–d; Y 5 on c–d and, of its two-hop walks, first c→b→d).
-    /// Failing a–d leaves X only a→b→d, where Y holds 5 of b–d: the cut into d is b–d 10
-    /// + c–d 5 + e–d 5 = 20, so serving all 20 needs Y's 5 moved onto c–e–d. The re-routing
-    /// moves it (no master solve), and the layered edge LP (the product's other
+    /// Failing a–d leaves X only a→b→d, where Y holds 5 of b–d: the cut into d is 10 (b–d)
+    /// plus 5 (c–d) plus 5 (e–d) = 20, so serving all 20 needs Y's 5 moved onto c–e–d. The
+    /// re-routing moves it (no master solve), and the layered edge LP (the product's other
     /// formulation) agrees on 20.
     #[test]
     fn a_repair_moves_another_demand_aside() {
