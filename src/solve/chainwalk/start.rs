@@ -120,7 +120,8 @@ struct Routing<'r, 'a> {
     res: Vec<f64>,
     walks: &'r mut Vec<(ChainWalk, f64)>,
     coefs: Vec<Vec<(RowKey, f64)>>,
-    /// Per dense row index: the walks through it, ascending.
+    /// Per dense row index: the walks through it, ascending (kept for rip-ups only: empty
+    /// without them).
     through: Vec<Vec<usize>>,
     eps: f64,
     /// Buffers of [`Routing::search`]: per layered node its predecessor edge and distance,
@@ -151,7 +152,9 @@ impl Routing<'_, '_> {
     fn drop_last(&mut self) {
         self.walks.pop();
         for &(key, _) in &self.coefs.pop().unwrap_or_default() {
-            self.through[self.rows.index(key)].pop();
+            if let Some(t) = self.through.get_mut(self.rows.index(key)) {
+                t.pop();
+            }
         }
     }
 
@@ -159,7 +162,9 @@ impl Routing<'_, '_> {
     fn add(&mut self, w: ChainWalk) -> usize {
         let cs = self.rows.coefficients(&w);
         for &(key, _) in &cs {
-            self.through[self.rows.index(key)].push(self.walks.len());
+            if let Some(t) = self.through.get_mut(self.rows.index(key)) {
+                t.push(self.walks.len());
+            }
         }
         self.coefs.push(cs);
         self.walks.push((w, 0.0));
@@ -303,11 +308,13 @@ pub(super) fn fill(rows: &Rows, wanted: &[f64], walks: &mut Vec<(ChainWalk, f64)
         res[rows.index(RowKey::Demand(d))] = layered.bound[d];
     }
     let coefs: Vec<Vec<(RowKey, f64)>> = walks.iter().map(|(w, _)| rows.coefficients(w)).collect();
-    let mut through = vec![Vec::new(); rows.len()];
+    let mut through = vec![Vec::new(); if rip_up { rows.len() } else { 0 }];
     for (j, (cs, (_, f))) in coefs.iter().zip(walks.iter()).enumerate() {
         for &(key, c) in cs {
             res[rows.index(key)] -= c * f;
-            through[rows.index(key)].push(j);
+            if let Some(t) = through.get_mut(rows.index(key)) {
+                t.push(j);
+            }
         }
     }
     let mut r = Routing {
