@@ -34,6 +34,9 @@ use crate::tol::SIMPLEX_DRIFT_TOL;
 /// the limit); past it a solve errors and the caller uses another backend.
 pub const COUPLING_ROWS: usize = 5000;
 
+/// Variables scanned per segment of partial pricing (at least).
+const SEGMENT: usize = 256;
+
 const NONE: usize = usize::MAX;
 
 /// A variable: a column, the slack of a coupling row, or the slack of a set row.
@@ -82,6 +85,12 @@ pub struct Gub {
     set_slack_pos: Vec<Pos>,
     key: Vec<Var>,
     u: Vec<f64>,
+    /// `u[d]` is current when `u_stamp[d] == stamp`; `stamp` moves with every change of
+    /// `y` or of a key, so a pivot costs nothing for the sets pricing does not reach.
+    u_stamp: Vec<u64>,
+    stamp: u64,
+    /// Where partial pricing resumes (an index into columns, coupling slacks, set slacks).
+    cursor: usize,
     /// Columns: coupling entries (coupling index, coefficient), set (or `NONE`).
     cols: Vec<Vec<(usize, f64)>>,
     set: Vec<usize>,
@@ -143,7 +152,9 @@ impl Gub {
         self.set_slack.push(rhs);
         self.set_slack_pos.push(Pos::Key);
         self.key.push(Var::SetSlack(d));
+        // Its key is its slack (cost 0, no coupling entry): u = 0 is current.
         self.u.push(0.0);
+        self.u_stamp.push(self.stamp);
         self.rows.push(Row::Set(d));
         self.rows.len() - 1
     }
@@ -387,23 +398,34 @@ impl Gub {
         self.set_duals();
     }
 
-    /// `u_d = c_key(d) − a_key(d)·y` for every set. O(key entries).
+    /// `u_d = c_key(d) − a_key(d)·y` for every set, all current. O(key entries).
     fn set_duals(&mut self) {
+        self.stamp += 1;
         for d in 0..self.u.len() {
+            self.set_dual(d);
+        }
+    }
+
+    /// `u_d = c_key(d) − a_key(d)·y` (any basic member of the set gives the same value),
+    /// computed when stale. O(key entries).
+    fn set_dual(&mut self, d: usize) -> f64 {
+        if self.u_stamp[d] != self.stamp {
             let k = self.key[d];
             let mut v = self.cost(k);
             self.for_coupling(k, |i, a| v -= a * self.y[i]);
             self.u[d] = v;
+            self.u_stamp[d] = self.stamp;
         }
+        self.u[d]
     }
 
-    /// The reduced cost of a nonbasic variable: `c_v − y·a_v − u_set(v)`.
-    fn reduced(&self, v: Var) -> f64 {
+    /// The reduced cost of a nonbasic variable: `c_v − y·a_v − u_set(v)`. O(entries).
+    fn reduced(&mut self, v: Var) -> f64 {
         let mut r = self.cost(v);
         self.for_coupling(v, |i, a| r -= a * self.y[i]);
         let d = self.set_of(v);
         if d != NONE {
-            r -= self.u[d];
+            r -= self.set_dual(d);
         }
         r
     }
@@ -680,7 +702,7 @@ impl Gub {
                             self.y[r] += dq * b;
                         }
                     }
-                    self.set_duals();
+                    self.stamp += 1;
                 }
                 Leave::Key(d) => {
                     // Another working member of d becomes the key; the old key takes
@@ -718,8 +740,8 @@ impl Gub {
                         self.set_pos(q, Pos::Key);
                     }
                     self.set_pos(out, Pos::Nonbasic);
-                    // Any basic member v of a set gives u_d = c_v − a_v·y.
-                    self.set_duals();
+                    // Any basic member v of a set gives u_d = c_v − a_v·y (`set_dual`).
+                    self.stamp += 1;
                 }
                 Leave::Flip => unreachable!("handled above"),
             }
@@ -734,37 +756,71 @@ impl Gub {
         }
     }
 
-    /// The entering variable and its reduced cost: Dantzig's choice (largest |d|, lowest
-    /// index on ties) or, with `bland`, the lowest eligible index. O(nonzeros).
-    fn entering(&self, bland: bool) -> Option<(Var, f64)> {
+    /// The variable at index `k` of the pricing order: columns, coupling slacks, set
+    /// slacks.
+    fn var_at(&self, k: usize) -> Var {
+        let (n, m) = (self.cols.len(), self.rhs.len());
+        if k < n {
+            Var::Col(k)
+        } else if k < n + m {
+            Var::Slack(k - n)
+        } else {
+            Var::SetSlack(k - n - m)
+        }
+    }
+
+    /// The reduced cost of `v` when it is nonbasic and may move that way by more than
+    /// [`DUAL_TOL`] of reduced cost, else `None`.
+    fn eligible(&mut self, v: Var) -> Option<f64> {
+        let basic = match v {
+            Var::Col(j) => self.col_pos[j] != Pos::Nonbasic,
+            Var::Slack(i) => self.slack_pos[i] != Pos::Nonbasic,
+            Var::SetSlack(d) => self.set_slack_pos[d] != Pos::Nonbasic,
+        };
+        if basic {
+            return None;
+        }
+        let (l, u) = self.bounds(v);
+        let x = self.get(v);
+        if x >= u && x <= l {
+            return None;
+        }
+        let d = self.reduced(v);
+        ((d > DUAL_TOL && x < u) || (d < -DUAL_TOL && x > l)).then_some(d)
+    }
+
+    /// The entering variable and its reduced cost. With `bland`, the lowest eligible
+    /// index (Bland's rule, full scan). Otherwise partial Dantzig pricing: from where the
+    /// last search stopped, segments of [`SEGMENT`] variables (or a sixteenth of them, if
+    /// more) are scanned in turn and the first segment holding an eligible variable gives
+    /// its largest |d| (the first scanned on ties); `None` only after a whole cycle finds none,
+    /// so optimality is still decided over every variable. O(entries scanned).
+    fn entering(&mut self, bland: bool) -> Option<(Var, f64)> {
+        let total = self.cols.len() + self.rhs.len() + self.set_rhs.len();
+        if bland {
+            return (0..total).find_map(|k| {
+                let v = self.var_at(k);
+                self.eligible(v).map(|d| (v, d))
+            });
+        }
+        let segment = SEGMENT.max(total / 16);
         let mut best: Option<(Var, f64)> = None;
-        let cols = (0..self.cols.len())
-            .filter(|&j| self.col_pos[j] == Pos::Nonbasic)
-            .map(Var::Col);
-        let slacks = (0..self.rhs.len())
-            .filter(|&i| self.slack_pos[i] == Pos::Nonbasic)
-            .map(Var::Slack);
-        let set_slacks = (0..self.set_rhs.len())
-            .filter(|&d| self.set_slack_pos[d] == Pos::Nonbasic)
-            .map(Var::SetSlack);
-        for v in cols.chain(slacks).chain(set_slacks) {
-            let (l, u) = self.bounds(v);
-            let x = self.get(v);
-            if x >= u && x <= l {
-                continue;
-            }
-            let d = self.reduced(v);
-            let ok = (d > DUAL_TOL && x < u) || (d < -DUAL_TOL && x > l);
-            if !ok {
-                continue;
-            }
-            if bland {
-                return Some((v, d));
-            }
-            if best.is_none_or(|(_, bd)| d.abs() > bd.abs()) {
+        let mut scanned = 0;
+        let mut k = if self.cursor < total { self.cursor } else { 0 };
+        while scanned < total {
+            let v = self.var_at(k);
+            if let Some(d) = self.eligible(v)
+                && best.is_none_or(|(_, bd)| d.abs() > bd.abs())
+            {
                 best = Some((v, d));
             }
+            scanned += 1;
+            k = if k + 1 == total { 0 } else { k + 1 };
+            if best.is_some() && scanned % segment == 0 {
+                break;
+            }
         }
+        self.cursor = k;
         best
     }
 }
