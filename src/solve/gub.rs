@@ -325,28 +325,29 @@ impl Gub {
                 }
             }
         }
-        keys.sort_by_key(|&(d, _)| d);
-        let mut merged: Vec<(usize, f64)> = Vec::with_capacity(keys.len());
-        for (d, a) in keys {
-            match merged.last_mut() {
-                Some((e, b)) if *e == d => *b += a,
-                _ => merged.push((d, a)),
-            }
-        }
-        (alpha, merged)
+        (alpha, merge_by_set(keys))
     }
 
-    /// The direction of the basic variables for entering variable `q`: `B⁻¹ a_q`.
+    /// The direction of the basic variables for entering variable `q`: `B⁻¹ a_q`, its
+    /// working part `W⁻¹ (a_q − a_key)` from the cancelled column of [`Gub::w_column`].
+    /// O(m₁ · entries).
     fn ftran_var(&self, q: Var) -> (Vec<f64>, Vec<(usize, f64)>) {
-        let mut r1: Vec<(usize, f64)> = Vec::new();
-        self.for_coupling(q, |i, a| r1.push((i, a)));
+        let alpha = self.solve_w(&self.w_column(q));
         let d = self.set_of(q);
-        let r2: Vec<(usize, f64)> = if d == NONE {
+        let mut keys: Vec<(usize, f64)> = if d == NONE {
             Vec::new()
         } else {
             vec![(d, 1.0)]
         };
-        self.ftran(&r1, &r2)
+        for (p, &a) in alpha.iter().enumerate() {
+            if a != 0.0 {
+                let e = self.set_of(self.work[p]);
+                if e != NONE {
+                    keys.push((e, -a));
+                }
+            }
+        }
+        (alpha, merge_by_set(keys))
     }
 
     /// Adds `t` times the direction (`alpha`, `keys`) to the basic variables.
@@ -365,7 +366,9 @@ impl Gub {
         }
     }
 
-    /// The working basis column of `v` (sparse, repeated indices add).
+    /// The working basis column of `v`, `a_v − a_key(set)`, sorted by row with the rows
+    /// the two share cancelled (walks of one demand share most of their arcs, so this
+    /// is often far shorter than the two together). O(entries · log entries).
     fn w_column(&self, v: Var) -> Vec<(usize, f64)> {
         let mut c: Vec<(usize, f64)> = Vec::new();
         self.for_coupling(v, |i, a| c.push((i, a)));
@@ -373,7 +376,16 @@ impl Gub {
         if d != NONE {
             self.for_coupling(self.key[d], |i, a| c.push((i, -a)));
         }
-        c
+        c.sort_by_key(|&(i, _)| i);
+        let mut merged: Vec<(usize, f64)> = Vec::with_capacity(c.len());
+        for (i, a) in c {
+            match merged.last_mut() {
+                Some((k, b)) if *k == i => *b += a,
+                _ => merged.push((i, a)),
+            }
+        }
+        merged.retain(|&(_, a)| a != 0.0);
+        merged
     }
 
     /// Recomputes the duals `y = W⁻ᵀ (c_W − c_key)` and `u_d = c_key(d) − a_key(d)·y`.
@@ -823,6 +835,19 @@ impl Gub {
         self.cursor = k;
         best
     }
+}
+
+/// `(set, entry)` pairs sorted by set, entries of one set summed. O(n log n).
+fn merge_by_set(mut keys: Vec<(usize, f64)>) -> Vec<(usize, f64)> {
+    keys.sort_by_key(|&(d, _)| d);
+    let mut merged: Vec<(usize, f64)> = Vec::with_capacity(keys.len());
+    for (d, a) in keys {
+        match merged.last_mut() {
+            Some((e, b)) if *e == d => *b += a,
+            _ => merged.push((d, a)),
+        }
+    }
+    merged
 }
 
 /// A fixed order of variables for Bland's rule: columns, coupling slacks, set slacks.
