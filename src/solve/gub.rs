@@ -127,21 +127,64 @@ impl Gub {
     /// Adds the empty coupling row `0 ≤ rhs` (no existing column has an entry in it); its
     /// slack joins the working basis at `rhs`. O(m₁). Returns the row's index.
     pub fn add_row(&mut self, rhs: f64) -> usize {
+        self.add_row_with(rhs, &[])
+    }
+
+    /// Adds the coupling row `Σ a·x ≤ rhs` whose coefficients on existing columns are
+    /// `entries` (column, coefficient); its slack
+    /// joins the working basis at `rhs − Σ a·x`. `W` gains a row `r` (each working
+    /// column's `a_v[i] − a_key[i]`): `W'⁻¹ = [W⁻¹ 0; −r W⁻¹ 1]`, and the duals are
+    /// unchanged (the new slack costs 0). O(m₁ · (m₁ + entries)). Returns the row's index.
+    pub fn add_row_with(&mut self, rhs: f64, entries: &[(usize, f64)]) -> usize {
         let i = self.rhs.len();
-        // W' = [W 0; 0 1] ⇒ W'⁻¹ = [W⁻¹ 0; 0 1].
+        let mut lhs = 0.0;
+        let mut coef = vec![0.0; self.cols.len()];
+        for &(j, a) in entries {
+            self.cols[j].push((i, a));
+            coef[j] += a;
+            lhs += a * self.x[j];
+        }
+        let row_of = |v: Var| match v {
+            Var::Col(j) => coef[j],
+            _ => 0.0,
+        };
+        // r_p = a_v[i] − a_key(set v)[i] for the working variable v at position p.
+        let r: Vec<(usize, f64)> = self
+            .work
+            .iter()
+            .enumerate()
+            .filter_map(|(p, &v)| {
+                let d = self.set_of(v);
+                let key = if d == NONE { 0.0 } else { row_of(self.key[d]) };
+                let e = row_of(v) - key;
+                (e != 0.0).then_some((p, e))
+            })
+            .collect();
         for col in &mut self.winv {
-            col.push(0.0);
+            let v: f64 = r.iter().map(|&(p, e)| e * col[p]).sum();
+            col.push(-v);
         }
         let mut unit = vec![0.0; i + 1];
         unit[i] = 1.0;
         self.winv.push(unit);
         self.rhs.push(rhs);
-        self.slack.push(rhs);
+        self.slack.push(rhs - lhs);
         self.slack_pos.push(Pos::Work(i));
         self.work.push(Var::Slack(i));
         self.y.push(0.0);
         self.rows.push(Row::Coupling(i));
         self.rows.len() - 1
+    }
+
+    /// Replaces the objective (one coefficient per column, in column order; columns past
+    /// `obj` get 0) and recomputes the duals and basic values from `W⁻¹`; the basis and
+    /// point are kept, so the next [`Gub::solve`] starts from the last vertex. O(m₁² +
+    /// nonzeros).
+    pub fn set_objective(&mut self, obj: &[f64]) {
+        for (j, c) in self.obj.iter_mut().enumerate() {
+            *c = obj.get(j).copied().unwrap_or(0.0);
+        }
+        self.refresh();
     }
 
     /// Adds the empty set row `0 ≤ rhs`; its slack is the set's key at `rhs`. O(1).

@@ -201,3 +201,84 @@ fn columns_outside_gub_form_are_refused() {
     s.add_col(1.0, 0.0, f64::INFINITY, 0.0, vec![(a, 2.0)]);
     assert!(s.solve(100).is_err());
 }
+
+/// The plan master's use (against microlp, as above): after a first optimum, a coupling
+/// row over existing columns (some basic) is added with its right-hand side at or above
+/// the current point's left-hand side (so the basis stays feasible), the LP re-solved;
+/// then the objective is replaced and the LP re-solved from the kept basis. Same optimum
+/// as microlp on the final LP each time, duals feasible and meeting the primal value.
+#[test]
+fn rows_over_existing_columns_and_new_objectives_match_microlp() {
+    let mut seed: u64 = 0x90a1;
+    let mut next = move |n: u64| {
+        seed = seed
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        (seed >> 33) % n
+    };
+    for case in 0..200 {
+        let mut c = random_case(&mut next);
+        let (m, g, n) = (c.rhs.len(), c.set_rhs.len(), c.cols.len());
+        let mut s = Gub::new();
+        let set_row: Vec<usize> = (0..g).map(|d| s.add_set_row(c.set_rhs[d])).collect();
+        let mut row_of: Vec<usize> = (0..m).map(|i| s.add_row(c.rhs[i])).collect();
+        for (j, (set, e)) in c.cols.iter().enumerate() {
+            let mut v: Vec<(usize, f64)> = e.iter().map(|&(i, a)| (row_of[i], a)).collect();
+            if *set != NONE {
+                v.push((set_row[*set], 1.0));
+            }
+            s.add_col(c.obj[j], 0.0, f64::INFINITY, 0.0, v);
+        }
+        s.solve(10_000).unwrap();
+        // A new coupling row over random columns, not violated at the current point.
+        let mut entries: Vec<(usize, f64)> = Vec::new();
+        for j in 0..n {
+            if next(2) == 0 {
+                entries.push((j, (1 + next(3)) as f64));
+            }
+        }
+        let lhs: f64 = entries.iter().map(|&(j, a)| a * s.value(j)).sum();
+        let rhs = lhs + next(3) as f64 / 2.0;
+        row_of.push(s.add_row_with(rhs, &entries));
+        for &(j, a) in &entries {
+            c.cols[j].1.push((m, a));
+        }
+        c.rhs.push(rhs);
+        let check = |s: &Gub, c: &Case, what: &str| {
+            let lp = reference_lp(c, &c.rhs, &c.set_rhs);
+            let reference = crate::solve::lp::Simplex.solve(&lp).unwrap();
+            let v = s.objective();
+            let tol = 1e-9 * v.abs().max(1.0);
+            assert!(
+                (v - reference.objective).abs() <= tol,
+                "case {case} {what}: {v} vs microlp {}",
+                reference.objective
+            );
+            let dual: f64 = (0..c.rhs.len())
+                .map(|i| c.rhs[i] * s.dual(row_of[i]))
+                .sum::<f64>()
+                + (0..g)
+                    .map(|d| c.set_rhs[d] * s.dual(set_row[d]))
+                    .sum::<f64>();
+            assert!(
+                (dual - v).abs() <= tol,
+                "case {case} {what}: dual {dual} vs {v}"
+            );
+            for (j, (set, e)) in c.cols.iter().enumerate() {
+                let mut priced: f64 = e.iter().map(|&(i, a)| a * s.dual(row_of[i])).sum();
+                if *set != NONE {
+                    priced += s.dual(set_row[*set]);
+                }
+                assert!(priced >= c.obj[j] - 1e-9, "case {case} {what}: column {j}");
+            }
+            let x: Vec<f64> = (0..n).map(|j| s.value(j)).collect();
+            assert!(lp.max_violation(&x) < 1e-9, "case {case} {what}");
+        };
+        s.solve(10_000).unwrap();
+        check(&s, &c, "new row");
+        c.obj = (0..n).map(|_| next(5) as f64).collect();
+        s.set_objective(&c.obj);
+        s.solve(10_000).unwrap();
+        check(&s, &c, "new objective");
+    }
+}
