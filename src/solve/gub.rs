@@ -124,6 +124,11 @@ impl Gub {
         self.cols.len()
     }
 
+    /// Rows other than set rows (the size of the working basis).
+    pub fn coupling_rows(&self) -> usize {
+        self.rhs.len()
+    }
+
     /// Adds the empty coupling row `0 ≤ rhs` (no existing column has an entry in it); its
     /// slack joins the working basis at `rhs`. O(m₁). Returns the row's index.
     pub fn add_row(&mut self, rhs: f64) -> usize {
