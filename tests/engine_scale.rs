@@ -151,3 +151,72 @@ fn walks_match_the_edge_lp_on_every_double() {
         assert_eq!(s["verification"]["status"], "proven", "{}", key(s));
     }
 }
+
+/// A processing-bound network whose walk masters are past the dense simplex's rows
+/// (`colgen::WARM_ROWS`), so the walk engine solves them on the GUB simplex (demand rows
+/// kept out of its inverse): 40 sites, 70 links, 3,000 demands, processing 150 at every
+/// fourth site (1,500 in all against about 13,500 required), so every demand stays in
+/// the masters (140 arcs + 10 sites + 3,000 demand rows). Every single failure of a link
+/// or site through `--engine walks` against `--engine edge` (the edge LP on clarabel, an
+/// independent formulation and solver): the same served and throughput per scenario,
+/// each proven.
+#[test]
+#[ignore = "slow tier: cargo test --release -- --ignored"]
+fn large_masters_match_the_edge_lp() {
+    let text =
+        common::random::random_network(77, 40, 70, 3000, |i, _| if i % 4 == 0 { 150 } else { 0 });
+    let doc: Value = serde_json::from_str(&text).unwrap();
+    let rows = 2 * doc["links"].as_array().unwrap().len() + 10 + 3000;
+    assert!(
+        rows > redoubt::solve::colgen::WARM_ROWS,
+        "{rows} rows: the dense simplex would take it"
+    );
+    let file = TempPath::with_text("large-masters", &text);
+    let mut results = Vec::new();
+    for engine in ["walks", "edge"] {
+        let out = TempPath::new("large-masters-out", "json");
+        let run = redoubt(&[
+            "audit",
+            file.path(),
+            "--depth",
+            "1",
+            "--kinds",
+            "links,sites",
+            "--engine",
+            engine,
+            "--quiet",
+            "--json",
+            out.path(),
+        ]);
+        assert!(run.code <= 1, "{engine}: {}", run.stderr);
+        results.push(out.read_json());
+    }
+    let key = |s: &Value| s["failed"].to_string();
+    let edge: std::collections::HashMap<String, &Value> = results[1]["scenarios"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|s| (key(s), s))
+        .collect();
+    let walks = results[0]["scenarios"].as_array().unwrap();
+    assert_eq!(walks.len(), 1 + 70 + 40, "baseline, every link and site");
+    let total: f64 = results[0]["scenarios"][0]["required"]
+        .as_f64()
+        .unwrap_or(1.0);
+    let mut short = 0;
+    for s in walks {
+        let e = edge[&key(s)];
+        for field in ["served_required", "throughput"] {
+            let (a, b) = (s[field].as_f64().unwrap(), e[field].as_f64().unwrap());
+            assert!(
+                (a - b).abs() <= 1e-7 * total.max(1.0),
+                "{} {field}: walks {a}, edge {b}",
+                key(s)
+            );
+        }
+        assert_eq!(s["verification"]["status"], "proven", "{}", key(s));
+        short += usize::from(s["shortfall"].as_f64().unwrap_or(0.0) > 0.0);
+    }
+    // Processing-bound: the masters hold every demand because every scenario is short.
+    assert_eq!(short, walks.len(), "every scenario short");
+}

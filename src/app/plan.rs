@@ -61,7 +61,7 @@ pub(super) fn run(args: &PlanOptions, out: &mut dyn Write, err: &mut dyn Write) 
             err,
             plan.master.interior_point_solves,
             plan.master.solves,
-            crate::solve::colgen::WARM_ROWS,
+            crate::solve::gub::COUPLING_ROWS,
         ));
     }
     let doc = PlanReport {

@@ -322,7 +322,8 @@ fn held_walks(
 /// Size: per active outage, rows for its usable arcs, processing sites and demands, and
 /// the walk columns generation adds (no sources × arcs variables). Cost: two to four
 /// column generations, each a few warm simplex re-optimisations (interior-point solves of
-/// the whole master past [`crate::solve::colgen::WARM_ROWS`] rows) plus one walk pricing
+/// the whole master past [`crate::solve::gub::COUPLING_ROWS`] rows besides its demand
+/// rows) plus one walk pricing
 /// pass per outage per round.
 fn solve_master_walks(input: &MasterInput<'_>, goal: Goal) -> Result<MasterResult> {
     let (net, audit, active) = (input.net, input.audit, input.active);

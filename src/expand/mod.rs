@@ -65,10 +65,11 @@ pub enum Goal {
 pub enum Master {
     /// Column generation over processing walks, one block of rows per outage
     /// ([`crate::solve::colgen::plan`]): what `redoubt plan` uses. Its rounds and
-    /// lexicographic phases are solved by the warm bounded simplex (a vertex, rows met to
-    /// rounding, so its plans are the edge master's); a master past the simplex's size
-    /// limit ([`crate::solve::colgen::WARM_ROWS`] rows, e.g. thousands of demands per
-    /// outage) goes to the interior-point backend instead, whose rows hold only to about
+    /// lexicographic phases are solved by the warm GUB simplex (a vertex, rows met to
+    /// rounding, so its plans are the edge master's; demand rows kept out of its inverse);
+    /// a master past the simplex's size limit ([`crate::solve::gub::COUPLING_ROWS`] rows
+    /// besides the demand rows, e.g. thousands of outages at once) goes to the
+    /// interior-point backend instead, whose rows hold only to about
     /// 1e-7 of their magnitude (as the edge master's).
     Walks,
     /// One edge flow-model copy (sources × arcs variables) per outage, solved by the
@@ -96,7 +97,8 @@ pub struct MasterStats {
     /// Restricted-master LP solves (one per column-generation round).
     pub solves: usize,
     /// Of them, cold interior-point solves: the master outgrew the exact warm simplex
-    /// ([`crate::solve::colgen::WARM_ROWS`] rows), so its rows hold only to about 1e-7 of
+    /// ([`crate::solve::gub::COUPLING_ROWS`] rows besides its demand rows), so its rows
+    /// hold only to about 1e-7 of
     /// its magnitude (the plan is verified on every scenario all the same).
     pub interior_point_solves: usize,
 }

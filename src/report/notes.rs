@@ -118,7 +118,8 @@ pub fn note_plan_interior_point(
 ) -> io::Result<()> {
     writeln!(
         w,
-        "redoubt: note: the plan's master outgrew the exact simplex ({rows} rows), so {interior} \
+        "redoubt: note: the plan's master outgrew the exact simplex ({rows} rows besides its \
+         demand rows), so {interior} \
          of its {solves} solves went to the interior-point solver (slower; its rows hold to \
          about 1e-7); the plan is still checked on every scenario"
     )

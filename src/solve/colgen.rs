@@ -36,8 +36,10 @@
 //!
 //! Master LPs are solved by the warm simplex of [`super::simplex`] (kept between rounds,
 //! restricted to the demands a failure touches; see `WarmMaster`), or, above
-//! [`WARM_ROWS`] rows, by [`super::lp::solve`] (the interior-point backend, cold), or with
-//! the `highs` feature by one HiGHS instance kept between rounds (`generate_large`).
+//! [`WARM_ROWS`] rows, by the warm GUB simplex of [`super::gub`] (demand rows kept out of
+//! its inverse), or with the `highs` feature by one HiGHS instance kept between rounds
+//! (`generate_large`); [`super::lp::solve`] (the interior-point backend, cold) takes what
+//! those give up.
 //! Parallel links of one direction are one arc (a class) for pricing, repair and masters,
 //! and the flow is split back per link before verification (`Graph::split`).
 //!
@@ -323,9 +325,11 @@ fn warm_master<'a, 'g, L: MasterLp>(
 
 /// Column generation for a master above [`WARM_ROWS`] rows (the warm simplex's dense
 /// inverse would not fit): with the `highs` feature a [`WarmMaster`] on one HiGHS instance
-/// re-solved from its basis each round (the cold master when HiGHS fails; unless
-/// `highs::set_enabled` turned it off), else the cold
-/// interior-point master ([`generate_cold`]). Same arguments and result as [`generate`].
+/// re-solved from its basis each round (unless `highs::set_enabled` turned it off), else
+/// a [`WarmMaster`] on the GUB simplex ([`crate::solve::gub::Gub`]: its inverse spans the
+/// arc and site rows only, whatever the number of demands); the cold interior-point
+/// master ([`generate_cold`]) when either gives up. Same arguments and result as
+/// [`generate`].
 fn generate_large(
     g: &Graph,
     caps: &[f64],
@@ -343,8 +347,12 @@ fn generate_large(
             Warm::Abandon(walks) => generate_cold(g, caps, walks, stats),
         };
     }
-    let _ = (flow, active);
-    generate_cold(g, caps, start, stats)
+    let m = warm_master(g, caps, start, flow, active, crate::solve::gub::Gub::new());
+    match m.run(stats)? {
+        Warm::Done(s) => Ok(Some(s)),
+        Warm::Stalled => Ok(None),
+        Warm::Abandon(walks) => generate_cold(g, caps, walks, stats),
+    }
 }
 
 /// Column generation from the columns `start` with the interior-point master (solved

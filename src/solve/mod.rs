@@ -29,6 +29,7 @@ pub mod engine;
 pub mod evaluator;
 pub mod finish;
 pub mod flow;
+pub mod gub;
 #[cfg(feature = "highs")]
 pub mod highs;
 pub mod lp;

@@ -35,10 +35,10 @@
 //! (the shortest processing walk through the site's price, purchase option included:
 //! expandable sites are processing sites of the pricing graph).
 //!
-//! **Solver.** The master is solved by the warm bounded simplex of
-//! [`crate::solve::simplex`] (exact up to rounding: a vertex), kept across rounds and
-//! across the caller's lexicographic phases; past [`WARM_ROWS`] simplex rows, or when the
-//! simplex fails, by the interior-point backend (note: its rows hold only to about 1e-7 of
+//! **Solver.** The master is solved by the warm GUB simplex of [`crate::solve::gub`]
+//! (exact up to rounding: a vertex; the demand rows are its set rows, outside its dense
+//! inverse), kept across rounds and across the caller's lexicographic phases; past
+//! [`COUPLING_ROWS`] other rows, or when the simplex fails, by the interior-point backend (note: its rows hold only to about 1e-7 of
 //! the master's magnitude). See [`PlanMaster::solve`].
 //!
 //! **Stopping.** A round adds every improving walk not yet in its block; the loop stops
@@ -53,15 +53,14 @@ use rayon::prelude::*;
 
 use super::round::gap_shares;
 use super::{
-    Basis, Graph, MAX_ROUNDS, PIVOTS_PER_ROW, PRICE_TOL, Solved, WARM_ROWS, Walk, evaluate_walks,
-    price,
+    Basis, Graph, MAX_ROUNDS, PIVOTS_PER_ROW, PRICE_TOL, Solved, Walk, evaluate_walks, price,
 };
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
 use crate::solve::cancel;
+use crate::solve::gub::{COUPLING_ROWS, Gub};
 use crate::solve::lp::{self, Lp, LpSolution, Sense};
-use crate::solve::simplex::Simplex;
 use crate::solve::surviving::Surviving;
 use crate::tol::PLAN_FEASIBLE_TOL;
 
@@ -84,12 +83,16 @@ pub struct PlanMaster<'a> {
     /// Per row of `base`: whether it is a block's arc, site or demand row (rows the
     /// simplex creates only when a walk column enters them).
     lazy: Vec<bool>,
+    /// Per row of `base`: whether it is a block's demand row (a GUB set row of the
+    /// simplex: every walk has coefficient 1 in its own demand's row and in no other).
+    set_row: Vec<bool>,
     /// Per variable of `base`: its entries (row of `base`, coefficient) when it is a walk.
     walk_entries: Vec<Option<Vec<(usize, f64)>>>,
     /// The simplex's copy of the master, kept warm across rounds and phases; `None`
     /// before the first solve and after the simplex was given up.
     exact: Option<Exact>,
-    /// Whether the simplex was given up (the master outgrew [`WARM_ROWS`] rows, or the
+    /// Whether the simplex was given up (the master outgrew [`COUPLING_ROWS`] rows besides
+    /// its demand rows, or the
     /// simplex failed): later solves go to the interior-point backend.
     exact_off: bool,
     /// The interior-point round's copy of `base` with the goal rows and objective, while
@@ -126,8 +129,9 @@ struct Block<'a> {
     held: Vec<Vec<(Walk, f64)>>,
 }
 
-/// The master on the warm bounded simplex ([`Simplex`]: `max c·x`, `≤` rows): a `≥` row
-/// of `base` enters negated, a minimisation with its objective negated. The caller's
+/// The master on the warm GUB simplex ([`Gub`]: `max c·x`, `≤` rows, the blocks' demand
+/// rows as its set rows, kept out of its inverse): a `≥` row of `base` enters negated, a
+/// minimisation with its objective negated. The caller's
 /// variables, the served variables and their rows (budget, served rows, goal rows) are
 /// created at once; a block's arc, site and demand rows only when a walk column enters
 /// them (until then the row holds with its slack basic, dual 0, as in the full model:
@@ -141,7 +145,9 @@ struct Block<'a> {
 /// generation) and then holds the artificials with the row `Σ artificial ≤` its optimum,
 /// which is 0 up to [`PLAN_FEASIBLE_TOL`] when the goal rows can be met.
 struct Exact {
-    sx: Simplex,
+    sx: Gub,
+    /// Per row of `base`: whether it is a demand row (a set row of `sx`).
+    set_row: Vec<bool>,
     /// Per variable of `base`: its simplex column (`NO_ROW` for none yet).
     col: Vec<usize>,
     /// Per row of `base`, then per goal row: its simplex row (`NO_ROW` for none yet) and
@@ -156,7 +162,8 @@ struct Exact {
 /// Why the simplex was given up on a master.
 fn too_big() -> Error {
     Error::Solver(format!(
-        "plan master past {WARM_ROWS} simplex rows (the interior-point backend takes it)"
+        "plan master past {COUPLING_ROWS} simplex rows besides its demand rows (the \
+         interior-point backend takes it)"
     ))
 }
 
@@ -171,7 +178,12 @@ impl Exact {
             .filter(|&&(j, _)| self.col[j] != NO_ROW)
             .map(|&(j, a)| (self.col[j], a))
             .collect();
-        self.row[r] = self.add_row(&entries, row.sense, row.rhs)?;
+        self.row[r] = if self.set_row[r] && entries.is_empty() && row.sense == Sense::Le {
+            // A demand row, created before any walk enters it.
+            (self.sx.add_set_row(row.rhs), 1.0)
+        } else {
+            self.add_row(&entries, row.sense, row.rhs)?
+        };
         Ok(())
     }
 
@@ -182,7 +194,7 @@ impl Exact {
         sense: Sense,
         rhs: f64,
     ) -> Result<(usize, f64)> {
-        if self.sx.rows() >= WARM_ROWS {
+        if self.sx.coupling_rows() >= COUPLING_ROWS {
             return Err(too_big());
         }
         let sign = match sense {
@@ -193,7 +205,7 @@ impl Exact {
             }
         };
         let signed: Vec<(usize, f64)> = entries.iter().map(|&(c, a)| (c, sign * a)).collect();
-        let i = self.sx.add_row(sign * rhs, &signed);
+        let i = self.sx.add_row_with(sign * rhs, &signed);
         let lhs: f64 = signed.iter().map(|&(c, a)| a * self.sx.value(c)).sum();
         let violation = lhs - sign * rhs;
         if violation > 0.0 {
@@ -263,6 +275,7 @@ impl<'a> PlanMaster<'a> {
     /// their bounds, and the caller's variables and fixed rows) with no outage yet. O(1).
     pub fn new(net: &'a Network, base: Lp, add: Vec<Option<usize>>) -> PlanMaster<'a> {
         let lazy = vec![false; base.rows.len()];
+        let set_row = vec![false; base.rows.len()];
         let walk_entries = vec![None; base.num_vars()];
         PlanMaster {
             net,
@@ -270,6 +283,7 @@ impl<'a> PlanMaster<'a> {
             add,
             blocks: Vec::new(),
             lazy,
+            set_row,
             walk_entries,
             exact: None,
             exact_off: false,
@@ -357,6 +371,10 @@ impl<'a> PlanMaster<'a> {
             }
         }
         self.lazy.resize(base.rows.len(), true);
+        self.set_row.resize(base.rows.len(), false);
+        for &r in dem_row.iter().filter(|&&r| r != NO_ROW) {
+            self.set_row[r] = true;
+        }
         let total: f64 = caps.iter().sum();
         let held_total: f64 = held.iter().flatten().map(|(_, f)| f).sum();
         let served = base.add_var(0.0, total, 0.0);
@@ -364,6 +382,7 @@ impl<'a> PlanMaster<'a> {
         // Σ active walks + held flow − s_k ≥ 0.
         let served_row = base.add_row(vec![(served, -1.0)], Sense::Ge, -held_total);
         self.lazy.push(false);
+        self.set_row.push(false);
         self.walk_entries.push(None);
         let mut block = Block {
             g,
@@ -398,8 +417,8 @@ impl<'a> PlanMaster<'a> {
     /// The rounds are solved by the warm bounded simplex (`Exact`), which returns a
     /// vertex meeting every row to rounding, and is kept across rounds and across calls
     /// whose `rows` extend the previous call's (the lexicographic phases: each re-optimises
-    /// from the last phase's vertex). Above [`WARM_ROWS`] simplex rows (its dense inverse
-    /// would not fit), or when the simplex fails (pivot limit, singular basis), the master
+    /// from the last phase's vertex). Above [`COUPLING_ROWS`] rows besides the demand rows
+    /// (its dense inverse would not fit), or when the simplex fails (pivot limit, singular basis), the master
     /// goes to the interior-point backend for this and every later call: a cold solve of
     /// the whole master per round, whose rows hold only to about 1e-7 of its magnitude.
     /// Cost per round: one warm re-optimisation (or one interior-point solve) and one
@@ -410,7 +429,8 @@ impl<'a> PlanMaster<'a> {
         objective: &[(usize, f64)],
         maximise: bool,
     ) -> Result<LpSolution> {
-        if !self.exact_off && self.exact.is_none() && self.exact_rows() + rows.len() > WARM_ROWS {
+        if !self.exact_off && self.exact.is_none() && self.exact_rows() + rows.len() > COUPLING_ROWS
+        {
             // The simplex copy could not hold the master: skip building it.
             self.exact_off = true;
         }
@@ -427,14 +447,17 @@ impl<'a> PlanMaster<'a> {
         self.solve_interior(rows, objective, maximise)
     }
 
-    /// Rows the simplex copy of `base` would start with: the eager rows and every lazy
-    /// row a walk column found so far enters. O(rows + walk entries).
+    /// Rows besides demand rows the simplex copy of `base` would start with: the eager
+    /// rows and every lazy row a walk column found so far enters. O(rows + walk entries).
     fn exact_rows(&self) -> usize {
         let mut used: Vec<bool> = self.lazy.iter().map(|&l| !l).collect();
         for (r, _) in self.walk_entries.iter().flatten().flatten() {
             used[*r] = true;
         }
-        used.iter().filter(|&&u| u).count()
+        used.iter()
+            .zip(&self.set_row)
+            .filter(|&(&u, &set)| u && !set)
+            .count()
     }
 
     /// Builds the simplex copy of `base` (module comment of [`Exact`]): the caller's and
@@ -442,7 +465,8 @@ impl<'a> PlanMaster<'a> {
     fn build_exact(&self) -> Result<Exact> {
         let base = &self.base;
         let mut ex = Exact {
-            sx: Simplex::new(),
+            sx: Gub::new(),
+            set_row: self.set_row.clone(),
             col: vec![NO_ROW; base.num_vars()],
             row: vec![(NO_ROW, 1.0); base.rows.len()],
             goals: Vec::new(),
@@ -539,7 +563,7 @@ impl<'a> PlanMaster<'a> {
             .set_objective(obj);
         self.rounds(sg, |pm| {
             let ex = pm.exact.as_mut().expect("built by the caller");
-            if ex.sx.rows() > WARM_ROWS {
+            if ex.sx.coupling_rows() > COUPLING_ROWS {
                 return Err(too_big());
             }
             let limit = PIVOTS_PER_ROW * ex.sx.rows().max(100);

@@ -7,6 +7,7 @@ use super::*;
 use std::collections::HashSet;
 
 use crate::error::Result;
+use crate::solve::gub::Gub;
 use crate::solve::simplex::{Column, Simplex};
 
 /// The LP a [`WarmMaster`] keeps between rounds: a maximisation over `≤` rows (added empty,
@@ -19,6 +20,12 @@ pub(super) trait MasterLp {
     fn cols(&self) -> usize;
     /// Adds the empty row `0 ≤ rhs`; returns its index.
     fn add_row(&mut self, rhs: f64) -> usize;
+    /// Adds the empty row `0 ≤ rhs` of a set: every column that will have an entry in it
+    /// has coefficient 1 there and in no other set row (a demand's cap row). An LP that
+    /// exploits the structure ([`Gub`]) keeps it apart; the others add a plain row.
+    fn add_set_row(&mut self, rhs: f64) -> usize {
+        self.add_row(rhs)
+    }
     /// Adds column `c` (objective, bounds, value it starts from) with `entries`; returns
     /// its index.
     fn add_col(&mut self, c: Column, entries: Vec<(usize, f64)>) -> usize;
@@ -72,6 +79,44 @@ macro_rules! master_lp {
 
 master_lp!(Simplex, WARM_ROWS, |s, c, e| s
     .add_col(c.obj, c.lower, c.upper, c.value, e));
+
+// The GUB simplex's dense inverse grows with the coupling rows only; it refuses a solve
+// past `gub::COUPLING_ROWS` of them, so the master has no limit of its own.
+impl MasterLp for Gub {
+    fn row_limit(&self) -> usize {
+        usize::MAX
+    }
+    fn rows(&self) -> usize {
+        Gub::rows(self)
+    }
+    fn cols(&self) -> usize {
+        Gub::cols(self)
+    }
+    fn add_row(&mut self, rhs: f64) -> usize {
+        Gub::add_row(self, rhs)
+    }
+    fn add_set_row(&mut self, rhs: f64) -> usize {
+        Gub::add_set_row(self, rhs)
+    }
+    fn add_col(&mut self, c: Column, e: Vec<(usize, f64)>) -> usize {
+        Gub::add_col(self, c.obj, c.lower, c.upper, c.value, e)
+    }
+    fn shift_rhs(&mut self, i: usize, delta: f64) {
+        Gub::shift_rhs(self, i, delta)
+    }
+    fn solve(&mut self, max_pivots: usize) -> Result<()> {
+        Gub::solve(self, max_pivots)
+    }
+    fn value(&self, j: usize) -> f64 {
+        Gub::value(self, j)
+    }
+    fn dual(&self, i: usize) -> f64 {
+        Gub::dual(self, i)
+    }
+    fn objective(&self) -> f64 {
+        Gub::objective(self)
+    }
+}
 
 // HiGHS keeps a sparse factorisation, so the master has no size limit.
 #[cfg(feature = "highs")]
@@ -173,7 +218,7 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
     pub(super) fn column(&mut self, w: Walk, f: f64) {
         let d = w.demand;
         if self.dem_row[d] == NO_ROW {
-            self.dem_row[d] = self.lp.add_row(self.caps[d]);
+            self.dem_row[d] = self.lp.add_set_row(self.caps[d]);
         }
         let mut entries = Vec::with_capacity(w.arcs.len() + 2);
         for &(a, k) in &w.arcs {
@@ -198,7 +243,7 @@ impl<'a, 'g, L: MasterLp> WarmMaster<'a, 'g, L> {
     /// (each existing row first gets the walk's load back, so no basic value moves).
     pub(super) fn activate(&mut self, d: usize) {
         self.active[d] = true;
-        self.dem_row[d] = self.lp.add_row(self.caps[d]);
+        self.dem_row[d] = self.lp.add_set_row(self.caps[d]);
         for (w, f) in std::mem::take(&mut self.fixed[d]) {
             for &(a, k) in &w.arcs {
                 let load = f64::from(k) * f;
