@@ -507,14 +507,18 @@ impl Gub {
                 }
             }
         }
-        for i in 0..self.rhs.len() {
-            if self.slack_pos[i] == Pos::Nonbasic {
-                net[i] -= self.slack[i];
+        for ((n, &pos), &v) in net.iter_mut().zip(&self.slack_pos).zip(&self.slack) {
+            if pos == Pos::Nonbasic {
+                *n -= v;
             }
         }
-        for d in 0..self.set_rhs.len() {
-            if self.set_slack_pos[d] == Pos::Nonbasic {
-                set_net[d] -= self.set_slack[d];
+        for ((n, &pos), &v) in set_net
+            .iter_mut()
+            .zip(&self.set_slack_pos)
+            .zip(&self.set_slack)
+        {
+            if pos == Pos::Nonbasic {
+                *n -= v;
             }
         }
         let r1: Vec<(usize, f64)> = net.iter().copied().enumerate().collect();
