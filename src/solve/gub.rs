@@ -21,14 +21,15 @@
 //! basic member of its set is replaced by the entering column directly, which then must
 //! belong to the same set.
 //!
-//! Same conventions as [`super::simplex`]: nonbasic columns may rest strictly between
-//! their bounds, Dantzig's pricing with Bland's rule after [`DEGENERATE`] degenerate
-//! pivots, values and duals recomputed from `W⁻¹` every [`REFRESH`] pivots and at the end,
+//! Same conventions as [`super::simplex`], and the same solve loop (shared with it):
+//! nonbasic columns may rest strictly between their bounds, partial Dantzig pricing with
+//! Bland's rule after [`super::simplex::DEGENERATE`] degenerate pivots, values and duals
+//! recomputed from `W⁻¹` every [`super::simplex::REFRESH`] pivots and at the end,
 //! re-inversion when the primal residual drifts past [`crate::tol::SIMPLEX_DRIFT_TOL`].
 
-use super::simplex::{DEGENERATE, DUAL_TOL, PIVOT_TOL, REFRESH};
+use super::pivoting::{self, Primal};
+use super::simplex::{DUAL_TOL, PIVOT_TOL};
 use crate::error::{Error, Result};
-use crate::tol::SIMPLEX_DRIFT_TOL;
 
 /// Most coupling rows this simplex takes (its dense `W⁻¹` holds 8·rows² bytes: 200 MB at
 /// the limit); past it a solve errors and the caller uses another backend.
@@ -41,7 +42,7 @@ const NONE: usize = usize::MAX;
 
 /// A variable: a column, the slack of a coupling row, or the slack of a set row.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Var {
+pub(super) enum Var {
     Col(usize),
     Slack(usize),
     SetSlack(usize),
@@ -490,6 +491,58 @@ impl Gub {
         r
     }
 
+    /// Makes the working variable at position `p` (a member of set `d`) the key of `d`;
+    /// the old key takes position `p`. Row `p` of `W⁻¹` becomes `−row p − Σ rows of the
+    /// set's other working members` (the column operation `a_i − a_new = (a_i − a_old) −
+    /// (a_new − a_old)` inverted). O(m₁ · working members of `d`).
+    fn swap_key(&mut self, d: usize, p: usize) {
+        let others: Vec<usize> = (0..self.work.len())
+            .filter(|&i| i != p && self.set_of(self.work[i]) == d)
+            .collect();
+        for col in &mut self.winv {
+            let mut v = -col[p];
+            for &i in &others {
+                v -= col[i];
+            }
+            col[p] = v;
+        }
+        let old = self.key[d];
+        let new = self.work[p];
+        self.key[d] = new;
+        self.set_pos(new, Pos::Key);
+        self.work[p] = old;
+        self.set_pos(old, Pos::Work(p));
+    }
+
+    /// Re-optimises from the current basis and point. Errors when the model is
+    /// unbounded or past [`COUPLING_ROWS`], the basis becomes singular, or `max_pivots`
+    /// is exceeded (the caller then uses another backend), and with
+    /// [`Error::Interrupted`] when an interrupt is asked for (polled before every pivot).
+    pub fn solve(&mut self, max_pivots: usize) -> Result<()> {
+        if self.invalid {
+            return Err(Error::Solver(
+                "gub simplex: a column outside GUB form".into(),
+            ));
+        }
+        if self.rhs.len() > COUPLING_ROWS {
+            return Err(Error::Solver("gub simplex: too many coupling rows".into()));
+        }
+        self.duals();
+        pivoting::run(self, max_pivots, "gub simplex")
+    }
+
+    fn leaving_var(&self, leave: Leave) -> Var {
+        match leave {
+            Leave::Work(p) => self.work[p],
+            Leave::Key(d) => self.key[d],
+            Leave::Flip => unreachable!("a flip has no leaving variable"),
+        }
+    }
+}
+
+impl Primal for Gub {
+    type Var = Var;
+
     /// Recomputes the duals and the basic values from `W⁻¹`: O(m₁² + nonzeros). Returns
     /// the largest row residual relative to `max(1, |b|)`, with the recomputed values.
     fn refresh(&mut self) -> f64 {
@@ -557,13 +610,7 @@ impl Gub {
     fn reinvert(&mut self) -> Result<()> {
         let m = self.rhs.len();
         let vars: Vec<Var> = self.work.clone();
-        self.winv = (0..m)
-            .map(|r| {
-                let mut c = vec![0.0; m];
-                c[r] = 1.0;
-                c
-            })
-            .collect();
+        self.winv = pivoting::identity(m);
         let mut taken = vec![false; m];
         for v in &vars {
             if let Var::Slack(i) = v {
@@ -577,17 +624,9 @@ impl Gub {
             }
             super::cancel::check()?;
             let alpha = self.solve_w(&self.w_column(v));
-            let mut best = NONE;
-            for p in 0..m {
-                if !taken[p] && (best == NONE || alpha[p].abs() > alpha[best].abs()) {
-                    best = p;
-                }
-            }
-            if best == NONE || alpha[best].abs() < PIVOT_TOL {
-                return Err(Error::Solver("gub simplex: singular basis".into()));
-            }
+            let best = pivoting::largest_free(&alpha, &taken, "gub simplex")?;
             taken[best] = true;
-            self.eta(best, &alpha);
+            pivoting::eta(&mut self.winv, best, &alpha);
             work[best] = v;
         }
         for i in 0..m {
@@ -602,222 +641,128 @@ impl Gub {
         Ok(())
     }
 
-    /// Replaces the working variable at position `p` by the one whose `W⁻¹` column is
-    /// `alpha` (one eta step). O(m₁ · columns of `W⁻¹` with a nonzero at `p`).
-    fn eta(&mut self, p: usize, alpha: &[f64]) {
-        let nz: Vec<usize> = (0..alpha.len())
-            .filter(|&i| i != p && alpha[i] != 0.0)
-            .collect();
-        let ap = alpha[p];
-        for col in &mut self.winv {
-            let v = col[p];
-            if v == 0.0 {
+    fn entering(&mut self, bland: bool) -> Option<(Var, f64)> {
+        Gub::entering(self, bland)
+    }
+
+    /// Ratio test over the entering variable's own range, the working variables and the
+    /// keys; then the move, and the basis change: one eta step of `W⁻¹` when a working
+    /// variable leaves (duals moved by `dq` times its new row), a key swap first when a
+    /// key leaves (duals moved by `dq / key entry` times the old key's row of `B⁻¹`).
+    /// O(m₁ · nonzeros of the pivot) plus the swap's O(m₁ · set members).
+    fn pivot(&mut self, q: Var, dq: f64, bland: bool) -> Result<bool> {
+        let dir = if dq > 0.0 { 1.0 } else { -1.0 };
+        let (mut alpha, keys) = self.ftran_var(q);
+        let (ql, qu) = self.bounds(q);
+        let xq = self.get(q);
+        let mut step = if dir > 0.0 { qu - xq } else { xq - ql };
+        let mut leave = Leave::Flip;
+        let mut leave_alpha = 0.0;
+        let mut leave_at_upper = false;
+        let candidates = alpha
+            .iter()
+            .enumerate()
+            .map(|(p, &a)| (Leave::Work(p), self.work[p], a))
+            .chain(keys.iter().map(|&(d, a)| (Leave::Key(d), self.key[d], a)));
+        for (at, v, a) in candidates {
+            if a.abs() < PIVOT_TOL {
                 continue;
             }
-            let f = v / ap;
-            for &i in &nz {
-                col[i] -= alpha[i] * f;
-            }
-            col[p] = f;
-        }
-    }
-
-    /// Makes the working variable at position `p` (a member of set `d`) the key of `d`;
-    /// the old key takes position `p`. Row `p` of `W⁻¹` becomes `−row p − Σ rows of the
-    /// set's other working members` (the column operation `a_i − a_new = (a_i − a_old) −
-    /// (a_new − a_old)` inverted). O(m₁ · working members of `d`).
-    fn swap_key(&mut self, d: usize, p: usize) {
-        let others: Vec<usize> = (0..self.work.len())
-            .filter(|&i| i != p && self.set_of(self.work[i]) == d)
-            .collect();
-        for col in &mut self.winv {
-            let mut v = -col[p];
-            for &i in &others {
-                v -= col[i];
-            }
-            col[p] = v;
-        }
-        let old = self.key[d];
-        let new = self.work[p];
-        self.key[d] = new;
-        self.set_pos(new, Pos::Key);
-        self.work[p] = old;
-        self.set_pos(old, Pos::Work(p));
-    }
-
-    /// Re-optimises from the current basis and point. Errors when the model is
-    /// unbounded or past [`COUPLING_ROWS`], the basis becomes singular, or `max_pivots`
-    /// is exceeded (the caller then uses another backend), and with
-    /// [`Error::Interrupted`] when an interrupt is asked for (polled before every pivot).
-    pub fn solve(&mut self, max_pivots: usize) -> Result<()> {
-        if self.invalid {
-            return Err(Error::Solver(
-                "gub simplex: a column outside GUB form".into(),
-            ));
-        }
-        if self.rhs.len() > COUPLING_ROWS {
-            return Err(Error::Solver("gub simplex: too many coupling rows".into()));
-        }
-        let start = self.pivots;
-        let mut degenerate = 0usize;
-        let mut since_refresh = 0usize;
-        let mut refreshed = false;
-        self.duals();
-        loop {
-            super::cancel::check()?;
-            if since_refresh >= REFRESH {
-                since_refresh = 0;
-                if self.refresh() > SIMPLEX_DRIFT_TOL {
-                    self.reinvert()?;
-                    self.refresh();
-                }
-            }
-            let bland = degenerate >= DEGENERATE;
-            let Some((q, dq)) = self.entering(bland) else {
-                if refreshed {
-                    return Ok(());
-                }
-                refreshed = true;
-                since_refresh = 0;
-                if self.refresh() > SIMPLEX_DRIFT_TOL {
-                    self.reinvert()?;
-                    self.refresh();
-                }
+            let Some((t, upper)) = pivoting::step_to_bound(self.get(v), self.bounds(v), a, dir)
+            else {
                 continue;
             };
-            refreshed = false;
-            if self.pivots - start >= max_pivots {
-                return Err(Error::Solver("gub simplex: pivot limit".into()));
-            }
-            let dir = if dq > 0.0 { 1.0 } else { -1.0 };
-            let (mut alpha, keys) = self.ftran_var(q);
-            let (ql, qu) = self.bounds(q);
-            let xq = self.get(q);
-            let mut step = if dir > 0.0 { qu - xq } else { xq - ql };
-            let mut leave = Leave::Flip;
-            let mut leave_alpha = 0.0;
-            let mut leave_at_upper = false;
-            let candidates = alpha
-                .iter()
-                .enumerate()
-                .map(|(p, &a)| (Leave::Work(p), self.work[p], a))
-                .chain(keys.iter().map(|&(d, a)| (Leave::Key(d), self.key[d], a)));
-            for (at, v, a) in candidates {
-                if a.abs() < PIVOT_TOL {
-                    continue;
-                }
-                let (l, u) = self.bounds(v);
-                let x = self.get(v);
-                let delta = -dir * a;
-                let (t, upper) = if delta < 0.0 {
-                    (((x - l) / -delta).max(0.0), false)
-                } else if u.is_finite() {
-                    (((u - x) / delta).max(0.0), true)
+            let tie = || {
+                if bland {
+                    index(v) < index(self.leaving_var(leave))
                 } else {
-                    continue;
-                };
-                let better = if leave == Leave::Flip {
-                    t < step || (t == step && step.is_finite())
-                } else {
-                    t < step
-                        || (t == step
-                            && if bland {
-                                index(v) < index(self.leaving_var(leave))
-                            } else {
-                                a.abs() > leave_alpha
-                            })
-                };
-                if better {
-                    step = t;
-                    leave = at;
-                    leave_alpha = a.abs();
-                    leave_at_upper = upper;
+                    a.abs() > leave_alpha
                 }
+            };
+            if pivoting::replaces(t, step, leave == Leave::Flip, tie) {
+                step = t;
+                leave = at;
+                leave_alpha = a.abs();
+                leave_at_upper = upper;
             }
-            if !step.is_finite() {
-                return Err(Error::Solver("gub simplex: unbounded master".into()));
+        }
+        if !step.is_finite() {
+            return Err(Error::Solver("gub simplex: unbounded master".into()));
+        }
+        let moved = step > 0.0;
+        if moved {
+            self.move_basics(&alpha, &keys, -dir * step);
+            self.set_value(q, xq + dir * step);
+        }
+        if leave == Leave::Flip {
+            self.set_value(q, if dir > 0.0 { qu } else { ql });
+            return Ok(moved);
+        }
+        let out = self.leaving_var(leave);
+        let (l, u) = self.bounds(out);
+        self.set_value(out, if leave_at_upper { u } else { l });
+        match leave {
+            Leave::Work(p) => {
+                pivoting::eta(&mut self.winv, p, &alpha);
+                self.work[p] = q;
+                self.set_pos(q, Pos::Work(p));
+                self.set_pos(out, Pos::Nonbasic);
+                // Keys unchanged: y moves by dq · row p of the new W⁻¹.
+                for r in 0..self.y.len() {
+                    let b = self.winv[r][p];
+                    if b != 0.0 {
+                        self.y[r] += dq * b;
+                    }
+                }
+                self.stamp += 1;
             }
-            if step > 0.0 {
-                self.move_basics(&alpha, &keys, -dir * step);
-                self.set_value(q, xq + dir * step);
-                degenerate = 0;
-            } else {
-                degenerate += 1;
-            }
-            self.pivots += 1;
-            since_refresh += 1;
-            if leave == Leave::Flip {
-                self.set_value(q, if dir > 0.0 { qu } else { ql });
-                continue;
-            }
-            let out = self.leaving_var(leave);
-            let (l, u) = self.bounds(out);
-            self.set_value(out, if leave_at_upper { u } else { l });
-            match leave {
-                Leave::Work(p) => {
-                    self.eta(p, &alpha);
+            Leave::Key(d) => {
+                // Another working member of d becomes the key; the old key takes
+                // its position, where the entering variable's direction is the old
+                // key's entry (the direction of each variable does not depend on
+                // which member is the key).
+                let key_entry = keys.iter().find(|&&(e, _)| e == d).map_or(0.0, |&(_, a)| a);
+                // The duals move by dq / key_entry times the old key's row of B⁻¹,
+                // whose coupling part is −Σ rows of W⁻¹ at the set's working members
+                // (zero when the key is alone in its set).
+                let members: Vec<usize> = (0..self.work.len())
+                    .filter(|&i| self.set_of(self.work[i]) == d)
+                    .collect();
+                let member = members
+                    .iter()
+                    .copied()
+                    .max_by(|&a, &b| alpha[a].abs().total_cmp(&alpha[b].abs()));
+                if !members.is_empty() {
+                    let t = dq / key_entry;
+                    for (y, col) in self.y.iter_mut().zip(&self.winv) {
+                        let rho: f64 = members.iter().map(|&i| col[i]).sum();
+                        *y -= t * rho;
+                    }
+                }
+                if let Some(p) = member {
+                    self.swap_key(d, p);
+                    alpha[p] = key_entry;
+                    pivoting::eta(&mut self.winv, p, &alpha);
                     self.work[p] = q;
                     self.set_pos(q, Pos::Work(p));
-                    self.set_pos(out, Pos::Nonbasic);
-                    // Keys unchanged: y moves by dq · row p of the new W⁻¹.
-                    for r in 0..self.y.len() {
-                        let b = self.winv[r][p];
-                        if b != 0.0 {
-                            self.y[r] += dq * b;
-                        }
+                } else {
+                    if self.set_of(q) != d {
+                        return Err(Error::Solver("gub simplex: singular basis".into()));
                     }
-                    self.stamp += 1;
+                    self.key[d] = q;
+                    self.set_pos(q, Pos::Key);
                 }
-                Leave::Key(d) => {
-                    // Another working member of d becomes the key; the old key takes
-                    // its position, where the entering variable's direction is the old
-                    // key's entry (the direction of each variable does not depend on
-                    // which member is the key).
-                    let member = (0..self.work.len())
-                        .filter(|&p| self.set_of(self.work[p]) == d)
-                        .max_by(|&a, &b| alpha[a].abs().total_cmp(&alpha[b].abs()));
-                    let key_entry = keys.iter().find(|&&(e, _)| e == d).map_or(0.0, |&(_, a)| a);
-                    // The duals move by dq / key_entry times the old key's row of B⁻¹,
-                    // whose coupling part is −Σ rows of W⁻¹ at the set's working members
-                    // (zero when the key is alone in its set).
-                    let members: Vec<usize> = (0..self.work.len())
-                        .filter(|&i| self.set_of(self.work[i]) == d)
-                        .collect();
-                    if !members.is_empty() {
-                        let t = dq / key_entry;
-                        for (y, col) in self.y.iter_mut().zip(&self.winv) {
-                            let rho: f64 = members.iter().map(|&i| col[i]).sum();
-                            *y -= t * rho;
-                        }
-                    }
-                    if let Some(p) = member {
-                        self.swap_key(d, p);
-                        alpha[p] = key_entry;
-                        self.eta(p, &alpha);
-                        self.work[p] = q;
-                        self.set_pos(q, Pos::Work(p));
-                    } else {
-                        if self.set_of(q) != d {
-                            return Err(Error::Solver("gub simplex: singular basis".into()));
-                        }
-                        self.key[d] = q;
-                        self.set_pos(q, Pos::Key);
-                    }
-                    self.set_pos(out, Pos::Nonbasic);
-                    // Any basic member v of a set gives u_d = c_v − a_v·y (`set_dual`).
-                    self.stamp += 1;
-                }
-                Leave::Flip => unreachable!("handled above"),
+                self.set_pos(out, Pos::Nonbasic);
+                // Any basic member v of a set gives u_d = c_v − a_v·y (`set_dual`).
+                self.stamp += 1;
             }
+            Leave::Flip => unreachable!("handled above"),
         }
+        Ok(moved)
     }
 
-    fn leaving_var(&self, leave: Leave) -> Var {
-        match leave {
-            Leave::Work(p) => self.work[p],
-            Leave::Key(d) => self.key[d],
-            Leave::Flip => unreachable!("a flip has no leaving variable"),
-        }
+    fn pivots(&mut self) -> &mut usize {
+        &mut self.pivots
     }
 }
 

@@ -33,6 +33,7 @@ pub mod gub;
 #[cfg(feature = "highs")]
 pub mod highs;
 pub mod lp;
+mod pivoting;
 pub mod recheck;
 pub mod simplex;
 pub mod surviving;

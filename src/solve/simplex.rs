@@ -24,21 +24,19 @@
 //! Intended for masters of up to a few thousand rows (the dense inverse takes 8·m² bytes);
 //! the caller picks the interior-point backend above that.
 
+use super::pivoting::{self, Primal};
 use crate::error::{Error, Result};
 
-use crate::tol::SIMPLEX_DRIFT_TOL;
+/// The refresh cadence and the anti-cycling switch, shared with the GUB simplex.
+pub use super::pivoting::{DEGENERATE, REFRESH};
 /// The simplex's tolerances (defined and explained in [`crate::tol`]).
 pub use crate::tol::{SIMPLEX_DUAL_TOL as DUAL_TOL, SIMPLEX_PIVOT_TOL as PIVOT_TOL};
-/// Pivots between recomputations of duals and primal values from the inverse.
-pub const REFRESH: usize = 100;
-/// Degenerate pivots in a row before Bland's rule takes over.
-pub const DEGENERATE: usize = 50;
 
 const NONE: usize = usize::MAX;
 
 /// A variable of the model: a column or the slack of a row.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-enum Var {
+pub(super) enum Var {
     Col(usize),
     Slack(usize),
 }
@@ -289,6 +287,51 @@ impl Simplex {
         }
     }
 
+    /// Re-optimises from the current basis and point. Errors when the model is
+    /// unbounded, the basis becomes singular, or `max_pivots` is exceeded (the caller
+    /// then uses another backend), and with [`Error::Interrupted`] when an interrupt is
+    /// asked for ([`super::cancel`], polled before every pivot and every column of a
+    /// re-inversion).
+    pub fn solve(&mut self, max_pivots: usize) -> Result<()> {
+        pivoting::run(self, max_pivots, "simplex")
+    }
+
+    /// The entering variable and its reduced cost: Dantzig's choice (largest |d|, lowest
+    /// index on ties) or, with `bland`, the lowest eligible index. A variable is eligible
+    /// when its reduced cost exceeds [`DUAL_TOL`] and it can move that way.
+    fn entering(&self, bland: bool) -> Option<(Var, f64)> {
+        let mut best: Option<(Var, f64)> = None;
+        let cols = (0..self.cols.len())
+            .filter(|&j| self.col_pos[j] == NONE)
+            .map(Var::Col);
+        let slacks = (0..self.rhs.len())
+            .filter(|&i| self.slack_pos[i] == NONE)
+            .map(Var::Slack);
+        for v in cols.chain(slacks) {
+            let (l, u) = self.bounds(v);
+            let x = self.get(v);
+            if x >= u && x <= l {
+                continue;
+            }
+            let d = self.reduced(v);
+            let ok = (d > DUAL_TOL && x < u) || (d < -DUAL_TOL && x > l);
+            if !ok {
+                continue;
+            }
+            if bland {
+                return Some((v, d));
+            }
+            if best.is_none_or(|(_, bd)| d.abs() > bd.abs()) {
+                best = Some((v, d));
+            }
+        }
+        best
+    }
+}
+
+impl Primal for Simplex {
+    type Var = Var;
+
     /// Recomputes the duals and the basic values from the inverse: O(m² + nonzeros).
     /// Returns the largest primal residual `|A x + s − b|` relative to `max(1, |b|)`,
     /// computed with the recomputed values.
@@ -341,13 +384,7 @@ impl Simplex {
     fn reinvert(&mut self) -> Result<()> {
         let m = self.rhs.len();
         let basics: Vec<Var> = self.basis.clone();
-        self.binv = (0..m)
-            .map(|r| {
-                let mut c = vec![0.0; m];
-                c[r] = 1.0;
-                c
-            })
-            .collect();
+        self.binv = pivoting::identity(m);
         // Positions whose slack stays basic are taken; the others are free.
         let mut taken = vec![false; m];
         for v in &basics {
@@ -361,17 +398,9 @@ impl Simplex {
             // O(m²) per column: a large basis takes long enough to poll.
             super::cancel::check()?;
             let alpha = self.ftran(&self.cols[j]);
-            let mut best = NONE;
-            for p in 0..m {
-                if !taken[p] && (best == NONE || alpha[p].abs() > alpha[best].abs()) {
-                    best = p;
-                }
-            }
-            if best == NONE || alpha[best].abs() < PIVOT_TOL {
-                return Err(Error::Solver("simplex: singular basis".into()));
-            }
+            let best = pivoting::largest_free(&alpha, &taken, "simplex")?;
             taken[best] = true;
-            self.eta(best, &alpha);
+            pivoting::eta(&mut self.binv, best, &alpha);
             basis[best] = Var::Col(j);
         }
         self.slack_pos = vec![NONE; m];
@@ -388,178 +417,85 @@ impl Simplex {
         Ok(())
     }
 
-    /// Replaces the basic variable at position `p` by the column whose `B⁻¹ a` is
-    /// `alpha` in the inverse (one eta step). O(m · columns of `B⁻¹` with a nonzero at p).
-    fn eta(&mut self, p: usize, alpha: &[f64]) {
-        let nz: Vec<usize> = (0..alpha.len())
-            .filter(|&i| i != p && alpha[i] != 0.0)
-            .collect();
-        let ap = alpha[p];
-        for col in &mut self.binv {
-            let v = col[p];
-            if v == 0.0 {
-                continue;
-            }
-            let f = v / ap;
-            for &i in &nz {
-                col[i] -= alpha[i] * f;
-            }
-            col[p] = f;
-        }
+    fn entering(&mut self, bland: bool) -> Option<(Var, f64)> {
+        Simplex::entering(self, bland)
     }
 
-    /// Re-optimises from the current basis and point. Errors when the model is
-    /// unbounded, the basis becomes singular, or `max_pivots` is exceeded (the caller
-    /// then uses another backend), and with [`Error::Interrupted`] when an interrupt is
-    /// asked for ([`super::cancel`], polled before every pivot and every column of a
-    /// re-inversion).
-    pub fn solve(&mut self, max_pivots: usize) -> Result<()> {
-        let start = self.pivots;
-        let mut degenerate = 0usize;
-        let mut since_refresh = 0usize;
-        let mut refreshed = false;
-        loop {
-            super::cancel::check()?;
-            if since_refresh >= REFRESH {
-                since_refresh = 0;
-                if self.refresh() > SIMPLEX_DRIFT_TOL {
-                    self.reinvert()?;
-                    self.refresh();
-                }
+    /// Ratio test over the entering variable's own range and every basic variable,
+    /// then the move, and one eta step of `B⁻¹` with the duals moved by `d` times the
+    /// leaving position's new row. O(m · nonzeros of the pivot).
+    fn pivot(&mut self, q: Var, d: f64, bland: bool) -> Result<bool> {
+        let dir = if d > 0.0 { 1.0 } else { -1.0 };
+        let alpha = self.ftran(&self.column_of(q));
+        let (ql, qu) = self.bounds(q);
+        let xq = self.get(q);
+        let mut step = if dir > 0.0 { qu - xq } else { xq - ql };
+        let mut leave = NONE;
+        let mut leave_at_upper = false;
+        for (p, &a) in alpha.iter().enumerate() {
+            if a.abs() < PIVOT_TOL {
+                continue;
             }
-            let bland = degenerate >= DEGENERATE;
-            let Some((q, d)) = self.entering(bland) else {
-                if refreshed {
-                    return Ok(());
-                }
-                // Optimal by the running values: confirm with values from the inverse.
-                refreshed = true;
-                since_refresh = 0;
-                if self.refresh() > SIMPLEX_DRIFT_TOL {
-                    self.reinvert()?;
-                    self.refresh();
-                }
+            let v = self.basis[p];
+            let Some((t, upper)) = pivoting::step_to_bound(self.get(v), self.bounds(v), a, dir)
+            else {
                 continue;
             };
-            refreshed = false;
-            if self.pivots - start >= max_pivots {
-                return Err(Error::Solver("simplex: pivot limit".into()));
-            }
-            let dir = if d > 0.0 { 1.0 } else { -1.0 };
-            let alpha = self.ftran(&self.column_of(q));
-            // Ratio test: the entering variable's own range, then each basic variable.
-            let (ql, qu) = self.bounds(q);
-            let xq = self.get(q);
-            let mut step = if dir > 0.0 { qu - xq } else { xq - ql };
-            let mut leave = NONE;
-            let mut leave_at_upper = false;
-            for (p, &a) in alpha.iter().enumerate() {
-                if a.abs() < PIVOT_TOL {
-                    continue;
-                }
-                let v = self.basis[p];
-                let (l, u) = self.bounds(v);
-                let x = self.get(v);
-                let delta = -dir * a;
-                let (t, upper) = if delta < 0.0 {
-                    (((x - l) / -delta).max(0.0), false)
-                } else if u.is_finite() {
-                    (((u - x) / delta).max(0.0), true)
+            let tie = || {
+                if bland {
+                    index(v) < index(self.basis[leave])
                 } else {
-                    continue;
-                };
-                let better = match leave {
-                    NONE => t < step || (t == step && step.is_finite()),
-                    cur => {
-                        t < step
-                            || (t == step
-                                && if bland {
-                                    index(v) < index(self.basis[cur])
-                                } else {
-                                    a.abs() > alpha[cur].abs()
-                                })
-                    }
-                };
-                if better {
-                    step = t;
-                    leave = p;
-                    leave_at_upper = upper;
+                    a.abs() > alpha[leave].abs()
                 }
-            }
-            if !step.is_finite() {
-                return Err(Error::Solver("simplex: unbounded master".into()));
-            }
-            if step > 0.0 {
-                for (p, &a) in alpha.iter().enumerate() {
-                    if a != 0.0 {
-                        let v = self.basis[p];
-                        self.set(v, self.get(v) - dir * step * a);
-                    }
-                }
-                self.set(q, xq + dir * step);
-                degenerate = 0;
-            } else {
-                degenerate += 1;
-            }
-            self.pivots += 1;
-            since_refresh += 1;
-            if leave == NONE {
-                // Bound flip: the entering variable reaches its other bound.
-                self.set(q, if dir > 0.0 { qu } else { ql });
-                continue;
-            }
-            let out = self.basis[leave];
-            let (l, u) = self.bounds(out);
-            self.set(out, if leave_at_upper { u } else { l });
-            self.eta(leave, &alpha);
-            for r in 0..self.y.len() {
-                let b = self.binv[r][leave];
-                if b != 0.0 {
-                    self.y[r] += d * b;
-                }
-            }
-            self.basis[leave] = q;
-            match out {
-                Var::Col(j) => self.col_pos[j] = NONE,
-                Var::Slack(i) => self.slack_pos[i] = NONE,
-            }
-            match q {
-                Var::Col(j) => self.col_pos[j] = leave,
-                Var::Slack(i) => self.slack_pos[i] = leave,
+            };
+            if pivoting::replaces(t, step, leave == NONE, tie) {
+                step = t;
+                leave = p;
+                leave_at_upper = upper;
             }
         }
+        if !step.is_finite() {
+            return Err(Error::Solver("simplex: unbounded master".into()));
+        }
+        let moved = step > 0.0;
+        if moved {
+            for (p, &a) in alpha.iter().enumerate() {
+                if a != 0.0 {
+                    let v = self.basis[p];
+                    self.set(v, self.get(v) - dir * step * a);
+                }
+            }
+            self.set(q, xq + dir * step);
+        }
+        if leave == NONE {
+            // Bound flip: the entering variable reaches its other bound.
+            self.set(q, if dir > 0.0 { qu } else { ql });
+            return Ok(moved);
+        }
+        let out = self.basis[leave];
+        let (l, u) = self.bounds(out);
+        self.set(out, if leave_at_upper { u } else { l });
+        pivoting::eta(&mut self.binv, leave, &alpha);
+        for r in 0..self.y.len() {
+            let b = self.binv[r][leave];
+            if b != 0.0 {
+                self.y[r] += d * b;
+            }
+        }
+        self.basis[leave] = q;
+        match out {
+            Var::Col(j) => self.col_pos[j] = NONE,
+            Var::Slack(i) => self.slack_pos[i] = NONE,
+        }
+        match q {
+            Var::Col(j) => self.col_pos[j] = leave,
+            Var::Slack(i) => self.slack_pos[i] = leave,
+        }
+        Ok(moved)
     }
 
-    /// The entering variable and its reduced cost: Dantzig's choice (largest |d|, lowest
-    /// index on ties) or, with `bland`, the lowest eligible index. A variable is eligible
-    /// when its reduced cost exceeds [`DUAL_TOL`] and it can move that way.
-    fn entering(&self, bland: bool) -> Option<(Var, f64)> {
-        let mut best: Option<(Var, f64)> = None;
-        let cols = (0..self.cols.len())
-            .filter(|&j| self.col_pos[j] == NONE)
-            .map(Var::Col);
-        let slacks = (0..self.rhs.len())
-            .filter(|&i| self.slack_pos[i] == NONE)
-            .map(Var::Slack);
-        for v in cols.chain(slacks) {
-            let (l, u) = self.bounds(v);
-            let x = self.get(v);
-            if x >= u && x <= l {
-                continue;
-            }
-            let d = self.reduced(v);
-            let ok = (d > DUAL_TOL && x < u) || (d < -DUAL_TOL && x > l);
-            if !ok {
-                continue;
-            }
-            if bland {
-                return Some((v, d));
-            }
-            if best.is_none_or(|(_, bd)| d.abs() > bd.abs()) {
-                best = Some((v, d));
-            }
-        }
-        best
+    fn pivots(&mut self) -> &mut usize {
+        &mut self.pivots
     }
 }
 

@@ -67,6 +67,50 @@ fn random_case(next: &mut impl FnMut(u64) -> u64) -> Case {
     }
 }
 
+/// A seeded linear congruential generator (Knuth's MMIX constants, from memory): a number
+/// in `0..n` per call.
+fn generator(mut seed: u64) -> impl FnMut(u64) -> u64 {
+    move |n: u64| {
+        seed = seed
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        (seed >> 33) % n
+    }
+}
+
+/// Asserts that `s` is at an optimum of `c` (its rows numbered in `s` by `row_of` and
+/// `set_row`): the same objective as microlp's simplex on the LP of [`reference_lp`] (an
+/// independent general-purpose solver), duals feasible (`≥ 0`, every column priced at
+/// least its objective) and meeting the primal value (strong duality), every row met.
+fn assert_optimal(s: &Gub, c: &Case, row_of: &[usize], set_row: &[usize], what: &str) {
+    let lp = reference_lp(c, &c.rhs, &c.set_rhs);
+    let reference = crate::solve::lp::Simplex.solve(&lp).unwrap();
+    let v = s.objective();
+    let tol = 1e-9 * v.abs().max(1.0);
+    assert!(
+        (v - reference.objective).abs() <= tol,
+        "{what}: {v} vs microlp {}",
+        reference.objective
+    );
+    let dual: f64 = (0..c.rhs.len())
+        .map(|i| c.rhs[i] * s.dual(row_of[i]))
+        .sum::<f64>()
+        + (0..c.set_rhs.len())
+            .map(|d| c.set_rhs[d] * s.dual(set_row[d]))
+            .sum::<f64>();
+    assert!((dual - v).abs() <= tol, "{what}: dual {dual} vs {v}");
+    for (j, (set, e)) in c.cols.iter().enumerate() {
+        let mut priced: f64 = e.iter().map(|&(i, a)| a * s.dual(row_of[i])).sum();
+        if *set != NONE {
+            priced += s.dual(set_row[*set]);
+        }
+        assert!(priced >= c.obj[j] - 1e-9, "{what}: column {j}");
+    }
+    assert!(row_of.iter().chain(set_row).all(|&r| s.dual(r) >= -1e-9));
+    let x: Vec<f64> = (0..c.cols.len()).map(|j| s.value(j)).collect();
+    assert!(lp.max_violation(&x) < 1e-9, "{what}");
+}
+
 /// The same LP for microlp: coupling rows first, then set rows as ordinary `≤` rows.
 fn reference_lp(c: &Case, rhs: &[f64], set_rhs: &[f64]) -> Lp {
     let mut lp = Lp::new(true);
@@ -105,13 +149,7 @@ fn reference_lp(c: &Case, rhs: &[f64], set_rhs: &[f64]) -> Lp {
 /// activation of a held demand), against microlp on the raised right-hand sides.
 #[test]
 fn random_gub_lps_match_microlp() {
-    let mut seed: u64 = 0x6b0b;
-    let mut next = move |n: u64| {
-        seed = seed
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        (seed >> 33) % n
-    };
+    let mut next = generator(0x6b0b);
     for case in 0..300 {
         let mut c = random_case(&mut next);
         let (m, g, n) = (c.rhs.len(), c.set_rhs.len(), c.cols.len());
@@ -159,30 +197,7 @@ fn random_gub_lps_match_microlp() {
         c.cols.push(extra);
         c.obj.push(o);
         s.solve(10_000).unwrap();
-        let lp = reference_lp(&c, &c.rhs, &c.set_rhs);
-        let reference = crate::solve::lp::Simplex.solve(&lp).unwrap();
-        let v = s.objective();
-        let tol = 1e-9 * v.abs().max(1.0);
-        assert!(
-            (v - reference.objective).abs() <= tol,
-            "case {case}: {v} vs microlp {}",
-            reference.objective
-        );
-        let dual: f64 = (0..m).map(|i| c.rhs[i] * s.dual(row_of[i])).sum::<f64>()
-            + (0..g)
-                .map(|d| c.set_rhs[d] * s.dual(set_row[d]))
-                .sum::<f64>();
-        assert!((dual - v).abs() <= tol, "case {case}: dual {dual} vs {v}");
-        for (j, (set, e)) in c.cols.iter().enumerate() {
-            let mut priced: f64 = e.iter().map(|&(i, a)| a * s.dual(row_of[i])).sum();
-            if *set != NONE {
-                priced += s.dual(set_row[*set]);
-            }
-            assert!(priced >= c.obj[j] - 1e-9, "case {case}: column {j}");
-        }
-        assert!(row_of.iter().chain(&set_row).all(|&r| s.dual(r) >= -1e-9));
-        let x: Vec<f64> = (0..c.cols.len()).map(|j| s.value(j)).collect();
-        assert!(lp.max_violation(&x) < 1e-9, "case {case}");
+        assert_optimal(&s, &c, &row_of, &set_row, &format!("case {case}"));
     }
 }
 
@@ -209,13 +224,7 @@ fn columns_outside_gub_form_are_refused() {
 /// as microlp on the final LP each time, duals feasible and meeting the primal value.
 #[test]
 fn rows_over_existing_columns_and_new_objectives_match_microlp() {
-    let mut seed: u64 = 0x90a1;
-    let mut next = move |n: u64| {
-        seed = seed
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
-        (seed >> 33) % n
-    };
+    let mut next = generator(0x90a1);
     for case in 0..200 {
         let mut c = random_case(&mut next);
         let (m, g, n) = (c.rhs.len(), c.set_rhs.len(), c.cols.len());
@@ -244,41 +253,17 @@ fn rows_over_existing_columns_and_new_objectives_match_microlp() {
             c.cols[j].1.push((m, a));
         }
         c.rhs.push(rhs);
-        let check = |s: &Gub, c: &Case, what: &str| {
-            let lp = reference_lp(c, &c.rhs, &c.set_rhs);
-            let reference = crate::solve::lp::Simplex.solve(&lp).unwrap();
-            let v = s.objective();
-            let tol = 1e-9 * v.abs().max(1.0);
-            assert!(
-                (v - reference.objective).abs() <= tol,
-                "case {case} {what}: {v} vs microlp {}",
-                reference.objective
-            );
-            let dual: f64 = (0..c.rhs.len())
-                .map(|i| c.rhs[i] * s.dual(row_of[i]))
-                .sum::<f64>()
-                + (0..g)
-                    .map(|d| c.set_rhs[d] * s.dual(set_row[d]))
-                    .sum::<f64>();
-            assert!(
-                (dual - v).abs() <= tol,
-                "case {case} {what}: dual {dual} vs {v}"
-            );
-            for (j, (set, e)) in c.cols.iter().enumerate() {
-                let mut priced: f64 = e.iter().map(|&(i, a)| a * s.dual(row_of[i])).sum();
-                if *set != NONE {
-                    priced += s.dual(set_row[*set]);
-                }
-                assert!(priced >= c.obj[j] - 1e-9, "case {case} {what}: column {j}");
-            }
-            let x: Vec<f64> = (0..n).map(|j| s.value(j)).collect();
-            assert!(lp.max_violation(&x) < 1e-9, "case {case} {what}");
-        };
         s.solve(10_000).unwrap();
-        check(&s, &c, "new row");
+        assert_optimal(&s, &c, &row_of, &set_row, &format!("case {case} new row"));
         c.obj = (0..n).map(|_| next(5) as f64).collect();
         s.set_objective(&c.obj);
         s.solve(10_000).unwrap();
-        check(&s, &c, "new objective");
+        assert_optimal(
+            &s,
+            &c,
+            &row_of,
+            &set_row,
+            &format!("case {case} new objective"),
+        );
     }
 }
