@@ -365,7 +365,14 @@ impl Gub {
             self.for_coupling(self.key[d], |i, a| v.push((i, -a * b)));
         }
         let alpha = self.solve_w(&v);
-        let mut keys: Vec<(usize, f64)> = r2.to_vec();
+        let keys = self.key_entries(&alpha, r2.to_vec());
+        (alpha, keys)
+    }
+
+    /// The keys' entries of a direction whose working part is `alpha`: `r₂_d − Σ_{working
+    /// v of d} alpha_v` per set, from the set part `r2`, sorted by set. O(m₁ + sets
+    /// touched · log).
+    fn key_entries(&self, alpha: &[f64], mut keys: Vec<(usize, f64)>) -> Vec<(usize, f64)> {
         for (p, &a) in alpha.iter().enumerate() {
             if a != 0.0 {
                 let d = self.set_of(self.work[p]);
@@ -374,7 +381,7 @@ impl Gub {
                 }
             }
         }
-        (alpha, merge_by_set(keys))
+        merge_sorted(keys)
     }
 
     /// The direction of the basic variables for entering variable `q`: `B⁻¹ a_q`, its
@@ -383,20 +390,13 @@ impl Gub {
     fn ftran_var(&self, q: Var) -> (Vec<f64>, Vec<(usize, f64)>) {
         let alpha = self.solve_w(&self.w_column(q));
         let d = self.set_of(q);
-        let mut keys: Vec<(usize, f64)> = if d == NONE {
+        let own = if d == NONE {
             Vec::new()
         } else {
             vec![(d, 1.0)]
         };
-        for (p, &a) in alpha.iter().enumerate() {
-            if a != 0.0 {
-                let e = self.set_of(self.work[p]);
-                if e != NONE {
-                    keys.push((e, -a));
-                }
-            }
-        }
-        (alpha, merge_by_set(keys))
+        let keys = self.key_entries(&alpha, own);
+        (alpha, keys)
     }
 
     /// Adds `t` times the direction (`alpha`, `keys`) to the basic variables.
@@ -425,14 +425,7 @@ impl Gub {
         if d != NONE {
             self.for_coupling(self.key[d], |i, a| c.push((i, -a)));
         }
-        c.sort_by_key(|&(i, _)| i);
-        let mut merged: Vec<(usize, f64)> = Vec::with_capacity(c.len());
-        for (i, a) in c {
-            match merged.last_mut() {
-                Some((k, b)) if *k == i => *b += a,
-                _ => merged.push((i, a)),
-            }
-        }
+        let mut merged = merge_sorted(c);
         merged.retain(|&(_, a)| a != 0.0);
         merged
     }
@@ -527,7 +520,8 @@ impl Gub {
         if self.rhs.len() > COUPLING_ROWS {
             return Err(Error::Solver("gub simplex: too many coupling rows".into()));
         }
-        self.duals();
+        // The duals are current: rows and columns added since the last solve leave them
+        // as they were (a new row's dual is 0), and `set_objective` recomputes them.
         pivoting::run(self, max_pivots, "gub simplex")
     }
 
@@ -766,8 +760,8 @@ impl Primal for Gub {
     }
 }
 
-/// `(set, entry)` pairs sorted by set, entries of one set summed. O(n log n).
-fn merge_by_set(mut keys: Vec<(usize, f64)>) -> Vec<(usize, f64)> {
+/// `(index, entry)` pairs sorted by index, entries of one index summed. O(n log n).
+fn merge_sorted(mut keys: Vec<(usize, f64)>) -> Vec<(usize, f64)> {
     keys.sort_by_key(|&(d, _)| d);
     let mut merged: Vec<(usize, f64)> = Vec::with_capacity(keys.len());
     for (d, a) in keys {

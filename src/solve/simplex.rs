@@ -213,18 +213,6 @@ impl Simplex {
         Ok(())
     }
 
-    /// Replaces the objective (one coefficient per column, in column order; columns past
-    /// `obj` get 0) and recomputes the duals and basic values from the inverse. The basis
-    /// and point are kept, so a point optimal for the old objective is the start of the
-    /// next [`Simplex::solve`] (a lexicographic phase re-optimises from the last phase's
-    /// vertex). O(m² + nonzeros).
-    pub fn set_objective(&mut self, obj: &[f64]) {
-        for (j, c) in self.obj.iter_mut().enumerate() {
-            *c = obj.get(j).copied().unwrap_or(0.0);
-        }
-        self.refresh();
-    }
-
     point_accessors!();
 
     fn get(&self, v: Var) -> f64 {
@@ -294,38 +282,6 @@ impl Simplex {
     /// re-inversion).
     pub fn solve(&mut self, max_pivots: usize) -> Result<()> {
         pivoting::run(self, max_pivots, "simplex")
-    }
-
-    /// The entering variable and its reduced cost: Dantzig's choice (largest |d|, lowest
-    /// index on ties) or, with `bland`, the lowest eligible index. A variable is eligible
-    /// when its reduced cost exceeds [`DUAL_TOL`] and it can move that way.
-    fn entering(&self, bland: bool) -> Option<(Var, f64)> {
-        let mut best: Option<(Var, f64)> = None;
-        let cols = (0..self.cols.len())
-            .filter(|&j| self.col_pos[j] == NONE)
-            .map(Var::Col);
-        let slacks = (0..self.rhs.len())
-            .filter(|&i| self.slack_pos[i] == NONE)
-            .map(Var::Slack);
-        for v in cols.chain(slacks) {
-            let (l, u) = self.bounds(v);
-            let x = self.get(v);
-            if x >= u && x <= l {
-                continue;
-            }
-            let d = self.reduced(v);
-            let ok = (d > DUAL_TOL && x < u) || (d < -DUAL_TOL && x > l);
-            if !ok {
-                continue;
-            }
-            if bland {
-                return Some((v, d));
-            }
-            if best.is_none_or(|(_, bd)| d.abs() > bd.abs()) {
-                best = Some((v, d));
-            }
-        }
-        best
     }
 }
 
@@ -417,8 +373,36 @@ impl Primal for Simplex {
         Ok(())
     }
 
+    /// The entering variable and its reduced cost: Dantzig's choice (largest |d|, lowest
+    /// index on ties) or, with `bland`, the lowest eligible index. A variable is eligible
+    /// when its reduced cost exceeds [`DUAL_TOL`] and it can move that way.
     fn entering(&mut self, bland: bool) -> Option<(Var, f64)> {
-        Simplex::entering(self, bland)
+        let mut best: Option<(Var, f64)> = None;
+        let cols = (0..self.cols.len())
+            .filter(|&j| self.col_pos[j] == NONE)
+            .map(Var::Col);
+        let slacks = (0..self.rhs.len())
+            .filter(|&i| self.slack_pos[i] == NONE)
+            .map(Var::Slack);
+        for v in cols.chain(slacks) {
+            let (l, u) = self.bounds(v);
+            let x = self.get(v);
+            if x >= u && x <= l {
+                continue;
+            }
+            let d = self.reduced(v);
+            let ok = (d > DUAL_TOL && x < u) || (d < -DUAL_TOL && x > l);
+            if !ok {
+                continue;
+            }
+            if bland {
+                return Some((v, d));
+            }
+            if best.is_none_or(|(_, bd)| d.abs() > bd.abs()) {
+                best = Some((v, d));
+            }
+        }
+        best
     }
 
     /// Ratio test over the entering variable's own range and every basic variable,
