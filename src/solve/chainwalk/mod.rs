@@ -75,7 +75,7 @@ pub use carried::{CarriedWalk, proven_walks};
 use master::Master;
 use rows::{Rows, Skeleton, rows_of, skeleton};
 use start::{fill, reroute, surviving_start};
-use verify::{verified, with_walks};
+use verify::{proven_shortcut, verified, with_walks};
 
 use super::chain::{self, EdgeKind};
 use super::colgen::Stats;
@@ -193,14 +193,11 @@ fn solve_caps(
             (answer, kept, rows.group_of.clone())
         };
         let (shortcut, kept, group_of) = answer;
-        if let Some(s) = shortcut {
-            let x = with_walks(net, &mut layered, &group_of, &s);
-            let rows = Rows::new(net, view, &layered);
-            let v = verified(&rows, &layered, &x, &s);
-            if v.verification.proven {
-                stats.no_flow += 1;
-                return Ok((v, cut_off, Some(s)));
-            }
+        if let Some(s) = shortcut
+            && let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s)
+        {
+            stats.no_flow += 1;
+            return Ok((v, cut_off, Some(s)));
         }
         // Fill: without a parent, every demand is routed as a repair re-routes (`fill`);
         // when that serves everything at stake, zero prices prove it without a master.
@@ -220,10 +217,7 @@ fn solve_caps(
                     arc_price: vec![0.0; net.arcs.len()],
                     fn_price: BTreeMap::new(),
                 };
-                let x = with_walks(net, &mut layered, &group_of, &s);
-                let rows = Rows::new(net, view, &layered);
-                let v = verified(&rows, &layered, &x, &s);
-                if v.verification.proven {
+                if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
                     stats.repaired += 1;
                     return Ok((v, cut_off, Some(s)));
                 }
@@ -280,10 +274,7 @@ fn solve_caps(
             };
             if let Some(s) = repaired {
                 stats.rounds += 1;
-                let x = with_walks(net, &mut layered, &group_of, &s);
-                let rows = Rows::new(net, view, &layered);
-                let v = verified(&rows, &layered, &x, &s);
-                if v.verification.proven {
+                if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
                     stats.repaired += 1;
                     return Ok((v, cut_off, Some(s)));
                 }

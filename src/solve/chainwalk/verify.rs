@@ -15,6 +15,7 @@ type SiteIdx = usize;
 
 use crate::solve::RESIDUAL_TOL;
 use crate::solve::chain::{self, EdgeKind, Layered};
+use crate::solve::surviving::Surviving;
 use crate::solve::types::{Verification, Verified};
 use crate::tol::PROOF_GAP_TOL;
 
@@ -87,6 +88,22 @@ pub(super) fn residual(rows: &Rows, s: &Solved) -> f64 {
         .flatten()
         .map(|&(key, l)| over(l, rows.rhs(key)))
         .fold(0.0, f64::max)
+}
+
+/// A shortcut's answer `s` (walks decided without a master) written onto the layered
+/// model's variables ([`with_walks`]) and verified ([`verified`]) on the outage's rows:
+/// `Some` only when proven. Cost: one verification.
+pub(super) fn proven_shortcut(
+    net: &Network,
+    view: &Surviving,
+    layered: &mut Layered,
+    group_of: &[usize],
+    s: &Solved,
+) -> Option<Verified> {
+    let x = with_walks(net, layered, group_of, s);
+    let rows = Rows::new(net, view, layered);
+    let v = verified(&rows, layered, &x, s);
+    v.verification.proven.then_some(v)
 }
 
 /// The verified result of walk answer `s` on the rows `layered` of `view`, as
