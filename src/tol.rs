@@ -157,6 +157,12 @@ pub const HOLD_TOL: f64 = 1e-9;
 /// exactly would send the master to the interior-point backend.
 pub const PLAN_FEASIBLE_TOL: f64 = 1e-9;
 
+/// Largest violation (relative to `max(1, rhs)`) of an arc or site row of the walk plan
+/// master that its simplex may leave out: such a row enters the simplex only when the
+/// point violates it by more; without it a row met to its last digit would be added (and
+/// solved again) for rounding alone.
+pub const LAZY_ROW_TOL: f64 = 1e-9;
+
 /// How much looser a hold is made (a factor on [`HOLD_TOL`]) when the backend cannot meet
 /// it at [`HOLD_TOL`]; without the retry such a plan would fail instead of being solved.
 pub const HOLD_RETRY: f64 = 1e3;

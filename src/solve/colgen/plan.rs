@@ -62,7 +62,7 @@ use crate::solve::cancel;
 use crate::solve::gub::{COUPLING_ROWS, Gub};
 use crate::solve::lp::{self, Lp, LpSolution, Sense};
 use crate::solve::surviving::Surviving;
-use crate::tol::PLAN_FEASIBLE_TOL;
+use crate::tol::{LAZY_ROW_TOL, PLAN_FEASIBLE_TOL};
 
 mod held;
 use held::hold;
@@ -80,8 +80,9 @@ pub struct PlanMaster<'a> {
     base: Lp,
     add: Vec<Option<usize>>,
     blocks: Vec<Block<'a>>,
-    /// Per row of `base`: whether it is a block's arc, site or demand row (rows the
-    /// simplex creates only when a walk column enters them).
+    /// Per row of `base`: whether it is *lazy*, a block's arc, site or demand row the
+    /// simplex does not carry from the start (a demand row enters with its first walk
+    /// column, an arc or site row only once the point violates it, and then stays).
     lazy: Vec<bool>,
     /// Per row of `base`: whether it is a block's demand row (a GUB set row of the
     /// simplex: every walk has coefficient 1 in its own demand's row and in no other).
@@ -133,12 +134,16 @@ struct Block<'a> {
 /// rows as its set rows, kept out of its inverse): a `≥` row of `base` enters negated, a
 /// minimisation with its objective negated. The caller's
 /// variables, the served variables and their rows (budget, served rows, goal rows) are
-/// created at once; a block's arc, site and demand rows only when a walk column enters
-/// them (until then the row holds with its slack basic, dual 0, as in the full model:
-/// every right-hand side is ≥ 0 and only walks and `−add_v` enter these rows).
+/// created at once; a block's demand row when its first walk column enters it; a block's
+/// arc or site row only when an optimum of the rows carried so far violates it (row
+/// generation, `PlanMaster::add_violated_rows`): most arc rows never bind, and carrying
+/// them all would put about 800 rows per outage into the dense inverse at 200 sites. A
+/// row left out has dual 0, which prices walks as the full model would when the row does
+/// not bind; once no carried optimum violates a left-out row, the point is feasible for
+/// the full master and the duals are feasible and complementary for it, so it is optimal.
 ///
-/// A row violated at the current point when it is added (a goal row; or, by rounding, a
-/// block row created when a held demand comes back) gets an *artificial* column
+/// A row violated at the current point when it is added (a goal row; an arc or site row
+/// found violated) gets an *artificial* column
 /// (coefficient −1 in the negated row, started at the violation and bounded by it, so the
 /// basis stays primal feasible and the row is never relaxed further);
 /// before the next objective a first phase maximises `−Σ artificial` (with column
@@ -219,7 +224,8 @@ impl Exact {
     }
 
     /// Adds the walk column `j` of `base` with `entries` (rows of `base`) at `value`,
-    /// creating the rows it enters. O(m · entries).
+    /// creating the demand row it enters; its entries in lazy rows the simplex does not
+    /// carry yet are left out (they enter with the row). O(m · entries).
     fn add_walk(
         &mut self,
         base: &Lp,
@@ -230,6 +236,11 @@ impl Exact {
         let mut sx_entries = Vec::with_capacity(entries.len());
         for &(r, a) in entries {
             if self.row[r].0 == NO_ROW {
+                if !self.set_row[r] {
+                    // A lazy row not yet violated: it enters the simplex with this
+                    // column's entry when it is (`PlanMaster::add_violated_rows`).
+                    continue;
+                }
                 self.add_base_row(base, r)?;
             }
             let (i, sign) = self.row[r];
@@ -448,16 +459,40 @@ impl<'a> PlanMaster<'a> {
     }
 
     /// Rows besides demand rows the simplex copy of `base` would start with: the eager
-    /// rows and every lazy row a walk column found so far enters. O(rows + walk entries).
+    /// rows and the lazy rows found violated before. O(rows).
     fn exact_rows(&self) -> usize {
-        let mut used: Vec<bool> = self.lazy.iter().map(|&l| !l).collect();
-        for (r, _) in self.walk_entries.iter().flatten().flatten() {
-            used[*r] = true;
-        }
-        used.iter()
+        self.lazy
+            .iter()
             .zip(&self.set_row)
-            .filter(|&(&u, &set)| u && !set)
+            .filter(|&(&lazy, &set)| !lazy && !set)
             .count()
+    }
+
+    /// Adds to the simplex every lazy row (a block's arc or site row) it does not carry
+    /// and the current point violates by more than [`LAZY_ROW_TOL`] (relative to
+    /// `max(1, rhs)`), each with its artificial column, and makes the row eager for later
+    /// rebuilds. Returns how many rows were added. O(nonzeros of the absent rows).
+    fn add_violated_rows(&mut self) -> Result<usize> {
+        let ex = self.exact.as_mut().expect("built by the caller");
+        let mut added = 0;
+        for r in 0..self.base.rows.len() {
+            if !self.lazy[r] || self.set_row[r] || ex.row[r].0 != NO_ROW {
+                continue;
+            }
+            let row = &self.base.rows[r];
+            let lhs: f64 = row
+                .coeffs
+                .iter()
+                .filter(|&&(j, _)| ex.col[j] != NO_ROW)
+                .map(|&(j, a)| a * ex.sx.value(ex.col[j]))
+                .sum();
+            if lhs > row.rhs + LAZY_ROW_TOL * row.rhs.abs().max(1.0) {
+                ex.add_base_row(&self.base, r)?;
+                self.lazy[r] = false;
+                added += 1;
+            }
+        }
+        Ok(added)
     }
 
     /// Builds the simplex copy of `base` (module comment of [`Exact`]): the caller's and
@@ -513,37 +548,55 @@ impl<'a> PlanMaster<'a> {
             ex.row.push(r);
             ex.goals.push(g.clone());
         }
-        // First phase: drive the artificials of violated goal rows to zero, then hold them.
-        if !ex.artificial.is_empty() {
-            let scale: f64 = ex
-                .artificial
-                .iter()
-                .map(|&c| ex.sx.value(c))
-                .sum::<f64>()
-                .max(1.0);
-            let mut obj = vec![0.0; ex.sx.cols()];
-            for &c in &ex.artificial {
-                obj[c] = -1.0;
-            }
-            self.exact_rounds(&obj, &[], true)?;
+        loop {
+            self.first_phase()?;
             let ex = self.exact.as_mut().expect("built above");
-            let left: f64 = ex.artificial.iter().map(|&c| ex.sx.value(c).max(0.0)).sum();
-            if left > PLAN_FEASIBLE_TOL * scale {
-                return Err(Error::Solver(format!(
-                    "plan master: goal rows short by {left} on the walk columns"
-                )));
+            let sg = if maximise { 1.0 } else { -1.0 };
+            let mut obj = vec![0.0; ex.sx.cols()];
+            for &(j, c) in objective {
+                obj[ex.col[j]] += sg * c;
             }
-            let entries: Vec<(usize, f64)> = ex.artificial.iter().map(|&c| (c, 1.0)).collect();
-            ex.artificial.clear();
-            ex.add_row(&entries, Sense::Le, left)?;
+            let sol = self.exact_rounds(&obj, objective, maximise)?;
+            // Optimal over every walk with the rows it carries; when the point also meets
+            // every lazy row it is optimal for the whole master (those rows' duals are 0).
+            if self.add_violated_rows()? == 0 {
+                return Ok(sol);
+            }
         }
-        let ex = self.exact.as_mut().expect("built above");
-        let sg = if maximise { 1.0 } else { -1.0 };
+    }
+
+    /// The first phase: when rows violated at the point they were added hold artificial
+    /// columns, drives their sum to zero by column generation (objective `−Σ artificial`)
+    /// and then holds them with the row `Σ artificial ≤` the sum left; an error when more
+    /// than [`PLAN_FEASIBLE_TOL`] of the starting violation is left (the rows cannot be
+    /// met on the walk columns). O(rounds · (re-optimisation + pricing)).
+    fn first_phase(&mut self) -> Result<()> {
+        let ex = self.exact.as_mut().expect("built by the caller");
+        if ex.artificial.is_empty() {
+            return Ok(());
+        }
+        let scale: f64 = ex
+            .artificial
+            .iter()
+            .map(|&c| ex.sx.value(c))
+            .sum::<f64>()
+            .max(1.0);
         let mut obj = vec![0.0; ex.sx.cols()];
-        for &(j, c) in objective {
-            obj[ex.col[j]] += sg * c;
+        for &c in &ex.artificial {
+            obj[c] = -1.0;
         }
-        self.exact_rounds(&obj, objective, maximise)
+        self.exact_rounds(&obj, &[], true)?;
+        let ex = self.exact.as_mut().expect("built by the caller");
+        let left: f64 = ex.artificial.iter().map(|&c| ex.sx.value(c).max(0.0)).sum();
+        if left > PLAN_FEASIBLE_TOL * scale {
+            return Err(Error::Solver(format!(
+                "plan master: goal rows short by {left} on the walk columns"
+            )));
+        }
+        let entries: Vec<(usize, f64)> = ex.artificial.iter().map(|&c| (c, 1.0)).collect();
+        ex.artificial.clear();
+        ex.add_row(&entries, Sense::Le, left)?;
+        Ok(())
     }
 
     /// Column generation on the simplex with the simplex objective `obj` (per simplex
@@ -658,15 +711,13 @@ impl<'a> PlanMaster<'a> {
                 .collect();
             loads.push((site, f));
             loads.push((b.served_row, f));
-            // Every row the walk enters exists in the simplex before any right-hand side
-            // moves: a row created while the basic values carry a shift not yet taken
-            // back by the column would look violated and get a spurious artificial.
-            if let Some(ex) = self.exact.as_mut() {
-                for r in loads.iter().map(|&(r, _)| r).chain([b.dem_row[d]]) {
-                    if ex.row[r].0 == NO_ROW {
-                        ex.add_base_row(&self.base, r)?;
-                    }
-                }
+            // A lazy row the simplex does not carry takes the shift in `base` only: the
+            // column at `f` takes the load back, so the row is not violated when it is
+            // created later. The demand row exists before any basic value moves.
+            if let Some(ex) = self.exact.as_mut()
+                && ex.row[b.dem_row[d]].0 == NO_ROW
+            {
+                ex.add_base_row(&self.base, b.dem_row[d])?;
             }
             for (r, delta) in loads {
                 self.base.rows[r].rhs += delta;
