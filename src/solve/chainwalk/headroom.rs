@@ -53,7 +53,8 @@
 
 use std::collections::BTreeMap;
 
-use super::rows::{RowKey, Rows, layered_rows};
+use super::rows::{RowKey, Rows};
+use super::skeleton::layered_rows;
 use super::start::reroute;
 use super::verify::{residual, with_walks};
 use super::{ChainWalk, Solved};

@@ -66,6 +66,7 @@ pub mod headroom;
 mod master;
 mod rooted;
 mod rows;
+mod skeleton;
 mod start;
 mod verify;
 
@@ -73,7 +74,8 @@ use std::collections::BTreeMap;
 
 pub use carried::{CarriedWalk, proven_walks};
 use master::Master;
-use rows::{Rows, Skeleton, rows_of, skeleton};
+use rows::Rows;
+use skeleton::{Skeleton, rows_of, skeleton};
 use start::{fill, reroute, surviving_start};
 use verify::{proven_shortcut, verified, with_walks};
 
@@ -419,7 +421,8 @@ impl Evaluator for ChainWalks {
 
 #[cfg(test)]
 mod tests {
-    use super::rows::{RowKey, layered_rows};
+    use super::rows::RowKey;
+    use super::skeleton::layered_rows;
     use super::*;
     use crate::scenario::{Element, Scenario};
 

@@ -1,6 +1,6 @@
 //! The rows of the layered walk master in one outage and the pricing of layered walks:
-//! [`layered_rows`] computes the layered edge LP's rows (groups, lowered capacities)
-//! without building it, [`Rows::coefficients`] a walk's column, and [`Rows::price`] the
+//! [`Rows::coefficients`] gives a walk's column (on the rows of
+//! [`super::skeleton::layered_rows`]), and [`Rows::price`] the
 //! cheapest layered walk of every demand (shortest-path trees rooted at the function sites,
 //! [`super::rooted`]) with the dual bound at the given prices.
 
@@ -14,7 +14,7 @@ use crate::model::{Chains, FunctionIdx, Network};
 type SiteIdx = usize;
 
 use crate::solve::chain::{self, EdgeKind, Layered};
-use crate::solve::surviving::{Surviving, Unservable};
+use crate::solve::surviving::Surviving;
 
 /// The rows of the layered model in one outage, and the pricing graph.
 pub(super) struct Rows<'a> {
@@ -272,148 +272,4 @@ pub(super) struct Priced {
     pub(super) walks: Vec<ChainWalk>,
     /// The dual bound at these prices.
     pub(super) bound: f64,
-}
-
-/// The rows of the layered model of `view` with demand caps `bound`, exactly as
-/// [`chain::build`] makes them (same (origin, chain) groups in the same order, same arcs and
-/// (site, function) pairs with a row, same right-hand sides: capacities lowered to what the
-/// groups that can use them could put there), without building the LP: no edges and no
-/// demand variables yet ([`with_walks`] adds those of an answer). Also returns the cut-off
-/// demands with their reason. O(groups · (k + 1) · (sites + arcs)).
-pub(super) fn layered_rows(
-    net: &Network,
-    view: &Surviving,
-    bound: &[f64],
-) -> (Layered, Vec<(usize, Unservable)>) {
-    rows_of(net, &skeleton(net, view, bound), bound)
-}
-
-/// An (origin, chain) group's key.
-type GroupKey = (SiteIdx, Vec<FunctionIdx>);
-
-/// The part of [`layered_rows`] that depends on the caps only through which of them are
-/// positive: the (origin, chain) groups with, per group, the arcs and function sites of
-/// its layered graph that lie on some walk from the origin to a destination, and the
-/// cut-off demands. The required and the volume LP of one outage share it when the same
-/// demands have a positive cap.
-pub(super) struct Skeleton {
-    positive: Vec<bool>,
-    groups: Vec<(GroupKey, Vec<usize>)>,
-    /// Per group: (layer, arc) of its live arcs, layer by layer in `view.arcs` order.
-    live_arcs: Vec<Vec<(usize, usize)>>,
-    /// Per group: (layer, site) where it may apply the function of that layer.
-    live_fns: Vec<Vec<(usize, SiteIdx)>>,
-    cut_off: Vec<(usize, Unservable)>,
-}
-
-impl Skeleton {
-    /// The caps `bound` are positive for exactly the demands this skeleton was made for.
-    /// O(demands).
-    pub(super) fn fits(&self, bound: &[f64]) -> bool {
-        self.positive
-            .iter()
-            .zip(bound)
-            .all(|(&p, &b)| p == (b > 0.0))
-    }
-}
-
-/// The [`Skeleton`] of `view` for caps `bound`. O(groups · (k + 1) · (sites + arcs)).
-pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skeleton {
-    let ch = net.chains.as_ref().expect("a network with functions");
-    let n = net.sites.len();
-    let mut memo = chain::ReachMemo::new(view);
-    let (by_key, cut_off) = chain::demand_groups(net, ch, &mut memo, bound);
-    let mut sk = Skeleton {
-        positive: bound.iter().map(|&b| b > 0.0).collect(),
-        groups: Vec::new(),
-        live_arcs: Vec::new(),
-        live_fns: Vec::new(),
-        cut_off,
-    };
-    for ((origin, chain_fns), demands) in by_key {
-        let k = chain_fns.len();
-        let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
-        let fwd = chain::forward_with(net, ch, &mut memo, origin, &chain_fns);
-        let back = chain::backward_with(net, ch, &mut memo, &dests, &chain_fns);
-        let live = |node: usize| fwd[node] && back[node];
-        let (mut arcs, mut fns) = (Vec::new(), Vec::new());
-        for j in 0..=k {
-            for &a in &view.arcs {
-                let arc = &net.arcs[a];
-                if live(j * n + arc.from.0) && live(j * n + arc.to.0) {
-                    arcs.push((j, a));
-                }
-            }
-            if let Some(&f) = chain_fns.get(j) {
-                for v in 0..n {
-                    if chain::runs(ch, view, v, f) && live(j * n + v) && live((j + 1) * n + v) {
-                        fns.push((j, v));
-                    }
-                }
-            }
-        }
-        sk.groups.push(((origin, chain_fns), demands));
-        sk.live_arcs.push(arcs);
-        sk.live_fns.push(fns);
-    }
-    sk
-}
-
-/// [`layered_rows`] from its [`Skeleton`] `sk` (made for caps with the same positive
-/// entries as `bound`). O(Σ live arcs and function sites of the groups).
-pub(super) fn rows_of(
-    net: &Network,
-    sk: &Skeleton,
-    bound: &[f64],
-) -> (Layered, Vec<(usize, Unservable)>) {
-    let ch = net.chains.as_ref().expect("a network with functions");
-    let mut arc_need: Vec<Option<f64>> = vec![None; net.arcs.len()];
-    let mut fn_need: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
-    let mut groups = Vec::new();
-    for (g, ((origin, chain_fns), demands)) in sk.groups.iter().enumerate() {
-        let cumulative = ch.cumulative(chain_fns);
-        let total: f64 = demands.iter().map(|&d| bound[d]).sum();
-        for &(j, a) in &sk.live_arcs[g] {
-            *arc_need[a].get_or_insert(0.0) += cumulative[j] * total;
-        }
-        for &(j, v) in &sk.live_fns[g] {
-            *fn_need.entry((v, chain_fns[j])).or_default() += cumulative[j] * total;
-        }
-        groups.push(chain::Group {
-            origin: *origin,
-            chain: chain_fns.clone(),
-            cumulative,
-            demands: demands.clone(),
-        });
-    }
-    let arc_row: Vec<Option<usize>> = arc_need
-        .iter()
-        .enumerate()
-        .map(|(a, need)| need.map(|_| a))
-        .collect();
-    let arc_cap: Vec<f64> = arc_need
-        .iter()
-        .enumerate()
-        .map(|(a, need)| need.map_or(0.0, |need| net.arcs[a].capacity.min(need)))
-        .collect();
-    let function_cap: BTreeMap<(SiteIdx, FunctionIdx), f64> = fn_need
-        .iter()
-        .map(|(&(v, f), &need)| ((v, f), ch.capacity[v][f].min(need)))
-        .collect();
-    let function_row = function_cap
-        .keys()
-        .enumerate()
-        .map(|(i, &k)| (k, i))
-        .collect();
-    let layered = Layered {
-        edges: vec![Vec::new(); groups.len()],
-        groups,
-        demand_var: vec![None; net.demands.len()],
-        arc_row,
-        function_row,
-        arc_cap,
-        function_cap,
-        bound: bound.to_vec(),
-    };
-    (layered, sk.cut_off.clone())
 }
