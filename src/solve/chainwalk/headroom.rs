@@ -257,6 +257,7 @@ fn by_walks(
             flow,
             arc_price: p.arc_price.clone(),
             fn_price: p.fn_price.clone(),
+            coefs: Default::default(),
         }
     };
     // The parent's walks that carried flow and survive, at their flows.
@@ -352,6 +353,7 @@ fn by_walks(
                 flow,
                 arc_price,
                 fn_price,
+                coefs: Default::default(),
             }
         })
     };
@@ -457,7 +459,7 @@ fn rerouted(
     if short.walks.is_empty() {
         return None;
     }
-    reroute(rows, &short, &mut walks, false);
+    reroute(rows, &short, &mut walks, None, false);
     Some(walks)
 }
 

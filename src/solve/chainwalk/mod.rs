@@ -71,10 +71,11 @@ mod start;
 mod verify;
 
 use std::collections::BTreeMap;
+use std::sync::OnceLock;
 
 pub use carried::{CarriedWalk, proven_walks};
 use master::Master;
-use rows::Rows;
+use rows::{Coefs, Rows};
 use skeleton::{Skeleton, rows_of, skeleton};
 use start::{fill, reroute, surviving_start};
 use verify::{proven_shortcut, verified, with_walks};
@@ -143,6 +144,47 @@ pub struct Solved {
     pub arc_price: Vec<f64>,
     /// Per (site, function) row of the master.
     pub fn_price: BTreeMap<(SiteIdx, FunctionIdx), f64>,
+    /// Per walk: its column coefficients, set by the engine where it had them and
+    /// otherwise computed on first use ([`Solved::coefs`]).
+    coefs: OnceLock<Vec<Coefs>>,
+}
+
+impl Solved {
+    /// An optimum of walks `walks` at flows `flow` (value: their sum) with prices
+    /// `arc_price` and `fn_price`, the walks' coefficients `coefs` when known (aligned
+    /// with `walks`). O(walks).
+    fn with(
+        (walks, flow): (Vec<ChainWalk>, Vec<f64>),
+        arc_price: Vec<f64>,
+        fn_price: BTreeMap<(SiteIdx, FunctionIdx), f64>,
+        coefs: Option<Vec<Coefs>>,
+    ) -> Solved {
+        debug_assert!(coefs.as_ref().is_none_or(|c| c.len() == walks.len()));
+        Solved {
+            value: flow.iter().sum(),
+            walks,
+            flow,
+            arc_price,
+            fn_price,
+            coefs: coefs.map(OnceLock::from).unwrap_or_default(),
+        }
+    }
+
+    /// Per walk, its column coefficients ([`rows::coefficients_in`] with its demand's
+    /// chain; the same on every outage), computed once. O(Σ walk lengths · log) on first
+    /// use, O(1) after.
+    fn coefs(&self, net: &Network) -> &[Coefs] {
+        self.coefs.get_or_init(|| {
+            let ch = net.chains.as_ref().expect("a network with functions");
+            self.walks
+                .iter()
+                .map(|w| {
+                    let chain = &ch.chain[w.demand];
+                    rows::coefficients_in(net, &ch.cumulative(chain), chain, w).into()
+                })
+                .collect()
+        })
+    }
 }
 
 /// What a child scenario starts from: the parent's proven optima (required caps, and
@@ -183,14 +225,12 @@ fn solve_caps(
                 && k.intact()
             {
                 stats.rounds += 1;
-                let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = k.walks.iter().cloned().unzip();
-                answer = Some(Solved {
-                    value: flow.iter().sum(),
-                    walks,
-                    flow,
-                    arc_price: s.arc_price.clone(),
-                    fn_price: s.fn_price.clone(),
-                });
+                answer = Some(Solved::with(
+                    k.walks.iter().cloned().unzip(),
+                    s.arc_price.clone(),
+                    s.fn_price.clone(),
+                    Some(k.coefs.clone()),
+                ));
             }
             (answer, kept, rows.group_of.clone())
         };
@@ -207,18 +247,16 @@ fn solve_caps(
         if kept.is_none() {
             let rows = Rows::new(net, view, &layered);
             let mut walks = Vec::new();
-            fill(&rows, &layered.bound, &mut walks, true);
+            let coefs = fill(&rows, &layered.bound, &mut walks, Some(Vec::new()), true);
             let value: f64 = walks.iter().map(|(_, f)| f).sum();
             if value >= rows.scale * (1.0 - GAP_TOL) {
                 stats.rounds += 1;
-                let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
-                let s = Solved {
-                    value,
-                    walks,
-                    flow,
-                    arc_price: vec![0.0; net.arcs.len()],
-                    fn_price: BTreeMap::new(),
-                };
+                let s = Solved::with(
+                    walks.into_iter().unzip(),
+                    vec![0.0; net.arcs.len()],
+                    BTreeMap::new(),
+                    Some(coefs),
+                );
                 if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
                     stats.repaired += 1;
                     return Ok((v, cut_off, Some(s)));
@@ -232,7 +270,7 @@ fn solve_caps(
         // on this outage's rows (one pricing pass, before any verification) meets the
         // value. The surviving walks with the re-routed flow: the master's start when the
         // repair does not decide the LP (a feasible point of the new rows).
-        let mut rerouted: Option<Vec<(ChainWalk, f64)>> = None;
+        let mut rerouted: Option<(Vec<(ChainWalk, f64)>, Vec<Coefs>)> = None;
         if let (Some(p), Some(k)) = (start, &kept)
             && !k.scaled
             && !k.intact()
@@ -244,8 +282,8 @@ fn solve_caps(
                 // at stake here (the target is then to serve it all): measured, below that
                 // the rows are full around the failure and the rip-ups rarely decide the LP.
                 let slack = p.value >= rows.scale * (1.0 - GAP_TOL);
-                reroute(&rows, p, &mut walks, slack);
-                rerouted = Some(walks.clone());
+                let coefs = reroute(&rows, p, &mut walks, Some(k.coefs.clone()), slack);
+                rerouted = Some((walks.clone(), coefs.clone()));
                 let value: f64 = walks.iter().map(|(_, f)| f).sum();
                 let all = rows.scale;
                 let tol = GAP_TOL * rows.scale;
@@ -255,23 +293,13 @@ fn solve_caps(
                     rows.price(&p.arc_price, &p.fn_price, None).bound - value <= tol
                 };
                 (reached || priced).then(|| {
-                    let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
                     let zero = value >= all - tol;
-                    Solved {
-                        value,
-                        walks,
-                        flow,
-                        arc_price: if zero {
-                            vec![0.0; net.arcs.len()]
-                        } else {
-                            p.arc_price.clone()
-                        },
-                        fn_price: if zero {
-                            BTreeMap::new()
-                        } else {
-                            p.fn_price.clone()
-                        },
-                    }
+                    let (arc_price, fn_price) = if zero {
+                        (vec![0.0; net.arcs.len()], BTreeMap::new())
+                    } else {
+                        (p.arc_price.clone(), p.fn_price.clone())
+                    };
+                    Solved::with(walks.into_iter().unzip(), arc_price, fn_price, Some(coefs))
                 })
             };
             if let Some(s) = repaired {
@@ -291,15 +319,16 @@ fn solve_caps(
                 None => vec![true; net.demands.len()],
             };
             let mut master = Master::new(&rows, active);
-            let walks = rerouted
-                .map(merged)
-                .or_else(|| kept.map(|k| k.walks))
+            let (walks, coefs) = rerouted
+                .map(|(walks, coefs)| merged(walks, coefs))
+                .or_else(|| kept.map(|k| (k.walks, k.coefs)))
                 .unwrap_or_default();
             let (free, fixed): (Vec<_>, Vec<_>) = walks
                 .into_iter()
-                .partition(|(w, _)| master.active[w.demand]);
-            for (w, f) in fixed.into_iter().chain(free) {
-                master.add(w, f);
+                .zip(coefs)
+                .partition(|((w, _), _)| master.active[w.demand]);
+            for ((w, f), cs) in fixed.into_iter().chain(free) {
+                master.add(w, f, Some(cs));
             }
             master.run(stats)?
         };
@@ -317,21 +346,23 @@ fn solve_caps(
     Ok((v, cut_off, None))
 }
 
-/// `walks` with equal walks merged into the first (flows summed), in first-seen order.
-/// O(walks · walk length).
-fn merged(walks: Vec<(ChainWalk, f64)>) -> Vec<(ChainWalk, f64)> {
+/// `walks` with equal walks merged into the first (flows summed), in first-seen order,
+/// with their coefficients `coefs` (aligned with `walks`). O(walks · walk length).
+fn merged(walks: Vec<(ChainWalk, f64)>, coefs: Vec<Coefs>) -> (Vec<(ChainWalk, f64)>, Vec<Coefs>) {
     let mut index: hash::WordMap<ChainWalk, usize> = Default::default();
     let mut out: Vec<(ChainWalk, f64)> = Vec::with_capacity(walks.len());
-    for (w, f) in walks {
+    let mut out_coefs: Vec<Coefs> = Vec::with_capacity(walks.len());
+    for ((w, f), cs) in walks.into_iter().zip(coefs) {
         match index.get(&w) {
             Some(&i) => out[i].1 += f,
             None => {
                 index.insert(w.clone(), out.len());
                 out.push((w, f));
+                out_coefs.push(cs);
             }
         }
     }
-    out
+    (out, out_coefs)
 }
 
 /// The walk engine's answer for one outage of a network with `functions`.

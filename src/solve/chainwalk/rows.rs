@@ -113,48 +113,16 @@ impl<'a> Rows<'a> {
 
     /// The coefficients of walk `w` in the master's rows (arcs and functions weighted by
     /// the cumulative gain of their layer, summed when a row is used twice; 1 on the
-    /// demand's cap row), in row-key order. O(walk length · log).
+    /// demand's cap row), in row-key order: [`coefficients_in`] with its group's chain.
+    /// O(walk length · log).
     pub(super) fn coefficients(&self, w: &ChainWalk) -> Vec<(RowKey, f64)> {
         let group = &self.layered.groups[self.group_of[w.demand]];
-        let (arcs, nf) = (self.net.arcs.len(), self.ch.functions.len());
-        // Each term keyed by its row as one integer in `RowKey` order (arcs, then (site,
-        // function) pairs by site and function), then its position in the walk: sorting
-        // the keys (distinct) orders the rows as `RowKey` does and a row used twice in walk
-        // order, which its terms are summed in (into the first).
-        let mut terms: Vec<(u64, f64)> = w
-            .edges
-            .iter()
-            .enumerate()
-            .map(|(pos, e)| {
-                let (row, layer) = match *e {
-                    EdgeKind::Arc { arc, layer } => (arc, layer),
-                    EdgeKind::Function { site, layer } => {
-                        (arcs + site * nf + group.chain[layer], layer)
-                    }
-                };
-                (((row as u64) << 24) | pos as u64, group.cumulative[layer])
-            })
-            .collect();
-        terms.sort_unstable_by_key(|t| t.0);
-        terms.dedup_by(|later, first| {
-            let same = later.0 >> 24 == first.0 >> 24;
-            if same {
-                first.1 += later.1;
-            }
-            same
-        });
-        let mut out: Vec<(RowKey, f64)> = Vec::with_capacity(terms.len() + 1);
-        out.extend(terms.into_iter().map(|(key, c)| {
-            let row = (key >> 24) as usize;
-            let key = if row < arcs {
-                RowKey::Arc(row)
-            } else {
-                RowKey::Function((row - arcs) / nf, (row - arcs) % nf)
-            };
-            (key, c)
-        }));
-        out.push((RowKey::Demand(w.demand), 1.0));
-        out
+        coefficients_in(self.net, &group.cumulative, &group.chain, w)
+    }
+
+    /// [`Rows::coefficients`] as a shared [`Coefs`]. O(walk length · log).
+    pub(super) fn coefs(&self, w: &ChainWalk) -> Coefs {
+        self.coefficients(w).into()
     }
 
     /// The right-hand side of a row: the edge LP's (lowered) capacity, or the cap.
@@ -262,6 +230,61 @@ impl<'a> Rows<'a> {
         }
         Priced { cost, walks, bound }
     }
+}
+
+/// A walk's column coefficients ([`Rows::coefficients`]), shared by the lists that hold
+/// the walk. They depend on the walk and its demand's chain only, never on the outage
+/// (the right-hand sides do), so a parent's walks keep theirs for every child scenario.
+pub(super) type Coefs = std::sync::Arc<[(RowKey, f64)]>;
+
+/// The coefficients of walk `w` of a demand with chain `chain` (cumulative gains
+/// `cumulative`, [`Chains::cumulative`]): arcs and functions weighted by the cumulative
+/// gain of their layer, summed when a row is used twice (in walk order), 1 on the
+/// demand's cap row, in row-key order. O(walk length · log).
+pub(super) fn coefficients_in(
+    net: &Network,
+    cumulative: &[f64],
+    chain: &[FunctionIdx],
+    w: &ChainWalk,
+) -> Vec<(RowKey, f64)> {
+    let ch = net.chains.as_ref().expect("a network with functions");
+    let (arcs, nf) = (net.arcs.len(), ch.functions.len());
+    // Each term keyed by its row as one integer in `RowKey` order (arcs, then (site,
+    // function) pairs by site and function), then its position in the walk: sorting
+    // the keys (distinct) orders the rows as `RowKey` does and a row used twice in walk
+    // order, which its terms are summed in (into the first).
+    let mut terms: Vec<(u64, f64)> = w
+        .edges
+        .iter()
+        .enumerate()
+        .map(|(pos, e)| {
+            let (row, layer) = match *e {
+                EdgeKind::Arc { arc, layer } => (arc, layer),
+                EdgeKind::Function { site, layer } => (arcs + site * nf + chain[layer], layer),
+            };
+            (((row as u64) << 24) | pos as u64, cumulative[layer])
+        })
+        .collect();
+    terms.sort_unstable_by_key(|t| t.0);
+    terms.dedup_by(|later, first| {
+        let same = later.0 >> 24 == first.0 >> 24;
+        if same {
+            first.1 += later.1;
+        }
+        same
+    });
+    let mut out: Vec<(RowKey, f64)> = Vec::with_capacity(terms.len() + 1);
+    out.extend(terms.into_iter().map(|(key, c)| {
+        let row = (key >> 24) as usize;
+        let key = if row < arcs {
+            RowKey::Arc(row)
+        } else {
+            RowKey::Function((row - arcs) / nf, (row - arcs) % nf)
+        };
+        (key, c)
+    }));
+    out.push((RowKey::Demand(w.demand), 1.0));
+    out
 }
 
 /// The outcome of one pricing pass.

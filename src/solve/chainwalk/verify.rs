@@ -79,8 +79,8 @@ pub(super) fn residual(rows: &Rows, s: &Solved) -> f64 {
         }
     };
     let mut load: Vec<Option<(RowKey, f64)>> = vec![None; rows.len()];
-    for (w, &f) in s.walks.iter().zip(&s.flow) {
-        for (key, c) in rows.coefficients(w) {
+    for (&f, cs) in s.flow.iter().zip(s.coefs(rows.net)) {
+        for &(key, c) in cs.iter() {
             load[rows.index(key)].get_or_insert((key, 0.0)).1 += c * f;
         }
     }
