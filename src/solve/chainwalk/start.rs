@@ -329,7 +329,20 @@ pub(super) fn fill(
     for d in 0..net.demands.len() {
         res[rows.index(RowKey::Demand(d))] = layered.bound[d];
     }
-    let mut through = vec![Vec::new(); if rip_up { rows.len() } else { 0 }];
+    let mut through: Vec<Vec<usize>> = Vec::new();
+    if rip_up {
+        // Each row's list sized once for the walks there now (and a few re-routed ones).
+        let mut count = vec![0usize; rows.len()];
+        for cs in &coefs {
+            for &(key, _) in cs.iter() {
+                count[rows.index(key)] += 1;
+            }
+        }
+        through = count
+            .into_iter()
+            .map(|c| Vec::with_capacity(c + 4))
+            .collect();
+    }
     for (j, (cs, (_, f))) in coefs.iter().zip(walks.iter()).enumerate() {
         for &(key, c) in cs.iter() {
             res[rows.index(key)] -= c * f;
