@@ -170,6 +170,14 @@ impl Solved {
         }
     }
 
+    /// The walks with their flows, and their coefficients (the inverse of
+    /// [`Solved::with`]). O(walks) once the coefficients are known.
+    fn into_walks(self, net: &Network) -> (Vec<(ChainWalk, f64)>, Vec<Coefs>) {
+        self.coefs(net);
+        let coefs = self.coefs.into_inner().unwrap_or_default();
+        (self.walks.into_iter().zip(self.flow).collect(), coefs)
+    }
+
     /// Per walk, its column coefficients ([`rows::coefficients_in`] with its demand's
     /// chain; the same on every outage), computed once. O(Σ walk lengths · log) on first
     /// use, O(1) after.
@@ -219,27 +227,31 @@ fn solve_caps(
     if !layered.groups.is_empty() {
         let answer = {
             let rows = Rows::new(net, view, &layered);
-            let kept = start.map(|s| surviving_start(&rows, s));
+            let mut kept = start.map(|s| surviving_start(&rows, s));
             let mut answer = None;
-            if let (Some(s), Some(k)) = (start, &kept)
+            if let (Some(s), Some(k)) = (start, &mut kept)
                 && k.intact()
             {
                 stats.rounds += 1;
+                // The start's walks move into the answer (back below when not proven).
                 answer = Some(Solved::with(
-                    k.walks.iter().cloned().unzip(),
+                    std::mem::take(&mut k.walks).into_iter().unzip(),
                     s.arc_price.clone(),
                     s.fn_price.clone(),
-                    Some(k.coefs.clone()),
+                    Some(std::mem::take(&mut k.coefs)),
                 ));
             }
             (answer, kept, rows.group_of.clone())
         };
-        let (shortcut, kept, group_of) = answer;
-        if let Some(s) = shortcut
-            && let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s)
-        {
-            stats.no_flow += 1;
-            return Ok((v, cut_off, Some(s)));
+        let (shortcut, mut kept, group_of) = answer;
+        if let Some(s) = shortcut {
+            if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
+                stats.no_flow += 1;
+                return Ok((v, cut_off, Some(s)));
+            }
+            if let Some(k) = &mut kept {
+                (k.walks, k.coefs) = s.into_walks(net);
+            }
         }
         // Fill: without a parent, every demand is routed as a repair re-routes (`fill`);
         // when that serves everything at stake, zero prices prove it without a master.
@@ -271,19 +283,26 @@ fn solve_caps(
         // value. The surviving walks with the re-routed flow: the master's start when the
         // repair does not decide the LP (a feasible point of the new rows).
         let mut rerouted: Option<(Vec<(ChainWalk, f64)>, Vec<Coefs>)> = None;
-        if let (Some(p), Some(k)) = (start, &kept)
+        if let (Some(p), Some(k)) = (start, &mut kept)
             && !k.scaled
             && !k.intact()
         {
             let repaired = {
                 let rows = Rows::new(net, view, &layered);
-                let mut walks = k.walks.clone();
+                // The start's walks move into the re-routing (the master starts from its
+                // walks, not the start's).
+                let mut walks = std::mem::take(&mut k.walks);
                 // Moving other walks aside only when the parent served at least everything
                 // at stake here (the target is then to serve it all): measured, below that
                 // the rows are full around the failure and the rip-ups rarely decide the LP.
                 let slack = p.value >= rows.scale * (1.0 - GAP_TOL);
-                let coefs = reroute(&rows, p, &mut walks, Some(k.coefs.clone()), slack);
-                rerouted = Some((walks.clone(), coefs.clone()));
+                let coefs = reroute(
+                    &rows,
+                    p,
+                    &mut walks,
+                    Some(std::mem::take(&mut k.coefs)),
+                    slack,
+                );
                 let value: f64 = walks.iter().map(|(_, f)| f).sum();
                 let all = rows.scale;
                 let tol = GAP_TOL * rows.scale;
@@ -292,23 +311,30 @@ fn solve_caps(
                     stats.rounds += 1;
                     rows.price(&p.arc_price, &p.fn_price, None).bound - value <= tol
                 };
-                (reached || priced).then(|| {
+                if reached || priced {
                     let zero = value >= all - tol;
                     let (arc_price, fn_price) = if zero {
                         (vec![0.0; net.arcs.len()], BTreeMap::new())
                     } else {
                         (p.arc_price.clone(), p.fn_price.clone())
                     };
-                    Solved::with(walks.into_iter().unzip(), arc_price, fn_price, Some(coefs))
-                })
-            };
-            if let Some(s) = repaired {
-                stats.rounds += 1;
-                if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
-                    stats.repaired += 1;
-                    return Ok((v, cut_off, Some(s)));
+                    let unzipped = walks.into_iter().unzip();
+                    Ok(Solved::with(unzipped, arc_price, fn_price, Some(coefs)))
+                } else {
+                    Err((walks, coefs))
                 }
-            }
+            };
+            rerouted = Some(match repaired {
+                Ok(s) => {
+                    stats.rounds += 1;
+                    if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
+                        stats.repaired += 1;
+                        return Ok((v, cut_off, Some(s)));
+                    }
+                    s.into_walks(net)
+                }
+                Err(walks) => walks,
+            });
         }
         let solved = {
             let rows = Rows::new(net, view, &layered);
