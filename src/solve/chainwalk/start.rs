@@ -195,7 +195,7 @@ impl Routing<'_, '_> {
     /// is `blocked` left out. When `strict`, over the edges whose row has more than `eps`
     /// of room, the fewest hops (BFS, function edge before arcs, arcs in site order);
     /// otherwise the fewest full rows crossed (0-1 BFS: a full row costs 1). O((k + 1) ·
-    /// (sites + arcs)).
+    /// (sites + arcs)); the strict search stops once it reaches the target.
     fn search(&mut self, d: usize, strict: bool, blocked: &[bool]) -> Option<ChainWalk> {
         let (rows, eps) = (self.rows, self.eps);
         let (net, layered) = (rows.net, rows.layered);
@@ -254,6 +254,11 @@ impl Routing<'_, '_> {
                         EdgeKind::Arc { arc: a, layer: j },
                     );
                 }
+            }
+            // Unit steps in first-in first-out order: a node's first distance and
+            // predecessor are final, so the target's walk is known once it is reached.
+            if strict && dist[target] != usize::MAX {
+                break;
             }
         }
         if dist[target] == usize::MAX {
