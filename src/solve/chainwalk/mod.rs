@@ -172,7 +172,7 @@ impl Solved {
 
     /// The walks with their flows, and their coefficients (the inverse of
     /// [`Solved::with`]). O(walks) once the coefficients are known.
-    fn into_walks(self, net: &Network) -> (Vec<(ChainWalk, f64)>, Vec<Coefs>) {
+    fn into_walks(self, net: &Network) -> WalksWithCoefs {
         self.coefs(net);
         let coefs = self.coefs.into_inner().unwrap_or_default();
         (self.walks.into_iter().zip(self.flow).collect(), coefs)
@@ -202,6 +202,8 @@ pub struct Basis {
     pub required: Option<Solved>,
     pub volume: Option<Solved>,
 }
+/// Walks with their flows, and per walk its coefficients.
+type WalksWithCoefs = (Vec<(ChainWalk, f64)>, Vec<Coefs>);
 /// One LP decided: its verified result, the cut-off demands and, when the walks proved
 /// it, the optimum (a child's start).
 type Decided = (Verified, Vec<(usize, Unservable)>, Option<Solved>);
@@ -282,7 +284,7 @@ fn solve_caps(
         // on this outage's rows (one pricing pass, before any verification) meets the
         // value. The surviving walks with the re-routed flow: the master's start when the
         // repair does not decide the LP (a feasible point of the new rows).
-        let mut rerouted: Option<(Vec<(ChainWalk, f64)>, Vec<Coefs>)> = None;
+        let mut rerouted: Option<WalksWithCoefs> = None;
         if let (Some(p), Some(k)) = (start, &mut kept)
             && !k.scaled
             && !k.intact()
@@ -374,7 +376,7 @@ fn solve_caps(
 
 /// `walks` with equal walks merged into the first (flows summed), in first-seen order,
 /// with their coefficients `coefs` (aligned with `walks`). O(walks · walk length).
-fn merged(walks: Vec<(ChainWalk, f64)>, coefs: Vec<Coefs>) -> (Vec<(ChainWalk, f64)>, Vec<Coefs>) {
+fn merged(walks: Vec<(ChainWalk, f64)>, coefs: Vec<Coefs>) -> WalksWithCoefs {
     let mut index: hash::WordMap<ChainWalk, usize> = Default::default();
     let mut out: Vec<(ChainWalk, f64)> = Vec::with_capacity(walks.len());
     let mut out_coefs: Vec<Coefs> = Vec::with_capacity(walks.len());

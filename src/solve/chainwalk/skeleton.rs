@@ -115,6 +115,10 @@ impl<'v> Reach<'v> {
     }
 }
 
+/// An (origin, chain) of [`skeleton`]: origin, chain, forward layered reach, servable
+/// demands.
+type Key<'c> = (SiteIdx, &'c [FunctionIdx], Vec<u64>, Vec<usize>);
+
 /// The part of the layered rows that depends on the caps only through which of them are
 /// positive: the (origin, chain) groups with, per group, the arcs and function sites of
 /// its layered graph that lie on some walk from the origin to a destination, and the
@@ -181,7 +185,7 @@ pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skelet
     let mut chain_no: BTreeMap<&[FunctionIdx], usize> = BTreeMap::new();
     let mut slot_of: Vec<usize> = Vec::new();
     // Per key slot: origin, chain, forward reach, servable demands.
-    let mut keys: Vec<(SiteIdx, &[FunctionIdx], Vec<u64>, Vec<usize>)> = Vec::new();
+    let mut keys: Vec<Key> = Vec::new();
     let mut cut_off = Vec::new();
     for (d, dem) in net.demands.iter().enumerate() {
         if !view.demand_alive(net, d) || bound[d] <= 0.0 {
