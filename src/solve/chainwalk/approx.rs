@@ -281,7 +281,7 @@ impl Run<'_, '_> {
             flow,
             arc_price: prices.arc.clone(),
             fn_price: prices.function.clone(),
-            coefs: Default::default(),
+            ..Default::default()
         }
     }
 }

@@ -257,7 +257,7 @@ fn by_walks(
             flow,
             arc_price: p.arc_price.clone(),
             fn_price: p.fn_price.clone(),
-            coefs: Default::default(),
+            ..Default::default()
         }
     };
     // The parent's walks that carried flow and survive, at their flows.
@@ -353,7 +353,7 @@ fn by_walks(
                 flow,
                 arc_price,
                 fn_price,
-                coefs: Default::default(),
+                ..Default::default()
             }
         })
     };

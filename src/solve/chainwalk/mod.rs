@@ -147,6 +147,9 @@ pub struct Solved {
     /// Per walk: its column coefficients, set by the engine where it had them and
     /// otherwise computed on first use ([`Solved::coefs`]).
     coefs: OnceLock<Vec<Coefs>>,
+    /// Per walk: the index of the first walk equal to it, computed on first use
+    /// ([`Solved::firsts`]).
+    firsts: OnceLock<Vec<usize>>,
 }
 
 impl Solved {
@@ -167,6 +170,7 @@ impl Solved {
             arc_price,
             fn_price,
             coefs: coefs.map(OnceLock::from).unwrap_or_default(),
+            firsts: OnceLock::new(),
         }
     }
 
@@ -176,6 +180,17 @@ impl Solved {
         self.coefs(net);
         let coefs = self.coefs.into_inner().unwrap_or_default();
         (self.walks.into_iter().zip(self.flow).collect(), coefs)
+    }
+
+    /// Per walk, the index of the first walk equal to it (itself when none before it is),
+    /// computed once. O(Σ walk lengths) on first use, O(1) after.
+    fn firsts(&self) -> &[usize] {
+        self.firsts.get_or_init(|| {
+            let mut index: hash::WordMap<&ChainWalk, usize> = Default::default();
+            (self.walks.iter().enumerate())
+                .map(|(i, w)| *index.entry(w).or_insert(i))
+                .collect()
+        })
     }
 
     /// Per walk, its column coefficients ([`rows::coefficients_in`] with its demand's

@@ -227,6 +227,10 @@ pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skelet
         live_fns: Vec::with_capacity(keys.len()),
         cut_off,
     };
+    // The usable arcs with their end sites, in `view.arcs` order.
+    let ends: Vec<(usize, SiteIdx, SiteIdx)> = (view.arcs.iter())
+        .map(|&a| (a, net.arcs[a].from.0, net.arcs[a].to.0))
+        .collect();
     for (origin, chain_fns, fwd, demands) in keys {
         let k = chain_fns.len();
         let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
@@ -235,9 +239,8 @@ pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skelet
         let (mut arcs, mut fns) = (Vec::with_capacity((k + 1) * view.arcs.len()), Vec::new());
         for j in 0..=k {
             let layer = &live[j * w..(j + 1) * w];
-            for &a in &view.arcs {
-                let arc = &net.arcs[a];
-                if bit(layer, arc.from.0) && bit(layer, arc.to.0) {
+            for &(a, from, to) in &ends {
+                if bit(layer, from) && bit(layer, to) {
                     arcs.push((j, a));
                 }
             }

@@ -3,8 +3,6 @@
 //! do not fit) and a re-routing of the flow the outage took ([`reroute`]: greedy, then by
 //! moving other walks' flow off the rows a walk of the short demand needs).
 
-use super::hash::WordMap;
-
 use super::rows::{Coefs, RowKey, Rows};
 use super::{ChainWalk, NONE, START_MARGIN, Solved};
 use crate::solve::chain::{self, EdgeKind};
@@ -49,26 +47,28 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
         .collect();
     // Walks that carried nothing are kept only for demands that lost flow (columns their
     // master may use again); held at zero they would change nothing.
-    let mut index: WordMap<&ChainWalk, usize> = WordMap::default();
+    // Equal walks merged into the first kept one: per class of equal walks (named by its
+    // first walk, `Solved::firsts`), its position in `kept`.
+    let firsts = start.firsts();
+    let mut at = vec![NONE; start.walks.len()];
     let mut kept: Vec<(ChainWalk, f64)> = Vec::new();
     let mut coefficients: Vec<Coefs> = Vec::new();
-    for (((w, &f), ok), cs) in start
-        .walks
-        .iter()
+    for (i, (((w, &f), ok), cs)) in (start.walks.iter())
         .zip(&start.flow)
         .zip(alive)
         .zip(parent_coefs)
+        .enumerate()
     {
         if !ok || (f <= 0.0 && !lost[w.demand]) {
             continue;
         }
-        match index.get(w) {
-            Some(&i) => kept[i].1 += f.max(0.0),
-            None => {
-                index.insert(w, kept.len());
+        match at[firsts[i]] {
+            NONE => {
+                at[firsts[i]] = kept.len();
                 kept.push((w.clone(), f.max(0.0)));
                 coefficients.push(cs.clone());
             }
+            j => kept[j].1 += f.max(0.0),
         }
     }
     let mut load = vec![0.0; rows.len()];
