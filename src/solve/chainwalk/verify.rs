@@ -61,7 +61,8 @@ pub(super) fn with_walks(
         .unwrap_or(0);
     let mut var = vec![UNSET; (most_k + 1) * arcs + most_k * n];
     let mut touched: Vec<usize> = Vec::new();
-    let mut x: Vec<f64> = Vec::new();
+    // At most one variable per edge of a walk and one per walk's demand.
+    let mut x: Vec<f64> = Vec::with_capacity(s.walks.iter().map(|w| w.edges.len() + 1).sum());
     for g in 0..groups {
         let k = layered.groups[g].chain.len();
         for &i in &order[first[g]..first[g + 1]] {
