@@ -134,13 +134,14 @@ struct Routing<'r, 'a> {
     /// without them).
     through: Vec<Vec<usize>>,
     eps: f64,
-    /// Buffers of [`Routing::search`]: per layered node its predecessor edge and distance,
-    /// and the queue.
+    /// Buffers of [`Routing::search`]: per layered node its predecessor (node, and the arc
+    /// crossed or `NONE` for the function applied; node `NONE`: none) and distance, and
+    /// the queue.
     scratch: Scratch,
 }
 
 type Scratch = (
-    Vec<Option<(usize, EdgeKind)>>,
+    Vec<(usize, usize)>,
     Vec<usize>,
     std::collections::VecDeque<usize>,
 );
@@ -205,7 +206,7 @@ impl Routing<'_, '_> {
         let target = k * n + net.demands[d].to.0;
         let (pred, dist, queue) = &mut self.scratch;
         pred.clear();
-        pred.resize((k + 1) * n, None);
+        pred.resize((k + 1) * n, (NONE, NONE));
         dist.clear();
         dist.resize((k + 1) * n, usize::MAX);
         queue.clear();
@@ -226,10 +227,10 @@ impl Routing<'_, '_> {
             }
             let (j, v) = (node / n, node % n);
             let here = dist[node];
-            let mut relax = |next: usize, c: usize, kind: EdgeKind| {
+            let mut relax = |next: usize, c: usize, arc: usize| {
                 if here + c < dist[next] {
                     dist[next] = here + c;
-                    pred[next] = Some((node, kind));
+                    pred[next] = (node, arc);
                     if c == 0 && !strict {
                         queue.push_front(next);
                     } else {
@@ -238,21 +239,17 @@ impl Routing<'_, '_> {
                 }
             };
             if j < k
-                && chain::runs(rows.ch, rows.view, v, group.chain[j])
                 && let Some(i) = rows.function_index(v, group.chain[j])
+                && chain::runs(rows.ch, rows.view, v, group.chain[j])
                 && let Some(c) = cost(i)
             {
-                relax((j + 1) * n + v, c, EdgeKind::Function { site: v, layer: j });
+                relax((j + 1) * n + v, c, NONE);
             }
             for &a in &rows.out[v] {
                 if layered.arc_row[a].is_some()
                     && let Some(c) = cost(rows.index(RowKey::Arc(a)))
                 {
-                    relax(
-                        j * n + net.arcs[a].to.0,
-                        c,
-                        EdgeKind::Arc { arc: a, layer: j },
-                    );
+                    relax(j * n + net.arcs[a].to.0, c, a);
                 }
             }
             // Unit steps in first-in first-out order: a node's first distance and
@@ -266,8 +263,19 @@ impl Routing<'_, '_> {
         }
         let mut edges = Vec::new();
         let mut at = target;
-        while let Some((prev, kind)) = pred[at] {
-            edges.push(kind);
+        loop {
+            let (prev, arc) = pred[at];
+            if prev == NONE {
+                break;
+            }
+            let layer = prev / n;
+            edges.push(match arc {
+                NONE => EdgeKind::Function {
+                    site: prev % n,
+                    layer,
+                },
+                arc => EdgeKind::Arc { arc, layer },
+            });
             at = prev;
         }
         edges.reverse();
