@@ -27,13 +27,14 @@ pub(crate) fn function_use(
     fn_price: &BTreeMap<(SiteIdx, FunctionIdx), f64>,
 ) -> Vec<FunctionUse> {
     let ch = net.chains.as_ref().expect("a network with functions");
-    let mut load: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
+    let nf = ch.functions.len();
+    // Per `site · functions + function` (dense; the same sums in walk order).
+    let mut load = vec![0.0; net.sites.len() * nf];
     for w in walks {
         let group = &layered.groups[w.group];
         for e in &w.edges {
             if let EdgeKind::Function { site, layer } = *e {
-                *load.entry((site, group.chain[layer])).or_default() +=
-                    w.flow * group.cumulative[layer];
+                load[site * nf + group.chain[layer]] += w.flow * group.cumulative[layer];
             }
         }
     }
@@ -54,7 +55,7 @@ pub(crate) fn function_use(
             out.push(FunctionUse {
                 site: v.into(),
                 function: f,
-                load: load.get(&key).copied().unwrap_or(0.0),
+                load: load[v * nf + f],
                 price,
             });
         }

@@ -52,7 +52,8 @@
 
 use std::collections::{BTreeMap, HashMap};
 
-use super::rows::{RowKey, Rows, layered_rows};
+use super::rows::{RowKey, Rows};
+use super::skeleton::layered_rows;
 use super::verify::{verified, with_walks};
 use super::{ChainWalk, Solved};
 use crate::error::{Error, Result};
@@ -280,6 +281,7 @@ impl Run<'_, '_> {
             flow,
             arc_price: prices.arc.clone(),
             fn_price: prices.function.clone(),
+            ..Default::default()
         }
     }
 }

@@ -2,7 +2,8 @@
 //! further elements can break (the worst-set search bounds supersets of a solved set with
 //! them, [`crate::worst`]).
 
-use super::rows::{Rows, layered_rows};
+use super::rows::Rows;
+use super::skeleton::layered_rows;
 use super::verify::with_walks;
 use super::{Basis, Solved};
 use crate::model::Network;

@@ -53,7 +53,8 @@
 
 use std::collections::BTreeMap;
 
-use super::rows::{RowKey, Rows, layered_rows};
+use super::rows::{RowKey, Rows};
+use super::skeleton::layered_rows;
 use super::start::reroute;
 use super::verify::{residual, with_walks};
 use super::{ChainWalk, Solved};
@@ -256,6 +257,7 @@ fn by_walks(
             flow,
             arc_price: p.arc_price.clone(),
             fn_price: p.fn_price.clone(),
+            ..Default::default()
         }
     };
     // The parent's walks that carried flow and survive, at their flows.
@@ -351,6 +353,7 @@ fn by_walks(
                 flow,
                 arc_price,
                 fn_price,
+                ..Default::default()
             }
         })
     };
@@ -456,7 +459,7 @@ fn rerouted(
     if short.walks.is_empty() {
         return None;
     }
-    reroute(rows, &short, &mut walks, false);
+    reroute(rows, &short, &mut walks, None, false);
     Some(walks)
 }
 

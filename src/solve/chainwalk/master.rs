@@ -7,7 +7,7 @@ use std::collections::BTreeMap;
 
 use super::hash::WordSet;
 
-use super::rows::{RowKey, Rows};
+use super::rows::{Coefs, RowKey, Rows};
 use super::{ChainWalk, GAP_TOL, MAX_ROUNDS, MAX_WAKE, NONE, Solved, WARM_ROWS};
 use crate::error::Result;
 use crate::model::FunctionIdx;
@@ -33,10 +33,12 @@ pub(super) struct Master<'r, 'a> {
     pub(super) row: Vec<usize>,
     /// The LP's columns, in column order.
     pub(super) walks: Vec<ChainWalk>,
+    /// Per column: its walk's coefficients.
+    pub(super) col_coefs: Vec<Coefs>,
     pub(super) seen: WordSet<ChainWalk>,
     pub(super) active: Vec<bool>,
-    /// Per inactive demand: its fixed walks and flows.
-    pub(super) fixed: Vec<Vec<(ChainWalk, f64)>>,
+    /// Per inactive demand: its fixed walks (with their coefficients) and flows.
+    pub(super) fixed: Vec<Vec<((ChainWalk, Coefs), f64)>>,
     /// Per dense row index: the load of the fixed walks.
     pub(super) fixed_load: Vec<f64>,
 }
@@ -49,6 +51,7 @@ impl<'r, 'a> Master<'r, 'a> {
             lp: Simplex::new(),
             row: vec![NONE; rows.len()],
             walks: Vec::new(),
+            col_coefs: Vec::new(),
             seen: WordSet::default(),
             fixed: vec![Vec::new(); active.len()],
             active,
@@ -57,27 +60,29 @@ impl<'r, 'a> Master<'r, 'a> {
     }
 
     /// Adds walk `w` at flow `f` (skipped when already present): a column when its demand
-    /// is active, else a fixed walk. The caller keeps the point feasible and adds fixed
-    /// walks before columns. O(rows · walk length) for the basis update.
-    pub(super) fn add(&mut self, w: ChainWalk, f: f64) {
+    /// is active, else a fixed walk; `cs`: its coefficients when known (computed
+    /// otherwise). The caller keeps the point feasible and adds fixed walks before columns.
+    /// O(rows · walk length) for the basis update.
+    pub(super) fn add(&mut self, w: ChainWalk, f: f64, cs: Option<Coefs>) {
         if !self.seen.insert(w.clone()) {
             return;
         }
+        let cs = cs.unwrap_or_else(|| self.rows.coefs(&w));
         if !self.active[w.demand] {
-            for (key, c) in self.rows.coefficients(&w) {
+            for &(key, c) in cs.iter() {
                 self.fixed_load[self.rows.index(key)] += c * f;
             }
-            self.fixed[w.demand].push((w, f));
+            self.fixed[w.demand].push(((w, cs), f));
             return;
         }
-        self.column(w, f);
+        self.column(w, f, cs);
     }
 
-    /// The column of walk `w` (active demand) at flow `f`, with the rows it needs (each
-    /// created holding what the fixed walks leave).
-    pub(super) fn column(&mut self, w: ChainWalk, f: f64) {
+    /// The column of walk `w` (active demand, coefficients `cs`) at flow `f`, with the rows
+    /// it needs (each created holding what the fixed walks leave).
+    pub(super) fn column(&mut self, w: ChainWalk, f: f64, cs: Coefs) {
         let mut entries = Vec::new();
-        for (key, c) in self.rows.coefficients(&w) {
+        for &(key, c) in cs.iter() {
             let i = self.rows.index(key);
             if self.row[i] == NONE {
                 let fixed = self.fixed_load[i];
@@ -87,21 +92,22 @@ impl<'r, 'a> Master<'r, 'a> {
         }
         self.lp.add_col(1.0, 0.0, f64::INFINITY, f, entries);
         self.walks.push(w);
+        self.col_coefs.push(cs);
     }
 
     /// Makes demand `d` active: its fixed walks become columns at their flows, each
     /// existing row first getting the walk's load back (no basic value moves).
     pub(super) fn activate(&mut self, d: usize) {
         self.active[d] = true;
-        for (w, f) in std::mem::take(&mut self.fixed[d]) {
-            for (key, c) in self.rows.coefficients(&w) {
+        for ((w, cs), f) in std::mem::take(&mut self.fixed[d]) {
+            for &(key, c) in cs.iter() {
                 let i = self.rows.index(key);
                 self.fixed_load[i] -= c * f;
                 if self.row[i] != NONE {
                     self.lp.shift_rhs(self.row[i], c * f);
                 }
             }
-            self.column(w, f);
+            self.column(w, f, cs);
         }
     }
 
@@ -148,21 +154,25 @@ impl<'r, 'a> Master<'r, 'a> {
             if p.bound - value <= GAP_TOL * self.rows.scale {
                 stats.generated += 1;
                 let lp = &self.lp;
-                let (walks, flow) = round::with_held(self.walks, |j| lp.value(j), self.fixed);
-                return Ok(Some(Solved {
-                    value: flow.iter().sum(),
-                    walks,
-                    flow,
-                    arc_price: y,
-                    fn_price: z,
-                }));
+                // Columns first, then the fixed walks in order, as `with_held` lists them.
+                let mut coefs = self.col_coefs;
+                let fixed: Vec<Vec<(ChainWalk, f64)>> = (self.fixed.into_iter())
+                    .map(|held| {
+                        (held.into_iter())
+                            .map(|((w, cs), f)| {
+                                coefs.push(cs);
+                                (w, f)
+                            })
+                            .collect()
+                    })
+                    .collect();
+                let held = round::with_held(self.walks, |j| lp.value(j), fixed);
+                return Ok(Some(Solved::with(held, y, z, Some(coefs))));
             }
             // Inactive demands whose share of the gap is positive, and the new walks.
-            let price_of = |w: &ChainWalk| -> f64 {
-                self.rows
-                    .coefficients(w)
-                    .into_iter()
-                    .map(|(key, c)| {
+            let price_of = |(_, cs): &(ChainWalk, Coefs)| -> f64 {
+                cs.iter()
+                    .map(|&(key, c)| {
                         c * match key {
                             RowKey::Arc(a) => y[a],
                             RowKey::Function(v, f) => z.get(&(v, f)).copied().unwrap_or(0.0),
@@ -187,7 +197,7 @@ impl<'r, 'a> Master<'r, 'a> {
                 self.activate(d);
             }
             for w in fresh {
-                self.add(w, 0.0);
+                self.add(w, 0.0, None);
             }
         }
         Ok(None)

@@ -66,14 +66,17 @@ pub mod headroom;
 mod master;
 mod rooted;
 mod rows;
+mod skeleton;
 mod start;
 mod verify;
 
 use std::collections::BTreeMap;
+use std::sync::OnceLock;
 
 pub use carried::{CarriedWalk, proven_walks};
 use master::Master;
-use rows::{Rows, Skeleton, rows_of, skeleton};
+use rows::{Coefs, Rows};
+use skeleton::{Skeleton, rows_of, skeleton};
 use start::{fill, reroute, surviving_start};
 use verify::{proven_shortcut, verified, with_walks};
 
@@ -141,6 +144,70 @@ pub struct Solved {
     pub arc_price: Vec<f64>,
     /// Per (site, function) row of the master.
     pub fn_price: BTreeMap<(SiteIdx, FunctionIdx), f64>,
+    /// Per walk: its column coefficients, set by the engine where it had them and
+    /// otherwise computed on first use ([`Solved::coefs`]).
+    coefs: OnceLock<Vec<Coefs>>,
+    /// Per walk: the index of the first walk equal to it, computed on first use
+    /// ([`Solved::firsts`]).
+    firsts: OnceLock<Vec<usize>>,
+}
+
+impl Solved {
+    /// An optimum of walks `walks` at flows `flow` (value: their sum) with prices
+    /// `arc_price` and `fn_price`, the walks' coefficients `coefs` when known (aligned
+    /// with `walks`). O(walks).
+    fn with(
+        (walks, flow): (Vec<ChainWalk>, Vec<f64>),
+        arc_price: Vec<f64>,
+        fn_price: BTreeMap<(SiteIdx, FunctionIdx), f64>,
+        coefs: Option<Vec<Coefs>>,
+    ) -> Solved {
+        debug_assert!(coefs.as_ref().is_none_or(|c| c.len() == walks.len()));
+        Solved {
+            value: flow.iter().sum(),
+            walks,
+            flow,
+            arc_price,
+            fn_price,
+            coefs: coefs.map(OnceLock::from).unwrap_or_default(),
+            firsts: OnceLock::new(),
+        }
+    }
+
+    /// The walks with their flows, and their coefficients (the inverse of
+    /// [`Solved::with`]). O(walks) once the coefficients are known.
+    fn into_walks(self, net: &Network) -> WalksWithCoefs {
+        self.coefs(net);
+        let coefs = self.coefs.into_inner().unwrap_or_default();
+        (self.walks.into_iter().zip(self.flow).collect(), coefs)
+    }
+
+    /// Per walk, the index of the first walk equal to it (itself when none before it is),
+    /// computed once. O(Σ walk lengths) on first use, O(1) after.
+    fn firsts(&self) -> &[usize] {
+        self.firsts.get_or_init(|| {
+            let mut index: hash::WordMap<&ChainWalk, usize> = Default::default();
+            (self.walks.iter().enumerate())
+                .map(|(i, w)| *index.entry(w).or_insert(i))
+                .collect()
+        })
+    }
+
+    /// Per walk, its column coefficients ([`rows::coefficients_in`] with its demand's
+    /// chain; the same on every outage), computed once. O(Σ walk lengths · log) on first
+    /// use, O(1) after.
+    fn coefs(&self, net: &Network) -> &[Coefs] {
+        self.coefs.get_or_init(|| {
+            let ch = net.chains.as_ref().expect("a network with functions");
+            self.walks
+                .iter()
+                .map(|w| {
+                    let chain = &ch.chain[w.demand];
+                    rows::coefficients_in(net, &ch.cumulative(chain), chain, w).into()
+                })
+                .collect()
+        })
+    }
 }
 
 /// What a child scenario starts from: the parent's proven optima (required caps, and
@@ -150,6 +217,8 @@ pub struct Basis {
     pub required: Option<Solved>,
     pub volume: Option<Solved>,
 }
+/// Walks with their flows, and per walk its coefficients.
+type WalksWithCoefs = (Vec<(ChainWalk, f64)>, Vec<Coefs>);
 /// One LP decided: its verified result, the cut-off demands and, when the walks proved
 /// it, the optimum (a child's start).
 type Decided = (Verified, Vec<(usize, Unservable)>, Option<Solved>);
@@ -175,29 +244,31 @@ fn solve_caps(
     if !layered.groups.is_empty() {
         let answer = {
             let rows = Rows::new(net, view, &layered);
-            let kept = start.map(|s| surviving_start(&rows, s));
+            let mut kept = start.map(|s| surviving_start(&rows, s));
             let mut answer = None;
-            if let (Some(s), Some(k)) = (start, &kept)
+            if let (Some(s), Some(k)) = (start, &mut kept)
                 && k.intact()
             {
                 stats.rounds += 1;
-                let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = k.walks.iter().cloned().unzip();
-                answer = Some(Solved {
-                    value: flow.iter().sum(),
-                    walks,
-                    flow,
-                    arc_price: s.arc_price.clone(),
-                    fn_price: s.fn_price.clone(),
-                });
+                // The start's walks move into the answer (back below when not proven).
+                answer = Some(Solved::with(
+                    std::mem::take(&mut k.walks).into_iter().unzip(),
+                    s.arc_price.clone(),
+                    s.fn_price.clone(),
+                    Some(std::mem::take(&mut k.coefs)),
+                ));
             }
             (answer, kept, rows.group_of.clone())
         };
-        let (shortcut, kept, group_of) = answer;
-        if let Some(s) = shortcut
-            && let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s)
-        {
-            stats.no_flow += 1;
-            return Ok((v, cut_off, Some(s)));
+        let (shortcut, mut kept, group_of) = answer;
+        if let Some(s) = shortcut {
+            if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
+                stats.no_flow += 1;
+                return Ok((v, cut_off, Some(s)));
+            }
+            if let Some(k) = &mut kept {
+                (k.walks, k.coefs) = s.into_walks(net);
+            }
         }
         // Fill: without a parent, every demand is routed as a repair re-routes (`fill`);
         // when that serves everything at stake, zero prices prove it without a master.
@@ -205,18 +276,16 @@ fn solve_caps(
         if kept.is_none() {
             let rows = Rows::new(net, view, &layered);
             let mut walks = Vec::new();
-            fill(&rows, &layered.bound, &mut walks, true);
+            let coefs = fill(&rows, &layered.bound, &mut walks, Some(Vec::new()), true);
             let value: f64 = walks.iter().map(|(_, f)| f).sum();
             if value >= rows.scale * (1.0 - GAP_TOL) {
                 stats.rounds += 1;
-                let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
-                let s = Solved {
-                    value,
-                    walks,
-                    flow,
-                    arc_price: vec![0.0; net.arcs.len()],
-                    fn_price: BTreeMap::new(),
-                };
+                let s = Solved::with(
+                    walks.into_iter().unzip(),
+                    vec![0.0; net.arcs.len()],
+                    BTreeMap::new(),
+                    Some(coefs),
+                );
                 if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
                     stats.repaired += 1;
                     return Ok((v, cut_off, Some(s)));
@@ -230,20 +299,27 @@ fn solve_caps(
         // on this outage's rows (one pricing pass, before any verification) meets the
         // value. The surviving walks with the re-routed flow: the master's start when the
         // repair does not decide the LP (a feasible point of the new rows).
-        let mut rerouted: Option<Vec<(ChainWalk, f64)>> = None;
-        if let (Some(p), Some(k)) = (start, &kept)
+        let mut rerouted: Option<WalksWithCoefs> = None;
+        if let (Some(p), Some(k)) = (start, &mut kept)
             && !k.scaled
             && !k.intact()
         {
             let repaired = {
                 let rows = Rows::new(net, view, &layered);
-                let mut walks = k.walks.clone();
+                // The start's walks move into the re-routing (the master starts from its
+                // walks, not the start's).
+                let mut walks = std::mem::take(&mut k.walks);
                 // Moving other walks aside only when the parent served at least everything
                 // at stake here (the target is then to serve it all): measured, below that
                 // the rows are full around the failure and the rip-ups rarely decide the LP.
                 let slack = p.value >= rows.scale * (1.0 - GAP_TOL);
-                reroute(&rows, p, &mut walks, slack);
-                rerouted = Some(walks.clone());
+                let coefs = reroute(
+                    &rows,
+                    p,
+                    &mut walks,
+                    Some(std::mem::take(&mut k.coefs)),
+                    slack,
+                );
                 let value: f64 = walks.iter().map(|(_, f)| f).sum();
                 let all = rows.scale;
                 let tol = GAP_TOL * rows.scale;
@@ -252,33 +328,30 @@ fn solve_caps(
                     stats.rounds += 1;
                     rows.price(&p.arc_price, &p.fn_price, None).bound - value <= tol
                 };
-                (reached || priced).then(|| {
-                    let (walks, flow): (Vec<ChainWalk>, Vec<f64>) = walks.into_iter().unzip();
+                if reached || priced {
                     let zero = value >= all - tol;
-                    Solved {
-                        value,
-                        walks,
-                        flow,
-                        arc_price: if zero {
-                            vec![0.0; net.arcs.len()]
-                        } else {
-                            p.arc_price.clone()
-                        },
-                        fn_price: if zero {
-                            BTreeMap::new()
-                        } else {
-                            p.fn_price.clone()
-                        },
-                    }
-                })
-            };
-            if let Some(s) = repaired {
-                stats.rounds += 1;
-                if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
-                    stats.repaired += 1;
-                    return Ok((v, cut_off, Some(s)));
+                    let (arc_price, fn_price) = if zero {
+                        (vec![0.0; net.arcs.len()], BTreeMap::new())
+                    } else {
+                        (p.arc_price.clone(), p.fn_price.clone())
+                    };
+                    let unzipped = walks.into_iter().unzip();
+                    Ok(Solved::with(unzipped, arc_price, fn_price, Some(coefs)))
+                } else {
+                    Err((walks, coefs))
                 }
-            }
+            };
+            rerouted = Some(match repaired {
+                Ok(s) => {
+                    stats.rounds += 1;
+                    if let Some(v) = proven_shortcut(net, view, &mut layered, &group_of, &s) {
+                        stats.repaired += 1;
+                        return Ok((v, cut_off, Some(s)));
+                    }
+                    s.into_walks(net)
+                }
+                Err(walks) => walks,
+            });
         }
         let solved = {
             let rows = Rows::new(net, view, &layered);
@@ -289,15 +362,16 @@ fn solve_caps(
                 None => vec![true; net.demands.len()],
             };
             let mut master = Master::new(&rows, active);
-            let walks = rerouted
-                .map(merged)
-                .or_else(|| kept.map(|k| k.walks))
+            let (walks, coefs) = rerouted
+                .map(|(walks, coefs)| merged(walks, coefs))
+                .or_else(|| kept.map(|k| (k.walks, k.coefs)))
                 .unwrap_or_default();
             let (free, fixed): (Vec<_>, Vec<_>) = walks
                 .into_iter()
-                .partition(|(w, _)| master.active[w.demand]);
-            for (w, f) in fixed.into_iter().chain(free) {
-                master.add(w, f);
+                .zip(coefs)
+                .partition(|((w, _), _)| master.active[w.demand]);
+            for ((w, f), cs) in fixed.into_iter().chain(free) {
+                master.add(w, f, Some(cs));
             }
             master.run(stats)?
         };
@@ -315,21 +389,23 @@ fn solve_caps(
     Ok((v, cut_off, None))
 }
 
-/// `walks` with equal walks merged into the first (flows summed), in first-seen order.
-/// O(walks · walk length).
-fn merged(walks: Vec<(ChainWalk, f64)>) -> Vec<(ChainWalk, f64)> {
+/// `walks` with equal walks merged into the first (flows summed), in first-seen order,
+/// with their coefficients `coefs` (aligned with `walks`). O(walks · walk length).
+fn merged(walks: Vec<(ChainWalk, f64)>, coefs: Vec<Coefs>) -> WalksWithCoefs {
     let mut index: hash::WordMap<ChainWalk, usize> = Default::default();
     let mut out: Vec<(ChainWalk, f64)> = Vec::with_capacity(walks.len());
-    for (w, f) in walks {
+    let mut out_coefs: Vec<Coefs> = Vec::with_capacity(walks.len());
+    for ((w, f), cs) in walks.into_iter().zip(coefs) {
         match index.get(&w) {
             Some(&i) => out[i].1 += f,
             None => {
                 index.insert(w.clone(), out.len());
                 out.push((w, f));
+                out_coefs.push(cs);
             }
         }
     }
-    out
+    (out, out_coefs)
 }
 
 /// The walk engine's answer for one outage of a network with `functions`.
@@ -419,7 +495,8 @@ impl Evaluator for ChainWalks {
 
 #[cfg(test)]
 mod tests {
-    use super::rows::{RowKey, layered_rows};
+    use super::rows::RowKey;
+    use super::skeleton::layered_rows;
     use super::*;
     use crate::scenario::{Element, Scenario};
 

@@ -1,6 +1,6 @@
 //! The rows of the layered walk master in one outage and the pricing of layered walks:
-//! [`layered_rows`] computes the layered edge LP's rows (groups, lowered capacities)
-//! without building it, [`Rows::coefficients`] a walk's column, and [`Rows::price`] the
+//! [`Rows::coefficients`] gives a walk's column (on the rows of
+//! [`super::skeleton::layered_rows`]), and [`Rows::price`] the
 //! cheapest layered walk of every demand (shortest-path trees rooted at the function sites,
 //! [`super::rooted`]) with the dual bound at the given prices.
 
@@ -14,7 +14,7 @@ use crate::model::{Chains, FunctionIdx, Network};
 type SiteIdx = usize;
 
 use crate::solve::chain::{self, EdgeKind, Layered};
-use crate::solve::surviving::{Surviving, Unservable};
+use crate::solve::surviving::Surviving;
 
 /// The rows of the layered model in one outage, and the pricing graph.
 pub(super) struct Rows<'a> {
@@ -113,48 +113,16 @@ impl<'a> Rows<'a> {
 
     /// The coefficients of walk `w` in the master's rows (arcs and functions weighted by
     /// the cumulative gain of their layer, summed when a row is used twice; 1 on the
-    /// demand's cap row), in row-key order. O(walk length · log).
+    /// demand's cap row), in row-key order: [`coefficients_in`] with its group's chain.
+    /// O(walk length · log).
     pub(super) fn coefficients(&self, w: &ChainWalk) -> Vec<(RowKey, f64)> {
         let group = &self.layered.groups[self.group_of[w.demand]];
-        let (arcs, nf) = (self.net.arcs.len(), self.ch.functions.len());
-        // Each term keyed by its row as one integer in `RowKey` order (arcs, then (site,
-        // function) pairs by site and function), then its position in the walk: sorting
-        // the keys (distinct) orders the rows as `RowKey` does and a row used twice in walk
-        // order, which its terms are summed in (into the first).
-        let mut terms: Vec<(u64, f64)> = w
-            .edges
-            .iter()
-            .enumerate()
-            .map(|(pos, e)| {
-                let (row, layer) = match *e {
-                    EdgeKind::Arc { arc, layer } => (arc, layer),
-                    EdgeKind::Function { site, layer } => {
-                        (arcs + site * nf + group.chain[layer], layer)
-                    }
-                };
-                (((row as u64) << 24) | pos as u64, group.cumulative[layer])
-            })
-            .collect();
-        terms.sort_unstable_by_key(|t| t.0);
-        terms.dedup_by(|later, first| {
-            let same = later.0 >> 24 == first.0 >> 24;
-            if same {
-                first.1 += later.1;
-            }
-            same
-        });
-        let mut out: Vec<(RowKey, f64)> = Vec::with_capacity(terms.len() + 1);
-        out.extend(terms.into_iter().map(|(key, c)| {
-            let row = (key >> 24) as usize;
-            let key = if row < arcs {
-                RowKey::Arc(row)
-            } else {
-                RowKey::Function((row - arcs) / nf, (row - arcs) % nf)
-            };
-            (key, c)
-        }));
-        out.push((RowKey::Demand(w.demand), 1.0));
-        out
+        coefficients_in(self.net, &group.cumulative, &group.chain, w)
+    }
+
+    /// [`Rows::coefficients`] as a shared [`Coefs`]. O(walk length · log).
+    pub(super) fn coefs(&self, w: &ChainWalk) -> Coefs {
+        self.coefficients(w).into()
     }
 
     /// The right-hand side of a row: the edge LP's (lowered) capacity, or the cap.
@@ -264,6 +232,61 @@ impl<'a> Rows<'a> {
     }
 }
 
+/// A walk's column coefficients ([`Rows::coefficients`]), shared by the lists that hold
+/// the walk. They depend on the walk and its demand's chain only, never on the outage
+/// (the right-hand sides do), so a parent's walks keep theirs for every child scenario.
+pub(super) type Coefs = std::sync::Arc<[(RowKey, f64)]>;
+
+/// The coefficients of walk `w` of a demand with chain `chain` (cumulative gains
+/// `cumulative`, [`Chains::cumulative`]): arcs and functions weighted by the cumulative
+/// gain of their layer, summed when a row is used twice (in walk order), 1 on the
+/// demand's cap row, in row-key order. O(walk length · log).
+pub(super) fn coefficients_in(
+    net: &Network,
+    cumulative: &[f64],
+    chain: &[FunctionIdx],
+    w: &ChainWalk,
+) -> Vec<(RowKey, f64)> {
+    let ch = net.chains.as_ref().expect("a network with functions");
+    let (arcs, nf) = (net.arcs.len(), ch.functions.len());
+    // Each term keyed by its row as one integer in `RowKey` order (arcs, then (site,
+    // function) pairs by site and function), then its position in the walk: sorting
+    // the keys (distinct) orders the rows as `RowKey` does and a row used twice in walk
+    // order, which its terms are summed in (into the first).
+    let mut terms: Vec<(u64, f64)> = w
+        .edges
+        .iter()
+        .enumerate()
+        .map(|(pos, e)| {
+            let (row, layer) = match *e {
+                EdgeKind::Arc { arc, layer } => (arc, layer),
+                EdgeKind::Function { site, layer } => (arcs + site * nf + chain[layer], layer),
+            };
+            (((row as u64) << 24) | pos as u64, cumulative[layer])
+        })
+        .collect();
+    terms.sort_unstable_by_key(|t| t.0);
+    terms.dedup_by(|later, first| {
+        let same = later.0 >> 24 == first.0 >> 24;
+        if same {
+            first.1 += later.1;
+        }
+        same
+    });
+    let mut out: Vec<(RowKey, f64)> = Vec::with_capacity(terms.len() + 1);
+    out.extend(terms.into_iter().map(|(key, c)| {
+        let row = (key >> 24) as usize;
+        let key = if row < arcs {
+            RowKey::Arc(row)
+        } else {
+            RowKey::Function((row - arcs) / nf, (row - arcs) % nf)
+        };
+        (key, c)
+    }));
+    out.push((RowKey::Demand(w.demand), 1.0));
+    out
+}
+
 /// The outcome of one pricing pass.
 pub(super) struct Priced {
     /// Per demand: its cheapest layered walk (infinite when not in the LP or unreachable).
@@ -272,148 +295,4 @@ pub(super) struct Priced {
     pub(super) walks: Vec<ChainWalk>,
     /// The dual bound at these prices.
     pub(super) bound: f64,
-}
-
-/// The rows of the layered model of `view` with demand caps `bound`, exactly as
-/// [`chain::build`] makes them (same (origin, chain) groups in the same order, same arcs and
-/// (site, function) pairs with a row, same right-hand sides: capacities lowered to what the
-/// groups that can use them could put there), without building the LP: no edges and no
-/// demand variables yet ([`with_walks`] adds those of an answer). Also returns the cut-off
-/// demands with their reason. O(groups · (k + 1) · (sites + arcs)).
-pub(super) fn layered_rows(
-    net: &Network,
-    view: &Surviving,
-    bound: &[f64],
-) -> (Layered, Vec<(usize, Unservable)>) {
-    rows_of(net, &skeleton(net, view, bound), bound)
-}
-
-/// An (origin, chain) group's key.
-type GroupKey = (SiteIdx, Vec<FunctionIdx>);
-
-/// The part of [`layered_rows`] that depends on the caps only through which of them are
-/// positive: the (origin, chain) groups with, per group, the arcs and function sites of
-/// its layered graph that lie on some walk from the origin to a destination, and the
-/// cut-off demands. The required and the volume LP of one outage share it when the same
-/// demands have a positive cap.
-pub(super) struct Skeleton {
-    positive: Vec<bool>,
-    groups: Vec<(GroupKey, Vec<usize>)>,
-    /// Per group: (layer, arc) of its live arcs, layer by layer in `view.arcs` order.
-    live_arcs: Vec<Vec<(usize, usize)>>,
-    /// Per group: (layer, site) where it may apply the function of that layer.
-    live_fns: Vec<Vec<(usize, SiteIdx)>>,
-    cut_off: Vec<(usize, Unservable)>,
-}
-
-impl Skeleton {
-    /// The caps `bound` are positive for exactly the demands this skeleton was made for.
-    /// O(demands).
-    pub(super) fn fits(&self, bound: &[f64]) -> bool {
-        self.positive
-            .iter()
-            .zip(bound)
-            .all(|(&p, &b)| p == (b > 0.0))
-    }
-}
-
-/// The [`Skeleton`] of `view` for caps `bound`. O(groups · (k + 1) · (sites + arcs)).
-pub(super) fn skeleton(net: &Network, view: &Surviving, bound: &[f64]) -> Skeleton {
-    let ch = net.chains.as_ref().expect("a network with functions");
-    let n = net.sites.len();
-    let mut memo = chain::ReachMemo::new(view);
-    let (by_key, cut_off) = chain::demand_groups(net, ch, &mut memo, bound);
-    let mut sk = Skeleton {
-        positive: bound.iter().map(|&b| b > 0.0).collect(),
-        groups: Vec::new(),
-        live_arcs: Vec::new(),
-        live_fns: Vec::new(),
-        cut_off,
-    };
-    for ((origin, chain_fns), demands) in by_key {
-        let k = chain_fns.len();
-        let dests: Vec<SiteIdx> = demands.iter().map(|&d| net.demands[d].to.0).collect();
-        let fwd = chain::forward_with(net, ch, &mut memo, origin, &chain_fns);
-        let back = chain::backward_with(net, ch, &mut memo, &dests, &chain_fns);
-        let live = |node: usize| fwd[node] && back[node];
-        let (mut arcs, mut fns) = (Vec::new(), Vec::new());
-        for j in 0..=k {
-            for &a in &view.arcs {
-                let arc = &net.arcs[a];
-                if live(j * n + arc.from.0) && live(j * n + arc.to.0) {
-                    arcs.push((j, a));
-                }
-            }
-            if let Some(&f) = chain_fns.get(j) {
-                for v in 0..n {
-                    if chain::runs(ch, view, v, f) && live(j * n + v) && live((j + 1) * n + v) {
-                        fns.push((j, v));
-                    }
-                }
-            }
-        }
-        sk.groups.push(((origin, chain_fns), demands));
-        sk.live_arcs.push(arcs);
-        sk.live_fns.push(fns);
-    }
-    sk
-}
-
-/// [`layered_rows`] from its [`Skeleton`] `sk` (made for caps with the same positive
-/// entries as `bound`). O(Σ live arcs and function sites of the groups).
-pub(super) fn rows_of(
-    net: &Network,
-    sk: &Skeleton,
-    bound: &[f64],
-) -> (Layered, Vec<(usize, Unservable)>) {
-    let ch = net.chains.as_ref().expect("a network with functions");
-    let mut arc_need: Vec<Option<f64>> = vec![None; net.arcs.len()];
-    let mut fn_need: BTreeMap<(SiteIdx, FunctionIdx), f64> = BTreeMap::new();
-    let mut groups = Vec::new();
-    for (g, ((origin, chain_fns), demands)) in sk.groups.iter().enumerate() {
-        let cumulative = ch.cumulative(chain_fns);
-        let total: f64 = demands.iter().map(|&d| bound[d]).sum();
-        for &(j, a) in &sk.live_arcs[g] {
-            *arc_need[a].get_or_insert(0.0) += cumulative[j] * total;
-        }
-        for &(j, v) in &sk.live_fns[g] {
-            *fn_need.entry((v, chain_fns[j])).or_default() += cumulative[j] * total;
-        }
-        groups.push(chain::Group {
-            origin: *origin,
-            chain: chain_fns.clone(),
-            cumulative,
-            demands: demands.clone(),
-        });
-    }
-    let arc_row: Vec<Option<usize>> = arc_need
-        .iter()
-        .enumerate()
-        .map(|(a, need)| need.map(|_| a))
-        .collect();
-    let arc_cap: Vec<f64> = arc_need
-        .iter()
-        .enumerate()
-        .map(|(a, need)| need.map_or(0.0, |need| net.arcs[a].capacity.min(need)))
-        .collect();
-    let function_cap: BTreeMap<(SiteIdx, FunctionIdx), f64> = fn_need
-        .iter()
-        .map(|(&(v, f), &need)| ((v, f), ch.capacity[v][f].min(need)))
-        .collect();
-    let function_row = function_cap
-        .keys()
-        .enumerate()
-        .map(|(i, &k)| (k, i))
-        .collect();
-    let layered = Layered {
-        edges: vec![Vec::new(); groups.len()],
-        groups,
-        demand_var: vec![None; net.demands.len()],
-        arc_row,
-        function_row,
-        arc_cap,
-        function_cap,
-        bound: bound.to_vec(),
-    };
-    (layered, sk.cut_off.clone())
 }

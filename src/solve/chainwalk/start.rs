@@ -3,9 +3,7 @@
 //! do not fit) and a re-routing of the flow the outage took ([`reroute`]: greedy, then by
 //! moving other walks' flow off the rows a walk of the short demand needs).
 
-use super::hash::WordMap;
-
-use super::rows::{RowKey, Rows};
+use super::rows::{Coefs, RowKey, Rows};
 use super::{ChainWalk, NONE, START_MARGIN, Solved};
 use crate::solve::chain::{self, EdgeKind};
 
@@ -15,6 +13,8 @@ pub(super) struct Start {
     /// merged when equal, at their flows (a walk through a row that could not hold its
     /// surviving load scaled by that row's factor, the least one when several).
     pub(super) walks: Vec<(ChainWalk, f64)>,
+    /// Per walk of `walks`: its column coefficients (the parent's).
+    pub(super) coefs: Vec<Coefs>,
     /// Per demand: some walk of it that carried flow was lost or scaled down.
     pub(super) lost: Vec<bool>,
     /// Some row could not hold the surviving flows: walks were scaled down by more than
@@ -30,9 +30,10 @@ impl Start {
 }
 
 /// The [`Start`] of this outage's master from the parent's optimum `start`: a feasible
-/// point of the new rows (each row's load at most its right-hand side).
-/// O(Σ walk lengths · log).
+/// point of the new rows (each row's load at most its right-hand side). The walks'
+/// coefficients are the parent's ([`Solved::coefs`]). O(Σ walk lengths).
 pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
+    let parent_coefs = start.coefs(rows.net);
     let mut lost = vec![false; rows.net.demands.len()];
     let alive: Vec<bool> = start
         .walks
@@ -46,25 +47,33 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
         .collect();
     // Walks that carried nothing are kept only for demands that lost flow (columns their
     // master may use again); held at zero they would change nothing.
-    let mut index: WordMap<&ChainWalk, usize> = WordMap::default();
+    // Equal walks merged into the first kept one: per class of equal walks (named by its
+    // first walk, `Solved::firsts`), its position in `kept`.
+    let firsts = start.firsts();
+    let mut at = vec![NONE; start.walks.len()];
     let mut kept: Vec<(ChainWalk, f64)> = Vec::new();
-    for ((w, &f), ok) in start.walks.iter().zip(&start.flow).zip(alive) {
+    let mut coefficients: Vec<Coefs> = Vec::new();
+    for (i, (((w, &f), ok), cs)) in (start.walks.iter())
+        .zip(&start.flow)
+        .zip(alive)
+        .zip(parent_coefs)
+        .enumerate()
+    {
         if !ok || (f <= 0.0 && !lost[w.demand]) {
             continue;
         }
-        match index.get(w) {
-            Some(&i) => kept[i].1 += f.max(0.0),
-            None => {
-                index.insert(w, kept.len());
+        match at[firsts[i]] {
+            NONE => {
+                at[firsts[i]] = kept.len();
                 kept.push((w.clone(), f.max(0.0)));
+                coefficients.push(cs.clone());
             }
+            j => kept[j].1 += f.max(0.0),
         }
     }
-    let coefficients: Vec<Vec<(RowKey, f64)>> =
-        kept.iter().map(|(w, _)| rows.coefficients(w)).collect();
     let mut load = vec![0.0; rows.len()];
     for ((_, f), cs) in kept.iter().zip(&coefficients) {
-        for &(key, c) in cs {
+        for &(key, c) in cs.iter() {
             load[rows.index(key)] += c * f;
         }
     }
@@ -75,7 +84,7 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
     // the allocation (neither `scaled` nor `lost`).
     let mut factor = vec![1.0_f64; rows.len()];
     for cs in &coefficients {
-        for &(key, _) in cs {
+        for &(key, _) in cs.iter() {
             let i = rows.index(key);
             let (l, rhs) = (load[i], rows.rhs(key));
             if l > rhs * (1.0 - START_MARGIN) {
@@ -101,6 +110,7 @@ pub(super) fn surviving_start(rows: &Rows, start: &Solved) -> Start {
         .collect();
     Start {
         walks,
+        coefs: coefficients,
         lost,
         scaled,
     }
@@ -119,18 +129,19 @@ struct Routing<'r, 'a> {
     /// Per dense row index: what is left of its right-hand side.
     res: Vec<f64>,
     walks: &'r mut Vec<(ChainWalk, f64)>,
-    coefs: Vec<Vec<(RowKey, f64)>>,
+    coefs: Vec<Coefs>,
     /// Per dense row index: the walks through it, ascending (kept for rip-ups only: empty
     /// without them).
     through: Vec<Vec<usize>>,
     eps: f64,
-    /// Buffers of [`Routing::search`]: per layered node its predecessor edge and distance,
-    /// and the queue.
+    /// Buffers of [`Routing::search`]: per layered node its predecessor (node, and the arc
+    /// crossed or `NONE` for the function applied; node `NONE`: none) and distance, and
+    /// the queue.
     scratch: Scratch,
 }
 
 type Scratch = (
-    Vec<Option<(usize, EdgeKind)>>,
+    Vec<(usize, usize)>,
     Vec<usize>,
     std::collections::VecDeque<usize>,
 );
@@ -142,7 +153,7 @@ impl Routing<'_, '_> {
 
     /// Moves `f` units onto walk `i`'s rows (negative: off them). O(walk length).
     fn load(&mut self, i: usize, f: f64) {
-        for &(key, c) in &self.coefs[i] {
+        for &(key, c) in self.coefs[i].iter() {
             self.res[self.rows.index(key)] -= c * f;
         }
         self.walks[i].1 += f;
@@ -151,7 +162,7 @@ impl Routing<'_, '_> {
     /// Removes the last walk (added by [`Routing::add`], still at flow 0). O(1).
     fn drop_last(&mut self) {
         self.walks.pop();
-        for &(key, _) in &self.coefs.pop().unwrap_or_default() {
+        for &(key, _) in self.coefs.pop().iter().flat_map(|cs| cs.iter()) {
             if let Some(t) = self.through.get_mut(self.rows.index(key)) {
                 t.pop();
             }
@@ -160,8 +171,8 @@ impl Routing<'_, '_> {
 
     /// Appends walk `w` at flow 0 and returns its index. O(walk length · log).
     fn add(&mut self, w: ChainWalk) -> usize {
-        let cs = self.rows.coefficients(&w);
-        for &(key, _) in &cs {
+        let cs = self.rows.coefs(&w);
+        for &(key, _) in cs.iter() {
             if let Some(t) = self.through.get_mut(self.rows.index(key)) {
                 t.push(self.walks.len());
             }
@@ -185,7 +196,7 @@ impl Routing<'_, '_> {
     /// is `blocked` left out. When `strict`, over the edges whose row has more than `eps`
     /// of room, the fewest hops (BFS, function edge before arcs, arcs in site order);
     /// otherwise the fewest full rows crossed (0-1 BFS: a full row costs 1). O((k + 1) ·
-    /// (sites + arcs)).
+    /// (sites + arcs)); the strict search stops once it reaches the target.
     fn search(&mut self, d: usize, strict: bool, blocked: &[bool]) -> Option<ChainWalk> {
         let (rows, eps) = (self.rows, self.eps);
         let (net, layered) = (rows.net, rows.layered);
@@ -195,7 +206,7 @@ impl Routing<'_, '_> {
         let target = k * n + net.demands[d].to.0;
         let (pred, dist, queue) = &mut self.scratch;
         pred.clear();
-        pred.resize((k + 1) * n, None);
+        pred.resize((k + 1) * n, (NONE, NONE));
         dist.clear();
         dist.resize((k + 1) * n, usize::MAX);
         queue.clear();
@@ -216,10 +227,10 @@ impl Routing<'_, '_> {
             }
             let (j, v) = (node / n, node % n);
             let here = dist[node];
-            let mut relax = |next: usize, c: usize, kind: EdgeKind| {
+            let mut relax = |next: usize, c: usize, arc: usize| {
                 if here + c < dist[next] {
                     dist[next] = here + c;
-                    pred[next] = Some((node, kind));
+                    pred[next] = (node, arc);
                     if c == 0 && !strict {
                         queue.push_front(next);
                     } else {
@@ -228,22 +239,23 @@ impl Routing<'_, '_> {
                 }
             };
             if j < k
-                && chain::runs(rows.ch, rows.view, v, group.chain[j])
                 && let Some(i) = rows.function_index(v, group.chain[j])
+                && chain::runs(rows.ch, rows.view, v, group.chain[j])
                 && let Some(c) = cost(i)
             {
-                relax((j + 1) * n + v, c, EdgeKind::Function { site: v, layer: j });
+                relax((j + 1) * n + v, c, NONE);
             }
             for &a in &rows.out[v] {
                 if layered.arc_row[a].is_some()
                     && let Some(c) = cost(rows.index(RowKey::Arc(a)))
                 {
-                    relax(
-                        j * n + net.arcs[a].to.0,
-                        c,
-                        EdgeKind::Arc { arc: a, layer: j },
-                    );
+                    relax(j * n + net.arcs[a].to.0, c, a);
                 }
+            }
+            // Unit steps in first-in first-out order: a node's first distance and
+            // predecessor are final, so the target's walk is known once it is reached.
+            if strict && dist[target] != usize::MAX {
+                break;
             }
         }
         if dist[target] == usize::MAX {
@@ -251,8 +263,19 @@ impl Routing<'_, '_> {
         }
         let mut edges = Vec::new();
         let mut at = target;
-        while let Some((prev, kind)) = pred[at] {
-            edges.push(kind);
+        loop {
+            let (prev, arc) = pred[at];
+            if prev == NONE {
+                break;
+            }
+            let layer = prev / n;
+            edges.push(match arc {
+                NONE => EdgeKind::Function {
+                    site: prev % n,
+                    layer,
+                },
+                arc => EdgeKind::Arc { arc, layer },
+            });
             at = prev;
         }
         edges.reverse();
@@ -268,34 +291,46 @@ impl Routing<'_, '_> {
 /// rows, first moving flow of other walks through those rows onto walks of their own
 /// demand that avoid every row of that walk. Every move keeps each row's load within its
 /// right-hand side. Appends the walks it uses to `walks` (and lowers the flows of those it
-/// moves flow from). O(augmentations · (k + 1) · (sites + arcs) + rip-ups · walks ·
-/// (k + 1) · (sites + arcs)).
+/// moves flow from); `coefs`, when given, are the coefficients of `walks` (computed
+/// otherwise), and the coefficients of the walks after are returned. O(augmentations ·
+/// (k + 1) · (sites + arcs) + rip-ups · walks · (k + 1) · (sites + arcs)).
 pub(super) fn reroute(
     rows: &Rows,
     start: &Solved,
     walks: &mut Vec<(ChainWalk, f64)>,
+    coefs: Option<Vec<Coefs>>,
     rip_up: bool,
-) {
+) -> Vec<Coefs> {
     let mut lost = vec![0.0; rows.net.demands.len()];
     for (w, &f) in start.walks.iter().zip(&start.flow) {
         if rows.group_of[w.demand] != NONE && f > 0.0 && !w.survives(rows.ch, rows.view) {
             lost[w.demand] += f;
         }
     }
-    fill(rows, &lost, walks, rip_up);
+    fill(rows, &lost, walks, coefs, rip_up)
 }
 
 /// What [`reroute`] does with the flow lost per demand, for any amounts `wanted` (per
 /// demand in the LP: origin units to add to what `walks` carry, capped by the room of its
 /// cap row): greedy shortest-hop walks through the room the rows have left, then, with
 /// `rip_up`, walks crossing the fewest full rows after moving other walks aside. `walks`
-/// must fit the rows; they still do after. Cost as [`reroute`].
-pub(super) fn fill(rows: &Rows, wanted: &[f64], walks: &mut Vec<(ChainWalk, f64)>, rip_up: bool) {
+/// must fit the rows; they still do after. `coefs` and the result: the walks'
+/// coefficients before and after, as in [`reroute`]. Cost as [`reroute`].
+pub(super) fn fill(
+    rows: &Rows,
+    wanted: &[f64],
+    walks: &mut Vec<(ChainWalk, f64)>,
+    coefs: Option<Vec<Coefs>>,
+    rip_up: bool,
+) -> Vec<Coefs> {
     let (net, layered) = (rows.net, rows.layered);
     let eps = crate::tol::WALK_FLOW_EPS * rows.scale;
     let lost = wanted;
+    let coefs: Vec<Coefs> =
+        coefs.unwrap_or_else(|| walks.iter().map(|(w, _)| rows.coefs(w)).collect());
+    debug_assert_eq!(coefs.len(), walks.len());
     if lost.iter().all(|&l| l <= eps) {
-        return;
+        return coefs;
     }
     let mut res = vec![0.0; rows.len()];
     for (a, &cap) in layered.arc_cap.iter().enumerate() {
@@ -307,10 +342,22 @@ pub(super) fn fill(rows: &Rows, wanted: &[f64], walks: &mut Vec<(ChainWalk, f64)
     for d in 0..net.demands.len() {
         res[rows.index(RowKey::Demand(d))] = layered.bound[d];
     }
-    let coefs: Vec<Vec<(RowKey, f64)>> = walks.iter().map(|(w, _)| rows.coefficients(w)).collect();
-    let mut through = vec![Vec::new(); if rip_up { rows.len() } else { 0 }];
+    let mut through: Vec<Vec<usize>> = Vec::new();
+    if rip_up {
+        // Each row's list sized once for the walks there now (and a few re-routed ones).
+        let mut count = vec![0usize; rows.len()];
+        for cs in &coefs {
+            for &(key, _) in cs.iter() {
+                count[rows.index(key)] += 1;
+            }
+        }
+        through = count
+            .into_iter()
+            .map(|c| Vec::with_capacity(c + 4))
+            .collect();
+    }
     for (j, (cs, (_, f))) in coefs.iter().zip(walks.iter()).enumerate() {
-        for &(key, c) in cs {
+        for &(key, c) in cs.iter() {
             res[rows.index(key)] -= c * f;
             if let Some(t) = through.get_mut(rows.index(key)) {
                 t.push(j);
@@ -358,7 +405,7 @@ pub(super) fn fill(rows: &Rows, wanted: &[f64], walks: &mut Vec<(ChainWalk, f64)
             let i = r.add(w);
             // Every row of the new walk is closed to the walks moved out of the way.
             let mut closed = vec![false; rows.len()];
-            for &(key, _) in &r.coefs[i] {
+            for &(key, _) in r.coefs[i].iter() {
                 if !matches!(key, RowKey::Demand(_)) {
                     closed[rows.index(key)] = true;
                 }
@@ -415,4 +462,5 @@ pub(super) fn fill(rows: &Rows, wanted: &[f64], walks: &mut Vec<(ChainWalk, f64)
             remaining -= push;
         }
     }
+    r.coefs
 }

@@ -5,8 +5,6 @@
 
 use std::collections::BTreeMap;
 
-use super::hash::WordMap;
-
 use super::Solved;
 use super::rows::{RowKey, Rows};
 use crate::model::{FunctionIdx, Network};
@@ -23,47 +21,87 @@ use crate::tol::PROOF_GAP_TOL;
 /// the returned flow vector: each edge's flow is the sum of the flows of the walks through
 /// it, each demand's the sum of its walks'), the flow written as [`chain::repair`] reads
 /// an LP answer. Edges the walks do not use carry 0 and are left out, which leaves the
-/// repair's decomposition unchanged. O(Σ walk lengths).
+/// repair's decomposition unchanged. Group by group (each group's edges in the order its
+/// walks first use them, flows summed in walk order; the variable ids are only read
+/// through `layered`), a group's layered edges looked up in one dense table (arc `a` in
+/// layer `j` at `j · arcs + a`, the function at site `v` between layers `j` and `j + 1`
+/// at `(k + 1) · arcs + j · sites + v`), reset after each group. O(Σ walk lengths +
+/// groups + (k + 1) · (arcs + sites)).
 pub(super) fn with_walks(
     net: &Network,
     layered: &mut Layered,
     group_of: &[usize],
     s: &Solved,
 ) -> Vec<f64> {
-    let n = net.sites.len();
-    let mut x: Vec<f64> = Vec::new();
-    let mut var: Vec<WordMap<EdgeKind, usize>> = vec![WordMap::default(); layered.groups.len()];
+    const UNSET: usize = usize::MAX;
+    let (n, arcs) = (net.sites.len(), net.arcs.len());
+    let groups = layered.groups.len();
     layered.edges.iter_mut().for_each(Vec::clear);
     layered.demand_var.iter_mut().for_each(|v| *v = None);
-    for (w, &f) in s.walks.iter().zip(&s.flow) {
+    // The walks of each group, in walk order (a counting sort by group).
+    let mut first = vec![0usize; groups + 1];
+    for w in &s.walks {
+        first[group_of[w.demand] + 1] += 1;
+    }
+    for g in 0..groups {
+        first[g + 1] += first[g];
+    }
+    let mut next = first.clone();
+    let mut order = vec![0usize; s.walks.len()];
+    for (i, w) in s.walks.iter().enumerate() {
         let g = group_of[w.demand];
-        for e in &w.edges {
-            let i = *var[g].entry(*e).or_insert_with(|| {
-                let (from, to) = match *e {
+        order[next[g]] = i;
+        next[g] += 1;
+    }
+    let most_k = layered
+        .groups
+        .iter()
+        .map(|g| g.chain.len())
+        .max()
+        .unwrap_or(0);
+    let mut var = vec![UNSET; (most_k + 1) * arcs + most_k * n];
+    let mut touched: Vec<usize> = Vec::new();
+    // At most one variable per edge of a walk and one per walk's demand.
+    let mut x: Vec<f64> = Vec::with_capacity(s.walks.iter().map(|w| w.edges.len() + 1).sum());
+    for g in 0..groups {
+        let k = layered.groups[g].chain.len();
+        for &i in &order[first[g]..first[g + 1]] {
+            let (w, f) = (&s.walks[i], s.flow[i]);
+            for e in &w.edges {
+                let (slot, from, to) = match *e {
                     EdgeKind::Arc { arc, layer } => (
+                        layer * arcs + arc,
                         layer * n + net.arcs[arc].from.0,
                         layer * n + net.arcs[arc].to.0,
                     ),
-                    EdgeKind::Function { site, layer } => {
-                        (layer * n + site, (layer + 1) * n + site)
-                    }
+                    EdgeKind::Function { site, layer } => (
+                        (k + 1) * arcs + layer * n + site,
+                        layer * n + site,
+                        (layer + 1) * n + site,
+                    ),
                 };
+                if var[slot] == UNSET {
+                    var[slot] = x.len();
+                    touched.push(slot);
+                    x.push(0.0);
+                    layered.edges[g].push(chain::Edge {
+                        from,
+                        to,
+                        var: x.len() - 1,
+                        kind: *e,
+                    });
+                }
+                x[var[slot]] += f;
+            }
+            let dv = *layered.demand_var[w.demand].get_or_insert_with(|| {
                 x.push(0.0);
-                layered.edges[g].push(chain::Edge {
-                    from,
-                    to,
-                    var: x.len() - 1,
-                    kind: *e,
-                });
                 x.len() - 1
             });
-            x[i] += f;
+            x[dv] += f;
         }
-        let dv = *layered.demand_var[w.demand].get_or_insert_with(|| {
-            x.push(0.0);
-            x.len() - 1
-        });
-        x[dv] += f;
+        for t in touched.drain(..) {
+            var[t] = UNSET;
+        }
     }
     x
 }
@@ -79,8 +117,8 @@ pub(super) fn residual(rows: &Rows, s: &Solved) -> f64 {
         }
     };
     let mut load: Vec<Option<(RowKey, f64)>> = vec![None; rows.len()];
-    for (w, &f) in s.walks.iter().zip(&s.flow) {
-        for (key, c) in rows.coefficients(w) {
+    for (&f, cs) in s.flow.iter().zip(s.coefs(rows.net)) {
+        for &(key, c) in cs.iter() {
             load[rows.index(key)].get_or_insert((key, 0.0)).1 += c * f;
         }
     }

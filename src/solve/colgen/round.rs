@@ -84,10 +84,10 @@ pub(crate) fn gap_shares<W>(
 ///
 /// Invariant: each freed demand's share is computed at the same prices as `cost`.
 /// Cost: O(Σ fixed walks · cost of `price` + demands + priced walks).
-pub(crate) fn next_round<W: Eq + Hash, S: BuildHasher>(
+pub(crate) fn next_round<W: Eq + Hash, F, S: BuildHasher>(
     inactive_cap: impl Fn(usize) -> Option<f64>,
-    fixed: &[Vec<(W, f64)>],
-    price: impl Fn(&W) -> f64,
+    fixed: &[Vec<(F, f64)>],
+    price: impl Fn(&F) -> f64,
     cost: &[f64],
     priced: Vec<W>,
     seen: &HashSet<W, S>,
