@@ -35,6 +35,10 @@ use crate::error::{Error, Result};
 /// the limit); past it a solve errors and the caller uses another backend.
 pub const COUPLING_ROWS: usize = 5000;
 
+/// A coupling vector longer than this is summed per row before `W⁻¹` is applied to it
+/// (one dense pass per distinct row instead of one per entry).
+const MERGE_ENTRIES: usize = 64;
+
 /// Variables scanned per segment of partial pricing (at least).
 const SEGMENT: usize = 256;
 
@@ -343,14 +347,31 @@ impl Gub {
         }
     }
 
-    /// `W⁻¹ v` for the coupling vector `v` (repeated indices add). O(m₁ · entries).
+    /// `W⁻¹ v` for the coupling vector `v` (repeated indices add). O(m₁ · distinct
+    /// indices + entries): repeated indices are summed first when `v` is long (a refresh
+    /// passes every key's entries, many on the same rows), so each column of `W⁻¹` is
+    /// read once.
     fn solve_w(&self, v: &[(usize, f64)]) -> Vec<f64> {
-        let mut out = vec![0.0; self.rhs.len()];
-        for &(r, a) in v {
+        let m = self.rhs.len();
+        let mut out = vec![0.0; m];
+        let mut axpy = |r: usize, a: f64| {
             if a != 0.0 {
                 for (o, b) in out.iter_mut().zip(&self.winv[r]) {
                     *o += a * b;
                 }
+            }
+        };
+        if v.len() > MERGE_ENTRIES {
+            let mut acc = vec![0.0; m];
+            for &(r, a) in v {
+                acc[r] += a;
+            }
+            for (r, &a) in acc.iter().enumerate() {
+                axpy(r, a);
+            }
+        } else {
+            for &(r, a) in v {
+                axpy(r, a);
             }
         }
         out
