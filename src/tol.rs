@@ -163,6 +163,16 @@ pub const PLAN_FEASIBLE_TOL: f64 = 1e-9;
 /// solved again) for rounding alone.
 pub const LAZY_ROW_TOL: f64 = 1e-9;
 
+/// Largest row or bound violation (relative to `max(1, |rhs|)`) of the start point the
+/// closing's warm simplex master accepts; the primal simplex needs a feasible start, so a
+/// start outside it sends the closing to the interior point instead.
+pub const WARM_START_TOL: f64 = 1e-9;
+
+/// A variable within this (relative to `max(1, |bound|)`) of its upper bound counts as at
+/// the bound when its bound dual is read; without it a bound met to rounding would lose
+/// its dual, and the closing's dual bound would fall short of its cost.
+pub const AT_BOUND_TOL: f64 = 1e-9;
+
 /// How much looser a hold is made (a factor on [`HOLD_TOL`]) when the backend cannot meet
 /// it at [`HOLD_TOL`]; without the retry such a plan would fail instead of being solved.
 pub const HOLD_RETRY: f64 = 1e3;

@@ -20,7 +20,7 @@
 //! (`c_d` the cheapest walk price at `y, z`). The loop stops when it meets the master's
 //! optimum within [`CLOSE_GAP`]: the restricted master is then optimal for the full model.
 
-use super::{Graph, MAX_ROUNDS, Walk, evaluate_walks, price};
+use super::{Graph, MAX_ROUNDS, PIVOTS_PER_ROW, Walk, evaluate_walks, price};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -28,7 +28,11 @@ use crate::solve::cancel;
 use crate::solve::evaluator::AddModel;
 use crate::solve::lp::{self, Lp, LpSolution, Sense};
 use crate::solve::surviving::Surviving;
-use std::collections::HashSet;
+use std::collections::{HashMap, HashSet};
+
+mod warm;
+use crate::tol::AT_BOUND_TOL;
+use warm::WarmCost;
 
 /// The column generation stops when the Lagrangian bound is within this of the master's
 /// cost, relative to `max(1, cost)`.
@@ -47,6 +51,10 @@ pub struct WalkCloser<'a> {
     /// Columns in the master [`cost_master`] returned; later ones were found at nodes.
     root_cols: usize,
     outage: Outage,
+    /// The root master's optimum as [`cost_master`] found it (with its bound duals), and
+    /// the variable bounds it was found at: a [`WalkCloser::solve`] of the same master
+    /// returns it instead of solving again.
+    root: Option<(Vec<f64>, Vec<f64>, LpSolution)>,
 }
 
 /// Builds into `model` (which already holds the addition variables `add`, per site, with
@@ -58,9 +66,14 @@ pub struct WalkCloser<'a> {
 /// left unchanged).
 ///
 /// Start: the walks of the walk engine's verified optimum with every addition at its
-/// bound (feasible when `target` is at most the best reachable value). Cost per round: one
-/// interior-point solve of at most arcs + sites + demands + 1 rows and the columns so far,
-/// and one pricing pass of [`super`]; at most [`MAX_ROUNDS`] rounds.
+/// bound (feasible when `target` is at most the best reachable value), at their flows
+/// with every addition at its bound: a feasible point, from which the rounds run on one
+/// warm GUB simplex copy of the master (`warm.rs`; the interior point when that point is
+/// not feasible to [`crate::tol::WARM_START_TOL`] or the simplex fails). The optimum found
+/// is kept (with its bound duals) for the first [`WalkCloser::solve`] of the same master.
+/// Cost per round: one warm re-optimisation over a basis of the arc and site rows (the
+/// demand rows are set rows), and one pricing pass of [`super`]; at most [`MAX_ROUNDS`]
+/// rounds.
 pub fn cost_master<'a>(
     net: &'a Network,
     outage: &Outage,
@@ -108,9 +121,33 @@ pub fn cost_master<'a>(
         dem_row,
         served_row,
     };
-    for w in start.walks.iter().filter_map(|w| g.lift(w)) {
-        cols.add(&mut work, w, &caps);
+    // The start point: every addition at its bound, each start walk's column at its
+    // flow (walks equal on class arcs merged).
+    let mut flow_of: HashMap<Walk, f64> = HashMap::new();
+    for (w, &f) in start.walks.iter().zip(&start.flow) {
+        if let Some(l) = g.lift(w) {
+            *flow_of.entry(l.clone()).or_insert(0.0) += f;
+            cols.add(&mut work, l, &caps);
+        }
     }
+    let mut point: Vec<f64> = work
+        .upper
+        .iter()
+        .map(|u| if u.is_finite() { *u } else { 0.0 })
+        .collect();
+    for (j, x) in point.iter_mut().enumerate().take(model.num_vars()) {
+        if !add.contains(&Some(j)) {
+            *x = 0.0f64.clamp(model.lower[j], model.upper[j]);
+        }
+    }
+    for (w, &j) in cols.order.iter().zip(&cols.served) {
+        point[j] = flow_of.get(w).copied().unwrap_or(0.0);
+    }
+    let mut set_row = vec![false; work.rows.len()];
+    for &r in cols.dem_row.iter().filter(|&&r| r != NO_ROW) {
+        set_row[r] = true;
+    }
+    let mut warm = WarmCost::new(&work, &set_row, &point);
     let closer = WalkCloser {
         g,
         caps,
@@ -121,12 +158,18 @@ pub fn cost_master<'a>(
         cols: std::sync::Mutex::new(cols),
         root_cols: 0,
         outage: outage.clone(),
+        root: None,
     };
-    if closer.generate(&mut work)?.is_none() {
+    let Some(sol) = closer.generate(&mut work, warm.as_mut())? else {
         return Ok(None);
-    }
+    };
     let mut closer = closer;
     closer.root_cols = closer.cols.lock().expect("not poisoned").order.len();
+    closer.root = Some((
+        work.lower.clone(),
+        work.upper.clone(),
+        with_bound_duals(&work, sol),
+    ));
     *model = work;
     let cols = closer.cols.lock().expect("not poisoned");
     let m = AddModel {
@@ -152,6 +195,13 @@ impl WalkCloser<'_> {
     /// or gives walks that make the restricted master feasible. O(one walk evaluation +
     /// rounds · (one interior-point solve + one pricing pass)).
     pub fn solve(&self, lp: &Lp) -> Result<LpSolution> {
+        if let Some((lower, upper, sol)) = &self.root
+            && lp.lower == *lower
+            && lp.upper == *upper
+            && lp.rows.len() == sol.duals.len()
+        {
+            return Ok(sol.clone());
+        }
         let mut work = lp.clone();
         // Columns found at other nodes, missing from `lp`.
         {
@@ -180,7 +230,7 @@ impl WalkCloser<'_> {
                 cols.add(&mut work, w, &self.caps);
             }
         }
-        let sol = self.generate(&mut work)?;
+        let sol = self.generate(&mut work, None)?;
         let mut sol = match sol {
             Some(s) => s,
             None => lp::solve(&work)?,
@@ -192,12 +242,26 @@ impl WalkCloser<'_> {
 
     /// Column generation on `work` until the Lagrangian bound meets the master's cost
     /// within [`CLOSE_GAP`] (module comment); its optimum, or `None` when a solve fails or
-    /// no new column prices out first.
-    fn generate(&self, work: &mut Lp) -> Result<Option<LpSolution>> {
+    /// no new column prices out first. Each round is solved on `warm` (the warm GUB copy
+    /// of `work`) when given, by the interior point otherwise or once the copy fails.
+    fn generate(
+        &self,
+        work: &mut Lp,
+        mut warm: Option<&mut WarmCost>,
+    ) -> Result<Option<LpSolution>> {
         let g = &self.g;
         for _ in 0..MAX_ROUNDS {
             cancel::check()?;
-            let Ok(sol) = lp::solve(work) else {
+            let solved = match warm.as_mut().map(|w| w.solve(work)) {
+                Some(Ok(sol)) => Ok(sol),
+                Some(Err(e @ Error::Interrupted(_))) => return Err(e),
+                Some(Err(_)) => {
+                    warm = None;
+                    lp::solve(work)
+                }
+                None => lp::solve(work),
+            };
+            let Ok(sol) = solved else {
                 cancel::check()?;
                 return Ok(None);
             };
@@ -270,6 +334,30 @@ impl WalkCloser<'_> {
         }
         Ok(None)
     }
+}
+
+/// `sol` (an optimum of the minimisation `lp` with its row duals, every lower bound 0)
+/// with the duals of the finite upper bounds: per variable at its upper bound, its
+/// reduced cost `c_j − Σ_r a_rj·dual_r` when negative (raising the bound would lower the
+/// cost at that rate), else 0; so [`Lp::dual_objective`] gives the cost again (strong
+/// duality). O(nonzeros).
+fn with_bound_duals(lp: &Lp, mut sol: LpSolution) -> LpSolution {
+    let mut reduced = lp.objective.clone();
+    for (r, row) in lp.rows.iter().enumerate() {
+        for &(j, a) in &row.coeffs {
+            if lp.upper[j].is_finite() {
+                reduced[j] -= a * sol.duals[r];
+            }
+        }
+    }
+    sol.upper_duals = (0..lp.num_vars())
+        .map(|j| {
+            let u = lp.upper[j];
+            let at_upper = u.is_finite() && sol.x[j] >= u - AT_BOUND_TOL * u.abs().max(1.0);
+            if at_upper { reduced[j].min(0.0) } else { 0.0 }
+        })
+        .collect();
+    sol
 }
 
 /// No row (an arc or demand without one).
