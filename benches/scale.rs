@@ -13,7 +13,9 @@
 //!
 //! - `CLOSE200`: the `G200` network written to a file and `redoubt audit FILE --fail
 //!   X` (its explanation and closing included) run by the built binary, timed, for two
-//!   links and two processing sites; the closing's cost master is the walk master (`solve::colgen::buy`).
+//!   links and two processing sites; then the same with processing 170 (expandable), where
+//!   the site failures are short and the explanation runs the closing's cost master (the
+//!   walk master of `solve::colgen::buy`).
 //!
 //! Prints scenarios, seconds per scenario (wall, 2 threads), LPs decided by each shortcut,
 //! master LP solves, pricing rounds, fallbacks and peak memory (VmHWM, so each figure
@@ -260,37 +262,53 @@ fn net_200() -> Network {
     generate(200, 200, 395, Demands::Random(3903), &procs)
 }
 
-/// `CLOSE200`: `audit --fail link:X` (with its explanation and closing) on the G200
-/// network through the binary, wall time per link.
+/// `CLOSE200`: `audit --fail X` (with its explanation and closing) on the G200 network
+/// through the binary, wall time per element: as generated (processing 200 at every tenth
+/// site: no element leaves a shortfall), then with processing 170 at those sites, each
+/// expandable (cost 1 a unit, at most 400), where every processing-site failure is short
+/// and its explanation includes the closing's cost master.
 fn close_200() {
-    let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, 200.0)).collect();
-    let doc = common::document(200, 200, 395, Demands::Random(3903), &procs, 0);
-    let path = std::env::temp_dir().join(format!("redoubt-close200-{}.json", std::process::id()));
-    std::fs::write(&path, doc.to_string()).expect("write the network");
-    println!(
-        "network G200 (file {}): audit --fail link:X, explanation and closing",
-        path.display()
-    );
-    for element in ["link:l07", "link:l150", "site:s00", "site:s10"] {
-        let t = Instant::now();
-        let out = std::process::Command::new(env!("CARGO_BIN_EXE_redoubt"))
-            .args(["audit", path.to_str().expect("utf-8 path"), "--fail"])
-            .arg(element)
-            .output()
-            .expect("redoubt runs");
-        let took = t.elapsed().as_secs_f64();
-        let text = String::from_utf8_lossy(&out.stdout);
-        let short = text
-            .lines()
-            .find(|l| l.starts_with("Verdict:"))
-            .unwrap_or("");
-        let buys = text.lines().filter(|l| l.contains("add ")).count();
+    for processing in [200.0, 170.0] {
+        let procs: Vec<(usize, f64)> = (0..200).step_by(10).map(|i| (i, processing)).collect();
+        let mut doc = common::document(200, 200, 395, Demands::Random(3903), &procs, 0);
+        if processing < 200.0 {
+            for s in doc["sites"].as_array_mut().expect("sites").iter_mut() {
+                if s.get("processing").and_then(|p| p.as_f64()).unwrap_or(0.0) > 0.0 {
+                    s["expand_cost"] = serde_json::json!(1);
+                    s["expand_max"] = serde_json::json!(400);
+                }
+            }
+        }
+        let path = std::env::temp_dir().join(format!(
+            "redoubt-close200-{processing}-{}.json",
+            std::process::id()
+        ));
+        std::fs::write(&path, doc.to_string()).expect("write the network");
         println!(
-            "  --fail {element}: {took:.1} s, exit {:?} | {short} | {buys} purchase lines",
-            out.status.code()
+            "network G200, processing {processing} (file {}): audit --fail X, explanation and closing",
+            path.display()
         );
+        for element in ["link:l07", "link:l150", "site:s00", "site:s10"] {
+            let t = Instant::now();
+            let out = std::process::Command::new(env!("CARGO_BIN_EXE_redoubt"))
+                .args(["audit", path.to_str().expect("utf-8 path"), "--fail"])
+                .arg(element)
+                .output()
+                .expect("redoubt runs");
+            let took = t.elapsed().as_secs_f64();
+            let text = String::from_utf8_lossy(&out.stdout);
+            let short = text
+                .lines()
+                .find(|l| l.starts_with("Verdict:"))
+                .unwrap_or("");
+            let buys = text.lines().filter(|l| l.contains("add ")).count();
+            println!(
+                "  --fail {element}: {took:.1} s, exit {:?} | {short} | {buys} purchase lines",
+                out.status.code()
+            );
+        }
+        let _ = std::fs::remove_file(&path);
     }
-    let _ = std::fs::remove_file(&path);
 }
 
 fn bench_200() {
