@@ -347,14 +347,7 @@ fn by_walks(
         let cg = master::Generation { p: &pricing, setup };
         cg.run(cols, bundle, work)?.map(|(walks, flow, y)| {
             let (arc_price, fn_price) = pricing.prices(&y);
-            Solved {
-                value: flow.iter().sum(),
-                walks,
-                flow,
-                arc_price,
-                fn_price,
-                ..Default::default()
-            }
+            Solved::with((walks, flow), arc_price, fn_price, None)
         })
     };
     let Some(solved) = optimum else {
