@@ -88,6 +88,12 @@ pub const WARM_ROWS: usize = 2500;
 /// Pivots allowed per warm master solve, per row of the master.
 const PIVOTS_PER_ROW: usize = 50;
 
+/// Pivots allowed to one warm master solve of `rows` rows: [`PIVOTS_PER_ROW`] per row,
+/// counting at least 100 rows. O(1).
+fn pivot_budget(rows: usize) -> usize {
+    PIVOTS_PER_ROW * rows.max(100)
+}
+
 /// One processing walk of one demand: the arcs it crosses (sorted by arc index, each with
 /// the number of crossings, 1 or 2) and the site where it is processed.
 #[derive(Debug, Clone, PartialEq, Eq, Hash)]

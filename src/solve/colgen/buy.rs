@@ -20,7 +20,7 @@
 //! (`c_d` the cheapest walk price at `y, z`). The loop stops when it meets the master's
 //! optimum within [`CLOSE_GAP`]: the restricted master is then optimal for the full model.
 
-use super::{Graph, MAX_ROUNDS, PIVOTS_PER_ROW, Walk, evaluate_walks, price};
+use super::{Graph, MAX_ROUNDS, Walk, evaluate_walks, pivot_budget, price};
 use crate::error::{Error, Result};
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -31,7 +31,6 @@ use crate::solve::surviving::Surviving;
 use std::collections::{HashMap, HashSet};
 
 mod warm;
-use crate::tol::AT_BOUND_TOL;
 use warm::WarmCost;
 
 /// The column generation stops when the Lagrangian bound is within this of the master's
@@ -130,14 +129,12 @@ pub fn cost_master<'a>(
             cols.add(&mut work, l, &caps);
         }
     }
-    let mut point: Vec<f64> = work
-        .upper
-        .iter()
-        .map(|u| if u.is_finite() { *u } else { 0.0 })
+    let mut point: Vec<f64> = (0..work.num_vars())
+        .map(|j| 0.0f64.clamp(work.lower[j], work.upper[j]))
         .collect();
-    for (j, x) in point.iter_mut().enumerate().take(model.num_vars()) {
-        if !add.contains(&Some(j)) {
-            *x = 0.0f64.clamp(model.lower[j], model.upper[j]);
+    for (a, &units) in add.iter().zip(&full) {
+        if let Some(j) = *a {
+            point[j] = units;
         }
     }
     for (w, &j) in cols.order.iter().zip(&cols.served) {
@@ -165,11 +162,7 @@ pub fn cost_master<'a>(
     };
     let mut closer = closer;
     closer.root_cols = closer.cols.lock().expect("not poisoned").order.len();
-    closer.root = Some((
-        work.lower.clone(),
-        work.upper.clone(),
-        with_bound_duals(&work, sol),
-    ));
+    closer.root = Some((work.lower.clone(), work.upper.clone(), sol));
     *model = work;
     let cols = closer.cols.lock().expect("not poisoned");
     let m = AddModel {
@@ -334,30 +327,6 @@ impl WalkCloser<'_> {
         }
         Ok(None)
     }
-}
-
-/// `sol` (an optimum of the minimisation `lp` with its row duals, every lower bound 0)
-/// with the duals of the finite upper bounds: per variable at its upper bound, its
-/// reduced cost `c_j − Σ_r a_rj·dual_r` when negative (raising the bound would lower the
-/// cost at that rate), else 0; so [`Lp::dual_objective`] gives the cost again (strong
-/// duality). O(nonzeros).
-fn with_bound_duals(lp: &Lp, mut sol: LpSolution) -> LpSolution {
-    let mut reduced = lp.objective.clone();
-    for (r, row) in lp.rows.iter().enumerate() {
-        for &(j, a) in &row.coeffs {
-            if lp.upper[j].is_finite() {
-                reduced[j] -= a * sol.duals[r];
-            }
-        }
-    }
-    sol.upper_duals = (0..lp.num_vars())
-        .map(|j| {
-            let u = lp.upper[j];
-            let at_upper = u.is_finite() && sol.x[j] >= u - AT_BOUND_TOL * u.abs().max(1.0);
-            if at_upper { reduced[j].min(0.0) } else { 0.0 }
-        })
-        .collect();
-    sol
 }
 
 /// No row (an arc or demand without one).

@@ -53,7 +53,7 @@ use rayon::prelude::*;
 
 use super::round::gap_shares;
 use super::{
-    Basis, Graph, MAX_ROUNDS, PIVOTS_PER_ROW, PRICE_TOL, Solved, Walk, evaluate_walks, price,
+    Basis, Graph, MAX_ROUNDS, PRICE_TOL, Solved, Walk, evaluate_walks, pivot_budget, price,
 };
 use crate::error::{Error, Result};
 use crate::model::Network;
@@ -590,7 +590,8 @@ impl<'a> PlanMaster<'a> {
         let left: f64 = ex.artificial.iter().map(|&c| ex.sx.value(c).max(0.0)).sum();
         if left > PLAN_FEASIBLE_TOL * scale {
             return Err(Error::Solver(format!(
-                "plan master: goal rows short by {left} on the walk columns"
+                "plan master: rows violated when added (goal or generated) still short by \
+                 {left} on the walk columns"
             )));
         }
         let entries: Vec<(usize, f64)> = ex.artificial.iter().map(|&c| (c, 1.0)).collect();
@@ -619,7 +620,7 @@ impl<'a> PlanMaster<'a> {
             if ex.sx.coupling_rows() > COUPLING_ROWS {
                 return Err(too_big());
             }
-            let limit = PIVOTS_PER_ROW * ex.sx.rows().max(100);
+            let limit = pivot_budget(ex.sx.rows());
             ex.sx.solve(limit)?;
             Ok(ex.solution(&pm.base, objective, maximise))
         })

@@ -8,14 +8,14 @@
 use std::collections::HashSet;
 use std::hash::{BuildHasher, Hash};
 
-use super::PIVOTS_PER_ROW;
+use super::pivot_budget;
 use crate::error::Result;
 use crate::solve::cancel;
 use crate::tol::WALK_PRICE_TOL as PRICE_TOL;
 
 /// The master solve of one round: checks for an interrupt, then, when the master has
 /// `rows <= limit` rows and `needed` (it has columns), calls `solve` with the pivot budget
-/// [`PIVOTS_PER_ROW`]` · max(rows, 100)`. `Ok(false)`: the master is abandoned (too many
+/// [`pivot_budget`]`(rows)`. `Ok(false)`: the master is abandoned (too many
 /// rows, or the solve failed without an interrupt); `Err` on an interrupt.
 /// Cost: that of `solve`.
 pub(crate) fn solve_round(
@@ -28,7 +28,7 @@ pub(crate) fn solve_round(
     if rows > limit {
         return Ok(false);
     }
-    if needed && solve(PIVOTS_PER_ROW * rows.max(100)).is_err() {
+    if needed && solve(pivot_budget(rows)).is_err() {
         // An interrupt ends the scenario; any other failure abandons the master.
         cancel::check()?;
         return Ok(false);

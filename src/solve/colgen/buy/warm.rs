@@ -5,11 +5,11 @@
 //! (about 800 arc and site rows, 4,000 demand rows) pivots on an 800-row basis where the
 //! interior point refactorised the whole master every round.
 
-use super::PIVOTS_PER_ROW;
+use super::pivot_budget;
 use crate::error::{Error, Result};
 use crate::solve::gub::Gub;
 use crate::solve::lp::{Lp, LpSolution, Sense};
-use crate::tol::WARM_START_TOL;
+use crate::tol::{AT_BOUND_TOL, WARM_START_TOL};
 
 /// A copy of a minimisation `work` (`≤` and `≥` rows, bounded variables) on the GUB
 /// simplex, which maximises over `≤` rows: a `≥` row enters negated and the objective
@@ -85,13 +85,13 @@ impl WarmCost {
     }
 
     /// The optimum of `work` (its new columns added at 0) re-optimised from the last
-    /// vertex: values per variable and row duals in [`LpSolution`]'s convention (d cost /
-    /// d rhs as `work` writes the row; bound duals are not computed and left 0). An error
+    /// vertex: values per variable, row and bound duals in [`LpSolution`]'s convention (d
+    /// cost / d rhs as `work` writes the row; [`with_bound_duals`]). An error
     /// when the simplex fails (pivot limit, singular basis, a column outside GUB form).
     /// O(pivots · (m₁² + priced entries)).
     pub(super) fn solve(&mut self, work: &Lp) -> Result<LpSolution> {
         self.sync(work, &[]);
-        let limit = PIVOTS_PER_ROW * self.sx.rows().max(100);
+        let limit = pivot_budget(self.sx.rows());
         self.sx.solve(limit)?;
         let x: Vec<f64> = self.col.iter().map(|&c| self.sx.value(c)).collect();
         let duals = self
@@ -103,11 +103,38 @@ impl WarmCost {
         if !objective.is_finite() {
             return Err(Error::Solver("closing master: a non-finite cost".into()));
         }
-        Ok(LpSolution {
-            upper_duals: vec![0.0; work.num_vars()],
-            x,
-            duals,
-            objective,
-        })
+        Ok(with_bound_duals(
+            work,
+            LpSolution {
+                upper_duals: Vec::new(),
+                x,
+                duals,
+                objective,
+            },
+        ))
     }
+}
+
+/// `sol` (an optimum of the minimisation `lp` with its row duals, every lower bound 0)
+/// with the duals of the finite upper bounds: per variable at its upper bound, its
+/// reduced cost `c_j − Σ_r a_rj·dual_r` when negative (raising the bound would lower the
+/// cost at that rate), else 0; so [`Lp::dual_objective`] gives the cost again (strong
+/// duality). O(nonzeros).
+fn with_bound_duals(lp: &Lp, mut sol: LpSolution) -> LpSolution {
+    let mut reduced = lp.objective.clone();
+    for (r, row) in lp.rows.iter().enumerate() {
+        for &(j, a) in &row.coeffs {
+            if lp.upper[j].is_finite() {
+                reduced[j] -= a * sol.duals[r];
+            }
+        }
+    }
+    sol.upper_duals = (0..lp.num_vars())
+        .map(|j| {
+            let u = lp.upper[j];
+            let at_upper = u.is_finite() && sol.x[j] >= u - AT_BOUND_TOL * u.abs().max(1.0);
+            if at_upper { reduced[j].min(0.0) } else { 0.0 }
+        })
+        .collect();
+    sol
 }
