@@ -8,7 +8,9 @@
 //! walks and prices decided it, the interval and its width relative to required, the mean,
 //! the estimate of the whole depth-1 audit on two threads (mean × links / 2) and the peak
 //! memory (VmHWM). `-- K congested` lowers the processing below the required total, so
-//! every scenario is short (the hard case). `-- full` then runs the whole depth-1 audit of
+//! every scenario is short (there the cut of the full sites proves the optimum at once);
+//! `-- K tight` gives the links a tenth of their capacity, so links bind beside the
+//! processing and the phases must do the work (the hard case). `-- full` then runs the whole depth-1 audit of
 //! every link through the audit's own batch (baseline, then every link failure from it,
 //! two threads, thin evaluations) and prints its wall time, the widest interval, how many
 //! intervals are exact and how many are wider than ε (must be 0), and the peak memory.
@@ -23,7 +25,8 @@ use redoubt::scenario::{Element, Kinds, Scenario};
 use redoubt::solve::{Engine, approx};
 use serde_json::json;
 
-/// A ring plus random chords up to `links`, capacities 400..1,500; processing `proc` at
+/// A ring plus random chords up to `links`, capacities 400..1,500 times `link_scale`;
+/// processing `proc` at
 /// every 20th site; `sources` origins each with `per_source` random destinations, volume
 /// 0.2..1.6 (a third requiring 80 %).
 fn network(
@@ -33,6 +36,7 @@ fn network(
     sources: usize,
     per_source: usize,
     proc: f64,
+    link_scale: f64,
 ) -> Network {
     let mut rng = Rng(seed);
     let mut edges: Vec<(usize, usize)> = (0..sites).map(|i| (i, (i + 1) % sites)).collect();
@@ -53,7 +57,7 @@ fn network(
         .enumerate()
         .map(|(k, &(a, b))| {
             json!({"id": format!("l{k}"), "from": format!("s{a}"), "to": format!("s{b}"),
-                   "capacity": caps[rng.below(caps.len())]})
+                   "capacity": caps[rng.below(caps.len())] * link_scale})
         })
         .collect();
     let mut demand_docs = Vec::new();
@@ -88,9 +92,13 @@ fn main() {
     } else {
         400.0
     };
+    let link_scale: f64 = std::env::var("LINK_SCALE")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(1.0);
     let eps = 0.01;
     let t = Instant::now();
-    let net = network(7, 1000, 2000, 100, 200, proc);
+    let net = network(7, 1000, 2000, 100, 200, proc, link_scale);
     println!(
         "network: {} sites, {} links, {} demands; built in {:.1} s; peak {:.0} MB",
         net.sites.len(),

@@ -120,6 +120,57 @@ fn random_networks_contain_the_edge_optimum() {
     }
 }
 
+/// Processing runs out (the random networks with 3 units at sites 0, 3 and 6, 9 in all,
+/// below the demand): every interval holds the edge LP's proven optimum, and wherever
+/// that optimum is the surviving processing itself (every walk needs a site, so no
+/// allocation serves more), the interval is closed exactly at it: the cut of the full
+/// sites proves it at once (the certificate with price 1 on each full site, 0 elsewhere).
+#[test]
+fn processing_bound_scenarios_close_exactly() {
+    let mut closed = 0;
+    for seed in 31..=33 {
+        let text = random::random_network(seed, 9, 14, 12, |i, _| if i % 3 == 0 { 3 } else { 0 });
+        let file = TempPath::with_text("approx-processing", &text);
+        let args = ["--depth", "1", "--kinds", "links,sites"];
+        let mut with_engine = args.to_vec();
+        with_engine.extend_from_slice(&["--engine", "approx", "--epsilon", "0.05"]);
+        let approx = audit_json(file.path(), &with_engine);
+        let mut edge_args = args.to_vec();
+        edge_args.extend_from_slice(&["--engine", "edge"]);
+        let edge = audit_json(file.path(), &edge_args);
+        contains_edge(&approx, &edge, 0.05);
+        for (a, e) in approx["scenarios"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .zip(edge["scenarios"].as_array().unwrap())
+        {
+            assert_eq!(a["failed"], e["failed"]);
+            let lost = a["failed"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .filter(|f| ["site:s0", "site:s3", "site:s6"].contains(&f.as_str().unwrap()))
+                .count();
+            let processing = 9.0 - 3.0 * lost as f64;
+            let exact = e["served_required"].as_f64().unwrap();
+            if (exact - processing).abs() < 1e-9 {
+                closed += 1;
+                let (lo, hi) = (
+                    a["served_required"].as_f64().unwrap(),
+                    a["upper_bound"].as_f64().unwrap(),
+                );
+                assert!(
+                    (lo - exact).abs() < 1e-6 && (hi - exact).abs() < 1e-6,
+                    "{}: [{lo}, {hi}] is not closed at {exact}",
+                    a["failed"]
+                );
+            }
+        }
+    }
+    assert!(closed > 0, "no processing-bound scenario was generated");
+}
+
 /// Depth 2 over links and sites: every double failure starts from its single-failure
 /// parent's walks and certificate prices (kept when that interval is within ε), so the
 /// warm intervals, including those after a processing site fails, are checked against the

@@ -66,3 +66,46 @@ fn arc_crossed_twice() {
     // The stored proof passes the re-check of journaled results.
     super::super::recheck::recheck(&n, &Outage::default(), &e).unwrap();
 }
+
+/// Processing is what runs out (hand-built): a 12-site ring with links of capacity 1,000
+/// in both directions and processing 3 at sites 0, 4 and 8 (9 in all), eleven demands
+/// of 2 from site 1 to every other site (22 in all). Links carry far more than any walk
+/// needs, so the three sites fill: the optimum is 9, certified by the price 1 on each
+/// site (`9·1 + Σ b·max(0, 1 − 1) = 9`). The interval must close at 9 and be proven:
+/// the scaled lengths alone stop anywhere within ε·22 of it.
+#[test]
+fn processing_bound_network_closes_exactly() {
+    let sites: Vec<String> = (0..12)
+        .map(|i| {
+            let p = if i % 4 == 0 { 3 } else { 0 };
+            format!(r#"{{"id":"v{i}","processing":{p}}}"#)
+        })
+        .collect();
+    let links: Vec<String> = (0..12)
+        .map(|i| {
+            format!(
+                r#"{{"id":"l{i}","from":"v{i}","to":"v{}","capacity":1000}}"#,
+                (i + 1) % 12
+            )
+        })
+        .collect();
+    let demands: Vec<String> = (0..12)
+        .filter(|&j| j != 1)
+        .map(|j| format!(r#"{{"from":"v1","to":"v{j}","volume":2}}"#))
+        .collect();
+    let n = net(&format!(
+        r#"{{"sites":[{}],"links":[{}],"demands":[{}]}}"#,
+        sites.join(","),
+        links.join(","),
+        demands.join(",")
+    ));
+    for eps in [0.01, 0.1] {
+        let e = evaluate_approx(&n, &Outage::default(), eps).unwrap();
+        let v = &e.verification;
+        assert!(v.proven, "{v:?}");
+        assert!(
+            (v.lower - 9.0).abs() < 1e-9 && (v.upper - 9.0).abs() < 1e-9,
+            "{v:?}"
+        );
+    }
+}

@@ -8,7 +8,8 @@
 //! short demands are then topped up along the residual network ([`super::top_up`]). That
 //! is the lower bound. The parent's certificate prices are nonnegative prices for the
 //! child's rows too, so the certificate ([`certify::dual_bound`], weak duality) computed
-//! on the child's surviving network with them is a valid upper bound. When the two are
+//! on the child's surviving network with them is a valid upper bound; when it is too
+//! loose, the cut of the child's own allocation ([`super::cut`]) is tried too. When the two are
 //! within `ε × at_stake`, that interval is the answer, as proven as a cold run's (both
 //! ends checked by the verifier's own code). Otherwise the cold scheme of
 //! [`super::solve_approx`] runs as before.
@@ -156,8 +157,36 @@ fn from_parent(
         &kept.site_price,
     )
     .min(s.at_stake);
+    let mut prices = (kept.arc_price.clone(), kept.site_price.clone());
+    let mut upper = upper;
     if upper - allocation.served > s.target {
-        return None;
+        // The parent's prices do not bound this network tightly: try the child's own
+        // allocation's cut ([`super::cut`]) before giving up.
+        let inputs = super::cut::CutInputs {
+            layers: &st.layers,
+            by_origin: &s.by_origin,
+            bound: &s.bound,
+            arc_cap: &s.arc_cap,
+            site_cap: &s.site_cap,
+        };
+        let cut = super::cut::cut(net, &inputs, &allocation);
+        if cut.value - allocation.served > s.target {
+            return None;
+        }
+        upper = certify::dual_bound(
+            net,
+            view,
+            &s.all,
+            &s.arc_cap,
+            &s.site_cap,
+            &cut.arc_price,
+            &cut.site_price,
+        )
+        .min(s.at_stake);
+        if upper - allocation.served > s.target {
+            return None;
+        }
+        prices = (cut.arc_price, cut.site_price);
     }
     let verification = one_attempt(
         0.0,
@@ -175,7 +204,7 @@ fn from_parent(
         allocation,
         lp_value,
         verification,
-        (kept.arc_price.clone(), kept.site_price.clone()),
+        prices,
     ))
 }
 
