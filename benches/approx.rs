@@ -92,10 +92,12 @@ fn main() {
     } else {
         400.0
     };
-    let link_scale: f64 = std::env::var("LINK_SCALE")
-        .ok()
-        .and_then(|v| v.parse().ok())
-        .unwrap_or(1.0);
+    // `tight`: link capacities a tenth (40..150), so links bind beside the processing.
+    let link_scale = if std::env::args().any(|a| a == "tight") {
+        0.1
+    } else {
+        1.0
+    };
     let eps = 0.01;
     let t = Instant::now();
     let net = network(7, 1000, 2000, 100, 200, proc, link_scale);

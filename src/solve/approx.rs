@@ -533,6 +533,9 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
     }
     let mut phases = 0;
     let mut next_check = 1;
+    // The best allocation and cut seen at the checks, and whether the walks moved since.
+    let mut best = bounds::Best::default();
+    let mut fresh = false;
     let mut standard_done = false;
     while !origins.is_empty() && alpha.is_finite() && phases < max_phases {
         // A phase on a large network takes well under a second: Ctrl-C is seen in time.
@@ -591,18 +594,31 @@ pub fn solve_approx(net: &Network, view: &Surviving, cap: Cap, eps: f64) -> Resu
         if !standard_done && d_stored.ln() + scale >= 0.0 {
             standard_done = true;
         }
+        fresh = false;
         if standard_done || phases >= next_check {
             next_check = phases + phases.div_ceil(4);
-            let (lower, upper) =
-                estimate(&mut st, &by_origin, &active, &walk_len, &arc_cap, &site_cap);
+            let (lower, upper) = estimate(
+                &mut st, &by_origin, &active, &walk_len, &arc_cap, &site_cap, &mut best,
+            );
+            fresh = true;
             if upper.min(at_stake) - lower <= target {
                 break;
             }
         }
     }
     Ok(verified(
-        net, view, &mut st, &by_origin, &all, &active, &walk_len, &arc_cap, &site_cap, at_stake,
+        net,
+        view,
+        &mut st,
+        &by_origin,
+        &all,
+        &active,
+        &walk_len,
+        &arc_cap,
+        &site_cap,
+        at_stake,
         eps,
+        (best, fresh),
     ))
 }
 

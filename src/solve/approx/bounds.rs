@@ -11,12 +11,38 @@ use crate::model::Network;
 use crate::solve::surviving::Surviving;
 use crate::solve::{Verified, certify, verify};
 
+/// The best ends a run has seen: the allocation that delivers the most and the cut with
+/// the least value. Both stay valid while the run goes on (an allocation stays feasible,
+/// prices stay nonnegative prices of the same network), so the interval a run reports
+/// only narrows from one check to the next, although the repaired walks and the cut of
+/// any one check may be worse than an earlier one's.
+#[derive(Default)]
+pub(super) struct Best {
+    alloc: Option<verify::Repaired>,
+    cut: Option<cut::Cut>,
+}
+
+impl Best {
+    /// Keeps `alloc` if it delivers more than the best so far, `cut` if its value is
+    /// smaller. O(1) (moves).
+    fn offer(&mut self, alloc: verify::Repaired, cut: cut::Cut) {
+        if self.alloc.as_ref().is_none_or(|b| alloc.served > b.served) {
+            self.alloc = Some(alloc);
+        }
+        if self.cut.as_ref().is_none_or(|b| cut.value < b.value) {
+            self.cut = Some(cut);
+        }
+    }
+}
+
 /// The interval of a run in progress: the verifier's repair of the walks (raw and scaled
-/// by their largest overload, the better kept) and the smaller of two bounds: the
-/// certificate with each demand's last computed walk length (a lower bound on its current
-/// one, so never below the true certificate) at the best scale, and the value of the
-/// allocation's pruned cut ([`cut::cut`], exact for 0/1 prices). O(Σ walk lengths +
-/// demands·log demands) plus the cut's searches.
+/// by their largest overload, the better kept), or the best allocation seen before if it
+/// delivers more, and the smaller of two bounds: the certificate with each demand's last
+/// computed walk length (a lower bound on its current one, so never below the true
+/// certificate) at the best scale, and the value of the least pruned cut seen
+/// ([`cut::cut`] of this allocation or an earlier one, exact for 0/1 prices). Updates
+/// `best`. O(Σ walk lengths + demands·log demands) plus the cut's searches.
+#[allow(clippy::too_many_arguments)]
 pub(super) fn estimate(
     st: &mut State,
     by_origin: &[Vec<usize>],
@@ -24,9 +50,24 @@ pub(super) fn estimate(
     walk_len: &[f64],
     arc_cap: &[f64],
     site_cap: &[f64],
+    best: &mut Best,
 ) -> (f64, f64) {
-    let alloc = repaired(st, by_origin);
+    check(st, by_origin, arc_cap, site_cap, best);
     let (a, terms) = priced(st, active, walk_len, arc_cap, site_cap);
+    let lower = best.alloc.as_ref().map_or(0.0, |b| b.served);
+    let cut = best.cut.as_ref().map_or(f64::INFINITY, |c| c.value);
+    (lower, best_scale(a, &terms).0.min(cut))
+}
+
+/// The allocation of the run's current walks and its cut, offered to `best`.
+fn check(
+    st: &mut State,
+    by_origin: &[Vec<usize>],
+    arc_cap: &[f64],
+    site_cap: &[f64],
+    best: &mut Best,
+) {
+    let alloc = repaired(st, by_origin);
     let inputs = cut::CutInputs {
         layers: &st.layers,
         by_origin,
@@ -35,7 +76,7 @@ pub(super) fn estimate(
         site_cap,
     };
     let cut = cut::cut(st.net, &inputs, &alloc);
-    (alloc.served, best_scale(a, &terms).0.min(cut.value))
+    best.offer(alloc, cut);
 }
 
 /// The verifier's repair ([`verify::repair_walks`]) of the run's walks, raw and scaled by
@@ -169,7 +210,9 @@ fn priced(
     (a, terms)
 }
 
-/// The verified result of a finished run (see [`solve_approx`]).
+/// The verified result of a finished run (see [`solve_approx`]): the best allocation and
+/// cut the run has seen (`best`; when `fresh` is false the run's current walks are
+/// checked first, as the run moved on since its last check).
 #[allow(clippy::too_many_arguments)]
 pub(super) fn verified(
     net: &Network,
@@ -183,11 +226,17 @@ pub(super) fn verified(
     site_cap: &[f64],
     at_stake: f64,
     eps: f64,
+    (mut best, fresh): (Best, bool),
 ) -> Verified {
     let arc_capacity: Vec<f64> = net.arcs.iter().map(|a| a.capacity).collect();
     let site_capacity: Vec<f64> = net.sites.iter().map(|s| s.processing).collect();
     let u = st.overload();
-    let allocation = repaired(st, by_origin);
+    if !fresh {
+        check(st, by_origin, arc_cap, site_cap, &mut best);
+    }
+    let (Some(allocation), Some(cut)) = (best.alloc, best.cut) else {
+        unreachable!("check fills both")
+    };
     // The residual of the scheme's own answer (the flow scaled by its largest overload).
     let over = |load: f64, cap: f64| {
         let load = load / u;
@@ -225,15 +274,7 @@ pub(super) fn verified(
         })
         .collect();
     let scaled = certify::dual_bound(net, view, all, arc_cap, site_cap, &arc_price, &site_price);
-    // The allocation's cut ([`cut::cut`]): the better prices of the two are reported.
-    let inputs = cut::CutInputs {
-        layers: &st.layers,
-        by_origin,
-        bound: st.bound,
-        arc_cap,
-        site_cap,
-    };
-    let cut = cut::cut(net, &inputs, &allocation);
+    // The least cut seen ([`cut::cut`]): the better prices of the two are reported.
     let cut_bound = certify::dual_bound(
         net,
         view,

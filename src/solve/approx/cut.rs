@@ -19,9 +19,10 @@
 //!
 //! **Cost.** One graph search per origin on the two-layer graph, O(origins·(sites +
 //! arcs)); each pruning trial searches only from the removed row's far end in the origins
-//! that reach its near end, over nodes not yet reached, so all trials together cost at
-//! most O(|R|·origins·(sites + arcs)) and usually far less. Memory: one reached flag per
-//! (origin, node).
+//! that reach its near end, over nodes not yet reached, and stops as soon as the demands
+//! it reconnects are worth the row's capacity (the row then stays), so all trials
+//! together cost at most O(|R|·origins·(sites + arcs)) and usually far less. Memory: one
+//! reached flag per (origin, node) and one cap total per (origin, destination site).
 //!
 //! **What is trusted.** Nothing: the value computed here only steers the run's stopping
 //! test; the reported bound is the certificate's, computed by `certify` with these prices.
@@ -53,11 +54,12 @@ pub(super) struct CutInputs<'a> {
 }
 
 /// One origin's search state: which nodes its walks reach while avoiding the cut, and
-/// per destination node (`2t + 1`, processed) the caps of its demands ending there.
+/// per destination site `t` (reached as node `2t + 1`, processed) the caps of its
+/// demands ending there.
 struct Origin {
     node: usize,
     reached: Vec<bool>,
-    dest: HashMap<usize, f64>,
+    dest: Vec<f64>,
 }
 
 /// The pruned cut of the module documentation for `alloc` (any allocation whose loads
@@ -115,9 +117,9 @@ pub(super) fn cut(net: &Network, x: &CutInputs, alloc: &verify::Repaired) -> Cut
         .enumerate()
         .filter(|(_, ds)| !ds.is_empty())
         .map(|(s, ds)| {
-            let mut dest: HashMap<usize, f64> = HashMap::new();
+            let mut dest = vec![0.0; net.sites.len()];
             for &d in ds {
-                *dest.entry(2 * net.demands[d].to.0 + 1).or_insert(0.0) += x.bound[d];
+                dest[net.demands[d].to.0] += x.bound[d];
             }
             Origin {
                 node: 2 * s,
@@ -135,9 +137,15 @@ pub(super) fn cut(net: &Network, x: &CutInputs, alloc: &verify::Repaired) -> Cut
     for o in &mut origins {
         let mut fresh = Vec::new();
         let root = o.node;
-        value += search(layers, o, root, &mut stack, &mut fresh, |r| {
-            open(r, &arc_cut, &site_cut)
-        });
+        value += search(
+            layers,
+            o,
+            root,
+            f64::INFINITY,
+            &mut stack,
+            &mut fresh,
+            |r| open(r, &arc_cut, &site_cut),
+        );
     }
     // Pruning, largest capacity first.
     rows.sort_by(|p, q| {
@@ -161,13 +169,18 @@ pub(super) fn cut(net: &Network, x: &CutInputs, alloc: &verify::Repaired) -> Cut
         let edges = ends.get(&key).map(Vec::as_slice).unwrap_or(&[]);
         let mut gained = 0.0;
         let mut visited: Vec<(usize, Vec<usize>)> = Vec::new();
-        for (k, o) in origins.iter_mut().enumerate() {
+        'origins: for (k, o) in origins.iter_mut().enumerate() {
             let mut fresh = Vec::new();
             for &(tail, head) in edges {
                 if o.reached[tail] && !o.reached[head] {
-                    gained += search(layers, o, head, &mut stack, &mut fresh, |r| {
+                    gained += search(layers, o, head, cap - gained, &mut stack, &mut fresh, |r| {
                         open(r, &arc_cut, &site_cut)
                     });
+                }
+                if gained >= cap {
+                    // The row stays in the cut whatever the other origins reach.
+                    visited.push((k, fresh));
+                    break 'origins;
                 }
             }
             if !fresh.is_empty() {
@@ -199,12 +212,14 @@ pub(super) fn cut(net: &Network, x: &CutInputs, alloc: &verify::Repaired) -> Cut
 
 /// Marks every node reachable from `from` (not yet reached) over edges whose row is
 /// `open` as reached for `o`, appends them to `fresh`, and returns the caps of the
-/// demands of `o` whose destination it newly reaches. O(nodes + edges) over the nodes
-/// newly reached.
+/// demands of `o` whose destination it newly reaches. Stops early, with part of the
+/// nodes marked (all of them in `fresh`), once those caps reach `limit`: the caller then
+/// undoes the marks. O(nodes + edges) over the nodes newly reached.
 fn search(
     layers: &Layers,
     o: &mut Origin,
     from: usize,
+    limit: f64,
     stack: &mut Vec<usize>,
     fresh: &mut Vec<usize>,
     open: impl Fn(Row) -> bool,
@@ -214,18 +229,26 @@ fn search(
     }
     let mut gained = 0.0;
     o.reached[from] = true;
+    fresh.push(from);
+    stack.clear();
     stack.push(from);
     while let Some(u) = stack.pop() {
-        fresh.push(u);
-        gained += o.dest.get(&u).copied().unwrap_or(0.0);
+        if u % 2 == 1 {
+            gained += o.dest[u / 2];
+            if gained >= limit {
+                break;
+            }
+        }
         for e in layers.start[u]..layers.start[u + 1] {
             let w = layers.to[e];
             if !o.reached[w] && open(layers.row[e]) {
                 o.reached[w] = true;
+                fresh.push(w);
                 stack.push(w);
             }
         }
     }
+    stack.clear();
     gained
 }
 
