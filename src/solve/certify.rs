@@ -85,6 +85,26 @@ pub fn dual_bound_rooted(
     total
 }
 
+/// The certificate's prices `arc_price`, `site_price` as the shadow prices a report shows:
+/// negative read as 0, and 0 on each row whose presolved capacity (`arc_cap`, `site_cap`)
+/// is below its real one, since such a row does not bind. O(arcs + sites).
+pub fn shadow_prices(
+    net: &Network,
+    (arc_cap, site_cap): (&[f64], &[f64]),
+    arc_price: &[f64],
+    site_price: &[f64],
+) -> (Vec<f64>, Vec<f64>) {
+    let shown = |cap: f64, real: f64, price: f64| if cap < real { 0.0 } else { price.max(0.0) };
+    (
+        (0..net.arcs.len())
+            .map(|a| shown(arc_cap[a], net.arcs[a].capacity, arc_price[a]))
+            .collect(),
+        (0..net.sites.len())
+            .map(|v| shown(site_cap[v], net.sites[v].processing, site_price[v]))
+            .collect(),
+    )
+}
+
 /// `Σ_a cap_a·y_a + Σ_v proc_v·z_v` over the usable arcs and the sites that can process
 /// on `view`, with negative prices read as 0: what the resources are worth at these
 /// prices. O(arcs + sites).

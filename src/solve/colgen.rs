@@ -689,7 +689,8 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
     )
     .min(at_stake);
     let reach = price(g, caps, &s.arc_price, &s.site_price, None);
-    let lowered = |cap: f64, real: f64| cap < real;
+    let (arc_price, site_price) =
+        certify::shadow_prices(net, (&arc_cap, &site_cap), &s.arc_price, &s.site_price);
     Verified {
         lp_value: s.value,
         verification: super::one_attempt(
@@ -700,24 +701,8 @@ fn verified(g: &Graph, view: &Surviving, s: &Solved, caps: &[f64]) -> Verified {
             "walks".into(),
         ),
         allocation,
-        arc_price: (0..net.arcs.len())
-            .map(|a| {
-                if lowered(arc_cap[a], net.arcs[a].capacity) {
-                    0.0
-                } else {
-                    s.arc_price[a].max(0.0)
-                }
-            })
-            .collect(),
-        site_price: (0..net.sites.len())
-            .map(|v| {
-                if lowered(site_cap[v], net.sites[v].processing) {
-                    0.0
-                } else {
-                    s.site_price[v].max(0.0)
-                }
-            })
-            .collect(),
+        arc_price,
+        site_price,
         arc_has_row,
         site_has_row: reach.site_reached,
         bound_price: (s.arc_price.clone(), s.site_price.clone()),

@@ -323,30 +323,13 @@ pub(super) fn with_prices(
     bound_price: (Vec<f64>, Vec<f64>),
 ) -> Verified {
     let (arc_cap, site_cap) = caps;
-    let (arc_price, site_price) = &bound_price;
-    let lowered = |c: f64, real: f64| c < real;
+    let (arc_price, site_price) = certify::shadow_prices(net, caps, &bound_price.0, &bound_price.1);
     Verified {
         lp_value,
         verification,
         allocation,
-        arc_price: (0..net.arcs.len())
-            .map(|a| {
-                if lowered(arc_cap[a], net.arcs[a].capacity) {
-                    0.0
-                } else {
-                    arc_price[a]
-                }
-            })
-            .collect(),
-        site_price: (0..net.sites.len())
-            .map(|v| {
-                if lowered(site_cap[v], net.sites[v].processing) {
-                    0.0
-                } else {
-                    site_price[v]
-                }
-            })
-            .collect(),
+        arc_price,
+        site_price,
         arc_has_row: (0..net.arcs.len())
             .map(|a| view.arc_usable[a] && arc_cap[a] > 0.0)
             .collect(),
