@@ -67,6 +67,18 @@ fn contains_edge(approx: &Value, edge: &Value, eps: f64) {
     }
 }
 
+/// The audits of `file` at `--depth DEPTH` over links and sites with `--engine approx
+/// --epsilon EPS` and with `--engine edge`, in that order.
+fn approx_and_edge(file: &str, depth: &str, eps: &str) -> (Value, Value) {
+    let args = ["--depth", depth, "--kinds", "links,sites", "--engine"];
+    let with = |engine: &[&str]| {
+        let mut all = args.to_vec();
+        all.extend_from_slice(engine);
+        audit_json(file, &all)
+    };
+    (with(&["approx", "--epsilon", eps]), with(&["edge"]))
+}
+
 #[test]
 fn small_ring_depth_1_at_one_percent() {
     let f = fixture("small-ring.json");
@@ -131,13 +143,7 @@ fn processing_bound_scenarios_close_exactly() {
     for seed in 31..=33 {
         let text = random::random_network(seed, 9, 14, 12, |i, _| if i % 3 == 0 { 3 } else { 0 });
         let file = TempPath::with_text("approx-processing", &text);
-        let args = ["--depth", "1", "--kinds", "links,sites"];
-        let mut with_engine = args.to_vec();
-        with_engine.extend_from_slice(&["--engine", "approx", "--epsilon", "0.05"]);
-        let approx = audit_json(file.path(), &with_engine);
-        let mut edge_args = args.to_vec();
-        edge_args.extend_from_slice(&["--engine", "edge"]);
-        let edge = audit_json(file.path(), &edge_args);
+        let (approx, edge) = approx_and_edge(file.path(), "1", "0.05");
         contains_edge(&approx, &edge, 0.05);
         for (a, e) in approx["scenarios"]
             .as_array()
@@ -179,13 +185,7 @@ fn processing_bound_scenarios_close_exactly() {
 fn doubles_from_their_parents_contain_the_edge_optimum() {
     for seed in 11..=13 {
         let file = TempPath::with_text("approx-doubles", &random_network(seed, 8, 12, 10));
-        let args = ["--depth", "2", "--kinds", "links,sites"];
-        let mut with_engine = args.to_vec();
-        with_engine.extend_from_slice(&["--engine", "approx", "--epsilon", "0.02"]);
-        let approx = audit_json(file.path(), &with_engine);
-        let mut edge_args = args.to_vec();
-        edge_args.extend_from_slice(&["--engine", "edge"]);
-        let edge = audit_json(file.path(), &edge_args);
+        let (approx, edge) = approx_and_edge(file.path(), "2", "0.02");
         contains_edge(&approx, &edge, 0.02);
     }
 }
