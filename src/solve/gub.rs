@@ -555,6 +555,26 @@ impl Gub {
     }
 }
 
+impl pivoting::Product for Gub {
+    type Var = Var;
+    fn slack_row(v: Var) -> Option<usize> {
+        match v {
+            Var::Slack(i) => Some(i),
+            Var::Col(_) | Var::SetSlack(_) => None,
+        }
+    }
+    fn slack(i: usize) -> Var {
+        Var::Slack(i)
+    }
+    fn inverse(&mut self) -> &mut Vec<Vec<f64>> {
+        &mut self.winv
+    }
+    /// The working basis column of `v` ([`Gub::w_column`]) through `W⁻¹`.
+    fn alpha(&self, v: Var) -> Vec<f64> {
+        self.solve_w(&self.w_column(v))
+    }
+}
+
 impl Primal for Gub {
     type Var = Var;
 
@@ -625,25 +645,7 @@ impl Primal for Gub {
     fn reinvert(&mut self) -> Result<()> {
         let m = self.rhs.len();
         let vars: Vec<Var> = self.work.clone();
-        self.winv = pivoting::identity(m);
-        let mut taken = vec![false; m];
-        for v in &vars {
-            if let Var::Slack(i) = v {
-                taken[*i] = true;
-            }
-        }
-        let mut work: Vec<Var> = (0..m).map(Var::Slack).collect();
-        for v in vars {
-            if matches!(v, Var::Slack(_)) {
-                continue;
-            }
-            super::cancel::check()?;
-            let alpha = self.solve_w(&self.w_column(v));
-            let best = pivoting::largest_free(&alpha, &taken, "gub simplex")?;
-            taken[best] = true;
-            pivoting::eta(&mut self.winv, best, &alpha);
-            work[best] = v;
-        }
+        let work = pivoting::reinvert(self, m, &vars, "gub simplex")?;
         for i in 0..m {
             if self.slack_pos[i] != Pos::Nonbasic {
                 self.slack_pos[i] = Pos::Nonbasic;

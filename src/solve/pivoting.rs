@@ -2,8 +2,8 @@
 //! basis inverse; [`super::gub::Gub`], generalised upper bounds with a dense inverse of
 //! the working basis): the solve loop with its refresh cadence and anti-cycling switch
 //! ([`run`] over [`Primal`]), the ratio test's step of one basic variable to its bound
-//! ([`step_to_bound`], [`replaces`]), and the explicit inverse's eta update and the pivot
-//! choice of a re-inversion ([`eta`], [`identity`], [`largest_free`]).
+//! ([`step_to_bound`], [`replaces`]), and the explicit inverse's eta update and its
+//! re-inversion in product form ([`eta`], [`reinvert`] over [`Product`]).
 
 use super::cancel;
 use crate::error::{Error, Result};
@@ -127,8 +127,56 @@ pub(super) fn eta(inv: &mut [Vec<f64>], p: usize, alpha: &[f64]) {
     }
 }
 
+/// A simplex whose basis inverse is explicit and rebuilt in product form by [`reinvert`].
+pub(super) trait Product {
+    type Var: Copy;
+    /// The row of `v` when `v` is that row's own slack, `None` for any other variable.
+    fn slack_row(v: Self::Var) -> Option<usize>;
+    /// The slack of row `i`.
+    fn slack(i: usize) -> Self::Var;
+    /// The inverse (column-major, as [`eta`] reads it).
+    fn inverse(&mut self) -> &mut Vec<Vec<f64>>;
+    /// `v`'s column times the current inverse.
+    fn alpha(&self, v: Self::Var) -> Vec<f64>;
+}
+
+/// Rebuilds the `m × m` inverse of `s` for the basic variables `vars`: from the identity
+/// (every row held by its slack), each variable of `vars` that is not a slack is pivoted
+/// in at its largest entry among the positions still free (a slack of `vars` keeps its
+/// own row). Returns the variable at each position; an error when the basis is
+/// numerically singular (named `what`) or an interrupt is asked for (polled per column).
+/// O(m² · non-slack variables).
+pub(super) fn reinvert<S: Product>(
+    s: &mut S,
+    m: usize,
+    vars: &[S::Var],
+    what: &str,
+) -> Result<Vec<S::Var>> {
+    *s.inverse() = identity(m);
+    let mut taken = vec![false; m];
+    for &v in vars {
+        if let Some(i) = S::slack_row(v) {
+            taken[i] = true;
+        }
+    }
+    let mut at: Vec<S::Var> = (0..m).map(S::slack).collect();
+    for &v in vars {
+        if S::slack_row(v).is_some() {
+            continue;
+        }
+        // O(m²) per column: a large basis takes long enough to poll.
+        cancel::check()?;
+        let alpha = s.alpha(v);
+        let best = largest_free(&alpha, &taken, what)?;
+        taken[best] = true;
+        eta(s.inverse(), best, &alpha);
+        at[best] = v;
+    }
+    Ok(at)
+}
+
 /// The `m × m` identity, column-major. O(m²).
-pub(super) fn identity(m: usize) -> Vec<Vec<f64>> {
+fn identity(m: usize) -> Vec<Vec<f64>> {
     (0..m)
         .map(|r| {
             let mut c = vec![0.0; m];
@@ -141,7 +189,7 @@ pub(super) fn identity(m: usize) -> Vec<Vec<f64>> {
 /// The position not yet `taken` where `alpha` is largest in magnitude: a re-inversion's
 /// pivot for one basic column; an error when there is none of at least
 /// [`PIVOT_TOL`] (a numerically singular basis, named `what`). O(m).
-pub(super) fn largest_free(alpha: &[f64], taken: &[bool], what: &str) -> Result<usize> {
+fn largest_free(alpha: &[f64], taken: &[bool], what: &str) -> Result<usize> {
     let best = (0..alpha.len())
         .filter(|&p| !taken[p])
         .max_by(|&a, &b| alpha[a].abs().total_cmp(&alpha[b].abs()).then(b.cmp(&a)));

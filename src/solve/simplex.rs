@@ -285,6 +285,26 @@ impl Simplex {
     }
 }
 
+impl pivoting::Product for Simplex {
+    type Var = Var;
+    fn slack_row(v: Var) -> Option<usize> {
+        match v {
+            Var::Slack(i) => Some(i),
+            Var::Col(_) => None,
+        }
+    }
+    fn slack(i: usize) -> Var {
+        Var::Slack(i)
+    }
+    fn inverse(&mut self) -> &mut Vec<Vec<f64>> {
+        &mut self.binv
+    }
+    /// The column of `v` through `B⁻¹`.
+    fn alpha(&self, v: Var) -> Vec<f64> {
+        self.ftran(&self.column_of(v))
+    }
+}
+
 impl Primal for Simplex {
     type Var = Var;
 
@@ -340,25 +360,7 @@ impl Primal for Simplex {
     fn reinvert(&mut self) -> Result<()> {
         let m = self.rhs.len();
         let basics: Vec<Var> = self.basis.clone();
-        self.binv = pivoting::identity(m);
-        // Positions whose slack stays basic are taken; the others are free.
-        let mut taken = vec![false; m];
-        for v in &basics {
-            if let Var::Slack(i) = v {
-                taken[*i] = true;
-            }
-        }
-        let mut basis: Vec<Var> = (0..m).map(Var::Slack).collect();
-        for v in basics {
-            let Var::Col(j) = v else { continue };
-            // O(m²) per column: a large basis takes long enough to poll.
-            super::cancel::check()?;
-            let alpha = self.ftran(&self.cols[j]);
-            let best = pivoting::largest_free(&alpha, &taken, "simplex")?;
-            taken[best] = true;
-            pivoting::eta(&mut self.binv, best, &alpha);
-            basis[best] = Var::Col(j);
-        }
+        let basis = pivoting::reinvert(self, m, &basics, "simplex")?;
         self.slack_pos = vec![NONE; m];
         for c in &mut self.col_pos {
             *c = NONE;
