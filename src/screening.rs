@@ -11,7 +11,8 @@
 //! its interval) and the *latest* (the other ends). Let `T` be the N-th smallest latest key:
 //! N scenarios are at or before `T` whatever their exact values. A scenario whose earliest
 //! key is after `T` is preceded by those N, so it is not among the N worst; every other
-//! scenario is solved exactly. The N worst of the exact values are then the N worst of
+//! scenario is solved exactly, unless its interval already closed (then its values are
+//! exact as they stand: the same verifier proved both ends equal). The N worst of the exact values are then the N worst of
 //! the whole audit, in the exact order (every scenario left out comes after all N).
 //!
 //! Gates (`--max-shortfall`, `--min-served-fraction`) compare the worst value as printed
@@ -33,25 +34,42 @@ use crate::numbers::displayed;
 use crate::solve::{Engine, Evaluation};
 use crate::tol::SCREEN_TOL;
 
-/// What the screen did: the N asked for and, per outage, whether it was solved exactly.
+/// What the screen did: the N asked for and, per outage, whether its values are exact
+/// and whether the walk engine solved it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Screen {
     /// `--exact-top N`.
     pub top: usize,
-    /// Per outage of the audit: solved exactly by the walk engine.
+    /// Per outage of the audit: exact, either solved by the walk engine or closed by the
+    /// approximate engine itself (its proven interval met, [`closed`]).
     pub exact: Vec<bool>,
+    /// Per outage: solved exactly by the walk engine (a subset of `exact`).
+    pub solved: Vec<bool>,
 }
 
 impl Screen {
-    /// Outages solved exactly. O(outages).
+    /// Outages the walk engine solved exactly. O(outages).
     pub fn solved_exactly(&self) -> usize {
-        self.exact.iter().filter(|&&x| x).count()
+        self.solved.iter().filter(|&&x| x).count()
     }
 
-    /// Outages left as certified intervals. O(outages).
-    pub fn certified(&self) -> usize {
-        self.exact.len() - self.solved_exactly()
+    /// Outages exact without a walk-engine solve: the approximate interval closed. O(outages).
+    pub fn closed(&self) -> usize {
+        self.exact.iter().filter(|&&x| x).count() - self.solved_exactly()
     }
+
+    /// Outages left as open certified intervals. O(outages).
+    pub fn certified(&self) -> usize {
+        self.exact.iter().filter(|&&x| !x).count()
+    }
+}
+
+/// Whether an approximate evaluation is already exact: both of its quantities proven,
+/// the verified bounds met within the proof tolerance (the same verifier, the same
+/// standard as the exact engines' answers; with bounds that meet, the certificate's prices
+/// are optimal duals). O(1).
+pub fn closed(e: &Evaluation) -> bool {
+    e.verification.proven && e.throughput_verification.as_ref().is_none_or(|t| t.proven)
 }
 
 /// The certified interval of an evaluation's quantities, widened by [`SCREEN_TOL`].
@@ -201,7 +219,9 @@ pub fn to_solve(audit: &Audit, top: usize, gates: &[Gate], tolerance: Option<f64
 /// Solves the outages [`to_solve`] names with the walk engine (an audit batch of their
 /// first scenarios: the baseline's optimum, then families from their single-failure
 /// parents, in parallel) and puts the exact evaluations, full, in place of the approximate
-/// ones. Deterministic for any thread count. Cost: the exact audit of those outages.
+/// ones; an outage whose approximate interval already closed ([`closed`]) is exact as it
+/// is and not solved again. Deterministic for any thread count. Cost: the exact audit of
+/// the outages solved.
 pub fn confirm(
     net: &Network,
     audit: &mut Audit,
@@ -210,19 +230,26 @@ pub fn confirm(
     tolerance: Option<f64>,
     opts: RunOptions,
 ) -> Result<Screen> {
-    let chosen = to_solve(audit, top, gates, tolerance);
-    let mut exact = vec![false; audit.outages.len()];
+    // An outage whose approximate interval already closed is exact as it stands: the
+    // screen needs no second solve of it.
+    let mut exact: Vec<bool> = audit.evaluations.iter().map(closed).collect();
+    let chosen: Vec<usize> = to_solve(audit, top, gates, tolerance)
+        .into_iter()
+        .filter(|&k| !exact[k])
+        .collect();
+    let mut solved = vec![false; audit.outages.len()];
     if !chosen.is_empty() {
         let scenarios = chosen
             .iter()
             .map(|&k| audit.first_scenario(OutageId(k)).clone())
             .collect();
-        let solved = audit::run_with(net, scenarios, opts, Engine::Walks)?;
+        let walked = audit::run_with(net, scenarios, opts, Engine::Walks)?;
         for (j, &k) in chosen.iter().enumerate() {
-            audit.evaluations[k] = solved.evaluations[solved.outage_of[j]].clone();
+            audit.evaluations[k] = walked.evaluations[walked.outage_of[j]].clone();
             exact[k] = true;
+            solved[k] = true;
         }
-        audit.stats.add(&solved.stats);
+        audit.stats.add(&walked.stats);
     }
-    Ok(Screen { top, exact })
+    Ok(Screen { top, exact, solved })
 }

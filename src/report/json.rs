@@ -262,9 +262,10 @@ pub struct ScenarioJson {
     /// `--headroom`: how that factor was verified (absent when it is `null`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub headroom_verification: Option<super::headroom::HeadroomVerificationJson>,
-    /// `--exact-top`: `true` when the walk engine solved this scenario exactly, `false`
-    /// when its values are the approximate engine's proven interval (`served_required`
-    /// the lower end, `upper_bound` the upper end).
+    /// `--exact-top`: `true` when this scenario's values are exact (the walk engine solved
+    /// it, or the approximate engine's interval closed), `false` when they are the
+    /// approximate engine's open proven interval (`served_required` the lower end,
+    /// `upper_bound` the upper end).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub exact: Option<bool>,
 }
@@ -274,9 +275,12 @@ pub struct ScenarioJson {
 pub struct ScreenJson {
     /// The N asked for: the N worst scenarios are exactly the exact engines' N worst.
     pub top: usize,
-    /// Distinct outages solved exactly.
+    /// Distinct outages solved exactly by the walk engine.
     pub solved_exactly: usize,
-    /// Distinct outages left as proven intervals.
+    /// Distinct outages exact without it: their approximate interval closed (both
+    /// quantities proven).
+    pub closed: usize,
+    /// Distinct outages left as open proven intervals.
     pub certified: usize,
 }
 
@@ -716,6 +720,7 @@ impl Exporter<Model<'_>> for Json {
             doc.screen = Some(ScreenJson {
                 top: sc.top,
                 solved_exactly: sc.solved_exactly(),
+                closed: sc.closed(),
                 certified: sc.certified(),
             });
         }

@@ -356,12 +356,20 @@ pub fn audit_report(m: &Model<'_>) -> String {
 }
 
 /// `--exact-top N`: how many outages the walk engine solved exactly (those that could be
-/// among the N worst or decide a gate) and that the rest are proven intervals. O(outages).
+/// among the N worst or decide a gate and were not exact already), how many the
+/// approximate engine closed itself, and that the rest are proven intervals. O(outages).
 pub fn screen_line(sc: &crate::screening::Screen) -> String {
+    let closed = match sc.closed() {
+        0 => String::new(),
+        c => format!(
+            "{} exact already (the approximate interval closed) and ",
+            crate::report::count(c, "outage")
+        ),
+    };
     format!(
-        "Screened (--exact-top {}): {} solved exactly with the walk engine (every one that \
-         could be among the {} worst or decide a gate), so the {} worst are exact; the \
-         other {} from --engine approx, ranked at their proven served amount.",
+        "Screened (--exact-top {}): {closed}{} solved exactly with the walk engine (every \
+         other one that could be among the {} worst or decide a gate), so the {} worst are \
+         exact; the other {} from --engine approx, ranked at their proven served amount.",
         sc.top,
         crate::report::count(sc.solved_exactly(), "outage"),
         sc.top,
