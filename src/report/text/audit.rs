@@ -366,19 +366,24 @@ pub fn screen_line(sc: &crate::screening::Screen) -> String {
             crate::report::count(c, "outage")
         ),
     };
+    let rest = match sc.certified() {
+        0 => "every other outage is exact too.".to_string(),
+        1 => "the other 1 is a proven interval from --engine approx, ranked at its proven \
+              served amount."
+            .to_string(),
+        m => format!(
+            "the other {m} are proven intervals from --engine approx, ranked at their proven \
+             served amount."
+        ),
+    };
     format!(
         "Screened (--exact-top {}): {closed}{} solved exactly with the walk engine (every \
          other one that could be among the {} worst or decide a gate), so the {} worst are \
-         exact; the other {} from --engine approx, ranked at their proven served amount.",
+         exact; {rest}",
         sc.top,
         crate::report::count(sc.solved_exactly(), "outage"),
         sc.top,
         sc.top,
-        if sc.certified() == 1 {
-            "1 is a proven interval".to_string()
-        } else {
-            format!("{} are proven intervals", sc.certified())
-        },
     )
 }
 
