@@ -321,4 +321,101 @@ mod tests {
         );
         assert_eq!(certified, 5.0);
     }
+
+    /// The cut's own value (graph searches, pruning with early stops) is the certificate's
+    /// bound at its prices, computed independently by `certify::dual_bound` (shortest
+    /// walks by petgraph's Dijkstra), on generated networks (a ring with chords, random
+    /// capacities, processing at two or three sites, random demands) and the allocations
+    /// the approximate engine finds on them and on each single-link failure; and it is at
+    /// least what the allocation serves (weak duality).
+    #[test]
+    fn value_is_the_certificates_bound_at_its_prices() {
+        let mut x: u64 = 0x2545_f491_4f6c_dd1d;
+        let mut next = |m: u64| {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            x % m
+        };
+        for _ in 0..12 {
+            let n = 6 + next(5) as usize;
+            let sites: Vec<String> = (0..n)
+                .map(|i| {
+                    let p = if i % 3 == 0 { 2 + next(9) } else { 0 };
+                    format!(r#"{{"id":"v{i}","processing":{p}}}"#)
+                })
+                .collect();
+            let mut links: Vec<String> = (0..n)
+                .map(|i| {
+                    format!(
+                        r#"{{"id":"r{i}","from":"v{i}","to":"v{}","capacity":{}}}"#,
+                        (i + 1) % n,
+                        1 + next(8)
+                    )
+                })
+                .collect();
+            for k in 0..n / 2 {
+                let (a, b) = (next(n as u64), next(n as u64));
+                if a != b {
+                    links.push(format!(
+                        r#"{{"id":"c{k}","from":"v{a}","to":"v{b}","capacity":{}}}"#,
+                        1 + next(8)
+                    ));
+                }
+            }
+            let demands: Vec<String> = (0..2 * n)
+                .filter_map(|_| {
+                    let (a, b) = (next(n as u64), next(n as u64));
+                    (a != b).then(|| {
+                        format!(r#"{{"from":"v{a}","to":"v{b}","volume":{}}}"#, 1 + next(6))
+                    })
+                })
+                .collect();
+            let net = net(&format!(
+                r#"{{"sites":[{}],"links":[{}],"demands":[{}]}}"#,
+                sites.join(","),
+                links.join(","),
+                demands.join(",")
+            ));
+            let outages = std::iter::once(Outage::default()).chain((0..net.links.len()).map(|l| {
+                crate::scenario::Scenario::new(&net, &[crate::scenario::Element::Link(l.into())])
+                    .outage(&net)
+            }));
+            for o in outages {
+                let view = Surviving::new(&net, &o, None);
+                let s = Setup::new(&net, &view, Cap::Required, 0.05);
+                let st = State::new(&net, &view, &s.bound, 0.05);
+                let v =
+                    crate::solve::approx::solve_approx(&net, &view, Cap::Required, 0.05).unwrap();
+                let inputs = CutInputs {
+                    layers: &st.layers,
+                    by_origin: &s.by_origin,
+                    bound: &s.bound,
+                    arc_cap: &s.arc_cap,
+                    site_cap: &s.site_cap,
+                };
+                let c = cut(&net, &inputs, &v.allocation);
+                let certified = certify::dual_bound(
+                    &net,
+                    &view,
+                    &s.all,
+                    &s.arc_cap,
+                    &s.site_cap,
+                    &c.arc_price,
+                    &c.site_price,
+                );
+                assert!(
+                    (c.value - certified).abs() <= 1e-9 * certified.max(1.0),
+                    "{} vs {certified}",
+                    c.value
+                );
+                assert!(
+                    c.value >= v.allocation.served - 1e-9,
+                    "{} < {}",
+                    c.value,
+                    v.allocation.served
+                );
+            }
+        }
+    }
 }
