@@ -262,6 +262,34 @@ mod tests {
     use crate::solve::flow::Cap;
     use crate::solve::surviving::Surviving;
 
+    /// The cut of `alloc` on `view` (setup `s`) and `certify::dual_bound` at its prices.
+    fn cut_and_certificate(
+        n: &Network,
+        view: &Surviving,
+        s: &Setup,
+        alloc: &verify::Repaired,
+    ) -> (Cut, f64) {
+        let st = State::new(n, view, &s.bound, 0.01);
+        let inputs = CutInputs {
+            layers: &st.layers,
+            by_origin: &s.by_origin,
+            bound: &s.bound,
+            arc_cap: &s.arc_cap,
+            site_cap: &s.site_cap,
+        };
+        let c = cut(n, &inputs, alloc);
+        let certified = certify::dual_bound(
+            n,
+            view,
+            &s.all,
+            &s.arc_cap,
+            &s.site_cap,
+            &c.arc_price,
+            &c.site_price,
+        );
+        (c, certified)
+    }
+
     /// Hand case (computed here): path s–a–t, link s–a of capacity 5, link a–t of
     /// capacity 10, processing 5 at a only, one demand s→t of 8. Every walk crosses s→a
     /// and is processed at a, so 5 is the optimum and the walk s→a→t carrying 5 saturates
@@ -278,7 +306,6 @@ mod tests {
         let o = Outage::default();
         let view = Surviving::new(&n, &o, None);
         let s = Setup::new(&n, &view, Cap::Required, 0.01);
-        let st = State::new(&n, &view, &s.bound, 0.01);
         let arc = |from: &str, to: &str| {
             let (f, t) = (n.site(from).unwrap().0, n.site(to).unwrap().0);
             (0..n.arcs.len())
@@ -295,14 +322,7 @@ mod tests {
         let procs: Vec<f64> = n.sites.iter().map(|v| v.processing).collect();
         let alloc = verify::repair_walks(&n, &[walk], &caps, &procs, &s.bound);
         assert!((alloc.served - 5.0).abs() < 1e-12, "{}", alloc.served);
-        let inputs = CutInputs {
-            layers: &st.layers,
-            by_origin: &s.by_origin,
-            bound: &s.bound,
-            arc_cap: &s.arc_cap,
-            site_cap: &s.site_cap,
-        };
-        let c = cut(&n, &inputs, &alloc);
+        let (c, certified) = cut_and_certificate(&n, &view, &s, &alloc);
         assert_eq!(c.value, 5.0);
         let priced = c
             .arc_price
@@ -310,15 +330,6 @@ mod tests {
             .chain(&c.site_price)
             .filter(|&&p| p > 0.0);
         assert_eq!(priced.count(), 1, "one row is enough to cut every walk");
-        let certified = certify::dual_bound(
-            &n,
-            &view,
-            &s.all,
-            &s.arc_cap,
-            &s.site_cap,
-            &c.arc_price,
-            &c.site_price,
-        );
         assert_eq!(certified, 5.0);
     }
 
@@ -384,26 +395,9 @@ mod tests {
             for o in outages {
                 let view = Surviving::new(&net, &o, None);
                 let s = Setup::new(&net, &view, Cap::Required, 0.05);
-                let st = State::new(&net, &view, &s.bound, 0.05);
                 let v =
                     crate::solve::approx::solve_approx(&net, &view, Cap::Required, 0.05).unwrap();
-                let inputs = CutInputs {
-                    layers: &st.layers,
-                    by_origin: &s.by_origin,
-                    bound: &s.bound,
-                    arc_cap: &s.arc_cap,
-                    site_cap: &s.site_cap,
-                };
-                let c = cut(&net, &inputs, &v.allocation);
-                let certified = certify::dual_bound(
-                    &net,
-                    &view,
-                    &s.all,
-                    &s.arc_cap,
-                    &s.site_cap,
-                    &c.arc_price,
-                    &c.site_price,
-                );
+                let (c, certified) = cut_and_certificate(&net, &view, &s, &v.allocation);
                 assert!(
                     (c.value - certified).abs() <= 1e-9 * certified.max(1.0),
                     "{} vs {certified}",
