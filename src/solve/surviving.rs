@@ -11,6 +11,7 @@
 //! Building the view is O(sites + links + demands).
 
 use std::collections::VecDeque;
+use std::sync::OnceLock;
 
 use crate::model::Network;
 use crate::scenario::Outage;
@@ -41,6 +42,9 @@ pub struct Surviving {
     pub fwd: Vec<Vec<usize>>,
     /// Per site: in-neighbours over usable arcs.
     pub back: Vec<Vec<usize>>,
+    /// The part of the first standing site when it is closed both ways (computed on first
+    /// use; see [`Self::closed_part`]).
+    closed: OnceLock<Option<Vec<bool>>>,
 }
 
 impl Surviving {
@@ -83,6 +87,7 @@ impl Surviving {
             can_process,
             fwd,
             back,
+            closed: OnceLock::new(),
         }
     }
 
@@ -92,14 +97,48 @@ impl Surviving {
         self.site_alive[dem.from] && self.site_alive[dem.to]
     }
 
-    /// Sites reachable from `starts` over usable arcs (forward). O(sites + arcs).
-    pub fn reach_from(&self, starts: impl IntoIterator<Item = usize>) -> Vec<bool> {
-        reach(&self.fwd, starts)
+    /// The sites reachable from the first standing site, when exactly those sites also
+    /// reach it: then they are one strongly connected part that no usable arc leaves or
+    /// enters, so from any nonempty set of starts inside it the sites reachable (forward or
+    /// backward) are the part itself. That is the usual case (a network that stays
+    /// connected after the outage), where [`Self::reach_from`] and [`Self::reach_to`]
+    /// answer without a search. Two searches, O(sites + arcs), on first use; `None` when
+    /// no site stands or the condition fails.
+    fn closed_part(&self) -> Option<&[bool]> {
+        self.closed
+            .get_or_init(|| {
+                let x = self.site_alive.iter().position(|&a| a)?;
+                let from = reach(&self.fwd, [x]);
+                (from == reach(&self.back, [x])).then_some(from)
+            })
+            .as_deref()
     }
 
-    /// Sites from which one of `targets` is reachable over usable arcs. O(sites + arcs).
+    /// Sites reachable from `starts` over usable arcs (forward). O(sites + arcs); O(sites)
+    /// when every start lies in the first standing site's strongly connected part and
+    /// that part is closed both ways (no usable arc leaves or enters it: the usual case of
+    /// a network that stays connected), the part found by two searches on first use.
+    pub fn reach_from(&self, starts: impl IntoIterator<Item = usize>) -> Vec<bool> {
+        self.reach_over(&self.fwd, starts)
+    }
+
+    /// Sites from which one of `targets` is reachable over usable arcs. O(sites + arcs);
+    /// O(sites) when every target lies in the closed part.
     pub fn reach_to(&self, targets: impl IntoIterator<Item = usize>) -> Vec<bool> {
-        reach(&self.back, targets)
+        self.reach_over(&self.back, targets)
+    }
+
+    /// [`reach`] over `adj` (this view's forward or backward lists), answered by the closed
+    /// part when every start lies in it.
+    fn reach_over(&self, adj: &[Vec<usize>], starts: impl IntoIterator<Item = usize>) -> Vec<bool> {
+        let starts: Vec<usize> = starts.into_iter().collect();
+        if let Some(part) = self.closed_part()
+            && !starts.is_empty()
+            && starts.iter().all(|&s| part[s])
+        {
+            return part.to_vec();
+        }
+        reach(adj, starts)
     }
 
     /// Per demand: `Some(reason)` when the demand survives, has something to serve
@@ -180,4 +219,72 @@ pub fn reach(adj: &[Vec<usize>], starts: impl IntoIterator<Item = usize>) -> Vec
         }
     }
     seen
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::test_net;
+    use crate::scenario::{Element, Scenario};
+
+    /// The closed-part shortcut answers exactly as the plain search ([`reach`], the
+    /// definition): on a hand-built 8-site network with a one-way spur (so some outages
+    /// leave a part that others cannot reach back) and a link of capacity 0, for every
+    /// outage of at most two links or sites, every single start and a pair of starts,
+    /// forward and backward. Both kinds of outage occur: ones whose standing sites stay
+    /// one closed part and ones where they do not.
+    #[test]
+    fn shortcut_agrees_with_the_plain_search() {
+        let n = test_net(
+            r#"{"sites":[{"id":"a","processing":5},{"id":"b"},{"id":"c"},{"id":"d"},
+                         {"id":"e","processing":5},{"id":"f"},{"id":"g"},{"id":"h"}],
+                "links":[{"id":"ab","from":"a","to":"b","capacity":4},
+                         {"id":"bc","from":"b","to":"c","capacity":4},
+                         {"id":"cd","from":"c","to":"d","capacity":4},
+                         {"id":"da","from":"d","to":"a","capacity":4},
+                         {"id":"ac","from":"a","to":"c","capacity":4},
+                         {"id":"de","from":"d","to":"e","capacity":4},
+                         {"id":"ef","from":"e","to":"f","capacity":4},
+                         {"id":"fd","from":"f","to":"d","capacity":4},
+                         {"id":"fg","from":"f","to":"g","capacity":4,"one_way":true},
+                         {"id":"gh","from":"g","to":"h","capacity":0}],
+                "demands":[{"from":"a","to":"e","volume":1}]}"#,
+        );
+        let elements: Vec<Element> = (0..n.links.len())
+            .map(|l| Element::Link(l.into()))
+            .chain((0..n.sites.len()).map(|v| Element::Site(v.into())))
+            .collect();
+        let mut outages = vec![Vec::new()];
+        for (i, &x) in elements.iter().enumerate() {
+            outages.push(vec![x]);
+            for &y in &elements[i + 1..] {
+                outages.push(vec![x, y]);
+            }
+        }
+        let (mut closed, mut open) = (0, 0);
+        for els in outages {
+            let view = Surviving::new(&n, &Scenario::new(&n, &els).outage(&n), None);
+            match view.closed_part() {
+                Some(_) => closed += 1,
+                None => open += 1,
+            }
+            let sites = n.sites.len();
+            let mut starts: Vec<Vec<usize>> = (0..sites).map(|v| vec![v]).collect();
+            starts.push(vec![0, 4]);
+            starts.push(vec![6, 7]);
+            for s in starts {
+                assert_eq!(
+                    view.reach_from(s.iter().copied()),
+                    reach(&view.fwd, s.iter().copied()),
+                    "{els:?} from {s:?}"
+                );
+                assert_eq!(
+                    view.reach_to(s.iter().copied()),
+                    reach(&view.back, s.iter().copied()),
+                    "{els:?} to {s:?}"
+                );
+            }
+        }
+        assert!(closed > 0 && open > 0, "closed {closed}, open {open}");
+    }
 }
