@@ -41,7 +41,8 @@ pub struct Screen {
     /// `--exact-top N`.
     pub top: usize,
     /// Per outage of the audit: exact, either solved by the walk engine or closed by the
-    /// approximate engine itself (its proven interval met, [`closed`]).
+    /// approximate engine itself (both quantities proven, [`Evaluation::proven`]: the
+    /// verified bounds met, the same verifier and standard as the exact engines' answers).
     pub exact: Vec<bool>,
     /// Per outage: solved exactly by the walk engine (a subset of `exact`).
     pub solved: Vec<bool>,
@@ -62,14 +63,6 @@ impl Screen {
     pub fn certified(&self) -> usize {
         self.exact.iter().filter(|&&x| !x).count()
     }
-}
-
-/// Whether an approximate evaluation is already exact: both of its quantities proven,
-/// the verified bounds met within the proof tolerance (the same verifier, the same
-/// standard as the exact engines' answers; with bounds that meet, the certificate's prices
-/// are optimal duals). O(1).
-pub fn closed(e: &Evaluation) -> bool {
-    e.verification.proven && e.throughput_verification.as_ref().is_none_or(|t| t.proven)
 }
 
 /// The certified interval of an evaluation's quantities, widened by [`SCREEN_TOL`].
@@ -219,7 +212,7 @@ pub fn to_solve(audit: &Audit, top: usize, gates: &[Gate], tolerance: Option<f64
 /// Solves the outages [`to_solve`] names with the walk engine (an audit batch of their
 /// first scenarios: the baseline's optimum, then families from their single-failure
 /// parents, in parallel) and puts the exact evaluations, full, in place of the approximate
-/// ones; an outage whose approximate interval already closed ([`closed`]) is exact as it
+/// ones; an outage whose approximate interval already closed ([`Evaluation::proven`]) is exact as it
 /// is and not solved again. Deterministic for any thread count. Cost: the exact audit of
 /// the outages solved.
 pub fn confirm(
@@ -232,7 +225,7 @@ pub fn confirm(
 ) -> Result<Screen> {
     // An outage whose approximate interval already closed is exact as it stands: the
     // screen needs no second solve of it.
-    let mut exact: Vec<bool> = audit.evaluations.iter().map(closed).collect();
+    let mut exact: Vec<bool> = audit.evaluations.iter().map(Evaluation::proven).collect();
     let chosen: Vec<usize> = to_solve(audit, top, gates, tolerance)
         .into_iter()
         .filter(|&k| !exact[k])

@@ -273,17 +273,12 @@ pub(super) fn verified(
             }
         })
         .collect();
-    let scaled = certify::dual_bound(net, view, all, arc_cap, site_cap, &arc_price, &site_price);
+    let certified = |arc_price: &[f64], site_price: &[f64]| {
+        certify::dual_bound(net, view, all, arc_cap, site_cap, arc_price, site_price)
+    };
+    let scaled = certified(&arc_price, &site_price);
     // The least cut seen ([`cut::cut`]): the better prices of the two are reported.
-    let cut_bound = certify::dual_bound(
-        net,
-        view,
-        all,
-        arc_cap,
-        site_cap,
-        &cut.arc_price,
-        &cut.site_price,
-    );
+    let cut_bound = certified(&cut.arc_price, &cut.site_price);
     let (upper, arc_price, site_price) = if cut_bound < scaled {
         (cut_bound, cut.arc_price, cut.site_price)
     } else {

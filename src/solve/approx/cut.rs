@@ -70,37 +70,8 @@ struct Origin {
 pub(super) fn cut(net: &Network, x: &CutInputs, alloc: &verify::Repaired) -> Cut {
     let layers = x.layers;
     let nodes = layers.start.len() - 1;
-    // The rows present in the graph, with their capacities; the cut starts as the
-    // saturated ones.
-    let mut arc_in = vec![false; net.arcs.len()];
-    let mut site_in = vec![false; net.sites.len()];
-    for r in &layers.row {
-        match *r {
-            Row::Arc(a) => arc_in[a] = true,
-            Row::Site(v) => site_in[v] = true,
-        }
-    }
-    let saturated = |load: f64, cap: f64| load >= cap * SATURATED;
-    let mut rows: Vec<(Row, f64)> = Vec::new();
-    for a in (0..net.arcs.len()).filter(|&a| arc_in[a]) {
-        if saturated(alloc.arc_load[a], x.arc_cap[a]) {
-            rows.push((Row::Arc(a), x.arc_cap[a]));
-        }
-    }
-    for v in (0..net.sites.len()).filter(|&v| site_in[v]) {
-        if saturated(alloc.site_load[v], x.site_cap[v]) {
-            rows.push((Row::Site(v), x.site_cap[v]));
-        }
-    }
-    let mut arc_cut = vec![false; net.arcs.len()];
-    let mut site_cut = vec![false; net.sites.len()];
-    for &(r, _) in &rows {
-        match r {
-            Row::Arc(a) => arc_cut[a] = true,
-            Row::Site(v) => site_cut[v] = true,
-        }
-    }
     // Where each row's edges start and end: arcs in both layers, sites from layer 0 to 1.
+    // The rows present are its keys.
     let mut ends: HashMap<(bool, usize), Vec<(usize, usize)>> = HashMap::new();
     for u in 0..nodes {
         for e in layers.start[u]..layers.start[u + 1] {
@@ -111,6 +82,23 @@ pub(super) fn cut(net: &Network, x: &CutInputs, alloc: &verify::Repaired) -> Cut
             ends.entry(key).or_default().push((u, layers.to[e]));
         }
     }
+    // The cut starts as the saturated rows present, with their capacities.
+    let saturated = |load: f64, cap: f64| load >= cap * SATURATED;
+    let mut arc_cut: Vec<bool> = (0..net.arcs.len())
+        .map(|a| ends.contains_key(&(true, a)) && saturated(alloc.arc_load[a], x.arc_cap[a]))
+        .collect();
+    let mut site_cut: Vec<bool> = (0..net.sites.len())
+        .map(|v| ends.contains_key(&(false, v)) && saturated(alloc.site_load[v], x.site_cap[v]))
+        .collect();
+    let mut rows: Vec<(Row, f64)> = (0..net.arcs.len())
+        .filter(|&a| arc_cut[a])
+        .map(|a| (Row::Arc(a), x.arc_cap[a]))
+        .chain(
+            (0..net.sites.len())
+                .filter(|&v| site_cut[v])
+                .map(|v| (Row::Site(v), x.site_cap[v])),
+        )
+        .collect();
     let mut origins: Vec<Origin> = x
         .by_origin
         .iter()

@@ -147,18 +147,21 @@ fn from_parent(
         (&arc_capacity, &site_capacity),
         super::WARM_TOP_UP_WALKS,
     );
-    let upper = certify::dual_bound(
-        net,
-        view,
-        &s.all,
-        &s.arc_cap,
-        &s.site_cap,
-        &kept.arc_price,
-        &kept.site_price,
-    )
-    .min(s.at_stake);
-    let mut prices = (kept.arc_price.clone(), kept.site_price.clone());
-    let mut upper = upper;
+    // The certificate on this network at the given prices (arc, site).
+    let certified = |arc_price: &[f64], site_price: &[f64]| {
+        certify::dual_bound(
+            net,
+            view,
+            &s.all,
+            &s.arc_cap,
+            &s.site_cap,
+            arc_price,
+            site_price,
+        )
+        .min(s.at_stake)
+    };
+    let mut upper = certified(&kept.arc_price, &kept.site_price);
+    let mut own_cut = None;
     if upper - allocation.served > s.target {
         // The parent's prices do not bound this network tightly: try the child's own
         // allocation's cut ([`super::cut`]) before giving up.
@@ -173,21 +176,13 @@ fn from_parent(
         if cut.value - allocation.served > s.target {
             return None;
         }
-        upper = certify::dual_bound(
-            net,
-            view,
-            &s.all,
-            &s.arc_cap,
-            &s.site_cap,
-            &cut.arc_price,
-            &cut.site_price,
-        )
-        .min(s.at_stake);
+        upper = certified(&cut.arc_price, &cut.site_price);
         if upper - allocation.served > s.target {
             return None;
         }
-        prices = (cut.arc_price, cut.site_price);
+        own_cut = Some((cut.arc_price, cut.site_price));
     }
+    let prices = own_cut.unwrap_or_else(|| (kept.arc_price.clone(), kept.site_price.clone()));
     let verification = one_attempt(
         0.0,
         allocation.served,
